@@ -1,0 +1,114 @@
+# lamina - GNU Makefile. See DEVELOPERS.md for the layout and targets.
+
+PREFIX   ?= /usr/local
+DESTDIR  ?=
+CC       ?= cc
+BUILD    ?= build
+SANITIZE ?=
+
+PKGS     := libpng libjpeg gsl libcjson
+# Debian packages: build, test-only references, outside model reference
+DEB_BUILD := build-essential pkg-config libpng-dev libjpeg-dev libgsl-dev libcjson-dev
+DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
+DEB_REF   := python3-meep python3-numpy python3-matplotlib
+
+WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
+            -Wwrite-strings -Wpointer-arith -Wcast-align -Wformat=2 -Wundef \
+            -Wno-clobbered
+OPT      ?= -O2
+CFLAGS   ?= $(OPT) -g
+ALL_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE $(WARN) $(CFLAGS) \
+             -Iinclude -Isrc $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -MMD -MP
+LDLIBS   = $(shell pkg-config --libs $(PKGS) 2>/dev/null) -lpthread -lm
+
+ifneq ($(SANITIZE),)
+ALL_CFLAGS += -fsanitize=$(SANITIZE) -fno-sanitize-recover=all -fno-omit-frame-pointer
+LDFLAGS    += -fsanitize=$(SANITIZE)
+endif
+
+LIB_SRC  := $(wildcard src/*.c)
+CLI_SRC  := $(wildcard src/cli/*.c)
+TEST_SRC := $(wildcard tests/test_*.c)
+BENCH_SRC:= $(wildcard bench/bench_*.c)
+
+LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/%.o)
+CLI_OBJ  := $(CLI_SRC:%.c=$(BUILD)/%.o)
+TEST_BIN := $(TEST_SRC:tests/%.c=$(BUILD)/tests/%)
+BENCH_BIN:= $(BENCH_SRC:bench/%.c=$(BUILD)/bench/%)
+LIB      := $(BUILD)/liblamina.a
+BIN      := $(BUILD)/lamina
+
+.SECONDARY:
+.PHONY: all test asan noopt valgrind bench demo deps install clean check-reference fuzz
+
+all: $(BIN)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -c $< -o $@
+
+$(LIB): $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	rm -f $@
+	ar rcs $@ $^
+
+$(BIN): $(CLI_OBJ) $(LIB)
+	$(CC) $(LDFLAGS) $(CLI_OBJ) $(LIB) $(LDLIBS) -o $@
+
+# Tests link the harness and the library; test_image also uses Little CMS
+# as an independent sRGB reference.
+$(BUILD)/tests/test_%: tests/test_%.c $(BUILD)/tests/check.o $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(BUILD)/tests/check.o $(LIB) $(LDLIBS) \
+	    $(if $(filter image,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
+
+$(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(LIB) $(LDLIBS) -o $@
+
+# Install missing Debian packages when root; otherwise say what to run.
+deps:
+	@missing=""; for p in $(DEB_BUILD) $(DEB_TEST); do \
+	  dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "ok installed" || missing="$$missing $$p"; \
+	done; \
+	if [ -n "$$missing" ]; then \
+	  if [ "$$(id -u)" = 0 ]; then \
+	    echo "installing:$$missing"; \
+	    DEBIAN_FRONTEND=noninteractive apt-get update -qq && \
+	    DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$missing >/dev/null || exit 1; \
+	  else \
+	    echo "missing Debian packages; run:"; echo "  sudo apt-get install$$missing"; exit 1; \
+	  fi; \
+	fi
+
+test: deps
+	$(MAKE) --no-print-directory $(BIN) $(TEST_BIN)
+	@BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
+
+asan:
+	$(MAKE) --no-print-directory BUILD=build-asan SANITIZE=address,undefined OPT=-O1 test
+
+noopt:
+	$(MAKE) --no-print-directory BUILD=build-noopt OPT=-O0 test
+
+valgrind: deps
+	$(MAKE) --no-print-directory BUILD=build-vg $(BUILD:build=build-vg)/lamina
+	$(MAKE) --no-print-directory BUILD=build-vg build-vg/lamina \
+	    $(TEST_SRC:tests/%.c=build-vg/tests/%)
+	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full" \
+	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
+
+bench: $(BIN) $(BENCH_BIN)
+	@for b in $(BENCH_BIN); do $$b || exit 1; done
+
+install: $(BIN)
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/lamina/calib \
+	    $(DESTDIR)$(PREFIX)/share/man/man1
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/lamina
+	install -m 644 calib/* $(DESTDIR)$(PREFIX)/share/lamina/calib/
+	install -m 644 docs/lamina.1 $(DESTDIR)$(PREFIX)/share/man/man1/lamina.1
+
+clean:
+	rm -rf build build-asan build-noopt build-vg lamina-out
+
+-include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(BUILD)/tests/check.d

@@ -1,0 +1,62 @@
+/*
+ * lamina/error.h - status codes and the error record.
+ *
+ * Every fallible lamina function returns a lam_status (LAM_OK = 0) and, on
+ * failure, fills the caller's lam_error record (which may be NULL) with a
+ * message written once, where the problem was detected. Callers that get a
+ * non-zero status pass it on unchanged and add nothing; only the command
+ * line prints, as "lamina: FILE: message".
+ *
+ * The record is caller-owned storage (no allocation), so it is safe to use
+ * one record per thread.
+ */
+#ifndef LAMINA_ERROR_H
+#define LAMINA_ERROR_H
+
+#include <stddef.h>
+
+typedef enum lam_status {
+    LAM_OK = 0,
+    LAM_EINVAL,     /* an argument or option value is invalid */
+    LAM_ENOMEM,     /* memory could not be allocated */
+    LAM_EIO,        /* a file could not be opened, read or written */
+    LAM_EFORMAT,    /* a file is corrupt, truncated or of an unsupported kind */
+    LAM_ETOOBIG,    /* an image or table exceeds a configured limit */
+    LAM_ESIZE,      /* sizes of two inputs do not match */
+    LAM_ERANGE,     /* a value lies outside its physical or modelled range */
+    LAM_ENOCONV,    /* an iterative fit did not converge */
+    LAM_EGSL,       /* GSL reported a numerical failure */
+    LAM_EINTERNAL   /* an internal invariant was broken (a bug) */
+} lam_status;
+
+#define LAM_ERROR_MSG_MAX 512
+#define LAM_ERROR_FILE_MAX 256
+
+typedef struct lam_error {
+    lam_status status;
+    int sys_errno;                    /* errno at detection, or 0 */
+    char file[LAM_ERROR_FILE_MAX];    /* file concerned, or "" */
+    char message[LAM_ERROR_MSG_MAX];  /* one line, no trailing newline */
+} lam_error;
+
+/* Short fixed phrase for a status ("out of memory"). Never NULL. */
+const char *lam_strerror(lam_status status);
+
+/* Reset a record to LAM_OK with empty texts. err may be NULL. */
+void lam_error_clear(lam_error *err);
+
+/* Fill err (may be NULL) with status and a printf-style message; returns
+ * status so that a failing line reads "return lam_error_set(err, ...)". */
+lam_status lam_error_set(lam_error *err, lam_status status, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+
+/* Record the file a failure concerns, unless one is already recorded. */
+void lam_error_set_file(lam_error *err, const char *file);
+
+/* Turn off GSL's aborting error handler; call once at program start. */
+void lam_error_init_gsl(void);
+
+/* Map a GSL status to LAM_EGSL with GSL's text and a context phrase. */
+lam_status lam_error_gsl(lam_error *err, int gsl_status, const char *context);
+
+#endif

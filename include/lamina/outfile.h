@@ -1,0 +1,42 @@
+/*
+ * lamina/outfile.h - atomic output files.
+ *
+ * Every result file is written under a temporary name in the target folder,
+ * flushed, checked and closed, then renamed over the final name, so that a
+ * crash, a full disk or an interrupt never leaves a half-written result.
+ *
+ * Usage: lam_outfile_open, write to .fp, then lam_outfile_commit (renames)
+ * or lam_outfile_abort (removes the temporary file). Both release the
+ * record; after either, the record must not be used again.
+ */
+#ifndef LAMINA_OUTFILE_H
+#define LAMINA_OUTFILE_H
+
+#include <stdio.h>
+#include "lamina/error.h"
+
+#define LAM_OUTFILE_PATH_MAX 4096
+
+typedef struct lam_outfile {
+    FILE *fp;
+    char final_path[LAM_OUTFILE_PATH_MAX];
+    char temp_path[LAM_OUTFILE_PATH_MAX];
+} lam_outfile;
+
+lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err);
+
+/* Flush, check for write errors, close and rename. On failure the
+ * temporary file is removed and LAM_EIO is returned. */
+lam_status lam_outfile_commit(lam_outfile *of, lam_error *err);
+
+void lam_outfile_abort(lam_outfile *of);
+
+/* Remove every temporary file still open (called from a signal handler's
+ * aftermath, at exit). Safe to call at any time. */
+void lam_outfile_cleanup_all(void);
+
+/* Write a whole memory buffer atomically. */
+lam_status lam_outfile_write_buffer(const char *path, const void *data, size_t n,
+                                    lam_error *err);
+
+#endif

@@ -1,0 +1,46 @@
+/*
+ * cli/cli.h - shared pieces of the command-line front end.
+ *
+ * The CLI is a thin layer over the library: each subcommand parses its
+ * options, calls library functions and maps statuses to exit codes.
+ * Exit codes: 0 success, 1 a file could not be processed, 2 usage error.
+ * Diagnostics go to stderr as "lamina: FILE: reason".
+ */
+#ifndef LAMINA_CLI_H
+#define LAMINA_CLI_H
+
+#include <stdio.h>
+#include "lamina/error.h"
+
+enum { CLI_OK = 0, CLI_EFILE = 1, CLI_EUSAGE = 2 };
+
+typedef struct cli_command {
+    const char *name;
+    const char *summary;
+    int (*run)(int argc, char **argv);
+    void (*help)(FILE *out);
+} cli_command;
+
+extern const cli_command cli_predict, cli_map, cli_analyze, cli_render;
+
+/* Print "lamina: <msg>" for a usage problem with a hint; returns 2. */
+int cli_usage_error(const char *command, const char *fmt, ...)
+    __attribute__((format(printf, 2, 3)));
+
+/* Print a library error as "lamina: FILE: message"; returns 1 (or 2 when
+ * the status is LAM_EINVAL from an option value). */
+int cli_report(const lam_error *err, const char *fallback_file);
+
+/* Parse a finite number in [lo, hi]; 0 on success, else prints a usage
+ * error naming the option and returns -1. */
+int cli_parse_double(const char *command, const char *option, const char *text,
+                     double lo, double hi, double *out);
+int cli_parse_long(const char *command, const char *option, const char *text, long lo,
+                   long hi, long *out);
+
+/* Create a folder (and parents) for outputs; returns 0 or prints and -1. */
+int cli_make_dir(const char *path);
+
+extern int cli_quiet, cli_verbose;
+
+#endif

@@ -1,0 +1,85 @@
+/* cli/main.c - lamina's entry point: dispatch to subcommands, help, version. */
+#include "cli.h"
+#include "lamina/version.h"
+#include "lamina/outfile.h"
+
+#include <signal.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Only subcommands that work are registered here. */
+static const cli_command *const commands[] = {
+    NULL,
+};
+
+static void print_overview(FILE *out)
+{
+    fprintf(out,
+            "lamina %s - layer counts of 2D-material flakes from optical micrographs\n\n"
+            "Usage: lamina COMMAND [OPTIONS] [ARGS]\n\nCommands:\n",
+            LAMINA_VERSION);
+    for (size_t i = 0; commands[i]; i++)
+        fprintf(out, "  %-10s %s\n", commands[i]->name, commands[i]->summary);
+    fprintf(out, "  %-10s %s\n", "help", "show help for a command");
+    fprintf(out,
+            "\nContrast convention: C = (substrate - flake) / substrate, per channel,\n"
+            "in linear light. Layer counts are model estimates: confirm by Raman\n"
+            "spectroscopy or AFM before committing a flake to fabrication.\n"
+            "Run 'lamina help COMMAND' for a command's options.\n");
+}
+
+static const cli_command *find_command(const char *name)
+{
+    for (size_t i = 0; commands[i]; i++)
+        if (!strcmp(commands[i]->name, name))
+            return commands[i];
+    return NULL;
+}
+
+static void on_signal(int sig)
+{
+    lam_outfile_cleanup_all();
+    signal(sig, SIG_DFL);
+    raise(sig);
+}
+
+int main(int argc, char **argv)
+{
+    lam_error_init_gsl();
+    signal(SIGINT, on_signal);
+    signal(SIGTERM, on_signal);
+    if (argc < 2) {
+        print_overview(stderr);
+        return CLI_EUSAGE;
+    }
+    const char *name = argv[1];
+    if (!strcmp(name, "--version") || !strcmp(name, "version")) {
+        printf("lamina %s\n", LAMINA_VERSION);
+        return CLI_OK;
+    }
+    if (!strcmp(name, "--help") || !strcmp(name, "-h")) {
+        print_overview(stdout);
+        return CLI_OK;
+    }
+    if (!strcmp(name, "help")) {
+        if (argc < 3) {
+            print_overview(stdout);
+            return CLI_OK;
+        }
+        const cli_command *cmd = find_command(argv[2]);
+        if (!cmd)
+            return cli_usage_error(NULL, "unknown command '%s'", argv[2]);
+        cmd->help(stdout);
+        return CLI_OK;
+    }
+    const cli_command *cmd = find_command(name);
+    if (!cmd)
+        return cli_usage_error(NULL, "unknown command '%s'", name);
+    for (int i = 2; i < argc; i++) {
+        if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) {
+            cmd->help(stdout);
+            return CLI_OK;
+        }
+    }
+    return cmd->run(argc - 1, argv + 1);
+}

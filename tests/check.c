@@ -1,0 +1,159 @@
+/* check.c - numbered checks with observed/expected reporting. */
+#include "check.h"
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+static int n_pass, n_fail, n_check;
+static int verbose;
+static const char *prog = "test";
+
+void check_begin(const char *program)
+{
+    prog = program;
+    const char *v = getenv("LAM_TEST_VERBOSE");
+    verbose = v && *v == '1';
+}
+
+static int report(int ok, const char *detail, const char *fmt, va_list ap)
+{
+    n_check++;
+    if (ok)
+        n_pass++;
+    else
+        n_fail++;
+    if (!ok || verbose) {
+        printf("%s #%d %s: ", prog, n_check, ok ? "PASS" : "FAIL");
+        vprintf(fmt, ap);
+        if (detail && *detail)
+            printf(" (%s)", detail);
+        putchar('\n');
+    }
+    return ok;
+}
+
+int check_true(int ok, const char *fmt, ...)
+{
+    va_list ap;
+    va_start(ap, fmt);
+    report(ok, NULL, fmt, ap);
+    va_end(ap);
+    return ok;
+}
+
+int check_int(long long observed, long long expected, const char *fmt, ...)
+{
+    char d[160];
+    snprintf(d, sizeof d, "observed %lld, expected %lld", observed, expected);
+    int ok = observed == expected;
+    va_list ap;
+    va_start(ap, fmt);
+    report(ok, d, fmt, ap);
+    va_end(ap);
+    return ok;
+}
+
+static int same_kind(double a, double b, int *decided)
+{
+    *decided = 1;
+    if (isnan(a) || isnan(b))
+        return isnan(a) && isnan(b);
+    if (isinf(a) || isinf(b))
+        return a == b;
+    *decided = 0;
+    return 0;
+}
+
+int check_abs(double observed, double expected, double tol, const char *fmt, ...)
+{
+    int decided, ok = same_kind(observed, expected, &decided);
+    if (!decided)
+        ok = fabs(observed - expected) <= tol;
+    char d[200];
+    snprintf(d, sizeof d, "observed %.17g, expected %.17g, |diff| %.3g, tol %.3g", observed,
+             expected, fabs(observed - expected), tol);
+    va_list ap;
+    va_start(ap, fmt);
+    report(ok, d, fmt, ap);
+    va_end(ap);
+    return ok;
+}
+
+int check_rel(double observed, double expected, double tol, const char *fmt, ...)
+{
+    int decided, ok = same_kind(observed, expected, &decided);
+    double rel = expected != 0 ? fabs(observed / expected - 1.0) : fabs(observed);
+    if (!decided)
+        ok = rel <= tol;
+    char d[200];
+    snprintf(d, sizeof d, "observed %.17g, expected %.17g, rel %.3g, tol %.3g", observed,
+             expected, rel, tol);
+    va_list ap;
+    va_start(ap, fmt);
+    report(ok, d, fmt, ap);
+    va_end(ap);
+    return ok;
+}
+
+int check_str(const char *observed, const char *expected, const char *fmt, ...)
+{
+    int ok = observed && expected && !strcmp(observed, expected);
+    char d[300];
+    snprintf(d, sizeof d, "observed \"%.120s\", expected \"%.120s\"",
+             observed ? observed : "(null)", expected ? expected : "(null)");
+    va_list ap;
+    va_start(ap, fmt);
+    report(ok, d, fmt, ap);
+    va_end(ap);
+    return ok;
+}
+
+int check_summary(void)
+{
+    printf("%s: %d passed, %d failed\n", prog, n_pass, n_fail);
+    return n_fail ? 1 : 0;
+}
+
+const char *check_refdata_dir(void)
+{
+    static char buf[1024];
+    const char *env = getenv("LAMINA_REFDATA");
+    const char *cands[] = {env, "../shared/refdata", "../../shared/refdata"};
+    for (size_t i = 0; i < sizeof cands / sizeof cands[0]; i++) {
+        struct stat sb;
+        if (cands[i] && stat(cands[i], &sb) == 0 && S_ISDIR(sb.st_mode)) {
+            snprintf(buf, sizeof buf, "%s", cands[i]);
+            return buf;
+        }
+    }
+    return NULL;
+}
+
+char *check_path(char *buf, size_t n, const char *dir, const char *name)
+{
+    snprintf(buf, n, "%s/%s", dir, name);
+    return buf;
+}
+
+const char *check_tmpdir(void)
+{
+    static char dir[256];
+    if (!dir[0]) {
+        snprintf(dir, sizeof dir, "build/tests/tmp-%s-%ld", prog, (long)getpid());
+        mkdir("build", 0755);
+        mkdir("build/tests", 0755);
+        mkdir(dir, 0755);
+    }
+    return dir;
+}
+
+void check_skip(const char *why)
+{
+    printf("%s: skipped: %s\n", prog, why);
+    exit(77);
+}
