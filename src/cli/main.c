@@ -9,6 +9,7 @@
 
 /* Only subcommands that work are registered here. */
 static const cli_command *const commands[] = {
+    &cli_predict,
     NULL,
 };
 

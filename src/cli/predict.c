@@ -1,0 +1,170 @@
+/* cli/predict.c - `lamina predict`: the contrast ladder of N = A..B layers. */
+#include "cli.h"
+#include "setup_opts.h"
+#include "lamina/model.h"
+
+#include <getopt.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <cjson/cJSON.h>
+
+static void predict_help(FILE *out)
+{
+    fputs("Usage: lamina predict [OPTIONS]\n"
+          "Predicted contrast C = (substrate - flake) / substrate per camera channel\n"
+          "for N-layer graphene on the setup's substrate.\n\n"
+          "  --setup FILE        setup profile (lamina-setup/1 JSON)\n"
+          "  --oxide NM          SiO2 thickness on Si, nm\n"
+          "  --na X              illumination NA (0 = normal incidence)\n"
+          "  --wavelength NM     one monochromatic channel instead of the camera\n"
+          "  --layers A-B        layer range (default 1-5)\n"
+          "  --fermi EV          Fermi level |mu| in eV\n"
+          "  --format F          table (default), csv or json\n",
+          out);
+}
+
+static const char *channel_name(size_t channels, size_t c)
+{
+    static const char *rgb[3] = {"R", "G", "B"};
+    return channels == 1 ? "mono" : rgb[c];
+}
+
+static int print_json(const lam_prediction *p, size_t lo, size_t hi, double mono, const lam_setup *s)
+{
+    cJSON *root = cJSON_CreateObject();
+    cJSON_AddStringToObject(root, "schema", "lamina-predict/1");
+    cJSON_AddStringToObject(root, "contrast_convention", "(substrate - flake) / substrate");
+    cJSON *ch = cJSON_AddArrayToObject(root, "channels");
+    for (size_t c = 0; c < p->channels; c++)
+        cJSON_AddItemToArray(ch, cJSON_CreateString(channel_name(p->channels, c)));
+    if (mono > 0)
+        cJSON_AddNumberToObject(root, "wavelength_nm", mono);
+    cJSON_AddNumberToObject(root, "oxide_nm", p->oxide_nm);
+    cJSON_AddNumberToObject(root, "illumination_na", s->illumination_na);
+    cJSON_AddNumberToObject(root, "fermi_eV", fabs(p->fermi_ev));
+    char desc[200];
+    lam_sheet_describe(&s->sheet, desc, sizeof desc);
+    cJSON_AddStringToObject(root, "conductivity", desc);
+    cJSON *sr = cJSON_AddArrayToObject(root, "substrate_reflectance");
+    for (size_t c = 0; c < p->channels; c++)
+        cJSON_AddItemToArray(sr, cJSON_CreateNumber(p->substrate[c]));
+    cJSON *rows = cJSON_AddArrayToObject(root, "rows");
+    for (size_t N = lo; N <= hi; N++) {
+        cJSON *row = cJSON_CreateObject();
+        cJSON_AddNumberToObject(row, "layers", (double)N);
+        cJSON *con = cJSON_AddArrayToObject(row, "contrast");
+        for (size_t c = 0; c < p->channels; c++)
+            cJSON_AddItemToArray(con, cJSON_CreateNumber(p->contrast[N][c]));
+        cJSON_AddItemToArray(rows, row);
+    }
+    char *text = cJSON_Print(root);
+    int ok = text && printf("%s\n", text) > 0;
+    free(text);
+    cJSON_Delete(root);
+    return ok;
+}
+
+static int run_predict(int argc, char **argv)
+{
+    static const struct option longopts[] = {
+        {"setup", required_argument, 0, 's'},   {"oxide", required_argument, 0, 'o'},
+        {"na", required_argument, 0, 'n'},      {"wavelength", required_argument, 0, 'w'},
+        {"layers", required_argument, 0, 'l'},  {"fermi", required_argument, 0, 'f'},
+        {"format", required_argument, 0, 'F'},  {"quiet", no_argument, 0, 'q'},
+        {0, 0, 0, 0}};
+    cli_setup_opts so;
+    cli_setup_opts_init(&so);
+    double mono = 0;
+    long lo = 1, hi = 5;
+    const char *format = "table";
+    int opt;
+    optind = 1;
+    opterr = 0;
+    while ((opt = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
+        switch (opt) {
+        case 's': so.setup_file = optarg; break;
+        case 'o':
+            if (cli_parse_double("predict", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE;
+            break;
+        case 'n':
+            if (cli_parse_double("predict", "--na", optarg, 0, 1.6, &so.na)) return CLI_EUSAGE;
+            break;
+        case 'w':
+            if (cli_parse_double("predict", "--wavelength", optarg, 300, 1000, &mono)) return CLI_EUSAGE;
+            break;
+        case 'f':
+            if (cli_parse_double("predict", "--fermi", optarg, -2, 2, &so.fermi_ev)) return CLI_EUSAGE;
+            break;
+        case 'l': {
+            char *dash = strchr(optarg, '-');
+            char a[32], b[32];
+            if (!dash || dash - optarg >= 31 || strlen(dash + 1) >= 31)
+                return cli_usage_error("predict", "--layers: expected A-B, e.g. 1-5");
+            memcpy(a, optarg, (size_t)(dash - optarg));
+            a[dash - optarg] = '\0';
+            strcpy(b, dash + 1);
+            if (cli_parse_long("predict", "--layers", a, 1, LAM_MODEL_MAX_LAYERS, &lo) ||
+                cli_parse_long("predict", "--layers", b, lo, LAM_MODEL_MAX_LAYERS, &hi))
+                return CLI_EUSAGE;
+            break;
+        }
+        case 'F':
+            if (strcmp(optarg, "table") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
+                return cli_usage_error("predict", "--format: expected table, csv or json");
+            format = optarg;
+            break;
+        case 'q': cli_quiet = 1; break;
+        default:
+            return cli_usage_error("predict", "unknown or incomplete option '%s'", argv[optind - 1]);
+        }
+    }
+    if (optind < argc)
+        return cli_usage_error("predict", "unexpected argument '%s'", argv[optind]);
+    lam_setup s;
+    int rc = cli_setup_build("predict", &so, &s);
+    if (rc)
+        return rc;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_model *m = NULL;
+    lam_prediction *p = malloc(sizeof *p);
+    double ox = lam_setup_oxide(&s);
+    if (!p || lam_model_alloc(&s, (size_t)hi, mono, &m, &err) ||
+        lam_model_eval(m, ox < 0 ? 0 : ox, s.sheet.fermi_ev, p, &err)) {
+        if (!p)
+            lam_error_set(&err, LAM_ENOMEM, "out of memory");
+        rc = cli_report(&err, so.setup_file);
+        goto done;
+    }
+    if (!strcmp(format, "json")) {
+        print_json(p, (size_t)lo, (size_t)hi, mono, &s);
+    } else {
+        int csv = !strcmp(format, "csv");
+        if (!csv)
+            printf("# contrast = (substrate - flake) / substrate; oxide %.1f nm, illumination NA %.2f%s\n",
+                   p->oxide_nm, s.illumination_na, mono > 0 ? ", monochromatic" : "");
+        printf(csv ? "layers" : "%-7s", csv ? "" : "layers");
+        for (size_t c = 0; c < p->channels; c++)
+            printf(csv ? ",%s" : " %10s", channel_name(p->channels, c));
+        putchar('\n');
+        for (size_t N = (size_t)lo; N <= (size_t)hi; N++) {
+            printf(csv ? "%zu" : "%-7zu", N);
+            for (size_t c = 0; c < p->channels; c++)
+                printf(csv ? ",%.6f" : " %10.5f", p->contrast[N][c]);
+            putchar('\n');
+        }
+    }
+    if (fflush(stdout) || ferror(stdout)) {
+        fprintf(stderr, "lamina: cannot write the output\n");
+        rc = CLI_EFILE;
+    }
+done:
+    free(p);
+    lam_model_free(m);
+    lam_setup_clear(&s);
+    return rc;
+}
+
+const cli_command cli_predict = {"predict", "predicted contrast per channel for N layers",
+                                 run_predict, predict_help};

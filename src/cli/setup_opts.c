@@ -1,0 +1,39 @@
+/* cli/setup_opts.c - build a setup from defaults, --setup and overrides. */
+#include "setup_opts.h"
+#include "cli.h"
+
+#include <math.h>
+
+void cli_setup_opts_init(cli_setup_opts *o)
+{
+    o->setup_file = NULL;
+    o->oxide_nm = -1;
+    o->na = -1;
+    o->fermi_ev = NAN;
+    o->um_per_px = 0;
+}
+
+int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
+{
+    (void)command;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(s);
+    if (o->setup_file && lam_setup_load(o->setup_file, s, &err)) {
+        lam_setup_clear(s);
+        return cli_report(&err, o->setup_file);
+    }
+    if (o->oxide_nm >= 0 && lam_setup_set_oxide(s, o->oxide_nm, &err)) {
+        lam_setup_clear(s);
+        return cli_report(&err, NULL);
+    }
+    if (o->na >= 0) {
+        s->illumination_na = o->na;
+        s->objective_na = o->na > s->objective_na ? o->na : s->objective_na;
+    }
+    if (!isnan(o->fermi_ev))
+        s->sheet.fermi_ev = o->fermi_ev;
+    if (o->um_per_px > 0)
+        s->um_per_px = o->um_per_px;
+    return 0;
+}

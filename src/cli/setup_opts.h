@@ -1,0 +1,22 @@
+/* cli/setup_opts.h - the options every physics subcommand shares
+ * (--setup, --oxide, --na, --fermi, --max-layers) applied to a lam_setup. */
+#ifndef LAMINA_CLI_SETUP_OPTS_H
+#define LAMINA_CLI_SETUP_OPTS_H
+
+#include "lamina/setup.h"
+
+typedef struct cli_setup_opts {
+    const char *setup_file;
+    double oxide_nm;  /* < 0: not given */
+    double na;        /* < 0: not given */
+    double fermi_ev;  /* NAN: not given */
+    double um_per_px; /* <= 0: not given */
+} cli_setup_opts;
+
+void cli_setup_opts_init(cli_setup_opts *o);
+
+/* Build the setup: defaults, then the file, then the options. Prints any
+ * error and returns the exit code (0 on success). */
+int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s);
+
+#endif

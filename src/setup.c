@@ -1,0 +1,491 @@
+/* setup.c - the lamina-setup/1 profile: defaults and the JSON reader. */
+#include "lamina/setup.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <cjson/cJSON.h>
+
+static const char *const all_keys[] = {
+    "objective.na", "objective.illumination_na", "objective.pupil_weight",
+    "objective.immersion", "illuminant", "camera", "encoding", "um_per_px",
+    "substrate.stack", "substrate.base", "material", "temperature_K", "fermi_eV",
+    "conductivity", "spectrum"};
+#define N_KEYS (sizeof all_keys / sizeof all_keys[0])
+
+void lam_setup_default(lam_setup *s)
+{
+    memset(s, 0, sizeof *s);
+    s->objective_na = 0.8;
+    s->illumination_na = 0.55;
+    s->pupil = LAM_PUPIL_SIN_COS;
+    s->cone_nodes = 24;
+    lam_material_builtin("air", &s->ambient, NULL);
+    s->illuminant.kind = LAM_ILLUM_BLACKBODY;
+    s->illuminant.kelvin = 3200;
+    s->camera.kind = LAM_CAMERA_GAUSSIAN;
+    s->camera.channels = 3;
+    const double centre[3] = {605, 535, 465}, fwhm[3] = {80, 75, 70};
+    for (int c = 0; c < 3; c++) {
+        s->camera.centre_nm[c] = centre[c];
+        s->camera.fwhm_nm[c] = fwhm[c];
+    }
+    s->encoding.kind = LAM_TRANSFER_SRGB;
+    s->um_per_px = 0;
+    s->layers = 1;
+    lam_material_builtin("SiO2", &s->layer_material[0], NULL);
+    s->layer_nm[0] = 285;
+    lam_material_builtin("Si", &s->base, NULL);
+    snprintf(s->flake, sizeof s->flake, "graphene");
+    s->interlayer_nm = 0.335;
+    s->sheet = lam_sheet_params_default();
+    s->grid_lo_nm = 380;
+    s->grid_hi_nm = 780;
+    s->grid_step_nm = 2;
+    for (size_t i = 0; i < N_KEYS; i++)
+        s->defaulted[i] = all_keys[i];
+    s->defaulted_count = N_KEYS;
+}
+
+static void mark_given(lam_setup *s, const char *key)
+{
+    for (size_t i = 0; i < s->defaulted_count; i++) {
+        if (!strcmp(s->defaulted[i], key)) {
+            s->defaulted[i] = s->defaulted[--s->defaulted_count];
+            return;
+        }
+    }
+}
+
+int lam_setup_is_default(const lam_setup *s, const char *key)
+{
+    for (size_t i = 0; i < s->defaulted_count; i++)
+        if (!strcmp(s->defaulted[i], key))
+            return 1;
+    return 0;
+}
+
+void lam_setup_clear(lam_setup *s)
+{
+    if (!s)
+        return;
+    lam_material_clear(&s->ambient);
+    lam_material_clear(&s->base);
+    for (size_t i = 0; i < s->layers; i++)
+        lam_material_clear(&s->layer_material[i]);
+    lam_table_spectrum_clear(&s->illuminant.table);
+    lam_table_spectrum_clear(&s->camera.table);
+}
+
+/* --- reading helpers: each names the key in its message --- */
+
+static lam_status get_number(const cJSON *obj, const char *name, const char *key, double lo,
+                             double hi, double *out, int *found, lam_error *err)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, name);
+    *found = v != NULL;
+    if (!v)
+        return LAM_OK;
+    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
+        return lam_error_set(err, LAM_EFORMAT, "key %s: expected a number", key);
+    if (v->valuedouble < lo || v->valuedouble > hi)
+        return lam_error_set(err, LAM_ERANGE, "key %s: %g is outside %g to %g", key,
+                             v->valuedouble, lo, hi);
+    *out = v->valuedouble;
+    return LAM_OK;
+}
+
+static void join_path(char *buf, size_t n, const char *dir, const char *file)
+{
+    if (file[0] == '/' || !dir || !dir[0])
+        snprintf(buf, n, "%s", file);
+    else
+        snprintf(buf, n, "%s/%s", dir, file);
+}
+
+static lam_status get_material(const cJSON *v, const char *key, const char *dir,
+                               lam_material *out, lam_error *err)
+{
+    if (cJSON_IsString(v)) {
+        lam_status st = lam_material_builtin(v->valuestring, out, err);
+        if (st)
+            return lam_error_set(err, st, "key %s: %s", key, err ? err->message : "");
+        return LAM_OK;
+    }
+    const cJSON *f = cJSON_IsObject(v) ? cJSON_GetObjectItemCaseSensitive(v, "file") : NULL;
+    if (!cJSON_IsString(f))
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key %s: expected a material name or {\"file\": \"x.csv\"}", key);
+    char path[1024];
+    join_path(path, sizeof path, dir, f->valuestring);
+    return lam_material_load_csv(path, out, err);
+}
+
+static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
+                                  lam_error *err)
+{
+    int found;
+    lam_status st;
+    if (!cJSON_IsObject(o))
+        return lam_error_set(err, LAM_EFORMAT, "key objective: expected an object");
+    const cJSON *imm = cJSON_GetObjectItemCaseSensitive(o, "immersion");
+    if (imm) {
+        lam_material m;
+        if ((st = get_material(imm, "objective.immersion", dir, &m, err)))
+            return st;
+        if (m.kind != LAM_MATERIAL_CONSTANT && m.kind != LAM_MATERIAL_SELLMEIER) {
+            lam_material_clear(&m);
+            return lam_error_set(err, LAM_EINVAL,
+                                 "key objective.immersion: the ambient must be lossless");
+        }
+        s->ambient = m;
+        mark_given(s, "objective.immersion");
+    }
+    double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
+    if ((st = get_number(o, "na", "objective.na", 0, n_amb * 0.999, &s->objective_na, &found,
+                         err)))
+        return st;
+    if (found)
+        mark_given(s, "objective.na");
+    if ((st = get_number(o, "illumination_na", "objective.illumination_na", 0, n_amb * 0.999,
+                         &s->illumination_na, &found, err)))
+        return st;
+    if (found)
+        mark_given(s, "objective.illumination_na");
+    else if (!lam_setup_is_default(s, "objective.na"))
+        s->illumination_na = s->objective_na; /* full-aperture illumination unless stated */
+    const cJSON *pw = cJSON_GetObjectItemCaseSensitive(o, "pupil_weight");
+    if (pw) {
+        if (cJSON_IsString(pw) && !strcmp(pw->valuestring, "sin-cos"))
+            s->pupil = LAM_PUPIL_SIN_COS;
+        else if (cJSON_IsString(pw) && !strcmp(pw->valuestring, "sin"))
+            s->pupil = LAM_PUPIL_SIN;
+        else
+            return lam_error_set(err, LAM_EINVAL,
+                                 "key objective.pupil_weight: expected \"sin-cos\" or \"sin\"");
+        mark_given(s, "objective.pupil_weight");
+    }
+    double nodes = (double)s->cone_nodes;
+    if ((st = get_number(o, "cone_nodes", "objective.cone_nodes", 1, 96, &nodes, &found, err)))
+        return st;
+    s->cone_nodes = (size_t)nodes;
+    return LAM_OK;
+}
+
+static lam_status parse_illuminant(const cJSON *o, lam_setup *s, const char *dir,
+                                   lam_error *err)
+{
+    const cJSON *kind = cJSON_GetObjectItemCaseSensitive(o, "kind");
+    if (!cJSON_IsString(kind))
+        return lam_error_set(err, LAM_EFORMAT, "key illuminant.kind: expected a string");
+    const char *k = kind->valuestring;
+    int found;
+    if (!strcmp(k, "blackbody")) {
+        s->illuminant.kind = LAM_ILLUM_BLACKBODY;
+        lam_status st = get_number(o, "kelvin", "illuminant.kelvin", 1000, 20000,
+                                   &s->illuminant.kelvin, &found, err);
+        if (st)
+            return st;
+    } else if (!strcmp(k, "cie-a")) {
+        s->illuminant.kind = LAM_ILLUM_CIE_A;
+    } else if (!strcmp(k, "led-white")) {
+        s->illuminant.kind = LAM_ILLUM_LED_WHITE;
+    } else if (!strcmp(k, "flat")) {
+        s->illuminant.kind = LAM_ILLUM_FLAT;
+    } else if (!strcmp(k, "table")) {
+        const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
+        if (!cJSON_IsString(f))
+            return lam_error_set(err, LAM_EFORMAT, "key illuminant.file: expected a path");
+        char path[1024];
+        join_path(path, sizeof path, dir, f->valuestring);
+        s->illuminant.kind = LAM_ILLUM_TABLE;
+        return lam_table_spectrum_load(path, 1, &s->illuminant.table, err);
+    } else {
+        return lam_error_set(err, LAM_EINVAL,
+                             "key illuminant.kind: '%s' is not blackbody, cie-a, led-white, "
+                             "flat or table", k);
+    }
+    return LAM_OK;
+}
+
+static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, lam_error *err)
+{
+    const cJSON *kind = cJSON_GetObjectItemCaseSensitive(o, "kind");
+    if (!cJSON_IsString(kind))
+        return lam_error_set(err, LAM_EFORMAT, "key camera.kind: expected a string");
+    const char *k = kind->valuestring;
+    s->camera.channels = 3;
+    if (!strcmp(k, "srgb-observer")) {
+        s->camera.kind = LAM_CAMERA_SRGB_OBSERVER;
+    } else if (!strcmp(k, "gaussian")) {
+        const cJSON *ch = cJSON_GetObjectItemCaseSensitive(o, "channels");
+        if (!cJSON_IsArray(ch) || cJSON_GetArraySize(ch) != 3)
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key camera.channels: expected 3 channels (R, G, B)");
+        s->camera.kind = LAM_CAMERA_GAUSSIAN;
+        for (int c = 0; c < 3; c++) {
+            const cJSON *item = cJSON_GetArrayItem(ch, c);
+            int f1, f2;
+            char key[64];
+            snprintf(key, sizeof key, "camera.channels[%d].centre_nm", c);
+            lam_status st = get_number(item, "centre_nm", key, 350, 850,
+                                       &s->camera.centre_nm[c], &f1, err);
+            if (st)
+                return st;
+            snprintf(key, sizeof key, "camera.channels[%d].fwhm_nm", c);
+            if ((st = get_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2,
+                                 err)))
+                return st;
+            if (!f1 || !f2)
+                return lam_error_set(err, LAM_EFORMAT,
+                                     "key camera.channels[%d]: needs centre_nm and fwhm_nm", c);
+        }
+    } else if (!strcmp(k, "table")) {
+        const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
+        if (!cJSON_IsString(f))
+            return lam_error_set(err, LAM_EFORMAT, "key camera.file: expected a path");
+        char path[1024];
+        join_path(path, sizeof path, dir, f->valuestring);
+        s->camera.kind = LAM_CAMERA_TABLE;
+        return lam_table_spectrum_load(path, 3, &s->camera.table, err);
+    } else {
+        return lam_error_set(err, LAM_EINVAL,
+                             "key camera.kind: '%s' is not srgb-observer, gaussian or table", k);
+    }
+    return LAM_OK;
+}
+
+static lam_status parse_substrate(const cJSON *o, lam_setup *s, const char *dir,
+                                  lam_error *err)
+{
+    if (!cJSON_IsObject(o))
+        return lam_error_set(err, LAM_EFORMAT, "key substrate: expected an object");
+    const cJSON *stack = cJSON_GetObjectItemCaseSensitive(o, "stack");
+    lam_status st;
+    if (stack) {
+        int n = cJSON_GetArraySize(stack);
+        if (!cJSON_IsArray(stack) || n > LAM_SETUP_MAX_LAYERS)
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key substrate.stack: expected a list of at most %d layers",
+                                 LAM_SETUP_MAX_LAYERS);
+        for (size_t i = 0; i < s->layers; i++)
+            lam_material_clear(&s->layer_material[i]);
+        s->layers = 0;
+        for (int i = 0; i < n; i++) {
+            const cJSON *L = cJSON_GetArrayItem(stack, i);
+            char key[64];
+            snprintf(key, sizeof key, "substrate.stack[%d].material", i);
+            const cJSON *m = cJSON_GetObjectItemCaseSensitive(L, "material");
+            if (!m)
+                return lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
+            if ((st = get_material(m, key, dir, &s->layer_material[i], err)))
+                return st;
+            s->layers = (size_t)i + 1;
+            snprintf(key, sizeof key, "substrate.stack[%d].thickness_nm", i);
+            int found;
+            if ((st = get_number(L, "thickness_nm", key, 0, 5000, &s->layer_nm[i], &found, err)))
+                return st;
+            if (!found)
+                return lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
+        }
+        mark_given(s, "substrate.stack");
+    }
+    const cJSON *base = cJSON_GetObjectItemCaseSensitive(o, "base");
+    if (base) {
+        lam_material_clear(&s->base);
+        if ((st = get_material(base, "substrate.base", dir, &s->base, err))) {
+            lam_material_builtin("Si", &s->base, NULL);
+            return st;
+        }
+        mark_given(s, "substrate.base");
+    }
+    return LAM_OK;
+}
+
+static lam_status parse_conductivity(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    if (!cJSON_IsObject(o))
+        return lam_error_set(err, LAM_EFORMAT, "key conductivity: expected an object");
+    const cJSON *model = cJSON_GetObjectItemCaseSensitive(o, "model");
+    if (model) {
+        if (cJSON_IsString(model) && !strcmp(model->valuestring, "kubo"))
+            s->sheet.model = LAM_SHEET_KUBO;
+        else if (cJSON_IsString(model) && !strcmp(model->valuestring, "universal"))
+            s->sheet.model = LAM_SHEET_UNIVERSAL;
+        else
+            return lam_error_set(err, LAM_EINVAL,
+                                 "key conductivity.model: expected \"kubo\" or \"universal\"");
+    }
+    int found;
+    lam_status st;
+    if ((st = get_number(o, "scattering_eV", "conductivity.scattering_eV", 0, 1,
+                         &s->sheet.scattering_ev, &found, err)))
+        return st;
+    if ((st = get_number(o, "puddle_eV", "conductivity.puddle_eV", 0, 0.5, &s->sheet.puddle_ev,
+                         &found, err)))
+        return st;
+    const cJSON *ex = cJSON_GetObjectItemCaseSensitive(o, "exciton");
+    if (ex) {
+        if (!cJSON_IsBool(ex))
+            return lam_error_set(err, LAM_EFORMAT, "key conductivity.exciton: expected true or false");
+        s->sheet.exciton = cJSON_IsTrue(ex);
+    }
+    mark_given(s, "conductivity");
+    return LAM_OK;
+}
+
+static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, lam_error *err)
+{
+    if (!cJSON_IsObject(root))
+        return lam_error_set(err, LAM_EFORMAT, "expected a JSON object");
+    const cJSON *schema = cJSON_GetObjectItemCaseSensitive(root, "schema");
+    if (!cJSON_IsString(schema) || strcmp(schema->valuestring, "lamina-setup/1"))
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key schema: expected \"lamina-setup/1\"");
+    lam_status st;
+    const cJSON *v;
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "objective")) &&
+        (st = parse_objective(v, s, dir, err)))
+        return st;
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "illuminant"))) {
+        if ((st = parse_illuminant(v, s, dir, err)))
+            return st;
+        mark_given(s, "illuminant");
+    }
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "camera"))) {
+        if ((st = parse_camera(v, s, dir, err)))
+            return st;
+        mark_given(s, "camera");
+    }
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "encoding"))) {
+        const cJSON *g = cJSON_IsObject(v) ? cJSON_GetObjectItemCaseSensitive(v, "gamma") : NULL;
+        if (cJSON_IsString(v) && (!strcmp(v->valuestring, "srgb") || !strcmp(v->valuestring, "linear")))
+            lam_transfer_parse(v->valuestring, &s->encoding);
+        else if (cJSON_IsNumber(g) && g->valuedouble >= 0.2 && g->valuedouble <= 5)
+            s->encoding = (lam_transfer){LAM_TRANSFER_GAMMA, g->valuedouble};
+        else
+            return lam_error_set(err, LAM_EINVAL,
+                                 "key encoding: expected \"srgb\", \"linear\" or {\"gamma\": 0.2..5}");
+        mark_given(s, "encoding");
+    }
+    int found;
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "um_per_px")) && !cJSON_IsNull(v)) {
+        if ((st = get_number(root, "um_per_px", "um_per_px", 1e-4, 1000, &s->um_per_px, &found, err)))
+            return st;
+        mark_given(s, "um_per_px");
+    }
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "substrate")) &&
+        (st = parse_substrate(v, s, dir, err)))
+        return st;
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "material"))) {
+        if (!cJSON_IsString(v) || strcasecmp(v->valuestring, "graphene"))
+            return lam_error_set(err, LAM_EINVAL,
+                                 "key material: only \"graphene\" flakes are modelled so far");
+        mark_given(s, "material");
+    }
+    if ((st = get_number(root, "temperature_K", "temperature_K", 1, 1000, &s->sheet.temperature_k,
+                         &found, err)))
+        return st;
+    if (found)
+        mark_given(s, "temperature_K");
+    if ((st = get_number(root, "fermi_eV", "fermi_eV", -2, 2, &s->sheet.fermi_ev, &found, err)))
+        return st;
+    if (found)
+        mark_given(s, "fermi_eV");
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "conductivity")) &&
+        (st = parse_conductivity(v, s, err)))
+        return st;
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "spectrum"))) {
+        if ((st = get_number(v, "min_nm", "spectrum.min_nm", 300, 1000, &s->grid_lo_nm, &found, err)) ||
+            (st = get_number(v, "max_nm", "spectrum.max_nm", 300, 1000, &s->grid_hi_nm, &found, err)) ||
+            (st = get_number(v, "step_nm", "spectrum.step_nm", 0.25, 50, &s->grid_step_nm, &found, err)))
+            return st;
+        if (s->grid_hi_nm <= s->grid_lo_nm)
+            return lam_error_set(err, LAM_ERANGE, "key spectrum: max_nm must exceed min_nm");
+        mark_given(s, "spectrum");
+    }
+    return LAM_OK;
+}
+
+lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
+                           lam_error *err)
+{
+    cJSON *root = cJSON_Parse(json);
+    if (!root) {
+        const char *at = cJSON_GetErrorPtr();
+        long off = at ? (long)(at - json) : -1;
+        return lam_error_set(err, LAM_EFORMAT, "not valid JSON (near byte %ld)", off);
+    }
+    lam_status st = parse_root(root, base_dir, s, err);
+    cJSON_Delete(root);
+    return st;
+}
+
+lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err)
+{
+    FILE *fp = fopen(path, "rb");
+    if (!fp) {
+        lam_error_set(err, LAM_EIO, "cannot open setup: %s", strerror(errno));
+        lam_error_set_file(err, path);
+        return LAM_EIO;
+    }
+    char *buf = malloc(1 << 20);
+    size_t n = buf ? fread(buf, 1, (1 << 20) - 1, fp) : 0;
+    int too_big = buf && n == (1 << 20) - 1 && fgetc(fp) != EOF;
+    fclose(fp);
+    lam_status st;
+    if (!buf) {
+        st = lam_error_set(err, LAM_ENOMEM, "cannot read setup");
+    } else if (too_big) {
+        st = lam_error_set(err, LAM_ETOOBIG, "setup file larger than 1 MiB");
+    } else {
+        buf[n] = '\0';
+        char dir[1024];
+        snprintf(dir, sizeof dir, "%s", path);
+        char *slash = strrchr(dir, '/');
+        if (slash)
+            *slash = '\0';
+        else
+            snprintf(dir, sizeof dir, ".");
+        st = lam_setup_parse(buf, dir, s, err);
+        if (!st)
+            snprintf(s->source, sizeof s->source, "%s", path);
+    }
+    free(buf);
+    if (st)
+        lam_error_set_file(err, path);
+    return st;
+}
+
+size_t lam_setup_oxide_layer(const lam_setup *s)
+{
+    for (size_t i = 0; i < s->layers; i++)
+        if (!strcasecmp(s->layer_material[i].name, "SiO2"))
+            return i;
+    return s->layers;
+}
+
+double lam_setup_oxide(const lam_setup *s)
+{
+    size_t i = lam_setup_oxide_layer(s);
+    return i < s->layers ? s->layer_nm[i] : -1.0;
+}
+
+lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err)
+{
+    if (!(nm >= 0 && nm <= 5000))
+        return lam_error_set(err, LAM_ERANGE, "oxide thickness %g nm is outside 0 to 5000 nm", nm);
+    size_t i = lam_setup_oxide_layer(s);
+    if (i == s->layers) {
+        if (s->layers == LAM_SETUP_MAX_LAYERS)
+            return lam_error_set(err, LAM_ETOOBIG, "substrate stack is full");
+        lam_material_builtin("SiO2", &s->layer_material[i], NULL);
+        s->layers++;
+    }
+    s->layer_nm[i] = nm;
+    mark_given(s, "substrate.stack");
+    return LAM_OK;
+}
