@@ -57,9 +57,10 @@ $(BIN): $(CLI_OBJ) $(LIB)
 
 # Tests link the harness and the library; test_image also uses Little CMS
 # as an independent sRGB reference.
-$(BUILD)/tests/test_%: tests/test_%.c $(BUILD)/tests/check.o $(LIB)
+TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o
+$(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(BUILD)/tests/check.o $(LIB) $(LDLIBS) \
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) \
 	    $(if $(filter image,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
 
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
