@@ -10,6 +10,7 @@
 /* Only subcommands that work are registered here. */
 static const cli_command *const commands[] = {
     &cli_predict,
+    &cli_inspect,
     NULL,
 };
 

@@ -15,7 +15,6 @@ void cli_setup_opts_init(cli_setup_opts *o)
 
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
 {
-    (void)command;
     lam_error err;
     lam_error_clear(&err);
     lam_setup_default(s);
@@ -28,6 +27,12 @@ int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
         return cli_report(&err, NULL);
     }
     if (o->na >= 0) {
+        double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
+        if (o->na >= n_amb) {
+            lam_setup_clear(s);
+            return cli_usage_error(command, "--na: %g must be below the ambient index %g", o->na,
+                                   n_amb);
+        }
         s->illumination_na = o->na;
         s->objective_na = o->na > s->objective_na ? o->na : s->objective_na;
     }

@@ -1,0 +1,54 @@
+#!/bin/sh
+# tests/cli/test_cli.sh - the program as a user meets it: exit codes,
+# messages naming the file, help, /dev/full. Usage: test_cli.sh BUILD/lamina
+set -u
+LC_ALL=C; export LC_ALL
+BIN=${1:-build/lamina}
+T=$(mktemp -d "${TMPDIR:-/tmp}/lamina-cli.XXXXXX")
+trap 'rm -rf "$T"' EXIT
+pass=0; fail=0
+ok()  { pass=$((pass + 1)); [ "${LAM_TEST_VERBOSE:-0}" = 1 ] && echo "test_cli PASS: $1"; return 0; }
+bad() { fail=$((fail + 1)); echo "test_cli FAIL: $1"; }
+expect_rc() { # rc-expected description command...
+    want=$1; what=$2; shift 2
+    "$@" >"$T/out" 2>"$T/err"; rc=$?
+    if [ "$rc" -eq "$want" ]; then ok "$what"; else bad "$what (exit $rc, want $want: $(head -c 200 "$T/err"))"; fi
+}
+
+expect_rc 0 "--version" "$BIN" --version
+grep -q '^lamina [0-9]' "$T/out" && ok "version text" || bad "version text"
+expect_rc 0 "help" "$BIN" help
+expect_rc 0 "help predict" "$BIN" help predict
+expect_rc 0 "predict --help" "$BIN" predict --help
+expect_rc 2 "no command" "$BIN"
+expect_rc 2 "unknown command" "$BIN" frobnicate
+grep -q "Try 'lamina help'" "$T/err" && ok "unknown command hints at help" || bad "hint"
+expect_rc 2 "unknown option" "$BIN" predict --bogus
+expect_rc 2 "bad number" "$BIN" predict --oxide abc
+expect_rc 2 "out-of-range number" "$BIN" predict --oxide -5
+expect_rc 2 "NA at or above ambient index" "$BIN" predict --na 1.2
+expect_rc 0 "predict json" "$BIN" predict --oxide 285 --wavelength 550 --na 0 --layers 1-3 --format json
+grep -q '"schema":[[:space:]]*"lamina-predict/1"' "$T/out" && ok "predict json schema" || bad "predict json schema"
+expect_rc 1 "predict to /dev/full" sh -c "\"$BIN\" predict > /dev/full"
+
+# images: make a valid PNG and JPEG with the test suite's helpers (cjpeg)
+printf 'P6\n16 8\n255\n' > "$T/a.ppm"
+i=0; while [ $i -lt 128 ]; do printf '\120\140\200'; i=$((i + 1)); done >> "$T/a.ppm"
+cjpeg -quality 90 "$T/a.ppm" > "$T/a.jpg"
+expect_rc 0 "inspect a JPEG" "$BIN" inspect "$T/a.jpg"
+size=$(wc -c < "$T/a.jpg")
+head -c $((size / 2)) "$T/a.jpg" > "$T/cut.jpg"
+expect_rc 1 "truncated JPEG gives exit 1" "$BIN" inspect "$T/cut.jpg"
+[ "$(wc -l < "$T/err")" -eq 1 ] && grep -q "cut.jpg" "$T/err" && ok "one-line message names the JPEG" || bad "JPEG message: $(cat "$T/err")"
+# a PNG cut inside its header chunk, written by hand
+printf '\211PNG\r\n\032\n\000\000\000\015IHDR\000\000\000\020\000\000\000\010\010\002\000\000\000' > "$T/cut.png"
+expect_rc 1 "truncated PNG gives exit 1" "$BIN" inspect "$T/cut.png"
+[ "$(wc -l < "$T/err")" -eq 1 ] && grep -q "cut.png" "$T/err" && ok "one-line message names the PNG" || bad "PNG message: $(cat "$T/err")"
+expect_rc 1 "missing file" "$BIN" inspect "$T/nope.png"
+expect_rc 1 "a setup file that does not exist" "$BIN" predict --setup "$T/nope.json"
+printf '{"schema":"lamina-setup/1","objective":{"illumination_na":3}}' > "$T/bad.json"
+expect_rc 1 "a setup with NA 3" "$BIN" predict --setup "$T/bad.json"
+grep -q "bad.json" "$T/err" && grep -q "illumination_na" "$T/err" && ok "setup message names file and key" || bad "setup message: $(cat "$T/err")"
+
+echo "test_cli: $pass passed, $fail failed"
+[ "$fail" -eq 0 ]

@@ -1,0 +1,263 @@
+/* test_model.c - the contrast model against an independent closed form,
+ * published statements about graphene contrast on SiO2/Si, the pitfalls
+ * listed in shared/CHECKS.md, and the setup profile reader. */
+#include "check.h"
+#include "lamina/model.h"
+#include "lamina/tmm.h"
+
+#include <complex.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+#include <gsl/gsl_errno.h>
+
+static lam_prediction P, Q;
+
+static double green_contrast(lam_setup *s, double ox, size_t N, double na)
+{
+    lam_model *m;
+    s->illumination_na = na;
+    if (lam_model_alloc(s, 20, 0, &m, NULL))
+        return NAN;
+    lam_model_eval(m, ox, s->sheet.fermi_ev, &P, NULL);
+    lam_model_free(m);
+    return P.contrast[N][1];
+}
+
+/* Independent: Airy sum with sheet-modified Fresnel coefficients at the
+ * top interface (not the matrix code), monolayer, normal incidence. */
+static double independent_contrast(const lam_setup *s, double ox, double wl)
+{
+    double complex n1, n2, sig;
+    lam_material_index(&s->layer_material[0], wl, &n1, NULL);
+    lam_material_index(&s->base, wl, &n2, NULL);
+    lam_sheet_conductivity(&s->sheet, 1239.841984 / wl, &sig, NULL);
+    double complex y = lam_z0_sigma0() * sig;
+    double complex ph = cexp(2 * I * 2 * M_PI * n1 * ox / wl);
+    double complex r12 = (n1 - n2) / (n1 + n2);
+    double complex r01 = (1 - n1) / (1 + n1);
+    double complex rsub = (r01 + r12 * ph) / (1 + r01 * r12 * ph);
+    double complex a01 = (1 - n1 - y) / (1 + n1 + y), a10 = (n1 - 1 - y) / (1 + n1 + y);
+    double complex t01 = 2 / (1 + n1 + y), t10 = 2 * n1 / (1 + n1 + y);
+    double complex rfl = a01 + t01 * t10 * r12 * ph / (1 - a10 * r12 * ph);
+    double R0 = cabs(rsub) * cabs(rsub), R1 = cabs(rfl) * cabs(rfl);
+    return (R0 - R1) / R0;
+}
+
+static void test_independent(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    s.illumination_na = 0;
+    lam_model *m;
+    const double ox[3] = {90, 285, 300}, wl[3] = {550, 550, 633};
+    for (int i = 0; i < 3; i++) {
+        check_int(lam_model_alloc(&s, 3, wl[i], &m, NULL), LAM_OK, "monochromatic model");
+        lam_model_eval(m, ox[i], s.sheet.fermi_ev, &P, NULL);
+        check_abs(P.contrast[1][0], independent_contrast(&s, ox[i], wl[i]), 1e-9,
+                  "1L contrast %.0f nm oxide, %.0f nm, NA 0 vs sheet-Airy closed form", ox[i], wl[i]);
+        lam_model_free(m);
+    }
+}
+
+static void test_published(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    s.camera.kind = LAM_CAMERA_SRGB_OBSERVER;
+    s.illuminant.kind = LAM_ILLUM_CIE_A;
+    /* Blake et al., APL 91, 063124 (2007) [M]: ~10-12 %% peak monolayer
+     * contrast on ~300 nm oxide in green-yellow light; ~200 nm nearly invisible */
+    double best = 0;
+    for (double ox = 260; ox <= 300; ox += 5)
+        best = fmax(best, green_contrast(&s, ox, 1, 0.3));
+    check_true(best > 0.08 && best < 0.16, "peak 1L green contrast near 285 nm oxide %.3f in "
+               "0.08-0.16 (Blake 2007, plausibility)", best);
+    double c200 = fabs(green_contrast(&s, 200, 1, 0.3));
+    check_true(c200 < 0.3 * best, "1L nearly invisible on 200 nm oxide in green (|C| %.3f)", c200);
+    /* Blake 2007 [C]: a 5 %% thicker oxide lowers the contrast markedly */
+    double c300 = green_contrast(&s, 300, 1, 0.3), c315 = green_contrast(&s, 315, 1, 0.3);
+    check_true(c315 < 0.7 * c300, "315 nm oxide lowers green contrast vs 300 nm (%.3f vs %.3f)",
+               c315, c300);
+    /* Abergel, Russell, Fal'ko, APL 91, 063125 (2007) [C]: bilayer ~2x monolayer */
+    double c1 = green_contrast(&s, 285, 1, 0.3), c2 = P.contrast[2][1];
+    check_true(c2 / c1 > 1.7 && c2 / c1 < 2.1, "2L/1L contrast ratio %.3f near 2 (Abergel 2007)",
+               c2 / c1);
+    /* Casiraghi et al., Nano Lett. 7, 2711 (2007) [C]: ~linear below ~6 layers, then saturates */
+    double step1 = P.contrast[1][1], step5 = P.contrast[5][1] - P.contrast[4][1];
+    double step15 = P.contrast[15][1] - P.contrast[14][1];
+    int rising = 1;
+    for (size_t N = 2; N <= 5; N++)
+        rising &= P.contrast[N][1] > P.contrast[N - 1][1];
+    check_true(rising && step5 > 0.3 * step1 && fabs(step15) < 0.5 * step1,
+               "contrast rises to 5L (1L %.3f, 4->5 %.3f) and saturates (14->15 %.3f)", step1,
+               step5, step15);
+    /* Roddaro et al., Nano Lett. 7, 2707 (2007) [C] and TMM physics [F]:
+     * illumination NA moves the ~300 nm contrast far more than the ~90 nm one */
+    double a90 = green_contrast(&s, 90, 1, 0.0), b90 = green_contrast(&s, 90, 1, 0.9);
+    double a300 = green_contrast(&s, 300, 1, 0.0), b300 = green_contrast(&s, 300, 1, 0.9);
+    check_true(fabs(b300 / a300 - 1) > 5 * fabs(b90 / a90 - 1),
+               "NA 0 -> 0.9 changes 300 nm contrast (x%.2f) far more than 90 nm (x%.3f)",
+               b300 / a300, b90 / a90);
+    /* Ni et al., Nano Lett. 7, 2758 (2007) [C]: peak contrast near 550 nm on 285 nm */
+    lam_setup mono;
+    lam_setup_default(&mono);
+    mono.illumination_na = 0;
+    double peak_nm = 0, peak = -1;
+    for (double wl = 450; wl <= 700; wl += 5) {
+        lam_model *m;
+        lam_model_alloc(&mono, 1, wl, &m, NULL);
+        lam_model_eval(m, 285, 0.2, &Q, NULL);
+        if (Q.contrast[1][0] > peak) {
+            peak = Q.contrast[1][0];
+            peak_nm = wl;
+        }
+        lam_model_free(m);
+    }
+    check_abs(peak_nm, 560, 30, "1L contrast spectrum on 285 nm peaks near 550 nm (Ni 2007)");
+}
+
+static void test_pitfalls(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    s.illumination_na = 0;
+    lam_model *m;
+    lam_model_alloc(&s, 2, 0, &m, NULL);
+    lam_model_eval(m, 285, 0.2, &P, NULL);
+    lam_model_free(m);
+    /* 1. ratio of channel integrals != integral of monochromatic contrasts */
+    static double w[LAM_MAX_CHANNELS][LAM_MAX_GRID];
+    lam_grid g;
+    lam_grid_init(&g, 380, 780, 2, NULL);
+    lam_spectrum_weights(&g, &s.illuminant, &s.camera, w, NULL);
+    double mean_c = 0;
+    for (size_t l = 0; l < g.count; l++) {
+        lam_model_alloc(&s, 1, g.nm[l], &m, NULL);
+        lam_model_eval(m, 285, 0.2, &Q, NULL);
+        mean_c += w[0][l] * Q.contrast[1][0];
+        lam_model_free(m);
+    }
+    check_true(fabs(mean_c - P.contrast[1][0]) > 1e-3,
+               "pitfall 1: weighted mean of monochromatic contrasts %.4f != channel contrast %.4f",
+               mean_c, P.contrast[1][0]);
+    /* 3. contrast vs E_F is not monotonic just below the blocking edge (one
+     * channel can give two answers) */
+    lam_setup one;
+    lam_setup_default(&one);
+    one.illumination_na = 0;
+    lam_model_alloc(&one, 1, 550, &m, NULL);
+    double prev = NAN, prev_d = NAN;
+    int turns = 0;
+    for (double mu = 0.8; mu <= 1.5; mu += 0.01) {
+        lam_model_eval(m, 285, mu, &Q, NULL);
+        double c = Q.contrast[1][0];
+        if (!isnan(prev)) {
+            double d = c - prev;
+            if (!isnan(prev_d) && d * prev_d < 0)
+                turns++;
+            prev_d = d;
+        }
+        prev = c;
+    }
+    lam_model_free(m);
+    check_true(turns >= 1, "pitfall 3: C(E_F) at 550 nm turns %d time(s) between 0.8 and 1.5 eV",
+               turns);
+    /* 4. pupil weight sin vs sin cos changes contrast at NA 0.9 (document the choice) */
+    lam_setup a, b;
+    lam_setup_default(&a);
+    lam_setup_default(&b);
+    a.illumination_na = b.illumination_na = 0.9;
+    b.pupil = LAM_PUPIL_SIN;
+    lam_model_alloc(&a, 1, 0, &m, NULL);
+    lam_model_eval(m, 300, 0.2, &P, NULL);
+    lam_model_free(m);
+    lam_model_alloc(&b, 1, 0, &m, NULL);
+    lam_model_eval(m, 300, 0.2, &Q, NULL);
+    lam_model_free(m);
+    check_true(fabs(Q.contrast[1][1] / P.contrast[1][1] - 1) > 0.01,
+               "pitfall 4: sin vs sin-cos weight at NA 0.9 differ (%.4f vs %.4f)", Q.contrast[1][1],
+               P.contrast[1][1]);
+    /* 5. gamma does not cancel in contrast; a white-balance gain does */
+    double sub = 0.30, flake = 0.27;
+    lam_transfer t = {LAM_TRANSFER_SRGB, 0};
+    double c_lin = (sub - flake) / sub;
+    double c_enc = (lam_transfer_encode(&t, sub) - lam_transfer_encode(&t, flake)) /
+                   lam_transfer_encode(&t, sub);
+    check_true(fabs(c_enc / c_lin - 1) > 0.3, "pitfall 5: sRGB-encoded contrast %.4f != linear %.4f",
+               c_enc, c_lin);
+    double gain = 1.7;
+    check_abs((gain * sub - gain * flake) / (gain * sub), c_lin, 1e-15,
+              "pitfall 5: a white-balance gain cancels");
+    /* passivity of every prediction */
+    int ok = 1;
+    for (size_t N = 0; N <= 1; N++)
+        for (size_t c = 0; c < 3; c++)
+            ok &= P.reflectance[N][c] > 0 && P.reflectance[N][c] < 1;
+    check_true(ok, "predicted reflectances lie in (0, 1)");
+}
+
+static void test_derivative(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_model *m;
+    lam_model_alloc(&s, 3, 0, &m, NULL);
+    double dc[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
+    check_int(lam_model_doxide(m, 285, 0.2, dc, NULL), LAM_OK, "oxide derivative");
+    lam_model_eval(m, 286, 0.2, &P, NULL);
+    lam_model_eval(m, 284, 0.2, &Q, NULL);
+    check_abs(dc[1][1], (P.contrast[1][1] - Q.contrast[1][1]) / 2, 1e-5, "derivative consistent");
+    lam_model_free(m);
+}
+
+static void test_setup(void)
+{
+    lam_setup d, f;
+    lam_setup_default(&d);
+    lam_setup_default(&f);
+    lam_error err;
+    lam_error_clear(&err);
+    check_int(lam_setup_load("calib/default-setup.json", &f, &err), LAM_OK,
+              "calib/default-setup.json loads (%s)", err.message);
+    check_abs(f.illumination_na, d.illumination_na, 0, "calib file = compiled: illumination NA");
+    check_abs(f.layer_nm[0], d.layer_nm[0], 0, "calib file = compiled: oxide");
+    check_abs(f.camera.centre_nm[2], d.camera.centre_nm[2], 0, "calib file = compiled: camera B");
+    check_abs(f.sheet.fermi_ev, d.sheet.fermi_ev, 0, "calib file = compiled: fermi");
+    check_abs(f.illuminant.kelvin, d.illuminant.kelvin, 0, "calib file = compiled: lamp");
+    check_true(!lam_setup_is_default(&f, "camera") && lam_setup_is_default(&d, "camera"),
+               "defaulted keys are tracked");
+    lam_setup_clear(&f);
+    struct { const char *json; lam_status st; const char *key; } bad[] = {
+        {"{\"schema\":\"lamina-setup/1\",\"objective\":{\"illumination_na\":1.2}}", LAM_ERANGE,
+         "objective.illumination_na"},
+        {"{\"schema\":\"lamina-setup/1\",\"substrate\":{\"stack\":[{\"material\":\"SiO2\","
+         "\"thickness_nm\":-5}]}}", LAM_ERANGE, "substrate.stack[0].thickness_nm"},
+        {"{\"schema\":\"lamina-setup/1\",\"temperature_K\":0}", LAM_ERANGE, "temperature_K"},
+        {"{\"schema\":\"lamina-setup/2\"}", LAM_EFORMAT, "schema"},
+        {"{\"schema\":\"lamina-setup/1\",\"camera\":{\"kind\":\"fisheye\"}}", LAM_EINVAL, "camera.kind"},
+        {"{\"schema\":\"lamina-setup/1\", \"fermi_eV\": NaN}", LAM_EFORMAT, "JSON"},
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        lam_setup s;
+        lam_setup_default(&s);
+        lam_error_clear(&err);
+        lam_status st = lam_setup_parse(bad[i].json, ".", &s, &err);
+        check_int(st, bad[i].st, "bad setup %zu refused", i + 1);
+        check_true(strstr(err.message, bad[i].key) != NULL, "message names %s: %s", bad[i].key,
+                   err.message);
+        lam_setup_clear(&s);
+    }
+}
+
+int main(void)
+{
+    check_begin("test_model");
+    gsl_set_error_handler_off();
+    test_independent();
+    test_published();
+    test_pitfalls();
+    test_derivative();
+    test_setup();
+    return check_summary();
+}
