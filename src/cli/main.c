@@ -11,6 +11,7 @@
 static const cli_command *const commands[] = {
     &cli_predict,
     &cli_inspect,
+    &cli_map,
     NULL,
 };
 

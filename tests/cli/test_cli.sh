@@ -50,5 +50,11 @@ printf '{"schema":"lamina-setup/1","objective":{"illumination_na":3}}' > "$T/bad
 expect_rc 1 "a setup with NA 3" "$BIN" predict --setup "$T/bad.json"
 grep -q "bad.json" "$T/err" && grep -q "illumination_na" "$T/err" && ok "setup message names file and key" || bad "setup message: $(cat "$T/err")"
 
+expect_rc 0 "map writes an SVG" "$BIN" map --layers 2 --out "$T/map.svg"
+grep -q "</svg>" "$T/map.svg" && ok "map SVG complete" || bad "map SVG complete"
+expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
+[ ! -e "$T/none" ] && ok "no partial output" || bad "partial output left"
+expect_rc 2 "map refuses an unknown format" "$BIN" map --out "$T/map.gif"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
