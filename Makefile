@@ -99,6 +99,17 @@ valgrind: deps
 	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full" \
 	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
 
+# Outside reference: Debian's python3-meep (materials and a 1-D FDTD).
+$(BUILD)/tests/nk_dump: tests/reference/nk_dump.c $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(LIB) $(LDLIBS) -o $@
+
+check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
+	@for p in $(DEB_REF); do dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "ok installed" || \
+	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
+	    else echo "missing $$p; run: sudo apt-get install $(DEB_REF)"; exit 1; fi; }; done
+	/usr/bin/python3 tests/reference/meep_check.py $(BUILD)
+
 bench: $(BIN) $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do $$b || exit 1; done
 

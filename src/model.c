@@ -23,6 +23,7 @@ struct lam_model {
     double complex *n_layer; /* layers x nwl */
     double complex *n_base;  /* nwl */
     double complex *y_sheet; /* nwl: Z0 sigma */
+    double complex *n_film;  /* nwl: flake index when flakes are films, else NULL */
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     double sin_t[MAX_NODES], w_t[MAX_NODES];
 };
@@ -69,6 +70,7 @@ void lam_model_free(lam_model *m)
     free(m->n_layer);
     free(m->n_base);
     free(m->y_sheet);
+    free(m->n_film);
     free(m);
 }
 
@@ -134,6 +136,16 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
         if ((st = lam_material_index(&s->ambient, nm, &na, err)))
             goto fail;
     }
+    if (s->flake_as_film) {
+        m->n_film = malloc(m->nwl * sizeof *m->n_film);
+        if (!m->n_film) {
+            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
+            goto fail;
+        }
+        for (size_t l = 0; l < m->nwl; l++)
+            if ((st = lam_material_index(&s->flake_film, m->wl[l], &m->n_film[l], err)))
+                goto fail;
+    }
     if ((st = fill_cone(m, s, err)))
         goto fail;
     m->have_sigma = 0;
@@ -187,6 +199,19 @@ static void accumulate(const lam_model *m, size_t l, double oxide_nm, double sin
     double complex eta0 = lam_tmm_eta(m->n_ambient, q0, pol);
     double complex gap = k0 * q0 * m->interlayer_nm;
     double complex cg = ccos(gap), sg = csin(gap);
+    if (m->n_film) {
+        /* comparison model: N layers as one slab of N * interlayer_nm */
+        double complex nf = m->n_film[l], qf = lam_tmm_q(nf, kx);
+        double complex ef = lam_tmm_eta(nf, qf, pol);
+        double complex ysub = y;
+        for (size_t N = 0; N <= m->max_layers; N++) {
+            double complex ph = k0 * qf * m->interlayer_nm * (double)N;
+            double complex yn = N ? lam_tmm_through_film(ysub, ef, ccos(ph), csin(ph)) : ysub;
+            double complex r = (eta0 - yn) / (eta0 + yn);
+            acc[N] += wt * creal(r * conj(r));
+        }
+        return;
+    }
     double complex ys = m->y_sheet[l];
     for (size_t N = 0; N <= m->max_layers; N++) {
         if (N > 0) {

@@ -74,6 +74,7 @@ void lam_setup_clear(lam_setup *s)
         return;
     lam_material_clear(&s->ambient);
     lam_material_clear(&s->base);
+    lam_material_clear(&s->flake_film);
     for (size_t i = 0; i < s->layers; i++)
         lam_material_clear(&s->layer_material[i]);
     lam_table_spectrum_clear(&s->illuminant.table);
@@ -305,7 +306,8 @@ static lam_status parse_substrate(const cJSON *o, lam_setup *s, const char *dir,
     return LAM_OK;
 }
 
-static lam_status parse_conductivity(const cJSON *o, lam_setup *s, lam_error *err)
+static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *dir,
+                                     lam_error *err)
 {
     if (!cJSON_IsObject(o))
         return lam_error_set(err, LAM_EFORMAT, "key conductivity: expected an object");
@@ -315,9 +317,21 @@ static lam_status parse_conductivity(const cJSON *o, lam_setup *s, lam_error *er
             s->sheet.model = LAM_SHEET_KUBO;
         else if (cJSON_IsString(model) && !strcmp(model->valuestring, "universal"))
             s->sheet.model = LAM_SHEET_UNIVERSAL;
-        else
+        else if (cJSON_IsString(model) && !strcmp(model->valuestring, "film")) {
+            /* comparison model: graphene as a slab of tabulated n,k */
+            const cJSON *nk = cJSON_GetObjectItemCaseSensitive(o, "film");
+            if (!nk)
+                return lam_error_set(err, LAM_EFORMAT,
+                                     "key conductivity.film: needed with model \"film\" "
+                                     "(a material name or {\"file\": \"x.csv\"})");
+            lam_status fs = get_material(nk, "conductivity.film", dir, &s->flake_film, err);
+            if (fs)
+                return fs;
+            s->flake_as_film = 1;
+        } else
             return lam_error_set(err, LAM_EINVAL,
-                                 "key conductivity.model: expected \"kubo\" or \"universal\"");
+                                 "key conductivity.model: expected \"kubo\", \"universal\" or "
+                                 "\"film\"");
     }
     int found;
     lam_status st;
@@ -396,7 +410,7 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
     if (found)
         mark_given(s, "fermi_eV");
     if ((v = cJSON_GetObjectItemCaseSensitive(root, "conductivity")) &&
-        (st = parse_conductivity(v, s, err)))
+        (st = parse_conductivity(v, s, dir, err)))
         return st;
     if ((v = cJSON_GetObjectItemCaseSensitive(root, "spectrum"))) {
         if ((st = get_number(v, "min_nm", "spectrum.min_nm", 300, 1000, &s->grid_lo_nm, &found, err)) ||

@@ -2,6 +2,7 @@
  * published statements about graphene contrast on SiO2/Si, the pitfalls
  * listed in shared/CHECKS.md, and the setup profile reader. */
 #include "check.h"
+#include "refdata.h"
 #include "lamina/model.h"
 #include "lamina/tmm.h"
 
@@ -250,6 +251,42 @@ static void test_setup(void)
     }
 }
 
+static void test_film_comparison(void)
+{
+    /* graphene as a 0.335 nm film of Weber et al. (2010) n,k against the
+     * default sheet model: the two descriptions agree on the monolayer
+     * contrast within 2 % (they share Re sigma within ~2 %) */
+    static refdata_nk t;
+    if (!check_true(refdata_load_nk("graphene-Weber2010.yml", &t) == 0, "read Weber 2010"))
+        return;
+    char csv[512], json[2048];
+    check_path(csv, sizeof csv, check_tmpdir(), "weber-film.csv");
+    FILE *fp = fopen(csv, "w");
+    fprintf(fp, "wavelength_nm,n,k\n");
+    for (size_t i = 0; i < t.rows; i++)
+        fprintf(fp, "%.4f,%.6f,%.6f\n", t.wl_nm[i], t.n[i], t.k[i]);
+    fclose(fp);
+    snprintf(json, sizeof json, "{\"schema\":\"lamina-setup/1\",\"conductivity\":{\"model\":"
+             "\"film\",\"film\":{\"file\":\"%s\"}}}", csv);
+    lam_setup f, d;
+    lam_setup_default(&d);
+    lam_setup_default(&f);
+    lam_error err;
+    lam_error_clear(&err);
+    check_int(lam_setup_parse(json, ".", &f, &err), LAM_OK, "film setup parses (%s)", err.message);
+    lam_model *m;
+    lam_model_alloc(&f, 2, 0, &m, NULL);
+    lam_model_eval(m, 285, 0.2, &P, NULL);
+    lam_model_free(m);
+    lam_model_alloc(&d, 2, 0, &m, NULL);
+    lam_model_eval(m, 285, 0.2, &Q, NULL);
+    lam_model_free(m);
+    check_rel(P.contrast[1][1], Q.contrast[1][1], 0.02,
+              "1L green contrast: Weber film %.4f vs sheet model %.4f", P.contrast[1][1],
+              Q.contrast[1][1]);
+    lam_setup_clear(&f);
+}
+
 int main(void)
 {
     check_begin("test_model");
@@ -259,5 +296,9 @@ int main(void)
     test_pitfalls();
     test_derivative();
     test_setup();
+    if (check_refdata_dir())
+        test_film_comparison();
+    else
+        check_true(0, "../shared/refdata missing");
     return check_summary();
 }

@@ -44,6 +44,8 @@ typedef struct lam_setup {
     lam_material base;
     char flake[32];         /* "graphene" */
     double interlayer_nm;   /* sheet spacing of N-layer graphene */
+    int flake_as_film;      /* model N layers as a film of N * interlayer_nm ... */
+    lam_material flake_film;/* ... with this index (conductivity.model "film") */
     lam_sheet_params sheet;
     double grid_lo_nm, grid_hi_nm, grid_step_nm;
     size_t defaulted_count;
