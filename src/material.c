@@ -62,9 +62,19 @@ lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *
         m.min_nm = 380;
         m.max_nm = 820;
         m.source = "single-oscillator fit to Grudinin et al., Mater. Horiz. 10, 2427 (2023)";
+    } else if (!strcasecmp(name, "PMMA")) {
+        /* N. Sultanova, S. Kasarova, I. Nikolov, Acta Phys. Pol. A 116, 585
+         * (2009): n^2 - 1 = 1.1819 l^2 / (l^2 - 0.011313 um^2), published for
+         * 437-1052 nm; the transparent formula is used down to 380 nm */
+        m.kind = LAM_MATERIAL_SELLMEIER;
+        m.terms = 1;
+        m.b[0] = 1.1819, m.c[0] = 0.10636258;
+        m.min_nm = 380;
+        m.max_nm = 1052;
+        m.source = "Sultanova et al., Acta Phys. Pol. A 116, 585 (2009), extended to 380 nm";
     } else {
         return lam_error_set(err, LAM_EINVAL,
-                             "unknown material '%s' (built in: air, SiO2, Si, hBN, water; "
+                             "unknown material '%s' (built in: air, SiO2, Si, hBN, PMMA, water; "
                              "or give a CSV file wavelength_nm,n,k)",
                              name);
     }

@@ -15,6 +15,9 @@
  *                   of the published table over 400-800 nm (tests/test_material.c)
  *   "hBN"           hexagonal BN in-plane, single-oscillator Sellmeier fitted
  *                   here to Grudinin et al. (2023), 380-820 nm
+ *   "PMMA"          Sultanova et al. (2009) Sellmeier, 380-1052 nm (the
+ *                   published range starts at 437 nm; the transparent formula
+ *                   is used below it), for polymer residue
  *   "water"         n = 1.333 (for immersion objectives; dispersion ignored)
  * User materials: CSV "wavelength_nm,n,k" (lam_material_load_csv), interpolated
  * by a monotone cubic (Steffen) in photon energy, never extrapolated.

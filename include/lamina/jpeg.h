@@ -1,0 +1,13 @@
+/* lamina/jpeg.h - writing 8-bit RGB JPEG files atomically (libjpeg-turbo). */
+#ifndef LAMINA_JPEG_H
+#define LAMINA_JPEG_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "lamina/error.h"
+
+/* rgb: width*height*3 bytes, interleaved; quality 1..100. */
+lam_status lam_jpeg_save_rgb8(const char *path, const uint8_t *rgb, size_t width,
+                              size_t height, int quality, lam_error *err);
+
+#endif

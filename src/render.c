@@ -1,0 +1,424 @@
+/* render.c - synthetic micrographs: scene reading, polygon rasterisation,
+ * per-class reflectance from the optics model, flat field, blur, noise. */
+#include "lamina/render.h"
+#include "lamina/jpeg.h"
+#include "lamina/model.h"
+#include "lamina/png.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <cjson/cJSON.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+
+void lam_scene_clear(lam_scene *s)
+{
+    if (!s)
+        return;
+    lam_setup_clear(&s->setup);
+    free(s->objects);
+    s->objects = NULL;
+    s->count = 0;
+}
+
+static lam_status num(const cJSON *o, const char *name, double lo, double hi, double *out,
+                      lam_error *err)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, name);
+    if (!v)
+        return LAM_OK;
+    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
+        return lam_error_set(err, LAM_EFORMAT, "key %s: expected a number", name);
+    if (v->valuedouble < lo || v->valuedouble > hi)
+        return lam_error_set(err, LAM_ERANGE, "key %s: %g is outside %g to %g", name,
+                             v->valuedouble, lo, hi);
+    *out = v->valuedouble;
+    return LAM_OK;
+}
+
+static lam_status read_polygon(const cJSON *item, const char *what, size_t idx,
+                               lam_scene_object *o, lam_error *err)
+{
+    const cJSON *poly = cJSON_GetObjectItemCaseSensitive(item, "polygon");
+    const cJSON *circ = cJSON_GetObjectItemCaseSensitive(item, "circle");
+    if (cJSON_IsArray(circ) && cJSON_GetArraySize(circ) == 3) {
+        double cx = cJSON_GetArrayItem(circ, 0)->valuedouble;
+        double cy = cJSON_GetArrayItem(circ, 1)->valuedouble;
+        double r = cJSON_GetArrayItem(circ, 2)->valuedouble;
+        if (!(r > 0) || !isfinite(cx) || !isfinite(cy))
+            return lam_error_set(err, LAM_ERANGE, "%s[%zu].circle: need [x, y, r > 0]", what, idx);
+        o->vertices = 32;
+        for (size_t k = 0; k < 32; k++) {
+            o->x[k] = cx + r * cos(2 * M_PI * (double)k / 32);
+            o->y[k] = cy + r * sin(2 * M_PI * (double)k / 32);
+        }
+        return LAM_OK;
+    }
+    int n = cJSON_GetArraySize(poly);
+    if (!cJSON_IsArray(poly) || n < 3 || n > LAM_SCENE_MAX_VERTICES)
+        return lam_error_set(err, LAM_EFORMAT,
+                             "%s[%zu].polygon: expected 3 to %d [x, y] points (or a circle)", what,
+                             idx, LAM_SCENE_MAX_VERTICES);
+    o->vertices = (size_t)n;
+    for (int k = 0; k < n; k++) {
+        const cJSON *p = cJSON_GetArrayItem(poly, k);
+        const cJSON *px = cJSON_GetArrayItem(p, 0), *py = cJSON_GetArrayItem(p, 1);
+        if (!cJSON_IsNumber(px) || !cJSON_IsNumber(py) || !isfinite(px->valuedouble) ||
+            !isfinite(py->valuedouble))
+            return lam_error_set(err, LAM_EFORMAT, "%s[%zu].polygon[%d]: expected [x, y]", what,
+                                 idx, k);
+        o->x[k] = px->valuedouble;
+        o->y[k] = py->valuedouble;
+    }
+    return LAM_OK;
+}
+
+static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, lam_error *err)
+{
+    if (!cJSON_IsObject(root))
+        return lam_error_set(err, LAM_EFORMAT, "expected a JSON object");
+    const cJSON *schema = cJSON_GetObjectItemCaseSensitive(root, "schema");
+    if (!cJSON_IsString(schema) || strcmp(schema->valuestring, "lamina-scene/1"))
+        return lam_error_set(err, LAM_EFORMAT, "key schema: expected \"lamina-scene/1\"");
+    lam_status st;
+    const cJSON *setup = cJSON_GetObjectItemCaseSensitive(root, "setup");
+    if (cJSON_IsString(setup)) {
+        char path[2200];
+        snprintf(path, sizeof path, "%s/%s", dir, setup->valuestring);
+        if ((st = lam_setup_load(path, &s->setup, err)))
+            return st;
+    } else if (cJSON_IsObject(setup)) {
+        char *text = cJSON_PrintUnformatted(setup);
+        if (!text)
+            return lam_error_set(err, LAM_ENOMEM, "cannot copy the setup");
+        st = lam_setup_parse(text, dir, &s->setup, err);
+        free(text);
+        if (st)
+            return lam_error_set(err, st, "key setup: %s", err ? err->message : "");
+    }
+    double w = 640, h = 480;
+    s->oxide_nm = lam_setup_oxide(&s->setup);
+    if ((st = num(root, "width", 8, 20000, &w, err)) || (st = num(root, "height", 8, 20000, &h, err)) ||
+        (st = num(root, "oxide_nm", 0, 2000, &s->oxide_nm, err)) ||
+        (st = num(root, "exposure", 0.01, 0.95, &s->exposure, err)) ||
+        (st = num(root, "vignetting", 0, 0.6, &s->vignetting, err)) ||
+        (st = num(root, "blur_px", 0, 20, &s->blur_px, err)) ||
+        (st = num(root, "full_well", 0, 1e7, &s->full_well, err)) ||
+        (st = num(root, "read_noise", 0, 0.2, &s->read_noise, err)))
+        return st;
+    s->width = (size_t)w;
+    s->height = (size_t)h;
+    double seed = 1, q = 92;
+    if ((st = num(root, "seed", 0, 4e9, &seed, err)) || (st = num(root, "jpeg_quality", 1, 100, &q, err)))
+        return st;
+    s->seed = (unsigned long)seed;
+    s->jpeg_quality = (int)q;
+    const cJSON *g = cJSON_GetObjectItemCaseSensitive(root, "gradient");
+    if (g) {
+        if (!cJSON_IsArray(g) || cJSON_GetArraySize(g) != 2)
+            return lam_error_set(err, LAM_EFORMAT, "key gradient: expected [gx, gy]");
+        for (int i = 0; i < 2; i++) {
+            double v = cJSON_GetArrayItem(g, i)->valuedouble;
+            if (!isfinite(v) || fabs(v) > 0.5)
+                return lam_error_set(err, LAM_ERANGE, "key gradient: values within +-0.5");
+            s->gradient[i] = v;
+        }
+    }
+    const char *lists[3] = {"flakes", "residue", "dust"};
+    size_t total = 0;
+    for (int l = 0; l < 3; l++)
+        total += (size_t)cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(root, lists[l]));
+    if (total > LAM_SCENE_MAX_OBJECTS)
+        return lam_error_set(err, LAM_ETOOBIG, "more than %d objects", LAM_SCENE_MAX_OBJECTS);
+    s->objects = calloc(total ? total : 1, sizeof *s->objects);
+    if (!s->objects)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate scene objects");
+    for (int l = 0; l < 3; l++) {
+        const cJSON *arr = cJSON_GetObjectItemCaseSensitive(root, lists[l]), *item;
+        size_t idx = 0;
+        cJSON_ArrayForEach(item, arr) {
+            lam_scene_object *o = &s->objects[s->count];
+            o->kind = (lam_scene_kind)l;
+            double layers = 1, fermi = s->setup.sheet.fermi_ev, t = 3;
+            if ((st = num(item, "layers", 1, LAM_MODEL_MAX_LAYERS, &layers, err)) ||
+                (st = num(item, "fermi_eV", -2, 2, &fermi, err)) ||
+                (st = num(item, "thickness_nm", 0.1, 200, &t, err)))
+                return lam_error_set(err, st, "%s[%zu]: %s", lists[l], idx, err ? err->message : "");
+            o->layers = (int)layers;
+            o->fermi_ev = fermi;
+            o->thickness_nm = t;
+            if ((st = read_polygon(item, lists[l], idx, o, err)))
+                return st;
+            s->count++;
+            idx++;
+        }
+    }
+    return LAM_OK;
+}
+
+lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
+{
+    memset(s, 0, sizeof *s);
+    lam_setup_default(&s->setup);
+    s->exposure = 0.55;
+    FILE *fp = fopen(path, "rb");
+    if (!fp) {
+        lam_error_set(err, LAM_EIO, "cannot open scene: %s", strerror(errno));
+        lam_error_set_file(err, path);
+        lam_scene_clear(s);
+        return LAM_EIO;
+    }
+    char *buf = malloc(4 << 20);
+    size_t n = buf ? fread(buf, 1, (4 << 20) - 1, fp) : 0;
+    fclose(fp);
+    lam_status st;
+    if (!buf) {
+        st = lam_error_set(err, LAM_ENOMEM, "cannot read scene");
+    } else {
+        buf[n] = '\0';
+        cJSON *root = cJSON_Parse(buf);
+        char dir[1024];
+        snprintf(dir, sizeof dir, "%s", path);
+        char *slash = strrchr(dir, '/');
+        if (slash)
+            *slash = '\0';
+        else
+            snprintf(dir, sizeof dir, ".");
+        st = root ? parse_scene(root, dir, s, err)
+                  : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
+        cJSON_Delete(root);
+    }
+    free(buf);
+    if (st) {
+        lam_error_set_file(err, path);
+        lam_scene_clear(s);
+    }
+    return st;
+}
+
+/* Fill 'code' inside the polygon (even-odd rule at pixel centres). */
+static void fill_polygon(const lam_scene_object *o, uint16_t *cls, size_t w, size_t h,
+                         uint16_t code)
+{
+    double ymin = o->y[0], ymax = o->y[0];
+    for (size_t k = 1; k < o->vertices; k++) {
+        ymin = fmin(ymin, o->y[k]);
+        ymax = fmax(ymax, o->y[k]);
+    }
+    long y0 = (long)floor(ymin), y1 = (long)ceil(ymax);
+    double xs[LAM_SCENE_MAX_VERTICES];
+    for (long y = y0 < 0 ? 0 : y0; y <= y1 && y < (long)h; y++) {
+        double yc = (double)y + 0.5;
+        size_t nx = 0;
+        for (size_t k = 0; k < o->vertices; k++) {
+            size_t j = (k + 1) % o->vertices;
+            double ya = o->y[k], yb = o->y[j];
+            if ((ya <= yc && yb > yc) || (yb <= yc && ya > yc))
+                xs[nx++] = o->x[k] + (yc - ya) / (yb - ya) * (o->x[j] - o->x[k]);
+        }
+        for (size_t a = 1; a < nx; a++)
+            for (size_t b = a; b > 0 && xs[b - 1] > xs[b]; b--) {
+                double t = xs[b];
+                xs[b] = xs[b - 1];
+                xs[b - 1] = t;
+            }
+        for (size_t a = 0; a + 1 < nx; a += 2) {
+            long xa = (long)ceil(xs[a] - 0.5), xb = (long)floor(xs[a + 1] - 0.5);
+            for (long x = xa < 0 ? 0 : xa; x <= xb && x < (long)w; x++)
+                cls[(size_t)y * w + (size_t)x] = code;
+        }
+    }
+}
+
+/* Reflectance per channel of each object (rel[i]) and of the bare
+ * substrate (rel[count]), scaled so that the substrate's brightest channel
+ * is 1: the camera is white-balanced on the lamp, so the substrate keeps
+ * its interference colour. */
+static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_error *err)
+{
+    lam_setup su = s->setup;
+    lam_model *m = NULL;
+    lam_prediction *p = malloc(sizeof *p);
+    if (!p)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+    lam_status st = LAM_OK;
+    if (!(st = lam_model_alloc(&su, 1, 0, &m, err)))
+        st = lam_model_eval(m, s->oxide_nm, su.sheet.fermi_ev, p, err);
+    lam_model_free(m);
+    m = NULL;
+    double sub[3] = {0, 0, 0}, top = 0;
+    for (size_t c = 0; !st && c < 3; c++) {
+        sub[c] = p->substrate[c];
+        top = fmax(top, sub[c]);
+    }
+    for (size_t c = 0; !st && c < 3; c++)
+        rel[s->count][c] = sub[c] / top;
+    for (size_t i = 0; i < s->count && !st; i++) {
+        const lam_scene_object *o = &s->objects[i];
+        if (o->kind == LAM_SCENE_FLAKE) {
+            if (!(st = lam_model_alloc(&su, (size_t)o->layers, 0, &m, err)))
+                st = lam_model_eval(m, s->oxide_nm, o->fermi_ev, p, err);
+            for (size_t c = 0; !st && c < 3; c++)
+                rel[i][c] = p->reflectance[o->layers][c] / top;
+        } else if (o->kind == LAM_SCENE_RESIDUE) {
+            /* a PMMA film on top of the substrate stack */
+            lam_setup r = su;
+            if (r.layers >= LAM_SETUP_MAX_LAYERS) {
+                st = lam_error_set(err, LAM_ETOOBIG, "substrate stack too deep for residue");
+                break;
+            }
+            memmove(&r.layer_material[1], &r.layer_material[0], r.layers * sizeof r.layer_material[0]);
+            memmove(&r.layer_nm[1], &r.layer_nm[0], r.layers * sizeof r.layer_nm[0]);
+            lam_material_builtin("PMMA", &r.layer_material[0], NULL);
+            r.layer_nm[0] = o->thickness_nm;
+            r.layers++;
+            if (!(st = lam_model_alloc(&r, 1, 0, &m, err)))
+                st = lam_model_eval(m, s->oxide_nm, 0.2, p, err);
+            for (size_t c = 0; !st && c < 3; c++)
+                rel[i][c] = p->substrate[c] / top;
+        } else {
+            for (size_t c = 0; c < 3; c++)
+                rel[i][c] = 0.45 * sub[c] / top; /* dust: a grey absorber */
+        }
+        lam_model_free(m);
+        m = NULL;
+    }
+    free(p);
+    return st;
+}
+
+static void blur_plane(float *p, float *tmp, size_t w, size_t h, double sigma)
+{
+    int r = (int)ceil(3 * sigma);
+    if (r < 1)
+        return;
+    double k[64];
+    if (r > 31)
+        r = 31;
+    double sum = 0;
+    for (int i = -r; i <= r; i++)
+        sum += k[i + r] = exp(-0.5 * i * i / (sigma * sigma));
+    for (int i = 0; i <= 2 * r; i++)
+        k[i] /= sum;
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            double a = 0;
+            for (int i = -r; i <= r; i++) {
+                long xx = (long)x + i;
+                xx = xx < 0 ? 0 : (xx >= (long)w ? (long)w - 1 : xx);
+                a += k[i + r] * p[y * w + (size_t)xx];
+            }
+            tmp[y * w + x] = (float)a;
+        }
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            double a = 0;
+            for (int i = -r; i <= r; i++) {
+                long yy = (long)y + i;
+                yy = yy < 0 ? 0 : (yy >= (long)h ? (long)h - 1 : yy);
+                a += k[i + r] * tmp[(size_t)yy * w + x];
+            }
+            p[y * w + x] = (float)a;
+        }
+}
+
+lam_status lam_render(const lam_scene *s, lam_image **image, uint8_t **truth, lam_error *err)
+{
+    size_t w = s->width, h = s->height, n = w * h;
+    double (*rel)[3] = calloc(s->count + 1, sizeof *rel);
+    uint16_t *cls = calloc(n, sizeof *cls);
+    uint8_t *tr = malloc(n);
+    float *tmp = malloc(n * sizeof *tmp);
+    lam_image *img = NULL;
+    lam_status st = LAM_OK;
+    if (!rel || !cls || !tr || !tmp) {
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu render", w, h);
+        goto done;
+    }
+    if ((st = class_reflectance(s, rel, err)) || (st = lam_image_alloc(w, h, &img, err)))
+        goto done;
+    /* later objects cover earlier ones; code 0 = substrate, i+1 = object i */
+    for (size_t i = 0; i < s->count; i++)
+        fill_polygon(&s->objects[i], cls, w, h, (uint16_t)(i + 1));
+    double cx = (double)w / 2, cy = (double)h / 2, rmax2 = cx * cx + cy * cy;
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            size_t k = y * w + x;
+            double dx = (double)x + 0.5 - cx, dy = (double)y + 0.5 - cy;
+            double flat = (1 - s->vignetting * (dx * dx + dy * dy) / rmax2) *
+                          (1 + s->gradient[0] * dx / (double)w + s->gradient[1] * dy / (double)h);
+            unsigned code = cls[k];
+            const lam_scene_object *o = code ? &s->objects[code - 1] : NULL;
+            tr[k] = !o ? 0 : (o->kind == LAM_SCENE_FLAKE ? (uint8_t)o->layers : 255);
+            for (int c = 0; c < 3; c++)
+                img->plane[c][k] = (float)(s->exposure * flat * rel[o ? code - 1 : s->count][c]);
+        }
+    if (s->blur_px > 0)
+        for (int c = 0; c < 3; c++)
+            blur_plane(img->plane[c], tmp, w, h, s->blur_px);
+    if (s->full_well > 0 || s->read_noise > 0) {
+        gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+        if (!rng) {
+            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a random generator");
+            goto done;
+        }
+        gsl_rng_set(rng, s->seed);
+        for (int c = 0; c < 3; c++)
+            for (size_t k = 0; k < n; k++) {
+                double v = img->plane[c][k], var = s->read_noise * s->read_noise;
+                if (s->full_well > 0)
+                    var += (v > 0 ? v : 0) / s->full_well;
+                v += gsl_ran_gaussian_ziggurat(rng, sqrt(var));
+                img->plane[c][k] = (float)(v < 0 ? 0 : (v > 1 ? 1 : v));
+            }
+        gsl_rng_free(rng);
+    }
+    *image = img;
+    img = NULL;
+    *truth = tr;
+    tr = NULL;
+done:
+    lam_image_free(img);
+    free(rel);
+    free(cls);
+    free(tr);
+    free(tmp);
+    return st;
+}
+
+lam_status lam_render_save(const lam_image *img, const char *path, int linear16,
+                           int jpeg_quality, lam_error *err)
+{
+    size_t w = img->width, h = img->height, n = w * h;
+    const char *dot = strrchr(path, '.');
+    int jpeg = dot && (!strcasecmp(dot, ".jpg") || !strcasecmp(dot, ".jpeg"));
+    if (!dot || (!jpeg && strcasecmp(dot, ".png")))
+        return lam_error_set(err, LAM_EINVAL, "%s: output must end in .png, .jpg or .jpeg", path);
+    lam_status st;
+    if (linear16 && !jpeg) {
+        uint16_t *px = malloc(n * 3 * sizeof *px);
+        if (!px)
+            return lam_error_set(err, LAM_ENOMEM, "cannot allocate an output buffer");
+        for (size_t k = 0; k < n; k++)
+            for (int c = 0; c < 3; c++)
+                px[k * 3 + (size_t)c] = (uint16_t)lround(65535.0 * img->plane[c][k]);
+        st = lam_png_save_16(path, px, w, h, 3, err);
+        free(px);
+        return st;
+    }
+    uint8_t *px = malloc(n * 3);
+    if (!px)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate an output buffer");
+    lam_transfer t = {LAM_TRANSFER_SRGB, 0};
+    for (size_t k = 0; k < n; k++)
+        for (int c = 0; c < 3; c++)
+            px[k * 3 + (size_t)c] = (uint8_t)lround(255.0 * lam_transfer_encode(&t, img->plane[c][k]));
+    st = jpeg ? lam_jpeg_save_rgb8(path, px, w, h, jpeg_quality, err)
+              : lam_png_save_rgb8(path, px, w, h, 3, err);
+    free(px);
+    return st;
+}
