@@ -9,6 +9,7 @@
 
 /* Only subcommands that work are registered here. */
 static const cli_command *const commands[] = {
+    &cli_analyze,
     &cli_predict,
     &cli_inspect,
     &cli_map,

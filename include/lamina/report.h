@@ -1,0 +1,32 @@
+/*
+ * lamina/report.h - the files an analysis writes (contracts in DESIGN.md):
+ *   STEM.json           the analysis, schema "lamina-analysis/1"
+ *   STEM.layers.png     8-bit grey: 0 substrate, 1..K layers, 254 thicker
+ *                       than modelled, 255 not assigned
+ *   STEM.annotated.png  the input with outlines, labels, legend, scale bar
+ *   STEM.contrast.svg   measured region contrasts over the model ladder
+ * Every file is written atomically. lam_report_json builds the cJSON tree
+ * (caller deletes) so a batch can collect the regions for a catalogue.
+ */
+#ifndef LAMINA_REPORT_H
+#define LAMINA_REPORT_H
+
+#include "lamina/analyze.h"
+#include "lamina/error.h"
+
+struct cJSON;
+
+struct cJSON *lam_report_json(const lam_analysis *a);
+
+lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_error *err);
+lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err);
+lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, lam_error *err);
+lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err);
+
+/* Value of a region in the layer map. */
+unsigned lam_report_layer_value(const lam_region_result *r);
+
+/* The palette: colour of a layer-map value (1..K, 254, 255). */
+void lam_report_palette(unsigned value, uint8_t rgb[3]);
+
+#endif

@@ -1,0 +1,78 @@
+/*
+ * lamina/segment.h - pixel classes and connected regions of a contrast map.
+ *
+ * Each pixel's contrast vector (after a light 3x3 denoising) is compared
+ * with the model's ladder (substrate, N = 1..K, thicker entries) using a
+ * noise-aware distance: per channel variance (pixel noise / 2)^2 plus a
+ * model floor (floor_abs + floor_rel * |C|)^2. The nearest entry wins; a
+ * pixel whose best squared distance exceeds reject_chi2 is "unmodelled".
+ * Classification goes through a 128^3 lookup table over the ladder's range.
+ * Connected (4-neighbour) pixels of one class form a region; pixels whose
+ * 4-neighbours are all in the region and that are not saturated are its
+ * interior, from which statistics are taken (edge pixels mix two classes).
+ *
+ * Ownership: lam_segmentation_alloc / lam_segmentation_free.
+ */
+#ifndef LAMINA_SEGMENT_H
+#define LAMINA_SEGMENT_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include "lamina/error.h"
+#include "lamina/image.h"
+
+#define LAM_LADDER_MAX 64
+#define LAM_CLASS_SUBSTRATE 0
+#define LAM_CLASS_THICK 254
+#define LAM_CLASS_UNMODELLED 253
+#define LAM_CLASS_NONE 255
+
+typedef struct lam_ladder {
+    size_t entries;               /* entry 0 is the substrate */
+    size_t max_layers;            /* entries 1..max_layers are N layers; the rest "thick" */
+    double c[LAM_LADDER_MAX][3];
+} lam_ladder;
+
+typedef struct lam_segment_options {
+    double floor_abs, floor_rel; /* model floor, contrast units (0.005, 0.05) */
+    double reject_chi2;          /* unmodelled above this squared distance (25) */
+    size_t min_region_px;        /* smaller regions are dropped (12) */
+} lam_segment_options;
+
+typedef struct lam_region_stats {
+    uint32_t id;
+    uint8_t cls;
+    size_t area, interior, clipped;
+    size_t bbox[4];              /* x0, y0, x1, y1 inclusive */
+    double sx, sy;               /* coordinate sums for the centroid */
+    double sum[3], sumsq[3];     /* interior contrast */
+    int touches_border;
+} lam_region_stats;
+
+typedef struct lam_segmentation {
+    size_t width, height;
+    uint8_t *cls;                /* class per pixel (LAM_CLASS_NONE for dropped) */
+    uint32_t *label;             /* region id per pixel, 0 = none */
+    size_t count;
+    lam_region_stats *regions;   /* ids 1..count at index id-1 */
+} lam_segmentation;
+
+lam_segment_options lam_segment_options_default(void);
+
+lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation **out,
+                                  lam_error *err);
+void lam_segmentation_free(lam_segmentation *s);
+
+/* 3x3 box filter of each contrast plane, in place. */
+lam_status lam_contrast_denoise(lam_image *contrast, lam_error *err);
+
+/* Classify every pixel against the ladder. noise[c]: relative pixel sigma. */
+lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *ladder,
+                                const double noise[3], const lam_segment_options *opt,
+                                lam_segmentation *seg, lam_error *err);
+
+/* Connected regions of non-substrate classes with their statistics. */
+lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,
+                               lam_segmentation *seg, lam_error *err);
+
+#endif

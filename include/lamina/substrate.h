@@ -1,0 +1,56 @@
+/*
+ * lamina/substrate.h - the bare substrate: which part of an image it is,
+ * its smooth flat field per channel, its pixel noise, and the contrast map.
+ *
+ * The image is cut into tiles; uniform tiles are clustered by chromaticity
+ * (ln R/G, ln B/G), which vignetting and illumination gradients do not
+ * change; the densest cluster is taken as the substrate (or the tiles of a
+ * user-given region). A robust fit (GSL bisquare) of ln(level) per channel
+ * over those tiles with the basis 1, x, y, x^2, xy, y^2, r^4 gives the flat
+ * field B_c(x, y). Noise is the median relative pixel standard deviation of
+ * substrate tiles; the effective pixel count of a region mean is n / kappa,
+ * with kappa measured from the scatter of tile means about the fit.
+ *
+ * Contrast: C_c = (B_c - I_c) / B_c, in linear light, computed in place.
+ */
+#ifndef LAMINA_SUBSTRATE_H
+#define LAMINA_SUBSTRATE_H
+
+#include <stddef.h>
+#include "lamina/error.h"
+#include "lamina/image.h"
+
+#define LAM_SUBSTRATE_TERMS 7
+
+typedef struct lam_substrate_options {
+    size_t tile;          /* tile size in pixels (default 32) */
+    int has_roi;          /* use roi as the substrate's seed */
+    size_t roi[4];        /* x, y, w, h */
+} lam_substrate_options;
+
+typedef struct lam_substrate {
+    double coef[3][LAM_SUBSTRATE_TERMS]; /* ln B_c in the normalised basis */
+    double level[3];      /* mean fitted level over the substrate tiles */
+    double noise[3];      /* relative per-pixel sigma */
+    double kappa;         /* correlation factor: n_eff = n / kappa (>= 1) */
+    double falloff;       /* 1 - min/max of the fitted G level over the image */
+    double fraction;      /* fraction of tiles taken as substrate */
+    size_t tiles_used, tiles_total;
+    size_t width, height;
+} lam_substrate;
+
+lam_substrate_options lam_substrate_options_default(void);
+
+/* Estimate the substrate. LAM_ERANGE with a hint to --substrate-roi when no
+ * substrate can be found. */
+lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_options *opt,
+                                  lam_substrate *out, lam_error *err);
+
+/* Fitted substrate level at pixel (x, y) (pixel centres at +0.5). */
+void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3]);
+
+/* Replace the image planes by contrast (B - I) / B, using the flat field
+ * sampled every 'step' pixels and interpolated bilinearly (it is smooth). */
+void lam_contrast_in_place(lam_image *img, const lam_substrate *s);
+
+#endif

@@ -1,0 +1,224 @@
+/* analyze.c - the analysis pipeline for one image. */
+#include "lamina/analyze.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+lam_analysis_options lam_analysis_options_default(void)
+{
+    lam_analysis_options o;
+    memset(&o, 0, sizeof o);
+    o.load = lam_load_options_default();
+    o.substrate = lam_substrate_options_default();
+    o.segment = lam_segment_options_default();
+    o.infer = lam_infer_options_default();
+    o.max_layers = 6;
+    o.min_area_um2 = 4;
+    o.min_area_px = 200;
+    o.oxide_half_range_nm = 25;
+    o.oxide_tolerance_nm = 10;
+    o.fit_oxide = 1;
+    o.fit_fermi = 1;
+    return o;
+}
+
+void lam_analysis_free(lam_analysis *a)
+{
+    if (!a)
+        return;
+    lam_segmentation_free(a->seg);
+    free(a->results);
+    free(a->display);
+    free(a);
+}
+
+/* 8-bit sRGB copy of the linear input (for the annotated image). */
+static uint8_t *display_copy(const lam_image *img)
+{
+    size_t n = img->width * img->height;
+    uint8_t *d = malloc(n * 3);
+    if (!d)
+        return NULL;
+    uint8_t lut[4097];
+    lam_transfer t = {LAM_TRANSFER_SRGB, 0};
+    for (int i = 0; i <= 4096; i++)
+        lut[i] = (uint8_t)lround(255.0 * lam_transfer_encode(&t, i / 4096.0));
+    for (size_t k = 0; k < n; k++)
+        for (int c = 0; c < 3; c++) {
+            float v = img->plane[c][k];
+            int q = v <= 0 ? 0 : (v >= 1 ? 4096 : (int)(v * 4096.0f + 0.5f));
+            d[k * 3 + (size_t)c] = lut[q];
+        }
+    return d;
+}
+
+static void make_ladder(const lam_prediction *P, size_t K, size_t thick_to, lam_ladder *L)
+{
+    L->entries = thick_to + 1;
+    L->max_layers = K;
+    for (size_t N = 0; N <= thick_to; N++)
+        for (int c = 0; c < 3; c++)
+            L->c[N][c] = P->contrast[N][c];
+}
+
+static lam_status segment_and_infer(lam_analysis *a, const lam_image *con,
+                                    const lam_analysis_options *opt, const lam_infer_options *io,
+                                    lam_error *err)
+{
+    lam_ladder L;
+    make_ladder(&a->ladder, a->max_layers, a->thick_to, &L);
+    lam_status st = lam_segment_classify(con, &L, a->substrate.noise, &opt->segment, a->seg, err);
+    if (!st)
+        st = lam_segment_regions(con, &opt->segment, a->seg, err);
+    if (st)
+        return st;
+    free(a->results);
+    a->count = a->seg->count;
+    a->results = calloc(a->count ? a->count : 1, sizeof *a->results);
+    if (!a->results)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu region results", a->count);
+    for (size_t i = 0; i < a->count; i++)
+        lam_infer_region(&a->seg->regions[i], &a->ladder, a->thick_to, a->substrate.noise,
+                         a->substrate.kappa, io, &a->results[i]);
+    return LAM_OK;
+}
+
+lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
+                       lam_analysis **out, lam_error *err)
+{
+    lam_analysis_options defaults = lam_analysis_options_default();
+    if (!opt)
+        opt = &defaults;
+    lam_analysis *a = calloc(1, sizeof *a);
+    lam_image *img = NULL;
+    lam_model *full = NULL, *fast = NULL;
+    int *use = NULL;
+    lam_status st = LAM_OK;
+    if (!a)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate an analysis");
+    snprintf(a->file, sizeof a->file, "%s", path);
+    if (opt->max_layers < 1 || opt->max_layers > 20) {
+        st = lam_error_set(err, LAM_ERANGE, "--max-layers must be 1 to 20");
+        goto fail;
+    }
+    a->max_layers = opt->max_layers;
+    a->thick_to = a->max_layers + 20 > LAM_MODEL_MAX_LAYERS ? LAM_MODEL_MAX_LAYERS : a->max_layers + 20;
+    lam_load_options lo = opt->load;
+    if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
+        lo.transfer = setup->encoding;
+    if ((st = lam_image_load(path, &lo, &img, err)))
+        goto fail;
+    a->width = img->width;
+    a->height = img->height;
+    a->transfer = img->transfer;
+    a->bit_depth = img->bit_depth;
+    a->clipped_pixels = img->clipped_count;
+    a->um_per_px = setup->um_per_px;
+    a->illumination_na = setup->illumination_na;
+    a->fermi_ev = fabs(setup->sheet.fermi_ev);
+    a->pupil = setup->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos";
+    a->camera = setup->camera.kind == LAM_CAMERA_GAUSSIAN       ? "gaussian"
+                : setup->camera.kind == LAM_CAMERA_SRGB_OBSERVER ? "srgb-observer"
+                                                                : "table";
+    lam_sheet_describe(&setup->sheet, a->conductivity, sizeof a->conductivity);
+    a->defaulted_count = setup->defaulted_count;
+    memcpy(a->defaulted, setup->defaulted, sizeof a->defaulted);
+    if (!(a->display = display_copy(img))) {
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
+        goto fail;
+    }
+    if ((st = lam_substrate_estimate(img, &opt->substrate, &a->substrate, err)))
+        goto fail;
+    lam_contrast_in_place(img, &a->substrate);
+    if ((st = lam_contrast_denoise(img, err)) ||
+        (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
+        goto fail;
+    /* models: full accuracy for the ladder, a coarse one for fits */
+    lam_setup fs = *setup;
+    fs.grid_step_nm = 5;
+    fs.cone_nodes = 8;
+    if ((st = lam_model_alloc(setup, a->thick_to, 0, &full, err)) ||
+        (st = lam_model_alloc(&fs, a->max_layers, 0, &fast, err)))
+        goto fail;
+    double nominal = lam_setup_oxide(setup);
+    a->oxide.nominal = nominal;
+    a->oxide.estimate = nominal;
+    if (nominal < 0)
+        nominal = 0;
+    if ((st = lam_model_eval(full, nominal, setup->sheet.fermi_ev, &a->ladder, err)))
+        goto fail;
+    lam_infer_options io = opt->infer;
+    io.max_layers = a->max_layers;
+    io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)
+                                      : opt->min_area_px;
+    if ((st = segment_and_infer(a, img, opt, &io, err)))
+        goto fail;
+    /* oxide: profile over confident, well-sampled regions */
+    snprintf(a->oxide.method, sizeof a->oxide.method, "nominal (not fitted)");
+    if (opt->fit_oxide && lam_setup_oxide(setup) >= 0) {
+        use = calloc(a->count ? a->count : 1, sizeof *use);
+        if (!use) {
+            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+            goto fail;
+        }
+        for (size_t i = 0; i < a->count; i++) {
+            const lam_region_result *r = &a->results[i];
+            use[i] = r->layers > 0 && !(r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) &&
+                     a->seg->regions[i].interior >= 100;
+        }
+        double est, sig, chi2min;
+        size_t used;
+        if ((st = lam_infer_oxide(fast, a->seg->regions, use, a->count, a->max_layers,
+                                  a->substrate.noise, a->substrate.kappa, &io, nominal,
+                                  opt->oxide_half_range_nm, setup->sheet.fermi_ev, &est, &sig,
+                                  &used, &chi2min, err)))
+            goto fail;
+        a->oxide.regions_used = used;
+        if (used) {
+            a->oxide.fitted = 1;
+            a->oxide.estimate = est;
+            a->oxide.sigma = sig;
+            snprintf(a->oxide.method, sizeof a->oxide.method,
+                     "profile likelihood over %zu region(s), nominal +- %.0f nm", used,
+                     opt->oxide_half_range_nm);
+            if ((st = lam_model_eval(full, est, setup->sheet.fermi_ev, &a->ladder, err)))
+                goto fail;
+            /* a shifted ladder can move pixels between classes: segment again */
+            if (fabs(est - nominal) > 2.0 && (st = segment_and_infer(a, img, opt, &io, err)))
+                goto fail;
+            if (fabs(est - nominal) <= 2.0)
+                for (size_t i = 0; i < a->count; i++)
+                    lam_infer_region(&a->seg->regions[i], &a->ladder, a->thick_to,
+                                     a->substrate.noise, a->substrate.kappa, &io, &a->results[i]);
+        } else {
+            snprintf(a->oxide.method, sizeof a->oxide.method,
+                     "nominal (no region usable for a fit)");
+        }
+    }
+    a->oxide.pass = fabs(a->oxide.estimate - a->oxide.nominal) <= opt->oxide_tolerance_nm;
+    for (size_t i = 0; i < a->count; i++) {
+        lam_region_result *r = &a->results[i];
+        const lam_region_stats *rs = &a->seg->regions[i];
+        lam_usable_rectangle(a->seg, rs, r->usable_px);
+        if (opt->fit_fermi && (r->layers == 1 || r->layers == 2) && rs->interior >= 100 &&
+            (st = lam_infer_fermi(fast, a->oxide.estimate, rs, r->layers, a->substrate.noise,
+                                  a->substrate.kappa, &io, &r->fermi, err)))
+            goto fail;
+    }
+    free(use);
+    lam_model_free(full);
+    lam_model_free(fast);
+    lam_image_free(img);
+    *out = a;
+    return LAM_OK;
+fail:
+    free(use);
+    lam_model_free(full);
+    lam_model_free(fast);
+    lam_image_free(img);
+    lam_analysis_free(a);
+    lam_error_set_file(err, path);
+    return st;
+}

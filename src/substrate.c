@@ -1,0 +1,357 @@
+/* substrate.c - substrate detection by chromaticity, robust flat-field fit
+ * (GSL bisquare regression), noise estimate and the contrast map. */
+#include "lamina/substrate.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <gsl/gsl_multifit.h>
+
+lam_substrate_options lam_substrate_options_default(void)
+{
+    lam_substrate_options o;
+    memset(&o, 0, sizeof o);
+    o.tile = 32;
+    return o;
+}
+
+static void basis(const lam_substrate *s, double x, double y, double *b)
+{
+    double u = 2 * x / (double)s->width - 1, v = 2 * y / (double)s->height - 1;
+    double r2 = u * u + v * v;
+    b[0] = 1, b[1] = u, b[2] = v, b[3] = u * u, b[4] = u * v, b[5] = v * v, b[6] = r2 * r2;
+}
+
+void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3])
+{
+    double b[LAM_SUBSTRATE_TERMS];
+    basis(s, x, y, b);
+    for (int c = 0; c < 3; c++) {
+        double a = 0;
+        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+            a += s->coef[c][k] * b[k];
+        out[c] = exp(a);
+    }
+}
+
+typedef struct tile_stat {
+    double mean[3], rsd[3]; /* relative standard deviation */
+    double cx, cy, u, v;
+    int uniform, clipped, candidate;
+} tile_stat;
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return x < y ? -1 : x > y;
+}
+
+static double median_of(double *v, size_t n)
+{
+    if (n == 0)
+        return NAN;
+    qsort(v, n, sizeof *v, cmp_double);
+    return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+}
+
+static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx, size_t ny)
+{
+    size_t w = img->width;
+    for (size_t ty = 0; ty < ny; ty++)
+        for (size_t tx = 0; tx < nx; tx++) {
+            tile_stat *t = &ts[ty * nx + tx];
+            size_t x0 = tx * T, y0 = ty * T, x1 = x0 + T, y1 = y0 + T;
+            if (x1 > w)
+                x1 = w;
+            if (y1 > img->height)
+                y1 = img->height;
+            double s[3] = {0, 0, 0}, q[3] = {0, 0, 0};
+            size_t n = 0, clip = 0;
+            for (size_t y = y0; y < y1; y++)
+                for (size_t x = x0; x < x1; x++) {
+                    size_t k = y * w + x;
+                    clip += img->clipped[k];
+                    for (int c = 0; c < 3; c++) {
+                        double v = img->plane[c][k];
+                        s[c] += v;
+                        q[c] += v * v;
+                    }
+                    n++;
+                }
+            t->cx = 0.5 * (double)(x0 + x1);
+            t->cy = 0.5 * (double)(y0 + y1);
+            t->clipped = clip > 0;
+            int ok = 1;
+            for (int c = 0; c < 3; c++) {
+                t->mean[c] = s[c] / (double)n;
+                double var = q[c] / (double)n - t->mean[c] * t->mean[c];
+                t->rsd[c] = t->mean[c] > 0 ? sqrt(var > 0 ? var : 0) / t->mean[c] : INFINITY;
+                ok &= t->mean[c] > 1e-4;
+            }
+            t->uniform = ok;
+            t->u = ok ? log(t->mean[0] / t->mean[1]) : 0;
+            t->v = ok ? log(t->mean[2] / t->mean[1]) : 0;
+        }
+}
+
+/* Densest chromaticity among uniform tiles: a 2-D histogram, 3x3 smoothed. */
+static void chromaticity_mode(const tile_stat *ts, size_t n, double bin, double *u0, double *v0)
+{
+    double umin = INFINITY, vmin = INFINITY, umax = -INFINITY, vmax = -INFINITY;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform) {
+            umin = fmin(umin, ts[i].u), umax = fmax(umax, ts[i].u);
+            vmin = fmin(vmin, ts[i].v), vmax = fmax(vmax, ts[i].v);
+        }
+    size_t nu = (size_t)((umax - umin) / bin) + 3, nv = (size_t)((vmax - vmin) / bin) + 3;
+    if (nu > 400)
+        nu = 400;
+    if (nv > 400)
+        nv = 400;
+    double bu = (umax - umin) / (double)(nu - 2) + 1e-12, bv = (vmax - vmin) / (double)(nv - 2) + 1e-12;
+    unsigned *h = calloc(nu * nv, sizeof *h);
+    if (!h) {
+        *u0 = umin, *v0 = vmin;
+        return;
+    }
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform) {
+            size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
+            if (a < nu && b < nv)
+                h[a * nv + b]++;
+        }
+    unsigned best = 0;
+    size_t ba = 1, bb = 1;
+    for (size_t a = 1; a + 1 < nu; a++)
+        for (size_t b = 1; b + 1 < nv; b++) {
+            unsigned s = 0;
+            for (int da = -1; da <= 1; da++)
+                for (int db = -1; db <= 1; db++)
+                    s += h[(a + (size_t)da) * nv + b + (size_t)db];
+            if (s > best)
+                best = s, ba = a, bb = b;
+        }
+    /* refine: mean chromaticity of the tiles in the winning 3x3 cell */
+    double su = 0, sv = 0;
+    size_t cnt = 0;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform) {
+            size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
+            if (a + 1 >= ba && a <= ba + 1 && b + 1 >= bb && b <= bb + 1)
+                su += ts[i].u, sv += ts[i].v, cnt++;
+        }
+    *u0 = cnt ? su / (double)cnt : umin;
+    *v0 = cnt ? sv / (double)cnt : vmin;
+    free(h);
+}
+
+lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_options *opt,
+                                  lam_substrate *out, lam_error *err)
+{
+    lam_substrate_options defaults = lam_substrate_options_default();
+    if (!opt)
+        opt = &defaults;
+    size_t T = opt->tile ? opt->tile : 32;
+    while (T > 4 && (img->width / T < 6 || img->height / T < 6))
+        T /= 2;
+    size_t nx = (img->width + T - 1) / T, ny = (img->height + T - 1) / T, n = nx * ny;
+    tile_stat *ts = calloc(n, sizeof *ts);
+    double *scratch = malloc(n * sizeof *scratch);
+    if (!ts || !scratch) {
+        free(ts);
+        free(scratch);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate substrate tiles");
+    }
+    lam_substrate s;
+    memset(&s, 0, sizeof s);
+    s.width = img->width;
+    s.height = img->height;
+    tile_stats(img, T, ts, nx, ny);
+    /* uniform: relative spread below 2.5x the typical (median) spread */
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform)
+            scratch[m++] = fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2]));
+    double typical = median_of(scratch, m);
+    for (size_t i = 0; i < n; i++)
+        ts[i].uniform = ts[i].uniform && !ts[i].clipped &&
+                        fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2])) <= 2.5 * typical + 1e-6;
+    double u0, v0;
+    if (opt->has_roi) {
+        double su = 0, sv = 0;
+        size_t cnt = 0;
+        for (size_t i = 0; i < n; i++)
+            if (ts[i].uniform && ts[i].cx >= (double)opt->roi[0] &&
+                ts[i].cx <= (double)(opt->roi[0] + opt->roi[2]) && ts[i].cy >= (double)opt->roi[1] &&
+                ts[i].cy <= (double)(opt->roi[1] + opt->roi[3]))
+                su += ts[i].u, sv += ts[i].v, cnt++;
+        if (!cnt) {
+            free(ts);
+            free(scratch);
+            return lam_error_set(err, LAM_ERANGE,
+                                 "the substrate region holds no uniform tile of %zu px", T);
+        }
+        u0 = su / (double)cnt, v0 = sv / (double)cnt;
+    } else {
+        chromaticity_mode(ts, n, 0.004, &u0, &v0);
+    }
+    /* candidates: chromaticity within 9x the noise of a tile mean, at least
+     * 0.006 (a monolayer on 285 nm oxide shifts ln(R/G) by ~0.02) */
+    double tol = fmax(0.006, 9.0 * typical / (double)T);
+    size_t cand = 0;
+    for (size_t i = 0; i < n; i++) {
+        ts[i].candidate = ts[i].uniform && fabs(ts[i].u - u0) <= tol && fabs(ts[i].v - v0) <= tol;
+        cand += (size_t)ts[i].candidate;
+    }
+    lam_status st = LAM_OK;
+    if (cand < 15) {
+        st = lam_error_set(err, LAM_ERANGE,
+                           "no bare substrate found (%zu uniform substrate-coloured tiles); "
+                           "give one with --substrate-roi X,Y,W,H",
+                           cand);
+        goto done;
+    }
+    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
+    gsl_vector *y = gsl_vector_alloc(cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
+    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
+    gsl_multifit_robust_workspace *ws =
+        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, cand, LAM_SUBSTRATE_TERMS);
+    if (!X || !y || !coef || !cov || !ws) {
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
+    } else {
+        size_t r = 0;
+        for (size_t i = 0; i < n; i++) {
+            if (!ts[i].candidate)
+                continue;
+            double b[LAM_SUBSTRATE_TERMS];
+            basis(&s, ts[i].cx, ts[i].cy, b);
+            for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+                gsl_matrix_set(X, r, (size_t)k, b[k]);
+            r++;
+        }
+        gsl_multifit_robust_maxiter(100, ws);
+        for (int c = 0; c < 3 && !st; c++) {
+            r = 0;
+            for (size_t i = 0; i < n; i++)
+                if (ts[i].candidate)
+                    gsl_vector_set(y, r++, log(ts[i].mean[c]));
+            int gs = gsl_multifit_robust(X, y, coef, cov, ws);
+            if (gs && gs != GSL_EMAXITER)
+                st = lam_error_gsl(err, gs, "flat-field fit");
+            for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+                s.coef[c][k] = gsl_vector_get(coef, (size_t)k);
+        }
+    }
+    gsl_matrix_free(X);
+    gsl_vector_free(y);
+    gsl_vector_free(coef);
+    gsl_matrix_free(cov);
+    gsl_multifit_robust_free(ws);
+    if (st)
+        goto done;
+    /* noise, correlation factor, level and fall-off over the substrate tiles */
+    {
+        double lev[3] = {0, 0, 0};
+        size_t used = 0;
+        for (int c = 0; c < 3; c++) {
+            size_t k = 0;
+            for (size_t i = 0; i < n; i++)
+                if (ts[i].candidate)
+                    scratch[k++] = ts[i].rsd[c];
+            s.noise[c] = median_of(scratch, k);
+        }
+        double resid2 = 0, expect2 = 0;
+        for (size_t i = 0; i < n; i++) {
+            if (!ts[i].candidate)
+                continue;
+            double b[3];
+            lam_substrate_eval(&s, ts[i].cx, ts[i].cy, b);
+            double worst = 0;
+            for (int c = 0; c < 3; c++)
+                worst = fmax(worst, fabs(ts[i].mean[c] / b[c] - 1) / (s.noise[c] + 1e-9));
+            if (worst > 6.0 * T) /* a flake of substrate colour: not substrate */
+                continue;
+            for (int c = 0; c < 3; c++) {
+                lev[c] += b[c];
+                double d = ts[i].mean[c] / b[c] - 1;
+                resid2 += d * d;
+                expect2 += s.noise[c] * s.noise[c] / (double)(T * T);
+            }
+            used++;
+        }
+        for (int c = 0; c < 3; c++)
+            s.level[c] = used ? lev[c] / (double)used : NAN;
+        s.kappa = expect2 > 0 ? resid2 / expect2 : 1.0;
+        if (s.kappa < 1)
+            s.kappa = 1;
+        s.tiles_used = used;
+        s.tiles_total = n;
+        s.fraction = (double)used / (double)n;
+        double gmin = INFINITY, gmax = 0;
+        for (size_t yy = 0; yy <= 8; yy++)
+            for (size_t xx = 0; xx <= 8; xx++) {
+                double b[3];
+                lam_substrate_eval(&s, (double)img->width * (double)xx / 8,
+                                   (double)img->height * (double)yy / 8, b);
+                gmin = fmin(gmin, b[1]);
+                gmax = fmax(gmax, b[1]);
+            }
+        s.falloff = 1 - gmin / gmax;
+    }
+    *out = s;
+done:
+    free(ts);
+    free(scratch);
+    return st;
+}
+
+void lam_contrast_in_place(lam_image *img, const lam_substrate *s)
+{
+    const size_t step = 16;
+    size_t w = img->width, h = img->height;
+    size_t gx = w / step + 2, gy = h / step + 2;
+    float *grid = malloc(gx * gy * 3 * sizeof *grid);
+    float *row = malloc(w * 3 * sizeof *row);
+    if (!grid || !row) {
+        /* fall back to direct evaluation (slow but correct) */
+        for (size_t y = 0; y < h; y++)
+            for (size_t x = 0; x < w; x++) {
+                double b[3];
+                lam_substrate_eval(s, (double)x + 0.5, (double)y + 0.5, b);
+                for (int c = 0; c < 3; c++) {
+                    float *p = &img->plane[c][y * w + x];
+                    *p = (float)(1.0 - *p / b[c]);
+                }
+            }
+        free(grid);
+        free(row);
+        return;
+    }
+    for (size_t j = 0; j < gy; j++)
+        for (size_t i = 0; i < gx; i++) {
+            double b[3];
+            lam_substrate_eval(s, (double)(i * step), (double)(j * step), b);
+            for (int c = 0; c < 3; c++)
+                grid[(j * gx + i) * 3 + (size_t)c] = (float)(1.0 / b[c]);
+        }
+    for (size_t y = 0; y < h; y++) {
+        double fy = ((double)y + 0.5) / (double)step;
+        size_t j = (size_t)fy;
+        float ty = (float)(fy - (double)j);
+        for (size_t x = 0; x < w; x++) {
+            double fx = ((double)x + 0.5) / (double)step;
+            size_t i = (size_t)fx;
+            float tx = (float)(fx - (double)i);
+            const float *g00 = &grid[(j * gx + i) * 3], *g10 = g00 + 3, *g01 = g00 + gx * 3,
+                        *g11 = g01 + 3;
+            for (int c = 0; c < 3; c++) {
+                float inv = (1 - ty) * ((1 - tx) * g00[c] + tx * g10[c]) +
+                            ty * ((1 - tx) * g01[c] + tx * g11[c]);
+                float *p = &img->plane[c][y * w + x];
+                *p = 1.0f - *p * inv;
+            }
+        }
+    }
+    free(grid);
+    free(row);
+}
