@@ -39,7 +39,7 @@ LIB      := $(BUILD)/liblamina.a
 BIN      := $(BUILD)/lamina
 
 .SECONDARY:
-.PHONY: all test asan noopt valgrind bench demo deps install clean check-reference fuzz
+.PHONY: demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz
 
 all: $(BIN)
 
@@ -66,6 +66,15 @@ $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(LIB) $(LDLIBS) -o $@
+
+# The main job on the bundled samples (invented demo data, see samples/README.md).
+demo: deps
+	$(MAKE) --no-print-directory $(BIN)
+	$(BIN) analyze --setup samples/bench3-setup.json --out lamina-out \
+	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
+	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
+	    samples/HT090-B02-tile03.png
+	@echo "reports in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg)"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:

@@ -104,7 +104,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         goto fail;
     }
     a->max_layers = opt->max_layers;
-    a->thick_to = a->max_layers + 20 > LAM_MODEL_MAX_LAYERS ? LAM_MODEL_MAX_LAYERS : a->max_layers + 20;
+    a->thick_to = LAM_MODEL_MAX_LAYERS; /* "thick" hypotheses reach 40 layers (~13 nm) */
     lam_load_options lo = opt->load;
     if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
         lo.transfer = setup->encoding;

@@ -48,7 +48,8 @@ void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t
     double chi[LAM_MODEL_MAX_LAYERS + 2];
     double best = INFINITY;
     size_t bestN = 1;
-    for (size_t N = 1; N <= K; N++) {
+    /* N = 0: the region may be bare substrate that noise pushed off the ladder */
+    for (size_t N = 0; N <= K; N++) {
         chi[N] = chi2_of(r, P->contrast[N], noise, kappa, opt);
         if (chi[N] < best)
             best = chi[N], bestN = N;
@@ -64,19 +65,22 @@ void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t
     chi[K + 1] = tbest;
     if (tbest < best)
         best = tbest, bestN = K + 1;
-    double z = 0;
+    double z = 0, p0 = exp(-0.5 * (chi[0] - best));
     for (size_t N = 1; N <= K + 1; N++)
         z += out->p[N] = isfinite(chi[N]) ? exp(-0.5 * (chi[N] - best)) : 0.0;
+    z += p0;
     for (size_t N = 1; N <= K + 1; N++)
         out->p[N] /= z;
+    out->p_substrate = p0 / z;
     const double *model = bestN <= K ? P->contrast[bestN] : P->contrast[tN];
+    out->substrate_like = bestN == 0;
     lam_region_moments(r, noise, kappa, opt, model, out->mean, out->sigma);
     memcpy(out->model, model, sizeof out->model);
     out->chi2 = best;
     out->pvalue = gsl_cdf_chisq_Q(best, 3.0);
     if (out->pvalue < opt->p_unmodelled)
         out->flags |= LAM_FLAG_UNMODELLED;
-    if (out->p[bestN] < opt->p_confident)
+    if ((bestN ? out->p[bestN] : out->p_substrate) < opt->p_confident)
         out->flags |= LAM_FLAG_AMBIGUOUS;
     if (r->clipped > r->area / 100)
         out->flags |= LAM_FLAG_SATURATED;
@@ -88,12 +92,16 @@ void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t
     if (out->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) {
         out->layers = 0;
         snprintf(out->label, sizeof out->label, "unassigned");
+    } else if (bestN == 0) {
+        out->layers = 0; /* indistinguishable from the bare substrate */
+        out->flags |= LAM_FLAG_AMBIGUOUS;
+        snprintf(out->label, sizeof out->label, "unassigned");
     } else if (out->thick) {
         out->layers = 0;
         snprintf(out->label, sizeof out->label, "thick");
     } else {
         out->layers = (int)bestN;
-        snprintf(out->label, sizeof out->label, "%zuL", bestN);
+        snprintf(out->label, sizeof out->label, "%uL", (unsigned)(bestN % 100));
     }
     out->fermi.estimate = NAN;
 }

@@ -31,6 +31,8 @@ void lam_report_palette(unsigned v, uint8_t rgb[3])
 
 unsigned lam_report_layer_value(const lam_region_result *r)
 {
+    if (r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED))
+        return 255u;
     if (r->layers > 0)
         return (unsigned)r->layers;
     return r->thick ? 254u : 255u;
@@ -113,6 +115,8 @@ cJSON *lam_report_json(const lam_analysis *a)
                 snprintf(k, sizeof k, "%zu", N);
                 cJSON_AddNumberToObject(p, k, round(r->p[N] * 1e4) / 1e4);
             }
+        if (r->p_substrate >= 1e-4)
+            cJSON_AddNumberToObject(p, "0", round(r->p_substrate * 1e4) / 1e4);
         if (r->p[a->max_layers + 1] >= 1e-4)
             cJSON_AddNumberToObject(p, "thick", round(r->p[a->max_layers + 1] * 1e4) / 1e4);
         cJSON_AddNumberToObject(o, "area_px", (double)s->area);
@@ -269,15 +273,21 @@ lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, l
         if ((r->flags & LAM_FLAG_SMALL) && r->layers != 1 && r->layers != 2)
             continue;
         char text[48];
-        const char *lab_txt = r->layers > 0 ? r->label : (r->thick ? "THICK" : "?");
+        unsigned value = lam_report_layer_value(r);
+        const char *lab_txt = value == 255 ? "?" : (value == 254 ? "THICK" : r->label);
         snprintf(text, sizeof text, "%s%s #%u", lab_txt,
                  (r->flags & LAM_FLAG_AMBIGUOUS) && r->layers > 0 ? "?" : "", rs->id);
         uint8_t c[3];
         lam_report_palette(lam_report_layer_value(r), c);
-        long ty = (long)rs->bbox[1] - (LAM_FONT_H + 3) * s;
-        if (ty < s)
-            ty = (long)rs->bbox[1] + 2 * s;
-        text_box(rgb, w, h, (long)rs->bbox[0] + s, ty, text, s, c);
+        /* at the centroid, kept inside the image */
+        long tw = (long)lam_font_text_width(text, s);
+        long tx = (long)(rs->sx / (double)rs->area) - tw / 2;
+        long ty = (long)(rs->sy / (double)rs->area) - LAM_FONT_H * s / 2;
+        if (tx < s)
+            tx = s;
+        if (tx + tw + s > (long)w)
+            tx = (long)w - tw - s;
+        text_box(rgb, w, h, tx, ty, text, s, c);
     }
     /* legend, top-left */
     long lx = 4 * s, ly = 4 * s;

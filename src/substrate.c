@@ -195,12 +195,19 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     } else {
         chromaticity_mode(ts, n, 0.004, &u0, &v0);
     }
-    /* candidates: chromaticity within 9x the noise of a tile mean, at least
-     * 0.006 (a monolayer on 285 nm oxide shifts ln(R/G) by ~0.02) */
-    double tol = fmax(0.006, 9.0 * typical / (double)T);
+    /* candidates: chromaticity within 4.5 robust sigmas of the mode, the
+     * sigma measured on tiles near the mode (JPEG chroma quantisation and
+     * colour noise widen it), kept within 0.004..0.02 (a monolayer on 285 nm
+     * oxide moves (ln R/G, ln B/G) by ~0.1) */
+    size_t near = 0;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform && hypot(ts[i].u - u0, ts[i].v - v0) <= 0.02)
+            scratch[near++] = hypot(ts[i].u - u0, ts[i].v - v0);
+    double spread = near ? 1.4826 * median_of(scratch, near) : 0.004;
+    double tol = fmin(0.02, fmax(0.004, 4.5 * spread));
     size_t cand = 0;
     for (size_t i = 0; i < n; i++) {
-        ts[i].candidate = ts[i].uniform && fabs(ts[i].u - u0) <= tol && fabs(ts[i].v - v0) <= tol;
+        ts[i].candidate = ts[i].uniform && hypot(ts[i].u - u0, ts[i].v - v0) <= tol;
         cand += (size_t)ts[i].candidate;
     }
     lam_status st = LAM_OK;

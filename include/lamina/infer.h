@@ -6,10 +6,12 @@
  *   sigma_c^2 = kappa * noise_c^2 / n_interior + (floor_abs + floor_rel |C_c|)^2
  * (pixel noise over the effective pixel count, plus a model floor for the
  * camera and optics model being imperfect). chi2(N) = sum_c (m_c - C_c(N))^2
- * / sigma_c^2; L(N) = exp(-chi2/2). Prior: uniform over N = 1..K and one
- * "thick" hypothesis (the best of the ladder entries beyond K), i.e. no
- * assumption about how often each thickness occurs. Posterior normalised
- * over these K + 1 hypotheses. Flags: ambiguous (top posterior < 0.95),
+ * / sigma_c^2; L(N) = exp(-chi2/2). Prior: uniform over N = 0 (bare
+ * substrate that noise moved off the ladder), N = 1..K and one "thick"
+ * hypothesis (the best of the ladder entries beyond K), i.e. no assumption
+ * about how often each thickness occurs. Posterior normalised over these
+ * K + 2 hypotheses; a region whose best hypothesis is N = 0 is reported as
+ * unassigned and ambiguous. Flags: ambiguous (top posterior < 0.95),
  * unmodelled (chi2 p-value of the best hypothesis below 1e-3, 3 degrees of
  * freedom: residue, another material, dirt), saturated, touches_border, small.
  */
@@ -47,6 +49,8 @@ typedef struct lam_region_result {
     int thick;                  /* best hypothesis is "thicker than K" */
     char label[16];             /* "1L", "thick", "unassigned" */
     double p[LAM_MODEL_MAX_LAYERS + 2]; /* p[N] for N=1..K, p[K+1] thick */
+    double p_substrate;         /* the region is bare substrate after all */
+    int substrate_like;         /* that hypothesis won: not a flake */
     double mean[3], sigma[3], model[3];
     double chi2, pvalue;
     unsigned flags;

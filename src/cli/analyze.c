@@ -218,6 +218,63 @@ static int write_catalog(const pool *P, lam_error *err)
     return rc;
 }
 
+/* The short table on stdout: regions by layer count per image, then the
+ * monolayer candidates with area, usable rectangle and position. */
+static void print_summary(const pool *P)
+{
+    printf("%-28s %5s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
+           "thick", "other");
+    for (size_t i = 0; i < P->count; i++) {
+        const job *j = &P->jobs[i];
+        if (j->failed) {
+            printf("%-28.28s failed\n", j->stem);
+            continue;
+        }
+        size_t by[5] = {0}, thick = 0, other = 0;
+        for (size_t r = 0; r < j->a->count; r++) {
+            const lam_region_result *res = &j->a->results[r];
+            if (res->flags & LAM_FLAG_SMALL)
+                continue;
+            if (res->layers > 0)
+                by[res->layers < 4 ? res->layers : 4]++;
+            else if (res->thick && !(res->flags & LAM_FLAG_UNMODELLED))
+                thick++;
+            else
+                other++;
+        }
+        printf("%-28.28s %5.1f %4zu %4zu %4zu %5zu %6zu %5zu\n", j->stem, j->a->oxide.estimate,
+               by[1], by[2], by[3], by[4], thick, other);
+    }
+    printf("\nmonolayer candidates (p >= 0.95, not small):\n");
+    printf("%-28s %4s %7s %10s %16s %14s\n", "image", "id", "p(1L)", "area", "usable w x h",
+           "centroid px");
+    for (size_t i = 0; i < P->count; i++) {
+        const job *j = &P->jobs[i];
+        if (j->failed)
+            continue;
+        double u = j->a->um_per_px;
+        for (size_t r = 0; r < j->a->count; r++) {
+            const lam_region_result *res = &j->a->results[r];
+            const lam_region_stats *s = &j->a->seg->regions[r];
+            if (res->layers != 1 || (res->flags & (LAM_FLAG_SMALL | LAM_FLAG_AMBIGUOUS)))
+                continue;
+            char area[32], rect[48];
+            if (u > 0) {
+                snprintf(area, sizeof area, "%.1f um2", (double)s->area * u * u);
+                snprintf(rect, sizeof rect, "%.1f x %.1f um", res->usable_px[0] * u,
+                         res->usable_px[1] * u);
+            } else {
+                snprintf(area, sizeof area, "%zu px", s->area);
+                snprintf(rect, sizeof rect, "%zu x %zu px", res->usable_px[0], res->usable_px[1]);
+            }
+            printf("%-28.28s %4u %7.3f %10s %16s %6.0f,%-6.0f\n", j->stem, s->id, res->p[1], area,
+                   rect, s->sx / (double)s->area, s->sy / (double)s->area);
+        }
+    }
+    printf("\nLayer counts are model estimates: confirm by Raman spectroscopy or AFM\n"
+           "before committing a flake to fabrication.\n");
+}
+
 static int parse_roi(const char *text, size_t roi[4])
 {
     long v[4];
@@ -339,6 +396,8 @@ static int run_analyze(int argc, char **argv)
             cli_report(&P.jobs[i].err, P.jobs[i].path);
             failed++;
         }
+    if (!cli_quiet)
+        print_summary(&P);
     if (P.count > 1) {
         lam_error err;
         lam_error_clear(&err);
