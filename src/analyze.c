@@ -95,6 +95,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     lam_image *img = NULL;
     lam_model *full = NULL, *fast = NULL;
     int *use = NULL;
+    lam_fermi_scan *scan = NULL;
     lam_status st = LAM_OK;
     if (!a)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate an analysis");
@@ -202,11 +203,14 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         lam_region_result *r = &a->results[i];
         const lam_region_stats *rs = &a->seg->regions[i];
         lam_usable_rectangle(a->seg, rs, r->usable_px);
-        if (opt->fit_fermi && (r->layers == 1 || r->layers == 2) && rs->interior >= 100 &&
-            (st = lam_infer_fermi(fast, a->oxide.estimate, rs, r->layers, a->substrate.noise,
-                                  a->substrate.kappa, &io, &r->fermi, err)))
-            goto fail;
+        if (opt->fit_fermi && (r->layers == 1 || r->layers == 2) && rs->interior >= 100) {
+            if (!scan && (st = lam_fermi_scan_alloc(fast, a->oxide.estimate, &scan, err)))
+                goto fail;
+            lam_infer_fermi(scan, rs, r->layers, a->substrate.noise, a->substrate.kappa, &io,
+                            &r->fermi);
+        }
     }
+    lam_fermi_scan_free(scan);
     free(use);
     lam_model_free(full);
     lam_model_free(fast);
@@ -214,6 +218,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     *out = a;
     return LAM_OK;
 fail:
+    lam_fermi_scan_free(scan);
     free(use);
     lam_model_free(full);
     lam_model_free(fast);

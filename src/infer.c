@@ -187,31 +187,44 @@ lam_status lam_infer_oxide(lam_model *m, const lam_region_stats *R, const int *u
     return st;
 }
 
-lam_status lam_infer_fermi(lam_model *m, double oxide_nm, const lam_region_stats *r, int layers,
-                           const double noise[3], double kappa, const lam_infer_options *opt,
-                           lam_fermi_estimate *out, lam_error *err)
+lam_status lam_fermi_scan_alloc(lam_model *m, double oxide_nm, lam_fermi_scan **out,
+                                lam_error *err)
 {
-    enum { STEPS = 31 };
-    double mu[STEPS], chi[STEPS];
-    lam_prediction *P = malloc(sizeof *P);
-    if (!P)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-    lam_status st = LAM_OK;
+    lam_fermi_scan *sc = malloc(sizeof *sc);
+    if (!sc)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a Fermi-level scan");
+    for (size_t i = 0; i < LAM_FERMI_STEPS; i++) {
+        sc->mu[i] = 0.05 * (double)i; /* 0 .. 1.5 eV */
+        lam_status st = lam_model_eval(m, oxide_nm, sc->mu[i], &sc->ladder[i], err);
+        if (st) {
+            free(sc);
+            return st;
+        }
+    }
+    *out = sc;
+    return LAM_OK;
+}
+
+void lam_fermi_scan_free(lam_fermi_scan *sc)
+{
+    free(sc);
+}
+
+void lam_infer_fermi(const lam_fermi_scan *sc, const lam_region_stats *r, int layers,
+                     const double noise[3], double kappa, const lam_infer_options *opt,
+                     lam_fermi_estimate *out)
+{
+    enum { STEPS = LAM_FERMI_STEPS };
+    double chi[STEPS];
     double best = INFINITY, worst = -INFINITY;
     size_t bi = 0;
-    for (size_t i = 0; i < STEPS && !st; i++) {
-        mu[i] = 0.05 * (double)i; /* 0 .. 1.5 eV */
-        st = lam_model_eval(m, oxide_nm, mu[i], P, err);
-        if (st)
-            break;
-        chi[i] = chi2_of(r, P->contrast[layers], noise, kappa, opt);
+    for (size_t i = 0; i < STEPS; i++) {
+        chi[i] = chi2_of(r, sc->ladder[i].contrast[layers], noise, kappa, opt);
         if (chi[i] < best)
             best = chi[i], bi = i;
         worst = fmax(worst, chi[i]);
     }
-    free(P);
-    if (st)
-        return st;
+    const double *mu = sc->mu;
     size_t lo = bi, hi = bi;
     while (lo > 0 && chi[lo - 1] <= best + 1)
         lo--;
@@ -232,7 +245,6 @@ lam_status lam_infer_fermi(lam_model *m, double oxide_nm, const lam_region_stats
         out->lo = 0;
         out->hi = mu[k];
     }
-    return LAM_OK;
 }
 
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2])

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #define LUT_BINS 128
+#define LUT_UNSET 252 /* no class uses this value */
 
 lam_segment_options lam_segment_options_default(void)
 {
@@ -103,28 +104,9 @@ lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const
             double f = opt->floor_abs + opt->floor_rel * fabs(L->c[e][c]), s = noise[c] / 2;
             inv_var[e][c] = 1.0 / (f * f + s * s);
         }
-    for (size_t i = 0; i < LUT_BINS; i++)
-        for (size_t j = 0; j < LUT_BINS; j++)
-            for (size_t k = 0; k < LUT_BINS; k++) {
-                double v[3] = {lo[0] + step[0] * ((double)i + 0.5), lo[1] + step[1] * ((double)j + 0.5),
-                               lo[2] + step[2] * ((double)k + 0.5)};
-                double best = INFINITY;
-                size_t be = 0;
-                for (size_t e = 0; e < L->entries; e++) {
-                    double d = 0;
-                    for (int c = 0; c < 3; c++) {
-                        double t = v[c] - L->c[e][c];
-                        d += t * t * inv_var[e][c];
-                    }
-                    if (d < best)
-                        best = d, be = e;
-                }
-                uint8_t cls = best > opt->reject_chi2 ? LAM_CLASS_UNMODELLED
-                              : be == 0               ? LAM_CLASS_SUBSTRATE
-                              : be <= L->max_layers   ? (uint8_t)be
-                                                      : LAM_CLASS_THICK;
-                lut[(i * LUT_BINS + j) * LUT_BINS + k] = cls;
-            }
+    /* The table is filled lazily: only cells that pixels visit are
+     * classified (a micrograph visits a few thousand of the 2 million). */
+    memset(lut, LUT_UNSET, (size_t)LUT_BINS * LUT_BINS * LUT_BINS);
     size_t n = img->width * img->height;
     float inv[3], off[3];
     for (int c = 0; c < 3; c++)
@@ -135,7 +117,28 @@ lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const
             float f = (img->plane[c][p] - off[c]) * inv[c];
             q[c] = f < 0 ? 0 : (f >= LUT_BINS ? LUT_BINS - 1 : (int)f);
         }
-        seg->cls[p] = lut[((size_t)q[0] * LUT_BINS + (size_t)q[1]) * LUT_BINS + (size_t)q[2]];
+        uint8_t *cell = &lut[((size_t)q[0] * LUT_BINS + (size_t)q[1]) * LUT_BINS + (size_t)q[2]];
+        if (*cell == LUT_UNSET) {
+            double v[3];
+            for (int c = 0; c < 3; c++)
+                v[c] = lo[c] + step[c] * ((double)q[c] + 0.5);
+            double best = INFINITY;
+            size_t be = 0;
+            for (size_t e = 0; e < L->entries; e++) {
+                double d = 0;
+                for (int c = 0; c < 3; c++) {
+                    double t = v[c] - L->c[e][c];
+                    d += t * t * inv_var[e][c];
+                }
+                if (d < best)
+                    best = d, be = e;
+            }
+            *cell = best > opt->reject_chi2 ? LAM_CLASS_UNMODELLED
+                    : be == 0               ? LAM_CLASS_SUBSTRATE
+                    : be <= L->max_layers   ? (uint8_t)be
+                                            : LAM_CLASS_THICK;
+        }
+        seg->cls[p] = *cell;
     }
     free(lut);
     /* transition pixels: where the contrast changes by more than half a

@@ -79,13 +79,25 @@ lam_status lam_infer_oxide(lam_model *fast, const lam_region_stats *regions, con
                            double fermi, double *estimate, double *sigma, size_t *used,
                            double *profile_chi2_min, lam_error *err);
 
-/* |mu| of an N-layer region: scan 0..1.5 eV in 0.05 eV steps; 68 % interval
- * from chi2 + 1. Constrained only when that interval is closed on both
- * sides (the Pauli-blocking edge is seen); otherwise lo = 0 and hi is the
- * largest |mu| within chi2 + 4 (an upper limit), estimate NAN. */
-lam_status lam_infer_fermi(lam_model *fast, double oxide_nm, const lam_region_stats *r,
-                           int layers, const double noise[3], double kappa,
-                           const lam_infer_options *opt, lam_fermi_estimate *out, lam_error *err);
+/* The ladder over |mu| = 0, 0.05, ... 1.5 eV at one oxide thickness,
+ * computed once per image and shared by all regions. */
+#define LAM_FERMI_STEPS 31
+typedef struct lam_fermi_scan {
+    double mu[LAM_FERMI_STEPS];
+    lam_prediction ladder[LAM_FERMI_STEPS];
+} lam_fermi_scan;
+
+lam_status lam_fermi_scan_alloc(lam_model *fast, double oxide_nm, lam_fermi_scan **out,
+                                lam_error *err);
+void lam_fermi_scan_free(lam_fermi_scan *scan);
+
+/* |mu| of an N-layer region from the scan; 68 % interval from chi2 + 1.
+ * Constrained only when that interval is closed on both sides (the
+ * Pauli-blocking edge is seen); otherwise lo = 0 and hi is the largest |mu|
+ * within chi2 + 4 (an upper limit), estimate NAN. */
+void lam_infer_fermi(const lam_fermi_scan *scan, const lam_region_stats *r, int layers,
+                     const double noise[3], double kappa, const lam_infer_options *opt,
+                     lam_fermi_estimate *out);
 
 /* Largest axis-aligned rectangle of interior pixels of region 'id'. */
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r,

@@ -56,5 +56,29 @@ expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
 [ ! -e "$T/none" ] && ok "no partial output" || bad "partial output left"
 expect_rc 2 "map refuses an unknown format" "$BIN" map --out "$T/map.gif"
 
+# analyze: outputs, contract bits, failures leave no output
+expect_rc 0 "analyze a sample" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/a" samples/HT285-A07-tile12.png
+for f in HT285-A07-tile12.json HT285-A07-tile12.layers.png HT285-A07-tile12.annotated.png HT285-A07-tile12.contrast.svg; do
+    [ -s "$T/a/$f" ] && ok "analyze wrote $f" || bad "analyze wrote $f"
+done
+grep -q '"schema":[[:space:]]*"lamina-analysis/1"' "$T/a/HT285-A07-tile12.json" && ok "analysis schema" || bad "analysis schema"
+grep -q '"contrast_convention":[[:space:]]*"(substrate - flake) / substrate"' "$T/a/HT285-A07-tile12.json" && ok "convention in JSON" || bad "convention in JSON"
+ls "$T/a" | grep -q tmp && bad "temporary files left" || ok "no temporary files left"
+expect_rc 0 "analyze two images writes a catalogue" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/b" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
+[ -s "$T/b/catalog.csv" ] && [ -s "$T/b/catalog.json" ] && ok "catalogue files" || bad "catalogue files"
+head -2 "$T/b/catalog.csv" | tail -1 | grep -q ',1L,' && ok "catalogue starts with a monolayer" || bad "catalogue order: $(head -2 "$T/b/catalog.csv")"
+expect_rc 1 "analyze a truncated JPEG" "$BIN" analyze --quiet --out "$T/c" "$T/cut.jpg"
+[ -z "$(ls "$T/c" 2>/dev/null)" ] && ok "no output for a bad image" || bad "output left for a bad image"
+grep -q "cut.jpg" "$T/err" && ok "message names the image" || bad "message: $(cat "$T/err")"
+expect_rc 1 "one bad image among good ones fails the batch at the end" "$BIN" analyze --quiet --out "$T/d" samples/HT285-A07-tile12.png "$T/cut.png"
+[ -s "$T/d/HT285-A07-tile12.json" ] && ok "good image still analysed" || bad "good image not analysed"
+expect_rc 2 "analyze without images" "$BIN" analyze
+expect_rc 2 "analyze with a bad ROI" "$BIN" analyze --substrate-roi 1,2,3 samples/HT285-A07-tile12.png
+expect_rc 1 "analyze into /dev/full" "$BIN" analyze --quiet --out /dev/full samples/HT285-A07-tile12.png
+expect_rc 0 "render a scene" "$BIN" render --quiet samples/HT285-C11-tile07.scene.json -o "$T/r.png"
+[ -s "$T/r.truth.png" ] && ok "render wrote the truth map" || bad "truth map"
+cmp -s "$T/r.png" samples/HT285-C11-tile07.png && ok "render is deterministic (equals the committed sample)" || bad "render differs from samples/HT285-C11-tile07.png"
+expect_rc 1 "render a missing scene" "$BIN" render "$T/none.json" -o "$T/x.png"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
