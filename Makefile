@@ -121,6 +121,7 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 
 bench: $(BIN) $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do $$b || exit 1; done
+	@sh bench/bench_analyze.sh $(BUILD)
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/lamina/calib \

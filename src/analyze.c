@@ -5,6 +5,15 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
+
+static double now_s(void)
+{
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
+}
+#define MARK(k) (a->seconds[k] = now_s() - t0)
 
 lam_analysis_options lam_analysis_options_default(void)
 {
@@ -109,8 +118,10 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     lam_load_options lo = opt->load;
     if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
         lo.transfer = setup->encoding;
+    double t0 = now_s();
     if ((st = lam_image_load(path, &lo, &img, err)))
         goto fail;
+    MARK(LAM_T_LOAD);
     a->width = img->width;
     a->height = img->height;
     a->transfer = img->transfer;
@@ -130,12 +141,15 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
         goto fail;
     }
+    MARK(LAM_T_DISPLAY);
     if ((st = lam_substrate_estimate(img, &opt->substrate, &a->substrate, err)))
         goto fail;
+    MARK(LAM_T_SUBSTRATE);
     lam_contrast_in_place(img, &a->substrate);
     if ((st = lam_contrast_denoise(img, err)) ||
         (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
         goto fail;
+    MARK(LAM_T_CONTRAST);
     /* models: full accuracy for the ladder, a coarse one for fits */
     lam_setup fs = *setup;
     fs.grid_step_nm = 5;
@@ -154,8 +168,10 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     io.max_layers = a->max_layers;
     io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)
                                       : opt->min_area_px;
+    MARK(LAM_T_MODEL);
     if ((st = segment_and_infer(a, img, opt, &io, err)))
         goto fail;
+    MARK(LAM_T_SEGMENT);
     /* oxide: profile over confident, well-sampled regions */
     snprintf(a->oxide.method, sizeof a->oxide.method, "nominal (not fitted)");
     if (opt->fit_oxide && lam_setup_oxide(setup) >= 0) {
@@ -198,6 +214,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
                      "nominal (no region usable for a fit)");
         }
     }
+    MARK(LAM_T_OXIDE);
     a->oxide.pass = fabs(a->oxide.estimate - a->oxide.nominal) <= opt->oxide_tolerance_nm;
     for (size_t i = 0; i < a->count; i++) {
         lam_region_result *r = &a->results[i];
@@ -211,6 +228,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         }
     }
     lam_fermi_scan_free(scan);
+    MARK(LAM_T_REGIONS);
     free(use);
     lam_model_free(full);
     lam_model_free(fast);

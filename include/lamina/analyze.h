@@ -40,7 +40,12 @@ typedef struct lam_oxide_result {
     char method[96];
 } lam_oxide_result;
 
+/* Cumulative seconds at the end of each stage (for --verbose and benchmarks). */
+enum { LAM_T_LOAD, LAM_T_DISPLAY, LAM_T_SUBSTRATE, LAM_T_CONTRAST, LAM_T_MODEL, LAM_T_SEGMENT,
+       LAM_T_OXIDE, LAM_T_REGIONS, LAM_T_COUNT };
+
 typedef struct lam_analysis {
+    double seconds[LAM_T_COUNT];
     char file[1024];
     size_t width, height;
     lam_transfer transfer;

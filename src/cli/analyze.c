@@ -65,16 +65,44 @@ static void stem_of(const char *path, char *stem, size_t n)
         *dot = '\0';
 }
 
+typedef struct annot_job {
+    const lam_analysis *a;
+    char path[4096];
+    lam_error err;
+    lam_status st;
+} annot_job;
+
+static void *write_annotated_thread(void *arg)
+{
+    annot_job *aj = arg;
+    aj->st = lam_report_write_annotated(aj->a, aj->path, &aj->err);
+    return NULL;
+}
+
+/* The annotated image (the largest file) is encoded on a second thread
+ * while the layer map, plot and JSON are written. */
 static lam_status write_reports(const job *j, const char *dir, lam_error *err)
 {
     char p[4096];
     lam_status st;
+    annot_job aj;
+    aj.a = j->a;
+    lam_error_clear(&aj.err);
+    snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, j->stem);
+    pthread_t t;
+    int threaded = pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
+    if (!threaded)
+        write_annotated_thread(&aj);
     snprintf(p, sizeof p, "%s/%s.layers.png", dir, j->stem);
-    if ((st = lam_report_write_layers(j->a, p, err)))
+    st = lam_report_write_layers(j->a, p, err);
+    if (threaded)
+        pthread_join(t, NULL);
+    if (st)
         return st;
-    snprintf(p, sizeof p, "%s/%s.annotated.png", dir, j->stem);
-    if ((st = lam_report_write_annotated(j->a, p, err)))
-        return st;
+    if (aj.st) {
+        *err = aj.err;
+        return aj.st;
+    }
     snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, j->stem);
     if ((st = lam_report_write_svg(j->a, p, err)))
         return st;
@@ -97,6 +125,16 @@ static void *worker(void *arg)
             write_reports(j, P->out_dir, &j->err)) {
             j->failed = 1;
             lam_error_set_file(&j->err, j->path);
+        }
+        if (!j->failed && cli_verbose) {
+            static const char *names[LAM_T_COUNT] = {"load", "display", "substrate", "contrast",
+                                                     "model", "segment", "oxide", "regions"};
+            pthread_mutex_lock(&P->lock);
+            fprintf(stderr, "lamina: %s: stage end times (s):", j->path);
+            for (int k = 0; k < LAM_T_COUNT; k++)
+                fprintf(stderr, " %s %.3f", names[k], j->a->seconds[k]);
+            fputc('\n', stderr);
+            pthread_mutex_unlock(&P->lock);
         }
         if (!j->failed && !cli_quiet) {
             pthread_mutex_lock(&P->lock);
