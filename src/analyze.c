@@ -219,7 +219,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     for (size_t i = 0; i < a->count; i++) {
         lam_region_result *r = &a->results[i];
         const lam_region_stats *rs = &a->seg->regions[i];
-        lam_usable_rectangle(a->seg, rs, r->usable_px);
+        lam_usable_rectangle(a->seg, rs, r->usable_px, r->usable_at);
         if (opt->fit_fermi && (r->layers == 1 || r->layers == 2) && rs->interior >= 100) {
             if (!scan && (st = lam_fermi_scan_alloc(fast, a->oxide.estimate, &scan, err)))
                 goto fail;

@@ -249,12 +249,14 @@ void lam_infer_fermi(const lam_fermi_scan *sc, const lam_region_stats *r, int la
     }
 }
 
-void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2])
+void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2],
+                          size_t xy[2])
 {
     size_t x0 = r->bbox[0], x1 = r->bbox[2], y0 = r->bbox[1], y1 = r->bbox[3];
     size_t bw = x1 - x0 + 1, w = seg->width, hgt = seg->height;
     size_t *height = calloc(bw, sizeof *height), *stack = malloc((bw + 1) * sizeof *stack);
     wh[0] = wh[1] = 0;
+    xy[0] = r->bbox[0], xy[1] = r->bbox[1];
     if (!height || !stack) {
         free(height);
         free(stack);
@@ -281,6 +283,8 @@ void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r
                     best = hh * width;
                     wh[0] = width;
                     wh[1] = hh;
+                    xy[0] = x0 + left;
+                    xy[1] = y + 1 - hh;
                 }
             }
             stack[top++] = i;

@@ -143,10 +143,11 @@ cJSON *lam_report_json(const lam_analysis *a)
         } else {
             cJSON_AddNullToObject(o, "fermi_eV");
         }
-        double upx[2] = {(double)r->usable_px[0], (double)r->usable_px[1]};
-        cJSON_AddItemToObject(o, "usable_rect_px", cJSON_CreateDoubleArray(upx, 2));
+        double upx[4] = {(double)r->usable_at[0], (double)r->usable_at[1],
+                         (double)r->usable_px[0], (double)r->usable_px[1]};
+        cJSON_AddItemToObject(o, "usable_rect_px", cJSON_CreateDoubleArray(upx, 4));
         if (a->um_per_px > 0 && r->usable_px[0]) {
-            double uum[2] = {upx[0] * a->um_per_px, upx[1] * a->um_per_px};
+            double uum[2] = {upx[2] * a->um_per_px, upx[3] * a->um_per_px};
             cJSON_AddItemToObject(o, "usable_rect_um", cJSON_CreateDoubleArray(uum, 2));
         } else {
             cJSON_AddNullToObject(o, "usable_rect_um");
@@ -243,29 +244,32 @@ lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, l
     memcpy(rgb, a->display, n * 3);
     const uint32_t *lab = a->seg->label;
     int s = w >= 1600 ? (int)(w / 800) : 1;
-    /* outlines: region pixels with a 4-neighbour outside the region; a black
-     * halo one pixel outside keeps them visible on any substrate */
-    for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint32_t l = lab[k];
-            if (!l)
-                continue;
-            const lam_region_result *r = &a->results[l - 1];
-            if ((r->flags & LAM_FLAG_SMALL) && r->layers == 0)
-                continue;
-            int edge = x == 0 || y == 0 || x + 1 == w || y + 1 == h || lab[k - 1] != l ||
-                       lab[k + 1] != l || lab[k - w] != l || lab[k + w] != l;
-            if (!edge)
-                continue;
-            uint8_t c[3];
-            lam_report_palette(lam_report_layer_value(r), c);
-            memcpy(rgb + k * 3, c, 3);
-            if (x + 1 < w && lab[k + 1] != l && !lab[k + 1])
-                memset(rgb + (k + 1) * 3, 0, 3);
-            if (y + 1 < h && lab[k + w] != l && !lab[k + w])
-                memset(rgb + (k + w) * 3, 0, 3);
-        }
+    /* outlines: region pixels with a 4-neighbour outside the region, drawn
+     * max(1, s/2) pixels thick over a black halo so they stay visible on any
+     * substrate and when the image is viewed scaled down */
+    long r_out = s / 2 > 1 ? s / 2 : 1;
+    static const uint8_t black[3] = {0, 0, 0};
+    for (int pass = 0; pass < 2; pass++)
+        for (size_t y = 0; y < h; y++)
+            for (size_t x = 0; x < w; x++) {
+                size_t k = y * w + x;
+                uint32_t l = lab[k];
+                if (!l)
+                    continue;
+                const lam_region_result *r = &a->results[l - 1];
+                if ((r->flags & LAM_FLAG_SMALL) && r->layers == 0)
+                    continue;
+                int edge = x == 0 || y == 0 || x + 1 == w || y + 1 == h || lab[k - 1] != l ||
+                           lab[k + 1] != l || lab[k - w] != l || lab[k + w] != l;
+                if (!edge)
+                    continue;
+                uint8_t c[3];
+                lam_report_palette(lam_report_layer_value(r), c);
+                /* pass 0: halo one pixel wider; pass 1: the colour */
+                long rr = pass == 0 ? r_out : r_out - 1;
+                fill_rect(rgb, w, h, (long)x - rr, (long)y - rr, (long)x + rr + 1, (long)y + rr + 1,
+                          pass == 0 ? black : c, 0);
+            }
     /* labels at the top-left of each region's box */
     for (size_t i = 0; i < a->count; i++) {
         const lam_region_result *r = &a->results[i];
@@ -279,10 +283,11 @@ lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, l
                  (r->flags & LAM_FLAG_AMBIGUOUS) && r->layers > 0 ? "?" : "", rs->id);
         uint8_t c[3];
         lam_report_palette(lam_report_layer_value(r), c);
-        /* at the centroid, kept inside the image */
+        /* at the centre of the usable rectangle (always inside the region,
+         * unlike the centroid of a ring), kept inside the image */
         long tw = (long)lam_font_text_width(text, s);
-        long tx = (long)(rs->sx / (double)rs->area) - tw / 2;
-        long ty = (long)(rs->sy / (double)rs->area) - LAM_FONT_H * s / 2;
+        long tx = (long)(r->usable_at[0] + r->usable_px[0] / 2) - tw / 2;
+        long ty = (long)(r->usable_at[1] + r->usable_px[1] / 2) - LAM_FONT_H * s / 2;
         if (tx < s)
             tx = s;
         if (tx + tw + s > (long)w)
@@ -322,7 +327,6 @@ lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, l
                 len = nice[k];
         long px = (long)lround(len / a->um_per_px);
         long x1 = (long)w - 8 * s, x0 = x1 - px, y1 = (long)h - 8 * s, y0 = y1 - 3 * s;
-        static const uint8_t black[3] = {0, 0, 0};
         fill_rect(rgb, w, h, x0 - s, y0 - s, x1 + s, y1 + s, black, 0);
         fill_rect(rgb, w, h, x0, y0, x1, y1, white, 0);
         char t[32];

@@ -56,6 +56,7 @@ typedef struct lam_region_result {
     unsigned flags;
     lam_fermi_estimate fermi;
     size_t usable_px[2];        /* largest interior rectangle w, h */
+    size_t usable_at[2];        /* its top-left corner x, y */
 } lam_region_result;
 
 lam_infer_options lam_infer_options_default(void);
@@ -101,6 +102,6 @@ void lam_infer_fermi(const lam_fermi_scan *scan, const lam_region_stats *r, int 
 
 /* Largest axis-aligned rectangle of interior pixels of region 'id'. */
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r,
-                          size_t out_wh[2]);
+                          size_t out_wh[2], size_t out_xy[2]);
 
 #endif
