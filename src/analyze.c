@@ -1,5 +1,6 @@
 /* analyze.c - the analysis pipeline for one image. */
 #include "lamina/analyze.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -30,6 +31,7 @@ lam_analysis_options lam_analysis_options_default(void)
     o.oxide_tolerance_nm = 10;
     o.fit_oxide = 1;
     o.fit_fermi = 1;
+    o.threads = lam_cpu_count();
     return o;
 }
 
@@ -44,23 +46,42 @@ void lam_analysis_free(lam_analysis *a)
 }
 
 /* 8-bit sRGB copy of the linear input (for the annotated image). */
-static uint8_t *display_copy(const lam_image *img)
-{
-    size_t n = img->width * img->height;
-    uint8_t *d = malloc(n * 3);
-    if (!d)
-        return NULL;
+typedef struct display_ctx {
+    const lam_image *img;
+    uint8_t *out;
     uint8_t lut[4097];
+} display_ctx;
+
+static void display_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    const display_ctx *d = vctx;
+    size_t w = d->img->width;
+    for (size_t k = begin * w; k < end * w; k++)
+        for (int c = 0; c < 3; c++) {
+            float v = d->img->plane[c][k];
+            int q = v <= 0 ? 0 : (v >= 1 ? 4096 : (int)(v * 4096.0f + 0.5f));
+            d->out[k * 3 + (size_t)c] = d->lut[q];
+        }
+}
+
+static uint8_t *display_copy(const lam_image *img, size_t threads)
+{
+    display_ctx *d = malloc(sizeof *d);
+    uint8_t *out = malloc(img->width * img->height * 3);
+    if (!d || !out) {
+        free(d);
+        free(out);
+        return NULL;
+    }
     lam_transfer t = {LAM_TRANSFER_SRGB, 0};
     for (int i = 0; i <= 4096; i++)
-        lut[i] = (uint8_t)lround(255.0 * lam_transfer_encode(&t, i / 4096.0));
-    for (size_t k = 0; k < n; k++)
-        for (int c = 0; c < 3; c++) {
-            float v = img->plane[c][k];
-            int q = v <= 0 ? 0 : (v >= 1 ? 4096 : (int)(v * 4096.0f + 0.5f));
-            d[k * 3 + (size_t)c] = lut[q];
-        }
-    return d;
+        d->lut[i] = (uint8_t)lround(255.0 * lam_transfer_encode(&t, i / 4096.0));
+    d->img = img;
+    d->out = out;
+    lam_parallel_for(img->height, threads, display_rows, d);
+    free(d);
+    return out;
 }
 
 static void make_ladder(const lam_prediction *P, size_t K, size_t thick_to, lam_ladder *L)
@@ -73,14 +94,14 @@ static void make_ladder(const lam_prediction *P, size_t K, size_t thick_to, lam_
 }
 
 static lam_status segment_and_infer(lam_analysis *a, const lam_image *con,
-                                    const lam_analysis_options *opt, const lam_infer_options *io,
+                                    const lam_segment_options *so, const lam_infer_options *io,
                                     lam_error *err)
 {
     lam_ladder L;
     make_ladder(&a->ladder, a->max_layers, a->thick_to, &L);
-    lam_status st = lam_segment_classify(con, &L, a->substrate.noise, &opt->segment, a->seg, err);
+    lam_status st = lam_segment_classify(con, &L, a->substrate.noise, so, a->seg, err);
     if (!st)
-        st = lam_segment_regions(con, &opt->segment, a->seg, err);
+        st = lam_segment_regions(con, so, a->seg, err);
     if (st)
         return st;
     free(a->results);
@@ -137,16 +158,21 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     lam_sheet_describe(&setup->sheet, a->conductivity, sizeof a->conductivity);
     a->defaulted_count = setup->defaulted_count;
     memcpy(a->defaulted, setup->defaulted, sizeof a->defaulted);
-    if (!(a->display = display_copy(img))) {
+    size_t threads = opt->threads ? opt->threads : 1;
+    lam_substrate_options so = opt->substrate;
+    so.threads = threads;
+    lam_segment_options sgo = opt->segment;
+    sgo.threads = threads;
+    if (!(a->display = display_copy(img, threads))) {
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
         goto fail;
     }
     MARK(LAM_T_DISPLAY);
-    if ((st = lam_substrate_estimate(img, &opt->substrate, &a->substrate, err)))
+    if ((st = lam_substrate_estimate(img, &so, &a->substrate, err)))
         goto fail;
     MARK(LAM_T_SUBSTRATE);
-    lam_contrast_in_place(img, &a->substrate);
-    if ((st = lam_contrast_denoise(img, err)) ||
+    lam_contrast_in_place(img, &a->substrate, threads);
+    if ((st = lam_contrast_denoise(img, threads, err)) ||
         (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
         goto fail;
     MARK(LAM_T_CONTRAST);
@@ -169,7 +195,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)
                                       : opt->min_area_px;
     MARK(LAM_T_MODEL);
-    if ((st = segment_and_infer(a, img, opt, &io, err)))
+    if ((st = segment_and_infer(a, img, &sgo, &io, err)))
         goto fail;
     MARK(LAM_T_SEGMENT);
     /* oxide: profile over confident, well-sampled regions */
@@ -202,10 +228,11 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
                      opt->oxide_half_range_nm);
             if ((st = lam_model_eval(full, est, setup->sheet.fermi_ev, &a->ladder, err)))
                 goto fail;
-            /* a shifted ladder can move pixels between classes: segment again */
-            if (fabs(est - nominal) > 2.0 && (st = segment_and_infer(a, img, opt, &io, err)))
+            /* a ladder shifted by more than 4 nm can move pixels between
+             * classes: segment again (below that the classes are stable) */
+            if (fabs(est - nominal) > 4.0 && (st = segment_and_infer(a, img, &sgo, &io, err)))
                 goto fail;
-            if (fabs(est - nominal) <= 2.0)
+            if (fabs(est - nominal) <= 4.0)
                 for (size_t i = 0; i < a->count; i++)
                     lam_infer_region(&a->seg->regions[i], &a->ladder, a->thick_to,
                                      a->substrate.noise, a->substrate.kappa, &io, &a->results[i]);

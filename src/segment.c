@@ -1,6 +1,7 @@
 /* segment.c - denoising, ladder classification through a lookup table,
  * connected-component labelling (union-find) and region statistics. */
 #include "lamina/segment.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -11,7 +12,7 @@
 
 lam_segment_options lam_segment_options_default(void)
 {
-    lam_segment_options o = {0.005, 0.05, 25.0, 12};
+    lam_segment_options o = {0.005, 0.05, 25.0, 12, 1};
     return o;
 }
 
@@ -45,28 +46,53 @@ void lam_segmentation_free(lam_segmentation *s)
     free(s);
 }
 
-lam_status lam_contrast_denoise(lam_image *img, lam_error *err)
+/* Denoising runs in place, slice by slice; each slice first saves the
+ * original rows just outside it (its halo), since a neighbouring slice may
+ * overwrite them before they are read. */
+typedef struct denoise_ctx {
+    lam_image *img;
+    float *halo;  /* per slice: 3 channels x 2 rows x width */
+    size_t slices;
+    int failed;
+} denoise_ctx;
+
+static void save_halo(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    size_t w = img->width, h = img->height;
-    float *rows = malloc(3 * w * sizeof *rows); /* horizontal sums of y-1, y, y+1 */
-    if (!rows)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
+    denoise_ctx *d = vctx;
+    size_t w = d->img->width, h = d->img->height;
     for (int c = 0; c < 3; c++) {
-        float *p = img->plane[c];
+        const float *p = d->img->plane[c];
+        float *dst = d->halo + ((slice * 3 + (size_t)c) * 2) * w;
+        memcpy(dst, p + (begin ? begin - 1 : 0) * w, w * sizeof *p);
+        memcpy(dst + w, p + (end < h ? end : h - 1) * w, w * sizeof *p);
+    }
+}
+
+static void hsum(const float *r, float *dst, size_t w)
+{
+    for (size_t x = 0; x < w; x++) {
+        float a = r[x ? x - 1 : 0], b = r[x], c = r[x + 1 < w ? x + 1 : x];
+        dst[x] = a + b + c;
+    }
+}
+
+static void denoise_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    denoise_ctx *d = vctx;
+    size_t w = d->img->width;
+    float *rows = malloc(3 * w * sizeof *rows);
+    if (!rows) {
+        d->failed = 1;
+        return;
+    }
+    for (int c = 0; c < 3; c++) {
+        float *p = d->img->plane[c];
+        const float *above = d->halo + ((slice * 3 + (size_t)c) * 2) * w, *below = above + w;
         float *prev = rows, *cur = rows + w, *next = rows + 2 * w;
-        /* horizontal 3-sums with edge replication */
-#define HSUM(dst, y)                                                                      \
-    do {                                                                                  \
-        const float *r_ = p + (size_t)(y) * w;                                            \
-        for (size_t x_ = 0; x_ < w; x_++) {                                               \
-            float a_ = r_[x_ ? x_ - 1 : 0], b_ = r_[x_], c_ = r_[x_ + 1 < w ? x_ + 1 : x_]; \
-            (dst)[x_] = a_ + b_ + c_;                                                     \
-        }                                                                                 \
-    } while (0)
-        HSUM(cur, 0);
-        memcpy(prev, cur, w * sizeof *cur);
-        for (size_t y = 0; y < h; y++) {
-            HSUM(next, y + 1 < h ? y + 1 : y);
+        hsum(above, prev, w);
+        hsum(p + begin * w, cur, w);
+        for (size_t y = begin; y < end; y++) {
+            hsum(y + 1 < end ? p + (y + 1) * w : below, next, w);
             float *out = p + y * w;
             for (size_t x = 0; x < w; x++)
                 out[x] = (prev[x] + cur[x] + next[x]) * (1.0f / 9.0f);
@@ -75,10 +101,96 @@ lam_status lam_contrast_denoise(lam_image *img, lam_error *err)
             cur = next;
             next = t;
         }
-#undef HSUM
     }
     free(rows);
+}
+
+lam_status lam_contrast_denoise(lam_image *img, size_t threads, lam_error *err)
+{
+    size_t h = img->height, slices = threads < 1 ? 1 : (threads > h ? h : threads);
+    if (slices > LAM_MAX_THREADS)
+        slices = LAM_MAX_THREADS;
+    denoise_ctx d = {img, malloc(slices * 6 * img->width * sizeof(float)), slices, 0};
+    if (!d.halo)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
+    lam_parallel_for(h, slices, save_halo, &d);
+    lam_parallel_for(h, slices, denoise_rows, &d);
+    free(d.halo);
+    if (d.failed)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
     return LAM_OK;
+}
+
+typedef struct classify_ctx {
+    const lam_image *img;
+    const lam_ladder *L;
+    const lam_segment_options *opt;
+    lam_segmentation *seg;
+    double inv_var[LAM_LADDER_MAX][3], lo[3], step[3];
+    float edge_threshold;
+    int failed;
+} classify_ctx;
+
+/* The table is filled lazily, one table per slice: only cells that pixels
+ * visit are classified (a micrograph visits a few thousand of the 2 million). */
+static void classify_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    classify_ctx *cx = vctx;
+    const lam_ladder *L = cx->L;
+    uint8_t *lut = malloc((size_t)LUT_BINS * LUT_BINS * LUT_BINS);
+    if (!lut) {
+        cx->failed = 1;
+        return;
+    }
+    memset(lut, LUT_UNSET, (size_t)LUT_BINS * LUT_BINS * LUT_BINS);
+    size_t w = cx->img->width;
+    float inv[3], off[3];
+    for (int c = 0; c < 3; c++)
+        inv[c] = (float)(1.0 / cx->step[c]), off[c] = (float)cx->lo[c];
+    for (size_t p = begin * w; p < end * w; p++) {
+        int q[3];
+        for (int c = 0; c < 3; c++) {
+            float f = (cx->img->plane[c][p] - off[c]) * inv[c];
+            q[c] = f < 0 ? 0 : (f >= LUT_BINS ? LUT_BINS - 1 : (int)f);
+        }
+        uint8_t *cell = &lut[((size_t)q[0] * LUT_BINS + (size_t)q[1]) * LUT_BINS + (size_t)q[2]];
+        if (*cell == LUT_UNSET) {
+            double v[3];
+            for (int c = 0; c < 3; c++)
+                v[c] = cx->lo[c] + cx->step[c] * ((double)q[c] + 0.5);
+            double best = INFINITY;
+            size_t be = 0;
+            for (size_t e = 0; e < L->entries; e++) {
+                double d = 0;
+                for (int c = 0; c < 3; c++) {
+                    double t = v[c] - L->c[e][c];
+                    d += t * t * cx->inv_var[e][c];
+                }
+                if (d < best)
+                    best = d, be = e;
+            }
+            *cell = best > cx->opt->reject_chi2 ? LAM_CLASS_UNMODELLED
+                    : be == 0                   ? LAM_CLASS_SUBSTRATE
+                    : be <= L->max_layers       ? (uint8_t)be
+                                                : LAM_CLASS_THICK;
+        }
+        cx->seg->cls[p] = *cell;
+    }
+    free(lut);
+    size_t h = cx->img->height;
+    float thr = cx->edge_threshold;
+    for (size_t y = begin > 1 ? begin : 1; y < end && y + 1 < h; y++)
+        for (size_t x = 1; x + 1 < w; x++) {
+            size_t k = y * w + x;
+            for (int c = 0; c < 3; c++) {
+                const float *pl = cx->img->plane[c];
+                if (fabsf(pl[k + 1] - pl[k - 1]) > thr || fabsf(pl[k + w] - pl[k - w]) > thr) {
+                    cx->seg->cls[k] = LAM_CLASS_NONE;
+                    break;
+                }
+            }
+        }
 }
 
 lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const double noise[3],
@@ -95,52 +207,19 @@ lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const
         lo[c] = mn - 0.15;
         step[c] = (mx - mn + 0.3) / LUT_BINS;
     }
-    uint8_t *lut = malloc((size_t)LUT_BINS * LUT_BINS * LUT_BINS);
-    if (!lut)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the class table");
-    double inv_var[LAM_LADDER_MAX][3];
+    classify_ctx cx;
+    memset(&cx, 0, sizeof cx);
+    cx.img = img;
+    cx.L = L;
+    cx.opt = opt;
+    cx.seg = seg;
     for (size_t e = 0; e < L->entries; e++)
         for (int c = 0; c < 3; c++) {
             double f = opt->floor_abs + opt->floor_rel * fabs(L->c[e][c]), s = noise[c] / 2;
-            inv_var[e][c] = 1.0 / (f * f + s * s);
+            cx.inv_var[e][c] = 1.0 / (f * f + s * s);
         }
-    /* The table is filled lazily: only cells that pixels visit are
-     * classified (a micrograph visits a few thousand of the 2 million). */
-    memset(lut, LUT_UNSET, (size_t)LUT_BINS * LUT_BINS * LUT_BINS);
-    size_t n = img->width * img->height;
-    float inv[3], off[3];
     for (int c = 0; c < 3; c++)
-        inv[c] = (float)(1.0 / step[c]), off[c] = (float)lo[c];
-    for (size_t p = 0; p < n; p++) {
-        int q[3];
-        for (int c = 0; c < 3; c++) {
-            float f = (img->plane[c][p] - off[c]) * inv[c];
-            q[c] = f < 0 ? 0 : (f >= LUT_BINS ? LUT_BINS - 1 : (int)f);
-        }
-        uint8_t *cell = &lut[((size_t)q[0] * LUT_BINS + (size_t)q[1]) * LUT_BINS + (size_t)q[2]];
-        if (*cell == LUT_UNSET) {
-            double v[3];
-            for (int c = 0; c < 3; c++)
-                v[c] = lo[c] + step[c] * ((double)q[c] + 0.5);
-            double best = INFINITY;
-            size_t be = 0;
-            for (size_t e = 0; e < L->entries; e++) {
-                double d = 0;
-                for (int c = 0; c < 3; c++) {
-                    double t = v[c] - L->c[e][c];
-                    d += t * t * inv_var[e][c];
-                }
-                if (d < best)
-                    best = d, be = e;
-            }
-            *cell = best > opt->reject_chi2 ? LAM_CLASS_UNMODELLED
-                    : be == 0               ? LAM_CLASS_SUBSTRATE
-                    : be <= L->max_layers   ? (uint8_t)be
-                                            : LAM_CLASS_THICK;
-        }
-        seg->cls[p] = *cell;
-    }
-    free(lut);
+        cx.lo[c] = lo[c], cx.step[c] = step[c];
     /* transition pixels: where the contrast changes by more than half a
      * monolayer step across two pixels (or 4 sigma of the denoised noise),
      * the pixel mixes two classes; it belongs to no region */
@@ -149,19 +228,11 @@ lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const
         step1 = fmax(step1, fabs(L->c[1][c]));
         nmax = fmax(nmax, noise[c]);
     }
-    float thr = (float)fmax(0.5 * step1, 4.0 * nmax / 3.0);
-    size_t w = img->width, h = img->height;
-    for (size_t y = 1; y + 1 < h; y++)
-        for (size_t x = 1; x + 1 < w; x++) {
-            size_t k = y * w + x;
-            for (int c = 0; c < 3; c++) {
-                const float *pl = img->plane[c];
-                if (fabsf(pl[k + 1] - pl[k - 1]) > thr || fabsf(pl[k + w] - pl[k - w]) > thr) {
-                    seg->cls[k] = LAM_CLASS_NONE;
-                    break;
-                }
-            }
-        }
+    cx.edge_threshold = (float)fmax(0.5 * step1, 4.0 * nmax / 3.0);
+    size_t threads = opt->threads ? opt->threads : 1;
+    lam_parallel_for(img->height, threads, classify_rows, &cx);
+    if (cx.failed)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the class table");
     return LAM_OK;
 }
 

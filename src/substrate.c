@@ -1,6 +1,7 @@
 /* substrate.c - substrate detection by chromaticity, robust flat-field fit
  * (GSL bisquare regression), noise estimate and the contrast map. */
 #include "lamina/substrate.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -12,6 +13,7 @@ lam_substrate_options lam_substrate_options_default(void)
     lam_substrate_options o;
     memset(&o, 0, sizeof o);
     o.tile = 32;
+    o.threads = 1;
     return o;
 }
 
@@ -54,10 +56,20 @@ static double median_of(double *v, size_t n)
     return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
 }
 
-static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx, size_t ny)
+typedef struct tile_ctx {
+    const lam_image *img;
+    size_t T, nx;
+    tile_stat *ts;
+} tile_ctx;
+
+static void tile_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    size_t w = img->width;
-    for (size_t ty = 0; ty < ny; ty++)
+    (void)slice;
+    const tile_ctx *tc = vctx;
+    const lam_image *img = tc->img;
+    size_t T = tc->T, nx = tc->nx, w = img->width;
+    tile_stat *ts = tc->ts;
+    for (size_t ty = begin; ty < end; ty++)
         for (size_t tx = 0; tx < nx; tx++) {
             tile_stat *t = &ts[ty * nx + tx];
             size_t x0 = tx * T, y0 = ty * T, x1 = x0 + T, y1 = y0 + T;
@@ -92,6 +104,13 @@ static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx,
             t->u = ok ? log(t->mean[0] / t->mean[1]) : 0;
             t->v = ok ? log(t->mean[2] / t->mean[1]) : 0;
         }
+}
+
+static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx, size_t ny,
+                       size_t threads)
+{
+    tile_ctx tc = {img, T, nx, ts};
+    lam_parallel_for(ny, threads, tile_rows, &tc);
 }
 
 /* Densest chromaticity among uniform tiles: a 2-D histogram, 3x3 smoothed. */
@@ -166,7 +185,7 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     memset(&s, 0, sizeof s);
     s.width = img->width;
     s.height = img->height;
-    tile_stats(img, T, ts, nx, ny);
+    tile_stats(img, T, ts, nx, ny, opt->threads ? opt->threads : 1);
     /* uniform: relative spread below 2.5x the typical (median) spread */
     size_t m = 0;
     for (size_t i = 0; i < n; i++)
@@ -322,36 +341,20 @@ done:
     return st;
 }
 
-void lam_contrast_in_place(lam_image *img, const lam_substrate *s)
+typedef struct contrast_ctx {
+    lam_image *img;
+    const float *grid;
+    size_t gx, step;
+} contrast_ctx;
+
+static void contrast_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    const size_t step = 16;
-    size_t w = img->width, h = img->height;
-    size_t gx = w / step + 2, gy = h / step + 2;
-    float *grid = malloc(gx * gy * 3 * sizeof *grid);
-    float *row = malloc(w * 3 * sizeof *row);
-    if (!grid || !row) {
-        /* fall back to direct evaluation (slow but correct) */
-        for (size_t y = 0; y < h; y++)
-            for (size_t x = 0; x < w; x++) {
-                double b[3];
-                lam_substrate_eval(s, (double)x + 0.5, (double)y + 0.5, b);
-                for (int c = 0; c < 3; c++) {
-                    float *p = &img->plane[c][y * w + x];
-                    *p = (float)(1.0 - *p / b[c]);
-                }
-            }
-        free(grid);
-        free(row);
-        return;
-    }
-    for (size_t j = 0; j < gy; j++)
-        for (size_t i = 0; i < gx; i++) {
-            double b[3];
-            lam_substrate_eval(s, (double)(i * step), (double)(j * step), b);
-            for (int c = 0; c < 3; c++)
-                grid[(j * gx + i) * 3 + (size_t)c] = (float)(1.0 / b[c]);
-        }
-    for (size_t y = 0; y < h; y++) {
+    (void)slice;
+    const contrast_ctx *cc = vctx;
+    lam_image *img = cc->img;
+    size_t w = img->width, gx = cc->gx, step = cc->step;
+    const float *grid = cc->grid;
+    for (size_t y = begin; y < end; y++) {
         double fy = ((double)y + 0.5) / (double)step;
         size_t j = (size_t)fy;
         float ty = (float)(fy - (double)j);
@@ -369,6 +372,35 @@ void lam_contrast_in_place(lam_image *img, const lam_substrate *s)
             }
         }
     }
+}
+
+void lam_contrast_in_place(lam_image *img, const lam_substrate *s, size_t threads)
+{
+    const size_t step = 16;
+    size_t w = img->width, h = img->height;
+    size_t gx = w / step + 2, gy = h / step + 2;
+    float *grid = malloc(gx * gy * 3 * sizeof *grid);
+    if (!grid) {
+        /* fall back to direct evaluation (slow but correct) */
+        for (size_t y = 0; y < h; y++)
+            for (size_t x = 0; x < w; x++) {
+                double b[3];
+                lam_substrate_eval(s, (double)x + 0.5, (double)y + 0.5, b);
+                for (int c = 0; c < 3; c++) {
+                    float *p = &img->plane[c][y * w + x];
+                    *p = (float)(1.0 - *p / b[c]);
+                }
+            }
+        return;
+    }
+    for (size_t j = 0; j < gy; j++)
+        for (size_t i = 0; i < gx; i++) {
+            double b[3];
+            lam_substrate_eval(s, (double)(i * step), (double)(j * step), b);
+            for (int c = 0; c < 3; c++)
+                grid[(j * gx + i) * 3 + (size_t)c] = (float)(1.0 / b[c]);
+        }
+    contrast_ctx cc = {img, grid, gx, step};
+    lam_parallel_for(h, threads, contrast_rows, &cc);
     free(grid);
-    free(row);
 }

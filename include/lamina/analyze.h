@@ -31,6 +31,7 @@ typedef struct lam_analysis_options {
     double oxide_half_range_nm; /* search nominal +- this (25) */
     double oxide_tolerance_nm;  /* pass/fail of the oxide audit (10) */
     int fit_oxide, fit_fermi;   /* both on by default */
+    size_t threads;             /* for the pixel passes (default: all cores) */
 } lam_analysis_options;
 
 typedef struct lam_oxide_result {

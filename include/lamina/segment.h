@@ -37,6 +37,7 @@ typedef struct lam_segment_options {
     double floor_abs, floor_rel; /* model floor, contrast units (0.005, 0.05) */
     double reject_chi2;          /* unmodelled above this squared distance (25) */
     size_t min_region_px;        /* smaller regions are dropped (12) */
+    size_t threads;              /* worker threads for the pixel passes (1) */
 } lam_segment_options;
 
 typedef struct lam_region_stats {
@@ -64,7 +65,7 @@ lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation 
 void lam_segmentation_free(lam_segmentation *s);
 
 /* 3x3 box filter of each contrast plane, in place. */
-lam_status lam_contrast_denoise(lam_image *contrast, lam_error *err);
+lam_status lam_contrast_denoise(lam_image *contrast, size_t threads, lam_error *err);
 
 /* Classify every pixel against the ladder. noise[c]: relative pixel sigma. */
 lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *ladder,

@@ -26,6 +26,7 @@ typedef struct lam_substrate_options {
     size_t tile;          /* tile size in pixels (default 32) */
     int has_roi;          /* use roi as the substrate's seed */
     size_t roi[4];        /* x, y, w, h */
+    size_t threads;       /* worker threads for the pixel passes (1) */
 } lam_substrate_options;
 
 typedef struct lam_substrate {
@@ -51,6 +52,6 @@ void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3
 
 /* Replace the image planes by contrast (B - I) / B, using the flat field
  * sampled every 'step' pixels and interpolated bilinearly (it is smooth). */
-void lam_contrast_in_place(lam_image *img, const lam_substrate *s);
+void lam_contrast_in_place(lam_image *img, const lam_substrate *s, size_t threads);
 
 #endif

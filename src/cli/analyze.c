@@ -413,6 +413,11 @@ static int run_analyze(int argc, char **argv)
         P.jobs[i].path = argv[optind + (int)i];
         stem_of(P.jobs[i].path, P.jobs[i].stem, sizeof P.jobs[i].stem);
     }
+    /* threads go across images first, the rest inside each image */
+    size_t outer = (size_t)threads < P.count ? (size_t)threads : P.count;
+    opt.threads = (size_t)threads / (outer ? outer : 1);
+    if (opt.threads < 1)
+        opt.threads = 1;
     P.setup = &s;
     P.opt = &opt;
     P.out_dir = out_dir;

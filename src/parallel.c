@@ -1,0 +1,50 @@
+/* parallel.c - a fork-join loop over index slices with POSIX threads. */
+#include "lamina/parallel.h"
+
+#include <pthread.h>
+#include <unistd.h>
+
+typedef struct slice_job {
+    size_t begin, end, slice;
+    lam_slice_fn fn;
+    void *ctx;
+} slice_job;
+
+static void *run_slice(void *arg)
+{
+    slice_job *j = arg;
+    j->fn(j->begin, j->end, j->slice, j->ctx);
+    return NULL;
+}
+
+void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx)
+{
+    if (threads > LAM_MAX_THREADS)
+        threads = LAM_MAX_THREADS;
+    if (threads > count)
+        threads = count;
+    if (threads <= 1) {
+        if (count)
+            fn(0, count, 0, ctx);
+        return;
+    }
+    slice_job jobs[LAM_MAX_THREADS];
+    pthread_t tid[LAM_MAX_THREADS];
+    int started[LAM_MAX_THREADS];
+    for (size_t t = 0; t < threads; t++) {
+        jobs[t] = (slice_job){count * t / threads, count * (t + 1) / threads, t, fn, ctx};
+        started[t] = t > 0 && pthread_create(&tid[t], NULL, run_slice, &jobs[t]) == 0;
+    }
+    for (size_t t = 0; t < threads; t++)
+        if (!started[t])
+            run_slice(&jobs[t]);
+    for (size_t t = 1; t < threads; t++)
+        if (started[t])
+            pthread_join(tid[t], NULL);
+}
+
+size_t lam_cpu_count(void)
+{
+    long n = sysconf(_SC_NPROCESSORS_ONLN);
+    return n > 0 ? (size_t)n : 1;
+}
