@@ -39,7 +39,7 @@ LIB      := $(BUILD)/liblamina.a
 BIN      := $(BUILD)/lamina
 
 .SECONDARY:
-.PHONY: demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz
+.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz
 
 all: $(BIN)
 
@@ -57,7 +57,7 @@ $(BIN): $(CLI_OBJ) $(LIB)
 
 # Tests link the harness and the library; test_image also uses Little CMS
 # as an independent sRGB reference.
-TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o
+TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) \
@@ -118,6 +118,25 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
 	    else echo "missing $$p; run: sudo apt-get install $(DEB_REF)"; exit 1; fi; }; done
 	/usr/bin/python3 tests/reference/meep_check.py $(BUILD)
+
+# Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for
+# FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
+# written to tests/crashers/<target>/ and replayed by make test.
+FUZZ_SECONDS ?= 60
+FUZZ_TARGETS := image setup scene csv
+FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
+    $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
+fuzz: deps
+	@command -v clang >/dev/null || { echo "fuzzing needs clang and libclang-rt-14-dev (apt-get install clang libclang-rt-14-dev)"; exit 1; }
+	@mkdir -p build-fuzz
+	@for t in $(FUZZ_TARGETS); do \
+	  clang $(FUZZ_CFLAGS) tests/fuzz/fuzz_$$t.c tests/fuzz/targets.c $(LIB_SRC) $(LDLIBS) -o build-fuzz/fuzz_$$t || exit 1; \
+	  mkdir -p build-fuzz/corpus-$$t tests/crashers/$$t; \
+	  build-fuzz/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) -timeout=10 -rss_limit_mb=2048 -print_final_stats=1 \
+	    -artifact_prefix=tests/crashers/$$t/ build-fuzz/corpus-$$t tests/fuzz/corpus/$$t \
+	    2> build-fuzz/fuzz_$$t.log || { tail -30 build-fuzz/fuzz_$$t.log; exit 1; }; \
+	  printf '%s: ' $$t; grep -E 'stat::number_of_executed_units' build-fuzz/fuzz_$$t.log | awk '{print $$2 " executions, no crash"}'; \
+	done
 
 bench: $(BIN) $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do $$b || exit 1; done

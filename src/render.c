@@ -160,27 +160,44 @@ static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, 
     return LAM_OK;
 }
 
-lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
+lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_error *err)
 {
     memset(s, 0, sizeof *s);
     lam_setup_default(&s->setup);
     s->exposure = 0.55;
+    cJSON *root = cJSON_Parse(json);
+    lam_status st = root ? parse_scene(root, dir, s, err)
+                         : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
+    cJSON_Delete(root);
+    if (!st && (size_t)s->width * s->height > LAM_IMAGE_DEFAULT_MAX_PIXELS)
+        st = lam_error_set(err, LAM_ETOOBIG, "scene of %zux%zu pixels is too large", s->width,
+                           s->height);
+    if (st)
+        lam_scene_clear(s);
+    return st;
+}
+
+lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
+{
+    memset(s, 0, sizeof *s);
     FILE *fp = fopen(path, "rb");
     if (!fp) {
         lam_error_set(err, LAM_EIO, "cannot open scene: %s", strerror(errno));
         lam_error_set_file(err, path);
-        lam_scene_clear(s);
         return LAM_EIO;
     }
-    char *buf = malloc(4 << 20);
-    size_t n = buf ? fread(buf, 1, (4 << 20) - 1, fp) : 0;
+    const size_t cap = 4u << 20;
+    char *buf = malloc(cap);
+    size_t n = buf ? fread(buf, 1, cap - 1, fp) : 0;
+    int too_big = buf && n == cap - 1 && fgetc(fp) != EOF;
     fclose(fp);
     lam_status st;
     if (!buf) {
         st = lam_error_set(err, LAM_ENOMEM, "cannot read scene");
+    } else if (too_big) {
+        st = lam_error_set(err, LAM_ETOOBIG, "scene file larger than 4 MiB");
     } else {
         buf[n] = '\0';
-        cJSON *root = cJSON_Parse(buf);
         char dir[1024];
         snprintf(dir, sizeof dir, "%s", path);
         char *slash = strrchr(dir, '/');
@@ -188,15 +205,11 @@ lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
             *slash = '\0';
         else
             snprintf(dir, sizeof dir, ".");
-        st = root ? parse_scene(root, dir, s, err)
-                  : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
-        cJSON_Delete(root);
+        st = lam_scene_parse(buf, dir, s, err);
     }
     free(buf);
-    if (st) {
+    if (st)
         lam_error_set_file(err, path);
-        lam_scene_clear(s);
-    }
     return st;
 }
 

@@ -20,6 +20,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include <stdio.h>
 #include "lamina/error.h"
 #include "lamina/transfer.h"
 
@@ -63,6 +64,11 @@ lam_file_kind lam_file_sniff(const unsigned char *head, size_t n);
  * supported image or is damaged, LAM_ETOOBIG above the pixel limit. */
 lam_status lam_image_load(const char *path, const lam_load_options *opt,
                           lam_image **out, lam_error *err);
+
+/* The same from an open stream (read from its current position); 'name'
+ * is used in messages. The stream is not closed. */
+lam_status lam_image_load_stream(FILE *fp, const char *name, const lam_load_options *opt,
+                                 lam_image **out, lam_error *err);
 
 /* Check width*height against a limit with overflow-safe arithmetic. */
 lam_status lam_image_check_size(size_t width, size_t height, size_t max_pixels,

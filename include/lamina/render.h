@@ -52,6 +52,10 @@ typedef struct lam_scene {
 } lam_scene;
 
 lam_status lam_scene_load(const char *path, lam_scene *scene, lam_error *err);
+
+/* Parse scene JSON text; 'base_dir' resolves a setup given as a path. */
+lam_status lam_scene_parse(const char *json, const char *base_dir, lam_scene *scene,
+                           lam_error *err);
 void lam_scene_clear(lam_scene *scene);
 
 /* Render: linear-light image (caller frees) and truth layer map

@@ -1,0 +1,87 @@
+/* targets.c - fuzz entry points: feed bytes to a parser, expect a status. */
+#include "targets.h"
+#include "lamina/colour.h"
+#include "lamina/image.h"
+#include "lamina/material.h"
+#include "lamina/render.h"
+#include "lamina/setup.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+int fuzz_image(const uint8_t *data, size_t n)
+{
+    FILE *fp = fmemopen((void *)data, n ? n : 1, "rb");
+    if (!fp)
+        return 0;
+    lam_load_options opt = lam_load_options_default();
+    opt.max_pixels = 4000000; /* keep allocations fuzz-sized */
+    lam_image *img = NULL;
+    lam_error err;
+    lam_error_clear(&err);
+    if (n && lam_image_load_stream(fp, "fuzz", &opt, &img, &err) == LAM_OK)
+        lam_image_free(img);
+    fclose(fp);
+    return 0;
+}
+
+static char *terminated(const uint8_t *data, size_t n)
+{
+    char *s = malloc(n + 1);
+    if (s) {
+        memcpy(s, data, n);
+        s[n] = '\0';
+    }
+    return s;
+}
+
+int fuzz_setup(const uint8_t *data, size_t n)
+{
+    char *s = terminated(data, n);
+    if (!s)
+        return 0;
+    lam_setup su;
+    lam_setup_default(&su);
+    lam_setup_parse(s, "/nonexistent", &su, NULL);
+    lam_setup_clear(&su);
+    free(s);
+    return 0;
+}
+
+int fuzz_scene(const uint8_t *data, size_t n)
+{
+    char *s = terminated(data, n);
+    if (!s)
+        return 0;
+    lam_scene sc;
+    if (lam_scene_parse(s, "/nonexistent", &sc, NULL) == LAM_OK)
+        lam_scene_clear(&sc);
+    free(s);
+    return 0;
+}
+
+int fuzz_csv(const uint8_t *data, size_t n)
+{
+    char path[64];
+    snprintf(path, sizeof path, "/tmp/lamina-fuzz-%ld.csv", (long)getpid());
+    FILE *fp = fopen(path, "wb");
+    if (!fp)
+        return 0;
+    fwrite(data, 1, n, fp);
+    fclose(fp);
+    lam_material m;
+    if (lam_material_load_csv(path, &m, NULL) == LAM_OK) {
+        double complex v;
+        lam_material_index(&m, 550, &v, NULL);
+        lam_material_clear(&m);
+    }
+    lam_table_spectrum t;
+    if (lam_table_spectrum_load(path, 3, &t, NULL) == LAM_OK) {
+        lam_table_spectrum_eval(&t, 1, 500);
+        lam_table_spectrum_clear(&t);
+    }
+    unlink(path);
+    return 0;
+}
