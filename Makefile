@@ -102,10 +102,9 @@ noopt:
 	$(MAKE) --no-print-directory BUILD=build-noopt OPT=-O0 test
 
 valgrind: deps
-	$(MAKE) --no-print-directory BUILD=build-vg $(BUILD:build=build-vg)/lamina
-	$(MAKE) --no-print-directory BUILD=build-vg build-vg/lamina \
+	$(MAKE) --no-print-directory BUILD=build-vg OPT=-O1 build-vg/lamina \
 	    $(TEST_SRC:tests/%.c=build-vg/tests/%)
-	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full" \
+	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
 	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
 
 # Outside reference: Debian's python3-meep (materials and a 1-D FDTD).

@@ -88,7 +88,10 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
         png_set_palette_to_rgb(job.png);
     if (grey && depth < 8)
         png_set_expand_gray_1_2_4_to_8(job.png);
-    if (ctype & PNG_COLOR_MASK_ALPHA)
+    /* transparency carries no optical information: drop alpha (including
+     * the alpha that palette expansion makes from a tRNS chunk) */
+    if ((ctype & PNG_COLOR_MASK_ALPHA) ||
+        (ctype == PNG_COLOR_TYPE_PALETTE && png_get_valid(job.png, job.info, PNG_INFO_tRNS)))
         png_set_strip_alpha(job.png);
     if (depth == 16)
         png_set_swap(job.png); /* host little-endian uint16 */
