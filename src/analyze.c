@@ -93,6 +93,52 @@ static void make_ladder(const lam_prediction *P, size_t K, size_t thick_to, lam_
             L->c[N][c] = P->contrast[N][c];
 }
 
+int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i)
+{
+    const lam_region_result *r = &a->results[i];
+    return r->layers > 0 && !(r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) &&
+           a->seg->regions[i].interior >= 100;
+}
+
+lam_status lam_oxide_joint_profile(const lam_analysis *const *an, size_t images,
+                                   const lam_setup *setup, const double *grid, size_t n,
+                                   double *joint, double *per_image, lam_error *err)
+{
+    size_t K = 1;
+    for (size_t j = 0; j < images; j++)
+        K = an[j]->max_layers > K ? an[j]->max_layers : K;
+    lam_model *m = NULL;
+    lam_prediction *P = malloc(sizeof *P);
+    lam_status st = P ? lam_model_alloc_fast(setup, K, &m, err)
+                      : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
+    /* one ladder per thickness, shared by every image and region */
+    for (size_t g = 0; g < n && !st; g++) {
+        if ((st = lam_model_eval(m, grid[g], setup->sheet.fermi_ev, P, err)))
+            break;
+        joint[g] = 0;
+        for (size_t j = 0; j < images; j++) {
+            const lam_analysis *a = an[j];
+            double tot = 0;
+            for (size_t i = 0; i < a->count; i++) {
+                if (!lam_analysis_region_fits_oxide(a, i))
+                    continue;
+                double best = INFINITY;
+                for (size_t N = 1; N <= a->max_layers; N++)
+                    best = fmin(best, lam_region_chi2(&a->seg->regions[i], P->contrast[N],
+                                                      a->substrate.noise, a->substrate.kappa,
+                                                      &a->infer));
+                tot += best;
+            }
+            if (per_image)
+                per_image[j * n + g] = tot;
+            joint[g] += tot;
+        }
+    }
+    lam_model_free(m);
+    free(P);
+    return st;
+}
+
 static lam_status segment_and_infer(lam_analysis *a, const lam_image *con,
                                     const lam_segment_options *so, const lam_infer_options *io,
                                     lam_error *err)
@@ -177,11 +223,8 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         goto fail;
     MARK(LAM_T_CONTRAST);
     /* models: full accuracy for the ladder, a coarse one for fits */
-    lam_setup fs = *setup;
-    fs.grid_step_nm = 5;
-    fs.cone_nodes = 8;
     if ((st = lam_model_alloc(setup, a->thick_to, 0, &full, err)) ||
-        (st = lam_model_alloc(&fs, a->max_layers, 0, &fast, err)))
+        (st = lam_model_alloc_fast(setup, a->max_layers, &fast, err)))
         goto fail;
     double nominal = lam_setup_oxide(setup);
     a->oxide.nominal = nominal;
@@ -194,6 +237,8 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     io.max_layers = a->max_layers;
     io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)
                                       : opt->min_area_px;
+    a->infer = io;
+    a->fermi_signed = setup->sheet.fermi_ev;
     MARK(LAM_T_MODEL);
     if ((st = segment_and_infer(a, img, &sgo, &io, err)))
         goto fail;
@@ -206,11 +251,8 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
             st = lam_error_set(err, LAM_ENOMEM, "cannot allocate");
             goto fail;
         }
-        for (size_t i = 0; i < a->count; i++) {
-            const lam_region_result *r = &a->results[i];
-            use[i] = r->layers > 0 && !(r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) &&
-                     a->seg->regions[i].interior >= 100;
-        }
+        for (size_t i = 0; i < a->count; i++)
+            use[i] = lam_analysis_region_fits_oxide(a, i);
         double est, sig, chi2min;
         size_t used;
         if ((st = lam_infer_oxide(fast, a->seg->regions, use, a->count, a->max_layers,

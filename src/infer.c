@@ -27,8 +27,8 @@ void lam_region_moments(const lam_region_stats *r, const double noise[3], double
     }
 }
 
-static double chi2_of(const lam_region_stats *r, const double *model, const double noise[3],
-                      double kappa, const lam_infer_options *opt)
+double lam_region_chi2(const lam_region_stats *r, const double model[3], const double noise[3],
+                       double kappa, const lam_infer_options *opt)
 {
     double mean[3], sigma[3], x = 0;
     lam_region_moments(r, noise, kappa, opt, model, mean, sigma);
@@ -50,7 +50,7 @@ void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t
     size_t bestN = 1;
     /* N = 0: the region may be bare substrate that noise pushed off the ladder */
     for (size_t N = 0; N <= K; N++) {
-        chi[N] = chi2_of(r, P->contrast[N], noise, kappa, opt);
+        chi[N] = lam_region_chi2(r, P->contrast[N], noise, kappa, opt);
         if (chi[N] < best)
             best = chi[N], bestN = N;
     }
@@ -58,7 +58,7 @@ void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t
     double tbest = INFINITY;
     size_t tN = K + 1;
     for (size_t N = K + 1; N <= thick_to && N <= P->max_layers; N++) {
-        double x = chi2_of(r, P->contrast[N], noise, kappa, opt);
+        double x = lam_region_chi2(r, P->contrast[N], noise, kappa, opt);
         if (x < tbest)
             tbest = x, tN = N;
     }
@@ -120,7 +120,7 @@ static double profile_total(lam_model *m, double d, double fermi, const lam_regi
             continue;
         double best = INFINITY;
         for (size_t N = 1; N <= opt->max_layers && N <= thick_to; N++)
-            best = fmin(best, chi2_of(&R[i], P->contrast[N], noise, kappa, opt));
+            best = fmin(best, lam_region_chi2(&R[i], P->contrast[N], noise, kappa, opt));
         tot += best;
     }
     return tot;
@@ -221,7 +221,7 @@ void lam_infer_fermi(const lam_fermi_scan *sc, const lam_region_stats *r, int la
     double best = INFINITY, worst = -INFINITY;
     size_t bi = 0;
     for (size_t i = 0; i < STEPS; i++) {
-        chi[i] = chi2_of(r, sc->ladder[i].contrast[layers], noise, kappa, opt);
+        chi[i] = lam_region_chi2(r, sc->ladder[i].contrast[layers], noise, kappa, opt);
         if (chi[i] < best)
             best = chi[i], bi = i;
         worst = fmax(worst, chi[i]);

@@ -307,3 +307,12 @@ lam_status lam_model_reflectance_at(const lam_setup *s, size_t layers, double ox
     lam_model_free(m);
     return LAM_OK;
 }
+
+lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
+                                lam_error *err)
+{
+    lam_setup fs = *setup;
+    fs.grid_step_nm = 5;
+    fs.cone_nodes = 8;
+    return lam_model_alloc(&fs, max_layers, 0, out, err);
+}

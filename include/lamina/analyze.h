@@ -66,6 +66,8 @@ typedef struct lam_analysis {
     const char *pupil, *camera;
     size_t defaulted_count;
     const char *defaulted[LAM_SETUP_MAX_DEFAULTED];
+    lam_infer_options infer;        /* as used (floors, K, small-area threshold) */
+    double fermi_signed;            /* the ladder's Fermi level as given */
 } lam_analysis;
 
 lam_analysis_options lam_analysis_options_default(void);
@@ -73,5 +75,16 @@ lam_analysis_options lam_analysis_options_default(void);
 lam_status lam_analyze(const char *path, const lam_setup *setup,
                        const lam_analysis_options *opt, lam_analysis **out, lam_error *err);
 void lam_analysis_free(lam_analysis *a);
+
+/* Is region i usable for the oxide fit (assigned, not saturated or
+ * unmodelled, interior >= 100 px)? */
+int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i);
+
+/* The oxide audit's profile: chi2_total(d) on a grid, summed over images
+ * (joint) and per image (per_image[j * n + g], may be NULL), with the coarse
+ * model the fits use and the usable regions of each analysis. */
+lam_status lam_oxide_joint_profile(const lam_analysis *const *analyses, size_t images,
+                                   const lam_setup *setup, const double *grid, size_t n,
+                                   double *joint, double *per_image, lam_error *err);
 
 #endif

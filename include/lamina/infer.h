@@ -66,6 +66,10 @@ void lam_region_moments(const lam_region_stats *r, const double noise[3], double
                         const lam_infer_options *opt, const double model[3], double mean[3],
                         double sigma[3]);
 
+/* chi2 of a region's mean contrast against one model contrast vector. */
+double lam_region_chi2(const lam_region_stats *r, const double model[3], const double noise[3],
+                       double kappa, const lam_infer_options *opt);
+
 /* Posterior over N for one region given the ladder at the fitted oxide. */
 void lam_infer_region(const lam_region_stats *r, const lam_prediction *ladder, size_t thick_to,
                       const double noise[3], double kappa, const lam_infer_options *opt,

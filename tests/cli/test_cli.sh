@@ -80,5 +80,14 @@ expect_rc 0 "render a scene" "$BIN" render --quiet samples/HT285-C11-tile07.scen
 cmp -s "$T/r.png" samples/HT285-C11-tile07.png && ok "render is deterministic (equals the committed sample)" || bad "render differs from samples/HT285-C11-tile07.png"
 expect_rc 1 "render a missing scene" "$BIN" render "$T/none.json" -o "$T/x.png"
 
+# oxide audit
+expect_rc 0 "oxide audit of two images" "$BIN" oxide --quiet --setup samples/bench3-setup.json --out "$T/ox" samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png
+grep -q '"schema":[[:space:]]*"lamina-oxide/1"' "$T/ox/oxide.json" && ok "oxide.json schema" || bad "oxide.json schema"
+grep -q '"pass":[[:space:]]*true' "$T/ox/oxide.json" && ok "285 nm chips pass a 10 nm tolerance" || bad "oxide pass"
+grep -q "</svg>" "$T/ox/oxide.svg" && ok "oxide.svg written" || bad "oxide.svg"
+expect_rc 0 "oxide audit with a 0.5 % tolerance" "$BIN" oxide --quiet --tolerance 0.5% --setup samples/bench3-setup.json --out "$T/ox2" samples/HT285-A07-tile12.png
+grep -q '"pass":[[:space:]]*false' "$T/ox2/oxide.json" && ok "288 nm fails a 0.5 % tolerance of 285 nm" || bad "oxide tight tolerance"
+expect_rc 2 "oxide with a bad tolerance" "$BIN" oxide --tolerance abc samples/HT285-A07-tile12.png
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
