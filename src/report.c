@@ -60,6 +60,11 @@ cJSON *lam_report_json(const lam_analysis *a)
     cJSON *im = cJSON_AddObjectToObject(root, "image");
     const char *base = strrchr(a->file, '/');
     cJSON_AddStringToObject(im, "file", base ? base + 1 : a->file);
+    cJSON_AddStringToObject(im, "path", a->file);
+    if (a->content_hash[0])
+        cJSON_AddStringToObject(im, "content_hash", a->content_hash);
+    if (a->setup_hash[0])
+        cJSON_AddStringToObject(root, "setup_hash", a->setup_hash);
     cJSON_AddNumberToObject(im, "width", (double)a->width);
     cJSON_AddNumberToObject(im, "height", (double)a->height);
     cJSON_AddStringToObject(im, "encoding", lam_transfer_name(&a->transfer));

@@ -67,6 +67,8 @@ typedef struct lam_analysis {
     size_t defaulted_count;
     const char *defaulted[LAM_SETUP_MAX_DEFAULTED];
     lam_infer_options infer;        /* as used (floors, K, small-area threshold) */
+    char content_hash[32];          /* of the input file, set by the caller ("" if unset) */
+    char setup_hash[32];            /* of the setup and options, set by the caller */
     double fermi_signed;            /* the ladder's Fermi level as given */
 } lam_analysis;
 

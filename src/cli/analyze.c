@@ -1,9 +1,13 @@
-/* cli/analyze.c - `lamina analyze IMAGE...`: regions, layer counts,
- * doping and oxide, with the report files; a catalogue for several images. */
+/* cli/analyze.c - `lamina analyze IMAGE|FOLDER...`: regions, layer counts,
+ * doping and oxide, with the report files; for several images a ranked
+ * catalogue, a contact sheet, stage positions, resumable runs and shards. */
 #include "cli.h"
+#include "inputs.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
+#include "lamina/catalog.h"
 #include "lamina/outfile.h"
+#include "lamina/parallel.h"
 #include "lamina/report.h"
 
 #include <getopt.h>
@@ -11,16 +15,18 @@
 #include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 #include <cjson/cJSON.h>
 
 static void analyze_help(FILE *out)
 {
-    fputs("Usage: lamina analyze [OPTIONS] IMAGE...\n"
+    fputs("Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
           "Find the flakes in each micrograph, count their layers with a probability,\n"
           "estimate the Fermi level where the colours constrain it and fit the oxide\n"
           "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
-          "STEM.contrast.svg per image (and catalog.json/.csv for several images).\n\n"
+          "STEM.contrast.svg per image; for several images also catalog.json,\n"
+          "catalog.csv and contact-sheet.png (the top candidates).\n\n"
           "  --setup FILE          setup profile (lamina-setup/1)\n"
           "  --oxide NM            nominal SiO2 thickness\n"
           "  --um-per-px X         pixel size at the sample\n"
@@ -31,8 +37,12 @@ static void analyze_help(FILE *out)
           "  --no-oxide-fit        keep the nominal oxide\n"
           "  --fermi EV            Fermi level of the ladder (default from the setup)\n"
           "  --encoding E          srgb, linear or a gamma value (default: from the file)\n"
+          "  --list FILE           also analyse the images listed in FILE (one path a line)\n"
+          "  --positions FILE.csv  file,x_um,y_um[,rotation_deg]: stage position of each tile\n"
+          "  --resume              skip images whose results exist for the same input and setup\n"
+          "  --shard I/N           analyse only the I-th of N deterministic parts of the inputs\n"
           "  --out DIR             output folder (default lamina-out)\n"
-          "  --threads N           images analysed in parallel (default: all cores)\n"
+          "  --threads N           worker threads (default: all cores)\n"
           "  --quiet, --verbose\n\n"
           "Layer counts are model estimates: confirm by Raman or AFM before fabrication.\n",
           out);
@@ -41,28 +51,30 @@ static void analyze_help(FILE *out)
 typedef struct job {
     const char *path;
     char stem[512];
+    char hash[32];
     lam_analysis *a;
+    cJSON *json;        /* the analysis as written (or as read back on --resume) */
     lam_error err;
-    int failed;
+    int failed, resumed;
 } job;
 
 typedef struct pool {
     job *jobs;
-    size_t count, next;
+    size_t count, next, done;
     pthread_mutex_t lock;
     const lam_setup *setup;
     const lam_analysis_options *opt;
     const char *out_dir;
+    const char *setup_hash;
+    int progress, resume;
+    double t0;
 } pool;
 
-static void stem_of(const char *path, char *stem, size_t n)
+static double now_s(void)
 {
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    snprintf(stem, n, "%s", base);
-    char *dot = strrchr(stem, '.');
-    if (dot && dot != stem)
-        *dot = '\0';
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
 typedef struct annot_job {
@@ -80,8 +92,9 @@ static void *write_annotated_thread(void *arg)
 }
 
 /* The annotated image (the largest file) is encoded on a second thread
- * while the layer map, plot and JSON are written. */
-static lam_status write_reports(const job *j, const char *dir, lam_error *err)
+ * while the layer map, plot and JSON are written; the JSON goes last, so
+ * its presence means the image's results are complete (--resume). */
+static lam_status write_reports(job *j, const char *dir, lam_error *err)
 {
     char p[4096];
     lam_status st;
@@ -106,8 +119,46 @@ static lam_status write_reports(const job *j, const char *dir, lam_error *err)
     snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, j->stem);
     if ((st = lam_report_write_svg(j->a, p, err)))
         return st;
+    j->json = lam_report_json(j->a);
+    char *text = j->json ? cJSON_Print(j->json) : NULL;
+    if (!text)
+        return lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
     snprintf(p, sizeof p, "%s/%s.json", dir, j->stem);
-    return lam_report_write_json(j->a, p, err);
+    size_t n = strlen(text);
+    text[n] = '\n';
+    st = lam_outfile_write_buffer(p, text, n + 1, err);
+    free(text);
+    return st;
+}
+
+/* --resume: the existing JSON counts when both hashes match. */
+static cJSON *existing_result(const pool *P, const job *j)
+{
+    char p[4096];
+    snprintf(p, sizeof p, "%s/%s.json", P->out_dir, j->stem);
+    cJSON *root = cli_read_json(p);
+    if (!root)
+        return NULL;
+    const cJSON *img = cJSON_GetObjectItemCaseSensitive(root, "image");
+    const cJSON *h = cJSON_GetObjectItemCaseSensitive(img, "content_hash");
+    const cJSON *sh = cJSON_GetObjectItemCaseSensitive(root, "setup_hash");
+    if (cJSON_IsString(h) && cJSON_IsString(sh) && !strcmp(h->valuestring, j->hash) &&
+        !strcmp(sh->valuestring, P->setup_hash))
+        return root;
+    cJSON_Delete(root);
+    return NULL;
+}
+
+static void progress(pool *P)
+{
+    if (!P->progress)
+        return;
+    double dt = now_s() - P->t0, rate = dt > 0 ? (double)P->done / dt : 0;
+    double left = rate > 0 ? (double)(P->count - P->done) / rate : 0;
+    fprintf(stderr, "\r%zu/%zu images, %.2f/s, %.0f s left   ", P->done, P->count, rate, left);
+    if (P->done == P->count)
+        fputc('\n', stderr);
+    fflush(stderr);
 }
 
 static void *worker(void *arg)
@@ -121,28 +172,35 @@ static void *worker(void *arg)
             return NULL;
         job *j = &P->jobs[i];
         lam_error_clear(&j->err);
-        if (lam_analyze(j->path, P->setup, P->opt, &j->a, &j->err) ||
-            write_reports(j, P->out_dir, &j->err)) {
+        if (cli_hash_file(j->path, j->hash, sizeof j->hash)) {
             j->failed = 1;
+            lam_error_set(&j->err, LAM_EIO, "cannot read the file");
             lam_error_set_file(&j->err, j->path);
+        } else if (P->resume && (j->json = existing_result(P, j))) {
+            j->resumed = 1;
+        } else if (lam_analyze(j->path, P->setup, P->opt, &j->a, &j->err)) {
+            j->failed = 1;
+        } else {
+            snprintf(j->a->content_hash, sizeof j->a->content_hash, "%s", j->hash);
+            snprintf(j->a->setup_hash, sizeof j->a->setup_hash, "%s", P->setup_hash);
+            if (write_reports(j, P->out_dir, &j->err)) {
+                j->failed = 1;
+                lam_error_set_file(&j->err, j->path);
+            }
         }
-        if (!j->failed && cli_verbose) {
+        pthread_mutex_lock(&P->lock);
+        P->done++;
+        if (!j->failed && !j->resumed && cli_verbose) {
             static const char *names[LAM_T_COUNT] = {"load", "display", "substrate", "contrast",
                                                      "model", "segment", "oxide", "regions"};
-            pthread_mutex_lock(&P->lock);
             fprintf(stderr, "lamina: %s: stage end times (s):", j->path);
             for (int k = 0; k < LAM_T_COUNT; k++)
                 fprintf(stderr, " %s %.3f", names[k], j->a->seconds[k]);
             fputc('\n', stderr);
-            pthread_mutex_unlock(&P->lock);
         }
-        if (!j->failed && !cli_quiet) {
-            pthread_mutex_lock(&P->lock);
-            fprintf(stderr, "lamina: %s: %zu region(s), oxide %.1f nm%s\n", j->path, j->a->count,
-                    j->a->oxide.estimate, j->a->oxide.fitted ? " (fitted)" : " (nominal)");
-            pthread_mutex_unlock(&P->lock);
-        }
-        /* keep only what the catalogue needs: free the big buffers now */
+        progress(P);
+        pthread_mutex_unlock(&P->lock);
+        /* keep only what the summary needs: the big buffers go now */
         if (j->a) {
             free(j->a->display);
             j->a->display = NULL;
@@ -150,114 +208,6 @@ static void *worker(void *arg)
     }
 }
 
-/* Candidates first: monolayers by usable area, then bilayers, ... */
-typedef struct cat_row {
-    size_t job, region;
-    int rank_layers;
-    double usable;
-} cat_row;
-
-static int cmp_rows(const void *x, const void *y)
-{
-    const cat_row *a = x, *b = y;
-    if (a->rank_layers != b->rank_layers)
-        return a->rank_layers - b->rank_layers;
-    if (a->usable != b->usable)
-        return a->usable < b->usable ? 1 : -1;
-    if (a->job != b->job)
-        return a->job < b->job ? -1 : 1;
-    return a->region < b->region ? -1 : (a->region > b->region);
-}
-
-static int write_catalog(const pool *P, lam_error *err)
-{
-    size_t n = 0;
-    for (size_t i = 0; i < P->count; i++)
-        if (!P->jobs[i].failed)
-            n += P->jobs[i].a->count;
-    cat_row *rows = malloc((n ? n : 1) * sizeof *rows);
-    if (!rows) {
-        lam_error_set(err, LAM_ENOMEM, "cannot allocate the catalogue");
-        return -1;
-    }
-    size_t k = 0;
-    for (size_t i = 0; i < P->count; i++) {
-        const job *j = &P->jobs[i];
-        if (j->failed)
-            continue;
-        for (size_t r = 0; r < j->a->count; r++) {
-            const lam_region_result *res = &j->a->results[r];
-            rows[k].job = i;
-            rows[k].region = r;
-            rows[k].rank_layers = res->layers > 0 ? res->layers : (res->thick ? 100 : 101);
-            rows[k].usable = (double)res->usable_px[0] * (double)res->usable_px[1];
-            k++;
-        }
-    }
-    qsort(rows, n, sizeof *rows, cmp_rows);
-    char path[4096];
-    snprintf(path, sizeof path, "%s/catalog.csv", P->out_dir);
-    lam_outfile of;
-    if (lam_outfile_open(&of, path, err)) {
-        free(rows);
-        return -1;
-    }
-    fprintf(of.fp, "image,region,label,layers,probability,area_px,area_um2,usable_w_um,usable_h_um,"
-                   "centroid_x,centroid_y,flags\n");
-    cJSON *root = cJSON_CreateObject();
-    cJSON_AddStringToObject(root, "schema", "lamina-catalog/1");
-    cJSON *arr = cJSON_AddArrayToObject(root, "regions");
-    for (size_t i = 0; i < n; i++) {
-        const job *j = &P->jobs[rows[i].job];
-        const lam_region_result *r = &j->a->results[rows[i].region];
-        const lam_region_stats *s = &j->a->seg->regions[rows[i].region];
-        double u = j->a->um_per_px, prob = r->layers > 0 ? r->p[r->layers]
-                                                          : r->p[j->a->max_layers + 1];
-        char flags[128] = "";
-        static const char *fn[] = {"ambiguous", "unmodelled", "saturated", "touches_border", "small"};
-        for (int f = 0; f < 5; f++)
-            if (r->flags & (1u << f)) {
-                if (flags[0])
-                    strcat(flags, ";");
-                strcat(flags, fn[f]);
-            }
-        double cx = s->sx / (double)s->area, cy = s->sy / (double)s->area;
-        fprintf(of.fp, "%s,%u,%s,%d,%.4f,%zu,", j->path, s->id, r->label, r->layers, prob, s->area);
-        if (u > 0)
-            fprintf(of.fp, "%.3f,%.3f,%.3f,", (double)s->area * u * u, r->usable_px[0] * u,
-                    r->usable_px[1] * u);
-        else
-            fprintf(of.fp, ",,,");
-        fprintf(of.fp, "%.1f,%.1f,%s\n", cx, cy, flags);
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "image", j->path);
-        cJSON_AddNumberToObject(o, "region", s->id);
-        cJSON_AddStringToObject(o, "label", r->label);
-        cJSON_AddItemToObject(o, "layers", r->layers > 0 ? cJSON_CreateNumber(r->layers) : cJSON_CreateNull());
-        cJSON_AddNumberToObject(o, "probability", round(prob * 1e4) / 1e4);
-        cJSON_AddNumberToObject(o, "area_px", (double)s->area);
-        double upx[2] = {(double)r->usable_px[0], (double)r->usable_px[1]};
-        cJSON_AddItemToObject(o, "usable_rect_px", cJSON_CreateDoubleArray(upx, 2));
-        double c2[2] = {cx, cy};
-        cJSON_AddItemToObject(o, "centroid", cJSON_CreateDoubleArray(c2, 2));
-        cJSON_AddStringToObject(o, "flags", flags);
-        cJSON_AddItemToArray(arr, o);
-    }
-    free(rows);
-    if (lam_outfile_commit(&of, err)) {
-        cJSON_Delete(root);
-        return -1;
-    }
-    char *text = cJSON_Print(root);
-    cJSON_Delete(root);
-    snprintf(path, sizeof path, "%s/catalog.json", P->out_dir);
-    int rc = !text || lam_outfile_write_buffer(path, text, strlen(text), err) ? -1 : 0;
-    free(text);
-    return rc;
-}
-
-/* The short table on stdout: regions by layer count per image, then the
- * monolayer candidates with area, usable rectangle and position. */
 static void print_summary(const pool *P)
 {
     printf("%-28s %5s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
@@ -266,6 +216,10 @@ static void print_summary(const pool *P)
         const job *j = &P->jobs[i];
         if (j->failed) {
             printf("%-28.28s failed\n", j->stem);
+            continue;
+        }
+        if (j->resumed) {
+            printf("%-28.28s (resumed: results kept)\n", j->stem);
             continue;
         }
         size_t by[5] = {0}, thick = 0, other = 0;
@@ -288,7 +242,7 @@ static void print_summary(const pool *P)
            "centroid px");
     for (size_t i = 0; i < P->count; i++) {
         const job *j = &P->jobs[i];
-        if (j->failed)
+        if (j->failed || j->resumed)
             continue;
         double u = j->a->um_per_px;
         for (size_t r = 0; r < j->a->count; r++) {
@@ -331,6 +285,41 @@ static int parse_roi(const char *text, size_t roi[4])
     return 0;
 }
 
+static int parse_shard(const char *text, size_t *index, size_t *of)
+{
+    unsigned long a, b;
+    char tail;
+    if (sscanf(text, "%lu/%lu%c", &a, &b, &tail) != 2 || b < 1 || a < 1 || a > b || b > 100000)
+        return -1;
+    *index = (size_t)a;
+    *of = (size_t)b;
+    return 0;
+}
+
+static int catalog_outputs(const pool *P, const lam_positions *pos, lam_error *err)
+{
+    lam_catalog cat;
+    lam_catalog_init(&cat);
+    lam_status st = LAM_OK;
+    for (size_t i = 0; i < P->count && !st; i++) {
+        const job *j = &P->jobs[i];
+        if (j->failed || !j->json)
+            continue;
+        st = lam_catalog_add(&cat, j->json, j->path, lam_positions_find(pos, j->path), err);
+    }
+    if (!st) {
+        lam_catalog_finish(&cat);
+        st = lam_catalog_write(&cat, P->out_dir, err);
+    }
+    if (!st) {
+        char path[4096];
+        snprintf(path, sizeof path, "%s/contact-sheet.png", P->out_dir);
+        st = lam_catalog_contact_sheet(&cat, path, 16, err);
+    }
+    lam_catalog_clear(&cat);
+    return st ? -1 : 0;
+}
+
 static int run_analyze(int argc, char **argv)
 {
     static const struct option longopts[] = {
@@ -342,14 +331,17 @@ static int run_analyze(int argc, char **argv)
         {"out", required_argument, 0, 'O'},       {"threads", required_argument, 0, 'j'},
         {"max-megapixels", required_argument, 0, 'm'}, {"quiet", no_argument, 0, 'q'},
         {"verbose", no_argument, 0, 'v'},         {"na", required_argument, 0, 'n'},
+        {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
+        {"resume", no_argument, 0, 'R'},          {"shard", required_argument, 0, 'S'},
         {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     lam_analysis_options opt = lam_analysis_options_default();
-    const char *out_dir = "lamina-out";
-    long threads = sysconf(_SC_NPROCESSORS_ONLN), K = 6;
+    const char *out_dir = "lamina-out", *list = NULL, *positions = NULL;
+    long threads = (long)lam_cpu_count(), K = 6;
     double area = -1;
-    int c;
+    size_t shard = 0, shards = 0;
+    int c, resume = 0;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
@@ -382,36 +374,73 @@ static int run_analyze(int argc, char **argv)
         }
         case 'q': cli_quiet = 1; break;
         case 'v': cli_verbose = 1; break;
+        case 'L': list = optarg; break;
+        case 'P': positions = optarg; break;
+        case 'R': resume = 1; break;
+        case 'S':
+            if (parse_shard(optarg, &shard, &shards))
+                return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
+            break;
         default: return cli_usage_error("analyze", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
-    if (optind >= argc)
-        return cli_usage_error("analyze", "no image given");
-    opt.max_layers = (size_t)K;
-    lam_setup s;
-    int rc = cli_setup_build("analyze", &so, &s);
+    cli_inputs in;
+    int rc = cli_inputs_collect(&in, argc - optind, argv + optind, list);
     if (rc)
         return rc;
+    if (shards)
+        cli_inputs_shard(&in, shard, shards);
+    if (in.count == 0) {
+        cli_inputs_free(&in);
+        return shards ? CLI_OK : cli_usage_error("analyze", "no image given");
+    }
+    opt.max_layers = (size_t)K;
+    lam_setup s;
+    if ((rc = cli_setup_build("analyze", &so, &s))) {
+        cli_inputs_free(&in);
+        return rc;
+    }
     if (area >= 0) {
         opt.min_area_um2 = area;
         opt.min_area_px = area;
     }
+    lam_positions pos = {0, NULL};
+    lam_error err;
+    lam_error_clear(&err);
+    if (positions && !(s.um_per_px > 0)) {
+        lam_setup_clear(&s);
+        cli_inputs_free(&in);
+        return cli_usage_error("analyze", "--positions needs the pixel size: give --um-per-px or "
+                                          "um_per_px in the setup");
+    }
+    if (positions && lam_positions_load(positions, &pos, &err)) {
+        rc = cli_report(&err, positions);
+        lam_setup_clear(&s);
+        cli_inputs_free(&in);
+        return rc;
+    }
     if (cli_make_dir(out_dir)) {
         lam_setup_clear(&s);
+        cli_inputs_free(&in);
+        lam_positions_clear(&pos);
         return CLI_EFILE;
     }
+    char setup_hash[32];
+    cli_setup_hash(so.setup_file, &opt, &so, setup_hash, sizeof setup_hash);
     pool P;
     memset(&P, 0, sizeof P);
-    P.count = (size_t)(argc - optind);
+    P.count = in.count;
     P.jobs = calloc(P.count, sizeof *P.jobs);
     if (!P.jobs) {
         lam_setup_clear(&s);
+        cli_inputs_free(&in);
+        lam_positions_clear(&pos);
         fprintf(stderr, "lamina: out of memory\n");
         return CLI_EFILE;
     }
     for (size_t i = 0; i < P.count; i++) {
-        P.jobs[i].path = argv[optind + (int)i];
-        stem_of(P.jobs[i].path, P.jobs[i].stem, sizeof P.jobs[i].stem);
+        P.jobs[i].path = in.paths[i];
+        cli_stem_of(P.jobs[i].path, P.jobs[i].stem, sizeof P.jobs[i].stem);
     }
     /* threads go across images first, the rest inside each image */
     size_t outer = (size_t)threads < P.count ? (size_t)threads : P.count;
@@ -421,11 +450,14 @@ static int run_analyze(int argc, char **argv)
     P.setup = &s;
     P.opt = &opt;
     P.out_dir = out_dir;
+    P.setup_hash = setup_hash;
+    P.resume = resume;
+    P.progress = !cli_quiet && P.count > 1 && isatty(STDERR_FILENO);
+    P.t0 = now_s();
     pthread_mutex_init(&P.lock, NULL);
-    size_t nt = (size_t)threads < P.count ? (size_t)threads : P.count;
-    pthread_t *tid = calloc(nt, sizeof *tid);
+    pthread_t *tid = calloc(outer, sizeof *tid);
     size_t started = 0;
-    for (size_t t = 0; tid && t < nt; t++)
+    for (size_t t = 0; tid && t < outer; t++)
         if (!pthread_create(&tid[t], NULL, worker, &P))
             started++;
     if (!started)
@@ -441,17 +473,20 @@ static int run_analyze(int argc, char **argv)
         }
     if (!cli_quiet)
         print_summary(&P);
-    if (P.count > 1) {
-        lam_error err;
+    if (P.count > 1 || positions) {
         lam_error_clear(&err);
-        if (write_catalog(&P, &err))
+        if (catalog_outputs(&P, positions ? &pos : NULL, &err))
             rc = cli_report(&err, out_dir);
     }
-    for (size_t i = 0; i < P.count; i++)
+    for (size_t i = 0; i < P.count; i++) {
         lam_analysis_free(P.jobs[i].a);
+        cJSON_Delete(P.jobs[i].json);
+    }
     free(P.jobs);
     pthread_mutex_destroy(&P.lock);
     lam_setup_clear(&s);
+    lam_positions_clear(&pos);
+    cli_inputs_free(&in);
     if (failed)
         rc = CLI_EFILE;
     return rc;

@@ -1,0 +1,225 @@
+/* cli/inputs.c - batch inputs: files, folders, list files, shards; output
+ * stems; FNV-1a content hashes for --resume. */
+#include "inputs.h"
+#include "cli.h"
+
+#include <dirent.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+#include <cjson/cJSON.h>
+#include "lamina/version.h"
+
+static int add(cli_inputs *in, const char *path)
+{
+    if (in->count == in->cap) {
+        size_t nc = in->cap ? in->cap * 2 : 64;
+        char **np = realloc(in->paths, nc * sizeof *np);
+        if (!np)
+            return -1;
+        in->paths = np;
+        in->cap = nc;
+    }
+    if (!(in->paths[in->count] = strdup(path)))
+        return -1;
+    in->count++;
+    return 0;
+}
+
+static int is_image_name(const char *name)
+{
+    const char *dot = strrchr(name, '.');
+    return dot && (!strcasecmp(dot, ".png") || !strcasecmp(dot, ".jpg") || !strcasecmp(dot, ".jpeg"));
+}
+
+static int cmp_str(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+static int add_folder(cli_inputs *in, const char *dir)
+{
+    DIR *d = opendir(dir);
+    if (!d) {
+        fprintf(stderr, "lamina: %s: cannot read the folder\n", dir);
+        return CLI_EFILE;
+    }
+    size_t first = in->count;
+    struct dirent *e;
+    while ((e = readdir(d))) {
+        if (e->d_name[0] == '.' || !is_image_name(e->d_name) || strstr(e->d_name, ".annotated.") ||
+            strstr(e->d_name, ".layers.") || strstr(e->d_name, ".truth."))
+            continue;
+        char p[4096];
+        size_t dl = strlen(dir);
+        snprintf(p, sizeof p, "%.*s/%s", (int)(dl > 1 && dir[dl - 1] == '/' ? dl - 1 : dl), dir,
+                 e->d_name);
+        if (add(in, p)) {
+            closedir(d);
+            fprintf(stderr, "lamina: out of memory\n");
+            return CLI_EFILE;
+        }
+    }
+    closedir(d);
+    qsort(in->paths + first, in->count - first, sizeof *in->paths, cmp_str);
+    return 0;
+}
+
+static int add_list(cli_inputs *in, const char *list)
+{
+    FILE *fp = fopen(list, "r");
+    if (!fp) {
+        fprintf(stderr, "lamina: %s: cannot open the list\n", list);
+        return CLI_EFILE;
+    }
+    char dir[2048];
+    snprintf(dir, sizeof dir, "%s", list);
+    char *slash = strrchr(dir, '/');
+    if (slash)
+        *slash = '\0';
+    else
+        snprintf(dir, sizeof dir, ".");
+    char line[4096];
+    while (fgets(line, sizeof line, fp)) {
+        line[strcspn(line, "\r\n")] = '\0';
+        if (!line[0] || line[0] == '#')
+            continue;
+        char p[6200];
+        if (line[0] == '/')
+            snprintf(p, sizeof p, "%s", line);
+        else
+            snprintf(p, sizeof p, "%s/%s", dir, line);
+        if (add(in, p)) {
+            fclose(fp);
+            fprintf(stderr, "lamina: out of memory\n");
+            return CLI_EFILE;
+        }
+    }
+    fclose(fp);
+    return 0;
+}
+
+int cli_inputs_collect(cli_inputs *in, int argc, char **argv, const char *list)
+{
+    memset(in, 0, sizeof *in);
+    int rc = 0;
+    for (int i = 0; i < argc && !rc; i++) {
+        struct stat sb;
+        if (stat(argv[i], &sb) == 0 && S_ISDIR(sb.st_mode))
+            rc = add_folder(in, argv[i]);
+        else if (add(in, argv[i]))
+            rc = CLI_EFILE;
+    }
+    if (!rc && list)
+        rc = add_list(in, list);
+    /* two inputs with the same stem would overwrite each other's results */
+    for (size_t i = 0; !rc && i < in->count; i++)
+        for (size_t j = i + 1; j < in->count; j++) {
+            char a[512], b[512];
+            cli_stem_of(in->paths[i], a, sizeof a);
+            cli_stem_of(in->paths[j], b, sizeof b);
+            if (!strcmp(a, b)) {
+                rc = cli_usage_error("analyze", "%s and %s would both write %s.*: rename one",
+                                     in->paths[i], in->paths[j], a);
+                break;
+            }
+        }
+    if (rc)
+        cli_inputs_free(in);
+    return rc;
+}
+
+void cli_inputs_shard(cli_inputs *in, size_t index, size_t of)
+{
+    size_t k = 0;
+    for (size_t i = 0; i < in->count; i++) {
+        if (i % of == index - 1)
+            in->paths[k++] = in->paths[i];
+        else
+            free(in->paths[i]);
+    }
+    in->count = k;
+}
+
+void cli_inputs_free(cli_inputs *in)
+{
+    for (size_t i = 0; i < in->count; i++)
+        free(in->paths[i]);
+    free(in->paths);
+    memset(in, 0, sizeof *in);
+}
+
+void cli_stem_of(const char *path, char *stem, size_t n)
+{
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    snprintf(stem, n, "%s", base);
+    char *dot = strrchr(stem, '.');
+    if (dot && dot != stem)
+        *dot = '\0';
+}
+
+static uint64_t fnv1a(uint64_t h, const unsigned char *p, size_t n)
+{
+    for (size_t i = 0; i < n; i++) {
+        h ^= p[i];
+        h *= 1099511628211ull;
+    }
+    return h;
+}
+
+int cli_hash_file(const char *path, char *out, size_t n)
+{
+    FILE *fp = fopen(path, "rb");
+    if (!fp)
+        return -1;
+    unsigned char buf[65536];
+    uint64_t h = 1469598103934665603ull;
+    size_t k;
+    while ((k = fread(buf, 1, sizeof buf, fp)) > 0)
+        h = fnv1a(h, buf, k);
+    int bad = ferror(fp);
+    fclose(fp);
+    snprintf(out, n, "fnv1a64:%016llx", (unsigned long long)h);
+    return bad ? -1 : 0;
+}
+
+void cli_setup_hash(const char *setup_file, const lam_analysis_options *opt,
+                    const cli_setup_opts *so, char *out, size_t n)
+{
+    uint64_t h = 1469598103934665603ull;
+    if (setup_file) {
+        char fh[32];
+        if (cli_hash_file(setup_file, fh, sizeof fh) == 0)
+            h = fnv1a(h, (const unsigned char *)fh, strlen(fh));
+    }
+    char opts[512];
+    snprintf(opts, sizeof opts, "ox=%.6g na=%.6g mu=%.6g um=%.6g K=%zu area=%.6g/%.6g roi=%d:%zu,%zu,%zu,%zu "
+             "tol=%.6g fit=%d,%d enc=%d:%.6g v=%s",
+             so->oxide_nm, so->na, so->fermi_ev, so->um_per_px, opt->max_layers, opt->min_area_um2,
+             opt->min_area_px, opt->substrate.has_roi, opt->substrate.roi[0], opt->substrate.roi[1],
+             opt->substrate.roi[2], opt->substrate.roi[3], opt->oxide_tolerance_nm, opt->fit_oxide,
+             opt->fit_fermi, (int)opt->load.transfer.kind, opt->load.transfer.gamma, LAMINA_VERSION);
+    h = fnv1a(h, (const unsigned char *)opts, strlen(opts));
+    snprintf(out, n, "fnv1a64:%016llx", (unsigned long long)h);
+}
+
+cJSON *cli_read_json(const char *path)
+{
+    FILE *fp = fopen(path, "rb");
+    if (!fp)
+        return NULL;
+    const size_t cap = 64u << 20;
+    char *buf = malloc(cap);
+    size_t n = buf ? fread(buf, 1, cap - 1, fp) : 0;
+    fclose(fp);
+    if (!buf)
+        return NULL;
+    buf[n] = '\0';
+    cJSON *root = cJSON_Parse(buf);
+    free(buf);
+    return root;
+}
