@@ -140,6 +140,7 @@ fuzz: deps
 bench: $(BIN) $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do $$b || exit 1; done
 	@sh bench/bench_analyze.sh $(BUILD)
+	@sh bench/bench_batch.sh $(BUILD)
 
 install: $(BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/lamina/calib \

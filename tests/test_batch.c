@@ -167,5 +167,13 @@ int main(void)
     snprintf(a, sizeof a, "%s/catalog.json", outA);
     snprintf(b, sizeof b, "%s/catalog.json", outC);
     check_true(same_file(a, b), "catalogue identical with 1 and 2 threads");
+    /* two shards merged give the same catalogue as one run */
+    snprintf(cmd, sizeof cmd, "for i in 1 2; do %s/lamina analyze --quiet --um-per-px 0.2 --shard $i/2 "
+             "--out %s/shard$i %s || exit 1; done; %s/lamina catalog merge --quiet --positions "
+             "%s/positions.csv --out %s/merged %s/shard1 %s/shard2", bin_dir, check_tmpdir(), dir,
+             bin_dir, dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
+    check_int(system(cmd), 0, "two shards and a merge");
+    snprintf(b, sizeof b, "%s/merged/catalog.json", check_tmpdir());
+    check_true(same_file(a, b), "merged shards give the catalogue of a single run");
     return check_summary();
 }

@@ -12,6 +12,7 @@ static const cli_command *const commands[] = {
     &cli_analyze,
     &cli_predict,
     &cli_oxide,
+    &cli_catalog,
     &cli_inspect,
     &cli_map,
     &cli_render,
