@@ -176,7 +176,10 @@ lam_status lam_table_spectrum_load(const char *path, size_t columns,
         lam_error_set_file(err, path);
         return LAM_EIO;
     }
-    lam_table_spectrum t = {0, columns, NULL, NULL};
+    lam_table_spectrum t;
+    memset(&t, 0, sizeof t);
+    t.columns = columns;
+    snprintf(t.file, sizeof t.file, "%s", path);
     size_t cap = 0, lineno = 0;
     int header = 0;
     char line[1024];

@@ -225,6 +225,8 @@ lam_status lam_material_load_csv(const char *path, lam_material *out, lam_error 
             const char *base = strrchr(path, '/');
             st = lam_material_from_table(base ? base + 1 : path, wl, wl + rows, wl + 2 * rows,
                                          rows, out, err);
+            if (!st)
+                snprintf(out->file, sizeof out->file, "%s", path);
             free(wl);
         }
     }

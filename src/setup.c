@@ -8,6 +8,7 @@
 #include <string.h>
 #include <strings.h>
 #include <cjson/cJSON.h>
+#include "lamina/outfile.h"
 
 static const char *const all_keys[] = {
     "objective.na", "objective.illumination_na", "objective.pupil_weight",
@@ -502,4 +503,89 @@ lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err)
     s->layer_nm[i] = nm;
     mark_given(s, "substrate.stack");
     return LAM_OK;
+}
+
+static cJSON *material_json(const lam_material *m)
+{
+    if (m->file[0]) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "file", m->file);
+        return o;
+    }
+    return cJSON_CreateString(m->name);
+}
+
+lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *extra,
+                          lam_error *err)
+{
+    cJSON *root = cJSON_CreateObject();
+    cJSON_AddStringToObject(root, "schema", "lamina-setup/1");
+    cJSON *ob = cJSON_AddObjectToObject(root, "objective");
+    cJSON_AddNumberToObject(ob, "na", s->objective_na);
+    cJSON_AddNumberToObject(ob, "illumination_na", s->illumination_na);
+    cJSON_AddStringToObject(ob, "pupil_weight", s->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos");
+    cJSON_AddItemToObject(ob, "immersion", material_json(&s->ambient));
+    cJSON *il = cJSON_AddObjectToObject(root, "illuminant");
+    static const char *ik[] = {"blackbody", "cie-a", "led-white", "flat", "table"};
+    cJSON_AddStringToObject(il, "kind", ik[s->illuminant.kind]);
+    if (s->illuminant.kind == LAM_ILLUM_BLACKBODY)
+        cJSON_AddNumberToObject(il, "kelvin", s->illuminant.kelvin);
+    if (s->illuminant.kind == LAM_ILLUM_TABLE)
+        cJSON_AddStringToObject(il, "file", s->illuminant.table.file);
+    cJSON *cam = cJSON_AddObjectToObject(root, "camera");
+    static const char *ck[] = {"srgb-observer", "gaussian", "table", "gaussian"};
+    cJSON_AddStringToObject(cam, "kind", ck[s->camera.kind]);
+    if (s->camera.kind == LAM_CAMERA_GAUSSIAN) {
+        cJSON *ch = cJSON_AddArrayToObject(cam, "channels");
+        for (int c = 0; c < 3; c++) {
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddNumberToObject(o, "centre_nm", round(s->camera.centre_nm[c] * 10) / 10);
+            cJSON_AddNumberToObject(o, "fwhm_nm", round(s->camera.fwhm_nm[c] * 10) / 10);
+            cJSON_AddItemToArray(ch, o);
+        }
+    }
+    if (s->camera.kind == LAM_CAMERA_TABLE)
+        cJSON_AddStringToObject(cam, "file", s->camera.table.file);
+    if (s->encoding.kind == LAM_TRANSFER_GAMMA) {
+        cJSON *g = cJSON_AddObjectToObject(root, "encoding");
+        cJSON_AddNumberToObject(g, "gamma", s->encoding.gamma);
+    } else {
+        cJSON_AddStringToObject(root, "encoding", s->encoding.kind == LAM_TRANSFER_LINEAR ? "linear" : "srgb");
+    }
+    if (s->um_per_px > 0)
+        cJSON_AddNumberToObject(root, "um_per_px", s->um_per_px);
+    else
+        cJSON_AddNullToObject(root, "um_per_px");
+    cJSON *sub = cJSON_AddObjectToObject(root, "substrate");
+    cJSON *st = cJSON_AddArrayToObject(sub, "stack");
+    for (size_t i = 0; i < s->layers; i++) {
+        cJSON *L = cJSON_CreateObject();
+        cJSON_AddItemToObject(L, "material", material_json(&s->layer_material[i]));
+        cJSON_AddNumberToObject(L, "thickness_nm", round(s->layer_nm[i] * 100) / 100);
+        cJSON_AddItemToArray(st, L);
+    }
+    cJSON_AddItemToObject(sub, "base", material_json(&s->base));
+    cJSON_AddStringToObject(root, "material", s->flake);
+    cJSON_AddNumberToObject(root, "temperature_K", s->sheet.temperature_k);
+    cJSON_AddNumberToObject(root, "fermi_eV", s->sheet.fermi_ev);
+    cJSON *co = cJSON_AddObjectToObject(root, "conductivity");
+    cJSON_AddStringToObject(co, "model", s->flake_as_film ? "film" : s->sheet.model == LAM_SHEET_KUBO ? "kubo" : "universal");
+    if (s->flake_as_film)
+        cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
+    cJSON_AddNumberToObject(co, "scattering_eV", s->sheet.scattering_ev);
+    cJSON_AddNumberToObject(co, "puddle_eV", s->sheet.puddle_ev);
+    cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
+    cJSON *sp = cJSON_AddObjectToObject(root, "spectrum");
+    cJSON_AddNumberToObject(sp, "min_nm", s->grid_lo_nm);
+    cJSON_AddNumberToObject(sp, "max_nm", s->grid_hi_nm);
+    cJSON_AddNumberToObject(sp, "step_nm", s->grid_step_nm);
+    if (extra)
+        cJSON_AddItemToObject(root, "calibration", cJSON_Duplicate(extra, 1));
+    char *text = cJSON_Print(root);
+    cJSON_Delete(root);
+    if (!text)
+        return lam_error_set(err, LAM_ENOMEM, "cannot format the setup");
+    lam_status r = lam_outfile_write_buffer(path, text, strlen(text), err);
+    free(text);
+    return r;
 }

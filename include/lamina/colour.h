@@ -52,6 +52,7 @@ typedef enum lam_camera_kind {
 typedef struct lam_table_spectrum {
     size_t rows, columns;
     double *nm, *value; /* value[row * columns + col] */
+    char file[512];     /* where it was read from */
 } lam_table_spectrum;
 
 typedef struct lam_illuminant {

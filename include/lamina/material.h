@@ -58,6 +58,7 @@ typedef struct lam_material {
     double *energy_ev, *n, *k;
     void *spline_n, *spline_k;      /* gsl_spline*, owned */
     const char *source;             /* citation for reports */
+    char file[512];                 /* the CSV it was read from, or "" */
 } lam_material;
 
 /* Fill *out with a built-in material by (case-insensitive) name. */

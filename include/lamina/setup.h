@@ -73,6 +73,13 @@ lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err);
 double lam_setup_oxide(const lam_setup *s);
 size_t lam_setup_oxide_layer(const lam_setup *s); /* index, or layers if none */
 
+/* Write the setup as lamina-setup/1 JSON (atomically). Built-in materials
+ * are written by name, tables by the path they were read from. 'extra' (may
+ * be NULL) is a cJSON object added under the key "calibration". */
+struct cJSON;
+lam_status lam_setup_save(const lam_setup *s, const char *path, const struct cJSON *extra,
+                          lam_error *err);
+
 /* Was a key taken from the defaults? */
 int lam_setup_is_default(const lam_setup *s, const char *key);
 

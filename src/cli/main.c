@@ -13,6 +13,7 @@ static const cli_command *const commands[] = {
     &cli_predict,
     &cli_oxide,
     &cli_catalog,
+    &cli_calibrate,
     &cli_inspect,
     &cli_map,
     &cli_render,

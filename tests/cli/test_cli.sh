@@ -89,5 +89,12 @@ expect_rc 0 "oxide audit with a 0.5 % tolerance" "$BIN" oxide --quiet --toleranc
 grep -q '"pass":[[:space:]]*false' "$T/ox2/oxide.json" && ok "288 nm fails a 0.5 % tolerance of 285 nm" || bad "oxide tight tolerance"
 expect_rc 2 "oxide with a bad tolerance" "$BIN" oxide --tolerance abc samples/HT285-A07-tile12.png
 
+# calibrate: labels from a rendered truth map
+expect_rc 0 "calibrate from a labelled sample" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.truth.png -o "$T/cal.json" samples/HT285-C11-tile07.png
+grep -q '"schema":[[:space:]]*"lamina-setup/1"' "$T/cal.json" && ok "calibrate writes a setup profile" || bad "calibrated profile"
+expect_rc 0 "the calibrated profile is usable" "$BIN" predict --setup "$T/cal.json"
+expect_rc 2 "calibrate needs one label file per image" "$BIN" calibrate samples/HT285-C11-tile07.png
+expect_rc 1 "calibrate with labels of the wrong size" "$BIN" calibrate --labels samples/HT285-D04-tile21.truth.png -o "$T/x.json" samples/HT285-C11-tile07.png
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
