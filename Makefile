@@ -129,7 +129,7 @@ fuzz: deps
 	@command -v clang >/dev/null || { echo "fuzzing needs clang and libclang-rt-14-dev (apt-get install clang libclang-rt-14-dev)"; exit 1; }
 	@mkdir -p build-fuzz
 	@for t in $(FUZZ_TARGETS); do \
-	  clang $(FUZZ_CFLAGS) tests/fuzz/fuzz_$$t.c tests/fuzz/targets.c $(LIB_SRC) $(LDLIBS) -o build-fuzz/fuzz_$$t || exit 1; \
+	  clang $(FUZZ_CFLAGS) -DFUZZ_TARGET=fuzz_$$t tests/fuzz/fuzz_main.c tests/fuzz/targets.c $(LIB_SRC) $(LDLIBS) -o build-fuzz/fuzz_$$t || exit 1; \
 	  mkdir -p build-fuzz/corpus-$$t tests/crashers/$$t; \
 	  build-fuzz/fuzz_$$t -max_total_time=$(FUZZ_SECONDS) -timeout=10 -rss_limit_mb=2048 -print_final_stats=1 \
 	    -artifact_prefix=tests/crashers/$$t/ build-fuzz/corpus-$$t tests/fuzz/corpus/$$t \

@@ -4,6 +4,7 @@
 #include "lamina/jpeg.h"
 #include "lamina/model.h"
 #include "lamina/png.h"
+#include "lamina/textfile.h"
 
 #include <errno.h>
 #include <math.h>
@@ -180,33 +181,13 @@ lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_
 lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
 {
     memset(s, 0, sizeof *s);
-    FILE *fp = fopen(path, "rb");
-    if (!fp) {
-        lam_error_set(err, LAM_EIO, "cannot open scene: %s", strerror(errno));
-        lam_error_set_file(err, path);
-        return LAM_EIO;
-    }
-    const size_t cap = 4u << 20;
-    char *buf = malloc(cap);
-    size_t n = buf ? fread(buf, 1, cap - 1, fp) : 0;
-    int too_big = buf && n == cap - 1 && fgetc(fp) != EOF;
-    fclose(fp);
-    lam_status st;
-    if (!buf) {
-        st = lam_error_set(err, LAM_ENOMEM, "cannot read scene");
-    } else if (too_big) {
-        st = lam_error_set(err, LAM_ETOOBIG, "scene file larger than 4 MiB");
-    } else {
-        buf[n] = '\0';
-        char dir[1024];
-        snprintf(dir, sizeof dir, "%s", path);
-        char *slash = strrchr(dir, '/');
-        if (slash)
-            *slash = '\0';
-        else
-            snprintf(dir, sizeof dir, ".");
-        st = lam_scene_parse(buf, dir, s, err);
-    }
+    char *buf = NULL;
+    lam_status st = lam_text_load(path, 4u << 20, "scene", &buf, err);
+    if (st)
+        return st;
+    char dir[1024];
+    lam_path_dir(path, dir, sizeof dir);
+    st = lam_scene_parse(buf, dir, s, err);
     free(buf);
     if (st)
         lam_error_set_file(err, path);

@@ -9,6 +9,7 @@
 #include <strings.h>
 #include <cjson/cJSON.h>
 #include "lamina/outfile.h"
+#include "lamina/textfile.h"
 
 static const char *const all_keys[] = {
     "objective.na", "objective.illumination_na", "objective.pupil_weight",
@@ -441,34 +442,15 @@ lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
 
 lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err)
 {
-    FILE *fp = fopen(path, "rb");
-    if (!fp) {
-        lam_error_set(err, LAM_EIO, "cannot open setup: %s", strerror(errno));
-        lam_error_set_file(err, path);
-        return LAM_EIO;
-    }
-    char *buf = malloc(1 << 20);
-    size_t n = buf ? fread(buf, 1, (1 << 20) - 1, fp) : 0;
-    int too_big = buf && n == (1 << 20) - 1 && fgetc(fp) != EOF;
-    fclose(fp);
-    lam_status st;
-    if (!buf) {
-        st = lam_error_set(err, LAM_ENOMEM, "cannot read setup");
-    } else if (too_big) {
-        st = lam_error_set(err, LAM_ETOOBIG, "setup file larger than 1 MiB");
-    } else {
-        buf[n] = '\0';
-        char dir[1024];
-        snprintf(dir, sizeof dir, "%s", path);
-        char *slash = strrchr(dir, '/');
-        if (slash)
-            *slash = '\0';
-        else
-            snprintf(dir, sizeof dir, ".");
-        st = lam_setup_parse(buf, dir, s, err);
-        if (!st)
-            snprintf(s->source, sizeof s->source, "%s", path);
-    }
+    char *buf = NULL;
+    lam_status st = lam_text_load(path, 1u << 20, "setup", &buf, err);
+    if (st)
+        return st;
+    char dir[1024];
+    lam_path_dir(path, dir, sizeof dir);
+    st = lam_setup_parse(buf, dir, s, err);
+    if (!st)
+        snprintf(s->source, sizeof s->source, "%s", path);
     free(buf);
     if (st)
         lam_error_set_file(err, path);

@@ -12,6 +12,7 @@
 #include <sys/stat.h>
 #include <cjson/cJSON.h>
 #include "lamina/version.h"
+#include "lamina/textfile.h"
 
 static int add(cli_inputs *in, const char *path)
 {
@@ -76,12 +77,7 @@ static int add_list(cli_inputs *in, const char *list)
         return CLI_EFILE;
     }
     char dir[2048];
-    snprintf(dir, sizeof dir, "%s", list);
-    char *slash = strrchr(dir, '/');
-    if (slash)
-        *slash = '\0';
-    else
-        snprintf(dir, sizeof dir, ".");
+    lam_path_dir(list, dir, sizeof dir);
     char line[4096];
     while (fgets(line, sizeof line, fp)) {
         line[strcspn(line, "\r\n")] = '\0';
@@ -209,16 +205,9 @@ void cli_setup_hash(const char *setup_file, const lam_analysis_options *opt,
 
 cJSON *cli_read_json(const char *path)
 {
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
+    char *buf = NULL;
+    if (lam_text_load(path, 64u << 20, "result", &buf, NULL))
         return NULL;
-    const size_t cap = 64u << 20;
-    char *buf = malloc(cap);
-    size_t n = buf ? fread(buf, 1, cap - 1, fp) : 0;
-    fclose(fp);
-    if (!buf)
-        return NULL;
-    buf[n] = '\0';
     cJSON *root = cJSON_Parse(buf);
     free(buf);
     return root;

@@ -1,6 +1,11 @@
-/* fuzz_image.c - libFuzzer harness (make fuzz). */
+/* fuzz_main.c - the libFuzzer entry, built once per target with
+ * -DFUZZ_TARGET=fuzz_<name> (make fuzz). */
 #include "targets.h"
 #include <gsl/gsl_errno.h>
+
+#ifndef FUZZ_TARGET
+#error "build with -DFUZZ_TARGET=fuzz_image (or another entry of targets.h)"
+#endif
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t n);
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t n)
@@ -10,5 +15,5 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t n)
         gsl_set_error_handler_off();
         init = 1;
     }
-    return fuzz_image(data, n);
+    return FUZZ_TARGET(data, n);
 }

@@ -1,0 +1,23 @@
+/*
+ * lamina/textfile.h - reading small text inputs (JSON profiles, scenes)
+ * whole, with a size limit, and the folder that relative paths inside them
+ * are resolved against.
+ *
+ * lam_text_load returns a NUL-terminated malloc'd buffer the caller frees.
+ */
+#ifndef LAMINA_TEXTFILE_H
+#define LAMINA_TEXTFILE_H
+
+#include <stddef.h>
+#include "lamina/error.h"
+
+/* Read all of 'path' (at most max_bytes). 'what' names the kind of file in
+ * messages ("setup", "scene"). LAM_EIO, LAM_ETOOBIG or LAM_ENOMEM; the
+ * error record names the file. */
+lam_status lam_text_load(const char *path, size_t max_bytes, const char *what, char **out,
+                         lam_error *err);
+
+/* The folder part of a path ("." when there is none). */
+void lam_path_dir(const char *path, char *dir, size_t n);
+
+#endif

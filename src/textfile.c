@@ -1,0 +1,50 @@
+/* textfile.c - whole-file reads of small text inputs, and path folders. */
+#include "lamina/textfile.h"
+
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+lam_status lam_text_load(const char *path, size_t max_bytes, const char *what, char **out,
+                         lam_error *err)
+{
+    FILE *fp = fopen(path, "rb");
+    if (!fp) {
+        lam_error_set(err, LAM_EIO, "cannot open %s: %s", what, strerror(errno));
+        lam_error_set_file(err, path);
+        return LAM_EIO;
+    }
+    char *buf = malloc(max_bytes + 1);
+    size_t n = buf ? fread(buf, 1, max_bytes, fp) : 0;
+    int too_big = buf && n == max_bytes && fgetc(fp) != EOF;
+    int bad = ferror(fp);
+    fclose(fp);
+    lam_status st = LAM_OK;
+    if (!buf)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot read %s", what);
+    else if (bad)
+        st = lam_error_set(err, LAM_EIO, "cannot read %s", what);
+    else if (too_big)
+        st = lam_error_set(err, LAM_ETOOBIG, "%s file larger than %zu bytes", what, max_bytes);
+    if (st) {
+        free(buf);
+        lam_error_set_file(err, path);
+        return st;
+    }
+    buf[n] = '\0';
+    *out = buf;
+    return LAM_OK;
+}
+
+void lam_path_dir(const char *path, char *dir, size_t n)
+{
+    snprintf(dir, n, "%s", path);
+    char *slash = strrchr(dir, '/');
+    if (slash && slash != dir)
+        *slash = '\0';
+    else if (slash)
+        slash[1] = '\0';
+    else
+        snprintf(dir, n, ".");
+}
