@@ -314,3 +314,59 @@ fail:
     lam_error_set_file(err, path);
     return st;
 }
+
+lam_status lam_reference_level(const char *path, const lam_load_options *load, double level[3],
+                               lam_error *err)
+{
+    lam_image *img = NULL;
+    lam_status st = lam_image_load(path, load, &img, err);
+    if (st)
+        return st;
+    lam_substrate sub;
+    lam_substrate_options so = lam_substrate_options_default();
+    st = lam_substrate_estimate(img, &so, &sub, err);
+    if (!st)
+        lam_substrate_eval(&sub, (double)img->width / 2, (double)img->height / 2, level);
+    lam_image_free(img);
+    if (st)
+        lam_error_set_file(err, path);
+    return st;
+}
+
+lam_status lam_oxide_absolute_profile(const lam_analysis *const *an, size_t images,
+                                      const double ref[3], const lam_setup *setup,
+                                      double stability, const double *grid, size_t n,
+                                      double *chi2, lam_error *err)
+{
+    lam_model *m = NULL;
+    lam_prediction *P = malloc(sizeof *P);
+    lam_status st = P ? lam_model_alloc_fast(setup, 1, &m, err)
+                      : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
+    double bare[3] = {0, 0, 0};
+    if (!st && !(st = lam_model_eval(m, 0.0, setup->sheet.fermi_ev, P, err)))
+        for (int c = 0; c < 3; c++)
+            bare[c] = P->substrate[c];
+    double (*q)[3] = malloc((images ? images : 1) * sizeof *q);
+    if (!st && !q)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+    for (size_t j = 0; !st && j < images; j++) {
+        double b[3];
+        lam_substrate_eval(&an[j]->substrate, (double)an[j]->width / 2, (double)an[j]->height / 2, b);
+        for (int c = 0; c < 3; c++)
+            q[j][c] = b[c] / ref[c];
+    }
+    for (size_t g = 0; g < n && !st; g++) {
+        if ((st = lam_model_eval(m, grid[g], setup->sheet.fermi_ev, P, err)))
+            break;
+        chi2[g] = 0;
+        for (size_t j = 0; j < images; j++)
+            for (int c = 0; c < 3; c++) {
+                double r = P->substrate[c] / bare[c], d = (q[j][c] - r) / (stability * q[j][c]);
+                chi2[g] += d * d;
+            }
+    }
+    free(q);
+    free(P);
+    lam_model_free(m);
+    return st;
+}

@@ -118,6 +118,10 @@ static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, 
         return st;
     s->seed = (unsigned long)seed;
     s->jpeg_quality = (int)q;
+    const cJSON *abs_ = cJSON_GetObjectItemCaseSensitive(root, "absolute");
+    if (abs_ && !cJSON_IsBool(abs_))
+        return lam_error_set(err, LAM_EFORMAT, "key absolute: expected true or false");
+    s->absolute = cJSON_IsTrue(abs_);
     const cJSON *g = cJSON_GetObjectItemCaseSensitive(root, "gradient");
     if (g) {
         if (!cJSON_IsArray(g) || cJSON_GetArraySize(g) != 2)
@@ -249,6 +253,8 @@ static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_er
         sub[c] = p->substrate[c];
         top = fmax(top, sub[c]);
     }
+    if (s->absolute)
+        top = 1.0; /* absolute: the same exposure means the same light, any substrate */
     for (size_t c = 0; !st && c < 3; c++)
         rel[s->count][c] = sub[c] / top;
     for (size_t i = 0; i < s->count && !st; i++) {

@@ -89,4 +89,16 @@ lam_status lam_oxide_joint_profile(const lam_analysis *const *analyses, size_t i
                                    const lam_setup *setup, const double *grid, size_t n,
                                    double *joint, double *per_image, lam_error *err);
 
+/* Absolute oxide from the substrate's colour: each image's fitted substrate
+ * level at its centre over a bare-Si reference image's level (same lamp,
+ * objective and exposure), against the model's R_c(SiO2 d on Si) / R_c(Si).
+ * 'stability' is the assumed relative repeatability of lamp and exposure
+ * between the two images (e.g. 0.01). chi2 over the grid, summed over images. */
+lam_status lam_reference_level(const char *path, const lam_load_options *load, double level[3],
+                               lam_error *err);
+lam_status lam_oxide_absolute_profile(const lam_analysis *const *analyses, size_t images,
+                                      const double reference_level[3], const lam_setup *setup,
+                                      double stability, const double *grid, size_t n,
+                                      double *chi2, lam_error *err);
+
 #endif

@@ -47,6 +47,7 @@ typedef struct lam_scene {
     double read_noise;        /* fraction of full scale */
     unsigned long seed;
     int jpeg_quality;
+    int absolute;             /* pixel = exposure * R_c (no per-scene normalisation) */
     size_t count;
     lam_scene_object *objects; /* count entries, owned */
 } lam_scene;

@@ -23,6 +23,10 @@ static void oxide_help(FILE *out)
           "  --tolerance T         pass/fail: nanometres, or a percentage such as 3%\n"
           "                        (default 10 nm)\n"
           "  --out DIR             oxide.json and oxide.svg go here (default lamina-out)\n"
+          "  --reference IMG       a bare-Si image taken with the same lamp, objective and\n"
+          "                        exposure: adds the absolute method (substrate colour),\n"
+          "                        which needs no flakes\n"
+          "  --stability X         relative lamp/exposure repeatability for it (0.01)\n"
           "  --max-layers K, --threads N, --quiet\n\n"
           "Writes the per-image estimates and the combined one with its 1-sigma\n"
           "(model-limited: the model floor dominates large regions).\n",
@@ -95,10 +99,12 @@ static int run_oxide(int argc, char **argv)
         {"setup", required_argument, 0, 's'},     {"oxide", required_argument, 0, 'o'},
         {"tolerance", required_argument, 0, 't'}, {"out", required_argument, 0, 'O'},
         {"max-layers", required_argument, 0, 'K'}, {"threads", required_argument, 0, 'j'},
-        {"quiet", no_argument, 0, 'q'},           {0, 0, 0, 0}};
+        {"quiet", no_argument, 0, 'q'},           {"reference", required_argument, 0, 'r'},
+        {"stability", required_argument, 0, 'y'}, {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
-    const char *out_dir = "lamina-out";
+    const char *out_dir = "lamina-out", *reference = NULL;
+    double stability = 0.01;
     double tol_nm = 10, tol_pct = -1;
     long K = 6, threads = 0;
     int c;
@@ -123,6 +129,8 @@ static int run_oxide(int argc, char **argv)
         case 'K': if (cli_parse_long("oxide", "--max-layers", optarg, 1, 20, &K)) return CLI_EUSAGE; break;
         case 'j': if (cli_parse_long("oxide", "--threads", optarg, 1, 256, &threads)) return CLI_EUSAGE; break;
         case 'q': cli_quiet = 1; break;
+        case 'r': reference = optarg; break;
+        case 'y': if (cli_parse_double("oxide", "--stability", optarg, 1e-4, 0.5, &stability)) return CLI_EUSAGE; break;
         default: return cli_usage_error("oxide", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
@@ -212,6 +220,64 @@ static int run_oxide(int argc, char **argv)
             nf++;
         }
     double spread = nf > 1 ? sqrt(fmax(0, (sum2 - sum * sum / (double)nf) / (double)(nf - 1))) : NAN;
+    /* absolute method: the substrate's colour against bare Si, 0-1000 nm */
+    cJSON *absolute = NULL;
+    double abs_est = NAN;
+    size_t abs_alt_n = 0;
+    double abs_alt[8];
+    if (reference) {
+        double ref[3];
+        lam_load_options lo = lam_load_options_default();
+        const size_t na = 1001;
+        double *ag = malloc(na * sizeof *ag), *ac = malloc(na * sizeof *ac);
+        lam_error_clear(&err);
+        if (!ag || !ac) {
+            rc = CLI_EFILE;
+        } else if (lam_reference_level(reference, &lo, ref, &err)) {
+            rc = cli_report(&err, reference);
+        } else {
+            for (size_t g = 0; g < na; g++)
+                ag[g] = (double)g;
+            if (lam_oxide_absolute_profile(ok, n_ok, ref, &s, stability, ag, na, ac, &err)) {
+                rc = cli_report(&err, NULL);
+            } else {
+                size_t bi = 0;
+                for (size_t g = 0; g < na; g++)
+                    if (ac[g] < ac[bi])
+                        bi = g;
+                /* every local minimum within chi2 + 4 of the best is a candidate order */
+                double best_near = INFINITY;
+                for (size_t g = 1; g + 1 < na; g++)
+                    if (ac[g] <= ac[g - 1] && ac[g] <= ac[g + 1] && ac[g] <= ac[bi] + 4) {
+                        if (abs_alt_n < 8)
+                            abs_alt[abs_alt_n++] = ag[g];
+                        if (fabs(ag[g] - nominal) < fabs(best_near - nominal))
+                            best_near = ag[g];
+                    }
+                double sig;
+                size_t gi = isfinite(best_near) ? (size_t)best_near : bi;
+                refine(ag, ac, na, gi, &abs_est, &sig);
+                absolute = cJSON_CreateObject();
+                cJSON_AddStringToObject(absolute, "reference", reference);
+                cJSON_AddNumberToObject(absolute, "stability", stability);
+                cJSON_AddNumberToObject(absolute, "estimate_nm", abs_est);
+                cJSON_AddItemToObject(absolute, "sigma_nm", isfinite(sig) ? cJSON_CreateNumber(sig) : cJSON_CreateNull());
+                cJSON_AddNumberToObject(absolute, "chi2_min", ac[gi]);
+                cJSON *ca = cJSON_AddArrayToObject(absolute, "candidates_nm");
+                for (size_t k = 0; k < abs_alt_n; k++)
+                    cJSON_AddItemToArray(ca, cJSON_CreateNumber(abs_alt[k]));
+                cJSON_AddStringToObject(absolute, "statement",
+                                        abs_alt_n > 1 ? "the substrate colour fits several thicknesses "
+                                                        "(interference orders): the one nearest the "
+                                                        "nominal value is reported"
+                                                      : "one thickness fits the substrate colour");
+                cJSON_AddStringToObject(absolute, "note", "bare-Si reference taken as oxide-free "
+                                                          "(native oxide of ~1-2 nm neglected)");
+            }
+        }
+        free(ag);
+        free(ac);
+    }
     cJSON *root = cJSON_CreateObject();
     cJSON_AddStringToObject(root, "schema", "lamina-oxide/1");
     cJSON_AddNumberToObject(root, "nominal_nm", nominal);
@@ -245,6 +311,8 @@ static int run_oxide(int argc, char **argv)
                                    "the colours alone cannot tell them apart; the nominal value "
                                    "chose the reported one"
                                  : "no other thickness within nominal +- 200 nm fits as well");
+    if (absolute)
+        cJSON_AddItemToObject(root, "absolute", absolute);
     cJSON *prof = cJSON_AddArrayToObject(root, "profile");
     for (size_t g = 0; g < m; g++) {
         double pt[2] = {gr[g], joint[g]};
@@ -286,6 +354,9 @@ static int run_oxide(int argc, char **argv)
         if (isfinite(spread) && isfinite(sigma) && spread > 3 * sigma * sqrt((double)nf))
             printf("note: the images disagree (spread %.1f nm): the oxide varies across the batch\n",
                    spread);
+        if (reference && isfinite(abs_est))
+            printf("absolute (substrate colour vs %s): %.1f nm%s\n", reference, abs_est,
+                   abs_alt_n > 1 ? " (other interference orders fit as well)" : "");
         if (nalt)
             printf("note: %zu other thickness(es) one interference order away fit as well (e.g. %.0f nm)\n",
                    nalt, alt[0].d);

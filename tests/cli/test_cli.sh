@@ -89,6 +89,14 @@ expect_rc 0 "oxide audit with a 0.5 % tolerance" "$BIN" oxide --quiet --toleranc
 grep -q '"pass":[[:space:]]*false' "$T/ox2/oxide.json" && ok "288 nm fails a 0.5 % tolerance of 285 nm" || bad "oxide tight tolerance"
 expect_rc 2 "oxide with a bad tolerance" "$BIN" oxide --tolerance abc samples/HT285-A07-tile12.png
 
+# absolute oxide from the substrate colour against a bare-Si reference
+printf '{"schema":"lamina-scene/1","width":320,"height":240,"oxide_nm":291,"absolute":true,"exposure":0.6,"vignetting":0.1,"full_well":10000,"seed":3,"flakes":[{"layers":1,"polygon":[[40,40],[160,30],[170,160],[50,170]]}]}' > "$T/absA.json"
+printf '{"schema":"lamina-scene/1","width":320,"height":240,"oxide_nm":0,"absolute":true,"exposure":0.6,"vignetting":0.1,"full_well":10000,"seed":4}' > "$T/absR.json"
+"$BIN" render --quiet "$T/absA.json" -o "$T/absA.png" && "$BIN" render --quiet "$T/absR.json" -o "$T/absR.png"
+expect_rc 0 "oxide audit with a bare-Si reference" "$BIN" oxide --quiet --reference "$T/absR.png" --out "$T/oxr" "$T/absA.png"
+python3 -c "import json,sys; d=json.load(open('$T/oxr/oxide.json')); sys.exit(0 if abs(d['absolute']['estimate_nm']-291)<3 else 1)" 2>/dev/null \
+    && ok "absolute method within 3 nm of the rendered 291 nm" || bad "absolute method: $(grep -A3 absolute "$T/oxr/oxide.json" | head -5)"
+
 # calibrate: labels from a rendered truth map
 expect_rc 0 "calibrate from a labelled sample" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.truth.png -o "$T/cal.json" samples/HT285-C11-tile07.png
 grep -q '"schema":[[:space:]]*"lamina-setup/1"' "$T/cal.json" && ok "calibrate writes a setup profile" || bad "calibrated profile"
