@@ -2,10 +2,13 @@
 #include "lamina/planmap.h"
 #include "lamina/model.h"
 #include "lamina/outfile.h"
+#include "lamina/font.h"
+#include "lamina/png.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 void lam_planmap_free(lam_planmap *m)
 {
@@ -168,4 +171,110 @@ lam_status lam_planmap_write_svg(const lam_planmap *m, const char *path, lam_err
     }
     fprintf(f, "</svg>\n");
     return lam_outfile_commit(&of, err);
+}
+
+static void put(uint8_t *img, size_t w, size_t h, long x, long y, const uint8_t c[3])
+{
+    if (x < 0 || y < 0 || (size_t)x >= w || (size_t)y >= h)
+        return;
+    memcpy(img + ((size_t)y * w + (size_t)x) * 3, c, 3);
+}
+
+static void line(uint8_t *img, size_t w, size_t h, long x0, long y0, long x1, long y1,
+                 const uint8_t c[3])
+{
+    long dx = labs(x1 - x0), dy = -labs(y1 - y0), sx = x0 < x1 ? 1 : -1, sy = y0 < y1 ? 1 : -1;
+    long e = dx + dy;
+    for (;;) {
+        put(img, w, h, x0, y0, c);
+        put(img, w, h, x0 + 1, y0, c);
+        if (x0 == x1 && y0 == y1)
+            break;
+        long e2 = 2 * e;
+        if (e2 >= dy)
+            e += dy, x0 += sx;
+        if (e2 <= dx)
+            e += dx, y0 += sy;
+    }
+}
+
+lam_status lam_planmap_write_png(const lam_planmap *m, const char *path, lam_error *err)
+{
+    const long cw = 8, ch = 6, x0 = 70, y0 = 40;
+    long W = x0 + cw * (long)m->n_wl, H = y0 + ch * (long)m->n_ox;
+    long sx0 = W + 120, sw = 300, IW = sx0 + sw + 30, IH = H + 60;
+    uint8_t *img = malloc((size_t)IW * (size_t)IH * 3);
+    if (!img)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the map image");
+    memset(img, 255, (size_t)IW * (size_t)IH * 3);
+    double vmax = 0;
+    for (size_t k = 0; k < m->n_wl * m->n_ox; k++)
+        vmax = fmax(vmax, fabs(m->contrast[k]));
+    for (size_t i = 0; i < m->n_ox; i++)
+        for (size_t j = 0; j < m->n_wl; j++) {
+            int c[3];
+            scale_colour(m->contrast[i * m->n_wl + j], vmax, c);
+            uint8_t u[3] = {(uint8_t)c[0], (uint8_t)c[1], (uint8_t)c[2]};
+            for (long y = 0; y < ch; y++)
+                for (long x = 0; x < cw; x++)
+                    put(img, (size_t)IW, (size_t)IH, x0 + cw * (long)j + x, y0 + ch * (long)i + y, u);
+        }
+    static const uint8_t black[3] = {0, 0, 0}, grey[3] = {140, 140, 140};
+    char t[96];
+    snprintf(t, sizeof t, "%zuL CONTRAST (SUBSTRATE-FLAKE)/SUBSTRATE", m->layers);
+    lam_font_draw(img, (size_t)IW, (size_t)IH, x0, 12, t, 2, black);
+    for (double wl = 400; wl <= 750; wl += 50) {
+        snprintf(t, sizeof t, "%.0f", wl);
+        long x = x0 + (long)((wl - m->wl_lo) / m->wl_step * (double)cw);
+        lam_font_draw(img, (size_t)IW, (size_t)IH, x - 8, H + 6, t, 1, black);
+    }
+    lam_font_draw(img, (size_t)IW, (size_t)IH, x0 + 90, H + 20, "WAVELENGTH (NM)", 1, black);
+    for (double ox = 0; ox <= 350; ox += 50) {
+        snprintf(t, sizeof t, "%.0f", ox);
+        long y = y0 + (long)((ox - m->ox_lo) / m->ox_step * (double)ch);
+        lam_font_draw(img, (size_t)IW, (size_t)IH, x0 - 26, y - 3, t, 1, black);
+    }
+    lam_font_draw(img, (size_t)IW, (size_t)IH, 4, y0 - 12, "SIO2 NM", 1, black);
+    if (m->marked_oxide_nm >= 0) {
+        long y = y0 + (long)((m->marked_oxide_nm - m->ox_lo) / m->ox_step * (double)ch) + ch / 2;
+        for (long x = x0; x < W; x += 4)
+            line(img, (size_t)IW, (size_t)IH, x, y, x + 1, y, black);
+        for (long x = sx0; x < sx0 + sw; x += 4)
+            line(img, (size_t)IW, (size_t)IH, x, y, x + 1, y, black);
+    }
+    for (long k = 0; k < H - y0; k++) {
+        int c[3];
+        scale_colour(vmax * (1 - 2.0 * (double)k / (double)(H - y0)), vmax, c);
+        uint8_t u[3] = {(uint8_t)c[0], (uint8_t)c[1], (uint8_t)c[2]};
+        for (long x = 0; x < 14; x++)
+            put(img, (size_t)IW, (size_t)IH, W + 40 + x, y0 + k, u);
+    }
+    snprintf(t, sizeof t, "%+.3f", vmax);
+    lam_font_draw(img, (size_t)IW, (size_t)IH, W + 30, y0 - 12, t, 1, black);
+    snprintf(t, sizeof t, "%+.3f", -vmax);
+    lam_font_draw(img, (size_t)IW, (size_t)IH, W + 30, H + 4, t, 1, black);
+    double cmax = 1e-9;
+    for (size_t k = 0; k < m->channels * m->n_ox; k++)
+        cmax = fmax(cmax, fabs(m->channel[k]));
+    long mid = sx0 + sw / 2;
+    line(img, (size_t)IW, (size_t)IH, mid, y0, mid, H, grey);
+    static const uint8_t cc[3][3] = {{192, 57, 43}, {39, 174, 96}, {46, 92, 184}};
+    static const char *names[3] = {"R", "G", "B"};
+    for (size_t c = 0; c < m->channels && c < 3; c++) {
+        long px = -1, py = -1;
+        for (size_t i = 0; i < m->n_ox; i++) {
+            long x = mid + (long)(m->channel[c * m->n_ox + i] / cmax * (double)sw / 2);
+            long y = y0 + ch * (long)i + ch / 2;
+            if (px >= 0)
+                line(img, (size_t)IW, (size_t)IH, px, py, x, y, cc[c]);
+            px = x, py = y;
+        }
+        lam_font_draw(img, (size_t)IW, (size_t)IH, sx0 + 10 * (long)c, H + 6, names[c], 1, cc[c]);
+    }
+    lam_font_draw(img, (size_t)IW, (size_t)IH, sx0, y0 - 12, "CAMERA CHANNELS", 1, black);
+    snprintf(t, sizeof t, "%+.3f", cmax);
+    lam_font_draw(img, (size_t)IW, (size_t)IH, sx0 + sw - 40, H + 6, t, 1, black);
+    lam_status st = lam_png_save_rgb8(path, img, (size_t)IW, (size_t)IH, 3, err);
+    free(img);
+    return st;
 }

@@ -26,5 +26,6 @@ lam_status lam_planmap_compute(const lam_setup *s, size_t layers, lam_planmap **
                                lam_error *err);
 void lam_planmap_free(lam_planmap *m);
 lam_status lam_planmap_write_svg(const lam_planmap *m, const char *path, lam_error *err);
+lam_status lam_planmap_write_png(const lam_planmap *m, const char *path, lam_error *err);
 
 #endif

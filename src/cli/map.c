@@ -8,7 +8,7 @@
 
 static void map_help(FILE *out)
 {
-    fputs("Usage: lamina map [--setup FILE] [--layers N] [--fermi EV] [--na X] [--out FILE.svg]\n"
+    fputs("Usage: lamina map [--setup FILE] [--layers N] [--fermi EV] [--na X] [--out FILE.svg|FILE.png]\n"
           "N-layer contrast as a map over wavelength 400-750 nm and SiO2 thickness\n"
           "0-350 nm (monochromatic), beside the camera channels' contrast against\n"
           "oxide thickness; the setup's oxide is marked. Default output map.svg.\n",
@@ -21,7 +21,7 @@ static int run_map(int argc, char **argv)
         {"setup", required_argument, 0, 's'}, {"layers", required_argument, 0, 'l'},
         {"fermi", required_argument, 0, 'f'}, {"na", required_argument, 0, 'n'},
         {"oxide", required_argument, 0, 'o'}, {"out", required_argument, 0, 'O'},
-        {0, 0, 0, 0}};
+        {"quiet", no_argument, 0, 'q'},       {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     long layers = 1;
@@ -37,12 +37,14 @@ static int run_map(int argc, char **argv)
         case 'n': if (cli_parse_double("map", "--na", optarg, 0, 1.6, &so.na)) return CLI_EUSAGE; break;
         case 'o': if (cli_parse_double("map", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
         case 'O': out = optarg; break;
+        case 'q': cli_quiet = 1; break;
         default: return cli_usage_error("map", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
     size_t n = strlen(out);
-    if (n < 5 || strcmp(out + n - 4, ".svg"))
-        return cli_usage_error("map", "--out: only .svg maps are written so far");
+    int png = n >= 5 && !strcmp(out + n - 4, ".png");
+    if (!png && (n < 5 || strcmp(out + n - 4, ".svg")))
+        return cli_usage_error("map", "--out: the map must end in .svg or .png");
     lam_setup s;
     int rc = cli_setup_build("map", &so, &s);
     if (rc)
@@ -50,7 +52,8 @@ static int run_map(int argc, char **argv)
     lam_error err;
     lam_error_clear(&err);
     lam_planmap *m = NULL;
-    if (lam_planmap_compute(&s, (size_t)layers, &m, &err) || lam_planmap_write_svg(m, out, &err))
+    if (lam_planmap_compute(&s, (size_t)layers, &m, &err) ||
+        (png ? lam_planmap_write_png(m, out, &err) : lam_planmap_write_svg(m, out, &err)))
         rc = cli_report(&err, out);
     else if (!cli_quiet)
         fprintf(stderr, "lamina: wrote %s\n", out);

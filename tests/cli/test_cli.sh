@@ -55,6 +55,8 @@ grep -q "</svg>" "$T/map.svg" && ok "map SVG complete" || bad "map SVG complete"
 expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
 [ ! -e "$T/none" ] && ok "no partial output" || bad "partial output left"
 expect_rc 2 "map refuses an unknown format" "$BIN" map --out "$T/map.gif"
+expect_rc 0 "map writes a PNG" "$BIN" map --quiet --out "$T/map.png"
+"$BIN" inspect "$T/map.png" > /dev/null 2>&1 && ok "map PNG reads back" || bad "map PNG reads back"
 
 # analyze: outputs, contract bits, failures leave no output
 expect_rc 0 "analyze a sample" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/a" samples/HT285-A07-tile12.png
