@@ -185,6 +185,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     lam_load_options lo = opt->load;
     if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
         lo.transfer = setup->encoding;
+    lo.keep_display8 = 1; /* 8-bit files: the report draws on the file's own codes */
     double t0 = now_s();
     if ((st = lam_image_load(path, &lo, &img, err)))
         goto fail;
@@ -209,7 +210,9 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     so.threads = threads;
     lam_segment_options sgo = opt->segment;
     sgo.threads = threads;
-    if (!(a->display = display_copy(img, threads))) {
+    a->display = img->display8; /* taken over, or NULL for 16-bit files */
+    img->display8 = NULL;
+    if (!a->display && !(a->display = display_copy(img, threads))) {
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
         goto fail;
     }

@@ -11,6 +11,7 @@ lam_load_options lam_load_options_default(void)
     o.transfer.kind = LAM_TRANSFER_AUTO;
     o.transfer.gamma = 0.0;
     o.max_pixels = LAM_IMAGE_DEFAULT_MAX_PIXELS;
+    o.keep_display8 = 0;
     return o;
 }
 
@@ -68,6 +69,7 @@ void lam_image_free(lam_image *img)
         return;
     free(img->plane[0]);
     free(img->clipped);
+    free(img->display8);
     free(img);
 }
 

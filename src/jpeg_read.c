@@ -97,6 +97,13 @@ lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *op
     float lut[256];
     lam__transfer_lut(&tr, lut, 256);
     lam_image *img = job->img;
+    if (opt->keep_display8 && !(img->display8 = malloc(w * h * 3))) {
+        jpeg_destroy_decompress(&job->cinfo);
+        lam_image_free(job->img);
+        free(job->row);
+        free(job);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
+    }
     img->bit_depth = 8;
     img->source_channels = (int)chans;
     img->kind = LAM_FILE_JPEG;
@@ -112,6 +119,10 @@ lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *op
             img->plane[0][base + x] = lut[v0];
             img->plane[1][base + x] = lut[v1];
             img->plane[2][base + x] = lut[v2];
+            if (img->display8) {
+                uint8_t *d = img->display8 + (base + x) * 3;
+                d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;
+            }
             int clip = v0 == 255 || v1 == 255 || v2 == 255;
             img->clipped[base + x] = (uint8_t)clip;
             img->clipped_count += (size_t)clip;

@@ -122,6 +122,10 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG row buffers");
     }
     lam__transfer_lut(&tr, job.lut, levels);
+    if (opt->keep_display8 && out_depth == 8 && !(job.img->display8 = malloc((size_t)w * h * 3))) {
+        png_job_release(&job, 0);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
+    }
     job.img->bit_depth = out_depth;
     job.img->source_channels = (int)chans;
     job.img->kind = LAM_FILE_PNG;
@@ -155,6 +159,10 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
                 clip |= v[c] >= top;
             }
             job.img->clipped[base + x] = (uint8_t)clip;
+            if (job.img->display8) {
+                uint8_t *d = job.img->display8 + (base + x) * 3;
+                d[0] = (uint8_t)v[0], d[1] = (uint8_t)v[1], d[2] = (uint8_t)v[2];
+            }
             job.img->clipped_count += (size_t)clip;
         }
     }

@@ -240,13 +240,12 @@ static void text_box(uint8_t *rgb, size_t w, size_t h, long x, long y, const cha
     lam_font_draw(rgb, w, h, x, y, text, s, fg);
 }
 
-lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, lam_error *err)
+lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err)
 {
-    size_t w = a->width, h = a->height, n = w * h;
-    uint8_t *rgb = malloc(n * 3);
+    size_t w = a->width, h = a->height;
+    uint8_t *rgb = a->display; /* drawn over in place: no second 3 B/px buffer */
     if (!rgb)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the annotated image");
-    memcpy(rgb, a->display, n * 3);
+        return lam_error_set(err, LAM_EINVAL, "the display copy was already used");
     const uint32_t *lab = a->seg->label;
     int s = w >= 1600 ? (int)(w / 800) : 1;
     /* outlines: region pixels with a 4-neighbour outside the region, drawn
@@ -338,9 +337,7 @@ lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, l
         snprintf(t, sizeof t, "%.0f UM", len);
         text_box(rgb, w, h, x0, y0 - (LAM_FONT_H + 3) * s, t, s, white);
     }
-    lam_status st = lam_png_save_rgb8(path, rgb, w, h, 3, err);
-    free(rgb);
-    return st;
+    return lam_png_save_rgb8(path, rgb, w, h, 3, err);
 }
 
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err)

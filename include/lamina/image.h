@@ -41,11 +41,15 @@ typedef struct lam_image {
     int source_channels;   /* 1 grey or 3 colour in the file */
     lam_file_kind kind;
     lam_transfer transfer; /* the curve actually used to linearise */
+    uint8_t *display8;     /* the file's 8-bit RGB codes, interleaved, when asked for
+                            * (lam_load_options.keep_display8) and the file is 8-bit;
+                            * owned (a caller may take it and set it to NULL) */
 } lam_image;
 
 typedef struct lam_load_options {
     lam_transfer transfer; /* LAM_TRANSFER_AUTO: sRGB for 8 bit, linear for 16 bit */
     size_t max_pixels;     /* 0 means LAM_IMAGE_DEFAULT_MAX_PIXELS */
+    int keep_display8;     /* also keep the 8-bit codes (for drawing reports) */
 } lam_load_options;
 
 /* Default options: automatic transfer curve, default pixel limit. */

@@ -20,7 +20,9 @@ struct cJSON *lam_report_json(const lam_analysis *a);
 
 lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_error *err);
 lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err);
-lam_status lam_report_write_annotated(const lam_analysis *a, const char *path, lam_error *err);
+/* Draws over a->display (the copy of the input is consumed: call last, or
+ * not at all if the display is needed afterwards). */
+lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err);
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err);
 
 /* Value of a region in the layer map. */

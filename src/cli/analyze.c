@@ -78,7 +78,7 @@ static double now_s(void)
 }
 
 typedef struct annot_job {
-    const lam_analysis *a;
+    lam_analysis *a;
     char path[4096];
     lam_error err;
     lam_status st;
