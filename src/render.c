@@ -5,6 +5,7 @@
 #include "lamina/model.h"
 #include "lamina/png.h"
 #include "lamina/textfile.h"
+#include "lamina/raster.h"
 
 #include <errno.h>
 #include <math.h>
@@ -198,38 +199,25 @@ lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
     return st;
 }
 
-/* Fill 'code' inside the polygon (even-odd rule at pixel centres). */
+typedef struct fill_ctx {
+    uint16_t *cls;
+    size_t w;
+    uint16_t code;
+} fill_ctx;
+
+static void fill_span(size_t y, size_t x0, size_t x1, void *vctx)
+{
+    fill_ctx *f = vctx;
+    for (size_t x = x0; x <= x1; x++)
+        f->cls[y * f->w + x] = f->code;
+}
+
+/* Fill 'code' inside the polygon. */
 static void fill_polygon(const lam_scene_object *o, uint16_t *cls, size_t w, size_t h,
                          uint16_t code)
 {
-    double ymin = o->y[0], ymax = o->y[0];
-    for (size_t k = 1; k < o->vertices; k++) {
-        ymin = fmin(ymin, o->y[k]);
-        ymax = fmax(ymax, o->y[k]);
-    }
-    long y0 = (long)floor(ymin), y1 = (long)ceil(ymax);
-    double xs[LAM_SCENE_MAX_VERTICES];
-    for (long y = y0 < 0 ? 0 : y0; y <= y1 && y < (long)h; y++) {
-        double yc = (double)y + 0.5;
-        size_t nx = 0;
-        for (size_t k = 0; k < o->vertices; k++) {
-            size_t j = (k + 1) % o->vertices;
-            double ya = o->y[k], yb = o->y[j];
-            if ((ya <= yc && yb > yc) || (yb <= yc && ya > yc))
-                xs[nx++] = o->x[k] + (yc - ya) / (yb - ya) * (o->x[j] - o->x[k]);
-        }
-        for (size_t a = 1; a < nx; a++)
-            for (size_t b = a; b > 0 && xs[b - 1] > xs[b]; b--) {
-                double t = xs[b];
-                xs[b] = xs[b - 1];
-                xs[b - 1] = t;
-            }
-        for (size_t a = 0; a + 1 < nx; a += 2) {
-            long xa = (long)ceil(xs[a] - 0.5), xb = (long)floor(xs[a + 1] - 0.5);
-            for (long x = xa < 0 ? 0 : xa; x <= xb && x < (long)w; x++)
-                cls[(size_t)y * w + (size_t)x] = code;
-        }
-    }
+    fill_ctx f = {cls, w, code};
+    lam_raster_polygon(o->x, o->y, o->vertices, w, h, fill_span, &f);
 }
 
 /* Reflectance per channel of each object (rel[i]) and of the bare

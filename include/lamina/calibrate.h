@@ -55,6 +55,15 @@ lam_status lam_calib_measure_labels(lam_calib_set *set, const char *image_path,
                                     const uint8_t *labels, size_t width, size_t height,
                                     const lam_load_options *load, lam_error *err);
 
+/* Turn a label file ("lamina-labels/1" JSON: {"labels": [{"layers": N,
+ * "polygon": [[x, y], ...]} or {"layers": N, "point": [x, y]}]}) into a
+ * layer-map coded label map for an image. Points take the whole region of
+ * the image's segmentation (with 'setup') that contains them. 'map' holds
+ * width*height bytes and is filled (0 = unlabelled background). */
+lam_status lam_calib_labels_from_json(const char *json_path, const char *image_path,
+                                      const lam_setup *setup, size_t width, size_t height,
+                                      uint8_t *map, lam_error *err);
+
 /* Add the confident regions of an analysis-like measurement without labels
  * (for self-calibration): every region of the image's segmentation with at
  * least 200 interior pixels that is not unmodelled. */

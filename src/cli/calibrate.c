@@ -19,7 +19,9 @@ static void calibrate_help(FILE *out)
           "Fit the camera channel centres and widths, the illumination NA and each\n"
           "image's oxide thickness so that the model reproduces the measured contrast\n"
           "of regions of known layer count. LABELS.png uses the layer-map coding (0\n"
-          "substrate, N layers, 254/255 ignored), one per image, in the same order.\n"
+          "substrate, N layers, 254/255 ignored), one per image, in the same order;\n"
+          "or LABELS.json (lamina-labels/1): polygons or points with layer counts, a\n"
+          "point taking the whole segmented region around it.\n"
           "--self fits without labels, each region taking the layer count that fits\n"
           "best: use several images with several layer counts and oxides.\n\n"
           "  --setup FILE     start values (default: calib/default-setup.json)\n"
@@ -116,31 +118,51 @@ static int run_calibrate(int argc, char **argv)
                 rc = cli_report(&err, img);
             continue;
         }
-        lam_load_options lo = lam_load_options_default();
-        lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
-        lam_image *lab = NULL;
-        if (lam_image_load(labels[i], &lo, &lab, &err)) {
-            rc = cli_report(&err, labels[i]);
-            break;
-        }
-        size_t n = lab->width * lab->height;
-        uint8_t *codes = malloc(n);
-        if (!codes) {
+        size_t lw = 0, lh = 0;
+        uint8_t *codes = NULL;
+        size_t len = strlen(labels[i]);
+        if (len > 5 && !strcmp(labels[i] + len - 5, ".json")) {
+            /* polygons or points: the image's size decides the map's */
+            lam_image *im = NULL;
+            if (lam_image_load(img, NULL, &im, &err)) {
+                rc = cli_report(&err, img);
+                break;
+            }
+            lw = im->width, lh = im->height;
+            lam_image_free(im);
+            codes = malloc(lw * lh);
+            if (!codes || lam_calib_labels_from_json(labels[i], img, &s, lw, lh, codes, &err)) {
+                rc = codes ? cli_report(&err, labels[i]) : CLI_EFILE;
+                free(codes);
+                break;
+            }
+        } else {
+            lam_load_options lo = lam_load_options_default();
+            lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
+            lam_image *lab = NULL;
+            if (lam_image_load(labels[i], &lo, &lab, &err)) {
+                rc = cli_report(&err, labels[i]);
+                break;
+            }
+            lw = lab->width, lh = lab->height;
+            codes = malloc(lw * lh);
+            if (!codes) {
+                lam_image_free(lab);
+                rc = CLI_EFILE;
+                break;
+            }
+            for (size_t k = 0; k < lw * lh; k++) {
+                double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
+                codes[k] = (uint8_t)(v > 255 ? 255 : lround(v));
+            }
             lam_image_free(lab);
-            rc = CLI_EFILE;
-            break;
-        }
-        for (size_t k = 0; k < n; k++) {
-            double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
-            codes[k] = (uint8_t)(v > 255 ? 255 : lround(v));
         }
         lam_load_options il = lam_load_options_default();
         if (!lam_setup_is_default(&s, "encoding"))
             il.transfer = s.encoding;
-        if (lam_calib_measure_labels(&set, img, codes, lab->width, lab->height, &il, &err))
+        if (lam_calib_measure_labels(&set, img, codes, lw, lh, &il, &err))
             rc = cli_report(&err, img);
         free(codes);
-        lam_image_free(lab);
     }
     lam_calib_result res;
     if (!rc) {

@@ -104,6 +104,10 @@ awk -v e="${est:-0}" 'BEGIN { exit !(e > 288 && e < 294) }' \
 expect_rc 0 "calibrate from a labelled sample" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.truth.png -o "$T/cal.json" samples/HT285-C11-tile07.png
 grep -q '"schema":[[:space:]]*"lamina-setup/1"' "$T/cal.json" && ok "calibrate writes a setup profile" || bad "calibrated profile"
 expect_rc 0 "the calibrated profile is usable" "$BIN" predict --setup "$T/cal.json"
+expect_rc 0 "calibrate from JSON labels (points and a polygon)" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json -o "$T/cal2.json" samples/HT285-C11-tile07.png
+printf '{"schema":"lamina-labels/1","labels":[{"layers":1,"point":[5000,5]}]}' > "$T/badlab.json"
+expect_rc 1 "a label point outside the image" "$BIN" calibrate --labels "$T/badlab.json" -o "$T/x.json" samples/HT285-C11-tile07.png
+grep -q "badlab.json" "$T/err" && grep -q "outside" "$T/err" && ok "label error names file and problem" || bad "label error: $(cat "$T/err")"
 expect_rc 2 "calibrate needs one label file per image" "$BIN" calibrate samples/HT285-C11-tile07.png
 expect_rc 1 "calibrate with labels of the wrong size" "$BIN" calibrate --labels samples/HT285-D04-tile21.truth.png -o "$T/x.json" samples/HT285-C11-tile07.png
 
