@@ -457,6 +457,24 @@ lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err)
     return st;
 }
 
+lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err)
+{
+    char *buf = NULL;
+    lam_status st = lam_text_load(path, 1u << 20, "stack", &buf, err);
+    if (st)
+        return st;
+    cJSON *sub = cJSON_Parse(buf);
+    free(buf);
+    char dir[1024];
+    lam_path_dir(path, dir, sizeof dir);
+    st = sub ? parse_substrate(sub, s, dir, err)
+             : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
+    cJSON_Delete(sub);
+    if (st)
+        lam_error_set_file(err, path);
+    return st;
+}
+
 size_t lam_setup_oxide_layer(const lam_setup *s)
 {
     for (size_t i = 0; i < s->layers; i++)

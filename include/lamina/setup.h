@@ -65,6 +65,10 @@ lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
 
 void lam_setup_clear(lam_setup *s);
 
+/* Replace the substrate by a stack file: the "substrate" object of a setup
+ * on its own ({"stack": [...], "base": ...}), paths relative to its folder. */
+lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err);
+
 /* Set the thickness of the first SiO2 layer (adds one on the base when the
  * stack has none). LAM_ERANGE for thickness < 0 or > 5000 nm. */
 lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err);

@@ -29,6 +29,8 @@ static void analyze_help(FILE *out)
           "catalog.csv and contact-sheet.png (the top candidates).\n\n"
           "  --setup FILE          setup profile (lamina-setup/1)\n"
           "  --oxide NM            nominal SiO2 thickness\n"
+          "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
+          "  --material NAME       flake material (graphene)\n"
           "  --um-per-px X         pixel size at the sample\n"
           "  --max-layers K        layer counts modelled (default 6; thicker = \"thick\")\n"
           "  --min-area A          regions below A um^2 (or px without a pixel size) are 'small'\n"
@@ -323,6 +325,7 @@ static int catalog_outputs(const pool *P, const lam_positions *pos, lam_error *e
 static int run_analyze(int argc, char **argv)
 {
     static const struct option longopts[] = {
+        CLI_SETUP_LONGOPTS,
         {"setup", required_argument, 0, 's'},    {"oxide", required_argument, 0, 'o'},
         {"um-per-px", required_argument, 0, 'u'}, {"max-layers", required_argument, 0, 'K'},
         {"min-area", required_argument, 0, 'a'},  {"substrate-roi", required_argument, 0, 'r'},
@@ -381,7 +384,10 @@ static int run_analyze(int argc, char **argv)
             if (parse_shard(optarg, &shard, &shards))
                 return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
             break;
-        default: return cli_usage_error("analyze", "unknown or incomplete option '%s'", argv[optind - 1]);
+        default:
+            if (cli_setup_option(&so, c, optarg))
+                break;
+            return cli_usage_error("analyze", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
     cli_inputs in;

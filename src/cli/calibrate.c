@@ -91,7 +91,10 @@ static int run_calibrate(int argc, char **argv)
             }
             break;
         }
-        default: return cli_usage_error("calibrate", "unknown or incomplete option '%s'", argv[optind - 1]);
+        default:
+            if (cli_setup_option(&so, c, optarg))
+                break;
+            return cli_usage_error("calibrate", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
     size_t ni = (size_t)(argc - optind);

@@ -18,6 +18,7 @@ static void map_help(FILE *out)
 static int run_map(int argc, char **argv)
 {
     static const struct option longopts[] = {
+        CLI_SETUP_LONGOPTS,
         {"setup", required_argument, 0, 's'}, {"layers", required_argument, 0, 'l'},
         {"fermi", required_argument, 0, 'f'}, {"na", required_argument, 0, 'n'},
         {"oxide", required_argument, 0, 'o'}, {"out", required_argument, 0, 'O'},
@@ -38,7 +39,10 @@ static int run_map(int argc, char **argv)
         case 'o': if (cli_parse_double("map", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
         case 'O': out = optarg; break;
         case 'q': cli_quiet = 1; break;
-        default: return cli_usage_error("map", "unknown or incomplete option '%s'", argv[optind - 1]);
+        default:
+            if (cli_setup_option(&so, c, optarg))
+                break;
+            return cli_usage_error("map", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
     size_t n = strlen(out);

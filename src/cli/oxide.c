@@ -96,6 +96,7 @@ static void write_svg(FILE *f, const double *grid, const double *joint, size_t n
 static int run_oxide(int argc, char **argv)
 {
     static const struct option longopts[] = {
+        CLI_SETUP_LONGOPTS,
         {"setup", required_argument, 0, 's'},     {"oxide", required_argument, 0, 'o'},
         {"tolerance", required_argument, 0, 't'}, {"out", required_argument, 0, 'O'},
         {"max-layers", required_argument, 0, 'K'}, {"threads", required_argument, 0, 'j'},
@@ -131,7 +132,10 @@ static int run_oxide(int argc, char **argv)
         case 'q': cli_quiet = 1; break;
         case 'r': reference = optarg; break;
         case 'y': if (cli_parse_double("oxide", "--stability", optarg, 1e-4, 0.5, &stability)) return CLI_EUSAGE; break;
-        default: return cli_usage_error("oxide", "unknown or incomplete option '%s'", argv[optind - 1]);
+        default:
+            if (cli_setup_option(&so, c, optarg))
+                break;
+            return cli_usage_error("oxide", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }
     if (optind >= argc)

@@ -16,6 +16,8 @@ static void predict_help(FILE *out)
           "for N-layer graphene on the setup's substrate.\n\n"
           "  --setup FILE        setup profile (lamina-setup/1 JSON)\n"
           "  --oxide NM          SiO2 thickness on Si, nm\n"
+          "  --stack FILE        substrate {\"stack\": [...], \"base\": ...} (e.g. hBN on SiO2)\n"
+          "  --material NAME     flake material (graphene)\n"
           "  --na X              illumination NA (0 = normal incidence)\n"
           "  --wavelength NM     one monochromatic channel instead of the camera\n"
           "  --layers A-B        layer range (default 1-5)\n"
@@ -68,6 +70,7 @@ static int print_json(const lam_prediction *p, size_t lo, size_t hi, double mono
 static int run_predict(int argc, char **argv)
 {
     static const struct option longopts[] = {
+        CLI_SETUP_LONGOPTS,
         {"setup", required_argument, 0, 's'},   {"oxide", required_argument, 0, 'o'},
         {"na", required_argument, 0, 'n'},      {"wavelength", required_argument, 0, 'w'},
         {"layers", required_argument, 0, 'l'},  {"fermi", required_argument, 0, 'f'},
@@ -116,6 +119,8 @@ static int run_predict(int argc, char **argv)
             break;
         case 'q': cli_quiet = 1; break;
         default:
+            if (cli_setup_option(&so, opt, optarg))
+                break;
             return cli_usage_error("predict", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

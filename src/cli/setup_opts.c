@@ -3,6 +3,8 @@
 #include "cli.h"
 
 #include <math.h>
+#include <string.h>
+#include <strings.h>
 
 void cli_setup_opts_init(cli_setup_opts *o)
 {
@@ -11,6 +13,21 @@ void cli_setup_opts_init(cli_setup_opts *o)
     o->na = -1;
     o->fermi_ev = NAN;
     o->um_per_px = 0;
+    o->stack_file = NULL;
+    o->material = NULL;
+}
+
+int cli_setup_option(cli_setup_opts *o, int code, const char *arg)
+{
+    if (code == CLI_OPT_STACK) {
+        o->stack_file = arg;
+        return 1;
+    }
+    if (code == CLI_OPT_MATERIAL) {
+        o->material = arg;
+        return 1;
+    }
+    return 0;
 }
 
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
@@ -21,6 +38,15 @@ int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
     if (o->setup_file && lam_setup_load(o->setup_file, s, &err)) {
         lam_setup_clear(s);
         return cli_report(&err, o->setup_file);
+    }
+    if (o->stack_file && lam_setup_load_stack(o->stack_file, s, &err)) {
+        lam_setup_clear(s);
+        return cli_report(&err, o->stack_file);
+    }
+    if (o->material && strcasecmp(o->material, "graphene")) {
+        lam_setup_clear(s);
+        return cli_usage_error(command, "--material: only graphene flakes are modelled so far, not '%s'",
+                               o->material);
     }
     if (o->oxide_nm >= 0 && lam_setup_set_oxide(s, o->oxide_nm, &err)) {
         lam_setup_clear(s);

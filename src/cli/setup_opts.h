@@ -11,7 +11,17 @@ typedef struct cli_setup_opts {
     double na;        /* < 0: not given */
     double fermi_ev;  /* NAN: not given */
     double um_per_px; /* <= 0: not given */
+    const char *stack_file; /* --stack: substrate {"stack": [...], "base": ...} */
+    const char *material;   /* --material NAME */
 } cli_setup_opts;
+
+/* getopt codes of the options shared by every physics command */
+enum { CLI_OPT_STACK = 1001, CLI_OPT_MATERIAL = 1002 };
+#define CLI_SETUP_LONGOPTS                                                                   \
+    {"stack", required_argument, 0, CLI_OPT_STACK}, {"material", required_argument, 0, CLI_OPT_MATERIAL}
+
+/* Handle a shared option; returns 1 if it was one, 0 if not. */
+int cli_setup_option(cli_setup_opts *o, int code, const char *arg);
 
 void cli_setup_opts_init(cli_setup_opts *o);
 

@@ -29,6 +29,15 @@ expect_rc 2 "out-of-range number" "$BIN" predict --oxide -5
 expect_rc 2 "NA at or above ambient index" "$BIN" predict --na 1.2
 expect_rc 0 "predict json" "$BIN" predict --oxide 285 --wavelength 550 --na 0 --layers 1-3 --format json
 grep -q '"schema":[[:space:]]*"lamina-predict/1"' "$T/out" && ok "predict json schema" || bad "predict json schema"
+printf '{"stack":[{"material":"hBN","thickness_nm":20},{"material":"SiO2","thickness_nm":285}],"base":"Si"}' > "$T/stack.json"
+expect_rc 0 "predict on a stack file (graphene on hBN on SiO2)" "$BIN" predict --stack "$T/stack.json" --format csv
+"$BIN" predict --format csv > "$T/plain.csv"
+cmp -s "$T/out" "$T/plain.csv" && bad "the hBN layer changes the prediction" || ok "the hBN layer changes the prediction"
+printf '{"stack":[{"material":"SiO2","thickness_nm":-3}]}' > "$T/badstack.json"
+expect_rc 1 "a stack with a negative thickness" "$BIN" predict --stack "$T/badstack.json"
+grep -q "badstack.json" "$T/err" && grep -q "thickness_nm" "$T/err" && ok "stack error names file and key" || bad "stack error: $(cat "$T/err")"
+expect_rc 2 "an unmodelled flake material" "$BIN" predict --material MoS2
+expect_rc 0 "graphene as --material" "$BIN" predict --material graphene
 expect_rc 1 "predict to /dev/full" sh -c "\"$BIN\" predict > /dev/full"
 
 # images: make a valid PNG and JPEG with the test suite's helpers (cjpeg)
