@@ -6,9 +6,9 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg gsl libcjson
+PKGS     := libpng libjpeg gsl libcjson zlib
 # Debian packages: build, test-only references, outside model reference
-DEB_BUILD := build-essential pkg-config libpng-dev libjpeg-dev libgsl-dev libcjson-dev
+DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev
 DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 

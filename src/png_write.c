@@ -1,6 +1,7 @@
 /* png_write.c - PNG encoding with libpng into atomic output files. */
 #include "lamina/png.h"
 #include "lamina/outfile.h"
+#include "png_internal.h"
 
 #include <png.h>
 #include <setjmp.h>
@@ -77,6 +78,9 @@ lam_status lam_png_save_rgb8(const char *path, const uint8_t *rgb, size_t width,
     if (channels != 3 && channels != 4)
         return lam_error_set(err, LAM_EINVAL, "PNG RGB needs 3 or 4 channels, not %d",
                              channels);
+    /* large images: banded parallel deflate (same bytes for any thread count) */
+    if (width * height >= (1u << 20) && width <= 0x7fffffff && height <= 0x7fffffff)
+        return lam__png_save_parallel(path, rgb, width, height, channels, err);
     return save_png(path, rgb, width, height,
                     channels == 4 ? PNG_COLOR_TYPE_RGBA : PNG_COLOR_TYPE_RGB, 8,
                     width * (size_t)channels, err);
@@ -85,6 +89,8 @@ lam_status lam_png_save_rgb8(const char *path, const uint8_t *rgb, size_t width,
 lam_status lam_png_save_grey8(const char *path, const uint8_t *grey, size_t width,
                               size_t height, lam_error *err)
 {
+    if (width * height >= (1u << 20) && width <= 0x7fffffff && height <= 0x7fffffff)
+        return lam__png_save_parallel(path, grey, width, height, 1, err);
     return save_png(path, grey, width, height, PNG_COLOR_TYPE_GRAY, 8, width, err);
 }
 
