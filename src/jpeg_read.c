@@ -108,24 +108,34 @@ lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *op
     img->source_channels = (int)chans;
     img->kind = LAM_FILE_JPEG;
     img->transfer = tr;
-    while (job->cinfo.output_scanline < h) {
-        size_t y = job->cinfo.output_scanline;
-        JSAMPROW rp = job->row;
-        jpeg_read_scanlines(&job->cinfo, &rp, 1);
-        size_t base = y * w;
-        for (size_t x = 0; x < w; x++) {
-            const unsigned char *p = job->row + x * chans;
-            unsigned v0 = p[0], v1 = grey ? p[0] : p[1], v2 = grey ? p[0] : p[2];
-            img->plane[0][base + x] = lut[v0];
-            img->plane[1][base + x] = lut[v1];
-            img->plane[2][base + x] = lut[v2];
-            if (img->display8) {
-                uint8_t *d = img->display8 + (base + x) * 3;
-                d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;
+    if (img->display8 && !grey) {
+        /* decode straight into the kept 8-bit copy, then convert the rows
+         * to linear planes on all cores (decoding itself is sequential) */
+        while (job->cinfo.output_scanline < h) {
+            JSAMPROW rp = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
+            jpeg_read_scanlines(&job->cinfo, &rp, 1);
+        }
+        lam__convert_rgb8(img, lut);
+    } else {
+        while (job->cinfo.output_scanline < h) {
+            size_t y = job->cinfo.output_scanline;
+            JSAMPROW rp = job->row;
+            jpeg_read_scanlines(&job->cinfo, &rp, 1);
+            size_t base = y * w;
+            for (size_t x = 0; x < w; x++) {
+                const unsigned char *p = job->row + x * chans;
+                unsigned v0 = p[0], v1 = grey ? p[0] : p[1], v2 = grey ? p[0] : p[2];
+                img->plane[0][base + x] = lut[v0];
+                img->plane[1][base + x] = lut[v1];
+                img->plane[2][base + x] = lut[v2];
+                if (img->display8) {
+                    uint8_t *d = img->display8 + (base + x) * 3;
+                    d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;
+                }
+                int clip = v0 == 255 || v1 == 255 || v2 == 255;
+                img->clipped[base + x] = (uint8_t)clip;
+                img->clipped_count += (size_t)clip;
             }
-            int clip = v0 == 255 || v1 == 255 || v2 == 255;
-            img->clipped[base + x] = (uint8_t)clip;
-            img->clipped_count += (size_t)clip;
         }
     }
     jpeg_finish_decompress(&job->cinfo);
