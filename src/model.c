@@ -286,28 +286,6 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
     return st;
 }
 
-lam_status lam_model_reflectance_at(const lam_setup *s, size_t layers, double oxide_nm,
-                                    double wavelength_nm, double sin_theta, double *out,
-                                    lam_error *err)
-{
-    lam_setup copy = *s;
-    copy.illumination_na = 0;
-    lam_model *m;
-    lam_status st = lam_model_alloc(&copy, layers ? layers : 1, wavelength_nm, &m, err);
-    if (st)
-        return st;
-    if ((st = update_sigma(m, s->sheet.fermi_ev, err))) {
-        lam_model_free(m);
-        return st;
-    }
-    double acc[LAM_MODEL_MAX_LAYERS + 1] = {0};
-    accumulate(m, 0, oxide_nm, sin_theta, LAM_POL_S, 0.5, acc);
-    accumulate(m, 0, oxide_nm, sin_theta, LAM_POL_P, 0.5, acc);
-    *out = acc[layers];
-    lam_model_free(m);
-    return LAM_OK;
-}
-
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err)
 {

@@ -193,8 +193,16 @@ cJSON *lam_report_json(const lam_analysis *a)
 lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_error *err)
 {
     cJSON *root = lam_report_json(a);
-    char *text = root ? cJSON_Print(root) : NULL;
+    if (!root)
+        return lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
+    lam_status st = lam_report_save_json(root, path, err);
     cJSON_Delete(root);
+    return st;
+}
+
+lam_status lam_report_save_json(const cJSON *root, const char *path, lam_error *err)
+{
+    char *text = cJSON_Print(root);
     if (!text)
         return lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
     size_t n = strlen(text);

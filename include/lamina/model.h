@@ -56,10 +56,4 @@ lam_status lam_model_eval(lam_model *m, double oxide_nm, double fermi_ev,
 lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
                             double (*dcontrast)[LAM_MAX_CHANNELS], lam_error *err);
 
-/* Monochromatic, normal-or-oblique reflectance of N layers at one angle
- * (for plots and tests); pol averaged. */
-lam_status lam_model_reflectance_at(const lam_setup *setup, size_t layers, double oxide_nm,
-                                    double wavelength_nm, double sin_theta, double *out,
-                                    lam_error *err);
-
 #endif

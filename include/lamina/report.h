@@ -19,6 +19,9 @@ struct cJSON;
 struct cJSON *lam_report_json(const lam_analysis *a);
 
 lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_error *err);
+
+/* Write an already built JSON tree (e.g. from lam_report_json), newline-ended. */
+lam_status lam_report_save_json(const struct cJSON *root, const char *path, lam_error *err);
 lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err);
 /* Draws over a->display (the copy of the input is consumed: call last, or
  * not at all if the display is needed afterwards). */

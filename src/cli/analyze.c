@@ -121,16 +121,10 @@ static lam_status write_reports(job *j, const char *dir, lam_error *err)
     snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, j->stem);
     if ((st = lam_report_write_svg(j->a, p, err)))
         return st;
-    j->json = lam_report_json(j->a);
-    char *text = j->json ? cJSON_Print(j->json) : NULL;
-    if (!text)
+    if (!(j->json = lam_report_json(j->a)))
         return lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
     snprintf(p, sizeof p, "%s/%s.json", dir, j->stem);
-    size_t n = strlen(text);
-    text[n] = '\n';
-    st = lam_outfile_write_buffer(p, text, n + 1, err);
-    free(text);
-    return st;
+    return lam_report_save_json(j->json, p, err);
 }
 
 /* --resume: the existing JSON counts when both hashes match. */
