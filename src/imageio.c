@@ -51,7 +51,7 @@ void lam__convert_rgb8(lam_image *img, const float *lut)
     }
     c->img = img;
     c->lut = lut;
-    size_t threads = lam_cpu_count();
+    size_t threads = lam_parallel_default();
     lam_parallel_for(img->height, threads, convert_rows, c);
     img->clipped_count = 0;
     for (size_t t = 0; t < LAM_MAX_THREADS; t++)

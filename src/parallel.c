@@ -48,3 +48,15 @@ size_t lam_cpu_count(void)
     long n = sysconf(_SC_NPROCESSORS_ONLN);
     return n > 0 ? (size_t)n : 1;
 }
+
+static size_t default_threads; /* 0: all cores; set before workers start */
+
+void lam_parallel_set_default(size_t threads)
+{
+    default_threads = threads;
+}
+
+size_t lam_parallel_default(void)
+{
+    return default_threads ? default_threads : lam_cpu_count();
+}

@@ -104,7 +104,7 @@ lam_status lam__png_save_parallel(const char *path, const uint8_t *pixels, size_
     j.b = calloc(j.bands, sizeof *j.b);
     if (!j.b)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG bands");
-    lam_parallel_for(j.bands, lam_cpu_count(), deflate_bands, &j);
+    lam_parallel_for(j.bands, lam_parallel_default(), deflate_bands, &j);
     lam_status st = LAM_OK;
     for (size_t k = 0; k < j.bands; k++)
         if (j.b[k].failed)

@@ -19,4 +19,9 @@ void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx);
 /* Number of online processors (at least 1). */
 size_t lam_cpu_count(void);
 
+/* Threads for passes that take no explicit count (image conversion, PNG
+ * compression): set once by the program (0 = all cores, the default). */
+void lam_parallel_set_default(size_t threads);
+size_t lam_parallel_default(void);
+
 #endif

@@ -447,6 +447,7 @@ static int run_analyze(int argc, char **argv)
     opt.threads = (size_t)threads / (outer ? outer : 1);
     if (opt.threads < 1)
         opt.threads = 1;
+    lam_parallel_set_default(opt.threads); /* loading and PNG compression too */
     P.setup = &s;
     P.opt = &opt;
     P.out_dir = out_dir;
