@@ -217,15 +217,8 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         goto fail;
     }
     MARK(LAM_T_DISPLAY);
-    if ((st = lam_substrate_estimate(img, &so, &a->substrate, err)))
-        goto fail;
-    MARK(LAM_T_SUBSTRATE);
-    lam_contrast_in_place(img, &a->substrate, threads);
-    if ((st = lam_contrast_denoise(img, threads, err)) ||
-        (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
-        goto fail;
-    MARK(LAM_T_CONTRAST);
-    /* models: full accuracy for the ladder, a coarse one for fits */
+    /* the ladder at the nominal oxide also tells the substrate from a flake
+     * that covers most of the field */
     if ((st = lam_model_alloc(setup, a->thick_to, 0, &full, err)) ||
         (st = lam_model_alloc_fast(setup, a->max_layers, &fast, err)))
         goto fail;
@@ -236,6 +229,16 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
         nominal = 0;
     if ((st = lam_model_eval(full, nominal, setup->sheet.fermi_ev, &a->ladder, err)))
         goto fail;
+    so.ladder = (const double (*)[3])&a->ladder.contrast[1];
+    so.ladder_count = a->thick_to;
+    if ((st = lam_substrate_estimate(img, &so, &a->substrate, err)))
+        goto fail;
+    MARK(LAM_T_SUBSTRATE);
+    lam_contrast_in_place(img, &a->substrate, threads);
+    if ((st = lam_contrast_denoise(img, threads, err)) ||
+        (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
+        goto fail;
+    MARK(LAM_T_CONTRAST);
     lam_infer_options io = opt->infer;
     io.max_layers = a->max_layers;
     io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)

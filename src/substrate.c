@@ -113,8 +113,16 @@ static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx,
     lam_parallel_for(ny, threads, tile_rows, &tc);
 }
 
-/* Densest chromaticity among uniform tiles: a 2-D histogram, 3x3 smoothed. */
-static void chromaticity_mode(const tile_stat *ts, size_t n, double bin, double *u0, double *v0)
+/* Chromaticity peaks among uniform tiles: a 2-D histogram, 3x3 smoothed;
+ * local maxima holding at least a tenth of the highest, strongest first,
+ * each refined to the mean chromaticity of the tiles in its 3x3 cell. */
+#define MAX_MODES 4
+typedef struct chroma_mode {
+    double u, v;
+    unsigned count;
+} chroma_mode;
+
+static size_t chromaticity_modes(const tile_stat *ts, size_t n, double bin, chroma_mode *out)
 {
     double umin = INFINITY, vmin = INFINITY, umax = -INFINITY, vmax = -INFINITY;
     for (size_t i = 0; i < n; i++)
@@ -122,16 +130,19 @@ static void chromaticity_mode(const tile_stat *ts, size_t n, double bin, double 
             umin = fmin(umin, ts[i].u), umax = fmax(umax, ts[i].u);
             vmin = fmin(vmin, ts[i].v), vmax = fmax(vmax, ts[i].v);
         }
+    if (!isfinite(umin))
+        return 0;
     size_t nu = (size_t)((umax - umin) / bin) + 3, nv = (size_t)((vmax - vmin) / bin) + 3;
     if (nu > 400)
         nu = 400;
     if (nv > 400)
         nv = 400;
     double bu = (umax - umin) / (double)(nu - 2) + 1e-12, bv = (vmax - vmin) / (double)(nv - 2) + 1e-12;
-    unsigned *h = calloc(nu * nv, sizeof *h);
-    if (!h) {
-        *u0 = umin, *v0 = vmin;
-        return;
+    unsigned *h = calloc(nu * nv, sizeof *h), *sm = calloc(nu * nv, sizeof *sm);
+    if (!h || !sm) {
+        free(h);
+        free(sm);
+        return 0;
     }
     for (size_t i = 0; i < n; i++)
         if (ts[i].uniform) {
@@ -139,29 +150,105 @@ static void chromaticity_mode(const tile_stat *ts, size_t n, double bin, double 
             if (a < nu && b < nv)
                 h[a * nv + b]++;
         }
-    unsigned best = 0;
-    size_t ba = 1, bb = 1;
+    unsigned top = 0;
     for (size_t a = 1; a + 1 < nu; a++)
         for (size_t b = 1; b + 1 < nv; b++) {
-            unsigned s = 0;
+            unsigned t = 0;
             for (int da = -1; da <= 1; da++)
                 for (int db = -1; db <= 1; db++)
-                    s += h[(a + (size_t)da) * nv + b + (size_t)db];
-            if (s > best)
-                best = s, ba = a, bb = b;
+                    t += h[(a + (size_t)da) * nv + b + (size_t)db];
+            sm[a * nv + b] = t;
+            top = t > top ? t : top;
         }
-    /* refine: mean chromaticity of the tiles in the winning 3x3 cell */
-    double su = 0, sv = 0;
-    size_t cnt = 0;
-    for (size_t i = 0; i < n; i++)
-        if (ts[i].uniform) {
-            size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
-            if (a + 1 >= ba && a <= ba + 1 && b + 1 >= bb && b <= bb + 1)
-                su += ts[i].u, sv += ts[i].v, cnt++;
+    size_t m = 0;
+    size_t cells[MAX_MODES][2];
+    for (size_t a = 1; a + 1 < nu; a++)
+        for (size_t b = 1; b + 1 < nv; b++) {
+            unsigned t = sm[a * nv + b];
+            if (t == 0 || t * 10 < top)
+                continue;
+            int peak = 1;
+            for (int da = -1; da <= 1 && peak; da++)
+                for (int db = -1; db <= 1 && peak; db++) {
+                    if (!da && !db)
+                        continue;
+                    size_t aa = a + (size_t)da, bb = b + (size_t)db;
+                    if (aa < 1 || bb < 1 || aa + 1 >= nu || bb + 1 >= nv)
+                        continue;
+                    unsigned o = sm[aa * nv + bb];
+                    /* ties: the first cell in scan order is the peak */
+                    if (o > t || (o == t && (da < 0 || (da == 0 && db < 0))))
+                        peak = 0;
+                }
+            if (!peak)
+                continue;
+            /* keep the strongest MAX_MODES */
+            size_t k;
+            if (m < MAX_MODES) {
+                k = m++;
+            } else {
+                if (out[MAX_MODES - 1].count >= t)
+                    continue;
+                k = MAX_MODES - 1;
+            }
+            out[k].count = t;
+            cells[k][0] = a, cells[k][1] = b;
+            for (size_t z = k; z > 0 && out[z].count > out[z - 1].count; z--) {
+                chroma_mode tm = out[z];
+                out[z] = out[z - 1];
+                out[z - 1] = tm;
+                size_t c0 = cells[z][0], c1 = cells[z][1];
+                cells[z][0] = cells[z - 1][0], cells[z][1] = cells[z - 1][1];
+                cells[z - 1][0] = c0, cells[z - 1][1] = c1;
+            }
         }
-    *u0 = cnt ? su / (double)cnt : umin;
-    *v0 = cnt ? sv / (double)cnt : vmin;
+    for (size_t k = 0; k < m; k++) {
+        double su = 0, sv = 0;
+        size_t cnt = 0;
+        for (size_t i = 0; i < n; i++)
+            if (ts[i].uniform) {
+                size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
+                if (a + 1 >= cells[k][0] && a <= cells[k][0] + 1 && b + 1 >= cells[k][1] &&
+                    b <= cells[k][1] + 1)
+                    su += ts[i].u, sv += ts[i].v, cnt++;
+            }
+        out[k].u = cnt ? su / (double)cnt : umin;
+        out[k].v = cnt ? sv / (double)cnt : vmin;
+    }
     free(h);
+    free(sm);
+    return m;
+}
+
+/* With a ladder, the substrate is the peak relative to which the other
+ * peaks look most like graphene: the chromaticity shift of N layers,
+ * (ln((1-C_R)/(1-C_G)), ln((1-C_B)/(1-C_G))), is what vignetting and lamp
+ * gradients leave unchanged. Without a ladder, the largest peak. A flake
+ * covering most of the field then does not pass for the substrate. */
+static size_t choose_substrate_mode(const chroma_mode *md, size_t m,
+                                    const lam_substrate_options *opt)
+{
+    if (m <= 1 || !opt->ladder || opt->ladder_count == 0)
+        return 0;
+    double best = INFINITY;
+    size_t bi = 0;
+    for (size_t i = 0; i < m; i++) {
+        double score = 0;
+        for (size_t j = 0; j < m; j++) {
+            if (j == i)
+                continue;
+            double du = md[j].u - md[i].u, dv = md[j].v - md[i].v, dmin = INFINITY;
+            for (size_t e = 0; e < opt->ladder_count; e++) {
+                const double *c = opt->ladder[e];
+                double lu = log((1 - c[0]) / (1 - c[1])), lv = log((1 - c[2]) / (1 - c[1]));
+                dmin = fmin(dmin, (du - lu) * (du - lu) + (dv - lv) * (dv - lv));
+            }
+            score += (double)md[j].count * dmin;
+        }
+        if (score < best)
+            best = score, bi = i;
+    }
+    return bi;
 }
 
 lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_options *opt,
@@ -212,7 +299,11 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
         }
         u0 = su / (double)cnt, v0 = sv / (double)cnt;
     } else {
-        chromaticity_mode(ts, n, 0.004, &u0, &v0);
+        chroma_mode md[MAX_MODES];
+        size_t nmodes = chromaticity_modes(ts, n, 0.004, md);
+        size_t pick = choose_substrate_mode(md, nmodes, opt);
+        u0 = nmodes ? md[pick].u : 0;
+        v0 = nmodes ? md[pick].v : 0;
     }
     /* candidates: chromaticity within 4.5 robust sigmas of the mode, the
      * sigma measured on tiles near the mode (JPEG chroma quantisation and

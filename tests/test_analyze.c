@@ -182,6 +182,41 @@ static void test_json_contract(void)
     lam_analysis_free(a);
 }
 
+/* A monolayer covering 60 % of the field (issue: flakes may cover up to
+ * 60 %): the substrate must still be the bare part. */
+static void test_mostly_covered(void)
+{
+    char path[512], img_path[512];
+    snprintf(path, sizeof path, "%s/cover.json", check_tmpdir());
+    snprintf(img_path, sizeof img_path, "%s/cover.png", check_tmpdir());
+    FILE *f = fopen(path, "w");
+    fprintf(f, "{\"schema\":\"lamina-scene/1\",\"width\":640,\"height\":480,\"oxide_nm\":287,"
+               "\"vignetting\":0.25,\"gradient\":[0.05,0.03],\"blur_px\":0.8,\"full_well\":10000,"
+               "\"seed\":9,\"flakes\":[{\"layers\":1,\"polygon\":[[0,0],[500,0],[500,370],[0,370]]},"
+               "{\"layers\":2,\"polygon\":[[520,20],[620,20],[620,120],[520,120]]}]}");
+    fclose(f);
+    lam_scene sc;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_scene_load(path, &sc, &err);
+    lam_image *img = NULL;
+    uint8_t *truth = NULL;
+    lam_render(&sc, &img, &truth, &err);
+    lam_render_save(img, img_path, 0, 90, &err);
+    lam_analysis *a = NULL;
+    check_int(lam_analyze(img_path, &sc.setup, NULL, &a, &err), LAM_OK, "60 %% covered field analyses");
+    if (a) {
+        uint32_t l = a->seg->label[200 * a->width + 250];
+        check_true(l && a->results[l - 1].layers == 1, "the 60 %% flake is a monolayer, not the substrate");
+        check_int(a->seg->cls[420 * a->width + 300], LAM_CLASS_SUBSTRATE, "the bare 40 %% is the substrate");
+        check_abs(a->oxide.estimate, 287, 3, "oxide within 3 nm with the field mostly covered");
+    }
+    lam_analysis_free(a);
+    lam_image_free(img);
+    free(truth);
+    lam_scene_clear(&sc);
+}
+
 static void test_no_substrate(void)
 {
     /* a field entirely covered by one flake: no substrate to find */
@@ -220,6 +255,7 @@ int main(void)
     gsl_set_error_handler_off();
     test_end_to_end();
     test_json_contract();
+    test_mostly_covered();
     test_no_substrate();
     return check_summary();
 }

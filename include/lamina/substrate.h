@@ -4,8 +4,9 @@
  *
  * The image is cut into tiles; uniform tiles are clustered by chromaticity
  * (ln R/G, ln B/G), which vignetting and illumination gradients do not
- * change; the densest cluster is taken as the substrate (or the tiles of a
- * user-given region). A robust fit (GSL bisquare) of ln(level) per channel
+ * change; of the strongest peaks, the substrate is the one against which
+ * the others look most like graphene layers (when a ladder is given; else
+ * the densest), or the tiles of a user-given region. A robust fit (GSL bisquare) of ln(level) per channel
  * over those tiles with the basis 1, x, y, x^2, xy, y^2, r^4 gives the flat
  * field B_c(x, y). Noise is the median relative pixel standard deviation of
  * substrate tiles; the effective pixel count of a region mean is n / kappa,
@@ -27,6 +28,8 @@ typedef struct lam_substrate_options {
     int has_roi;          /* use roi as the substrate's seed */
     size_t roi[4];        /* x, y, w, h */
     size_t threads;       /* worker threads for the pixel passes (1) */
+    const double (*ladder)[3]; /* optional contrasts of N = 1.. layers: the substrate */
+    size_t ladder_count;       /* is the peak the others look like graphene against */
 } lam_substrate_options;
 
 typedef struct lam_substrate {
