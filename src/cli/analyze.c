@@ -320,15 +320,13 @@ static int run_analyze(int argc, char **argv)
 {
     static const struct option longopts[] = {
         CLI_SETUP_LONGOPTS,
-        {"setup", required_argument, 0, 's'},    {"oxide", required_argument, 0, 'o'},
-        {"um-per-px", required_argument, 0, 'u'}, {"max-layers", required_argument, 0, 'K'},
+        {"max-layers", required_argument, 0, 'K'},
         {"min-area", required_argument, 0, 'a'},  {"substrate-roi", required_argument, 0, 'r'},
         {"oxide-tolerance", required_argument, 0, 't'}, {"no-oxide-fit", no_argument, 0, 'N'},
-        {"fermi", required_argument, 0, 'f'},     {"encoding", required_argument, 0, 'e'},
+        {"encoding", required_argument, 0, 'e'},
         {"out", required_argument, 0, 'O'},       {"threads", required_argument, 0, 'j'},
         {"max-megapixels", required_argument, 0, 'm'}, {"quiet", no_argument, 0, 'q'},
-        {"verbose", no_argument, 0, 'v'},         {"na", required_argument, 0, 'n'},
-        {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
+        {"verbose", no_argument, 0, 'v'},         {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
         {"resume", no_argument, 0, 'R'},          {"shard", required_argument, 0, 'S'},
         {0, 0, 0, 0}};
     cli_setup_opts so;
@@ -338,15 +336,11 @@ static int run_analyze(int argc, char **argv)
     long threads = (long)lam_cpu_count(), K = 6;
     double area = -1;
     size_t shard = 0, shards = 0;
-    int c, resume = 0;
+    int c, r, resume = 0;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
         switch (c) {
-        case 's': so.setup_file = optarg; break;
-        case 'o': if (cli_parse_double("analyze", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
-        case 'u': if (cli_parse_double("analyze", "--um-per-px", optarg, 1e-4, 1000, &so.um_per_px)) return CLI_EUSAGE; break;
-        case 'n': if (cli_parse_double("analyze", "--na", optarg, 0, 1.6, &so.na)) return CLI_EUSAGE; break;
         case 'K': if (cli_parse_long("analyze", "--max-layers", optarg, 1, 20, &K)) return CLI_EUSAGE; break;
         case 'a': if (cli_parse_double("analyze", "--min-area", optarg, 0, 1e9, &area)) return CLI_EUSAGE; break;
         case 'r':
@@ -356,7 +350,6 @@ static int run_analyze(int argc, char **argv)
             break;
         case 't': if (cli_parse_double("analyze", "--oxide-tolerance", optarg, 0, 500, &opt.oxide_tolerance_nm)) return CLI_EUSAGE; break;
         case 'N': opt.fit_oxide = 0; break;
-        case 'f': if (cli_parse_double("analyze", "--fermi", optarg, -2, 2, &so.fermi_ev)) return CLI_EUSAGE; break;
         case 'e':
             if (lam_transfer_parse(optarg, &opt.load.transfer))
                 return cli_usage_error("analyze", "--encoding: expected srgb, linear or a gamma value");
@@ -379,8 +372,10 @@ static int run_analyze(int argc, char **argv)
                 return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
             break;
         default:
-            if (cli_setup_option(&so, c, optarg))
+            if ((r = cli_setup_option(&so, "analyze", c, optarg)) > 0)
                 break;
+            if (r < 0)
+                return CLI_EUSAGE;
             return cli_usage_error("analyze", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

@@ -37,10 +37,9 @@ static void calibrate_help(FILE *out)
 
 static int run_calibrate(int argc, char **argv)
 {
-    static const struct option longopts[] = {{"labels", required_argument, 0, 'l'},
+    static const struct option longopts[] = {CLI_SETUP_LONGOPTS,
+                                             {"labels", required_argument, 0, 'l'},
                                              {"self", no_argument, 0, 'S'},
-                                             {"setup", required_argument, 0, 's'},
-                                             {"oxide", required_argument, 0, 'x'},
                                              {"output", required_argument, 0, 'o'},
                                              {"quiet", no_argument, 0, 'q'},
                                              {"known-oxide", required_argument, 0, 'k'},
@@ -50,7 +49,7 @@ static int run_calibrate(int argc, char **argv)
     cli_setup_opts_init(&so);
     const char *labels[MAX_LABELS], *out = "calibrated.json";
     size_t nl = 0;
-    int self = 0, c;
+    int self = 0, c, r;
     double known[LAM_CALIB_MAX_IMAGES];
     size_t nk = 0;
     double known_na = NAN;
@@ -66,8 +65,6 @@ static int run_calibrate(int argc, char **argv)
             labels[nl++] = optarg;
             break;
         case 'S': self = 1; break;
-        case 's': so.setup_file = optarg; break;
-        case 'x': if (cli_parse_double("calibrate", "--oxide", optarg, 1, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
         case 'o': out = optarg; break;
         case 'q': cli_quiet = 1; break;
         case 'N':
@@ -92,8 +89,10 @@ static int run_calibrate(int argc, char **argv)
             break;
         }
         default:
-            if (cli_setup_option(&so, c, optarg))
+            if ((r = cli_setup_option(&so, "calibrate", c, optarg)) > 0)
                 break;
+            if (r < 0)
+                return CLI_EUSAGE;
             return cli_usage_error("calibrate", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

@@ -19,29 +19,26 @@ static int run_map(int argc, char **argv)
 {
     static const struct option longopts[] = {
         CLI_SETUP_LONGOPTS,
-        {"setup", required_argument, 0, 's'}, {"layers", required_argument, 0, 'l'},
-        {"fermi", required_argument, 0, 'f'}, {"na", required_argument, 0, 'n'},
-        {"oxide", required_argument, 0, 'o'}, {"out", required_argument, 0, 'O'},
+        {"layers", required_argument, 0, 'l'},
+        {"out", required_argument, 0, 'O'},
         {"quiet", no_argument, 0, 'q'},       {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     long layers = 1;
     const char *out = "map.svg";
-    int c;
+    int c, r;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
         switch (c) {
-        case 's': so.setup_file = optarg; break;
         case 'l': if (cli_parse_long("map", "--layers", optarg, 1, 40, &layers)) return CLI_EUSAGE; break;
-        case 'f': if (cli_parse_double("map", "--fermi", optarg, -2, 2, &so.fermi_ev)) return CLI_EUSAGE; break;
-        case 'n': if (cli_parse_double("map", "--na", optarg, 0, 1.6, &so.na)) return CLI_EUSAGE; break;
-        case 'o': if (cli_parse_double("map", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
         case 'O': out = optarg; break;
         case 'q': cli_quiet = 1; break;
         default:
-            if (cli_setup_option(&so, c, optarg))
+            if ((r = cli_setup_option(&so, "map", c, optarg)) > 0)
                 break;
+            if (r < 0)
+                return CLI_EUSAGE;
             return cli_usage_error("map", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

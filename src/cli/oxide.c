@@ -97,7 +97,6 @@ static int run_oxide(int argc, char **argv)
 {
     static const struct option longopts[] = {
         CLI_SETUP_LONGOPTS,
-        {"setup", required_argument, 0, 's'},     {"oxide", required_argument, 0, 'o'},
         {"tolerance", required_argument, 0, 't'}, {"out", required_argument, 0, 'O'},
         {"max-layers", required_argument, 0, 'K'}, {"threads", required_argument, 0, 'j'},
         {"quiet", no_argument, 0, 'q'},           {"reference", required_argument, 0, 'r'},
@@ -108,13 +107,11 @@ static int run_oxide(int argc, char **argv)
     double stability = 0.01;
     double tol_nm = 10, tol_pct = -1;
     long K = 6, threads = 0;
-    int c;
+    int c, r;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
         switch (c) {
-        case 's': so.setup_file = optarg; break;
-        case 'o': if (cli_parse_double("oxide", "--oxide", optarg, 1, 5000, &so.oxide_nm)) return CLI_EUSAGE; break;
         case 't': {
             size_t len = strlen(optarg);
             if (len > 1 && optarg[len - 1] == '%') {
@@ -133,8 +130,10 @@ static int run_oxide(int argc, char **argv)
         case 'r': reference = optarg; break;
         case 'y': if (cli_parse_double("oxide", "--stability", optarg, 1e-4, 0.5, &stability)) return CLI_EUSAGE; break;
         default:
-            if (cli_setup_option(&so, c, optarg))
+            if ((r = cli_setup_option(&so, "oxide", c, optarg)) > 0)
                 break;
+            if (r < 0)
+                return CLI_EUSAGE;
             return cli_usage_error("oxide", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

@@ -71,33 +71,21 @@ static int run_predict(int argc, char **argv)
 {
     static const struct option longopts[] = {
         CLI_SETUP_LONGOPTS,
-        {"setup", required_argument, 0, 's'},   {"oxide", required_argument, 0, 'o'},
-        {"na", required_argument, 0, 'n'},      {"wavelength", required_argument, 0, 'w'},
-        {"layers", required_argument, 0, 'l'},  {"fermi", required_argument, 0, 'f'},
-        {"format", required_argument, 0, 'F'},  {"quiet", no_argument, 0, 'q'},
+        {"wavelength", required_argument, 0, 'w'},
+        {"layers", required_argument, 0, 'l'},  {"format", required_argument, 0, 'F'},  {"quiet", no_argument, 0, 'q'},
         {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     double mono = 0;
     long lo = 1, hi = 5;
     const char *format = "table";
-    int opt;
+    int opt, r;
     optind = 1;
     opterr = 0;
     while ((opt = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
         switch (opt) {
-        case 's': so.setup_file = optarg; break;
-        case 'o':
-            if (cli_parse_double("predict", "--oxide", optarg, 0, 5000, &so.oxide_nm)) return CLI_EUSAGE;
-            break;
-        case 'n':
-            if (cli_parse_double("predict", "--na", optarg, 0, 1.6, &so.na)) return CLI_EUSAGE;
-            break;
         case 'w':
             if (cli_parse_double("predict", "--wavelength", optarg, 300, 1000, &mono)) return CLI_EUSAGE;
-            break;
-        case 'f':
-            if (cli_parse_double("predict", "--fermi", optarg, -2, 2, &so.fermi_ev)) return CLI_EUSAGE;
             break;
         case 'l': {
             char *dash = strchr(optarg, '-');
@@ -119,8 +107,10 @@ static int run_predict(int argc, char **argv)
             break;
         case 'q': cli_quiet = 1; break;
         default:
-            if (cli_setup_option(&so, opt, optarg))
+            if ((r = cli_setup_option(&so, "predict", opt, optarg)) > 0)
                 break;
+            if (r < 0)
+                return CLI_EUSAGE;
             return cli_usage_error("predict", "unknown or incomplete option '%s'", argv[optind - 1]);
         }
     }

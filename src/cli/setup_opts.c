@@ -17,15 +17,17 @@ void cli_setup_opts_init(cli_setup_opts *o)
     o->material = NULL;
 }
 
-int cli_setup_option(cli_setup_opts *o, int code, const char *arg)
+int cli_setup_option(cli_setup_opts *o, const char *command, int code, const char *arg)
 {
-    if (code == CLI_OPT_STACK) {
-        o->stack_file = arg;
-        return 1;
-    }
-    if (code == CLI_OPT_MATERIAL) {
-        o->material = arg;
-        return 1;
+    switch (code) {
+    case CLI_OPT_STACK: o->stack_file = arg; return 1;
+    case CLI_OPT_MATERIAL: o->material = arg; return 1;
+    case CLI_OPT_SETUP: o->setup_file = arg; return 1;
+    case CLI_OPT_OXIDE: return cli_parse_double(command, "--oxide", arg, 0, 5000, &o->oxide_nm) ? -1 : 1;
+    case CLI_OPT_NA: return cli_parse_double(command, "--na", arg, 0, 1.6, &o->na) ? -1 : 1;
+    case CLI_OPT_FERMI: return cli_parse_double(command, "--fermi", arg, -2, 2, &o->fermi_ev) ? -1 : 1;
+    case CLI_OPT_UM_PER_PX:
+        return cli_parse_double(command, "--um-per-px", arg, 1e-4, 1000, &o->um_per_px) ? -1 : 1;
     }
     return 0;
 }

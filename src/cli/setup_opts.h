@@ -1,5 +1,6 @@
-/* cli/setup_opts.h - the options every physics subcommand shares
- * (--setup, --oxide, --na, --fermi, --max-layers) applied to a lam_setup. */
+/* cli/setup_opts.h - the options every physics subcommand shares (--setup,
+ * --stack, --material, --oxide, --na, --fermi, --um-per-px), parsed in one
+ * place and applied to a lam_setup. */
 #ifndef LAMINA_CLI_SETUP_OPTS_H
 #define LAMINA_CLI_SETUP_OPTS_H
 
@@ -16,12 +17,21 @@ typedef struct cli_setup_opts {
 } cli_setup_opts;
 
 /* getopt codes of the options shared by every physics command */
-enum { CLI_OPT_STACK = 1001, CLI_OPT_MATERIAL = 1002 };
+enum {
+    CLI_OPT_STACK = 1001, CLI_OPT_MATERIAL, CLI_OPT_SETUP, CLI_OPT_OXIDE, CLI_OPT_NA,
+    CLI_OPT_FERMI, CLI_OPT_UM_PER_PX
+};
 #define CLI_SETUP_LONGOPTS                                                                   \
-    {"stack", required_argument, 0, CLI_OPT_STACK}, {"material", required_argument, 0, CLI_OPT_MATERIAL}
+    {"stack", required_argument, 0, CLI_OPT_STACK},                                         \
+        {"material", required_argument, 0, CLI_OPT_MATERIAL},                               \
+        {"setup", required_argument, 0, CLI_OPT_SETUP},                                     \
+        {"oxide", required_argument, 0, CLI_OPT_OXIDE}, {"na", required_argument, 0, CLI_OPT_NA}, \
+        {"fermi", required_argument, 0, CLI_OPT_FERMI},                                     \
+        {"um-per-px", required_argument, 0, CLI_OPT_UM_PER_PX}
 
-/* Handle a shared option; returns 1 if it was one, 0 if not. */
-int cli_setup_option(cli_setup_opts *o, int code, const char *arg);
+/* Handle a shared option: 1 if it was one, 0 if not, -1 after printing a
+ * usage error for a bad value (exit 2). */
+int cli_setup_option(cli_setup_opts *o, const char *command, int code, const char *arg);
 
 void cli_setup_opts_init(cli_setup_opts *o);
 
