@@ -182,27 +182,36 @@ static void test_json_contract(void)
     lam_analysis_free(a);
 }
 
+/* Parse a scene, render it and save it as PNG in the scratch folder; the
+ * scene (with its setup) stays for the analysis; the caller clears it. */
+static void render_scene(const char *json, const char *name, char *img_path, size_t n,
+                         lam_scene *sc)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    lam_scene_parse(json, ".", sc, &err);
+    lam_image *img = NULL;
+    uint8_t *truth = NULL;
+    snprintf(img_path, n, "%s/%s", check_tmpdir(), name);
+    lam_render(sc, &img, &truth, &err);
+    lam_render_save(img, img_path, 0, 90, &err);
+    lam_image_free(img);
+    free(truth);
+}
+
 /* A monolayer covering 60 % of the field (issue: flakes may cover up to
  * 60 %): the substrate must still be the bare part. */
 static void test_mostly_covered(void)
 {
-    char path[512], img_path[512];
-    snprintf(path, sizeof path, "%s/cover.json", check_tmpdir());
-    snprintf(img_path, sizeof img_path, "%s/cover.png", check_tmpdir());
-    FILE *f = fopen(path, "w");
-    fprintf(f, "{\"schema\":\"lamina-scene/1\",\"width\":640,\"height\":480,\"oxide_nm\":287,"
-               "\"vignetting\":0.25,\"gradient\":[0.05,0.03],\"blur_px\":0.8,\"full_well\":10000,"
-               "\"seed\":9,\"flakes\":[{\"layers\":1,\"polygon\":[[0,0],[500,0],[500,370],[0,370]]},"
-               "{\"layers\":2,\"polygon\":[[520,20],[620,20],[620,120],[520,120]]}]}");
-    fclose(f);
+    char img_path[512];
     lam_scene sc;
+    render_scene("{\"schema\":\"lamina-scene/1\",\"width\":640,\"height\":480,\"oxide_nm\":287,"
+                 "\"vignetting\":0.25,\"gradient\":[0.05,0.03],\"blur_px\":0.8,\"full_well\":10000,"
+                 "\"seed\":9,\"flakes\":[{\"layers\":1,\"polygon\":[[0,0],[500,0],[500,370],[0,370]]},"
+                 "{\"layers\":2,\"polygon\":[[520,20],[620,20],[620,120],[520,120]]}]}",
+                 "cover.png", img_path, sizeof img_path, &sc);
     lam_error err;
     lam_error_clear(&err);
-    lam_scene_load(path, &sc, &err);
-    lam_image *img = NULL;
-    uint8_t *truth = NULL;
-    lam_render(&sc, &img, &truth, &err);
-    lam_render_save(img, img_path, 0, 90, &err);
     lam_analysis *a = NULL;
     check_int(lam_analyze(img_path, &sc.setup, NULL, &a, &err), LAM_OK, "60 %% covered field analyses");
     if (a) {
@@ -212,31 +221,20 @@ static void test_mostly_covered(void)
         check_abs(a->oxide.estimate, 287, 3, "oxide within 3 nm with the field mostly covered");
     }
     lam_analysis_free(a);
-    lam_image_free(img);
-    free(truth);
     lam_scene_clear(&sc);
 }
 
 static void test_no_substrate(void)
 {
     /* a field entirely covered by one flake: no substrate to find */
-    char path[512];
-    snprintf(path, sizeof path, "%s/covered.json", check_tmpdir());
-    FILE *f = fopen(path, "w");
-    fprintf(f, "{\"schema\":\"lamina-scene/1\",\"width\":200,\"height\":160,\"full_well\":10000,"
-               "\"flakes\":[{\"layers\":30,\"polygon\":[[-5,-5],[205,-5],[205,165],[-5,165]]},"
-               "{\"layers\":2,\"circle\":[100,80,40]},{\"layers\":7,\"circle\":[40,40,20]}]}");
-    fclose(f);
+    char img_path[512];
     lam_scene sc;
+    render_scene("{\"schema\":\"lamina-scene/1\",\"width\":200,\"height\":160,\"full_well\":10000,"
+                 "\"flakes\":[{\"layers\":30,\"polygon\":[[-5,-5],[205,-5],[205,165],[-5,165]]},"
+                 "{\"layers\":2,\"circle\":[100,80,40]},{\"layers\":7,\"circle\":[40,40,20]}]}",
+                 "covered.png", img_path, sizeof img_path, &sc);
     lam_error err;
     lam_error_clear(&err);
-    lam_scene_load(path, &sc, &err);
-    lam_image *img = NULL;
-    uint8_t *truth = NULL;
-    char img_path[512];
-    snprintf(img_path, sizeof img_path, "%s/covered.png", check_tmpdir());
-    lam_render(&sc, &img, &truth, &err);
-    lam_render_save(img, img_path, 0, 90, &err);
     lam_analysis *a = NULL;
     lam_status st = lam_analyze(img_path, &sc.setup, NULL, &a, &err);
     /* either no substrate is found (error with the hint), or what is taken
@@ -244,8 +242,6 @@ static void test_no_substrate(void)
     int ok = st == LAM_ERANGE ? strstr(err.message, "--substrate-roi") != NULL : 1;
     check_true(ok, "no-substrate case: %s", st ? err.message : "analysed");
     lam_analysis_free(a);
-    lam_image_free(img);
-    free(truth);
     lam_scene_clear(&sc);
 }
 
