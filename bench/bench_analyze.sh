@@ -4,21 +4,18 @@
 # run alternately in one session. Goal: ratio <= 5; peak memory <= 24 B/px.
 # Usage: bench_analyze.sh BUILD_DIR [RUNS]
 set -eu
+. "$(dirname "$0")/common.sh"
 B=${1:-build}; RUNS=${2:-5}
 D="$B/bench"; mkdir -p "$D"
 IMG="$D/big12mp.jpg"
 [ -s "$IMG" ] || "$B/lamina" render --quiet bench/big-scene.json -o "$IMG"
-now() { date +%s.%N; }
 ta=""; tb=""
 i=0
 while [ $i -lt "$RUNS" ]; do
-    s=$(now); djpeg -outfile /dev/null "$IMG"; e=$(now)
-    tb="$tb $(echo "$e - $s" | bc -l)"
-    s=$(now); "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$IMG"; e=$(now)
-    ta="$ta $(echo "$e - $s" | bc -l)"
+    tb="$tb $(elapsed djpeg -outfile /dev/null "$IMG")"
+    ta="$ta $(elapsed "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$IMG")"
     i=$((i + 1))
 done
-median() { printf '%s\n' $1 | sort -n | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
 ma=$(median "$ta"); mb=$(median "$tb")
 printf 'bench_analyze: 12 MP JPEG: lamina analyze median %.3f s, djpeg median %.3f s, ratio %.2f (goal <= 5)\n' \
     "$ma" "$mb" "$(echo "$ma / $mb" | bc -l)"

@@ -3,6 +3,7 @@
 # (the 285 nm samples, five copies each under new names), alternately.
 # Goal (chip-scale issue): 2 threads >= 1.8x the throughput of 1.
 set -eu
+. "$(dirname "$0")/common.sh"
 B=${1:-build}; RUNS=${2:-3}
 D="$B/bench/batch"; mkdir -p "$D"
 for k in 1 2 3 4 5; do
@@ -11,16 +12,12 @@ for k in 1 2 3 4 5; do
     done
     cp -f samples/HT285-A07-tile12.png "$D/extra-copy$k.png"
 done
-now() { date +%s.%N; }
 t1=""; t2=""; i=0
 while [ $i -lt "$RUNS" ]; do
-    s=$(now); "$B/lamina" analyze --quiet --threads 1 --setup samples/bench3-setup.json --out "$D/out1" "$D"; e=$(now)
-    t1="$t1 $(echo "$e - $s" | bc -l)"
-    s=$(now); "$B/lamina" analyze --quiet --threads 2 --setup samples/bench3-setup.json --out "$D/out2" "$D"; e=$(now)
-    t2="$t2 $(echo "$e - $s" | bc -l)"
+    t1="$t1 $(elapsed "$B/lamina" analyze --quiet --threads 1 --setup samples/bench3-setup.json --out "$D/out1" "$D")"
+    t2="$t2 $(elapsed "$B/lamina" analyze --quiet --threads 2 --setup samples/bench3-setup.json --out "$D/out2" "$D")"
     i=$((i + 1))
 done
-median() { printf '%s\n' $1 | sort -n | awk '{a[NR]=$1} END {print a[int((NR+1)/2)]}'; }
 m1=$(median "$t1"); m2=$(median "$t2")
 printf 'bench_batch: 20 tiles: 1 thread %.2f s, 2 threads %.2f s, speed-up %.2f (goal >= 1.8)\n' \
     "$m1" "$m2" "$(echo "$m1 / $m2" | bc -l)"
