@@ -122,8 +122,10 @@ int check_summary(void)
 const char *check_refdata_dir(void)
 {
     static char buf[1024];
+    /* the published tables copied into the repository (tests/data/nk,
+     * sources in tests/data/nk/README.md); LAMINA_REFDATA may point elsewhere */
     const char *env = getenv("LAMINA_REFDATA");
-    const char *cands[] = {env, "../shared/refdata", "../../shared/refdata"};
+    const char *cands[] = {env, "tests/data"};
     for (size_t i = 0; i < sizeof cands / sizeof cands[0]; i++) {
         struct stat sb;
         if (cands[i] && stat(cands[i], &sb) == 0 && S_ISDIR(sb.st_mode)) {

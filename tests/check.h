@@ -25,8 +25,8 @@ int check_str(const char *observed, const char *expected, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 int check_summary(void);
 
-/* Path of the shared reference data folder (LAMINA_REFDATA or
- * ../shared/refdata relative to the repository), or NULL when absent. */
+/* Path of the reference data folder: LAMINA_REFDATA, else tests/data (the
+ * published n,k tables copied into the repository), or NULL when absent. */
 const char *check_refdata_dir(void);
 
 /* Build "dir/name" into buf; returns buf. */

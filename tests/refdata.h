@@ -1,5 +1,5 @@
 /* tests/refdata.h - read the refractiveindex.info YAML files in
- * ../shared/refdata/nk (tabulated nk rows only), for test comparisons. */
+ * tests/data/nk (tabulated nk rows only), for test comparisons. */
 #ifndef LAMINA_TESTS_REFDATA_H
 #define LAMINA_TESTS_REFDATA_H
 

@@ -18,7 +18,7 @@ typedef struct cgats {
     double data[3][600];
 } cgats;
 
-/* Reader per shared/refdata/CIE-IN-DEBIAN.md: keys, then BEGIN_DATA rows. */
+/* Reader of the colord-data CIE files (Debian): keys, then BEGIN_DATA rows. */
 static int read_cgats(const char *path, cgats *out)
 {
     FILE *fp = fopen(path, "r");

@@ -156,7 +156,7 @@ int main(void)
     check_begin("test_conductivity");
     gsl_set_error_handler_off();
     if (!check_refdata_dir())
-        check_skip("../shared/refdata not found");
+        check_skip("tests/data not found");
     test_constants();
     test_zero_temperature();
     test_finite_temperature();

@@ -1,5 +1,5 @@
 /* test_material.c - dispersion models against published optical constants
- * (refractiveindex.info files in ../shared/refdata/nk, read at test time). */
+ * (refractiveindex.info files copied into tests/data/nk). */
 #include "check.h"
 #include "refdata.h"
 #include "lamina/material.h"
@@ -156,7 +156,7 @@ int main(void)
 {
     check_begin("test_material");
     if (!check_refdata_dir())
-        check_skip("../shared/refdata not found (set LAMINA_REFDATA)");
+        check_skip("tests/data not found (run from the repository root)");
     test_sio2();
     test_si_against_green();
     test_hbn();

@@ -299,6 +299,6 @@ int main(void)
     if (check_refdata_dir())
         test_film_comparison();
     else
-        check_true(0, "../shared/refdata missing");
+        check_true(0, "tests/data missing");
     return check_summary();
 }
