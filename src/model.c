@@ -1,5 +1,6 @@
 /* model.c - channel- and cone-integrated reflectance and contrast of
- * N-layer graphene on a thin-film substrate. */
+ * N-layer graphene on a thin-film substrate, at any model point, with the
+ * caches that make nearby points cheap. */
 #include "lamina/model.h"
 #include "lamina/tmm.h"
 
@@ -10,55 +11,62 @@
 
 #define HC_EV_NM 1239.841984
 #define MAX_NODES 96
+#define SUBSTRATE_SLOTS 4 /* a fit's base point and its oxide / NA neighbours */
+
+/* The illumination cone for one NA: sin(theta) of each node and its weight
+ * (quadrature weight times pupil weight, normalised; s and p get half each). */
+typedef struct cone {
+    double na;
+    size_t nodes;
+    double sin_t[MAX_NODES], w_t[MAX_NODES];
+} cone;
+
+/* The substrate seen from the ambient, per wavelength and cone node, for one
+ * oxide thickness and NA: admittance Y for s and p and the ambient terms the
+ * sheet stacking needs. Index (l * nodes + t) * 2 + pol. */
+typedef struct substrate_slot {
+    int valid;
+    unsigned long used;
+    double oxide_nm, na;
+    double complex *y, *eta0, *gap_cos, *gap_sin;
+} substrate_slot;
 
 struct lam_model {
-    size_t channels, max_layers, nwl, nodes, oxide_layer, layers;
-    double n_ambient;
-    double interlayer_nm;
+    size_t channels, max_layers, nwl, layers, oxide_layer, cone_nodes_max;
+    double n_ambient, interlayer_nm;
+    lam_pupil_weight pupil;
     lam_sheet_params sheet;
-    double cached_fermi;
-    int have_sigma;
-    double *wl;              /* nwl */
-    double *weight;          /* channels x nwl */
+    lam_camera camera;       /* borrowed table pointers: the setup must outlive only alloc */
+    lam_table_spectrum camera_table_copy;
+    double *wl, *trapezoid, *lamp; /* nwl */
+    double *weight;          /* channels x nwl, for 'weight_shift' */
+    double weight_shift[LAM_MAX_CHANNELS];
+    int have_weight;
     double complex *n_layer; /* layers x nwl */
     double complex *n_base;  /* nwl */
-    double complex *y_sheet; /* nwl: Z0 sigma */
     double complex *n_film;  /* nwl: flake index when flakes are films, else NULL */
+    double complex *basis;   /* nwl x 4: sheet conductivity basis at basis_fermi */
+    double basis_fermi;
+    int have_basis;
+    double complex *y_sheet; /* nwl: Z0 sigma at the point being evaluated */
     double layer_nm[LAM_SETUP_MAX_LAYERS];
-    double sin_t[MAX_NODES], w_t[MAX_NODES];
+    cone cone_cache;
+    substrate_slot slot[SUBSTRATE_SLOTS];
+    unsigned long clock;
+    lam_model_point defaults;
+    double *rbar;            /* nwl x (max_layers + 1): cone-averaged R */
 };
 
-static lam_status fill_cone(lam_model *m, const lam_setup *s, lam_error *err)
+/* ---- allocation ---- */
+
+static void free_slots(lam_model *m)
 {
-    double na = s->illumination_na;
-    if (!(na >= 0 && na < m->n_ambient))
-        return lam_error_set(err, LAM_ERANGE,
-                             "illumination NA %g must be >= 0 and below the ambient index %g",
-                             na, m->n_ambient);
-    if (na == 0 || s->cone_nodes <= 1) {
-        m->nodes = 1;
-        m->sin_t[0] = 0;
-        m->w_t[0] = 1;
-        return LAM_OK;
+    for (int i = 0; i < SUBSTRATE_SLOTS; i++) {
+        free(m->slot[i].y);
+        free(m->slot[i].eta0);
+        free(m->slot[i].gap_cos);
+        free(m->slot[i].gap_sin);
     }
-    double tmax = asin(na / m->n_ambient);
-    m->nodes = s->cone_nodes > MAX_NODES ? MAX_NODES : s->cone_nodes;
-    gsl_integration_glfixed_table *t = gsl_integration_glfixed_table_alloc(m->nodes);
-    if (!t)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate Gauss-Legendre nodes");
-    double sum = 0;
-    for (size_t i = 0; i < m->nodes; i++) {
-        double x, w;
-        gsl_integration_glfixed_point(0.0, tmax, i, &x, &w, t);
-        double pw = s->pupil == LAM_PUPIL_SIN ? sin(x) : sin(x) * cos(x);
-        m->sin_t[i] = sin(x);
-        m->w_t[i] = w * pw;
-        sum += m->w_t[i];
-    }
-    gsl_integration_glfixed_table_free(t);
-    for (size_t i = 0; i < m->nodes; i++)
-        m->w_t[i] /= sum;
-    return LAM_OK;
 }
 
 void lam_model_free(lam_model *m)
@@ -66,17 +74,119 @@ void lam_model_free(lam_model *m)
     if (!m)
         return;
     free(m->wl);
+    free(m->trapezoid);
+    free(m->lamp);
     free(m->weight);
     free(m->n_layer);
     free(m->n_base);
-    free(m->y_sheet);
     free(m->n_film);
+    free(m->basis);
+    free(m->y_sheet);
+    free(m->rbar);
+    free_slots(m);
+    lam_table_spectrum_clear(&m->camera_table_copy);
     free(m);
 }
 
 size_t lam_model_channels(const lam_model *m)
 {
     return m->channels;
+}
+
+size_t lam_model_max_layers(const lam_model *m)
+{
+    return m->max_layers;
+}
+
+static int alloc_arrays(lam_model *m)
+{
+    size_t n = m->nwl, nl = m->layers ? m->layers : 1;
+    size_t per_slot = n * m->cone_nodes_max * 2;
+    m->wl = malloc(n * sizeof *m->wl);
+    m->trapezoid = malloc(n * sizeof *m->trapezoid);
+    m->lamp = malloc(n * sizeof *m->lamp);
+    m->weight = malloc(m->channels * n * sizeof *m->weight);
+    m->n_layer = malloc(nl * n * sizeof *m->n_layer);
+    m->n_base = malloc(n * sizeof *m->n_base);
+    m->basis = malloc(4 * n * sizeof *m->basis);
+    m->y_sheet = malloc(n * sizeof *m->y_sheet);
+    m->rbar = malloc(n * (m->max_layers + 1) * sizeof *m->rbar);
+    int ok = m->wl && m->trapezoid && m->lamp && m->weight && m->n_layer && m->n_base &&
+             m->basis && m->y_sheet && m->rbar;
+    for (int i = 0; i < SUBSTRATE_SLOTS && ok; i++) {
+        substrate_slot *s = &m->slot[i];
+        s->y = malloc(per_slot * sizeof *s->y);
+        s->eta0 = malloc(per_slot * sizeof *s->eta0);
+        s->gap_cos = malloc(per_slot / 2 * sizeof *s->gap_cos);
+        s->gap_sin = malloc(per_slot / 2 * sizeof *s->gap_sin);
+        ok = s->y && s->eta0 && s->gap_cos && s->gap_sin;
+    }
+    return ok;
+}
+
+/* Indices of the substrate films, the base and (for film flakes) the flake. */
+static lam_status fill_materials(lam_model *m, const lam_setup *s, lam_error *err)
+{
+    lam_status st = LAM_OK;
+    for (size_t l = 0; l < m->nwl && !st; l++) {
+        double nm = m->wl[l];
+        for (size_t j = 0; j < m->layers && !st; j++)
+            st = lam_material_index(&s->layer_material[j], nm, &m->n_layer[j * m->nwl + l], err);
+        if (!st)
+            st = lam_material_index(&s->base, nm, &m->n_base[l], err);
+        double complex na;
+        if (!st)
+            st = lam_material_index(&s->ambient, nm, &na, err);
+    }
+    if (st || !s->flake_as_film)
+        return st;
+    if (!(m->n_film = malloc(m->nwl * sizeof *m->n_film)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
+    for (size_t l = 0; l < m->nwl && !st; l++)
+        st = lam_material_index(&s->flake_film, m->wl[l], &m->n_film[l], err);
+    return st;
+}
+
+/* The camera is kept by value; a table camera's spectrum is deep-copied so
+ * the model does not depend on the setup after allocation. */
+static lam_status copy_camera(lam_model *m, const lam_camera *cam, lam_error *err)
+{
+    m->camera = *cam;
+    if (cam->kind != LAM_CAMERA_TABLE)
+        return LAM_OK;
+    const lam_table_spectrum *t = &cam->table;
+    lam_table_spectrum *c = &m->camera_table_copy;
+    *c = *t;
+    c->nm = malloc(t->rows * sizeof *c->nm);
+    c->value = malloc(t->rows * t->columns * sizeof *c->value);
+    if (!c->nm || !c->value) {
+        free(c->nm);
+        free(c->value);
+        c->nm = c->value = NULL;
+        c->rows = 0;
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy the camera table");
+    }
+    memcpy(c->nm, t->nm, t->rows * sizeof *c->nm);
+    memcpy(c->value, t->value, t->rows * t->columns * sizeof *c->value);
+    m->camera.table = *c;
+    return LAM_OK;
+}
+
+static lam_status init_spectrum(lam_model *m, const lam_setup *s, const lam_grid *g,
+                                const lam_camera *cam, lam_error *err)
+{
+    double (*w)[LAM_MAX_GRID] = malloc(sizeof(double[LAM_MAX_CHANNELS][LAM_MAX_GRID]));
+    if (!w)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
+    /* checks that every channel sees light; the weights are rebuilt per shift */
+    lam_status st = lam_spectrum_weights(g, &s->illuminant, cam, w, err);
+    free(w);
+    for (size_t l = 0; l < m->nwl && !st; l++) {
+        m->wl[l] = g->nm[l];
+        m->trapezoid[l] = g->weight[l];
+        m->lamp[l] = lam_illuminant_eval(&s->illuminant, g->nm[l]);
+    }
+    return st;
 }
 
 lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm,
@@ -86,10 +196,9 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
         return lam_error_set(err, LAM_ERANGE, "layer range must be 1 to %d, not %zu",
                              LAM_MODEL_MAX_LAYERS, max_layers);
     lam_grid *grid = malloc(sizeof *grid);
-    double (*w)[LAM_MAX_GRID] = malloc(sizeof(double[LAM_MAX_CHANNELS][LAM_MAX_GRID]));
     lam_model *m = calloc(1, sizeof *m);
     lam_status st = LAM_OK;
-    if (!grid || !w || !m) {
+    if (!grid || !m) {
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
         goto fail;
     }
@@ -101,8 +210,6 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
     } else if ((st = lam_grid_init(grid, s->grid_lo_nm, s->grid_hi_nm, s->grid_step_nm, err))) {
         goto fail;
     }
-    if ((st = lam_spectrum_weights(grid, &s->illuminant, &cam, w, err)))
-        goto fail;
     m->channels = cam.channels;
     m->max_layers = max_layers;
     m->nwl = grid->count;
@@ -110,82 +217,164 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
     m->oxide_layer = lam_setup_oxide_layer(s);
     m->interlayer_nm = s->interlayer_nm;
     m->sheet = s->sheet;
+    m->pupil = s->pupil;
+    m->cone_nodes_max = s->cone_nodes < 1 ? 1 : (s->cone_nodes > MAX_NODES ? MAX_NODES : s->cone_nodes);
     memcpy(m->layer_nm, s->layer_nm, sizeof m->layer_nm);
     m->n_ambient = creal(lam_material_index_eval(&s->ambient, 550));
-    m->wl = malloc(m->nwl * sizeof *m->wl);
-    m->weight = malloc(m->channels * m->nwl * sizeof *m->weight);
-    m->n_layer = malloc((m->layers ? m->layers : 1) * m->nwl * sizeof *m->n_layer);
-    m->n_base = malloc(m->nwl * sizeof *m->n_base);
-    m->y_sheet = malloc(m->nwl * sizeof *m->y_sheet);
-    if (!m->wl || !m->weight || !m->n_layer || !m->n_base || !m->y_sheet) {
+    if (!alloc_arrays(m)) {
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
         goto fail;
     }
-    for (size_t l = 0; l < m->nwl; l++) {
-        double nm = grid->nm[l];
-        m->wl[l] = nm;
-        for (size_t c = 0; c < m->channels; c++)
-            m->weight[c * m->nwl + l] = w[c][l];
-        for (size_t j = 0; j < m->layers; j++)
-            if ((st = lam_material_index(&s->layer_material[j], nm, &m->n_layer[j * m->nwl + l],
-                                         err)))
-                goto fail;
-        if ((st = lam_material_index(&s->base, nm, &m->n_base[l], err)))
-            goto fail;
-        double complex na;
-        if ((st = lam_material_index(&s->ambient, nm, &na, err)))
-            goto fail;
-    }
-    if (s->flake_as_film) {
-        m->n_film = malloc(m->nwl * sizeof *m->n_film);
-        if (!m->n_film) {
-            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
-            goto fail;
-        }
-        for (size_t l = 0; l < m->nwl; l++)
-            if ((st = lam_material_index(&s->flake_film, m->wl[l], &m->n_film[l], err)))
-                goto fail;
-    }
-    if ((st = fill_cone(m, s, err)))
+    if ((st = copy_camera(m, &cam, err)) || (st = init_spectrum(m, s, grid, &cam, err)) ||
+        (st = fill_materials(m, s, err)))
         goto fail;
-    m->have_sigma = 0;
+    lam_model_point *d = &m->defaults;
+    d->v[LAM_MP_OXIDE] = lam_setup_oxide(s) >= 0 ? lam_setup_oxide(s) : 0;
+    d->v[LAM_MP_NA] = s->illumination_na;
+    d->v[LAM_MP_FERMI] = s->sheet.fermi_ev;
+    d->v[LAM_MP_CONTINUUM] = s->sheet.continuum;
+    d->v[LAM_MP_RESONANCE] = s->sheet.resonance;
+    d->v[LAM_MP_BACKGROUND] = s->sheet.background;
+    m->cone_cache.na = -1;
     free(grid);
-    free(w);
     *out = m;
     return LAM_OK;
 fail:
     free(grid);
-    free(w);
     lam_model_free(m);
     return st;
 }
 
-static lam_status update_sigma(lam_model *m, double fermi_ev, lam_error *err)
+lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
+                                lam_error *err)
 {
-    if (m->have_sigma && m->cached_fermi == fermi_ev)
-        return LAM_OK;
-    lam_sheet_params p = m->sheet;
-    p.fermi_ev = fermi_ev;
-    double z0s0 = lam_z0_sigma0();
-    for (size_t l = 0; l < m->nwl; l++) {
-        double complex s;
-        lam_status st = lam_sheet_conductivity(&p, HC_EV_NM / m->wl[l], &s, err);
-        if (st)
-            return st;
-        m->y_sheet[l] = z0s0 * s;
+    lam_setup fs = *setup;
+    fs.grid_step_nm = 5;
+    fs.cone_nodes = 8;
+    return lam_model_alloc(&fs, max_layers, 0, out, err);
+}
+
+lam_model_point lam_model_point_default(const lam_model *m)
+{
+    return m->defaults;
+}
+
+double lam_model_step(lam_model_param k)
+{
+    switch (k) {
+    case LAM_MP_OXIDE: return 0.1;
+    case LAM_MP_NA: return 0.01;
+    case LAM_MP_FERMI: return 0.01;
+    case LAM_MP_CONTINUUM: return 0.02;
+    case LAM_MP_RESONANCE: return 0.1;
+    case LAM_MP_BACKGROUND: return 1.0;
+    default: return 1.0; /* channel shifts, nm */
     }
-    m->cached_fermi = fermi_ev;
-    m->have_sigma = 1;
+}
+
+/* ---- the pieces of one evaluation, each cached ---- */
+
+static lam_status ensure_weights(lam_model *m, const double *shift, lam_error *err)
+{
+    if (m->have_weight && !memcmp(shift, m->weight_shift, m->channels * sizeof *shift))
+        return LAM_OK;
+    for (size_t c = 0; c < m->channels; c++) {
+        double sum = 0, *w = m->weight + c * m->nwl;
+        for (size_t l = 0; l < m->nwl; l++) {
+            w[l] = lam_camera_eval(&m->camera, c, m->wl[l] - shift[c]) * m->lamp[l] *
+                   m->trapezoid[l];
+            sum += w[l];
+        }
+        if (!(sum > 0) || !isfinite(sum))
+            return lam_error_set(err, LAM_ERANGE,
+                                 "camera channel %zu (shifted %+.0f nm) sees no light", c + 1,
+                                 shift[c]);
+        for (size_t l = 0; l < m->nwl; l++)
+            w[l] /= sum;
+        m->weight_shift[c] = shift[c];
+    }
+    m->have_weight = 1;
     return LAM_OK;
 }
 
-/* Reflectance of N = 0..K at one wavelength and angle, one polarisation,
- * added with weight wt into acc[N]. Built bottom-up: substrate, films, then
- * sheets separated by ambient gaps, so each extra layer costs one step. */
-static void accumulate(const lam_model *m, size_t l, double oxide_nm, double sin_t, lam_pol pol,
-                       double wt, double *acc)
+static lam_status ensure_basis(lam_model *m, double fermi, lam_error *err)
 {
-    double kx = m->n_ambient * sin_t, k0 = 2.0 * M_PI / m->wl[l];
+    if (m->have_basis && m->basis_fermi == fermi)
+        return LAM_OK;
+    lam_sheet_params p = m->sheet;
+    p.fermi_ev = fermi;
+    for (size_t l = 0; l < m->nwl; l++) {
+        lam_status st = lam_sheet_basis(&p, HC_EV_NM / m->wl[l], m->basis + 4 * l, err);
+        if (st)
+            return st;
+    }
+    m->basis_fermi = fermi;
+    m->have_basis = 1;
+    return LAM_OK;
+}
+
+/* Z0 sigma per wavelength for the point's response parameters. */
+static lam_status fill_sheet(lam_model *m, const lam_model_point *p, lam_error *err)
+{
+    lam_sheet_params sp = m->sheet;
+    sp.continuum = p->v[LAM_MP_CONTINUUM];
+    sp.resonance = p->v[LAM_MP_RESONANCE];
+    sp.background = p->v[LAM_MP_BACKGROUND];
+    if (sp.model == LAM_SHEET_KUBO && sp.exciton &&
+        (!(sp.resonance >= 0) || !(sp.background >= 0) || !(sp.continuum > -1)))
+        return lam_error_set(err, LAM_ERANGE,
+                             "response outside the passive range (resonance %g, background %g, "
+                             "continuum %g)",
+                             sp.resonance, sp.background, sp.continuum);
+    lam_status st = ensure_basis(m, p->v[LAM_MP_FERMI], err);
+    if (st)
+        return st;
+    double z0s0 = lam_z0_sigma0();
+    for (size_t l = 0; l < m->nwl; l++)
+        m->y_sheet[l] = z0s0 * lam_sheet_combine(&sp, m->basis + 4 * l);
+    return LAM_OK;
+}
+
+static lam_status ensure_cone(lam_model *m, double na, lam_error *err)
+{
+    cone *c = &m->cone_cache;
+    if (c->na == na)
+        return LAM_OK;
+    if (!(na >= 0 && na < m->n_ambient))
+        return lam_error_set(err, LAM_ERANGE,
+                             "illumination NA %g must be >= 0 and below the ambient index %g",
+                             na, m->n_ambient);
+    c->na = na;
+    if (na == 0 || m->cone_nodes_max <= 1) {
+        c->nodes = 1;
+        c->sin_t[0] = 0;
+        c->w_t[0] = 1;
+        return LAM_OK;
+    }
+    double tmax = asin(na / m->n_ambient), sum = 0;
+    c->nodes = m->cone_nodes_max;
+    gsl_integration_glfixed_table *t = gsl_integration_glfixed_table_alloc(c->nodes);
+    if (!t)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate Gauss-Legendre nodes");
+    for (size_t i = 0; i < c->nodes; i++) {
+        double x, w;
+        gsl_integration_glfixed_point(0.0, tmax, i, &x, &w, t);
+        c->sin_t[i] = sin(x);
+        c->w_t[i] = w * (m->pupil == LAM_PUPIL_SIN ? sin(x) : sin(x) * cos(x));
+        sum += c->w_t[i];
+    }
+    gsl_integration_glfixed_table_free(t);
+    for (size_t i = 0; i < c->nodes; i++)
+        c->w_t[i] /= sum;
+    return LAM_OK;
+}
+
+/* Admittance of the substrate stack at one wavelength, angle and
+ * polarisation, seen from just above its top film. */
+static double complex substrate_admittance(const lam_model *m, size_t l, double oxide_nm,
+                                           double kx, lam_pol pol)
+{
+    double k0 = 2.0 * M_PI / m->wl[l];
     double complex qb = lam_tmm_q(m->n_base[l], kx);
     double complex y = lam_tmm_eta(m->n_base[l], qb, pol);
     for (size_t j = m->layers; j-- > 0;) {
@@ -195,75 +384,197 @@ static void accumulate(const lam_model *m, size_t l, double oxide_nm, double sin
         double complex ph = k0 * q * d;
         y = lam_tmm_through_film(y, lam_tmm_eta(n, q, pol), ccos(ph), csin(ph));
     }
-    double complex q0 = lam_tmm_q(m->n_ambient, kx);
-    double complex eta0 = lam_tmm_eta(m->n_ambient, q0, pol);
-    double complex gap = k0 * q0 * m->interlayer_nm;
-    double complex cg = ccos(gap), sg = csin(gap);
-    if (m->n_film) {
-        /* comparison model: N layers as one slab of N * interlayer_nm */
-        double complex nf = m->n_film[l], qf = lam_tmm_q(nf, kx);
-        double complex ef = lam_tmm_eta(nf, qf, pol);
-        double complex ysub = y;
-        for (size_t N = 0; N <= m->max_layers; N++) {
-            double complex ph = k0 * qf * m->interlayer_nm * (double)N;
-            double complex yn = N ? lam_tmm_through_film(ysub, ef, ccos(ph), csin(ph)) : ysub;
-            double complex r = (eta0 - yn) / (eta0 + yn);
-            acc[N] += wt * creal(r * conj(r));
+    return y;
+}
+
+static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
+{
+    const cone *c = &m->cone_cache;
+    for (size_t l = 0; l < m->nwl; l++) {
+        double k0 = 2.0 * M_PI / m->wl[l];
+        for (size_t t = 0; t < c->nodes; t++) {
+            double kx = m->n_ambient * c->sin_t[t];
+            double complex q0 = lam_tmm_q(m->n_ambient, kx), gap = k0 * q0 * m->interlayer_nm;
+            size_t k = l * c->nodes + t;
+            s->gap_cos[k] = ccos(gap);
+            s->gap_sin[k] = csin(gap);
+            for (int pol = 0; pol < 2; pol++) {
+                s->y[2 * k + (size_t)pol] = substrate_admittance(m, l, oxide_nm, kx, (lam_pol)pol);
+                s->eta0[2 * k + (size_t)pol] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
+            }
         }
-        return;
     }
-    double complex ys = m->y_sheet[l];
-    for (size_t N = 0; N <= m->max_layers; N++) {
-        if (N > 0) {
-            if (N > 1)
-                y = lam_tmm_through_film(y, eta0, cg, sg);
-            y += ys;
+    s->oxide_nm = oxide_nm;
+    s->na = c->na;
+    s->valid = 1;
+}
+
+/* The slot for (oxide, the current cone's NA), computed into the least
+ * recently used slot when absent. */
+static substrate_slot *substrate_for(lam_model *m, double oxide_nm)
+{
+    substrate_slot *lru = &m->slot[0];
+    for (int i = 0; i < SUBSTRATE_SLOTS; i++) {
+        substrate_slot *s = &m->slot[i];
+        if (s->valid && s->oxide_nm == oxide_nm && s->na == m->cone_cache.na) {
+            s->used = ++m->clock;
+            return s;
         }
-        double complex r = (eta0 - y) / (eta0 + y);
-        acc[N] += wt * creal(r * conj(r));
+        if (!s->valid || s->used < lru->used)
+            lru = s;
     }
+    fill_slot(m, lru, oxide_nm);
+    lru->used = ++m->clock;
+    return lru;
+}
+
+/* ---- stacking the sheets and integrating ---- */
+
+static double reflectance(double complex eta0, double complex y)
+{
+    double complex r = (eta0 - y) / (eta0 + y);
+    return creal(r * conj(r));
+}
+
+/* Cone-averaged R(l, N) for N = 0..layers into m->rbar. */
+static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
+{
+    const cone *c = &m->cone_cache;
+    size_t stride = m->max_layers + 1;
+    for (size_t l = 0; l < m->nwl; l++) {
+        double *acc = m->rbar + l * stride;
+        memset(acc, 0, (layers + 1) * sizeof *acc);
+        double complex ys = m->y_sheet[l];
+        for (size_t t = 0; t < c->nodes; t++) {
+            size_t k = l * c->nodes + t;
+            /* at normal incidence s and p coincide: count s twice */
+            int npol = c->sin_t[t] > 0 ? 2 : 1;
+            double wt = c->w_t[t] / (double)npol;
+            for (int pol = 0; pol < npol; pol++) {
+                double complex y = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
+                acc[0] += wt * reflectance(eta0, y);
+                for (size_t N = 1; N <= layers; N++) {
+                    if (N > 1)
+                        y = lam_tmm_through_film(y, eta0, s->gap_cos[k], s->gap_sin[k]);
+                    y += ys;
+                    acc[N] += wt * reflectance(eta0, y);
+                }
+            }
+        }
+    }
+}
+
+/* Comparison model: N layers as one film of N * interlayer_nm. */
+static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
+{
+    const cone *c = &m->cone_cache;
+    size_t stride = m->max_layers + 1;
+    for (size_t l = 0; l < m->nwl; l++) {
+        double *acc = m->rbar + l * stride, k0 = 2.0 * M_PI / m->wl[l];
+        memset(acc, 0, (layers + 1) * sizeof *acc);
+        for (size_t t = 0; t < c->nodes; t++) {
+            size_t k = l * c->nodes + t;
+            int npol = c->sin_t[t] > 0 ? 2 : 1;
+            double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
+            double complex qf = lam_tmm_q(m->n_film[l], kx);
+            for (int pol = 0; pol < npol; pol++) {
+                double complex ysub = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
+                double complex ef = lam_tmm_eta(m->n_film[l], qf, (lam_pol)pol);
+                for (size_t N = 0; N <= layers; N++) {
+                    double complex ph = k0 * qf * m->interlayer_nm * (double)N;
+                    double complex y = N ? lam_tmm_through_film(ysub, ef, ccos(ph), csin(ph)) : ysub;
+                    acc[N] += wt * reflectance(eta0, y);
+                }
+            }
+        }
+    }
+}
+
+static void integrate(const lam_model *m, size_t layers, lam_prediction *out)
+{
+    size_t stride = m->max_layers + 1;
+    for (size_t c = 0; c < m->channels; c++) {
+        const double *w = m->weight + c * m->nwl;
+        for (size_t N = 0; N <= layers; N++) {
+            double a = 0;
+            for (size_t l = 0; l < m->nwl; l++)
+                a += w[l] * m->rbar[l * stride + N];
+            out->reflectance[N][c] = a;
+        }
+        out->substrate[c] = out->reflectance[0][c];
+        for (size_t N = 0; N <= layers; N++)
+            out->contrast[N][c] = (out->substrate[c] - out->reflectance[N][c]) / out->substrate[c];
+    }
+}
+
+lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t layers,
+                                lam_prediction *out, lam_error *err)
+{
+    double oxide = p->v[LAM_MP_OXIDE];
+    if (!(oxide >= 0 && oxide <= 5000))
+        return lam_error_set(err, LAM_ERANGE, "oxide thickness %g nm outside 0 to 5000 nm",
+                             oxide);
+    if (layers == 0 || layers > m->max_layers)
+        layers = m->max_layers;
+    lam_status st;
+    if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) ||
+        (st = ensure_weights(m, &p->v[LAM_MP_SHIFT], err)) ||
+        (!m->n_film && (st = fill_sheet(m, p, err))))
+        return st;
+    const substrate_slot *s = substrate_for(m, oxide);
+    if (m->n_film)
+        stack_film(m, s, layers);
+    else
+        stack_sheets(m, s, layers);
+    memset(out, 0, sizeof *out);
+    out->channels = m->channels;
+    out->max_layers = layers;
+    out->oxide_nm = oxide;
+    out->fermi_ev = p->v[LAM_MP_FERMI];
+    integrate(m, layers, out);
+    return LAM_OK;
 }
 
 lam_status lam_model_eval(lam_model *m, double oxide_nm, double fermi_ev,
                           lam_prediction *out, lam_error *err)
 {
-    if (!(oxide_nm >= 0 && oxide_nm <= 5000))
-        return lam_error_set(err, LAM_ERANGE, "oxide thickness %g nm outside 0 to 5000 nm",
-                             oxide_nm);
-    lam_status st = update_sigma(m, fermi_ev, err);
-    if (st)
-        return st;
-    double rl[LAM_MODEL_MAX_LAYERS + 1];
-    double acc[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
-    memset(acc, 0, sizeof acc);
-    for (size_t l = 0; l < m->nwl; l++) {
-        memset(rl, 0, sizeof rl);
-        for (size_t t = 0; t < m->nodes; t++) {
-            accumulate(m, l, oxide_nm, m->sin_t[t], LAM_POL_S, 0.5 * m->w_t[t], rl);
-            if (m->sin_t[t] > 0)
-                accumulate(m, l, oxide_nm, m->sin_t[t], LAM_POL_P, 0.5 * m->w_t[t], rl);
-            else
-                accumulate(m, l, oxide_nm, 0.0, LAM_POL_S, 0.5 * m->w_t[t], rl);
-        }
-        for (size_t c = 0; c < m->channels; c++) {
-            double w = m->weight[c * m->nwl + l];
-            for (size_t N = 0; N <= m->max_layers; N++)
-                acc[N][c] += w * rl[N];
-        }
+    lam_model_point p = m->defaults;
+    p.v[LAM_MP_OXIDE] = oxide_nm;
+    p.v[LAM_MP_FERMI] = fermi_ev;
+    return lam_model_eval_point(m, &p, 0, out, err);
+}
+
+lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
+                              const int *which, size_t count, lam_ladder_grad *grad,
+                              lam_error *err)
+{
+    lam_prediction *a = malloc(2 * sizeof *a);
+    if (!a)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate predictions");
+    if (layers == 0 || layers > m->max_layers)
+        layers = m->max_layers;
+    lam_status st = LAM_OK;
+    for (size_t k = 0; k < count && !st; k++) {
+        int j = which[k];
+        double h = lam_model_step((lam_model_param)j);
+        lam_model_point hi = *p, lo = *p;
+        hi.v[j] += h;
+        lo.v[j] -= h;
+        /* stay inside the physical range: one-sided at its edge */
+        if ((j == LAM_MP_OXIDE || j == LAM_MP_NA || j == LAM_MP_RESONANCE ||
+             j == LAM_MP_BACKGROUND) && lo.v[j] < 0)
+            lo.v[j] = p->v[j];
+        if (j == LAM_MP_NA && hi.v[j] >= m->n_ambient)
+            hi.v[j] = p->v[j];
+        double span = hi.v[j] - lo.v[j];
+        if (!(st = lam_model_eval_point(m, &hi, layers, &a[0], err)) &&
+            !(st = lam_model_eval_point(m, &lo, layers, &a[1], err)))
+            for (size_t N = 0; N <= layers; N++)
+                for (size_t c = 0; c < m->channels; c++)
+                    grad[k][N][c] = (a[0].contrast[N][c] - a[1].contrast[N][c]) / span;
     }
-    memset(out, 0, sizeof *out);
-    out->channels = m->channels;
-    out->max_layers = m->max_layers;
-    out->oxide_nm = oxide_nm;
-    out->fermi_ev = fermi_ev;
-    for (size_t c = 0; c < m->channels; c++) {
-        out->substrate[c] = acc[0][c];
-        for (size_t N = 0; N <= m->max_layers; N++) {
-            out->reflectance[N][c] = acc[N][c];
-            out->contrast[N][c] = (acc[0][c] - acc[N][c]) / acc[0][c];
-        }
-    }
-    return LAM_OK;
+    free(a);
+    return st;
 }
 
 lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
@@ -284,13 +595,4 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
     }
     free(a);
     return st;
-}
-
-lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
-                                lam_error *err)
-{
-    lam_setup fs = *setup;
-    fs.grid_step_nm = 5;
-    fs.cone_nodes = 8;
-    return lam_model_alloc(&fs, max_layers, 0, out, err);
 }

@@ -2,6 +2,7 @@
 #include "lamina/setup.h"
 
 #include <errno.h>
+#include <stddef.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -15,7 +16,7 @@ static const char *const all_keys[] = {
     "objective.na", "objective.illumination_na", "objective.pupil_weight",
     "objective.immersion", "illuminant", "camera", "encoding", "um_per_px",
     "substrate.stack", "substrate.base", "material", "temperature_K", "fermi_eV",
-    "conductivity", "spectrum"};
+    "conductivity", "conductivity.response", "spectrum"};
 #define N_KEYS (sizeof all_keys / sizeof all_keys[0])
 
 void lam_setup_default(lam_setup *s)
@@ -47,6 +48,8 @@ void lam_setup_default(lam_setup *s)
     s->grid_lo_nm = 380;
     s->grid_hi_nm = 780;
     s->grid_step_nm = 2;
+    s->sigma.na = s->sigma.shift_nm = s->sigma.resonance = NAN;
+    s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = NAN;
     for (size_t i = 0; i < N_KEYS; i++)
         s->defaulted[i] = all_keys[i];
     s->defaulted_count = N_KEYS;
@@ -308,6 +311,51 @@ static lam_status parse_substrate(const cJSON *o, lam_setup *s, const char *dir,
     return LAM_OK;
 }
 
+/* The visible-response family (lamina/conductivity.h); giving any of its
+ * three numbers marks the response as known ("conductivity.response"). */
+static lam_status parse_response(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    int f1 = 0, f2 = 0, f3 = 0;
+    lam_status st;
+    if ((st = get_number(o, "resonance", "conductivity.resonance", 0, 30, &s->sheet.resonance,
+                         &f1, err)) ||
+        (st = get_number(o, "background", "conductivity.background", 0, 200,
+                         &s->sheet.background, &f2, err)) ||
+        (st = get_number(o, "continuum", "conductivity.continuum", -0.9, 2, &s->sheet.continuum,
+                         &f3, err)))
+        return st;
+    if (f1 || f2 || f3)
+        mark_given(s, "conductivity.response");
+    return LAM_OK;
+}
+
+/* "uncertainty": one standard deviation of values the profile gives (a
+ * calibration writes them; without one, lamina assumes the spread of a
+ * value set by hand, see docs/setup.md). */
+static lam_status parse_uncertainty(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    if (!cJSON_IsObject(o))
+        return lam_error_set(err, LAM_EFORMAT, "key uncertainty: expected an object");
+    static const struct { const char *name; double hi; size_t off; } keys[] = {
+        {"illumination_na", 0.5, offsetof(lam_setup, sigma.na)},
+        {"camera_shift_nm", 100, offsetof(lam_setup, sigma.shift_nm)},
+        {"resonance", 30, offsetof(lam_setup, sigma.resonance)},
+        {"background", 200, offsetof(lam_setup, sigma.background)},
+        {"continuum", 2, offsetof(lam_setup, sigma.continuum)},
+        {"oxide_nm", 500, offsetof(lam_setup, sigma.oxide_nm)},
+    };
+    for (size_t i = 0; i < sizeof keys / sizeof keys[0]; i++) {
+        char key[64];
+        int found;
+        snprintf(key, sizeof key, "uncertainty.%s", keys[i].name);
+        lam_status st = get_number(o, keys[i].name, key, 0, keys[i].hi,
+                                   (double *)((char *)s + keys[i].off), &found, err);
+        if (st)
+            return st;
+    }
+    return LAM_OK;
+}
+
 static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *dir,
                                      lam_error *err)
 {
@@ -350,7 +398,7 @@ static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *d
         s->sheet.exciton = cJSON_IsTrue(ex);
     }
     mark_given(s, "conductivity");
-    return LAM_OK;
+    return parse_response(o, s, err);
 }
 
 static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, lam_error *err)
@@ -423,6 +471,9 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
             return lam_error_set(err, LAM_ERANGE, "key spectrum: max_nm must exceed min_nm");
         mark_given(s, "spectrum");
     }
+    if ((v = cJSON_GetObjectItemCaseSensitive(root, "uncertainty")) &&
+        (st = parse_uncertainty(v, s, err)))
+        return st;
     return LAM_OK;
 }
 
@@ -505,6 +556,27 @@ lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err)
     return LAM_OK;
 }
 
+static void add_sigma(cJSON *o, const char *name, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, name, v);
+}
+
+static void add_uncertainty(cJSON *root, const lam_setup *s)
+{
+    const lam_setup_sigma *u = &s->sigma;
+    if (!isfinite(u->na) && !isfinite(u->shift_nm) && !isfinite(u->resonance) &&
+        !isfinite(u->background) && !isfinite(u->continuum) && !isfinite(u->oxide_nm))
+        return;
+    cJSON *o = cJSON_AddObjectToObject(root, "uncertainty");
+    add_sigma(o, "illumination_na", u->na);
+    add_sigma(o, "camera_shift_nm", u->shift_nm);
+    add_sigma(o, "resonance", u->resonance);
+    add_sigma(o, "background", u->background);
+    add_sigma(o, "continuum", u->continuum);
+    add_sigma(o, "oxide_nm", u->oxide_nm);
+}
+
 static cJSON *material_json(const lam_material *m)
 {
     if (m->file[0]) {
@@ -575,6 +647,10 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
     cJSON_AddNumberToObject(co, "scattering_eV", s->sheet.scattering_ev);
     cJSON_AddNumberToObject(co, "puddle_eV", s->sheet.puddle_ev);
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
+    cJSON_AddNumberToObject(co, "resonance", s->sheet.resonance);
+    cJSON_AddNumberToObject(co, "background", s->sheet.background);
+    cJSON_AddNumberToObject(co, "continuum", s->sheet.continuum);
+    add_uncertainty(root, s);
     cJSON *sp = cJSON_AddObjectToObject(root, "spectrum");
     cJSON_AddNumberToObject(sp, "min_nm", s->grid_lo_nm);
     cJSON_AddNumberToObject(sp, "max_nm", s->grid_hi_nm);

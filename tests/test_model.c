@@ -176,9 +176,14 @@ static void test_pitfalls(void)
     lam_model_alloc(&b, 1, 0, &m, NULL);
     lam_model_eval(m, 300, 0.2, &Q, NULL);
     lam_model_free(m);
-    check_true(fabs(Q.contrast[1][1] / P.contrast[1][1] - 1) > 0.01,
-               "pitfall 4: sin vs sin-cos weight at NA 0.9 differ (%.4f vs %.4f)", Q.contrast[1][1],
-               P.contrast[1][1]);
+    /* CHECKS pitfall 4: "up to ~30 %" at NA >= 0.9; the size depends on the
+     * channel (at 300 nm: green ~1 %, red and blue 10-30 %) */
+    double worst = 0;
+    for (int c = 0; c < 3; c++)
+        worst = fmax(worst, fabs(Q.contrast[1][c] / P.contrast[1][c] - 1));
+    check_true(worst > 0.05 && worst < 0.5,
+               "pitfall 4: sin vs sin-cos weight at NA 0.9 change some channel's contrast by "
+               "%.1f %% (5-50 %%)", 100 * worst);
     /* 5. gamma does not cancel in contrast; a white-balance gain does */
     double sub = 0.30, flake = 0.27;
     lam_transfer t = {LAM_TRANSFER_SRGB, 0};

@@ -5,15 +5,27 @@
  *   R_c(N) = sum_l w_c(l) <R(l, N)>_cone
  * where <.>_cone averages s and p reflectance over the illumination cone
  * 0..asin(NA_ill / n_ambient) with the pupil weight sin(t)cos(t) (default)
- * or sin(t), by Gauss-Legendre quadrature. N-layer graphene is N sheets,
- * interlayer_nm apart, on top of the substrate stack. The contrast is
+ * or sin(t), by Gauss-Legendre quadrature, and w_c(l) is the channel
+ * sensitivity times the illuminant, normalised (lamina/colour.h). N-layer
+ * graphene is N sheets, interlayer_nm apart, on top of the substrate stack.
+ * The contrast is
  *   C_c(N) = (R_c(0) - R_c(N)) / R_c(0)     (positive: flake darker).
  * The ratio of channel integrals is not the integral of monochromatic
  * contrasts; the model always integrates reflectances first.
  *
+ * What the analysis treats as uncertain is a "model point": a vector of
+ * LAM_MP_COUNT numbers (oxide thickness, illumination NA, Fermi level, the
+ * three parameters of graphene's visible response - lamina/conductivity.h -
+ * and a wavelength shift of each camera channel). lam_model_eval_point
+ * evaluates any point; lam_model_point_default gives the setup's. The model
+ * caches what does not change between nearby points (sheet conductivity
+ * per Fermi level, cone nodes per NA, the substrate's admittance per oxide
+ * and NA, channel weights per shift), so a fit that varies one parameter at
+ * a time pays only for what that parameter touches.
+ *
  * Ownership: lam_model_alloc copies what it needs from the setup (the setup
  * may be cleared afterwards) and is released by lam_model_free. A model is
- * not safe for concurrent lam_model_eval calls; use one per thread.
+ * not safe for concurrent evaluation; use one per thread.
  */
 #ifndef LAMINA_MODEL_H
 #define LAMINA_MODEL_H
@@ -26,6 +38,9 @@
 
 typedef struct lam_model lam_model;
 
+/* A ladder: predicted reflectance and contrast of N = 0..max_layers layers
+ * per camera channel (channels 1 to 3). Row 0 of the contrast is 0. This is
+ * the one ladder type of the library (segmentation and inference use it). */
 typedef struct lam_prediction {
     size_t channels, max_layers;
     double oxide_nm, fermi_ev;
@@ -34,6 +49,23 @@ typedef struct lam_prediction {
     double contrast[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];    /* C_c(N); row 0 is 0 */
 } lam_prediction;
 
+/* The parameters of a model point. */
+typedef enum lam_model_param {
+    LAM_MP_OXIDE = 0,   /* nm, the first SiO2 layer (ignored without one) */
+    LAM_MP_NA,          /* illumination NA, 0 <= NA < n_ambient */
+    LAM_MP_FERMI,       /* eV */
+    LAM_MP_CONTINUUM,   /* visible-response family (lamina/conductivity.h) */
+    LAM_MP_RESONANCE,
+    LAM_MP_BACKGROUND,
+    LAM_MP_SHIFT,       /* nm added to channel 1's wavelengths ... */
+    LAM_MP_SHIFT_LAST = LAM_MP_SHIFT + LAM_MAX_CHANNELS - 1, /* ... to channel 3's */
+    LAM_MP_COUNT
+} lam_model_param;
+
+typedef struct lam_model_point {
+    double v[LAM_MP_COUNT];
+} lam_model_point;
+
 /* Build a model for N = 1..max_layers (<= LAM_MODEL_MAX_LAYERS). With
  * monochromatic_nm > 0 the camera becomes one channel at that wavelength. */
 lam_status lam_model_alloc(const lam_setup *setup, size_t max_layers, double monochromatic_nm,
@@ -41,19 +73,40 @@ lam_status lam_model_alloc(const lam_setup *setup, size_t max_layers, double mon
 void lam_model_free(lam_model *m);
 
 /* The coarse copy used inside fits: 5 nm spectral step and 8 cone nodes
- * (contrasts within ~1e-4 of the full model, several times faster). */
+ * (contrasts within ~2e-4 of the full model, several times faster). */
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err);
 
 size_t lam_model_channels(const lam_model *m);
+size_t lam_model_max_layers(const lam_model *m);
 
-/* Predict at an oxide thickness (the first SiO2 layer; ignored without one)
- * and Fermi level. */
+/* The setup's point: its oxide, NA, Fermi level, response; no shifts. */
+lam_model_point lam_model_point_default(const lam_model *m);
+
+/* Predict N = 0..layers (0: all the model's layers) at a point. LAM_ERANGE
+ * for a point outside the physical ranges (negative oxide, NA beyond the
+ * ambient index, a response that is not passive). */
+lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t layers,
+                                lam_prediction *out, lam_error *err);
+
+/* Predict at the setup's point with another oxide thickness and Fermi level. */
 lam_status lam_model_eval(lam_model *m, double oxide_nm, double fermi_ev,
                           lam_prediction *out, lam_error *err);
 
 /* d C_c(N) / d oxide_nm by central differences (step 0.05 nm). */
 lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
                             double (*dcontrast)[LAM_MAX_CHANNELS], lam_error *err);
+
+/* Derivatives of the contrast ladder with respect to the parameters listed
+ * in 'which' (count of them) at point p, N = 0..layers, by central
+ * differences with steps suited to each parameter (lam_model_step):
+ * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. */
+typedef double lam_ladder_grad[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
+lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
+                              const int *which, size_t count, lam_ladder_grad *grad,
+                              lam_error *err);
+
+/* The finite-difference step of a parameter. */
+double lam_model_step(lam_model_param k);
 
 #endif

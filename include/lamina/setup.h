@@ -28,6 +28,12 @@ typedef enum lam_pupil_weight {
     LAM_PUPIL_SIN          /* sin(theta): uniform radiance per solid angle */
 } lam_pupil_weight;
 
+/* One standard deviation of values the profile gives, NAN when it says
+ * nothing ("uncertainty" in the file; a calibration writes it). */
+typedef struct lam_setup_sigma {
+    double na, shift_nm, resonance, background, continuum, oxide_nm;
+} lam_setup_sigma;
+
 typedef struct lam_setup {
     double objective_na;
     double illumination_na; /* the cone averaged over: asin(NA / n_ambient) */
@@ -48,6 +54,7 @@ typedef struct lam_setup {
     lam_material flake_film;/* ... with this index (conductivity.model "film") */
     lam_sheet_params sheet;
     double grid_lo_nm, grid_hi_nm, grid_step_nm;
+    lam_setup_sigma sigma;
     size_t defaulted_count;
     const char *defaulted[LAM_SETUP_MAX_DEFAULTED];
     char source[256];       /* file the setup was read from, or "" */
