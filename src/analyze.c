@@ -1,4 +1,4 @@
-/* analyze.c - the analysis pipeline for one image. */
+/* analyze.c - the analysis pipeline for one image, stage by stage. */
 #include "lamina/analyze.h"
 #include "lamina/parallel.h"
 
@@ -8,13 +8,19 @@
 #include <string.h>
 #include <time.h>
 
+/* First segmentation: the response is not yet known, so the floor is wide
+ * enough that a flake 40 % off the prior's ladder is still classified by
+ * its nearest entry rather than rejected. */
+#define FIRST_PASS_FLOOR_REL 0.25
+/* The second segmentation's floor: the fitted one, at least this. */
+#define SECOND_PASS_MIN_FLOOR_REL 0.05
+
 static double now_s(void)
 {
     struct timespec t;
     clock_gettime(CLOCK_MONOTONIC, &t);
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
-#define MARK(k) (a->seconds[k] = now_s() - t0)
 
 lam_analysis_options lam_analysis_options_default(void)
 {
@@ -24,10 +30,10 @@ lam_analysis_options lam_analysis_options_default(void)
     o.substrate = lam_substrate_options_default();
     o.segment = lam_segment_options_default();
     o.infer = lam_infer_options_default();
+    o.estimate = lam_estimate_options_default();
     o.max_layers = 6;
     o.min_area_um2 = 4;
     o.min_area_px = 200;
-    o.oxide_half_range_nm = 25;
     o.oxide_tolerance_nm = 10;
     o.fit_oxide = 1;
     o.fit_fermi = 1;
@@ -41,11 +47,14 @@ void lam_analysis_free(lam_analysis *a)
         return;
     lam_segmentation_free(a->seg);
     free(a->results);
+    free(a->measured);
     free(a->display);
+    lam_estimate_free(a->estimate);
     free(a);
 }
 
-/* 8-bit sRGB copy of the linear input (for the annotated image). */
+/* ---- the display copy (8-bit sRGB, for the annotated image) ---- */
+
 typedef struct display_ctx {
     const lam_image *img;
     uint8_t *out;
@@ -84,295 +93,293 @@ static uint8_t *display_copy(const lam_image *img, size_t threads)
     return out;
 }
 
-static void make_ladder(const lam_prediction *P, size_t K, size_t thick_to, lam_ladder *L)
-{
-    L->entries = thick_to + 1;
-    L->max_layers = K;
-    for (size_t N = 0; N <= thick_to; N++)
-        for (int c = 0; c < 3; c++)
-            L->c[N][c] = P->contrast[N][c];
-}
+/* ---- shared priors ---- */
 
-int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i)
+void lam_shared_prior_from(const lam_estimate *e, lam_shared_prior *p)
 {
-    const lam_region_result *r = &a->results[i];
-    return r->layers > 0 && !(r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) &&
-           a->seg->regions[i].interior >= 100;
-}
-
-lam_status lam_oxide_joint_profile(const lam_analysis *const *an, size_t images,
-                                   const lam_setup *setup, const double *grid, size_t n,
-                                   double *joint, double *per_image, lam_error *err)
-{
-    size_t K = 1;
-    for (size_t j = 0; j < images; j++)
-        K = an[j]->max_layers > K ? an[j]->max_layers : K;
-    lam_model *m = NULL;
-    lam_prediction *P = malloc(sizeof *P);
-    lam_status st = P ? lam_model_alloc_fast(setup, K, &m, err)
-                      : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-    /* one ladder per thickness, shared by every image and region */
-    for (size_t g = 0; g < n && !st; g++) {
-        if ((st = lam_model_eval(m, grid[g], setup->sheet.fermi_ev, P, err)))
-            break;
-        joint[g] = 0;
-        for (size_t j = 0; j < images; j++) {
-            const lam_analysis *a = an[j];
-            double tot = 0;
-            for (size_t i = 0; i < a->count; i++) {
-                if (!lam_analysis_region_fits_oxide(a, i))
-                    continue;
-                double best = INFINITY;
-                for (size_t N = 1; N <= a->max_layers; N++)
-                    best = fmin(best, lam_region_chi2(&a->seg->regions[i], P->contrast[N],
-                                                      a->substrate.noise, a->substrate.kappa,
-                                                      &a->infer));
-                tot += best;
-            }
-            if (per_image)
-                per_image[j * n + g] = tot;
-            joint[g] += tot;
-        }
+    memset(p, 0, sizeof *p);
+    p->set = 1;
+    for (int k = 0; k < LAM_NU_COUNT; k++) {
+        const lam_nuisance *n = &e->shared[k];
+        p->mean[k] = n->value;
+        p->sd[k] = n->fitted && isfinite(n->sigma) ? n->sigma : (n->fitted ? n->prior_sd : 0);
     }
-    lam_model_free(m);
-    free(P);
+    p->floor_rel = e->floor_rel;
+    p->images = e->images;
+    for (size_t j = 0; j < e->images; j++)
+        p->regions += e->image[j].regions_used;
+}
+
+void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e)
+{
+    if (!p || !p->set)
+        return;
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        if (e->shared[k].fitted || p->sd[k] > 0)
+            lam_estimate_set_prior(e, k, p->mean[k], p->sd[k], "pooled");
+    if (p->floor_rel > 0)
+        e->floor_rel = e->floor_rel_prior = p->floor_rel;
+}
+
+/* ---- stages ---- */
+
+typedef struct run {
+    lam_analysis *a;
+    const lam_setup *setup;
+    const lam_analysis_options *opt;
+    lam_image *img;
+    lam_model *model;        /* coarse, 40 layers: fits, ladders, posteriors */
+    size_t threads;
+    double t0;
+} run;
+
+#define MARK(r, k) ((r)->a->seconds[k] = now_s() - (r)->t0)
+
+static const char *camera_name(lam_camera_kind k)
+{
+    return k == LAM_CAMERA_GAUSSIAN        ? "gaussian"
+           : k == LAM_CAMERA_SRGB_OBSERVER ? "srgb-observer"
+           : k == LAM_CAMERA_TABLE         ? "table"
+                                           : "monochromatic";
+}
+
+static lam_status load_stage(run *r, const char *path, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_load_options lo = r->opt->load;
+    if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(r->setup, "encoding"))
+        lo.transfer = r->setup->encoding;
+    lo.keep_display8 = 1; /* 8-bit files: the report draws on the file's own codes */
+    lam_status st = lam_image_load(path, &lo, &r->img, err);
+    if (st)
+        return st;
+    MARK(r, LAM_T_LOAD);
+    lam_image *img = r->img;
+    a->width = img->width;
+    a->height = img->height;
+    a->transfer = img->transfer;
+    a->bit_depth = img->bit_depth;
+    a->clipped_pixels = img->clipped_count;
+    a->display = img->display8; /* taken over, or NULL for 16-bit files */
+    img->display8 = NULL;
+    if (!a->display && !(a->display = display_copy(img, r->threads)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
+    MARK(r, LAM_T_DISPLAY);
+    return LAM_OK;
+}
+
+static void describe_setup(lam_analysis *a, const lam_setup *s)
+{
+    a->channels = s->camera.channels;
+    a->um_per_px = s->um_per_px;
+    a->illumination_na = s->illumination_na;
+    a->fermi_ev = fabs(s->sheet.fermi_ev);
+    a->pupil = s->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos";
+    a->camera = camera_name(s->camera.kind);
+    lam_sheet_describe(&s->sheet, a->conductivity, sizeof a->conductivity);
+    a->defaulted_count = s->defaulted_count;
+    memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
+}
+
+static lam_status model_stage(run *r, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    const lam_analysis_options *opt = r->opt;
+    if (opt->max_layers < 1 || opt->max_layers > 20)
+        return lam_error_set(err, LAM_ERANGE, "--max-layers must be 1 to 20");
+    a->max_layers = opt->max_layers;
+    lam_estimate_options eo = opt->estimate;
+    eo.max_layers = opt->max_layers;
+    lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
+    if (!st)
+        st = lam_estimate_alloc(r->setup, lam_model_channels(r->model), &eo, &a->estimate, err);
+    if (st)
+        return st;
+    lam_shared_prior_apply(opt->shared_prior, a->estimate);
+    a->prior_pooled = opt->shared_prior && opt->shared_prior->set;
+    a->prior_images = a->prior_pooled ? opt->shared_prior->images : 0;
+    a->oxide.nominal = lam_setup_oxide(r->setup);
+    a->oxide.estimate = a->oxide.nominal;
+    double nominal = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
+    st = lam_estimate_add_image(a->estimate, NULL, 0, nominal, r->setup->sigma.oxide_nm, NULL, err);
+    if (!st && (!opt->fit_oxide || a->oxide.nominal < 0))
+        a->estimate->image[0].oxide.fitted = 0;
+    /* the ladder at the prior's centre, for the substrate and the first pass */
+    if (!st)
+        st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
     return st;
 }
 
-static lam_status segment_and_infer(lam_analysis *a, const lam_image *con,
-                                    const lam_segment_options *so, const lam_infer_options *io,
-                                    lam_error *err)
+static void to_segment_ladder(const lam_prediction *P, size_t K, lam_ladder *L)
 {
+    L->entries = P->max_layers + 1;
+    L->max_layers = K;
+    for (size_t N = 0; N < L->entries; N++)
+        for (size_t c = 0; c < 3; c++)
+            L->c[N][c] = c < P->channels ? P->contrast[N][c] : P->contrast[N][P->channels - 1];
+}
+
+static lam_status substrate_stage(run *r, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_substrate_options so = r->opt->substrate;
+    so.threads = r->threads;
+    double lad[LAM_MODEL_MAX_LAYERS][3];
     lam_ladder L;
-    make_ladder(&a->ladder, a->max_layers, a->thick_to, &L);
-    lam_status st = lam_segment_classify(con, &L, a->substrate.noise, so, a->seg, err);
-    if (!st)
-        st = lam_segment_regions(con, so, a->seg, err);
+    to_segment_ladder(&a->ladder, a->max_layers, &L);
+    for (size_t N = 1; N <= LAM_MODEL_MAX_LAYERS; N++)
+        memcpy(lad[N - 1], L.c[N], sizeof lad[0]);
+    so.ladder = (const double (*)[3])lad;
+    so.ladder_count = LAM_MODEL_MAX_LAYERS;
+    lam_status st = lam_substrate_estimate(r->img, &so, &a->substrate, err);
     if (st)
         return st;
-    free(a->results);
-    a->count = a->seg->count;
-    a->results = calloc(a->count ? a->count : 1, sizeof *a->results);
-    if (!a->results)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu region results", a->count);
-    for (size_t i = 0; i < a->count; i++)
-        lam_infer_region(&a->seg->regions[i], &a->ladder, a->thick_to, a->substrate.noise,
-                         a->substrate.kappa, io, &a->results[i]);
+    MARK(r, LAM_T_SUBSTRATE);
+    lam_contrast_in_place(r->img, &a->substrate, r->threads);
+    if ((st = lam_contrast_denoise(r->img, r->threads, err)) ||
+        (st = lam_segmentation_alloc(r->img->width, r->img->height, &a->seg, err)))
+        return st;
+    MARK(r, LAM_T_CONTRAST);
     return LAM_OK;
+}
+
+/* Classify, label regions and measure them against the ladder in a->ladder. */
+static lam_status segment_stage(run *r, double floor_rel, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_segment_options so = r->opt->segment;
+    so.threads = r->threads;
+    so.floor_rel = floor_rel;
+    lam_ladder L;
+    to_segment_ladder(&a->ladder, a->max_layers, &L);
+    lam_status st = lam_segment_classify(r->img, &L, a->substrate.noise, &so, a->seg, err);
+    if (!st)
+        st = lam_segment_regions(r->img, &so, a->seg, err);
+    if (st)
+        return st;
+    free(a->measured);
+    a->count = a->seg->count;
+    a->measured = calloc(a->count ? a->count : 1, sizeof *a->measured);
+    if (!a->measured)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->count);
+    for (size_t i = 0; i < a->count; i++)
+        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
+                           a->channels, &a->measured[i]);
+    return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
+}
+
+static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    lam_oxide_result *o = &a->oxide;
+    o->regions_used = im->regions_used;
+    o->fitted = im->oxide.fitted && im->regions_used > 0;
+    o->estimate = o->fitted ? im->oxide.value : o->nominal;
+    o->sigma = o->fitted ? im->oxide.sigma : NAN;
+    if (o->fitted)
+        snprintf(o->method, sizeof o->method,
+                 "joint fit with the shared parameters over %zu region(s); sigma includes them",
+                 im->regions_used);
+    else
+        snprintf(o->method, sizeof o->method, o->nominal < 0 ? "no oxide in the stack"
+                                              : "nominal (no region usable for a fit)");
+    o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
+}
+
+/* The joint fit, then a second segmentation with the fitted ladder. */
+static lam_status fit_stage(run *r, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    if (!st)
+        st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
+    if (st)
+        return st;
+    MARK(r, LAM_T_SEGMENT);
+    double fl = fmax(SECOND_PASS_MIN_FLOOR_REL, 2 * a->estimate->floor_rel);
+    if ((st = segment_stage(r, fl, err)) || (st = lam_estimate_refit(a->estimate, r->model, err)) ||
+        (st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err)))
+        return st;
+    oxide_summary(a, r->opt);
+    MARK(r, LAM_T_OXIDE);
+    return LAM_OK;
+}
+
+/* The 1L/2L ladder over the Fermi level, on a 10 nm grid with 6 cone
+ * nodes: the conductivity integrals per Fermi level are the cost here. */
+static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
+{
+    lam_setup s = *r->setup;
+    s.grid_step_nm = 10;
+    s.cone_nodes = 6;
+    lam_model *m = NULL;
+    lam_status st = lam_model_alloc(&s, 2, 0, &m, err);
+    if (!st)
+        st = lam_fermi_table_build(r->a->estimate, 0, m, ft, err);
+    lam_model_free(m);
+    return st;
+}
+
+static lam_status posterior_stage(run *r, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_infer_options io = r->opt->infer;
+    io.max_layers = a->max_layers;
+    io.min_area_px = a->um_per_px > 0 ? r->opt->min_area_um2 / (a->um_per_px * a->um_per_px)
+                                      : r->opt->min_area_px;
+    a->infer = io;
+    lam_est_view *v = malloc(sizeof *v);
+    lam_fermi_table *ft = r->opt->fit_fermi ? malloc(sizeof *ft) : NULL;
+    a->results = calloc(a->count ? a->count : 1, sizeof *a->results);
+    lam_status st = LAM_OK;
+    if (!v || !a->results || (r->opt->fit_fermi && !ft))
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
+    else
+        st = lam_estimate_view(a->estimate, 0, r->model, v, err);
+    if (!st && ft)
+        st = fermi_table(r, ft, err);
+    for (size_t i = 0; i < a->count && !st; i++) {
+        lam_region_result *res = &a->results[i];
+        lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &io, res);
+        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+    }
+    free(v);
+    free(ft);
+    MARK(r, LAM_T_REGIONS);
+    return st;
 }
 
 lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
                        lam_analysis **out, lam_error *err)
 {
     lam_analysis_options defaults = lam_analysis_options_default();
-    if (!opt)
-        opt = &defaults;
-    lam_analysis *a = calloc(1, sizeof *a);
-    lam_image *img = NULL;
-    lam_model *full = NULL, *fast = NULL;
-    int *use = NULL;
-    lam_fermi_scan *scan = NULL;
-    lam_status st = LAM_OK;
-    if (!a)
+    run r;
+    memset(&r, 0, sizeof r);
+    r.opt = opt ? opt : &defaults;
+    r.setup = setup;
+    r.threads = r.opt->threads ? r.opt->threads : 1;
+    r.t0 = now_s();
+    if (!(r.a = calloc(1, sizeof *r.a)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate an analysis");
-    snprintf(a->file, sizeof a->file, "%s", path);
-    if (opt->max_layers < 1 || opt->max_layers > 20) {
-        st = lam_error_set(err, LAM_ERANGE, "--max-layers must be 1 to 20");
-        goto fail;
-    }
-    a->max_layers = opt->max_layers;
-    a->thick_to = LAM_MODEL_MAX_LAYERS; /* "thick" hypotheses reach 40 layers (~13 nm) */
-    lam_load_options lo = opt->load;
-    if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
-        lo.transfer = setup->encoding;
-    lo.keep_display8 = 1; /* 8-bit files: the report draws on the file's own codes */
-    double t0 = now_s();
-    if ((st = lam_image_load(path, &lo, &img, err)))
-        goto fail;
-    MARK(LAM_T_LOAD);
-    a->width = img->width;
-    a->height = img->height;
-    a->transfer = img->transfer;
-    a->bit_depth = img->bit_depth;
-    a->clipped_pixels = img->clipped_count;
-    a->um_per_px = setup->um_per_px;
-    a->illumination_na = setup->illumination_na;
-    a->fermi_ev = fabs(setup->sheet.fermi_ev);
-    a->pupil = setup->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos";
-    a->camera = setup->camera.kind == LAM_CAMERA_GAUSSIAN       ? "gaussian"
-                : setup->camera.kind == LAM_CAMERA_SRGB_OBSERVER ? "srgb-observer"
-                                                                : "table";
-    lam_sheet_describe(&setup->sheet, a->conductivity, sizeof a->conductivity);
-    a->defaulted_count = setup->defaulted_count;
-    memcpy(a->defaulted, setup->defaulted, sizeof a->defaulted);
-    size_t threads = opt->threads ? opt->threads : 1;
-    lam_substrate_options so = opt->substrate;
-    so.threads = threads;
-    lam_segment_options sgo = opt->segment;
-    sgo.threads = threads;
-    a->display = img->display8; /* taken over, or NULL for 16-bit files */
-    img->display8 = NULL;
-    if (!a->display && !(a->display = display_copy(img, threads))) {
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
-        goto fail;
-    }
-    MARK(LAM_T_DISPLAY);
-    /* the ladder at the nominal oxide also tells the substrate from a flake
-     * that covers most of the field */
-    if ((st = lam_model_alloc(setup, a->thick_to, 0, &full, err)) ||
-        (st = lam_model_alloc_fast(setup, a->max_layers, &fast, err)))
-        goto fail;
-    double nominal = lam_setup_oxide(setup);
-    a->oxide.nominal = nominal;
-    a->oxide.estimate = nominal;
-    if (nominal < 0)
-        nominal = 0;
-    if ((st = lam_model_eval(full, nominal, setup->sheet.fermi_ev, &a->ladder, err)))
-        goto fail;
-    so.ladder = (const double (*)[3])&a->ladder.contrast[1];
-    so.ladder_count = a->thick_to;
-    if ((st = lam_substrate_estimate(img, &so, &a->substrate, err)))
-        goto fail;
-    MARK(LAM_T_SUBSTRATE);
-    lam_contrast_in_place(img, &a->substrate, threads);
-    if ((st = lam_contrast_denoise(img, threads, err)) ||
-        (st = lam_segmentation_alloc(img->width, img->height, &a->seg, err)))
-        goto fail;
-    MARK(LAM_T_CONTRAST);
-    lam_infer_options io = opt->infer;
-    io.max_layers = a->max_layers;
-    io.min_area_px = a->um_per_px > 0 ? opt->min_area_um2 / (a->um_per_px * a->um_per_px)
-                                      : opt->min_area_px;
-    a->infer = io;
-    a->fermi_signed = setup->sheet.fermi_ev;
-    MARK(LAM_T_MODEL);
-    if ((st = segment_and_infer(a, img, &sgo, &io, err)))
-        goto fail;
-    MARK(LAM_T_SEGMENT);
-    /* oxide: profile over confident, well-sampled regions */
-    snprintf(a->oxide.method, sizeof a->oxide.method, "nominal (not fitted)");
-    if (opt->fit_oxide && lam_setup_oxide(setup) >= 0) {
-        use = calloc(a->count ? a->count : 1, sizeof *use);
-        if (!use) {
-            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate");
-            goto fail;
-        }
-        for (size_t i = 0; i < a->count; i++)
-            use[i] = lam_analysis_region_fits_oxide(a, i);
-        double est, sig, chi2min;
-        size_t used;
-        if ((st = lam_infer_oxide(fast, a->seg->regions, use, a->count, a->max_layers,
-                                  a->substrate.noise, a->substrate.kappa, &io, nominal,
-                                  opt->oxide_half_range_nm, setup->sheet.fermi_ev, &est, &sig,
-                                  &used, &chi2min, err)))
-            goto fail;
-        a->oxide.regions_used = used;
-        if (used) {
-            a->oxide.fitted = 1;
-            a->oxide.estimate = est;
-            a->oxide.sigma = sig;
-            snprintf(a->oxide.method, sizeof a->oxide.method,
-                     "profile likelihood over %zu region(s), nominal +- %.0f nm", used,
-                     opt->oxide_half_range_nm);
-            if ((st = lam_model_eval(full, est, setup->sheet.fermi_ev, &a->ladder, err)))
-                goto fail;
-            /* a ladder shifted by more than 4 nm can move pixels between
-             * classes: segment again (below that the classes are stable) */
-            if (fabs(est - nominal) > 4.0 && (st = segment_and_infer(a, img, &sgo, &io, err)))
-                goto fail;
-            if (fabs(est - nominal) <= 4.0)
-                for (size_t i = 0; i < a->count; i++)
-                    lam_infer_region(&a->seg->regions[i], &a->ladder, a->thick_to,
-                                     a->substrate.noise, a->substrate.kappa, &io, &a->results[i]);
-        } else {
-            snprintf(a->oxide.method, sizeof a->oxide.method,
-                     "nominal (no region usable for a fit)");
-        }
-    }
-    MARK(LAM_T_OXIDE);
-    a->oxide.pass = fabs(a->oxide.estimate - a->oxide.nominal) <= opt->oxide_tolerance_nm;
-    for (size_t i = 0; i < a->count; i++) {
-        lam_region_result *r = &a->results[i];
-        const lam_region_stats *rs = &a->seg->regions[i];
-        lam_usable_rectangle(a->seg, rs, r->usable_px, r->usable_at);
-        if (opt->fit_fermi && (r->layers == 1 || r->layers == 2) && rs->interior >= 100) {
-            if (!scan && (st = lam_fermi_scan_alloc(fast, a->oxide.estimate, &scan, err)))
-                goto fail;
-            lam_infer_fermi(scan, rs, r->layers, a->substrate.noise, a->substrate.kappa, &io,
-                            &r->fermi);
-        }
-    }
-    lam_fermi_scan_free(scan);
-    MARK(LAM_T_REGIONS);
-    free(use);
-    lam_model_free(full);
-    lam_model_free(fast);
-    lam_image_free(img);
-    *out = a;
-    return LAM_OK;
-fail:
-    lam_fermi_scan_free(scan);
-    free(use);
-    lam_model_free(full);
-    lam_model_free(fast);
-    lam_image_free(img);
-    lam_analysis_free(a);
-    lam_error_set_file(err, path);
-    return st;
-}
-
-lam_status lam_reference_level(const char *path, const lam_load_options *load, double level[3],
-                               lam_error *err)
-{
-    lam_image *img = NULL;
-    lam_status st = lam_image_load(path, load, &img, err);
-    if (st)
-        return st;
-    lam_substrate sub;
-    lam_substrate_options so = lam_substrate_options_default();
-    st = lam_substrate_estimate(img, &so, &sub, err);
-    if (!st)
-        lam_substrate_eval(&sub, (double)img->width / 2, (double)img->height / 2, level);
-    lam_image_free(img);
-    if (st)
+    snprintf(r.a->file, sizeof r.a->file, "%s", path);
+    describe_setup(r.a, setup);
+    lam_status st = load_stage(&r, path, err);
+    if (!st && !(st = model_stage(&r, err)) && !(st = substrate_stage(&r, err)) &&
+        !(st = segment_stage(&r, FIRST_PASS_FLOOR_REL, err)) && !(st = fit_stage(&r, err)))
+        st = posterior_stage(&r, err);
+    lam_model_free(r.model);
+    lam_image_free(r.img);
+    if (st) {
+        lam_analysis_free(r.a);
         lam_error_set_file(err, path);
-    return st;
+        return st;
+    }
+    *out = r.a;
+    return LAM_OK;
 }
 
-lam_status lam_oxide_absolute_profile(const lam_analysis *const *an, size_t images,
-                                      const double ref[3], const lam_setup *setup,
-                                      double stability, const double *grid, size_t n,
-                                      double *chi2, lam_error *err)
+int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i)
 {
-    lam_model *m = NULL;
-    lam_prediction *P = malloc(sizeof *P);
-    lam_status st = P ? lam_model_alloc_fast(setup, 1, &m, err)
-                      : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-    double bare[3] = {0, 0, 0};
-    if (!st && !(st = lam_model_eval(m, 0.0, setup->sheet.fermi_ev, P, err)))
-        for (int c = 0; c < 3; c++)
-            bare[c] = P->substrate[c];
-    double (*q)[3] = malloc((images ? images : 1) * sizeof *q);
-    if (!st && !q)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate");
-    for (size_t j = 0; !st && j < images; j++) {
-        double b[3];
-        lam_substrate_eval(&an[j]->substrate, (double)an[j]->width / 2, (double)an[j]->height / 2, b);
-        for (int c = 0; c < 3; c++)
-            q[j][c] = b[c] / ref[c];
-    }
-    for (size_t g = 0; g < n && !st; g++) {
-        if ((st = lam_model_eval(m, grid[g], setup->sheet.fermi_ev, P, err)))
-            break;
-        chi2[g] = 0;
-        for (size_t j = 0; j < images; j++)
-            for (int c = 0; c < 3; c++) {
-                double r = P->substrate[c] / bare[c], d = (q[j][c] - r) / (stability * q[j][c]);
-                chi2[g] += d * d;
-            }
-    }
-    free(q);
-    free(P);
-    lam_model_free(m);
-    return st;
+    return a->measured && a->measured[i].use && a->results[i].layers > 0 &&
+           !(a->results[i].flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED));
 }

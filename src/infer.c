@@ -1,6 +1,7 @@
-/* infer.c - region posteriors over layer count, oxide profile likelihood,
- * Fermi-level scan and the usable rectangle. */
+/* infer.c - region posteriors with the shared parameters' uncertainty
+ * (Laplace leave-one-out), labels and flags, the usable rectangle. */
 #include "lamina/infer.h"
+#include "estimate_internal.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -8,245 +9,354 @@
 #include <string.h>
 #include <gsl/gsl_cdf.h>
 
+/* A region informs the shared parameters only with enough interior pixels
+ * for its mean to be worth more than its edges. */
+#define MIN_INTERIOR_FOR_FIT 60
+
+static const char *const flag_names[LAM_FLAG_COUNT] = {"ambiguous", "unmodelled", "saturated",
+                                                       "touches_border", "small", "doped"};
+
+const char *lam_flag_name(int bit)
+{
+    return bit >= 0 && bit < LAM_FLAG_COUNT ? flag_names[bit] : "?";
+}
+
 lam_infer_options lam_infer_options_default(void)
 {
-    lam_infer_options o = {0.005, 0.05, 0.95, 1e-3, 100, 6};
+    lam_infer_options o = {0.95, 1e-4, 100, 6};
     return o;
 }
 
-void lam_region_moments(const lam_region_stats *r, const double noise[3], double kappa,
-                        const lam_infer_options *opt, const double model[3], double mean[3],
-                        double sigma[3])
-{
-    double n = r->interior ? (double)r->interior : 1.0;
-    for (int c = 0; c < 3; c++) {
-        mean[c] = r->sum[c] / n;
-        double stat = kappa * noise[c] * noise[c] / n;
-        double f = opt->floor_abs + opt->floor_rel * fabs(model ? model[c] : mean[c]);
-        sigma[c] = sqrt(stat + f * f);
-    }
-}
-
-double lam_region_chi2(const lam_region_stats *r, const double model[3], const double noise[3],
-                       double kappa, const lam_infer_options *opt)
-{
-    double mean[3], sigma[3], x = 0;
-    lam_region_moments(r, noise, kappa, opt, model, mean, sigma);
-    for (int c = 0; c < 3; c++) {
-        double d = (mean[c] - model[c]) / sigma[c];
-        x += d * d;
-    }
-    return x;
-}
-
-void lam_infer_region(const lam_region_stats *r, const lam_prediction *P, size_t thick_to,
-                      const double noise[3], double kappa, const lam_infer_options *opt,
-                      lam_region_result *out)
+void lam_region_measure(const lam_region_stats *r, const double noise[3], double kappa,
+                        size_t channels, lam_est_region *out)
 {
     memset(out, 0, sizeof *out);
-    size_t K = opt->max_layers;
-    double chi[LAM_MODEL_MAX_LAYERS + 2];
-    double best = INFINITY;
-    size_t bestN = 1;
-    /* N = 0: the region may be bare substrate that noise pushed off the ladder */
-    for (size_t N = 0; N <= K; N++) {
-        chi[N] = lam_region_chi2(r, P->contrast[N], noise, kappa, opt);
-        if (chi[N] < best)
-            best = chi[N], bestN = N;
+    double n = r->interior ? (double)r->interior : 1.0;
+    for (size_t c = 0; c < channels; c++) {
+        out->mean[c] = r->sum[c] / n;
+        out->var[c] = kappa * noise[c] * noise[c] / n;
     }
-    /* thick: profile over the entries beyond K */
-    double tbest = INFINITY;
-    size_t tN = K + 1;
-    for (size_t N = K + 1; N <= thick_to && N <= P->max_layers; N++) {
-        double x = lam_region_chi2(r, P->contrast[N], noise, kappa, opt);
-        if (x < tbest)
-            tbest = x, tN = N;
-    }
-    chi[K + 1] = tbest;
-    if (tbest < best)
-        best = tbest, bestN = K + 1;
-    double z = 0, p0 = exp(-0.5 * (chi[0] - best));
-    for (size_t N = 1; N <= K + 1; N++)
-        z += out->p[N] = isfinite(chi[N]) ? exp(-0.5 * (chi[N] - best)) : 0.0;
-    z += p0;
-    for (size_t N = 1; N <= K + 1; N++)
-        out->p[N] /= z;
-    out->p_substrate = p0 / z;
-    const double *model = bestN <= K ? P->contrast[bestN] : P->contrast[tN];
-    out->substrate_like = bestN == 0;
-    lam_region_moments(r, noise, kappa, opt, model, out->mean, out->sigma);
-    memcpy(out->model, model, sizeof out->model);
-    out->chi2 = best;
-    out->pvalue = gsl_cdf_chisq_Q(best, 3.0);
-    if (out->pvalue < opt->p_unmodelled)
-        out->flags |= LAM_FLAG_UNMODELLED;
-    if ((bestN ? out->p[bestN] : out->p_substrate) < opt->p_confident)
-        out->flags |= LAM_FLAG_AMBIGUOUS;
-    if (r->clipped > r->area / 100)
-        out->flags |= LAM_FLAG_SATURATED;
-    if (r->touches_border)
-        out->flags |= LAM_FLAG_BORDER;
-    if ((double)r->area < opt->min_area_px)
-        out->flags |= LAM_FLAG_SMALL;
-    out->thick = bestN == K + 1;
-    if (out->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) {
-        out->layers = 0;
-        snprintf(out->label, sizeof out->label, "unassigned");
-    } else if (bestN == 0) {
-        out->layers = 0; /* indistinguishable from the bare substrate */
-        out->flags |= LAM_FLAG_AMBIGUOUS;
-        snprintf(out->label, sizeof out->label, "unassigned");
-    } else if (out->thick) {
-        out->layers = 0;
-        snprintf(out->label, sizeof out->label, "thick");
-    } else {
-        out->layers = (int)bestN;
-        snprintf(out->label, sizeof out->label, "%uL", (unsigned)(bestN % 100));
-    }
-    out->fermi.estimate = NAN;
+    out->use = r->interior >= MIN_INTERIOR_FOR_FIT && r->clipped * 100 <= r->area;
 }
 
-static double profile_total(lam_model *m, double d, double fermi, const lam_region_stats *R,
-                            const int *use, size_t count, size_t thick_to, const double noise[3],
-                            double kappa, const lam_infer_options *opt, lam_prediction *P,
-                            lam_status *st, lam_error *err)
+/* ---- leave-one-out parameter shift and covariance ---- */
+
+typedef struct loo {
+    size_t n;
+    double shift[LAM__MAT_MAX];
+    lam__mat cov;
+} loo;
+
+/* Remove region r's information (its responsibility-weighted Gauss-Newton
+ * Hessian and gradient) from the posterior of the view's parameters. */
+static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
+                      const double *resp, loo *out)
 {
-    *st = lam_model_eval(m, d, fermi, P, err);
-    if (*st)
-        return NAN;
-    double tot = 0;
-    for (size_t i = 0; i < count; i++) {
-        if (!use[i])
+    size_t n = v->nfree, K = e->max_layers, nc = e->channels;
+    out->n = n;
+    memset(out->shift, 0, sizeof out->shift);
+    lam__mat l, prec;
+    for (size_t a = 0; a < n; a++)
+        for (size_t b = 0; b < n; b++)
+            out->cov[a][b] = v->cov[a][b];
+    if (!r->use || n == 0)
+        return;
+    lam__cholesky_ridged(out->cov, n, l);
+    lam__cholesky_inverse(l, n, prec);
+    double g[LAM__MAT_MAX] = {0};
+    for (size_t h = 1; h <= K; h++) {
+        if (resp[h] < 1e-6)
             continue;
-        double best = INFINITY;
-        for (size_t N = 1; N <= opt->max_layers && N <= thick_to; N++)
-            best = fmin(best, lam_region_chi2(&R[i], P->contrast[N], noise, kappa, opt));
-        tot += best;
+        for (size_t c = 0; c < nc; c++) {
+            double pred = v->ladder.contrast[h][c];
+            double w = resp[h] / (r->var[c] + lam_estimate_floor_var(e, pred));
+            for (size_t a = 0; a < n; a++) {
+                g[a] += w * v->grad[a][h][c] * (r->mean[c] - pred);
+                for (size_t b = 0; b < n; b++)
+                    prec[a][b] -= w * v->grad[a][h][c] * v->grad[b][h][c];
+            }
+        }
     }
-    return tot;
+    lam__cholesky_ridged(prec, n, l);
+    lam__cholesky_inverse(l, n, out->cov);
+    for (size_t a = 0; a < n; a++)
+        for (size_t b = 0; b < n; b++)
+            out->shift[a] -= out->cov[a][b] * g[b];
 }
 
-lam_status lam_infer_oxide(lam_model *m, const lam_region_stats *R, const int *use, size_t count,
-                           size_t thick_to, const double noise[3], double kappa,
-                           const lam_infer_options *opt, double nominal, double half,
-                           double fermi, double *estimate, double *sigma, size_t *used,
-                           double *chi2_min, lam_error *err)
+/* log N(m; mean, S) for nc <= 3 with a full covariance; chi2 out. */
+static double mvn_logpdf(const double *m, const double *mean, const double s[3][3], size_t nc,
+                         double *chi2)
 {
-    size_t n_used = 0;
-    for (size_t i = 0; i < count; i++)
-        n_used += use[i] != 0;
-    *used = n_used;
-    if (!n_used) {
-        *estimate = nominal;
-        *sigma = NAN;
-        *chi2_min = NAN;
-        return LAM_OK;
+    lam__mat a, l;
+    for (size_t i = 0; i < nc; i++)
+        for (size_t j = 0; j < nc; j++)
+            a[i][j] = s[i][j];
+    lam__cholesky_ridged(a, nc, l);
+    double d[LAM__MAT_MAX] = {0};
+    for (size_t i = 0; i < nc; i++)
+        d[i] = m[i] - mean[i];
+    double x[LAM__MAT_MAX];
+    memcpy(x, d, sizeof x);
+    lam__cholesky_solve(l, nc, x);
+    double q = 0;
+    for (size_t i = 0; i < nc; i++)
+        q += d[i] * x[i];
+    if (chi2)
+        *chi2 = q;
+    return -0.5 * (q + lam__cholesky_logdet(l, nc) + (double)nc * log(2 * M_PI));
+}
+
+/* Predictive mean and covariance of hypothesis h (h <= K) with the
+ * parameters left out. */
+static void predictive(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
+                       const loo *lo, size_t h, double mean[3], double s[3][3])
+{
+    size_t nc = e->channels, n = lo->n;
+    for (size_t c = 0; c < nc; c++) {
+        mean[c] = v->ladder.contrast[h][c];
+        for (size_t a = 0; a < n; a++)
+            mean[c] += v->grad[a][h][c] * lo->shift[a];
     }
+    for (size_t c = 0; c < nc; c++)
+        for (size_t d = 0; d < nc; d++) {
+            double t = 0;
+            for (size_t a = 0; a < n; a++)
+                for (size_t b = 0; b < n; b++)
+                    t += v->grad[a][h][c] * lo->cov[a][b] * v->grad[b][h][d];
+            s[c][d] = t;
+        }
+    for (size_t c = 0; c < nc; c++)
+        s[c][c] += r->var[c] + lam_estimate_floor_var(e, v->ladder.contrast[h][c]);
+}
+
+/* log prior x predictive of every hypothesis; chi2 of each layered one. */
+static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
+                       const loo *lo, double *lt, double *chi2)
+{
+    size_t K = e->max_layers, nc = e->channels, top = v->ladder.max_layers;
+    double mean[3], s[3][3];
+    for (size_t h = 0; h <= K; h++) {
+        predictive(e, v, r, lo, h, mean, s);
+        lt[h] = log(lam_hypothesis_prior(h, K)) + mvn_logpdf(r->mean, mean, s, nc, &chi2[h]);
+    }
+    double thick[LAM_MODEL_MAX_LAYERS + 1], var[3];
+    size_t nt = 0;
+    for (size_t N = K + 1; N <= top; N++) {
+        for (size_t c = 0; c < nc; c++)
+            var[c] = r->var[c] + lam_estimate_floor_var(e, v->ladder.contrast[N][c]);
+        thick[nt++] = lam__gauss_logpdf(r->mean, v->ladder.contrast[N], var, nc);
+    }
+    lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
+                   : -INFINITY;
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) - (double)nc * log(LAM_UNMODELLED_SIDE);
+}
+
+/* ---- the Fermi level ---- */
+
+#define ORDINARY_EF_EV 0.5      /* exfoliated graphene on SiO2: 0.1-0.3 eV (common practice) */
+#define ORDINARY_PRIOR 0.8
+
+static void fermi_grid(lam_fermi_table *t)
+{
+    size_t n = 0;
+    for (int k = 0; k <= 5; k++)
+        t->mu[n++] = 0.1 * k;             /* 0 .. 0.5: coarse, the ladder barely moves */
+    while (n < LAM_FERMI_GRID)
+        t->mu[n] = 0.5 + (LAM_FERMI_MAX_EV - 0.5) * (double)(n - 5) / (LAM_FERMI_GRID - 6), n++;
+    t->count = n;
+    for (size_t i = 0; i < n; i++) {
+        double lo = i ? 0.5 * (t->mu[i - 1] + t->mu[i]) : 0;
+        double hi = i + 1 < n ? 0.5 * (t->mu[i] + t->mu[i + 1]) : LAM_FERMI_MAX_EV;
+        t->flat_weight[i] = (hi - lo) / LAM_FERMI_MAX_EV;
+        t->mix_weight[i] = t->mu[i] <= ORDINARY_EF_EV + 1e-9 ? ORDINARY_PRIOR / 6
+                                                            : (1 - ORDINARY_PRIOR) / (double)(n - 6);
+    }
+}
+
+lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *model,
+                                 lam_fermi_table *t, lam_error *err)
+{
+    fermi_grid(t);
     lam_prediction *P = malloc(sizeof *P);
     if (!P)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
+    lam_model_point p = lam_estimate_point(e, j);
+    double g[LAM_MAX_CHANNELS];
+    lam_estimate_gains(e, g);
     lam_status st = LAM_OK;
-    /* the chi2 profile varies on a ~10 nm scale: a 2.5 nm grid finds the
-     * basin, golden-section search the minimum */
-    const double step = 2.5;
-    size_t steps = (size_t)(2 * half / step) + 1;
-    double best = INFINITY, bd = nominal;
-    for (size_t i = 0; i < steps && !st; i++) {
-        double d = nominal - half + step * (double)i;
-        if (d < 0)
-            continue;
-        double t = profile_total(m, d, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        if (t < best)
-            best = t, bd = d;
-    }
-    /* golden-section refinement inside +-1 step */
-    double a = bd - step, b = bd + step, g = 0.6180339887498949;
-    double x1 = b - g * (b - a), x2 = a + g * (b - a);
-    double f1 = profile_total(m, x1, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-    double f2 = profile_total(m, x2, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-    for (int it = 0; it < 16 && !st; it++) {
-        if (f1 < f2) {
-            b = x2, x2 = x1, f2 = f1, x1 = b - g * (b - a);
-            f1 = profile_total(m, x1, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        } else {
-            a = x1, x1 = x2, f1 = f2, x2 = a + g * (b - a);
-            f2 = profile_total(m, x2, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        }
-    }
-    if (!st) {
-        double d0 = 0.5 * (a + b);
-        double h = 0.5;
-        double fm = profile_total(m, d0 - h, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        double f0 = profile_total(m, d0, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        double fp = profile_total(m, d0 + h, fermi, R, use, count, thick_to, noise, kappa, opt, P, &st, err);
-        double curv = (fp - 2 * f0 + fm) / (h * h);
-        *estimate = d0;
-        /* chi2 = chi2_min + (d - d0)^2 / sigma^2  =>  sigma = sqrt(2 / curvature) */
-        *sigma = curv > 0 ? sqrt(2.0 / curv) : NAN;
-        *chi2_min = f0;
+    for (size_t i = 0; i < t->count && !st; i++) {
+        p.v[LAM_MP_FERMI] = t->mu[i];
+        if ((st = lam_model_eval_point(model, &p, 2, P, err)))
+            break;
+        for (size_t N = 0; N <= 2; N++)
+            for (size_t c = 0; c < e->channels; c++)
+                t->contrast[i][N][c] = g[c] * P->contrast[N][c];
     }
     free(P);
     return st;
 }
 
-lam_status lam_fermi_scan_alloc(lam_model *m, double oxide_nm, lam_fermi_scan **out,
-                                lam_error *err)
+/* log N(m; C_N(mu) + ladder shift, S) over the grid, S the predictive
+ * covariance at the fitted Fermi level. */
+static void fermi_loglik(const lam_estimate *e, const lam_est_view *v, const lam_fermi_table *t,
+                         const lam_est_region *r, const loo *lo, size_t N, double *ll)
 {
-    lam_fermi_scan *sc = malloc(sizeof *sc);
-    if (!sc)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a Fermi-level scan");
-    for (size_t i = 0; i < LAM_FERMI_STEPS; i++) {
-        sc->mu[i] = 0.05 * (double)i; /* 0 .. 1.5 eV */
-        lam_status st = lam_model_eval(m, oxide_nm, sc->mu[i], &sc->ladder[i], err);
-        if (st) {
-            free(sc);
-            return st;
+    double mean[3], s[3][3], shifted[3];
+    predictive(e, v, r, lo, N, mean, s);
+    for (size_t i = 0; i < t->count; i++) {
+        for (size_t c = 0; c < e->channels; c++)
+            shifted[c] = t->contrast[i][N][c] + (mean[c] - v->ladder.contrast[N][c]);
+        ll[i] = mvn_logpdf(r->mean, shifted, s, e->channels, NULL);
+    }
+}
+
+/* Average the 1L and 2L hypotheses over the Fermi level (layer-count prior). */
+static void fermi_marginal(const lam_estimate *e, const lam_est_view *v, const lam_fermi_table *t,
+                           const lam_est_region *r, const loo *lo, double *lt)
+{
+    double ll[LAM_FERMI_GRID];
+    for (size_t N = 1; N <= 2 && N <= e->max_layers; N++) {
+        fermi_loglik(e, v, t, r, lo, N, ll);
+        for (size_t i = 0; i < t->count; i++)
+            ll[i] += log(t->mix_weight[i]);
+        lt[N] = log(lam_hypothesis_prior(N, e->max_layers)) + lam__logsumexp(ll, t->count);
+    }
+}
+
+/* Quantile of a posterior on the grid, interpolated within cells. */
+static double grid_quantile(const lam_fermi_table *t, const double *post, double q)
+{
+    double acc = 0;
+    for (size_t i = 0; i < t->count; i++) {
+        double lo = i ? 0.5 * (t->mu[i - 1] + t->mu[i]) : 0;
+        double hi = i + 1 < t->count ? 0.5 * (t->mu[i] + t->mu[i + 1]) : LAM_FERMI_MAX_EV;
+        if (acc + post[i] >= q && post[i] > 0)
+            return lo + (hi - lo) * (q - acc) / post[i];
+        acc += post[i];
+    }
+    return LAM_FERMI_MAX_EV;
+}
+
+static void fermi_interval(const lam_estimate *e, const lam_est_view *v,
+                           const lam_fermi_table *t, const lam_est_region *r, const loo *lo,
+                           size_t N, lam_fermi_estimate *f)
+{
+    double ll[LAM_FERMI_GRID], post[LAM_FERMI_GRID];
+    fermi_loglik(e, v, t, r, lo, N, ll);
+    for (size_t i = 0; i < t->count; i++)
+        ll[i] += log(t->flat_weight[i]);
+    double z = lam__logsumexp(ll, t->count), below = 0;
+    for (size_t i = 0; i < t->count; i++) {
+        post[i] = exp(ll[i] - z);
+        if (t->mu[i] <= ORDINARY_EF_EV + 1e-9)
+            below += post[i];
+    }
+    f->evaluated = 1;
+    f->constrained = below < 0.025;
+    f->estimate = grid_quantile(t, post, 0.5);
+    f->lo = grid_quantile(t, post, 0.025);
+    f->hi = grid_quantile(t, post, 0.975);
+    f->upper = grid_quantile(t, post, 0.95);
+    if (!f->constrained)
+        f->estimate = f->lo = NAN;
+}
+
+/* ---- labels and flags ---- */
+
+static void label_region(const lam_infer_options *opt, size_t K, size_t best,
+                         lam_region_result *o)
+{
+    if (o->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)) {
+        o->layers = 0;
+        snprintf(o->label, sizeof o->label, "unassigned");
+        snprintf(o->cls, sizeof o->cls, "unmodelled");
+        o->p_label = o->p[LAM_P_UNMODELLED(K)];
+        return;
+    }
+    o->p_label = o->p[best];
+    if (o->p_label < opt->p_confident)
+        o->flags |= LAM_FLAG_AMBIGUOUS;
+    if (best == 0) {
+        o->layers = 0;
+        o->substrate_like = 1;
+        o->flags |= LAM_FLAG_AMBIGUOUS;
+        snprintf(o->label, sizeof o->label, "unassigned");
+        snprintf(o->cls, sizeof o->cls, "substrate");
+    } else if (best == LAM_P_THICK(K)) {
+        o->layers = 0;
+        o->thick = 1;
+        snprintf(o->label, sizeof o->label, "thick");
+        snprintf(o->cls, sizeof o->cls, "thick");
+    } else {
+        o->layers = (int)best;
+        snprintf(o->label, sizeof o->label, "%uL", (unsigned)(best % 100));
+        snprintf(o->cls, sizeof o->cls, "%s", (o->flags & LAM_FLAG_AMBIGUOUS) ? "ambiguous" : "layers");
+    }
+}
+
+static void geometry_flags(const lam_region_stats *s, const lam_infer_options *opt,
+                           lam_region_result *o)
+{
+    if (s->clipped > s->area / 100)
+        o->flags |= LAM_FLAG_SATURATED;
+    if (s->touches_border)
+        o->flags |= LAM_FLAG_BORDER;
+    if ((double)s->area < opt->min_area_px)
+        o->flags |= LAM_FLAG_SMALL;
+}
+
+void lam_infer_region(const lam_estimate *e, const lam_est_view *v, const lam_fermi_table *ft,
+                      const lam_est_region *r, const lam_region_stats *s,
+                      const lam_infer_options *opt, lam_region_result *o)
+{
+    size_t K = e->max_layers, H = K + 3, nc = e->channels;
+    double lt[LAM_MODEL_MAX_LAYERS + 3], chi2[LAM_MODEL_MAX_LAYERS + 3];
+    memset(o, 0, sizeof *o);
+    o->channels = nc;
+    /* responsibilities at the fit, for the leave-one-out */
+    lam__region_logterms(e, r, &v->ladder, lt);
+    double z = lam__logsumexp(lt, H), resp[LAM_MODEL_MAX_LAYERS + 3];
+    for (size_t h = 0; h < H; h++)
+        resp[h] = exp(lt[h] - z);
+    loo lo;
+    leave_out(e, v, r, resp, &lo);
+    hypotheses(e, v, r, &lo, lt, chi2);
+    if (ft)
+        fermi_marginal(e, v, ft, r, &lo, lt);
+    z = lam__logsumexp(lt, H);
+    size_t best = 0, best_layers = 1;
+    for (size_t h = 0; h < H; h++) {
+        o->p[h] = exp(lt[h] - z);
+        if (o->p[h] > o->p[best])
+            best = h;
+        if (h >= 1 && h <= K && o->p[h] > o->p[best_layers])
+            best_layers = h;
+    }
+    o->p_substrate = o->p[0];
+    o->chi2 = chi2[best_layers];
+    o->pvalue = gsl_cdf_chisq_Q(o->chi2, (double)nc);
+    size_t shown = best >= 1 && best <= K ? best : best_layers;
+    double mean[3], sc[3][3];
+    predictive(e, v, r, &lo, shown, mean, sc);
+    for (size_t c = 0; c < nc; c++) {
+        o->mean[c] = r->mean[c];
+        o->model[c] = v->ladder.contrast[shown][c];
+        o->sigma[c] = sqrt(sc[c][c]);
+    }
+    geometry_flags(s, opt, o);
+    if (best == LAM_P_UNMODELLED(K) || (best >= 1 && best <= K && o->pvalue < opt->p_unmodelled))
+        o->flags |= LAM_FLAG_UNMODELLED;
+    o->fermi.estimate = o->fermi.lo = o->fermi.hi = o->fermi.upper = NAN;
+    if (ft && best >= 1 && best <= 2 && r->use) {
+        fermi_interval(e, v, ft, r, &lo, best, &o->fermi);
+        if (o->fermi.constrained) {
+            o->flags |= LAM_FLAG_DOPED;
+            /* the undoped ladder was not the right yardstick for its fit */
+            o->flags &= ~(unsigned)LAM_FLAG_UNMODELLED;
         }
     }
-    *out = sc;
-    return LAM_OK;
-}
-
-void lam_fermi_scan_free(lam_fermi_scan *sc)
-{
-    free(sc);
-}
-
-void lam_infer_fermi(const lam_fermi_scan *sc, const lam_region_stats *r, int layers,
-                     const double noise[3], double kappa, const lam_infer_options *opt,
-                     lam_fermi_estimate *out)
-{
-    enum { STEPS = LAM_FERMI_STEPS };
-    double chi[STEPS];
-    double best = INFINITY, worst = -INFINITY;
-    size_t bi = 0;
-    for (size_t i = 0; i < STEPS; i++) {
-        chi[i] = lam_region_chi2(r, sc->ladder[i].contrast[layers], noise, kappa, opt);
-        if (chi[i] < best)
-            best = chi[i], bi = i;
-        worst = fmax(worst, chi[i]);
-    }
-    const double *mu = sc->mu;
-    size_t lo = bi, hi = bi;
-    while (lo > 0 && chi[lo - 1] <= best + 1)
-        lo--;
-    while (hi + 1 < STEPS && chi[hi + 1] <= best + 1)
-        hi++;
-    out->evaluated = 1;
-    /* constrained: the 68 % interval is closed on both sides, i.e. the
-     * channels see the Pauli-blocking edge move */
-    out->constrained = worst - best > 4 && chi[0] > best + 1 && hi + 1 < STEPS;
-    out->lo = mu[lo];
-    out->hi = mu[hi];
-    out->estimate = out->constrained ? mu[bi] : NAN;
-    if (!out->constrained) {
-        /* report the range the data allow: up to where chi2 rises by 4 */
-        size_t k = 0;
-        while (k + 1 < STEPS && chi[k + 1] <= best + 4)
-            k++;
-        out->lo = 0;
-        out->hi = mu[k];
-    }
+    label_region(opt, K, best, o);
 }
 
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2],

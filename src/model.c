@@ -3,6 +3,7 @@
  * caches that make nearby points cheap. */
 #include "lamina/model.h"
 #include "lamina/tmm.h"
+#include "basis_cache_internal.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -11,7 +12,7 @@
 
 #define HC_EV_NM 1239.841984
 #define MAX_NODES 96
-#define SUBSTRATE_SLOTS 4 /* a fit's base point and its oxide / NA neighbours */
+#define SUBSTRATE_SLOTS 6 /* a fit's base point and its oxide / NA neighbours */
 
 /* The illumination cone for one NA: sin(theta) of each node and its weight
  * (quadrature weight times pupil weight, normalised; s and p get half each). */
@@ -26,7 +27,7 @@ typedef struct cone {
  * sheet stacking needs. Index (l * nodes + t) * 2 + pol. */
 typedef struct substrate_slot {
     int valid;
-    unsigned long used;
+    unsigned long used, filled; /* last use; when it was (re)filled */
     double oxide_nm, na;
     double complex *y, *eta0, *gap_cos, *gap_sin;
 } substrate_slot;
@@ -55,6 +56,12 @@ struct lam_model {
     unsigned long clock;
     lam_model_point defaults;
     double *rbar;            /* nwl x (max_layers + 1): cone-averaged R */
+    /* what rbar was computed for: a channel shift alone needs no new stacking */
+    int have_rbar;
+    const substrate_slot *rbar_slot;
+    unsigned long rbar_slot_used;
+    size_t rbar_layers;
+    double rbar_fermi, rbar_response[3];
 };
 
 /* ---- allocation ---- */
@@ -304,7 +311,8 @@ static lam_status ensure_basis(lam_model *m, double fermi, lam_error *err)
     lam_sheet_params p = m->sheet;
     p.fermi_ev = fermi;
     for (size_t l = 0; l < m->nwl; l++) {
-        lam_status st = lam_sheet_basis(&p, HC_EV_NM / m->wl[l], m->basis + 4 * l, err);
+        lam_status st =
+            lam__sheet_basis_cached(&p, m->wl[l], HC_EV_NM / m->wl[l], m->basis + 4 * l, err);
         if (st)
             return st;
     }
@@ -381,8 +389,14 @@ static double complex substrate_admittance(const lam_model *m, size_t l, double 
         double complex n = m->n_layer[j * m->nwl + l];
         double complex q = lam_tmm_q(n, kx);
         double d = j == m->oxide_layer ? oxide_nm : m->layer_nm[j];
-        double complex ph = k0 * q * d;
-        y = lam_tmm_through_film(y, lam_tmm_eta(n, q, pol), ccos(ph), csin(ph));
+        double complex ph = k0 * q * d, cph, sph;
+        if (cimag(ph) == 0) {
+            /* a lossless film below its critical angle: a real phase */
+            cph = cos(creal(ph)), sph = sin(creal(ph));
+        } else {
+            cph = ccos(ph), sph = csin(ph);
+        }
+        y = lam_tmm_through_film(y, lam_tmm_eta(n, q, pol), cph, sph);
     }
     return y;
 }
@@ -424,7 +438,7 @@ static substrate_slot *substrate_for(lam_model *m, double oxide_nm)
             lru = s;
     }
     fill_slot(m, lru, oxide_nm);
-    lru->used = ++m->clock;
+    lru->used = lru->filled = ++m->clock;
     return lru;
 }
 
@@ -436,7 +450,10 @@ static double reflectance(double complex eta0, double complex y)
     return creal(r * conj(r));
 }
 
-/* Cone-averaged R(l, N) for N = 0..layers into m->rbar. */
+/* Cone-averaged R(l, N) for N = 0..layers into m->rbar. The field pair
+ * (B, C) = (E, H) at the top of the stack is carried up sheet by sheet
+ * (a sheet adds y B to C; an ambient gap is a characteristic matrix), so
+ * each layer costs one division, for its reflectance. */
 static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
 {
     const cone *c = &m->cone_cache;
@@ -447,17 +464,24 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
         double complex ys = m->y_sheet[l];
         for (size_t t = 0; t < c->nodes; t++) {
             size_t k = l * c->nodes + t;
+            double complex cg = s->gap_cos[k], sg = s->gap_sin[k];
             /* at normal incidence s and p coincide: count s twice */
             int npol = c->sin_t[t] > 0 ? 2 : 1;
             double wt = c->w_t[t] / (double)npol;
             for (int pol = 0; pol < npol; pol++) {
-                double complex y = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
-                acc[0] += wt * reflectance(eta0, y);
+                double complex eta0 = s->eta0[2 * k + (size_t)pol];
+                double complex b = 1.0, cc = s->y[2 * k + (size_t)pol];
+                double complex isg_eta = I * sg / eta0, isg_eta0 = I * sg * eta0;
+                acc[0] += wt * reflectance(eta0, cc);
                 for (size_t N = 1; N <= layers; N++) {
-                    if (N > 1)
-                        y = lam_tmm_through_film(y, eta0, s->gap_cos[k], s->gap_sin[k]);
-                    y += ys;
-                    acc[N] += wt * reflectance(eta0, y);
+                    if (N > 1) {
+                        double complex nb = cg * b - isg_eta * cc;
+                        cc = cg * cc - isg_eta0 * b;
+                        b = nb;
+                    }
+                    cc += ys * b;
+                    double complex r = (eta0 * b - cc) / (eta0 * b + cc);
+                    acc[N] += wt * creal(r * conj(r));
                 }
             }
         }
@@ -488,6 +512,26 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
             }
         }
     }
+}
+
+/* Is rbar already that of this substrate slot, response and layer count? */
+static int rbar_current(const lam_model *m, const substrate_slot *s, const lam_model_point *p,
+                        size_t layers)
+{
+    return m->have_rbar && m->rbar_slot == s && m->rbar_slot_used == s->filled &&
+           m->rbar_layers >= layers && m->rbar_fermi == p->v[LAM_MP_FERMI] &&
+           !memcmp(m->rbar_response, &p->v[LAM_MP_CONTINUUM], sizeof m->rbar_response);
+}
+
+static void remember_rbar(lam_model *m, const substrate_slot *s, const lam_model_point *p,
+                          size_t layers)
+{
+    m->have_rbar = 1;
+    m->rbar_slot = s;
+    m->rbar_slot_used = s->filled;
+    m->rbar_layers = layers;
+    m->rbar_fermi = p->v[LAM_MP_FERMI];
+    memcpy(m->rbar_response, &p->v[LAM_MP_CONTINUUM], sizeof m->rbar_response);
 }
 
 static void integrate(const lam_model *m, size_t layers, lam_prediction *out)
@@ -522,10 +566,13 @@ lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t l
         (!m->n_film && (st = fill_sheet(m, p, err))))
         return st;
     const substrate_slot *s = substrate_for(m, oxide);
-    if (m->n_film)
-        stack_film(m, s, layers);
-    else
-        stack_sheets(m, s, layers);
+    if (!rbar_current(m, s, p, layers)) {
+        if (m->n_film)
+            stack_film(m, s, layers);
+        else
+            stack_sheets(m, s, layers);
+        remember_rbar(m, s, p, layers);
+    }
     memset(out, 0, sizeof *out);
     out->channels = m->channels;
     out->max_layers = layers;

@@ -1,11 +1,26 @@
 /*
  * lamina/analyze.h - the whole analysis of one micrograph: load in linear
- * light, substrate flat field and noise, contrast map, segmentation against
- * the model ladder, oxide fit, per-region posteriors, Fermi level and
- * usable rectangles. Reports are written by lamina/report.h.
+ * light, substrate flat field and noise, contrast map, segmentation, the
+ * joint estimate of what the image shares with its run (graphene response,
+ * NA, camera channels, contrast gains) and its oxide (lamina/estimate.h),
+ * per-region posteriors (lamina/infer.h), Fermi level, usable rectangles.
+ * Reports are written by lamina/report.h.
+ *
+ * Stages: the substrate and a first segmentation use the ladder at the
+ * prior's centre with a generous model floor (nothing graphene-like is
+ * rejected while the response is still unknown); the joint fit then gives
+ * the image's own ladder, the image is segmented again with it, the fit
+ * refined, and every region's posterior computed with the parameters'
+ * uncertainty.
+ *
+ * A run of images from one microscope shares its optics: give
+ * lam_analysis_options.shared_prior (a pooled posterior, see
+ * lamina/batch.h) and the image's fit starts from it instead of the wide
+ * default prior.
  *
  * Ownership: lam_analyze allocates a lam_analysis released with
- * lam_analysis_free. The setup is borrowed for the call only.
+ * lam_analysis_free. The setup and options are borrowed for the call only.
+ * Errors: the status of the failing stage, with the file named.
  */
 #ifndef LAMINA_ANALYZE_H
 #define LAMINA_ANALYZE_H
@@ -13,6 +28,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include "lamina/error.h"
+#include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/infer.h"
 #include "lamina/model.h"
@@ -20,25 +36,35 @@
 #include "lamina/setup.h"
 #include "lamina/substrate.h"
 
+/* A posterior over the shared parameters, to be used as the prior of later
+ * images (pooled over a run, or carried from image to image). */
+typedef struct lam_shared_prior {
+    int set;
+    double mean[LAM_NU_COUNT], sd[LAM_NU_COUNT]; /* sd 0: fixed */
+    double floor_rel;
+    size_t images, regions;     /* what it was estimated from */
+} lam_shared_prior;
+
 typedef struct lam_analysis_options {
     lam_load_options load;
     lam_substrate_options substrate;
     lam_segment_options segment;
     lam_infer_options infer;
+    lam_estimate_options estimate;
     size_t max_layers;          /* K (default 6) */
     double min_area_um2;        /* "small" below this when the pixel size is known (4) */
     double min_area_px;         /* ... otherwise (200) */
-    double oxide_half_range_nm; /* search nominal +- this (25) */
     double oxide_tolerance_nm;  /* pass/fail of the oxide audit (10) */
     int fit_oxide, fit_fermi;   /* both on by default */
     size_t threads;             /* for the pixel passes (default: all cores) */
+    const lam_shared_prior *shared_prior; /* NULL: the setup's priors */
 } lam_analysis_options;
 
 typedef struct lam_oxide_result {
     double nominal, estimate, sigma; /* estimate = nominal when not fitted */
     int fitted, pass;
     size_t regions_used;
-    char method[96];
+    char method[128];
 } lam_oxide_result;
 
 /* Cumulative seconds at the end of each stage (for --verbose and benchmarks). */
@@ -48,7 +74,7 @@ enum { LAM_T_LOAD, LAM_T_DISPLAY, LAM_T_SUBSTRATE, LAM_T_CONTRAST, LAM_T_MODEL, 
 typedef struct lam_analysis {
     double seconds[LAM_T_COUNT];
     char file[1024];
-    size_t width, height;
+    size_t width, height, channels;
     lam_transfer transfer;
     int bit_depth;
     double um_per_px;               /* 0 unknown */
@@ -57,19 +83,22 @@ typedef struct lam_analysis {
     lam_segmentation *seg;
     size_t count;
     lam_region_result *results;     /* count entries, region i has id i+1 */
+    lam_est_region *measured;       /* count entries: the regions' measurements */
     lam_oxide_result oxide;
-    lam_prediction ladder;          /* at the fitted oxide and nominal Fermi level */
-    size_t max_layers, thick_to;
+    lam_estimate *estimate;         /* the fit (owned); its image 0 is this one */
+    lam_prediction ladder;          /* observed-scale ladder at the estimate, N = 0..40 */
+    size_t max_layers;
     uint8_t *display;               /* the input as 8-bit sRGB, interleaved */
-    char conductivity[200];
+    char conductivity[256];
     double illumination_na, fermi_ev;
     const char *pupil, *camera;
     size_t defaulted_count;
     const char *defaulted[LAM_SETUP_MAX_DEFAULTED];
-    lam_infer_options infer;        /* as used (floors, K, small-area threshold) */
+    lam_infer_options infer;        /* as used (K, small-area threshold) */
     char content_hash[32];          /* of the input file, set by the caller ("" if unset) */
     char setup_hash[32];            /* of the setup and options, set by the caller */
-    double fermi_signed;            /* the ladder's Fermi level as given */
+    int prior_pooled;               /* the shared prior came from a pooled run */
+    size_t prior_images;
 } lam_analysis;
 
 lam_analysis_options lam_analysis_options_default(void);
@@ -78,13 +107,18 @@ lam_status lam_analyze(const char *path, const lam_setup *setup,
                        const lam_analysis_options *opt, lam_analysis **out, lam_error *err);
 void lam_analysis_free(lam_analysis *a);
 
-/* Is region i usable for the oxide fit (assigned, not saturated or
- * unmodelled, interior >= 100 px)? */
+/* Did region i inform the shared parameters and the oxide? */
 int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i);
 
-/* The oxide audit's profile: chi2_total(d) on a grid, summed over images
- * (joint) and per image (per_image[j * n + g], may be NULL), with the coarse
- * model the fits use and the usable regions of each analysis. */
+/* The posterior over the shared parameters of a fitted estimate, as a
+ * prior for later images. */
+void lam_shared_prior_from(const lam_estimate *e, lam_shared_prior *out);
+/* ... and applied to a new estimate. */
+void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e);
+
+/* The oxide audit's profile: -2 ln L(d) on a grid, summed over images
+ * (joint) and per image (per_image[j * n + g], may be NULL), each image's
+ * shared parameters held at its fit. */
 lam_status lam_oxide_joint_profile(const lam_analysis *const *analyses, size_t images,
                                    const lam_setup *setup, const double *grid, size_t n,
                                    double *joint, double *per_image, lam_error *err);

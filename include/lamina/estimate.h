@@ -1,0 +1,186 @@
+/*
+ * lamina/estimate.h - what the images of a run share (graphene's visible
+ * response, the illumination NA, each camera channel's wavelength shift and
+ * contrast gain) and what each image has of its own (the oxide thickness),
+ * estimated jointly from all regions, with the layer counts as latent
+ * integers.
+ *
+ * The physics model is a structured prior, not the truth: every quantity
+ * the contrast depends on and a lab does not know to better than a few per
+ * cent is a nuisance parameter with a prior (lamina/model.h lists them;
+ * the prior comes from the setup: tight for what the profile gives, wide
+ * for what it leaves to defaults). The observed contrast of region i is
+ *   m_i ~ Normal(g o C(N_i; theta, d_j), V_i + F(N_i))
+ * with g the per-channel contrast gains (stray light, tone-curve and
+ * camera-curve errors all scale contrast), C the model ladder, V_i the
+ * statistical variance of the region mean and F the model floor
+ * diag((floor_abs + floor_rel |C_c|)^2): what the fitted family still
+ * cannot reproduce. N_i is one of: bare substrate (0), 1..K layers, a
+ * thicker flake (K+1..40, one hypothesis spread evenly over its entries),
+ * or "unmodelled" (a broad density: residue, dust, another material); the
+ * prior over them is stated in lam_hypothesis_prior.
+ *
+ * The fit maximises the posterior of (theta, d_1..d_n) with every N_i
+ * marginalised (a mixture likelihood, by EM with Gauss-Newton M-steps);
+ * each image's oxide starts from the best of a grid over nominal +-
+ * search_half_nm (the likelihood is multimodal in the oxide); the floor is
+ * then estimated from the residuals of the confidently assigned regions
+ * (with a prior that keeps it near 3 % when few regions speak), and the
+ * fit repeated. The result carries the Laplace covariance of all free
+ * parameters, so every estimate has an uncertainty that includes the
+ * others' (an oxide sigma that includes the response and NA uncertainty).
+ *
+ * Ownership: lam_estimate_alloc / lam_estimate_free. Regions are copied.
+ * Not thread-safe; the fit runs on the calling thread.
+ */
+#ifndef LAMINA_ESTIMATE_H
+#define LAMINA_ESTIMATE_H
+
+#include <stddef.h>
+#include "lamina/error.h"
+#include "lamina/model.h"
+#include "lamina/setup.h"
+
+/* Shared nuisance parameters (indices into lam_estimate.shared). */
+enum {
+    LAM_NU_CONTINUUM = 0, /* graphene response family (lamina/conductivity.h) */
+    LAM_NU_RESONANCE,
+    LAM_NU_BACKGROUND,
+    LAM_NU_NA,            /* illumination NA */
+    LAM_NU_SHIFT,         /* per channel: wavelength shift, nm */
+    LAM_NU_GAIN = LAM_NU_SHIFT + LAM_MAX_CHANNELS, /* per channel: ln(contrast gain) */
+    LAM_NU_COUNT = LAM_NU_GAIN + LAM_MAX_CHANNELS
+};
+
+typedef struct lam_nuisance {
+    const char *name;     /* "resonance", "illumination_na", "shift_r" ... */
+    double value;         /* current / fitted */
+    double prior_mean, prior_sd; /* Gaussian prior; sd 0 = fixed at prior_mean */
+    double lo, hi;        /* hard physical bounds */
+    double sigma;         /* posterior sd after the fit (NAN before) */
+    int fitted;           /* free in the fit */
+    const char *source;   /* "setup", "setup (calibrated)", "default prior", "pooled" */
+} lam_nuisance;
+
+/* Hypotheses a region may be. */
+typedef enum lam_hypothesis {
+    LAM_HYP_SUBSTRATE = 0, /* followed by 1..K, then: */
+    LAM_HYP_THICK_OFFSET = 1, /* index K + 1 */
+    LAM_HYP_UNMODELLED_OFFSET = 2 /* index K + 2 */
+} lam_hypothesis;
+
+/* Prior masses, relative: each of 1..K layers 1, thick 1, substrate 0.1,
+ * unmodelled 0.1; the unmodelled density is uniform over a contrast box of
+ * side 2 (-1..1) per channel. */
+double lam_hypothesis_prior(size_t hyp, size_t max_layers);
+#define LAM_UNMODELLED_SIDE 2.0
+
+typedef struct lam_est_region {
+    double mean[LAM_MAX_CHANNELS]; /* interior mean contrast */
+    double var[LAM_MAX_CHANNELS];  /* its statistical variance */
+    int use;                       /* takes part in the fit */
+    int known_layers;              /* > 0: a label (calibration); 0 latent */
+} lam_est_region;
+
+typedef struct lam_est_image {
+    size_t count;
+    lam_est_region *regions;       /* owned copy */
+    lam_nuisance oxide;            /* this image's oxide thickness, nm */
+    double log_posterior;          /* this image's share at the optimum */
+    size_t regions_used, confident;
+    double grid_best;              /* the oxide grid's best score */
+    double alt_oxide[3], alt_score[3]; /* other grid maxima (NAN when none) */
+} lam_est_image;
+
+typedef struct lam_estimate_options {
+    size_t max_layers;             /* K (the ladder the fit uses), default 6 */
+    double search_half_nm;         /* oxide grid half width (default 60) */
+    double search_step_nm;         /* its step (2) */
+    double floor_abs, floor_rel;   /* starting model floor (0.003, 0.03) */
+    int estimate_floor;            /* re-estimate floor_rel from residuals (1) */
+    size_t max_iterations;         /* EM / Gauss-Newton iterations (30) */
+} lam_estimate_options;
+
+typedef struct lam_estimate {
+    size_t channels, max_layers;
+    lam_nuisance shared[LAM_NU_COUNT];
+    size_t images, cap;
+    lam_est_image *image;
+    double floor_abs, floor_rel, floor_rel_prior;
+    double fermi_ev;               /* Fermi level of the ladder (the setup's) */
+    int fitted;
+    size_t iterations;
+    /* Laplace covariance of the free shared parameters (in the order of
+     * 'free_index') and their cross terms with each image's oxide */
+    size_t nfree;
+    int free_index[LAM_NU_COUNT];
+    double cov[LAM_NU_COUNT][LAM_NU_COUNT];
+    double *cross;                 /* images x nfree: cov(shared_k, oxide_j) */
+    lam_estimate_options opt;
+} lam_estimate;
+
+lam_estimate_options lam_estimate_options_default(void);
+
+/* Priors from a setup: what it gives is tight (its "uncertainty" block, or
+ * the spread of a value set by hand), what it leaves to defaults is wide
+ * (docs/method.md lists the numbers). */
+lam_status lam_estimate_alloc(const lam_setup *setup, size_t channels,
+                              const lam_estimate_options *opt, lam_estimate **out,
+                              lam_error *err);
+void lam_estimate_free(lam_estimate *e);
+
+/* Add an image's regions with its nominal oxide and the prior sd of the
+ * true oxide about it (<= 0: the default, 8 % of nominal, at least 8 nm).
+ * Returns the image's index through 'index' (may be NULL). */
+lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions, size_t count,
+                                  double nominal_oxide_nm, double oxide_sd_nm, size_t *index,
+                                  lam_error *err);
+
+/* Fix a shared parameter (sd 0) or set its prior, e.g. to carry a pooled
+ * estimate to a later image. */
+void lam_estimate_set_prior(lam_estimate *e, int param, double mean, double sd,
+                            const char *source);
+
+/* The fit. 'fit_model' is a model of at least max_layers layers (the coarse
+ * one); 'thick_model' one of LAM_MODEL_MAX_LAYERS layers (may be the same
+ * object when it has 40 layers). Both must come from the setup the priors
+ * came from. */
+lam_status lam_estimate_fit(lam_estimate *e, lam_model *fit_model, lam_model *thick_model,
+                            lam_error *err);
+
+/* The model point of image j at the current parameter values, and the
+ * contrast gains (linear). */
+lam_model_point lam_estimate_point(const lam_estimate *e, size_t image);
+void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS]);
+
+/* The ladder of image j as the analysis sees it: gains applied, N = 0..40. */
+lam_status lam_estimate_ladder(const lam_estimate *e, size_t image, lam_model *thick_model,
+                               lam_prediction *out, lam_error *err);
+
+/* Fit again from the current values (after regions changed, e.g. a second
+ * segmentation with the fitted ladder): no oxide grid, the oxides stay in
+ * their basins. */
+lam_status lam_estimate_refit(lam_estimate *e, lam_model *model, lam_error *err);
+
+/* Replace image j's regions (copied). */
+lam_status lam_estimate_set_regions(lam_estimate *e, size_t j, const lam_est_region *regions,
+                                    size_t count, lam_error *err);
+
+/* What the region posteriors of image j need: the observed-scale ladder
+ * N = 0..40 at the estimate, its gradients for N = 0..K with respect to the
+ * free parameters (the free shared ones in e->free_index order, then the
+ * image's oxide), and their joint covariance (Laplace). */
+typedef struct lam_est_view {
+    size_t nfree;                  /* free shared + 1 (the oxide) */
+    lam_prediction ladder;
+    lam_ladder_grad grad[LAM_NU_COUNT + 1];
+    double cov[LAM_NU_COUNT + 1][LAM_NU_COUNT + 1];
+} lam_est_view;
+
+lam_status lam_estimate_view(const lam_estimate *e, size_t j, lam_model *model,
+                             lam_est_view *view, lam_error *err);
+
+/* Model floor variance of a predicted contrast value. */
+double lam_estimate_floor_var(const lam_estimate *e, double contrast);
+
+#endif

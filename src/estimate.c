@@ -1,0 +1,298 @@
+/* estimate.c - the nuisance parameters and their priors, images, and the
+ * pieces of the joint likelihood shared by the fit (estimate_fit.c) and the
+ * region posteriors (infer.c). */
+#include "estimate_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Prior centre and spread of graphene's visible response: centred on the
+ * default (Weber et al. 2010), wide enough that the universal sheet
+ * (0, 0, 0) and the CVD films of Song 2018 (-0.05, 6.3, 0) and El-Sayed
+ * 2021 (0.13, 4.7, 12) lie within about two standard deviations
+ * (tests/test_conductivity.c fits them). */
+#define PRIOR_SD_CONTINUUM 0.10
+#define PRIOR_SD_RESONANCE 2.6
+#define PRIOR_SD_BACKGROUND 18.0
+/* Spreads of values a profile gives without an "uncertainty" block: an
+ * aperture stop set by hand, a camera curve from a data sheet. */
+#define GIVEN_SD_NA 0.05
+#define GIVEN_SD_SHIFT_NM 4.0
+#define GIVEN_SD_LOG_GAIN 0.05
+/* ... and of what it leaves to defaults. */
+#define DEFAULT_NA 0.55
+#define DEFAULT_SD_NA 0.2
+#define DEFAULT_SD_SHIFT_NM 15.0
+#define DEFAULT_SD_LOG_GAIN 0.15
+
+lam_estimate_options lam_estimate_options_default(void)
+{
+    lam_estimate_options o = {6, 60.0, 2.0, 0.003, 0.03, 1, 30};
+    return o;
+}
+
+double lam_hypothesis_prior(size_t hyp, size_t K)
+{
+    if (hyp == LAM_HYP_SUBSTRATE || hyp == K + LAM_HYP_UNMODELLED_OFFSET)
+        return 0.1;
+    return 1.0; /* each of 1..K, and "thick" as one hypothesis */
+}
+
+static void set(lam_nuisance *n, const char *name, double mean, double sd, double lo,
+                double hi, const char *source)
+{
+    n->name = name;
+    n->value = n->prior_mean = mean;
+    n->prior_sd = sd;
+    n->lo = lo;
+    n->hi = hi;
+    n->sigma = NAN;
+    n->fitted = sd > 0;
+    n->source = source;
+}
+
+static double given_sd(double setup_sigma, double fallback)
+{
+    return isfinite(setup_sigma) ? setup_sigma : fallback;
+}
+
+static void response_priors(lam_estimate *e, const lam_setup *s)
+{
+    const lam_sheet_params *p = &s->sheet;
+    int given = !lam_setup_is_default(s, "conductivity.response");
+    const char *src = given ? (isfinite(s->sigma.resonance) ? "setup (calibrated)" : "setup")
+                            : "default prior";
+    if (p->model != LAM_SHEET_KUBO || !p->exciton || s->flake_as_film) {
+        /* a response without the family: nothing to fit */
+        set(&e->shared[LAM_NU_CONTINUUM], "continuum", p->continuum, 0, -1, 2, "setup");
+        set(&e->shared[LAM_NU_RESONANCE], "resonance", p->resonance, 0, 0, 30, "setup");
+        set(&e->shared[LAM_NU_BACKGROUND], "background", p->background, 0, 0, 200, "setup");
+        return;
+    }
+    double f = given ? 0.25 : 1.0; /* a response set by hand: a quarter of the spread */
+    set(&e->shared[LAM_NU_CONTINUUM], "continuum", p->continuum,
+        given_sd(given ? s->sigma.continuum : NAN, f * PRIOR_SD_CONTINUUM), -0.5, 1.0, src);
+    set(&e->shared[LAM_NU_RESONANCE], "resonance", p->resonance,
+        given_sd(given ? s->sigma.resonance : NAN, f * PRIOR_SD_RESONANCE), 0, 15, src);
+    set(&e->shared[LAM_NU_BACKGROUND], "background", p->background,
+        given_sd(given ? s->sigma.background : NAN, f * PRIOR_SD_BACKGROUND), 0, 90, src);
+}
+
+static void optics_priors(lam_estimate *e, const lam_setup *s)
+{
+    static const char *const shift_names[3] = {"shift_1", "shift_2", "shift_3"};
+    static const char *const gain_names[3] = {"log_gain_1", "log_gain_2", "log_gain_3"};
+    double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
+    int na_given = !lam_setup_is_default(s, "objective.illumination_na");
+    if (na_given)
+        set(&e->shared[LAM_NU_NA], "illumination_na", s->illumination_na,
+            given_sd(s->sigma.na, GIVEN_SD_NA), 0.0, 0.95 * n_amb,
+            isfinite(s->sigma.na) ? "setup (calibrated)" : "setup");
+    else
+        set(&e->shared[LAM_NU_NA], "illumination_na", DEFAULT_NA, DEFAULT_SD_NA, 0.02,
+            0.95 * n_amb, "default prior");
+    int cam_given = !lam_setup_is_default(s, "camera");
+    const char *src = cam_given ? (isfinite(s->sigma.shift_nm) ? "setup (calibrated)" : "setup")
+                                : "default prior";
+    double sd_shift = cam_given ? given_sd(s->sigma.shift_nm, GIVEN_SD_SHIFT_NM)
+                                : DEFAULT_SD_SHIFT_NM;
+    double sd_gain = cam_given ? GIVEN_SD_LOG_GAIN : DEFAULT_SD_LOG_GAIN;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
+        int on = c < e->channels;
+        set(&e->shared[LAM_NU_SHIFT + c], shift_names[c], 0, on ? sd_shift : 0, -60, 60, src);
+        set(&e->shared[LAM_NU_GAIN + c], gain_names[c], 0, on ? sd_gain : 0, -1.5, 0.7, src);
+    }
+}
+
+lam_status lam_estimate_alloc(const lam_setup *setup, size_t channels,
+                              const lam_estimate_options *opt, lam_estimate **out,
+                              lam_error *err)
+{
+    if (channels < 1 || channels > LAM_MAX_CHANNELS)
+        return lam_error_set(err, LAM_EINVAL, "%zu camera channels (1 to %d)", channels,
+                             LAM_MAX_CHANNELS);
+    lam_estimate *e = calloc(1, sizeof *e);
+    if (!e)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate an estimate");
+    e->opt = opt ? *opt : lam_estimate_options_default();
+    if (e->opt.max_layers < 1 || e->opt.max_layers > 20)
+        e->opt.max_layers = 6;
+    e->channels = channels;
+    e->max_layers = e->opt.max_layers;
+    e->floor_abs = e->opt.floor_abs;
+    e->floor_rel = e->floor_rel_prior = e->opt.floor_rel;
+    e->fermi_ev = setup->sheet.fermi_ev;
+    response_priors(e, setup);
+    optics_priors(e, setup);
+    *out = e;
+    return LAM_OK;
+}
+
+void lam_estimate_free(lam_estimate *e)
+{
+    if (!e)
+        return;
+    for (size_t j = 0; j < e->images; j++)
+        free(e->image[j].regions);
+    free(e->image);
+    free(e->cross);
+    free(e);
+}
+
+lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions, size_t count,
+                                  double nominal, double sd, size_t *index, lam_error *err)
+{
+    if (e->images == e->cap) {
+        size_t cap = e->cap ? 2 * e->cap : 4;
+        lam_est_image *im = realloc(e->image, cap * sizeof *im);
+        if (!im)
+            return lam_error_set(err, LAM_ENOMEM, "cannot grow the image list");
+        e->image = im;
+        e->cap = cap;
+    }
+    lam_est_image *im = &e->image[e->images];
+    memset(im, 0, sizeof *im);
+    im->regions = malloc((count ? count : 1) * sizeof *im->regions);
+    if (!im->regions)
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy %zu regions", count);
+    if (count)
+        memcpy(im->regions, regions, count * sizeof *regions);
+    im->count = count;
+    if (!(sd > 0))
+        sd = fmax(8.0, 0.08 * nominal);
+    set(&im->oxide, "oxide_nm", nominal, sd, fmax(0, nominal - 250), nominal + 250,
+        "nominal prior");
+    for (int k = 0; k < 3; k++)
+        im->alt_oxide[k] = im->alt_score[k] = NAN;
+    if (index)
+        *index = e->images;
+    e->images++;
+    e->fitted = 0;
+    return LAM_OK;
+}
+
+lam_status lam_estimate_set_regions(lam_estimate *e, size_t j, const lam_est_region *regions,
+                                    size_t count, lam_error *err)
+{
+    lam_est_image *im = &e->image[j];
+    lam_est_region *r = malloc((count ? count : 1) * sizeof *r);
+    if (!r)
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy %zu regions", count);
+    if (count)
+        memcpy(r, regions, count * sizeof *r);
+    free(im->regions);
+    im->regions = r;
+    im->count = count;
+    return LAM_OK;
+}
+
+void lam_estimate_set_prior(lam_estimate *e, int k, double mean, double sd, const char *source)
+{
+    lam_nuisance *n = &e->shared[k];
+    if (k >= LAM_NU_SHIFT && k < LAM_NU_COUNT && (size_t)((k - LAM_NU_SHIFT) % LAM_MAX_CHANNELS) >= e->channels)
+        return; /* no such channel */
+    n->prior_mean = n->value = fmin(n->hi, fmax(n->lo, mean));
+    n->prior_sd = sd > 0 ? sd : 0;
+    n->fitted = sd > 0;
+    n->source = source;
+}
+
+lam_model_point lam_estimate_point(const lam_estimate *e, size_t j)
+{
+    lam_model_point p;
+    memset(&p, 0, sizeof p);
+    p.v[LAM_MP_OXIDE] = e->image[j].oxide.value;
+    p.v[LAM_MP_NA] = e->shared[LAM_NU_NA].value;
+    p.v[LAM_MP_FERMI] = e->fermi_ev;
+    p.v[LAM_MP_CONTINUUM] = e->shared[LAM_NU_CONTINUUM].value;
+    p.v[LAM_MP_RESONANCE] = e->shared[LAM_NU_RESONANCE].value;
+    p.v[LAM_MP_BACKGROUND] = e->shared[LAM_NU_BACKGROUND].value;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        p.v[LAM_MP_SHIFT + c] = e->shared[LAM_NU_SHIFT + c].value;
+    return p;
+}
+
+void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS])
+{
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        gain[c] = exp(e->shared[LAM_NU_GAIN + c].value);
+}
+
+double lam_estimate_floor_var(const lam_estimate *e, double contrast)
+{
+    double f = e->floor_abs + e->floor_rel * fabs(contrast);
+    return f * f;
+}
+
+lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick,
+                               lam_prediction *out, lam_error *err)
+{
+    lam_model_point p = lam_estimate_point(e, j);
+    lam_status st = lam_model_eval_point(thick, &p, 0, out, err);
+    if (st)
+        return st;
+    double g[LAM_MAX_CHANNELS];
+    lam_estimate_gains(e, g);
+    for (size_t N = 0; N <= out->max_layers; N++)
+        for (size_t c = 0; c < out->channels; c++)
+            out->contrast[N][c] *= g[c];
+    return LAM_OK;
+}
+
+/* ---- the likelihood of one region, shared with infer.c ---- */
+
+double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc)
+{
+    double s = 0;
+    for (size_t c = 0; c < nc; c++) {
+        double d = m[c] - mu[c];
+        s += d * d / var[c] + log(2 * M_PI * var[c]);
+    }
+    return -0.5 * s;
+}
+
+double lam__logsumexp(const double *x, size_t n)
+{
+    double top = -INFINITY;
+    for (size_t i = 0; i < n; i++)
+        top = fmax(top, x[i]);
+    if (!isfinite(top))
+        return top;
+    double s = 0;
+    for (size_t i = 0; i < n; i++)
+        s += exp(x[i] - top);
+    return top + log(s);
+}
+
+/* log( prior x likelihood ) of every hypothesis of a region: index 0
+ * substrate, 1..K layers, K+1 thick (entries K+1..top marginalised), K+2
+ * unmodelled. 'ladder' holds observed-scale contrasts (gains applied). */
+void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
+                          const lam_prediction *ladder, double *lt)
+{
+    size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
+    double var[LAM_MAX_CHANNELS], thick[LAM_MODEL_MAX_LAYERS + 1];
+    for (size_t h = 0; h <= K && h <= top; h++) {
+        for (size_t c = 0; c < nc; c++)
+            var[c] = r->var[c] + lam_estimate_floor_var(e, ladder->contrast[h][c]);
+        lt[h] = log(lam_hypothesis_prior(h, K)) +
+                lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
+    }
+    size_t nt = 0;
+    for (size_t N = K + 1; N <= top; N++) {
+        for (size_t c = 0; c < nc; c++)
+            var[c] = r->var[c] + lam_estimate_floor_var(e, ladder->contrast[N][c]);
+        thick[nt++] = lam__gauss_logpdf(r->mean, ladder->contrast[N], var, nc);
+    }
+    lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
+                   : -INFINITY;
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) - (double)nc * log(LAM_UNMODELLED_SIDE);
+    if (r->known_layers > 0) {
+        /* a label: only its hypothesis counts */
+        size_t k = (size_t)r->known_layers <= K ? (size_t)r->known_layers : K + 1;
+        for (size_t h = 0; h <= K + 2; h++)
+            if (h != k)
+                lt[h] = -INFINITY;
+    }
+}

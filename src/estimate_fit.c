@@ -1,0 +1,707 @@
+/* estimate_fit.c - the joint fit: oxide grid per image, EM with damped
+ * Gauss-Newton M-steps over the shared parameters and every oxide (the
+ * oxides eliminated by Schur complement, so the cost grows linearly with the
+ * number of images), floor re-estimation, Laplace covariance. */
+#include "estimate_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define GRID_LAYERS 12      /* ladder depth for the oxide grid (thick up to 12) */
+#define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
+#define MAX_TRIES 8         /* damping increases per iteration */
+#define ALT_MARGIN 10.0     /* grid maxima this close to the best are refitted */
+#define MAX_MULTISTART_IMAGES 4
+
+/* Per-image work of one iteration. */
+typedef struct img_work {
+    lam_prediction ladder;              /* observed scale (gains applied), N = 0..top */
+    lam_ladder_grad grad[LAM_NU_COUNT + 1]; /* free shared..., oxide last; N = 0..K */
+    double *resp;                       /* count x (K + 3) */
+} img_work;
+
+int lam__model_param_of(int k)
+{
+    if (k == LAM_NU_CONTINUUM)
+        return LAM_MP_CONTINUUM;
+    if (k == LAM_NU_RESONANCE)
+        return LAM_MP_RESONANCE;
+    if (k == LAM_NU_BACKGROUND)
+        return LAM_MP_BACKGROUND;
+    if (k == LAM_NU_NA)
+        return LAM_MP_NA;
+    if (k >= LAM_NU_SHIFT && k < LAM_NU_SHIFT + LAM_MAX_CHANNELS)
+        return LAM_MP_SHIFT + (k - LAM_NU_SHIFT);
+    return -1;
+}
+
+static void collect_free(lam_estimate *e)
+{
+    e->nfree = 0;
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        if (e->shared[k].fitted)
+            e->free_index[e->nfree++] = k;
+}
+
+static void apply_gains(const lam_estimate *e, lam_prediction *p)
+{
+    double g[LAM_MAX_CHANNELS];
+    lam_estimate_gains(e, g);
+    for (size_t N = 0; N <= p->max_layers; N++)
+        for (size_t c = 0; c < p->channels; c++)
+            p->contrast[N][c] *= g[c];
+}
+
+lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model,
+                               const lam_prediction *ladder, lam_ladder_grad *grad,
+                               lam_error *err)
+{
+    size_t K = e->max_layers, nc = e->channels, n = e->nfree;
+    int which[LAM_NU_COUNT + 1], slot[LAM_NU_COUNT + 1];
+    size_t nm = 0;
+    for (size_t k = 0; k < n; k++) {
+        int mp = lam__model_param_of(e->free_index[k]);
+        if (mp >= 0) {
+            which[nm] = mp;
+            slot[nm++] = (int)k;
+        }
+    }
+    which[nm] = LAM_MP_OXIDE;
+    slot[nm++] = (int)n;
+    lam_ladder_grad *tmp = malloc(nm * sizeof *tmp);
+    if (!tmp)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate gradients");
+    lam_model_point p = lam_estimate_point(e, j);
+    lam_status st = lam_model_gradient(model, &p, K, which, nm, tmp, err);
+    double g[LAM_MAX_CHANNELS];
+    lam_estimate_gains(e, g);
+    for (size_t k = 0; k <= n && !st; k++)
+        memset(grad[k], 0, sizeof grad[k]);
+    for (size_t q = 0; q < nm && !st; q++)
+        for (size_t N = 0; N <= K; N++)
+            for (size_t c = 0; c < nc; c++)
+                grad[slot[q]][N][c] = g[c] * tmp[q][N][c];
+    /* gains: d(g C)/d ln g = g C = the observed contrast itself */
+    for (size_t k = 0; k < n && !st; k++) {
+        int s = e->free_index[k];
+        if (s >= LAM_NU_GAIN)
+            for (size_t N = 0; N <= K; N++)
+                grad[k][N][s - LAM_NU_GAIN] = g[s - LAM_NU_GAIN] * ladder->contrast[N][s - LAM_NU_GAIN];
+    }
+    free(tmp);
+    return st;
+}
+
+/* ---- the objective ---- */
+
+static double prior_term(const lam_nuisance *n)
+{
+    if (!n->fitted)
+        return 0;
+    double z = (n->value - n->prior_mean) / n->prior_sd;
+    return -0.5 * z * z;
+}
+
+static double shared_logprior(const lam_estimate *e)
+{
+    double s = 0;
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        s += prior_term(&e->shared[k]);
+    return s;
+}
+
+/* Ladder of image j at the current point, gains applied, N = 0..layers. */
+static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
+                               lam_prediction *out, lam_error *err)
+{
+    lam_model_point p = lam_estimate_point(e, j);
+    lam_status st = lam_model_eval_point(model, &p, layers, out, err);
+    if (!st)
+        apply_gains(e, out);
+    return st;
+}
+
+/* log posterior share of image j (its regions and its oxide prior); fills
+ * responsibilities when resp is given. */
+static double image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                            double *resp)
+{
+    const lam_est_image *im = &e->image[j];
+    size_t H = e->max_layers + 3;
+    double lt[LAM_MODEL_MAX_LAYERS + 3], total = prior_term(&im->oxide);
+    for (size_t i = 0; i < im->count; i++) {
+        const lam_est_region *r = &im->regions[i];
+        if (!r->use)
+            continue;
+        lam__region_logterms(e, r, ladder, lt);
+        double z = lam__logsumexp(lt, H);
+        total += z;
+        if (resp)
+            for (size_t h = 0; h < H; h++)
+                resp[i * H + h] = exp(lt[h] - z);
+    }
+    return total;
+}
+
+static lam_status objective(lam_estimate *e, lam_model *model, img_work *w, double *out,
+                            lam_error *err)
+{
+    double total = shared_logprior(e);
+    for (size_t j = 0; j < e->images; j++) {
+        lam_status st = image_ladder(e, j, model, FIT_LAYERS, &w[j].ladder, err);
+        if (st)
+            return st;
+        double v = image_logpost(e, j, &w[j].ladder, w[j].resp);
+        e->image[j].log_posterior = v;
+        total += v;
+    }
+    *out = total;
+    return LAM_OK;
+}
+
+/* ---- normal equations (Gauss-Newton on the expected complete-data
+ * log-likelihood, responsibilities fixed) ---- */
+
+typedef struct normal_eq {
+    size_t n;                   /* free shared */
+    lam__mat a_ss;
+    double b_s[LAM__MAT_MAX];
+    double *a_sd;               /* images x n */
+    double *a_dd, *b_d;         /* images */
+} normal_eq;
+
+static void add_region(const lam_estimate *e, const lam_est_region *r, const double *resp,
+                       const img_work *w, normal_eq *q, size_t j)
+{
+    size_t n = q->n, K = e->max_layers, nc = e->channels;
+    for (size_t h = 1; h <= K; h++) {
+        double rh = resp[h];
+        if (rh < 1e-6)
+            continue;
+        for (size_t c = 0; c < nc; c++) {
+            double pred = w->ladder.contrast[h][c];
+            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, pred)), res = r->mean[c] - pred;
+            double jd = w->grad[n][h][c];
+            for (size_t a = 0; a < n; a++) {
+                double ja = w->grad[a][h][c];
+                q->b_s[a] += wt * ja * res;
+                for (size_t b = 0; b <= a; b++)
+                    q->a_ss[a][b] += wt * ja * w->grad[b][h][c];
+                q->a_sd[j * n + a] += wt * ja * jd;
+            }
+            q->a_dd[j] += wt * jd * jd;
+            q->b_d[j] += wt * jd * res;
+        }
+    }
+}
+
+static void build_normal(const lam_estimate *e, const img_work *w, normal_eq *q)
+{
+    size_t n = q->n, H = e->max_layers + 3;
+    memset(q->a_ss, 0, sizeof q->a_ss);
+    memset(q->b_s, 0, sizeof q->b_s);
+    memset(q->a_sd, 0, e->images * (n ? n : 1) * sizeof *q->a_sd);
+    for (size_t j = 0; j < e->images; j++) {
+        const lam_est_image *im = &e->image[j];
+        q->a_dd[j] = q->b_d[j] = 0;
+        for (size_t i = 0; i < im->count; i++)
+            if (im->regions[i].use)
+                add_region(e, &im->regions[i], w[j].resp + i * H, &w[j], q, j);
+        if (im->oxide.fitted) {
+            double sd = im->oxide.prior_sd;
+            q->a_dd[j] += 1 / (sd * sd);
+            q->b_d[j] += (im->oxide.prior_mean - im->oxide.value) / (sd * sd);
+        } else {
+            q->a_dd[j] = 1; /* fixed: no step */
+            q->b_d[j] = 0;
+            for (size_t a = 0; a < n; a++)
+                q->a_sd[j * n + a] = 0;
+        }
+    }
+    for (size_t a = 0; a < n; a++) {
+        const lam_nuisance *p = &e->shared[e->free_index[a]];
+        q->a_ss[a][a] += 1 / (p->prior_sd * p->prior_sd);
+        q->b_s[a] += (p->prior_mean - p->value) / (p->prior_sd * p->prior_sd);
+        for (size_t b = 0; b < a; b++)
+            q->a_ss[b][a] = q->a_ss[a][b];
+    }
+}
+
+/* Solve the damped system by eliminating the oxides (Schur complement).
+ * Damping multiplies the diagonal by (1 + lambda). */
+static void solve_damped(const lam_estimate *e, const normal_eq *q, double lambda,
+                         double *ds, double *dd)
+{
+    size_t n = q->n;
+    lam__mat s;
+    double rhs[LAM__MAT_MAX];
+    memcpy(s, q->a_ss, sizeof s);
+    memcpy(rhs, q->b_s, sizeof rhs);
+    for (size_t a = 0; a < n; a++)
+        s[a][a] *= 1 + lambda;
+    for (size_t j = 0; j < e->images; j++) {
+        double ajj = q->a_dd[j] * (1 + lambda);
+        const double *asd = q->a_sd + j * n;
+        for (size_t a = 0; a < n; a++) {
+            rhs[a] -= asd[a] * q->b_d[j] / ajj;
+            for (size_t b = 0; b < n; b++)
+                s[a][b] -= asd[a] * asd[b] / ajj;
+        }
+    }
+    lam__mat l;
+    if (n) {
+        lam__cholesky_ridged(s, n, l);
+        lam__cholesky_solve(l, n, rhs);
+    }
+    for (size_t a = 0; a < n; a++)
+        ds[a] = rhs[a];
+    for (size_t j = 0; j < e->images; j++) {
+        double ajj = q->a_dd[j] * (1 + lambda), t = q->b_d[j];
+        for (size_t a = 0; a < n; a++)
+            t -= q->a_sd[j * n + a] * ds[a];
+        dd[j] = t / ajj;
+    }
+}
+
+/* ---- parameter vector handling ---- */
+
+typedef struct saved_point {
+    double shared[LAM_NU_COUNT];
+    double *oxide;
+} saved_point;
+
+static void save_point(const lam_estimate *e, saved_point *s)
+{
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        s->shared[k] = e->shared[k].value;
+    for (size_t j = 0; j < e->images; j++)
+        s->oxide[j] = e->image[j].oxide.value;
+}
+
+static void restore_point(lam_estimate *e, const saved_point *s)
+{
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        e->shared[k].value = s->shared[k];
+    for (size_t j = 0; j < e->images; j++)
+        e->image[j].oxide.value = s->oxide[j];
+}
+
+static double clamp(double v, const lam_nuisance *n)
+{
+    return v < n->lo ? n->lo : (v > n->hi ? n->hi : v);
+}
+
+/* Move to base + step; returns the largest step in prior standard deviations. */
+static double take_step(lam_estimate *e, const saved_point *base, const double *ds,
+                        const double *dd)
+{
+    double big = 0;
+    for (size_t a = 0; a < e->nfree; a++) {
+        lam_nuisance *p = &e->shared[e->free_index[a]];
+        p->value = clamp(base->shared[e->free_index[a]] + ds[a], p);
+        big = fmax(big, fabs(ds[a]) / p->prior_sd);
+    }
+    for (size_t j = 0; j < e->images; j++) {
+        lam_nuisance *o = &e->image[j].oxide;
+        if (!o->fitted)
+            continue;
+        /* an oxide step beyond 15 nm would jump between basins: the grid chose it */
+        double d = fmax(-15, fmin(15, dd[j]));
+        o->value = clamp(base->oxide[j] + d, o);
+        big = fmax(big, fabs(dd[j]) / o->prior_sd);
+    }
+    return big;
+}
+
+/* ---- the EM / Gauss-Newton loop ---- */
+
+typedef struct fit_ctx {
+    lam_estimate *e;
+    lam_model *model;
+    img_work *w;
+    normal_eq q;
+    saved_point base;
+    double *ds, *dd;
+} fit_ctx;
+
+static lam_status gradients(fit_ctx *f, lam_error *err)
+{
+    for (size_t j = 0; j < f->e->images; j++) {
+        lam_status st = lam__image_gradient(f->e, j, f->model, &f->w[j].ladder, f->w[j].grad, err);
+        if (st)
+            return st;
+    }
+    return LAM_OK;
+}
+
+/* One damped step that raises the posterior, or none (returns 0 when no
+ * step helped: converged). */
+static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int *moved,
+                                lam_error *err)
+{
+    lam_estimate *e = f->e;
+    lam_status st = gradients(f, err);
+    if (st)
+        return st;
+    build_normal(e, f->w, &f->q);
+    save_point(e, &f->base);
+    *moved = 0;
+    for (int t = 0; t < MAX_TRIES; t++) {
+        solve_damped(e, &f->q, *lambda, f->ds, f->dd);
+        double big = take_step(e, &f->base, f->ds, f->dd), trial;
+        if ((st = objective(e, f->model, f->w, &trial, err)))
+            return st;
+        if (trial >= *logpost - 1e-9) {
+            *moved = trial - *logpost > 1e-4 || big > 1e-3;
+            *logpost = trial;
+            *lambda = fmax(*lambda / 3, 1e-6);
+            return LAM_OK;
+        }
+        *lambda *= 4;
+    }
+    restore_point(e, &f->base);
+    return objective(e, f->model, f->w, logpost, err);
+}
+
+static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
+{
+    double lambda = 1e-3;
+    lam_status st = objective(f->e, f->model, f->w, logpost, err);
+    for (size_t it = 0; it < max_it && !st; it++) {
+        int moved;
+        st = one_iteration(f, logpost, &lambda, &moved, err);
+        f->e->iterations++;
+        if (!moved)
+            break;
+    }
+    return st;
+}
+
+/* ---- the oxide grid of one image (shared parameters held) ---- */
+
+/* Local maxima of the grid scores, best first: the best becomes the
+ * oxide, the next three the alternatives a multistart tries. */
+static void pick_maxima(lam_est_image *im, const double *score, size_t n, double lo,
+                        double step)
+{
+    double best = -INFINITY, best_d = im->oxide.prior_mean;
+    for (int k = 0; k < 3; k++)
+        im->alt_oxide[k] = im->alt_score[k] = NAN;
+    for (size_t g = 0; g < n; g++) {
+        int peak = (g == 0 || score[g] >= score[g - 1]) && (g + 1 == n || score[g] > score[g + 1]);
+        if (!peak)
+            continue;
+        double d = lo + step * (double)g, v = score[g];
+        if (v > best) {
+            double t = best, td = best_d;
+            best = v, best_d = d;
+            v = t, d = td;
+            if (!isfinite(v))
+                continue;
+        }
+        for (int k = 0; k < 3; k++)
+            if (!(v <= im->alt_score[k])) {
+                for (int m = 2; m > k; m--)
+                    im->alt_oxide[m] = im->alt_oxide[m - 1], im->alt_score[m] = im->alt_score[m - 1];
+                im->alt_oxide[k] = d;
+                im->alt_score[k] = v;
+                break;
+            }
+    }
+    im->oxide.value = best_d;
+    im->grid_best = best;
+}
+
+static lam_status oxide_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
+                             lam_error *err)
+{
+    lam_est_image *im = &e->image[j];
+    if (!im->oxide.fitted)
+        return LAM_OK;
+    double half = e->opt.search_half_nm, step = e->opt.search_step_nm;
+    double lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
+    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
+    size_t n = (size_t)((hi - lo) / step) + 1;
+    double *score = malloc(n * sizeof *score);
+    if (!score)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
+    lam_status st = LAM_OK;
+    for (size_t g = 0; g < n && !st; g++) {
+        im->oxide.value = lo + step * (double)g;
+        if (!(st = image_ladder(e, j, model, GRID_LAYERS, P, err)))
+            score[g] = image_logpost(e, j, P, NULL);
+    }
+    if (!st)
+        pick_maxima(im, score, n, lo, step);
+    free(score);
+    return st;
+}
+
+static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
+{
+    lam_prediction *P = malloc(sizeof *P);
+    if (!P)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
+    lam_status st = LAM_OK;
+    for (size_t j = 0; j < e->images && !st; j++)
+        st = oxide_grid(e, j, model, P, err);
+    free(P);
+    return st;
+}
+
+/* ---- the floor from the residuals of confidently assigned regions ---- */
+
+#define FLOOR_PRIOR_SD_LOG 0.5
+#define FLOOR_MIN 0.005
+#define FLOOR_MAX 0.25
+
+static double floor_loglik(const lam_estimate *e, const img_work *w, double f)
+{
+    size_t K = e->max_layers, H = K + 3, nc = e->channels;
+    double s = 0;
+    for (size_t j = 0; j < e->images; j++) {
+        const lam_est_image *im = &e->image[j];
+        for (size_t i = 0; i < im->count; i++) {
+            const lam_est_region *r = &im->regions[i];
+            const double *resp = w[j].resp + i * H;
+            for (size_t h = 1; h <= K && r->use; h++) {
+                if (resp[h] < 0.9)
+                    continue;
+                for (size_t c = 0; c < nc; c++) {
+                    double pred = w[j].ladder.contrast[h][c], d = r->mean[c] - pred;
+                    double fl = e->floor_abs + f * fabs(pred), var = r->var[c] + fl * fl;
+                    s += -0.5 * (d * d / var + log(var));
+                }
+            }
+        }
+    }
+    double z = log(f / e->floor_rel_prior) / FLOOR_PRIOR_SD_LOG;
+    return s - 0.5 * z * z;
+}
+
+static double estimate_floor(const lam_estimate *e, const img_work *w)
+{
+    double best = -INFINITY, best_f = e->floor_rel;
+    for (int k = 0; k <= 32; k++) {
+        double f = FLOOR_MIN * pow(FLOOR_MAX / FLOOR_MIN, k / 32.0);
+        double v = floor_loglik(e, w, f);
+        if (v > best)
+            best = v, best_f = f;
+    }
+    return best_f;
+}
+
+/* ---- Laplace covariance ---- */
+
+static void laplace(fit_ctx *f)
+{
+    lam_estimate *e = f->e;
+    build_normal(e, f->w, &f->q);
+    size_t n = f->q.n;
+    lam__mat s, l, inv;
+    memcpy(s, f->q.a_ss, sizeof s);
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t a = 0; a < n; a++)
+            for (size_t b = 0; b < n; b++)
+                s[a][b] -= f->q.a_sd[j * n + a] * f->q.a_sd[j * n + b] / f->q.a_dd[j];
+    memset(inv, 0, sizeof inv);
+    if (n) {
+        lam__cholesky_ridged(s, n, l);
+        lam__cholesky_inverse(l, n, inv);
+    }
+    memset(e->cov, 0, sizeof e->cov);
+    for (size_t a = 0; a < n; a++) {
+        for (size_t b = 0; b < n; b++)
+            e->cov[a][b] = inv[a][b];
+        e->shared[e->free_index[a]].sigma = sqrt(inv[a][a]);
+    }
+    for (size_t j = 0; j < e->images; j++) {
+        const double *asd = f->q.a_sd + j * n;
+        double ajj = f->q.a_dd[j], quad = 0;
+        for (size_t a = 0; a < n; a++) {
+            double cr = 0;
+            for (size_t b = 0; b < n; b++)
+                cr -= inv[a][b] * asd[b] / ajj;
+            e->cross[j * (n ? n : 1) + a] = cr;
+            quad -= asd[a] * cr / ajj;
+        }
+        lam_nuisance *o = &e->image[j].oxide;
+        o->sigma = o->fitted ? sqrt(1 / ajj + quad) : 0;
+    }
+}
+
+/* ---- bookkeeping after the fit ---- */
+
+static void count_regions(lam_estimate *e, const img_work *w)
+{
+    size_t K = e->max_layers, H = K + 3;
+    for (size_t j = 0; j < e->images; j++) {
+        lam_est_image *im = &e->image[j];
+        im->regions_used = im->confident = 0;
+        for (size_t i = 0; i < im->count; i++) {
+            if (!im->regions[i].use)
+                continue;
+            im->regions_used++;
+            for (size_t h = 1; h <= K; h++)
+                im->confident += w[j].resp[i * H + h] >= 0.9;
+        }
+    }
+}
+
+static void free_ctx(fit_ctx *f)
+{
+    if (f->w)
+        for (size_t j = 0; j < f->e->images; j++)
+            free(f->w[j].resp);
+    free(f->w);
+    free(f->q.a_sd);
+    free(f->q.a_dd);
+    free(f->q.b_d);
+    free(f->base.oxide);
+    free(f->ds);
+    free(f->dd);
+}
+
+static lam_status init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_error *err)
+{
+    memset(f, 0, sizeof *f);
+    f->e = e;
+    f->model = model;
+    collect_free(e);
+    size_t m = e->images ? e->images : 1, n = e->nfree ? e->nfree : 1;
+    f->q.n = e->nfree;
+    f->w = calloc(m, sizeof *f->w);
+    f->q.a_sd = calloc(m * n, sizeof *f->q.a_sd);
+    f->q.a_dd = calloc(m, sizeof *f->q.a_dd);
+    f->q.b_d = calloc(m, sizeof *f->q.b_d);
+    f->base.oxide = calloc(m, sizeof *f->base.oxide);
+    f->ds = calloc(LAM__MAT_MAX, sizeof *f->ds);
+    f->dd = calloc(m, sizeof *f->dd);
+    free(e->cross);
+    e->cross = calloc(m * n, sizeof *e->cross);
+    int ok = f->w && f->q.a_sd && f->q.a_dd && f->q.b_d && f->base.oxide && f->ds && f->dd &&
+             e->cross;
+    for (size_t j = 0; j < e->images && ok; j++)
+        ok = (f->w[j].resp = calloc((e->image[j].count ? e->image[j].count : 1) *
+                                        (e->max_layers + 3), sizeof(double))) != NULL;
+    if (!ok) {
+        free_ctx(f);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the fit");
+    }
+    return LAM_OK;
+}
+
+/* Refit from the other grid maxima of a single image (or a few) and keep
+ * the best posterior: the oxide likelihood is multimodal. */
+static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
+{
+    lam_estimate *e = f->e;
+    if (e->images > MAX_MULTISTART_IMAGES)
+        return LAM_OK;
+    saved_point best;
+    best.oxide = malloc(e->images * sizeof *best.oxide);
+    if (!best.oxide)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+    save_point(e, &best);
+    double best_lp = *logpost;
+    lam_status st = LAM_OK;
+    for (size_t j = 0; j < e->images && !st; j++)
+        for (int k = 0; k < 3 && !st; k++) {
+            lam_est_image *im = &e->image[j];
+            double alt = im->alt_oxide[k];
+            if (!isfinite(alt) || !(im->alt_score[k] > im->grid_best - ALT_MARGIN))
+                continue;
+            restore_point(e, &best);
+            im->oxide.value = alt;
+            double lp;
+            if ((st = run_em(f, e->opt.max_iterations, &lp, err)))
+                break;
+            if (lp > best_lp) {
+                best_lp = lp;
+                save_point(e, &best);
+            }
+        }
+    restore_point(e, &best);
+    free(best.oxide);
+    if (!st)
+        st = objective(e, f->model, f->w, logpost, err);
+    return st;
+}
+
+lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick, lam_error *err)
+{
+    (void)thick;
+    if (lam_model_max_layers(model) < e->max_layers)
+        return lam_error_set(err, LAM_EINTERNAL, "fit model has fewer than %zu layers",
+                             e->max_layers);
+    fit_ctx f;
+    lam_status st = init_ctx(&f, e, model, err);
+    if (st)
+        return st;
+    double lp = 0;
+    e->iterations = 0;
+    if (!(st = all_grids(e, model, err)) && !(st = run_em(&f, e->opt.max_iterations, &lp, err)))
+        st = multistart(&f, &lp, err);
+    if (!st && e->opt.estimate_floor) {
+        double fl = estimate_floor(e, f.w);
+        if (fabs(log(fl / e->floor_rel)) > 0.2) {
+            e->floor_rel = fl;
+            st = run_em(&f, e->opt.max_iterations, &lp, err);
+        }
+    }
+    if (!st) {
+        laplace(&f);
+        count_regions(e, f.w);
+        e->fitted = 1;
+    }
+    free_ctx(&f);
+    return st;
+}
+
+lam_status lam_estimate_refit(lam_estimate *e, lam_model *model, lam_error *err)
+{
+    fit_ctx f;
+    lam_status st = init_ctx(&f, e, model, err);
+    if (st)
+        return st;
+    double lp = 0;
+    e->iterations = 0;
+    st = run_em(&f, e->opt.max_iterations, &lp, err);
+    if (!st && e->opt.estimate_floor) {
+        double fl = estimate_floor(e, f.w);
+        if (fabs(log(fl / e->floor_rel)) > 0.2) {
+            e->floor_rel = fl;
+            st = run_em(&f, e->opt.max_iterations, &lp, err);
+        }
+    }
+    if (!st) {
+        laplace(&f);
+        count_regions(e, f.w);
+        e->fitted = 1;
+    }
+    free_ctx(&f);
+    return st;
+}
+
+lam_status lam_estimate_view(const lam_estimate *e, size_t j, lam_model *model,
+                             lam_est_view *v, lam_error *err)
+{
+    lam_status st = lam_estimate_ladder(e, j, model, &v->ladder, err);
+    if (st)
+        return st;
+    /* lam__image_gradient needs the free list of the last fit */
+    if ((st = lam__image_gradient(e, j, model, &v->ladder, v->grad, err)))
+        return st;
+    size_t n = e->nfree;
+    v->nfree = n + 1;
+    memset(v->cov, 0, sizeof v->cov);
+    for (size_t a = 0; a < n; a++) {
+        for (size_t b = 0; b < n; b++)
+            v->cov[a][b] = e->cov[a][b];
+        v->cov[a][n] = v->cov[n][a] = e->cross ? e->cross[j * n + a] : 0;
+    }
+    double so = e->image[j].oxide.sigma;
+    v->cov[n][n] = isfinite(so) ? so * so : 0;
+    return LAM_OK;
+}

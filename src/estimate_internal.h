@@ -1,0 +1,31 @@
+/* estimate_internal.h - pieces of the joint likelihood shared by
+ * estimate.c, estimate_fit.c and infer.c (not public). */
+#ifndef LAMINA_ESTIMATE_INTERNAL_H
+#define LAMINA_ESTIMATE_INTERNAL_H
+
+#include "lamina/estimate.h"
+#include "linalg_internal.h"
+
+/* -0.5 sum_c [(m - mu)^2 / var + ln(2 pi var)] */
+double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc);
+
+double lam__logsumexp(const double *x, size_t n);
+
+/* log(prior x likelihood) per hypothesis (K + 3 values: substrate, 1..K,
+ * thick, unmodelled) of a region against an observed-scale ladder. */
+void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
+                          const lam_prediction *ladder, double *lt);
+
+/* The model parameter (LAM_MP_*) a shared nuisance moves, or -1 for the
+ * gains (applied outside the model). */
+int lam__model_param_of(int nuisance);
+
+/* Gradient of the observed-scale contrast of N = 0..K of image j with
+ * respect to the free shared parameters (in e->free_index order) and, last,
+ * the image's oxide: grad[k][N][c]. 'ladder' is the model ladder at the
+ * image's point (no gains). */
+lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model,
+                               const lam_prediction *ladder, lam_ladder_grad *grad,
+                               lam_error *err);
+
+#endif
