@@ -1,8 +1,8 @@
-/* calibrate.c - fitting camera channels, illumination NA and oxide to
- * regions of known (or best-fitting) layer count with GSL's
- * Levenberg-Marquardt. */
+/* calibrate.c - measuring labelled (or latent) regions and fitting a setup
+ * profile to them with the analysis' joint estimate. */
 #include "lamina/calibrate.h"
 #include "lamina/analyze.h"
+#include "lamina/infer.h"
 #include "lamina/model.h"
 #include "lamina/segment.h"
 #include "lamina/substrate.h"
@@ -11,13 +11,14 @@
 #include <cjson/cJSON.h>
 
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <gsl/gsl_blas.h>
-#include <gsl/gsl_multifit_nlinear.h>
+#include <gsl/gsl_cdf.h>
 
-#define CALIB_FLOOR 0.003
-#define CALIB_K 12
+#define MIN_LABEL_INTERIOR 50
+#define REFUSE_PVALUE 1e-3
+#define CONSTRAINED_FRACTION 0.5
 
 void lam_calib_set_init(lam_calib_set *s)
 {
@@ -26,358 +27,279 @@ void lam_calib_set_init(lam_calib_set *s)
 
 void lam_calib_set_clear(lam_calib_set *s)
 {
-    free(s->samples);
+    for (size_t i = 0; i < s->images; i++)
+        free(s->image[i].regions);
     memset(s, 0, sizeof *s);
 }
 
-static lam_status push(lam_calib_set *set, const lam_calib_sample *x, lam_error *err)
+void lam_calib_result_clear(lam_calib_result *r)
 {
-    if (set->count == set->cap) {
-        size_t nc = set->cap ? 2 * set->cap : 64;
-        lam_calib_sample *n = realloc(set->samples, nc * sizeof *n);
-        if (!n)
-            return lam_error_set(err, LAM_ENOMEM, "cannot grow the calibration samples");
-        set->samples = n;
-        set->cap = nc;
-    }
-    set->samples[set->count++] = *x;
-    return LAM_OK;
+    free(r->residual);
+    r->residual = NULL;
+    r->residuals = 0;
 }
 
-lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const uint8_t *labels,
-                                    size_t w, size_t h, const lam_load_options *load,
-                                    lam_error *err)
+static lam_calib_image *new_image(lam_calib_set *set, const char *path, lam_error *err)
 {
-    if (set->images >= LAM_CALIB_MAX_IMAGES)
-        return lam_error_set(err, LAM_ETOOBIG, "at most %d calibration images", LAM_CALIB_MAX_IMAGES);
-    lam_image *img = NULL;
-    lam_status st = lam_image_load(path, load, &img, err);
+    if (set->images >= LAM_CALIB_MAX_IMAGES) {
+        lam_error_set(err, LAM_ETOOBIG, "at most %d calibration images", LAM_CALIB_MAX_IMAGES);
+        return NULL;
+    }
+    lam_calib_image *im = &set->image[set->images];
+    memset(im, 0, sizeof *im);
+    snprintf(im->path, sizeof im->path, "%s", path);
+    im->known_oxide = NAN;
+    return im;
+}
+
+/* Regions of a label map, measured on the image's contrast map. */
+static lam_status labelled_regions(lam_image *img, const lam_substrate *sub, const uint8_t *labels,
+                                   size_t channels, lam_calib_image *im, lam_error *err)
+{
+    size_t w = img->width, h = img->height;
+    lam_segmentation *seg = NULL;
+    lam_status st = lam_segmentation_alloc(w, h, &seg, err);
     if (st)
         return st;
-    lam_segmentation *seg = NULL;
-    lam_substrate sub;
-    if (img->width != w || img->height != h) {
-        st = lam_error_set(err, LAM_ESIZE, "labels are %zux%zu, the image %zux%zu", w, h,
-                           img->width, img->height);
-        goto done;
-    }
-    lam_substrate_options so = lam_substrate_options_default();
-    if ((st = lam_substrate_estimate(img, &so, &sub, err)))
-        goto done;
-    lam_contrast_in_place(img, &sub, 1);
-    if ((st = lam_segmentation_alloc(w, h, &seg, err)))
-        goto done;
     for (size_t k = 0; k < w * h; k++)
         seg->cls[k] = labels[k] >= 1 && labels[k] <= 40 ? labels[k] : (labels[k] ? LAM_CLASS_NONE : 0);
     lam_segment_options sgo = lam_segment_options_default();
-    if ((st = lam_segment_regions(img, &sgo, seg, err)))
-        goto done;
-    size_t added = 0;
-    for (size_t i = 0; i < seg->count && !st; i++) {
+    if (!(st = lam_segment_regions(img, &sgo, seg, err)))
+        im->regions = calloc(seg->count ? seg->count : 1, sizeof *im->regions);
+    if (!st && !im->regions)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate regions");
+    for (size_t i = 0; i < (st ? 0 : seg->count); i++) {
         const lam_region_stats *r = &seg->regions[i];
-        if (r->interior < 50)
+        if (r->interior < MIN_LABEL_INTERIOR)
             continue;
-        lam_calib_sample x;
-        x.image = set->images;
-        x.layers = r->cls;
-        x.n = (double)r->interior;
-        x.kappa = sub.kappa;
-        for (int c = 0; c < 3; c++) {
-            x.mean[c] = r->sum[c] / x.n;
-            x.noise[c] = sub.noise[c];
-        }
-        st = push(set, &x, err);
-        added++;
+        lam_est_region *x = &im->regions[im->count++];
+        lam_region_measure(r, sub->noise, sub->kappa, channels, x);
+        x->use = 1;
+        x->known_layers = r->cls;
     }
-    if (!st && !added)
-        st = lam_error_set(err, LAM_ERANGE, "no labelled region of 50 interior pixels or more");
-    if (!st)
-        set->images++;
-done:
+    if (!st && !im->count)
+        st = lam_error_set(err, LAM_ERANGE, "no labelled region of %d interior pixels or more",
+                           MIN_LABEL_INTERIOR);
     lam_segmentation_free(seg);
-    lam_image_free(img);
-    if (st)
-        lam_error_set_file(err, path);
     return st;
+}
+
+lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const uint8_t *labels,
+                                    size_t w, size_t h, const lam_setup *setup, lam_error *err)
+{
+    lam_calib_image *im = new_image(set, path, err);
+    if (!im)
+        return LAM_ETOOBIG;
+    lam_load_options lo = lam_load_options_default();
+    if (!lam_setup_is_default(setup, "encoding"))
+        lo.transfer = setup->encoding;
+    lam_image *img = NULL;
+    lam_substrate sub;
+    lam_status st = lam_image_load(path, &lo, &img, err);
+    if (!st && (img->width != w || img->height != h))
+        st = lam_error_set(err, LAM_ESIZE, "labels are %zux%zu, the image %zux%zu", w, h,
+                           img->width, img->height);
+    lam_substrate_options so = lam_substrate_options_default();
+    if (!st && !(st = lam_substrate_estimate(img, &so, &sub, err))) {
+        lam_contrast_in_place(img, &sub, 1);
+        st = labelled_regions(img, &sub, labels, setup->camera.channels, im, err);
+    }
+    lam_image_free(img);
+    if (st) {
+        free(im->regions);
+        lam_error_set_file(err, path);
+        return st;
+    }
+    set->images++;
+    return LAM_OK;
 }
 
 lam_status lam_calib_measure_self(lam_calib_set *set, const char *path, const lam_setup *setup,
                                   lam_error *err)
 {
-    if (set->images >= LAM_CALIB_MAX_IMAGES)
-        return lam_error_set(err, LAM_ETOOBIG, "at most %d calibration images", LAM_CALIB_MAX_IMAGES);
+    lam_calib_image *im = new_image(set, path, err);
+    if (!im)
+        return LAM_ETOOBIG;
     lam_analysis_options opt = lam_analysis_options_default();
-    opt.max_layers = 8;
     opt.fit_fermi = 0;
     lam_analysis *a = NULL;
     lam_status st = lam_analyze(path, setup, &opt, &a, err);
     if (st)
         return st;
-    size_t added = 0;
-    for (size_t i = 0; i < a->count && !st; i++) {
-        const lam_region_stats *r = &a->seg->regions[i];
-        const lam_region_result *res = &a->results[i];
-        if (r->interior < 200 || (res->flags & LAM_FLAG_SATURATED) || res->substrate_like)
-            continue;
-        lam_calib_sample x;
-        x.image = set->images;
-        x.layers = 0;
-        x.n = (double)r->interior;
-        x.kappa = a->substrate.kappa;
-        for (int c = 0; c < 3; c++) {
-            x.mean[c] = r->sum[c] / x.n;
-            x.noise[c] = a->substrate.noise[c];
-        }
-        st = push(set, &x, err);
-        added++;
-    }
+    im->regions = malloc((a->count ? a->count : 1) * sizeof *im->regions);
+    if (!im->regions)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate regions");
+    for (size_t i = 0; i < a->count && !st; i++)
+        if (a->measured[i].use)
+            im->regions[im->count++] = a->measured[i];
     lam_analysis_free(a);
-    if (!st && !added)
+    if (!st && !im->count)
         st = lam_error_set(err, LAM_ERANGE, "no region large enough for self-calibration");
-    if (!st)
-        set->images++;
-    if (st)
+    if (st) {
+        free(im->regions);
         lam_error_set_file(err, path);
+        return st;
+    }
+    set->images++;
+    return LAM_OK;
+}
+
+/* ---- the fit ---- */
+
+static lam_status build_estimate(const lam_setup *start, const lam_calib_set *set,
+                                 const double *known_oxide, double known_na, lam_estimate **out,
+                                 lam_error *err)
+{
+    int top = 6;
+    for (size_t j = 0; j < set->images; j++)
+        for (size_t i = 0; i < set->image[j].count; i++)
+            top = set->image[j].regions[i].known_layers > top ? set->image[j].regions[i].known_layers : top;
+    lam_estimate_options eo = lam_estimate_options_default();
+    eo.max_layers = (size_t)(top > 20 ? 20 : top);
+    lam_status st = lam_estimate_alloc(start, start->camera.channels, &eo, out, err);
+    if (st)
+        return st;
+    if (isfinite(known_na))
+        lam_estimate_set_prior(*out, LAM_NU_NA, known_na, 0, "given (--known-na)");
+    double nominal = lam_setup_oxide(start) >= 0 ? lam_setup_oxide(start) : 0;
+    for (size_t j = 0; j < set->images && !st; j++) {
+        const lam_calib_image *im = &set->image[j];
+        double known = known_oxide ? known_oxide[j] : NAN;
+        st = lam_estimate_add_image(*out, im->regions, im->count, isfinite(known) ? known : nominal,
+                                    start->sigma.oxide_nm, NULL, err);
+        if (!st && isfinite(known)) {
+            (*out)->image[j].oxide.fitted = 0;
+            (*out)->image[j].oxide.source = "given (--known-oxide)";
+        }
+    }
     return st;
 }
 
-typedef struct fit_ctx {
-    const lam_setup *start;
-    const lam_calib_set *set;
-    int self;
-    size_t K;
-    lam_status st;
-    lam_error *err;
-    const double *known;             /* known oxide per image, NAN = fitted */
-    double known_na;                 /* NAN = fitted */
-    size_t slot[LAM_CALIB_MAX_IMAGES]; /* parameter index of a fitted oxide */
-} fit_ctx;
-
-static double oxide_of(const fit_ctx *f, const gsl_vector *x, size_t im)
+static void take_value(lam_calib_value *v, const lam_nuisance *n)
 {
-    if (f->known && isfinite(f->known[im]))
-        return f->known[im];
-    return gsl_vector_get(x, f->slot[im]);
+    v->name = n->name;
+    v->value = n->value;
+    v->sigma = n->fitted ? n->sigma : 0;
+    v->prior_sd = n->prior_sd;
+    v->fitted = n->fitted;
+    v->constrained = n->fitted && isfinite(n->sigma) && n->sigma < CONSTRAINED_FRACTION * n->prior_sd;
 }
 
-static double clampd(double v, double lo, double hi)
+/* Residual of every labelled region against the fitted ladder. */
+static lam_status label_residuals(const lam_estimate *e, lam_model *m, lam_calib_result *res,
+                                  lam_error *err)
 {
-    return v < lo ? lo : (v > hi ? hi : v);
-}
-
-/* Parameters live in unbounded coordinates so that the fit never sticks
- * at a bound: FWHM = 10 + q^2 nm, NA = 0.95 sin^2 q; centres as they are. */
-static double fwhm_of(double q) { return 10 + q * q; }
-static double na_of(double q) { return 0.95 * sin(q) * sin(q); }
-
-static void apply(const fit_ctx *f, const gsl_vector *x, lam_setup *s)
-{
-    *s = *f->start;
-    s->camera.kind = LAM_CAMERA_GAUSSIAN;
-    s->camera.channels = 3;
-    for (int c = 0; c < 3; c++) {
-        s->camera.centre_nm[c] = clampd(gsl_vector_get(x, (size_t)c), 380, 780);
-        s->camera.fwhm_nm[c] = fwhm_of(gsl_vector_get(x, 3 + (size_t)c));
-    }
-    s->illumination_na = isfinite(f->known_na) ? f->known_na : na_of(gsl_vector_get(x, 6));
-}
-
-static int residuals(const gsl_vector *x, void *vp, gsl_vector *out)
-{
-    fit_ctx *f = vp;
-    lam_setup s;
-    apply(f, x, &s);
-    lam_model *m = NULL;
-    lam_prediction *P = malloc(f->set->images * sizeof *P);
-    lam_status st = P ? lam_model_alloc_fast(&s, f->K, &m, f->err)
-                      : lam_error_set(f->err, LAM_ENOMEM, "cannot allocate predictions");
-    for (size_t im = 0; im < f->set->images && !st; im++)
-        st = lam_model_eval(m, clampd(oxide_of(f, x, im), 0, 2000), s.sheet.fermi_ev, &P[im],
-                            f->err);
-    if (st) {
-        f->st = st;
-        lam_model_free(m);
-        free(P);
-        return GSL_EBADFUNC;
-    }
-    for (size_t i = 0; i < f->set->count; i++) {
-        const lam_calib_sample *sm = &f->set->samples[i];
-        double sig[3];
-        for (int c = 0; c < 3; c++)
-            sig[c] = sqrt(sm->kappa * sm->noise[c] * sm->noise[c] / sm->n + CALIB_FLOOR * CALIB_FLOOR);
-        size_t N = (size_t)sm->layers;
-        if (f->self || N == 0 || N > f->K) {
-            /* the layer count that fits best under the current parameters */
-            double best = INFINITY;
-            for (size_t k = 1; k <= f->K; k++) {
-                double q = 0;
-                for (int c = 0; c < 3; c++) {
-                    double d = (sm->mean[c] - P[sm->image].contrast[k][c]) / sig[c];
-                    q += d * d;
-                }
-                if (q < best)
-                    best = q, N = k;
+    size_t n = 0;
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t i = 0; i < e->image[j].count; i++)
+            n += e->image[j].regions[i].known_layers > 0;
+    res->residual = calloc(n ? n : 1, sizeof *res->residual);
+    lam_prediction *P = malloc(sizeof *P);
+    lam_status st = res->residual && P ? LAM_OK
+                                       : lam_error_set(err, LAM_ENOMEM, "cannot allocate residuals");
+    for (size_t j = 0; j < e->images && !st; j++) {
+        if ((st = lam_estimate_ladder(e, j, m, P, err)))
+            break;
+        for (size_t i = 0; i < e->image[j].count; i++) {
+            const lam_est_region *r = &e->image[j].regions[i];
+            if (r->known_layers <= 0)
+                continue;
+            lam_calib_residual *x = &res->residual[res->residuals++];
+            x->image = j, x->region = i, x->layers = r->known_layers;
+            for (size_t c = 0; c < e->channels; c++) {
+                x->measured[c] = r->mean[c];
+                x->model[c] = P->contrast[r->known_layers][c];
+                x->sigma[c] = sqrt(r->var[c] + lam_estimate_floor_var(e, x->model[c]));
+                double z = (x->measured[c] - x->model[c]) / x->sigma[c];
+                x->chi2 += z * z;
             }
+            x->pvalue = gsl_cdf_chisq_Q(x->chi2, (double)e->channels);
+            res->chi2 += x->chi2;
+            res->dof += (double)e->channels;
         }
-        for (int c = 0; c < 3; c++)
-            gsl_vector_set(out, i * 3 + (size_t)c,
-                           (sm->mean[c] - P[sm->image].contrast[N][c]) / sig[c]);
     }
-    lam_model_free(m);
     free(P);
-    return GSL_SUCCESS;
+    return st;
 }
 
-lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set, int self,
-                         const double *known_oxide, double known_na, lam_calib_result *out,
+/* The profile: the start setup with the constrained values and every
+ * fitted spread. */
+static void write_profile(const lam_estimate *e, const lam_setup *start, lam_calib_result *res)
+{
+    lam_setup *s = &res->setup;
+    *s = *start;
+    const lam_nuisance *sh = e->shared;
+    s->sheet.continuum = sh[LAM_NU_CONTINUUM].value;
+    s->sheet.resonance = sh[LAM_NU_RESONANCE].value;
+    s->sheet.background = sh[LAM_NU_BACKGROUND].value;
+    s->sigma.continuum = sh[LAM_NU_CONTINUUM].sigma;
+    s->sigma.resonance = sh[LAM_NU_RESONANCE].sigma;
+    s->sigma.background = sh[LAM_NU_BACKGROUND].sigma;
+    s->illumination_na = sh[LAM_NU_NA].value;
+    s->sigma.na = sh[LAM_NU_NA].fitted ? sh[LAM_NU_NA].sigma : 0;
+    double ssd = 0, gsd = 0, wsd = 0;
+    for (size_t c = 0; c < e->channels; c++) {
+        s->camera_shift_nm[c] = sh[LAM_NU_SHIFT + c].value;
+        s->camera_gain[c] = exp(sh[LAM_NU_GAIN + c].value);
+        s->camera_width[c] = exp(sh[LAM_NU_WIDTH + c].value);
+        ssd = fmax(ssd, sh[LAM_NU_SHIFT + c].sigma);
+        gsd = fmax(gsd, sh[LAM_NU_GAIN + c].sigma);
+        wsd = fmax(wsd, sh[LAM_NU_WIDTH + c].sigma);
+    }
+    s->sigma.shift_nm = ssd;
+    s->sigma.log_gain = gsd;
+    s->sigma.log_width = wsd;
+}
+
+static lam_status check_labels(const lam_calib_result *res, const lam_calib_set *set,
+                               lam_error *err)
+{
+    const lam_calib_residual *worst = NULL;
+    for (size_t k = 0; k < res->residuals; k++)
+        if (!worst || res->residual[k].pvalue < worst->pvalue)
+            worst = &res->residual[k];
+    if (!worst || worst->pvalue >= REFUSE_PVALUE)
+        return LAM_OK;
+    return lam_error_set(err, LAM_ERANGE,
+                         "the fitted model cannot reproduce a %dL label in %s (chi2 %.1f, p = "
+                         "%.1e; measured contrast %.4f, model %.4f in channel 1): check the "
+                         "label, the oxide and the image encoding; no profile written",
+                         worst->layers, set->image[worst->image].path, worst->chi2, worst->pvalue,
+                         worst->measured[0], worst->model[0]);
+}
+
+lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set,
+                         const double *known_oxide, double known_na, lam_calib_result *res,
                          lam_error *err)
 {
-    fit_ctx f = {start, set, self, CALIB_K, LAM_OK, err, known_oxide, known_na, {0}};
-    size_t p = 7;
-    for (size_t im = 0; im < set->images; im++)
-        if (!(known_oxide && isfinite(known_oxide[im])))
-            f.slot[im] = p++;
-    size_t n = 3 * set->count;
-    if (set->images == 0 || n <= p)
-        return lam_error_set(err, LAM_ERANGE,
-                             "%zu samples give %zu residuals for %zu parameters: add labelled "
-                             "regions or images (several layer counts and oxides)",
-                             set->count, n, p);
-    lam_setup s0 = *start;
-    if (s0.camera.kind != LAM_CAMERA_GAUSSIAN) {
-        /* start from the generic colour camera */
-        lam_setup d;
-        lam_setup_default(&d);
-        s0.camera = d.camera;
-    }
-    gsl_vector *x = gsl_vector_alloc(p), *f0 = gsl_vector_alloc(n);
-    gsl_matrix *cov = gsl_matrix_alloc(p, p);
-    if (!x || !f0 || !cov) {
-        gsl_vector_free(x);
-        gsl_vector_free(f0);
-        gsl_matrix_free(cov);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the fit");
-    }
-    for (int c = 0; c < 3; c++) {
-        gsl_vector_set(x, (size_t)c, s0.camera.centre_nm[c]);
-        gsl_vector_set(x, 3 + (size_t)c, sqrt(fmax(1, s0.camera.fwhm_nm[c] - 10)));
-    }
-    gsl_vector_set(x, 6, asin(sqrt(fmin(0.94, fmax(0.01, s0.illumination_na)) / 0.95)));
-    f.start = &s0;
-    lam_status st = LAM_OK;
-    /* starting oxide of each image: the best of a 5 nm scan over 20-400 nm
-     * with the starting camera (the nominal value may be for another chip) */
-    {
-        lam_model *m = NULL;
-        lam_prediction *P = malloc(sizeof *P);
-        double best[LAM_CALIB_MAX_IMAGES], bd[LAM_CALIB_MAX_IMAGES];
-        for (size_t im = 0; im < set->images; im++)
-            best[im] = INFINITY, bd[im] = lam_setup_oxide(&s0) > 0 ? lam_setup_oxide(&s0) : 285;
-        st = P ? lam_model_alloc_fast(&s0, CALIB_K, &m, err)
-               : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-        for (double d = 20; d <= 400 && !st; d += 5) {
-            if ((st = lam_model_eval(m, d, s0.sheet.fermi_ev, P, err)))
-                break;
-            double tot[LAM_CALIB_MAX_IMAGES] = {0};
-            for (size_t i = 0; i < set->count; i++) {
-                const lam_calib_sample *sm = &set->samples[i];
-                double q = INFINITY;
-                for (size_t k = 1; k <= CALIB_K; k++) {
-                    if (!self && sm->layers > 0 && k != (size_t)sm->layers)
-                        continue;
-                    double a = 0;
-                    for (int c = 0; c < 3; c++) {
-                        double t = sm->mean[c] - P->contrast[k][c];
-                        a += t * t;
-                    }
-                    q = fmin(q, a);
-                }
-                tot[sm->image] += q;
-            }
-            for (size_t im = 0; im < set->images; im++)
-                if (tot[im] < best[im])
-                    best[im] = tot[im], bd[im] = d;
-        }
-        lam_model_free(m);
-        free(P);
-        for (size_t im = 0; im < set->images; im++)
-            if (!(known_oxide && isfinite(known_oxide[im])))
-                gsl_vector_set(x, f.slot[im], bd[im]);
-    }
-    double chi0 = 0;
-    if (residuals(x, &f, f0) != GSL_SUCCESS)
-        st = f.st ? f.st : lam_error_set(err, LAM_EINTERNAL, "model evaluation failed");
+    memset(res, 0, sizeof *res);
+    if (!set->images)
+        return lam_error_set(err, LAM_EINVAL, "no calibration image");
+    lam_model *m = NULL;
+    lam_estimate *e = NULL;
+    lam_status st = lam_model_alloc_fast(start, LAM_MODEL_MAX_LAYERS, &m, err);
     if (!st)
-        gsl_blas_ddot(f0, f0, &chi0);
-    gsl_multifit_nlinear_fdf fdf;
-    memset(&fdf, 0, sizeof fdf);
-    fdf.f = residuals;
-    fdf.n = n;
-    fdf.p = p;
-    fdf.params = &f;
-    gsl_multifit_nlinear_parameters prm = gsl_multifit_nlinear_default_parameters();
-    prm.h_df = 1e-4;
-    gsl_multifit_nlinear_workspace *w =
-        st ? NULL : gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &prm, n, p);
-    int info = 0;
-    if (!st && !w)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the fit workspace");
+        st = build_estimate(start, set, known_oxide, known_na, &e, err);
+    if (!st)
+        st = lam_estimate_fit(e, m, m, err);
+    if (!st)
+        st = label_residuals(e, m, res, err);
     if (!st) {
-        gsl_multifit_nlinear_init(x, &fdf, w);
-        int gs = gsl_multifit_nlinear_driver(60, 1e-7, 1e-7, 1e-8, NULL, NULL, &info, w);
-        if (f.st)
-            st = f.st;
-        else if (gs && gs != GSL_EMAXITER && gs != GSL_ENOPROG)
-            st = lam_error_gsl(err, gs, "calibration fit");
+        res->channels = e->channels;
+        res->images = e->images;
+        res->labelled = res->residuals;
+        res->floor_rel = e->floor_rel;
+        for (int k = 0; k < LAM_NU_COUNT; k++)
+            take_value(&res->shared[k], &e->shared[k]);
+        for (size_t j = 0; j < e->images; j++)
+            take_value(&res->oxide[j], &e->image[j].oxide);
+        write_profile(e, start, res);
+        st = check_labels(res, set, err);
     }
-    if (!st) {
-        const gsl_vector *xf = gsl_multifit_nlinear_position(w);
-        const gsl_vector *rf = gsl_multifit_nlinear_residual(w);
-        double chi1;
-        gsl_blas_ddot(rf, rf, &chi1);
-        gsl_matrix *J = gsl_multifit_nlinear_jac(w);
-        gsl_multifit_nlinear_covar(J, 1e-10, cov);
-        double dof = (double)(n - p), scale = chi1 / dof > 1 ? chi1 / dof : 1;
-        memset(out, 0, sizeof *out);
-        apply(&f, xf, &out->setup);
-        for (int c = 0; c < 3; c++) {
-            out->centre[c] = out->setup.camera.centre_nm[c];
-            out->fwhm[c] = out->setup.camera.fwhm_nm[c];
-            out->centre_sigma[c] = sqrt(scale * gsl_matrix_get(cov, (size_t)c, (size_t)c));
-            /* through the coordinate change: d FWHM / dq = 2q */
-            double q = gsl_vector_get(xf, 3 + (size_t)c);
-            out->fwhm_sigma[c] = fabs(2 * q) * sqrt(scale * gsl_matrix_get(cov, 3 + (size_t)c, 3 + (size_t)c));
-        }
-        out->na = out->setup.illumination_na;
-        double qn = gsl_vector_get(xf, 6);
-        out->na_sigma = isfinite(known_na) ? 0
-                        : fabs(0.95 * 2 * sin(qn) * cos(qn)) * sqrt(scale * gsl_matrix_get(cov, 6, 6));
-        for (size_t im = 0; im < set->images; im++) {
-            int fixed = known_oxide && isfinite(known_oxide[im]);
-            out->oxide[im] = oxide_of(&f, xf, im);
-            out->oxide_sigma[im] = fixed ? 0 : sqrt(scale * gsl_matrix_get(cov, f.slot[im], f.slot[im]));
-            out->oxide_known[im] = fixed;
-        }
-        if (set->images >= 1)
-            lam_setup_set_oxide(&out->setup, out->oxide[0], NULL);
-        out->chi2_before = chi0;
-        out->chi2_after = chi1;
-        out->rms_before = sqrt(chi0 / (double)n);
-        out->rms_after = sqrt(chi1 / (double)n);
-        out->samples = set->count;
-        out->images = set->images;
-        out->iterations = gsl_multifit_nlinear_niter(w);
-        double cmax = 0, cmin = INFINITY;
-        for (size_t k = 0; k < p; k++) {
-            double v = gsl_matrix_get(cov, k, k);
-            cmax = fmax(cmax, v), cmin = fmin(cmin, v);
-        }
-        out->condition = cmin > 0 ? sqrt(cmax / cmin) : INFINITY;
-    }
-    gsl_multifit_nlinear_free(w);
-    gsl_vector_free(x);
-    gsl_vector_free(f0);
-    gsl_matrix_free(cov);
+    lam_estimate_free(e);
+    lam_model_free(m);
+    if (st)
+        lam_calib_result_clear(res);
     return st;
 }
 

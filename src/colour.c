@@ -196,6 +196,16 @@ lam_status lam_table_spectrum_load(const char *path, size_t columns,
             if (strncasecmp(p, "wavelength_nm", 13))
                 st = lam_error_set(err, LAM_EFORMAT, "line %zu: expected a header starting "
                                    "with wavelength_nm", lineno);
+            if (!st && columns == 0) {
+                /* as many value columns as the header names (a camera: 1 to 3) */
+                for (const char *q = p; *q; q++)
+                    columns += *q == ',';
+                if (columns < 1 || columns > LAM_MAX_CHANNELS)
+                    st = lam_error_set(err, LAM_EFORMAT, "line %zu: the header names %zu value "
+                                       "columns; a camera table has 1 to %d", lineno, columns,
+                                       LAM_MAX_CHANNELS);
+                t.columns = columns;
+            }
             continue;
         }
         if (t.rows == cap) {

@@ -20,11 +20,13 @@
 #define GIVEN_SD_NA 0.05
 #define GIVEN_SD_SHIFT_NM 4.0
 #define GIVEN_SD_LOG_GAIN 0.05
+#define GIVEN_SD_LOG_WIDTH 0.05
 /* ... and of what it leaves to defaults. */
 #define DEFAULT_NA 0.55
 #define DEFAULT_SD_NA 0.2
 #define DEFAULT_SD_SHIFT_NM 15.0
 #define DEFAULT_SD_LOG_GAIN 0.15
+#define DEFAULT_SD_LOG_WIDTH 0.25 /* FWHM 50-110 nm about a typical 80 nm */
 
 lam_estimate_options lam_estimate_options_default(void)
 {
@@ -83,6 +85,7 @@ static void optics_priors(lam_estimate *e, const lam_setup *s)
 {
     static const char *const shift_names[3] = {"shift_1", "shift_2", "shift_3"};
     static const char *const gain_names[3] = {"log_gain_1", "log_gain_2", "log_gain_3"};
+    static const char *const width_names[3] = {"log_width_1", "log_width_2", "log_width_3"};
     double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
     int na_given = !lam_setup_is_default(s, "objective.illumination_na");
     if (na_given)
@@ -97,11 +100,17 @@ static void optics_priors(lam_estimate *e, const lam_setup *s)
                                 : "default prior";
     double sd_shift = cam_given ? given_sd(s->sigma.shift_nm, GIVEN_SD_SHIFT_NM)
                                 : DEFAULT_SD_SHIFT_NM;
-    double sd_gain = cam_given ? GIVEN_SD_LOG_GAIN : DEFAULT_SD_LOG_GAIN;
+    double sd_gain = cam_given ? given_sd(s->sigma.log_gain, GIVEN_SD_LOG_GAIN)
+                               : DEFAULT_SD_LOG_GAIN;
+    double sd_width = cam_given ? given_sd(s->sigma.log_width, GIVEN_SD_LOG_WIDTH)
+                                : DEFAULT_SD_LOG_WIDTH;
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
         int on = c < e->channels;
-        set(&e->shared[LAM_NU_SHIFT + c], shift_names[c], 0, on ? sd_shift : 0, -60, 60, src);
-        set(&e->shared[LAM_NU_GAIN + c], gain_names[c], 0, on ? sd_gain : 0, -1.5, 0.7, src);
+        double shift = on ? s->camera_shift_nm[c] : 0, lg = on ? log(s->camera_gain[c]) : 0;
+        set(&e->shared[LAM_NU_SHIFT + c], shift_names[c], shift, on ? sd_shift : 0, -60, 60, src);
+        set(&e->shared[LAM_NU_GAIN + c], gain_names[c], lg, on ? sd_gain : 0, -1.5, 0.7, src);
+        double lw = on ? log(s->camera_width[c]) : 0;
+        set(&e->shared[LAM_NU_WIDTH + c], width_names[c], lw, on ? sd_width : 0, -0.8, 0.8, src);
     }
 }
 
@@ -210,6 +219,8 @@ lam_model_point lam_estimate_point(const lam_estimate *e, size_t j)
     p.v[LAM_MP_BACKGROUND] = e->shared[LAM_NU_BACKGROUND].value;
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
         p.v[LAM_MP_SHIFT + c] = e->shared[LAM_NU_SHIFT + c].value;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        p.v[LAM_MP_WIDTH + c] = e->shared[LAM_NU_WIDTH + c].value;
     return p;
 }
 

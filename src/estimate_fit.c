@@ -7,6 +7,8 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <stdio.h>
+#define DEBUGFIT getenv("LAMINA_DEBUG_FIT")
 
 #define GRID_LAYERS 12      /* ladder depth for the oxide grid (thick up to 12) */
 #define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
@@ -33,6 +35,8 @@ int lam__model_param_of(int k)
         return LAM_MP_NA;
     if (k >= LAM_NU_SHIFT && k < LAM_NU_SHIFT + LAM_MAX_CHANNELS)
         return LAM_MP_SHIFT + (k - LAM_NU_SHIFT);
+    if (k >= LAM_NU_WIDTH && k < LAM_NU_WIDTH + LAM_MAX_CHANNELS)
+        return LAM_MP_WIDTH + (k - LAM_NU_WIDTH);
     return -1;
 }
 
@@ -369,9 +373,10 @@ static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *
     double lambda = 1e-3;
     lam_status st = objective(f->e, f->model, f->w, logpost, err);
     for (size_t it = 0; it < max_it && !st; it++) {
-        int moved;
+        int moved = 0;
         st = one_iteration(f, logpost, &lambda, &moved, err);
         f->e->iterations++;
+        if (DEBUGFIT) { fprintf(stderr, "it %zu lp %.3f lambda %.2g ox", it, *logpost, lambda); for (size_t j = 0; j < f->e->images; j++) fprintf(stderr, " %.2f", f->e->image[j].oxide.value); for (size_t a = 0; a < f->e->nfree; a++) fprintf(stderr, " %s=%.3f", f->e->shared[f->e->free_index[a]].name, f->e->shared[f->e->free_index[a]].value); fprintf(stderr, "\n"); }
         if (!moved)
             break;
     }
@@ -434,6 +439,7 @@ static lam_status oxide_grid(lam_estimate *e, size_t j, lam_model *model, lam_pr
     }
     if (!st)
         pick_maxima(im, score, n, lo, step);
+    if (DEBUGFIT) { fprintf(stderr, "grid image %zu: best %.1f (%.2f), alts", j, im->oxide.value, im->grid_best); for (int k = 0; k < 3; k++) fprintf(stderr, " %.1f(%.2f)", im->alt_oxide[k], im->alt_score[k]); fprintf(stderr, "\n"); }
     free(score);
     return st;
 }
@@ -452,11 +458,19 @@ static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
 
 /* ---- the floor from the residuals of confidently assigned regions ---- */
 
-#define FLOOR_PRIOR_SD_LOG 0.5
-#define FLOOR_MIN 0.005
-#define FLOOR_MAX 0.25
+/* The floor has an absolute part (flat-field and JPEG colour-quantisation
+ * errors, which do not scale with contrast) and a relative one (model
+ * error); both are estimated, each with a log-normal prior about the
+ * starting value so that a few regions cannot talk it to zero. */
+#define FLOOR_PRIOR_SD_LOG_REL 0.5
+#define FLOOR_PRIOR_SD_LOG_ABS 0.7
+#define FLOOR_REL_MIN 0.005
+#define FLOOR_REL_MAX 0.25
+#define FLOOR_ABS_MIN 0.001
+#define FLOOR_ABS_MAX 0.04
+#define FLOOR_STEPS 16
 
-static double floor_loglik(const lam_estimate *e, const img_work *w, double f)
+static double floor_loglik(const lam_estimate *e, const img_work *w, double fa, double fr)
 {
     size_t K = e->max_layers, H = K + 3, nc = e->channels;
     double s = 0;
@@ -470,26 +484,44 @@ static double floor_loglik(const lam_estimate *e, const img_work *w, double f)
                     continue;
                 for (size_t c = 0; c < nc; c++) {
                     double pred = w[j].ladder.contrast[h][c], d = r->mean[c] - pred;
-                    double fl = e->floor_abs + f * fabs(pred), var = r->var[c] + fl * fl;
+                    double fl = fa + fr * fabs(pred), var = r->var[c] + fl * fl;
                     s += -0.5 * (d * d / var + log(var));
                 }
             }
         }
     }
-    double z = log(f / e->floor_rel_prior) / FLOOR_PRIOR_SD_LOG;
-    return s - 0.5 * z * z;
+    double zr = log(fr / e->floor_rel_prior) / FLOOR_PRIOR_SD_LOG_REL;
+    double za = log(fa / e->opt.floor_abs) / FLOOR_PRIOR_SD_LOG_ABS;
+    return s - 0.5 * (zr * zr + za * za);
 }
 
-static double estimate_floor(const lam_estimate *e, const img_work *w)
+static void estimate_floor(const lam_estimate *e, const img_work *w, double *fa, double *fr)
 {
-    double best = -INFINITY, best_f = e->floor_rel;
-    for (int k = 0; k <= 32; k++) {
-        double f = FLOOR_MIN * pow(FLOOR_MAX / FLOOR_MIN, k / 32.0);
-        double v = floor_loglik(e, w, f);
-        if (v > best)
-            best = v, best_f = f;
-    }
-    return best_f;
+    double best = -INFINITY;
+    *fa = e->floor_abs, *fr = e->floor_rel;
+    for (int i = 0; i <= FLOOR_STEPS; i++)
+        for (int k = 0; k <= FLOOR_STEPS; k++) {
+            double a = FLOOR_ABS_MIN * pow(FLOOR_ABS_MAX / FLOOR_ABS_MIN, i / (double)FLOOR_STEPS);
+            double r = FLOOR_REL_MIN * pow(FLOOR_REL_MAX / FLOOR_REL_MIN, k / (double)FLOOR_STEPS);
+            double v = floor_loglik(e, w, a, r);
+            if (v > best)
+                best = v, *fa = a, *fr = r;
+        }
+}
+
+/* Re-estimate the floor; refit when it moved. */
+static lam_status refloor(fit_ctx *f, double *lp, lam_error *err)
+{
+    lam_estimate *e = f->e;
+    if (!e->opt.estimate_floor)
+        return LAM_OK;
+    double fa, fr;
+    estimate_floor(e, f->w, &fa, &fr);
+    if (fabs(log(fr / e->floor_rel)) <= 0.2 && fabs(log(fa / e->floor_abs)) <= 0.2)
+        return LAM_OK;
+    e->floor_abs = fa;
+    e->floor_rel = fr;
+    return run_em(f, e->opt.max_iterations, lp, err);
 }
 
 /* ---- Laplace covariance ---- */
@@ -592,40 +624,79 @@ static lam_status init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_er
     return LAM_OK;
 }
 
-/* Refit from the other grid maxima of a single image (or a few) and keep
- * the best posterior: the oxide likelihood is multimodal. */
+/* The fit is a local optimiser over a posterior with several modes: the
+ * oxide repeats its colours (other grid maxima), and an overall contrast
+ * scale trades against the layer counts (a response 20 % stronger makes a
+ * trilayer look like a bilayer of the default). The alternatives are
+ * refitted and the best posterior kept. */
+typedef struct start_point {
+    int image, alt;     /* an oxide alternative of one image (alt >= 0) ... */
+    double scale;       /* ... or the response moved by 'scale' prior sds */
+} start_point;
+
+static void apply_start(lam_estimate *e, const start_point *sp)
+{
+    if (sp->alt >= 0) {
+        e->image[sp->image].oxide.value = e->image[sp->image].alt_oxide[sp->alt];
+        return;
+    }
+    /* continuum and resonance both raise the contrast in every channel */
+    const int k[2] = {LAM_NU_CONTINUUM, LAM_NU_RESONANCE};
+    for (int i = 0; i < 2; i++) {
+        lam_nuisance *n = &e->shared[k[i]];
+        if (n->fitted)
+            n->value = clamp(n->prior_mean + sp->scale * n->prior_sd, n);
+    }
+}
+
+static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
+{
+    size_t n = 0;
+    if (e->shared[LAM_NU_CONTINUUM].fitted || e->shared[LAM_NU_RESONANCE].fitted) {
+        sp[n++] = (start_point){0, -1, 1.5};
+        sp[n++] = (start_point){0, -1, -1.5};
+    }
+    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++)
+        for (int k = 0; k < 3 && n < cap; k++) {
+            const lam_est_image *im = &e->image[j];
+            if (isfinite(im->alt_oxide[k]) && im->alt_score[k] > im->grid_best - ALT_MARGIN)
+                sp[n++] = (start_point){(int)j, k, 0};
+        }
+    return n;
+}
+
 static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
 {
     lam_estimate *e = f->e;
-    if (e->images > MAX_MULTISTART_IMAGES)
-        return LAM_OK;
-    saved_point best;
+    start_point sp[16];
+    size_t n = list_starts(e, sp, 16);
+    saved_point best, first;
     best.oxide = malloc(e->images * sizeof *best.oxide);
-    if (!best.oxide)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate");
-    save_point(e, &best);
+    first.oxide = malloc(e->images * sizeof *first.oxide);
+    lam_status st = best.oxide && first.oxide ? LAM_OK
+                                              : lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+    if (!st) {
+        save_point(e, &best);
+        save_point(e, &first);
+    }
     double best_lp = *logpost;
-    lam_status st = LAM_OK;
-    for (size_t j = 0; j < e->images && !st; j++)
-        for (int k = 0; k < 3 && !st; k++) {
-            lam_est_image *im = &e->image[j];
-            double alt = im->alt_oxide[k];
-            if (!isfinite(alt) || !(im->alt_score[k] > im->grid_best - ALT_MARGIN))
-                continue;
-            restore_point(e, &best);
-            im->oxide.value = alt;
-            double lp;
-            if ((st = run_em(f, e->opt.max_iterations, &lp, err)))
-                break;
-            if (lp > best_lp) {
-                best_lp = lp;
-                save_point(e, &best);
-            }
+    for (size_t i = 0; i < n && !st; i++) {
+        restore_point(e, &first);
+        apply_start(e, &sp[i]);
+        double lp;
+        if ((st = run_em(f, e->opt.max_iterations, &lp, err)))
+            break;
+        if (lp > best_lp + 1e-6) {
+            best_lp = lp;
+            save_point(e, &best);
         }
-    restore_point(e, &best);
-    free(best.oxide);
-    if (!st)
+    }
+    if (!st) {
+        restore_point(e, &best);
         st = objective(e, f->model, f->w, logpost, err);
+    }
+    free(best.oxide);
+    free(first.oxide);
     return st;
 }
 
@@ -643,13 +714,8 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
     e->iterations = 0;
     if (!(st = all_grids(e, model, err)) && !(st = run_em(&f, e->opt.max_iterations, &lp, err)))
         st = multistart(&f, &lp, err);
-    if (!st && e->opt.estimate_floor) {
-        double fl = estimate_floor(e, f.w);
-        if (fabs(log(fl / e->floor_rel)) > 0.2) {
-            e->floor_rel = fl;
-            st = run_em(&f, e->opt.max_iterations, &lp, err);
-        }
-    }
+    if (!st)
+        st = refloor(&f, &lp, err);
     if (!st) {
         laplace(&f);
         count_regions(e, f.w);
@@ -668,13 +734,8 @@ lam_status lam_estimate_refit(lam_estimate *e, lam_model *model, lam_error *err)
     double lp = 0;
     e->iterations = 0;
     st = run_em(&f, e->opt.max_iterations, &lp, err);
-    if (!st && e->opt.estimate_floor) {
-        double fl = estimate_floor(e, f.w);
-        if (fabs(log(fl / e->floor_rel)) > 0.2) {
-            e->floor_rel = fl;
-            st = run_em(&f, e->opt.max_iterations, &lp, err);
-        }
-    }
+    if (!st)
+        st = refloor(&f, &lp, err);
     if (!st) {
         laplace(&f);
         count_regions(e, f.w);

@@ -155,7 +155,10 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
 /* ---- the Fermi level ---- */
 
 #define ORDINARY_EF_EV 0.5      /* exfoliated graphene on SiO2: 0.1-0.3 eV (common practice) */
-#define ORDINARY_PRIOR 0.8
+/* Heavy doping (|E_F| > 0.5 eV) needs intercalation or electrolyte gating:
+ * rare on a fresh chip, so it gets 3 % of the prior - enough for a clearly
+ * blocked flake to be recognised, not enough to explain every misfit. */
+#define ORDINARY_PRIOR 0.97
 
 static void fermi_grid(lam_fermi_table *t)
 {

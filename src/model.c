@@ -40,8 +40,9 @@ struct lam_model {
     lam_camera camera;       /* borrowed table pointers: the setup must outlive only alloc */
     lam_table_spectrum camera_table_copy;
     double *wl, *trapezoid, *lamp; /* nwl */
-    double *weight;          /* channels x nwl, for 'weight_shift' */
-    double weight_shift[LAM_MAX_CHANNELS];
+    double *weight;          /* channels x nwl, for 'weight_cam' */
+    double weight_cam[2 * LAM_MAX_CHANNELS]; /* the shifts and log widths it was made for */
+    double centroid[LAM_MAX_CHANNELS];       /* of each channel's S L, nm */
     int have_weight;
     double complex *n_layer; /* layers x nwl */
     double complex *n_base;  /* nwl */
@@ -187,6 +188,12 @@ static lam_status init_spectrum(lam_model *m, const lam_setup *s, const lam_grid
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
     /* checks that every channel sees light; the weights are rebuilt per shift */
     lam_status st = lam_spectrum_weights(g, &s->illuminant, cam, w, err);
+    for (size_t c = 0; c < m->channels && !st; c++) {
+        double sw = 0, swl = 0;
+        for (size_t l = 0; l < g->count; l++)
+            sw += w[c][l], swl += w[c][l] * g->nm[l];
+        m->centroid[c] = swl / sw;
+    }
     free(w);
     for (size_t l = 0; l < m->nwl && !st; l++) {
         m->wl[l] = g->nm[l];
@@ -242,6 +249,10 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
     d->v[LAM_MP_CONTINUUM] = s->sheet.continuum;
     d->v[LAM_MP_RESONANCE] = s->sheet.resonance;
     d->v[LAM_MP_BACKGROUND] = s->sheet.background;
+    for (size_t c = 0; c < m->channels; c++) {
+        d->v[LAM_MP_SHIFT + c] = mono_nm > 0 ? 0 : s->camera_shift_nm[c];
+        d->v[LAM_MP_WIDTH + c] = mono_nm > 0 ? 0 : log(s->camera_width[c]);
+    }
     m->cone_cache.na = -1;
     free(grid);
     *out = m;
@@ -275,21 +286,28 @@ double lam_model_step(lam_model_param k)
     case LAM_MP_CONTINUUM: return 0.02;
     case LAM_MP_RESONANCE: return 0.1;
     case LAM_MP_BACKGROUND: return 1.0;
-    default: return 1.0; /* channel shifts, nm */
+    default:
+        return k >= LAM_MP_WIDTH ? 0.02 : 1.0; /* channel width (log), shift (nm) */
     }
 }
 
 /* ---- the pieces of one evaluation, each cached ---- */
 
-static lam_status ensure_weights(lam_model *m, const double *shift, lam_error *err)
+/* Channel weights for the point's shifts and width scales. */
+static lam_status ensure_weights(lam_model *m, const lam_model_point *p, lam_error *err)
 {
-    if (m->have_weight && !memcmp(shift, m->weight_shift, m->channels * sizeof *shift))
+    double cam[2 * LAM_MAX_CHANNELS];
+    memcpy(cam, &p->v[LAM_MP_SHIFT], LAM_MAX_CHANNELS * sizeof *cam);
+    memcpy(cam + LAM_MAX_CHANNELS, &p->v[LAM_MP_WIDTH], LAM_MAX_CHANNELS * sizeof *cam);
+    if (m->have_weight && !memcmp(cam, m->weight_cam, sizeof cam))
         return LAM_OK;
+    const double *shift = cam;
     for (size_t c = 0; c < m->channels; c++) {
-        double sum = 0, *w = m->weight + c * m->nwl;
+        double sum = 0, *w = m->weight + c * m->nwl, inv = exp(-cam[LAM_MAX_CHANNELS + c]);
+        double cen = m->centroid[c];
         for (size_t l = 0; l < m->nwl; l++) {
-            w[l] = lam_camera_eval(&m->camera, c, m->wl[l] - shift[c]) * m->lamp[l] *
-                   m->trapezoid[l];
+            double at = cen + (m->wl[l] - shift[c] - cen) * inv;
+            w[l] = lam_camera_eval(&m->camera, c, at) * m->lamp[l] * m->trapezoid[l];
             sum += w[l];
         }
         if (!(sum > 0) || !isfinite(sum))
@@ -298,8 +316,8 @@ static lam_status ensure_weights(lam_model *m, const double *shift, lam_error *e
                                  shift[c]);
         for (size_t l = 0; l < m->nwl; l++)
             w[l] /= sum;
-        m->weight_shift[c] = shift[c];
     }
+    memcpy(m->weight_cam, cam, sizeof cam);
     m->have_weight = 1;
     return LAM_OK;
 }
@@ -562,7 +580,7 @@ lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t l
         layers = m->max_layers;
     lam_status st;
     if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) ||
-        (st = ensure_weights(m, &p->v[LAM_MP_SHIFT], err)) ||
+        (st = ensure_weights(m, p, err)) ||
         (!m->n_film && (st = fill_sheet(m, p, err))))
         return st;
     const substrate_slot *s = substrate_for(m, oxide);

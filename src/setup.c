@@ -48,8 +48,11 @@ void lam_setup_default(lam_setup *s)
     s->grid_lo_nm = 380;
     s->grid_hi_nm = 780;
     s->grid_step_nm = 2;
+    for (int c = 0; c < LAM_MAX_CHANNELS; c++)
+        s->camera_gain[c] = s->camera_width[c] = 1;
     s->sigma.na = s->sigma.shift_nm = s->sigma.resonance = NAN;
-    s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = NAN;
+    s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = s->sigma.log_gain = NAN;
+    s->sigma.log_width = NAN;
     for (size_t i = 0; i < N_KEYS; i++)
         s->defaulted[i] = all_keys[i];
     s->defaulted_count = N_KEYS;
@@ -217,38 +220,70 @@ static lam_status parse_illuminant(const cJSON *o, lam_setup *s, const char *dir
     return LAM_OK;
 }
 
+/* 1 to 3 Gaussian channels: one for a monochrome camera behind a filter,
+ * else R, G, B in that order. */
+static lam_status parse_gaussian(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    const cJSON *ch = cJSON_GetObjectItemCaseSensitive(o, "channels");
+    int n = cJSON_GetArraySize(ch);
+    if (!cJSON_IsArray(ch) || n < 1 || n > LAM_MAX_CHANNELS)
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key camera.channels: expected 1 (monochrome) to 3 (R, G, B) "
+                             "channels");
+    s->camera.kind = LAM_CAMERA_GAUSSIAN;
+    s->camera.channels = (size_t)n;
+    for (int c = 0; c < n; c++) {
+        const cJSON *item = cJSON_GetArrayItem(ch, c);
+        int f1, f2;
+        char key[64];
+        snprintf(key, sizeof key, "camera.channels[%d].centre_nm", c);
+        lam_status st = get_number(item, "centre_nm", key, 350, 850, &s->camera.centre_nm[c], &f1,
+                                   err);
+        if (st)
+            return st;
+        snprintf(key, sizeof key, "camera.channels[%d].fwhm_nm", c);
+        if ((st = get_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2, err)))
+            return st;
+        if (!f1 || !f2)
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key camera.channels[%d]: needs centre_nm and fwhm_nm", c);
+    }
+    return LAM_OK;
+}
+
+/* "shift_nm" and "contrast_gain": a calibration's corrections, one value
+ * per channel. */
+static lam_status parse_channel_values(const cJSON *o, const char *name, size_t channels,
+                                       double lo, double hi, double *out, lam_error *err)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, name);
+    if (!v)
+        return LAM_OK;
+    if (!cJSON_IsArray(v) || (size_t)cJSON_GetArraySize(v) != channels)
+        return lam_error_set(err, LAM_EFORMAT, "key camera.%s: expected %zu numbers (one per "
+                             "channel)", name, channels);
+    for (size_t c = 0; c < channels; c++) {
+        const cJSON *x = cJSON_GetArrayItem(v, (int)c);
+        if (!cJSON_IsNumber(x) || !(x->valuedouble >= lo && x->valuedouble <= hi))
+            return lam_error_set(err, LAM_ERANGE, "key camera.%s[%zu]: expected %g to %g", name,
+                                 c, lo, hi);
+        out[c] = x->valuedouble;
+    }
+    return LAM_OK;
+}
+
 static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, lam_error *err)
 {
     const cJSON *kind = cJSON_GetObjectItemCaseSensitive(o, "kind");
     if (!cJSON_IsString(kind))
         return lam_error_set(err, LAM_EFORMAT, "key camera.kind: expected a string");
     const char *k = kind->valuestring;
+    lam_status st = LAM_OK;
     s->camera.channels = 3;
     if (!strcmp(k, "srgb-observer")) {
         s->camera.kind = LAM_CAMERA_SRGB_OBSERVER;
     } else if (!strcmp(k, "gaussian")) {
-        const cJSON *ch = cJSON_GetObjectItemCaseSensitive(o, "channels");
-        if (!cJSON_IsArray(ch) || cJSON_GetArraySize(ch) != 3)
-            return lam_error_set(err, LAM_EFORMAT,
-                                 "key camera.channels: expected 3 channels (R, G, B)");
-        s->camera.kind = LAM_CAMERA_GAUSSIAN;
-        for (int c = 0; c < 3; c++) {
-            const cJSON *item = cJSON_GetArrayItem(ch, c);
-            int f1, f2;
-            char key[64];
-            snprintf(key, sizeof key, "camera.channels[%d].centre_nm", c);
-            lam_status st = get_number(item, "centre_nm", key, 350, 850,
-                                       &s->camera.centre_nm[c], &f1, err);
-            if (st)
-                return st;
-            snprintf(key, sizeof key, "camera.channels[%d].fwhm_nm", c);
-            if ((st = get_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2,
-                                 err)))
-                return st;
-            if (!f1 || !f2)
-                return lam_error_set(err, LAM_EFORMAT,
-                                     "key camera.channels[%d]: needs centre_nm and fwhm_nm", c);
-        }
+        st = parse_gaussian(o, s, err);
     } else if (!strcmp(k, "table")) {
         const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
         if (!cJSON_IsString(f))
@@ -256,12 +291,22 @@ static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, la
         char path[1024];
         join_path(path, sizeof path, dir, f->valuestring);
         s->camera.kind = LAM_CAMERA_TABLE;
-        return lam_table_spectrum_load(path, 3, &s->camera.table, err);
+        if (!(st = lam_table_spectrum_load(path, 0, &s->camera.table, err)))
+            s->camera.channels = s->camera.table.columns;
     } else {
         return lam_error_set(err, LAM_EINVAL,
                              "key camera.kind: '%s' is not srgb-observer, gaussian or table", k);
     }
-    return LAM_OK;
+    if (!st)
+        st = parse_channel_values(o, "shift_nm", s->camera.channels, -100, 100,
+                                  s->camera_shift_nm, err);
+    if (!st)
+        st = parse_channel_values(o, "contrast_gain", s->camera.channels, 0.2, 2,
+                                  s->camera_gain, err);
+    if (!st)
+        st = parse_channel_values(o, "width_scale", s->camera.channels, 0.4, 2.5,
+                                  s->camera_width, err);
+    return st;
 }
 
 static lam_status parse_substrate(const cJSON *o, lam_setup *s, const char *dir,
@@ -339,6 +384,8 @@ static lam_status parse_uncertainty(const cJSON *o, lam_setup *s, lam_error *err
     static const struct { const char *name; double hi; size_t off; } keys[] = {
         {"illumination_na", 0.5, offsetof(lam_setup, sigma.na)},
         {"camera_shift_nm", 100, offsetof(lam_setup, sigma.shift_nm)},
+        {"camera_log_gain", 2, offsetof(lam_setup, sigma.log_gain)},
+        {"camera_log_width", 2, offsetof(lam_setup, sigma.log_width)},
         {"resonance", 30, offsetof(lam_setup, sigma.resonance)},
         {"background", 200, offsetof(lam_setup, sigma.background)},
         {"continuum", 2, offsetof(lam_setup, sigma.continuum)},
@@ -562,11 +609,27 @@ static void add_sigma(cJSON *o, const char *name, double v)
         cJSON_AddNumberToObject(o, name, v);
 }
 
+/* A per-channel array, written only when some value differs from 'neutral'. */
+static void add_channel_values(cJSON *o, const char *name, const double *v, size_t n,
+                               double neutral, double scale)
+{
+    int any = 0;
+    for (size_t c = 0; c < n; c++)
+        any |= v[c] != neutral;
+    if (!any)
+        return;
+    double r[LAM_MAX_CHANNELS];
+    for (size_t c = 0; c < n; c++)
+        r[c] = round(v[c] * scale) / scale;
+    cJSON_AddItemToObject(o, name, cJSON_CreateDoubleArray(r, (int)n));
+}
+
 static void add_uncertainty(cJSON *root, const lam_setup *s)
 {
     const lam_setup_sigma *u = &s->sigma;
     if (!isfinite(u->na) && !isfinite(u->shift_nm) && !isfinite(u->resonance) &&
-        !isfinite(u->background) && !isfinite(u->continuum) && !isfinite(u->oxide_nm))
+        !isfinite(u->background) && !isfinite(u->continuum) && !isfinite(u->oxide_nm) &&
+        !isfinite(u->log_gain) && !isfinite(u->log_width))
         return;
     cJSON *o = cJSON_AddObjectToObject(root, "uncertainty");
     add_sigma(o, "illumination_na", u->na);
@@ -574,6 +637,8 @@ static void add_uncertainty(cJSON *root, const lam_setup *s)
     add_sigma(o, "resonance", u->resonance);
     add_sigma(o, "background", u->background);
     add_sigma(o, "continuum", u->continuum);
+    add_sigma(o, "camera_log_gain", u->log_gain);
+    add_sigma(o, "camera_log_width", u->log_width);
     add_sigma(o, "oxide_nm", u->oxide_nm);
 }
 
@@ -609,7 +674,7 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
     cJSON_AddStringToObject(cam, "kind", ck[s->camera.kind]);
     if (s->camera.kind == LAM_CAMERA_GAUSSIAN) {
         cJSON *ch = cJSON_AddArrayToObject(cam, "channels");
-        for (int c = 0; c < 3; c++) {
+        for (size_t c = 0; c < s->camera.channels; c++) {
             cJSON *o = cJSON_CreateObject();
             cJSON_AddNumberToObject(o, "centre_nm", round(s->camera.centre_nm[c] * 10) / 10);
             cJSON_AddNumberToObject(o, "fwhm_nm", round(s->camera.fwhm_nm[c] * 10) / 10);
@@ -618,6 +683,9 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
     }
     if (s->camera.kind == LAM_CAMERA_TABLE)
         cJSON_AddStringToObject(cam, "file", s->camera.table.file);
+    add_channel_values(cam, "shift_nm", s->camera_shift_nm, s->camera.channels, 0, 100);
+    add_channel_values(cam, "contrast_gain", s->camera_gain, s->camera.channels, 1, 1e4);
+    add_channel_values(cam, "width_scale", s->camera_width, s->camera.channels, 1, 1e4);
     if (s->encoding.kind == LAM_TRANSFER_GAMMA) {
         cJSON *g = cJSON_AddObjectToObject(root, "encoding");
         cJSON_AddNumberToObject(g, "gamma", s->encoding.gamma);

@@ -35,7 +35,12 @@ static void make_scene(const char *path, int scene_no, double oxide_true, double
 {
     FILE *f = fopen(path, "w");
     const int W = 640, H = 480;
+    /* the microscope is known to the analysis (camera and NA given), the
+     * response and the true oxide are not */
     fprintf(f, "{\"schema\":\"lamina-scene/1\",\"setup\":{\"schema\":\"lamina-setup/1\","
+               "\"objective\":{\"illumination_na\":0.55},\"camera\":{\"kind\":\"gaussian\","
+               "\"channels\":[{\"centre_nm\":605,\"fwhm_nm\":80},{\"centre_nm\":535,"
+               "\"fwhm_nm\":75},{\"centre_nm\":465,\"fwhm_nm\":70}]},"
                "\"um_per_px\":0.2,\"substrate\":{\"stack\":[{\"material\":\"SiO2\","
                "\"thickness_nm\":%.1f}]}},\"width\":%d,\"height\":%d,\"oxide_nm\":%.2f,"
                "\"exposure\":%.3f,\"vignetting\":%.3f,\"gradient\":[%.3f,%.3f],\"blur_px\":%.2f,"

@@ -1,16 +1,27 @@
 /*
- * lamina/calibrate.h - fit a setup profile (camera channel centres and
- * widths, illumination NA, the oxide of each image) to regions of known
- * layer count, or, with "self" calibration, to regions whose layer count is
- * whatever fits best.
+ * lamina/calibrate.h - a setup profile fitted to regions of known layer
+ * count (labels: a Raman-confirmed flake is enough to start), or, with
+ * "self" calibration, to regions whose layer counts are left latent.
  *
- * Samples are region means of contrast with their noise; the fit minimises
- * sum (m_c - C_c(N; theta))^2 / sigma^2 with sigma^2 = kappa noise^2 / n +
- * floor^2 (calibration floor 0.003) by GSL's Levenberg-Marquardt
- * (multifit_nlinear, finite-difference Jacobian) on the coarse model.
- * Uncertainties are from the covariance (J^T J)^-1, scaled by chi2/dof when
- * that exceeds 1. Self-calibration is honest only with several layer counts
- * and oxides in the data: its result reports the condition number.
+ * The fit is the analysis' own joint estimate (lamina/estimate.h) with the
+ * labelled regions' layer counts fixed: graphene's visible response, the
+ * illumination NA, each channel's wavelength shift and contrast gain, and
+ * each image's oxide (fixed where --known-oxide gives it). Every value
+ * comes with its posterior standard deviation; a value the labels barely
+ * inform (posterior sd above half its prior sd) is reported as "not
+ * constrained" and the profile keeps the prior's value and spread for it.
+ * A labelled region that the fitted model still cannot reproduce (its
+ * chi-square p-value below 1e-3) makes the calibration fail with a message
+ * naming it: a wrong label, oxide or encoding would otherwise be baked into
+ * every later analysis.
+ *
+ * The written profile carries the fitted values in the ordinary keys
+ * (conductivity.resonance ..., objective.illumination_na, camera.shift_nm,
+ * camera.contrast_gain) and their spreads under "uncertainty", so the
+ * analyses that use it start from a tight prior.
+ *
+ * Ownership: lam_calib_set_init / lam_calib_set_clear; lam_calib_result
+ * borrows the start setup's materials (do not clear both).
  */
 #ifndef LAMINA_CALIBRATE_H
 #define LAMINA_CALIBRATE_H
@@ -18,42 +29,61 @@
 #include <stddef.h>
 #include <stdint.h>
 #include "lamina/error.h"
+#include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/setup.h"
 
-#define LAM_CALIB_MAX_IMAGES 32
+#define LAM_CALIB_MAX_IMAGES 64
 
-typedef struct lam_calib_sample {
-    size_t image;      /* index of the image (each has its own oxide) */
-    int layers;        /* known N, or 0 for self-calibration */
-    double mean[3], noise[3], kappa, n;
-} lam_calib_sample;
+typedef struct lam_calib_image {
+    char path[1024];
+    size_t count;
+    lam_est_region *regions;  /* owned */
+    double known_oxide;       /* NAN: fitted */
+} lam_calib_image;
 
 typedef struct lam_calib_set {
-    size_t count, cap, images;
-    lam_calib_sample *samples;
+    size_t images;
+    lam_calib_image image[LAM_CALIB_MAX_IMAGES];
 } lam_calib_set;
 
+/* A fitted value, or the reason there is none. */
+typedef struct lam_calib_value {
+    const char *name;
+    double value, sigma, prior_sd;
+    int fitted;       /* free in the fit */
+    int constrained;  /* sigma < 0.5 prior_sd */
+} lam_calib_value;
+
+typedef struct lam_calib_residual {
+    size_t image, region;
+    int layers;
+    double measured[LAM_MAX_CHANNELS], model[LAM_MAX_CHANNELS], sigma[LAM_MAX_CHANNELS];
+    double chi2, pvalue;
+} lam_calib_residual;
+
 typedef struct lam_calib_result {
-    lam_setup setup;   /* the start setup with the fitted values (borrowed materials) */
-    double centre[3], fwhm[3], na, oxide[LAM_CALIB_MAX_IMAGES];
-    double centre_sigma[3], fwhm_sigma[3], na_sigma, oxide_sigma[LAM_CALIB_MAX_IMAGES];
-    int oxide_known[LAM_CALIB_MAX_IMAGES];
-    double rms_before, rms_after; /* RMS normalised residual */
-    double chi2_before, chi2_after, condition;
-    size_t samples, images, iterations;
+    lam_setup setup;                      /* the profile to write (borrows materials) */
+    size_t channels, images, labelled;
+    lam_calib_value shared[LAM_NU_COUNT];
+    lam_calib_value oxide[LAM_CALIB_MAX_IMAGES];
+    size_t residuals;
+    lam_calib_residual *residual;         /* one per labelled region, owned */
+    double floor_rel, chi2, dof;
 } lam_calib_result;
 
 void lam_calib_set_init(lam_calib_set *s);
 void lam_calib_set_clear(lam_calib_set *s);
+void lam_calib_result_clear(lam_calib_result *r);
 
 /* Measure the labelled regions of one image: labels is a layer-map coded
  * 8-bit map of the image's size (0 substrate, N layers, 254/255 ignored);
  * each connected labelled area with at least 50 interior pixels is one
- * sample. */
+ * region of known layer count. The image is read in the setup's encoding
+ * and channels. */
 lam_status lam_calib_measure_labels(lam_calib_set *set, const char *image_path,
                                     const uint8_t *labels, size_t width, size_t height,
-                                    const lam_load_options *load, lam_error *err);
+                                    const lam_setup *setup, lam_error *err);
 
 /* Turn a label file ("lamina-labels/1" JSON: {"labels": [{"layers": N,
  * "polygon": [[x, y], ...]} or {"layers": N, "point": [x, y]}]}) into a
@@ -64,22 +94,16 @@ lam_status lam_calib_labels_from_json(const char *json_path, const char *image_p
                                       const lam_setup *setup, size_t width, size_t height,
                                       uint8_t *map, lam_error *err);
 
-/* Add the confident regions of an analysis-like measurement without labels
- * (for self-calibration): every region of the image's segmentation with at
- * least 200 interior pixels that is not unmodelled. */
+/* Add an image's segmented regions with latent layer counts (self
+ * calibration): the analysis' own regions that may inform a fit. */
 lam_status lam_calib_measure_self(lam_calib_set *set, const char *image_path,
                                   const lam_setup *setup, lam_error *err);
 
-/* Fit; start values from 'start' (a gaussian camera, or the generic one).
- * known_oxide[image] (may be NULL; NAN entries are fitted) fixes oxides
- * measured elsewhere (ellipsometry). Channel centres and oxide thickness
- * are nearly degenerate: scaling both by one factor leaves the contrast
- * almost unchanged (only dispersion tells them apart), so fix at least one
- * image's oxide when the camera is unknown. A fitted oxide starts at the
- * best value of a 20-400 nm scan. known_na (NAN = fitted) fixes the
- * illumination NA, which is correlated with the centres in the same way
- * (oblique rays shorten the optical path). */
-lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set, int self,
+/* Fit. known_oxide[image] (may be NULL; NAN entries are fitted) fixes
+ * oxides measured elsewhere (ellipsometry); known_na (NAN = fitted) fixes
+ * the illumination NA. LAM_ERANGE with the worst region named when a
+ * labelled region cannot be reproduced. */
+lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set,
                          const double *known_oxide, double known_na, lam_calib_result *out,
                          lam_error *err);
 

@@ -63,7 +63,7 @@ typedef struct lam_illuminant {
 
 typedef struct lam_camera {
     lam_camera_kind kind;
-    size_t channels;                              /* 3, or 1 for MONO */
+    size_t channels;                              /* 1 to 3 (1: a monochrome camera) */
     double centre_nm[LAM_MAX_CHANNELS], fwhm_nm[LAM_MAX_CHANNELS]; /* GAUSSIAN */
     lam_table_spectrum table;                     /* TABLE, owned */
 } lam_camera;
@@ -92,7 +92,8 @@ lam_status lam_spectrum_weights(const lam_grid *g, const lam_illuminant *il,
                                 lam_error *err);
 
 /* Read a CSV spectrum with a header whose first field is wavelength_nm and
- * 'columns' value columns. The error names the file and line. */
+ * 'columns' value columns (0: as many as the header names, 1 to 3). The
+ * error names the file and line. */
 lam_status lam_table_spectrum_load(const char *path, size_t columns,
                                    lam_table_spectrum *out, lam_error *err);
 void lam_table_spectrum_clear(lam_table_spectrum *t);

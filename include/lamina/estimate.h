@@ -48,7 +48,8 @@ enum {
     LAM_NU_BACKGROUND,
     LAM_NU_NA,            /* illumination NA */
     LAM_NU_SHIFT,         /* per channel: wavelength shift, nm */
-    LAM_NU_GAIN = LAM_NU_SHIFT + LAM_MAX_CHANNELS, /* per channel: ln(contrast gain) */
+    LAM_NU_WIDTH = LAM_NU_SHIFT + LAM_MAX_CHANNELS, /* per channel: ln(width scale) */
+    LAM_NU_GAIN = LAM_NU_WIDTH + LAM_MAX_CHANNELS, /* per channel: ln(contrast gain) */
     LAM_NU_COUNT = LAM_NU_GAIN + LAM_MAX_CHANNELS
 };
 

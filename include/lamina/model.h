@@ -16,7 +16,9 @@
  * What the analysis treats as uncertain is a "model point": a vector of
  * LAM_MP_COUNT numbers (oxide thickness, illumination NA, Fermi level, the
  * three parameters of graphene's visible response - lamina/conductivity.h -
- * and a wavelength shift of each camera channel). lam_model_eval_point
+ * and a wavelength shift and width scale of each camera channel: a channel's
+ * sensitivity S(l) becomes S(c + (l - shift - c) / exp(width)), c its
+ * centroid). lam_model_eval_point
  * evaluates any point; lam_model_point_default gives the setup's. The model
  * caches what does not change between nearby points (sheet conductivity
  * per Fermi level, cone nodes per NA, the substrate's admittance per oxide
@@ -59,6 +61,8 @@ typedef enum lam_model_param {
     LAM_MP_BACKGROUND,
     LAM_MP_SHIFT,       /* nm added to channel 1's wavelengths ... */
     LAM_MP_SHIFT_LAST = LAM_MP_SHIFT + LAM_MAX_CHANNELS - 1, /* ... to channel 3's */
+    LAM_MP_WIDTH,       /* ln of each channel's width scale (about its centroid) */
+    LAM_MP_WIDTH_LAST = LAM_MP_WIDTH + LAM_MAX_CHANNELS - 1,
     LAM_MP_COUNT
 } lam_model_param;
 

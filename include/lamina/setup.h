@@ -31,7 +31,7 @@ typedef enum lam_pupil_weight {
 /* One standard deviation of values the profile gives, NAN when it says
  * nothing ("uncertainty" in the file; a calibration writes it). */
 typedef struct lam_setup_sigma {
-    double na, shift_nm, resonance, background, continuum, oxide_nm;
+    double na, shift_nm, log_gain, log_width, resonance, background, continuum, oxide_nm;
 } lam_setup_sigma;
 
 typedef struct lam_setup {
@@ -42,6 +42,9 @@ typedef struct lam_setup {
     lam_material ambient;
     lam_illuminant illuminant;
     lam_camera camera;
+    double camera_shift_nm[LAM_MAX_CHANNELS]; /* calibrated wavelength shift per channel (0) */
+    double camera_gain[LAM_MAX_CHANNELS];     /* calibrated contrast gain per channel (1) */
+    double camera_width[LAM_MAX_CHANNELS];    /* calibrated width scale per channel (1) */
     lam_transfer encoding;
     double um_per_px;       /* 0 when unknown */
     size_t layers;          /* substrate films from the top down */

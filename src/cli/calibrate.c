@@ -16,14 +16,16 @@ static void calibrate_help(FILE *out)
 {
     fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
           "       lamina calibrate --self [OPTIONS] IMAGE...\n"
-          "Fit the camera channel centres and widths, the illumination NA and each\n"
-          "image's oxide thickness so that the model reproduces the measured contrast\n"
-          "of regions of known layer count. LABELS.png uses the layer-map coding (0\n"
+          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
+          "wavelength shift and contrast gain, and each image's oxide so that the\n"
+          "model reproduces the measured contrast of regions of known layer count (one\n"
+          "Raman-confirmed flake is enough to start). Values the labels do not\n"
+          "constrain are reported as such and keep their prior. LABELS.png uses the layer-map coding (0\n"
           "substrate, N layers, 254/255 ignored), one per image, in the same order;\n"
           "or LABELS.json (lamina-labels/1): polygons or points with layer counts, a\n"
           "point taking the whole segmented region around it.\n"
-          "--self fits without labels, each region taking the layer count that fits\n"
-          "best: use several images with several layer counts and oxides.\n\n"
+          "--self fits without labels, the layer counts left latent (marginalised):\n"
+          "use several images with several layer counts.\n\n"
           "  --setup FILE     start values (default: calib/default-setup.json)\n"
           "  --oxide NM       starting oxide\n"
           "  --known-oxide D1,D2,...  oxides measured elsewhere, in image order ('-' = fit);\n"
@@ -35,7 +37,34 @@ static void calibrate_help(FILE *out)
           out);
 }
 
-static int run_calibrate(int argc, char **argv)
+typedef struct calib_args {
+    cli_setup_opts so;
+    const char *labels[MAX_LABELS], *out;
+    size_t nl, nk;
+    int self;
+    double known[LAM_CALIB_MAX_IMAGES], known_na;
+} calib_args;
+
+static int parse_known_oxide(calib_args *A, const char *arg)
+{
+    /* comma-separated, in image order; '-' leaves one free */
+    char *save = NULL, *tok, buf[1024];
+    snprintf(buf, sizeof buf, "%s", arg);
+    for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+        if (A->nk == LAM_CALIB_MAX_IMAGES)
+            return cli_usage_error("calibrate", "--known-oxide: too many values");
+        if (!strcmp(tok, "-")) {
+            A->known[A->nk++] = NAN;
+            continue;
+        }
+        if (cli_parse_double("calibrate", "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
+            return CLI_EUSAGE;
+        A->nk++;
+    }
+    return 0;
+}
+
+static int parse_args(int argc, char **argv, calib_args *A)
 {
     static const struct option longopts[] = {CLI_SETUP_LONGOPTS,
                                              {"labels", required_argument, 0, 'l'},
@@ -45,51 +74,35 @@ static int run_calibrate(int argc, char **argv)
                                              {"known-oxide", required_argument, 0, 'k'},
                                              {"known-na", required_argument, 0, 'N'},
                                              {0, 0, 0, 0}};
-    cli_setup_opts so;
-    cli_setup_opts_init(&so);
-    const char *labels[MAX_LABELS], *out = "calibrated.json";
-    size_t nl = 0;
-    int self = 0, c, r;
-    double known[LAM_CALIB_MAX_IMAGES];
-    size_t nk = 0;
-    double known_na = NAN;
+    memset(A, 0, sizeof *A);
+    cli_setup_opts_init(&A->so);
+    A->out = "calibrated.json";
+    A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
-        known[i] = NAN;
+        A->known[i] = NAN;
+    int c, r;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "o:", longopts, NULL)) != -1) {
         switch (c) {
         case 'l':
-            if (nl == MAX_LABELS)
+            if (A->nl == MAX_LABELS)
                 return cli_usage_error("calibrate", "at most %d label files", MAX_LABELS);
-            labels[nl++] = optarg;
+            A->labels[A->nl++] = optarg;
             break;
-        case 'S': self = 1; break;
-        case 'o': out = optarg; break;
+        case 'S': A->self = 1; break;
+        case 'o': A->out = optarg; break;
         case 'q': cli_quiet = 1; break;
         case 'N':
-            if (cli_parse_double("calibrate", "--known-na", optarg, 0, 0.95, &known_na))
+            if (cli_parse_double("calibrate", "--known-na", optarg, 0, 0.95, &A->known_na))
                 return CLI_EUSAGE;
             break;
-        case 'k': {
-            /* comma-separated, in image order; '-' leaves one free */
-            char *save = NULL, *tok, buf[1024];
-            snprintf(buf, sizeof buf, "%s", optarg);
-            for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
-                if (nk == LAM_CALIB_MAX_IMAGES)
-                    return cli_usage_error("calibrate", "--known-oxide: too many values");
-                if (!strcmp(tok, "-")) {
-                    known[nk++] = NAN;
-                    continue;
-                }
-                if (cli_parse_double("calibrate", "--known-oxide", tok, 1, 5000, &known[nk]))
-                    return CLI_EUSAGE;
-                nk++;
-            }
+        case 'k':
+            if ((r = parse_known_oxide(A, optarg)))
+                return r;
             break;
-        }
         default:
-            if ((r = cli_setup_option(&so, "calibrate", c, optarg)) > 0)
+            if ((r = cli_setup_option(&A->so, "calibrate", c, optarg)) > 0)
                 break;
             if (r < 0)
                 return CLI_EUSAGE;
@@ -99,128 +112,170 @@ static int run_calibrate(int argc, char **argv)
     size_t ni = (size_t)(argc - optind);
     if (!ni)
         return cli_usage_error("calibrate", "no image given");
-    if (!self && nl != ni)
-        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, %zu images), or --self", nl, ni);
-    if (self && nl)
+    if (!A->self && A->nl != ni)
+        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, %zu images), or --self", A->nl, ni);
+    if (A->self && A->nl)
         return cli_usage_error("calibrate", "--self and --labels exclude each other");
     if (ni > LAM_CALIB_MAX_IMAGES)
         return cli_usage_error("calibrate", "at most %d images", LAM_CALIB_MAX_IMAGES);
-    lam_setup s;
-    int rc = cli_setup_build("calibrate", &so, &s);
-    if (rc)
-        return rc;
-    lam_calib_set set;
-    lam_calib_set_init(&set);
+    if (A->nk > ni)
+        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A->nk, ni);
+    return 0;
+}
+
+/* The label map of one image from a layer-map PNG or a label JSON file. */
+static int read_labels(const char *labels, const char *img, const lam_setup *s, uint8_t **codes,
+                       size_t *w, size_t *h)
+{
     lam_error err;
-    for (size_t i = 0; i < ni && !rc; i++) {
-        const char *img = argv[optind + (int)i];
+    lam_error_clear(&err);
+    size_t len = strlen(labels);
+    if (len > 5 && !strcmp(labels + len - 5, ".json")) {
+        /* polygons or points: the image's size decides the map's */
+        lam_image *im = NULL;
+        if (lam_image_load(img, NULL, &im, &err))
+            return cli_report(&err, img);
+        *w = im->width, *h = im->height;
+        lam_image_free(im);
+        if (!(*codes = malloc(*w * *h)))
+            return CLI_EFILE;
+        if (lam_calib_labels_from_json(labels, img, s, *w, *h, *codes, &err))
+            return cli_report(&err, labels);
+        return 0;
+    }
+    lam_load_options lo = lam_load_options_default();
+    lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
+    lam_image *lab = NULL;
+    if (lam_image_load(labels, &lo, &lab, &err))
+        return cli_report(&err, labels);
+    *w = lab->width, *h = lab->height;
+    if ((*codes = malloc(*w * *h)))
+        for (size_t k = 0; k < *w * *h; k++) {
+            double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
+            (*codes)[k] = (uint8_t)(v > 255 ? 255 : lround(v));
+        }
+    lam_image_free(lab);
+    return *codes ? 0 : CLI_EFILE;
+}
+
+static int measure_all(const calib_args *A, char **images, size_t ni, const lam_setup *s,
+                       lam_calib_set *set)
+{
+    for (size_t i = 0; i < ni; i++) {
+        lam_error err;
         lam_error_clear(&err);
-        if (self) {
-            if (lam_calib_measure_self(&set, img, &s, &err))
-                rc = cli_report(&err, img);
+        if (A->self) {
+            if (lam_calib_measure_self(set, images[i], s, &err))
+                return cli_report(&err, images[i]);
             continue;
         }
-        size_t lw = 0, lh = 0;
         uint8_t *codes = NULL;
-        size_t len = strlen(labels[i]);
-        if (len > 5 && !strcmp(labels[i] + len - 5, ".json")) {
-            /* polygons or points: the image's size decides the map's */
-            lam_image *im = NULL;
-            if (lam_image_load(img, NULL, &im, &err)) {
-                rc = cli_report(&err, img);
-                break;
-            }
-            lw = im->width, lh = im->height;
-            lam_image_free(im);
-            codes = malloc(lw * lh);
-            if (!codes || lam_calib_labels_from_json(labels[i], img, &s, lw, lh, codes, &err)) {
-                rc = codes ? cli_report(&err, labels[i]) : CLI_EFILE;
-                free(codes);
-                break;
-            }
-        } else {
-            lam_load_options lo = lam_load_options_default();
-            lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
-            lam_image *lab = NULL;
-            if (lam_image_load(labels[i], &lo, &lab, &err)) {
-                rc = cli_report(&err, labels[i]);
-                break;
-            }
-            lw = lab->width, lh = lab->height;
-            codes = malloc(lw * lh);
-            if (!codes) {
-                lam_image_free(lab);
-                rc = CLI_EFILE;
-                break;
-            }
-            for (size_t k = 0; k < lw * lh; k++) {
-                double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
-                codes[k] = (uint8_t)(v > 255 ? 255 : lround(v));
-            }
-            lam_image_free(lab);
-        }
-        lam_load_options il = lam_load_options_default();
-        if (!lam_setup_is_default(&s, "encoding"))
-            il.transfer = s.encoding;
-        if (lam_calib_measure_labels(&set, img, codes, lw, lh, &il, &err))
-            rc = cli_report(&err, img);
+        size_t w = 0, h = 0;
+        int rc = read_labels(A->labels[i], images[i], s, &codes, &w, &h);
+        if (!rc && lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
+            rc = cli_report(&err, images[i]);
         free(codes);
+        if (rc)
+            return rc;
     }
+    return 0;
+}
+
+static void print_value(const lam_calib_value *v, const char *unit)
+{
+    if (!v->fitted)
+        printf("  %-18s %10.4g %s (given)\n", v->name, v->value, unit);
+    else if (v->constrained)
+        printf("  %-18s %10.4g +- %.2g %s\n", v->name, v->value, v->sigma, unit);
+    else
+        printf("  %-18s not constrained by these labels (prior %.4g +- %.2g %s kept)\n", v->name,
+               v->value, v->prior_sd, unit);
+}
+
+static void print_result(const lam_calib_result *r, char **images)
+{
+    printf("%zu labelled region(s) in %zu image(s); chi2 %.1f for %.0f values; model floor "
+           "%.1f %%\n", r->labelled, r->images, r->chi2, r->dof, 100 * r->floor_rel);
+    for (int k = 0; k < LAM_NU_COUNT; k++) {
+        const lam_calib_value *v = &r->shared[k];
+        if (v->name && (v->fitted || k == LAM_NU_NA) &&
+            (k < LAM_NU_SHIFT || (size_t)((k - LAM_NU_SHIFT) % LAM_MAX_CHANNELS) < r->channels))
+            print_value(v, (k >= LAM_NU_SHIFT && k < LAM_NU_WIDTH) ? "nm" : "");
+    }
+    for (size_t j = 0; j < r->images; j++) {
+        printf("  oxide of %s:", images[j]);
+        print_value(&r->oxide[j], "nm");
+    }
+    for (size_t k = 0; k < r->residuals; k++) {
+        const lam_calib_residual *x = &r->residual[k];
+        printf("  label %zu (%dL) in %s: chi2 %.2f (p %.2g)\n", k + 1, x->layers, images[x->image],
+               x->chi2, x->pvalue);
+    }
+}
+
+static cJSON *calibration_block(const lam_calib_result *r, int self, char **images)
+{
+    cJSON *cal = cJSON_CreateObject();
+    cJSON_AddStringToObject(cal, "method", self ? "joint fit, layer counts latent (self)"
+                                                : "joint fit to labelled regions");
+    cJSON_AddNumberToObject(cal, "labelled_regions", (double)r->labelled);
+    cJSON_AddNumberToObject(cal, "chi2", r->chi2);
+    cJSON_AddNumberToObject(cal, "values", r->dof);
+    cJSON_AddNumberToObject(cal, "model_floor_relative", r->floor_rel);
+    cJSON *nc = cJSON_AddArrayToObject(cal, "not_constrained");
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        if (r->shared[k].fitted && !r->shared[k].constrained)
+            cJSON_AddItemToArray(nc, cJSON_CreateString(r->shared[k].name));
+    cJSON *ims = cJSON_AddArrayToObject(cal, "images");
+    for (size_t i = 0; i < r->images; i++) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "file", images[i]);
+        cJSON_AddNumberToObject(o, "oxide_nm", r->oxide[i].value);
+        cJSON_AddNumberToObject(o, "oxide_sigma_nm", r->oxide[i].sigma);
+        cJSON_AddBoolToObject(o, "oxide_known", !r->oxide[i].fitted);
+        cJSON_AddItemToArray(ims, o);
+    }
+    return cal;
+}
+
+static int run_calibrate(int argc, char **argv)
+{
+    calib_args A;
+    int rc = parse_args(argc, argv, &A);
+    if (rc)
+        return rc;
+    char **images = argv + optind;
+    size_t ni = (size_t)(argc - optind);
+    lam_setup s;
+    if ((rc = cli_setup_build("calibrate", &A.so, &s)))
+        return rc;
+    lam_calib_set *set = malloc(sizeof *set);
     lam_calib_result res;
-    if (!rc) {
-        lam_error_clear(&err);
-        if (nk > ni) {
-            lam_calib_set_clear(&set);
-            lam_setup_clear(&s);
-            return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", nk, ni);
-        }
-        if (!nk && !cli_quiet)
-            fprintf(stderr, "lamina: note: no --known-oxide: channel centres and oxide are nearly "
-                            "degenerate (both can scale together); the fit may drift along that "
-                            "valley\n");
-        if (lam_calibrate(&s, &set, self, nk ? known : NULL, known_na, &res, &err))
-            rc = cli_report(&err, NULL);
+    memset(&res, 0, sizeof res);
+    if (!set) {
+        lam_setup_clear(&s);
+        return CLI_EFILE;
     }
+    lam_calib_set_init(set);
+    lam_error err;
+    lam_error_clear(&err);
+    if (!(rc = measure_all(&A, images, ni, &s, set)) &&
+        lam_calibrate(&s, set, A.nk ? A.known : NULL, A.known_na, &res, &err))
+        rc = cli_report(&err, NULL);
     if (!rc) {
-        cJSON *cal = cJSON_CreateObject();
-        cJSON_AddStringToObject(cal, "method", self ? "self-calibration (best-fitting layer counts)"
-                                                    : "labelled regions");
-        cJSON_AddNumberToObject(cal, "samples", (double)res.samples);
-        cJSON_AddNumberToObject(cal, "rms_residual_before", res.rms_before);
-        cJSON_AddNumberToObject(cal, "rms_residual_after", res.rms_after);
-        cJSON_AddNumberToObject(cal, "condition", isfinite(res.condition) ? res.condition : -1);
-        cJSON *sg = cJSON_AddObjectToObject(cal, "sigma");
-        cJSON_AddItemToObject(sg, "centre_nm", cJSON_CreateDoubleArray(res.centre_sigma, 3));
-        cJSON_AddItemToObject(sg, "fwhm_nm", cJSON_CreateDoubleArray(res.fwhm_sigma, 3));
-        cJSON_AddNumberToObject(sg, "illumination_na", res.na_sigma);
-        cJSON *ims = cJSON_AddArrayToObject(cal, "images");
-        for (size_t i = 0; i < res.images; i++) {
-            cJSON *o = cJSON_CreateObject();
-            cJSON_AddStringToObject(o, "file", argv[optind + (int)i]);
-            cJSON_AddNumberToObject(o, "oxide_nm", res.oxide[i]);
-            cJSON_AddNumberToObject(o, "oxide_sigma_nm", res.oxide_sigma[i]);
-            cJSON_AddBoolToObject(o, "oxide_known", res.oxide_known[i]);
-            cJSON_AddItemToArray(ims, o);
-        }
+        cJSON *cal = calibration_block(&res, A.self, images);
         lam_error_clear(&err);
-        if (lam_setup_save(&res.setup, out, cal, &err))
-            rc = cli_report(&err, out);
+        if (lam_setup_save(&res.setup, A.out, cal, &err))
+            rc = cli_report(&err, A.out);
         cJSON_Delete(cal);
         if (!rc && !cli_quiet) {
-            static const char *ch[3] = {"R", "G", "B"};
-            printf("%zu regions from %zu images; RMS normalised residual %.2f -> %.2f\n", res.samples,
-                   res.images, res.rms_before, res.rms_after);
-            for (int k = 0; k < 3; k++)
-                printf("channel %s: centre %.1f +- %.1f nm, FWHM %.1f +- %.1f nm\n", ch[k], res.centre[k],
-                       res.centre_sigma[k], res.fwhm[k], res.fwhm_sigma[k]);
-            printf("illumination NA %.3f +- %.3f\n", res.na, res.na_sigma);
-            for (size_t i = 0; i < res.images; i++)
-                printf("oxide of %s: %.1f +- %.1f nm%s\n", argv[optind + (int)i], res.oxide[i],
-                       res.oxide_sigma[i], res.oxide_known[i] ? " (known)" : "");
-            printf("wrote %s\n", out);
+            print_result(&res, images);
+            printf("wrote %s\n", A.out);
         }
     }
-    lam_calib_set_clear(&set);
+    lam_calib_result_clear(&res);
+    lam_calib_set_clear(set);
+    free(set);
     lam_setup_clear(&s);
     return rc;
 }
