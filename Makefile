@@ -66,7 +66,8 @@ $(BUILD)/synth/%.o: tests/synth/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(shell pkg-config --cflags $(TEST_PKGS) 2>/dev/null) -c $< -o $@
 # Linked without liblamina: proof that the generator uses none of it.
-$(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o
+$(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
+                      $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $(filter %.c %.o,$^) $(SYNTH_LIBS) -o $@
 

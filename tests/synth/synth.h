@@ -35,6 +35,8 @@
  * call leaves nothing allocated and no partial file (outputs are written
  * to a temporary name and renamed). The same seed and config give the same
  * scene and the same pixels on every machine with IEEE doubles.
+ * Threads: every function may run on several threads at once (each on its
+ * own scene and image); the n,k tables are read under a lock.
  */
 #ifndef LAMINA_TESTS_SYNTH_H
 #define LAMINA_TESTS_SYNTH_H
@@ -56,7 +58,7 @@ typedef enum {
     SYNTH_RESP_WEBER,          /* Weber et al., APL 97, 091904 (2010), film */
     SYNTH_RESP_SONG,           /* Song et al., Appl. Surf. Sci. 439, 1079 (2018), film */
     SYNTH_RESP_ELSAYED,        /* El-Sayed et al., Nanomaterials 11, 1230 (2021), film */
-    SYNTH_RESP_LAMINA_DEFAULT, /* Kubo + saddle-point + background sheets (the brief's form) */
+    SYNTH_RESP_LAMINA_DEFAULT, /* Kubo + saddle-point + background sheets (issue 9's default) */
     SYNTH_RESP_COUNT
 } synth_response;
 

@@ -40,7 +40,8 @@ static int place(synth_rng *rng, synth_scene *sc, placed *pl, synth_object *o, d
     for (int attempt = 0; attempt < 400; attempt++) {
         if (attempt && attempt % 80 == 0)
             radius = fmax(min_radius, radius * 0.8);
-        double cx = synth_rng_uniform(rng, 0, sc->width), cy = synth_rng_uniform(rng, 0, sc->height);
+        double cx = synth_rng_uniform(rng, 0, sc->width);
+        double cy = synth_rng_uniform(rng, 0, sc->height);
         o->nv = synth_rng_int(rng, 8, 16);
         synth_polygon_make(rng, cx, cy, radius, o->nv, o->x, o->y);
         double r = reach(o, cx, cy);

@@ -166,6 +166,21 @@ static int one_scene(const opts *o, synth_format fmt, int quality, int channels,
     return st ? 1 : 0;
 }
 
+/* mkdir -p */
+static int make_dirs(const char *path)
+{
+    char buf[1024];
+    snprintf(buf, sizeof buf, "%s", path);
+    for (char *p = buf + 1; *p; p++)
+        if (*p == '/') {
+            *p = '\0';
+            if (mkdir(buf, 0755) != 0 && errno != EEXIST)
+                return -1;
+            *p = '/';
+        }
+    return mkdir(buf, 0755) != 0 && errno != EEXIST ? -1 : 0;
+}
+
 int main(int argc, char **argv)
 {
     opts o;
@@ -175,7 +190,7 @@ int main(int argc, char **argv)
     int quality, channels;
     if (synth_format_parse(o.format, &fmt, &quality, &channels))
         return usage(synth_error());
-    if (mkdir(o.out, 0755) != 0 && errno != EEXIST) {
+    if (make_dirs(o.out)) {
         fprintf(stderr, "synth: %s: cannot create: %s\n", o.out, strerror(errno));
         return 1;
     }

@@ -7,8 +7,13 @@
 #include "../refdata.h"
 
 #include <math.h>
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
+
+/* check_refdata_dir() fills a static buffer: one loader at a time, so
+ * scenes can be made on several threads. */
+static pthread_mutex_t load_lock = PTHREAD_MUTEX_INITIALIZER;
 
 /* Fritsch-Carlson slopes for y over increasing x. */
 static void monotone_slopes(const double *x, const double *y, size_t n, double *m)
@@ -95,7 +100,7 @@ static int load_formula(const char *path, const char *file, synth_material *m)
     return 0;
 }
 
-int synth_material_load(const char *file, synth_material *m)
+static int load_locked(const char *file, synth_material *m)
 {
     memset(m, 0, sizeof *m);
     snprintf(m->file, sizeof m->file, "%s", file);
@@ -115,6 +120,14 @@ int synth_material_load(const char *file, synth_material *m)
             formula = 1;
     fclose(fp);
     return formula ? load_formula(path, file, m) : load_table(file, m);
+}
+
+int synth_material_load(const char *file, synth_material *m)
+{
+    pthread_mutex_lock(&load_lock);
+    int st = load_locked(file, m);
+    pthread_mutex_unlock(&load_lock);
+    return st;
 }
 
 void synth_material_free(synth_material *m)

@@ -3,8 +3,8 @@
  *
  * Sources: Falkovsky, J. Phys.: Conf. Ser. 129, 012004 (2008) for the
  * intraband (Drude) and interband terms; the saddle-point and far-UV
- * Lorentz terms and their constants are the form the brief gives as
- * lamina's future default; measured films by the thin-film limit of a
+ * Lorentz terms and their constants are the form planned as lamina's
+ * default in issue 9; measured films by the thin-film limit of a
  * slab (a film of index N, thickness d -> 0 acts as a sheet of
  * Z0 sigma = -i k0 d (N^2 - 1)). */
 #include "synth_internal.h"
