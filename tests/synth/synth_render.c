@@ -19,12 +19,12 @@ void synth_image_free(synth_image *im)
 }
 
 /* Vignetting (1 - v r^2, r = 1 in the corners) times a linear gradient of
- * peak-to-peak size g across the image along the scene's direction. */
-static double flat_field(const synth_physics *p, int w, int h, int x, int y)
+ * peak-to-peak size g across the image along direction (ca, sa). */
+static double flat_field(const synth_physics *p, int w, int h, int x, int y, double ca,
+                         double sa)
 {
     double cx = 0.5 * w, cy = 0.5 * h, dx = x + 0.5 - cx, dy = y + 0.5 - cy;
     double r2 = (dx * dx + dy * dy) / (cx * cx + cy * cy);
-    double a = p->gradient_deg * SYNTH_PI / 180, ca = cos(a), sa = sin(a);
     double proj = (dx * ca + dy * sa) / (fabs(cx * ca) + fabs(cy * sa));
     return (1.0 - p->vignette * r2) * (1.0 + 0.5 * p->gradient * proj);
 }
@@ -38,11 +38,12 @@ static void fill_clean(const synth_scene *sc, float *clean)
         top = fmax(top, p->sub_value[k]);
     for (int k = 0; k < nc; k++)
         base[k] = p->exposure * p->sub_value[k] / top;
+    double a = p->gradient_deg * SYNTH_PI / 180, ca = cos(a), sa = sin(a);
     for (int y = 0; y < sc->height; y++)
         for (int x = 0; x < sc->width; x++) {
             size_t i = (size_t)y * sc->width + x;
             int o = sc->owner[i];
-            double f = flat_field(p, sc->width, sc->height, x, y);
+            double f = flat_field(p, sc->width, sc->height, x, y, ca, sa);
             for (int k = 0; k < nc; k++)
                 clean[i * nc + k] = (float)(base[k] * f * (o < 0 ? 1.0 : sc->obj[o].rel[k]));
         }
