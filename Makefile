@@ -9,7 +9,7 @@ SANITIZE ?=
 PKGS     := libpng libjpeg gsl libcjson zlib
 # Debian packages: build, test-only references, outside model reference
 DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev
-DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
+DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data libtiff-dev
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 
 WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
@@ -57,13 +57,30 @@ $(LIB): $(LIB_OBJ)
 $(BIN): $(CLI_OBJ) $(LIB)
 	$(CC) $(LDFLAGS) $(CLI_OBJ) $(LIB) $(LDLIBS) -o $@
 
-# Tests link the harness and the library; test_image also uses Little CMS
-# as an independent sRGB reference.
-TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o
+# The independent synthetic-micrograph generator (tests/synth/, no lamina
+# code): its objects live in $(BUILD)/synth/ so that $(BUILD)/tests/synth can
+# be the command; it links libtiff (tests only).
+TEST_PKGS := libtiff-4
+SYNTH_SRC := $(filter-out tests/synth/synth_main.c,$(wildcard tests/synth/*.c))
+SYNTH_OBJ := $(SYNTH_SRC:tests/synth/%.c=$(BUILD)/synth/%.o)
+SYNTH_LIBS = $(shell pkg-config --libs libpng libjpeg $(TEST_PKGS) 2>/dev/null) -lm
+$(BUILD)/synth/%.o: tests/synth/%.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(shell pkg-config --cflags $(TEST_PKGS) 2>/dev/null) -c $< -o $@
+# Linked without liblamina: proof that the generator uses none of it.
+$(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
+                      $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $(filter %.c %.o,$^) $(SYNTH_LIBS) -o $@
+
+# Tests link the harness, the generator and the library; test_image and
+# test_synth also use Little CMS as an independent sRGB reference.
+TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
+                $(SYNTH_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) \
-	    $(if $(filter image,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) $(SYNTH_LIBS) \
+	    $(if $(filter image synth,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
 
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 	@mkdir -p $(dir $@)
@@ -94,7 +111,7 @@ deps:
 	fi
 
 test: deps
-	$(MAKE) --no-print-directory $(BIN) $(TEST_BIN)
+	$(MAKE) --no-print-directory $(BIN) $(TEST_BIN) $(BUILD)/tests/synth
 	@BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
 
 asan:
@@ -154,4 +171,4 @@ install: $(BIN)
 clean:
 	rm -rf build build-asan build-noopt build-vg lamina-out
 
--include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d)
+-include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d)
