@@ -75,6 +75,13 @@ $(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
 
 # Tests link the harness, the generator and the library; test_image and
 # test_synth also use Little CMS as an independent sRGB reference.
+# tests/robust/ scores the analysis on the generator's images.
+ROBUST_OBJ := $(BUILD)/tests/robust/robust.o
+$(BUILD)/tests/robust/%.o: tests/robust/%.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -c $< -o $@
+$(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
                 $(SYNTH_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)

@@ -8,12 +8,6 @@
 #include <string.h>
 #include <time.h>
 
-/* First segmentation: the response is not yet known, so the floor is wide
- * enough that a flake 40 % off the prior's ladder is still classified by
- * its nearest entry rather than rejected. */
-#define FIRST_PASS_FLOOR_REL 0.25
-/* The second segmentation's floor: the fitted one, at least this. */
-#define SECOND_PASS_MIN_FLOOR_REL 0.05
 
 static double now_s(void)
 {
@@ -243,18 +237,14 @@ static lam_status substrate_stage(run *r, lam_error *err)
     return LAM_OK;
 }
 
-/* Classify, label regions and measure them against the ladder in a->ladder. */
-static lam_status segment_stage(run *r, double floor_rel, lam_error *err)
+/* Regions of uniform contrast (model-independent), measured. */
+static lam_status segment_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
-    so.floor_rel = floor_rel;
-    lam_ladder L;
-    to_segment_ladder(&a->ladder, a->max_layers, &L);
-    lam_status st = lam_segment_classify(r->img, &L, a->substrate.noise, &so, a->seg, err);
-    if (!st)
-        st = lam_segment_regions(r->img, &so, a->seg, err);
+    lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
+                                        a->substrate.noise, &so, a->seg, err);
     if (st)
         return st;
     free(a->measured);
@@ -265,6 +255,7 @@ static lam_status segment_stage(run *r, double floor_rel, lam_error *err)
     for (size_t i = 0; i < a->count; i++)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
+    MARK(r, LAM_T_SEGMENT);
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 
@@ -286,7 +277,7 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
 }
 
-/* The joint fit, then a second segmentation with the fitted ladder. */
+/* The joint fit of the shared parameters and the oxide. */
 static lam_status fit_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -294,11 +285,6 @@ static lam_status fit_stage(run *r, lam_error *err)
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
     if (st)
-        return st;
-    MARK(r, LAM_T_SEGMENT);
-    double fl = fmax(SECOND_PASS_MIN_FLOOR_REL, 2 * a->estimate->floor_rel);
-    if ((st = segment_stage(r, fl, err)) || (st = lam_estimate_refit(a->estimate, r->model, err)) ||
-        (st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err)))
         return st;
     oxide_summary(a, r->opt);
     MARK(r, LAM_T_OXIDE);
@@ -365,7 +351,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     describe_setup(r.a, setup);
     lam_status st = load_stage(&r, path, err);
     if (!st && !(st = model_stage(&r, err)) && !(st = substrate_stage(&r, err)) &&
-        !(st = segment_stage(&r, FIRST_PASS_FLOOR_REL, err)) && !(st = fit_stage(&r, err)))
+        !(st = segment_stage(&r, err)) && !(st = fit_stage(&r, err)))
         st = posterior_stage(&r, err);
     lam_model_free(r.model);
     lam_image_free(r.img);

@@ -170,6 +170,12 @@ double lam_table_spectrum_eval(const lam_table_spectrum *t, size_t column, doubl
 lam_status lam_table_spectrum_load(const char *path, size_t columns,
                                    lam_table_spectrum *out, lam_error *err)
 {
+    return lam_table_spectrum_load_ex(path, columns, 0, out, err);
+}
+
+lam_status lam_table_spectrum_load_ex(const char *path, size_t columns, int allow_negative,
+                                      lam_table_spectrum *out, lam_error *err)
+{
     FILE *fp = fopen(path, "r");
     if (!fp) {
         lam_error_set(err, LAM_EIO, "cannot open spectrum table: %s", strerror(errno));
@@ -229,10 +235,10 @@ lam_status lam_table_spectrum_load(const char *path, size_t columns,
         for (size_t c = 0; c <= columns && !st; c++) {
             errno = 0;
             double v = strtod(end, &end);
-            if (errno || !isfinite(v) || (c == 0 && v <= 0) || (c > 0 && v < 0))
+            if (errno || !isfinite(v) || (c == 0 && v <= 0) || (c > 0 && v < 0 && !allow_negative))
                 st = lam_error_set(err, LAM_EFORMAT,
                                    "line %zu, column %zu: need a finite number%s", lineno, c + 1,
-                                   c ? " >= 0" : " > 0");
+                                   c == 0 ? " > 0" : allow_negative ? "" : " >= 0");
             while (*end == ' ' || *end == '\t')
                 end++;
             if (!st && c < columns && *end++ != ',')

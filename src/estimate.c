@@ -173,7 +173,8 @@ lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions
     set(&im->oxide, "oxide_nm", nominal, sd, fmax(0, nominal - 250), nominal + 250,
         "nominal prior");
     for (int k = 0; k < 3; k++)
-        im->alt_oxide[k] = im->alt_score[k] = NAN;
+        im->alt_oxide[k] = im->alt_scale[k] = im->alt_score[k] = NAN;
+    im->grid_scale = 1;
     if (index)
         *index = e->images;
     e->images++;
@@ -276,28 +277,49 @@ double lam__logsumexp(const double *x, size_t n)
     return top + log(s);
 }
 
-/* log( prior x likelihood ) of every hypothesis of a region: index 0
- * substrate, 1..K layers, K+1 thick (entries K+1..top marginalised), K+2
- * unmodelled. 'ladder' holds observed-scale contrasts (gains applied). */
+/* The "thicker" hypothesis while fitting: a broad density over the span of
+ * the thick entries (per channel from the least to the most contrast of
+ * K+1..top, widened by three floors), not the mixture of sharp entries.
+ * Otherwise a graphite flake far beyond the model's reach would pull the
+ * shared parameters (a smaller contrast scale lets more of them land on
+ * some entry); only thin flakes should inform the fit. The region
+ * posteriors (infer.c) use the sharp entries. */
+static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
+                                 const lam_prediction *ladder)
+{
+    size_t K = e->max_layers, top = ladder->max_layers, nc = e->channels;
+    if (top <= K)
+        return -INFINITY;
+    double s = 0;
+    for (size_t c = 0; c < nc; c++) {
+        double lo = INFINITY, hi = -INFINITY;
+        for (size_t N = K + 1; N <= top; N++) {
+            lo = fmin(lo, ladder->contrast[N][c]);
+            hi = fmax(hi, ladder->contrast[N][c]);
+        }
+        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, hi));
+        lo -= 3 * f, hi += 3 * f;
+        double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
+        s += -log(hi - lo) - 0.5 * (out / f) * (out / f);
+    }
+    return s;
+}
+
+/* log( prior x likelihood ) of every hypothesis of a region while fitting:
+ * index 0 substrate, 1..K layers, K+1 thick (broad), K+2 unmodelled.
+ * 'ladder' holds observed-scale contrasts (gains applied). */
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt)
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
-    double var[LAM_MAX_CHANNELS], thick[LAM_MODEL_MAX_LAYERS + 1];
+    double var[LAM_MAX_CHANNELS];
     for (size_t h = 0; h <= K && h <= top; h++) {
         for (size_t c = 0; c < nc; c++)
             var[c] = r->var[c] + lam_estimate_floor_var(e, ladder->contrast[h][c]);
         lt[h] = log(lam_hypothesis_prior(h, K)) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
-    size_t nt = 0;
-    for (size_t N = K + 1; N <= top; N++) {
-        for (size_t c = 0; c < nc; c++)
-            var[c] = r->var[c] + lam_estimate_floor_var(e, ladder->contrast[N][c]);
-        thick[nt++] = lam__gauss_logpdf(r->mean, ladder->contrast[N], var, nc);
-    }
-    lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
-                   : -INFINITY;
+    lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, ladder);
     lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) - (double)nc * log(LAM_UNMODELLED_SIDE);
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */

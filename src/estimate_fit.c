@@ -383,75 +383,200 @@ static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *
     return st;
 }
 
-/* ---- the oxide grid of one image (shared parameters held) ---- */
+/* ---- the starting grid: oxide x contrast scale ----
+ *
+ * The posterior has two kinds of far-apart modes: the oxide repeats its
+ * colours, and an overall contrast scale trades against the layer counts
+ * (a response 20 % stronger makes a trilayer look like a bilayer of the
+ * default). So each image is scored on a grid of oxide thickness x a
+ * common contrast scale s (the ladder multiplied by s, with a log-normal
+ * prior for what the response family and the gains can do); the fit
+ * starts at the best cell, the response's continuum set to give that
+ * scale, and a multistart tries the next local maxima. */
+#define SCALE_STEPS 13
+#define SCALE_MIN 0.65
+#define SCALE_MAX 1.5
+#define SCALE_PRIOR_SD_LOG 0.18
 
-/* Local maxima of the grid scores, best first: the best becomes the
- * oxide, the next three the alternatives a multistart tries. */
-static void pick_maxima(lam_est_image *im, const double *score, size_t n, double lo,
-                        double step)
+static double scale_at(int k)
 {
-    double best = -INFINITY, best_d = im->oxide.prior_mean;
-    for (int k = 0; k < 3; k++)
-        im->alt_oxide[k] = im->alt_score[k] = NAN;
-    for (size_t g = 0; g < n; g++) {
-        int peak = (g == 0 || score[g] >= score[g - 1]) && (g + 1 == n || score[g] > score[g + 1]);
-        if (!peak)
-            continue;
-        double d = lo + step * (double)g, v = score[g];
-        if (v > best) {
-            double t = best, td = best_d;
-            best = v, best_d = d;
-            v = t, d = td;
-            if (!isfinite(v))
-                continue;
+    return SCALE_MIN * pow(SCALE_MAX / SCALE_MIN, k / (double)(SCALE_STEPS - 1));
+}
+
+typedef struct grid {
+    size_t n;          /* oxide steps */
+    double lo, step;
+    double *score;     /* n x SCALE_STEPS */
+} grid;
+
+static void scaled(const lam_prediction *P, double s, lam_prediction *out)
+{
+    *out = *P;
+    for (size_t N = 0; N <= P->max_layers; N++)
+        for (size_t c = 0; c < P->channels; c++)
+            out->contrast[N][c] *= s;
+}
+
+static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
+                            grid *g, lam_error *err)
+{
+    lam_est_image *im = &e->image[j];
+    double half = e->opt.search_half_nm;
+    g->step = e->opt.search_step_nm;
+    g->lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
+    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
+    g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
+    if (!im->oxide.fitted)
+        g->lo = im->oxide.value;
+    g->score = malloc(g->n * SCALE_STEPS * sizeof *g->score);
+    if (!g->score)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
+    lam_prediction *Q = P + 1;
+    lam_status st = LAM_OK;
+    for (size_t d = 0; d < g->n && !st; d++) {
+        im->oxide.value = g->lo + g->step * (double)d;
+        if ((st = image_ladder(e, j, model, GRID_LAYERS, P, err)))
+            break;
+        for (int k = 0; k < SCALE_STEPS; k++) {
+            double z = log(scale_at(k)) / SCALE_PRIOR_SD_LOG;
+            scaled(P, scale_at(k), Q);
+            g->score[d * SCALE_STEPS + (size_t)k] = image_logpost(e, j, Q, NULL) - 0.5 * z * z;
         }
-        for (int k = 0; k < 3; k++)
-            if (!(v <= im->alt_score[k])) {
-                for (int m = 2; m > k; m--)
-                    im->alt_oxide[m] = im->alt_oxide[m - 1], im->alt_score[m] = im->alt_score[m - 1];
-                im->alt_oxide[k] = d;
-                im->alt_score[k] = v;
-                break;
-            }
     }
-    im->oxide.value = best_d;
+    return st;
+}
+
+static int is_peak(const grid *g, size_t d, int k)
+{
+    double v = g->score[d * SCALE_STEPS + (size_t)k];
+    for (int dd = -1; dd <= 1; dd++)
+        for (int dk = -1; dk <= 1; dk++) {
+            long x = (long)d + dd, y = k + dk;
+            if ((!dd && !dk) || x < 0 || y < 0 || (size_t)x >= g->n || y >= SCALE_STEPS)
+                continue;
+            double o = g->score[(size_t)x * SCALE_STEPS + (size_t)y];
+            if (o > v || (o == v && (dd < 0 || (dd == 0 && dk < 0))))
+                return 0;
+        }
+    return 1;
+}
+
+/* The best cell and the next three local maxima of one image's grid. */
+static void pick_cells(lam_est_image *im, const grid *g)
+{
+    double best = -INFINITY;
+    for (int k = 0; k < 3; k++)
+        im->alt_oxide[k] = im->alt_scale[k] = im->alt_score[k] = NAN;
+    for (size_t d = 0; d < g->n; d++)
+        for (int k = 0; k < SCALE_STEPS; k++) {
+            if (!is_peak(g, d, k))
+                continue;
+            double v = g->score[d * SCALE_STEPS + (size_t)k];
+            double od = g->lo + g->step * (double)d, sc = scale_at(k);
+            if (v > best) {
+                double t = best, tod = im->oxide.value, tsc = im->grid_scale;
+                best = v, im->oxide.value = od, im->grid_scale = sc;
+                v = t, od = tod, sc = tsc;
+                if (!isfinite(v))
+                    continue;
+            }
+            for (int m = 0; m < 3; m++)
+                if (!(v <= im->alt_score[m])) {
+                    for (int q = 2; q > m; q--) {
+                        im->alt_oxide[q] = im->alt_oxide[q - 1];
+                        im->alt_scale[q] = im->alt_scale[q - 1];
+                        im->alt_score[q] = im->alt_score[q - 1];
+                    }
+                    im->alt_oxide[m] = od, im->alt_scale[m] = sc, im->alt_score[m] = v;
+                    break;
+                }
+        }
     im->grid_best = best;
 }
 
-static lam_status oxide_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
-                             lam_error *err)
+/* The continuum that scales the interband plateau by s. */
+static void start_scale(lam_estimate *e, double s)
 {
-    lam_est_image *im = &e->image[j];
-    if (!im->oxide.fitted)
-        return LAM_OK;
-    double half = e->opt.search_half_nm, step = e->opt.search_step_nm;
-    double lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
-    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
-    size_t n = (size_t)((hi - lo) / step) + 1;
-    double *score = malloc(n * sizeof *score);
-    if (!score)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
-    lam_status st = LAM_OK;
-    for (size_t g = 0; g < n && !st; g++) {
-        im->oxide.value = lo + step * (double)g;
-        if (!(st = image_ladder(e, j, model, GRID_LAYERS, P, err)))
-            score[g] = image_logpost(e, j, P, NULL);
+    lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
+    if (c->fitted)
+        c->value = clamp((1 + c->prior_mean) * s - 1, c);
+}
+
+/* Many images share one scale: the one best summed over the images (each
+ * at its best oxide for that scale). */
+static double pooled_scale(const lam_estimate *e, grid *g)
+{
+    double best = -INFINITY, bs = 1;
+    for (int k = 0; k < SCALE_STEPS; k++) {
+        double tot = 0;
+        for (size_t j = 0; j < e->images; j++) {
+            double m = -INFINITY;
+            for (size_t d = 0; d < g[j].n; d++)
+                m = fmax(m, g[j].score[d * SCALE_STEPS + (size_t)k]);
+            tot += m;
+        }
+        if (tot > best)
+            best = tot, bs = scale_at(k);
     }
-    if (!st)
-        pick_maxima(im, score, n, lo, step);
-    if (DEBUGFIT) { fprintf(stderr, "grid image %zu: best %.1f (%.2f), alts", j, im->oxide.value, im->grid_best); for (int k = 0; k < 3; k++) fprintf(stderr, " %.1f(%.2f)", im->alt_oxide[k], im->alt_score[k]); fprintf(stderr, "\n"); }
-    free(score);
-    return st;
+    return bs;
+}
+
+static void oxide_at_scale(lam_est_image *im, const grid *g, double s)
+{
+    int k = 0;
+    while (k + 1 < SCALE_STEPS && scale_at(k) < s - 1e-9)
+        k++;
+    double best = -INFINITY;
+    for (size_t d = 0; d < g->n; d++)
+        if (g->score[d * SCALE_STEPS + (size_t)k] > best)
+            best = g->score[d * SCALE_STEPS + (size_t)k], im->oxide.value = g->lo + g->step * (double)d;
 }
 
 static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
 {
-    lam_prediction *P = malloc(sizeof *P);
-    if (!P)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-    lam_status st = LAM_OK;
+    lam_prediction *P = malloc(2 * sizeof *P);
+    grid *g = calloc(e->images ? e->images : 1, sizeof *g);
+    lam_status st = P && g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
     for (size_t j = 0; j < e->images && !st; j++)
-        st = oxide_grid(e, j, model, P, err);
+        if (!(st = fill_grid(e, j, model, P, &g[j], err)))
+            pick_cells(&e->image[j], &g[j]);
+    if (!st && getenv("LAMINA_DEBUG_REG")) {
+        lam_est_image *im0 = &e->image[0];
+        double ds[2] = {0.65, 1.059};
+        im0->oxide.value = atof(getenv("LAMINA_DEBUG_REG"));
+        image_ladder(e, 0, model, GRID_LAYERS, P, err);
+        for (size_t i = 0; i < im0->count; i++) {
+            const lam_est_region *r = &im0->regions[i];
+            if (!r->use) continue;
+            double z[2]; int b[2];
+            for (int q = 0; q < 2; q++) {
+                double lt[40]; scaled(P, ds[q], P + 1);
+                lam__region_logterms(e, r, P + 1, lt);
+                z[q] = lam__logsumexp(lt, e->max_layers + 3); b[q] = 0;
+                for (size_t h = 0; h < e->max_layers + 3; h++) if (lt[h] > lt[b[q]]) b[q] = (int)h;
+            }
+            fprintf(stderr, "DEBUGREG %zu m=%.4f %.4f %.4f v=%.2g %.2f(%d) %.2f(%d) %.2f\n", i, r->mean[0], r->mean[1], r->mean[2], r->var[1], z[0], b[0], z[1], b[1], z[0]-z[1]);
+        }
+    }
+    if (!st && DEBUGFIT)
+        for (int k = 0; k < SCALE_STEPS; k++) {
+            double m = -INFINITY, md = 0;
+            for (size_t d = 0; d < g[0].n; d++)
+                if (g[0].score[d * SCALE_STEPS + (size_t)k] > m)
+                    m = g[0].score[d * SCALE_STEPS + (size_t)k], md = g[0].lo + g[0].step * (double)d;
+            fprintf(stderr, "  scale %.3f: best %.2f at %.1f\n", scale_at(k), m, md);
+        }
+    if (!st) {
+        double s = e->images == 1 ? e->image[0].grid_scale : pooled_scale(e, g);
+        e->start_scale = s;
+        start_scale(e, s);
+        for (size_t j = 0; j < e->images && e->images > 1; j++)
+            oxide_at_scale(&e->image[j], &g[j], s);
+        if (DEBUGFIT) fprintf(stderr, "grid: scale %.3f oxide %.1f alts %.1f/%.2f %.1f/%.2f\n", s, e->image[0].oxide.value, e->image[0].alt_oxide[0], e->image[0].alt_scale[0], e->image[0].alt_oxide[1], e->image[0].alt_scale[1]);
+    }
+    for (size_t j = 0; g && j < e->images; j++)
+        free(g[j].score);
+    free(g);
     free(P);
     return st;
 }
@@ -624,43 +749,27 @@ static lam_status init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_er
     return LAM_OK;
 }
 
-/* The fit is a local optimiser over a posterior with several modes: the
- * oxide repeats its colours (other grid maxima), and an overall contrast
- * scale trades against the layer counts (a response 20 % stronger makes a
- * trilayer look like a bilayer of the default). The alternatives are
- * refitted and the best posterior kept. */
+/* A start of the multistart: another local maximum (oxide, scale) of one
+ * image's grid. */
 typedef struct start_point {
-    int image, alt;     /* an oxide alternative of one image (alt >= 0) ... */
-    double scale;       /* ... or the response moved by 'scale' prior sds */
+    int image, alt;
 } start_point;
 
 static void apply_start(lam_estimate *e, const start_point *sp)
 {
-    if (sp->alt >= 0) {
-        e->image[sp->image].oxide.value = e->image[sp->image].alt_oxide[sp->alt];
-        return;
-    }
-    /* continuum and resonance both raise the contrast in every channel */
-    const int k[2] = {LAM_NU_CONTINUUM, LAM_NU_RESONANCE};
-    for (int i = 0; i < 2; i++) {
-        lam_nuisance *n = &e->shared[k[i]];
-        if (n->fitted)
-            n->value = clamp(n->prior_mean + sp->scale * n->prior_sd, n);
-    }
+    const lam_est_image *im = &e->image[sp->image];
+    e->image[sp->image].oxide.value = im->alt_oxide[sp->alt];
+    start_scale(e, im->alt_scale[sp->alt]);
 }
 
 static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
 {
     size_t n = 0;
-    if (e->shared[LAM_NU_CONTINUUM].fitted || e->shared[LAM_NU_RESONANCE].fitted) {
-        sp[n++] = (start_point){0, -1, 1.5};
-        sp[n++] = (start_point){0, -1, -1.5};
-    }
     for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++)
         for (int k = 0; k < 3 && n < cap; k++) {
             const lam_est_image *im = &e->image[j];
             if (isfinite(im->alt_oxide[k]) && im->alt_score[k] > im->grid_best - ALT_MARGIN)
-                sp[n++] = (start_point){(int)j, k, 0};
+                sp[n++] = (start_point){(int)j, k};
         }
     return n;
 }
@@ -682,6 +791,8 @@ static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
     double best_lp = *logpost;
     for (size_t i = 0; i < n && !st; i++) {
         restore_point(e, &first);
+        for (int k = 0; k < LAM_NU_COUNT; k++)
+            e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
         apply_start(e, &sp[i]);
         double lp;
         if ((st = run_em(f, e->opt.max_iterations, &lp, err)))

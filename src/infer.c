@@ -36,7 +36,8 @@ void lam_region_measure(const lam_region_stats *r, const double noise[3], double
         out->mean[c] = r->sum[c] / n;
         out->var[c] = kappa * noise[c] * noise[c] / n;
     }
-    out->use = r->interior >= MIN_INTERIOR_FOR_FIT && r->clipped * 100 <= r->area;
+    out->use = r->interior >= MIN_INTERIOR_FOR_FIT && r->clipped * 100 <= r->area &&
+               r->depth_max >= LAM_RIBBON_DEPTH;
 }
 
 /* ---- leave-one-out parameter shift and covariance ---- */

@@ -2,6 +2,7 @@
  * connected-component labelling (union-find) and region statistics. */
 #include "lamina/segment.h"
 #include "lamina/parallel.h"
+#include "segment_internal.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -245,6 +246,87 @@ static uint32_t find_root(uint32_t *parent, uint32_t a)
     return a;
 }
 
+/* City-block distance of each labelled pixel to the nearest pixel of
+ * another label (or none) or outside the image, capped at 255: 1 on a
+ * region's boundary. Two passes (forward, backward). */
+uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
+{
+    uint8_t *d = malloc(w * h);
+    if (!d)
+        return NULL;
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            size_t k = y * w + x;
+            uint32_t l = lab[k];
+            if (!l || x == 0 || y == 0 || lab[k - 1] != l || lab[k - w] != l) {
+                d[k] = l ? 1 : 0;
+                continue;
+            }
+            unsigned v = (d[k - 1] < d[k - w] ? d[k - 1] : d[k - w]) + 1u;
+            d[k] = (uint8_t)(v > 255 ? 255 : v);
+        }
+    for (size_t y = h; y-- > 0;)
+        for (size_t x = w; x-- > 0;) {
+            size_t k = y * w + x;
+            uint32_t l = lab[k];
+            if (!l)
+                continue;
+            if (x + 1 == w || y + 1 == h || lab[k + 1] != l || lab[k + w] != l) {
+                d[k] = 1;
+                continue;
+            }
+            unsigned v = (d[k + 1] < d[k + w] ? d[k + 1] : d[k + w]) + 1u;
+            if (v < d[k])
+                d[k] = (uint8_t)v;
+        }
+    return d;
+}
+
+/* Area, box, centroid, depth, and the contrast sums over the interior:
+ * pixels at least LAM_INTERIOR_DEPTH from the boundary (blur and the
+ * denoising filter mix two classes within ~2 px of an edge). */
+void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
+                             const uint8_t *depth, lam_region_stats *R, uint32_t m)
+{
+    size_t w = img->width, h = img->height;
+    for (uint32_t i = 0; i < m; i++) {
+        R[i].id = i + 1;
+        R[i].bbox[0] = w, R[i].bbox[1] = h;
+    }
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            size_t k = y * w + x;
+            uint32_t l = lab[k];
+            if (!l)
+                continue;
+            lam_region_stats *r = &R[l - 1];
+            r->cls = cls[k];
+            r->area++;
+            r->sx += (double)x;
+            r->sy += (double)y;
+            if (x < r->bbox[0]) r->bbox[0] = x;
+            if (y < r->bbox[1]) r->bbox[1] = y;
+            if (x > r->bbox[2]) r->bbox[2] = x;
+            if (y > r->bbox[3]) r->bbox[3] = y;
+            if (depth[k] > r->depth_max)
+                r->depth_max = depth[k];
+            if (x == 0 || y == 0 || x + 1 == w || y + 1 == h)
+                r->touches_border = 1;
+            if (depth[k] < LAM_INTERIOR_DEPTH)
+                continue;
+            if (img->clipped[k]) {
+                r->clipped++;
+                continue;
+            }
+            r->interior++;
+            for (int c = 0; c < 3; c++) {
+                double v = img->plane[c][k];
+                r->sum[c] += v;
+                r->sumsq[c] += v * v;
+            }
+        }
+}
+
 lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err)
 {
@@ -312,67 +394,51 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
     free(parent);
     free(final);
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
-    if (!R)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
-    for (uint32_t i = 0; i < m; i++) {
-        R[i].id = i + 1;
-        R[i].bbox[0] = w, R[i].bbox[1] = h;
-    }
-    for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint32_t l = lab[k];
-            if (!l)
-                continue;
-            lam_region_stats *r = &R[l - 1];
-            r->cls = cls[k];
-            r->area++;
-            r->sx += (double)x;
-            r->sy += (double)y;
-            if (x < r->bbox[0]) r->bbox[0] = x;
-            if (y < r->bbox[1]) r->bbox[1] = y;
-            if (x > r->bbox[2]) r->bbox[2] = x;
-            if (y > r->bbox[3]) r->bbox[3] = y;
-            if (x == 0 || y == 0 || x + 1 == w || y + 1 == h) {
-                r->touches_border = 1;
-                continue;
-            }
-            if (img->clipped[k]) {
-                r->clipped++;
-                continue;
-            }
-            if (lab[k - 1] != l || lab[k + 1] != l || lab[k - w] != l || lab[k + w] != l)
-                continue;
-            r->interior++;
-            for (int c = 0; c < 3; c++) {
-                double v = img->plane[c][k];
-                r->sum[c] += v;
-                r->sumsq[c] += v * v;
-            }
-        }
-    /* drop specks and slivers (no interior): class NONE, no label */
-    uint32_t *remap = calloc((size_t)m + 1, sizeof *remap);
-    if (!remap) {
+    uint8_t *depth = lam__boundary_depth(lab, w, h);
+    if (!R || !depth) {
         free(R);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate labels");
+        free(depth);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
+    }
+    lam__region_statistics(img, cls, lab, depth, R, m);
+    free(depth);
+    return lam__keep_regions(seg, R, m, opt->min_region_px) ? LAM_OK
+                                                           : lam_error_set(err, LAM_ENOMEM,
+                                                                           "cannot allocate labels");
+}
+
+int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px)
+{
+    size_t n = seg->width * seg->height;
+    uint32_t *remap = calloc((size_t)m + 1, sizeof *remap);
+    uint8_t *cls_of = calloc((size_t)m + 1, 1);
+    if (!remap || !cls_of) {
+        free(remap);
+        free(cls_of);
+        free(R);
+        return 0;
     }
     size_t kept = 0;
     for (uint32_t i = 0; i < m; i++) {
-        /* slivers along edges have almost no interior */
-        if (R[i].area >= opt->min_region_px && R[i].interior >= 4 &&
+        cls_of[i + 1] = R[i].cls == LAM_CLASS_SUBSTRATE ? LAM_CLASS_SUBSTRATE : LAM_CLASS_NONE;
+        /* specks, and slivers along edges (almost no interior), are dropped */
+        if (R[i].cls != LAM_CLASS_SUBSTRATE && R[i].area >= min_px && R[i].interior >= 4 &&
             R[i].interior * 10 >= R[i].area) {
             R[kept] = R[i];
             R[kept].id = (uint32_t)(kept + 1);
             remap[i + 1] = (uint32_t)++kept;
         }
     }
-    for (size_t k = 0; k < w * h; k++) {
-        if (lab[k] && !(lab[k] = remap[lab[k]]))
-            cls[k] = LAM_CLASS_NONE;
+    for (size_t k = 0; k < n; k++) {
+        uint32_t l = seg->label[k];
+        if (l && !(seg->label[k] = remap[l]))
+            seg->cls[k] = cls_of[l];
     }
     free(remap);
+    free(cls_of);
     free(seg->regions);
     seg->regions = R;
     seg->count = kept;
-    return LAM_OK;
+    return 1;
 }
+

@@ -291,7 +291,7 @@ static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, la
         char path[1024];
         join_path(path, sizeof path, dir, f->valuestring);
         s->camera.kind = LAM_CAMERA_TABLE;
-        if (!(st = lam_table_spectrum_load(path, 0, &s->camera.table, err)))
+        if (!(st = lam_table_spectrum_load_ex(path, 0, 1, &s->camera.table, err)))
             s->camera.channels = s->camera.table.columns;
     } else {
         return lam_error_set(err, LAM_EINVAL,

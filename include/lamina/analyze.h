@@ -6,12 +6,11 @@
  * per-region posteriors (lamina/infer.h), Fermi level, usable rectangles.
  * Reports are written by lamina/report.h.
  *
- * Stages: the substrate and a first segmentation use the ladder at the
- * prior's centre with a generous model floor (nothing graphene-like is
- * rejected while the response is still unknown); the joint fit then gives
- * the image's own ladder, the image is segmented again with it, the fit
- * refined, and every region's posterior computed with the parameters'
- * uncertainty.
+ * Stages: the substrate (its choice among colour modes uses the ladder at
+ * the prior's centre), the contrast map, regions of uniform contrast (no
+ * model involved: a flake is one region however far the model is off), the
+ * joint fit of the shared parameters and the oxide with the layer counts
+ * latent, and every region's posterior with the parameters' uncertainty.
  *
  * A run of images from one microscope shares its optics: give
  * lam_analysis_options.shared_prior (a pooled posterior, see

@@ -96,6 +96,10 @@ lam_status lam_spectrum_weights(const lam_grid *g, const lam_illuminant *il,
  * error names the file and line. */
 lam_status lam_table_spectrum_load(const char *path, size_t columns,
                                    lam_table_spectrum *out, lam_error *err);
+/* The same, allowing negative values when allow_negative (the effective
+ * sensitivities of a colour camera after its colour matrix dip below 0). */
+lam_status lam_table_spectrum_load_ex(const char *path, size_t columns, int allow_negative,
+                                      lam_table_spectrum *out, lam_error *err);
 void lam_table_spectrum_clear(lam_table_spectrum *t);
 
 /* Linear interpolation of a table column (0 outside the table). */

@@ -89,8 +89,8 @@ typedef struct lam_est_image {
     lam_nuisance oxide;            /* this image's oxide thickness, nm */
     double log_posterior;          /* this image's share at the optimum */
     size_t regions_used, confident;
-    double grid_best;              /* the oxide grid's best score */
-    double alt_oxide[3], alt_score[3]; /* other grid maxima (NAN when none) */
+    double grid_best, grid_scale;  /* the starting grid's best score and its contrast scale */
+    double alt_oxide[3], alt_scale[3], alt_score[3]; /* other grid maxima (NAN when none) */
 } lam_est_image;
 
 typedef struct lam_estimate_options {
@@ -109,6 +109,7 @@ typedef struct lam_estimate {
     lam_est_image *image;
     double floor_abs, floor_rel, floor_rel_prior;
     double fermi_ev;               /* Fermi level of the ladder (the setup's) */
+    double start_scale;            /* the contrast scale the fit started from */
     int fitted;
     size_t iterations;
     /* Laplace covariance of the free shared parameters (in the order of

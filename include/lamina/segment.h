@@ -7,8 +7,8 @@
  * model floor (floor_abs + floor_rel * |C|)^2. The nearest entry wins; a
  * pixel whose best squared distance exceeds reject_chi2 is "unmodelled".
  * Classification goes through a 128^3 lookup table over the ladder's range.
- * Connected (4-neighbour) pixels of one class form a region; pixels whose
- * 4-neighbours are all in the region and that are not saturated are its
+ * Connected (4-neighbour) pixels of one class form a region; pixels at
+ * least LAM_INTERIOR_DEPTH from its boundary and not saturated are its
  * interior, from which statistics are taken (edge pixels mix two classes).
  *
  * Ownership: lam_segmentation_alloc / lam_segmentation_free.
@@ -40,10 +40,19 @@ typedef struct lam_segment_options {
     size_t threads;              /* worker threads for the pixel passes (1) */
 } lam_segment_options;
 
+/* Interior pixels lie at least this far (city-block) from the region's
+ * boundary: blur and the 3x3 denoising mix two classes within ~2 px. */
+#define LAM_INTERIOR_DEPTH 3
+/* A region whose deepest pixel is closer than this to its boundary is a
+ * ribbon - in practice the blurred transition along another region's edge -
+ * and does not inform the shared parameters. */
+#define LAM_RIBBON_DEPTH 4
+
 typedef struct lam_region_stats {
     uint32_t id;
     uint8_t cls;
     size_t area, interior, clipped;
+    unsigned depth_max;          /* the deepest pixel's distance to the boundary (inradius) */
     size_t bbox[4];              /* x0, y0, x1, y1 inclusive */
     double sx, sy;               /* coordinate sums for the centroid */
     double sum[3], sumsq[3];     /* interior contrast */
@@ -72,7 +81,21 @@ lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *lad
                                 const double noise[3], const lam_segment_options *opt,
                                 lam_segmentation *seg, lam_error *err);
 
-/* Connected regions of non-substrate classes with their statistics. */
+/* Regions of uniform contrast, independent of the model (the analysis'
+ * segmentation): transition pixels (a change of more than half the prior's
+ * monolayer step c1 across two pixels, or 4 sigma of the denoised noise, in
+ * some channel) belong to no region; the other pixels join 4-neighbours
+ * whose contrast differs by less than 4.5 times the measured neighbour
+ * noise in every channel; the connected sets are regions, and those at
+ * zero contrast (within 0.3 |c1| or 0.003 in every channel) the bare
+ * substrate. Layer counts are then decided per region (lamina/infer.h),
+ * so a flake is one region however the model's ladder is off. */
+lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const double *c1,
+                               const double noise[3], const lam_segment_options *opt,
+                               lam_segmentation *seg, lam_error *err);
+
+/* Connected regions of non-substrate classes with their statistics (used
+ * for label maps, whose classes are given). */
 lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err);
 

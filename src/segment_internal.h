@@ -1,0 +1,21 @@
+/* segment_internal.h - pieces shared by segment.c (class regions) and
+ * segment_grow.c (uniform regions). Not public. */
+#ifndef LAMINA_SEGMENT_INTERNAL_H
+#define LAMINA_SEGMENT_INTERNAL_H
+
+#include "lamina/segment.h"
+
+/* City-block distance to the region boundary per pixel (1 on it, 0 off
+ * regions, capped at 255); malloc'd, NULL when out of memory. */
+uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height);
+
+/* Statistics of regions 1..m of a label map (R has m entries). */
+void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *label,
+                            const uint8_t *depth, lam_region_stats *R, uint32_t m);
+
+/* Keep the regions worth reporting (renumbered 1..kept): substrate regions
+ * become class SUBSTRATE without a label, specks and slivers class NONE.
+ * Takes R over (stores it in seg). 0 when out of memory (R freed). */
+int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px);
+
+#endif

@@ -1,0 +1,197 @@
+/* robust.c - render with the independent generator, analyse with lamina,
+ * score the layer counts, the oxide and the Fermi levels. */
+#include "robust.h"
+#include "lamina/analyze.h"
+#include "lamina/setup.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+static double now_s(void)
+{
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
+}
+
+/* The analysis region covering most of object o's pixels (0: none). */
+static uint32_t covering_region(const synth_scene *sc, int o, const lam_analysis *a,
+                                size_t *covered)
+{
+    size_t n = (size_t)sc->width * (size_t)sc->height, best = 0;
+    uint32_t best_id = 0;
+    size_t *count = calloc(a->count + 1, sizeof *count);
+    if (!count)
+        return 0;
+    for (size_t k = 0; k < n; k++)
+        if (sc->owner[k] == o)
+            count[a->seg->label[k]]++;
+    for (uint32_t id = 1; id <= a->count; id++)
+        if (count[id] > best)
+            best = count[id], best_id = id;
+    free(count);
+    *covered = best;
+    return best_id;
+}
+
+static void score_fermi(const synth_object *ob, const lam_region_result *r, robust_tally *t)
+{
+    const lam_fermi_estimate *f = &r->fermi;
+    if (!f->evaluated)
+        return;
+    double mu = fabs(ob->fermi_eV);
+    t->fermi_n++;
+    if (f->constrained) {
+        t->fermi_seen++;
+        t->fermi_width_sum += f->hi - f->lo;
+        t->fermi_covered += mu >= f->lo && mu <= f->hi;
+    } else {
+        t->fermi_covered += mu <= f->upper;
+    }
+}
+
+static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_tally *t,
+                         FILE *log, const char *name)
+{
+    for (int o = 0; o < sc->nobj; o++) {
+        const synth_object *ob = &sc->obj[o];
+        if ((ob->kind != SYNTH_OBJ_FLAKE && ob->kind != SYNTH_OBJ_FOLD) || ob->layers > 3 ||
+            ob->layers < 1 || ob->area_px < 50)
+            continue;
+        size_t cov = 0;
+        uint32_t id = covering_region(sc, o, a, &cov);
+        const lam_region_result *r = id && cov * 10 >= (size_t)ob->area_px * 3 ? &a->results[id - 1]
+                                                                                : NULL;
+        if (ob->doped && r) {
+            score_fermi(ob, r, t);
+            continue; /* doped flakes are scored for their Fermi level */
+        }
+        t->flakes++;
+        t->by_n[ob->layers]++;
+        int ok = r && r->layers == ob->layers;
+        t->right += ok;
+        t->right_n[ob->layers] += ok;
+        if (r && r->layers > 0 && r->p_label >= 0.95) {
+            t->confident++;
+            t->confident_right += ok;
+        }
+        if (!ok && log)
+            fprintf(log, "%s: %dL flake (%ld px) found %s (p %.3f)\n", name, ob->layers,
+                    ob->area_px, r ? r->label : "nothing", r ? r->p_label : 0.0);
+    }
+}
+
+static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tally *t)
+{
+    if (!a->oxide.fitted)
+        return;
+    double err = fabs(a->oxide.estimate - sc->phys.oxide_nm);
+    t->oxide_n++;
+    t->oxide_abs_sum += err;
+    t->oxide_abs_max = fmax(t->oxide_abs_max, err);
+    t->oxide_within_3 += err <= 3;
+    t->oxide_covered += err <= 2 * a->oxide.sigma;
+}
+
+static int analyse(const char *img, const char *setup_path, const synth_scene *sc,
+                   robust_tally *t, FILE *log)
+{
+    lam_setup s;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&s);
+    if (lam_setup_load(setup_path, &s, &err)) {
+        fprintf(stderr, "robust: %s: %s\n", setup_path, err.message);
+        return -1;
+    }
+    lam_analysis_options opt = lam_analysis_options_default();
+    opt.threads = 1;
+    lam_analysis *a = NULL;
+    double t0 = now_s();
+    int rc = 0;
+    if (lam_analyze(img, &s, &opt, &a, &err)) {
+        fprintf(stderr, "robust: %s: %s\n", img, err.message);
+        rc = -1;
+    } else {
+        t->seconds += now_s() - t0;
+        t->images++;
+        score_flakes(sc, a, t, log, img);
+        score_oxide(sc, a, t);
+    }
+    lam_analysis_free(a);
+    lam_setup_clear(&s);
+    return rc;
+}
+
+int robust_run(const robust_case *c, unsigned long long seed, const char *dir, robust_tally *t,
+               FILE *log)
+{
+    synth_scene sc;
+    synth_image im;
+    if (synth_scene_make(&c->cfg, seed, &sc)) {
+        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
+        return -1;
+    }
+    char stem[1024], img[1100], setup[1100];
+    snprintf(stem, sizeof stem, "%s/s%llu-%d", dir, seed, (int)c->fmt);
+    snprintf(img, sizeof img, "%s.%s", stem, synth_format_ext(c->fmt));
+    snprintf(setup, sizeof setup, "%s.setup.json", stem);
+    int rc = synth_render(&sc, &im);
+    if (!rc) {
+        rc = synth_save(&im, c->fmt, c->quality, img) ||
+             synth_write_setup(&sc, c->fmt, c->informed, setup) || synth_write_truth(&sc, stem);
+        synth_image_free(&im);
+    }
+    if (rc)
+        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
+    else
+        rc = analyse(img, c->pooled_setup ? c->pooled_setup : setup, &sc, t, log);
+    synth_scene_free(&sc);
+    return rc;
+}
+
+void robust_add(robust_tally *into, const robust_tally *t)
+{
+    into->flakes += t->flakes;
+    into->right += t->right;
+    for (int n = 0; n < 4; n++) {
+        into->by_n[n] += t->by_n[n];
+        into->right_n[n] += t->right_n[n];
+    }
+    into->confident += t->confident;
+    into->confident_right += t->confident_right;
+    into->images += t->images;
+    into->oxide_n += t->oxide_n;
+    into->oxide_within_3 += t->oxide_within_3;
+    into->oxide_covered += t->oxide_covered;
+    into->oxide_abs_sum += t->oxide_abs_sum;
+    into->oxide_abs_max = fmax(into->oxide_abs_max, t->oxide_abs_max);
+    into->fermi_n += t->fermi_n;
+    into->fermi_covered += t->fermi_covered;
+    into->fermi_seen += t->fermi_seen;
+    into->fermi_width_sum += t->fermi_width_sum;
+    into->seconds += t->seconds;
+}
+
+static double pct(size_t a, size_t b)
+{
+    return b ? 100.0 * (double)a / (double)b : NAN;
+}
+
+void robust_print(FILE *f, const char *label, const robust_tally *t)
+{
+    fprintf(f, "%-34s %4zu img  1-3L %5.1f %% (%zu/%zu: 1L %.1f 2L %.1f 3L %.1f)  p>=0.95 %5.1f %% "
+               "of %zu  oxide |err| mean %.2f max %.2f nm, <=3 nm %.0f %%, in 2 sigma %.0f %%",
+            label, t->images, pct(t->right, t->flakes), t->right, t->flakes,
+            pct(t->right_n[1], t->by_n[1]), pct(t->right_n[2], t->by_n[2]),
+            pct(t->right_n[3], t->by_n[3]), pct(t->confident_right, t->confident), t->confident,
+            t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN, t->oxide_abs_max,
+            pct(t->oxide_within_3, t->oxide_n), pct(t->oxide_covered, t->oxide_n));
+    if (t->fermi_n)
+        fprintf(f, "  Fermi: covered %.0f %% of %zu, blocking seen %zu, mean width %.2f eV",
+                pct(t->fermi_covered, t->fermi_n), t->fermi_n, t->fermi_seen,
+                t->fermi_seen ? t->fermi_width_sum / (double)t->fermi_seen : NAN);
+    fprintf(f, "  %.2f s/img\n", t->images ? t->seconds / (double)t->images : NAN);
+}

@@ -1,0 +1,50 @@
+/*
+ * tests/robust/robust.h - scoring lamina's analysis on micrographs drawn by
+ * the independent generator (tests/synth): physics the analysis is not
+ * told (graphene response, camera curves with colour matrices, lamp, pupil,
+ * true oxide, Bayer mosaics, JPEG). Used by tests/test_robust.c (a quick
+ * matrix in `make test`) and build/tests/robust (the full matrix: `make
+ * accuracy`).
+ *
+ * A truth flake (or fold) of 1-3 layers counts as "right" when the analysis
+ * region covering most of its pixels is labelled with its layer count; a
+ * flake no region covers for at least 30 % of its area is wrong.
+ * "Confident" regions are those labelled with p_label >= 0.95: their
+ * accuracy checks the posterior's calibration.
+ */
+#ifndef LAMINA_TESTS_ROBUST_H
+#define LAMINA_TESTS_ROBUST_H
+
+#include <stddef.h>
+#include <stdio.h>
+#include "../synth/synth.h"
+
+typedef struct robust_tally {
+    size_t flakes, right;               /* 1-3L flakes */
+    size_t by_n[4], right_n[4];         /* per layer count */
+    size_t confident, confident_right;  /* p_label >= 0.95, any 1..K label */
+    size_t images, oxide_n, oxide_within_3, oxide_covered; /* covered: |err| <= 2 sigma */
+    double oxide_abs_sum, oxide_abs_max;
+    size_t fermi_n, fermi_covered, fermi_seen; /* doped monolayers */
+    double fermi_width_sum;
+    double seconds;
+} robust_tally;
+
+typedef struct robust_case {
+    synth_config cfg;
+    synth_format fmt;
+    int quality;
+    int informed;       /* 1: the setup gives camera, lamp, NA, encoding */
+    const char *pooled_setup; /* not NULL: analyse with this setup instead */
+} robust_case;
+
+/* Render scene 'seed' of a case into dir, analyse it, add to the tally.
+ * log (may be NULL) gets one line per wrong flake. Returns 0, or -1 when
+ * the scene could not be made or analysed (the message is printed). */
+int robust_run(const robust_case *c, unsigned long long seed, const char *dir, robust_tally *t,
+               FILE *log);
+
+void robust_add(robust_tally *into, const robust_tally *t);
+void robust_print(FILE *f, const char *label, const robust_tally *t);
+
+#endif
