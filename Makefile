@@ -178,4 +178,4 @@ install: $(BIN)
 clean:
 	rm -rf build build-asan build-noopt build-vg lamina-out
 
--include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d)
+-include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d $(BUILD)/tests/robust/*.d)

@@ -244,7 +244,8 @@ static lam_status segment_stage(run *r, lam_error *err)
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
-                                        a->substrate.noise, &so, a->seg, err);
+                                        a->substrate.noise, a->substrate.tile_scatter, &so,
+                                        a->seg, err);
     if (st)
         return st;
     free(a->measured);
@@ -256,6 +257,9 @@ static lam_status segment_stage(run *r, lam_error *err)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
     MARK(r, LAM_T_SEGMENT);
+    /* the substrate's own low-frequency errors set the floor's prior */
+    for (size_t c = 0; c < a->channels; c++)
+        lam_estimate_set_floor_prior(a->estimate, c, a->substrate.tile_scatter[c]);
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 

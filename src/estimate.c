@@ -129,7 +129,8 @@ lam_status lam_estimate_alloc(const lam_setup *setup, size_t channels,
         e->opt.max_layers = 6;
     e->channels = channels;
     e->max_layers = e->opt.max_layers;
-    e->floor_abs = e->opt.floor_abs;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        e->floor_abs[c] = e->floor_abs_prior[c] = e->opt.floor_abs;
     e->floor_rel = e->floor_rel_prior = e->opt.floor_rel;
     e->fermi_ev = setup->sheet.fermi_ev;
     response_priors(e, setup);
@@ -197,6 +198,12 @@ lam_status lam_estimate_set_regions(lam_estimate *e, size_t j, const lam_est_reg
     return LAM_OK;
 }
 
+void lam_estimate_set_floor_prior(lam_estimate *e, size_t c, double floor_abs)
+{
+    if (c < LAM_MAX_CHANNELS && floor_abs > e->opt.floor_abs)
+        e->floor_abs[c] = e->floor_abs_prior[c] = floor_abs;
+}
+
 void lam_estimate_set_prior(lam_estimate *e, int k, double mean, double sd, const char *source)
 {
     lam_nuisance *n = &e->shared[k];
@@ -231,9 +238,9 @@ void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS])
         gain[c] = exp(e->shared[LAM_NU_GAIN + c].value);
 }
 
-double lam_estimate_floor_var(const lam_estimate *e, double contrast)
+double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast)
 {
-    double f = e->floor_abs + e->floor_rel * fabs(contrast);
+    double f = e->floor_abs[channel] + e->floor_rel * fabs(contrast);
     return f * f;
 }
 
@@ -297,7 +304,7 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
             lo = fmin(lo, ladder->contrast[N][c]);
             hi = fmax(hi, ladder->contrast[N][c]);
         }
-        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, hi));
+        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, hi));
         lo -= 3 * f, hi += 3 * f;
         double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
         s += -log(hi - lo) - 0.5 * (out / f) * (out / f);
@@ -315,7 +322,7 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
     double var[LAM_MAX_CHANNELS];
     for (size_t h = 0; h <= K && h <= top; h++) {
         for (size_t c = 0; c < nc; c++)
-            var[c] = r->var[c] + lam_estimate_floor_var(e, ladder->contrast[h][c]);
+            var[c] = r->var[c] + lam_estimate_floor_var(e, c, ladder->contrast[h][c]);
         lt[h] = log(lam_hypothesis_prior(h, K)) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }

@@ -185,7 +185,7 @@ static void add_region(const lam_estimate *e, const lam_est_region *r, const dou
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = w->ladder.contrast[h][c];
-            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, pred)), res = r->mean[c] - pred;
+            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, c, pred)), res = r->mean[c] - pred;
             double jd = w->grad[n][h][c];
             for (size_t a = 0; a < n; a++) {
                 double ja = w->grad[a][h][c];
@@ -595,7 +595,10 @@ static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
 #define FLOOR_ABS_MAX 0.04
 #define FLOOR_STEPS 16
 
-static double floor_loglik(const lam_estimate *e, const img_work *w, double fa, double fr)
+/* Log-likelihood of the confident regions' residuals in the channels of
+ * 'mask' with absolute floors fa[] and relative floor fr, with the priors. */
+static double floor_loglik(const lam_estimate *e, const img_work *w, const double *fa, double fr,
+                           unsigned mask)
 {
     size_t K = e->max_layers, H = K + 3, nc = e->channels;
     double s = 0;
@@ -608,30 +611,57 @@ static double floor_loglik(const lam_estimate *e, const img_work *w, double fa, 
                 if (resp[h] < 0.9)
                     continue;
                 for (size_t c = 0; c < nc; c++) {
+                    if (!(mask & (1u << c)))
+                        continue;
                     double pred = w[j].ladder.contrast[h][c], d = r->mean[c] - pred;
-                    double fl = fa + fr * fabs(pred), var = r->var[c] + fl * fl;
+                    double fl = fa[c] + fr * fabs(pred), var = r->var[c] + fl * fl;
                     s += -0.5 * (d * d / var + log(var));
                 }
             }
         }
     }
     double zr = log(fr / e->floor_rel_prior) / FLOOR_PRIOR_SD_LOG_REL;
-    double za = log(fa / e->opt.floor_abs) / FLOOR_PRIOR_SD_LOG_ABS;
-    return s - 0.5 * (zr * zr + za * za);
+    s -= 0.5 * zr * zr;
+    for (size_t c = 0; c < nc; c++)
+        if (mask & (1u << c)) {
+            double za = log(fa[c] / e->floor_abs_prior[c]) / FLOOR_PRIOR_SD_LOG_ABS;
+            s -= 0.5 * za * za;
+        }
+    return s;
 }
 
+static double grid_value(double lo, double hi, int k)
+{
+    return lo * pow(hi / lo, k / (double)FLOOR_STEPS);
+}
+
+/* Each channel's absolute floor and the shared relative floor, by
+ * coordinate search on log grids (two rounds). */
 static void estimate_floor(const lam_estimate *e, const img_work *w, double *fa, double *fr)
 {
-    double best = -INFINITY;
-    *fa = e->floor_abs, *fr = e->floor_rel;
-    for (int i = 0; i <= FLOOR_STEPS; i++)
-        for (int k = 0; k <= FLOOR_STEPS; k++) {
-            double a = FLOOR_ABS_MIN * pow(FLOOR_ABS_MAX / FLOOR_ABS_MIN, i / (double)FLOOR_STEPS);
-            double r = FLOOR_REL_MIN * pow(FLOOR_REL_MAX / FLOOR_REL_MIN, k / (double)FLOOR_STEPS);
-            double v = floor_loglik(e, w, a, r);
-            if (v > best)
-                best = v, *fa = a, *fr = r;
+    memcpy(fa, e->floor_abs, LAM_MAX_CHANNELS * sizeof *fa);
+    *fr = e->floor_rel;
+    unsigned all = (1u << e->channels) - 1;
+    for (int round = 0; round < 2; round++) {
+        for (size_t c = 0; c < e->channels; c++) {
+            double best = -INFINITY, keep = fa[c];
+            for (int k = 0; k <= FLOOR_STEPS; k++) {
+                fa[c] = grid_value(FLOOR_ABS_MIN, FLOOR_ABS_MAX, k);
+                double v = floor_loglik(e, w, fa, *fr, 1u << c);
+                if (v > best)
+                    best = v, keep = fa[c];
+            }
+            fa[c] = keep;
         }
+        double best = -INFINITY, keep = *fr;
+        for (int k = 0; k <= FLOOR_STEPS; k++) {
+            double r = grid_value(FLOOR_REL_MIN, FLOOR_REL_MAX, k);
+            double v = floor_loglik(e, w, fa, r, all);
+            if (v > best)
+                best = v, keep = r;
+        }
+        *fr = keep;
+    }
 }
 
 /* Re-estimate the floor; refit when it moved. */
@@ -640,11 +670,14 @@ static lam_status refloor(fit_ctx *f, double *lp, lam_error *err)
     lam_estimate *e = f->e;
     if (!e->opt.estimate_floor)
         return LAM_OK;
-    double fa, fr;
-    estimate_floor(e, f->w, &fa, &fr);
-    if (fabs(log(fr / e->floor_rel)) <= 0.2 && fabs(log(fa / e->floor_abs)) <= 0.2)
+    double fa[LAM_MAX_CHANNELS], fr;
+    estimate_floor(e, f->w, fa, &fr);
+    int moved = fabs(log(fr / e->floor_rel)) > 0.2;
+    for (size_t c = 0; c < e->channels; c++)
+        moved |= fabs(log(fa[c] / e->floor_abs[c])) > 0.2;
+    if (!moved)
         return LAM_OK;
-    e->floor_abs = fa;
+    memcpy(e->floor_abs, fa, sizeof e->floor_abs);
     e->floor_rel = fr;
     return run_em(f, e->opt.max_iterations, lp, err);
 }

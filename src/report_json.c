@@ -63,7 +63,7 @@ static void add_model(cJSON *root, const lam_analysis *a)
         cJSON_AddItemToArray(lad, vec(a->ladder.contrast[N], a->channels));
     const lam_estimate *e = a->estimate;
     cJSON *fl = cJSON_AddObjectToObject(model, "floor");
-    cJSON_AddNumberToObject(fl, "absolute", e->floor_abs);
+    cJSON_AddItemToObject(fl, "absolute", vec(e->floor_abs, a->channels));
     cJSON_AddNumberToObject(fl, "relative", round4(e->floor_rel));
 }
 

@@ -326,8 +326,9 @@ static void thresholds(const lam_image *img, size_t channels, const double *c1,
 }
 
 lam_status lam_segment_uniform(const lam_image *img, size_t channels, const double *c1,
-                               const double noise[3], const lam_segment_options *opt,
-                               lam_segmentation *seg, lam_error *err)
+                               const double noise[3], const double scatter[3],
+                               const lam_segment_options *opt, lam_segmentation *seg,
+                               lam_error *err)
 {
     size_t w = img->width, h = img->height, n = w * h;
     if (n >= UINT32_MAX / 2)
@@ -338,6 +339,9 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     ec.cls = seg->cls;
     double delta[3], sigma[3];
     thresholds(img, channels, c1, noise, &ec, delta, sigma);
+    /* substrate patches differ by its low-frequency errors: let them merge */
+    for (size_t c = 0; c < 3; c++)
+        delta[c] = fmax(delta[c], 2 * scatter[c]);
     lam_parallel_for(h, opt->threads ? opt->threads : 1, edge_rows, &ec);
     lam_status st = dilate_edges(seg->cls, w, h, err);
     if (st)
@@ -356,7 +360,8 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     free(depth);
     double tol[3];
     for (size_t c = 0; c < 3; c++)
-        tol[c] = fmax(SUBSTRATE_FRACTION * fabs(c < channels ? c1[c] : 0), SUBSTRATE_MIN);
+        tol[c] = fmax(fmax(SUBSTRATE_FRACTION * fabs(c < channels ? c1[c] : 0), SUBSTRATE_MIN),
+                      4 * scatter[c]);
     for (uint32_t i = 0; i < m; i++)
         R[i].cls = at_zero(&R[i], channels, tol) ? LAM_CLASS_SUBSTRATE : PROVISIONAL;
     lam__keep_regions(seg, R, m, opt->min_region_px);

@@ -2,6 +2,7 @@
  * (GSL bisquare regression), noise estimate and the contrast map. */
 #include "lamina/substrate.h"
 #include "lamina/parallel.h"
+#include "substrate_internal.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -17,7 +18,7 @@ lam_substrate_options lam_substrate_options_default(void)
     return o;
 }
 
-static void basis(const lam_substrate *s, double x, double y, double *b)
+void lam__substrate_basis(const lam_substrate *s, double x, double y, double *b)
 {
     double u = 2 * x / (double)s->width - 1, v = 2 * y / (double)s->height - 1;
     double r2 = u * u + v * v;
@@ -27,7 +28,7 @@ static void basis(const lam_substrate *s, double x, double y, double *b)
 void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3])
 {
     double b[LAM_SUBSTRATE_TERMS];
-    basis(s, x, y, b);
+    lam__substrate_basis(s, x, y, b);
     for (int c = 0; c < 3; c++) {
         double a = 0;
         for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
@@ -36,11 +37,7 @@ void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3
     }
 }
 
-typedef struct tile_stat {
-    double mean[3], rsd[3]; /* relative standard deviation */
-    double cx, cy, u, v;
-    int uniform, clipped, candidate;
-} tile_stat;
+
 
 static int cmp_double(const void *a, const void *b)
 {
@@ -113,142 +110,166 @@ static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx,
     lam_parallel_for(ny, threads, tile_rows, &tc);
 }
 
-/* Chromaticity peaks among uniform tiles: a 2-D histogram, 3x3 smoothed;
- * local maxima holding at least a tenth of the highest, strongest first,
- * each refined to the mean chromaticity of the tiles in its 3x3 cell. */
-#define MAX_MODES 4
-typedef struct chroma_mode {
-    double u, v;
-    unsigned count;
-} chroma_mode;
-
-static size_t chromaticity_modes(const tile_stat *ts, size_t n, double bin, chroma_mode *out)
+/* Uniform tiles: relative spread below 2.5x the typical (median) spread,
+ * none clipped. */
+static void mark_uniform(tile_stat *ts, size_t n, double *scratch)
 {
-    double umin = INFINITY, vmin = INFINITY, umax = -INFINITY, vmax = -INFINITY;
-    for (size_t i = 0; i < n; i++)
-        if (ts[i].uniform) {
-            umin = fmin(umin, ts[i].u), umax = fmax(umax, ts[i].u);
-            vmin = fmin(vmin, ts[i].v), vmax = fmax(vmax, ts[i].v);
-        }
-    if (!isfinite(umin))
-        return 0;
-    size_t nu = (size_t)((umax - umin) / bin) + 3, nv = (size_t)((vmax - vmin) / bin) + 3;
-    if (nu > 400)
-        nu = 400;
-    if (nv > 400)
-        nv = 400;
-    double bu = (umax - umin) / (double)(nu - 2) + 1e-12, bv = (vmax - vmin) / (double)(nv - 2) + 1e-12;
-    unsigned *h = calloc(nu * nv, sizeof *h), *sm = calloc(nu * nv, sizeof *sm);
-    if (!h || !sm) {
-        free(h);
-        free(sm);
-        return 0;
-    }
-    for (size_t i = 0; i < n; i++)
-        if (ts[i].uniform) {
-            size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
-            if (a < nu && b < nv)
-                h[a * nv + b]++;
-        }
-    unsigned top = 0;
-    for (size_t a = 1; a + 1 < nu; a++)
-        for (size_t b = 1; b + 1 < nv; b++) {
-            unsigned t = 0;
-            for (int da = -1; da <= 1; da++)
-                for (int db = -1; db <= 1; db++)
-                    t += h[(a + (size_t)da) * nv + b + (size_t)db];
-            sm[a * nv + b] = t;
-            top = t > top ? t : top;
-        }
     size_t m = 0;
-    size_t cells[MAX_MODES][2];
-    for (size_t a = 1; a + 1 < nu; a++)
-        for (size_t b = 1; b + 1 < nv; b++) {
-            unsigned t = sm[a * nv + b];
-            if (t == 0 || t * 10 < top)
-                continue;
-            int peak = 1;
-            for (int da = -1; da <= 1 && peak; da++)
-                for (int db = -1; db <= 1 && peak; db++) {
-                    if (!da && !db)
-                        continue;
-                    size_t aa = a + (size_t)da, bb = b + (size_t)db;
-                    if (aa < 1 || bb < 1 || aa + 1 >= nu || bb + 1 >= nv)
-                        continue;
-                    unsigned o = sm[aa * nv + bb];
-                    /* ties: the first cell in scan order is the peak */
-                    if (o > t || (o == t && (da < 0 || (da == 0 && db < 0))))
-                        peak = 0;
-                }
-            if (!peak)
-                continue;
-            /* keep the strongest MAX_MODES */
-            size_t k;
-            if (m < MAX_MODES) {
-                k = m++;
-            } else {
-                if (out[MAX_MODES - 1].count >= t)
-                    continue;
-                k = MAX_MODES - 1;
-            }
-            out[k].count = t;
-            cells[k][0] = a, cells[k][1] = b;
-            for (size_t z = k; z > 0 && out[z].count > out[z - 1].count; z--) {
-                chroma_mode tm = out[z];
-                out[z] = out[z - 1];
-                out[z - 1] = tm;
-                size_t c0 = cells[z][0], c1 = cells[z][1];
-                cells[z][0] = cells[z - 1][0], cells[z][1] = cells[z - 1][1];
-                cells[z - 1][0] = c0, cells[z - 1][1] = c1;
-            }
-        }
-    for (size_t k = 0; k < m; k++) {
-        double su = 0, sv = 0;
-        size_t cnt = 0;
-        for (size_t i = 0; i < n; i++)
-            if (ts[i].uniform) {
-                size_t a = (size_t)((ts[i].u - umin) / bu) + 1, b = (size_t)((ts[i].v - vmin) / bv) + 1;
-                if (a + 1 >= cells[k][0] && a <= cells[k][0] + 1 && b + 1 >= cells[k][1] &&
-                    b <= cells[k][1] + 1)
-                    su += ts[i].u, sv += ts[i].v, cnt++;
-            }
-        out[k].u = cnt ? su / (double)cnt : umin;
-        out[k].v = cnt ? sv / (double)cnt : vmin;
-    }
-    free(h);
-    free(sm);
-    return m;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform)
+            scratch[m++] = fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2]));
+    double typical = median_of(scratch, m);
+    for (size_t i = 0; i < n; i++)
+        ts[i].uniform = ts[i].uniform && !ts[i].clipped &&
+                        fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2])) <= 2.5 * typical + 1e-6;
 }
 
-/* With a ladder, the substrate is the peak relative to which the other
- * peaks look most like graphene: the chromaticity shift of N layers,
- * (ln((1-C_R)/(1-C_G)), ln((1-C_B)/(1-C_G))), is what vignetting and lamp
- * gradients leave unchanged. Without a ladder, the largest peak. A flake
- * covering most of the field then does not pass for the substrate. */
-static size_t choose_substrate_mode(const chroma_mode *md, size_t m,
-                                    const lam_substrate_options *opt)
+/* A few thousand tiles fix 7 coefficients well: thin out the rest. */
+static size_t thin_candidates(tile_stat *ts, size_t n, size_t cand)
 {
-    if (m <= 1 || !opt->ladder || opt->ladder_count == 0)
-        return 0;
-    double best = INFINITY;
-    size_t bi = 0;
-    for (size_t i = 0; i < m; i++) {
-        double score = 0;
-        for (size_t j = 0; j < m; j++) {
-            if (j == i)
-                continue;
-            double du = md[j].u - md[i].u, dv = md[j].v - md[i].v, dmin = INFINITY;
-            for (size_t e = 0; e < opt->ladder_count; e++) {
-                const double *c = opt->ladder[e];
-                double lu = log((1 - c[0]) / (1 - c[1])), lv = log((1 - c[2]) / (1 - c[1]));
-                dmin = fmin(dmin, (du - lu) * (du - lu) + (dv - lv) * (dv - lv));
-            }
-            score += (double)md[j].count * dmin;
+    if (cand <= 1500)
+        return cand;
+    size_t keep_every = (cand + 1499) / 1500, seen = 0;
+    cand = 0;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].candidate) {
+            ts[i].candidate = seen++ % keep_every == 0;
+            cand += (size_t)ts[i].candidate;
         }
-        if (score < best)
-            best = score, bi = i;
+    return cand;
+}
+
+/* Robust (GSL bisquare) fit of ln(level) per channel over the candidates. */
+static lam_status fit_flat_field(const tile_stat *ts, size_t n, size_t cand, lam_substrate *s,
+                                 lam_error *err)
+{
+    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
+    gsl_vector *y = gsl_vector_alloc(cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
+    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
+    gsl_multifit_robust_workspace *ws =
+        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, cand, LAM_SUBSTRATE_TERMS);
+    lam_status st = X && y && coef && cov && ws
+                        ? LAM_OK
+                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
+    for (size_t i = 0, r = 0; i < n && !st; i++) {
+        if (!ts[i].candidate)
+            continue;
+        double b[LAM_SUBSTRATE_TERMS];
+        lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
+        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+            gsl_matrix_set(X, r, (size_t)k, b[k]);
+        r++;
     }
-    return bi;
+    if (ws)
+        gsl_multifit_robust_maxiter(30, ws);
+    for (int c = 0; c < 3 && !st; c++) {
+        for (size_t i = 0, r = 0; i < n; i++)
+            if (ts[i].candidate)
+                gsl_vector_set(y, r++, log(ts[i].mean[c]));
+        int gs = gsl_multifit_robust(X, y, coef, cov, ws);
+        if (gs && gs != GSL_EMAXITER)
+            st = lam_error_gsl(err, gs, "flat-field fit");
+        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+            s->coef[c][k] = gsl_vector_get(coef, (size_t)k);
+    }
+    gsl_matrix_free(X);
+    gsl_vector_free(y);
+    gsl_vector_free(coef);
+    gsl_matrix_free(cov);
+    gsl_multifit_robust_free(ws);
+    return st;
+}
+
+/* The largest relative deviation of a tile from the fitted flat field. */
+static double tile_deviation(const tile_stat *t, const lam_substrate *s)
+{
+    double b[3], worst = 0;
+    lam_substrate_eval(s, t->cx, t->cy, b);
+    for (int c = 0; c < 3; c++)
+        worst = fmax(worst, fabs(log(t->mean[c] / b[c])));
+    return worst;
+}
+
+/* Second pass: the first fit was made from a colour-and-brightness mode
+ * found against a rough brightness model; now every uniform tile close to
+ * the fitted flat field (within 4.5 robust sigmas of the candidates' own
+ * deviations, 0.004 to 0.03) is substrate - the corners that the rough
+ * model had cut off come back. */
+static size_t refine_candidates(tile_stat *ts, size_t n, const lam_substrate *s, double *scratch)
+{
+    size_t k = 0;
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].candidate)
+            scratch[k++] = tile_deviation(&ts[i], s);
+    double tol = k ? fmin(0.03, fmax(0.004, 4.5 * 1.4826 * median_of(scratch, k))) : 0.01;
+    size_t cand = 0;
+    for (size_t i = 0; i < n; i++) {
+        ts[i].candidate = ts[i].uniform && tile_deviation(&ts[i], s) <= tol;
+        cand += (size_t)ts[i].candidate;
+    }
+    return cand;
+}
+
+/* Noise, correlation factor kappa, mean level and fall-off over the
+ * substrate tiles. */
+static void substrate_stats(const tile_stat *ts, size_t n, size_t T, const lam_image *img,
+                            lam_substrate *s, double *scratch)
+{
+    double lev[3] = {0, 0, 0}, resid2 = 0, expect2 = 0;
+    size_t used = 0;
+    for (int c = 0; c < 3; c++) {
+        size_t k = 0;
+        for (size_t i = 0; i < n; i++)
+            if (ts[i].candidate)
+                scratch[k++] = ts[i].rsd[c];
+        s->noise[c] = median_of(scratch, k);
+    }
+    for (size_t i = 0; i < n; i++) {
+        if (!ts[i].candidate)
+            continue;
+        double b[3];
+        lam_substrate_eval(s, ts[i].cx, ts[i].cy, b);
+        for (int c = 0; c < 3; c++) {
+            lev[c] += b[c];
+            double d = ts[i].mean[c] / b[c] - 1;
+            resid2 += d * d;
+            expect2 += s->noise[c] * s->noise[c] / (double)(T * T);
+        }
+        used++;
+    }
+    for (int c = 0; c < 3; c++) {
+        s->level[c] = used ? lev[c] / (double)used : NAN;
+        size_t k = 0;
+        for (size_t i = 0; i < n; i++)
+            if (ts[i].candidate) {
+                double b[3];
+                lam_substrate_eval(s, ts[i].cx, ts[i].cy, b);
+                scratch[k++] = fabs(ts[i].mean[c] / b[c] - 1);
+            }
+        s->tile_scatter[c] = k ? 1.4826 * median_of(scratch, k) : 0;
+    }
+    s->kappa = expect2 > 0 && resid2 > expect2 ? resid2 / expect2 : 1.0;
+    s->tiles_used = used;
+    s->tiles_total = n;
+    s->fraction = (double)used / (double)n;
+    double gmin = INFINITY, gmax = 0;
+    for (size_t yy = 0; yy <= 8; yy++)
+        for (size_t xx = 0; xx <= 8; xx++) {
+            double b[3];
+            lam_substrate_eval(s, (double)img->width * (double)xx / 8,
+                               (double)img->height * (double)yy / 8, b);
+            gmin = fmin(gmin, b[1]);
+            gmax = fmax(gmax, b[1]);
+        }
+    s->falloff = 1 - gmin / gmax;
+}
+
+static size_t tile_size(const lam_image *img, const lam_substrate_options *opt)
+{
+    size_t T = opt->tile ? opt->tile : 32;
+    while (T > 4 && (img->width / T < 6 || img->height / T < 6))
+        T /= 2;
+    return T;
 }
 
 lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_options *opt,
@@ -257,9 +278,7 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     lam_substrate_options defaults = lam_substrate_options_default();
     if (!opt)
         opt = &defaults;
-    size_t T = opt->tile ? opt->tile : 32;
-    while (T > 4 && (img->width / T < 6 || img->height / T < 6))
-        T /= 2;
+    size_t T = tile_size(img, opt);
     size_t nx = (img->width + T - 1) / T, ny = (img->height + T - 1) / T, n = nx * ny;
     tile_stat *ts = calloc(n, sizeof *ts);
     double *scratch = malloc(n * sizeof *scratch);
@@ -273,160 +292,25 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     s.width = img->width;
     s.height = img->height;
     tile_stats(img, T, ts, nx, ny, opt->threads ? opt->threads : 1);
-    /* uniform: relative spread below 2.5x the typical (median) spread */
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++)
-        if (ts[i].uniform)
-            scratch[m++] = fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2]));
-    double typical = median_of(scratch, m);
-    for (size_t i = 0; i < n; i++)
-        ts[i].uniform = ts[i].uniform && !ts[i].clipped &&
-                        fmax(ts[i].rsd[0], fmax(ts[i].rsd[1], ts[i].rsd[2])) <= 2.5 * typical + 1e-6;
-    double u0, v0;
-    if (opt->has_roi) {
-        double su = 0, sv = 0;
-        size_t cnt = 0;
-        for (size_t i = 0; i < n; i++)
-            if (ts[i].uniform && ts[i].cx >= (double)opt->roi[0] &&
-                ts[i].cx <= (double)(opt->roi[0] + opt->roi[2]) && ts[i].cy >= (double)opt->roi[1] &&
-                ts[i].cy <= (double)(opt->roi[1] + opt->roi[3]))
-                su += ts[i].u, sv += ts[i].v, cnt++;
-        if (!cnt) {
-            free(ts);
-            free(scratch);
-            return lam_error_set(err, LAM_ERANGE,
-                                 "the substrate region holds no uniform tile of %zu px", T);
-        }
-        u0 = su / (double)cnt, v0 = sv / (double)cnt;
-    } else {
-        chroma_mode md[MAX_MODES];
-        size_t nmodes = chromaticity_modes(ts, n, 0.004, md);
-        size_t pick = choose_substrate_mode(md, nmodes, opt);
-        u0 = nmodes ? md[pick].u : 0;
-        v0 = nmodes ? md[pick].v : 0;
-    }
-    /* candidates: chromaticity within 4.5 robust sigmas of the mode, the
-     * sigma measured on tiles near the mode (JPEG chroma quantisation and
-     * colour noise widen it), kept within 0.004..0.02 (a monolayer on 285 nm
-     * oxide moves (ln R/G, ln B/G) by ~0.1) */
-    size_t near = 0;
-    for (size_t i = 0; i < n; i++)
-        if (ts[i].uniform && hypot(ts[i].u - u0, ts[i].v - v0) <= 0.02)
-            scratch[near++] = hypot(ts[i].u - u0, ts[i].v - v0);
-    double spread = near ? 1.4826 * median_of(scratch, near) : 0.004;
-    double tol = fmin(0.02, fmax(0.004, 4.5 * spread));
-    size_t cand = 0;
-    for (size_t i = 0; i < n; i++) {
-        ts[i].candidate = ts[i].uniform && hypot(ts[i].u - u0, ts[i].v - v0) <= tol;
-        cand += (size_t)ts[i].candidate;
-    }
-    /* a few thousand tiles fix 7 coefficients well: thin out the rest */
-    if (cand > 1500) {
-        size_t keep_every = (cand + 1499) / 1500, seen = 0;
-        cand = 0;
-        for (size_t i = 0; i < n; i++)
-            if (ts[i].candidate) {
-                ts[i].candidate = seen++ % keep_every == 0;
-                cand += (size_t)ts[i].candidate;
-            }
-    }
+    mark_uniform(ts, n, scratch);
+    size_t cand = thin_candidates(ts, n, lam__substrate_candidates(ts, nx, ny, &s, opt));
     lam_status st = LAM_OK;
-    if (cand < 15) {
+    if (opt->has_roi && cand == 0)
+        st = lam_error_set(err, LAM_ERANGE, "the substrate region holds no uniform tile of %zu px", T);
+    else if (cand < 15)
         st = lam_error_set(err, LAM_ERANGE,
                            "no bare substrate found (%zu uniform substrate-coloured tiles); "
                            "give one with --substrate-roi X,Y,W,H",
                            cand);
-        goto done;
+    if (!st && !(st = fit_flat_field(ts, n, cand, &s, err))) {
+        size_t again = thin_candidates(ts, n, refine_candidates(ts, n, &s, scratch));
+        if (again >= 15)
+            st = fit_flat_field(ts, n, again, &s, err);
     }
-    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
-    gsl_vector *y = gsl_vector_alloc(cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
-    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
-    gsl_multifit_robust_workspace *ws =
-        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, cand, LAM_SUBSTRATE_TERMS);
-    if (!X || !y || !coef || !cov || !ws) {
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
-    } else {
-        size_t r = 0;
-        for (size_t i = 0; i < n; i++) {
-            if (!ts[i].candidate)
-                continue;
-            double b[LAM_SUBSTRATE_TERMS];
-            basis(&s, ts[i].cx, ts[i].cy, b);
-            for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
-                gsl_matrix_set(X, r, (size_t)k, b[k]);
-            r++;
-        }
-        gsl_multifit_robust_maxiter(30, ws);
-        for (int c = 0; c < 3 && !st; c++) {
-            r = 0;
-            for (size_t i = 0; i < n; i++)
-                if (ts[i].candidate)
-                    gsl_vector_set(y, r++, log(ts[i].mean[c]));
-            int gs = gsl_multifit_robust(X, y, coef, cov, ws);
-            if (gs && gs != GSL_EMAXITER)
-                st = lam_error_gsl(err, gs, "flat-field fit");
-            for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
-                s.coef[c][k] = gsl_vector_get(coef, (size_t)k);
-        }
+    if (!st) {
+        substrate_stats(ts, n, T, img, &s, scratch);
+        *out = s;
     }
-    gsl_matrix_free(X);
-    gsl_vector_free(y);
-    gsl_vector_free(coef);
-    gsl_matrix_free(cov);
-    gsl_multifit_robust_free(ws);
-    if (st)
-        goto done;
-    /* noise, correlation factor, level and fall-off over the substrate tiles */
-    {
-        double lev[3] = {0, 0, 0};
-        size_t used = 0;
-        for (int c = 0; c < 3; c++) {
-            size_t k = 0;
-            for (size_t i = 0; i < n; i++)
-                if (ts[i].candidate)
-                    scratch[k++] = ts[i].rsd[c];
-            s.noise[c] = median_of(scratch, k);
-        }
-        double resid2 = 0, expect2 = 0;
-        for (size_t i = 0; i < n; i++) {
-            if (!ts[i].candidate)
-                continue;
-            double b[3];
-            lam_substrate_eval(&s, ts[i].cx, ts[i].cy, b);
-            double worst = 0;
-            for (int c = 0; c < 3; c++)
-                worst = fmax(worst, fabs(ts[i].mean[c] / b[c] - 1) / (s.noise[c] + 1e-9));
-            if (worst > 6.0 * T) /* a flake of substrate colour: not substrate */
-                continue;
-            for (int c = 0; c < 3; c++) {
-                lev[c] += b[c];
-                double d = ts[i].mean[c] / b[c] - 1;
-                resid2 += d * d;
-                expect2 += s.noise[c] * s.noise[c] / (double)(T * T);
-            }
-            used++;
-        }
-        for (int c = 0; c < 3; c++)
-            s.level[c] = used ? lev[c] / (double)used : NAN;
-        s.kappa = expect2 > 0 ? resid2 / expect2 : 1.0;
-        if (s.kappa < 1)
-            s.kappa = 1;
-        s.tiles_used = used;
-        s.tiles_total = n;
-        s.fraction = (double)used / (double)n;
-        double gmin = INFINITY, gmax = 0;
-        for (size_t yy = 0; yy <= 8; yy++)
-            for (size_t xx = 0; xx <= 8; xx++) {
-                double b[3];
-                lam_substrate_eval(&s, (double)img->width * (double)xx / 8,
-                                   (double)img->height * (double)yy / 8, b);
-                gmin = fmin(gmin, b[1]);
-                gmax = fmax(gmax, b[1]);
-            }
-        s.falloff = 1 - gmin / gmax;
-    }
-    *out = s;
-done:
     free(ts);
     free(scratch);
     return st;

@@ -14,7 +14,7 @@
  * with g the per-channel contrast gains (stray light, tone-curve and
  * camera-curve errors all scale contrast), C the model ladder, V_i the
  * statistical variance of the region mean and F the model floor
- * diag((floor_abs + floor_rel |C_c|)^2): what the fitted family still
+ * diag((floor_abs_c + floor_rel |C_c|)^2): what the fitted family still
  * cannot reproduce. N_i is one of: bare substrate (0), 1..K layers, a
  * thicker flake (K+1..40, one hypothesis spread evenly over its entries),
  * or "unmodelled" (a broad density: residue, dust, another material); the
@@ -107,7 +107,8 @@ typedef struct lam_estimate {
     lam_nuisance shared[LAM_NU_COUNT];
     size_t images, cap;
     lam_est_image *image;
-    double floor_abs, floor_rel, floor_rel_prior;
+    double floor_abs[LAM_MAX_CHANNELS], floor_abs_prior[LAM_MAX_CHANNELS];
+    double floor_rel, floor_rel_prior;
     double fermi_ev;               /* Fermi level of the ladder (the setup's) */
     double start_scale;            /* the contrast scale the fit started from */
     int fitted;
@@ -182,7 +183,12 @@ typedef struct lam_est_view {
 lam_status lam_estimate_view(const lam_estimate *e, size_t j, lam_model *model,
                              lam_est_view *view, lam_error *err);
 
-/* Model floor variance of a predicted contrast value. */
-double lam_estimate_floor_var(const lam_estimate *e, double contrast);
+/* Model floor variance of a predicted contrast value in a channel. */
+double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast);
+
+/* The prior centre of a channel's absolute floor: what the image's own
+ * substrate says about its low-frequency errors (flat-field residuals, JPEG
+ * colour blocks), at least the default. */
+void lam_estimate_set_floor_prior(lam_estimate *e, size_t channel, double floor_abs);
 
 #endif

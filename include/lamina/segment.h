@@ -87,12 +87,13 @@ lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *lad
  * some channel) belong to no region; the other pixels join 4-neighbours
  * whose contrast differs by less than 4.5 times the measured neighbour
  * noise in every channel; the connected sets are regions, and those at
- * zero contrast (within 0.3 |c1| or 0.003 in every channel) the bare
- * substrate. Layer counts are then decided per region (lamina/infer.h),
+ * zero contrast (within 0.3 |c1|, 0.003 or 4 x the substrate's own
+ * low-frequency scatter 'scatter', in every channel) the bare substrate. Layer counts are then decided per region (lamina/infer.h),
  * so a flake is one region however the model's ladder is off. */
 lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const double *c1,
-                               const double noise[3], const lam_segment_options *opt,
-                               lam_segmentation *seg, lam_error *err);
+                               const double noise[3], const double scatter[3],
+                               const lam_segment_options *opt, lam_segmentation *seg,
+                               lam_error *err);
 
 /* Connected regions of non-substrate classes with their statistics (used
  * for label maps, whose classes are given). */

@@ -37,6 +37,8 @@ typedef struct lam_substrate {
     double level[3];      /* mean fitted level over the substrate tiles */
     double noise[3];      /* relative per-pixel sigma */
     double kappa;         /* correlation factor: n_eff = n / kappa (>= 1) */
+    double tile_scatter[3]; /* robust sd of substrate tile means about the flat field:
+                             * low-frequency errors (fit residuals, JPEG colour blocks) */
     double falloff;       /* 1 - min/max of the fitted G level over the image */
     double fraction;      /* fraction of tiles taken as substrate */
     size_t tiles_used, tiles_total;

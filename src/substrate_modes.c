@@ -1,0 +1,314 @@
+/* substrate_modes.c - which uniform tiles are the bare substrate.
+ *
+ * Each uniform tile is a point (r, u, v): u = ln R/G and v = ln B/G (the
+ * colour, which vignetting and lamp gradients leave alone) and r its
+ * brightness relative to a smooth robust fit over all uniform tiles (the
+ * flat field, roughly removed). Graphene layers move these points by
+ * their contrast: mostly the colour on 285 nm oxide, mostly the
+ * brightness on 90 nm. The dense clusters ("modes") are found by counting
+ * neighbours; the substrate is the mode against which the others look
+ * like graphene, judged on spatially adjacent tiles (one tile apart the
+ * flat field cancels) in every channel: the contrast of mode j against
+ * candidate i must lie near a ladder entry up to a scale of 0.6-1.6 (the
+ * response is not known yet). From a flake's point of view the substrate
+ * looks like negative graphene, which no entry matches. Without a ladder,
+ * or when the modes never touch, the largest mode wins. */
+#include "substrate_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <gsl/gsl_multifit.h>
+
+#define MAX_MODES 6
+#define DENSITY_SAMPLE 2000   /* tiles used to find modes */
+#define BOX_R 0.015           /* neighbourhood half widths: brightness ... */
+#define BOX_UV 0.008          /* ... and colour */
+#define ADJ_MIN_PAIRS 3
+#define SCALE_LO 0.6
+#define SCALE_HI 1.6
+
+typedef struct mode {
+    double r, u, v;
+    size_t count;
+} mode;
+
+/* Brightness of each uniform tile against a robust smooth fit of
+ * ln(sum of channels) over all of them. */
+static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substrate *s,
+                                 double *r)
+{
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++)
+        m += ts[i].uniform != 0;
+    size_t every = m > 1500 ? (m + 1499) / 1500 : 1, k = 0, used = 0;
+    gsl_matrix *X = gsl_matrix_alloc(m / every + 1, LAM_SUBSTRATE_TERMS);
+    gsl_vector *y = gsl_vector_alloc(m / every + 1), *c = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
+    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
+    double b[LAM_SUBSTRATE_TERMS];
+    for (size_t i = 0; i < n && X && y; i++) {
+        if (!ts[i].uniform || k++ % every)
+            continue;
+        lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
+        for (int t = 0; t < LAM_SUBSTRATE_TERMS; t++)
+            gsl_matrix_set(X, used, (size_t)t, b[t]);
+        gsl_vector_set(y, used++, log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]));
+    }
+    int ok = X && y && c && cov && used > 2 * LAM_SUBSTRATE_TERMS;
+    if (ok) {
+        gsl_matrix_view Xv = gsl_matrix_submatrix(X, 0, 0, used, LAM_SUBSTRATE_TERMS);
+        gsl_vector_view yv = gsl_vector_subvector(y, 0, used);
+        gsl_multifit_robust_workspace *ws =
+            gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, used, LAM_SUBSTRATE_TERMS);
+        ok = ws && !gsl_multifit_robust(&Xv.matrix, &yv.vector, c, cov, ws);
+        gsl_multifit_robust_free(ws);
+    }
+    for (size_t i = 0; i < n; i++) {
+        if (!ts[i].uniform)
+            continue;
+        double f = 0;
+        lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
+        for (int t = 0; t < LAM_SUBSTRATE_TERMS && ok; t++)
+            f += gsl_vector_get(c, (size_t)t) * b[t];
+        r[i] = log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]) - (ok ? f : 0);
+    }
+    gsl_matrix_free(X);
+    gsl_vector_free(y);
+    gsl_vector_free(c);
+    gsl_matrix_free(cov);
+}
+
+static int in_box(const tile_stat *a, double ra, const tile_stat *b, double rb, double scale)
+{
+    return fabs(ra - rb) <= BOX_R * scale && fabs(a->u - b->u) <= BOX_UV * scale &&
+           fabs(a->v - b->v) <= BOX_UV * scale;
+}
+
+/* Modes: the sampled tiles in order of decreasing neighbour count, each a
+ * new mode unless an earlier one lies within twice the box. */
+static size_t find_modes(const tile_stat *ts, size_t n, const double *r, mode *md)
+{
+    size_t *idx = malloc(DENSITY_SAMPLE * sizeof *idx), ns = 0, m = 0, every = 1, u = 0;
+    size_t *dens = calloc(DENSITY_SAMPLE, sizeof *dens);
+    for (size_t i = 0; i < n; i++)
+        u += ts[i].uniform != 0;
+    every = u > DENSITY_SAMPLE ? (u + DENSITY_SAMPLE - 1) / DENSITY_SAMPLE : 1;
+    for (size_t i = 0, k = 0; idx && dens && i < n && ns < DENSITY_SAMPLE; i++)
+        if (ts[i].uniform && k++ % every == 0)
+            idx[ns++] = i;
+    for (size_t a = 0; a < ns; a++)
+        for (size_t b = 0; b < ns; b++)
+            dens[a] += in_box(&ts[idx[a]], r[idx[a]], &ts[idx[b]], r[idx[b]], 1.0);
+    size_t top = 0;
+    for (size_t a = 0; a < ns; a++)
+        top = dens[a] > top ? dens[a] : top;
+    while (m < MAX_MODES) {
+        size_t best = ns;
+        for (size_t a = 0; a < ns; a++) {
+            int taken = 0;
+            for (size_t k = 0; k < m && !taken; k++) {
+                tile_stat t = {0};
+                t.u = md[k].u, t.v = md[k].v;
+                taken = in_box(&ts[idx[a]], r[idx[a]], &t, md[k].r, 2.0);
+            }
+            if (!taken && dens[a] * 10 >= top && (best == ns || dens[a] > dens[best]))
+                best = a;
+        }
+        if (best == ns)
+            break;
+        md[m++] = (mode){r[idx[best]], ts[idx[best]].u, ts[idx[best]].v, dens[best]};
+    }
+    free(idx);
+    free(dens);
+    return m;
+}
+
+/* Each uniform tile's mode (the nearest within twice the box), or -1. */
+static void assign(const tile_stat *ts, size_t n, const double *r, const mode *md, size_t m,
+                   int *of)
+{
+    for (size_t i = 0; i < n; i++) {
+        of[i] = -1;
+        double bd = INFINITY;
+        for (size_t k = 0; k < m && ts[i].uniform; k++) {
+            tile_stat t = {0};
+            t.u = md[k].u, t.v = md[k].v;
+            if (!in_box(&ts[i], r[i], &t, md[k].r, 2.0))
+                continue;
+            double d = fabs(r[i] - md[k].r) / BOX_R + hypot(ts[i].u - md[k].u, ts[i].v - md[k].v) / BOX_UV;
+            if (d < bd)
+                bd = d, of[i] = (int)k;
+        }
+    }
+}
+
+/* Summed log ratios of adjacent tiles of different modes. */
+typedef struct mode_pairs {
+    double logratio[MAX_MODES][MAX_MODES][3];
+    size_t count[MAX_MODES][MAX_MODES];
+} mode_pairs;
+
+static void adjacent_pairs(const tile_stat *ts, size_t nx, size_t ny, const int *of,
+                           mode_pairs *mp)
+{
+    memset(mp, 0, sizeof *mp);
+    for (size_t y = 0; y < ny; y++)
+        for (size_t x = 0; x < nx; x++)
+            for (int d = 0; d < 2; d++) {
+                size_t xx = x + (size_t)(d == 0), yy = y + (size_t)(d == 1);
+                if (xx >= nx || yy >= ny)
+                    continue;
+                int a = of[y * nx + x], b = of[yy * nx + xx];
+                if (a < 0 || b < 0 || a == b)
+                    continue;
+                const tile_stat *ta = &ts[y * nx + x], *tb = &ts[yy * nx + xx];
+                for (int c = 0; c < 3; c++) {
+                    double q = log(tb->mean[c] / ta->mean[c]);
+                    mp->logratio[a][b][c] += q;
+                    mp->logratio[b][a][c] -= q;
+                }
+                mp->count[a][b]++;
+                mp->count[b][a]++;
+            }
+}
+
+/* Relative distance of a contrast vector to the ladder, scale free within
+ * SCALE_LO..SCALE_HI, capped at 1. */
+static double ladder_distance(const double c[3], const lam_substrate_options *opt)
+{
+    double best = 1;
+    for (size_t e = 0; e < opt->ladder_count; e++) {
+        const double *L = opt->ladder[e];
+        double cl = 0, ll = 0;
+        for (int k = 0; k < 3; k++)
+            cl += c[k] * L[k], ll += L[k] * L[k];
+        if (!(ll > 0))
+            continue;
+        double sc = fmin(SCALE_HI, fmax(SCALE_LO, cl / ll)), q = 0;
+        for (int k = 0; k < 3; k++)
+            q += (c[k] - sc * L[k]) * (c[k] - sc * L[k]);
+        best = fmin(best, q / ll);
+    }
+    return best;
+}
+
+static size_t choose(const mode *md, size_t m, const mode_pairs *mp,
+                     const lam_substrate_options *opt)
+{
+    size_t bi = 0;
+    for (size_t k = 1; k < m; k++)
+        bi = md[k].count > md[bi].count ? k : bi;
+    if (m <= 1 || !opt->ladder || opt->ladder_count == 0)
+        return bi;
+    double best = INFINITY;
+    for (size_t i = 0; i < m; i++) {
+        double score = 0, weight = 0;
+        for (size_t j = 0; j < m; j++) {
+            if (j == i || mp->count[i][j] < ADJ_MIN_PAIRS)
+                continue;
+            double c[3];
+            for (int k = 0; k < 3; k++)
+                c[k] = 1 - exp(mp->logratio[i][j][k] / (double)mp->count[i][j]);
+            score += (double)md[j].count * ladder_distance(c, opt);
+            weight += (double)md[j].count;
+        }
+        if (!(weight > 0))
+            continue; /* touches no other mode: no evidence either way */
+        score /= weight;
+        /* within 0.05 of each other the larger mode wins */
+        if (score < best - 0.05 || (fabs(score - best) <= 0.05 && md[i].count > md[bi].count))
+            best = fmin(best, score), bi = i;
+    }
+    return bi;
+}
+
+/* The user's region: the modes of its tiles' mean brightness and colour. */
+static void roi_mode(const tile_stat *ts, size_t n, const double *r,
+                     const lam_substrate_options *opt, mode *md)
+{
+    memset(md, 0, sizeof *md);
+    for (size_t i = 0; i < n; i++)
+        if (ts[i].uniform && ts[i].cx >= (double)opt->roi[0] &&
+            ts[i].cx <= (double)(opt->roi[0] + opt->roi[2]) && ts[i].cy >= (double)opt->roi[1] &&
+            ts[i].cy <= (double)(opt->roi[1] + opt->roi[3]))
+            md->r += r[i], md->u += ts[i].u, md->v += ts[i].v, md->count++;
+    if (md->count)
+        md->r /= (double)md->count, md->u /= (double)md->count, md->v /= (double)md->count;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* 1.4826 x the median absolute distance of tiles near a mode in one
+ * coordinate (0 brightness, 1 u, 2 v): the mode's own spread. */
+static double spread(const tile_stat *ts, size_t n, const double *r, const mode *md, int coord,
+                     double *scratch)
+{
+    size_t k = 0;
+    for (size_t i = 0; i < n; i++) {
+        tile_stat t = {0};
+        t.u = md->u, t.v = md->v;
+        if (!ts[i].uniform || !in_box(&ts[i], r[i], &t, md->r, 3.0))
+            continue;
+        scratch[k++] = fabs(coord == 0 ? r[i] - md->r : coord == 1 ? ts[i].u - md->u : ts[i].v - md->v);
+    }
+    if (k < 5)
+        return NAN;
+    qsort(scratch, k, sizeof *scratch, cmp_double);
+    return 1.4826 * scratch[k / 2];
+}
+
+/* The chosen mode's tiles: within 4.5 of its own spreads (JPEG colour
+ * quantisation and noise widen it), at least the box, at most 0.04 in
+ * brightness and 0.02 in colour (a monolayer moves ~0.1). */
+static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mode *md)
+{
+    double *scratch = malloc(n * sizeof *scratch), tol[3];
+    const double lo[3] = {BOX_R, BOX_UV, BOX_UV}, hi[3] = {0.04, 0.02, 0.02};
+    for (int k = 0; k < 3; k++) {
+        double sp = scratch ? spread(ts, n, r, md, k, scratch) : NAN;
+        tol[k] = isfinite(sp) ? fmin(hi[k], fmax(lo[k], 4.5 * sp)) : 2 * lo[k];
+    }
+    free(scratch);
+    size_t cand = 0;
+    for (size_t i = 0; i < n; i++) {
+        ts[i].candidate = ts[i].uniform && fabs(r[i] - md->r) <= tol[0] &&
+                          fabs(ts[i].u - md->u) <= tol[1] && fabs(ts[i].v - md->v) <= tol[2];
+        cand += (size_t)ts[i].candidate;
+    }
+    return cand;
+}
+
+size_t lam__substrate_candidates(tile_stat *ts, size_t nx, size_t ny, const lam_substrate *s,
+                                 const lam_substrate_options *opt)
+{
+    size_t n = nx * ny, m = 0, cand = 0;
+    double *r = calloc(n, sizeof *r);
+    int *of = malloc(n * sizeof *of);
+    mode_pairs *mp = malloc(sizeof *mp);
+    mode md[MAX_MODES];
+    if (!r || !of || !mp) {
+        free(r);
+        free(of);
+        free(mp);
+        return 0;
+    }
+    brightness_residuals(ts, n, s, r);
+    if (opt->has_roi) {
+        roi_mode(ts, n, r, opt, &md[0]);
+        m = md[0].count ? 1 : 0;
+    } else {
+        m = find_modes(ts, n, r, md);
+    }
+    assign(ts, n, r, md, m, of);
+    adjacent_pairs(ts, nx, ny, of, mp);
+    if (m)
+        cand = mark_candidates(ts, n, r, &md[choose(md, m, mp, opt)]);
+    free(r);
+    free(of);
+    free(mp);
+    return cand;
+}
