@@ -27,6 +27,9 @@
 #define DEFAULT_SD_SHIFT_NM 15.0
 #define DEFAULT_SD_LOG_GAIN 0.15
 #define DEFAULT_SD_LOG_WIDTH 0.25 /* FWHM 50-110 nm about a typical 80 nm */
+/* Flake-versus-substrate colour bias (JPEG colour quantisation shifts the
+ * two colours differently): a few thousandths of contrast. */
+#define PRIOR_SD_OFFSET 0.004
 
 lam_estimate_options lam_estimate_options_default(void)
 {
@@ -86,6 +89,7 @@ static void optics_priors(lam_estimate *e, const lam_setup *s)
     static const char *const shift_names[3] = {"shift_1", "shift_2", "shift_3"};
     static const char *const gain_names[3] = {"log_gain_1", "log_gain_2", "log_gain_3"};
     static const char *const width_names[3] = {"log_width_1", "log_width_2", "log_width_3"};
+    static const char *const offset_names[3] = {"offset_1", "offset_2", "offset_3"};
     double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
     int na_given = !lam_setup_is_default(s, "objective.illumination_na");
     if (na_given)
@@ -111,6 +115,8 @@ static void optics_priors(lam_estimate *e, const lam_setup *s)
         set(&e->shared[LAM_NU_GAIN + c], gain_names[c], lg, on ? sd_gain : 0, -1.5, 0.7, src);
         double lw = on ? log(s->camera_width[c]) : 0;
         set(&e->shared[LAM_NU_WIDTH + c], width_names[c], lw, on ? sd_width : 0, -0.8, 0.8, src);
+        set(&e->shared[LAM_NU_OFFSET + c], offset_names[c], 0, on ? PRIOR_SD_OFFSET : 0, -0.05,
+            0.05, "default prior");
     }
 }
 
@@ -238,6 +244,17 @@ void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS])
         gain[c] = exp(e->shared[LAM_NU_GAIN + c].value);
 }
 
+void lam_estimate_observe(const lam_estimate *e, lam_prediction *P)
+{
+    double g[LAM_MAX_CHANNELS];
+    lam_estimate_gains(e, g);
+    for (size_t N = 1; N <= P->max_layers; N++)
+        for (size_t c = 0; c < P->channels; c++) {
+            double gc = g[c] * P->contrast[N][c], eps = e->shared[LAM_NU_OFFSET + c].value;
+            P->contrast[N][c] = gc + eps * (1 - gc);
+        }
+}
+
 double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast)
 {
     double f = e->floor_abs[channel] + e->floor_rel * fabs(contrast);
@@ -249,14 +266,9 @@ lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick
 {
     lam_model_point p = lam_estimate_point(e, j);
     lam_status st = lam_model_eval_point(thick, &p, 0, out, err);
-    if (st)
-        return st;
-    double g[LAM_MAX_CHANNELS];
-    lam_estimate_gains(e, g);
-    for (size_t N = 0; N <= out->max_layers; N++)
-        for (size_t c = 0; c < out->channels; c++)
-            out->contrast[N][c] *= g[c];
-    return LAM_OK;
+    if (!st)
+        lam_estimate_observe(e, out);
+    return st;
 }
 
 /* ---- the likelihood of one region, shared with infer.c ---- */

@@ -15,6 +15,14 @@
 #define MAX_TRIES 8         /* damping increases per iteration */
 #define ALT_MARGIN 10.0     /* grid maxima this close to the best are refitted */
 #define MAX_MULTISTART_IMAGES 4
+#define FLOOR_PRIOR_SD_LOG_REL 0.5
+#define FLOOR_PRIOR_SD_LOG_ABS 0.7
+#define FLOOR_REL_MIN 0.005
+#define FLOOR_REL_MAX 0.25
+#define FLOOR_ABS_MIN 0.001
+#define FLOOR_ABS_MAX 0.04
+#define FLOOR_STEPS 16
+
 
 /* Per-image work of one iteration. */
 typedef struct img_work {
@@ -48,14 +56,6 @@ static void collect_free(lam_estimate *e)
             e->free_index[e->nfree++] = k;
 }
 
-static void apply_gains(const lam_estimate *e, lam_prediction *p)
-{
-    double g[LAM_MAX_CHANNELS];
-    lam_estimate_gains(e, g);
-    for (size_t N = 0; N <= p->max_layers; N++)
-        for (size_t c = 0; c < p->channels; c++)
-            p->contrast[N][c] *= g[c];
-}
 
 lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model,
                                const lam_prediction *ladder, lam_ladder_grad *grad,
@@ -78,20 +78,27 @@ lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate gradients");
     lam_model_point p = lam_estimate_point(e, j);
     lam_status st = lam_model_gradient(model, &p, K, which, nm, tmp, err);
-    double g[LAM_MAX_CHANNELS];
+    double g[LAM_MAX_CHANNELS], eps[LAM_MAX_CHANNELS];
     lam_estimate_gains(e, g);
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        eps[c] = e->shared[LAM_NU_OFFSET + c].value;
     for (size_t k = 0; k <= n && !st; k++)
         memset(grad[k], 0, sizeof grad[k]);
+    /* observed P = g C + eps (1 - g C): dP/dtheta = g (1 - eps) dC/dtheta */
     for (size_t q = 0; q < nm && !st; q++)
-        for (size_t N = 0; N <= K; N++)
+        for (size_t N = 1; N <= K; N++)
             for (size_t c = 0; c < nc; c++)
-                grad[slot[q]][N][c] = g[c] * tmp[q][N][c];
-    /* gains: d(g C)/d ln g = g C = the observed contrast itself */
+                grad[slot[q]][N][c] = g[c] * (1 - eps[c]) * tmp[q][N][c];
+    /* model contrast g C recovered from the observed ladder */
     for (size_t k = 0; k < n && !st; k++) {
         int s = e->free_index[k];
-        if (s >= LAM_NU_GAIN)
-            for (size_t N = 0; N <= K; N++)
-                grad[k][N][s - LAM_NU_GAIN] = g[s - LAM_NU_GAIN] * ladder->contrast[N][s - LAM_NU_GAIN];
+        size_t c = (size_t)(s - (s >= LAM_NU_OFFSET ? LAM_NU_OFFSET : LAM_NU_GAIN));
+        if (s < LAM_NU_GAIN)
+            continue;
+        for (size_t N = 1; N <= K; N++) {
+            double gc = (ladder->contrast[N][c] - eps[c]) / (1 - eps[c]);
+            grad[k][N][c] = s >= LAM_NU_OFFSET ? 1 - gc : gc * (1 - eps[c]);
+        }
     }
     free(tmp);
     return st;
@@ -107,9 +114,21 @@ static double prior_term(const lam_nuisance *n)
     return -0.5 * z * z;
 }
 
+/* The floor's log-normal priors (the floor is part of what a start
+ * settles to, so modes are compared each at its own floor). */
+static double floor_logprior(const lam_estimate *e)
+{
+    double z = log(e->floor_rel / e->floor_rel_prior) / FLOOR_PRIOR_SD_LOG_REL, s = -0.5 * z * z;
+    for (size_t c = 0; c < e->channels; c++) {
+        z = log(e->floor_abs[c] / e->floor_abs_prior[c]) / FLOOR_PRIOR_SD_LOG_ABS;
+        s -= 0.5 * z * z;
+    }
+    return s;
+}
+
 static double shared_logprior(const lam_estimate *e)
 {
-    double s = 0;
+    double s = floor_logprior(e);
     for (int k = 0; k < LAM_NU_COUNT; k++)
         s += prior_term(&e->shared[k]);
     return s;
@@ -122,7 +141,7 @@ static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model
     lam_model_point p = lam_estimate_point(e, j);
     lam_status st = lam_model_eval_point(model, &p, layers, out, err);
     if (!st)
-        apply_gains(e, out);
+        lam_estimate_observe(e, out);
     return st;
 }
 
@@ -272,11 +291,14 @@ static void solve_damped(const lam_estimate *e, const normal_eq *q, double lambd
 
 typedef struct saved_point {
     double shared[LAM_NU_COUNT];
+    double floor_abs[LAM_MAX_CHANNELS], floor_rel;
     double *oxide;
 } saved_point;
 
 static void save_point(const lam_estimate *e, saved_point *s)
 {
+    memcpy(s->floor_abs, e->floor_abs, sizeof s->floor_abs);
+    s->floor_rel = e->floor_rel;
     for (int k = 0; k < LAM_NU_COUNT; k++)
         s->shared[k] = e->shared[k].value;
     for (size_t j = 0; j < e->images; j++)
@@ -285,6 +307,8 @@ static void save_point(const lam_estimate *e, saved_point *s)
 
 static void restore_point(lam_estimate *e, const saved_point *s)
 {
+    memcpy(e->floor_abs, s->floor_abs, sizeof s->floor_abs);
+    e->floor_rel = s->floor_rel;
     for (int k = 0; k < LAM_NU_COUNT; k++)
         e->shared[k].value = s->shared[k];
     for (size_t j = 0; j < e->images; j++)
@@ -587,13 +611,6 @@ static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
  * errors, which do not scale with contrast) and a relative one (model
  * error); both are estimated, each with a log-normal prior about the
  * starting value so that a few regions cannot talk it to zero. */
-#define FLOOR_PRIOR_SD_LOG_REL 0.5
-#define FLOOR_PRIOR_SD_LOG_ABS 0.7
-#define FLOOR_REL_MIN 0.005
-#define FLOOR_REL_MAX 0.25
-#define FLOOR_ABS_MIN 0.001
-#define FLOOR_ABS_MAX 0.04
-#define FLOOR_STEPS 16
 
 /* Log-likelihood of the confident regions' residuals in the channels of
  * 'mask' with absolute floors fa[] and relative floor fr, with the priors. */
@@ -807,6 +824,14 @@ static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
     return n;
 }
 
+/* A start's fit with its floor: EM, the floor from the residuals, EM again
+ * when the floor moved. */
+static lam_status settle(fit_ctx *f, double *lp, lam_error *err)
+{
+    lam_status st = run_em(f, f->e->opt.max_iterations, lp, err);
+    return st ? st : refloor(f, lp, err);
+}
+
 static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
 {
     lam_estimate *e = f->e;
@@ -828,7 +853,7 @@ static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
             e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
         apply_start(e, &sp[i]);
         double lp;
-        if ((st = run_em(f, e->opt.max_iterations, &lp, err)))
+        if ((st = settle(f, &lp, err)))
             break;
         if (lp > best_lp + 1e-6) {
             best_lp = lp;
@@ -856,10 +881,8 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         return st;
     double lp = 0;
     e->iterations = 0;
-    if (!(st = all_grids(e, model, err)) && !(st = run_em(&f, e->opt.max_iterations, &lp, err)))
+    if (!(st = all_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
         st = multistart(&f, &lp, err);
-    if (!st)
-        st = refloor(&f, &lp, err);
     if (!st) {
         laplace(&f);
         count_regions(e, f.w);

@@ -186,16 +186,15 @@ lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *mod
     if (!P)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
     lam_model_point p = lam_estimate_point(e, j);
-    double g[LAM_MAX_CHANNELS];
-    lam_estimate_gains(e, g);
     lam_status st = LAM_OK;
     for (size_t i = 0; i < t->count && !st; i++) {
         p.v[LAM_MP_FERMI] = t->mu[i];
         if ((st = lam_model_eval_point(model, &p, 2, P, err)))
             break;
+        lam_estimate_observe(e, P);
         for (size_t N = 0; N <= 2; N++)
             for (size_t c = 0; c < e->channels; c++)
-                t->contrast[i][N][c] = g[c] * P->contrast[N][c];
+                t->contrast[i][N][c] = P->contrast[N][c];
     }
     free(P);
     return st;

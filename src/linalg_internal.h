@@ -8,7 +8,7 @@
 
 #include <stddef.h>
 
-#define LAM__MAT_MAX 16
+#define LAM__MAT_MAX 20
 
 typedef double lam__mat[LAM__MAT_MAX][LAM__MAT_MAX];
 

@@ -19,11 +19,7 @@ static lam_status image_profile(const lam_analysis *a, lam_model *m, double d, l
     lam_status st = lam_model_eval_point(m, &p, 0, P, err);
     if (st)
         return st;
-    double g[LAM_MAX_CHANNELS];
-    lam_estimate_gains(e, g);
-    for (size_t N = 0; N <= P->max_layers; N++)
-        for (size_t c = 0; c < P->channels; c++)
-            P->contrast[N][c] *= g[c];
+    lam_estimate_observe(e, P);
     size_t H = e->max_layers + 3;
     double lt[LAM_MODEL_MAX_LAYERS + 3], total = 0;
     for (size_t i = 0; i < a->count; i++) {

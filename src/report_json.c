@@ -93,10 +93,12 @@ static void add_estimates(cJSON *root, const lam_analysis *a)
     cJSON *sh = cJSON_AddArrayToObject(es, "channel_shift_nm");
     cJSON *gn = cJSON_AddArrayToObject(es, "log_contrast_gain");
     cJSON *wd = cJSON_AddArrayToObject(es, "log_channel_width");
+    cJSON *of = cJSON_AddArrayToObject(es, "contrast_offset");
     for (size_t c = 0; c < a->channels; c++) {
         cJSON_AddItemToArray(sh, nuisance_json(&e->shared[LAM_NU_SHIFT + c], a->prior_pooled));
         cJSON_AddItemToArray(gn, nuisance_json(&e->shared[LAM_NU_GAIN + c], a->prior_pooled));
         cJSON_AddItemToArray(wd, nuisance_json(&e->shared[LAM_NU_WIDTH + c], a->prior_pooled));
+        cJSON_AddItemToArray(of, nuisance_json(&e->shared[LAM_NU_OFFSET + c], a->prior_pooled));
     }
     cJSON_AddItemToObject(es, "oxide_nm", nuisance_json(&e->image[0].oxide, 0));
     cJSON_AddNumberToObject(es, "pooled_over_images", (double)a->prior_images);

@@ -299,6 +299,56 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
     return 1;
 }
 
+/* The 90th percentile of differences between the means of adjacent 8 x 8
+ * cells near zero contrast (the substrate), per channel: the image's own
+ * low-frequency texture - flat-field residuals and, above all, JPEG block
+ * steps - which two parts of one flake may differ by. */
+#define CELL 8
+static void cell_texture(const lam_image *img, size_t channels, const double *zero, double *out)
+{
+    size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
+    size_t cells = cw * ch > 0 ? cw * ch : 1;
+    float *mean = malloc(cells * 3 * sizeof *mean);
+    float *d = malloc((2 * cw * ch + 1) * sizeof *d);
+    for (size_t c = 0; c < 3; c++)
+        out[c] = 0;
+    if (!mean || !d) {
+        free(mean);
+        free(d);
+        return;
+    }
+    for (size_t cy = 0; cy < ch; cy++)
+        for (size_t cx = 0; cx < cw; cx++)
+            for (size_t c = 0; c < 3; c++) {
+                double sum = 0;
+                int ok = 1;
+                for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
+                    for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
+                        size_t k = y * w + x;
+                        ok &= near_zero(img, channels, zero, k);
+                        sum += c < channels ? img->plane[c][k] : 0;
+                    }
+                mean[(cy * cw + cx) * 3 + c] = ok ? (float)(sum / (CELL * CELL)) : NAN;
+            }
+    for (size_t c = 0; c < channels; c++) {
+        m = 0;
+        for (size_t i = 0; i < cw * ch; i++) {
+            float a = mean[i * 3 + c], r = (i + 1) % cw ? mean[(i + 1) * 3 + c] : NAN;
+            float b = i + cw < cw * ch ? mean[(i + cw) * 3 + c] : NAN;
+            if (!isnan(a) && !isnan(r))
+                d[m++] = fabsf(a - r);
+            if (!isnan(a) && !isnan(b))
+                d[m++] = fabsf(a - b);
+        }
+        if (m > 20) {
+            qsort(d, m, sizeof *d, cmp_float);
+            out[c] = d[m * 9 / 10];
+        }
+    }
+    free(mean);
+    free(d);
+}
+
 /* Per channel: an edge changes a channel by more than a third of a
  * monolayer step and by more than the channel's own artefacts (3 x the
  * 95th percentile of 2- and 4-pixel differences on the substrate); regions
@@ -314,14 +364,17 @@ static void thresholds(const lam_image *img, size_t channels, const double *c1,
     for (size_t c = 0; c < 3; c++)
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
     diff_stats d1, d2;
+    double cells[3];
     difference_stats(img, channels, zero, 1, &d1);
     difference_stats(img, channels, zero, 2, &d2);
+    cell_texture(img, channels, zero, cells);
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
         ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
         ec->t4[c] = (float)fmax(1.5 * EDGE_STEP_FRACTION * step, 3 * d2.p95[c]);
         sigma[c] = d1.sigma[c] / 1.4142; /* a difference has twice the variance */
         delta[c] = fmax(fmax(JOIN_STEP_FRACTION * step, 0.75 * d1.p95[c]), 1e-4);
+        delta[c] = fmax(delta[c], 1.5 * cells[c]);
     }
 }
 

@@ -12,7 +12,8 @@
  * for what it leaves to defaults). The observed contrast of region i is
  *   m_i ~ Normal(g o C(N_i; theta, d_j), V_i + F(N_i))
  * with g the per-channel contrast gains (stray light, tone-curve and
- * camera-curve errors all scale contrast), C the model ladder, V_i the
+ * camera-curve errors all scale contrast) and a small per-channel offset
+ * (lamina_estimate_observe), C the model ladder, V_i the
  * statistical variance of the region mean and F the model floor
  * diag((floor_abs_c + floor_rel |C_c|)^2): what the fitted family still
  * cannot reproduce. N_i is one of: bare substrate (0), 1..K layers, a
@@ -50,7 +51,8 @@ enum {
     LAM_NU_SHIFT,         /* per channel: wavelength shift, nm */
     LAM_NU_WIDTH = LAM_NU_SHIFT + LAM_MAX_CHANNELS, /* per channel: ln(width scale) */
     LAM_NU_GAIN = LAM_NU_WIDTH + LAM_MAX_CHANNELS, /* per channel: ln(contrast gain) */
-    LAM_NU_COUNT = LAM_NU_GAIN + LAM_MAX_CHANNELS
+    LAM_NU_OFFSET = LAM_NU_GAIN + LAM_MAX_CHANNELS, /* per channel: contrast offset */
+    LAM_NU_COUNT = LAM_NU_OFFSET + LAM_MAX_CHANNELS
 };
 
 typedef struct lam_nuisance {
@@ -155,6 +157,12 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *fit_model, lam_model *th
  * contrast gains (linear). */
 lam_model_point lam_estimate_point(const lam_estimate *e, size_t image);
 void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS]);
+
+/* The observed-scale ladder from a model ladder (in place): for N >= 1,
+ * g C + eps (1 - g C) per channel, with g the gains and eps the offsets
+ * (a colour-dependent bias of every flake against the substrate, as lossy
+ * colour compression leaves it); the substrate row stays 0. */
+void lam_estimate_observe(const lam_estimate *e, lam_prediction *ladder);
 
 /* The ladder of image j as the analysis sees it: gains applied, N = 0..40. */
 lam_status lam_estimate_ladder(const lam_estimate *e, size_t image, lam_model *thick_model,
