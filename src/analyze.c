@@ -1,20 +1,14 @@
 /* analyze.c - the analysis pipeline for one image. */
 #include "lamina/analyze.h"
+#include "lamina/clock.h"
 #include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 
-static double now_s(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
-#define MARK(k) (a->seconds[k] = now_s() - t0)
+#define MARK(k) (a->seconds[k] = lam_clock_seconds() - t0)
 
 lam_analysis_options lam_analysis_options_default(void)
 {
@@ -186,7 +180,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(setup, "encoding"))
         lo.transfer = setup->encoding;
     lo.keep_display8 = 1; /* 8-bit files: the report draws on the file's own codes */
-    double t0 = now_s();
+    double t0 = lam_clock_seconds();
     if ((st = lam_image_load(path, &lo, &img, err)))
         goto fail;
     MARK(LAM_T_LOAD);
