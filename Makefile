@@ -122,7 +122,7 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
 FUZZ_SECONDS ?= 60
-FUZZ_TARGETS := image setup scene csv
+FUZZ_TARGETS := image setup scene csv labels
 FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
     $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
 fuzz: deps

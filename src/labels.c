@@ -1,0 +1,129 @@
+/* labels.c - reading lamina-labels/1 files: polygons and points of known
+ * layer count for calibration. */
+#include "lamina/labels.h"
+#include "lamina/jsonfile.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <cjson/cJSON.h>
+
+#define LABELS_SCHEMA "lamina-labels/1"
+#define LABELS_MAX_BYTES (4u << 20)
+
+static const char *const root_keys[] = {"schema", "labels", NULL};
+static const char *const label_keys[] = {"layers", "polygon", "point", NULL};
+
+void lam_labels_clear(lam_labels *l)
+{
+    if (!l)
+        return;
+    free(l->items);
+    l->items = NULL;
+    l->count = 0;
+}
+
+/* [x, y] of finite numbers */
+static int read_xy(const cJSON *p, double *x, double *y)
+{
+    const cJSON *px = cJSON_GetArrayItem(p, 0), *py = cJSON_GetArrayItem(p, 1);
+    if (!cJSON_IsArray(p) || cJSON_GetArraySize(p) != 2 || !cJSON_IsNumber(px) ||
+        !cJSON_IsNumber(py) || !isfinite(px->valuedouble) || !isfinite(py->valuedouble))
+        return -1;
+    *x = px->valuedouble;
+    *y = py->valuedouble;
+    return 0;
+}
+
+static lam_status read_label(const cJSON *item, size_t idx, lam_label *L, lam_error *err)
+{
+    char path[32];
+    snprintf(path, sizeof path, "labels[%zu]", idx);
+    lam_status st = lam_json_check_keys(item, path, label_keys, err);
+    if (st)
+        return st;
+    const cJSON *ly = cJSON_GetObjectItemCaseSensitive(item, "layers");
+    const cJSON *poly = cJSON_GetObjectItemCaseSensitive(item, "polygon");
+    const cJSON *pt = cJSON_GetObjectItemCaseSensitive(item, "point");
+    if (!cJSON_IsNumber(ly) || !(ly->valuedouble >= 1 && ly->valuedouble <= LAM_LABEL_MAX_LAYERS))
+        return lam_error_set(err, LAM_EFORMAT, "%s.layers: expected 1 to %d", path,
+                             LAM_LABEL_MAX_LAYERS);
+    L->layers = (int)ly->valuedouble;
+    if (cJSON_IsArray(poly)) {
+        int n = cJSON_GetArraySize(poly);
+        L->kind = LAM_LABEL_POLYGON;
+        L->vertices = (size_t)n;
+        int ok = n >= 3 && n <= LAM_RASTER_MAX_VERTICES;
+        for (int k = 0; ok && k < n; k++)
+            ok = !read_xy(cJSON_GetArrayItem(poly, k), &L->x[k], &L->y[k]);
+        if (!ok)
+            return lam_error_set(err, LAM_EFORMAT, "%s.polygon: expected 3 to %d [x, y] points",
+                                 path, LAM_RASTER_MAX_VERTICES);
+        return LAM_OK;
+    }
+    if (pt) {
+        L->kind = LAM_LABEL_POINT;
+        L->vertices = 1;
+        if (read_xy(pt, &L->x[0], &L->y[0]))
+            return lam_error_set(err, LAM_EFORMAT, "%s.point: expected [x, y]", path);
+        return LAM_OK;
+    }
+    return lam_error_set(err, LAM_EFORMAT, "%s: needs a polygon or a point", path);
+}
+
+static lam_status from_tree(const cJSON *root, lam_labels *out, lam_error *err)
+{
+    memset(out, 0, sizeof *out);
+    lam_status st = lam_json_check_keys(root, "", root_keys, err);
+    const cJSON *list = cJSON_GetObjectItemCaseSensitive(root, "labels");
+    if (st)
+        return st;
+    if (!cJSON_IsArray(list))
+        return lam_error_set(err, LAM_EFORMAT, "key labels: expected a list of labels");
+    size_t n = (size_t)cJSON_GetArraySize(list);
+    out->items = calloc(n ? n : 1, sizeof *out->items);
+    if (!out->items)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu labels", n);
+    const cJSON *item;
+    cJSON_ArrayForEach(item, list) {
+        if ((st = read_label(item, out->count, &out->items[out->count], err))) {
+            lam_labels_clear(out);
+            return st;
+        }
+        out->count++;
+    }
+    return LAM_OK;
+}
+
+lam_status lam_labels_parse(const char *json, lam_labels *out, lam_error *err)
+{
+    memset(out, 0, sizeof *out);
+    cJSON *root = NULL;
+    lam_status st = lam_json_parse(json, LABELS_SCHEMA, &root, err);
+    if (!st)
+        st = from_tree(root, out, err);
+    cJSON_Delete(root);
+    return st;
+}
+
+lam_status lam_labels_load(const char *path, lam_labels *out, lam_error *err)
+{
+    memset(out, 0, sizeof *out);
+    cJSON *root = NULL;
+    lam_status st = lam_json_load(path, LABELS_MAX_BYTES, "label", LABELS_SCHEMA, &root, err);
+    if (st)
+        return st;
+    st = from_tree(root, out, err);
+    cJSON_Delete(root);
+    if (st)
+        lam_error_set_file(err, path);
+    return st;
+}
+
+void lam_label_fill(const lam_label *label, uint8_t *map, size_t width, size_t height)
+{
+    if (label->kind == LAM_LABEL_POLYGON)
+        lam_raster_fill_u8(label->x, label->y, label->vertices, width, height, map,
+                           (uint8_t)label->layers);
+}
