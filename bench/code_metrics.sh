@@ -76,6 +76,7 @@ awk '
         }
         if (line ~ /^[ \t]*$/) { prevcomment = 0; blockdoc = 0; next }
         if (line ~ /^struct [A-Za-z_]+;/) next  # a forward declaration keeps the comment
+        if (line ~ /^(extern|#define)/) { blockdoc = blockdoc || prevcomment; next }
         if (!inproto && line ~ /^[A-Za-z_].*\(/ && line !~ /^(typedef|#|struct [a-z_]+;|extern)/) {
             inproto = 1; doc = prevcomment || blockdoc; text = ""
         }

@@ -398,7 +398,8 @@ static lam_status label_point(const lam_label *L, size_t idx, const char *image_
     uint32_t id = (*a)->seg->label[(size_t)y * w + (size_t)x];
     if (!id)
         return lam_error_set(err, LAM_ERANGE,
-                             "labels[%zu].point (%g, %g) is on no region (an edge or the substrate)",
+                             "labels[%zu].point (%g, %g) is on no region "
+                             "(an edge or the substrate)",
                              idx, x, y);
     for (size_t k = 0; k < w * h; k++)
         if ((*a)->seg->label[k] == id)

@@ -58,7 +58,8 @@ lam_status lam_error_prefix(lam_error *err, lam_status status, const char *fmt, 
     va_start(ap, fmt);
     int n = vsnprintf(err->message, sizeof err->message, fmt, ap);
     va_end(ap);
-    size_t used = n < 0 ? 0 : ((size_t)n < sizeof err->message ? (size_t)n : sizeof err->message - 1);
+    size_t cap = sizeof err->message - 1;
+    size_t used = n < 0 ? 0 : ((size_t)n < cap ? (size_t)n : cap);
     err->message[used] = '\0';
     snprintf(err->message + used, sizeof err->message - used, "%s", old);
     err->status = status;

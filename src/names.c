@@ -73,7 +73,8 @@ size_t lam_edit_distance(const char *a, const char *b)
         row[0] = i;
         for (size_t j = 1; j <= nb; j++) {
             size_t up = row[j];
-            size_t sub = diag + (tolower((unsigned char)a[i - 1]) != tolower((unsigned char)b[j - 1]));
+            int differ = tolower((unsigned char)a[i - 1]) != tolower((unsigned char)b[j - 1]);
+            size_t sub = diag + (size_t)differ;
             size_t best = up + 1 < row[j - 1] + 1 ? up + 1 : row[j - 1] + 1;
             row[j] = sub < best ? sub : best;
             diag = up;

@@ -103,7 +103,8 @@ static lam_status read_frame(const cJSON *root, lam_scene *s, lam_error *err)
     double w = 640, h = 480, seed = 1, q = 92;
     lam_status st;
     s->oxide_nm = lam_setup_oxide(&s->setup);
-    if ((st = num(root, "width", 8, 20000, &w, err)) || (st = num(root, "height", 8, 20000, &h, err)) ||
+    if ((st = num(root, "width", 8, 20000, &w, err)) ||
+        (st = num(root, "height", 8, 20000, &h, err)) ||
         (st = num(root, "oxide_nm", 0, 2000, &s->oxide_nm, err)) ||
         (st = num(root, "exposure", 0.01, 0.95, &s->exposure, err)) ||
         (st = num(root, "vignetting", 0, 0.6, &s->vignetting, err)) ||

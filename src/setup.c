@@ -605,7 +605,8 @@ static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *d
     const cJSON *ex = cJSON_GetObjectItemCaseSensitive(o, "exciton");
     if (!st && ex) {
         if (!cJSON_IsBool(ex))
-            return lam_error_set(err, LAM_EFORMAT, "key conductivity.exciton: expected true or false");
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key conductivity.exciton: expected true or false");
         s->sheet.exciton = cJSON_IsTrue(ex);
     }
     if (!st)

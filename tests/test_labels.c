@@ -42,7 +42,8 @@ static void test_sample(void)
 
 static void test_refused(void)
 {
-    refused(HEAD "{\"layers\":0,\"point\":[1,1]}]}", LAM_EFORMAT, "labels[0].layers: expected 1 to 40");
+    refused(HEAD "{\"layers\":0,\"point\":[1,1]}]}", LAM_EFORMAT,
+            "labels[0].layers: expected 1 to 40");
     refused(HEAD "{\"layers\":1,\"point\":[1,1]},{\"layers\":41,\"point\":[1,1]}]}", LAM_EFORMAT,
             "labels[1].layers");
     refused(HEAD "{\"layers\":2,\"polygon\":[[0,0],[5,0]]}]}", LAM_EFORMAT,

@@ -59,7 +59,8 @@ static void test_defaults(void)
     check_abs(f.illumination_na, d.illumination_na, 0, "calib file = compiled: illumination NA");
     check_abs(f.layer_nm[0], d.layer_nm[0], 0, "calib file = compiled: oxide");
     for (int c = 0; c < 3; c++) {
-        check_abs(f.camera.centre_nm[c], d.camera.centre_nm[c], 0, "calib = compiled: centre %d", c);
+        check_abs(f.camera.centre_nm[c], d.camera.centre_nm[c], 0, "calib = compiled: centre %d",
+                  c);
         check_abs(f.camera.fwhm_nm[c], d.camera.fwhm_nm[c], 0, "calib = compiled: FWHM %d", c);
     }
     check_abs(f.illuminant.kelvin, d.illuminant.kelvin, 0, "calib file = compiled: lamp");
@@ -235,7 +236,8 @@ static void same_setup(const lam_setup *a, const lam_setup *b, const char *what)
 {
     int ok = a->objective_na == b->objective_na && a->illumination_na == b->illumination_na &&
              a->pupil == b->pupil && a->cone_nodes == b->cone_nodes &&
-             !strcmp(a->ambient.name, b->ambient.name) && a->illuminant.kind == b->illuminant.kind &&
+             !strcmp(a->ambient.name, b->ambient.name) &&
+             a->illuminant.kind == b->illuminant.kind &&
              a->illuminant.kelvin == b->illuminant.kelvin && a->camera.kind == b->camera.kind &&
              a->encoding.kind == b->encoding.kind && a->encoding.gamma == b->encoding.gamma &&
              a->layers == b->layers && !strcmp(a->base.name, b->base.name) &&
