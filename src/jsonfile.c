@@ -57,6 +57,33 @@ lam_status lam_json_load(const char *path, size_t max_bytes, const char *what,
     return st;
 }
 
+lam_status lam_json_read_text(const char *text, const char *schema, const char *dir,
+                              lam_json_reader fn, void *ctx, lam_error *err)
+{
+    cJSON *root = NULL;
+    lam_status st = lam_json_parse(text, schema, &root, err);
+    if (!st)
+        st = fn(root, dir, ctx, err);
+    cJSON_Delete(root);
+    return st;
+}
+
+lam_status lam_json_read_file(const char *path, size_t max_bytes, const char *what,
+                              const char *schema, lam_json_reader fn, void *ctx, lam_error *err)
+{
+    cJSON *root = NULL;
+    lam_status st = lam_json_load(path, max_bytes, what, schema, &root, err);
+    if (st)
+        return st;
+    char dir[1024];
+    lam_path_dir(path, dir, sizeof dir);
+    st = fn(root, dir, ctx, err);
+    cJSON_Delete(root);
+    if (st)
+        lam_error_set_file(err, path);
+    return st;
+}
+
 lam_status lam_json_number(const cJSON *obj, const char *name, const char *path, double lo,
                            double hi, double *out, int *found, lam_error *err)
 {

@@ -72,8 +72,10 @@ static lam_status read_label(const cJSON *item, size_t idx, lam_label *L, lam_er
     return lam_error_set(err, LAM_EFORMAT, "%s: needs a polygon or a point", path);
 }
 
-static lam_status from_tree(const cJSON *root, lam_labels *out, lam_error *err)
+static lam_status labels_reader(const cJSON *root, const char *dir, void *vout, lam_error *err)
 {
+    (void)dir; /* label files name no other files */
+    lam_labels *out = vout;
     memset(out, 0, sizeof *out);
     lam_status st = lam_json_check_keys(root, "", root_keys, err);
     const cJSON *list = cJSON_GetObjectItemCaseSensitive(root, "labels");
@@ -99,26 +101,14 @@ static lam_status from_tree(const cJSON *root, lam_labels *out, lam_error *err)
 lam_status lam_labels_parse(const char *json, lam_labels *out, lam_error *err)
 {
     memset(out, 0, sizeof *out);
-    cJSON *root = NULL;
-    lam_status st = lam_json_parse(json, LABELS_SCHEMA, &root, err);
-    if (!st)
-        st = from_tree(root, out, err);
-    cJSON_Delete(root);
-    return st;
+    return lam_json_read_text(json, LABELS_SCHEMA, ".", labels_reader, out, err);
 }
 
 lam_status lam_labels_load(const char *path, lam_labels *out, lam_error *err)
 {
     memset(out, 0, sizeof *out);
-    cJSON *root = NULL;
-    lam_status st = lam_json_load(path, LABELS_MAX_BYTES, "label", LABELS_SCHEMA, &root, err);
-    if (st)
-        return st;
-    st = from_tree(root, out, err);
-    cJSON_Delete(root);
-    if (st)
-        lam_error_set_file(err, path);
-    return st;
+    return lam_json_read_file(path, LABELS_MAX_BYTES, "label", LABELS_SCHEMA, labels_reader, out,
+                              err);
 }
 
 void lam_label_fill(const lam_label *label, uint8_t *map, size_t width, size_t height)

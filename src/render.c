@@ -5,7 +5,6 @@
 #include "lamina/jsonfile.h"
 #include "lamina/model.h"
 #include "lamina/png.h"
-#include "lamina/textfile.h"
 #include "lamina/raster.h"
 
 #include <errno.h>
@@ -197,9 +196,9 @@ static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, 
 }
 
 /* Defaults, then the tree; on failure nothing is left allocated. */
-static lam_status scene_from_tree(const cJSON *root, const char *dir, lam_scene *s,
-                                  lam_error *err)
+static lam_status scene_reader(const cJSON *root, const char *dir, void *vs, lam_error *err)
 {
+    lam_scene *s = vs;
     memset(s, 0, sizeof *s);
     lam_setup_default(&s->setup);
     s->exposure = 0.55;
@@ -215,28 +214,13 @@ static lam_status scene_from_tree(const cJSON *root, const char *dir, lam_scene 
 lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_error *err)
 {
     memset(s, 0, sizeof *s);
-    cJSON *root = NULL;
-    lam_status st = lam_json_parse(json, SCENE_SCHEMA, &root, err);
-    if (!st)
-        st = scene_from_tree(root, dir, s, err);
-    cJSON_Delete(root);
-    return st;
+    return lam_json_read_text(json, SCENE_SCHEMA, dir, scene_reader, s, err);
 }
 
 lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
 {
     memset(s, 0, sizeof *s);
-    cJSON *root = NULL;
-    lam_status st = lam_json_load(path, SCENE_MAX_BYTES, "scene", SCENE_SCHEMA, &root, err);
-    if (st)
-        return st;
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = scene_from_tree(root, dir, s, err);
-    cJSON_Delete(root);
-    if (st)
-        lam_error_set_file(err, path);
-    return st;
+    return lam_json_read_file(path, SCENE_MAX_BYTES, "scene", SCENE_SCHEMA, scene_reader, s, err);
 }
 
 /* Reflectance per channel of each object (rel[i]) and of the bare

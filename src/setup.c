@@ -10,7 +10,6 @@
 #include <cjson/cJSON.h>
 #include "lamina/jsonfile.h"
 #include "lamina/outfile.h"
-#include "lamina/textfile.h"
 
 #define SETUP_SCHEMA "lamina-setup/1"
 #define SETUP_MAX_BYTES (1u << 20)
@@ -678,47 +677,34 @@ lam_status lam_setup_from_json(const cJSON *root, const char *base_dir, lam_setu
     return parse_root(root, base_dir, s, err);
 }
 
+static lam_status setup_reader(const cJSON *root, const char *dir, void *s, lam_error *err)
+{
+    return parse_root(root, dir, s, err);
+}
+
+static lam_status stack_reader(const cJSON *root, const char *dir, void *s, lam_error *err)
+{
+    return parse_substrate(root, "", s, dir, err);
+}
+
 lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
                            lam_error *err)
 {
-    cJSON *root = NULL;
-    lam_status st = lam_json_parse(json, SETUP_SCHEMA, &root, err);
-    if (!st)
-        st = parse_root(root, base_dir, s, err);
-    cJSON_Delete(root);
-    return st;
+    return lam_json_read_text(json, SETUP_SCHEMA, base_dir, setup_reader, s, err);
 }
 
 lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err)
 {
-    cJSON *root = NULL;
-    lam_status st = lam_json_load(path, SETUP_MAX_BYTES, "setup", SETUP_SCHEMA, &root, err);
-    if (st)
-        return st;
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = parse_root(root, dir, s, err);
-    cJSON_Delete(root);
+    lam_status st =
+        lam_json_read_file(path, SETUP_MAX_BYTES, "setup", SETUP_SCHEMA, setup_reader, s, err);
     if (!st)
         snprintf(s->source, sizeof s->source, "%s", path);
-    if (st)
-        lam_error_set_file(err, path);
     return st;
 }
 
 lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err)
 {
-    cJSON *root = NULL;
-    lam_status st = lam_json_load(path, SETUP_MAX_BYTES, "stack", NULL, &root, err);
-    if (st)
-        return st;
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = parse_substrate(root, "", s, dir, err);
-    cJSON_Delete(root);
-    if (st)
-        lam_error_set_file(err, path);
-    return st;
+    return lam_json_read_file(path, SETUP_MAX_BYTES, "stack", NULL, stack_reader, s, err);
 }
 
 /* --- the writer --- */

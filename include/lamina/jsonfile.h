@@ -38,6 +38,23 @@ lam_status lam_json_check_schema(const struct cJSON *obj, const char *schema, la
 lam_status lam_json_load(const char *path, size_t max_bytes, const char *what,
                          const char *schema, struct cJSON **root, lam_error *err);
 
+/* A reader of a parsed document (a setup, a scene, a label file): 'dir'
+ * is the folder that relative paths inside it resolve against. */
+typedef lam_status (*lam_json_reader)(const struct cJSON *root, const char *dir, void *ctx,
+                                      lam_error *err);
+
+/* Parse text (lam_json_parse with 'schema', may be NULL), give the tree to
+ * fn with 'dir', delete it; returns the first failure. */
+lam_status lam_json_read_text(const char *text, const char *schema, const char *dir,
+                              lam_json_reader fn, void *ctx, lam_error *err);
+
+/* Load a file (lam_json_load), give the tree and the file's folder to fn,
+ * delete it; any failure names the file. The one way lamina reads a JSON
+ * input file. */
+lam_status lam_json_read_file(const char *path, size_t max_bytes, const char *what,
+                              const char *schema, lam_json_reader fn, void *ctx,
+                              lam_error *err);
+
 /* Read number 'name' of obj into *out when present and not null (else
  * leave *out alone); *found (may be NULL) says which. LAM_EFORMAT "key
  * PATH: expected a number" or LAM_ERANGE "key PATH: V is outside LO to HI"
