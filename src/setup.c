@@ -296,12 +296,6 @@ static lam_status check_keys(const cJSON *o, const char *path, const char *const
     return lam_json_check_keys(o, path, known, err);
 }
 
-static lam_status get_number(const cJSON *obj, const char *name, const char *key, double lo,
-                             double hi, double *out, int *found, lam_error *err)
-{
-    return lam_json_number(obj, name, key, lo, hi, out, found, err);
-}
-
 static lam_status get_kind(const cJSON *o, const char *key, const lam_name *table, int *kind,
                            lam_error *err)
 {
@@ -383,12 +377,12 @@ static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
     if (imm && (st = parse_immersion(imm, s, dir, err)))
         return st;
     double top = na_limit(s);
-    if ((st = get_number(o, "na", "objective.na", 0, top, &s->objective_na, &found, err)))
+    if ((st = lam_json_number(o, "na", "objective.na", 0, top, &s->objective_na, &found, err)))
         return st;
     if (found)
         mark_given(s, "objective.na");
-    if ((st = get_number(o, "illumination_na", "objective.illumination_na", 0, top,
-                         &s->illumination_na, &found, err)))
+    if ((st = lam_json_number(o, "illumination_na", "objective.illumination_na", 0, top,
+                              &s->illumination_na, &found, err)))
         return st;
     if (found)
         mark_given(s, "objective.illumination_na");
@@ -406,7 +400,7 @@ static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
         mark_given(s, "objective.pupil_weight");
     }
     double nodes = (double)s->cone_nodes;
-    if ((st = get_number(o, "cone_nodes", "objective.cone_nodes", 1, 96, &nodes, &found, err)))
+    if ((st = lam_json_number(o, "cone_nodes", "objective.cone_nodes", 1, 96, &nodes, &found, err)))
         return st;
     s->cone_nodes = (size_t)nodes;
     return LAM_OK;
@@ -425,8 +419,8 @@ static lam_status parse_illuminant(const cJSON *o, lam_setup *s, const char *dir
         return st;
     s->illuminant.kind = (lam_illuminant_kind)kind;
     if (kind == LAM_ILLUM_BLACKBODY)
-        st = get_number(o, "kelvin", "illuminant.kelvin", 1000, 20000, &s->illuminant.kelvin,
-                        &found, err);
+        st = lam_json_number(o, "kelvin", "illuminant.kelvin", 1000, 20000, &s->illuminant.kelvin,
+                             &found, err);
     else if (kind == LAM_ILLUM_TABLE)
         st = get_table(o, "illuminant", dir, 1, &s->illuminant.table, err);
     if (!st)
@@ -447,10 +441,11 @@ static lam_status parse_channels(const cJSON *ch, lam_setup *s, lam_error *err)
         lam_status st = check_keys(item, path, channel_keys, err);
         snprintf(key, sizeof key, "%s.centre_nm", path);
         if (!st)
-            st = get_number(item, "centre_nm", key, 350, 850, &s->camera.centre_nm[c], &f1, err);
+            st = lam_json_number(item, "centre_nm", key, 350, 850, &s->camera.centre_nm[c], &f1,
+                                 err);
         snprintf(key, sizeof key, "%s.fwhm_nm", path);
         if (!st)
-            st = get_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2, err);
+            st = lam_json_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2, err);
         if (st)
             return st;
         if (!f1 || !f2)
@@ -491,8 +486,8 @@ static lam_status parse_encoding(const cJSON *v, lam_setup *s, lam_error *err)
         double g = NAN;
         int found;
         if ((st = check_keys(v, "encoding", gamma_keys, err)) ||
-            (st = get_number(v, "gamma", "encoding.gamma", LAM_GAMMA_MIN, LAM_GAMMA_MAX, &g,
-                             &found, err)))
+            (st = lam_json_number(v, "gamma", "encoding.gamma", LAM_GAMMA_MIN, LAM_GAMMA_MAX, &g,
+                                  &found, err)))
             return st;
         if (!found)
             return lam_error_set(err, LAM_EFORMAT, "key encoding.gamma: missing");
@@ -522,7 +517,7 @@ static lam_status parse_layer(const cJSON *L, const char *path, int i, lam_setup
     s->layers = (size_t)i + 1;
     join_key(key, sizeof key, at, "thickness_nm");
     int found;
-    if ((st = get_number(L, "thickness_nm", key, 0, 5000, &s->layer_nm[i], &found, err)))
+    if ((st = lam_json_number(L, "thickness_nm", key, 0, 5000, &s->layer_nm[i], &found, err)))
         return st;
     return found ? LAM_OK : lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
 }
@@ -631,8 +626,9 @@ static lam_status read_numbers(const cJSON *root, lam_setup *s, lam_error *err)
         }
         double v;
         int found;
-        lam_status st = o ? get_number(o, k, numbers[i].key, -HUGE_VAL, HUGE_VAL, &v, &found, err)
-                          : LAM_OK;
+        lam_status st =
+            o ? lam_json_number(o, k, numbers[i].key, -HUGE_VAL, HUGE_VAL, &v, &found, err)
+              : LAM_OK;
         if (!st && o && found)
             st = store_number(s, &numbers[i], v, err);
         if (st)
