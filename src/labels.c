@@ -1,6 +1,7 @@
 /* labels.c - reading lamina-labels/1 files: polygons and points of known
  * layer count for calibration. */
 #include "lamina/labels.h"
+#include "lamina/image.h"
 #include "lamina/jsonfile.h"
 
 #include <math.h>
@@ -109,6 +110,35 @@ lam_status lam_labels_load(const char *path, lam_labels *out, lam_error *err)
     memset(out, 0, sizeof *out);
     return lam_json_read_file(path, LABELS_MAX_BYTES, "label", LABELS_SCHEMA, labels_reader, out,
                               err);
+}
+
+lam_status lam_labels_load_map(const char *path, uint8_t **map, size_t *width, size_t *height,
+                               lam_error *err)
+{
+    lam_load_options lo = lam_load_options_default();
+    lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
+    lam_image *lab = NULL;
+    lam_status st = lam_image_load(path, &lo, &lab, err);
+    if (st)
+        return st;
+    size_t n = lab->width * lab->height;
+    uint8_t *codes = malloc(n ? n : 1);
+    if (!codes) {
+        lam_image_free(lab);
+        lam_error_set_file(err, path);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu label map", lab->width,
+                             lab->height);
+    }
+    double full = lab->bit_depth == 16 ? 65535.0 : 255.0;
+    for (size_t k = 0; k < n; k++) {
+        double v = lab->plane[0][k] * full;
+        codes[k] = (uint8_t)(v > 255 ? 255 : lround(v));
+    }
+    *map = codes;
+    *width = lab->width;
+    *height = lab->height;
+    lam_image_free(lab);
+    return LAM_OK;
 }
 
 void lam_label_fill(const lam_label *label, uint8_t *map, size_t width, size_t height)

@@ -3,6 +3,7 @@
  * fill the pixels whose centres they contain. */
 #include "check.h"
 #include "lamina/labels.h"
+#include "lamina/png.h"
 
 #include <stdio.h>
 #include <stdlib.h>
@@ -87,11 +88,47 @@ static void test_fill(void)
     lam_labels_clear(&l);
 }
 
+/* Label maps: the codes come back as stored, from 8- and 16-bit PNGs
+ * written by the library's own writer. */
+static void test_map(void)
+{
+    uint8_t codes[6 * 4];
+    uint16_t wide[6 * 4];
+    for (size_t k = 0; k < 24; k++) {
+        codes[k] = (uint8_t)(k % 3 == 0 ? 0 : (k % 3 == 1 ? 2 : 255));
+        wide[k] = codes[k];
+    }
+    char p8[512], p16[512];
+    snprintf(p8, sizeof p8, "%s/map8.png", check_tmpdir());
+    snprintf(p16, sizeof p16, "%s/map16.png", check_tmpdir());
+    lam_error err;
+    lam_error_clear(&err);
+    lam_png_save_grey8(p8, codes, 6, 4, &err);
+    lam_png_save_16(p16, wide, 6, 4, 1, &err);
+    const char *paths[2] = {p8, p16};
+    for (int i = 0; i < 2; i++) {
+        uint8_t *map = NULL;
+        size_t w = 0, h = 0;
+        check_int(lam_labels_load_map(paths[i], &map, &w, &h, &err), LAM_OK, "%d-bit map reads",
+                  i ? 16 : 8);
+        check_true(map && w == 6 && h == 4 && !memcmp(map, codes, sizeof codes),
+                   "%d-bit map: the codes as written", i ? 16 : 8);
+        free(map);
+    }
+    uint8_t *map = NULL;
+    size_t w, h;
+    lam_error_clear(&err);
+    check_int(lam_labels_load_map("tests/none.png", &map, &w, &h, &err), LAM_EIO,
+              "a missing map");
+    check_true(strstr(err.file, "none.png") != NULL, "names the file");
+}
+
 int main(void)
 {
     check_begin("test_labels");
     test_sample();
     test_refused();
     test_fill();
+    test_map();
     return check_summary();
 }

@@ -15,8 +15,13 @@
  * LAM_RASTER_MAX_VERTICES points and points that are not [x, y] numbers are
  * errors naming the label ("labels[2].polygon: ...") and the file.
  *
+ * Labels can also come as a label map: a PNG (8- or 16-bit, grey or RGB;
+ * the first channel counts) coded like the layer map of an analysis or the
+ * truth map of a render: 0 substrate, N layers, 254/255 ignored.
+ *
  * Ownership: lam_labels_load / lam_labels_parse fill caller storage whose
- * items are released by lam_labels_clear.
+ * items are released by lam_labels_clear; lam_labels_load_map returns a
+ * malloc'd map the caller frees.
  */
 #ifndef LAMINA_LABELS_H
 #define LAMINA_LABELS_H
@@ -50,6 +55,11 @@ lam_status lam_labels_parse(const char *json, lam_labels *out, lam_error *err);
 
 /* Release the items; l may be NULL. */
 void lam_labels_clear(lam_labels *l);
+
+/* Read a label map image into *map (width*height codes, malloc'd; the
+ * codes are read as stored, not as light). Errors name the file. */
+lam_status lam_labels_load_map(const char *path, uint8_t **map, size_t *width, size_t *height,
+                               lam_error *err);
 
 /* Write a polygon label's layer count into every pixel it covers of an
  * 8-bit width x height map (a point label writes nothing). */

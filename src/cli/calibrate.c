@@ -3,6 +3,7 @@
 #include "cli.h"
 #include "setup_opts.h"
 #include "lamina/calibrate.h"
+#include "lamina/labels.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -33,6 +34,35 @@ static void calibrate_help(FILE *out)
           "  -o FILE          write the fitted lamina-setup/1 profile (default calibrated.json)\n"
           "  --quiet\n",
           out);
+}
+
+/* The label codes of one image: a lamina-labels/1 JSON file (its polygons
+ * and points drawn on a map of the image's size) or a label map image.
+ * Prints any error; returns the exit code. */
+static int read_labels(const char *label, const char *img, const lam_setup *s, uint8_t **codes,
+                       size_t *w, size_t *h)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    size_t len = strlen(label);
+    if (!(len > 5 && !strcmp(label + len - 5, ".json")))
+        return lam_labels_load_map(label, codes, w, h, &err) ? cli_report(&err, label) : CLI_OK;
+    lam_image *im = NULL;
+    if (lam_image_load(img, NULL, &im, &err))
+        return cli_report(&err, img);
+    *w = im->width, *h = im->height;
+    lam_image_free(im);
+    *codes = malloc(*w * *h);
+    if (!*codes) {
+        fprintf(stderr, "lamina: out of memory\n");
+        return CLI_EFILE;
+    }
+    if (lam_calib_labels_from_json(label, img, s, *w, *h, *codes, &err)) {
+        free(*codes);
+        *codes = NULL;
+        return cli_report(&err, label);
+    }
+    return CLI_OK;
 }
 
 static int run_calibrate(int argc, char **argv)
@@ -122,43 +152,8 @@ static int run_calibrate(int argc, char **argv)
         }
         size_t lw = 0, lh = 0;
         uint8_t *codes = NULL;
-        size_t len = strlen(labels[i]);
-        if (len > 5 && !strcmp(labels[i] + len - 5, ".json")) {
-            /* polygons or points: the image's size decides the map's */
-            lam_image *im = NULL;
-            if (lam_image_load(img, NULL, &im, &err)) {
-                rc = cli_report(&err, img);
-                break;
-            }
-            lw = im->width, lh = im->height;
-            lam_image_free(im);
-            codes = malloc(lw * lh);
-            if (!codes || lam_calib_labels_from_json(labels[i], img, &s, lw, lh, codes, &err)) {
-                rc = codes ? cli_report(&err, labels[i]) : CLI_EFILE;
-                free(codes);
-                break;
-            }
-        } else {
-            lam_load_options lo = lam_load_options_default();
-            lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
-            lam_image *lab = NULL;
-            if (lam_image_load(labels[i], &lo, &lab, &err)) {
-                rc = cli_report(&err, labels[i]);
-                break;
-            }
-            lw = lab->width, lh = lab->height;
-            codes = malloc(lw * lh);
-            if (!codes) {
-                lam_image_free(lab);
-                rc = CLI_EFILE;
-                break;
-            }
-            for (size_t k = 0; k < lw * lh; k++) {
-                double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
-                codes[k] = (uint8_t)(v > 255 ? 255 : lround(v));
-            }
-            lam_image_free(lab);
-        }
+        if ((rc = read_labels(labels[i], img, &s, &codes, &lw, &lh)))
+            break;
         lam_load_options il = lam_load_options_default();
         if (!lam_setup_is_default(&s, "encoding"))
             il.transfer = s.encoding;
