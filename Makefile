@@ -40,8 +40,19 @@ BENCH_BIN:= $(BENCH_SRC:bench/%.c=$(BUILD)/bench/%)
 LIB      := $(BUILD)/liblamina.a
 BIN      := $(BUILD)/lamina
 
+# The shared library: the same sources as position-independent objects in a
+# build folder of their own, so the static library and the CLI are as before.
+VERSION  := $(shell sed -n 's/.*LAMINA_VERSION "\(.*\)".*/\1/p' include/lamina/version.h)
+SOMAJOR  := 0
+SONAME   := liblamina.so.$(SOMAJOR)
+PIC_OBJ  := $(LIB_SRC:%.c=$(BUILD)/pic/%.o)
+SHLIB    := $(BUILD)/liblamina.so.$(VERSION)
+LIBDIR   ?= $(PREFIX)/lib
+INCDIR   ?= $(PREFIX)/include
+
 .SECONDARY:
-.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz
+.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
+        check-reference
 
 all: $(BIN)
 
@@ -56,6 +67,29 @@ $(LIB): $(LIB_OBJ)
 
 $(BIN): $(CLI_OBJ) $(LIB)
 	$(CC) $(LDFLAGS) $(CLI_OBJ) $(LIB) $(LDLIBS) -o $@
+
+$(BUILD)/pic/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ALL_CFLAGS) -fPIC -c $< -o $@
+
+$(SHLIB): $(PIC_OBJ)
+	$(CC) $(LDFLAGS) -shared -Wl,-soname,$(SONAME) $^ $(LDLIBS) -o $@
+
+shared: $(SHLIB)
+
+# pkg-config file: the libraries the static library needs go to the
+# .private fields (pkg-config --static).
+$(BUILD)/lamina.pc: Makefile include/lamina/version.h
+	@mkdir -p $(dir $@)
+	@printf '%s\n' 'prefix=$(PREFIX)' 'libdir=$(LIBDIR)' 'includedir=$(INCDIR)' '' \
+	    'Name: lamina' \
+	    'Description: layer counts of 2D-material flakes from optical micrographs' \
+	    'Version: $(VERSION)' \
+	    'Requires.private: $(PKGS)' \
+	    'Libs: -L$${libdir} -llamina' \
+	    'Libs.private: -lpthread -lm' \
+	    'Cflags: -I$${includedir}' > $@
+
 
 # The independent synthetic-micrograph generator (tests/synth/, no lamina
 # code): its objects live in $(BUILD)/synth/ so that $(BUILD)/tests/synth can
@@ -148,7 +182,7 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
 FUZZ_SECONDS ?= 60
-FUZZ_TARGETS := image setup scene csv
+FUZZ_TARGETS := image setup scene csv labels
 FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
     $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
 fuzz: deps
@@ -168,14 +202,30 @@ bench: $(BIN) $(BENCH_BIN)
 	@sh bench/bench_analyze.sh $(BUILD)
 	@sh bench/bench_batch.sh $(BUILD)
 
-install: $(BIN)
+# Installs the program, its man page and default data, and the library
+# (static and shared, public headers, pkg-config file). Never installs
+# Debian packages (that is make deps).
+install: $(BIN) $(LIB) $(SHLIB) $(BUILD)/lamina.pc
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/lamina/calib \
-	    $(DESTDIR)$(PREFIX)/share/man/man1
+	    $(DESTDIR)$(PREFIX)/share/man/man1 $(DESTDIR)$(LIBDIR)/pkgconfig $(DESTDIR)$(INCDIR)/lamina
 	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/lamina
 	install -m 644 calib/* $(DESTDIR)$(PREFIX)/share/lamina/calib/
 	install -m 644 docs/lamina.1 $(DESTDIR)$(PREFIX)/share/man/man1/lamina.1
+	install -m 644 $(LIB) $(DESTDIR)$(LIBDIR)/liblamina.a
+	install -m 755 $(SHLIB) $(DESTDIR)$(LIBDIR)/liblamina.so.$(VERSION)
+	ln -sf liblamina.so.$(VERSION) $(DESTDIR)$(LIBDIR)/$(SONAME)
+	ln -sf $(SONAME) $(DESTDIR)$(LIBDIR)/liblamina.so
+	install -m 644 include/lamina/*.h $(DESTDIR)$(INCDIR)/lamina/
+	install -m 644 $(BUILD)/lamina.pc $(DESTDIR)$(LIBDIR)/pkgconfig/lamina.pc
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/lamina $(DESTDIR)$(PREFIX)/share/man/man1/lamina.1 \
+	    $(DESTDIR)$(LIBDIR)/liblamina.a $(DESTDIR)$(LIBDIR)/liblamina.so.$(VERSION) \
+	    $(DESTDIR)$(LIBDIR)/$(SONAME) $(DESTDIR)$(LIBDIR)/liblamina.so \
+	    $(DESTDIR)$(LIBDIR)/pkgconfig/lamina.pc
+	rm -rf $(DESTDIR)$(PREFIX)/share/lamina $(DESTDIR)$(INCDIR)/lamina
 
 clean:
 	rm -rf build build-asan build-noopt build-vg lamina-out
 
--include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d $(BUILD)/tests/robust/*.d)
+-include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(PIC_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d $(BUILD)/tests/robust/*.d)

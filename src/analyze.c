@@ -1,20 +1,12 @@
 /* analyze.c - the analysis pipeline for one image, stage by stage. */
 #include "lamina/analyze.h"
+#include "lamina/clock.h"
 #include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
-
-
-static double now_s(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
 
 lam_analysis_options lam_analysis_options_default(void)
 {
@@ -127,7 +119,7 @@ typedef struct run {
     double t0;
 } run;
 
-#define MARK(r, k) ((r)->a->seconds[k] = now_s() - (r)->t0)
+#define MARK(r, k) ((r)->a->seconds[k] = lam_clock_seconds() - (r)->t0)
 
 static const char *camera_name(lam_camera_kind k)
 {
@@ -348,7 +340,7 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     r.opt = opt ? opt : &defaults;
     r.setup = setup;
     r.threads = r.opt->threads ? r.opt->threads : 1;
-    r.t0 = now_s();
+    r.t0 = lam_clock_seconds();
     if (!(r.a = calloc(1, sizeof *r.a)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate an analysis");
     snprintf(r.a->file, sizeof r.a->file, "%s", path);

@@ -3,12 +3,10 @@
 #include "lamina/calibrate.h"
 #include "lamina/analyze.h"
 #include "lamina/infer.h"
+#include "lamina/labels.h"
 #include "lamina/model.h"
 #include "lamina/segment.h"
 #include "lamina/substrate.h"
-#include "lamina/raster.h"
-#include "lamina/textfile.h"
-#include <cjson/cJSON.h>
 
 #include <math.h>
 #include <stdio.h>
@@ -303,98 +301,53 @@ lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set,
     return st;
 }
 
-typedef struct label_fill {
-    uint8_t *map;
-    size_t w;
-    uint8_t code;
-} label_fill;
-
-static void label_span(size_t y, size_t x0, size_t x1, void *vctx)
+/* A point label takes the whole region of the image's segmentation that
+ * contains it; the analysis is made once, for the first point. */
+static lam_status label_point(const lam_label *L, size_t idx, const char *image_path,
+                              const lam_setup *setup, size_t w, size_t h, lam_analysis **a,
+                              uint8_t *map, lam_error *err)
 {
-    label_fill *f = vctx;
-    for (size_t x = x0; x <= x1; x++)
-        f->map[y * f->w + x] = f->code;
+    double x = L->x[0], y = L->y[0];
+    if (!(x >= 0 && y >= 0 && x < (double)w && y < (double)h))
+        return lam_error_set(err, LAM_ERANGE, "labels[%zu].point lies outside the image", idx);
+    if (!*a) {
+        lam_analysis_options opt = lam_analysis_options_default();
+        opt.fit_fermi = 0;
+        lam_status st = lam_analyze(image_path, setup, &opt, a, err);
+        if (st)
+            return st;
+    }
+    uint32_t id = (*a)->seg->label[(size_t)y * w + (size_t)x];
+    if (!id)
+        return lam_error_set(err, LAM_ERANGE,
+                             "labels[%zu].point (%g, %g) is on no region "
+                             "(an edge or the substrate)",
+                             idx, x, y);
+    for (size_t k = 0; k < w * h; k++)
+        if ((*a)->seg->label[k] == id)
+            map[k] = (uint8_t)L->layers;
+    return LAM_OK;
 }
 
 lam_status lam_calib_labels_from_json(const char *json_path, const char *image_path,
                                       const lam_setup *setup, size_t w, size_t h, uint8_t *map,
                                       lam_error *err)
 {
-    char *text = NULL;
-    lam_status st = lam_text_load(json_path, 4u << 20, "label", &text, err);
+    lam_labels labels;
+    lam_status st = lam_labels_load(json_path, &labels, err);
     if (st)
         return st;
-    cJSON *root = cJSON_Parse(text);
-    free(text);
-    const cJSON *schema = root ? cJSON_GetObjectItemCaseSensitive(root, "schema") : NULL;
-    const cJSON *labels = root ? cJSON_GetObjectItemCaseSensitive(root, "labels") : NULL;
-    if (!cJSON_IsString(schema) || strcmp(schema->valuestring, "lamina-labels/1") ||
-        !cJSON_IsArray(labels)) {
-        cJSON_Delete(root);
-        lam_error_set_file(err, json_path);
-        return lam_error_set(err, LAM_EFORMAT,
-                             "expected {\"schema\": \"lamina-labels/1\", \"labels\": [...]}");
-    }
     memset(map, 0, w * h);
     lam_analysis *a = NULL;
-    const cJSON *item;
-    size_t idx = 0;
-    cJSON_ArrayForEach(item, labels) {
-        const cJSON *ly = cJSON_GetObjectItemCaseSensitive(item, "layers");
-        const cJSON *poly = cJSON_GetObjectItemCaseSensitive(item, "polygon");
-        const cJSON *pt = cJSON_GetObjectItemCaseSensitive(item, "point");
-        if (!cJSON_IsNumber(ly) || ly->valuedouble < 1 || ly->valuedouble > 40) {
-            st = lam_error_set(err, LAM_EFORMAT, "labels[%zu].layers: expected 1 to 40", idx);
-            break;
-        }
-        uint8_t code = (uint8_t)ly->valuedouble;
-        if (cJSON_IsArray(poly)) {
-            double xs[LAM_RASTER_MAX_VERTICES], ys[LAM_RASTER_MAX_VERTICES];
-            size_t n = 0;
-            const cJSON *p;
-            cJSON_ArrayForEach(p, poly) {
-                const cJSON *px = cJSON_GetArrayItem(p, 0), *py = cJSON_GetArrayItem(p, 1);
-                if (n == LAM_RASTER_MAX_VERTICES || !cJSON_IsNumber(px) || !cJSON_IsNumber(py))
-                    break;
-                xs[n] = px->valuedouble, ys[n] = py->valuedouble, n++;
-            }
-            if (n < 3 || n != (size_t)cJSON_GetArraySize(poly)) {
-                st = lam_error_set(err, LAM_EFORMAT, "labels[%zu].polygon: expected 3 to %d [x, y] points",
-                                   idx, LAM_RASTER_MAX_VERTICES);
-                break;
-            }
-            label_fill f = {map, w, code};
-            lam_raster_polygon(xs, ys, n, w, h, label_span, &f);
-        } else if (cJSON_IsArray(pt) && cJSON_GetArraySize(pt) == 2) {
-            double x = cJSON_GetArrayItem(pt, 0)->valuedouble, y = cJSON_GetArrayItem(pt, 1)->valuedouble;
-            if (!(x >= 0 && y >= 0 && x < (double)w && y < (double)h)) {
-                st = lam_error_set(err, LAM_ERANGE, "labels[%zu].point lies outside the image", idx);
-                break;
-            }
-            if (!a) {
-                lam_analysis_options opt = lam_analysis_options_default();
-                opt.fit_fermi = 0;
-                if ((st = lam_analyze(image_path, setup, &opt, &a, err)))
-                    break;
-            }
-            uint32_t id = a->seg->label[(size_t)y * w + (size_t)x];
-            if (!id) {
-                st = lam_error_set(err, LAM_ERANGE,
-                                   "labels[%zu].point (%g, %g) is on no region (an edge or the substrate)",
-                                   idx, x, y);
-                break;
-            }
-            for (size_t k = 0; k < w * h; k++)
-                if (a->seg->label[k] == id)
-                    map[k] = code;
-        } else {
-            st = lam_error_set(err, LAM_EFORMAT, "labels[%zu]: needs a polygon or a point", idx);
-            break;
-        }
-        idx++;
+    for (size_t i = 0; i < labels.count && !st; i++) {
+        const lam_label *L = &labels.items[i];
+        if (L->kind == LAM_LABEL_POLYGON)
+            lam_label_fill(L, map, w, h);
+        else
+            st = label_point(L, i, image_path, setup, w, h, &a, map, err);
     }
     lam_analysis_free(a);
-    cJSON_Delete(root);
+    lam_labels_clear(&labels);
     if (st)
         lam_error_set_file(err, json_path);
     return st;

@@ -4,6 +4,7 @@
 #include "lamina/catalog.h"
 #include "lamina/font.h"
 #include "lamina/image.h"
+#include "lamina/jsonfile.h"
 #include "lamina/outfile.h"
 #include "lamina/png.h"
 
@@ -125,12 +126,6 @@ void lam_catalog_clear(lam_catalog *c)
     memset(c, 0, sizeof *c);
 }
 
-static double num(const cJSON *o, const char *k, double dflt)
-{
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, k);
-    return cJSON_IsNumber(v) ? v->valuedouble : dflt;
-}
-
 static void arr(const cJSON *o, const char *k, double *out, int n, double dflt)
 {
     const cJSON *a = cJSON_GetObjectItemCaseSensitive(o, k);
@@ -147,7 +142,8 @@ lam_status lam_catalog_add(lam_catalog *c, const cJSON *an, const char *image_pa
     const cJSON *img = cJSON_GetObjectItemCaseSensitive(an, "image");
     if (!cJSON_IsArray(regs) || !cJSON_IsObject(img))
         return lam_error_set(err, LAM_EFORMAT, "not a lamina-analysis/1 result (no regions)");
-    double W = num(img, "width", 0), H = num(img, "height", 0), u = num(img, "um_per_px", NAN);
+    double W = lam_json_number_or(img, "width", 0), H = lam_json_number_or(img, "height", 0);
+    double u = lam_json_number_or(img, "um_per_px", NAN);
     const cJSON *r;
     cJSON_ArrayForEach(r, regs) {
         if (c->count == c->cap) {
@@ -161,19 +157,19 @@ lam_status lam_catalog_add(lam_catalog *c, const cJSON *an, const char *image_pa
         lam_catalog_entry *e = &c->entries[c->count];
         memset(e, 0, sizeof *e);
         snprintf(e->image, sizeof e->image, "%s", image_path);
-        e->region = (unsigned)num(r, "id", 0);
+        e->region = (unsigned)lam_json_number_or(r, "id", 0);
         const cJSON *lab = cJSON_GetObjectItemCaseSensitive(r, "label");
         snprintf(e->label, sizeof e->label, "%s", cJSON_IsString(lab) ? lab->valuestring : "?");
-        e->layers = (int)num(r, "layers", 0);
+        e->layers = (int)lam_json_number_or(r, "layers", 0);
         const cJSON *p = cJSON_GetObjectItemCaseSensitive(r, "p_layers");
         char key[16];
         if (e->layers > 0)
             snprintf(key, sizeof key, "%d", e->layers);
         else
             snprintf(key, sizeof key, "thick");
-        e->probability = num(p, key, 0);
-        e->area_px = num(r, "area_px", 0);
-        e->area_um2 = num(r, "area_um2", NAN);
+        e->probability = lam_json_number_or(p, key, 0);
+        e->area_px = lam_json_number_or(r, "area_px", 0);
+        e->area_um2 = lam_json_number_or(r, "area_um2", NAN);
         arr(r, "usable_rect_px", e->usable_px, 4, 0);
         arr(r, "usable_rect_um", e->usable_um, 2, NAN);
         arr(r, "centroid", e->centroid, 2, 0);

@@ -9,6 +9,28 @@
 #include <string.h>
 #include <strings.h>
 
+const lam_name lam_illuminant_kind_names[] = {
+    {LAM_ILLUM_BLACKBODY, "blackbody", 0}, {LAM_ILLUM_CIE_A, "cie-a", 0},
+    {LAM_ILLUM_LED_WHITE, "led-white", 0}, {LAM_ILLUM_FLAT, "flat", 0},
+    {LAM_ILLUM_TABLE, "table", 0},         {0, NULL, 0}};
+
+/* "mono" is the flat channel of monochromatic predictions, not a camera a
+ * setup file can describe. */
+const lam_name lam_camera_kind_names[] = {
+    {LAM_CAMERA_SRGB_OBSERVER, "srgb-observer", 0}, {LAM_CAMERA_GAUSSIAN, "gaussian", 0},
+    {LAM_CAMERA_TABLE, "table", 0},                 {LAM_CAMERA_MONO, "mono", 1},
+    {0, NULL, 0}};
+
+const char *lam_illuminant_kind_name(lam_illuminant_kind kind)
+{
+    return lam_name_of(lam_illuminant_kind_names, (int)kind);
+}
+
+const char *lam_camera_kind_name(lam_camera_kind kind)
+{
+    return lam_name_of(lam_camera_kind_names, (int)kind);
+}
+
 lam_status lam_grid_init(lam_grid *g, double lo_nm, double hi_nm, double step_nm,
                          lam_error *err)
 {

@@ -1,6 +1,7 @@
 /* error.c - status phrases and the caller-supplied error record. */
 #include "lamina/error.h"
 
+#include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
@@ -44,6 +45,46 @@ lam_status lam_error_set(lam_error *err, lam_status status, const char *fmt, ...
     vsnprintf(err->message, sizeof err->message, fmt, ap);
     va_end(ap);
     return status;
+}
+
+lam_status lam_error_prefix(lam_error *err, lam_status status, const char *fmt, ...)
+{
+    if (!err)
+        return status;
+    char old[sizeof err->message];
+    memcpy(old, err->message, sizeof old);
+    old[sizeof old - 1] = '\0';
+    va_list ap;
+    va_start(ap, fmt);
+    int n = vsnprintf(err->message, sizeof err->message, fmt, ap);
+    va_end(ap);
+    size_t cap = sizeof err->message - 1;
+    size_t used = n < 0 ? 0 : ((size_t)n < cap ? (size_t)n : cap);
+    err->message[used] = '\0';
+    snprintf(err->message + used, sizeof err->message - used, "%s", old);
+    err->status = status;
+    return status;
+}
+
+lam_status lam_check_finite(lam_error *err, const char *name, double v)
+{
+    if (isfinite(v))
+        return LAM_OK;
+    return lam_error_set(err, LAM_ERANGE, "%s: expected a finite number", name);
+}
+
+lam_status lam_check_positive(lam_error *err, const char *name, double v)
+{
+    if (v > 0 && isfinite(v))
+        return LAM_OK;
+    return lam_error_set(err, LAM_ERANGE, "%s: %g is not a positive number", name, v);
+}
+
+lam_status lam_check_range(lam_error *err, const char *name, double v, double lo, double hi)
+{
+    if (v >= lo && v <= hi)
+        return LAM_OK;
+    return lam_error_set(err, LAM_ERANGE, "%s: %g is outside %g to %g", name, v, lo, hi);
 }
 
 void lam_error_set_file(lam_error *err, const char *file)

@@ -41,3 +41,35 @@ void lam_raster_polygon(const double *px, const double *py, size_t nv, size_t w,
         }
     }
 }
+
+typedef struct fill_ctx {
+    void *map;
+    size_t width;
+    unsigned code;
+    int wide; /* 16-bit cells */
+} fill_ctx;
+
+static void fill_span(size_t y, size_t x0, size_t x1, void *vctx)
+{
+    const fill_ctx *f = vctx;
+    for (size_t x = x0; x <= x1; x++) {
+        if (f->wide)
+            ((uint16_t *)f->map)[y * f->width + x] = (uint16_t)f->code;
+        else
+            ((uint8_t *)f->map)[y * f->width + x] = (uint8_t)f->code;
+    }
+}
+
+void lam_raster_fill_u8(const double *x, const double *y, size_t vertices, size_t width,
+                        size_t height, uint8_t *map, uint8_t code)
+{
+    fill_ctx f = {map, width, code, 0};
+    lam_raster_polygon(x, y, vertices, width, height, fill_span, &f);
+}
+
+void lam_raster_fill_u16(const double *x, const double *y, size_t vertices, size_t width,
+                         size_t height, uint16_t *map, uint16_t code)
+{
+    fill_ctx f = {map, width, code, 1};
+    lam_raster_polygon(x, y, vertices, width, height, fill_span, &f);
+}

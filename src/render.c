@@ -2,9 +2,9 @@
  * per-class reflectance from the optics model, flat field, blur, noise. */
 #include "lamina/render.h"
 #include "lamina/jpeg.h"
+#include "lamina/jsonfile.h"
 #include "lamina/model.h"
 #include "lamina/png.h"
-#include "lamina/textfile.h"
 #include "lamina/raster.h"
 
 #include <errno.h>
@@ -27,19 +27,24 @@ void lam_scene_clear(lam_scene *s)
     s->count = 0;
 }
 
+#define SCENE_SCHEMA "lamina-scene/1"
+#define SCENE_MAX_BYTES (4u << 20)
+
+static const char *const scene_keys[] = {
+    "schema", "setup", "width", "height", "oxide_nm", "exposure", "vignetting", "blur_px",
+    "full_well", "read_noise", "seed", "jpeg_quality", "absolute", "gradient", "flakes",
+    "residue", "dust", NULL};
+/* keys of an object of each list (flakes, residue, dust) */
+static const char *const object_keys[3][6] = {
+    {"layers", "fermi_eV", "polygon", "circle", NULL},
+    {"thickness_nm", "polygon", "circle", NULL},
+    {"polygon", "circle", NULL}};
+
+/* A number at the top level of a scene (its key is its path). */
 static lam_status num(const cJSON *o, const char *name, double lo, double hi, double *out,
                       lam_error *err)
 {
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, name);
-    if (!v)
-        return LAM_OK;
-    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
-        return lam_error_set(err, LAM_EFORMAT, "key %s: expected a number", name);
-    if (v->valuedouble < lo || v->valuedouble > hi)
-        return lam_error_set(err, LAM_ERANGE, "key %s: %g is outside %g to %g", name,
-                             v->valuedouble, lo, hi);
-    *out = v->valuedouble;
-    return LAM_OK;
+    return lam_json_number(o, name, NULL, lo, hi, out, NULL, err);
 }
 
 static lam_status read_polygon(const cJSON *item, const char *what, size_t idx,
@@ -79,44 +84,37 @@ static lam_status read_polygon(const cJSON *item, const char *what, size_t idx,
     return LAM_OK;
 }
 
-static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, lam_error *err)
+static lam_status read_setup(const cJSON *setup, const char *dir, lam_scene *s, lam_error *err)
 {
-    if (!cJSON_IsObject(root))
-        return lam_error_set(err, LAM_EFORMAT, "expected a JSON object");
-    const cJSON *schema = cJSON_GetObjectItemCaseSensitive(root, "schema");
-    if (!cJSON_IsString(schema) || strcmp(schema->valuestring, "lamina-scene/1"))
-        return lam_error_set(err, LAM_EFORMAT, "key schema: expected \"lamina-scene/1\"");
-    lam_status st;
-    const cJSON *setup = cJSON_GetObjectItemCaseSensitive(root, "setup");
     if (cJSON_IsString(setup)) {
         char path[2200];
         snprintf(path, sizeof path, "%s/%s", dir, setup->valuestring);
-        if ((st = lam_setup_load(path, &s->setup, err)))
-            return st;
-    } else if (cJSON_IsObject(setup)) {
-        char *text = cJSON_PrintUnformatted(setup);
-        if (!text)
-            return lam_error_set(err, LAM_ENOMEM, "cannot copy the setup");
-        st = lam_setup_parse(text, dir, &s->setup, err);
-        free(text);
-        if (st)
-            return lam_error_set(err, st, "key setup: %s", err ? err->message : "");
+        return lam_setup_load(path, &s->setup, err);
     }
-    double w = 640, h = 480;
+    if (!cJSON_IsObject(setup))
+        return lam_error_set(err, LAM_EFORMAT, "key setup: expected a path or an object");
+    lam_status st = lam_setup_from_json(setup, dir, &s->setup, err);
+    return st ? lam_error_prefix(err, st, "key setup: ") : LAM_OK;
+}
+
+static lam_status read_frame(const cJSON *root, lam_scene *s, lam_error *err)
+{
+    double w = 640, h = 480, seed = 1, q = 92;
+    lam_status st;
     s->oxide_nm = lam_setup_oxide(&s->setup);
-    if ((st = num(root, "width", 8, 20000, &w, err)) || (st = num(root, "height", 8, 20000, &h, err)) ||
+    if ((st = num(root, "width", 8, 20000, &w, err)) ||
+        (st = num(root, "height", 8, 20000, &h, err)) ||
         (st = num(root, "oxide_nm", 0, 2000, &s->oxide_nm, err)) ||
         (st = num(root, "exposure", 0.01, 0.95, &s->exposure, err)) ||
         (st = num(root, "vignetting", 0, 0.6, &s->vignetting, err)) ||
         (st = num(root, "blur_px", 0, 20, &s->blur_px, err)) ||
         (st = num(root, "full_well", 0, 1e7, &s->full_well, err)) ||
-        (st = num(root, "read_noise", 0, 0.2, &s->read_noise, err)))
+        (st = num(root, "read_noise", 0, 0.2, &s->read_noise, err)) ||
+        (st = num(root, "seed", 0, 4e9, &seed, err)) ||
+        (st = num(root, "jpeg_quality", 1, 100, &q, err)))
         return st;
     s->width = (size_t)w;
     s->height = (size_t)h;
-    double seed = 1, q = 92;
-    if ((st = num(root, "seed", 0, 4e9, &seed, err)) || (st = num(root, "jpeg_quality", 1, 100, &q, err)))
-        return st;
     s->seed = (unsigned long)seed;
     s->jpeg_quality = (int)q;
     const cJSON *abs_ = cJSON_GetObjectItemCaseSensitive(root, "absolute");
@@ -129,12 +127,44 @@ static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, 
             return lam_error_set(err, LAM_EFORMAT, "key gradient: expected [gx, gy]");
         for (int i = 0; i < 2; i++) {
             double v = cJSON_GetArrayItem(g, i)->valuedouble;
-            if (!isfinite(v) || fabs(v) > 0.5)
-                return lam_error_set(err, LAM_ERANGE, "key gradient: values within +-0.5");
+            if ((st = lam_check_range(err, "key gradient", v, -0.5, 0.5)))
+                return st;
             s->gradient[i] = v;
         }
     }
-    const char *lists[3] = {"flakes", "residue", "dust"};
+    return LAM_OK;
+}
+
+static lam_status read_object(const cJSON *item, int list, size_t idx, lam_scene *s,
+                              lam_error *err)
+{
+    static const char *const lists[3] = {"flakes", "residue", "dust"};
+    char path[48], key[3][64];
+    snprintf(path, sizeof path, "%s[%zu]", lists[list], idx);
+    snprintf(key[0], sizeof key[0], "%s.layers", path);
+    snprintf(key[1], sizeof key[1], "%s.fermi_eV", path);
+    snprintf(key[2], sizeof key[2], "%s.thickness_nm", path);
+    lam_scene_object *o = &s->objects[s->count];
+    o->kind = (lam_scene_kind)list;
+    double layers = 1, fermi = s->setup.sheet.fermi_ev, t = 3;
+    lam_status st;
+    if ((st = lam_json_check_keys(item, path, object_keys[list], err)) ||
+        (st = lam_json_number(item, "layers", key[0], 1, LAM_MODEL_MAX_LAYERS, &layers, NULL,
+                              err)) ||
+        (st = lam_json_number(item, "fermi_eV", key[1], -2, 2, &fermi, NULL, err)) ||
+        (st = lam_json_number(item, "thickness_nm", key[2], 0.1, 200, &t, NULL, err)) ||
+        (st = read_polygon(item, lists[list], idx, o, err)))
+        return st;
+    o->layers = (int)layers;
+    o->fermi_ev = fermi;
+    o->thickness_nm = t;
+    s->count++;
+    return LAM_OK;
+}
+
+static lam_status read_objects(const cJSON *root, lam_scene *s, lam_error *err)
+{
+    static const char *const lists[3] = {"flakes", "residue", "dust"};
     size_t total = 0;
     for (int l = 0; l < 3; l++)
         total += (size_t)cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(root, lists[l]));
@@ -147,34 +177,32 @@ static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, 
         const cJSON *arr = cJSON_GetObjectItemCaseSensitive(root, lists[l]), *item;
         size_t idx = 0;
         cJSON_ArrayForEach(item, arr) {
-            lam_scene_object *o = &s->objects[s->count];
-            o->kind = (lam_scene_kind)l;
-            double layers = 1, fermi = s->setup.sheet.fermi_ev, t = 3;
-            if ((st = num(item, "layers", 1, LAM_MODEL_MAX_LAYERS, &layers, err)) ||
-                (st = num(item, "fermi_eV", -2, 2, &fermi, err)) ||
-                (st = num(item, "thickness_nm", 0.1, 200, &t, err)))
-                return lam_error_set(err, st, "%s[%zu]: %s", lists[l], idx, err ? err->message : "");
-            o->layers = (int)layers;
-            o->fermi_ev = fermi;
-            o->thickness_nm = t;
-            if ((st = read_polygon(item, lists[l], idx, o, err)))
+            lam_status st = read_object(item, l, idx++, s, err);
+            if (st)
                 return st;
-            s->count++;
-            idx++;
         }
     }
     return LAM_OK;
 }
 
-lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_error *err)
+static lam_status parse_scene(const cJSON *root, const char *dir, lam_scene *s, lam_error *err)
 {
+    lam_status st;
+    const cJSON *setup = cJSON_GetObjectItemCaseSensitive(root, "setup");
+    if ((st = lam_json_check_keys(root, "", scene_keys, err)) ||
+        (setup && (st = read_setup(setup, dir, s, err))) || (st = read_frame(root, s, err)))
+        return st;
+    return read_objects(root, s, err);
+}
+
+/* Defaults, then the tree; on failure nothing is left allocated. */
+static lam_status scene_reader(const cJSON *root, const char *dir, void *vs, lam_error *err)
+{
+    lam_scene *s = vs;
     memset(s, 0, sizeof *s);
     lam_setup_default(&s->setup);
     s->exposure = 0.55;
-    cJSON *root = cJSON_Parse(json);
-    lam_status st = root ? parse_scene(root, dir, s, err)
-                         : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
-    cJSON_Delete(root);
+    lam_status st = parse_scene(root, dir, s, err);
     if (!st && (size_t)s->width * s->height > LAM_IMAGE_DEFAULT_MAX_PIXELS)
         st = lam_error_set(err, LAM_ETOOBIG, "scene of %zux%zu pixels is too large", s->width,
                            s->height);
@@ -183,41 +211,16 @@ lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_
     return st;
 }
 
+lam_status lam_scene_parse(const char *json, const char *dir, lam_scene *s, lam_error *err)
+{
+    memset(s, 0, sizeof *s);
+    return lam_json_read_text(json, SCENE_SCHEMA, dir, scene_reader, s, err);
+}
+
 lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
 {
     memset(s, 0, sizeof *s);
-    char *buf = NULL;
-    lam_status st = lam_text_load(path, 4u << 20, "scene", &buf, err);
-    if (st)
-        return st;
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = lam_scene_parse(buf, dir, s, err);
-    free(buf);
-    if (st)
-        lam_error_set_file(err, path);
-    return st;
-}
-
-typedef struct fill_ctx {
-    uint16_t *cls;
-    size_t w;
-    uint16_t code;
-} fill_ctx;
-
-static void fill_span(size_t y, size_t x0, size_t x1, void *vctx)
-{
-    fill_ctx *f = vctx;
-    for (size_t x = x0; x <= x1; x++)
-        f->cls[y * f->w + x] = f->code;
-}
-
-/* Fill 'code' inside the polygon. */
-static void fill_polygon(const lam_scene_object *o, uint16_t *cls, size_t w, size_t h,
-                         uint16_t code)
-{
-    fill_ctx f = {cls, w, code};
-    lam_raster_polygon(o->x, o->y, o->vertices, w, h, fill_span, &f);
+    return lam_json_read_file(path, SCENE_MAX_BYTES, "scene", SCENE_SCHEMA, scene_reader, s, err);
 }
 
 /* Reflectance per channel of each object (rel[i]) and of the bare
@@ -331,7 +334,8 @@ lam_status lam_render(const lam_scene *s, lam_image **image, uint8_t **truth, la
         goto done;
     /* later objects cover earlier ones; code 0 = substrate, i+1 = object i */
     for (size_t i = 0; i < s->count; i++)
-        fill_polygon(&s->objects[i], cls, w, h, (uint16_t)(i + 1));
+        lam_raster_fill_u16(s->objects[i].x, s->objects[i].y, s->objects[i].vertices, w, h, cls,
+                            (uint16_t)(i + 1));
     double cx = (double)w / 2, cy = (double)h / 2, rmax2 = cx * cx + cy * cy;
     for (size_t y = 0; y < h; y++)
         for (size_t x = 0; x < w; x++) {

@@ -26,6 +26,15 @@ static double round4(double v)
     return round(v * 1e4) / 1e4;
 }
 
+/* Geometry is written to 1e-3 (pixels, um, um^2): a value with few decimal
+ * digits survives cJSON's print and parse bit for bit (its printer can drop
+ * the last binary digit of a full-precision double), so a catalogue merged
+ * from written files equals the one built in memory. */
+static double round3(double v)
+{
+    return round(v * 1e3) / 1e3;
+}
+
 static void add_image(cJSON *root, const lam_analysis *a)
 {
     cJSON *im = cJSON_AddObjectToObject(root, "image");
@@ -165,17 +174,17 @@ static void add_geometry(cJSON *o, const lam_analysis *a, const lam_region_resul
 {
     cJSON_AddNumberToObject(o, "area_px", (double)s->area);
     double u2 = a->um_per_px * a->um_per_px;
-    cJSON_AddItemToObject(o, "area_um2", a->um_per_px > 0 ? cJSON_CreateNumber((double)s->area * u2)
+    cJSON_AddItemToObject(o, "area_um2", a->um_per_px > 0 ? cJSON_CreateNumber(round3((double)s->area * u2))
                                                          : cJSON_CreateNull());
     double bb[4] = {(double)s->bbox[0], (double)s->bbox[1], (double)s->bbox[2], (double)s->bbox[3]};
     cJSON_AddItemToObject(o, "bbox", vec(bb, 4));
-    double cen[2] = {s->sx / (double)s->area, s->sy / (double)s->area};
+    double cen[2] = {round3(s->sx / (double)s->area), round3(s->sy / (double)s->area)};
     cJSON_AddItemToObject(o, "centroid", vec(cen, 2));
     double upx[4] = {(double)r->usable_at[0], (double)r->usable_at[1], (double)r->usable_px[0],
                      (double)r->usable_px[1]};
     cJSON_AddItemToObject(o, "usable_rect_px", vec(upx, 4));
     if (a->um_per_px > 0 && r->usable_px[0]) {
-        double uum[2] = {upx[2] * a->um_per_px, upx[3] * a->um_per_px};
+        double uum[2] = {round3(upx[2] * a->um_per_px), round3(upx[3] * a->um_per_px)};
         cJSON_AddItemToObject(o, "usable_rect_um", vec(uum, 2));
     } else {
         cJSON_AddNullToObject(o, "usable_rect_um");

@@ -1,23 +1,112 @@
-/* setup.c - the lamina-setup/1 profile: defaults and the JSON reader. */
+/* setup.c - the lamina-setup/1 profile: defaults, the strict JSON reader,
+ * the setters the command line uses, and the writer. */
 #include "lamina/setup.h"
 
-#include <errno.h>
-#include <stddef.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
 #include <cjson/cJSON.h>
+#include "lamina/jsonfile.h"
 #include "lamina/outfile.h"
-#include "lamina/textfile.h"
 
-static const char *const all_keys[] = {
+#define SETUP_SCHEMA "lamina-setup/1"
+#define SETUP_MAX_BYTES (1u << 20)
+#define KEYS_MAX 48 /* known keys of one object, explicit and from the table */
+
+/* The plain number keys, one line each: the reader, the writer, the
+ * setters, the strict-key check and the tests all go by this table. A value
+ * outside its range (an unset default such as um_per_px = 0) is written as
+ * null, and null in a file means "not given". 'records' is the key listed
+ * as given when the number is read (NULL: the number's own key). */
+#define FIELD(f) offsetof(lam_setup, f)
+static const lam_setup_number numbers[] = {
+    {"um_per_px", 1e-4, 1000, FIELD(um_per_px), NULL},
+    {"temperature_K", 1, 1000, FIELD(sheet.temperature_k), NULL},
+    {"fermi_eV", -2, 2, FIELD(sheet.fermi_ev), NULL},
+    {"conductivity.scattering_eV", 0, 1, FIELD(sheet.scattering_ev), "conductivity"},
+    {"conductivity.puddle_eV", 0, 0.5, FIELD(sheet.puddle_ev), "conductivity"},
+    {"spectrum.min_nm", 300, 1000, FIELD(grid_lo_nm), "spectrum"},
+    {"spectrum.max_nm", 300, 1000, FIELD(grid_hi_nm), "spectrum"},
+    {"spectrum.step_nm", 0.25, 50, FIELD(grid_step_nm), "spectrum"},
+    /* graphene's visible response (lamina/conductivity.h): any of the three
+     * marks the response as known */
+    {"conductivity.resonance", 0, 30, FIELD(sheet.resonance), "conductivity.response"},
+    {"conductivity.background", 0, 200, FIELD(sheet.background), "conductivity.response"},
+    {"conductivity.continuum", -0.9, 2, FIELD(sheet.continuum), "conductivity.response"},
+    /* one standard deviation of values the profile gives (a calibration
+     * writes them; unset: the spread of a value set by hand, docs/setup.md) */
+    {"uncertainty.illumination_na", 0, 0.5, FIELD(sigma.na), "uncertainty"},
+    {"uncertainty.camera_shift_nm", 0, 100, FIELD(sigma.shift_nm), "uncertainty"},
+    {"uncertainty.camera_log_gain", 0, 2, FIELD(sigma.log_gain), "uncertainty"},
+    {"uncertainty.camera_log_width", 0, 2, FIELD(sigma.log_width), "uncertainty"},
+    {"uncertainty.resonance", 0, 30, FIELD(sigma.resonance), "uncertainty"},
+    {"uncertainty.background", 0, 200, FIELD(sigma.background), "uncertainty"},
+    {"uncertainty.continuum", 0, 2, FIELD(sigma.continuum), "uncertainty"},
+    {"uncertainty.oxide_nm", 0, 500, FIELD(sigma.oxide_nm), "uncertainty"},
+};
+#define N_NUMBERS (sizeof numbers / sizeof numbers[0])
+
+/* Keys recorded as defaulted until given, besides the numbers above whose
+ * 'records' is NULL. */
+static const char *const other_keys[] = {
     "objective.na", "objective.illumination_na", "objective.pupil_weight",
-    "objective.immersion", "illuminant", "camera", "encoding", "um_per_px",
-    "substrate.stack", "substrate.base", "material", "temperature_K", "fermi_eV",
-    "conductivity", "conductivity.response", "spectrum"};
-#define N_KEYS (sizeof all_keys / sizeof all_keys[0])
+    "objective.immersion", "illuminant", "camera", "encoding", "substrate.stack",
+    "substrate.base", "material", "conductivity", "conductivity.response", "spectrum"};
+#define N_OTHER (sizeof other_keys / sizeof other_keys[0])
+
+/* The keys each object's reader uses besides the table's numbers. */
+static const char *const root_keys[] = {"schema", "objective", "illuminant", "camera",
+                                        "encoding", "substrate", "material", "conductivity",
+                                        "uncertainty", "calibration", NULL};
+static const char *const objective_keys[] = {"na", "illumination_na", "pupil_weight",
+                                             "immersion", "cone_nodes", NULL};
+static const char *const illuminant_keys[] = {"kind", "kelvin", "file", NULL};
+static const char *const camera_keys[] = {"kind", "channels", "file", "shift_nm",
+                                          "contrast_gain", "width_scale", NULL};
+static const char *const channel_keys[] = {"centre_nm", "fwhm_nm", NULL};
+static const char *const substrate_keys[] = {"stack", "base", NULL};
+static const char *const layer_keys[] = {"material", "thickness_nm", NULL};
+static const char *const conductivity_keys[] = {"model", "film", "exciton", NULL};
+static const char *const gamma_keys[] = {"gamma", NULL};
+static const char *const file_keys[] = {"file", NULL};
+
+const lam_name lam_pupil_weight_names[] = {
+    {LAM_PUPIL_SIN_COS, "sin-cos", 0}, {LAM_PUPIL_SIN, "sin", 0}, {0, NULL, 0}};
+
+const lam_name lam_conductivity_model_names[] = {
+    {LAM_SHEET_KUBO, "kubo", 0},
+    {LAM_SHEET_UNIVERSAL, "universal", 0},
+    {LAM_SETUP_FILM_MODEL, "film", 0},
+    {0, NULL, 0}};
+
+const lam_setup_number *lam_setup_numbers(size_t *count)
+{
+    *count = N_NUMBERS;
+    return numbers;
+}
+
+const char *lam_pupil_weight_name(lam_pupil_weight w)
+{
+    return lam_name_of(lam_pupil_weight_names, (int)w);
+}
+
+const char *lam_setup_conductivity_model(const lam_setup *s)
+{
+    int model = s->flake_as_film ? LAM_SETUP_FILM_MODEL : (int)s->sheet.model;
+    return lam_name_of(lam_conductivity_model_names, model);
+}
+
+static void list_defaulted(lam_setup *s)
+{
+    s->defaulted_count = 0;
+    for (size_t i = 0; i < N_OTHER; i++)
+        s->defaulted[s->defaulted_count++] = other_keys[i];
+    for (size_t i = 0; i < N_NUMBERS && s->defaulted_count < LAM_SETUP_MAX_DEFAULTED; i++)
+        if (!numbers[i].records)
+            s->defaulted[s->defaulted_count++] = numbers[i].key;
+}
 
 void lam_setup_default(lam_setup *s)
 {
@@ -50,12 +139,9 @@ void lam_setup_default(lam_setup *s)
     s->grid_step_nm = 2;
     for (int c = 0; c < LAM_MAX_CHANNELS; c++)
         s->camera_gain[c] = s->camera_width[c] = 1;
-    s->sigma.na = s->sigma.shift_nm = s->sigma.resonance = NAN;
-    s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = s->sigma.log_gain = NAN;
-    s->sigma.log_width = NAN;
-    for (size_t i = 0; i < N_KEYS; i++)
-        s->defaulted[i] = all_keys[i];
-    s->defaulted_count = N_KEYS;
+    s->sigma.na = s->sigma.shift_nm = s->sigma.log_gain = s->sigma.log_width = NAN;
+    s->sigma.resonance = s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = NAN;
+    list_defaulted(s);
 }
 
 static void mark_given(lam_setup *s, const char *key)
@@ -89,22 +175,111 @@ void lam_setup_clear(lam_setup *s)
     lam_table_spectrum_clear(&s->camera.table);
 }
 
-/* --- reading helpers: each names the key in its message --- */
+/* --- setters: each checks its value and records its key as given --- */
 
-static lam_status get_number(const cJSON *obj, const char *name, const char *key, double lo,
-                             double hi, double *out, int *found, lam_error *err)
+static const lam_setup_number *find_number(const char *key)
 {
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, name);
-    *found = v != NULL;
-    if (!v)
-        return LAM_OK;
-    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
-        return lam_error_set(err, LAM_EFORMAT, "key %s: expected a number", key);
-    if (v->valuedouble < lo || v->valuedouble > hi)
-        return lam_error_set(err, LAM_ERANGE, "key %s: %g is outside %g to %g", key,
-                             v->valuedouble, lo, hi);
-    *out = v->valuedouble;
+    for (size_t i = 0; i < N_NUMBERS; i++)
+        if (!strcmp(numbers[i].key, key))
+            return &numbers[i];
+    return NULL;
+}
+
+static lam_status store_number(lam_setup *s, const lam_setup_number *n, double v, lam_error *err)
+{
+    char label[96];
+    snprintf(label, sizeof label, "key %s", n->key);
+    lam_status st = lam_check_range(err, label, v, n->lo, n->hi);
+    if (st)
+        return st;
+    *(double *)((char *)s + n->offset) = v;
+    mark_given(s, n->records ? n->records : n->key);
     return LAM_OK;
+}
+
+lam_status lam_setup_set_number(lam_setup *s, const char *key, double v, lam_error *err)
+{
+    const lam_setup_number *n = find_number(key);
+    if (!n)
+        return lam_error_set(err, LAM_EINVAL, "'%s' is not a number key of a setup", key);
+    return store_number(s, n, v, err);
+}
+
+lam_status lam_setup_set_fermi(lam_setup *s, double ev, lam_error *err)
+{
+    return lam_setup_set_number(s, "fermi_eV", ev, err);
+}
+
+lam_status lam_setup_set_um_per_px(lam_setup *s, double um, lam_error *err)
+{
+    return lam_setup_set_number(s, "um_per_px", um, err);
+}
+
+/* An aperture must stay below the ambient index (NA = n sin theta). */
+static double na_limit(const lam_setup *s)
+{
+    return creal(lam_material_index_eval(&s->ambient, 550)) * 0.999;
+}
+
+lam_status lam_setup_set_na(lam_setup *s, double na, lam_error *err)
+{
+    lam_status st = lam_check_range(err, "key objective.illumination_na", na, 0, na_limit(s));
+    if (st)
+        return st;
+    s->illumination_na = na;
+    if (na > s->objective_na)
+        s->objective_na = na; /* the illumination cannot be wider than the objective */
+    mark_given(s, "objective.illumination_na");
+    return LAM_OK;
+}
+
+lam_status lam_setup_set_material(lam_setup *s, const char *name, lam_error *err)
+{
+    if (strcasecmp(name, "graphene"))
+        return lam_error_set(err, LAM_ERANGE,
+                             "key material: '%.64s' is not modelled; only graphene flakes so far",
+                             name);
+    snprintf(s->flake, sizeof s->flake, "graphene");
+    mark_given(s, "material");
+    return LAM_OK;
+}
+
+size_t lam_setup_oxide_layer(const lam_setup *s)
+{
+    for (size_t i = 0; i < s->layers; i++)
+        if (!strcasecmp(s->layer_material[i].name, "SiO2"))
+            return i;
+    return s->layers;
+}
+
+double lam_setup_oxide(const lam_setup *s)
+{
+    size_t i = lam_setup_oxide_layer(s);
+    return i < s->layers ? s->layer_nm[i] : -1.0;
+}
+
+lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err)
+{
+    lam_status st = lam_check_range(err, "oxide thickness (nm)", nm, 0, 5000);
+    if (st)
+        return st;
+    size_t i = lam_setup_oxide_layer(s);
+    if (i == s->layers) {
+        if (s->layers == LAM_SETUP_MAX_LAYERS)
+            return lam_error_set(err, LAM_ETOOBIG, "substrate stack is full");
+        lam_material_builtin("SiO2", &s->layer_material[i], NULL);
+        s->layers++;
+    }
+    s->layer_nm[i] = nm;
+    mark_given(s, "substrate.stack");
+    return LAM_OK;
+}
+
+/* --- reading helpers: each names the key by its path in the file --- */
+
+static void join_key(char *buf, size_t n, const char *path, const char *name)
+{
+    snprintf(buf, n, "%s%s%s", path, path[0] ? "." : "", name);
 }
 
 static void join_path(char *buf, size_t n, const char *dir, const char *file)
@@ -115,22 +290,100 @@ static void join_path(char *buf, size_t n, const char *dir, const char *file)
         snprintf(buf, n, "%s/%s", dir, file);
 }
 
+/* Strict keys of the object at 'path': its reader's keys plus the next
+ * component of every table number below it. */
+static lam_status check_keys(const cJSON *o, const char *path, const char *const explicit_keys[],
+                             lam_error *err)
+{
+    const char *known[KEYS_MAX + 1];
+    char names[N_NUMBERS][48];
+    size_t count = 0, plen = strlen(path);
+    for (size_t i = 0; explicit_keys[i] && count < KEYS_MAX; i++)
+        known[count++] = explicit_keys[i];
+    for (size_t i = 0; i < N_NUMBERS && count < KEYS_MAX; i++) {
+        const char *k = numbers[i].key;
+        if (plen && (strncmp(k, path, plen) || k[plen] != '.'))
+            continue;
+        const char *rest = plen ? k + plen + 1 : k;
+        snprintf(names[i], sizeof names[i], "%.*s", (int)strcspn(rest, "."), rest);
+        size_t j = 0;
+        while (j < count && strcmp(known[j], names[i]))
+            j++;
+        if (j == count)
+            known[count++] = names[i];
+    }
+    known[count] = NULL;
+    return lam_json_check_keys(o, path, known, err);
+}
+
+static lam_status get_kind(const cJSON *o, const char *key, const lam_name *table, int *kind,
+                           lam_error *err)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, "kind");
+    if (!cJSON_IsString(v))
+        return lam_error_set(err, LAM_EFORMAT, "key %s: expected a string", key);
+    return lam_name_parse(table, key, v->valuestring, kind, err);
+}
+
+/* A key that only one kind reads, given with another kind. */
+static lam_status only_with(const cJSON *o, const char *obj, const char *key, const char *kind,
+                            int applies, lam_error *err)
+{
+    if (applies || !cJSON_GetObjectItemCaseSensitive(o, key))
+        return LAM_OK;
+    return lam_error_set(err, LAM_EFORMAT, "key %s.%s: only read with kind %s", obj, key, kind);
+}
+
 static lam_status get_material(const cJSON *v, const char *key, const char *dir,
                                lam_material *out, lam_error *err)
 {
     if (cJSON_IsString(v)) {
         lam_status st = lam_material_builtin(v->valuestring, out, err);
-        if (st)
-            return lam_error_set(err, st, "key %s: %s", key, err ? err->message : "");
-        return LAM_OK;
+        /* an unknown name is a fault of the file, not of an argument */
+        return st ? lam_error_prefix(err, LAM_EFORMAT, "key %s: ", key) : LAM_OK;
     }
     const cJSON *f = cJSON_IsObject(v) ? cJSON_GetObjectItemCaseSensitive(v, "file") : NULL;
     if (!cJSON_IsString(f))
         return lam_error_set(err, LAM_EFORMAT,
                              "key %s: expected a material name or {\"file\": \"x.csv\"}", key);
+    lam_status st = check_keys(v, key, file_keys, err);
+    if (st)
+        return st;
     char path[1024];
     join_path(path, sizeof path, dir, f->valuestring);
     return lam_material_load_csv(path, out, err);
+}
+
+/* columns 0: as many as the header names (a camera: 1 to 3); a camera's
+ * effective channels may dip below zero (its colour matrix). */
+static lam_status get_table(const cJSON *o, const char *key, const char *dir, size_t columns,
+                            int signed_values, lam_table_spectrum *out, lam_error *err)
+{
+    const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
+    if (!cJSON_IsString(f))
+        return lam_error_set(err, LAM_EFORMAT, "key %s.file: expected a path", key);
+    char path[1024];
+    join_path(path, sizeof path, dir, f->valuestring);
+    return lam_table_spectrum_load_ex(path, columns, signed_values, out, err);
+}
+
+/* --- the objects of a setup file --- */
+
+static lam_status parse_immersion(const cJSON *imm, lam_setup *s, const char *dir,
+                                  lam_error *err)
+{
+    lam_material m;
+    lam_status st = get_material(imm, "objective.immersion", dir, &m, err);
+    if (st)
+        return st;
+    if (m.kind != LAM_MATERIAL_CONSTANT && m.kind != LAM_MATERIAL_SELLMEIER) {
+        lam_material_clear(&m);
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key objective.immersion: the ambient must be lossless");
+    }
+    s->ambient = m;
+    mark_given(s, "objective.immersion");
+    return LAM_OK;
 }
 
 static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
@@ -140,27 +393,18 @@ static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
     lam_status st;
     if (!cJSON_IsObject(o))
         return lam_error_set(err, LAM_EFORMAT, "key objective: expected an object");
+    if ((st = check_keys(o, "objective", objective_keys, err)))
+        return st;
     const cJSON *imm = cJSON_GetObjectItemCaseSensitive(o, "immersion");
-    if (imm) {
-        lam_material m;
-        if ((st = get_material(imm, "objective.immersion", dir, &m, err)))
-            return st;
-        if (m.kind != LAM_MATERIAL_CONSTANT && m.kind != LAM_MATERIAL_SELLMEIER) {
-            lam_material_clear(&m);
-            return lam_error_set(err, LAM_EINVAL,
-                                 "key objective.immersion: the ambient must be lossless");
-        }
-        s->ambient = m;
-        mark_given(s, "objective.immersion");
-    }
-    double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
-    if ((st = get_number(o, "na", "objective.na", 0, n_amb * 0.999, &s->objective_na, &found,
-                         err)))
+    if (imm && (st = parse_immersion(imm, s, dir, err)))
+        return st;
+    double top = na_limit(s);
+    if ((st = lam_json_number(o, "na", "objective.na", 0, top, &s->objective_na, &found, err)))
         return st;
     if (found)
         mark_given(s, "objective.na");
-    if ((st = get_number(o, "illumination_na", "objective.illumination_na", 0, n_amb * 0.999,
-                         &s->illumination_na, &found, err)))
+    if ((st = lam_json_number(o, "illumination_na", "objective.illumination_na", 0, top,
+                              &s->illumination_na, &found, err)))
         return st;
     if (found)
         mark_given(s, "objective.illumination_na");
@@ -168,17 +412,17 @@ static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
         s->illumination_na = s->objective_na; /* full-aperture illumination unless stated */
     const cJSON *pw = cJSON_GetObjectItemCaseSensitive(o, "pupil_weight");
     if (pw) {
-        if (cJSON_IsString(pw) && !strcmp(pw->valuestring, "sin-cos"))
-            s->pupil = LAM_PUPIL_SIN_COS;
-        else if (cJSON_IsString(pw) && !strcmp(pw->valuestring, "sin"))
-            s->pupil = LAM_PUPIL_SIN;
-        else
-            return lam_error_set(err, LAM_EINVAL,
-                                 "key objective.pupil_weight: expected \"sin-cos\" or \"sin\"");
+        int w;
+        if (!cJSON_IsString(pw))
+            return lam_error_set(err, LAM_EFORMAT, "key objective.pupil_weight: expected a string");
+        if ((st = lam_name_parse(lam_pupil_weight_names, "objective.pupil_weight",
+                                 pw->valuestring, &w, err)))
+            return st;
+        s->pupil = (lam_pupil_weight)w;
         mark_given(s, "objective.pupil_weight");
     }
     double nodes = (double)s->cone_nodes;
-    if ((st = get_number(o, "cone_nodes", "objective.cone_nodes", 1, 96, &nodes, &found, err)))
+    if ((st = lam_json_number(o, "cone_nodes", "objective.cone_nodes", 1, 96, &nodes, &found, err)))
         return st;
     s->cone_nodes = (size_t)nodes;
     return LAM_OK;
@@ -187,72 +431,58 @@ static lam_status parse_objective(const cJSON *o, lam_setup *s, const char *dir,
 static lam_status parse_illuminant(const cJSON *o, lam_setup *s, const char *dir,
                                    lam_error *err)
 {
-    const cJSON *kind = cJSON_GetObjectItemCaseSensitive(o, "kind");
-    if (!cJSON_IsString(kind))
-        return lam_error_set(err, LAM_EFORMAT, "key illuminant.kind: expected a string");
-    const char *k = kind->valuestring;
-    int found;
-    if (!strcmp(k, "blackbody")) {
-        s->illuminant.kind = LAM_ILLUM_BLACKBODY;
-        lam_status st = get_number(o, "kelvin", "illuminant.kelvin", 1000, 20000,
-                                   &s->illuminant.kelvin, &found, err);
-        if (st)
-            return st;
-    } else if (!strcmp(k, "cie-a")) {
-        s->illuminant.kind = LAM_ILLUM_CIE_A;
-    } else if (!strcmp(k, "led-white")) {
-        s->illuminant.kind = LAM_ILLUM_LED_WHITE;
-    } else if (!strcmp(k, "flat")) {
-        s->illuminant.kind = LAM_ILLUM_FLAT;
-    } else if (!strcmp(k, "table")) {
-        const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
-        if (!cJSON_IsString(f))
-            return lam_error_set(err, LAM_EFORMAT, "key illuminant.file: expected a path");
-        char path[1024];
-        join_path(path, sizeof path, dir, f->valuestring);
-        s->illuminant.kind = LAM_ILLUM_TABLE;
-        return lam_table_spectrum_load(path, 1, &s->illuminant.table, err);
-    } else {
-        return lam_error_set(err, LAM_EINVAL,
-                             "key illuminant.kind: '%s' is not blackbody, cie-a, led-white, "
-                             "flat or table", k);
-    }
-    return LAM_OK;
+    int kind, found;
+    lam_status st;
+    if ((st = check_keys(o, "illuminant", illuminant_keys, err)) ||
+        (st = get_kind(o, "illuminant.kind", lam_illuminant_kind_names, &kind, err)) ||
+        (st = only_with(o, "illuminant", "kelvin", "blackbody", kind == LAM_ILLUM_BLACKBODY,
+                        err)) ||
+        (st = only_with(o, "illuminant", "file", "table", kind == LAM_ILLUM_TABLE, err)))
+        return st;
+    s->illuminant.kind = (lam_illuminant_kind)kind;
+    if (kind == LAM_ILLUM_BLACKBODY)
+        st = lam_json_number(o, "kelvin", "illuminant.kelvin", 1000, 20000, &s->illuminant.kelvin,
+                             &found, err);
+    else if (kind == LAM_ILLUM_TABLE)
+        st = get_table(o, "illuminant", dir, 1, 0, &s->illuminant.table, err);
+    if (!st)
+        mark_given(s, "illuminant");
+    return st;
 }
 
 /* 1 to 3 Gaussian channels: one for a monochrome camera behind a filter,
  * else R, G, B in that order. */
-static lam_status parse_gaussian(const cJSON *o, lam_setup *s, lam_error *err)
+static lam_status parse_channels(const cJSON *ch, lam_setup *s, lam_error *err)
 {
-    const cJSON *ch = cJSON_GetObjectItemCaseSensitive(o, "channels");
     int n = cJSON_GetArraySize(ch);
     if (!cJSON_IsArray(ch) || n < 1 || n > LAM_MAX_CHANNELS)
         return lam_error_set(err, LAM_EFORMAT,
                              "key camera.channels: expected 1 (monochrome) to 3 (R, G, B) "
                              "channels");
-    s->camera.kind = LAM_CAMERA_GAUSSIAN;
     s->camera.channels = (size_t)n;
     for (int c = 0; c < n; c++) {
         const cJSON *item = cJSON_GetArrayItem(ch, c);
         int f1, f2;
-        char key[64];
-        snprintf(key, sizeof key, "camera.channels[%d].centre_nm", c);
-        lam_status st = get_number(item, "centre_nm", key, 350, 850, &s->camera.centre_nm[c], &f1,
-                                   err);
+        char path[48], key[64];
+        snprintf(path, sizeof path, "camera.channels[%d]", c);
+        lam_status st = check_keys(item, path, channel_keys, err);
+        snprintf(key, sizeof key, "%s.centre_nm", path);
+        if (!st)
+            st = lam_json_number(item, "centre_nm", key, 350, 850, &s->camera.centre_nm[c], &f1,
+                                 err);
+        snprintf(key, sizeof key, "%s.fwhm_nm", path);
+        if (!st)
+            st = lam_json_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2, err);
         if (st)
             return st;
-        snprintf(key, sizeof key, "camera.channels[%d].fwhm_nm", c);
-        if ((st = get_number(item, "fwhm_nm", key, 1, 400, &s->camera.fwhm_nm[c], &f2, err)))
-            return st;
         if (!f1 || !f2)
-            return lam_error_set(err, LAM_EFORMAT,
-                                 "key camera.channels[%d]: needs centre_nm and fwhm_nm", c);
+            return lam_error_set(err, LAM_EFORMAT, "key %s: needs centre_nm and fwhm_nm", path);
     }
     return LAM_OK;
 }
 
-/* "shift_nm" and "contrast_gain": a calibration's corrections, one value
- * per channel. */
+/* "shift_nm", "contrast_gain", "width_scale": a calibration's corrections,
+ * one value per channel. */
 static lam_status parse_channel_values(const cJSON *o, const char *name, size_t channels,
                                        double lo, double hi, double *out, lam_error *err)
 {
@@ -274,133 +504,121 @@ static lam_status parse_channel_values(const cJSON *o, const char *name, size_t 
 
 static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, lam_error *err)
 {
-    const cJSON *kind = cJSON_GetObjectItemCaseSensitive(o, "kind");
-    if (!cJSON_IsString(kind))
-        return lam_error_set(err, LAM_EFORMAT, "key camera.kind: expected a string");
-    const char *k = kind->valuestring;
-    lam_status st = LAM_OK;
+    int kind;
+    lam_status st;
+    if ((st = check_keys(o, "camera", camera_keys, err)) ||
+        (st = get_kind(o, "camera.kind", lam_camera_kind_names, &kind, err)) ||
+        (st = only_with(o, "camera", "channels", "gaussian", kind == LAM_CAMERA_GAUSSIAN, err)) ||
+        (st = only_with(o, "camera", "file", "table", kind == LAM_CAMERA_TABLE, err)))
+        return st;
+    s->camera.kind = (lam_camera_kind)kind;
     s->camera.channels = 3;
-    if (!strcmp(k, "srgb-observer")) {
-        s->camera.kind = LAM_CAMERA_SRGB_OBSERVER;
-    } else if (!strcmp(k, "gaussian")) {
-        st = parse_gaussian(o, s, err);
-    } else if (!strcmp(k, "table")) {
-        const cJSON *f = cJSON_GetObjectItemCaseSensitive(o, "file");
-        if (!cJSON_IsString(f))
-            return lam_error_set(err, LAM_EFORMAT, "key camera.file: expected a path");
-        char path[1024];
-        join_path(path, sizeof path, dir, f->valuestring);
-        s->camera.kind = LAM_CAMERA_TABLE;
-        if (!(st = lam_table_spectrum_load_ex(path, 0, 1, &s->camera.table, err)))
-            s->camera.channels = s->camera.table.columns;
-    } else {
-        return lam_error_set(err, LAM_EINVAL,
-                             "key camera.kind: '%s' is not srgb-observer, gaussian or table", k);
-    }
+    if (kind == LAM_CAMERA_GAUSSIAN)
+        st = parse_channels(cJSON_GetObjectItemCaseSensitive(o, "channels"), s, err);
+    else if (kind == LAM_CAMERA_TABLE && !(st = get_table(o, "camera", dir, 0, 1, &s->camera.table, err)))
+        s->camera.channels = s->camera.table.columns;
+    size_t n = s->camera.channels;
     if (!st)
-        st = parse_channel_values(o, "shift_nm", s->camera.channels, -100, 100,
-                                  s->camera_shift_nm, err);
+        st = parse_channel_values(o, "shift_nm", n, -100, 100, s->camera_shift_nm, err);
     if (!st)
-        st = parse_channel_values(o, "contrast_gain", s->camera.channels, 0.2, 2,
-                                  s->camera_gain, err);
+        st = parse_channel_values(o, "contrast_gain", n, 0.2, 2, s->camera_gain, err);
     if (!st)
-        st = parse_channel_values(o, "width_scale", s->camera.channels, 0.4, 2.5,
-                                  s->camera_width, err);
+        st = parse_channel_values(o, "width_scale", n, 0.4, 2.5, s->camera_width, err);
+    if (!st)
+        mark_given(s, "camera");
     return st;
 }
 
-static lam_status parse_substrate(const cJSON *o, lam_setup *s, const char *dir,
-                                  lam_error *err)
+static lam_status parse_encoding(const cJSON *v, lam_setup *s, lam_error *err)
 {
-    if (!cJSON_IsObject(o))
-        return lam_error_set(err, LAM_EFORMAT, "key substrate: expected an object");
-    const cJSON *stack = cJSON_GetObjectItemCaseSensitive(o, "stack");
     lam_status st;
-    if (stack) {
+    if (cJSON_IsString(v)) {
+        int kind;
+        if ((st = lam_name_parse(lam_transfer_kind_names, "encoding", v->valuestring, &kind, err)))
+            return st;
+        s->encoding = (lam_transfer){(lam_transfer_kind)kind, 0};
+    } else if (cJSON_IsObject(v)) {
+        double g = NAN;
+        int found;
+        if ((st = check_keys(v, "encoding", gamma_keys, err)) ||
+            (st = lam_json_number(v, "gamma", "encoding.gamma", LAM_GAMMA_MIN, LAM_GAMMA_MAX, &g,
+                                  &found, err)))
+            return st;
+        if (!found)
+            return lam_error_set(err, LAM_EFORMAT, "key encoding.gamma: missing");
+        s->encoding = (lam_transfer){LAM_TRANSFER_GAMMA, g};
+    } else {
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key encoding: expected \"srgb\", \"linear\" or {\"gamma\": g}");
+    }
+    mark_given(s, "encoding");
+    return LAM_OK;
+}
+
+static lam_status parse_layer(const cJSON *L, const char *path, int i, lam_setup *s,
+                              const char *dir, lam_error *err)
+{
+    char at[64], key[96];
+    snprintf(at, sizeof at, "%s%sstack[%d]", path, path[0] ? "." : "", i);
+    lam_status st = check_keys(L, at, layer_keys, err);
+    if (st)
+        return st;
+    join_key(key, sizeof key, at, "material");
+    const cJSON *m = cJSON_GetObjectItemCaseSensitive(L, "material");
+    if (!m)
+        return lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
+    if ((st = get_material(m, key, dir, &s->layer_material[i], err)))
+        return st;
+    s->layers = (size_t)i + 1;
+    join_key(key, sizeof key, at, "thickness_nm");
+    int found;
+    if ((st = lam_json_number(L, "thickness_nm", key, 0, 5000, &s->layer_nm[i], &found, err)))
+        return st;
+    return found ? LAM_OK : lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
+}
+
+/* 'path' is "substrate" in a setup file, "" in a stack file of its own. */
+static lam_status parse_substrate(const cJSON *o, const char *path, lam_setup *s,
+                                  const char *dir, lam_error *err)
+{
+    char key[64];
+    if (!cJSON_IsObject(o))
+        return lam_error_set(err, LAM_EFORMAT, "key %s: expected an object",
+                             path[0] ? path : "substrate");
+    lam_status st = check_keys(o, path, substrate_keys, err);
+    const cJSON *stack = cJSON_GetObjectItemCaseSensitive(o, "stack");
+    if (!st && stack) {
         int n = cJSON_GetArraySize(stack);
+        join_key(key, sizeof key, path, "stack");
         if (!cJSON_IsArray(stack) || n > LAM_SETUP_MAX_LAYERS)
-            return lam_error_set(err, LAM_EFORMAT,
-                                 "key substrate.stack: expected a list of at most %d layers",
-                                 LAM_SETUP_MAX_LAYERS);
+            return lam_error_set(err, LAM_EFORMAT, "key %s: expected a list of at most %d layers",
+                                 key, LAM_SETUP_MAX_LAYERS);
         for (size_t i = 0; i < s->layers; i++)
             lam_material_clear(&s->layer_material[i]);
         s->layers = 0;
-        for (int i = 0; i < n; i++) {
-            const cJSON *L = cJSON_GetArrayItem(stack, i);
-            char key[64];
-            snprintf(key, sizeof key, "substrate.stack[%d].material", i);
-            const cJSON *m = cJSON_GetObjectItemCaseSensitive(L, "material");
-            if (!m)
-                return lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
-            if ((st = get_material(m, key, dir, &s->layer_material[i], err)))
-                return st;
-            s->layers = (size_t)i + 1;
-            snprintf(key, sizeof key, "substrate.stack[%d].thickness_nm", i);
-            int found;
-            if ((st = get_number(L, "thickness_nm", key, 0, 5000, &s->layer_nm[i], &found, err)))
-                return st;
-            if (!found)
-                return lam_error_set(err, LAM_EFORMAT, "key %s: missing", key);
-        }
-        mark_given(s, "substrate.stack");
+        for (int i = 0; i < n && !st; i++)
+            st = parse_layer(cJSON_GetArrayItem(stack, i), path, i, s, dir, err);
+        if (!st)
+            mark_given(s, "substrate.stack");
     }
     const cJSON *base = cJSON_GetObjectItemCaseSensitive(o, "base");
-    if (base) {
+    if (!st && base) {
+        join_key(key, sizeof key, path, "base");
         lam_material_clear(&s->base);
-        if ((st = get_material(base, "substrate.base", dir, &s->base, err))) {
+        if ((st = get_material(base, key, dir, &s->base, err))) {
             lam_material_builtin("Si", &s->base, NULL);
             return st;
         }
         mark_given(s, "substrate.base");
     }
-    return LAM_OK;
+    return st;
 }
 
-/* The visible-response family (lamina/conductivity.h); giving any of its
- * three numbers marks the response as known ("conductivity.response"). */
-static lam_status parse_response(const cJSON *o, lam_setup *s, lam_error *err)
+static lam_status parse_material(const cJSON *v, lam_setup *s, lam_error *err)
 {
-    int f1 = 0, f2 = 0, f3 = 0;
-    lam_status st;
-    if ((st = get_number(o, "resonance", "conductivity.resonance", 0, 30, &s->sheet.resonance,
-                         &f1, err)) ||
-        (st = get_number(o, "background", "conductivity.background", 0, 200,
-                         &s->sheet.background, &f2, err)) ||
-        (st = get_number(o, "continuum", "conductivity.continuum", -0.9, 2, &s->sheet.continuum,
-                         &f3, err)))
-        return st;
-    if (f1 || f2 || f3)
-        mark_given(s, "conductivity.response");
-    return LAM_OK;
-}
-
-/* "uncertainty": one standard deviation of values the profile gives (a
- * calibration writes them; without one, lamina assumes the spread of a
- * value set by hand, see docs/setup.md). */
-static lam_status parse_uncertainty(const cJSON *o, lam_setup *s, lam_error *err)
-{
-    if (!cJSON_IsObject(o))
-        return lam_error_set(err, LAM_EFORMAT, "key uncertainty: expected an object");
-    static const struct { const char *name; double hi; size_t off; } keys[] = {
-        {"illumination_na", 0.5, offsetof(lam_setup, sigma.na)},
-        {"camera_shift_nm", 100, offsetof(lam_setup, sigma.shift_nm)},
-        {"camera_log_gain", 2, offsetof(lam_setup, sigma.log_gain)},
-        {"camera_log_width", 2, offsetof(lam_setup, sigma.log_width)},
-        {"resonance", 30, offsetof(lam_setup, sigma.resonance)},
-        {"background", 200, offsetof(lam_setup, sigma.background)},
-        {"continuum", 2, offsetof(lam_setup, sigma.continuum)},
-        {"oxide_nm", 500, offsetof(lam_setup, sigma.oxide_nm)},
-    };
-    for (size_t i = 0; i < sizeof keys / sizeof keys[0]; i++) {
-        char key[64];
-        int found;
-        snprintf(key, sizeof key, "uncertainty.%s", keys[i].name);
-        lam_status st = get_number(o, keys[i].name, key, 0, keys[i].hi,
-                                   (double *)((char *)s + keys[i].off), &found, err);
-        if (st)
-            return st;
-    }
-    return LAM_OK;
+    if (!cJSON_IsString(v))
+        return lam_error_set(err, LAM_EFORMAT, "key material: expected a string");
+    return lam_setup_set_material(s, v->valuestring, err);
 }
 
 static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *dir,
@@ -408,239 +626,141 @@ static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *d
 {
     if (!cJSON_IsObject(o))
         return lam_error_set(err, LAM_EFORMAT, "key conductivity: expected an object");
+    lam_status st = check_keys(o, "conductivity", conductivity_keys, err);
     const cJSON *model = cJSON_GetObjectItemCaseSensitive(o, "model");
-    if (model) {
-        if (cJSON_IsString(model) && !strcmp(model->valuestring, "kubo"))
-            s->sheet.model = LAM_SHEET_KUBO;
-        else if (cJSON_IsString(model) && !strcmp(model->valuestring, "universal"))
-            s->sheet.model = LAM_SHEET_UNIVERSAL;
-        else if (cJSON_IsString(model) && !strcmp(model->valuestring, "film")) {
-            /* comparison model: graphene as a slab of tabulated n,k */
-            const cJSON *nk = cJSON_GetObjectItemCaseSensitive(o, "film");
-            if (!nk)
-                return lam_error_set(err, LAM_EFORMAT,
-                                     "key conductivity.film: needed with model \"film\" "
-                                     "(a material name or {\"file\": \"x.csv\"})");
-            lam_status fs = get_material(nk, "conductivity.film", dir, &s->flake_film, err);
-            if (fs)
-                return fs;
-            s->flake_as_film = 1;
-        } else
-            return lam_error_set(err, LAM_EINVAL,
-                                 "key conductivity.model: expected \"kubo\", \"universal\" or "
-                                 "\"film\"");
+    int m = -1; /* not given: the model stays as it is */
+    if (!st && model)
+        st = cJSON_IsString(model)
+                 ? lam_name_parse(lam_conductivity_model_names, "conductivity.model",
+                                  model->valuestring, &m, err)
+                 : lam_error_set(err, LAM_EFORMAT, "key conductivity.model: expected a string");
+    if (!st)
+        st = only_with(o, "conductivity", "film", "model \"film\"", m == LAM_SETUP_FILM_MODEL,
+                       err);
+    if (!st && m == LAM_SETUP_FILM_MODEL) {
+        /* comparison model: graphene as a slab of tabulated n,k */
+        const cJSON *nk = cJSON_GetObjectItemCaseSensitive(o, "film");
+        if (!nk)
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key conductivity.film: needed with model \"film\" "
+                                 "(a material name or {\"file\": \"x.csv\"})");
+        lam_material_clear(&s->flake_film);
+        st = get_material(nk, "conductivity.film", dir, &s->flake_film, err);
+        s->flake_as_film = !st;
+    } else if (!st && m >= 0) {
+        s->sheet.model = (lam_sheet_model)m;
+        s->flake_as_film = 0;
     }
-    int found;
-    lam_status st;
-    if ((st = get_number(o, "scattering_eV", "conductivity.scattering_eV", 0, 1,
-                         &s->sheet.scattering_ev, &found, err)))
-        return st;
-    if ((st = get_number(o, "puddle_eV", "conductivity.puddle_eV", 0, 0.5, &s->sheet.puddle_ev,
-                         &found, err)))
-        return st;
     const cJSON *ex = cJSON_GetObjectItemCaseSensitive(o, "exciton");
-    if (ex) {
+    if (!st && ex) {
         if (!cJSON_IsBool(ex))
-            return lam_error_set(err, LAM_EFORMAT, "key conductivity.exciton: expected true or false");
+            return lam_error_set(err, LAM_EFORMAT,
+                                 "key conductivity.exciton: expected true or false");
         s->sheet.exciton = cJSON_IsTrue(ex);
     }
-    mark_given(s, "conductivity");
-    return parse_response(o, s, err);
+    if (!st)
+        mark_given(s, "conductivity");
+    return st;
+}
+
+/* The table's numbers, wherever they sit; an object on a number's path
+ * that is not an object is refused here (spectrum: 5). */
+static lam_status read_numbers(const cJSON *root, lam_setup *s, lam_error *err)
+{
+    for (size_t i = 0; i < N_NUMBERS; i++) {
+        const char *k = numbers[i].key, *dot;
+        const cJSON *o = root;
+        while (o && (dot = strchr(k, '.'))) {
+            char part[48];
+            snprintf(part, sizeof part, "%.*s", (int)(dot - k), k);
+            o = cJSON_GetObjectItemCaseSensitive(o, part);
+            if (o && !cJSON_IsObject(o))
+                return lam_error_set(err, LAM_EFORMAT, "key %.*s: expected an object",
+                                     (int)(dot - numbers[i].key), numbers[i].key);
+            k = dot + 1;
+        }
+        double v;
+        int found;
+        lam_status st =
+            o ? lam_json_number(o, k, numbers[i].key, -HUGE_VAL, HUGE_VAL, &v, &found, err)
+              : LAM_OK;
+        if (!st && o && found)
+            st = store_number(s, &numbers[i], v, err);
+        if (st)
+            return st;
+    }
+    return LAM_OK;
 }
 
 static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, lam_error *err)
 {
-    if (!cJSON_IsObject(root))
-        return lam_error_set(err, LAM_EFORMAT, "expected a JSON object");
-    const cJSON *schema = cJSON_GetObjectItemCaseSensitive(root, "schema");
-    if (!cJSON_IsString(schema) || strcmp(schema->valuestring, "lamina-setup/1"))
-        return lam_error_set(err, LAM_EFORMAT,
-                             "key schema: expected \"lamina-setup/1\"");
     lam_status st;
+    if ((st = lam_json_check_schema(root, SETUP_SCHEMA, err)) ||
+        (st = check_keys(root, "", root_keys, err)))
+        return st;
     const cJSON *v;
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "objective")) &&
-        (st = parse_objective(v, s, dir, err)))
+#define ITEM(name) (v = cJSON_GetObjectItemCaseSensitive(root, name))
+    if ((ITEM("objective") && (st = parse_objective(v, s, dir, err))) ||
+        (ITEM("illuminant") && (st = parse_illuminant(v, s, dir, err))) ||
+        (ITEM("camera") && (st = parse_camera(v, s, dir, err))) ||
+        (ITEM("encoding") && (st = parse_encoding(v, s, err))) ||
+        (ITEM("substrate") && (st = parse_substrate(v, "substrate", s, dir, err))) ||
+        (ITEM("material") && (st = parse_material(v, s, err))) ||
+        (ITEM("conductivity") && (st = parse_conductivity(v, s, dir, err))) ||
+        (st = read_numbers(root, s, err)))
         return st;
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "illuminant"))) {
-        if ((st = parse_illuminant(v, s, dir, err)))
-            return st;
-        mark_given(s, "illuminant");
-    }
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "camera"))) {
-        if ((st = parse_camera(v, s, dir, err)))
-            return st;
-        mark_given(s, "camera");
-    }
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "encoding"))) {
-        const cJSON *g = cJSON_IsObject(v) ? cJSON_GetObjectItemCaseSensitive(v, "gamma") : NULL;
-        if (cJSON_IsString(v) && (!strcmp(v->valuestring, "srgb") || !strcmp(v->valuestring, "linear")))
-            lam_transfer_parse(v->valuestring, &s->encoding);
-        else if (cJSON_IsNumber(g) && g->valuedouble >= 0.2 && g->valuedouble <= 5)
-            s->encoding = (lam_transfer){LAM_TRANSFER_GAMMA, g->valuedouble};
-        else
-            return lam_error_set(err, LAM_EINVAL,
-                                 "key encoding: expected \"srgb\", \"linear\" or {\"gamma\": 0.2..5}");
-        mark_given(s, "encoding");
-    }
-    int found;
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "um_per_px")) && !cJSON_IsNull(v)) {
-        if ((st = get_number(root, "um_per_px", "um_per_px", 1e-4, 1000, &s->um_per_px, &found, err)))
-            return st;
-        mark_given(s, "um_per_px");
-    }
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "substrate")) &&
-        (st = parse_substrate(v, s, dir, err)))
+    if (ITEM("uncertainty") && (st = check_keys(v, "uncertainty", (const char *const[]){NULL}, err)))
         return st;
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "material"))) {
-        if (!cJSON_IsString(v) || strcasecmp(v->valuestring, "graphene"))
-            return lam_error_set(err, LAM_EINVAL,
-                                 "key material: only \"graphene\" flakes are modelled so far");
-        mark_given(s, "material");
-    }
-    if ((st = get_number(root, "temperature_K", "temperature_K", 1, 1000, &s->sheet.temperature_k,
-                         &found, err)))
-        return st;
-    if (found)
-        mark_given(s, "temperature_K");
-    if ((st = get_number(root, "fermi_eV", "fermi_eV", -2, 2, &s->sheet.fermi_ev, &found, err)))
-        return st;
-    if (found)
-        mark_given(s, "fermi_eV");
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "conductivity")) &&
-        (st = parse_conductivity(v, s, dir, err)))
-        return st;
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "spectrum"))) {
-        if ((st = get_number(v, "min_nm", "spectrum.min_nm", 300, 1000, &s->grid_lo_nm, &found, err)) ||
-            (st = get_number(v, "max_nm", "spectrum.max_nm", 300, 1000, &s->grid_hi_nm, &found, err)) ||
-            (st = get_number(v, "step_nm", "spectrum.step_nm", 0.25, 50, &s->grid_step_nm, &found, err)))
+    if (ITEM("spectrum")) {
+        if ((st = check_keys(v, "spectrum", (const char *const[]){NULL}, err)))
             return st;
         if (s->grid_hi_nm <= s->grid_lo_nm)
             return lam_error_set(err, LAM_ERANGE, "key spectrum: max_nm must exceed min_nm");
         mark_given(s, "spectrum");
     }
-    if ((v = cJSON_GetObjectItemCaseSensitive(root, "uncertainty")) &&
-        (st = parse_uncertainty(v, s, err)))
-        return st;
+#undef ITEM
+    /* "calibration" is the record lam_setup_save keeps of a fit; nothing
+     * reads it back yet, so its contents are not checked */
     return LAM_OK;
+}
+
+lam_status lam_setup_from_json(const cJSON *root, const char *base_dir, lam_setup *s,
+                               lam_error *err)
+{
+    return parse_root(root, base_dir, s, err);
+}
+
+static lam_status setup_reader(const cJSON *root, const char *dir, void *s, lam_error *err)
+{
+    return parse_root(root, dir, s, err);
+}
+
+static lam_status stack_reader(const cJSON *root, const char *dir, void *s, lam_error *err)
+{
+    return parse_substrate(root, "", s, dir, err);
 }
 
 lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
                            lam_error *err)
 {
-    cJSON *root = cJSON_Parse(json);
-    if (!root) {
-        const char *at = cJSON_GetErrorPtr();
-        long off = at ? (long)(at - json) : -1;
-        return lam_error_set(err, LAM_EFORMAT, "not valid JSON (near byte %ld)", off);
-    }
-    lam_status st = parse_root(root, base_dir, s, err);
-    cJSON_Delete(root);
-    return st;
+    return lam_json_read_text(json, SETUP_SCHEMA, base_dir, setup_reader, s, err);
 }
 
 lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err)
 {
-    char *buf = NULL;
-    lam_status st = lam_text_load(path, 1u << 20, "setup", &buf, err);
-    if (st)
-        return st;
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = lam_setup_parse(buf, dir, s, err);
+    lam_status st =
+        lam_json_read_file(path, SETUP_MAX_BYTES, "setup", SETUP_SCHEMA, setup_reader, s, err);
     if (!st)
         snprintf(s->source, sizeof s->source, "%s", path);
-    free(buf);
-    if (st)
-        lam_error_set_file(err, path);
     return st;
 }
 
 lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err)
 {
-    char *buf = NULL;
-    lam_status st = lam_text_load(path, 1u << 20, "stack", &buf, err);
-    if (st)
-        return st;
-    cJSON *sub = cJSON_Parse(buf);
-    free(buf);
-    char dir[1024];
-    lam_path_dir(path, dir, sizeof dir);
-    st = sub ? parse_substrate(sub, s, dir, err)
-             : lam_error_set(err, LAM_EFORMAT, "not valid JSON");
-    cJSON_Delete(sub);
-    if (st)
-        lam_error_set_file(err, path);
-    return st;
+    return lam_json_read_file(path, SETUP_MAX_BYTES, "stack", NULL, stack_reader, s, err);
 }
 
-size_t lam_setup_oxide_layer(const lam_setup *s)
-{
-    for (size_t i = 0; i < s->layers; i++)
-        if (!strcasecmp(s->layer_material[i].name, "SiO2"))
-            return i;
-    return s->layers;
-}
-
-double lam_setup_oxide(const lam_setup *s)
-{
-    size_t i = lam_setup_oxide_layer(s);
-    return i < s->layers ? s->layer_nm[i] : -1.0;
-}
-
-lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err)
-{
-    if (!(nm >= 0 && nm <= 5000))
-        return lam_error_set(err, LAM_ERANGE, "oxide thickness %g nm is outside 0 to 5000 nm", nm);
-    size_t i = lam_setup_oxide_layer(s);
-    if (i == s->layers) {
-        if (s->layers == LAM_SETUP_MAX_LAYERS)
-            return lam_error_set(err, LAM_ETOOBIG, "substrate stack is full");
-        lam_material_builtin("SiO2", &s->layer_material[i], NULL);
-        s->layers++;
-    }
-    s->layer_nm[i] = nm;
-    mark_given(s, "substrate.stack");
-    return LAM_OK;
-}
-
-static void add_sigma(cJSON *o, const char *name, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, name, v);
-}
-
-/* A per-channel array, written only when some value differs from 'neutral'. */
-static void add_channel_values(cJSON *o, const char *name, const double *v, size_t n,
-                               double neutral, double scale)
-{
-    int any = 0;
-    for (size_t c = 0; c < n; c++)
-        any |= v[c] != neutral;
-    if (!any)
-        return;
-    double r[LAM_MAX_CHANNELS];
-    for (size_t c = 0; c < n; c++)
-        r[c] = round(v[c] * scale) / scale;
-    cJSON_AddItemToObject(o, name, cJSON_CreateDoubleArray(r, (int)n));
-}
-
-static void add_uncertainty(cJSON *root, const lam_setup *s)
-{
-    const lam_setup_sigma *u = &s->sigma;
-    if (!isfinite(u->na) && !isfinite(u->shift_nm) && !isfinite(u->resonance) &&
-        !isfinite(u->background) && !isfinite(u->continuum) && !isfinite(u->oxide_nm) &&
-        !isfinite(u->log_gain) && !isfinite(u->log_width))
-        return;
-    cJSON *o = cJSON_AddObjectToObject(root, "uncertainty");
-    add_sigma(o, "illumination_na", u->na);
-    add_sigma(o, "camera_shift_nm", u->shift_nm);
-    add_sigma(o, "resonance", u->resonance);
-    add_sigma(o, "background", u->background);
-    add_sigma(o, "continuum", u->continuum);
-    add_sigma(o, "camera_log_gain", u->log_gain);
-    add_sigma(o, "camera_log_width", u->log_width);
-    add_sigma(o, "oxide_nm", u->oxide_nm);
-}
+/* --- the writer --- */
 
 static cJSON *material_json(const lam_material *m)
 {
@@ -652,26 +772,56 @@ static cJSON *material_json(const lam_material *m)
     return cJSON_CreateString(m->name);
 }
 
-lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *extra,
-                          lam_error *err)
+/* Put a table number at its path, creating the objects on the way. */
+static void put_number(cJSON *root, const lam_setup *s, const lam_setup_number *n)
 {
-    cJSON *root = cJSON_CreateObject();
-    cJSON_AddStringToObject(root, "schema", "lamina-setup/1");
+    const char *k = n->key, *dot;
+    cJSON *o = root;
+    while ((dot = strchr(k, '.'))) {
+        char part[48];
+        snprintf(part, sizeof part, "%.*s", (int)(dot - k), k);
+        cJSON *next = cJSON_GetObjectItemCaseSensitive(o, part);
+        o = next ? next : cJSON_AddObjectToObject(o, part);
+        k = dot + 1;
+    }
+    double v = *(const double *)((const char *)s + n->offset);
+    if (v >= n->lo && v <= n->hi)
+        cJSON_AddNumberToObject(o, k, v);
+    else
+        cJSON_AddNullToObject(o, k);
+}
+
+/* A per-channel array, written only when some value differs from 'neutral'. */
+static void add_channel_values(cJSON *o, const char *name, const double *v, size_t n,
+                               double neutral)
+{
+    int any = 0;
+    for (size_t c = 0; c < n; c++)
+        any |= v[c] != neutral;
+    if (!any)
+        return;
+    double r[LAM_MAX_CHANNELS];
+    for (size_t c = 0; c < n; c++)
+        r[c] = round(v[c] * 1e4) / 1e4;
+    cJSON_AddItemToObject(o, name, cJSON_CreateDoubleArray(r, (int)n));
+}
+
+static void save_optics(cJSON *root, const lam_setup *s)
+{
     cJSON *ob = cJSON_AddObjectToObject(root, "objective");
     cJSON_AddNumberToObject(ob, "na", s->objective_na);
     cJSON_AddNumberToObject(ob, "illumination_na", s->illumination_na);
-    cJSON_AddStringToObject(ob, "pupil_weight", s->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos");
+    cJSON_AddStringToObject(ob, "pupil_weight", lam_pupil_weight_name(s->pupil));
     cJSON_AddItemToObject(ob, "immersion", material_json(&s->ambient));
+    cJSON_AddNumberToObject(ob, "cone_nodes", (double)s->cone_nodes);
     cJSON *il = cJSON_AddObjectToObject(root, "illuminant");
-    static const char *ik[] = {"blackbody", "cie-a", "led-white", "flat", "table"};
-    cJSON_AddStringToObject(il, "kind", ik[s->illuminant.kind]);
+    cJSON_AddStringToObject(il, "kind", lam_illuminant_kind_name(s->illuminant.kind));
     if (s->illuminant.kind == LAM_ILLUM_BLACKBODY)
         cJSON_AddNumberToObject(il, "kelvin", s->illuminant.kelvin);
     if (s->illuminant.kind == LAM_ILLUM_TABLE)
         cJSON_AddStringToObject(il, "file", s->illuminant.table.file);
     cJSON *cam = cJSON_AddObjectToObject(root, "camera");
-    static const char *ck[] = {"srgb-observer", "gaussian", "table", "gaussian"};
-    cJSON_AddStringToObject(cam, "kind", ck[s->camera.kind]);
+    cJSON_AddStringToObject(cam, "kind", lam_camera_kind_name(s->camera.kind));
     if (s->camera.kind == LAM_CAMERA_GAUSSIAN) {
         cJSON *ch = cJSON_AddArrayToObject(cam, "channels");
         for (size_t c = 0; c < s->camera.channels; c++) {
@@ -683,19 +833,21 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
     }
     if (s->camera.kind == LAM_CAMERA_TABLE)
         cJSON_AddStringToObject(cam, "file", s->camera.table.file);
-    add_channel_values(cam, "shift_nm", s->camera_shift_nm, s->camera.channels, 0, 100);
-    add_channel_values(cam, "contrast_gain", s->camera_gain, s->camera.channels, 1, 1e4);
-    add_channel_values(cam, "width_scale", s->camera_width, s->camera.channels, 1, 1e4);
+    add_channel_values(cam, "shift_nm", s->camera_shift_nm, s->camera.channels, 0);
+    add_channel_values(cam, "contrast_gain", s->camera_gain, s->camera.channels, 1);
+    add_channel_values(cam, "width_scale", s->camera_width, s->camera.channels, 1);
     if (s->encoding.kind == LAM_TRANSFER_GAMMA) {
         cJSON *g = cJSON_AddObjectToObject(root, "encoding");
         cJSON_AddNumberToObject(g, "gamma", s->encoding.gamma);
     } else {
-        cJSON_AddStringToObject(root, "encoding", s->encoding.kind == LAM_TRANSFER_LINEAR ? "linear" : "srgb");
+        lam_transfer_kind k = s->encoding.kind == LAM_TRANSFER_LINEAR ? LAM_TRANSFER_LINEAR
+                                                                      : LAM_TRANSFER_SRGB;
+        cJSON_AddStringToObject(root, "encoding", lam_name_of(lam_transfer_kind_names, (int)k));
     }
-    if (s->um_per_px > 0)
-        cJSON_AddNumberToObject(root, "um_per_px", s->um_per_px);
-    else
-        cJSON_AddNullToObject(root, "um_per_px");
+}
+
+static void save_sample(cJSON *root, const lam_setup *s)
+{
     cJSON *sub = cJSON_AddObjectToObject(root, "substrate");
     cJSON *st = cJSON_AddArrayToObject(sub, "stack");
     for (size_t i = 0; i < s->layers; i++) {
@@ -706,23 +858,22 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
     }
     cJSON_AddItemToObject(sub, "base", material_json(&s->base));
     cJSON_AddStringToObject(root, "material", s->flake);
-    cJSON_AddNumberToObject(root, "temperature_K", s->sheet.temperature_k);
-    cJSON_AddNumberToObject(root, "fermi_eV", s->sheet.fermi_ev);
     cJSON *co = cJSON_AddObjectToObject(root, "conductivity");
-    cJSON_AddStringToObject(co, "model", s->flake_as_film ? "film" : s->sheet.model == LAM_SHEET_KUBO ? "kubo" : "universal");
+    cJSON_AddStringToObject(co, "model", lam_setup_conductivity_model(s));
     if (s->flake_as_film)
         cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
-    cJSON_AddNumberToObject(co, "scattering_eV", s->sheet.scattering_ev);
-    cJSON_AddNumberToObject(co, "puddle_eV", s->sheet.puddle_ev);
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
-    cJSON_AddNumberToObject(co, "resonance", s->sheet.resonance);
-    cJSON_AddNumberToObject(co, "background", s->sheet.background);
-    cJSON_AddNumberToObject(co, "continuum", s->sheet.continuum);
-    add_uncertainty(root, s);
-    cJSON *sp = cJSON_AddObjectToObject(root, "spectrum");
-    cJSON_AddNumberToObject(sp, "min_nm", s->grid_lo_nm);
-    cJSON_AddNumberToObject(sp, "max_nm", s->grid_hi_nm);
-    cJSON_AddNumberToObject(sp, "step_nm", s->grid_step_nm);
+    for (size_t i = 0; i < N_NUMBERS; i++)
+        put_number(root, s, &numbers[i]);
+}
+
+lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *extra,
+                          lam_error *err)
+{
+    cJSON *root = cJSON_CreateObject();
+    cJSON_AddStringToObject(root, "schema", SETUP_SCHEMA);
+    save_optics(root, s);
+    save_sample(root, s);
     if (extra)
         cJSON_AddItemToObject(root, "calibration", cJSON_Duplicate(extra, 1));
     char *text = cJSON_Print(root);

@@ -6,6 +6,11 @@
 #include <string.h>
 #include <strings.h>
 
+const lam_name lam_transfer_kind_names[] = {
+    {LAM_TRANSFER_SRGB, "srgb", 0},   {LAM_TRANSFER_LINEAR, "linear", 0},
+    {LAM_TRANSFER_AUTO, "auto", 1},   {LAM_TRANSFER_GAMMA, "gamma", 1},
+    {0, NULL, 0}};
+
 double lam_transfer_decode(const lam_transfer *t, double v)
 {
     switch (t->kind) {
@@ -37,21 +42,15 @@ double lam_transfer_encode(const lam_transfer *t, double l)
 
 int lam_transfer_parse(const char *text, lam_transfer *out)
 {
-    if (!strcasecmp(text, "srgb")) {
-        *out = (lam_transfer){LAM_TRANSFER_SRGB, 0.0};
-        return 0;
-    }
-    if (!strcasecmp(text, "linear")) {
-        *out = (lam_transfer){LAM_TRANSFER_LINEAR, 0.0};
-        return 0;
-    }
-    if (!strcasecmp(text, "auto")) {
-        *out = (lam_transfer){LAM_TRANSFER_AUTO, 0.0};
-        return 0;
+    for (const lam_name *t = lam_transfer_kind_names; t->name; t++) {
+        if (t->value != LAM_TRANSFER_GAMMA && !strcasecmp(text, t->name)) {
+            *out = (lam_transfer){(lam_transfer_kind)t->value, 0.0};
+            return 0;
+        }
     }
     char *end = NULL;
     double g = strtod(text, &end);
-    if (end == text || *end != '\0' || !isfinite(g) || g < 0.2 || g > 5.0)
+    if (end == text || *end != '\0' || !isfinite(g) || g < LAM_GAMMA_MIN || g > LAM_GAMMA_MAX)
         return -1;
     *out = (lam_transfer){LAM_TRANSFER_GAMMA, g};
     return 0;
@@ -59,11 +58,6 @@ int lam_transfer_parse(const char *text, lam_transfer *out)
 
 const char *lam_transfer_name(const lam_transfer *t)
 {
-    switch (t->kind) {
-    case LAM_TRANSFER_AUTO: return "auto";
-    case LAM_TRANSFER_SRGB: return "srgb";
-    case LAM_TRANSFER_LINEAR: return "linear";
-    case LAM_TRANSFER_GAMMA: return "gamma";
-    }
-    return "auto";
+    const char *name = lam_name_of(lam_transfer_kind_names, (int)t->kind);
+    return name ? name : "auto";
 }

@@ -1,6 +1,6 @@
 /* test_model.c - the contrast model against an independent closed form,
  * published statements about graphene contrast on SiO2/Si, the pitfalls
- * listed in shared/CHECKS.md, and the setup profile reader. */
+ * listed in shared/CHECKS.md. (The setup reader is tested in test_setup.c.) */
 #include "check.h"
 #include "refdata.h"
 #include "lamina/model.h"
@@ -217,45 +217,6 @@ static void test_derivative(void)
     lam_model_free(m);
 }
 
-static void test_setup(void)
-{
-    lam_setup d, f;
-    lam_setup_default(&d);
-    lam_setup_default(&f);
-    lam_error err;
-    lam_error_clear(&err);
-    check_int(lam_setup_load("calib/default-setup.json", &f, &err), LAM_OK,
-              "calib/default-setup.json loads (%s)", err.message);
-    check_abs(f.illumination_na, d.illumination_na, 0, "calib file = compiled: illumination NA");
-    check_abs(f.layer_nm[0], d.layer_nm[0], 0, "calib file = compiled: oxide");
-    check_abs(f.camera.centre_nm[2], d.camera.centre_nm[2], 0, "calib file = compiled: camera B");
-    check_abs(f.sheet.fermi_ev, d.sheet.fermi_ev, 0, "calib file = compiled: fermi");
-    check_abs(f.illuminant.kelvin, d.illuminant.kelvin, 0, "calib file = compiled: lamp");
-    check_true(!lam_setup_is_default(&f, "camera") && lam_setup_is_default(&d, "camera"),
-               "defaulted keys are tracked");
-    lam_setup_clear(&f);
-    struct { const char *json; lam_status st; const char *key; } bad[] = {
-        {"{\"schema\":\"lamina-setup/1\",\"objective\":{\"illumination_na\":1.2}}", LAM_ERANGE,
-         "objective.illumination_na"},
-        {"{\"schema\":\"lamina-setup/1\",\"substrate\":{\"stack\":[{\"material\":\"SiO2\","
-         "\"thickness_nm\":-5}]}}", LAM_ERANGE, "substrate.stack[0].thickness_nm"},
-        {"{\"schema\":\"lamina-setup/1\",\"temperature_K\":0}", LAM_ERANGE, "temperature_K"},
-        {"{\"schema\":\"lamina-setup/2\"}", LAM_EFORMAT, "schema"},
-        {"{\"schema\":\"lamina-setup/1\",\"camera\":{\"kind\":\"fisheye\"}}", LAM_EINVAL, "camera.kind"},
-        {"{\"schema\":\"lamina-setup/1\", \"fermi_eV\": NaN}", LAM_EFORMAT, "JSON"},
-    };
-    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
-        lam_setup s;
-        lam_setup_default(&s);
-        lam_error_clear(&err);
-        lam_status st = lam_setup_parse(bad[i].json, ".", &s, &err);
-        check_int(st, bad[i].st, "bad setup %zu refused", i + 1);
-        check_true(strstr(err.message, bad[i].key) != NULL, "message names %s: %s", bad[i].key,
-                   err.message);
-        lam_setup_clear(&s);
-    }
-}
-
 static void test_film_comparison(void)
 {
     /* graphene as a 0.335 nm film of Weber et al. (2010) n,k against the
@@ -300,7 +261,6 @@ int main(void)
     test_published();
     test_pitfalls();
     test_derivative();
-    test_setup();
     if (check_refdata_dir())
         test_film_comparison();
     else

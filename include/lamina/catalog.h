@@ -14,7 +14,9 @@
  * its centre; image x to the right and y down map to chip x and y rotated
  * by rotation_deg (counter-clockwise).
  *
- * Ownership: lam_catalog_alloc / lam_catalog_free; lam_positions likewise.
+ * Ownership: caller storage set up by lam_catalog_init and released by
+ * lam_catalog_clear; lam_positions_load fills caller storage released by
+ * lam_positions_clear.
  */
 #ifndef LAMINA_CATALOG_H
 #define LAMINA_CATALOG_H
@@ -56,11 +58,20 @@ typedef struct lam_catalog {
     lam_catalog_entry *entries;
 } lam_catalog;
 
+/* Read a positions CSV (blank lines and '#' comments skipped). LAM_EFORMAT
+ * names the line and column; LAM_ETOOBIG beyond 500000 rows. */
 lam_status lam_positions_load(const char *path, lam_positions *out, lam_error *err);
+
+/* Release the rows; p may be NULL. */
 void lam_positions_clear(lam_positions *p);
+
+/* The position of an image, matched by base name, or NULL (also for p NULL). */
 const lam_position *lam_positions_find(const lam_positions *p, const char *image_path);
 
+/* An empty catalogue (always LAM_OK). */
 lam_status lam_catalog_init(lam_catalog *c);
+
+/* Release the entries; c may be NULL. */
 void lam_catalog_clear(lam_catalog *c);
 
 /* Add the regions of one analysis (JSON tree); pos may be NULL. */
@@ -73,6 +84,7 @@ lam_status lam_catalog_add(lam_catalog *c, const struct cJSON *analysis, const c
  * is kept, the others listed as also seen in. */
 void lam_catalog_finish(lam_catalog *c);
 
+/* Write DIR/catalog.csv and DIR/catalog.json (atomically), in rank order. */
 lam_status lam_catalog_write(const lam_catalog *c, const char *dir, lam_error *err);
 
 /* A contact sheet of the top candidates (labelled crops of the images). */

@@ -16,6 +16,7 @@
 
 #include <stddef.h>
 #include "lamina/error.h"
+#include "lamina/names.h"
 
 #define LAM_MAX_CHANNELS 3
 #define LAM_MAX_GRID 2001
@@ -47,6 +48,15 @@ typedef enum lam_camera_kind {
     LAM_CAMERA_TABLE,             /* CSV wavelength_nm,r,g,b */
     LAM_CAMERA_MONO               /* one flat channel (monochromatic grids) */
 } lam_camera_kind;
+
+/* Names of the kinds as setup files and reports spell them ("blackbody",
+ * "cie-a", "led-white", "flat", "table"; "srgb-observer", "gaussian",
+ * "table", and "mono", internal); lam_*_kind_name returns NULL for a value
+ * not in the table. */
+extern const lam_name lam_illuminant_kind_names[];
+extern const lam_name lam_camera_kind_names[];
+const char *lam_illuminant_kind_name(lam_illuminant_kind kind);
+const char *lam_camera_kind_name(lam_camera_kind kind);
 
 /* A table spectrum read from CSV: rows of wavelength and 1 or 3 values. */
 typedef struct lam_table_spectrum {

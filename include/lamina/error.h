@@ -50,8 +50,28 @@ void lam_error_clear(lam_error *err);
 lam_status lam_error_set(lam_error *err, lam_status status, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 
+/* Put a printf-style prefix in front of the message already in err (may be
+ * NULL) and set its status; returns status. The old message is copied
+ * before it is rewritten, so callers that add context to a failure from a
+ * lower level ("key setup: ...", "flakes[2]: ...") never pass err->message
+ * back into lam_error_set, whose source and destination would overlap. */
+lam_status lam_error_prefix(lam_error *err, lam_status status, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+
 /* Record the file a failure concerns, unless one is already recorded. */
 void lam_error_set_file(lam_error *err, const char *file);
+
+/* Checks of a value against its allowed set. Each returns LAM_OK, or
+ * LAM_ERANGE with a message that starts with 'name' (e.g. "key fermi_eV",
+ * "--oxide", "oxide thickness"), so a message is written once, where the
+ * value is checked:
+ *   lam_check_finite    "NAME: expected a finite number"
+ *   lam_check_positive  "NAME: V is not a positive number" (0, NaN, inf)
+ *   lam_check_range     "NAME: V is outside LO to HI" (lo <= v <= hi; NaN
+ *                       fails) */
+lam_status lam_check_finite(lam_error *err, const char *name, double v);
+lam_status lam_check_positive(lam_error *err, const char *name, double v);
+lam_status lam_check_range(lam_error *err, const char *name, double v, double lo, double hi);
 
 /* Turn off GSL's aborting error handler; call once at program start. */
 void lam_error_init_gsl(void);

@@ -61,7 +61,9 @@ typedef struct lam_material {
     char file[512];                 /* the CSV it was read from, or "" */
 } lam_material;
 
-/* Fill *out with a built-in material by (case-insensitive) name. */
+/* Fill *out with a built-in material by (case-insensitive) name: air,
+ * vacuum, water, SiO2, Si, hBN, PMMA. LAM_EINVAL for any other name, with
+ * a message that lists them. No allocation (built-ins are formulas). */
 lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *err);
 
 /* Load "wavelength_nm,n,k" rows (header line required, '#' comments
@@ -69,7 +71,8 @@ lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *
  * n > 0, k >= 0. The error names the file and line. */
 lam_status lam_material_load_csv(const char *path, lam_material *out, lam_error *err);
 
-/* Build a table material from arrays (copied). */
+/* Build a table material from arrays (copied; the same checks as
+ * lam_material_load_csv); release with lam_material_clear. */
 lam_status lam_material_from_table(const char *name, const double *wavelength_nm,
                                    const double *n, const double *k, size_t rows,
                                    lam_material *out, lam_error *err);

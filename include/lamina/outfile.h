@@ -23,19 +23,26 @@ typedef struct lam_outfile {
     char temp_path[LAM_OUTFILE_PATH_MAX];
 } lam_outfile;
 
+/* Create "PATH.tmp-XXXXXX" beside 'path' (mode 0644) and open of->fp on
+ * it; a character device such as /dev/null is written directly. LAM_EINVAL
+ * for a path longer than LAM_OUTFILE_PATH_MAX - 16, LAM_EIO when the file
+ * cannot be created (the error names the path). */
 lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err);
 
 /* Flush, check for write errors, close and rename. On failure the
  * temporary file is removed and LAM_EIO is returned. */
 lam_status lam_outfile_commit(lam_outfile *of, lam_error *err);
 
+/* Close and remove the temporary file; nothing is written. Safe after a
+ * failed lam_outfile_open. */
 void lam_outfile_abort(lam_outfile *of);
 
 /* Remove every temporary file still open (called from a signal handler's
  * aftermath, at exit). Safe to call at any time. */
 void lam_outfile_cleanup_all(void);
 
-/* Write a whole memory buffer atomically. */
+/* Write a whole memory buffer atomically (open, write, commit); LAM_EIO
+ * on any failure, with no file left behind. */
 lam_status lam_outfile_write_buffer(const char *path, const void *data, size_t n,
                                     lam_error *err);
 

@@ -12,8 +12,13 @@
 
 #define LAM_MAX_THREADS 64
 
+/* Work on indices [begin, end); 'slice' numbers the slice (0..threads-1)
+ * for per-slice scratch space in ctx. */
 typedef void (*lam_slice_fn)(size_t begin, size_t end, size_t slice, void *ctx);
 
+/* Run fn over [0, count) in min(threads, count, LAM_MAX_THREADS) slices of
+ * near-equal size, slice 0 on the calling thread; returns when all are
+ * done. No errors: a thread that cannot be started runs its slice here. */
 void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx);
 
 /* Number of online processors (at least 1). */
@@ -22,6 +27,8 @@ size_t lam_cpu_count(void);
 /* Threads for passes that take no explicit count (image conversion, PNG
  * compression): set once by the program (0 = all cores, the default). */
 void lam_parallel_set_default(size_t threads);
+
+/* The count set by lam_parallel_set_default, or lam_cpu_count() when 0. */
 size_t lam_parallel_default(void);
 
 #endif

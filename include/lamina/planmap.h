@@ -22,9 +22,17 @@ typedef struct lam_planmap {
     double *channel;   /* channels x n_ox, camera channels */
 } lam_planmap;
 
+/* The contrast of 'layers'-layer flakes for the setup's optics over
+ * 400-750 nm x 0-350 nm oxide (monochromatic) and per camera channel over
+ * oxide; *out is allocated (LAM_ENOMEM, or the model's status). */
 lam_status lam_planmap_compute(const lam_setup *s, size_t layers, lam_planmap **out,
                                lam_error *err);
+
+/* Release a map from lam_planmap_compute; m may be NULL. */
 void lam_planmap_free(lam_planmap *m);
+
+/* Draw the map and the channel curves as SVG or as an 8-bit RGB PNG (axes,
+ * colour scale, the setup's oxide marked), written atomically. */
 lam_status lam_planmap_write_svg(const lam_planmap *m, const char *path, lam_error *err);
 lam_status lam_planmap_write_png(const lam_planmap *m, const char *path, lam_error *err);
 

@@ -52,11 +52,19 @@ typedef struct lam_scene {
     lam_scene_object *objects; /* count entries, owned */
 } lam_scene;
 
+/* Read a scene file (at most 4 MiB) into caller storage, defaults first
+ * (the setup's defaults, exposure 0.55, 640 x 480, seed 1, quality 92).
+ * The file is read strictly like a setup (lamina/jsonfile.h): unknown keys
+ * are errors with a suggestion; errors name the file and the key
+ * ("flakes[2].layers"). On failure nothing is left to clear. */
 lam_status lam_scene_load(const char *path, lam_scene *scene, lam_error *err);
 
 /* Parse scene JSON text; 'base_dir' resolves a setup given as a path. */
 lam_status lam_scene_parse(const char *json, const char *base_dir, lam_scene *scene,
                            lam_error *err);
+
+/* Release what a scene owns (its objects and setup tables); scene may be
+ * NULL. */
 void lam_scene_clear(lam_scene *scene);
 
 /* Render: linear-light image (caller frees) and truth layer map

@@ -1,5 +1,6 @@
 /*
- * lamina/report.h - the files an analysis writes (contracts in DESIGN.md):
+ * lamina/report.h - the files an analysis writes (read them with
+ * docs/user-guide.md):
  *   STEM.json           the analysis, schema "lamina-analysis/1"
  *   STEM.layers.png     8-bit grey: 0 substrate, 1..K layers, 254 thicker
  *                       than modelled, 255 not assigned

@@ -5,7 +5,19 @@
  * Every key is optional except "schema"; a missing key takes the default
  * listed in calib/default-setup.json (compiled in; a test keeps the two
  * equal) and its name is recorded in 'defaulted' so reports can say which
- * values were assumed. Paths inside a file are relative to its folder.
+ * values were assumed. The setters below record their key as given too, so
+ * a value from a command-line option is not reported as a default.
+ * Paths inside a file are relative to its folder.
+ *
+ * Files are read strictly: a key no reader knows is an error naming it with
+ * its path and the nearest known key (lamina/jsonfile.h); so is a value of
+ * the wrong type, outside its range, or a kind-specific key given with
+ * another kind ("kelvin" for an LED lamp). Keys starting with '_' are
+ * comments. File errors are LAM_EFORMAT (malformed) or LAM_ERANGE (out of
+ * range) and name the file and the key.
+ *
+ * Adding a plain number key is one line of the table in src/setup.c (see
+ * DEVELOPERS.md, "Adding a setup key").
  *
  * Ownership: lam_setup_default fills caller storage; lam_setup_load may
  * allocate material and spectrum tables, released by lam_setup_clear.
@@ -18,6 +30,7 @@
 #include "lamina/conductivity.h"
 #include "lamina/error.h"
 #include "lamina/material.h"
+#include "lamina/names.h"
 #include "lamina/transfer.h"
 
 #define LAM_SETUP_MAX_LAYERS 8
@@ -33,6 +46,25 @@ typedef enum lam_pupil_weight {
 typedef struct lam_setup_sigma {
     double na, shift_nm, log_gain, log_width, resonance, background, continuum, oxide_nm;
 } lam_setup_sigma;
+
+/* Names of the pupil weights ("sin-cos", "sin") and of conductivity.model
+ * ("kubo", "universal" for the sheet models of lamina/conductivity.h, and
+ * "film", LAM_SETUP_FILM_MODEL, for graphene as a slab of tabulated n,k). */
+#define LAM_SETUP_FILM_MODEL 100
+extern const lam_name lam_pupil_weight_names[];
+extern const lam_name lam_conductivity_model_names[];
+const char *lam_pupil_weight_name(lam_pupil_weight weight);
+
+/* A plain number key of a setup file: its path ("conductivity.puddle_eV"),
+ * the accepted range (inclusive), where it is stored (offsetof a double
+ * field of lam_setup), and the key listed as given when it is read (NULL:
+ * the number's own key). */
+typedef struct lam_setup_number {
+    const char *key;
+    double lo, hi;
+    size_t offset;
+    const char *records;
+} lam_setup_number;
 
 typedef struct lam_setup {
     double objective_na;
@@ -66,35 +98,78 @@ typedef struct lam_setup {
 /* The built-in defaults (all keys listed as defaulted). */
 void lam_setup_default(lam_setup *s);
 
-/* Read a setup file on top of the defaults. Errors name the file and key. */
+/* Read a setup file on top of what s holds (normally the defaults). Errors
+ * name the file and the key; on failure s may be partly updated and must
+ * still be released with lam_setup_clear. */
 lam_status lam_setup_load(const char *path, lam_setup *s, lam_error *err);
 
 /* Parse setup JSON text; 'base_dir' resolves relative paths. */
 lam_status lam_setup_parse(const char *json, const char *base_dir, lam_setup *s,
                            lam_error *err);
 
+/* The same from a parsed tree (a setup written inline in a scene); the
+ * tree must carry "schema": "lamina-setup/1". */
+struct cJSON;
+lam_status lam_setup_from_json(const struct cJSON *root, const char *base_dir, lam_setup *s,
+                               lam_error *err);
+
+/* Release the tables a setup owns (materials, spectra); s may be NULL.
+ * The struct itself is caller storage. */
 void lam_setup_clear(lam_setup *s);
 
 /* Replace the substrate by a stack file: the "substrate" object of a setup
- * on its own ({"stack": [...], "base": ...}), paths relative to its folder. */
+ * on its own ({"stack": [...], "base": ...}), paths relative to its folder;
+ * its keys are named without the "substrate." prefix in messages. */
 lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err);
 
+/* Setters. Each checks its value (LAM_ERANGE with a message naming the
+ * setup key, e.g. "key fermi_eV: 3 is outside -2 to 2"), stores it and
+ * records the key as given. */
+
+/* Any number key of the table by its path ("fermi_eV",
+ * "conductivity.puddle_eV"); LAM_EINVAL for a key not in the table. */
+lam_status lam_setup_set_number(lam_setup *s, const char *key, double value, lam_error *err);
+
+/* Fermi level in eV (key fermi_eV, -2 to 2). */
+lam_status lam_setup_set_fermi(lam_setup *s, double ev, lam_error *err);
+
+/* Pixel size at the sample in micrometres (key um_per_px, 1e-4 to 1000). */
+lam_status lam_setup_set_um_per_px(lam_setup *s, double um, lam_error *err);
+
+/* Illumination NA (key objective.illumination_na), 0 up to 0.999 times
+ * the ambient index; the objective NA is raised to it when smaller. */
+lam_status lam_setup_set_na(lam_setup *s, double na, lam_error *err);
+
+/* Flake material (key material): only "graphene" (any case) so far. */
+lam_status lam_setup_set_material(lam_setup *s, const char *name, lam_error *err);
+
 /* Set the thickness of the first SiO2 layer (adds one on the base when the
- * stack has none). LAM_ERANGE for thickness < 0 or > 5000 nm. */
+ * stack has none; records substrate.stack). LAM_ERANGE for thickness < 0
+ * or > 5000 nm, LAM_ETOOBIG when a layer is needed and the stack is full. */
 lam_status lam_setup_set_oxide(lam_setup *s, double nm, lam_error *err);
 
 /* Thickness of the first SiO2 layer, or -1 when there is none. */
 double lam_setup_oxide(const lam_setup *s);
-size_t lam_setup_oxide_layer(const lam_setup *s); /* index, or layers if none */
+
+/* Index of the first SiO2 layer in the stack, or s->layers if none. */
+size_t lam_setup_oxide_layer(const lam_setup *s);
 
 /* Write the setup as lamina-setup/1 JSON (atomically). Built-in materials
- * are written by name, tables by the path they were read from. 'extra' (may
- * be NULL) is a cJSON object added under the key "calibration". */
-struct cJSON;
+ * are written by name, tables by the path they were read from; every key
+ * the reader knows is written, so lam_setup_load gives the setup back.
+ * 'extra' (may be NULL) is a cJSON object added under the key
+ * "calibration". */
 lam_status lam_setup_save(const lam_setup *s, const char *path, const struct cJSON *extra,
                           lam_error *err);
 
-/* Was a key taken from the defaults? */
+/* Was a key taken from the defaults? ("camera", "objective.na", ...: the
+ * names listed under defaults_used in reports.) */
 int lam_setup_is_default(const lam_setup *s, const char *key);
+
+/* The table of plain number keys (for tests and documentation). */
+const lam_setup_number *lam_setup_numbers(size_t *count);
+
+/* conductivity.model of a setup: "kubo", "universal" or "film". */
+const char *lam_setup_conductivity_model(const lam_setup *s);
 
 #endif

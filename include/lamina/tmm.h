@@ -50,7 +50,8 @@ double complex lam_tmm_through_film(double complex y_below, double complex eta,
                                     double complex cos_d, double complex sin_d);
 
 /* Solve a stack at one wavelength, angle (sin_theta0 in the ambient) and
- * polarisation. */
+ * polarisation; layers[0] is the top (ambient side). A pure function: no
+ * allocation, no errors (a lossless stack gives R + T = 1). */
 lam_tmm_result lam_tmm_solve(double n_ambient, const lam_tmm_layer *layers, size_t count,
                              double complex n_substrate, double wavelength_nm,
                              double sin_theta0, lam_pol pol);

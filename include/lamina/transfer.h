@@ -10,6 +10,8 @@
 #ifndef LAMINA_TRANSFER_H
 #define LAMINA_TRANSFER_H
 
+#include "lamina/names.h"
+
 typedef enum lam_transfer_kind {
     LAM_TRANSFER_AUTO = 0, /* choose from the file: sRGB for 8-bit, linear for 16-bit */
     LAM_TRANSFER_SRGB,     /* IEC 61966-2-1 piecewise curve */
@@ -17,10 +19,18 @@ typedef enum lam_transfer_kind {
     LAM_TRANSFER_GAMMA     /* pure power law V = L^(1/gamma) */
 } lam_transfer_kind;
 
+/* The gamma values accepted anywhere (files and options). */
+#define LAM_GAMMA_MIN 0.2
+#define LAM_GAMMA_MAX 5.0
+
 typedef struct lam_transfer {
     lam_transfer_kind kind;
     double gamma; /* used by LAM_TRANSFER_GAMMA only; > 0 */
 } lam_transfer;
+
+/* Names of the kinds: "auto", "srgb", "linear", "gamma" (a setup file gives
+ * a gamma as {"gamma": g}, so "gamma" and "auto" are marked internal). */
+extern const lam_name lam_transfer_kind_names[];
 
 /* Encoded value v (0..1) to linear light. */
 double lam_transfer_decode(const lam_transfer *t, double v);

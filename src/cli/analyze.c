@@ -6,6 +6,7 @@
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/catalog.h"
+#include "lamina/clock.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
 #include "lamina/report.h"
@@ -72,12 +73,6 @@ typedef struct pool {
     double t0;
 } pool;
 
-static double now_s(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
 
 typedef struct annot_job {
     lam_analysis *a;
@@ -149,7 +144,7 @@ static void progress(pool *P)
 {
     if (!P->progress)
         return;
-    double dt = now_s() - P->t0, rate = dt > 0 ? (double)P->done / dt : 0;
+    double dt = lam_clock_seconds() - P->t0, rate = dt > 0 ? (double)P->done / dt : 0;
     double left = rate > 0 ? (double)(P->count - P->done) / rate : 0;
     fprintf(stderr, "\r%zu/%zu images, %.2f/s, %.0f s left   ", P->done, P->count, rate, left);
     if (P->done == P->count)
@@ -449,7 +444,7 @@ static int run_analyze(int argc, char **argv)
     P.setup_hash = setup_hash;
     P.resume = resume;
     P.progress = !cli_quiet && P.count > 1 && isatty(STDERR_FILENO);
-    P.t0 = now_s();
+    P.t0 = lam_clock_seconds();
     pthread_mutex_init(&P.lock, NULL);
     pthread_t *tid = calloc(outer, sizeof *tid);
     size_t started = 0;

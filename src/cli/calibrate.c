@@ -3,6 +3,7 @@
 #include "cli.h"
 #include "setup_opts.h"
 #include "lamina/calibrate.h"
+#include "lamina/labels.h"
 
 #include <getopt.h>
 #include <math.h>

@@ -3,7 +3,8 @@
  *
  * The CLI is a thin layer over the library: each subcommand parses its
  * options, calls library functions and maps statuses to exit codes.
- * Exit codes: 0 success, 1 a file could not be processed, 2 usage error.
+ * Exit codes: 0 success, 1 a file could not be processed, 2 usage error
+ * (a bad option or argument, which the library reports as LAM_EINVAL).
  * Diagnostics go to stderr as "lamina: FILE: reason".
  */
 #ifndef LAMINA_CLI_H
@@ -28,8 +29,12 @@ extern const cli_command cli_analyze, cli_predict, cli_inspect, cli_map, cli_ren
 int cli_usage_error(const char *command, const char *fmt, ...)
     __attribute__((format(printf, 2, 3)));
 
-/* Print a library error as "lamina: FILE: message"; returns 1 (or 2 when
- * the status is LAM_EINVAL from an option value). */
+/* The exit code of a library status: 0 for LAM_OK, 2 for LAM_EINVAL (an
+ * argument or option value is invalid), 1 for every other failure. */
+int cli_exit_code(lam_status status);
+
+/* Print a library error as "lamina: FILE: message"; returns
+ * cli_exit_code(err->status). */
 int cli_report(const lam_error *err, const char *fallback_file);
 
 /* Parse a finite number in [lo, hi]; 0 on success, else prints a usage

@@ -24,6 +24,13 @@ int cli_usage_error(const char *command, const char *fmt, ...)
     return CLI_EUSAGE;
 }
 
+int cli_exit_code(lam_status status)
+{
+    if (status == LAM_OK)
+        return CLI_OK;
+    return status == LAM_EINVAL ? CLI_EUSAGE : CLI_EFILE;
+}
+
 int cli_report(const lam_error *err, const char *fallback_file)
 {
     const char *file = err->file[0] ? err->file : fallback_file;
@@ -32,7 +39,7 @@ int cli_report(const lam_error *err, const char *fallback_file)
         fprintf(stderr, "lamina: %s: %s\n", file, msg);
     else
         fprintf(stderr, "lamina: %s\n", msg);
-    return CLI_EFILE;
+    return err->status == LAM_OK ? CLI_EFILE : cli_exit_code(err->status);
 }
 
 int cli_parse_double(const char *command, const char *option, const char *text,

@@ -11,8 +11,9 @@
 #include <strings.h>
 #include <sys/stat.h>
 #include <cjson/cJSON.h>
-#include "lamina/version.h"
+#include "lamina/jsonfile.h"
 #include "lamina/textfile.h"
+#include "lamina/version.h"
 
 static int add(cli_inputs *in, const char *path)
 {
@@ -205,10 +206,7 @@ void cli_setup_hash(const char *setup_file, const lam_analysis_options *opt,
 
 cJSON *cli_read_json(const char *path)
 {
-    char *buf = NULL;
-    if (lam_text_load(path, 64u << 20, "result", &buf, NULL))
-        return NULL;
-    cJSON *root = cJSON_Parse(buf);
-    free(buf);
+    cJSON *root = NULL;
+    lam_json_load(path, 64u << 20, "result", NULL, &root, NULL);
     return root;
 }

@@ -3,8 +3,6 @@
 #include "cli.h"
 
 #include <math.h>
-#include <string.h>
-#include <strings.h>
 
 void cli_setup_opts_init(cli_setup_opts *o)
 {
@@ -32,6 +30,13 @@ int cli_setup_option(cli_setup_opts *o, const char *command, int code, const cha
     return 0;
 }
 
+/* A setter refused an option's value: a usage error naming the option. */
+static int bad_option(const char *command, const char *option, lam_setup *s, const lam_error *err)
+{
+    lam_setup_clear(s);
+    return cli_usage_error(command, "%s: %s", option, err->message);
+}
+
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
 {
     lam_error err;
@@ -45,28 +50,15 @@ int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
         lam_setup_clear(s);
         return cli_report(&err, o->stack_file);
     }
-    if (o->material && strcasecmp(o->material, "graphene")) {
-        lam_setup_clear(s);
-        return cli_usage_error(command, "--material: only graphene flakes are modelled so far, not '%s'",
-                               o->material);
-    }
-    if (o->oxide_nm >= 0 && lam_setup_set_oxide(s, o->oxide_nm, &err)) {
-        lam_setup_clear(s);
-        return cli_report(&err, NULL);
-    }
-    if (o->na >= 0) {
-        double n_amb = creal(lam_material_index_eval(&s->ambient, 550));
-        if (o->na >= n_amb) {
-            lam_setup_clear(s);
-            return cli_usage_error(command, "--na: %g must be below the ambient index %g", o->na,
-                                   n_amb);
-        }
-        s->illumination_na = o->na;
-        s->objective_na = o->na > s->objective_na ? o->na : s->objective_na;
-    }
-    if (!isnan(o->fermi_ev))
-        s->sheet.fermi_ev = o->fermi_ev;
-    if (o->um_per_px > 0)
-        s->um_per_px = o->um_per_px;
+    if (o->material && lam_setup_set_material(s, o->material, &err))
+        return bad_option(command, "--material", s, &err);
+    if (o->oxide_nm >= 0 && lam_setup_set_oxide(s, o->oxide_nm, &err))
+        return bad_option(command, "--oxide", s, &err);
+    if (o->na >= 0 && lam_setup_set_na(s, o->na, &err))
+        return bad_option(command, "--na", s, &err);
+    if (!isnan(o->fermi_ev) && lam_setup_set_fermi(s, o->fermi_ev, &err))
+        return bad_option(command, "--fermi", s, &err);
+    if (o->um_per_px > 0 && lam_setup_set_um_per_px(s, o->um_per_px, &err))
+        return bad_option(command, "--um-per-px", s, &err);
     return 0;
 }

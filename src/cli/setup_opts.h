@@ -35,8 +35,10 @@ int cli_setup_option(cli_setup_opts *o, const char *command, int code, const cha
 
 void cli_setup_opts_init(cli_setup_opts *o);
 
-/* Build the setup: defaults, then the file, then the options. Prints any
- * error and returns the exit code (0 on success). */
+/* Build the setup: defaults, then the file, then the options through the
+ * library's setters (so the keys they set are not reported as defaults).
+ * Prints any error and returns the exit code (0 on success; 2 for an
+ * option value a setter refuses). */
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s);
 
 #endif

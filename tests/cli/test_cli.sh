@@ -59,6 +59,23 @@ printf '{"schema":"lamina-setup/1","objective":{"illumination_na":3}}' > "$T/bad
 expect_rc 1 "a setup with NA 3" "$BIN" predict --setup "$T/bad.json"
 grep -q "bad.json" "$T/err" && grep -q "illumination_na" "$T/err" && ok "setup message names file and key" || bad "setup message: $(cat "$T/err")"
 
+# strict files (issue 10): a misspelt key names the file, the key and the nearest known key
+printf '{"schema":"lamina-setup/1","objective":{"illumination_NA":0.5}}' > "$T/typo.json"
+expect_rc 1 "a setup with a misspelt key" "$BIN" predict --setup "$T/typo.json"
+grep -q "typo.json: unknown key objective.illumination_NA; did you mean objective.illumination_na?" "$T/err" \
+    && ok "misspelt key: file, key and suggestion" || bad "misspelt key message: $(cat "$T/err")"
+printf '{"schema":"lamina-setup/1","um_per_pixel":0.1}' > "$T/typo2.json"
+expect_rc 1 "um_per_pixel for um_per_px" "$BIN" predict --setup "$T/typo2.json"
+grep -q "did you mean um_per_px" "$T/err" && ok "um_per_px suggested" || bad "um_per_px: $(cat "$T/err")"
+printf '{"schema":"lamina-scene/1","width":32,"height":24,"flaks":[]}' > "$T/typo-scene.json"
+expect_rc 1 "a scene with a misspelt key" "$BIN" render "$T/typo-scene.json" -o "$T/typo.png"
+grep -q "typo-scene.json: unknown key flaks; did you mean flakes?" "$T/err" && [ ! -e "$T/typo.png" ] \
+    && ok "scene key named, no output" || bad "scene key: $(cat "$T/err")"
+# exit codes agree with cli.h: LAM_EINVAL (a bad argument) is a usage error
+expect_rc 2 "render to an unsupported extension (invalid argument)" "$BIN" render samples/HT285-C11-tile07.scene.json -o "$T/x.gif"
+expect_rc 2 "an out-of-range Fermi level" "$BIN" predict --fermi 3
+expect_rc 1 "an unmodelled material inside a setup file is a file error" sh -c \
+    "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoS2\"}' > \"$T/mos2.json\"; \"$BIN\" predict --setup \"$T/mos2.json\""
 expect_rc 0 "map writes an SVG" "$BIN" map --layers 2 --out "$T/map.svg"
 grep -q "</svg>" "$T/map.svg" && ok "map SVG complete" || bad "map SVG complete"
 expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
@@ -75,6 +92,13 @@ done
 grep -q '"schema":[[:space:]]*"lamina-analysis/1"' "$T/a/HT285-A07-tile12.json" && ok "analysis schema" || bad "analysis schema"
 grep -q '"contrast_convention":[[:space:]]*"(substrate - flake) / substrate"' "$T/a/HT285-A07-tile12.json" && ok "convention in JSON" || bad "convention in JSON"
 ls "$T/a" | grep -q tmp && bad "temporary files left" || ok "no temporary files left"
+expect_rc 0 "analyze with --um-per-px, --na and --fermi" "$BIN" analyze --quiet --um-per-px 0.2 --na 0.5 --fermi 0.3 --out "$T/opt" samples/HT285-A07-tile12.png
+du=$(tr -d '\n\t ' < "$T/opt/HT285-A07-tile12.json" | sed -n 's/.*"defaults_used":\(\[[^]]*\]\).*/\1/p')
+case "$du" in
+    *um_per_px*|*illumination_na*|*fermi_eV*) bad "options still listed as defaults: $du" ;;
+    "") bad "no defaults_used in the analysis" ;;
+    *) ok "options are not listed under defaults_used ($du)" ;;
+esac
 expect_rc 0 "analyze two images writes a catalogue" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/b" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
 [ -s "$T/b/catalog.csv" ] && [ -s "$T/b/catalog.json" ] && ok "catalogue files" || bad "catalogue files"
 head -2 "$T/b/catalog.csv" | tail -1 | grep -q ',1L,' && ok "catalogue starts with a monolayer" || bad "catalogue order: $(head -2 "$T/b/catalog.csv")"

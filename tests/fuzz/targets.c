@@ -2,6 +2,7 @@
 #include "targets.h"
 #include "lamina/colour.h"
 #include "lamina/image.h"
+#include "lamina/labels.h"
 #include "lamina/material.h"
 #include "lamina/render.h"
 #include "lamina/setup.h"
@@ -58,6 +59,22 @@ int fuzz_scene(const uint8_t *data, size_t n)
     lam_scene sc;
     if (lam_scene_parse(s, "/nonexistent", &sc, NULL) == LAM_OK)
         lam_scene_clear(&sc);
+    free(s);
+    return 0;
+}
+
+int fuzz_labels(const uint8_t *data, size_t n)
+{
+    char *s = terminated(data, n);
+    if (!s)
+        return 0;
+    lam_labels l;
+    if (lam_labels_parse(s, &l, NULL) == LAM_OK) {
+        uint8_t map[16 * 16];
+        for (size_t i = 0; i < l.count; i++)
+            lam_label_fill(&l.items[i], map, 16, 16);
+        lam_labels_clear(&l);
+    }
     free(s);
     return 0;
 }

@@ -1,0 +1,370 @@
+/* test_setup.c - the lamina-setup/1 reader and writer: defaults against
+ * calib/default-setup.json, a range error for every key, strict keys with
+ * their suggestions, messages written once, the round trip
+ * lam_setup_save -> lam_setup_load, setters that record their keys, stack
+ * files, and the fuzz seeds (which must stay valid inputs). The ranges
+ * checked are those documented in docs/setup.md. */
+#include "check.h"
+#include "lamina/render.h"
+#include "lamina/setup.h"
+#include "lamina/textfile.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <cjson/cJSON.h>
+#include <gsl/gsl_errno.h>
+
+#define HEAD "{\"schema\":\"lamina-setup/1\","
+
+static lam_status parse(const char *json, lam_setup *s, lam_error *err)
+{
+    lam_setup_default(s);
+    lam_error_clear(err);
+    return lam_setup_parse(json, ".", s, err);
+}
+
+/* Parse a bad setup: the status, and every fragment in the message. */
+static void refused(const char *json, lam_status want, const char *frag1, const char *frag2)
+{
+    lam_setup s;
+    lam_error err;
+    lam_status st = parse(json, &s, &err);
+    check_int(st, want, "refused (%s): %s", json, err.message);
+    check_true(strstr(err.message, frag1) && (!frag2 || strstr(err.message, frag2)),
+               "message has '%s'%s%s: %s", frag1, frag2 ? " and " : "", frag2 ? frag2 : "",
+               err.message);
+    lam_setup_clear(&s);
+}
+
+static size_t count(const char *hay, const char *needle)
+{
+    size_t n = 0;
+    for (const char *p = strstr(hay, needle); p; p = strstr(p + 1, needle))
+        n++;
+    return n;
+}
+
+static void test_defaults(void)
+{
+    lam_setup d, f;
+    lam_setup_default(&d);
+    lam_setup_default(&f);
+    lam_error err;
+    lam_error_clear(&err);
+    check_int(lam_setup_load("calib/default-setup.json", &f, &err), LAM_OK,
+              "calib/default-setup.json loads (%s)", err.message);
+    check_abs(f.objective_na, d.objective_na, 0, "calib file = compiled: objective NA");
+    check_abs(f.illumination_na, d.illumination_na, 0, "calib file = compiled: illumination NA");
+    check_abs(f.layer_nm[0], d.layer_nm[0], 0, "calib file = compiled: oxide");
+    for (int c = 0; c < 3; c++) {
+        check_abs(f.camera.centre_nm[c], d.camera.centre_nm[c], 0, "calib = compiled: centre %d",
+                  c);
+        check_abs(f.camera.fwhm_nm[c], d.camera.fwhm_nm[c], 0, "calib = compiled: FWHM %d", c);
+    }
+    check_abs(f.illuminant.kelvin, d.illuminant.kelvin, 0, "calib file = compiled: lamp");
+    size_t n;
+    const lam_setup_number *num = lam_setup_numbers(&n);
+    for (size_t i = 0; i < n; i++) {
+        double a = *(const double *)((const char *)&f + num[i].offset);
+        double b = *(const double *)((const char *)&d + num[i].offset);
+        check_abs(a, b, 0, "calib file = compiled: %s", num[i].key);
+    }
+    size_t own = 0; /* numbers listed under their own key */
+    for (size_t i = 0; i < n; i++)
+        own += num[i].records == NULL;
+    check_int(d.defaulted_count, 13 + own, "the defaults list every key (13 others, %zu numbers)",
+              own);
+    check_true(!lam_setup_is_default(&f, "camera") && lam_setup_is_default(&d, "camera"),
+               "defaulted keys are tracked");
+    /* The visible response stays 'not given' so that the analysis keeps its
+     * wide prior on it (docs/setup.md, "uncertainty"). */
+    check_true(f.defaulted_count == 2 && lam_setup_is_default(&f, "um_per_px") &&
+                   lam_setup_is_default(&f, "conductivity.response"),
+               "the calib file gives every key but the pixel size (null: unknown) and the "
+               "visible response (left to the analysis)");
+    lam_setup_clear(&f);
+}
+
+/* Every number key: above and below its range, and of the wrong type. */
+static void test_ranges(void)
+{
+    size_t n;
+    const lam_setup_number *num = lam_setup_numbers(&n);
+    check_true(n >= 8, "the number table has the documented keys (%zu)", n);
+    for (size_t i = 0; i < n; i++) {
+        char json[256], inner[160];
+        const char *dot = strchr(num[i].key, '.');
+        const double bad[2] = {num[i].hi + 1 + fabs(num[i].hi), num[i].lo - 1 - fabs(num[i].lo)};
+        for (int k = 0; k < 2; k++) {
+            if (dot)
+                snprintf(inner, sizeof inner, "\"%.*s\":{\"%s\":%g}", (int)(dot - num[i].key),
+                         num[i].key, dot + 1, bad[k]);
+            else
+                snprintf(inner, sizeof inner, "\"%s\":%g", num[i].key, bad[k]);
+            snprintf(json, sizeof json, HEAD "%s}", inner);
+            refused(json, LAM_ERANGE, num[i].key, "is outside");
+        }
+    }
+    /* the keys outside the table, with the ranges of docs/setup.md */
+    refused(HEAD "\"objective\":{\"illumination_na\":1.2}}", LAM_ERANGE,
+            "key objective.illumination_na: 1.2 is outside 0 to 0.999", NULL);
+    refused(HEAD "\"objective\":{\"na\":-0.1}}", LAM_ERANGE, "key objective.na", NULL);
+    refused(HEAD "\"objective\":{\"cone_nodes\":200}}", LAM_ERANGE, "objective.cone_nodes", NULL);
+    refused(HEAD "\"illuminant\":{\"kind\":\"blackbody\",\"kelvin\":500}}", LAM_ERANGE,
+            "illuminant.kelvin", NULL);
+    refused(HEAD "\"camera\":{\"kind\":\"gaussian\",\"channels\":[{\"centre_nm\":600,\"fwhm_nm\":"
+                 "80},{\"centre_nm\":900,\"fwhm_nm\":80},{\"centre_nm\":450,\"fwhm_nm\":80}]}}",
+            LAM_ERANGE, "camera.channels[1].centre_nm", NULL);
+    refused(HEAD "\"camera\":{\"kind\":\"gaussian\",\"channels\":[{\"centre_nm\":600,\"fwhm_nm\":"
+                 "80},{\"centre_nm\":500,\"fwhm_nm\":80},{\"centre_nm\":450,\"fwhm_nm\":0}]}}",
+            LAM_ERANGE, "camera.channels[2].fwhm_nm", NULL);
+    refused(HEAD "\"substrate\":{\"stack\":[{\"material\":\"SiO2\",\"thickness_nm\":-5}]}}",
+            LAM_ERANGE, "substrate.stack[0].thickness_nm", NULL);
+    refused(HEAD "\"encoding\":{\"gamma\":9}}", LAM_ERANGE, "encoding.gamma", NULL);
+    refused(HEAD "\"spectrum\":{\"min_nm\":700,\"max_nm\":500}}", LAM_ERANGE, "spectrum", NULL);
+    refused(HEAD "\"material\":\"MoS2\"}", LAM_ERANGE, "key material", "MoS2");
+    refused(HEAD "\"fermi_eV\":\"high\"}", LAM_EFORMAT, "key fermi_eV: expected a number", NULL);
+    refused(HEAD "\"spectrum\":5}", LAM_EFORMAT, "key spectrum: expected an object", NULL);
+    refused("{\"schema\":\"lamina-setup/2\"}", LAM_EFORMAT, "schema", "lamina-setup/1");
+    refused(HEAD "\"fermi_eV\": NaN}", LAM_EFORMAT, "not valid JSON", NULL);
+    refused(HEAD "\"camera\":{\"kind\":\"fisheye\"}}", LAM_EFORMAT, "camera.kind", "gaussian");
+}
+
+static void test_strict_keys(void)
+{
+    /* the misspellings seen in use (issue 10) */
+    refused(HEAD "\"objective\":{\"illumination_NA\":0.5}}", LAM_EFORMAT,
+            "unknown key objective.illumination_NA; did you mean objective.illumination_na?",
+            "case-sensitive");
+    refused(HEAD "\"um_per_pixel\":0.1}", LAM_EFORMAT, "unknown key um_per_pixel",
+            "did you mean um_per_px?");
+    refused(HEAD "\"camera\":{\"kind\":\"gaussian\",\"channels\":[{\"centre_nm\":600,\"fwhm\":80},"
+                 "{},{}]}}",
+            LAM_EFORMAT, "camera.channels[0].fwhm", "did you mean camera.channels[0].fwhm_nm?");
+    refused(HEAD "\"conductivity\":{\"puddles_eV\":0.05}}", LAM_EFORMAT,
+            "did you mean conductivity.puddle_eV?", NULL);
+    refused(HEAD "\"spectrum\":{\"step\":1}}", LAM_EFORMAT, "unknown key spectrum.step", NULL);
+    refused(HEAD "\"lens\":{}}", LAM_EFORMAT, "unknown key lens (known at the top level",
+            "objective");
+    refused(HEAD "\"fermi_eV\":0.1,\"fermi_eV\":0.3}", LAM_EFORMAT, "fermi_eV: given twice", NULL);
+    refused(HEAD "\"illuminant\":{\"kind\":\"led-white\",\"kelvin\":5000}}", LAM_EFORMAT,
+            "illuminant.kelvin: only read with kind blackbody", NULL);
+    refused(HEAD "\"camera\":{\"kind\":\"Gaussian\"}}", LAM_EFORMAT, "did you mean gaussian?",
+            "case-sensitive");
+    refused(HEAD "\"objective\":{\"pupil_weight\":\"sine\"}}", LAM_EFORMAT,
+            "objective.pupil_weight", "did you mean sin?");
+    refused(HEAD "\"encoding\":\"auto\"}", LAM_EFORMAT, "key encoding", "srgb or linear");
+    refused(HEAD "\"substrate\":{\"stack\":[{\"material\":\"SiO2\",\"thickness\":90}]}}",
+            LAM_EFORMAT, "substrate.stack[0].thickness",
+            "did you mean substrate.stack[0].thickness_nm?");
+    lam_setup s;
+    lam_error err;
+    check_int(parse(HEAD "\"_comment\":\"Bench 3\",\"objective\":{\"_note\":\"x\",\"na\":0.5},"
+                         "\"calibration\":{\"anything\":1}}",
+                    &s, &err),
+              LAM_OK, "comments ('_' keys) and the calibration record are accepted (%s)",
+              err.message);
+    check_abs(s.illumination_na, 0.5, 0, "NA alone sets the illumination NA too");
+    lam_setup_clear(&s);
+}
+
+/* Context added to a lower-level message appears once (no overlapping
+ * vsnprintf, issue 11 item 3). */
+static void test_messages_once(void)
+{
+    lam_setup s;
+    lam_error err;
+    parse(HEAD "\"substrate\":{\"base\":\"unobtainium\"}}", &s, &err);
+    check_int(err.status, LAM_EFORMAT, "an unknown material in a file is a file error");
+    check_int(count(err.message, "substrate.base"), 1, "key named once: %s", err.message);
+    check_int(count(err.message, "unobtainium"), 1, "material named once: %s", err.message);
+    lam_setup_clear(&s);
+    lam_scene sc;
+    lam_error_clear(&err);
+    lam_status st = lam_scene_parse("{\"schema\":\"lamina-scene/1\",\"setup\":{\"schema\":"
+                                    "\"lamina-setup/1\",\"objective\":{\"illumination_NA\":0.5}}}",
+                                    ".", &sc, &err);
+    check_int(st, LAM_EFORMAT, "an inline setup with a misspelt key is refused");
+    check_int(count(err.message, "key setup: "), 1, "setup prefix once: %s", err.message);
+    check_int(count(err.message, "illumination_NA"), 1, "key named once: %s", err.message);
+    lam_error_clear(&err);
+    st = lam_scene_parse("{\"schema\":\"lamina-scene/1\",\"flakes\":[{\"layers\":0,"
+                         "\"circle\":[5,5,3]}]}",
+                         ".", &sc, &err);
+    check_int(st, LAM_ERANGE, "a flake of 0 layers is refused");
+    check_str(err.message, "key flakes[0].layers: 0 is outside 1 to 40", "scene message");
+    lam_error_clear(&err);
+    st = lam_scene_parse("{\"schema\":\"lamina-scene/1\",\"flakes\":[{\"layer\":2,"
+                         "\"circle\":[5,5,3]}]}",
+                         ".", &sc, &err);
+    check_true(st == LAM_EFORMAT && strstr(err.message, "did you mean flakes[0].layers?"),
+               "scene objects are strict too: %s", err.message);
+}
+
+static void test_setters(void)
+{
+    lam_setup s;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&s);
+    check_int(lam_setup_set_na(&s, 0.9, &err), LAM_OK, "set NA 0.9");
+    check_true(!lam_setup_is_default(&s, "objective.illumination_na"), "NA recorded as given");
+    check_abs(s.objective_na, 0.9, 0, "objective NA raised to the illumination NA");
+    check_int(lam_setup_set_fermi(&s, 0.35, &err), LAM_OK, "set Fermi level");
+    check_true(!lam_setup_is_default(&s, "fermi_eV") && s.sheet.fermi_ev == 0.35,
+               "Fermi level stored and recorded");
+    check_int(lam_setup_set_um_per_px(&s, 0.2, &err), LAM_OK, "set pixel size");
+    check_true(!lam_setup_is_default(&s, "um_per_px") && s.um_per_px == 0.2,
+               "pixel size stored and recorded");
+    check_int(lam_setup_set_material(&s, "Graphene", &err), LAM_OK, "material in any case");
+    check_true(!lam_setup_is_default(&s, "material"), "material recorded");
+    check_int(lam_setup_set_oxide(&s, 90, &err), LAM_OK, "set oxide");
+    check_true(!lam_setup_is_default(&s, "substrate.stack") && lam_setup_oxide(&s) == 90,
+               "oxide stored and recorded");
+    check_int(lam_setup_set_number(&s, "conductivity.puddle_eV", 0.05, &err), LAM_OK,
+              "set a table number by its key");
+    check_true(!lam_setup_is_default(&s, "conductivity"), "recorded under its object");
+    check_int(lam_setup_set_na(&s, 1.0, &err), LAM_ERANGE, "NA 1 in air refused");
+    check_true(strstr(err.message, "objective.illumination_na") != NULL, "names the key: %s",
+               err.message);
+    check_int(lam_setup_set_fermi(&s, 3, &err), LAM_ERANGE, "Fermi level 3 eV refused");
+    check_str(err.message, "key fermi_eV: 3 is outside -2 to 2", "setter message");
+    check_int(lam_setup_set_um_per_px(&s, 0, &err), LAM_ERANGE, "pixel size 0 refused");
+    check_int(lam_setup_set_oxide(&s, -1, &err), LAM_ERANGE, "negative oxide refused");
+    check_int(lam_setup_set_material(&s, "MoS2", &err), LAM_ERANGE, "MoS2 refused (not modelled)");
+    check_int(lam_setup_set_number(&s, "colour", 1, &err), LAM_EINVAL, "unknown number key");
+    check_abs(s.sheet.fermi_ev, 0.35, 0, "a refused value leaves the setup unchanged");
+    lam_setup_clear(&s);
+}
+
+/* Compare every field the file format carries. */
+static void same_setup(const lam_setup *a, const lam_setup *b, const char *what)
+{
+    int ok = a->objective_na == b->objective_na && a->illumination_na == b->illumination_na &&
+             a->pupil == b->pupil && a->cone_nodes == b->cone_nodes &&
+             !strcmp(a->ambient.name, b->ambient.name) &&
+             a->illuminant.kind == b->illuminant.kind &&
+             a->illuminant.kelvin == b->illuminant.kelvin && a->camera.kind == b->camera.kind &&
+             a->encoding.kind == b->encoding.kind && a->encoding.gamma == b->encoding.gamma &&
+             a->layers == b->layers && !strcmp(a->base.name, b->base.name) &&
+             a->sheet.model == b->sheet.model && a->sheet.exciton == b->sheet.exciton &&
+             a->flake_as_film == b->flake_as_film && !strcmp(a->flake, b->flake);
+    for (int c = 0; c < 3; c++)
+        ok &= fabs(a->camera.centre_nm[c] - b->camera.centre_nm[c]) < 0.05 &&
+              fabs(a->camera.fwhm_nm[c] - b->camera.fwhm_nm[c]) < 0.05;
+    for (size_t i = 0; i < a->layers && i < b->layers; i++)
+        ok &= fabs(a->layer_nm[i] - b->layer_nm[i]) < 0.005 &&
+              !strcmp(a->layer_material[i].name, b->layer_material[i].name);
+    size_t n;
+    const lam_setup_number *num = lam_setup_numbers(&n);
+    for (size_t i = 0; i < n; i++) {
+        double x = *(const double *)((const char *)a + num[i].offset);
+        double y = *(const double *)((const char *)b + num[i].offset);
+        ok &= x == y || (isnan(x) && isnan(y)); /* NaN: uncertainty not given */
+    }
+    check_true(ok, "%s: every field survives the round trip", what);
+}
+
+static void test_round_trip(void)
+{
+    lam_setup a, b;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&a);
+    check_int(lam_setup_load("samples/bench3-setup.json", &a, &err), LAM_OK, "bench3 loads");
+    lam_setup_set_number(&a, "conductivity.puddle_eV", 0.07, NULL);
+    lam_setup_set_number(&a, "spectrum.step_nm", 1, NULL);
+    a.encoding = (lam_transfer){LAM_TRANSFER_GAMMA, 2.2};
+    a.pupil = LAM_PUPIL_SIN;
+    a.cone_nodes = 12;
+    a.sheet.model = LAM_SHEET_UNIVERSAL;
+    a.sheet.exciton = 0;
+    lam_setup_set_oxide(&a, 91.5, NULL);
+    char path[512];
+    snprintf(path, sizeof path, "%s/round.json", check_tmpdir());
+    cJSON *extra = cJSON_CreateObject();
+    cJSON_AddNumberToObject(extra, "rms_after", 0.8);
+    check_int(lam_setup_save(&a, path, extra, &err), LAM_OK, "save (%s)", err.message);
+    cJSON_Delete(extra);
+    lam_setup_default(&b);
+    check_int(lam_setup_load(path, &b, &err), LAM_OK, "the saved setup loads back (%s)",
+              err.message);
+    same_setup(&a, &b, "bench3 with changes");
+    check_int(b.defaulted_count, 0, "a saved setup gives every key");
+    lam_setup_clear(&a);
+    lam_setup_clear(&b);
+    /* the defaults, with the pixel size unknown (written as null) */
+    lam_setup_default(&a);
+    lam_setup_save(&a, path, NULL, &err);
+    lam_setup_default(&b);
+    check_int(lam_setup_load(path, &b, &err), LAM_OK, "saved defaults load back (%s)", err.message);
+    same_setup(&a, &b, "defaults");
+    check_true(lam_setup_is_default(&b, "um_per_px"), "um_per_px null stays unknown");
+    lam_setup_clear(&b);
+}
+
+static void test_stack_file(void)
+{
+    char path[512];
+    snprintf(path, sizeof path, "%s/stack.json", check_tmpdir());
+    FILE *fp = fopen(path, "w");
+    fputs("{\"stack\":[{\"material\":\"hBN\",\"thickness_nm\":20},{\"material\":\"SiO2\","
+          "\"thicknes_nm\":90}],\"base\":\"Si\"}",
+          fp);
+    fclose(fp);
+    lam_setup s;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&s);
+    check_int(lam_setup_load_stack(path, &s, &err), LAM_EFORMAT, "a stack with a misspelt key");
+    check_true(strstr(err.message, "unknown key stack[1].thicknes_nm; did you mean "
+                                   "stack[1].thickness_nm?") &&
+                   strstr(err.file, "stack.json"),
+               "stack keys named without a prefix, file recorded: %s (%s)", err.message, err.file);
+    lam_setup_clear(&s);
+}
+
+/* The hand-written fuzz seeds stay valid inputs (their mutations reach
+ * deep into the readers only from a valid start). */
+static void test_seeds(void)
+{
+    static const struct { const char *path; int scene; } seeds[] = {
+        {"tests/fuzz/corpus/setup/bench3.json", 0}, {"tests/fuzz/corpus/setup/default.json", 0},
+        {"tests/fuzz/corpus/setup/full.json", 0},   {"tests/fuzz/corpus/scene/c11.json", 1},
+        {"tests/fuzz/corpus/scene/tiny.json", 1},   {"tests/fuzz/corpus/scene/inline.json", 1}};
+    for (size_t i = 0; i < sizeof seeds / sizeof seeds[0]; i++) {
+        char *text = NULL;
+        lam_error err;
+        lam_error_clear(&err);
+        lam_status st = lam_text_load(seeds[i].path, 1u << 20, "seed", &text, &err);
+        if (!st && seeds[i].scene) {
+            lam_scene sc;
+            if (!(st = lam_scene_parse(text, "samples", &sc, &err)))
+                lam_scene_clear(&sc);
+        } else if (!st) {
+            lam_setup s;
+            lam_setup_default(&s);
+            st = lam_setup_parse(text, "samples", &s, &err);
+            lam_setup_clear(&s);
+        }
+        free(text);
+        check_int(st, LAM_OK, "seed %s parses (%s)", seeds[i].path, err.message);
+    }
+}
+
+int main(void)
+{
+    check_begin("test_setup");
+    gsl_set_error_handler_off();
+    test_defaults();
+    test_ranges();
+    test_strict_keys();
+    test_messages_once();
+    test_setters();
+    test_round_trip();
+    test_stack_file();
+    test_seeds();
+    return check_summary();
+}
