@@ -6,10 +6,11 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg gsl libcjson zlib
+PKGS     := libpng libjpeg libtiff-4 lcms2 gsl libcjson zlib
 # Debian packages: build, test-only references, outside model reference
-DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev
-DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
+DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libtiff-dev liblcms2-dev \
+             libgsl-dev libcjson-dev
+DEB_TEST  := libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 
 WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
@@ -55,13 +56,12 @@ $(LIB): $(LIB_OBJ)
 $(BIN): $(CLI_OBJ) $(LIB)
 	$(CC) $(LDFLAGS) $(CLI_OBJ) $(LIB) $(LDLIBS) -o $@
 
-# Tests link the harness and the library; test_image also uses Little CMS
-# as an independent sRGB reference.
+# Tests link the harness and the library (Little CMS and libtiff come with
+# the library: the tests also use them to write their own files).
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) \
-	    $(if $(filter image,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) -o $@
 
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 	@mkdir -p $(dir $@)
@@ -122,7 +122,7 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
 FUZZ_SECONDS ?= 60
-FUZZ_TARGETS := image setup scene csv
+FUZZ_TARGETS := image tiff setup scene csv
 FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
     $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
 fuzz: deps
