@@ -22,7 +22,6 @@
 #define TIFF_MAX_SUBIFDS 16       /* SubIFDs looked into for raw data, per IFD */
 #define TIFF_MAX_EXTRA 4          /* extra (alpha) samples accepted after the colours */
 #define TIFF_MAX_PIECE (256u << 20) /* largest strip or tile buffer */
-#define TIFF_RGBA_ROWS 64         /* rows per call of libtiff's RGBA conversion */
 /* A pixel size above this is a print or screen resolution (72-1200 dpi give
  * 21-353 um), not the size of a pixel at the sample: a micrograph for flake
  * searching has pixels of 0.05-5 um (common practice). */
@@ -99,31 +98,40 @@ static void s_unmap(thandle_t h, void *base, toff_t size)
 /* ---- messages ---- */
 
 typedef struct tiff_msgs {
-    char msg[256]; /* libtiff's first error */
+    char msg[256];      /* libtiff's latest error: the one of the call that failed */
+    char jpeg[256];     /* the first warning of libjpeg */
     int errors;
+    int jpeg_warnings;  /* libjpeg pads damaged data with grey and only warns */
 } tiff_msgs;
+
+static void keep_message(char *buf, size_t n, const char *module, const char *fmt, va_list ap)
+{
+    int k = snprintf(buf, n, "%s: ", module ? module : "libtiff");
+    if (k > 0 && (size_t)k < n)
+        vsnprintf(buf + k, n - (size_t)k, fmt, ap);
+}
 
 static int on_tiff_error(TIFF *tif, void *user, const char *module, const char *fmt, va_list ap)
 {
     (void)tif;
     tiff_msgs *m = user;
-    if (m && !m->errors++) {
-        int k = snprintf(m->msg, sizeof m->msg, "%s: ", module ? module : "libtiff");
-        if (k > 0 && (size_t)k < sizeof m->msg)
-            vsnprintf(m->msg + k, sizeof m->msg - (size_t)k, fmt, ap);
+    if (m) {
+        m->errors++;
+        keep_message(m->msg, sizeof m->msg, module, fmt, ap);
     }
     return 1; /* handled: libtiff's global handler (stderr) is not called */
 }
 
+/* Unknown tags and the like are not failures; libjpeg's warnings (corrupt
+ * or truncated JPEG data, which it pads with grey) are, as for JPEG files. */
 static int on_tiff_warning(TIFF *tif, void *user, const char *module, const char *fmt,
                            va_list ap)
 {
     (void)tif;
-    (void)user;
-    (void)module;
-    (void)fmt;
-    (void)ap;
-    return 1; /* unknown tags and the like: not failures, not printed */
+    tiff_msgs *m = user;
+    if (m && module && !strcmp(module, "JPEGLib") && !m->jpeg_warnings++)
+        keep_message(m->jpeg, sizeof m->jpeg, module, fmt, ap);
+    return 1; /* handled: nothing printed */
 }
 
 static lam_status damaged(const tiff_msgs *m, lam_error *err, const char *what)
@@ -204,7 +212,9 @@ static int has_tag(TIFF *tif, uint32_t tag)
     uint32_t count = 0;
     void *data = NULL;
     v.u = 0;
-    return TIFFFieldPassCount(f) ? TIFFGetField(tif, tag, &count, &data) : TIFFGetField(tif, tag, &v);
+    if (TIFFFieldPassCount(f))
+        return TIFFGetField(tif, tag, &count, &data);
+    return TIFFGetField(tif, tag, &v);
 }
 
 /* A raw sensor mosaic (TIFF/EP and DNG tags): what it is, or NULL. */
@@ -529,23 +539,40 @@ static lam_status read_tiles(tiff_job *job, lam_error *err)
     return st;
 }
 
+/* Rows per call of libtiff's RGBA conversion: a whole strip or row of
+ * tiles, since each call decodes every strip or tile it touches (smaller
+ * bands would decode the same strip again and again). */
+static uint32_t rgba_band_rows(tiff_job *job)
+{
+    uint32_t rows = 0;
+    if (TIFFIsTiled(job->tif))
+        TIFFGetField(job->tif, TIFFTAG_TILELENGTH, &rows);
+    else
+        TIFFGetFieldDefaulted(job->tif, TIFFTAG_ROWSPERSTRIP, &rows);
+    uint32_t most = (uint32_t)(TIFF_MAX_PIECE / 4u / job->L.w);
+    if (rows == 0 || rows > job->L.h)
+        rows = job->L.h;
+    return rows > most ? (most ? most : 1) : rows;
+}
+
 /* 8-bit YCbCr: libtiff's RGBA conversion, top-down, a band of rows at a time. */
 static lam_status read_rgba(tiff_job *job, lam_error *err)
 {
     char emsg[1024] = "";
     TIFFRGBAImage ri;
-    if (!TIFFRGBAImageOK(job->tif, emsg) || !TIFFRGBAImageBegin(&ri, job->tif, 0, emsg))
+    if (!TIFFRGBAImageOK(job->tif, emsg) || !TIFFRGBAImageBegin(&ri, job->tif, 1, emsg))
         return lam_error_set(err, LAM_EFORMAT, "YCbCr TIFF that libtiff cannot convert: %s", emsg);
     ri.req_orientation = ORIENTATION_TOPLEFT;
-    size_t w = job->L.w;
-    uint32_t *raster = malloc(w * TIFF_RGBA_ROWS * sizeof *raster);
+    size_t w = job->L.w, band = rgba_band_rows(job);
+    uint32_t *raster = malloc(w * band * sizeof *raster);
     job->bytes = 1;
     job->bspp = 3;
-    job->band = malloc(w * TIFF_RGBA_ROWS * 3);
-    lam_status st = raster && job->band ? LAM_OK
-                                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate TIFF buffers");
-    for (uint32_t y0 = 0; !st && y0 < job->L.h; y0 += TIFF_RGBA_ROWS) {
-        uint32_t rows = job->L.h - y0 < TIFF_RGBA_ROWS ? job->L.h - y0 : TIFF_RGBA_ROWS;
+    job->band = malloc(w * band * 3);
+    lam_status st = LAM_OK;
+    if (!raster || !job->band)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate TIFF buffers");
+    for (uint32_t y0 = 0; !st && y0 < job->L.h; y0 += (uint32_t)band) {
+        uint32_t rows = job->L.h - y0 < band ? job->L.h - y0 : (uint32_t)band;
         ri.row_offset = (int)y0;
         ri.col_offset = 0;
         if (!TIFFRGBAImageGet(&ri, raster, (uint32_t)w, rows)) {
@@ -579,6 +606,8 @@ lam_status lam__tiff_load(FILE *fp, const char *path, const lam_load_options *op
     if (!st)
         st = job.L.rgba ? read_rgba(&job, err)
              : TIFFIsTiled(job.tif) ? read_tiles(&job, err) : read_strips(&job, err);
+    if (!st && job.msgs.jpeg_warnings)
+        st = lam_error_set(err, LAM_EFORMAT, "damaged TIFF (JPEG data): %s", job.msgs.jpeg);
     if (!st) {
         *out = job.img;
         job.img = NULL;

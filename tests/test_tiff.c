@@ -619,8 +619,8 @@ static void test_ycbcr_jpeg(void)
     opt.transfer.kind = LAM_TRANSFER_LINEAR;
     lam_image *img = NULL;
     lam_error err;
-    check_int(load(tmp("ycc.tif"), &opt, &img, &err), LAM_OK, "JPEG-compressed YCbCr TIFF loads (%s)",
-              err.message);
+    check_int(load(tmp("ycc.tif"), &opt, &img, &err), LAM_OK,
+              "JPEG-compressed YCbCr TIFF loads (%s)", err.message);
     int worst = 0;
     for (uint32_t y = 0; img && y < h; y++)
         for (uint32_t x = 0; x < w; x++) {
@@ -632,11 +632,41 @@ static void test_ycbcr_jpeg(void)
     check_true(img && worst <= 6, "YCbCr decoded to RGB in top-down order (worst %d levels, "
                "JPEG quality 95)", worst);
     lam_image_free(img);
+
+    /* the same strip cut in half: libjpeg only warns and pads with grey,
+     * lamina refuses (as for a truncated JPEG file) */
+    TIFF *in = TIFFOpen(tmp("ycc.tif"), "r");
+    TIFF *out = TIFFOpen(tmp("ycc-cut.tif"), "w");
+    tmsize_t raw_n = TIFFRawStripSize(in, 0);
+    unsigned char *raw = malloc((size_t)raw_n);
+    raw_n = TIFFReadRawStrip(in, 0, raw, raw_n);
+    uint32_t tn = 0;
+    void *tables = NULL;
+    TIFFGetField(in, TIFFTAG_JPEGTABLES, &tn, &tables);
+    TIFFSetField(out, TIFFTAG_IMAGEWIDTH, w);
+    TIFFSetField(out, TIFFTAG_IMAGELENGTH, h);
+    TIFFSetField(out, TIFFTAG_BITSPERSAMPLE, 8);
+    TIFFSetField(out, TIFFTAG_SAMPLESPERPIXEL, 3);
+    TIFFSetField(out, TIFFTAG_COMPRESSION, COMPRESSION_JPEG);
+    TIFFSetField(out, TIFFTAG_PHOTOMETRIC, PHOTOMETRIC_YCBCR);
+    TIFFSetField(out, TIFFTAG_ROWSPERSTRIP, 16u);
+    if (tn)
+        TIFFSetField(out, TIFFTAG_JPEGTABLES, tn, tables);
+    TIFFWriteRawStrip(out, 0, raw, raw_n / 2);
+    TIFFClose(out);
+    TIFFClose(in);
+    free(raw);
+    check_int(load(tmp("ycc-cut.tif"), &opt, &img, &err), LAM_EFORMAT,
+              "JPEG strip cut in half: refused");
+    check_true(strstr(err.message, "damaged TIFF (JPEG data)") != NULL, "says so: %s",
+               err.message);
+    lam_image_free(img);
 }
 
 int main(void)
 {
     check_begin("test_tiff");
+    TIFFSetWarningHandler(NULL); /* the writer's notes (legacy deflate id) are expected */
     test_layouts();
     test_kinds_and_pages();
     test_refusals();
