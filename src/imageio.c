@@ -33,7 +33,9 @@ static lam_status refuse(lam_file_kind kind, const unsigned char *head, size_t n
         return lam_error_set(err, LAM_EFORMAT,
                              "not a PNG, JPEG or TIFF image (unrecognised first bytes)");
     const char *name = lam_file_kind_name(kind);
-    const char *noun = kind == LAM_FILE_PDF ? " document" : kind == LAM_FILE_ARCHIVE ? "" : " image";
+    const char *noun = kind == LAM_FILE_PDF       ? " document"
+                       : kind == LAM_FILE_ARCHIVE ? ""
+                                                  : " image";
     return lam_error_set(err, LAM_EFORMAT, "%s %s%s: lamina reads PNG, JPEG and TIFF",
                          strchr("AEIOU", name[0]) ? "an" : "a", name, noun);
 }

@@ -294,7 +294,8 @@ static void test_png_chunks(void)
     check_int(lam_image_transfer_conflict(img, &user), 1,
               "user sRGB against a gAMA 2.2 file: a conflict (local exponents differ)");
     user = (lam_transfer){LAM_TRANSFER_GAMMA, 2.2};
-    check_int(lam_image_transfer_conflict(img, &user), 0, "user gamma 2.2 against gAMA 0.45455: none");
+    check_int(lam_image_transfer_conflict(img, &user), 0,
+              "user gamma 2.2 against gAMA 0.45455: none");
     lam_image_free(img);
 
     /* the user's setting wins, and both are recorded */
@@ -311,8 +312,10 @@ static void test_png_chunks(void)
     write_png(tmp("srgb16.png"), 16, 0, &m);
     img = load(tmp("srgb16.png"), NULL, &st, &err);
     check_abs(worst_vs(img, f_srgb, 3), 0, 1e-6,
-              "16-bit PNG with an sRGB chunk: sRGB (IEC 61966-2-1), metadata over the 16-bit default");
-    check_str(img ? img->file_colour : "", "sRGB chunk", "sRGB chunk named (gAMA beside it ignored)");
+              "16-bit PNG with an sRGB chunk: sRGB (IEC 61966-2-1), "
+              "metadata over the 16-bit default");
+    check_str(img ? img->file_colour : "", "sRGB chunk",
+              "sRGB chunk named (gAMA beside it ignored)");
     user = (lam_transfer){LAM_TRANSFER_SRGB, 0};
     check_int(lam_image_transfer_conflict(img, &user), 0, "user sRGB against an sRGB chunk: none");
     lam_image_free(img);
@@ -413,8 +416,8 @@ static void test_unusable_profiles(void)
     for (int k = 0; k < 2; k++) {
         lam_image *img = load(tmp(files[k]), NULL, &st, &err);
         check_int(st, LAM_EFORMAT, "%s: LUT-based profile refused", files[k]);
-        check_true(strstr(err.message, "'Bench 3 camera LUT'") && strstr(err.message, "LUT-based") &&
-                       strstr(err.message, "encoding"),
+        check_true(strstr(err.message, "'Bench 3 camera LUT'") &&
+                       strstr(err.message, "LUT-based") && strstr(err.message, "encoding"),
                    "%s: message names the profile and the way out: %s", files[k], err.message);
         lam_image_free(img);
         lam_transfer user = {LAM_TRANSFER_SRGB, 0};

@@ -65,7 +65,7 @@ typedef enum lam_file_kind {
     LAM_FILE_PSD,
     LAM_FILE_EXR,
     LAM_FILE_PDF,
-    LAM_FILE_CAMERA_RAW, /* raw formats recognisable by their first bytes (CR2, CR3, ORF, RW2, RAF) */
+    LAM_FILE_CAMERA_RAW, /* raw formats known by their first bytes (CR2, CR3, ORF, RW2, RAF) */
     LAM_FILE_ARCHIVE     /* zip or gzip */
 } lam_file_kind;
 

@@ -110,11 +110,12 @@ static int add_folder(cli_inputs *in, const char *dir, folder_scan *fs, int dept
     char **names = NULL;
     size_t n = 0;
     int rc = list_sorted(dir, &names, &n);
-    if (rc) {
-        fprintf(stderr, rc == -1 ? "lamina: %s: cannot read the folder\n" : "lamina: out of memory\n",
-                dir);
+    if (rc == -1)
+        fprintf(stderr, "lamina: %s: cannot read the folder\n", dir);
+    else if (rc)
+        fprintf(stderr, "lamina: out of memory\n");
+    if (rc)
         return CLI_EFILE;
-    }
     size_t dl = strlen(dir);
     int trim = dl > 1 && dir[dl - 1] == '/';
     for (size_t i = 0; i < n && !rc; i++) {
@@ -145,8 +146,9 @@ static int add_top_folder(cli_inputs *in, const char *dir, int recursive)
     if (rc || in->count > before)
         return rc;
     if (!recursive && fs.subfolders)
-        return cli_usage_error("analyze", "%s holds no image files (%zu subfolder%s; add --recursive)",
-                               dir, fs.subfolders, fs.subfolders == 1 ? "" : "s");
+        return cli_usage_error("analyze",
+                               "%s holds no image files (%zu subfolder%s; add --recursive)", dir,
+                               fs.subfolders, fs.subfolders == 1 ? "" : "s");
     return cli_usage_error("analyze", "%s holds no image files (.png, .jpg, .jpeg, .tif, .tiff)%s",
                            dir, recursive ? ", nor do its subfolders" : "");
 }
