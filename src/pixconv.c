@@ -32,29 +32,41 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t)
     pc->lut[1] = pc->lut[2] = pc->lut[0];
 }
 
+/* One loop per sample size, so that the inner loop has no branch on it. */
+#define CONVERT_ROW(TYPE)                                                                  \
+    do {                                                                                   \
+        const TYPE *r = row;                                                               \
+        for (size_t x = 0; x < w; x++) {                                                   \
+            const TYPE *p = r + x * stride;                                                \
+            unsigned v0 = p[0], v1 = p[o1], v2 = p[o2];                                    \
+            img->plane[0][base + x] = pc->lut[0][v0];                                      \
+            img->plane[1][base + x] = pc->lut[1][v1];                                      \
+            img->plane[2][base + x] = pc->lut[2][v2];                                      \
+            int clip = v0 >= top || v1 >= top || v2 >= top;                                \
+            img->clipped[base + x] = (uint8_t)clip;                                        \
+            clipped += (size_t)clip;                                                       \
+            if (d8) {                                                                      \
+                uint8_t *d = d8 + (base + x) * 3;                                          \
+                d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;                \
+            }                                                                              \
+        }                                                                                  \
+    } while (0)
+
 void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
                       size_t stride)
 {
     size_t w = img->width, base = y * w, clipped = 0;
-    const uint8_t *r8 = row;
-    const uint16_t *r16 = row;
-    size_t off[3] = {0, pc->chans == 3 ? 1u : 0u, pc->chans == 3 ? 2u : 0u};
+    size_t o1 = pc->chans == 3 ? 1 : 0, o2 = pc->chans == 3 ? 2 : 0; /* grey: replicated */
+    unsigned top = pc->clip_code;
     uint8_t *d8 = pc->depth == 8 ? img->display8 : NULL;
-    for (size_t x = 0; x < w; x++) {
-        int clip = 0;
-        for (int c = 0; c < 3; c++) {
-            size_t k = x * stride + off[c];
-            unsigned v = pc->depth == 8 ? r8[k] : r16[k];
-            img->plane[c][base + x] = pc->lut[c][v];
-            clip |= v >= pc->clip_code;
-            if (d8)
-                d8[(base + x) * 3 + (size_t)c] = (uint8_t)v;
-        }
-        img->clipped[base + x] = (uint8_t)clip;
-        clipped += (size_t)clip;
-    }
+    if (pc->depth == 8)
+        CONVERT_ROW(uint8_t);
+    else
+        CONVERT_ROW(uint16_t);
     img->clipped_count += clipped;
 }
+
+#undef CONVERT_ROW
 
 typedef struct rgb8_ctx {
     const lam__pixconv *pc;
