@@ -6,10 +6,11 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg gsl libcjson zlib
+PKGS     := libpng libjpeg libtiff-4 lcms2 gsl libcjson zlib
 # Debian packages: build, test-only references, outside model reference
-DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev
-DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data libtiff-dev
+DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libtiff-dev liblcms2-dev \
+             libgsl-dev libcjson-dev
+DEB_TEST  := libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 
 WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
@@ -93,7 +94,7 @@ $(BUILD)/lamina.pc: Makefile include/lamina/version.h
 
 # The independent synthetic-micrograph generator (tests/synth/, no lamina
 # code): its objects live in $(BUILD)/synth/ so that $(BUILD)/tests/synth can
-# be the command; it links libtiff (tests only).
+# be the command; it links libpng, libjpeg and libtiff itself.
 TEST_PKGS := libtiff-4
 SYNTH_SRC := $(filter-out tests/synth/synth_main.c,$(wildcard tests/synth/*.c))
 SYNTH_OBJ := $(SYNTH_SRC:tests/synth/%.c=$(BUILD)/synth/%.o)
@@ -107,8 +108,9 @@ $(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $(filter %.c %.o,$^) $(SYNTH_LIBS) -o $@
 
-# Tests link the harness, the generator and the library; test_image and
-# test_synth also use Little CMS as an independent sRGB reference.
+# Tests link the harness, the generator and the library (Little CMS and
+# libtiff come with the library: the tests also use them to write their own
+# files and as an independent sRGB reference).
 # tests/robust/ scores the analysis on the generator's images.
 ROBUST_OBJ := $(BUILD)/tests/robust/robust.o
 $(BUILD)/tests/robust/%.o: tests/robust/%.c
@@ -120,8 +122,7 @@ TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/f
                 $(SYNTH_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) $(SYNTH_LIBS) \
-	    $(if $(filter image synth,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 	@mkdir -p $(dir $@)
@@ -182,7 +183,7 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
 FUZZ_SECONDS ?= 60
-FUZZ_TARGETS := image setup scene csv labels
+FUZZ_TARGETS := image tiff setup scene csv labels
 FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
     $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
 fuzz: deps

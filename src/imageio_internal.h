@@ -1,4 +1,8 @@
-/* imageio_internal.h - shared between the image loaders (not public). */
+/* imageio_internal.h - the format loaders that imageio.c dispatches to (not
+ * public). Each reads from the stream's current position, checks the size
+ * against opt->max_pixels before allocating pixels, converts through
+ * pixconv.h with the curve colourmeta.h chooses, and writes one message
+ * into err on failure (imageio.c adds the file name). */
 #ifndef LAMINA_IMAGEIO_INTERNAL_H
 #define LAMINA_IMAGEIO_INTERNAL_H
 
@@ -9,12 +13,8 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
                          lam_image **out, lam_error *err);
 lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *opt,
                           lam_image **out, lam_error *err);
-
-/* Fill lut[0..levels-1] with linear values for each code value. */
-void lam__transfer_lut(const lam_transfer *t, float *lut, size_t levels);
-
-/* Fill the float planes and clip mask from img->display8 (8-bit RGB codes)
- * through a 256-entry table, on all cores. */
-void lam__convert_rgb8(lam_image *img, const float *lut);
+/* TIFF needs a seekable stream. */
+lam_status lam__tiff_load(FILE *fp, const char *path, const lam_load_options *opt,
+                          lam_image **out, lam_error *err);
 
 #endif

@@ -1,7 +1,10 @@
 /* jpeg_read.c - JPEG decoding with libjpeg-turbo (grey and YCbCr/RGB;
  * CMYK/YCCK refused). A truncated stream, which libjpeg only warns about
- * and pads with grey, is treated as damage. */
+ * and pads with grey, is treated as damage. An ICC profile in APP2 markers
+ * chooses the transfer curve (colourmeta.h). */
 #include "imageio_internal.h"
+#include "colourmeta.h"
+#include "pixconv.h"
 
 #include <jpeglib.h>
 #include <setjmp.h>
@@ -28,120 +31,125 @@ static void on_jpeg_message(j_common_ptr cinfo, int level)
         on_jpeg_error(cinfo);
 }
 
+/* Everything that must survive a longjmp lives here, on the heap. */
 typedef struct jpeg_job {
+    jpeg_ctx ctx;
     struct jpeg_decompress_struct cinfo;
+    int created;
     lam_image *img;
+    lam__pixconv pc;
     unsigned char *row;
+    JOCTET *icc;
 } jpeg_job;
 
-lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *opt,
-                          lam_image **out, lam_error *err)
+static void jpeg_job_free(jpeg_job *job)
 {
-    (void)path;
-    static jpeg_job zero_job;
-    jpeg_ctx ctx;
-    jpeg_job *job = malloc(sizeof *job);
-    if (!job)
-        return lam_error_set(err, LAM_ENOMEM, "cannot create a JPEG decoder");
-    *job = zero_job;
-    memset(&ctx, 0, sizeof ctx);
-    job->cinfo.err = jpeg_std_error(&ctx.mgr);
-    ctx.mgr.error_exit = on_jpeg_error;
-    ctx.mgr.emit_message = on_jpeg_message;
-    if (setjmp(ctx.jump)) {
+    if (job->created)
         jpeg_destroy_decompress(&job->cinfo);
-        lam_image_free(job->img);
-        free(job->row);
-        free(job);
-        return lam_error_set(err, LAM_EFORMAT, "damaged JPEG: %s", ctx.msg);
-    }
-    jpeg_create_decompress(&job->cinfo);
-    jpeg_stdio_src(&job->cinfo, fp);
-    jpeg_read_header(&job->cinfo, TRUE);
+    lam_image_free(job->img);
+    lam__pixconv_clear(&job->pc);
+    free(job->row);
+    free(job->icc);
+    free(job);
+}
 
-    lam_status st = LAM_OK;
+static lam_status check_header(jpeg_job *job, const lam_load_options *opt, lam_error *err)
+{
     J_COLOR_SPACE cs = job->cinfo.jpeg_color_space;
-    if (cs == JCS_CMYK || cs == JCS_YCCK) {
-        st = lam_error_set(err, LAM_EFORMAT,
-                           "CMYK JPEG is not supported (save the image as RGB)");
-    } else {
-        st = lam_image_check_size(job->cinfo.image_width, job->cinfo.image_height,
-                                  opt->max_pixels, "JPEG image", err);
+    if (cs == JCS_CMYK || cs == JCS_YCCK)
+        return lam_error_set(err, LAM_EFORMAT,
+                             "CMYK JPEG is not supported (save the image as RGB)");
+    return lam_image_check_size(job->cinfo.image_width, job->cinfo.image_height,
+                                opt->max_pixels, "JPEG image", err);
+}
+
+/* Start decoding, allocate the image and choose its transfer curve. */
+static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *err)
+{
+    int grey = job->cinfo.jpeg_color_space == JCS_GRAYSCALE;
+    lam__colour_meta meta;
+    memset(&meta, 0, sizeof meta);
+    unsigned int icc_len = 0;
+    if (jpeg_read_icc_profile(&job->cinfo, &job->icc, &icc_len) && job->icc) {
+        meta.kind = LAM__META_ICC;
+        meta.icc = job->icc;
+        meta.icc_len = icc_len;
     }
-    if (st) {
-        jpeg_destroy_decompress(&job->cinfo);
-        free(job);
-        return st;
-    }
-    int grey = cs == JCS_GRAYSCALE;
     job->cinfo.out_color_space = grey ? JCS_GRAYSCALE : JCS_RGB;
     job->cinfo.dct_method = JDCT_ISLOW; /* the accurate default, as djpeg uses */
     jpeg_start_decompress(&job->cinfo);
     size_t w = job->cinfo.output_width, h = job->cinfo.output_height;
-    size_t chans = (size_t)job->cinfo.output_components;
-    st = lam_image_alloc(w, h, &job->img, err);
-    if (!st) {
-        job->row = malloc(w * chans);
-        if (!job->row)
-            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a JPEG row");
-    }
-    if (st) {
-        jpeg_destroy_decompress(&job->cinfo);
-        lam_image_free(job->img);
-        free(job);
+    int chans = job->cinfo.output_components;
+    lam_status st;
+    if ((st = lam_image_alloc(w, h, &job->img, err)) ||
+        (st = lam__pixconv_init(&job->pc, 8, chans, err)))
         return st;
-    }
-    lam_transfer tr = opt->transfer;
-    if (tr.kind == LAM_TRANSFER_AUTO)
-        tr.kind = LAM_TRANSFER_SRGB;
-    float lut[256];
-    lam__transfer_lut(&tr, lut, 256);
     lam_image *img = job->img;
-    if (opt->keep_display8 && !(img->display8 = malloc(w * h * 3))) {
-        jpeg_destroy_decompress(&job->cinfo);
-        lam_image_free(job->img);
-        free(job->row);
-        free(job);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
-    }
     img->bit_depth = 8;
-    img->source_channels = (int)chans;
+    img->source_channels = img->channels = chans;
     img->kind = LAM_FILE_JPEG;
-    img->transfer = tr;
-    if (img->display8 && !grey) {
+    if ((st = lam__colour_apply(&meta, &opt->transfer, &job->pc, img, err)))
+        return st;
+    if (!(job->row = malloc(w * (size_t)chans)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a JPEG row");
+    if (opt->keep_display8 && !(img->display8 = malloc(w * h * 3)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
+    return LAM_OK;
+}
+
+static lam_status read_pixels(jpeg_job *job, lam_error *err)
+{
+    lam_image *img = job->img;
+    size_t w = img->width, h = img->height;
+    if (img->display8 && job->pc.chans == 3) {
         /* decode straight into the kept 8-bit copy, then convert the rows
          * to linear planes on all cores (decoding itself is sequential) */
         while (job->cinfo.output_scanline < h) {
             JSAMPROW rp = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
             jpeg_read_scanlines(&job->cinfo, &rp, 1);
         }
-        lam__convert_rgb8(img, lut);
-    } else {
-        while (job->cinfo.output_scanline < h) {
-            size_t y = job->cinfo.output_scanline;
-            JSAMPROW rp = job->row;
-            jpeg_read_scanlines(&job->cinfo, &rp, 1);
-            size_t base = y * w;
-            for (size_t x = 0; x < w; x++) {
-                const unsigned char *p = job->row + x * chans;
-                unsigned v0 = p[0], v1 = grey ? p[0] : p[1], v2 = grey ? p[0] : p[2];
-                img->plane[0][base + x] = lut[v0];
-                img->plane[1][base + x] = lut[v1];
-                img->plane[2][base + x] = lut[v2];
-                if (img->display8) {
-                    uint8_t *d = img->display8 + (base + x) * 3;
-                    d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;
-                }
-                int clip = v0 == 255 || v1 == 255 || v2 == 255;
-                img->clipped[base + x] = (uint8_t)clip;
-                img->clipped_count += (size_t)clip;
-            }
-        }
+        jpeg_finish_decompress(&job->cinfo);
+        return lam__pixconv_rgb8(&job->pc, img, err);
+    }
+    while (job->cinfo.output_scanline < h) {
+        size_t y = job->cinfo.output_scanline;
+        JSAMPROW rp = job->row;
+        jpeg_read_scanlines(&job->cinfo, &rp, 1);
+        lam__pixconv_row(&job->pc, img, y, job->row, (size_t)job->pc.chans);
     }
     jpeg_finish_decompress(&job->cinfo);
-    jpeg_destroy_decompress(&job->cinfo);
-    free(job->row);
-    *out = img;
-    free(job);
     return LAM_OK;
+}
+
+lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *opt,
+                          lam_image **out, lam_error *err)
+{
+    (void)path;
+    jpeg_job *job = calloc(1, sizeof *job);
+    if (!job)
+        return lam_error_set(err, LAM_ENOMEM, "cannot create a JPEG decoder");
+    job->cinfo.err = jpeg_std_error(&job->ctx.mgr);
+    job->ctx.mgr.error_exit = on_jpeg_error;
+    job->ctx.mgr.emit_message = on_jpeg_message;
+    if (setjmp(job->ctx.jump)) {
+        lam_status st = lam_error_set(err, LAM_EFORMAT, "damaged JPEG: %s", job->ctx.msg);
+        jpeg_job_free(job);
+        return st;
+    }
+    jpeg_create_decompress(&job->cinfo);
+    job->created = 1;
+    jpeg_stdio_src(&job->cinfo, fp);
+    jpeg_save_markers(&job->cinfo, JPEG_APP0 + 2, 0xffff); /* ICC profile chunks */
+    jpeg_read_header(&job->cinfo, TRUE);
+    lam_status st = check_header(job, opt, err);
+    if (!st)
+        st = start(job, opt, err);
+    if (!st)
+        st = read_pixels(job, err);
+    if (!st) {
+        *out = job->img;
+        job->img = NULL;
+    }
+    jpeg_job_free(job);
+    return st;
 }

@@ -8,23 +8,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-typedef struct png_wctx {
-    char msg[200];
-} png_wctx;
-
-static void on_png_werror(png_structp png, png_const_charp msg)
-{
-    png_wctx *ctx = png_get_error_ptr(png);
-    snprintf(ctx->msg, sizeof ctx->msg, "%s", msg);
-    png_longjmp(png, 1);
-}
-
-static void on_png_wwarning(png_structp png, png_const_charp msg)
-{
-    (void)png;
-    (void)msg;
-}
-
 /* rows are written from 'pixels' with 'rowbytes' stride; bit_depth 8/16;
  * 16-bit samples are host uint16 and swapped by libpng. */
 static lam_status save_png(const char *path, const void *pixels, size_t width,
@@ -37,9 +20,9 @@ static lam_status save_png(const char *path, const void *pixels, size_t width,
     lam_status st = lam_outfile_open(&of, path, err);
     if (st)
         return st;
-    png_wctx ctx = {""};
-    png_structp png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &ctx, on_png_werror,
-                                              on_png_wwarning);
+    lam__png_errctx ctx = {""};
+    png_structp png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &ctx, lam__png_on_error,
+                                              lam__png_on_warning);
     png_infop info = png ? png_create_info_struct(png) : NULL;
     if (!png || !info) {
         png_destroy_write_struct(&png, &info);

@@ -91,6 +91,37 @@ static int write_cmyk_jpeg(const char *path)
     return 0;
 }
 
+/* First bytes of formats lamina does not read, from each format's
+ * specification (magic numbers; "from memory" for the camera raw makers'
+ * own headers), padded with zeros to 32 bytes. */
+static const struct {
+    const char *file, *head;
+    size_t len;
+    const char *words;
+} foreign[] = {
+    {"a.bmp", "BM\066\0\0\0\0\0\0\0\066\0\0\0", 14, "a BMP image: lamina reads PNG, JPEG and TIFF"},
+    {"a.gif", "GIF89a\001\0\001\0", 10, "a GIF image"},
+    {"a.webp", "RIFF\044\0\0\0WEBPVP8 ", 16, "a WebP image"},
+    {"a.jp2", "\0\0\0\014jP  \r\n\207\n", 12, "a JPEG 2000 image"},
+    {"a.j2k", "\377\117\377\121", 4, "a JPEG 2000 image"},
+    {"a.jxl", "\377\012", 2, "a JPEG XL image"},
+    {"a.heic", "\0\0\0\030ftypheic", 12, "a HEIF image"},
+    {"a.avif", "\0\0\0\034ftypavif", 12, "an AVIF image"},
+    {"a.pgm", "P5\n16 16\n255\n", 13, "a PNM (PBM/PGM/PPM) image"},
+    {"a.fits", "SIMPLE  =                    T", 30, "a FITS image"},
+    {"a.psd", "8BPS\0\001", 6, "a Photoshop PSD image"},
+    {"a.exr", "\166\057\061\001", 4, "an OpenEXR image"},
+    {"a.pdf", "%PDF-1.7\n", 9, "a PDF document"},
+    {"a.zip", "PK\003\004", 4, "a zip or gzip archive: lamina"},
+    {"a.cr2", "II*\0\020\0\0\0CR\002\0", 12,
+     "a camera raw file (Canon CR2): convert it to a 16-bit TIFF first"},
+    {"a.cr3", "\0\0\0\030ftypcrx ", 12, "a camera raw file (Canon CR3)"},
+    {"a.orf", "IIRO\010\0\0\0", 8, "a camera raw file (Olympus ORF)"},
+    {"a.rw2", "IIU\0\030\0\0\0", 8, "a camera raw file (Panasonic RW2)"},
+    {"a.raf", "FUJIFILMCCD-RAW 0201", 20, "a camera raw file (Fujifilm RAF)"},
+    {"a.txt", "hello, world", 12, "not a PNG, JPEG or TIFF image"},
+};
+
 static lam_status load(const char *path, lam_image **img, lam_error *err)
 {
     lam_error_clear(err);
@@ -188,6 +219,18 @@ int main(void)
         fclose(fp);
         check_int(load(tmp("badcrc.png"), &img, &err), LAM_EFORMAT, "bad CRC refused: %s",
                   err.message);
+    }
+
+    for (size_t i = 0; i < sizeof foreign / sizeof foreign[0]; i++) {
+        unsigned char head[32] = {0};
+        memcpy(head, foreign[i].head, foreign[i].len);
+        fp = fopen(tmp(foreign[i].file), "wb");
+        fwrite(head, 1, sizeof head, fp);
+        fclose(fp);
+        lam_status st = load(tmp(foreign[i].file), &img, &err);
+        check_true(st == LAM_EFORMAT && strstr(err.message, foreign[i].words),
+                   "%s refused, its kind named: %s", foreign[i].file, err.message);
+        lam_image_free(img);
     }
     return check_summary();
 }

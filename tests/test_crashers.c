@@ -42,8 +42,8 @@ int main(void)
     check_begin("test_crashers");
     gsl_set_error_handler_off();
     static const struct { const char *name; int (*fn)(const uint8_t *, size_t); } t[] = {
-        {"image", fuzz_image}, {"setup", fuzz_setup}, {"scene", fuzz_scene}, {"csv", fuzz_csv},
-        {"labels", fuzz_labels}};
+        {"image", fuzz_image}, {"tiff", fuzz_tiff}, {"setup", fuzz_setup},
+        {"scene", fuzz_scene}, {"csv", fuzz_csv}, {"labels", fuzz_labels}};
     for (size_t i = 0; i < sizeof t / sizeof t[0]; i++) {
         char dir[256];
         snprintf(dir, sizeof dir, "tests/crashers/%s", t[i].name);

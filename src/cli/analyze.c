@@ -41,6 +41,7 @@ static void analyze_help(FILE *out)
           "  --fermi EV            Fermi level of the ladder (default from the setup)\n"
           "  --encoding E          srgb, linear or a gamma value (default: from the file)\n"
           "  --list FILE           also analyse the images listed in FILE (one path a line)\n"
+          "  --recursive           also search the subfolders of each FOLDER\n"
           "  --positions FILE.csv  file,x_um,y_um[,rotation_deg]: stage position of each tile\n"
           "  --resume              skip images whose results exist for the same input and setup\n"
           "  --shard I/N           analyse only the I-th of N deterministic parts of the inputs\n"
@@ -323,6 +324,7 @@ static int run_analyze(int argc, char **argv)
         {"max-megapixels", required_argument, 0, 'm'}, {"quiet", no_argument, 0, 'q'},
         {"verbose", no_argument, 0, 'v'},         {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
         {"resume", no_argument, 0, 'R'},          {"shard", required_argument, 0, 'S'},
+        {"recursive", no_argument, 0, 'D'},
         {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
@@ -331,7 +333,7 @@ static int run_analyze(int argc, char **argv)
     long threads = (long)lam_cpu_count(), K = 6;
     double area = -1;
     size_t shard = 0, shards = 0;
-    int c, r, resume = 0;
+    int c, r, resume = 0, recursive = 0;
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
@@ -362,6 +364,7 @@ static int run_analyze(int argc, char **argv)
         case 'L': list = optarg; break;
         case 'P': positions = optarg; break;
         case 'R': resume = 1; break;
+        case 'D': recursive = 1; break;
         case 'S':
             if (parse_shard(optarg, &shard, &shards))
                 return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
@@ -375,7 +378,7 @@ static int run_analyze(int argc, char **argv)
         }
     }
     cli_inputs in;
-    int rc = cli_inputs_collect(&in, argc - optind, argv + optind, list);
+    int rc = cli_inputs_collect(&in, argc - optind, argv + optind, list, recursive);
     if (rc)
         return rc;
     if (shards)

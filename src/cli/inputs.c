@@ -31,10 +31,23 @@ static int add(cli_inputs *in, const char *path)
     return 0;
 }
 
+/* The extensions a folder is searched for (files given by name are read
+ * whatever they are called: the content decides). */
 static int is_image_name(const char *name)
 {
+    static const char *const ext[] = {".png", ".jpg", ".jpeg", ".tif", ".tiff"};
     const char *dot = strrchr(name, '.');
-    return dot && (!strcasecmp(dot, ".png") || !strcasecmp(dot, ".jpg") || !strcasecmp(dot, ".jpeg"));
+    for (size_t i = 0; dot && i < sizeof ext / sizeof ext[0]; i++)
+        if (!strcasecmp(dot, ext[i]))
+            return 1;
+    return 0;
+}
+
+/* lamina's own outputs, which a folder of results may hold. */
+static int is_result_name(const char *name)
+{
+    return strstr(name, ".annotated.") || strstr(name, ".layers.") || strstr(name, ".truth.") ||
+           !strcmp(name, "contact-sheet.png");
 }
 
 static int cmp_str(const void *a, const void *b)
@@ -42,32 +55,103 @@ static int cmp_str(const void *a, const void *b)
     return strcmp(*(char *const *)a, *(char *const *)b);
 }
 
-static int add_folder(cli_inputs *in, const char *dir)
+static void free_names(char **names, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        free(names[i]);
+    free(names);
+}
+
+/* The entries of a folder except hidden ones, sorted (byte order), so a
+ * scan is the same on every machine. */
+static int list_sorted(const char *dir, char ***out, size_t *count)
 {
     DIR *d = opendir(dir);
-    if (!d) {
-        fprintf(stderr, "lamina: %s: cannot read the folder\n", dir);
-        return CLI_EFILE;
-    }
-    size_t first = in->count;
+    if (!d)
+        return -1;
+    char **names = NULL;
+    size_t n = 0, cap = 0;
     struct dirent *e;
-    while ((e = readdir(d))) {
-        if (e->d_name[0] == '.' || !is_image_name(e->d_name) || strstr(e->d_name, ".annotated.") ||
-            strstr(e->d_name, ".layers.") || strstr(e->d_name, ".truth."))
+    int bad = 0;
+    while (!bad && (e = readdir(d))) {
+        if (e->d_name[0] == '.')
             continue;
-        char p[4096];
-        size_t dl = strlen(dir);
-        snprintf(p, sizeof p, "%.*s/%s", (int)(dl > 1 && dir[dl - 1] == '/' ? dl - 1 : dl), dir,
-                 e->d_name);
-        if (add(in, p)) {
-            closedir(d);
-            fprintf(stderr, "lamina: out of memory\n");
-            return CLI_EFILE;
+        if (n == cap) {
+            char **nn = realloc(names, (cap = cap ? cap * 2 : 64) * sizeof *nn);
+            bad = !nn;
+            names = nn ? nn : names;
         }
+        if (!bad && !(names[n] = strdup(e->d_name)))
+            bad = 1;
+        n += !bad;
     }
     closedir(d);
-    qsort(in->paths + first, in->count - first, sizeof *in->paths, cmp_str);
+    if (bad) {
+        free_names(names, n);
+        return -2;
+    }
+    if (n)
+        qsort(names, n, sizeof *names, cmp_str);
+    *out = names;
+    *count = n;
     return 0;
+}
+
+#define MAX_FOLDER_DEPTH 16 /* also ends loops made with symbolic links */
+
+typedef struct folder_scan {
+    int recursive;
+    size_t subfolders; /* seen, whether entered or not */
+} folder_scan;
+
+/* Add a folder's image files in name order; with --recursive, each
+ * subfolder where its name falls in that order (depth first). */
+static int add_folder(cli_inputs *in, const char *dir, folder_scan *fs, int depth)
+{
+    char **names = NULL;
+    size_t n = 0;
+    int rc = list_sorted(dir, &names, &n);
+    if (rc == -1)
+        fprintf(stderr, "lamina: %s: cannot read the folder\n", dir);
+    else if (rc)
+        fprintf(stderr, "lamina: out of memory\n");
+    if (rc)
+        return CLI_EFILE;
+    size_t dl = strlen(dir);
+    int trim = dl > 1 && dir[dl - 1] == '/';
+    for (size_t i = 0; i < n && !rc; i++) {
+        char p[4096];
+        snprintf(p, sizeof p, "%.*s/%s", (int)(trim ? dl - 1 : dl), dir, names[i]);
+        struct stat sb;
+        if (stat(p, &sb) != 0)
+            continue;
+        if (S_ISDIR(sb.st_mode)) {
+            fs->subfolders++;
+            if (fs->recursive && depth < MAX_FOLDER_DEPTH)
+                rc = add_folder(in, p, fs, depth + 1);
+        } else if (is_image_name(names[i]) && !is_result_name(names[i]) && add(in, p)) {
+            fprintf(stderr, "lamina: out of memory\n");
+            rc = CLI_EFILE;
+        }
+    }
+    free_names(names, n);
+    return rc;
+}
+
+/* A folder given on the command line must yield images: say why not. */
+static int add_top_folder(cli_inputs *in, const char *dir, int recursive)
+{
+    folder_scan fs = {recursive, 0};
+    size_t before = in->count;
+    int rc = add_folder(in, dir, &fs, 0);
+    if (rc || in->count > before)
+        return rc;
+    if (!recursive && fs.subfolders)
+        return cli_usage_error("analyze",
+                               "%s holds no image files (%zu subfolder%s; add --recursive)", dir,
+                               fs.subfolders, fs.subfolders == 1 ? "" : "s");
+    return cli_usage_error("analyze", "%s holds no image files (.png, .jpg, .jpeg, .tif, .tiff)%s",
+                           dir, recursive ? ", nor do its subfolders" : "");
 }
 
 static int add_list(cli_inputs *in, const char *list)
@@ -99,14 +183,14 @@ static int add_list(cli_inputs *in, const char *list)
     return 0;
 }
 
-int cli_inputs_collect(cli_inputs *in, int argc, char **argv, const char *list)
+int cli_inputs_collect(cli_inputs *in, int argc, char **argv, const char *list, int recursive)
 {
     memset(in, 0, sizeof *in);
     int rc = 0;
     for (int i = 0; i < argc && !rc; i++) {
         struct stat sb;
         if (stat(argv[i], &sb) == 0 && S_ISDIR(sb.st_mode))
-            rc = add_folder(in, argv[i]);
+            rc = add_top_folder(in, argv[i], recursive);
         else if (add(in, argv[i]))
             rc = CLI_EFILE;
     }

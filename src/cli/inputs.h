@@ -15,11 +15,15 @@ typedef struct cli_inputs {
     char **paths;
 } cli_inputs;
 
-/* Files as given; folders expanded to their .png/.jpg/.jpeg files (sorted);
- * 'list' (may be NULL) adds one path a line, relative to the list's folder.
- * Two inputs whose output names would clash are a usage error. Prints
- * problems; returns an exit code (0 on success). */
-int cli_inputs_collect(cli_inputs *in, int argc, char **argv, const char *list);
+/* Files as given; folders expanded to their .png/.jpg/.jpeg/.tif/.tiff files
+ * in name order (lamina's own result images skipped), descending into
+ * subfolders when 'recursive' is set (depth first, in name order, at most
+ * 16 levels). A folder that yields no image is a usage error that says
+ * why (for instance "D holds no image files (3 subfolders; add
+ * --recursive)"). 'list' (may be NULL) adds one path a line, relative to
+ * the list's folder. Two inputs whose output names would clash are a usage
+ * error. Prints problems; returns an exit code (0 on success). */
+int cli_inputs_collect(cli_inputs *in, int argc, char **argv, const char *list, int recursive);
 
 /* Keep the index-th of 'of' parts (1-based): items k with k % of == index-1. */
 void cli_inputs_shard(cli_inputs *in, size_t index, size_t of);

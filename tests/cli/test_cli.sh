@@ -144,5 +144,18 @@ grep -q "badlab.json" "$T/err" && grep -q "outside" "$T/err" && ok "label error 
 expect_rc 2 "calibrate needs one label file per image" "$BIN" calibrate samples/HT285-C11-tile07.png
 expect_rc 1 "calibrate with labels of the wrong size" "$BIN" calibrate --labels samples/HT285-D04-tile21.truth.png -o "$T/x.json" samples/HT285-C11-tile07.png
 
+# folders: TIFF names join, subfolders only with --recursive, formats named
+mkdir -p "$T/chip/row1/col2" "$T/empty"
+cp samples/HT285-A07-tile12.png "$T/chip/row1/col2/tile12.tif"
+expect_rc 2 "a folder of subfolders without --recursive" "$BIN" analyze --quiet --out "$T/f" "$T/chip"
+grep -q "chip holds no image files (1 subfolder; add --recursive)" "$T/err" && ok "says to add --recursive" || bad "subfolder message: $(cat "$T/err")"
+expect_rc 2 "an empty folder" "$BIN" analyze --quiet --out "$T/f" "$T/empty"
+grep -q "empty holds no image files" "$T/err" && ok "empty folder named" || bad "empty folder message: $(cat "$T/err")"
+expect_rc 0 "--recursive finds a .tif two levels down" "$BIN" analyze --quiet --recursive --setup samples/bench3-setup.json --out "$T/f" "$T/chip"
+[ -s "$T/f/tile12.json" ] && ok "recursive input analysed" || bad "recursive input analysed"
+printf 'BM\066\000\000\000\000\000\000\000\066\000\000\000' > "$T/scan.bmp"
+expect_rc 1 "a BMP file" "$BIN" analyze --quiet --out "$T/g" "$T/scan.bmp"
+grep -q "scan.bmp.*a BMP image: lamina reads PNG, JPEG and TIFF" "$T/err" && ok "BMP named as such" || bad "BMP message: $(cat "$T/err")"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]

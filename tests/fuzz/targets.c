@@ -6,6 +6,7 @@
 #include "lamina/material.h"
 #include "lamina/render.h"
 #include "lamina/setup.h"
+#include "imageio_internal.h"
 
 #include <stdio.h>
 #include <stdlib.h>
@@ -23,6 +24,24 @@ int fuzz_image(const uint8_t *data, size_t n)
     lam_error err;
     lam_error_clear(&err);
     if (n && lam_image_load_stream(fp, "fuzz", &opt, &img, &err) == LAM_OK)
+        lam_image_free(img);
+    fclose(fp);
+    return 0;
+}
+
+/* Straight to libtiff, so that mutated headers still reach it. */
+int fuzz_tiff(const uint8_t *data, size_t n)
+{
+    FILE *fp = fmemopen((void *)data, n ? n : 1, "rb");
+    if (!fp)
+        return 0;
+    lam_load_options opt = lam_load_options_default();
+    opt.max_pixels = 4000000;
+    opt.keep_display8 = n % 2; /* both ways of filling the 8-bit copy */
+    lam_image *img = NULL;
+    lam_error err;
+    lam_error_clear(&err);
+    if (n && lam__tiff_load(fp, "fuzz", &opt, &img, &err) == LAM_OK)
         lam_image_free(img);
     fclose(fp);
     return 0;

@@ -6,7 +6,8 @@
 #include <stddef.h>
 #include <stdint.h>
 
-int fuzz_image(const uint8_t *data, size_t n);   /* PNG and JPEG loading */
+int fuzz_image(const uint8_t *data, size_t n);   /* image loading: PNG, JPEG, TIFF, sniffing */
+int fuzz_tiff(const uint8_t *data, size_t n);    /* the TIFF loader itself, without sniffing */
 int fuzz_setup(const uint8_t *data, size_t n);   /* lamina-setup/1 JSON */
 int fuzz_scene(const uint8_t *data, size_t n);   /* lamina-scene/1 JSON (parse only) */
 int fuzz_csv(const uint8_t *data, size_t n);     /* n,k and spectrum CSV tables */

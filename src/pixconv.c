@@ -1,0 +1,117 @@
+/* pixconv.c - decoded samples to linear planes through per-channel tables. */
+#include "pixconv.h"
+#include "lamina/parallel.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+lam_status lam__pixconv_init(lam__pixconv *pc, int depth, int chans, lam_error *err)
+{
+    memset(pc, 0, sizeof *pc);
+    if ((depth != 8 && depth != 16) || (chans != 1 && chans != 3))
+        return lam_error_set(err, LAM_EINTERNAL, "no conversion for %d-bit %d-channel samples",
+                             depth, chans);
+    pc->depth = depth;
+    pc->chans = chans;
+    pc->levels = (size_t)1 << depth;
+    pc->clip_code = (unsigned)(pc->levels - 1);
+    pc->table = malloc(3 * pc->levels * sizeof *pc->table);
+    if (!pc->table)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the %d-bit transfer tables",
+                             depth);
+    for (int c = 0; c < 3; c++)
+        pc->lut[c] = pc->table + (size_t)c * pc->levels;
+    return LAM_OK;
+}
+
+void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t)
+{
+    double top = (double)(pc->levels - 1);
+    for (size_t i = 0; i < pc->levels; i++)
+        pc->lut[0][i] = (float)lam_transfer_decode(t, (double)i / top);
+    pc->lut[1] = pc->lut[2] = pc->lut[0];
+}
+
+/* One loop per sample size, so that the inner loop has no branch on it. */
+#define CONVERT_ROW(TYPE)                                                                  \
+    do {                                                                                   \
+        const TYPE *r = row;                                                               \
+        for (size_t x = 0; x < w; x++) {                                                   \
+            const TYPE *p = r + x * stride;                                                \
+            unsigned v0 = p[0], v1 = p[o1], v2 = p[o2];                                    \
+            img->plane[0][base + x] = pc->lut[0][v0];                                      \
+            img->plane[1][base + x] = pc->lut[1][v1];                                      \
+            img->plane[2][base + x] = pc->lut[2][v2];                                      \
+            int clip = v0 >= top || v1 >= top || v2 >= top;                                \
+            img->clipped[base + x] = (uint8_t)clip;                                        \
+            clipped += (size_t)clip;                                                       \
+            if (d8) {                                                                      \
+                uint8_t *d = d8 + (base + x) * 3;                                          \
+                d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;                \
+            }                                                                              \
+        }                                                                                  \
+    } while (0)
+
+void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
+                      size_t stride)
+{
+    size_t w = img->width, base = y * w, clipped = 0;
+    size_t o1 = pc->chans == 3 ? 1 : 0, o2 = pc->chans == 3 ? 2 : 0; /* grey: replicated */
+    unsigned top = pc->clip_code;
+    uint8_t *d8 = pc->depth == 8 ? img->display8 : NULL;
+    if (pc->depth == 8)
+        CONVERT_ROW(uint8_t);
+    else
+        CONVERT_ROW(uint16_t);
+    img->clipped_count += clipped;
+}
+
+#undef CONVERT_ROW
+
+typedef struct rgb8_ctx {
+    const lam__pixconv *pc;
+    lam_image *img;
+    size_t clipped[LAM_MAX_THREADS];
+} rgb8_ctx;
+
+static void rgb8_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    rgb8_ctx *c = vctx;
+    lam_image *img = c->img;
+    const float *l0 = c->pc->lut[0], *l1 = c->pc->lut[1], *l2 = c->pc->lut[2];
+    unsigned top = c->pc->clip_code;
+    size_t w = img->width, clipped = 0;
+    for (size_t k = begin * w; k < end * w; k++) {
+        const uint8_t *p = img->display8 + k * 3;
+        img->plane[0][k] = l0[p[0]];
+        img->plane[1][k] = l1[p[1]];
+        img->plane[2][k] = l2[p[2]];
+        int clip = p[0] >= top || p[1] >= top || p[2] >= top;
+        img->clipped[k] = (uint8_t)clip;
+        clipped += (size_t)clip;
+    }
+    c->clipped[slice] = clipped;
+}
+
+lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, lam_error *err)
+{
+    if (pc->depth != 8 || pc->chans != 3 || !img->display8)
+        return lam_error_set(err, LAM_EINTERNAL, "8-bit RGB conversion without 8-bit RGB codes");
+    /* the per-slice counts live on the stack: nothing to allocate, so the
+     * only failure is a caller's mistake, reported above */
+    rgb8_ctx c;
+    memset(&c, 0, sizeof c);
+    c.pc = pc;
+    c.img = img;
+    lam_parallel_for(img->height, lam_parallel_default(), rgb8_rows, &c);
+    img->clipped_count = 0;
+    for (size_t t = 0; t < LAM_MAX_THREADS; t++)
+        img->clipped_count += c.clipped[t];
+    return LAM_OK;
+}
+
+void lam__pixconv_clear(lam__pixconv *pc)
+{
+    free(pc->table);
+    memset(pc, 0, sizeof *pc);
+}

@@ -1,0 +1,41 @@
+/* pixconv.h - decoded samples to linear planes (internal to the image
+ * loaders): per-channel lookup tables, row conversion, the clip mask and
+ * the kept 8-bit copy. The loaders decode; this file only converts, so no
+ * loader depends on another. */
+#ifndef LAMINA_PIXCONV_H
+#define LAMINA_PIXCONV_H
+
+#include <stddef.h>
+#include "lamina/image.h"
+
+typedef struct lam__pixconv {
+    int depth;          /* 8 or 16 bits per sample */
+    int chans;          /* colour samples per pixel: 1 grey or 3 RGB */
+    size_t levels;      /* 2^depth table entries */
+    unsigned clip_code; /* a sample at or above this is saturated (default levels-1) */
+    float *lut[3];      /* per channel: code -> linear light; lut[c] may alias lut[0] */
+    float *table;       /* the allocation behind lut[] (3 * levels floats) */
+} lam__pixconv;
+
+/* Allocate the tables (filled with nothing yet) for 8- or 16-bit samples
+ * of 1 or 3 channels. */
+lam_status lam__pixconv_init(lam__pixconv *pc, int depth, int chans, lam_error *err);
+
+/* Fill every channel's table from a named curve (AUTO counts as sRGB). */
+void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t);
+
+/* Convert image row y from 'row': width pixels of 'stride' samples each
+ * (stride >= chans; samples past chans, such as alpha, are skipped),
+ * uint8_t for 8-bit or host-order uint16_t for 16-bit. Writes the planes
+ * (grey replicated), the clip mask and count, and img->display8 when it is
+ * allocated and the samples are 8-bit. */
+void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
+                      size_t stride);
+
+/* Fill the planes and clip mask from img->display8 (8-bit RGB codes
+ * already decoded there), on all cores. */
+lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, lam_error *err);
+
+void lam__pixconv_clear(lam__pixconv *pc);
+
+#endif
