@@ -6,9 +6,10 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg gsl libcjson zlib
+PKGS     := libpng libjpeg gsl libcjson zlib cairo pangocairo
 # Debian packages: build, test-only references, outside model reference
-DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev
+DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev \
+             libcairo2-dev libpango1.0-dev fonts-dejavu-core
 DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 

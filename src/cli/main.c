@@ -16,6 +16,7 @@ static const cli_command *const commands[] = {
     &cli_calibrate,
     &cli_inspect,
     &cli_map,
+    &cli_plan,
     &cli_render,
     NULL,
 };

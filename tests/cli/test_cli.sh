@@ -59,13 +59,15 @@ printf '{"schema":"lamina-setup/1","objective":{"illumination_na":3}}' > "$T/bad
 expect_rc 1 "a setup with NA 3" "$BIN" predict --setup "$T/bad.json"
 grep -q "bad.json" "$T/err" && grep -q "illumination_na" "$T/err" && ok "setup message names file and key" || bad "setup message: $(cat "$T/err")"
 
-expect_rc 0 "map writes an SVG" "$BIN" map --layers 2 --out "$T/map.svg"
-grep -q "</svg>" "$T/map.svg" && ok "map SVG complete" || bad "map SVG complete"
-expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
+expect_rc 0 "plan writes an SVG" "$BIN" plan --layers 2 --out "$T/plan.svg"
+grep -q "</svg>" "$T/plan.svg" && ok "plan SVG complete" || bad "plan SVG complete"
+expect_rc 1 "plan into a missing folder" "$BIN" plan --out "$T/none/plan.svg"
 [ ! -e "$T/none" ] && ok "no partial output" || bad "partial output left"
-expect_rc 2 "map refuses an unknown format" "$BIN" map --out "$T/map.gif"
-expect_rc 0 "map writes a PNG" "$BIN" map --quiet --out "$T/map.png"
-"$BIN" inspect "$T/map.png" > /dev/null 2>&1 && ok "map PNG reads back" || bad "map PNG reads back"
+expect_rc 2 "plan refuses an unknown format" "$BIN" plan --out "$T/plan.gif"
+expect_rc 0 "plan writes a PNG" "$BIN" plan --quiet -o "$T/plan.png"
+"$BIN" inspect "$T/plan.png" > /dev/null 2>&1 && ok "plan PNG reads back" || bad "plan PNG reads back"
+expect_rc 0 "plan writes a PDF" "$BIN" plan --quiet -o "$T/plan.pdf"
+head -c 5 "$T/plan.pdf" | grep -q '%PDF-' && ok "plan PDF header" || bad "plan PDF header"
 
 # analyze: outputs, contract bits, failures leave no output
 expect_rc 0 "analyze a sample" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/a" samples/HT285-A07-tile12.png
