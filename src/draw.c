@@ -249,6 +249,7 @@ void lam_draw_text(cairo_t *cr, double x, double y, const lam_text_style *st, co
     lam_draw_rgb(cr, st->colour);
     pango_cairo_show_layout(cr, l);
     cairo_restore(cr);
+    cairo_new_path(cr); /* no current point left behind for the next line_to */
     g_object_unref(l);
 }
 

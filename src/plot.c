@@ -198,7 +198,7 @@ static void profile_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *
     shade_band(cr, x, y, p->nominal_nm - p->tolerance_nm, p->nominal_nm + p->tolerance_nm,
                0x2e7d32, 0.16);
     shade_band(cr, x, y, zoom_lo, zoom_hi, 0x000000, 0.04);
-    lam_draw_axes(cr, x, y, "SiO\u2082 thickness (nm)", "joint \u03c7\u00b2 \u2212 min", 11);
+    lam_draw_axes(cr, x, y, "SiO\u2082 thickness (nm)", "\u221a(joint \u03c7\u00b2 \u2212 min)", 11);
     double cmin = INFINITY;
     for (size_t g = 0; g < p->n; g++)
         cmin = fmin(cmin, p->chi2[g]);
@@ -209,7 +209,7 @@ static void profile_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *
     lam_draw_rgb(cr, 0x1f4e9c);
     for (size_t g = 0; g < p->n; g++)
         cairo_line_to(cr, lam_axis_map(x, p->grid_nm[g]),
-                      lam_axis_map(y, fmin(p->chi2[g] - cmin, y->hi * 1.05)));
+                      lam_axis_map(y, fmin(sqrt(fmax(0, p->chi2[g] - cmin)), y->hi * 1.05)));
     cairo_stroke(cr);
     cairo_restore(cr);
     vline(cr, x, y, p->nominal_nm, 0x2e7d32, 1);
@@ -289,10 +289,10 @@ lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *
 {
     if (p->n < 2)
         return lam_error_set(err, LAM_EINVAL, "the oxide profile has fewer than 2 points");
-    double name_w = 220, W = 900, top = 64, ph = 260, row = 22;
+    double name_w = 220, W = 940, top = 64, ph = 260, row = 22;
     double h2 = fmax(60, row * (double)(p->n_images ? p->n_images : 1));
     lam_canvas cv;
-    lam_status st = lam_canvas_open(&cv, path, W, top + ph + 90 + h2 + 120, err);
+    lam_status st = lam_canvas_open(&cv, path, W, top + ph + 90 + h2 + 130, err);
     if (st)
         return st;
     cairo_t *cr = cv.cr;
@@ -311,7 +311,7 @@ lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *
     zoom_range(p, &zlo, &zhi);
     for (size_t g = 0; g < p->n; g++)
         cmin = fmin(cmin, p->chi2[g]), cmax = fmax(cmax, p->chi2[g]);
-    double ylo = 0, yhi = fmin(cmax - cmin, 100);
+    double ylo = 0, yhi = fmin(sqrt(fmax(cmax - cmin, 1)), 10); /* in sigmas: a V, not a spike */
     lam_nice_range(&ylo, &yhi, 5);
     lam_axis x1 = {p->grid_nm[0], p->grid_nm[p->n - 1], name_w, W - 30, NULL, 0, 0};
     lam_axis y1 = {ylo, yhi, top + ph, top, NULL, 0, 0};
@@ -323,11 +323,14 @@ lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *
     lam_text_style note = {11, 0, 0x333333, 0, 0, 0};
     double ny = t2 + h2 + 56;
     lam_draw_text(cr, name_w, ny, &note,
-                  "<span foreground=\"#2e7d32\">green band: nominal \u00b1 tolerance (dashed: "
-                  "nominal)</span>   <span foreground=\"#c62828\">red: combined estimate "
-                  "\u00b1 1\u03c3</span>   grey: the zoom below");
+                  "<span foreground=\"#2e7d32\">green: nominal (dashed) \u00b1 tolerance</span>"
+                  "   <span foreground=\"#c62828\">red: combined estimate \u00b1 1\u03c3</span>"
+                  "   grey: the range of the lower panel");
     lam_draw_text(cr, name_w, ny + 18, &note,
-                  "\u03c7\u00b2 clipped at min + 100; circles: other interference orders that "
-                  "fit as well; purple dashed: absolute method (bare-Si reference)");
+                  "top: \u221a\u0394\u03c7\u00b2 (distance in \u03c3, clipped at 10); circles: "
+                  "other interference orders that fit as well");
+    lam_draw_text(cr, name_w, ny + 36, &note,
+                  "purple dashed: absolute method against a bare-Si reference; points: each "
+                  "image's own fit \u00b1 1\u03c3");
     return lam_canvas_finish(&cv, err);
 }
