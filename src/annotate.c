@@ -314,11 +314,10 @@ static void label_markup(const lam_analysis *a, size_t i, char *out, size_t n)
     int ci = colour_index(r);
     uint32_t c = lam_draw_layer_colour(ci);
     double p = ci >= 1 ? r->p[r->layers] : ci == LAM_DRAW_THICK ? r->p[a->max_layers + 1] : NAN;
-    char prob[32] = "";
-    if (isfinite(p) && p > 0.99)
-        snprintf(prob, sizeof prob, " &gt;0.99");
-    else if (isfinite(p))
-        snprintf(prob, sizeof prob, " %.2f", floor(p * 100) / 100);
+    char prob[32] = "", t[24];
+    lam_draw_probability(p, 2, t, sizeof t);
+    if (isfinite(p))
+        snprintf(prob, sizeof prob, " %s", t[0] == '>' ? "&gt;0.99" : t);
     const char *what = ci >= 1 ? r->label : ci == LAM_DRAW_THICK ? "thick"
                        : (r->flags & LAM_FLAG_UNMODELLED) ? "unmodelled" : "unassigned";
     snprintf(out, n, "<span foreground=\"#%06x\" weight=\"bold\">%s</span>%s%s"

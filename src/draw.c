@@ -349,8 +349,8 @@ static void axis_ticks(cairo_t *cr, const lam_axis *a, const lam_axis *other, in
             t[n++] = (double)k;
     else
         n = lam_nice_ticks(lo, hi, 6, t, 64, &step);
-    double base = other->p0; /* the frame edge the ticks hang from */
     double o0 = fmin(other->p0, other->p1), o1 = fmax(other->p0, other->p1);
+    double base = vertical ? o0 : o1; /* left edge, or bottom edge */
     lam_text_style ts = {fs, 0, 0x333333, 0, 0, 0};
     for (size_t i = 0; i < n; i++) {
         double p = lam_axis_map(a, t[i]);
@@ -400,11 +400,22 @@ void lam_draw_axes(cairo_t *cr, const lam_axis *x, const lam_axis *y, const char
     cairo_stroke(cr);
     lam_text_style ts = {fs * 1.08, 0, 0x111111, 0.5, 0, 0};
     if (x_title)
-        lam_draw_text(cr, 0.5 * (x0 + x1), y->p0 + 9 + 1.5 * fs, &ts, x_title);
+        lam_draw_text(cr, 0.5 * (x0 + x1), y1 + 9 + 1.5 * fs, &ts, x_title);
     if (y_title) {
         ts.ay = 1;
         ts.angle_deg = 90;
-        lam_draw_text(cr, x->p0 - 14 - 3.2 * fs, 0.5 * (y0 + y1), &ts, y_title);
+        lam_draw_text(cr, x0 - 14 - 3.2 * fs, 0.5 * (y0 + y1), &ts, y_title);
     }
     cairo_restore(cr);
+}
+
+void lam_draw_probability(double p, int digits, char *out, size_t n)
+{
+    double scale = pow(10, digits), top = 1 - 1 / scale;
+    if (!isfinite(p))
+        snprintf(out, n, "\u2014");
+    else if (p > top)
+        snprintf(out, n, ">%.*f", digits, top);
+    else
+        snprintf(out, n, "%.*f", digits, floor(p * scale) / scale);
 }

@@ -117,6 +117,10 @@ void lam_nice_range(double *lo, double *hi, size_t target);
 void lam_draw_axes(cairo_t *cr, const lam_axis *x, const lam_axis *y, const char *x_title,
                    const char *y_title, double font_size);
 
+/* A probability for people: rounded down to 'digits' decimals, and
+ * ">0.99" (for 2 digits) above that, so a posterior never reads as certain. */
+void lam_draw_probability(double p, int digits, char *out, size_t n);
+
 /* Format a tick value with the decimals its step needs. */
 void lam_draw_tick_label(double v, double step, char *out, size_t n);
 
