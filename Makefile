@@ -12,6 +12,8 @@ DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl
              libcairo2-dev libpango1.0-dev fonts-dejavu-core
 DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
+# the run report in a real browser, and SVGs through librsvg (make check-report)
+DEB_REPORT := chromium librsvg2-bin
 
 WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
             -Wwrite-strings -Wpointer-arith -Wcast-align -Wformat=2 -Wundef \
@@ -40,7 +42,8 @@ LIB      := $(BUILD)/liblamina.a
 BIN      := $(BUILD)/lamina
 
 .SECONDARY:
-.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz
+.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install clean check-reference fuzz \
+        check-report
 
 all: $(BIN)
 
@@ -118,6 +121,14 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
 	    else echo "missing $$p; run: sudo apt-get install $(DEB_REF)"; exit 1; fi; }; done
 	/usr/bin/python3 tests/reference/meep_check.py $(BUILD)
+
+# The run report of a ten-tile scan opened in headless Chromium (no script
+# errors, every candidate shown) and every SVG rendered by librsvg.
+check-report: deps $(BIN)
+	@for p in $(DEB_REPORT); do dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "ok installed" || \
+	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
+	    else echo "missing $$p; run: sudo apt-get install $(DEB_REPORT)"; exit 1; fi; }; done
+	sh tests/report/check_report.sh $(BUILD)
 
 # Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are

@@ -18,6 +18,7 @@ static const cli_command *const commands[] = {
     &cli_map,
     &cli_plan,
     &cli_render,
+    &cli_watch,
     NULL,
 };
 
