@@ -59,13 +59,13 @@ $(LIB): $(LIB_OBJ)
 $(BIN): $(CLI_OBJ) $(LIB)
 	$(CC) $(LDFLAGS) $(CLI_OBJ) $(LIB) $(LDLIBS) -o $@
 
-# Tests link the harness and the library; test_image also uses Little CMS
-# as an independent sRGB reference.
+# Tests link the harness and the library; test_image and test_draw also use
+# Little CMS as an independent sRGB / CIELAB reference.
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) \
-	    $(if $(filter image,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
+	    $(if $(filter image draw,$*),$(shell pkg-config --libs lcms2 2>/dev/null)) -o $@
 
 $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 	@mkdir -p $(dir $@)

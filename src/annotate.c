@@ -21,7 +21,9 @@ typedef struct scene {
     const lam_contours *ct;
     double s, fs;           /* line scale and font size, from the image size */
     box taken[512];         /* legend, scale bar and placed labels */
+    unsigned owner[512];    /* region id of each, 0 for the panels */
     size_t n_taken;
+    int dry;                /* place only (lam_report_annotation_layout) */
 } scene;
 
 void lam_report_palette(unsigned v, uint8_t rgb[3])
@@ -156,10 +158,12 @@ static int is_free(const scene *S, const box *b)
     return 1;
 }
 
-static void take(scene *S, box b)
+static void take(scene *S, box b, unsigned owner)
 {
-    if (S->n_taken < sizeof S->taken / sizeof S->taken[0])
+    if (S->n_taken < sizeof S->taken / sizeof S->taken[0]) {
+        S->owner[S->n_taken] = owner;
         S->taken[S->n_taken++] = b;
+    }
 }
 
 /* What a panel at b would hide: region pixels, candidates' (assigned, not
@@ -240,7 +244,9 @@ static void draw_legend(scene *S)
     double W = fmax(fmax(w0, w1), fmax(grid_w, sw + 0.3 * fs + w2)) + 2 * pad;
     double H = 2 * pad + row * (2.0 + (double)rows) + 2 * 1.25 * fs;
     box b = place_panel(S, W, H);
-    take(S, b);
+    take(S, b, 0);
+    if (S->dry)
+        return;
     panel(cr, &b, 0.4 * fs);
     double x = b.x + pad, y = b.y + pad;
     lam_draw_text(cr, x, y, &bold, name);
@@ -291,7 +297,9 @@ static void draw_scale_bar(scene *S)
     double tw, th;
     lam_draw_text_size(S->cr, &ts, t, &tw, &th);
     box b = place_panel(S, fmax(px, tw) + 2 * pad, th + 0.5 * fs + 2 * pad);
-    take(S, b);
+    take(S, b, 0);
+    if (S->dry)
+        return;
     panel(S->cr, &b, 0.4 * fs);
     double cx = b.x + b.w / 2;
     lam_draw_text(S->cr, cx, b.y + pad, &ts, t);
@@ -433,8 +441,9 @@ static void draw_labels(scene *S)
             continue;
         if (pick == ns)
             pick = 0;
-        take(S, spots[pick]);
-        draw_label(S, i, &spots[pick], markup);
+        take(S, spots[pick], a->seg->regions[i].id);
+        if (!S->dry)
+            draw_label(S, i, &spots[pick], markup);
     }
     free(order);
 }
@@ -483,4 +492,28 @@ lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_err
     if (st)
         return st;
     return lam_png_save_rgb8(path, a->display, a->width, a->height, 3, err);
+}
+
+size_t lam_report_annotation_layout(lam_analysis *a, lam_annotation_box *out, size_t max)
+{
+    cairo_surface_t *surf = cairo_image_surface_create(CAIRO_FORMAT_RGB24, 1, 1);
+    cairo_t *cr = cairo_create(surf);
+    scene *S = calloc(1, sizeof *S);
+    size_t n = 0;
+    if (S && cairo_status(cr) == CAIRO_STATUS_SUCCESS) {
+        double side = (double)(a->width > a->height ? a->width : a->height);
+        S->a = a, S->cr = cr, S->dry = 1;
+        S->s = fmax(0.6, side / 1000);
+        S->fs = fmax(11, 0.016 * side);
+        draw_legend(S);
+        draw_scale_bar(S);
+        draw_labels(S);
+        for (; n < S->n_taken && n < max; n++)
+            out[n] = (lam_annotation_box){S->owner[n], S->taken[n].x, S->taken[n].y,
+                                          S->taken[n].w, S->taken[n].h};
+    }
+    free(S);
+    cairo_destroy(cr);
+    cairo_surface_destroy(surf);
+    return n;
 }

@@ -150,6 +150,51 @@ static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_e
     return st;
 }
 
+/* cairo's SVG names surfaces and images by process-wide counters, so the
+ * same drawing would differ from run to run (and with the thread count):
+ * number them in order of first appearance instead. */
+static void renumber_svg_ids(lam_canvas *c)
+{
+    static const char *const prefixes[] = {"surface", "image", "source"};
+    long old[256], seen = 0;
+    size_t w = 0;
+    for (size_t r = 0; r < c->len;) {
+        size_t m = 0;
+        int hit = -1;
+        if (r > 0 && (c->data[r - 1] == '"' || c->data[r - 1] == '#'))
+            for (int k = 0; k < 3 && hit < 0; k++) {
+                m = strlen(prefixes[k]);
+                if (r + m < c->len && !memcmp(c->data + r, prefixes[k], m) &&
+                    c->data[r + m] >= '0' && c->data[r + m] <= '9')
+                    hit = k;
+            }
+        if (hit < 0) {
+            c->data[w++] = c->data[r++];
+            continue;
+        }
+        long v = 0;
+        size_t q = r + m;
+        while (q < c->len && c->data[q] >= '0' && c->data[q] <= '9')
+            v = v * 10 + (c->data[q++] - '0');
+        long idx = 0;
+        while (idx < seen && old[idx] != v)
+            idx++;
+        if (idx == seen && seen < 256)
+            old[seen++] = v;
+        char t[32];
+        int n = snprintf(t, sizeof t, "%s%ld", prefixes[hit], idx + 1);
+        if ((size_t)n <= q - r) { /* never longer than what it replaces */
+            memcpy(c->data + w, t, (size_t)n);
+            w += (size_t)n;
+        } else {
+            memmove(c->data + w, c->data + r, q - r);
+            w += q - r;
+        }
+        r = q;
+    }
+    c->len = w;
+}
+
 lam_status lam_canvas_finish(lam_canvas *c, lam_error *err)
 {
     lam_status st = LAM_OK;
@@ -163,6 +208,8 @@ lam_status lam_canvas_finish(lam_canvas *c, lam_error *err)
     cairo_surface_finish(c->surface); /* vector surfaces emit their data here */
     if (!st && c->failed)
         st = lam_error_set(err, LAM_ENOMEM, "cannot hold the drawing in memory");
+    if (!st && c->kind == LAM_CANVAS_SVG)
+        renumber_svg_ids(c);
     if (!st && (c->kind == LAM_CANVAS_SVG || c->kind == LAM_CANVAS_PDF))
         st = lam_outfile_write_buffer(c->path, c->data, c->len, err);
     cairo_surface_destroy(c->surface);

@@ -147,7 +147,8 @@ int main(void)
              "--positions %s/positions.csv --out %s %s", bin_dir, dir, outB, dir, bin_dir, dir, outB, dir);
     check_int(system(cmd), 0, "interrupted run resumed");
     const char *files[] = {"catalog.json", "catalog.csv", "t00.json", "t12.json", "t33.json",
-                           "t21.layers.png", "t21.annotated.png"};
+                           "t21.layers.png", "t21.annotated.png", "t21.contrast.svg", "goto.csv",
+                           "report.html", "contact-sheet.png"};
     int all_same = 1;
     for (size_t k = 0; k < sizeof files / sizeof files[0]; k++) {
         char a[1024], b[1024];
