@@ -78,7 +78,7 @@ demo: deps
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
 	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
 	    samples/HT090-B02-tile03.png
-	@echo "reports in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg)"
+	@echo "results in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg, report.html)"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:
