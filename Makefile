@@ -6,10 +6,10 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg gsl libcjson zlib cairo pangocairo
+PKGS     := libpng libjpeg gsl libcjson zlib cairo pangocairo fontconfig
 # Debian packages: build, test-only references, outside model reference
 DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libgsl-dev libcjson-dev \
-             libcairo2-dev libpango1.0-dev fonts-dejavu-core
+             libcairo2-dev libpango1.0-dev libfontconfig-dev fonts-dejavu-core
 DEB_TEST  := liblcms2-dev libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
 # the run report in a real browser, and SVGs through librsvg (make check-report)

@@ -217,7 +217,8 @@ static int cmp_entries(const void *x, const void *y, void *ctx)
     return a->region < b->region ? -1 : (a->region > b->region);
 }
 
-/* qsort with a context, by insertion into a sorted index (stable). */
+/* Sort by cmp_entries: a bottom-up merge sort (stable, needs the
+ * catalogue as context, which qsort cannot pass). */
 static lam_status sort_entries(lam_catalog *c, lam_error *err)
 {
     lam_catalog_entry *tmp = malloc((c->count ? c->count : 1) * sizeof *tmp);

@@ -135,7 +135,7 @@ static void draw_legend(cairo_t *cr, const lam_catalog *c, const lam_chipmap_vie
         lam_draw_rgb(cr, 0x111111);
         cairo_set_line_width(cr, 1.2);
         cairo_stroke(cr);
-        char t[8];
+        char t[16];
         snprintf(t, sizeof t, L == 6 ? "%dL+" : "%dL", L);
         lam_draw_text(cr, x + 16, y, &ts, t);
         x += 58;

@@ -11,6 +11,7 @@
 #include <strings.h>
 #include <cairo-pdf.h>
 #include <cairo-svg.h>
+#include <fontconfig/fontconfig.h>
 #include <pango/pangocairo.h>
 
 int lam_canvas_kind_of(const char *path)
@@ -216,6 +217,13 @@ lam_status lam_canvas_finish(lam_canvas *c, lam_error *err)
     c->surface = NULL;
     lam_canvas_abort(c);
     return st;
+}
+
+void lam_draw_shutdown(void)
+{
+    pango_cairo_font_map_set_default(NULL);
+    cairo_debug_reset_static_data();
+    FcFini();
 }
 
 void lam_draw_rgb(cairo_t *cr, uint32_t rgb)

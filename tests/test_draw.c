@@ -401,5 +401,6 @@ int main(void)
     test_annotated("samples/HT285-C11-tile07.png", "samples/bench3-setup.json");
     test_annotated("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json");
     test_annotated("samples/HT090-B02-tile03.png", "samples/bench3-setup-90nm.json");
+    lam_draw_shutdown();
     return check_summary();
 }

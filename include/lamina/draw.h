@@ -56,6 +56,11 @@ lam_status lam_canvas_open_buffer(lam_canvas *c, uint32_t *pixels, size_t width,
 lam_status lam_canvas_finish(lam_canvas *c, lam_error *err);
 void lam_canvas_abort(lam_canvas *c);
 
+/* Release the font and glyph caches of Pango, fontconfig and cairo (call
+ * once at exit, after every drawing thread has ended), so leak checkers
+ * see only real leaks. */
+void lam_draw_shutdown(void);
+
 /* Colours as 0xRRGGBB. */
 void lam_draw_rgb(cairo_t *cr, uint32_t rgb);
 void lam_draw_rgba(cairo_t *cr, uint32_t rgb, double alpha);

@@ -66,7 +66,8 @@ int cli_results_load(lam_catalog *cat, const char *dir, const lam_positions *pos
             names.count++;
     }
     closedir(d);
-    qsort(names.paths, names.count, sizeof *names.paths, cmp_str);
+    if (names.count) /* qsort must not see a NULL array, even empty */
+        qsort(names.paths, names.count, sizeof *names.paths, cmp_str);
     snprintf(cat->results, sizeof cat->results, "%s", dir);
     lam_error err;
     lam_error_clear(&err);

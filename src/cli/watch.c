@@ -317,7 +317,8 @@ static int process_existing(watch_session *w)
             names.count++;
     }
     closedir(d);
-    qsort(names.paths, names.count, sizeof *names.paths, cmp_str);
+    if (names.count) /* qsort must not see a NULL array, even empty */
+        qsort(names.paths, names.count, sizeof *names.paths, cmp_str);
     int rc = CLI_OK;
     for (size_t k = 0; k < names.count && rc == CLI_OK && !stop_requested; k++)
         if (!w->max_images || w->analysed < w->max_images)
