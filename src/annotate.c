@@ -318,7 +318,8 @@ static void label_markup(const lam_analysis *a, size_t i, char *out, size_t n)
     char area[64] = "";
     double u = a->um_per_px;
     double ar = u > 0 ? (double)s->area * u * u : (double)s->area;
-    snprintf(area, sizeof area, " \u00b7 %.*f %s", ar < 10 ? 1 : 0, ar, u > 0 ? "\u00b5m\u00b2" : "px");
+    snprintf(area, sizeof area, " \u00b7 %.*f %s", ar < 10 ? 1 : 0, ar,
+             u > 0 ? "\u00b5m\u00b2" : "px");
     int ci = colour_index(r);
     uint32_t c = lam_draw_layer_colour(ci);
     double p = ci >= 1 ? r->p[r->layers] : ci == LAM_DRAW_THICK ? r->p[a->max_layers + 1] : NAN;

@@ -263,8 +263,10 @@ static void place_entries(lam_catalog *c)
                               (k & 1 ? e->bbox[2] + 0.5 : e->bbox[0] - 0.5),
                               (k & 2 ? e->bbox[3] + 0.5 : e->bbox[1] - 0.5), rd);
             lam_stage_chip(&c->stage, rd, ch);
-            e->chip_box[0] = fmin(e->chip_box[0], ch[0]), e->chip_box[2] = fmax(e->chip_box[2], ch[0]);
-            e->chip_box[1] = fmin(e->chip_box[1], ch[1]), e->chip_box[3] = fmax(e->chip_box[3], ch[1]);
+            for (int d = 0; d < 2; d++) {
+                e->chip_box[d] = fmin(e->chip_box[d], ch[d]);
+                e->chip_box[d + 2] = fmax(e->chip_box[d + 2], ch[d]);
+            }
         }
     }
 }

@@ -63,7 +63,8 @@ static int cell_segments(const grid *g, uint32_t l, const uint32_t c[4], long i,
             if (refs[s][k])
                 rx += cx[k], ry += cy[k], cnt++;
         rx /= cnt, ry /= cnt;
-        double cross = (double)(qx - px) * (ry - (double)py) - (double)(qy - py) * (rx - (double)px);
+        double cross = (double)(qx - px) * (ry - (double)py) -
+                       (double)(qy - py) * (rx - (double)px);
         if (cross < 0) {
             long tx = px, ty = py;
             px = qx, py = qy, qx = tx, qy = ty;

@@ -105,7 +105,8 @@ static uint32_t *region_mask(const source *s, const lam_catalog_entry *e, size_t
     }
     while (top) {
         size_t k = stack[--top], x = k % bw, y = k / bw;
-        size_t nb[4] = {x ? k - 1 : k, x + 1 < bw ? k + 1 : k, y ? k - bw : k, y + 1 < bh ? k + bw : k};
+        size_t nb[4] = {x ? k - 1 : k, x + 1 < bw ? k + 1 : k, y ? k - bw : k,
+                        y + 1 < bh ? k + bw : k};
         for (int q = 0; q < 4; q++) {
             size_t m = nb[q];
             if (!mask[m] && s->map[(by + m / bw) * s->w + bx + m % bw] == v) {
@@ -188,7 +189,8 @@ static void draw_crop(cairo_t *cr, const lam_catalog *c, size_t i, const source 
     cairo_paint(cr);
     long x0 = (long)floor(cx - side / 2), y0 = (long)floor(cy - side / 2), n = (long)ceil(side) + 1;
     long ax = x0 < 0 ? 0 : x0, ay = y0 < 0 ? 0 : y0;
-    long bx = x0 + n > (long)s->w ? (long)s->w : x0 + n, by = y0 + n > (long)s->h ? (long)s->h : y0 + n;
+    long bx = x0 + n > (long)s->w ? (long)s->w : x0 + n;
+    long by = y0 + n > (long)s->h ? (long)s->h : y0 + n;
     cairo_scale(cr, scale, scale);
     cairo_translate(cr, -(cx - side / 2), -(cy - side / 2));
     if (bx > ax && by > ay) {

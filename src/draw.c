@@ -131,7 +131,8 @@ void lam_canvas_abort(lam_canvas *c)
 static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_error *err)
 {
     cairo_surface_flush(s);
-    size_t w = (size_t)cairo_image_surface_get_width(s), h = (size_t)cairo_image_surface_get_height(s);
+    size_t w = (size_t)cairo_image_surface_get_width(s);
+    size_t h = (size_t)cairo_image_surface_get_height(s);
     size_t stride = (size_t)cairo_image_surface_get_stride(s);
     const unsigned char *data = cairo_image_surface_get_data(s);
     uint8_t *rgb = malloc(w * h * 3);

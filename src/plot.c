@@ -198,7 +198,8 @@ static void profile_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *
     shade_band(cr, x, y, p->nominal_nm - p->tolerance_nm, p->nominal_nm + p->tolerance_nm,
                0x2e7d32, 0.16);
     shade_band(cr, x, y, zoom_lo, zoom_hi, 0x000000, 0.04);
-    lam_draw_axes(cr, x, y, "SiO\u2082 thickness (nm)", "\u221a(joint \u03c7\u00b2 \u2212 min)", 11);
+    lam_draw_axes(cr, x, y, "SiO\u2082 thickness (nm)",
+                  "\u221a(joint \u03c7\u00b2 \u2212 min)", 11);
     double cmin = INFINITY;
     for (size_t g = 0; g < p->n; g++)
         cmin = fmin(cmin, p->chi2[g]);

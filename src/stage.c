@@ -169,7 +169,8 @@ lam_status lam_stage_set(lam_stage *s, const char *key, const char *v, lam_error
     if (!strcmp(key, "axes")) {
         char a[16], b[16], tail;
         if (sscanf(v, "%15[a-z],%15[a-z]%c", a, b, &tail) == 2 &&
-            (!strcmp(a, "right") || !strcmp(a, "left")) && (!strcmp(b, "down") || !strcmp(b, "up"))) {
+            (!strcmp(a, "right") || !strcmp(a, "left")) &&
+            (!strcmp(b, "down") || !strcmp(b, "up"))) {
             s->x_sign = !strcmp(a, "right") ? 1 : -1;
             s->y_sign = !strcmp(b, "down") ? 1 : -1;
             return LAM_OK;

@@ -53,7 +53,8 @@ static void test_stage(void)
         check_str(lam_stage_unit_name(&t, &P), "mm", "go-to unit defaults to the file's");
         lam_stage_set(&t, "origin", "t.png:320,240", NULL);
         check_int(lam_stage_resolve(&t, &P, 640, 480, 0.2, NULL), LAM_OK, "origin at a tile pixel");
-        check_abs(t.origin_um[0], 100.1, 1e-9, "pixel 320 of 640: its centre 0.5 px right of the middle");
+        check_abs(t.origin_um[0], 100.1, 1e-9,
+                  "pixel 320 of 640: its centre 0.5 px right of the middle");
         lam_stage_set(&t, "origin", "u.png:1,1", NULL);
         check_int(lam_stage_resolve(&t, &P, 640, 480, 0.2, NULL), LAM_EINVAL,
                   "an origin in a tile without position is an error");

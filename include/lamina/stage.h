@@ -25,9 +25,9 @@
  *   d = R(rotation) * ((px + 0.5 - w/2) * um_per_px, (py + 0.5 - h/2) * um_per_px)
  *   reading = P + (sx * d.x, sy * d.y)     (sx, sy = +1 or -1 from 'axes')
  * with R that counter-clockwise turn on screen (image y points down):
- * R (1, 0) = (cos t, -sin t). Pixel indices count from 0 at the top left. Chip coordinates are readings minus
- * the origin (readings themselves without one), in micrometres, in the
- * stage's axis directions.
+ * R (1, 0) = (cos t, -sin t). Pixel indices count from 0 at the top left.
+ * Chip coordinates are readings minus the origin (readings themselves
+ * without one), in micrometres, in the stage's axis directions.
  *
  * Ownership: lam_positions_load fills a caller-owned lam_positions
  * (lam_positions_clear). Errors name the file, line or option value.

@@ -47,7 +47,8 @@ static int run_catalog(int argc, char **argv)
         else if ((r = cli_stage_option(&stage, "catalog", c, optarg)) < 0)
             return CLI_EUSAGE;
         else if (!r)
-            return cli_usage_error("catalog", "unknown or incomplete option '%s'", argv[optind - 1]);
+            return cli_usage_error("catalog", "unknown or incomplete option '%s'",
+                                   argv[optind - 1]);
     }
     if (optind >= argc)
         return cli_usage_error("catalog", "no result folder given");

@@ -35,7 +35,10 @@ static int run_plan(int argc, char **argv)
     opterr = 0;
     while ((c = getopt_long(argc, argv, "o:", longopts, NULL)) != -1) {
         switch (c) {
-        case 'l': if (cli_parse_long("plan", "--layers", optarg, 1, 40, &layers)) return CLI_EUSAGE; break;
+        case 'l':
+            if (cli_parse_long("plan", "--layers", optarg, 1, 40, &layers))
+                return CLI_EUSAGE;
+            break;
         case 'o':
         case 'O': out = optarg; break;
         case 'q': cli_quiet = 1; break;

@@ -64,7 +64,8 @@ static void on_stop(int sig)
         raise(sig);
     }
     stop_requested = 1;
-    static const char msg[] = "\nlamina: stopping after the current image (Ctrl-C again to quit now)\n";
+    static const char msg[] =
+        "\nlamina: stopping after the current image (Ctrl-C again to quit now)\n";
     ssize_t w = write(STDERR_FILENO, msg, sizeof msg - 1);
     (void)w;
 }
@@ -228,6 +229,7 @@ static void print_line(const watch_session *w, const char *path, const cJSON *r,
     const cJSON *regs = cJSON_GetObjectItemCaseSensitive(r, "regions"), *g;
     size_t by[5] = {0};
     const cJSON *best = NULL;
+    double best_area = 0;
     cJSON_ArrayForEach(g, regs) {
         const cJSON *L = cJSON_GetObjectItemCaseSensitive(g, "layers"), *f;
         int small = 0;
@@ -236,14 +238,14 @@ static void print_line(const watch_session *w, const char *path, const cJSON *r,
         if (!cJSON_IsNumber(L) || small)
             continue;
         by[L->valueint < 4 ? L->valueint : 4]++;
-        if (L->valueint == 1 && (!best || cJSON_GetObjectItemCaseSensitive(g, "area_px")->valuedouble >
-                                              cJSON_GetObjectItemCaseSensitive(best, "area_px")->valuedouble))
-            best = g;
+        double area = cJSON_GetNumberValue(cJSON_GetObjectItemCaseSensitive(g, "area_px"));
+        if (L->valueint == 1 && (!best || area > best_area))
+            best = g, best_area = area;
     }
     const char *base = strrchr(path, '/');
-    printf("%s  %-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", when, base ? base + 1 : path,
-           cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2], by[3], by[4],
-           resumed ? "  (results kept)" : "");
+    printf("%s  %-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", when,
+           base ? base + 1 : path, cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2],
+           by[3], by[4], resumed ? "  (results kept)" : "");
     if (best) {
         const cJSON *a = cJSON_GetObjectItemCaseSensitive(best, "area_um2");
         printf("  largest 1L: #%d", cJSON_GetObjectItemCaseSensitive(best, "id")->valueint);
@@ -376,26 +378,34 @@ static int parse_watch_options(int argc, char **argv, watch_session *w, cli_setu
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
+        r = 0;
         switch (c) {
-        case 'K': if (cli_parse_long("watch", "--max-layers", optarg, 1, 20, &K)) return CLI_EUSAGE; break;
-        case 'a': if (cli_parse_double("watch", "--min-area", optarg, 0, 1e9, &area)) return CLI_EUSAGE; break;
-        case 't': if (cli_parse_double("watch", "--oxide-tolerance", optarg, 0, 500, &w->opt.oxide_tolerance_nm)) return CLI_EUSAGE; break;
+        case 'K': r = cli_parse_long("watch", "--max-layers", optarg, 1, 20, &K); break;
+        case 'a': r = cli_parse_double("watch", "--min-area", optarg, 0, 1e9, &area); break;
+        case 't':
+            r = cli_parse_double("watch", "--oxide-tolerance", optarg, 0, 500,
+                                 &w->opt.oxide_tolerance_nm);
+            break;
         case 'N': w->opt.fit_oxide = 0; break;
         case 'O': *out = optarg; break;
-        case 'j': if (cli_parse_long("watch", "--threads", optarg, 1, 256, &threads)) return CLI_EUSAGE; break;
+        case 'j': r = cli_parse_long("watch", "--threads", optarg, 1, 256, &threads); break;
         case 'P': w->pos_path = optarg; break;
-        case 'M': if (cli_parse_long("watch", "--max-images", optarg, 1, 100000000, &maxi)) return CLI_EUSAGE; break;
-        case 'I': if (cli_parse_double("watch", "--idle-exit", optarg, 0.1, 1e7, &w->idle_exit_s)) return CLI_EUSAGE; break;
+        case 'M': r = cli_parse_long("watch", "--max-images", optarg, 1, 100000000, &maxi); break;
+        case 'I':
+            r = cli_parse_double("watch", "--idle-exit", optarg, 0.1, 1e7, &w->idle_exit_s);
+            break;
         case 'q': cli_quiet = 1; break;
         default:
-            if ((r = cli_stage_option(&w->stage, "watch", c, optarg)) > 0)
-                break;
-            if (r == 0 && (r = cli_setup_option(so, "watch", c, optarg)) > 0)
-                break;
-            if (r < 0)
-                return CLI_EUSAGE;
-            return cli_usage_error("watch", "unknown or incomplete option '%s'", argv[optind - 1]);
+            r = cli_stage_option(&w->stage, "watch", c, optarg);
+            if (r == 0)
+                r = cli_setup_option(so, "watch", c, optarg);
+            if (r == 0)
+                return cli_usage_error("watch", "unknown or incomplete option '%s'",
+                                       argv[optind - 1]);
+            r = r < 0 ? -1 : 0;
         }
+        if (r)
+            return CLI_EUSAGE;
     }
     if (optind + 1 != argc)
         return cli_usage_error("watch", "expected one folder to watch");

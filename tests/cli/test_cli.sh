@@ -80,6 +80,20 @@ ls "$T/a" | grep -q tmp && bad "temporary files left" || ok "no temporary files 
 expect_rc 0 "analyze two images writes a catalogue" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/b" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
 [ -s "$T/b/catalog.csv" ] && [ -s "$T/b/catalog.json" ] && ok "catalogue files" || bad "catalogue files"
 head -2 "$T/b/catalog.csv" | tail -1 | grep -q ',1L,' && ok "catalogue starts with a monolayer" || bad "catalogue order: $(head -2 "$T/b/catalog.csv")"
+# stage convention, positions, the chip map
+expect_rc 2 "a stage axis that is not a direction" "$BIN" analyze --stage-axes sideways,up samples/HT285-A07-tile12.png
+grep -q "stage-axes" "$T/err" && ok "message names --stage-axes" || bad "stage message: $(cat "$T/err")"
+printf 'file,x_mm,y_mm\nHT285-A07-tile12.png,1.5,2.25\n' > "$T/pos.csv"
+expect_rc 0 "analyze with positions in mm" "$BIN" analyze --setup samples/bench3-setup.json --out "$T/p" --positions "$T/pos.csv" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
+grep -q "HT285-D04-tile21.jpg: not in the positions file" "$T/err" && ok "a tile missing from the positions is a warning naming it" || bad "missing tile: $(cat "$T/err")"
+grep -q "stage x,y mm" "$T/out" && ok "terminal table shows stage readings" || bad "terminal table: $(grep -A2 monolayer "$T/out")"
+head -1 "$T/p/goto.csv" | grep -q "stage_x_mm" && ok "goto.csv in the file's unit" || bad "goto.csv header: $(head -1 "$T/p/goto.csv")"
+[ -s "$T/p/report.html" ] && ok "report.html with positions" || bad "report.html"
+expect_rc 0 "chip map from the results folder" "$BIN" map "$T/p" -o "$T/chip.png"
+"$BIN" inspect "$T/chip.png" > /dev/null 2>&1 && ok "chip map PNG reads back" || bad "chip map PNG"
+expect_rc 2 "map of a folder without positions" "$BIN" map "$T/b" -o "$T/chip2.svg"
+expect_rc 2 "watch without a folder" "$BIN" watch
+expect_rc 1 "catalog merge of a missing folder" "$BIN" catalog merge --out "$T/m" "$T/none"
 expect_rc 1 "analyze a truncated JPEG" "$BIN" analyze --quiet --out "$T/c" "$T/cut.jpg"
 [ -z "$(ls "$T/c" 2>/dev/null)" ] && ok "no output for a bad image" || bad "output left for a bad image"
 grep -q "cut.jpg" "$T/err" && ok "message names the image" || bad "message: $(cat "$T/err")"
