@@ -6,12 +6,14 @@ CC       ?= cc
 BUILD    ?= build
 SANITIZE ?=
 
-PKGS     := libpng libjpeg libtiff-4 lcms2 gsl libcjson zlib
+PKGS     := libpng libjpeg libtiff-4 lcms2 gsl libcjson zlib cairo pangocairo fontconfig
 # Debian packages: build, test-only references, outside model reference
 DEB_BUILD := build-essential pkg-config libpng-dev zlib1g-dev libjpeg-dev libtiff-dev liblcms2-dev \
-             libgsl-dev libcjson-dev
+             libgsl-dev libcjson-dev libcairo2-dev libpango1.0-dev libfontconfig-dev fonts-dejavu-core
 DEB_TEST  := libjpeg-turbo-progs colord-data
 DEB_REF   := python3-meep python3-numpy python3-matplotlib
+# the run report in a real browser, and SVGs through librsvg (make check-report)
+DEB_REPORT := chromium librsvg2-bin
 
 WARN     := -Wall -Wextra -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
             -Wwrite-strings -Wpointer-arith -Wcast-align -Wformat=2 -Wundef \
@@ -53,7 +55,7 @@ INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
 .PHONY: fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
-        check-reference
+        check-reference check-report
 
 all: $(BIN)
 
@@ -135,7 +137,7 @@ demo: deps
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
 	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
 	    samples/HT090-B02-tile03.png
-	@echo "reports in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg)"
+	@echo "results in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg, report.html)"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:
@@ -178,6 +180,14 @@ check-reference: deps $(BIN) $(BUILD)/tests/nk_dump
 	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
 	    else echo "missing $$p; run: sudo apt-get install $(DEB_REF)"; exit 1; fi; }; done
 	/usr/bin/python3 tests/reference/meep_check.py $(BUILD)
+
+# The run report of a ten-tile scan opened in headless Chromium (no script
+# errors, every candidate shown) and every SVG rendered by librsvg.
+check-report: deps $(BIN)
+	@for p in $(DEB_REPORT); do dpkg-query -W -f='$${Status}' $$p 2>/dev/null | grep -q "ok installed" || \
+	  { if [ "$$(id -u)" = 0 ]; then DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends $$p >/dev/null || exit 1; \
+	    else echo "missing $$p; run: sudo apt-get install $(DEB_REPORT)"; exit 1; fi; }; done
+	sh tests/report/check_report.sh $(BUILD)
 
 # Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are

@@ -121,10 +121,11 @@ int main(void)
         if (i++ >= mono)
             break;
         cJSON *layers = cJSON_GetObjectItemCaseSensitive(r, "layers");
-        cJSON *chip = cJSON_GetObjectItemCaseSensitive(r, "chip_um");
-        if (!cJSON_IsNumber(layers) || layers->valueint != 1 || !cJSON_IsArray(chip))
+        cJSON *cx = cJSON_GetObjectItemCaseSensitive(r, "chip_x_um");
+        cJSON *cy = cJSON_GetObjectItemCaseSensitive(r, "chip_y_um");
+        if (!cJSON_IsNumber(layers) || layers->valueint != 1 || !cJSON_IsNumber(cx) || !cJSON_IsNumber(cy))
             continue;
-        double x = cJSON_GetArrayItem(chip, 0)->valuedouble, y = cJSON_GetArrayItem(chip, 1)->valuedouble;
+        double x = cx->valuedouble, y = cy->valuedouble;
         for (size_t k = 0; k < NF; k++)
             if (flakes[k].layers == 1 && hypot(flakes[k].x - x, flakes[k].y - y) < 3) {
                 dup_mono += used[k];
@@ -146,7 +147,8 @@ int main(void)
              "--positions %s/positions.csv --out %s %s", bin_dir, dir, outB, dir, bin_dir, dir, outB, dir);
     check_int(system(cmd), 0, "interrupted run resumed");
     const char *files[] = {"catalog.json", "catalog.csv", "t00.json", "t12.json", "t33.json",
-                           "t21.layers.png", "t21.annotated.png"};
+                           "t21.layers.png", "t21.annotated.png", "t21.contrast.svg", "goto.csv",
+                           "report.html", "contact-sheet.png"};
     int all_same = 1;
     for (size_t k = 0; k < sizeof files / sizeof files[0]; k++) {
         char a[1024], b[1024];

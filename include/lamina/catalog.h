@@ -5,68 +5,70 @@
  *
  * Entries are read from analysis JSON ("lamina-analysis/1" trees, fresh or
  * from files), so a catalogue can be rebuilt from results on disk
- * (`lamina catalog merge`). Ranking: monolayers by usable area, then
- * bilayers, ..., then thick, then unassigned; "small" regions after the
- * others of their layer count.
+ * (`lamina catalog merge`, `lamina watch`). Ranking: monolayers by usable
+ * area, then bilayers, ..., then thick, then the rest; "small" regions
+ * after the others of their layer count.
  *
- * Positions CSV: header "file,x_um,y_um" with an optional "rotation_deg";
- * file is matched by base name. The stage coordinate of an image is that of
- * its centre; image x to the right and y down map to chip x and y rotated
- * by rotation_deg (counter-clockwise).
+ * catalog.csv and catalog.json share one schema (docs/catalog.md): the same
+ * names, one row per region; lists are JSON arrays and ';'-separated in
+ * CSV; unknown values are null in JSON and empty in CSV. Boxes are
+ * [x0, y0, x1, y1] in pixels, inclusive. goto.csv lists the candidates'
+ * stage readings in the stage's own convention (lamina/stage.h).
  *
  * Ownership: caller storage set up by lam_catalog_init and released by
- * lam_catalog_clear; lam_positions_load fills caller storage released by
- * lam_positions_clear.
+ * lam_catalog_clear.
  */
 #ifndef LAMINA_CATALOG_H
 #define LAMINA_CATALOG_H
 
 #include <stddef.h>
 #include "lamina/error.h"
+#include "lamina/stage.h"
 
 struct cJSON;
 
-typedef struct lam_position {
-    char file[256];
-    double x_um, y_um, rotation_deg;
-} lam_position;
-
-typedef struct lam_positions {
-    size_t count;
-    lam_position *items;
-} lam_positions;
+typedef struct lam_catalog_image {
+    char path[1024];          /* the image as analysed */
+    char results[1024];       /* folder of STEM.json, STEM.annotated.png, ... ("" unknown) */
+    char stem[256];           /* file name without its extension */
+    double width, height, um_per_px;  /* um_per_px NAN when unknown */
+    double oxide_nm;
+    int oxide_fitted;
+    const lam_position *pos;  /* borrowed from the positions; NULL if none */
+    size_t regions, candidates;
+    char warnings[1024];      /* ';'-separated, e.g. "not in the positions file" */
+} lam_catalog_image;
 
 typedef struct lam_catalog_entry {
-    char image[1024];   /* path as analysed */
+    size_t image;             /* index into images */
     unsigned region;
     char label[16];
-    int layers;         /* 0 when not assigned */
-    double probability;
+    char class_[16];          /* layers, thick, unmodelled, ambiguous */
+    int layers;               /* 1..K, 0 for every other class */
+    double probability;       /* posterior probability of 'label' */
     double area_px, area_um2; /* area_um2 NAN when unknown */
-    double usable_px[4];      /* x, y, w, h */
-    double usable_um[2];      /* NAN when unknown */
-    double centroid[2], bbox[4];
-    double chip_um[2];        /* NAN without positions */
-    double chip_box[4];       /* chip-coordinate box x0, y0, x1, y1 */
-    char flags[96];
-    int small, duplicate_of;  /* duplicate_of: index+1 of the entry kept, or 0 */
-    int rank;
+    double bbox[4];           /* x0, y0, x1, y1 inclusive */
+    double usable[4];         /* x0, y0, x1, y1 inclusive; usable[2] < usable[0]: none */
+    double usable_um[2];      /* width, height; NAN when unknown */
+    double centroid[2];
+    double stage_um[2];       /* stage reading of the centroid, um; NAN without a position */
+    double chip_um[2];        /* from the origin; NAN without a position */
+    double chip_box[4];       /* chip box x0, y0, x1, y1 (for duplicates) */
+    char flags[128];          /* ';'-separated */
+    int small, rank;
+    size_t duplicate_of;      /* index + 1 of the entry kept, or 0 */
 } lam_catalog_entry;
 
 typedef struct lam_catalog {
     size_t count, cap;
     lam_catalog_entry *entries;
+    size_t n_images, cap_images;
+    lam_catalog_image *images;
+    lam_stage stage;              /* convention for chip coordinates and goto.csv */
+    const lam_positions *positions; /* borrowed; NULL without */
+    char results[1024];           /* folder of the results being added ("" unknown) */
+    char warnings[2048];          /* catalogue-level, ';'-separated */
 } lam_catalog;
-
-/* Read a positions CSV (blank lines and '#' comments skipped). LAM_EFORMAT
- * names the line and column; LAM_ETOOBIG beyond 500000 rows. */
-lam_status lam_positions_load(const char *path, lam_positions *out, lam_error *err);
-
-/* Release the rows; p may be NULL. */
-void lam_positions_clear(lam_positions *p);
-
-/* The position of an image, matched by base name, or NULL (also for p NULL). */
-const lam_position *lam_positions_find(const lam_positions *p, const char *image_path);
 
 /* An empty catalogue (always LAM_OK). */
 lam_status lam_catalog_init(lam_catalog *c);
@@ -74,21 +76,33 @@ lam_status lam_catalog_init(lam_catalog *c);
 /* Release the entries; c may be NULL. */
 void lam_catalog_clear(lam_catalog *c);
 
-/* Add the regions of one analysis (JSON tree); pos may be NULL. */
+/* Use stage positions (borrowed, may be NULL) and a convention. */
+void lam_catalog_set_stage(lam_catalog *c, const lam_positions *p, const lam_stage *stage);
+
+/* Add the regions of one analysis (JSON tree). The image's results are
+ * taken to be in c->results. 'pos' may be NULL; an image missing from the
+ * positions gets the warning "not in the positions file". */
 lam_status lam_catalog_add(lam_catalog *c, const struct cJSON *analysis, const char *image_path,
                            const lam_position *pos, lam_error *err);
 
-/* Rank, and mark the same flake seen in overlapping tiles (same label, and
- * the centroid of one lies inside the other's chip-coordinate box): the copy
- * with the larger usable rectangle (usually the one not cut by a tile edge)
- * is kept, the others listed as also seen in. */
-void lam_catalog_finish(lam_catalog *c);
+/* Rank, resolve the stage origin and chip coordinates, and mark the same
+ * flake seen in overlapping tiles (same label, and the centroid of one lies
+ * inside the other's chip box): the copy with the larger usable rectangle
+ * (usually the one not cut by a tile edge) is kept, the others listed as
+ * also seen in. LAM_EINVAL when the origin's tile is unknown. */
+lam_status lam_catalog_finish(lam_catalog *c, lam_error *err);
 
-/* Write DIR/catalog.csv and DIR/catalog.json (atomically), in rank order. */
+/* The catalogue rank of entry i (1-based, duplicates not counted); the
+ * rank of the entry kept for a duplicate. */
+size_t lam_catalog_rank(const lam_catalog *c, size_t i);
+
+/* Is entry i a candidate: assigned layers, not small, not a duplicate? */
+int lam_catalog_is_candidate(const lam_catalog *c, size_t i);
+
+/* catalog.csv, catalog.json and (with positions) goto.csv into dir. */
 lam_status lam_catalog_write(const lam_catalog *c, const char *dir, lam_error *err);
 
-/* A contact sheet of the top candidates (labelled crops of the images). */
-lam_status lam_catalog_contact_sheet(const lam_catalog *c, const char *path, size_t max_items,
-                                     lam_error *err);
+/* The image's own warnings joined with the catalogue's for it, or "". */
+const char *lam_catalog_image_warnings(const lam_catalog *c, size_t image);
 
 #endif

@@ -1,10 +1,10 @@
 /*
- * lamina/planmap.h - planning maps: N-layer contrast over wavelength and
- * oxide thickness, for choosing substrates and filters.
+ * lamina/planmap.h - planning maps (`lamina plan`): N-layer contrast over
+ * wavelength and oxide thickness, for choosing substrates and filters.
  *
  * lam_planmap_compute fills a grid of monochromatic contrast C(lambda, d)
  * (rows: oxide, columns: wavelength) and, per camera channel, C_c(d).
- * lam_planmap_write_svg draws both with axes, a colour scale and the
+ * lam_planmap_write draws both with axes, a colour scale and the
  * setup's oxide marked, written atomically. Caller owns the lam_planmap
  * (lam_planmap_free).
  */
@@ -31,9 +31,9 @@ lam_status lam_planmap_compute(const lam_setup *s, size_t layers, lam_planmap **
 /* Release a map from lam_planmap_compute; m may be NULL. */
 void lam_planmap_free(lam_planmap *m);
 
-/* Draw the map and the channel curves as SVG or as an 8-bit RGB PNG (axes,
- * colour scale, the setup's oxide marked), written atomically. */
-lam_status lam_planmap_write_svg(const lam_planmap *m, const char *path, lam_error *err);
-lam_status lam_planmap_write_png(const lam_planmap *m, const char *path, lam_error *err);
+/* Draw the map and the channel curves (axes, colour scale, the setup's
+ * oxide marked); the format follows the file name: .svg, .pdf or .png.
+ * Written atomically. */
+lam_status lam_planmap_write(const lam_planmap *m, const char *path, lam_error *err);
 
 #endif

@@ -4,8 +4,12 @@
  *   STEM.json           the analysis, schema "lamina-analysis/1"
  *   STEM.layers.png     8-bit grey: 0 substrate, 1..K layers, 254 thicker
  *                       than modelled, 255 not assigned
- *   STEM.annotated.png  the input with outlines, labels, legend, scale bar
- *   STEM.contrast.svg   measured region contrasts over the model ladder
+ *   STEM.annotated.png  the input with antialiased outlines, usable rectangles,
+ *                       labels (layers, probability, area, id) placed without
+ *                       overlap, legend and scale bar (annotate.c, cairo/Pango)
+ *   STEM.contrast.svg   measured region contrasts over the model ladder, per
+ *                       channel, with region ids and axes (plot.c; .pdf and
+ *                       .png names give those formats)
  * Every file is written atomically. lam_report_json builds the cJSON tree
  * (caller deletes) so a batch can collect the regions for a catalogue.
  */
@@ -28,6 +32,18 @@ lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_
  * not at all if the display is needed afterwards). */
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err);
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err);
+
+/* Where the annotated picture puts its panels and labels (canvas pixels):
+ * region 0 for the legend and the scale bar, else the labelled region's
+ * id. Regions flagged small get no label; candidates always get one;
+ * boxes do not overlap unless a candidate had no free place. Returns the
+ * number of boxes (at most max). For tests and for tools that link to the
+ * picture. */
+typedef struct lam_annotation_box {
+    unsigned region;
+    double x, y, w, h;
+} lam_annotation_box;
+size_t lam_report_annotation_layout(lam_analysis *a, lam_annotation_box *out, size_t max);
 
 /* Value of a region in the layer map. */
 unsigned lam_report_layer_value(const lam_region_result *r);

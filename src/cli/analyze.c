@@ -3,6 +3,7 @@
  * catalogue, a contact sheet, stage positions, resumable runs and shards. */
 #include "cli.h"
 #include "inputs.h"
+#include "run_opts.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/catalog.h"
@@ -27,7 +28,8 @@ static void analyze_help(FILE *out)
           "estimate the Fermi level where the colours constrain it and fit the oxide\n"
           "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
           "STEM.contrast.svg per image; for several images also catalog.json,\n"
-          "catalog.csv and contact-sheet.png (the top candidates).\n\n"
+          "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
+          "and with positions goto.csv (the candidates' stage readings).\n\n"
           "  --setup FILE          setup profile (lamina-setup/1)\n"
           "  --oxide NM            nominal SiO2 thickness\n"
           "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
@@ -42,7 +44,9 @@ static void analyze_help(FILE *out)
           "  --encoding E          srgb, linear or a gamma value (default: from the file)\n"
           "  --list FILE           also analyse the images listed in FILE (one path a line)\n"
           "  --recursive           also search the subfolders of each FOLDER\n"
-          "  --positions FILE.csv  file,x_um,y_um[,rotation_deg]: stage position of each tile\n"
+          "  --positions FILE.csv  file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\n"
+          "                        reading at each tile's centre\n"
+          CLI_STAGE_HELP
           "  --resume              skip images whose results exist for the same input and setup\n"
           "  --shard I/N           analyse only the I-th of N deterministic parts of the inputs\n"
           "  --out DIR             output folder (default lamina-out)\n"
@@ -68,6 +72,8 @@ typedef struct pool {
     pthread_mutex_t lock;
     const lam_setup *setup;
     const lam_analysis_options *opt;
+    const lam_positions *pos;  /* NULL without --positions */
+    const lam_stage *stage;
     const char *out_dir;
     const char *setup_hash;
     int progress, resume;
@@ -230,8 +236,10 @@ static void print_summary(const pool *P)
                by[1], by[2], by[3], by[4], thick, other);
     }
     printf("\nmonolayer candidates (p >= 0.95, not small):\n");
-    printf("%-28s %4s %7s %10s %16s %14s\n", "image", "id", "p(1L)", "area", "usable w x h",
-           "centroid px");
+    char where[48];
+    snprintf(where, sizeof where, P->pos ? "stage x,y %s" : "centroid px",
+             lam_stage_unit_name(P->stage, P->pos));
+    printf("%-28s %4s %7s %10s %16s %18s\n", "image", "id", "p(1L)", "area", "usable w x h", where);
     for (size_t i = 0; i < P->count; i++) {
         const job *j = &P->jobs[i];
         if (j->failed || j->resumed)
@@ -251,8 +259,18 @@ static void print_summary(const pool *P)
                 snprintf(area, sizeof area, "%zu px", s->area);
                 snprintf(rect, sizeof rect, "%zu x %zu px", res->usable_px[0], res->usable_px[1]);
             }
-            printf("%-28.28s %4u %7.3f %10s %16s %6.0f,%-6.0f\n", j->stem, s->id, res->p[1], area,
-                   rect, s->sx / (double)s->area, s->sy / (double)s->area);
+            double xy[2] = {s->sx / (double)s->area, s->sy / (double)s->area};
+            const lam_position *ps = P->pos ? lam_positions_find(P->pos, j->path) : NULL;
+            if (ps && u > 0) { /* the stage reading that centres the flake */
+                double unit = lam_stage_unit_um(P->stage, P->pos);
+                lam_stage_reading(P->stage, ps, (double)j->a->width, (double)j->a->height, u,
+                                  xy[0], xy[1], xy);
+                printf("%-28.28s %4u %7.3f %10s %16s %9.*f,%-9.*f\n", j->stem, s->id, res->p[1],
+                       area, rect, unit > 1 ? 4 : 1, xy[0] / unit, unit > 1 ? 4 : 1, xy[1] / unit);
+            } else {
+                printf("%-28.28s %4u %7.3f %10s %16s %9.0f,%-9.0f\n", j->stem, s->id, res->p[1],
+                       area, rect, xy[0], xy[1]);
+            }
         }
     }
     printf("\nLayer counts are model estimates: confirm by Raman spectroscopy or AFM\n"
@@ -288,28 +306,27 @@ static int parse_shard(const char *text, size_t *index, size_t *of)
     return 0;
 }
 
-static int catalog_outputs(const pool *P, const lam_positions *pos, lam_error *err)
+/* The catalogue and run report (catalog.*, goto.csv, crops, report.html). */
+static int catalog_outputs(const pool *P)
 {
     lam_catalog cat;
     lam_catalog_init(&cat);
-    lam_status st = LAM_OK;
-    for (size_t i = 0; i < P->count && !st; i++) {
+    lam_catalog_set_stage(&cat, P->pos, P->stage);
+    snprintf(cat.results, sizeof cat.results, "%s", P->out_dir);
+    lam_error err;
+    lam_error_clear(&err);
+    int rc = CLI_OK;
+    for (size_t i = 0; i < P->count && rc == CLI_OK; i++) {
         const job *j = &P->jobs[i];
         if (j->failed || !j->json)
             continue;
-        st = lam_catalog_add(&cat, j->json, j->path, lam_positions_find(pos, j->path), err);
+        if (lam_catalog_add(&cat, j->json, j->path, lam_positions_find(P->pos, j->path), &err))
+            rc = cli_report(&err, j->path);
     }
-    if (!st) {
-        lam_catalog_finish(&cat);
-        st = lam_catalog_write(&cat, P->out_dir, err);
-    }
-    if (!st) {
-        char path[4096];
-        snprintf(path, sizeof path, "%s/contact-sheet.png", P->out_dir);
-        st = lam_catalog_contact_sheet(&cat, path, 16, err);
-    }
+    if (rc == CLI_OK)
+        rc = cli_run_outputs(&cat, P->out_dir, 0);
     lam_catalog_clear(&cat);
-    return st ? -1 : 0;
+    return rc;
 }
 
 static int run_analyze(int argc, char **argv)
@@ -325,7 +342,7 @@ static int run_analyze(int argc, char **argv)
         {"verbose", no_argument, 0, 'v'},         {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
         {"resume", no_argument, 0, 'R'},          {"shard", required_argument, 0, 'S'},
         {"recursive", no_argument, 0, 'D'},
-        {0, 0, 0, 0}};
+        CLI_STAGE_LONGOPTS,                       {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     lam_analysis_options opt = lam_analysis_options_default();
@@ -334,6 +351,7 @@ static int run_analyze(int argc, char **argv)
     double area = -1;
     size_t shard = 0, shards = 0;
     int c, r, resume = 0, recursive = 0;
+    lam_stage stage = lam_stage_default();
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
@@ -370,7 +388,9 @@ static int run_analyze(int argc, char **argv)
                 return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
             break;
         default:
-            if ((r = cli_setup_option(&so, "analyze", c, optarg)) > 0)
+            if ((r = cli_stage_option(&stage, "analyze", c, optarg)) > 0)
+                break;
+            if (r == 0 && (r = cli_setup_option(&so, "analyze", c, optarg)) > 0)
                 break;
             if (r < 0)
                 return CLI_EUSAGE;
@@ -397,7 +417,7 @@ static int run_analyze(int argc, char **argv)
         opt.min_area_um2 = area;
         opt.min_area_px = area;
     }
-    lam_positions pos = {0, NULL};
+    lam_positions pos = {0};
     lam_error err;
     lam_error_clear(&err);
     if (positions && !(s.um_per_px > 0)) {
@@ -443,6 +463,8 @@ static int run_analyze(int argc, char **argv)
     lam_parallel_set_default(opt.threads); /* loading and PNG compression too */
     P.setup = &s;
     P.opt = &opt;
+    P.pos = positions ? &pos : NULL;
+    P.stage = &stage;
     P.out_dir = out_dir;
     P.setup_hash = setup_hash;
     P.resume = resume;
@@ -467,11 +489,8 @@ static int run_analyze(int argc, char **argv)
         }
     if (!cli_quiet)
         print_summary(&P);
-    if (P.count > 1 || positions) {
-        lam_error_clear(&err);
-        if (catalog_outputs(&P, positions ? &pos : NULL, &err))
-            rc = cli_report(&err, out_dir);
-    }
+    if ((P.count > 1 || positions) && (r = catalog_outputs(&P)))
+        rc = r;
     for (size_t i = 0; i < P.count; i++) {
         lam_analysis_free(P.jobs[i].a);
         cJSON_Delete(P.jobs[i].json);

@@ -22,8 +22,8 @@ typedef struct cli_command {
     void (*help)(FILE *out);
 } cli_command;
 
-extern const cli_command cli_analyze, cli_predict, cli_inspect, cli_map, cli_render, cli_oxide,
-    cli_catalog, cli_calibrate;
+extern const cli_command cli_analyze, cli_predict, cli_inspect, cli_map, cli_plan, cli_render,
+    cli_oxide, cli_catalog, cli_calibrate, cli_watch;
 
 /* Print "lamina: <msg>" for a usage problem with a hint; returns 2. */
 int cli_usage_error(const char *command, const char *fmt, ...)

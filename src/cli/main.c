@@ -1,6 +1,7 @@
 /* cli/main.c - lamina's entry point: dispatch to subcommands, help, version. */
 #include "cli.h"
 #include "lamina/version.h"
+#include "lamina/draw.h"
 #include "lamina/outfile.h"
 
 #include <signal.h>
@@ -16,7 +17,9 @@ static const cli_command *const commands[] = {
     &cli_calibrate,
     &cli_inspect,
     &cli_map,
+    &cli_plan,
     &cli_render,
+    &cli_watch,
     NULL,
 };
 
@@ -54,6 +57,7 @@ static void on_signal(int sig)
 int main(int argc, char **argv)
 {
     lam_error_init_gsl();
+    atexit(lam_draw_shutdown); /* font caches: not leaks, but leak checkers cannot tell */
     signal(SIGINT, on_signal);
     signal(SIGTERM, on_signal);
     if (argc < 2) {

@@ -4,6 +4,7 @@
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/outfile.h"
+#include "lamina/plot.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -49,48 +50,6 @@ static void refine(const double *g, const double *c, size_t n, size_t i, double 
     double curv = (a - 2 * b + e) / (h * h);
     *d = curv > 0 ? g[i] + 0.5 * h * (a - e) / (a - 2 * b + e) : g[i];
     *sigma = curv > 0 ? sqrt(2.0 / curv) : NAN;
-}
-
-static void write_svg(FILE *f, const double *grid, const double *joint, size_t n, double nominal,
-                      double tol, double est, const minimum *alt, size_t nalt)
-{
-    const double W = 720, H = 360, m = 60;
-    double cmin = INFINITY, cmax = -INFINITY;
-    for (size_t g = 0; g < n; g++)
-        cmin = fmin(cmin, joint[g]), cmax = fmax(cmax, joint[g]);
-    double lo = cmin, hi = cmin + fmin(cmax - cmin, 100.0) + 1;
-#define X(d) (m + ((d) - grid[0]) / (grid[n - 1] - grid[0]) * (W - 2 * m))
-#define Y(v) (H - m - (fmin((v), hi) - lo) / (hi - lo) * (H - 2 * m))
-    fprintf(f, "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<svg xmlns=\"http://www.w3.org/2000/svg\" "
-               "width=\"%.0f\" height=\"%.0f\" font-family=\"sans-serif\" font-size=\"12\">\n"
-               "<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n"
-               "<text x=\"%.0f\" y=\"24\" font-size=\"14\">oxide audit: joint chi2 profile "
-               "(clipped at min + 100)</text>\n",
-            W, H, m);
-    fprintf(f, "<rect x=\"%.1f\" y=\"%.0f\" width=\"%.1f\" height=\"%.0f\" fill=\"#e8f5e9\"/>\n",
-            X(nominal - tol), m, X(nominal + tol) - X(nominal - tol), H - 2 * m);
-    fprintf(f, "<polyline fill=\"none\" stroke=\"#1f4e9c\" stroke-width=\"2\" points=\"");
-    for (size_t g = 0; g < n; g++)
-        fprintf(f, "%.1f,%.1f ", X(grid[g]), Y(joint[g]));
-    fprintf(f, "\"/>\n<line x1=\"%.1f\" x2=\"%.1f\" y1=\"%.0f\" y2=\"%.0f\" stroke=\"#2e7d32\" "
-               "stroke-dasharray=\"4,3\"/><text x=\"%.1f\" y=\"%.0f\" fill=\"#2e7d32\">nominal "
-               "%.0f nm</text>\n",
-            X(nominal), X(nominal), m, H - m, X(nominal) + 4, m + 14, nominal);
-    fprintf(f, "<line x1=\"%.1f\" x2=\"%.1f\" y1=\"%.0f\" y2=\"%.0f\" stroke=\"#c62828\"/>"
-               "<text x=\"%.1f\" y=\"%.0f\" fill=\"#c62828\">estimate %.1f nm</text>\n",
-            X(est), X(est), m, H - m, X(est) + 4, m + 30, est);
-    for (size_t k = 0; k < nalt; k++)
-        fprintf(f, "<circle cx=\"%.1f\" cy=\"%.1f\" r=\"5\" fill=\"none\" stroke=\"#c62828\"/>"
-                   "<text x=\"%.1f\" y=\"%.1f\">other order? %.0f nm</text>\n",
-                X(alt[k].d), Y(alt[k].chi2), X(alt[k].d) + 6, Y(alt[k].chi2) - 6, alt[k].d);
-    for (double d = ceil(grid[0] / 50) * 50; d <= grid[n - 1]; d += 50)
-        fprintf(f, "<text x=\"%.1f\" y=\"%.0f\" text-anchor=\"middle\">%.0f</text>\n", X(d),
-                H - m + 16, d);
-    fprintf(f, "<text x=\"%.0f\" y=\"%.0f\" text-anchor=\"middle\">SiO2 thickness (nm); green: "
-               "tolerance band</text>\n</svg>\n",
-            W / 2, H - m + 34);
-#undef X
-#undef Y
 }
 
 static int run_oxide(int argc, char **argv)
@@ -329,14 +288,19 @@ static int run_oxide(int argc, char **argv)
         if (lam_outfile_write_buffer(path, text, strlen(text), &err))
             rc = cli_report(&err, path);
         snprintf(path, sizeof path, "%s/oxide.svg", out_dir);
-        lam_outfile of;
-        if (!lam_outfile_open(&of, path, &err)) {
-            write_svg(of.fp, gr, joint, m, nominal, tol_nm, est, alt, nalt);
-            if (lam_outfile_commit(&of, &err))
-                rc = cli_report(&err, path);
-        } else {
+        lam_oxide_plot_image *pi = calloc(n_ok ? n_ok : 1, sizeof *pi);
+        for (size_t j = 0; pi && j < n_ok; j++)
+            pi[j] = (lam_oxide_plot_image){strrchr(ok[j]->file, '/') ? strrchr(ok[j]->file, '/') + 1 : ok[j]->file,
+                                           ok[j]->oxide.estimate, ok[j]->oxide.sigma, ok[j]->oxide.fitted,
+                                           ok[j]->oxide.regions_used};
+        double alt_nm[8];
+        for (size_t k = 0; k < nalt; k++)
+            alt_nm[k] = alt[k].d;
+        lam_oxide_plot op = {gr, joint, m, nominal, tol_nm, used_regions ? est : NAN, sigma,
+                             used_regions ? pass : -1, alt_nm, nalt, abs_est, pi, pi ? n_ok : 0};
+        if (lam_plot_oxide(&op, path, &err))
             rc = cli_report(&err, path);
-        }
+        free(pi);
     } else {
         rc = CLI_EFILE;
     }

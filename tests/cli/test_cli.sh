@@ -76,13 +76,15 @@ expect_rc 2 "render to an unsupported extension (invalid argument)" "$BIN" rende
 expect_rc 2 "an out-of-range Fermi level" "$BIN" predict --fermi 3
 expect_rc 1 "an unmodelled material inside a setup file is a file error" sh -c \
     "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoS2\"}' > \"$T/mos2.json\"; \"$BIN\" predict --setup \"$T/mos2.json\""
-expect_rc 0 "map writes an SVG" "$BIN" map --layers 2 --out "$T/map.svg"
-grep -q "</svg>" "$T/map.svg" && ok "map SVG complete" || bad "map SVG complete"
-expect_rc 1 "map into a missing folder" "$BIN" map --out "$T/none/map.svg"
+expect_rc 0 "plan writes an SVG" "$BIN" plan --layers 2 --out "$T/plan.svg"
+grep -q "</svg>" "$T/plan.svg" && ok "plan SVG complete" || bad "plan SVG complete"
+expect_rc 1 "plan into a missing folder" "$BIN" plan --out "$T/none/plan.svg"
 [ ! -e "$T/none" ] && ok "no partial output" || bad "partial output left"
-expect_rc 2 "map refuses an unknown format" "$BIN" map --out "$T/map.gif"
-expect_rc 0 "map writes a PNG" "$BIN" map --quiet --out "$T/map.png"
-"$BIN" inspect "$T/map.png" > /dev/null 2>&1 && ok "map PNG reads back" || bad "map PNG reads back"
+expect_rc 2 "plan refuses an unknown format" "$BIN" plan --out "$T/plan.gif"
+expect_rc 0 "plan writes a PNG" "$BIN" plan --quiet -o "$T/plan.png"
+"$BIN" inspect "$T/plan.png" > /dev/null 2>&1 && ok "plan PNG reads back" || bad "plan PNG reads back"
+expect_rc 0 "plan writes a PDF" "$BIN" plan --quiet -o "$T/plan.pdf"
+head -c 5 "$T/plan.pdf" | grep -q '%PDF-' && ok "plan PDF header" || bad "plan PDF header"
 
 # analyze: outputs, contract bits, failures leave no output
 expect_rc 0 "analyze a sample" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/a" samples/HT285-A07-tile12.png
@@ -102,6 +104,20 @@ esac
 expect_rc 0 "analyze two images writes a catalogue" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/b" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
 [ -s "$T/b/catalog.csv" ] && [ -s "$T/b/catalog.json" ] && ok "catalogue files" || bad "catalogue files"
 head -2 "$T/b/catalog.csv" | tail -1 | grep -q ',1L,' && ok "catalogue starts with a monolayer" || bad "catalogue order: $(head -2 "$T/b/catalog.csv")"
+# stage convention, positions, the chip map
+expect_rc 2 "a stage axis that is not a direction" "$BIN" analyze --stage-axes sideways,up samples/HT285-A07-tile12.png
+grep -q "stage-axes" "$T/err" && ok "message names --stage-axes" || bad "stage message: $(cat "$T/err")"
+printf 'file,x_mm,y_mm\nHT285-A07-tile12.png,1.5,2.25\n' > "$T/pos.csv"
+expect_rc 0 "analyze with positions in mm" "$BIN" analyze --setup samples/bench3-setup.json --out "$T/p" --positions "$T/pos.csv" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
+grep -q "HT285-D04-tile21.jpg: not in the positions file" "$T/err" && ok "a tile missing from the positions is a warning naming it" || bad "missing tile: $(cat "$T/err")"
+grep -q "stage x,y mm" "$T/out" && ok "terminal table shows stage readings" || bad "terminal table: $(grep -A2 monolayer "$T/out")"
+head -1 "$T/p/goto.csv" | grep -q "stage_x_mm" && ok "goto.csv in the file's unit" || bad "goto.csv header: $(head -1 "$T/p/goto.csv")"
+[ -s "$T/p/report.html" ] && ok "report.html with positions" || bad "report.html"
+expect_rc 0 "chip map from the results folder" "$BIN" map "$T/p" -o "$T/chip.png"
+"$BIN" inspect "$T/chip.png" > /dev/null 2>&1 && ok "chip map PNG reads back" || bad "chip map PNG"
+expect_rc 2 "map of a folder without positions" "$BIN" map "$T/b" -o "$T/chip2.svg"
+expect_rc 2 "watch without a folder" "$BIN" watch
+expect_rc 1 "catalog merge of a missing folder" "$BIN" catalog merge --out "$T/m" "$T/none"
 expect_rc 1 "analyze a truncated JPEG" "$BIN" analyze --quiet --out "$T/c" "$T/cut.jpg"
 [ -z "$(ls "$T/c" 2>/dev/null)" ] && ok "no output for a bad image" || bad "output left for a bad image"
 grep -q "cut.jpg" "$T/err" && ok "message names the image" || bad "message: $(cat "$T/err")"
