@@ -263,6 +263,7 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->fitted = im->oxide.fitted && im->regions_used > 0;
     o->estimate = o->fitted ? im->oxide.value : o->nominal;
     o->sigma = o->fitted ? im->oxide.sigma : NAN;
+    o->sigma_given_shared = o->fitted ? im->oxide_sigma_given_shared : NAN;
     if (o->fitted)
         snprintf(o->method, sizeof o->method,
                  "joint fit with the shared parameters over %zu region(s); sigma includes them",
@@ -302,6 +303,62 @@ static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
     return st;
 }
 
+/* Posterior, usable rectangle and flags of every region. */
+static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft)
+{
+    lam_analysis *a = r->a;
+    for (size_t i = 0; i < a->count; i++) {
+        lam_region_result *res = &a->results[i];
+        lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);
+        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+    }
+}
+
+/* A region whose layer count is settled enough to join its neighbours of
+ * the same count: its label's probability reaches 0.9 and the model
+ * describes it. */
+static int join_key(const lam_region_result *res)
+{
+    const unsigned bad = LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED;
+    return res->layers > 0 && res->p_label >= 0.9 && !(res->flags & bad) ? res->layers : -1;
+}
+
+/* Parts of one flake with one confident layer count become one region
+ * (lam_segment_join), measured and inferred again. Band and hole pixels
+ * join when every channel is within 0.3 of the monolayer step of the
+ * strongest channel (the fraction that marks an edge there) plus 3 sigma of
+ * the denoised pixel noise (the raw sigma / 3 after the 3 x 3 filter): a
+ * channel where the monolayer barely shows (often blue) must not make JPEG
+ * chroma errors look like features. */
+static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+                             lam_error *err)
+{
+    lam_analysis *a = r->a;
+    size_t n = a->count, joined = 0;
+    int *key = malloc((n ? n : 1) * sizeof *key);
+    uint32_t *map = malloc((n ? n : 1) * sizeof *map);
+    lam_status st = key && map ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot join regions");
+    double fill[3] = {0, 0, 0}, step = 0;
+    for (size_t c = 0; c < a->channels; c++)
+        step = fmax(step, fabs(a->ladder.contrast[1][c]));
+    for (size_t c = 0; c < a->channels; c++)
+        fill[c] = 0.3 * step + a->substrate.noise[c];
+    for (size_t i = 0; i < n && !st; i++)
+        key[i] = join_key(&a->results[i]);
+    if (!st)
+        st = lam_segment_join(r->img, a->channels, key, fill, a->seg, map, &joined, err);
+    free(key);
+    free(map);
+    if (st)
+        return st;
+    a->count = a->seg->count;
+    for (size_t i = 0; i < a->count; i++)
+        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
+                           a->channels, &a->measured[i]);
+    infer_all(r, v, ft);
+    return LAM_OK;
+}
+
 static lam_status posterior_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -320,11 +377,10 @@ static lam_status posterior_stage(run *r, lam_error *err)
         st = lam_estimate_view(a->estimate, 0, r->model, v, err);
     if (!st && ft)
         st = fermi_table(r, ft, err);
-    for (size_t i = 0; i < a->count && !st; i++) {
-        lam_region_result *res = &a->results[i];
-        lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &io, res);
-        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
-    }
+    if (!st)
+        infer_all(r, v, ft);
+    if (!st)
+        st = join_stage(r, v, ft, err);
     free(v);
     free(ft);
     MARK(r, LAM_T_REGIONS);

@@ -735,6 +735,7 @@ static void laplace(fit_ctx *f)
         }
         lam_nuisance *o = &e->image[j].oxide;
         o->sigma = o->fitted ? sqrt(1 / ajj + quad) : 0;
+        e->image[j].oxide_sigma_given_shared = o->fitted ? sqrt(1 / ajj) : 0;
     }
 }
 

@@ -292,9 +292,10 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
 /* Is a region the bare substrate: every channel within tolerance of zero? */
 static int at_zero(const lam_region_stats *r, size_t channels, const double *tol)
 {
-    double n = r->interior ? (double)r->interior : 1;
+    if (!r->interior)
+        return 0; /* no measurement: a speck inside an edge band, dropped later */
     for (size_t c = 0; c < channels; c++)
-        if (fabs(r->sum[c] / n) > tol[c])
+        if (fabs(r->sum[c] / (double)r->interior) > tol[c])
             return 0;
     return 1;
 }

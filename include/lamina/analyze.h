@@ -61,6 +61,8 @@ typedef struct lam_analysis_options {
 
 typedef struct lam_oxide_result {
     double nominal, estimate, sigma; /* estimate = nominal when not fitted */
+    double sigma_given_shared;       /* sigma were the shared parameters exact (see
+                                      * lam_est_image): the part independent per image */
     int fitted, pass;
     size_t regions_used;
     char method[128];

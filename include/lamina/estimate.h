@@ -88,7 +88,12 @@ typedef struct lam_est_region {
 typedef struct lam_est_image {
     size_t count;
     lam_est_region *regions;       /* owned copy */
-    lam_nuisance oxide;            /* this image's oxide thickness, nm */
+    lam_nuisance oxide;            /* this image's oxide thickness, nm; its sigma includes
+                                    * the shared parameters' uncertainty */
+    double oxide_sigma_given_shared; /* the oxide's sigma were the shared parameters known
+                                    * exactly (the part that averages down over images);
+                                    * the rest, sqrt(sigma^2 - this^2), is common to every
+                                    * image the shared parameters describe */
     double log_posterior;          /* this image's share at the optimum */
     size_t regions_used, confident;
     double grid_best, grid_scale;  /* the starting grid's best score and its contrast scale */

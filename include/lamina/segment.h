@@ -95,6 +95,25 @@ lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const
                                const lam_segment_options *opt, lam_segmentation *seg,
                                lam_error *err);
 
+/* Join the parts of one flake that artefacts cut apart, once their layer
+ * counts are known: regions i and j (index id-1) with key[i] == key[j] >= 0
+ * (the caller's confident layer count; -1: never joined) that touch, or
+ * face each other across a band of at most 10 transition pixels crossed by
+ * at least 4 straight row or column runs, become one region. Band pixels
+ * whose contrast is within fill[c] of the joined region's interior mean in
+ * every channel join it; the rest (a crack, the substrate between two
+ * flakes) stay out. A hole of transition pixels inside one such region (no
+ * larger than 1/20 of it, or 64 px, with 80 % of its pixels within fill)
+ * is filled. Regions are renumbered in row-major order of their
+ * first pixel and their statistics recomputed; map (seg->count entries,
+ * caller storage) receives each old id's new id, *joined the number of
+ * regions that disappeared. LAM_ENOMEM only. The caller re-measures and
+ * re-infers when *joined or holes changed the statistics (compare areas, or
+ * simply always). */
+lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
+                            const double fill[3], lam_segmentation *seg, uint32_t *map,
+                            size_t *joined, lam_error *err);
+
 /* Connected regions of non-substrate classes with their statistics (used
  * for label maps, whose classes are given). */
 lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,

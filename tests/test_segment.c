@@ -1,0 +1,123 @@
+/* test_segment.c - uniform-contrast regions and the joining of one flake's
+ * parts (lam_segment_uniform, lam_segment_join) on contrast maps drawn
+ * here: geometry, not physics, so the values are invented for the test.
+ * Contrasts are of the size graphene shows on 285 nm SiO2 (a monolayer
+ * 0.05-0.12 in red and green, little in blue); what matters is that an
+ * artefact is small against that step and a feature is not. */
+#include "check.h"
+#include "lamina/segment.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define W 240
+#define H 160
+
+static const double MONO[3] = {0.06, 0.11, 0.01};
+
+static void paint(lam_image *img, size_t x0, size_t y0, size_t x1, size_t y1, const double c[3])
+{
+    for (size_t y = y0; y < y1; y++)
+        for (size_t x = x0; x < x1; x++)
+            for (int k = 0; k < 3; k++)
+                img->plane[k][y * W + x] = (float)c[k];
+}
+
+/* Deterministic pixel noise of sigma ~0.002 (sum of uniforms). */
+static void add_noise(lam_image *img)
+{
+    unsigned s = 12345;
+    for (size_t i = 0; i < (size_t)W * H; i++)
+        for (int k = 0; k < 3; k++) {
+            double u = 0;
+            for (int t = 0; t < 4; t++) {
+                s = s * 1103515245u + 12345u;
+                u += (double)(s >> 8) / 16777216.0 - 0.5;
+            }
+            img->plane[k][i] += (float)(0.002 * u * 1.732);
+        }
+}
+
+/* The scene: flake A (a monolayer, 140 x 100) cut across by a 3 px line
+ * of JPEG-like error, its halves offset by a fifth of a step in red; inside
+ * it a hole to the substrate, a bilayer island and a residue speck; flake
+ * B, a monolayer 20 px away. */
+static lam_image *scene(void)
+{
+    lam_image *img = NULL;
+    lam_error err;
+    if (lam_image_alloc(W, H, &img, &err))
+        return NULL;
+    memset(img->clipped, 0, (size_t)W * H);
+    const double zero[3] = {0, 0, 0}, bi[3] = {0.12, 0.21, 0.02};
+    const double shifted[3] = {MONO[0] + 0.012, MONO[1], MONO[2]};
+    const double cut[3] = {MONO[0], MONO[1] + 0.025, MONO[2] - 0.02};
+    const double speck[3] = {MONO[0], MONO[1] + 0.08, MONO[2]};
+    paint(img, 0, 0, W, H, zero);
+    paint(img, 20, 30, 90, 130, MONO);
+    paint(img, 90, 30, 160, 130, shifted);
+    paint(img, 88, 30, 91, 130, cut);
+    paint(img, 40, 50, 50, 60, zero);   /* a hole to the substrate */
+    paint(img, 120, 90, 136, 106, bi);  /* an island of another count */
+    paint(img, 60, 100, 63, 103, speck); /* residue */
+    paint(img, 180, 40, 225, 120, MONO); /* flake B */
+    add_noise(img);
+    return img;
+}
+
+static int key_of(const lam_region_stats *r)
+{
+    double g = r->interior ? r->sum[1] / (double)r->interior : 0;
+    int n = (int)lround(g / MONO[1]);
+    return n >= 1 && fabs(g - n * MONO[1]) < 0.3 * MONO[1] ? n : -1;
+}
+
+static uint32_t label_at(const lam_segmentation *s, size_t x, size_t y)
+{
+    return s->label[y * W + x];
+}
+
+int main(void)
+{
+    check_begin("test_segment");
+    lam_image *img = scene();
+    if (!check_true(img != NULL, "scene allocated"))
+        return check_summary();
+    lam_segmentation *seg = NULL;
+    lam_error err;
+    lam_segment_options so = lam_segment_options_default();
+    double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
+    check_int(lam_segmentation_alloc(W, H, &seg, &err), LAM_OK, "segmentation allocated");
+    check_int(lam_segment_uniform(img, 3, MONO, noise, scatter, &so, seg, &err), LAM_OK,
+              "uniform segmentation");
+    uint32_t left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
+    check_true(left && right && left != right,
+               "the cut splits flake A into two regions before joining (%u, %u)", left, right);
+    int *key = malloc(seg->count * sizeof *key);
+    uint32_t *map = malloc(seg->count * sizeof *map);
+    for (size_t i = 0; i < seg->count; i++)
+        key[i] = key_of(&seg->regions[i]);
+    size_t joined = 0;
+    double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
+    check_int(lam_segment_join(img, 3, key, fill, seg, map, &joined, &err), LAM_OK, "join");
+    left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
+    check_true(left && left == right, "after joining flake A is one region (%u, %u)", left, right);
+    check_true(joined >= 1, "at least one region disappeared (%zu)", joined);
+    check_true(label_at(seg, 89, 80) == left, "the cut's pixels close to the flake joined it");
+    check_true(label_at(seg, 45, 55) != left, "the hole to the substrate stays out");
+    uint32_t island = label_at(seg, 128, 98);
+    check_true(island && island != left, "the bilayer island stays its own region (%u)", island);
+    check_true(label_at(seg, 61, 101) != left, "the residue speck stays out");
+    uint32_t b = label_at(seg, 200, 80);
+    check_true(b && b != left, "flake B, 20 px away, stays a flake of its own (%u)", b);
+    int consistent = 1;
+    for (size_t i = 0; i < seg->count; i++)
+        consistent &= seg->regions[i].id == i + 1 && seg->regions[i].area > 0;
+    check_true(consistent, "regions renumbered 1..%zu with their statistics", seg->count);
+    free(key);
+    free(map);
+    lam_segmentation_free(seg);
+    lam_image_free(img);
+    return check_summary();
+}
