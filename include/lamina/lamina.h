@@ -36,6 +36,7 @@
 #include "lamina/planmap.h"
 #include "lamina/plot.h"
 #include "lamina/png.h"
+#include "lamina/pool.h"
 #include "lamina/raster.h"
 #include "lamina/render.h"
 #include "lamina/report.h"
