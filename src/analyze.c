@@ -229,12 +229,31 @@ static lam_status substrate_stage(run *r, lam_error *err)
     return LAM_OK;
 }
 
+/* One JPEG DC quantisation step (code values, lam_image.jpeg_dc_step) as
+ * a relative change of linear light at the substrate's level, per channel:
+ * the size of the colour steps a lossy file makes in flat areas. */
+static void file_steps(const lam_image *img, const lam_substrate *sub, size_t channels,
+                       double out[3])
+{
+    for (size_t c = 0; c < 3; c++) {
+        out[c] = 0;
+        double level = sub->level[c < channels ? c : 0], q = img->jpeg_dc_step[c];
+        if (c >= channels || !(q > 0) || !(level > 0))
+            continue;
+        double v = lam_transfer_encode(&img->transfer, fmin(level, 1.0));
+        double up = lam_transfer_decode(&img->transfer, fmin(v + q / 255.0, 1.0));
+        out[c] = (up - level) / level;
+    }
+}
+
 /* Regions of uniform contrast (model-independent), measured. */
 static lam_status segment_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
+    file_steps(r->img, &a->substrate, a->channels, so.file_step);
+    memcpy(a->file_step, so.file_step, sizeof a->file_step);
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
                                         a->substrate.noise, a->substrate.tile_scatter, &so,
                                         a->seg, err);

@@ -10,7 +10,6 @@
 #include <stdio.h>
 #define DEBUGFIT getenv("LAMINA_DEBUG_FIT")
 
-#define GRID_LAYERS 12      /* ladder depth for the oxide grid (thick up to 12) */
 #define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
 #define MAX_TRIES 8         /* damping increases per iteration */
 #define ALT_MARGIN 10.0     /* grid maxima this close to the best are refitted */
@@ -135,8 +134,8 @@ static double shared_logprior(const lam_estimate *e)
 }
 
 /* Ladder of image j at the current point, gains applied, N = 0..layers. */
-static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
-                               lam_prediction *out, lam_error *err)
+lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
+                            lam_prediction *out, lam_error *err)
 {
     lam_model_point p = lam_estimate_point(e, j);
     lam_status st = lam_model_eval_point(model, &p, layers, out, err);
@@ -147,8 +146,8 @@ static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model
 
 /* log posterior share of image j (its regions and its oxide prior); fills
  * responsibilities when resp is given. */
-static double image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
-                            double *resp)
+double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                          double *resp)
 {
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
@@ -172,10 +171,10 @@ static lam_status objective(lam_estimate *e, lam_model *model, img_work *w, doub
 {
     double total = shared_logprior(e);
     for (size_t j = 0; j < e->images; j++) {
-        lam_status st = image_ladder(e, j, model, FIT_LAYERS, &w[j].ladder, err);
+        lam_status st = lam__image_ladder(e, j, model, FIT_LAYERS, &w[j].ladder, err);
         if (st)
             return st;
-        double v = image_logpost(e, j, &w[j].ladder, w[j].resp);
+        double v = lam__image_logpost(e, j, &w[j].ladder, w[j].resp);
         e->image[j].log_posterior = v;
         total += v;
     }
@@ -407,204 +406,6 @@ static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *
     return st;
 }
 
-/* ---- the starting grid: oxide x contrast scale ----
- *
- * The posterior has two kinds of far-apart modes: the oxide repeats its
- * colours, and an overall contrast scale trades against the layer counts
- * (a response 20 % stronger makes a trilayer look like a bilayer of the
- * default). So each image is scored on a grid of oxide thickness x a
- * common contrast scale s (the ladder multiplied by s, with a log-normal
- * prior for what the response family and the gains can do); the fit
- * starts at the best cell, the response's continuum set to give that
- * scale, and a multistart tries the next local maxima. */
-#define SCALE_STEPS 13
-#define SCALE_MIN 0.65
-#define SCALE_MAX 1.5
-#define SCALE_PRIOR_SD_LOG 0.18
-
-static double scale_at(int k)
-{
-    return SCALE_MIN * pow(SCALE_MAX / SCALE_MIN, k / (double)(SCALE_STEPS - 1));
-}
-
-typedef struct grid {
-    size_t n;          /* oxide steps */
-    double lo, step;
-    double *score;     /* n x SCALE_STEPS */
-} grid;
-
-static void scaled(const lam_prediction *P, double s, lam_prediction *out)
-{
-    *out = *P;
-    for (size_t N = 0; N <= P->max_layers; N++)
-        for (size_t c = 0; c < P->channels; c++)
-            out->contrast[N][c] *= s;
-}
-
-static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
-                            grid *g, lam_error *err)
-{
-    lam_est_image *im = &e->image[j];
-    double half = e->opt.search_half_nm;
-    g->step = e->opt.search_step_nm;
-    g->lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
-    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
-    g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
-    if (!im->oxide.fitted)
-        g->lo = im->oxide.value;
-    g->score = malloc(g->n * SCALE_STEPS * sizeof *g->score);
-    if (!g->score)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
-    lam_prediction *Q = P + 1;
-    lam_status st = LAM_OK;
-    for (size_t d = 0; d < g->n && !st; d++) {
-        im->oxide.value = g->lo + g->step * (double)d;
-        if ((st = image_ladder(e, j, model, GRID_LAYERS, P, err)))
-            break;
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            double z = log(scale_at(k)) / SCALE_PRIOR_SD_LOG;
-            scaled(P, scale_at(k), Q);
-            g->score[d * SCALE_STEPS + (size_t)k] = image_logpost(e, j, Q, NULL) - 0.5 * z * z;
-        }
-    }
-    return st;
-}
-
-static int is_peak(const grid *g, size_t d, int k)
-{
-    double v = g->score[d * SCALE_STEPS + (size_t)k];
-    for (int dd = -1; dd <= 1; dd++)
-        for (int dk = -1; dk <= 1; dk++) {
-            long x = (long)d + dd, y = k + dk;
-            if ((!dd && !dk) || x < 0 || y < 0 || (size_t)x >= g->n || y >= SCALE_STEPS)
-                continue;
-            double o = g->score[(size_t)x * SCALE_STEPS + (size_t)y];
-            if (o > v || (o == v && (dd < 0 || (dd == 0 && dk < 0))))
-                return 0;
-        }
-    return 1;
-}
-
-/* The best cell and the next three local maxima of one image's grid. */
-static void pick_cells(lam_est_image *im, const grid *g)
-{
-    double best = -INFINITY;
-    for (int k = 0; k < 3; k++)
-        im->alt_oxide[k] = im->alt_scale[k] = im->alt_score[k] = NAN;
-    for (size_t d = 0; d < g->n; d++)
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            if (!is_peak(g, d, k))
-                continue;
-            double v = g->score[d * SCALE_STEPS + (size_t)k];
-            double od = g->lo + g->step * (double)d, sc = scale_at(k);
-            if (v > best) {
-                double t = best, tod = im->oxide.value, tsc = im->grid_scale;
-                best = v, im->oxide.value = od, im->grid_scale = sc;
-                v = t, od = tod, sc = tsc;
-                if (!isfinite(v))
-                    continue;
-            }
-            for (int m = 0; m < 3; m++)
-                if (!(v <= im->alt_score[m])) {
-                    for (int q = 2; q > m; q--) {
-                        im->alt_oxide[q] = im->alt_oxide[q - 1];
-                        im->alt_scale[q] = im->alt_scale[q - 1];
-                        im->alt_score[q] = im->alt_score[q - 1];
-                    }
-                    im->alt_oxide[m] = od, im->alt_scale[m] = sc, im->alt_score[m] = v;
-                    break;
-                }
-        }
-    im->grid_best = best;
-}
-
-/* The continuum that scales the interband plateau by s. */
-static void start_scale(lam_estimate *e, double s)
-{
-    lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
-    if (c->fitted)
-        c->value = clamp((1 + c->prior_mean) * s - 1, c);
-}
-
-/* Many images share one scale: the one best summed over the images (each
- * at its best oxide for that scale). */
-static double pooled_scale(const lam_estimate *e, grid *g)
-{
-    double best = -INFINITY, bs = 1;
-    for (int k = 0; k < SCALE_STEPS; k++) {
-        double tot = 0;
-        for (size_t j = 0; j < e->images; j++) {
-            double m = -INFINITY;
-            for (size_t d = 0; d < g[j].n; d++)
-                m = fmax(m, g[j].score[d * SCALE_STEPS + (size_t)k]);
-            tot += m;
-        }
-        if (tot > best)
-            best = tot, bs = scale_at(k);
-    }
-    return bs;
-}
-
-static void oxide_at_scale(lam_est_image *im, const grid *g, double s)
-{
-    int k = 0;
-    while (k + 1 < SCALE_STEPS && scale_at(k) < s - 1e-9)
-        k++;
-    double best = -INFINITY;
-    for (size_t d = 0; d < g->n; d++)
-        if (g->score[d * SCALE_STEPS + (size_t)k] > best)
-            best = g->score[d * SCALE_STEPS + (size_t)k], im->oxide.value = g->lo + g->step * (double)d;
-}
-
-static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
-{
-    lam_prediction *P = malloc(2 * sizeof *P);
-    grid *g = calloc(e->images ? e->images : 1, sizeof *g);
-    lam_status st = P && g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
-    for (size_t j = 0; j < e->images && !st; j++)
-        if (!(st = fill_grid(e, j, model, P, &g[j], err)))
-            pick_cells(&e->image[j], &g[j]);
-    if (!st && getenv("LAMINA_DEBUG_REG")) {
-        lam_est_image *im0 = &e->image[0];
-        double ds[2] = {0.65, 1.059};
-        im0->oxide.value = atof(getenv("LAMINA_DEBUG_REG"));
-        image_ladder(e, 0, model, GRID_LAYERS, P, err);
-        for (size_t i = 0; i < im0->count; i++) {
-            const lam_est_region *r = &im0->regions[i];
-            if (!r->use) continue;
-            double z[2]; int b[2];
-            for (int q = 0; q < 2; q++) {
-                double lt[40]; scaled(P, ds[q], P + 1);
-                lam__region_logterms(e, r, P + 1, lt);
-                z[q] = lam__logsumexp(lt, e->max_layers + 3); b[q] = 0;
-                for (size_t h = 0; h < e->max_layers + 3; h++) if (lt[h] > lt[b[q]]) b[q] = (int)h;
-            }
-            fprintf(stderr, "DEBUGREG %zu m=%.4f %.4f %.4f v=%.2g %.2f(%d) %.2f(%d) %.2f\n", i, r->mean[0], r->mean[1], r->mean[2], r->var[1], z[0], b[0], z[1], b[1], z[0]-z[1]);
-        }
-    }
-    if (!st && DEBUGFIT)
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            double m = -INFINITY, md = 0;
-            for (size_t d = 0; d < g[0].n; d++)
-                if (g[0].score[d * SCALE_STEPS + (size_t)k] > m)
-                    m = g[0].score[d * SCALE_STEPS + (size_t)k], md = g[0].lo + g[0].step * (double)d;
-            fprintf(stderr, "  scale %.3f: best %.2f at %.1f\n", scale_at(k), m, md);
-        }
-    if (!st) {
-        double s = e->images == 1 ? e->image[0].grid_scale : pooled_scale(e, g);
-        e->start_scale = s;
-        start_scale(e, s);
-        for (size_t j = 0; j < e->images && e->images > 1; j++)
-            oxide_at_scale(&e->image[j], &g[j], s);
-        if (DEBUGFIT) fprintf(stderr, "grid: scale %.3f oxide %.1f alts %.1f/%.2f %.1f/%.2f\n", s, e->image[0].oxide.value, e->image[0].alt_oxide[0], e->image[0].alt_scale[0], e->image[0].alt_oxide[1], e->image[0].alt_scale[1]);
-    }
-    for (size_t j = 0; g && j < e->images; j++)
-        free(g[j].score);
-    free(g);
-    free(P);
-    return st;
-}
-
 /* ---- the floor from the residuals of confidently assigned regions ---- */
 
 /* The floor has an absolute part (flat-field and JPEG colour-quantisation
@@ -808,9 +609,7 @@ typedef struct start_point {
 
 static void apply_start(lam_estimate *e, const start_point *sp)
 {
-    const lam_est_image *im = &e->image[sp->image];
-    e->image[sp->image].oxide.value = im->alt_oxide[sp->alt];
-    start_scale(e, im->alt_scale[sp->alt]);
+    lam__start_at(e, (size_t)sp->image, sp->alt);
 }
 
 static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
@@ -882,7 +681,7 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         return st;
     double lp = 0;
     e->iterations = 0;
-    if (!(st = all_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
+    if (!(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
         st = multistart(&f, &lp, err);
     if (!st) {
         laplace(&f);

@@ -86,6 +86,8 @@ typedef struct lam_analysis {
     lam_region_result *results;     /* count entries, region i has id i+1 */
     lam_est_region *measured;       /* count entries: the regions' measurements */
     lam_oxide_result oxide;
+    double file_step[3];            /* a lossy file's colour step per channel, contrast
+                                     * units (one JPEG DC quantisation step); 0 lossless */
     lam_estimate *estimate;         /* the fit (owned); its image 0 is this one */
     lam_prediction ladder;          /* observed-scale ladder at the estimate, N = 0..40 */
     size_t max_layers;

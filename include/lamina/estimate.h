@@ -97,7 +97,9 @@ typedef struct lam_est_image {
     double log_posterior;          /* this image's share at the optimum */
     size_t regions_used, confident;
     double grid_best, grid_scale;  /* the starting grid's best score and its contrast scale */
+    double grid_factor[LAM_MAX_CHANNELS]; /* ... and its per-channel contrast factors */
     double alt_oxide[3], alt_scale[3], alt_score[3]; /* other grid maxima (NAN when none) */
+    double alt_factor[3][LAM_MAX_CHANNELS];
 } lam_est_image;
 
 typedef struct lam_estimate_options {

@@ -2,6 +2,7 @@
  * score the layer counts, the oxide and the Fermi levels. */
 #include "robust.h"
 #include "lamina/analyze.h"
+#include "lamina/pool.h"
 #include "lamina/setup.h"
 
 #include <math.h>
@@ -95,33 +96,77 @@ static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tal
     t->oxide_covered += err <= 2 * a->oxide.sigma;
 }
 
-static int analyse(const char *img, const char *setup_path, const synth_scene *sc,
-                   robust_tally *t, FILE *log)
+static int load_setup(const char *path, lam_setup *s)
 {
-    lam_setup s;
     lam_error err;
     lam_error_clear(&err);
-    lam_setup_default(&s);
-    if (lam_setup_load(setup_path, &s, &err)) {
-        fprintf(stderr, "robust: %s: %s\n", setup_path, err.message);
+    lam_setup_default(s);
+    if (lam_setup_load(path, s, &err)) {
+        fprintf(stderr, "robust: %s: %s\n", path, err.message);
         return -1;
     }
+    return 0;
+}
+
+/* Analyse one image (with a pooled prior when given), score it, and hand
+ * the analysis to the pool when one is given. */
+static int analyse(const char *img, const lam_setup *s, const lam_shared_prior *prior,
+                   const synth_scene *sc, robust_tally *t, FILE *log, lam_pool *pool)
+{
+    char name[1200];
+    snprintf(name, sizeof name, "%s [%s%s]", img,
+             lam_setup_is_default(s, "camera") ? "uninformed" : "informed",
+             prior ? " pooled" : "");
+    lam_error err;
+    lam_error_clear(&err);
     lam_analysis_options opt = lam_analysis_options_default();
     opt.threads = 1;
+    opt.shared_prior = prior;
     lam_analysis *a = NULL;
     double t0 = now_s();
     int rc = 0;
-    if (lam_analyze(img, &s, &opt, &a, &err)) {
+    if (lam_analyze(img, s, &opt, &a, &err)) {
         fprintf(stderr, "robust: %s: %s\n", img, err.message);
         rc = -1;
     } else {
         t->seconds += now_s() - t0;
         t->images++;
-        score_flakes(sc, a, t, log, img);
+        score_flakes(sc, a, t, log, name);
         score_oxide(sc, a, t);
+        if (pool && lam_pool_add(pool, a, &err)) {
+            fprintf(stderr, "robust: %s: %s\n", img, err.message);
+            rc = -1;
+        }
     }
     lam_analysis_free(a);
-    lam_setup_clear(&s);
+    return rc;
+}
+
+/* Render one tile: physics from physics_seed, flakes from layout_seed; the
+ * image, its setup (written when 'setup' is not NULL) and its truth. */
+static int render_tile(const robust_case *c, unsigned long long physics_seed,
+                       unsigned long long layout_seed, const char *dir, synth_scene *sc,
+                       char *img, size_t img_size, const char *setup)
+{
+    synth_image im;
+    if (synth_scene_make2(&c->cfg, physics_seed, layout_seed, sc)) {
+        fprintf(stderr, "robust: scene %llu: %s\n", layout_seed, synth_error());
+        return -1;
+    }
+    char stem[1024];
+    snprintf(stem, sizeof stem, "%s/s%llu-%llu-%d", dir, physics_seed, layout_seed, (int)c->fmt);
+    snprintf(img, img_size, "%s.%s", stem, synth_format_ext(c->fmt));
+    int rc = synth_render(sc, &im);
+    if (!rc) {
+        rc = synth_save(&im, c->fmt, c->quality, img) ||
+             (setup && synth_write_setup(sc, c->fmt, c->informed, setup)) ||
+             synth_write_truth(sc, stem);
+        synth_image_free(&im);
+    }
+    if (rc) {
+        fprintf(stderr, "robust: scene %llu: %s\n", layout_seed, synth_error());
+        synth_scene_free(sc);
+    }
     return rc;
 }
 
@@ -129,26 +174,54 @@ int robust_run(const robust_case *c, unsigned long long seed, const char *dir, r
                FILE *log)
 {
     synth_scene sc;
-    synth_image im;
-    if (synth_scene_make(&c->cfg, seed, &sc)) {
-        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
+    char img[1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/s%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    if (render_tile(c, seed, seed, dir, &sc, img, sizeof img, setup))
         return -1;
-    }
-    char stem[1024], img[1100], setup[1100];
-    snprintf(stem, sizeof stem, "%s/s%llu-%d", dir, seed, (int)c->fmt);
-    snprintf(img, sizeof img, "%s.%s", stem, synth_format_ext(c->fmt));
-    snprintf(setup, sizeof setup, "%s.setup.json", stem);
-    int rc = synth_render(&sc, &im);
-    if (!rc) {
-        rc = synth_save(&im, c->fmt, c->quality, img) ||
-             synth_write_setup(&sc, c->fmt, c->informed, setup) || synth_write_truth(&sc, stem);
-        synth_image_free(&im);
-    }
-    if (rc)
-        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
-    else
-        rc = analyse(img, c->pooled_setup ? c->pooled_setup : setup, &sc, t, log);
+    lam_setup s;
+    int rc = load_setup(c->pooled_setup ? c->pooled_setup : setup, &s);
+    if (!rc)
+        rc = analyse(img, &s, NULL, &sc, t, log, NULL);
+    lam_setup_clear(&s);
     synth_scene_free(&sc);
+    return rc;
+}
+
+int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                     robust_tally *alone, robust_tally *pooled, FILE *log)
+{
+    if (tiles < 1 || tiles > LAM_POOL_MAX)
+        return -1;
+    synth_scene sc[LAM_POOL_MAX];
+    char img[LAM_POOL_MAX][1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/b%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    int made = 0, rc = 0;
+    for (; made < tiles && !rc; made++)
+        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
+                         img[made], sizeof img[made], made ? NULL : setup);
+    if (rc)
+        made--;
+    lam_setup s;
+    lam_pool *pool = NULL;
+    lam_shared_prior prior;
+    lam_error err;
+    lam_error_clear(&err);
+    if (!rc && !(rc = load_setup(setup, &s))) {
+        lam_analysis_options opt = lam_analysis_options_default();
+        rc = lam_pool_alloc(&s, &opt, &pool, &err) ? -1 : 0;
+        for (int k = 0; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, pool);
+        if (!rc && lam_pool_fit(pool, &prior, &err)) {
+            fprintf(stderr, "robust: pool: %s\n", err.message);
+            rc = -1;
+        }
+        for (int k = 0; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, &prior, &sc[k], pooled, log, NULL);
+        lam_pool_free(pool);
+        lam_setup_clear(&s);
+    }
+    for (int k = 0; k < made; k++)
+        synth_scene_free(&sc[k]);
     return rc;
 }
 

@@ -44,6 +44,13 @@ typedef struct robust_case {
 int robust_run(const robust_case *c, unsigned long long seed, const char *dir, robust_tally *t,
                FILE *log);
 
+/* A chip scan: 'tiles' scenes sharing the physics of 'seed' (microscope,
+ * response, oxide) with their own flakes, one setup for all; each tile is
+ * analysed alone (tallied in 'alone') and again with the prior pooled from
+ * all of them (lamina/pool.h; tallied in 'pooled'). tiles <= LAM_POOL_MAX. */
+int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                     robust_tally *alone, robust_tally *pooled, FILE *log);
+
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);
 
