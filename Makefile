@@ -54,7 +54,7 @@ LIBDIR   ?= $(PREFIX)/lib
 INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
-.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
+.PHONY: accuracy fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
         check-reference check-report
 
 all: $(BIN)
@@ -121,7 +121,7 @@ $(BUILD)/tests/robust/%.o: tests/robust/%.c
 $(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
-                $(SYNTH_OBJ)
+                $(SYNTH_OBJ) $(ROBUST_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
@@ -169,6 +169,15 @@ valgrind: deps
 	    $(TEST_SRC:tests/%.c=build-vg/tests/%)
 	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
 	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
+
+# The accuracy matrix of the analysis on independently rendered micrographs
+# (5 published graphene responses x 3 oxides x 4 file kinds, each with the
+# microscope given and unknown, each tile alone and chip scans pooled):
+# ~10 minutes on two cores. `make test` runs a quick subset (test_robust).
+ACCURACY_SCENES ?= 2
+accuracy: $(BUILD)/tests/robust/robust
+	$(BUILD)/tests/robust/robust --scenes $(ACCURACY_SCENES) --log $(BUILD)/accuracy-misses.log
+	$(BUILD)/tests/robust/robust --scenes 1 --batch 6 --log $(BUILD)/accuracy-pooled-misses.log
 
 # Outside reference: Debian's python3-meep (materials and a 1-D FDTD).
 $(BUILD)/tests/nk_dump: tests/reference/nk_dump.c $(LIB)

@@ -110,11 +110,23 @@ static void floor_priors(const lam_pool *p, lam_estimate *e)
     }
 }
 
+/* Each image analysed again with the pooled posterior as its prior would
+ * count its own regions twice. With n images informing the fit about
+ * equally, the posterior without one of them has (n - 1) / n of the data's
+ * precision: the standard deviations widen by sqrt(n / (n - 1)). A new
+ * image (at the microscope) gets the same, slightly cautious, prior. */
+static void leave_one_out(lam_shared_prior *out, size_t n)
+{
+    double f = sqrt((double)n / (double)(n - 1));
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        out->sd[k] *= f;
+}
+
 lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err)
 {
     memset(out, 0, sizeof *out);
-    if (!lam_pool_informative(p))
-        return LAM_OK;
+    if (lam_pool_informative(p) < 2)
+        return LAM_OK; /* one image's own posterior is no prior for it */
     lam_status st = LAM_OK;
     if (!p->model)
         st = lam_model_alloc_fast(&p->setup, LAM_MODEL_MAX_LAYERS, &p->model, err);
@@ -134,6 +146,8 @@ lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err)
     if (!st)
         lam_shared_prior_from(e, out);
     lam_estimate_free(e);
+    if (!st)
+        leave_one_out(out, lam_pool_informative(p));
     return st;
 }
 

@@ -54,8 +54,10 @@ size_t lam_pool_images(const lam_pool *p);
 size_t lam_pool_informative(const lam_pool *p);
 
 /* Fit the kept images jointly and return the shared parameters' posterior
- * as a prior (out->set = 0 when no image informs the fit: then analyse
- * with the setup's own priors). */
+ * as a prior, its standard deviations widened by sqrt(n / (n - 1)) for n
+ * informing images so that an image analysed again with it does not count
+ * its own regions twice (out->set = 0 when fewer than two images inform
+ * the fit: then analyse with the setup's own priors). */
 lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err);
 
 /* Indices of n evenly spread samples of 'total' items (the first, the last
