@@ -5,6 +5,7 @@
 #include "estimate_internal.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 #include <stdio.h>
@@ -314,6 +315,14 @@ static void restore_point(lam_estimate *e, const saved_point *s)
         e->image[j].oxide.value = s->oxide[j];
 }
 
+static void copy_point(saved_point *to, const saved_point *from, size_t images)
+{
+    memcpy(to->shared, from->shared, sizeof to->shared);
+    memcpy(to->floor_abs, from->floor_abs, sizeof to->floor_abs);
+    to->floor_rel = from->floor_rel;
+    memcpy(to->oxide, from->oxide, images * sizeof *to->oxide);
+}
+
 static double clamp(double v, const lam_nuisance *n)
 {
     return v < n->lo ? n->lo : (v > n->hi ? n->hi : v);
@@ -514,10 +523,16 @@ static void laplace(fit_ctx *f)
             for (size_t b = 0; b < n; b++)
                 s[a][b] -= f->q.a_sd[j * n + a] * f->q.a_sd[j * n + b] / f->q.a_dd[j];
     memset(inv, 0, sizeof inv);
+    double logdet_cov = 0; /* of the full covariance: shared block and oxides */
     if (n) {
         lam__cholesky_ridged(s, n, l);
         lam__cholesky_inverse(l, n, inv);
+        logdet_cov = -lam__cholesky_logdet(l, n);
     }
+    for (size_t j = 0; j < e->images; j++)
+        if (e->image[j].oxide.fitted && f->q.a_dd[j] > 0)
+            logdet_cov -= log(f->q.a_dd[j]);
+    e->log_evidence = 0.5 * logdet_cov; /* the caller adds the log posterior */
     memset(e->cov, 0, sizeof e->cov);
     for (size_t a = 0; a < n; a++) {
         for (size_t b = 0; b < n; b++)
@@ -548,13 +563,17 @@ static void count_regions(lam_estimate *e, const img_work *w)
     for (size_t j = 0; j < e->images; j++) {
         lam_est_image *im = &e->image[j];
         im->regions_used = im->confident = 0;
+        double unmodelled = 0;
         for (size_t i = 0; i < im->count; i++) {
             if (!im->regions[i].use)
                 continue;
             im->regions_used++;
             for (size_t h = 1; h <= K; h++)
                 im->confident += w[j].resp[i * H + h] >= 0.9;
+            unmodelled += w[j].resp[i * H + K + 2];
         }
+        im->unmodelled_share = im->regions_used ? unmodelled / (double)im->regions_used : 0;
+        im->data_loglik = im->log_posterior - prior_term(&im->oxide);
     }
 }
 
@@ -607,20 +626,42 @@ typedef struct start_point {
     int image, alt;
 } start_point;
 
+/* alt >= 0: a grid maximum; DOUBLED / HALVED: the best cell read with
+ * every layer count halved / doubled (the scale twice / half as large). */
+#define START_DOUBLED (-1)
+#define START_HALVED (-2)
+
 static void apply_start(lam_estimate *e, const start_point *sp)
 {
-    lam__start_at(e, (size_t)sp->image, sp->alt);
+    if (sp->alt == START_DOUBLED)
+        lam__start_rescaled(e, (size_t)sp->image, 2.0);
+    else if (sp->alt == START_HALVED)
+        lam__start_rescaled(e, (size_t)sp->image, 0.5);
+    else
+        lam__start_at(e, (size_t)sp->image, sp->alt);
+}
+
+/* A doubled or halved scale is only worth a start when the response can
+ * reach it: the continuum's range bounds the scale. */
+static int scale_reachable(const lam_estimate *e, double s)
+{
+    const lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
+    return c->fitted && s >= 1 + c->lo && s <= 1 + c->hi;
 }
 
 static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
 {
     size_t n = 0;
-    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++)
-        for (int k = 0; k < 3 && n < cap; k++) {
-            const lam_est_image *im = &e->image[j];
+    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++) {
+        const lam_est_image *im = &e->image[j];
+        for (int k = 0; k < 3 && n < cap; k++)
             if (isfinite(im->alt_oxide[k]) && im->alt_score[k] > im->grid_best - ALT_MARGIN)
                 sp[n++] = (start_point){(int)j, k};
-        }
+        if (j == 0 && n < cap && scale_reachable(e, 2 * im->grid_scale))
+            sp[n++] = (start_point){0, START_DOUBLED};
+        if (j == 0 && n < cap && scale_reachable(e, 0.5 * im->grid_scale))
+            sp[n++] = (start_point){0, START_HALVED};
+    }
     return n;
 }
 
@@ -632,41 +673,164 @@ static lam_status settle(fit_ctx *f, double *lp, lam_error *err)
     return st ? st : refloor(f, lp, err);
 }
 
-static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
+/* The layer-count signature of a settled point: the most responsible
+ * hypothesis of every informing region. */
+static void signature(const lam_estimate *e, const img_work *w, uint8_t *sig)
+{
+    size_t H = e->max_layers + 3, k = 0;
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t i = 0; i < e->image[j].count; i++, k++) {
+            size_t best = 0;
+            for (size_t h = 1; h < H; h++)
+                if (w[j].resp[i * H + h] > w[j].resp[i * H + best])
+                    best = h;
+            sig[k] = e->image[j].regions[i].use ? (uint8_t)best : 255;
+        }
+}
+
+/* Two points are different modes when a fifth of the informing regions
+ * (at least one) changes its layer count between them. */
+static int distinct(const uint8_t *a, const uint8_t *b, size_t n)
+{
+    size_t used = 0, changed = 0;
+    for (size_t k = 0; k < n; k++)
+        if (a[k] != 255) {
+            used++;
+            changed += a[k] != b[k];
+        }
+    return changed >= 1 && changed * 5 >= used;
+}
+
+typedef struct mode_set {
+    saved_point best, rival, first;
+    uint8_t *sig_best, *sig_rival, *sig_now;
+    double best_lp, rival_lp;
+    size_t regions;
+} mode_set;
+
+/* Keep the settled point if it beats the best, or is the best distinct
+ * rival so far. */
+static void consider(fit_ctx *f, mode_set *m, double lp)
+{
+    signature(f->e, f->w, m->sig_now);
+    if (lp > m->best_lp + 1e-6) {
+        if (distinct(m->sig_now, m->sig_best, m->regions)) { /* the old best becomes the rival */
+            m->rival_lp = m->best_lp;
+            copy_point(&m->rival, &m->best, f->e->images);
+            memcpy(m->sig_rival, m->sig_best, m->regions);
+        }
+        m->best_lp = lp;
+        save_point(f->e, &m->best);
+        memcpy(m->sig_best, m->sig_now, m->regions);
+    } else if (lp > m->rival_lp && distinct(m->sig_now, m->sig_best, m->regions)) {
+        m->rival_lp = lp;
+        save_point(f->e, &m->rival);
+        memcpy(m->sig_rival, m->sig_now, m->regions);
+    }
+}
+
+static size_t total_regions(const lam_estimate *e)
+{
+    size_t n = 0;
+    for (size_t j = 0; j < e->images; j++)
+        n += e->image[j].count;
+    return n;
+}
+
+static int mode_set_init(mode_set *m, const lam_estimate *e)
+{
+    size_t k = e->images ? e->images : 1, r = total_regions(e) ? total_regions(e) : 1;
+    memset(m, 0, sizeof *m);
+    m->regions = total_regions(e);
+    m->best.oxide = malloc(k * sizeof(double));
+    m->rival.oxide = malloc(k * sizeof(double));
+    m->first.oxide = malloc(k * sizeof(double));
+    m->sig_best = malloc(r), m->sig_rival = malloc(r), m->sig_now = malloc(r);
+    m->rival_lp = -INFINITY;
+    return m->best.oxide && m->rival.oxide && m->first.oxide && m->sig_best && m->sig_rival &&
+           m->sig_now;
+}
+
+static void mode_set_free(mode_set *m)
+{
+    free(m->best.oxide);
+    free(m->rival.oxide);
+    free(m->first.oxide);
+    free(m->sig_best);
+    free(m->sig_rival);
+    free(m->sig_now);
+}
+
+static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
     start_point sp[16];
     size_t n = list_starts(e, sp, 16);
-    saved_point best, first;
-    best.oxide = malloc(e->images * sizeof *best.oxide);
-    first.oxide = malloc(e->images * sizeof *first.oxide);
-    lam_status st = best.oxide && first.oxide ? LAM_OK
-                                              : lam_error_set(err, LAM_ENOMEM, "cannot allocate");
-    if (!st) {
-        save_point(e, &best);
-        save_point(e, &first);
-    }
-    double best_lp = *logpost;
+    save_point(e, &m->best);
+    save_point(e, &m->first);
+    signature(e, f->w, m->sig_best);
+    m->best_lp = *logpost;
+    lam_status st = LAM_OK;
     for (size_t i = 0; i < n && !st; i++) {
-        restore_point(e, &first);
+        restore_point(e, &m->first);
         for (int k = 0; k < LAM_NU_COUNT; k++)
             e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
         apply_start(e, &sp[i]);
         double lp;
-        if ((st = settle(f, &lp, err)))
-            break;
-        if (lp > best_lp + 1e-6) {
-            best_lp = lp;
-            save_point(e, &best);
-        }
+        if (!(st = settle(f, &lp, err)))
+            consider(f, m, lp);
     }
     if (!st) {
-        restore_point(e, &best);
+        restore_point(e, &m->best);
         st = objective(e, f->model, f->w, logpost, err);
     }
-    free(best.oxide);
-    free(first.oxide);
     return st;
+}
+
+/* The Laplace fit of a point: covariance, counts and log evidence. */
+static void finish(fit_ctx *f, double lp)
+{
+    laplace(f);
+    count_regions(f->e, f->w);
+    f->e->log_evidence += lp;
+    f->e->fitted = 1;
+}
+
+/* A rival mode within LAM_RIVAL_MARGIN of the best in log posterior is
+ * fitted on a copy; when its evidence is higher the two swap, so that the
+ * estimate itself is always the more probable mode. */
+static lam_status fit_rival(fit_ctx *f, const mode_set *m, lam_error *err)
+{
+    lam_estimate *e = f->e;
+    if (DEBUGFIT)
+        fprintf(stderr, "modes: best lp %.2f rival lp %.2f\n", m->best_lp, m->rival_lp);
+    if (!(m->rival_lp > m->best_lp - LAM_RIVAL_MARGIN))
+        return LAM_OK;
+    lam_estimate *r = lam__estimate_clone(e);
+    if (!r)
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
+    fit_ctx g;
+    lam_status st = init_ctx(&g, r, f->model, err);
+    double lp = 0;
+    if (!st) {
+        restore_point(r, &m->rival);
+        if (!(st = objective(r, g.model, g.w, &lp, err)))
+            finish(&g, lp);
+        free_ctx(&g);
+    }
+    /* The weight is the ratio of the posterior densities at the two modes.
+     * The Laplace volume term (log_evidence) would be the better measure
+     * for two well-shaped peaks, but a mode pressed against a parameter's
+     * bound (a response term at zero) has a flat direction whose curvature
+     * overstates its volume by orders of magnitude. */
+    double d = m->rival_lp - m->best_lp;
+    if (st || d < -LAM_RIVAL_MARGIN) {
+        lam_estimate_free(r);
+        return st;
+    }
+    e->rival = r;
+    e->rival_weight = 1 / (1 + exp(-d));
+    return LAM_OK;
 }
 
 lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick, lam_error *err)
@@ -681,13 +845,19 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         return st;
     double lp = 0;
     e->iterations = 0;
-    if (!(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
-        st = multistart(&f, &lp, err);
+    lam_estimate_free(e->rival);
+    e->rival = NULL;
+    e->rival_weight = 0;
+    mode_set m;
+    if (!mode_set_init(&m, e))
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
+    if (!st && !(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
+        st = multistart(&f, &lp, &m, err);
     if (!st) {
-        laplace(&f);
-        count_regions(e, f.w);
-        e->fitted = 1;
+        finish(&f, lp);
+        st = fit_rival(&f, &m, err);
     }
+    mode_set_free(&m);
     free_ctx(&f);
     return st;
 }

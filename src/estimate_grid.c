@@ -190,6 +190,7 @@ static void pick_cells(lam_est_image *im, const grid *g)
     im->grid_best = n ? g->score[top[0]] : -INFINITY;
     if (n)
         cell_to(g, top[0], &im->oxide.value, &im->grid_scale, im->grid_factor);
+    im->grid_oxide = im->oxide.value;
     for (int k = 1; k < n; k++) {
         cell_to(g, top[k], &im->alt_oxide[k - 1], &im->alt_scale[k - 1], im->alt_factor[k - 1]);
         im->alt_score[k - 1] = g->score[top[k]];
@@ -220,6 +221,13 @@ void lam__start_at(lam_estimate *e, size_t j, int alt)
     lam_est_image *im = &e->image[j];
     im->oxide.value = im->alt_oxide[alt];
     start_shared(e, im->alt_scale[alt], im->alt_factor[alt]);
+}
+
+void lam__start_rescaled(lam_estimate *e, size_t j, double ratio)
+{
+    lam_est_image *im = &e->image[j];
+    im->oxide.value = im->grid_oxide;
+    start_shared(e, im->grid_scale * ratio, im->grid_factor);
 }
 
 /* Many images share one scale: the one best summed over the images (each

@@ -45,4 +45,13 @@ lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err
 /* Start from alternative 'alt' of image j's grid. */
 void lam__start_at(lam_estimate *e, size_t j, int alt);
 
+/* Start from image j's best grid cell with the contrast scale times
+ * 'ratio' (2 or 1/2: the same colours read with every layer count doubled
+ * or halved, a mode the grid's scale range may not show). */
+void lam__start_rescaled(lam_estimate *e, size_t j, double ratio);
+
+/* A deep copy of an estimate (its regions; not its rival nor its cross
+ * terms, which its own fit makes), or NULL when out of memory. */
+lam_estimate *lam__estimate_clone(const lam_estimate *e);
+
 #endif

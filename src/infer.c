@@ -442,3 +442,22 @@ void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r
     free(height);
     free(stack);
 }
+
+void lam_infer_mix(lam_region_result *o, const lam_region_result *rival, double w,
+                   const lam_infer_options *opt)
+{
+    size_t K = opt->max_layers, H = K + 3, best = 0;
+    for (size_t h = 0; h < H; h++) {
+        o->p[h] = (1 - w) * o->p[h] + w * rival->p[h];
+        if (o->p[h] > o->p[best])
+            best = h;
+    }
+    o->p_substrate = o->p[0];
+    unsigned keep = LAM_FLAG_SATURATED | LAM_FLAG_BORDER | LAM_FLAG_SMALL | LAM_FLAG_DOPED;
+    o->flags &= keep;
+    if (best == LAM_P_UNMODELLED(K))
+        o->flags |= LAM_FLAG_UNMODELLED;
+    o->layers = 0;
+    o->thick = o->substrate_like = 0;
+    label_region(opt, K, best, o);
+}

@@ -305,7 +305,13 @@ cJSON *lam_report_json(const lam_analysis *a)
     for (size_t i = 0; i < a->count; i++)
         cJSON_AddItemToArray(regs, region_json(a, i));
     add_summary(root, a);
-    cJSON_AddArrayToObject(root, "warnings");
+    cJSON *w = cJSON_AddArrayToObject(root, "warnings");
+    for (size_t i = 0; i < a->warnings.count; i++) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "code", a->warnings.item[i].code);
+        cJSON_AddStringToObject(o, "message", a->warnings.item[i].message);
+        cJSON_AddItemToArray(w, o);
+    }
     return root;
 }
 

@@ -27,6 +27,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include "lamina/error.h"
+#include "lamina/warnings.h"
 #include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/infer.h"
@@ -102,6 +103,7 @@ typedef struct lam_analysis {
     char setup_hash[32];            /* of the setup and options, set by the caller */
     int prior_pooled;               /* the shared prior came from a pooled run */
     size_t prior_images;
+    lam_warnings warnings;          /* what makes the answers doubtful (lamina/warnings.h) */
 } lam_analysis;
 
 lam_analysis_options lam_analysis_options_default(void);

@@ -49,5 +49,6 @@
 #include "lamina/tmm.h"
 #include "lamina/transfer.h"
 #include "lamina/version.h"
+#include "lamina/warnings.h"
 
 #endif
