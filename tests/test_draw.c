@@ -369,7 +369,8 @@ static void test_svg(void)
     check_true(!xml_well_formed("<svg><g></svg></g>"), "the XML checker rejects crossed tags");
     double grid[5] = {280, 283, 285, 287, 290}, chi[5] = {30, 8, 2, 9, 31};
     lam_oxide_plot_image im[2] = {{"a.png", 284.5, 1.2, 1, 3}, {"b<&>.png", NAN, NAN, 0, 0}};
-    lam_oxide_plot p = {grid, chi, 5, 285, 10, 285.2, 0.8, 1, NULL, 0, NAN, im, 2};
+    lam_oxide_plot p = {grid, chi, 5, 285, 10, 285.2, 0.8, 283.6, 286.8, "pass", NULL, 0, NAN,
+                        im, 2};
     char path[1200];
     snprintf(path, sizeof path, "%s/oxide.svg", check_tmpdir());
     check_int(lam_plot_oxide(&p, path, NULL), LAM_OK, "oxide plot written");

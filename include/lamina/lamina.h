@@ -32,6 +32,7 @@
 #include "lamina/model.h"
 #include "lamina/names.h"
 #include "lamina/outfile.h"
+#include "lamina/oxide.h"
 #include "lamina/parallel.h"
 #include "lamina/planmap.h"
 #include "lamina/plot.h"
