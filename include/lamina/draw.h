@@ -56,9 +56,11 @@ lam_status lam_canvas_open_buffer(lam_canvas *c, uint32_t *pixels, size_t width,
 lam_status lam_canvas_finish(lam_canvas *c, lam_error *err);
 void lam_canvas_abort(lam_canvas *c);
 
-/* Release the font and glyph caches of Pango, fontconfig and cairo (call
- * once at exit, after every drawing thread has ended), so leak checkers
- * see only real leaks. */
+/* Release Pango's default font map (call once at exit, after every
+ * drawing thread has ended) and, when the environment has
+ * LAMINA_RELEASE_FONT_CACHES=1 (make asan, make valgrind), also the font
+ * and glyph caches of fontconfig and cairo, so leak checkers see only real
+ * leaks. */
 void lam_draw_shutdown(void);
 
 /* Colours as 0xRRGGBB. */

@@ -12,6 +12,7 @@
 #define LAMINA_LAMINA_H
 
 #include "lamina/analyze.h"
+#include "lamina/batch.h"
 #include "lamina/calibrate.h"
 #include "lamina/catalog.h"
 #include "lamina/chipmap.h"

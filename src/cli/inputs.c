@@ -1,19 +1,18 @@
 /* cli/inputs.c - batch inputs: files, folders, list files, shards; output
- * stems; FNV-1a content hashes for --resume. */
+ * stems and hashes (lamina/batch.h). */
 #include "inputs.h"
 #include "cli.h"
 
 #include <dirent.h>
-#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
 #include <sys/stat.h>
 #include <cjson/cJSON.h>
+#include "lamina/batch.h"
 #include "lamina/jsonfile.h"
 #include "lamina/textfile.h"
-#include "lamina/version.h"
 
 static int add(cli_inputs *in, const char *path)
 {
@@ -235,57 +234,25 @@ void cli_inputs_free(cli_inputs *in)
 
 void cli_stem_of(const char *path, char *stem, size_t n)
 {
-    const char *base = strrchr(path, '/');
-    base = base ? base + 1 : path;
-    snprintf(stem, n, "%s", base);
-    char *dot = strrchr(stem, '.');
-    if (dot && dot != stem)
-        *dot = '\0';
-}
-
-static uint64_t fnv1a(uint64_t h, const unsigned char *p, size_t n)
-{
-    for (size_t i = 0; i < n; i++) {
-        h ^= p[i];
-        h *= 1099511628211ull;
-    }
-    return h;
+    lam_batch_stem(path, stem, n);
 }
 
 int cli_hash_file(const char *path, char *out, size_t n)
 {
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
-        return -1;
-    unsigned char buf[65536];
-    uint64_t h = 1469598103934665603ull;
-    size_t k;
-    while ((k = fread(buf, 1, sizeof buf, fp)) > 0)
-        h = fnv1a(h, buf, k);
-    int bad = ferror(fp);
-    fclose(fp);
-    snprintf(out, n, "fnv1a64:%016llx", (unsigned long long)h);
-    return bad ? -1 : 0;
+    char h[LAM_BATCH_HASH_LEN];
+    lam_status st = lam_batch_hash_file(path, h, NULL);
+    snprintf(out, n, "%s", h);
+    return st ? -1 : 0;
 }
 
 void cli_setup_hash(const char *setup_file, const lam_analysis_options *opt,
                     const cli_setup_opts *so, char *out, size_t n)
 {
-    uint64_t h = 1469598103934665603ull;
-    if (setup_file) {
-        char fh[32];
-        if (cli_hash_file(setup_file, fh, sizeof fh) == 0)
-            h = fnv1a(h, (const unsigned char *)fh, strlen(fh));
-    }
-    char opts[512];
-    snprintf(opts, sizeof opts, "ox=%.6g na=%.6g mu=%.6g um=%.6g K=%zu area=%.6g/%.6g roi=%d:%zu,%zu,%zu,%zu "
-             "tol=%.6g fit=%d,%d enc=%d:%.6g v=%s",
-             so->oxide_nm, so->na, so->fermi_ev, so->um_per_px, opt->max_layers, opt->min_area_um2,
-             opt->min_area_px, opt->substrate.has_roi, opt->substrate.roi[0], opt->substrate.roi[1],
-             opt->substrate.roi[2], opt->substrate.roi[3], opt->oxide_tolerance_nm, opt->fit_oxide,
-             opt->fit_fermi, (int)opt->load.transfer.kind, opt->load.transfer.gamma, LAMINA_VERSION);
-    h = fnv1a(h, (const unsigned char *)opts, strlen(opts));
-    snprintf(out, n, "fnv1a64:%016llx", (unsigned long long)h);
+    char extra[160], h[LAM_BATCH_HASH_LEN];
+    snprintf(extra, sizeof extra, "ox=%.6g na=%.6g mu=%.6g um=%.6g", so->oxide_nm, so->na,
+             so->fermi_ev, so->um_per_px);
+    lam_batch_setup_hash(setup_file, opt, extra, h);
+    snprintf(out, n, "%s", h);
 }
 
 cJSON *cli_read_json(const char *path)

@@ -2,16 +2,20 @@
  * image the camera finishes writing into DIR (inotify: closed after
  * writing, or renamed into DIR) is analysed once, one line per image goes
  * to stdout, and the catalogue and run report are rewritten after every
- * image. Ctrl-C (SIGINT, SIGTERM) lets the current image finish and stops;
- * every output is atomic, so the folder is consistent at any moment. */
+ * image. The response, NA and camera are pooled from image to image
+ * (lamina/pool.h): each new image is added and the pool refitted, and the
+ * next image starts from the result. Ctrl-C (SIGINT, SIGTERM) lets the
+ * current image finish and stops; every output is atomic, so the folder is
+ * consistent at any moment. */
 #include "cli.h"
 #include "inputs.h"
 #include "run_opts.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
+#include "lamina/batch.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
-#include "lamina/report.h"
+#include "lamina/pool.h"
 
 #include <dirent.h>
 #include <errno.h>
@@ -27,22 +31,17 @@
 #include <sys/inotify.h>
 #include <cjson/cJSON.h>
 
-typedef struct watch_session watch_session;
+/* A prior that moved by more than this many of its own sigmas is news. */
+#define PRIOR_MOVE_SIGMAS 1.0
 
-/* The per-image step: analyse one complete image and write its result
- * files; returns the analysis as written (lamina-analysis/1). The session
- * carries 'prior' from image to image: the place for pooled estimates
- * (oxide, noise, floors) that a later image can start from. */
-typedef lam_status (*watch_analyse_fn)(watch_session *w, const char *path, const char *hash,
-                                       cJSON **result, lam_error *err);
-
-struct watch_session {
+typedef struct watch_session {
     const lam_setup *setup;
     lam_analysis_options opt;
     const char *dir, *out_dir;
-    char setup_hash[32];
-    void *prior;                /* carried from image to image; NULL for now */
-    watch_analyse_fn analyse;
+    char setup_hash[LAM_BATCH_HASH_LEN];
+    lam_pool *pool;             /* the images of this session, for the pooled fit */
+    lam_shared_prior prior;     /* carried from image to image (set = 0: none yet) */
+    int pool_off;               /* --no-pool */
     const lam_positions *pos;   /* NULL without --positions */
     lam_positions pos_store;
     const char *pos_path;
@@ -52,7 +51,7 @@ struct watch_session {
     size_t n, cap;
     size_t analysed, max_images;
     double idle_exit_s;
-};
+} watch_session;
 
 static volatile sig_atomic_t stop_requested;
 
@@ -88,6 +87,8 @@ static void watch_help(FILE *out)
           "  --threads N           worker threads per image (default: all cores)\n"
           "  --max-images N        stop after N images analysed\n"
           "  --idle-exit SEC       stop when no image arrived for SEC seconds\n"
+          "  --no-pool             analyse each image on its own (default: the response, NA\n"
+          "                        and camera are pooled from image to image, pool.json)\n"
           "  --quiet\n",
           out);
 }
@@ -113,58 +114,52 @@ static int is_image_name(const char *name)
     return 0;
 }
 
-/* Results on disk for the same content and setup (a restarted session). */
-static cJSON *existing_result(const watch_session *w, const char *stem, const char *hash)
+/* Add an analysed image to the pool and refit: the next image starts from
+ * the result. Says so when the pooled values moved much; the prior is kept
+ * in pool.json, which a restarted session starts from. */
+static void carry_prior(watch_session *w, const lam_analysis *a)
 {
-    char p[4096];
-    snprintf(p, sizeof p, "%s/%s.json", w->out_dir, stem);
-    cJSON *root = cli_read_json(p);
-    const cJSON *img = cJSON_GetObjectItemCaseSensitive(root, "image");
-    const cJSON *h = cJSON_GetObjectItemCaseSensitive(img, "content_hash");
-    const cJSON *sh = cJSON_GetObjectItemCaseSensitive(root, "setup_hash");
-    if (cJSON_IsString(h) && cJSON_IsString(sh) && !strcmp(h->valuestring, hash) &&
-        !strcmp(sh->valuestring, w->setup_hash))
-        return root;
-    cJSON_Delete(root);
-    return NULL;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_shared_prior next;
+    if (lam_pool_add(w->pool, a, &err) || lam_pool_fit(w->pool, &next, &err)) {
+        cli_report(&err, a->file); /* keep watching with the prior as it was */
+        return;
+    }
+    if (!next.set)
+        return;
+    int k;
+    double moved = lam_batch_prior_shift(&w->prior, &next, &k);
+    if (!cli_quiet && (!w->prior.set || moved > PRIOR_MOVE_SIGMAS)) {
+        char name[48];
+        if (w->prior.set)
+            fprintf(stderr, "lamina: pooled response, NA and camera moved (%s by %.1f sigma), "
+                            "from %zu images\n", lam_batch_nuisance_name(k, name, sizeof name),
+                    moved, next.images);
+        else
+            fprintf(stderr, "lamina: response, NA and camera pooled from %zu image%s\n",
+                    next.images, next.images == 1 ? "" : "s");
+    }
+    w->prior = next;
+    char path[4096];
+    snprintf(path, sizeof path, "%s/pool.json", w->out_dir);
+    if (lam_batch_pool_write(path, &w->prior, w->setup_hash, "watch", &err))
+        cli_report(&err, path);
 }
 
-/* The default per-image step: lam_analyze and the four result files, the
- * JSON last (its presence means the image's results are complete). */
+/* The per-image step: analyse with the carried prior, write the four result
+ * files (the JSON last), then pool. */
 static lam_status watch_analyse_image(watch_session *w, const char *path, const char *hash,
                                       cJSON **result, lam_error *err)
 {
     lam_analysis *a = NULL;
-    lam_status st = lam_analyze(path, w->setup, &w->opt, &a, err);
-    if (st)
-        return st;
-    snprintf(a->content_hash, sizeof a->content_hash, "%s", hash);
-    snprintf(a->setup_hash, sizeof a->setup_hash, "%s", w->setup_hash);
-    char stem[512], p[4096];
-    cli_stem_of(path, stem, sizeof stem);
-    snprintf(p, sizeof p, "%s/%s.annotated.png", w->out_dir, stem);
-    if (!(st = lam_report_write_annotated(a, p, err))) {
-        snprintf(p, sizeof p, "%s/%s.layers.png", w->out_dir, stem);
-        st = lam_report_write_layers(a, p, err);
-    }
-    if (!st) {
-        snprintf(p, sizeof p, "%s/%s.contrast.svg", w->out_dir, stem);
-        st = lam_report_write_svg(a, p, err);
-    }
-    cJSON *json = st ? NULL : lam_report_json(a);
-    if (!st && !json)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
-    if (!st) {
-        snprintf(p, sizeof p, "%s/%s.json", w->out_dir, stem);
-        st = lam_report_save_json(json, p, err);
-    }
+    w->opt.shared_prior = w->prior.set ? &w->prior : NULL;
+    lam_status st = lam_batch_analyse_one(path, w->setup, &w->opt, w->out_dir, hash,
+                                          w->setup_hash, &a, result, err);
+    if (!st && w->pool)
+        carry_prior(w, a);
     lam_analysis_free(a);
-    if (st) {
-        cJSON_Delete(json);
-        return st;
-    }
-    *result = json;
-    return LAM_OK;
+    return st;
 }
 
 /* Keep the result of 'path' (replacing an older one of the same image). */
@@ -273,9 +268,9 @@ static int process(watch_session *w, const char *name)
         w->pos_store = fresh;
     }
     lam_error_clear(&err);
-    cJSON *result = existing_result(w, stem, hash);
+    cJSON *result = lam_batch_existing(w->out_dir, stem, hash, w->setup_hash);
     int resumed = result != NULL;
-    if (!result && w->analyse(w, path, hash, &result, &err)) {
+    if (!result && watch_analyse_image(w, path, hash, &result, &err)) {
         cli_report(&err, path); /* a damaged file: say so, keep watching */
         return CLI_OK;
     }
@@ -371,7 +366,7 @@ static int parse_watch_options(int argc, char **argv, watch_session *w, cli_setu
         {"out", required_argument, 0, 'O'},        {"threads", required_argument, 0, 'j'},
         {"positions", required_argument, 0, 'P'},  {"max-images", required_argument, 0, 'M'},
         {"idle-exit", required_argument, 0, 'I'},  {"quiet", no_argument, 0, 'q'},
-        {0, 0, 0, 0}};
+        {"no-pool", no_argument, 0, 'n'},          {0, 0, 0, 0}};
     long K = 6, threads = (long)lam_cpu_count(), maxi = 0;
     double area = -1;
     int c, r;
@@ -395,6 +390,7 @@ static int parse_watch_options(int argc, char **argv, watch_session *w, cli_setu
             r = cli_parse_double("watch", "--idle-exit", optarg, 0.1, 1e7, &w->idle_exit_s);
             break;
         case 'q': cli_quiet = 1; break;
+        case 'n': w->pool_off = 1; break;
         default:
             r = cli_stage_option(&w->stage, "watch", c, optarg);
             if (r == 0)
@@ -436,6 +432,14 @@ static int start_watch(watch_session *w, const cli_setup_opts *so, lam_setup *s,
         return CLI_EFILE;
     cli_setup_hash(so->setup_file, &w->opt, so, w->setup_hash, sizeof w->setup_hash);
     lam_parallel_set_default(w->opt.threads);
+    if (!w->pool_off && lam_pool_alloc(s, &w->opt, &w->pool, &err))
+        return cli_report(&err, NULL);
+    /* a restarted session starts from the prior it had pooled */
+    char pool_path[4096], stored[LAM_BATCH_HASH_LEN];
+    snprintf(pool_path, sizeof pool_path, "%s/pool.json", w->out_dir);
+    if (w->pool && (lam_batch_pool_read(pool_path, &w->prior, NULL, stored, NULL) ||
+                    strcmp(stored, w->setup_hash)))
+        memset(&w->prior, 0, sizeof w->prior);
     /* watch first, then look at what is there: nothing falls in between */
     if ((*fd = inotify_init1(IN_CLOEXEC)) < 0 ||
         inotify_add_watch(*fd, w->dir, IN_CLOSE_WRITE | IN_MOVED_TO) < 0) {
@@ -451,7 +455,6 @@ static int run_watch(int argc, char **argv)
     memset(&w, 0, sizeof w);
     w.opt = lam_analysis_options_default();
     w.stage = lam_stage_default();
-    w.analyse = watch_analyse_image;
     cli_setup_opts so;
     cli_setup_opts_init(&so);
     const char *out = NULL;
@@ -487,6 +490,7 @@ static int run_watch(int argc, char **argv)
     free(w.paths);
     free(w.results);
     lam_positions_clear(&w.pos_store);
+    lam_pool_free(w.pool);
     lam_setup_clear(&s);
     return rc;
 }
