@@ -12,6 +12,7 @@
 #define LAMINA_LAMINA_H
 
 #include "lamina/analyze.h"
+#include "lamina/inputs.h"
 #include "lamina/batch.h"
 #include "lamina/calibrate.h"
 #include "lamina/catalog.h"
@@ -51,5 +52,6 @@
 #include "lamina/tmm.h"
 #include "lamina/transfer.h"
 #include "lamina/version.h"
+#include "lamina/watch.h"
 
 #endif

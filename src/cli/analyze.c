@@ -3,13 +3,13 @@
  * result files) and prints the summary; for several images the catalogue
  * and run report (run_opts.h). */
 #include "cli.h"
-#include "inputs.h"
 #include "run_opts.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/batch.h"
 #include "lamina/catalog.h"
 #include "lamina/clock.h"
+#include "lamina/inputs.h"
 #include "lamina/parallel.h"
 
 #include <getopt.h>
@@ -335,11 +335,11 @@ static int prepare(analyze_args *A, lam_setup *s, lam_positions *pos)
 }
 
 /* Run the batch, print, write the catalogue; an exit code. */
-static int analyze_batch(analyze_args *A, const cli_inputs *in, const lam_setup *s,
+static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup *s,
                          const lam_positions *pos)
 {
     char setup_hash[LAM_BATCH_HASH_LEN];
-    cli_setup_hash(A->so.setup_file, &A->bo.analysis, &A->so, setup_hash, sizeof setup_hash);
+    cli_setup_hash(&A->so, &A->bo.analysis, setup_hash, sizeof setup_hash);
     A->bo.setup = s;
     A->bo.out_dir = A->out_dir;
     A->bo.setup_hash = setup_hash;
@@ -386,13 +386,16 @@ static int run_analyze(int argc, char **argv)
     int rc = parse_analyze_options(argc, argv, &A);
     if (rc)
         return rc;
-    cli_inputs in;
-    if ((rc = cli_inputs_collect(&in, argc - optind, argv + optind, A.list, A.recursive)))
-        return rc;
+    lam_inputs in;
+    lam_error err;
+    lam_error_clear(&err);
+    if (lam_inputs_collect(&in, (const char *const *)argv + optind, (size_t)(argc - optind),
+                           A.list, A.recursive, &err))
+        return cli_report(&err, NULL);
     if (A.shards)
-        cli_inputs_shard(&in, A.shard, A.shards);
+        lam_inputs_shard(&in, A.shard, A.shards);
     if (in.count == 0) {
-        cli_inputs_free(&in);
+        lam_inputs_free(&in);
         return A.shards ? CLI_OK : cli_usage_error("analyze", "no image given");
     }
     lam_setup s;
@@ -402,7 +405,7 @@ static int run_analyze(int argc, char **argv)
         rc = analyze_batch(&A, &in, &s, &pos);
     lam_setup_clear(&s);
     lam_positions_clear(&pos);
-    cli_inputs_free(&in);
+    lam_inputs_free(&in);
     return rc;
 }
 

@@ -4,6 +4,7 @@
 #ifndef LAMINA_CLI_SETUP_OPTS_H
 #define LAMINA_CLI_SETUP_OPTS_H
 
+#include "lamina/analyze.h"
 #include "lamina/setup.h"
 
 typedef struct cli_setup_opts {
@@ -40,5 +41,10 @@ void cli_setup_opts_init(cli_setup_opts *o);
  * Prints any error and returns the exit code (0 on success; 2 for an
  * option value a setter refuses). */
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s);
+
+/* The setup hash of lamina/batch.h: the setup file's bytes, the analysis
+ * options and the values given on the command line. */
+void cli_setup_hash(const cli_setup_opts *o, const lam_analysis_options *opt, char *out,
+                    size_t n);
 
 #endif
