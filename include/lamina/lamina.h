@@ -48,6 +48,7 @@
 #include "lamina/setup.h"
 #include "lamina/stage.h"
 #include "lamina/substrate.h"
+#include "lamina/summary.h"
 #include "lamina/textfile.h"
 #include "lamina/tmm.h"
 #include "lamina/transfer.h"

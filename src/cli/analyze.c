@@ -11,6 +11,7 @@
 #include "lamina/clock.h"
 #include "lamina/inputs.h"
 #include "lamina/parallel.h"
+#include "lamina/summary.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -92,86 +93,6 @@ static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, 
     if (done == b->count)
         fputc('\n', stderr);
     fflush(stderr);
-}
-
-static void print_counts(const lam_batch *b)
-{
-    printf("%-28s %5s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
-           "thick", "other");
-    for (size_t i = 0; i < b->count; i++) {
-        const lam_batch_item *j = &b->items[i];
-        if (j->failed || j->resumed) {
-            printf("%-28.28s %s\n", j->stem, j->failed ? "failed" : "(resumed: results kept)");
-            continue;
-        }
-        size_t by[5] = {0}, thick = 0, other = 0;
-        for (size_t r = 0; r < j->a->count; r++) {
-            const lam_region_result *res = &j->a->results[r];
-            if (res->flags & LAM_FLAG_SMALL)
-                continue;
-            if (res->layers > 0)
-                by[res->layers < 4 ? res->layers : 4]++;
-            else if (res->thick && !(res->flags & LAM_FLAG_UNMODELLED))
-                thick++;
-            else
-                other++;
-        }
-        printf("%-28.28s %5.1f %4zu %4zu %4zu %5zu %6zu %5zu\n", j->stem, j->a->oxide.estimate,
-               by[1], by[2], by[3], by[4], thick, other);
-    }
-}
-
-/* One monolayer candidate's line: area, usable rectangle, and where it is
- * (the stage reading that centres it, or its centroid in pixels). */
-static void print_candidate(const lam_batch_item *j, size_t r, const lam_positions *pos,
-                            const lam_stage *stage)
-{
-    const lam_region_result *res = &j->a->results[r];
-    const lam_region_stats *s = &j->a->seg->regions[r];
-    double u = j->a->um_per_px;
-    char area[32], rect[48];
-    if (u > 0) {
-        snprintf(area, sizeof area, "%.1f um2", (double)s->area * u * u);
-        snprintf(rect, sizeof rect, "%.1f x %.1f um", res->usable_px[0] * u,
-                 res->usable_px[1] * u);
-    } else {
-        snprintf(area, sizeof area, "%zu px", s->area);
-        snprintf(rect, sizeof rect, "%zu x %zu px", res->usable_px[0], res->usable_px[1]);
-    }
-    double xy[2] = {s->sx / (double)s->area, s->sy / (double)s->area};
-    const lam_position *ps = pos ? lam_positions_find(pos, j->path) : NULL;
-    if (ps && u > 0) {
-        double unit = lam_stage_unit_um(stage, pos);
-        lam_stage_reading(stage, ps, (double)j->a->width, (double)j->a->height, u, xy[0], xy[1],
-                          xy);
-        printf("%-28.28s %4u %7.3f %10s %16s %9.*f,%-9.*f\n", j->stem, s->id, res->p[1], area,
-               rect, unit > 1 ? 4 : 1, xy[0] / unit, unit > 1 ? 4 : 1, xy[1] / unit);
-    } else {
-        printf("%-28.28s %4u %7.3f %10s %16s %9.0f,%-9.0f\n", j->stem, s->id, res->p[1], area,
-               rect, xy[0], xy[1]);
-    }
-}
-
-static void print_summary(const lam_batch *b, const lam_positions *pos, const lam_stage *stage)
-{
-    print_counts(b);
-    printf("\nmonolayer candidates (p >= 0.95, not small):\n");
-    char where[48];
-    snprintf(where, sizeof where, pos ? "stage x,y %s" : "centroid px",
-             lam_stage_unit_name(stage, pos));
-    printf("%-28s %4s %7s %10s %16s %18s\n", "image", "id", "p(1L)", "area", "usable w x h", where);
-    for (size_t i = 0; i < b->count; i++) {
-        const lam_batch_item *j = &b->items[i];
-        if (j->failed || j->resumed)
-            continue;
-        for (size_t r = 0; r < j->a->count; r++) {
-            const lam_region_result *res = &j->a->results[r];
-            if (res->layers == 1 && !(res->flags & (LAM_FLAG_SMALL | LAM_FLAG_AMBIGUOUS)))
-                print_candidate(j, r, pos, stage);
-        }
-    }
-    printf("\nLayer counts are model estimates: confirm by Raman spectroscopy or AFM\n"
-           "before committing a flake to fabrication.\n");
 }
 
 static int parse_roi(const char *text, size_t roi[4])
@@ -363,8 +284,11 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
         fprintf(stderr, "lamina: response, NA and camera pooled over %zu image%s%s (%s/pool.json)\n",
                 b.prior.images, b.prior.images == 1 ? "" : "s",
                 b.pool_reused ? ", as stored" : "", A->out_dir);
-    if (!cli_quiet && !A->bo.pool_only)
-        print_summary(&b, A->positions ? pos : NULL, &A->stage);
+    char *text = NULL;
+    if (!cli_quiet && !A->bo.pool_only &&
+        !lam_summary_batch(&b, A->positions ? pos : NULL, &A->stage, &text, &err))
+        fputs(text, stdout);
+    free(text);
     if (!A->bo.pool_only && (b.count > 1 || A->positions) &&
         (r = catalog_outputs(&b, A->positions ? pos : NULL, &A->stage, A->out_dir)))
         rc = r;

@@ -3,6 +3,7 @@
 #include "cli.h"
 #include "setup_opts.h"
 #include "lamina/calibrate.h"
+#include "lamina/summary.h"
 #include "lamina/labels.h"
 
 #include <getopt.h>
@@ -124,41 +125,6 @@ static int parse_args(int argc, char **argv, calib_args *A)
     return 0;
 }
 
-/* The label map of one image from a layer-map PNG or a label JSON file. */
-static int read_labels(const char *labels, const char *img, const lam_setup *s, uint8_t **codes,
-                       size_t *w, size_t *h)
-{
-    lam_error err;
-    lam_error_clear(&err);
-    size_t len = strlen(labels);
-    if (len > 5 && !strcmp(labels + len - 5, ".json")) {
-        /* polygons or points: the image's size decides the map's */
-        lam_image *im = NULL;
-        if (lam_image_load(img, NULL, &im, &err))
-            return cli_report(&err, img);
-        *w = im->width, *h = im->height;
-        lam_image_free(im);
-        if (!(*codes = malloc(*w * *h)))
-            return CLI_EFILE;
-        if (lam_calib_labels_from_json(labels, img, s, *w, *h, *codes, &err))
-            return cli_report(&err, labels);
-        return 0;
-    }
-    lam_load_options lo = lam_load_options_default();
-    lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
-    lam_image *lab = NULL;
-    if (lam_image_load(labels, &lo, &lab, &err))
-        return cli_report(&err, labels);
-    *w = lab->width, *h = lab->height;
-    if ((*codes = malloc(*w * *h)))
-        for (size_t k = 0; k < *w * *h; k++) {
-            double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
-            (*codes)[k] = (uint8_t)(v > 255 ? 255 : lround(v));
-        }
-    lam_image_free(lab);
-    return *codes ? 0 : CLI_EFILE;
-}
-
 static int measure_all(const calib_args *A, char **images, size_t ni, const lam_setup *s,
                        lam_calib_set *set)
 {
@@ -172,46 +138,16 @@ static int measure_all(const calib_args *A, char **images, size_t ni, const lam_
         }
         uint8_t *codes = NULL;
         size_t w = 0, h = 0;
-        int rc = read_labels(A->labels[i], images[i], s, &codes, &w, &h);
-        if (!rc && lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
+        int rc = CLI_OK;
+        if (lam_labels_map_for_image(A->labels[i], images[i], s, &codes, &w, &h, &err))
+            rc = cli_report(&err, A->labels[i]);
+        else if (lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
             rc = cli_report(&err, images[i]);
         free(codes);
         if (rc)
             return rc;
     }
     return 0;
-}
-
-static void print_value(const lam_calib_value *v, const char *unit)
-{
-    if (!v->fitted)
-        printf("  %-18s %10.4g %s (given)\n", v->name, v->value, unit);
-    else if (v->constrained)
-        printf("  %-18s %10.4g +- %.2g %s\n", v->name, v->value, v->sigma, unit);
-    else
-        printf("  %-18s not constrained by these labels (prior %.4g +- %.2g %s kept)\n", v->name,
-               v->value, v->prior_sd, unit);
-}
-
-static void print_result(const lam_calib_result *r, char **images)
-{
-    printf("%zu labelled region(s) in %zu image(s); chi2 %.1f for %.0f values; model floor "
-           "%.1f %%\n", r->labelled, r->images, r->chi2, r->dof, 100 * r->floor_rel);
-    for (int k = 0; k < LAM_NU_COUNT; k++) {
-        const lam_calib_value *v = &r->shared[k];
-        if (v->name && (v->fitted || k == LAM_NU_NA) &&
-            (k < LAM_NU_SHIFT || (size_t)((k - LAM_NU_SHIFT) % LAM_MAX_CHANNELS) < r->channels))
-            print_value(v, (k >= LAM_NU_SHIFT && k < LAM_NU_WIDTH) ? "nm" : "");
-    }
-    for (size_t j = 0; j < r->images; j++) {
-        printf("  oxide of %s:", images[j]);
-        print_value(&r->oxide[j], "nm");
-    }
-    for (size_t k = 0; k < r->residuals; k++) {
-        const lam_calib_residual *x = &r->residual[k];
-        printf("  label %zu (%dL) in %s: chi2 %.2f (p %.2g)\n", k + 1, x->layers, images[x->image],
-               x->chi2, x->pvalue);
-    }
 }
 
 static cJSON *calibration_block(const lam_calib_result *r, int self, char **images)
@@ -269,10 +205,11 @@ static int run_calibrate(int argc, char **argv)
         if (lam_setup_save(&res.setup, A.out, cal, &err))
             rc = cli_report(&err, A.out);
         cJSON_Delete(cal);
-        if (!rc && !cli_quiet) {
-            print_result(&res, images);
-            printf("wrote %s\n", A.out);
-        }
+        char *text = NULL;
+        if (!rc && !cli_quiet &&
+            !lam_summary_calibration(&res, (const char *const *)images, &text, &err))
+            printf("%swrote %s\n", text, A.out);
+        free(text);
     }
     lam_calib_result_clear(&res);
     lam_calib_set_clear(set);

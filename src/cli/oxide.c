@@ -5,6 +5,7 @@
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/oxide.h"
+#include "lamina/summary.h"
 
 #include <getopt.h>
 #include <math.h>
@@ -90,37 +91,6 @@ static int parse_oxide_options(int argc, char **argv, oxide_args *A)
     return CLI_OK;
 }
 
-static void print_audit(const lam_oxide_audit *a)
-{
-    for (size_t j = 0; j < a->n_images; j++) {
-        const lam_oxide_audit_image *im = &a->images[j];
-        if (!im->fitted)
-            printf("  %-38s no usable region (not in the fit)\n", im->file);
-        else
-            printf("  %-38s %.1f +- %.1f nm (%zu regions): %s\n", im->file,
-                   im->sample.estimate_nm, im->sample.sigma_nm, im->regions_used,
-                   lam_oxide_verdict_name(im->verdict));
-    }
-    const lam_oxide_combined *c = &a->combined;
-    if (c->n)
-        printf("combined: %.1f +- %.1f nm (of which %.1f nm shared) from %zu image%s; 95 %% "
-               "interval %.1f to %.1f nm\n", c->estimate_nm, c->sigma_nm, c->sigma_shared_nm,
-               c->n, c->n == 1 ? "" : "s", c->lo95_nm, c->hi95_nm);
-    if (c->n > 1 && !c->consistent)
-        printf("note: the images disagree (chi2 %.1f for %zu dof, p = %.2g): the oxide varies "
-               "across the batch (spread %.1f nm)\n", c->chi2, c->dof, c->p_value, c->spread_nm);
-    printf("nominal %.1f +- %.1f nm: %s: %s\n", a->nominal_nm, a->tolerance_nm,
-           lam_oxide_verdict_name(a->verdict), a->reason);
-    if (a->advice[0])
-        printf("to decide: %s\n", a->advice);
-    if (a->absolute_set && isfinite(a->absolute_nm))
-        printf("absolute (substrate colour vs %s): %.1f nm%s\n", a->reference, a->absolute_nm,
-               a->n_absolute > 1 ? " (other interference orders fit as well)" : "");
-    if (a->n_orders && !a->order_decides)
-        printf("note: %zu other thickness(es) one interference order away fit as well (e.g. "
-               "%.0f nm)\n", a->n_orders, a->orders_nm[0]);
-}
-
 /* Analyse every image; the ones that fail are reported and left out. */
 static int analyse_all(char **paths, size_t n, const lam_setup *s,
                        const lam_analysis_options *opt, lam_analysis **an, size_t *n_ok)
@@ -179,8 +149,10 @@ static int run_oxide(int argc, char **argv)
             rc = CLI_EFILE;
         else if (lam_oxide_audit_write(&audit, A.out_dir, &err))
             rc = cli_report(&err, A.out_dir);
-        if (!cli_quiet)
-            print_audit(&audit);
+        char *text = NULL;
+        if (!cli_quiet && !lam_summary_oxide(&audit, &text, &err))
+            fputs(text, stdout);
+        free(text);
         lam_oxide_audit_clear(&audit);
     }
     for (size_t i = 0; i < n_ok; i++)

@@ -2,12 +2,11 @@
 #include "cli.h"
 #include "setup_opts.h"
 #include "lamina/model.h"
+#include "lamina/summary.h"
 
 #include <getopt.h>
-#include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <cjson/cJSON.h>
 
 static void predict_help(FILE *out)
 {
@@ -24,47 +23,6 @@ static void predict_help(FILE *out)
           "  --fermi EV          Fermi level |mu| in eV\n"
           "  --format F          table (default), csv or json\n",
           out);
-}
-
-static const char *channel_name(size_t channels, size_t c)
-{
-    static const char *rgb[3] = {"R", "G", "B"};
-    return channels == 1 ? "mono" : rgb[c];
-}
-
-static int print_json(const lam_prediction *p, size_t lo, size_t hi, double mono, const lam_setup *s)
-{
-    cJSON *root = cJSON_CreateObject();
-    cJSON_AddStringToObject(root, "schema", "lamina-predict/1");
-    cJSON_AddStringToObject(root, "contrast_convention", "(substrate - flake) / substrate");
-    cJSON *ch = cJSON_AddArrayToObject(root, "channels");
-    for (size_t c = 0; c < p->channels; c++)
-        cJSON_AddItemToArray(ch, cJSON_CreateString(channel_name(p->channels, c)));
-    if (mono > 0)
-        cJSON_AddNumberToObject(root, "wavelength_nm", mono);
-    cJSON_AddNumberToObject(root, "oxide_nm", p->oxide_nm);
-    cJSON_AddNumberToObject(root, "illumination_na", s->illumination_na);
-    cJSON_AddNumberToObject(root, "fermi_eV", fabs(p->fermi_ev));
-    char desc[200];
-    lam_sheet_describe(&s->sheet, desc, sizeof desc);
-    cJSON_AddStringToObject(root, "conductivity", desc);
-    cJSON *sr = cJSON_AddArrayToObject(root, "substrate_reflectance");
-    for (size_t c = 0; c < p->channels; c++)
-        cJSON_AddItemToArray(sr, cJSON_CreateNumber(p->substrate[c]));
-    cJSON *rows = cJSON_AddArrayToObject(root, "rows");
-    for (size_t N = lo; N <= hi; N++) {
-        cJSON *row = cJSON_CreateObject();
-        cJSON_AddNumberToObject(row, "layers", (double)N);
-        cJSON *con = cJSON_AddArrayToObject(row, "contrast");
-        for (size_t c = 0; c < p->channels; c++)
-            cJSON_AddItemToArray(con, cJSON_CreateNumber(p->contrast[N][c]));
-        cJSON_AddItemToArray(rows, row);
-    }
-    char *text = cJSON_Print(root);
-    int ok = text && printf("%s\n", text) > 0;
-    free(text);
-    cJSON_Delete(root);
-    return ok;
 }
 
 static int run_predict(int argc, char **argv)
@@ -132,24 +90,12 @@ static int run_predict(int argc, char **argv)
         rc = cli_report(&err, so.setup_file);
         goto done;
     }
-    if (!strcmp(format, "json")) {
-        print_json(p, (size_t)lo, (size_t)hi, mono, &s);
-    } else {
-        int csv = !strcmp(format, "csv");
-        if (!csv)
-            printf("# contrast = (substrate - flake) / substrate; oxide %.1f nm, illumination NA %.2f%s\n",
-                   p->oxide_nm, s.illumination_na, mono > 0 ? ", monochromatic" : "");
-        printf(csv ? "layers" : "%-7s", csv ? "" : "layers");
-        for (size_t c = 0; c < p->channels; c++)
-            printf(csv ? ",%s" : " %10s", channel_name(p->channels, c));
-        putchar('\n');
-        for (size_t N = (size_t)lo; N <= (size_t)hi; N++) {
-            printf(csv ? "%zu" : "%-7zu", N);
-            for (size_t c = 0; c < p->channels; c++)
-                printf(csv ? ",%.6f" : " %10.5f", p->contrast[N][c]);
-            putchar('\n');
-        }
-    }
+    char *text = NULL;
+    if (lam_summary_prediction(p, (size_t)lo, (size_t)hi, mono, &s, format, &text, &err))
+        rc = cli_report(&err, NULL);
+    else
+        fputs(text, stdout);
+    free(text);
     if (fflush(stdout) || ferror(stdout)) {
         fprintf(stderr, "lamina: cannot write the output\n");
         rc = CLI_EFILE;

@@ -7,6 +7,7 @@
 #include "lamina/batch.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
+#include "lamina/summary.h"
 #include "lamina/watch.h"
 
 #include <getopt.h>
@@ -58,45 +59,6 @@ static void watch_help(FILE *out)
           out);
 }
 
-/* The line for one image: time, name, oxide, counts, the best candidate. */
-static void print_line(const char *path, const cJSON *r, int resumed)
-{
-    char when[16];
-    time_t now = time(NULL);
-    strftime(when, sizeof when, "%H:%M:%S", localtime(&now));
-    const cJSON *ox = cJSON_GetObjectItemCaseSensitive(
-        cJSON_GetObjectItemCaseSensitive(r, "substrate"), "oxide_nm");
-    const cJSON *est = cJSON_GetObjectItemCaseSensitive(ox, "estimate");
-    const cJSON *regs = cJSON_GetObjectItemCaseSensitive(r, "regions"), *g;
-    size_t by[5] = {0};
-    const cJSON *best = NULL;
-    double best_area = 0;
-    cJSON_ArrayForEach(g, regs) {
-        const cJSON *L = cJSON_GetObjectItemCaseSensitive(g, "layers"), *f;
-        int small = 0;
-        cJSON_ArrayForEach(f, cJSON_GetObjectItemCaseSensitive(g, "flags"))
-            small |= cJSON_IsString(f) && !strcmp(f->valuestring, "small");
-        if (!cJSON_IsNumber(L) || small)
-            continue;
-        by[L->valueint < 4 ? L->valueint : 4]++;
-        double area = cJSON_GetNumberValue(cJSON_GetObjectItemCaseSensitive(g, "area_px"));
-        if (L->valueint == 1 && (!best || area > best_area))
-            best = g, best_area = area;
-    }
-    const char *base = strrchr(path, '/');
-    printf("%s  %-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", when,
-           base ? base + 1 : path, cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2],
-           by[3], by[4], resumed ? "  (results kept)" : "");
-    if (best) {
-        const cJSON *a = cJSON_GetObjectItemCaseSensitive(best, "area_um2");
-        printf("  largest 1L: #%d", cJSON_GetObjectItemCaseSensitive(best, "id")->valueint);
-        if (cJSON_IsNumber(a))
-            printf(" %.0f um2", a->valuedouble);
-    }
-    putchar('\n');
-    fflush(stdout);
-}
-
 /* The session's events: a line per image on stdout, the rest on stderr. */
 static void on_event(const lam_watch_event *ev, void *user)
 {
@@ -118,9 +80,16 @@ static void on_event(const lam_watch_event *ev, void *user)
                                                                          sizeof name),
                     ev->moved, ev->prior->images);
         break;
-    default:
-        if (!cli_quiet)
-            print_line(ev->path, ev->result, ev->kind == LAM_WATCH_KEPT);
+    default: {
+        char when[16], *text = NULL;
+        time_t now = time(NULL);
+        strftime(when, sizeof when, "%H:%M:%S", localtime(&now));
+        if (!cli_quiet && !lam_summary_image_line(ev->path, ev->result,
+                                                  ev->kind == LAM_WATCH_KEPT, &text, NULL))
+            printf("%s  %s\n", when, text);
+        free(text);
+        fflush(stdout);
+    }
     }
 }
 
