@@ -29,31 +29,6 @@ static synth_scene scenes[NT];
 static const char *bin_dir;
 static char dir[600];
 
-static char *slurp(const char *path, size_t *len)
-{
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
-        return NULL;
-    fseek(fp, 0, SEEK_END);
-    long n = ftell(fp);
-    rewind(fp);
-    char *b = malloc((size_t)n + 1);
-    if (b)
-        b[*len = fread(b, 1, (size_t)n, fp)] = '\0';
-    fclose(fp);
-    return b;
-}
-
-static int same_file(const char *a, const char *b)
-{
-    size_t na = 0, nb = 0;
-    char *x = slurp(a, &na), *y = slurp(b, &nb);
-    int same = x && y && na == nb && !memcmp(x, y, na);
-    free(x);
-    free(y);
-    return same;
-}
-
 /* Every result file of every tile (and the run files) equal in two folders. */
 static int same_outputs(const char *a, const char *b, int run_files)
 {
@@ -65,7 +40,7 @@ static int same_outputs(const char *a, const char *b, int run_files)
         for (size_t k = 0; k < 4; k++) {
             snprintf(p, sizeof p, "%s/tile%d%s", a, t, ext[k]);
             snprintf(q, sizeof q, "%s/tile%d%s", b, t, ext[k]);
-            if (!same_file(p, q)) {
+            if (!check_same_file(p, q)) {
                 printf("test_batch_pool: %s and %s differ\n", p, q);
                 same = 0;
             }
@@ -73,7 +48,7 @@ static int same_outputs(const char *a, const char *b, int run_files)
     for (size_t k = 0; run_files && k < 4; k++) {
         snprintf(p, sizeof p, "%s/%s", a, runf[k]);
         snprintf(q, sizeof q, "%s/%s", b, runf[k]);
-        if (!same_file(p, q)) {
+        if (!check_same_file(p, q)) {
             printf("test_batch_pool: %s and %s differ\n", p, q);
             same = 0;
         }
@@ -165,7 +140,7 @@ static void score_tile(const char *out, int t, score *s)
     free(map);
     snprintf(p, sizeof p, "%s/tile%d.json", out, t);
     size_t len;
-    char *text = slurp(p, &len);
+    char *text = check_slurp(p, &len);
     cJSON *root = text ? cJSON_Parse(text) : NULL;
     free(text);
     const cJSON *ox = cJSON_GetObjectItemCaseSensitive(
@@ -228,7 +203,7 @@ int main(void)
     check_true(P.spread <= U.spread, "pooled per-image oxide spread no larger (%.2f vs %.2f nm)",
                P.spread, U.spread);
     snprintf(a, sizeof a, "%s/P/pool.json", tmp);
-    check_true(same_file(a, a) && !same_file(a, "/nonexistent"), "pool.json written");
+    check_true(check_same_file(a, a) && !check_same_file(a, "/nonexistent"), "pool.json written");
     /* --no-pool: each image as if alone */
     int alone = 1;
     for (int t = 0; t < 2; t++) {
@@ -237,7 +212,7 @@ int main(void)
         for (int k = 0; k < 2; k++) {
             snprintf(a, sizeof a, "%s/A%d/tile%d.%s", tmp, t, t, k ? "layers.png" : "json");
             snprintf(b, sizeof b, "%s/U/tile%d.%s", tmp, t, k ? "layers.png" : "json");
-            alone &= same_file(a, b);
+            alone &= check_same_file(a, b);
         }
     }
     check_true(alone, "--no-pool gives each image's bytes as a run of it alone");
