@@ -3,6 +3,7 @@
  * result files) and prints the summary; for several images the catalogue
  * and run report (run_opts.h). */
 #include "cli.h"
+#include "options.h"
 #include "run_opts.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
@@ -13,52 +14,10 @@
 #include "lamina/parallel.h"
 #include "lamina/summary.h"
 
-#include <getopt.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
-
-static void analyze_help(FILE *out)
-{
-    fputs("Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
-          "Find the flakes in each micrograph, count their layers with a probability,\n"
-          "estimate the Fermi level where the colours constrain it and fit the oxide\n"
-          "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
-          "STEM.contrast.svg per image; for several images also catalog.json,\n"
-          "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
-          "and with positions goto.csv (the candidates' stage readings).\n\n"
-          "  --setup FILE          setup profile (lamina-setup/1)\n"
-          "  --oxide NM            nominal SiO2 thickness\n"
-          "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
-          "  --material NAME       flake material (graphene)\n"
-          "  --um-per-px X         pixel size at the sample\n"
-          "  --max-layers K        layer counts modelled (default 6; thicker = \"thick\")\n"
-          "  --min-area A          regions below A um^2 (or px without a pixel size) are 'small'\n"
-          "  --substrate-roi X,Y,W,H  where the bare substrate is, if not found automatically\n"
-          "  --oxide-tolerance NM  pass/fail of the oxide check (default 10)\n"
-          "  --no-oxide-fit        keep the nominal oxide\n"
-          "  --fermi EV            Fermi level of the ladder (default from the setup)\n"
-          "  --encoding E          srgb, linear or a gamma value (default: from the file)\n"
-          "  --list FILE           also analyse the images listed in FILE (one path a line)\n"
-          "  --recursive           also search the subfolders of each FOLDER\n"
-          "  --positions FILE.csv  file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\n"
-          "                        reading at each tile's centre\n"
-          CLI_STAGE_HELP
-          "  --resume              skip images whose results exist for the same input and setup\n"
-          "  --no-pool             analyse each image on its own (default for several images:\n"
-          "                        the response, NA and camera are pooled over a sample of\n"
-          "                        them first, pool.json)\n"
-          "  --pool-from FILE      use this pool.json instead of fitting (shards of one scan)\n"
-          "  --pool-only           write pool.json and stop (the prior for --pool-from)\n"
-          "  --shard I/N           analyse only the I-th of N deterministic parts of the inputs\n"
-          "  --out DIR             output folder (default lamina-out)\n"
-          "  --threads N           worker threads (default: all cores)\n"
-          "  --quiet, --verbose\n\n"
-          "Layer counts are model estimates: confirm by Raman or AFM before fabrication.\n",
-          out);
-}
-
 
 /* What run_analyze needs besides the analysis options. */
 typedef struct analyze_args {
@@ -68,7 +27,7 @@ typedef struct analyze_args {
     const char *out_dir, *list, *positions;
     long threads, K;
     double area;
-    size_t shard, shards;
+    size_t shard[2]; /* --shard I/N */
     int recursive;
     double t0;
 } analyze_args;
@@ -95,36 +54,6 @@ static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, 
     fflush(stderr);
 }
 
-static int parse_roi(const char *text, size_t roi[4])
-{
-    long v[4];
-    char *end;
-    const char *p = text;
-    for (int i = 0; i < 4; i++) {
-        v[i] = strtol(p, &end, 10);
-        if (end == p || v[i] < 0 || (i < 3 && *end != ',') || (i == 3 && *end))
-            return -1;
-        p = end + 1;
-    }
-    if (v[2] < 1 || v[3] < 1)
-        return -1;
-    for (int i = 0; i < 4; i++)
-        roi[i] = (size_t)v[i];
-    return 0;
-}
-
-static int parse_shard(const char *text, size_t *index, size_t *of)
-{
-    unsigned long a, b;
-    char tail;
-    if (sscanf(text, "%lu/%lu%c", &a, &b, &tail) != 2 || b < 1 || a < 1 || a > b || b > 100000)
-        return -1;
-    *index = (size_t)a;
-    *of = (size_t)b;
-    return 0;
-}
-
-
 /* The catalogue and run report (catalog.*, goto.csv, crops, report.html). */
 static int catalog_outputs(const lam_batch *b, const lam_positions *pos, const lam_stage *stage,
                            const char *out_dir)
@@ -142,97 +71,111 @@ static int catalog_outputs(const lam_batch *b, const lam_positions *pos, const l
     return rc;
 }
 
-enum { OPT_NO_POOL = 1201, OPT_POOL_FROM, OPT_POOL_ONLY };
-
-/* The options only analyze has; 1 if c was one, 0 if not, -1 on error. */
-static int analyze_option(analyze_args *A, int c, const char *arg)
+static int parse_roi(const char *command, const char *text, void *target)
 {
-    lam_analysis_options *opt = &A->bo.analysis;
-    switch (c) {
-    case 'K': return cli_parse_long("analyze", "--max-layers", arg, 1, 20, &A->K) ? -1 : 1;
-    case 'a': return cli_parse_double("analyze", "--min-area", arg, 0, 1e9, &A->area) ? -1 : 1;
-    case 'r':
-        if (parse_roi(arg, opt->substrate.roi)) {
-            cli_usage_error("analyze", "--substrate-roi: expected X,Y,W,H in pixels");
-            return -1;
-        }
-        opt->substrate.has_roi = 1;
-        return 1;
-    case 't':
-        return cli_parse_double("analyze", "--oxide-tolerance", arg, 0, 500,
-                                &opt->oxide_tolerance_nm) ? -1 : 1;
-    case 'N': opt->fit_oxide = 0; return 1;
-    case 'e':
-        if (lam_transfer_parse(arg, &opt->load.transfer)) {
-            cli_usage_error("analyze", "--encoding: expected srgb, linear or a gamma value");
-            return -1;
-        }
-        return 1;
-    case 'm': {
-        double mp;
-        if (cli_parse_double("analyze", "--max-megapixels", arg, 0.001, 10000, &mp))
-            return -1;
-        opt->load.max_pixels = (size_t)(mp * 1e6);
-        return 1;
+    lam_substrate_options *so = target;
+    long v[4];
+    char *end;
+    const char *p = text;
+    for (int i = 0; i < 4; i++, p = end + 1) {
+        v[i] = strtol(p, &end, 10);
+        if (end == p || v[i] < 0 || (i < 3 && *end != ',') || (i == 3 && *end) ||
+            (i >= 2 && v[i] < 1))
+            return cli_usage_error(command, "--substrate-roi: expected X,Y,W,H in pixels"), -1;
     }
-    case 'S':
-        if (parse_shard(arg, &A->shard, &A->shards)) {
-            cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
-            return -1;
-        }
-        return 1;
-    default: return 0;
-    }
+    for (int i = 0; i < 4; i++)
+        so->roi[i] = (size_t)v[i];
+    so->has_roi = 1;
+    return 0;
 }
 
-/* The run-level options; 1 if c was one, 0 if not, -1 on error. */
-static int run_option(analyze_args *A, int c, const char *arg)
+static int parse_shard(const char *command, const char *text, void *target)
 {
-    switch (c) {
-    case 'O': A->out_dir = arg; return 1;
-    case 'j': return cli_parse_long("analyze", "--threads", arg, 1, 256, &A->threads) ? -1 : 1;
-    case 'q': cli_quiet = 1; return 1;
-    case 'v': cli_verbose = 1; return 1;
-    case 'L': A->list = arg; return 1;
-    case 'P': A->positions = arg; return 1;
-    case 'R': A->bo.resume = 1; return 1;
-    case 'D': A->recursive = 1; return 1;
-    case OPT_NO_POOL: A->bo.pool = 0; return 1;
-    case OPT_POOL_FROM: A->bo.pool_from = arg; return 1;
-    case OPT_POOL_ONLY: A->bo.pool_only = 1; return 1;
-    default: return 0;
-    }
+    size_t *ab = target; /* I, N */
+    unsigned long a, b;
+    char tail;
+    if (sscanf(text, "%lu/%lu%c", &a, &b, &tail) != 2 || b < 1 || a < 1 || a > b || b > 100000)
+        return cli_usage_error(command, "--shard: expected I/N with 1 <= I <= N"), -1;
+    ab[0] = (size_t)a;
+    ab[1] = (size_t)b;
+    return 0;
 }
 
-static int parse_analyze_options(int argc, char **argv, analyze_args *A)
+static int parse_encoding(const char *command, const char *text, void *target)
 {
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS,
-        {"max-layers", required_argument, 0, 'K'},      {"min-area", required_argument, 0, 'a'},
-        {"substrate-roi", required_argument, 0, 'r'},   {"no-oxide-fit", no_argument, 0, 'N'},
-        {"oxide-tolerance", required_argument, 0, 't'}, {"encoding", required_argument, 0, 'e'},
-        {"out", required_argument, 0, 'O'},             {"threads", required_argument, 0, 'j'},
-        {"max-megapixels", required_argument, 0, 'm'},  {"quiet", no_argument, 0, 'q'},
-        {"verbose", no_argument, 0, 'v'},               {"list", required_argument, 0, 'L'},
-        {"positions", required_argument, 0, 'P'},       {"resume", no_argument, 0, 'R'},
-        {"shard", required_argument, 0, 'S'},           {"recursive", no_argument, 0, 'D'},
-        {"no-pool", no_argument, 0, OPT_NO_POOL},
-        {"pool-from", required_argument, 0, OPT_POOL_FROM},
-        {"pool-only", no_argument, 0, OPT_POOL_ONLY},
-        CLI_STAGE_LONGOPTS,                             {0, 0, 0, 0}};
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        if ((r = analyze_option(A, c, optarg)) == 0 && (r = run_option(A, c, optarg)) == 0 &&
-            (r = cli_stage_option(&A->stage, "analyze", c, optarg)) == 0 &&
-            (r = cli_setup_option(&A->so, "analyze", c, optarg)) == 0)
-            return cli_usage_error("analyze", "unknown or incomplete option '%s'",
-                                   argv[optind - 1]);
-        if (r < 0)
-            return CLI_EUSAGE;
+    if (lam_transfer_parse(text, target))
+        return cli_usage_error(command, "--encoding: expected srgb, linear or a gamma value"), -1;
+    return 0;
+}
+
+static int parse_megapixels(const char *command, const char *text, void *target)
+{
+    double mp;
+    if (cli_parse_double(command, "--max-megapixels", text, 0.001, 10000, &mp))
+        return -1;
+    *(size_t *)target = (size_t)(mp * 1e6);
+    return 0;
+}
+
+/* analyze's own options (the physics and stage options are shared). */
+#define ANALYZE_OPTIONS(A)                                                                      \
+    {                                                                                           \
+        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K",                               \
+         "layer counts modelled (default 6; thicker = \"thick\")"},                              \
+        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
+         "regions below A um^2 (or px without a pixel size) are 'small'"},                     \
+        {"substrate-roi", 0, CLI_CALL, &(A)->bo.analysis.substrate, 0, 0, parse_roi,            \
+         "X,Y,W,H", "where the bare substrate is, if not found automatically"},                \
+        {"oxide-tolerance", 0, CLI_NUMBER, &(A)->bo.analysis.oxide_tolerance_nm, 0, 500, NULL,  \
+         "NM", "pass/fail of the oxide check (default 10)"},                                   \
+        {"no-oxide-fit", 0, CLI_UNSET, &(A)->bo.analysis.fit_oxide, 0, 0, NULL, NULL,           \
+         "keep the nominal oxide"},                                                             \
+        {"encoding", 0, CLI_CALL, &(A)->bo.analysis.load.transfer, 0, 0, parse_encoding, "E",   \
+         "srgb, linear or a gamma value (default: from the file)"},                            \
+        {"max-megapixels", 0, CLI_CALL, &(A)->bo.analysis.load.max_pixels, 0, 0,                \
+         parse_megapixels, "MP", "refuse larger images"},                                      \
+        {"list", 0, CLI_TEXT, &(A)->list, 0, 0, NULL, "FILE",                                   \
+         "also analyse the images listed in FILE (one path a line)"},                          \
+        {"recursive", 0, CLI_FLAG, &(A)->recursive, 0, 0, NULL, NULL,                           \
+         "also search the subfolders of each FOLDER"},                                          \
+        {"positions", 0, CLI_TEXT, &(A)->positions, 0, 0, NULL, "FILE.csv",                     \
+         "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\nreading at each tile's "    \
+         "centre"},                                                                             \
+        {"resume", 0, CLI_FLAG, &(A)->bo.resume, 0, 0, NULL, NULL,                              \
+         "skip images whose results exist for the same input and setup"},                      \
+        {"no-pool", 0, CLI_UNSET, &(A)->bo.pool, 0, 0, NULL, NULL,                              \
+         "analyse each image on its own (default for several images:\nthe response, NA and "  \
+         "camera are pooled over a sample of\nthem first, pool.json)"},                        \
+        {"pool-from", 0, CLI_TEXT, &(A)->bo.pool_from, 0, 0, NULL, "FILE",                      \
+         "use this pool.json instead of fitting (shards of one scan)"},                         \
+        {"pool-only", 0, CLI_FLAG, &(A)->bo.pool_only, 0, 0, NULL, NULL,                        \
+         "write pool.json and stop (the prior for --pool-from)"},                               \
+        {"shard", 0, CLI_CALL, (A)->shard, 0, 0, parse_shard, "I/N",                           \
+         "analyse only the I-th of N deterministic parts of the inputs"},                       \
+        {"out", 0, CLI_TEXT, &(A)->out_dir, 0, 0, NULL, "DIR",                                  \
+         "output folder (default lamina-out)"},                                                 \
+        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
+         "worker threads (default: all cores)"},                                                \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no summary, no progress"},        \
+        {"verbose", 0, CLI_FLAG, &cli_verbose, 0, 0, NULL, NULL, "stage timings per image"},   \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
     }
-    return CLI_OK;
+
+static void analyze_help(FILE *out)
+{
+    analyze_args A;
+    cli_option t[] = ANALYZE_OPTIONS(&A);
+    fputs("Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
+          "Find the flakes in each micrograph, count their layers with a probability,\n"
+          "estimate the Fermi level where the colours constrain it and fit the oxide\n"
+          "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
+          "STEM.contrast.svg per image; for several images also catalog.json,\n"
+          "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
+          "and with positions goto.csv (the candidates' stage readings).\n\n"
+          CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
+    fputs(CLI_STAGE_HELP "\nLayer counts are model estimates: confirm by Raman or AFM before "
+          "fabrication.\n", out);
 }
 
 /* The setup, positions and output folder; an exit code. */
@@ -307,7 +250,9 @@ static int run_analyze(int argc, char **argv)
     A.threads = (long)lam_cpu_count();
     A.K = 6;
     A.area = -1;
-    int rc = parse_analyze_options(argc, argv, &A);
+    cli_option t[] = ANALYZE_OPTIONS(&A);
+    cli_command_options co = {"analyze", t, &A.so, &A.stage, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
     if (rc)
         return rc;
     lam_inputs in;
@@ -316,11 +261,11 @@ static int run_analyze(int argc, char **argv)
     if (lam_inputs_collect(&in, (const char *const *)argv + optind, (size_t)(argc - optind),
                            A.list, A.recursive, &err))
         return cli_report(&err, NULL);
-    if (A.shards)
-        lam_inputs_shard(&in, A.shard, A.shards);
+    if (A.shard[1])
+        lam_inputs_shard(&in, A.shard[0], A.shard[1]);
     if (in.count == 0) {
         lam_inputs_free(&in);
-        return A.shards ? CLI_OK : cli_usage_error("analyze", "no image given");
+        return A.shard[1] ? CLI_OK : cli_usage_error("analyze", "no image given");
     }
     lam_setup s;
     memset(&s, 0, sizeof s);

@@ -1,43 +1,18 @@
 /* cli/calibrate.c - `lamina calibrate`: fit a setup profile from labelled
  * images (or, with --self, from the images alone). */
 #include "cli.h"
+#include "options.h"
 #include "setup_opts.h"
 #include "lamina/calibrate.h"
 #include "lamina/summary.h"
 #include "lamina/labels.h"
 
-#include <getopt.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <cjson/cJSON.h>
 
 #define MAX_LABELS 32
-
-static void calibrate_help(FILE *out)
-{
-    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
-          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
-          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
-          "wavelength shift and contrast gain, and each image's oxide so that the\n"
-          "model reproduces the measured contrast of regions of known layer count (one\n"
-          "Raman-confirmed flake is enough to start). Values the labels do not\n"
-          "constrain are reported as such and keep their prior. LABELS.png uses the layer-map coding (0\n"
-          "substrate, N layers, 254/255 ignored), one per image, in the same order;\n"
-          "or LABELS.json (lamina-labels/1): polygons or points with layer counts, a\n"
-          "point taking the whole segmented region around it.\n"
-          "--self fits without labels, the layer counts left latent (marginalised):\n"
-          "use several images with several layer counts.\n\n"
-          "  --setup FILE     start values (default: calib/default-setup.json)\n"
-          "  --oxide NM       starting oxide\n"
-          "  --known-oxide D1,D2,...  oxides measured elsewhere, in image order ('-' = fit);\n"
-          "                   fix at least one when the camera is unknown: channel centres\n"
-          "                   and oxide are nearly degenerate\n"
-          "  --known-na X     the illumination NA, when known (it correlates with the centres)\n"
-          "  -o FILE          write the fitted lamina-setup/1 profile (default calibrated.json)\n"
-          "  --quiet\n",
-          out);
-}
 
 typedef struct calib_args {
     cli_setup_opts so;
@@ -47,70 +22,85 @@ typedef struct calib_args {
     double known[LAM_CALIB_MAX_IMAGES], known_na;
 } calib_args;
 
-static int parse_known_oxide(calib_args *A, const char *arg)
+static int parse_known_oxide(const char *command, const char *arg, void *target)
 {
+    calib_args *A = target;
     /* comma-separated, in image order; '-' leaves one free */
     char *save = NULL, *tok, buf[1024];
     snprintf(buf, sizeof buf, "%s", arg);
     for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
         if (A->nk == LAM_CALIB_MAX_IMAGES)
-            return cli_usage_error("calibrate", "--known-oxide: too many values");
+            return cli_usage_error(command, "--known-oxide: too many values"), -1;
         if (!strcmp(tok, "-")) {
             A->known[A->nk++] = NAN;
             continue;
         }
-        if (cli_parse_double("calibrate", "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
-            return CLI_EUSAGE;
+        if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
+            return -1;
         A->nk++;
     }
     return 0;
 }
 
+static int add_labels(const char *command, const char *arg, void *target)
+{
+    calib_args *A = target;
+    if (A->nl == MAX_LABELS)
+        return cli_usage_error(command, "at most %d label files", MAX_LABELS), -1;
+    A->labels[A->nl++] = arg;
+    return 0;
+}
+
+#define CALIBRATE_OPTIONS(A)                                                                    \
+    {                                                                                           \
+        {"labels", 0, CLI_CALL, (A), 0, 0, add_labels, "FILE",                                  \
+         "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in "      \
+         "order"},                                                                              \
+        {"self", 0, CLI_FLAG, &(A)->self, 0, 0, NULL, NULL,                                     \
+         "no labels: the layer counts left latent"},                                            \
+        {"known-oxide", 0, CLI_CALL, (A), 0, 0, parse_known_oxide, "D1,D2,...",                 \
+         "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the "   \
+         "camera is unknown: channel centres\nand oxide are nearly degenerate"},               \
+        {"known-na", 0, CLI_NUMBER, &(A)->known_na, 0, 0.95, NULL, "X",                         \
+         "the illumination NA, when known (it correlates with the centres)"},                   \
+        {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE",                                \
+         "write the fitted lamina-setup/1 profile (default calibrated.json)"},                  \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+    }
+
+static void calibrate_help(FILE *out)
+{
+    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
+          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
+          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
+          "wavelength shift and contrast gain, and each image's oxide so that the\n"
+          "model reproduces the measured contrast of regions of known layer count (one\n"
+          "Raman-confirmed flake is enough to start). Values the labels do not\n"
+          "constrain are reported as such and keep their prior. LABELS.png uses the\n"
+          "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
+          "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
+          "layer counts, a point taking the whole segmented region around it.\n"
+          "--self fits without labels, the layer counts left latent (marginalised):\n"
+          "use several images with several layer counts.\n\n" CLI_SETUP_HELP, out);
+    calib_args A;
+    cli_option t[] = CALIBRATE_OPTIONS(&A);
+    cli_options_help(out, t);
+}
+
 static int parse_args(int argc, char **argv, calib_args *A)
 {
-    static const struct option longopts[] = {CLI_SETUP_LONGOPTS,
-                                             {"labels", required_argument, 0, 'l'},
-                                             {"self", no_argument, 0, 'S'},
-                                             {"output", required_argument, 0, 'o'},
-                                             {"quiet", no_argument, 0, 'q'},
-                                             {"known-oxide", required_argument, 0, 'k'},
-                                             {"known-na", required_argument, 0, 'N'},
-                                             {0, 0, 0, 0}};
     memset(A, 0, sizeof *A);
     cli_setup_opts_init(&A->so);
     A->out = "calibrated.json";
     A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
         A->known[i] = NAN;
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "o:", longopts, NULL)) != -1) {
-        switch (c) {
-        case 'l':
-            if (A->nl == MAX_LABELS)
-                return cli_usage_error("calibrate", "at most %d label files", MAX_LABELS);
-            A->labels[A->nl++] = optarg;
-            break;
-        case 'S': A->self = 1; break;
-        case 'o': A->out = optarg; break;
-        case 'q': cli_quiet = 1; break;
-        case 'N':
-            if (cli_parse_double("calibrate", "--known-na", optarg, 0, 0.95, &A->known_na))
-                return CLI_EUSAGE;
-            break;
-        case 'k':
-            if ((r = parse_known_oxide(A, optarg)))
-                return r;
-            break;
-        default:
-            if ((r = cli_setup_option(&A->so, "calibrate", c, optarg)) > 0)
-                break;
-            if (r < 0)
-                return CLI_EUSAGE;
-            return cli_usage_error("calibrate", "unknown or incomplete option '%s'", argv[optind - 1]);
-        }
-    }
+    cli_option t[] = CALIBRATE_OPTIONS(A);
+    cli_command_options co = {"calibrate", t, &A->so, NULL, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
+    if (rc)
+        return rc;
     size_t ni = (size_t)(argc - optind);
     if (!ni)
         return cli_usage_error("calibrate", "no image given");

@@ -2,37 +2,15 @@
  * thickness the vendor claims? Parses the options, analyses the images and
  * prints the audit of lamina/oxide.h. */
 #include "cli.h"
+#include "options.h"
 #include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/oxide.h"
 #include "lamina/summary.h"
 
-#include <getopt.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-
-static void oxide_help(FILE *out)
-{
-    fputs("Usage: lamina oxide [OPTIONS] IMAGE...\n"
-          "Oxide-thickness audit from the flakes' colours: each image is analysed, the\n"
-          "images' own estimates (whose sigmas include the shared uncertainty of the\n"
-          "graphene response, NA and camera) are combined by generalised least squares,\n"
-          "and the 95 % interval is judged against nominal +- tolerance: pass, fail or\n"
-          "undecided (with what would decide it). A chi2 test says whether the images\n"
-          "agree with one thickness; a profile over nominal +- 200 nm finds other\n"
-          "interference orders.\n\n"
-          "  --setup FILE          setup profile (nominal oxide, camera, NA)\n"
-          "  --oxide NM            nominal SiO2 thickness\n"
-          "  --tolerance T         nanometres, or a percentage such as 3% (default 10 nm)\n"
-          "  --out DIR             oxide.json and oxide.svg go here (default lamina-out)\n"
-          "  --reference IMG       a bare-Si image taken with the same lamp, objective and\n"
-          "                        exposure: adds the absolute method (substrate colour),\n"
-          "                        which needs no flakes\n"
-          "  --stability X         relative lamp/exposure repeatability for it (0.01)\n"
-          "  --max-layers K, --threads N, --quiet\n",
-          out);
-}
 
 typedef struct oxide_args {
     cli_setup_opts so;
@@ -42,53 +20,49 @@ typedef struct oxide_args {
     long K, threads;
 } oxide_args;
 
-static int parse_tolerance(oxide_args *A, const char *arg)
+/* nanometres, or a percentage of the nominal value ("3%") */
+static int parse_tolerance(const char *command, const char *arg, void *target)
 {
+    oxide_args *A = target;
     size_t len = strlen(arg);
     if (len > 1 && arg[len - 1] == '%') {
         char buf[64];
         snprintf(buf, sizeof buf, "%.*s", (int)(len - 1), arg);
-        return cli_parse_double("oxide", "--tolerance", buf, 0, 100, &A->tol_pct);
+        return cli_parse_double(command, "--tolerance", buf, 0, 100, &A->tol_pct);
     }
-    return cli_parse_double("oxide", "--tolerance", arg, 0, 1000, &A->ao.tolerance_nm);
+    return cli_parse_double(command, "--tolerance", arg, 0, 1000, &A->ao.tolerance_nm);
 }
 
-static int parse_oxide_options(int argc, char **argv, oxide_args *A)
-{
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS,
-        {"tolerance", required_argument, 0, 't'}, {"out", required_argument, 0, 'O'},
-        {"max-layers", required_argument, 0, 'K'}, {"threads", required_argument, 0, 'j'},
-        {"quiet", no_argument, 0, 'q'},           {"reference", required_argument, 0, 'r'},
-        {"stability", required_argument, 0, 'y'}, {0, 0, 0, 0}};
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        r = 0;
-        switch (c) {
-        case 't': r = parse_tolerance(A, optarg); break;
-        case 'O': A->out_dir = optarg; break;
-        case 'K': r = cli_parse_long("oxide", "--max-layers", optarg, 1, 20, &A->K); break;
-        case 'j': r = cli_parse_long("oxide", "--threads", optarg, 1, 256, &A->threads); break;
-        case 'q': cli_quiet = 1; break;
-        case 'r': A->ao.reference = optarg; break;
-        case 'y':
-            r = cli_parse_double("oxide", "--stability", optarg, 1e-4, 0.5, &A->ao.stability);
-            break;
-        default:
-            r = cli_setup_option(&A->so, "oxide", c, optarg);
-            if (r == 0)
-                return cli_usage_error("oxide", "unknown or incomplete option '%s'",
-                                       argv[optind - 1]);
-            r = r < 0 ? -1 : 0;
-        }
-        if (r)
-            return CLI_EUSAGE;
+#define OXIDE_OPTIONS(A)                                                                        \
+    {                                                                                           \
+        {"tolerance", 0, CLI_CALL, (A), 0, 0, parse_tolerance, "T",                             \
+         "nanometres, or a percentage such as 3% (default 10 nm)"},                             \
+        {"out", 0, CLI_TEXT, &(A)->out_dir, 0, 0, NULL, "DIR",                                  \
+         "oxide.json and oxide.svg go here (default lamina-out)"},                              \
+        {"reference", 0, CLI_TEXT, &(A)->ao.reference, 0, 0, NULL, "IMG",                       \
+         "a bare-Si image taken with the same lamp, objective and\nexposure: adds the "        \
+         "absolute method (substrate colour),\nwhich needs no flakes"},                         \
+        {"stability", 0, CLI_NUMBER, &(A)->ao.stability, 1e-4, 0.5, NULL, "X",                  \
+         "relative lamp/exposure repeatability for it (0.01)"},                                 \
+        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
+        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N", "worker threads"},        \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
     }
-    if (optind >= argc)
-        return cli_usage_error("oxide", "no image given");
-    return CLI_OK;
+
+static void oxide_help(FILE *out)
+{
+    oxide_args A;
+    cli_option t[] = OXIDE_OPTIONS(&A);
+    fputs("Usage: lamina oxide [OPTIONS] IMAGE...\n"
+          "Oxide-thickness audit from the flakes' colours: each image is analysed, the\n"
+          "images' own estimates (whose sigmas include the shared uncertainty of the\n"
+          "graphene response, NA and camera) are combined by generalised least squares,\n"
+          "and the 95 % interval is judged against nominal +- tolerance: pass, fail or\n"
+          "undecided (with what would decide it). A chi2 test says whether the images\n"
+          "agree with one thickness; a profile over nominal +- 200 nm finds other\n"
+          "interference orders.\n\n" CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
 }
 
 /* Analyse every image; the ones that fail are reported and left out. */
@@ -114,7 +88,11 @@ static int run_oxide(int argc, char **argv)
     oxide_args A = {.out_dir = "lamina-out", .ao = lam_oxide_audit_options_default(),
                     .tol_pct = -1, .K = 6, .threads = 0};
     cli_setup_opts_init(&A.so);
-    int rc = parse_oxide_options(argc, argv, &A);
+    cli_option t[] = OXIDE_OPTIONS(&A);
+    cli_command_options co = {"oxide", t, &A.so, NULL, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
+    if (!rc && optind >= argc)
+        rc = cli_usage_error("oxide", "no image given");
     lam_setup s;
     if (rc || (rc = cli_setup_build("oxide", &A.so, &s)))
         return rc;

@@ -1,79 +1,79 @@
 /* cli/predict.c - `lamina predict`: the contrast ladder of N = A..B layers. */
 #include "cli.h"
+#include "options.h"
 #include "setup_opts.h"
 #include "lamina/model.h"
 #include "lamina/summary.h"
 
-#include <getopt.h>
 #include <stdlib.h>
 #include <string.h>
 
+
+typedef struct predict_args {
+    double mono;
+    long range[2]; /* --layers A-B */
+    const char *format;
+} predict_args;
+
+static int parse_layers(const char *command, const char *arg, void *target)
+{
+    long *r = target;
+    char a[32], b[32];
+    const char *dash = strchr(arg, '-');
+    if (!dash || dash - arg >= 31 || strlen(dash + 1) >= 31)
+        return cli_usage_error(command, "--layers: expected A-B, e.g. 1-5"), -1;
+    snprintf(a, sizeof a, "%.*s", (int)(dash - arg), arg);
+    snprintf(b, sizeof b, "%s", dash + 1);
+    if (cli_parse_long(command, "--layers", a, 1, LAM_MODEL_MAX_LAYERS, &r[0]) ||
+        cli_parse_long(command, "--layers", b, r[0], LAM_MODEL_MAX_LAYERS, &r[1]))
+        return -1;
+    return 0;
+}
+
+static int parse_format(const char *command, const char *arg, void *target)
+{
+    if (strcmp(arg, "table") && strcmp(arg, "csv") && strcmp(arg, "json"))
+        return cli_usage_error(command, "--format: expected table, csv or json"), -1;
+    *(const char **)target = arg;
+    return 0;
+}
+
+#define PREDICT_OPTIONS(A)                                                                      \
+    {                                                                                           \
+        {"wavelength", 0, CLI_NUMBER, &(A)->mono, 300, 1000, NULL, "NM",                        \
+         "one monochromatic channel instead of the camera"},                                    \
+        {"layers", 0, CLI_CALL, (A)->range, 0, 0, parse_layers, "A-B",                          \
+         "layer range (default 1-5)"},                                                          \
+        {"format", 0, CLI_CALL, &(A)->format, 0, 0, parse_format, "F",                          \
+         "table (default), csv or json"},                                                       \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, NULL},                             \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+    }
+
 static void predict_help(FILE *out)
 {
+    predict_args A;
+    cli_option t[] = PREDICT_OPTIONS(&A);
     fputs("Usage: lamina predict [OPTIONS]\n"
           "Predicted contrast C = (substrate - flake) / substrate per camera channel\n"
-          "for N-layer graphene on the setup's substrate.\n\n"
-          "  --setup FILE        setup profile (lamina-setup/1 JSON)\n"
-          "  --oxide NM          SiO2 thickness on Si, nm\n"
-          "  --stack FILE        substrate {\"stack\": [...], \"base\": ...} (e.g. hBN on SiO2)\n"
-          "  --material NAME     flake material (graphene)\n"
-          "  --na X              illumination NA (0 = normal incidence)\n"
-          "  --wavelength NM     one monochromatic channel instead of the camera\n"
-          "  --layers A-B        layer range (default 1-5)\n"
-          "  --fermi EV          Fermi level |mu| in eV\n"
-          "  --format F          table (default), csv or json\n",
-          out);
+          "for N-layer graphene on the setup's substrate.\n\n" CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
 }
 
 static int run_predict(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS,
-        {"wavelength", required_argument, 0, 'w'},
-        {"layers", required_argument, 0, 'l'},  {"format", required_argument, 0, 'F'},  {"quiet", no_argument, 0, 'q'},
-        {0, 0, 0, 0}};
+    predict_args A = {0, {1, 5}, "table"};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
-    double mono = 0;
-    long lo = 1, hi = 5;
-    const char *format = "table";
-    int opt, r;
-    optind = 1;
-    opterr = 0;
-    while ((opt = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        switch (opt) {
-        case 'w':
-            if (cli_parse_double("predict", "--wavelength", optarg, 300, 1000, &mono)) return CLI_EUSAGE;
-            break;
-        case 'l': {
-            char *dash = strchr(optarg, '-');
-            char a[32], b[32];
-            if (!dash || dash - optarg >= 31 || strlen(dash + 1) >= 31)
-                return cli_usage_error("predict", "--layers: expected A-B, e.g. 1-5");
-            memcpy(a, optarg, (size_t)(dash - optarg));
-            a[dash - optarg] = '\0';
-            strcpy(b, dash + 1);
-            if (cli_parse_long("predict", "--layers", a, 1, LAM_MODEL_MAX_LAYERS, &lo) ||
-                cli_parse_long("predict", "--layers", b, lo, LAM_MODEL_MAX_LAYERS, &hi))
-                return CLI_EUSAGE;
-            break;
-        }
-        case 'F':
-            if (strcmp(optarg, "table") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return cli_usage_error("predict", "--format: expected table, csv or json");
-            format = optarg;
-            break;
-        case 'q': cli_quiet = 1; break;
-        default:
-            if ((r = cli_setup_option(&so, "predict", opt, optarg)) > 0)
-                break;
-            if (r < 0)
-                return CLI_EUSAGE;
-            return cli_usage_error("predict", "unknown or incomplete option '%s'", argv[optind - 1]);
-        }
-    }
+    cli_option t[] = PREDICT_OPTIONS(&A);
+    cli_command_options co = {"predict", t, &so, NULL, NULL};
+    if (cli_options_parse(&co, argc, argv, 1))
+        return CLI_EUSAGE;
     if (optind < argc)
         return cli_usage_error("predict", "unexpected argument '%s'", argv[optind]);
+    double mono = A.mono;
+    long lo = A.range[0], hi = A.range[1];
+    const char *format = A.format;
     lam_setup s;
     int rc = cli_setup_build("predict", &so, &s);
     if (rc)

@@ -30,6 +30,13 @@ enum {
         {"fermi", required_argument, 0, CLI_OPT_FERMI},                                     \
         {"um-per-px", required_argument, 0, CLI_OPT_UM_PER_PX}
 
+#define CLI_SETUP_HELP                                                                     \
+    "  --setup FILE          setup profile (lamina-setup/1)\n"                             \
+    "  --oxide NM, --na X, --fermi EV, --um-per-px X, --material NAME\n"                   \
+    "                        override the setup's nominal SiO2 thickness, illumination\n" \
+    "                        NA, Fermi level, pixel size and flake material\n"             \
+    "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
+
 /* Handle a shared option: 1 if it was one, 0 if not, -1 after printing a
  * usage error for a bad value (exit 2). */
 int cli_setup_option(cli_setup_opts *o, const char *command, int code, const char *arg);

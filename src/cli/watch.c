@@ -2,6 +2,7 @@
  * (lamina/watch.h). Parses the options, sets the Ctrl-C handler and prints
  * one line per image as the session reports it. */
 #include "cli.h"
+#include "options.h"
 #include "run_opts.h"
 #include "setup_opts.h"
 #include "lamina/batch.h"
@@ -10,7 +11,6 @@
 #include "lamina/summary.h"
 #include "lamina/watch.h"
 
-#include <getopt.h>
 #include <math.h>
 #include <signal.h>
 #include <stdlib.h>
@@ -35,29 +35,6 @@ static void on_stop(int sig)
     (void)w;
 }
 
-static void watch_help(FILE *out)
-{
-    fputs("Usage: lamina watch [OPTIONS] DIR\n"
-          "Analyse each image the camera writes into DIR as soon as it is complete (closed\n"
-          "after writing, or moved into DIR), print one line per image, and keep\n"
-          "catalog.json, catalog.csv, goto.csv and report.html in --out up to date.\n"
-          "Images already in DIR are analysed first (skipped when their results exist for\n"
-          "the same content and setup). Ctrl-C finishes the current image and stops.\n\n"
-          "  --setup FILE, --oxide NM, --stack FILE, --material NAME, --um-per-px X,\n"
-          "  --na X, --fermi EV    the setup, as for analyze\n"
-          "  --max-layers K, --min-area A, --no-oxide-fit, --oxide-tolerance NM\n"
-          "  --positions FILE.csv  stage readings of the tiles (re-read for every image,\n"
-          "                        so the stage software may append to it)\n"
-          CLI_STAGE_HELP
-          "  --out DIR             outputs (default DIR/lamina-out)\n"
-          "  --threads N           worker threads per image (default: all cores)\n"
-          "  --max-images N        stop after N images analysed\n"
-          "  --idle-exit SEC       stop when no image arrived for SEC seconds\n"
-          "  --no-pool             analyse each image on its own (default: the response, NA\n"
-          "                        and camera are pooled from image to image, pool.json)\n"
-          "  --quiet\n",
-          out);
-}
 
 /* The session's events: a line per image on stdout, the rest on stderr. */
 static void on_event(const lam_watch_event *ev, void *user)
@@ -93,75 +70,88 @@ static void on_event(const lam_watch_event *ev, void *user)
     }
 }
 
-static int parse_watch_options(int argc, char **argv, lam_watch_options *w, cli_setup_opts *so,
-                               const char **out)
-{
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS, CLI_STAGE_LONGOPTS,
-        {"max-layers", required_argument, 0, 'K'}, {"min-area", required_argument, 0, 'a'},
-        {"oxide-tolerance", required_argument, 0, 't'}, {"no-oxide-fit", no_argument, 0, 'N'},
-        {"out", required_argument, 0, 'O'},        {"threads", required_argument, 0, 'j'},
-        {"positions", required_argument, 0, 'P'},  {"max-images", required_argument, 0, 'M'},
-        {"idle-exit", required_argument, 0, 'I'},  {"quiet", no_argument, 0, 'q'},
-        {"no-pool", no_argument, 0, 'n'},          {0, 0, 0, 0}};
-    long K = 6, threads = (long)lam_cpu_count(), maxi = 0;
-    double area = -1;
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        r = 0;
-        switch (c) {
-        case 'K': r = cli_parse_long("watch", "--max-layers", optarg, 1, 20, &K); break;
-        case 'a': r = cli_parse_double("watch", "--min-area", optarg, 0, 1e9, &area); break;
-        case 't':
-            r = cli_parse_double("watch", "--oxide-tolerance", optarg, 0, 500,
-                                 &w->analysis.oxide_tolerance_nm);
-            break;
-        case 'N': w->analysis.fit_oxide = 0; break;
-        case 'O': *out = optarg; break;
-        case 'j': r = cli_parse_long("watch", "--threads", optarg, 1, 256, &threads); break;
-        case 'P': w->positions = optarg; break;
-        case 'M': r = cli_parse_long("watch", "--max-images", optarg, 1, 100000000, &maxi); break;
-        case 'I':
-            r = cli_parse_double("watch", "--idle-exit", optarg, 0.1, 1e7, &w->idle_exit_s);
-            break;
-        case 'q': cli_quiet = 1; break;
-        case 'n': w->pool = 0; break;
-        default:
-            r = cli_stage_option(&w->stage, "watch", c, optarg);
-            if (r == 0)
-                r = cli_setup_option(so, "watch", c, optarg);
-            if (r == 0)
-                return cli_usage_error("watch", "unknown or incomplete option '%s'",
-                                       argv[optind - 1]);
-            r = r < 0 ? -1 : 0;
-        }
-        if (r)
-            return CLI_EUSAGE;
+/* What the table fills besides lam_watch_options. */
+typedef struct watch_args {
+    lam_watch_options w;
+    cli_setup_opts so;
+    const char *out;
+    long K, threads, max_images;
+    double area;
+} watch_args;
+
+#define WATCH_OPTIONS(A)                                                                        \
+    {                                                                                           \
+        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
+        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
+         "regions below A um^2 (or px) are 'small'"},                                           \
+        {"no-oxide-fit", 0, CLI_UNSET, &(A)->w.analysis.fit_oxide, 0, 0, NULL, NULL,            \
+         "keep the nominal oxide"},                                                             \
+        {"oxide-tolerance", 0, CLI_NUMBER, &(A)->w.analysis.oxide_tolerance_nm, 0, 500, NULL,   \
+         "NM", "pass/fail of the oxide check (default 10)"},                                   \
+        {"positions", 0, CLI_TEXT, &(A)->w.positions, 0, 0, NULL, "FILE.csv",                   \
+         "stage readings of the tiles (re-read for every image,\nso the stage software may "   \
+         "append to it)"},                                                                      \
+        {"out", 0, CLI_TEXT, &(A)->out, 0, 0, NULL, "DIR", "outputs (default DIR/lamina-out)"}, \
+        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
+         "worker threads per image (default: all cores)"},                                      \
+        {"max-images", 0, CLI_INTEGER, &(A)->max_images, 1, 1e8, NULL, "N",                     \
+         "stop after N images analysed"},                                                       \
+        {"idle-exit", 0, CLI_NUMBER, &(A)->w.idle_exit_s, 0.1, 1e7, NULL, "SEC",                \
+         "stop when no image arrived for SEC seconds"},                                         \
+        {"no-pool", 0, CLI_UNSET, &(A)->w.pool, 0, 0, NULL, NULL,                               \
+         "analyse each image on its own (default: the response, NA\nand camera are pooled "    \
+         "from image to image, pool.json)"},                                                    \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},                    \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
     }
+
+static void watch_help(FILE *out)
+{
+    watch_args A;
+    cli_option t[] = WATCH_OPTIONS(&A);
+    fputs("Usage: lamina watch [OPTIONS] DIR\n"
+          "Analyse each image the camera writes into DIR as soon as it is complete (closed\n"
+          "after writing, or moved into DIR), print one line per image, and keep\n"
+          "catalog.json, catalog.csv, goto.csv and report.html in --out up to date.\n"
+          "Images already in DIR are analysed first (skipped when their results exist for\n"
+          "the same content and setup). Ctrl-C finishes the current image and stops.\n\n"
+          CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
+    fputs(CLI_STAGE_HELP, out);
+}
+
+static int parse_watch_options(int argc, char **argv, watch_args *A)
+{
+    cli_option t[] = WATCH_OPTIONS(A);
+    cli_command_options co = {"watch", t, &A->so, &A->w.stage, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
+    if (rc)
+        return rc;
     if (optind + 1 != argc)
         return cli_usage_error("watch", "expected one folder to watch");
-    w->dir = argv[optind];
-    w->analysis.max_layers = (size_t)K;
-    w->analysis.threads = (size_t)threads;
-    w->max_images = (size_t)maxi;
-    if (area >= 0)
-        w->analysis.min_area_um2 = w->analysis.min_area_px = area;
+    A->w.dir = argv[optind];
+    A->w.analysis.max_layers = (size_t)A->K;
+    A->w.analysis.threads = (size_t)A->threads;
+    A->w.max_images = (size_t)A->max_images;
+    if (A->area >= 0)
+        A->w.analysis.min_area_um2 = A->w.analysis.min_area_px = A->area;
     return CLI_OK;
 }
 
 static int run_watch(int argc, char **argv)
 {
-    lam_watch_options w = lam_watch_options_default();
-    cli_setup_opts so;
-    cli_setup_opts_init(&so);
-    const char *out = NULL;
-    int rc = parse_watch_options(argc, argv, &w, &so, &out);
+    watch_args A = {.w = lam_watch_options_default(), .K = 6,
+                    .threads = (long)lam_cpu_count(), .area = -1};
+    cli_setup_opts_init(&A.so);
+    lam_watch_options w;
+    int rc = parse_watch_options(argc, argv, &A);
     char out_default[4096], setup_hash[LAM_BATCH_HASH_LEN];
     lam_setup s;
-    if (rc || (rc = cli_setup_build("watch", &so, &s)))
+    if (rc || (rc = cli_setup_build("watch", &A.so, &s)))
         return rc;
+    w = A.w;
+    const char *out = A.out;
+    cli_setup_opts so = A.so;
     snprintf(out_default, sizeof out_default, "%s/lamina-out", w.dir);
     w.out_dir = out ? out : out_default;
     if (w.positions && !(s.um_per_px > 0))
