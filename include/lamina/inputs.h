@@ -46,6 +46,7 @@ void lam_inputs_shard(lam_inputs *in, size_t index, size_t of);
 /* Append a copy of path; LAM_ENOMEM. */
 lam_status lam_inputs_add(lam_inputs *in, const char *path, lam_error *err);
 
+/* Release the strings and empty the list (a zeroed list is fine). */
 void lam_inputs_free(lam_inputs *in);
 
 /* The names (not paths) in folder dir for which keep(name) is true (keep

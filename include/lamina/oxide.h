@@ -161,6 +161,8 @@ typedef struct lam_oxide_audit {
     const char *reference;
 } lam_oxide_audit;
 
+/* Nominal unset (-1: the caller must give it), tolerance 10 nm, the grid
+ * nominal +- 200 nm in 1 nm steps, no reference, stability 0.01. */
 lam_oxide_audit_options lam_oxide_audit_options_default(void);
 
 /* The whole audit over analysed images (all of the same setup). The
