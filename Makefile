@@ -159,7 +159,8 @@ test: deps
 	@BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
 
 asan:
-	$(MAKE) --no-print-directory BUILD=build-asan SANITIZE=address,undefined OPT=-O1 test
+	LAMINA_RELEASE_FONT_CACHES=1 $(MAKE) --no-print-directory BUILD=build-asan \
+	    SANITIZE=address,undefined OPT=-O1 test
 
 noopt:
 	$(MAKE) --no-print-directory BUILD=build-noopt OPT=-O0 test
@@ -167,7 +168,7 @@ noopt:
 valgrind: deps
 	$(MAKE) --no-print-directory BUILD=build-vg OPT=-O1 build-vg/lamina \
 	    $(TEST_SRC:tests/%.c=build-vg/tests/%)
-	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
+	@LAMINA_RELEASE_FONT_CACHES=1 BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
 	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
 
 # The accuracy matrix of the analysis on independently rendered micrographs

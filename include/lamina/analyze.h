@@ -121,23 +121,7 @@ void lam_shared_prior_from(const lam_estimate *e, lam_shared_prior *out);
 /* ... and applied to a new estimate. */
 void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e);
 
-/* The oxide audit's profile: -2 ln L(d) on a grid, summed over images
- * (joint) and per image (per_image[j * n + g], may be NULL), each image's
- * shared parameters held at its fit. */
-lam_status lam_oxide_joint_profile(const lam_analysis *const *analyses, size_t images,
-                                   const lam_setup *setup, const double *grid, size_t n,
-                                   double *joint, double *per_image, lam_error *err);
-
-/* Absolute oxide from the substrate's colour: each image's fitted substrate
- * level at its centre over a bare-Si reference image's level (same lamp,
- * objective and exposure), against the model's R_c(SiO2 d on Si) / R_c(Si).
- * 'stability' is the assumed relative repeatability of lamp and exposure
- * between the two images (e.g. 0.01). chi2 over the grid, summed over images. */
-lam_status lam_reference_level(const char *path, const lam_load_options *load, double level[3],
-                               lam_error *err);
-lam_status lam_oxide_absolute_profile(const lam_analysis *const *analyses, size_t images,
-                                      const double reference_level[3], const lam_setup *setup,
-                                      double stability, const double *grid, size_t n,
-                                      double *chi2, lam_error *err);
+/* The oxide audit over analyses (profiles, combination, verdict) is in
+ * lamina/oxide.h. */
 
 #endif

@@ -85,6 +85,14 @@ void lam_catalog_set_stage(lam_catalog *c, const lam_positions *p, const lam_sta
 lam_status lam_catalog_add(lam_catalog *c, const struct cJSON *analysis, const char *image_path,
                            const lam_position *pos, lam_error *err);
 
+/* Add every "lamina-analysis/1" STEM.json of a results folder, in name
+ * order (catalog*.json, oxide.json and pool.json are not results), with
+ * positions when given (may be NULL); c->results is set to dir. *images
+ * (may be NULL) is incremented per result added. LAM_EIO when the folder
+ * cannot be read; lam_catalog_add's errors with the file named. */
+lam_status lam_catalog_add_folder(lam_catalog *c, const char *dir, const lam_positions *pos,
+                                  size_t *images, lam_error *err);
+
 /* Rank, resolve the stage origin and chip coordinates, and mark the same
  * flake seen in overlapping tiles (same label, and the centroid of one lies
  * inside the other's chip box): the copy with the larger usable rectangle

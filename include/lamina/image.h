@@ -114,6 +114,7 @@ lam_load_options lam_load_options_default(void);
  * 3 channels, linear, file_colour "none". */
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err);
 
+/* Release an image; img may be NULL. */
 void lam_image_free(lam_image *img);
 
 /* Guess a file's kind from its first bytes (magic numbers, not the name);

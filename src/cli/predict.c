@@ -1,121 +1,79 @@
 /* cli/predict.c - `lamina predict`: the contrast ladder of N = A..B layers. */
 #include "cli.h"
+#include "options.h"
 #include "setup_opts.h"
 #include "lamina/model.h"
+#include "lamina/summary.h"
 
-#include <getopt.h>
-#include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <cjson/cJSON.h>
+
+
+typedef struct predict_args {
+    double mono;
+    long range[2]; /* --layers A-B */
+    const char *format;
+} predict_args;
+
+static int parse_layers(const char *command, const char *arg, void *target)
+{
+    long *r = target;
+    char a[32], b[32];
+    const char *dash = strchr(arg, '-');
+    if (!dash || dash - arg >= 31 || strlen(dash + 1) >= 31)
+        return cli_usage_error(command, "--layers: expected A-B, e.g. 1-5"), -1;
+    snprintf(a, sizeof a, "%.*s", (int)(dash - arg), arg);
+    snprintf(b, sizeof b, "%s", dash + 1);
+    if (cli_parse_long(command, "--layers", a, 1, LAM_MODEL_MAX_LAYERS, &r[0]) ||
+        cli_parse_long(command, "--layers", b, r[0], LAM_MODEL_MAX_LAYERS, &r[1]))
+        return -1;
+    return 0;
+}
+
+static int parse_format(const char *command, const char *arg, void *target)
+{
+    if (strcmp(arg, "table") && strcmp(arg, "csv") && strcmp(arg, "json"))
+        return cli_usage_error(command, "--format: expected table, csv or json"), -1;
+    *(const char **)target = arg;
+    return 0;
+}
+
+#define PREDICT_OPTIONS(A)                                                                      \
+    {                                                                                           \
+        {"wavelength", 0, CLI_NUMBER, &(A)->mono, 300, 1000, NULL, "NM",                        \
+         "one monochromatic channel instead of the camera"},                                    \
+        {"layers", 0, CLI_CALL, (A)->range, 0, 0, parse_layers, "A-B",                          \
+         "layer range (default 1-5)"},                                                          \
+        {"format", 0, CLI_CALL, &(A)->format, 0, 0, parse_format, "F",                          \
+         "table (default), csv or json"},                                                       \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, NULL},                             \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+    }
 
 static void predict_help(FILE *out)
 {
+    predict_args A;
+    cli_option t[] = PREDICT_OPTIONS(&A);
     fputs("Usage: lamina predict [OPTIONS]\n"
           "Predicted contrast C = (substrate - flake) / substrate per camera channel\n"
-          "for N-layer graphene on the setup's substrate.\n\n"
-          "  --setup FILE        setup profile (lamina-setup/1 JSON)\n"
-          "  --oxide NM          SiO2 thickness on Si, nm\n"
-          "  --stack FILE        substrate {\"stack\": [...], \"base\": ...} (e.g. hBN on SiO2)\n"
-          "  --material NAME     flake material (graphene)\n"
-          "  --na X              illumination NA (0 = normal incidence)\n"
-          "  --wavelength NM     one monochromatic channel instead of the camera\n"
-          "  --layers A-B        layer range (default 1-5)\n"
-          "  --fermi EV          Fermi level |mu| in eV\n"
-          "  --format F          table (default), csv or json\n",
-          out);
-}
-
-static const char *channel_name(size_t channels, size_t c)
-{
-    static const char *rgb[3] = {"R", "G", "B"};
-    return channels == 1 ? "mono" : rgb[c];
-}
-
-static int print_json(const lam_prediction *p, size_t lo, size_t hi, double mono, const lam_setup *s)
-{
-    cJSON *root = cJSON_CreateObject();
-    cJSON_AddStringToObject(root, "schema", "lamina-predict/1");
-    cJSON_AddStringToObject(root, "contrast_convention", "(substrate - flake) / substrate");
-    cJSON *ch = cJSON_AddArrayToObject(root, "channels");
-    for (size_t c = 0; c < p->channels; c++)
-        cJSON_AddItemToArray(ch, cJSON_CreateString(channel_name(p->channels, c)));
-    if (mono > 0)
-        cJSON_AddNumberToObject(root, "wavelength_nm", mono);
-    cJSON_AddNumberToObject(root, "oxide_nm", p->oxide_nm);
-    cJSON_AddNumberToObject(root, "illumination_na", s->illumination_na);
-    cJSON_AddNumberToObject(root, "fermi_eV", fabs(p->fermi_ev));
-    char desc[200];
-    lam_sheet_describe(&s->sheet, desc, sizeof desc);
-    cJSON_AddStringToObject(root, "conductivity", desc);
-    cJSON *sr = cJSON_AddArrayToObject(root, "substrate_reflectance");
-    for (size_t c = 0; c < p->channels; c++)
-        cJSON_AddItemToArray(sr, cJSON_CreateNumber(p->substrate[c]));
-    cJSON *rows = cJSON_AddArrayToObject(root, "rows");
-    for (size_t N = lo; N <= hi; N++) {
-        cJSON *row = cJSON_CreateObject();
-        cJSON_AddNumberToObject(row, "layers", (double)N);
-        cJSON *con = cJSON_AddArrayToObject(row, "contrast");
-        for (size_t c = 0; c < p->channels; c++)
-            cJSON_AddItemToArray(con, cJSON_CreateNumber(p->contrast[N][c]));
-        cJSON_AddItemToArray(rows, row);
-    }
-    char *text = cJSON_Print(root);
-    int ok = text && printf("%s\n", text) > 0;
-    free(text);
-    cJSON_Delete(root);
-    return ok;
+          "for N-layer graphene on the setup's substrate.\n\n" CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
 }
 
 static int run_predict(int argc, char **argv)
 {
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS,
-        {"wavelength", required_argument, 0, 'w'},
-        {"layers", required_argument, 0, 'l'},  {"format", required_argument, 0, 'F'},  {"quiet", no_argument, 0, 'q'},
-        {0, 0, 0, 0}};
+    predict_args A = {0, {1, 5}, "table"};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
-    double mono = 0;
-    long lo = 1, hi = 5;
-    const char *format = "table";
-    int opt, r;
-    optind = 1;
-    opterr = 0;
-    while ((opt = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        switch (opt) {
-        case 'w':
-            if (cli_parse_double("predict", "--wavelength", optarg, 300, 1000, &mono)) return CLI_EUSAGE;
-            break;
-        case 'l': {
-            char *dash = strchr(optarg, '-');
-            char a[32], b[32];
-            if (!dash || dash - optarg >= 31 || strlen(dash + 1) >= 31)
-                return cli_usage_error("predict", "--layers: expected A-B, e.g. 1-5");
-            memcpy(a, optarg, (size_t)(dash - optarg));
-            a[dash - optarg] = '\0';
-            strcpy(b, dash + 1);
-            if (cli_parse_long("predict", "--layers", a, 1, LAM_MODEL_MAX_LAYERS, &lo) ||
-                cli_parse_long("predict", "--layers", b, lo, LAM_MODEL_MAX_LAYERS, &hi))
-                return CLI_EUSAGE;
-            break;
-        }
-        case 'F':
-            if (strcmp(optarg, "table") && strcmp(optarg, "csv") && strcmp(optarg, "json"))
-                return cli_usage_error("predict", "--format: expected table, csv or json");
-            format = optarg;
-            break;
-        case 'q': cli_quiet = 1; break;
-        default:
-            if ((r = cli_setup_option(&so, "predict", opt, optarg)) > 0)
-                break;
-            if (r < 0)
-                return CLI_EUSAGE;
-            return cli_usage_error("predict", "unknown or incomplete option '%s'", argv[optind - 1]);
-        }
-    }
+    cli_option t[] = PREDICT_OPTIONS(&A);
+    cli_command_options co = {"predict", t, &so, NULL, NULL};
+    if (cli_options_parse(&co, argc, argv, 1))
+        return CLI_EUSAGE;
     if (optind < argc)
         return cli_usage_error("predict", "unexpected argument '%s'", argv[optind]);
+    double mono = A.mono;
+    long lo = A.range[0], hi = A.range[1];
+    const char *format = A.format;
     lam_setup s;
     int rc = cli_setup_build("predict", &so, &s);
     if (rc)
@@ -132,24 +90,12 @@ static int run_predict(int argc, char **argv)
         rc = cli_report(&err, so.setup_file);
         goto done;
     }
-    if (!strcmp(format, "json")) {
-        print_json(p, (size_t)lo, (size_t)hi, mono, &s);
-    } else {
-        int csv = !strcmp(format, "csv");
-        if (!csv)
-            printf("# contrast = (substrate - flake) / substrate; oxide %.1f nm, illumination NA %.2f%s\n",
-                   p->oxide_nm, s.illumination_na, mono > 0 ? ", monochromatic" : "");
-        printf(csv ? "layers" : "%-7s", csv ? "" : "layers");
-        for (size_t c = 0; c < p->channels; c++)
-            printf(csv ? ",%s" : " %10s", channel_name(p->channels, c));
-        putchar('\n');
-        for (size_t N = (size_t)lo; N <= (size_t)hi; N++) {
-            printf(csv ? "%zu" : "%-7zu", N);
-            for (size_t c = 0; c < p->channels; c++)
-                printf(csv ? ",%.6f" : " %10.5f", p->contrast[N][c]);
-            putchar('\n');
-        }
-    }
+    char *text = NULL;
+    if (lam_summary_prediction(p, (size_t)lo, (size_t)hi, mono, &s, format, &text, &err))
+        rc = cli_report(&err, NULL);
+    else
+        fputs(text, stdout);
+    free(text);
     if (fflush(stdout) || ferror(stdout)) {
         fprintf(stderr, "lamina: cannot write the output\n");
         rc = CLI_EFILE;

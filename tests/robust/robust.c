@@ -209,6 +209,8 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
     if (!rc && !(rc = load_setup(setup, &s))) {
         lam_analysis_options opt = lam_analysis_options_default();
         rc = lam_pool_alloc(&s, &opt, &pool, &err) ? -1 : 0;
+        if (!rc)
+            lam_pool_analyse_again(pool, 1);
         for (int k = 0; k < tiles && !rc; k++)
             rc = analyse(img[k], &s, NULL, &sc[k], alone, log, pool);
         if (!rc && lam_pool_fit(pool, &prior, &err)) {
