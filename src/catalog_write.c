@@ -150,7 +150,7 @@ static void add_image_warnings(cJSON *root, const lam_catalog *c)
     for (size_t i = 0; i < c->n_images; i++) {
         const lam_catalog_image *im = &c->images[order[i]];
         if (im->warnings[0]) {
-            char t[2100];
+            char t[3200];
             snprintf(t, sizeof t, "%s: %s", im->path, im->warnings);
             cJSON_AddItemToArray(w, cJSON_CreateString(t));
         }

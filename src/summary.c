@@ -28,60 +28,105 @@ lam_status lam__text_close(lam__text *t, char **out, lam_error *err)
     return LAM_OK;
 }
 
-static void print_counts(FILE *f, const lam_batch *b)
+/* ---- the batch table, from each image's JSON (as written, or as kept by
+ * --resume: the table is the same either way) ---- */
+
+static double num(const cJSON *o, const char *k)
 {
-    fprintf(f, "%-28s %5s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, k);
+    return cJSON_IsNumber(v) ? v->valuedouble : NAN;
+}
+
+static int has_flag(const cJSON *region, const char *flag)
+{
+    const cJSON *f;
+    cJSON_ArrayForEach(f, cJSON_GetObjectItemCaseSensitive(region, "flags"))
+        if (cJSON_IsString(f) && !strcmp(f->valuestring, flag))
+            return 1;
+    return 0;
+}
+
+/* The oxide column: the fitted value, or the nominal one in brackets (a
+ * nominal value is never shown as if it were measured). */
+static void oxide_cell(const cJSON *root, char *out, size_t n)
+{
+    const cJSON *ox = cJSON_GetObjectItemCaseSensitive(
+        cJSON_GetObjectItemCaseSensitive(root, "substrate"), "oxide_nm");
+    double est = num(ox, "estimate"), nom = num(ox, "nominal");
+    if (isfinite(est))
+        snprintf(out, n, "%.1f", est);
+    else if (isfinite(nom))
+        snprintf(out, n, "(%.0f)", nom);
+    else
+        snprintf(out, n, "-");
+}
+
+static void print_counts(FILE *f, const lam_batch *b, int *any_warning)
+{
+    fprintf(f, "%-28s %7s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
             "thick", "other");
     for (size_t i = 0; i < b->count; i++) {
         const lam_batch_item *j = &b->items[i];
-        if (j->failed || j->resumed) {
-            fprintf(f, "%-28.28s %s\n", j->stem, j->failed ? "failed" : "(resumed: results kept)");
+        if (j->failed || !j->json) {
+            fprintf(f, "%-28.28s failed\n", j->stem);
             continue;
         }
         size_t by[5] = {0}, thick = 0, other = 0;
-        for (size_t r = 0; r < j->a->count; r++) {
-            const lam_region_result *res = &j->a->results[r];
-            if (res->flags & LAM_FLAG_SMALL)
+        const cJSON *r;
+        cJSON_ArrayForEach(r, cJSON_GetObjectItemCaseSensitive(j->json, "regions")) {
+            if (has_flag(r, "small"))
                 continue;
-            if (res->layers > 0)
-                by[res->layers < 4 ? res->layers : 4]++;
-            else if (res->thick && !(res->flags & LAM_FLAG_UNMODELLED))
+            double L = num(r, "layers");
+            const cJSON *lab = cJSON_GetObjectItemCaseSensitive(r, "label");
+            if (L >= 1)
+                by[L < 4 ? (int)L : 4]++;
+            else if (cJSON_IsString(lab) && !strcmp(lab->valuestring, "thick"))
                 thick++;
             else
                 other++;
         }
-        fprintf(f, "%-28.28s %5.1f %4zu %4zu %4zu %5zu %6zu %5zu\n", j->stem, j->a->oxide.estimate,
-                by[1], by[2], by[3], by[4], thick, other);
+        char ox[24], name[40];
+        oxide_cell(j->json, ox, sizeof ox);
+        int warned = cJSON_GetArraySize(cJSON_GetObjectItemCaseSensitive(j->json, "warnings")) > 0;
+        *any_warning |= warned;
+        snprintf(name, sizeof name, "%.26s%s", j->stem, warned ? " !" : "");
+        fprintf(f, "%-28.28s %7s %4zu %4zu %4zu %5zu %6zu %5zu%s\n", name, ox, by[1], by[2], by[3],
+                by[4], thick, other, j->resumed ? "  (kept)" : "");
     }
 }
 
 /* One monolayer candidate's line: area, usable rectangle, and where it is
  * (the stage reading that centres it, or its centroid in pixels). */
-static void print_candidate(FILE *f, const lam_batch_item *j, size_t r, const lam_positions *pos,
-                            const lam_stage *stage)
+static void print_candidate(FILE *f, const lam_batch_item *j, const cJSON *r,
+                            const lam_positions *pos, const lam_stage *stage)
 {
-    const lam_region_result *res = &j->a->results[r];
-    const lam_region_stats *s = &j->a->seg->regions[r];
-    double u = j->a->um_per_px;
-    char area[32], rect[48];
+    const cJSON *img = cJSON_GetObjectItemCaseSensitive(j->json, "image");
+    double u = num(img, "um_per_px"), w = num(img, "width"), h = num(img, "height");
+    const cJSON *rect = cJSON_GetObjectItemCaseSensitive(r, "usable_rect_px");
+    const cJSON *cen = cJSON_GetObjectItemCaseSensitive(r, "centroid");
+    double rw = cJSON_GetNumberValue(cJSON_GetArrayItem(rect, 2));
+    double rh = cJSON_GetNumberValue(cJSON_GetArrayItem(rect, 3));
+    double xy[2] = {cJSON_GetNumberValue(cJSON_GetArrayItem(cen, 0)),
+                    cJSON_GetNumberValue(cJSON_GetArrayItem(cen, 1))};
+    double p1 = num(cJSON_GetObjectItemCaseSensitive(r, "p_layers"), "1");
+    char area[32], rc[48];
     if (u > 0) {
-        snprintf(area, sizeof area, "%.1f um2", (double)s->area * u * u);
-        snprintf(rect, sizeof rect, "%.1f x %.1f um", res->usable_px[0] * u, res->usable_px[1] * u);
+        snprintf(area, sizeof area, "%.1f um2", num(r, "area_px") * u * u);
+        snprintf(rc, sizeof rc, "%.1f x %.1f um", rw * u, rh * u);
     } else {
-        snprintf(area, sizeof area, "%zu px", s->area);
-        snprintf(rect, sizeof rect, "%zu x %zu px", res->usable_px[0], res->usable_px[1]);
+        snprintf(area, sizeof area, "%.0f px", num(r, "area_px"));
+        snprintf(rc, sizeof rc, "%.0f x %.0f px", rw, rh);
     }
-    double xy[2] = {s->sx / (double)s->area, s->sy / (double)s->area};
+    unsigned id = (unsigned)num(r, "id");
     const lam_position *ps = pos ? lam_positions_find(pos, j->path) : NULL;
     if (ps && u > 0) {
         double unit = lam_stage_unit_um(stage, pos);
-        lam_stage_reading(stage, ps, (double)j->a->width, (double)j->a->height, u, xy[0], xy[1],
-                          xy);
-        fprintf(f, "%-28.28s %4u %7.3f %10s %16s %9.*f,%-9.*f\n", j->stem, s->id, res->p[1], area,
-                rect, unit > 1 ? 4 : 1, xy[0] / unit, unit > 1 ? 4 : 1, xy[1] / unit);
+        lam_stage_reading(stage, ps, w, h, u, xy[0], xy[1], xy);
+        fprintf(f, "%-28.28s %4u %7.3f %10s %16s %9.*f,%-9.*f\n", j->stem, id, p1, area, rc,
+                unit > 1 ? 4 : 1, xy[0] / unit, unit > 1 ? 4 : 1, xy[1] / unit);
     } else {
-        fprintf(f, "%-28.28s %4u %7.3f %10s %16s %9.0f,%-9.0f\n", j->stem, s->id, res->p[1], area,
-                rect, xy[0], xy[1]);
+        fprintf(f, "%-28.28s %4u %7.3f %10s %16s %9.0f,%-9.0f\n", j->stem, id, p1, area, rc, xy[0],
+                xy[1]);
     }
 }
 
@@ -93,7 +138,10 @@ lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos, const
     if (st)
         return st;
     FILE *f = t.f;
-    print_counts(f, b);
+    int warned = 0;
+    print_counts(f, b, &warned);
+    if (warned)
+        fprintf(f, "! = the image has warnings (printed above, and in its JSON)\n");
     fprintf(f, "\nmonolayer candidates (p >= 0.95, not small):\n");
     char where[48];
     snprintf(where, sizeof where, pos ? "stage x,y %s" : "centroid px",
@@ -102,13 +150,12 @@ lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos, const
             where);
     for (size_t i = 0; i < b->count; i++) {
         const lam_batch_item *j = &b->items[i];
-        if (j->failed || j->resumed)
+        if (j->failed || !j->json)
             continue;
-        for (size_t r = 0; r < j->a->count; r++) {
-            const lam_region_result *res = &j->a->results[r];
-            if (res->layers == 1 && !(res->flags & (LAM_FLAG_SMALL | LAM_FLAG_AMBIGUOUS)))
+        const cJSON *r;
+        cJSON_ArrayForEach(r, cJSON_GetObjectItemCaseSensitive(j->json, "regions"))
+            if (num(r, "layers") == 1 && !has_flag(r, "small") && !has_flag(r, "ambiguous"))
                 print_candidate(f, j, r, pos, stage);
-        }
     }
     fprintf(f, "\nLayer counts are model estimates: confirm by Raman spectroscopy or AFM\n"
                "before committing a flake to fabrication.\n");

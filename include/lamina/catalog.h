@@ -36,7 +36,8 @@ typedef struct lam_catalog_image {
     int oxide_fitted;
     const lam_position *pos;  /* borrowed from the positions; NULL if none */
     size_t regions, candidates;
-    char warnings[1024];      /* ';'-separated, e.g. "not in the positions file" */
+    char warnings[2048];      /* ';'-separated: the analysis' and the catalogue's */
+    char own_warnings[256];   /* the catalogue's alone, e.g. "not in the positions file" */
 } lam_catalog_image;
 
 typedef struct lam_catalog_entry {

@@ -15,6 +15,7 @@
 #include "lamina/summary.h"
 
 #include <math.h>
+#include <cjson/cJSON.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
@@ -32,10 +33,31 @@ typedef struct analyze_args {
     double t0;
 } analyze_args;
 
-/* Per image, under the batch's lock: stage timings and progress. */
+/* An image's warnings, one line each: "lamina: FILE: warning: MESSAGE",
+ * from the analysis or, for a kept result, from its JSON. Printed even
+ * with --quiet: a doubtful answer must not pass silently. */
+static void print_warnings(const lam_batch_item *it)
+{
+    if (it->a) {
+        for (size_t i = 0; i < it->a->warnings.count; i++)
+            fprintf(stderr, "lamina: %s: warning: %s\n", it->path,
+                    it->a->warnings.item[i].message);
+        return;
+    }
+    const cJSON *w, *ws = it->json ? cJSON_GetObjectItemCaseSensitive(it->json, "warnings") : NULL;
+    cJSON_ArrayForEach(w, ws) {
+        const cJSON *m = cJSON_GetObjectItemCaseSensitive(w, "message");
+        if (cJSON_IsString(m))
+            fprintf(stderr, "lamina: %s: warning: %s\n", it->path, m->valuestring);
+    }
+}
+
+/* Per image, under the batch's lock: warnings, stage timings, progress. */
 static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, void *user)
 {
     const analyze_args *A = user;
+    if (!it->failed)
+        print_warnings(it);
     if (!it->failed && !it->resumed && cli_verbose) {
         static const char *names[LAM_T_COUNT] = {"load", "display", "substrate", "contrast",
                                                  "model", "segment", "oxide", "regions"};

@@ -25,10 +25,11 @@ int cli_run_outputs(lam_catalog *cat, const char *out_dir, double refresh_s)
     lam_error_clear(&err);
     if (lam_catalog_finish(cat, &err))
         return cli_report(&err, NULL);
-    for (size_t k = 0; k < cat->n_images && !cli_quiet; k++)
-        if (cat->images[k].warnings[0])
-            fprintf(stderr, "lamina: warning: %s: %s\n", cat->images[k].path,
-                    cat->images[k].warnings);
+    /* the analyses' own warnings were printed as each image finished */
+    for (size_t k = 0; k < cat->n_images; k++)
+        if (cat->images[k].own_warnings[0])
+            fprintf(stderr, "lamina: %s: warning: %s\n", cat->images[k].path,
+                    cat->images[k].own_warnings);
     lam_run_report_options ro = {NULL, 0, refresh_s};
     if (lam_catalog_write(cat, out_dir, &err) || lam_run_report_write(cat, out_dir, &ro, &err))
         return cli_report(&err, out_dir);

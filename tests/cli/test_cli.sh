@@ -109,7 +109,7 @@ expect_rc 2 "a stage axis that is not a direction" "$BIN" analyze --stage-axes s
 grep -q "stage-axes" "$T/err" && ok "message names --stage-axes" || bad "stage message: $(cat "$T/err")"
 printf 'file,x_mm,y_mm\nHT285-A07-tile12.png,1.5,2.25\n' > "$T/pos.csv"
 expect_rc 0 "analyze with positions in mm" "$BIN" analyze --setup samples/bench3-setup.json --out "$T/p" --positions "$T/pos.csv" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
-grep -q "HT285-D04-tile21.jpg: not in the positions file" "$T/err" && ok "a tile missing from the positions is a warning naming it" || bad "missing tile: $(cat "$T/err")"
+grep -q "HT285-D04-tile21.jpg: warning: not in the positions file" "$T/err" && ok "a tile missing from the positions is a warning naming it" || bad "missing tile: $(cat "$T/err")"
 grep -q "stage x,y mm" "$T/out" && ok "terminal table shows stage readings" || bad "terminal table: $(grep -A2 monolayer "$T/out")"
 head -1 "$T/p/goto.csv" | grep -q "stage_x_mm" && ok "goto.csv in the file's unit" || bad "goto.csv header: $(head -1 "$T/p/goto.csv")"
 [ -s "$T/p/report.html" ] && ok "report.html with positions" || bad "report.html"
