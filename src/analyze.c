@@ -219,6 +219,10 @@ static void to_segment_ladder(const lam_prediction *P, size_t K, lam_ladder *L)
             L->c[N][c] = c < P->channels ? P->contrast[N][c] : P->contrast[N][P->channels - 1];
 }
 
+/* Above this share of clipped pixels a missing substrate is the exposure's
+ * fault. */
+#define SATURATED_FAILURE 0.2
+
 static lam_status substrate_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -229,9 +233,19 @@ static lam_status substrate_stage(run *r, lam_error *err)
     to_segment_ladder(&a->ladder, a->max_layers, &L);
     for (size_t N = 1; N <= LAM_MODEL_MAX_LAYERS; N++)
         memcpy(lad[N - 1], L.c[N], sizeof lad[0]);
-    so.ladder = (const double (*)[3])lad;
-    so.ladder_count = LAM_MODEL_MAX_LAYERS;
+    /* With one channel, brightness alone cannot tell the substrate from a
+     * thick flake against a ladder of unknown scale (a bright graphite
+     * flake's contrast to the substrate looks like a monolayer's the other
+     * way round): the largest uniform area is the substrate. */
+    so.ladder = a->channels > 1 ? (const double (*)[3])lad : NULL;
+    so.ladder_count = a->channels > 1 ? LAM_MODEL_MAX_LAYERS : 0;
     lam_status st = lam_substrate_estimate(r->img, &so, &a->substrate, err);
+    double clipped = (double)r->img->clipped_count / (double)(r->img->width * r->img->height);
+    if (st == LAM_ERANGE && clipped > SATURATED_FAILURE) /* say why, not where to look */
+        return lam_error_set(err, LAM_ERANGE,
+                             "%.0f %% of the pixels are saturated: no bare substrate is left to "
+                             "measure contrast against; lower the exposure or the lamp",
+                             100 * clipped);
     if (st)
         return st;
     MARK(r, LAM_T_SUBSTRATE);
@@ -502,13 +516,13 @@ static lam_status posterior_stage(run *r, lam_error *err)
     return st;
 }
 
-lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
-                       lam_analysis **out, lam_error *err)
+static lam_status analyze_once(const char *path, const lam_setup *setup,
+                               const lam_analysis_options *opt, lam_analysis **out,
+                               lam_error *err)
 {
-    lam_analysis_options defaults = lam_analysis_options_default();
     run r;
     memset(&r, 0, sizeof r);
-    r.opt = opt ? opt : &defaults;
+    r.opt = opt;
     r.setup = setup;
     r.threads = r.opt->threads ? r.opt->threads : 1;
     r.t0 = lam_clock_seconds();
@@ -519,8 +533,12 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     lam_status st = load_stage(&r, path, err);
     if (!st)
         st = lam__check_channels(r.img, setup, err);
-    if (!st && !(st = model_stage(&r, err)) && !(st = substrate_stage(&r, err)) &&
-        !(st = segment_stage(&r, err)) && !(st = fit_stage(&r, err)))
+    if (!st) {
+        r.a->transfer_from_file = r.img->transfer_from_file;
+        st = model_stage(&r, err);
+    }
+    if (!st && !(st = substrate_stage(&r, err)) && !(st = segment_stage(&r, err)) &&
+        !(st = fit_stage(&r, err)))
         st = posterior_stage(&r, err);
     if (!st)
         lam__check_analysis(r.a, r.img, setup);
@@ -533,6 +551,79 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     }
     *out = r.a;
     return LAM_OK;
+}
+
+/* How well an analysis' regions fit, per informing region (the fit's
+ * log-likelihood without the oxide prior). */
+static double fit_per_region(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    return im->regions_used ? im->data_loglik / (double)im->regions_used : -INFINITY;
+}
+
+/* A 16-bit file without colour metadata read with the setup's non-linear
+ * encoding: most 16-bit microscope files are linear, and the wrong curve
+ * doubles every layer count. Both readings are analysed; the one whose
+ * regions fit markedly better (ENCODING_MARGIN per region, in ln L) is
+ * kept, and the choice is a warning either way. */
+#define ENCODING_MARGIN 1.0
+
+static int encoding_doubtful(const lam_analysis *a, const lam_setup *s,
+                             const lam_analysis_options *opt)
+{
+    return a->bit_depth == 16 && !a->transfer_from_file &&
+           opt->load.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(s, "encoding") &&
+           s->encoding.kind != LAM_TRANSFER_LINEAR;
+}
+
+static lam_status second_reading(const char *path, const lam_setup *setup,
+                                 const lam_analysis_options *opt, lam_analysis **a,
+                                 lam_error *err)
+{
+    lam_analysis_options lin = *opt;
+    lin.load.transfer.kind = LAM_TRANSFER_LINEAR;
+    lam_analysis *b = NULL;
+    lam_status st = analyze_once(path, setup, &lin, &b, err);
+    if (st)
+        return st;
+    double fa = fit_per_region(*a), fb = fit_per_region(b);
+    const char *named = lam_transfer_name(&setup->encoding);
+    if (fb > fa + ENCODING_MARGIN) {
+        lam_analysis_free(*a);
+        *a = b;
+        lam_warnings_add(&b->warnings, "encoding-mismatch",
+                         "a 16-bit file without colour metadata: the setup says %s, but the "
+                         "flakes fit linear light much better (%.1f against %.1f per region in "
+                         "ln L), so it was read as linear; set \"encoding\": \"linear\" for "
+                         "this camera",
+                         named, fb, fa);
+    } else {
+        lam_analysis_free(b);
+        lam_warnings_add(&(*a)->warnings, "encoding-mismatch",
+                         "a 16-bit file without colour metadata read as %s (the setup's): most "
+                         "16-bit microscope files are linear; linear light did not fit better "
+                         "(%.1f against %.1f per region in ln L), check the camera's export",
+                         named, fb, fa);
+    }
+    return LAM_OK;
+}
+
+lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
+                       lam_analysis **out, lam_error *err)
+{
+    lam_analysis_options defaults = lam_analysis_options_default();
+    if (!opt)
+        opt = &defaults;
+    lam_status st = analyze_once(path, setup, opt, out, err);
+    if (!st && encoding_doubtful(*out, setup, opt)) {
+        lam_error e2;
+        lam_error_clear(&e2);
+        if (second_reading(path, setup, opt, out, &e2)) /* keep the first reading then */
+            lam_warnings_add(&(*out)->warnings, "encoding-mismatch",
+                             "a 16-bit file without colour metadata read as the setup says; "
+                             "reading it as linear failed: %s", e2.message);
+    }
+    return st;
 }
 
 int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i)

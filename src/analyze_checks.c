@@ -199,21 +199,41 @@ static void check_modes(lam_analysis *a)
     const lam_estimate *e = a->estimate, *r = e->rival;
     if (!r || e->rival_weight < RIVAL_WORTH_SAYING || e->rival_weight > 1 - RIVAL_WORTH_SAYING)
         return;
-    double w = e->rival_weight;
+    double w = e->rival_weight, d1 = e->image[0].oxide.value, d2 = r->image[0].oxide.value;
+    const char *remedy =
+        fabs(d1 - d2) > 5 ? "the oxide is what tells them apart: measure it (ellipsometry) and "
+                            "give it with \"uncertainty\": {\"oxide_nm\": ...}, calibrate on "
+                            "a flake of known thickness, or analyse more images of the chip "
+                            "together"
+                          : "give the camera and NA, calibrate on a flake of known thickness, "
+                            "or analyse more images of the chip together";
     lam_warnings_add(&a->warnings, "two-readings",
                      "the flakes fit two readings almost equally well (%.0f %% : %.0f %%): "
                      "oxide %.1f nm with graphene's response scaled %.2f, or %.1f nm scaled "
-                     "%.2f, which count the layers differently; the probabilities include both "
-                     "- give the camera and NA, calibrate on a flake of known thickness, or "
-                     "analyse more images of the chip together",
-                     100 * (1 - w), 100 * w, e->image[0].oxide.value,
-                     1 + e->shared[LAM_NU_CONTINUUM].value, r->image[0].oxide.value,
-                     1 + r->shared[LAM_NU_CONTINUUM].value);
+                     "%.2f, which count the layers differently; the probabilities include both; "
+                     "%s",
+                     100 * (1 - w), 100 * w, d1, 1 + e->shared[LAM_NU_CONTINUUM].value, d2,
+                     1 + r->shared[LAM_NU_CONTINUUM].value, remedy);
+}
+
+/* One channel: the contrast of N layers on one oxide equals that of 2N on
+ * another about 20 nm away (at 285 nm), so the counts rest on the oxide
+ * prior unless the oxide was measured. */
+static void check_monochrome(lam_analysis *a, const lam_setup *s)
+{
+    if (a->channels != 1 || (isfinite(s->sigma.oxide_nm) && s->sigma.oxide_nm <= 5))
+        return;
+    lam_warnings_add(&a->warnings, "monochrome",
+                     "one camera channel cannot tell N layers on one oxide from 2N on an oxide "
+                     "~20 nm away: the counts lean on the nominal oxide; measure it "
+                     "(ellipsometry) and give it with \"uncertainty\": {\"oxide_nm\": ...} "
+                     "(5 nm or better), or use a colour camera");
 }
 
 void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s)
 {
     check_modes(a);
+    check_monochrome(a, s);
     check_saturation(a, img);
     check_exposure(a, img);
     check_oxide(a);

@@ -8,8 +8,6 @@
 #include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
-#include <stdio.h>
-#define DEBUGFIT getenv("LAMINA_DEBUG_FIT")
 
 #define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
 #define MAX_TRIES 8         /* damping increases per iteration */
@@ -408,7 +406,6 @@ static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *
         int moved = 0;
         st = one_iteration(f, logpost, &lambda, &moved, err);
         f->e->iterations++;
-        if (DEBUGFIT) { fprintf(stderr, "it %zu lp %.3f lambda %.2g ox", it, *logpost, lambda); for (size_t j = 0; j < f->e->images; j++) fprintf(stderr, " %.2f", f->e->image[j].oxide.value); for (size_t a = 0; a < f->e->nfree; a++) fprintf(stderr, " %s=%.3f", f->e->shared[f->e->free_index[a]].name, f->e->shared[f->e->free_index[a]].value); fprintf(stderr, "\n"); }
         if (!moved)
             break;
     }
@@ -802,8 +799,6 @@ static void finish(fit_ctx *f, double lp)
 static lam_status fit_rival(fit_ctx *f, const mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
-    if (DEBUGFIT)
-        fprintf(stderr, "modes: best lp %.2f rival lp %.2f\n", m->best_lp, m->rival_lp);
     if (!(m->rival_lp > m->best_lp - LAM_RIVAL_MARGIN))
         return LAM_OK;
     lam_estimate *r = lam__estimate_clone(e);

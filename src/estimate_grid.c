@@ -20,7 +20,6 @@
 #include "linalg_internal.h"
 
 #include <math.h>
-#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -30,6 +29,8 @@
 #define SCALE_MAX 1.5
 #define SCALE_PRIOR_SD_LOG 0.18
 #define FACTOR_PRIOR_SD_LOG 0.35 /* a channel's contrast about the scaled default */
+#define GIVEN_FACTOR_SD_LOG 0.1  /* ... when the camera's curves are given */
+#define DEFAULT_GAIN_SD 0.15     /* the gain prior's sd when the camera is not given */
 #define FACTOR_MIN 0.4
 #define FACTOR_MAX 2.5
 #define FACTOR_ROUNDS 2
@@ -54,12 +55,27 @@ static void scaled(const lam_prediction *P, double s, lam_prediction *out)
             out->contrast[N][c] *= s;
 }
 
+/* How far a channel's contrast may stray from the scaled default: the
+ * camera's curves unknown, tens of per cent (FACTOR_PRIOR_SD_LOG); given,
+ * about what their stated uncertainty allows. With one channel a factor is
+ * the scale itself: none. */
+static double factor_sd(const lam_estimate *e, size_t c)
+{
+    if (e->channels < 2)
+        return 0;
+    const lam_nuisance *g = &e->shared[LAM_NU_GAIN + c];
+    return g->prior_sd < 0.5 * DEFAULT_GAIN_SD ? GIVEN_FACTOR_SD_LOG : FACTOR_PRIOR_SD_LOG;
+}
+
 /* One channel's factor f for ladder Q: weighted least squares of the
  * regions' means on f x Q over the layer hypotheses (responsibilities
  * resp), shrunk in log f towards 0 by the prior. */
 static double channel_factor(const lam_estimate *e, const lam_est_image *im, const double *resp,
                              const lam_prediction *Q, size_t c)
 {
+    double sd = factor_sd(e, c);
+    if (!(sd > 0))
+        return 1;
     size_t K = e->max_layers, H = K + 3;
     double a = 0, b = 0;
     for (size_t i = 0; i < im->count; i++) {
@@ -77,7 +93,7 @@ static double channel_factor(const lam_estimate *e, const lam_est_image *im, con
     }
     if (a <= 0 || b <= 0)
         return 1;
-    double f = b / a, prec = a * f * f, prior = 1 / (FACTOR_PRIOR_SD_LOG * FACTOR_PRIOR_SD_LOG);
+    double f = b / a, prec = a * f * f, prior = 1 / (sd * sd);
     double x = log(f) * prec / (prec + prior);
     return fmin(fmax(exp(x), FACTOR_MIN), FACTOR_MAX);
 }
@@ -100,7 +116,7 @@ static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *
             for (size_t N = 0; N <= Q->max_layers; N++)
                 Q->contrast[N][c] *= fc;
             f[c] *= fc;
-            double z = log(f[c]) / FACTOR_PRIOR_SD_LOG;
+            double sd = factor_sd(e, c), z = sd > 0 ? log(f[c]) / sd : 0;
             prior -= 0.5 * z * z;
         }
         score = lam__image_logpost(e, j, Q, resp) + prior;
@@ -286,11 +302,6 @@ lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err
     } else if (!st) {
         start_pooled(e, g);
     }
-    if (!st && getenv("LAMINA_DEBUG_FIT"))
-        fprintf(stderr, "grid: scale %.3f factors %.2f %.2f %.2f oxide %.1f alt %.1f/%.2f\n",
-                e->start_scale, e->image[0].grid_factor[0], e->image[0].grid_factor[1],
-                e->image[0].grid_factor[2], e->image[0].oxide.value, e->image[0].alt_oxide[0],
-                e->image[0].alt_scale[0]);
     for (size_t j = 0; g && j < e->images; j++) {
         free(g[j].score);
         free(g[j].factor);

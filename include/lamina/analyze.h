@@ -78,6 +78,7 @@ typedef struct lam_analysis {
     char file[1024];
     size_t width, height, channels;
     lam_transfer transfer;
+    int transfer_from_file;         /* the curve came from the file's colour metadata */
     int bit_depth;
     double um_per_px;               /* 0 unknown */
     size_t clipped_pixels;

@@ -13,7 +13,8 @@
  * "lamina: FILE: warning: MESSAGE".
  *
  * Codes: saturated, underexposed, oxide-off-nominal, encoding-mismatch,
- * setup-defaults, poor-fit.
+ * setup-defaults, poor-fit, two-readings (the flakes fit two layer
+ * counts), monochrome (one channel without a measured oxide).
  *
  * Ownership: plain values inside lam_analysis; nothing to free.
  */

@@ -180,6 +180,11 @@ int robust_run(const robust_case *c, unsigned long long seed, const char *dir, r
         return -1;
     lam_setup s;
     int rc = load_setup(c->pooled_setup ? c->pooled_setup : setup, &s);
+    if (!rc && c->oxide_known_nm > 0) { /* a measured oxide: its value and uncertainty */
+        lam_error err;
+        rc = lam_setup_set_oxide(&s, sc.phys.oxide_nm, &err) ? -1 : 0;
+        s.sigma.oxide_nm = c->oxide_known_nm;
+    }
     if (!rc)
         rc = analyse(img, &s, NULL, &sc, t, log, NULL);
     lam_setup_clear(&s);

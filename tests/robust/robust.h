@@ -36,6 +36,7 @@ typedef struct robust_case {
     int quality;
     int informed;       /* 1: the setup gives camera, lamp, NA, encoding */
     const char *pooled_setup; /* not NULL: analyse with this setup instead */
+    double oxide_known_nm;    /* > 0: the setup gives the true oxide with this sd (measured) */
 } robust_case;
 
 /* Render scene 'seed' of a case into dir, analyse it, add to the tally.

@@ -55,6 +55,7 @@ static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
     c.quality = formats[f].q;
     c.informed = inf;
     c.pooled_setup = NULL;
+        c.oxide_known_nm = 0;
     robust_tally t[2];
     memset(t, 0, sizeof t);
     unsigned long long base = o->seed + (unsigned long long)(((r * NO + x) * NF + f) * 100);
