@@ -133,11 +133,11 @@ $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 # The main job on the bundled samples (invented demo data, see samples/README.md).
 demo: deps
 	$(MAKE) --no-print-directory $(BIN)
-	$(BIN) analyze --setup samples/bench3-setup.json --out lamina-out \
+	$(BIN) analyze --setup samples/bench3-setup.json --out lamina-out/HT285 \
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
-	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
+	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out/HT090 \
 	    samples/HT090-B02-tile03.png
-	@echo "results in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg, report.html)"
+	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285 and lamina-out/HT090: STEM.json, STEM.annotated.png, STEM.layers.png, STEM.contrast.svg"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:
