@@ -3,6 +3,7 @@
 #include "robust.h"
 #include "lamina/analyze.h"
 #include "lamina/pool.h"
+#include "lamina/calibrate.h"
 #include "lamina/setup.h"
 
 #include <math.h>
@@ -274,4 +275,75 @@ void robust_print(FILE *f, const char *label, const robust_tally *t)
                 pct(t->fermi_covered, t->fermi_n), t->fermi_n, t->fermi_seen,
                 t->fermi_seen ? t->fermi_width_sum / (double)t->fermi_seen : NAN);
     fprintf(f, "  %.2f s/img\n", t->images ? t->seconds / (double)t->images : NAN);
+}
+
+/* The label map of one flake: its pixels carry its layer count, the rest
+ * is ignored (255). */
+static uint8_t *one_flake_labels(const synth_scene *sc, int obj)
+{
+    size_t n = (size_t)sc->width * (size_t)sc->height;
+    uint8_t *map = malloc(n);
+    for (size_t k = 0; map && k < n; k++)
+        map[k] = sc->owner[k] == obj ? (uint8_t)sc->obj[obj].layers : 255;
+    return map;
+}
+
+static int largest_monolayer(const synth_scene *sc)
+{
+    int best = -1;
+    for (int o = 0; o < sc->nobj; o++)
+        if (sc->obj[o].kind == SYNTH_OBJ_FLAKE && sc->obj[o].layers == 1 &&
+            (best < 0 || sc->obj[o].area_px > sc->obj[best].area_px))
+            best = o;
+    return best;
+}
+
+/* Calibrate the setup on one flake of the first tile; fills 'out'. */
+static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_setup *start,
+                              lam_calib_result *out)
+{
+    int obj = largest_monolayer(sc);
+    uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
+    lam_calib_set set;
+    lam_calib_set_init(&set);
+    lam_error err;
+    lam_error_clear(&err);
+    int rc = !map || lam_calib_measure_labels(&set, img, map, (size_t)sc->width,
+                                              (size_t)sc->height, start, &err) ||
+             lam_calibrate(start, &set, NULL, NAN, out, &err);
+    if (rc)
+        fprintf(stderr, "robust: calibration on %s: %s\n", img, err.message);
+    lam_calib_set_clear(&set);
+    free(map);
+    return rc ? -1 : 0;
+}
+
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                          robust_tally *alone, robust_tally *calibrated, FILE *log)
+{
+    if (tiles < 2 || tiles > LAM_POOL_MAX)
+        return -1;
+    synth_scene sc[LAM_POOL_MAX];
+    char img[LAM_POOL_MAX][1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/c%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    int made = 0, rc = 0;
+    for (; made < tiles && !rc; made++)
+        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
+                         img[made], sizeof img[made], made ? NULL : setup);
+    if (rc)
+        made--;
+    lam_setup s;
+    lam_calib_result cal;
+    memset(&cal, 0, sizeof cal);
+    if (!rc && !(rc = load_setup(setup, &s))) {
+        rc = calibrate_on_flake(img[0], &sc[0], &s, &cal);
+        for (int k = 1; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, NULL) ||
+                 analyse(img[k], &cal.setup, NULL, &sc[k], calibrated, log, NULL);
+        lam_calib_result_clear(&cal);
+        lam_setup_clear(&s);
+    }
+    for (int k = 0; k < made; k++)
+        synth_scene_free(&sc[k]);
+    return rc;
 }

@@ -52,6 +52,14 @@ int robust_run(const robust_case *c, unsigned long long seed, const char *dir, r
 int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
                      robust_tally *alone, robust_tally *pooled, FILE *log);
 
+/* One flake confirmed (Raman, AFM): the first of 'tiles' scenes sharing the
+ * physics of 'seed' has its largest monolayer labelled, the setup is
+ * calibrated on it (lamina/calibrate.h), and the other tiles are analysed
+ * with the setup as it was (tallied in 'alone') and as calibrated
+ * ('calibrated'). 2 <= tiles <= LAM_POOL_MAX. */
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                          robust_tally *alone, robust_tally *calibrated, FILE *log);
+
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);
 
