@@ -72,10 +72,35 @@ static lam_status dilate_edges(uint8_t *cls, size_t w, size_t h, lam_error *err)
     return LAM_OK;
 }
 
-static int cmp_float(const void *a, const void *b)
+/* The k-th smallest of m non-negative floats (0-based), as a full sort
+ * would place it: their bit patterns order like the values, so two passes
+ * of 16-bit histograms (high half, then the low half within the chosen
+ * bin) find it exactly in linear time. 'hist' holds 65536 counts. */
+static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
 {
-    float x = *(const float *)a, y = *(const float *)b;
-    return x < y ? -1 : x > y;
+    uint32_t hi = 0, lo = 0;
+    size_t below = 0;
+    memset(hist, 0, 65536 * sizeof *hist);
+    for (size_t i = 0; i < m; i++) {
+        uint32_t b;
+        memcpy(&b, &v[i], sizeof b);
+        hist[b >> 16]++;
+    }
+    while (below + hist[hi] <= k)
+        below += hist[hi++];
+    memset(hist, 0, 65536 * sizeof *hist);
+    for (size_t i = 0; i < m; i++) {
+        uint32_t b;
+        memcpy(&b, &v[i], sizeof b);
+        if (b >> 16 == hi)
+            hist[b & 0xffff]++;
+    }
+    while (below + hist[lo] <= k)
+        below += hist[lo++];
+    uint32_t bits = hi << 16 | lo;
+    float out;
+    memcpy(&out, &bits, sizeof out);
+    return out;
 }
 
 /* Statistics of horizontal pixel differences at a lag, per channel, over
@@ -96,28 +121,38 @@ static int near_zero(const lam_image *img, size_t channels, const double *zero, 
     return 1;
 }
 
+/* One pass over the sampled pixels fills every channel's differences
+ * (the pixel test is made once); order statistics by selection. */
 static void difference_stats(const lam_image *img, size_t channels, const double *zero,
                              size_t lag, diff_stats *out)
 {
-    size_t w = img->width, n = img->width * img->height, m = 0;
-    float *d = malloc((n / SAMPLE_STRIDE + 1) * sizeof *d);
+    size_t w = img->width, n = img->width * img->height, m = 0, cap = n / SAMPLE_STRIDE + 1;
+    float *d = malloc(channels * cap * sizeof *d);
+    uint32_t *hist = malloc(65536 * sizeof *hist);
     for (size_t c = 0; c < 3; c++)
         out->sigma[c] = out->p95[c] = 1e-3;
-    if (!d)
+    if (!d || !hist) {
+        free(d);
+        free(hist);
         return;
-    for (size_t c = 0; c < channels; c++) {
-        m = 0;
-        for (size_t k = lag; k + lag < n; k += SAMPLE_STRIDE)
-            if (k % w >= lag && k % w + lag < w && near_zero(img, channels, zero, k - lag) &&
-                near_zero(img, channels, zero, k + lag))
-                d[m++] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
-        if (m > 20) {
-            qsort(d, m, sizeof *d, cmp_float);
-            out->sigma[c] = fmax(1.4826 * d[m / 2], 1e-5);
-            out->p95[c] = fmax(d[m * 95 / 100], 1e-5);
+    }
+    size_t x = lag % w; /* = k % w, kept by steps instead of a division per sample */
+    for (size_t k = lag; k + lag < n; k += SAMPLE_STRIDE) {
+        if (x >= lag && x + lag < w && near_zero(img, channels, zero, k - lag) &&
+            near_zero(img, channels, zero, k + lag)) {
+            for (size_t c = 0; c < channels; c++)
+                d[c * cap + m] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
+            m++;
         }
+        for (x += SAMPLE_STRIDE; x >= w;)
+            x -= w;
+    }
+    for (size_t c = 0; c < channels && m > 20; c++) {
+        out->sigma[c] = fmax(1.4826 * select_nonneg(d + c * cap, m, m / 2, hist), 1e-5);
+        out->p95[c] = fmax(select_nonneg(d + c * cap, m, m * 95 / 100, hist), 1e-5);
     }
     free(d);
+    free(hist);
 }
 
 /* ---- statistical region merging ----
@@ -305,6 +340,26 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
  * low-frequency texture - flat-field residuals and, above all, JPEG block
  * steps - which two parts of one flake may differ by. */
 #define CELL 8
+
+/* One cell's mean per channel (NaN unless every pixel is near zero); the
+ * zero test is made once per pixel for all channels. */
+static void cell_mean(const lam_image *img, size_t channels, const double *zero, size_t cx,
+                      size_t cy, float *mean)
+{
+    size_t w = img->width;
+    double sum[3] = {0, 0, 0};
+    int ok = 1;
+    for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
+        for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
+            size_t k = y * w + x;
+            ok &= near_zero(img, channels, zero, k);
+            for (size_t c = 0; c < channels; c++)
+                sum[c] += img->plane[c][k];
+        }
+    for (size_t c = 0; c < 3; c++)
+        mean[c] = ok ? (float)(sum[c] / (CELL * CELL)) : NAN;
+}
+
 static void cell_texture(const lam_image *img, size_t channels, const double *zero, double *out)
 {
     size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
@@ -320,18 +375,9 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
     }
     for (size_t cy = 0; cy < ch; cy++)
         for (size_t cx = 0; cx < cw; cx++)
-            for (size_t c = 0; c < 3; c++) {
-                double sum = 0;
-                int ok = 1;
-                for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
-                    for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
-                        size_t k = y * w + x;
-                        ok &= near_zero(img, channels, zero, k);
-                        sum += c < channels ? img->plane[c][k] : 0;
-                    }
-                mean[(cy * cw + cx) * 3 + c] = ok ? (float)(sum / (CELL * CELL)) : NAN;
-            }
-    for (size_t c = 0; c < channels; c++) {
+            cell_mean(img, channels, zero, cx, cy, &mean[(cy * cw + cx) * 3]);
+    uint32_t *hist = malloc(65536 * sizeof *hist);
+    for (size_t c = 0; c < channels && hist; c++) {
         m = 0;
         for (size_t i = 0; i < cw * ch; i++) {
             float a = mean[i * 3 + c], r = (i + 1) % cw ? mean[(i + 1) * 3 + c] : NAN;
@@ -341,11 +387,10 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
             if (!isnan(a) && !isnan(b))
                 d[m++] = fabsf(a - b);
         }
-        if (m > 20) {
-            qsort(d, m, sizeof *d, cmp_float);
-            out[c] = d[m * 9 / 10];
-        }
+        if (m > 20)
+            out[c] = select_nonneg(d, m, m * 9 / 10, hist);
     }
+    free(hist);
     free(mean);
     free(d);
 }
