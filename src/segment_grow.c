@@ -168,160 +168,235 @@ static void difference_stats(const lam_image *img, size_t channels, const double
 #define MERGE_SIGMAS 3.0
 #define PAIR_BUCKETS 1024
 #define PAIR_RANGE 6.0      /* pairs differing by more than 6 deltas never merge */
+#define ROOT 0x80000000u    /* a root's first word: this bit | its region's pixel count */
+
+/* Union-find over pixels. Each pixel is a node of 1 + channels words: its
+ * parent's index (always smaller: the smaller index stays the root), or
+ * for a root ROOT | the region's pixel count; then, for a root, the
+ * region's sums per channel. One node is one cache access (16 bytes for
+ * colour), which is what the merging waits for. */
+typedef union word {
+    uint32_t u;
+    float f;
+} word;
 
 typedef struct merge_state {
-    uint32_t *parent;   /* = the label array */
-    uint32_t *count;    /* per root */
-    float *sum;         /* per root, channels values */
+    word *node;
+    size_t stride;      /* words per node: 1 + channels */
     size_t channels;
     double delta[3], sigma[3];
 } merge_state;
 
-static uint32_t root_of(uint32_t *parent, uint32_t a)
+static uint32_t root_of(word *node, size_t stride, uint32_t a)
 {
-    while (parent[a] != a) {
-        parent[a] = parent[parent[a]];
-        a = parent[a];
+    for (;;) {
+        uint32_t p = node[a * stride].u;
+        if (p & ROOT)
+            return a;
+        uint32_t g = node[p * stride].u;
+        if (g & ROOT)
+            return p;
+        node[a * stride].u = g; /* path halving */
+        a = g;
     }
-    return a;
 }
 
-static int means_agree(const merge_state *m, uint32_t a, uint32_t b)
+/* The means of regions a and b (na, nb pixels) agree in every channel. A
+ * channel within delta agrees whatever the noise term, so the square root
+ * is taken only when some channel needs it (the same decisions). */
+static int means_agree(const merge_state *m, uint32_t a, uint32_t b, uint32_t ca, uint32_t cb)
 {
-    double na = m->count[a], nb = m->count[b], se = sqrt(1 / na + 1 / nb);
+    double na = ca, nb = cb, se = -1;
+    const word *sa = m->node + a * m->stride + 1, *sb = m->node + b * m->stride + 1;
     for (size_t c = 0; c < m->channels; c++) {
-        double d = m->sum[a * m->channels + c] / na - m->sum[b * m->channels + c] / nb;
-        if (fabs(d) > m->delta[c] + MERGE_SIGMAS * m->sigma[c] * se)
+        double d = fabs(sa[c].f / na - sb[c].f / nb);
+        if (d <= m->delta[c])
+            continue;
+        if (se < 0)
+            se = sqrt(1 / na + 1 / nb);
+        if (d > m->delta[c] + MERGE_SIGMAS * m->sigma[c] * se)
             return 0;
     }
     return 1;
 }
 
-static void merge(merge_state *m, uint32_t a, uint32_t b)
+static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
 {
     if (b < a) {
         uint32_t t = a;
         a = b, b = t;
     }
-    m->parent[b] = a; /* the smaller index stays the root */
-    m->count[a] += m->count[b];
-    for (size_t c = 0; c < m->channels; c++)
-        m->sum[a * m->channels + c] += m->sum[b * m->channels + c];
+    word *na = m->node + a * m->stride, *nb = m->node + b * m->stride;
+    nb[0].u = a; /* the smaller index stays the root */
+    na[0].u = ROOT | count;
+    for (size_t c = 1; c <= m->channels; c++)
+        na[c].f += nb[c].f;
 }
 
-/* Bucket of a neighbour pair: the largest channel difference in deltas. */
+/* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
+ * provisional pixels, sorted by bucket: the largest channel difference in
+ * deltas. Two passes over row slices on all cores - count per slice and
+ * bucket, then write - put them in the order of one sequential counting
+ * sort (bucket, then pixel), whatever the thread count. */
+typedef struct pair_ctx {
+    const lam_image *img;
+    const uint8_t *cls;
+    const merge_state *m;
+    size_t *pos;        /* per slice, PAIR_BUCKETS counts, then write positions */
+    uint32_t *pairs;    /* NULL in the counting pass */
+} pair_ctx;
+
 static int pair_bucket(const lam_image *img, const merge_state *m, size_t a, size_t b)
 {
     double f = 0;
-    for (size_t c = 0; c < m->channels; c++)
-        f = fmax(f, fabs(img->plane[c][a] - img->plane[c][b]) / m->delta[c]);
+    for (size_t c = 0; c < m->channels; c++) {
+        double q = fabs(img->plane[c][a] - img->plane[c][b]) / m->delta[c];
+        f = q > f ? q : f;
+    }
     return f >= PAIR_RANGE ? -1 : (int)(f / PAIR_RANGE * PAIR_BUCKETS);
 }
 
-/* Pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) sorted by bucket. */
-static uint32_t *sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
-                              size_t *count)
+static void pair_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    size_t w = img->width, n = img->width * img->height, total = 0;
-    size_t *start = calloc(PAIR_BUCKETS + 1, sizeof *start);
-    uint16_t *bucket = malloc(2 * n * sizeof *bucket);
-    if (!start || !bucket) {
-        free(start);
-        free(bucket);
-        return NULL;
-    }
-    for (size_t k = 0; k < n; k++)
-        for (int dir = 0; dir < 2; dir++) {
+    pair_ctx *p = vctx;
+    size_t w = p->img->width, n = w * p->img->height, *pos = p->pos + slice * PAIR_BUCKETS;
+    const uint8_t *cls = p->cls;
+    for (size_t k = begin * w; k < end * w; k++) {
+        if (cls[k] != PROVISIONAL)
+            continue;
+        for (size_t dir = 0; dir < 2; dir++) {
             size_t q = dir ? k + w : k + 1;
-            int ok = cls[k] == PROVISIONAL && (dir ? q < n : (k + 1) % w != 0) &&
-                     cls[q] == PROVISIONAL;
-            int b = ok ? pair_bucket(img, m, k, q) : -1;
-            bucket[2 * k + (size_t)dir] = b < 0 ? UINT16_MAX : (uint16_t)b;
-            if (b >= 0)
-                start[b + 1]++, total++;
+            if (!(dir ? q < n : (k + 1) % w != 0) || cls[q] != PROVISIONAL)
+                continue;
+            int b = pair_bucket(p->img, p->m, k, q);
+            if (b < 0)
+                continue;
+            if (p->pairs)
+                p->pairs[pos[b]++] = (uint32_t)(2 * k + dir);
+            else
+                pos[b]++;
         }
-    for (int b = 0; b < PAIR_BUCKETS; b++)
-        start[b + 1] += start[b];
-    uint32_t *pairs = malloc((total ? total : 1) * sizeof *pairs);
-    for (size_t i = 0; pairs && i < 2 * n; i++)
-        if (bucket[i] != UINT16_MAX)
-            pairs[start[bucket[i]]++] = (uint32_t)i;
-    free(start);
-    free(bucket);
+    }
+}
+
+static uint32_t *sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
+                              size_t threads, size_t *count)
+{
+    size_t h = img->height, slices = threads < 1 ? 1 : threads;
+    slices = slices > h ? h : (slices > LAM_MAX_THREADS ? LAM_MAX_THREADS : slices);
+    pair_ctx p = {img, cls, m, calloc(slices * PAIR_BUCKETS, sizeof(size_t)), NULL};
+    if (!p.pos)
+        return NULL;
+    lam_parallel_for(h, slices, pair_rows, &p);
+    size_t total = 0;
+    for (size_t b = 0; b < PAIR_BUCKETS; b++)
+        for (size_t t = 0; t < slices; t++) {
+            size_t c = p.pos[t * PAIR_BUCKETS + b];
+            p.pos[t * PAIR_BUCKETS + b] = total;
+            total += c;
+        }
+    p.pairs = malloc((total ? total : 1) * sizeof *p.pairs);
+    if (p.pairs)
+        lam_parallel_for(h, slices, pair_rows, &p);
+    free(p.pos);
     *count = total;
-    return pairs;
+    return p.pairs;
 }
 
-static lam_status init_merge(const lam_image *img, size_t channels, const uint8_t *cls,
-                             uint32_t *lab, merge_state *m, lam_error *err)
+typedef struct init_ctx {
+    const lam_image *img;
+    const uint8_t *cls;
+    merge_state *m;
+} init_ctx;
+
+static void init_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    size_t n = img->width * img->height;
-    m->parent = lab;
-    m->channels = channels;
-    m->count = malloc(n * sizeof *m->count);
-    m->sum = malloc(n * channels * sizeof *m->sum);
-    if (!m->count || !m->sum) {
-        free(m->count);
-        free(m->sum);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    (void)slice;
+    init_ctx *ic = vctx;
+    size_t w = ic->img->width, ch = ic->m->channels, S = ic->m->stride;
+    for (size_t k = begin * w; k < end * w; k++) {
+        word *nd = ic->m->node + k * S;
+        nd[0].u = ROOT | (ic->cls[k] == PROVISIONAL);
+        for (size_t c = 0; c < ch; c++)
+            nd[1 + c].f = ic->img->plane[c][k];
     }
-    for (size_t k = 0; k < n; k++) {
-        lab[k] = (uint32_t)k;
-        m->count[k] = cls[k] == PROVISIONAL;
-        for (size_t c = 0; c < channels; c++)
-            m->sum[k * channels + c] = img->plane[c][k];
-    }
-    return LAM_OK;
 }
 
-/* Every pixel to its root, roots numbered 1..m in row-major order (label 0:
- * no region). Parents point to smaller indices, so one forward pass
- * compresses every path. */
-static uint32_t number_regions(const uint8_t *cls, uint32_t *lab, size_t n)
+/* Every pixel to its region's id, ids 1..m in row-major order of the roots
+ * (label 0: no region), written as the label map over the start of the
+ * node array (pixel k's label lands where nodes <= k lay, already read).
+ * Parents point to smaller indices, so one forward pass resolves every
+ * pixel (ids are flagged while indices are mixed in). */
+static uint32_t number_regions(const uint8_t *cls, word *node, size_t S, size_t n)
 {
-    for (size_t k = 0; k < n; k++)
-        if (cls[k] == PROVISIONAL)
-            lab[k] = lab[lab[k]];
     uint32_t m = 0;
     for (size_t k = 0; k < n; k++) {
+        uint32_t p = node[k * S].u;
         if (cls[k] != PROVISIONAL)
-            lab[k] = UINT32_MAX;
-        else if (lab[k] == k)
-            lab[k] = (uint32_t)n + ++m; /* ids offset by n while roots are mixed in */
+            node[k * S].u = 0;
+        else if (p & ROOT)
+            node[k * S].u = ROOT | ++m;
         else
-            lab[k] = lab[lab[k]];
+            node[k * S].u = node[p * S].u;
     }
+    uint32_t *lab = &node[0].u;
     for (size_t k = 0; k < n; k++)
-        lab[k] = lab[k] == UINT32_MAX ? 0 : lab[k] - (uint32_t)n;
+        lab[k] = node[k * S].u & ~ROOT;
     return m;
 }
 
+/* Neighbour pairs in order of increasing difference; two regions merge
+ * when their means agree. The label map is rebuilt from the nodes. */
+static void merge_pairs(merge_state *m, const uint32_t *pairs, size_t np, size_t w)
+{
+    word *node = m->node;
+    size_t S = m->stride;
+    for (size_t i = 0; i < np; i++) {
+#ifdef __GNUC__
+        if (i + 16 < np) { /* the nodes of a later pair: the loop waits for memory */
+            size_t k2 = pairs[i + 16] / 2;
+            __builtin_prefetch(&node[k2 * S]);
+            __builtin_prefetch(&node[(pairs[i + 16] % 2 ? k2 + w : k2 + 1) * S]);
+        }
+#endif
+        size_t k = pairs[i] / 2, q = pairs[i] % 2 ? k + w : k + 1;
+        uint32_t a = root_of(node, S, (uint32_t)k), b = root_of(node, S, (uint32_t)q);
+        if (a == b)
+            continue;
+        uint32_t ca = node[a * S].u & ~ROOT, cb = node[b * S].u & ~ROOT;
+        if (means_agree(m, a, b, ca, cb))
+            merge(m, a, b, ca + cb);
+    }
+}
+
+/* The regions of the provisional pixels into seg->label (replaced by the
+ * shrunk node array). */
 static lam_status grow(const lam_image *img, size_t channels, const double *delta,
-                       const double *sigma, const uint8_t *cls, uint32_t *lab, uint32_t *regions,
-                       lam_error *err)
+                       const double *sigma, lam_segmentation *seg, size_t threads,
+                       uint32_t *regions, lam_error *err)
 {
     size_t w = img->width, n = img->width * img->height, np = 0;
     merge_state m;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
-    lam_status st = init_merge(img, channels, cls, lab, &m, err);
-    if (st)
-        return st;
-    uint32_t *pairs = sorted_pairs(img, cls, &m, &np);
-    if (!pairs)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
-    for (size_t i = 0; i < np; i++) {
-        size_t k = pairs[i] / 2, q = pairs[i] % 2 ? k + w : k + 1;
-        uint32_t a = root_of(lab, (uint32_t)k), b = root_of(lab, (uint32_t)q);
-        if (a != b && means_agree(&m, a, b))
-            merge(&m, a, b);
+    m.channels = channels;
+    m.stride = 1 + channels;
+    if (!(m.node = malloc(n * m.stride * sizeof *m.node)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    init_ctx ic = {img, seg->cls, &m};
+    lam_parallel_for(img->height, threads, init_rows, &ic);
+    uint32_t *pairs = sorted_pairs(img, seg->cls, &m, threads, &np);
+    if (!pairs) {
+        free(m.node);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
     }
+    merge_pairs(&m, pairs, np, w);
     free(pairs);
-    free(m.count);
-    free(m.sum);
-    if (!st)
-        *regions = number_regions(cls, lab, n);
-    return st;
+    *regions = number_regions(seg->cls, m.node, m.stride, n);
+    uint32_t *lab = realloc(m.node, n * sizeof *lab);
+    free(seg->label);
+    seg->label = lab ? lab : &m.node[0].u; /* a failed shrink keeps the larger block */
+    return LAM_OK;
 }
 
 /* Is a region the bare substrate: every channel within tolerance of zero? */
@@ -441,12 +516,13 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     /* substrate patches differ by its low-frequency errors: let them merge */
     for (size_t c = 0; c < 3; c++)
         delta[c] = fmax(delta[c], 2 * scatter[c]);
-    lam_parallel_for(h, opt->threads ? opt->threads : 1, edge_rows, &ec);
+    size_t threads = opt->threads ? opt->threads : 1;
+    lam_parallel_for(h, threads, edge_rows, &ec);
     lam_status st = dilate_edges(seg->cls, w, h, err);
     if (st)
         return st;
     uint32_t m = 0;
-    if ((st = grow(img, channels, delta, sigma, seg->cls, seg->label, &m, err)))
+    if ((st = grow(img, channels, delta, sigma, seg, threads, &m, err)))
         return st;
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
     uint8_t *depth = lam__boundary_depth(seg->label, w, h);
