@@ -209,7 +209,7 @@ fuzz: deps
 	done
 
 bench: $(BIN) $(BENCH_BIN)
-	@for b in $(BENCH_BIN); do $$b || exit 1; done
+	@for b in $(BENCH_BIN); do $$b $(BUILD) || exit 1; done
 	@sh bench/bench_analyze.sh $(BUILD)
 	@sh bench/bench_batch.sh $(BUILD)
 
