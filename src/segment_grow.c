@@ -234,73 +234,104 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
 }
 
 /* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
- * provisional pixels, sorted by bucket: the largest channel difference in
- * deltas. Two passes over row slices on all cores - count per slice and
- * bucket, then write - put them in the order of one sequential counting
- * sort (bucket, then pixel), whatever the thread count. */
+ * provisional pixels in order of bucket (the largest channel difference in
+ * deltas), then pixel. Built per strip of STRIP_ROWS rows on all cores: a
+ * strip's buckets are computed once into a small buffer and its pairs
+ * placed by a counting sort that stays in cache. Taking bucket b of every
+ * strip in turn, then bucket b + 1, gives the order of one sequential sort
+ * of the whole image, whatever the thread count. */
+#define STRIP_ROWS 16
+#define NO_BUCKET UINT16_MAX
+
+typedef struct pair_lists {
+    size_t strips, cap;   /* cap: slots per strip (2 pairs per pixel) */
+    uint32_t *pairs;      /* strip s at pairs + s * cap */
+    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + s * (PAIR_BUCKETS + 1) */
+} pair_lists;
+
 typedef struct pair_ctx {
     const lam_image *img;
     const uint8_t *cls;
     const merge_state *m;
-    size_t *pos;        /* per slice, PAIR_BUCKETS counts, then write positions */
-    uint32_t *pairs;    /* NULL in the counting pass */
+    pair_lists *L;
+    int failed;
 } pair_ctx;
 
-static int pair_bucket(const lam_image *img, const merge_state *m, size_t a, size_t b)
+static uint16_t pair_bucket(const lam_image *img, const merge_state *m, size_t a, size_t b)
 {
     double f = 0;
     for (size_t c = 0; c < m->channels; c++) {
         double q = fabs(img->plane[c][a] - img->plane[c][b]) / m->delta[c];
         f = q > f ? q : f;
     }
-    return f >= PAIR_RANGE ? -1 : (int)(f / PAIR_RANGE * PAIR_BUCKETS);
+    return f >= PAIR_RANGE ? NO_BUCKET : (uint16_t)(f / PAIR_RANGE * PAIR_BUCKETS);
 }
 
-static void pair_rows(size_t begin, size_t end, size_t slice, void *vctx)
+/* Buckets of the pairs of rows y0..y1 into bk (2 per pixel, NO_BUCKET when
+ * there is no pair) and their counts per bucket into cnt. */
+static void strip_buckets(const pair_ctx *p, size_t y0, size_t y1, uint16_t *bk, uint32_t *cnt)
 {
-    pair_ctx *p = vctx;
-    size_t w = p->img->width, n = w * p->img->height, *pos = p->pos + slice * PAIR_BUCKETS;
+    size_t w = p->img->width, h = p->img->height;
     const uint8_t *cls = p->cls;
-    for (size_t k = begin * w; k < end * w; k++) {
-        if (cls[k] != PROVISIONAL)
-            continue;
-        for (size_t dir = 0; dir < 2; dir++) {
-            size_t q = dir ? k + w : k + 1;
-            if (!(dir ? q < n : (k + 1) % w != 0) || cls[q] != PROVISIONAL)
-                continue;
-            int b = pair_bucket(p->img, p->m, k, q);
-            if (b < 0)
-                continue;
-            if (p->pairs)
-                p->pairs[pos[b]++] = (uint32_t)(2 * k + dir);
-            else
-                pos[b]++;
+    for (size_t y = y0; y < y1; y++)
+        for (size_t x = 0; x < w; x++) {
+            size_t k = y * w + x;
+            uint16_t *o = bk + 2 * (k - y0 * w);
+            int here = cls[k] == PROVISIONAL;
+            int right = here && x + 1 < w && cls[k + 1] == PROVISIONAL;
+            int down = here && y + 1 < h && cls[k + w] == PROVISIONAL;
+            o[0] = right ? pair_bucket(p->img, p->m, k, k + 1) : NO_BUCKET;
+            o[1] = down ? pair_bucket(p->img, p->m, k, k + w) : NO_BUCKET;
+            cnt[o[0]]++;
+            cnt[o[1]]++;
         }
-    }
 }
 
-static uint32_t *sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
-                              size_t threads, size_t *count)
+static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    size_t h = img->height, slices = threads < 1 ? 1 : threads;
-    slices = slices > h ? h : (slices > LAM_MAX_THREADS ? LAM_MAX_THREADS : slices);
-    pair_ctx p = {img, cls, m, calloc(slices * PAIR_BUCKETS, sizeof(size_t)), NULL};
-    if (!p.pos)
-        return NULL;
-    lam_parallel_for(h, slices, pair_rows, &p);
-    size_t total = 0;
-    for (size_t b = 0; b < PAIR_BUCKETS; b++)
-        for (size_t t = 0; t < slices; t++) {
-            size_t c = p.pos[t * PAIR_BUCKETS + b];
-            p.pos[t * PAIR_BUCKETS + b] = total;
-            total += c;
-        }
-    p.pairs = malloc((total ? total : 1) * sizeof *p.pairs);
-    if (p.pairs)
-        lam_parallel_for(h, slices, pair_rows, &p);
-    free(p.pos);
-    *count = total;
-    return p.pairs;
+    (void)slice;
+    pair_ctx *p = vctx;
+    pair_lists *L = p->L;
+    size_t w = p->img->width, h = p->img->height;
+    uint16_t *bk = malloc(2 * STRIP_ROWS * w * sizeof *bk);
+    uint32_t *cnt = malloc(((size_t)NO_BUCKET + 1) * sizeof *cnt);
+    if (!bk || !cnt) {
+        p->failed = 1;
+        begin = end;
+    }
+    for (size_t s = begin; s < end; s++) {
+        size_t y0 = s * STRIP_ROWS, y1 = y0 + STRIP_ROWS < h ? y0 + STRIP_ROWS : h;
+        memset(cnt, 0, ((size_t)NO_BUCKET + 1) * sizeof *cnt);
+        strip_buckets(p, y0, y1, bk, cnt);
+        uint32_t *start = L->start + s * (PAIR_BUCKETS + 1), *out = L->pairs + s * L->cap;
+        start[0] = 0;
+        for (size_t b = 0; b < PAIR_BUCKETS; b++)
+            start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
+        for (size_t i = 0; i < 2 * (y1 - y0) * w; i++)
+            if (bk[i] != NO_BUCKET)
+                out[cnt[bk[i]]++] = (uint32_t)(2 * y0 * w + i);
+    }
+    free(bk);
+    free(cnt);
+}
+
+static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
+                               size_t threads, pair_lists *L, lam_error *err)
+{
+    size_t w = img->width, h = img->height;
+    L->strips = (h + STRIP_ROWS - 1) / STRIP_ROWS;
+    L->cap = 2 * STRIP_ROWS * w;
+    L->pairs = malloc(L->strips * L->cap * sizeof *L->pairs);
+    L->start = malloc(L->strips * (PAIR_BUCKETS + 1) * sizeof *L->start);
+    pair_ctx p = {img, cls, m, L, 0};
+    if (L->pairs && L->start)
+        lam_parallel_for(L->strips, threads, pair_strips, &p);
+    if (!L->pairs || !L->start || p.failed) {
+        free(L->pairs);
+        free(L->start);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    }
+    return LAM_OK;
 }
 
 typedef struct init_ctx {
@@ -345,28 +376,70 @@ static uint32_t number_regions(const uint8_t *cls, word *node, size_t S, size_t 
     return m;
 }
 
-/* Neighbour pairs in order of increasing difference; two regions merge
- * when their means agree. The label map is rebuilt from the nodes. */
-static void merge_pairs(merge_state *m, const uint32_t *pairs, size_t np, size_t w)
+/* One pair: two regions merge when their means agree. */
+static void merge_pair(merge_state *m, size_t k, size_t q)
 {
     word *node = m->node;
     size_t S = m->stride;
-    for (size_t i = 0; i < np; i++) {
-#ifdef __GNUC__
-        if (i + 16 < np) { /* the nodes of a later pair: the loop waits for memory */
-            size_t k2 = pairs[i + 16] / 2;
-            __builtin_prefetch(&node[k2 * S]);
-            __builtin_prefetch(&node[(pairs[i + 16] % 2 ? k2 + w : k2 + 1) * S]);
-        }
-#endif
-        size_t k = pairs[i] / 2, q = pairs[i] % 2 ? k + w : k + 1;
-        uint32_t a = root_of(node, S, (uint32_t)k), b = root_of(node, S, (uint32_t)q);
-        if (a == b)
+    uint32_t a = root_of(node, S, (uint32_t)k), b = root_of(node, S, (uint32_t)q);
+    if (a == b)
+        return;
+    uint32_t ca = node[a * S].u & ~ROOT, cb = node[b * S].u & ~ROOT;
+    if (means_agree(m, a, b, ca, cb))
+        merge(m, a, b, ca + cb);
+}
+
+/* Where the merging is in the pair lists: bucket b of strip s, i of e. */
+typedef struct cursor {
+    size_t b, s;
+    uint32_t i, e;
+} cursor;
+
+#define BATCH 256
+#define AHEAD 16
+
+/* The next (up to) BATCH pairs in order: bucket by bucket, each across the
+ * strips. 0 at the end. */
+static size_t gather(const pair_lists *L, cursor *c, uint32_t *batch)
+{
+    size_t nb = 0;
+    while (nb < BATCH && c->b < PAIR_BUCKETS) {
+        if (c->i < c->e) {
+            batch[nb++] = L->pairs[c->s * L->cap + c->i++];
             continue;
-        uint32_t ca = node[a * S].u & ~ROOT, cb = node[b * S].u & ~ROOT;
-        if (means_agree(m, a, b, ca, cb))
-            merge(m, a, b, ca + cb);
+        }
+        if (++c->s == L->strips) {
+            c->s = 0;
+            if (++c->b == PAIR_BUCKETS)
+                break;
+        }
+        const uint32_t *st = L->start + c->s * (PAIR_BUCKETS + 1);
+        c->i = st[c->b];
+        c->e = st[c->b + 1];
     }
+    return nb;
+}
+
+/* Neighbour pairs in order of increasing difference, a batch at a time so
+ * that the nodes of later pairs are fetched while earlier ones merge: the
+ * loop waits for memory, not for arithmetic. */
+static void merge_pairs(merge_state *m, const pair_lists *L, size_t w)
+{
+    uint32_t batch[BATCH];
+    size_t nb, S = m->stride;
+    cursor c = {0, 0, L->start[0], L->start[1]};
+    while ((nb = gather(L, &c, batch)) > 0)
+        for (size_t j = 0; j < nb; j++) {
+#ifdef __GNUC__
+            if (j + AHEAD < nb) {
+                size_t k2 = batch[j + AHEAD] / 2;
+                __builtin_prefetch(&m->node[k2 * S]);
+                __builtin_prefetch(&m->node[(batch[j + AHEAD] % 2 ? k2 + w : k2 + 1) * S]);
+            }
+#endif
+            size_t k = batch[j] / 2;
+            merge_pair(m, k, batch[j] % 2 ? k + w : k + 1);
+        }
 }
 
 /* The regions of the provisional pixels into seg->label (replaced by the
@@ -375,7 +448,7 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
                        const double *sigma, lam_segmentation *seg, size_t threads,
                        uint32_t *regions, lam_error *err)
 {
-    size_t w = img->width, n = img->width * img->height, np = 0;
+    size_t w = img->width, n = img->width * img->height;
     merge_state m;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
@@ -385,13 +458,15 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
     init_ctx ic = {img, seg->cls, &m};
     lam_parallel_for(img->height, threads, init_rows, &ic);
-    uint32_t *pairs = sorted_pairs(img, seg->cls, &m, threads, &np);
-    if (!pairs) {
+    pair_lists L;
+    lam_status st = sorted_pairs(img, seg->cls, &m, threads, &L, err);
+    if (st) {
         free(m.node);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+        return st;
     }
-    merge_pairs(&m, pairs, np, w);
-    free(pairs);
+    merge_pairs(&m, &L, w);
+    free(L.pairs);
+    free(L.start);
     *regions = number_regions(seg->cls, m.node, m.stride, n);
     uint32_t *lab = realloc(m.node, n * sizeof *lab);
     free(seg->label);
