@@ -21,55 +21,89 @@ typedef struct edge_ctx {
     const lam_image *img;
     size_t channels;
     float t2[3], t4[3]; /* per channel: change across 2 and across 4 pixels */
+    uint8_t *edge;      /* 1 on transition pixels (and the 2-pixel frame) */
     uint8_t *cls;
+    int failed;
 } edge_ctx;
+
+/* One inner row's test for one channel, branch-free so that it runs on
+ * vector units: acc[x] becomes non-zero where a change exceeds t2 across
+ * two pixels or t4 across four, along the row or the column. */
+static void edge_test(const float *restrict p, size_t w, float t2, float t4, int32_t *restrict acc)
+{
+    for (size_t x = 2; x + 2 < w; x++)
+        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2) | (fabsf(p[x + w] - p[x - w]) > t2) |
+                  (fabsf(p[x + 2] - p[x - 2]) > t4) | (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4);
+}
 
 /* Transition pixels: the contrast changes by more than a channel's
  * threshold across two pixels (or, for slow blurred edges, across four) in
- * some channel: the pixel mixes two classes. */
+ * some channel: the pixel mixes two classes. The frame of 2 pixels, where
+ * the test does not fit, counts as transition. */
 static void edge_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
-    const edge_ctx *e = vctx;
+    edge_ctx *e = vctx;
     size_t w = e->img->width, h = e->img->height;
-    for (size_t y = begin; y < end; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint8_t cls = PROVISIONAL;
-            int inner = x > 1 && y > 1 && x + 2 < w && y + 2 < h;
-            for (size_t c = 0; c < e->channels && inner; c++) {
-                const float *p = e->img->plane[c];
-                float t2 = e->t2[c], t4 = e->t4[c];
-                if (fabsf(p[k + 1] - p[k - 1]) > t2 || fabsf(p[k + w] - p[k - w]) > t2 ||
-                    fabsf(p[k + 2] - p[k - 2]) > t4 || fabsf(p[k + 2 * w] - p[k - 2 * w]) > t4) {
-                    cls = LAM_CLASS_NONE;
-                    break;
-                }
-            }
-            e->cls[k] = inner ? cls : LAM_CLASS_NONE;
+    int32_t *acc = malloc(w * sizeof *acc);
+    if (!acc) {
+        e->failed = 1;
+        return;
+    }
+    for (size_t y = begin; y < end; y++) {
+        uint8_t *out = e->edge + y * w;
+        if (y < 2 || y + 2 >= h || w < 5) {
+            memset(out, 1, w);
+            continue;
         }
+        memset(acc, 0, w * sizeof *acc);
+        for (size_t c = 0; c < e->channels; c++)
+            edge_test(e->img->plane[c] + y * w, w, e->t2[c], e->t4[c], acc);
+        for (size_t x = 0; x < w; x++)
+            out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
+    }
+    free(acc);
 }
 
 /* Close gaps in the transition lines: a pixel next to (8-neighbour) a
- * transition pixel is one too, so no one-pixel path joins two regions. */
-static lam_status dilate_edges(uint8_t *cls, size_t w, size_t h, lam_error *err)
+ * transition pixel is one too, so no one-pixel path joins two regions.
+ * Reads the edge mask, writes the classes. */
+static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    uint8_t *orig = malloc(w * h);
-    if (!orig)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
-    memcpy(orig, cls, w * h);
-    for (size_t y = 1; y + 1 < h; y++)
-        for (size_t x = 1; x + 1 < w; x++) {
-            size_t k = y * w + x;
-            if (orig[k] != LAM_CLASS_NONE &&
-                (orig[k - 1] == LAM_CLASS_NONE || orig[k + 1] == LAM_CLASS_NONE ||
-                 orig[k - w] == LAM_CLASS_NONE || orig[k + w] == LAM_CLASS_NONE ||
-                 orig[k - w - 1] == LAM_CLASS_NONE || orig[k - w + 1] == LAM_CLASS_NONE ||
-                 orig[k + w - 1] == LAM_CLASS_NONE || orig[k + w + 1] == LAM_CLASS_NONE))
-                cls[k] = LAM_CLASS_NONE;
+    (void)slice;
+    edge_ctx *e = vctx;
+    size_t w = e->img->width, h = e->img->height;
+    uint8_t *col = malloc(w);
+    if (!col) {
+        e->failed = 1;
+        return;
+    }
+    for (size_t y = begin; y < end; y++) {
+        const uint8_t *r = e->edge + y * w, *u = y ? r - w : r, *d = y + 1 < h ? r + w : r;
+        for (size_t x = 0; x < w; x++)
+            col[x] = (uint8_t)(u[x] | r[x] | d[x]);
+        uint8_t *out = e->cls + y * w;
+        for (size_t x = 0; x < w; x++) {
+            int any = col[x] | (x ? col[x - 1] : 0) | (x + 1 < w ? col[x + 1] : 0);
+            out[x] = any ? LAM_CLASS_NONE : PROVISIONAL;
         }
-    free(orig);
-    return LAM_OK;
+    }
+    free(col);
+}
+
+/* Transition pixels and their neighbours out; every other pixel may join a
+ * region (class PROVISIONAL). */
+static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
+{
+    size_t w = e->img->width, h = e->img->height;
+    if (!(e->edge = malloc(w * h)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
+    lam_parallel_for(h, threads, edge_rows, e);
+    if (!e->failed)
+        lam_parallel_for(h, threads, dilate_rows, e);
+    free(e->edge);
+    e->edge = NULL;
+    return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask") : LAM_OK;
 }
 
 /* The k-th smallest of m non-negative floats (0-based), as a full sort
@@ -583,6 +617,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (n >= UINT32_MAX / 2)
         return lam_error_set(err, LAM_ETOOBIG, "image too large to label");
     edge_ctx ec;
+    memset(&ec, 0, sizeof ec);
     ec.img = img;
     ec.channels = channels;
     ec.cls = seg->cls;
@@ -592,8 +627,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     for (size_t c = 0; c < 3; c++)
         delta[c] = fmax(delta[c], 2 * scatter[c]);
     size_t threads = opt->threads ? opt->threads : 1;
-    lam_parallel_for(h, threads, edge_rows, &ec);
-    lam_status st = dilate_edges(seg->cls, w, h, err);
+    lam_status st = mark_edges(&ec, threads, err);
     if (st)
         return st;
     uint32_t m = 0;
