@@ -275,7 +275,7 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
  * strip in turn, then bucket b + 1, gives the order of one sequential sort
  * of the whole image, whatever the thread count. */
 #define STRIP_ROWS 16
-#define NO_BUCKET UINT16_MAX
+#define NO_BUCKET PAIR_BUCKETS /* no pair: counted apart */
 
 typedef struct pair_lists {
     size_t strips, cap;   /* cap: slots per strip (2 pairs per pixel) */
@@ -291,34 +291,55 @@ typedef struct pair_ctx {
     int failed;
 } pair_ctx;
 
-static uint16_t pair_bucket(const lam_image *img, const merge_state *m, size_t a, size_t b)
+/* Buckets of the pairs (x, x + off) of one row, n of them, into out:
+ * NO_BUCKET where either pixel is not provisional or they differ by
+ * PAIR_RANGE deltas or more. Branch-free per channel (vectorised); the
+ * arithmetic is that of one pair at a time. f: n doubles of scratch. */
+static void row_buckets(const pair_ctx *p, size_t k0, size_t off, size_t n, double *restrict f,
+                        int32_t *restrict b, uint16_t *restrict out)
 {
-    double f = 0;
-    for (size_t c = 0; c < m->channels; c++) {
-        double q = fabs(img->plane[c][a] - img->plane[c][b]) / m->delta[c];
-        f = q > f ? q : f;
+    const uint8_t *restrict ca = p->cls + k0, *restrict cb = ca + off;
+    for (size_t c = 0; c < p->m->channels; c++) {
+        const float *restrict pa = p->img->plane[c] + k0, *restrict pb = pa + off;
+        double d = p->m->delta[c];
+        if (c == 0)
+            for (size_t x = 0; x < n; x++) {
+                double q = fabs((double)(pa[x] - pb[x])) / d;
+                f[x] = q > 0.0 ? q : 0.0;
+            }
+        else
+            for (size_t x = 0; x < n; x++) {
+                double q = fabs((double)(pa[x] - pb[x])) / d;
+                f[x] = q > f[x] ? q : f[x];
+            }
     }
-    return f >= PAIR_RANGE ? NO_BUCKET : (uint16_t)(f / PAIR_RANGE * PAIR_BUCKETS);
+    /* f < PAIR_RANGE exactly when f / PAIR_RANGE * PAIR_BUCKETS < PAIR_BUCKETS (a
+     * quotient below 1 does not round up to 1), so this is the test of one pair */
+    for (size_t x = 0; x < n; x++) {
+        double v = f[x] / PAIR_RANGE * PAIR_BUCKETS;
+        b[x] = v < PAIR_BUCKETS ? (int32_t)v : NO_BUCKET;
+    }
+    for (size_t x = 0; x < n; x++)
+        out[x] = (ca[x] == PROVISIONAL) & (cb[x] == PROVISIONAL) ? (uint16_t)b[x] : NO_BUCKET;
 }
 
-/* Buckets of the pairs of rows y0..y1 into bk (2 per pixel, NO_BUCKET when
- * there is no pair) and their counts per bucket into cnt. */
-static void strip_buckets(const pair_ctx *p, size_t y0, size_t y1, uint16_t *bk, uint32_t *cnt)
+/* Buckets of the pairs of rows y0..y1 into bk: the pairs (k, k + 1) of
+ * the strip's pixels first, then (k, k + w); NO_BUCKET when there is no
+ * pair. f, b: width doubles and integers of scratch. */
+static void strip_buckets(const pair_ctx *p, size_t y0, size_t y1, uint16_t *bk, double *f,
+                          int32_t *b)
 {
-    size_t w = p->img->width, h = p->img->height;
-    const uint8_t *cls = p->cls;
-    for (size_t y = y0; y < y1; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint16_t *o = bk + 2 * (k - y0 * w);
-            int here = cls[k] == PROVISIONAL;
-            int right = here && x + 1 < w && cls[k + 1] == PROVISIONAL;
-            int down = here && y + 1 < h && cls[k + w] == PROVISIONAL;
-            o[0] = right ? pair_bucket(p->img, p->m, k, k + 1) : NO_BUCKET;
-            o[1] = down ? pair_bucket(p->img, p->m, k, k + w) : NO_BUCKET;
-            cnt[o[0]]++;
-            cnt[o[1]]++;
-        }
+    size_t w = p->img->width, h = p->img->height, npx = (y1 - y0) * w;
+    for (size_t y = y0; y < y1; y++) {
+        uint16_t *right = bk + (y - y0) * w, *down = right + npx;
+        row_buckets(p, y * w, 1, w - 1, f, b, right);
+        right[w - 1] = NO_BUCKET;
+        if (y + 1 < h)
+            row_buckets(p, y * w, w, w, f, b, down);
+        else
+            for (size_t x = 0; x < w; x++)
+                down[x] = NO_BUCKET;
+    }
 }
 
 static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
@@ -328,25 +349,34 @@ static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
     pair_lists *L = p->L;
     size_t w = p->img->width, h = p->img->height;
     uint16_t *bk = malloc(2 * STRIP_ROWS * w * sizeof *bk);
-    uint32_t *cnt = malloc(((size_t)NO_BUCKET + 1) * sizeof *cnt);
-    if (!bk || !cnt) {
+    double *f = malloc(w * sizeof *f);
+    int32_t *bi = malloc(w * sizeof *bi);
+    uint32_t cnt[PAIR_BUCKETS + 1];
+    if (!bk || !f || !bi) {
         p->failed = 1;
         begin = end;
     }
     for (size_t s = begin; s < end; s++) {
         size_t y0 = s * STRIP_ROWS, y1 = y0 + STRIP_ROWS < h ? y0 + STRIP_ROWS : h;
-        memset(cnt, 0, ((size_t)NO_BUCKET + 1) * sizeof *cnt);
-        strip_buckets(p, y0, y1, bk, cnt);
+        size_t npx = (y1 - y0) * w;
+        strip_buckets(p, y0, y1, bk, f, bi);
+        memset(cnt, 0, sizeof cnt);
+        for (size_t i = 0; i < 2 * npx; i++)
+            cnt[bk[i]]++;
         uint32_t *start = L->start + s * (PAIR_BUCKETS + 1), *out = L->pairs + s * L->cap;
         start[0] = 0;
         for (size_t b = 0; b < PAIR_BUCKETS; b++)
             start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
-        for (size_t i = 0; i < 2 * (y1 - y0) * w; i++)
-            if (bk[i] != NO_BUCKET)
-                out[cnt[bk[i]]++] = (uint32_t)(2 * y0 * w + i);
+        for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
+            for (size_t dir = 0; dir < 2; dir++) {
+                uint16_t b = bk[i + dir * npx];
+                if (b != NO_BUCKET)
+                    out[cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
+            }
     }
     free(bk);
-    free(cnt);
+    free(f);
+    free(bi);
 }
 
 static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
