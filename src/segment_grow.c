@@ -409,12 +409,24 @@ static void init_rows(size_t begin, size_t end, size_t slice, void *vctx)
     (void)slice;
     init_ctx *ic = vctx;
     size_t w = ic->img->width, ch = ic->m->channels, S = ic->m->stride;
-    for (size_t k = begin * w; k < end * w; k++) {
-        word *nd = ic->m->node + k * S;
-        nd[0].u = ROOT | (ic->cls[k] == PROVISIONAL);
-        for (size_t c = 0; c < ch; c++)
-            nd[1 + c].f = ic->img->plane[c][k];
-    }
+    const float *restrict p0 = ic->img->plane[0], *restrict p1 = ic->img->plane[1];
+    const float *restrict p2 = ic->img->plane[2];
+    const uint8_t *restrict cls = ic->cls;
+    word *restrict node = ic->m->node;
+    if (ch == 3) /* the usual case, without the channel loop */
+        for (size_t k = begin * w; k < end * w; k++) {
+            node[4 * k].u = ROOT | (cls[k] == PROVISIONAL);
+            node[4 * k + 1].f = p0[k];
+            node[4 * k + 2].f = p1[k];
+            node[4 * k + 3].f = p2[k];
+        }
+    else
+        for (size_t k = begin * w; k < end * w; k++) {
+            word *nd = node + k * S;
+            nd[0].u = ROOT | (cls[k] == PROVISIONAL);
+            for (size_t c = 0; c < ch; c++)
+                nd[1 + c].f = ic->img->plane[c][k];
+        }
 }
 
 /* Every pixel to its region's id, ids 1..m in row-major order of the roots
@@ -615,19 +627,42 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
  * merge when their means differ by less than delta - a sixth of a monolayer
  * step, or the artefacts (JPEG block steps) when they are larger - plus
  * three standard errors of the pixel noise 'sigma'. */
+/* The three texture statistics are independent: one task each, run side
+ * by side. */
+typedef struct texture_job {
+    const lam_image *img;
+    size_t channels;
+    const double *zero;
+    diff_stats d[2];
+    double cells[3];
+} texture_job;
+
+static void texture_tasks(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    texture_job *j = vctx;
+    for (size_t t = begin; t < end; t++)
+        if (t < 2)
+            difference_stats(j->img, j->channels, j->zero, t + 1, &j->d[t]);
+        else
+            cell_texture(j->img, j->channels, j->zero, j->cells);
+}
+
 static void thresholds(const lam_image *img, size_t channels, const double *c1,
-                       const double noise[3], edge_ctx *ec, double delta[3], double sigma[3])
+                       const double noise[3], size_t threads, edge_ctx *ec, double delta[3],
+                       double sigma[3])
 {
     double step1 = 0, zero[3];
     for (size_t c = 0; c < channels; c++)
         step1 = fmax(step1, fabs(c1[c]));
     for (size_t c = 0; c < 3; c++)
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
-    diff_stats d1, d2;
-    double cells[3];
-    difference_stats(img, channels, zero, 1, &d1);
-    difference_stats(img, channels, zero, 2, &d2);
-    cell_texture(img, channels, zero, cells);
+    texture_job job;
+    memset(&job, 0, sizeof job);
+    job.img = img, job.channels = channels, job.zero = zero;
+    lam_parallel_for(3, threads, texture_tasks, &job);
+    const diff_stats d1 = job.d[0], d2 = job.d[1];
+    const double *cells = job.cells;
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
         ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
@@ -652,11 +687,11 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     ec.channels = channels;
     ec.cls = seg->cls;
     double delta[3], sigma[3];
-    thresholds(img, channels, c1, noise, &ec, delta, sigma);
+    size_t threads = opt->threads ? opt->threads : 1;
+    thresholds(img, channels, c1, noise, threads, &ec, delta, sigma);
     /* substrate patches differ by its low-frequency errors: let them merge */
     for (size_t c = 0; c < 3; c++)
         delta[c] = fmax(delta[c], 2 * scatter[c]);
-    size_t threads = opt->threads ? opt->threads : 1;
     lam_status st = mark_edges(&ec, threads, err);
     if (st)
         return st;
