@@ -269,17 +269,18 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
 
 /* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
  * provisional pixels in order of bucket (the largest channel difference in
- * deltas), then pixel. Built per strip of STRIP_ROWS rows on all cores: a
+ * deltas), then pixel. Built per strip of a few rows on all cores: a
  * strip's buckets are computed once into a small buffer and its pairs
  * placed by a counting sort that stays in cache. Taking bucket b of every
  * strip in turn, then bucket b + 1, gives the order of one sequential sort
  * of the whole image, whatever the thread count. */
-#define STRIP_ROWS 16
+#define STRIP_ROWS 16 /* at most; fewer when wide, so a strip's codes fit 16 bits */
 #define NO_BUCKET PAIR_BUCKETS /* no pair: counted apart */
 
 typedef struct pair_lists {
-    size_t strips, cap;   /* cap: slots per strip (2 pairs per pixel) */
-    uint32_t *pairs;      /* strip s at pairs + s * cap */
+    size_t strips, rows, cap; /* cap: slots per strip (2 pairs per pixel) */
+    uint16_t *code;       /* strip s at code + s * cap: 2i + dir for its pixel i, or */
+    uint32_t *pairs;      /* (images wider than 32768 px) 2k + dir for pixel k */
     uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + s * (PAIR_BUCKETS + 1) */
 } pair_lists;
 
@@ -348,7 +349,7 @@ static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
     pair_ctx *p = vctx;
     pair_lists *L = p->L;
     size_t w = p->img->width, h = p->img->height;
-    uint16_t *bk = malloc(2 * STRIP_ROWS * w * sizeof *bk);
+    uint16_t *bk = malloc(2 * L->rows * w * sizeof *bk);
     double *f = malloc(w * sizeof *f);
     int32_t *bi = malloc(w * sizeof *bi);
     uint32_t cnt[PAIR_BUCKETS + 1];
@@ -357,21 +358,25 @@ static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
         begin = end;
     }
     for (size_t s = begin; s < end; s++) {
-        size_t y0 = s * STRIP_ROWS, y1 = y0 + STRIP_ROWS < h ? y0 + STRIP_ROWS : h;
+        size_t y0 = s * L->rows, y1 = y0 + L->rows < h ? y0 + L->rows : h;
         size_t npx = (y1 - y0) * w;
         strip_buckets(p, y0, y1, bk, f, bi);
         memset(cnt, 0, sizeof cnt);
         for (size_t i = 0; i < 2 * npx; i++)
             cnt[bk[i]]++;
-        uint32_t *start = L->start + s * (PAIR_BUCKETS + 1), *out = L->pairs + s * L->cap;
+        uint32_t *start = L->start + s * (PAIR_BUCKETS + 1);
         start[0] = 0;
         for (size_t b = 0; b < PAIR_BUCKETS; b++)
             start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
         for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
             for (size_t dir = 0; dir < 2; dir++) {
                 uint16_t b = bk[i + dir * npx];
-                if (b != NO_BUCKET)
-                    out[cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
+                if (b == NO_BUCKET)
+                    continue;
+                if (L->code)
+                    L->code[s * L->cap + cnt[b]++] = (uint16_t)(2 * i + dir);
+                else
+                    L->pairs[s * L->cap + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
             }
     }
     free(bk);
@@ -383,14 +388,21 @@ static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const m
                                size_t threads, pair_lists *L, lam_error *err)
 {
     size_t w = img->width, h = img->height;
-    L->strips = (h + STRIP_ROWS - 1) / STRIP_ROWS;
-    L->cap = 2 * STRIP_ROWS * w;
-    L->pairs = malloc(L->strips * L->cap * sizeof *L->pairs);
+    L->rows = 32768 / w < STRIP_ROWS ? (32768 / w ? 32768 / w : 1) : STRIP_ROWS;
+    L->strips = (h + L->rows - 1) / L->rows;
+    L->cap = 2 * L->rows * w;
+    L->code = NULL;
+    L->pairs = NULL;
+    if (L->cap <= 65536) /* 16-bit codes: half the memory of pixel indices */
+        L->code = malloc(L->strips * L->cap * sizeof *L->code);
+    else
+        L->pairs = malloc(L->strips * L->cap * sizeof *L->pairs);
     L->start = malloc(L->strips * (PAIR_BUCKETS + 1) * sizeof *L->start);
     pair_ctx p = {img, cls, m, L, 0};
-    if (L->pairs && L->start)
+    if ((L->code || L->pairs) && L->start)
         lam_parallel_for(L->strips, threads, pair_strips, &p);
-    if (!L->pairs || !L->start || p.failed) {
+    if ((!L->code && !L->pairs) || !L->start || p.failed) {
+        free(L->code);
         free(L->pairs);
         free(L->start);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
@@ -481,7 +493,8 @@ static size_t gather(const pair_lists *L, cursor *c, uint32_t *batch)
     size_t nb = 0;
     while (nb < BATCH && c->b < PAIR_BUCKETS) {
         if (c->i < c->e) {
-            batch[nb++] = L->pairs[c->s * L->cap + c->i++];
+            size_t at = c->s * L->cap + c->i++;
+            batch[nb++] = L->code ? (uint32_t)(c->s * L->cap + L->code[at]) : L->pairs[at];
             continue;
         }
         if (++c->s == L->strips) {
@@ -541,6 +554,7 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
         return st;
     }
     merge_pairs(&m, &L, w);
+    free(L.code);
     free(L.pairs);
     free(L.start);
     *regions = number_regions(seg->cls, m.node, m.stride, n);
