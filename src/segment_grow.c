@@ -155,36 +155,54 @@ static int near_zero(const lam_image *img, size_t channels, const double *zero, 
     return 1;
 }
 
-/* One pass over the sampled pixels fills every channel's differences
- * (the pixel test is made once); order statistics by selection. */
-static void difference_stats(const lam_image *img, size_t channels, const double *zero,
-                             size_t lag, diff_stats *out)
+/* One sample: the differences across pixel k at 'lag' in every channel,
+ * when both ends are near zero contrast and inside the row (x = k % w). */
+static size_t sample_difference(const lam_image *img, size_t channels, const double *zero,
+                                size_t k, size_t x, size_t lag, float *d, size_t cap, size_t m)
 {
-    size_t w = img->width, n = img->width * img->height, m = 0, cap = n / SAMPLE_STRIDE + 1;
-    float *d = malloc(channels * cap * sizeof *d);
+    size_t w = img->width;
+    if (x < lag || x + lag >= w || !near_zero(img, channels, zero, k - lag) ||
+        !near_zero(img, channels, zero, k + lag))
+        return m;
+    for (size_t c = 0; c < channels; c++)
+        d[c * cap + m] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
+    return m + 1;
+}
+
+/* The statistics at lags 1 and 2 in one pass over the sampled pixels (the
+ * lag-2 samples lie one pixel after the lag-1 samples, in the same cache
+ * lines); each channel's differences are filled with one zero test per
+ * pixel; order statistics by selection. */
+static void difference_stats(const lam_image *img, size_t channels, const double *zero,
+                             diff_stats out[2])
+{
+    size_t w = img->width, n = img->width * img->height, m[2] = {0, 0};
+    size_t cap = n / SAMPLE_STRIDE + 1;
+    float *d = malloc(2 * channels * cap * sizeof *d);
     uint32_t *hist = malloc(65536 * sizeof *hist);
-    for (size_t c = 0; c < 3; c++)
-        out->sigma[c] = out->p95[c] = 1e-3;
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < 3; c++)
+            out[l].sigma[c] = out[l].p95[c] = 1e-3;
     if (!d || !hist) {
         free(d);
         free(hist);
         return;
     }
-    size_t x = lag % w; /* = k % w, kept by steps instead of a division per sample */
-    for (size_t k = lag; k + lag < n; k += SAMPLE_STRIDE) {
-        if (x >= lag && x + lag < w && near_zero(img, channels, zero, k - lag) &&
-            near_zero(img, channels, zero, k + lag)) {
-            for (size_t c = 0; c < channels; c++)
-                d[c * cap + m] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
-            m++;
-        }
+    size_t x = 1 % w; /* = k % w, kept by steps instead of a division per sample */
+    for (size_t k = 1; k + 1 < n; k += SAMPLE_STRIDE) {
+        m[0] = sample_difference(img, channels, zero, k, x, 1, d, cap, m[0]);
+        if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
+            m[1] = sample_difference(img, channels, zero, k + 1, x + 1 < w ? x + 1 : 0, 2,
+                                     d + channels * cap, cap, m[1]);
         for (x += SAMPLE_STRIDE; x >= w;)
             x -= w;
     }
-    for (size_t c = 0; c < channels && m > 20; c++) {
-        out->sigma[c] = fmax(1.4826 * select_nonneg(d + c * cap, m, m / 2, hist), 1e-5);
-        out->p95[c] = fmax(select_nonneg(d + c * cap, m, m * 95 / 100, hist), 1e-5);
-    }
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < channels && m[l] > 20; c++) {
+            float *v = d + (l * channels + c) * cap;
+            out[l].sigma[c] = fmax(1.4826 * select_nonneg(v, m[l], m[l] / 2, hist), 1e-5);
+            out[l].p95[c] = fmax(select_nonneg(v, m[l], m[l] * 95 / 100, hist), 1e-5);
+        }
     free(d);
     free(hist);
 }
@@ -641,8 +659,8 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
  * merge when their means differ by less than delta - a sixth of a monolayer
  * step, or the artefacts (JPEG block steps) when they are larger - plus
  * three standard errors of the pixel noise 'sigma'. */
-/* The three texture statistics are independent: one task each, run side
- * by side. */
+/* The texture statistics are independent: the differences (both lags in
+ * one pass) and the cell means run side by side. */
 typedef struct texture_job {
     const lam_image *img;
     size_t channels;
@@ -656,8 +674,8 @@ static void texture_tasks(size_t begin, size_t end, size_t slice, void *vctx)
     (void)slice;
     texture_job *j = vctx;
     for (size_t t = begin; t < end; t++)
-        if (t < 2)
-            difference_stats(j->img, j->channels, j->zero, t + 1, &j->d[t]);
+        if (t == 0)
+            difference_stats(j->img, j->channels, j->zero, j->d);
         else
             cell_texture(j->img, j->channels, j->zero, j->cells);
 }
@@ -674,7 +692,7 @@ static void thresholds(const lam_image *img, size_t channels, const double *c1,
     texture_job job;
     memset(&job, 0, sizeof job);
     job.img = img, job.channels = channels, job.zero = zero;
-    lam_parallel_for(3, threads, texture_tasks, &job);
+    lam_parallel_for(2, threads, texture_tasks, &job);
     const diff_stats d1 = job.d[0], d2 = job.d[1];
     const double *cells = job.cells;
     for (size_t c = 0; c < 3; c++) {
