@@ -5,6 +5,7 @@
  * minus the stages above) and each output writer. Renders
  * BUILD/bench/big12mp.jpg from bench/big-scene.json when it is missing.
  * Usage: bench_stages [BUILD_DIR] [IMAGE] */
+#include "lamina/contrast.h"
 #include "lamina/analyze.h"
 #include "lamina/parallel.h"
 #include "lamina/render.h"

@@ -2,6 +2,7 @@
 #include "lamina/analyze.h"
 #include "analyze_internal.h"
 #include "lamina/clock.h"
+#include "lamina/contrast.h"
 #include "lamina/parallel.h"
 
 #include <math.h>

@@ -1,5 +1,6 @@
 /* calibrate.c - measuring labelled (or latent) regions and fitting a setup
  * profile to them with the analysis' joint estimate. */
+#include "lamina/contrast.h"
 #include "lamina/calibrate.h"
 #include "lamina/analyze.h"
 #include "lamina/infer.h"

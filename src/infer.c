@@ -398,51 +398,6 @@ void lam_infer_region(const lam_estimate *e, const lam_est_view *v, const lam_fe
     label_region(opt, K, best, o);
 }
 
-void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2],
-                          size_t xy[2])
-{
-    size_t x0 = r->bbox[0], x1 = r->bbox[2], y0 = r->bbox[1], y1 = r->bbox[3];
-    size_t bw = x1 - x0 + 1, w = seg->width, hgt = seg->height;
-    size_t *height = calloc(bw, sizeof *height), *stack = malloc((bw + 1) * sizeof *stack);
-    wh[0] = wh[1] = 0;
-    xy[0] = r->bbox[0], xy[1] = r->bbox[1];
-    if (!height || !stack) {
-        free(height);
-        free(stack);
-        return;
-    }
-    size_t best = 0;
-    for (size_t y = y0; y <= y1; y++) {
-        for (size_t x = x0; x <= x1; x++) {
-            size_t k = y * w + x;
-            int in = seg->label[k] == r->id && x > 0 && y > 0 && x + 1 < w && y + 1 < hgt &&
-                     seg->label[k - 1] == r->id && seg->label[k + 1] == r->id &&
-                     seg->label[k - w] == r->id && seg->label[k + w] == r->id;
-            height[x - x0] = in ? height[x - x0] + 1 : 0;
-        }
-        /* largest rectangle in the histogram (monotone stack) */
-        size_t top = 0;
-        for (size_t i = 0; i <= bw; i++) {
-            size_t hcur = i < bw ? height[i] : 0;
-            while (top && height[stack[top - 1]] >= hcur) {
-                size_t hh = height[stack[--top]];
-                size_t left = top ? stack[top - 1] + 1 : 0;
-                size_t width = i - left;
-                if (hh * width > best) {
-                    best = hh * width;
-                    wh[0] = width;
-                    wh[1] = hh;
-                    xy[0] = x0 + left;
-                    xy[1] = y + 1 - hh;
-                }
-            }
-            stack[top++] = i;
-        }
-    }
-    free(height);
-    free(stack);
-}
-
 void lam_infer_mix(lam_region_result *o, const lam_region_result *rival, double w,
                    const lam_infer_options *opt)
 {

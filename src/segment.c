@@ -47,81 +47,6 @@ void lam_segmentation_free(lam_segmentation *s)
     free(s);
 }
 
-/* Denoising runs in place, slice by slice; each slice first saves the
- * original rows just outside it (its halo), since a neighbouring slice may
- * overwrite them before they are read. */
-typedef struct denoise_ctx {
-    lam_image *img;
-    float *halo;  /* per slice: 3 channels x 2 rows x width */
-    size_t slices;
-    int failed;
-} denoise_ctx;
-
-static void save_halo(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    denoise_ctx *d = vctx;
-    size_t w = d->img->width, h = d->img->height;
-    for (int c = 0; c < 3; c++) {
-        const float *p = d->img->plane[c];
-        float *dst = d->halo + ((slice * 3 + (size_t)c) * 2) * w;
-        memcpy(dst, p + (begin ? begin - 1 : 0) * w, w * sizeof *p);
-        memcpy(dst + w, p + (end < h ? end : h - 1) * w, w * sizeof *p);
-    }
-}
-
-static void hsum(const float *r, float *dst, size_t w)
-{
-    for (size_t x = 0; x < w; x++) {
-        float a = r[x ? x - 1 : 0], b = r[x], c = r[x + 1 < w ? x + 1 : x];
-        dst[x] = a + b + c;
-    }
-}
-
-static void denoise_rows(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    denoise_ctx *d = vctx;
-    size_t w = d->img->width;
-    float *rows = malloc(3 * w * sizeof *rows);
-    if (!rows) {
-        d->failed = 1;
-        return;
-    }
-    for (int c = 0; c < 3; c++) {
-        float *p = d->img->plane[c];
-        const float *above = d->halo + ((slice * 3 + (size_t)c) * 2) * w, *below = above + w;
-        float *prev = rows, *cur = rows + w, *next = rows + 2 * w;
-        hsum(above, prev, w);
-        hsum(p + begin * w, cur, w);
-        for (size_t y = begin; y < end; y++) {
-            hsum(y + 1 < end ? p + (y + 1) * w : below, next, w);
-            float *out = p + y * w;
-            for (size_t x = 0; x < w; x++)
-                out[x] = (prev[x] + cur[x] + next[x]) * (1.0f / 9.0f);
-            float *t = prev;
-            prev = cur;
-            cur = next;
-            next = t;
-        }
-    }
-    free(rows);
-}
-
-lam_status lam_contrast_denoise(lam_image *img, size_t threads, lam_error *err)
-{
-    size_t h = img->height, slices = threads < 1 ? 1 : (threads > h ? h : threads);
-    if (slices > LAM_MAX_THREADS)
-        slices = LAM_MAX_THREADS;
-    denoise_ctx d = {img, malloc(slices * 6 * img->width * sizeof(float)), slices, 0};
-    if (!d.halo)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
-    lam_parallel_for(h, slices, save_halo, &d);
-    lam_parallel_for(h, slices, denoise_rows, &d);
-    free(d.halo);
-    if (d.failed)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
-    return LAM_OK;
-}
-
 typedef struct classify_ctx {
     const lam_image *img;
     const lam_ladder *L;
@@ -491,3 +416,49 @@ int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, si
     return 1;
 }
 
+/* ---- usable rectangle ---- */
+
+void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2],
+                          size_t xy[2])
+{
+    size_t x0 = r->bbox[0], x1 = r->bbox[2], y0 = r->bbox[1], y1 = r->bbox[3];
+    size_t bw = x1 - x0 + 1, w = seg->width, hgt = seg->height;
+    size_t *height = calloc(bw, sizeof *height), *stack = malloc((bw + 1) * sizeof *stack);
+    wh[0] = wh[1] = 0;
+    xy[0] = r->bbox[0], xy[1] = r->bbox[1];
+    if (!height || !stack) {
+        free(height);
+        free(stack);
+        return;
+    }
+    size_t best = 0;
+    for (size_t y = y0; y <= y1; y++) {
+        for (size_t x = x0; x <= x1; x++) {
+            size_t k = y * w + x;
+            int in = seg->label[k] == r->id && x > 0 && y > 0 && x + 1 < w && y + 1 < hgt &&
+                     seg->label[k - 1] == r->id && seg->label[k + 1] == r->id &&
+                     seg->label[k - w] == r->id && seg->label[k + w] == r->id;
+            height[x - x0] = in ? height[x - x0] + 1 : 0;
+        }
+        /* largest rectangle in the histogram (monotone stack) */
+        size_t top = 0;
+        for (size_t i = 0; i <= bw; i++) {
+            size_t hcur = i < bw ? height[i] : 0;
+            while (top && height[stack[top - 1]] >= hcur) {
+                size_t hh = height[stack[--top]];
+                size_t left = top ? stack[top - 1] + 1 : 0;
+                size_t width = i - left;
+                if (hh * width > best) {
+                    best = hh * width;
+                    wh[0] = width;
+                    wh[1] = hh;
+                    xy[0] = x0 + left;
+                    xy[1] = y + 1 - hh;
+                }
+            }
+            stack[top++] = i;
+        }
+    }
+    free(height);
+    free(stack);
+}

@@ -129,8 +129,4 @@ void lam_infer_region(const lam_estimate *e, const lam_est_view *view,
                       const lam_region_stats *stats, const lam_infer_options *opt,
                       lam_region_result *out);
 
-/* Largest axis-aligned rectangle of interior pixels of region 'id'. */
-void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r,
-                          size_t out_wh[2], size_t out_xy[2]);
-
 #endif

@@ -20,6 +20,7 @@
 #include "lamina/colour.h"
 #include "lamina/conductivity.h"
 #include "lamina/contour.h"
+#include "lamina/contrast.h"
 #include "lamina/crops.h"
 #include "lamina/draw.h"
 #include "lamina/error.h"

@@ -76,9 +76,6 @@ lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation 
                                   lam_error *err);
 void lam_segmentation_free(lam_segmentation *s);
 
-/* 3x3 box filter of each contrast plane, in place. */
-lam_status lam_contrast_denoise(lam_image *contrast, size_t threads, lam_error *err);
-
 /* Classify every pixel against the ladder. noise[c]: relative pixel sigma. */
 lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *ladder,
                                 const double noise[3], const lam_segment_options *opt,
@@ -126,5 +123,9 @@ lam_status lam_segment_join(const lam_image *contrast, size_t channels, const in
  * for label maps, whose classes are given). */
 lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err);
+
+/* Largest axis-aligned rectangle of interior pixels of region 'id'. */
+void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r,
+                          size_t out_wh[2], size_t out_xy[2]);
 
 #endif

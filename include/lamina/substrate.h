@@ -55,8 +55,4 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
 /* Fitted substrate level at pixel (x, y) (pixel centres at +0.5). */
 void lam_substrate_eval(const lam_substrate *s, double x, double y, double out[3]);
 
-/* Replace the image planes by contrast (B - I) / B, using the flat field
- * sampled every 'step' pixels and interpolated bilinearly (it is smooth). */
-void lam_contrast_in_place(lam_image *img, const lam_substrate *s, size_t threads);
-
 #endif
