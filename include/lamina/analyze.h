@@ -107,10 +107,19 @@ typedef struct lam_analysis {
     lam_warnings warnings;          /* what makes the answers doubtful (lamina/warnings.h) */
 } lam_analysis;
 
+/* K = 6, "small" below 4 um2 (200 px without a pixel size), oxide and
+ * Fermi level fitted, all cores, the setup's own priors. */
 lam_analysis_options lam_analysis_options_default(void);
 
+/* Analyse one image with a setup (docs/method.md): on success *out is a
+ * new analysis the caller frees with lam_analysis_free, its warnings in
+ * (*out)->warnings. Errors name the file (err->file) and the problem: an
+ * unreadable or refused file, an image whose channels do not match the
+ * setup's camera (LAM_EINVAL), no substrate found or a saturated image
+ * (LAM_ERANGE), out of memory. Nothing is written. opt may be NULL. */
 lam_status lam_analyze(const char *path, const lam_setup *setup,
                        const lam_analysis_options *opt, lam_analysis **out, lam_error *err);
+/* Release an analysis; a may be NULL. */
 void lam_analysis_free(lam_analysis *a);
 
 /* Did region i inform the shared parameters and the oxide? */

@@ -72,8 +72,12 @@ typedef struct lam_calib_result {
     double floor_rel, chi2, dof;
 } lam_calib_result;
 
+/* An empty set of measured images; release with lam_calib_set_clear. */
 void lam_calib_set_init(lam_calib_set *s);
+/* Release the set's regions; s may be NULL. */
 void lam_calib_set_clear(lam_calib_set *s);
+/* Release a result's residuals (not the start setup's materials it
+ * borrows); r may be NULL. */
 void lam_calib_result_clear(lam_calib_result *r);
 
 /* Measure the labelled regions of one image: labels is a layer-map coded

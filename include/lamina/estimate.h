@@ -151,6 +151,8 @@ typedef struct lam_estimate {
  * (e^-8: one in 3000). */
 #define LAM_RIVAL_MARGIN 8.0
 
+/* K = 6, oxide grid nominal +- 60 nm in 2 nm steps, starting floor
+ * 0.003 + 3 %, floor estimated, 30 iterations. */
 lam_estimate_options lam_estimate_options_default(void);
 
 /* Priors from a setup: what it gives is tight (its "uncertainty" block, or
@@ -215,6 +217,10 @@ typedef struct lam_est_view {
     double cov[LAM_NU_COUNT + 1][LAM_NU_COUNT + 1];
 } lam_est_view;
 
+/* Image j's view of a fitted estimate for the region posteriors: its
+ * observed ladder of all 40 layers, the ladder's gradients in the free
+ * shared parameters and its oxide, and their joint Laplace covariance
+ * (the oxide last). LAM_ENOMEM or the model's errors. */
 lam_status lam_estimate_view(const lam_estimate *e, size_t j, lam_model *model,
                              lam_est_view *view, lam_error *err);
 

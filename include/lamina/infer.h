@@ -98,9 +98,14 @@ typedef struct lam_fermi_table {
     double contrast[LAM_FERMI_GRID][3][LAM_MAX_CHANNELS]; /* N = 0, 1, 2 */
 } lam_fermi_table;
 
+/* The 1L and 2L ladders of image 'image' over the Fermi-level grid
+ * (0-1.6 eV) at the estimate's fitted values, for the Fermi posterior of
+ * lam_infer_region. 'model' needs 2 layers (a coarse one is enough). */
 lam_status lam_fermi_table_build(const lam_estimate *e, size_t image, lam_model *model,
                                  lam_fermi_table *out, lam_error *err);
 
+/* p >= 0.95 for a label, goodness-of-fit cut p < 1e-4, "small" below
+ * 100 px, K = 6. */
 lam_infer_options lam_infer_options_default(void);
 
 /* A region's measurement for the estimation: interior mean contrast and its
@@ -124,6 +129,12 @@ void lam_region_measure(const lam_region_stats *r, const double noise[3], double
 void lam_infer_mix(lam_region_result *o, const lam_region_result *rival, double w,
                    const lam_infer_options *opt);
 
+/* The posterior of one region (measurement r, statistics s) under the
+ * fitted estimate e seen through 'view' (lam_estimate_view): leave-one-out
+ * predictive densities of substrate, 1..K layers, thicker and unmodelled,
+ * the label, its probability and flags, the model contrast with its sigma,
+ * and with a Fermi table (may be NULL) the doping statement of 1L and 2L
+ * regions. Fills *o entirely; no errors. */
 void lam_infer_region(const lam_estimate *e, const lam_est_view *view,
                       const lam_fermi_table *fermi, const lam_est_region *region,
                       const lam_region_stats *stats, const lam_infer_options *opt,

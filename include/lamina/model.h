@@ -81,6 +81,7 @@ void lam_model_free(lam_model *m);
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err);
 
+/* The camera channels (1 to 3) and the layers (K) a model evaluates. */
 size_t lam_model_channels(const lam_model *m);
 size_t lam_model_max_layers(const lam_model *m);
 
@@ -106,6 +107,7 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
  * differences with steps suited to each parameter (lam_model_step):
  * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. */
 typedef double lam_ladder_grad[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
+/* (The gradients above; LAM_ENOMEM or LAM_ERANGE outside a table.) */
 lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
                               const int *which, size_t count, lam_ladder_grad *grad,
                               lam_error *err);

@@ -70,10 +70,15 @@ typedef struct lam_segmentation {
     lam_region_stats *regions;   /* ids 1..count at index id-1 */
 } lam_segmentation;
 
+/* Floor 0.005 + 5 %, reject above 25, regions of at least 12 px, one
+ * thread, a lossless file (no coding steps). */
 lam_segment_options lam_segment_options_default(void);
 
+/* A width x height segmentation with its class and label maps (zeroed);
+ * release with lam_segmentation_free. LAM_ENOMEM or LAM_ETOOBIG. */
 lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation **out,
                                   lam_error *err);
+/* Release; s may be NULL. */
 void lam_segmentation_free(lam_segmentation *s);
 
 /* Classify every pixel against the ladder. noise[c]: relative pixel sigma. */

@@ -45,6 +45,8 @@ typedef struct lam_substrate {
     size_t width, height;
 } lam_substrate;
 
+/* 32-px tiles, no region of interest, one thread, no ladder (the largest
+ * mode is the substrate). */
 lam_substrate_options lam_substrate_options_default(void);
 
 /* Estimate the substrate. LAM_ERANGE with a hint to --substrate-roi when no
