@@ -212,6 +212,22 @@ static size_t refine_candidates(tile_stat *ts, size_t n, const lam_substrate *s,
 
 /* Noise, correlation factor kappa, mean level and fall-off over the
  * substrate tiles. */
+/* A tile's relative pixel noise: its spread less what the flat field's own
+ * slope across the tile adds (a linear ramp over T pixels has variance
+ * slope^2 T^2 / 12 in each direction; strong vignetting otherwise reads as
+ * noise). */
+static double tile_noise(const tile_stat *t, const lam_substrate *s, size_t T, int c)
+{
+    double b0[3], bx[3], by[3];
+    lam_substrate_eval(s, t->cx, t->cy, b0);
+    lam_substrate_eval(s, t->cx + 1, t->cy, bx);
+    lam_substrate_eval(s, t->cx, t->cy + 1, by);
+    double gx = bx[c] / b0[c] - 1, gy = by[c] / b0[c] - 1;
+    double ramp = (gx * gx + gy * gy) * (double)(T * T) / 12.0;
+    double v = t->rsd[c] * t->rsd[c] - ramp;
+    return sqrt(v > 0 ? v : 0);
+}
+
 static void substrate_stats(const tile_stat *ts, size_t n, size_t T, const lam_image *img,
                             lam_substrate *s, double *scratch)
 {
@@ -221,7 +237,7 @@ static void substrate_stats(const tile_stat *ts, size_t n, size_t T, const lam_i
         size_t k = 0;
         for (size_t i = 0; i < n; i++)
             if (ts[i].candidate)
-                scratch[k++] = ts[i].rsd[c];
+                scratch[k++] = tile_noise(&ts[i], s, T, c);
         s->noise[c] = median_of(scratch, k);
     }
     for (size_t i = 0; i < n; i++) {

@@ -1,18 +1,20 @@
 /*
  * lamina/substrate.h - the bare substrate: which part of an image it is,
- * its smooth flat field per channel, its pixel noise, and the contrast map.
+ * its smooth flat field per channel and its pixel noise.
  *
- * The image is cut into tiles; uniform tiles are clustered by chromaticity
- * (ln R/G, ln B/G), which vignetting and illumination gradients do not
- * change; of the strongest peaks, the substrate is the one against which
- * the others look most like graphene layers (when a ladder is given; else
- * the densest), or the tiles of a user-given region. A robust fit (GSL bisquare) of ln(level) per channel
+ * The image is cut into tiles; uniform tiles are clustered in brightness
+ * (about a smooth fit) and chromaticity (ln R/G, ln B/G, which vignetting
+ * and illumination gradients do not change); of the clusters, the
+ * substrate is the one against which its neighbours look like graphene
+ * layers in every channel (when a ladder is given and the evidence is
+ * clear; src/substrate_modes.c), else the largest, or the tiles of a
+ * user-given region. A robust fit (GSL bisquare) of ln(level) per channel
  * over those tiles with the basis 1, x, y, x^2, xy, y^2, r^4 gives the flat
- * field B_c(x, y). Noise is the median relative pixel standard deviation of
- * substrate tiles; the effective pixel count of a region mean is n / kappa,
- * with kappa measured from the scatter of tile means about the fit.
- *
- * Contrast: C_c = (B_c - I_c) / B_c, in linear light, computed in place.
+ * field B_c(x, y), refitted once over every tile close to it. Noise is the
+ * median relative pixel standard deviation of substrate tiles; the
+ * effective pixel count of a region mean is n / kappa, with kappa measured
+ * from the scatter of tile means about the fit. The contrast map itself is
+ * lamina/contrast.h.
  */
 #ifndef LAMINA_SUBSTRATE_H
 #define LAMINA_SUBSTRATE_H

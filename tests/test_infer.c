@@ -1,0 +1,113 @@
+/* test_infer.c - the region posterior machinery (lamina/infer.h) on a fit
+ * of regions placed on the model's own ladder. This checks the statistics
+ * (probabilities, labels, flags, mixing of two readings), not the physics:
+ * the physics is checked against published data and the independent
+ * generator elsewhere (test_conductivity, test_tmm, test_robust). */
+#include "check.h"
+#include "lamina/estimate.h"
+#include "lamina/infer.h"
+#include "lamina/model.h"
+#include "lamina/setup.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+static double total(const lam_region_result *r, size_t K)
+{
+    double s = 0;
+    for (size_t h = 0; h < K + 3; h++)
+        s += r->p[h];
+    return s;
+}
+
+static lam_est_region at(const lam_prediction *L, size_t N, double offset, double var)
+{
+    lam_est_region r;
+    memset(&r, 0, sizeof r);
+    for (size_t c = 0; c < L->channels; c++) {
+        r.mean[c] = L->contrast[N][c] + offset;
+        r.var[c] = var;
+    }
+    r.use = 1;
+    return r;
+}
+
+int main(void)
+{
+    check_begin("test_infer");
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_error err;
+    lam_error_clear(&err);
+    /* the NA given (the camera left to its prior) */
+    check_int(lam_setup_set_na(&s, 0.55, &err), LAM_OK, "NA given");
+    lam_model *m = NULL;
+    lam_estimate *e = NULL;
+    lam_prediction *L = malloc(sizeof *L);
+    lam_est_view *v = malloc(sizeof *v);
+    lam_estimate_options eo = lam_estimate_options_default();
+    if (!check_int(lam_model_alloc_fast(&s, LAM_MODEL_MAX_LAYERS, &m, &err), LAM_OK, "model") ||
+        !check_int(lam_estimate_alloc(&s, lam_model_channels(m), &eo, &e, &err), LAM_OK,
+                   "estimate") ||
+        !check_int(lam_estimate_add_image(e, NULL, 0, 285, NAN, NULL, &err), LAM_OK, "image") ||
+        !check_int(lam_estimate_ladder(e, 0, m, L, &err), LAM_OK, "ladder"))
+        return check_summary();
+    lam_est_region fit[9];
+    for (int i = 0; i < 9; i++)
+        fit[i] = at(L, 1 + (size_t)(i % 3), 0.002 * ((i % 3) - 1), 1e-6);
+    check_int(lam_estimate_set_regions(e, 0, fit, 9, &err), LAM_OK, "regions");
+    check_int(lam_estimate_fit(e, m, m, &err), LAM_OK, "fit (%s)", err.message);
+    check_int(lam_estimate_view(e, 0, m, v, &err), LAM_OK, "view");
+    lam_infer_options io = lam_infer_options_default();
+    size_t K = io.max_layers;
+    lam_region_stats st;
+    memset(&st, 0, sizeof st);
+    st.area = 5000;
+    st.interior = 4000;
+    st.depth_max = 30;
+    lam_region_result r2, mid, far, noisy;
+    lam_est_region q = at(&v->ladder, 2, 0, 1e-6);
+    lam_infer_region(e, v, NULL, &q, &st, &io, &r2);
+    check_true(r2.layers == 2 && r2.p[2] > 0.99, "a region on the 2L rung: 2L, p %.4f", r2.p[2]);
+    check_abs(total(&r2, K), 1, 1e-9, "probabilities sum to one");
+    lam_est_region h;
+    memset(&h, 0, sizeof h);
+    for (size_t c = 0; c < v->ladder.channels; c++) {
+        h.mean[c] = 0.5 * (v->ladder.contrast[1][c] + v->ladder.contrast[2][c]);
+        h.var[c] = 1e-6;
+    }
+    h.use = 1;
+    lam_infer_region(e, v, NULL, &h, &st, &io, &mid);
+    check_true(!(mid.layers == 1 || mid.layers == 2) || mid.p_label < io.p_confident,
+               "half way between 1L and 2L: no confident count (%s, p %.3f)", mid.label,
+               mid.p_label);
+    lam_est_region x = h;
+    x.mean[0] = 0.5, x.mean[1] = -0.3, x.mean[2] = -0.3;
+    lam_infer_region(e, v, NULL, &x, &st, &io, &far);
+    check_true(far.flags & LAM_FLAG_UNMODELLED, "a colour no layer count makes: unmodelled (%s)",
+               far.label);
+    lam_est_region nq = at(&v->ladder, 2, 0, 0.03 * 0.03);
+    lam_infer_region(e, v, NULL, &nq, &st, &io, &noisy);
+    check_true(noisy.p[2] < r2.p[2], "a noisy measurement is less certain (%.4f < %.4f)",
+               noisy.p[2], r2.p[2]);
+    st.area = 50;
+    lam_region_result small;
+    lam_infer_region(e, v, NULL, &q, &st, &io, &small);
+    check_true(small.flags & LAM_FLAG_SMALL, "below the minimum area: flagged small");
+    lam_region_result r4;
+    st.area = 5000;
+    lam_est_region q4 = at(&v->ladder, 4, 0, 1e-6);
+    lam_infer_region(e, v, NULL, &q4, &st, &io, &r4);
+    lam_region_result mix = r2;
+    lam_infer_mix(&mix, &r4, 0.5, &io);
+    check_abs(mix.p[2], 0.5 * (r2.p[2] + r4.p[2]), 1e-12, "two readings mixed by weight");
+    check_true(mix.flags & LAM_FLAG_AMBIGUOUS, "an even mixture of 2L and 4L is ambiguous");
+    check_abs(total(&mix, K), 1, 1e-9, "the mixture sums to one");
+    lam_estimate_free(e);
+    lam_model_free(m);
+    free(L);
+    free(v);
+    lam_setup_clear(&s);
+    return check_summary();
+}
