@@ -47,6 +47,8 @@ struct lam_model {
     double complex *n_layer; /* layers x nwl */
     double complex *n_base;  /* nwl */
     double complex *n_film;  /* nwl: flake index when flakes are films, else NULL */
+    size_t film_layers;      /* N <= film_layers have their own index (crystals) ... */
+    double complex *n_film_layer; /* ... film_layers x nwl, else NULL */
     double complex *basis;   /* nwl x 4: sheet conductivity basis at basis_fermi */
     double basis_fermi;
     int have_basis;
@@ -88,6 +90,7 @@ void lam_model_free(lam_model *m)
     free(m->n_layer);
     free(m->n_base);
     free(m->n_film);
+    free(m->n_film_layer);
     free(m->basis);
     free(m->y_sheet);
     free(m->rbar);
@@ -152,6 +155,16 @@ static lam_status fill_materials(lam_model *m, const lam_setup *s, lam_error *er
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
     for (size_t l = 0; l < m->nwl && !st; l++)
         st = lam_material_index(&s->flake_film, m->wl[l], &m->n_film[l], err);
+    if (st || !s->flake_layer_films)
+        return st;
+    /* crystals: the n,k of the 1L.. films where published (lamina/crystal.h) */
+    m->film_layers = s->flake_layer_films;
+    if (!(m->n_film_layer = malloc(m->film_layers * m->nwl * sizeof *m->n_film_layer)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
+    for (size_t j = 0; j < m->film_layers && !st; j++)
+        for (size_t l = 0; l < m->nwl && !st; l++)
+            st = lam_material_index(&s->flake_layer_film[j], m->wl[l],
+                                    &m->n_film_layer[j * m->nwl + l], err);
     return st;
 }
 
@@ -523,8 +536,15 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
                 double complex ysub = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
                 double complex ef = lam_tmm_eta(m->n_film[l], qf, (lam_pol)pol);
                 for (size_t N = 0; N <= layers; N++) {
-                    double complex ph = k0 * qf * m->interlayer_nm * (double)N;
-                    double complex y = N ? lam_tmm_through_film(ysub, ef, ccos(ph), csin(ph)) : ysub;
+                    double complex qn = qf, en = ef;
+                    if (N >= 1 && N <= m->film_layers) {
+                        /* a crystal's N-layer film with its own n,k */
+                        double complex nn = m->n_film_layer[(N - 1) * m->nwl + l];
+                        qn = lam_tmm_q(nn, kx);
+                        en = lam_tmm_eta(nn, qn, (lam_pol)pol);
+                    }
+                    double complex ph = k0 * qn * m->interlayer_nm * (double)N;
+                    double complex y = N ? lam_tmm_through_film(ysub, en, ccos(ph), csin(ph)) : ysub;
                     acc[N] += wt * reflectance(eta0, y);
                 }
             }
@@ -660,4 +680,64 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
     }
     free(a);
     return st;
+}
+
+/* ---- films of any thickness (continuous-thickness crystals) ---- */
+
+/* Cone- and channel-weighted reflectance of the film of each thickness at
+ * one wavelength, added to acc[k][c] (and the bare substrate's to sub[c]):
+ * r = (r01 + r12 z) / (1 + r01 r12 z), z = exp(2 i k0 q d). */
+static void films_at(const lam_model *m, const substrate_slot *s, size_t l, double scale,
+                     const double *d, size_t count, double (*acc)[LAM_MAX_CHANNELS],
+                     double *sub)
+{
+    const cone *c = &m->cone_cache;
+    double k0 = 2.0 * M_PI / m->wl[l], w[LAM_MAX_CHANNELS];
+    for (size_t ch = 0; ch < m->channels; ch++)
+        w[ch] = m->weight[ch * m->nwl + l];
+    double complex nf = 1 + scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
+    for (size_t t = 0; t < c->nodes; t++) {
+        size_t k = l * c->nodes + t;
+        int npol = c->sin_t[t] > 0 ? 2 : 1;
+        double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
+        double complex qf = lam_tmm_q(nf, kx), twice = 2.0 * I * k0 * qf;
+        for (int pol = 0; pol < npol; pol++) {
+            double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
+            double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
+            double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
+            double rs = reflectance(eta0, y);
+            for (size_t ch = 0; ch < m->channels; ch++)
+                sub[ch] += wt * w[ch] * rs;
+            for (size_t j = 0; j < count; j++) {
+                double complex z = cexp(twice * d[j]), r = (r01 + r12 * z) / (1 + r01 * r12 * z);
+                double R = wt * creal(r * conj(r));
+                for (size_t ch = 0; ch < m->channels; ch++)
+                    acc[j][ch] += w[ch] * R;
+            }
+        }
+    }
+}
+
+lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double index_scale,
+                                const double *thickness_nm, size_t count,
+                                double (*contrast)[LAM_MAX_CHANNELS], lam_error *err)
+{
+    if (!m->n_film)
+        return lam_error_set(err, LAM_EINVAL, "the model's flakes are not films");
+    double oxide = p->v[LAM_MP_OXIDE];
+    if (!(oxide >= 0 && oxide <= 5000) || !(index_scale > 0))
+        return lam_error_set(err, LAM_ERANGE, "oxide %g nm or index scale %g out of range", oxide,
+                             index_scale);
+    lam_status st;
+    if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) || (st = ensure_weights(m, p, err)))
+        return st;
+    const substrate_slot *s = substrate_for(m, oxide);
+    double sub[LAM_MAX_CHANNELS] = {0};
+    memset(contrast, 0, count * sizeof *contrast);
+    for (size_t l = 0; l < m->nwl; l++)
+        films_at(m, s, l, index_scale, thickness_nm, count, contrast, sub);
+    for (size_t j = 0; j < count; j++)
+        for (size_t ch = 0; ch < m->channels; ch++)
+            contrast[j][ch] = (sub[ch] - contrast[j][ch]) / sub[ch];
+    return LAM_OK;
 }

@@ -20,6 +20,7 @@
 #include "lamina/conductivity.h"
 #include "lamina/contour.h"
 #include "lamina/crops.h"
+#include "lamina/crystal.h"
 #include "lamina/draw.h"
 #include "lamina/error.h"
 #include "lamina/estimate.h"

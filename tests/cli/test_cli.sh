@@ -36,8 +36,21 @@ cmp -s "$T/out" "$T/plain.csv" && bad "the hBN layer changes the prediction" || 
 printf '{"stack":[{"material":"SiO2","thickness_nm":-3}]}' > "$T/badstack.json"
 expect_rc 1 "a stack with a negative thickness" "$BIN" predict --stack "$T/badstack.json"
 grep -q "badstack.json" "$T/err" && grep -q "thickness_nm" "$T/err" && ok "stack error names file and key" || bad "stack error: $(cat "$T/err")"
-expect_rc 2 "an unmodelled flake material" "$BIN" predict --material MoS2
+expect_rc 2 "an unmodelled flake material" "$BIN" predict --material MoTe2
 expect_rc 0 "graphene as --material" "$BIN" predict --material graphene
+# other crystals (issue 14)
+expect_rc 0 "hBN films by thickness" "$BIN" predict --material hBN --thickness 0.333,10,30 --format json
+grep -q '"thickness_nm":[[:space:]]*30' "$T/out" && grep -q '"material":[[:space:]]*"hBN"' "$T/out" \
+    && ok "predict json rows carry thickness_nm" || bad "thickness rows: $(head -c 300 "$T/out")"
+expect_rc 2 "--thickness needs a continuous crystal" "$BIN" predict --thickness 10
+grep -q "hBN" "$T/err" && ok "the message names hBN" || bad "thickness message: $(cat "$T/err")"
+expect_rc 2 "--thickness must be numbers" "$BIN" predict --material hBN --thickness 10,x
+expect_rc 0 "MoS2 layers" "$BIN" predict --material MoS2/Song --oxide 90 --layers 1-3 --format csv
+[ "$(wc -l < "$T/out")" -eq 4 ] && ok "MoS2 csv: header and 3 rows" || bad "MoS2 csv rows"
+printf '{"stack":[{"material":"Si3N4","thickness_nm":67}],"base":"Si"}' > "$T/ar.json"
+expect_rc 0 "graphene on nearly anti-reflecting nitride" "$BIN" predict --stack "$T/ar.json" --format csv
+grep -q "anti-reflecting" "$T/err" && head -1 "$T/out" | grep -q "dR_G,snr_G" \
+    && ok "anti-reflection: a warning, dR and SNR columns" || bad "AR: $(cat "$T/err") $(head -1 "$T/out")"
 expect_rc 1 "predict to /dev/full" sh -c "\"$BIN\" predict > /dev/full"
 
 # images: make a valid PNG and JPEG with the test suite's helpers (cjpeg)
@@ -75,7 +88,7 @@ grep -q "typo-scene.json: unknown key flaks; did you mean flakes?" "$T/err" && [
 expect_rc 2 "render to an unsupported extension (invalid argument)" "$BIN" render samples/HT285-C11-tile07.scene.json -o "$T/x.gif"
 expect_rc 2 "an out-of-range Fermi level" "$BIN" predict --fermi 3
 expect_rc 1 "an unmodelled material inside a setup file is a file error" sh -c \
-    "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoS2\"}' > \"$T/mos2.json\"; \"$BIN\" predict --setup \"$T/mos2.json\""
+    "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoTe2\"}' > \"$T/mote2.json\"; \"$BIN\" predict --setup \"$T/mote2.json\""
 expect_rc 0 "plan writes an SVG" "$BIN" plan --layers 2 --out "$T/plan.svg"
 grep -q "</svg>" "$T/plan.svg" && ok "plan SVG complete" || bad "plan SVG complete"
 expect_rc 1 "plan into a missing folder" "$BIN" plan --out "$T/none/plan.svg"
