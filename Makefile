@@ -54,7 +54,7 @@ LIBDIR   ?= $(PREFIX)/lib
 INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
-.PHONY: fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
+.PHONY: fuzz demo all test asan accuracy-crystals noopt valgrind bench demo deps install uninstall shared clean \
         check-reference check-report
 
 all: $(BIN)
@@ -114,14 +114,19 @@ $(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
 # libtiff come with the library: the tests also use them to write their own
 # files and as an independent sRGB reference).
 # tests/robust/ scores the analysis on the generator's images.
-ROBUST_OBJ := $(BUILD)/tests/robust/robust.o
+ROBUST_OBJ := $(BUILD)/tests/robust/robust.o $(BUILD)/tests/robust/crystals.o
 $(BUILD)/tests/robust/%.o: tests/robust/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -c $< -o $@
 $(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+# build/tests/robust/crystals: issue 14's hBN and TMD figures (make accuracy-crystals).
+$(BUILD)/tests/robust/crystals: tests/robust/crystals_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+accuracy-crystals: $(BUILD)/tests/robust/crystals
+	$(BUILD)/tests/robust/crystals --scenes $${SCENES:-4} --log $(BUILD)/tests/crystals-wrong.log
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
-                $(SYNTH_OBJ)
+                $(SYNTH_OBJ) $(ROBUST_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(TEST_HELPERS) $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@

@@ -33,6 +33,7 @@ void lam_analysis_free(lam_analysis *a)
         return;
     lam_segmentation_free(a->seg);
     free(a->results);
+    free(a->thickness);
     free(a->measured);
     free(a->display);
     lam_estimate_free(a->estimate);
@@ -162,7 +163,7 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
     a->fermi_ev = fabs(s->sheet.fermi_ev);
     a->pupil = s->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos";
     a->camera = camera_name(s->camera.kind);
-    lam_sheet_describe(&s->sheet, a->conductivity, sizeof a->conductivity);
+    lam_setup_describe_flake(s, a->conductivity, sizeof a->conductivity);
     a->defaulted_count = s->defaulted_count;
     memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
 }
@@ -235,6 +236,8 @@ static lam_status segment_stage(run *r, lam_error *err)
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
+    /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
+    so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
                                         a->substrate.noise, a->substrate.tile_scatter, &so,
                                         a->seg, err);
@@ -367,6 +370,17 @@ static lam_status posterior_stage(run *r, lam_error *err)
     io.min_area_px = a->um_per_px > 0 ? r->opt->min_area_um2 / (a->um_per_px * a->um_per_px)
                                       : r->opt->min_area_px;
     a->infer = io;
+    /* ---- material hook (issue 14): a crystal of continuous thickness (hBN)
+     * gets a thickness posterior per region instead of a layer count
+     * (lamina/thickness.h: its own oxide profile and region results) ---- */
+    if (lam_thickness_applies(r->setup)) {
+        if (!(a->results = calloc(a->count ? a->count : 1, sizeof *a->results)))
+            return lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
+        lam_status st = lam_thickness_analyze(a, r->img, r->setup, r->model,
+                                              r->opt->oxide_tolerance_nm, err);
+        MARK(r, LAM_T_REGIONS);
+        return st;
+    }
     lam_est_view *v = malloc(sizeof *v);
     lam_fermi_table *ft = r->opt->fit_fermi ? malloc(sizeof *ft) : NULL;
     a->results = calloc(a->count ? a->count : 1, sizeof *a->results);

@@ -22,7 +22,15 @@ typedef struct edge_ctx {
     size_t channels;
     float t2[3], t4[3]; /* per channel: change across 2 and across 4 pixels */
     uint8_t *cls;
+    int bright;         /* scale the thresholds with the brightness (bright_scaling) */
 } edge_ctx;
+
+/* The noise scale of a pixel brighter than the substrate: sqrt(1 - C)
+ * (shot noise relative to the substrate's), 1 for darker pixels. */
+static float bright_factor(float contrast)
+{
+    return contrast < 0 ? sqrtf(1 - contrast) : 1.0f;
+}
 
 /* Transition pixels: the contrast changes by more than a channel's
  * threshold across two pixels (or, for slow blurred edges, across four) in
@@ -39,7 +47,8 @@ static void edge_rows(size_t begin, size_t end, size_t slice, void *vctx)
             int inner = x > 1 && y > 1 && x + 2 < w && y + 2 < h;
             for (size_t c = 0; c < e->channels && inner; c++) {
                 const float *p = e->img->plane[c];
-                float t2 = e->t2[c], t4 = e->t4[c];
+                float b = e->bright ? bright_factor(p[k]) : 1.0f;
+                float t2 = e->t2[c] * b, t4 = e->t4[c] * b;
                 if (fabsf(p[k + 1] - p[k - 1]) > t2 || fabsf(p[k + w] - p[k - w]) > t2 ||
                     fabsf(p[k + 2] - p[k - 2]) > t4 || fabsf(p[k + 2 * w] - p[k - 2 * w]) > t4) {
                     cls = LAM_CLASS_NONE;
@@ -140,6 +149,7 @@ typedef struct merge_state {
     float *sum;         /* per root, channels values */
     size_t channels;
     double delta[3], sigma[3];
+    int bright;         /* bright_scaling: delta x b, sigma x sqrt(b), b = 1 - C */
 } merge_state;
 
 static uint32_t root_of(uint32_t *parent, uint32_t a)
@@ -155,8 +165,11 @@ static int means_agree(const merge_state *m, uint32_t a, uint32_t b)
 {
     double na = m->count[a], nb = m->count[b], se = sqrt(1 / na + 1 / nb);
     for (size_t c = 0; c < m->channels; c++) {
-        double d = m->sum[a * m->channels + c] / na - m->sum[b * m->channels + c] / nb;
-        if (fabs(d) > m->delta[c] + MERGE_SIGMAS * m->sigma[c] * se)
+        double ma = m->sum[a * m->channels + c] / na, mb = m->sum[b * m->channels + c] / nb;
+        double d = ma - mb, f = 1;
+        if (m->bright)
+            f = bright_factor((float)fmin(ma, mb));
+        if (fabs(d) > m->delta[c] * f * f + MERGE_SIGMAS * m->sigma[c] * f * se)
             return 0;
     }
     return 1;
@@ -262,11 +275,12 @@ static uint32_t number_regions(const uint8_t *cls, uint32_t *lab, size_t n)
 }
 
 static lam_status grow(const lam_image *img, size_t channels, const double *delta,
-                       const double *sigma, const uint8_t *cls, uint32_t *lab, uint32_t *regions,
-                       lam_error *err)
+                       const double *sigma, int bright, const uint8_t *cls, uint32_t *lab,
+                       uint32_t *regions, lam_error *err)
 {
     size_t w = img->width, n = img->width * img->height, np = 0;
     merge_state m;
+    m.bright = bright;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
     lam_status st = init_merge(img, channels, cls, lab, &m, err);
@@ -391,6 +405,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     ec.img = img;
     ec.channels = channels;
     ec.cls = seg->cls;
+    ec.bright = opt->bright_scaling;
     double delta[3], sigma[3];
     thresholds(img, channels, c1, noise, &ec, delta, sigma);
     /* substrate patches differ by its low-frequency errors: let them merge */
@@ -401,7 +416,8 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (st)
         return st;
     uint32_t m = 0;
-    if ((st = grow(img, channels, delta, sigma, seg->cls, seg->label, &m, err)))
+    if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg->cls, seg->label, &m,
+                   err)))
         return st;
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
     uint8_t *depth = lam__boundary_depth(seg->label, w, h);

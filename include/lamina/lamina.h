@@ -47,6 +47,7 @@
 #include "lamina/stage.h"
 #include "lamina/substrate.h"
 #include "lamina/textfile.h"
+#include "lamina/thickness.h"
 #include "lamina/tmm.h"
 #include "lamina/transfer.h"
 #include "lamina/version.h"

@@ -38,6 +38,11 @@ typedef struct lam_segment_options {
     double reject_chi2;          /* unmodelled above this squared distance (25) */
     size_t min_region_px;        /* smaller regions are dropped (12) */
     size_t threads;              /* worker threads for the pixel passes (1) */
+    /* lam_segment_uniform: flakes brighter than the substrate (contrast
+     * C < 0: hBN, thick TMDs) carry more noise in contrast units - shot
+     * noise grows as sqrt(b), flat-field residuals as b, b = 1 - C: with
+     * bright_scaling the thresholds grow so (0: off, as for graphene) */
+    int bright_scaling;
 } lam_segment_options;
 
 /* Interior pixels lie at least this far (city-block) from the region's

@@ -1,0 +1,136 @@
+/* test_thickness.c - hBN thickness per region (lamina/thickness.h): the
+ * posterior's modes on a single-wavelength table (interference orders),
+ * and a quick run of the issue 14 figure on the independent generator's
+ * images (hBN films of 1-100 nm with the index of Grudinin 2023, Lee 2019
+ * or Rah 2019; the full matrix is build/tests/robust/crystals). */
+#include "check.h"
+#include "refdata.h"
+#include "robust/crystals.h"
+#include "lamina/analyze.h"
+#include "lamina/thickness.h"
+
+#include <complex.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+
+/* A 1-channel table at one wavelength and normal incidence. */
+static lam_thickness_table *mono_table(double nm, double oxide, lam_model **m)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_setup_set_material(&s, "hBN", NULL);
+    lam_setup_set_na(&s, 0, NULL);
+    lam_setup_set_oxide(&s, oxide, NULL);
+    lam_thickness_table *t = NULL;
+    if (!lam_model_alloc(&s, 1, nm, m, NULL)) {
+        lam_model_point p = lam_model_point_default(*m);
+        double w = 1;
+        lam_thickness_options o = lam_thickness_options_default();
+        lam_thickness_table_build(*m, &p, &oxide, &w, 1, 1.0, 0.02, &o, &t, NULL);
+    }
+    lam_setup_clear(&s);
+    return t;
+}
+
+static void test_modes(void)
+{
+    lam_model *m = NULL;
+    lam_thickness_table *t = mono_table(550, 285, &m);
+    if (!check_true(t != NULL, "a 550 nm table"))
+        return;
+    lam_thickness_noise nz = {1, {0.003}, 0.03};
+    lam_thickness_options o = lam_thickness_options_default();
+    lam_est_region r;
+    memset(&r, 0, sizeof r);
+    r.var[0] = 1e-6;
+    r.use = 1;
+    /* one channel cannot tell interference orders apart: a thick film's
+     * contrast recurs every ~125 nm of hBN at 550 nm */
+    double d = 150, c[1][LAM_MAX_CHANNELS];
+    lam_model_point p = lam_model_point_default(m);
+    lam_model_eval_films(m, &p, 1.0, &d, 1, c, NULL);
+    r.mean[0] = c[0][0];
+    lam_thickness_result res;
+    lam_thickness_infer(t, &nz, &r, &o, &res);
+    check_true(res.evaluated && res.modes >= 2 && res.order_ambiguous,
+               "a 150 nm film seen at one wavelength: several orders, flagged (%zu modes)",
+               res.modes);
+    int found = 0;
+    for (size_t k = 0; k < res.modes; k++)
+        found |= d >= res.mode[k].lo && d <= res.mode[k].hi;
+    check_true(found, "one reported mode covers the true 150 nm");
+    double sum = 0;
+    for (size_t k = 0; k < res.modes; k++)
+        sum += res.mode[k].probability;
+    check_true(sum <= res.p_film + 1e-9 && res.mode[0].probability >= res.mode[res.modes - 1].probability,
+               "modes sorted by probability, within the film's posterior");
+    /* a bare-substrate measurement */
+    r.mean[0] = 0;
+    lam_thickness_infer(t, &nz, &r, &o, &res);
+    check_true(res.p_substrate > res.p_film, "zero contrast: the substrate is most probable");
+    /* far outside what a film of 0.3-300 nm gives: unmodelled */
+    r.mean[0] = 40;
+    lam_thickness_infer(t, &nz, &r, &o, &res);
+    check_true(res.p_unmodelled > 0.5, "contrast 40: unmodelled (p %.3f)", res.p_unmodelled);
+    /* a thin film: one order, interval about the truth */
+    d = 5;
+    lam_model_eval_films(m, &p, 1.0, &d, 1, c, NULL);
+    r.mean[0] = c[0][0];
+    lam_thickness_infer(t, &nz, &r, &o, &res);
+    check_true(res.evaluated && res.lo <= 5 && res.hi >= 5 && res.hi / res.lo < 1.3,
+               "5 nm: the most probable mode's 95 %% interval [%.2f, %.2f] holds it", res.lo,
+               res.hi);
+    lam_thickness_table_free(t);
+    lam_model_free(m);
+}
+
+/* The quick figure: a few scenes, informed setups, PNG (the full matrix
+ * with JPEG, more scenes and every index source: `make accuracy-crystals`). */
+static void test_rendered(void)
+{
+    static const struct { int source; double oxide; } cases[] = {
+        {0, 285}, {1, 90}, {2, 285}, {1, 285}};
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    char dir[512];
+    check_path(dir, sizeof dir, check_tmpdir(), "hbn");
+    mkdir(dir, 0755);
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        robust_case c;
+        synth_config_init(&c.cfg);
+        c.cfg.crystal = SYNTH_XTAL_HBN;
+        c.cfg.nk_source = cases[i].source;
+        c.cfg.nominal_oxide_nm = cases[i].oxide;
+        c.fmt = SYNTH_FMT_PNG;
+        c.quality = 0;
+        c.informed = 1;
+        c.pooled_setup = NULL;
+        hbn_tally t;
+        memset(&t, 0, sizeof t);
+        check_int(crystals_run_hbn(&c, 7100 + i, dir, &t, stdout), 0, "hBN scene %zu rendered "
+                                                                         "and analysed", i);
+        crystals_add(&total, &t);
+    }
+    crystals_print(stdout, "quick hBN (4 png scenes)", &total);
+    check_true(total.flakes >= 30, "enough hBN flakes scored (%zu)", total.flakes);
+    check_true(total.right >= 0.9 * (double)total.flakes,
+               "hBN thickness within 10 %% or order-ambiguous for >= 90 %% of flakes "
+               "(%zu / %zu; issue 14 asks 95 %% over the full matrix)",
+               total.right, total.flakes);
+    check_true(total.covered >= 0.9 * (double)total.flakes,
+               "the truth inside a reported 95 %% interval for >= 90 %% (%zu / %zu)",
+               total.covered, total.flakes);
+}
+
+int main(void)
+{
+    lam_error_init_gsl();
+    check_begin("test_thickness");
+    if (!check_refdata_dir())
+        check_skip("tests/data/nk not found");
+    test_modes();
+    test_rendered();
+    return check_summary();
+}
