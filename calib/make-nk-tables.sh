@@ -57,6 +57,11 @@ HEAD
 echo '/* MoS2 monolayer: C. Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019); MoS2/nk/Hsu-1L.yml;'
 echo ' * means over +-1 nm about each 2 nm node */'
 table mos2_1l_hsu MoS2-1L-Hsu2019.yml mean 398 856 2
+echo '/* MoS2 bilayer and trilayer: C. Hsu et al. (2019); MoS2/nk/Hsu-2L.yml and Hsu-3L.yml, the'
+echo ' * published rows nearest each 2 nm node (398-800 nm) and every 10 nm to 850 nm, as transcribed'
+echo ' * into tests/data/nk (every row kept) */'
+table mos2_2l_hsu MoS2-2L-Hsu2019.yml all 390 860 1
+table mos2_3l_hsu MoS2-3L-Hsu2019.yml all 390 860 1
 echo '/* MoS2 monolayer (wafer-scale, on sapphire): B. Song et al., Adv. Opt. Mater. 7, 1801250'
 echo ' * (2019); MoS2/nk/Song-1L.yml; every 2 nm row */'
 table mos2_1l_song MoS2-1L-Song2019.yml every 380 900 2
@@ -88,6 +93,10 @@ cat <<'TAIL'
 static const lam__nk_table tables[] = {
     {"MoS2-1L", "Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019), 1L", 380, 856,
      ROWS(mos2_1l_hsu), mos2_1l_hsu},
+    {"MoS2-2L", "Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019), 2L", 380, 850,
+     ROWS(mos2_2l_hsu), mos2_2l_hsu},
+    {"MoS2-3L", "Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019), 3L", 380, 850,
+     ROWS(mos2_3l_hsu), mos2_3l_hsu},
     {"MoS2-1L-Song", "Song et al., Adv. Opt. Mater. 7, 1801250 (2019), 1L", 380, 900,
      ROWS(mos2_1l_song), mos2_1l_song},
     {"MoS2-bulk", "Song et al., Adv. Opt. Mater. 7, 1801250 (2019), bulk", 380, 900,

@@ -1,6 +1,7 @@
 /* analyze.c - the analysis pipeline for one image, stage by stage. */
 #include "lamina/analyze.h"
 #include "lamina/clock.h"
+#include "lamina/nksource.h"
 #include "lamina/parallel.h"
 
 #include <math.h>
@@ -282,6 +283,11 @@ static lam_status fit_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    /* material hook (issue 14): a TMD's other published n,k, kept when they
+     * explain the regions better (lamina/nksource.h) */
+    if (!st)
+        st = lam_nksource_select(r->setup, r->opt->shared_prior, &a->estimate, &r->model,
+                                 a->conductivity, sizeof a->conductivity, err);
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
     if (st)
@@ -382,10 +388,12 @@ static lam_status posterior_stage(run *r, lam_error *err)
         return st;
     }
     lam_est_view *v = malloc(sizeof *v);
-    lam_fermi_table *ft = r->opt->fit_fermi ? malloc(sizeof *ft) : NULL;
+    /* material hook (issue 14): the Fermi level is graphene's */
+    int fermi = r->opt->fit_fermi && lam_setup_crystal_kind(r->setup) == LAM_CRYSTAL_SHEETS;
+    lam_fermi_table *ft = fermi ? malloc(sizeof *ft) : NULL;
     a->results = calloc(a->count ? a->count : 1, sizeof *a->results);
     lam_status st = LAM_OK;
-    if (!v || !a->results || (r->opt->fit_fermi && !ft))
+    if (!v || !a->results || (fermi && !ft))
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
     else
         st = lam_estimate_view(a->estimate, 0, r->model, v, err);

@@ -132,7 +132,7 @@ lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *
     } else if (!formula_builtin(name, &m) && !static_builtin(name, &m)) {
         return lam_error_set(err, LAM_EINVAL,
                              "unknown material '%s' (built in: air, SiO2, Si, hBN, hBN-Lee, "
-                             "hBN-Rah, PMMA, Si3N4, Si3N4-Philipp, water, MoS2-1L, MoS2-1L-Song, "
+                             "hBN-Rah, PMMA, Si3N4, Si3N4-Philipp, water, MoS2-1L, MoS2-2L, MoS2-3L, MoS2-1L-Song, "
                              "MoS2-bulk, WS2-1L, WSe2-1L, WSe2-1L-Gu, graphite, PDMS; or give a "
                              "CSV file wavelength_nm,n,k)",
                              name);

@@ -105,6 +105,8 @@ static void test_tables(void)
     /* Hsu et al. rows every 0.22 nm carry point noise; the compiled table
      * averages them over 2 nm, so single rows differ by their noise */
     table_vs_file("MoS2-1L", "MoS2-1L-Hsu2019.yml", 400, 800, 0.08, "2 nm means");
+    table_vs_file("MoS2-2L", "MoS2-2L-Hsu2019.yml", 400, 845, 0.02, "every row");
+    table_vs_file("MoS2-3L", "MoS2-3L-Hsu2019.yml", 400, 845, 0.02, "every row");
     table_vs_file("WS2-1L", "WS2-1L-Hsu2019.yml", 400, 800, 0.12, "2 nm means");
     table_vs_file("WSe2-1L", "WSe2-1L-Hsu2019.yml", 400, 800, 0.12, "2 nm means");
     /* every other row of 1 nm tables: the rows exactly, and the cubic within
@@ -197,9 +199,10 @@ static void test_setup(void)
                    lam_setup_crystal_kind(&s) == LAM_CRYSTAL_CONTINUOUS,
                "hBN: a continuous film of 0.333 nm per layer");
     check_int(lam_setup_set_material(&s, "MoS2", &err), LAM_OK, "material MoS2");
-    check_true(s.flake_layer_films == 1 && !strcmp(s.flake_film.name, "MoS2-bulk") &&
-                   !strcmp(s.flake_layer_film[0].name, "MoS2-1L"),
-               "MoS2: 1L table and bulk film");
+    check_true(s.flake_layer_films == 3 && !strcmp(s.flake_film.name, "MoS2-bulk") &&
+                   !strcmp(s.flake_layer_film[0].name, "MoS2-1L") &&
+                   !strcmp(s.flake_layer_film[2].name, "MoS2-3L"),
+               "MoS2: 1L, 2L, 3L tables and the bulk film");
     check_int(lam_setup_set_material(&s, "graphene", &err), LAM_OK, "back to graphene");
     check_true(!s.flake_as_film && s.interlayer_nm == 0.335, "graphene: sheets again");
     check_int(lam_setup_set_material(&s, "MoTe2", &err), LAM_ERANGE, "MoTe2 refused");

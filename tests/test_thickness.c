@@ -1,11 +1,8 @@
 /* test_thickness.c - hBN thickness per region (lamina/thickness.h): the
- * posterior's modes on a single-wavelength table (interference orders),
- * and a quick run of the issue 14 figure on the independent generator's
- * images (hBN films of 1-100 nm with the index of Grudinin 2023, Lee 2019
- * or Rah 2019; the full matrix is build/tests/robust/crystals). */
+ * posterior's modes on a single-wavelength table (interference orders).
+ * The figures on the independent generator's images are in
+ * test_crystals_synth.c (quick) and build/tests/robust/crystals (full). */
 #include "check.h"
-#include "refdata.h"
-#include "robust/crystals.h"
 #include "lamina/analyze.h"
 #include "lamina/thickness.h"
 
@@ -13,7 +10,6 @@
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
-#include <sys/stat.h>
 
 /* A 1-channel table at one wavelength and normal incidence. */
 static lam_thickness_table *mono_table(double nm, double oxide, lam_model **m)
@@ -86,44 +82,6 @@ static void test_modes(void)
     lam_model_free(m);
 }
 
-/* The quick figure: a few scenes, informed setups, PNG (the full matrix
- * with JPEG, more scenes and every index source: `make accuracy-crystals`). */
-static void test_rendered(void)
-{
-    static const struct { int source; double oxide; } cases[] = {
-        {0, 285}, {1, 90}, {2, 285}, {1, 285}};
-    hbn_tally total;
-    memset(&total, 0, sizeof total);
-    char dir[512];
-    check_path(dir, sizeof dir, check_tmpdir(), "hbn");
-    mkdir(dir, 0755);
-    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
-        robust_case c;
-        synth_config_init(&c.cfg);
-        c.cfg.crystal = SYNTH_XTAL_HBN;
-        c.cfg.nk_source = cases[i].source;
-        c.cfg.nominal_oxide_nm = cases[i].oxide;
-        c.fmt = SYNTH_FMT_PNG;
-        c.quality = 0;
-        c.informed = 1;
-        c.pooled_setup = NULL;
-        hbn_tally t;
-        memset(&t, 0, sizeof t);
-        check_int(crystals_run_hbn(&c, 7100 + i, dir, &t, stdout), 0, "hBN scene %zu rendered "
-                                                                         "and analysed", i);
-        crystals_add(&total, &t);
-    }
-    crystals_print(stdout, "quick hBN (4 png scenes)", &total);
-    check_true(total.flakes >= 30, "enough hBN flakes scored (%zu)", total.flakes);
-    check_true(total.right >= 0.9 * (double)total.flakes,
-               "hBN thickness within 10 %% or order-ambiguous for >= 90 %% of flakes "
-               "(%zu / %zu; issue 14 asks 95 %% over the full matrix)",
-               total.right, total.flakes);
-    check_true(total.covered >= 0.9 * (double)total.flakes,
-               "the truth inside a reported 95 %% interval for >= 90 %% (%zu / %zu)",
-               total.covered, total.flakes);
-}
-
 int main(void)
 {
     lam_error_init_gsl();
@@ -131,6 +89,5 @@ int main(void)
     if (!check_refdata_dir())
         check_skip("tests/data/nk not found");
     test_modes();
-    test_rendered();
     return check_summary();
 }

@@ -50,8 +50,10 @@ typedef struct lam_crystal {
      * entries use 'bulk' */
     const char *layer_index[LAM_CRYSTAL_LAYER_TABLES];
     const char *bulk;        /* thicker flakes; the film of a continuous crystal */
-    /* continuous: other published indices of the same crystal, whose
-     * spread sets the index-scale prior (lam_crystal_index_scale_prior) */
+    /* continuous: other published indices (built-in materials) of the same
+     * crystal, whose spread sets the index-scale prior
+     * (lam_crystal_index_scale_prior); layered: the other n,k sources
+     * (crystal names) an analysis tries (lamina/nksource.h) */
     const char *alternates[LAM_CRYSTAL_ALTERNATES];
     double log_gain_sd;      /* per-channel contrast-gain prior (ln), source spread */
     double floor_rel;        /* relative model floor the estimate starts from */

@@ -32,6 +32,7 @@
 #include "lamina/material.h"
 #include "lamina/model.h"
 #include "lamina/names.h"
+#include "lamina/nksource.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
 #include "lamina/planmap.h"

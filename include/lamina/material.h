@@ -26,6 +26,7 @@
  *   compiled tables (src/material_tables.c, each with its source and
  *                   resampling; interpolated like user tables):
  *     "MoS2-1L"       Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019), 380-856 nm
+ *     "MoS2-2L", "MoS2-3L"  Hsu et al. (2019), bilayer and trilayer, 380-850 nm
  *     "MoS2-1L-Song"  Song et al., Adv. Opt. Mater. 7, 1801250 (2019), 380-900 nm
  *     "MoS2-bulk"     Song et al. (2019), bulk, 380-900 nm
  *     "WS2-1L"        Hsu et al. (2019), 380-848 nm

@@ -66,7 +66,7 @@ typedef enum {
  * response above; the others are films of published n,k (synth_classes.c):
  *   hBN   a transparent film of any thickness, in-plane index of Grudinin
  *         et al. 2023 (source 0), Lee et al. 2019 (1) or Rah et al. 2019 (2);
- *   MoS2  N x 0.615 nm: Hsu et al. 2019 1L n,k for 1-3 layers and the bulk
+ *   MoS2  N x 0.615 nm: Hsu et al. 2019 1L, 2L and 3L n,k and the bulk
  *         n,k of Song et al. 2019 above (source 0), or Song's 1L for one
  *         layer and Song's bulk for more (source 1);
  *   WSe2  N x 0.649 nm: the 1L n,k of Hsu et al. 2019 (0) or Gu et al. 2019

@@ -22,9 +22,9 @@ typedef struct ctx {
     synth_bc *sub;                  /* [i][node][pol]: Si + oxide */
     double complex *gap_c, *gap_s;  /* [i][node]: a 0.335 nm air gap */
     double complex n_pmma[SYNTH_NL], n_graphite[SYNTH_NL], n_film[SYNTH_NL];
-    /* other crystals: the film of 1 layer, of 2-3 layers and of more
+    /* other crystals: the film of 1, 2, 3 and more layers
      * (synth_crystal_file), or hBN's film in xtal[0] */
-    double complex xtal[3][SYNTH_NL];
+    double complex xtal[4][SYNTH_NL];
     synth_graphene g;
 } ctx;
 
@@ -86,12 +86,11 @@ static int load_all(ctx *c, synth_material *si, synth_material *ox, synth_materi
     return 0;
 }
 
-/* The crystal's n,k for 1, 2 and 4+ layers (3 uses the 2-layer choice:
- * synth_crystal_file gives the same file for 2 and 3). */
+/* The crystal's n,k for 1, 2, 3 and 4+ layers. */
 static int load_crystal(ctx *c)
 {
-    static const int layers[3] = {1, 2, 4};
-    for (int j = 0; j < 3 && c->p->crystal != SYNTH_XTAL_GRAPHENE; j++) {
+    static const int layers[4] = {1, 2, 3, 4};
+    for (int j = 0; j < 4 && c->p->crystal != SYNTH_XTAL_GRAPHENE; j++) {
         synth_material m;
         if (synth_material_load(synth_crystal_file(c->p->crystal, c->p->nk_source, layers[j]),
                                 &m))
@@ -149,7 +148,7 @@ static void add_top(const ctx *c, const synth_object *o, const double complex *s
     else if (x == SYNTH_XTAL_HBN)
         film.n = c->xtal[0][i], film.d_nm = o->thickness_nm;
     else if (x != SYNTH_XTAL_GRAPHENE)
-        film.n = c->xtal[o->layers == 1 ? 0 : o->layers <= 3 ? 1 : 2][i],
+        film.n = c->xtal[o->layers < 4 ? o->layers - 1 : 3][i],
         film.d_nm = o->layers * synth_crystal_layer_nm(x);
     else if (o->layers >= 15)
         film.n = c->n_graphite[i], film.d_nm = o->layers * SYNTH_LAYER_NM;

@@ -38,7 +38,8 @@ const char *synth_crystal_file(synth_crystal c, int source, int layers)
     case SYNTH_XTAL_MOS2:
         if (source == 1)
             return layers == 1 ? "MoS2-1L-Song2019.yml" : "MoS2-bulk-Song2019.yml";
-        return layers <= 3 ? "MoS2-1L-Hsu2019.yml" : "MoS2-bulk-Song2019.yml";
+        return layers == 1 ? "MoS2-1L-Hsu2019.yml" : layers == 2 ? "MoS2-2L-Hsu2019.yml"
+               : layers == 3 ? "MoS2-3L-Hsu2019.yml" : "MoS2-bulk-Song2019.yml";
     case SYNTH_XTAL_WSE2:
         return source == 1 ? "WSe2-1L-Gu2019.yml" : "WSe2-1L-Hsu2019.yml";
     case SYNTH_XTAL_WS2:

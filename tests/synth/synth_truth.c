@@ -76,9 +76,10 @@ static void write_physics(FILE *f, const synth_physics *p)
     num(f, "oxide_nm", p->oxide_nm, ", "), num(f, "nominal_oxide_nm", p->nominal_oxide_nm, ", ");
     num(f, "na", p->na, ", ");
     if (p->crystal != SYNTH_XTAL_GRAPHENE)
-        fprintf(f, "\"crystal\": \"%s\", \"nk\": [\"%s\", \"%s\", \"%s\"], ",
+        fprintf(f, "\"crystal\": \"%s\", \"nk\": [\"%s\", \"%s\", \"%s\", \"%s\"], ",
                 synth_crystal_name(p->crystal), synth_crystal_file(p->crystal, p->nk_source, 1),
                 synth_crystal_file(p->crystal, p->nk_source, 2),
+                synth_crystal_file(p->crystal, p->nk_source, 3),
                 synth_crystal_file(p->crystal, p->nk_source, 4));
     fprintf(f, "\"pupil\": \"%s\", ", synth_pupil_name(p->pupil));
     num(f, "pupil_f", p->pupil_f, ", ");
