@@ -59,7 +59,7 @@ static const char *const other_keys[] = {
 /* The keys each object's reader uses besides the table's numbers. */
 static const char *const root_keys[] = {"schema", "objective", "illuminant", "camera",
                                         "encoding", "substrate", "material", "conductivity",
-                                        "uncertainty", "calibration", NULL};
+                                        "uncertainty", "calibration", "observation", NULL};
 static const char *const objective_keys[] = {"na", "illumination_na", "pupil_weight",
                                              "immersion", "cone_nodes", NULL};
 static const char *const illuminant_keys[] = {"kind", "kelvin", "file", NULL};
@@ -656,6 +656,19 @@ static lam_status parse_substrate(const cJSON *o, const char *path, lam_setup *s
     return st;
 }
 
+/* "observation": "reflection" (default) or "transmission" (a stamp). */
+static lam_status parse_observation(const cJSON *v, lam_setup *s, lam_error *err)
+{
+    if (cJSON_IsString(v) && !strcmp(v->valuestring, "reflection"))
+        s->transmission = 0;
+    else if (cJSON_IsString(v) && !strcmp(v->valuestring, "transmission"))
+        s->transmission = 1;
+    else
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key observation: expected \"reflection\" or \"transmission\"");
+    return LAM_OK;
+}
+
 static lam_status parse_material(const cJSON *v, lam_setup *s, lam_error *err)
 {
     if (!cJSON_IsString(v))
@@ -753,6 +766,7 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
         (ITEM("encoding") && (st = parse_encoding(v, s, err))) ||
         (ITEM("substrate") && (st = parse_substrate(v, "substrate", s, dir, err))) ||
         (ITEM("material") && (st = parse_material(v, s, err))) ||
+        (ITEM("observation") && (st = parse_observation(v, s, err))) ||
         (ITEM("conductivity") && (st = parse_conductivity(v, s, dir, err))) ||
         (st = read_numbers(root, s, err)))
         return st;
@@ -904,6 +918,7 @@ static void save_sample(cJSON *root, const lam_setup *s)
         cJSON_AddItemToArray(st, L);
     }
     cJSON_AddItemToObject(sub, "base", material_json(&s->base));
+    cJSON_AddStringToObject(root, "observation", s->transmission ? "transmission" : "reflection");
     cJSON_AddStringToObject(root, "material", s->flake);
     cJSON *co = cJSON_AddObjectToObject(root, "conductivity");
     if (lam_setup_crystal_kind(s) == LAM_CRYSTAL_SHEETS) {

@@ -84,6 +84,8 @@ typedef struct lam_setup {
     lam_material layer_material[LAM_SETUP_MAX_LAYERS];
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     lam_material base;
+    int transmission;       /* observation "transmission": light through the stack into a thick
+                             * transparent base (a stamp), contrast 1 - T_flake / T_substrate */
     char flake[32];         /* "graphene", or a crystal of lamina/crystal.h ("hBN") */
     const lam_crystal *crystal; /* its record (graphene's by default) */
     double interlayer_nm;   /* sheet spacing of N-layer graphene; layer thickness of crystals */

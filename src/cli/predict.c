@@ -58,6 +58,7 @@ static int print_json(const lam_prediction *p, size_t lo, size_t hi, double mono
     char desc[200];
     lam_setup_describe_flake(s, desc, sizeof desc);
     cJSON_AddStringToObject(root, "material", s->flake);
+    cJSON_AddStringToObject(root, "observation", s->transmission ? "transmission" : "reflection");
     cJSON_AddStringToObject(root, "conductivity", desc);
     cJSON *sr = cJSON_AddArrayToObject(root, "substrate_reflectance");
     for (size_t c = 0; c < p->channels; c++)
@@ -157,9 +158,10 @@ static void print_table(const lam_prediction *p, size_t lo, size_t hi, double mo
 {
     int ar = near_ar(p);
     if (!csv)
-        printf("# contrast = (substrate - flake) / substrate; %s; oxide %.1f nm, illumination NA "
-               "%.2f%s\n",
-               s->flake, p->oxide_nm, s->illumination_na, mono > 0 ? ", monochromatic" : "");
+        printf("# contrast = (substrate - flake) / substrate%s; %s; oxide %.1f nm, illumination "
+               "NA %.2f%s\n",
+               s->transmission ? " in transmission (1 - T_flake / T_substrate)" : "", s->flake,
+               p->oxide_nm, s->illumination_na, mono > 0 ? ", monochromatic" : "");
     if (ar)
         fprintf(stderr, "lamina: warning: the substrate is nearly anti-reflecting (R < %.2f in a "
                         "channel): relative contrast is ill-conditioned; dR = R_sub - R_flake and "
