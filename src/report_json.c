@@ -315,6 +315,39 @@ static void add_summary(cJSON *root, const lam_analysis *a)
                                             "spectroscopy or AFM before fabrication");
 }
 
+/* ---- nearly anti-reflecting substrates (issue 14: Si3N4 near 67 nm) ----
+ * Below AR_REFLECTANCE in a channel the relative contrast is
+ * ill-conditioned (stray light and the model's error in R_sub dominate
+ * it): say so, and give each region dR = C x R_sub (the model's substrate
+ * reflectance) and the measurement's signal-to-noise |C| / sigma_stat per
+ * channel. Nothing is added for ordinary substrates. */
+#define AR_REFLECTANCE 0.03
+static void add_antireflection(cJSON *warnings, cJSON *regs, const lam_analysis *a)
+{
+    int ar = 0;
+    for (size_t c = 0; c < a->channels; c++)
+        ar |= a->ladder.substrate[c] < AR_REFLECTANCE;
+    if (!ar)
+        return;
+    char text[256];
+    snprintf(text, sizeof text, "the substrate is nearly anti-reflecting (model reflectance "
+                                "below %.2f in a channel): relative contrast is ill-conditioned; "
+                                "regions carry delta_reflectance and snr",
+             AR_REFLECTANCE);
+    cJSON_AddItemToArray(warnings, cJSON_CreateString(text));
+    for (size_t i = 0; i < a->count; i++) {
+        cJSON *o = cJSON_GetArrayItem(regs, (int)i);
+        double dr[LAM_MAX_CHANNELS], snr[LAM_MAX_CHANNELS];
+        for (size_t c = 0; c < a->channels; c++) {
+            dr[c] = round(a->measured[i].mean[c] * a->ladder.substrate[c] * 1e6) / 1e6;
+            double sd = sqrt(a->measured[i].var[c]);
+            snr[c] = sd > 0 ? round(fabs(a->measured[i].mean[c]) / sd * 10) / 10 : 0;
+        }
+        cJSON_AddItemToObject(o, "delta_reflectance", vec(dr, a->channels));
+        cJSON_AddItemToObject(o, "snr", vec(snr, a->channels));
+    }
+}
+
 cJSON *lam_report_json(const lam_analysis *a)
 {
     cJSON *root = cJSON_CreateObject();
@@ -334,7 +367,7 @@ cJSON *lam_report_json(const lam_analysis *a)
     for (size_t i = 0; i < a->count; i++)
         cJSON_AddItemToArray(regs, region_json(a, i));
     add_summary(root, a);
-    cJSON_AddArrayToObject(root, "warnings");
+    add_antireflection(cJSON_AddArrayToObject(root, "warnings"), regs, a);
     return root;
 }
 

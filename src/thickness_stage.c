@@ -39,6 +39,7 @@ typedef struct profile_ctx {
     lam_model *coarse;
     lam_model_point p;
     double scale_mean, scale_sd;     /* the index scale's prior */
+    int scale_shared;                /* the image's posterior was taken (image_scale) */
     lam_thickness_noise nz;
     size_t used;
 } profile_ctx;
@@ -330,6 +331,31 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
     return LAM_OK;
 }
 
+/* The image's index scale (one crystal per image): the prior times every
+ * informing region's evidence at each scale, as the table's scale weights,
+ * when the regions agree with the prior (posterior mean within 2 prior sd);
+ * a posterior pushed further is a misfit of something else (pupil, oxide
+ * index, camera) that the index must not absorb, and the prior stays.
+ * Returns 1 when the posterior was taken. */
+static int image_scale(profile_ctx *x, lam_thickness_table *t, lam_error *err)
+{
+    size_t nf = lam_thickness_scales(t);
+    double sum[256], m = 0, z = 0, top = -INFINITY;
+    if (image_scale_evidence(x, t, sum, err) || !x->used || nf > 255)
+        return 0;
+    for (size_t f = 0; f < nf; f++)
+        top = fmax(top, sum[f] += lam_thickness_scale_logw(t, f));
+    for (size_t f = 0; f < nf; f++) {
+        double w = exp(sum[f] - top);
+        z += w, m += w * lam_thickness_scale_value(t, f);
+    }
+    m /= z;
+    if (fabs(m - x->scale_mean) > 2 * x->scale_sd)
+        return 0;
+    lam_thickness_set_scale_logw(t, sum);
+    return 1;
+}
+
 /* Every region's posterior under the table at the oxide's nodes, the parts
  * of one flake joined, and the joined regions' posteriors. */
 static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model *model,
@@ -348,6 +374,7 @@ static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model 
     lam_status st = lam_thickness_table_build(model, &x->p, nodes, w, n, x->scale_mean,
                                               x->scale_sd, &opt, &t, err);
     if (!st) {
+        x->scale_shared = image_scale(x, t, err);
         infer_regions(a, t, x, &opt);
         if (contrast && !(st = join_parts(a, contrast, err)))
             infer_regions(a, t, x, &opt);
