@@ -27,6 +27,7 @@ struct lam_thickness_table {
     double oxide_logw[8];          /* ln of each oxide node's weight */
     double *scale_logw;            /* n_scale: ln of each scale's weight (prior, then image) */
     double *scale;                 /* n_scale: the index scale s of each */
+    double (*optics)[LAM_MAX_CHANNELS]; /* count: variance the optics' uncertainty adds, or NULL */
     double (*c)[LAM_MAX_CHANNELS]; /* nodes x count contrasts */
     double box_lo[LAM_MAX_CHANNELS], box_hi[LAM_MAX_CHANNELS]; /* the contrasts' range */
 };
@@ -68,6 +69,7 @@ void lam_thickness_table_free(lam_thickness_table *t)
     free(t->log_w);
     free(t->scale_logw);
     free(t->scale);
+    free(t->optics);
     free(t->c);
     free(t);
 }
@@ -197,14 +199,17 @@ lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
     return LAM_OK;
 }
 
-/* ln Normal(m; C, V + F(C)) over the channels, and chi^2 through 'chi2'. */
+#define OPTICS(t, j) ((t)->optics ? (t)->optics[j] : NULL)
+
+/* ln Normal(m; C, V + F(C) + O) over the channels (O: the optics'
+ * variance at this thickness, may be NULL), and chi^2 through 'chi2'. */
 static double loglik(const lam_thickness_noise *nz, const lam_est_region *r, const double *c,
-                     double *chi2, double *sigma)
+                     const double *optics, double *chi2, double *sigma)
 {
     double prod = 1, q = 0;
     for (size_t k = 0; k < nz->channels; k++) {
         double f = nz->floor_abs[k] + nz->floor_rel * fabs(c[k]);
-        double v = r->var[k] + f * f, dm = r->mean[k] - c[k];
+        double v = r->var[k] + f * f + (optics ? optics[k] : 0), dm = r->mean[k] - c[k];
         q += dm * dm / v;
         prod *= 2 * M_PI * v; /* one logarithm for all channels */
         if (sigma)
@@ -220,7 +225,7 @@ static void other_terms(const lam_thickness_table *t, const lam_thickness_noise 
                         const lam_est_region *r, double *substrate, double *unmodelled)
 {
     double zero[LAM_MAX_CHANNELS] = {0};
-    *substrate = log(P_OTHER) + loglik(nz, r, zero, NULL, NULL);
+    *substrate = log(P_OTHER) + loglik(nz, r, zero, NULL, NULL, NULL);
     double u = log(P_OTHER);
     for (size_t c = 0; c < nz->channels; c++) {
         double span = t->box_hi[c] - t->box_lo[c];
@@ -239,7 +244,8 @@ static void film_terms(const lam_thickness_table *t, const lam_thickness_noise *
     for (size_t j = 0; j < t->count; j++) {
         double m = -INFINITY;
         for (size_t n = 0; n < nodes; n++) {
-            terms[n] = t->log_w[n] + loglik(nz, r, t->c[n * t->count + j], NULL, NULL);
+            terms[n] = t->log_w[n] + loglik(nz, r, t->c[n * t->count + j], OPTICS(t, j), NULL,
+                                            NULL);
             if (terms[n] > top)
                 top = terms[n], *best_node = n, *best_j = j;
             m = fmax(m, terms[n]);
@@ -295,7 +301,8 @@ void lam_thickness_log_evidence_scales(const lam_thickness_table *t,
         for (size_t o = 0; o < t->n_oxide; o++)
             for (size_t j = 0; j < t->count; j++) {
                 double v = t->oxide_logw[o] +
-                           loglik(nz, r, t->c[(o * t->n_scale + f) * t->count + j], NULL, NULL);
+                           loglik(nz, r, t->c[(o * t->n_scale + f) * t->count + j],
+                                  OPTICS(t, j), NULL, NULL);
                 if (v > m)
                     z = z * exp(m - v) + 1, m = v;
                 else
@@ -432,7 +439,7 @@ void lam_thickness_infer(const lam_thickness_table *t, const lam_thickness_noise
     film_terms(t, nz, r, p, &bn, &bj);
     other_terms(t, nz, r, &sub, &unm);
     normalise(t, p, sub, unm, o);
-    loglik(nz, r, t->c[bn * t->count + bj], &o->chi2, o->sigma);
+    loglik(nz, r, t->c[bn * t->count + bj], OPTICS(t, bj), &o->chi2, o->sigma);
     memcpy(o->model, t->c[bn * t->count + bj], sizeof o->model);
     find_modes(t, p, opt, o);
     free(p);
@@ -443,4 +450,58 @@ void lam_thickness_infer(const lam_thickness_table *t, const lam_thickness_noise
         o->hi = o->mode[0].hi;
         o->probability = o->mode[0].probability;
     }
+}
+
+/* ---- the optics' uncertainty, linearised ----
+ * A thick film's contrast moves fast with a camera channel's wavelength
+ * shift or width and with the illumination NA (the fringes sweep through
+ * the channel); each channel's shift and width touch only its own
+ * contrast, so one film evaluation with every channel shifted (and one
+ * widened, one at a larger NA) gives every derivative. */
+#define OPTICS_SHIFT_NM 2.0
+#define OPTICS_LOG_WIDTH 0.02
+#define OPTICS_NA 0.02
+
+lam_status lam_thickness_table_add_optics(lam_thickness_table *t, lam_model *m,
+                                          const lam_model_point *p, double scale,
+                                          const double *sd_shift, const double *sd_width,
+                                          double sd_na, lam_error *err)
+{
+    double (*c)[LAM_MAX_CHANNELS] = malloc(4 * t->count * sizeof *c);
+    if (!t->optics)
+        t->optics = malloc(t->count * sizeof *t->optics);
+    if (!c || !t->optics) {
+        free(c);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the optics' variance");
+    }
+    lam_model_point q[4] = {*p, *p, *p, *p};
+    for (size_t k = 0; k < t->channels; k++) {
+        q[1].v[LAM_MP_SHIFT + k] += OPTICS_SHIFT_NM;
+        q[2].v[LAM_MP_WIDTH + k] += OPTICS_LOG_WIDTH;
+    }
+    q[3].v[LAM_MP_NA] = p->v[LAM_MP_NA] + OPTICS_NA;
+    lam_status st = LAM_OK;
+    for (int k = 0; k < 4 && !st; k++)
+        st = lam_model_eval_films(m, &q[k], scale, t->d, t->count, c + k * t->count, err);
+    for (size_t j = 0; j < t->count && !st; j++)
+        for (size_t k = 0; k < t->channels; k++) {
+            double c0 = c[j][k];
+            double a = (c[t->count + j][k] - c0) / OPTICS_SHIFT_NM * sd_shift[k];
+            double b = (c[2 * t->count + j][k] - c0) / OPTICS_LOG_WIDTH * sd_width[k];
+            double n = (c[3 * t->count + j][k] - c0) / OPTICS_NA * sd_na;
+            t->optics[j][k] = a * a + b * b + n * n;
+        }
+    free(c);
+    return st;
+}
+
+lam_status lam_thickness_table_copy_optics(lam_thickness_table *dst,
+                                           const lam_thickness_table *src, lam_error *err)
+{
+    if (!src->optics || src->count != dst->count)
+        return LAM_OK;
+    if (!dst->optics && !(dst->optics = malloc(dst->count * sizeof *dst->optics)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the optics' variance");
+    memcpy(dst->optics, src->optics, dst->count * sizeof *dst->optics);
+    return LAM_OK;
 }

@@ -42,7 +42,19 @@ typedef struct profile_ctx {
     int scale_shared;                /* the image's posterior was taken (image_scale) */
     lam_thickness_noise nz;
     size_t used;
+    double sd_shift[LAM_MAX_CHANNELS], sd_width[LAM_MAX_CHANNELS], sd_na; /* optics' priors */
+    lam_thickness_table *optics_ref; /* the profile's first table, with the optics' variance */
 } profile_ctx;
+
+/* The optics' variance of a table at the context's point and prior scale. */
+static lam_status add_optics(profile_ctx *x, lam_thickness_table *t, lam_model *m, double ox,
+                             lam_error *err)
+{
+    lam_model_point p = x->p;
+    p.v[LAM_MP_OXIDE] = ox;
+    return lam_thickness_table_add_optics(t, m, &p, x->scale_mean, x->sd_shift, x->sd_width,
+                                          x->sd_na, err);
+}
 
 /* sum[f]: the log evidence of the regions that may inform the fit at each
  * index scale of the table (at most 255 scales). */
@@ -79,8 +91,19 @@ static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error
     lam_thickness_table *t = NULL;
     lam_status st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
                                               x->scale_sd, &o, &t, err);
-    if (st)
+    if (!st && !x->optics_ref && !(st = add_optics(x, t, x->coarse, ox, err))) {
+        x->optics_ref = t; /* derivatives vary slowly with the oxide: reused */
+        lam_thickness_table *copy = NULL;
+        st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
+                                       x->scale_sd, &o, &copy, err);
+        t = copy;
+    }
+    if (!st)
+        st = lam_thickness_table_copy_optics(t, x->optics_ref, err);
+    if (st) {
+        lam_thickness_table_free(t);
         return st;
+    }
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     double zo = (ox - po->prior_mean) / po->prior_sd, s = -0.5 * zo * zo;
     double sum[256];
@@ -175,7 +198,9 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     if (!st && !(st = coarse_scan(x, ox, err)))
         st = fine_scan(x, ox, sd, err);
     lam_model_free(x->coarse);
+    lam_thickness_table_free(x->optics_ref);
     x->coarse = NULL;
+    x->optics_ref = NULL;
     if (st)
         return st;
     a->oxide.fitted = 1;
@@ -373,6 +398,8 @@ static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model 
     lam_thickness_table *t = NULL;
     lam_status st = lam_thickness_table_build(model, &x->p, nodes, w, n, x->scale_mean,
                                               x->scale_sd, &opt, &t, err);
+    if (!st)
+        st = add_optics(x, t, model, ox, err);
     if (!st) {
         x->scale_shared = image_scale(x, t, err);
         infer_regions(a, t, x, &opt);
@@ -391,6 +418,11 @@ lam_status lam_thickness_analyze(lam_analysis *a, const lam_image *contrast, con
     x.a = a;
     x.p = prior_point(a->estimate);
     x.nz = lam_thickness_noise_from(a->estimate, s);
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
+        x.sd_shift[c] = a->estimate->shared[LAM_NU_SHIFT + c].prior_sd;
+        x.sd_width[c] = a->estimate->shared[LAM_NU_WIDTH + c].prior_sd;
+    }
+    x.sd_na = a->estimate->shared[LAM_NU_NA].prior_sd;
     free(a->thickness);
     a->thickness = calloc(a->count ? a->count : 1, sizeof *a->thickness);
     if (!a->thickness)

@@ -116,6 +116,22 @@ lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
                                      lam_thickness_table **out, lam_error *err);
 void lam_thickness_table_free(lam_thickness_table *t);
 
+/* The variance the optics' uncertainty adds to every film's contrast:
+ * (dC_c/dshift_c sd_shift_c)^2 + (dC_c/dlnwidth_c sd_width_c)^2 +
+ * (dC_c/dNA sd_na)^2 at point p and index scale 'scale' (forward
+ * differences: 2 nm, 0.02, 0.02), per thickness of the table; the sds are
+ * the estimate's priors (a camera the setup gives: 4 nm, 0.05; a default
+ * camera 15 nm, 0.25; NA 0.05 or 0.2). A thick film's fringes sweep
+ * through a channel as it shifts: without this its thickness would be
+ * overconfident. lam_thickness_table_copy_optics copies it to a table of
+ * the same thickness grid (an oxide profile's other points). */
+lam_status lam_thickness_table_add_optics(lam_thickness_table *t, lam_model *m,
+                                          const lam_model_point *p, double scale,
+                                          const double *sd_shift, const double *sd_width,
+                                          double sd_na, lam_error *err);
+lam_status lam_thickness_table_copy_optics(lam_thickness_table *dst,
+                                           const lam_thickness_table *src, lam_error *err);
+
 /* One region's posterior. */
 void lam_thickness_infer(const lam_thickness_table *t, const lam_thickness_noise *nz,
                          const lam_est_region *r, const lam_thickness_options *opt,
