@@ -770,6 +770,11 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
         (ITEM("conductivity") && (st = parse_conductivity(v, s, dir, err))) ||
         (st = read_numbers(root, s, err)))
         return st;
+    if (s->transmission && cimag(lam_material_index_eval(&s->base, 550)) > 1e-3)
+        return lam_error_set(err, LAM_ERANGE,
+                             "key observation: transmission needs a transparent base (PDMS, "
+                             "glass), not %s",
+                             s->base.name);
     if (ITEM("uncertainty") && (st = check_keys(v, "uncertainty", (const char *const[]){NULL}, err)))
         return st;
     if (ITEM("spectrum")) {

@@ -429,7 +429,18 @@ static void test_transmission(void)
     lam_error_clear(&err);
     lam_model *m = NULL;
     check_int(lam_setup_parse("{\"schema\":\"lamina-setup/1\",\"observation\":\"transmission\"}",
+                              ".", &s, &err), LAM_ERANGE, "a setup seen in transmission into Si is refused");
+    check_true(strstr(err.message, "transparent base") != NULL, "the message says why (%s)",
+               err.message);
+    lam_setup_clear(&s);
+    lam_setup_default(&s);
+    check_int(lam_setup_parse("{\"schema\":\"lamina-setup/1\",\"observation\":\"transmission\","
+                              "\"substrate\":{\"stack\":[],\"base\":\"PDMS\"}}",
                               ".", &s, &err), LAM_OK, "observation key read");
+    check_true(s.transmission == 1, "transmission set");
+    lam_setup_clear(&s);
+    lam_setup_default(&s);
+    s.transmission = 1; /* e.g. a --stack replacing the stamp: the model refuses it */
     check_int(lam_model_alloc(&s, 2, 0, &m, &err), LAM_EINVAL,
               "transmission into Si is refused (%s)", err.message);
     lam_model_free(m);
