@@ -33,7 +33,9 @@ static void analyze_help(FILE *out)
           "  --setup FILE          setup profile (lamina-setup/1)\n"
           "  --oxide NM            nominal SiO2 thickness\n"
           "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
-          "  --material NAME       flake material (graphene)\n"
+          "  --material NAME       flake material: graphene (default), hBN (a thickness per\n"
+          "                        region), MoS2, WS2, WSe2 (layer counts)\n"
+          "  --target-thickness A-B  rank hBN regions by closeness to A-B nm (e.g. 10-30)\n"
           "  --um-per-px X         pixel size at the sample\n"
           "  --max-layers K        layer counts modelled (default 6; thicker = \"thick\")\n"
           "  --min-area A          regions below A um^2 (or px without a pixel size) are 'small'\n"
@@ -78,6 +80,7 @@ typedef struct pool {
     const char *setup_hash;
     int progress, resume;
     double t0;
+    double target[2];          /* --target-thickness (NAN: none) */
 } pool;
 
 
@@ -206,6 +209,32 @@ static void *worker(void *arg)
     }
 }
 
+/* hBN analyses: every region with a thickness (not small), marked when in
+ * the target range. */
+static void print_thickness(const pool *P)
+{
+    int any = 0;
+    for (size_t i = 0; i < P->count; i++) {
+        const job *j = &P->jobs[i];
+        if (j->failed || j->resumed || !j->a->thickness)
+            continue;
+        for (size_t k = 0; k < j->a->count; k++) {
+            const lam_thickness_result *t = &j->a->thickness[k];
+            if (!t->evaluated || (j->a->results[k].flags & LAM_FLAG_SMALL))
+                continue;
+            if (!any++)
+                printf("\nflakes by thickness (nm; 95 %% interval of the most probable order):\n"
+                       "%-28s %4s %8s %17s %6s  %s\n", "image", "id", "estimate", "interval",
+                       "p", "notes");
+            int in = isfinite(P->target[0]) && t->estimate >= P->target[0] &&
+                     t->estimate <= P->target[1] && !t->order_ambiguous;
+            printf("%-28.28s %4u %8.1f %8.1f-%-8.1f %6.3f  %s%s\n", j->stem,
+                   j->a->seg->regions[k].id, t->estimate, t->lo, t->hi, t->probability,
+                   t->order_ambiguous ? "order-ambiguous " : "", in ? "in target" : "");
+        }
+    }
+}
+
 static void print_summary(const pool *P)
 {
     printf("%-28s %5s %4s %4s %4s %5s %6s %5s\n", "image", "oxide", "1L", "2L", "3L", "4L+",
@@ -234,6 +263,16 @@ static void print_summary(const pool *P)
         }
         printf("%-28.28s %5.1f %4zu %4zu %4zu %5zu %6zu %5zu\n", j->stem, j->a->oxide.estimate,
                by[1], by[2], by[3], by[4], thick, other);
+    }
+    print_thickness(P);
+    int films = 0, counts = 0; /* hBN only: no layer counts to list */
+    for (size_t i = 0; i < P->count; i++)
+        if (!P->jobs[i].failed && !P->jobs[i].resumed)
+            *(P->jobs[i].a->thickness ? &films : &counts) += 1;
+    if (films && !counts) {
+        printf("\nThicknesses are model estimates: confirm by AFM before committing a flake\n"
+               "to fabrication.\n");
+        return;
     }
     printf("\nmonolayer candidates (p >= 0.95, not small):\n");
     char where[48];
@@ -312,6 +351,7 @@ static int catalog_outputs(const pool *P)
     lam_catalog cat;
     lam_catalog_init(&cat);
     lam_catalog_set_stage(&cat, P->pos, P->stage);
+    lam_catalog_set_target(&cat, P->target[0], P->target[1]);
     snprintf(cat.results, sizeof cat.results, "%s", P->out_dir);
     lam_error err;
     lam_error_clear(&err);
@@ -341,7 +381,7 @@ static int run_analyze(int argc, char **argv)
         {"max-megapixels", required_argument, 0, 'm'}, {"quiet", no_argument, 0, 'q'},
         {"verbose", no_argument, 0, 'v'},         {"list", required_argument, 0, 'L'},      {"positions", required_argument, 0, 'P'},
         {"resume", no_argument, 0, 'R'},          {"shard", required_argument, 0, 'S'},
-        {"recursive", no_argument, 0, 'D'},
+        {"recursive", no_argument, 0, 'D'},       {"target-thickness", required_argument, 0, 'T'},
         CLI_STAGE_LONGOPTS,                       {0, 0, 0, 0}};
     cli_setup_opts so;
     cli_setup_opts_init(&so);
@@ -352,6 +392,7 @@ static int run_analyze(int argc, char **argv)
     size_t shard = 0, shards = 0;
     int c, r, resume = 0, recursive = 0;
     lam_stage stage = lam_stage_default();
+    double target[2] = {NAN, NAN};
     optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
@@ -383,6 +424,7 @@ static int run_analyze(int argc, char **argv)
         case 'P': positions = optarg; break;
         case 'R': resume = 1; break;
         case 'D': recursive = 1; break;
+        case 'T': if ((r = cli_parse_target("analyze", optarg, target))) return r; break;
         case 'S':
             if (parse_shard(optarg, &shard, &shards))
                 return cli_usage_error("analyze", "--shard: expected I/N with 1 <= I <= N");
@@ -467,6 +509,7 @@ static int run_analyze(int argc, char **argv)
     P.stage = &stage;
     P.out_dir = out_dir;
     P.setup_hash = setup_hash;
+    P.target[0] = target[0], P.target[1] = target[1];
     P.resume = resume;
     P.progress = !cli_quiet && P.count > 1 && isatty(STDERR_FILENO);
     P.t0 = lam_clock_seconds();
@@ -489,7 +532,7 @@ static int run_analyze(int argc, char **argv)
         }
     if (!cli_quiet)
         print_summary(&P);
-    if ((P.count > 1 || positions) && (r = catalog_outputs(&P)))
+    if ((P.count > 1 || positions || isfinite(target[0])) && (r = catalog_outputs(&P)))
         rc = r;
     for (size_t i = 0; i < P.count; i++) {
         lam_analysis_free(P.jobs[i].a);
