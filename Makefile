@@ -142,6 +142,9 @@ demo: deps
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
 	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
 	    samples/HT090-B02-tile03.png
+	$(BIN) analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out lamina-out/hbn \
+	    samples/HT285-N05-tile04.png
+	$(BIN) analyze --setup samples/bench3-setup-mos2.json --out lamina-out/mos2 samples/HT090-M02-tile01.png
 	@echo "results in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg, report.html)"
 
 # Install missing Debian packages when root; otherwise say what to run.

@@ -186,5 +186,28 @@ printf 'BM\066\000\000\000\000\000\000\000\066\000\000\000' > "$T/scan.bmp"
 expect_rc 1 "a BMP file" "$BIN" analyze --quiet --out "$T/g" "$T/scan.bmp"
 grep -q "scan.bmp.*a BMP image: lamina reads PNG, JPEG and TIFF" "$T/err" && ok "BMP named as such" || bad "BMP message: $(cat "$T/err")"
 
+# crystals: hBN thickness with a target window, bad windows, render of any material, transmission
+expect_rc 0 "analyze hBN with --target-thickness" "$BIN" analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out "$T/h" samples/HT285-N05-tile04.png
+grep -q '"thickness_nm"' "$T/h/HT285-N05-tile04.json" && ok "hBN regions carry thickness_nm" || bad "hBN JSON without thickness_nm"
+head -1 "$T/h/catalog.csv" | grep -q ',thickness_nm,thickness_interval_nm$' && ok "catalogue has the thickness columns" || bad "catalogue header: $(head -1 "$T/h/catalog.csv")"
+sed -n 2p "$T/h/catalog.csv" | awk -F, '{ exit !($20 >= 10 && $20 <= 30 && $5 == "thickness") }' && ok "an in-target flake ranks first" || bad "first catalogue row: $(sed -n 2p "$T/h/catalog.csv")"
+grep -q "in target" "$T/out" && ok "the table marks flakes in the target" || bad "no in-target mark in: $(cat "$T/out")"
+grep -q "monolayer candidates" "$T/out" && bad "hBN run lists monolayer candidates" || ok "no monolayer list for hBN"
+expect_rc 2 "a reversed target window" "$BIN" analyze --target-thickness 30-10 samples/HT285-N05-tile04.png
+expect_rc 2 "a target window that is not numbers" "$BIN" analyze --target-thickness thin samples/HT285-N05-tile04.png
+expect_rc 2 "catalog merge with a bad target window" "$BIN" catalog merge --target-thickness 5 --out "$T/hm" "$T/h"
+expect_rc 0 "catalog merge re-ranks by a target window" "$BIN" catalog merge --quiet --target-thickness 40-60 --out "$T/hm" "$T/h"
+sed -n 2p "$T/hm/catalog.csv" | awk -F, '{ exit !($20 >= 40 && $20 <= 60) }' && ok "the merged catalogue puts the 40-60 nm flake first" || bad "merged first row: $(sed -n 2p "$T/hm/catalog.csv")"
+printf '{"schema":"lamina-scene/1","width":160,"height":120,"oxide_nm":285,"seed":5,"flakes":[{"material":"hBN","thickness_nm":20,"polygon":[[20,20],[80,20],[80,80],[20,80]]},{"material":"graphite","thickness_nm":10,"polygon":[[100,30],[140,30],[140,90],[100,90]]}]}' > "$T/hbn-scene.json"
+expect_rc 0 "render hBN and graphite flakes" "$BIN" render "$T/hbn-scene.json" -o "$T/hbn.png"
+[ -s "$T/hbn.truth.png" ] && ok "render wrote the truth map" || bad "no truth map for the hBN scene"
+printf '{"schema":"lamina-scene/1","width":32,"height":24,"flakes":[{"material":"hBN","polygon":[[2,2],[9,2],[9,9]]}]}' > "$T/hbn-bad.json"
+expect_rc 1 "an hBN flake without thickness_nm" "$BIN" render "$T/hbn-bad.json" -o "$T/hbn-bad.png"
+printf '{"schema":"lamina-setup/1","observation":"transmission","substrate":{"stack":[],"base":"PDMS"}}' > "$T/stamp.json"
+expect_rc 0 "predict in transmission through a stamp" "$BIN" predict --setup "$T/stamp.json" --layers 1-2 --format json
+grep -q '"observation":[[:space:]]*"transmission"' "$T/out" && ok "the JSON names the observation" || bad "transmission JSON: $(head -c 300 "$T/out")"
+printf '{"schema":"lamina-setup/1","observation":"transmission","substrate":{"stack":[{"material":"SiO2","thickness_nm":285}],"base":"Si"}}' > "$T/opaque.json"
+expect_rc 1 "transmission into silicon is refused" "$BIN" predict --setup "$T/opaque.json"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
