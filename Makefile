@@ -54,7 +54,7 @@ LIBDIR   ?= $(PREFIX)/lib
 INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
-.PHONY: fuzz demo all test asan accuracy-crystals noopt valgrind bench demo deps install uninstall shared clean \
+.PHONY: accuracy accuracy-crystals fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
         check-reference check-report
 
 all: $(BIN)
@@ -138,14 +138,14 @@ $(BUILD)/bench/bench_%: bench/bench_%.c $(LIB)
 # The main job on the bundled samples (invented demo data, see samples/README.md).
 demo: deps
 	$(MAKE) --no-print-directory $(BIN)
-	$(BIN) analyze --setup samples/bench3-setup.json --out lamina-out \
+	$(BIN) analyze --setup samples/bench3-setup.json --out lamina-out/HT285 \
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
-	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out \
+	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out/HT090 \
 	    samples/HT090-B02-tile03.png
 	$(BIN) analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out lamina-out/hbn \
 	    samples/HT285-N05-tile04.png
 	$(BIN) analyze --setup samples/bench3-setup-mos2.json --out lamina-out/mos2 samples/HT090-M02-tile01.png
-	@echo "results in lamina-out/ (STEM.json, STEM.layers.png, STEM.annotated.png, STEM.contrast.svg, report.html)"
+	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285, lamina-out/HT090, lamina-out/hbn (hBN thicknesses) and lamina-out/mos2 (MoS2): STEM.json, STEM.annotated.png, STEM.layers.png, STEM.contrast.svg"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:
@@ -167,7 +167,8 @@ test: deps
 	@BUILD=$(BUILD) sh tests/run.sh $(TEST_BIN)
 
 asan:
-	$(MAKE) --no-print-directory BUILD=build-asan SANITIZE=address,undefined OPT=-O1 test
+	LAMINA_RELEASE_FONT_CACHES=1 $(MAKE) --no-print-directory BUILD=build-asan \
+	    SANITIZE=address,undefined OPT=-O1 test
 
 noopt:
 	$(MAKE) --no-print-directory BUILD=build-noopt OPT=-O0 test
@@ -175,8 +176,17 @@ noopt:
 valgrind: deps
 	$(MAKE) --no-print-directory BUILD=build-vg OPT=-O1 build-vg/lamina \
 	    $(TEST_SRC:tests/%.c=build-vg/tests/%)
-	@BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
+	@LAMINA_RELEASE_FONT_CACHES=1 BUILD=build-vg VALGRIND="valgrind -q --error-exitcode=9 --leak-check=full --errors-for-leak-kinds=definite" \
 	    sh tests/run.sh $(TEST_SRC:tests/%.c=build-vg/tests/%)
+
+# The accuracy matrix of the analysis on independently rendered micrographs
+# (5 published graphene responses x 3 oxides x 4 file kinds, each with the
+# microscope given and unknown, each tile alone and chip scans pooled):
+# ~10 minutes on two cores. `make test` runs a quick subset (test_robust).
+ACCURACY_SCENES ?= 2
+accuracy: $(BUILD)/tests/robust/robust
+	$(BUILD)/tests/robust/robust --scenes $(ACCURACY_SCENES) --log $(BUILD)/accuracy-misses.log
+	$(BUILD)/tests/robust/robust --scenes 1 --batch 6 --log $(BUILD)/accuracy-pooled-misses.log
 
 # Outside reference: Debian's python3-meep (materials and a 1-D FDTD).
 $(BUILD)/tests/nk_dump: tests/reference/nk_dump.c $(LIB)

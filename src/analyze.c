@@ -1,5 +1,6 @@
 /* analyze.c - the analysis pipeline for one image, stage by stage. */
 #include "lamina/analyze.h"
+#include "analyze_internal.h"
 #include "lamina/clock.h"
 #include "lamina/nksource.h"
 #include "lamina/parallel.h"
@@ -169,6 +170,28 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
     memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
 }
 
+/* An estimate for this image with the options' search half-width and the
+ * oxide prior's sd (NAN: the setup's), the pooled prior applied. */
+static lam_status new_estimate(run *r, double half_nm, double oxide_sd, lam_estimate **out,
+                               lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_estimate_options eo = r->opt->estimate;
+    eo.max_layers = r->opt->max_layers;
+    if (isfinite(half_nm))
+        eo.search_half_nm = half_nm;
+    lam_status st = lam_estimate_alloc(r->setup, lam_model_channels(r->model), &eo, out, err);
+    if (st)
+        return st;
+    lam_shared_prior_apply(r->opt->shared_prior, *out);
+    double nominal = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
+    st = lam_estimate_add_image(*out, NULL, 0, nominal,
+                                isfinite(oxide_sd) ? oxide_sd : r->setup->sigma.oxide_nm, NULL, err);
+    if (!st && (!r->opt->fit_oxide || a->oxide.nominal < 0))
+        (*out)->image[0].oxide.fitted = 0;
+    return st;
+}
+
 static lam_status model_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -176,22 +199,13 @@ static lam_status model_stage(run *r, lam_error *err)
     if (opt->max_layers < 1 || opt->max_layers > 20)
         return lam_error_set(err, LAM_ERANGE, "--max-layers must be 1 to 20");
     a->max_layers = opt->max_layers;
-    lam_estimate_options eo = opt->estimate;
-    eo.max_layers = opt->max_layers;
-    lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
-    if (!st)
-        st = lam_estimate_alloc(r->setup, lam_model_channels(r->model), &eo, &a->estimate, err);
-    if (st)
-        return st;
-    lam_shared_prior_apply(opt->shared_prior, a->estimate);
-    a->prior_pooled = opt->shared_prior && opt->shared_prior->set;
-    a->prior_images = a->prior_pooled ? opt->shared_prior->images : 0;
     a->oxide.nominal = lam_setup_oxide(r->setup);
     a->oxide.estimate = a->oxide.nominal;
-    double nominal = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
-    st = lam_estimate_add_image(a->estimate, NULL, 0, nominal, r->setup->sigma.oxide_nm, NULL, err);
-    if (!st && (!opt->fit_oxide || a->oxide.nominal < 0))
-        a->estimate->image[0].oxide.fitted = 0;
+    a->prior_pooled = opt->shared_prior && opt->shared_prior->set;
+    a->prior_images = a->prior_pooled ? opt->shared_prior->images : 0;
+    lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
+    if (!st)
+        st = new_estimate(r, NAN, NAN, &a->estimate, err);
     /* the ladder at the prior's centre, for the substrate and the first pass */
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
@@ -207,6 +221,10 @@ static void to_segment_ladder(const lam_prediction *P, size_t K, lam_ladder *L)
             L->c[N][c] = c < P->channels ? P->contrast[N][c] : P->contrast[N][P->channels - 1];
 }
 
+/* Above this share of clipped pixels a missing substrate is the exposure's
+ * fault. */
+#define SATURATED_FAILURE 0.2
+
 static lam_status substrate_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -217,9 +235,19 @@ static lam_status substrate_stage(run *r, lam_error *err)
     to_segment_ladder(&a->ladder, a->max_layers, &L);
     for (size_t N = 1; N <= LAM_MODEL_MAX_LAYERS; N++)
         memcpy(lad[N - 1], L.c[N], sizeof lad[0]);
-    so.ladder = (const double (*)[3])lad;
-    so.ladder_count = LAM_MODEL_MAX_LAYERS;
+    /* With one channel, brightness alone cannot tell the substrate from a
+     * thick flake against a ladder of unknown scale (a bright graphite
+     * flake's contrast to the substrate looks like a monolayer's the other
+     * way round): the largest uniform area is the substrate. */
+    so.ladder = a->channels > 1 ? (const double (*)[3])lad : NULL;
+    so.ladder_count = a->channels > 1 ? LAM_MODEL_MAX_LAYERS : 0;
     lam_status st = lam_substrate_estimate(r->img, &so, &a->substrate, err);
+    double clipped = (double)r->img->clipped_count / (double)(r->img->width * r->img->height);
+    if (st == LAM_ERANGE && clipped > SATURATED_FAILURE) /* say why, not where to look */
+        return lam_error_set(err, LAM_ERANGE,
+                             "%.0f %% of the pixels are saturated: no bare substrate is left to "
+                             "measure contrast against; lower the exposure or the lamp",
+                             100 * clipped);
     if (st)
         return st;
     MARK(r, LAM_T_SUBSTRATE);
@@ -231,12 +259,34 @@ static lam_status substrate_stage(run *r, lam_error *err)
     return LAM_OK;
 }
 
+/* The steps a file's coding makes in flat areas, as a relative change of
+ * linear light at the substrate's level, per channel: one JPEG DC
+ * quantisation step (lam_image.jpeg_dc_step), and for any 8-bit file at
+ * least one code (which matters in dark images). */
+static void file_steps(const lam_image *img, const lam_substrate *sub, size_t channels,
+                       double out[3])
+{
+    for (size_t c = 0; c < 3; c++) {
+        out[c] = 0;
+        double level = sub->level[c < channels ? c : 0], q = img->jpeg_dc_step[c];
+        if (img->bit_depth == 8)
+            q = fmax(q, 1.0);
+        if (c >= channels || !(q > 0) || !(level > 0))
+            continue;
+        double v = lam_transfer_encode(&img->transfer, fmin(level, 1.0));
+        double up = lam_transfer_decode(&img->transfer, fmin(v + q / 255.0, 1.0));
+        out[c] = (up - level) / level;
+    }
+}
+
 /* Regions of uniform contrast (model-independent), measured. */
 static lam_status segment_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
+    file_steps(r->img, &a->substrate, a->channels, so.file_step);
+    memcpy(a->file_step, so.file_step, sizeof a->file_step);
     /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
     so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
@@ -253,9 +303,11 @@ static lam_status segment_stage(run *r, lam_error *err)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
     MARK(r, LAM_T_SEGMENT);
-    /* the substrate's own low-frequency errors set the floor's prior */
+    /* the substrate's own low-frequency errors set the floor's prior, and
+     * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
     for (size_t c = 0; c < a->channels; c++)
-        lam_estimate_set_floor_prior(a->estimate, c, a->substrate.tile_scatter[c]);
+        lam_estimate_set_floor_prior(a->estimate, c,
+                                     fmax(a->substrate.tile_scatter[c], a->file_step[c] / sqrt(12)));
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 
@@ -275,14 +327,73 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     else
         snprintf(o->method, sizeof o->method, o->nominal < 0 ? "no oxide in the stack"
                                               : "nominal (no region usable for a fit)");
+    const lam_estimate *rv = a->estimate->rival;
+    if (o->fitted && rv) { /* the mixture of the two modes' oxides */
+        double w = a->estimate->rival_weight, m2 = rv->image[0].oxide.value;
+        double s2 = rv->image[0].oxide.sigma, m1 = o->estimate, s1 = o->sigma;
+        o->estimate = (1 - w) * m1 + w * m2;
+        o->sigma = sqrt((1 - w) * (s1 * s1 + m1 * m1) + w * (s2 * s2 + m2 * m2) -
+                        o->estimate * o->estimate);
+    }
     o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
+}
+
+/* The joint fit of the shared parameters and the oxide. */
+/* The chip may not be the oxide the setup says (a 90 nm chip under a
+ * 285 nm profile): when much of what informs the fit fits no layer count,
+ * or the oxide ran to the edge of its search, the fit is repeated over
+ * about one interference order each side (lambda / 2n is ~190 nm at
+ * 550 nm) with a wide prior, and kept when its regions fit markedly better
+ * (by WIDE_MARGIN in log-likelihood: e^10 to one). */
+#define WIDE_HALF_NM 200.0
+#define WIDE_PRIOR_SD_NM 100.0
+#define WIDE_MARGIN 10.0
+#define WIDE_TRIGGER_SHARE 0.3
+
+static int needs_wide_search(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    const lam_estimate_options *o = &a->estimate->opt;
+    if (!im->oxide.fitted || !im->regions_used)
+        return 0;
+    double off = fabs(im->oxide.value - im->oxide.prior_mean);
+    return im->unmodelled_share > WIDE_TRIGGER_SHARE ||
+           off >= o->search_half_nm - 2 * o->search_step_nm;
+}
+
+static lam_status wide_search(run *r, int *taken, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_estimate *w = NULL;
+    lam_status st = new_estimate(r, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
+    if (!st) {
+        lam_est_image *im = &w->image[0];
+        im->oxide.lo = fmax(0, im->oxide.prior_mean - WIDE_HALF_NM);
+        im->oxide.hi = im->oxide.prior_mean + WIDE_HALF_NM;
+        for (size_t c = 0; c < a->channels; c++)
+            lam_estimate_set_floor_prior(w, c, a->estimate->floor_abs_prior[c]);
+        st = lam_estimate_set_regions(w, 0, a->measured, a->count, err);
+    }
+    if (!st)
+        st = lam_estimate_fit(w, r->model, r->model, err);
+    *taken = !st && w->image[0].data_loglik > a->estimate->image[0].data_loglik + WIDE_MARGIN;
+    if (*taken) {
+        lam_estimate_free(a->estimate);
+        a->estimate = w;
+    } else {
+        lam_estimate_free(w);
+    }
+    return st;
 }
 
 /* The joint fit of the shared parameters and the oxide. */
 static lam_status fit_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
+    int wide = 0;
     lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    if (!st && needs_wide_search(a))
+        st = wide_search(r, &wide, err);
     /* material hook (issue 14): a TMD's other published n,k, kept when they
      * explain the regions better (lamina/nksource.h) */
     if (!st)
@@ -293,6 +404,12 @@ static lam_status fit_stage(run *r, lam_error *err)
     if (st)
         return st;
     oxide_summary(a, r->opt);
+    if (wide)
+        lam_warnings_add(&a->warnings, "oxide-off-nominal",
+                         "the flakes do not fit the nominal %.1f nm of SiO2; searched %.0f nm "
+                         "each side, they fit %.1f +- %.1f nm: check the chip and the setup; "
+                         "the layer counts use the fitted value",
+                         a->oxide.nominal, WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
     MARK(r, LAM_T_OXIDE);
     return LAM_OK;
 }
@@ -312,13 +429,22 @@ static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
     return st;
 }
 
-/* Posterior, usable rectangle and flags of every region. */
-static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft)
+/* Posterior, usable rectangle and flags of every region; with a rival
+ * mode of the fit (view vr), each region's posterior is the mixture of the
+ * two by their weights. */
+static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+                      const lam_est_view *vr)
 {
     lam_analysis *a = r->a;
+    const lam_estimate *rival = a->estimate->rival;
     for (size_t i = 0; i < a->count; i++) {
-        lam_region_result *res = &a->results[i];
+        lam_region_result *res = &a->results[i], alt;
         lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);
+        if (vr) {
+            lam_infer_region(rival, vr, NULL, &a->measured[i], &a->seg->regions[i], &a->infer,
+                             &alt);
+            lam_infer_mix(res, &alt, a->estimate->rival_weight, &a->infer);
+        }
         lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
     }
 }
@@ -340,7 +466,7 @@ static int join_key(const lam_region_result *res)
  * channel where the monolayer barely shows (often blue) must not make JPEG
  * chroma errors look like features. */
 static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_table *ft,
-                             lam_error *err)
+                             const lam_est_view *vr, lam_error *err)
 {
     lam_analysis *a = r->a;
     size_t n = a->count, joined = 0;
@@ -364,7 +490,7 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     for (size_t i = 0; i < a->count; i++)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
-    infer_all(r, v, ft);
+    infer_all(r, v, ft, vr);
     return LAM_OK;
 }
 
@@ -387,7 +513,7 @@ static lam_status posterior_stage(run *r, lam_error *err)
         MARK(r, LAM_T_REGIONS);
         return st;
     }
-    lam_est_view *v = malloc(sizeof *v);
+    lam_est_view *v = malloc(2 * sizeof *v), *vr = NULL;
     /* material hook (issue 14): the Fermi level is graphene's */
     int fermi = r->opt->fit_fermi && lam_setup_crystal_kind(r->setup) == LAM_CRYSTAL_SHEETS;
     lam_fermi_table *ft = fermi ? malloc(sizeof *ft) : NULL;
@@ -397,25 +523,28 @@ static lam_status posterior_stage(run *r, lam_error *err)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
     else
         st = lam_estimate_view(a->estimate, 0, r->model, v, err);
+    if (!st && a->estimate->rival && !(st = lam_estimate_view(a->estimate->rival, 0, r->model,
+                                                              v + 1, err)))
+        vr = v + 1;
     if (!st && ft)
         st = fermi_table(r, ft, err);
     if (!st)
-        infer_all(r, v, ft);
+        infer_all(r, v, ft, vr);
     if (!st)
-        st = join_stage(r, v, ft, err);
+        st = join_stage(r, v, ft, vr, err);
     free(v);
     free(ft);
     MARK(r, LAM_T_REGIONS);
     return st;
 }
 
-lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
-                       lam_analysis **out, lam_error *err)
+static lam_status analyze_once(const char *path, const lam_setup *setup,
+                               const lam_analysis_options *opt, lam_analysis **out,
+                               lam_error *err)
 {
-    lam_analysis_options defaults = lam_analysis_options_default();
     run r;
     memset(&r, 0, sizeof r);
-    r.opt = opt ? opt : &defaults;
+    r.opt = opt;
     r.setup = setup;
     r.threads = r.opt->threads ? r.opt->threads : 1;
     r.t0 = lam_clock_seconds();
@@ -424,9 +553,17 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     snprintf(r.a->file, sizeof r.a->file, "%s", path);
     describe_setup(r.a, setup);
     lam_status st = load_stage(&r, path, err);
-    if (!st && !(st = model_stage(&r, err)) && !(st = substrate_stage(&r, err)) &&
-        !(st = segment_stage(&r, err)) && !(st = fit_stage(&r, err)))
+    if (!st)
+        st = lam__check_channels(r.img, setup, err);
+    if (!st) {
+        r.a->transfer_from_file = r.img->transfer_from_file;
+        st = model_stage(&r, err);
+    }
+    if (!st && !(st = substrate_stage(&r, err)) && !(st = segment_stage(&r, err)) &&
+        !(st = fit_stage(&r, err)))
         st = posterior_stage(&r, err);
+    if (!st)
+        lam__check_analysis(r.a, r.img, setup);
     lam_model_free(r.model);
     lam_image_free(r.img);
     if (st) {
@@ -436,6 +573,79 @@ lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analy
     }
     *out = r.a;
     return LAM_OK;
+}
+
+/* How well an analysis' regions fit, per informing region (the fit's
+ * log-likelihood without the oxide prior). */
+static double fit_per_region(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    return im->regions_used ? im->data_loglik / (double)im->regions_used : -INFINITY;
+}
+
+/* A 16-bit file without colour metadata read with the setup's non-linear
+ * encoding: most 16-bit microscope files are linear, and the wrong curve
+ * doubles every layer count. Both readings are analysed; the one whose
+ * regions fit markedly better (ENCODING_MARGIN per region, in ln L) is
+ * kept, and the choice is a warning either way. */
+#define ENCODING_MARGIN 1.0
+
+static int encoding_doubtful(const lam_analysis *a, const lam_setup *s,
+                             const lam_analysis_options *opt)
+{
+    return a->bit_depth == 16 && !a->transfer_from_file &&
+           opt->load.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(s, "encoding") &&
+           s->encoding.kind != LAM_TRANSFER_LINEAR;
+}
+
+static lam_status second_reading(const char *path, const lam_setup *setup,
+                                 const lam_analysis_options *opt, lam_analysis **a,
+                                 lam_error *err)
+{
+    lam_analysis_options lin = *opt;
+    lin.load.transfer.kind = LAM_TRANSFER_LINEAR;
+    lam_analysis *b = NULL;
+    lam_status st = analyze_once(path, setup, &lin, &b, err);
+    if (st)
+        return st;
+    double fa = fit_per_region(*a), fb = fit_per_region(b);
+    const char *named = lam_transfer_name(&setup->encoding);
+    if (fb > fa + ENCODING_MARGIN) {
+        lam_analysis_free(*a);
+        *a = b;
+        lam_warnings_add(&b->warnings, "encoding-mismatch",
+                         "a 16-bit file without colour metadata: the setup says %s, but the "
+                         "flakes fit linear light much better (%.1f against %.1f per region in "
+                         "ln L), so it was read as linear; set \"encoding\": \"linear\" for "
+                         "this camera",
+                         named, fb, fa);
+    } else {
+        lam_analysis_free(b);
+        lam_warnings_add(&(*a)->warnings, "encoding-mismatch",
+                         "a 16-bit file without colour metadata read as %s (the setup's): most "
+                         "16-bit microscope files are linear; linear light did not fit better "
+                         "(%.1f against %.1f per region in ln L), check the camera's export",
+                         named, fb, fa);
+    }
+    return LAM_OK;
+}
+
+lam_status lam_analyze(const char *path, const lam_setup *setup, const lam_analysis_options *opt,
+                       lam_analysis **out, lam_error *err)
+{
+    lam_analysis_options defaults = lam_analysis_options_default();
+    if (!opt)
+        opt = &defaults;
+    lam_status st = analyze_once(path, setup, opt, out, err);
+    if (!st && encoding_doubtful(*out, setup, opt)) {
+        lam_error e2;
+        lam_error_clear(&e2);
+        if (second_reading(path, setup, opt, out, &e2)) /* keep the first reading then */
+            lam_warnings_add(&(*out)->warnings, "encoding-mismatch",
+                             "a 16-bit file without colour metadata read as the setup says; "
+                             "reading it as linear failed: %s", e2.message);
+    }
+    return st;
 }
 
 int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i)

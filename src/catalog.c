@@ -164,7 +164,10 @@ static lam_status add_image(lam_catalog *c, const cJSON *an, const char *path,
             append(im->warnings, sizeof im->warnings, m);
     }
     if (c->positions && !pos)
+    {
         append(im->warnings, sizeof im->warnings, "not in the positions file");
+        append(im->own_warnings, sizeof im->own_warnings, "not in the positions file");
+    }
     c->n_images++;
     return LAM_OK;
 }

@@ -134,6 +134,36 @@ static cJSON *json_row(const row *r)
     return o;
 }
 
+/* Images' warnings in the order of their paths, so that a catalogue merged
+ * from shards equals the one of a single run. */
+static const lam_catalog *sort_cat;
+static int by_path(const void *a, const void *b)
+{
+    return strcmp(sort_cat->images[*(const size_t *)a].path,
+                  sort_cat->images[*(const size_t *)b].path);
+}
+
+static void add_image_warnings(cJSON *root, const lam_catalog *c)
+{
+    cJSON *w = cJSON_AddArrayToObject(root, "warnings");
+    size_t *order = malloc((c->n_images ? c->n_images : 1) * sizeof *order);
+    if (!order)
+        return;
+    for (size_t k = 0; k < c->n_images; k++)
+        order[k] = k;
+    sort_cat = c;
+    qsort(order, c->n_images, sizeof *order, by_path);
+    for (size_t i = 0; i < c->n_images; i++) {
+        const lam_catalog_image *im = &c->images[order[i]];
+        if (im->warnings[0]) {
+            char t[3200];
+            snprintf(t, sizeof t, "%s: %s", im->path, im->warnings);
+            cJSON_AddItemToArray(w, cJSON_CreateString(t));
+        }
+    }
+    free(order);
+}
+
 static cJSON *json_header(const lam_catalog *c)
 {
     cJSON *root = cJSON_CreateObject();
@@ -157,13 +187,7 @@ static cJSON *json_header(const lam_catalog *c)
         cJSON_AddItemToObject(o, "origin", st->origin_kind ? cJSON_CreateString(st->origin_text)
                                                           : cJSON_CreateNull());
     }
-    cJSON *w = cJSON_AddArrayToObject(root, "warnings");
-    for (size_t k = 0; k < c->n_images; k++)
-        if (c->images[k].warnings[0]) {
-            char t[2100];
-            snprintf(t, sizeof t, "%s: %s", c->images[k].path, c->images[k].warnings);
-            cJSON_AddItemToArray(w, cJSON_CreateString(t));
-        }
+    add_image_warnings(root, c);
     return root;
 }
 

@@ -99,17 +99,26 @@ static void draw_tiles(cairo_t *cr, const lam_catalog *c, const lam_chipmap_view
     }
 }
 
+int lam_chipmap_mark(const lam_chipmap_view *v, const lam_catalog *c, size_t i, double page[2],
+                     double *radius)
+{
+    const lam_catalog_entry *e = &c->entries[i];
+    if (!lam_catalog_is_candidate(c, i) || !isfinite(e->chip_um[0]))
+        return 0;
+    lam_chipmap_point(v, e->chip_um, page);
+    double a = isfinite(e->area_um2) ? e->area_um2 : 100;
+    *radius = fmin(11, fmax(4, sqrt(a) * 0.35));
+    return 1;
+}
+
 static void draw_candidates(cairo_t *cr, const lam_catalog *c, const lam_chipmap_view *v)
 {
     lam_text_style ts = {10, 1, 0x111111, 0, 0.5, 0};
     for (size_t i = c->count; i-- > 0;) { /* best last, on top */
         const lam_catalog_entry *e = &c->entries[i];
-        if (!lam_catalog_is_candidate(c, i) || !isfinite(e->chip_um[0]))
+        double p[2], r;
+        if (!lam_chipmap_mark(v, c, i, p, &r))
             continue;
-        double p[2];
-        lam_chipmap_point(v, e->chip_um, p);
-        double a = isfinite(e->area_um2) ? e->area_um2 : 100;
-        double r = fmin(11, fmax(4, sqrt(a) * 0.35));
         cairo_arc(cr, p[0], p[1], r, 0, 2 * M_PI);
         lam_draw_rgb(cr, lam_draw_layer_colour(e->layers));
         cairo_fill_preserve(cr);

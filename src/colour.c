@@ -257,6 +257,8 @@ lam_status lam_table_spectrum_load_ex(const char *path, size_t columns, int allo
         for (size_t c = 0; c <= columns && !st; c++) {
             errno = 0;
             double v = strtod(end, &end);
+            if (errno == ERANGE && fabs(v) < 1e-300) /* underflow: a value of ~0 is fine */
+                errno = 0, v = 0;
             if (errno || !isfinite(v) || (c == 0 && v <= 0) || (c > 0 && v < 0 && !allow_negative))
                 st = lam_error_set(err, LAM_EFORMAT,
                                    "line %zu, column %zu: need a finite number%s", lineno, c + 1,

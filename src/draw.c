@@ -223,8 +223,15 @@ lam_status lam_canvas_finish(lam_canvas *c, lam_error *err)
 void lam_draw_shutdown(void)
 {
     pango_cairo_font_map_set_default(NULL);
-    cairo_debug_reset_static_data();
-    FcFini();
+    /* cairo's and fontconfig's process-wide caches are released only for
+     * leak checkers (make asan and make valgrind set the variable): Pango
+     * 1.50 loads fontconfig on a thread of its own, and a reset racing with
+     * it aborted in cairo's hash-table assertion now and then at exit. */
+    const char *release = getenv("LAMINA_RELEASE_FONT_CACHES");
+    if (release && !strcmp(release, "1")) {
+        cairo_debug_reset_static_data();
+        FcFini();
+    }
 }
 
 void lam_draw_rgb(cairo_t *cr, uint32_t rgb)

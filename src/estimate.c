@@ -156,11 +156,41 @@ void lam_estimate_free(lam_estimate *e)
 {
     if (!e)
         return;
+    lam_estimate_free(e->rival);
     for (size_t j = 0; j < e->images; j++)
         free(e->image[j].regions);
     free(e->image);
     free(e->cross);
     free(e);
+}
+
+lam_estimate *lam__estimate_clone(const lam_estimate *e)
+{
+    lam_estimate *c = malloc(sizeof *c);
+    if (!c)
+        return NULL;
+    *c = *e;
+    c->rival = NULL;
+    c->rival_weight = 0;
+    c->image = calloc(e->cap ? e->cap : 1, sizeof *c->image);
+    c->cross = NULL; /* made again by the fit of the copy */
+    int ok = c->image != NULL;
+    for (size_t j = 0; ok && j < e->images; j++) {
+        c->image[j] = e->image[j];
+        size_t n = e->image[j].count ? e->image[j].count : 1;
+        c->image[j].regions = malloc(n * sizeof *c->image[j].regions);
+        ok = c->image[j].regions != NULL;
+        if (ok)
+            memcpy(c->image[j].regions, e->image[j].regions,
+                   e->image[j].count * sizeof *c->image[j].regions);
+        else
+            c->images = j;
+    }
+    if (!ok) {
+        lam_estimate_free(c);
+        return NULL;
+    }
+    return c;
 }
 
 lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions, size_t count,

@@ -5,12 +5,10 @@
 #include "estimate_internal.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
-#include <stdio.h>
-#define DEBUGFIT getenv("LAMINA_DEBUG_FIT")
 
-#define GRID_LAYERS 12      /* ladder depth for the oxide grid (thick up to 12) */
 #define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
 #define MAX_TRIES 8         /* damping increases per iteration */
 #define ALT_MARGIN 10.0     /* grid maxima this close to the best are refitted */
@@ -135,8 +133,8 @@ static double shared_logprior(const lam_estimate *e)
 }
 
 /* Ladder of image j at the current point, gains applied, N = 0..layers. */
-static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
-                               lam_prediction *out, lam_error *err)
+lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
+                            lam_prediction *out, lam_error *err)
 {
     lam_model_point p = lam_estimate_point(e, j);
     lam_status st = lam_model_eval_point(model, &p, layers, out, err);
@@ -147,8 +145,8 @@ static lam_status image_ladder(const lam_estimate *e, size_t j, lam_model *model
 
 /* log posterior share of image j (its regions and its oxide prior); fills
  * responsibilities when resp is given. */
-static double image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
-                            double *resp)
+double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                          double *resp)
 {
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
@@ -172,10 +170,10 @@ static lam_status objective(lam_estimate *e, lam_model *model, img_work *w, doub
 {
     double total = shared_logprior(e);
     for (size_t j = 0; j < e->images; j++) {
-        lam_status st = image_ladder(e, j, model, FIT_LAYERS, &w[j].ladder, err);
+        lam_status st = lam__image_ladder(e, j, model, FIT_LAYERS, &w[j].ladder, err);
         if (st)
             return st;
-        double v = image_logpost(e, j, &w[j].ladder, w[j].resp);
+        double v = lam__image_logpost(e, j, &w[j].ladder, w[j].resp);
         e->image[j].log_posterior = v;
         total += v;
     }
@@ -315,6 +313,14 @@ static void restore_point(lam_estimate *e, const saved_point *s)
         e->image[j].oxide.value = s->oxide[j];
 }
 
+static void copy_point(saved_point *to, const saved_point *from, size_t images)
+{
+    memcpy(to->shared, from->shared, sizeof to->shared);
+    memcpy(to->floor_abs, from->floor_abs, sizeof to->floor_abs);
+    to->floor_rel = from->floor_rel;
+    memcpy(to->oxide, from->oxide, images * sizeof *to->oxide);
+}
+
 static double clamp(double v, const lam_nuisance *n)
 {
     return v < n->lo ? n->lo : (v > n->hi ? n->hi : v);
@@ -400,208 +406,9 @@ static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *
         int moved = 0;
         st = one_iteration(f, logpost, &lambda, &moved, err);
         f->e->iterations++;
-        if (DEBUGFIT) { fprintf(stderr, "it %zu lp %.3f lambda %.2g ox", it, *logpost, lambda); for (size_t j = 0; j < f->e->images; j++) fprintf(stderr, " %.2f", f->e->image[j].oxide.value); for (size_t a = 0; a < f->e->nfree; a++) fprintf(stderr, " %s=%.3f", f->e->shared[f->e->free_index[a]].name, f->e->shared[f->e->free_index[a]].value); fprintf(stderr, "\n"); }
         if (!moved)
             break;
     }
-    return st;
-}
-
-/* ---- the starting grid: oxide x contrast scale ----
- *
- * The posterior has two kinds of far-apart modes: the oxide repeats its
- * colours, and an overall contrast scale trades against the layer counts
- * (a response 20 % stronger makes a trilayer look like a bilayer of the
- * default). So each image is scored on a grid of oxide thickness x a
- * common contrast scale s (the ladder multiplied by s, with a log-normal
- * prior for what the response family and the gains can do); the fit
- * starts at the best cell, the response's continuum set to give that
- * scale, and a multistart tries the next local maxima. */
-#define SCALE_STEPS 13
-#define SCALE_MIN 0.65
-#define SCALE_MAX 1.5
-#define SCALE_PRIOR_SD_LOG 0.18
-
-static double scale_at(int k)
-{
-    return SCALE_MIN * pow(SCALE_MAX / SCALE_MIN, k / (double)(SCALE_STEPS - 1));
-}
-
-typedef struct grid {
-    size_t n;          /* oxide steps */
-    double lo, step;
-    double *score;     /* n x SCALE_STEPS */
-} grid;
-
-static void scaled(const lam_prediction *P, double s, lam_prediction *out)
-{
-    *out = *P;
-    for (size_t N = 0; N <= P->max_layers; N++)
-        for (size_t c = 0; c < P->channels; c++)
-            out->contrast[N][c] *= s;
-}
-
-static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
-                            grid *g, lam_error *err)
-{
-    lam_est_image *im = &e->image[j];
-    double half = e->opt.search_half_nm;
-    g->step = e->opt.search_step_nm;
-    g->lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
-    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
-    g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
-    if (!im->oxide.fitted)
-        g->lo = im->oxide.value;
-    g->score = malloc(g->n * SCALE_STEPS * sizeof *g->score);
-    if (!g->score)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
-    lam_prediction *Q = P + 1;
-    lam_status st = LAM_OK;
-    for (size_t d = 0; d < g->n && !st; d++) {
-        im->oxide.value = g->lo + g->step * (double)d;
-        if ((st = image_ladder(e, j, model, GRID_LAYERS, P, err)))
-            break;
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            double z = log(scale_at(k)) / SCALE_PRIOR_SD_LOG;
-            scaled(P, scale_at(k), Q);
-            g->score[d * SCALE_STEPS + (size_t)k] = image_logpost(e, j, Q, NULL) - 0.5 * z * z;
-        }
-    }
-    return st;
-}
-
-static int is_peak(const grid *g, size_t d, int k)
-{
-    double v = g->score[d * SCALE_STEPS + (size_t)k];
-    for (int dd = -1; dd <= 1; dd++)
-        for (int dk = -1; dk <= 1; dk++) {
-            long x = (long)d + dd, y = k + dk;
-            if ((!dd && !dk) || x < 0 || y < 0 || (size_t)x >= g->n || y >= SCALE_STEPS)
-                continue;
-            double o = g->score[(size_t)x * SCALE_STEPS + (size_t)y];
-            if (o > v || (o == v && (dd < 0 || (dd == 0 && dk < 0))))
-                return 0;
-        }
-    return 1;
-}
-
-/* The best cell and the next three local maxima of one image's grid. */
-static void pick_cells(lam_est_image *im, const grid *g)
-{
-    double best = -INFINITY;
-    for (int k = 0; k < 3; k++)
-        im->alt_oxide[k] = im->alt_scale[k] = im->alt_score[k] = NAN;
-    for (size_t d = 0; d < g->n; d++)
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            if (!is_peak(g, d, k))
-                continue;
-            double v = g->score[d * SCALE_STEPS + (size_t)k];
-            double od = g->lo + g->step * (double)d, sc = scale_at(k);
-            if (v > best) {
-                double t = best, tod = im->oxide.value, tsc = im->grid_scale;
-                best = v, im->oxide.value = od, im->grid_scale = sc;
-                v = t, od = tod, sc = tsc;
-                if (!isfinite(v))
-                    continue;
-            }
-            for (int m = 0; m < 3; m++)
-                if (!(v <= im->alt_score[m])) {
-                    for (int q = 2; q > m; q--) {
-                        im->alt_oxide[q] = im->alt_oxide[q - 1];
-                        im->alt_scale[q] = im->alt_scale[q - 1];
-                        im->alt_score[q] = im->alt_score[q - 1];
-                    }
-                    im->alt_oxide[m] = od, im->alt_scale[m] = sc, im->alt_score[m] = v;
-                    break;
-                }
-        }
-    im->grid_best = best;
-}
-
-/* The continuum that scales the interband plateau by s. */
-static void start_scale(lam_estimate *e, double s)
-{
-    lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
-    if (c->fitted)
-        c->value = clamp((1 + c->prior_mean) * s - 1, c);
-}
-
-/* Many images share one scale: the one best summed over the images (each
- * at its best oxide for that scale). */
-static double pooled_scale(const lam_estimate *e, grid *g)
-{
-    double best = -INFINITY, bs = 1;
-    for (int k = 0; k < SCALE_STEPS; k++) {
-        double tot = 0;
-        for (size_t j = 0; j < e->images; j++) {
-            double m = -INFINITY;
-            for (size_t d = 0; d < g[j].n; d++)
-                m = fmax(m, g[j].score[d * SCALE_STEPS + (size_t)k]);
-            tot += m;
-        }
-        if (tot > best)
-            best = tot, bs = scale_at(k);
-    }
-    return bs;
-}
-
-static void oxide_at_scale(lam_est_image *im, const grid *g, double s)
-{
-    int k = 0;
-    while (k + 1 < SCALE_STEPS && scale_at(k) < s - 1e-9)
-        k++;
-    double best = -INFINITY;
-    for (size_t d = 0; d < g->n; d++)
-        if (g->score[d * SCALE_STEPS + (size_t)k] > best)
-            best = g->score[d * SCALE_STEPS + (size_t)k], im->oxide.value = g->lo + g->step * (double)d;
-}
-
-static lam_status all_grids(lam_estimate *e, lam_model *model, lam_error *err)
-{
-    lam_prediction *P = malloc(2 * sizeof *P);
-    grid *g = calloc(e->images ? e->images : 1, sizeof *g);
-    lam_status st = P && g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
-    for (size_t j = 0; j < e->images && !st; j++)
-        if (!(st = fill_grid(e, j, model, P, &g[j], err)))
-            pick_cells(&e->image[j], &g[j]);
-    if (!st && getenv("LAMINA_DEBUG_REG")) {
-        lam_est_image *im0 = &e->image[0];
-        double ds[2] = {0.65, 1.059};
-        im0->oxide.value = atof(getenv("LAMINA_DEBUG_REG"));
-        image_ladder(e, 0, model, GRID_LAYERS, P, err);
-        for (size_t i = 0; i < im0->count; i++) {
-            const lam_est_region *r = &im0->regions[i];
-            if (!r->use) continue;
-            double z[2]; int b[2];
-            for (int q = 0; q < 2; q++) {
-                double lt[40]; scaled(P, ds[q], P + 1);
-                lam__region_logterms(e, r, P + 1, lt);
-                z[q] = lam__logsumexp(lt, e->max_layers + 3); b[q] = 0;
-                for (size_t h = 0; h < e->max_layers + 3; h++) if (lt[h] > lt[b[q]]) b[q] = (int)h;
-            }
-            fprintf(stderr, "DEBUGREG %zu m=%.4f %.4f %.4f v=%.2g %.2f(%d) %.2f(%d) %.2f\n", i, r->mean[0], r->mean[1], r->mean[2], r->var[1], z[0], b[0], z[1], b[1], z[0]-z[1]);
-        }
-    }
-    if (!st && DEBUGFIT)
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            double m = -INFINITY, md = 0;
-            for (size_t d = 0; d < g[0].n; d++)
-                if (g[0].score[d * SCALE_STEPS + (size_t)k] > m)
-                    m = g[0].score[d * SCALE_STEPS + (size_t)k], md = g[0].lo + g[0].step * (double)d;
-            fprintf(stderr, "  scale %.3f: best %.2f at %.1f\n", scale_at(k), m, md);
-        }
-    if (!st) {
-        double s = e->images == 1 ? e->image[0].grid_scale : pooled_scale(e, g);
-        e->start_scale = s;
-        start_scale(e, s);
-        for (size_t j = 0; j < e->images && e->images > 1; j++)
-            oxide_at_scale(&e->image[j], &g[j], s);
-        if (DEBUGFIT) fprintf(stderr, "grid: scale %.3f oxide %.1f alts %.1f/%.2f %.1f/%.2f\n", s, e->image[0].oxide.value, e->image[0].alt_oxide[0], e->image[0].alt_scale[0], e->image[0].alt_oxide[1], e->image[0].alt_scale[1]);
-    }
-    for (size_t j = 0; g && j < e->images; j++)
-        free(g[j].score);
-    free(g);
-    free(P);
     return st;
 }
 
@@ -713,10 +520,16 @@ static void laplace(fit_ctx *f)
             for (size_t b = 0; b < n; b++)
                 s[a][b] -= f->q.a_sd[j * n + a] * f->q.a_sd[j * n + b] / f->q.a_dd[j];
     memset(inv, 0, sizeof inv);
+    double logdet_cov = 0; /* of the full covariance: shared block and oxides */
     if (n) {
         lam__cholesky_ridged(s, n, l);
         lam__cholesky_inverse(l, n, inv);
+        logdet_cov = -lam__cholesky_logdet(l, n);
     }
+    for (size_t j = 0; j < e->images; j++)
+        if (e->image[j].oxide.fitted && f->q.a_dd[j] > 0)
+            logdet_cov -= log(f->q.a_dd[j]);
+    e->log_evidence = 0.5 * logdet_cov; /* the caller adds the log posterior */
     memset(e->cov, 0, sizeof e->cov);
     for (size_t a = 0; a < n; a++) {
         for (size_t b = 0; b < n; b++)
@@ -747,13 +560,17 @@ static void count_regions(lam_estimate *e, const img_work *w)
     for (size_t j = 0; j < e->images; j++) {
         lam_est_image *im = &e->image[j];
         im->regions_used = im->confident = 0;
+        double unmodelled = 0;
         for (size_t i = 0; i < im->count; i++) {
             if (!im->regions[i].use)
                 continue;
             im->regions_used++;
             for (size_t h = 1; h <= K; h++)
                 im->confident += w[j].resp[i * H + h] >= 0.9;
+            unmodelled += w[j].resp[i * H + K + 2];
         }
+        im->unmodelled_share = im->regions_used ? unmodelled / (double)im->regions_used : 0;
+        im->data_loglik = im->log_posterior - prior_term(&im->oxide);
     }
 }
 
@@ -806,22 +623,42 @@ typedef struct start_point {
     int image, alt;
 } start_point;
 
+/* alt >= 0: a grid maximum; DOUBLED / HALVED: the best cell read with
+ * every layer count halved / doubled (the scale twice / half as large). */
+#define START_DOUBLED (-1)
+#define START_HALVED (-2)
+
 static void apply_start(lam_estimate *e, const start_point *sp)
 {
-    const lam_est_image *im = &e->image[sp->image];
-    e->image[sp->image].oxide.value = im->alt_oxide[sp->alt];
-    start_scale(e, im->alt_scale[sp->alt]);
+    if (sp->alt == START_DOUBLED)
+        lam__start_rescaled(e, (size_t)sp->image, 2.0);
+    else if (sp->alt == START_HALVED)
+        lam__start_rescaled(e, (size_t)sp->image, 0.5);
+    else
+        lam__start_at(e, (size_t)sp->image, sp->alt);
+}
+
+/* A doubled or halved scale is only worth a start when the response can
+ * reach it: the continuum's range bounds the scale. */
+static int scale_reachable(const lam_estimate *e, double s)
+{
+    const lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
+    return c->fitted && s >= 1 + c->lo && s <= 1 + c->hi;
 }
 
 static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
 {
     size_t n = 0;
-    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++)
-        for (int k = 0; k < 3 && n < cap; k++) {
-            const lam_est_image *im = &e->image[j];
+    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++) {
+        const lam_est_image *im = &e->image[j];
+        for (int k = 0; k < 3 && n < cap; k++)
             if (isfinite(im->alt_oxide[k]) && im->alt_score[k] > im->grid_best - ALT_MARGIN)
                 sp[n++] = (start_point){(int)j, k};
-        }
+        if (j == 0 && n < cap && scale_reachable(e, 2 * im->grid_scale))
+            sp[n++] = (start_point){0, START_DOUBLED};
+        if (j == 0 && n < cap && scale_reachable(e, 0.5 * im->grid_scale))
+            sp[n++] = (start_point){0, START_HALVED};
+    }
     return n;
 }
 
@@ -833,41 +670,162 @@ static lam_status settle(fit_ctx *f, double *lp, lam_error *err)
     return st ? st : refloor(f, lp, err);
 }
 
-static lam_status multistart(fit_ctx *f, double *logpost, lam_error *err)
+/* The layer-count signature of a settled point: the most responsible
+ * hypothesis of every informing region. */
+static void signature(const lam_estimate *e, const img_work *w, uint8_t *sig)
+{
+    size_t H = e->max_layers + 3, k = 0;
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t i = 0; i < e->image[j].count; i++, k++) {
+            size_t best = 0;
+            for (size_t h = 1; h < H; h++)
+                if (w[j].resp[i * H + h] > w[j].resp[i * H + best])
+                    best = h;
+            sig[k] = e->image[j].regions[i].use ? (uint8_t)best : 255;
+        }
+}
+
+/* Two points are different modes when a fifth of the informing regions
+ * (at least one) changes its layer count between them. */
+static int distinct(const uint8_t *a, const uint8_t *b, size_t n)
+{
+    size_t used = 0, changed = 0;
+    for (size_t k = 0; k < n; k++)
+        if (a[k] != 255) {
+            used++;
+            changed += a[k] != b[k];
+        }
+    return changed >= 1 && changed * 5 >= used;
+}
+
+typedef struct mode_set {
+    saved_point best, rival, first;
+    uint8_t *sig_best, *sig_rival, *sig_now;
+    double best_lp, rival_lp;
+    size_t regions;
+} mode_set;
+
+/* Keep the settled point if it beats the best, or is the best distinct
+ * rival so far. */
+static void consider(fit_ctx *f, mode_set *m, double lp)
+{
+    signature(f->e, f->w, m->sig_now);
+    if (lp > m->best_lp + 1e-6) {
+        if (distinct(m->sig_now, m->sig_best, m->regions)) { /* the old best becomes the rival */
+            m->rival_lp = m->best_lp;
+            copy_point(&m->rival, &m->best, f->e->images);
+            memcpy(m->sig_rival, m->sig_best, m->regions);
+        }
+        m->best_lp = lp;
+        save_point(f->e, &m->best);
+        memcpy(m->sig_best, m->sig_now, m->regions);
+    } else if (lp > m->rival_lp && distinct(m->sig_now, m->sig_best, m->regions)) {
+        m->rival_lp = lp;
+        save_point(f->e, &m->rival);
+        memcpy(m->sig_rival, m->sig_now, m->regions);
+    }
+}
+
+static size_t total_regions(const lam_estimate *e)
+{
+    size_t n = 0;
+    for (size_t j = 0; j < e->images; j++)
+        n += e->image[j].count;
+    return n;
+}
+
+static int mode_set_init(mode_set *m, const lam_estimate *e)
+{
+    size_t k = e->images ? e->images : 1, r = total_regions(e) ? total_regions(e) : 1;
+    memset(m, 0, sizeof *m);
+    m->regions = total_regions(e);
+    m->best.oxide = malloc(k * sizeof(double));
+    m->rival.oxide = malloc(k * sizeof(double));
+    m->first.oxide = malloc(k * sizeof(double));
+    m->sig_best = malloc(r), m->sig_rival = malloc(r), m->sig_now = malloc(r);
+    m->rival_lp = -INFINITY;
+    return m->best.oxide && m->rival.oxide && m->first.oxide && m->sig_best && m->sig_rival &&
+           m->sig_now;
+}
+
+static void mode_set_free(mode_set *m)
+{
+    free(m->best.oxide);
+    free(m->rival.oxide);
+    free(m->first.oxide);
+    free(m->sig_best);
+    free(m->sig_rival);
+    free(m->sig_now);
+}
+
+static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
     start_point sp[16];
     size_t n = list_starts(e, sp, 16);
-    saved_point best, first;
-    best.oxide = malloc(e->images * sizeof *best.oxide);
-    first.oxide = malloc(e->images * sizeof *first.oxide);
-    lam_status st = best.oxide && first.oxide ? LAM_OK
-                                              : lam_error_set(err, LAM_ENOMEM, "cannot allocate");
-    if (!st) {
-        save_point(e, &best);
-        save_point(e, &first);
-    }
-    double best_lp = *logpost;
+    save_point(e, &m->best);
+    save_point(e, &m->first);
+    signature(e, f->w, m->sig_best);
+    m->best_lp = *logpost;
+    lam_status st = LAM_OK;
     for (size_t i = 0; i < n && !st; i++) {
-        restore_point(e, &first);
+        restore_point(e, &m->first);
         for (int k = 0; k < LAM_NU_COUNT; k++)
             e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
         apply_start(e, &sp[i]);
         double lp;
-        if ((st = settle(f, &lp, err)))
-            break;
-        if (lp > best_lp + 1e-6) {
-            best_lp = lp;
-            save_point(e, &best);
-        }
+        if (!(st = settle(f, &lp, err)))
+            consider(f, m, lp);
     }
     if (!st) {
-        restore_point(e, &best);
+        restore_point(e, &m->best);
         st = objective(e, f->model, f->w, logpost, err);
     }
-    free(best.oxide);
-    free(first.oxide);
     return st;
+}
+
+/* The Laplace fit of a point: covariance, counts and log evidence. */
+static void finish(fit_ctx *f, double lp)
+{
+    laplace(f);
+    count_regions(f->e, f->w);
+    f->e->log_evidence += lp;
+    f->e->fitted = 1;
+}
+
+/* A rival mode within LAM_RIVAL_MARGIN of the best in log posterior is
+ * fitted on a copy; when its evidence is higher the two swap, so that the
+ * estimate itself is always the more probable mode. */
+static lam_status fit_rival(fit_ctx *f, const mode_set *m, lam_error *err)
+{
+    lam_estimate *e = f->e;
+    if (!(m->rival_lp > m->best_lp - LAM_RIVAL_MARGIN))
+        return LAM_OK;
+    lam_estimate *r = lam__estimate_clone(e);
+    if (!r)
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
+    fit_ctx g;
+    lam_status st = init_ctx(&g, r, f->model, err);
+    double lp = 0;
+    if (!st) {
+        restore_point(r, &m->rival);
+        if (!(st = objective(r, g.model, g.w, &lp, err)))
+            finish(&g, lp);
+        free_ctx(&g);
+    }
+    /* The weight is the ratio of the posterior densities at the two modes.
+     * The Laplace volume term (log_evidence) would be the better measure
+     * for two well-shaped peaks, but a mode pressed against a parameter's
+     * bound (a response term at zero) has a flat direction whose curvature
+     * overstates its volume by orders of magnitude. */
+    double d = m->rival_lp - m->best_lp;
+    if (st || d < -LAM_RIVAL_MARGIN) {
+        lam_estimate_free(r);
+        return st;
+    }
+    e->rival = r;
+    e->rival_weight = 1 / (1 + exp(-d));
+    return LAM_OK;
 }
 
 lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick, lam_error *err)
@@ -882,13 +840,19 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         return st;
     double lp = 0;
     e->iterations = 0;
-    if (!(st = all_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
-        st = multistart(&f, &lp, err);
+    lam_estimate_free(e->rival);
+    e->rival = NULL;
+    e->rival_weight = 0;
+    mode_set m;
+    if (!mode_set_init(&m, e))
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
+    if (!st && !(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
+        st = multistart(&f, &lp, &m, err);
     if (!st) {
-        laplace(&f);
-        count_regions(e, f.w);
-        e->fitted = 1;
+        finish(&f, lp);
+        st = fit_rival(&f, &m, err);
     }
+    mode_set_free(&m);
     free_ctx(&f);
     return st;
 }

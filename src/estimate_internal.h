@@ -28,4 +28,30 @@ lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model
                                const lam_prediction *ladder, lam_ladder_grad *grad,
                                lam_error *err);
 
+/* Image j's observed ladder of 'layers' layers at the current values. */
+lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, size_t layers,
+                            lam_prediction *out, lam_error *err);
+
+/* Log posterior share of image j (its regions and its oxide prior) for a
+ * ladder; fills responsibilities (count x (K + 3)) when resp is given. */
+double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                          double *resp);
+
+/* The starting grid of every image (estimate_grid.c): sets each image's
+ * oxide, grid_scale, grid_factor, the alternatives, and the shared
+ * starting values (continuum for the scale, gains for the factors). */
+lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err);
+
+/* Start from alternative 'alt' of image j's grid. */
+void lam__start_at(lam_estimate *e, size_t j, int alt);
+
+/* Start from image j's best grid cell with the contrast scale times
+ * 'ratio' (2 or 1/2: the same colours read with every layer count doubled
+ * or halved, a mode the grid's scale range may not show). */
+void lam__start_rescaled(lam_estimate *e, size_t j, double ratio);
+
+/* A deep copy of an estimate (its regions; not its rival nor its cross
+ * terms, which its own fit makes), or NULL when out of memory. */
+lam_estimate *lam__estimate_clone(const lam_estimate *e);
+
 #endif

@@ -48,6 +48,23 @@ typedef struct loo {
     lam__mat cov;
 } loo;
 
+/* The one-step leave-one-out shift is linear in the region's gradient: for
+ * a region that carries much of the information on a weakly identified
+ * parameter (one large trilayer pinning the response) it can throw the
+ * prediction far past where a refit would go. The shift is limited to one
+ * standard deviation of the fit's own posterior (Mahalanobis length 1). */
+#define LOO_MAX_SHIFT 1.0
+static void damp_shift(loo *out, const lam__mat fit_prec, size_t n)
+{
+    double q = 0;
+    for (size_t a = 0; a < n; a++)
+        for (size_t b = 0; b < n; b++)
+            q += out->shift[a] * fit_prec[a][b] * out->shift[b];
+    if (q > LOO_MAX_SHIFT * LOO_MAX_SHIFT)
+        for (size_t a = 0; a < n; a++)
+            out->shift[a] *= LOO_MAX_SHIFT / sqrt(q);
+}
+
 /* Remove region r's information (its responsibility-weighted Gauss-Newton
  * Hessian and gradient) from the posterior of the view's parameters. */
 static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
@@ -64,6 +81,8 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
         return;
     lam__cholesky_ridged(out->cov, n, l);
     lam__cholesky_inverse(l, n, prec);
+    lam__mat fit_prec;
+    memcpy(fit_prec, prec, sizeof fit_prec);
     double g[LAM__MAT_MAX] = {0};
     for (size_t h = 1; h <= K; h++) {
         if (resp[h] < 1e-6)
@@ -83,6 +102,7 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
     for (size_t a = 0; a < n; a++)
         for (size_t b = 0; b < n; b++)
             out->shift[a] -= out->cov[a][b] * g[b];
+    damp_shift(out, fit_prec, n);
 }
 
 /* log N(m; mean, S) for nc <= 3 with a full covariance; chi2 out. */
@@ -129,6 +149,21 @@ static void predictive(const lam_estimate *e, const lam_est_view *v, const lam_e
         }
     for (size_t c = 0; c < nc; c++)
         s[c][c] += r->var[c] + lam_estimate_floor_var(e, c, v->ladder.contrast[h][c]);
+}
+
+/* The goodness of fit of a region against its most probable layer count:
+ * each channel against its own predictive spread. The correlations the
+ * shared parameters put between channels are left out on purpose: an
+ * image's own systematic errors (JPEG chroma steps move blue against
+ * green) do not follow them, and a fit test that counts them flags good
+ * flakes of lossy files as unmodelled. Residue and other materials miss
+ * the ladder by far more than a channel's spread, and are still caught. */
+static double diagonal_chi2(const double *m, const double *mean, const double s[3][3], size_t nc)
+{
+    double q = 0;
+    for (size_t c = 0; c < nc; c++)
+        q += (m[c] - mean[c]) * (m[c] - mean[c]) / s[c][c];
+    return q;
 }
 
 /* log prior x predictive of every hypothesis; chi2 of each layered one. */
@@ -337,10 +372,11 @@ void lam_infer_region(const lam_estimate *e, const lam_est_view *v, const lam_fe
             best_layers = h;
     }
     o->p_substrate = o->p[0];
-    o->chi2 = chi2[best_layers];
-    o->pvalue = gsl_cdf_chisq_Q(o->chi2, (double)nc);
     size_t shown = best >= 1 && best <= K ? best : best_layers;
     double mean[3], sc[3][3];
+    predictive(e, v, r, &lo, best_layers, mean, sc);
+    o->chi2 = diagonal_chi2(r->mean, mean, sc, nc);
+    o->pvalue = gsl_cdf_chisq_Q(o->chi2, (double)nc);
     predictive(e, v, r, &lo, shown, mean, sc);
     for (size_t c = 0; c < nc; c++) {
         o->mean[c] = r->mean[c];
@@ -405,4 +441,23 @@ void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r
     }
     free(height);
     free(stack);
+}
+
+void lam_infer_mix(lam_region_result *o, const lam_region_result *rival, double w,
+                   const lam_infer_options *opt)
+{
+    size_t K = opt->max_layers, H = K + 3, best = 0;
+    for (size_t h = 0; h < H; h++) {
+        o->p[h] = (1 - w) * o->p[h] + w * rival->p[h];
+        if (o->p[h] > o->p[best])
+            best = h;
+    }
+    o->p_substrate = o->p[0];
+    unsigned keep = LAM_FLAG_SATURATED | LAM_FLAG_BORDER | LAM_FLAG_SMALL | LAM_FLAG_DOPED;
+    o->flags &= keep;
+    if (best == LAM_P_UNMODELLED(K))
+        o->flags |= LAM_FLAG_UNMODELLED;
+    o->layers = 0;
+    o->thick = o->substrate_like = 0;
+    label_region(opt, K, best, o);
 }

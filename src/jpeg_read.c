@@ -8,6 +8,7 @@
 
 #include <jpeglib.h>
 #include <setjmp.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -63,6 +64,29 @@ static lam_status check_header(jpeg_job *job, const lam_load_options *opt, lam_e
                                 opt->max_pixels, "JPEG image", err);
 }
 
+/* One quantisation step of each component's block mean (the DC
+ * coefficient is 8 x the mean of its 8 x 8 block), carried into R, G and B
+ * code values through the JFIF YCbCr -> RGB matrix. Flat areas (the
+ * substrate, a large flake) are coded almost by DC alone, so their colour
+ * moves in these steps from one block to the next; a channel moves by at
+ * most the sum of one step in each component. */
+static void dc_steps(const struct jpeg_decompress_struct *ci, lam_image *img)
+{
+    double q[3] = {0, 0, 0};
+    for (int k = 0; k < ci->num_components && k < 3; k++) {
+        const JQUANT_TBL *t = ci->quant_tbl_ptrs[ci->comp_info[k].quant_tbl_no];
+        q[k] = t ? t->quantval[0] / 8.0 : 0;
+    }
+    if (ci->num_components < 3) {
+        img->jpeg_dc_step[0] = img->jpeg_dc_step[1] = img->jpeg_dc_step[2] = q[0];
+        return;
+    }
+    /* one step in every component at once: the largest move of a channel */
+    img->jpeg_dc_step[0] = q[0] + 1.402 * q[2];
+    img->jpeg_dc_step[1] = q[0] + 0.344 * q[1] + 0.714 * q[2];
+    img->jpeg_dc_step[2] = q[0] + 1.772 * q[1];
+}
+
 /* Start decoding, allocate the image and choose its transfer curve. */
 static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *err)
 {
@@ -88,6 +112,7 @@ static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *e
     img->bit_depth = 8;
     img->source_channels = img->channels = chans;
     img->kind = LAM_FILE_JPEG;
+    dc_steps(&job->cinfo, img);
     if ((st = lam__colour_apply(&meta, &opt->transfer, &job->pc, img, err)))
         return st;
     if (!(job->row = malloc(w * (size_t)chans)))

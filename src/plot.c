@@ -228,17 +228,36 @@ static void profile_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *
     }
 }
 
+/* One row of the lower panel: a bar from lo to hi and a dot at v. */
+static void bar_row(cairo_t *cr, const lam_axis *x, double py, double v, double lo, double hi,
+                    uint32_t colour)
+{
+    if (isfinite(lo) && isfinite(hi)) {
+        cairo_set_line_width(cr, 1.5);
+        lam_draw_rgb(cr, 0x222222);
+        cairo_move_to(cr, fmax(lam_axis_map(x, lo), x->p0), py);
+        cairo_line_to(cr, fmin(lam_axis_map(x, hi), x->p1), py);
+        cairo_stroke(cr);
+    }
+    double cx = lam_axis_map(x, v);
+    if (cx >= x->p0 && cx <= x->p1) {
+        cairo_arc(cr, cx, py, 4, 0, 2 * M_PI);
+        lam_draw_rgb(cr, colour);
+        cairo_fill(cr);
+    }
+}
+
 static void images_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *x,
                          const lam_axis *y, double row)
 {
     shade_band(cr, x, y, p->nominal_nm - p->tolerance_nm, p->nominal_nm + p->tolerance_nm,
                0x2e7d32, 0.16);
-    if (isfinite(p->estimate_nm) && isfinite(p->sigma_nm))
-        shade_band(cr, x, y, p->estimate_nm - p->sigma_nm, p->estimate_nm + p->sigma_nm,
-                   0xc62828, 0.15);
+    if (isfinite(p->lo95_nm) && isfinite(p->hi95_nm))
+        shade_band(cr, x, y, p->lo95_nm, p->hi95_nm, 0xc62828, 0.15);
     lam_axis none = *y;
     none.hide_ticks = 1;
-    lam_draw_axes(cr, x, &none, "SiO\u2082 thickness (nm), each image", NULL, 11);
+    lam_draw_axes(cr, x, &none, "SiO\u2082 thickness (nm), each image \u00b1 1\u03c3; "
+                  "combined: 95 % interval", NULL, 11);
     vline(cr, x, y, p->nominal_nm, 0x2e7d32, 1);
     vline(cr, x, y, p->estimate_nm, 0xc62828, 0);
     lam_text_style name = {10.5, 0, 0x222222, 1, 0.5, 0};
@@ -253,22 +272,15 @@ static void images_panel(cairo_t *cr, const lam_oxide_plot *p, const lam_axis *x
             lam_draw_text(cr, x->p0 + 6, py, &ts, "no usable region");
             continue;
         }
-        double cx = lam_axis_map(x, im->estimate_nm);
-        if (isfinite(im->sigma_nm)) {
-            double xa = lam_axis_map(x, im->estimate_nm - im->sigma_nm);
-            double xb = lam_axis_map(x, im->estimate_nm + im->sigma_nm);
-            cairo_set_line_width(cr, 1.5);
-            lam_draw_rgb(cr, 0x222222);
-            cairo_move_to(cr, fmax(xa, x->p0), py);
-            cairo_line_to(cr, fmin(xb, x->p1), py);
-            cairo_stroke(cr);
-        }
-        if (cx >= x->p0 && cx <= x->p1) {
-            cairo_arc(cr, cx, py, 4, 0, 2 * M_PI);
-            lam_draw_rgb(cr, 0x1f4e9c);
-            cairo_fill(cr);
-        }
+        bar_row(cr, x, py, im->estimate_nm, im->estimate_nm - im->sigma_nm,
+                im->estimate_nm + im->sigma_nm, 0x1f4e9c);
     }
+    double py = y->p1 + row * ((double)p->n_images + 0.5);
+    char label[96];
+    snprintf(label, sizeof label, "<b>combined: %s</b>", p->verdict ? p->verdict : "no data");
+    lam_draw_text(cr, x->p0 - 8, py, &name, label);
+    if (isfinite(p->estimate_nm))
+        bar_row(cr, x, py, p->estimate_nm, p->lo95_nm, p->hi95_nm, 0xc62828);
 }
 
 /* The zoom of the lower panel: nominal +- 3 tolerances, widened to every
@@ -283,6 +295,8 @@ static void zoom_range(const lam_oxide_plot *p, double *lo, double *hi)
             *lo = fmin(*lo, p->images[j].estimate_nm - s - 1);
             *hi = fmax(*hi, p->images[j].estimate_nm + s + 1);
         }
+    if (isfinite(p->lo95_nm) && isfinite(p->hi95_nm))
+        *lo = fmin(*lo, p->lo95_nm - 1), *hi = fmax(*hi, p->hi95_nm + 1);
     lam_nice_range(lo, hi, 8);
 }
 
@@ -291,21 +305,21 @@ lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *
     if (p->n < 2)
         return lam_error_set(err, LAM_EINVAL, "the oxide profile has fewer than 2 points");
     double name_w = 220, W = 940, top = 64, ph = 260, row = 22;
-    double h2 = fmax(60, row * (double)(p->n_images ? p->n_images : 1));
+    double h2 = fmax(60, row * (double)(p->n_images + 1)); /* + the combined row */
     lam_canvas cv;
     lam_status st = lam_canvas_open(&cv, path, W, top + ph + 90 + h2 + 130, err);
     if (st)
         return st;
     cairo_t *cr = cv.cr;
     char title[256];
+    const char *verdict = p->verdict ? p->verdict : "no data";
     if (isfinite(p->estimate_nm))
         snprintf(title, sizeof title, "Oxide audit: %.1f \u00b1 %.1f nm against %.1f \u00b1 %.1f "
                                       "nm nominal \u2014 %s", p->estimate_nm, p->sigma_nm,
-                 p->nominal_nm, p->tolerance_nm,
-                 p->pass == 1 ? "pass" : p->pass == 0 ? "FAIL" : "unknown");
+                 p->nominal_nm, p->tolerance_nm, verdict);
     else
-        snprintf(title, sizeof title, "Oxide audit: no region usable for a fit (nominal %.1f nm)",
-                 p->nominal_nm);
+        snprintf(title, sizeof title, "Oxide audit: no image fitted its oxide (nominal %.1f "
+                                      "nm) \u2014 %s", p->nominal_nm, verdict);
     lam_text_style ts = {15, 1, 0x111111, 0, 0, 0};
     lam_draw_text(cr, name_w, 16, &ts, title);
     double zlo, zhi, cmin = INFINITY, cmax = -INFINITY;
@@ -320,18 +334,18 @@ lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *
     double t2 = top + ph + 90;
     lam_axis x2 = {zlo, zhi, name_w, W - 30, NULL, 0, 0};
     lam_axis y2 = {0, 1, t2 + h2, t2, NULL, 0, 0};
-    images_panel(cr, p, &x2, &y2, h2 / (double)(p->n_images ? p->n_images : 1));
+    images_panel(cr, p, &x2, &y2, h2 / (double)(p->n_images + 1));
     lam_text_style note = {11, 0, 0x333333, 0, 0, 0};
     double ny = t2 + h2 + 56;
     lam_draw_text(cr, name_w, ny, &note,
                   "<span foreground=\"#2e7d32\">green: nominal (dashed) \u00b1 tolerance</span>"
-                  "   <span foreground=\"#c62828\">red: combined estimate \u00b1 1\u03c3</span>"
-                  "   grey: the range of the lower panel");
+                  "   <span foreground=\"#c62828\">red: combined estimate, shaded: its 95 % "
+                  "interval (the verdict)</span>");
     lam_draw_text(cr, name_w, ny + 18, &note,
-                  "top: \u221a\u0394\u03c7\u00b2 (distance in \u03c3, clipped at 10); circles: "
-                  "other interference orders that fit as well");
+                  "grey: the range of the lower panel; circles: other interference orders that "
+                  "fit as well");
     lam_draw_text(cr, name_w, ny + 36, &note,
-                  "purple dashed: absolute method against a bare-Si reference; points: each "
-                  "image's own fit \u00b1 1\u03c3");
+                  "top: \u221a\u0394\u03c7\u00b2 (distance in \u03c3, clipped at 10); purple "
+                  "dashed: absolute method against a bare-Si reference");
     return lam_canvas_finish(&cv, err);
 }

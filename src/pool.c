@@ -21,7 +21,13 @@ struct lam_pool {
     size_t channels, kept, first;   /* ring buffer of LAM_POOL_MAX images */
     pooled_image image[LAM_POOL_MAX];
     lam_model *model;               /* LAM_MODEL_MAX_LAYERS, made on the first fit */
+    int again;                      /* the kept images will be analysed again */
 };
+
+void lam_pool_analyse_again(lam_pool *p, int on)
+{
+    p->again = on;
+}
 
 lam_status lam_pool_alloc(const lam_setup *setup, const lam_analysis_options *opt,
                           lam_pool **out, lam_error *err)
@@ -110,11 +116,23 @@ static void floor_priors(const lam_pool *p, lam_estimate *e)
     }
 }
 
+/* Each image analysed again with the pooled posterior as its prior would
+ * count its own regions twice. With n images informing the fit about
+ * equally, the posterior without one of them has (n - 1) / n of the data's
+ * precision: the standard deviations widen by sqrt(n / (n - 1)). (A batch's
+ * images outside the sample get the same, slightly cautious, prior.) */
+static void leave_one_out(lam_shared_prior *out, size_t n)
+{
+    double f = sqrt((double)n / (double)(n - 1));
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        out->sd[k] *= f;
+}
+
 lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err)
 {
     memset(out, 0, sizeof *out);
-    if (!lam_pool_informative(p))
-        return LAM_OK;
+    if (lam_pool_informative(p) < (p->again ? 2u : 1u))
+        return LAM_OK; /* one image's own posterior is no prior for it */
     lam_status st = LAM_OK;
     if (!p->model)
         st = lam_model_alloc_fast(&p->setup, LAM_MODEL_MAX_LAYERS, &p->model, err);
@@ -134,6 +152,8 @@ lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err)
     if (!st)
         lam_shared_prior_from(e, out);
     lam_estimate_free(e);
+    if (!st && p->again)
+        leave_one_out(out, lam_pool_informative(p));
     return st;
 }
 

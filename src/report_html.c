@@ -39,6 +39,20 @@ static void url(FILE *f, const char *t)
             fprintf(f, "%%%02X", *p);
 }
 
+/* An image's name linking to its annotated picture, and its JSON. */
+static void image_links(FILE *f, const char *rel, const char *stem)
+{
+    fputs("<a href=\"", f);
+    url(f, rel);
+    url(f, stem);
+    fputs(".annotated.png\">", f);
+    html(f, stem);
+    fputs("</a> (<a href=\"", f);
+    url(f, rel);
+    url(f, stem);
+    fputs(".json\">JSON</a>)", f);
+}
+
 /* Split a resolved path into its components (in place). */
 static size_t components(char *p, char **out, size_t max)
 {
@@ -159,12 +173,9 @@ static void svg_candidates(FILE *f, const lam_catalog *c, const lam_chipmap_view
 {
     for (size_t i = c->count; i-- > 0;) {
         const lam_catalog_entry *e = &c->entries[i];
-        if (!lam_catalog_is_candidate(c, i) || !isfinite(e->chip_um[0]))
+        double p[2], r;
+        if (!lam_chipmap_mark(v, c, i, p, &r))
             continue;
-        double p[2];
-        lam_chipmap_point(v, e->chip_um, p);
-        double a = isfinite(e->area_um2) ? e->area_um2 : 100;
-        double r = fmin(11, fmax(4, sqrt(a) * 0.35));
         size_t rank = lam_catalog_rank(c, i);
         fprintf(f, "<a href=\"#c%zu\"><circle cx=\"%.1f\" cy=\"%.1f\" r=\"%.1f\" fill=\"#%06x\" "
                    "stroke=\"#111\" stroke-width=\"1.3\"><title>%zu. %s p ",
@@ -236,15 +247,9 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
     }
     fputs("</td><td data-v=\"", f);
     html(f, im->stem);
-    fputs("\"><a href=\"", f);
-    url(f, rel);
-    url(f, im->stem);
-    fputs(".annotated.png\">", f);
-    html(f, im->stem);
-    fputs("</a> (<a href=\"", f);
-    url(f, rel);
-    url(f, im->stem);
-    fprintf(f, ".json\">JSON</a>)</td><td class=\"n\" data-v=\"%u\">#%u</td>", e->region,
+    fputs("\">", f);
+    image_links(f, rel, im->stem);
+    fprintf(f, "</td><td class=\"n\" data-v=\"%u\">#%u</td>", e->region,
             e->region);
     fprintf(f, "<td data-v=\"%d\"><span class=\"sw\" style=\"background:#%06x\"></span>%s</td>",
             e->layers, (unsigned)lam_draw_layer_colour(e->layers), e->label);
@@ -298,15 +303,9 @@ static void image_table(FILE *f, const lam_catalog *c, const char *dir)
         const lam_catalog_image *im = &c->images[k];
         char rel[PATH_MAX];
         relative_dir(dir, im->results, rel, sizeof rel);
-        fputs("<tr><td><a href=\"", f);
-        url(f, rel);
-        url(f, im->stem);
-        fputs(".annotated.png\">", f);
-        html(f, im->stem);
-        fputs("</a> (<a href=\"", f);
-        url(f, rel);
-        url(f, im->stem);
-        fprintf(f, ".json\">JSON</a>)</td><td class=\"n\">%.1f%s</td><td class=\"n\">%zu</td>"
+        fputs("<tr><td>", f);
+        image_links(f, rel, im->stem);
+        fprintf(f, "</td><td class=\"n\">%.1f%s</td><td class=\"n\">%zu</td>"
                    "<td class=\"n\">%zu</td>", im->oxide_nm, im->oxide_fitted ? "" : " (nominal)",
                 im->regions, im->candidates);
         if (im->pos)

@@ -316,25 +316,13 @@ static void add_summary(cJSON *root, const lam_analysis *a)
 }
 
 /* ---- nearly anti-reflecting substrates (issue 14: Si3N4 near 67 nm) ----
- * Below AR_REFLECTANCE in a channel the relative contrast is
- * ill-conditioned (stray light and the model's error in R_sub dominate
- * it): say so, and give each region dR = C x R_sub (the model's substrate
- * reflectance) and the measurement's signal-to-noise |C| / sigma_stat per
- * channel. Nothing is added for ordinary substrates. */
-#define AR_REFLECTANCE 0.03
-static void add_antireflection(cJSON *warnings, cJSON *regs, const lam_analysis *a)
+ * With the anti-reflection warning (analyze_checks.c) each region also
+ * gets dR = C x R_sub (the model's substrate reflectance) and the
+ * measurement's signal-to-noise |C| / sigma_stat per channel. */
+static void add_antireflection(cJSON *regs, const lam_analysis *a)
 {
-    int ar = 0;
-    for (size_t c = 0; c < a->channels; c++)
-        ar |= a->ladder.substrate[c] < AR_REFLECTANCE;
-    if (!ar)
+    if (!lam_warnings_find(&a->warnings, "anti-reflection"))
         return;
-    char text[256];
-    snprintf(text, sizeof text, "the substrate is nearly anti-reflecting (model reflectance "
-                                "below %.2f in a channel): relative contrast is ill-conditioned; "
-                                "regions carry delta_reflectance and snr",
-             AR_REFLECTANCE);
-    cJSON_AddItemToArray(warnings, cJSON_CreateString(text));
     for (size_t i = 0; i < a->count; i++) {
         cJSON *o = cJSON_GetArrayItem(regs, (int)i);
         double dr[LAM_MAX_CHANNELS], snr[LAM_MAX_CHANNELS];
@@ -367,7 +355,14 @@ cJSON *lam_report_json(const lam_analysis *a)
     for (size_t i = 0; i < a->count; i++)
         cJSON_AddItemToArray(regs, region_json(a, i));
     add_summary(root, a);
-    add_antireflection(cJSON_AddArrayToObject(root, "warnings"), regs, a);
+    cJSON *w = cJSON_AddArrayToObject(root, "warnings");
+    for (size_t i = 0; i < a->warnings.count; i++) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddStringToObject(o, "code", a->warnings.item[i].code);
+        cJSON_AddStringToObject(o, "message", a->warnings.item[i].message);
+        cJSON_AddItemToArray(w, o);
+    }
+    add_antireflection(regs, a);
     return root;
 }
 

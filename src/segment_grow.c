@@ -16,6 +16,8 @@
 #define SUBSTRATE_MIN 0.003    /* ... but at least this contrast */
 #define EDGE_STEP_FRACTION 0.3 /* a change across two pixels that marks an edge */
 #define JOIN_STEP_FRACTION 0.15 /* neighbours never join across more than this */
+#define FILE_STEP_MERGE 1.0     /* regions one JPEG DC step apart are one */
+#define FILE_STEP_SUBSTRATE 1.5 /* substrate patches up to 1.5 steps off zero */
 
 typedef struct edge_ctx {
     const lam_image *img;
@@ -408,9 +410,10 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     ec.bright = opt->bright_scaling;
     double delta[3], sigma[3];
     thresholds(img, channels, c1, noise, &ec, delta, sigma);
-    /* substrate patches differ by its low-frequency errors: let them merge */
+    /* substrate patches differ by its low-frequency errors, and flat areas
+     * of a JPEG by whole DC steps: let them merge */
     for (size_t c = 0; c < 3; c++)
-        delta[c] = fmax(delta[c], 2 * scatter[c]);
+        delta[c] = fmax(fmax(delta[c], 2 * scatter[c]), FILE_STEP_MERGE * opt->file_step[c]);
     lam_parallel_for(h, opt->threads ? opt->threads : 1, edge_rows, &ec);
     lam_status st = dilate_edges(seg->cls, w, h, err);
     if (st)
@@ -428,10 +431,15 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     }
     lam__region_statistics(img, seg->cls, seg->label, depth, R, m);
     free(depth);
-    double tol[3];
+    /* the tolerance follows the channel where a monolayer shows most: a
+     * channel it barely changes (blue near 300 nm) must not turn patches of
+     * substrate with a JPEG chroma step into regions */
+    double tol[3], step1 = 0;
+    for (size_t c = 0; c < channels; c++)
+        step1 = fmax(step1, fabs(c1[c]));
     for (size_t c = 0; c < 3; c++)
-        tol[c] = fmax(fmax(SUBSTRATE_FRACTION * fabs(c < channels ? c1[c] : 0), SUBSTRATE_MIN),
-                      4 * scatter[c]);
+        tol[c] = fmax(fmax(fmax(SUBSTRATE_FRACTION * step1, SUBSTRATE_MIN), 4 * scatter[c]),
+                      FILE_STEP_SUBSTRATE * opt->file_step[c]);
     for (uint32_t i = 0; i < m; i++)
         R[i].cls = at_zero(&R[i], channels, tol) ? LAM_CLASS_SUBSTRATE : PROVISIONAL;
     lam__keep_regions(seg, R, m, opt->min_region_px);

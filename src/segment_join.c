@@ -112,7 +112,8 @@ static int by_pair(const void *x, const void *y)
 /* Pairs crossed by at least JOIN_RUNS runs unite. */
 static void unite_bridged(join_ctx *j, pair_list *L)
 {
-    qsort(L->v, L->n, sizeof *L->v, by_pair);
+    if (L->n)
+        qsort(L->v, L->n, sizeof *L->v, by_pair);
     for (size_t i = 0, e; i < L->n; i = e) {
         for (e = i; e < L->n && L->v[e].a == L->v[i].a && L->v[e].b == L->v[i].b; e++)
             ;

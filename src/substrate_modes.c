@@ -11,8 +11,13 @@
  * flat field cancels) in every channel: the contrast of mode j against
  * candidate i must lie near a ladder entry up to a scale of 0.6-1.6 (the
  * response is not known yet). From a flake's point of view the substrate
- * looks like negative graphene, which no entry matches. Without a ladder,
- * or when the modes never touch, the largest mode wins. */
+ * looks like negative graphene, which no entry matches. Two modes whose
+ * mutual contrast is well below a monolayer's (JPEG blocks, a flat-field
+ * residual or a slight colour cast splitting the substrate in two) give no
+ * evidence about each other, and a candidate whose neighbours fit the
+ * ladder poorly (relative distance above EVIDENCE_MAX) is not chosen over
+ * the largest mode. Without a ladder, or when no mode has such evidence,
+ * the largest mode wins. */
 #include "substrate_internal.h"
 
 #include <math.h>
@@ -27,6 +32,8 @@
 #define ADJ_MIN_PAIRS 3
 #define SCALE_LO 0.6
 #define SCALE_HI 1.6
+#define SAME_FRACTION 0.5     /* modes closer than this x the scaled monolayer are alike */
+#define EVIDENCE_MAX 0.2      /* a mode whose neighbours fit the ladder worse is not chosen */
 
 typedef struct mode {
     double r, u, v;
@@ -200,21 +207,30 @@ static size_t choose(const mode *md, size_t m, const mode_pairs *mp,
         bi = md[k].count > md[bi].count ? k : bi;
     if (m <= 1 || !opt->ladder || opt->ladder_count == 0)
         return bi;
-    double best = INFINITY;
+    double best = INFINITY, l1 = 0;
+    for (int k = 0; k < 3; k++)
+        l1 += opt->ladder[0][k] * opt->ladder[0][k];
+    double same = SAME_FRACTION * SCALE_LO * sqrt(l1);
     for (size_t i = 0; i < m; i++) {
         double score = 0, weight = 0;
         for (size_t j = 0; j < m; j++) {
             if (j == i || mp->count[i][j] < ADJ_MIN_PAIRS)
                 continue;
-            double c[3];
-            for (int k = 0; k < 3; k++)
+            double c[3], cc = 0;
+            for (int k = 0; k < 3; k++) {
                 c[k] = 1 - exp(mp->logratio[i][j][k] / (double)mp->count[i][j]);
+                cc += c[k] * c[k];
+            }
+            if (cc < same * same)
+                continue;
             score += (double)md[j].count * ladder_distance(c, opt);
             weight += (double)md[j].count;
         }
         if (!(weight > 0))
             continue; /* touches no other mode: no evidence either way */
         score /= weight;
+        if (score > EVIDENCE_MAX)
+            continue;
         /* within 0.05 of each other the larger mode wins */
         if (score < best - 0.05 || (fabs(score - best) <= 0.05 && md[i].count > md[bi].count))
             best = fmin(best, score), bi = i;

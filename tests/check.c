@@ -159,3 +159,31 @@ void check_skip(const char *why)
     printf("%s: skipped: %s\n", prog, why);
     exit(77);
 }
+
+char *check_slurp(const char *path, size_t *len)
+{
+    FILE *fp = fopen(path, "rb");
+    if (!fp)
+        return NULL;
+    fseek(fp, 0, SEEK_END);
+    long n = ftell(fp);
+    rewind(fp);
+    char *b = n >= 0 ? malloc((size_t)n + 1) : NULL;
+    size_t got = b ? fread(b, 1, (size_t)n, fp) : 0;
+    if (b)
+        b[got] = '\0';
+    if (len)
+        *len = got;
+    fclose(fp);
+    return b;
+}
+
+int check_same_file(const char *a, const char *b)
+{
+    size_t na = 0, nb = 0;
+    char *x = check_slurp(a, &na), *y = check_slurp(b, &nb);
+    int same = x && y && na == nb && !memcmp(x, y, na);
+    free(x);
+    free(y);
+    return same;
+}

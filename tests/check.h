@@ -32,6 +32,13 @@ const char *check_refdata_dir(void);
 /* Build "dir/name" into buf; returns buf. */
 char *check_path(char *buf, size_t n, const char *dir, const char *name);
 
+/* A whole file, NUL-terminated (malloc'd; NULL when it cannot be read);
+ * *len (may be NULL) receives its size in bytes. */
+char *check_slurp(const char *path, size_t *len);
+
+/* 1 when two files exist and hold the same bytes. */
+int check_same_file(const char *a, const char *b);
+
 /* A per-run scratch folder (created on first use). */
 const char *check_tmpdir(void);
 

@@ -126,8 +126,13 @@ static void test_end_to_end(void)
                 if (r && r->layers == objs[i].layers && !(r->flags & LAM_FLAG_AMBIGUOUS))
                     correct++;
                 else
-                    printf("scene %d (%s, oxide %.1f): flake %zu true %dL, found %s\n", s,
-                           jpeg ? "jpeg" : "png", truth_ox, i, objs[i].layers, r ? r->label : "nothing");
+                    printf("scene %d (%s, oxide %.1f, fitted %.1f): flake %zu true %dL, found %s "
+                           "(%s, p %.3f, p(%dL) %.3f, contrast %.4f %.4f %.4f, model %.4f %.4f %.4f)\n",
+                           s, jpeg ? "jpeg" : "png", truth_ox, a->oxide.estimate, i, objs[i].layers,
+                           r ? r->label : "nothing", r ? r->cls : "-", r ? r->p_label : 0,
+                           objs[i].layers, r ? r->p[objs[i].layers] : 0, r ? r->mean[0] : 0,
+                           r ? r->mean[1] : 0, r ? r->mean[2] : 0, r ? r->model[0] : 0,
+                           r ? r->model[1] : 0, r ? r->model[2] : 0);
             } else {
                 residue_total++;
                 if (r && r->layers >= 1 && r->layers <= 3)

@@ -2,7 +2,8 @@
  * catalogue's top monolayer candidates must be the chip's, each flake seen
  * in two overlapping tiles listed once; a run interrupted and resumed with
  * --resume must end with outputs identical to an uninterrupted run; the
- * same results with 1 and 2 threads. The chip is invented test data. */
+ * same results with 1 and 2 threads; shards on one pooled prior merge to
+ * the catalogue of one run. The chip is invented test data. */
 #include "check.h"
 
 #include <math.h>
@@ -27,31 +28,6 @@ static const chip_flake flakes[] = {
     {330, 270, 15, 2}, {150, 76 + 10, 6, 25}, {400, 230, 5, 2},
 };
 #define NF (sizeof flakes / sizeof flakes[0])
-
-static char *slurp(const char *path)
-{
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
-        return NULL;
-    fseek(fp, 0, SEEK_END);
-    long n = ftell(fp);
-    rewind(fp);
-    char *b = malloc((size_t)n + 1);
-    if (b) {
-        b[fread(b, 1, (size_t)n, fp)] = '\0';
-    }
-    fclose(fp);
-    return b;
-}
-
-static int same_file(const char *a, const char *b)
-{
-    char *x = slurp(a), *y = slurp(b);
-    int same = x && y && !strcmp(x, y);
-    free(x);
-    free(y);
-    return same;
-}
 
 int main(void)
 {
@@ -106,7 +82,7 @@ int main(void)
              "--out %s %s", bin_dir, dir, outA, dir);
     check_int(system(cmd), 0, "analyze the 20-tile scan with positions");
     snprintf(path, sizeof path, "%s/catalog.json", outA);
-    char *text = slurp(path);
+    char *text = check_slurp(path, NULL);
     cJSON *cat = text ? cJSON_Parse(text) : NULL;
     free(text);
     if (!check_true(cat != NULL, "catalog.json parses"))
@@ -154,7 +130,7 @@ int main(void)
         char a[1024], b[1024];
         snprintf(a, sizeof a, "%s/%s", outA, files[k]);
         snprintf(b, sizeof b, "%s/%s", outB, files[k]);
-        if (!same_file(a, b)) {
+        if (!check_same_file(a, b)) {
             all_same = 0;
             printf("test_batch: %s differs after --resume\n", files[k]);
         }
@@ -168,14 +144,18 @@ int main(void)
     char a[1024], b[1024];
     snprintf(a, sizeof a, "%s/catalog.json", outA);
     snprintf(b, sizeof b, "%s/catalog.json", outC);
-    check_true(same_file(a, b), "catalogue identical with 1 and 2 threads");
-    /* two shards merged give the same catalogue as one run */
-    snprintf(cmd, sizeof cmd, "for i in 1 2; do %s/lamina analyze --quiet --um-per-px 0.2 --shard $i/2 "
-             "--out %s/shard$i %s || exit 1; done; %s/lamina catalog merge --quiet --positions "
-             "%s/positions.csv --out %s/merged %s/shard1 %s/shard2", bin_dir, check_tmpdir(), dir,
-             bin_dir, dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
-    check_int(system(cmd), 0, "two shards and a merge");
+    check_true(check_same_file(a, b), "catalogue identical with 1 and 2 threads");
+    /* two shards on one pooled prior (--pool-only, then --pool-from: the
+     * cluster recipe of docs/user-guide.md) merged give the catalogue of
+     * one run */
+    snprintf(cmd, sizeof cmd, "%s/lamina analyze --quiet --um-per-px 0.2 --pool-only --out %s/pool %s "
+             "&& for i in 1 2; do %s/lamina analyze --quiet --um-per-px 0.2 --shard $i/2 "
+             "--pool-from %s/pool/pool.json --out %s/shard$i %s || exit 1; done; %s/lamina catalog "
+             "merge --quiet --positions %s/positions.csv --out %s/merged %s/shard1 %s/shard2",
+             bin_dir, check_tmpdir(), dir, bin_dir, check_tmpdir(), check_tmpdir(), dir, bin_dir,
+             dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
+    check_int(system(cmd), 0, "a pooled prior, two shards on it and a merge");
     snprintf(b, sizeof b, "%s/merged/catalog.json", check_tmpdir());
-    check_true(same_file(a, b), "merged shards give the catalogue of a single run");
+    check_true(check_same_file(a, b), "merged shards give the catalogue of a single run");
     return check_summary();
 }

@@ -153,26 +153,11 @@ static int same_value(const char *csv, const cJSON *v)
     return 0;
 }
 
-static char *slurp(const char *path)
-{
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
-        return NULL;
-    fseek(fp, 0, SEEK_END);
-    long n = ftell(fp);
-    rewind(fp);
-    char *b = malloc((size_t)n + 1);
-    if (b)
-        b[fread(b, 1, (size_t)n, fp)] = '\0';
-    fclose(fp);
-    return b;
-}
-
 static void compare_files(const char *dir)
 {
     char p[1200];
     snprintf(p, sizeof p, "%s/catalog.json", dir);
-    char *jt = slurp(p);
+    char *jt = check_slurp(p, NULL);
     cJSON *root = jt ? cJSON_Parse(jt) : NULL;
     free(jt);
     snprintf(p, sizeof p, "%s/catalog.csv", dir);
@@ -275,7 +260,7 @@ static void test_catalog(void)
     check_int(lam_catalog_write(&c, dir, NULL), LAM_OK, "write the catalogue");
     compare_files(dir);
     snprintf(path, sizeof path, "%s/goto.csv", dir);
-    char *g = slurp(path);
+    char *g = check_slurp(path, NULL);
     check_true(g && !strncmp(g, "rank,image,region,label,probability,area_um2,stage_x_um,stage_y_um",
                              66), "goto.csv header in the stage's unit");
     free(g);

@@ -349,31 +349,17 @@ static int xml_well_formed(const char *t)
     return depth == 0 && roots == 1;
 }
 
-static char *slurp(const char *path)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return NULL;
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    rewind(f);
-    char *b = malloc((size_t)n + 1);
-    if (b)
-        b[fread(b, 1, (size_t)n, f)] = '\0';
-    fclose(f);
-    return b;
-}
-
 static void test_svg(void)
 {
     check_true(!xml_well_formed("<svg><g></svg></g>"), "the XML checker rejects crossed tags");
     double grid[5] = {280, 283, 285, 287, 290}, chi[5] = {30, 8, 2, 9, 31};
     lam_oxide_plot_image im[2] = {{"a.png", 284.5, 1.2, 1, 3}, {"b<&>.png", NAN, NAN, 0, 0}};
-    lam_oxide_plot p = {grid, chi, 5, 285, 10, 285.2, 0.8, 1, NULL, 0, NAN, im, 2};
+    lam_oxide_plot p = {grid, chi, 5, 285, 10, 285.2, 0.8, 283.6, 286.8, "pass", NULL, 0, NAN,
+                        im, 2};
     char path[1200];
     snprintf(path, sizeof path, "%s/oxide.svg", check_tmpdir());
     check_int(lam_plot_oxide(&p, path, NULL), LAM_OK, "oxide plot written");
-    char *t = slurp(path);
+    char *t = check_slurp(path, NULL);
     check_true(t && xml_well_formed(t), "oxide.svg is well-formed XML (a file name with & and <)");
     free(t);
     lam_canvas cv;

@@ -27,6 +27,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include "lamina/error.h"
+#include "lamina/warnings.h"
 #include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/infer.h"
@@ -78,6 +79,7 @@ typedef struct lam_analysis {
     char file[1024];
     size_t width, height, channels;
     lam_transfer transfer;
+    int transfer_from_file;         /* the curve came from the file's colour metadata */
     int bit_depth;
     double um_per_px;               /* 0 unknown */
     size_t clipped_pixels;
@@ -88,6 +90,8 @@ typedef struct lam_analysis {
     lam_thickness_result *thickness; /* count entries for a continuous crystal (hBN), else NULL */
     lam_est_region *measured;       /* count entries: the regions' measurements */
     lam_oxide_result oxide;
+    double file_step[3];            /* a lossy file's colour step per channel, contrast
+                                     * units (one JPEG DC quantisation step); 0 lossless */
     lam_estimate *estimate;         /* the fit (owned); its image 0 is this one */
     lam_prediction ladder;          /* observed-scale ladder at the estimate, N = 0..40 */
     size_t max_layers;
@@ -102,6 +106,7 @@ typedef struct lam_analysis {
     char setup_hash[32];            /* of the setup and options, set by the caller */
     int prior_pooled;               /* the shared prior came from a pooled run */
     size_t prior_images;
+    lam_warnings warnings;          /* what makes the answers doubtful (lamina/warnings.h) */
 } lam_analysis;
 
 lam_analysis_options lam_analysis_options_default(void);
@@ -119,23 +124,7 @@ void lam_shared_prior_from(const lam_estimate *e, lam_shared_prior *out);
 /* ... and applied to a new estimate. */
 void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e);
 
-/* The oxide audit's profile: -2 ln L(d) on a grid, summed over images
- * (joint) and per image (per_image[j * n + g], may be NULL), each image's
- * shared parameters held at its fit. */
-lam_status lam_oxide_joint_profile(const lam_analysis *const *analyses, size_t images,
-                                   const lam_setup *setup, const double *grid, size_t n,
-                                   double *joint, double *per_image, lam_error *err);
-
-/* Absolute oxide from the substrate's colour: each image's fitted substrate
- * level at its centre over a bare-Si reference image's level (same lamp,
- * objective and exposure), against the model's R_c(SiO2 d on Si) / R_c(Si).
- * 'stability' is the assumed relative repeatability of lamp and exposure
- * between the two images (e.g. 0.01). chi2 over the grid, summed over images. */
-lam_status lam_reference_level(const char *path, const lam_load_options *load, double level[3],
-                               lam_error *err);
-lam_status lam_oxide_absolute_profile(const lam_analysis *const *analyses, size_t images,
-                                      const double reference_level[3], const lam_setup *setup,
-                                      double stability, const double *grid, size_t n,
-                                      double *chi2, lam_error *err);
+/* The oxide audit over analyses (profiles, combination, verdict) is in
+ * lamina/oxide.h. */
 
 #endif

@@ -38,7 +38,8 @@ typedef struct lam_catalog_image {
     int oxide_fitted;
     const lam_position *pos;  /* borrowed from the positions; NULL if none */
     size_t regions, candidates;
-    char warnings[1024];      /* ';'-separated, e.g. "not in the positions file" */
+    char warnings[2048];      /* ';'-separated: the analysis' and the catalogue's */
+    char own_warnings[256];   /* the catalogue's alone, e.g. "not in the positions file" */
 } lam_catalog_image;
 
 typedef struct lam_catalog_entry {
@@ -96,6 +97,14 @@ void lam_catalog_set_target(lam_catalog *c, double lo_nm, double hi_nm);
  * positions gets the warning "not in the positions file". */
 lam_status lam_catalog_add(lam_catalog *c, const struct cJSON *analysis, const char *image_path,
                            const lam_position *pos, lam_error *err);
+
+/* Add every "lamina-analysis/1" STEM.json of a results folder, in name
+ * order (catalog*.json, oxide.json and pool.json are not results), with
+ * positions when given (may be NULL); c->results is set to dir. *images
+ * (may be NULL) is incremented per result added. LAM_EIO when the folder
+ * cannot be read; lam_catalog_add's errors with the file named. */
+lam_status lam_catalog_add_folder(lam_catalog *c, const char *dir, const lam_positions *pos,
+                                  size_t *images, lam_error *err);
 
 /* Rank, resolve the stage origin and chip coordinates, and mark the same
  * flake seen in overlapping tiles (same label, and the centroid of one lies

@@ -34,6 +34,12 @@ void lam_chipmap_layout(const lam_catalog *c, double width, lam_chipmap_view *v)
 /* Page coordinates of a chip point (um). */
 void lam_chipmap_point(const lam_chipmap_view *v, const double chip_um[2], double page[2]);
 
+/* Where catalogue entry i is marked on the map: its page point and the
+ * dot's radius (grows with the area, 4 to 11). 0 for an entry that is not
+ * marked (not a candidate, or no chip position). */
+int lam_chipmap_mark(const lam_chipmap_view *v, const lam_catalog *c, size_t i, double page[2],
+                     double *radius);
+
 /* The four corners of image k on the page (false when it has no position). */
 int lam_chipmap_tile(const lam_catalog *c, const lam_chipmap_view *v, size_t k, double xy[4][2]);
 

@@ -56,9 +56,11 @@ lam_status lam_canvas_open_buffer(lam_canvas *c, uint32_t *pixels, size_t width,
 lam_status lam_canvas_finish(lam_canvas *c, lam_error *err);
 void lam_canvas_abort(lam_canvas *c);
 
-/* Release the font and glyph caches of Pango, fontconfig and cairo (call
- * once at exit, after every drawing thread has ended), so leak checkers
- * see only real leaks. */
+/* Release Pango's default font map (call once at exit, after every
+ * drawing thread has ended) and, when the environment has
+ * LAMINA_RELEASE_FONT_CACHES=1 (make asan, make valgrind), also the font
+ * and glyph caches of fontconfig and cairo, so leak checkers see only real
+ * leaks. */
 void lam_draw_shutdown(void);
 
 /* Colours as 0xRRGGBB. */
@@ -86,6 +88,8 @@ typedef struct lam_text_style {
     double angle_deg;       /* counter-clockwise rotation about (x, y) */
 } lam_text_style;
 
+/* Draw Pango markup (escape plain text with lam_draw_escape) at (x, y),
+ * anchored by st->ax, st->ay (0 left/top, 0.5 centre, 1 right/bottom). */
 void lam_draw_text(cairo_t *cr, double x, double y, const lam_text_style *st,
                    const char *markup);
 /* Logical width and height of the text at that style. */
@@ -107,6 +111,7 @@ typedef struct lam_axis {
     int hide_ticks;          /* frame and title only */
 } lam_axis;
 
+/* The canvas coordinate of data value v (linear between p0 and p1). */
 double lam_axis_map(const lam_axis *a, double v);
 
 /* "Nice" tick values (1, 2, 5 x 10^k steps) covering [lo, hi] with about

@@ -95,9 +95,15 @@ typedef struct lam_est_image {
                                     * the rest, sqrt(sigma^2 - this^2), is common to every
                                     * image the shared parameters describe */
     double log_posterior;          /* this image's share at the optimum */
+    double data_loglik;            /* ... without its oxide prior: how well its regions fit */
+    double unmodelled_share;       /* of its informing regions, the mean responsibility of
+                                    * the unmodelled hypothesis at the optimum */
     size_t regions_used, confident;
     double grid_best, grid_scale;  /* the starting grid's best score and its contrast scale */
+    double grid_oxide;             /* ... and its oxide */
+    double grid_factor[LAM_MAX_CHANNELS]; /* ... and its per-channel contrast factors */
     double alt_oxide[3], alt_scale[3], alt_score[3]; /* other grid maxima (NAN when none) */
+    double alt_factor[3][LAM_MAX_CHANNELS];
 } lam_est_image;
 
 typedef struct lam_estimate_options {
@@ -127,7 +133,23 @@ typedef struct lam_estimate {
     double cov[LAM_NU_COUNT][LAM_NU_COUNT];
     double *cross;                 /* images x nfree: cov(shared_k, oxide_j) */
     lam_estimate_options opt;
+    /* The posterior can have a second mode that the data hardly tell from
+     * the first (a response half as strong with twice the layers, another
+     * interference order). When its log posterior is within
+     * LAM_RIVAL_MARGIN of the best, 'rival' is a full fitted estimate at
+     * that mode (owned) with weight rival_weight = 1 / (1 + e^-d), d the
+     * difference of the log posteriors (the best has 1 - rival_weight);
+     * NULL otherwise. log_evidence (Laplace: log posterior + half the log
+     * determinant of the covariance) is reported, not used: at a
+     * parameter's bound its volume term is unreliable. */
+    double log_evidence;
+    struct lam_estimate *rival;
+    double rival_weight;
 } lam_estimate;
+
+/* Second modes whose log evidence is this far below the best are dropped
+ * (e^-8: one in 3000). */
+#define LAM_RIVAL_MARGIN 8.0
 
 lam_estimate_options lam_estimate_options_default(void);
 

@@ -93,6 +93,10 @@ typedef struct lam_image {
                                  * or "set by the user (gamma 2.2)" */
     double um_per_px_file;      /* pixel size at the sample from the file (TIFF
                                  * XResolution in inch or cm units), 0 when absent */
+    double jpeg_dc_step[3];     /* JPEG: what one quantisation step of each
+                                 * component's block mean moves R, G, B by, at most, in
+                                 * code values (0-255), from the file's tables; 0 for
+                                 * lossless files */
 } lam_image;
 
 typedef struct lam_load_options {
@@ -110,6 +114,7 @@ lam_load_options lam_load_options_default(void);
  * 3 channels, linear, file_colour "none". */
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err);
 
+/* Release an image; img may be NULL. */
 void lam_image_free(lam_image *img);
 
 /* Guess a file's kind from its first bytes (magic numbers, not the name);

@@ -116,6 +116,14 @@ void lam_region_measure(const lam_region_stats *r, const double noise[3], double
  * interval: the posterior median and 95 % interval, 'constrained' (and the
  * flag "doped") when ordinary doping (|E_F| <= 0.5 eV) is excluded at
  * 97.5 %, otherwise the 95 % upper limit. */
+/* Mix a region's posterior with its posterior under a rival mode of the
+ * fit (lam_estimate.rival) of weight w: p = (1 - w) p + w p_rival, and
+ * label it again from the mixture (the flags of geometry and doping stay;
+ * the fit-test flag follows the mixture's most probable hypothesis). The
+ * model contrast and its sigma stay those of o's mode. */
+void lam_infer_mix(lam_region_result *o, const lam_region_result *rival, double w,
+                   const lam_infer_options *opt);
+
 void lam_infer_region(const lam_estimate *e, const lam_est_view *view,
                       const lam_fermi_table *fermi, const lam_est_region *region,
                       const lam_region_stats *stats, const lam_infer_options *opt,

@@ -31,6 +31,8 @@
 #include "lamina/error.h"
 #include "lamina/raster.h"
 
+struct lam_setup;
+
 #define LAM_LABEL_MAX_LAYERS 40
 
 typedef enum lam_label_kind { LAM_LABEL_POLYGON, LAM_LABEL_POINT } lam_label_kind;
@@ -60,6 +62,16 @@ void lam_labels_clear(lam_labels *l);
  * codes are read as stored, not as light). Errors name the file. */
 lam_status lam_labels_load_map(const char *path, uint8_t **map, size_t *width, size_t *height,
                                lam_error *err);
+
+/* The label map of one image from 'labels': a layer-map PNG
+ * (lam_labels_load_map) or, for a name ending in .json, a lamina-labels/1
+ * file rasterised at the image's size (points take the region of the
+ * image's segmentation with 'setup' that contains them:
+ * lam_calib_labels_from_json of lamina/calibrate.h). *map is malloc'd.
+ * Errors name the label file or the image. */
+lam_status lam_labels_map_for_image(const char *labels, const char *image,
+                                    const struct lam_setup *setup, uint8_t **map, size_t *width,
+                                    size_t *height, lam_error *err);
 
 /* Write a polygon label's layer count into every pixel it covers of an
  * 8-bit width x height map (a point label writes nothing). */

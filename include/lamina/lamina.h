@@ -12,6 +12,7 @@
 #define LAMINA_LAMINA_H
 
 #include "lamina/analyze.h"
+#include "lamina/batch.h"
 #include "lamina/calibrate.h"
 #include "lamina/catalog.h"
 #include "lamina/chipmap.h"
@@ -26,6 +27,7 @@
 #include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/infer.h"
+#include "lamina/inputs.h"
 #include "lamina/jpeg.h"
 #include "lamina/jsonfile.h"
 #include "lamina/labels.h"
@@ -34,6 +36,7 @@
 #include "lamina/names.h"
 #include "lamina/nksource.h"
 #include "lamina/outfile.h"
+#include "lamina/oxide.h"
 #include "lamina/parallel.h"
 #include "lamina/planmap.h"
 #include "lamina/plot.h"
@@ -47,10 +50,13 @@
 #include "lamina/setup.h"
 #include "lamina/stage.h"
 #include "lamina/substrate.h"
+#include "lamina/summary.h"
 #include "lamina/textfile.h"
 #include "lamina/thickness.h"
 #include "lamina/tmm.h"
 #include "lamina/transfer.h"
 #include "lamina/version.h"
+#include "lamina/warnings.h"
+#include "lamina/watch.h"
 
 #endif

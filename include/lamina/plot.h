@@ -23,8 +23,9 @@ typedef struct lam_oxide_plot {
     const double *grid_nm, *chi2; /* the joint chi2 profile, n points */
     size_t n;
     double nominal_nm, tolerance_nm;
-    double estimate_nm, sigma_nm; /* combined; NAN when no region was usable */
-    int pass;                     /* -1 unknown, 0 fail, 1 pass */
+    double estimate_nm, sigma_nm; /* combined; NAN when no image fitted its oxide */
+    double lo95_nm, hi95_nm;      /* the combined 95 % interval the verdict used */
+    const char *verdict;          /* "pass", "fail", "undecided" or "no data" */
     const double *alternatives_nm; /* other interference orders */
     size_t n_alternatives;
     double absolute_nm;           /* from a bare-Si reference, NAN if none */
@@ -34,7 +35,8 @@ typedef struct lam_oxide_plot {
 
 /* Two panels: the joint profile over the whole grid with the tolerance
  * band, nominal, estimate and other orders; below it each image's
- * estimate with its 1-sigma bar, zoomed around the nominal value. */
+ * estimate with its 1-sigma bar and the combined 95 % interval with the
+ * verdict, zoomed around the nominal value. */
 lam_status lam_plot_oxide(const lam_oxide_plot *p, const char *path, lam_error *err);
 
 #endif

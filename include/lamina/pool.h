@@ -53,9 +53,17 @@ lam_status lam_pool_add(lam_pool *p, const lam_analysis *a, lam_error *err);
 size_t lam_pool_images(const lam_pool *p);
 size_t lam_pool_informative(const lam_pool *p);
 
+/* Will the kept images be analysed again with the pooled prior (a
+ * batch's sample)? Then lam_pool_fit leaves each one's share out. Off by
+ * default (at the microscope the next image is a new one). */
+void lam_pool_analyse_again(lam_pool *p, int on);
+
 /* Fit the kept images jointly and return the shared parameters' posterior
- * as a prior (out->set = 0 when no image informs the fit: then analyse
- * with the setup's own priors). */
+ * as a prior (out->set = 0 when no image informs the fit: then analyse with
+ * the setup's own priors). With lam_pool_analyse_again on, its standard
+ * deviations are widened by sqrt(n / (n - 1)) for n informing images, so
+ * that an image analysed again does not count its own regions twice, and
+ * fewer than two informing images give no prior. */
 lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err);
 
 /* Indices of n evenly spread samples of 'total' items (the first, the last

@@ -21,8 +21,11 @@
 
 struct cJSON;
 
+/* The analysis as a lamina-analysis/1 tree (the caller deletes it); NULL
+ * when out of memory. */
 struct cJSON *lam_report_json(const lam_analysis *a);
 
+/* lam_report_json written to path, atomically. */
 lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_error *err);
 
 /* Write an already built JSON tree (e.g. from lam_report_json), newline-ended. */
@@ -43,6 +46,8 @@ typedef struct lam_annotation_box {
     unsigned region;
     double x, y, w, h;
 } lam_annotation_box;
+
+/* The layout above for analysis a. */
 size_t lam_report_annotation_layout(lam_analysis *a, lam_annotation_box *out, size_t max);
 
 /* Value of a region in the layer map. */

@@ -24,6 +24,8 @@ typedef struct lam_run_report_options {
     double refresh_s;    /* > 0: the page reloads itself (a live session) */
 } lam_run_report_options;
 
+/* report.html of a finished catalogue into dir (relative links to the
+ * results and crops/ beside it), atomically; opt may be NULL. */
 lam_status lam_run_report_write(const lam_catalog *c, const char *dir,
                                 const lam_run_report_options *opt, lam_error *err);
 

@@ -38,6 +38,9 @@ typedef struct lam_segment_options {
     double reject_chi2;          /* unmodelled above this squared distance (25) */
     size_t min_region_px;        /* smaller regions are dropped (12) */
     size_t threads;              /* worker threads for the pixel passes (1) */
+    double file_step[3];         /* the file's own colour steps in contrast units per
+                                  * channel (one JPEG DC quantisation step at the
+                                  * substrate's level); 0 for lossless files (0) */
     /* lam_segment_uniform: flakes brighter than the substrate (contrast
      * C < 0: hBN, thick TMDs) carry more noise in contrast units - shot
      * noise grows as sqrt(b), flat-field residuals as b, b = 1 - C: with
@@ -92,9 +95,14 @@ lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *lad
  * some channel) belong to no region; the other pixels join 4-neighbours
  * whose contrast differs by less than 4.5 times the measured neighbour
  * noise in every channel; the connected sets are regions, and those at
- * zero contrast (within 0.3 |c1|, 0.003 or 4 x the substrate's own
- * low-frequency scatter 'scatter', in every channel) the bare substrate. Layer counts are then decided per region (lamina/infer.h),
- * so a flake is one region however the model's ladder is off. */
+ * zero contrast (within 0.3 max_c |c1_c|, 0.003 or 4 x the substrate's own
+ * low-frequency scatter 'scatter', in every channel) the bare substrate.
+ * A lossy file's own colour steps (opt->file_step: flat areas of a JPEG
+ * move by whole DC quantisation steps from block to block) neither split a
+ * region nor make a patch of substrate a region: regions within one step
+ * merge, and the substrate tolerance is at least 1.5 steps. Layer counts
+ * are then decided per region (lamina/infer.h), so a flake is one region
+ * however the model's ladder is off. */
 lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const double *c1,
                                const double noise[3], const double scatter[3],
                                const lam_segment_options *opt, lam_segmentation *seg,

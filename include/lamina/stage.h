@@ -50,7 +50,9 @@ typedef struct lam_positions {
     char path[1024];                 /* the file, for messages */
 } lam_positions;
 
+/* Read a positions file (see above); errors name the file and line. */
 lam_status lam_positions_load(const char *path, lam_positions *out, lam_error *err);
+/* Release what lam_positions_load filled; p may be zeroed. */
 void lam_positions_clear(lam_positions *p);
 
 /* The position of an image, matched by base name; NULL when absent. */
@@ -68,6 +70,7 @@ typedef struct lam_stage {
     int resolved;
 } lam_stage;
 
+/* Axes right,down, units from the positions file, no rotation, no origin. */
 lam_stage lam_stage_default(void);
 
 /* Set one key ("axes", "units", "rotation", "origin") from its text;

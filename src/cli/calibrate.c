@@ -1,42 +1,18 @@
 /* cli/calibrate.c - `lamina calibrate`: fit a setup profile from labelled
  * images (or, with --self, from the images alone). */
 #include "cli.h"
+#include "options.h"
 #include "setup_opts.h"
 #include "lamina/calibrate.h"
+#include "lamina/summary.h"
 #include "lamina/labels.h"
 
-#include <getopt.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <cjson/cJSON.h>
 
 #define MAX_LABELS 32
-
-static void calibrate_help(FILE *out)
-{
-    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
-          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
-          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
-          "wavelength shift and contrast gain, and each image's oxide so that the\n"
-          "model reproduces the measured contrast of regions of known layer count (one\n"
-          "Raman-confirmed flake is enough to start). Values the labels do not\n"
-          "constrain are reported as such and keep their prior. LABELS.png uses the layer-map coding (0\n"
-          "substrate, N layers, 254/255 ignored), one per image, in the same order;\n"
-          "or LABELS.json (lamina-labels/1): polygons or points with layer counts, a\n"
-          "point taking the whole segmented region around it.\n"
-          "--self fits without labels, the layer counts left latent (marginalised):\n"
-          "use several images with several layer counts.\n\n"
-          "  --setup FILE     start values (default: calib/default-setup.json)\n"
-          "  --oxide NM       starting oxide\n"
-          "  --known-oxide D1,D2,...  oxides measured elsewhere, in image order ('-' = fit);\n"
-          "                   fix at least one when the camera is unknown: channel centres\n"
-          "                   and oxide are nearly degenerate\n"
-          "  --known-na X     the illumination NA, when known (it correlates with the centres)\n"
-          "  -o FILE          write the fitted lamina-setup/1 profile (default calibrated.json)\n"
-          "  --quiet\n",
-          out);
-}
 
 typedef struct calib_args {
     cli_setup_opts so;
@@ -46,70 +22,85 @@ typedef struct calib_args {
     double known[LAM_CALIB_MAX_IMAGES], known_na;
 } calib_args;
 
-static int parse_known_oxide(calib_args *A, const char *arg)
+static int parse_known_oxide(const char *command, const char *arg, void *target)
 {
+    calib_args *A = target;
     /* comma-separated, in image order; '-' leaves one free */
     char *save = NULL, *tok, buf[1024];
     snprintf(buf, sizeof buf, "%s", arg);
     for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
         if (A->nk == LAM_CALIB_MAX_IMAGES)
-            return cli_usage_error("calibrate", "--known-oxide: too many values");
+            return cli_usage_error(command, "--known-oxide: too many values"), -1;
         if (!strcmp(tok, "-")) {
             A->known[A->nk++] = NAN;
             continue;
         }
-        if (cli_parse_double("calibrate", "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
-            return CLI_EUSAGE;
+        if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
+            return -1;
         A->nk++;
     }
     return 0;
 }
 
+static int add_labels(const char *command, const char *arg, void *target)
+{
+    calib_args *A = target;
+    if (A->nl == MAX_LABELS)
+        return cli_usage_error(command, "at most %d label files", MAX_LABELS), -1;
+    A->labels[A->nl++] = arg;
+    return 0;
+}
+
+#define CALIBRATE_OPTIONS(A)                                                                    \
+    {                                                                                           \
+        {"labels", 0, CLI_CALL, (A), 0, 0, add_labels, "FILE",                                  \
+         "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in "      \
+         "order"},                                                                              \
+        {"self", 0, CLI_FLAG, &(A)->self, 0, 0, NULL, NULL,                                     \
+         "no labels: the layer counts left latent"},                                            \
+        {"known-oxide", 0, CLI_CALL, (A), 0, 0, parse_known_oxide, "D1,D2,...",                 \
+         "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the "   \
+         "camera is unknown: channel centres\nand oxide are nearly degenerate"},               \
+        {"known-na", 0, CLI_NUMBER, &(A)->known_na, 0, 0.95, NULL, "X",                         \
+         "the illumination NA, when known (it correlates with the centres)"},                   \
+        {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE",                                \
+         "write the fitted lamina-setup/1 profile (default calibrated.json)"},                  \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+    }
+
+static void calibrate_help(FILE *out)
+{
+    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
+          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
+          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
+          "wavelength shift and contrast gain, and each image's oxide so that the\n"
+          "model reproduces the measured contrast of regions of known layer count (one\n"
+          "Raman-confirmed flake is enough to start). Values the labels do not\n"
+          "constrain are reported as such and keep their prior. LABELS.png uses the\n"
+          "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
+          "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
+          "layer counts, a point taking the whole segmented region around it.\n"
+          "--self fits without labels, the layer counts left latent (marginalised):\n"
+          "use several images with several layer counts.\n\n" CLI_SETUP_HELP, out);
+    calib_args A;
+    cli_option t[] = CALIBRATE_OPTIONS(&A);
+    cli_options_help(out, t);
+}
+
 static int parse_args(int argc, char **argv, calib_args *A)
 {
-    static const struct option longopts[] = {CLI_SETUP_LONGOPTS,
-                                             {"labels", required_argument, 0, 'l'},
-                                             {"self", no_argument, 0, 'S'},
-                                             {"output", required_argument, 0, 'o'},
-                                             {"quiet", no_argument, 0, 'q'},
-                                             {"known-oxide", required_argument, 0, 'k'},
-                                             {"known-na", required_argument, 0, 'N'},
-                                             {0, 0, 0, 0}};
     memset(A, 0, sizeof *A);
     cli_setup_opts_init(&A->so);
     A->out = "calibrated.json";
     A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
         A->known[i] = NAN;
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "o:", longopts, NULL)) != -1) {
-        switch (c) {
-        case 'l':
-            if (A->nl == MAX_LABELS)
-                return cli_usage_error("calibrate", "at most %d label files", MAX_LABELS);
-            A->labels[A->nl++] = optarg;
-            break;
-        case 'S': A->self = 1; break;
-        case 'o': A->out = optarg; break;
-        case 'q': cli_quiet = 1; break;
-        case 'N':
-            if (cli_parse_double("calibrate", "--known-na", optarg, 0, 0.95, &A->known_na))
-                return CLI_EUSAGE;
-            break;
-        case 'k':
-            if ((r = parse_known_oxide(A, optarg)))
-                return r;
-            break;
-        default:
-            if ((r = cli_setup_option(&A->so, "calibrate", c, optarg)) > 0)
-                break;
-            if (r < 0)
-                return CLI_EUSAGE;
-            return cli_usage_error("calibrate", "unknown or incomplete option '%s'", argv[optind - 1]);
-        }
-    }
+    cli_option t[] = CALIBRATE_OPTIONS(A);
+    cli_command_options co = {"calibrate", t, &A->so, NULL, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
+    if (rc)
+        return rc;
     size_t ni = (size_t)(argc - optind);
     if (!ni)
         return cli_usage_error("calibrate", "no image given");
@@ -122,41 +113,6 @@ static int parse_args(int argc, char **argv, calib_args *A)
     if (A->nk > ni)
         return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A->nk, ni);
     return 0;
-}
-
-/* The label map of one image from a layer-map PNG or a label JSON file. */
-static int read_labels(const char *labels, const char *img, const lam_setup *s, uint8_t **codes,
-                       size_t *w, size_t *h)
-{
-    lam_error err;
-    lam_error_clear(&err);
-    size_t len = strlen(labels);
-    if (len > 5 && !strcmp(labels + len - 5, ".json")) {
-        /* polygons or points: the image's size decides the map's */
-        lam_image *im = NULL;
-        if (lam_image_load(img, NULL, &im, &err))
-            return cli_report(&err, img);
-        *w = im->width, *h = im->height;
-        lam_image_free(im);
-        if (!(*codes = malloc(*w * *h)))
-            return CLI_EFILE;
-        if (lam_calib_labels_from_json(labels, img, s, *w, *h, *codes, &err))
-            return cli_report(&err, labels);
-        return 0;
-    }
-    lam_load_options lo = lam_load_options_default();
-    lo.transfer.kind = LAM_TRANSFER_LINEAR; /* a label map holds codes, not light */
-    lam_image *lab = NULL;
-    if (lam_image_load(labels, &lo, &lab, &err))
-        return cli_report(&err, labels);
-    *w = lab->width, *h = lab->height;
-    if ((*codes = malloc(*w * *h)))
-        for (size_t k = 0; k < *w * *h; k++) {
-            double v = lab->plane[0][k] * (lab->bit_depth == 16 ? 65535.0 : 255.0);
-            (*codes)[k] = (uint8_t)(v > 255 ? 255 : lround(v));
-        }
-    lam_image_free(lab);
-    return *codes ? 0 : CLI_EFILE;
 }
 
 static int measure_all(const calib_args *A, char **images, size_t ni, const lam_setup *s,
@@ -172,46 +128,16 @@ static int measure_all(const calib_args *A, char **images, size_t ni, const lam_
         }
         uint8_t *codes = NULL;
         size_t w = 0, h = 0;
-        int rc = read_labels(A->labels[i], images[i], s, &codes, &w, &h);
-        if (!rc && lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
+        int rc = CLI_OK;
+        if (lam_labels_map_for_image(A->labels[i], images[i], s, &codes, &w, &h, &err))
+            rc = cli_report(&err, A->labels[i]);
+        else if (lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
             rc = cli_report(&err, images[i]);
         free(codes);
         if (rc)
             return rc;
     }
     return 0;
-}
-
-static void print_value(const lam_calib_value *v, const char *unit)
-{
-    if (!v->fitted)
-        printf("  %-18s %10.4g %s (given)\n", v->name, v->value, unit);
-    else if (v->constrained)
-        printf("  %-18s %10.4g +- %.2g %s\n", v->name, v->value, v->sigma, unit);
-    else
-        printf("  %-18s not constrained by these labels (prior %.4g +- %.2g %s kept)\n", v->name,
-               v->value, v->prior_sd, unit);
-}
-
-static void print_result(const lam_calib_result *r, char **images)
-{
-    printf("%zu labelled region(s) in %zu image(s); chi2 %.1f for %.0f values; model floor "
-           "%.1f %%\n", r->labelled, r->images, r->chi2, r->dof, 100 * r->floor_rel);
-    for (int k = 0; k < LAM_NU_COUNT; k++) {
-        const lam_calib_value *v = &r->shared[k];
-        if (v->name && (v->fitted || k == LAM_NU_NA) &&
-            (k < LAM_NU_SHIFT || (size_t)((k - LAM_NU_SHIFT) % LAM_MAX_CHANNELS) < r->channels))
-            print_value(v, (k >= LAM_NU_SHIFT && k < LAM_NU_WIDTH) ? "nm" : "");
-    }
-    for (size_t j = 0; j < r->images; j++) {
-        printf("  oxide of %s:", images[j]);
-        print_value(&r->oxide[j], "nm");
-    }
-    for (size_t k = 0; k < r->residuals; k++) {
-        const lam_calib_residual *x = &r->residual[k];
-        printf("  label %zu (%dL) in %s: chi2 %.2f (p %.2g)\n", k + 1, x->layers, images[x->image],
-               x->chi2, x->pvalue);
-    }
 }
 
 static cJSON *calibration_block(const lam_calib_result *r, int self, char **images)
@@ -269,10 +195,11 @@ static int run_calibrate(int argc, char **argv)
         if (lam_setup_save(&res.setup, A.out, cal, &err))
             rc = cli_report(&err, A.out);
         cJSON_Delete(cal);
-        if (!rc && !cli_quiet) {
-            print_result(&res, images);
-            printf("wrote %s\n", A.out);
-        }
+        char *text = NULL;
+        if (!rc && !cli_quiet &&
+            !lam_summary_calibration(&res, (const char *const *)images, &text, &err))
+            printf("%swrote %s\n", text, A.out);
+        free(text);
     }
     lam_calib_result_clear(&res);
     lam_calib_set_clear(set);

@@ -72,7 +72,8 @@ static int run_catalog(int argc, char **argv)
     int rc = CLI_OK;
     size_t images = 0;
     for (int i = optind; i < argc && rc == CLI_OK; i++)
-        rc = cli_results_load(&cat, argv[i], positions ? &pos : NULL, &images);
+        if (lam_catalog_add_folder(&cat, argv[i], positions ? &pos : NULL, &images, &err))
+            rc = cli_report(&err, argv[i]);
     if (rc == CLI_OK && cli_make_dir(out_dir))
         rc = CLI_EFILE;
     if (rc == CLI_OK && (rc = cli_run_outputs(&cat, out_dir, 0)) == CLI_OK && !cli_quiet)

@@ -1,7 +1,7 @@
 /* cli/map.c - `lamina map RESULTS_DIR`: the chip map of a results folder
  * (tiles at their stage positions, candidates marked). */
 #include "cli.h"
-#include "inputs.h"
+#include "lamina/jsonfile.h"
 #include "run_opts.h"
 #include "lamina/chipmap.h"
 #include "lamina/draw.h"
@@ -30,7 +30,8 @@ static int recorded_stage(const char *dir, char *positions, size_t n, lam_stage 
 {
     char p[4096];
     snprintf(p, sizeof p, "%s/catalog.json", dir);
-    cJSON *root = cli_read_json(p);
+    cJSON *root = NULL;
+    lam_json_load(p, 64u << 20, "catalogue", NULL, &root, NULL);
     const cJSON *o = cJSON_GetObjectItemCaseSensitive(root, "stage");
     const cJSON *pos = cJSON_GetObjectItemCaseSensitive(o, "positions");
     int found = cJSON_IsString(pos);
@@ -100,7 +101,7 @@ static int run_map(int argc, char **argv)
     lam_catalog cat;
     lam_catalog_init(&cat);
     lam_catalog_set_stage(&cat, &pos, &stage);
-    int rc = cli_results_load(&cat, dir, &pos, NULL);
+    int rc = lam_catalog_add_folder(&cat, dir, &pos, NULL, &err) ? cli_report(&err, dir) : CLI_OK;
     if (rc == CLI_OK && lam_catalog_finish(&cat, &err))
         rc = cli_report(&err, NULL);
     else if (rc == CLI_OK && lam_chipmap_write(&cat, out, &err))

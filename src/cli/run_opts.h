@@ -1,7 +1,7 @@
 /* cli/run_opts.h - what the commands that end in a catalogue share
- * (analyze, catalog merge, watch, map): the stage options, reading a
- * results folder, and writing the run outputs (catalogue, goto.csv,
- * crops, contact sheet, report.html) with the warnings printed. */
+ * (analyze, catalog merge, watch, map): the stage options and writing the
+ * run outputs (catalogue, goto.csv, crops, contact sheet, report.html)
+ * with the warnings printed. */
 #ifndef LAMINA_CLI_RUN_OPTS_H
 #define LAMINA_CLI_RUN_OPTS_H
 
@@ -26,13 +26,11 @@ enum { CLI_OPT_STAGE_AXES = 1101, CLI_OPT_STAGE_UNITS, CLI_OPT_STAGE_ROTATION, C
 /* --target-thickness A-B (nm, 0 < A <= B <= 1000) into out; 0, or the
  * usage exit code after printing the error. */
 int cli_parse_target(const char *command, const char *arg, double out[2]);
+/* The same as an option table's call (cli/options.h): 0, or -1. */
+int cli_option_target(const char *command, const char *arg, void *target);
 
 /* 1 if 'code' was a stage option, 0 if not, -1 after a usage error. */
 int cli_stage_option(lam_stage *s, const char *command, int code, const char *arg);
-
-/* Add every lamina-analysis/1 STEM.json of a results folder (sorted by
- * name) to the catalogue, with positions when given. Returns an exit code. */
-int cli_results_load(lam_catalog *cat, const char *dir, const lam_positions *pos, size_t *images);
 
 /* Finish the catalogue, write catalog.csv/json, goto.csv (with positions),
  * crops, contact-sheet.png and report.html into out_dir, and print the

@@ -2,7 +2,10 @@
 #include "setup_opts.h"
 #include "cli.h"
 
+#include "lamina/batch.h"
+
 #include <math.h>
+#include <stdio.h>
 
 void cli_setup_opts_init(cli_setup_opts *o)
 {
@@ -61,4 +64,14 @@ int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s)
     if (o->um_per_px > 0 && lam_setup_set_um_per_px(s, o->um_per_px, &err))
         return bad_option(command, "--um-per-px", s, &err);
     return 0;
+}
+
+void cli_setup_hash(const cli_setup_opts *o, const lam_analysis_options *opt, char *out,
+                    size_t n)
+{
+    char extra[160], h[LAM_BATCH_HASH_LEN];
+    snprintf(extra, sizeof extra, "ox=%.6g na=%.6g mu=%.6g um=%.6g", o->oxide_nm, o->na,
+             o->fermi_ev, o->um_per_px);
+    lam_batch_setup_hash(o->setup_file, opt, extra, h);
+    snprintf(out, n, "%s", h);
 }

@@ -4,6 +4,7 @@
 #ifndef LAMINA_CLI_SETUP_OPTS_H
 #define LAMINA_CLI_SETUP_OPTS_H
 
+#include "lamina/analyze.h"
 #include "lamina/setup.h"
 
 typedef struct cli_setup_opts {
@@ -29,6 +30,14 @@ enum {
         {"fermi", required_argument, 0, CLI_OPT_FERMI},                                     \
         {"um-per-px", required_argument, 0, CLI_OPT_UM_PER_PX}
 
+#define CLI_SETUP_HELP                                                                     \
+    "  --setup FILE          setup profile (lamina-setup/1)\n"                             \
+    "  --oxide NM, --na X, --fermi EV, --um-per-px X, --material NAME\n"                   \
+    "                        override the setup's nominal SiO2 thickness, illumination\n" \
+    "                        NA, Fermi level, pixel size and flake material (graphene,\n"   \
+    "                        hBN, MoS2, WS2, WSe2; a source after a slash: MoS2/Song)\n"    \
+    "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
+
 /* Handle a shared option: 1 if it was one, 0 if not, -1 after printing a
  * usage error for a bad value (exit 2). */
 int cli_setup_option(cli_setup_opts *o, const char *command, int code, const char *arg);
@@ -40,5 +49,10 @@ void cli_setup_opts_init(cli_setup_opts *o);
  * Prints any error and returns the exit code (0 on success; 2 for an
  * option value a setter refuses). */
 int cli_setup_build(const char *command, const cli_setup_opts *o, lam_setup *s);
+
+/* The setup hash of lamina/batch.h: the setup file's bytes, the analysis
+ * options and the values given on the command line. */
+void cli_setup_hash(const cli_setup_opts *o, const lam_analysis_options *opt, char *out,
+                    size_t n);
 
 #endif

@@ -1,58 +1,23 @@
-/* cli/watch.c - `lamina watch DIR`: live analysis at the microscope. Each
- * image the camera finishes writing into DIR (inotify: closed after
- * writing, or renamed into DIR) is analysed once, one line per image goes
- * to stdout, and the catalogue and run report are rewritten after every
- * image. Ctrl-C (SIGINT, SIGTERM) lets the current image finish and stops;
- * every output is atomic, so the folder is consistent at any moment. */
+/* cli/watch.c - `lamina watch DIR`: live analysis at the microscope
+ * (lamina/watch.h). Parses the options, sets the Ctrl-C handler and prints
+ * one line per image as the session reports it. */
 #include "cli.h"
-#include "inputs.h"
+#include "options.h"
 #include "run_opts.h"
 #include "setup_opts.h"
-#include "lamina/analyze.h"
+#include "lamina/batch.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
-#include "lamina/report.h"
+#include "lamina/summary.h"
+#include "lamina/watch.h"
 
-#include <dirent.h>
-#include <errno.h>
-#include <getopt.h>
 #include <math.h>
-#include <poll.h>
 #include <signal.h>
 #include <stdlib.h>
 #include <string.h>
-#include <strings.h>
 #include <time.h>
 #include <unistd.h>
-#include <sys/inotify.h>
 #include <cjson/cJSON.h>
-
-typedef struct watch_session watch_session;
-
-/* The per-image step: analyse one complete image and write its result
- * files; returns the analysis as written (lamina-analysis/1). The session
- * carries 'prior' from image to image: the place for pooled estimates
- * (oxide, noise, floors) that a later image can start from. */
-typedef lam_status (*watch_analyse_fn)(watch_session *w, const char *path, const char *hash,
-                                       cJSON **result, lam_error *err);
-
-struct watch_session {
-    const lam_setup *setup;
-    lam_analysis_options opt;
-    const char *dir, *out_dir;
-    char setup_hash[32];
-    void *prior;                /* carried from image to image; NULL for now */
-    watch_analyse_fn analyse;
-    const lam_positions *pos;   /* NULL without --positions */
-    lam_positions pos_store;
-    const char *pos_path;
-    lam_stage stage;
-    char **paths;               /* images of this session, in the order seen */
-    cJSON **results;
-    size_t n, cap;
-    size_t analysed, max_images;
-    double idle_exit_s;
-};
 
 static volatile sig_atomic_t stop_requested;
 
@@ -70,423 +35,154 @@ static void on_stop(int sig)
     (void)w;
 }
 
+
+/* The session's events: a line per image on stdout, the rest on stderr. */
+static void on_event(const lam_watch_event *ev, void *user)
+{
+    (void)user;
+    char name[48];
+    switch (ev->kind) {
+    case LAM_WATCH_FAILED:
+        cli_report(ev->err, ev->path);
+        break;
+    case LAM_WATCH_POOLED:
+        if (cli_quiet)
+            break;
+        if (ev->first)
+            fprintf(stderr, "lamina: response, NA and camera pooled from %zu image%s\n",
+                    ev->prior->images, ev->prior->images == 1 ? "" : "s");
+        else
+            fprintf(stderr, "lamina: pooled response, NA and camera moved (%s by %.1f sigma), "
+                            "from %zu images\n", lam_batch_nuisance_name(ev->which, name,
+                                                                         sizeof name),
+                    ev->moved, ev->prior->images);
+        break;
+    default: {
+        char when[16], *text = NULL;
+        time_t now = time(NULL);
+        strftime(when, sizeof when, "%H:%M:%S", localtime(&now));
+        if (!cli_quiet && !lam_summary_image_line(ev->path, ev->result,
+                                                  ev->kind == LAM_WATCH_KEPT, &text, NULL))
+            printf("%s  %s\n", when, text);
+        free(text);
+        fflush(stdout);
+    }
+    }
+}
+
+/* What the table fills besides lam_watch_options. */
+typedef struct watch_args {
+    lam_watch_options w;
+    cli_setup_opts so;
+    const char *out;
+    long K, threads, max_images;
+    double area;
+} watch_args;
+
+#define WATCH_OPTIONS(A)                                                                        \
+    {                                                                                           \
+        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
+        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
+         "regions below A um^2 (or px) are 'small'"},                                           \
+        {"no-oxide-fit", 0, CLI_UNSET, &(A)->w.analysis.fit_oxide, 0, 0, NULL, NULL,            \
+         "keep the nominal oxide"},                                                             \
+        {"oxide-tolerance", 0, CLI_NUMBER, &(A)->w.analysis.oxide_tolerance_nm, 0, 500, NULL,   \
+         "NM", "pass/fail of the oxide check (default 10)"},                                   \
+        {"positions", 0, CLI_TEXT, &(A)->w.positions, 0, 0, NULL, "FILE.csv",                   \
+         "stage readings of the tiles (re-read for every image,\nso the stage software may "   \
+         "append to it)"},                                                                      \
+        {"out", 0, CLI_TEXT, &(A)->out, 0, 0, NULL, "DIR", "outputs (default DIR/lamina-out)"}, \
+        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
+         "worker threads per image (default: all cores)"},                                      \
+        {"max-images", 0, CLI_INTEGER, &(A)->max_images, 1, 1e8, NULL, "N",                     \
+         "stop after N images analysed"},                                                       \
+        {"idle-exit", 0, CLI_NUMBER, &(A)->w.idle_exit_s, 0.1, 1e7, NULL, "SEC",                \
+         "stop when no image arrived for SEC seconds"},                                         \
+        {"no-pool", 0, CLI_UNSET, &(A)->w.pool, 0, 0, NULL, NULL,                               \
+         "analyse each image on its own (default: the response, NA\nand camera are pooled "    \
+         "from image to image, pool.json)"},                                                    \
+        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},                    \
+        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+    }
+
 static void watch_help(FILE *out)
 {
+    watch_args A;
+    cli_option t[] = WATCH_OPTIONS(&A);
     fputs("Usage: lamina watch [OPTIONS] DIR\n"
           "Analyse each image the camera writes into DIR as soon as it is complete (closed\n"
           "after writing, or moved into DIR), print one line per image, and keep\n"
           "catalog.json, catalog.csv, goto.csv and report.html in --out up to date.\n"
           "Images already in DIR are analysed first (skipped when their results exist for\n"
           "the same content and setup). Ctrl-C finishes the current image and stops.\n\n"
-          "  --setup FILE, --oxide NM, --stack FILE, --material NAME, --um-per-px X,\n"
-          "  --na X, --fermi EV    the setup, as for analyze\n"
-          "  --max-layers K, --min-area A, --no-oxide-fit, --oxide-tolerance NM\n"
-          "  --positions FILE.csv  stage readings of the tiles (re-read for every image,\n"
-          "                        so the stage software may append to it)\n"
-          CLI_STAGE_HELP
-          "  --out DIR             outputs (default DIR/lamina-out)\n"
-          "  --threads N           worker threads per image (default: all cores)\n"
-          "  --max-images N        stop after N images analysed\n"
-          "  --idle-exit SEC       stop when no image arrived for SEC seconds\n"
-          "  --quiet\n",
-          out);
+          CLI_SETUP_HELP, out);
+    cli_options_help(out, t);
+    fputs(CLI_STAGE_HELP, out);
 }
 
-static int is_image_name(const char *name)
+static int parse_watch_options(int argc, char **argv, watch_args *A)
 {
-    static const char *const ext[] = {".png", ".jpg", ".jpeg", ".tif", ".tiff"};
-    static const char *const ours[] = {".annotated.png", ".layers.png", ".truth.png",
-                                       "contact-sheet.png"};
-    size_t n = strlen(name);
-    if (!n || name[0] == '.')
-        return 0; /* hidden: editors' and cameras' temporaries */
-    for (size_t k = 0; k < sizeof ours / sizeof ours[0]; k++) {
-        size_t m = strlen(ours[k]);
-        if (n >= m && !strcmp(name + n - m, ours[k]))
-            return 0;
-    }
-    for (size_t k = 0; k < sizeof ext / sizeof ext[0]; k++) {
-        size_t m = strlen(ext[k]);
-        if (n > m && !strcasecmp(name + n - m, ext[k]))
-            return 1;
-    }
-    return 0;
-}
-
-/* Results on disk for the same content and setup (a restarted session). */
-static cJSON *existing_result(const watch_session *w, const char *stem, const char *hash)
-{
-    char p[4096];
-    snprintf(p, sizeof p, "%s/%s.json", w->out_dir, stem);
-    cJSON *root = cli_read_json(p);
-    const cJSON *img = cJSON_GetObjectItemCaseSensitive(root, "image");
-    const cJSON *h = cJSON_GetObjectItemCaseSensitive(img, "content_hash");
-    const cJSON *sh = cJSON_GetObjectItemCaseSensitive(root, "setup_hash");
-    if (cJSON_IsString(h) && cJSON_IsString(sh) && !strcmp(h->valuestring, hash) &&
-        !strcmp(sh->valuestring, w->setup_hash))
-        return root;
-    cJSON_Delete(root);
-    return NULL;
-}
-
-/* The default per-image step: lam_analyze and the four result files, the
- * JSON last (its presence means the image's results are complete). */
-static lam_status watch_analyse_image(watch_session *w, const char *path, const char *hash,
-                                      cJSON **result, lam_error *err)
-{
-    lam_analysis *a = NULL;
-    lam_status st = lam_analyze(path, w->setup, &w->opt, &a, err);
-    if (st)
-        return st;
-    snprintf(a->content_hash, sizeof a->content_hash, "%s", hash);
-    snprintf(a->setup_hash, sizeof a->setup_hash, "%s", w->setup_hash);
-    char stem[512], p[4096];
-    cli_stem_of(path, stem, sizeof stem);
-    snprintf(p, sizeof p, "%s/%s.annotated.png", w->out_dir, stem);
-    if (!(st = lam_report_write_annotated(a, p, err))) {
-        snprintf(p, sizeof p, "%s/%s.layers.png", w->out_dir, stem);
-        st = lam_report_write_layers(a, p, err);
-    }
-    if (!st) {
-        snprintf(p, sizeof p, "%s/%s.contrast.svg", w->out_dir, stem);
-        st = lam_report_write_svg(a, p, err);
-    }
-    cJSON *json = st ? NULL : lam_report_json(a);
-    if (!st && !json)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
-    if (!st) {
-        snprintf(p, sizeof p, "%s/%s.json", w->out_dir, stem);
-        st = lam_report_save_json(json, p, err);
-    }
-    lam_analysis_free(a);
-    if (st) {
-        cJSON_Delete(json);
-        return st;
-    }
-    *result = json;
-    return LAM_OK;
-}
-
-/* Keep the result of 'path' (replacing an older one of the same image). */
-static int remember(watch_session *w, const char *path, cJSON *result)
-{
-    for (size_t k = 0; k < w->n; k++)
-        if (!strcmp(w->paths[k], path)) {
-            cJSON_Delete(w->results[k]);
-            w->results[k] = result;
-            return 0;
-        }
-    if (w->n == w->cap) {
-        size_t nc = w->cap ? 2 * w->cap : 64;
-        char **np = realloc(w->paths, nc * sizeof *np);
-        if (np)
-            w->paths = np;
-        cJSON **nr = np ? realloc(w->results, nc * sizeof *nr) : NULL;
-        if (!nr)
-            return -1;
-        w->results = nr;
-        w->cap = nc;
-    }
-    if (!(w->paths[w->n] = strdup(path)))
-        return -1;
-    w->results[w->n++] = result;
-    return 0;
-}
-
-/* Rebuild the catalogue from every result of the session and rewrite the
- * catalogue files and the report (which reloads itself every 10 s). */
-static int refresh_outputs(watch_session *w)
-{
-    lam_catalog cat;
-    lam_catalog_init(&cat);
-    lam_catalog_set_stage(&cat, w->pos, &w->stage);
-    snprintf(cat.results, sizeof cat.results, "%s", w->out_dir);
-    lam_error err;
-    lam_error_clear(&err);
-    int rc = CLI_OK;
-    for (size_t k = 0; k < w->n && rc == CLI_OK; k++)
-        if (lam_catalog_add(&cat, w->results[k], w->paths[k],
-                            lam_positions_find(w->pos, w->paths[k]), &err))
-            rc = cli_report(&err, w->paths[k]);
-    int quiet = cli_quiet;
-    cli_quiet = 1; /* the image's line already said what is wrong with it */
-    if (rc == CLI_OK)
-        rc = cli_run_outputs(&cat, w->out_dir, 10);
-    cli_quiet = quiet;
-    lam_catalog_clear(&cat);
-    return rc;
-}
-
-/* The line for one image: time, name, oxide, counts, the best candidate. */
-static void print_line(const watch_session *w, const char *path, const cJSON *r, int resumed)
-{
-    char when[16];
-    time_t now = time(NULL);
-    strftime(when, sizeof when, "%H:%M:%S", localtime(&now));
-    const cJSON *ox = cJSON_GetObjectItemCaseSensitive(
-        cJSON_GetObjectItemCaseSensitive(r, "substrate"), "oxide_nm");
-    const cJSON *est = cJSON_GetObjectItemCaseSensitive(ox, "estimate");
-    const cJSON *regs = cJSON_GetObjectItemCaseSensitive(r, "regions"), *g;
-    size_t by[5] = {0};
-    const cJSON *best = NULL;
-    double best_area = 0;
-    cJSON_ArrayForEach(g, regs) {
-        const cJSON *L = cJSON_GetObjectItemCaseSensitive(g, "layers"), *f;
-        int small = 0;
-        cJSON_ArrayForEach(f, cJSON_GetObjectItemCaseSensitive(g, "flags"))
-            small |= cJSON_IsString(f) && !strcmp(f->valuestring, "small");
-        if (!cJSON_IsNumber(L) || small)
-            continue;
-        by[L->valueint < 4 ? L->valueint : 4]++;
-        double area = cJSON_GetNumberValue(cJSON_GetObjectItemCaseSensitive(g, "area_px"));
-        if (L->valueint == 1 && (!best || area > best_area))
-            best = g, best_area = area;
-    }
-    const char *base = strrchr(path, '/');
-    printf("%s  %-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", when,
-           base ? base + 1 : path, cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2],
-           by[3], by[4], resumed ? "  (results kept)" : "");
-    if (best) {
-        const cJSON *a = cJSON_GetObjectItemCaseSensitive(best, "area_um2");
-        printf("  largest 1L: #%d", cJSON_GetObjectItemCaseSensitive(best, "id")->valueint);
-        if (cJSON_IsNumber(a))
-            printf(" %.0f um2", a->valuedouble);
-    }
-    (void)w;
-    putchar('\n');
-    fflush(stdout);
-}
-
-/* Analyse one image (or take its existing results) and refresh. */
-static int process(watch_session *w, const char *name)
-{
-    char path[4096], hash[32], stem[512];
-    snprintf(path, sizeof path, "%s/%s", w->dir, name);
-    lam_error err;
-    lam_error_clear(&err);
-    if (cli_hash_file(path, hash, sizeof hash))
-        return CLI_OK; /* gone again (a camera's temporary): nothing to do */
-    cli_stem_of(path, stem, sizeof stem);
-    lam_positions fresh;
-    if (w->pos_path && lam_positions_load(w->pos_path, &fresh, &err) == LAM_OK) {
-        lam_positions_clear(&w->pos_store); /* the stage software may have added tiles */
-        w->pos_store = fresh;
-    }
-    lam_error_clear(&err);
-    cJSON *result = existing_result(w, stem, hash);
-    int resumed = result != NULL;
-    if (!result && w->analyse(w, path, hash, &result, &err)) {
-        cli_report(&err, path); /* a damaged file: say so, keep watching */
-        return CLI_OK;
-    }
-    if (remember(w, path, result)) {
-        cJSON_Delete(result);
-        fprintf(stderr, "lamina: out of memory\n");
-        return CLI_EFILE;
-    }
-    w->analysed += !resumed;
-    if (!cli_quiet)
-        print_line(w, path, result, resumed);
-    return refresh_outputs(w);
-}
-
-static int cmp_str(const void *a, const void *b)
-{
-    return strcmp(*(char *const *)a, *(char *const *)b);
-}
-
-/* Images already in the folder, in name order. */
-static int process_existing(watch_session *w)
-{
-    DIR *d = opendir(w->dir);
-    if (!d) {
-        fprintf(stderr, "lamina: %s: cannot read the folder: %s\n", w->dir, strerror(errno));
-        return CLI_EFILE;
-    }
-    cli_inputs names = {0, 0, NULL};
-    struct dirent *e;
-    while ((e = readdir(d))) {
-        if (!is_image_name(e->d_name))
-            continue;
-        if (names.count == names.cap) {
-            size_t nc = names.cap ? 2 * names.cap : 64;
-            char **np = realloc(names.paths, nc * sizeof *np);
-            if (!np)
-                break;
-            names.paths = np, names.cap = nc;
-        }
-        if ((names.paths[names.count] = strdup(e->d_name)))
-            names.count++;
-    }
-    closedir(d);
-    if (names.count) /* qsort must not see a NULL array, even empty */
-        qsort(names.paths, names.count, sizeof *names.paths, cmp_str);
-    int rc = CLI_OK;
-    for (size_t k = 0; k < names.count && rc == CLI_OK && !stop_requested; k++)
-        if (!w->max_images || w->analysed < w->max_images)
-            rc = process(w, names.paths[k]);
-    cli_inputs_free(&names);
-    return rc;
-}
-
-/* Wait for images; returns when stopped, idle or after --max-images. */
-static int watch_loop(watch_session *w, int fd)
-{
-    char buf[16384] __attribute__((aligned(__alignof__(struct inotify_event))));
-    double idle = 0;
-    int rc = CLI_OK;
-    while (rc == CLI_OK && !stop_requested && (!w->max_images || w->analysed < w->max_images)) {
-        struct pollfd p = {fd, POLLIN, 0};
-        int r = poll(&p, 1, 250);
-        if (r < 0 && errno == EINTR)
-            continue;
-        if (r <= 0) {
-            idle += 0.25;
-            if (w->idle_exit_s > 0 && idle >= w->idle_exit_s)
-                break;
-            continue;
-        }
-        ssize_t len = read(fd, buf, sizeof buf);
-        if (len <= 0)
-            continue;
-        idle = 0;
-        for (char *q = buf; q < buf + len && rc == CLI_OK;) {
-            const struct inotify_event *ev = (const struct inotify_event *)(void *)q;
-            if (ev->len && is_image_name(ev->name) &&
-                (!w->max_images || w->analysed < w->max_images))
-                rc = process(w, ev->name);
-            q += sizeof *ev + ev->len;
-        }
-    }
-    return rc;
-}
-
-static int parse_watch_options(int argc, char **argv, watch_session *w, cli_setup_opts *so,
-                               const char **out)
-{
-    static const struct option longopts[] = {
-        CLI_SETUP_LONGOPTS, CLI_STAGE_LONGOPTS,
-        {"max-layers", required_argument, 0, 'K'}, {"min-area", required_argument, 0, 'a'},
-        {"oxide-tolerance", required_argument, 0, 't'}, {"no-oxide-fit", no_argument, 0, 'N'},
-        {"out", required_argument, 0, 'O'},        {"threads", required_argument, 0, 'j'},
-        {"positions", required_argument, 0, 'P'},  {"max-images", required_argument, 0, 'M'},
-        {"idle-exit", required_argument, 0, 'I'},  {"quiet", no_argument, 0, 'q'},
-        {0, 0, 0, 0}};
-    long K = 6, threads = (long)lam_cpu_count(), maxi = 0;
-    double area = -1;
-    int c, r;
-    optind = 1;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
-        r = 0;
-        switch (c) {
-        case 'K': r = cli_parse_long("watch", "--max-layers", optarg, 1, 20, &K); break;
-        case 'a': r = cli_parse_double("watch", "--min-area", optarg, 0, 1e9, &area); break;
-        case 't':
-            r = cli_parse_double("watch", "--oxide-tolerance", optarg, 0, 500,
-                                 &w->opt.oxide_tolerance_nm);
-            break;
-        case 'N': w->opt.fit_oxide = 0; break;
-        case 'O': *out = optarg; break;
-        case 'j': r = cli_parse_long("watch", "--threads", optarg, 1, 256, &threads); break;
-        case 'P': w->pos_path = optarg; break;
-        case 'M': r = cli_parse_long("watch", "--max-images", optarg, 1, 100000000, &maxi); break;
-        case 'I':
-            r = cli_parse_double("watch", "--idle-exit", optarg, 0.1, 1e7, &w->idle_exit_s);
-            break;
-        case 'q': cli_quiet = 1; break;
-        default:
-            r = cli_stage_option(&w->stage, "watch", c, optarg);
-            if (r == 0)
-                r = cli_setup_option(so, "watch", c, optarg);
-            if (r == 0)
-                return cli_usage_error("watch", "unknown or incomplete option '%s'",
-                                       argv[optind - 1]);
-            r = r < 0 ? -1 : 0;
-        }
-        if (r)
-            return CLI_EUSAGE;
-    }
+    cli_option t[] = WATCH_OPTIONS(A);
+    cli_command_options co = {"watch", t, &A->so, &A->w.stage, NULL};
+    int rc = cli_options_parse(&co, argc, argv, 1);
+    if (rc)
+        return rc;
     if (optind + 1 != argc)
         return cli_usage_error("watch", "expected one folder to watch");
-    w->dir = argv[optind];
-    w->opt.max_layers = (size_t)K;
-    w->opt.threads = (size_t)threads;
-    w->max_images = (size_t)maxi;
-    if (area >= 0)
-        w->opt.min_area_um2 = w->opt.min_area_px = area;
-    return CLI_OK;
-}
-
-static int start_watch(watch_session *w, const cli_setup_opts *so, lam_setup *s, int *fd)
-{
-    int rc;
-    if ((rc = cli_setup_build("watch", so, s)))
-        return rc;
-    w->setup = s;
-    if (w->pos_path && !(s->um_per_px > 0))
-        return cli_usage_error("watch", "--positions needs the pixel size: give --um-per-px or "
-                                        "um_per_px in the setup");
-    lam_error err;
-    lam_error_clear(&err);
-    if (w->pos_path && lam_positions_load(w->pos_path, &w->pos_store, &err))
-        return cli_report(&err, w->pos_path);
-    w->pos = w->pos_path ? &w->pos_store : NULL;
-    if (cli_make_dir(w->out_dir))
-        return CLI_EFILE;
-    cli_setup_hash(so->setup_file, &w->opt, so, w->setup_hash, sizeof w->setup_hash);
-    lam_parallel_set_default(w->opt.threads);
-    /* watch first, then look at what is there: nothing falls in between */
-    if ((*fd = inotify_init1(IN_CLOEXEC)) < 0 ||
-        inotify_add_watch(*fd, w->dir, IN_CLOSE_WRITE | IN_MOVED_TO) < 0) {
-        fprintf(stderr, "lamina: %s: cannot watch the folder: %s\n", w->dir, strerror(errno));
-        return CLI_EFILE;
-    }
+    A->w.dir = argv[optind];
+    A->w.analysis.max_layers = (size_t)A->K;
+    A->w.analysis.threads = (size_t)A->threads;
+    A->w.max_images = (size_t)A->max_images;
+    if (A->area >= 0)
+        A->w.analysis.min_area_um2 = A->w.analysis.min_area_px = A->area;
     return CLI_OK;
 }
 
 static int run_watch(int argc, char **argv)
 {
-    watch_session w;
-    memset(&w, 0, sizeof w);
-    w.opt = lam_analysis_options_default();
-    w.stage = lam_stage_default();
-    w.analyse = watch_analyse_image;
-    cli_setup_opts so;
-    cli_setup_opts_init(&so);
-    const char *out = NULL;
-    int rc = parse_watch_options(argc, argv, &w, &so, &out), fd = -1;
-    if (rc)
+    watch_args A = {.w = lam_watch_options_default(), .K = 6,
+                    .threads = (long)lam_cpu_count(), .area = -1};
+    cli_setup_opts_init(&A.so);
+    lam_watch_options w;
+    int rc = parse_watch_options(argc, argv, &A);
+    char out_default[4096], setup_hash[LAM_BATCH_HASH_LEN];
+    lam_setup s;
+    if (rc || (rc = cli_setup_build("watch", &A.so, &s)))
         return rc;
-    char out_default[4096];
+    w = A.w;
+    const char *out = A.out;
+    cli_setup_opts so = A.so;
     snprintf(out_default, sizeof out_default, "%s/lamina-out", w.dir);
     w.out_dir = out ? out : out_default;
-    lam_setup s;
-    memset(&s, 0, sizeof s);
+    if (w.positions && !(s.um_per_px > 0))
+        rc = cli_usage_error("watch", "--positions needs the pixel size: give --um-per-px or "
+                                      "um_per_px in the setup");
+    else if (cli_make_dir(w.out_dir))
+        rc = CLI_EFILE;
+    if (rc) {
+        lam_setup_clear(&s);
+        return rc;
+    }
+    cli_setup_hash(&so, &w.analysis, setup_hash, sizeof setup_hash);
+    lam_parallel_set_default(w.analysis.threads);
+    w.setup = &s;
+    w.setup_hash = setup_hash;
+    w.stop = &stop_requested;
+    w.on_event = on_event;
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_stop; /* no SA_RESTART: poll returns at once */
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
-    if (!(rc = start_watch(&w, &so, &s, &fd))) {
-        if (!cli_quiet)
-            fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w.dir,
-                    w.out_dir);
-        rc = process_existing(&w);
-        if (rc == CLI_OK)
-            rc = watch_loop(&w, fd);
-        if (!cli_quiet)
-            fprintf(stderr, "lamina: %zu images analysed; results in %s\n", w.analysed, w.out_dir);
-    }
-    if (fd >= 0)
-        close(fd);
-    for (size_t k = 0; k < w.n; k++) {
-        free(w.paths[k]);
-        cJSON_Delete(w.results[k]);
-    }
-    free(w.paths);
-    free(w.results);
-    lam_positions_clear(&w.pos_store);
+    if (!cli_quiet)
+        fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w.dir, w.out_dir);
+    size_t analysed = 0;
+    lam_error err;
+    lam_error_clear(&err);
+    if (lam_watch_run(&w, &analysed, &err))
+        rc = cli_report(&err, w.dir);
+    if (!cli_quiet)
+        fprintf(stderr, "lamina: %zu images analysed; results in %s\n", analysed, w.out_dir);
     lam_setup_clear(&s);
     return rc;
 }

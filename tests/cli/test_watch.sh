@@ -41,6 +41,12 @@ grep -q "HT285-A07-tile12.png" "$T/w.out" && grep -q "HT285-C11-tile07.png" "$T/
 for f in HT285-A07-tile12.json HT285-C11-tile07.json HT285-C11-tile07.annotated.png catalog.json catalog.csv report.html; do
     [ -s "$OUT/$f" ] && ok "watch wrote $f" || bad "watch wrote $f"
 done
+# the pool is carried: the second image starts from the first one's fit
+grep -q "pooled from 1 image" "$T/w.err" && ok "the pooled fit is carried from image to image" \
+    || bad "no pool line: $(cat "$T/w.err")"
+grep -q '"schema":[[:space:]]*"lamina-pool/1"' "$OUT/pool.json" && ok "watch keeps pool.json" || bad "pool.json"
+grep -q '"status":[[:space:]]*"fitted (prior pooled over the run)"' "$OUT/HT285-C11-tile07.json" "$OUT/HT285-A07-tile12.json" \
+    && ok "the second image used the pooled prior" || bad "second image not pooled"
 grep -q "HT285-A07-tile12" "$OUT/report.html" && grep -q "HT285-C11-tile07" "$OUT/report.html" \
     && ok "the report lists both images" || bad "report.html lacks an image"
 grep -q '"path":[[:space:]]*".*notes' "$OUT"/*.json && bad "notes.txt analysed" || ok "other files ignored"

@@ -2,6 +2,8 @@
  * score the layer counts, the oxide and the Fermi levels. */
 #include "robust.h"
 #include "lamina/analyze.h"
+#include "lamina/pool.h"
+#include "lamina/calibrate.h"
 #include "lamina/setup.h"
 
 #include <math.h>
@@ -95,33 +97,77 @@ static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tal
     t->oxide_covered += err <= 2 * a->oxide.sigma;
 }
 
-static int analyse(const char *img, const char *setup_path, const synth_scene *sc,
-                   robust_tally *t, FILE *log)
+static int load_setup(const char *path, lam_setup *s)
 {
-    lam_setup s;
     lam_error err;
     lam_error_clear(&err);
-    lam_setup_default(&s);
-    if (lam_setup_load(setup_path, &s, &err)) {
-        fprintf(stderr, "robust: %s: %s\n", setup_path, err.message);
+    lam_setup_default(s);
+    if (lam_setup_load(path, s, &err)) {
+        fprintf(stderr, "robust: %s: %s\n", path, err.message);
         return -1;
     }
+    return 0;
+}
+
+/* Analyse one image (with a pooled prior when given), score it, and hand
+ * the analysis to the pool when one is given. */
+static int analyse(const char *img, const lam_setup *s, const lam_shared_prior *prior,
+                   const synth_scene *sc, robust_tally *t, FILE *log, lam_pool *pool)
+{
+    char name[1200];
+    snprintf(name, sizeof name, "%s [%s%s]", img,
+             lam_setup_is_default(s, "camera") ? "uninformed" : "informed",
+             prior ? " pooled" : "");
+    lam_error err;
+    lam_error_clear(&err);
     lam_analysis_options opt = lam_analysis_options_default();
     opt.threads = 1;
+    opt.shared_prior = prior;
     lam_analysis *a = NULL;
     double t0 = now_s();
     int rc = 0;
-    if (lam_analyze(img, &s, &opt, &a, &err)) {
+    if (lam_analyze(img, s, &opt, &a, &err)) {
         fprintf(stderr, "robust: %s: %s\n", img, err.message);
         rc = -1;
     } else {
         t->seconds += now_s() - t0;
         t->images++;
-        score_flakes(sc, a, t, log, img);
+        score_flakes(sc, a, t, log, name);
         score_oxide(sc, a, t);
+        if (pool && lam_pool_add(pool, a, &err)) {
+            fprintf(stderr, "robust: %s: %s\n", img, err.message);
+            rc = -1;
+        }
     }
     lam_analysis_free(a);
-    lam_setup_clear(&s);
+    return rc;
+}
+
+/* Render one tile: physics from physics_seed, flakes from layout_seed; the
+ * image, its setup (written when 'setup' is not NULL) and its truth. */
+static int render_tile(const robust_case *c, unsigned long long physics_seed,
+                       unsigned long long layout_seed, const char *dir, synth_scene *sc,
+                       char *img, size_t img_size, const char *setup)
+{
+    synth_image im;
+    if (synth_scene_make2(&c->cfg, physics_seed, layout_seed, sc)) {
+        fprintf(stderr, "robust: scene %llu: %s\n", layout_seed, synth_error());
+        return -1;
+    }
+    char stem[1024];
+    snprintf(stem, sizeof stem, "%s/s%llu-%llu-%d", dir, physics_seed, layout_seed, (int)c->fmt);
+    snprintf(img, img_size, "%s.%s", stem, synth_format_ext(c->fmt));
+    int rc = synth_render(sc, &im);
+    if (!rc) {
+        rc = synth_save(&im, c->fmt, c->quality, img) ||
+             (setup && synth_write_setup(sc, c->fmt, c->informed, setup)) ||
+             synth_write_truth(sc, stem);
+        synth_image_free(&im);
+    }
+    if (rc) {
+        fprintf(stderr, "robust: scene %llu: %s\n", layout_seed, synth_error());
+        synth_scene_free(sc);
+    }
     return rc;
 }
 
@@ -129,26 +175,61 @@ int robust_run(const robust_case *c, unsigned long long seed, const char *dir, r
                FILE *log)
 {
     synth_scene sc;
-    synth_image im;
-    if (synth_scene_make(&c->cfg, seed, &sc)) {
-        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
+    char img[1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/s%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    if (render_tile(c, seed, seed, dir, &sc, img, sizeof img, setup))
         return -1;
+    lam_setup s;
+    int rc = load_setup(c->pooled_setup ? c->pooled_setup : setup, &s);
+    if (!rc && c->oxide_known_nm > 0) { /* a measured oxide: its value and uncertainty */
+        lam_error err;
+        rc = lam_setup_set_oxide(&s, sc.phys.oxide_nm, &err) ? -1 : 0;
+        s.sigma.oxide_nm = c->oxide_known_nm;
     }
-    char stem[1024], img[1100], setup[1100];
-    snprintf(stem, sizeof stem, "%s/s%llu-%d", dir, seed, (int)c->fmt);
-    snprintf(img, sizeof img, "%s.%s", stem, synth_format_ext(c->fmt));
-    snprintf(setup, sizeof setup, "%s.setup.json", stem);
-    int rc = synth_render(&sc, &im);
-    if (!rc) {
-        rc = synth_save(&im, c->fmt, c->quality, img) ||
-             synth_write_setup(&sc, c->fmt, c->informed, setup) || synth_write_truth(&sc, stem);
-        synth_image_free(&im);
-    }
-    if (rc)
-        fprintf(stderr, "robust: scene %llu: %s\n", seed, synth_error());
-    else
-        rc = analyse(img, c->pooled_setup ? c->pooled_setup : setup, &sc, t, log);
+    if (!rc)
+        rc = analyse(img, &s, NULL, &sc, t, log, NULL);
+    lam_setup_clear(&s);
     synth_scene_free(&sc);
+    return rc;
+}
+
+int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                     robust_tally *alone, robust_tally *pooled, FILE *log)
+{
+    if (tiles < 1 || tiles > LAM_POOL_MAX)
+        return -1;
+    synth_scene sc[LAM_POOL_MAX];
+    char img[LAM_POOL_MAX][1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/b%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    int made = 0, rc = 0;
+    for (; made < tiles && !rc; made++)
+        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
+                         img[made], sizeof img[made], made ? NULL : setup);
+    if (rc)
+        made--;
+    lam_setup s;
+    lam_pool *pool = NULL;
+    lam_shared_prior prior;
+    lam_error err;
+    lam_error_clear(&err);
+    if (!rc && !(rc = load_setup(setup, &s))) {
+        lam_analysis_options opt = lam_analysis_options_default();
+        rc = lam_pool_alloc(&s, &opt, &pool, &err) ? -1 : 0;
+        if (!rc)
+            lam_pool_analyse_again(pool, 1);
+        for (int k = 0; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, pool);
+        if (!rc && lam_pool_fit(pool, &prior, &err)) {
+            fprintf(stderr, "robust: pool: %s\n", err.message);
+            rc = -1;
+        }
+        for (int k = 0; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, &prior, &sc[k], pooled, log, NULL);
+        lam_pool_free(pool);
+        lam_setup_clear(&s);
+    }
+    for (int k = 0; k < made; k++)
+        synth_scene_free(&sc[k]);
     return rc;
 }
 
@@ -194,4 +275,75 @@ void robust_print(FILE *f, const char *label, const robust_tally *t)
                 pct(t->fermi_covered, t->fermi_n), t->fermi_n, t->fermi_seen,
                 t->fermi_seen ? t->fermi_width_sum / (double)t->fermi_seen : NAN);
     fprintf(f, "  %.2f s/img\n", t->images ? t->seconds / (double)t->images : NAN);
+}
+
+/* The label map of one flake: its pixels carry its layer count, the rest
+ * is ignored (255). */
+static uint8_t *one_flake_labels(const synth_scene *sc, int obj)
+{
+    size_t n = (size_t)sc->width * (size_t)sc->height;
+    uint8_t *map = malloc(n);
+    for (size_t k = 0; map && k < n; k++)
+        map[k] = sc->owner[k] == obj ? (uint8_t)sc->obj[obj].layers : 255;
+    return map;
+}
+
+static int largest_monolayer(const synth_scene *sc)
+{
+    int best = -1;
+    for (int o = 0; o < sc->nobj; o++)
+        if (sc->obj[o].kind == SYNTH_OBJ_FLAKE && sc->obj[o].layers == 1 &&
+            (best < 0 || sc->obj[o].area_px > sc->obj[best].area_px))
+            best = o;
+    return best;
+}
+
+/* Calibrate the setup on one flake of the first tile; fills 'out'. */
+static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_setup *start,
+                              lam_calib_result *out)
+{
+    int obj = largest_monolayer(sc);
+    uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
+    lam_calib_set set;
+    lam_calib_set_init(&set);
+    lam_error err;
+    lam_error_clear(&err);
+    int rc = !map || lam_calib_measure_labels(&set, img, map, (size_t)sc->width,
+                                              (size_t)sc->height, start, &err) ||
+             lam_calibrate(start, &set, NULL, NAN, out, &err);
+    if (rc)
+        fprintf(stderr, "robust: calibration on %s: %s\n", img, err.message);
+    lam_calib_set_clear(&set);
+    free(map);
+    return rc ? -1 : 0;
+}
+
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                          robust_tally *alone, robust_tally *calibrated, FILE *log)
+{
+    if (tiles < 2 || tiles > LAM_POOL_MAX)
+        return -1;
+    synth_scene sc[LAM_POOL_MAX];
+    char img[LAM_POOL_MAX][1100], setup[1100];
+    snprintf(setup, sizeof setup, "%s/c%llu-%d.setup.json", dir, seed, (int)c->fmt);
+    int made = 0, rc = 0;
+    for (; made < tiles && !rc; made++)
+        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
+                         img[made], sizeof img[made], made ? NULL : setup);
+    if (rc)
+        made--;
+    lam_setup s;
+    lam_calib_result cal;
+    memset(&cal, 0, sizeof cal);
+    if (!rc && !(rc = load_setup(setup, &s))) {
+        rc = calibrate_on_flake(img[0], &sc[0], &s, &cal);
+        for (int k = 1; k < tiles && !rc; k++)
+            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, NULL) ||
+                 analyse(img[k], &cal.setup, NULL, &sc[k], calibrated, log, NULL);
+        lam_calib_result_clear(&cal);
+        lam_setup_clear(&s);
+    }
+    for (int k = 0; k < made; k++)
+        synth_scene_free(&sc[k]);
+    return rc;
 }

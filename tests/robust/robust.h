@@ -36,6 +36,7 @@ typedef struct robust_case {
     int quality;
     int informed;       /* 1: the setup gives camera, lamp, NA, encoding */
     const char *pooled_setup; /* not NULL: analyse with this setup instead */
+    double oxide_known_nm;    /* > 0: the setup gives the true oxide with this sd (measured) */
 } robust_case;
 
 /* Render scene 'seed' of a case into dir, analyse it, add to the tally.
@@ -43,6 +44,21 @@ typedef struct robust_case {
  * the scene could not be made or analysed (the message is printed). */
 int robust_run(const robust_case *c, unsigned long long seed, const char *dir, robust_tally *t,
                FILE *log);
+
+/* A chip scan: 'tiles' scenes sharing the physics of 'seed' (microscope,
+ * response, oxide) with their own flakes, one setup for all; each tile is
+ * analysed alone (tallied in 'alone') and again with the prior pooled from
+ * all of them (lamina/pool.h; tallied in 'pooled'). tiles <= LAM_POOL_MAX. */
+int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                     robust_tally *alone, robust_tally *pooled, FILE *log);
+
+/* One flake confirmed (Raman, AFM): the first of 'tiles' scenes sharing the
+ * physics of 'seed' has its largest monolayer labelled, the setup is
+ * calibrated on it (lamina/calibrate.h), and the other tiles are analysed
+ * with the setup as it was (tallied in 'alone') and as calibrated
+ * ('calibrated'). 2 <= tiles <= LAM_POOL_MAX. */
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                          robust_tally *alone, robust_tally *calibrated, FILE *log);
 
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);

@@ -1,7 +1,11 @@
 /* robust_main.c - build/tests/robust: the accuracy matrix of issue 9 on
  * the independent generator's images (`make accuracy`).
- *   robust [--scenes N] [--seed S] [--only informed|uninformed] [--log FILE]
- * prints one line per response x oxide x format x knowledge, and totals. */
+ *   robust [--scenes N] [--batch T] [--seed S] [--only informed|uninformed]
+ *          [--log FILE]
+ * One line per response x oxide x format x knowledge, then totals by
+ * response, oxide and format. --batch T: each scene is a chip scan of T
+ * tiles sharing one microscope, response and oxide, scored once with each
+ * tile analysed alone and once with the prior pooled over the scan. */
 #include "robust.h"
 #include "../check.h"
 #include "lamina/error.h"
@@ -18,78 +22,124 @@ static const double oxides[] = {90, 285, 300};
 static const struct { synth_format fmt; int q; const char *name; } formats[] = {
     {SYNTH_FMT_PNG, 0, "png"}, {SYNTH_FMT_JPEG, 85, "jpeg85"}, {SYNTH_FMT_BAYER_PNG, 0, "bayer"},
     {SYNTH_FMT_PNG16, 0, "png16"}};
+#define NR 5
+#define NO 3
+#define NF 4
+
+typedef struct options {
+    int scenes, batch, only;
+    unsigned long long seed;
+    FILE *log;
+} options;
+
+/* Tallies per knowledge (0 uninformed, 1 informed) and mode (0 alone,
+ * 1 pooled). */
+typedef struct tallies {
+    robust_tally total[2][2], resp[2][2][NR], ox[2][2][NO], fmt[2][2][NF];
+} tallies;
+
+static const char *label_of(int inf, int mode, int batch)
+{
+    static const char *names[2][2] = {{"uninformed", "uninformed pooled"},
+                                      {"informed", "informed pooled"}};
+    return batch ? names[inf][mode] : names[inf][0];
+}
+
+static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
+{
+    robust_case c;
+    synth_config_init(&c.cfg);
+    c.cfg.response = responses[r];
+    c.cfg.nominal_oxide_nm = oxides[x];
+    c.fmt = formats[f].fmt;
+    c.quality = formats[f].q;
+    c.informed = inf;
+    c.pooled_setup = NULL;
+        c.oxide_known_nm = 0;
+    robust_tally t[2];
+    memset(t, 0, sizeof t);
+    unsigned long long base = o->seed + (unsigned long long)(((r * NO + x) * NF + f) * 100);
+    for (int k = 0; k < o->scenes; k++) {
+        if (o->batch)
+            robust_run_batch(&c, base + (unsigned long long)k, o->batch, "build/tests/robust-out",
+                             &t[0], &t[1], o->log);
+        else
+            robust_run(&c, base + (unsigned long long)k, "build/tests/robust-out", &t[0], o->log);
+    }
+    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
+        char label[128];
+        snprintf(label, sizeof label, "%s %s %.0f %s", label_of(inf, m, o->batch),
+                 synth_response_name(responses[r]), oxides[x], formats[f].name);
+        robust_print(stdout, label, &t[m]);
+        robust_add(&T->total[inf][m], &t[m]);
+        robust_add(&T->resp[inf][m][r], &t[m]);
+        robust_add(&T->ox[inf][m][x], &t[m]);
+        robust_add(&T->fmt[inf][m][f], &t[m]);
+    }
+    fflush(stdout);
+}
+
+static void print_totals(const options *o, int inf, const tallies *T)
+{
+    char label[128];
+    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
+        const char *k = label_of(inf, m, o->batch);
+        for (int r = 0; r < NR; r++) {
+            snprintf(label, sizeof label, "%s response %s", k, synth_response_name(responses[r]));
+            robust_print(stdout, label, &T->resp[inf][m][r]);
+        }
+        for (int x = 0; x < NO; x++) {
+            snprintf(label, sizeof label, "%s oxide %.0f", k, oxides[x]);
+            robust_print(stdout, label, &T->ox[inf][m][x]);
+        }
+        for (int f = 0; f < NF; f++) {
+            snprintf(label, sizeof label, "%s format %s", k, formats[f].name);
+            robust_print(stdout, label, &T->fmt[inf][m][f]);
+        }
+    }
+    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
+        snprintf(label, sizeof label, "TOTAL %s", label_of(inf, m, o->batch));
+        robust_print(stdout, label, &T->total[inf][m]);
+    }
+}
 
 int main(int argc, char **argv)
 {
     lam_error_init_gsl();
-    int scenes = 2, only = -1;
-    unsigned long long seed = 1000;
-    FILE *log = NULL;
+    options o = {2, 0, -1, 1000, NULL};
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
-            scenes = atoi(argv[++i]);
+            o.scenes = atoi(argv[++i]);
+        else if (!strcmp(argv[i], "--batch") && i + 1 < argc)
+            o.batch = atoi(argv[++i]);
         else if (!strcmp(argv[i], "--seed") && i + 1 < argc)
-            seed = strtoull(argv[++i], NULL, 10);
+            o.seed = strtoull(argv[++i], NULL, 10);
         else if (!strcmp(argv[i], "--only") && i + 1 < argc)
-            only = !strcmp(argv[++i], "informed");
+            o.only = !strcmp(argv[++i], "informed");
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
-            log = fopen(argv[++i], "w");
+            o.log = fopen(argv[++i], "w");
+        else {
+            fprintf(stderr, "robust: unknown option %s\n", argv[i]);
+            return 2;
+        }
     }
-    const char *dir = "build/tests/robust-out";
     mkdir("build", 0755);
     mkdir("build/tests", 0755);
-    mkdir(dir, 0755);
-    robust_tally total[2], by_resp[2][5], by_ox[2][3], by_fmt[2][4];
-    memset(total, 0, sizeof total);
-    memset(by_resp, 0, sizeof by_resp);
-    memset(by_ox, 0, sizeof by_ox);
-    memset(by_fmt, 0, sizeof by_fmt);
+    mkdir("build/tests/robust-out", 0755);
+    tallies *T = calloc(1, sizeof *T);
+    if (!T)
+        return 1;
     for (int inf = 1; inf >= 0; inf--) {
-        if (only >= 0 && inf != only)
+        if (o.only >= 0 && inf != o.only)
             continue;
-        for (int r = 0; r < 5; r++)
-            for (int o = 0; o < 3; o++)
-                for (int f = 0; f < 4; f++) {
-                    robust_case c;
-                    synth_config_init(&c.cfg);
-                    c.cfg.response = responses[r];
-                    c.cfg.nominal_oxide_nm = oxides[o];
-                    c.fmt = formats[f].fmt;
-                    c.quality = formats[f].q;
-                    c.informed = inf;
-                    c.pooled_setup = NULL;
-                    robust_tally t;
-                    memset(&t, 0, sizeof t);
-                    for (int k = 0; k < scenes; k++)
-                        robust_run(&c, seed + (unsigned long long)(((r * 3 + o) * 4 + f) * 100 + k), dir,
-                                   &t, log);
-                    char label[96];
-                    snprintf(label, sizeof label, "%s %s %.0f %s", inf ? "informed" : "uninformed",
-                             synth_response_name(responses[r]), oxides[o], formats[f].name);
-                    robust_print(stdout, label, &t);
-                    fflush(stdout);
-                    robust_add(&total[inf], &t);
-                    robust_add(&by_resp[inf][r], &t);
-                    robust_add(&by_ox[inf][o], &t);
-                    robust_add(&by_fmt[inf][f], &t);
-                }
-        char label[96];
-        for (int r = 0; r < 5; r++) {
-            snprintf(label, sizeof label, "%s response %s", inf ? "informed" : "uninformed",
-                     synth_response_name(responses[r]));
-            robust_print(stdout, label, &by_resp[inf][r]);
-        }
-        for (int o = 0; o < 3; o++) {
-            snprintf(label, sizeof label, "%s oxide %.0f", inf ? "informed" : "uninformed", oxides[o]);
-            robust_print(stdout, label, &by_ox[inf][o]);
-        }
-        for (int f = 0; f < 4; f++) {
-            snprintf(label, sizeof label, "%s format %s", inf ? "informed" : "uninformed", formats[f].name);
-            robust_print(stdout, label, &by_fmt[inf][f]);
-        }
-        robust_print(stdout, inf ? "TOTAL informed" : "TOTAL uninformed", &total[inf]);
+        for (int r = 0; r < NR; r++)
+            for (int x = 0; x < NO; x++)
+                for (int f = 0; f < NF; f++)
+                    run_cell(&o, inf, r, x, f, T);
+        print_totals(&o, inf, T);
     }
-    if (log)
-        fclose(log);
+    free(T);
+    if (o.log)
+        fclose(o.log);
     return 0;
 }

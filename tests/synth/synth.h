@@ -239,6 +239,12 @@ typedef enum {
 
 void synth_config_init(synth_config *cfg);
 int synth_scene_make(const synth_config *cfg, uint64_t seed, synth_scene *out);
+/* The same with the physics (microscope, response, oxide, exposure) and the
+ * layout (flakes) drawn from separate seeds: the tiles of one chip scan
+ * share a physics seed. synth_scene_make(cfg, s, out) is
+ * synth_scene_make2(cfg, s, s, out). */
+int synth_scene_make2(const synth_config *cfg, uint64_t physics_seed, uint64_t layout_seed,
+                      synth_scene *out);
 void synth_scene_free(synth_scene *sc);
 int synth_render(const synth_scene *sc, synth_image *out);
 void synth_image_free(synth_image *im);

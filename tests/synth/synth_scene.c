@@ -167,15 +167,21 @@ static void cap_exposure(synth_scene *sc)
 
 int synth_scene_make(const synth_config *cfg, uint64_t seed, synth_scene *out)
 {
+    return synth_scene_make2(cfg, seed, seed, out);
+}
+
+int synth_scene_make2(const synth_config *cfg, uint64_t physics_seed, uint64_t layout_seed,
+                      synth_scene *out)
+{
     memset(out, 0, sizeof *out);
     if (check_config(cfg))
         return -1;
-    out->seed = seed;
+    out->seed = layout_seed;
     out->width = cfg->width ? cfg->width : 640;
     out->height = cfg->height ? cfg->height : 480;
     synth_rng rp, rl;
-    synth_rng_seed(&rp, seed ^ 0x5048595349435321ULL);   /* physics stream */
-    synth_rng_seed(&rl, seed ^ 0x4c41594f55543a29ULL);   /* layout stream */
+    synth_rng_seed(&rp, physics_seed ^ 0x5048595349435321ULL);   /* physics stream */
+    synth_rng_seed(&rl, layout_seed ^ 0x4c41594f55543a29ULL);    /* layout stream */
     synth_physics_draw(cfg, &rp, &out->phys);
     size_t n = (size_t)out->width * out->height;
     out->owner = malloc(n * sizeof *out->owner);

@@ -1,0 +1,19 @@
+/* analyze_internal.h - pieces of the per-image pipeline shared between
+ * analyze.c (the stages) and analyze_checks.c (the checks). Not public. */
+#ifndef LAMINA_ANALYZE_INTERNAL_H
+#define LAMINA_ANALYZE_INTERNAL_H
+
+#include "lamina/analyze.h"
+#include "lamina/image.h"
+#include "lamina/setup.h"
+
+/* The image's channels against the setup's camera: a grey image (one
+ * plane, or R = G = B everywhere) needs a one-channel camera and a colour
+ * image a colour camera; LAM_EINVAL says which and what to do. */
+lam_status lam__check_channels(const lam_image *img, const lam_setup *s, lam_error *err);
+
+/* The warnings of a finished analysis (saturation, exposure, oxide,
+ * encoding, setup defaults, fit), added to a->warnings. */
+void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s);
+
+#endif

@@ -1,0 +1,93 @@
+/* batch_image.c - one image of a batch: analyse it and write its result
+ * files (lamina/batch.h). */
+#include "lamina/batch.h"
+#include "lamina/report.h"
+
+#include <pthread.h>
+#include <stdio.h>
+#include <string.h>
+#include <cjson/cJSON.h>
+
+void lam_batch_stem(const char *path, char *stem, size_t n)
+{
+    const char *base = strrchr(path, '/');
+    base = base ? base + 1 : path;
+    snprintf(stem, n, "%s", base);
+    char *dot = strrchr(stem, '.');
+    if (dot && dot != stem)
+        *dot = '\0';
+}
+
+typedef struct annot_job {
+    lam_analysis *a;
+    char path[4096];
+    lam_error err;
+    lam_status st;
+} annot_job;
+
+static void *write_annotated_thread(void *arg)
+{
+    annot_job *aj = arg;
+    aj->st = lam_report_write_annotated(aj->a, aj->path, &aj->err);
+    return NULL;
+}
+
+/* The annotated image (the largest file) is encoded on a second thread
+ * while the layer map, plot and JSON are written; the JSON goes last, so
+ * its presence means the image's results are complete (--resume). */
+static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
+                                cJSON **json, lam_error *err)
+{
+    char p[4096];
+    annot_job aj;
+    aj.a = a;
+    lam_error_clear(&aj.err);
+    snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
+    pthread_t t;
+    int threaded = pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
+    if (!threaded)
+        write_annotated_thread(&aj);
+    snprintf(p, sizeof p, "%s/%s.layers.png", dir, stem);
+    lam_status st = lam_report_write_layers(a, p, err);
+    if (threaded)
+        pthread_join(t, NULL);
+    if (!st && aj.st) {
+        *err = aj.err;
+        st = aj.st;
+    }
+    snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, stem);
+    if (!st)
+        st = lam_report_write_svg(a, p, err);
+    if (!st && !(*json = lam_report_json(a)))
+        st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
+    snprintf(p, sizeof p, "%s/%s.json", dir, stem);
+    if (!st)
+        st = lam_report_save_json(*json, p, err);
+    return st;
+}
+
+lam_status lam_batch_analyse_one(const char *path, const lam_setup *setup,
+                                 const lam_analysis_options *opt, const char *out_dir,
+                                 const char *hash, const char *setup_hash, lam_analysis **out,
+                                 cJSON **json, lam_error *err)
+{
+    lam_analysis *a = NULL;
+    *out = NULL;
+    *json = NULL;
+    lam_status st = lam_analyze(path, setup, opt, &a, err);
+    if (st)
+        return st;
+    snprintf(a->content_hash, sizeof a->content_hash, "%s", hash ? hash : "");
+    snprintf(a->setup_hash, sizeof a->setup_hash, "%s", setup_hash ? setup_hash : "");
+    char stem[512];
+    lam_batch_stem(path, stem, sizeof stem);
+    if ((st = write_reports(a, out_dir, stem, json, err))) {
+        lam_error_set_file(err, path);
+        lam_analysis_free(a);
+        cJSON_Delete(*json);
+        *json = NULL;
+        return st;
+    }
+    *out = a;
+    return LAM_OK;
+}

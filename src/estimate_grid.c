@@ -1,0 +1,312 @@
+/* estimate_grid.c - where the fit starts: a grid over oxide thickness x
+ * contrast scale, with each channel's contrast factor profiled.
+ *
+ * The posterior has two kinds of far-apart modes: the oxide repeats its
+ * colours, and an overall contrast scale trades against the layer counts
+ * (a response 20 % stronger makes a trilayer look like a bilayer of the
+ * default; a response twice as strong, a monolayer like a bilayer). What
+ * tells them apart is the SHAPE of the ladder over N: contrast grows
+ * sublinearly with N at a rate the interference sets. Each image is scored
+ * on a grid of oxide x a common contrast scale s (the ladder multiplied by
+ * s, with a log-normal prior for what the response family can do); in each
+ * cell every channel also gets its own contrast factor, fitted to the
+ * regions in two EM rounds with a log-normal prior (an unknown camera's
+ * curves or lamp change one channel's contrast by tens of per cent: blue
+ * most), so that the comparison is of shapes, not of one channel's level.
+ * The fit starts at the best cell (the response's continuum set for the
+ * scale, the camera gains for the factors), and a multistart tries the
+ * next local maxima. */
+#include "estimate_internal.h"
+#include "linalg_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define GRID_LAYERS 12      /* ladder depth for the oxide grid (thick up to 12) */
+#define SCALE_STEPS 13
+#define SCALE_MIN 0.65
+#define SCALE_MAX 1.5
+#define SCALE_PRIOR_SD_LOG 0.18
+#define FACTOR_PRIOR_SD_LOG 0.35 /* a channel's contrast about the scaled default */
+#define GIVEN_FACTOR_SD_LOG 0.1  /* ... when the camera's curves are given */
+#define DEFAULT_GAIN_SD 0.15     /* the gain prior's sd when the camera is not given */
+#define FACTOR_MIN 0.4
+#define FACTOR_MAX 2.5
+#define FACTOR_ROUNDS 2
+
+static double scale_at(int k)
+{
+    return SCALE_MIN * pow(SCALE_MAX / SCALE_MIN, k / (double)(SCALE_STEPS - 1));
+}
+
+typedef struct grid {
+    size_t n;          /* oxide steps */
+    double lo, step;
+    double *score;     /* n x SCALE_STEPS */
+    float *factor;     /* n x SCALE_STEPS x LAM_MAX_CHANNELS */
+} grid;
+
+static void scaled(const lam_prediction *P, double s, lam_prediction *out)
+{
+    *out = *P;
+    for (size_t N = 0; N <= P->max_layers; N++)
+        for (size_t c = 0; c < P->channels; c++)
+            out->contrast[N][c] *= s;
+}
+
+/* How far a channel's contrast may stray from the scaled default: the
+ * camera's curves unknown, tens of per cent (FACTOR_PRIOR_SD_LOG); given,
+ * about what their stated uncertainty allows. With one channel a factor is
+ * the scale itself: none. */
+static double factor_sd(const lam_estimate *e, size_t c)
+{
+    if (e->channels < 2)
+        return 0;
+    const lam_nuisance *g = &e->shared[LAM_NU_GAIN + c];
+    return g->prior_sd < 0.5 * DEFAULT_GAIN_SD ? GIVEN_FACTOR_SD_LOG : FACTOR_PRIOR_SD_LOG;
+}
+
+/* One channel's factor f for ladder Q: weighted least squares of the
+ * regions' means on f x Q over the layer hypotheses (responsibilities
+ * resp), shrunk in log f towards 0 by the prior. */
+static double channel_factor(const lam_estimate *e, const lam_est_image *im, const double *resp,
+                             const lam_prediction *Q, size_t c)
+{
+    double sd = factor_sd(e, c);
+    if (!(sd > 0))
+        return 1;
+    size_t K = e->max_layers, H = K + 3;
+    double a = 0, b = 0;
+    for (size_t i = 0; i < im->count; i++) {
+        const lam_est_region *r = &im->regions[i];
+        if (!r->use)
+            continue;
+        for (size_t h = 1; h <= K; h++) {
+            double q = Q->contrast[h][c], w = resp[i * H + h];
+            if (w < 1e-6)
+                continue;
+            w /= r->var[c] + lam_estimate_floor_var(e, c, q);
+            a += w * q * q;
+            b += w * r->mean[c] * q;
+        }
+    }
+    if (a <= 0 || b <= 0)
+        return 1;
+    double f = b / a, prec = a * f * f, prior = 1 / (sd * sd);
+    double x = log(f) * prec / (prec + prior);
+    return fmin(fmax(exp(x), FACTOR_MIN), FACTOR_MAX);
+}
+
+/* The score of one cell: ladder P scaled by s, channel factors profiled.
+ * Q and resp are scratch; the factors are returned in f. */
+static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *P, double s,
+                         lam_prediction *Q, double *resp, double *f)
+{
+    const lam_est_image *im = &e->image[j];
+    double zs = log(s) / SCALE_PRIOR_SD_LOG;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        f[c] = 1;
+    scaled(P, s, Q);
+    double score = lam__image_logpost(e, j, Q, resp);
+    for (int round = 0; round < FACTOR_ROUNDS; round++) {
+        double prior = 0;
+        for (size_t c = 0; c < P->channels; c++) {
+            double fc = channel_factor(e, im, resp, Q, c);
+            for (size_t N = 0; N <= Q->max_layers; N++)
+                Q->contrast[N][c] *= fc;
+            f[c] *= fc;
+            double sd = factor_sd(e, c), z = sd > 0 ? log(f[c]) / sd : 0;
+            prior -= 0.5 * z * z;
+        }
+        score = lam__image_logpost(e, j, Q, resp) + prior;
+    }
+    return score - 0.5 * zs * zs;
+}
+
+static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
+                            grid *g, lam_error *err)
+{
+    lam_est_image *im = &e->image[j];
+    double half = e->opt.search_half_nm;
+    g->step = e->opt.search_step_nm;
+    g->lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
+    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
+    g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
+    if (!im->oxide.fitted)
+        g->lo = im->oxide.value;
+    size_t H = e->max_layers + 3;
+    g->score = malloc(g->n * SCALE_STEPS * sizeof *g->score);
+    g->factor = malloc(g->n * SCALE_STEPS * LAM_MAX_CHANNELS * sizeof *g->factor);
+    double *resp = malloc((im->count ? im->count : 1) * H * sizeof *resp);
+    lam_status st = g->score && g->factor && resp
+                        ? LAM_OK
+                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
+    for (size_t d = 0; d < g->n && !st; d++) {
+        im->oxide.value = g->lo + g->step * (double)d;
+        if ((st = lam__image_ladder(e, j, model, GRID_LAYERS, P, err)))
+            break;
+        for (int k = 0; k < SCALE_STEPS; k++) {
+            double f[LAM_MAX_CHANNELS];
+            size_t cell = d * SCALE_STEPS + (size_t)k;
+            g->score[cell] = cell_score(e, j, P, scale_at(k), P + 1, resp, f);
+            for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+                g->factor[cell * LAM_MAX_CHANNELS + c] = (float)f[c];
+        }
+    }
+    free(resp);
+    return st;
+}
+
+static int is_peak(const grid *g, size_t d, int k)
+{
+    double v = g->score[d * SCALE_STEPS + (size_t)k];
+    for (int dd = -1; dd <= 1; dd++)
+        for (int dk = -1; dk <= 1; dk++) {
+            long x = (long)d + dd, y = k + dk;
+            if ((!dd && !dk) || x < 0 || y < 0 || (size_t)x >= g->n || y >= SCALE_STEPS)
+                continue;
+            double o = g->score[(size_t)x * SCALE_STEPS + (size_t)y];
+            if (o > v || (o == v && (dd < 0 || (dd == 0 && dk < 0))))
+                return 0;
+        }
+    return 1;
+}
+
+static void cell_to(const grid *g, size_t cell, double *oxide, double *scale, double *factor)
+{
+    *oxide = g->lo + g->step * (double)(cell / SCALE_STEPS);
+    *scale = scale_at((int)(cell % SCALE_STEPS));
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        factor[c] = g->factor[cell * LAM_MAX_CHANNELS + c];
+}
+
+/* The best cell and the next three local maxima of one image's grid. */
+static void pick_cells(lam_est_image *im, const grid *g)
+{
+    size_t top[4];
+    int n = 0;
+    for (size_t cell = 0; cell < g->n * SCALE_STEPS; cell++) {
+        if (!is_peak(g, cell / SCALE_STEPS, (int)(cell % SCALE_STEPS)))
+            continue;
+        int at = n < 4 ? n++ : 4; /* insertion into the top four, best first */
+        while (at > 0 && g->score[cell] > g->score[top[at - 1]]) {
+            if (at < 4)
+                top[at] = top[at - 1];
+            at--;
+        }
+        if (at < 4)
+            top[at] = cell;
+    }
+    for (int k = 0; k < 3; k++) {
+        im->alt_oxide[k] = im->alt_scale[k] = im->alt_score[k] = NAN;
+        for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+            im->alt_factor[k][c] = 1;
+    }
+    im->grid_best = n ? g->score[top[0]] : -INFINITY;
+    if (n)
+        cell_to(g, top[0], &im->oxide.value, &im->grid_scale, im->grid_factor);
+    im->grid_oxide = im->oxide.value;
+    for (int k = 1; k < n; k++) {
+        cell_to(g, top[k], &im->alt_oxide[k - 1], &im->alt_scale[k - 1], im->alt_factor[k - 1]);
+        im->alt_score[k - 1] = g->score[top[k]];
+    }
+}
+
+static double clamp_to(double v, const lam_nuisance *n)
+{
+    return v < n->lo ? n->lo : (v > n->hi ? n->hi : v);
+}
+
+/* Shared starting values for scale s and channel factors f: the continuum
+ * that scales the interband plateau by s, the gains that give f. */
+static void start_shared(lam_estimate *e, double s, const double *f)
+{
+    lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
+    if (c->fitted)
+        c->value = clamp_to((1 + c->prior_mean) * s - 1, c);
+    for (size_t k = 0; k < e->channels; k++) {
+        lam_nuisance *g = &e->shared[LAM_NU_GAIN + k];
+        if (g->fitted)
+            g->value = clamp_to(g->prior_mean + log(f[k]), g);
+    }
+}
+
+void lam__start_at(lam_estimate *e, size_t j, int alt)
+{
+    lam_est_image *im = &e->image[j];
+    im->oxide.value = im->alt_oxide[alt];
+    start_shared(e, im->alt_scale[alt], im->alt_factor[alt]);
+}
+
+void lam__start_rescaled(lam_estimate *e, size_t j, double ratio)
+{
+    lam_est_image *im = &e->image[j];
+    im->oxide.value = im->grid_oxide;
+    start_shared(e, im->grid_scale * ratio, im->grid_factor);
+}
+
+/* Many images share one scale: the one best summed over the images (each
+ * at its best cell for that scale); each image's oxide and factors are
+ * then those of its best cell at that scale, the shared factors their
+ * geometric mean. */
+static int pooled_scale(const lam_estimate *e, const grid *g)
+{
+    double best = -INFINITY;
+    int bk = 0;
+    for (int k = 0; k < SCALE_STEPS; k++) {
+        double tot = 0;
+        for (size_t j = 0; j < e->images; j++) {
+            double m = -INFINITY;
+            for (size_t d = 0; d < g[j].n; d++)
+                m = fmax(m, g[j].score[d * SCALE_STEPS + (size_t)k]);
+            tot += m;
+        }
+        if (tot > best)
+            best = tot, bk = k;
+    }
+    return bk;
+}
+
+static void start_pooled(lam_estimate *e, const grid *g)
+{
+    int k = pooled_scale(e, g);
+    double logf[LAM_MAX_CHANNELS] = {0}, f[LAM_MAX_CHANNELS], s = scale_at(k);
+    for (size_t j = 0; j < e->images; j++) {
+        size_t bd = 0;
+        for (size_t d = 1; d < g[j].n; d++)
+            if (g[j].score[d * SCALE_STEPS + (size_t)k] > g[j].score[bd * SCALE_STEPS + (size_t)k])
+                bd = d;
+        double sc;
+        cell_to(&g[j], bd * SCALE_STEPS + (size_t)k, &e->image[j].oxide.value, &sc, f);
+        for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+            logf[c] += log(f[c]) / (double)e->images;
+    }
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+        f[c] = exp(logf[c]);
+    e->start_scale = s;
+    start_shared(e, s, f);
+}
+
+lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err)
+{
+    lam_prediction *P = malloc(2 * sizeof *P);
+    grid *g = calloc(e->images ? e->images : 1, sizeof *g);
+    lam_status st = P && g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
+    for (size_t j = 0; j < e->images && !st; j++)
+        if (!(st = fill_grid(e, j, model, P, &g[j], err)))
+            pick_cells(&e->image[j], &g[j]);
+    if (!st && e->images == 1) {
+        e->start_scale = e->image[0].grid_scale;
+        start_shared(e, e->image[0].grid_scale, e->image[0].grid_factor);
+    } else if (!st) {
+        start_pooled(e, g);
+    }
+    for (size_t j = 0; g && j < e->images; j++) {
+        free(g[j].score);
+        free(g[j].factor);
+    }
+    free(g);
+    free(P);
+    return st;
+}
