@@ -1,27 +1,49 @@
 #!/bin/sh
-# bench/bench_analyze.sh - lamina analyze on a 12-megapixel JPEG (all outputs
-# at full resolution) against libjpeg-turbo's djpeg decoding the same file,
-# run alternately in one session. Goal: ratio <= 5; peak memory <= 24 B/px.
-# Usage: bench_analyze.sh BUILD_DIR [RUNS]
+# bench/bench_analyze.sh - the per-image figures of the speed issue:
+#  1. lamina analyze of a 12-megapixel JPEG (every output at full
+#     resolution, 2 threads) against libjpeg-turbo's djpeg decoding the same
+#     file, run alternately; the ratio of the medians (goal <= 5, aim 3);
+#  2. peak resident memory per input pixel (/usr/bin/time; goal <= 16 B/px);
+#  3. seconds per megapixel at 3, 12 and 48 MP (the same field rendered at
+#     three resolutions, bench/scene-*.json), alternately; goal: all within
+#     15 % of each other.
+# Usage: bench_analyze.sh BUILD_DIR [RUNS]   (RUNS: runs of the 3 and 12 MP
+# images, default 5; the 48 MP image runs (RUNS + 1) / 2 times)
 set -eu
 . "$(dirname "$0")/common.sh"
 B=${1:-build}; RUNS=${2:-5}
 D="$B/bench"; mkdir -p "$D"
+img() { # scene, file
+    [ -s "$D/$2" ] || "$B/lamina" render --quiet "bench/$1" -o "$D/$2"
+}
+img scene-3mp.json big3mp.jpg
+img big-scene.json big12mp.jpg
+img scene-48mp.json big48mp.jpg
+run() { "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$1"; }
 IMG="$D/big12mp.jpg"
-[ -s "$IMG" ] || "$B/lamina" render --quiet bench/big-scene.json -o "$IMG"
-ta=""; tb=""
+ta=""; tb=""; t3=""; t48=""
 i=0
 while [ $i -lt "$RUNS" ]; do
     tb="$tb $(elapsed djpeg -outfile /dev/null "$IMG")"
-    ta="$ta $(elapsed "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$IMG")"
+    ta="$ta $(elapsed run "$IMG")"
+    t3="$t3 $(elapsed run "$D/big3mp.jpg")"
+    [ $((i % 2)) -eq 0 ] && t48="$t48 $(elapsed run "$D/big48mp.jpg")"
     i=$((i + 1))
 done
-ma=$(median "$ta"); mb=$(median "$tb")
-printf 'bench_analyze: 12 MP JPEG: lamina analyze median %.3f s, djpeg median %.3f s, ratio %.2f (goal <= 5)\n' \
+ma=$(median "$ta"); mb=$(median "$tb"); m3=$(median "$t3"); m48=$(median "$t48")
+printf 'bench_analyze: 12 MP JPEG: lamina analyze median %.3f s, djpeg median %.3f s, ratio %.2f (goal <= 5, aim 3)\n' \
     "$ma" "$mb" "$(echo "$ma / $mb" | bc -l)"
 if [ -x /usr/bin/time ]; then
-    /usr/bin/time -f '%M' -o "$D/rss" "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$IMG"
-    kb=$(cat "$D/rss")
-    printf 'bench_analyze: peak resident memory %d MiB = %.1f bytes per pixel (goal <= 24)\n' \
-        $((kb / 1024)) "$(echo "$kb * 1024 / 12000000" | bc -l)"
+    for f in big3mp big12mp big48mp; do
+        /usr/bin/time -f '%M' -o "$D/rss" "$B/lamina" analyze --quiet --threads 2 --out "$D/out" "$D/$f.jpg"
+        kb=$(cat "$D/rss")
+        px=$(case $f in big3mp) echo 3000000;; big12mp) echo 12000000;; *) echo 48000000;; esac)
+        printf 'bench_analyze: %s peak resident memory %d MiB = %.1f bytes per pixel (goal <= 16)\n' \
+            "$f" $((kb / 1024)) "$(echo "$kb * 1024 / $px" | bc -l)"
+    done
 fi
+s3=$(echo "$m3 / 3" | bc -l); s12=$(echo "$ma / 12" | bc -l); s48=$(echo "$m48 / 48" | bc -l)
+lo=$(printf '%s\n' "$s3" "$s12" "$s48" | sort -n | head -1)
+hi=$(printf '%s\n' "$s3" "$s12" "$s48" | sort -n | tail -1)
+printf 'bench_analyze: seconds per megapixel: 3 MP %.4f, 12 MP %.4f, 48 MP %.4f; spread %.0f %% (goal <= 15 %%)\n' \
+    "$s3" "$s12" "$s48" "$(echo "($hi / $lo - 1) * 100" | bc -l)"

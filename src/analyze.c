@@ -99,13 +99,23 @@ void lam_shared_prior_from(const lam_estimate *e, lam_shared_prior *p)
         p->regions += e->image[j].regions_used;
 }
 
+/* Pooling sharpens the shared parameters by the number of regions, but
+ * the model family is not the true physics: its best values carry a bias
+ * that more data do not shrink. The pooled prior's sd is therefore kept at
+ * no less than POOL_SD_FLOOR of the setup's own prior sd (a quarter: the
+ * oxide's 2-sigma intervals then keep holding the truth in pooled scans,
+ * docs/method.md). */
+#define POOL_SD_FLOOR 0.25
+
 void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e)
 {
     if (!p || !p->set)
         return;
     for (int k = 0; k < LAM_NU_COUNT; k++)
-        if (e->shared[k].fitted || p->sd[k] > 0)
-            lam_estimate_set_prior(e, k, p->mean[k], p->sd[k], "pooled");
+        if (e->shared[k].fitted || p->sd[k] > 0) {
+            double sd = p->sd[k] > 0 ? fmax(p->sd[k], POOL_SD_FLOOR * e->shared[k].prior_sd) : 0;
+            lam_estimate_set_prior(e, k, p->mean[k], sd, "pooled");
+        }
     if (p->floor_rel > 0)
         e->floor_rel = e->floor_rel_prior = p->floor_rel;
 }
@@ -311,6 +321,13 @@ static lam_status segment_stage(run *r, lam_error *err)
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 
+/* The model takes SiO2 as Malitson's fused silica; thermal oxide films
+ * differ from it by up to ~1 % in index (Gao et al. 2013, one of the
+ * tables in tests/data/nk), which reads as the same share of thickness.
+ * The fitted oxide's sigma carries that share, common to every image of a
+ * chip (so it is part of the shared, not the per-image, uncertainty). */
+#define OXIDE_INDEX_REL 0.008
+
 static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
 {
     const lam_est_image *im = &a->estimate->image[0];
@@ -318,12 +335,14 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->regions_used = im->regions_used;
     o->fitted = im->oxide.fitted && im->regions_used > 0;
     o->estimate = o->fitted ? im->oxide.value : o->nominal;
-    o->sigma = o->fitted ? im->oxide.sigma : NAN;
+    double index = OXIDE_INDEX_REL * o->estimate;
+    o->sigma = o->fitted ? sqrt(im->oxide.sigma * im->oxide.sigma + index * index) : NAN;
     o->sigma_given_shared = o->fitted ? im->oxide_sigma_given_shared : NAN;
     if (o->fitted)
         snprintf(o->method, sizeof o->method,
-                 "joint fit with the shared parameters over %zu region(s); sigma includes them",
-                 im->regions_used);
+                 "joint fit with the shared parameters over %zu region(s); sigma includes them "
+                 "and %.1f %% for the oxide's index",
+                 im->regions_used, 100 * OXIDE_INDEX_REL);
     else
         snprintf(o->method, sizeof o->method, o->nominal < 0 ? "no oxide in the stack"
                                               : "nominal (no region usable for a fit)");

@@ -89,6 +89,17 @@ static void load_row(const grid *g, long y, uint32_t *row)
         row[x + 1] = src[x] <= g->regions ? src[x] : 0;
 }
 
+/* Are the eight cells starting at column 0 of rows a (above) and b all of
+ * one label? Branch-free, so most of a label map is skipped eight cells at
+ * a time. */
+static int uniform8(const uint32_t *restrict a, const uint32_t *restrict b)
+{
+    uint32_t acc = 0;
+    for (int q = 0; q < 8; q++)
+        acc |= (a[q] ^ a[q + 1]) | (b[q] ^ b[q + 1]) | (a[q] ^ b[q]);
+    return acc == 0;
+}
+
 /* Visit every cell's segments: count them per region (segs == NULL) or
  * store them into the per-region buckets at fill[l]. Rows are padded with
  * a zero on each side, so cell i of a row pair reads padded columns i, i+1. */
@@ -99,6 +110,10 @@ static void scan(const grid *g, uint32_t *rows, size_t *count, seg *segs, size_t
     for (long j = -1; j < (long)g->h; j++) {
         load_row(g, j + 1, rb);
         for (size_t p = 0; p <= g->w; p++) {
+            if (p + 8 <= g->w + 1 && uniform8(ra + p, rb + p)) {
+                p += 7; /* eight cells of one label: no segment */
+                continue;
+            }
             uint32_t c[4] = {ra[p], ra[p + 1], rb[p + 1], rb[p]};
             if (c[0] == c[1] && c[2] == c[3] && c[0] == c[2])
                 continue;

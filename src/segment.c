@@ -246,6 +246,62 @@ static uint32_t find_root(uint32_t *parent, uint32_t a)
     return a;
 }
 
+/* The end of the run of label row[x] that starts at x. */
+static size_t run_end(const uint32_t *row, size_t x, size_t w)
+{
+    uint32_t l = row[x];
+    while (++x < w && row[x] == l)
+        ;
+    return x;
+}
+
+/* Forward pass over row y, run by run: a run's first pixel is on the
+ * boundary; the others are one more than the nearer of the pixel to the
+ * left and the one above, or on the boundary when the one above differs. */
+static void depth_forward(const uint32_t *lab, uint8_t *d, size_t w, size_t y)
+{
+    const uint32_t *row = lab + y * w, *up = row - w;
+    uint8_t *dr = d + y * w, *du = dr - w;
+    for (size_t x0 = 0, x1; x0 < w; x0 = x1) {
+        x1 = run_end(row, x0, w);
+        uint32_t l = row[x0];
+        if (!l || y == 0) {
+            memset(dr + x0, l ? 1 : 0, x1 - x0);
+            continue;
+        }
+        dr[x0] = 1;
+        for (size_t x = x0 + 1; x < x1; x++) {
+            unsigned v = (dr[x - 1] < du[x] ? dr[x - 1] : du[x]) + 1u;
+            dr[x] = up[x] != l ? 1 : (uint8_t)(v > 255 ? 255 : v);
+        }
+    }
+}
+
+/* Backward pass over row y (from the right and from below). */
+static void depth_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, size_t y)
+{
+    const uint32_t *row = lab + y * w, *dn = row + w;
+    uint8_t *dr = d + y * w, *dd = dr + w;
+    for (size_t x0 = 0, x1; x0 < w; x0 = x1) {
+        x1 = run_end(row, x0, w);
+        uint32_t l = row[x0];
+        if (!l)
+            continue;
+        if (y + 1 == h) {
+            memset(dr + x0, 1, x1 - x0);
+            continue;
+        }
+        dr[x1 - 1] = 1;
+        for (size_t x = x1 - 1; x-- > x0;) {
+            unsigned v = (dr[x + 1] < dd[x] ? dr[x + 1] : dd[x]) + 1u;
+            if (dn[x] != l)
+                dr[x] = 1;
+            else if (v < dr[x])
+                dr[x] = (uint8_t)v;
+        }
+    }
+}
+
 /* City-block distance of each labelled pixel to the nearest pixel of
  * another label (or none) or outside the image, capped at 255: 1 on a
  * region's boundary. Two passes (forward, backward). */
@@ -255,36 +311,51 @@ uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
     if (!d)
         return NULL;
     for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint32_t l = lab[k];
-            if (!l || x == 0 || y == 0 || lab[k - 1] != l || lab[k - w] != l) {
-                d[k] = l ? 1 : 0;
-                continue;
-            }
-            unsigned v = (d[k - 1] < d[k - w] ? d[k - 1] : d[k - w]) + 1u;
-            d[k] = (uint8_t)(v > 255 ? 255 : v);
-        }
+        depth_forward(lab, d, w, y);
     for (size_t y = h; y-- > 0;)
-        for (size_t x = w; x-- > 0;) {
-            size_t k = y * w + x;
-            uint32_t l = lab[k];
-            if (!l)
-                continue;
-            if (x + 1 == w || y + 1 == h || lab[k + 1] != l || lab[k + w] != l) {
-                d[k] = 1;
-                continue;
-            }
-            unsigned v = (d[k + 1] < d[k + w] ? d[k + 1] : d[k + w]) + 1u;
-            if (v < d[k])
-                d[k] = (uint8_t)v;
-        }
+        depth_backward(lab, d, w, h, y);
     return d;
+}
+
+/* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
+ * sums (whole numbers, exact in any grouping), depth, and the interior's
+ * contrast sums pixel by pixel in row order. */
+static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8_t *depth,
+                           lam_region_stats *r, size_t y, size_t x0, size_t x1)
+{
+    size_t w = img->width, h = img->height, k0 = y * w, len = x1 - x0;
+    r->cls = cls[k0 + x1 - 1]; /* the class of the region's last pixel, as pixel by pixel */
+    r->area += len;
+    r->sx += (double)(x0 + x1 - 1) * (double)len / 2;
+    r->sy += (double)y * (double)len;
+    if (x0 < r->bbox[0]) r->bbox[0] = x0;
+    if (y < r->bbox[1]) r->bbox[1] = y;
+    if (x1 - 1 > r->bbox[2]) r->bbox[2] = x1 - 1;
+    if (y > r->bbox[3]) r->bbox[3] = y;
+    if (x0 == 0 || y == 0 || x1 == w || y + 1 == h)
+        r->touches_border = 1;
+    for (size_t k = k0 + x0; k < k0 + x1; k++) {
+        if (depth[k] > r->depth_max)
+            r->depth_max = depth[k];
+        if (depth[k] < LAM_INTERIOR_DEPTH)
+            continue;
+        if (img->clipped[k]) {
+            r->clipped++;
+            continue;
+        }
+        r->interior++;
+        for (int c = 0; c < 3; c++) {
+            double v = img->plane[c][k];
+            r->sum[c] += v;
+            r->sumsq[c] += v * v;
+        }
+    }
 }
 
 /* Area, box, centroid, depth, and the contrast sums over the interior:
  * pixels at least LAM_INTERIOR_DEPTH from the boundary (blur and the
- * denoising filter mix two classes within ~2 px of an edge). */
+ * denoising filter mix two classes within ~2 px of an edge). Taken run by
+ * run of one label along each row. */
 void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
                              const uint8_t *depth, lam_region_stats *R, uint32_t m)
 {
@@ -293,38 +364,16 @@ void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint
         R[i].id = i + 1;
         R[i].bbox[0] = w, R[i].bbox[1] = h;
     }
-    for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint32_t l = lab[k];
-            if (!l)
-                continue;
-            lam_region_stats *r = &R[l - 1];
-            r->cls = cls[k];
-            r->area++;
-            r->sx += (double)x;
-            r->sy += (double)y;
-            if (x < r->bbox[0]) r->bbox[0] = x;
-            if (y < r->bbox[1]) r->bbox[1] = y;
-            if (x > r->bbox[2]) r->bbox[2] = x;
-            if (y > r->bbox[3]) r->bbox[3] = y;
-            if (depth[k] > r->depth_max)
-                r->depth_max = depth[k];
-            if (x == 0 || y == 0 || x + 1 == w || y + 1 == h)
-                r->touches_border = 1;
-            if (depth[k] < LAM_INTERIOR_DEPTH)
-                continue;
-            if (img->clipped[k]) {
-                r->clipped++;
-                continue;
-            }
-            r->interior++;
-            for (int c = 0; c < 3; c++) {
-                double v = img->plane[c][k];
-                r->sum[c] += v;
-                r->sumsq[c] += v * v;
-            }
+    for (size_t y = 0; y < h; y++) {
+        const uint32_t *row = lab + y * w;
+        for (size_t x = 0, x1; x < w; x = x1) {
+            uint32_t l = row[x];
+            for (x1 = x + 1; x1 < w && row[x1] == l;)
+                x1++;
+            if (l)
+                run_statistics(img, cls, depth, &R[l - 1], y, x, x1);
         }
+    }
 }
 
 lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *opt,

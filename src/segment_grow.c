@@ -23,7 +23,9 @@ typedef struct edge_ctx {
     const lam_image *img;
     size_t channels;
     float t2[3], t4[3]; /* per channel: change across 2 and across 4 pixels */
+    uint8_t *edge;      /* 1 on transition pixels (and the 2-pixel frame) */
     uint8_t *cls;
+    int failed;
     int bright;         /* scale the thresholds with the brightness (bright_scaling) */
 } edge_ctx;
 
@@ -34,59 +36,129 @@ static float bright_factor(float contrast)
     return contrast < 0 ? sqrtf(1 - contrast) : 1.0f;
 }
 
+/* One inner row's test for one channel, branch-free so that it runs on
+ * vector units: acc[x] becomes non-zero where a change exceeds t2 across
+ * two pixels or t4 across four, along the row or the column. */
+static void edge_test(const float *restrict p, size_t w, float t2, float t4, int32_t *restrict acc)
+{
+    for (size_t x = 2; x + 2 < w; x++)
+        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2) | (fabsf(p[x + w] - p[x - w]) > t2) |
+                  (fabsf(p[x + 2] - p[x - 2]) > t4) | (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4);
+}
+
+/* The same with bright_scaling (crystals whose flakes outshine the
+ * substrate): both thresholds grow by the pixel's bright_factor. */
+static void edge_test_bright(const float *restrict p, size_t w, float t2, float t4,
+                             int32_t *restrict acc)
+{
+    for (size_t x = 2; x + 2 < w; x++) {
+        float b = bright_factor(p[x]);
+        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2 * b) | (fabsf(p[x + w] - p[x - w]) > t2 * b) |
+                  (fabsf(p[x + 2] - p[x - 2]) > t4 * b) |
+                  (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4 * b);
+    }
+}
+
 /* Transition pixels: the contrast changes by more than a channel's
  * threshold across two pixels (or, for slow blurred edges, across four) in
- * some channel: the pixel mixes two classes. */
+ * some channel: the pixel mixes two classes. The frame of 2 pixels, where
+ * the test does not fit, counts as transition. */
 static void edge_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
-    const edge_ctx *e = vctx;
+    edge_ctx *e = vctx;
     size_t w = e->img->width, h = e->img->height;
-    for (size_t y = begin; y < end; y++)
-        for (size_t x = 0; x < w; x++) {
-            size_t k = y * w + x;
-            uint8_t cls = PROVISIONAL;
-            int inner = x > 1 && y > 1 && x + 2 < w && y + 2 < h;
-            for (size_t c = 0; c < e->channels && inner; c++) {
-                const float *p = e->img->plane[c];
-                float b = e->bright ? bright_factor(p[k]) : 1.0f;
-                float t2 = e->t2[c] * b, t4 = e->t4[c] * b;
-                if (fabsf(p[k + 1] - p[k - 1]) > t2 || fabsf(p[k + w] - p[k - w]) > t2 ||
-                    fabsf(p[k + 2] - p[k - 2]) > t4 || fabsf(p[k + 2 * w] - p[k - 2 * w]) > t4) {
-                    cls = LAM_CLASS_NONE;
-                    break;
-                }
-            }
-            e->cls[k] = inner ? cls : LAM_CLASS_NONE;
+    int32_t *acc = malloc(w * sizeof *acc);
+    if (!acc) {
+        e->failed = 1;
+        return;
+    }
+    for (size_t y = begin; y < end; y++) {
+        uint8_t *out = e->edge + y * w;
+        if (y < 2 || y + 2 >= h || w < 5) {
+            memset(out, 1, w);
+            continue;
         }
+        memset(acc, 0, w * sizeof *acc);
+        for (size_t c = 0; c < e->channels; c++)
+            (e->bright ? edge_test_bright : edge_test)(e->img->plane[c] + y * w, w, e->t2[c],
+                                                       e->t4[c], acc);
+        for (size_t x = 0; x < w; x++)
+            out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
+    }
+    free(acc);
 }
 
 /* Close gaps in the transition lines: a pixel next to (8-neighbour) a
- * transition pixel is one too, so no one-pixel path joins two regions. */
-static lam_status dilate_edges(uint8_t *cls, size_t w, size_t h, lam_error *err)
+ * transition pixel is one too, so no one-pixel path joins two regions.
+ * Reads the edge mask, writes the classes. */
+static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    uint8_t *orig = malloc(w * h);
-    if (!orig)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
-    memcpy(orig, cls, w * h);
-    for (size_t y = 1; y + 1 < h; y++)
-        for (size_t x = 1; x + 1 < w; x++) {
-            size_t k = y * w + x;
-            if (orig[k] != LAM_CLASS_NONE &&
-                (orig[k - 1] == LAM_CLASS_NONE || orig[k + 1] == LAM_CLASS_NONE ||
-                 orig[k - w] == LAM_CLASS_NONE || orig[k + w] == LAM_CLASS_NONE ||
-                 orig[k - w - 1] == LAM_CLASS_NONE || orig[k - w + 1] == LAM_CLASS_NONE ||
-                 orig[k + w - 1] == LAM_CLASS_NONE || orig[k + w + 1] == LAM_CLASS_NONE))
-                cls[k] = LAM_CLASS_NONE;
+    (void)slice;
+    edge_ctx *e = vctx;
+    size_t w = e->img->width, h = e->img->height;
+    uint8_t *col = malloc(w);
+    if (!col) {
+        e->failed = 1;
+        return;
+    }
+    for (size_t y = begin; y < end; y++) {
+        const uint8_t *r = e->edge + y * w, *u = y ? r - w : r, *d = y + 1 < h ? r + w : r;
+        for (size_t x = 0; x < w; x++)
+            col[x] = (uint8_t)(u[x] | r[x] | d[x]);
+        uint8_t *out = e->cls + y * w;
+        for (size_t x = 0; x < w; x++) {
+            int any = col[x] | (x ? col[x - 1] : 0) | (x + 1 < w ? col[x + 1] : 0);
+            out[x] = any ? LAM_CLASS_NONE : PROVISIONAL;
         }
-    free(orig);
-    return LAM_OK;
+    }
+    free(col);
 }
 
-static int cmp_float(const void *a, const void *b)
+/* Transition pixels and their neighbours out; every other pixel may join a
+ * region (class PROVISIONAL). */
+static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
 {
-    float x = *(const float *)a, y = *(const float *)b;
-    return x < y ? -1 : x > y;
+    size_t w = e->img->width, h = e->img->height;
+    if (!(e->edge = malloc(w * h)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
+    lam_parallel_for(h, threads, edge_rows, e);
+    if (!e->failed)
+        lam_parallel_for(h, threads, dilate_rows, e);
+    free(e->edge);
+    e->edge = NULL;
+    return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask") : LAM_OK;
+}
+
+/* The k-th smallest of m non-negative floats (0-based), as a full sort
+ * would place it: their bit patterns order like the values, so two passes
+ * of 16-bit histograms (high half, then the low half within the chosen
+ * bin) find it exactly in linear time. 'hist' holds 65536 counts. */
+static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
+{
+    uint32_t hi = 0, lo = 0;
+    size_t below = 0;
+    memset(hist, 0, 65536 * sizeof *hist);
+    for (size_t i = 0; i < m; i++) {
+        uint32_t b;
+        memcpy(&b, &v[i], sizeof b);
+        hist[b >> 16]++;
+    }
+    while (below + hist[hi] <= k)
+        below += hist[hi++];
+    memset(hist, 0, 65536 * sizeof *hist);
+    for (size_t i = 0; i < m; i++) {
+        uint32_t b;
+        memcpy(&b, &v[i], sizeof b);
+        if (b >> 16 == hi)
+            hist[b & 0xffff]++;
+    }
+    while (below + hist[lo] <= k)
+        below += hist[lo++];
+    uint32_t bits = hi << 16 | lo;
+    float out;
+    memcpy(&out, &bits, sizeof out);
+    return out;
 }
 
 /* Statistics of horizontal pixel differences at a lag, per channel, over
@@ -107,28 +179,56 @@ static int near_zero(const lam_image *img, size_t channels, const double *zero, 
     return 1;
 }
 
-static void difference_stats(const lam_image *img, size_t channels, const double *zero,
-                             size_t lag, diff_stats *out)
+/* One sample: the differences across pixel k at 'lag' in every channel,
+ * when both ends are near zero contrast and inside the row (x = k % w). */
+static size_t sample_difference(const lam_image *img, size_t channels, const double *zero,
+                                size_t k, size_t x, size_t lag, float *d, size_t cap, size_t m)
 {
-    size_t w = img->width, n = img->width * img->height, m = 0;
-    float *d = malloc((n / SAMPLE_STRIDE + 1) * sizeof *d);
-    for (size_t c = 0; c < 3; c++)
-        out->sigma[c] = out->p95[c] = 1e-3;
-    if (!d)
+    size_t w = img->width;
+    if (x < lag || x + lag >= w || !near_zero(img, channels, zero, k - lag) ||
+        !near_zero(img, channels, zero, k + lag))
+        return m;
+    for (size_t c = 0; c < channels; c++)
+        d[c * cap + m] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
+    return m + 1;
+}
+
+/* The statistics at lags 1 and 2 in one pass over the sampled pixels (the
+ * lag-2 samples lie one pixel after the lag-1 samples, in the same cache
+ * lines); each channel's differences are filled with one zero test per
+ * pixel; order statistics by selection. */
+static void difference_stats(const lam_image *img, size_t channels, const double *zero,
+                             diff_stats out[2])
+{
+    size_t w = img->width, n = img->width * img->height, m[2] = {0, 0};
+    size_t cap = n / SAMPLE_STRIDE + 1;
+    float *d = malloc(2 * channels * cap * sizeof *d);
+    uint32_t *hist = malloc(65536 * sizeof *hist);
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < 3; c++)
+            out[l].sigma[c] = out[l].p95[c] = 1e-3;
+    if (!d || !hist) {
+        free(d);
+        free(hist);
         return;
-    for (size_t c = 0; c < channels; c++) {
-        m = 0;
-        for (size_t k = lag; k + lag < n; k += SAMPLE_STRIDE)
-            if (k % w >= lag && k % w + lag < w && near_zero(img, channels, zero, k - lag) &&
-                near_zero(img, channels, zero, k + lag))
-                d[m++] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
-        if (m > 20) {
-            qsort(d, m, sizeof *d, cmp_float);
-            out->sigma[c] = fmax(1.4826 * d[m / 2], 1e-5);
-            out->p95[c] = fmax(d[m * 95 / 100], 1e-5);
-        }
     }
+    size_t x = 1 % w; /* = k % w, kept by steps instead of a division per sample */
+    for (size_t k = 1; k + 1 < n; k += SAMPLE_STRIDE) {
+        m[0] = sample_difference(img, channels, zero, k, x, 1, d, cap, m[0]);
+        if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
+            m[1] = sample_difference(img, channels, zero, k + 1, x + 1 < w ? x + 1 : 0, 2,
+                                     d + channels * cap, cap, m[1]);
+        for (x += SAMPLE_STRIDE; x >= w;)
+            x -= w;
+    }
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < channels && m[l] > 20; c++) {
+            float *v = d + (l * channels + c) * cap;
+            out[l].sigma[c] = fmax(1.4826 * select_nonneg(v, m[l], m[l] / 2, hist), 1e-5);
+            out[l].p95[c] = fmax(select_nonneg(v, m[l], m[l] * 95 / 100, hist), 1e-5);
+        }
     free(d);
+    free(hist);
 }
 
 /* ---- statistical region merging ----
@@ -144,165 +244,375 @@ static void difference_stats(const lam_image *img, size_t channels, const double
 #define MERGE_SIGMAS 3.0
 #define PAIR_BUCKETS 1024
 #define PAIR_RANGE 6.0      /* pairs differing by more than 6 deltas never merge */
+#define ROOT 0x80000000u    /* a root's first word: this bit | its region's pixel count */
+
+/* Union-find over pixels. Each pixel is a node of 1 + channels words: its
+ * parent's index (always smaller: the smaller index stays the root), or
+ * for a root ROOT | the region's pixel count; then, for a root, the
+ * region's sums per channel. One node is one cache access (16 bytes for
+ * colour), which is what the merging waits for. */
+typedef union word {
+    uint32_t u;
+    float f;
+} word;
 
 typedef struct merge_state {
-    uint32_t *parent;   /* = the label array */
-    uint32_t *count;    /* per root */
-    float *sum;         /* per root, channels values */
+    word *node;
+    size_t stride;      /* words per node: 1 + channels */
     size_t channels;
     double delta[3], sigma[3];
     int bright;         /* bright_scaling: delta x b, sigma x sqrt(b), b = 1 - C */
 } merge_state;
 
-static uint32_t root_of(uint32_t *parent, uint32_t a)
+static uint32_t root_of(word *node, size_t stride, uint32_t a)
 {
-    while (parent[a] != a) {
-        parent[a] = parent[parent[a]];
-        a = parent[a];
+    for (;;) {
+        uint32_t p = node[a * stride].u;
+        if (p & ROOT)
+            return a;
+        uint32_t g = node[p * stride].u;
+        if (g & ROOT)
+            return p;
+        node[a * stride].u = g; /* path halving */
+        a = g;
     }
-    return a;
 }
 
-static int means_agree(const merge_state *m, uint32_t a, uint32_t b)
+/* The means of regions a and b (na, nb pixels) agree in every channel. A
+ * channel within delta agrees whatever the noise term, so the square root
+ * is taken only when some channel needs it (the same decisions). */
+static int means_agree(const merge_state *m, uint32_t a, uint32_t b, uint32_t ca, uint32_t cb)
 {
-    double na = m->count[a], nb = m->count[b], se = sqrt(1 / na + 1 / nb);
+    double na = ca, nb = cb, se = -1;
+    const word *sa = m->node + a * m->stride + 1, *sb = m->node + b * m->stride + 1;
     for (size_t c = 0; c < m->channels; c++) {
-        double ma = m->sum[a * m->channels + c] / na, mb = m->sum[b * m->channels + c] / nb;
-        double d = ma - mb, f = 1;
-        if (m->bright)
-            f = bright_factor((float)fmin(ma, mb));
-        if (fabs(d) > m->delta[c] * f * f + MERGE_SIGMAS * m->sigma[c] * f * se)
+        if (m->bright) { /* the thresholds of the darker of the two */
+            double ma = sa[c].f / na, mb = sb[c].f / nb, f = bright_factor((float)fmin(ma, mb));
+            if (fabs(ma - mb) > m->delta[c] * f * f +
+                                    MERGE_SIGMAS * m->sigma[c] * f * sqrt(1 / na + 1 / nb))
+                return 0;
+            continue;
+        }
+        double d = fabs(sa[c].f / na - sb[c].f / nb);
+        if (d <= m->delta[c])
+            continue;
+        if (se < 0)
+            se = sqrt(1 / na + 1 / nb);
+        if (d > m->delta[c] + MERGE_SIGMAS * m->sigma[c] * se)
             return 0;
     }
     return 1;
 }
 
-static void merge(merge_state *m, uint32_t a, uint32_t b)
+static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
 {
     if (b < a) {
         uint32_t t = a;
         a = b, b = t;
     }
-    m->parent[b] = a; /* the smaller index stays the root */
-    m->count[a] += m->count[b];
-    for (size_t c = 0; c < m->channels; c++)
-        m->sum[a * m->channels + c] += m->sum[b * m->channels + c];
+    word *na = m->node + a * m->stride, *nb = m->node + b * m->stride;
+    nb[0].u = a; /* the smaller index stays the root */
+    na[0].u = ROOT | count;
+    for (size_t c = 1; c <= m->channels; c++)
+        na[c].f += nb[c].f;
 }
 
-/* Bucket of a neighbour pair: the largest channel difference in deltas. */
-static int pair_bucket(const lam_image *img, const merge_state *m, size_t a, size_t b)
-{
-    double f = 0;
-    for (size_t c = 0; c < m->channels; c++)
-        f = fmax(f, fabs(img->plane[c][a] - img->plane[c][b]) / m->delta[c]);
-    return f >= PAIR_RANGE ? -1 : (int)(f / PAIR_RANGE * PAIR_BUCKETS);
-}
+/* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
+ * provisional pixels in order of bucket (the largest channel difference in
+ * deltas), then pixel. Built per strip of a few rows on all cores: a
+ * strip's buckets are computed once into a small buffer and its pairs
+ * placed by a counting sort that stays in cache. Taking bucket b of every
+ * strip in turn, then bucket b + 1, gives the order of one sequential sort
+ * of the whole image, whatever the thread count. */
+#define STRIP_ROWS 16 /* at most; fewer when wide, so a strip's codes fit 16 bits */
+#define NO_BUCKET PAIR_BUCKETS /* no pair: counted apart */
 
-/* Pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) sorted by bucket. */
-static uint32_t *sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
-                              size_t *count)
+typedef struct pair_lists {
+    size_t strips, rows, cap; /* cap: slots per strip (2 pairs per pixel) */
+    uint16_t *code;       /* strip s at code + s * cap: 2i + dir for its pixel i, or */
+    uint32_t *pairs;      /* (images wider than 32768 px) 2k + dir for pixel k */
+    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + s * (PAIR_BUCKETS + 1) */
+} pair_lists;
+
+typedef struct pair_ctx {
+    const lam_image *img;
+    const uint8_t *cls;
+    const merge_state *m;
+    pair_lists *L;
+    int failed;
+} pair_ctx;
+
+/* Buckets of the pairs (x, x + off) of one row, n of them, into out:
+ * NO_BUCKET where either pixel is not provisional or they differ by
+ * PAIR_RANGE deltas or more. Branch-free per channel (vectorised); the
+ * arithmetic is that of one pair at a time. f: n doubles of scratch. */
+static void row_buckets(const pair_ctx *p, size_t k0, size_t off, size_t n, double *restrict f,
+                        int32_t *restrict b, uint16_t *restrict out)
 {
-    size_t w = img->width, n = img->width * img->height, total = 0;
-    size_t *start = calloc(PAIR_BUCKETS + 1, sizeof *start);
-    uint16_t *bucket = malloc(2 * n * sizeof *bucket);
-    if (!start || !bucket) {
-        free(start);
-        free(bucket);
-        return NULL;
+    const uint8_t *restrict ca = p->cls + k0, *restrict cb = ca + off;
+    for (size_t c = 0; c < p->m->channels; c++) {
+        const float *restrict pa = p->img->plane[c] + k0, *restrict pb = pa + off;
+        double d = p->m->delta[c];
+        if (c == 0)
+            for (size_t x = 0; x < n; x++) {
+                double q = fabs((double)(pa[x] - pb[x])) / d;
+                f[x] = q > 0.0 ? q : 0.0;
+            }
+        else
+            for (size_t x = 0; x < n; x++) {
+                double q = fabs((double)(pa[x] - pb[x])) / d;
+                f[x] = q > f[x] ? q : f[x];
+            }
     }
-    for (size_t k = 0; k < n; k++)
-        for (int dir = 0; dir < 2; dir++) {
-            size_t q = dir ? k + w : k + 1;
-            int ok = cls[k] == PROVISIONAL && (dir ? q < n : (k + 1) % w != 0) &&
-                     cls[q] == PROVISIONAL;
-            int b = ok ? pair_bucket(img, m, k, q) : -1;
-            bucket[2 * k + (size_t)dir] = b < 0 ? UINT16_MAX : (uint16_t)b;
-            if (b >= 0)
-                start[b + 1]++, total++;
-        }
-    for (int b = 0; b < PAIR_BUCKETS; b++)
-        start[b + 1] += start[b];
-    uint32_t *pairs = malloc((total ? total : 1) * sizeof *pairs);
-    for (size_t i = 0; pairs && i < 2 * n; i++)
-        if (bucket[i] != UINT16_MAX)
-            pairs[start[bucket[i]]++] = (uint32_t)i;
-    free(start);
-    free(bucket);
-    *count = total;
-    return pairs;
+    /* f < PAIR_RANGE exactly when f / PAIR_RANGE * PAIR_BUCKETS < PAIR_BUCKETS (a
+     * quotient below 1 does not round up to 1), so this is the test of one pair */
+    for (size_t x = 0; x < n; x++) {
+        double v = f[x] / PAIR_RANGE * PAIR_BUCKETS;
+        b[x] = v < PAIR_BUCKETS ? (int32_t)v : NO_BUCKET;
+    }
+    for (size_t x = 0; x < n; x++)
+        out[x] = (ca[x] == PROVISIONAL) & (cb[x] == PROVISIONAL) ? (uint16_t)b[x] : NO_BUCKET;
 }
 
-static lam_status init_merge(const lam_image *img, size_t channels, const uint8_t *cls,
-                             uint32_t *lab, merge_state *m, lam_error *err)
+/* Buckets of the pairs of rows y0..y1 into bk: the pairs (k, k + 1) of
+ * the strip's pixels first, then (k, k + w); NO_BUCKET when there is no
+ * pair. f, b: width doubles and integers of scratch. */
+static void strip_buckets(const pair_ctx *p, size_t y0, size_t y1, uint16_t *bk, double *f,
+                          int32_t *b)
 {
-    size_t n = img->width * img->height;
-    m->parent = lab;
-    m->channels = channels;
-    m->count = malloc(n * sizeof *m->count);
-    m->sum = malloc(n * channels * sizeof *m->sum);
-    if (!m->count || !m->sum) {
-        free(m->count);
-        free(m->sum);
+    size_t w = p->img->width, h = p->img->height, npx = (y1 - y0) * w;
+    for (size_t y = y0; y < y1; y++) {
+        uint16_t *right = bk + (y - y0) * w, *down = right + npx;
+        row_buckets(p, y * w, 1, w - 1, f, b, right);
+        right[w - 1] = NO_BUCKET;
+        if (y + 1 < h)
+            row_buckets(p, y * w, w, w, f, b, down);
+        else
+            for (size_t x = 0; x < w; x++)
+                down[x] = NO_BUCKET;
+    }
+}
+
+static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    pair_ctx *p = vctx;
+    pair_lists *L = p->L;
+    size_t w = p->img->width, h = p->img->height;
+    uint16_t *bk = malloc(2 * L->rows * w * sizeof *bk);
+    double *f = malloc(w * sizeof *f);
+    int32_t *bi = malloc(w * sizeof *bi);
+    uint32_t cnt[PAIR_BUCKETS + 1];
+    if (!bk || !f || !bi) {
+        p->failed = 1;
+        begin = end;
+    }
+    for (size_t s = begin; s < end; s++) {
+        size_t y0 = s * L->rows, y1 = y0 + L->rows < h ? y0 + L->rows : h;
+        size_t npx = (y1 - y0) * w;
+        strip_buckets(p, y0, y1, bk, f, bi);
+        memset(cnt, 0, sizeof cnt);
+        for (size_t i = 0; i < 2 * npx; i++)
+            cnt[bk[i]]++;
+        uint32_t *start = L->start + s * (PAIR_BUCKETS + 1);
+        start[0] = 0;
+        for (size_t b = 0; b < PAIR_BUCKETS; b++)
+            start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
+        for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
+            for (size_t dir = 0; dir < 2; dir++) {
+                uint16_t b = bk[i + dir * npx];
+                if (b == NO_BUCKET)
+                    continue;
+                if (L->code)
+                    L->code[s * L->cap + cnt[b]++] = (uint16_t)(2 * i + dir);
+                else
+                    L->pairs[s * L->cap + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
+            }
+    }
+    free(bk);
+    free(f);
+    free(bi);
+}
+
+static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
+                               size_t threads, pair_lists *L, lam_error *err)
+{
+    size_t w = img->width, h = img->height;
+    L->rows = 32768 / w < STRIP_ROWS ? (32768 / w ? 32768 / w : 1) : STRIP_ROWS;
+    L->strips = (h + L->rows - 1) / L->rows;
+    L->cap = 2 * L->rows * w;
+    L->code = NULL;
+    L->pairs = NULL;
+    if (L->cap <= 65536) /* 16-bit codes: half the memory of pixel indices */
+        L->code = malloc(L->strips * L->cap * sizeof *L->code);
+    else
+        L->pairs = malloc(L->strips * L->cap * sizeof *L->pairs);
+    L->start = malloc(L->strips * (PAIR_BUCKETS + 1) * sizeof *L->start);
+    pair_ctx p = {img, cls, m, L, 0};
+    if ((L->code || L->pairs) && L->start)
+        lam_parallel_for(L->strips, threads, pair_strips, &p);
+    if ((!L->code && !L->pairs) || !L->start || p.failed) {
+        free(L->code);
+        free(L->pairs);
+        free(L->start);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
-    }
-    for (size_t k = 0; k < n; k++) {
-        lab[k] = (uint32_t)k;
-        m->count[k] = cls[k] == PROVISIONAL;
-        for (size_t c = 0; c < channels; c++)
-            m->sum[k * channels + c] = img->plane[c][k];
     }
     return LAM_OK;
 }
 
-/* Every pixel to its root, roots numbered 1..m in row-major order (label 0:
- * no region). Parents point to smaller indices, so one forward pass
- * compresses every path. */
-static uint32_t number_regions(const uint8_t *cls, uint32_t *lab, size_t n)
+typedef struct init_ctx {
+    const lam_image *img;
+    const uint8_t *cls;
+    merge_state *m;
+} init_ctx;
+
+static void init_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
-    for (size_t k = 0; k < n; k++)
-        if (cls[k] == PROVISIONAL)
-            lab[k] = lab[lab[k]];
+    (void)slice;
+    init_ctx *ic = vctx;
+    size_t w = ic->img->width, ch = ic->m->channels, S = ic->m->stride;
+    const float *restrict p0 = ic->img->plane[0], *restrict p1 = ic->img->plane[1];
+    const float *restrict p2 = ic->img->plane[2];
+    const uint8_t *restrict cls = ic->cls;
+    word *restrict node = ic->m->node;
+    if (ch == 3) /* the usual case, without the channel loop */
+        for (size_t k = begin * w; k < end * w; k++) {
+            node[4 * k].u = ROOT | (cls[k] == PROVISIONAL);
+            node[4 * k + 1].f = p0[k];
+            node[4 * k + 2].f = p1[k];
+            node[4 * k + 3].f = p2[k];
+        }
+    else
+        for (size_t k = begin * w; k < end * w; k++) {
+            word *nd = node + k * S;
+            nd[0].u = ROOT | (cls[k] == PROVISIONAL);
+            for (size_t c = 0; c < ch; c++)
+                nd[1 + c].f = ic->img->plane[c][k];
+        }
+}
+
+/* Every pixel to its region's id, ids 1..m in row-major order of the roots
+ * (label 0: no region), written as the label map over the start of the
+ * node array (pixel k's label lands where nodes <= k lay, already read).
+ * Parents point to smaller indices, so one forward pass resolves every
+ * pixel (ids are flagged while indices are mixed in). */
+static uint32_t number_regions(const uint8_t *cls, word *node, size_t S, size_t n)
+{
     uint32_t m = 0;
     for (size_t k = 0; k < n; k++) {
+        uint32_t p = node[k * S].u;
         if (cls[k] != PROVISIONAL)
-            lab[k] = UINT32_MAX;
-        else if (lab[k] == k)
-            lab[k] = (uint32_t)n + ++m; /* ids offset by n while roots are mixed in */
+            node[k * S].u = 0;
+        else if (p & ROOT)
+            node[k * S].u = ROOT | ++m;
         else
-            lab[k] = lab[lab[k]];
+            node[k * S].u = node[p * S].u;
     }
+    uint32_t *lab = &node[0].u;
     for (size_t k = 0; k < n; k++)
-        lab[k] = lab[k] == UINT32_MAX ? 0 : lab[k] - (uint32_t)n;
+        lab[k] = node[k * S].u & ~ROOT;
     return m;
 }
 
+/* One pair: two regions merge when their means agree. */
+static void merge_pair(merge_state *m, size_t k, size_t q)
+{
+    word *node = m->node;
+    size_t S = m->stride;
+    uint32_t a = root_of(node, S, (uint32_t)k), b = root_of(node, S, (uint32_t)q);
+    if (a == b)
+        return;
+    uint32_t ca = node[a * S].u & ~ROOT, cb = node[b * S].u & ~ROOT;
+    if (means_agree(m, a, b, ca, cb))
+        merge(m, a, b, ca + cb);
+}
+
+/* Where the merging is in the pair lists: bucket b of strip s, i of e. */
+typedef struct cursor {
+    size_t b, s;
+    uint32_t i, e;
+} cursor;
+
+#define BATCH 256
+#define AHEAD 16
+
+/* The next (up to) BATCH pairs in order: bucket by bucket, each across the
+ * strips. 0 at the end. */
+static size_t gather(const pair_lists *L, cursor *c, uint32_t *batch)
+{
+    size_t nb = 0;
+    while (nb < BATCH && c->b < PAIR_BUCKETS) {
+        if (c->i < c->e) {
+            size_t at = c->s * L->cap + c->i++;
+            batch[nb++] = L->code ? (uint32_t)(c->s * L->cap + L->code[at]) : L->pairs[at];
+            continue;
+        }
+        if (++c->s == L->strips) {
+            c->s = 0;
+            if (++c->b == PAIR_BUCKETS)
+                break;
+        }
+        const uint32_t *st = L->start + c->s * (PAIR_BUCKETS + 1);
+        c->i = st[c->b];
+        c->e = st[c->b + 1];
+    }
+    return nb;
+}
+
+/* Neighbour pairs in order of increasing difference, a batch at a time so
+ * that the nodes of later pairs are fetched while earlier ones merge: the
+ * loop waits for memory, not for arithmetic. */
+static void merge_pairs(merge_state *m, const pair_lists *L, size_t w)
+{
+    uint32_t batch[BATCH];
+    size_t nb, S = m->stride;
+    cursor c = {0, 0, L->start[0], L->start[1]};
+    while ((nb = gather(L, &c, batch)) > 0)
+        for (size_t j = 0; j < nb; j++) {
+#ifdef __GNUC__
+            if (j + AHEAD < nb) {
+                size_t k2 = batch[j + AHEAD] / 2;
+                __builtin_prefetch(&m->node[k2 * S]);
+                __builtin_prefetch(&m->node[(batch[j + AHEAD] % 2 ? k2 + w : k2 + 1) * S]);
+            }
+#endif
+            size_t k = batch[j] / 2;
+            merge_pair(m, k, batch[j] % 2 ? k + w : k + 1);
+        }
+}
+
+/* The regions of the provisional pixels into seg->label (replaced by the
+ * shrunk node array). */
 static lam_status grow(const lam_image *img, size_t channels, const double *delta,
-                       const double *sigma, int bright, const uint8_t *cls, uint32_t *lab,
+                       const double *sigma, int bright, lam_segmentation *seg, size_t threads,
                        uint32_t *regions, lam_error *err)
 {
-    size_t w = img->width, n = img->width * img->height, np = 0;
+    size_t w = img->width, n = img->width * img->height;
     merge_state m;
     m.bright = bright;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
-    lam_status st = init_merge(img, channels, cls, lab, &m, err);
-    if (st)
+    m.channels = channels;
+    m.stride = 1 + channels;
+    if (!(m.node = malloc(n * m.stride * sizeof *m.node)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    init_ctx ic = {img, seg->cls, &m};
+    lam_parallel_for(img->height, threads, init_rows, &ic);
+    pair_lists L;
+    lam_status st = sorted_pairs(img, seg->cls, &m, threads, &L, err);
+    if (st) {
+        free(m.node);
         return st;
-    uint32_t *pairs = sorted_pairs(img, cls, &m, &np);
-    if (!pairs)
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
-    for (size_t i = 0; i < np; i++) {
-        size_t k = pairs[i] / 2, q = pairs[i] % 2 ? k + w : k + 1;
-        uint32_t a = root_of(lab, (uint32_t)k), b = root_of(lab, (uint32_t)q);
-        if (a != b && means_agree(&m, a, b))
-            merge(&m, a, b);
     }
-    free(pairs);
-    free(m.count);
-    free(m.sum);
-    if (!st)
-        *regions = number_regions(cls, lab, n);
-    return st;
+    merge_pairs(&m, &L, w);
+    free(L.code);
+    free(L.pairs);
+    free(L.start);
+    *regions = number_regions(seg->cls, m.node, m.stride, n);
+    uint32_t *lab = realloc(m.node, n * sizeof *lab);
+    free(seg->label);
+    seg->label = lab ? lab : &m.node[0].u; /* a failed shrink keeps the larger block */
+    return LAM_OK;
 }
 
 /* Is a region the bare substrate: every channel within tolerance of zero? */
@@ -321,6 +631,26 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
  * low-frequency texture - flat-field residuals and, above all, JPEG block
  * steps - which two parts of one flake may differ by. */
 #define CELL 8
+
+/* One cell's mean per channel (NaN unless every pixel is near zero); the
+ * zero test is made once per pixel for all channels. */
+static void cell_mean(const lam_image *img, size_t channels, const double *zero, size_t cx,
+                      size_t cy, float *mean)
+{
+    size_t w = img->width;
+    double sum[3] = {0, 0, 0};
+    int ok = 1;
+    for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
+        for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
+            size_t k = y * w + x;
+            ok &= near_zero(img, channels, zero, k);
+            for (size_t c = 0; c < channels; c++)
+                sum[c] += img->plane[c][k];
+        }
+    for (size_t c = 0; c < 3; c++)
+        mean[c] = ok ? (float)(sum[c] / (CELL * CELL)) : NAN;
+}
+
 static void cell_texture(const lam_image *img, size_t channels, const double *zero, double *out)
 {
     size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
@@ -336,18 +666,9 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
     }
     for (size_t cy = 0; cy < ch; cy++)
         for (size_t cx = 0; cx < cw; cx++)
-            for (size_t c = 0; c < 3; c++) {
-                double sum = 0;
-                int ok = 1;
-                for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
-                    for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
-                        size_t k = y * w + x;
-                        ok &= near_zero(img, channels, zero, k);
-                        sum += c < channels ? img->plane[c][k] : 0;
-                    }
-                mean[(cy * cw + cx) * 3 + c] = ok ? (float)(sum / (CELL * CELL)) : NAN;
-            }
-    for (size_t c = 0; c < channels; c++) {
+            cell_mean(img, channels, zero, cx, cy, &mean[(cy * cw + cx) * 3]);
+    uint32_t *hist = malloc(65536 * sizeof *hist);
+    for (size_t c = 0; c < channels && hist; c++) {
         m = 0;
         for (size_t i = 0; i < cw * ch; i++) {
             float a = mean[i * 3 + c], r = (i + 1) % cw ? mean[(i + 1) * 3 + c] : NAN;
@@ -357,11 +678,10 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
             if (!isnan(a) && !isnan(b))
                 d[m++] = fabsf(a - b);
         }
-        if (m > 20) {
-            qsort(d, m, sizeof *d, cmp_float);
-            out[c] = d[m * 9 / 10];
-        }
+        if (m > 20)
+            out[c] = select_nonneg(d, m, m * 9 / 10, hist);
     }
+    free(hist);
     free(mean);
     free(d);
 }
@@ -372,19 +692,42 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
  * merge when their means differ by less than delta - a sixth of a monolayer
  * step, or the artefacts (JPEG block steps) when they are larger - plus
  * three standard errors of the pixel noise 'sigma'. */
+/* The texture statistics are independent: the differences (both lags in
+ * one pass) and the cell means run side by side. */
+typedef struct texture_job {
+    const lam_image *img;
+    size_t channels;
+    const double *zero;
+    diff_stats d[2];
+    double cells[3];
+} texture_job;
+
+static void texture_tasks(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    texture_job *j = vctx;
+    for (size_t t = begin; t < end; t++)
+        if (t == 0)
+            difference_stats(j->img, j->channels, j->zero, j->d);
+        else
+            cell_texture(j->img, j->channels, j->zero, j->cells);
+}
+
 static void thresholds(const lam_image *img, size_t channels, const double *c1,
-                       const double noise[3], edge_ctx *ec, double delta[3], double sigma[3])
+                       const double noise[3], size_t threads, edge_ctx *ec, double delta[3],
+                       double sigma[3])
 {
     double step1 = 0, zero[3];
     for (size_t c = 0; c < channels; c++)
         step1 = fmax(step1, fabs(c1[c]));
     for (size_t c = 0; c < 3; c++)
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
-    diff_stats d1, d2;
-    double cells[3];
-    difference_stats(img, channels, zero, 1, &d1);
-    difference_stats(img, channels, zero, 2, &d2);
-    cell_texture(img, channels, zero, cells);
+    texture_job job;
+    memset(&job, 0, sizeof job);
+    job.img = img, job.channels = channels, job.zero = zero;
+    lam_parallel_for(2, threads, texture_tasks, &job);
+    const diff_stats d1 = job.d[0], d2 = job.d[1];
+    const double *cells = job.cells;
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
         ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
@@ -404,23 +747,23 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (n >= UINT32_MAX / 2)
         return lam_error_set(err, LAM_ETOOBIG, "image too large to label");
     edge_ctx ec;
+    memset(&ec, 0, sizeof ec);
     ec.img = img;
     ec.channels = channels;
     ec.cls = seg->cls;
     ec.bright = opt->bright_scaling;
     double delta[3], sigma[3];
-    thresholds(img, channels, c1, noise, &ec, delta, sigma);
+    size_t threads = opt->threads ? opt->threads : 1;
+    thresholds(img, channels, c1, noise, threads, &ec, delta, sigma);
     /* substrate patches differ by its low-frequency errors, and flat areas
      * of a JPEG by whole DC steps: let them merge */
     for (size_t c = 0; c < 3; c++)
         delta[c] = fmax(fmax(delta[c], 2 * scatter[c]), FILE_STEP_MERGE * opt->file_step[c]);
-    lam_parallel_for(h, opt->threads ? opt->threads : 1, edge_rows, &ec);
-    lam_status st = dilate_edges(seg->cls, w, h, err);
+    lam_status st = mark_edges(&ec, threads, err);
     if (st)
         return st;
     uint32_t m = 0;
-    if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg->cls, seg->label, &m,
-                   err)))
+    if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
         return st;
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
     uint8_t *depth = lam__boundary_depth(seg->label, w, h);
