@@ -55,7 +55,7 @@ static void oxide_cell(const cJSON *root, char *out, size_t n)
     double est = num(ox, "estimate"), nom = num(ox, "nominal");
     if (isfinite(est))
         snprintf(out, n, "%.1f", est);
-    else if (isfinite(nom))
+    else if (isfinite(nom) && nom >= 0) /* < 0: a stack without SiO2 */
         snprintf(out, n, "(%.0f)", nom);
     else
         snprintf(out, n, "-");

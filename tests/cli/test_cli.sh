@@ -217,5 +217,16 @@ grep -q '"observation":[[:space:]]*"transmission"' "$T/out" && ok "the JSON name
 printf '{"schema":"lamina-setup/1","observation":"transmission","substrate":{"stack":[{"material":"SiO2","thickness_nm":285}],"base":"Si"}}' > "$T/opaque.json"
 expect_rc 1 "transmission into silicon is refused" "$BIN" predict --setup "$T/opaque.json"
 
+# a nearly anti-reflecting substrate in an analysis: warning code, dR and SNR per region
+printf '{"schema":"lamina-setup/1","substrate":{"stack":[{"material":"Si3N4","thickness_nm":67}],"base":"Si"},"um_per_px":0.2}' > "$T/ar-setup.json"
+printf '{"schema":"lamina-scene/1","setup":"ar-setup.json","width":320,"height":240,"exposure":0.5,"full_well":10000,"seed":7,"flakes":[{"layers":1,"polygon":[[40,40],[160,30],[170,160],[50,170]]}]}' > "$T/ar-scene.json"
+expect_rc 0 "render graphene on nitride" "$BIN" render "$T/ar-scene.json" -o "$T/ar.png"
+expect_rc 0 "analyze graphene on nitride" "$BIN" analyze --setup "$T/ar-setup.json" --out "$T/ar" "$T/ar.png"
+grep -q '"code":[[:space:]]*"anti-reflection"' "$T/ar/ar.json" && grep -q '"delta_reflectance"' "$T/ar/ar.json" && grep -q '"snr"' "$T/ar/ar.json" \
+    && ok "anti-reflection: warning code, dR and SNR in the JSON" || bad "AR analysis JSON: $(grep -c warning "$T/ar/ar.json")"
+grep -q "warning: the substrate is nearly anti-reflecting" "$T/err" && ok "anti-reflection warning on stderr" || bad "AR stderr: $(cat "$T/err")"
+grep -q "(-1)" "$T/out" && bad "a stack without SiO2 shows oxide (-1)" || ok "no oxide shown for a stack without SiO2"
+grep -q '"code"' "$T/h/HT285-N05-tile04.json" && bad "the hBN sample has warnings: $(grep -A1 '"code"' "$T/h/HT285-N05-tile04.json")" || ok "the hBN sample analyses without warnings"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
