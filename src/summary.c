@@ -245,6 +245,17 @@ lam_status lam_summary_image_line(const char *path, const cJSON *r, int resumed,
     fprintf(f, "%-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", base ? base + 1 : path,
             cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2], by[3], by[4],
             resumed ? "  (results kept)" : "");
+    size_t films = 0; /* hBN (issue 14): the flakes' thicknesses instead */
+    double lo = INFINITY, hi = -INFINITY;
+    cJSON_ArrayForEach(g, regs) {
+        const cJSON *th = cJSON_GetObjectItemCaseSensitive(g, "thickness_nm");
+        if (!cJSON_IsObject(th) || has_flag(g, "small"))
+            continue;
+        double d = num(th, "estimate");
+        films++, lo = fmin(lo, d), hi = fmax(hi, d);
+    }
+    if (films)
+        fprintf(f, "  %zu flake%s %.1f-%.1f nm", films, films == 1 ? "" : "s", lo, hi);
     if (best) {
         const cJSON *a = cJSON_GetObjectItemCaseSensitive(best, "area_um2");
         fprintf(f, "  largest 1L: #%d", cJSON_GetObjectItemCaseSensitive(best, "id")->valueint);

@@ -5,6 +5,9 @@
 #include "check.h"
 #include "lamina/analyze.h"
 #include "lamina/thickness.h"
+#include "lamina/summary.h"
+#include <cjson/cJSON.h>
+#include <stdlib.h>
 
 #include <complex.h>
 #include <math.h>
@@ -82,6 +85,56 @@ static void test_modes(void)
     lam_model_free(m);
 }
 
+/* The terminal's text for hBN results (summary.c): the batch table lists
+ * the thicknesses with the target marked, an hBN-only batch has no
+ * monolayer list, the watch line gives the range. */
+static void test_summary(void)
+{
+    const char *text =
+        "{\"substrate\":{\"oxide_nm\":{\"estimate\":287.5}},\"regions\":["
+        "{\"id\":1,\"layers\":null,\"label\":\"12 nm\",\"class\":\"thickness\",\"flags\":[],"
+        "\"thickness_nm\":{\"estimate\":12.3,\"lo\":10.1,\"hi\":14.9,\"probability\":0.99,"
+        "\"order_ambiguous\":false}},"
+        "{\"id\":2,\"layers\":null,\"label\":\"31 nm\",\"class\":\"thickness\",\"flags\":[],"
+        "\"thickness_nm\":{\"estimate\":30.8,\"lo\":26.3,\"hi\":37.3,\"probability\":0.63,"
+        "\"order_ambiguous\":true}},"
+        "{\"id\":3,\"layers\":null,\"label\":\"2 nm\",\"class\":\"thickness\",\"flags\":[\"small\"],"
+        "\"thickness_nm\":{\"estimate\":2,\"lo\":1,\"hi\":3,\"probability\":1,"
+        "\"order_ambiguous\":false}}],\"warnings\":[]}";
+    cJSON *json = cJSON_Parse(text);
+    lam_batch_item item;
+    memset(&item, 0, sizeof item);
+    item.path = "chip/t1.png";
+    snprintf(item.stem, sizeof item.stem, "t1");
+    item.json = json;
+    lam_batch b;
+    memset(&b, 0, sizeof b);
+    b.count = 1;
+    b.items = &item;
+    lam_stage stage = lam_stage_default();
+    lam_error err;
+    lam_error_clear(&err);
+    char *out = NULL;
+    double target[2] = {10, 30};
+    check_int(lam_summary_batch_target(&b, NULL, &stage, target, &out, &err), LAM_OK,
+              "batch table with thicknesses");
+    check_true(out && strstr(out, "flakes by thickness"), "the thickness table is there");
+    check_true(out && strstr(out, "12.3") && strstr(out, "in target"), "12.3 nm is in the target");
+    check_true(out && strstr(out, "order-ambiguous") && !strstr(out, "ambiguous in target"),
+               "the ambiguous 30.8 nm flake is not called in target");
+    check_true(out && !strstr(out, "monolayer candidates"), "no monolayer list for hBN only");
+    check_true(out && !strstr(out, " 2.0 "), "small regions left out");
+    check_true(out && strstr(out, "    0      2     0"), "two thickness regions in the 'thick' column:\n%s",
+               out ? out : "");
+    free(out);
+    out = NULL;
+    check_int(lam_summary_image_line("chip/t1.png", json, 0, &out, &err), LAM_OK, "watch line");
+    check_true(out && strstr(out, "2 flakes 12.3-30.8 nm"), "the watch line gives the range (%s)",
+               out ? out : "");
+    free(out);
+    cJSON_Delete(json);
+}
+
 int main(void)
 {
     lam_error_init_gsl();
@@ -89,5 +142,6 @@ int main(void)
     if (!check_refdata_dir())
         check_skip("tests/data/nk not found");
     test_modes();
+    test_summary();
     return check_summary();
 }
