@@ -59,7 +59,7 @@ LIBDIR   ?= $(PREFIX)/lib
 INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
-.PHONY: accuracy fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
+.PHONY: accuracy accuracy-crystals fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
         check-reference check-report
 
 all: $(BIN)
@@ -119,12 +119,17 @@ $(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
 # libtiff come with the library: the tests also use them to write their own
 # files and as an independent sRGB reference).
 # tests/robust/ scores the analysis on the generator's images.
-ROBUST_OBJ := $(BUILD)/tests/robust/robust.o
+ROBUST_OBJ := $(BUILD)/tests/robust/robust.o $(BUILD)/tests/robust/crystals.o
 $(BUILD)/tests/robust/%.o: tests/robust/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -c $< -o $@
 $(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
 	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+# build/tests/robust/crystals: issue 14's hBN and TMD figures (make accuracy-crystals).
+$(BUILD)/tests/robust/crystals: tests/robust/crystals_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+accuracy-crystals: $(BUILD)/tests/robust/crystals
+	$(BUILD)/tests/robust/crystals --scenes $${SCENES:-4} --log $(BUILD)/tests/crystals-wrong.log
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
                 $(SYNTH_OBJ) $(ROBUST_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
@@ -142,7 +147,10 @@ demo: deps
 	    samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png samples/HT285-D04-tile21.jpg
 	$(BIN) analyze --setup samples/bench3-setup-90nm.json --out lamina-out/HT090 \
 	    samples/HT090-B02-tile03.png
-	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285 and lamina-out/HT090: STEM.json, STEM.annotated.png, STEM.layers.png, STEM.contrast.svg"
+	$(BIN) analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out lamina-out/hbn \
+	    samples/HT285-N05-tile04.png
+	$(BIN) analyze --setup samples/bench3-setup-mos2.json --out lamina-out/mos2 samples/HT090-M02-tile01.png
+	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285, lamina-out/HT090, lamina-out/hbn (hBN thicknesses) and lamina-out/mos2 (MoS2): STEM.json, STEM.annotated.png, STEM.layers.png, STEM.contrast.svg"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:

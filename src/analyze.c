@@ -3,6 +3,7 @@
 #include "analyze_internal.h"
 #include "lamina/clock.h"
 #include "lamina/contrast.h"
+#include "lamina/nksource.h"
 #include "lamina/parallel.h"
 
 #include <math.h>
@@ -35,6 +36,7 @@ void lam_analysis_free(lam_analysis *a)
         return;
     lam_segmentation_free(a->seg);
     free(a->results);
+    free(a->thickness);
     free(a->measured);
     free(a->display);
     lam_estimate_free(a->estimate);
@@ -174,7 +176,7 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
     a->fermi_ev = fabs(s->sheet.fermi_ev);
     a->pupil = s->pupil == LAM_PUPIL_SIN ? "sin" : "sin-cos";
     a->camera = camera_name(s->camera.kind);
-    lam_sheet_describe(&s->sheet, a->conductivity, sizeof a->conductivity);
+    lam_setup_describe_flake(s, a->conductivity, sizeof a->conductivity);
     a->defaulted_count = s->defaulted_count;
     memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
 }
@@ -296,6 +298,8 @@ static lam_status segment_stage(run *r, lam_error *err)
     so.threads = r->threads;
     file_steps(r->img, &a->substrate, a->channels, so.file_step);
     memcpy(a->file_step, so.file_step, sizeof a->file_step);
+    /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
+    so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
                                         a->substrate.noise, a->substrate.tile_scatter, &so,
                                         a->seg, err);
@@ -410,6 +414,11 @@ static lam_status fit_stage(run *r, lam_error *err)
     lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
     if (!st && needs_wide_search(a))
         st = wide_search(r, &wide, err);
+    /* material hook (issue 14): a TMD's other published n,k, kept when they
+     * explain the regions better (lamina/nksource.h) */
+    if (!st)
+        st = lam_nksource_select(r->setup, r->opt->shared_prior, &a->estimate, &r->model,
+                                 a->conductivity, sizeof a->conductivity, err);
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
     if (st)
@@ -513,11 +522,24 @@ static lam_status posterior_stage(run *r, lam_error *err)
     io.min_area_px = a->um_per_px > 0 ? r->opt->min_area_um2 / (a->um_per_px * a->um_per_px)
                                       : r->opt->min_area_px;
     a->infer = io;
+    /* ---- material hook (issue 14): a crystal of continuous thickness (hBN)
+     * gets a thickness posterior per region instead of a layer count
+     * (lamina/thickness.h: its own oxide profile and region results) ---- */
+    if (lam_thickness_applies(r->setup)) {
+        if (!(a->results = calloc(a->count ? a->count : 1, sizeof *a->results)))
+            return lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
+        lam_status st = lam_thickness_analyze(a, r->img, r->setup, r->model,
+                                              r->opt->oxide_tolerance_nm, err);
+        MARK(r, LAM_T_REGIONS);
+        return st;
+    }
     lam_est_view *v = malloc(2 * sizeof *v), *vr = NULL;
-    lam_fermi_table *ft = r->opt->fit_fermi ? malloc(sizeof *ft) : NULL;
+    /* material hook (issue 14): the Fermi level is graphene's */
+    int fermi = r->opt->fit_fermi && lam_setup_crystal_kind(r->setup) == LAM_CRYSTAL_SHEETS;
+    lam_fermi_table *ft = fermi ? malloc(sizeof *ft) : NULL;
     a->results = calloc(a->count ? a->count : 1, sizeof *a->results);
     lam_status st = LAM_OK;
-    if (!v || !a->results || (r->opt->fit_fermi && !ft))
+    if (!v || !a->results || (fermi && !ft))
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
     else
         st = lam_estimate_view(a->estimate, 0, r->model, v, err);

@@ -16,6 +16,7 @@
 #define OFF_NOMINAL_NM 15.0     /* oxide farther than this (and 3 sigma) from nominal */
 #define POOR_FIT_SHARE 0.25     /* of the flakes' area that fits no layer count */
 #define RIVAL_WORTH_SAYING 0.05 /* a second reading this probable can move a label */
+#define AR_REFLECTANCE 0.03     /* substrate reflectance below this in a channel (issue 14) */
 
 /* ---- the image against the setup's camera ---- */
 
@@ -79,7 +80,7 @@ static double code_step(const lam_image *img, double level)
 
 /* How many standard errors apart 1L and 2L are for the median region that
  * informs the fit, in the channel that separates them best. */
-static double separation(const lam_analysis *a, size_t *median_px)
+static double separation(const lam_analysis *a, size_t ref, size_t *median_px)
 {
     size_t n = 0, px[512];
     for (size_t i = 0; i < a->count && n < 512; i++)
@@ -97,33 +98,43 @@ static double separation(const lam_analysis *a, size_t *median_px)
     double best = 0;
     for (size_t c = 0; c < a->channels; c++) {
         double se = a->substrate.noise[c] * sqrt(a->substrate.kappa / (double)*median_px);
-        double step = fabs(a->ladder.contrast[2][c] - a->ladder.contrast[1][c]);
+        double step = fabs(a->ladder.contrast[2 * ref][c] - a->ladder.contrast[ref][c]);
         best = fmax(best, step / fmax(se, 1e-12));
     }
     return best;
 }
 
-static void check_exposure(lam_analysis *a, const lam_image *img)
+/* The contrast the exposure must resolve: a monolayer's, or for a crystal
+ * of continuous thickness (hBN, searched by the nanometre) that of 3
+ * layers, about 1 nm (issue 14). */
+static size_t reference_layers(const lam_setup *s)
+{
+    return lam_setup_crystal_kind(s) == LAM_CRYSTAL_CONTINUOUS ? 3 : 1;
+}
+
+static void check_exposure(lam_analysis *a, const lam_image *img, const lam_setup *s)
 {
     double level = 0, step1 = 0;
+    size_t ref = reference_layers(s);
     for (size_t c = 0; c < a->channels; c++) {
         level = fmax(level, a->substrate.level[c]);
-        step1 = fmax(step1, fabs(a->ladder.contrast[1][c]));
+        step1 = fmax(step1, fabs(a->ladder.contrast[ref][c]));
     }
     double code = code_step(img, level);
     size_t px;
-    double sep = separation(a, &px);
+    double sep = separation(a, ref, &px);
     if (level < DARK_LEVEL || code > CODE_STEP_FRACTION * step1)
         lam_warnings_add(&a->warnings, "underexposed",
                          "the substrate is at %.1f %% of full scale: one %d-bit code is %.1f %% "
-                         "of its brightness against a monolayer contrast of %.1f %%; expose "
+                         "of its brightness against a %s contrast of %.1f %%; expose "
                          "longer or save 16-bit files",
-                         100 * level, img->bit_depth, 100 * code, 100 * step1);
+                         100 * level, img->bit_depth, 100 * code,
+                         ref == 1 ? "monolayer" : "1 nm film's", 100 * step1);
     else if (sep < SEPARATION_MIN)
         lam_warnings_add(&a->warnings, "underexposed",
-                         "the pixel noise is high: for a region of %zu px, 1L and 2L differ by "
+                         "the pixel noise is high: for a region of %zu px, %s differ by "
                          "only %.1f standard errors; average frames or expose longer",
-                         px, sep);
+                         px, ref == 1 ? "1L and 2L" : "1 and 2 nm", sep);
 }
 
 static void check_oxide(lam_analysis *a)
@@ -175,7 +186,7 @@ static void check_defaults(lam_analysis *a, const lam_setup *s)
                      what, oxide);
 }
 
-static void check_fit(lam_analysis *a)
+static void check_fit(lam_analysis *a, const lam_setup *s)
 {
     double area = 0, bad = 0;
     for (size_t i = 0; i < a->count; i++) {
@@ -188,15 +199,21 @@ static void check_fit(lam_analysis *a)
     }
     if (area > 0 && bad > POOR_FIT_SHARE * area)
         lam_warnings_add(&a->warnings, "poor-fit",
-                         "%.0f %% of the flakes' area fits no layer count of %s on this "
+                         "%.0f %% of the flakes' area fits no %s of %s on this "
                          "substrate: residue, another material, or a substrate other than the "
                          "setup's; those regions are 'unmodelled'",
-                         100 * bad / area, "graphene");
+                         100 * bad / area,
+                         lam_setup_crystal_kind(s) == LAM_CRYSTAL_CONTINUOUS ? "thickness"
+                                                                             : "layer count",
+                         s->flake[0] ? s->flake : "graphene");
 }
 
-static void check_modes(lam_analysis *a)
+static void check_modes(lam_analysis *a, const lam_setup *s)
 {
     const lam_estimate *e = a->estimate, *r = e->rival;
+    lam_crystal_kind kind = lam_setup_crystal_kind(s);
+    if (kind == LAM_CRYSTAL_CONTINUOUS) /* hBN: thicknesses from their own oxide profile */
+        return;
     if (!r || e->rival_weight < RIVAL_WORTH_SAYING || e->rival_weight > 1 - RIVAL_WORTH_SAYING)
         return;
     double w = e->rival_weight, d1 = e->image[0].oxide.value, d2 = r->image[0].oxide.value;
@@ -207,6 +224,14 @@ static void check_modes(lam_analysis *a)
                             "together"
                           : "give the camera and NA, calibrate on a flake of known thickness, "
                             "or analyse more images of the chip together";
+    if (kind != LAM_CRYSTAL_SHEETS) { /* a crystal's n,k is given: the readings are oxides */
+        lam_warnings_add(&a->warnings, "two-readings",
+                         "the flakes fit two readings almost equally well (%.0f %% : %.0f %%): "
+                         "oxide %.1f nm or %.1f nm, which count the %s layers differently; the "
+                         "probabilities include both; %s",
+                         100 * (1 - w), 100 * w, d1, d2, s->flake, remedy);
+        return;
+    }
     lam_warnings_add(&a->warnings, "two-readings",
                      "the flakes fit two readings almost equally well (%.0f %% : %.0f %%): "
                      "oxide %.1f nm with graphene's response scaled %.2f, or %.1f nm scaled "
@@ -214,6 +239,27 @@ static void check_modes(lam_analysis *a)
                      "%s",
                      100 * (1 - w), 100 * w, d1, 1 + e->shared[LAM_NU_CONTINUUM].value, d2,
                      1 + r->shared[LAM_NU_CONTINUUM].value, remedy);
+}
+
+/* A nearly anti-reflecting substrate (Si3N4 near 67 nm, issue 14): the
+ * relative contrast divides by a small substrate reflectance, so stray
+ * light and the substrate model's errors dominate it; the JSON then gives
+ * each region dR and its signal-to-noise as well (report_json.c). */
+static void check_antireflection(lam_analysis *a)
+{
+    static const char *rgb[3] = {"red", "green", "blue"};
+    for (size_t c = 0; c < a->channels; c++)
+        if (a->ladder.substrate[c] < AR_REFLECTANCE) {
+            lam_warnings_add(&a->warnings, "anti-reflection",
+                             "the substrate is nearly anti-reflecting (model reflectance %.3f in "
+                             "the %s channel, below %.2f): the relative contrast divides by it, "
+                             "so stray light and errors of the substrate model dominate; each "
+                             "region also carries delta_reflectance and snr; prefer another "
+                             "film thickness (lamina plan) for counting layers",
+                             a->ladder.substrate[c], a->channels == 3 ? rgb[c] : "camera's",
+                             AR_REFLECTANCE);
+            return;
+        }
 }
 
 /* One channel: the contrast of N layers on one oxide equals that of 2N on
@@ -232,12 +278,13 @@ static void check_monochrome(lam_analysis *a, const lam_setup *s)
 
 void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s)
 {
-    check_modes(a);
+    check_modes(a, s);
     check_monochrome(a, s);
     check_saturation(a, img);
-    check_exposure(a, img);
+    check_exposure(a, img, s);
     check_oxide(a);
     check_encoding(a, img, s);
     check_defaults(a, s);
-    check_fit(a);
+    check_fit(a, s);
+    check_antireflection(a);
 }

@@ -327,7 +327,7 @@ static void label_markup(const lam_analysis *a, size_t i, char *out, size_t n)
     lam_draw_probability(p, 2, t, sizeof t);
     if (isfinite(p))
         snprintf(prob, sizeof prob, " %s", t[0] == '>' ? "&gt;0.99" : t);
-    const char *what = ci >= 1 ? r->label : ci == LAM_DRAW_THICK ? "thick"
+    const char *what = ci >= 1 || ci == LAM_DRAW_THICK ? r->label /* "thick", "12.3 nm" */
                        : (r->flags & LAM_FLAG_UNMODELLED) ? "unmodelled" : "unassigned";
     snprintf(out, n, "<span foreground=\"#%06x\" weight=\"bold\">%s</span>%s%s"
                      "<span foreground=\"#a8a8a8\"> #%u</span>",

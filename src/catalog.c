@@ -21,7 +21,31 @@ lam_status lam_catalog_init(lam_catalog *c)
 {
     memset(c, 0, sizeof *c);
     c->stage = lam_stage_default();
+    c->target_nm[0] = c->target_nm[1] = NAN;
     return LAM_OK;
+}
+
+void lam_catalog_set_target(lam_catalog *c, double lo_nm, double hi_nm)
+{
+    c->target_nm[0] = lo_nm;
+    c->target_nm[1] = hi_nm;
+}
+
+/* A region's thickness (hBN) and its rank against the target: 0 inside
+ * (one order), 99 outside (after the layer counts, before "thick"). */
+static void read_thickness(const lam_catalog *c, const cJSON *r, lam_catalog_entry *e)
+{
+    const cJSON *t = cJSON_GetObjectItemCaseSensitive(r, "thickness_nm");
+    e->thickness_nm[0] = lam_json_number_or(t, "estimate", NAN);
+    e->thickness_nm[1] = lam_json_number_or(t, "lo", NAN);
+    e->thickness_nm[2] = lam_json_number_or(t, "hi", NAN);
+    e->target_distance = NAN;
+    double d = e->thickness_nm[0], lo = c->target_nm[0], hi = c->target_nm[1];
+    if (!isfinite(d) || !isfinite(lo) || strcmp(e->class_, "thickness"))
+        return;
+    e->target_distance = d < lo ? log(lo / d) : d > hi ? log(d / hi) : 0;
+    const cJSON *amb = cJSON_GetObjectItemCaseSensitive(t, "order_ambiguous");
+    e->rank = e->target_distance == 0 && !cJSON_IsTrue(amb) ? 0 : 99;
 }
 
 void lam_catalog_clear(lam_catalog *c)
@@ -148,7 +172,7 @@ static lam_status add_image(lam_catalog *c, const cJSON *an, const char *path,
     return LAM_OK;
 }
 
-static void read_entry(const cJSON *r, lam_catalog_entry *e)
+static void read_entry(const lam_catalog *c, const cJSON *r, lam_catalog_entry *e)
 {
     e->region = (unsigned)lam_json_number_or(r, "id", 0);
     const char *lab = str(r, "label");
@@ -171,6 +195,7 @@ static void read_entry(const cJSON *r, lam_catalog_entry *e)
         }
     classify(r, e);
     e->rank = e->layers > 0 ? e->layers : !strcmp(e->class_, "thick") ? 100 : 101;
+    read_thickness(c, r, e);
     e->stage_um[0] = e->stage_um[1] = e->chip_um[0] = e->chip_um[1] = NAN;
 }
 
@@ -190,7 +215,7 @@ lam_status lam_catalog_add(lam_catalog *c, const cJSON *an, const char *image_pa
         lam_catalog_entry *e = &c->entries[c->count];
         memset(e, 0, sizeof *e);
         e->image = c->n_images - 1;
-        read_entry(r, e);
+        read_entry(c, r, e);
         im->regions++;
         c->count++;
     }
@@ -205,6 +230,8 @@ static int cmp_entries(const void *x, const void *y, void *ctx)
         return a->rank - b->rank;
     if (a->small != b->small)
         return a->small - b->small;
+    if (a->rank == 99 && a->target_distance != b->target_distance)
+        return a->target_distance < b->target_distance ? -1 : 1;
     double ua = (a->usable[2] - a->usable[0] + 1) * (a->usable[3] - a->usable[1] + 1);
     double ub = (b->usable[2] - b->usable[0] + 1) * (b->usable[3] - b->usable[1] + 1);
     if (ua != ub)
@@ -320,7 +347,7 @@ lam_status lam_catalog_finish(lam_catalog *c, lam_error *err)
 int lam_catalog_is_candidate(const lam_catalog *c, size_t i)
 {
     const lam_catalog_entry *e = &c->entries[i];
-    return e->layers > 0 && !e->small && !e->duplicate_of;
+    return (e->layers > 0 || e->rank == 0) && !e->small && !e->duplicate_of;
 }
 
 const char *lam_catalog_image_warnings(const lam_catalog *c, size_t image)

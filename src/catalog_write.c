@@ -13,7 +13,8 @@
 static const char *const columns[] = {
     "rank", "image", "region", "label", "class", "layers", "probability", "area_px",
     "area_um2", "bbox_px", "usable_rect_px", "usable_w_um", "usable_h_um", "centroid_x_px",
-    "centroid_y_px", "chip_x_um", "chip_y_um", "flags", "also_seen_in"};
+    "centroid_y_px", "chip_x_um", "chip_y_um", "flags", "also_seen_in", "thickness_nm",
+    "thickness_interval_nm"};
 #define NCOL (sizeof columns / sizeof columns[0])
 
 /* A CSV field, quoted (RFC 4180) when it holds a comma, quote or newline. */
@@ -64,8 +65,8 @@ static void make_row(const lam_catalog *c, size_t i, size_t rank, row *r)
     memset(r->is_list, 0, sizeof r->is_list);
     memset(r->is_num, 0, sizeof r->is_num);
     for (size_t k = 0; k < NCOL; k++)
-        r->is_num[k] = k == 0 || k == 2 || (k >= 5 && k <= 8) || (k >= 11 && k <= 16);
-    r->is_list[9] = r->is_list[10] = r->is_list[17] = r->is_list[18] = 1;
+        r->is_num[k] = k == 0 || k == 2 || (k >= 5 && k <= 8) || (k >= 11 && k <= 16) || k == 19;
+    r->is_list[9] = r->is_list[10] = r->is_list[17] = r->is_list[18] = r->is_list[20] = 1;
     snprintf(r->v[0], sizeof r->v[0], "%zu", rank);
     snprintf(r->v[1], sizeof r->v[1], "%s", c->images[e->image].path);
     snprintf(r->v[2], sizeof r->v[2], "%u", e->region);
@@ -87,6 +88,10 @@ static void make_row(const lam_catalog *c, size_t i, size_t rank, row *r)
     fmt_num(e->chip_um[0], 2, r->v[15], sizeof r->v[15]);
     fmt_num(e->chip_um[1], 2, r->v[16], sizeof r->v[16]);
     snprintf(r->v[17], sizeof r->v[17], "%s", e->flags);
+    fmt_num(e->thickness_nm[0], 3, r->v[19], sizeof r->v[19]);
+    r->v[20][0] = '\0';
+    if (isfinite(e->thickness_nm[1]))
+        list_of(r->v[20], sizeof r->v[20], e->thickness_nm + 1, 2, 3);
     r->v[18][0] = '\0';
     for (size_t j = 0; j < c->count; j++)
         if (c->entries[j].duplicate_of == i + 1) {
@@ -110,9 +115,10 @@ static cJSON *json_row(const row *r)
             snprintf(buf, sizeof buf, "%s", t);
             for (char *save = NULL, *tok = strtok_r(buf, ";", &save); tok;
                  tok = strtok_r(NULL, ";", &save))
-                cJSON_AddItemToArray(item, k == 9 || k == 10 ? cJSON_CreateNumber(atof(tok))
-                                                             : cJSON_CreateString(tok));
-            if (k == 10 && !t[0]) {
+                cJSON_AddItemToArray(item, k == 9 || k == 10 || k == 20
+                                               ? cJSON_CreateNumber(atof(tok))
+                                               : cJSON_CreateString(tok));
+            if ((k == 10 || k == 20) && !t[0]) {
                 cJSON_Delete(item);
                 item = cJSON_CreateNull();
             }

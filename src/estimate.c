@@ -108,6 +108,13 @@ static void optics_priors(lam_estimate *e, const lam_setup *s)
                                : DEFAULT_SD_LOG_GAIN;
     double sd_width = cam_given ? given_sd(s->sigma.log_width, GIVEN_SD_LOG_WIDTH)
                                 : DEFAULT_SD_LOG_WIDTH;
+    /* other crystals (lamina/crystal.h): the published n,k of one crystal
+     * differ by up to ~20 % in contrast (TMDs), which a wider per-channel
+     * gain absorbs; the model floor starts from the crystal's */
+    if (s->crystal && s->crystal->kind != LAM_CRYSTAL_SHEETS) {
+        sd_gain = fmax(sd_gain, s->crystal->log_gain_sd);
+        e->floor_rel = e->floor_rel_prior = fmax(e->floor_rel_prior, s->crystal->floor_rel);
+    }
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
         int on = c < e->channels;
         double shift = on ? s->camera_shift_nm[c] : 0, lg = on ? log(s->camera_gain[c]) : 0;

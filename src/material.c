@@ -1,6 +1,7 @@
 /* material.c - dispersion models (constant, Sellmeier, Lorentz, compact Si,
  * tables) and the built-in materials with their sources. */
 #include "lamina/material.h"
+#include "material_internal.h"
 
 #include <errno.h>
 #include <math.h>
@@ -20,6 +21,62 @@ static const double si_a = 2.5740530863457796, si_b = 32.96403368285421,
                     si_c = 103.78829375613063, si_e1 = 3.48, si_e2 = 4.02;
 static const double si_lnk[4] = {0.9142036208954436, -5.85459328590334,
                                  14.379978264258266, -16.725978815246535};
+
+/* The Sellmeier materials of other crystals and substrates, with their
+ * published coefficients (refractiveindex.info formula 1: n^2 - 1 = A +
+ * sum B l^2 / (l^2 - C^2), l in um; formula 2 lists C^2, converted here). */
+static int formula_builtin(const char *name, lam_material *m)
+{
+    m->kind = LAM_MATERIAL_SELLMEIER;
+    if (!strcasecmp(name, "hBN-Lee")) {
+        /* S. Y. Lee et al., Phys. Status Solidi B 256, 1800417 (2019), in-plane,
+         * published 450-1200 nm; transparent, so the formula is used to 380 nm */
+        m->terms = 1;
+        m->b[0] = 3.263, m->c[0] = 0.1644;
+        m->min_nm = 380, m->max_nm = 1200;
+        m->source = "Lee et al., Phys. Status Solidi B 256, 1800417 (2019), extended to 380 nm";
+    } else if (!strcasecmp(name, "hBN-Rah")) {
+        /* Y. Rah et al., Opt. Lett. 44, 3797 (2019), in-plane, 400-1600 nm:
+         * n^2 - 1 = 3.3361 l^2 / (l^2 - 0.026322 um^2) */
+        m->terms = 1;
+        m->b[0] = 3.3361, m->c[0] = sqrt(0.026322);
+        m->min_nm = 380, m->max_nm = 1600;
+        m->source = "Rah et al., Opt. Lett. 44, 3797 (2019), extended to 380 nm";
+    } else if (!strcasecmp(name, "Si3N4")) {
+        /* K. Luke et al., Opt. Lett. 40, 4823 (2015), 310-5504 nm */
+        m->terms = 2;
+        m->b[0] = 3.0249, m->c[0] = 0.1353406;
+        m->b[1] = 40314, m->c[1] = 1239.842;
+        m->min_nm = 310, m->max_nm = 5504;
+        m->source = "Luke et al., Opt. Lett. 40, 4823 (2015) Sellmeier";
+    } else if (!strcasecmp(name, "Si3N4-Philipp")) {
+        /* H. R. Philipp, J. Electrochem. Soc. 120, 295 (1973), in the form of
+         * T. Baak, Appl. Opt. 21, 1069 (1982), 207-1240 nm */
+        m->terms = 1;
+        m->b[0] = 2.8939, m->c[0] = 0.13967;
+        m->min_nm = 207, m->max_nm = 1240;
+        m->source = "Philipp, J. Electrochem. Soc. 120, 295 (1973) (Baak 1982 Sellmeier)";
+    } else {
+        return 0;
+    }
+    return 1;
+}
+
+/* A compiled table (src/material_tables.c), referenced, not copied. */
+static int static_builtin(const char *name, lam_material *m)
+{
+    const lam__nk_table *t = lam__nk_table_find(name);
+    if (!t)
+        return 0;
+    snprintf(m->name, sizeof m->name, "%s", t->name);
+    m->kind = LAM_MATERIAL_STATIC;
+    m->rows = t->rows;
+    m->nk = t->nk;
+    m->min_nm = t->min_nm;
+    m->max_nm = t->max_nm;
+    m->source = t->source;
+    return 1;
+}
 
 lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *err)
 {
@@ -72,10 +129,12 @@ lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *
         m.min_nm = 380;
         m.max_nm = 1052;
         m.source = "Sultanova et al., Acta Phys. Pol. A 116, 585 (2009), extended to 380 nm";
-    } else {
+    } else if (!formula_builtin(name, &m) && !static_builtin(name, &m)) {
         return lam_error_set(err, LAM_EINVAL,
-                             "unknown material '%s' (built in: air, SiO2, Si, hBN, PMMA, water; "
-                             "or give a CSV file wavelength_nm,n,k)",
+                             "unknown material '%s' (built in: air, SiO2, Si, hBN, hBN-Lee, "
+                             "hBN-Rah, PMMA, Si3N4, Si3N4-Philipp, water, MoS2-1L, MoS2-2L, MoS2-3L, MoS2-1L-Song, "
+                             "MoS2-bulk, WS2-1L, WSe2-1L, WSe2-1L-Gu, graphite, PDMS; or give a "
+                             "CSV file wavelength_nm,n,k)",
                              name);
     }
     *out = m;
@@ -236,6 +295,46 @@ lam_status lam_material_load_csv(const char *path, lam_material *out, lam_error 
     return st;
 }
 
+/* Steffen's monotone cubic (J. Astron. Astrophys. 239, 443 (1990), as in
+ * GSL's user tables) in photon energy through the compiled rows, column col;
+ * held at the end rows outside them. */
+static double steffen_slope(double h0, double h1, double d0, double d1)
+{
+    double p = (d0 * h1 + d1 * h0) / (h0 + h1);
+    return (copysign(1.0, d0) + copysign(1.0, d1)) * fmin(fmin(fabs(d0), fabs(d1)), 0.5 * fabs(p));
+}
+
+static double static_eval(const double (*t)[3], size_t rows, double nm, int col)
+{
+    if (nm <= t[0][0])
+        return t[0][col];
+    if (nm >= t[rows - 1][0])
+        return t[rows - 1][col];
+    size_t lo = 0, hi = rows - 1;
+    while (hi - lo > 1) {
+        size_t mid = (lo + hi) / 2;
+        if (t[mid][0] <= nm)
+            lo = mid;
+        else
+            hi = mid;
+    }
+    /* energies x of rows lo-1 .. hi+1 (decreasing with the row) */
+    double x0 = HC_EV_NM / t[lo][0], x1 = HC_EV_NM / t[hi][0], e = HC_EV_NM / nm;
+    double h = x0 - x1, d = (t[lo][col] - t[hi][col]) / h, m0 = d, m1 = d;
+    if (lo > 0) {
+        double xa = HC_EV_NM / t[lo - 1][0];
+        m0 = steffen_slope(xa - x0, h, (t[lo - 1][col] - t[lo][col]) / (xa - x0), d);
+    }
+    if (hi + 1 < rows) {
+        double xb = HC_EV_NM / t[hi + 1][0];
+        m1 = steffen_slope(h, x1 - xb, d, (t[hi][col] - t[hi + 1][col]) / (x1 - xb));
+    }
+    /* Hermite cubic on [x1, x0] in u = (e - x1) / h, slopes in energy */
+    double u = (e - x1) / h, u2 = u * u, u3 = u2 * u;
+    return (2 * u3 - 3 * u2 + 1) * t[hi][col] + (u3 - 2 * u2 + u) * h * m1 +
+           (-2 * u3 + 3 * u2) * t[lo][col] + (u3 - u2) * h * m0;
+}
+
 double complex lam_material_index_eval(const lam_material *m, double wavelength_nm)
 {
     switch (m->kind) {
@@ -267,6 +366,10 @@ double complex lam_material_index_eval(const lam_material *m, double wavelength_
         double n = gsl_spline_eval(m->spline_n, e, NULL);
         double k = gsl_spline_eval(m->spline_k, e, NULL);
         return n + I * (k > 0 ? k : 0.0);
+    }
+    case LAM_MATERIAL_STATIC: {
+        double k = static_eval(m->nk, m->rows, wavelength_nm, 2);
+        return static_eval(m->nk, m->rows, wavelength_nm, 1) + I * (k > 0 ? k : 0.0);
     }
     }
     return 1.0;

@@ -30,11 +30,13 @@ typedef struct substrate_slot {
     unsigned long used, filled; /* last use; when it was (re)filled */
     double oxide_nm, na;
     double complex *y, *eta0, *gap_cos, *gap_sin;
+    double *tnorm; /* transmission only: 4 Re(eta_base) / |B_top|^2 (unit field at the base) */
 } substrate_slot;
 
 struct lam_model {
     size_t channels, max_layers, nwl, layers, oxide_layer, cone_nodes_max;
     double n_ambient, interlayer_nm;
+    int transmission;        /* T through the stack into the base instead of R (stamps) */
     lam_pupil_weight pupil;
     lam_sheet_params sheet;
     lam_camera camera;       /* borrowed table pointers: the setup must outlive only alloc */
@@ -47,6 +49,8 @@ struct lam_model {
     double complex *n_layer; /* layers x nwl */
     double complex *n_base;  /* nwl */
     double complex *n_film;  /* nwl: flake index when flakes are films, else NULL */
+    size_t film_layers;      /* N <= film_layers have their own index (crystals) ... */
+    double complex *n_film_layer; /* ... film_layers x nwl, else NULL */
     double complex *basis;   /* nwl x 4: sheet conductivity basis at basis_fermi */
     double basis_fermi;
     int have_basis;
@@ -74,6 +78,7 @@ static void free_slots(lam_model *m)
         free(m->slot[i].eta0);
         free(m->slot[i].gap_cos);
         free(m->slot[i].gap_sin);
+        free(m->slot[i].tnorm);
     }
 }
 
@@ -88,6 +93,7 @@ void lam_model_free(lam_model *m)
     free(m->n_layer);
     free(m->n_base);
     free(m->n_film);
+    free(m->n_film_layer);
     free(m->basis);
     free(m->y_sheet);
     free(m->rbar);
@@ -128,6 +134,8 @@ static int alloc_arrays(lam_model *m)
         s->gap_cos = malloc(per_slot / 2 * sizeof *s->gap_cos);
         s->gap_sin = malloc(per_slot / 2 * sizeof *s->gap_sin);
         ok = s->y && s->eta0 && s->gap_cos && s->gap_sin;
+        if (ok && m->transmission)
+            ok = (s->tnorm = malloc(per_slot * sizeof *s->tnorm)) != NULL;
     }
     return ok;
 }
@@ -152,6 +160,16 @@ static lam_status fill_materials(lam_model *m, const lam_setup *s, lam_error *er
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
     for (size_t l = 0; l < m->nwl && !st; l++)
         st = lam_material_index(&s->flake_film, m->wl[l], &m->n_film[l], err);
+    if (st || !s->flake_layer_films)
+        return st;
+    /* crystals: the n,k of the 1L.. films where published (lamina/crystal.h) */
+    m->film_layers = s->flake_layer_films;
+    if (!(m->n_film_layer = malloc(m->film_layers * m->nwl * sizeof *m->n_film_layer)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
+    for (size_t j = 0; j < m->film_layers && !st; j++)
+        for (size_t l = 0; l < m->nwl && !st; l++)
+            st = lam_material_index(&s->flake_layer_film[j], m->wl[l],
+                                    &m->n_film_layer[j * m->nwl + l], err);
     return st;
 }
 
@@ -230,6 +248,7 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
     m->layers = s->layers;
     m->oxide_layer = lam_setup_oxide_layer(s);
     m->interlayer_nm = s->interlayer_nm;
+    m->transmission = s->transmission;
     m->sheet = s->sheet;
     m->pupil = s->pupil;
     m->cone_nodes_max = s->cone_nodes < 1 ? 1 : (s->cone_nodes > MAX_NODES ? MAX_NODES : s->cone_nodes);
@@ -242,6 +261,12 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
     if ((st = copy_camera(m, &cam, err)) || (st = init_spectrum(m, s, grid, &cam, err)) ||
         (st = fill_materials(m, s, err)))
         goto fail;
+    if (m->transmission && cimag(m->n_base[m->nwl / 2]) > 1e-3) {
+        st = lam_error_set(err, LAM_EINVAL,
+                           "transmission needs a transparent base (PDMS, glass), not %s",
+                           s->base.name);
+        goto fail;
+    }
     lam_model_point *d = &m->defaults;
     d->v[LAM_MP_OXIDE] = lam_setup_oxide(s) >= 0 ? lam_setup_oxide(s) : 0;
     d->v[LAM_MP_NA] = s->illumination_na;
@@ -419,6 +444,37 @@ static double complex substrate_admittance(const lam_model *m, size_t l, double 
     return y;
 }
 
+/* Transmission: the substrate's admittance and 4 Re(eta_base) / |B|^2,
+ * carrying the unnormalised fields (B, C) up from a unit field in the base
+ * (the thick base is the exit medium; its back face and the incoherent
+ * light bouncing inside it change T_flake and T_substrate alike, to within
+ * R_back x (R'_flake - R'_substrate) ~ 1e-4). */
+static double complex substrate_transmission(const lam_model *m, size_t l, double oxide_nm,
+                                             double kx, lam_pol pol, double *tnorm)
+{
+    double k0 = 2.0 * M_PI / m->wl[l];
+    double complex qb = lam_tmm_q(m->n_base[l], kx), eb = lam_tmm_eta(m->n_base[l], qb, pol);
+    double complex b = 1.0, c = eb;
+    for (size_t j = m->layers; j-- > 0;) {
+        double complex n = m->n_layer[j * m->nwl + l], q = lam_tmm_q(n, kx);
+        double complex e = lam_tmm_eta(n, q, pol), ph = k0 * q *
+                                                     (j == m->oxide_layer ? oxide_nm : m->layer_nm[j]);
+        double complex cp = ccos(ph), sp = csin(ph), nb = cp * b - I * sp * c / e;
+        c = -I * e * sp * b + cp * c;
+        b = nb;
+    }
+    *tnorm = 4.0 * creal(eb) / creal(b * conj(b));
+    return c / b;
+}
+
+/* T of the stack above a substrate with fields (b, cc) relative to those
+ * at its top (lam_model: transmission). */
+static double transmittance(double tnorm, double complex eta0, double complex b, double complex cc)
+{
+    double complex d = eta0 * b + cc;
+    return tnorm * creal(eta0) / creal(d * conj(d));
+}
+
 static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
 {
     const cone *c = &m->cone_cache;
@@ -431,8 +487,13 @@ static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
             s->gap_cos[k] = ccos(gap);
             s->gap_sin[k] = csin(gap);
             for (int pol = 0; pol < 2; pol++) {
-                s->y[2 * k + (size_t)pol] = substrate_admittance(m, l, oxide_nm, kx, (lam_pol)pol);
-                s->eta0[2 * k + (size_t)pol] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
+                size_t i = 2 * k + (size_t)pol;
+                if (m->transmission)
+                    s->y[i] = substrate_transmission(m, l, oxide_nm, kx, (lam_pol)pol,
+                                                     &s->tnorm[i]);
+                else
+                    s->y[i] = substrate_admittance(m, l, oxide_nm, kx, (lam_pol)pol);
+                s->eta0[i] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
             }
         }
     }
@@ -490,7 +551,8 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
                 double complex eta0 = s->eta0[2 * k + (size_t)pol];
                 double complex b = 1.0, cc = s->y[2 * k + (size_t)pol];
                 double complex isg_eta = I * sg / eta0, isg_eta0 = I * sg * eta0;
-                acc[0] += wt * reflectance(eta0, cc);
+                double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
+                acc[0] += wt * (tn > 0 ? transmittance(tn, eta0, b, cc) : reflectance(eta0, cc));
                 for (size_t N = 1; N <= layers; N++) {
                     if (N > 1) {
                         double complex nb = cg * b - isg_eta * cc;
@@ -498,6 +560,10 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
                         b = nb;
                     }
                     cc += ys * b;
+                    if (tn > 0) {
+                        acc[N] += wt * transmittance(tn, eta0, b, cc);
+                        continue;
+                    }
                     double complex r = (eta0 * b - cc) / (eta0 * b + cc);
                     acc[N] += wt * creal(r * conj(r));
                 }
@@ -522,9 +588,23 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
             for (int pol = 0; pol < npol; pol++) {
                 double complex ysub = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
                 double complex ef = lam_tmm_eta(m->n_film[l], qf, (lam_pol)pol);
+                double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
                 for (size_t N = 0; N <= layers; N++) {
-                    double complex ph = k0 * qf * m->interlayer_nm * (double)N;
-                    double complex y = N ? lam_tmm_through_film(ysub, ef, ccos(ph), csin(ph)) : ysub;
+                    double complex qn = qf, en = ef;
+                    if (N >= 1 && N <= m->film_layers) {
+                        /* a crystal's N-layer film with its own n,k */
+                        double complex nn = m->n_film_layer[(N - 1) * m->nwl + l];
+                        qn = lam_tmm_q(nn, kx);
+                        en = lam_tmm_eta(nn, qn, (lam_pol)pol);
+                    }
+                    double complex ph = k0 * qn * m->interlayer_nm * (double)N;
+                    if (tn > 0) {
+                        double complex cp = ccos(ph), sp = csin(ph);
+                        acc[N] += wt * transmittance(tn, eta0, cp - I * sp * ysub / en,
+                                                     -I * en * sp + cp * ysub);
+                        continue;
+                    }
+                    double complex y = N ? lam_tmm_through_film(ysub, en, ccos(ph), csin(ph)) : ysub;
                     acc[N] += wt * reflectance(eta0, y);
                 }
             }
@@ -660,4 +740,73 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
     }
     free(a);
     return st;
+}
+
+/* ---- films of any thickness (continuous-thickness crystals) ---- */
+
+/* Cone- and channel-weighted reflectance of the film of each thickness at
+ * one wavelength, added to acc[k][c] (and the bare substrate's to sub[c]):
+ * r = (r01 + r12 z) / (1 + r01 r12 z), z = exp(2 i k0 q d). */
+static void films_at(const lam_model *m, const substrate_slot *s, size_t l, double scale,
+                     const double *d, size_t count, double (*acc)[LAM_MAX_CHANNELS],
+                     double *sub)
+{
+    const cone *c = &m->cone_cache;
+    double k0 = 2.0 * M_PI / m->wl[l], w[LAM_MAX_CHANNELS];
+    for (size_t ch = 0; ch < m->channels; ch++)
+        w[ch] = m->weight[ch * m->nwl + l];
+    double complex nf = 1 + scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
+    for (size_t t = 0; t < c->nodes; t++) {
+        size_t k = l * c->nodes + t;
+        int npol = c->sin_t[t] > 0 ? 2 : 1;
+        double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
+        double complex qf = lam_tmm_q(nf, kx), twice = 2.0 * I * k0 * qf;
+        for (int pol = 0; pol < npol; pol++) {
+            double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
+            double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
+            double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
+            double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
+            double rs = tn > 0 ? transmittance(tn, eta0, 1.0, y) : reflectance(eta0, y);
+            for (size_t ch = 0; ch < m->channels; ch++)
+                sub[ch] += wt * w[ch] * rs;
+            for (size_t j = 0; j < count; j++) {
+                double R;
+                if (tn > 0) { /* the film's matrix on the substrate's fields */
+                    double complex e = cexp(0.5 * twice * d[j]), cp = creal(e), sp = cimag(e);
+                    if (cimag(qf) != 0)
+                        cp = ccos(-0.5 * I * twice * d[j]), sp = csin(-0.5 * I * twice * d[j]);
+                    R = wt * transmittance(tn, eta0, cp - I * sp * y / ef, -I * ef * sp + cp * y);
+                } else {
+                    double complex z = cexp(twice * d[j]), r = (r01 + r12 * z) / (1 + r01 * r12 * z);
+                    R = wt * creal(r * conj(r));
+                }
+                for (size_t ch = 0; ch < m->channels; ch++)
+                    acc[j][ch] += w[ch] * R;
+            }
+        }
+    }
+}
+
+lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double index_scale,
+                                const double *thickness_nm, size_t count,
+                                double (*contrast)[LAM_MAX_CHANNELS], lam_error *err)
+{
+    if (!m->n_film)
+        return lam_error_set(err, LAM_EINVAL, "the model's flakes are not films");
+    double oxide = p->v[LAM_MP_OXIDE];
+    if (!(oxide >= 0 && oxide <= 5000) || !(index_scale > 0))
+        return lam_error_set(err, LAM_ERANGE, "oxide %g nm or index scale %g out of range", oxide,
+                             index_scale);
+    lam_status st;
+    if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) || (st = ensure_weights(m, p, err)))
+        return st;
+    const substrate_slot *s = substrate_for(m, oxide);
+    double sub[LAM_MAX_CHANNELS] = {0};
+    memset(contrast, 0, count * sizeof *contrast);
+    for (size_t l = 0; l < m->nwl; l++)
+        films_at(m, s, l, index_scale, thickness_nm, count, contrast, sub);
+    for (size_t j = 0; j < count; j++)
+        for (size_t ch = 0; ch < m->channels; ch++)
+            contrast[j][ch] = (sub[ch] - contrast[j][ch]) / sub[ch];
+    return LAM_OK;
 }

@@ -35,8 +35,8 @@ static const char *const scene_keys[] = {
     "full_well", "read_noise", "seed", "jpeg_quality", "absolute", "gradient", "flakes",
     "residue", "dust", NULL};
 /* keys of an object of each list (flakes, residue, dust) */
-static const char *const object_keys[3][6] = {
-    {"layers", "fermi_eV", "polygon", "circle", NULL},
+static const char *const object_keys[3][7] = {
+    {"layers", "fermi_eV", "polygon", "circle", "material", "thickness_nm", NULL},
     {"thickness_nm", "polygon", "circle", NULL},
     {"polygon", "circle", NULL}};
 
@@ -102,6 +102,8 @@ static lam_status read_frame(const cJSON *root, lam_scene *s, lam_error *err)
     double w = 640, h = 480, seed = 1, q = 92;
     lam_status st;
     s->oxide_nm = lam_setup_oxide(&s->setup);
+    if (s->oxide_nm < 0)
+        s->oxide_nm = 0; /* no SiO2 in the stack (nitride, a stamp): the value is unused */
     if ((st = num(root, "width", 8, 20000, &w, err)) ||
         (st = num(root, "height", 8, 20000, &h, err)) ||
         (st = num(root, "oxide_nm", 0, 2000, &s->oxide_nm, err)) ||
@@ -135,6 +137,32 @@ static lam_status read_frame(const cJSON *root, lam_scene *s, lam_error *err)
     return LAM_OK;
 }
 
+/* A flake's "material" (default: the setup's): a crystal name or
+ * "graphite"; a film material (hBN, graphite) needs its thickness_nm. */
+static lam_status read_flake_material(const cJSON *item, const char *path, const lam_scene *s,
+                                      lam_scene_object *o, int has_t, lam_error *err)
+{
+    const cJSON *m = cJSON_GetObjectItemCaseSensitive(item, "material");
+    if (m && !cJSON_IsString(m))
+        return lam_error_set(err, LAM_EFORMAT, "%s.material: expected a string", path);
+    snprintf(o->material, sizeof o->material, "%s", m ? m->valuestring : "");
+    const char *name = o->material[0] ? o->material : s->setup.flake;
+    int graphite = !strcasecmp(name, "graphite");
+    const lam_crystal *c = graphite ? NULL : lam_crystal_find(name);
+    if (!graphite && !c)
+        return lam_error_set(err, LAM_ERANGE, "%s.material: '%s' is not a flake material "
+                                              "(graphene, hBN, MoS2, WS2, WSe2, graphite, ...)",
+                             path, name);
+    int film = graphite || c->kind == LAM_CRYSTAL_CONTINUOUS;
+    if (film && !has_t)
+        return lam_error_set(err, LAM_EFORMAT, "%s.thickness_nm: needed for a %s flake", path,
+                             name);
+    if (!film && has_t)
+        return lam_error_set(err, LAM_EFORMAT,
+                             "%s.thickness_nm: a %s flake is given by its layers", path, name);
+    return LAM_OK;
+}
+
 static lam_status read_object(const cJSON *item, int list, size_t idx, lam_scene *s,
                               lam_error *err)
 {
@@ -146,14 +174,17 @@ static lam_status read_object(const cJSON *item, int list, size_t idx, lam_scene
     snprintf(key[2], sizeof key[2], "%s.thickness_nm", path);
     lam_scene_object *o = &s->objects[s->count];
     o->kind = (lam_scene_kind)list;
-    double layers = 1, fermi = s->setup.sheet.fermi_ev, t = 3;
+    double layers = 1, fermi = s->setup.sheet.fermi_ev, t = list ? 3 : NAN;
+    int has_t = 0;
     lam_status st;
     if ((st = lam_json_check_keys(item, path, object_keys[list], err)) ||
         (st = lam_json_number(item, "layers", key[0], 1, LAM_MODEL_MAX_LAYERS, &layers, NULL,
                               err)) ||
         (st = lam_json_number(item, "fermi_eV", key[1], -2, 2, &fermi, NULL, err)) ||
-        (st = lam_json_number(item, "thickness_nm", key[2], 0.1, 200, &t, NULL, err)) ||
-        (st = read_polygon(item, lists[list], idx, o, err)))
+        (st = lam_json_number(item, "thickness_nm", key[2], 0.1, list ? 200 : 1000, &t, &has_t,
+                              err)) ||
+        (st = read_polygon(item, lists[list], idx, o, err)) ||
+        (list == 0 && (st = read_flake_material(item, path, s, o, has_t, err))))
         return st;
     o->layers = (int)layers;
     o->fermi_ev = fermi;
@@ -223,10 +254,58 @@ lam_status lam_scene_load(const char *path, lam_scene *s, lam_error *err)
     return lam_json_read_file(path, SCENE_MAX_BYTES, "scene", SCENE_SCHEMA, scene_reader, s, err);
 }
 
+/* The setup a flake is drawn with: the scene's, its material replaced
+ * (a crystal), or graphite / hBN of the flake's thickness as one film (the
+ * model's film of one "layer" of that thickness). Tables are built in, so
+ * the shallow copy owns nothing new. */
+static lam_status flake_setup(const lam_scene *s, const lam_scene_object *o, lam_setup *su,
+                              size_t *layers, lam_error *err)
+{
+    *su = s->setup;
+    *layers = (size_t)o->layers;
+    const char *name = o->material[0] ? o->material : s->setup.flake;
+    int graphite = !strcasecmp(name, "graphite");
+    const lam_crystal *c = graphite ? NULL : lam_crystal_find(name);
+    if (!graphite && o->material[0]) {
+        su->flake_layer_films = 0; /* the copy must not clear the scene's films */
+        lam_status st = lam_setup_set_material(su, name, err);
+        if (st)
+            return st;
+    }
+    if (graphite || (c && c->kind == LAM_CRYSTAL_CONTINUOUS)) {
+        lam_status st = lam_material_builtin(graphite ? "graphite" : c->bulk, &su->flake_film, err);
+        if (st)
+            return st;
+        su->flake_as_film = 1;
+        su->flake_layer_films = 0;
+        su->interlayer_nm = o->thickness_nm;
+        *layers = 1;
+    }
+    return LAM_OK;
+}
+
+static lam_status flake_reflectance(const lam_scene *s, const lam_scene_object *o, double top,
+                                    double out[3], lam_error *err)
+{
+    lam_setup su;
+    size_t layers = 0;
+    lam_model *m = NULL;
+    lam_prediction *p = malloc(sizeof *p);
+    lam_status st = p ? flake_setup(s, o, &su, &layers, err)
+                      : lam_error_set(err, LAM_ENOMEM, "cannot allocate");
+    if (!st && !(st = lam_model_alloc(&su, layers, 0, &m, err)))
+        st = lam_model_eval(m, s->oxide_nm, o->fermi_ev, p, err);
+    for (size_t c = 0; !st && c < 3; c++)
+        out[c] = p->reflectance[layers][c] / top;
+    lam_model_free(m);
+    free(p);
+    return st;
+}
+
 /* Reflectance per channel of each object (rel[i]) and of the bare
  * substrate (rel[count]), scaled so that the substrate's brightest channel
  * is 1: the camera is white-balanced on the lamp, so the substrate keeps
- * its interference colour. */
+ * its interference colour (in transmission: the transmittance). */
 static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_error *err)
 {
     lam_setup su = s->setup;
@@ -251,10 +330,7 @@ static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_er
     for (size_t i = 0; i < s->count && !st; i++) {
         const lam_scene_object *o = &s->objects[i];
         if (o->kind == LAM_SCENE_FLAKE) {
-            if (!(st = lam_model_alloc(&su, (size_t)o->layers, 0, &m, err)))
-                st = lam_model_eval(m, s->oxide_nm, o->fermi_ev, p, err);
-            for (size_t c = 0; !st && c < 3; c++)
-                rel[i][c] = p->reflectance[o->layers][c] / top;
+            st = flake_reflectance(s, o, top, rel[i], err);
         } else if (o->kind == LAM_SCENE_RESIDUE) {
             /* a PMMA film on top of the substrate stack */
             lam_setup r = su;
@@ -317,6 +393,19 @@ static void blur_plane(float *p, float *tmp, size_t w, size_t h, double sigma)
         }
 }
 
+/* The truth map's value of a flake: its layers, or for a film of a given
+ * thickness its layer count (thickness / layer thickness, at most 253). */
+static uint8_t truth_value(const lam_setup *setup, const lam_scene_object *o)
+{
+    if (!(o->thickness_nm > 0))
+        return (uint8_t)o->layers;
+    const char *name = o->material[0] ? o->material : setup->flake;
+    const lam_crystal *c = lam_crystal_find(name);
+    double per = c ? c->layer_nm : 0.335;
+    long n = lround(o->thickness_nm / per);
+    return (uint8_t)(n < 1 ? 1 : n > 253 ? 253 : n);
+}
+
 lam_status lam_render(const lam_scene *s, lam_image **image, uint8_t **truth, lam_error *err)
 {
     size_t w = s->width, h = s->height, n = w * h;
@@ -345,7 +434,7 @@ lam_status lam_render(const lam_scene *s, lam_image **image, uint8_t **truth, la
                           (1 + s->gradient[0] * dx / (double)w + s->gradient[1] * dy / (double)h);
             unsigned code = cls[k];
             const lam_scene_object *o = code ? &s->objects[code - 1] : NULL;
-            tr[k] = !o ? 0 : (o->kind == LAM_SCENE_FLAKE ? (uint8_t)o->layers : 255);
+            tr[k] = !o ? 0 : (o->kind == LAM_SCENE_FLAKE ? truth_value(&s->setup, o) : 255);
             for (int c = 0; c < 3; c++)
                 img->plane[c][k] = (float)(s->exposure * flat * rel[o ? code - 1 : s->count][c]);
         }

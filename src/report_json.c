@@ -191,6 +191,33 @@ static void add_geometry(cJSON *o, const lam_analysis *a, const lam_region_resul
     }
 }
 
+/* ---- continuous-thickness crystals (hBN, issue 14): each region's
+ * thickness_nm {estimate, lo, hi, probability, order_ambiguous, modes} ---- */
+static void add_thickness(cJSON *o, const lam_thickness_result *t)
+{
+    if (!t->evaluated) {
+        cJSON_AddNullToObject(o, "thickness_nm");
+        return;
+    }
+    cJSON *j = cJSON_AddObjectToObject(o, "thickness_nm");
+    cJSON_AddNumberToObject(j, "estimate", round3(t->estimate));
+    cJSON_AddNumberToObject(j, "lo", round3(t->lo));
+    cJSON_AddNumberToObject(j, "hi", round3(t->hi));
+    cJSON_AddNumberToObject(j, "probability", round4(t->probability));
+    cJSON_AddBoolToObject(j, "order_ambiguous", t->order_ambiguous);
+    cJSON *modes = cJSON_AddArrayToObject(j, "modes");
+    for (size_t k = 0; k < t->modes; k++) {
+        cJSON *m = cJSON_CreateObject();
+        cJSON_AddNumberToObject(m, "estimate", round3(t->mode[k].estimate));
+        cJSON_AddNumberToObject(m, "lo", round3(t->mode[k].lo));
+        cJSON_AddNumberToObject(m, "hi", round3(t->mode[k].hi));
+        cJSON_AddNumberToObject(m, "probability", round4(t->mode[k].probability));
+        cJSON_AddItemToArray(modes, m);
+    }
+    cJSON_AddStringToObject(j, "interval", "posterior median and 95 % interval of the most "
+                                           "probable interference order (mode)");
+}
+
 static cJSON *region_json(const lam_analysis *a, size_t i)
 {
     const lam_region_result *r = &a->results[i];
@@ -212,6 +239,8 @@ static cJSON *region_json(const lam_analysis *a, size_t i)
     cJSON_AddNumberToObject(o, "interior_px", (double)s->interior);
     cJSON_AddBoolToObject(o, "informs_fit", a->measured[i].use);
     add_fermi(o, &r->fermi);
+    if (a->thickness)
+        add_thickness(o, &a->thickness[i]); /* hBN: the thickness posterior */
     cJSON *fl = cJSON_AddArrayToObject(o, "flags");
     for (int k = 0; k < LAM_FLAG_COUNT; k++)
         if (r->flags & (1u << k))
@@ -286,6 +315,27 @@ static void add_summary(cJSON *root, const lam_analysis *a)
                                             "spectroscopy or AFM before fabrication");
 }
 
+/* ---- nearly anti-reflecting substrates (issue 14: Si3N4 near 67 nm) ----
+ * With the anti-reflection warning (analyze_checks.c) each region also
+ * gets dR = C x R_sub (the model's substrate reflectance) and the
+ * measurement's signal-to-noise |C| / sigma_stat per channel. */
+static void add_antireflection(cJSON *regs, const lam_analysis *a)
+{
+    if (!lam_warnings_find(&a->warnings, "anti-reflection"))
+        return;
+    for (size_t i = 0; i < a->count; i++) {
+        cJSON *o = cJSON_GetArrayItem(regs, (int)i);
+        double dr[LAM_MAX_CHANNELS], snr[LAM_MAX_CHANNELS];
+        for (size_t c = 0; c < a->channels; c++) {
+            dr[c] = round(a->measured[i].mean[c] * a->ladder.substrate[c] * 1e6) / 1e6;
+            double sd = sqrt(a->measured[i].var[c]);
+            snr[c] = sd > 0 ? round(fabs(a->measured[i].mean[c]) / sd * 10) / 10 : 0;
+        }
+        cJSON_AddItemToObject(o, "delta_reflectance", vec(dr, a->channels));
+        cJSON_AddItemToObject(o, "snr", vec(snr, a->channels));
+    }
+}
+
 cJSON *lam_report_json(const lam_analysis *a)
 {
     cJSON *root = cJSON_CreateObject();
@@ -312,6 +362,7 @@ cJSON *lam_report_json(const lam_analysis *a)
         cJSON_AddStringToObject(o, "message", a->warnings.item[i].message);
         cJSON_AddItemToArray(w, o);
     }
+    add_antireflection(regs, a);
     return root;
 }
 

@@ -26,7 +26,15 @@ typedef struct edge_ctx {
     uint8_t *edge;      /* 1 on transition pixels (and the 2-pixel frame) */
     uint8_t *cls;
     int failed;
+    int bright;         /* scale the thresholds with the brightness (bright_scaling) */
 } edge_ctx;
+
+/* The noise scale of a pixel brighter than the substrate: sqrt(1 - C)
+ * (shot noise relative to the substrate's), 1 for darker pixels. */
+static float bright_factor(float contrast)
+{
+    return contrast < 0 ? sqrtf(1 - contrast) : 1.0f;
+}
 
 /* One inner row's test for one channel, branch-free so that it runs on
  * vector units: acc[x] becomes non-zero where a change exceeds t2 across
@@ -36,6 +44,19 @@ static void edge_test(const float *restrict p, size_t w, float t2, float t4, int
     for (size_t x = 2; x + 2 < w; x++)
         acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2) | (fabsf(p[x + w] - p[x - w]) > t2) |
                   (fabsf(p[x + 2] - p[x - 2]) > t4) | (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4);
+}
+
+/* The same with bright_scaling (crystals whose flakes outshine the
+ * substrate): both thresholds grow by the pixel's bright_factor. */
+static void edge_test_bright(const float *restrict p, size_t w, float t2, float t4,
+                             int32_t *restrict acc)
+{
+    for (size_t x = 2; x + 2 < w; x++) {
+        float b = bright_factor(p[x]);
+        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2 * b) | (fabsf(p[x + w] - p[x - w]) > t2 * b) |
+                  (fabsf(p[x + 2] - p[x - 2]) > t4 * b) |
+                  (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4 * b);
+    }
 }
 
 /* Transition pixels: the contrast changes by more than a channel's
@@ -60,7 +81,8 @@ static void edge_rows(size_t begin, size_t end, size_t slice, void *vctx)
         }
         memset(acc, 0, w * sizeof *acc);
         for (size_t c = 0; c < e->channels; c++)
-            edge_test(e->img->plane[c] + y * w, w, e->t2[c], e->t4[c], acc);
+            (e->bright ? edge_test_bright : edge_test)(e->img->plane[c] + y * w, w, e->t2[c],
+                                                       e->t4[c], acc);
         for (size_t x = 0; x < w; x++)
             out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
     }
@@ -239,6 +261,7 @@ typedef struct merge_state {
     size_t stride;      /* words per node: 1 + channels */
     size_t channels;
     double delta[3], sigma[3];
+    int bright;         /* bright_scaling: delta x b, sigma x sqrt(b), b = 1 - C */
 } merge_state;
 
 static uint32_t root_of(word *node, size_t stride, uint32_t a)
@@ -263,6 +286,13 @@ static int means_agree(const merge_state *m, uint32_t a, uint32_t b, uint32_t ca
     double na = ca, nb = cb, se = -1;
     const word *sa = m->node + a * m->stride + 1, *sb = m->node + b * m->stride + 1;
     for (size_t c = 0; c < m->channels; c++) {
+        if (m->bright) { /* the thresholds of the darker of the two */
+            double ma = sa[c].f / na, mb = sb[c].f / nb, f = bright_factor((float)fmin(ma, mb));
+            if (fabs(ma - mb) > m->delta[c] * f * f +
+                                    MERGE_SIGMAS * m->sigma[c] * f * sqrt(1 / na + 1 / nb))
+                return 0;
+            continue;
+        }
         double d = fabs(sa[c].f / na - sb[c].f / nb);
         if (d <= m->delta[c])
             continue;
@@ -554,11 +584,12 @@ static void merge_pairs(merge_state *m, const pair_lists *L, size_t w)
 /* The regions of the provisional pixels into seg->label (replaced by the
  * shrunk node array). */
 static lam_status grow(const lam_image *img, size_t channels, const double *delta,
-                       const double *sigma, lam_segmentation *seg, size_t threads,
+                       const double *sigma, int bright, lam_segmentation *seg, size_t threads,
                        uint32_t *regions, lam_error *err)
 {
     size_t w = img->width, n = img->width * img->height;
     merge_state m;
+    m.bright = bright;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
     m.channels = channels;
@@ -720,6 +751,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     ec.img = img;
     ec.channels = channels;
     ec.cls = seg->cls;
+    ec.bright = opt->bright_scaling;
     double delta[3], sigma[3];
     size_t threads = opt->threads ? opt->threads : 1;
     thresholds(img, channels, c1, noise, threads, &ec, delta, sigma);
@@ -731,7 +763,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (st)
         return st;
     uint32_t m = 0;
-    if ((st = grow(img, channels, delta, sigma, seg, threads, &m, err)))
+    if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
         return st;
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
     uint8_t *depth = lam__boundary_depth(seg->label, w, h);

@@ -59,7 +59,7 @@ static const char *const other_keys[] = {
 /* The keys each object's reader uses besides the table's numbers. */
 static const char *const root_keys[] = {"schema", "objective", "illuminant", "camera",
                                         "encoding", "substrate", "material", "conductivity",
-                                        "uncertainty", "calibration", NULL};
+                                        "uncertainty", "calibration", "observation", NULL};
 static const char *const objective_keys[] = {"na", "illumination_na", "pupil_weight",
                                              "immersion", "cone_nodes", NULL};
 static const char *const illuminant_keys[] = {"kind", "kelvin", "file", NULL};
@@ -132,6 +132,7 @@ void lam_setup_default(lam_setup *s)
     s->layer_nm[0] = 285;
     lam_material_builtin("Si", &s->base, NULL);
     snprintf(s->flake, sizeof s->flake, "graphene");
+    s->crystal = lam_crystal_find("graphene");
     s->interlayer_nm = 0.335;
     s->sheet = lam_sheet_params_default();
     s->grid_lo_nm = 380;
@@ -169,6 +170,8 @@ void lam_setup_clear(lam_setup *s)
     lam_material_clear(&s->ambient);
     lam_material_clear(&s->base);
     lam_material_clear(&s->flake_film);
+    for (size_t i = 0; i < s->flake_layer_films; i++)
+        lam_material_clear(&s->flake_layer_film[i]);
     for (size_t i = 0; i < s->layers; i++)
         lam_material_clear(&s->layer_material[i]);
     lam_table_spectrum_clear(&s->illuminant.table);
@@ -233,15 +236,54 @@ lam_status lam_setup_set_na(lam_setup *s, double na, lam_error *err)
     return LAM_OK;
 }
 
+/* A crystal's films: the bulk (or continuous) film and the per-layer
+ * tables, all built-in materials. */
+static lam_status crystal_films(lam_setup *s, const lam_crystal *c, lam_error *err)
+{
+    lam_status st = lam_material_builtin(c->bulk, &s->flake_film, err);
+    size_t n = 0;
+    for (size_t j = 0; !st && j < LAM_CRYSTAL_LAYER_TABLES && c->layer_index[j]; j++, n++)
+        st = lam_material_builtin(c->layer_index[j], &s->flake_layer_film[j], err);
+    s->flake_layer_films = n;
+    s->flake_as_film = !st;
+    return st;
+}
+
 lam_status lam_setup_set_material(lam_setup *s, const char *name, lam_error *err)
 {
-    if (strcasecmp(name, "graphene"))
-        return lam_error_set(err, LAM_ERANGE,
-                             "key material: '%.64s' is not modelled; only graphene flakes so far",
-                             name);
-    snprintf(s->flake, sizeof s->flake, "graphene");
-    mark_given(s, "material");
-    return LAM_OK;
+    const lam_crystal *c;
+    if (lam_crystal_lookup(name, &c, err))
+        return lam_error_prefix(err, LAM_ERANGE, "key material: ");
+    int was_crystal = s->crystal && s->crystal->kind != LAM_CRYSTAL_SHEETS;
+    if (was_crystal || c->kind != LAM_CRYSTAL_SHEETS) {
+        /* the previous crystal's films go; graphene returns to sheets */
+        lam_material_clear(&s->flake_film);
+        for (size_t i = 0; i < s->flake_layer_films; i++)
+            lam_material_clear(&s->flake_layer_film[i]);
+        s->flake_layer_films = 0;
+        s->flake_as_film = 0;
+    }
+    s->crystal = c;
+    snprintf(s->flake, sizeof s->flake, "%s", c->name);
+    s->interlayer_nm = c->layer_nm;
+    lam_status st = c->kind == LAM_CRYSTAL_SHEETS ? LAM_OK : crystal_films(s, c, err);
+    if (!st)
+        mark_given(s, "material");
+    return st;
+}
+
+lam_crystal_kind lam_setup_crystal_kind(const lam_setup *s)
+{
+    return s->crystal ? s->crystal->kind : LAM_CRYSTAL_SHEETS;
+}
+
+void lam_setup_describe_flake(const lam_setup *s, char *buf, size_t n)
+{
+    if (lam_setup_crystal_kind(s) == LAM_CRYSTAL_SHEETS)
+        lam_sheet_describe(&s->sheet, buf, n);
+    else
+        snprintf(buf, n, "%s, %.3f nm per layer: %s", s->crystal->name, s->crystal->layer_nm,
+                 s->crystal->note);
 }
 
 size_t lam_setup_oxide_layer(const lam_setup *s)
@@ -614,6 +656,19 @@ static lam_status parse_substrate(const cJSON *o, const char *path, lam_setup *s
     return st;
 }
 
+/* "observation": "reflection" (default) or "transmission" (a stamp). */
+static lam_status parse_observation(const cJSON *v, lam_setup *s, lam_error *err)
+{
+    if (cJSON_IsString(v) && !strcmp(v->valuestring, "reflection"))
+        s->transmission = 0;
+    else if (cJSON_IsString(v) && !strcmp(v->valuestring, "transmission"))
+        s->transmission = 1;
+    else
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key observation: expected \"reflection\" or \"transmission\"");
+    return LAM_OK;
+}
+
 static lam_status parse_material(const cJSON *v, lam_setup *s, lam_error *err)
 {
     if (!cJSON_IsString(v))
@@ -628,6 +683,11 @@ static lam_status parse_conductivity(const cJSON *o, lam_setup *s, const char *d
         return lam_error_set(err, LAM_EFORMAT, "key conductivity: expected an object");
     lam_status st = check_keys(o, "conductivity", conductivity_keys, err);
     const cJSON *model = cJSON_GetObjectItemCaseSensitive(o, "model");
+    if (!st && lam_setup_crystal_kind(s) != LAM_CRYSTAL_SHEETS &&
+        (model || cJSON_GetObjectItemCaseSensitive(o, "film")))
+        return lam_error_set(err, LAM_EFORMAT,
+                             "key conductivity.%s: applies to graphene, not to material %s",
+                             model ? "model" : "film", s->flake);
     int m = -1; /* not given: the model stays as it is */
     if (!st && model)
         st = cJSON_IsString(model)
@@ -706,9 +766,15 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
         (ITEM("encoding") && (st = parse_encoding(v, s, err))) ||
         (ITEM("substrate") && (st = parse_substrate(v, "substrate", s, dir, err))) ||
         (ITEM("material") && (st = parse_material(v, s, err))) ||
+        (ITEM("observation") && (st = parse_observation(v, s, err))) ||
         (ITEM("conductivity") && (st = parse_conductivity(v, s, dir, err))) ||
         (st = read_numbers(root, s, err)))
         return st;
+    if (s->transmission && cimag(lam_material_index_eval(&s->base, 550)) > 1e-3)
+        return lam_error_set(err, LAM_ERANGE,
+                             "key observation: transmission needs a transparent base (PDMS, "
+                             "glass), not %s",
+                             s->base.name);
     if (ITEM("uncertainty") && (st = check_keys(v, "uncertainty", (const char *const[]){NULL}, err)))
         return st;
     if (ITEM("spectrum")) {
@@ -857,11 +923,15 @@ static void save_sample(cJSON *root, const lam_setup *s)
         cJSON_AddItemToArray(st, L);
     }
     cJSON_AddItemToObject(sub, "base", material_json(&s->base));
+    cJSON_AddStringToObject(root, "observation", s->transmission ? "transmission" : "reflection");
     cJSON_AddStringToObject(root, "material", s->flake);
     cJSON *co = cJSON_AddObjectToObject(root, "conductivity");
-    cJSON_AddStringToObject(co, "model", lam_setup_conductivity_model(s));
-    if (s->flake_as_film)
-        cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
+    if (lam_setup_crystal_kind(s) == LAM_CRYSTAL_SHEETS) {
+        /* a crystal's films follow from its name */
+        cJSON_AddStringToObject(co, "model", lam_setup_conductivity_model(s));
+        if (s->flake_as_film)
+            cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
+    }
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
     for (size_t i = 0; i < N_NUMBERS; i++)
         put_number(root, s, &numbers[i]);

@@ -55,7 +55,7 @@ static void oxide_cell(const cJSON *root, char *out, size_t n)
     double est = num(ox, "estimate"), nom = num(ox, "nominal");
     if (isfinite(est))
         snprintf(out, n, "%.1f", est);
-    else if (isfinite(nom))
+    else if (isfinite(nom) && nom >= 0) /* < 0: a stack without SiO2 */
         snprintf(out, n, "(%.0f)", nom);
     else
         snprintf(out, n, "-");
@@ -78,10 +78,12 @@ static void print_counts(FILE *f, const lam_batch *b, int *any_warning)
                 continue;
             double L = num(r, "layers");
             const cJSON *lab = cJSON_GetObjectItemCaseSensitive(r, "label");
+            const cJSON *cls = cJSON_GetObjectItemCaseSensitive(r, "class");
             if (L >= 1)
                 by[L < 4 ? (int)L : 4]++;
-            else if (cJSON_IsString(lab) && !strcmp(lab->valuestring, "thick"))
-                thick++;
+            else if ((cJSON_IsString(lab) && !strcmp(lab->valuestring, "thick")) ||
+                     (cJSON_IsString(cls) && !strcmp(cls->valuestring, "thickness")))
+                thick++; /* hBN: a region with a thickness */
             else
                 other++;
         }
@@ -130,8 +132,49 @@ static void print_candidate(FILE *f, const lam_batch_item *j, const cJSON *r,
     }
 }
 
+/* hBN analyses (issue 14): every region with a thickness (not small), the
+ * median and 95 % interval of its most probable interference order, marked
+ * when that order is not clear and when the flake lies in the target
+ * window. Returns how many images had thicknesses. */
+static size_t print_thickness(FILE *f, const lam_batch *b, const double target[2])
+{
+    size_t images = 0, rows = 0;
+    for (size_t i = 0; i < b->count; i++) {
+        const lam_batch_item *j = &b->items[i];
+        if (j->failed || !j->json)
+            continue;
+        int any = 0;
+        const cJSON *r;
+        cJSON_ArrayForEach(r, cJSON_GetObjectItemCaseSensitive(j->json, "regions")) {
+            const cJSON *t = cJSON_GetObjectItemCaseSensitive(r, "thickness_nm");
+            any |= t != NULL;
+            if (!cJSON_IsObject(t) || has_flag(r, "small"))
+                continue;
+            if (!rows++)
+                fprintf(f, "\nflakes by thickness (nm; 95 %% interval of the most probable "
+                           "order):\n%-28s %4s %8s %17s %6s  %s\n",
+                        "image", "id", "estimate", "interval", "p", "notes");
+            double est = num(t, "estimate");
+            int amb = cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(t, "order_ambiguous"));
+            int in = target && isfinite(target[0]) && est >= target[0] && est <= target[1] && !amb;
+            fprintf(f, "%-28.28s %4u %8.1f %8.1f-%-8.1f %6.3f  %s%s\n", j->stem,
+                    (unsigned)num(r, "id"), est, num(t, "lo"), num(t, "hi"),
+                    num(t, "probability"), amb ? "order-ambiguous " : "", in ? "in target" : "");
+        }
+        images += any;
+    }
+    return images;
+}
+
 lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos, const lam_stage *stage,
                              char **text, lam_error *err)
+{
+    return lam_summary_batch_target(b, pos, stage, NULL, text, err);
+}
+
+lam_status lam_summary_batch_target(const lam_batch *b, const lam_positions *pos,
+                                    const lam_stage *stage, const double target[2], char **text,
+                                    lam_error *err)
 {
     lam__text t;
     lam_status st = lam__text_open(&t, err);
@@ -142,6 +185,14 @@ lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos, const
     print_counts(f, b, &warned);
     if (warned)
         fprintf(f, "! = the image has warnings (printed above, and in its JSON)\n");
+    size_t films = print_thickness(f, b, target), analysed = 0;
+    for (size_t i = 0; i < b->count; i++)
+        analysed += !b->items[i].failed && b->items[i].json;
+    if (films && films == analysed) { /* hBN only: no layer counts to list */
+        fprintf(f, "\nThicknesses are model estimates: confirm by AFM before committing a "
+                   "flake\nto fabrication.\n");
+        return lam__text_close(&t, text, err);
+    }
     fprintf(f, "\nmonolayer candidates (p >= 0.95, not small):\n");
     char where[48];
     snprintf(where, sizeof where, pos ? "stage x,y %s" : "centroid px",
@@ -194,6 +245,17 @@ lam_status lam_summary_image_line(const char *path, const cJSON *r, int resumed,
     fprintf(f, "%-28s SiO2 %5.1f nm  1L %zu  2L %zu  3L %zu  4L+ %zu%s", base ? base + 1 : path,
             cJSON_IsNumber(est) ? est->valuedouble : NAN, by[1], by[2], by[3], by[4],
             resumed ? "  (results kept)" : "");
+    size_t films = 0; /* hBN (issue 14): the flakes' thicknesses instead */
+    double lo = INFINITY, hi = -INFINITY;
+    cJSON_ArrayForEach(g, regs) {
+        const cJSON *th = cJSON_GetObjectItemCaseSensitive(g, "thickness_nm");
+        if (!cJSON_IsObject(th) || has_flag(g, "small"))
+            continue;
+        double d = num(th, "estimate");
+        films++, lo = fmin(lo, d), hi = fmax(hi, d);
+    }
+    if (films)
+        fprintf(f, "  %zu flake%s %.1f-%.1f nm", films, films == 1 ? "" : "s", lo, hi);
     if (best) {
         const cJSON *a = cJSON_GetObjectItemCaseSensitive(best, "area_um2");
         fprintf(f, "  largest 1L: #%d", cJSON_GetObjectItemCaseSensitive(best, "id")->valueint);

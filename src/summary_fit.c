@@ -14,8 +14,47 @@ static const char *channel_name(size_t channels, size_t c)
     return channels == 1 ? "mono" : rgb[c];
 }
 
+/* A nearly anti-reflecting substrate (issue 14): below this channel
+ * reflectance the relative contrast is ill-conditioned (stray light and the
+ * model's errors in R_sub dominate it), so dR and a signal-to-noise are
+ * given too. */
+#define AR_REFLECTANCE 0.03
+/* The signal-to-noise convention: shot noise of a camera whose full well
+ * (10000 e-, common practice for microscope cameras) bare Si would fill at
+ * the same exposure: SNR = |dR| sqrt(FW / (R_Si R_sub)). */
+#define SNR_FULL_WELL 10000.0
+
+int lam_summary_prediction_near_ar(const lam_prediction *p)
+{
+    for (size_t c = 0; c < p->channels; c++)
+        if (p->substrate[c] < AR_REFLECTANCE)
+            return 1;
+    return 0;
+}
+
+/* Bare-Si reflectance of the brightest channel (the SNR's exposure). */
+static double bare_si(const lam_setup *s, double mono)
+{
+    lam_setup b = *s;
+    b.layers = 0;
+    lam_model *m = NULL;
+    lam_prediction *p = malloc(sizeof *p);
+    double top = 0.35;
+    if (p && !lam_model_alloc(&b, 1, mono, &m, NULL) &&
+        !lam_model_eval(m, 0, b.sheet.fermi_ev, p, NULL)) {
+        top = 0;
+        for (size_t c = 0; c < p->channels; c++)
+            top = fmax(top, p->substrate[c]);
+    }
+    lam_model_free(m);
+    free(p);
+    return top;
+}
+
+/* th: film thicknesses of rows lo..hi (th[N - 1], nm), or NULL for layer
+ * counts. */
 static cJSON *prediction_json(const lam_prediction *p, size_t lo, size_t hi, double mono,
-                              const lam_setup *s)
+                              const lam_setup *s, const double *th)
 {
     cJSON *root = cJSON_CreateObject();
     cJSON_AddStringToObject(root, "schema", "lamina-predict/1");
@@ -29,7 +68,9 @@ static cJSON *prediction_json(const lam_prediction *p, size_t lo, size_t hi, dou
     cJSON_AddNumberToObject(root, "illumination_na", s->illumination_na);
     cJSON_AddNumberToObject(root, "fermi_eV", fabs(p->fermi_ev));
     char desc[200];
-    lam_sheet_describe(&s->sheet, desc, sizeof desc);
+    lam_setup_describe_flake(s, desc, sizeof desc);
+    cJSON_AddStringToObject(root, "material", s->flake);
+    cJSON_AddStringToObject(root, "observation", s->transmission ? "transmission" : "reflection");
     cJSON_AddStringToObject(root, "conductivity", desc);
     cJSON *sr = cJSON_AddArrayToObject(root, "substrate_reflectance");
     for (size_t c = 0; c < p->channels; c++)
@@ -37,7 +78,10 @@ static cJSON *prediction_json(const lam_prediction *p, size_t lo, size_t hi, dou
     cJSON *rows = cJSON_AddArrayToObject(root, "rows");
     for (size_t N = lo; N <= hi; N++) {
         cJSON *row = cJSON_CreateObject();
-        cJSON_AddNumberToObject(row, "layers", (double)N);
+        if (th)
+            cJSON_AddNumberToObject(row, "thickness_nm", th[N - 1]);
+        else
+            cJSON_AddNumberToObject(row, "layers", (double)N);
         cJSON *con = cJSON_AddArrayToObject(row, "contrast");
         for (size_t c = 0; c < p->channels; c++)
             cJSON_AddItemToArray(con, cJSON_CreateNumber(p->contrast[N][c]));
@@ -47,26 +91,47 @@ static cJSON *prediction_json(const lam_prediction *p, size_t lo, size_t hi, dou
 }
 
 static void prediction_table(FILE *f, const lam_prediction *p, size_t lo, size_t hi,
-                             double mono, const lam_setup *s, int csv)
+                             double mono, const lam_setup *s, int csv, const double *th)
 {
+    int ar = lam_summary_prediction_near_ar(p);
+    double r_si = ar ? bare_si(s, mono) : 1;
+    int other = strcmp(s->flake, "graphene") != 0;
     if (!csv)
-        fprintf(f, "# contrast = (substrate - flake) / substrate; oxide %.1f nm, illumination NA "
-                   "%.2f%s\n", p->oxide_nm, s->illumination_na, mono > 0 ? ", monochromatic" : "");
-    fprintf(f, csv ? "layers" : "%-7s", csv ? "" : "layers");
+        fprintf(f, "# contrast = (substrate - flake) / substrate%s; %s%soxide %.1f nm, "
+                   "illumination NA %.2f%s\n",
+                s->transmission ? " in transmission (1 - T_flake / T_substrate)" : "",
+                other ? s->flake : "", other ? ", " : "", p->oxide_nm, s->illumination_na,
+                mono > 0 ? ", monochromatic" : "");
+    const char *key = th ? "thickness_nm" : "layers";
+    if (csv)
+        fputs(key, f);
+    else
+        fprintf(f, th ? "%-12s" : "%-7s", key);
     for (size_t c = 0; c < p->channels; c++)
         fprintf(f, csv ? ",%s" : " %10s", channel_name(p->channels, c));
+    for (size_t c = 0; ar && c < p->channels; c++)
+        fprintf(f, csv ? ",dR_%s,snr_%s" : " %9s_dR %8s_snr", channel_name(p->channels, c),
+                channel_name(p->channels, c));
     fputc('\n', f);
     for (size_t N = lo; N <= hi; N++) {
-        fprintf(f, csv ? "%zu" : "%-7zu", N);
+        if (th)
+            fprintf(f, csv ? "%g" : "%-12g", th[N - 1]);
+        else
+            fprintf(f, csv ? "%zu" : "%-7zu", N);
         for (size_t c = 0; c < p->channels; c++)
             fprintf(f, csv ? ",%.6f" : " %10.5f", p->contrast[N][c]);
+        for (size_t c = 0; ar && c < p->channels; c++) {
+            double dr = p->substrate[c] - p->reflectance[N][c];
+            fprintf(f, csv ? ",%.6f,%.2f" : " %12.6f %12.2f", dr,
+                    fabs(dr) * sqrt(SNR_FULL_WELL / (r_si * p->substrate[c])));
+        }
         fputc('\n', f);
     }
 }
 
-lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
-                                  const lam_setup *setup, const char *format, char **text,
-                                  lam_error *err)
+static lam_status prediction_text(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
+                                  const lam_setup *setup, const double *th, const char *format,
+                                  char **text, lam_error *err)
 {
     int json = !strcmp(format, "json"), csv = !strcmp(format, "csv");
     if (!json && !csv && strcmp(format, "table"))
@@ -76,7 +141,7 @@ lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi,
     if (st)
         return st;
     if (json) {
-        cJSON *root = prediction_json(p, lo, hi, mono_nm, setup);
+        cJSON *root = prediction_json(p, lo, hi, mono_nm, setup, th);
         char *s = root ? cJSON_Print(root) : NULL;
         cJSON_Delete(root);
         if (!s) {
@@ -87,9 +152,23 @@ lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi,
         fprintf(t.f, "%s\n", s);
         free(s);
     } else {
-        prediction_table(t.f, p, lo, hi, mono_nm, setup, csv);
+        prediction_table(t.f, p, lo, hi, mono_nm, setup, csv, th);
     }
     return lam__text_close(&t, text, err);
+}
+
+lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
+                                  const lam_setup *setup, const char *format, char **text,
+                                  lam_error *err)
+{
+    return prediction_text(p, lo, hi, mono_nm, setup, NULL, format, text, err);
+}
+
+lam_status lam_summary_prediction_films(const lam_prediction *p, const double *thickness_nm,
+                                        size_t count, double mono_nm, const lam_setup *setup,
+                                        const char *format, char **text, lam_error *err)
+{
+    return prediction_text(p, 1, count, mono_nm, setup, thickness_nm, format, text, err);
 }
 
 static void calib_value(FILE *f, const lam_calib_value *v, const char *unit)

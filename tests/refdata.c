@@ -59,3 +59,54 @@ void refdata_interp(const refdata_nk *t, double wl, double *n, double *k)
         }
     }
 }
+
+int refdata_load_formula(const char *file_name, refdata_formula *out)
+{
+    const char *dir = check_refdata_dir();
+    if (!dir)
+        return -1;
+    char path[1024], line[512];
+    snprintf(path, sizeof path, "%s/nk/%s", dir, file_name);
+    FILE *fp = fopen(path, "r");
+    if (!fp)
+        return -1;
+    memset(out, 0, sizeof *out);
+    while (fgets(line, sizeof line, fp)) {
+        const char *p;
+        if ((p = strstr(line, "- type: formula ")))
+            out->formula = atoi(p + 16);
+        else if ((p = strstr(line, "wavelength_range:")) &&
+                 sscanf(p + 17, "%lf %lf", &out->lo_nm, &out->hi_nm) == 2)
+            out->lo_nm *= 1000, out->hi_nm *= 1000;
+        else if ((p = strstr(line, "coefficients:"))) {
+            char *end;
+            p += 13;
+            while (out->count < 24) {
+                double v = strtod(p, &end);
+                if (end == p)
+                    break;
+                out->coef[out->count++] = v;
+                p = end;
+            }
+        }
+    }
+    fclose(fp);
+    return out->formula >= 1 && out->formula <= 3 && out->count >= 1 ? 0 : -1;
+}
+
+double refdata_formula_n(const refdata_formula *f, double wl)
+{
+    if (wl < f->lo_nm || wl > f->hi_nm)
+        return NAN;
+    double l = wl / 1000, l2 = l * l, s = f->coef[0];
+    for (int i = 1; i + 1 < f->count; i += 2) {
+        const double b = f->coef[i], c = f->coef[i + 1];
+        if (f->formula == 1)
+            s += b * l2 / (l2 - c * c);
+        else if (f->formula == 2)
+            s += b * l2 / (l2 - c);
+        else
+            s += b * pow(l, c);
+    }
+    return f->formula == 3 ? sqrt(s) : sqrt(1 + s);
+}

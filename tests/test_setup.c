@@ -124,7 +124,7 @@ static void test_ranges(void)
             LAM_ERANGE, "substrate.stack[0].thickness_nm", NULL);
     refused(HEAD "\"encoding\":{\"gamma\":9}}", LAM_ERANGE, "encoding.gamma", NULL);
     refused(HEAD "\"spectrum\":{\"min_nm\":700,\"max_nm\":500}}", LAM_ERANGE, "spectrum", NULL);
-    refused(HEAD "\"material\":\"MoS2\"}", LAM_ERANGE, "key material", "MoS2");
+    refused(HEAD "\"material\":\"MoTe2\"}", LAM_ERANGE, "key material", "MoTe2");
     refused(HEAD "\"fermi_eV\":\"high\"}", LAM_EFORMAT, "key fermi_eV: expected a number", NULL);
     refused(HEAD "\"spectrum\":5}", LAM_EFORMAT, "key spectrum: expected an object", NULL);
     refused("{\"schema\":\"lamina-setup/2\"}", LAM_EFORMAT, "schema", "lamina-setup/1");
@@ -233,7 +233,7 @@ static void test_setters(void)
     check_str(err.message, "key fermi_eV: 3 is outside -2 to 2", "setter message");
     check_int(lam_setup_set_um_per_px(&s, 0, &err), LAM_ERANGE, "pixel size 0 refused");
     check_int(lam_setup_set_oxide(&s, -1, &err), LAM_ERANGE, "negative oxide refused");
-    check_int(lam_setup_set_material(&s, "MoS2", &err), LAM_ERANGE, "MoS2 refused (not modelled)");
+    check_int(lam_setup_set_material(&s, "MoTe2", &err), LAM_ERANGE, "MoTe2 refused (not modelled)");
     check_int(lam_setup_set_number(&s, "colour", 1, &err), LAM_EINVAL, "unknown number key");
     check_abs(s.sheet.fermi_ev, 0.35, 0, "a refused value leaves the setup unchanged");
     lam_setup_clear(&s);

@@ -35,6 +35,7 @@
 #include "lamina/segment.h"
 #include "lamina/setup.h"
 #include "lamina/substrate.h"
+#include "lamina/thickness.h"
 
 /* A posterior over the shared parameters, to be used as the prior of later
  * images (pooled over a run, or carried from image to image). */
@@ -86,6 +87,7 @@ typedef struct lam_analysis {
     lam_segmentation *seg;
     size_t count;
     lam_region_result *results;     /* count entries, region i has id i+1 */
+    lam_thickness_result *thickness; /* count entries for a continuous crystal (hBN), else NULL */
     lam_est_region *measured;       /* count entries: the regions' measurements */
     lam_oxide_result oxide;
     double file_step[3];            /* a lossy file's colour step per channel, contrast

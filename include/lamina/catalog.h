@@ -7,7 +7,9 @@
  * from files), so a catalogue can be rebuilt from results on disk
  * (`lamina catalog merge`, `lamina watch`). Ranking: monolayers by usable
  * area, then bilayers, ..., then thick, then the rest; "small" regions
- * after the others of their layer count.
+ * after the others of their layer count. With a thickness target
+ * (lam_catalog_set_target) regions of a continuous crystal (hBN) inside the
+ * range come first, the rest of them by their distance to it.
  *
  * catalog.csv and catalog.json share one schema (docs/catalog.md): the same
  * names, one row per region; lists are JSON arrays and ';'-separated in
@@ -58,6 +60,8 @@ typedef struct lam_catalog_entry {
     char flags[128];          /* ';'-separated */
     int small, rank;
     size_t duplicate_of;      /* index + 1 of the entry kept, or 0 */
+    double thickness_nm[3];   /* continuous crystals (hBN): estimate, lo, hi; NAN otherwise */
+    double target_distance;   /* |ln| distance of the estimate to the target range (0 inside) */
 } lam_catalog_entry;
 
 typedef struct lam_catalog {
@@ -69,6 +73,7 @@ typedef struct lam_catalog {
     const lam_positions *positions; /* borrowed; NULL without */
     char results[1024];           /* folder of the results being added ("" unknown) */
     char warnings[2048];          /* catalogue-level, ';'-separated */
+    double target_nm[2];          /* thickness range sought (hBN), NAN: none */
 } lam_catalog;
 
 /* An empty catalogue (always LAM_OK). */
@@ -79,6 +84,13 @@ void lam_catalog_clear(lam_catalog *c);
 
 /* Use stage positions (borrowed, may be NULL) and a convention. */
 void lam_catalog_set_stage(lam_catalog *c, const lam_positions *p, const lam_stage *stage);
+
+/* Rank regions with a thickness (continuous crystals, e.g. hBN) by their
+ * closeness to [lo_nm, hi_nm]: a region whose estimate lies inside and
+ * whose interference order is not ambiguous is a candidate, ranked before
+ * every layer count; the others follow the layer counts by their distance
+ * |ln(d / nearest end)|, then by usable area. Call before adding. */
+void lam_catalog_set_target(lam_catalog *c, double lo_nm, double hi_nm);
 
 /* Add the regions of one analysis (JSON tree). The image's results are
  * taken to be in c->results. 'pos' may be NULL; an image missing from the

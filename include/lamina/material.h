@@ -15,6 +15,29 @@
  *                   of the published table over 400-800 nm (tests/test_material.c)
  *   "hBN"           hexagonal BN in-plane, single-oscillator Sellmeier fitted
  *                   here to Grudinin et al. (2023), 380-820 nm
+ *   "hBN-Lee"       Lee et al., Phys. Status Solidi B 256, 1800417 (2019),
+ *                   in-plane single oscillator (published 450-1200 nm; the
+ *                   transparent formula is used down to 380 nm)
+ *   "hBN-Rah"       Rah et al., Opt. Lett. 44, 3797 (2019), in-plane
+ *                   (published 400-1600 nm; used down to 380 nm)
+ *   "Si3N4"         Luke et al., Opt. Lett. 40, 4823 (2015) Sellmeier, 310-5504 nm
+ *   "Si3N4-Philipp" Philipp, J. Electrochem. Soc. 120, 295 (1973), Sellmeier
+ *                   form of Baak, Appl. Opt. 21, 1069 (1982), 207-1240 nm
+ *   compiled tables (src/material_tables.c, each with its source and
+ *                   resampling; interpolated like user tables):
+ *     "MoS2-1L"       Hsu et al., Adv. Opt. Mater. 7, 1900239 (2019), 380-856 nm
+ *     "MoS2-2L", "MoS2-3L"  Hsu et al. (2019), bilayer and trilayer, 380-850 nm
+ *     "MoS2-1L-Song"  Song et al., Adv. Opt. Mater. 7, 1801250 (2019), 380-900 nm
+ *     "MoS2-bulk"     Song et al. (2019), bulk, 380-900 nm
+ *     "WS2-1L"        Hsu et al. (2019), 380-848 nm
+ *     "WSe2-1L"       Hsu et al. (2019), 380-848 nm
+ *     "WSe2-1L-Gu"    Gu et al., Nanoscale 11, 22762 (2019), 380-900 nm
+ *     "graphite"      Djurisic and Li, J. Appl. Phys. 85, 7404 (1999),
+ *                     ordinary ray, 341-913 nm
+ *     "PDMS"          Sylgard 184, Gupta et al., ACS Appl. Mater. Interfaces
+ *                     11, 28189 (2019), 350-900 nm
+ *                   The Hsu tables start at 397 nm: their first row is held
+ *                   down to 380 nm (under 1 % of a blue channel's weight).
  *   "PMMA"          Sultanova et al. (2009) Sellmeier, 380-1052 nm (the
  *                   published range starts at 437 nm; the transparent formula
  *                   is used below it), for polymer residue
@@ -38,7 +61,8 @@ typedef enum lam_material_kind {
     LAM_MATERIAL_SELLMEIER, /* n^2 = 1 + A + sum B_i l^2 / (l^2 - C_i^2), l in um */
     LAM_MATERIAL_LORENTZ,   /* eps = eps_inf + sum A_j / (E_j^2 - E^2 - i g_j E), eV */
     LAM_MATERIAL_SI_EDGE,   /* the compact Si model described above */
-    LAM_MATERIAL_TABLE      /* tabulated n, k */
+    LAM_MATERIAL_TABLE,     /* tabulated n, k (allocated spline) */
+    LAM_MATERIAL_STATIC     /* a compiled table (nk rows), monotone cubic in energy */
 } lam_material_kind;
 
 #define LAM_MATERIAL_MAX_TERMS 6
@@ -57,13 +81,16 @@ typedef struct lam_material {
     size_t rows;
     double *energy_ev, *n, *k;
     void *spline_n, *spline_k;      /* gsl_spline*, owned */
+    const double (*nk)[3];          /* STATIC: rows nm, n, k (increasing nm), not owned */
     const char *source;             /* citation for reports */
     char file[512];                 /* the CSV it was read from, or "" */
 } lam_material;
 
 /* Fill *out with a built-in material by (case-insensitive) name: air,
- * vacuum, water, SiO2, Si, hBN, PMMA. LAM_EINVAL for any other name, with
- * a message that lists them. No allocation (built-ins are formulas). */
+ * vacuum, water, SiO2, Si, hBN, hBN-Lee, hBN-Rah, PMMA, Si3N4,
+ * Si3N4-Philipp and the compiled tables above. LAM_EINVAL for any other
+ * name, with a message that lists them. No allocation (compiled tables are
+ * referenced, not copied). */
 lam_status lam_material_builtin(const char *name, lam_material *out, lam_error *err);
 
 /* Load "wavelength_nm,n,k" rows (header line required, '#' comments

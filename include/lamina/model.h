@@ -115,4 +115,18 @@ lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t lay
 /* The finite-difference step of a parameter. */
 double lam_model_step(lam_model_param k);
 
+/* Crystals of continuous thickness (lamina/thickness.h): the contrast per
+ * channel of the flake material as ONE film of each thickness
+ * thickness_nm[k] (k < count), its index scaled as N = 1 + s (n - 1) + i k
+ * with s = index_scale, on the substrate at point p (oxide, NA, channel
+ * shifts and widths; the graphene response is not used):
+ * contrast[k][c]. The film sits on the substrate's top film (Airy
+ * reflection of the ambient|film|substrate-admittance system per
+ * wavelength, cone node and polarisation), so a film costs a few complex
+ * operations per node. LAM_EINVAL when the model's flake is not a film,
+ * LAM_ERANGE for a point outside the physical ranges or a scale <= 0. */
+lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double index_scale,
+                                const double *thickness_nm, size_t count,
+                                double (*contrast)[LAM_MAX_CHANNELS], lam_error *err);
+
 #endif

@@ -4,8 +4,11 @@
  *
  * The scene gives a setup (inline object or path), the true oxide, image
  * size, flakes as polygons (pixel coordinates) with layer counts and Fermi
- * levels, polymer residue films, dust, vignetting, an illumination
- * gradient, blur, shot and read noise. Each pixel's linear value is
+ * levels - or, per flake, another material: a crystal of lamina/crystal.h
+ * (MoS2 N layers, hBN of a thickness) or graphite of a thickness (the
+ * ordinary-ray n,k of Djurisic and Li 1999) - polymer residue films, dust,
+ * vignetting, an illumination gradient, blur, shot and read noise. The
+ * setup's observation (reflection or transmission) applies to all. Each pixel's linear value is
  *   exposure * R_c(class) / R_c(substrate) * flatfield(x, y)
  * before blur and noise, so a white-balanced camera is imitated.
  *
@@ -30,7 +33,8 @@ typedef struct lam_scene_object {
     lam_scene_kind kind;
     int layers;          /* FLAKE */
     double fermi_ev;     /* FLAKE */
-    double thickness_nm; /* RESIDUE (PMMA film) */
+    double thickness_nm; /* RESIDUE (PMMA film); FLAKE of a film material (hBN, graphite) */
+    char material[32];   /* FLAKE: "" the setup's; a crystal of lamina/crystal.h, "graphite" */
     size_t vertices;
     double x[LAM_SCENE_MAX_VERTICES], y[LAM_SCENE_MAX_VERTICES];
 } lam_scene_object;

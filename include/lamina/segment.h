@@ -41,6 +41,11 @@ typedef struct lam_segment_options {
     double file_step[3];         /* the file's own colour steps in contrast units per
                                   * channel (one JPEG DC quantisation step at the
                                   * substrate's level); 0 for lossless files (0) */
+    /* lam_segment_uniform: flakes brighter than the substrate (contrast
+     * C < 0: hBN, thick TMDs) carry more noise in contrast units - shot
+     * noise grows as sqrt(b), flat-field residuals as b, b = 1 - C: with
+     * bright_scaling the thresholds grow so (0: off, as for graphene) */
+    int bright_scaling;
 } lam_segment_options;
 
 /* Interior pixels lie at least this far (city-block) from the region's

@@ -28,6 +28,7 @@
 #include <stddef.h>
 #include "lamina/colour.h"
 #include "lamina/conductivity.h"
+#include "lamina/crystal.h"
 #include "lamina/error.h"
 #include "lamina/material.h"
 #include "lamina/names.h"
@@ -83,10 +84,16 @@ typedef struct lam_setup {
     lam_material layer_material[LAM_SETUP_MAX_LAYERS];
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     lam_material base;
-    char flake[32];         /* "graphene" */
-    double interlayer_nm;   /* sheet spacing of N-layer graphene */
+    int transmission;       /* observation "transmission": light through the stack into a thick
+                             * transparent base (a stamp), contrast 1 - T_flake / T_substrate */
+    char flake[32];         /* "graphene", or a crystal of lamina/crystal.h ("hBN") */
+    const lam_crystal *crystal; /* its record (graphene's by default) */
+    double interlayer_nm;   /* sheet spacing of N-layer graphene; layer thickness of crystals */
     int flake_as_film;      /* model N layers as a film of N * interlayer_nm ... */
-    lam_material flake_film;/* ... with this index (conductivity.model "film") */
+    lam_material flake_film;/* ... with this index (conductivity.model "film"; a crystal's
+                             * bulk or continuous film) ... */
+    size_t flake_layer_films; /* ... except for N <= this many layers, which have ... */
+    lam_material flake_layer_film[LAM_CRYSTAL_LAYER_TABLES]; /* ... their own n,k (TMDs) */
     lam_sheet_params sheet;
     double grid_lo_nm, grid_hi_nm, grid_step_nm;
     lam_setup_sigma sigma;
@@ -140,8 +147,19 @@ lam_status lam_setup_set_um_per_px(lam_setup *s, double um, lam_error *err);
  * the ambient index; the objective NA is raised to it when smaller. */
 lam_status lam_setup_set_na(lam_setup *s, double na, lam_error *err);
 
-/* Flake material (key material): only "graphene" (any case) so far. */
+/* Flake material (key material): "graphene" or a crystal of
+ * lamina/crystal.h ("hBN", "MoS2", "MoS2/Song", "WS2", "WSe2", ...; any
+ * case). A crystal's layers become films of its n,k (flake_as_film with
+ * the per-layer tables); graphene returns to sheets. LAM_ERANGE naming
+ * the key and listing the materials for any other name. */
 lam_status lam_setup_set_material(lam_setup *s, const char *name, lam_error *err);
+
+/* The flake model in words: the sheet conductivity of graphene
+ * (lam_sheet_describe) or a crystal's n,k sources. */
+void lam_setup_describe_flake(const lam_setup *s, char *buf, size_t n);
+
+/* The kind of the flake material (LAM_CRYSTAL_SHEETS for graphene). */
+lam_crystal_kind lam_setup_crystal_kind(const lam_setup *s);
 
 /* Set the thickness of the first SiO2 layer (adds one on the base when the
  * stack has none; records substrate.stack). LAM_ERANGE for thickness < 0

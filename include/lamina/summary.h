@@ -27,6 +27,14 @@ struct cJSON;
 lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos,
                              const lam_stage *stage, char **text, lam_error *err);
 
+/* The same with hBN's thicknesses (issue 14): after the counts, every
+ * region with a thickness_nm, its 95 % interval and probability, marked
+ * "order-ambiguous" and "in target" (target: A-B nm, NULL or NAN for none);
+ * an hBN-only batch lists no monolayer candidates. */
+lam_status lam_summary_batch_target(const lam_batch *b, const lam_positions *pos,
+                                    const lam_stage *stage, const double target[2], char **text,
+                                    lam_error *err);
+
 /* One line (no newline) for an analysed image from its lamina-analysis/1
  * JSON: file name, oxide, 1L/2L/3L/4L+ counts, "(results kept)" when kept,
  * the largest monolayer. */
@@ -38,6 +46,19 @@ lam_status lam_summary_image_line(const char *path, const struct cJSON *result, 
 lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
                                   const lam_setup *setup, const char *format, char **text,
                                   lam_error *err);
+
+/* The same for films of the given thicknesses (a crystal of continuous
+ * thickness, hBN; issue 14): rows 1..count of p hold them. Both add the
+ * material and observation to the JSON and, on a nearly anti-reflecting
+ * substrate (lam_summary_prediction_near_ar), columns dR = R_sub - R_flake
+ * and the shot-noise SNR per pixel (10000 e- full well at bare Si) to the
+ * table and CSV. */
+lam_status lam_summary_prediction_films(const lam_prediction *p, const double *thickness_nm,
+                                        size_t count, double mono_nm, const lam_setup *setup,
+                                        const char *format, char **text, lam_error *err);
+
+/* 1 when the substrate reflects less than 3 % in some channel. */
+int lam_summary_prediction_near_ar(const lam_prediction *p);
 
 /* A calibration: the fit's chi2, each fitted (or given) value with its
  * sigma or "not constrained", each image's oxide and each label's residual.

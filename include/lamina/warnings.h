@@ -14,7 +14,8 @@
  *
  * Codes: saturated, underexposed, oxide-off-nominal, encoding-mismatch,
  * setup-defaults, poor-fit, two-readings (the flakes fit two layer
- * counts), monochrome (one channel without a measured oxide).
+ * counts), monochrome (one channel without a measured oxide),
+ * anti-reflection (a substrate below 3 % reflectance in a channel).
  *
  * Ownership: plain values inside lam_analysis; nothing to free.
  */
@@ -23,7 +24,7 @@
 
 #include <stddef.h>
 
-#define LAM_MAX_WARNINGS 8
+#define LAM_MAX_WARNINGS 12
 
 typedef struct lam_warning {
     char code[24];

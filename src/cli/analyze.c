@@ -29,6 +29,7 @@ typedef struct analyze_args {
     long threads, K;
     double area;
     size_t shard[2]; /* --shard I/N */
+    double target[2]; /* --target-thickness A-B, nm (NAN: none) */
     int recursive;
     double t0;
 } analyze_args;
@@ -78,11 +79,12 @@ static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, 
 
 /* The catalogue and run report (catalog.*, goto.csv, crops, report.html). */
 static int catalog_outputs(const lam_batch *b, const lam_positions *pos, const lam_stage *stage,
-                           const char *out_dir)
+                           const char *out_dir, const double target[2])
 {
     lam_catalog cat;
     lam_catalog_init(&cat);
     lam_catalog_set_stage(&cat, pos, stage);
+    lam_catalog_set_target(&cat, target[0], target[1]);
     snprintf(cat.results, sizeof cat.results, "%s", out_dir);
     lam_error err;
     lam_error_clear(&err);
@@ -160,6 +162,8 @@ static int parse_megapixels(const char *command, const char *text, void *target)
          "also analyse the images listed in FILE (one path a line)"},                          \
         {"recursive", 0, CLI_FLAG, &(A)->recursive, 0, 0, NULL, NULL,                           \
          "also search the subfolders of each FOLDER"},                                          \
+        {"target-thickness", 0, CLI_CALL, (A)->target, 0, 0, cli_option_target, "A-B",         \
+         "rank hBN regions by closeness to A-B nm (e.g. 10-30)"},                               \
         {"positions", 0, CLI_TEXT, &(A)->positions, 0, 0, NULL, "FILE.csv",                     \
          "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\nreading at each tile's "    \
          "centre"},                                                                             \
@@ -188,7 +192,8 @@ static void analyze_help(FILE *out)
     analyze_args A;
     cli_option t[] = ANALYZE_OPTIONS(&A);
     fputs("Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
-          "Find the flakes in each micrograph, count their layers with a probability,\n"
+          "Find the flakes in each micrograph, count their layers with a probability\n"
+          "(hBN: its thickness in nm with an interval and every order that fits),\n"
           "estimate the Fermi level where the colours constrain it and fit the oxide\n"
           "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
           "STEM.contrast.svg per image; for several images also catalog.json,\n"
@@ -251,11 +256,12 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
                 b.pool_reused ? ", as stored" : "", A->out_dir);
     char *text = NULL;
     if (!cli_quiet && !A->bo.pool_only &&
-        !lam_summary_batch(&b, A->positions ? pos : NULL, &A->stage, &text, &err))
+        !lam_summary_batch_target(&b, A->positions ? pos : NULL, &A->stage, A->target, &text,
+                                  &err))
         fputs(text, stdout);
     free(text);
-    if (!A->bo.pool_only && (b.count > 1 || A->positions) &&
-        (r = catalog_outputs(&b, A->positions ? pos : NULL, &A->stage, A->out_dir)))
+    if (!A->bo.pool_only && (b.count > 1 || A->positions || isfinite(A->target[0])) &&
+        (r = catalog_outputs(&b, A->positions ? pos : NULL, &A->stage, A->out_dir, A->target)))
         rc = r;
     lam_batch_clear(&b);
     return failed ? CLI_EFILE : rc;
@@ -272,6 +278,7 @@ static int run_analyze(int argc, char **argv)
     A.threads = (long)lam_cpu_count();
     A.K = 6;
     A.area = -1;
+    A.target[0] = A.target[1] = NAN;
     cli_option t[] = ANALYZE_OPTIONS(&A);
     cli_command_options co = {"analyze", t, &A.so, &A.stage, NULL};
     int rc = cli_options_parse(&co, argc, argv, 1);

@@ -6,6 +6,7 @@
 #include "lamina/catalog.h"
 
 #include <getopt.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -18,6 +19,7 @@ static void catalog_help(FILE *out)
           "(default lamina-out): candidates first, duplicates across overlapping tiles\n"
           "merged when positions are given.\n\n"
           "  --positions FILE.csv  file,x_um,y_um[,rotation_deg] (or x_mm,y_mm)\n"
+          "  --target-thickness A-B  rank hBN regions by closeness to A-B nm (e.g. 10-30)\n"
           CLI_STAGE_HELP
           "  --quiet\n",
           out);
@@ -30,9 +32,11 @@ static int run_catalog(int argc, char **argv)
     static const struct option longopts[] = {{"out", required_argument, 0, 'O'},
                                              {"positions", required_argument, 0, 'P'},
                                              {"quiet", no_argument, 0, 'q'},
+                                             {"target-thickness", required_argument, 0, 'T'},
                                              CLI_STAGE_LONGOPTS,
                                              {0, 0, 0, 0}};
     const char *out_dir = "lamina-out", *positions = NULL;
+    double target[2] = {NAN, NAN};
     lam_stage stage = lam_stage_default();
     int c, r;
     optind = 2;
@@ -44,7 +48,10 @@ static int run_catalog(int argc, char **argv)
             positions = optarg;
         else if (c == 'q')
             cli_quiet = 1;
-        else if ((r = cli_stage_option(&stage, "catalog", c, optarg)) < 0)
+        else if (c == 'T') {
+            if ((r = cli_parse_target("catalog", optarg, target)))
+                return r;
+        } else if ((r = cli_stage_option(&stage, "catalog", c, optarg)) < 0)
             return CLI_EUSAGE;
         else if (!r)
             return cli_usage_error("catalog", "unknown or incomplete option '%s'",
@@ -61,6 +68,7 @@ static int run_catalog(int argc, char **argv)
     lam_catalog cat;
     lam_catalog_init(&cat);
     lam_catalog_set_stage(&cat, positions ? &pos : NULL, &stage);
+    lam_catalog_set_target(&cat, target[0], target[1]);
     int rc = CLI_OK;
     size_t images = 0;
     for (int i = optind; i < argc && rc == CLI_OK; i++)

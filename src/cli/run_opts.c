@@ -35,3 +35,19 @@ int cli_run_outputs(lam_catalog *cat, const char *out_dir, double refresh_s)
         return cli_report(&err, out_dir);
     return CLI_OK;
 }
+
+int cli_parse_target(const char *command, const char *arg, double out[2])
+{
+    double a, b;
+    char tail;
+    if (sscanf(arg, "%lf-%lf%c", &a, &b, &tail) != 2 || !(a > 0) || !(b >= a) || !(b <= 1000))
+        return cli_usage_error(command, "--target-thickness: expected A-B in nm with "
+                                        "0 < A <= B <= 1000, e.g. 10-30");
+    out[0] = a, out[1] = b;
+    return 0;
+}
+
+int cli_option_target(const char *command, const char *arg, void *target)
+{
+    return cli_parse_target(command, arg, target) ? -1 : 0;
+}

@@ -23,6 +23,12 @@ enum { CLI_OPT_STAGE_AXES = 1101, CLI_OPT_STAGE_UNITS, CLI_OPT_STAGE_ROTATION, C
     "  --stage-rotation DEG  turn the pictures DEG counter-clockwise onto the stage axes\n"  \
     "  --stage-origin X,Y|TILE:PX,PY  chip (0,0): a stage reading, or a pixel of a tile\n"
 
+/* --target-thickness A-B (nm, 0 < A <= B <= 1000) into out; 0, or the
+ * usage exit code after printing the error. */
+int cli_parse_target(const char *command, const char *arg, double out[2]);
+/* The same as an option table's call (cli/options.h): 0, or -1. */
+int cli_option_target(const char *command, const char *arg, void *target);
+
 /* 1 if 'code' was a stage option, 0 if not, -1 after a usage error. */
 int cli_stage_option(lam_stage *s, const char *command, int code, const char *arg);
 

@@ -34,7 +34,8 @@ enum {
     "  --setup FILE          setup profile (lamina-setup/1)\n"                             \
     "  --oxide NM, --na X, --fermi EV, --um-per-px X, --material NAME\n"                   \
     "                        override the setup's nominal SiO2 thickness, illumination\n" \
-    "                        NA, Fermi level, pixel size and flake material\n"             \
+    "                        NA, Fermi level, pixel size and flake material (graphene,\n"   \
+    "                        hBN, MoS2, WS2, WSe2; a source after a slash: MoS2/Song)\n"    \
     "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
 
 /* Handle a shared option: 1 if it was one, 0 if not, -1 after printing a

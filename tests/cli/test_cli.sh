@@ -36,8 +36,21 @@ cmp -s "$T/out" "$T/plain.csv" && bad "the hBN layer changes the prediction" || 
 printf '{"stack":[{"material":"SiO2","thickness_nm":-3}]}' > "$T/badstack.json"
 expect_rc 1 "a stack with a negative thickness" "$BIN" predict --stack "$T/badstack.json"
 grep -q "badstack.json" "$T/err" && grep -q "thickness_nm" "$T/err" && ok "stack error names file and key" || bad "stack error: $(cat "$T/err")"
-expect_rc 2 "an unmodelled flake material" "$BIN" predict --material MoS2
+expect_rc 2 "an unmodelled flake material" "$BIN" predict --material MoTe2
 expect_rc 0 "graphene as --material" "$BIN" predict --material graphene
+# other crystals (issue 14)
+expect_rc 0 "hBN films by thickness" "$BIN" predict --material hBN --thickness 0.333,10,30 --format json
+grep -q '"thickness_nm":[[:space:]]*30' "$T/out" && grep -q '"material":[[:space:]]*"hBN"' "$T/out" \
+    && ok "predict json rows carry thickness_nm" || bad "thickness rows: $(head -c 300 "$T/out")"
+expect_rc 2 "--thickness needs a continuous crystal" "$BIN" predict --thickness 10
+grep -q "hBN" "$T/err" && ok "the message names hBN" || bad "thickness message: $(cat "$T/err")"
+expect_rc 2 "--thickness must be numbers" "$BIN" predict --material hBN --thickness 10,x
+expect_rc 0 "MoS2 layers" "$BIN" predict --material MoS2/Song --oxide 90 --layers 1-3 --format csv
+[ "$(wc -l < "$T/out")" -eq 4 ] && ok "MoS2 csv: header and 3 rows" || bad "MoS2 csv rows"
+printf '{"stack":[{"material":"Si3N4","thickness_nm":67}],"base":"Si"}' > "$T/ar.json"
+expect_rc 0 "graphene on nearly anti-reflecting nitride" "$BIN" predict --stack "$T/ar.json" --format csv
+grep -q "anti-reflecting" "$T/err" && head -1 "$T/out" | grep -q "dR_G,snr_G" \
+    && ok "anti-reflection: a warning, dR and SNR columns" || bad "AR: $(cat "$T/err") $(head -1 "$T/out")"
 expect_rc 1 "predict to /dev/full" sh -c "\"$BIN\" predict > /dev/full"
 
 # images: make a valid PNG and JPEG with the test suite's helpers (cjpeg)
@@ -75,7 +88,7 @@ grep -q "typo-scene.json: unknown key flaks; did you mean flakes?" "$T/err" && [
 expect_rc 2 "render to an unsupported extension (invalid argument)" "$BIN" render samples/HT285-C11-tile07.scene.json -o "$T/x.gif"
 expect_rc 2 "an out-of-range Fermi level" "$BIN" predict --fermi 3
 expect_rc 1 "an unmodelled material inside a setup file is a file error" sh -c \
-    "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoS2\"}' > \"$T/mos2.json\"; \"$BIN\" predict --setup \"$T/mos2.json\""
+    "printf '{\"schema\":\"lamina-setup/1\",\"material\":\"MoTe2\"}' > \"$T/mote2.json\"; \"$BIN\" predict --setup \"$T/mote2.json\""
 expect_rc 0 "plan writes an SVG" "$BIN" plan --layers 2 --out "$T/plan.svg"
 grep -q "</svg>" "$T/plan.svg" && ok "plan SVG complete" || bad "plan SVG complete"
 expect_rc 1 "plan into a missing folder" "$BIN" plan --out "$T/none/plan.svg"
@@ -180,6 +193,40 @@ expect_rc 0 "--recursive finds a .tif two levels down" "$BIN" analyze --quiet --
 printf 'BM\066\000\000\000\000\000\000\000\066\000\000\000' > "$T/scan.bmp"
 expect_rc 1 "a BMP file" "$BIN" analyze --quiet --out "$T/g" "$T/scan.bmp"
 grep -q "scan.bmp.*a BMP image: lamina reads PNG, JPEG and TIFF" "$T/err" && ok "BMP named as such" || bad "BMP message: $(cat "$T/err")"
+
+# crystals: hBN thickness with a target window, bad windows, render of any material, transmission
+expect_rc 0 "analyze hBN with --target-thickness" "$BIN" analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out "$T/h" samples/HT285-N05-tile04.png
+grep -q '"thickness_nm"' "$T/h/HT285-N05-tile04.json" && ok "hBN regions carry thickness_nm" || bad "hBN JSON without thickness_nm"
+head -1 "$T/h/catalog.csv" | grep -q ',thickness_nm,thickness_interval_nm$' && ok "catalogue has the thickness columns" || bad "catalogue header: $(head -1 "$T/h/catalog.csv")"
+sed -n 2p "$T/h/catalog.csv" | awk -F, '{ exit !($20 >= 10 && $20 <= 30 && $5 == "thickness") }' && ok "an in-target flake ranks first" || bad "first catalogue row: $(sed -n 2p "$T/h/catalog.csv")"
+grep -q "in target" "$T/out" && ok "the table marks flakes in the target" || bad "no in-target mark in: $(cat "$T/out")"
+grep -q "monolayer candidates" "$T/out" && bad "hBN run lists monolayer candidates" || ok "no monolayer list for hBN"
+expect_rc 2 "a reversed target window" "$BIN" analyze --target-thickness 30-10 samples/HT285-N05-tile04.png
+expect_rc 2 "a target window that is not numbers" "$BIN" analyze --target-thickness thin samples/HT285-N05-tile04.png
+expect_rc 2 "catalog merge with a bad target window" "$BIN" catalog merge --target-thickness 5 --out "$T/hm" "$T/h"
+expect_rc 0 "catalog merge re-ranks by a target window" "$BIN" catalog merge --quiet --target-thickness 40-60 --out "$T/hm" "$T/h"
+sed -n 2p "$T/hm/catalog.csv" | awk -F, '{ exit !($20 >= 40 && $20 <= 60) }' && ok "the merged catalogue puts the 40-60 nm flake first" || bad "merged first row: $(sed -n 2p "$T/hm/catalog.csv")"
+printf '{"schema":"lamina-scene/1","width":160,"height":120,"oxide_nm":285,"seed":5,"flakes":[{"material":"hBN","thickness_nm":20,"polygon":[[20,20],[80,20],[80,80],[20,80]]},{"material":"graphite","thickness_nm":10,"polygon":[[100,30],[140,30],[140,90],[100,90]]}]}' > "$T/hbn-scene.json"
+expect_rc 0 "render hBN and graphite flakes" "$BIN" render "$T/hbn-scene.json" -o "$T/hbn.png"
+[ -s "$T/hbn.truth.png" ] && ok "render wrote the truth map" || bad "no truth map for the hBN scene"
+printf '{"schema":"lamina-scene/1","width":32,"height":24,"flakes":[{"material":"hBN","polygon":[[2,2],[9,2],[9,9]]}]}' > "$T/hbn-bad.json"
+expect_rc 1 "an hBN flake without thickness_nm" "$BIN" render "$T/hbn-bad.json" -o "$T/hbn-bad.png"
+printf '{"schema":"lamina-setup/1","observation":"transmission","substrate":{"stack":[],"base":"PDMS"}}' > "$T/stamp.json"
+expect_rc 0 "predict in transmission through a stamp" "$BIN" predict --setup "$T/stamp.json" --layers 1-2 --format json
+grep -q '"observation":[[:space:]]*"transmission"' "$T/out" && ok "the JSON names the observation" || bad "transmission JSON: $(head -c 300 "$T/out")"
+printf '{"schema":"lamina-setup/1","observation":"transmission","substrate":{"stack":[{"material":"SiO2","thickness_nm":285}],"base":"Si"}}' > "$T/opaque.json"
+expect_rc 1 "transmission into silicon is refused" "$BIN" predict --setup "$T/opaque.json"
+
+# a nearly anti-reflecting substrate in an analysis: warning code, dR and SNR per region
+printf '{"schema":"lamina-setup/1","substrate":{"stack":[{"material":"Si3N4","thickness_nm":67}],"base":"Si"},"um_per_px":0.2}' > "$T/ar-setup.json"
+printf '{"schema":"lamina-scene/1","setup":"ar-setup.json","width":320,"height":240,"exposure":0.5,"full_well":10000,"seed":7,"flakes":[{"layers":1,"polygon":[[40,40],[160,30],[170,160],[50,170]]}]}' > "$T/ar-scene.json"
+expect_rc 0 "render graphene on nitride" "$BIN" render "$T/ar-scene.json" -o "$T/ar.png"
+expect_rc 0 "analyze graphene on nitride" "$BIN" analyze --setup "$T/ar-setup.json" --out "$T/ar" "$T/ar.png"
+grep -q '"code":[[:space:]]*"anti-reflection"' "$T/ar/ar.json" && grep -q '"delta_reflectance"' "$T/ar/ar.json" && grep -q '"snr"' "$T/ar/ar.json" \
+    && ok "anti-reflection: warning code, dR and SNR in the JSON" || bad "AR analysis JSON: $(grep -c warning "$T/ar/ar.json")"
+grep -q "warning: the substrate is nearly anti-reflecting" "$T/err" && ok "anti-reflection warning on stderr" || bad "AR stderr: $(cat "$T/err")"
+grep -q "(-1)" "$T/out" && bad "a stack without SiO2 shows oxide (-1)" || ok "no oxide shown for a stack without SiO2"
+grep -q '"code"' "$T/h/HT285-N05-tile04.json" && bad "the hBN sample has warnings: $(grep -A1 '"code"' "$T/h/HT285-N05-tile04.json")" || ok "the hBN sample analyses without warnings"
 
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]

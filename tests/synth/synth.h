@@ -62,6 +62,27 @@ typedef enum {
     SYNTH_RESP_COUNT
 } synth_response;
 
+/* The flake crystal of a scene (issue 14). Graphene (the default) uses the
+ * response above; the others are films of published n,k (synth_classes.c):
+ *   hBN   a transparent film of any thickness, in-plane index of Grudinin
+ *         et al. 2023 (source 0), Lee et al. 2019 (1) or Rah et al. 2019 (2);
+ *   MoS2  N x 0.615 nm: Hsu et al. 2019 1L, 2L and 3L n,k and the bulk
+ *         n,k of Song et al. 2019 above (source 0), or Song's 1L for one
+ *         layer and Song's bulk for more (source 1);
+ *   WSe2  N x 0.649 nm: the 1L n,k of Hsu et al. 2019 (0) or Gu et al. 2019
+ *         (1) for every layer count;
+ *   WS2   N x 0.616 nm: Hsu et al. 2019 1L n,k for every layer count.
+ * In scenes of these crystals the exposure is lowered when needed so that
+ * the brightest flake stays below 92 % of full scale. */
+typedef enum {
+    SYNTH_XTAL_GRAPHENE = 0,
+    SYNTH_XTAL_HBN,
+    SYNTH_XTAL_MOS2,
+    SYNTH_XTAL_WSE2,
+    SYNTH_XTAL_WS2,
+    SYNTH_XTAL_COUNT
+} synth_crystal;
+
 typedef enum { SYNTH_SI_RANDOM = 0, SYNTH_SI_GREEN, SYNTH_SI_SCHINKE, SYNTH_SI_ASPNES } synth_si;
 typedef enum { SYNTH_SIO2_RANDOM = 0, SYNTH_SIO2_MALITSON, SYNTH_SIO2_GAO } synth_sio2;
 
@@ -112,6 +133,9 @@ typedef struct synth_config {
     int noiseless;              /* 1: no shot or read noise */
     int no_flat_field;          /* 1: no vignetting or gradient */
     double blur_px;             /* NAN: Gaussian sigma 0.5..1.5 px; 0: none */
+    synth_crystal crystal;      /* graphene unless set */
+    int nk_source;              /* the crystal's n,k source (see synth_crystal); -1 random */
+    double hbn_min_nm, hbn_max_nm; /* hBN film thickness range, log-uniform; NAN: 1..100 */
 } synth_config;
 
 typedef struct synth_lamp {
@@ -136,6 +160,8 @@ typedef struct synth_camera {
 
 /* The resolved physics of one scene (the truth). */
 typedef struct synth_physics {
+    synth_crystal crystal;
+    int nk_source;
     synth_response response;
     synth_si si;
     synth_sio2 sio2;
@@ -175,7 +201,8 @@ typedef struct synth_object {
     long area_px;           /* pixels whose centres fall inside (folds excluded) */
     double cx, cy;          /* centroid of those pixels */
     double rel[3];          /* channel value / substrate value, noise-free */
-    int label;              /* value in the truth map: layers, 250 residue, 251 dust */
+    double thickness_nm;    /* hBN flake: the film's thickness (layers 0); else 0 */
+    int label;              /* value in the truth map: layers, 250 residue, 251 dust, 252 hBN */
 } synth_object;
 
 typedef struct synth_scene {
@@ -240,6 +267,10 @@ const char *synth_error(void);
 const char *synth_response_name(synth_response r);
 int synth_response_parse(const char *name, synth_response *out);
 const char *synth_camera_name(synth_camera_kind k);
+const char *synth_crystal_name(synth_crystal c); /* "graphene", "hBN", "MoS2", ... */
+int synth_crystal_parse(const char *name, synth_crystal *out);
+/* The n,k file(s) of a crystal's source: the film of N layers (hBN: any). */
+const char *synth_crystal_file(synth_crystal c, int source, int layers);
 const char *synth_format_ext(synth_format fmt);
 /* "png", "jpeg85", "bayer", "bayer-jpeg90", "png16", "gamma22", "grey8",
  * "grey16", "tiff16" -> format, quality, and whether one channel is

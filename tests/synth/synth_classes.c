@@ -2,7 +2,8 @@
  * every object, tabulated once per scene (pixels only scale these).
  *
  * Stack, top down: ambient air; the object (graphene as sheets or a film,
- * graphite film, PMMA film); SiO2 of the TRUE thickness; Si. Reflectance
+ * graphite film, PMMA film, a film of another crystal: synth_crystal);
+ * SiO2 of the TRUE thickness; Si. Reflectance
  * is averaged over s and p and over the illumination cone, then weighted
  * by lamp x channel sensitivity (white balanced: a perfect white reflector
  * gives 1 in every channel). */
@@ -21,6 +22,9 @@ typedef struct ctx {
     synth_bc *sub;                  /* [i][node][pol]: Si + oxide */
     double complex *gap_c, *gap_s;  /* [i][node]: a 0.335 nm air gap */
     double complex n_pmma[SYNTH_NL], n_graphite[SYNTH_NL], n_film[SYNTH_NL];
+    /* other crystals: the film of 1, 2, 3 and more layers
+     * (synth_crystal_file), or hBN's film in xtal[0] */
+    double complex xtal[4][SYNTH_NL];
     synth_graphene g;
 } ctx;
 
@@ -82,6 +86,22 @@ static int load_all(ctx *c, synth_material *si, synth_material *ox, synth_materi
     return 0;
 }
 
+/* The crystal's n,k for 1, 2, 3 and 4+ layers. */
+static int load_crystal(ctx *c)
+{
+    static const int layers[4] = {1, 2, 3, 4};
+    for (int j = 0; j < 4 && c->p->crystal != SYNTH_XTAL_GRAPHENE; j++) {
+        synth_material m;
+        if (synth_material_load(synth_crystal_file(c->p->crystal, c->p->nk_source, layers[j]),
+                                &m))
+            return -1;
+        for (int i = 0; i < SYNTH_NL; i++)
+            c->xtal[j][i] = synth_material_index(&m, synth_wl(i));
+        synth_material_free(&m);
+    }
+    return 0;
+}
+
 static void ctx_close(ctx *c)
 {
     free(c->sub);
@@ -105,6 +125,8 @@ static int ctx_open(ctx *c, const synth_physics *p)
     int st = !c->sub || !c->gap_c || !c->gap_s ? synth_fail("out of memory")
                                                : load_all(c, &si, &ox, &pm, &gr);
     if (!st)
+        st = load_crystal(c);
+    if (!st)
         substrate_fields(c, &si, &ox);
     synth_material_free(&si), synth_material_free(&ox), synth_material_free(&pm);
     synth_material_free(&gr);
@@ -120,8 +142,14 @@ static void add_top(const ctx *c, const synth_object *o, const double complex *s
 {
     double wl = synth_wl(i), kx = c->sin_t[a];
     synth_layer film = {0, 1.0, 0, 0};
+    synth_crystal x = c->p->crystal;
     if (o->kind == SYNTH_OBJ_RESIDUE)
         film.n = c->n_pmma[i], film.d_nm = o->residue_nm;
+    else if (x == SYNTH_XTAL_HBN)
+        film.n = c->xtal[0][i], film.d_nm = o->thickness_nm;
+    else if (x != SYNTH_XTAL_GRAPHENE)
+        film.n = c->xtal[o->layers < 4 ? o->layers - 1 : 3][i],
+        film.d_nm = o->layers * synth_crystal_layer_nm(x);
     else if (o->layers >= 15)
         film.n = c->n_graphite[i], film.d_nm = o->layers * SYNTH_LAYER_NM;
     else if (!sig)
@@ -171,7 +199,7 @@ static const double complex *layer_sigma(const ctx *c, const synth_object *o,
                                          double complex sig[SYNTH_NL], int *st)
 {
     *st = 0;
-    if (o->kind == SYNTH_OBJ_RESIDUE || o->layers >= 15)
+    if (o->kind == SYNTH_OBJ_RESIDUE || o->layers >= 15 || c->p->crystal != SYNTH_XTAL_GRAPHENE)
         return NULL;
     if (o->doped)
         *st = synth_block_response(&c->g, o->fermi_eV, c->p->kT_eV, sig);

@@ -17,6 +17,10 @@
 #define SYNTH_HC_EVNM 1239.841984
 #define SYNTH_KB_EVK 8.617333262e-5
 #define SYNTH_LAYER_NM 0.335 /* graphite interlayer spacing per layer */
+/* Layer thicknesses of the other crystals (bulk interlayer spacings; the
+ * film thicknesses the TMD n,k were derived with, from memory):
+ * hBN 0.333, MoS2 0.615, WSe2 0.649, WS2 0.616 nm. */
+double synth_crystal_layer_nm(synth_crystal c);
 #define SYNTH_TAU_EV 0.01    /* hbar / tau of the intraband term */
 #define SYNTH_PI 3.14159265358979323846
 

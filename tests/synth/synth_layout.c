@@ -75,14 +75,24 @@ static int draw_layers(synth_rng *r, int index)
                                                                : synth_rng_int(r, 15, 60);
 }
 
+/* An hBN flake: a film of log-uniform thickness (default 1..100 nm). */
+static void set_hbn(const synth_config *cfg, synth_rng *r, synth_object *o)
+{
+    double lo = isnan(cfg->hbn_min_nm) ? 1 : cfg->hbn_min_nm;
+    double hi = isnan(cfg->hbn_max_nm) ? 100 : cfg->hbn_max_nm;
+    o->layers = 0;
+    o->label = 252;
+    o->thickness_nm = lo * exp(synth_rng_uniform(r, 0, 1) * log(hi / lo));
+}
+
 static void set_fermi(const synth_config *cfg, synth_rng *r, const synth_scene *sc,
                       synth_object *o)
 {
     double lo = isnan(cfg->fermi_lo_eV) ? 0.1 : cfg->fermi_lo_eV;
     double hi = isnan(cfg->fermi_hi_eV) ? 0.3 : cfg->fermi_hi_eV;
     double mu = synth_rng_uniform(r, lo, hi);
-    if (o->layers >= 15)
-        return;   /* graphite: the Djurisic table as published */
+    if (o->layers >= 15 || sc->phys.crystal != SYNTH_XTAL_GRAPHENE)
+        return;   /* graphite (the Djurisic table) and other crystals: n,k as published */
     if (!isnan(cfg->fermi_eV)) {
         o->doped = 1;
         o->fermi_eV = cfg->fermi_eV;
@@ -110,6 +120,8 @@ static void add_flakes(const synth_config *cfg, synth_rng *r, synth_scene *sc, p
             return;
         o->layers = o->label = draw_layers(r, i);
         set_fermi(cfg, r, sc, o);
+        if (sc->phys.crystal == SYNTH_XTAL_HBN)
+            set_hbn(cfg, r, o);
         double u = synth_rng_uniform(r, 0, 1);
         if (place(r, sc, pl, o, 18 + 92 * pow(u, 1.6), 18) == 0)
             sc->nobj++;

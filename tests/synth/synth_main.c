@@ -4,6 +4,7 @@
  *   synth --out DIR [--count N] [--seed S] [--response R] [--oxide NM]
  *         [--true-oxide NM] [--na X] [--camera gauss|dye|mono]
  *         [--lamp blackbody|led|cie-a] [--format F] [--doped] [--tag]
+ *         [--crystal graphene|hBN|MoS2|WSe2|WS2] [--source N] [--hbn-range A-B]
  *
  * Scene i has seed S + i and files DIR/synth-SEED.EXT, .truth.png,
  * .truth.json, .setup.json (+ .camera.csv, .lamp.csv) and
@@ -33,7 +34,8 @@ static int usage(const char *msg)
                     "sigma0|weber|song|elsayed|lamina-default] [--oxide NM] [--true-oxide NM] "
                     "[--na X] [--camera gauss|dye|mono] [--lamp blackbody|led|cie-a] "
                     "[--format png|jpegQ|bayer|bayer-jpegQ|png16|gamma22|grey8|grey16|tiff16] "
-                    "[--doped] [--tag]\n", msg);
+                    "[--doped] [--tag] [--crystal graphene|hBN|MoS2|WSe2|WS2] [--source N] "
+                    "[--hbn-range A-B]\n", msg);
     return 2;
 }
 
@@ -56,6 +58,23 @@ static int named(const char *s, const char *const *names, int n, int *out)
             return 0;
         }
     return -1;
+}
+
+/* --crystal NAME, --source N, --hbn-range A-B */
+static int crystal_option(opts *o, const char *key, const char *val)
+{
+    double v, w;
+    synth_crystal x;
+    if (!strcmp(key, "--crystal") && !synth_crystal_parse(val, &x))
+        o->cfg.crystal = x;
+    else if (!strcmp(key, "--source") && !number(val, 0, 2, &v))
+        o->cfg.nk_source = (int)v;
+    else if (!strcmp(key, "--hbn-range") && sscanf(val, "%lf-%lf", &v, &w) == 2 && v >= 0.3 &&
+             w >= v && w <= 1000)
+        o->cfg.hbn_min_nm = v, o->cfg.hbn_max_nm = w;
+    else
+        return -1;
+    return 0;
 }
 
 static int option(opts *o, const char *key, const char *val)
@@ -86,7 +105,7 @@ static int option(opts *o, const char *key, const char *val)
     else if (!strcmp(key, "--lamp") && !named(val, lamps, 3, &k))
         o->cfg.lamp = (synth_lamp_kind)k;
     else
-        return -1;
+        return crystal_option(o, key, val);
     return 0;
 }
 
@@ -157,7 +176,10 @@ static int one_scene(const opts *o, synth_format fmt, int quality, int channels,
         fprintf(stderr, "synth: %s\n", synth_error());
     else
         printf("%s  %-14s oxide %.1f (nominal %g) nm  NA %.2f  camera %s  %d objects  "
-               "%.0f ms\n", stem, synth_response_name(sc.phys.response), sc.phys.oxide_nm,
+               "%.0f ms\n", stem, sc.phys.crystal ? synth_crystal_file(sc.phys.crystal,
+                                                                     sc.phys.nk_source, 1)
+                                                  : synth_response_name(sc.phys.response),
+               sc.phys.oxide_nm,
                sc.phys.nominal_oxide_nm, sc.phys.na, synth_camera_name(sc.phys.cam.kind),
                sc.nobj, ms);
     if (rendered)

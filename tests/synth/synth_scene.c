@@ -35,6 +35,8 @@ void synth_config_init(synth_config *cfg)
     cfg->exposure = cfg->blur_px = cfg->lamp_kelvin = NAN;
     for (int k = 0; k < 3; k++)
         cfg->gauss_centre_nm[k] = cfg->gauss_fwhm_nm[k] = NAN;
+    cfg->nk_source = -1;
+    cfg->hbn_min_nm = cfg->hbn_max_nm = NAN;
 }
 
 static double pick(double given, double drawn)
@@ -92,11 +94,25 @@ static void draw_camera(const synth_config *cfg, synth_rng *r, synth_physics *p)
     p->um_per_px = pick(cfg->um_per_px, synth_rng_uniform(r, 0.1, 0.25));
 }
 
+/* The crystal's n,k source; drawn after the optics and camera so that a
+ * graphene scene's stream is what it always was. */
+static void draw_crystal(const synth_config *cfg, synth_rng *r, synth_physics *p)
+{
+    static const int sources[SYNTH_XTAL_COUNT] = {1, 3, 2, 2, 1};
+    p->crystal = cfg->crystal;
+    if (p->crystal == SYNTH_XTAL_GRAPHENE)
+        return;
+    int n = sources[p->crystal];
+    p->nk_source = cfg->nk_source >= 0 && cfg->nk_source < n ? cfg->nk_source
+                                                               : synth_rng_int(r, 0, n - 1);
+}
+
 void synth_physics_draw(const synth_config *cfg, synth_rng *r, synth_physics *p)
 {
     memset(p, 0, sizeof *p);
     draw_optics(cfg, r, p);
     draw_camera(cfg, r, p);
+    draw_crystal(cfg, r, p);
 }
 
 static int check_config(const synth_config *cfg)
@@ -112,6 +128,13 @@ static int check_config(const synth_config *cfg)
                           cfg->n_doped, cfg->n_flakes);
     if (cfg->response >= SYNTH_RESP_COUNT)
         return synth_fail("response %d unknown", (int)cfg->response);
+    if (cfg->crystal >= SYNTH_XTAL_COUNT)
+        return synth_fail("crystal %d unknown", (int)cfg->crystal);
+    if ((!isnan(cfg->hbn_min_nm) && !(cfg->hbn_min_nm >= 0.3)) ||
+        (!isnan(cfg->hbn_max_nm) && !(cfg->hbn_max_nm <= 1000)) ||
+        (!isnan(cfg->hbn_min_nm) && !isnan(cfg->hbn_max_nm) && cfg->hbn_max_nm < cfg->hbn_min_nm))
+        return synth_fail("hBN thickness range %g..%g nm is outside 0.3..1000", cfg->hbn_min_nm,
+                          cfg->hbn_max_nm);
     if (!isnan(cfg->lamp_kelvin) && !(cfg->lamp_kelvin >= 1000 && cfg->lamp_kelvin <= 20000))
         return synth_fail("lamp temperature %g K is outside 1000..20000", cfg->lamp_kelvin);
     for (int k = 0; k < 3; k++)
@@ -119,6 +142,27 @@ static int check_config(const synth_config *cfg)
             (!isnan(cfg->gauss_fwhm_nm[k]) && !(cfg->gauss_fwhm_nm[k] > 1)))
             return synth_fail("camera channel %d: centre or FWHM out of range", k);
     return 0;
+}
+
+/* Other crystals' flakes can be several times brighter than the substrate
+ * (hBN on 90 nm oxide): the exposure is lowered, when needed, so that the
+ * brightest flake stays below 92 % of full scale with the flat field's
+ * peak - an exposure set to avoid clipping, as one sets it for bright
+ * flakes (common practice). Graphene scenes are unchanged. */
+static void cap_exposure(synth_scene *sc)
+{
+    synth_physics *p = &sc->phys;
+    if (p->crystal == SYNTH_XTAL_GRAPHENE)
+        return;
+    double top = 0, bright = 1;
+    for (int k = 0; k < p->cam.nc; k++)
+        top = fmax(top, p->sub_value[k]);
+    for (int i = 0; i < sc->nobj; i++)
+        for (int k = 0; k < p->cam.nc; k++)
+            if (sc->obj[i].kind == SYNTH_OBJ_FLAKE || sc->obj[i].kind == SYNTH_OBJ_FOLD)
+                bright = fmax(bright, sc->obj[i].rel[k] * p->sub_value[k] / top);
+    double peak = (1 + 0.5 * p->gradient);
+    p->exposure = fmin(p->exposure, 0.92 / (bright * peak));
 }
 
 int synth_scene_make(const synth_config *cfg, uint64_t seed, synth_scene *out)
@@ -150,6 +194,7 @@ int synth_scene_make2(const synth_config *cfg, uint64_t physics_seed, uint64_t l
         synth_scene_free(out);
         return -1;
     }
+    cap_exposure(out);
     return 0;
 }
 

@@ -1,8 +1,8 @@
 /* synth_setup.c - what a lab WOULD know about the microscope, as a
  * lamina-setup/1 profile (docs/setup.md): camera and lamp as tables, the
  * illumination NA, the file's encoding, the NOMINAL oxide and the pixel
- * size - never the graphene response, the true oxide or the pupil
- * weighting. The uninformed profile has only the oxide and pixel size. */
+ * size, the flake crystal - never the graphene response, a crystal's n,k
+ * source, the true oxide or the pupil weighting. The uninformed profile has only the oxide and pixel size. */
 #include "synth_internal.h"
 
 #include <string.h>
@@ -80,6 +80,8 @@ int synth_write_setup(const synth_scene *sc, synth_format fmt, int informed, con
         fprintf(f, "  \"camera\": {\"kind\": \"table\", \"file\": \"%s\"},\n", base_name(cam));
         fprintf(f, "  \"encoding\": %s,\n", encoding(fmt));
     }
+    if (p->crystal != SYNTH_XTAL_GRAPHENE) /* the lab knows its crystal, not the n,k */
+        fprintf(f, "  \"material\": \"%s\",\n", synth_crystal_name(p->crystal));
     fprintf(f, "  \"um_per_px\": %.6g,\n", p->um_per_px);
     fprintf(f, "  \"substrate\": {\"stack\": [{\"material\": \"SiO2\", \"thickness_nm\": %g}], "
                "\"base\": \"Si\"}\n}\n", p->nominal_oxide_nm);

@@ -75,6 +75,12 @@ static void write_physics(FILE *f, const synth_physics *p)
             synth_pmma_file(p->pmma));
     num(f, "oxide_nm", p->oxide_nm, ", "), num(f, "nominal_oxide_nm", p->nominal_oxide_nm, ", ");
     num(f, "na", p->na, ", ");
+    if (p->crystal != SYNTH_XTAL_GRAPHENE)
+        fprintf(f, "\"crystal\": \"%s\", \"nk\": [\"%s\", \"%s\", \"%s\", \"%s\"], ",
+                synth_crystal_name(p->crystal), synth_crystal_file(p->crystal, p->nk_source, 1),
+                synth_crystal_file(p->crystal, p->nk_source, 2),
+                synth_crystal_file(p->crystal, p->nk_source, 3),
+                synth_crystal_file(p->crystal, p->nk_source, 4));
     fprintf(f, "\"pupil\": \"%s\", ", synth_pupil_name(p->pupil));
     num(f, "pupil_f", p->pupil_f, ", ");
     fprintf(f, "\"cone_steps\": %d, \"temperature_K\": 295,\n", p->cone_steps);
@@ -99,6 +105,8 @@ static void write_object(FILE *f, const synth_scene *sc, int i)
                "\"parent\": %d, \"doped\": %s, ", i, kinds[o->kind], o->label, o->layers,
             o->parent, o->doped ? "true" : "false");
     num(f, "fermi_eV", o->fermi_eV, ", ");
+    if (o->thickness_nm > 0)
+        num(f, "thickness_nm", o->thickness_nm, ", ");
     if (o->kind == SYNTH_OBJ_RESIDUE)
         num(f, "residue_nm", o->residue_nm, ", ");
     if (o->kind == SYNTH_OBJ_DUST)

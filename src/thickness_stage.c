@@ -1,0 +1,451 @@
+/* thickness_stage.c - the analysis stage for continuous-thickness crystals
+ * (lamina/thickness.h): the image's oxide from its regions, then every
+ * region's thickness posterior and its region result. */
+#include "lamina/analyze.h"
+#include "lamina/thickness.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* The oxide profile: a coarse grid (4 nm over nominal +- 3 prior sd, at
+ * most 40 nm), then 1 nm steps about the best; the thickness grid of the
+ * profile is coarse (1.5 % steps), its model too (10 nm spectral steps, 4
+ * cone nodes). */
+#define COARSE_STEP_NM 4.0
+#define FINE_STEP_NM 1.0
+#define PROFILE_MAX_HALF_NM 40.0
+#define PROFILE_STEP_REL 0.015
+#define OXIDE_SYSTEMATIC 0.015
+
+/* The point the films are evaluated at: the setup's optics (the prior
+ * centres of the estimate; the graphene-style fit that ran before knows
+ * nothing of films of this thickness range). */
+static lam_model_point prior_point(const lam_estimate *e)
+{
+    lam_model_point p = lam_estimate_point(e, 0);
+    p.v[LAM_MP_NA] = e->shared[LAM_NU_NA].prior_mean;
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
+        p.v[LAM_MP_SHIFT + c] = e->shared[LAM_NU_SHIFT + c].prior_mean;
+        p.v[LAM_MP_WIDTH + c] = e->shared[LAM_NU_WIDTH + c].prior_mean;
+    }
+    p.v[LAM_MP_OXIDE] = e->image[0].oxide.prior_mean;
+    return p;
+}
+
+typedef struct profile_ctx {
+    const lam_analysis *a;
+    lam_model *coarse;
+    lam_model_point p;
+    double scale_mean, scale_sd;     /* the index scale's prior */
+    int scale_shared;                /* the image's posterior was taken (image_scale) */
+    lam_thickness_noise nz;
+    size_t used;
+    double sd_shift[LAM_MAX_CHANNELS], sd_width[LAM_MAX_CHANNELS], sd_na; /* optics' priors */
+    lam_thickness_table *optics_ref; /* the profile's first table, with the optics' variance */
+} profile_ctx;
+
+/* The optics' variance of a table at the context's point and prior scale. */
+static lam_status add_optics(profile_ctx *x, lam_thickness_table *t, lam_model *m, double ox,
+                             lam_error *err)
+{
+    lam_model_point p = x->p;
+    p.v[LAM_MP_OXIDE] = ox;
+    return lam_thickness_table_add_optics(t, m, &p, x->scale_mean, x->sd_shift, x->sd_width,
+                                          x->sd_na, err);
+}
+
+/* sum[f]: the log evidence of the regions that may inform the fit at each
+ * index scale of the table (at most 255 scales). */
+static lam_status image_scale_evidence(profile_ctx *x, const lam_thickness_table *t, double *sum,
+                                       lam_error *err)
+{
+    size_t nf = lam_thickness_scales(t);
+    double e[256];
+    if (nf > 255)
+        return lam_error_set(err, LAM_EINVAL, "too many index scales (%zu)", nf);
+    for (size_t f = 0; f < nf; f++)
+        sum[f] = 0;
+    x->used = 0;
+    for (size_t i = 0; i < x->a->count; i++)
+        if (x->a->measured[i].use) {
+            lam_thickness_log_evidence_scales(t, &x->nz, &x->a->measured[i], e);
+            for (size_t f = 0; f < nf; f++)
+                sum[f] += e[f];
+            x->used++;
+        }
+    return LAM_OK;
+}
+
+/* The log evidence of the regions that may inform the fit at one oxide,
+ * with the image's index scale integrated (one crystal per image), plus the
+ * oxide's log prior. */
+static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error *err)
+{
+    lam_thickness_options o = lam_thickness_options_default();
+    o.step_rel = PROFILE_STEP_REL;
+    o.scale_nodes = 3;
+    o.scale_fine = 9;
+    double w = 1;
+    lam_thickness_table *t = NULL;
+    lam_status st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
+                                              x->scale_sd, &o, &t, err);
+    if (!st && !x->optics_ref && !(st = add_optics(x, t, x->coarse, ox, err))) {
+        x->optics_ref = t; /* derivatives vary slowly with the oxide: reused */
+        lam_thickness_table *copy = NULL;
+        st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
+                                       x->scale_sd, &o, &copy, err);
+        t = copy;
+    }
+    if (!st)
+        st = lam_thickness_table_copy_optics(t, x->optics_ref, err);
+    if (st) {
+        lam_thickness_table_free(t);
+        return st;
+    }
+    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
+    double zo = (ox - po->prior_mean) / po->prior_sd, s = -0.5 * zo * zo;
+    double sum[256];
+    st = image_scale_evidence(x, t, sum, err);
+    if (!st) {
+        /* one index scale for the image: its prior times every region's vote */
+        double m = -INFINITY, z = 0;
+        for (size_t f = 0; f < lam_thickness_scales(t); f++)
+            m = fmax(m, sum[f] += lam_thickness_scale_logw(t, f));
+        for (size_t f = 0; f < lam_thickness_scales(t); f++)
+            z += exp(sum[f] - m);
+        *score = s + m + log(z);
+    }
+    lam_thickness_table_free(t);
+    return st;
+}
+
+/* The coarse grid over the oxide: the best point. */
+static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
+{
+    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
+    int half = (int)ceil(fmin(3 * po->prior_sd, PROFILE_MAX_HALF_NM) / COARSE_STEP_NM);
+    double best = -INFINITY, score;
+    *ox = po->prior_mean;
+    lam_status st = LAM_OK;
+    for (int k = -half; k <= half && !st; k++) {
+        double d = po->prior_mean + COARSE_STEP_NM * k;
+        if (d >= 0 && !(st = profile_at(x, d, &score, err)) && score > best)
+            best = score, *ox = d;
+    }
+    return st;
+}
+
+/* 1 nm steps about the coarse best: the best refined by a
+ * parabola, the sd from the curvature (the prior when the profile is flat
+ * or the best lies at the edge). */
+static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *err)
+{
+    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
+    enum { HALF = 4, N = 2 * HALF + 1 };
+    double score[N], centre = *ox;
+    int kbest = 0;
+    lam_status st = LAM_OK;
+    for (int k = -HALF; k <= HALF && !st; k++) {
+        double d = centre + FINE_STEP_NM * k;
+        score[k + HALF] = -INFINITY;
+        if (d >= 0)
+            st = profile_at(x, d, &score[k + HALF], err);
+        if (!st && score[k + HALF] > score[kbest + HALF])
+            kbest = k;
+    }
+    *sd = po->prior_sd;
+    *ox = centre + FINE_STEP_NM * kbest;
+    if (st || kbest == -HALF || kbest == HALF)
+        return st;
+    double a = score[kbest + HALF - 1], b = score[kbest + HALF], c = score[kbest + HALF + 1];
+    double curv = (a - 2 * b + c) / (FINE_STEP_NM * FINE_STEP_NM);
+    if (curv < 0 && isfinite(curv)) {
+        double step = 0.5 * (a - c) / (a - 2 * b + c);
+        *ox += FINE_STEP_NM * fmax(-0.5, fmin(0.5, step));
+        *sd = 1 / sqrt(-curv);
+    }
+    /* shared systematics the profile cannot see: SiO2 index models differ
+     * by ~1.3 % in optical thickness (Malitson 1965 vs the Gao 2013 film),
+     * the pupil's filling moves the phase by ~1 % */
+    *sd = hypot(*sd, OXIDE_SYSTEMATIC * *ox);
+    return LAM_OK;
+}
+
+/* The image's oxide (estimate and sd) from its regions, or the nominal. */
+static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x, double *ox,
+                            double *sd, lam_error *err)
+{
+    lam_nuisance *o = &a->estimate->image[0].oxide;
+    *ox = o->prior_mean, *sd = 0;
+    size_t usable = 0;
+    for (size_t i = 0; i < a->count; i++)
+        usable += a->measured[i].use != 0;
+    a->oxide.regions_used = 0;
+    if (!o->fitted || !usable || lam_setup_oxide(s) < 0) {
+        a->oxide.fitted = 0;
+        snprintf(a->oxide.method, sizeof a->oxide.method, "%s",
+                 lam_setup_oxide(s) < 0 ? "no oxide in the stack"
+                 : !o->fitted           ? "nominal (not fitted)"
+                                        : "nominal (no region usable for a fit)");
+        return LAM_OK;
+    }
+    lam_setup coarse = *s; /* a shallow copy: the model copies what it needs */
+    coarse.grid_step_nm = 10;
+    coarse.cone_nodes = 4;
+    lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse, err);
+    if (!st && !(st = coarse_scan(x, ox, err)))
+        st = fine_scan(x, ox, sd, err);
+    lam_model_free(x->coarse);
+    lam_thickness_table_free(x->optics_ref);
+    x->coarse = NULL;
+    x->optics_ref = NULL;
+    if (st)
+        return st;
+    a->oxide.fitted = 1;
+    a->oxide.regions_used = x->used;
+    snprintf(a->oxide.method, sizeof a->oxide.method,
+             "profile over %zu region(s), each film's thickness and the index scale integrated",
+             x->used);
+    return LAM_OK;
+}
+
+static void oxide_result(lam_analysis *a, double ox, double sd, double tolerance)
+{
+    lam_oxide_result *o = &a->oxide;
+    lam_nuisance *n = &a->estimate->image[0].oxide;
+    o->estimate = o->fitted ? ox : o->nominal;
+    o->sigma = o->sigma_given_shared = o->fitted ? sd : NAN;
+    o->pass = fabs(o->estimate - o->nominal) <= tolerance;
+    n->value = o->estimate;
+    n->sigma = o->sigma;
+}
+
+static void geometry(const lam_region_stats *s, const lam_infer_options *io,
+                     lam_region_result *r)
+{
+    if (s->clipped > s->area / 100)
+        r->flags |= LAM_FLAG_SATURATED;
+    if (s->touches_border)
+        r->flags |= LAM_FLAG_BORDER;
+    if ((double)s->area < io->min_area_px)
+        r->flags |= LAM_FLAG_SMALL;
+}
+
+/* The region result of a thickness posterior: label "12.3 nm" (class
+ * "thickness", the film drawn as "thick" in the layer map), "substrate" or
+ * "unmodelled". */
+static void region_result(const lam_analysis *a, size_t i, const lam_thickness_result *t,
+                          lam_region_result *r)
+{
+    size_t K = a->max_layers, nc = a->channels;
+    memset(r, 0, sizeof *r);
+    r->channels = nc;
+    r->p[0] = r->p_substrate = t->p_substrate;
+    r->p[LAM_P_THICK(K)] = t->probability;
+    r->p[LAM_P_UNMODELLED(K)] = t->p_unmodelled;
+    r->chi2 = t->chi2;
+    for (size_t c = 0; c < nc; c++) {
+        r->mean[c] = a->measured[i].mean[c];
+        r->sigma[c] = t->sigma[c];
+        r->model[c] = t->model[c];
+    }
+    r->fermi.estimate = r->fermi.lo = r->fermi.hi = r->fermi.upper = NAN;
+    geometry(&a->seg->regions[i], &a->infer, r);
+    int unmodelled = t->p_unmodelled > fmax(t->p_film, t->p_substrate) ||
+                     (r->flags & LAM_FLAG_SATURATED);
+    if (unmodelled) {
+        r->flags |= LAM_FLAG_UNMODELLED;
+        snprintf(r->label, sizeof r->label, "unassigned");
+        snprintf(r->cls, sizeof r->cls, "unmodelled");
+        r->p_label = t->p_unmodelled;
+    } else if (t->p_substrate > t->p_film) {
+        r->substrate_like = 1;
+        r->flags |= LAM_FLAG_AMBIGUOUS;
+        snprintf(r->label, sizeof r->label, "unassigned");
+        snprintf(r->cls, sizeof r->cls, "substrate");
+        r->p_label = t->p_substrate;
+    } else {
+        r->thick = 1;
+        snprintf(r->label, sizeof r->label, t->estimate < 10 ? "%.1f nm" : "%.0f nm",
+                 t->estimate);
+        snprintf(r->cls, sizeof r->cls, "thickness");
+        r->p_label = t->probability;
+        if (t->order_ambiguous)
+            r->flags |= LAM_FLAG_AMBIGUOUS;
+    }
+}
+
+/* Every region's posterior under a table. */
+static void infer_regions(lam_analysis *a, const lam_thickness_table *t, const profile_ctx *x,
+                          const lam_thickness_options *opt)
+{
+    for (size_t i = 0; i < a->count; i++) {
+        lam_thickness_infer(t, &x->nz, &a->measured[i], opt, &a->thickness[i]);
+        region_result(a, i, &a->thickness[i], &a->results[i]);
+        lam_usable_rectangle(a->seg, &a->seg->regions[i], a->results[i].usable_px,
+                             a->results[i].usable_at);
+    }
+}
+
+/* Join keys: regions whose thickness is settled (one order, a film, not
+ * unmodelled) share a key with those whose 95 % intervals overlap the
+ * interval of the thinnest of their group (sorted by estimate, no
+ * chaining), so parts of one flake cut apart by JPEG or demosaicing
+ * artefacts can be joined, and two flakes of different thickness cannot.
+ * -1: never. */
+static void join_keys(const lam_analysis *a, int *key)
+{
+    size_t n = a->count, m = 0;
+    size_t *order = malloc((n ? n : 1) * sizeof *order);
+    for (size_t i = 0; i < n; i++) {
+        const lam_thickness_result *t = &a->thickness[i];
+        const lam_region_result *r = &a->results[i];
+        key[i] = -1;
+        if (order && t->evaluated && !t->order_ambiguous && r->thick &&
+            !(r->flags & (LAM_FLAG_UNMODELLED | LAM_FLAG_SATURATED)))
+            order[m++] = i;
+    }
+    if (!order)
+        return;
+    /* insertion sort by estimate (a few dozen regions) */
+    for (size_t i = 1; i < m; i++)
+        for (size_t j = i; j > 0 && a->thickness[order[j]].estimate <
+                                        a->thickness[order[j - 1]].estimate; j--) {
+            size_t tmp = order[j];
+            order[j] = order[j - 1], order[j - 1] = tmp;
+        }
+    int cluster = 0;
+    const lam_thickness_result *first = m ? &a->thickness[order[0]] : NULL;
+    for (size_t i = 0; i < m; i++) {
+        const lam_thickness_result *q = &a->thickness[order[i]];
+        if (q->lo > first->hi) { /* no chaining: every member overlaps the first */
+            cluster++;
+            first = q;
+        }
+        key[order[i]] = cluster;
+    }
+    free(order);
+}
+
+/* Join the parts of one flake (lam_segment_join) and measure the regions
+ * again. Band pixels join within 0.02 of the region's contrast plus the
+ * pixel noise, per channel. */
+static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_error *err)
+{
+    size_t n = a->count, joined = 0;
+    int *key = malloc((n ? n : 1) * sizeof *key);
+    uint32_t *map = malloc((n ? n : 1) * sizeof *map);
+    lam_status st = key && map ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot join regions");
+    double fill[3] = {0, 0, 0};
+    for (size_t c = 0; c < a->channels; c++)
+        fill[c] = 0.02 + a->substrate.noise[c];
+    if (!st) {
+        join_keys(a, key);
+        st = lam_segment_join(contrast, a->channels, key, fill, a->seg, map, &joined, err);
+    }
+    free(key);
+    free(map);
+    if (st)
+        return st;
+    a->count = a->seg->count;
+    for (size_t i = 0; i < a->count; i++)
+        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
+                           a->channels, &a->measured[i]);
+    return LAM_OK;
+}
+
+/* The image's index scale (one crystal per image): the prior times every
+ * informing region's evidence at each scale, as the table's scale weights,
+ * when the regions agree with the prior (posterior mean within 2 prior sd);
+ * a posterior pushed further is a misfit of something else (pupil, oxide
+ * index, camera) that the index must not absorb, and the prior stays.
+ * Returns 1 when the posterior was taken. */
+static int image_scale(profile_ctx *x, lam_thickness_table *t, lam_error *err)
+{
+    size_t nf = lam_thickness_scales(t);
+    double sum[256], m = 0, z = 0, top = -INFINITY;
+    if (image_scale_evidence(x, t, sum, err) || !x->used || nf > 255)
+        return 0;
+    for (size_t f = 0; f < nf; f++)
+        top = fmax(top, sum[f] += lam_thickness_scale_logw(t, f));
+    for (size_t f = 0; f < nf; f++) {
+        double w = exp(sum[f] - top);
+        z += w, m += w * lam_thickness_scale_value(t, f);
+    }
+    m /= z;
+    if (fabs(m - x->scale_mean) > 2 * x->scale_sd)
+        return 0;
+    lam_thickness_set_scale_logw(t, sum);
+    return 1;
+}
+
+/* Every region's posterior under the table at the oxide's nodes, the parts
+ * of one flake joined, and the joined regions' posteriors. */
+static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model *model,
+                          profile_ctx *x, double ox, double sd, lam_error *err)
+{
+    static const double gx[3] = {-1.224744871391589, 0, 1.224744871391589};
+    static const double gw[3] = {1.0 / 6, 2.0 / 3, 1.0 / 6};
+    double nodes[3], w[3] = {1, 0, 0};
+    size_t n = sd > 0.3 ? 3 : 1;
+    for (size_t k = 0; k < n; k++) {
+        nodes[k] = n == 1 ? ox : fmax(0, ox + M_SQRT2 * sd * gx[k]);
+        w[k] = n == 1 ? 1 : gw[k];
+    }
+    lam_thickness_options opt = lam_thickness_options_default();
+    lam_thickness_table *t = NULL;
+    lam_status st = lam_thickness_table_build(model, &x->p, nodes, w, n, x->scale_mean,
+                                              x->scale_sd, &opt, &t, err);
+    if (!st)
+        st = add_optics(x, t, model, ox, err);
+    if (!st) {
+        x->scale_shared = image_scale(x, t, err);
+        infer_regions(a, t, x, &opt);
+        if (contrast && !(st = join_parts(a, contrast, err)))
+            infer_regions(a, t, x, &opt);
+    }
+    lam_thickness_table_free(t);
+    return st;
+}
+
+lam_status lam_thickness_analyze(lam_analysis *a, const lam_image *contrast, const lam_setup *s,
+                                 lam_model *model, double oxide_tolerance_nm, lam_error *err)
+{
+    profile_ctx x;
+    memset(&x, 0, sizeof x);
+    x.a = a;
+    x.p = prior_point(a->estimate);
+    x.nz = lam_thickness_noise_from(a->estimate, s);
+    for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {
+        x.sd_shift[c] = a->estimate->shared[LAM_NU_SHIFT + c].prior_sd;
+        x.sd_width[c] = a->estimate->shared[LAM_NU_WIDTH + c].prior_sd;
+    }
+    x.sd_na = a->estimate->shared[LAM_NU_NA].prior_sd;
+    free(a->thickness);
+    a->thickness = calloc(a->count ? a->count : 1, sizeof *a->thickness);
+    if (!a->thickness)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate thickness results");
+    double ox, sd;
+    lam_status st = lam_crystal_index_scale_prior(s->crystal, &x.scale_mean, &x.scale_sd, err);
+    if (!st)
+        st = fit_oxide(a, s, &x, &ox, &sd, err);
+    if (st)
+        return st;
+    oxide_result(a, ox, sd, oxide_tolerance_nm);
+    x.p.v[LAM_MP_OXIDE] = ox;
+    /* the films' table: 10 nm spectral steps and 6 cone nodes (a 300 nm
+     * film's fringes are 200 nm apart; thickness figures equal those of the
+     * analysis' 5 nm / 8-node model on the independent renders) */
+    (void)model;
+    lam_setup mid = *s;
+    mid.grid_step_nm = 10;
+    mid.cone_nodes = 6;
+    lam_model *mm = NULL;
+    st = lam_model_alloc(&mid, 1, 0, &mm, err);
+    if (!st)
+        st = regions(a, contrast, mm, &x, ox, sd, err);
+    lam_model_free(mm);
+    return st;
+}

@@ -1,0 +1,87 @@
+/* test_crystals_synth.c - issue 14's figures, quick version, on images of
+ * the independent generator (tests/synth: physics lamina is not told):
+ * hBN films of 1-100 nm with the index of Grudinin 2023, Lee 2019 or Rah
+ * 2019, thickness within 10 % or order-ambiguous; 1-3L MoS2 (n,k of Hsu
+ * 2019 or Song 2019) and WSe2 (Hsu 2019 or Gu 2019) counted right. Informed
+ * setups, 8-bit PNG. The full matrix (more scenes, JPEG, every source and
+ * oxide) is `make accuracy-crystals` (build/tests/robust/crystals). */
+#include "check.h"
+#include "robust/crystals.h"
+#include "lamina/error.h"
+
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+
+static robust_case make_case(synth_crystal x, int source, double oxide)
+{
+    robust_case c;
+    synth_config_init(&c.cfg);
+    c.cfg.crystal = x;
+    c.cfg.nk_source = source;
+    c.cfg.nominal_oxide_nm = oxide;
+    c.fmt = SYNTH_FMT_PNG;
+    c.quality = 0;
+    c.informed = 1;
+    c.pooled_setup = NULL;
+    return c;
+}
+
+static void test_hbn(const char *dir)
+{
+    static const struct { int source; double oxide; } cases[] = {
+        {0, 285}, {1, 90}, {2, 285}, {1, 285}};
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        robust_case c = make_case(SYNTH_XTAL_HBN, cases[i].source, cases[i].oxide);
+        hbn_tally t;
+        memset(&t, 0, sizeof t);
+        check_int(crystals_run_hbn(&c, 7100 + i, dir, &t, stdout), 0,
+                  "hBN scene %zu rendered and analysed", i);
+        crystals_add(&total, &t);
+    }
+    crystals_print(stdout, "quick hBN (4 png scenes)", &total);
+    check_true(total.flakes >= 30, "enough hBN flakes scored (%zu)", total.flakes);
+    check_true(total.right >= 0.9 * (double)total.flakes,
+               "hBN thickness within 10 %% or order-ambiguous for >= 90 %% of flakes "
+               "(%zu / %zu; issue 14 asks 95 %% over the full matrix)",
+               total.right, total.flakes);
+    check_true(total.covered >= 0.9 * (double)total.flakes,
+               "the truth inside a reported 95 %% interval for >= 90 %% (%zu / %zu)",
+               total.covered, total.flakes);
+}
+
+static void test_tmd(const char *dir)
+{
+    static const struct { synth_crystal x; int source; double oxide; } cases[] = {
+        {SYNTH_XTAL_MOS2, 1, 90}, {SYNTH_XTAL_MOS2, 0, 285}, {SYNTH_XTAL_WSE2, 1, 285},
+        {SYNTH_XTAL_WSE2, 0, 90}};
+    robust_tally total;
+    memset(&total, 0, sizeof total);
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        robust_case c = make_case(cases[i].x, cases[i].source, cases[i].oxide);
+        check_int(robust_run(&c, 7200 + i, dir, &total, stdout), 0,
+                  "TMD scene %zu rendered and analysed", i);
+    }
+    robust_print(stdout, "quick TMD (4 png scenes)", &total);
+    check_true(total.flakes >= 25, "enough 1-3L TMD flakes scored (%zu)", total.flakes);
+    check_true(total.right >= 0.9 * (double)total.flakes,
+               "1-3L MoS2 and WSe2 counted right for >= 90 %% (%zu / %zu; issue 14 asks 95 %% "
+               "over the full matrix)",
+               total.right, total.flakes);
+}
+
+int main(void)
+{
+    lam_error_init_gsl();
+    check_begin("test_crystals_synth");
+    if (!check_refdata_dir())
+        check_skip("tests/data/nk not found");
+    char dir[512];
+    check_path(dir, sizeof dir, check_tmpdir(), "crystals");
+    mkdir(dir, 0755);
+    test_hbn(dir);
+    test_tmd(dir);
+    return check_summary();
+}
