@@ -108,9 +108,7 @@ static lam_status refresh_outputs(session *w, lam_error *err)
     }
     lam_run_report_options ro = {NULL, 0, REPORT_REFRESH_S};
     if (!st)
-        st = lam_catalog_finish(&cat, err);
-    if (!st && !(st = lam_catalog_write(&cat, w->opt->out_dir, err)))
-        st = lam_run_report_write(&cat, w->opt->out_dir, &ro, err);
+        st = lam_run_outputs_write(&cat, w->opt->out_dir, &ro, err);
     lam_catalog_clear(&cat);
     return st;
 }

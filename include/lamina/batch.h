@@ -119,6 +119,12 @@ lam_status lam_batch_hash_file(const char *path, char out[LAM_BATCH_HASH_LEN], l
 void lam_batch_setup_hash(const char *setup_file, const lam_analysis_options *opt,
                           const char *extra, char out[LAM_BATCH_HASH_LEN]);
 
+/* lam_batch_setup_hash of a setup built by lam_setup_build: the setup
+ * file and the single values given beside it (oxide, NA, Fermi level,
+ * pixel size); the stack file and material are not part of it. */
+void lam_batch_overrides_hash(const lam_setup_overrides *o, const lam_analysis_options *opt,
+                              char out[LAM_BATCH_HASH_LEN]);
+
 /* The setup hash of results analysed with a prior: base hash and the
  * prior's numbers (the base hash itself when prior is NULL or unset). */
 void lam_batch_prior_hash(const char *base, const lam_shared_prior *prior,

@@ -13,6 +13,7 @@
 #include "lamina/batch.h"
 #include "lamina/calibrate.h"
 #include "lamina/error.h"
+#include "lamina/image.h"
 #include "lamina/model.h"
 #include "lamina/oxide.h"
 #include "lamina/stage.h"
@@ -49,5 +50,11 @@ lam_status lam_summary_calibration(const lam_calib_result *r, const char *const 
  * consistency note, the verdict with its reason and advice, the absolute
  * method and other interference orders. */
 lam_status lam_summary_oxide(const lam_oxide_audit *a, char **text, lam_error *err);
+
+/* How an image loaded, one line (no newline): "PATH: WxH KIND D-bit
+ * RGB|grey, transfer T, saturated P %, linear mean R G B" (the mean level
+ * of each linear plane over the whole image). */
+lam_status lam_summary_image(const char *path, const lam_image *img, char **text,
+                             lam_error *err);
 
 #endif

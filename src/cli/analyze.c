@@ -4,14 +4,11 @@
  * and run report (run_opts.h). */
 #include "cli.h"
 #include "options.h"
-#include "run_opts.h"
-#include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/batch.h"
 #include "lamina/catalog.h"
 #include "lamina/clock.h"
 #include "lamina/inputs.h"
-#include "lamina/parallel.h"
 #include "lamina/summary.h"
 
 #include <math.h>
@@ -22,12 +19,10 @@
 
 /* What run_analyze needs besides the analysis options. */
 typedef struct analyze_args {
-    cli_setup_opts so;
+    lam_setup_overrides so;
     lam_batch_options bo;
     lam_stage stage;
     const char *out_dir, *list, *positions;
-    long threads, K;
-    double area;
     size_t shard[2]; /* --shard I/N */
     int recursive;
     double t0;
@@ -88,7 +83,7 @@ static int catalog_outputs(const lam_batch *b, const lam_positions *pos, const l
     lam_error_clear(&err);
     int rc = lam_batch_catalog_add(b, &cat, pos, &err) ? cli_report(&err, NULL) : CLI_OK;
     if (rc == CLI_OK)
-        rc = cli_run_outputs(&cat, out_dir, 0);
+        rc = cli_run_outputs(&cat, out_dir);
     lam_catalog_clear(&cat);
     return rc;
 }
@@ -123,28 +118,12 @@ static int parse_shard(const char *command, const char *text, void *target)
     return 0;
 }
 
-static int parse_encoding(const char *command, const char *text, void *target)
-{
-    if (lam_transfer_parse(text, target))
-        return cli_usage_error(command, "--encoding: expected srgb, linear or a gamma value"), -1;
-    return 0;
-}
-
-static int parse_megapixels(const char *command, const char *text, void *target)
-{
-    double mp;
-    if (cli_parse_double(command, "--max-megapixels", text, 0.001, 10000, &mp))
-        return -1;
-    *(size_t *)target = (size_t)(mp * 1e6);
-    return 0;
-}
-
 /* analyze's own options (the physics and stage options are shared). */
 #define ANALYZE_OPTIONS(A)                                                                      \
     {                                                                                           \
-        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K",                               \
+        {"max-layers", 0, CLI_SIZE, &(A)->bo.analysis.max_layers, 1, 20, NULL, "K",             \
          "layer counts modelled (default 6; thicker = \"thick\")"},                              \
-        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
+        {"min-area", 0, CLI_CALL, &(A)->bo.analysis, 0, 0, cli_parse_min_area, "A",             \
          "regions below A um^2 (or px without a pixel size) are 'small'"},                     \
         {"substrate-roi", 0, CLI_CALL, &(A)->bo.analysis.substrate, 0, 0, parse_roi,            \
          "X,Y,W,H", "where the bare substrate is, if not found automatically"},                \
@@ -152,10 +131,11 @@ static int parse_megapixels(const char *command, const char *text, void *target)
          "NM", "pass/fail of the oxide check (default 10)"},                                   \
         {"no-oxide-fit", 0, CLI_UNSET, &(A)->bo.analysis.fit_oxide, 0, 0, NULL, NULL,           \
          "keep the nominal oxide"},                                                             \
-        {"encoding", 0, CLI_CALL, &(A)->bo.analysis.load.transfer, 0, 0, parse_encoding, "E",   \
+        {"encoding", 0, CLI_CALL, &(A)->bo.analysis.load.transfer, 0, 0, cli_parse_encoding,    \
+         "E",                                                                                   \
          "srgb, linear or a gamma value (default: from the file)"},                            \
         {"max-megapixels", 0, CLI_CALL, &(A)->bo.analysis.load.max_pixels, 0, 0,                \
-         parse_megapixels, "MP", "refuse larger images"},                                      \
+         cli_parse_megapixels, "MP", "refuse larger images"},                                  \
         {"list", 0, CLI_TEXT, &(A)->list, 0, 0, NULL, "FILE",                                   \
          "also analyse the images listed in FILE (one path a line)"},                          \
         {"recursive", 0, CLI_FLAG, &(A)->recursive, 0, 0, NULL, NULL,                           \
@@ -176,11 +156,11 @@ static int parse_megapixels(const char *command, const char *text, void *target)
          "analyse only the I-th of N deterministic parts of the inputs"},                       \
         {"out", 0, CLI_TEXT, &(A)->out_dir, 0, 0, NULL, "DIR",                                  \
          "output folder (default lamina-out)"},                                                 \
-        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
+        {"threads", 0, CLI_SIZE, &(A)->bo.threads, 1, 256, NULL, "N",                           \
          "worker threads (default: all cores)"},                                                \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no summary, no progress"},        \
         {"verbose", 0, CLI_FLAG, &cli_verbose, 0, 0, NULL, NULL, "stage timings per image"},   \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+        CLI_END                                                                                 \
     }
 
 static void analyze_help(FILE *out)
@@ -204,15 +184,9 @@ static void analyze_help(FILE *out)
 static int prepare(analyze_args *A, lam_setup *s, lam_positions *pos)
 {
     int rc;
-    if ((rc = cli_setup_build("analyze", &A->so, s)))
+    if ((rc = cli_setup_build("analyze", &A->so, s)) ||
+        (rc = cli_positions_need_scale("analyze", A->positions, s)))
         return rc;
-    lam_analysis_options *opt = &A->bo.analysis;
-    opt->max_layers = (size_t)A->K;
-    if (A->area >= 0)
-        opt->min_area_um2 = opt->min_area_px = A->area;
-    if (A->positions && !(s->um_per_px > 0))
-        return cli_usage_error("analyze", "--positions needs the pixel size: give --um-per-px "
-                                          "or um_per_px in the setup");
     lam_error err;
     lam_error_clear(&err);
     if (A->positions && lam_positions_load(A->positions, pos, &err))
@@ -225,11 +199,10 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
                          const lam_positions *pos)
 {
     char setup_hash[LAM_BATCH_HASH_LEN];
-    cli_setup_hash(&A->so, &A->bo.analysis, setup_hash, sizeof setup_hash);
+    lam_batch_overrides_hash(&A->so, &A->bo.analysis, setup_hash);
     A->bo.setup = s;
     A->bo.out_dir = A->out_dir;
     A->bo.setup_hash = setup_hash;
-    A->bo.threads = (size_t)A->threads;
     A->bo.on_image = on_image;
     A->bo.user = A;
     A->t0 = lam_clock_seconds();
@@ -263,17 +236,12 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
 
 static int run_analyze(int argc, char **argv)
 {
-    analyze_args A;
-    memset(&A, 0, sizeof A);
-    cli_setup_opts_init(&A.so);
-    A.bo = lam_batch_options_default();
-    A.stage = lam_stage_default();
-    A.out_dir = "lamina-out";
-    A.threads = (long)lam_cpu_count();
-    A.K = 6;
-    A.area = -1;
+    analyze_args A = {.bo = lam_batch_options_default(), .stage = lam_stage_default(),
+                      .out_dir = "lamina-out"};
+    lam_setup_overrides_init(&A.so);
     cli_option t[] = ANALYZE_OPTIONS(&A);
-    cli_command_options co = {"analyze", t, &A.so, &A.stage, NULL};
+    cli_command_options co = {.command = "analyze", .own = t, .setup = &A.so,
+                              .stage = &A.stage, .max_args = -1};
     int rc = cli_options_parse(&co, argc, argv, 1);
     if (rc)
         return rc;

@@ -2,7 +2,6 @@
  * images (or, with --self, from the images alone). */
 #include "cli.h"
 #include "options.h"
-#include "setup_opts.h"
 #include "lamina/calibrate.h"
 #include "lamina/summary.h"
 #include "lamina/labels.h"
@@ -15,7 +14,7 @@
 #define MAX_LABELS 32
 
 typedef struct calib_args {
-    cli_setup_opts so;
+    lam_setup_overrides so;
     const char *labels[MAX_LABELS], *out;
     size_t nl, nk;
     int self;
@@ -66,7 +65,7 @@ static int add_labels(const char *command, const char *arg, void *target)
         {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE",                                \
          "write the fitted lamina-setup/1 profile (default calibrated.json)"},                  \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+        CLI_END                                                                                 \
     }
 
 static void calibrate_help(FILE *out)
@@ -91,19 +90,18 @@ static void calibrate_help(FILE *out)
 static int parse_args(int argc, char **argv, calib_args *A)
 {
     memset(A, 0, sizeof *A);
-    cli_setup_opts_init(&A->so);
+    lam_setup_overrides_init(&A->so);
     A->out = "calibrated.json";
     A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
         A->known[i] = NAN;
     cli_option t[] = CALIBRATE_OPTIONS(A);
-    cli_command_options co = {"calibrate", t, &A->so, NULL, NULL};
+    cli_command_options co = {.command = "calibrate", .own = t, .setup = &A->so,
+                              .min_args = 1, .max_args = -1, .args_error = "no image given"};
     int rc = cli_options_parse(&co, argc, argv, 1);
     if (rc)
         return rc;
     size_t ni = (size_t)(argc - optind);
-    if (!ni)
-        return cli_usage_error("calibrate", "no image given");
     if (!A->self && A->nl != ni)
         return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, %zu images), or --self", A->nl, ni);
     if (A->self && A->nl)

@@ -11,7 +11,9 @@
 #define LAMINA_CLI_H
 
 #include <stdio.h>
+#include "lamina/catalog.h"
 #include "lamina/error.h"
+#include "lamina/setup.h"
 
 enum { CLI_OK = 0, CLI_EFILE = 1, CLI_EUSAGE = 2 };
 
@@ -46,6 +48,18 @@ int cli_parse_long(const char *command, const char *option, const char *text, lo
 
 /* Create a folder (and parents) for outputs; returns 0 or prints and -1. */
 int cli_make_dir(const char *path);
+
+/* lam_setup_build, its errors printed: a refused option value as a usage
+ * error of 'command'. Returns the exit code (0: *s is the caller's). */
+int cli_setup_build(const char *command, const lam_setup_overrides *o, lam_setup *s);
+
+/* A usage error when positions are given without a pixel size (the setup's
+ * um_per_px or --um-per-px); 0 otherwise. */
+int cli_positions_need_scale(const char *command, const char *positions, const lam_setup *s);
+
+/* lam_run_outputs_write (catalogue, goto.csv, crops, report.html into
+ * out_dir), the catalogue's warnings printed; returns the exit code. */
+int cli_run_outputs(lam_catalog *cat, const char *out_dir);
 
 extern int cli_quiet, cli_verbose;
 

@@ -3,7 +3,6 @@
  * prints the audit of lamina/oxide.h. */
 #include "cli.h"
 #include "options.h"
-#include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/oxide.h"
 #include "lamina/summary.h"
@@ -13,7 +12,7 @@
 #include <string.h>
 
 typedef struct oxide_args {
-    cli_setup_opts so;
+    lam_setup_overrides so;
     const char *out_dir;
     lam_oxide_audit_options ao;
     double tol_pct;
@@ -47,7 +46,7 @@ static int parse_tolerance(const char *command, const char *arg, void *target)
         {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
         {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N", "worker threads"},        \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+        CLI_END                                                                                 \
     }
 
 static void oxide_help(FILE *out)
@@ -87,12 +86,11 @@ static int run_oxide(int argc, char **argv)
 {
     oxide_args A = {.out_dir = "lamina-out", .ao = lam_oxide_audit_options_default(),
                     .tol_pct = -1, .K = 6, .threads = 0};
-    cli_setup_opts_init(&A.so);
+    lam_setup_overrides_init(&A.so);
     cli_option t[] = OXIDE_OPTIONS(&A);
-    cli_command_options co = {"oxide", t, &A.so, NULL, NULL};
+    cli_command_options co = {.command = "oxide", .own = t, .setup = &A.so, .min_args = 1,
+                              .max_args = -1, .args_error = "no image given"};
     int rc = cli_options_parse(&co, argc, argv, 1);
-    if (!rc && optind >= argc)
-        rc = cli_usage_error("oxide", "no image given");
     lam_setup s;
     if (rc || (rc = cli_setup_build("oxide", &A.so, &s)))
         return rc;

@@ -1,7 +1,6 @@
 /* cli/predict.c - `lamina predict`: the contrast ladder of N = A..B layers. */
 #include "cli.h"
 #include "options.h"
-#include "setup_opts.h"
 #include "lamina/model.h"
 #include "lamina/summary.h"
 
@@ -47,7 +46,7 @@ static int parse_format(const char *command, const char *arg, void *target)
         {"format", 0, CLI_CALL, &(A)->format, 0, 0, parse_format, "F",                          \
          "table (default), csv or json"},                                                       \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, NULL},                             \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+        CLI_END                                                                                 \
     }
 
 static void predict_help(FILE *out)
@@ -63,14 +62,12 @@ static void predict_help(FILE *out)
 static int run_predict(int argc, char **argv)
 {
     predict_args A = {0, {1, 5}, "table"};
-    cli_setup_opts so;
-    cli_setup_opts_init(&so);
+    lam_setup_overrides so;
+    lam_setup_overrides_init(&so);
     cli_option t[] = PREDICT_OPTIONS(&A);
-    cli_command_options co = {"predict", t, &so, NULL, NULL};
+    cli_command_options co = {.command = "predict", .own = t, .setup = &so};
     if (cli_options_parse(&co, argc, argv, 1))
         return CLI_EUSAGE;
-    if (optind < argc)
-        return cli_usage_error("predict", "unexpected argument '%s'", argv[optind]);
     double mono = A.mono;
     long lo = A.range[0], hi = A.range[1];
     const char *format = A.format;

@@ -3,8 +3,6 @@
  * one line per image as the session reports it. */
 #include "cli.h"
 #include "options.h"
-#include "run_opts.h"
-#include "setup_opts.h"
 #include "lamina/batch.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
@@ -73,16 +71,15 @@ static void on_event(const lam_watch_event *ev, void *user)
 /* What the table fills besides lam_watch_options. */
 typedef struct watch_args {
     lam_watch_options w;
-    cli_setup_opts so;
+    lam_setup_overrides so;
     const char *out;
-    long K, threads, max_images;
-    double area;
 } watch_args;
 
 #define WATCH_OPTIONS(A)                                                                        \
     {                                                                                           \
-        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
-        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
+        {"max-layers", 0, CLI_SIZE, &(A)->w.analysis.max_layers, 1, 20, NULL, "K",              \
+         "layer counts modelled (6)"},                                                          \
+        {"min-area", 0, CLI_CALL, &(A)->w.analysis, 0, 0, cli_parse_min_area, "A",              \
          "regions below A um^2 (or px) are 'small'"},                                           \
         {"no-oxide-fit", 0, CLI_UNSET, &(A)->w.analysis.fit_oxide, 0, 0, NULL, NULL,            \
          "keep the nominal oxide"},                                                             \
@@ -92,9 +89,9 @@ typedef struct watch_args {
          "stage readings of the tiles (re-read for every image,\nso the stage software may "   \
          "append to it)"},                                                                      \
         {"out", 0, CLI_TEXT, &(A)->out, 0, 0, NULL, "DIR", "outputs (default DIR/lamina-out)"}, \
-        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
+        {"threads", 0, CLI_SIZE, &(A)->w.analysis.threads, 1, 256, NULL, "N",                   \
          "worker threads per image (default: all cores)"},                                      \
-        {"max-images", 0, CLI_INTEGER, &(A)->max_images, 1, 1e8, NULL, "N",                     \
+        {"max-images", 0, CLI_SIZE, &(A)->w.max_images, 1, 1e8, NULL, "N",                      \
          "stop after N images analysed"},                                                       \
         {"idle-exit", 0, CLI_NUMBER, &(A)->w.idle_exit_s, 0.1, 1e7, NULL, "SEC",                \
          "stop when no image arrived for SEC seconds"},                                         \
@@ -102,7 +99,7 @@ typedef struct watch_args {
          "analyse each image on its own (default: the response, NA\nand camera are pooled "    \
          "from image to image, pool.json)"},                                                    \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},                    \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
+        CLI_END                                                                                 \
     }
 
 static void watch_help(FILE *out)
@@ -120,69 +117,61 @@ static void watch_help(FILE *out)
     fputs(CLI_STAGE_HELP, out);
 }
 
-static int parse_watch_options(int argc, char **argv, watch_args *A)
+/* The setup, the output folder and the setup hash; an exit code. */
+static int prepare(int argc, char **argv, watch_args *A, lam_setup *s, char *out_default,
+                   size_t n, char *setup_hash)
 {
     cli_option t[] = WATCH_OPTIONS(A);
-    cli_command_options co = {"watch", t, &A->so, &A->w.stage, NULL};
+    cli_command_options co = {.command = "watch", .own = t, .setup = &A->so,
+                              .stage = &A->w.stage, .min_args = 1, .max_args = 1,
+                              .args_error = "expected one folder to watch"};
     int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
+    if (rc || (rc = cli_setup_build("watch", &A->so, s)))
         return rc;
-    if (optind + 1 != argc)
-        return cli_usage_error("watch", "expected one folder to watch");
-    A->w.dir = argv[optind];
-    A->w.analysis.max_layers = (size_t)A->K;
-    A->w.analysis.threads = (size_t)A->threads;
-    A->w.max_images = (size_t)A->max_images;
-    if (A->area >= 0)
-        A->w.analysis.min_area_um2 = A->w.analysis.min_area_px = A->area;
+    lam_watch_options *w = &A->w;
+    w->dir = argv[optind];
+    snprintf(out_default, n, "%s/lamina-out", w->dir);
+    w->out_dir = A->out ? A->out : out_default;
+    if (!(rc = cli_positions_need_scale("watch", w->positions, s)) && cli_make_dir(w->out_dir))
+        rc = CLI_EFILE;
+    if (rc) {
+        lam_setup_clear(s);
+        return rc;
+    }
+    lam_batch_overrides_hash(&A->so, &w->analysis, setup_hash);
+    lam_parallel_set_default(w->analysis.threads);
+    w->setup = s;
+    w->setup_hash = setup_hash;
     return CLI_OK;
 }
 
 static int run_watch(int argc, char **argv)
 {
-    watch_args A = {.w = lam_watch_options_default(), .K = 6,
-                    .threads = (long)lam_cpu_count(), .area = -1};
-    cli_setup_opts_init(&A.so);
-    lam_watch_options w;
-    int rc = parse_watch_options(argc, argv, &A);
+    watch_args A = {.w = lam_watch_options_default()};
+    lam_setup_overrides_init(&A.so);
     char out_default[4096], setup_hash[LAM_BATCH_HASH_LEN];
     lam_setup s;
-    if (rc || (rc = cli_setup_build("watch", &A.so, &s)))
+    int rc = prepare(argc, argv, &A, &s, out_default, sizeof out_default, setup_hash);
+    if (rc)
         return rc;
-    w = A.w;
-    const char *out = A.out;
-    cli_setup_opts so = A.so;
-    snprintf(out_default, sizeof out_default, "%s/lamina-out", w.dir);
-    w.out_dir = out ? out : out_default;
-    if (w.positions && !(s.um_per_px > 0))
-        rc = cli_usage_error("watch", "--positions needs the pixel size: give --um-per-px or "
-                                      "um_per_px in the setup");
-    else if (cli_make_dir(w.out_dir))
-        rc = CLI_EFILE;
-    if (rc) {
-        lam_setup_clear(&s);
-        return rc;
-    }
-    cli_setup_hash(&so, &w.analysis, setup_hash, sizeof setup_hash);
-    lam_parallel_set_default(w.analysis.threads);
-    w.setup = &s;
-    w.setup_hash = setup_hash;
-    w.stop = &stop_requested;
-    w.on_event = on_event;
+    lam_watch_options *w = &A.w;
+    w->stop = &stop_requested;
+    w->on_event = on_event;
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_stop; /* no SA_RESTART: poll returns at once */
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
     if (!cli_quiet)
-        fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w.dir, w.out_dir);
+        fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w->dir,
+                w->out_dir);
     size_t analysed = 0;
     lam_error err;
     lam_error_clear(&err);
-    if (lam_watch_run(&w, &analysed, &err))
-        rc = cli_report(&err, w.dir);
+    if (lam_watch_run(w, &analysed, &err))
+        rc = cli_report(&err, w->dir);
     if (!cli_quiet)
-        fprintf(stderr, "lamina: %zu images analysed; results in %s\n", analysed, w.out_dir);
+        fprintf(stderr, "lamina: %zu images analysed; results in %s\n", analysed, w->out_dir);
     lam_setup_clear(&s);
     return rc;
 }
