@@ -2,14 +2,12 @@
  * images (or, with --self, from the images alone). */
 #include "cli.h"
 #include "options.h"
-#include "lamina/calibrate.h"
+#include "lamina/calibrun.h"
 #include "lamina/summary.h"
-#include "lamina/labels.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <cjson/cJSON.h>
 
 #define MAX_LABELS 32
 
@@ -103,105 +101,39 @@ static int parse_args(int argc, char **argv, calib_args *A)
         return rc;
     size_t ni = (size_t)(argc - optind);
     if (!A->self && A->nl != ni)
-        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, %zu images), or --self", A->nl, ni);
+        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, "
+                                            "%zu images), or --self", A->nl, ni);
     if (A->self && A->nl)
         return cli_usage_error("calibrate", "--self and --labels exclude each other");
     if (ni > LAM_CALIB_MAX_IMAGES)
         return cli_usage_error("calibrate", "at most %d images", LAM_CALIB_MAX_IMAGES);
     if (A->nk > ni)
-        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A->nk, ni);
+        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images",
+                               A->nk, ni);
     return 0;
-}
-
-static int measure_all(const calib_args *A, char **images, size_t ni, const lam_setup *s,
-                       lam_calib_set *set)
-{
-    for (size_t i = 0; i < ni; i++) {
-        lam_error err;
-        lam_error_clear(&err);
-        if (A->self) {
-            if (lam_calib_measure_self(set, images[i], s, &err))
-                return cli_report(&err, images[i]);
-            continue;
-        }
-        uint8_t *codes = NULL;
-        size_t w = 0, h = 0;
-        int rc = CLI_OK;
-        if (lam_labels_map_for_image(A->labels[i], images[i], s, &codes, &w, &h, &err))
-            rc = cli_report(&err, A->labels[i]);
-        else if (lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
-            rc = cli_report(&err, images[i]);
-        free(codes);
-        if (rc)
-            return rc;
-    }
-    return 0;
-}
-
-static cJSON *calibration_block(const lam_calib_result *r, int self, char **images)
-{
-    cJSON *cal = cJSON_CreateObject();
-    cJSON_AddStringToObject(cal, "method", self ? "joint fit, layer counts latent (self)"
-                                                : "joint fit to labelled regions");
-    cJSON_AddNumberToObject(cal, "labelled_regions", (double)r->labelled);
-    cJSON_AddNumberToObject(cal, "chi2", r->chi2);
-    cJSON_AddNumberToObject(cal, "values", r->dof);
-    cJSON_AddNumberToObject(cal, "model_floor_relative", r->floor_rel);
-    cJSON *nc = cJSON_AddArrayToObject(cal, "not_constrained");
-    for (int k = 0; k < LAM_NU_COUNT; k++)
-        if (r->shared[k].fitted && !r->shared[k].constrained)
-            cJSON_AddItemToArray(nc, cJSON_CreateString(r->shared[k].name));
-    cJSON *ims = cJSON_AddArrayToObject(cal, "images");
-    for (size_t i = 0; i < r->images; i++) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "file", images[i]);
-        cJSON_AddNumberToObject(o, "oxide_nm", r->oxide[i].value);
-        cJSON_AddNumberToObject(o, "oxide_sigma_nm", r->oxide[i].sigma);
-        cJSON_AddBoolToObject(o, "oxide_known", !r->oxide[i].fitted);
-        cJSON_AddItemToArray(ims, o);
-    }
-    return cal;
 }
 
 static int run_calibrate(int argc, char **argv)
 {
     calib_args A;
     int rc = parse_args(argc, argv, &A);
-    if (rc)
-        return rc;
-    char **images = argv + optind;
-    size_t ni = (size_t)(argc - optind);
     lam_setup s;
-    if ((rc = cli_setup_build("calibrate", &A.so, &s)))
+    if (rc || (rc = cli_setup_build("calibrate", &A.so, &s)))
         return rc;
-    lam_calib_set *set = malloc(sizeof *set);
+    const char *const *images = (const char *const *)argv + optind;
+    lam_calibrun_options o = {images, (size_t)(argc - optind), A.self ? NULL : A.labels,
+                              A.nk ? A.known : NULL, A.known_na};
     lam_calib_result res;
     memset(&res, 0, sizeof res);
-    if (!set) {
-        lam_setup_clear(&s);
-        return CLI_EFILE;
-    }
-    lam_calib_set_init(set);
     lam_error err;
     lam_error_clear(&err);
-    if (!(rc = measure_all(&A, images, ni, &s, set)) &&
-        lam_calibrate(&s, set, A.nk ? A.known : NULL, A.known_na, &res, &err))
+    char *text = NULL;
+    if (lam_calibrun_fit(&s, &o, &res, &err) || lam_calibrun_save(&res, &o, A.out, &err))
         rc = cli_report(&err, NULL);
-    if (!rc) {
-        cJSON *cal = calibration_block(&res, A.self, images);
-        lam_error_clear(&err);
-        if (lam_setup_save(&res.setup, A.out, cal, &err))
-            rc = cli_report(&err, A.out);
-        cJSON_Delete(cal);
-        char *text = NULL;
-        if (!rc && !cli_quiet &&
-            !lam_summary_calibration(&res, (const char *const *)images, &text, &err))
-            printf("%swrote %s\n", text, A.out);
-        free(text);
-    }
+    else if (!cli_quiet && !lam_summary_calibration(&res, images, &text, &err))
+        printf("%swrote %s\n", text, A.out);
+    free(text);
     lam_calib_result_clear(&res);
-    lam_calib_set_clear(set);
-    free(set);
     lam_setup_clear(&s);
     return rc;
 }

@@ -16,7 +16,7 @@ typedef struct oxide_args {
     const char *out_dir;
     lam_oxide_audit_options ao;
     double tol_pct;
-    long K, threads;
+    size_t K, threads;
 } oxide_args;
 
 /* nanometres, or a percentage of the nominal value ("3%") */
@@ -43,8 +43,8 @@ static int parse_tolerance(const char *command, const char *arg, void *target)
          "absolute method (substrate colour),\nwhich needs no flakes"},                         \
         {"stability", 0, CLI_NUMBER, &(A)->ao.stability, 1e-4, 0.5, NULL, "X",                  \
          "relative lamp/exposure repeatability for it (0.01)"},                                 \
-        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
-        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N", "worker threads"},        \
+        {"max-layers", 0, CLI_SIZE, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"},    \
+        {"threads", 0, CLI_SIZE, &(A)->threads, 1, 256, NULL, "N", "worker threads"},           \
         {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
         CLI_END                                                                                 \
     }
@@ -64,28 +64,58 @@ static void oxide_help(FILE *out)
     cli_options_help(out, t);
 }
 
-/* Analyse every image; the ones that fail are reported and left out. */
-static int analyse_all(char **paths, size_t n, const lam_setup *s,
-                       const lam_analysis_options *opt, lam_analysis **an, size_t *n_ok)
+/* An image that could not be analysed: reported, the exit code kept. */
+static void on_failed(const char *path, const lam_error *err, void *user)
 {
-    int rc = CLI_OK;
-    *n_ok = 0;
-    for (size_t i = 0; i < n; i++) {
-        lam_error err;
-        lam_error_clear(&err);
-        lam_analysis *a = NULL;
-        if (lam_analyze(paths[i], s, opt, &a, &err))
-            rc = cli_report(&err, paths[i]);
-        else
-            an[(*n_ok)++] = a;
-    }
+    *(int *)user = cli_report(err, path);
+}
+
+/* The options of the analyses and of the audit, from the setup; an exit code. */
+static int prepare(oxide_args *A, const lam_setup *s, lam_analysis_options *opt)
+{
+    A->ao.nominal_nm = lam_setup_oxide(s);
+    if (A->ao.nominal_nm <= 0)
+        return cli_usage_error("oxide", "the setup has no SiO2 layer: give --oxide NM");
+    if (A->tol_pct >= 0)
+        A->ao.tolerance_nm = A->ao.nominal_nm * A->tol_pct / 100;
+    *opt = lam_analysis_options_default();
+    opt->max_layers = A->K;
+    opt->oxide_tolerance_nm = A->ao.tolerance_nm;
+    if (A->threads > 0)
+        opt->threads = A->threads;
+    return CLI_OK;
+}
+
+/* Audit the images, write oxide.json and the plot, print the summary. */
+static int audit_images(oxide_args *A, const lam_setup *s, char **paths, size_t n)
+{
+    lam_analysis_options opt;
+    lam_oxide_audit audit;
+    size_t n_ok = 0;
+    char *text = NULL;
+    lam_error err;
+    lam_error_clear(&err);
+    int rc = prepare(A, s, &opt);
+    if (rc)
+        return rc;
+    if (lam_oxide_audit_files((const char *const *)paths, n, s, &opt, &A->ao, on_failed, &rc,
+                              &audit, &n_ok, &err))
+        return cli_report(&err, NULL);
+    if (n_ok && cli_make_dir(A->out_dir))
+        rc = CLI_EFILE;
+    else if (n_ok && lam_oxide_audit_write(&audit, A->out_dir, &err))
+        rc = cli_report(&err, A->out_dir);
+    if (n_ok && !cli_quiet && !lam_summary_oxide(&audit, &text, &err))
+        fputs(text, stdout);
+    free(text);
+    lam_oxide_audit_clear(&audit);
     return rc;
 }
 
 static int run_oxide(int argc, char **argv)
 {
     oxide_args A = {.out_dir = "lamina-out", .ao = lam_oxide_audit_options_default(),
-                    .tol_pct = -1, .K = 6, .threads = 0};
+                    .tol_pct = -1, .K = 6};
     lam_setup_overrides_init(&A.so);
     cli_option t[] = OXIDE_OPTIONS(&A);
     cli_command_options co = {.command = "oxide", .own = t, .setup = &A.so, .min_args = 1,
@@ -94,46 +124,7 @@ static int run_oxide(int argc, char **argv)
     lam_setup s;
     if (rc || (rc = cli_setup_build("oxide", &A.so, &s)))
         return rc;
-    A.ao.nominal_nm = lam_setup_oxide(&s);
-    if (A.ao.nominal_nm <= 0) {
-        lam_setup_clear(&s);
-        return cli_usage_error("oxide", "the setup has no SiO2 layer: give --oxide NM");
-    }
-    if (A.tol_pct >= 0)
-        A.ao.tolerance_nm = A.ao.nominal_nm * A.tol_pct / 100;
-    lam_analysis_options opt = lam_analysis_options_default();
-    opt.max_layers = (size_t)A.K;
-    opt.oxide_tolerance_nm = A.ao.tolerance_nm;
-    if (A.threads > 0)
-        opt.threads = (size_t)A.threads;
-    size_t n_img = (size_t)(argc - optind), n_ok = 0;
-    lam_analysis **an = calloc(n_img, sizeof *an);
-    if (!an) {
-        lam_setup_clear(&s);
-        fprintf(stderr, "lamina: out of memory\n");
-        return CLI_EFILE;
-    }
-    rc = analyse_all(argv + optind, n_img, &s, &opt, an, &n_ok);
-    lam_oxide_audit audit;
-    lam_error err;
-    lam_error_clear(&err);
-    if (n_ok && lam_oxide_audit_run((const lam_analysis *const *)an, n_ok, &s, &A.ao, &audit,
-                                    &err)) {
-        rc = cli_report(&err, A.ao.reference);
-    } else if (n_ok) {
-        if (cli_make_dir(A.out_dir))
-            rc = CLI_EFILE;
-        else if (lam_oxide_audit_write(&audit, A.out_dir, &err))
-            rc = cli_report(&err, A.out_dir);
-        char *text = NULL;
-        if (!cli_quiet && !lam_summary_oxide(&audit, &text, &err))
-            fputs(text, stdout);
-        free(text);
-        lam_oxide_audit_clear(&audit);
-    }
-    for (size_t i = 0; i < n_ok; i++)
-        lam_analysis_free(an[i]);
-    free(an);
+    rc = audit_images(&A, &s, argv + optind, (size_t)(argc - optind));
     lam_setup_clear(&s);
     return rc;
 }
