@@ -1,9 +1,11 @@
 /* error.c - status phrases and the caller-supplied error record. */
 #include "lamina/error.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <gsl/gsl_errno.h>
 
@@ -85,6 +87,34 @@ lam_status lam_check_range(lam_error *err, const char *name, double v, double lo
     if (v >= lo && v <= hi)
         return LAM_OK;
     return lam_error_set(err, LAM_ERANGE, "%s: %g is outside %g to %g", name, v, lo, hi);
+}
+
+lam_status lam_parse_number(lam_error *err, const char *name, const char *text, double lo,
+                            double hi, double *out)
+{
+    char *end = NULL;
+    errno = 0;
+    double v = strtod(text, &end);
+    if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v))
+        return lam_error_set(err, LAM_ERANGE, "%s: '%s' is not a number", name, text);
+    lam_status st = lam_check_range(err, name, v, lo, hi);
+    if (!st)
+        *out = v;
+    return st;
+}
+
+lam_status lam_parse_integer(lam_error *err, const char *name, const char *text, long lo,
+                             long hi, long *out)
+{
+    char *end = NULL;
+    errno = 0;
+    long v = strtol(text, &end, 10);
+    if (end == text || *end != '\0' || errno == ERANGE)
+        return lam_error_set(err, LAM_ERANGE, "%s: '%s' is not a whole number", name, text);
+    if (v < lo || v > hi)
+        return lam_error_set(err, LAM_ERANGE, "%s: %ld is outside %ld to %ld", name, v, lo, hi);
+    *out = v;
+    return LAM_OK;
 }
 
 void lam_error_set_file(lam_error *err, const char *file)

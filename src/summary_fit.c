@@ -92,6 +92,23 @@ lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi,
     return lam__text_close(&t, text, err);
 }
 
+lam_status lam_summary_predict(const lam_setup *setup, size_t lo, size_t hi, double mono_nm,
+                               const char *format, char **text, lam_error *err)
+{
+    lam_model *m = NULL;
+    lam_prediction *p = malloc(sizeof *p); /* large: not on the stack */
+    double ox = lam_setup_oxide(setup);
+    lam_status st = p ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "out of memory");
+    if (!st && ((st = lam_model_alloc(setup, hi, mono_nm, &m, err)) ||
+                (st = lam_model_eval(m, ox < 0 ? 0 : ox, setup->sheet.fermi_ev, p, err))))
+        lam_error_set_file(err, setup->source);
+    if (!st)
+        st = lam_summary_prediction(p, lo, hi, mono_nm, setup, format, text, err);
+    free(p);
+    lam_model_free(m);
+    return st;
+}
+
 static void calib_value(FILE *f, const lam_calib_value *v, const char *unit)
 {
     if (!v->fitted)

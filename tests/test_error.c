@@ -52,6 +52,34 @@ static void test_checks(void)
     check_int(lam_check_positive(&err, "sigma", 1e-300), LAM_OK, "a tiny value is positive");
 }
 
+/* Numbers from text: C's strtod/strtol syntax over the whole text. */
+static void test_parse(void)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    double v = -1;
+    long n = -1;
+    check_int(lam_parse_number(&err, "--na", "0.5", 0, 1, &v), LAM_OK, "0.5 read");
+    check_abs(v, 0.5, 0, "its value");
+    check_int(lam_parse_number(&err, "--na", "1e-1", 0, 1, &v), LAM_OK, "exponent form read");
+    check_abs(v, 0.1, 1e-17, "1e-1");
+    check_int(lam_parse_number(&err, "--oxide", "6000", 0, 5000, &v), LAM_ERANGE, "out of range");
+    check_str(err.message, "--oxide: 6000 is outside 0 to 5000", "range message");
+    check_abs(v, 0.1, 1e-17, "a refused value leaves *out alone");
+    check_int(lam_parse_number(&err, "--na", "0.5x", 0, 1, &v), LAM_ERANGE, "trailing text");
+    check_str(err.message, "--na: '0.5x' is not a number", "not-a-number message");
+    check_int(lam_parse_number(&err, "--na", "", 0, 1, &v), LAM_ERANGE, "empty text");
+    check_int(lam_parse_number(&err, "--na", "inf", 0, 1, &v), LAM_ERANGE, "infinity");
+    check_int(lam_parse_number(&err, "--na", "1e999", 0, 1, &v), LAM_ERANGE, "overflow");
+    check_int(lam_parse_integer(&err, "--layers", "12", 1, 40, &n), LAM_OK, "12 read");
+    check_int(n, 12, "its value");
+    check_int(lam_parse_integer(&err, "--layers", "1.5", 1, 40, &n), LAM_ERANGE, "not whole");
+    check_str(err.message, "--layers: '1.5' is not a whole number", "whole-number message");
+    check_int(lam_parse_integer(&err, "--n", "100000001", 1, 100000000, &n), LAM_ERANGE,
+              "above the range");
+    check_str(err.message, "--n: 100000001 is outside 1 to 100000000", "integers in full");
+}
+
 static void test_names(void)
 {
     /* Levenshtein distances: kitten -> sitting = 3 and flaw -> lawn = 2, the
@@ -111,6 +139,7 @@ int main(void)
     check_begin("test_error");
     test_prefix();
     test_checks();
+    test_parse();
     test_names();
     test_clock();
     return check_summary();

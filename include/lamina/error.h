@@ -73,6 +73,16 @@ lam_status lam_check_finite(lam_error *err, const char *name, double v);
 lam_status lam_check_positive(lam_error *err, const char *name, double v);
 lam_status lam_check_range(lam_error *err, const char *name, double v, double lo, double hi);
 
+/* Read a value from a whole text (an option's argument, a field): a
+ * finite number (strtod) or a whole number (strtol, base 10), checked
+ * against [lo, hi]. LAM_ERANGE with "NAME: 'TEXT' is not a number" ("...
+ * not a whole number") or "NAME: V is outside LO to HI". *out is set only
+ * on success. */
+lam_status lam_parse_number(lam_error *err, const char *name, const char *text, double lo,
+                            double hi, double *out);
+lam_status lam_parse_integer(lam_error *err, const char *name, const char *text, long lo,
+                             long hi, long *out);
+
 /* Turn off GSL's aborting error handler; call once at program start. */
 void lam_error_init_gsl(void);
 

@@ -177,7 +177,8 @@ void lam_oxide_audit_clear(lam_oxide_audit *a);
  * memory. The caller deletes it. */
 struct cJSON *lam_oxide_audit_json(const lam_oxide_audit *a);
 
-/* oxide.json and the plot (lam_plot_oxide) into a folder, atomically. */
+/* oxide.json and the plot (lam_plot_oxide) into a folder (created when
+ * missing), atomically. */
 lam_status lam_oxide_audit_write(const lam_oxide_audit *a, const char *dir, lam_error *err);
 
 /* The joint profile: -2 ln L(d) on a grid, summed over images (joint) and

@@ -29,7 +29,7 @@ typedef struct lam_run_report_options {
 lam_status lam_run_report_write(const lam_catalog *c, const char *dir,
                                 const lam_run_report_options *opt, lam_error *err);
 
-/* The outputs of a run over many images, into dir (which must exist):
+/* The outputs of a run over many images, into dir (created when missing):
  * lam_catalog_finish, then catalog.csv, catalog.json and, with positions,
  * goto.csv (lam_catalog_write), then the crops, contact-sheet.png and
  * report.html (lam_run_report_write; opt may be NULL). Errors: the

@@ -17,6 +17,7 @@
 #include "lamina/model.h"
 #include "lamina/oxide.h"
 #include "lamina/stage.h"
+#include "lamina/watch.h"
 
 struct cJSON;
 
@@ -34,11 +35,30 @@ lam_status lam_summary_batch(const lam_batch *b, const lam_positions *pos,
 lam_status lam_summary_image_line(const char *path, const struct cJSON *result, int kept,
                                   char **text, lam_error *err);
 
+/* A watch session's event as one line (no newline): for an image
+ * analysed or kept, the local time (HH:MM:SS), two spaces and
+ * lam_summary_image_line; for the pooled prior, that it was first set
+ * or how far it moved (the parameter and its sigmas). *text is NULL for
+ * a failed image (its error is the event's). */
+lam_status lam_summary_watch_event(const lam_watch_event *ev, char **text, lam_error *err);
+
+/* An analysis' stage end times in seconds, one line (no newline):
+ * "load T display T substrate T contrast T model T segment T oxide T
+ * regions T". */
+lam_status lam_summary_timings(const lam_analysis *a, char **text, lam_error *err);
+
 /* The contrast ladder of layers lo..hi: format "table", "csv" or "json"
  * (lamina-predict/1); mono_nm > 0 for a monochromatic channel. */
 lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
                                   const lam_setup *setup, const char *format, char **text,
                                   lam_error *err);
+
+/* The same for a setup: its model (lam_model_alloc for layers up to hi,
+ * mono_nm > 0 for one monochromatic channel) at the setup's oxide (0
+ * without SiO2) and Fermi level, formatted as above. The model's errors
+ * name the setup's file (setup->source). */
+lam_status lam_summary_predict(const lam_setup *setup, size_t lo, size_t hi, double mono_nm,
+                               const char *format, char **text, lam_error *err);
 
 /* A calibration: the fit's chi2, each fitted (or given) value with its
  * sigma or "not constrained", each image's oxide and each label's residual.

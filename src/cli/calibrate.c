@@ -1,7 +1,6 @@
 /* cli/calibrate.c - `lamina calibrate`: fit a setup profile from labelled
- * images (or, with --self, from the images alone). */
+ * images (or, with --self, from the images alone; lamina/calibrun.h). */
 #include "cli.h"
-#include "options.h"
 #include "lamina/calibrun.h"
 #include "lamina/summary.h"
 
@@ -11,112 +10,79 @@
 
 #define MAX_LABELS 32
 
-typedef struct calib_args {
+static struct {
     lam_setup_overrides so;
     const char *labels[MAX_LABELS], *out;
     size_t nl, nk;
     int self;
     double known[LAM_CALIB_MAX_IMAGES], known_na;
-} calib_args;
+} A = {.out = "calibrated.json", .known_na = NAN};
 
+/* comma-separated, in image order; '-' leaves one free */
 static int parse_known_oxide(const char *command, const char *arg, void *target)
 {
-    calib_args *A = target;
-    /* comma-separated, in image order; '-' leaves one free */
+    (void)target;
     char *save = NULL, *tok, buf[1024];
     snprintf(buf, sizeof buf, "%s", arg);
     for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
-        if (A->nk == LAM_CALIB_MAX_IMAGES)
+        if (A.nk == LAM_CALIB_MAX_IMAGES)
             return cli_usage_error(command, "--known-oxide: too many values"), -1;
-        if (!strcmp(tok, "-")) {
-            A->known[A->nk++] = NAN;
-            continue;
-        }
-        if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
+        if (!strcmp(tok, "-"))
+            A.known[A.nk] = NAN;
+        else if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A.known[A.nk]))
             return -1;
-        A->nk++;
+        A.nk++;
     }
     return 0;
 }
 
 static int add_labels(const char *command, const char *arg, void *target)
 {
-    calib_args *A = target;
-    if (A->nl == MAX_LABELS)
+    (void)target;
+    if (A.nl == MAX_LABELS)
         return cli_usage_error(command, "at most %d label files", MAX_LABELS), -1;
-    A->labels[A->nl++] = arg;
+    A.labels[A.nl++] = arg;
     return 0;
 }
 
-#define CALIBRATE_OPTIONS(A)                                                                    \
-    {                                                                                           \
-        {"labels", 0, CLI_CALL, (A), 0, 0, add_labels, "FILE",                                  \
-         "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in "      \
-         "order"},                                                                              \
-        {"self", 0, CLI_FLAG, &(A)->self, 0, 0, NULL, NULL,                                     \
-         "no labels: the layer counts left latent"},                                            \
-        {"known-oxide", 0, CLI_CALL, (A), 0, 0, parse_known_oxide, "D1,D2,...",                 \
-         "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the "   \
-         "camera is unknown: channel centres\nand oxide are nearly degenerate"},               \
-        {"known-na", 0, CLI_NUMBER, &(A)->known_na, 0, 0.95, NULL, "X",                         \
-         "the illumination NA, when known (it correlates with the centres)"},                   \
-        {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE",                                \
-         "write the fitted lamina-setup/1 profile (default calibrated.json)"},                  \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
-        CLI_END                                                                                 \
-    }
+static const cli_option calibrate_options[] = {
+    {"labels", 0, CLI_CALL, NULL, 0, 0, add_labels, "FILE",
+     "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in order"},
+    {"self", 0, CLI_FLAG, &A.self, 0, 0, NULL, NULL, "no labels: the layer counts left latent"},
+    {"known-oxide", 0, CLI_CALL, NULL, 0, 0, parse_known_oxide, "D1,D2,...",
+     "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the camera "
+     "is unknown: channel centres\nand oxide are nearly degenerate"},
+    {"known-na", 0, CLI_NUMBER, &A.known_na, 0, 0.95, NULL, "X",
+     "the illumination NA, when known (it correlates with the centres)"},
+    {"output", 'o', CLI_TEXT, &A.out, 0, 0, NULL, "FILE",
+     "write the fitted lamina-setup/1 profile (default calibrated.json)"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},
+    CLI_END};
 
-static void calibrate_help(FILE *out)
+/* The options, and whether labels, images and oxides go together. */
+static int parse_args(int argc, char **argv)
 {
-    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
-          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
-          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
-          "wavelength shift and contrast gain, and each image's oxide so that the\n"
-          "model reproduces the measured contrast of regions of known layer count (one\n"
-          "Raman-confirmed flake is enough to start). Values the labels do not\n"
-          "constrain are reported as such and keep their prior. LABELS.png uses the\n"
-          "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
-          "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
-          "layer counts, a point taking the whole segmented region around it.\n"
-          "--self fits without labels, the layer counts left latent (marginalised):\n"
-          "use several images with several layer counts.\n\n" CLI_SETUP_HELP, out);
-    calib_args A;
-    cli_option t[] = CALIBRATE_OPTIONS(&A);
-    cli_options_help(out, t);
-}
-
-static int parse_args(int argc, char **argv, calib_args *A)
-{
-    memset(A, 0, sizeof *A);
-    lam_setup_overrides_init(&A->so);
-    A->out = "calibrated.json";
-    A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
-        A->known[i] = NAN;
-    cli_option t[] = CALIBRATE_OPTIONS(A);
-    cli_command_options co = {.command = "calibrate", .own = t, .setup = &A->so,
-                              .min_args = 1, .max_args = -1, .args_error = "no image given"};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
-        return rc;
+        A.known[i] = NAN;
+    if (cli_options_parse(&cli_calibrate, argc, argv))
+        return CLI_EUSAGE;
     size_t ni = (size_t)(argc - optind);
-    if (!A->self && A->nl != ni)
+    if (!A.self && A.nl != ni)
         return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, "
-                                            "%zu images), or --self", A->nl, ni);
-    if (A->self && A->nl)
+                                            "%zu images), or --self", A.nl, ni);
+    if (A.self && A.nl)
         return cli_usage_error("calibrate", "--self and --labels exclude each other");
     if (ni > LAM_CALIB_MAX_IMAGES)
         return cli_usage_error("calibrate", "at most %d images", LAM_CALIB_MAX_IMAGES);
-    if (A->nk > ni)
-        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images",
-                               A->nk, ni);
-    return 0;
+    if (A.nk > ni)
+        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A.nk,
+                               ni);
+    return CLI_OK;
 }
 
 static int run_calibrate(int argc, char **argv)
 {
-    calib_args A;
-    int rc = parse_args(argc, argv, &A);
+    int rc = parse_args(argc, argv);
     lam_setup s;
     if (rc || (rc = cli_setup_build("calibrate", &A.so, &s)))
         return rc;
@@ -138,5 +104,20 @@ static int run_calibrate(int argc, char **argv)
     return rc;
 }
 
-const cli_command cli_calibrate = {"calibrate", "fit a setup profile from labelled images",
-                                   run_calibrate, calibrate_help};
+const cli_command cli_calibrate = {
+    .name = "calibrate", .summary = "fit a setup profile from labelled images",
+    .run = run_calibrate,
+    .usage = "Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
+             "       lamina calibrate --self [OPTIONS] IMAGE...\n"
+             "Fit graphene's visible response, the illumination NA, each camera channel's\n"
+             "wavelength shift and contrast gain, and each image's oxide so that the\n"
+             "model reproduces the measured contrast of regions of known layer count (one\n"
+             "Raman-confirmed flake is enough to start). Values the labels do not\n"
+             "constrain are reported as such and keep their prior. LABELS.png uses the\n"
+             "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
+             "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
+             "layer counts, a point taking the whole segmented region around it.\n"
+             "--self fits without labels, the layer counts left latent (marginalised):\n"
+             "use several images with several layer counts.\n\n",
+    .options = calibrate_options, .setup = &A.so, .min_args = 1, .max_args = -1,
+    .args_error = "no image given"};

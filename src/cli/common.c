@@ -1,12 +1,7 @@
 /* cli/common.c - option parsing helpers and error reporting for the CLI. */
 #include "cli.h"
-#include "lamina/outfile.h"
-#include "lamina/runreport.h"
 
-#include <errno.h>
-#include <math.h>
 #include <stdarg.h>
-#include <stdlib.h>
 #include <string.h>
 
 int cli_quiet, cli_verbose;
@@ -46,46 +41,20 @@ int cli_report(const lam_error *err, const char *fallback_file)
 int cli_parse_double(const char *command, const char *option, const char *text,
                      double lo, double hi, double *out)
 {
-    char *end = NULL;
-    errno = 0;
-    double v = strtod(text, &end);
-    if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v)) {
-        cli_usage_error(command, "%s: '%s' is not a number", option, text);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_usage_error(command, "%s: %g is outside %g to %g", option, v, lo, hi);
-        return -1;
-    }
-    *out = v;
-    return 0;
+    lam_error err;
+    if (!lam_parse_number(&err, option, text, lo, hi, out))
+        return 0;
+    cli_usage_error(command, "%s", err.message);
+    return -1;
 }
 
 int cli_parse_long(const char *command, const char *option, const char *text, long lo,
                    long hi, long *out)
 {
-    char *end = NULL;
-    errno = 0;
-    long v = strtol(text, &end, 10);
-    if (end == text || *end != '\0' || errno == ERANGE) {
-        cli_usage_error(command, "%s: '%s' is not a whole number", option, text);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_usage_error(command, "%s: %ld is outside %ld to %ld", option, v, lo, hi);
-        return -1;
-    }
-    *out = v;
-    return 0;
-}
-
-int cli_make_dir(const char *path)
-{
     lam_error err;
-    lam_error_clear(&err);
-    if (!lam_outfile_make_dir(path, &err))
+    if (!lam_parse_integer(&err, option, text, lo, hi, out))
         return 0;
-    cli_report(&err, path);
+    cli_usage_error(command, "%s", err.message);
     return -1;
 }
 
@@ -100,17 +69,15 @@ int cli_setup_build(const char *command, const lam_setup_overrides *o, lam_setup
     return cli_report(&err, NULL);
 }
 
-int cli_run_outputs(lam_catalog *cat, const char *out_dir)
+int cli_catalog_done(lam_catalog *cat, lam_status st, const lam_error *err)
 {
-    lam_error err;
-    lam_error_clear(&err);
-    lam_status st = lam_run_outputs_write(cat, out_dir, NULL, &err);
     /* the analyses' own warnings were printed as each image finished */
     for (size_t k = 0; k < cat->n_images; k++)
         if (cat->images[k].own_warnings[0])
             fprintf(stderr, "lamina: %s: warning: %s\n", cat->images[k].path,
                     cat->images[k].own_warnings);
-    return st ? cli_report(&err, NULL) : CLI_OK;
+    lam_catalog_clear(cat);
+    return st ? cli_report(err, NULL) : CLI_OK;
 }
 
 int cli_positions_need_scale(const char *command, const char *positions, const lam_setup *s)

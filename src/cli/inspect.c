@@ -2,39 +2,24 @@
  * depth, transfer curve, saturation, linear mean per channel), to check
  * exposure before an analysis. */
 #include "cli.h"
-#include "options.h"
 #include "lamina/image.h"
 #include "lamina/summary.h"
 
 #include <stdlib.h>
 
-#define INSPECT_OPTIONS(O)                                                                      \
-    {                                                                                           \
-        {"encoding", 0, CLI_CALL, &(O)->transfer, 0, 0, cli_parse_encoding, "E",                \
-         "srgb, linear or a gamma value (default: from the file)"},                            \
-        {"max-megapixels", 0, CLI_CALL, &(O)->max_pixels, 0, 0, cli_parse_megapixels, "MP",    \
-         "refuse larger images"},                                                               \
-        CLI_END                                                                                 \
-    }
+static lam_load_options opt;
 
-static void inspect_help(FILE *out)
-{
-    lam_load_options o;
-    cli_option t[] = INSPECT_OPTIONS(&o);
-    fputs("Usage: lamina inspect [OPTIONS] IMAGE...\n"
-          "Load each image as lamina would and print its size, bit depth, the transfer\n"
-          "curve used to linearise it, the saturated-pixel fraction and the mean linear\n"
-          "level per channel. Exit 1 if any file could not be read.\n\n", out);
-    cli_options_help(out, t);
-}
+static const cli_option inspect_options[] = {
+    {"encoding", 0, CLI_CALL, &opt.transfer, 0, 0, cli_parse_encoding, "E",
+     "srgb, linear or a gamma value (default: from the file)"},
+    {"max-megapixels", 0, CLI_CALL, &opt.max_pixels, 0, 0, cli_parse_megapixels, "MP",
+     "refuse larger images"},
+    CLI_END};
 
 static int run_inspect(int argc, char **argv)
 {
-    lam_load_options opt = lam_load_options_default();
-    cli_option t[] = INSPECT_OPTIONS(&opt);
-    cli_command_options co = {.command = "inspect", .own = t, .min_args = 1, .max_args = -1,
-                              .args_error = "no image given"};
-    if (cli_options_parse(&co, argc, argv, 1))
+    opt = lam_load_options_default();
+    if (cli_options_parse(&cli_inspect, argc, argv))
         return CLI_EUSAGE;
     int rc = CLI_OK;
     for (int i = optind; i < argc; i++) {
@@ -53,5 +38,11 @@ static int run_inspect(int argc, char **argv)
     return rc;
 }
 
-const cli_command cli_inspect = {"inspect", "how an image loads: size, depth, curve, saturation",
-                                 run_inspect, inspect_help};
+const cli_command cli_inspect = {
+    .name = "inspect", .summary = "how an image loads: size, depth, curve, saturation",
+    .run = run_inspect,
+    .usage = "Usage: lamina inspect [OPTIONS] IMAGE...\n"
+             "Load each image as lamina would and print its size, bit depth, the transfer\n"
+             "curve used to linearise it, the saturated-pixel fraction and the mean linear\n"
+             "level per channel. Exit 1 if any file could not be read.\n\n",
+    .options = inspect_options, .min_args = 1, .max_args = -1, .args_error = "no image given"};

@@ -1,50 +1,27 @@
 /* cli/map.c - `lamina map RESULTS_DIR`: the chip map of a results folder
  * (tiles at their stage positions, candidates marked). */
 #include "cli.h"
-#include "options.h"
 #include "lamina/chipmap.h"
 #include "lamina/draw.h"
 
-typedef struct map_args {
+static struct {
     const char *out, *positions;
     lam_stage stage;
-} map_args;
+    int stage_given;
+} A = {.out = "chip.svg"};
 
-#define MAP_OPTIONS(A)                                                                          \
-    {                                                                                           \
-        {"out", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE", ".svg, .pdf or .png"},            \
-        {"positions", 0, CLI_TEXT, &(A)->positions, 0, 0, NULL, "FILE.csv",                     \
-         "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm)"},                                       \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no closing line"},                \
-        CLI_END                                                                                 \
-    }
-
-static void map_help(FILE *out)
-{
-    map_args A;
-    cli_option t[] = MAP_OPTIONS(&A);
-    fputs("Usage: lamina map RESULTS_DIR [-o chip.svg|chip.pdf|chip.png] [--positions FILE.csv]\n"
-          "Draw the chip map of an analysed scan: every tile outlined at its stage\n"
-          "position, the candidates marked in their layer colour and numbered by\n"
-          "catalogue rank. The positions and stage convention are those recorded in\n"
-          "RESULTS_DIR/catalog.json unless given here. Default output chip.svg.\n"
-          "(The planning plot of contrast over wavelength and oxide is 'lamina plan'.)\n\n",
-          out);
-    cli_options_help(out, t);
-    fputs(CLI_STAGE_HELP, out);
-}
+static const cli_option map_options[] = {
+    {"out", 'o', CLI_TEXT, &A.out, 0, 0, NULL, "FILE", ".svg, .pdf or .png"},
+    {"positions", 0, CLI_TEXT, &A.positions, 0, 0, NULL, "FILE.csv",
+     "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm)"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no closing line"},
+    CLI_END};
 
 static int run_map(int argc, char **argv)
 {
-    map_args A = {.out = "chip.svg", .stage = lam_stage_default()};
-    int stage_given = 0;
-    cli_option t[] = MAP_OPTIONS(&A);
-    cli_command_options co = {.command = "map", .own = t, .stage = &A.stage,
-                              .stage_given = &stage_given, .min_args = 1, .max_args = 1,
-                              .args_error = "expected one results folder (lamina map RESULTS_DIR)"};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
-        return rc;
+    A.stage = lam_stage_default();
+    if (cli_options_parse(&cli_map, argc, argv))
+        return CLI_EUSAGE;
     if (lam_canvas_kind_of(A.out) < 0)
         return cli_usage_error("map", "-o: the map must end in .svg, .pdf or .png");
     const char *dir = argv[optind];
@@ -52,12 +29,13 @@ static int run_map(int argc, char **argv)
     lam_stage rec;
     if (!A.positions && lam_catalog_recorded_stage(dir, recorded, sizeof recorded, &rec)) {
         A.positions = recorded;
-        if (!stage_given)
+        if (!A.stage_given)
             A.stage = rec;
     }
     if (!A.positions)
         return cli_usage_error("map", "%s records no stage positions: give --positions FILE.csv",
                                dir);
+    int rc = CLI_OK;
     lam_error err;
     lam_error_clear(&err);
     lam_positions pos = {0};
@@ -71,4 +49,14 @@ static int run_map(int argc, char **argv)
     return rc;
 }
 
-const cli_command cli_map = {"map", "chip map of a results folder", run_map, map_help};
+const cli_command cli_map = {
+    .name = "map", .summary = "chip map of a results folder", .run = run_map,
+    .usage = "Usage: lamina map RESULTS_DIR [-o chip.svg|chip.pdf|chip.png] "
+             "[--positions FILE.csv]\n"
+             "Draw the chip map of an analysed scan: every tile outlined at its stage\n"
+             "position, the candidates marked in their layer colour and numbered by\n"
+             "catalogue rank. The positions and stage convention are those recorded in\n"
+             "RESULTS_DIR/catalog.json unless given here. Default output chip.svg.\n"
+             "(The planning plot of contrast over wavelength and oxide is 'lamina plan'.)\n\n",
+    .options = map_options, .stage = &A.stage, .stage_given = &A.stage_given, .min_args = 1,
+    .max_args = 1, .args_error = "expected one results folder (lamina map RESULTS_DIR)"};

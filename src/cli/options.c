@@ -1,5 +1,4 @@
-/* cli/options.c - the table-driven option parser and help (options.h). */
-#include "options.h"
+/* cli/options.c - the table-driven option parser and help (cli.h). */
 #include "cli.h"
 #include "lamina/analyze.h"
 #include "lamina/transfer.h"
@@ -48,8 +47,6 @@ static int apply(const char *command, const cli_option *op, const char *arg)
     case CLI_UNSET: *(int *)op->target = 0; return 0;
     case CLI_TEXT: *(const char **)op->target = arg; return 0;
     case CLI_NUMBER: return cli_parse_double(command, name, arg, op->lo, op->hi, op->target);
-    case CLI_INTEGER:
-        return cli_parse_long(command, name, arg, (long)op->lo, (long)op->hi, op->target);
     case CLI_SIZE:
         if (cli_parse_long(command, name, arg, (long)op->lo, (long)op->hi, &v))
             return -1;
@@ -60,21 +57,25 @@ static int apply(const char *command, const cli_option *op, const char *arg)
     }
 }
 
+/* Append the first m options of t (m = 0: up to CLI_END) to all[*n]. */
+static void append(cli_option *all, size_t *n, const cli_option *t, size_t m)
+{
+    for (size_t i = 0; (m ? i < m : t[i].name != NULL) && *n < MAX_OPTIONS; i++)
+        all[(*n)++] = t[i];
+}
+
 /* The command's table, then the shared ones it takes, into one table. */
-static size_t join(const cli_command_options *o, cli_option *all)
+static size_t join(const cli_command *o, cli_option *all)
 {
     size_t n = 0;
-    for (size_t i = 0; o->own && o->own[i].name && n < MAX_OPTIONS; i++)
-        all[n++] = o->own[i];
+    append(all, &n, o->options, 0);
     if (o->setup) {
-        const cli_option setup[] = {SETUP_OPTIONS(o->setup)};
-        for (size_t i = 0; i < sizeof setup / sizeof *setup && n < MAX_OPTIONS; i++)
-            all[n++] = setup[i];
+        const cli_option t[] = {SETUP_OPTIONS(o->setup)};
+        append(all, &n, t, sizeof t / sizeof *t);
     }
     if (o->stage) {
-        const cli_option stage[] = {STAGE_OPTIONS(o->stage)};
-        for (size_t i = 0; i < sizeof stage / sizeof *stage && n < MAX_OPTIONS; i++)
-            all[n++] = stage[i];
+        const cli_option t[] = {STAGE_OPTIONS(o->stage)};
+        append(all, &n, t, sizeof t / sizeof *t);
     }
     return n;
 }
@@ -99,17 +100,17 @@ static void getopt_tables(const cli_option *all, size_t n, struct option *lo, ch
 }
 
 /* The operand count against what the command allows. */
-static int check_operands(const cli_command_options *o, int argc, char **argv)
+static int check_operands(const cli_command *o, int argc, char **argv)
 {
     int n = argc - optind;
     if (n >= o->min_args && (o->max_args < 0 || n <= o->max_args))
         return CLI_OK;
     if (!o->args_error)
-        return cli_usage_error(o->command, "unexpected argument '%s'", argv[optind]);
-    return cli_usage_error(o->command, "%s", o->args_error);
+        return cli_usage_error(o->name, "unexpected argument '%s'", argv[optind]);
+    return cli_usage_error(o->name, "%s", o->args_error);
 }
 
-int cli_options_parse(const cli_command_options *o, int argc, char **argv, int first)
+int cli_options_parse(const cli_command *o, int argc, char **argv)
 {
     cli_option all[MAX_OPTIONS];
     struct option lo[MAX_OPTIONS + 1];
@@ -117,7 +118,9 @@ int cli_options_parse(const cli_command_options *o, int argc, char **argv, int f
     size_t n = join(o, all);
     getopt_tables(all, n, lo, letters, sizeof letters);
     int c;
-    optind = first;
+    if (o->setup)
+        lam_setup_overrides_init(o->setup);
+    optind = 1;
     opterr = 0;
     while ((c = getopt_long(argc, argv, letters, lo, NULL)) != -1) {
         const cli_option *op = NULL;
@@ -125,9 +128,9 @@ int cli_options_parse(const cli_command_options *o, int argc, char **argv, int f
             if (c == OPT_CODE + (int)i || (all[i].letter && c == all[i].letter))
                 op = &all[i];
         if (!op)
-            return cli_usage_error(o->command, "unknown or incomplete option '%s'",
+            return cli_usage_error(o->name, "unknown or incomplete option '%s'",
                                    argv[optind - 1]);
-        if (apply(o->command, op, optarg))
+        if (apply(o->name, op, optarg))
             return CLI_EUSAGE;
         if (op->kind == CLI_STAGE && o->stage_given)
             *o->stage_given = 1;
@@ -135,7 +138,8 @@ int cli_options_parse(const cli_command_options *o, int argc, char **argv, int f
     return check_operands(o, argc, argv);
 }
 
-void cli_options_help(FILE *out, const cli_option *own)
+/* The table's help lines: "  --name ARG   help" aligned at column 24. */
+static void options_help(FILE *out, const cli_option *own)
 {
     for (size_t i = 0; own[i].name; i++) {
         if (!own[i].help)
@@ -159,6 +163,18 @@ void cli_options_help(FILE *out, const cli_option *own)
     }
 }
 
+void cli_help(FILE *out, const cli_command *c)
+{
+    fputs(c->usage, out);
+    if (c->setup)
+        fputs(CLI_SETUP_HELP, out);
+    options_help(out, c->options);
+    if (c->stage)
+        fputs(CLI_STAGE_HELP, out);
+    if (c->footer)
+        fputs(c->footer, out);
+}
+
 int cli_parse_encoding(const char *command, const char *arg, void *target)
 {
     if (lam_transfer_parse(arg, target))
@@ -172,6 +188,24 @@ int cli_parse_megapixels(const char *command, const char *arg, void *target)
     if (cli_parse_double(command, "--max-megapixels", arg, 0.001, 10000, &mp))
         return -1;
     *(size_t *)target = (size_t)(mp * 1e6);
+    return 0;
+}
+
+int cli_parse_roi(const char *command, const char *text, void *target)
+{
+    lam_substrate_options *so = target;
+    long v[4];
+    char *end;
+    const char *p = text;
+    for (int i = 0; i < 4; i++, p = end + 1) {
+        v[i] = strtol(p, &end, 10);
+        if (end == p || v[i] < 0 || (i < 3 && *end != ',') || (i == 3 && *end) ||
+            (i >= 2 && v[i] < 1))
+            return cli_usage_error(command, "--substrate-roi: expected X,Y,W,H in pixels"), -1;
+    }
+    for (int i = 0; i < 4; i++)
+        so->roi[i] = (size_t)v[i];
+    so->has_roi = 1;
     return 0;
 }
 

@@ -1,18 +1,10 @@
 /* cli/predict.c - `lamina predict`: the contrast ladder of N = A..B layers. */
 #include "cli.h"
-#include "options.h"
 #include "lamina/model.h"
 #include "lamina/summary.h"
 
 #include <stdlib.h>
 #include <string.h>
-
-
-typedef struct predict_args {
-    double mono;
-    long range[2]; /* --layers A-B */
-    const char *format;
-} predict_args;
 
 static int parse_layers(const char *command, const char *arg, void *target)
 {
@@ -37,58 +29,34 @@ static int parse_format(const char *command, const char *arg, void *target)
     return 0;
 }
 
-#define PREDICT_OPTIONS(A)                                                                      \
-    {                                                                                           \
-        {"wavelength", 0, CLI_NUMBER, &(A)->mono, 300, 1000, NULL, "NM",                        \
-         "one monochromatic channel instead of the camera"},                                    \
-        {"layers", 0, CLI_CALL, (A)->range, 0, 0, parse_layers, "A-B",                          \
-         "layer range (default 1-5)"},                                                          \
-        {"format", 0, CLI_CALL, &(A)->format, 0, 0, parse_format, "F",                          \
-         "table (default), csv or json"},                                                       \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, NULL},                             \
-        CLI_END                                                                                 \
-    }
+static struct {
+    lam_setup_overrides so;
+    double mono;
+    long range[2]; /* --layers A-B */
+    const char *format;
+} A = {.range = {1, 5}, .format = "table"};
 
-static void predict_help(FILE *out)
-{
-    predict_args A;
-    cli_option t[] = PREDICT_OPTIONS(&A);
-    fputs("Usage: lamina predict [OPTIONS]\n"
-          "Predicted contrast C = (substrate - flake) / substrate per camera channel\n"
-          "for N-layer graphene on the setup's substrate.\n\n" CLI_SETUP_HELP, out);
-    cli_options_help(out, t);
-}
+static const cli_option predict_options[] = {
+    {"wavelength", 0, CLI_NUMBER, &A.mono, 300, 1000, NULL, "NM",
+     "one monochromatic channel instead of the camera"},
+    {"layers", 0, CLI_CALL, A.range, 0, 0, parse_layers, "A-B", "layer range (default 1-5)"},
+    {"format", 0, CLI_CALL, &A.format, 0, 0, parse_format, "F", "table (default), csv or json"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, NULL},
+    CLI_END};
 
 static int run_predict(int argc, char **argv)
 {
-    predict_args A = {0, {1, 5}, "table"};
-    lam_setup_overrides so;
-    lam_setup_overrides_init(&so);
-    cli_option t[] = PREDICT_OPTIONS(&A);
-    cli_command_options co = {.command = "predict", .own = t, .setup = &so};
-    if (cli_options_parse(&co, argc, argv, 1))
+    if (cli_options_parse(&cli_predict, argc, argv))
         return CLI_EUSAGE;
-    double mono = A.mono;
-    long lo = A.range[0], hi = A.range[1];
-    const char *format = A.format;
     lam_setup s;
-    int rc = cli_setup_build("predict", &so, &s);
+    int rc = cli_setup_build("predict", &A.so, &s);
     if (rc)
         return rc;
     lam_error err;
     lam_error_clear(&err);
-    lam_model *m = NULL;
-    lam_prediction *p = malloc(sizeof *p);
-    double ox = lam_setup_oxide(&s);
-    if (!p || lam_model_alloc(&s, (size_t)hi, mono, &m, &err) ||
-        lam_model_eval(m, ox < 0 ? 0 : ox, s.sheet.fermi_ev, p, &err)) {
-        if (!p)
-            lam_error_set(&err, LAM_ENOMEM, "out of memory");
-        rc = cli_report(&err, so.setup_file);
-        goto done;
-    }
     char *text = NULL;
-    if (lam_summary_prediction(p, (size_t)lo, (size_t)hi, mono, &s, format, &text, &err))
+    if (lam_summary_predict(&s, (size_t)A.range[0], (size_t)A.range[1], A.mono, A.format, &text,
+                            &err))
         rc = cli_report(&err, NULL);
     else
         fputs(text, stdout);
@@ -97,12 +65,14 @@ static int run_predict(int argc, char **argv)
         fprintf(stderr, "lamina: cannot write the output\n");
         rc = CLI_EFILE;
     }
-done:
-    free(p);
-    lam_model_free(m);
     lam_setup_clear(&s);
     return rc;
 }
 
-const cli_command cli_predict = {"predict", "predicted contrast per channel for N layers",
-                                 run_predict, predict_help};
+const cli_command cli_predict = {
+    .name = "predict", .summary = "predicted contrast per channel for N layers",
+    .run = run_predict,
+    .usage = "Usage: lamina predict [OPTIONS]\n"
+             "Predicted contrast C = (substrate - flake) / substrate per camera channel\n"
+             "for N-layer graphene on the setup's substrate.\n\n",
+    .options = predict_options, .setup = &A.so};

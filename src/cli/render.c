@@ -1,47 +1,26 @@
 /* cli/render.c - `lamina render SCENE.json -o IMAGE`: a synthetic
  * micrograph and its true layer map (IMAGE_STEM.truth.png). */
 #include "cli.h"
-#include "options.h"
 #include "lamina/render.h"
 
 #include <string.h>
 
-typedef struct render_args {
+static struct {
     const char *out;
     int linear16;
-} render_args;
+} A;
 
-#define RENDER_OPTIONS(A)                                                                       \
-    {                                                                                           \
-        {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "IMAGE", ".png or .jpg (required)"},  \
-        {"linear16", 0, CLI_FLAG, &(A)->linear16, 0, 0, NULL, NULL,                             \
-         "a 16-bit linear PNG instead of 8-bit sRGB"},                                          \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no closing line"},                \
-        CLI_END                                                                                 \
-    }
-
-static void render_help(FILE *out)
-{
-    render_args A;
-    cli_option t[] = RENDER_OPTIONS(&A);
-    fputs("Usage: lamina render SCENE.json -o IMAGE [--linear16]\n"
-          "Render a synthetic microscope image from a scene (lamina-scene/1, see\n"
-          "docs/scene.md): flakes with layer counts and Fermi levels, residue, dust,\n"
-          "vignetting, gradient, blur, shot and read noise. IMAGE ends in .png (8-bit\n"
-          "sRGB, or 16-bit linear with --linear16) or .jpg. The true layer map is\n"
-          "written beside it as STEM.truth.png (0 substrate, N layers, 255 other).\n\n", out);
-    cli_options_help(out, t);
-}
+static const cli_option render_options[] = {
+    {"output", 'o', CLI_TEXT, &A.out, 0, 0, NULL, "IMAGE", ".png or .jpg (required)"},
+    {"linear16", 0, CLI_FLAG, &A.linear16, 0, 0, NULL, NULL,
+     "a 16-bit linear PNG instead of 8-bit sRGB"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no closing line"},
+    CLI_END};
 
 static int run_render(int argc, char **argv)
 {
-    render_args A = {NULL, 0};
-    cli_option t[] = RENDER_OPTIONS(&A);
-    cli_command_options co = {.command = "render", .own = t, .min_args = 1, .max_args = 1,
-                              .args_error = "expected one SCENE.json"};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
-        return rc;
+    if (cli_options_parse(&cli_render, argc, argv))
+        return CLI_EUSAGE;
     if (!A.out)
         return cli_usage_error("render", "-o IMAGE is required");
     const char *dot = strrchr(A.out, '.');
@@ -57,5 +36,14 @@ static int run_render(int argc, char **argv)
     return CLI_OK;
 }
 
-const cli_command cli_render = {"render", "synthetic micrograph from a scene description",
-                                run_render, render_help};
+const cli_command cli_render = {
+    .name = "render", .summary = "synthetic micrograph from a scene description",
+    .run = run_render,
+    .usage = "Usage: lamina render SCENE.json -o IMAGE [--linear16]\n"
+             "Render a synthetic microscope image from a scene (lamina-scene/1, see\n"
+             "docs/scene.md): flakes with layer counts and Fermi levels, residue, dust,\n"
+             "vignetting, gradient, blur, shot and read noise. IMAGE ends in .png (8-bit\n"
+             "sRGB, or 16-bit linear with --linear16) or .jpg. The true layer map is\n"
+             "written beside it as STEM.truth.png (0 substrate, N layers, 255 other).\n\n",
+    .options = render_options, .min_args = 1, .max_args = 1,
+    .args_error = "expected one SCENE.json"};
