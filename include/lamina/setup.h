@@ -188,6 +188,7 @@ typedef struct lam_setup_overrides {
     double um_per_px;       /* <= 0: not given */
 } lam_setup_overrides;
 
+/* Nothing given: no files, NULL material, the "not given" values above. */
 void lam_setup_overrides_init(lam_setup_overrides *o);
 
 /* Build a setup: the defaults, then the setup file, then the stack file,

@@ -70,8 +70,8 @@ static const cli_option watch_options[] = {
     {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},
     CLI_END};
 
-/* The options, the setup and the setup hash; an exit code (0: *s is the
- * caller's). */
+/* The options, the setup, the output folder and the setup hash; an exit
+ * code (0: *s is the caller's). */
 static int prepare(int argc, char **argv, lam_setup *s)
 {
     A.w = lam_watch_options_default();
@@ -82,7 +82,12 @@ static int prepare(int argc, char **argv, lam_setup *s)
     w->dir = argv[optind];
     snprintf(A.out_default, sizeof A.out_default, "%s/lamina-out", w->dir);
     w->out_dir = A.out ? A.out : A.out_default;
-    if ((rc = cli_positions_need_scale("watch", w->positions, s))) {
+    lam_error err;
+    lam_error_clear(&err);
+    if (!(rc = cli_positions_need_scale("watch", w->positions, s)) &&
+        lam_outfile_make_dir(w->out_dir, &err)) /* before saying where results go */
+        rc = cli_report(&err, NULL);
+    if (rc) {
         lam_setup_clear(s);
         return rc;
     }
