@@ -2,6 +2,8 @@
  * threads, the pooled fit over a sample of them, pool.json, the catalogue
  * of a run. */
 #include "batch_internal.h"
+#include "lamina/outfile.h"
+#include "lamina/runreport.h"
 #include "lamina/parallel.h"
 #include "lamina/pool.h"
 
@@ -249,8 +251,8 @@ static lam_status batch_alloc(lam_batch *b, const char *const *paths, size_t n, 
 lam_status lam_batch_run(lam_batch *b, const char *const *paths, size_t n,
                          const lam_batch_options *opt, lam_error *err)
 {
-    lam_status st = batch_alloc(b, paths, n, err);
-    if (st)
+    lam_status st = lam_outfile_make_dir(opt->out_dir, err);
+    if (st || (st = batch_alloc(b, paths, n, err)))
         return st;
     run r;
     memset(&r, 0, sizeof r);
@@ -306,4 +308,36 @@ lam_status lam_batch_catalog_add(const lam_batch *b, lam_catalog *cat, const lam
         }
     }
     return LAM_OK;
+}
+
+lam_status lam_batch_write_outputs(const lam_batch *b, const lam_positions *pos,
+                                   const lam_stage *stage, const double *target,
+                                   const char *out_dir, lam_catalog *cat, lam_error *err)
+{
+    lam_catalog_init(cat);
+    lam_catalog_set_stage(cat, pos, stage);
+    if (target)
+        lam_catalog_set_target(cat, target[0], target[1]);
+    snprintf(cat->results, sizeof cat->results, "%s", out_dir);
+    lam_status st = lam_batch_catalog_add(b, cat, pos, err);
+    return st ? st : lam_run_outputs_write(cat, out_dir, NULL, err);
+}
+
+void lam_batch_item_warnings(const lam_batch_item *it, lam_warnings *out)
+{
+    if (it->a) {
+        *out = it->a->warnings;
+        return;
+    }
+    memset(out, 0, sizeof *out);
+    const cJSON *w, *ws = cJSON_GetObjectItemCaseSensitive(it->json, "warnings");
+    cJSON_ArrayForEach(w, ws) {
+        const cJSON *c = cJSON_GetObjectItemCaseSensitive(w, "code");
+        const cJSON *m = cJSON_GetObjectItemCaseSensitive(w, "message");
+        if (cJSON_IsString(m) && out->count < LAM_MAX_WARNINGS) {
+            lam_warning *x = &out->item[out->count++];
+            snprintf(x->code, sizeof x->code, "%s", cJSON_IsString(c) ? c->valuestring : "");
+            snprintf(x->message, sizeof x->message, "%s", m->valuestring);
+        }
+    }
 }

@@ -78,6 +78,15 @@ void lam_batch_setup_hash(const char *setup_file, const lam_analysis_options *op
     hash_text(fnv1a(h, opts, strlen(opts)), out);
 }
 
+void lam_batch_overrides_hash(const lam_setup_overrides *o, const lam_analysis_options *opt,
+                              char out[LAM_BATCH_HASH_LEN])
+{
+    char extra[160];
+    snprintf(extra, sizeof extra, "ox=%.6g na=%.6g mu=%.6g um=%.6g", o->oxide_nm, o->na,
+             o->fermi_ev, o->um_per_px);
+    lam_batch_setup_hash(o->setup_file, opt, extra, out);
+}
+
 void lam_batch_prior_hash(const char *base, const lam_shared_prior *p,
                           char out[LAM_BATCH_HASH_LEN])
 {

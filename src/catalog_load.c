@@ -43,3 +43,29 @@ lam_status lam_catalog_add_folder(lam_catalog *c, const char *dir, const lam_pos
     lam_inputs_free(&names);
     return st;
 }
+
+int lam_catalog_recorded_stage(const char *dir, char *positions, size_t n, lam_stage *st)
+{
+    char p[4096];
+    snprintf(p, sizeof p, "%s/catalog.json", dir);
+    cJSON *root = NULL;
+    lam_json_load(p, 64u << 20, "catalogue", NULL, &root, NULL);
+    const cJSON *o = cJSON_GetObjectItemCaseSensitive(root, "stage");
+    const cJSON *pos = cJSON_GetObjectItemCaseSensitive(o, "positions");
+    int found = cJSON_IsString(pos);
+    if (found) {
+        snprintf(positions, n, "%s", pos->valuestring);
+        *st = lam_stage_default();
+        static const char *const keys[] = {"axes", "units", "origin"};
+        for (int k = 0; k < 3; k++) {
+            const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, keys[k]);
+            if (cJSON_IsString(v))
+                lam_stage_set(st, keys[k], v->valuestring, NULL);
+        }
+        const cJSON *r = cJSON_GetObjectItemCaseSensitive(o, "rotation_deg");
+        if (cJSON_IsNumber(r))
+            st->rotation_deg = r->valuedouble;
+    }
+    cJSON_Delete(root);
+    return found;
+}

@@ -200,3 +200,18 @@ lam_status lam_chipmap_write(const lam_catalog *c, const char *path, lam_error *
     draw_legend(cr, c, &v, bottom + 62);
     return lam_canvas_finish(&cv, err);
 }
+
+lam_status lam_chipmap_write_results(const char *dir, const lam_positions *pos,
+                                     const lam_stage *stage, const char *path, lam_error *err)
+{
+    lam_catalog cat;
+    lam_catalog_init(&cat);
+    lam_catalog_set_stage(&cat, pos, stage);
+    lam_status st = lam_catalog_add_folder(&cat, dir, pos, NULL, err);
+    if (st)
+        lam_error_set_file(err, dir);
+    else if (!(st = lam_catalog_finish(&cat, err)) && (st = lam_chipmap_write(&cat, path, err)))
+        lam_error_set_file(err, path);
+    lam_catalog_clear(&cat);
+    return st;
+}

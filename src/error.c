@@ -1,9 +1,11 @@
 /* error.c - status phrases and the caller-supplied error record. */
 #include "lamina/error.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <gsl/gsl_errno.h>
 
@@ -85,6 +87,71 @@ lam_status lam_check_range(lam_error *err, const char *name, double v, double lo
     if (v >= lo && v <= hi)
         return LAM_OK;
     return lam_error_set(err, LAM_ERANGE, "%s: %g is outside %g to %g", name, v, lo, hi);
+}
+
+lam_status lam_parse_number(lam_error *err, const char *name, const char *text, double lo,
+                            double hi, double *out)
+{
+    char *end = NULL;
+    errno = 0;
+    double v = strtod(text, &end);
+    if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v))
+        return lam_error_set(err, LAM_ERANGE, "%s: '%s' is not a number", name, text);
+    lam_status st = lam_check_range(err, name, v, lo, hi);
+    if (!st)
+        *out = v;
+    return st;
+}
+
+lam_status lam_parse_integer(lam_error *err, const char *name, const char *text, long lo,
+                             long hi, long *out)
+{
+    char *end = NULL;
+    errno = 0;
+    long v = strtol(text, &end, 10);
+    if (end == text || *end != '\0' || errno == ERANGE)
+        return lam_error_set(err, LAM_ERANGE, "%s: '%s' is not a whole number", name, text);
+    if (v < lo || v > hi)
+        return lam_error_set(err, LAM_ERANGE, "%s: %ld is outside %ld to %ld", name, v, lo, hi);
+    *out = v;
+    return LAM_OK;
+}
+
+lam_status lam_parse_numbers(lam_error *err, const char *name, const char *text, char sep,
+                             double lo, double hi, double *out, size_t max, size_t *count)
+{
+    char field[64];
+    size_t n = 0;
+    for (const char *p = text;; p++) {
+        const char *end = strchr(p, sep);
+        size_t len = end ? (size_t)(end - p) : strlen(p);
+        if (n == max)
+            return lam_error_set(err, LAM_ERANGE, "%s: at most %zu values", name, max);
+        if (len >= sizeof field)
+            return lam_error_set(err, LAM_ERANGE, "%s: '%.20s...' is not a number", name, p);
+        snprintf(field, sizeof field, "%.*s", (int)len, p);
+        lam_status st = lam_parse_number(err, name, field, lo, hi, &out[n]);
+        if (st)
+            return st;
+        n++;
+        if (!end)
+            break;
+        p = end;
+    }
+    *count = n;
+    return LAM_OK;
+}
+
+lam_status lam_parse_range(lam_error *err, const char *name, const char *text, double lo,
+                           double hi, double out[2])
+{
+    double v[2];
+    size_t n = 0;
+    if (lam_parse_numbers(err, name, text, '-', lo, hi, v, 2, &n) || n != 2 || v[1] < v[0])
+        return lam_error_set(err, LAM_ERANGE, "%s: expected A-B with %g <= A <= B <= %g", name,
+                             lo, hi);
+    out[0] = v[0], out[1] = v[1];
+    return LAM_OK;
 }
 
 void lam_error_set_file(lam_error *err, const char *file)

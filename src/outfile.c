@@ -140,3 +140,36 @@ lam_status lam_outfile_write_buffer(const char *path, const void *data, size_t n
     }
     return lam_outfile_commit(&of, err);
 }
+
+lam_status lam_outfile_make_dir(const char *path, lam_error *err)
+{
+    char buf[LAM_OUTFILE_PATH_MAX];
+    size_t n = strlen(path);
+    if (n == 0 || n >= sizeof buf) {
+        lam_error_set_file(err, path);
+        return lam_error_set(err, LAM_EIO, "invalid output folder");
+    }
+    memcpy(buf, path, n + 1);
+    /* each prefix ending at a '/' in turn, then the whole path */
+    for (size_t i = 1; i <= n; i++) {
+        if (buf[i] != '/' && buf[i] != '\0')
+            continue;
+        char c = buf[i];
+        buf[i] = '\0';
+        if (mkdir(buf, 0755) != 0 && errno != EEXIST) {
+            int e = errno;
+            lam_error_set_file(err, buf);
+            lam_error_set(err, LAM_EIO, "cannot create folder: %s", strerror(e));
+            if (err)
+                err->sys_errno = e;
+            return LAM_EIO;
+        }
+        buf[i] = c;
+    }
+    struct stat sb;
+    if (stat(path, &sb) != 0 || !S_ISDIR(sb.st_mode)) {
+        lam_error_set_file(err, path);
+        return lam_error_set(err, LAM_EIO, "not a folder");
+    }
+    return LAM_OK;
+}

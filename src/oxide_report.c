@@ -157,13 +157,16 @@ static lam_status write_plot(const lam_oxide_audit *a, const char *path, lam_err
 lam_status lam_oxide_audit_write(const lam_oxide_audit *a, const char *dir, lam_error *err)
 {
     char path[4096];
+    lam_status st = lam_outfile_make_dir(dir, err);
+    if (st)
+        return st;
     cJSON *root = lam_oxide_audit_json(a);
     char *text = root ? cJSON_Print(root) : NULL;
     cJSON_Delete(root);
     if (!text)
         return lam_error_set(err, LAM_ENOMEM, "cannot format oxide.json");
     snprintf(path, sizeof path, "%s/oxide.json", dir);
-    lam_status st = lam_outfile_write_buffer(path, text, strlen(text), err);
+    st = lam_outfile_write_buffer(path, text, strlen(text), err);
     free(text);
     if (st)
         lam_error_set_file(err, path);

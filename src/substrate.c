@@ -9,6 +9,23 @@
 #include <string.h>
 #include <gsl/gsl_multifit.h>
 
+lam_status lam_substrate_roi_parse(lam_substrate_options *o, const char *name, const char *text,
+                                   lam_error *err)
+{
+    double v[4];
+    size_t n = 0;
+    int ok = !lam_parse_numbers(err, name, text, ',', 0, 1e9, v, 4, &n) && n == 4 &&
+             v[2] >= 1 && v[3] >= 1;
+    for (size_t i = 0; ok && i < 4; i++)
+        ok = v[i] == floor(v[i]);
+    if (!ok)
+        return lam_error_set(err, LAM_ERANGE, "%s: expected X,Y,W,H in pixels", name);
+    for (size_t i = 0; i < 4; i++)
+        o->roi[i] = (size_t)v[i];
+    o->has_roi = 1;
+    return LAM_OK;
+}
+
 lam_substrate_options lam_substrate_options_default(void)
 {
     lam_substrate_options o;

@@ -171,6 +171,52 @@ lam_status lam_summary_prediction_films(const lam_prediction *p, const double *t
     return prediction_text(p, 1, count, mono_nm, setup, thickness_nm, format, text, err);
 }
 
+/* The ladder up to hi layers, or with thickness_nm the films (rows
+ * 1..count), at the setup's oxide (0 without SiO2) and Fermi level. */
+static lam_status predict_rows(const lam_setup *s, double mono, size_t hi,
+                               const double *thickness_nm, size_t count, lam_prediction *p,
+                               lam_error *err)
+{
+    lam_model *m = NULL;
+    double ox = lam_setup_oxide(s);
+    lam_status st = lam_model_alloc(s, thickness_nm ? 1 : hi, mono, &m, err);
+    if (!st)
+        st = lam_model_eval(m, ox < 0 ? 0 : ox, s->sheet.fermi_ev, p, err);
+    if (!st && thickness_nm) {
+        lam_model_point pt = lam_model_point_default(m);
+        pt.v[LAM_MP_OXIDE] = ox < 0 ? 0 : ox;
+        double (*c)[LAM_MAX_CHANNELS] = (double (*)[LAM_MAX_CHANNELS])p->contrast[1];
+        st = lam_model_eval_films(m, &pt, 1.0, thickness_nm, count, c, err);
+        p->max_layers = count;
+        for (size_t j = 1; !st && j <= count; j++)
+            for (size_t k = 0; k < p->channels; k++)
+                p->reflectance[j][k] = p->substrate[k] * (1 - p->contrast[j][k]);
+    }
+    lam_model_free(m);
+    return st;
+}
+
+lam_status lam_summary_predict(const lam_setup *setup, size_t lo, size_t hi, double mono_nm,
+                               const double *thickness_nm, size_t count, const char *format,
+                               char **text, int *near_ar, lam_error *err)
+{
+    lam_prediction *p = malloc(sizeof *p); /* large: not on the stack */
+    lam_status st = p ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "out of memory");
+    if (!st && thickness_nm && lam_setup_crystal_kind(setup) != LAM_CRYSTAL_CONTINUOUS)
+        st = lam_error_set(err, LAM_EINVAL, "film thicknesses need a crystal of continuous "
+                                            "thickness (hBN), not %s", setup->flake);
+    if (!st && (st = predict_rows(setup, mono_nm, hi, thickness_nm, count, p, err)))
+        lam_error_set_file(err, setup->source);
+    if (!st && near_ar)
+        *near_ar = lam_summary_prediction_near_ar(p);
+    if (!st)
+        st = thickness_nm ? lam_summary_prediction_films(p, thickness_nm, count, mono_nm, setup,
+                                                         format, text, err)
+                          : lam_summary_prediction(p, lo, hi, mono_nm, setup, format, text, err);
+    free(p);
+    return st;
+}
+
 static void calib_value(FILE *f, const lam_calib_value *v, const char *unit)
 {
     if (!v->fitted)

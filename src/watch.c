@@ -5,6 +5,7 @@
 #include "lamina/catalog.h"
 #include "lamina/inputs.h"
 #include "lamina/pool.h"
+#include "lamina/outfile.h"
 #include "lamina/runreport.h"
 
 #include <errno.h>
@@ -108,9 +109,7 @@ static lam_status refresh_outputs(session *w, lam_error *err)
     }
     lam_run_report_options ro = {NULL, 0, REPORT_REFRESH_S};
     if (!st)
-        st = lam_catalog_finish(&cat, err);
-    if (!st && !(st = lam_catalog_write(&cat, w->opt->out_dir, err)))
-        st = lam_run_report_write(&cat, w->opt->out_dir, &ro, err);
+        st = lam_run_outputs_write(&cat, w->opt->out_dir, &ro, err);
     lam_catalog_clear(&cat);
     return st;
 }
@@ -243,7 +242,9 @@ lam_status lam_watch_run(const lam_watch_options *opt, size_t *analysed, lam_err
     w.opt = opt;
     w.aopt = opt->analysis;
     int fd = -1;
-    lam_status st = start(&w, &fd, err);
+    lam_status st = lam_outfile_make_dir(opt->out_dir, err);
+    if (!st)
+        st = start(&w, &fd, err);
     if (!st)
         st = process_existing(&w, err);
     if (!st)

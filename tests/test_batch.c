@@ -3,8 +3,10 @@
  * in two overlapping tiles listed once; a run interrupted and resumed with
  * --resume must end with outputs identical to an uninterrupted run; the
  * same results with 1 and 2 threads; shards on one pooled prior merge to
- * the catalogue of one run. The chip is invented test data. */
+ * the catalogue of one run. The chip is invented test data. A kept
+ * result's warnings are read back from its JSON. */
 #include "check.h"
+#include "lamina/batch.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -29,9 +31,32 @@ static const chip_flake flakes[] = {
 };
 #define NF (sizeof flakes / sizeof flakes[0])
 
+/* A result kept from an earlier run has no analysis: its warnings come
+ * from the JSON's "warnings" array (code and message, docs/user-guide.md). */
+static void test_kept_warnings(void)
+{
+    cJSON *json = cJSON_Parse("{\"warnings\":[{\"code\":\"saturated\",\"message\":\"clipped\"},"
+                              "{\"code\":\"poor-fit\",\"message\":\"no count fits\"},"
+                              "{\"code\":\"x\"}]}");
+    lam_batch_item it;
+    memset(&it, 0, sizeof it);
+    it.json = json;
+    it.resumed = 1;
+    lam_warnings w;
+    lam_batch_item_warnings(&it, &w);
+    check_int((long long)w.count, 2, "two warnings with a message");
+    check_str(w.item[0].code, "saturated", "first code");
+    check_str(w.item[1].message, "no count fits", "second message");
+    it.json = NULL;
+    lam_batch_item_warnings(&it, &w);
+    check_int((long long)w.count, 0, "no JSON, no warnings");
+    cJSON_Delete(json);
+}
+
 int main(void)
 {
     check_begin("test_batch");
+    test_kept_warnings();
     const char *bin_dir = getenv("BUILD") ? getenv("BUILD") : "build";
     char dir[512], cmd[4096], path[1024];
     snprintf(dir, sizeof dir, "%s/tiles", check_tmpdir());

@@ -7,6 +7,7 @@
 #include "lamina/error.h"
 #include "lamina/names.h"
 #include "lamina/setup.h"
+#include "lamina/substrate.h"
 #include "lamina/transfer.h"
 
 #include <math.h>
@@ -50,6 +51,71 @@ static void test_checks(void)
     check_int(lam_check_positive(&err, "sigma", 0), LAM_ERANGE, "0 is not positive");
     check_str(err.message, "sigma: 0 is not a positive number", "positive message");
     check_int(lam_check_positive(&err, "sigma", 1e-300), LAM_OK, "a tiny value is positive");
+}
+
+/* Numbers from text: C's strtod/strtol syntax over the whole text. */
+static void test_parse(void)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    double v = -1;
+    long n = -1;
+    check_int(lam_parse_number(&err, "--na", "0.5", 0, 1, &v), LAM_OK, "0.5 read");
+    check_abs(v, 0.5, 0, "its value");
+    check_int(lam_parse_number(&err, "--na", "1e-1", 0, 1, &v), LAM_OK, "exponent form read");
+    check_abs(v, 0.1, 1e-17, "1e-1");
+    check_int(lam_parse_number(&err, "--oxide", "6000", 0, 5000, &v), LAM_ERANGE, "out of range");
+    check_str(err.message, "--oxide: 6000 is outside 0 to 5000", "range message");
+    check_abs(v, 0.1, 1e-17, "a refused value leaves *out alone");
+    check_int(lam_parse_number(&err, "--na", "0.5x", 0, 1, &v), LAM_ERANGE, "trailing text");
+    check_str(err.message, "--na: '0.5x' is not a number", "not-a-number message");
+    check_int(lam_parse_number(&err, "--na", "", 0, 1, &v), LAM_ERANGE, "empty text");
+    check_int(lam_parse_number(&err, "--na", "inf", 0, 1, &v), LAM_ERANGE, "infinity");
+    check_int(lam_parse_number(&err, "--na", "1e999", 0, 1, &v), LAM_ERANGE, "overflow");
+    check_int(lam_parse_integer(&err, "--layers", "12", 1, 40, &n), LAM_OK, "12 read");
+    check_int(n, 12, "its value");
+    check_int(lam_parse_integer(&err, "--layers", "1.5", 1, 40, &n), LAM_ERANGE, "not whole");
+    check_str(err.message, "--layers: '1.5' is not a whole number", "whole-number message");
+    check_int(lam_parse_integer(&err, "--n", "100000001", 1, 100000000, &n), LAM_ERANGE,
+              "above the range");
+    check_str(err.message, "--n: 100000001 is outside 1 to 100000000", "integers in full");
+}
+
+/* Lists and ranges: "0.333,10,30", "10-30", "1/4", "X,Y,W,H". */
+static void test_parse_lists(void)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    double v[4] = {0}, r[2] = {0};
+    size_t n = 0;
+    check_int(lam_parse_numbers(&err, "--thickness", "0.333,10,30", ',', 0.1, 2000, v, 4, &n),
+              LAM_OK, "three thicknesses read");
+    check_int((long long)n, 3, "their count");
+    check_abs(v[0] + v[1] + v[2], 40.333, 1e-12, "their values");
+    check_int(lam_parse_numbers(&err, "--thickness", "10,,30", ',', 0.1, 2000, v, 4, &n),
+              LAM_ERANGE, "an empty field");
+    check_int(lam_parse_numbers(&err, "--t", "1,2,3,4,5", ',', 0, 9, v, 4, &n), LAM_ERANGE,
+              "more values than room");
+    check_str(err.message, "--t: at most 4 values", "too-many message");
+    check_int(lam_parse_range(&err, "--target-thickness", "10-30", 0.1, 1000, r), LAM_OK,
+              "a range read");
+    check_true(r[0] == 10 && r[1] == 30, "its ends");
+    check_int(lam_parse_range(&err, "--target-thickness", "30-10", 0.1, 1000, r), LAM_ERANGE,
+              "a reversed range");
+    check_str(err.message, "--target-thickness: expected A-B with 0.1 <= A <= B <= 1000",
+              "range message");
+    check_true(r[0] == 10 && r[1] == 30, "a refused range leaves out alone");
+    check_int(lam_parse_range(&err, "--r", "5", 0.1, 1000, r), LAM_ERANGE, "one number");
+    check_int(lam_parse_range(&err, "--r", "1-2-3", 0.1, 1000, r), LAM_ERANGE, "three numbers");
+    lam_substrate_options so = lam_substrate_options_default();
+    check_int(lam_substrate_roi_parse(&so, "--roi", "10,20,30,40", &err), LAM_OK, "an ROI read");
+    check_true(so.has_roi && so.roi[0] == 10 && so.roi[3] == 40, "its corners and size");
+    so = lam_substrate_options_default();
+    check_int(lam_substrate_roi_parse(&so, "--roi", "10,20,0,40", &err), LAM_ERANGE,
+              "an empty ROI");
+    check_int(lam_substrate_roi_parse(&so, "--roi", "1.5,2,3,4", &err), LAM_ERANGE,
+              "fractional pixels");
+    check_true(!so.has_roi, "a refused ROI leaves the options alone");
 }
 
 static void test_names(void)
@@ -111,6 +177,8 @@ int main(void)
     check_begin("test_error");
     test_prefix();
     test_checks();
+    test_parse();
+    test_parse_lists();
     test_names();
     test_clock();
     return check_summary();

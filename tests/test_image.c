@@ -395,6 +395,30 @@ static void test_atomic_write(void)
     check_true(stat(path, &sb) != 0, "no output file left behind");
 }
 
+/* Output folders: parents created, an existing folder accepted, a file or
+ * an impossible path refused with the path named (POSIX mkdir semantics). */
+static void test_make_dir(void)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    char dir[512], file[600];
+    check_path(dir, sizeof dir, check_tmpdir(), "made/a/b");
+    check_int(lam_outfile_make_dir(dir, &err), LAM_OK, "folder and parents created");
+    struct stat sb;
+    check_true(stat(dir, &sb) == 0 && S_ISDIR(sb.st_mode), "the folder exists");
+    check_int(lam_outfile_make_dir(dir, &err), LAM_OK, "an existing folder is fine");
+    snprintf(file, sizeof file, "%s/f.bin", dir);
+    check_int(lam_outfile_write_buffer(file, "x", 1, &err), LAM_OK, "a file in it");
+    check_int(lam_outfile_make_dir(file, &err), LAM_EIO, "a file is not a folder");
+    check_str(err.file, file, "the error names the file");
+    lam_error_clear(&err);
+    snprintf(file, sizeof file, "%s/f.bin/sub", dir);
+    check_int(lam_outfile_make_dir(file, &err), LAM_EIO, "a folder below a file");
+    check_true(strstr(err.message, "cannot create folder") != NULL, "says it cannot create it");
+    lam_error_clear(&err);
+    check_int(lam_outfile_make_dir("", &err), LAM_EIO, "an empty path");
+}
+
 int main(void)
 {
     check_begin("test_image");
@@ -408,6 +432,7 @@ int main(void)
     test_huge_header();
     test_bad_files();
     test_atomic_write();
+    test_make_dir();
     test_large_png();
     return check_summary();
 }

@@ -4,12 +4,13 @@
  * chi2 consistency test against the chi2 distribution's closed forms for 1
  * and 2 degrees of freedom (Q(x;1) = erfc(sqrt(x/2)), Q(x;2) = exp(-x/2);
  * Abramowitz and Stegun, Handbook of Mathematical Functions, 26.4), the
- * Paule-Mandel batch variation for two images (solved by hand), and the
- * three verdicts. */
+ * Paule-Mandel batch variation for two images (solved by hand), the
+ * three verdicts, and the audit of image files (lam_oxide_audit_files). */
 #include "check.h"
 #include "lamina/oxide.h"
 
 #include <math.h>
+#include <string.h>
 #include <gsl/gsl_errno.h>
 
 static void test_independent(void)
@@ -125,6 +126,45 @@ static void test_verdicts(void)
     check_str(lam_oxide_verdict_name(LAM_OXIDE_FAIL), "fail", "verdict names");
 }
 
+static void count_failed(const char *path, const lam_error *err, void *user)
+{
+    (void)err;
+    int *n = user;
+    *n += !strcmp(path, "samples/none.png");
+}
+
+/* Files: one demo tile (samples/README.md: HT285-A07 was rendered on
+ * 288 nm) and a missing file, which is reported and left out; the audit
+ * names its image after the caller's path. */
+static void test_files(void)
+{
+    const char *paths[] = {"samples/none.png", "samples/HT285-A07-tile12.png"};
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_setup_load("samples/bench3-setup.json", &s, NULL);
+    lam_analysis_options opt = lam_analysis_options_default();
+    lam_oxide_audit_options ao = lam_oxide_audit_options_default();
+    ao.nominal_nm = 285;
+    lam_oxide_audit a;
+    size_t n = 0;
+    int failed = 0;
+    lam_error err;
+    lam_error_clear(&err);
+    check_int(lam_oxide_audit_files(paths, 2, &s, &opt, &ao, count_failed, &failed, &a, &n,
+                                    &err), LAM_OK, "audit of files (%s)", err.message);
+    check_int(failed, 1, "the missing file reported once");
+    check_int((long long)n, 1, "one image analysed");
+    check_true(a.n_images == 1 && !strcmp(a.images[0].file, "HT285-A07-tile12.png"),
+               "the image named by its file");
+    check_abs(a.combined.estimate_nm, 288, 10, "the tile's oxide within 10 nm of 288 nm");
+    lam_oxide_audit_clear(&a);
+    check_int(lam_oxide_audit_files(paths, 1, &s, &opt, &ao, NULL, NULL, &a, &n, &err), LAM_OK,
+              "nothing analysed is not an error");
+    check_true(n == 0 && a.n_images == 0, "and gives an empty audit");
+    lam_oxide_audit_clear(&a);
+    lam_setup_clear(&s);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
@@ -135,5 +175,6 @@ int main(void)
     test_batch_variation();
     test_edges();
     test_verdicts();
+    test_files();
     return check_summary();
 }

@@ -2,9 +2,10 @@
  * calib/default-setup.json, a range error for every key, strict keys with
  * their suggestions, messages written once, the round trip
  * lam_setup_save -> lam_setup_load, setters that record their keys, stack
- * files, and the fuzz seeds (which must stay valid inputs). The ranges
+ * files, a setup built from a file and given values, and the fuzz seeds (which must stay valid inputs). The ranges
  * checked are those documented in docs/setup.md. */
 #include "check.h"
+#include "lamina/batch.h"
 #include "lamina/render.h"
 #include "lamina/setup.h"
 #include "lamina/textfile.h"
@@ -326,6 +327,55 @@ static void test_stack_file(void)
     lam_setup_clear(&s);
 }
 
+/* lam_setup_build: file, then the given values through the setters (so
+ * defaults_used does not list them), refusals as bad options, and the
+ * setup hash of what was given. samples/bench3-setup.json is demo data. */
+static void test_build(void)
+{
+    lam_setup_overrides o;
+    lam_setup_overrides_init(&o);
+    lam_setup s, d;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&d);
+    check_int(lam_setup_build(&o, &s, &err), LAM_OK, "nothing given: the defaults");
+    check_int((long long)s.defaulted_count, (long long)d.defaulted_count, "all keys defaulted");
+    lam_setup_clear(&s);
+    o.setup_file = "samples/bench3-setup.json";
+    o.oxide_nm = 90;
+    o.na = 0.3;
+    o.fermi_ev = 0.1;
+    o.um_per_px = 0.25;
+    check_int(lam_setup_build(&o, &s, &err), LAM_OK, "file and values (%s)", err.message);
+    check_abs(lam_setup_oxide(&s), 90, 0, "--oxide over the file's 285 nm");
+    check_abs(s.illumination_na, 0.3, 0, "--na");
+    check_abs(s.sheet.fermi_ev, 0.1, 0, "--fermi");
+    check_abs(s.um_per_px, 0.25, 0, "--um-per-px");
+    check_abs(s.objective_na, 0.8, 0, "the file's objective NA kept");
+    check_true(!lam_setup_is_default(&s, "objective.illumination_na") &&
+                   !lam_setup_is_default(&s, "fermi_eV") && !lam_setup_is_default(&s, "um_per_px"),
+               "given values are not listed as defaults");
+    lam_setup_clear(&s);
+    char h1[LAM_BATCH_HASH_LEN], h2[LAM_BATCH_HASH_LEN];
+    lam_analysis_options ao = lam_analysis_options_default();
+    lam_batch_overrides_hash(&o, &ao, h1);
+    lam_batch_overrides_hash(&o, &ao, h2);
+    check_str(h1, h2, "the same values, the same hash");
+    o.fermi_ev = 0.2;
+    lam_batch_overrides_hash(&o, &ao, h2);
+    check_true(strcmp(h1, h2) != 0, "another Fermi level, another hash");
+    o.na = 1.2;
+    check_int(lam_setup_build(&o, &s, &err), LAM_EINVAL, "NA 1.2 in air is a bad option");
+    check_str(err.message, "--na: key objective.illumination_na: 1.2 is outside 0 to 0.999",
+              "the option named before the setter's message");
+    check_str(err.file, "", "no file for an option");
+    lam_setup_overrides_init(&o);
+    o.setup_file = "tests/data/no-such-setup.json";
+    lam_error_clear(&err);
+    check_true(lam_setup_build(&o, &s, &err) != LAM_OK && strstr(err.file, "no-such-setup"),
+               "a missing setup file is named: %s (%s)", err.message, err.file);
+}
+
 /* The hand-written fuzz seeds stay valid inputs (their mutations reach
  * deep into the readers only from a valid start). */
 static void test_seeds(void)
@@ -365,6 +415,7 @@ int main(void)
     test_setters();
     test_round_trip();
     test_stack_file();
+    test_build();
     test_seeds();
     return check_summary();
 }

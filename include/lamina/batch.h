@@ -33,8 +33,9 @@
  * Ownership: lam_batch_run fills a caller-owned lam_batch released with
  * lam_batch_clear; paths, setup and options are borrowed for the call.
  * Errors: the run fails only for what stops every image (memory, the
- * output folder, a bad pool_from); an image that cannot be analysed or
- * written is marked failed with its own error and the run goes on.
+ * output folder, a bad pool_from), leaving nothing to release; an image
+ * that cannot be analysed or written is marked failed with its own error
+ * and the run goes on.
  */
 #ifndef LAMINA_BATCH_H
 #define LAMINA_BATCH_H
@@ -71,7 +72,7 @@ typedef void (*lam_batch_image_fn)(const lam_batch *b, const lam_batch_item *it,
 typedef struct lam_batch_options {
     const lam_setup *setup;
     lam_analysis_options analysis;  /* copied; the run sets threads and shared_prior */
-    const char *out_dir;            /* must exist */
+    const char *out_dir;            /* created when missing */
     const char *setup_hash;         /* lam_batch_setup_hash of what besides the images
                                      * decides the results */
     size_t threads;                 /* in all (>= 1) */
@@ -103,6 +104,20 @@ void lam_batch_clear(lam_batch *b);
 lam_status lam_batch_catalog_add(const lam_batch *b, lam_catalog *cat,
                                  const lam_positions *pos, lam_error *err);
 
+/* The run's catalogue and outputs: every finished item in a catalogue
+ * (cat: initialised here, the caller's to clear, also on failure) with
+ * the positions (may be NULL), stage convention and hBN target window
+ * (target: A-B nm, lam_catalog_set_target; NULL or NAN for none), and the
+ * files of lam_run_outputs_write into out_dir. The catalogue's warnings
+ * for images (own_warnings) are the caller's to show. */
+lam_status lam_batch_write_outputs(const lam_batch *b, const lam_positions *pos,
+                                   const lam_stage *stage, const double *target,
+                                   const char *out_dir, lam_catalog *cat, lam_error *err);
+
+/* An item's warnings: its analysis', or for a kept result those recorded
+ * in its JSON (code and message; at most LAM_MAX_WARNINGS). */
+void lam_batch_item_warnings(const lam_batch_item *it, lam_warnings *out);
+
 /* ---- the pieces, for callers that drive images one at a time (watch) ---- */
 
 /* Output stem of an input: its base name without the extension. */
@@ -118,6 +133,12 @@ lam_status lam_batch_hash_file(const char *path, char out[LAM_BATCH_HASH_LEN], l
  * the library version. */
 void lam_batch_setup_hash(const char *setup_file, const lam_analysis_options *opt,
                           const char *extra, char out[LAM_BATCH_HASH_LEN]);
+
+/* lam_batch_setup_hash of a setup built by lam_setup_build: the setup
+ * file and the single values given beside it (oxide, NA, Fermi level,
+ * pixel size); the stack file and material are not part of it. */
+void lam_batch_overrides_hash(const lam_setup_overrides *o, const lam_analysis_options *opt,
+                              char out[LAM_BATCH_HASH_LEN]);
 
 /* The setup hash of results analysed with a prior: base hash and the
  * prior's numbers (the base hash itself when prior is NULL or unset). */

@@ -126,4 +126,11 @@ lam_status lam_catalog_write(const lam_catalog *c, const char *dir, lam_error *e
 /* The image's own warnings joined with the catalogue's for it, or "". */
 const char *lam_catalog_image_warnings(const lam_catalog *c, size_t image);
 
+/* The positions file and stage convention a run recorded in
+ * dir/catalog.json ("stage": lam_catalog_write): 1 with the positions
+ * file's path in positions (n bytes) and the convention in *st (from the
+ * defaults); 0, both untouched, when there is no readable catalogue or it
+ * records no positions file. */
+int lam_catalog_recorded_stage(const char *dir, char *positions, size_t n, lam_stage *st);
+
 #endif

@@ -46,4 +46,11 @@ int lam_chipmap_tile(const lam_catalog *c, const lam_chipmap_view *v, size_t k, 
 /* Draw the map to a file. LAM_EINVAL when no image has a position. */
 lam_status lam_chipmap_write(const lam_catalog *c, const char *path, lam_error *err);
 
+/* The chip map of a results folder: its lamina-analysis/1 results
+ * (lam_catalog_add_folder) at the positions (borrowed) in the stage's
+ * convention, drawn to path. Errors name the folder or the output file;
+ * lam_catalog_finish's and lam_chipmap_write's. */
+lam_status lam_chipmap_write_results(const char *dir, const lam_positions *pos,
+                                     const lam_stage *stage, const char *path, lam_error *err);
+
 #endif

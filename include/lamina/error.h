@@ -73,6 +73,28 @@ lam_status lam_check_finite(lam_error *err, const char *name, double v);
 lam_status lam_check_positive(lam_error *err, const char *name, double v);
 lam_status lam_check_range(lam_error *err, const char *name, double v, double lo, double hi);
 
+/* Read a value from a whole text (an option's argument, a field): a
+ * finite number (strtod) or a whole number (strtol, base 10), checked
+ * against [lo, hi]. LAM_ERANGE with "NAME: 'TEXT' is not a number" ("...
+ * not a whole number") or "NAME: V is outside LO to HI". *out is set only
+ * on success. */
+lam_status lam_parse_number(lam_error *err, const char *name, const char *text, double lo,
+                            double hi, double *out);
+lam_status lam_parse_integer(lam_error *err, const char *name, const char *text, long lo,
+                             long hi, long *out);
+
+/* Numbers separated by sep ("0.333,10,30" with ','), each read as
+ * lam_parse_number; at most max of them into out, their count in *count
+ * (LAM_ERANGE naming NAME for none, too many or a bad one). */
+lam_status lam_parse_numbers(lam_error *err, const char *name, const char *text, char sep,
+                             double lo, double hi, double *out, size_t max, size_t *count);
+
+/* A range "A-B" with lo <= A <= B <= hi into out[0], out[1] (both
+ * positive: the dash separates, it is no sign). LAM_ERANGE "NAME:
+ * expected A-B ..." otherwise. */
+lam_status lam_parse_range(lam_error *err, const char *name, const char *text, double lo,
+                           double hi, double out[2]);
+
 /* Turn off GSL's aborting error handler; call once at program start. */
 void lam_error_init_gsl(void);
 

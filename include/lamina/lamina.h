@@ -14,6 +14,7 @@
 #include "lamina/analyze.h"
 #include "lamina/batch.h"
 #include "lamina/calibrate.h"
+#include "lamina/calibrun.h"
 #include "lamina/catalog.h"
 #include "lamina/chipmap.h"
 #include "lamina/clock.h"

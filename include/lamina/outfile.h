@@ -46,4 +46,9 @@ void lam_outfile_cleanup_all(void);
 lam_status lam_outfile_write_buffer(const char *path, const void *data, size_t n,
                                     lam_error *err);
 
+/* Create an output folder and its missing parents (mode 0755); an existing
+ * folder is fine. LAM_EIO naming the path for an empty or over-long path,
+ * a folder that cannot be created, or a path that is not a folder. */
+lam_status lam_outfile_make_dir(const char *path, lam_error *err);
+
 #endif

@@ -177,7 +177,8 @@ void lam_oxide_audit_clear(lam_oxide_audit *a);
  * memory. The caller deletes it. */
 struct cJSON *lam_oxide_audit_json(const lam_oxide_audit *a);
 
-/* oxide.json and the plot (lam_plot_oxide) into a folder, atomically. */
+/* oxide.json and the plot (lam_plot_oxide) into a folder (created when
+ * missing), atomically. */
 lam_status lam_oxide_audit_write(const lam_oxide_audit *a, const char *dir, lam_error *err);
 
 /* The joint profile: -2 ln L(d) on a grid, summed over images (joint) and
@@ -202,5 +203,22 @@ lam_status lam_oxide_absolute_profile(const lam_analysis *const *analyses, size_
                                       const double reference_level[3], const lam_setup *setup,
                                       double stability, const double *grid, size_t n,
                                       double *chi2, lam_error *err);
+
+/* An image that could not be analysed, for the caller to report. */
+typedef void (*lam_oxide_failed_fn)(const char *path, const lam_error *err, void *user);
+
+/* The audit of image files: each image analysed (lam_analyze with 'opt'),
+ * one that cannot be given to on_failed (may be NULL) and left out, the
+ * audit (lam_oxide_audit_run) over the rest; *analysed receives how many
+ * entered it. When none could be analysed the result is LAM_OK with
+ * *analysed = 0 and *out empty (lam_oxide_audit_clear is safe on it).
+ * The audit's image names point into 'paths', which must outlive it.
+ * Errors: LAM_ENOMEM, lam_oxide_audit_run's (the reference image's with
+ * that file recorded). */
+lam_status lam_oxide_audit_files(const char *const *paths, size_t n, const lam_setup *setup,
+                                 const lam_analysis_options *opt,
+                                 const lam_oxide_audit_options *ao, lam_oxide_failed_fn on_failed,
+                                 void *user, lam_oxide_audit *out, size_t *analysed,
+                                 lam_error *err);
 
 #endif

@@ -81,4 +81,11 @@ lam_status lam_render(const lam_scene *scene, lam_image **image, uint8_t **truth
 lam_status lam_render_save(const lam_image *img, const char *path, int linear16,
                            int jpeg_quality, lam_error *err);
 
+/* Render the scene file scene_path and save the image as out
+ * (lam_render_save: .png, or .jpg/.jpeg at the scene's quality) and its
+ * truth map as OUT_STEM.truth.png, whose path goes to truth_path (n
+ * bytes). Errors name the scene file or the output. */
+lam_status lam_render_files(const char *scene_path, const char *out, int linear16,
+                            char *truth_path, size_t n, lam_error *err);
+
 #endif

@@ -29,4 +29,15 @@ typedef struct lam_run_report_options {
 lam_status lam_run_report_write(const lam_catalog *c, const char *dir,
                                 const lam_run_report_options *opt, lam_error *err);
 
+/* The outputs of a run over many images, into dir (created when missing):
+ * lam_catalog_finish, then catalog.csv, catalog.json and, with positions,
+ * goto.csv (lam_catalog_write), then the crops, contact-sheet.png and
+ * report.html (lam_run_report_write; opt may be NULL). Errors: the
+ * catalogue's (LAM_EINVAL when the stage origin's tile is unknown), the
+ * writers' with the file or dir recorded in err->file. The catalogue's
+ * own warnings for the images (c->images[k].own_warnings) are the
+ * caller's to show. */
+lam_status lam_run_outputs_write(lam_catalog *c, const char *dir,
+                                 const lam_run_report_options *opt, lam_error *err);
+
 #endif

@@ -190,4 +190,33 @@ const lam_setup_number *lam_setup_numbers(size_t *count);
 /* conductivity.model of a setup: "kubo", "universal" or "film". */
 const char *lam_setup_conductivity_model(const lam_setup *s);
 
+/* ---- a setup from a file and values given beside it ---- */
+
+/* What a user gives on top of the defaults: a setup file, a stack file and
+ * single values (the command line's --setup, --stack, --material, --oxide,
+ * --na, --fermi, --um-per-px). lam_setup_overrides_init marks each as not
+ * given. */
+typedef struct lam_setup_overrides {
+    const char *setup_file; /* lamina-setup/1, or NULL: the defaults */
+    const char *stack_file; /* a substrate on its own (lam_setup_load_stack), or NULL */
+    const char *material;   /* flake material, or NULL */
+    double oxide_nm;        /* < 0: not given */
+    double na;              /* < 0: not given */
+    double fermi_ev;        /* NAN: not given */
+    double um_per_px;       /* <= 0: not given */
+} lam_setup_overrides;
+
+/* Nothing given: no files, NULL material, the "not given" values above. */
+void lam_setup_overrides_init(lam_setup_overrides *o);
+
+/* Build a setup: the defaults, then the setup file, then the stack file,
+ * then each given value through its setter (so its key is not listed
+ * under defaults_used). A file's errors are its reader's, with the file
+ * recorded in err->file. A value a setter refuses is LAM_EINVAL (a bad
+ * option: the command line exits 2) whatever the setter said, its message
+ * after the option's command-line name ("--na: key
+ * objective.illumination_na: 1.2 is outside 0 to 0.999"). On failure s is
+ * released already; on success the caller releases it (lam_setup_clear). */
+lam_status lam_setup_build(const lam_setup_overrides *o, lam_setup *s, lam_error *err);
+
 #endif

@@ -51,6 +51,12 @@ typedef struct lam_substrate {
  * mode is the substrate). */
 lam_substrate_options lam_substrate_options_default(void);
 
+/* A region of interest "X,Y,W,H" in pixels (whole numbers, W and H >= 1)
+ * as the substrate's seed (o->roi, o->has_roi). LAM_ERANGE naming NAME
+ * otherwise, o unchanged. */
+lam_status lam_substrate_roi_parse(lam_substrate_options *o, const char *name, const char *text,
+                                   lam_error *err);
+
 /* Estimate the substrate. LAM_ERANGE with a hint to --substrate-roi when no
  * substrate can be found. */
 lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_options *opt,

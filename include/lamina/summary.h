@@ -13,9 +13,11 @@
 #include "lamina/batch.h"
 #include "lamina/calibrate.h"
 #include "lamina/error.h"
+#include "lamina/image.h"
 #include "lamina/model.h"
 #include "lamina/oxide.h"
 #include "lamina/stage.h"
+#include "lamina/watch.h"
 
 struct cJSON;
 
@@ -41,6 +43,18 @@ lam_status lam_summary_batch_target(const lam_batch *b, const lam_positions *pos
 lam_status lam_summary_image_line(const char *path, const struct cJSON *result, int kept,
                                   char **text, lam_error *err);
 
+/* A watch session's event as one line (no newline): for an image
+ * analysed or kept, the local time (HH:MM:SS), two spaces and
+ * lam_summary_image_line; for the pooled prior, that it was first set
+ * or how far it moved (the parameter and its sigmas). *text is NULL for
+ * a failed image (its error is the event's). */
+lam_status lam_summary_watch_event(const lam_watch_event *ev, char **text, lam_error *err);
+
+/* An analysis' stage end times in seconds, one line (no newline):
+ * "load T display T substrate T contrast T model T segment T oxide T
+ * regions T". */
+lam_status lam_summary_timings(const lam_analysis *a, char **text, lam_error *err);
+
 /* The contrast ladder of layers lo..hi: format "table", "csv" or "json"
  * (lamina-predict/1); mono_nm > 0 for a monochromatic channel. */
 lam_status lam_summary_prediction(const lam_prediction *p, size_t lo, size_t hi, double mono_nm,
@@ -57,8 +71,24 @@ lam_status lam_summary_prediction_films(const lam_prediction *p, const double *t
                                         size_t count, double mono_nm, const lam_setup *setup,
                                         const char *format, char **text, lam_error *err);
 
-/* 1 when the substrate reflects less than 3 % in some channel. */
+/* 1 when the substrate reflects less than 3 % in some channel; then
+ * LAM_SUMMARY_NEAR_AR says what that means (a warning for stderr). */
 int lam_summary_prediction_near_ar(const lam_prediction *p);
+#define LAM_SUMMARY_NEAR_AR                                                                   \
+    "the substrate is nearly anti-reflecting (R < 0.03 in a channel): relative contrast is " \
+    "ill-conditioned; dR = R_sub - R_flake and the shot-noise SNR per pixel (10000 e- full " \
+    "well at bare Si) are given"
+
+/* The same for a setup: its model (lam_model_alloc for layers up to hi,
+ * mono_nm > 0 for one monochromatic channel) at the setup's oxide (0
+ * without SiO2) and Fermi level, formatted as above; with thickness_nm
+ * (count values) the films of a crystal of continuous thickness instead
+ * (LAM_EINVAL for another material). *near_ar (may be NULL) is set as
+ * lam_summary_prediction_near_ar says. The model's errors name the setup's
+ * file (setup->source). */
+lam_status lam_summary_predict(const lam_setup *setup, size_t lo, size_t hi, double mono_nm,
+                               const double *thickness_nm, size_t count, const char *format,
+                               char **text, int *near_ar, lam_error *err);
 
 /* A calibration: the fit's chi2, each fitted (or given) value with its
  * sigma or "not constrained", each image's oxide and each label's residual.
@@ -70,5 +100,11 @@ lam_status lam_summary_calibration(const lam_calib_result *r, const char *const 
  * consistency note, the verdict with its reason and advice, the absolute
  * method and other interference orders. */
 lam_status lam_summary_oxide(const lam_oxide_audit *a, char **text, lam_error *err);
+
+/* How an image loaded, one line (no newline): "PATH: WxH KIND D-bit
+ * RGB|grey, transfer T, saturated P %, linear mean R G B" (the mean level
+ * of each linear plane over the whole image). */
+lam_status lam_summary_image(const char *path, const lam_image *img, char **text,
+                             lam_error *err);
 
 #endif

@@ -64,7 +64,7 @@ typedef struct lam_watch_event {
 typedef struct lam_watch_options {
     const lam_setup *setup;
     lam_analysis_options analysis;  /* copied; the session sets shared_prior */
-    const char *dir, *out_dir;      /* out_dir must exist */
+    const char *dir, *out_dir;      /* out_dir is created when missing */
     const char *setup_hash;         /* lam_batch_setup_hash */
     int pool;                       /* carry the pooled fit (default 1) */
     const char *positions;          /* re-read before every image (may grow), or NULL */

@@ -1,75 +1,55 @@
 /* cli/analyze.c - `lamina analyze IMAGE|FOLDER...`: parses the options,
  * runs the batch engine (lamina/batch.h: threads, pooled fit, resume,
  * result files) and prints the summary; for several images the catalogue
- * and run report (run_opts.h). */
+ * and run report (lam_batch_write_outputs). */
 #include "cli.h"
-#include "options.h"
-#include "run_opts.h"
-#include "setup_opts.h"
 #include "lamina/analyze.h"
 #include "lamina/batch.h"
 #include "lamina/catalog.h"
 #include "lamina/clock.h"
 #include "lamina/inputs.h"
-#include "lamina/parallel.h"
 #include "lamina/summary.h"
 
 #include <math.h>
-#include <cjson/cJSON.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
 
-/* What run_analyze needs besides the analysis options. */
-typedef struct analyze_args {
-    cli_setup_opts so;
+static struct {
+    lam_setup_overrides so;
     lam_batch_options bo;
     lam_stage stage;
     const char *out_dir, *list, *positions;
-    long threads, K;
-    double area;
     size_t shard[2]; /* --shard I/N */
     double target[2]; /* --target-thickness A-B, nm (NAN: none) */
     int recursive;
     double t0;
-} analyze_args;
+} A = {.out_dir = "lamina-out"};
 
 /* An image's warnings, one line each: "lamina: FILE: warning: MESSAGE",
  * from the analysis or, for a kept result, from its JSON. Printed even
  * with --quiet: a doubtful answer must not pass silently. */
 static void print_warnings(const lam_batch_item *it)
 {
-    if (it->a) {
-        for (size_t i = 0; i < it->a->warnings.count; i++)
-            fprintf(stderr, "lamina: %s: warning: %s\n", it->path,
-                    it->a->warnings.item[i].message);
-        return;
-    }
-    const cJSON *w, *ws = it->json ? cJSON_GetObjectItemCaseSensitive(it->json, "warnings") : NULL;
-    cJSON_ArrayForEach(w, ws) {
-        const cJSON *m = cJSON_GetObjectItemCaseSensitive(w, "message");
-        if (cJSON_IsString(m))
-            fprintf(stderr, "lamina: %s: warning: %s\n", it->path, m->valuestring);
-    }
+    lam_warnings w;
+    lam_batch_item_warnings(it, &w);
+    for (size_t i = 0; i < w.count; i++)
+        fprintf(stderr, "lamina: %s: warning: %s\n", it->path, w.item[i].message);
 }
 
 /* Per image, under the batch's lock: warnings, stage timings, progress. */
 static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, void *user)
 {
-    const analyze_args *A = user;
+    (void)user;
     if (!it->failed)
         print_warnings(it);
-    if (!it->failed && !it->resumed && cli_verbose) {
-        static const char *names[LAM_T_COUNT] = {"load", "display", "substrate", "contrast",
-                                                 "model", "segment", "oxide", "regions"};
-        fprintf(stderr, "lamina: %s: stage end times (s):", it->path);
-        for (int k = 0; k < LAM_T_COUNT; k++)
-            fprintf(stderr, " %s %.3f", names[k], it->a->seconds[k]);
-        fputc('\n', stderr);
-    }
+    char *times = NULL;
+    if (!it->failed && !it->resumed && cli_verbose && !lam_summary_timings(it->a, &times, NULL))
+        fprintf(stderr, "lamina: %s: stage end times (s): %s\n", it->path, times);
+    free(times);
     if (cli_quiet || b->count < 2 || !isatty(STDERR_FILENO))
         return;
-    double dt = lam_clock_seconds() - A->t0, rate = dt > 0 ? (double)done / dt : 0;
+    double dt = lam_clock_seconds() - A.t0, rate = dt > 0 ? (double)done / dt : 0;
     double left = rate > 0 ? (double)(b->count - done) / rate : 0;
     fprintf(stderr, "\r%zu/%zu images, %.2f/s, %.0f s left   ", done, b->count, rate, left);
     if (done == b->count)
@@ -78,170 +58,86 @@ static void on_image(const lam_batch *b, const lam_batch_item *it, size_t done, 
 }
 
 /* The catalogue and run report (catalog.*, goto.csv, crops, report.html). */
-static int catalog_outputs(const lam_batch *b, const lam_positions *pos, const lam_stage *stage,
-                           const char *out_dir, const double target[2])
+static int catalog_outputs(const lam_batch *b, const lam_positions *pos)
 {
     lam_catalog cat;
-    lam_catalog_init(&cat);
-    lam_catalog_set_stage(&cat, pos, stage);
-    lam_catalog_set_target(&cat, target[0], target[1]);
-    snprintf(cat.results, sizeof cat.results, "%s", out_dir);
     lam_error err;
     lam_error_clear(&err);
-    int rc = lam_batch_catalog_add(b, &cat, pos, &err) ? cli_report(&err, NULL) : CLI_OK;
-    if (rc == CLI_OK)
-        rc = cli_run_outputs(&cat, out_dir, 0);
-    lam_catalog_clear(&cat);
-    return rc;
-}
-
-static int parse_roi(const char *command, const char *text, void *target)
-{
-    lam_substrate_options *so = target;
-    long v[4];
-    char *end;
-    const char *p = text;
-    for (int i = 0; i < 4; i++, p = end + 1) {
-        v[i] = strtol(p, &end, 10);
-        if (end == p || v[i] < 0 || (i < 3 && *end != ',') || (i == 3 && *end) ||
-            (i >= 2 && v[i] < 1))
-            return cli_usage_error(command, "--substrate-roi: expected X,Y,W,H in pixels"), -1;
-    }
-    for (int i = 0; i < 4; i++)
-        so->roi[i] = (size_t)v[i];
-    so->has_roi = 1;
-    return 0;
+    lam_status st = lam_batch_write_outputs(b, pos, &A.stage, A.target, A.out_dir, &cat, &err);
+    return cli_catalog_done(&cat, st, &err);
 }
 
 static int parse_shard(const char *command, const char *text, void *target)
 {
-    size_t *ab = target; /* I, N */
-    unsigned long a, b;
-    char tail;
-    if (sscanf(text, "%lu/%lu%c", &a, &b, &tail) != 2 || b < 1 || a < 1 || a > b || b > 100000)
+    size_t *ab = target, n = 0; /* I, N */
+    double v[2];
+    lam_error err;
+    if (lam_parse_numbers(&err, "--shard", text, '/', 1, 100000, v, 2, &n) || n != 2 ||
+        v[0] > v[1] || v[0] != floor(v[0]) || v[1] != floor(v[1]))
         return cli_usage_error(command, "--shard: expected I/N with 1 <= I <= N"), -1;
-    ab[0] = (size_t)a;
-    ab[1] = (size_t)b;
+    ab[0] = (size_t)v[0], ab[1] = (size_t)v[1];
     return 0;
 }
 
-static int parse_encoding(const char *command, const char *text, void *target)
-{
-    if (lam_transfer_parse(text, target))
-        return cli_usage_error(command, "--encoding: expected srgb, linear or a gamma value"), -1;
-    return 0;
-}
+/* analyze's own options (the physics, stage and analysis options are shared). */
+static const cli_option analyze_options[] = {
+    CLI_ANALYSIS_OPTIONS(A.bo.analysis),
+    {"list", 0, CLI_TEXT, &A.list, 0, 0, NULL, "FILE",
+     "also analyse the images listed in FILE (one path a line)"},
+    {"recursive", 0, CLI_FLAG, &A.recursive, 0, 0, NULL, NULL,
+     "also search the subfolders of each FOLDER"},
+    {"target-thickness", 0, CLI_RANGE, A.target, 0.1, 1000, NULL, "A-B",
+     "rank hBN regions by closeness to A-B nm (e.g. 10-30)"},
+    {"positions", 0, CLI_TEXT, &A.positions, 0, 0, NULL, "FILE.csv",
+     "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\nreading at each tile's "
+     "centre"},
+    {"resume", 0, CLI_FLAG, &A.bo.resume, 0, 0, NULL, NULL,
+     "skip images whose results exist for the same input and setup"},
+    {"no-pool", 0, CLI_UNSET, &A.bo.pool, 0, 0, NULL, NULL,
+     "analyse each image on its own (default for several images:\nthe response, NA and "
+     "camera are pooled over a sample of\nthem first, pool.json)"},
+    {"pool-from", 0, CLI_TEXT, &A.bo.pool_from, 0, 0, NULL, "FILE",
+     "use this pool.json instead of fitting (shards of one scan)"},
+    {"pool-only", 0, CLI_FLAG, &A.bo.pool_only, 0, 0, NULL, NULL,
+     "write pool.json and stop (the prior for --pool-from)"},
+    {"shard", 0, CLI_CALL, A.shard, 0, 0, parse_shard, "I/N",
+     "analyse only the I-th of N deterministic parts of the inputs"},
+    {"out", 0, CLI_TEXT, &A.out_dir, 0, 0, NULL, "DIR",
+     "output folder (default lamina-out)"},
+    {"threads", 0, CLI_SIZE, &A.bo.threads, 1, 256, NULL, "N",
+     "worker threads (default: all cores)"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no summary, no progress"},
+    {"verbose", 0, CLI_FLAG, &cli_verbose, 0, 0, NULL, NULL, "stage timings per image"},
+    CLI_END};
 
-static int parse_megapixels(const char *command, const char *text, void *target)
-{
-    double mp;
-    if (cli_parse_double(command, "--max-megapixels", text, 0.001, 10000, &mp))
-        return -1;
-    *(size_t *)target = (size_t)(mp * 1e6);
-    return 0;
-}
-
-/* analyze's own options (the physics and stage options are shared). */
-#define ANALYZE_OPTIONS(A)                                                                      \
-    {                                                                                           \
-        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K",                               \
-         "layer counts modelled (default 6; thicker = \"thick\")"},                              \
-        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
-         "regions below A um^2 (or px without a pixel size) are 'small'"},                     \
-        {"substrate-roi", 0, CLI_CALL, &(A)->bo.analysis.substrate, 0, 0, parse_roi,            \
-         "X,Y,W,H", "where the bare substrate is, if not found automatically"},                \
-        {"oxide-tolerance", 0, CLI_NUMBER, &(A)->bo.analysis.oxide_tolerance_nm, 0, 500, NULL,  \
-         "NM", "pass/fail of the oxide check (default 10)"},                                   \
-        {"no-oxide-fit", 0, CLI_UNSET, &(A)->bo.analysis.fit_oxide, 0, 0, NULL, NULL,           \
-         "keep the nominal oxide"},                                                             \
-        {"encoding", 0, CLI_CALL, &(A)->bo.analysis.load.transfer, 0, 0, parse_encoding, "E",   \
-         "srgb, linear or a gamma value (default: from the file)"},                            \
-        {"max-megapixels", 0, CLI_CALL, &(A)->bo.analysis.load.max_pixels, 0, 0,                \
-         parse_megapixels, "MP", "refuse larger images"},                                      \
-        {"list", 0, CLI_TEXT, &(A)->list, 0, 0, NULL, "FILE",                                   \
-         "also analyse the images listed in FILE (one path a line)"},                          \
-        {"recursive", 0, CLI_FLAG, &(A)->recursive, 0, 0, NULL, NULL,                           \
-         "also search the subfolders of each FOLDER"},                                          \
-        {"target-thickness", 0, CLI_CALL, (A)->target, 0, 0, cli_option_target, "A-B",         \
-         "rank hBN regions by closeness to A-B nm (e.g. 10-30)"},                               \
-        {"positions", 0, CLI_TEXT, &(A)->positions, 0, 0, NULL, "FILE.csv",                     \
-         "file,x_um,y_um[,rotation_deg] (or x_mm,y_mm): the stage\nreading at each tile's "    \
-         "centre"},                                                                             \
-        {"resume", 0, CLI_FLAG, &(A)->bo.resume, 0, 0, NULL, NULL,                              \
-         "skip images whose results exist for the same input and setup"},                      \
-        {"no-pool", 0, CLI_UNSET, &(A)->bo.pool, 0, 0, NULL, NULL,                              \
-         "analyse each image on its own (default for several images:\nthe response, NA and "  \
-         "camera are pooled over a sample of\nthem first, pool.json)"},                        \
-        {"pool-from", 0, CLI_TEXT, &(A)->bo.pool_from, 0, 0, NULL, "FILE",                      \
-         "use this pool.json instead of fitting (shards of one scan)"},                         \
-        {"pool-only", 0, CLI_FLAG, &(A)->bo.pool_only, 0, 0, NULL, NULL,                        \
-         "write pool.json and stop (the prior for --pool-from)"},                               \
-        {"shard", 0, CLI_CALL, (A)->shard, 0, 0, parse_shard, "I/N",                           \
-         "analyse only the I-th of N deterministic parts of the inputs"},                       \
-        {"out", 0, CLI_TEXT, &(A)->out_dir, 0, 0, NULL, "DIR",                                  \
-         "output folder (default lamina-out)"},                                                 \
-        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
-         "worker threads (default: all cores)"},                                                \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no summary, no progress"},        \
-        {"verbose", 0, CLI_FLAG, &cli_verbose, 0, 0, NULL, NULL, "stage timings per image"},   \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
-    }
-
-static void analyze_help(FILE *out)
-{
-    analyze_args A;
-    cli_option t[] = ANALYZE_OPTIONS(&A);
-    fputs("Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
-          "Find the flakes in each micrograph, count their layers with a probability\n"
-          "(hBN: its thickness in nm with an interval and every order that fits),\n"
-          "estimate the Fermi level where the colours constrain it and fit the oxide\n"
-          "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
-          "STEM.contrast.svg per image; for several images also catalog.json,\n"
-          "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
-          "and with positions goto.csv (the candidates' stage readings).\n\n"
-          CLI_SETUP_HELP, out);
-    cli_options_help(out, t);
-    fputs(CLI_STAGE_HELP "\nLayer counts are model estimates: confirm by Raman or AFM before "
-          "fabrication.\n", out);
-}
-
-/* The setup, positions and output folder; an exit code. */
-static int prepare(analyze_args *A, lam_setup *s, lam_positions *pos)
+/* The setup and positions; an exit code. */
+static int prepare(lam_setup *s, lam_positions *pos)
 {
     int rc;
-    if ((rc = cli_setup_build("analyze", &A->so, s)))
+    if ((rc = cli_setup_build("analyze", &A.so, s)) ||
+        (rc = cli_positions_need_scale("analyze", A.positions, s)))
         return rc;
-    lam_analysis_options *opt = &A->bo.analysis;
-    opt->max_layers = (size_t)A->K;
-    if (A->area >= 0)
-        opt->min_area_um2 = opt->min_area_px = A->area;
-    if (A->positions && !(s->um_per_px > 0))
-        return cli_usage_error("analyze", "--positions needs the pixel size: give --um-per-px "
-                                          "or um_per_px in the setup");
     lam_error err;
     lam_error_clear(&err);
-    if (A->positions && lam_positions_load(A->positions, pos, &err))
-        return cli_report(&err, A->positions);
-    return cli_make_dir(A->out_dir) ? CLI_EFILE : CLI_OK;
+    if (A.positions && lam_positions_load(A.positions, pos, &err))
+        return cli_report(&err, A.positions);
+    return CLI_OK;
 }
 
 /* Run the batch, print, write the catalogue; an exit code. */
-static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup *s,
-                         const lam_positions *pos)
+static int analyze_batch(const lam_inputs *in, const lam_setup *s, const lam_positions *pos)
 {
     char setup_hash[LAM_BATCH_HASH_LEN];
-    cli_setup_hash(&A->so, &A->bo.analysis, setup_hash, sizeof setup_hash);
-    A->bo.setup = s;
-    A->bo.out_dir = A->out_dir;
-    A->bo.setup_hash = setup_hash;
-    A->bo.threads = (size_t)A->threads;
-    A->bo.on_image = on_image;
-    A->bo.user = A;
-    A->t0 = lam_clock_seconds();
+    lam_batch_overrides_hash(&A.so, &A.bo.analysis, setup_hash);
+    A.bo.setup = s;
+    A.bo.out_dir = A.out_dir;
+    A.bo.setup_hash = setup_hash;
+    A.bo.on_image = on_image;
+    A.t0 = lam_clock_seconds();
     lam_batch b;
     lam_error err;
     lam_error_clear(&err);
-    if (lam_batch_run(&b, (const char *const *)in->paths, in->count, &A->bo, &err))
+    if (lam_batch_run(&b, (const char *const *)in->paths, in->count, &A.bo, &err))
         return cli_report(&err, NULL);
     int rc = CLI_OK, r;
     size_t failed = 0;
@@ -251,17 +147,16 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
             failed++;
         }
     if (!cli_quiet && b.prior.set)
-        fprintf(stderr, "lamina: response, NA and camera pooled over %zu image%s%s (%s/pool.json)\n",
-                b.prior.images, b.prior.images == 1 ? "" : "s",
-                b.pool_reused ? ", as stored" : "", A->out_dir);
+        fprintf(stderr, "lamina: response, NA and camera pooled over %zu image%s%s "
+                        "(%s/pool.json)\n", b.prior.images, b.prior.images == 1 ? "" : "s",
+                b.pool_reused ? ", as stored" : "", A.out_dir);
     char *text = NULL;
-    if (!cli_quiet && !A->bo.pool_only &&
-        !lam_summary_batch_target(&b, A->positions ? pos : NULL, &A->stage, A->target, &text,
-                                  &err))
+    if (!cli_quiet && !A.bo.pool_only &&
+        !lam_summary_batch_target(&b, pos, &A.stage, A.target, &text, &err))
         fputs(text, stdout);
     free(text);
-    if (!A->bo.pool_only && (b.count > 1 || A->positions || isfinite(A->target[0])) &&
-        (r = catalog_outputs(&b, A->positions ? pos : NULL, &A->stage, A->out_dir, A->target)))
+    if (!A.bo.pool_only && (b.count > 1 || pos || isfinite(A.target[0])) &&
+        (r = catalog_outputs(&b, pos)))
         rc = r;
     lam_batch_clear(&b);
     return failed ? CLI_EFILE : rc;
@@ -269,21 +164,11 @@ static int analyze_batch(analyze_args *A, const lam_inputs *in, const lam_setup 
 
 static int run_analyze(int argc, char **argv)
 {
-    analyze_args A;
-    memset(&A, 0, sizeof A);
-    cli_setup_opts_init(&A.so);
     A.bo = lam_batch_options_default();
     A.stage = lam_stage_default();
-    A.out_dir = "lamina-out";
-    A.threads = (long)lam_cpu_count();
-    A.K = 6;
-    A.area = -1;
     A.target[0] = A.target[1] = NAN;
-    cli_option t[] = ANALYZE_OPTIONS(&A);
-    cli_command_options co = {"analyze", t, &A.so, &A.stage, NULL};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
-        return rc;
+    if (cli_options_parse(&cli_analyze, argc, argv))
+        return CLI_EUSAGE;
     lam_inputs in;
     lam_error err;
     lam_error_clear(&err);
@@ -299,13 +184,25 @@ static int run_analyze(int argc, char **argv)
     lam_setup s;
     memset(&s, 0, sizeof s);
     lam_positions pos = {0};
-    if (!(rc = prepare(&A, &s, &pos)))
-        rc = analyze_batch(&A, &in, &s, &pos);
+    int rc = prepare(&s, &pos);
+    if (!rc)
+        rc = analyze_batch(&in, &s, A.positions ? &pos : NULL);
     lam_setup_clear(&s);
     lam_positions_clear(&pos);
     lam_inputs_free(&in);
     return rc;
 }
 
-const cli_command cli_analyze = {"analyze", "regions, layer counts, doping and oxide of micrographs",
-                                 run_analyze, analyze_help};
+const cli_command cli_analyze = {
+    .name = "analyze", .summary = "regions, layer counts, doping and oxide of micrographs",
+    .run = run_analyze,
+    .usage = "Usage: lamina analyze [OPTIONS] IMAGE|FOLDER...\n"
+             "Find the flakes in each micrograph, count their layers with a probability\n"
+             "(hBN: its thickness in nm with an interval and every order that fits),\n"
+             "estimate the Fermi level where the colours constrain it and fit the oxide\n"
+             "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
+             "STEM.contrast.svg per image; for several images also catalog.json,\n"
+             "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
+             "and with positions goto.csv (the candidates' stage readings).\n\n",
+    .options = analyze_options, .setup = &A.so, .stage = &A.stage, .max_args = -1,
+    .footer = "\nLayer counts are model estimates: confirm by Raman or AFM before fabrication.\n"};

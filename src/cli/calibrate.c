@@ -1,212 +1,123 @@
 /* cli/calibrate.c - `lamina calibrate`: fit a setup profile from labelled
- * images (or, with --self, from the images alone). */
+ * images (or, with --self, from the images alone; lamina/calibrun.h). */
 #include "cli.h"
-#include "options.h"
-#include "setup_opts.h"
-#include "lamina/calibrate.h"
+#include "lamina/calibrun.h"
 #include "lamina/summary.h"
-#include "lamina/labels.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <cjson/cJSON.h>
 
 #define MAX_LABELS 32
 
-typedef struct calib_args {
-    cli_setup_opts so;
+static struct {
+    lam_setup_overrides so;
     const char *labels[MAX_LABELS], *out;
     size_t nl, nk;
     int self;
     double known[LAM_CALIB_MAX_IMAGES], known_na;
-} calib_args;
+} A = {.out = "calibrated.json", .known_na = NAN};
 
+/* comma-separated, in image order; '-' leaves one free */
 static int parse_known_oxide(const char *command, const char *arg, void *target)
 {
-    calib_args *A = target;
-    /* comma-separated, in image order; '-' leaves one free */
+    (void)target;
     char *save = NULL, *tok, buf[1024];
     snprintf(buf, sizeof buf, "%s", arg);
     for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
-        if (A->nk == LAM_CALIB_MAX_IMAGES)
+        if (A.nk == LAM_CALIB_MAX_IMAGES)
             return cli_usage_error(command, "--known-oxide: too many values"), -1;
-        if (!strcmp(tok, "-")) {
-            A->known[A->nk++] = NAN;
-            continue;
-        }
-        if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A->known[A->nk]))
+        if (!strcmp(tok, "-"))
+            A.known[A.nk] = NAN;
+        else if (cli_parse_double(command, "--known-oxide", tok, 1, 5000, &A.known[A.nk]))
             return -1;
-        A->nk++;
+        A.nk++;
     }
     return 0;
 }
 
 static int add_labels(const char *command, const char *arg, void *target)
 {
-    calib_args *A = target;
-    if (A->nl == MAX_LABELS)
+    (void)target;
+    if (A.nl == MAX_LABELS)
         return cli_usage_error(command, "at most %d label files", MAX_LABELS), -1;
-    A->labels[A->nl++] = arg;
+    A.labels[A.nl++] = arg;
     return 0;
 }
 
-#define CALIBRATE_OPTIONS(A)                                                                    \
-    {                                                                                           \
-        {"labels", 0, CLI_CALL, (A), 0, 0, add_labels, "FILE",                                  \
-         "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in "      \
-         "order"},                                                                              \
-        {"self", 0, CLI_FLAG, &(A)->self, 0, 0, NULL, NULL,                                     \
-         "no labels: the layer counts left latent"},                                            \
-        {"known-oxide", 0, CLI_CALL, (A), 0, 0, parse_known_oxide, "D1,D2,...",                 \
-         "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the "   \
-         "camera is unknown: channel centres\nand oxide are nearly degenerate"},               \
-        {"known-na", 0, CLI_NUMBER, &(A)->known_na, 0, 0.95, NULL, "X",                         \
-         "the illumination NA, when known (it correlates with the centres)"},                   \
-        {"output", 'o', CLI_TEXT, &(A)->out, 0, 0, NULL, "FILE",                                \
-         "write the fitted lamina-setup/1 profile (default calibrated.json)"},                  \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},             \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
-    }
+static const cli_option calibrate_options[] = {
+    {"labels", 0, CLI_CALL, NULL, 0, 0, add_labels, "FILE",
+     "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in order"},
+    {"self", 0, CLI_FLAG, &A.self, 0, 0, NULL, NULL, "no labels: the layer counts left latent"},
+    {"known-oxide", 0, CLI_CALL, NULL, 0, 0, parse_known_oxide, "D1,D2,...",
+     "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the camera "
+     "is unknown: channel centres\nand oxide are nearly degenerate"},
+    {"known-na", 0, CLI_NUMBER, &A.known_na, 0, 0.95, NULL, "X",
+     "the illumination NA, when known (it correlates with the centres)"},
+    {"output", 'o', CLI_TEXT, &A.out, 0, 0, NULL, "FILE",
+     "write the fitted lamina-setup/1 profile (default calibrated.json)"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "no printed summary"},
+    CLI_END};
 
-static void calibrate_help(FILE *out)
+/* The options, and whether labels, images and oxides go together. */
+static int parse_args(int argc, char **argv)
 {
-    fputs("Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
-          "       lamina calibrate --self [OPTIONS] IMAGE...\n"
-          "Fit graphene's visible response, the illumination NA, each camera channel's\n"
-          "wavelength shift and contrast gain, and each image's oxide so that the\n"
-          "model reproduces the measured contrast of regions of known layer count (one\n"
-          "Raman-confirmed flake is enough to start). Values the labels do not\n"
-          "constrain are reported as such and keep their prior. LABELS.png uses the\n"
-          "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
-          "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
-          "layer counts, a point taking the whole segmented region around it.\n"
-          "--self fits without labels, the layer counts left latent (marginalised):\n"
-          "use several images with several layer counts.\n\n" CLI_SETUP_HELP, out);
-    calib_args A;
-    cli_option t[] = CALIBRATE_OPTIONS(&A);
-    cli_options_help(out, t);
-}
-
-static int parse_args(int argc, char **argv, calib_args *A)
-{
-    memset(A, 0, sizeof *A);
-    cli_setup_opts_init(&A->so);
-    A->out = "calibrated.json";
-    A->known_na = NAN;
     for (size_t i = 0; i < LAM_CALIB_MAX_IMAGES; i++)
-        A->known[i] = NAN;
-    cli_option t[] = CALIBRATE_OPTIONS(A);
-    cli_command_options co = {"calibrate", t, &A->so, NULL, NULL};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
-        return rc;
+        A.known[i] = NAN;
+    if (cli_options_parse(&cli_calibrate, argc, argv))
+        return CLI_EUSAGE;
     size_t ni = (size_t)(argc - optind);
-    if (!ni)
-        return cli_usage_error("calibrate", "no image given");
-    if (!A->self && A->nl != ni)
-        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, %zu images), or --self", A->nl, ni);
-    if (A->self && A->nl)
+    if (!A.self && A.nl != ni)
+        return cli_usage_error("calibrate", "give one --labels file per image (%zu labels, "
+                                            "%zu images), or --self", A.nl, ni);
+    if (A.self && A.nl)
         return cli_usage_error("calibrate", "--self and --labels exclude each other");
     if (ni > LAM_CALIB_MAX_IMAGES)
         return cli_usage_error("calibrate", "at most %d images", LAM_CALIB_MAX_IMAGES);
-    if (A->nk > ni)
-        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A->nk, ni);
-    return 0;
-}
-
-static int measure_all(const calib_args *A, char **images, size_t ni, const lam_setup *s,
-                       lam_calib_set *set)
-{
-    for (size_t i = 0; i < ni; i++) {
-        lam_error err;
-        lam_error_clear(&err);
-        if (A->self) {
-            if (lam_calib_measure_self(set, images[i], s, &err))
-                return cli_report(&err, images[i]);
-            continue;
-        }
-        uint8_t *codes = NULL;
-        size_t w = 0, h = 0;
-        int rc = CLI_OK;
-        if (lam_labels_map_for_image(A->labels[i], images[i], s, &codes, &w, &h, &err))
-            rc = cli_report(&err, A->labels[i]);
-        else if (lam_calib_measure_labels(set, images[i], codes, w, h, s, &err))
-            rc = cli_report(&err, images[i]);
-        free(codes);
-        if (rc)
-            return rc;
-    }
-    return 0;
-}
-
-static cJSON *calibration_block(const lam_calib_result *r, int self, char **images)
-{
-    cJSON *cal = cJSON_CreateObject();
-    cJSON_AddStringToObject(cal, "method", self ? "joint fit, layer counts latent (self)"
-                                                : "joint fit to labelled regions");
-    cJSON_AddNumberToObject(cal, "labelled_regions", (double)r->labelled);
-    cJSON_AddNumberToObject(cal, "chi2", r->chi2);
-    cJSON_AddNumberToObject(cal, "values", r->dof);
-    cJSON_AddNumberToObject(cal, "model_floor_relative", r->floor_rel);
-    cJSON *nc = cJSON_AddArrayToObject(cal, "not_constrained");
-    for (int k = 0; k < LAM_NU_COUNT; k++)
-        if (r->shared[k].fitted && !r->shared[k].constrained)
-            cJSON_AddItemToArray(nc, cJSON_CreateString(r->shared[k].name));
-    cJSON *ims = cJSON_AddArrayToObject(cal, "images");
-    for (size_t i = 0; i < r->images; i++) {
-        cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "file", images[i]);
-        cJSON_AddNumberToObject(o, "oxide_nm", r->oxide[i].value);
-        cJSON_AddNumberToObject(o, "oxide_sigma_nm", r->oxide[i].sigma);
-        cJSON_AddBoolToObject(o, "oxide_known", !r->oxide[i].fitted);
-        cJSON_AddItemToArray(ims, o);
-    }
-    return cal;
+    if (A.nk > ni)
+        return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A.nk,
+                               ni);
+    return CLI_OK;
 }
 
 static int run_calibrate(int argc, char **argv)
 {
-    calib_args A;
-    int rc = parse_args(argc, argv, &A);
-    if (rc)
-        return rc;
-    char **images = argv + optind;
-    size_t ni = (size_t)(argc - optind);
+    int rc = parse_args(argc, argv);
     lam_setup s;
-    if ((rc = cli_setup_build("calibrate", &A.so, &s)))
+    if (rc || (rc = cli_setup_build("calibrate", &A.so, &s)))
         return rc;
-    lam_calib_set *set = malloc(sizeof *set);
+    const char *const *images = (const char *const *)argv + optind;
+    lam_calibrun_options o = {images, (size_t)(argc - optind), A.self ? NULL : A.labels,
+                              A.nk ? A.known : NULL, A.known_na};
     lam_calib_result res;
     memset(&res, 0, sizeof res);
-    if (!set) {
-        lam_setup_clear(&s);
-        return CLI_EFILE;
-    }
-    lam_calib_set_init(set);
     lam_error err;
     lam_error_clear(&err);
-    if (!(rc = measure_all(&A, images, ni, &s, set)) &&
-        lam_calibrate(&s, set, A.nk ? A.known : NULL, A.known_na, &res, &err))
+    char *text = NULL;
+    if (lam_calibrun_fit(&s, &o, &res, &err) || lam_calibrun_save(&res, &o, A.out, &err))
         rc = cli_report(&err, NULL);
-    if (!rc) {
-        cJSON *cal = calibration_block(&res, A.self, images);
-        lam_error_clear(&err);
-        if (lam_setup_save(&res.setup, A.out, cal, &err))
-            rc = cli_report(&err, A.out);
-        cJSON_Delete(cal);
-        char *text = NULL;
-        if (!rc && !cli_quiet &&
-            !lam_summary_calibration(&res, (const char *const *)images, &text, &err))
-            printf("%swrote %s\n", text, A.out);
-        free(text);
-    }
+    else if (!cli_quiet && !lam_summary_calibration(&res, images, &text, &err))
+        printf("%swrote %s\n", text, A.out);
+    free(text);
     lam_calib_result_clear(&res);
-    lam_calib_set_clear(set);
-    free(set);
     lam_setup_clear(&s);
     return rc;
 }
 
-const cli_command cli_calibrate = {"calibrate", "fit a setup profile from labelled images",
-                                   run_calibrate, calibrate_help};
+const cli_command cli_calibrate = {
+    .name = "calibrate", .summary = "fit a setup profile from labelled images",
+    .run = run_calibrate,
+    .usage = "Usage: lamina calibrate --labels LABELS.png ... [OPTIONS] IMAGE...\n"
+             "       lamina calibrate --self [OPTIONS] IMAGE...\n"
+             "Fit graphene's visible response, the illumination NA, each camera channel's\n"
+             "wavelength shift and contrast gain, and each image's oxide so that the\n"
+             "model reproduces the measured contrast of regions of known layer count (one\n"
+             "Raman-confirmed flake is enough to start). Values the labels do not\n"
+             "constrain are reported as such and keep their prior. LABELS.png uses the\n"
+             "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
+             "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
+             "layer counts, a point taking the whole segmented region around it.\n"
+             "--self fits without labels, the layer counts left latent (marginalised):\n"
+             "use several images with several layer counts.\n\n",
+    .options = calibrate_options, .setup = &A.so, .min_args = 1, .max_args = -1,
+    .args_error = "no image given"};

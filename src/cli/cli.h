@@ -1,8 +1,11 @@
 /*
- * cli/cli.h - shared pieces of the command-line front end.
+ * cli/cli.h - the command-line front end's one header.
  *
- * The CLI is a thin layer over the library: each subcommand parses its
- * options, calls library functions and maps statuses to exit codes.
+ * The CLI is a thin layer over the library: each subcommand is described
+ * as data (its options as a table, its operands), parsed by one parser
+ * (options.c, with the shared physics and stage options when it takes
+ * them), calls library functions, prints what they return and maps
+ * statuses to exit codes; the help comes from the same description.
  * Exit codes: 0 success, 1 a file could not be processed, 2 usage error
  * (a bad option or argument, which the library reports as LAM_EINVAL).
  * Diagnostics go to stderr as "lamina: FILE: reason".
@@ -10,17 +13,111 @@
 #ifndef LAMINA_CLI_H
 #define LAMINA_CLI_H
 
+#include <getopt.h> /* optind: the first operand after parsing */
 #include <stdio.h>
+#include "lamina/catalog.h"
 #include "lamina/error.h"
+#include "lamina/setup.h"
+#include "lamina/stage.h"
 
 enum { CLI_OK = 0, CLI_EFILE = 1, CLI_EUSAGE = 2 };
 
+typedef enum cli_kind {
+    CLI_FLAG,       /* no argument: *(int *)target = 1 */
+    CLI_UNSET,      /* no argument: *(int *)target = 0 */
+    CLI_TEXT,       /* *(const char **)target = the argument */
+    CLI_NUMBER,     /* *(double *)target, finite, in [lo, hi] */
+    CLI_SIZE,       /* *(size_t *)target, in [lo, hi] (lo >= 0) */
+    CLI_RANGE,      /* "A-B": *(double (*)[2])target, lo <= A <= B <= hi */
+    CLI_STAGE,      /* lam_stage_set(target, name without "stage-", argument) */
+    CLI_CALL        /* call(command, argument, target): 0, or -1 after a usage error */
+} cli_kind;
+
+typedef struct cli_option {
+    const char *name;   /* long name without "--"; NULL ends a table */
+    char letter;        /* a one-letter alias ('o' for -o), or 0 */
+    cli_kind kind;
+    void *target;
+    double lo, hi;
+    int (*call)(const char *command, const char *arg, void *target);
+    const char *arg;    /* the argument's name in the help ("NM"); NULL for flags */
+    const char *help;   /* its help line(s); NULL: not listed */
+} cli_option;
+
+#define CLI_END {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}
+
+/* A subcommand: what it is called, how it runs, and its options and
+ * operands as data, so that one parser and one help serve every command
+ * and the help cannot disagree with the parser. A command keeps the
+ * values its options set in variables of its own file, which the
+ * table's targets point to. */
 typedef struct cli_command {
     const char *name;
-    const char *summary;
+    const char *summary;        /* one line of the overview */
     int (*run)(int argc, char **argv);
-    void (*help)(FILE *out);
+    const char *usage;          /* help: "Usage: ..." and what the command does */
+    const cli_option *options;  /* its own options (ends with CLI_END) */
+    lam_setup_overrides *setup; /* takes --setup, --oxide, ... (CLI_SETUP_HELP) when set */
+    lam_stage *stage;           /* takes --stage-axes, ... (CLI_STAGE_HELP) when set */
+    int *stage_given;           /* set when a stage option was given; may be NULL */
+    int min_args, max_args;     /* operands allowed; max_args < 0: no limit */
+    const char *args_error;     /* the usage error for too few or too many operands
+                                 * (NULL with max_args 0: "unexpected argument") */
+    const char *footer;         /* help: printed after the options; may be NULL */
 } cli_command;
+
+/* Parse argv[1..] (argv[0] is the command's name; getopt_long, operands
+ * stay where getopt puts them, optind is the first) and check the operand
+ * count; c->setup starts as lam_setup_overrides_init leaves it. Returns
+ * CLI_OK or CLI_EUSAGE after printing why. */
+int cli_options_parse(const cli_command *c, int argc, char **argv);
+
+/* The command's help: usage, the shared options it takes and its table
+ * ("  --name ARG   help" aligned at column 24), then the footer. */
+void cli_help(FILE *out, const cli_command *c);
+
+/* CLI_CALL parsers shared by several commands: --encoding (target a
+ * lam_transfer), --max-megapixels (target a size_t of pixels),
+ * --substrate-roi (target a lam_substrate_options), --min-area (target a
+ * lam_analysis_options: both area limits). */
+int cli_parse_encoding(const char *command, const char *arg, void *target);
+int cli_parse_megapixels(const char *command, const char *arg, void *target);
+int cli_parse_roi(const char *command, const char *arg, void *target);
+int cli_parse_min_area(const char *command, const char *arg, void *target);
+
+/* Rows of a table for the commands that analyse images (analyze, watch):
+ * the analysis options O (a lam_analysis_options). */
+#define CLI_ANALYSIS_OPTIONS(O)                                                                  \
+    {"max-layers", 0, CLI_SIZE, &(O).max_layers, 1, 20, NULL, "K",                               \
+     "layer counts modelled (default 6; thicker = \"thick\")"},                                  \
+    {"min-area", 0, CLI_CALL, &(O), 0, 0, cli_parse_min_area, "A",                               \
+     "regions below A um^2 (or px without a pixel size) are 'small'"},                          \
+    {"substrate-roi", 0, CLI_CALL, &(O).substrate, 0, 0, cli_parse_roi, "X,Y,W,H",               \
+     "where the bare substrate is, if not found automatically"},                                \
+    {"oxide-tolerance", 0, CLI_NUMBER, &(O).oxide_tolerance_nm, 0, 500, NULL, "NM",              \
+     "pass/fail of the oxide check (default 10)"},                                              \
+    {"no-oxide-fit", 0, CLI_UNSET, &(O).fit_oxide, 0, 0, NULL, NULL, "keep the nominal oxide"}, \
+    {"encoding", 0, CLI_CALL, &(O).load.transfer, 0, 0, cli_parse_encoding, "E",                 \
+     "srgb, linear or a gamma value (default: from the file)"},                                 \
+    {"max-megapixels", 0, CLI_CALL, &(O).load.max_pixels, 0, 0, cli_parse_megapixels, "MP",      \
+     "refuse larger images"}
+
+/* The help of the shared options (their table is in options.c). */
+#define CLI_SETUP_HELP                                                                     \
+    "  --setup FILE          setup profile (lamina-setup/1)\n"                             \
+    "  --oxide NM, --na X, --fermi EV, --um-per-px X, --material NAME\n"                   \
+    "                        override the setup's nominal SiO2 thickness, illumination\n" \
+    "                        NA, Fermi level, pixel size and flake material (graphene,\n"   \
+    "                        hBN, MoS2, WS2, WSe2; a source after a slash: MoS2/Song)\n"    \
+    "  --stack FILE          substrate {\"stack\": [...], \"base\": ...}\n"
+
+#define CLI_STAGE_HELP                                                                       \
+    "  --stage-axes X,Y      where stage readings grow in the image: right|left,down|up\n"  \
+    "                        (default right,down)\n"                                        \
+    "  --stage-units U       um or mm for goto.csv and --stage-origin (default: as in the\n" \
+    "                        positions file's header)\n"                                     \
+    "  --stage-rotation DEG  turn the pictures DEG counter-clockwise onto the stage axes\n"  \
+    "  --stage-origin X,Y|TILE:PX,PY  chip (0,0): a stage reading, or a pixel of a tile\n"
 
 extern const cli_command cli_analyze, cli_predict, cli_inspect, cli_map, cli_plan, cli_render,
     cli_oxide, cli_catalog, cli_calibrate, cli_watch;
@@ -44,8 +141,18 @@ int cli_parse_double(const char *command, const char *option, const char *text,
 int cli_parse_long(const char *command, const char *option, const char *text, long lo,
                    long hi, long *out);
 
-/* Create a folder (and parents) for outputs; returns 0 or prints and -1. */
-int cli_make_dir(const char *path);
+/* lam_setup_build, its errors printed: a refused option value as a usage
+ * error of 'command'. Returns the exit code (0: *s is the caller's). */
+int cli_setup_build(const char *command, const lam_setup_overrides *o, lam_setup *s);
+
+/* A usage error when positions are given without a pixel size (the setup's
+ * um_per_px or --um-per-px); 0 otherwise. */
+int cli_positions_need_scale(const char *command, const char *positions, const lam_setup *s);
+
+/* After a catalogue's outputs were written (status st, err): its
+ * warnings for images printed, an error reported, the catalogue cleared.
+ * Returns the exit code. */
+int cli_catalog_done(lam_catalog *cat, lam_status st, const lam_error *err);
 
 extern int cli_quiet, cli_verbose;
 

@@ -1,12 +1,8 @@
 /* cli/common.c - option parsing helpers and error reporting for the CLI. */
 #include "cli.h"
 
-#include <errno.h>
-#include <math.h>
 #include <stdarg.h>
-#include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 int cli_quiet, cli_verbose;
 
@@ -45,64 +41,49 @@ int cli_report(const lam_error *err, const char *fallback_file)
 int cli_parse_double(const char *command, const char *option, const char *text,
                      double lo, double hi, double *out)
 {
-    char *end = NULL;
-    errno = 0;
-    double v = strtod(text, &end);
-    if (end == text || *end != '\0' || errno == ERANGE || !isfinite(v)) {
-        cli_usage_error(command, "%s: '%s' is not a number", option, text);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_usage_error(command, "%s: %g is outside %g to %g", option, v, lo, hi);
-        return -1;
-    }
-    *out = v;
-    return 0;
+    lam_error err;
+    if (!lam_parse_number(&err, option, text, lo, hi, out))
+        return 0;
+    cli_usage_error(command, "%s", err.message);
+    return -1;
 }
 
 int cli_parse_long(const char *command, const char *option, const char *text, long lo,
                    long hi, long *out)
 {
-    char *end = NULL;
-    errno = 0;
-    long v = strtol(text, &end, 10);
-    if (end == text || *end != '\0' || errno == ERANGE) {
-        cli_usage_error(command, "%s: '%s' is not a whole number", option, text);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_usage_error(command, "%s: %ld is outside %ld to %ld", option, v, lo, hi);
-        return -1;
-    }
-    *out = v;
-    return 0;
+    lam_error err;
+    if (!lam_parse_integer(&err, option, text, lo, hi, out))
+        return 0;
+    cli_usage_error(command, "%s", err.message);
+    return -1;
 }
 
-int cli_make_dir(const char *path)
+int cli_setup_build(const char *command, const lam_setup_overrides *o, lam_setup *s)
 {
-    char buf[4096];
-    size_t n = strlen(path);
-    if (n == 0 || n >= sizeof buf) {
-        fprintf(stderr, "lamina: %s: invalid output folder\n", path);
-        return -1;
-    }
-    memcpy(buf, path, n + 1);
-    for (size_t i = 1; i <= n; i++) {
-        if (buf[i] == '/' || buf[i] == '\0') {
-            char c = buf[i];
-            buf[i] = '\0';
-            if (mkdir(buf, 0755) != 0 && errno != EEXIST) {
-                fprintf(stderr, "lamina: %s: cannot create folder: %s\n", buf,
-                        strerror(errno));
-                return -1;
-            }
-            buf[i] = c;
-        }
-    }
-    struct stat sb;
-    if (stat(path, &sb) != 0 || !S_ISDIR(sb.st_mode)) {
-        fprintf(stderr, "lamina: %s: not a folder\n", path);
-        return -1;
-    }
-    return 0;
+    lam_error err;
+    lam_error_clear(&err);
+    if (!lam_setup_build(o, s, &err))
+        return CLI_OK;
+    if (err.status == LAM_EINVAL && !err.file[0])
+        return cli_usage_error(command, "%s", err.message);
+    return cli_report(&err, NULL);
+}
+
+int cli_catalog_done(lam_catalog *cat, lam_status st, const lam_error *err)
+{
+    /* the analyses' own warnings were printed as each image finished */
+    for (size_t k = 0; k < cat->n_images; k++)
+        if (cat->images[k].own_warnings[0])
+            fprintf(stderr, "lamina: %s: warning: %s\n", cat->images[k].path,
+                    cat->images[k].own_warnings);
+    lam_catalog_clear(cat);
+    return st ? cli_report(err, NULL) : CLI_OK;
+}
+
+int cli_positions_need_scale(const char *command, const char *positions, const lam_setup *s)
+{
+    if (!positions || s->um_per_px > 0)
+        return CLI_OK;
+    return cli_usage_error(command, "--positions needs the pixel size: give --um-per-px or "
+                                    "um_per_px in the setup");
 }

@@ -81,7 +81,7 @@ int main(int argc, char **argv)
         const cli_command *cmd = find_command(argv[2]);
         if (!cmd)
             return cli_usage_error(NULL, "unknown command '%s'", argv[2]);
-        cmd->help(stdout);
+        cli_help(stdout, cmd);
         return CLI_OK;
     }
     const cli_command *cmd = find_command(name);
@@ -89,7 +89,7 @@ int main(int argc, char **argv)
         return cli_usage_error(NULL, "unknown command '%s'", name);
     for (int i = 2; i < argc; i++) {
         if (!strcmp(argv[i], "--help") || !strcmp(argv[i], "-h")) {
-            cmd->help(stdout);
+            cli_help(stdout, cmd);
             return CLI_OK;
         }
     }

@@ -1,101 +1,155 @@
-/* cli/options.c - the table-driven option parser and help (options.h). */
-#include "options.h"
+/* cli/options.c - the table-driven option parser and help (cli.h). */
 #include "cli.h"
-#include "run_opts.h"
+#include "lamina/analyze.h"
+#include "lamina/transfer.h"
 
-#include <getopt.h>
 #include <stdlib.h>
 #include <string.h>
 
-#define OWN_CODE 3000 /* getopt codes of a table's options: OWN_CODE + index */
+#define OPT_CODE 3000 /* getopt code of the i-th option of the joined table: OPT_CODE + i */
+#define MAX_OPTIONS 64
 
-static const struct option shared_setup[] = {CLI_SETUP_LONGOPTS};
-static const struct option shared_stage[] = {CLI_STAGE_LONGOPTS};
-#define N_SETUP (sizeof shared_setup / sizeof shared_setup[0])
-#define N_STAGE (sizeof shared_stage / sizeof shared_stage[0])
+/* The options every physics command shares (help: CLI_SETUP_HELP). */
+#define SETUP_OPTIONS(O)                                                                 \
+    {"setup", 0, CLI_TEXT, &(O)->setup_file, 0, 0, NULL, NULL, NULL},                   \
+    {"stack", 0, CLI_TEXT, &(O)->stack_file, 0, 0, NULL, NULL, NULL},                   \
+    {"material", 0, CLI_TEXT, &(O)->material, 0, 0, NULL, NULL, NULL},                  \
+    {"oxide", 0, CLI_NUMBER, &(O)->oxide_nm, 0, 5000, NULL, NULL, NULL},                \
+    {"na", 0, CLI_NUMBER, &(O)->na, 0, 1.6, NULL, NULL, NULL},                          \
+    {"fermi", 0, CLI_NUMBER, &(O)->fermi_ev, -2, 2, NULL, NULL, NULL},                  \
+    {"um-per-px", 0, CLI_NUMBER, &(O)->um_per_px, 1e-4, 1000, NULL, NULL, NULL}
+
+/* The stage convention of the commands that write a catalogue or map
+ * (help: CLI_STAGE_HELP). */
+#define STAGE_OPTIONS(S)                                                                 \
+    {"stage-axes", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL},                          \
+    {"stage-units", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL},                         \
+    {"stage-rotation", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL},                      \
+    {"stage-origin", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL}
+
+static int set_stage(const char *command, const cli_option *op, const char *arg)
+{
+    lam_error err;
+    lam_error_clear(&err);
+    if (!lam_stage_set(op->target, op->name + strlen("stage-"), arg, &err))
+        return 0;
+    cli_usage_error(command, "--%s: %s", op->name, err.message);
+    return -1;
+}
+
+static int set_range(const char *command, const cli_option *op, const char *name,
+                     const char *arg)
+{
+    lam_error err;
+    if (!lam_parse_range(&err, name, arg, op->lo, op->hi, op->target))
+        return 0;
+    return cli_usage_error(command, "%s", err.message), -1;
+}
 
 static int apply(const char *command, const cli_option *op, const char *arg)
 {
     char name[64];
+    long v;
     snprintf(name, sizeof name, "--%s", op->name);
     switch (op->kind) {
     case CLI_FLAG: *(int *)op->target = 1; return 0;
     case CLI_UNSET: *(int *)op->target = 0; return 0;
     case CLI_TEXT: *(const char **)op->target = arg; return 0;
     case CLI_NUMBER: return cli_parse_double(command, name, arg, op->lo, op->hi, op->target);
-    case CLI_INTEGER:
-        return cli_parse_long(command, name, arg, (long)op->lo, (long)op->hi, op->target);
+    case CLI_SIZE:
+        if (cli_parse_long(command, name, arg, (long)op->lo, (long)op->hi, &v))
+            return -1;
+        *(size_t *)op->target = (size_t)v;
+        return 0;
+    case CLI_RANGE: return set_range(command, op, name, arg);
+    case CLI_STAGE: return set_stage(command, op, arg);
     default: return op->call(command, arg, op->target);
     }
 }
 
-/* The long options of a command: its table, then the shared ones. */
-static struct option *long_options(const cli_command_options *o, char *letters, size_t n)
+/* Append the first m options of t (m = 0: up to CLI_END) to all[*n]. */
+static void append(cli_option *all, size_t *n, const cli_option *t, size_t m)
 {
-    size_t own = 0, k = 0, l = 0;
-    while (o->own && o->own[own].name)
-        own++;
-    struct option *lo = calloc(own + N_SETUP + N_STAGE + 1, sizeof *lo);
-    for (size_t i = 0; lo && i < own; i++) {
-        const cli_option *op = &o->own[i];
-        int takes = op->kind != CLI_FLAG && op->kind != CLI_UNSET;
-        lo[k++] = (struct option){op->name, takes ? required_argument : no_argument, 0,
-                                  OWN_CODE + (int)i};
-        if (op->letter && l + 3 < n) {
-            letters[l++] = op->letter;
+    for (size_t i = 0; (m ? i < m : t[i].name != NULL) && *n < MAX_OPTIONS; i++)
+        all[(*n)++] = t[i];
+}
+
+/* The command's table, then the shared ones it takes, into one table. */
+static size_t join(const cli_command *o, cli_option *all)
+{
+    size_t n = 0;
+    append(all, &n, o->options, 0);
+    if (o->setup) {
+        const cli_option t[] = {SETUP_OPTIONS(o->setup)};
+        append(all, &n, t, sizeof t / sizeof *t);
+    }
+    if (o->stage) {
+        const cli_option t[] = {STAGE_OPTIONS(o->stage)};
+        append(all, &n, t, sizeof t / sizeof *t);
+    }
+    return n;
+}
+
+/* getopt's long options and letters ("o:") of a joined table. */
+static void getopt_tables(const cli_option *all, size_t n, struct option *lo, char *letters,
+                          size_t cap)
+{
+    size_t l = 0;
+    for (size_t i = 0; i < n; i++) {
+        int takes = all[i].kind != CLI_FLAG && all[i].kind != CLI_UNSET;
+        lo[i] = (struct option){all[i].name, takes ? required_argument : no_argument, 0,
+                                OPT_CODE + (int)i};
+        if (all[i].letter && l + 3 < cap) {
+            letters[l++] = all[i].letter;
             if (takes)
                 letters[l++] = ':';
         }
     }
-    for (size_t i = 0; lo && o->setup && i < N_SETUP; i++)
-        lo[k++] = shared_setup[i];
-    for (size_t i = 0; lo && o->stage && i < N_STAGE; i++)
-        lo[k++] = shared_stage[i];
+    lo[n] = (struct option){0, 0, 0, 0};
     letters[l] = '\0';
-    return lo;
 }
 
-/* The table entry of a getopt code (a letter or OWN_CODE + index). */
-static const cli_option *own_option(const cli_command_options *o, int c)
+/* The operand count against what the command allows. */
+static int check_operands(const cli_command *o, int argc, char **argv)
 {
-    for (size_t i = 0; o->own && o->own[i].name; i++)
-        if (c == OWN_CODE + (int)i || (o->own[i].letter && c == o->own[i].letter))
-            return &o->own[i];
-    return NULL;
+    int n = argc - optind;
+    if (n >= o->min_args && (o->max_args < 0 || n <= o->max_args))
+        return CLI_OK;
+    if (!o->args_error)
+        return cli_usage_error(o->name, "unexpected argument '%s'", argv[optind]);
+    return cli_usage_error(o->name, "%s", o->args_error);
 }
 
-int cli_options_parse(const cli_command_options *o, int argc, char **argv, int first)
+int cli_options_parse(const cli_command *o, int argc, char **argv)
 {
+    cli_option all[MAX_OPTIONS];
+    struct option lo[MAX_OPTIONS + 1];
     char letters[64];
-    struct option *lo = long_options(o, letters, sizeof letters);
-    if (!lo) {
-        fprintf(stderr, "lamina: out of memory\n");
-        return CLI_EUSAGE;
-    }
-    int c, r = 0;
-    optind = first;
+    size_t n = join(o, all);
+    getopt_tables(all, n, lo, letters, sizeof letters);
+    int c;
+    if (o->setup)
+        lam_setup_overrides_init(o->setup);
+    optind = 1;
     opterr = 0;
-    while (!r && (c = getopt_long(argc, argv, letters, lo, NULL)) != -1) {
-        const cli_option *op = own_option(o, c);
-        if (op) {
-            r = apply(o->command, op, optarg);
-            continue;
-        }
-        r = o->stage ? cli_stage_option(o->stage, o->command, c, optarg) : 0;
-        if (r > 0 && o->stage_given)
+    while ((c = getopt_long(argc, argv, letters, lo, NULL)) != -1) {
+        const cli_option *op = NULL;
+        for (size_t i = 0; i < n && !op; i++)
+            if (c == OPT_CODE + (int)i || (all[i].letter && c == all[i].letter))
+                op = &all[i];
+        if (!op)
+            return cli_usage_error(o->name, "unknown or incomplete option '%s'",
+                                   argv[optind - 1]);
+        if (apply(o->name, op, optarg))
+            return CLI_EUSAGE;
+        if (op->kind == CLI_STAGE && o->stage_given)
             *o->stage_given = 1;
-        if (r == 0 && o->setup)
-            r = cli_setup_option(o->setup, o->command, c, optarg);
-        if (r == 0)
-            r = cli_usage_error(o->command, "unknown or incomplete option '%s'",
-                                argv[optind - 1]);
-        r = r < 0 || r == CLI_EUSAGE ? -1 : 0;
     }
-    free(lo);
-    return r ? CLI_EUSAGE : CLI_OK;
+    return check_operands(o, argc, argv);
 }
 
-void cli_options_help(FILE *out, const cli_option *own)
+/* The table's help lines: "  --name ARG   help" aligned at column 24. */
+static void options_help(FILE *out, const cli_option *own)
 {
     for (size_t i = 0; own[i].name; i++) {
         if (!own[i].help)
@@ -117,4 +171,50 @@ void cli_options_help(FILE *out, const cli_option *own)
         }
         fputc('\n', out);
     }
+}
+
+void cli_help(FILE *out, const cli_command *c)
+{
+    fputs(c->usage, out);
+    if (c->setup)
+        fputs(CLI_SETUP_HELP, out);
+    options_help(out, c->options);
+    if (c->stage)
+        fputs(CLI_STAGE_HELP, out);
+    if (c->footer)
+        fputs(c->footer, out);
+}
+
+int cli_parse_encoding(const char *command, const char *arg, void *target)
+{
+    if (lam_transfer_parse(arg, target))
+        return cli_usage_error(command, "--encoding: expected srgb, linear or a gamma value"), -1;
+    return 0;
+}
+
+int cli_parse_megapixels(const char *command, const char *arg, void *target)
+{
+    double mp;
+    if (cli_parse_double(command, "--max-megapixels", arg, 0.001, 10000, &mp))
+        return -1;
+    *(size_t *)target = (size_t)(mp * 1e6);
+    return 0;
+}
+
+int cli_parse_roi(const char *command, const char *text, void *target)
+{
+    lam_error err;
+    if (lam_substrate_roi_parse(target, "--substrate-roi", text, &err))
+        return cli_usage_error(command, "%s", err.message), -1;
+    return 0;
+}
+
+int cli_parse_min_area(const char *command, const char *arg, void *target)
+{
+    lam_analysis_options *opt = target;
+    double a;
+    if (cli_parse_double(command, "--min-area", arg, 0, 1e9, &a))
+        return -1;
+    opt->min_area_um2 = opt->min_area_px = a;
+    return 0;
 }

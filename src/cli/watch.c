@@ -2,22 +2,16 @@
  * (lamina/watch.h). Parses the options, sets the Ctrl-C handler and prints
  * one line per image as the session reports it. */
 #include "cli.h"
-#include "options.h"
-#include "run_opts.h"
-#include "setup_opts.h"
 #include "lamina/batch.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
 #include "lamina/summary.h"
 #include "lamina/watch.h"
 
-#include <math.h>
 #include <signal.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 #include <unistd.h>
-#include <cjson/cJSON.h>
 
 static volatile sig_atomic_t stop_requested;
 
@@ -35,157 +29,111 @@ static void on_stop(int sig)
     (void)w;
 }
 
-
 /* The session's events: a line per image on stdout, the rest on stderr. */
 static void on_event(const lam_watch_event *ev, void *user)
 {
     (void)user;
-    char name[48];
-    switch (ev->kind) {
-    case LAM_WATCH_FAILED:
+    char *text = NULL;
+    if (ev->kind == LAM_WATCH_FAILED)
         cli_report(ev->err, ev->path);
-        break;
-    case LAM_WATCH_POOLED:
-        if (cli_quiet)
-            break;
-        if (ev->first)
-            fprintf(stderr, "lamina: response, NA and camera pooled from %zu image%s\n",
-                    ev->prior->images, ev->prior->images == 1 ? "" : "s");
-        else
-            fprintf(stderr, "lamina: pooled response, NA and camera moved (%s by %.1f sigma), "
-                            "from %zu images\n", lam_batch_nuisance_name(ev->which, name,
-                                                                         sizeof name),
-                    ev->moved, ev->prior->images);
-        break;
-    default: {
-        char when[16], *text = NULL;
-        time_t now = time(NULL);
-        strftime(when, sizeof when, "%H:%M:%S", localtime(&now));
-        if (!cli_quiet && !lam_summary_image_line(ev->path, ev->result,
-                                                  ev->kind == LAM_WATCH_KEPT, &text, NULL))
-            printf("%s  %s\n", when, text);
-        free(text);
-        fflush(stdout);
-    }
-    }
+    else if (ev->kind == LAM_WATCH_POOLED && !cli_quiet &&
+             !lam_summary_watch_event(ev, &text, NULL))
+        fprintf(stderr, "lamina: %s\n", text);
+    else if (!cli_quiet && !lam_summary_watch_event(ev, &text, NULL))
+        printf("%s\n", text);
+    free(text);
+    fflush(stdout);
 }
 
-/* What the table fills besides lam_watch_options. */
-typedef struct watch_args {
+static struct {
     lam_watch_options w;
-    cli_setup_opts so;
+    lam_setup_overrides so;
     const char *out;
-    long K, threads, max_images;
-    double area;
-} watch_args;
+    char out_default[4096], setup_hash[LAM_BATCH_HASH_LEN];
+} A;
 
-#define WATCH_OPTIONS(A)                                                                        \
-    {                                                                                           \
-        {"max-layers", 0, CLI_INTEGER, &(A)->K, 1, 20, NULL, "K", "layer counts modelled (6)"}, \
-        {"min-area", 0, CLI_NUMBER, &(A)->area, 0, 1e9, NULL, "A",                              \
-         "regions below A um^2 (or px) are 'small'"},                                           \
-        {"no-oxide-fit", 0, CLI_UNSET, &(A)->w.analysis.fit_oxide, 0, 0, NULL, NULL,            \
-         "keep the nominal oxide"},                                                             \
-        {"oxide-tolerance", 0, CLI_NUMBER, &(A)->w.analysis.oxide_tolerance_nm, 0, 500, NULL,   \
-         "NM", "pass/fail of the oxide check (default 10)"},                                   \
-        {"positions", 0, CLI_TEXT, &(A)->w.positions, 0, 0, NULL, "FILE.csv",                   \
-         "stage readings of the tiles (re-read for every image,\nso the stage software may "   \
-         "append to it)"},                                                                      \
-        {"out", 0, CLI_TEXT, &(A)->out, 0, 0, NULL, "DIR", "outputs (default DIR/lamina-out)"}, \
-        {"threads", 0, CLI_INTEGER, &(A)->threads, 1, 256, NULL, "N",                           \
-         "worker threads per image (default: all cores)"},                                      \
-        {"max-images", 0, CLI_INTEGER, &(A)->max_images, 1, 1e8, NULL, "N",                     \
-         "stop after N images analysed"},                                                       \
-        {"idle-exit", 0, CLI_NUMBER, &(A)->w.idle_exit_s, 0.1, 1e7, NULL, "SEC",                \
-         "stop when no image arrived for SEC seconds"},                                         \
-        {"no-pool", 0, CLI_UNSET, &(A)->w.pool, 0, 0, NULL, NULL,                               \
-         "analyse each image on its own (default: the response, NA\nand camera are pooled "    \
-         "from image to image, pool.json)"},                                                    \
-        {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},                    \
-        {NULL, 0, 0, NULL, 0, 0, NULL, NULL, NULL}                                              \
-    }
+static const cli_option watch_options[] = {
+    CLI_ANALYSIS_OPTIONS(A.w.analysis),
+    {"positions", 0, CLI_TEXT, &A.w.positions, 0, 0, NULL, "FILE.csv",
+     "stage readings of the tiles (re-read for every image,\nso the stage software may append "
+     "to it)"},
+    {"out", 0, CLI_TEXT, &A.out, 0, 0, NULL, "DIR", "outputs (default DIR/lamina-out)"},
+    {"threads", 0, CLI_SIZE, &A.w.analysis.threads, 1, 256, NULL, "N",
+     "worker threads per image (default: all cores)"},
+    {"max-images", 0, CLI_SIZE, &A.w.max_images, 1, 1e8, NULL, "N",
+     "stop after N images analysed"},
+    {"idle-exit", 0, CLI_NUMBER, &A.w.idle_exit_s, 0.1, 1e7, NULL, "SEC",
+     "stop when no image arrived for SEC seconds"},
+    {"no-pool", 0, CLI_UNSET, &A.w.pool, 0, 0, NULL, NULL,
+     "analyse each image on its own (default: the response, NA\nand camera are pooled from "
+     "image to image, pool.json)"},
+    {"quiet", 0, CLI_FLAG, &cli_quiet, 0, 0, NULL, NULL, "only errors"},
+    CLI_END};
 
-static void watch_help(FILE *out)
+/* The options, the setup, the output folder and the setup hash; an exit
+ * code (0: *s is the caller's). */
+static int prepare(int argc, char **argv, lam_setup *s)
 {
-    watch_args A;
-    cli_option t[] = WATCH_OPTIONS(&A);
-    fputs("Usage: lamina watch [OPTIONS] DIR\n"
-          "Analyse each image the camera writes into DIR as soon as it is complete (closed\n"
-          "after writing, or moved into DIR), print one line per image, and keep\n"
-          "catalog.json, catalog.csv, goto.csv and report.html in --out up to date.\n"
-          "Images already in DIR are analysed first (skipped when their results exist for\n"
-          "the same content and setup). Ctrl-C finishes the current image and stops.\n\n"
-          CLI_SETUP_HELP, out);
-    cli_options_help(out, t);
-    fputs(CLI_STAGE_HELP, out);
-}
-
-static int parse_watch_options(int argc, char **argv, watch_args *A)
-{
-    cli_option t[] = WATCH_OPTIONS(A);
-    cli_command_options co = {"watch", t, &A->so, &A->w.stage, NULL};
-    int rc = cli_options_parse(&co, argc, argv, 1);
-    if (rc)
+    A.w = lam_watch_options_default();
+    int rc = cli_options_parse(&cli_watch, argc, argv) ? CLI_EUSAGE : CLI_OK;
+    if (rc || (rc = cli_setup_build("watch", &A.so, s)))
         return rc;
-    if (optind + 1 != argc)
-        return cli_usage_error("watch", "expected one folder to watch");
-    A->w.dir = argv[optind];
-    A->w.analysis.max_layers = (size_t)A->K;
-    A->w.analysis.threads = (size_t)A->threads;
-    A->w.max_images = (size_t)A->max_images;
-    if (A->area >= 0)
-        A->w.analysis.min_area_um2 = A->w.analysis.min_area_px = A->area;
+    lam_watch_options *w = &A.w;
+    w->dir = argv[optind];
+    snprintf(A.out_default, sizeof A.out_default, "%s/lamina-out", w->dir);
+    w->out_dir = A.out ? A.out : A.out_default;
+    lam_error err;
+    lam_error_clear(&err);
+    if (!(rc = cli_positions_need_scale("watch", w->positions, s)) &&
+        lam_outfile_make_dir(w->out_dir, &err)) /* before saying where results go */
+        rc = cli_report(&err, NULL);
+    if (rc) {
+        lam_setup_clear(s);
+        return rc;
+    }
+    lam_batch_overrides_hash(&A.so, &w->analysis, A.setup_hash);
+    lam_parallel_set_default(w->analysis.threads);
+    w->setup = s;
+    w->setup_hash = A.setup_hash;
+    w->stop = &stop_requested;
+    w->on_event = on_event;
     return CLI_OK;
 }
 
 static int run_watch(int argc, char **argv)
 {
-    watch_args A = {.w = lam_watch_options_default(), .K = 6,
-                    .threads = (long)lam_cpu_count(), .area = -1};
-    cli_setup_opts_init(&A.so);
-    lam_watch_options w;
-    int rc = parse_watch_options(argc, argv, &A);
-    char out_default[4096], setup_hash[LAM_BATCH_HASH_LEN];
     lam_setup s;
-    if (rc || (rc = cli_setup_build("watch", &A.so, &s)))
+    int rc = prepare(argc, argv, &s);
+    if (rc)
         return rc;
-    w = A.w;
-    const char *out = A.out;
-    cli_setup_opts so = A.so;
-    snprintf(out_default, sizeof out_default, "%s/lamina-out", w.dir);
-    w.out_dir = out ? out : out_default;
-    if (w.positions && !(s.um_per_px > 0))
-        rc = cli_usage_error("watch", "--positions needs the pixel size: give --um-per-px or "
-                                      "um_per_px in the setup");
-    else if (cli_make_dir(w.out_dir))
-        rc = CLI_EFILE;
-    if (rc) {
-        lam_setup_clear(&s);
-        return rc;
-    }
-    cli_setup_hash(&so, &w.analysis, setup_hash, sizeof setup_hash);
-    lam_parallel_set_default(w.analysis.threads);
-    w.setup = &s;
-    w.setup_hash = setup_hash;
-    w.stop = &stop_requested;
-    w.on_event = on_event;
+    lam_watch_options *w = &A.w;
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_stop; /* no SA_RESTART: poll returns at once */
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
     if (!cli_quiet)
-        fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w.dir, w.out_dir);
+        fprintf(stderr, "lamina: watching %s (results in %s; Ctrl-C to stop)\n", w->dir,
+                w->out_dir);
     size_t analysed = 0;
     lam_error err;
     lam_error_clear(&err);
-    if (lam_watch_run(&w, &analysed, &err))
-        rc = cli_report(&err, w.dir);
+    if (lam_watch_run(w, &analysed, &err))
+        rc = cli_report(&err, w->dir);
     if (!cli_quiet)
-        fprintf(stderr, "lamina: %zu images analysed; results in %s\n", analysed, w.out_dir);
+        fprintf(stderr, "lamina: %zu images analysed; results in %s\n", analysed, w->out_dir);
     lam_setup_clear(&s);
     return rc;
 }
 
-const cli_command cli_watch = {"watch", "analyse images as the camera writes them (live)",
-                               run_watch, watch_help};
+const cli_command cli_watch = {
+    .name = "watch", .summary = "analyse images as the camera writes them (live)",
+    .run = run_watch,
+    .usage = "Usage: lamina watch [OPTIONS] DIR\n"
+             "Analyse each image the camera writes into DIR as soon as it is complete (closed\n"
+             "after writing, or moved into DIR), print one line per image, and keep\n"
+             "catalog.json, catalog.csv, goto.csv and report.html in --out up to date.\n"
+             "Images already in DIR are analysed first (skipped when their results exist for\n"
+             "the same content and setup). Ctrl-C finishes the current image and stops.\n\n",
+    .options = watch_options, .setup = &A.so, .stage = &A.w.stage, .min_args = 1, .max_args = 1,
+    .args_error = "expected one folder to watch"};
