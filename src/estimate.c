@@ -214,6 +214,7 @@ lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions
     im->count = count;
     if (!(sd > 0))
         sd = fmax(8.0, 0.08 * nominal);
+    sd = fmax(sd, LAM_OXIDE_SD_MIN_NM);
     set(&im->oxide, "oxide_nm", nominal, sd, fmax(0, nominal - 250), nominal + 250,
         "nominal prior");
     for (int k = 0; k < 3; k++)

@@ -44,7 +44,7 @@ static const lam_setup_number numbers[] = {
     {"uncertainty.resonance", 0, 30, FIELD(sigma.resonance), "uncertainty"},
     {"uncertainty.background", 0, 200, FIELD(sigma.background), "uncertainty"},
     {"uncertainty.continuum", 0, 2, FIELD(sigma.continuum), "uncertainty"},
-    {"uncertainty.oxide_nm", 0, 500, FIELD(sigma.oxide_nm), "uncertainty"},
+    {"uncertainty.oxide_nm", LAM_OXIDE_SD_MIN_NM, 500, FIELD(sigma.oxide_nm), "uncertainty"},
 };
 #define N_NUMBERS (sizeof numbers / sizeof numbers[0])
 

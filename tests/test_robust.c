@@ -43,7 +43,7 @@ static void matrix(int informed, const char *dir, robust_tally *t)
     for (int r = 0; r < 5; r++)
         for (int f = 0; f < 4; f++) {
             robust_case c;
-            synth_config_init(&c.cfg);
+            robust_case_init(&c);
             c.cfg.response = responses[r];
             c.cfg.nominal_oxide_nm = oxides[r];
             c.fmt = formats[f].fmt;
@@ -90,7 +90,7 @@ static void test_single(const char *dir)
 static void test_pooled(const char *dir)
 {
     robust_case c;
-    synth_config_init(&c.cfg);
+    robust_case_init(&c);
     c.cfg.response = SYNTH_RESP_SONG;
     c.cfg.nominal_oxide_nm = 285;
     c.fmt = SYNTH_FMT_PNG;
@@ -131,7 +131,7 @@ static void test_doping(const char *dir)
     memset(&t, 0, sizeof t);
     for (int r = 0; r < 4; r++) {
         robust_case c;
-        synth_config_init(&c.cfg);
+        robust_case_init(&c);
         c.cfg.response = responses[r];
         c.cfg.nominal_oxide_nm = r % 2 ? 90 : 285;
         c.cfg.n_doped = 4;
@@ -168,7 +168,7 @@ static void test_mono(const char *dir)
     memset(&t, 0, sizeof t);
     for (int k = 0; k < 6; k++) {
         robust_case c;
-        synth_config_init(&c.cfg);
+        robust_case_init(&c);
         c.cfg.camera = SYNTH_CAM_MONO;
         c.cfg.response = responses[1 + k % 4];
         c.cfg.nominal_oxide_nm = k % 3 == 0 ? 90 : 285;
@@ -200,7 +200,7 @@ static void test_mono(const char *dir)
 static void test_calibrated(const char *dir)
 {
     robust_case c;
-    synth_config_init(&c.cfg);
+    robust_case_init(&c);
     c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
     c.cfg.nominal_oxide_nm = 300;
     c.cfg.camera = SYNTH_CAM_DYE;
@@ -212,7 +212,7 @@ static void test_calibrated(const char *dir)
     robust_tally alone, cal;
     memset(&alone, 0, sizeof alone);
     memset(&cal, 0, sizeof cal);
-    check_int(robust_run_calibrated(&c, 510009, 4, dir, &alone, &cal, NULL), 0,
+    check_int(robust_run_calibrated(&c, 510009, 4, 0, dir, &alone, &cal, NULL), 0,
               "a 4-tile scan, one flake labelled, calibrated and analysed");
     robust_print(stdout, "test_robust: unknown camera", &alone);
     robust_print(stdout, "test_robust: calibrated on one flake", &cal);

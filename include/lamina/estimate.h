@@ -164,7 +164,8 @@ lam_status lam_estimate_alloc(const lam_setup *setup, size_t channels,
 void lam_estimate_free(lam_estimate *e);
 
 /* Add an image's regions with its nominal oxide and the prior sd of the
- * true oxide about it (<= 0: the default, 8 % of nominal, at least 8 nm).
+ * true oxide about it (<= 0 or NAN: the default, 8 % of nominal, at least
+ * 8 nm; otherwise at least LAM_OXIDE_SD_MIN_NM, setup.h).
  * Returns the image's index through 'index' (may be NULL). */
 lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions, size_t count,
                                   double nominal_oxide_nm, double oxide_sd_nm, size_t *index,

@@ -67,6 +67,12 @@ typedef struct lam_setup_number {
     const char *records;
 } lam_setup_number;
 
+/* No oxide is known better than this (nm): a setup file's finer
+ * uncertainty.oxide_nm is refused, and the estimation raises a finer sd to
+ * it, so that the prior cannot make the fit singular. Ellipsometry of
+ * thermal SiO2 is good to a few tenths of a nm (common practice). */
+#define LAM_OXIDE_SD_MIN_NM 0.1
+
 typedef struct lam_setup {
     double objective_na;
     double illumination_na; /* the cone averaged over: asin(NA / n_ambient) */

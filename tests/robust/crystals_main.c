@@ -31,7 +31,7 @@ typedef struct run_opts {
 static robust_case make_case(synth_crystal x, int source, double oxide, int f, int informed)
 {
     robust_case c;
-    synth_config_init(&c.cfg);
+    robust_case_init(&c);
     c.cfg.crystal = x;
     c.cfg.nk_source = source;
     c.cfg.nominal_oxide_nm = oxide;

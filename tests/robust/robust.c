@@ -298,9 +298,10 @@ static int largest_monolayer(const synth_scene *sc)
     return best;
 }
 
-/* Calibrate the setup on one flake of the first tile; fills 'out'. */
+/* Calibrate the setup on one flake of the first tile, with its oxide
+ * given as measured (ellipsometry) when oxide_given; fills 'out'. */
 static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_setup *start,
-                              lam_calib_result *out)
+                              int oxide_given, lam_calib_result *out)
 {
     int obj = largest_monolayer(sc);
     uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
@@ -310,7 +311,7 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
     lam_error_clear(&err);
     int rc = !map || lam_calib_measure_labels(&set, img, map, (size_t)sc->width,
                                               (size_t)sc->height, start, &err) ||
-             lam_calibrate(start, &set, NULL, NAN, out, &err);
+             lam_calibrate(start, &set, oxide_given ? &sc->phys.oxide_nm : NULL, NAN, out, &err);
     if (rc)
         fprintf(stderr, "robust: calibration on %s: %s\n", img, err.message);
     lam_calib_set_clear(&set);
@@ -318,8 +319,15 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
     return rc ? -1 : 0;
 }
 
-int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
-                          robust_tally *alone, robust_tally *calibrated, FILE *log)
+void robust_case_init(robust_case *c)
+{
+    memset(c, 0, sizeof *c);
+    synth_config_init(&c->cfg);
+}
+
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles,
+                          int oxide_given, const char *dir, robust_tally *alone,
+                          robust_tally *calibrated, FILE *log)
 {
     if (tiles < 2 || tiles > LAM_POOL_MAX)
         return -1;
@@ -336,7 +344,7 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
     lam_calib_result cal;
     memset(&cal, 0, sizeof cal);
     if (!rc && !(rc = load_setup(setup, &s))) {
-        rc = calibrate_on_flake(img[0], &sc[0], &s, &cal);
+        rc = calibrate_on_flake(img[0], &sc[0], &s, oxide_given, &cal);
         for (int k = 1; k < tiles && !rc; k++)
             rc = analyse(img[k], &s, NULL, &sc[k], alone, log, NULL) ||
                  analyse(img[k], &cal.setup, NULL, &sc[k], calibrated, log, NULL);

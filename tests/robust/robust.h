@@ -39,6 +39,10 @@ typedef struct robust_case {
     double oxide_known_nm;    /* > 0: the setup gives the true oxide with this sd (measured) */
 } robust_case;
 
+/* Every field zero (no pooled setup, oxide not given, uninformed) and the
+ * generator's configuration at its defaults. */
+void robust_case_init(robust_case *c);
+
 /* Render scene 'seed' of a case into dir, analyse it, add to the tally.
  * log (may be NULL) gets one line per wrong flake. Returns 0, or -1 when
  * the scene could not be made or analysed (the message is printed). */
@@ -54,11 +58,13 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
 
 /* One flake confirmed (Raman, AFM): the first of 'tiles' scenes sharing the
  * physics of 'seed' has its largest monolayer labelled, the setup is
- * calibrated on it (lamina/calibrate.h), and the other tiles are analysed
- * with the setup as it was (tallied in 'alone') and as calibrated
- * ('calibrated'). 2 <= tiles <= LAM_POOL_MAX. */
-int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
-                          robust_tally *alone, robust_tally *calibrated, FILE *log);
+ * calibrated on it (lamina/calibrate.h; with oxide_given, that tile's true
+ * oxide fixed as if measured by ellipsometry: `calibrate --known-oxide`),
+ * and the other tiles are analysed with the setup as it was (tallied in
+ * 'alone') and as calibrated ('calibrated'). 2 <= tiles <= LAM_POOL_MAX. */
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles,
+                          int oxide_given, const char *dir, robust_tally *alone,
+                          robust_tally *calibrated, FILE *log);
 
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);

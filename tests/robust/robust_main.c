@@ -1,11 +1,15 @@
 /* robust_main.c - build/tests/robust: the accuracy matrix of issue 9 on
  * the independent generator's images (`make accuracy`).
  *   robust [--scenes N] [--batch T] [--seed S] [--only informed|uninformed]
- *          [--log FILE]
+ *          [--calibrate T] [--log FILE]
  * One line per response x oxide x format x knowledge, then totals by
  * response, oxide and format. --batch T: each scene is a chip scan of T
  * tiles sharing one microscope, response and oxide, scored once with each
- * tile analysed alone and once with the prior pooled over the scan. */
+ * tile analysed alone and once with the prior pooled over the scan.
+ * --calibrate T: the same scans, the setup calibrated on the largest
+ * monolayer of the first tile with that tile's oxide given (as from
+ * ellipsometry); the other T-1 tiles scored with the setup as it was and
+ * as calibrated. */
 #include "robust.h"
 #include "../check.h"
 #include "lamina/error.h"
@@ -27,7 +31,7 @@ static const struct { synth_format fmt; int q; const char *name; } formats[] = {
 #define NF 4
 
 typedef struct options {
-    int scenes, batch, only;
+    int scenes, batch, calibrate, only;
     unsigned long long seed;
     FILE *log;
 } options;
@@ -38,37 +42,49 @@ typedef struct tallies {
     robust_tally total[2][2], resp[2][2][NR], ox[2][2][NO], fmt[2][2][NF];
 } tallies;
 
-static const char *label_of(int inf, int mode, int batch)
+static const char *label_of(const options *o, int inf, int mode)
 {
     static const char *names[2][2] = {{"uninformed", "uninformed pooled"},
                                       {"informed", "informed pooled"}};
-    return batch ? names[inf][mode] : names[inf][0];
+    static const char *calib[2][2] = {{"uninformed", "uninformed calibrated"},
+                                      {"informed", "informed calibrated"}};
+    if (o->calibrate)
+        return calib[inf][mode];
+    return o->batch ? names[inf][mode] : names[inf][0];
+}
+
+/* How many tallies a cell has: alone, and pooled or calibrated. */
+static int modes(const options *o)
+{
+    return o->batch || o->calibrate ? 2 : 1;
 }
 
 static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
 {
     robust_case c;
-    synth_config_init(&c.cfg);
+    robust_case_init(&c);
     c.cfg.response = responses[r];
     c.cfg.nominal_oxide_nm = oxides[x];
     c.fmt = formats[f].fmt;
     c.quality = formats[f].q;
     c.informed = inf;
     c.pooled_setup = NULL;
-        c.oxide_known_nm = 0;
     robust_tally t[2];
     memset(t, 0, sizeof t);
     unsigned long long base = o->seed + (unsigned long long)(((r * NO + x) * NF + f) * 100);
     for (int k = 0; k < o->scenes; k++) {
-        if (o->batch)
+        if (o->calibrate)
+            robust_run_calibrated(&c, base + (unsigned long long)k, o->calibrate, 1,
+                                  "build/tests/robust-out", &t[0], &t[1], o->log);
+        else if (o->batch)
             robust_run_batch(&c, base + (unsigned long long)k, o->batch, "build/tests/robust-out",
                              &t[0], &t[1], o->log);
         else
             robust_run(&c, base + (unsigned long long)k, "build/tests/robust-out", &t[0], o->log);
     }
-    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
+    for (int m = 0; m < modes(o); m++) {
         char label[128];
-        snprintf(label, sizeof label, "%s %s %.0f %s", label_of(inf, m, o->batch),
+        snprintf(label, sizeof label, "%s %s %.0f %s", label_of(o, inf, m),
                  synth_response_name(responses[r]), oxides[x], formats[f].name);
         robust_print(stdout, label, &t[m]);
         robust_add(&T->total[inf][m], &t[m]);
@@ -82,8 +98,8 @@ static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
 static void print_totals(const options *o, int inf, const tallies *T)
 {
     char label[128];
-    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
-        const char *k = label_of(inf, m, o->batch);
+    for (int m = 0; m < modes(o); m++) {
+        const char *k = label_of(o, inf, m);
         for (int r = 0; r < NR; r++) {
             snprintf(label, sizeof label, "%s response %s", k, synth_response_name(responses[r]));
             robust_print(stdout, label, &T->resp[inf][m][r]);
@@ -97,8 +113,8 @@ static void print_totals(const options *o, int inf, const tallies *T)
             robust_print(stdout, label, &T->fmt[inf][m][f]);
         }
     }
-    for (int m = 0; m < (o->batch ? 2 : 1); m++) {
-        snprintf(label, sizeof label, "TOTAL %s", label_of(inf, m, o->batch));
+    for (int m = 0; m < modes(o); m++) {
+        snprintf(label, sizeof label, "TOTAL %s", label_of(o, inf, m));
         robust_print(stdout, label, &T->total[inf][m]);
     }
 }
@@ -106,12 +122,14 @@ static void print_totals(const options *o, int inf, const tallies *T)
 int main(int argc, char **argv)
 {
     lam_error_init_gsl();
-    options o = {2, 0, -1, 1000, NULL};
+    options o = {2, 0, 0, -1, 1000, NULL};
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
             o.scenes = atoi(argv[++i]);
         else if (!strcmp(argv[i], "--batch") && i + 1 < argc)
             o.batch = atoi(argv[++i]);
+        else if (!strcmp(argv[i], "--calibrate") && i + 1 < argc)
+            o.calibrate = atoi(argv[++i]);
         else if (!strcmp(argv[i], "--seed") && i + 1 < argc)
             o.seed = strtoull(argv[++i], NULL, 10);
         else if (!strcmp(argv[i], "--only") && i + 1 < argc)
