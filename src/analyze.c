@@ -223,15 +223,6 @@ static lam_status model_stage(run *r, lam_error *err)
     return st;
 }
 
-static void to_segment_ladder(const lam_prediction *P, size_t K, lam_ladder *L)
-{
-    L->entries = P->max_layers + 1;
-    L->max_layers = K;
-    for (size_t N = 0; N < L->entries; N++)
-        for (size_t c = 0; c < 3; c++)
-            L->c[N][c] = c < P->channels ? P->contrast[N][c] : P->contrast[N][P->channels - 1];
-}
-
 /* Above this share of clipped pixels a missing substrate is the exposure's
  * fault. */
 #define SATURATED_FAILURE 0.2
@@ -241,17 +232,11 @@ static lam_status substrate_stage(run *r, lam_error *err)
     lam_analysis *a = r->a;
     lam_substrate_options so = r->opt->substrate;
     so.threads = r->threads;
-    double lad[LAM_MODEL_MAX_LAYERS][3];
-    lam_ladder L;
-    to_segment_ladder(&a->ladder, a->max_layers, &L);
-    for (size_t N = 1; N <= LAM_MODEL_MAX_LAYERS; N++)
-        memcpy(lad[N - 1], L.c[N], sizeof lad[0]);
     /* With one channel, brightness alone cannot tell the substrate from a
      * thick flake against a ladder of unknown scale (a bright graphite
      * flake's contrast to the substrate looks like a monolayer's the other
      * way round): the largest uniform area is the substrate. */
-    so.ladder = a->channels > 1 ? (const double (*)[3])lad : NULL;
-    so.ladder_count = a->channels > 1 ? LAM_MODEL_MAX_LAYERS : 0;
+    so.ladder = a->channels > 1 ? &a->ladder : NULL;
     lam_status st = lam_substrate_estimate(r->img, &so, &a->substrate, err);
     double clipped = (double)r->img->clipped_count / (double)(r->img->width * r->img->height);
     if (st == LAM_ERANGE && clipped > SATURATED_FAILURE) /* say why, not where to look */

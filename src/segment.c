@@ -1,5 +1,6 @@
-/* segment.c - denoising, ladder classification through a lookup table,
- * connected-component labelling (union-find) and region statistics. */
+/* segment.c - segmentations: allocation, connected-component labelling
+ * (union-find) and region statistics; the uniform-contrast pixel classes
+ * are made in segment_grow.c, the joining of flakes in segment_join.c. */
 #include "lamina/segment.h"
 #include "lamina/parallel.h"
 #include "segment_internal.h"
@@ -8,12 +9,9 @@
 #include <stdlib.h>
 #include <string.h>
 
-#define LUT_BINS 128
-#define LUT_UNSET 252 /* no class uses this value */
-
 lam_segment_options lam_segment_options_default(void)
 {
-    lam_segment_options o = {0.005, 0.05, 25.0, 12, 1, {0, 0, 0}, 0};
+    lam_segment_options o = {12, 1, {0, 0, 0}, 0};
     return o;
 }
 
@@ -45,121 +43,6 @@ void lam_segmentation_free(lam_segmentation *s)
     free(s->label);
     free(s->regions);
     free(s);
-}
-
-typedef struct classify_ctx {
-    const lam_image *img;
-    const lam_ladder *L;
-    const lam_segment_options *opt;
-    lam_segmentation *seg;
-    double inv_var[LAM_LADDER_MAX][3], lo[3], step[3];
-    float edge_threshold;
-    int failed;
-} classify_ctx;
-
-/* The table is filled lazily, one table per slice: only cells that pixels
- * visit are classified (a micrograph visits a few thousand of the 2 million). */
-static void classify_rows(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    (void)slice;
-    classify_ctx *cx = vctx;
-    const lam_ladder *L = cx->L;
-    uint8_t *lut = malloc((size_t)LUT_BINS * LUT_BINS * LUT_BINS);
-    if (!lut) {
-        cx->failed = 1;
-        return;
-    }
-    memset(lut, LUT_UNSET, (size_t)LUT_BINS * LUT_BINS * LUT_BINS);
-    size_t w = cx->img->width;
-    float inv[3], off[3];
-    for (int c = 0; c < 3; c++)
-        inv[c] = (float)(1.0 / cx->step[c]), off[c] = (float)cx->lo[c];
-    for (size_t p = begin * w; p < end * w; p++) {
-        int q[3];
-        for (int c = 0; c < 3; c++) {
-            float f = (cx->img->plane[c][p] - off[c]) * inv[c];
-            q[c] = f < 0 ? 0 : (f >= LUT_BINS ? LUT_BINS - 1 : (int)f);
-        }
-        uint8_t *cell = &lut[((size_t)q[0] * LUT_BINS + (size_t)q[1]) * LUT_BINS + (size_t)q[2]];
-        if (*cell == LUT_UNSET) {
-            double v[3];
-            for (int c = 0; c < 3; c++)
-                v[c] = cx->lo[c] + cx->step[c] * ((double)q[c] + 0.5);
-            double best = INFINITY;
-            size_t be = 0;
-            for (size_t e = 0; e < L->entries; e++) {
-                double d = 0;
-                for (int c = 0; c < 3; c++) {
-                    double t = v[c] - L->c[e][c];
-                    d += t * t * cx->inv_var[e][c];
-                }
-                if (d < best)
-                    best = d, be = e;
-            }
-            *cell = best > cx->opt->reject_chi2 ? LAM_CLASS_UNMODELLED
-                    : be == 0                   ? LAM_CLASS_SUBSTRATE
-                    : be <= L->max_layers       ? (uint8_t)be
-                                                : LAM_CLASS_THICK;
-        }
-        cx->seg->cls[p] = *cell;
-    }
-    free(lut);
-    size_t h = cx->img->height;
-    float thr = cx->edge_threshold;
-    for (size_t y = begin > 1 ? begin : 1; y < end && y + 1 < h; y++)
-        for (size_t x = 1; x + 1 < w; x++) {
-            size_t k = y * w + x;
-            for (int c = 0; c < 3; c++) {
-                const float *pl = cx->img->plane[c];
-                if (fabsf(pl[k + 1] - pl[k - 1]) > thr || fabsf(pl[k + w] - pl[k - w]) > thr) {
-                    cx->seg->cls[k] = LAM_CLASS_NONE;
-                    break;
-                }
-            }
-        }
-}
-
-lam_status lam_segment_classify(const lam_image *img, const lam_ladder *L, const double noise[3],
-                                const lam_segment_options *opt, lam_segmentation *seg,
-                                lam_error *err)
-{
-    if (L->entries < 2 || L->entries > LAM_LADDER_MAX)
-        return lam_error_set(err, LAM_EINTERNAL, "ladder of %zu entries", L->entries);
-    double lo[3], step[3];
-    for (int c = 0; c < 3; c++) {
-        double mn = 0, mx = 0;
-        for (size_t e = 0; e < L->entries; e++)
-            mn = fmin(mn, L->c[e][c]), mx = fmax(mx, L->c[e][c]);
-        lo[c] = mn - 0.15;
-        step[c] = (mx - mn + 0.3) / LUT_BINS;
-    }
-    classify_ctx cx;
-    memset(&cx, 0, sizeof cx);
-    cx.img = img;
-    cx.L = L;
-    cx.opt = opt;
-    cx.seg = seg;
-    for (size_t e = 0; e < L->entries; e++)
-        for (int c = 0; c < 3; c++) {
-            double f = opt->floor_abs + opt->floor_rel * fabs(L->c[e][c]), s = noise[c] / 2;
-            cx.inv_var[e][c] = 1.0 / (f * f + s * s);
-        }
-    for (int c = 0; c < 3; c++)
-        cx.lo[c] = lo[c], cx.step[c] = step[c];
-    /* transition pixels: where the contrast changes by more than half a
-     * monolayer step across two pixels (or 4 sigma of the denoised noise),
-     * the pixel mixes two classes; it belongs to no region */
-    double step1 = 0, nmax = 0;
-    for (int c = 0; c < 3; c++) {
-        step1 = fmax(step1, fabs(L->c[1][c]));
-        nmax = fmax(nmax, noise[c]);
-    }
-    cx.edge_threshold = (float)fmax(0.5 * step1, 4.0 * nmax / 3.0);
-    size_t threads = opt->threads ? opt->threads : 1;
-    lam_parallel_for(img->height, threads, classify_rows, &cx);
-    if (cx.failed)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the class table");
-    return LAM_OK;
 }
 
 static uint32_t find_root(uint32_t *parent, uint32_t a)

@@ -179,13 +179,22 @@ static void adjacent_pairs(const tile_stat *ts, size_t nx, size_t ny, const int 
             }
 }
 
+/* Entry N of the ladder over three channels (a channel beyond the
+ * ladder's own repeats its last). */
+static void ladder_entry(const lam_prediction *P, size_t N, double L[3])
+{
+    for (size_t k = 0; k < 3; k++)
+        L[k] = P->contrast[N][k < P->channels ? k : P->channels - 1];
+}
+
 /* Relative distance of a contrast vector to the ladder, scale free within
  * SCALE_LO..SCALE_HI, capped at 1. */
 static double ladder_distance(const double c[3], const lam_substrate_options *opt)
 {
     double best = 1;
-    for (size_t e = 0; e < opt->ladder_count; e++) {
-        const double *L = opt->ladder[e];
+    for (size_t e = 1; e <= opt->ladder->max_layers; e++) {
+        double L[3];
+        ladder_entry(opt->ladder, e, L);
         double cl = 0, ll = 0;
         for (int k = 0; k < 3; k++)
             cl += c[k] * L[k], ll += L[k] * L[k];
@@ -205,11 +214,12 @@ static size_t choose(const mode *md, size_t m, const mode_pairs *mp,
     size_t bi = 0;
     for (size_t k = 1; k < m; k++)
         bi = md[k].count > md[bi].count ? k : bi;
-    if (m <= 1 || !opt->ladder || opt->ladder_count == 0)
+    if (m <= 1 || !opt->ladder || opt->ladder->max_layers == 0)
         return bi;
-    double best = INFINITY, l1 = 0;
+    double best = INFINITY, l1 = 0, L1[3];
+    ladder_entry(opt->ladder, 1, L1);
     for (int k = 0; k < 3; k++)
-        l1 += opt->ladder[0][k] * opt->ladder[0][k];
+        l1 += L1[k] * L1[k];
     double same = SAME_FRACTION * SCALE_LO * sqrt(l1);
     for (size_t i = 0; i < m; i++) {
         double score = 0, weight = 0;

@@ -108,10 +108,15 @@ int main(void)
     /* a flake larger than any patch of bare substrate around it is still
      * not the substrate when the ladder says which is graphene */
     img = scene(0.005, 1);
-    const double ladder[3][3] = {{1 - FLAKE[0], 1 - FLAKE[1], 1 - FLAKE[2]},
-                                 {0.15, 0.23, 0.06}, {0.22, 0.33, 0.09}};
-    o.ladder = ladder;
-    o.ladder_count = 3;
+    static const double ladder[3][3] = {{1 - FLAKE[0], 1 - FLAKE[1], 1 - FLAKE[2]},
+                                        {0.15, 0.23, 0.06}, {0.22, 0.33, 0.09}};
+    static lam_prediction P; /* large: not on the stack */
+    memset(&P, 0, sizeof P);
+    P.channels = 3;
+    P.max_layers = 3;
+    for (size_t N = 1; N <= 3; N++)
+        memcpy(P.contrast[N], ladder[N - 1], sizeof ladder[0]);
+    o.ladder = &P;
     if (check_true(img != NULL, "big-flake scene made") &&
         check_int(lam_substrate_estimate(img, &o, &s, &err), LAM_OK, "substrate found (%s)",
                   err.message)) {

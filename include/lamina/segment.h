@@ -1,12 +1,11 @@
 /*
  * lamina/segment.h - pixel classes and connected regions of a contrast map.
  *
- * Each pixel's contrast vector (after a light 3x3 denoising) is compared
- * with the model's ladder (substrate, N = 1..K, thicker entries) using a
- * noise-aware distance: per channel variance (pixel noise / 2)^2 plus a
- * model floor (floor_abs + floor_rel * |C|)^2. The nearest entry wins; a
- * pixel whose best squared distance exceeds reject_chi2 is "unmodelled".
- * Classification goes through a 128^3 lookup table over the ladder's range.
+ * Regions are made without the model (lam_segment_uniform): pixels of
+ * uniform contrast join, transition pixels between them belong to none,
+ * and regions near zero contrast are the substrate; the model only labels
+ * them afterwards (lamina/infer.h), and once their layer counts are known
+ * the parts of one flake are joined (lam_segment_join).
  * Connected (4-neighbour) pixels of one class form a region; pixels at
  * least LAM_INTERIOR_DEPTH from its boundary and not saturated are its
  * interior, from which statistics are taken (edge pixels mix two classes).
@@ -21,21 +20,12 @@
 #include "lamina/error.h"
 #include "lamina/image.h"
 
-#define LAM_LADDER_MAX 64
 #define LAM_CLASS_SUBSTRATE 0
 #define LAM_CLASS_THICK 254
 #define LAM_CLASS_UNMODELLED 253
 #define LAM_CLASS_NONE 255
 
-typedef struct lam_ladder {
-    size_t entries;               /* entry 0 is the substrate */
-    size_t max_layers;            /* entries 1..max_layers are N layers; the rest "thick" */
-    double c[LAM_LADDER_MAX][3];
-} lam_ladder;
-
 typedef struct lam_segment_options {
-    double floor_abs, floor_rel; /* model floor, contrast units (0.005, 0.05) */
-    double reject_chi2;          /* unmodelled above this squared distance (25) */
     size_t min_region_px;        /* smaller regions are dropped (12) */
     size_t threads;              /* worker threads for the pixel passes (1) */
     double file_step[3];         /* the file's own colour steps in contrast units per
@@ -75,8 +65,8 @@ typedef struct lam_segmentation {
     lam_region_stats *regions;   /* ids 1..count at index id-1 */
 } lam_segmentation;
 
-/* Floor 0.005 + 5 %, reject above 25, regions of at least 12 px, one
- * thread, a lossless file (no coding steps). */
+/* Regions of at least 12 px, one thread, a lossless file (no coding
+ * steps), no bright scaling. */
 lam_segment_options lam_segment_options_default(void);
 
 /* A width x height segmentation with its class and label maps (zeroed);
@@ -85,11 +75,6 @@ lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation 
                                   lam_error *err);
 /* Release; s may be NULL. */
 void lam_segmentation_free(lam_segmentation *s);
-
-/* Classify every pixel against the ladder. noise[c]: relative pixel sigma. */
-lam_status lam_segment_classify(const lam_image *contrast, const lam_ladder *ladder,
-                                const double noise[3], const lam_segment_options *opt,
-                                lam_segmentation *seg, lam_error *err);
 
 /* Regions of uniform contrast, independent of the model (the analysis'
  * segmentation): transition pixels (a change of more than half the prior's

@@ -22,6 +22,7 @@
 #include <stddef.h>
 #include "lamina/error.h"
 #include "lamina/image.h"
+#include "lamina/model.h"
 
 #define LAM_SUBSTRATE_TERMS 7
 
@@ -30,8 +31,9 @@ typedef struct lam_substrate_options {
     int has_roi;          /* use roi as the substrate's seed */
     size_t roi[4];        /* x, y, w, h */
     size_t threads;       /* worker threads for the pixel passes (1) */
-    const double (*ladder)[3]; /* optional contrasts of N = 1.. layers: the substrate */
-    size_t ladder_count;       /* is the peak the others look like graphene against */
+    const lam_prediction *ladder; /* optional: N = 1..max_layers of the model's ladder; the
+                                   * substrate is the peak the others look like graphene
+                                   * against (channels beyond its own repeat its last) */
 } lam_substrate_options;
 
 typedef struct lam_substrate {
