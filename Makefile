@@ -118,16 +118,17 @@ $(BUILD)/tests/synth: tests/synth/synth_main.c $(SYNTH_OBJ) \
 # Tests link the harness, the generator and the library (Little CMS and
 # libtiff come with the library: the tests also use them to write their own
 # files and as an independent sRGB reference).
-# tests/robust/ scores the analysis on the generator's images.
+# tests/robust/ scores the analysis on the generator's images. The programs
+# write their dependencies to NAME-main.d: NAME.d is the object's.
 ROBUST_OBJ := $(BUILD)/tests/robust/robust.o $(BUILD)/tests/robust/crystals.o
 $(BUILD)/tests/robust/%.o: tests/robust/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ALL_CFLAGS) -c $< -o $@
 $(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+	$(CC) $(ALL_CFLAGS) -MF $@-main.d $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 # build/tests/robust/crystals: issue 14's hBN and TMD figures (make accuracy-crystals).
 $(BUILD)/tests/robust/crystals: tests/robust/crystals_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
-	$(CC) $(ALL_CFLAGS) $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
+	$(CC) $(ALL_CFLAGS) -MF $@-main.d $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 accuracy-crystals: $(BUILD)/tests/robust/crystals
 	$(BUILD)/tests/robust/crystals --scenes $${SCENES:-4} --log $(BUILD)/tests/crystals-wrong.log
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \

@@ -158,6 +158,10 @@ static lam_status load_stage(run *r, const char *path, lam_error *err)
     a->width = img->width;
     a->height = img->height;
     a->transfer = img->transfer;
+    if (!(a->um_per_px > 0) && img->um_per_px_file > 0) { /* the setup gives none */
+        a->um_per_px = img->um_per_px_file;
+        a->um_per_px_from_file = 1;
+    }
     a->bit_depth = img->bit_depth;
     a->clipped_pixels = img->clipped_count;
     a->display = img->display8; /* taken over, or NULL for 16-bit files */
@@ -442,6 +446,7 @@ static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
 {
     lam_analysis *a = r->a;
     const lam_estimate *rival = a->estimate->rival;
+    lam_segment_edge_areas(r->img, a->channels, a->seg); /* areas for the size flags */
     for (size_t i = 0; i < a->count; i++) {
         lam_region_result *res = &a->results[i], alt;
         lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);

@@ -317,7 +317,7 @@ static void label_markup(const lam_analysis *a, size_t i, char *out, size_t n)
     const lam_region_stats *s = &a->seg->regions[i];
     char area[64] = "";
     double u = a->um_per_px;
-    double ar = u > 0 ? (double)s->area * u * u : (double)s->area;
+    double ar = u > 0 ? lam_region_area(s) * u * u : lam_region_area(s);
     snprintf(area, sizeof area, " \u00b7 %.*f %s", ar < 10 ? 1 : 0, ar,
              u > 0 ? "\u00b5m\u00b2" : "px");
     int ci = colour_index(r);

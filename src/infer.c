@@ -340,7 +340,7 @@ static void geometry_flags(const lam_region_stats *s, const lam_infer_options *o
         o->flags |= LAM_FLAG_SATURATED;
     if (s->touches_border)
         o->flags |= LAM_FLAG_BORDER;
-    if ((double)s->area < opt->min_area_px)
+    if (lam_region_area(s) < opt->min_area_px)
         o->flags |= LAM_FLAG_SMALL;
 }
 

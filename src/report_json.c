@@ -50,6 +50,10 @@ static void add_image(cJSON *root, const lam_analysis *a)
     cJSON_AddNumberToObject(im, "bit_depth", a->bit_depth);
     cJSON_AddItemToObject(im, "um_per_px", a->um_per_px > 0 ? cJSON_CreateNumber(a->um_per_px)
                                                             : cJSON_CreateNull());
+    cJSON_AddItemToObject(im, "um_per_px_source",
+                          !(a->um_per_px > 0)     ? cJSON_CreateNull()
+                          : a->um_per_px_from_file ? cJSON_CreateString("file")
+                                                  : cJSON_CreateString("setup"));
     cJSON_AddNumberToObject(im, "saturated_pixels", (double)a->clipped_pixels);
 }
 
@@ -172,9 +176,9 @@ static void add_fermi(cJSON *o, const lam_fermi_estimate *f)
 static void add_geometry(cJSON *o, const lam_analysis *a, const lam_region_result *r,
                          const lam_region_stats *s)
 {
-    cJSON_AddNumberToObject(o, "area_px", (double)s->area);
+    cJSON_AddNumberToObject(o, "area_px", lam_region_area(s));
     double u2 = a->um_per_px * a->um_per_px;
-    cJSON_AddItemToObject(o, "area_um2", a->um_per_px > 0 ? cJSON_CreateNumber(round3((double)s->area * u2))
+    cJSON_AddItemToObject(o, "area_um2", a->um_per_px > 0 ? cJSON_CreateNumber(round3(lam_region_area(s) * u2))
                                                          : cJSON_CreateNull());
     double bb[4] = {(double)s->bbox[0], (double)s->bbox[1], (double)s->bbox[2], (double)s->bbox[3]};
     cJSON_AddItemToObject(o, "bbox", vec(bb, 4));
@@ -295,7 +299,7 @@ static void add_summary(cJSON *root, const lam_analysis *a)
         else
             unassigned++;
         if (r->layers == 1)
-            mono_px += (double)a->seg->regions[i].area;
+            mono_px += lam_region_area(&a->seg->regions[i]);
     }
     cJSON *sum = cJSON_AddObjectToObject(root, "summary");
     cJSON_AddNumberToObject(sum, "regions", (double)a->count);

@@ -229,7 +229,7 @@ static void geometry(const lam_region_stats *s, const lam_infer_options *io,
         r->flags |= LAM_FLAG_SATURATED;
     if (s->touches_border)
         r->flags |= LAM_FLAG_BORDER;
-    if ((double)s->area < io->min_area_px)
+    if (lam_region_area(s) < io->min_area_px)
         r->flags |= LAM_FLAG_SMALL;
 }
 
@@ -353,6 +353,7 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
     for (size_t i = 0; i < a->count; i++)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
+    lam_segment_edge_areas(contrast, a->channels, a->seg);
     return LAM_OK;
 }
 
@@ -423,6 +424,8 @@ lam_status lam_thickness_analyze(lam_analysis *a, const lam_image *contrast, con
         x.sd_width[c] = a->estimate->shared[LAM_NU_WIDTH + c].prior_sd;
     }
     x.sd_na = a->estimate->shared[LAM_NU_NA].prior_sd;
+    if (contrast)
+        lam_segment_edge_areas(contrast, a->channels, a->seg); /* areas for the size flags */
     free(a->thickness);
     a->thickness = calloc(a->count ? a->count : 1, sizeof *a->thickness);
     if (!a->thickness)

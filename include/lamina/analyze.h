@@ -81,7 +81,9 @@ typedef struct lam_analysis {
     lam_transfer transfer;
     int transfer_from_file;         /* the curve came from the file's colour metadata */
     int bit_depth;
-    double um_per_px;               /* 0 unknown */
+    double um_per_px;               /* 0 unknown: the setup's, else the file's (TIFF
+                                     * resolution tags) */
+    int um_per_px_from_file;        /* the pixel size came from the file */
     size_t clipped_pixels;
     lam_substrate substrate;
     lam_segmentation *seg;

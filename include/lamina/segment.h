@@ -50,6 +50,8 @@ typedef struct lam_region_stats {
     uint32_t id;
     uint8_t cls;
     size_t area, interior, clipped;
+    size_t edge;                 /* transition pixels nearer its contrast than any other
+                                  * side's (lam_segment_edge_areas); 0 until then */
     unsigned depth_max;          /* the deepest pixel's distance to the boundary (inradius) */
     size_t bbox[4];              /* x0, y0, x1, y1 inclusive */
     double sx, sy;               /* coordinate sums for the centroid */
@@ -118,6 +120,17 @@ lam_status lam_segment_join(const lam_image *contrast, size_t channels, const in
  * for label maps, whose classes are given). */
 lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err);
+
+/* Give each transition pixel (in no region, not substrate) to the side
+ * within 4 px - a region, or the substrate at zero contrast - whose mean
+ * interior contrast it is nearest: the half-contrast edge of a blurred
+ * step. Sets every region's edge count; the band is a fixed number of
+ * pixels wide, so without it a flake's area would depend on the
+ * magnification. */
+void lam_segment_edge_areas(const lam_image *contrast, size_t channels, lam_segmentation *seg);
+
+/* A region's area in pixels up to its half-contrast edge: area + edge. */
+double lam_region_area(const lam_region_stats *r);
 
 /* Largest axis-aligned rectangle of interior pixels of region 'id'. */
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r,
