@@ -193,6 +193,7 @@ static lam_status new_estimate(run *r, double half_nm, double oxide_sd, lam_esti
     lam_analysis *a = r->a;
     lam_estimate_options eo = r->opt->estimate;
     eo.max_layers = r->opt->max_layers;
+    eo.threads = r->threads;
     if (isfinite(half_nm))
         eo.search_half_nm = half_nm;
     lam_status st = lam_estimate_alloc(r->setup, lam_model_channels(r->model), &eo, out, err);

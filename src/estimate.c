@@ -33,7 +33,7 @@
 
 lam_estimate_options lam_estimate_options_default(void)
 {
-    lam_estimate_options o = {6, 60.0, 2.0, 0.003, 0.03, 1, 30};
+    lam_estimate_options o = {6, 60.0, 2.0, 0.003, 0.03, 1, 30, 1};
     return o;
 }
 
@@ -313,12 +313,15 @@ lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick
 
 double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc)
 {
-    double s = 0;
+    /* one logarithm of the product of the variances, not one per channel:
+     * this is the innermost call of the fit's starting grid */
+    double s = 0, prod = 1;
     for (size_t c = 0; c < nc; c++) {
         double d = m[c] - mu[c];
-        s += d * d / var[c] + log(2 * M_PI * var[c]);
+        s += d * d / var[c];
+        prod *= 2 * M_PI * var[c];
     }
-    return -0.5 * s;
+    return -0.5 * (s + log(prod));
 }
 
 double lam__logsumexp(const double *x, size_t n)
@@ -347,7 +350,7 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
     size_t K = e->max_layers, top = ladder->max_layers, nc = e->channels;
     if (top <= K)
         return -INFINITY;
-    double s = 0;
+    double s = 0, span = 1;
     for (size_t c = 0; c < nc; c++) {
         double lo = INFINITY, hi = -INFINITY;
         for (size_t N = K + 1; N <= top; N++) {
@@ -357,9 +360,10 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
         double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, hi));
         lo -= 3 * f, hi += 3 * f;
         double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
-        s += -log(hi - lo) - 0.5 * (out / f) * (out / f);
+        s -= 0.5 * (out / f) * (out / f);
+        span *= hi - lo;
     }
-    return s;
+    return s - log(span);
 }
 
 /* log( prior x likelihood ) of every hypothesis of a region while fitting:
@@ -370,10 +374,13 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
     double var[LAM_MAX_CHANNELS];
+    /* the priors of 1..K are equal (lam_hypothesis_prior): two logarithms */
+    const double lp_substrate = log(lam_hypothesis_prior(0, K));
+    const double lp_layers = log(lam_hypothesis_prior(1, K));
     for (size_t h = 0; h <= K && h <= top; h++) {
         for (size_t c = 0; c < nc; c++)
             var[c] = r->var[c] + lam_estimate_floor_var(e, c, ladder->contrast[h][c]);
-        lt[h] = log(lam_hypothesis_prior(h, K)) +
+        lt[h] = (h ? lp_layers : lp_substrate) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
     lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, ladder);

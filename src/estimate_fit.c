@@ -104,12 +104,17 @@ lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model
 
 /* ---- the objective ---- */
 
-static double prior_term(const lam_nuisance *n)
+double lam__prior_at(const lam_nuisance *n, double v)
 {
     if (!n->fitted)
         return 0;
-    double z = (n->value - n->prior_mean) / n->prior_sd;
+    double z = (v - n->prior_mean) / n->prior_sd;
     return -0.5 * z * z;
+}
+
+static double prior_term(const lam_nuisance *n)
+{
+    return lam__prior_at(n, n->value);
 }
 
 /* The floor's log-normal priors (the floor is part of what a start
@@ -148,19 +153,35 @@ lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, 
 double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                           double *resp)
 {
+    return lam__image_logpost_with(e, j, ladder, prior_term(&e->image[j].oxide), resp);
+}
+
+double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                               double oxide_prior, double *resp)
+{
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
-    double lt[LAM_MODEL_MAX_LAYERS + 3], total = prior_term(&im->oxide);
+    double lt[LAM_MODEL_MAX_LAYERS + 3], total = oxide_prior;
     for (size_t i = 0; i < im->count; i++) {
         const lam_est_region *r = &im->regions[i];
         if (!r->use)
             continue;
         lam__region_logterms(e, r, ladder, lt);
-        double z = lam__logsumexp(lt, H);
-        total += z;
+        double top = -INFINITY, sum = 0;
+        for (size_t h = 0; h < H; h++)
+            top = fmax(top, lt[h]);
+        if (!isfinite(top)) { /* as lam__logsumexp: no hypothesis at all */
+            total += top;
+            for (size_t h = 0; resp && h < H; h++)
+                resp[i * H + h] = 0;
+            continue;
+        }
+        for (size_t h = 0; h < H; h++) /* each exponential once: the sum and the shares */
+            sum += (lt[h] = exp(lt[h] - top));
+        total += top + log(sum);
         if (resp)
             for (size_t h = 0; h < H; h++)
-                resp[i * H + h] = exp(lt[h] - z);
+                resp[i * H + h] = lt[h] / sum;
     }
     return total;
 }

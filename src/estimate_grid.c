@@ -18,6 +18,7 @@
  * next local maxima. */
 #include "estimate_internal.h"
 #include "linalg_internal.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -98,17 +99,18 @@ static double channel_factor(const lam_estimate *e, const lam_est_image *im, con
     return fmin(fmax(exp(x), FACTOR_MIN), FACTOR_MAX);
 }
 
-/* The score of one cell: ladder P scaled by s, channel factors profiled.
- * Q and resp are scratch; the factors are returned in f. */
-static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *P, double s,
-                         lam_prediction *Q, double *resp, double *f)
+/* The score of one cell: ladder P (at an oxide whose prior term is
+ * ox_prior) scaled by s, channel factors profiled. Q and resp are scratch;
+ * the factors are returned in f. */
+static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *P,
+                         double ox_prior, double s, lam_prediction *Q, double *resp, double *f)
 {
     const lam_est_image *im = &e->image[j];
     double zs = log(s) / SCALE_PRIOR_SD_LOG;
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
         f[c] = 1;
     scaled(P, s, Q);
-    double score = lam__image_logpost(e, j, Q, resp);
+    double score = lam__image_logpost_with(e, j, Q, ox_prior, resp);
     for (int round = 0; round < FACTOR_ROUNDS; round++) {
         double prior = 0;
         for (size_t c = 0; c < P->channels; c++) {
@@ -119,13 +121,54 @@ static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *
             double sd = factor_sd(e, c), z = sd > 0 ? log(f[c]) / sd : 0;
             prior -= 0.5 * z * z;
         }
-        score = lam__image_logpost(e, j, Q, resp) + prior;
+        score = lam__image_logpost_with(e, j, Q, ox_prior, resp) + prior;
     }
     return score - 0.5 * zs * zs;
 }
 
-static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_prediction *P,
-                            grid *g, lam_error *err)
+/* The cells of one image's grid, scored on several threads: the ladders
+ * of every oxide step are made first (the model is not shared across
+ * threads), then each slice scores its cells with scratch of its own. */
+typedef struct grid_job {
+    const lam_estimate *e;
+    size_t j, count, H;
+    const lam_prediction *ladder; /* per oxide step */
+    grid *g;
+    lam_prediction *Q;            /* per slice */
+    double *resp;                 /* per slice: count x H */
+} grid_job;
+
+static void score_cells(size_t begin, size_t end, size_t slice, void *ctx)
+{
+    grid_job *x = ctx;
+    const lam_nuisance *ox = &x->e->image[x->j].oxide;
+    for (size_t cell = begin; cell < end; cell++) {
+        size_t d = cell / SCALE_STEPS;
+        double f[LAM_MAX_CHANNELS], oxide = x->g->lo + x->g->step * (double)d;
+        x->g->score[cell] = cell_score(x->e, x->j, &x->ladder[d], lam__prior_at(ox, oxide),
+                                       scale_at((int)(cell % SCALE_STEPS)), &x->Q[slice],
+                                       x->resp + slice * x->count * x->H, f);
+        for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+            x->g->factor[cell * LAM_MAX_CHANNELS + c] = (float)f[c];
+    }
+}
+
+/* The ladder at every oxide step of the grid; the image's oxide is left
+ * at the last step, as the grid's scan always left it. */
+static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, const grid *g,
+                               lam_prediction *L, lam_error *err)
+{
+    lam_est_image *im = &e->image[j];
+    lam_status st = LAM_OK;
+    for (size_t d = 0; d < g->n && !st; d++) {
+        im->oxide.value = g->lo + g->step * (double)d;
+        st = lam__image_ladder(e, j, model, GRID_LAYERS, &L[d], err);
+    }
+    return st;
+}
+
+static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g,
+                            lam_error *err)
 {
     lam_est_image *im = &e->image[j];
     double half = e->opt.search_half_nm;
@@ -135,26 +178,24 @@ static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, lam_pre
     g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
     if (!im->oxide.fitted)
         g->lo = im->oxide.value;
-    size_t H = e->max_layers + 3;
-    g->score = malloc(g->n * SCALE_STEPS * sizeof *g->score);
-    g->factor = malloc(g->n * SCALE_STEPS * LAM_MAX_CHANNELS * sizeof *g->factor);
-    double *resp = malloc((im->count ? im->count : 1) * H * sizeof *resp);
-    lam_status st = g->score && g->factor && resp
+    size_t threads = e->opt.threads ? e->opt.threads : 1, cells = g->n * SCALE_STEPS;
+    threads = threads < cells ? threads : cells;
+    grid_job x = {e, j, im->count ? im->count : 1, e->max_layers + 3, NULL, g, NULL, NULL};
+    lam_prediction *L = malloc(g->n * sizeof *L);
+    x.Q = malloc(threads * sizeof *x.Q);
+    x.resp = malloc(threads * x.count * x.H * sizeof *x.resp);
+    g->score = malloc(cells * sizeof *g->score);
+    g->factor = malloc(cells * LAM_MAX_CHANNELS * sizeof *g->factor);
+    lam_status st = g->score && g->factor && L && x.Q && x.resp
                         ? LAM_OK
                         : lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
-    for (size_t d = 0; d < g->n && !st; d++) {
-        im->oxide.value = g->lo + g->step * (double)d;
-        if ((st = lam__image_ladder(e, j, model, GRID_LAYERS, P, err)))
-            break;
-        for (int k = 0; k < SCALE_STEPS; k++) {
-            double f[LAM_MAX_CHANNELS];
-            size_t cell = d * SCALE_STEPS + (size_t)k;
-            g->score[cell] = cell_score(e, j, P, scale_at(k), P + 1, resp, f);
-            for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
-                g->factor[cell * LAM_MAX_CHANNELS + c] = (float)f[c];
-        }
+    if (!st && !(st = grid_ladders(e, j, model, g, L, err))) {
+        x.ladder = L;
+        lam_parallel_for(cells, threads, score_cells, &x);
     }
-    free(resp);
+    free(L);
+    free(x.Q);
+    free(x.resp);
     return st;
 }
 
@@ -290,11 +331,10 @@ static void start_pooled(lam_estimate *e, const grid *g)
 
 lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err)
 {
-    lam_prediction *P = malloc(2 * sizeof *P);
     grid *g = calloc(e->images ? e->images : 1, sizeof *g);
-    lam_status st = P && g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
+    lam_status st = g ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid");
     for (size_t j = 0; j < e->images && !st; j++)
-        if (!(st = fill_grid(e, j, model, P, &g[j], err)))
+        if (!(st = fill_grid(e, j, model, &g[j], err)))
             pick_cells(&e->image[j], &g[j]);
     if (!st && e->images == 1) {
         e->start_scale = e->image[0].grid_scale;
@@ -307,6 +347,5 @@ lam_status lam__estimate_grids(lam_estimate *e, lam_model *model, lam_error *err
         free(g[j].factor);
     }
     free(g);
-    free(P);
     return st;
 }

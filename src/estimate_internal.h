@@ -36,6 +36,12 @@ lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, 
  * ladder; fills responsibilities (count x (K + 3)) when resp is given. */
 double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                           double *resp);
+/* The same with the oxide prior's term given (the grid scores oxides other
+ * than the image's current value, on several threads at once). */
+double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
+                               double oxide_prior, double *resp);
+/* The log prior of a nuisance at value v (0 when it is not fitted). */
+double lam__prior_at(const lam_nuisance *n, double v);
 
 /* The starting grid of every image (estimate_grid.c): sets each image's
  * oxide, grid_scale, grid_factor, the alternatives, and the shared

@@ -113,6 +113,8 @@ typedef struct lam_estimate_options {
     double floor_abs, floor_rel;   /* starting model floor (0.003, 0.03) */
     int estimate_floor;            /* re-estimate floor_rel from residuals (1) */
     size_t max_iterations;         /* EM / Gauss-Newton iterations (30) */
+    size_t threads;                /* threads for the starting grid (1); the result
+                                    * does not depend on it */
 } lam_estimate_options;
 
 typedef struct lam_estimate {
