@@ -2,6 +2,7 @@
  * the check helpers, the enum name tables with their suggestions, the
  * edit distance, and the monotonic clock. */
 #include "check.h"
+#include "lamina/analyze.h"
 #include "lamina/clock.h"
 #include "lamina/colour.h"
 #include "lamina/error.h"
@@ -116,6 +117,17 @@ static void test_parse_lists(void)
     check_int(lam_substrate_roi_parse(&so, "--roi", "1.5,2,3,4", &err), LAM_ERANGE,
               "fractional pixels");
     check_true(!so.has_roi, "a refused ROI leaves the options alone");
+    lam_analysis_options ao = lam_analysis_options_default();
+    check_int(lam_analysis_options_set(&ao, "min-area", "25", &err), LAM_OK, "--min-area 25");
+    check_true(ao.min_area_um2 == 25 && ao.min_area_px == 25, "both area limits set");
+    check_int(lam_analysis_options_set(&ao, "max-megapixels", "12", &err), LAM_OK, "12 MP");
+    check_int((long long)ao.load.max_pixels, 12000000, "12 MP as pixels");
+    check_int(lam_analysis_options_set(&ao, "encoding", "linear", &err), LAM_OK, "linear");
+    check_int(lam_analysis_options_set(&ao, "encoding", "purple", &err), LAM_ERANGE,
+              "an unknown curve");
+    check_int(lam_analysis_options_set(&ao, "substrate-roi", "0,0,64,64", &err), LAM_OK, "ROI");
+    check_true(ao.substrate.has_roi && ao.substrate.roi[2] == 64, "the ROI in the options");
+    check_int(lam_analysis_options_set(&ao, "min-aera", "5", &err), LAM_EINVAL, "unknown name");
 }
 
 static void test_names(void)

@@ -115,6 +115,14 @@ typedef struct lam_analysis {
  * Fermi level fitted, all cores, the setup's own priors. */
 lam_analysis_options lam_analysis_options_default(void);
 
+/* Set an option from text by its command-line name: "min-area" (um^2, or
+ * px without a pixel size: both limits), "max-megapixels", "encoding"
+ * (srgb, linear or a gamma value) or "substrate-roi" (X,Y,W,H). LAM_ERANGE
+ * with a message naming the option for a bad value, LAM_EINVAL for an
+ * unknown name; o is unchanged on failure. */
+lam_status lam_analysis_options_set(lam_analysis_options *o, const char *name, const char *text,
+                                    lam_error *err);
+
 /* Analyse one image with a setup (docs/method.md): on success *out is a
  * new analysis the caller frees with lam_analysis_free, its warnings in
  * (*out)->warnings. Errors name the file (err->file) and the problem: an

@@ -86,6 +86,7 @@ typedef struct lam_thickness_options {
     size_t scale_fine;        /* ... interpolated to this many for the integral (41) */
 } lam_thickness_options;
 
+/* The defaults given in brackets above. */
 lam_thickness_options lam_thickness_options_default(void);
 
 /* Does the setup's flake material call for this module (a continuous

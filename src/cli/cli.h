@@ -29,6 +29,7 @@ typedef enum cli_kind {
     CLI_NUMBER,     /* *(double *)target, finite, in [lo, hi] */
     CLI_SIZE,       /* *(size_t *)target, in [lo, hi] (lo >= 0) */
     CLI_RANGE,      /* "A-B": *(double (*)[2])target, lo <= A <= B <= hi */
+    CLI_ANALYSIS,   /* lam_analysis_options_set(target, name, argument) */
     CLI_STAGE,      /* lam_stage_set(target, name without "stage-", argument) */
     CLI_CALL        /* call(command, argument, target): 0, or -1 after a usage error */
 } cli_kind;
@@ -76,30 +77,21 @@ int cli_options_parse(const cli_command *c, int argc, char **argv);
  * ("  --name ARG   help" aligned at column 24), then the footer. */
 void cli_help(FILE *out, const cli_command *c);
 
-/* CLI_CALL parsers shared by several commands: --encoding (target a
- * lam_transfer), --max-megapixels (target a size_t of pixels),
- * --substrate-roi (target a lam_substrate_options), --min-area (target a
- * lam_analysis_options: both area limits). */
-int cli_parse_encoding(const char *command, const char *arg, void *target);
-int cli_parse_megapixels(const char *command, const char *arg, void *target);
-int cli_parse_roi(const char *command, const char *arg, void *target);
-int cli_parse_min_area(const char *command, const char *arg, void *target);
-
 /* Rows of a table for the commands that analyse images (analyze, watch):
  * the analysis options O (a lam_analysis_options). */
 #define CLI_ANALYSIS_OPTIONS(O)                                                                  \
     {"max-layers", 0, CLI_SIZE, &(O).max_layers, 1, 20, NULL, "K",                               \
      "layer counts modelled (default 6; thicker = \"thick\")"},                                  \
-    {"min-area", 0, CLI_CALL, &(O), 0, 0, cli_parse_min_area, "A",                               \
+    {"min-area", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "A",                                         \
      "regions below A um^2 (or px without a pixel size) are 'small'"},                          \
-    {"substrate-roi", 0, CLI_CALL, &(O).substrate, 0, 0, cli_parse_roi, "X,Y,W,H",               \
+    {"substrate-roi", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "X,Y,W,H",                              \
      "where the bare substrate is, if not found automatically"},                                \
     {"oxide-tolerance", 0, CLI_NUMBER, &(O).oxide_tolerance_nm, 0, 500, NULL, "NM",              \
      "pass/fail of the oxide check (default 10)"},                                              \
     {"no-oxide-fit", 0, CLI_UNSET, &(O).fit_oxide, 0, 0, NULL, NULL, "keep the nominal oxide"}, \
-    {"encoding", 0, CLI_CALL, &(O).load.transfer, 0, 0, cli_parse_encoding, "E",                 \
+    {"encoding", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "E",                                         \
      "srgb, linear or a gamma value (default: from the file)"},                                 \
-    {"max-megapixels", 0, CLI_CALL, &(O).load.max_pixels, 0, 0, cli_parse_megapixels, "MP",      \
+    {"max-megapixels", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "MP",                                  \
      "refuse larger images"}
 
 /* The help of the shared options (their table is in options.c). */

@@ -2,23 +2,23 @@
  * depth, transfer curve, saturation, linear mean per channel), to check
  * exposure before an analysis. */
 #include "cli.h"
+#include "lamina/analyze.h"
 #include "lamina/image.h"
 #include "lamina/summary.h"
 
 #include <stdlib.h>
 
-static lam_load_options opt;
+static lam_analysis_options opt; /* only its loading options are used */
 
 static const cli_option inspect_options[] = {
-    {"encoding", 0, CLI_CALL, &opt.transfer, 0, 0, cli_parse_encoding, "E",
+    {"encoding", 0, CLI_ANALYSIS, &opt, 0, 0, NULL, "E",
      "srgb, linear or a gamma value (default: from the file)"},
-    {"max-megapixels", 0, CLI_CALL, &opt.max_pixels, 0, 0, cli_parse_megapixels, "MP",
-     "refuse larger images"},
+    {"max-megapixels", 0, CLI_ANALYSIS, &opt, 0, 0, NULL, "MP", "refuse larger images"},
     CLI_END};
 
 static int run_inspect(int argc, char **argv)
 {
-    opt = lam_load_options_default();
+    opt = lam_analysis_options_default();
     if (cli_options_parse(&cli_inspect, argc, argv))
         return CLI_EUSAGE;
     int rc = CLI_OK;
@@ -27,7 +27,7 @@ static int run_inspect(int argc, char **argv)
         char *text = NULL;
         lam_error err;
         lam_error_clear(&err);
-        if (lam_image_load(argv[i], &opt, &img, &err) ||
+        if (lam_image_load(argv[i], &opt.load, &img, &err) ||
             lam_summary_image(argv[i], img, &text, &err))
             rc = cli_report(&err, argv[i]);
         else

@@ -27,29 +27,23 @@
     {"stage-rotation", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL},                      \
     {"stage-origin", 0, CLI_STAGE, (S), 0, 0, NULL, NULL, NULL}
 
-static int set_stage(const char *command, const cli_option *op, const char *arg)
+/* A library status as an option's result: 0, or -1 after printing the
+ * library's message as a usage error (prefixed with the option's name
+ * when the message lacks it). */
+static int usage_of(const char *command, lam_status st, const lam_error *err, const char *prefix)
 {
-    lam_error err;
-    lam_error_clear(&err);
-    if (!lam_stage_set(op->target, op->name + strlen("stage-"), arg, &err))
+    if (!st)
         return 0;
-    cli_usage_error(command, "--%s: %s", op->name, err.message);
+    cli_usage_error(command, "%s%s%s", prefix ? prefix : "", prefix ? ": " : "", err->message);
     return -1;
-}
-
-static int set_range(const char *command, const cli_option *op, const char *name,
-                     const char *arg)
-{
-    lam_error err;
-    if (!lam_parse_range(&err, name, arg, op->lo, op->hi, op->target))
-        return 0;
-    return cli_usage_error(command, "%s", err.message), -1;
 }
 
 static int apply(const char *command, const cli_option *op, const char *arg)
 {
     char name[64];
     long v;
+    lam_error err;
+    lam_error_clear(&err);
     snprintf(name, sizeof name, "--%s", op->name);
     switch (op->kind) {
     case CLI_FLAG: *(int *)op->target = 1; return 0;
@@ -61,8 +55,15 @@ static int apply(const char *command, const cli_option *op, const char *arg)
             return -1;
         *(size_t *)op->target = (size_t)v;
         return 0;
-    case CLI_RANGE: return set_range(command, op, name, arg);
-    case CLI_STAGE: return set_stage(command, op, arg);
+    case CLI_RANGE:
+        return usage_of(command, lam_parse_range(&err, name, arg, op->lo, op->hi, op->target),
+                        &err, NULL);
+    case CLI_ANALYSIS:
+        return usage_of(command, lam_analysis_options_set(op->target, op->name, arg, &err), &err,
+                        NULL);
+    case CLI_STAGE: /* the stage's messages do not name the option */
+        return usage_of(command, lam_stage_set(op->target, op->name + strlen("stage-"), arg, &err),
+                        &err, name);
     default: return op->call(command, arg, op->target);
     }
 }
@@ -183,38 +184,4 @@ void cli_help(FILE *out, const cli_command *c)
         fputs(CLI_STAGE_HELP, out);
     if (c->footer)
         fputs(c->footer, out);
-}
-
-int cli_parse_encoding(const char *command, const char *arg, void *target)
-{
-    if (lam_transfer_parse(arg, target))
-        return cli_usage_error(command, "--encoding: expected srgb, linear or a gamma value"), -1;
-    return 0;
-}
-
-int cli_parse_megapixels(const char *command, const char *arg, void *target)
-{
-    double mp;
-    if (cli_parse_double(command, "--max-megapixels", arg, 0.001, 10000, &mp))
-        return -1;
-    *(size_t *)target = (size_t)(mp * 1e6);
-    return 0;
-}
-
-int cli_parse_roi(const char *command, const char *text, void *target)
-{
-    lam_error err;
-    if (lam_substrate_roi_parse(target, "--substrate-roi", text, &err))
-        return cli_usage_error(command, "%s", err.message), -1;
-    return 0;
-}
-
-int cli_parse_min_area(const char *command, const char *arg, void *target)
-{
-    lam_analysis_options *opt = target;
-    double a;
-    if (cli_parse_double(command, "--min-area", arg, 0, 1e9, &a))
-        return -1;
-    opt->min_area_um2 = opt->min_area_px = a;
-    return 0;
 }
