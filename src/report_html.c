@@ -106,7 +106,8 @@ static const char script[] =
     "if(num){a=a===''?Infinity:parseFloat(a);c=c===''?Infinity:parseFloat(c);return asc?a-c:c-a;}"
     "return asc?a.localeCompare(c):c.localeCompare(a);});"
     "rows.forEach(function(r){b.appendChild(r);});});})(i);"
-    "document.getElementById('status').textContent=t.tBodies[0].rows.length+' candidates';}"
+    "document.getElementById('status').textContent="
+    "t.tBodies[0].rows.length+' candidates listed below, sortable';}"
     "document.documentElement.setAttribute('data-ready','1');})();";
 
 static void counts(const lam_catalog *c, size_t by[8])

@@ -30,7 +30,7 @@ timeout 90 "$BROWSER" --headless --no-sandbox --disable-gpu --enable-logging=std
     --virtual-time-budget=5000 --dump-dom "file://$R" > "$T/dom.html" 2> "$T/console.txt"
 grep -q 'data-ready="1"' "$T/dom.html" && ok || bad "the page's script did not run to its end"
 grep -Ei 'Uncaught|SyntaxError|TypeError|ReferenceError' "$T/console.txt" && bad "script errors in the console" || ok
-grep -q '[0-9][0-9]* candidates</span>' "$T/dom.html" && ok || bad "the script's candidate count"
+grep -q '[0-9][0-9]* candidates listed below, sortable</span>' "$T/dom.html" && ok || bad "the script's candidate count"
 # every candidate of the catalogue is a row (image, region) of the table
 n=0; missing=0
 tail -n +2 "$T/out/goto.csv" | while IFS=, read -r rank image region rest; do
