@@ -779,6 +779,44 @@ static void mode_set_free(mode_set *m)
     free(m->sig_now);
 }
 
+/* A rescaled start read the other way: from the parameters alone, EM's
+ * first responsibilities put the regions on "unmodelled" and the step goes
+ * to the priors' centre, never reaching the other reading. When the
+ * camera's curves are not given (where N and 2N readings compete: an
+ * unknown dye camera near 300 nm), every
+ * informing region whose count h in the best reading maps to a whole count
+ * h / ratio (ratio 2: halved counts, the contrast scale doubled; 0.5:
+ * doubled counts) carries that count as a label while the fit settles;
+ * then the labels are released and the fit settles again. Labels a region
+ * already has (calibration) stay. */
+static lam_status settle_seeded(fit_ctx *f, const uint8_t *sig, double ratio, double *lp,
+                                lam_error *err)
+{
+    lam_estimate *e = f->e;
+    size_t K = e->max_layers, k = 0, seeded = 0;
+    int *saved = malloc((total_regions(e) ? total_regions(e) : 1) * sizeof *saved);
+    if (!saved)
+        return lam_error_set(err, LAM_ENOMEM, "cannot seed a start");
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t i = 0; i < e->image[j].count; i++, k++) {
+            lam_est_region *r = &e->image[j].regions[i];
+            double q = sig[k] == 255 ? 0 : (double)sig[k] / ratio;
+            saved[k] = r->known_layers;
+            if (saved[k] <= 0 && sig[k] >= 1 && sig[k] <= K && q >= 1 && q <= (double)K &&
+                q == floor(q)) {
+                r->known_layers = (int)q;
+                seeded++;
+            }
+        }
+    lam_status st = seeded ? settle(f, lp, err) : LAM_OK;
+    k = 0;
+    for (size_t j = 0; j < e->images; j++)
+        for (size_t i = 0; i < e->image[j].count; i++, k++)
+            e->image[j].regions[i].known_layers = saved[k];
+    free(saved);
+    return st ? st : settle(f, lp, err);
+}
+
 static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
@@ -794,8 +832,12 @@ static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error
         for (int k = 0; k < LAM_NU_COUNT; k++)
             e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
         apply_start(e, &sp[i]);
-        double lp;
-        if (!(st = settle(f, &lp, err)))
+        double lp, ratio = sp[i].alt == START_DOUBLED ? 2.0 : 0.5;
+        if (sp[i].alt < 0 && lam__curves_unknown(e))
+            st = settle_seeded(f, m->sig_best, ratio, &lp, err);
+        else
+            st = settle(f, &lp, err);
+        if (!st)
             consider(f, m, lp);
     }
     if (!st) {

@@ -68,6 +68,11 @@ static double factor_sd(const lam_estimate *e, size_t c)
     return g->prior_sd < 0.5 * DEFAULT_GAIN_SD ? GIVEN_FACTOR_SD_LOG : FACTOR_PRIOR_SD_LOG;
 }
 
+int lam__curves_unknown(const lam_estimate *e)
+{
+    return e->channels >= 2 && factor_sd(e, 0) == FACTOR_PRIOR_SD_LOG;
+}
+
 /* One channel's factor f for ladder Q: weighted least squares of the
  * regions' means on f x Q over the layer hypotheses (responsibilities
  * resp), shrunk in log f towards 0 by the prior. */

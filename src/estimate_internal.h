@@ -40,6 +40,10 @@ double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction 
  * than the image's current value, on several threads at once). */
 double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                                double oxide_prior, double *resp);
+/* Colour channels whose curves the setup does not give (the gains keep
+ * their wide default prior): contrast shape alone must tell N from 2N. */
+int lam__curves_unknown(const lam_estimate *e);
+
 /* The log prior of a nuisance at value v (0 when it is not fitted). */
 double lam__prior_at(const lam_nuisance *n, double v);
 

@@ -54,9 +54,21 @@ static void score_fermi(const synth_object *ob, const lam_region_result *r, robu
     }
 }
 
+/* A warning that tells the reader not to trust the counts as they stand. */
+static int doubted(const lam_analysis *a)
+{
+    static const char *const codes[] = {"poor-fit", "two-readings", "oxide-off-nominal",
+                                        "monochrome"};
+    for (size_t k = 0; k < sizeof codes / sizeof codes[0]; k++)
+        if (lam_warnings_find(&a->warnings, codes[k]))
+            return 1;
+    return 0;
+}
+
 static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_tally *t,
                          FILE *log, const char *name)
 {
+    int doubt = doubted(a);
     for (int o = 0; o < sc->nobj; o++) {
         const synth_object *ob = &sc->obj[o];
         if ((ob->kind != SYNTH_OBJ_FLAKE && ob->kind != SYNTH_OBJ_FOLD) || ob->layers > 3 ||
@@ -78,10 +90,13 @@ static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_ta
         if (r && r->layers > 0 && r->p_label >= 0.95) {
             t->confident++;
             t->confident_right += ok;
+            t->warned += doubt;
+            t->warned_right += doubt && ok;
         }
         if (!ok && log)
-            fprintf(log, "%s: %dL flake (%ld px) found %s (p %.3f)\n", name, ob->layers,
-                    ob->area_px, r ? r->label : "nothing", r ? r->p_label : 0.0);
+            fprintf(log, "%s: %dL flake (%ld px) found %s (p %.3f)%s\n", name, ob->layers,
+                    ob->area_px, r ? r->label : "nothing", r ? r->p_label : 0.0,
+                    doubt ? " [warned]" : "");
     }
 }
 
@@ -243,6 +258,8 @@ void robust_add(robust_tally *into, const robust_tally *t)
     }
     into->confident += t->confident;
     into->confident_right += t->confident_right;
+    into->warned += t->warned;
+    into->warned_right += t->warned_right;
     into->images += t->images;
     into->oxide_n += t->oxide_n;
     into->oxide_within_3 += t->oxide_within_3;
@@ -263,12 +280,13 @@ static double pct(size_t a, size_t b)
 
 void robust_print(FILE *f, const char *label, const robust_tally *t)
 {
+    size_t quiet = t->confident - t->warned, quiet_right = t->confident_right - t->warned_right;
     fprintf(f, "%-34s %4zu img  1-3L %5.1f %% (%zu/%zu: 1L %.1f 2L %.1f 3L %.1f)  p>=0.95 %5.1f %% "
-               "of %zu  oxide |err| mean %.2f max %.2f nm, <=3 nm %.0f %%, in 2 sigma %.0f %%",
+               "of %zu (unwarned %.1f %% of %zu)  oxide |err| mean %.2f max %.2f nm, <=3 nm %.0f %%, in 2 sigma %.0f %%",
             label, t->images, pct(t->right, t->flakes), t->right, t->flakes,
             pct(t->right_n[1], t->by_n[1]), pct(t->right_n[2], t->by_n[2]),
             pct(t->right_n[3], t->by_n[3]), pct(t->confident_right, t->confident), t->confident,
-            t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN, t->oxide_abs_max,
+            pct(quiet_right, quiet), quiet, t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN, t->oxide_abs_max,
             pct(t->oxide_within_3, t->oxide_n), pct(t->oxide_covered, t->oxide_n));
     if (t->fermi_n)
         fprintf(f, "  Fermi: covered %.0f %% of %zu, blocking seen %zu, mean width %.2f eV",

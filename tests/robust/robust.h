@@ -23,6 +23,9 @@ typedef struct robust_tally {
     size_t flakes, right;               /* 1-3L flakes */
     size_t by_n[4], right_n[4];         /* per layer count */
     size_t confident, confident_right;  /* p_label >= 0.95, any 1..K label */
+    size_t warned, warned_right;        /* ... of those, in images with a warning that
+                                         * doubts the answer (poor-fit, two-readings,
+                                         * oxide-off-nominal, monochrome) */
     size_t images, oxide_n, oxide_within_3, oxide_covered; /* covered: |err| <= 2 sigma */
     double oxide_abs_sum, oxide_abs_max;
     size_t fermi_n, fermi_covered, fermi_seen; /* doped monolayers */
