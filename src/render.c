@@ -284,6 +284,13 @@ static lam_status flake_setup(const lam_scene *s, const lam_scene_object *o, lam
     return LAM_OK;
 }
 
+/* Channel c of a model's per-channel values; a one-channel camera gives
+ * every plane its one channel (a grey picture). */
+static double chan(const double *v, size_t channels, size_t c)
+{
+    return v[c < channels ? c : 0];
+}
+
 static lam_status flake_reflectance(const lam_scene *s, const lam_scene_object *o, double top,
                                     double out[3], lam_error *err)
 {
@@ -296,7 +303,7 @@ static lam_status flake_reflectance(const lam_scene *s, const lam_scene_object *
     if (!st && !(st = lam_model_alloc(&su, layers, 0, &m, err)))
         st = lam_model_eval(m, s->oxide_nm, o->fermi_ev, p, err);
     for (size_t c = 0; !st && c < 3; c++)
-        out[c] = p->reflectance[layers][c] / top;
+        out[c] = chan(p->reflectance[layers], p->channels, c) / top;
     lam_model_free(m);
     free(p);
     return st;
@@ -320,7 +327,7 @@ static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_er
     m = NULL;
     double sub[3] = {0, 0, 0}, top = 0;
     for (size_t c = 0; !st && c < 3; c++) {
-        sub[c] = p->substrate[c];
+        sub[c] = chan(p->substrate, p->channels, c);
         top = fmax(top, sub[c]);
     }
     if (s->absolute)
@@ -346,7 +353,7 @@ static lam_status class_reflectance(const lam_scene *s, double (*rel)[3], lam_er
             if (!(st = lam_model_alloc(&r, 1, 0, &m, err)))
                 st = lam_model_eval(m, s->oxide_nm, 0.2, p, err);
             for (size_t c = 0; !st && c < 3; c++)
-                rel[i][c] = p->substrate[c] / top;
+                rel[i][c] = chan(p->substrate, p->channels, c) / top;
         } else {
             for (size_t c = 0; c < 3; c++)
                 rel[i][c] = 0.45 * sub[c] / top; /* dust: a grey absorber */
@@ -458,6 +465,11 @@ lam_status lam_render(const lam_scene *s, lam_image **image, uint8_t **truth, la
             }
         gsl_rng_free(rng);
     }
+    if (s->setup.camera.channels == 1) { /* a monochrome camera: one picture, R = G = B */
+        memcpy(img->plane[1], img->plane[0], n * sizeof *img->plane[0]);
+        memcpy(img->plane[2], img->plane[0], n * sizeof *img->plane[0]);
+        img->channels = 1;
+    }
     *image = img;
     img = NULL;
     *truth = tr;
@@ -480,14 +492,15 @@ lam_status lam_render_save(const lam_image *img, const char *path, int linear16,
     if (!dot || (!jpeg && strcasecmp(dot, ".png")))
         return lam_error_set(err, LAM_EINVAL, "%s: output must end in .png, .jpg or .jpeg", path);
     lam_status st;
-    if (linear16 && !jpeg) {
-        uint16_t *px = malloc(n * 3 * sizeof *px);
+    if (linear16 && !jpeg) { /* grey pictures as one-channel PNG */
+        size_t nc = img->channels == 1 ? 1 : 3;
+        uint16_t *px = malloc(n * nc * sizeof *px);
         if (!px)
             return lam_error_set(err, LAM_ENOMEM, "cannot allocate an output buffer");
         for (size_t k = 0; k < n; k++)
-            for (int c = 0; c < 3; c++)
-                px[k * 3 + (size_t)c] = (uint16_t)lround(65535.0 * img->plane[c][k]);
-        st = lam_png_save_16(path, px, w, h, 3, err);
+            for (size_t c = 0; c < nc; c++)
+                px[k * nc + c] = (uint16_t)lround(65535.0 * img->plane[c][k]);
+        st = lam_png_save_16(path, px, w, h, (int)nc, err);
         free(px);
         return st;
     }

@@ -77,7 +77,9 @@ lam_status lam_render(const lam_scene *scene, lam_image **image, uint8_t **truth
                       lam_error *err);
 
 /* Save a rendered image: ".png" 8-bit sRGB (or 16-bit linear when
- * linear16 != 0), ".jpg"/".jpeg" 8-bit sRGB at the scene's quality. */
+ * linear16 != 0), ".jpg"/".jpeg" 8-bit sRGB at the scene's quality. The
+ * picture of a one-channel (monochrome) camera is grey: R = G = B in 8-bit
+ * files, one channel in 16-bit PNG. */
 lam_status lam_render_save(const lam_image *img, const char *path, int linear16,
                            int jpeg_quality, lam_error *err);
 

@@ -228,5 +228,20 @@ grep -q "warning: the substrate is nearly anti-reflecting" "$T/err" && ok "anti-
 grep -q "(-1)" "$T/out" && bad "a stack without SiO2 shows oxide (-1)" || ok "no oxide shown for a stack without SiO2"
 grep -q '"code"' "$T/h/HT285-N05-tile04.json" && bad "the hBN sample has warnings: $(grep -A1 '"code"' "$T/h/HT285-N05-tile04.json")" || ok "the hBN sample analyses without warnings"
 
+# A monochrome camera's render is a grey picture (R = G = B in 8 bits, one
+# channel in 16), which a one-channel setup analyses and a colour setup
+# refuses without writing anything.
+sed 's/"setup": *"bench3-physics.json"/"setup": {"schema": "lamina-setup\/1", "camera": {"kind": "gaussian", "channels": [{"centre_nm": 540, "fwhm_nm": 25}]}}/' \
+    samples/HT285-C11-tile07.scene.json > "$T/mono-scene.json"
+printf '{"schema":"lamina-setup/1","camera":{"kind":"gaussian","channels":[{"centre_nm":540,"fwhm_nm":25}]},"um_per_px":0.1,"uncertainty":{"oxide_nm":2},"substrate":{"stack":[{"material":"SiO2","thickness_nm":283}]}}' > "$T/mono.json"
+expect_rc 0 "render with a monochrome camera (16-bit)" "$BIN" render --quiet "$T/mono-scene.json" -o "$T/mono16.png" --linear16
+expect_rc 0 "render with a monochrome camera (8-bit)" "$BIN" render --quiet "$T/mono-scene.json" -o "$T/mono8.png"
+"$BIN" inspect "$T/mono16.png" | grep -q "16-bit grey" && ok "a 16-bit monochrome render is a grey PNG" || bad "16-bit monochrome render not grey"
+expect_rc 0 "a grey 8-bit picture with a one-channel setup" "$BIN" analyze --quiet --setup "$T/mono.json" --out "$T/mono-out" "$T/mono8.png"
+grep -q '"label":[[:space:]]*"1L"' "$T/mono-out/mono8.json" && ok "monolayers found in the grey picture" || bad "no monolayer in the grey picture"
+expect_rc 1 "a grey picture with a colour setup is refused" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/mono-bad" "$T/mono8.png"
+grep -q "R = G = B" "$T/err" && ok "the refusal says the picture is grey" || bad "grey refusal message: $(cat "$T/err")"
+[ -z "$(ls -A "$T/mono-bad" 2>/dev/null)" ] && ok "no output for the refused picture" || bad "output written for a refused picture: $(ls "$T/mono-bad")"
+
 echo "test_cli: $pass passed, $fail failed"
 [ "$fail" -eq 0 ]
