@@ -143,10 +143,7 @@ static lam_status add_list(lam_inputs *in, const char *list, lam_error *err)
         line[strcspn(line, "\r\n")] = '\0';
         if (!line[0] || line[0] == '#')
             continue;
-        if (line[0] == '/')
-            snprintf(p, sizeof p, "%s", line);
-        else
-            snprintf(p, sizeof p, "%s/%s", dir, line);
+        lam_path_join(p, sizeof p, dir, line);
         st = lam_inputs_add(in, p, err);
     }
     fclose(fp);

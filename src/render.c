@@ -6,6 +6,7 @@
 #include "lamina/model.h"
 #include "lamina/png.h"
 #include "lamina/raster.h"
+#include "lamina/textfile.h"
 
 #include <errno.h>
 #include <math.h>
@@ -88,7 +89,7 @@ static lam_status read_setup(const cJSON *setup, const char *dir, lam_scene *s, 
 {
     if (cJSON_IsString(setup)) {
         char path[2200];
-        snprintf(path, sizeof path, "%s/%s", dir, setup->valuestring);
+        lam_path_join(path, sizeof path, dir, setup->valuestring);
         return lam_setup_load(path, &s->setup, err);
     }
     if (!cJSON_IsObject(setup))

@@ -10,6 +10,7 @@
 #include <cjson/cJSON.h>
 #include "lamina/jsonfile.h"
 #include "lamina/outfile.h"
+#include "lamina/textfile.h"
 
 #define SETUP_SCHEMA "lamina-setup/1"
 #define SETUP_MAX_BYTES (1u << 20)
@@ -324,14 +325,6 @@ static void join_key(char *buf, size_t n, const char *path, const char *name)
     snprintf(buf, n, "%s%s%s", path, path[0] ? "." : "", name);
 }
 
-static void join_path(char *buf, size_t n, const char *dir, const char *file)
-{
-    if (file[0] == '/' || !dir || !dir[0])
-        snprintf(buf, n, "%s", file);
-    else
-        snprintf(buf, n, "%s/%s", dir, file);
-}
-
 /* Strict keys of the object at 'path': its reader's keys plus the next
  * component of every table number below it. */
 static lam_status check_keys(const cJSON *o, const char *path, const char *const explicit_keys[],
@@ -392,7 +385,7 @@ static lam_status get_material(const cJSON *v, const char *key, const char *dir,
     if (st)
         return st;
     char path[1024];
-    join_path(path, sizeof path, dir, f->valuestring);
+    lam_path_join(path, sizeof path, dir, f->valuestring);
     return lam_material_load_csv(path, out, err);
 }
 
@@ -405,7 +398,7 @@ static lam_status get_table(const cJSON *o, const char *key, const char *dir, si
     if (!cJSON_IsString(f))
         return lam_error_set(err, LAM_EFORMAT, "key %s.file: expected a path", key);
     char path[1024];
-    join_path(path, sizeof path, dir, f->valuestring);
+    lam_path_join(path, sizeof path, dir, f->valuestring);
     return lam_table_spectrum_load_ex(path, columns, signed_values, out, err);
 }
 

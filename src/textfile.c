@@ -37,6 +37,14 @@ lam_status lam_text_load(const char *path, size_t max_bytes, const char *what, c
     return LAM_OK;
 }
 
+void lam_path_join(char *buf, size_t n, const char *dir, const char *file)
+{
+    if (file[0] == '/' || !dir || !dir[0])
+        snprintf(buf, n, "%s", file);
+    else
+        snprintf(buf, n, "%s/%s", dir, file);
+}
+
 void lam_path_dir(const char *path, char *dir, size_t n)
 {
     snprintf(dir, n, "%s", path);

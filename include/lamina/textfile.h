@@ -20,4 +20,8 @@ lam_status lam_text_load(const char *path, size_t max_bytes, const char *what, c
 /* The folder part of a path ("." when there is none). */
 void lam_path_dir(const char *path, char *dir, size_t n);
 
+/* A file named in another file, relative to that file's folder dir: an
+ * absolute name (or an empty dir) is taken as it is. */
+void lam_path_join(char *buf, size_t n, const char *dir, const char *file);
+
 #endif
