@@ -188,6 +188,9 @@ static void test_mono(const char *dir)
                "monochrome camera, oxide measured: >= 97 %% of the %zu labels with p >= 0.95 "
                "right (%.1f %%)",
                t.confident, 100 * share(t.confident_right, t.confident));
+    check_true(t.oxide_n > 0 && t.oxide_abs_max <= 4,
+               "monochrome camera, oxide measured: every image's oxide within 4 nm (issue 10; "
+               "worst %.2f nm)", t.oxide_abs_max);
 }
 
 /* The remedy the warnings give for an unknown camera: calibrate on one
