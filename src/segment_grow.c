@@ -527,28 +527,54 @@ static void merge_pair(merge_state *m, size_t k, size_t q)
         merge(m, a, b, ca + cb);
 }
 
-/* Where the merging is in the pair lists: bucket b of strip s, i of e. */
+/* The merging runs band by band: a band is BAND_STRIPS strips (a fixed
+ * number of rows, whatever the thread count), merged on its own in order
+ * of increasing difference, the bands on all cores; then the pairs that
+ * cross from a band's last row into the next band are merged, in the same
+ * order. A region never spans two bands until that last step, so bands
+ * touch disjoint nodes. The merging is memory-bound: a band's nodes are a
+ * working set a core can keep near, where the whole image's were not. */
+#define BAND_STRIPS 8
+
+/* Where the merging is in the pair lists: bucket b of strip s (within
+ * s0..s1), i of e. */
 typedef struct cursor {
-    size_t b, s;
+    size_t b, s, s0, s1;
     uint32_t i, e;
 } cursor;
 
 #define BATCH 256
 #define AHEAD 16
 
-/* The next (up to) BATCH pairs in order: bucket by bucket, each across the
- * strips. 0 at the end. */
-static size_t gather(const pair_lists *L, cursor *c, uint32_t *batch)
+/* Pair number 'at' of strip s as (2k + dir) over the whole image. */
+static uint32_t pair_at(const pair_lists *L, size_t s, size_t at)
+{
+    return L->code ? (uint32_t)(s * L->cap + L->code[at]) : L->pairs[at];
+}
+
+/* Does pair p (2k + dir) cross from the last row of its band into the
+ * next band? */
+static int crosses(const pair_lists *L, size_t w, uint32_t p)
+{
+    size_t rows = L->rows * BAND_STRIPS, y = (p / 2) / w;
+    return (p & 1) && y % rows == rows - 1;
+}
+
+/* The next (up to) BATCH pairs of strips s0..s1 in order: bucket by
+ * bucket, each across the strips; pairs that cross into the next band are
+ * left for later. 0 at the end. */
+static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
 {
     size_t nb = 0;
     while (nb < BATCH && c->b < PAIR_BUCKETS) {
         if (c->i < c->e) {
-            size_t at = c->s * L->cap + c->i++;
-            batch[nb++] = L->code ? (uint32_t)(c->s * L->cap + L->code[at]) : L->pairs[at];
+            uint32_t p = pair_at(L, c->s, c->s * L->cap + c->i++);
+            if (!crosses(L, w, p))
+                batch[nb++] = p;
             continue;
         }
-        if (++c->s == L->strips) {
-            c->s = 0;
+        if (++c->s == c->s1) {
+            c->s = c->s0;
             if (++c->b == PAIR_BUCKETS)
                 break;
         }
@@ -559,26 +585,77 @@ static size_t gather(const pair_lists *L, cursor *c, uint32_t *batch)
     return nb;
 }
 
-/* Neighbour pairs in order of increasing difference, a batch at a time so
- * that the nodes of later pairs are fetched while earlier ones merge: the
- * loop waits for memory, not for arithmetic. */
-static void merge_pairs(merge_state *m, const pair_lists *L, size_t w)
+/* Pairs in batches, so that the nodes of later pairs are fetched while
+ * earlier ones merge: the loop waits for memory, not for arithmetic. */
+static void merge_batch(merge_state *m, const uint32_t *batch, size_t nb, size_t w)
+{
+    size_t S = m->stride;
+    for (size_t j = 0; j < nb; j++) {
+#ifdef __GNUC__
+        if (j + AHEAD < nb) {
+            size_t k2 = batch[j + AHEAD] / 2;
+            __builtin_prefetch(&m->node[k2 * S]);
+            __builtin_prefetch(&m->node[(batch[j + AHEAD] % 2 ? k2 + w : k2 + 1) * S]);
+        }
+#endif
+        size_t k = batch[j] / 2;
+        merge_pair(m, k, batch[j] % 2 ? k + w : k + 1);
+    }
+}
+
+typedef struct band_ctx {
+    merge_state *m;
+    const pair_lists *L;
+    size_t w;
+} band_ctx;
+
+/* Bands begin..end, each on its own. */
+static void merge_bands(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    band_ctx *x = vctx;
+    const pair_lists *L = x->L;
+    uint32_t batch[BATCH];
+    for (size_t band = begin; band < end; band++) {
+        size_t s0 = band * BAND_STRIPS;
+        size_t s1 = s0 + BAND_STRIPS < L->strips ? s0 + BAND_STRIPS : L->strips;
+        const uint32_t *st = L->start + s0 * (PAIR_BUCKETS + 1);
+        cursor c = {0, s0, s0, s1, st[0], st[1]};
+        size_t nb;
+        while ((nb = gather(L, x->w, &c, batch)) > 0)
+            merge_batch(x->m, batch, nb, x->w);
+    }
+}
+
+/* The pairs across band borders, bucket by bucket, border by border. */
+static void merge_borders(merge_state *m, const pair_lists *L, size_t w)
 {
     uint32_t batch[BATCH];
-    size_t nb, S = m->stride;
-    cursor c = {0, 0, L->start[0], L->start[1]};
-    while ((nb = gather(L, &c, batch)) > 0)
-        for (size_t j = 0; j < nb; j++) {
-#ifdef __GNUC__
-            if (j + AHEAD < nb) {
-                size_t k2 = batch[j + AHEAD] / 2;
-                __builtin_prefetch(&m->node[k2 * S]);
-                __builtin_prefetch(&m->node[(batch[j + AHEAD] % 2 ? k2 + w : k2 + 1) * S]);
+    size_t nb = 0;
+    for (size_t b = 0; b < PAIR_BUCKETS; b++)
+        for (size_t s = BAND_STRIPS - 1; s < L->strips; s += BAND_STRIPS) {
+            const uint32_t *st = L->start + s * (PAIR_BUCKETS + 1);
+            for (uint32_t i = st[b]; i < st[b + 1]; i++) {
+                uint32_t p = pair_at(L, s, s * L->cap + i);
+                if (!crosses(L, w, p))
+                    continue;
+                batch[nb++] = p;
+                if (nb == BATCH) {
+                    merge_batch(m, batch, nb, w);
+                    nb = 0;
+                }
             }
-#endif
-            size_t k = batch[j] / 2;
-            merge_pair(m, k, batch[j] % 2 ? k + w : k + 1);
         }
+    merge_batch(m, batch, nb, w);
+}
+
+/* Neighbour pairs in order of increasing difference, band by band on the
+ * given threads, then across the bands' borders. */
+static void merge_pairs(merge_state *m, const pair_lists *L, size_t w, size_t threads)
+{
+    band_ctx x = {m, L, w};
+    lam_parallel_for((L->strips + BAND_STRIPS - 1) / BAND_STRIPS, threads, merge_bands, &x);
+    merge_borders(m, L, w);
 }
 
 /* The regions of the provisional pixels into seg->label (replaced by the
@@ -604,7 +681,7 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
         free(m.node);
         return st;
     }
-    merge_pairs(&m, &L, w);
+    merge_pairs(&m, &L, w, threads);
     free(L.code);
     free(L.pairs);
     free(L.start);
