@@ -280,6 +280,15 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
     }
 }
 
+void lam__measure_regions(lam_analysis *a, const lam_image *contrast)
+{
+    a->count = a->seg->count;
+    for (size_t i = 0; i < a->count; i++)
+        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
+                           a->channels, &a->measured[i]);
+    lam_segment_edge_areas(contrast, a->channels, a->seg);
+}
+
 /* Regions of uniform contrast (model-independent), measured. */
 static lam_status segment_stage(run *r, lam_error *err)
 {
@@ -296,13 +305,10 @@ static lam_status segment_stage(run *r, lam_error *err)
     if (st)
         return st;
     free(a->measured);
-    a->count = a->seg->count;
-    a->measured = calloc(a->count ? a->count : 1, sizeof *a->measured);
+    a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->count);
-    for (size_t i = 0; i < a->count; i++)
-        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
-                           a->channels, &a->measured[i]);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
+    lam__measure_regions(a, r->img);
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -447,7 +453,6 @@ static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
 {
     lam_analysis *a = r->a;
     const lam_estimate *rival = a->estimate->rival;
-    lam_segment_edge_areas(r->img, a->channels, a->seg); /* areas for the size flags */
     for (size_t i = 0; i < a->count; i++) {
         lam_region_result *res = &a->results[i], alt;
         lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);
@@ -497,10 +502,7 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     free(map);
     if (st)
         return st;
-    a->count = a->seg->count;
-    for (size_t i = 0; i < a->count; i++)
-        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
-                           a->channels, &a->measured[i]);
+    lam__measure_regions(a, r->img);
     infer_all(r, v, ft, vr);
     return LAM_OK;
 }

@@ -45,7 +45,7 @@ void lam_segmentation_free(lam_segmentation *s)
     free(s);
 }
 
-static uint32_t find_root(uint32_t *parent, uint32_t a)
+uint32_t lam__label_root(uint32_t *parent, uint32_t a)
 {
     while (parent[a] != a) {
         parent[a] = parent[parent[a]];
@@ -223,7 +223,7 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
                 parent[next] = (uint32_t)next;
                 lab[k] = (uint32_t)next++;
             } else if (l && u && l != u) {
-                uint32_t rl = find_root(parent, l), ru = find_root(parent, u);
+                uint32_t rl = lam__label_root(parent, l), ru = lam__label_root(parent, u);
                 if (rl < ru)
                     parent[ru] = rl;
                 else
@@ -243,7 +243,7 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
     for (size_t k = 0; k < w * h; k++) {
         if (!lab[k])
             continue;
-        uint32_t r = find_root(parent, lab[k]);
+        uint32_t r = lam__label_root(parent, lab[k]);
         if (!final[r])
             final[r] = ++m;
         lab[k] = final[r];

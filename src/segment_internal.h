@@ -16,6 +16,10 @@ void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint
 /* Keep the regions worth reporting (renumbered 1..kept): substrate regions
  * become class SUBSTRATE without a label, specks and slivers class NONE.
  * Takes R over (stores it in seg). 0 when out of memory (R freed). */
+/* The root of a in a union-find forest of labels (parent[root] == root),
+ * halving the path on the way. */
+uint32_t lam__label_root(uint32_t *parent, uint32_t a);
+
 int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px);
 
 #endif

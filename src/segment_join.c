@@ -28,15 +28,6 @@ typedef struct join_ctx {
     uint32_t *parent;   /* union-find over region ids 0..count */
 } join_ctx;
 
-static uint32_t root(uint32_t *parent, uint32_t a)
-{
-    while (parent[a] != a) {
-        parent[a] = parent[parent[a]];
-        a = parent[a];
-    }
-    return a;
-}
-
 static int joinable(const join_ctx *j, uint32_t a, uint32_t b)
 {
     return a && b && a != b && j->key[a - 1] >= 0 && j->key[a - 1] == j->key[b - 1];
@@ -44,7 +35,7 @@ static int joinable(const join_ctx *j, uint32_t a, uint32_t b)
 
 static void unite(uint32_t *parent, uint32_t a, uint32_t b)
 {
-    a = root(parent, a), b = root(parent, b);
+    a = lam__label_root(parent, a), b = lam__label_root(parent, b);
     if (a < b)
         parent[b] = a;
     else if (b < a)
@@ -141,9 +132,10 @@ static void fill_bands(join_ctx *j, const double (*mean)[3], size_t channels, co
                        j->seg->cls[first + e * step] == LAM_CLASS_NONE)
                     e++;
                 if (e == count || e - i > JOIN_BAND || !lab[first + e * step] ||
-                    root(j->parent, left) != root(j->parent, lab[first + e * step]))
+                    lam__label_root(j->parent, left) !=
+                        lam__label_root(j->parent, lab[first + e * step]))
                     continue;
-                uint32_t r = root(j->parent, left);
+                uint32_t r = lam__label_root(j->parent, left);
                 for (size_t t = i; t < e; t++) {
                     size_t q = first + t * step;
                     int close = 1;
@@ -168,7 +160,7 @@ static void joined_means(join_ctx *j, double (*mean)[3])
         return;
     for (uint32_t id = 1; id <= n; id++) {
         const lam_region_stats *s = &j->seg->regions[id - 1];
-        uint32_t r = root(j->parent, id);
+        uint32_t r = lam__label_root(j->parent, id);
         weight[r] += (double)s->interior;
         for (int c = 0; c < 3; c++)
             mean[r - 1][c] += s->sum[c];
@@ -190,13 +182,13 @@ static uint32_t renumber(join_ctx *j, uint32_t *map)
         uint32_t l = j->seg->label[k];
         if (!l)
             continue;
-        uint32_t r = root(j->parent, l);
+        uint32_t r = lam__label_root(j->parent, l);
         if (!new_of_root[r])
             new_of_root[r] = ++m;
         j->seg->label[k] = new_of_root[r];
     }
     for (uint32_t id = 1; id <= count; id++)
-        map[id - 1] = new_of_root[root(j->parent, id)];
+        map[id - 1] = new_of_root[lam__label_root(j->parent, id)];
     free(new_of_root);
     return m;
 }
@@ -300,7 +292,7 @@ static size_t region_holes(hole_ctx *h, uint32_t r, size_t area)
     for (size_t y = h->box[1]; y <= h->box[3]; y++)
         for (size_t x = h->box[0]; x <= h->box[2]; x++) {
             uint32_t l = seg->label[y * w + x];
-            h->mark[y * w + x] = l && root(h->j->parent, l) == r ? H_REGION : H_FREE;
+            h->mark[y * w + x] = l && lam__label_root(h->j->parent, l) == r ? H_REGION : H_FREE;
         }
     for (size_t y = h->box[1]; y <= h->box[3]; y++)
         for (size_t x = h->box[0]; x <= h->box[2]; x++) {
@@ -318,7 +310,7 @@ static size_t region_holes(hole_ctx *h, uint32_t r, size_t area)
             for (size_t i = 0; i < n; i++) {
                 size_t q = h->members[i];
                 if (seg->label[q])
-                    h->j->parent[root(h->j->parent, seg->label[q])] = r;
+                    h->j->parent[lam__label_root(h->j->parent, seg->label[q])] = r;
                 seg->label[q] = r, seg->cls[q] = seg->regions[r - 1].cls;
             }
             joined++;
@@ -340,7 +332,7 @@ static lam_status fill_holes(join_ctx *j, const double (*mean)[3], size_t channe
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate hole filling");
     } else {
         for (uint32_t id = 1; id <= n; id++) {
-            uint32_t r = root(j->parent, id);
+            uint32_t r = lam__label_root(j->parent, id);
             const lam_region_stats *s = &seg->regions[id - 1];
             if (area[r] == 0)
                 memcpy(box[r - 1], s->bbox, sizeof box[0]);
@@ -352,7 +344,7 @@ static lam_status fill_holes(join_ctx *j, const double (*mean)[3], size_t channe
             area[r] += s->area;
         }
         for (uint32_t id = 1; id <= n; id++)
-            if (root(j->parent, id) == id && j->key[id - 1] >= 0) {
+            if (lam__label_root(j->parent, id) == id && j->key[id - 1] >= 0) {
                 memcpy(h.box, box[id - 1], sizeof h.box);
                 region_holes(&h, id, area[id]);
             }
@@ -392,7 +384,7 @@ lam_status lam_segment_join(const lam_image *contrast, size_t channels, const in
     uint32_t m = 0;
     if (!st) {
         for (uint32_t id = 1; id <= n; id++)
-            *joined += root(j.parent, id) != id;
+            *joined += lam__label_root(j.parent, id) != id;
         m = renumber(&j, map);
         if (n && !m)
             st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region joining");

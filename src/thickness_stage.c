@@ -2,6 +2,7 @@
  * (lamina/thickness.h): the image's oxide from its regions, then every
  * region's thickness posterior and its region result. */
 #include "lamina/analyze.h"
+#include "analyze_internal.h"
 #include "lamina/thickness.h"
 
 #include <math.h>
@@ -349,11 +350,7 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
     free(map);
     if (st)
         return st;
-    a->count = a->seg->count;
-    for (size_t i = 0; i < a->count; i++)
-        lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
-                           a->channels, &a->measured[i]);
-    lam_segment_edge_areas(contrast, a->channels, a->seg);
+    lam__measure_regions(a, contrast);
     return LAM_OK;
 }
 
@@ -424,8 +421,6 @@ lam_status lam_thickness_analyze(lam_analysis *a, const lam_image *contrast, con
         x.sd_width[c] = a->estimate->shared[LAM_NU_WIDTH + c].prior_sd;
     }
     x.sd_na = a->estimate->shared[LAM_NU_NA].prior_sd;
-    if (contrast)
-        lam_segment_edge_areas(contrast, a->channels, a->seg); /* areas for the size flags */
     free(a->thickness);
     a->thickness = calloc(a->count ? a->count : 1, sizeof *a->thickness);
     if (!a->thickness)
