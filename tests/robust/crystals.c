@@ -17,24 +17,6 @@ static double now_s(void)
 }
 
 /* The analysis region covering most of object o's pixels, its pixel count. */
-static uint32_t covering(const synth_scene *sc, int o, const lam_analysis *a, size_t *covered)
-{
-    size_t n = (size_t)sc->width * (size_t)sc->height, best = 0;
-    uint32_t id = 0;
-    size_t *count = calloc(a->count + 1, sizeof *count);
-    if (!count)
-        return 0;
-    for (size_t k = 0; k < n; k++)
-        if (sc->owner[k] == o)
-            count[a->seg->label[k]]++;
-    for (uint32_t r = 1; r <= a->count; r++)
-        if (count[r] > best)
-            best = count[r], id = r;
-    free(count);
-    *covered = best;
-    return id;
-}
-
 static int bin_of(double nm)
 {
     return nm < 3 ? 0 : nm < 10 ? 1 : nm < 30 ? 2 : 3;
@@ -75,7 +57,7 @@ static void score(const synth_scene *sc, const lam_analysis *a, hbn_tally *t, FI
         if (ob->kind != SYNTH_OBJ_FLAKE || !(ob->thickness_nm > 0) || ob->area_px < 200)
             continue;
         size_t cov = 0;
-        uint32_t id = covering(sc, o, a, &cov);
+        uint32_t id = robust_covering_region(sc, o, a, &cov);
         int hit = id && a->thickness && cov * 10 >= (size_t)ob->area_px * 3;
         score_one(ob, hit ? &a->thickness[id - 1] : NULL, t, log, name);
     }

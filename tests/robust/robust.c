@@ -18,8 +18,7 @@ static double now_s(void)
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
-/* The analysis region covering most of object o's pixels (0: none). */
-static uint32_t covering_region(const synth_scene *sc, int o, const lam_analysis *a,
+uint32_t robust_covering_region(const synth_scene *sc, int o, const lam_analysis *a,
                                 size_t *covered)
 {
     size_t n = (size_t)sc->width * (size_t)sc->height, best = 0;
@@ -75,7 +74,7 @@ static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_ta
             ob->layers < 1 || ob->area_px < 50)
             continue;
         size_t cov = 0;
-        uint32_t id = covering_region(sc, o, a, &cov);
+        uint32_t id = robust_covering_region(sc, o, a, &cov);
         const lam_region_result *r = id && cov * 10 >= (size_t)ob->area_px * 3 ? &a->results[id - 1]
                                                                                 : NULL;
         if (ob->doped && r) {
@@ -208,43 +207,65 @@ int robust_run(const robust_case *c, unsigned long long seed, const char *dir, r
     return rc;
 }
 
+/* A chip scan: 'tiles' scenes sharing the physics of 'seed', each with its
+ * own flakes, rendered into dir; the setup is written beside the first
+ * (PREFIXseed-format.setup.json). */
+typedef struct scan {
+    synth_scene sc[LAM_POOL_MAX];
+    char img[LAM_POOL_MAX][1100], setup[1100];
+    int made;
+} scan;
+
+static int render_scan(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
+                       char prefix, scan *sn)
+{
+    snprintf(sn->setup, sizeof sn->setup, "%s/%c%llu-%d.setup.json", dir, prefix, seed,
+             (int)c->fmt);
+    int rc = 0;
+    for (sn->made = 0; sn->made < tiles && !rc; sn->made++)
+        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)sn->made, dir,
+                         &sn->sc[sn->made], sn->img[sn->made], sizeof sn->img[0],
+                         sn->made ? NULL : sn->setup);
+    if (rc)
+        sn->made--;
+    return rc;
+}
+
+static void scan_free(scan *sn)
+{
+    for (int k = 0; k < sn->made; k++)
+        synth_scene_free(&sn->sc[k]);
+}
+
 int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
                      robust_tally *alone, robust_tally *pooled, FILE *log)
 {
     if (tiles < 1 || tiles > LAM_POOL_MAX)
         return -1;
-    synth_scene sc[LAM_POOL_MAX];
-    char img[LAM_POOL_MAX][1100], setup[1100];
-    snprintf(setup, sizeof setup, "%s/b%llu-%d.setup.json", dir, seed, (int)c->fmt);
-    int made = 0, rc = 0;
-    for (; made < tiles && !rc; made++)
-        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
-                         img[made], sizeof img[made], made ? NULL : setup);
-    if (rc)
-        made--;
+    scan sn;
+    int rc = render_scan(c, seed, tiles, dir, 'b', &sn);
     lam_setup s;
     lam_pool *pool = NULL;
     lam_shared_prior prior;
     lam_error err;
     lam_error_clear(&err);
-    if (!rc && !(rc = load_setup(setup, &s))) {
+    if (!rc && !(rc = load_setup(sn.setup, &s))) {
         lam_analysis_options opt = lam_analysis_options_default();
         rc = lam_pool_alloc(&s, &opt, &pool, &err) ? -1 : 0;
         if (!rc)
             lam_pool_analyse_again(pool, 1);
         for (int k = 0; k < tiles && !rc; k++)
-            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, pool);
+            rc = analyse(sn.img[k], &s, NULL, &sn.sc[k], alone, log, pool);
         if (!rc && lam_pool_fit(pool, &prior, &err)) {
             fprintf(stderr, "robust: pool: %s\n", err.message);
             rc = -1;
         }
         for (int k = 0; k < tiles && !rc; k++)
-            rc = analyse(img[k], &s, &prior, &sc[k], pooled, log, NULL);
+            rc = analyse(sn.img[k], &s, &prior, &sn.sc[k], pooled, log, NULL);
         lam_pool_free(pool);
         lam_setup_clear(&s);
     }
-    for (int k = 0; k < made; k++)
-        synth_scene_free(&sc[k]);
+    scan_free(&sn);
     return rc;
 }
 
@@ -349,27 +370,19 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
 {
     if (tiles < 2 || tiles > LAM_POOL_MAX)
         return -1;
-    synth_scene sc[LAM_POOL_MAX];
-    char img[LAM_POOL_MAX][1100], setup[1100];
-    snprintf(setup, sizeof setup, "%s/c%llu-%d.setup.json", dir, seed, (int)c->fmt);
-    int made = 0, rc = 0;
-    for (; made < tiles && !rc; made++)
-        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)made, dir, &sc[made],
-                         img[made], sizeof img[made], made ? NULL : setup);
-    if (rc)
-        made--;
+    scan sn;
+    int rc = render_scan(c, seed, tiles, dir, 'c', &sn);
     lam_setup s;
     lam_calib_result cal;
     memset(&cal, 0, sizeof cal);
-    if (!rc && !(rc = load_setup(setup, &s))) {
-        rc = calibrate_on_flake(img[0], &sc[0], &s, oxide_given, &cal);
+    if (!rc && !(rc = load_setup(sn.setup, &s))) {
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, oxide_given, &cal);
         for (int k = 1; k < tiles && !rc; k++)
-            rc = analyse(img[k], &s, NULL, &sc[k], alone, log, NULL) ||
-                 analyse(img[k], &cal.setup, NULL, &sc[k], calibrated, log, NULL);
+            rc = analyse(sn.img[k], &s, NULL, &sn.sc[k], alone, log, NULL) ||
+                 analyse(sn.img[k], &cal.setup, NULL, &sn.sc[k], calibrated, log, NULL);
         lam_calib_result_clear(&cal);
         lam_setup_clear(&s);
     }
-    for (int k = 0; k < made; k++)
-        synth_scene_free(&sc[k]);
+    scan_free(&sn);
     return rc;
 }

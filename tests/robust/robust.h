@@ -18,6 +18,7 @@
 #include <stddef.h>
 #include <stdio.h>
 #include "../synth/synth.h"
+#include "lamina/analyze.h"
 
 typedef struct robust_tally {
     size_t flakes, right;               /* 1-3L flakes */
@@ -68,6 +69,11 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
 int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles,
                           int oxide_given, const char *dir, robust_tally *alone,
                           robust_tally *calibrated, FILE *log);
+
+/* The analysis region covering most of object o's pixels (0: none), and
+ * how many of them it covers. */
+uint32_t robust_covering_region(const synth_scene *sc, int o, const lam_analysis *a,
+                                size_t *covered);
 
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);
