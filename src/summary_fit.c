@@ -204,7 +204,7 @@ lam_status lam_summary_predict(const lam_setup *setup, size_t lo, size_t hi, dou
     lam_status st = p ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "out of memory");
     if (!st && thickness_nm && lam_setup_crystal_kind(setup) != LAM_CRYSTAL_CONTINUOUS)
         st = lam_error_set(err, LAM_EINVAL, "film thicknesses need a crystal of continuous "
-                                            "thickness (hBN), not %s", setup->flake);
+                                            "thickness (material hBN), not %s", setup->flake);
     if (!st && (st = predict_rows(setup, mono_nm, hi, thickness_nm, count, p, err)))
         lam_error_set_file(err, setup->source);
     if (!st && near_ar)
