@@ -318,12 +318,22 @@ static lam_status segment_stage(run *r, lam_error *err)
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 
-/* The model takes SiO2 as Malitson's fused silica; thermal oxide films
- * differ from it by up to ~1 % in index (Gao et al. 2013, one of the
- * tables in tests/data/nk), which reads as the same share of thickness.
- * The fitted oxide's sigma carries that share, common to every image of a
- * chip (so it is part of the shared, not the per-image, uncertainty). */
-#define OXIDE_INDEX_REL 0.008
+
+/* The flakes' oxide combined with the substrate colour's (inverse
+ * variances), when that was used; against a colour recorded at a known
+ * oxide only the difference from it depends on the index. */
+static void combine_colour(lam_oxide_result *o)
+{
+    const lam_colour_oxide *c = &o->colour;
+    double index = LAM_OXIDE_INDEX_REL * fabs(c->estimate - c->reference_nm);
+    double vg = c->sigma * c->sigma + index * index, vf = o->sigma * o->sigma;
+    o->estimate = (o->estimate / vf + c->estimate / vg) / (1 / vf + 1 / vg);
+    o->sigma = 1 / sqrt(1 / vf + 1 / vg);
+    o->sigma_given_shared = fmin(o->sigma_given_shared, o->sigma);
+    size_t n = strlen(o->method);
+    snprintf(o->method + n, sizeof o->method - n,
+             "; combined with the substrate's colour against the calibration");
+}
 
 static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
 {
@@ -332,14 +342,14 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->regions_used = im->regions_used;
     o->fitted = im->oxide.fitted && im->regions_used > 0;
     o->estimate = o->fitted ? im->oxide.value : o->nominal;
-    double index = OXIDE_INDEX_REL * o->estimate;
+    double index = LAM_OXIDE_INDEX_REL * o->estimate;
     o->sigma = o->fitted ? sqrt(im->oxide.sigma * im->oxide.sigma + index * index) : NAN;
     o->sigma_given_shared = o->fitted ? im->oxide_sigma_given_shared : NAN;
     if (o->fitted)
         snprintf(o->method, sizeof o->method,
                  "joint fit with the shared parameters over %zu region(s); sigma includes them "
                  "and %.1f %% for the oxide's index",
-                 im->regions_used, 100 * OXIDE_INDEX_REL);
+                 im->regions_used, 100 * LAM_OXIDE_INDEX_REL);
     else
         snprintf(o->method, sizeof o->method, o->nominal < 0 ? "no oxide in the stack"
                                               : "nominal (no region usable for a fit)");
@@ -351,6 +361,8 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
         o->sigma = sqrt((1 - w) * (s1 * s1 + m1 * m1) + w * (s2 * s2 + m2 * m2) -
                         o->estimate * o->estimate);
     }
+    if (o->fitted && o->colour.used)
+        combine_colour(o);
     o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
 }
 
@@ -415,6 +427,8 @@ static lam_status fit_stage(run *r, lam_error *err)
     if (!st)
         st = lam_nksource_select(r->setup, r->opt->shared_prior, &a->estimate, &r->model,
                                  a->conductivity, sizeof a->conductivity, err);
+    if (!st)
+        st = lam__colour_oxide(a, r->setup, r->model, err);
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
     if (st)

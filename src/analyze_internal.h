@@ -5,6 +5,7 @@
 
 #include "lamina/analyze.h"
 #include "lamina/image.h"
+#include "lamina/model.h"
 #include "lamina/setup.h"
 
 /* The image's channels against the setup's camera: a grey image (one
@@ -16,6 +17,19 @@ lam_status lam__check_channels(const lam_image *img, const lam_setup *s, lam_err
  * it, every region's measurement in a->measured (room for that many) and
  * its share of the transition pixels (the areas the size flags use). */
 void lam__measure_regions(lam_analysis *a, const lam_image *contrast);
+
+/* After the flakes' fit (a->estimate): when the setup records the
+ * substrate's colour at a known oxide and the image has three channels,
+ * read the oxide from the substrate's colour (a->substrate.level) into
+ * a->oxide.colour, 'used' when it fits the recorded colour and agrees
+ * with the flakes' (within 3 sd of the two combined); otherwise warn
+ * "substrate-colour". The fit itself is left as it is: its oxide is the
+ * one that describes the flakes with the rest of the model (with a camera
+ * known only roughly, pressing it towards the colour's made layer counts
+ * worse on the accuracy harness); the reported oxide combines the two
+ * (oxide_summary in analyze.c). 'model' is the fit's model. */
+lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *model,
+                             lam_error *err);
 
 /* The warnings of a finished analysis (saturation, exposure, oxide,
  * encoding, setup defaults, fit), added to a->warnings. */

@@ -8,6 +8,7 @@
 #include "lamina/model.h"
 #include "lamina/segment.h"
 #include "lamina/substrate.h"
+#include "lamina/substrate_colour.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -100,6 +101,7 @@ lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const 
                            img->width, img->height);
     lam_substrate_options so = lam_substrate_options_default();
     if (!st && !(st = lam_substrate_estimate(img, &so, &sub, err))) {
+        memcpy(im->substrate_level, sub.level, sizeof sub.level);
         lam_contrast_in_place(img, &sub, 1);
         st = labelled_regions(img, &sub, labels, setup->camera.channels, im, err);
     }
@@ -125,6 +127,7 @@ lam_status lam_calib_measure_self(lam_calib_set *set, const char *path, const la
     lam_status st = lam_analyze(path, setup, &opt, &a, err);
     if (st)
         return st;
+    memcpy(im->substrate_level, a->substrate.level, sizeof a->substrate.level);
     im->regions = malloc((a->count ? a->count : 1) * sizeof *im->regions);
     if (!im->regions)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate regions");
@@ -227,6 +230,7 @@ static void write_profile(const lam_estimate *e, const lam_setup *start, lam_cal
 {
     lam_setup *s = &res->setup;
     *s = *start;
+    s->substrate_colour.oxide_nm = NAN; /* a start's colour belongs to its own fit */
     const lam_nuisance *sh = e->shared;
     s->sheet.continuum = sh[LAM_NU_CONTINUUM].value;
     s->sheet.resonance = sh[LAM_NU_RESONANCE].value;
@@ -248,6 +252,34 @@ static void write_profile(const lam_estimate *e, const lam_setup *start, lam_cal
     s->sigma.shift_nm = ssd;
     s->sigma.log_gain = gsd;
     s->sigma.log_width = wsd;
+}
+
+/* The substrate's colour at the oxide of the image whose oxide is best
+ * known (given, else the fit's with its index share). */
+static lam_status record_colour(const lam_estimate *e, const lam_calib_set *set,
+                                lam_calib_result *res, lam_error *err)
+{
+    if (e->channels < 3)
+        return LAM_OK;
+    size_t best = 0;
+    double best_sd = INFINITY;
+    for (size_t j = 0; j < e->images; j++) {
+        const lam_nuisance *o = &e->image[j].oxide;
+        double index = LAM_OXIDE_INDEX_REL * o->value;
+        double sd = o->fitted ? sqrt(o->sigma * o->sigma + index * index) : LAM_KNOWN_OXIDE_SD_NM;
+        if (sd < best_sd)
+            best = j, best_sd = sd;
+    }
+    if (!isfinite(best_sd))
+        return LAM_OK;
+    lam_substrate_colour *sc = &res->setup.substrate_colour;
+    lam_status st = lam_substrate_colour_record(set->image[best].substrate_level, e->channels,
+                                                sc->ln_level, err);
+    if (!st) {
+        sc->oxide_nm = e->image[best].oxide.value;
+        sc->oxide_sd_nm = best_sd;
+    }
+    return st;
 }
 
 static lam_status check_labels(const lam_calib_result *res, const lam_calib_set *set,
@@ -293,8 +325,10 @@ lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set,
         for (size_t j = 0; j < e->images; j++)
             take_value(&res->oxide[j], &e->image[j].oxide);
         write_profile(e, start, res);
-        st = check_labels(res, set, err);
+        st = record_colour(e, set, res, err);
     }
+    if (!st)
+        st = check_labels(res, set, err);
     lam_estimate_free(e);
     lam_model_free(m);
     if (st)

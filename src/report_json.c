@@ -136,6 +136,17 @@ static void add_substrate(cJSON *root, const lam_analysis *a)
     cJSON_AddNumberToObject(ox, "regions_used", (double)a->oxide.regions_used);
     cJSON_AddItemToObject(ox, "pass", a->oxide.fitted ? cJSON_CreateBool(a->oxide.pass)
                                                       : cJSON_CreateNull());
+    const lam_colour_oxide *c = &a->oxide.colour;
+    if (c->checked) {
+        cJSON *co = cJSON_AddObjectToObject(ox, "from_colour");
+        cJSON_AddItemToObject(co, "estimate", num_or_null(round4(c->estimate)));
+        cJSON_AddItemToObject(co, "sigma", num_or_null(round4(c->sigma)));
+        cJSON_AddItemToObject(co, "chi2", num_or_null(round4(c->chi2)));
+        cJSON_AddItemToObject(co, "reference", num_or_null(c->reference_nm));
+        cJSON_AddBoolToObject(co, "used", c->used);
+        if (c->note[0])
+            cJSON_AddStringToObject(co, "note", c->note);
+    }
 }
 
 static void add_probabilities(cJSON *o, const lam_region_result *r, size_t K)

@@ -46,6 +46,13 @@ static const lam_setup_number numbers[] = {
     {"uncertainty.background", 0, 200, FIELD(sigma.background), "uncertainty"},
     {"uncertainty.continuum", 0, 2, FIELD(sigma.continuum), "uncertainty"},
     {"uncertainty.oxide_nm", LAM_OXIDE_SD_MIN_NM, 500, FIELD(sigma.oxide_nm), "uncertainty"},
+    /* the substrate's colour at a known oxide (a calibration writes it) */
+    {"substrate_colour.oxide_nm", 0, 2000, FIELD(substrate_colour.oxide_nm), "substrate_colour"},
+    {"substrate_colour.oxide_sd_nm", 0, 100, FIELD(substrate_colour.oxide_sd_nm),
+     "substrate_colour"},
+    {"substrate_colour.stability", 1e-4, 0.5, FIELD(substrate_colour.stability),
+     "substrate_colour"},
+    {"substrate_colour.lamp_tilt", 0, 1, FIELD(substrate_colour.lamp_tilt), "substrate_colour"},
 };
 #define N_NUMBERS (sizeof numbers / sizeof numbers[0])
 
@@ -60,7 +67,8 @@ static const char *const other_keys[] = {
 /* The keys each object's reader uses besides the table's numbers. */
 static const char *const root_keys[] = {"schema", "objective", "illuminant", "camera",
                                         "encoding", "substrate", "material", "conductivity",
-                                        "uncertainty", "calibration", "observation", NULL};
+                                        "uncertainty", "calibration", "observation",
+                                        "substrate_colour", NULL};
 static const char *const objective_keys[] = {"na", "illumination_na", "pupil_weight",
                                              "immersion", "cone_nodes", NULL};
 static const char *const illuminant_keys[] = {"kind", "kelvin", "file", NULL};
@@ -143,6 +151,10 @@ void lam_setup_default(lam_setup *s)
         s->camera_gain[c] = s->camera_width[c] = 1;
     s->sigma.na = s->sigma.shift_nm = s->sigma.log_gain = s->sigma.log_width = NAN;
     s->sigma.resonance = s->sigma.background = s->sigma.continuum = s->sigma.oxide_nm = NAN;
+    s->substrate_colour.oxide_nm = NAN;
+    s->substrate_colour.oxide_sd_nm = 0;
+    s->substrate_colour.stability = 0.01;
+    s->substrate_colour.lamp_tilt = 0.05;
     list_defaulted(s);
 }
 
@@ -518,23 +530,40 @@ static lam_status parse_channels(const cJSON *ch, lam_setup *s, lam_error *err)
 
 /* "shift_nm", "contrast_gain", "width_scale": a calibration's corrections,
  * one value per channel. */
-static lam_status parse_channel_values(const cJSON *o, const char *name, size_t channels,
-                                       double lo, double hi, double *out, lam_error *err)
+static lam_status parse_channel_values(const cJSON *o, const char *object, const char *name,
+                                       size_t channels, double lo, double hi, double *out,
+                                       lam_error *err)
 {
     const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, name);
     if (!v)
         return LAM_OK;
     if (!cJSON_IsArray(v) || (size_t)cJSON_GetArraySize(v) != channels)
-        return lam_error_set(err, LAM_EFORMAT, "key camera.%s: expected %zu numbers (one per "
-                             "channel)", name, channels);
+        return lam_error_set(err, LAM_EFORMAT, "key %s.%s: expected %zu numbers (one per "
+                             "channel)", object, name, channels);
     for (size_t c = 0; c < channels; c++) {
         const cJSON *x = cJSON_GetArrayItem(v, (int)c);
         if (!cJSON_IsNumber(x) || !(x->valuedouble >= lo && x->valuedouble <= hi))
-            return lam_error_set(err, LAM_ERANGE, "key camera.%s[%zu]: expected %g to %g", name,
-                                 c, lo, hi);
+            return lam_error_set(err, LAM_ERANGE, "key %s.%s[%zu]: expected %g to %g", object,
+                                 name, c, lo, hi);
         out[c] = x->valuedouble;
     }
     return LAM_OK;
+}
+
+/* "substrate_colour": its numbers are read with the table's; here the
+ * per-channel ratios, which need the camera's channel count, and the
+ * check that a recorded colour has its oxide. */
+static lam_status parse_substrate_colour(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    static const char *const keys[] = {"ln_level", NULL};
+    lam_status st = check_keys(o, "substrate_colour", keys, err);
+    if (!st)
+        st = parse_channel_values(o, "substrate_colour", "ln_level", s->camera.channels, -50, 50,
+                                  s->substrate_colour.ln_level, err);
+    if (!st && (!cJSON_GetObjectItemCaseSensitive(o, "ln_level") ||
+                !isfinite(s->substrate_colour.oxide_nm)))
+        st = lam_error_set(err, LAM_EFORMAT, "key substrate_colour: needs oxide_nm and ln_level");
+    return st;
 }
 
 static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, lam_error *err)
@@ -554,11 +583,11 @@ static lam_status parse_camera(const cJSON *o, lam_setup *s, const char *dir, la
         s->camera.channels = s->camera.table.columns;
     size_t n = s->camera.channels;
     if (!st)
-        st = parse_channel_values(o, "shift_nm", n, -100, 100, s->camera_shift_nm, err);
+        st = parse_channel_values(o, "camera", "shift_nm", n, -100, 100, s->camera_shift_nm, err);
     if (!st)
-        st = parse_channel_values(o, "contrast_gain", n, 0.2, 2, s->camera_gain, err);
+        st = parse_channel_values(o, "camera", "contrast_gain", n, 0.2, 2, s->camera_gain, err);
     if (!st)
-        st = parse_channel_values(o, "width_scale", n, 0.4, 2.5, s->camera_width, err);
+        st = parse_channel_values(o, "camera", "width_scale", n, 0.4, 2.5, s->camera_width, err);
     if (!st)
         mark_given(s, "camera");
     return st;
@@ -770,6 +799,8 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
                              s->base.name);
     if (ITEM("uncertainty") && (st = check_keys(v, "uncertainty", (const char *const[]){NULL}, err)))
         return st;
+    if (ITEM("substrate_colour") && (st = parse_substrate_colour(v, s, err)))
+        return st;
     if (ITEM("spectrum")) {
         if ((st = check_keys(v, "spectrum", (const char *const[]){NULL}, err)))
             return st;
@@ -926,8 +957,15 @@ static void save_sample(cJSON *root, const lam_setup *s)
             cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
     }
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
+    int colour = isfinite(s->substrate_colour.oxide_nm);
     for (size_t i = 0; i < N_NUMBERS; i++)
-        put_number(root, s, &numbers[i]);
+        if (colour || strncmp(numbers[i].key, "substrate_colour.", 17))
+            put_number(root, s, &numbers[i]);
+    if (colour) {
+        cJSON *o = cJSON_GetObjectItemCaseSensitive(root, "substrate_colour");
+        cJSON_AddItemToObject(o, "ln_level", cJSON_CreateDoubleArray(s->substrate_colour.ln_level,
+                                                                     (int)s->camera.channels));
+    }
 }
 
 lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *extra,

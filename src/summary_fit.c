@@ -253,6 +253,11 @@ lam_status lam_summary_calibration(const lam_calib_result *r, const char *const 
         fprintf(f, "  label %zu (%dL) in %s: chi2 %.2f (p %.2g)\n", k + 1, x->layers,
                 images[x->image], x->chi2, x->pvalue);
     }
+    const lam_substrate_colour *c = &r->setup.substrate_colour;
+    if (isfinite(c->oxide_nm))
+        fprintf(f, "substrate colour recorded at %.1f +- %.1f nm of oxide: later images read "
+                   "their oxide from it while the lamp and white balance stay as they are\n",
+                c->oxide_nm, c->oxide_sd_nm);
     return lam__text_close(&t, text, err);
 }
 

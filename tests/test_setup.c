@@ -306,6 +306,39 @@ static void test_round_trip(void)
     lam_setup_clear(&b);
 }
 
+/* A calibration's record of the substrate's colour: read, refused when
+ * incomplete, and written back as it was read. */
+static void test_substrate_colour(void)
+{
+    lam_setup s, b;
+    lam_error err;
+    const char *good = HEAD "\"substrate_colour\": {\"oxide_nm\": 291.5, \"oxide_sd_nm\": 0.3, "
+                            "\"ln_level\": [0.1, -0.4, 0.3], \"lamp_tilt\": 0.02}}";
+    check_int(parse(good, &s, &err), LAM_OK, "substrate_colour read (%s)", err.message);
+    check_abs(s.substrate_colour.oxide_nm, 291.5, 0, "its oxide");
+    check_abs(s.substrate_colour.ln_level[1], -0.4, 0, "its levels");
+    check_abs(s.substrate_colour.stability, 0.01, 0, "stability defaults to 0.01");
+    check_abs(s.substrate_colour.lamp_tilt, 0.02, 0, "lamp_tilt as given");
+    char path[512];
+    snprintf(path, sizeof path, "%s/colour.json", check_tmpdir());
+    check_int(lam_setup_save(&s, path, NULL, &err), LAM_OK, "saved (%s)", err.message);
+    lam_setup_default(&b);
+    check_int(lam_setup_load(path, &b, &err), LAM_OK, "loads back (%s)", err.message);
+    check_true(b.substrate_colour.oxide_nm == 291.5 && b.substrate_colour.ln_level[2] == 0.3 &&
+                   b.substrate_colour.oxide_sd_nm == 0.3 && b.substrate_colour.lamp_tilt == 0.02,
+               "the colour survives a round trip");
+    lam_setup_clear(&s);
+    lam_setup_clear(&b);
+    lam_setup_default(&s);
+    check_true(isnan(s.substrate_colour.oxide_nm), "none recorded by default");
+    refused(HEAD "\"substrate_colour\": {\"oxide_nm\": 291.5}}", LAM_EFORMAT, "substrate_colour",
+            "ln_level");
+    refused(HEAD "\"substrate_colour\": {\"oxide_nm\": 291.5, \"ln_level\": [0.1, 0.2]}}",
+            LAM_EFORMAT, "substrate_colour.ln_level", "3 numbers");
+    refused(HEAD "\"substrate_colour\": {\"ln_level\": [0.1, 0.2, 0.3]}}", LAM_EFORMAT,
+            "substrate_colour", "oxide_nm");
+}
+
 static void test_stack_file(void)
 {
     char path[512];
@@ -414,6 +447,7 @@ int main(void)
     test_messages_once();
     test_setters();
     test_round_trip();
+    test_substrate_colour();
     test_stack_file();
     test_build();
     test_seeds();

@@ -61,13 +61,24 @@ typedef struct lam_analysis_options {
     const lam_shared_prior *shared_prior; /* NULL: the setup's priors */
 } lam_analysis_options;
 
+/* What the bare substrate's colour says about the oxide, when the setup
+ * records its colour at a known oxide (lamina/substrate_colour.h). */
+typedef struct lam_colour_oxide {
+    int checked;                     /* the gauge was read */
+    int used;                        /* it agreed with the flakes and was combined */
+    double estimate, sigma, chi2;    /* the gauge's oxide, its sd, its colour chi2 */
+    double reference_nm;             /* the oxide the colour was recorded at */
+    char note[160];                  /* why it was not used, "" when used */
+} lam_colour_oxide;
+
 typedef struct lam_oxide_result {
     double nominal, estimate, sigma; /* estimate = nominal when not fitted */
     double sigma_given_shared;       /* sigma were the shared parameters exact (see
                                       * lam_est_image): the part independent per image */
     int fitted, pass;
     size_t regions_used;
-    char method[128];
+    char method[224];
+    lam_colour_oxide colour;
 } lam_oxide_result;
 
 /* Cumulative seconds at the end of each stage (for --verbose and benchmarks). */

@@ -18,7 +18,11 @@
  * The written profile carries the fitted values in the ordinary keys
  * (conductivity.resonance ..., objective.illumination_na, camera.shift_nm,
  * camera.contrast_gain) and their spreads under "uncertainty", so the
- * analyses that use it start from a tight prior.
+ * analyses that use it start from a tight prior. With three channels it
+ * also records the bare substrate's colour at the oxide of the image whose
+ * oxide is best known (given, else fitted; "substrate_colour",
+ * lamina/substrate_colour.h): later analyses under the same lamp and white
+ * balance read the oxide from it.
  *
  * Ownership: lam_calib_set_init / lam_calib_set_clear; lam_calib_result
  * borrows the start setup's materials (do not clear both).
@@ -34,12 +38,16 @@
 #include "lamina/setup.h"
 
 #define LAM_CALIB_MAX_IMAGES 64
+/* The sd of an oxide given as measured (--known-oxide): ellipsometry of
+ * thermal SiO2 is good to a few tenths of a nm (common practice). */
+#define LAM_KNOWN_OXIDE_SD_NM 0.3
 
 typedef struct lam_calib_image {
     char path[1024];
     size_t count;
     lam_est_region *regions;  /* owned */
     double known_oxide;       /* NAN: fitted */
+    double substrate_level[LAM_MAX_CHANNELS]; /* the bare substrate's linear level */
 } lam_calib_image;
 
 typedef struct lam_calib_set {

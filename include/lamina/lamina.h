@@ -52,6 +52,7 @@
 #include "lamina/setup.h"
 #include "lamina/stage.h"
 #include "lamina/substrate.h"
+#include "lamina/substrate_colour.h"
 #include "lamina/summary.h"
 #include "lamina/textfile.h"
 #include "lamina/thickness.h"

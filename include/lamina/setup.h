@@ -73,6 +73,29 @@ typedef struct lam_setup_number {
  * thermal SiO2 is good to a few tenths of a nm (common practice). */
 #define LAM_OXIDE_SD_MIN_NM 0.1
 
+/* The model takes SiO2 as Malitson's fused silica; thermal oxide films
+ * differ from it by up to ~1 % in index (Gao et al. 2013, one of the
+ * tables in tests/data/nk), which reads as the same share of thickness.
+ * A fitted oxide's sigma carries that share, common to every image of a
+ * chip (so it is part of the shared, not the per-image, uncertainty). */
+#define LAM_OXIDE_INDEX_REL 0.008
+
+/* The bare substrate's colour as this camera and lamp record it, from a
+ * calibration on a chip of known oxide ("substrate_colour" in the file;
+ * lamina/substrate_colour.h uses it as an oxide gauge). oxide_nm is NAN
+ * when none is recorded. */
+typedef struct lam_substrate_colour {
+    double oxide_nm;          /* the oxide it was recorded at */
+    double oxide_sd_nm;       /* that oxide's standard deviation */
+    double ln_level[LAM_MAX_CHANNELS]; /* ln of the substrate's linear level per channel,
+                                        * the mean over channels removed (only differences
+                                        * between channels count) */
+    double stability;         /* sd of each channel's ln level from session to session
+                               * beyond the exposure (white balance, camera), default 0.01 */
+    double lamp_tilt;         /* sd of ln(B/R) from session to session from the lamp's
+                               * colour temperature (a tilt in 1/wavelength), default 0.05 */
+} lam_substrate_colour;
+
 typedef struct lam_setup {
     double objective_na;
     double illumination_na; /* the cone averaged over: asin(NA / n_ambient) */
@@ -103,6 +126,7 @@ typedef struct lam_setup {
     lam_sheet_params sheet;
     double grid_lo_nm, grid_hi_nm, grid_step_nm;
     lam_setup_sigma sigma;
+    lam_substrate_colour substrate_colour;
     size_t defaulted_count;
     const char *defaulted[LAM_SETUP_MAX_DEFAULTED];
     char source[256];       /* file the setup was read from, or "" */

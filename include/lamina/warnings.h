@@ -15,7 +15,9 @@
  * Codes: saturated, underexposed, oxide-off-nominal, encoding-mismatch,
  * setup-defaults, poor-fit, two-readings (the flakes fit two layer
  * counts), monochrome (one channel without a measured oxide),
- * anti-reflection (a substrate below 3 % reflectance in a channel).
+ * anti-reflection (a substrate below 3 % reflectance in a channel),
+ * substrate-colour (the substrate's colour contradicts the calibration's:
+ * lamina/substrate_colour.h).
  *
  * Ownership: plain values inside lam_analysis; nothing to free.
  */

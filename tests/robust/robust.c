@@ -99,15 +99,26 @@ static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_ta
     }
 }
 
-static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tally *t)
+static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tally *t,
+                        FILE *log, const char *name)
 {
     if (!a->oxide.fitted)
         return;
     double err = fabs(a->oxide.estimate - sc->phys.oxide_nm);
+    if (log) /* every image's oxide, to see a bias or a spread */
+        fprintf(log, "%s: oxide true %.2f found %.2f +- %.2f nm%s colour %.2f +- %.2f chi2 %.1f ref %.1f %s\n", name, sc->phys.oxide_nm,
+                a->oxide.estimate, a->oxide.sigma, a->oxide.colour.used ? " [colour]" : "",
+                a->oxide.colour.estimate, a->oxide.colour.sigma, a->oxide.colour.chi2, a->oxide.colour.reference_nm, a->oxide.colour.note);
     t->oxide_n++;
     t->oxide_abs_sum += err;
     t->oxide_abs_max = fmax(t->oxide_abs_max, err);
     t->oxide_within_3 += err <= 3;
+    t->oxide_within_1_5 += err <= 1.5;
+    t->colour_used += a->oxide.colour.used;
+    int colour_warned = lam_warnings_find(&a->warnings, "substrate-colour") != NULL;
+    t->colour_warned += colour_warned;
+    t->oxide_silent += err > 3 * a->oxide.sigma && !colour_warned &&
+                       !lam_warnings_find(&a->warnings, "oxide-off-nominal");
     t->oxide_covered += err <= 2 * a->oxide.sigma;
 }
 
@@ -147,7 +158,7 @@ static int analyse(const char *img, const lam_setup *s, const lam_shared_prior *
         t->seconds += now_s() - t0;
         t->images++;
         score_flakes(sc, a, t, log, name);
-        score_oxide(sc, a, t);
+        score_oxide(sc, a, t, log, name);
         if (pool && lam_pool_add(pool, a, &err)) {
             fprintf(stderr, "robust: %s: %s\n", img, err.message);
             rc = -1;
@@ -216,16 +227,50 @@ typedef struct scan {
     int made;
 } scan;
 
+/* A uniform number in [lo, hi) from a seed (splitmix64), for the harness'
+ * own draws, apart from the renderer's streams. */
+static double harness_uniform(unsigned long long *state, double lo, double hi)
+{
+    unsigned long long z = (*state += 0x9e3779b97f4a7c15ULL);
+    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
+    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
+    z ^= z >> 31;
+    return lo + (hi - lo) * (double)(z >> 11) / 9007199254740992.0;
+}
+
+/* Tile k of a scan taken on other days with the same microscope: every
+ * other tile on another chip (its oxide 3-12 nm off the first's), each
+ * with its own exposure and a white balance drifted by up to 0.8 % per
+ * channel (the lamp and camera settings kept, as a calibration needs), or
+ * changed by the case's session_wb factors. */
+static void other_session(robust_case *t, const synth_scene *first, unsigned long long seed,
+                          int k)
+{
+    unsigned long long st = seed * 7919 + (unsigned long long)k;
+    double off = harness_uniform(&st, 3, 12) * (harness_uniform(&st, 0, 1) < 0.5 ? -1 : 1);
+    t->cfg.oxide_nm = first->phys.oxide_nm + (k % 2 ? off : 0);
+    t->cfg.exposure = harness_uniform(&st, 0.35, 0.8);
+    for (int c = 0; c < 3; c++)
+        t->cfg.wb_drift[c] = t->session_wb[c] > 0 ? t->session_wb[c]
+                                                  : 1 + harness_uniform(&st, -0.008, 0.008);
+}
+
+/* The tiles of one scan (one physics seed); with 'sessions', tiles after
+ * the first as other_session draws them. */
 static int render_scan(const robust_case *c, unsigned long long seed, int tiles, const char *dir,
-                       char prefix, scan *sn)
+                       char prefix, int sessions, scan *sn)
 {
     snprintf(sn->setup, sizeof sn->setup, "%s/%c%llu-%d.setup.json", dir, prefix, seed,
              (int)c->fmt);
     int rc = 0;
-    for (sn->made = 0; sn->made < tiles && !rc; sn->made++)
-        rc = render_tile(c, seed, seed * 1000 + (unsigned long long)sn->made, dir,
+    for (sn->made = 0; sn->made < tiles && !rc; sn->made++) {
+        robust_case t = *c;
+        if (sessions && sn->made)
+            other_session(&t, &sn->sc[0], seed, sn->made);
+        rc = render_tile(&t, seed, seed * 1000 + (unsigned long long)sn->made, dir,
                          &sn->sc[sn->made], sn->img[sn->made], sizeof sn->img[0],
                          sn->made ? NULL : sn->setup);
+    }
     if (rc)
         sn->made--;
     return rc;
@@ -243,7 +288,7 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
     if (tiles < 1 || tiles > LAM_POOL_MAX)
         return -1;
     scan sn;
-    int rc = render_scan(c, seed, tiles, dir, 'b', &sn);
+    int rc = render_scan(c, seed, tiles, dir, 'b', 0, &sn);
     lam_setup s;
     lam_pool *pool = NULL;
     lam_shared_prior prior;
@@ -284,6 +329,10 @@ void robust_add(robust_tally *into, const robust_tally *t)
     into->images += t->images;
     into->oxide_n += t->oxide_n;
     into->oxide_within_3 += t->oxide_within_3;
+    into->oxide_within_1_5 += t->oxide_within_1_5;
+    into->colour_used += t->colour_used;
+    into->colour_warned += t->colour_warned;
+    into->oxide_silent += t->oxide_silent;
     into->oxide_covered += t->oxide_covered;
     into->oxide_abs_sum += t->oxide_abs_sum;
     into->oxide_abs_max = fmax(into->oxide_abs_max, t->oxide_abs_max);
@@ -309,6 +358,10 @@ void robust_print(FILE *f, const char *label, const robust_tally *t)
             pct(t->right_n[3], t->by_n[3]), pct(t->confident_right, t->confident), t->confident,
             pct(quiet_right, quiet), quiet, t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN, t->oxide_abs_max,
             pct(t->oxide_within_3, t->oxide_n), pct(t->oxide_covered, t->oxide_n));
+    fprintf(f, ", <=1.5 nm %.0f %%, beyond 3 sigma unwarned %zu", pct(t->oxide_within_1_5, t->oxide_n),
+            t->oxide_silent);
+    if (t->colour_used || t->colour_warned)
+        fprintf(f, "  substrate colour used %zu, refused %zu", t->colour_used, t->colour_warned);
     if (t->fermi_n)
         fprintf(f, "  Fermi: covered %.0f %% of %zu, blocking seen %zu, mean width %.2f eV",
                 pct(t->fermi_covered, t->fermi_n), t->fermi_n, t->fermi_seen,
@@ -364,19 +417,21 @@ void robust_case_init(robust_case *c)
     synth_config_init(&c->cfg);
 }
 
-int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles,
-                          int oxide_given, const char *dir, robust_tally *alone,
-                          robust_tally *calibrated, FILE *log)
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, int flags,
+                          const char *dir, robust_tally *alone, robust_tally *calibrated,
+                          FILE *log)
 {
     if (tiles < 2 || tiles > LAM_POOL_MAX)
         return -1;
     scan sn;
-    int rc = render_scan(c, seed, tiles, dir, 'c', &sn);
+    int rc = render_scan(c, seed, tiles, dir, 'c', flags & ROBUST_CAL_SESSIONS, &sn);
     lam_setup s;
     lam_calib_result cal;
     memset(&cal, 0, sizeof cal);
     if (!rc && !(rc = load_setup(sn.setup, &s))) {
-        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, oxide_given, &cal);
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags & ROBUST_CAL_OXIDE, &cal);
+        if (flags & ROBUST_CAL_NO_COLOUR)
+            cal.setup.substrate_colour.oxide_nm = NAN;
         for (int k = 1; k < tiles && !rc; k++)
             rc = analyse(sn.img[k], &s, NULL, &sn.sc[k], alone, log, NULL) ||
                  analyse(sn.img[k], &cal.setup, NULL, &sn.sc[k], calibrated, log, NULL);

@@ -29,6 +29,10 @@ typedef struct robust_tally {
                                          * oxide-off-nominal, monochrome) */
     size_t images, oxide_n, oxide_within_3, oxide_covered; /* covered: |err| <= 2 sigma */
     double oxide_abs_sum, oxide_abs_max;
+    size_t oxide_within_1_5;            /* |err| <= 1.5 nm */
+    size_t colour_used, colour_warned;  /* the substrate colour joined the oxide / was
+                                         * refused with a "substrate-colour" warning */
+    size_t oxide_silent;                /* |err| > 3 sigma with no warning about the oxide */
     size_t fermi_n, fermi_covered, fermi_seen; /* doped monolayers */
     double fermi_width_sum;
     double seconds;
@@ -41,6 +45,8 @@ typedef struct robust_case {
     int informed;       /* 1: the setup gives camera, lamp, NA, encoding */
     const char *pooled_setup; /* not NULL: analyse with this setup instead */
     double oxide_known_nm;    /* > 0: the setup gives the true oxide with this sd (measured) */
+    double session_wb[3];     /* other sessions of a calibrated scan: the white balance
+                               * changed by these factors (0: a drift up to 0.8 %) */
 } robust_case;
 
 /* Every field zero (no pooled setup, oxide not given, uninformed) and the
@@ -64,11 +70,19 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
  * physics of 'seed' has its largest monolayer labelled, the setup is
  * calibrated on it (lamina/calibrate.h; with oxide_given, that tile's true
  * oxide fixed as if measured by ellipsometry: `calibrate --known-oxide`),
- * and the other tiles are analysed with the setup as it was (tallied in
- * 'alone') and as calibrated ('calibrated'). 2 <= tiles <= LAM_POOL_MAX. */
-int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles,
-                          int oxide_given, const char *dir, robust_tally *alone,
-                          robust_tally *calibrated, FILE *log);
+ * and the other tiles (with ROBUST_CAL_SESSIONS taken on other days and
+ * every other one on another chip: robust.c, other_session) are analysed
+ * with the setup as it was (tallied in 'alone') and as calibrated
+ * ('calibrated'); with
+ * ROBUST_CAL_NO_COLOUR the calibration's substrate colour is dropped
+ * (lamina/substrate_colour.h), to see what it adds.
+ * 2 <= tiles <= LAM_POOL_MAX. */
+#define ROBUST_CAL_OXIDE 1
+#define ROBUST_CAL_NO_COLOUR 2
+#define ROBUST_CAL_SESSIONS 4  /* the other tiles from other days and chips */
+int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, int flags,
+                          const char *dir, robust_tally *alone, robust_tally *calibrated,
+                          FILE *log);
 
 /* The analysis region covering most of object o's pixels (0: none), and
  * how many of them it covers. */

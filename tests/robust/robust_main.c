@@ -1,15 +1,16 @@
 /* robust_main.c - build/tests/robust: the accuracy matrix of issue 9 on
  * the independent generator's images (`make accuracy`).
  *   robust [--scenes N] [--batch T] [--seed S] [--only informed|uninformed]
- *          [--calibrate T] [--log FILE]
+ *          [--calibrate T [--no-colour]] [--log FILE]
  * One line per response x oxide x format x knowledge, then totals by
  * response, oxide and format. --batch T: each scene is a chip scan of T
  * tiles sharing one microscope, response and oxide, scored once with each
  * tile analysed alone and once with the prior pooled over the scan.
  * --calibrate T: the same scans, the setup calibrated on the largest
  * monolayer of the first tile with that tile's oxide given (as from
- * ellipsometry); the other T-1 tiles scored with the setup as it was and
- * as calibrated. */
+ * ellipsometry); the other T-1 tiles (other days, every other one another
+ * chip) scored with the setup as it was and as calibrated; --no-colour
+ * drops the calibration's substrate colour. */
 #include "robust.h"
 #include "../check.h"
 #include "lamina/error.h"
@@ -31,7 +32,7 @@ static const struct { synth_format fmt; int q; const char *name; } formats[] = {
 #define NF 4
 
 typedef struct options {
-    int scenes, batch, calibrate, only;
+    int scenes, batch, calibrate, only, no_colour;
     unsigned long long seed;
     FILE *log;
 } options;
@@ -74,7 +75,9 @@ static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
     unsigned long long base = o->seed + (unsigned long long)(((r * NO + x) * NF + f) * 100);
     for (int k = 0; k < o->scenes; k++) {
         if (o->calibrate)
-            robust_run_calibrated(&c, base + (unsigned long long)k, o->calibrate, 1,
+            robust_run_calibrated(&c, base + (unsigned long long)k, o->calibrate,
+                                  ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS |
+                                      (o->no_colour ? ROBUST_CAL_NO_COLOUR : 0),
                                   "build/tests/robust-out", &t[0], &t[1], o->log);
         else if (o->batch)
             robust_run_batch(&c, base + (unsigned long long)k, o->batch, "build/tests/robust-out",
@@ -122,7 +125,7 @@ static void print_totals(const options *o, int inf, const tallies *T)
 int main(int argc, char **argv)
 {
     lam_error_init_gsl();
-    options o = {2, 0, 0, -1, 1000, NULL};
+    options o = {2, 0, 0, -1, 0, 1000, NULL};
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
             o.scenes = atoi(argv[++i]);
@@ -134,6 +137,8 @@ int main(int argc, char **argv)
             o.seed = strtoull(argv[++i], NULL, 10);
         else if (!strcmp(argv[i], "--only") && i + 1 < argc)
             o.only = !strcmp(argv[++i], "informed");
+        else if (!strcmp(argv[i], "--no-colour"))
+            o.no_colour = 1;
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
             o.log = fopen(argv[++i], "w");
         else {

@@ -130,6 +130,8 @@ typedef struct synth_config {
     double doped_eV[8];
     int n_flakes;               /* 0: 6..14 (not counting doped monolayers) */
     double exposure;            /* NAN: 0.35..0.8 of full scale */
+    double wb_drift[3];         /* white balance drifted from the lamp's: each channel's
+                                 * values times this (0: 1, no drift) */
     int noiseless;              /* 1: no shot or read noise */
     int no_flat_field;          /* 1: no vignetting or gradient */
     double blur_px;             /* NAN: Gaussian sigma 0.5..1.5 px; 0: none */

@@ -113,6 +113,9 @@ void synth_physics_draw(const synth_config *cfg, synth_rng *r, synth_physics *p)
     draw_optics(cfg, r, p);
     draw_camera(cfg, r, p);
     draw_crystal(cfg, r, p);
+    for (int k = 0; k < 3; k++) /* a white balance off the lamp's by a factor */
+        for (int i = 0; i < SYNTH_NL && cfg->wb_drift[k] > 0; i++)
+            p->weight[k][i] *= cfg->wb_drift[k];
 }
 
 static int check_config(const synth_config *cfg)
@@ -137,6 +140,9 @@ static int check_config(const synth_config *cfg)
                           cfg->hbn_max_nm);
     if (!isnan(cfg->lamp_kelvin) && !(cfg->lamp_kelvin >= 1000 && cfg->lamp_kelvin <= 20000))
         return synth_fail("lamp temperature %g K is outside 1000..20000", cfg->lamp_kelvin);
+    for (int k = 0; k < 3; k++)
+        if (cfg->wb_drift[k] != 0 && !(cfg->wb_drift[k] >= 0.5 && cfg->wb_drift[k] <= 2))
+            return synth_fail("white balance drift %g is outside 0.5..2", cfg->wb_drift[k]);
     for (int k = 0; k < 3; k++)
         if ((!isnan(cfg->gauss_centre_nm[k]) && !(cfg->gauss_centre_nm[k] > 300)) ||
             (!isnan(cfg->gauss_fwhm_nm[k]) && !(cfg->gauss_fwhm_nm[k] > 1)))

@@ -1,0 +1,101 @@
+/* analyze_colour.c - the oxide from the bare substrate's colour, combined
+ * with the flakes' fit when the two agree (lamina/substrate_colour.h). */
+#include "analyze_internal.h"
+#include "lamina/substrate_colour.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+/* The colour is searched over the flakes' oxide +- RANGE_SD of its sd, at
+ * least RANGE_MIN_NM each side; it must agree with it within AGREE_SD of
+ * the two sds combined. */
+#define RANGE_SD 4.0
+#define RANGE_MIN_NM 15.0
+#define AGREE_SD 3.0
+
+/* The fit's point and its covariance of the parameters the substrate's
+ * reflectance depends on. */
+static lam_colour_point colour_point(const lam_estimate *e, const lam_setup *s)
+{
+    lam_colour_point p;
+    memset(&p, 0, sizeof p);
+    p.point = lam_estimate_point(e, 0);
+    p.change_share = lam_setup_is_default(s, "camera") ? LAM_COLOUR_CHANGE_UNKNOWN
+                                                       : LAM_COLOUR_CHANGE_GIVEN;
+    int at[LAM_NU_COUNT];
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        at[k] = -1;
+    at[LAM_NU_NA] = LAM_COLOUR_NA;
+    for (int c = 0; c < LAM_MAX_CHANNELS; c++) {
+        at[LAM_NU_SHIFT + c] = LAM_COLOUR_SHIFT + c;
+        at[LAM_NU_WIDTH + c] = LAM_COLOUR_WIDTH + c;
+    }
+    for (size_t a = 0; a < e->nfree; a++)
+        for (size_t b = 0; b < e->nfree; b++) {
+            int ka = at[e->free_index[a]], kb = at[e->free_index[b]];
+            if (ka >= 0 && kb >= 0)
+                p.cov[ka][kb] = e->cov[a][b];
+        }
+    return p;
+}
+
+/* Read the gauge around the flakes' oxide d_f (sd s_f). */
+static lam_status read_gauge(const lam_analysis *a, const lam_setup *s, lam_model *model,
+                             double d_f, double s_f, lam_colour_gauge *g, lam_error *err)
+{
+    double half = fmax(RANGE_SD * s_f, RANGE_MIN_NM);
+    lam_colour_point p = colour_point(a->estimate, s);
+    return lam_substrate_colour_gauge(model, &p, &s->substrate_colour, a->substrate.level,
+                                      a->channels, d_f - half, d_f + half, g, err);
+}
+
+/* Whether the gauge may join the fit; if not, why (c->note) and a
+ * warning where the colour contradicts the calibration. */
+static int gauge_agrees(lam_analysis *a, const lam_colour_gauge *g, double d_f, double s_f)
+{
+    lam_colour_oxide *c = &a->oxide.colour;
+    if (!g->found || g->ambiguous) {
+        snprintf(c->note, sizeof c->note, "the substrate's colour fits %s in %.0f-%.0f nm",
+                 g->found ? "more than one oxide" : "no single oxide", d_f - RANGE_MIN_NM,
+                 d_f + RANGE_MIN_NM);
+        return 0;
+    }
+    double z = fabs(g->oxide_nm - d_f) / sqrt(s_f * s_f + g->sigma_nm * g->sigma_nm);
+    if (g->fits && z <= AGREE_SD)
+        return 1;
+    if (!g->fits)
+        snprintf(c->note, sizeof c->note,
+                 "the substrate's colour fits no oxide (chi2 %.0f): lamp, white balance or camera "
+                 "changed since the calibration", g->chi2);
+    else
+        snprintf(c->note, sizeof c->note,
+                 "the substrate's colour says %.1f +- %.1f nm, the flakes %.1f +- %.1f nm",
+                 g->oxide_nm, g->sigma_nm, d_f, s_f);
+    lam_warnings_add(&a->warnings, "substrate-colour",
+                     "%s; the oxide is the flakes' alone: recalibrate (lamina calibrate) if the "
+                     "lamp or camera settings changed",
+                     c->note);
+    return 0;
+}
+
+lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *model,
+                             lam_error *err)
+{
+    lam_colour_oxide *c = &a->oxide.colour;
+    *c = (lam_colour_oxide){0, 0, NAN, NAN, NAN, NAN, ""};
+    const lam_estimate *e = a->estimate;
+    const lam_nuisance *o = &e->image[0].oxide;
+    if (!isfinite(s->substrate_colour.oxide_nm) || a->channels < 3 || !o->fitted ||
+        !e->image[0].regions_used)
+        return LAM_OK;
+    lam_colour_gauge g;
+    double d_f = o->value, s_f = o->sigma;
+    lam_status st = read_gauge(a, s, model, d_f, s_f, &g, err);
+    if (st)
+        return st;
+    *c = (lam_colour_oxide){1, 0, g.oxide_nm, g.sigma_nm, g.chi2, s->substrate_colour.oxide_nm,
+                            ""};
+    c->used = gauge_agrees(a, &g, d_f, s_f);
+    return LAM_OK;
+}

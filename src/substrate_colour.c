@@ -1,0 +1,234 @@
+/* substrate_colour.c - the substrate's colour as an oxide gauge
+ * (lamina/substrate_colour.h). */
+#include "lamina/substrate_colour.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#define GRID_STEP_NM 0.5
+#define AMBIGUOUS_DCHI2 4.0
+#define AMBIGUOUS_SD 3.0
+#define NC LAM_MAX_CHANNELS
+
+/* The model parameter of each colour parameter. */
+static int model_param(int k)
+{
+    if (k == LAM_COLOUR_NA)
+        return LAM_MP_NA;
+    if (k < LAM_COLOUR_WIDTH)
+        return LAM_MP_SHIFT + (k - LAM_COLOUR_SHIFT);
+    return LAM_MP_WIDTH + (k - LAM_COLOUR_WIDTH);
+}
+
+/* ln R_c of the bare substrate at oxide d (the other parameters of p). */
+static lam_status log_reflectance(lam_model *m, const lam_model_point *p, double d, size_t nc,
+                                  double *out, lam_error *err)
+{
+    lam_model_point q = *p;
+    q.v[LAM_MP_OXIDE] = d;
+    lam_prediction P;
+    lam_status st = lam_model_eval_point(m, &q, 1, &P, err);
+    for (size_t c = 0; c < nc && !st; c++) {
+        if (!(P.substrate[c] > 0))
+            return lam_error_set(err, LAM_ERANGE, "the substrate reflects no light in channel %zu",
+                                 c + 1);
+        out[c] = log(P.substrate[c]);
+    }
+    return st;
+}
+
+static lam_status check_levels(const double *level, size_t channels, lam_error *err)
+{
+    if (channels != NC)
+        return lam_error_set(err, LAM_EINVAL, "the substrate's colour needs three channels");
+    for (size_t c = 0; c < channels; c++)
+        if (!(level[c] > 0))
+            return lam_error_set(err, LAM_ERANGE, "the substrate is black in channel %zu", c + 1);
+    return LAM_OK;
+}
+
+lam_status lam_substrate_colour_record(const double *level, size_t channels, double *ln_level,
+                                       lam_error *err)
+{
+    lam_status st = check_levels(level, channels, err);
+    if (st)
+        return st;
+    double mean = 0;
+    for (size_t c = 0; c < channels; c++)
+        mean += log(level[c]) / (double)channels;
+    for (size_t c = 0; c < channels; c++)
+        ln_level[c] = log(level[c]) - mean;
+    return LAM_OK;
+}
+
+/* J[c][k]: d(ln R_c(d) - ln R_c(d0)) / d param k, central differences, for
+ * the parameters with a variance. */
+static lam_status jacobian(lam_model *m, const lam_colour_point *p, double d, double d0,
+                           double J[NC][LAM_COLOUR_PARAMS], lam_error *err)
+{
+    memset(J, 0, sizeof(double) * NC * LAM_COLOUR_PARAMS);
+    lam_status st = LAM_OK;
+    for (int k = 0; k < LAM_COLOUR_PARAMS && !st; k++) {
+        if (!(p->cov[k][k] > 0))
+            continue;
+        int mp = model_param(k);
+        double h = lam_model_step((lam_model_param)mp), a[NC], b[NC], a0[NC], b0[NC];
+        lam_model_point up = p->point, dn = p->point;
+        up.v[mp] += h;
+        dn.v[mp] -= h;
+        if ((st = log_reflectance(m, &up, d, NC, a, err)) ||
+            (st = log_reflectance(m, &dn, d, NC, b, err)) ||
+            (st = log_reflectance(m, &up, d0, NC, a0, err)) ||
+            (st = log_reflectance(m, &dn, d0, NC, b0, err)))
+            break;
+        for (int c = 0; c < NC; c++)
+            J[c][k] = ((a[c] - a0[c]) - (b[c] - b0[c])) / (2 * h);
+    }
+    return st;
+}
+
+/* The inverse covariance of the differences to the last channel,
+ * u_a = r_a - r_2: D (s^2 I + J C J^T) D^T inverted. */
+/* A lamp's colour temperature changes ln L_c by b / lambda_c (Wien:
+ * ln B = const - hc / (lambda k T)); at the usual centroids of a colour
+ * camera's R, G and B channels. */
+static const double channel_nm[NC] = {600, 530, 460};
+
+static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_point *p,
+                     const lam_substrate_colour *ref, const double *change, double prec[2][2])
+{
+    double S[NC][NC], s = ref->stability;
+    /* the tilt's sd per unit 1/lambda, from its sd between the B and R channels */
+    double tilt = ref->lamp_tilt / (1 / channel_nm[2] - 1 / channel_nm[0]);
+    for (int c = 0; c < NC; c++)
+        for (int e = 0; e < NC; e++) {
+            double ch = p->change_share * change[c];
+            double v = (c == e ? s * s + ch * ch : 0) +
+                       tilt * tilt / (channel_nm[c] * channel_nm[e]);
+            for (int k = 0; k < LAM_COLOUR_PARAMS; k++)
+                for (int l = 0; l < LAM_COLOUR_PARAMS; l++)
+                    v += J[c][k] * p->cov[k][l] * J[e][l];
+            S[c][e] = v;
+        }
+    double U[2][2];
+    for (int a = 0; a < 2; a++)
+        for (int b = 0; b < 2; b++)
+            U[a][b] = S[a][b] - S[a][2] - S[2][b] + S[2][2];
+    double det = U[0][0] * U[1][1] - U[0][1] * U[1][0];
+    if (!(det > 0))
+        return -1;
+    prec[0][0] = U[1][1] / det, prec[1][1] = U[0][0] / det;
+    prec[0][1] = prec[1][0] = -U[0][1] / det;
+    return 0;
+}
+
+static double chi2_at(const double *delta, const double *lnR, const double *lnR0,
+                      const double prec[2][2])
+{
+    double r[NC], u[2];
+    for (int c = 0; c < NC; c++)
+        r[c] = delta[c] - (lnR[c] - lnR0[c]);
+    u[0] = r[0] - r[2], u[1] = r[1] - r[2];
+    return u[0] * (prec[0][0] * u[0] + prec[0][1] * u[1]) +
+           u[1] * (prec[1][0] * u[0] + prec[1][1] * u[1]);
+}
+
+/* The parabola through the grid minimum k and its neighbours: the
+ * minimum's place, value and sd (chi2 rises by 1 at 1 sd). */
+static void refine(const double *c, size_t k, double lo, lam_colour_gauge *g)
+{
+    double h = GRID_STEP_NM, cm = c[k - 1], c0 = c[k], cp = c[k + 1];
+    double curv = cm - 2 * c0 + cp;
+    double off = curv > 0 ? 0.5 * (cm - cp) / curv : 0;
+    g->oxide_nm = lo + ((double)k + off) * h;
+    g->chi2 = curv > 0 ? c0 - 0.125 * (cm - cp) * (cm - cp) / curv : c0;
+    g->sigma_nm = curv > 0 ? sqrt(2.0 / (curv / (h * h))) : INFINITY;
+}
+
+/* Another local minimum nearly as good and well apart. */
+static int other_minimum(const double *c, size_t n, size_t best, double lo,
+                         const lam_colour_gauge *g)
+{
+    for (size_t k = 1; k + 1 < n; k++) {
+        if (k == best || c[k] > c[k - 1] || c[k] > c[k + 1])
+            continue;
+        double d = lo + (double)k * GRID_STEP_NM;
+        if (c[k] < g->chi2 + AMBIGUOUS_DCHI2 && fabs(d - g->oxide_nm) > AMBIGUOUS_SD * g->sigma_nm)
+            return 1;
+    }
+    return 0;
+}
+
+/* chi2 over the grid with one precision; the index of its minimum. */
+static size_t scan(const double *delta, const double (*lnR)[NC], const double *lnR0, size_t n,
+                   const double prec[2][2], double *chi2)
+{
+    size_t best = 0;
+    for (size_t k = 0; k < n; k++) {
+        chi2[k] = chi2_at(delta, lnR[k], lnR0, prec);
+        if (chi2[k] < chi2[best])
+            best = k;
+    }
+    return best;
+}
+
+/* The gauge from the tabulated ln R over the grid. */
+static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
+                                  const lam_substrate_colour *ref, const double *delta,
+                                  const double (*lnR)[NC], const double *lnR0, size_t n,
+                                  double lo, double *chi2, lam_colour_gauge *g, lam_error *err)
+{
+    double J[NC][LAM_COLOUR_PARAMS] = {{0}}, prec[2][2], change[NC] = {0, 0, 0};
+    if (precision(J, p, ref, change, prec))
+        return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
+    size_t best = scan(delta, lnR, lnR0, n, prec, chi2);
+    lam_status st = jacobian(m, p, lo + (double)best * GRID_STEP_NM, ref->oxide_nm, J, err);
+    if (st)
+        return st;
+    for (int c = 0; c < NC; c++)
+        change[c] = lnR[best][c] - lnR0[c];
+    if (!precision(J, p, ref, change, prec))
+        best = scan(delta, lnR, lnR0, n, prec, chi2);
+    if (best == 0 || best + 1 >= n)
+        return LAM_OK;
+    refine(chi2, best, lo, g);
+    g->found = isfinite(g->sigma_nm);
+    g->ambiguous = other_minimum(chi2, n, best, lo, g);
+    g->sigma_nm = sqrt(g->sigma_nm * g->sigma_nm + ref->oxide_sd_nm * ref->oxide_sd_nm);
+    g->fits = g->chi2 <= LAM_COLOUR_CHI2_LIMIT;
+    return LAM_OK;
+}
+
+lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
+                                      const lam_substrate_colour *ref, const double *level,
+                                      size_t channels, double lo_nm, double hi_nm,
+                                      lam_colour_gauge *g, lam_error *err)
+{
+    *g = (lam_colour_gauge){0, 0, NAN, NAN, NAN, 0};
+    if (!isfinite(ref->oxide_nm))
+        return lam_error_set(err, LAM_EINVAL, "the setup records no substrate colour");
+    lam_status st = check_levels(level, channels, err);
+    if (st)
+        return st;
+    lo_nm = fmax(0, lo_nm);
+    size_t n = hi_nm > lo_nm ? (size_t)((hi_nm - lo_nm) / GRID_STEP_NM) + 1 : 0;
+    if (n < 3)
+        return lam_error_set(err, LAM_EINVAL, "oxide range %g-%g nm is too short", lo_nm, hi_nm);
+    double (*lnR)[NC] = malloc(n * sizeof *lnR), *chi2 = malloc(n * sizeof *chi2);
+    double lnR0[NC], delta[NC];
+    if (!lnR || !chi2)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the colour profile");
+    for (int c = 0; c < NC; c++)
+        delta[c] = log(level[c]) - ref->ln_level[c];
+    if (!st)
+        st = log_reflectance(m, &p->point, ref->oxide_nm, NC, lnR0, err);
+    for (size_t k = 0; k < n && !st; k++)
+        st = log_reflectance(m, &p->point, lo_nm + (double)k * GRID_STEP_NM, NC, lnR[k], err);
+    if (!st)
+        st = gauge_from_grid(m, p, ref, delta, (const double(*)[NC])lnR, lnR0, n, lo_nm, chi2, g,
+                             err);
+    free(lnR);
+    free(chi2);
+    return st;
+}
