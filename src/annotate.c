@@ -40,6 +40,31 @@ static int colour_index(const lam_region_result *r)
     return v == 254 ? LAM_DRAW_THICK : v == 255 ? LAM_DRAW_UNASSIGNED : (int)v;
 }
 
+/* How a region is drawn: its layer count's colour, or for a film crystal
+ * (hBN) its thickness band's; dashed when unassigned, or when a film's
+ * interference order is ambiguous; 'answered' when it has a count or a
+ * thickness (gets a usable rectangle and a probability). */
+typedef struct look {
+    uint32_t rgb;
+    int dashed, answered;
+    double p;
+} look;
+
+static look region_look(const lam_analysis *a, size_t i)
+{
+    const lam_region_result *r = &a->results[i];
+    int ci = colour_index(r);
+    if (a->thickness) {
+        const lam_thickness_result *t = &a->thickness[i];
+        if (ci != LAM_DRAW_UNASSIGNED && t->evaluated)
+            return (look){lam_draw_thickness_colour(lam_draw_thickness_band(t->estimate)),
+                          t->order_ambiguous, 1, t->probability};
+        return (look){lam_draw_layer_colour(LAM_DRAW_UNASSIGNED), 1, 0, NAN};
+    }
+    double p = ci >= 1 ? r->p[r->layers] : ci == LAM_DRAW_THICK ? r->p[a->max_layers + 1] : NAN;
+    return (look){lam_draw_layer_colour(ci), ci == LAM_DRAW_UNASSIGNED, ci >= 1, p};
+}
+
 /* The 3-byte display in place to cairo's 4-byte xRGB words (and back), so
  * the picture costs one extra byte per pixel, not a second copy. */
 static uint32_t *expand_display(lam_analysis *a)
@@ -93,7 +118,8 @@ static void draw_outlines(scene *S)
     for (int pass = 0; pass < 3; pass++)
         for (size_t i = 0; i < a->count; i++) {
             const lam_region_result *r = &a->results[i];
-            int small = (r->flags & LAM_FLAG_SMALL) != 0, ci = colour_index(r);
+            int small = (r->flags & LAM_FLAG_SMALL) != 0;
+            look lk = region_look(a, i);
             if ((pass < 2) == small)
                 continue;
             region_path(S, i);
@@ -101,12 +127,12 @@ static void draw_outlines(scene *S)
             if (pass == 0) {
                 cairo_save(cr);
                 cairo_clip_preserve(cr);
-                if (ci == LAM_DRAW_UNASSIGNED) {
+                if (lk.dashed) {
                     double d[2] = {4 * band, 2.5 * band};
                     cairo_set_dash(cr, d, 2, 0);
                 }
                 cairo_set_line_width(cr, 2 * band);
-                lam_draw_rgb(cr, lam_draw_layer_colour(ci));
+                lam_draw_rgb(cr, lk.rgb);
                 cairo_stroke(cr);
                 cairo_restore(cr);
             } else if (pass == 1) {
@@ -115,7 +141,7 @@ static void draw_outlines(scene *S)
                 cairo_stroke(cr);
             } else {
                 cairo_set_line_width(cr, fmax(0.7, 0.45 * S->s));
-                lam_draw_rgba(cr, lam_draw_layer_colour(ci), 0.65);
+                lam_draw_rgba(cr, lk.rgb, 0.65);
                 cairo_stroke(cr);
             }
         }
@@ -128,7 +154,8 @@ static void draw_usable(scene *S)
     double lw = fmax(1.0, 1.2 * S->s), d[2] = {5 * lw, 3 * lw};
     for (size_t i = 0; i < a->count; i++) {
         const lam_region_result *r = &a->results[i];
-        if (r->layers <= 0 || (r->flags & LAM_FLAG_SMALL) || !r->usable_px[0] || !r->usable_px[1])
+        look lk = region_look(a, i);
+        if (!lk.answered || (r->flags & LAM_FLAG_SMALL) || !r->usable_px[0] || !r->usable_px[1])
             continue;
         double x = (double)r->usable_at[0], y = (double)r->usable_at[1];
         double w = (double)r->usable_px[0], h = (double)r->usable_px[1];
@@ -139,7 +166,7 @@ static void draw_usable(scene *S)
         cairo_stroke_preserve(cr);
         cairo_set_dash(cr, d, 2, 0);
         cairo_set_line_width(cr, lw);
-        lam_draw_rgb(cr, lam_draw_layer_colour(r->layers));
+        lam_draw_rgb(cr, lk.rgb);
         cairo_stroke(cr);
     }
     cairo_set_dash(cr, NULL, 0, 0);
@@ -213,6 +240,65 @@ static void panel(cairo_t *cr, const box *b, double r)
     cairo_fill(cr);
 }
 
+/* One entry of the legend's colour key. */
+typedef struct legend_item {
+    char text[24];
+    uint32_t rgb;
+    int dashed;
+} legend_item;
+
+/* The key: 1L..6L+, thick and unassigned; for a film crystal its
+ * thickness bands, order-ambiguous and unassigned. Returns the count. */
+static size_t legend_items(const lam_analysis *a, legend_item *it)
+{
+    size_t n = 0;
+    if (a->thickness) {
+        const double *e = lam_draw_thickness_edges;
+        for (int b = 0; b < LAM_DRAW_THICKNESS_BANDS; b++, n++) {
+            if (b == 0)
+                snprintf(it[n].text, sizeof it[n].text, "&lt; %.0f nm", e[0]); /* markup */
+            else if (b == LAM_DRAW_THICKNESS_BANDS - 1)
+                snprintf(it[n].text, sizeof it[n].text, "\u2265 %.0f nm", e[b - 1]);
+            else
+                snprintf(it[n].text, sizeof it[n].text, "%.0f\u2013%.0f nm", e[b - 1], e[b]);
+            it[n].rgb = lam_draw_thickness_colour(b), it[n].dashed = 0;
+        }
+        it[n++] = (legend_item){"order ambiguous", 0xffffff, 1};
+    } else {
+        size_t K = a->max_layers < 6 ? a->max_layers : 6;
+        for (size_t k = 0; k < K; k++, n++) {
+            snprintf(it[n].text, sizeof it[n].text, "%zuL%s", k + 1, k + 1 == 6 ? "+" : "");
+            it[n].rgb = lam_draw_layer_colour((int)k + 1), it[n].dashed = 0;
+        }
+        it[n++] = (legend_item){"thick", lam_draw_layer_colour(LAM_DRAW_THICK), 0};
+    }
+    it[n++] = (legend_item){"unassigned", lam_draw_layer_colour(LAM_DRAW_UNASSIGNED), 1};
+    return n;
+}
+
+static void legend_swatch(cairo_t *cr, const legend_item *it, double cx, double cy, double sw,
+                          double fs)
+{
+    double d[2] = {0.3 * fs, 0.22 * fs};
+    cairo_set_dash(cr, d, it->dashed ? 2 : 0, 0);
+    cairo_set_line_width(cr, 0.3 * fs);
+    lam_draw_rgb(cr, it->rgb);
+    cairo_move_to(cr, cx, cy);
+    cairo_line_to(cr, cx + sw, cy);
+    cairo_stroke(cr);
+    cairo_set_dash(cr, NULL, 0, 0);
+}
+
+/* The oxide line of the legend. */
+static void legend_oxide(const lam_analysis *a, char *ox, size_t n)
+{
+    if (a->oxide.fitted && isfinite(a->oxide.sigma))
+        snprintf(ox, n, "SiO\u2082 %.1f \u00b1 %.1f nm (fitted)", a->oxide.estimate,
+                 a->oxide.sigma);
+    else
+        snprintf(ox, n, "SiO\u2082 %.0f nm (nominal)", a->oxide.nominal);
+}
+
 /* Legend: file, oxide, the colour of each class, the line styles; in a
  * font a little smaller than the labels. */
 static void draw_legend(scene *S)
@@ -223,22 +309,24 @@ static void draw_legend(scene *S)
     char ox[160], name[700];
     const char *base = strrchr(a->file, '/');
     lam_draw_escape(base ? base + 1 : a->file, name, sizeof name);
-    if (a->oxide.fitted && isfinite(a->oxide.sigma))
-        snprintf(ox, sizeof ox, "SiO\u2082 %.1f \u00b1 %.1f nm (fitted)", a->oxide.estimate,
-                 a->oxide.sigma);
-    else
-        snprintf(ox, sizeof ox, "SiO\u2082 %.0f nm (nominal)", a->oxide.nominal);
+    legend_oxide(a, ox, sizeof ox);
     lam_text_style bold = {fs, 1, 0xffffff, 0, 0, 0}, plain = {fs, 0, 0xffffff, 0, 0, 0};
     lam_text_style note = {0.85 * fs, 0, 0xd0d0d0, 0, 0, 0};
-    size_t K = a->max_layers < 6 ? a->max_layers : 6, items = K + 2, cols = 4;
-    const char *key = "label: layers \u00b7 p \u00b7 area \u00b7 #region";
-    double w0, w1, w2, w3, h, cell = 0, last;
+    legend_item it[12];
+    size_t items = legend_items(a, it), cols = a->thickness ? 3 : 4;
+    const char *key = a->thickness ? "label: thickness \u00b7 p \u00b7 area \u00b7 #region"
+                                   : "label: layers \u00b7 p \u00b7 area \u00b7 #region";
+    double w0, w1, w2, wt = 0, h, cell, last;
     lam_draw_text_size(cr, &bold, name, &w0, &h);
     lam_draw_text_size(cr, &plain, ox, &w1, &h);
     lam_draw_text_size(cr, &note, key, &w2, &h);
-    lam_draw_text_size(cr, &plain, "6L+", &w3, &h);
-    cell = sw + 0.3 * fs + w3 + 0.8 * fs;
-    lam_draw_text_size(cr, &plain, "unassigned", &last, &h);
+    for (size_t k = 0; k + 1 < items; k++) {
+        double w;
+        lam_draw_text_size(cr, &plain, it[k].text, &w, &h);
+        wt = fmax(wt, w);
+    }
+    cell = sw + 0.3 * fs + wt + 0.8 * fs;
+    lam_draw_text_size(cr, &plain, it[items - 1].text, &last, &h);
     size_t rows = (items + cols - 1) / cols, in_last = items - (rows - 1) * cols;
     double grid_w = fmax((double)cols * cell, (double)(in_last - 1) * cell + sw + 0.3 * fs + last);
     double W = fmax(fmax(w0, w1), fmax(grid_w, sw + 0.3 * fs + w2)) + 2 * pad;
@@ -253,19 +341,9 @@ static void draw_legend(scene *S)
     lam_draw_text(cr, x, y + row, &plain, ox);
     plain.ay = 0.5;
     for (size_t k = 0; k < items; k++) {
-        int ci = k < K ? (int)k + 1 : k == K ? LAM_DRAW_THICK : LAM_DRAW_UNASSIGNED;
         double cx = x + (double)(k % cols) * cell, cy = y + row * (2.5 + (double)(k / cols));
-        double d[2] = {0.3 * fs, 0.22 * fs};
-        cairo_set_dash(cr, d, ci == LAM_DRAW_UNASSIGNED ? 2 : 0, 0);
-        cairo_set_line_width(cr, 0.3 * fs);
-        lam_draw_rgb(cr, lam_draw_layer_colour(ci));
-        cairo_move_to(cr, cx, cy);
-        cairo_line_to(cr, cx + sw, cy);
-        cairo_stroke(cr);
-        char t[16];
-        snprintf(t, sizeof t, "%zuL%s", k + 1, k + 1 == 6 ? "+" : "");
-        lam_draw_text(cr, cx + sw + 0.3 * fs, cy, &plain,
-                      k < K ? t : k == K ? "thick" : "unassigned");
+        legend_swatch(cr, &it[k], cx, cy, sw, fs);
+        lam_draw_text(cr, cx + sw + 0.3 * fs, cy, &plain, it[k].text);
     }
     double ky = y + row * (2.0 + (double)rows) + 0.15 * fs;
     double d[2] = {0.25 * fs, 0.18 * fs};
@@ -321,17 +399,16 @@ static void label_markup(const lam_analysis *a, size_t i, char *out, size_t n)
     snprintf(area, sizeof area, " \u00b7 %.*f %s", ar < 10 ? 1 : 0, ar,
              u > 0 ? "\u00b5m\u00b2" : "px");
     int ci = colour_index(r);
-    uint32_t c = lam_draw_layer_colour(ci);
-    double p = ci >= 1 ? r->p[r->layers] : ci == LAM_DRAW_THICK ? r->p[a->max_layers + 1] : NAN;
+    look lk = region_look(a, i);
     char prob[32] = "", t[24];
-    lam_draw_probability(p, 2, t, sizeof t);
-    if (isfinite(p))
+    lam_draw_probability(lk.p, 2, t, sizeof t);
+    if (isfinite(lk.p))
         snprintf(prob, sizeof prob, " %s", t[0] == '>' ? "&gt;0.99" : t);
     const char *what = ci >= 1 || ci == LAM_DRAW_THICK ? r->label /* "thick", "12.3 nm" */
                        : (r->flags & LAM_FLAG_UNMODELLED) ? "unmodelled" : "unassigned";
     snprintf(out, n, "<span foreground=\"#%06x\" weight=\"bold\">%s</span>%s%s"
                      "<span foreground=\"#a8a8a8\"> #%u</span>",
-             (unsigned)c, what, prob, area, s->id);
+             (unsigned)lk.rgb, what, prob, area, s->id);
 }
 
 /* The point a label refers to: the middle of the usable rectangle (inside

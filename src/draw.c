@@ -265,6 +265,21 @@ uint32_t lam_draw_layer_colour(int layers)
     return layers == LAM_DRAW_THICK ? 0xa0a080 : 0xd8d8d8;
 }
 
+const double lam_draw_thickness_edges[LAM_DRAW_THICKNESS_BANDS - 1] = {5, 10, 30, 60};
+
+int lam_draw_thickness_band(double nm)
+{
+    int b = 0;
+    while (b < LAM_DRAW_THICKNESS_BANDS - 1 && nm >= lam_draw_thickness_edges[b])
+        b++;
+    return b;
+}
+
+uint32_t lam_draw_thickness_colour(int band)
+{
+    return lam_draw_layer_colour(band < 0 ? 1 : band >= LAM_DRAW_THICKNESS_BANDS ? 5 : band + 1);
+}
+
 static PangoLayout *make_layout(cairo_t *cr, const lam_text_style *st, const char *markup)
 {
     PangoLayout *l = pango_cairo_create_layout(cr);

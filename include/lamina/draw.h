@@ -76,6 +76,14 @@ uint32_t lam_draw_layer_colour(int layers);
 #define LAM_DRAW_THICK 0
 #define LAM_DRAW_UNASSIGNED (-1)
 
+/* Films of continuous thickness (hBN): colours by thickness band, the
+ * layer palette's first five in order; band edges 5, 10, 30 and 60 nm
+ * (10-30 nm is the common choice for encapsulation). */
+#define LAM_DRAW_THICKNESS_BANDS 5
+extern const double lam_draw_thickness_edges[LAM_DRAW_THICKNESS_BANDS - 1];
+int lam_draw_thickness_band(double nm);
+uint32_t lam_draw_thickness_colour(int band);
+
 /* Text. 'markup' is Pango markup (escape user text with lam_draw_escape).
  * Anchor: which point of the text's ink box lies at (x, y): ax = 0 left,
  * 0.5 centre, 1 right; ay likewise from the top. 'size' is the font size
