@@ -239,6 +239,7 @@ bench: $(BIN) $(BENCH_BIN)
 	@for b in $(BENCH_BIN); do $$b $(BUILD) || exit 1; done
 	@sh bench/bench_analyze.sh $(BUILD)
 	@sh bench/bench_batch.sh $(BUILD)
+	@sh bench/bench_pool.sh $(BUILD)
 
 # Installs the program, its man page and default data, and the library
 # (static and shared, public headers, pkg-config file). Never installs
