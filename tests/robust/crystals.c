@@ -16,7 +16,7 @@ static double now_s(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
-/* The analysis region covering most of object o's pixels, its pixel count. */
+/* The thickness bin of a flake: below 3, 3-10, 10-30, 30 nm and more. */
 static int bin_of(double nm)
 {
     return nm < 3 ? 0 : nm < 10 ? 1 : nm < 30 ? 2 : 3;
@@ -56,9 +56,8 @@ static void score(const synth_scene *sc, const lam_analysis *a, hbn_tally *t, FI
         const synth_object *ob = &sc->obj[o];
         if (ob->kind != SYNTH_OBJ_FLAKE || !(ob->thickness_nm > 0) || ob->area_px < 200)
             continue;
-        size_t cov = 0;
-        uint32_t id = robust_covering_region(sc, o, a, &cov);
-        int hit = id && a->thickness && cov * 10 >= (size_t)ob->area_px * 3;
+        uint32_t id = robust_flake_region(sc, o, a);
+        int hit = id && a->thickness;
         score_one(ob, hit ? &a->thickness[id - 1] : NULL, t, log, name);
     }
     if (a->oxide.fitted) {

@@ -37,6 +37,18 @@ uint32_t robust_covering_region(const synth_scene *sc, int o, const lam_analysis
     return best_id;
 }
 
+uint32_t robust_flake_region(const synth_scene *sc, int o, const lam_analysis *a)
+{
+    size_t cov = 0, area = (size_t)sc->obj[o].area_px;
+    uint32_t id = robust_covering_region(sc, o, a, &cov);
+    if (!id)
+        return 0;
+    const lam_region_stats *r = &a->seg->regions[id - 1];
+    int most = cov * 10 >= area * 3;
+    int extent = cov * 5 >= r->area * 4 && lam_region_area(r) * 10 >= (double)area * 3;
+    return most || extent ? id : 0;
+}
+
 static void score_fermi(const synth_object *ob, const lam_region_result *r, robust_tally *t)
 {
     const lam_fermi_estimate *f = &r->fermi;
@@ -73,10 +85,8 @@ static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_ta
         if ((ob->kind != SYNTH_OBJ_FLAKE && ob->kind != SYNTH_OBJ_FOLD) || ob->layers > 3 ||
             ob->layers < 1 || ob->area_px < 50)
             continue;
-        size_t cov = 0;
-        uint32_t id = robust_covering_region(sc, o, a, &cov);
-        const lam_region_result *r = id && cov * 10 >= (size_t)ob->area_px * 3 ? &a->results[id - 1]
-                                                                                : NULL;
+        uint32_t id = robust_flake_region(sc, o, a);
+        const lam_region_result *r = id ? &a->results[id - 1] : NULL;
         if (ob->doped && r) {
             score_fermi(ob, r, t);
             continue; /* doped flakes are scored for their Fermi level */

@@ -89,6 +89,15 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
 uint32_t robust_covering_region(const synth_scene *sc, int o, const lam_analysis *a,
                                 size_t *covered);
 
+/* The region that stands for object o (0: none): the one covering most of
+ * its pixels, when it covers at least 30 % of them, or when at least 80 %
+ * of the region's own pixels lie on the object and its area to the
+ * half-contrast edge (lam_region_area, the area the analysis reports)
+ * reaches 30 % of the object's. The second case is a small flake whose
+ * strong colour edges a lossy file smears over many pixels: its region's
+ * core is small, its reported extent is not. */
+uint32_t robust_flake_region(const synth_scene *sc, int o, const lam_analysis *a);
+
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);
 
