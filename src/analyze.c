@@ -445,24 +445,40 @@ static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
     return st;
 }
 
-/* Posterior, usable rectangle and flags of every region; with a rival
- * mode of the fit (view vr), each region's posterior is the mixture of the
- * two by their weights. */
-static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
-                      const lam_est_view *vr)
+/* Posterior, flags and (with 'rectangles') usable rectangle of every
+ * region; with a rival mode of the fit (view vr), each region's posterior
+ * is the mixture of the two by their weights. Regions are independent, so
+ * they are handed out one at a time to the analysis' threads (a flake's
+ * rectangle costs its box's pixels, a speck's nothing). */
+typedef struct infer_ctx {
+    lam_analysis *a;
+    const lam_est_view *v, *vr;
+    const lam_fermi_table *ft;
+    int rectangles;
+} infer_ctx;
+
+static void infer_one(size_t i, void *vctx)
 {
-    lam_analysis *a = r->a;
+    const infer_ctx *x = vctx;
+    lam_analysis *a = x->a;
     const lam_estimate *rival = a->estimate->rival;
-    for (size_t i = 0; i < a->count; i++) {
-        lam_region_result *res = &a->results[i], alt;
-        lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);
-        if (vr) {
-            lam_infer_region(rival, vr, NULL, &a->measured[i], &a->seg->regions[i], &a->infer,
-                             &alt);
-            lam_infer_mix(res, &alt, a->estimate->rival_weight, &a->infer);
-        }
-        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+    lam_region_result *res = &a->results[i], alt;
+    lam_infer_region(a->estimate, x->v, x->ft, &a->measured[i], &a->seg->regions[i], &a->infer,
+                     res);
+    if (x->vr) {
+        lam_infer_region(rival, x->vr, NULL, &a->measured[i], &a->seg->regions[i], &a->infer,
+                         &alt);
+        lam_infer_mix(res, &alt, a->estimate->rival_weight, &a->infer);
     }
+    if (x->rectangles)
+        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+}
+
+static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+                      const lam_est_view *vr, int rectangles)
+{
+    infer_ctx x = {r->a, v, vr, ft, rectangles};
+    lam_parallel_each(r->a->count, r->threads, infer_one, &x);
 }
 
 /* A region whose layer count is settled enough to join its neighbours of
@@ -503,7 +519,7 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     if (st)
         return st;
     lam__measure_regions(a, r->img);
-    infer_all(r, v, ft, vr);
+    infer_all(r, v, ft, vr, 1);
     return LAM_OK;
 }
 
@@ -541,8 +557,8 @@ static lam_status posterior_stage(run *r, lam_error *err)
         vr = v + 1;
     if (!st && ft)
         st = fermi_table(r, ft, err);
-    if (!st)
-        infer_all(r, v, ft, vr);
+    if (!st) /* the join needs the layer counts only; rectangles after it */
+        infer_all(r, v, ft, vr, 0);
     if (!st)
         st = join_stage(r, v, ft, vr, err);
     free(v);
