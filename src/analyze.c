@@ -513,7 +513,8 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     for (size_t i = 0; i < n && !st; i++)
         key[i] = join_key(&a->results[i]);
     if (!st)
-        st = lam_segment_join(r->img, a->channels, key, fill, a->seg, map, &joined, err);
+        st = lam_segment_join(r->img, a->channels, key, fill, r->threads, a->seg, map, &joined,
+                              err);
     free(key);
     free(map);
     if (st)

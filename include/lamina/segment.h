@@ -109,12 +109,13 @@ lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const
  * is filled. Regions are renumbered in row-major order of their
  * first pixel and their statistics recomputed; map (seg->count entries,
  * caller storage) receives each old id's new id, *joined the number of
- * regions that disappeared. LAM_ENOMEM only. The caller re-measures and
- * re-infers when *joined or holes changed the statistics (compare areas, or
- * simply always). */
+ * regions that disappeared. The pixel passes run on 'threads' threads (the
+ * result is the same for any count). LAM_ENOMEM only. The caller
+ * re-measures and re-infers when *joined or holes changed the statistics
+ * (compare areas, or simply always). */
 lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
-                            const double fill[3], lam_segmentation *seg, uint32_t *map,
-                            size_t *joined, lam_error *err);
+                            const double fill[3], size_t threads, lam_segmentation *seg,
+                            uint32_t *map, size_t *joined, lam_error *err);
 
 /* Connected regions of non-substrate classes with their statistics (used
  * for label maps, whose classes are given). */
