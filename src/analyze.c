@@ -280,13 +280,13 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
     }
 }
 
-void lam__measure_regions(lam_analysis *a, const lam_image *contrast)
+void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads)
 {
     a->count = a->seg->count;
     for (size_t i = 0; i < a->count; i++)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
-    lam_segment_edge_areas(contrast, a->channels, a->seg);
+    lam_segment_edge_areas(contrast, a->channels, threads, a->seg);
 }
 
 /* Regions of uniform contrast (model-independent), measured. */
@@ -308,7 +308,7 @@ static lam_status segment_stage(run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    lam__measure_regions(a, r->img);
+    lam__measure_regions(a, r->img, r->threads);
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -431,17 +431,22 @@ static lam_status fit_stage(run *r, lam_error *err)
 }
 
 /* The 1L/2L ladder over the Fermi level, on a 10 nm grid with 6 cone
- * nodes: the conductivity integrals per Fermi level are the cost here. */
+ * nodes: the conductivity integrals per Fermi level are the cost here,
+ * shared out to the analysis' threads (a model each). */
 static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
 {
     lam_setup s = *r->setup;
     s.grid_step_nm = 10;
     s.cone_nodes = 6;
-    lam_model *m = NULL;
-    lam_status st = lam_model_alloc(&s, 2, 0, &m, err);
+    lam_model *m[LAM_MAX_THREADS] = {NULL};
+    size_t n = r->threads < LAM_MAX_THREADS ? r->threads : LAM_MAX_THREADS, k = 0;
+    lam_status st = LAM_OK;
+    for (; k < n && !st; k++)
+        st = lam_model_alloc(&s, 2, 0, &m[k], err);
     if (!st)
-        st = lam_fermi_table_build(r->a->estimate, 0, m, ft, err);
-    lam_model_free(m);
+        st = lam_fermi_table_build(r->a->estimate, 0, m, n, ft, err);
+    for (size_t i = 0; i < k; i++)
+        lam_model_free(m[i]);
     return st;
 }
 
@@ -519,7 +524,7 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, r->img);
+    lam__measure_regions(a, r->img, r->threads);
     infer_all(r, v, ft, vr, 1);
     return LAM_OK;
 }

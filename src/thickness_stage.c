@@ -352,7 +352,7 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, contrast);
+    lam__measure_regions(a, contrast, lam_parallel_default());
     return LAM_OK;
 }
 

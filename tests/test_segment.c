@@ -129,6 +129,13 @@ static void join_threads(void)
                        !memcmp(one->cls, three->cls, (size_t)W * H) &&
                        !memcmp(one->regions, three->regions, one->count * sizeof *one->regions),
                    "the same regions, labels and classes with 3 threads as with 1");
+        lam_segment_edge_areas(img, 3, 1, one);
+        lam_segment_edge_areas(img, 3, 3, three);
+        size_t same = 0, edges = 0;
+        for (size_t i = 0; i < one->count && i < three->count; i++)
+            same += one->regions[i].edge == three->regions[i].edge, edges += one->regions[i].edge;
+        check_true(edges > 0 && same == one->count,
+                   "edge areas (%zu px) the same with 3 threads as with 1", edges);
     }
     free(key);
     free(m1);

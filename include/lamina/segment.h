@@ -127,8 +127,10 @@ lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_opti
  * interior contrast it is nearest: the half-contrast edge of a blurred
  * step. Sets every region's edge count; the band is a fixed number of
  * pixels wide, so without it a flake's area would depend on the
- * magnification. */
-void lam_segment_edge_areas(const lam_image *contrast, size_t channels, lam_segmentation *seg);
+ * magnification. Rows are shared out to 'threads' threads (the counts are
+ * the same for any number). */
+void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
+                            lam_segmentation *seg);
 
 /* A region's area in pixels up to its half-contrast edge: area + edge. */
 double lam_region_area(const lam_region_stats *r);
