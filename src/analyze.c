@@ -280,13 +280,13 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
     }
 }
 
-void lam__measure_regions(lam_analysis *a, const lam_image *contrast)
+void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads)
 {
     a->count = a->seg->count;
     for (size_t i = 0; i < a->count; i++)
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
-    lam_segment_edge_areas(contrast, a->channels, a->seg);
+    lam_segment_edge_areas(contrast, a->channels, threads, a->seg);
 }
 
 /* Regions of uniform contrast (model-independent), measured. */
@@ -308,7 +308,7 @@ static lam_status segment_stage(run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    lam__measure_regions(a, r->img);
+    lam__measure_regions(a, r->img, r->threads);
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -445,38 +445,59 @@ static lam_status fit_stage(run *r, lam_error *err)
 }
 
 /* The 1L/2L ladder over the Fermi level, on a 10 nm grid with 6 cone
- * nodes: the conductivity integrals per Fermi level are the cost here. */
+ * nodes: the conductivity integrals per Fermi level are the cost here,
+ * shared out to the analysis' threads (a model each). */
 static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
 {
     lam_setup s = *r->setup;
     s.grid_step_nm = 10;
     s.cone_nodes = 6;
-    lam_model *m = NULL;
-    lam_status st = lam_model_alloc(&s, 2, 0, &m, err);
+    lam_model *m[LAM_MAX_THREADS] = {NULL};
+    size_t n = r->threads < LAM_MAX_THREADS ? r->threads : LAM_MAX_THREADS, k = 0;
+    lam_status st = LAM_OK;
+    for (; k < n && !st; k++)
+        st = lam_model_alloc(&s, 2, 0, &m[k], err);
     if (!st)
-        st = lam_fermi_table_build(r->a->estimate, 0, m, ft, err);
-    lam_model_free(m);
+        st = lam_fermi_table_build(r->a->estimate, 0, m, n, ft, err);
+    for (size_t i = 0; i < k; i++)
+        lam_model_free(m[i]);
     return st;
 }
 
-/* Posterior, usable rectangle and flags of every region; with a rival
- * mode of the fit (view vr), each region's posterior is the mixture of the
- * two by their weights. */
-static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
-                      const lam_est_view *vr)
+/* Posterior, flags and (with 'rectangles') usable rectangle of every
+ * region; with a rival mode of the fit (view vr), each region's posterior
+ * is the mixture of the two by their weights. Regions are independent, so
+ * they are handed out one at a time to the analysis' threads (a flake's
+ * rectangle costs its box's pixels, a speck's nothing). */
+typedef struct infer_ctx {
+    lam_analysis *a;
+    const lam_est_view *v, *vr;
+    const lam_fermi_table *ft;
+    int rectangles;
+} infer_ctx;
+
+static void infer_one(size_t i, void *vctx)
 {
-    lam_analysis *a = r->a;
+    const infer_ctx *x = vctx;
+    lam_analysis *a = x->a;
     const lam_estimate *rival = a->estimate->rival;
-    for (size_t i = 0; i < a->count; i++) {
-        lam_region_result *res = &a->results[i], alt;
-        lam_infer_region(a->estimate, v, ft, &a->measured[i], &a->seg->regions[i], &a->infer, res);
-        if (vr) {
-            lam_infer_region(rival, vr, NULL, &a->measured[i], &a->seg->regions[i], &a->infer,
-                             &alt);
-            lam_infer_mix(res, &alt, a->estimate->rival_weight, &a->infer);
-        }
-        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+    lam_region_result *res = &a->results[i], alt;
+    lam_infer_region(a->estimate, x->v, x->ft, &a->measured[i], &a->seg->regions[i], &a->infer,
+                     res);
+    if (x->vr) {
+        lam_infer_region(rival, x->vr, NULL, &a->measured[i], &a->seg->regions[i], &a->infer,
+                         &alt);
+        lam_infer_mix(res, &alt, a->estimate->rival_weight, &a->infer);
     }
+    if (x->rectangles)
+        lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
+}
+
+static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+                      const lam_est_view *vr, int rectangles)
+{
+    infer_ctx x = {r->a, v, vr, ft, rectangles};
+    lam_parallel_each(r->a->count, r->threads, infer_one, &x);
 }
 
 /* A region whose layer count is settled enough to join its neighbours of
@@ -511,13 +532,14 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     for (size_t i = 0; i < n && !st; i++)
         key[i] = join_key(&a->results[i]);
     if (!st)
-        st = lam_segment_join(r->img, a->channels, key, fill, a->seg, map, &joined, err);
+        st = lam_segment_join(r->img, a->channels, key, fill, r->threads, a->seg, map, &joined,
+                              err);
     free(key);
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, r->img);
-    infer_all(r, v, ft, vr);
+    lam__measure_regions(a, r->img, r->threads);
+    infer_all(r, v, ft, vr, 1);
     return LAM_OK;
 }
 
@@ -555,8 +577,8 @@ static lam_status posterior_stage(run *r, lam_error *err)
         vr = v + 1;
     if (!st && ft)
         st = fermi_table(r, ft, err);
-    if (!st)
-        infer_all(r, v, ft, vr);
+    if (!st) /* the join needs the layer counts only; rectangles after it */
+        infer_all(r, v, ft, vr, 0);
     if (!st)
         st = join_stage(r, v, ft, vr, err);
     free(v);

@@ -15,8 +15,9 @@ lam_status lam__check_channels(const lam_image *img, const lam_setup *s, lam_err
 
 /* After the segmentation changed (made, or flakes joined): a->count from
  * it, every region's measurement in a->measured (room for that many) and
- * its share of the transition pixels (the areas the size flags use). */
-void lam__measure_regions(lam_analysis *a, const lam_image *contrast);
+ * its share of the transition pixels (the areas the size flags use, on
+ * 'threads' threads). */
+void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads);
 
 /* After the flakes' fit (a->estimate): when the setup records the
  * substrate's colour at a known oxide and the image has three channels,

@@ -2,6 +2,7 @@
  * (Laplace leave-one-out), labels and flags, the usable rectangle. */
 #include "lamina/infer.h"
 #include "estimate_internal.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -213,26 +214,60 @@ static void fermi_grid(lam_fermi_table *t)
     }
 }
 
-lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *model,
-                                 lam_fermi_table *t, lam_error *err)
+/* The grid's points are independent: slices of them run on as many
+ * threads as there are models, each slice with its own model (they keep
+ * caches), prediction and error; the first slice's error is reported. */
+typedef struct fermi_job {
+    const lam_estimate *e;
+    size_t j;
+    lam_model *const *model;
+    lam_fermi_table *t;
+    lam_status *st;
+    lam_error *err;
+} fermi_job;
+
+static void fermi_points(size_t i0, size_t i1, size_t slice, void *vjob)
 {
-    fermi_grid(t);
+    const fermi_job *job = vjob;
+    const lam_estimate *e = job->e;
+    lam_error *err = &job->err[slice];
     lam_prediction *P = malloc(sizeof *P);
-    if (!P)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
-    lam_model_point p = lam_estimate_point(e, j);
-    lam_status st = LAM_OK;
-    for (size_t i = 0; i < t->count && !st; i++) {
-        p.v[LAM_MP_FERMI] = t->mu[i];
-        if ((st = lam_model_eval_point(model, &p, 2, P, err)))
+    lam_status st = P ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate a prediction");
+    lam_model_point p = lam_estimate_point(e, job->j);
+    for (size_t i = i0; i < i1 && !st; i++) {
+        p.v[LAM_MP_FERMI] = job->t->mu[i];
+        if ((st = lam_model_eval_point(job->model[slice], &p, 2, P, err)))
             break;
         lam_estimate_observe(e, P);
         for (size_t N = 0; N <= 2; N++)
             for (size_t c = 0; c < e->channels; c++)
-                t->contrast[i][N][c] = P->contrast[N][c];
+                job->t->contrast[i][N][c] = P->contrast[N][c];
     }
     free(P);
-    return st;
+    job->st[slice] = st;
+}
+
+lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *const *models,
+                                 size_t count, lam_fermi_table *t, lam_error *err)
+{
+    fermi_grid(t);
+    count = count < 1 ? 1 : (count < t->count ? count : t->count);
+    lam_status *st = calloc(count, sizeof *st);
+    lam_error *errs = calloc(count, sizeof *errs);
+    if (!st || !errs) {
+        free(st);
+        free(errs);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the Fermi table");
+    }
+    fermi_job job = {e, j, models, t, st, errs};
+    lam_parallel_for(t->count, count, fermi_points, &job);
+    lam_status out = LAM_OK;
+    for (size_t k = 0; k < count && !out; k++)
+        if ((out = st[k]))
+            *err = errs[k];
+    free(st);
+    free(errs);
+    return out;
 }
 
 /* log N(m; C_N(mu) + ladder shift, S) over the grid, S the predictive

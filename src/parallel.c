@@ -2,6 +2,7 @@
 #include "lamina/parallel.h"
 
 #include <pthread.h>
+#include <stdatomic.h>
 #include <unistd.h>
 
 typedef struct slice_job {
@@ -41,6 +42,30 @@ void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx)
     for (size_t t = 1; t < threads; t++)
         if (started[t])
             pthread_join(tid[t], NULL);
+}
+
+typedef struct each_job {
+    atomic_size_t next; /* the next item not yet taken */
+    size_t count;
+    lam_item_fn fn;
+    void *ctx;
+} each_job;
+
+static void each_worker(size_t begin, size_t end, size_t slice, void *vjob)
+{
+    (void)begin, (void)end, (void)slice;
+    each_job *j = vjob;
+    for (size_t i; (i = atomic_fetch_add(&j->next, 1)) < j->count;)
+        j->fn(i, j->ctx);
+}
+
+void lam_parallel_each(size_t count, size_t threads, lam_item_fn fn, void *ctx)
+{
+    each_job j = {.count = count, .fn = fn, .ctx = ctx};
+    atomic_init(&j.next, 0);
+    if (threads > count)
+        threads = count;
+    lam_parallel_for(threads, threads, each_worker, &j);
 }
 
 size_t lam_cpu_count(void)

@@ -125,6 +125,73 @@ uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
     return d;
 }
 
+/* ---- one region alone ----
+ * The same depth and statistics for the pixels of one label l, all of
+ * which lie within box (x0, y0, x1, y1 inclusive): only its pixels are
+ * read and written, so regions can be measured side by side into one
+ * depth map. A pixel's depth depends on its own region's pixels alone
+ * (the distance to the nearest pixel not in it), so it is the value the
+ * whole-image passes give. */
+static void label_forward(const uint32_t *lab, uint8_t *d, size_t w, size_t y, uint32_t l,
+                          const size_t box[4])
+{
+    const uint32_t *row = lab + y * w;
+    uint8_t *dr = d + y * w;
+    for (size_t x0 = box[0], x1; x0 <= box[2]; x0 = x1) {
+        if (row[x0] != l) {
+            x1 = x0 + 1;
+            continue;
+        }
+        x1 = run_end(row, x0, w);
+        dr[x0] = 1;
+        for (size_t x = x0 + 1; x < x1; x++) {
+            if (y == 0 || row[x - w] != l) {
+                dr[x] = 1;
+                continue;
+            }
+            unsigned v = (dr[x - 1] < dr[x - w] ? dr[x - 1] : dr[x - w]) + 1u;
+            dr[x] = (uint8_t)(v > 255 ? 255 : v);
+        }
+    }
+}
+
+static void label_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, size_t y,
+                           uint32_t l, const size_t box[4])
+{
+    const uint32_t *row = lab + y * w;
+    uint8_t *dr = d + y * w;
+    for (size_t x0 = box[0], x1; x0 <= box[2]; x0 = x1) {
+        if (row[x0] != l) {
+            x1 = x0 + 1;
+            continue;
+        }
+        x1 = run_end(row, x0, w);
+        if (y + 1 == h) {
+            memset(dr + x0, 1, x1 - x0);
+            continue;
+        }
+        dr[x1 - 1] = 1;
+        for (size_t x = x1 - 1; x-- > x0;) {
+            if (row[x + w] != l) {
+                dr[x] = 1;
+                continue;
+            }
+            unsigned v = (dr[x + 1] < dr[x + w] ? dr[x + 1] : dr[x + w]) + 1u;
+            if (v < dr[x])
+                dr[x] = (uint8_t)v;
+        }
+    }
+}
+
+void lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, const size_t box[4],
+                       uint8_t *depth)
+{
+    for (size_t y = box[1]; y <= box[3]; y++)
+        label_forward(lab, depth, w, y, l, box);
+    for (size_t y = box[3] + 1; y-- > box[1];)
+        label_backward(lab, depth, w, h, y, l, box);
+}
+
 /* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
  * sums (whole numbers, exact in any grouping), depth, and the interior's
  * contrast sums pixel by pixel in row order. */
@@ -180,6 +247,24 @@ void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint
                 x1++;
             if (l)
                 run_statistics(img, cls, depth, &R[l - 1], y, x, x1);
+        }
+    }
+}
+
+void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
+                               const uint8_t *depth, uint32_t l, const size_t box[4],
+                               lam_region_stats *r)
+{
+    size_t w = img->width;
+    memset(r, 0, sizeof *r);
+    r->id = l;
+    r->bbox[0] = w, r->bbox[1] = img->height;
+    for (size_t y = box[1]; y <= box[3]; y++) {
+        const uint32_t *row = lab + y * w;
+        for (size_t x = box[0], x1; x <= box[2]; x = x1) {
+            x1 = row[x] == l ? run_end(row, x, w) : x + 1;
+            if (row[x] == l)
+                run_statistics(img, cls, depth, r, y, x, x1);
         }
     }
 }

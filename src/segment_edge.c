@@ -9,6 +9,7 @@
  * blur), so each transition pixel is given to the neighbour - a region, or
  * the bare substrate at zero contrast - whose mean contrast it is nearest. */
 #include "lamina/segment.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -61,32 +62,69 @@ static int side_mean(const lam_segmentation *seg, uint32_t l, size_t channels, d
     return 1;
 }
 
-void lam_segment_edge_areas(const lam_image *contrast, size_t channels, lam_segmentation *seg)
+/* The side whose mean pixel k is nearest (the first of equals), 0 for
+ * the substrate or none. */
+static uint32_t owner_of(const lam_image *contrast, size_t channels, const lam_segmentation *seg,
+                         size_t x, size_t y)
 {
-    size_t w = seg->width, h = seg->height;
-    for (size_t i = 0; i < seg->count; i++)
-        seg->regions[i].edge = 0;
-    for (size_t y = 0; y < h; y++)
+    size_t k = y * seg->width + x;
+    side s[EDGE_MAX_SIDES];
+    size_t n = sides_near(seg, x, y, s);
+    double best = INFINITY;
+    uint32_t owner = 0;
+    for (size_t i = 0; i < n; i++) {
+        double m[3], d = 0;
+        if (!side_mean(seg, s[i].label, channels, m))
+            continue;
+        for (size_t c = 0; c < channels; c++)
+            d += (contrast->plane[c][k] - m[c]) * (contrast->plane[c][k] - m[c]);
+        if (d < best)
+            best = d, owner = s[i].label;
+    }
+    return owner;
+}
+
+/* Rows are counted side by side, each slice into counts of its own
+ * (whole numbers: their sum is the same in any order). */
+typedef struct edge_job {
+    const lam_image *contrast;
+    size_t channels;
+    lam_segmentation *seg;
+    size_t *count; /* per slice, seg->count each; NULL: one slice, into the regions */
+} edge_job;
+
+static void edge_rows(size_t y0, size_t y1, size_t slice, void *vjob)
+{
+    const edge_job *job = vjob;
+    const lam_segmentation *seg = job->seg;
+    size_t w = seg->width, *count = job->count ? job->count + slice * seg->count : NULL;
+    for (size_t y = y0; y < y1; y++)
         for (size_t x = 0; x < w; x++) {
             size_t k = y * w + x;
             if (seg->label[k] || seg->cls[k] == LAM_CLASS_SUBSTRATE)
                 continue;
-            side s[EDGE_MAX_SIDES];
-            size_t n = sides_near(seg, x, y, s);
-            double best = INFINITY;
-            uint32_t owner = 0;
-            for (size_t i = 0; i < n; i++) {
-                double m[3], d = 0;
-                if (!side_mean(seg, s[i].label, channels, m))
-                    continue;
-                for (size_t c = 0; c < channels; c++)
-                    d += (contrast->plane[c][k] - m[c]) * (contrast->plane[c][k] - m[c]);
-                if (d < best)
-                    best = d, owner = s[i].label;
-            }
-            if (owner)
-                seg->regions[owner - 1].edge++;
+            uint32_t owner = owner_of(job->contrast, job->channels, seg, x, y);
+            if (owner && count)
+                count[owner - 1]++;
+            else if (owner)
+                job->seg->regions[owner - 1].edge++;
         }
+}
+
+void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
+                            lam_segmentation *seg)
+{
+    size_t n = seg->count, slices = threads < LAM_MAX_THREADS ? threads : LAM_MAX_THREADS;
+    slices = slices < seg->height ? slices : seg->height;
+    slices = slices ? slices : 1;
+    edge_job job = {contrast, channels, seg, calloc(slices * n + 1, sizeof(size_t))};
+    for (size_t i = 0; i < n; i++)
+        seg->regions[i].edge = 0;
+    lam_parallel_for(seg->height, job.count ? slices : 1, edge_rows, &job);
+    for (size_t t = 0; job.count && t < slices; t++)
+        for (size_t i = 0; i < n; i++)
+            seg->regions[i].edge += job.count[t * n + i];
+    free(job.count);
 }
 
 double lam_region_area(const lam_region_stats *r)

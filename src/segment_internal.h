@@ -13,6 +13,16 @@ uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height)
 void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *label,
                             const uint8_t *depth, lam_region_stats *R, uint32_t m);
 
+/* The same for region l alone, all of whose pixels lie within box (x0,
+ * y0, x1, y1 inclusive): lam__region_depth writes the depth of its pixels
+ * only (the values lam__boundary_depth gives them), and
+ * lam__region_statistics_in reads only those into r (cleared first). */
+void lam__region_depth(const uint32_t *label, size_t width, size_t height, uint32_t l,
+                       const size_t box[4], uint8_t *depth);
+void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const uint32_t *label,
+                               const uint8_t *depth, uint32_t l, const size_t box[4],
+                               lam_region_stats *r);
+
 /* Keep the regions worth reporting (renumbered 1..kept): substrate regions
  * become class SUBSTRATE without a label, specks and slivers class NONE.
  * Takes R over (stores it in seg). 0 when out of memory (R freed). */

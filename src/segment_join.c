@@ -11,6 +11,7 @@
  * the substrate between two flakes) do not. */
 #include "lamina/segment.h"
 #include "segment_internal.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -42,9 +43,16 @@ static void unite(uint32_t *parent, uint32_t a, uint32_t b)
         parent[a] = b;
 }
 
-/* Walk one line (a row: step 1, a column: step w): neighbours of two
- * joinable regions unite at once; a band of 1..JOIN_BAND transition pixels
- * between them counts as one run for the pair (a, b). */
+/* ---- the pairs ----
+ * Along each line (row or column), a labelled pixel next to another
+ * joinable region unites with it at once; a run of 1..JOIN_BAND transition
+ * pixels between two joinable regions counts as one run for the pair
+ * (a, b). Rows and columns are walked together, row by row (the columns'
+ * states side by side: a column walked down the image would touch a new
+ * cache line at every pixel), in slices of rows on the caller's threads.
+ * Each slice unites in a forest of its own and lists its runs; the forests
+ * and lists are merged after, which gives what one walk would: the sets
+ * a union makes do not depend on its order, nor a count of runs. */
 typedef struct run_pair {
     uint32_t a, b;
 } run_pair;
@@ -67,29 +75,163 @@ static int push_pair(pair_list *L, uint32_t a, uint32_t b)
     return 0;
 }
 
-static int scan_line(join_ctx *j, size_t first, size_t count, size_t step, pair_list *L)
+/* Where a line's walk is: the current run of transition pixels (in no
+ * region, not substrate), *len long (0: none; JOIN_BAND + 1: longer than a
+ * band), and *before the label of the pixel before it. */
+
+/* Advance a line's walk over a pixel of label l and class c, 'prev' the
+ * label of the pixel before it on the line: 1 when l closes a run. */
+static inline int line_step(uint32_t *before, uint8_t *len, uint32_t prev, uint32_t l, uint8_t c)
 {
-    const uint32_t *lab = j->seg->label;
-    const uint8_t *cls = j->seg->cls;
-    size_t i = 1;
-    while (i < count) {
-        size_t k = first + i * step, prev = k - step;
-        if (lab[k]) {
-            if (joinable(j, lab[prev], lab[k]))
-                unite(j->parent, lab[prev], lab[k]);
-            i++;
-            continue;
-        }
-        size_t e = i; /* the band: transition pixels only (not substrate) */
-        while (e < count && !lab[first + e * step] && cls[first + e * step] == LAM_CLASS_NONE)
-            e++;
-        if (e < count && e > i && e - i <= JOIN_BAND && lab[first + e * step] &&
-            joinable(j, lab[prev], lab[first + e * step]) &&
-            push_pair(L, lab[prev], lab[first + e * step]))
-            return -1;
-        i = e > i ? e : i + 1;
+    if (l) {
+        int closes = *len > 0;
+        *len = 0;
+        return closes;
+    }
+    if (c != LAM_CLASS_NONE) {
+        *len = 0;
+    } else {
+        if (!*len)
+            *before = prev;
+        *len += *len <= JOIN_BAND;
     }
     return 0;
+}
+
+/* Lines are walked in blocks of LINE_BLOCK pixels; most blocks lie inside
+ * one region or the substrate and change nothing. */
+#define LINE_BLOCK 16
+
+/* Whether the n pixels from lab (labels; 'prev' the labels before them on
+ * their lines, cls their classes, len their lines' runs) leave every walk
+ * as it is: no run under way, and each pixel of the label before it and
+ * not a transition pixel. Branch-free, for the vector units. */
+static int quiet_block(const uint32_t *lab, const uint32_t *prev, const uint8_t *cls,
+                       const uint8_t *len, size_t n)
+{
+    unsigned acc = 0;
+    for (size_t i = 0; i < n; i++)
+        acc |= (lab[i] ^ prev[i]) | len[i] | (unsigned)((lab[i] == 0) & (cls[i] == LAM_CLASS_NONE));
+    return acc == 0;
+}
+
+static const uint8_t no_runs[LINE_BLOCK];
+
+typedef struct scan_slice {
+    uint32_t *parent; /* this slice's forest over ids 0..count */
+    pair_list L;
+    uint32_t *before; /* per column */
+    uint8_t *len;     /* per column */
+    int failed;
+} scan_slice;
+
+typedef struct scan_job {
+    const join_ctx *j;
+    scan_slice *slice;
+} scan_job;
+
+/* One pixel of a line walk, recording in slice s (NULL: the walk only). */
+static inline void scan_pixel(const join_ctx *j, scan_slice *s, uint32_t *before, uint8_t *len,
+                              uint32_t prev, uint32_t l, uint8_t c)
+{
+    uint32_t b = *before;
+    size_t n = *len;
+    if (!line_step(before, len, prev, l, c)) {
+        if (l && s && joinable(j, prev, l))
+            unite(s->parent, prev, l);
+    } else if (s && n <= JOIN_BAND && joinable(j, b, l)) {
+        s->failed |= push_pair(&s->L, b, l);
+    }
+}
+
+/* Row y: its own walk, then the columns' steps into it (y > 0). */
+static void scan_row(const join_ctx *j, scan_slice *s, size_t y)
+{
+    size_t w = j->seg->width;
+    const uint32_t *lab = j->seg->label + y * w;
+    const uint8_t *cls = j->seg->cls + y * w;
+    uint32_t before = 0;
+    uint8_t len = 0;
+    for (size_t x = 1, n; x < w; x += n) {
+        n = w - x < LINE_BLOCK ? w - x : LINE_BLOCK;
+        if (len || !quiet_block(lab + x, lab + x - 1, cls + x, no_runs, n))
+            for (size_t i = x; i < x + n; i++)
+                scan_pixel(j, s, &before, &len, lab[i - 1], lab[i], cls[i]);
+    }
+    for (size_t x = 0, n; y && x < w; x += n) {
+        n = w - x < LINE_BLOCK ? w - x : LINE_BLOCK;
+        if (!quiet_block(lab + x, lab + x - w, cls + x, s->len + x, n))
+            for (size_t i = x; i < x + n; i++)
+                scan_pixel(j, s, &s->before[i], &s->len[i], lab[i - w], lab[i], cls[i]);
+    }
+}
+
+/* Rows y0..y1-1 and the columns' steps into them. The columns' walks at
+ * y0 are replayed from JOIN_BAND + 2 rows above: a run that began before
+ * that is longer than a band whatever came before it. */
+static void scan_rows(size_t y0, size_t y1, size_t slice, void *vjob)
+{
+    const scan_job *job = vjob;
+    const join_ctx *j = job->j;
+    scan_slice *s = &job->slice[slice];
+    size_t w = j->seg->width;
+    const uint32_t *lab = j->seg->label;
+    const uint8_t *cls = j->seg->cls;
+    memset(s->len, 0, w);
+    for (size_t y = y0 > JOIN_BAND + 2 ? y0 - JOIN_BAND - 2 : 1; y < y0; y++)
+        for (size_t x = 0, k = y * w; x < w; x++, k++)
+            scan_pixel(j, NULL, &s->before[x], &s->len[x], lab[k - w], lab[k], cls[k]);
+    for (size_t y = y0; y < y1 && !s->failed; y++)
+        scan_row(j, s, y);
+}
+
+/* The slices' forests into j->parent, their runs into one list L. */
+static int merge_slices(join_ctx *j, scan_slice *S, size_t slices, pair_list *L)
+{
+    for (size_t t = 0; t < slices; t++) {
+        for (uint32_t id = 1; id <= j->seg->count; id++) {
+            uint32_t r = lam__label_root(S[t].parent, id);
+            if (r != id)
+                unite(j->parent, id, r);
+        }
+        for (size_t i = 0; i < S[t].L.n; i++)
+            if (push_pair(L, S[t].L.v[i].a, S[t].L.v[i].b))
+                return -1;
+    }
+    return 0;
+}
+
+/* Every row and column walked (unions in j->parent, runs in L). */
+static int scan_lines(join_ctx *j, size_t threads, pair_list *L)
+{
+    size_t w = j->seg->width, n = j->seg->count, slices = threads;
+    slices = slices < LAM_MAX_THREADS ? slices : LAM_MAX_THREADS;
+    slices = slices < j->seg->height ? slices : j->seg->height;
+    scan_slice *S = calloc(slices ? slices : 1, sizeof *S);
+    int bad = !S;
+    for (size_t t = 0; !bad && t < slices; t++) {
+        S[t].parent = malloc((n + 1) * sizeof(uint32_t));
+        S[t].before = malloc(w * sizeof *S[t].before);
+        S[t].len = malloc(w);
+        bad = !S[t].parent || !S[t].before || !S[t].len;
+        for (uint32_t id = 0; !bad && id <= n; id++)
+            S[t].parent[id] = id;
+    }
+    if (!bad) {
+        scan_job job = {j, S};
+        lam_parallel_for(j->seg->height, slices, scan_rows, &job);
+        for (size_t t = 0; t < slices; t++)
+            bad |= S[t].failed;
+    }
+    bad = bad || merge_slices(j, S, slices, L);
+    for (size_t t = 0; S && t < slices; t++) {
+        free(S[t].parent);
+        free(S[t].before);
+        free(S[t].len);
+        free(S[t].L.v);
+    }
+    free(S);
+    return bad ? -1 : 0;
 }
 
 static int by_pair(const void *x, const void *y)
@@ -113,41 +255,108 @@ static void unite_bridged(join_ctx *j, pair_list *L)
     }
 }
 
-/* Band pixels between two parts of one joined region, close to its mean in
- * every channel, join it (rows, then columns). */
-static void fill_bands(join_ctx *j, const double (*mean)[3], size_t channels, const double fill[3])
+/* ---- band pixels ----
+ * Band pixels between two parts of one joined region, close to its mean in
+ * every channel, join it: every row, then every column, each walked as in
+ * the pairs' scan. A line reads and writes only its own pixels, so rows
+ * (then columns) run side by side on the caller's threads; the roots are
+ * looked up in a table (the forest does not change meanwhile). */
+typedef struct fill_job {
+    join_ctx *j;
+    const uint32_t *root;    /* per id */
+    const double (*mean)[3]; /* by root id - 1 */
+    size_t channels;
+    const double *fill;
+    uint32_t *before; /* per column */
+    uint8_t *len;     /* per column */
+} fill_job;
+
+/* The run of len pixels from 'first' (every 'step') between two parts of
+ * left's joined region: those close to its mean join left. */
+static void fill_run(const fill_job *f, uint32_t left, size_t first, size_t step, size_t len)
 {
-    size_t w = j->seg->width, h = j->seg->height;
-    uint32_t *lab = j->seg->label;
-    for (int vertical = 0; vertical < 2; vertical++) {
-        size_t lines = vertical ? w : h, count = vertical ? h : w, step = vertical ? w : 1;
-        for (size_t l = 0; l < lines; l++) {
-            size_t first = vertical ? l : l * w;
-            for (size_t i = 1; i < count; i++) {
-                size_t k = first + i * step, e = i;
-                uint32_t left = lab[k - step];
-                if (lab[k] || !left)
-                    continue;
-                while (e < count && !lab[first + e * step] &&
-                       j->seg->cls[first + e * step] == LAM_CLASS_NONE)
-                    e++;
-                if (e == count || e - i > JOIN_BAND || !lab[first + e * step] ||
-                    lam__label_root(j->parent, left) !=
-                        lam__label_root(j->parent, lab[first + e * step]))
-                    continue;
-                uint32_t r = lam__label_root(j->parent, left);
-                for (size_t t = i; t < e; t++) {
-                    size_t q = first + t * step;
-                    int close = 1;
-                    for (size_t c = 0; c < channels && close; c++)
-                        close = fabs(j->img->plane[c][q] - mean[r - 1][c]) <= fill[c];
-                    if (close)
-                        lab[q] = left, j->seg->cls[q] = j->seg->regions[left - 1].cls;
-                }
-                i = e;
-            }
+    lam_segmentation *seg = f->j->seg;
+    const double *mean = f->mean[f->root[left] - 1];
+    for (size_t t = 0; t < len; t++) {
+        size_t q = first + t * step;
+        int close = 1;
+        for (size_t c = 0; c < f->channels && close; c++)
+            close = fabs(f->j->img->plane[c][q] - mean[c]) <= f->fill[c];
+        if (close)
+            seg->label[q] = left, seg->cls[q] = seg->regions[left - 1].cls;
+    }
+}
+
+/* Pixels k..k+n-1 of lines 'step' apart from the pixels before them, the
+ * lines' walks at before[i], len[i] (i = 0..n-1, or all at *before, *len
+ * with 'one'). */
+static void fill_pixels(const fill_job *f, size_t k, size_t n, size_t step, uint32_t *before,
+                        uint8_t *len, int one)
+{
+    const lam_segmentation *seg = f->j->seg;
+    for (size_t i = 0; i < n; i++, k++) {
+        uint32_t *b = one ? before : before + i, l = seg->label[k], left = *b;
+        uint8_t *e = one ? len : len + i, run = *e;
+        if (line_step(b, e, seg->label[k - step], l, seg->cls[k]) && run <= JOIN_BAND && left &&
+            f->root[left] == f->root[l])
+            fill_run(f, left, k - run * step, step, run);
+    }
+}
+
+static void fill_rows(size_t y0, size_t y1, size_t slice, void *vjob)
+{
+    (void)slice;
+    const fill_job *f = vjob;
+    size_t w = f->j->seg->width;
+    const uint32_t *lab = f->j->seg->label;
+    const uint8_t *cls = f->j->seg->cls;
+    for (size_t y = y0; y < y1; y++) {
+        uint32_t before = 0;
+        uint8_t len = 0;
+        for (size_t k = y * w + 1, end = (y + 1) * w, n; k < end; k += n) {
+            n = end - k < LINE_BLOCK ? end - k : LINE_BLOCK;
+            if (len || !quiet_block(lab + k, lab + k - 1, cls + k, no_runs, n))
+                fill_pixels(f, k, n, 1, &before, &len, 1);
         }
     }
+}
+
+/* Columns x0..x1-1, walked down together row by row. */
+static void fill_columns(size_t x0, size_t x1, size_t slice, void *vjob)
+{
+    (void)slice;
+    const fill_job *f = vjob;
+    size_t w = f->j->seg->width, h = f->j->seg->height;
+    const uint32_t *lab = f->j->seg->label;
+    const uint8_t *cls = f->j->seg->cls;
+    memset(f->len + x0, 0, x1 - x0);
+    for (size_t y = 1; y < h; y++)
+        for (size_t x = x0, n; x < x1; x += n) {
+            size_t k = y * w + x;
+            n = x1 - x < LINE_BLOCK ? x1 - x : LINE_BLOCK;
+            if (!quiet_block(lab + k, lab + k - w, cls + k, f->len + x, n))
+                fill_pixels(f, k, n, w, f->before + x, f->len + x, 0);
+        }
+}
+
+static int fill_bands(join_ctx *j, const double (*mean)[3], size_t channels, const double fill[3],
+                      size_t threads)
+{
+    size_t n = j->seg->count, w = j->seg->width;
+    uint32_t *root = malloc((n + 1) * sizeof *root), *before = malloc(w * sizeof *before);
+    uint8_t *len = malloc(w);
+    int bad = !root || !before || !len;
+    for (uint32_t id = 0; !bad && id <= n; id++)
+        root[id] = lam__label_root(j->parent, id);
+    if (!bad) {
+        fill_job f = {j, root, mean, channels, fill, before, len};
+        lam_parallel_for(j->seg->height, threads, fill_rows, &f);
+        lam_parallel_for(w, threads, fill_columns, &f);
+    }
+    free(root);
+    free(before);
+    free(len);
+    return bad ? -1 : 0;
 }
 
 /* Interior-weighted mean contrast of each joined region, at its root. */
@@ -171,38 +380,104 @@ static void joined_means(join_ctx *j, double (*mean)[3])
     free(weight);
 }
 
-/* New ids in row-major order of first pixel; map[old id - 1] = new id. */
-static uint32_t renumber(join_ctx *j, uint32_t *map)
+/* ---- renumbering and statistics ----
+ * What renumbering learns of each joined region (by new id - 1): its
+ * pixels, box, and parts (old regions; 'part' one of them). */
+typedef struct new_region {
+    size_t area, box[4];
+    uint32_t parts, part;
+} new_region;
+
+static void add_run(new_region *r, size_t y, size_t x0, size_t x1)
 {
-    size_t n = j->seg->width * j->seg->height, count = j->seg->count;
+    if (!r->area)
+        r->box[0] = x0, r->box[1] = y, r->box[2] = x1 - 1, r->box[3] = y;
+    r->area += x1 - x0;
+    r->box[0] = x0 < r->box[0] ? x0 : r->box[0];
+    r->box[2] = x1 - 1 > r->box[2] ? x1 - 1 : r->box[2];
+    r->box[3] = y;
+}
+
+/* New ids in row-major order of first pixel, run by run of one old label;
+ * map[old id - 1] = new id, nr[new id - 1] what is known of it. */
+static uint32_t renumber(join_ctx *j, uint32_t *map, new_region *nr)
+{
+    size_t w = j->seg->width, h = j->seg->height, count = j->seg->count;
     uint32_t *new_of_root = calloc(count + 1, sizeof *new_of_root), m = 0;
     if (!new_of_root)
         return 0;
-    for (size_t k = 0; k < n; k++) {
-        uint32_t l = j->seg->label[k];
-        if (!l)
-            continue;
-        uint32_t r = lam__label_root(j->parent, l);
-        if (!new_of_root[r])
-            new_of_root[r] = ++m;
-        j->seg->label[k] = new_of_root[r];
+    memset(nr, 0, count * sizeof *nr);
+    for (size_t y = 0; y < h; y++) {
+        uint32_t *row = j->seg->label + y * w;
+        for (size_t x = 0, e; x < w; x = e) {
+            uint32_t l = row[x], r;
+            for (e = x + 1; e < w && row[e] == l;)
+                e++;
+            if (!l)
+                continue;
+            if (!new_of_root[r = lam__label_root(j->parent, l)])
+                new_of_root[r] = ++m;
+            for (size_t t = x; t < e; t++)
+                row[t] = new_of_root[r];
+            add_run(&nr[new_of_root[r] - 1], y, x, e);
+        }
     }
-    for (uint32_t id = 1; id <= count; id++)
+    for (uint32_t id = 1; id <= count; id++) {
         map[id - 1] = new_of_root[lam__label_root(j->parent, id)];
+        nr[map[id - 1] - 1].parts++, nr[map[id - 1] - 1].part = id;
+    }
     free(new_of_root);
     return m;
 }
 
-static lam_status restat(const lam_image *img, lam_segmentation *seg, uint32_t m, lam_error *err)
+/* A joined region of one part and no new pixel is the old region: its
+ * statistics depend on its own pixels alone (lam__region_depth) and are
+ * kept. The others are measured again within their boxes, each on its
+ * own, on the caller's threads. */
+typedef struct restat_job {
+    const lam_image *img;
+    const lam_segmentation *seg; /* renumbered */
+    const new_region *nr;
+    const uint32_t *redo; /* new ids - 1 to measure */
+    uint8_t *depth;       /* written for their pixels only */
+    lam_region_stats *R;
+} restat_job;
+
+static void restat_one(size_t i, void *vjob)
+{
+    const restat_job *job = vjob;
+    uint32_t k = job->redo[i];
+    const lam_segmentation *seg = job->seg;
+    lam__region_depth(seg->label, seg->width, seg->height, k + 1, job->nr[k].box, job->depth);
+    lam__region_statistics_in(job->img, seg->cls, seg->label, job->depth, k + 1, job->nr[k].box,
+                              &job->R[k]);
+}
+
+static lam_status restat(const lam_image *img, lam_segmentation *seg, uint32_t m,
+                         const new_region *nr, size_t threads, lam_error *err)
 {
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
-    uint8_t *depth = lam__boundary_depth(seg->label, seg->width, seg->height);
-    if (!R || !depth) {
+    uint32_t *redo = malloc((m ? m : 1) * sizeof *redo), n = 0;
+    for (uint32_t i = 0; R && redo && i < m; i++) {
+        const lam_region_stats *old = &seg->regions[nr[i].part - 1];
+        if (nr[i].parts > 1 || nr[i].area != old->area) {
+            redo[n++] = i;
+            continue;
+        }
+        R[i] = *old;
+        R[i].id = i + 1;
+        R[i].edge = 0;
+    }
+    uint8_t *depth = n ? malloc(seg->width * seg->height) : NULL;
+    if (!R || !redo || (n && !depth)) {
         free(R);
+        free(redo);
         free(depth);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
     }
-    lam__region_statistics(img, seg->cls, seg->label, depth, R, m);
+    restat_job job = {img, seg, nr, redo, depth, R};
+    lam_parallel_each(n, threads, restat_one, &job);
+    free(redo);
     free(depth);
     free(seg->regions);
     seg->regions = R;
@@ -358,10 +633,10 @@ static lam_status fill_holes(join_ctx *j, const double (*mean)[3], size_t channe
 }
 
 lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
-                            const double fill[3], lam_segmentation *seg, uint32_t *map,
-                            size_t *joined, lam_error *err)
+                            const double fill[3], size_t threads, lam_segmentation *seg,
+                            uint32_t *map, size_t *joined, lam_error *err)
 {
-    size_t w = seg->width, h = seg->height, n = seg->count;
+    size_t n = seg->count;
     *joined = 0;
     join_ctx j = {contrast, seg, key, malloc((n + 1) * sizeof(uint32_t))};
     double (*mean)[3] = malloc((n ? n : 1) * sizeof *mean);
@@ -369,28 +644,30 @@ lam_status lam_segment_join(const lam_image *contrast, size_t channels, const in
     int bad = !j.parent || !mean;
     for (uint32_t id = 0; !bad && id <= n; id++)
         j.parent[id] = id;
-    for (size_t y = 0; y < h && !bad; y++)
-        bad = scan_line(&j, y * w, w, 1, &L);
-    for (size_t x = 0; x < w && !bad; x++)
-        bad = scan_line(&j, x, h, w, &L);
-    lam_status st = bad ? lam_error_set(err, LAM_ENOMEM, "cannot allocate region joining")
-                        : LAM_OK;
-    if (!st) {
-        unite_bridged(&j, &L);
-        joined_means(&j, mean);
-        fill_bands(&j, (const double (*)[3])mean, channels, fill);
-        st = fill_holes(&j, (const double (*)[3])mean, channels, fill, err);
+    if (!bad) {
+        bad = scan_lines(&j, threads ? threads : 1, &L);
+        if (!bad) {
+            unite_bridged(&j, &L);
+            joined_means(&j, mean);
+            bad = fill_bands(&j, (const double (*)[3])mean, channels, fill, threads);
+        }
     }
+    lam_status st = bad ? lam_error_set(err, LAM_ENOMEM, "cannot allocate region joining")
+                        : fill_holes(&j, (const double (*)[3])mean, channels, fill, err);
     uint32_t m = 0;
+    new_region *nr = st ? NULL : malloc((n ? n : 1) * sizeof *nr);
+    if (!st && !nr)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region joining");
     if (!st) {
         for (uint32_t id = 1; id <= n; id++)
             *joined += lam__label_root(j.parent, id) != id;
-        m = renumber(&j, map);
+        m = renumber(&j, map, nr);
         if (n && !m)
             st = lam_error_set(err, LAM_ENOMEM, "cannot allocate region joining");
     }
     if (!st)
-        st = restat(contrast, seg, m, err);
+        st = restat(contrast, seg, m, nr, threads, err);
+    free(nr);
     free(L.v);
     free(mean);
     free(j.parent);

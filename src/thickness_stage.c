@@ -3,6 +3,7 @@
  * region's thickness posterior and its region result. */
 #include "lamina/analyze.h"
 #include "analyze_internal.h"
+#include "lamina/parallel.h"
 #include "lamina/thickness.h"
 
 #include <math.h>
@@ -344,13 +345,14 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
         fill[c] = 0.02 + a->substrate.noise[c];
     if (!st) {
         join_keys(a, key);
-        st = lam_segment_join(contrast, a->channels, key, fill, a->seg, map, &joined, err);
+        st = lam_segment_join(contrast, a->channels, key, fill, lam_parallel_default(), a->seg,
+                              map, &joined, err);
     }
     free(key);
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, contrast);
+    lam__measure_regions(a, contrast, lam_parallel_default());
     return LAM_OK;
 }
 

@@ -33,6 +33,26 @@ static lam_est_region at(const lam_prediction *L, size_t N, double offset, doubl
     return r;
 }
 
+/* The Fermi table's grid points are shared out to one thread per model:
+ * two give the table one gives, to the bit. */
+static void fermi_threads(const lam_estimate *e, const lam_setup *s)
+{
+    lam_model *m[3] = {NULL, NULL, NULL};
+    lam_fermi_table *one = calloc(1, sizeof *one), *two = calloc(1, sizeof *two);
+    lam_error err;
+    int ok = one && two;
+    for (int k = 0; k < 3 && ok; k++)
+        ok = !lam_model_alloc(s, 2, 0, &m[k], &err);
+    ok = ok && !lam_fermi_table_build(e, 0, m, 1, one, &err) &&
+         !lam_fermi_table_build(e, 0, m + 1, 2, two, &err);
+    if (check_true(ok, "Fermi tables built"))
+        check_true(!memcmp(one, two, sizeof *one), "the Fermi table on 2 threads is the one on 1");
+    for (int k = 0; k < 3; k++)
+        lam_model_free(m[k]);
+    free(one);
+    free(two);
+}
+
 int main(void)
 {
     check_begin("test_infer");
@@ -104,6 +124,7 @@ int main(void)
     check_abs(mix.p[2], 0.5 * (r2.p[2] + r4.p[2]), 1e-12, "two readings mixed by weight");
     check_true(mix.flags & LAM_FLAG_AMBIGUOUS, "an even mixture of 2L and 4L is ambiguous");
     check_abs(total(&mix, K), 1, 1e-9, "the mixture sums to one");
+    fermi_threads(e, &s);
     lam_estimate_free(e);
     lam_model_free(m);
     free(L);

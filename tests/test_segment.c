@@ -73,6 +73,78 @@ static int key_of(const lam_region_stats *r)
     return n >= 1 && fabs(g - n * MONO[1]) < 0.3 * MONO[1] ? n : -1;
 }
 
+/* A copy of a segmentation (maps and regions). */
+static lam_segmentation *copy_of(const lam_segmentation *s)
+{
+    lam_segmentation *c = NULL;
+    lam_error err;
+    if (lam_segmentation_alloc(s->width, s->height, &c, &err))
+        return NULL;
+    memcpy(c->label, s->label, s->width * s->height * sizeof *s->label);
+    memcpy(c->cls, s->cls, s->width * s->height);
+    c->count = s->count;
+    c->regions = malloc((s->count ? s->count : 1) * sizeof *s->regions);
+    if (c->regions)
+        memcpy(c->regions, s->regions, s->count * sizeof *s->regions);
+    return c;
+}
+
+/* The join's pixel passes run in slices of rows or columns; a flake cut
+ * across by a row-wise band that straddles the border between two slices
+ * (rows 53 and 106 with 3 threads) must come out as with one thread. */
+static void join_threads(void)
+{
+    lam_image *img = NULL;
+    lam_error err;
+    if (!check_true(!lam_image_alloc(W, H, &img, &err), "second scene allocated"))
+        return;
+    memset(img->clipped, 0, (size_t)W * H);
+    const double zero[3] = {0, 0, 0}, cut[3] = {MONO[0], MONO[1] + 0.025, MONO[2] - 0.02};
+    const double shifted[3] = {MONO[0] + 0.012, MONO[1], MONO[2]};
+    paint(img, 0, 0, W, H, zero);
+    paint(img, 20, 10, 200, 53, MONO);
+    paint(img, 20, 53, 200, 150, shifted);
+    paint(img, 20, 51, 200, 55, cut);
+    paint(img, 20, 104, 200, 108, cut);
+    add_noise(img);
+    lam_segmentation *one = NULL, *three = NULL;
+    lam_segment_options so = lam_segment_options_default();
+    double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
+    int ok = !lam_segmentation_alloc(W, H, &one, &err) &&
+             !lam_segment_uniform(img, 3, MONO, noise, scatter, &so, one, &err) &&
+             (three = copy_of(one)) != NULL;
+    size_t n = one ? one->count : 0, j1 = 0, j3 = 0;
+    int *key = malloc((n ? n : 1) * sizeof *key);
+    uint32_t *m1 = malloc((n ? n : 1) * sizeof *m1), *m3 = malloc((n ? n : 1) * sizeof *m3);
+    ok = ok && key && m1 && m3;
+    for (size_t i = 0; ok && i < n; i++)
+        key[i] = key_of(&one->regions[i]);
+    ok = ok &&
+         !lam_segment_join(img, 3, key, (double[3]){0.04, 0.04, 0.04}, 1, one, m1, &j1, &err) &&
+         !lam_segment_join(img, 3, key, (double[3]){0.04, 0.04, 0.04}, 3, three, m3, &j3, &err);
+    if (check_true(ok, "joined with 1 and 3 threads")) {
+        check_true(j1 >= 1, "the cut flake's parts joined (%zu)", j1);
+        check_true(j1 == j3 && one->count == three->count && !memcmp(m1, m3, n * sizeof *m1) &&
+                       !memcmp(one->label, three->label, (size_t)W * H * sizeof *one->label) &&
+                       !memcmp(one->cls, three->cls, (size_t)W * H) &&
+                       !memcmp(one->regions, three->regions, one->count * sizeof *one->regions),
+                   "the same regions, labels and classes with 3 threads as with 1");
+        lam_segment_edge_areas(img, 3, 1, one);
+        lam_segment_edge_areas(img, 3, 3, three);
+        size_t same = 0, edges = 0;
+        for (size_t i = 0; i < one->count && i < three->count; i++)
+            same += one->regions[i].edge == three->regions[i].edge, edges += one->regions[i].edge;
+        check_true(edges > 0 && same == one->count,
+                   "edge areas (%zu px) the same with 3 threads as with 1", edges);
+    }
+    free(key);
+    free(m1);
+    free(m3);
+    lam_segmentation_free(one);
+    lam_segmentation_free(three);
+    lam_image_free(img);
+}
+
 static uint32_t label_at(const lam_segmentation *s, size_t x, size_t y)
 {
     return s->label[y * W + x];
@@ -100,7 +172,7 @@ int main(void)
         key[i] = key_of(&seg->regions[i]);
     size_t joined = 0;
     double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
-    check_int(lam_segment_join(img, 3, key, fill, seg, map, &joined, &err), LAM_OK, "join");
+    check_int(lam_segment_join(img, 3, key, fill, 1, seg, map, &joined, &err), LAM_OK, "join");
     left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
     check_true(left && left == right, "after joining flake A is one region (%u, %u)", left, right);
     check_true(joined >= 1, "at least one region disappeared (%zu)", joined);
@@ -119,5 +191,6 @@ int main(void)
     free(map);
     lam_segmentation_free(seg);
     lam_image_free(img);
+    join_threads();
     return check_summary();
 }

@@ -100,9 +100,12 @@ typedef struct lam_fermi_table {
 
 /* The 1L and 2L ladders of image 'image' over the Fermi-level grid
  * (0-1.6 eV) at the estimate's fitted values, for the Fermi posterior of
- * lam_infer_region. 'model' needs 2 layers (a coarse one is enough). */
-lam_status lam_fermi_table_build(const lam_estimate *e, size_t image, lam_model *model,
-                                 lam_fermi_table *out, lam_error *err);
+ * lam_infer_region. The grid's points are shared out to 'count' threads,
+ * one per model (models[0..count-1], alike, each used by one thread only;
+ * the table is the same for any count); they need 2 layers (coarse ones
+ * are enough). */
+lam_status lam_fermi_table_build(const lam_estimate *e, size_t image, lam_model *const *models,
+                                 size_t count, lam_fermi_table *out, lam_error *err);
 
 /* p >= 0.95 for a label, goodness-of-fit cut p < 1e-4, "small" below
  * 100 px, K = 6. */

@@ -21,6 +21,15 @@ typedef void (*lam_slice_fn)(size_t begin, size_t end, size_t slice, void *ctx);
  * done. No errors: a thread that cannot be started runs its slice here. */
 void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx);
 
+/* Work on one item 'item' of a list. */
+typedef void (*lam_item_fn)(size_t item, void *ctx);
+
+/* Run fn on every item of [0, count), handed out one at a time to
+ * min(threads, count, LAM_MAX_THREADS) workers: for items of very unequal
+ * cost (regions of a few pixels and of millions), which equal slices would
+ * leave on one thread. Each item must write only its own outputs. */
+void lam_parallel_each(size_t count, size_t threads, lam_item_fn fn, void *ctx);
+
 /* Number of online processors (at least 1). */
 size_t lam_cpu_count(void);
 

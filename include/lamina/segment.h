@@ -109,12 +109,13 @@ lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const
  * is filled. Regions are renumbered in row-major order of their
  * first pixel and their statistics recomputed; map (seg->count entries,
  * caller storage) receives each old id's new id, *joined the number of
- * regions that disappeared. LAM_ENOMEM only. The caller re-measures and
- * re-infers when *joined or holes changed the statistics (compare areas, or
- * simply always). */
+ * regions that disappeared. The pixel passes run on 'threads' threads (the
+ * result is the same for any count). LAM_ENOMEM only. The caller
+ * re-measures and re-infers when *joined or holes changed the statistics
+ * (compare areas, or simply always). */
 lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
-                            const double fill[3], lam_segmentation *seg, uint32_t *map,
-                            size_t *joined, lam_error *err);
+                            const double fill[3], size_t threads, lam_segmentation *seg,
+                            uint32_t *map, size_t *joined, lam_error *err);
 
 /* Connected regions of non-substrate classes with their statistics (used
  * for label maps, whose classes are given). */
@@ -126,8 +127,10 @@ lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_opti
  * interior contrast it is nearest: the half-contrast edge of a blurred
  * step. Sets every region's edge count; the band is a fixed number of
  * pixels wide, so without it a flake's area would depend on the
- * magnification. */
-void lam_segment_edge_areas(const lam_image *contrast, size_t channels, lam_segmentation *seg);
+ * magnification. Rows are shared out to 'threads' threads (the counts are
+ * the same for any number). */
+void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
+                            lam_segmentation *seg);
 
 /* A region's area in pixels up to its half-contrast edge: area + edge. */
 double lam_region_area(const lam_region_stats *r);
