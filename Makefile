@@ -194,7 +194,7 @@ ACCURACY_SCENES ?= 2
 accuracy: $(BUILD)/tests/robust/robust
 	$(BUILD)/tests/robust/robust --scenes $(ACCURACY_SCENES) --log $(BUILD)/accuracy-misses.log
 	$(BUILD)/tests/robust/robust --scenes 1 --batch 6 --log $(BUILD)/accuracy-pooled-misses.log
-	$(BUILD)/tests/robust/robust --scenes 1 --calibrate 4 --only uninformed \
+	$(BUILD)/tests/robust/robust --scenes 1 --calibrate 4 \
 	    --log $(BUILD)/accuracy-calibrated-misses.log
 
 # Outside reference: Debian's python3-meep (materials and a 1-D FDTD).
