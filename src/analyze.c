@@ -321,15 +321,22 @@ static lam_status segment_stage(run *r, lam_error *err)
 
 /* The flakes' oxide combined with the substrate colour's (inverse
  * variances), when that was used; against a colour recorded at a known
- * oxide only the difference from it depends on the index. */
+ * oxide only the difference from it depends on the index. The part of the
+ * error every image of the setup shares (what the oxide audit does not
+ * average down) is the flakes' shared part and the reference oxide's sd,
+ * each with its weight. */
 static void combine_colour(lam_oxide_result *o)
 {
     const lam_colour_oxide *c = &o->colour;
     double index = LAM_OXIDE_INDEX_REL * fabs(c->estimate - c->reference_nm);
     double vg = c->sigma * c->sigma + index * index, vf = o->sigma * o->sigma;
-    o->estimate = (o->estimate / vf + c->estimate / vg) / (1 / vf + 1 / vg);
+    double wf = (1 / vf) / (1 / vf + 1 / vg), wg = 1 - wf;
+    double given = isfinite(o->sigma_given_shared) ? o->sigma_given_shared : o->sigma;
+    double shared_f = sqrt(fmax(0, vf - given * given));
+    double shared = hypot(wf * shared_f, wg * hypot(c->reference_sd, index));
+    o->estimate = wf * o->estimate + wg * c->estimate;
     o->sigma = 1 / sqrt(1 / vf + 1 / vg);
-    o->sigma_given_shared = fmin(o->sigma_given_shared, o->sigma);
+    o->sigma_given_shared = sqrt(fmax(0, o->sigma * o->sigma - shared * shared));
     size_t n = strlen(o->method);
     snprintf(o->method + n, sizeof o->method - n,
              "; combined with the substrate's colour against the calibration");

@@ -107,7 +107,7 @@ lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *mod
                              lam_error *err)
 {
     lam_colour_oxide *c = &a->oxide.colour;
-    *c = (lam_colour_oxide){0, 0, NAN, NAN, NAN, NAN, ""};
+    *c = (lam_colour_oxide){0, 0, NAN, NAN, NAN, NAN, NAN, ""};
     const lam_estimate *e = a->estimate;
     const lam_nuisance *o = &e->image[0].oxide;
     if (!isfinite(s->substrate_colour.oxide_nm) || a->channels < 3 || !o->fitted ||
@@ -119,7 +119,7 @@ lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *mod
     if (st)
         return st;
     *c = (lam_colour_oxide){1, 0, g.oxide_nm, g.sigma_nm, g.chi2, s->substrate_colour.oxide_nm,
-                            ""};
+                            s->substrate_colour.oxide_sd_nm, ""};
     int verdict = gauge_agrees(a, &g, d_f, s_f, half);
     c->used = verdict > 0;
     if (verdict > 0)

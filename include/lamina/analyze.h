@@ -67,7 +67,8 @@ typedef struct lam_colour_oxide {
     int checked;                     /* the gauge was read */
     int used;                        /* it agreed with the flakes and was combined */
     double estimate, sigma, chi2;    /* the gauge's oxide, its sd, its colour chi2 */
-    double reference_nm;             /* the oxide the colour was recorded at */
+    double reference_nm, reference_sd; /* the oxide the colour was recorded at, its sd
+                                      * (an error every image of the setup shares) */
     char note[160];                  /* why it was not used, "" when used */
 } lam_colour_oxide;
 
