@@ -318,7 +318,6 @@ static lam_status segment_stage(run *r, lam_error *err)
     return lam_estimate_set_regions(a->estimate, 0, a->measured, a->count, err);
 }
 
-
 /* The flakes' oxide combined with the substrate colour's (inverse
  * variances), when that was used; against a colour recorded at a known
  * oxide only the difference from it depends on the index. The part of the

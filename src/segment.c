@@ -132,17 +132,25 @@ uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
  * depth map. A pixel's depth depends on its own region's pixels alone
  * (the distance to the nearest pixel not in it), so it is the value the
  * whole-image passes give. */
+/* The first run of label l in row at or after x within the box (its
+ * start, > box[2] when none; *end its end). */
+static size_t next_run(const uint32_t *row, size_t x, uint32_t l, size_t w, const size_t box[4],
+                       size_t *end)
+{
+    while (x <= box[2] && row[x] != l)
+        x++;
+    *end = x <= box[2] ? run_end(row, x, w) : x;
+    return x;
+}
+
 static void label_forward(const uint32_t *lab, uint8_t *d, size_t w, size_t y, uint32_t l,
                           const size_t box[4])
 {
     const uint32_t *row = lab + y * w;
     uint8_t *dr = d + y * w;
-    for (size_t x0 = box[0], x1; x0 <= box[2]; x0 = x1) {
-        if (row[x0] != l) {
-            x1 = x0 + 1;
-            continue;
-        }
-        x1 = run_end(row, x0, w);
+    size_t x1;
+    for (size_t x0 = next_run(row, box[0], l, w, box, &x1); x0 <= box[2];
+         x0 = next_run(row, x1, l, w, box, &x1)) {
         dr[x0] = 1;
         for (size_t x = x0 + 1; x < x1; x++) {
             if (y == 0 || row[x - w] != l) {
@@ -160,12 +168,9 @@ static void label_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, 
 {
     const uint32_t *row = lab + y * w;
     uint8_t *dr = d + y * w;
-    for (size_t x0 = box[0], x1; x0 <= box[2]; x0 = x1) {
-        if (row[x0] != l) {
-            x1 = x0 + 1;
-            continue;
-        }
-        x1 = run_end(row, x0, w);
+    size_t x1;
+    for (size_t x0 = next_run(row, box[0], l, w, box, &x1); x0 <= box[2];
+         x0 = next_run(row, x1, l, w, box, &x1)) {
         if (y + 1 == h) {
             memset(dr + x0, 1, x1 - x0);
             continue;

@@ -109,6 +109,18 @@ static void score_flakes(const synth_scene *sc, const lam_analysis *a, robust_ta
     }
 }
 
+/* What the substrate's colour said, for the log ("" when not read). */
+static const char *colour_note(const lam_colour_oxide *c)
+{
+    static _Thread_local char t[256];
+    if (!c->checked)
+        return "";
+    snprintf(t, sizeof t, "%s; colour %.2f +- %.2f nm, chi2 %.1f, reference %.1f nm%s%s",
+             c->used ? " [colour]" : "", c->estimate, c->sigma, c->chi2, c->reference_nm,
+             c->note[0] ? ": " : "", c->note);
+    return t;
+}
+
 static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tally *t,
                         FILE *log, const char *name)
 {
@@ -116,9 +128,8 @@ static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tal
         return;
     double err = fabs(a->oxide.estimate - sc->phys.oxide_nm);
     if (log) /* every image's oxide, to see a bias or a spread */
-        fprintf(log, "%s: oxide true %.2f found %.2f +- %.2f nm%s colour %.2f +- %.2f chi2 %.1f ref %.1f %s\n", name, sc->phys.oxide_nm,
-                a->oxide.estimate, a->oxide.sigma, a->oxide.colour.used ? " [colour]" : "",
-                a->oxide.colour.estimate, a->oxide.colour.sigma, a->oxide.colour.chi2, a->oxide.colour.reference_nm, a->oxide.colour.note);
+        fprintf(log, "%s: oxide true %.2f found %.2f +- %.2f nm%s\n", name, sc->phys.oxide_nm,
+                a->oxide.estimate, a->oxide.sigma, colour_note(&a->oxide.colour));
     t->oxide_n++;
     t->oxide_abs_sum += err;
     t->oxide_abs_max = fmax(t->oxide_abs_max, err);
