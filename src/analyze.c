@@ -1,6 +1,7 @@
 /* analyze.c - the analysis pipeline for one image, stage by stage. */
 #include "lamina/analyze.h"
 #include "analyze_internal.h"
+#include "lamina/bigalloc.h"
 #include "lamina/clock.h"
 #include "lamina/contrast.h"
 #include "lamina/nksource.h"
@@ -67,7 +68,7 @@ static void display_rows(size_t begin, size_t end, size_t slice, void *vctx)
 static uint8_t *display_copy(const lam_image *img, size_t threads)
 {
     display_ctx *d = malloc(sizeof *d);
-    uint8_t *out = malloc(img->width * img->height * 3);
+    uint8_t *out = lam_big_malloc(img->width * img->height * 3);
     if (!d || !out) {
         free(d);
         free(out);

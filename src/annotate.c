@@ -2,6 +2,7 @@
  * antialiased region outlines, usable rectangles, labels placed without
  * overlap, a legend and a scale bar on backing panels. */
 #include "lamina/report.h"
+#include "lamina/bigalloc.h"
 #include "lamina/contour.h"
 #include "lamina/draw.h"
 #include "lamina/png.h"
@@ -70,7 +71,7 @@ static look region_look(const lam_analysis *a, size_t i)
 static uint32_t *expand_display(lam_analysis *a)
 {
     size_t n = a->width * a->height;
-    uint8_t *p = realloc(a->display, n * 4);
+    uint8_t *p = lam_big_realloc(a->display, n * 4);
     if (!p)
         return NULL;
     a->display = p;

@@ -1,6 +1,7 @@
 /* draw.c - cairo canvases ending in atomic files, Pango text, plot axes
  * and the layer palette shared by every picture lamina draws. */
 #include "lamina/draw.h"
+#include "lamina/bigalloc.h"
 #include "lamina/outfile.h"
 #include "lamina/png.h"
 
@@ -135,7 +136,7 @@ static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_e
     size_t h = (size_t)cairo_image_surface_get_height(s);
     size_t stride = (size_t)cairo_image_surface_get_stride(s);
     const unsigned char *data = cairo_image_surface_get_data(s);
-    uint8_t *rgb = malloc(w * h * 3);
+    uint8_t *rgb = lam_big_malloc(w * h * 3);
     if (!rgb)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu picture", w, h);
     for (size_t y = 0; y < h; y++) {

@@ -1,6 +1,7 @@
 /* image.c - the lam_image type: allocation, size checks, format sniffing,
  * comparing the file's transfer curve with the user's. */
 #include "lamina/image.h"
+#include "lamina/bigalloc.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -44,8 +45,8 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
         return st;
     size_t n = width * height;
     lam_image *img = calloc(1, sizeof *img);
-    float *pix = calloc(3 * n, sizeof *pix);
-    uint8_t *clip = calloc(n, 1);
+    float *pix = lam_big_calloc(3 * n, sizeof *pix);
+    uint8_t *clip = lam_big_calloc(n, 1);
     if (!img || !pix || !clip) {
         free(img);
         free(pix);

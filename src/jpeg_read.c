@@ -3,6 +3,7 @@
  * and pads with grey, is treated as damage. An ICC profile in APP2 markers
  * chooses the transfer curve (colourmeta.h). */
 #include "imageio_internal.h"
+#include "lamina/bigalloc.h"
 #include "colourmeta.h"
 #include "pixconv.h"
 
@@ -117,7 +118,7 @@ static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *e
         return st;
     if (!(job->row = malloc(w * (size_t)chans)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a JPEG row");
-    if (opt->keep_display8 && !(img->display8 = malloc(w * h * 3)))
+    if (opt->keep_display8 && !(img->display8 = lam_big_malloc(w * h * 3)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     return LAM_OK;
 }

@@ -2,6 +2,7 @@
  * RGBA and palette, interlaced or not; alpha is dropped. The sRGB, gAMA
  * and iCCP chunks choose the transfer curve (colourmeta.h). */
 #include "imageio_internal.h"
+#include "lamina/bigalloc.h"
 #include "colourmeta.h"
 #include "pixconv.h"
 #include "png_internal.h"
@@ -112,7 +113,7 @@ static lam_status read_header(png_job *job, FILE *fp, const lam_load_options *op
     job->rows = malloc((job->passes > 1 ? h : 1) * job->rowbytes);
     if (!job->rows)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG row buffers");
-    if (opt->keep_display8 && out_depth == 8 && !(job->img->display8 = malloc((size_t)w * h * 3)))
+    if (opt->keep_display8 && out_depth == 8 && !(job->img->display8 = lam_big_malloc((size_t)w * h * 3)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     return LAM_OK;
 }

@@ -1,6 +1,7 @@
 /* report.c - JSON analysis and layer map (the annotated picture is drawn in
  * annotate.c, the contrast plot in plot.c). */
 #include "lamina/report.h"
+#include "lamina/bigalloc.h"
 #include "lamina/outfile.h"
 #include "lamina/png.h"
 #include "lamina/version.h"
@@ -23,7 +24,7 @@ unsigned lam_report_layer_value(const lam_region_result *r)
 lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err)
 {
     size_t n = a->width * a->height;
-    uint8_t *map = malloc(n);
+    uint8_t *map = lam_big_malloc(n);
     if (!map)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the layer map");
     for (size_t k = 0; k < n; k++) {

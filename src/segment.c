@@ -2,6 +2,7 @@
  * (union-find) and region statistics; the uniform-contrast pixel classes
  * are made in segment_grow.c, the joining of flakes in segment_join.c. */
 #include "lamina/segment.h"
+#include "lamina/bigalloc.h"
 #include "lamina/parallel.h"
 #include "segment_internal.h"
 
@@ -21,8 +22,8 @@ lam_status lam_segmentation_alloc(size_t width, size_t height, lam_segmentation 
     lam_segmentation *s = calloc(1, sizeof *s);
     size_t n = width * height;
     if (s) {
-        s->cls = malloc(n);
-        s->label = calloc(n, sizeof *s->label);
+        s->cls = lam_big_malloc(n);
+        s->label = lam_big_calloc(n, sizeof *s->label);
     }
     if (!s || !s->cls || !s->label) {
         lam_segmentation_free(s);
@@ -115,7 +116,7 @@ static void depth_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, 
  * region's boundary. Two passes (forward, backward). */
 uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
 {
-    uint8_t *d = malloc(w * h);
+    uint8_t *d = lam_big_malloc(w * h);
     if (!d)
         return NULL;
     for (size_t y = 0; y < h; y++)

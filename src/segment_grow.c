@@ -3,6 +3,7 @@
  * same contrast (union-find over pixels), the regions at zero contrast
  * become the substrate. */
 #include "lamina/segment.h"
+#include "lamina/bigalloc.h"
 #include "segment_internal.h"
 #include "lamina/parallel.h"
 
@@ -120,7 +121,7 @@ static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
 static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
 {
     size_t w = e->img->width, h = e->img->height;
-    if (!(e->edge = malloc(w * h)))
+    if (!(e->edge = lam_big_malloc(w * h)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
     lam_parallel_for(h, threads, edge_rows, e);
     if (!e->failed)
@@ -202,7 +203,7 @@ static void difference_stats(const lam_image *img, size_t channels, const double
 {
     size_t w = img->width, n = img->width * img->height, m[2] = {0, 0};
     size_t cap = n / SAMPLE_STRIDE + 1;
-    float *d = malloc(2 * channels * cap * sizeof *d);
+    float *d = lam_big_malloc(2 * channels * cap * sizeof *d);
     uint32_t *hist = malloc(65536 * sizeof *hist);
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < 3; c++)
@@ -444,9 +445,9 @@ static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const m
     L->code = NULL;
     L->pairs = NULL;
     if (L->cap <= 65536) /* 16-bit codes: half the memory of pixel indices */
-        L->code = malloc(L->strips * L->cap * sizeof *L->code);
+        L->code = lam_big_malloc(L->strips * L->cap * sizeof *L->code);
     else
-        L->pairs = malloc(L->strips * L->cap * sizeof *L->pairs);
+        L->pairs = lam_big_malloc(L->strips * L->cap * sizeof *L->pairs);
     L->start = malloc(L->strips * (PAIR_BUCKETS + 1) * sizeof *L->start);
     pair_ctx p = {img, cls, m, L, 0};
     if ((L->code || L->pairs) && L->start)
@@ -671,7 +672,7 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
     memcpy(m.sigma, sigma, sizeof m.sigma);
     m.channels = channels;
     m.stride = 1 + channels;
-    if (!(m.node = malloc(n * m.stride * sizeof *m.node)))
+    if (!(m.node = lam_big_malloc(n * m.stride * sizeof *m.node)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
     init_ctx ic = {img, seg->cls, &m};
     lam_parallel_for(img->height, threads, init_rows, &ic);

@@ -10,6 +10,7 @@
  * joined region's (artefacts) join too, those far from it (a crack, a fold,
  * the substrate between two flakes) do not. */
 #include "lamina/segment.h"
+#include "lamina/bigalloc.h"
 #include "segment_internal.h"
 #include "lamina/parallel.h"
 
@@ -468,7 +469,7 @@ static lam_status restat(const lam_image *img, lam_segmentation *seg, uint32_t m
         R[i].id = i + 1;
         R[i].edge = 0;
     }
-    uint8_t *depth = n ? malloc(seg->width * seg->height) : NULL;
+    uint8_t *depth = n ? lam_big_malloc(seg->width * seg->height) : NULL;
     if (!R || !redo || (n && !depth)) {
         free(R);
         free(redo);

@@ -13,6 +13,7 @@
 
 #include "lamina/analyze.h"
 #include "lamina/batch.h"
+#include "lamina/bigalloc.h"
 #include "lamina/calibrate.h"
 #include "lamina/calibrun.h"
 #include "lamina/catalog.h"

@@ -1,0 +1,27 @@
+/*
+ * lamina/bigalloc.h - memory for whole-image buffers (pixel planes, label
+ * maps, the segmentation's node array).
+ *
+ * These buffers are tens to hundreds of megabytes and are written once
+ * from start to end. With the kernel's 4 KiB pages every first write to a
+ * page is a page fault; at 12 MP that was 129 000 faults and a fifth of
+ * the analysis' time on this machine's virtual CPU (docs/performance.md).
+ * These functions allocate as malloc, calloc and realloc do and then ask
+ * the kernel (madvise, MADV_HUGEPAGE) to back the buffer with 2 MiB pages
+ * where transparent huge pages are enabled "on advice", the usual Linux
+ * default: 512 times fewer faults. The advice is only advice: where it is
+ * not available or refused nothing changes but the speed.
+ *
+ * Free the result with free(). Buffers below 4 MiB get no advice (a huge
+ * page would hold mostly other data). Thread-safe; errors as malloc's: NULL.
+ */
+#ifndef LAMINA_BIGALLOC_H
+#define LAMINA_BIGALLOC_H
+
+#include <stddef.h>
+
+void *lam_big_malloc(size_t bytes);
+void *lam_big_calloc(size_t count, size_t size);
+void *lam_big_realloc(void *p, size_t bytes);
+
+#endif
