@@ -3,6 +3,7 @@
  * oxides eliminated by Schur complement, so the cost grows linearly with the
  * number of images), floor re-estimation, Laplace covariance. */
 #include "estimate_internal.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdint.h>
@@ -529,9 +530,14 @@ static lam_status refloor(fit_ctx *f, double *lp, lam_error *err)
 
 /* ---- Laplace covariance ---- */
 
-static void laplace(fit_ctx *f)
+static lam_status laplace(fit_ctx *f, lam_error *err)
 {
     lam_estimate *e = f->e;
+    /* the Jacobians at this point: the last iteration's were taken at
+     * another one (the last start's, or none in a rival's fresh context) */
+    lam_status st = gradients(f, err);
+    if (st)
+        return st;
     build_normal(e, f->w, &f->q);
     size_t n = f->q.n;
     lam__mat s, l, inv;
@@ -571,6 +577,7 @@ static void laplace(fit_ctx *f)
         o->sigma = o->fitted ? sqrt(1 / ajj + quad) : 0;
         e->image[j].oxide_sigma_given_shared = o->fitted ? sqrt(1 / ajj) : 0;
     }
+    return LAM_OK;
 }
 
 /* ---- bookkeeping after the fit ---- */
@@ -720,31 +727,39 @@ static int distinct(const uint8_t *a, const uint8_t *b, size_t n)
 }
 
 typedef struct mode_set {
-    saved_point best, rival, first;
+    saved_point best, rival, first, now;
     uint8_t *sig_best, *sig_rival, *sig_now;
     double best_lp, rival_lp;
     size_t regions;
 } mode_set;
 
-/* Keep the settled point if it beats the best, or is the best distinct
- * rival so far. */
-static void consider(fit_ctx *f, mode_set *m, double lp)
+/* Keep a settled point (its layer-count signature, parameters and log
+ * posterior) if it beats the best, or is the best distinct rival so far. */
+static void keep(mode_set *m, const uint8_t *sig, const saved_point *pt, double lp,
+                 size_t images)
 {
-    signature(f->e, f->w, m->sig_now);
     if (lp > m->best_lp + 1e-6) {
-        if (distinct(m->sig_now, m->sig_best, m->regions)) { /* the old best becomes the rival */
+        if (distinct(sig, m->sig_best, m->regions)) { /* the old best becomes the rival */
             m->rival_lp = m->best_lp;
-            copy_point(&m->rival, &m->best, f->e->images);
+            copy_point(&m->rival, &m->best, images);
             memcpy(m->sig_rival, m->sig_best, m->regions);
         }
         m->best_lp = lp;
-        save_point(f->e, &m->best);
-        memcpy(m->sig_best, m->sig_now, m->regions);
-    } else if (lp > m->rival_lp && distinct(m->sig_now, m->sig_best, m->regions)) {
+        copy_point(&m->best, pt, images);
+        memcpy(m->sig_best, sig, m->regions);
+    } else if (lp > m->rival_lp && distinct(sig, m->sig_best, m->regions)) {
         m->rival_lp = lp;
-        save_point(f->e, &m->rival);
-        memcpy(m->sig_rival, m->sig_now, m->regions);
+        copy_point(&m->rival, pt, images);
+        memcpy(m->sig_rival, sig, m->regions);
     }
+}
+
+/* The same for the fit's current point. */
+static void consider(fit_ctx *f, mode_set *m, double lp)
+{
+    signature(f->e, f->w, m->sig_now);
+    save_point(f->e, &m->now);
+    keep(m, m->sig_now, &m->now, lp, f->e->images);
 }
 
 static size_t total_regions(const lam_estimate *e)
@@ -763,10 +778,11 @@ static int mode_set_init(mode_set *m, const lam_estimate *e)
     m->best.oxide = malloc(k * sizeof(double));
     m->rival.oxide = malloc(k * sizeof(double));
     m->first.oxide = malloc(k * sizeof(double));
+    m->now.oxide = malloc(k * sizeof(double));
     m->sig_best = malloc(r), m->sig_rival = malloc(r), m->sig_now = malloc(r);
     m->rival_lp = -INFINITY;
-    return m->best.oxide && m->rival.oxide && m->first.oxide && m->sig_best && m->sig_rival &&
-           m->sig_now;
+    return m->best.oxide && m->rival.oxide && m->first.oxide && m->now.oxide && m->sig_best &&
+           m->sig_rival && m->sig_now;
 }
 
 static void mode_set_free(mode_set *m)
@@ -774,6 +790,7 @@ static void mode_set_free(mode_set *m)
     free(m->best.oxide);
     free(m->rival.oxide);
     free(m->first.oxide);
+    free(m->now.oxide);
     free(m->sig_best);
     free(m->sig_rival);
     free(m->sig_now);
@@ -817,29 +834,181 @@ static lam_status settle_seeded(fit_ctx *f, const uint8_t *sig, double ratio, do
     return st ? st : settle(f, lp, err);
 }
 
+/* A start from the fit's first point: the shared parameters back at the
+ * priors' centre (a fresh start, as the first), the start's oxide and
+ * scale. */
+static void begin_start(lam_estimate *e, const saved_point *first, const start_point *sp)
+{
+    restore_point(e, first);
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        e->shared[k].value = e->shared[k].prior_mean;
+    apply_start(e, sp);
+}
+
+/* A start whose settling reads the best reading so far (settle_seeded)
+ * must wait for the starts before it; the others are independent. */
+static int start_seeded(const lam_estimate *e, const start_point *sp)
+{
+    return sp->alt < 0 && lam__curves_unknown(e);
+}
+
+/* What an independent start settled to. */
+typedef struct start_result {
+    saved_point pt;
+    uint8_t *sig;
+    double lp;
+    size_t iterations;
+    lam_status st;
+    lam_error err;
+} start_result;
+
+/* The independent starts, in slices on the fit's threads: slice 0 on the
+ * fit itself, every other slice on a copy of the estimate and of the
+ * model (the model keeps caches), made before the threads start. A
+ * start's result depends only on its start point, so it is the same on
+ * any slice and for any thread count. */
+typedef struct worker {
+    fit_ctx g;
+    lam_estimate *copy;
+    lam_model *model;
+    int ready;
+} worker;
+
+typedef struct starts_job {
+    fit_ctx *f;
+    worker *crew;        /* slices 1.. */
+    const mode_set *m;
+    const start_point *sp;
+    const size_t *which; /* indices into sp of the independent starts */
+    start_result *res;
+} starts_job;
+
+static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
+{
+    start_result *r = &job->res[k];
+    size_t before = g->e->iterations;
+    begin_start(g->e, &job->m->first, &job->sp[job->which[k]]);
+    r->st = settle(g, &r->lp, &r->err);
+    r->iterations = g->e->iterations - before;
+    g->e->iterations = before; /* added to the fit's count in the list's order */
+    if (!r->st) {
+        signature(g->e, g->w, r->sig);
+        save_point(g->e, &r->pt);
+    }
+}
+
+static void settle_slice(size_t k0, size_t k1, size_t slice, void *vjob)
+{
+    const starts_job *job = vjob;
+    fit_ctx *use = slice ? &job->crew[slice - 1].g : job->f;
+    for (size_t k = k0; k < k1; k++)
+        settle_one(use, job, k);
+}
+
+static void crew_free(worker *crew, size_t n)
+{
+    for (size_t i = 0; crew && i < n; i++) {
+        if (crew[i].ready)
+            free_ctx(&crew[i].g);
+        lam_model_free(crew[i].model);
+        lam_estimate_free(crew[i].copy);
+    }
+    free(crew);
+}
+
+/* Copies of the estimate and the model for slices 1..threads-1. */
+static lam_status crew_alloc(const fit_ctx *f, size_t threads, worker **out, lam_error *err)
+{
+    size_t n = threads > 1 ? threads - 1 : 0;
+    worker *crew = calloc(n ? n : 1, sizeof *crew);
+    lam_status st = crew ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
+    for (size_t i = 0; i < n && !st; i++) {
+        worker *w = &crew[i];
+        if (!(w->copy = lam__estimate_clone(f->e)))
+            st = lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
+        else if (!(st = lam_model_clone(f->model, &w->model, err)) &&
+                 !(st = init_ctx(&w->g, w->copy, w->model, err)))
+            w->ready = 1;
+    }
+    if (st) {
+        crew_free(crew, n);
+        crew = NULL;
+    }
+    *out = crew;
+    return st;
+}
+
+static void free_results(start_result *res, size_t n)
+{
+    for (size_t k = 0; res && k < n; k++) {
+        free(res[k].pt.oxide);
+        free(res[k].sig);
+    }
+    free(res);
+}
+
+static start_result *alloc_results(const lam_estimate *e, size_t n, size_t regions)
+{
+    start_result *res = calloc(n ? n : 1, sizeof *res);
+    int ok = res != NULL;
+    for (size_t k = 0; ok && k < n; k++)
+        ok = (res[k].pt.oxide = malloc((e->images ? e->images : 1) * sizeof(double))) &&
+             (res[k].sig = malloc(regions ? regions : 1));
+    if (!ok) {
+        free_results(res, n);
+        return NULL;
+    }
+    return res;
+}
+
+/* The other starts (grid maxima, the doubled and halved scale), each
+ * settled and kept in the order of the list: the independent ones first,
+ * side by side, then the seeded ones in turn. */
 static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
     start_point sp[16];
-    size_t n = list_starts(e, sp, 16);
+    size_t n = list_starts(e, sp, 16), which[16], nind = 0, at[16];
     save_point(e, &m->best);
     save_point(e, &m->first);
     signature(e, f->w, m->sig_best);
     m->best_lp = *logpost;
-    lam_status st = LAM_OK;
+    for (size_t i = 0; i < n; i++) {
+        at[i] = SIZE_MAX; /* seeded: settled in turn below */
+        if (!start_seeded(e, &sp[i])) {
+            which[nind] = i;
+            at[i] = nind++;
+        }
+    }
+    start_result *res = alloc_results(e, nind, m->regions);
+    if (!res)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
+    size_t threads = e->opt.threads ? e->opt.threads : 1;
+    threads = threads < nind ? threads : (nind ? nind : 1);
+    threads = threads < LAM_MAX_THREADS ? threads : LAM_MAX_THREADS;
+    worker *crew = NULL;
+    lam_status st = crew_alloc(f, threads, &crew, err);
+    if (!st) {
+        starts_job job = {f, crew, m, sp, which, res};
+        lam_parallel_for(nind, threads, settle_slice, &job);
+        crew_free(crew, threads - 1);
+    }
     for (size_t i = 0; i < n && !st; i++) {
-        restore_point(e, &m->first);
-        for (int k = 0; k < LAM_NU_COUNT; k++)
-            e->shared[k].value = e->shared[k].prior_mean; /* a fresh start, as the first */
-        apply_start(e, &sp[i]);
+        start_result *r = at[i] == SIZE_MAX ? NULL : &res[at[i]];
+        if (r) {
+            e->iterations += r->iterations;
+            if ((st = r->st))
+                *err = r->err;
+            else
+                keep(m, r->sig, &r->pt, r->lp, e->images);
+            continue;
+        }
         double lp, ratio = sp[i].alt == START_DOUBLED ? 2.0 : 0.5;
-        if (sp[i].alt < 0 && lam__curves_unknown(e))
-            st = settle_seeded(f, m->sig_best, ratio, &lp, err);
-        else
-            st = settle(f, &lp, err);
-        if (!st)
+        begin_start(e, &m->first, &sp[i]);
+        if (!(st = settle_seeded(f, m->sig_best, ratio, &lp, err)))
             consider(f, m, lp);
     }
+    free_results(res, nind);
     if (!st) {
         restore_point(e, &m->best);
         st = objective(e, f->model, f->w, logpost, err);
@@ -848,12 +1017,15 @@ static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error
 }
 
 /* The Laplace fit of a point: covariance, counts and log evidence. */
-static void finish(fit_ctx *f, double lp)
+static lam_status finish(fit_ctx *f, double lp, lam_error *err)
 {
-    laplace(f);
+    lam_status st = laplace(f, err);
+    if (st)
+        return st;
     count_regions(f->e, f->w);
     f->e->log_evidence += lp;
     f->e->fitted = 1;
+    return LAM_OK;
 }
 
 /* A rival mode within LAM_RIVAL_MARGIN of the best in log posterior is
@@ -873,7 +1045,7 @@ static lam_status fit_rival(fit_ctx *f, const mode_set *m, lam_error *err)
     if (!st) {
         restore_point(r, &m->rival);
         if (!(st = objective(r, g.model, g.w, &lp, err)))
-            finish(&g, lp);
+            st = finish(&g, lp, err);
         free_ctx(&g);
     }
     /* The weight is the ratio of the posterior densities at the two modes.
@@ -911,10 +1083,8 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
     if (!st && !(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
         st = multistart(&f, &lp, &m, err);
-    if (!st) {
-        finish(&f, lp);
+    if (!st && !(st = finish(&f, lp, err)))
         st = fit_rival(&f, &m, err);
-    }
     mode_set_free(&m);
     free_ctx(&f);
     return st;
@@ -931,8 +1101,7 @@ lam_status lam_estimate_refit(lam_estimate *e, lam_model *model, lam_error *err)
     st = run_em(&f, e->opt.max_iterations, &lp, err);
     if (!st)
         st = refloor(&f, &lp, err);
-    if (!st) {
-        laplace(&f);
+    if (!st && !(st = laplace(&f, err))) {
         count_regions(e, f.w);
         e->fitted = 1;
     }

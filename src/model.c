@@ -297,6 +297,57 @@ lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_m
     return lam_model_alloc(&fs, max_layers, 0, out, err);
 }
 
+/* A copy of array 'src' of n elements of 'size' bytes into *dst (NULL
+ * stays NULL); 0 when out of memory. */
+static int copy_array(void **dst, const void *src, size_t n, size_t size)
+{
+    *dst = NULL;
+    if (!src)
+        return 1;
+    if (!(*dst = malloc(n ? n * size : 1)))
+        return 0;
+    memcpy(*dst, src, n * size);
+    return 1;
+}
+
+lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err)
+{
+    lam_model *m = calloc(1, sizeof *m);
+    if (!m)
+        return lam_error_set(err, LAM_ENOMEM, "cannot copy a model");
+    *m = *src;
+    /* the copy's own arrays; its caches start empty (they give the same
+     * values when refilled: every key is compared exactly) */
+    m->wl = m->trapezoid = m->lamp = m->weight = m->rbar = NULL;
+    m->n_layer = m->n_base = m->n_film = m->n_film_layer = m->basis = m->y_sheet = NULL;
+    memset(m->slot, 0, sizeof m->slot);
+    memset(&m->camera_table_copy, 0, sizeof m->camera_table_copy);
+    m->have_weight = m->have_basis = m->have_rbar = 0;
+    m->rbar_slot = NULL;
+    m->clock = 0;
+    m->cone_cache.na = -1;
+    size_t n = m->nwl, nl = m->layers ? m->layers : 1;
+    int ok = alloc_arrays(m);
+    if (ok) {
+        memcpy(m->wl, src->wl, n * sizeof *m->wl);
+        memcpy(m->trapezoid, src->trapezoid, n * sizeof *m->trapezoid);
+        memcpy(m->lamp, src->lamp, n * sizeof *m->lamp);
+        memcpy(m->n_layer, src->n_layer, nl * n * sizeof *m->n_layer);
+        memcpy(m->n_base, src->n_base, n * sizeof *m->n_base);
+        ok = copy_array((void **)&m->n_film, src->n_film, n, sizeof *m->n_film) &&
+             copy_array((void **)&m->n_film_layer, src->n_film_layer, src->film_layers * n,
+                        sizeof *m->n_film_layer);
+    }
+    lam_status st = ok ? copy_camera(m, &src->camera, err)
+                       : lam_error_set(err, LAM_ENOMEM, "cannot copy a model");
+    if (st) {
+        lam_model_free(m);
+        return st;
+    }
+    *out = m;
+    return LAM_OK;
+}
+
 lam_model_point lam_model_point_default(const lam_model *m)
 {
     return m->defaults;

@@ -53,6 +53,51 @@ static void fermi_threads(const lam_estimate *e, const lam_setup *s)
     free(two);
 }
 
+/* The multistart's independent starts run side by side on the fit's
+ * threads: two and three threads give the fit one gives, to the bit. */
+static void fit_threads(const lam_setup *s, lam_model *m, const lam_est_region *given, size_t n)
+{
+    /* noisy regions (sd 0.02), so that other oxides and scales stay within
+     * reach of the best and are started from */
+    lam_est_region regions[16];
+    n = n < 16 ? n : 16;
+    for (size_t i = 0; i < n; i++) {
+        regions[i] = given[i];
+        for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
+            regions[i].var[c] = 4e-4;
+    }
+    double value[3][LAM_NU_COUNT + 2];
+    size_t iterations[3];
+    int ok = 1;
+    for (size_t t = 0; t < 3 && ok; t++) {
+        lam_estimate_options eo = lam_estimate_options_default();
+        eo.threads = t + 1;
+        lam_estimate *e = NULL;
+        lam_error err;
+        ok = !lam_estimate_alloc(s, lam_model_channels(m), &eo, &e, &err);
+        /* the camera's gains given: the doubled and halved starts are
+         * independent too (with unknown curves they are seeded, in turn) */
+        for (size_t c = 0; ok && c < lam_model_channels(m); c++)
+            lam_estimate_set_prior(e, LAM_NU_GAIN + (int)c, 0, 0.03, "test");
+        ok = ok && !lam_estimate_add_image(e, NULL, 0, 285, NAN, NULL, &err) &&
+             !lam_estimate_set_regions(e, 0, regions, n, &err) &&
+             !lam_estimate_fit(e, m, m, &err);
+        for (int k = 0; ok && k < LAM_NU_COUNT; k++)
+            value[t][k] = e->shared[k].value;
+        if (ok) {
+            value[t][LAM_NU_COUNT] = e->image[0].oxide.value;
+            value[t][LAM_NU_COUNT + 1] = e->image[0].oxide.sigma;
+            iterations[t] = e->iterations;
+        }
+        lam_estimate_free(e);
+    }
+    if (check_true(ok, "fits on 1, 2 and 3 threads"))
+        check_true(!memcmp(value[0], value[1], sizeof value[0]) &&
+                       !memcmp(value[0], value[2], sizeof value[0]) &&
+                       iterations[0] == iterations[1] && iterations[0] == iterations[2],
+                   "the fit on 2 and 3 threads is the one on 1 (%zu iterations)", iterations[0]);
+}
+
 int main(void)
 {
     check_begin("test_infer");
@@ -78,6 +123,7 @@ int main(void)
         fit[i] = at(L, 1 + (size_t)(i % 3), 0.002 * ((i % 3) - 1), 1e-6);
     check_int(lam_estimate_set_regions(e, 0, fit, 9, &err), LAM_OK, "regions");
     check_int(lam_estimate_fit(e, m, m, &err), LAM_OK, "fit (%s)", err.message);
+    fit_threads(&s, m, fit, 9);
     check_int(lam_estimate_view(e, 0, m, v, &err), LAM_OK, "view");
     lam_infer_options io = lam_infer_options_default();
     size_t K = io.max_layers;

@@ -81,6 +81,10 @@ void lam_model_free(lam_model *m);
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err);
 
+/* An independent copy of a model (same setup, same results, caches of its
+ * own): for evaluating on several threads, one model per thread. */
+lam_status lam_model_clone(const lam_model *m, lam_model **out, lam_error *err);
+
 /* The camera channels (1 to 3) and the layers (K) a model evaluates. */
 size_t lam_model_channels(const lam_model *m);
 size_t lam_model_max_layers(const lam_model *m);
