@@ -471,28 +471,35 @@ static lam_status ensure_cone(lam_model *m, double na, lam_error *err)
     return LAM_OK;
 }
 
-/* Admittance of the substrate stack at one wavelength, angle and
- * polarisation, seen from just above its top film. */
-static double complex substrate_admittance(const lam_model *m, size_t l, double oxide_nm,
-                                           double kx, lam_pol pol)
+/* cos and sin of a phase; a real phase (a lossless film below its
+ * critical angle, the ambient gap) takes the real functions. */
+static void phase_cos_sin(double complex ph, double complex *c, double complex *s)
+{
+    if (cimag(ph) == 0) {
+        *c = cos(creal(ph)), *s = sin(creal(ph));
+    } else {
+        *c = ccos(ph), *s = csin(ph);
+    }
+}
+
+/* Admittance of the substrate stack at one wavelength and angle, for s
+ * (y[0]) and p (y[1]), seen from just above its top film. The wave
+ * vectors and phases are the same for both polarisations: computed once. */
+static void substrate_admittance(const lam_model *m, size_t l, double oxide_nm, double kx,
+                                 double complex y[2])
 {
     double k0 = 2.0 * M_PI / m->wl[l];
     double complex qb = lam_tmm_q(m->n_base[l], kx);
-    double complex y = lam_tmm_eta(m->n_base[l], qb, pol);
+    for (int pol = 0; pol < 2; pol++)
+        y[pol] = lam_tmm_eta(m->n_base[l], qb, (lam_pol)pol);
     for (size_t j = m->layers; j-- > 0;) {
         double complex n = m->n_layer[j * m->nwl + l];
-        double complex q = lam_tmm_q(n, kx);
+        double complex q = lam_tmm_q(n, kx), cph, sph;
         double d = j == m->oxide_layer ? oxide_nm : m->layer_nm[j];
-        double complex ph = k0 * q * d, cph, sph;
-        if (cimag(ph) == 0) {
-            /* a lossless film below its critical angle: a real phase */
-            cph = cos(creal(ph)), sph = sin(creal(ph));
-        } else {
-            cph = ccos(ph), sph = csin(ph);
-        }
-        y = lam_tmm_through_film(y, lam_tmm_eta(n, q, pol), cph, sph);
+        phase_cos_sin(k0 * q * d, &cph, &sph);
+        for (int pol = 0; pol < 2; pol++)
+            y[pol] = lam_tmm_through_film(y[pol], lam_tmm_eta(n, q, (lam_pol)pol), cph, sph);
     }
-    return y;
 }
 
 /* Transmission: the substrate's admittance and 4 Re(eta_base) / |B|^2,
@@ -533,17 +540,16 @@ static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
         double k0 = 2.0 * M_PI / m->wl[l];
         for (size_t t = 0; t < c->nodes; t++) {
             double kx = m->n_ambient * c->sin_t[t];
-            double complex q0 = lam_tmm_q(m->n_ambient, kx), gap = k0 * q0 * m->interlayer_nm;
+            double complex q0 = lam_tmm_q(m->n_ambient, kx);
             size_t k = l * c->nodes + t;
-            s->gap_cos[k] = ccos(gap);
-            s->gap_sin[k] = csin(gap);
+            phase_cos_sin(k0 * q0 * m->interlayer_nm, &s->gap_cos[k], &s->gap_sin[k]);
+            if (!m->transmission)
+                substrate_admittance(m, l, oxide_nm, kx, &s->y[2 * k]);
             for (int pol = 0; pol < 2; pol++) {
                 size_t i = 2 * k + (size_t)pol;
                 if (m->transmission)
                     s->y[i] = substrate_transmission(m, l, oxide_nm, kx, (lam_pol)pol,
                                                      &s->tnorm[i]);
-                else
-                    s->y[i] = substrate_admittance(m, l, oxide_nm, kx, (lam_pol)pol);
                 s->eta0[i] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
             }
         }
@@ -583,8 +589,9 @@ static double reflectance(double complex eta0, double complex y)
 /* Cone-averaged R(l, N) for N = 0..layers into m->rbar. The field pair
  * (B, C) = (E, H) at the top of the stack is carried up sheet by sheet
  * (a sheet adds y B to C; an ambient gap is a characteristic matrix), so
- * each layer costs one division, for its reflectance. */
-static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
+ * each layer costs one division, for its reflectance. Transmission
+ * (stamps) takes this path; reflection the vectorised one below. */
+static void stack_sheets_general(lam_model *m, const substrate_slot *s, size_t layers)
 {
     const cone *c = &m->cone_cache;
     size_t stride = m->max_layers + 1;
@@ -619,6 +626,99 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
                     acc[N] += wt * creal(r * conj(r));
                 }
             }
+        }
+    }
+}
+
+/* The reflection stack of one wavelength for all cone nodes and
+ * polarisations at once ("items"), in real arithmetic on arrays, so that
+ * the compiler runs the items side by side on vector units: the fit
+ * evaluates this ladder ~20 times per iteration. Item i's fields (b, c)
+ * and constants: cos of the gap cg, i sin/eta0 (g1), i sin eta0 (g2),
+ * eta0 and the weight. */
+#define MAX_ITEMS (2 * MAX_NODES)
+
+typedef struct stack_items {
+    size_t n;
+    double br[MAX_ITEMS], bi[MAX_ITEMS], cr[MAX_ITEMS], ci[MAX_ITEMS];
+    double gcr[MAX_ITEMS], gci[MAX_ITEMS], g1r[MAX_ITEMS], g1i[MAX_ITEMS];
+    double g2r[MAX_ITEMS], g2i[MAX_ITEMS], er[MAX_ITEMS], ei[MAX_ITEMS];
+    double wt[MAX_ITEMS], r2[MAX_ITEMS];
+} stack_items;
+
+/* The items of wavelength l; returns the bare substrate's R. */
+static double load_items(const lam_model *m, const substrate_slot *s, size_t l, stack_items *it)
+{
+    const cone *c = &m->cone_cache;
+    double r0 = 0;
+    it->n = 0;
+    for (size_t t = 0; t < c->nodes; t++) {
+        size_t k = l * c->nodes + t;
+        double complex cg = s->gap_cos[k], sg = s->gap_sin[k];
+        int npol = c->sin_t[t] > 0 ? 2 : 1; /* at normal incidence s and p coincide */
+        for (int pol = 0; pol < npol; pol++) {
+            size_t i = it->n++;
+            double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
+            double complex g1 = I * sg / eta0, g2 = I * sg * eta0;
+            it->br[i] = 1, it->bi[i] = 0, it->cr[i] = creal(y), it->ci[i] = cimag(y);
+            it->gcr[i] = creal(cg), it->gci[i] = cimag(cg);
+            it->g1r[i] = creal(g1), it->g1i[i] = cimag(g1);
+            it->g2r[i] = creal(g2), it->g2i[i] = cimag(g2);
+            it->er[i] = creal(eta0), it->ei[i] = cimag(eta0);
+            it->wt[i] = c->w_t[t] / (double)npol;
+            r0 += it->wt[i] * reflectance(eta0, y);
+        }
+    }
+    return r0;
+}
+
+/* One ambient gap (characteristic matrix) on every item's fields. */
+static void items_gap(stack_items *restrict it)
+{
+    for (size_t i = 0; i < it->n; i++) {
+        double br = it->br[i], bi = it->bi[i], cr = it->cr[i], ci = it->ci[i];
+        it->br[i] = (it->gcr[i] * br - it->gci[i] * bi) - (it->g1r[i] * cr - it->g1i[i] * ci);
+        it->bi[i] = (it->gcr[i] * bi + it->gci[i] * br) - (it->g1r[i] * ci + it->g1i[i] * cr);
+        it->cr[i] = (it->gcr[i] * cr - it->gci[i] * ci) - (it->g2r[i] * br - it->g2i[i] * bi);
+        it->ci[i] = (it->gcr[i] * ci + it->gci[i] * cr) - (it->g2r[i] * bi + it->g2i[i] * br);
+    }
+}
+
+/* One sheet (C += y B) and every item's reflectance
+ * |eta0 B - C|^2 / |eta0 B + C|^2; returns their weighted sum, added in
+ * item order. */
+static double items_sheet(stack_items *restrict it, double yr, double yi)
+{
+    for (size_t i = 0; i < it->n; i++) {
+        double br = it->br[i], bi = it->bi[i];
+        double cr = it->cr[i] + (yr * br - yi * bi), ci = it->ci[i] + (yr * bi + yi * br);
+        it->cr[i] = cr, it->ci[i] = ci;
+        double er = it->er[i] * br - it->ei[i] * bi, ei = it->er[i] * bi + it->ei[i] * br;
+        double nr = er - cr, ni = ei - ci, dr = er + cr, di = ei + ci;
+        it->r2[i] = (nr * nr + ni * ni) / (dr * dr + di * di);
+    }
+    double a = 0;
+    for (size_t i = 0; i < it->n; i++)
+        a += it->wt[i] * it->r2[i];
+    return a;
+}
+
+static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
+{
+    if (m->transmission) {
+        stack_sheets_general(m, s, layers);
+        return;
+    }
+    size_t stride = m->max_layers + 1;
+    stack_items it;
+    for (size_t l = 0; l < m->nwl; l++) {
+        double *acc = m->rbar + l * stride;
+        double yr = creal(m->y_sheet[l]), yi = cimag(m->y_sheet[l]);
+        acc[0] = load_items(m, s, l, &it);
+        for (size_t N = 1; N <= layers; N++) {
+            if (N > 1)
+                items_gap(&it);
+            acc[N] = items_sheet(&it, yr, yi);
         }
     }
 }
