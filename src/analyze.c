@@ -261,13 +261,24 @@ static lam_status substrate_stage(run *r, lam_error *err)
     return LAM_OK;
 }
 
-/* The steps a file's coding makes in flat areas at the substrate's level,
- * per channel, in contrast units (lam_image_code_step). */
+/* The steps a file's coding makes in flat areas, as a relative change of
+ * linear light at the substrate's level, per channel: one JPEG DC
+ * quantisation step (lam_image.jpeg_dc_step), and for any 8-bit file at
+ * least one code (which matters in dark images). */
 static void file_steps(const lam_image *img, const lam_substrate *sub, size_t channels,
                        double out[3])
 {
-    for (size_t c = 0; c < 3; c++)
-        out[c] = c < channels ? lam_image_code_step(img, c, sub->level[c]) : 0;
+    for (size_t c = 0; c < 3; c++) {
+        out[c] = 0;
+        double level = sub->level[c < channels ? c : 0], q = img->jpeg_dc_step[c];
+        if (img->bit_depth == 8)
+            q = fmax(q, 1.0);
+        if (c >= channels || !(q > 0) || !(level > 0))
+            continue;
+        double v = lam_transfer_encode(&img->transfer, fmin(level, 1.0));
+        double up = lam_transfer_decode(&img->transfer, fmin(v + q / 255.0, 1.0));
+        out[c] = (up - level) / level;
+    }
 }
 
 void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads)

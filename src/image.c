@@ -216,15 +216,3 @@ int lam_image_transfer_conflict(const lam_image *img, const lam_transfer *user)
     }
     return 0;
 }
-
-double lam_image_code_step(const lam_image *img, size_t c, double level)
-{
-    double q = c < 3 ? img->jpeg_dc_step[c] : 0;
-    if (img->bit_depth == 8)
-        q = fmax(q, 1.0);
-    if (!(q > 0) || !(level > 0))
-        return 0;
-    double v = lam_transfer_encode(&img->transfer, fmin(level, 1.0));
-    double up = lam_transfer_decode(&img->transfer, fmin(v + q / 255.0, 1.0));
-    return (up - level) / level;
-}

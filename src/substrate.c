@@ -297,24 +297,6 @@ static void substrate_stats(const tile_stat *ts, size_t n, size_t T, const lam_i
     s->falloff = 1 - gmin / gmax;
 }
 
-/* A JPEG's DC step per channel at the uniform tiles' median level
- * (lam_image_code_step); 0 for other files, whose tiles average their
- * pixels' rounding away (noise dithers it). */
-static void coding_steps(const lam_image *img, const tile_stat *ts, size_t n, double *scratch,
-                         double step[3])
-{
-    for (size_t c = 0; c < 3; c++) {
-        step[c] = 0;
-        if (img->kind != LAM_FILE_JPEG)
-            continue;
-        size_t k = 0;
-        for (size_t i = 0; i < n; i++)
-            if (ts[i].uniform)
-                scratch[k++] = ts[i].mean[c];
-        step[c] = k ? lam_image_code_step(img, c, median_of(scratch, k)) : 0;
-    }
-}
-
 static size_t tile_size(const lam_image *img, const lam_substrate_options *opt)
 {
     size_t T = opt->tile ? opt->tile : 32;
@@ -344,9 +326,7 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     s.height = img->height;
     tile_stats(img, T, ts, nx, ny, opt->threads ? opt->threads : 1);
     mark_uniform(ts, n, scratch);
-    double step[3];
-    coding_steps(img, ts, n, scratch, step);
-    size_t cand = thin_candidates(ts, n, lam__substrate_candidates(ts, nx, ny, &s, opt, step));
+    size_t cand = thin_candidates(ts, n, lam__substrate_candidates(ts, nx, ny, &s, opt));
     lam_status st = LAM_OK;
     if (opt->has_roi && cand == 0)
         st = lam_error_set(err, LAM_ERANGE, "the substrate region holds no uniform tile of %zu px", T);

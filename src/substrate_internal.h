@@ -17,10 +17,8 @@ void lam__substrate_basis(const lam_substrate *s, double x, double y, double *b)
 
 /* Mark the uniform tiles that are the bare substrate (tile_stat.candidate)
  * and return how many: the user's region when given, else the colour and
- * brightness mode against which the others look like graphene. 'step':
- * the file's coding step per channel relative to the tiles' level
- * (lam_image_code_step), by which flat substrate blocks of a JPEG jump. */
+ * brightness mode against which the others look like graphene. */
 size_t lam__substrate_candidates(tile_stat *ts, size_t nx, size_t ny, const lam_substrate *s,
-                                 const lam_substrate_options *opt, const double step[3]);
+                                 const lam_substrate_options *opt);
 
 #endif

@@ -287,24 +287,16 @@ static double spread(const tile_stat *ts, size_t n, const double *r, const mode 
     return 1.4826 * scratch[k / 2];
 }
 
-/* The chosen mode's tiles: within 4.5 of its own spreads (noise widens
- * it), at least the box, at most 0.04 in brightness and 0.02 in colour (a
- * monolayer moves ~0.1); in colour at least 1.5 coding steps of the file.
- * A JPEG's flat substrate blocks round their colour to whole DC steps: its
- * substrate is two or three colour clusters one step apart, which all
- * belong to it (taking one of them biased every contrast by up to a step:
- * hBN on 285 nm read 20-30 % too thick). u = ln R/G and v = ln B/G move
- * by the two channels' steps. */
-static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mode *md,
-                              const double step[3])
+/* The chosen mode's tiles: within 4.5 of its own spreads (JPEG colour
+ * quantisation and noise widen it), at least the box, at most 0.04 in
+ * brightness and 0.02 in colour (a monolayer moves ~0.1). */
+static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mode *md)
 {
     double *scratch = malloc(n * sizeof *scratch), tol[3];
     const double lo[3] = {BOX_R, BOX_UV, BOX_UV}, hi[3] = {0.04, 0.02, 0.02};
-    const double coded[3] = {0, 1.5 * (step[0] + step[1]), 1.5 * (step[2] + step[1])};
     for (int k = 0; k < 3; k++) {
         double sp = scratch ? spread(ts, n, r, md, k, scratch) : NAN;
         tol[k] = isfinite(sp) ? fmin(hi[k], fmax(lo[k], 4.5 * sp)) : 2 * lo[k];
-        tol[k] = fmax(tol[k], coded[k]);
     }
     free(scratch);
     size_t cand = 0;
@@ -317,7 +309,7 @@ static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mo
 }
 
 size_t lam__substrate_candidates(tile_stat *ts, size_t nx, size_t ny, const lam_substrate *s,
-                                 const lam_substrate_options *opt, const double step[3])
+                                 const lam_substrate_options *opt)
 {
     size_t n = nx * ny, m = 0, cand = 0;
     double *r = calloc(n, sizeof *r);
@@ -340,7 +332,7 @@ size_t lam__substrate_candidates(tile_stat *ts, size_t nx, size_t ny, const lam_
     assign(ts, n, r, md, m, of);
     adjacent_pairs(ts, nx, ny, of, mp);
     if (m)
-        cand = mark_candidates(ts, n, r, &md[choose(md, m, mp, opt)], step);
+        cand = mark_candidates(ts, n, r, &md[choose(md, m, mp, opt)]);
     free(r);
     free(of);
     free(mp);

@@ -114,13 +114,6 @@ lam_load_options lam_load_options_default(void);
  * 3 channels, linear, file_colour "none". */
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err);
 
-/* The step a file's coding makes in flat areas of channel c at linear
- * level 'level', relative to that level: one JPEG DC quantisation step
- * (jpeg_dc_step), and for any 8-bit file at least one code (which matters
- * in dark images); 0 for 16-bit lossless files. Flat areas (the
- * substrate, a large flake) move in these steps from block to block. */
-double lam_image_code_step(const lam_image *img, size_t c, double level);
-
 /* Release an image; img may be NULL. */
 void lam_image_free(lam_image *img);
 
