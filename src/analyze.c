@@ -453,17 +453,17 @@ static lam_status fit_stage(run *r, lam_error *err)
 
 /* The 1L/2L ladder over the Fermi level, on a 10 nm grid with 6 cone
  * nodes: the conductivity integrals per Fermi level are the cost here,
- * shared out to the analysis' threads (a model each). */
+ * shared out to the analysis' threads (a copy of the model each). */
 static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
 {
     lam_setup s = *r->setup;
     s.grid_step_nm = 10;
     s.cone_nodes = 6;
     lam_model *m[LAM_MAX_THREADS] = {NULL};
-    size_t n = r->threads < LAM_MAX_THREADS ? r->threads : LAM_MAX_THREADS, k = 0;
-    lam_status st = LAM_OK;
+    size_t n = lam_parallel_slices(LAM_FERMI_GRID, r->threads), k = 1;
+    lam_status st = lam_model_alloc(&s, 2, 0, &m[0], err);
     for (; k < n && !st; k++)
-        st = lam_model_alloc(&s, 2, 0, &m[k], err);
+        st = lam_model_clone(m[0], &m[k], err);
     if (!st)
         st = lam_fermi_table_build(r->a->estimate, 0, m, n, ft, err);
     for (size_t i = 0; i < k; i++)

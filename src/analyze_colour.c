@@ -88,14 +88,16 @@ static int gauge_agrees(lam_analysis *a, const lam_colour_gauge *g, double d_f, 
 
 /* The flakes' oxide far from the calibration's while the colour there
  * fits as recorded: the flakes are likely read in another interference
- * order (their contrasts repeat every ~190 nm of oxide). */
+ * order (their contrasts repeat every ~190 nm of oxide). *found is 1 and
+ * the note says so when the colour fits there. */
 static lam_status other_order(lam_analysis *a, const lam_setup *s, lam_model *model,
-                              double d_f, lam_error *err)
+                              double d_f, int *found, lam_error *err)
 {
     lam_colour_gauge g;
     double ref = s->substrate_colour.oxide_nm;
     lam_status st = read_gauge(a, s, model, ref, RANGE_MIN_NM, &g, err);
-    if (!st && g.found && g.fits && !g.ambiguous)
+    *found = !st && g.found && g.fits && !g.ambiguous;
+    if (*found)
         snprintf(a->oxide.colour.note, sizeof a->oxide.colour.note,
                  "the substrate's colour says %.1f +- %.1f nm, as calibrated, the flakes %.1f nm: "
                  "they may be read in another interference order",
@@ -127,10 +129,11 @@ lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *mod
     /* a chip meant to be like the calibration's (its nominal oxide near
      * the reference) whose flakes read far from it */
     double ref = s->substrate_colour.oxide_nm, far = fabs(d_f - ref);
+    int order = 0;
     if (fabs(a->oxide.nominal - ref) <= VALID_NM && far > half &&
-        (far > VALID_NM || !(g.found && g.fits)) && (st = other_order(a, s, model, d_f, err)))
+        (far > VALID_NM || !(g.found && g.fits)) &&
+        (st = other_order(a, s, model, d_f, &order, err)))
         return st;
-    int order = strstr(c->note, "interference order") != NULL;
     if (verdict < 0 || order)
         lam_warnings_add(&a->warnings, "substrate-colour", "%s; the oxide is the flakes' alone: %s",
                          c->note, order ? "check the chip and the layer counts"

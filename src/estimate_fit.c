@@ -983,9 +983,7 @@ static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error
     start_result *res = alloc_results(e, nind, m->regions);
     if (!res)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
-    size_t threads = e->opt.threads ? e->opt.threads : 1;
-    threads = threads < nind ? threads : (nind ? nind : 1);
-    threads = threads < LAM_MAX_THREADS ? threads : LAM_MAX_THREADS;
+    size_t threads = lam_parallel_slices(nind, e->opt.threads);
     worker *crew = NULL;
     lam_status st = crew_alloc(f, threads, &crew, err);
     if (!st) {

@@ -251,7 +251,7 @@ lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *con
                                  size_t count, lam_fermi_table *t, lam_error *err)
 {
     fermi_grid(t);
-    count = count < 1 ? 1 : (count < t->count ? count : t->count);
+    count = lam_parallel_slices(t->count, count);
     lam_status *st = calloc(count, sizeof *st);
     lam_error *errs = calloc(count, sizeof *errs);
     if (!st || !errs) {

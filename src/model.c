@@ -545,13 +545,11 @@ static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
             phase_cos_sin(k0 * q0 * m->interlayer_nm, &s->gap_cos[k], &s->gap_sin[k]);
             if (!m->transmission)
                 substrate_admittance(m, l, oxide_nm, kx, &s->y[2 * k]);
-            for (int pol = 0; pol < 2; pol++) {
-                size_t i = 2 * k + (size_t)pol;
-                if (m->transmission)
-                    s->y[i] = substrate_transmission(m, l, oxide_nm, kx, (lam_pol)pol,
-                                                     &s->tnorm[i]);
-                s->eta0[i] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
-            }
+            for (int pol = 0; pol < 2 && m->transmission; pol++)
+                s->y[2 * k + (size_t)pol] = substrate_transmission(
+                    m, l, oxide_nm, kx, (lam_pol)pol, &s->tnorm[2 * k + (size_t)pol]);
+            for (int pol = 0; pol < 2; pol++)
+                s->eta0[2 * k + (size_t)pol] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
         }
     }
     s->oxide_nm = oxide_nm;
@@ -586,12 +584,11 @@ static double reflectance(double complex eta0, double complex y)
     return creal(r * conj(r));
 }
 
-/* Cone-averaged R(l, N) for N = 0..layers into m->rbar. The field pair
- * (B, C) = (E, H) at the top of the stack is carried up sheet by sheet
- * (a sheet adds y B to C; an ambient gap is a characteristic matrix), so
- * each layer costs one division, for its reflectance. Transmission
- * (stamps) takes this path; reflection the vectorised one below. */
-static void stack_sheets_general(lam_model *m, const substrate_slot *s, size_t layers)
+/* Cone-averaged T(l, N) for N = 0..layers into m->rbar, for transmission
+ * (stamps). The field pair (B, C) = (E, H) at the top of the stack is
+ * carried up sheet by sheet (a sheet adds y B to C; an ambient gap is a
+ * characteristic matrix). Reflection takes the vectorised path below. */
+static void stack_sheets_transmission(lam_model *m, const substrate_slot *s, size_t layers)
 {
     const cone *c = &m->cone_cache;
     size_t stride = m->max_layers + 1;
@@ -609,8 +606,8 @@ static void stack_sheets_general(lam_model *m, const substrate_slot *s, size_t l
                 double complex eta0 = s->eta0[2 * k + (size_t)pol];
                 double complex b = 1.0, cc = s->y[2 * k + (size_t)pol];
                 double complex isg_eta = I * sg / eta0, isg_eta0 = I * sg * eta0;
-                double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
-                acc[0] += wt * (tn > 0 ? transmittance(tn, eta0, b, cc) : reflectance(eta0, cc));
+                double tn = s->tnorm[2 * k + (size_t)pol];
+                acc[0] += wt * transmittance(tn, eta0, b, cc);
                 for (size_t N = 1; N <= layers; N++) {
                     if (N > 1) {
                         double complex nb = cg * b - isg_eta * cc;
@@ -618,12 +615,7 @@ static void stack_sheets_general(lam_model *m, const substrate_slot *s, size_t l
                         b = nb;
                     }
                     cc += ys * b;
-                    if (tn > 0) {
-                        acc[N] += wt * transmittance(tn, eta0, b, cc);
-                        continue;
-                    }
-                    double complex r = (eta0 * b - cc) / (eta0 * b + cc);
-                    acc[N] += wt * creal(r * conj(r));
+                    acc[N] += wt * transmittance(tn, eta0, b, cc);
                 }
             }
         }
@@ -706,7 +698,7 @@ static double items_sheet(stack_items *restrict it, double yr, double yi)
 static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
 {
     if (m->transmission) {
-        stack_sheets_general(m, s, layers);
+        stack_sheets_transmission(m, s, layers);
         return;
     }
     size_t stride = m->max_layers + 1;

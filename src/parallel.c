@@ -18,12 +18,18 @@ static void *run_slice(void *arg)
     return NULL;
 }
 
-void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx)
+size_t lam_parallel_slices(size_t count, size_t threads)
 {
     if (threads > LAM_MAX_THREADS)
         threads = LAM_MAX_THREADS;
     if (threads > count)
         threads = count;
+    return threads ? threads : 1;
+}
+
+void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx)
+{
+    threads = lam_parallel_slices(count, threads);
     if (threads <= 1) {
         if (count)
             fn(0, count, 0, ctx);

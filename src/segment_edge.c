@@ -114,9 +114,7 @@ static void edge_rows(size_t y0, size_t y1, size_t slice, void *vjob)
 void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
                             lam_segmentation *seg)
 {
-    size_t n = seg->count, slices = threads < LAM_MAX_THREADS ? threads : LAM_MAX_THREADS;
-    slices = slices < seg->height ? slices : seg->height;
-    slices = slices ? slices : 1;
+    size_t n = seg->count, slices = lam_parallel_slices(seg->height, threads);
     edge_job job = {contrast, channels, seg, calloc(slices * n + 1, sizeof(size_t))};
     for (size_t i = 0; i < n; i++)
         seg->regions[i].edge = 0;

@@ -76,12 +76,11 @@ static int push_pair(pair_list *L, uint32_t a, uint32_t b)
     return 0;
 }
 
-/* Where a line's walk is: the current run of transition pixels (in no
- * region, not substrate), *len long (0: none; JOIN_BAND + 1: longer than a
- * band), and *before the label of the pixel before it. */
-
 /* Advance a line's walk over a pixel of label l and class c, 'prev' the
- * label of the pixel before it on the line: 1 when l closes a run. */
+ * label of the pixel before it on the line: 1 when l closes a run. The
+ * walk's state is the current run of transition pixels (in no region, not
+ * substrate), *len long (0: none; JOIN_BAND + 1: longer than a band), and
+ * *before the label of the pixel before it. */
 static inline int line_step(uint32_t *before, uint8_t *len, uint32_t prev, uint32_t l, uint8_t c)
 {
     if (l) {
@@ -205,10 +204,9 @@ static int merge_slices(join_ctx *j, scan_slice *S, size_t slices, pair_list *L)
 /* Every row and column walked (unions in j->parent, runs in L). */
 static int scan_lines(join_ctx *j, size_t threads, pair_list *L)
 {
-    size_t w = j->seg->width, n = j->seg->count, slices = threads;
-    slices = slices < LAM_MAX_THREADS ? slices : LAM_MAX_THREADS;
-    slices = slices < j->seg->height ? slices : j->seg->height;
-    scan_slice *S = calloc(slices ? slices : 1, sizeof *S);
+    size_t w = j->seg->width, n = j->seg->count;
+    size_t slices = lam_parallel_slices(j->seg->height, threads);
+    scan_slice *S = calloc(slices, sizeof *S);
     int bad = !S;
     for (size_t t = 0; !bad && t < slices; t++) {
         S[t].parent = malloc((n + 1) * sizeof(uint32_t));
@@ -646,7 +644,7 @@ lam_status lam_segment_join(const lam_image *contrast, size_t channels, const in
     for (uint32_t id = 0; !bad && id <= n; id++)
         j.parent[id] = id;
     if (!bad) {
-        bad = scan_lines(&j, threads ? threads : 1, &L);
+        bad = scan_lines(&j, threads, &L);
         if (!bad) {
             unite_bridged(&j, &L);
             joined_means(&j, mean);

@@ -88,13 +88,14 @@ static lam_status jacobian(lam_model *m, const lam_colour_point *p, double d, do
     return st;
 }
 
-/* The inverse covariance of the differences to the last channel,
- * u_a = r_a - r_2: D (s^2 I + J C J^T) D^T inverted. */
 /* A lamp's colour temperature changes ln L_c by b / lambda_c (Wien:
  * ln B = const - hc / (lambda k T)); at the usual centroids of a colour
  * camera's R, G and B channels. */
 static const double channel_nm[NC] = {600, 530, 460};
 
+/* The inverse covariance of the differences to the last channel,
+ * u_a = r_a - r_2: the header's Cov(u) inverted; -1 when it is not
+ * positive definite. */
 static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_point *p,
                      const lam_substrate_colour *ref, const double *change, double prec[2][2])
 {

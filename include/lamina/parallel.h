@@ -16,6 +16,11 @@
  * for per-slice scratch space in ctx. */
 typedef void (*lam_slice_fn)(size_t begin, size_t end, size_t slice, void *ctx);
 
+/* How many slices lam_parallel_for makes of count items on 'threads'
+ * threads: min(threads, count, LAM_MAX_THREADS), at least 1 (for sizing
+ * per-slice scratch before the call). */
+size_t lam_parallel_slices(size_t count, size_t threads);
+
 /* Run fn over [0, count) in min(threads, count, LAM_MAX_THREADS) slices of
  * near-equal size, slice 0 on the calling thread; returns when all are
  * done. No errors: a thread that cannot be started runs its slice here. */
