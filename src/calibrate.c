@@ -146,6 +146,62 @@ lam_status lam_calib_measure_self(lam_calib_set *set, const char *path, const la
     return LAM_OK;
 }
 
+/* Whether a label map's code marks a flake (a layer count or another
+ * labelled class), not the substrate (0) or "ignore" (254, 255). */
+static int labelled_flake(uint8_t code)
+{
+    return code > 0 && code < 254;
+}
+
+/* Regions of the analysis that touch no labelled flake, appended to 'im'
+ * with latent layer counts. */
+static lam_status append_unlabelled(const lam_analysis *a, const uint8_t *labels,
+                                    lam_calib_image *im, lam_error *err)
+{
+    uint8_t *touched = calloc(a->count ? a->count : 1, 1);
+    lam_est_region *grown = realloc(im->regions, (im->count + a->count + 1) * sizeof *grown);
+    if (!touched || !grown) {
+        free(touched);
+        return lam_error_set(err, LAM_ENOMEM, "cannot hold the image's unlabelled regions");
+    }
+    im->regions = grown;
+    size_t n = a->width * a->height;
+    for (size_t k = 0; k < n; k++) {
+        uint32_t id = a->seg->label[k];
+        if (id && labelled_flake(labels[k]))
+            touched[id - 1] = 1;
+    }
+    for (size_t i = 0; i < a->count; i++)
+        if (a->measured[i].use && !touched[i]) {
+            lam_est_region *x = &im->regions[im->count++];
+            *x = a->measured[i];
+            x->known_layers = 0;
+        }
+    free(touched);
+    return LAM_OK;
+}
+
+lam_status lam_calib_add_unlabelled(lam_calib_set *set, size_t image, const uint8_t *labels,
+                                    size_t w, size_t h, const lam_setup *setup, lam_error *err)
+{
+    if (image >= set->images)
+        return lam_error_set(err, LAM_EINVAL, "no calibration image %zu", image);
+    lam_calib_image *im = &set->image[image];
+    lam_analysis_options opt = lam_analysis_options_default();
+    opt.fit_fermi = 0;
+    lam_analysis *a = NULL;
+    lam_status st = lam_analyze(im->path, setup, &opt, &a, err);
+    if (!st && (a->width != w || a->height != h))
+        st = lam_error_set(err, LAM_ESIZE, "labels are %zux%zu, the image %zux%zu", w, h,
+                           a->width, a->height);
+    if (!st)
+        st = append_unlabelled(a, labels, im, err);
+    lam_analysis_free(a);
+    if (st)
+        lam_error_set_file(err, im->path);
+    return st;
+}
+
 /* ---- the fit ---- */
 
 static lam_status build_estimate(const lam_setup *start, const lam_calib_set *set,
@@ -319,6 +375,9 @@ lam_status lam_calibrate(const lam_setup *start, const lam_calib_set *set,
         res->channels = e->channels;
         res->images = e->images;
         res->labelled = res->residuals;
+        for (size_t j = 0; j < e->images; j++)
+            for (size_t i = 0; i < e->image[j].count; i++)
+                res->latent += e->image[j].regions[i].use && !e->image[j].regions[i].known_layers;
         res->floor_rel = e->floor_rel;
         for (int k = 0; k < LAM_NU_COUNT; k++)
             take_value(&res->shared[k], &e->shared[k]);

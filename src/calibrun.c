@@ -6,7 +6,8 @@
 #include <stdlib.h>
 #include <cjson/cJSON.h>
 
-/* Image i: its labelled regions, or (self) its segmented regions. */
+/* Image i: its labelled regions and (unless labelled_only) its other
+ * regions with latent counts, or (self) all its segmented regions. */
 static lam_status measure(lam_calib_set *set, const lam_calibrun_options *o, size_t i,
                           const lam_setup *s, lam_error *err)
 {
@@ -23,6 +24,8 @@ static lam_status measure(lam_calib_set *set, const lam_calibrun_options *o, siz
         lam_error_set_file(err, o->labels[i]);
     else if ((st = lam_calib_measure_labels(set, image, codes, w, h, s, err)))
         lam_error_set_file(err, image);
+    else if (!o->labelled_only)
+        st = lam_calib_add_unlabelled(set, set->images - 1, codes, w, h, s, err);
     free(codes);
     return st;
 }
@@ -51,9 +54,13 @@ lam_status lam_calibrun_fit(const lam_setup *start, const lam_calibrun_options *
 static cJSON *record(const lam_calib_result *r, const lam_calibrun_options *o)
 {
     cJSON *cal = cJSON_CreateObject();
-    cJSON_AddStringToObject(cal, "method", o->labels ? "joint fit to labelled regions"
-                                                     : "joint fit, layer counts latent (self)");
+    const char *method = !o->labels        ? "joint fit, layer counts latent (self)"
+                         : o->labelled_only ? "joint fit to labelled regions"
+                                            : "joint fit to labelled regions, the images' other "
+                                              "regions with latent layer counts";
+    cJSON_AddStringToObject(cal, "method", method);
     cJSON_AddNumberToObject(cal, "labelled_regions", (double)r->labelled);
+    cJSON_AddNumberToObject(cal, "latent_regions", (double)r->latent);
     cJSON_AddNumberToObject(cal, "chi2", r->chi2);
     cJSON_AddNumberToObject(cal, "values", r->dof);
     cJSON_AddNumberToObject(cal, "model_floor_relative", r->floor_rel);

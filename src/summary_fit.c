@@ -236,8 +236,11 @@ lam_status lam_summary_calibration(const lam_calib_result *r, const char *const 
     if (st)
         return st;
     FILE *f = t.f;
-    fprintf(f, "%zu labelled region(s) in %zu image(s); chi2 %.1f for %.0f values; model floor "
-               "%.1f %%\n", r->labelled, r->images, r->chi2, r->dof, 100 * r->floor_rel);
+    fprintf(f, "%zu labelled region(s)", r->labelled);
+    if (r->labelled && r->latent)
+        fprintf(f, " and %zu with latent counts", r->latent);
+    fprintf(f, " in %zu image(s); chi2 %.1f for %.0f labelled values; model floor %.1f %%\n",
+            r->images, r->chi2, r->dof, 100 * r->floor_rel);
     for (int k = 0; k < LAM_NU_COUNT; k++) {
         const lam_calib_value *v = &r->shared[k];
         if (v->name && (v->fitted || k == LAM_NU_NA) &&

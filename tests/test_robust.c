@@ -264,6 +264,50 @@ static void test_colour(const char *dir)
                cal.oxide_covered, cal.oxide_n, 100 * share(cal.right, cal.flakes));
 }
 
+/* One labelled monolayer pins only its own three contrasts; the other
+ * regions of the calibration tile, with their layer counts latent, show
+ * the whole ladder. Scan 6700 of `make accuracy` (lamina's default response
+ * drawn by the generator, a camera the analysis is not told, 300 nm
+ * nominal, JPEG q85, other days and chips): calibrated on the flake alone,
+ * tile 1 (true oxide 315.1 nm) reads its flakes near 112 nm, an
+ * interference order off (warned by the substrate colour); with the other
+ * regions it reads every tile in the right order. (Tile 2 of this scan
+ * reads its 2L and 3L flakes one or two too high either way, with p < 0.9
+ * and a doubting warning: the counts' goal is that no label is confident
+ * and wrong.) */
+static void test_calibrated_latent(const char *dir)
+{
+    robust_case c;
+    robust_case_init(&c);
+    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
+    c.cfg.nominal_oxide_nm = 300;
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 85;
+    c.informed = 0;
+    robust_tally alone, only, latent;
+    memset(&alone, 0, sizeof alone);
+    memset(&only, 0, sizeof only);
+    memset(&latent, 0, sizeof latent);
+    int flags = ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS;
+    check_int(robust_run_calibrated(&c, 6700, 4, flags | ROBUST_CAL_LABELLED_ONLY, dir, &alone,
+                                    &only, NULL),
+              0, "scan 6700 calibrated on one flake alone");
+    memset(&alone, 0, sizeof alone);
+    check_int(robust_run_calibrated(&c, 6700, 4, flags, dir, &alone, &latent, NULL), 0,
+              "scan 6700 calibrated on one flake and the tile's other regions");
+    robust_print(stdout, "test_robust: calibrated on the flake alone", &only);
+    robust_print(stdout, "test_robust: ... and on the other regions", &latent);
+    check_true(only.oxide_abs_max > 100, "the flake alone reads a tile an order off (max error "
+               "%.1f nm): the case this test is for", only.oxide_abs_max);
+    check_true(latent.oxide_n == 3 && latent.oxide_abs_max < 10 &&
+                   latent.oxide_covered == latent.oxide_n &&
+                   latent.confident_right == latent.confident,
+               "with the other regions: every oxide within 10 nm and 2 sigma (max %.1f nm, "
+               "%zu of %zu in 2 sigma), every label with p >= 0.95 right (%zu of %zu)",
+               latent.oxide_abs_max, latent.oxide_covered, latent.oxide_n,
+               latent.confident_right, latent.confident);
+}
+
 /* The colour is only a gauge while the lamp and white balance stay as
  * they were. A white balance made 20 % warmer (red up, blue down: a lamp
  * turned down without a new white balance) is far outside what the
@@ -302,6 +346,7 @@ int main(void)
     test_doping(dir);
     test_mono(dir);
     test_calibrated(dir);
+    test_calibrated_latent(dir);
     test_colour(dir);
     test_colour_changed(dir);
     return check_summary();

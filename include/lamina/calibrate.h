@@ -4,7 +4,8 @@
  * "self" calibration, to regions whose layer counts are left latent.
  *
  * The fit is the analysis' own joint estimate (lamina/estimate.h) with the
- * labelled regions' layer counts fixed: graphene's visible response, the
+ * labelled regions' layer counts fixed (and, with lam_calib_add_unlabelled,
+ * the image's other regions' counts latent): graphene's visible response, the
  * illumination NA, each channel's wavelength shift and contrast gain, and
  * each image's oxide (fixed where --known-oxide gives it). Every value
  * comes with its posterior standard deviation; a value the labels barely
@@ -73,6 +74,8 @@ typedef struct lam_calib_residual {
 typedef struct lam_calib_result {
     lam_setup setup;                      /* the profile to write (borrows materials) */
     size_t channels, images, labelled;
+    size_t latent;                        /* regions with latent counts (self, or the
+                                           * unlabelled regions of labelled images) */
     lam_calib_value shared[LAM_NU_COUNT];
     lam_calib_value oxide[LAM_CALIB_MAX_IMAGES];
     size_t residuals;
@@ -96,6 +99,17 @@ void lam_calib_result_clear(lam_calib_result *r);
 lam_status lam_calib_measure_labels(lam_calib_set *set, const char *image_path,
                                     const uint8_t *labels, size_t width, size_t height,
                                     const lam_setup *setup, lam_error *err);
+
+/* Add the other regions of an already measured labelled image (its
+ * index in the set) with latent layer counts: the analysis' regions (with
+ * 'setup') that touch no labelled flake. The labelled regions fix the
+ * ladder; these add every layer count the image shows, which constrains
+ * the response, NA and channel curves far better than one flake does.
+ * Regions touching a label are left out (they are the labelled flake's
+ * own edges or parts). */
+lam_status lam_calib_add_unlabelled(lam_calib_set *set, size_t image, const uint8_t *labels,
+                                    size_t width, size_t height, const lam_setup *setup,
+                                    lam_error *err);
 
 /* Turn a label file ("lamina-labels/1" JSON: {"labels": [{"layers": N,
  * "polygon": [[x, y], ...]} or {"layers": N, "point": [x, y]}]}) into a

@@ -1,7 +1,9 @@
 /*
  * lamina/calibrun.h - a calibration from files (`lamina calibrate`): each
  * image measured against its label file (a layer-map PNG or
- * lamina-labels/1, lam_labels_map_for_image) or, for self calibration,
+ * lamina-labels/1, lam_labels_map_for_image), its other regions joining
+ * with latent layer counts unless labelled_only (lam_calib_add_unlabelled),
+ * or, for self calibration,
  * with its layer counts left latent (lam_calib_measure_self); the joint
  * fit of lamina/calibrate.h; the fitted profile written with a
  * "calibration" record of how it was obtained.
@@ -26,6 +28,7 @@ typedef struct lam_calibrun_options {
     const char *const *labels;    /* one label file per image; NULL: self calibration */
     const double *known_oxide_nm; /* per image, NAN: fitted; NULL: every oxide fitted */
     double known_na;              /* NAN: fitted */
+    int labelled_only;            /* labelled images: leave their other regions out */
 } lam_calibrun_options;
 
 /* Measure every image and fit (lam_calibrate) from the setup 'start'.
@@ -34,8 +37,9 @@ lam_status lam_calibrun_fit(const lam_setup *start, const lam_calibrun_options *
                             lam_calib_result *res, lam_error *err);
 
 /* The fitted profile (res->setup, lam_setup_save) written atomically to
- * path, with "calibration": the method (labelled regions or latent layer
- * counts), labelled_regions, chi2, values, model_floor_relative, the
+ * path, with "calibration": the method (labelled regions, with or without
+ * the other regions latent, or latent layer counts), labelled_regions,
+ * latent_regions, chi2, values, model_floor_relative, the
  * shared values not_constrained by the data, and per image its file,
  * oxide_nm, oxide_sigma_nm and oxide_known. */
 lam_status lam_calibrun_save(const lam_calib_result *res, const lam_calibrun_options *o,

@@ -14,7 +14,7 @@ static struct {
     lam_setup_overrides so;
     const char *labels[MAX_LABELS], *out;
     size_t nl, nk;
-    int self;
+    int self, labelled_only;
     double known[LAM_CALIB_MAX_IMAGES], known_na;
 } A = {.out = "calibrated.json", .known_na = NAN};
 
@@ -49,6 +49,9 @@ static const cli_option calibrate_options[] = {
     {"labels", 0, CLI_CALL, NULL, 0, 0, add_labels, "FILE",
      "the image's labels (PNG layer map or lamina-labels/1 JSON),\none per image, in order"},
     {"self", 0, CLI_FLAG, &A.self, 0, 0, NULL, NULL, "no labels: the layer counts left latent"},
+    {"labelled-only", 0, CLI_FLAG, &A.labelled_only, 0, 0, NULL, NULL,
+     "fit the labelled regions alone (by default the images'\nother regions join with latent "
+     "layer counts)"},
     {"known-oxide", 0, CLI_CALL, NULL, 0, 0, parse_known_oxide, "D1,D2,...",
      "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the camera "
      "is unknown: channel centres\nand oxide are nearly degenerate"},
@@ -72,6 +75,8 @@ static int parse_args(int argc, char **argv)
                                             "%zu images), or --self", A.nl, ni);
     if (A.self && A.nl)
         return cli_usage_error("calibrate", "--self and --labels exclude each other");
+    if (A.self && A.labelled_only)
+        return cli_usage_error("calibrate", "--labelled-only needs --labels");
     if (ni > LAM_CALIB_MAX_IMAGES)
         return cli_usage_error("calibrate", "at most %d images", LAM_CALIB_MAX_IMAGES);
     if (A.nk > ni)
@@ -88,7 +93,7 @@ static int run_calibrate(int argc, char **argv)
         return rc;
     const char *const *images = (const char *const *)argv + optind;
     lam_calibrun_options o = {images, (size_t)(argc - optind), A.self ? NULL : A.labels,
-                              A.nk ? A.known : NULL, A.known_na};
+                              A.nk ? A.known : NULL, A.known_na, A.labelled_only};
     lam_calib_result res;
     memset(&res, 0, sizeof res);
     lam_error err;
@@ -113,7 +118,10 @@ const cli_command cli_calibrate = {
              "wavelength shift and contrast gain, and each image's oxide so that the\n"
              "model reproduces the measured contrast of regions of known layer count (one\n"
              "Raman-confirmed flake is enough to start). Values the labels do not\n"
-             "constrain are reported as such and keep their prior. LABELS.png uses the\n"
+             "constrain are reported as such and keep their prior. The images' other,\n"
+             "unlabelled regions join the fit with latent layer counts: the labels fix\n"
+             "the ladder, the other layer counts pin the response and camera better\n"
+             "(--labelled-only leaves them out). LABELS.png uses the\n"
              "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
              "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
              "layer counts, a point taking the whole segmented region around it.\n"

@@ -175,6 +175,11 @@ expect_rc 0 "calibrate from a labelled sample" "$BIN" calibrate --quiet --known-
 grep -q '"schema":[[:space:]]*"lamina-setup/1"' "$T/cal.json" && ok "calibrate writes a setup profile" || bad "calibrated profile"
 expect_rc 0 "the calibrated profile is usable" "$BIN" predict --setup "$T/cal.json"
 expect_rc 0 "calibrate from JSON labels (points and a polygon)" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json -o "$T/cal2.json" samples/HT285-C11-tile07.png
+# the sample's labels cover four of its six flakes: the other two join with latent counts
+grep -q '"latent_regions":[[:space:]]*2' "$T/cal2.json" && ok "the unlabelled flakes join the calibration" || bad "latent regions: $(grep -A3 '"method"' "$T/cal2.json")"
+expect_rc 0 "calibrate on the labelled regions alone" "$BIN" calibrate --quiet --labelled-only --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json -o "$T/cal3.json" samples/HT285-C11-tile07.png
+grep -q '"latent_regions":[[:space:]]*0' "$T/cal3.json" && ok "--labelled-only leaves them out" || bad "labelled only: $(grep -A3 '"method"' "$T/cal3.json")"
+expect_rc 2 "--labelled-only needs labels" "$BIN" calibrate --self --labelled-only samples/HT285-C11-tile07.png
 printf '{"schema":"lamina-labels/1","labels":[{"layers":1,"point":[5000,5]}]}' > "$T/badlab.json"
 expect_rc 1 "a label point outside the image" "$BIN" calibrate --labels "$T/badlab.json" -o "$T/x.json" samples/HT285-C11-tile07.png
 grep -q "badlab.json" "$T/err" && grep -q "outside" "$T/err" && ok "label error names file and problem" || bad "label error: $(cat "$T/err")"

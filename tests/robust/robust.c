@@ -411,10 +411,11 @@ static int largest_monolayer(const synth_scene *sc)
     return best;
 }
 
-/* Calibrate the setup on one flake of the first tile, with its oxide
- * given as measured (ellipsometry) when oxide_given; fills 'out'. */
+/* Calibrate the setup on one flake of the first tile (and its other
+ * regions, latent, unless ROBUST_CAL_LABELLED_ONLY), with its oxide given
+ * as measured (ellipsometry) with ROBUST_CAL_OXIDE; fills 'out'. */
 static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_setup *start,
-                              int oxide_given, lam_calib_result *out)
+                              int flags, lam_calib_result *out)
 {
     int obj = largest_monolayer(sc);
     uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
@@ -424,7 +425,11 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
     lam_error_clear(&err);
     int rc = !map || lam_calib_measure_labels(&set, img, map, (size_t)sc->width,
                                               (size_t)sc->height, start, &err) ||
-             lam_calibrate(start, &set, oxide_given ? &sc->phys.oxide_nm : NULL, NAN, out, &err);
+             (!(flags & ROBUST_CAL_LABELLED_ONLY) &&
+              lam_calib_add_unlabelled(&set, 0, map, (size_t)sc->width, (size_t)sc->height, start,
+                                       &err)) ||
+             lam_calibrate(start, &set, flags & ROBUST_CAL_OXIDE ? &sc->phys.oxide_nm : NULL, NAN,
+                           out, &err);
     if (rc)
         fprintf(stderr, "robust: calibration on %s: %s\n", img, err.message);
     lam_calib_set_clear(&set);
@@ -450,7 +455,7 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
     lam_calib_result cal;
     memset(&cal, 0, sizeof cal);
     if (!rc && !(rc = load_setup(sn.setup, &s))) {
-        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags & ROBUST_CAL_OXIDE, &cal);
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags, &cal);
         if (flags & ROBUST_CAL_NO_COLOUR)
             cal.setup.substrate_colour.oxide_nm = NAN;
         for (int k = 1; k < tiles && !rc; k++)

@@ -68,7 +68,9 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
 
 /* One flake confirmed (Raman, AFM): the first of 'tiles' scenes sharing the
  * physics of 'seed' has its largest monolayer labelled, the setup is
- * calibrated on it (lamina/calibrate.h; with oxide_given, that tile's true
+ * calibrated on it and on that tile's other regions with latent counts, as
+ * `calibrate --labels` does (ROBUST_CAL_LABELLED_ONLY: on the flake alone)
+ * (lamina/calibrate.h; with oxide_given, that tile's true
  * oxide fixed as if measured by ellipsometry: `calibrate --known-oxide`),
  * and the other tiles (with ROBUST_CAL_SESSIONS taken on other days and
  * every other one on another chip: robust.c, other_session) are analysed
@@ -80,6 +82,7 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
 #define ROBUST_CAL_OXIDE 1
 #define ROBUST_CAL_NO_COLOUR 2
 #define ROBUST_CAL_SESSIONS 4  /* the other tiles from other days and chips */
+#define ROBUST_CAL_LABELLED_ONLY 8 /* calibrate on the labelled flake alone */
 int robust_run_calibrated(const robust_case *c, unsigned long long seed, int tiles, int flags,
                           const char *dir, robust_tally *alone, robust_tally *calibrated,
                           FILE *log);

@@ -1,7 +1,7 @@
 /* robust_main.c - build/tests/robust: the accuracy matrix of issue 9 on
  * the independent generator's images (`make accuracy`).
  *   robust [--scenes N] [--batch T] [--seed S] [--only informed|uninformed]
- *          [--calibrate T [--no-colour]] [--log FILE]
+ *          [--calibrate T [--no-colour] [--labelled-only]] [--log FILE]
  * One line per response x oxide x format x knowledge, then totals by
  * response, oxide and format. --batch T: each scene is a chip scan of T
  * tiles sharing one microscope, response and oxide, scored once with each
@@ -9,7 +9,9 @@
  * --calibrate T: the same scans, the setup calibrated on the largest
  * monolayer of the first tile with that tile's oxide given (as from
  * ellipsometry); the other T-1 tiles (other days, every other one another
- * chip) scored with the setup as it was and as calibrated; --no-colour
+ * chip) scored with the setup as it was and as calibrated (the first
+ * tile's other regions join the calibration with latent counts, as in
+ * `calibrate --labels`; --labelled-only leaves them out); --no-colour
  * drops the calibration's substrate colour. */
 #include "robust.h"
 #include "../check.h"
@@ -32,7 +34,7 @@ static const struct { synth_format fmt; int q; const char *name; } formats[] = {
 #define NF 4
 
 typedef struct options {
-    int scenes, batch, calibrate, only, no_colour;
+    int scenes, batch, calibrate, only, no_colour, labelled_only;
     unsigned long long seed;
     FILE *log;
 } options;
@@ -77,7 +79,8 @@ static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
         if (o->calibrate)
             robust_run_calibrated(&c, base + (unsigned long long)k, o->calibrate,
                                   ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS |
-                                      (o->no_colour ? ROBUST_CAL_NO_COLOUR : 0),
+                                      (o->no_colour ? ROBUST_CAL_NO_COLOUR : 0) |
+                                      (o->labelled_only ? ROBUST_CAL_LABELLED_ONLY : 0),
                                   "build/tests/robust-out", &t[0], &t[1], o->log);
         else if (o->batch)
             robust_run_batch(&c, base + (unsigned long long)k, o->batch, "build/tests/robust-out",
@@ -125,7 +128,7 @@ static void print_totals(const options *o, int inf, const tallies *T)
 int main(int argc, char **argv)
 {
     lam_error_init_gsl();
-    options o = {2, 0, 0, -1, 0, 1000, NULL};
+    options o = {.scenes = 2, .only = -1, .seed = 1000};
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
             o.scenes = atoi(argv[++i]);
@@ -139,6 +142,8 @@ int main(int argc, char **argv)
             o.only = !strcmp(argv[++i], "informed");
         else if (!strcmp(argv[i], "--no-colour"))
             o.no_colour = 1;
+        else if (!strcmp(argv[i], "--labelled-only"))
+            o.labelled_only = 1;
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
             o.log = fopen(argv[++i], "w");
         else {
