@@ -17,7 +17,18 @@
  * evidence about each other, and a candidate whose neighbours fit the
  * ladder poorly (relative distance above EVIDENCE_MAX) is not chosen over
  * the largest mode. Without a ladder, or when no mode has such evidence,
- * the largest mode wins. */
+ * the largest mode wins.
+ *
+ * A JPEG splits a flat substrate itself: its blocks round their colour to
+ * whole DC quantisation steps, so where the flat field's slow colour
+ * change crosses a step the substrate becomes two clusters a step apart in
+ * colour (ln R/G, ln B/G ~0.01-0.02) at the same brightness, spread over
+ * the whole picture side by side. Taking one of them biases every contrast
+ * by up to a step (hBN on 285 nm read 20-30 % too thick). Such a mode
+ * joins the chosen one (same_surface): nearly the same brightness, a
+ * colour within two steps' worth, and spread over the picture like the
+ * substrate itself. A flake is confined to a few places, and graphene
+ * moves the brightness too, so neither joins. */
 #include "substrate_internal.h"
 
 #include <math.h>
@@ -34,6 +45,11 @@
 #define SCALE_HI 1.6
 #define SAME_FRACTION 0.5     /* modes closer than this x the scaled monolayer are alike */
 #define EVIDENCE_MAX 0.2      /* a mode whose neighbours fit the ladder worse is not chosen */
+#define SPLIT_R 0.0075        /* a JPEG split: brightness within this ... */
+#define SPLIT_UV 0.03         /* ... colour within this (about two DC steps) ... */
+#define SPLIT_CELLS 0.6       /* ... found in this share of the chosen mode's cells ... */
+#define SPLIT_MIN_CELLS 6     /* ... and in at least this many of the 4 x 4 */
+#define SPLIT_COUNT 0.2       /* ... with this share of its tiles */
 
 typedef struct mode {
     double r, u, v;
@@ -147,6 +163,39 @@ static void assign(const tile_stat *ts, size_t n, const double *r, const mode *m
                 bd = d, of[i] = (int)k;
         }
     }
+}
+
+/* The cells of a 4 x 4 grid over the picture that hold tiles of each
+ * mode, as bit masks. */
+static void mode_cells(const tile_stat *ts, size_t n, const int *of, const lam_substrate *s,
+                       unsigned *cells)
+{
+    memset(cells, 0, MAX_MODES * sizeof *cells);
+    for (size_t i = 0; i < n; i++) {
+        if (of[i] < 0)
+            continue;
+        unsigned gx = (unsigned)fmin(3, fmax(0, 4 * ts[i].cx / (double)s->width));
+        unsigned gy = (unsigned)fmin(3, fmax(0, 4 * ts[i].cy / (double)s->height));
+        cells[of[i]] |= 1u << (gy * 4 + gx);
+    }
+}
+
+static int bit_count(unsigned x)
+{
+    int k = 0;
+    for (; x; x &= x - 1)
+        k++;
+    return k;
+}
+
+/* Is mode k the chosen mode b's own surface, split by a JPEG's colour
+ * steps (see the top of this file)? */
+static int same_surface(const mode *md, size_t k, size_t b, const unsigned *cells)
+{
+    int ck = bit_count(cells[k]), cb = bit_count(cells[b]);
+    return k != b && fabs(md[k].r - md[b].r) <= SPLIT_R && fabs(md[k].u - md[b].u) <= SPLIT_UV &&
+           fabs(md[k].v - md[b].v) <= SPLIT_UV && ck >= SPLIT_MIN_CELLS &&
+           ck >= SPLIT_CELLS * cb && md[k].count >= SPLIT_COUNT * md[b].count;
 }
 
 /* Summed log ratios of adjacent tiles of different modes. */
@@ -290,7 +339,8 @@ static double spread(const tile_stat *ts, size_t n, const double *r, const mode 
 /* The chosen mode's tiles: within 4.5 of its own spreads (JPEG colour
  * quantisation and noise widen it), at least the box, at most 0.04 in
  * brightness and 0.02 in colour (a monolayer moves ~0.1). */
-static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mode *md)
+static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mode *md,
+                              int add)
 {
     double *scratch = malloc(n * sizeof *scratch), tol[3];
     const double lo[3] = {BOX_R, BOX_UV, BOX_UV}, hi[3] = {0.04, 0.02, 0.02};
@@ -301,10 +351,25 @@ static size_t mark_candidates(tile_stat *ts, size_t n, const double *r, const mo
     free(scratch);
     size_t cand = 0;
     for (size_t i = 0; i < n; i++) {
-        ts[i].candidate = ts[i].uniform && fabs(r[i] - md->r) <= tol[0] &&
-                          fabs(ts[i].u - md->u) <= tol[1] && fabs(ts[i].v - md->v) <= tol[2];
+        int near = ts[i].uniform && fabs(r[i] - md->r) <= tol[0] &&
+                   fabs(ts[i].u - md->u) <= tol[1] && fabs(ts[i].v - md->v) <= tol[2];
+        ts[i].candidate = near || (add && ts[i].candidate);
         cand += (size_t)ts[i].candidate;
     }
+    return cand;
+}
+
+/* The chosen mode's tiles and those of the modes that are its own
+ * surface split by a JPEG. */
+static size_t substrate_tiles(tile_stat *ts, size_t n, const double *r, const mode *md,
+                              size_t m, size_t b, const int *of, const lam_substrate *s)
+{
+    unsigned cells[MAX_MODES];
+    mode_cells(ts, n, of, s, cells);
+    size_t cand = mark_candidates(ts, n, r, &md[b], 0);
+    for (size_t k = 0; k < m; k++)
+        if (same_surface(md, k, b, cells))
+            cand = mark_candidates(ts, n, r, &md[k], 1);
     return cand;
 }
 
@@ -332,7 +397,8 @@ size_t lam__substrate_candidates(tile_stat *ts, size_t nx, size_t ny, const lam_
     assign(ts, n, r, md, m, of);
     adjacent_pairs(ts, nx, ny, of, mp);
     if (m)
-        cand = mark_candidates(ts, n, r, &md[choose(md, m, mp, opt)]);
+        cand = opt->has_roi ? mark_candidates(ts, n, r, &md[0], 0)
+                            : substrate_tiles(ts, n, r, md, m, choose(md, m, mp, opt), of, s);
     free(r);
     free(of);
     free(mp);

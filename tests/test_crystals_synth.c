@@ -52,6 +52,35 @@ static void test_hbn(const char *dir)
                total.covered, total.flakes);
 }
 
+/* hBN on 285 nm in JPEG (quality 90, 4:2:0): the flat substrate's blocks
+ * round their colour to whole DC quantisation steps (ITU-T T.81), so the
+ * substrate is two colour clusters a step apart, both spread over the
+ * picture. Taking one of them for the substrate biased every contrast by
+ * up to a step, and these scenes read 20-30 % too thick (22 of 30 flakes
+ * right); the substrate is now both (substrate_modes.c, same_surface).
+ * The same scenes as `make accuracy-crystals`' "hBN Grudinin2023 285 nm
+ * jpeg90". */
+static void test_hbn_jpeg(const char *dir)
+{
+    robust_case c = make_case(SYNTH_XTAL_HBN, 0, 285);
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 90;
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    for (unsigned long long k = 0; k < 4; k++) {
+        hbn_tally t;
+        memset(&t, 0, sizeof t);
+        check_int(crystals_run_hbn(&c, 3300 + k, dir, &t, stdout), 0,
+                  "hBN JPEG scene %llu rendered and analysed", k);
+        crystals_add(&total, &t);
+    }
+    crystals_print(stdout, "hBN 285 nm JPEG q90 (4 scenes)", &total);
+    check_true(total.flakes >= 25, "enough hBN flakes scored in JPEG (%zu)", total.flakes);
+    check_true(total.right >= 0.9 * (double)total.flakes,
+               "hBN in JPEG on 285 nm: thickness within 10 %% for >= 90 %% (%zu / %zu)",
+               total.right, total.flakes);
+}
+
 static void test_tmd(const char *dir)
 {
     static const struct { synth_crystal x; int source; double oxide; } cases[] = {
@@ -82,6 +111,7 @@ int main(void)
     check_path(dir, sizeof dir, check_tmpdir(), "crystals");
     mkdir(dir, 0755);
     test_hbn(dir);
+    test_hbn_jpeg(dir);
     test_tmd(dir);
     return check_summary();
 }
