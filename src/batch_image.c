@@ -32,11 +32,13 @@ static void *write_annotated_thread(void *arg)
     return NULL;
 }
 
-/* The annotated image (the largest file) is encoded on a second thread
- * while the layer map, plot and JSON are written; the JSON goes last, so
- * its presence means the image's results are complete (--resume). */
+/* The annotated image (the largest file) is encoded on a second thread,
+ * when the image has two or more (a batch on two cores runs two images
+ * on one thread each instead), while the layer map, plot and JSON are
+ * written; the JSON goes last, so its presence means the image's results
+ * are complete (--resume). */
 static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
-                                cJSON **json, lam_error *err)
+                                size_t threads, cJSON **json, lam_error *err)
 {
     char p[4096];
     annot_job aj;
@@ -44,7 +46,7 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
     lam_error_clear(&aj.err);
     snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
     pthread_t t;
-    int threaded = pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
+    int threaded = threads > 1 && pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
     if (!threaded)
         write_annotated_thread(&aj);
     snprintf(p, sizeof p, "%s/%s.layers.png", dir, stem);
@@ -81,7 +83,7 @@ lam_status lam_batch_analyse_one(const char *path, const lam_setup *setup,
     snprintf(a->setup_hash, sizeof a->setup_hash, "%s", setup_hash ? setup_hash : "");
     char stem[512];
     lam_batch_stem(path, stem, sizeof stem);
-    if ((st = write_reports(a, out_dir, stem, json, err))) {
+    if ((st = write_reports(a, out_dir, stem, opt->threads, json, err))) {
         lam_error_set_file(err, path);
         lam_analysis_free(a);
         cJSON_Delete(*json);

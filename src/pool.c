@@ -38,6 +38,9 @@ lam_status lam_pool_alloc(const lam_setup *setup, const lam_analysis_options *op
     p->setup = *setup;
     p->eopt = opt->estimate;
     p->eopt.max_layers = opt->max_layers;
+    /* the analysis hands its threads to its own fit; the pool's fit gets
+     * them here (the result does not depend on the count) */
+    p->eopt.threads = opt->threads ? opt->threads : 1;
     p->channels = setup->camera.channels;
     *out = p;
     return LAM_OK;
