@@ -1,19 +1,16 @@
 /* estimate_fit.c - the joint fit: oxide grid per image, EM with damped
  * Gauss-Newton M-steps over the shared parameters and every oxide (the
  * oxides eliminated by Schur complement, so the cost grows linearly with the
- * number of images), floor re-estimation, Laplace covariance. */
-#include "estimate_internal.h"
-#include "lamina/parallel.h"
+ * number of images), floor re-estimation, Laplace covariance; the
+ * multistart over the grid's other maxima is estimate_starts.c. */
+#include "estimate_fit_internal.h"
 
 #include <math.h>
-#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
 #define FIT_LAYERS 16       /* ... and for the fit (the posteriors use all 40) */
 #define MAX_TRIES 8         /* damping increases per iteration */
-#define ALT_MARGIN 10.0     /* grid maxima this close to the best are refitted */
-#define MAX_MULTISTART_IMAGES 4
 #define FLOOR_PRIOR_SD_LOG_REL 0.5
 #define FLOOR_PRIOR_SD_LOG_ABS 0.7
 #define FLOOR_REL_MIN 0.005
@@ -21,14 +18,6 @@
 #define FLOOR_ABS_MIN 0.001
 #define FLOOR_ABS_MAX 0.04
 #define FLOOR_STEPS 16
-
-
-/* Per-image work of one iteration. */
-typedef struct img_work {
-    lam_prediction ladder;              /* observed scale (gains applied), N = 0..top */
-    lam_ladder_grad grad[LAM_NU_COUNT + 1]; /* free shared..., oxide last; N = 0..K */
-    double *resp;                       /* count x (K + 3) */
-} img_work;
 
 int lam__model_param_of(int k)
 {
@@ -54,7 +43,6 @@ static void collect_free(lam_estimate *e)
         if (e->shared[k].fitted)
             e->free_index[e->nfree++] = k;
 }
-
 
 lam_status lam__image_gradient(const lam_estimate *e, size_t j, lam_model *model,
                                const lam_prediction *ladder, lam_ladder_grad *grad,
@@ -187,7 +175,7 @@ double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_predic
     return total;
 }
 
-static lam_status objective(lam_estimate *e, lam_model *model, img_work *w, double *out,
+lam_status lam__fit_objective(lam_estimate *e, lam_model *model, img_work *w, double *out,
                             lam_error *err)
 {
     double total = shared_logprior(e);
@@ -205,14 +193,6 @@ static lam_status objective(lam_estimate *e, lam_model *model, img_work *w, doub
 
 /* ---- normal equations (Gauss-Newton on the expected complete-data
  * log-likelihood, responsibilities fixed) ---- */
-
-typedef struct normal_eq {
-    size_t n;                   /* free shared */
-    lam__mat a_ss;
-    double b_s[LAM__MAT_MAX];
-    double *a_sd;               /* images x n */
-    double *a_dd, *b_d;         /* images */
-} normal_eq;
 
 static void add_region(const lam_estimate *e, const lam_est_region *r, const double *resp,
                        const img_work *w, normal_eq *q, size_t j)
@@ -309,13 +289,7 @@ static void solve_damped(const lam_estimate *e, const normal_eq *q, double lambd
 
 /* ---- parameter vector handling ---- */
 
-typedef struct saved_point {
-    double shared[LAM_NU_COUNT];
-    double floor_abs[LAM_MAX_CHANNELS], floor_rel;
-    double *oxide;
-} saved_point;
-
-static void save_point(const lam_estimate *e, saved_point *s)
+void lam__fit_save_point(const lam_estimate *e, saved_point *s)
 {
     memcpy(s->floor_abs, e->floor_abs, sizeof s->floor_abs);
     s->floor_rel = e->floor_rel;
@@ -325,7 +299,7 @@ static void save_point(const lam_estimate *e, saved_point *s)
         s->oxide[j] = e->image[j].oxide.value;
 }
 
-static void restore_point(lam_estimate *e, const saved_point *s)
+void lam__fit_restore_point(lam_estimate *e, const saved_point *s)
 {
     memcpy(e->floor_abs, s->floor_abs, sizeof s->floor_abs);
     e->floor_rel = s->floor_rel;
@@ -335,7 +309,7 @@ static void restore_point(lam_estimate *e, const saved_point *s)
         e->image[j].oxide.value = s->oxide[j];
 }
 
-static void copy_point(saved_point *to, const saved_point *from, size_t images)
+void lam__fit_copy_point(saved_point *to, const saved_point *from, size_t images)
 {
     memcpy(to->shared, from->shared, sizeof to->shared);
     memcpy(to->floor_abs, from->floor_abs, sizeof to->floor_abs);
@@ -372,15 +346,6 @@ static double take_step(lam_estimate *e, const saved_point *base, const double *
 
 /* ---- the EM / Gauss-Newton loop ---- */
 
-typedef struct fit_ctx {
-    lam_estimate *e;
-    lam_model *model;
-    img_work *w;
-    normal_eq q;
-    saved_point base;
-    double *ds, *dd;
-} fit_ctx;
-
 static lam_status gradients(fit_ctx *f, lam_error *err)
 {
     for (size_t j = 0; j < f->e->images; j++) {
@@ -401,12 +366,12 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
     if (st)
         return st;
     build_normal(e, f->w, &f->q);
-    save_point(e, &f->base);
+    lam__fit_save_point(e, &f->base);
     *moved = 0;
     for (int t = 0; t < MAX_TRIES; t++) {
         solve_damped(e, &f->q, *lambda, f->ds, f->dd);
         double big = take_step(e, &f->base, f->ds, f->dd), trial;
-        if ((st = objective(e, f->model, f->w, &trial, err)))
+        if ((st = lam__fit_objective(e, f->model, f->w, &trial, err)))
             return st;
         if (trial >= *logpost - 1e-9) {
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
@@ -416,14 +381,14 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
         }
         *lambda *= 4;
     }
-    restore_point(e, &f->base);
-    return objective(e, f->model, f->w, logpost, err);
+    lam__fit_restore_point(e, &f->base);
+    return lam__fit_objective(e, f->model, f->w, logpost, err);
 }
 
-static lam_status run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
+lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
 {
     double lambda = 1e-3;
-    lam_status st = objective(f->e, f->model, f->w, logpost, err);
+    lam_status st = lam__fit_objective(f->e, f->model, f->w, logpost, err);
     for (size_t it = 0; it < max_it && !st; it++) {
         int moved = 0;
         st = one_iteration(f, logpost, &lambda, &moved, err);
@@ -511,7 +476,7 @@ static void estimate_floor(const lam_estimate *e, const img_work *w, double *fa,
 }
 
 /* Re-estimate the floor; refit when it moved. */
-static lam_status refloor(fit_ctx *f, double *lp, lam_error *err)
+lam_status lam__fit_refloor(fit_ctx *f, double *lp, lam_error *err)
 {
     lam_estimate *e = f->e;
     if (!e->opt.estimate_floor)
@@ -525,7 +490,7 @@ static lam_status refloor(fit_ctx *f, double *lp, lam_error *err)
         return LAM_OK;
     memcpy(e->floor_abs, fa, sizeof e->floor_abs);
     e->floor_rel = fr;
-    return run_em(f, e->opt.max_iterations, lp, err);
+    return lam__fit_run_em(f, e->opt.max_iterations, lp, err);
 }
 
 /* ---- Laplace covariance ---- */
@@ -602,7 +567,7 @@ static void count_regions(lam_estimate *e, const img_work *w)
     }
 }
 
-static void free_ctx(fit_ctx *f)
+void lam__fit_free_ctx(fit_ctx *f)
 {
     if (f->w)
         for (size_t j = 0; j < f->e->images; j++)
@@ -616,7 +581,7 @@ static void free_ctx(fit_ctx *f)
     free(f->dd);
 }
 
-static lam_status init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_error *err)
+lam_status lam__fit_init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_error *err)
 {
     memset(f, 0, sizeof *f);
     f->e = e;
@@ -639,379 +604,10 @@ static lam_status init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_er
         ok = (f->w[j].resp = calloc((e->image[j].count ? e->image[j].count : 1) *
                                         (e->max_layers + 3), sizeof(double))) != NULL;
     if (!ok) {
-        free_ctx(f);
+        lam__fit_free_ctx(f);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the fit");
     }
     return LAM_OK;
-}
-
-/* A start of the multistart: another local maximum (oxide, scale) of one
- * image's grid. */
-typedef struct start_point {
-    int image, alt;
-} start_point;
-
-/* alt >= 0: a grid maximum; DOUBLED / HALVED: the best cell read with
- * every layer count halved / doubled (the scale twice / half as large). */
-#define START_DOUBLED (-1)
-#define START_HALVED (-2)
-
-static void apply_start(lam_estimate *e, const start_point *sp)
-{
-    if (sp->alt == START_DOUBLED)
-        lam__start_rescaled(e, (size_t)sp->image, 2.0);
-    else if (sp->alt == START_HALVED)
-        lam__start_rescaled(e, (size_t)sp->image, 0.5);
-    else
-        lam__start_at(e, (size_t)sp->image, sp->alt);
-}
-
-/* A doubled or halved scale is only worth a start when the response can
- * reach it: the continuum's range bounds the scale. */
-static int scale_reachable(const lam_estimate *e, double s)
-{
-    const lam_nuisance *c = &e->shared[LAM_NU_CONTINUUM];
-    return c->fitted && s >= 1 + c->lo && s <= 1 + c->hi;
-}
-
-static size_t list_starts(const lam_estimate *e, start_point *sp, size_t cap)
-{
-    size_t n = 0;
-    for (size_t j = 0; j < e->images && e->images <= MAX_MULTISTART_IMAGES; j++) {
-        const lam_est_image *im = &e->image[j];
-        for (int k = 0; k < 3 && n < cap; k++)
-            if (isfinite(im->alt_oxide[k]) && im->alt_score[k] > im->grid_best - ALT_MARGIN)
-                sp[n++] = (start_point){(int)j, k};
-        if (j == 0 && n < cap && scale_reachable(e, 2 * im->grid_scale))
-            sp[n++] = (start_point){0, START_DOUBLED};
-        if (j == 0 && n < cap && scale_reachable(e, 0.5 * im->grid_scale))
-            sp[n++] = (start_point){0, START_HALVED};
-    }
-    return n;
-}
-
-/* A start's fit with its floor: EM, the floor from the residuals, EM again
- * when the floor moved. */
-static lam_status settle(fit_ctx *f, double *lp, lam_error *err)
-{
-    lam_status st = run_em(f, f->e->opt.max_iterations, lp, err);
-    return st ? st : refloor(f, lp, err);
-}
-
-/* The layer-count signature of a settled point: the most responsible
- * hypothesis of every informing region. */
-static void signature(const lam_estimate *e, const img_work *w, uint8_t *sig)
-{
-    size_t H = e->max_layers + 3, k = 0;
-    for (size_t j = 0; j < e->images; j++)
-        for (size_t i = 0; i < e->image[j].count; i++, k++) {
-            size_t best = 0;
-            for (size_t h = 1; h < H; h++)
-                if (w[j].resp[i * H + h] > w[j].resp[i * H + best])
-                    best = h;
-            sig[k] = e->image[j].regions[i].use ? (uint8_t)best : 255;
-        }
-}
-
-/* Two points are different modes when a fifth of the informing regions
- * (at least one) changes its layer count between them. */
-static int distinct(const uint8_t *a, const uint8_t *b, size_t n)
-{
-    size_t used = 0, changed = 0;
-    for (size_t k = 0; k < n; k++)
-        if (a[k] != 255) {
-            used++;
-            changed += a[k] != b[k];
-        }
-    return changed >= 1 && changed * 5 >= used;
-}
-
-typedef struct mode_set {
-    saved_point best, rival, first, now;
-    uint8_t *sig_best, *sig_rival, *sig_now;
-    double best_lp, rival_lp;
-    size_t regions;
-} mode_set;
-
-/* Keep a settled point (its layer-count signature, parameters and log
- * posterior) if it beats the best, or is the best distinct rival so far. */
-static void keep(mode_set *m, const uint8_t *sig, const saved_point *pt, double lp,
-                 size_t images)
-{
-    if (lp > m->best_lp + 1e-6) {
-        if (distinct(sig, m->sig_best, m->regions)) { /* the old best becomes the rival */
-            m->rival_lp = m->best_lp;
-            copy_point(&m->rival, &m->best, images);
-            memcpy(m->sig_rival, m->sig_best, m->regions);
-        }
-        m->best_lp = lp;
-        copy_point(&m->best, pt, images);
-        memcpy(m->sig_best, sig, m->regions);
-    } else if (lp > m->rival_lp && distinct(sig, m->sig_best, m->regions)) {
-        m->rival_lp = lp;
-        copy_point(&m->rival, pt, images);
-        memcpy(m->sig_rival, sig, m->regions);
-    }
-}
-
-/* The same for the fit's current point. */
-static void consider(fit_ctx *f, mode_set *m, double lp)
-{
-    signature(f->e, f->w, m->sig_now);
-    save_point(f->e, &m->now);
-    keep(m, m->sig_now, &m->now, lp, f->e->images);
-}
-
-static size_t total_regions(const lam_estimate *e)
-{
-    size_t n = 0;
-    for (size_t j = 0; j < e->images; j++)
-        n += e->image[j].count;
-    return n;
-}
-
-static int mode_set_init(mode_set *m, const lam_estimate *e)
-{
-    size_t k = e->images ? e->images : 1, r = total_regions(e) ? total_regions(e) : 1;
-    memset(m, 0, sizeof *m);
-    m->regions = total_regions(e);
-    m->best.oxide = malloc(k * sizeof(double));
-    m->rival.oxide = malloc(k * sizeof(double));
-    m->first.oxide = malloc(k * sizeof(double));
-    m->now.oxide = malloc(k * sizeof(double));
-    m->sig_best = malloc(r), m->sig_rival = malloc(r), m->sig_now = malloc(r);
-    m->rival_lp = -INFINITY;
-    return m->best.oxide && m->rival.oxide && m->first.oxide && m->now.oxide && m->sig_best &&
-           m->sig_rival && m->sig_now;
-}
-
-static void mode_set_free(mode_set *m)
-{
-    free(m->best.oxide);
-    free(m->rival.oxide);
-    free(m->first.oxide);
-    free(m->now.oxide);
-    free(m->sig_best);
-    free(m->sig_rival);
-    free(m->sig_now);
-}
-
-/* A rescaled start read the other way: from the parameters alone, EM's
- * first responsibilities put the regions on "unmodelled" and the step goes
- * to the priors' centre, never reaching the other reading. When the
- * camera's curves are not given (where N and 2N readings compete: an
- * unknown dye camera near 300 nm), every
- * informing region whose count h in the best reading maps to a whole count
- * h / ratio (ratio 2: halved counts, the contrast scale doubled; 0.5:
- * doubled counts) carries that count as a label while the fit settles;
- * then the labels are released and the fit settles again. Labels a region
- * already has (calibration) stay. */
-static lam_status settle_seeded(fit_ctx *f, const uint8_t *sig, double ratio, double *lp,
-                                lam_error *err)
-{
-    lam_estimate *e = f->e;
-    size_t K = e->max_layers, k = 0, seeded = 0;
-    int *saved = malloc((total_regions(e) ? total_regions(e) : 1) * sizeof *saved);
-    if (!saved)
-        return lam_error_set(err, LAM_ENOMEM, "cannot seed a start");
-    for (size_t j = 0; j < e->images; j++)
-        for (size_t i = 0; i < e->image[j].count; i++, k++) {
-            lam_est_region *r = &e->image[j].regions[i];
-            double q = sig[k] == 255 ? 0 : (double)sig[k] / ratio;
-            saved[k] = r->known_layers;
-            if (saved[k] <= 0 && sig[k] >= 1 && sig[k] <= K && q >= 1 && q <= (double)K &&
-                q == floor(q)) {
-                r->known_layers = (int)q;
-                seeded++;
-            }
-        }
-    lam_status st = seeded ? settle(f, lp, err) : LAM_OK;
-    k = 0;
-    for (size_t j = 0; j < e->images; j++)
-        for (size_t i = 0; i < e->image[j].count; i++, k++)
-            e->image[j].regions[i].known_layers = saved[k];
-    free(saved);
-    return st ? st : settle(f, lp, err);
-}
-
-/* A start from the fit's first point: the shared parameters back at the
- * priors' centre (a fresh start, as the first), the start's oxide and
- * scale. */
-static void begin_start(lam_estimate *e, const saved_point *first, const start_point *sp)
-{
-    restore_point(e, first);
-    for (int k = 0; k < LAM_NU_COUNT; k++)
-        e->shared[k].value = e->shared[k].prior_mean;
-    apply_start(e, sp);
-}
-
-/* A start whose settling reads the best reading so far (settle_seeded)
- * must wait for the starts before it; the others are independent. */
-static int start_seeded(const lam_estimate *e, const start_point *sp)
-{
-    return sp->alt < 0 && lam__curves_unknown(e);
-}
-
-/* What an independent start settled to. */
-typedef struct start_result {
-    saved_point pt;
-    uint8_t *sig;
-    double lp;
-    size_t iterations;
-    lam_status st;
-    lam_error err;
-} start_result;
-
-/* The independent starts, in slices on the fit's threads: slice 0 on the
- * fit itself, every other slice on a copy of the estimate and of the
- * model (the model keeps caches), made before the threads start. A
- * start's result depends only on its start point, so it is the same on
- * any slice and for any thread count. */
-typedef struct worker {
-    fit_ctx g;
-    lam_estimate *copy;
-    lam_model *model;
-    int ready;
-} worker;
-
-typedef struct starts_job {
-    fit_ctx *f;
-    worker *crew;        /* slices 1.. */
-    const mode_set *m;
-    const start_point *sp;
-    const size_t *which; /* indices into sp of the independent starts */
-    start_result *res;
-} starts_job;
-
-static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
-{
-    start_result *r = &job->res[k];
-    size_t before = g->e->iterations;
-    begin_start(g->e, &job->m->first, &job->sp[job->which[k]]);
-    r->st = settle(g, &r->lp, &r->err);
-    r->iterations = g->e->iterations - before;
-    g->e->iterations = before; /* added to the fit's count in the list's order */
-    if (!r->st) {
-        signature(g->e, g->w, r->sig);
-        save_point(g->e, &r->pt);
-    }
-}
-
-static void settle_slice(size_t k0, size_t k1, size_t slice, void *vjob)
-{
-    const starts_job *job = vjob;
-    fit_ctx *use = slice ? &job->crew[slice - 1].g : job->f;
-    for (size_t k = k0; k < k1; k++)
-        settle_one(use, job, k);
-}
-
-static void crew_free(worker *crew, size_t n)
-{
-    for (size_t i = 0; crew && i < n; i++) {
-        if (crew[i].ready)
-            free_ctx(&crew[i].g);
-        lam_model_free(crew[i].model);
-        lam_estimate_free(crew[i].copy);
-    }
-    free(crew);
-}
-
-/* Copies of the estimate and the model for slices 1..threads-1. */
-static lam_status crew_alloc(const fit_ctx *f, size_t threads, worker **out, lam_error *err)
-{
-    size_t n = threads > 1 ? threads - 1 : 0;
-    worker *crew = calloc(n ? n : 1, sizeof *crew);
-    lam_status st = crew ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
-    for (size_t i = 0; i < n && !st; i++) {
-        worker *w = &crew[i];
-        if (!(w->copy = lam__estimate_clone(f->e)))
-            st = lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
-        else if (!(st = lam_model_clone(f->model, &w->model, err)) &&
-                 !(st = init_ctx(&w->g, w->copy, w->model, err)))
-            w->ready = 1;
-    }
-    if (st) {
-        crew_free(crew, n);
-        crew = NULL;
-    }
-    *out = crew;
-    return st;
-}
-
-static void free_results(start_result *res, size_t n)
-{
-    for (size_t k = 0; res && k < n; k++) {
-        free(res[k].pt.oxide);
-        free(res[k].sig);
-    }
-    free(res);
-}
-
-static start_result *alloc_results(const lam_estimate *e, size_t n, size_t regions)
-{
-    start_result *res = calloc(n ? n : 1, sizeof *res);
-    int ok = res != NULL;
-    for (size_t k = 0; ok && k < n; k++)
-        ok = (res[k].pt.oxide = malloc((e->images ? e->images : 1) * sizeof(double))) &&
-             (res[k].sig = malloc(regions ? regions : 1));
-    if (!ok) {
-        free_results(res, n);
-        return NULL;
-    }
-    return res;
-}
-
-/* The other starts (grid maxima, the doubled and halved scale), each
- * settled and kept in the order of the list: the independent ones first,
- * side by side, then the seeded ones in turn. */
-static lam_status multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
-{
-    lam_estimate *e = f->e;
-    start_point sp[16];
-    size_t n = list_starts(e, sp, 16), which[16], nind = 0, at[16];
-    save_point(e, &m->best);
-    save_point(e, &m->first);
-    signature(e, f->w, m->sig_best);
-    m->best_lp = *logpost;
-    for (size_t i = 0; i < n; i++) {
-        at[i] = SIZE_MAX; /* seeded: settled in turn below */
-        if (!start_seeded(e, &sp[i])) {
-            which[nind] = i;
-            at[i] = nind++;
-        }
-    }
-    start_result *res = alloc_results(e, nind, m->regions);
-    if (!res)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
-    size_t threads = lam_parallel_slices(nind, e->opt.threads);
-    worker *crew = NULL;
-    lam_status st = crew_alloc(f, threads, &crew, err);
-    if (!st) {
-        starts_job job = {f, crew, m, sp, which, res};
-        lam_parallel_for(nind, threads, settle_slice, &job);
-        crew_free(crew, threads - 1);
-    }
-    for (size_t i = 0; i < n && !st; i++) {
-        start_result *r = at[i] == SIZE_MAX ? NULL : &res[at[i]];
-        if (r) {
-            e->iterations += r->iterations;
-            if ((st = r->st))
-                *err = r->err;
-            else
-                keep(m, r->sig, &r->pt, r->lp, e->images);
-            continue;
-        }
-        double lp, ratio = sp[i].alt == START_DOUBLED ? 2.0 : 0.5;
-        begin_start(e, &m->first, &sp[i]);
-        if (!(st = settle_seeded(f, m->sig_best, ratio, &lp, err)))
-            consider(f, m, lp);
-    }
-    free_results(res, nind);
-    if (!st) {
-        restore_point(e, &m->best);
-        st = objective(e, f->model, f->w, logpost, err);
-    }
-    return st;
 }
 
 /* The Laplace fit of a point: covariance, counts and log evidence. */
@@ -1038,13 +634,13 @@ static lam_status fit_rival(fit_ctx *f, const mode_set *m, lam_error *err)
     if (!r)
         return lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
     fit_ctx g;
-    lam_status st = init_ctx(&g, r, f->model, err);
+    lam_status st = lam__fit_init_ctx(&g, r, f->model, err);
     double lp = 0;
     if (!st) {
-        restore_point(r, &m->rival);
-        if (!(st = objective(r, g.model, g.w, &lp, err)))
+        lam__fit_restore_point(r, &m->rival);
+        if (!(st = lam__fit_objective(r, g.model, g.w, &lp, err)))
             st = finish(&g, lp, err);
-        free_ctx(&g);
+        lam__fit_free_ctx(&g);
     }
     /* The weight is the ratio of the posterior densities at the two modes.
      * The Laplace volume term (log_evidence) would be the better measure
@@ -1068,7 +664,7 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
         return lam_error_set(err, LAM_EINTERNAL, "fit model has fewer than %zu layers",
                              e->max_layers);
     fit_ctx f;
-    lam_status st = init_ctx(&f, e, model, err);
+    lam_status st = lam__fit_init_ctx(&f, e, model, err);
     if (st)
         return st;
     double lp = 0;
@@ -1077,33 +673,33 @@ lam_status lam_estimate_fit(lam_estimate *e, lam_model *model, lam_model *thick,
     e->rival = NULL;
     e->rival_weight = 0;
     mode_set m;
-    if (!mode_set_init(&m, e))
+    if (!lam__mode_set_init(&m, e))
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
-    if (!st && !(st = lam__estimate_grids(e, model, err)) && !(st = settle(&f, &lp, err)))
-        st = multistart(&f, &lp, &m, err);
+    if (!st && !(st = lam__estimate_grids(e, model, err)) && !(st = lam__fit_settle(&f, &lp, err)))
+        st = lam__multistart(&f, &lp, &m, err);
     if (!st && !(st = finish(&f, lp, err)))
         st = fit_rival(&f, &m, err);
-    mode_set_free(&m);
-    free_ctx(&f);
+    lam__mode_set_free(&m);
+    lam__fit_free_ctx(&f);
     return st;
 }
 
 lam_status lam_estimate_refit(lam_estimate *e, lam_model *model, lam_error *err)
 {
     fit_ctx f;
-    lam_status st = init_ctx(&f, e, model, err);
+    lam_status st = lam__fit_init_ctx(&f, e, model, err);
     if (st)
         return st;
     double lp = 0;
     e->iterations = 0;
-    st = run_em(&f, e->opt.max_iterations, &lp, err);
+    st = lam__fit_run_em(&f, e->opt.max_iterations, &lp, err);
     if (!st)
-        st = refloor(&f, &lp, err);
+        st = lam__fit_refloor(&f, &lp, err);
     if (!st && !(st = laplace(&f, err))) {
         count_regions(e, f.w);
         e->fitted = 1;
     }
-    free_ctx(&f);
+    lam__fit_free_ctx(&f);
     return st;
 }
 
