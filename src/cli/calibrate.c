@@ -121,10 +121,10 @@ const cli_command cli_calibrate = {
              "constrain are reported as such and keep their prior. The images' other,\n"
              "unlabelled regions join the fit with latent layer counts: the labels fix\n"
              "the ladder, the other layer counts pin the response and camera better\n"
-             "(--labelled-only leaves them out). LABELS.png uses the\n"
-             "layer-map coding (0 substrate, N layers, 254/255 ignored), one per image, in\n"
-             "the same order; or LABELS.json (lamina-labels/1): polygons or points with\n"
-             "layer counts, a point taking the whole segmented region around it.\n"
+             "(--labelled-only leaves them out). LABELS.png uses the layer-map coding\n"
+             "(0 substrate, N layers, 254/255 ignored), one per image, in the same\n"
+             "order; or LABELS.json (lamina-labels/1): polygons or points with layer\n"
+             "counts, a point taking the whole segmented region around it.\n"
              "--self fits without labels, the layer counts left latent (marginalised):\n"
              "use several images with several layer counts.\n\n",
     .options = calibrate_options, .setup = &A.so, .min_args = 1, .max_args = -1,
