@@ -372,7 +372,7 @@ static void row_buckets(const pair_ctx *p, size_t k0, size_t off, size_t n, doub
         b[x] = v < PAIR_BUCKETS ? (int32_t)v : NO_BUCKET;
     }
     for (size_t x = 0; x < n; x++)
-        out[x] = (ca[x] == PROVISIONAL) & (cb[x] == PROVISIONAL) ? (uint16_t)b[x] : NO_BUCKET;
+        out[x] = ((ca[x] == PROVISIONAL) & (cb[x] == PROVISIONAL)) ? (uint16_t)b[x] : NO_BUCKET;
 }
 
 /* Buckets of the pairs of rows y0..y1 into bk: the pairs (k, k + 1) of
