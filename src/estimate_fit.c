@@ -579,6 +579,7 @@ void lam__fit_free_ctx(fit_ctx *f)
     free(f->base.oxide);
     free(f->ds);
     free(f->dd);
+    memset(f, 0, sizeof *f); /* released: freeing again, or a zeroed context, is a no-op */
 }
 
 lam_status lam__fit_init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_error *err)

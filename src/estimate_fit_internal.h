@@ -61,7 +61,8 @@ void lam__fit_restore_point(lam_estimate *e, const saved_point *s);
 void lam__fit_copy_point(saved_point *to, const saved_point *from, size_t images);
 
 /* The working state of a fit of e with model; lam__fit_free_ctx releases
- * it. */
+ * it and zeroes it, so a zeroed or released context may be freed again
+ * (a failed init has released its own). */
 lam_status lam__fit_init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_error *err);
 void lam__fit_free_ctx(fit_ctx *f);
 

@@ -234,7 +234,6 @@ typedef struct worker {
     fit_ctx g;
     lam_estimate *copy;
     lam_model *model;
-    int ready;
 } worker;
 
 typedef struct starts_job {
@@ -271,8 +270,7 @@ static void settle_slice(size_t k0, size_t k1, size_t slice, void *vjob)
 static void crew_free(worker *crew, size_t n)
 {
     for (size_t i = 0; crew && i < n; i++) {
-        if (crew[i].ready)
-            lam__fit_free_ctx(&crew[i].g);
+        lam__fit_free_ctx(&crew[i].g);
         lam_model_free(crew[i].model);
         lam_estimate_free(crew[i].copy);
     }
@@ -289,9 +287,8 @@ static lam_status crew_alloc(const fit_ctx *f, size_t threads, worker **out, lam
         worker *w = &crew[i];
         if (!(w->copy = lam__estimate_clone(f->e)))
             st = lam_error_set(err, LAM_ENOMEM, "cannot copy the estimate");
-        else if (!(st = lam_model_clone(f->model, &w->model, err)) &&
-                 !(st = lam__fit_init_ctx(&w->g, w->copy, w->model, err)))
-            w->ready = 1;
+        else if (!(st = lam_model_clone(f->model, &w->model, err)))
+            st = lam__fit_init_ctx(&w->g, w->copy, w->model, err);
     }
     if (st) {
         crew_free(crew, n);

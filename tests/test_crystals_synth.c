@@ -27,6 +27,17 @@ static robust_case make_case(synth_crystal x, int source, double oxide)
     return c;
 }
 
+/* Render and analyse one hBN scene, added to 'total'. */
+static void hbn_scene(const robust_case *c, unsigned long long seed, const char *dir,
+                      hbn_tally *total)
+{
+    hbn_tally t;
+    memset(&t, 0, sizeof t);
+    check_int(crystals_run_hbn(c, seed, dir, &t, stdout), 0, "hBN scene %llu rendered and analysed",
+              seed);
+    crystals_add(total, &t);
+}
+
 static void test_hbn(const char *dir)
 {
     static const struct { int source; double oxide; } cases[] = {
@@ -35,11 +46,7 @@ static void test_hbn(const char *dir)
     memset(&total, 0, sizeof total);
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         robust_case c = make_case(SYNTH_XTAL_HBN, cases[i].source, cases[i].oxide);
-        hbn_tally t;
-        memset(&t, 0, sizeof t);
-        check_int(crystals_run_hbn(&c, 7100 + i, dir, &t, stdout), 0,
-                  "hBN scene %zu rendered and analysed", i);
-        crystals_add(&total, &t);
+        hbn_scene(&c, 7100 + i, dir, &total);
     }
     crystals_print(stdout, "quick hBN (4 png scenes)", &total);
     check_true(total.flakes >= 30, "enough hBN flakes scored (%zu)", total.flakes);
@@ -67,13 +74,8 @@ static void test_hbn_jpeg(const char *dir)
     c.quality = 90;
     hbn_tally total;
     memset(&total, 0, sizeof total);
-    for (unsigned long long k = 0; k < 4; k++) {
-        hbn_tally t;
-        memset(&t, 0, sizeof t);
-        check_int(crystals_run_hbn(&c, 3300 + k, dir, &t, stdout), 0,
-                  "hBN JPEG scene %llu rendered and analysed", k);
-        crystals_add(&total, &t);
-    }
+    for (unsigned long long k = 0; k < 4; k++)
+        hbn_scene(&c, 3300 + k, dir, &total);
     crystals_print(stdout, "hBN 285 nm JPEG q90 (4 scenes)", &total);
     check_true(total.flakes >= 25, "enough hBN flakes scored in JPEG (%zu)", total.flakes);
     check_true(total.right >= 0.9 * (double)total.flakes,
