@@ -68,7 +68,7 @@ static const char *const other_keys[] = {
 static const char *const root_keys[] = {"schema", "objective", "illuminant", "camera",
                                         "encoding", "substrate", "material", "conductivity",
                                         "uncertainty", "calibration", "observation",
-                                        "substrate_colour", NULL};
+                                        "substrate_colour", "assumed", NULL};
 static const char *const objective_keys[] = {"na", "illumination_na", "pupil_weight",
                                              "immersion", "cone_nodes", NULL};
 static const char *const illuminant_keys[] = {"kind", "kelvin", "file", NULL};
@@ -156,6 +156,19 @@ void lam_setup_default(lam_setup *s)
     s->substrate_colour.stability = 0.01;
     s->substrate_colour.lamp_tilt = 0.05;
     list_defaulted(s);
+}
+
+/* The table's own spelling of a defaultable key (the defaulted list
+ * holds pointers into the tables), or NULL. */
+static const char *defaultable_key(const char *key)
+{
+    for (size_t i = 0; i < N_OTHER; i++)
+        if (!strcmp(other_keys[i], key))
+            return other_keys[i];
+    for (size_t i = 0; i < N_NUMBERS; i++)
+        if (!numbers[i].records && !strcmp(numbers[i].key, key))
+            return numbers[i].key;
+    return NULL;
 }
 
 static void mark_given(lam_setup *s, const char *key)
@@ -774,6 +787,29 @@ static lam_status read_numbers(const cJSON *root, lam_setup *s, lam_error *err)
     return LAM_OK;
 }
 
+/* "assumed": the keys whose values are lamina's typical ones (a
+ * calibration may have moved them), not the user's measurements: they
+ * count as not given although the file writes them, so a saved profile
+ * reads back exactly as it was fitted (lam_setup_save). */
+static lam_status parse_assumed(const cJSON *v, lam_setup *s, lam_error *err)
+{
+    if (!cJSON_IsArray(v))
+        return lam_error_set(err, LAM_EFORMAT, "key assumed: expected an array of key names");
+    const cJSON *k;
+    cJSON_ArrayForEach(k, v)
+    {
+        const char *key = cJSON_IsString(k) ? defaultable_key(k->valuestring) : NULL;
+        if (!key)
+            return lam_error_set(err, LAM_EFORMAT, "key assumed: %s%s%s is not a setup key",
+                                 cJSON_IsString(k) ? "'" : "",
+                                 cJSON_IsString(k) ? k->valuestring : "an entry that is not a string",
+                                 cJSON_IsString(k) ? "'" : "");
+        if (!lam_setup_is_default(s, key) && s->defaulted_count < LAM_SETUP_MAX_DEFAULTED)
+            s->defaulted[s->defaulted_count++] = key;
+    }
+    return LAM_OK;
+}
+
 static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, lam_error *err)
 {
     lam_status st;
@@ -808,6 +844,8 @@ static lam_status parse_root(const cJSON *root, const char *dir, lam_setup *s, l
             return lam_error_set(err, LAM_ERANGE, "key spectrum: max_nm must exceed min_nm");
         mark_given(s, "spectrum");
     }
+    if (ITEM("assumed") && (st = parse_assumed(v, s, err)))
+        return st;
 #undef ITEM
     /* "calibration" is the record lam_setup_save keeps of a fit; nothing
      * reads it back yet, so its contents are not checked */
@@ -852,11 +890,20 @@ lam_status lam_setup_load_stack(const char *path, lam_setup *s, lam_error *err)
 
 /* --- the writer --- */
 
-static cJSON *material_json(const lam_material *m)
+/* A file the setup names, as the saved profile in folder dir must name it
+ * (lam_path_relative): the loader joined it with the setup's folder. */
+static void add_file(cJSON *o, const char *dir, const char *file)
+{
+    char rel[1024];
+    lam_path_relative(rel, sizeof rel, dir, file);
+    cJSON_AddStringToObject(o, "file", rel);
+}
+
+static cJSON *material_json(const lam_material *m, const char *dir)
 {
     if (m->file[0]) {
         cJSON *o = cJSON_CreateObject();
-        cJSON_AddStringToObject(o, "file", m->file);
+        add_file(o, dir, m->file);
         return o;
     }
     return cJSON_CreateString(m->name);
@@ -896,20 +943,20 @@ static void add_channel_values(cJSON *o, const char *name, const double *v, size
     cJSON_AddItemToObject(o, name, cJSON_CreateDoubleArray(r, (int)n));
 }
 
-static void save_optics(cJSON *root, const lam_setup *s)
+static void save_optics(cJSON *root, const lam_setup *s, const char *dir)
 {
     cJSON *ob = cJSON_AddObjectToObject(root, "objective");
     cJSON_AddNumberToObject(ob, "na", s->objective_na);
     cJSON_AddNumberToObject(ob, "illumination_na", s->illumination_na);
     cJSON_AddStringToObject(ob, "pupil_weight", lam_pupil_weight_name(s->pupil));
-    cJSON_AddItemToObject(ob, "immersion", material_json(&s->ambient));
+    cJSON_AddItemToObject(ob, "immersion", material_json(&s->ambient, dir));
     cJSON_AddNumberToObject(ob, "cone_nodes", (double)s->cone_nodes);
     cJSON *il = cJSON_AddObjectToObject(root, "illuminant");
     cJSON_AddStringToObject(il, "kind", lam_illuminant_kind_name(s->illuminant.kind));
     if (s->illuminant.kind == LAM_ILLUM_BLACKBODY)
         cJSON_AddNumberToObject(il, "kelvin", s->illuminant.kelvin);
     if (s->illuminant.kind == LAM_ILLUM_TABLE)
-        cJSON_AddStringToObject(il, "file", s->illuminant.table.file);
+        add_file(il, dir, s->illuminant.table.file);
     cJSON *cam = cJSON_AddObjectToObject(root, "camera");
     cJSON_AddStringToObject(cam, "kind", lam_camera_kind_name(s->camera.kind));
     if (s->camera.kind == LAM_CAMERA_GAUSSIAN) {
@@ -922,7 +969,7 @@ static void save_optics(cJSON *root, const lam_setup *s)
         }
     }
     if (s->camera.kind == LAM_CAMERA_TABLE)
-        cJSON_AddStringToObject(cam, "file", s->camera.table.file);
+        add_file(cam, dir, s->camera.table.file);
     add_channel_values(cam, "shift_nm", s->camera_shift_nm, s->camera.channels, 0);
     add_channel_values(cam, "contrast_gain", s->camera_gain, s->camera.channels, 1);
     add_channel_values(cam, "width_scale", s->camera_width, s->camera.channels, 1);
@@ -936,17 +983,17 @@ static void save_optics(cJSON *root, const lam_setup *s)
     }
 }
 
-static void save_sample(cJSON *root, const lam_setup *s)
+static void save_sample(cJSON *root, const lam_setup *s, const char *dir)
 {
     cJSON *sub = cJSON_AddObjectToObject(root, "substrate");
     cJSON *st = cJSON_AddArrayToObject(sub, "stack");
     for (size_t i = 0; i < s->layers; i++) {
         cJSON *L = cJSON_CreateObject();
-        cJSON_AddItemToObject(L, "material", material_json(&s->layer_material[i]));
+        cJSON_AddItemToObject(L, "material", material_json(&s->layer_material[i], dir));
         cJSON_AddNumberToObject(L, "thickness_nm", round(s->layer_nm[i] * 100) / 100);
         cJSON_AddItemToArray(st, L);
     }
-    cJSON_AddItemToObject(sub, "base", material_json(&s->base));
+    cJSON_AddItemToObject(sub, "base", material_json(&s->base, dir));
     cJSON_AddStringToObject(root, "observation", s->transmission ? "transmission" : "reflection");
     cJSON_AddStringToObject(root, "material", s->flake);
     cJSON *co = cJSON_AddObjectToObject(root, "conductivity");
@@ -954,7 +1001,7 @@ static void save_sample(cJSON *root, const lam_setup *s)
         /* a crystal's films follow from its name */
         cJSON_AddStringToObject(co, "model", lam_setup_conductivity_model(s));
         if (s->flake_as_film)
-            cJSON_AddItemToObject(co, "film", material_json(&s->flake_film));
+            cJSON_AddItemToObject(co, "film", material_json(&s->flake_film, dir));
     }
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
     int colour = isfinite(s->substrate_colour.oxide_nm);
@@ -973,8 +1020,16 @@ lam_status lam_setup_save(const lam_setup *s, const char *path, const cJSON *ext
 {
     cJSON *root = cJSON_CreateObject();
     cJSON_AddStringToObject(root, "schema", SETUP_SCHEMA);
-    save_optics(root, s);
-    save_sample(root, s);
+    char dir[1024];
+    lam_path_dir(path, dir, sizeof dir);
+    save_optics(root, s, dir);
+    save_sample(root, s, dir);
+    /* every value is written; what was not given stays not given */
+    if (s->defaulted_count) {
+        cJSON *as = cJSON_AddArrayToObject(root, "assumed");
+        for (size_t i = 0; i < s->defaulted_count; i++)
+            cJSON_AddItemToArray(as, cJSON_CreateString(s->defaulted[i]));
+    }
     if (extra)
         cJSON_AddItemToObject(root, "calibration", cJSON_Duplicate(extra, 1));
     char *text = cJSON_Print(root);

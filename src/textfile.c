@@ -56,3 +56,38 @@ void lam_path_dir(const char *path, char *dir, size_t n)
     else
         snprintf(dir, n, ".");
 }
+
+/* The number of '/'-separated components of an absolute path. */
+static size_t components(const char *p)
+{
+    size_t k = 0;
+    for (; *p; p++)
+        k += p[0] == '/' && p[1] && p[1] != '/';
+    return k;
+}
+
+void lam_path_relative(char *buf, size_t n, const char *dir, const char *path)
+{
+    char *d = realpath(dir, NULL), *f = realpath(path, NULL);
+    if (!d || !f) {
+        snprintf(buf, n, "%s", f ? f : path);
+        free(d);
+        free(f);
+        return;
+    }
+    /* the common folder: up to the last '/' before the first difference,
+     * or all of dir when the file lies inside it */
+    size_t common = 0;
+    while (d[common] && d[common] == f[common])
+        common++;
+    if (d[common] || f[common] != '/')
+        while (common > 0 && d[common] != '/')
+            common--;
+    size_t up = components(d + common), used = 0;
+    buf[0] = '\0';
+    for (size_t i = 0; i < up && used + 3 < n; i++)
+        used += (size_t)snprintf(buf + used, n - used, "../");
+    snprintf(buf + used, n - used, "%s", f + common + (f[common] == '/'));
+    free(d);
+    free(f);
+}

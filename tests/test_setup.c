@@ -14,6 +14,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <cjson/cJSON.h>
 #include <gsl/gsl_errno.h>
 
@@ -293,7 +294,14 @@ static void test_round_trip(void)
     check_int(lam_setup_load(path, &b, &err), LAM_OK, "the saved setup loads back (%s)",
               err.message);
     same_setup(&a, &b, "bench3 with changes");
-    check_int(b.defaulted_count, 0, "a saved setup gives every key");
+    /* every value is written, but what was not given stays not given
+     * ("assumed"): a calibrated profile must read back as it was fitted */
+    check_true(a.defaulted_count > 0, "bench3 leaves some keys to the defaults (%zu)",
+               a.defaulted_count);
+    check_int(b.defaulted_count, a.defaulted_count, "as many keys not given after the round trip");
+    for (size_t i = 0; i < a.defaulted_count; i++)
+        check_true(lam_setup_is_default(&b, a.defaulted[i]), "'%s' stays not given",
+                   a.defaulted[i]);
     lam_setup_clear(&a);
     lam_setup_clear(&b);
     /* the defaults, with the pixel size unknown (written as null) */
@@ -304,6 +312,63 @@ static void test_round_trip(void)
     same_setup(&a, &b, "defaults");
     check_true(lam_setup_is_default(&b, "um_per_px"), "um_per_px null stays unknown");
     lam_setup_clear(&b);
+}
+
+/* A profile written into another folder than its setup's names the
+ * setup's tables so that it loads from any working folder (the tables are
+ * found relative to the profile), and "assumed" keys are checked. */
+static void test_profile_elsewhere(void)
+{
+    char a_dir[512], b_dir[512], path[600], rel[600];
+    snprintf(a_dir, sizeof a_dir, "%s/scope", check_tmpdir());
+    snprintf(b_dir, sizeof b_dir, "%s/profiles/today", check_tmpdir());
+    snprintf(path, sizeof path, "%s/profiles", check_tmpdir());
+    check_true(mkdir(a_dir, 0755) == 0 && mkdir(path, 0755) == 0 && mkdir(b_dir, 0755) == 0,
+               "folders made");
+    snprintf(path, sizeof path, "%s/lamp.csv", a_dir);
+    FILE *f = fopen(path, "w");
+    for (int nm = 380; f && nm <= 780; nm += 10)
+        fprintf(f, "%s%d,%g\n", nm == 380 ? "wavelength_nm,power\n" : "", nm, 1 + nm / 1000.0);
+    if (f)
+        fclose(f);
+    snprintf(path, sizeof path, "%s/setup.json", a_dir);
+    f = fopen(path, "w");
+    if (f) {
+        fputs(HEAD "\"illuminant\": {\"kind\": \"table\", \"file\": \"lamp.csv\"}}", f);
+        fclose(f);
+    }
+    lam_setup a, b;
+    lam_error err;
+    lam_error_clear(&err);
+    lam_setup_default(&a);
+    check_int(lam_setup_load(path, &a, &err), LAM_OK, "a setup with a lamp table (%s)",
+              err.message);
+    snprintf(path, sizeof path, "%s/profile.json", b_dir);
+    check_int(lam_setup_save(&a, path, NULL, &err), LAM_OK, "saved elsewhere (%s)", err.message);
+    lam_setup_default(&b);
+    check_int(lam_setup_load(path, &b, &err), LAM_OK, "and read back from there (%s)",
+              err.message);
+    check_true(b.illuminant.kind == LAM_ILLUM_TABLE &&
+                   b.illuminant.table.rows == a.illuminant.table.rows,
+               "the same lamp table (%zu rows)", b.illuminant.table.rows);
+    lam_setup_clear(&a);
+    lam_setup_clear(&b);
+    lam_path_relative(rel, sizeof rel, b_dir, a_dir);
+    check_str(rel, "../../scope", "a folder two levels up and across");
+    lam_path_relative(rel, sizeof rel, a_dir, path);
+    check_str(rel, "../profiles/today/profile.json", "a file one level up and down");
+    lam_path_relative(rel, sizeof rel, check_tmpdir(), path);
+    check_str(rel, "profiles/today/profile.json", "a file inside the folder");
+    refused(HEAD "\"assumed\": \"camera\"}", LAM_EFORMAT, "key assumed", "array");
+    refused(HEAD "\"assumed\": [\"camera\", \"lens\"]}", LAM_EFORMAT, "key assumed", "'lens'");
+    lam_setup s;
+    check_int(parse(HEAD "\"camera\": {\"kind\": \"gaussian\", \"channels\": [{\"centre_nm\": "
+                          "550, \"fwhm_nm\": 40}]}, \"assumed\": [\"camera\"]}",
+                    &s, &err),
+              LAM_OK, "an assumed camera (%s)", err.message);
+    check_true(lam_setup_is_default(&s, "camera") && s.camera.channels == 1,
+               "is read but counts as not given");
+    lam_setup_clear(&s);
 }
 
 /* A calibration's record of the substrate's colour: read, refused when
@@ -448,6 +513,7 @@ int main(void)
     test_setters();
     test_round_trip();
     test_substrate_colour();
+    test_profile_elsewhere();
     test_stack_file();
     test_build();
     test_seeds();

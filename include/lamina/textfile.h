@@ -24,4 +24,11 @@ void lam_path_dir(const char *path, char *dir, size_t n);
  * absolute name (or an empty dir) is taken as it is. */
 void lam_path_join(char *buf, size_t n, const char *dir, const char *file);
 
+/* The inverse: how a file written into another file in folder dir names
+ * the existing file 'path', so that lam_path_join(dir, ...) finds it again
+ * from any working folder ("../tables/camera.csv"). Both are resolved
+ * first (symbolic links, "."); when either cannot be, path is written
+ * absolute if it exists, else as given. */
+void lam_path_relative(char *buf, size_t n, const char *dir, const char *path);
+
 #endif

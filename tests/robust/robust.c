@@ -9,6 +9,7 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <time.h>
 
 static double now_s(void)
@@ -437,6 +438,25 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
     return rc ? -1 : 0;
 }
 
+/* The profile as a user gets it: written by lam_setup_save as `lamina
+ * calibrate` does, in a folder of its own, and read back. */
+static int round_trip(const lam_setup *fitted, const char *dir, unsigned long long seed,
+                      lam_setup *out)
+{
+    char sub[1024], path[1100];
+    snprintf(sub, sizeof sub, "%s/profiles", dir);
+    mkdir(sub, 0755);
+    snprintf(path, sizeof path, "%s/c%llu.profile.json", sub, seed);
+    lam_error err;
+    lam_error_clear(&err);
+    if (lam_setup_save(fitted, path, NULL, &err)) {
+        fprintf(stderr, "robust: %s: %s\n", path, err.message);
+        return -1;
+    }
+    lam_setup_clear(out);
+    return load_setup(path, out);
+}
+
 void robust_case_init(robust_case *c)
 {
     memset(c, 0, sizeof *c);
@@ -451,19 +471,23 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
         return -1;
     scan sn;
     int rc = render_scan(c, seed, tiles, dir, 'c', flags & ROBUST_CAL_SESSIONS, &sn);
-    lam_setup s;
+    lam_setup s, profile;
     lam_calib_result cal;
     memset(&cal, 0, sizeof cal);
+    lam_setup_default(&profile);
     if (!rc && !(rc = load_setup(sn.setup, &s))) {
         rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags, &cal);
-        if (flags & ROBUST_CAL_NO_COLOUR)
+        if (!rc && (flags & ROBUST_CAL_NO_COLOUR))
             cal.setup.substrate_colour.oxide_nm = NAN;
+        if (!rc)
+            rc = round_trip(&cal.setup, dir, seed, &profile);
         for (int k = 1; k < tiles && !rc; k++)
             rc = analyse(sn.img[k], &s, NULL, &sn.sc[k], alone, log, NULL) ||
-                 analyse(sn.img[k], &cal.setup, NULL, &sn.sc[k], calibrated, log, NULL);
+                 analyse(sn.img[k], &profile, NULL, &sn.sc[k], calibrated, log, NULL);
         lam_calib_result_clear(&cal);
         lam_setup_clear(&s);
     }
+    lam_setup_clear(&profile);
     scan_free(&sn);
     return rc;
 }

@@ -75,7 +75,8 @@ int robust_run_batch(const robust_case *c, unsigned long long seed, int tiles, c
  * and the other tiles (with ROBUST_CAL_SESSIONS taken on other days and
  * every other one on another chip: robust.c, other_session) are analysed
  * with the setup as it was (tallied in 'alone') and as calibrated
- * ('calibrated'); with
+ * ('calibrated': the profile written to dir/profiles/ and read back, as a
+ * user of `lamina calibrate` gets it); with
  * ROBUST_CAL_NO_COLOUR the calibration's substrate colour is dropped
  * (lamina/substrate_colour.h), to see what it adds.
  * 2 <= tiles <= LAM_POOL_MAX. */
