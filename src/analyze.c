@@ -262,15 +262,19 @@ static lam_status substrate_stage(run *r, lam_error *err)
 }
 
 /* The steps a file's coding makes in flat areas, as a relative change of
- * linear light at the substrate's level, per channel: one JPEG DC
- * quantisation step (lam_image.jpeg_dc_step), and for any 8-bit file at
- * least one code (which matters in dark images). */
+ * linear light at the substrate's level times 'darken', per channel: one
+ * JPEG DC quantisation step (lam_image.jpeg_dc_step), and for any 8-bit
+ * file at least one code (which matters in dark images). For a JPEG the
+ * segmentation takes them at the darkest substrate level (1 - falloff): a
+ * step is a larger share of the light in a vignetted corner, where noise
+ * no longer dithers the blocks; the model floor's prior at the mean
+ * level. */
 static void file_steps(const lam_image *img, const lam_substrate *sub, size_t channels,
-                       double out[3])
+                       double darken, double out[3])
 {
     for (size_t c = 0; c < 3; c++) {
         out[c] = 0;
-        double level = sub->level[c < channels ? c : 0], q = img->jpeg_dc_step[c];
+        double level = darken * sub->level[c < channels ? c : 0], q = img->jpeg_dc_step[c];
         if (img->bit_depth == 8)
             q = fmax(q, 1.0);
         if (c >= channels || !(q > 0) || !(level > 0))
@@ -296,8 +300,10 @@ static lam_status segment_stage(run *r, lam_error *err)
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
-    file_steps(r->img, &a->substrate, a->channels, so.file_step);
-    memcpy(a->file_step, so.file_step, sizeof a->file_step);
+    file_steps(r->img, &a->substrate, a->channels, 1.0, a->file_step);
+    int jpeg = r->img->jpeg_dc_step[0] > 0;
+    file_steps(r->img, &a->substrate, a->channels, jpeg ? 1 - a->substrate.falloff : 1.0,
+               so.file_step);
     /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
     so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],

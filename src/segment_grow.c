@@ -18,7 +18,8 @@
 #define EDGE_STEP_FRACTION 0.3 /* a change across two pixels that marks an edge */
 #define JOIN_STEP_FRACTION 0.15 /* neighbours never join across more than this */
 #define FILE_STEP_MERGE 1.0     /* regions one JPEG DC step apart are one */
-#define FILE_STEP_SUBSTRATE 1.5 /* substrate patches up to 1.5 steps off zero */
+#define FILE_STEP_SUBSTRATE 1.5 /* substrate patches up to 1.5 steps off zero ... */
+#define FILE_STEP_SUBSTRATE_JPEG 2.0 /* ... 2 in a JPEG, whose blocks lose the dither */
 
 typedef struct edge_ctx {
     const lam_image *img;
@@ -840,6 +841,9 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     lam_status st = mark_edges(&ec, threads, err);
     if (st)
         return st;
+    /* a JPEG's colour ringing can make a small flake transition throughout */
+    if (img->jpeg_dc_step[0] > 0 && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the transition depth");
     uint32_t m = 0;
     if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
         return st;
@@ -858,9 +862,10 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     double tol[3], step1 = 0;
     for (size_t c = 0; c < channels; c++)
         step1 = fmax(step1, fabs(c1[c]));
+    double steps = img->jpeg_dc_step[0] > 0 ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
     for (size_t c = 0; c < 3; c++)
         tol[c] = fmax(fmax(fmax(SUBSTRATE_FRACTION * step1, SUBSTRATE_MIN), 4 * scatter[c]),
-                      FILE_STEP_SUBSTRATE * opt->file_step[c]);
+                      steps * opt->file_step[c]);
     for (uint32_t i = 0; i < m; i++)
         R[i].cls = at_zero(&R[i], channels, tol) ? LAM_CLASS_SUBSTRATE : PROVISIONAL;
     lam__keep_regions(seg, R, m, opt->min_region_px);

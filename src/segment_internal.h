@@ -32,4 +32,11 @@ uint32_t lam__label_root(uint32_t *parent, uint32_t a);
 
 int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px);
 
+/* Pixels of class 'none' (transition) deeper than a transition band inside
+ * an area of such pixels become class 'joinable' again (segment_cores.c:
+ * small flakes a JPEG's colour ringing turns into transition throughout).
+ * -1 when out of memory (cls unchanged), else 0. */
+int lam__rescue_cores(uint8_t *cls, size_t width, size_t height, uint8_t none,
+                      uint8_t joinable);
+
 #endif

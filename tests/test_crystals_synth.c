@@ -9,6 +9,7 @@
 #include "robust/crystals.h"
 #include "lamina/error.h"
 
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -83,6 +84,33 @@ static void test_hbn_jpeg(const char *dir)
                total.right, total.flakes);
 }
 
+/* Two JPEG scenes of `make accuracy-crystals` that defeated the
+ * segmentation: h3101 (Grudinin index, 90 nm): a 4.8 nm flake of 1030 px
+ * whose colour rings throughout (JPEG codes colour at half resolution),
+ * every pixel a transition pixel, so no region; h4100 (Rah index, 285 nm,
+ * strong vignetting): patches of bare substrate in the corners sat 1.7 DC
+ * steps off in blue and were read as 0.4 nm flakes, which pulled the
+ * oxide from 290 to 244 nm and made three real flakes unmodelled. Every
+ * flake must now have an estimate and the oxides be right. */
+static void test_hbn_jpeg_segmentation(const char *dir)
+{
+    static const struct { int source; double oxide; unsigned long long seed; } cases[] = {
+        {0, 90, 3101}, {2, 285, 4100}};
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    for (size_t i = 0; i < 2; i++) {
+        robust_case c = make_case(SYNTH_XTAL_HBN, cases[i].source, cases[i].oxide);
+        c.fmt = SYNTH_FMT_JPEG;
+        c.quality = 90;
+        hbn_scene(&c, cases[i].seed, dir, &total);
+    }
+    crystals_print(stdout, "hBN JPEG scenes 3101 and 4100", &total);
+    double oxide = total.oxide_n ? total.oxide_abs_sum / (double)total.oxide_n : INFINITY;
+    check_true(total.flakes >= 15 && total.found == total.flakes,
+               "every flake has an estimate (%zu of %zu)", total.found, total.flakes);
+    check_true(oxide < 3, "the oxide within 3 nm on average (%.1f nm)", oxide);
+}
+
 static void test_tmd(const char *dir)
 {
     static const struct { synth_crystal x; int source; double oxide; } cases[] = {
@@ -114,6 +142,7 @@ int main(void)
     mkdir(dir, 0755);
     test_hbn(dir);
     test_hbn_jpeg(dir);
+    test_hbn_jpeg_segmentation(dir);
     test_tmd(dir);
     return check_summary();
 }

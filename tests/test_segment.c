@@ -6,6 +6,7 @@
  * artefact is small against that step and a feature is not. */
 #include "check.h"
 #include "lamina/segment.h"
+#include "segment_internal.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -150,9 +151,42 @@ static uint32_t label_at(const lam_segmentation *s, size_t x, size_t y)
     return s->label[y * W + x];
 }
 
+/* The cores of all-transition areas (segment_cores.c): a 40 x 40 px area
+ * of transition pixels (a small flake a JPEG's colour ringing covers)
+ * gets its core back, its rim stays transition; a band 9 px wide between
+ * two regions, an ordinary edge, stays transition throughout. */
+static void test_rescue_cores(void)
+{
+    enum { NONE = LAM_CLASS_NONE, JOIN = 1 };
+    uint8_t *cls = malloc((size_t)W * H);
+    if (!check_true(cls != NULL, "map allocated"))
+        return;
+    memset(cls, JOIN, (size_t)W * H);
+    for (size_t y = 60; y < 100; y++)
+        for (size_t x = 100; x < 140; x++)
+            cls[y * W + x] = NONE;
+    for (size_t y = 0; y < H; y++)
+        for (size_t x = 20; x < 29; x++)
+            cls[y * W + x] = NONE;
+    check_int(lam__rescue_cores(cls, W, H, NONE, JOIN), 0, "rescue ran");
+    size_t core = 0, band = 0;
+    for (size_t y = 60; y < 100; y++)
+        for (size_t x = 100; x < 140; x++)
+            core += cls[y * W + x] == JOIN;
+    for (size_t y = 0; y < H; y++)
+        for (size_t x = 20; x < 29; x++)
+            band += cls[y * W + x] == JOIN;
+    /* depth >= 6 from the outside: rows and columns 105..134, 30 x 30 px */
+    check_int((long)core, 30 * 30, "the area's core (30 x 30 px) may join regions again");
+    check_true(cls[60 * W + 100] == NONE && cls[64 * W + 120] == NONE, "its rim stays transition");
+    check_int((long)band, 0, "a 9 px band between regions stays transition");
+    free(cls);
+}
+
 int main(void)
 {
     check_begin("test_segment");
+    test_rescue_cores();
     lam_image *img = scene();
     if (!check_true(img != NULL, "scene allocated"))
         return check_summary();

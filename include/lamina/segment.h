@@ -30,7 +30,10 @@ typedef struct lam_segment_options {
     size_t threads;              /* worker threads for the pixel passes (1) */
     double file_step[3];         /* the file's own colour steps in contrast units per
                                   * channel (one JPEG DC quantisation step at the
-                                  * substrate's level); 0 for lossless files (0) */
+                                  * substrate's darkest level, where the step is the
+                                  * largest share of the light; one code at its mean
+                                  * level for other 8-bit files); 0 for lossless
+                                  * files (0) */
     /* lam_segment_uniform: flakes brighter than the substrate (contrast
      * C < 0: hBN, thick TMDs) carry more noise in contrast units - shot
      * noise grows as sqrt(b), flat-field residuals as b, b = 1 - C: with
@@ -89,7 +92,13 @@ void lam_segmentation_free(lam_segmentation *s);
  * A lossy file's own colour steps (opt->file_step: flat areas of a JPEG
  * move by whole DC quantisation steps from block to block) neither split a
  * region nor make a patch of substrate a region: regions within one step
- * merge, and the substrate tolerance is at least 1.5 steps. Layer counts
+ * merge, and the substrate tolerance is at least 1.5 steps, 2 in a JPEG
+ * (taken at the substrate's darkest level: in a vignetted
+ * corner, where noise no longer dithers the blocks, patches of bare
+ * substrate sat 1.7 steps off in one channel and were read as flakes,
+ * dragging the oxide 45 nm). In a JPEG, areas of transition pixels wider
+ * than a band (a small flake whose colour rings throughout) keep their
+ * core as a region (segment_cores.c). Layer counts
  * are then decided per region (lamina/infer.h), so a flake is one region
  * however the model's ladder is off. */
 lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const double *c1,

@@ -446,7 +446,8 @@ static int round_trip(const lam_setup *fitted, const char *dir, unsigned long lo
     char sub[1024], path[1100];
     snprintf(sub, sizeof sub, "%s/profiles", dir);
     mkdir(sub, 0755);
-    snprintf(path, sizeof path, "%s/c%llu.profile.json", sub, seed);
+    snprintf(path, sizeof path, "%s/c%llu-%s.profile.json", sub, seed,
+             lam_setup_is_default(fitted, "camera") ? "uninformed" : "informed");
     lam_error err;
     lam_error_clear(&err);
     if (lam_setup_save(fitted, path, NULL, &err)) {
