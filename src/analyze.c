@@ -301,9 +301,8 @@ static lam_status segment_stage(run *r, lam_error *err)
     lam_segment_options so = r->opt->segment;
     so.threads = r->threads;
     file_steps(r->img, &a->substrate, a->channels, 1.0, a->file_step);
-    int jpeg = r->img->jpeg_dc_step[0] > 0;
-    file_steps(r->img, &a->substrate, a->channels, jpeg ? 1 - a->substrate.falloff : 1.0,
-               so.file_step);
+    file_steps(r->img, &a->substrate, a->channels,
+               lam_image_block_coded(r->img) ? 1 - a->substrate.falloff : 1.0, so.file_step);
     /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
     so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
     lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],

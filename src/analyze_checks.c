@@ -178,21 +178,19 @@ static void check_defaults(lam_analysis *a, const lam_setup *s)
     char oxide[64] = "";
     if (a->oxide.fitted)
         snprintf(oxide, sizeof oxide, " and the oxide is uncertain by %.1f nm", a->oxide.sigma);
-    if (isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na)) /* a calibrated profile */
-        lam_warnings_add(&a->warnings, "setup-defaults",
-                         "%s not measured: the profile's values are typical ones adjusted by "
-                         "its calibration, fitted again from the flakes with wide priors, so "
-                         "layer counts are less certain (see each region's probability)%s; "
-                         "the camera's measured curves, or a second calibration chip of known "
-                         "oxide, narrow them",
-                         what, oxide);
-    else
-        lam_warnings_add(&a->warnings, "setup-defaults",
-                         "%s not given: typical values were assumed and fitted from the flakes "
-                         "with wide priors, so layer counts are less certain (see each "
-                         "region's probability)%s; give them in the setup, or calibrate on "
-                         "flakes of known thickness (lamina calibrate)",
-                         what, oxide);
+    int calibrated = isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+    lam_warnings_add(&a->warnings, "setup-defaults",
+                     "%s %s from the flakes with wide priors, so layer counts are less "
+                     "certain (see each region's probability)%s; %s",
+                     what,
+                     calibrated ? "not measured: the profile's values are typical ones adjusted "
+                                  "by its calibration, fitted again"
+                                : "not given: typical values were assumed and fitted",
+                     oxide,
+                     calibrated ? "the camera's measured curves, or a second calibration chip of "
+                                  "known oxide, narrow them"
+                                : "give them in the setup, or calibrate on flakes of known "
+                                  "thickness (lamina calibrate)");
 }
 
 static void check_fit(lam_analysis *a, const lam_setup *s)

@@ -216,3 +216,8 @@ int lam_image_transfer_conflict(const lam_image *img, const lam_transfer *user)
     }
     return 0;
 }
+
+int lam_image_block_coded(const lam_image *img)
+{
+    return img->jpeg_dc_step[0] > 0;
+}

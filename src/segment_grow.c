@@ -842,7 +842,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (st)
         return st;
     /* a JPEG's colour ringing can make a small flake transition throughout */
-    if (img->jpeg_dc_step[0] > 0 && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
+    if (lam_image_block_coded(img) && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the transition depth");
     uint32_t m = 0;
     if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
@@ -862,7 +862,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     double tol[3], step1 = 0;
     for (size_t c = 0; c < channels; c++)
         step1 = fmax(step1, fabs(c1[c]));
-    double steps = img->jpeg_dc_step[0] > 0 ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
+    double steps = lam_image_block_coded(img) ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
     for (size_t c = 0; c < 3; c++)
         tol[c] = fmax(fmax(fmax(SUBSTRATE_FRACTION * step1, SUBSTRATE_MIN), 4 * scatter[c]),
                       steps * opt->file_step[c]);

@@ -798,12 +798,12 @@ static lam_status parse_assumed(const cJSON *v, lam_setup *s, lam_error *err)
     const cJSON *k;
     cJSON_ArrayForEach(k, v)
     {
-        const char *key = cJSON_IsString(k) ? defaultable_key(k->valuestring) : NULL;
+        if (!cJSON_IsString(k))
+            return lam_error_set(err, LAM_EFORMAT, "key assumed: an entry is not a key name");
+        const char *key = defaultable_key(k->valuestring);
         if (!key)
-            return lam_error_set(err, LAM_EFORMAT, "key assumed: %s%s%s is not a setup key",
-                                 cJSON_IsString(k) ? "'" : "",
-                                 cJSON_IsString(k) ? k->valuestring : "an entry that is not a string",
-                                 cJSON_IsString(k) ? "'" : "");
+            return lam_error_set(err, LAM_EFORMAT, "key assumed: '%s' is not a setup key",
+                                 k->valuestring);
         if (!lam_setup_is_default(s, key) && s->defaulted_count < LAM_SETUP_MAX_DEFAULTED)
             s->defaulted[s->defaulted_count++] = key;
     }

@@ -262,26 +262,9 @@ size_t lam_thickness_scales(const lam_thickness_table *t)
     return t->n_scale;
 }
 
-double lam_thickness_scale_value(const lam_thickness_table *t, size_t f)
-{
-    return f < t->n_scale ? t->scale[f] : NAN;
-}
-
 double lam_thickness_scale_logw(const lam_thickness_table *t, size_t f)
 {
     return f < t->n_scale ? t->scale_logw[f] : -INFINITY;
-}
-
-void lam_thickness_set_scale_logw(lam_thickness_table *t, const double *logw)
-{
-    double m = -INFINITY, z = 0;
-    for (size_t f = 0; f < t->n_scale; f++)
-        m = fmax(m, logw[f]);
-    for (size_t f = 0; f < t->n_scale; f++)
-        z += exp(logw[f] - m);
-    for (size_t f = 0; f < t->n_scale; f++)
-        t->scale_logw[f] = logw[f] - m - log(z);
-    node_weights(t);
 }
 
 static double logsumexp3(double a, double b, double c)

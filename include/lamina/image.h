@@ -157,4 +157,8 @@ lam_status lam_image_check_size(size_t width, size_t height, size_t max_pixels,
  * 0 otherwise (no conflict, or nothing to compare). */
 int lam_image_transfer_conflict(const lam_image *img, const lam_transfer *user);
 
+/* 1 when the file was block-coded (a JPEG: jpeg_dc_step known), whose flat
+ * areas lose the noise's dither and whose colour rings at edges. */
+int lam_image_block_coded(const lam_image *img);
+
 #endif

@@ -138,13 +138,10 @@ void lam_thickness_infer(const lam_thickness_table *t, const lam_thickness_noise
                          const lam_est_region *r, const lam_thickness_options *opt,
                          lam_thickness_result *out);
 
-/* The index scale is one per image (one crystal): the table's scale
- * values, their log weights (the prior at first), and setting them (e.g.
- * to the image's posterior; normalised here). */
+/* The index scale is one per image (one crystal): the number of the
+ * table's scale values and their log weights (the prior's). */
 size_t lam_thickness_scales(const lam_thickness_table *t);
-double lam_thickness_scale_value(const lam_thickness_table *t, size_t f);
 double lam_thickness_scale_logw(const lam_thickness_table *t, size_t f);
-void lam_thickness_set_scale_logw(lam_thickness_table *t, const double *logw);
 
 /* The region's log marginal likelihood at each scale value (the thickness
  * and the oxide nodes integrated, with the substrate and unmodelled
