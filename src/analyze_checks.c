@@ -179,6 +179,12 @@ static void check_defaults(lam_analysis *a, const lam_setup *s)
     if (a->oxide.fitted)
         snprintf(oxide, sizeof oxide, " and the oxide is uncertain by %.1f nm", a->oxide.sigma);
     int calibrated = isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+    const char *narrow = !calibrated ? "give them in the setup, or calibrate on flakes of known "
+                                       "thickness (lamina calibrate)"
+                         : isfinite(s->substrate_colour.second_oxide_nm)
+                             ? "the camera's measured curves narrow them"
+                             : "the camera's measured curves, or a second calibration chip of "
+                               "known oxide (calibrate --second-chip), narrow them";
     lam_warnings_add(&a->warnings, "setup-defaults",
                      "%s %s from the flakes with wide priors, so layer counts are less "
                      "certain (see each region's probability)%s; %s",
@@ -186,11 +192,7 @@ static void check_defaults(lam_analysis *a, const lam_setup *s)
                      calibrated ? "not measured: the profile's values are typical ones adjusted "
                                   "by its calibration, fitted again"
                                 : "not given: typical values were assumed and fitted",
-                     oxide,
-                     calibrated ? "the camera's measured curves, or a second calibration chip of "
-                                  "known oxide, narrow them"
-                                : "give them in the setup, or calibrate on flakes of known "
-                                  "thickness (lamina calibrate)");
+                     oxide, narrow);
 }
 
 static void check_fit(lam_analysis *a, const lam_setup *s)

@@ -27,6 +27,8 @@ void lam_calib_set_init(lam_calib_set *s)
 
 void lam_calib_set_clear(lam_calib_set *s)
 {
+    if (!s)
+        return;
     for (size_t i = 0; i < s->images; i++)
         free(s->image[i].regions);
     memset(s, 0, sizeof *s);
@@ -82,6 +84,33 @@ static lam_status labelled_regions(lam_image *img, const lam_substrate *sub, con
                            MIN_LABEL_INTERIOR);
     lam_segmentation_free(seg);
     return st;
+}
+
+lam_status lam_calib_add_second_chip(lam_calib_set *set, const char *path, double oxide_nm,
+                                     const lam_setup *setup, lam_error *err)
+{
+    if (!(oxide_nm > 0))
+        return lam_error_set(err, LAM_EINVAL, "the second chip's oxide must be positive");
+    lam_load_options lo = lam_load_options_default();
+    if (!lam_setup_is_default(setup, "encoding"))
+        lo.transfer = setup->encoding;
+    lam_image *img = NULL;
+    lam_substrate sub;
+    lam_substrate_options so = lam_substrate_options_default();
+    lam_status st = lam_image_load(path, &lo, &img, err);
+    if (!st)
+        st = lam_substrate_estimate(img, &so, &sub, err);
+    lam_image_free(img);
+    if (st) {
+        lam_error_set_file(err, path);
+        return st;
+    }
+    lam_calib_colour_chip *c = &set->second_chip;
+    snprintf(c->path, sizeof c->path, "%s", path);
+    c->present = 1;
+    c->oxide_nm = oxide_nm;
+    memcpy(c->substrate_level, sub.level, sizeof sub.level);
+    return LAM_OK;
 }
 
 lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const uint8_t *labels,
@@ -287,6 +316,7 @@ static void write_profile(const lam_estimate *e, const lam_setup *start, lam_cal
     lam_setup *s = &res->setup;
     *s = *start;
     s->substrate_colour.oxide_nm = NAN; /* a start's colour belongs to its own fit */
+    s->substrate_colour.second_oxide_nm = NAN;
     const lam_nuisance *sh = e->shared;
     s->sheet.continuum = sh[LAM_NU_CONTINUUM].value;
     s->sheet.resonance = sh[LAM_NU_RESONANCE].value;
@@ -310,22 +340,75 @@ static void write_profile(const lam_estimate *e, const lam_setup *start, lam_cal
     s->sigma.log_width = wsd;
 }
 
+/* An image's oxide sd: given, or fitted with its index share. */
+static double oxide_sd(const lam_estimate *e, size_t j)
+{
+    const lam_nuisance *o = &e->image[j].oxide;
+    double index = LAM_OXIDE_INDEX_REL * o->value;
+    return o->fitted ? sqrt(o->sigma * o->sigma + index * index) : LAM_KNOWN_OXIDE_SD_NM;
+}
+
+/* The second chip given for the colour (lam_calib_add_second_chip). */
+static lam_status record_given_chip(const lam_calib_colour_chip *c, size_t channels,
+                                    lam_substrate_colour *sc, lam_error *err)
+{
+    double apart = fabs(c->oxide_nm - sc->oxide_nm);
+    if (!(apart >= LAM_COLOUR_SECOND_MIN_NM && apart <= LAM_COLOUR_SECOND_MAX_NM))
+        return lam_error_set(err, LAM_ERANGE,
+                             "%s: the second chip's oxide %.1f nm is %.1f nm from the first "
+                             "chip's %.1f nm; it measures the colour's change from %g to %g nm "
+                             "apart",
+                             c->path, c->oxide_nm, apart, sc->oxide_nm, LAM_COLOUR_SECOND_MIN_NM,
+                             LAM_COLOUR_SECOND_MAX_NM);
+    lam_status st = lam_substrate_colour_record(c->substrate_level, channels, sc->second_ln_level,
+                                                err);
+    if (st) {
+        lam_error_set_file(err, c->path);
+        return st;
+    }
+    sc->second_oxide_nm = c->oxide_nm;
+    sc->second_oxide_sd_nm = LAM_KNOWN_OXIDE_SD_NM;
+    return LAM_OK;
+}
+
+/* A second chip for the colour's change among the calibration's images:
+ * the one farthest from the first in oxide, within the gauge's range,
+ * whose oxide is well known. */
+static void record_second(const lam_estimate *e, const lam_calib_set *set, size_t first,
+                          lam_substrate_colour *sc)
+{
+    size_t pick = first;
+    double d0 = e->image[first].oxide.value, far = 0;
+    for (size_t j = 0; j < e->images; j++) {
+        double apart = fabs(e->image[j].oxide.value - d0);
+        if (j != first && oxide_sd(e, j) <= LAM_COLOUR_SECOND_SD_NM &&
+            apart >= LAM_COLOUR_SECOND_MIN_NM && apart <= LAM_COLOUR_SECOND_MAX_NM && apart > far)
+            pick = j, far = apart;
+    }
+    lam_error quiet;
+    if (pick == first || lam_substrate_colour_record(set->image[pick].substrate_level,
+                                                     e->channels, sc->second_ln_level, &quiet))
+        return;
+    sc->second_oxide_nm = e->image[pick].oxide.value;
+    sc->second_oxide_sd_nm = oxide_sd(e, pick);
+}
+
 /* The substrate's colour at the oxide of the image whose oxide is best
- * known (given, else the fit's with its index share). */
+ * known (given, else the fit's with its index share), and at a second
+ * chip's when the calibration has one. */
 static lam_status record_colour(const lam_estimate *e, const lam_calib_set *set,
                                 lam_calib_result *res, lam_error *err)
 {
     if (e->channels < 3)
-        return LAM_OK;
+        return set->second_chip.present
+                   ? lam_error_set(err, LAM_EINVAL, "%s: a second chip's colour needs three "
+                                   "channels", set->second_chip.path)
+                   : LAM_OK;
     size_t best = 0;
     double best_sd = INFINITY;
-    for (size_t j = 0; j < e->images; j++) {
-        const lam_nuisance *o = &e->image[j].oxide;
-        double index = LAM_OXIDE_INDEX_REL * o->value;
-        double sd = o->fitted ? sqrt(o->sigma * o->sigma + index * index) : LAM_KNOWN_OXIDE_SD_NM;
-        if (sd < best_sd)
-            best = j, best_sd = sd;
-    }
+    for (size_t j = 0; j < e->images; j++)
+        if (oxide_sd(e, j) < best_sd)
+            best = j, best_sd = oxide_sd(e, j);
     if (!isfinite(best_sd))
         return LAM_OK;
     lam_substrate_colour *sc = &res->setup.substrate_colour;
@@ -334,6 +417,11 @@ static lam_status record_colour(const lam_estimate *e, const lam_calib_set *set,
     if (!st) {
         sc->oxide_nm = e->image[best].oxide.value;
         sc->oxide_sd_nm = best_sd;
+        sc->second_oxide_nm = NAN;
+        if (set->second_chip.present)
+            st = record_given_chip(&set->second_chip, e->channels, sc, err);
+        else
+            record_second(e, set, best, sc);
     }
     return st;
 }

@@ -43,6 +43,8 @@ lam_status lam_calibrun_fit(const lam_setup *start, const lam_calibrun_options *
     lam_status st = LAM_OK;
     for (size_t i = 0; i < o->count && !st; i++)
         st = measure(set, o, i, start, err);
+    if (!st && o->second_chip)
+        st = lam_calib_add_second_chip(set, o->second_chip, o->second_oxide_nm, start, err);
     if (!st)
         st = lam_calibrate(start, set, o->known_oxide_nm, o->known_na, res, err);
     lam_calib_set_clear(set);
@@ -64,6 +66,11 @@ static cJSON *record(const lam_calib_result *r, const lam_calibrun_options *o)
     cJSON_AddNumberToObject(cal, "chi2", r->chi2);
     cJSON_AddNumberToObject(cal, "values", r->dof);
     cJSON_AddNumberToObject(cal, "model_floor_relative", r->floor_rel);
+    if (o->second_chip) {
+        cJSON *sc = cJSON_AddObjectToObject(cal, "second_chip");
+        cJSON_AddStringToObject(sc, "file", o->second_chip);
+        cJSON_AddNumberToObject(sc, "oxide_nm", o->second_oxide_nm);
+    }
     cJSON *nc = cJSON_AddArrayToObject(cal, "not_constrained");
     for (int k = 0; k < LAM_NU_COUNT; k++)
         if (r->shared[k].fitted && !r->shared[k].constrained)

@@ -1,6 +1,7 @@
 /* setup.c - the lamina-setup/1 profile: defaults, the strict JSON reader,
  * the setters the command line uses, and the writer. */
 #include "lamina/setup.h"
+#include "lamina/substrate_colour.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -53,6 +54,10 @@ static const lam_setup_number numbers[] = {
     {"substrate_colour.stability", 1e-4, 0.5, FIELD(substrate_colour.stability),
      "substrate_colour"},
     {"substrate_colour.lamp_tilt", 0, 1, FIELD(substrate_colour.lamp_tilt), "substrate_colour"},
+    {"substrate_colour.second.oxide_nm", 0, 2000, FIELD(substrate_colour.second_oxide_nm),
+     "substrate_colour"},
+    {"substrate_colour.second.oxide_sd_nm", 0, 100, FIELD(substrate_colour.second_oxide_sd_nm),
+     "substrate_colour"},
 };
 #define N_NUMBERS (sizeof numbers / sizeof numbers[0])
 
@@ -155,6 +160,8 @@ void lam_setup_default(lam_setup *s)
     s->substrate_colour.oxide_sd_nm = 0;
     s->substrate_colour.stability = 0.01;
     s->substrate_colour.lamp_tilt = 0.05;
+    s->substrate_colour.second_oxide_nm = NAN;
+    s->substrate_colour.second_oxide_sd_nm = 0;
     list_defaulted(s);
 }
 
@@ -563,12 +570,35 @@ static lam_status parse_channel_values(const cJSON *o, const char *object, const
     return LAM_OK;
 }
 
+/* "substrate_colour.second": the second chip's levels, and the check that
+ * it has its oxide, apart from the first's. */
+static lam_status parse_second_colour(const cJSON *o, lam_setup *s, lam_error *err)
+{
+    static const char *const keys[] = {"ln_level", NULL};
+    lam_substrate_colour *c = &s->substrate_colour;
+    lam_status st = check_keys(o, "substrate_colour.second", keys, err);
+    if (!st)
+        st = parse_channel_values(o, "substrate_colour.second", "ln_level", s->camera.channels,
+                                  -50, 50, c->second_ln_level, err);
+    if (!st && (!cJSON_GetObjectItemCaseSensitive(o, "ln_level") || !isfinite(c->second_oxide_nm)))
+        st = lam_error_set(err, LAM_EFORMAT,
+                           "key substrate_colour.second: needs oxide_nm and ln_level");
+    double apart = fabs(c->second_oxide_nm - c->oxide_nm);
+    if (!st && !(apart >= LAM_COLOUR_SECOND_MIN_NM && apart <= LAM_COLOUR_SECOND_MAX_NM))
+        st = lam_error_set(err, LAM_ERANGE,
+                           "key substrate_colour.second.oxide_nm: %g nm is %g nm from the first "
+                           "chip's %g nm; the colour's change is measured with %g to %g nm",
+                           c->second_oxide_nm, apart, c->oxide_nm, LAM_COLOUR_SECOND_MIN_NM,
+                           LAM_COLOUR_SECOND_MAX_NM);
+    return st;
+}
+
 /* "substrate_colour": its numbers are read with the table's; here the
  * per-channel ratios, which need the camera's channel count, and the
  * check that a recorded colour has its oxide. */
 static lam_status parse_substrate_colour(const cJSON *o, lam_setup *s, lam_error *err)
 {
-    static const char *const keys[] = {"ln_level", NULL};
+    static const char *const keys[] = {"ln_level", "second", NULL};
     lam_status st = check_keys(o, "substrate_colour", keys, err);
     if (!st)
         st = parse_channel_values(o, "substrate_colour", "ln_level", s->camera.channels, -50, 50,
@@ -576,6 +606,9 @@ static lam_status parse_substrate_colour(const cJSON *o, lam_setup *s, lam_error
     if (!st && (!cJSON_GetObjectItemCaseSensitive(o, "ln_level") ||
                 !isfinite(s->substrate_colour.oxide_nm)))
         st = lam_error_set(err, LAM_EFORMAT, "key substrate_colour: needs oxide_nm and ln_level");
+    const cJSON *second = cJSON_GetObjectItemCaseSensitive(o, "second");
+    if (!st && second)
+        st = parse_second_colour(second, s, err);
     return st;
 }
 
@@ -1004,14 +1037,20 @@ static void save_sample(cJSON *root, const lam_setup *s, const char *dir)
             cJSON_AddItemToObject(co, "film", material_json(&s->flake_film, dir));
     }
     cJSON_AddBoolToObject(co, "exciton", s->sheet.exciton);
-    int colour = isfinite(s->substrate_colour.oxide_nm);
+    const lam_substrate_colour *sc = &s->substrate_colour;
+    int colour = isfinite(sc->oxide_nm), second = colour && isfinite(sc->second_oxide_nm);
     for (size_t i = 0; i < N_NUMBERS; i++)
-        if (colour || strncmp(numbers[i].key, "substrate_colour.", 17))
+        if (strncmp(numbers[i].key, "substrate_colour.", 17) ||
+            (colour && (second || strncmp(numbers[i].key, "substrate_colour.second.", 24))))
             put_number(root, s, &numbers[i]);
     if (colour) {
         cJSON *o = cJSON_GetObjectItemCaseSensitive(root, "substrate_colour");
-        cJSON_AddItemToObject(o, "ln_level", cJSON_CreateDoubleArray(s->substrate_colour.ln_level,
-                                                                     (int)s->camera.channels));
+        cJSON_AddItemToObject(o, "ln_level",
+                              cJSON_CreateDoubleArray(sc->ln_level, (int)s->camera.channels));
+        if (second)
+            cJSON_AddItemToObject(cJSON_GetObjectItemCaseSensitive(o, "second"), "ln_level",
+                                  cJSON_CreateDoubleArray(sc->second_ln_level,
+                                                          (int)s->camera.channels));
     }
 }
 

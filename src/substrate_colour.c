@@ -64,8 +64,8 @@ lam_status lam_substrate_colour_record(const double *level, size_t channels, dou
 
 /* J[c][k]: d(ln R_c(d) - ln R_c(d0)) / d param k, central differences, for
  * the parameters with a variance. */
-static lam_status jacobian(lam_model *m, const lam_colour_point *p, double d, double d0,
-                           double J[NC][LAM_COLOUR_PARAMS], lam_error *err)
+static lam_status jacobian_at(lam_model *m, const lam_colour_point *p, double d, double d0,
+                              double J[NC][LAM_COLOUR_PARAMS], lam_error *err)
 {
     memset(J, 0, sizeof(double) * NC * LAM_COLOUR_PARAMS);
     lam_status st = LAM_OK;
@@ -88,6 +88,34 @@ static lam_status jacobian(lam_model *m, const lam_colour_point *p, double d, do
     return st;
 }
 
+/* The share of the way from the first chip to the second at oxide d
+ * (0 without a second chip): the measured correction's weight. */
+static double second_weight(const lam_substrate_colour *ref, double d)
+{
+    return isfinite(ref->second_oxide_nm) ? (d - ref->oxide_nm) / (ref->second_oxide_nm - ref->oxide_nm)
+                                          : 0;
+}
+
+/* The derivatives of the change the model must supply: with a second
+ * chip, its measured change replaces the model's linear part, and only
+ * the rest, (ln R(d) - ln R(d0)) - w (ln R(d1) - ln R(d0)), depends on
+ * the parameters. */
+static lam_status jacobian(lam_model *m, const lam_colour_point *p,
+                           const lam_substrate_colour *ref, double d,
+                           double J[NC][LAM_COLOUR_PARAMS], lam_error *err)
+{
+    lam_status st = jacobian_at(m, p, d, ref->oxide_nm, J, err);
+    double w = second_weight(ref, d), J1[NC][LAM_COLOUR_PARAMS];
+    if (st || w == 0)
+        return st;
+    if ((st = jacobian_at(m, p, ref->second_oxide_nm, ref->oxide_nm, J1, err)))
+        return st;
+    for (int c = 0; c < NC; c++)
+        for (int k = 0; k < LAM_COLOUR_PARAMS; k++)
+            J[c][k] -= w * J1[c][k];
+    return LAM_OK;
+}
+
 /* A lamp's colour temperature changes ln L_c by b / lambda_c (Wien:
  * ln B = const - hc / (lambda k T)); at the usual centroids of a colour
  * camera's R, G and B channels. */
@@ -95,13 +123,17 @@ static const double channel_nm[NC] = {600, 530, 460};
 
 /* The inverse covariance of the differences to the last channel,
  * u_a = r_a - r_2: the header's Cov(u) inverted; -1 when it is not
- * positive definite. */
+ * positive definite. w is the second chip's weight at the oxide read:
+ * each session's own drift is half the variance of a difference of two,
+ * and the reading r = e - w e1 - (1 - w) e0 has three sessions in it. */
 static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_point *p,
-                     const lam_substrate_colour *ref, const double *change, double prec[2][2])
+                     const lam_substrate_colour *ref, const double *change, double w,
+                     double prec[2][2])
 {
-    double S[NC][NC], s = ref->stability;
+    double sessions = sqrt(0.5 * (1 + w * w + (1 - w) * (1 - w)));
+    double S[NC][NC], s = ref->stability * sessions;
     /* the tilt's sd per unit 1/lambda, from its sd between the B and R channels */
-    double tilt = ref->lamp_tilt / (1 / channel_nm[2] - 1 / channel_nm[0]);
+    double tilt = sessions * ref->lamp_tilt / (1 / channel_nm[2] - 1 / channel_nm[0]);
     for (int c = 0; c < NC; c++)
         for (int e = 0; e < NC; e++) {
             double ch = p->change_share * change[c];
@@ -124,12 +156,20 @@ static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_poi
     return 0;
 }
 
-static double chi2_at(const double *delta, const double *lnR, const double *lnR0,
+/* The reference's curve: the model's ln R at the first chip, and with a
+ * second chip the measured change's excess over the model's there,
+ * spread linearly in the oxide. */
+typedef struct reference_curve {
+    double lnR0[NC];
+    double excess[NC]; /* (ln L1 - ln L0) - (ln R(d1) - ln R(d0)); zeros without */
+} reference_curve;
+
+static double chi2_at(const double *delta, const double *lnR, const reference_curve *rc, double w,
                       const double prec[2][2])
 {
     double r[NC], u[2];
     for (int c = 0; c < NC; c++)
-        r[c] = delta[c] - (lnR[c] - lnR0[c]);
+        r[c] = delta[c] - (lnR[c] - rc->lnR0[c]) - w * rc->excess[c];
     u[0] = r[0] - r[2], u[1] = r[1] - r[2];
     return u[0] * (prec[0][0] * u[0] + prec[0][1] * u[1]) +
            u[1] * (prec[1][0] * u[0] + prec[1][1] * u[1]);
@@ -161,42 +201,56 @@ static int other_minimum(const double *c, size_t n, size_t best, double lo,
     return 0;
 }
 
-/* chi2 over the grid with one precision; the index of its minimum. */
-static size_t scan(const double *delta, const double (*lnR)[NC], const double *lnR0, size_t n,
-                   const double prec[2][2], double *chi2)
+/* chi2 over the grid from lo with one precision; the index of its
+ * minimum. */
+static size_t scan(const double *delta, const double (*lnR)[NC], const reference_curve *rc,
+                   const lam_substrate_colour *ref, double lo, size_t n, const double prec[2][2],
+                   double *chi2)
 {
     size_t best = 0;
     for (size_t k = 0; k < n; k++) {
-        chi2[k] = chi2_at(delta, lnR[k], lnR0, prec);
+        double w = second_weight(ref, lo + (double)k * GRID_STEP_NM);
+        chi2[k] = chi2_at(delta, lnR[k], rc, w, prec);
         if (chi2[k] < chi2[best])
             best = k;
     }
     return best;
 }
 
-/* The gauge from the tabulated ln R over the grid. */
+/* The gauge from the tabulated ln R over the grid: a first scan with the
+ * sessions' drift alone, then one with the model's uncertainties where
+ * the first found its minimum. The part of the change the model supplies
+ * ('change') is the whole change from d0, or with a second chip its
+ * departure from the straight line through the two chips. */
 static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
                                   const lam_substrate_colour *ref, const double *delta,
-                                  const double (*lnR)[NC], const double *lnR0, size_t n,
-                                  double lo, double *chi2, lam_colour_gauge *g, lam_error *err)
+                                  const double (*lnR)[NC], const reference_curve *rc,
+                                  const double *lnR1, size_t n, double lo, double *chi2,
+                                  lam_colour_gauge *g, lam_error *err)
 {
     double J[NC][LAM_COLOUR_PARAMS] = {{0}}, prec[2][2], change[NC] = {0, 0, 0};
-    if (precision(J, p, ref, change, prec))
+    if (precision(J, p, ref, change, 0, prec))
         return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
-    size_t best = scan(delta, lnR, lnR0, n, prec, chi2);
-    lam_status st = jacobian(m, p, lo + (double)best * GRID_STEP_NM, ref->oxide_nm, J, err);
+    size_t best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
+    double d = lo + (double)best * GRID_STEP_NM, w = second_weight(ref, d);
+    lam_status st = jacobian(m, p, ref, d, J, err);
     if (st)
         return st;
     for (int c = 0; c < NC; c++)
-        change[c] = lnR[best][c] - lnR0[c];
-    if (!precision(J, p, ref, change, prec))
-        best = scan(delta, lnR, lnR0, n, prec, chi2);
+        change[c] = lnR[best][c] - rc->lnR0[c] - w * (lnR1[c] - rc->lnR0[c]);
+    if (!precision(J, p, ref, change, w, prec))
+        best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
     if (best == 0 || best + 1 >= n)
         return LAM_OK;
     refine(chi2, best, lo, g);
     g->found = isfinite(g->sigma_nm);
     g->ambiguous = other_minimum(chi2, n, best, lo, g);
-    g->sigma_nm = sqrt(g->sigma_nm * g->sigma_nm + ref->oxide_sd_nm * ref->oxide_sd_nm);
+    /* the chips' own oxides: the first's shifts the reading, the second's
+     * tilts the measured line by its share */
+    double w_read = second_weight(ref, g->oxide_nm);
+    double second = isfinite(ref->second_oxide_nm) ? w_read * ref->second_oxide_sd_nm : 0;
+    g->sigma_nm = sqrt(g->sigma_nm * g->sigma_nm + ref->oxide_sd_nm * ref->oxide_sd_nm +
+                       second * second);
     g->fits = g->chi2 <= LAM_COLOUR_CHI2_LIMIT;
     return LAM_OK;
 }
@@ -217,18 +271,26 @@ lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
     if (n < 3)
         return lam_error_set(err, LAM_EINVAL, "oxide range %g-%g nm is too short", lo_nm, hi_nm);
     double (*lnR)[NC] = malloc(n * sizeof *lnR), *chi2 = malloc(n * sizeof *chi2);
-    double lnR0[NC], delta[NC];
+    double delta[NC], lnR1[NC] = {0, 0, 0};
+    reference_curve rc;
+    memset(&rc, 0, sizeof rc);
     if (!lnR || !chi2)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the colour profile");
     for (int c = 0; c < NC; c++)
         delta[c] = log(level[c]) - ref->ln_level[c];
     if (!st)
-        st = log_reflectance(m, &p->point, ref->oxide_nm, NC, lnR0, err);
+        st = log_reflectance(m, &p->point, ref->oxide_nm, NC, rc.lnR0, err);
+    if (!st && isfinite(ref->second_oxide_nm) &&
+        !(st = log_reflectance(m, &p->point, ref->second_oxide_nm, NC, lnR1, err)))
+        for (int c = 0; c < NC; c++)
+            rc.excess[c] = (ref->second_ln_level[c] - ref->ln_level[c]) - (lnR1[c] - rc.lnR0[c]);
+    else
+        memcpy(lnR1, rc.lnR0, sizeof lnR1);
     for (size_t k = 0; k < n && !st; k++)
         st = log_reflectance(m, &p->point, lo_nm + (double)k * GRID_STEP_NM, NC, lnR[k], err);
     if (!st)
-        st = gauge_from_grid(m, p, ref, delta, (const double(*)[NC])lnR, lnR0, n, lo_nm, chi2, g,
-                             err);
+        st = gauge_from_grid(m, p, ref, delta, (const double(*)[NC])lnR, &rc, lnR1, n, lo_nm,
+                             chi2, g, err);
     free(lnR);
     free(chi2);
     return st;

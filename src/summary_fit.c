@@ -261,6 +261,10 @@ lam_status lam_summary_calibration(const lam_calib_result *r, const char *const 
         fprintf(f, "substrate colour recorded at %.1f +- %.1f nm of oxide: later images read "
                    "their oxide from it while the lamp and white balance stay as they are\n",
                 c->oxide_nm, c->oxide_sd_nm);
+    if (isfinite(c->oxide_nm) && isfinite(c->second_oxide_nm))
+        fprintf(f, "  and at %.1f +- %.1f nm (a second chip): it measures how the colour changes "
+                   "with the oxide\n",
+                c->second_oxide_nm, c->second_oxide_sd_nm);
     return lam__text_close(&t, text, err);
 }
 

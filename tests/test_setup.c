@@ -96,16 +96,18 @@ static void test_ranges(void)
     const lam_setup_number *num = lam_setup_numbers(&n);
     check_true(n >= 8, "the number table has the documented keys (%zu)", n);
     for (size_t i = 0; i < n; i++) {
-        char json[256], inner[160];
-        const char *dot = strchr(num[i].key, '.');
         const double bad[2] = {num[i].hi + 1 + fabs(num[i].hi), num[i].lo - 1 - fabs(num[i].lo)};
         for (int k = 0; k < 2; k++) {
-            if (dot)
-                snprintf(inner, sizeof inner, "\"%.*s\":{\"%s\":%g}", (int)(dot - num[i].key),
-                         num[i].key, dot + 1, bad[k]);
-            else
-                snprintf(inner, sizeof inner, "\"%s\":%g", num[i].key, bad[k]);
-            snprintf(json, sizeof json, HEAD "%s}", inner);
+            /* "a.b.c" as {"a":{"b":{"c":value}}} */
+            char json[320], open[200] = "", close[16] = "";
+            const char *part = num[i].key, *dot;
+            while ((dot = strchr(part, '.'))) {
+                size_t len = strlen(open);
+                snprintf(open + len, sizeof open - len, "\"%.*s\":{", (int)(dot - part), part);
+                strcat(close, "}");
+                part = dot + 1;
+            }
+            snprintf(json, sizeof json, HEAD "%s\"%s\":%g%s}", open, part, bad[k], close);
             refused(json, LAM_ERANGE, num[i].key, "is outside");
         }
     }
@@ -404,6 +406,48 @@ static void test_substrate_colour(void)
             "substrate_colour", "oxide_nm");
 }
 
+/* A second chip's colour: read, written back, refused when incomplete or
+ * too near or far from the first chip's oxide. */
+static void test_second_chip(void)
+{
+#define FIRST "\"substrate_colour\": {\"oxide_nm\": 291.5, \"ln_level\": [0.1, -0.4, 0.3], "
+    lam_setup s, b;
+    lam_error err;
+    const char *good = HEAD FIRST "\"second\": {\"oxide_nm\": 283.2, \"oxide_sd_nm\": 0.3, "
+                                  "\"ln_level\": [0.12, -0.41, 0.29]}}}";
+    check_int(parse(good, &s, &err), LAM_OK, "a second chip read (%s)", err.message);
+    check_abs(s.substrate_colour.second_oxide_nm, 283.2, 0, "its oxide");
+    check_abs(s.substrate_colour.second_ln_level[2], 0.29, 0, "its levels");
+    char path[512];
+    snprintf(path, sizeof path, "%s/second.json", check_tmpdir());
+    check_int(lam_setup_save(&s, path, NULL, &err), LAM_OK, "saved (%s)", err.message);
+    lam_setup_default(&b);
+    check_int(lam_setup_load(path, &b, &err), LAM_OK, "loads back (%s)", err.message);
+    check_true(b.substrate_colour.second_oxide_nm == 283.2 &&
+                   b.substrate_colour.second_oxide_sd_nm == 0.3 &&
+                   b.substrate_colour.second_ln_level[0] == 0.12,
+               "the second chip survives a round trip");
+    lam_setup_clear(&s);
+    lam_setup_clear(&b);
+    lam_setup_default(&s);
+    check_true(isnan(s.substrate_colour.second_oxide_nm), "none by default");
+    snprintf(path, sizeof path, "%s/first.json", check_tmpdir());
+    check_true(!parse(HEAD FIRST "\"oxide_sd_nm\": 0.3}}", &s, &err) &&
+                   !lam_setup_save(&s, path, NULL, &err),
+               "a profile with one chip saved");
+    char *text = check_slurp(path, NULL);
+    check_true(text && !strstr(text, "second"), "... writes no second chip");
+    free(text);
+    lam_setup_clear(&s);
+    refused(HEAD FIRST "\"second\": {\"oxide_nm\": 283.2}}}", LAM_EFORMAT,
+            "substrate_colour.second", "ln_level");
+    refused(HEAD FIRST "\"second\": {\"oxide_nm\": 292.5, \"ln_level\": [0, 0, 0]}}}",
+            LAM_ERANGE, "substrate_colour.second.oxide_nm", "2 to 30 nm");
+    refused(HEAD FIRST "\"second\": {\"oxide_nm\": 90, \"ln_level\": [0, 0, 0]}}}",
+            LAM_ERANGE, "substrate_colour.second.oxide_nm", "2 to 30 nm");
+#undef FIRST
+}
+
 static void test_stack_file(void)
 {
     char path[512];
@@ -513,6 +557,7 @@ int main(void)
     test_setters();
     test_round_trip();
     test_substrate_colour();
+    test_second_chip();
     test_profile_elsewhere();
     test_stack_file();
     test_build();

@@ -23,7 +23,11 @@
  * also records the bare substrate's colour at the oxide of the image whose
  * oxide is best known (given, else fitted; "substrate_colour",
  * lamina/substrate_colour.h): later analyses under the same lamp and white
- * balance read the oxide from it.
+ * balance read the oxide from it. With a camera whose curves are not
+ * given, the model cannot tell how that colour changes with the oxide;
+ * a second chip of measured oxide, 2-30 nm from the first, measures it
+ * (lam_calib_add_second_chip, or among the calibration's images the one
+ * of given oxide farthest from the first within that range).
  *
  * Ownership: lam_calib_set_init / lam_calib_set_clear; lam_calib_result
  * borrows the start setup's materials (do not clear both).
@@ -51,9 +55,20 @@ typedef struct lam_calib_image {
     double substrate_level[LAM_MAX_CHANNELS]; /* the bare substrate's linear level */
 } lam_calib_image;
 
+/* A second chip of measured oxide, photographed under the same lamp and
+ * white balance: only its bare substrate's colour is used (it measures
+ * how the colour changes with the oxide; lamina/substrate_colour.h). */
+typedef struct lam_calib_colour_chip {
+    char path[1024];
+    int present;
+    double oxide_nm;
+    double substrate_level[LAM_MAX_CHANNELS];
+} lam_calib_colour_chip;
+
 typedef struct lam_calib_set {
     size_t images;
     lam_calib_image image[LAM_CALIB_MAX_IMAGES];
+    lam_calib_colour_chip second_chip;
 } lam_calib_set;
 
 /* A fitted value, or the reason there is none. */
@@ -119,6 +134,14 @@ lam_status lam_calib_add_unlabelled(lam_calib_set *set, size_t image, const uint
 lam_status lam_calib_labels_from_json(const char *json_path, const char *image_path,
                                       const lam_setup *setup, size_t width, size_t height,
                                       uint8_t *map, lam_error *err);
+
+/* A second chip of measured oxide (ellipsometry) for the substrate's
+ * colour: the image's bare substrate level only; its flakes, if any, are
+ * not used. Its oxide must lie LAM_COLOUR_SECOND_MIN_NM to
+ * LAM_COLOUR_SECOND_MAX_NM from the first chip's (checked by
+ * lam_calibrate: LAM_ERANGE); the image is read as for the labels. */
+lam_status lam_calib_add_second_chip(lam_calib_set *set, const char *image_path, double oxide_nm,
+                                     const lam_setup *setup, lam_error *err);
 
 /* Add an image's segmented regions with latent layer counts (self
  * calibration): the analysis' own regions that may inform a fit. */

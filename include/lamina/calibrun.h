@@ -29,6 +29,9 @@ typedef struct lam_calibrun_options {
     const double *known_oxide_nm; /* per image, NAN: fitted; NULL: every oxide fitted */
     double known_na;              /* NAN: fitted */
     int labelled_only;            /* labelled images: leave their other regions out */
+    const char *second_chip;      /* NULL, or an image of a second chip for the colour
+                                   * (lam_calib_add_second_chip) ... */
+    double second_oxide_nm;       /* ... and its measured oxide */
 } lam_calibrun_options;
 
 /* Measure every image and fit (lam_calibrate) from the setup 'start'.

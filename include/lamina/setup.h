@@ -94,6 +94,13 @@ typedef struct lam_substrate_colour {
                                * beyond the exposure (white balance, camera), default 0.01 */
     double lamp_tilt;         /* sd of ln(B/R) from session to session from the lamp's
                                * colour temperature (a tilt in 1/wavelength), default 0.05 */
+    /* A second chip of known oxide under the same lamp and white balance
+     * ("substrate_colour.second"): it measures how the colour changes
+     * with the oxide, which with a camera of unknown curves the model
+     * cannot tell (lamina/substrate_colour.h). second_oxide_nm is NAN when
+     * none is recorded. */
+    double second_oxide_nm, second_oxide_sd_nm;
+    double second_ln_level[LAM_MAX_CHANNELS];
 } lam_substrate_colour;
 
 typedef struct lam_setup {

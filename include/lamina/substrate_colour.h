@@ -26,7 +26,20 @@
  * that may be wrong (lam_colour_point), all taken where the colour fits
  * best with s alone. chi2(d) = u^T Cov^-1 u is scanned over a range of d; the
  * gauge is its minimum, its sd from the curvature with the reference
- * oxide's sd added in quadrature. At the minimum chi2 has channels - 2
+ * oxide's sd added in quadrature.
+ *
+ * A second chip of known oxide d1 under the same lamp and white balance
+ * (ln L1) measures the change: the model's change is corrected by the
+ * straight line through the two chips,
+ *   r_c(d) = (ln L_c - ln L0_c) - (ln R_c(d) - ln R_c(d0)) - w(d) e_c,
+ *   e_c = (ln L1_c - ln L0_c) - (ln R_c(d1) - ln R_c(d0)), w(d) = (d - d0)/(d1 - d0),
+ * so the model supplies only the change's bend, to which k and J then
+ * apply; the drift terms grow by the two more sessions in the reading
+ * (s^2 (1 + w^2 + (1 - w)^2) / 2) and the second oxide's sd enters as
+ * w sd1. With a camera of unknown curves this is what lets the colour
+ * read chips other than the calibration's (docs/oxide.md).
+ *
+ * At the minimum chi2 has channels - 2
  * degrees of freedom; a large value means the colour fits no oxide: the
  * lamp, the white balance or the camera changed since the calibration.
  *
@@ -74,6 +87,15 @@ typedef struct lam_colour_point {
  * right within a few per cent (docs/oxide.md has the figures). */
 #define LAM_COLOUR_CHANGE_UNKNOWN 1.0
 #define LAM_COLOUR_CHANGE_GIVEN 0.05
+
+/* A second chip (substrate_colour.second in the setup) must lie this far
+ * from the first: closer, a few sessions' drift (0.01 each) swamps the
+ * change it measures (0.015-0.03 per nm); farther, the change is no
+ * longer near a straight line (the colour loops every ~190 nm). A
+ * calibration records it only when its oxide is known this well. */
+#define LAM_COLOUR_SECOND_MIN_NM 2.0
+#define LAM_COLOUR_SECOND_MAX_NM 30.0
+#define LAM_COLOUR_SECOND_SD_NM 1.0
 
 /* Record a substrate level as the reference colour: ln L0 with the mean
  * over channels removed. Needs 3 channels (LAM_EINVAL) and positive levels

@@ -12,11 +12,11 @@
 
 static struct {
     lam_setup_overrides so;
-    const char *labels[MAX_LABELS], *out;
+    const char *labels[MAX_LABELS], *out, *second_chip;
     size_t nl, nk;
     int self, labelled_only;
-    double known[LAM_CALIB_MAX_IMAGES], known_na;
-} A = {.out = "calibrated.json", .known_na = NAN};
+    double known[LAM_CALIB_MAX_IMAGES], known_na, second_oxide;
+} A = {.out = "calibrated.json", .known_na = NAN, .second_oxide = NAN};
 
 /* comma-separated, in image order; '-' leaves one free */
 static int parse_known_oxide(const char *command, const char *arg, void *target)
@@ -55,6 +55,12 @@ static const cli_option calibrate_options[] = {
     {"known-oxide", 0, CLI_CALL, NULL, 0, 0, parse_known_oxide, "D1,D2,...",
      "oxides measured elsewhere, in image order ('-' = fit);\nfix at least one when the camera "
      "is unknown: channel centres\nand oxide are nearly degenerate"},
+    {"second-chip", 0, CLI_TEXT, &A.second_chip, 0, 0, NULL, "IMAGE",
+     "a second chip of measured oxide (--second-oxide), same\nlamp and white balance: its bare "
+     "substrate measures how\nthe colour changes with oxide (needed to read other chips'\n"
+     "oxide from their colour when the camera's curves are unknown)"},
+    {"second-oxide", 0, CLI_NUMBER, &A.second_oxide, 1, 5000, NULL, "D",
+     "the second chip's oxide in nm, 2-30 nm from the first's"},
     {"known-na", 0, CLI_NUMBER, &A.known_na, 0, 0.95, NULL, "X",
      "the illumination NA, when known (it correlates with the centres)"},
     {"output", 'o', CLI_TEXT, &A.out, 0, 0, NULL, "FILE",
@@ -82,6 +88,8 @@ static int parse_args(int argc, char **argv)
     if (A.nk > ni)
         return cli_usage_error("calibrate", "--known-oxide has %zu values for %zu images", A.nk,
                                ni);
+    if (!A.second_chip != !isfinite(A.second_oxide))
+        return cli_usage_error("calibrate", "--second-chip and --second-oxide go together");
     return CLI_OK;
 }
 
@@ -93,7 +101,8 @@ static int run_calibrate(int argc, char **argv)
         return rc;
     const char *const *images = (const char *const *)argv + optind;
     lam_calibrun_options o = {images, (size_t)(argc - optind), A.self ? NULL : A.labels,
-                              A.nk ? A.known : NULL, A.known_na, A.labelled_only};
+                              A.nk ? A.known : NULL, A.known_na, A.labelled_only,
+                              A.second_chip, A.second_oxide};
     lam_calib_result res;
     memset(&res, 0, sizeof res);
     lam_error err;
@@ -126,6 +135,9 @@ const cli_command cli_calibrate = {
              "order; or LABELS.json (lamina-labels/1): polygons or points with layer\n"
              "counts, a point taking the whole segmented region around it.\n"
              "--self fits without labels, the layer counts left latent (marginalised):\n"
-             "use several images with several layer counts.\n\n",
+             "use several images with several layer counts.\n"
+             "With three channels the profile records the bare substrate's colour at the\n"
+             "best-known oxide, from which later analyses read their chips' oxide;\n"
+             "--second-chip adds a second chip's, which measures the colour's change.\n\n",
     .options = calibrate_options, .setup = &A.so, .min_args = 1, .max_args = -1,
     .args_error = "no image given"};

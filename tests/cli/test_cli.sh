@@ -180,6 +180,13 @@ grep -q '"latent_regions":[[:space:]]*2' "$T/cal2.json" && ok "the unlabelled fl
 expect_rc 0 "calibrate on the labelled regions alone" "$BIN" calibrate --quiet --labelled-only --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json -o "$T/cal3.json" samples/HT285-C11-tile07.png
 grep -q '"latent_regions":[[:space:]]*0' "$T/cal3.json" && ok "--labelled-only leaves them out" || bad "labelled only: $(grep -A3 '"method"' "$T/cal3.json")"
 expect_rc 2 "--labelled-only needs labels" "$BIN" calibrate --self --labelled-only samples/HT285-C11-tile07.png
+# a second chip of measured oxide (A07, 288 nm) records the colour's change
+expect_rc 0 "calibrate with a second chip" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json --second-chip samples/HT285-A07-tile12.png --second-oxide 288 -o "$T/cal4.json" samples/HT285-C11-tile07.png
+grep -q '"second":' "$T/cal4.json" && grep -q '"second_chip":' "$T/cal4.json" && ok "the profile records the second chip" || bad "second chip: $(grep -A4 '"substrate_colour"' "$T/cal4.json")"
+expect_rc 0 "a profile with a second chip analyses" "$BIN" analyze --quiet --setup "$T/cal4.json" --out "$T/cal4out" samples/HT285-N05-tile04.png
+expect_rc 1 "a second chip 191 nm away is refused" "$BIN" calibrate --quiet --known-na 0.5 --known-oxide 283 --setup samples/bench3-setup.json --labels samples/HT285-C11-tile07.labels.json --second-chip samples/HT090-B02-tile03.png --second-oxide 92 -o "$T/cal5.json" samples/HT285-C11-tile07.png
+grep -q "HT090-B02-tile03.png" "$T/err" && grep -q "2 to 30 nm" "$T/err" && [ ! -e "$T/cal5.json" ] && ok "... naming the file and the range, no profile written" || bad "far second chip: $(cat "$T/err")"
+expect_rc 2 "--second-chip needs --second-oxide" "$BIN" calibrate --self --second-chip samples/HT285-A07-tile12.png samples/HT285-C11-tile07.png
 printf '{"schema":"lamina-labels/1","labels":[{"layers":1,"point":[5000,5]}]}' > "$T/badlab.json"
 expect_rc 1 "a label point outside the image" "$BIN" calibrate --labels "$T/badlab.json" -o "$T/x.json" samples/HT285-C11-tile07.png
 grep -q "badlab.json" "$T/err" && grep -q "outside" "$T/err" && ok "label error names file and problem" || bad "label error: $(cat "$T/err")"

@@ -438,15 +438,44 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
     return rc ? -1 : 0;
 }
 
+/* The same with a second chip of measured oxide (tile 1 of sn) for the
+ * substrate's colour alone, as `calibrate --second-chip` takes it. */
+static int calibrate_two_chips(const scan *sn, const lam_setup *start, lam_calib_result *out)
+{
+    int obj = largest_monolayer(&sn->sc[0]);
+    const synth_scene *sc = &sn->sc[0];
+    uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
+    lam_calib_set *set = malloc(sizeof *set);
+    lam_error err;
+    lam_error_clear(&err);
+    if (set)
+        lam_calib_set_init(set);
+    int rc = !map || !set ||
+             lam_calib_measure_labels(set, sn->img[0], map, (size_t)sc->width,
+                                      (size_t)sc->height, start, &err) ||
+             lam_calib_add_unlabelled(set, 0, map, (size_t)sc->width, (size_t)sc->height, start,
+                                      &err) ||
+             lam_calib_add_second_chip(set, sn->img[1], sn->sc[1].phys.oxide_nm, start, &err) ||
+             lam_calibrate(start, set, &sc->phys.oxide_nm, NAN, out, &err);
+    if (rc)
+        fprintf(stderr, "robust: calibration on %s and %s: %s\n", sn->img[0], sn->img[1],
+                err.message);
+    if (set)
+        lam_calib_set_clear(set);
+    free(set);
+    free(map);
+    return rc ? -1 : 0;
+}
+
 /* The profile as a user gets it: written by lam_setup_save as `lamina
  * calibrate` does, in a folder of its own, and read back. */
 static int round_trip(const lam_setup *fitted, const char *dir, unsigned long long seed,
-                      lam_setup *out)
+                      const char *kind, lam_setup *out)
 {
     char sub[1024], path[1100];
     snprintf(sub, sizeof sub, "%s/profiles", dir);
     mkdir(sub, 0755);
-    snprintf(path, sizeof path, "%s/c%llu-%s.profile.json", sub, seed,
+    snprintf(path, sizeof path, "%s/%s%llu-%s.profile.json", sub, kind, seed,
              lam_setup_is_default(fitted, "camera") ? "uninformed" : "informed");
     lam_error err;
     lam_error_clear(&err);
@@ -481,7 +510,7 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
         if (!rc && (flags & ROBUST_CAL_NO_COLOUR))
             cal.setup.substrate_colour.oxide_nm = NAN;
         if (!rc)
-            rc = round_trip(&cal.setup, dir, seed, &profile);
+            rc = round_trip(&cal.setup, dir, seed, "c", &profile);
         for (int k = 1; k < tiles && !rc; k++)
             rc = analyse(sn.img[k], &s, NULL, &sn.sc[k], alone, log, NULL) ||
                  analyse(sn.img[k], &profile, NULL, &sn.sc[k], calibrated, log, NULL);
@@ -489,6 +518,36 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
         lam_setup_clear(&s);
     }
     lam_setup_clear(&profile);
+    scan_free(&sn);
+    return rc;
+}
+
+int robust_run_two_chips(const robust_case *c, unsigned long long seed, int tiles,
+                         const char *dir, robust_tally *one, robust_tally *two, FILE *log)
+{
+    if (tiles < 3 || tiles > LAM_POOL_MAX)
+        return -1;
+    scan sn;
+    int rc = render_scan(c, seed, tiles, dir, 'c', 1, &sn);
+    lam_setup s, p1, p2;
+    lam_calib_result c1, c2;
+    memset(&c1, 0, sizeof c1);
+    memset(&c2, 0, sizeof c2);
+    lam_setup_default(&p1);
+    lam_setup_default(&p2);
+    if (!rc && !(rc = load_setup(sn.setup, &s))) {
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, ROBUST_CAL_OXIDE, &c1) ||
+             calibrate_two_chips(&sn, &s, &c2) || round_trip(&c1.setup, dir, seed, "c", &p1) ||
+             round_trip(&c2.setup, dir, seed, "t", &p2);
+        for (int k = 2; k < tiles && !rc; k++)
+            rc = analyse(sn.img[k], &p1, NULL, &sn.sc[k], one, log, NULL) ||
+                 analyse(sn.img[k], &p2, NULL, &sn.sc[k], two, log, NULL);
+        lam_calib_result_clear(&c1);
+        lam_calib_result_clear(&c2);
+        lam_setup_clear(&s);
+    }
+    lam_setup_clear(&p1);
+    lam_setup_clear(&p2);
     scan_free(&sn);
     return rc;
 }

@@ -88,6 +88,16 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
                           const char *dir, robust_tally *alone, robust_tally *calibrated,
                           FILE *log);
 
+/* Two chips of measured oxide: as robust_run_calibrated with
+ * ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS, and tile 1 (another chip, its
+ * oxide given) adds its bare substrate's colour, as `calibrate
+ * --second-chip` does, so the profile records how the colour changes
+ * between the chips (lamina/substrate_colour.h). Tiles 2.. are analysed
+ * with the profile of tile 0 alone ('one') and with the second chip's
+ * colour ('two'). 3 <= tiles <= LAM_POOL_MAX. */
+int robust_run_two_chips(const robust_case *c, unsigned long long seed, int tiles,
+                         const char *dir, robust_tally *one, robust_tally *two, FILE *log);
+
 /* The analysis region covering most of object o's pixels (0: none), and
  * how many of them it covers. */
 uint32_t robust_covering_region(const synth_scene *sc, int o, const lam_analysis *a,

@@ -1,7 +1,7 @@
 /* robust_main.c - build/tests/robust: the accuracy matrix of issue 9 on
  * the independent generator's images (`make accuracy`).
  *   robust [--scenes N] [--batch T] [--seed S] [--only informed|uninformed]
- *          [--calibrate T [--no-colour] [--labelled-only]] [--log FILE]
+ *          [--calibrate T [--no-colour] [--labelled-only] [--two-chips]] [--log FILE]
  * One line per response x oxide x format x knowledge, then totals by
  * response, oxide and format. --batch T: each scene is a chip scan of T
  * tiles sharing one microscope, response and oxide, scored once with each
@@ -12,7 +12,9 @@
  * chip) scored with the setup as it was and as calibrated (the first
  * tile's other regions join the calibration with latent counts, as in
  * `calibrate --labels`; --labelled-only leaves them out); --no-colour
- * drops the calibration's substrate colour. */
+ * drops the calibration's substrate colour; --two-chips scores tiles 2..T-1
+ * calibrated on tile 0 alone ("one chip") and with tile 1, another chip,
+ * joining with its oxide given ("two chips"). */
 #include "robust.h"
 #include "../check.h"
 #include "lamina/error.h"
@@ -34,7 +36,7 @@ static const struct { synth_format fmt; int q; const char *name; } formats[] = {
 #define NF 4
 
 typedef struct options {
-    int scenes, batch, calibrate, only, no_colour, labelled_only;
+    int scenes, batch, calibrate, only, no_colour, labelled_only, two_chips;
     unsigned long long seed;
     FILE *log;
 } options;
@@ -51,6 +53,10 @@ static const char *label_of(const options *o, int inf, int mode)
                                       {"informed", "informed pooled"}};
     static const char *calib[2][2] = {{"uninformed", "uninformed calibrated"},
                                       {"informed", "informed calibrated"}};
+    static const char *chips[2][2] = {{"uninformed one chip", "uninformed two chips"},
+                                      {"informed one chip", "informed two chips"}};
+    if (o->calibrate && o->two_chips)
+        return chips[inf][mode];
     if (o->calibrate)
         return calib[inf][mode];
     return o->batch ? names[inf][mode] : names[inf][0];
@@ -76,7 +82,10 @@ static void run_cell(const options *o, int inf, int r, int x, int f, tallies *T)
     memset(t, 0, sizeof t);
     unsigned long long base = o->seed + (unsigned long long)(((r * NO + x) * NF + f) * 100);
     for (int k = 0; k < o->scenes; k++) {
-        if (o->calibrate)
+        if (o->calibrate && o->two_chips)
+            robust_run_two_chips(&c, base + (unsigned long long)k, o->calibrate,
+                                 "build/tests/robust-out", &t[0], &t[1], o->log);
+        else if (o->calibrate)
             robust_run_calibrated(&c, base + (unsigned long long)k, o->calibrate,
                                   ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS |
                                       (o->no_colour ? ROBUST_CAL_NO_COLOUR : 0) |
@@ -142,6 +151,8 @@ int main(int argc, char **argv)
             o.only = !strcmp(argv[++i], "informed");
         else if (!strcmp(argv[i], "--no-colour"))
             o.no_colour = 1;
+        else if (!strcmp(argv[i], "--two-chips"))
+            o.two_chips = 1;
         else if (!strcmp(argv[i], "--labelled-only"))
             o.labelled_only = 1;
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
