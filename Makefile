@@ -196,6 +196,8 @@ accuracy: $(BUILD)/tests/robust/robust
 	$(BUILD)/tests/robust/robust --scenes 1 --batch 6 --log $(BUILD)/accuracy-pooled-misses.log
 	$(BUILD)/tests/robust/robust --scenes 1 --calibrate 4 \
 	    --log $(BUILD)/accuracy-calibrated-misses.log
+	$(BUILD)/tests/robust/robust --scenes 1 --calibrate 6 --two-chips \
+	    --log $(BUILD)/accuracy-two-chips-misses.log
 
 # Outside reference: Debian's python3-meep (materials and a 1-D FDTD).
 $(BUILD)/tests/nk_dump: tests/reference/nk_dump.c $(LIB)
