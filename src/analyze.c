@@ -188,8 +188,19 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
 
 /* An estimate for this image with the options' search half-width and the
  * oxide prior's sd (NAN: the setup's), the pooled prior applied. */
+static lam_status new_estimate_at(run *r, double centre_nm, double half_nm, double oxide_sd,
+                                  lam_estimate **out, lam_error *err);
+
 static lam_status new_estimate(run *r, double half_nm, double oxide_sd, lam_estimate **out,
                                lam_error *err)
+{
+    return new_estimate_at(r, NAN, half_nm, oxide_sd, out, err);
+}
+
+/* An estimate whose oxide prior is centred on centre_nm (NAN: the
+ * nominal oxide). */
+static lam_status new_estimate_at(run *r, double centre_nm, double half_nm, double oxide_sd,
+                                  lam_estimate **out, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_estimate_options eo = r->opt->estimate;
@@ -202,6 +213,8 @@ static lam_status new_estimate(run *r, double half_nm, double oxide_sd, lam_esti
         return st;
     lam_shared_prior_apply(r->opt->shared_prior, *out);
     double nominal = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
+    if (isfinite(centre_nm) && a->oxide.nominal >= 0)
+        nominal = centre_nm;
     st = lam_estimate_add_image(*out, NULL, 0, nominal,
                                 isfinite(oxide_sd) ? oxide_sd : r->setup->sigma.oxide_nm, NULL, err);
     if (!st && (!r->opt->fit_oxide || a->oxide.nominal < 0))
@@ -401,38 +414,103 @@ static int needs_wide_search(const lam_analysis *a)
            off >= o->search_half_nm - 2 * o->search_step_nm;
 }
 
-static lam_status wide_search(run *r, int *taken, lam_error *err)
+/* A second fit of the image's regions with the oxide prior centred on
+ * centre_nm (NAN: nominal), sd prior_sd, searched +-half_nm. */
+static lam_status refit(run *r, double centre_nm, double half_nm, double prior_sd,
+                        lam_estimate **out, lam_error *err)
 {
     lam_analysis *a = r->a;
-    lam_estimate *w = NULL;
-    lam_status st = new_estimate(r, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
+    lam_status st = new_estimate_at(r, centre_nm, half_nm, prior_sd, out, err);
     if (!st) {
-        lam_est_image *im = &w->image[0];
-        im->oxide.lo = fmax(0, im->oxide.prior_mean - WIDE_HALF_NM);
-        im->oxide.hi = im->oxide.prior_mean + WIDE_HALF_NM;
+        lam_est_image *im = &(*out)->image[0];
+        im->oxide.lo = fmax(0, im->oxide.prior_mean - half_nm);
+        im->oxide.hi = im->oxide.prior_mean + half_nm;
         for (size_t c = 0; c < a->channels; c++)
-            lam_estimate_set_floor_prior(w, c, a->estimate->floor_abs_prior[c]);
-        st = lam_estimate_set_regions(w, 0, a->measured, a->count, err);
+            lam_estimate_set_floor_prior(*out, c, a->estimate->floor_abs_prior[c]);
+        st = lam_estimate_set_regions(*out, 0, a->measured, a->count, err);
     }
     if (!st)
-        st = lam_estimate_fit(w, r->model, r->model, err);
-    *taken = !st && w->image[0].data_loglik > a->estimate->image[0].data_loglik + WIDE_MARGIN;
+        st = lam_estimate_fit(*out, r->model, r->model, err);
+    return st;
+}
+
+/* A fit's evidence: its regions' log-likelihood, and with a recorded
+ * substrate colour the colour's at its oxide, so that fits at different
+ * oxides compete on all the image says. */
+static lam_status evidence(run *r, const lam_estimate *e, double *out, lam_error *err)
+{
+    double colour;
+    lam_status st = lam__colour_loglik(r->a, e, r->setup, r->model, &colour, err);
+    *out = e->image[0].data_loglik + colour;
+    return st;
+}
+
+/* Keep candidate c instead of the analysis' estimate when its evidence
+ * beats it by 'margin' (*taken). */
+static lam_status keep_if_better(run *r, lam_estimate *c, double margin, int *taken,
+                                 lam_error *err)
+{
+    lam_analysis *a = r->a;
+    double ec = 0, ea = 0;
+    lam_status st = evidence(r, c, &ec, err);
+    if (!st)
+        st = evidence(r, a->estimate, &ea, err);
+    *taken = !st && ec > ea + margin;
     if (*taken) {
         lam_estimate_free(a->estimate);
-        a->estimate = w;
+        a->estimate = c;
     } else {
-        lam_estimate_free(w);
+        lam_estimate_free(c);
     }
     return st;
+}
+
+/* The calibration's substrate colour, when this image's fits one oxide
+ * near the calibration's, says where the chip is: a fit started there
+ * (prior sd COLOUR_PRIOR_SD of the colour's sd, at least
+ * COLOUR_PRIOR_MIN_NM) replaces the nominal one when its evidence (the
+ * regions' and the colour's) is better. It then stands against
+ * the wide search like the nominal fit does. */
+#define COLOUR_PRIOR_SD 3.0
+#define COLOUR_PRIOR_MIN_NM 3.0
+
+static lam_status colour_start(run *r, int *taken, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    int found = 0;
+    double d, sd;
+    lam_estimate *c = NULL;
+    lam_status st = lam__colour_centre(a, r->setup, r->model, &found, &d, &sd, err);
+    *taken = 0;
+    if (st || !found)
+        return st;
+    double prior = fmax(COLOUR_PRIOR_SD * sd, COLOUR_PRIOR_MIN_NM);
+    st = refit(r, d, a->estimate->opt.search_half_nm, prior, &c, err);
+    if (st) {
+        lam_estimate_free(c);
+        return st;
+    }
+    return keep_if_better(r, c, 0, taken, err);
+}
+
+static lam_status wide_search(run *r, int *taken, lam_error *err)
+{
+    lam_estimate *w = NULL;
+    lam_status st = refit(r, NAN, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
+    if (st) {
+        lam_estimate_free(w);
+        return st;
+    }
+    return keep_if_better(r, w, WIDE_MARGIN, taken, err);
 }
 
 /* The joint fit of the shared parameters and the oxide. */
 static lam_status fit_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
-    int wide = 0;
+    int wide = 0, colour = 0;
     lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
-    if (!st && needs_wide_search(a))
+    if (!st && needs_wide_search(a) && !(st = colour_start(r, &colour, err)))
         st = wide_search(r, &wide, err);
     /* material hook (issue 14): a TMD's other published n,k, kept when they
      * explain the regions better (lamina/nksource.h) */
@@ -446,6 +524,12 @@ static lam_status fit_stage(run *r, lam_error *err)
     if (st)
         return st;
     oxide_summary(a, r->opt);
+    if (colour && !wide) {
+        size_t n = strlen(a->oxide.method);
+        snprintf(a->oxide.method + n, sizeof a->oxide.method - n,
+                 "; started at the substrate colour's oxide (the flakes left the nominal one's "
+                 "search)");
+    }
     if (wide)
         lam_warnings_add(&a->warnings, "oxide-off-nominal",
                          "the flakes do not fit the nominal %.1f nm of SiO2; searched %.0f nm "

@@ -105,6 +105,32 @@ static lam_status other_order(lam_analysis *a, const lam_setup *s, lam_model *mo
     return st;
 }
 
+lam_status lam__colour_loglik(const lam_analysis *a, const lam_estimate *e, const lam_setup *s,
+                              lam_model *model, double *loglik, lam_error *err)
+{
+    *loglik = 0;
+    if (!isfinite(s->substrate_colour.oxide_nm) || a->channels < 3 || !e->image[0].oxide.fitted)
+        return LAM_OK;
+    lam_colour_point p = colour_point(e, s);
+    return lam_substrate_colour_loglik_at(model, &p, &s->substrate_colour, a->substrate.level,
+                                          a->channels, e->image[0].oxide.value, loglik, err);
+}
+
+lam_status lam__colour_centre(const lam_analysis *a, const lam_setup *s, lam_model *model,
+                              int *found, double *oxide_nm, double *sigma_nm, lam_error *err)
+{
+    *found = 0;
+    double ref = s->substrate_colour.oxide_nm;
+    if (!isfinite(ref) || a->channels < 3 || !a->estimate->image[0].oxide.fitted)
+        return LAM_OK;
+    lam_colour_gauge g;
+    lam_status st = read_gauge(a, s, model, ref, VALID_NM, &g, err);
+    *found = !st && g.found && g.fits && !g.ambiguous;
+    *oxide_nm = g.oxide_nm;
+    *sigma_nm = g.sigma_nm;
+    return st;
+}
+
 lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *model,
                              lam_error *err)
 {

@@ -28,9 +28,26 @@ void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t thr
  * one that describes the flakes with the rest of the model (with a camera
  * known only roughly, pressing it towards the colour's made layer counts
  * worse on the accuracy harness); the reported oxide combines the two
- * (oxide_summary in analyze.c). 'model' is the fit's model. */
+ * (oxide_summary in analyze.c). Only when the flakes leave the nominal
+ * oxide's search does the colour choose where a fit starts (fit_stage). 'model' is the fit's model. */
 lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *model,
                              lam_error *err);
+
+/* The oxide the substrate's colour says within the gauge's range of the
+ * calibration's (lamina/substrate_colour.h), at the fit's current point:
+ * *found is 1 with *oxide_nm and *sigma_nm when the colour fits one
+ * oxide there unambiguously; 0 without a recorded colour or three
+ * channels. For the fit's choice of a start when the flakes leave the
+ * nominal oxide (fit_stage in analyze.c). */
+lam_status lam__colour_centre(const lam_analysis *a, const lam_setup *s, lam_model *model,
+                              int *found, double *oxide_nm, double *sigma_nm, lam_error *err);
+
+/* The log-likelihood of this image's substrate colour at the oxide of
+ * estimate e (its point; lam_substrate_colour_loglik_at), 0 without a
+ * recorded colour or three channels: the colour's evidence when fits of
+ * the flakes at different oxides compete. */
+lam_status lam__colour_loglik(const lam_analysis *a, const lam_estimate *e, const lam_setup *s,
+                              lam_model *model, double *loglik, lam_error *err);
 
 /* The warnings of a finished analysis (saturation, exposure, oxide,
  * encoding, setup defaults, fit), added to a->warnings. */

@@ -128,7 +128,7 @@ static const double channel_nm[NC] = {600, 530, 460};
  * and the reading r = e - w e1 - (1 - w) e0 has three sessions in it. */
 static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_point *p,
                      const lam_substrate_colour *ref, const double *change, double w,
-                     double prec[2][2])
+                     double prec[2][2], double *det_out)
 {
     double sessions = sqrt(0.5 * (1 + w * w + (1 - w) * (1 - w)));
     double S[NC][NC], s = ref->stability * sessions;
@@ -151,6 +151,8 @@ static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_poi
     double det = U[0][0] * U[1][1] - U[0][1] * U[1][0];
     if (!(det > 0))
         return -1;
+    if (det_out)
+        *det_out = det;
     prec[0][0] = U[1][1] / det, prec[1][1] = U[0][0] / det;
     prec[0][1] = prec[1][0] = -U[0][1] / det;
     return 0;
@@ -229,7 +231,7 @@ static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
                                   lam_colour_gauge *g, lam_error *err)
 {
     double J[NC][LAM_COLOUR_PARAMS] = {{0}}, prec[2][2], change[NC] = {0, 0, 0};
-    if (precision(J, p, ref, change, 0, prec))
+    if (precision(J, p, ref, change, 0, prec, NULL))
         return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
     size_t best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
     double d = lo + (double)best * GRID_STEP_NM, w = second_weight(ref, d);
@@ -238,7 +240,7 @@ static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
         return st;
     for (int c = 0; c < NC; c++)
         change[c] = lnR[best][c] - rc->lnR0[c] - w * (lnR1[c] - rc->lnR0[c]);
-    if (!precision(J, p, ref, change, w, prec))
+    if (!precision(J, p, ref, change, w, prec, NULL))
         best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
     if (best == 0 || best + 1 >= n)
         return LAM_OK;
@@ -252,6 +254,55 @@ static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
     g->sigma_nm = sqrt(g->sigma_nm * g->sigma_nm + ref->oxide_sd_nm * ref->oxide_sd_nm +
                        second * second);
     g->fits = g->chi2 <= LAM_COLOUR_CHI2_LIMIT;
+    return LAM_OK;
+}
+
+/* The reference's curve, the model's ln R at the second chip (at the
+ * first without one) and this image's colour change from the first,
+ * delta_c = ln L_c - ln L0_c. */
+static lam_status reference(lam_model *m, const lam_colour_point *p,
+                            const lam_substrate_colour *ref, const double *level,
+                            reference_curve *rc, double *lnR1, double *delta, lam_error *err)
+{
+    memset(rc, 0, sizeof *rc);
+    for (int c = 0; c < NC; c++)
+        delta[c] = log(level[c]) - ref->ln_level[c];
+    lam_status st = log_reflectance(m, &p->point, ref->oxide_nm, NC, rc->lnR0, err);
+    memcpy(lnR1, rc->lnR0, sizeof rc->lnR0);
+    if (!st && isfinite(ref->second_oxide_nm) &&
+        !(st = log_reflectance(m, &p->point, ref->second_oxide_nm, NC, lnR1, err)))
+        for (int c = 0; c < NC; c++)
+            rc->excess[c] = (ref->second_ln_level[c] - ref->ln_level[c]) - (lnR1[c] - rc->lnR0[c]);
+    return st;
+}
+
+lam_status lam_substrate_colour_loglik_at(lam_model *m, const lam_colour_point *p,
+                                          const lam_substrate_colour *ref, const double *level,
+                                          size_t channels, double d, double *loglik,
+                                          lam_error *err)
+{
+    *loglik = NAN;
+    if (!isfinite(ref->oxide_nm))
+        return lam_error_set(err, LAM_EINVAL, "the setup records no substrate colour");
+    lam_status st = check_levels(level, channels, err);
+    double delta[NC], lnR1[NC], lnR[NC], change[NC], prec[2][2], det;
+    double J[NC][LAM_COLOUR_PARAMS], w = second_weight(ref, d);
+    reference_curve rc;
+    if (!st)
+        st = reference(m, p, ref, level, &rc, lnR1, delta, err);
+    if (!st)
+        st = log_reflectance(m, &p->point, d, NC, lnR, err);
+    if (!st)
+        st = jacobian(m, p, ref, d, J, err);
+    if (st)
+        return st;
+    for (int c = 0; c < NC; c++)
+        change[c] = lnR[c] - rc.lnR0[c] - w * (lnR1[c] - rc.lnR0[c]);
+    if (precision(J, p, ref, change, w, prec, &det))
+        return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
+    /* the two differences' Gaussian density: its normalisation counts,
+     * since the covariance grows with the modelled change from d0 */
+    *loglik = -0.5 * chi2_at(delta, lnR, &rc, w, prec) - 0.5 * log(det) - log(2 * M_PI);
     return LAM_OK;
 }
 
@@ -271,21 +322,12 @@ lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
     if (n < 3)
         return lam_error_set(err, LAM_EINVAL, "oxide range %g-%g nm is too short", lo_nm, hi_nm);
     double (*lnR)[NC] = malloc(n * sizeof *lnR), *chi2 = malloc(n * sizeof *chi2);
-    double delta[NC], lnR1[NC] = {0, 0, 0};
+    double delta[NC], lnR1[NC];
     reference_curve rc;
-    memset(&rc, 0, sizeof rc);
     if (!lnR || !chi2)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the colour profile");
-    for (int c = 0; c < NC; c++)
-        delta[c] = log(level[c]) - ref->ln_level[c];
     if (!st)
-        st = log_reflectance(m, &p->point, ref->oxide_nm, NC, rc.lnR0, err);
-    if (!st && isfinite(ref->second_oxide_nm) &&
-        !(st = log_reflectance(m, &p->point, ref->second_oxide_nm, NC, lnR1, err)))
-        for (int c = 0; c < NC; c++)
-            rc.excess[c] = (ref->second_ln_level[c] - ref->ln_level[c]) - (lnR1[c] - rc.lnR0[c]);
-    else
-        memcpy(lnR1, rc.lnR0, sizeof lnR1);
+        st = reference(m, p, ref, level, &rc, lnR1, delta, err);
     for (size_t k = 0; k < n && !st; k++)
         st = log_reflectance(m, &p->point, lo_nm + (double)k * GRID_STEP_NM, NC, lnR[k], err);
     if (!st)

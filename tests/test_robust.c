@@ -334,6 +334,36 @@ static void test_colour_changed(const char *dir)
                cal.oxide_silent, cal.images, cal.colour_warned);
 }
 
+/* Scan 6700 of `make accuracy` with the camera given (lamina's default
+ * response drawn by the generator, 300 nm nominal, JPEG q85, other days
+ * and chips): tile 1 sits at 315.1 nm, beyond the nominal fit's search,
+ * and its flakes alone fit better one interference order down (117 nm),
+ * with the counts right. Its substrate colour says 315.3 +- 0.9 nm: a fit
+ * started there competes with the wide search on the flakes' and the
+ * colour's evidence together, and wins. */
+static void test_colour_order(const char *dir)
+{
+    robust_case c;
+    robust_case_init(&c);
+    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
+    c.cfg.nominal_oxide_nm = 300;
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 85;
+    c.informed = 1;
+    robust_tally alone, cal;
+    memset(&alone, 0, sizeof alone);
+    memset(&cal, 0, sizeof cal);
+    check_int(robust_run_calibrated(&c, 6700, 4, ROBUST_CAL_OXIDE | ROBUST_CAL_SESSIONS, dir,
+                                    &alone, &cal, NULL),
+              0, "scan 6700, camera given, calibrated");
+    robust_print(stdout, "test_robust: scan 6700 calibrated, camera given", &cal);
+    check_true(cal.oxide_n == 3 && cal.oxide_abs_max <= 3,
+               "every tile's oxide within 3 nm (worst %.2f nm; 117 nm read an order off before "
+               "the colour's start)", cal.oxide_abs_max);
+    check_true(cal.right == cal.flakes, "... its 1-3L counts right (%zu of %zu)", cal.right,
+               cal.flakes);
+}
+
 /* With the camera's curves unknown, one calibration chip cannot tell how
  * the substrate's colour changes with the oxide (the harness' dye cameras
  * change it by up to three times what lamina's default curves say), so
@@ -389,6 +419,7 @@ int main(void)
     test_calibrated_latent(dir);
     test_colour(dir);
     test_colour_changed(dir);
+    test_colour_order(dir);
     test_two_chips(dir);
     return check_summary();
 }

@@ -119,4 +119,16 @@ lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
                                       size_t channels, double lo_nm, double hi_nm,
                                       lam_colour_gauge *out, lam_error *err);
 
+/* The log-likelihood of this image's colour if the oxide were d: the
+ * Gaussian density of the two differences u with the header's Cov(u)
+ * taken at d, normalisation included (-chi2/2 - ln det(2 pi Cov)/2): the
+ * covariance grows with the modelled change from d0, and without its
+ * determinant a far oxide, where the model says little, would look as
+ * likely as the calibration's. For fits of the flakes at different oxides
+ * (another interference order) to compete on the colour too. */
+lam_status lam_substrate_colour_loglik_at(lam_model *m, const lam_colour_point *p,
+                                          const lam_substrate_colour *ref, const double *level,
+                                          size_t channels, double d, double *loglik,
+                                          lam_error *err);
+
 #endif
