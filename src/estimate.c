@@ -255,6 +255,7 @@ void lam_estimate_set_prior(lam_estimate *e, int k, double mean, double sd, cons
         return; /* no such channel */
     n->prior_mean = n->value = fmin(n->hi, fmax(n->lo, mean));
     n->prior_sd = sd > 0 ? sd : 0;
+    n->alone_sd = 0;
     n->fitted = sd > 0;
     n->source = source;
 }

@@ -495,6 +495,42 @@ lam_status lam__fit_refloor(fit_ctx *f, double *lp, lam_error *err)
 
 /* ---- Laplace covariance ---- */
 
+/* Each image's oxide sigma with the setup's own priors where pooled ones
+ * replaced them (lam_nuisance.alone_sd), at the same optimum, from the
+ * shared block's Schur complement 'schur': pooling pins the shared
+ * parameters, not the bias the model family leaves in them, so the
+ * analysis reports the oxide's uncertainty as one image alone has it
+ * (lam_est_image.oxide_sigma_alone). */
+static void alone_sigmas(fit_ctx *f, const lam__mat schur, size_t n)
+{
+    lam_estimate *e = f->e;
+    lam__mat s, l, inv;
+    int pooled = 0;
+    memcpy(s, schur, sizeof s);
+    for (size_t a = 0; a < n; a++) {
+        const lam_nuisance *p = &e->shared[e->free_index[a]];
+        if (p->alone_sd > p->prior_sd) {
+            s[a][a] += 1 / (p->alone_sd * p->alone_sd) - 1 / (p->prior_sd * p->prior_sd);
+            pooled = 1;
+        }
+    }
+    memset(inv, 0, sizeof inv);
+    if (pooled) {
+        lam__cholesky_ridged(s, n, l);
+        lam__cholesky_inverse(l, n, inv);
+    }
+    for (size_t j = 0; j < e->images; j++) {
+        lam_est_image *im = &e->image[j];
+        const double *asd = f->q.a_sd + j * n;
+        double ajj = f->q.a_dd[j], quad = 0;
+        for (size_t a = 0; pooled && a < n; a++)
+            for (size_t b = 0; b < n; b++)
+                quad += asd[a] * inv[a][b] * asd[b] / (ajj * ajj);
+        im->oxide_sigma_alone =
+            !pooled ? im->oxide.sigma : im->oxide.fitted ? sqrt(1 / ajj + quad) : 0;
+    }
+}
+
 static lam_status laplace(fit_ctx *f, lam_error *err)
 {
     lam_estimate *e = f->e;
@@ -542,6 +578,7 @@ static lam_status laplace(fit_ctx *f, lam_error *err)
         o->sigma = o->fitted ? sqrt(1 / ajj + quad) : 0;
         e->image[j].oxide_sigma_given_shared = o->fitted ? sqrt(1 / ajj) : 0;
     }
+    alone_sigmas(f, s, n);
     return LAM_OK;
 }
 

@@ -59,6 +59,8 @@ typedef struct lam_nuisance {
     const char *name;     /* "resonance", "illumination_na", "shift_r" ... */
     double value;         /* current / fitted */
     double prior_mean, prior_sd; /* Gaussian prior; sd 0 = fixed at prior_mean */
+    double alone_sd;      /* the setup's own prior sd where a pooled prior replaced it
+                           * (lamina/pool.h), else 0 */
     double lo, hi;        /* hard physical bounds */
     double sigma;         /* posterior sd after the fit (NAN before) */
     int fitted;           /* free in the fit */
@@ -94,6 +96,10 @@ typedef struct lam_est_image {
                                     * exactly (the part that averages down over images);
                                     * the rest, sqrt(sigma^2 - this^2), is common to every
                                     * image the shared parameters describe */
+    double oxide_sigma_alone;      /* the oxide's sigma with the setup's own priors of the
+                                    * shared parameters where pooled ones replaced them
+                                    * (alone_sd), at the same optimum: what one image alone
+                                    * knows; = oxide.sigma without a pooled prior */
     double log_posterior;          /* this image's share at the optimum */
     double data_loglik;            /* ... without its oxide prior: how well its regions fit */
     double unmodelled_share;       /* of its informing regions, the mean responsibility of
