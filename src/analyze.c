@@ -237,6 +237,7 @@ static lam_status model_stage(run *r, lam_error *err)
     a->oxide.estimate = a->oxide.nominal;
     a->prior_pooled = opt->shared_prior && opt->shared_prior->set;
     a->prior_images = a->prior_pooled ? opt->shared_prior->images : 0;
+    a->prior_two_readings = a->prior_pooled ? opt->shared_prior->two_readings : 0;
     lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
     if (!st)
         st = new_estimate(r, NAN, NAN, &a->estimate, err);

@@ -217,14 +217,32 @@ static void check_fit(lam_analysis *a, const lam_setup *s)
                          s->flake[0] ? s->flake : "graphene");
 }
 
+/* A pooled prior chose between two readings its images could not tell
+ * apart alone: the pool's choice is evidence, not proof (on the harness a
+ * ten-tile scan at 300 nm with an unknown camera was read N -> N+1 in
+ * every tile, pooled, with p = 1 and no other warning). */
+static void check_pooled_choice(lam_analysis *a)
+{
+    if (!a->prior_pooled || !a->prior_two_readings)
+        return;
+    lam_warnings_add(&a->warnings, "pooled-readings",
+                     "%zu of the %zu images pooled for the shared parameters fit two readings "
+                     "alone (layer counts about N or 2N); the pooled fit chose one and these "
+                     "layer counts rest on that choice; give the camera and NA, or calibrate on "
+                     "a flake of known thickness",
+                     a->prior_two_readings, a->prior_images);
+}
+
 static void check_modes(lam_analysis *a, const lam_setup *s)
 {
     const lam_estimate *e = a->estimate, *r = e->rival;
     lam_crystal_kind kind = lam_setup_crystal_kind(s);
     if (kind == LAM_CRYSTAL_CONTINUOUS) /* hBN: thicknesses from their own oxide profile */
         return;
-    if (!r || e->rival_weight < RIVAL_WORTH_SAYING || e->rival_weight > 1 - RIVAL_WORTH_SAYING)
+    if (!r || e->rival_weight < RIVAL_WORTH_SAYING || e->rival_weight > 1 - RIVAL_WORTH_SAYING) {
+        check_pooled_choice(a);
         return;
+    }
     double w = e->rival_weight, d1 = e->image[0].oxide.value, d2 = r->image[0].oxide.value;
     const char *remedy =
         fabs(d1 - d2) > 5 ? "the oxide is what tells them apart: measure it (ellipsometry) and "

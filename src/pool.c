@@ -11,6 +11,7 @@
 typedef struct pooled_image {
     lam_est_region *regions;
     size_t count, informing;
+    int two_readings;               /* its own analysis fit two readings */
     double nominal_oxide;
     double scatter[LAM_MAX_CHANNELS];
 } pooled_image;
@@ -75,6 +76,7 @@ lam_status lam_pool_add(lam_pool *p, const lam_analysis *a, lam_error *err)
     for (size_t i = 0; i < a->count; i++)
         im->informing += (size_t)(a->measured[i].use != 0);
     im->nominal_oxide = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
+    im->two_readings = lam_warnings_find(&a->warnings, "two-readings") != NULL;
     for (size_t c = 0; c < p->channels && c < LAM_MAX_CHANNELS; c++)
         im->scatter[c] = a->substrate.tile_scatter[c];
     p->kept++;
@@ -154,6 +156,10 @@ lam_status lam_pool_fit(lam_pool *p, lam_shared_prior *out, lam_error *err)
     }
     if (!st)
         lam_shared_prior_from(e, out);
+    for (size_t i = 0; i < p->kept && !st; i++) {
+        const pooled_image *im = &p->image[(p->first + i) % LAM_POOL_MAX];
+        out->two_readings += (size_t)(im->informing && im->two_readings);
+    }
     lam_estimate_free(e);
     if (!st && p->again)
         leave_one_out(out, lam_pool_informative(p));

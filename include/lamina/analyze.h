@@ -44,6 +44,8 @@ typedef struct lam_shared_prior {
     double mean[LAM_NU_COUNT], sd[LAM_NU_COUNT]; /* sd 0: fixed */
     double floor_rel;
     size_t images, regions;     /* what it was estimated from */
+    size_t two_readings;        /* of its images, those that alone fit two readings
+                                 * (warning "two-readings"; lamina/pool.h) */
 } lam_shared_prior;
 
 typedef struct lam_analysis_options {
@@ -120,6 +122,7 @@ typedef struct lam_analysis {
     char setup_hash[32];            /* of the setup and options, set by the caller */
     int prior_pooled;               /* the shared prior came from a pooled run */
     size_t prior_images;
+    size_t prior_two_readings;  /* of them, those that alone fit two readings */
     lam_warnings warnings;          /* what makes the answers doubtful (lamina/warnings.h) */
 } lam_analysis;
 
