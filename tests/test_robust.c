@@ -119,6 +119,34 @@ static void test_pooled(const char *dir)
                pooled.oxide_covered, pooled.oxide_n);
 }
 
+/* Scan 3300 of `make accuracy`'s ten-tile pooled scans (robust --batch
+ * 10): Weber's response, a dye camera the analysis is not told, 300 nm
+ * nominal, 16-bit linear PNG. Alone its tiles fit two readings (warned
+ * two-readings); pooled, the pool chose the wrong one and read 2L as 3L
+ * at p = 1. Whatever the pool chooses, no label given with p >= 0.95 may
+ * be wrong without a warning that doubts it (pooled-readings). */
+static void test_pooled_choice(const char *dir)
+{
+    robust_case c;
+    robust_case_init(&c);
+    c.cfg.response = SYNTH_RESP_WEBER;
+    c.cfg.nominal_oxide_nm = 300;
+    c.fmt = SYNTH_FMT_PNG16;
+    c.informed = 0;
+    robust_tally alone, pooled;
+    memset(&alone, 0, sizeof alone);
+    memset(&pooled, 0, sizeof pooled);
+    check_int(robust_run_batch(&c, 3300, 10, dir, &alone, &pooled, NULL), 0,
+              "scan 3300, ten tiles, alone and pooled");
+    robust_print(stdout, "test_robust: scan 3300 pooled", &pooled);
+    size_t silent_wrong = (pooled.confident - pooled.warned) -
+                          (pooled.confident_right - pooled.warned_right);
+    check_true(pooled.right < pooled.flakes,
+               "the scan is one the pool misreads (%zu of %zu right): the check below bites",
+               pooled.right, pooled.flakes);
+    check_int((long long)silent_wrong, 0, "no confident wrong label without a doubting warning");
+}
+
 /* Isolated monolayers Pauli-blocked at 0, 0.3, 0.9 and 1.05 eV (the
  * generator blocks the interband part of its response below 2|E_F|; at
  * 0.9 eV and above this removes absorption in the red), microscope given:
@@ -413,6 +441,7 @@ int main(void)
     mkdir(dir, 0755);
     test_single(dir);
     test_pooled(dir);
+    test_pooled_choice(dir);
     test_doping(dir);
     test_mono(dir);
     test_calibrated(dir);
