@@ -190,21 +190,12 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
     memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
 }
 
-/* An estimate for this image with the options' search half-width and the
- * oxide prior's sd (NAN: the setup's), the pooled prior applied. */
-static lam_status new_estimate_at(run *r, double centre_nm, double half_nm, double oxide_sd,
-                                  lam_estimate **out, lam_error *err);
-
-static lam_status new_estimate(run *r, double half_nm, double oxide_sd, lam_estimate **out,
-                               lam_error *err)
-{
-    return new_estimate_at(r, NAN, half_nm, oxide_sd, out, err);
-}
-
-/* An estimate whose oxide prior is centred on centre_nm (NAN: the
- * nominal oxide). */
-static lam_status new_estimate_at(run *r, double centre_nm, double half_nm, double oxide_sd,
-                                  lam_estimate **out, lam_error *err)
+/* An estimate for this image with the oxide prior centred on centre_nm
+ * (NAN: the nominal oxide), the search half-width half_nm (NAN: the
+ * options') and the prior's sd oxide_sd (NAN: the setup's), the pooled
+ * prior applied. */
+static lam_status new_estimate(run *r, double centre_nm, double half_nm, double oxide_sd,
+                               lam_estimate **out, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_estimate_options eo = r->opt->estimate;
@@ -216,10 +207,8 @@ static lam_status new_estimate_at(run *r, double centre_nm, double half_nm, doub
     if (st)
         return st;
     lam_shared_prior_apply(r->opt->shared_prior, *out);
-    double nominal = a->oxide.nominal >= 0 ? a->oxide.nominal : 0;
-    if (isfinite(centre_nm) && a->oxide.nominal >= 0)
-        nominal = centre_nm;
-    st = lam_estimate_add_image(*out, NULL, 0, nominal,
+    double centre = a->oxide.nominal < 0 ? 0 : isfinite(centre_nm) ? centre_nm : a->oxide.nominal;
+    st = lam_estimate_add_image(*out, NULL, 0, centre,
                                 isfinite(oxide_sd) ? oxide_sd : r->setup->sigma.oxide_nm, NULL, err);
     if (!st && (!r->opt->fit_oxide || a->oxide.nominal < 0))
         (*out)->image[0].oxide.fitted = 0;
@@ -240,7 +229,7 @@ static lam_status model_stage(run *r, lam_error *err)
     a->prior_two_readings = a->prior_pooled ? opt->shared_prior->two_readings : 0;
     lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
     if (!st)
-        st = new_estimate(r, NAN, NAN, &a->estimate, err);
+        st = new_estimate(r, NAN, NAN, NAN, &a->estimate, err);
     /* the ladder at the prior's centre, for the substrate and the first pass */
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
@@ -426,12 +415,14 @@ static int needs_wide_search(const lam_analysis *a)
 }
 
 /* A second fit of the image's regions with the oxide prior centred on
- * centre_nm (NAN: nominal), sd prior_sd, searched +-half_nm. */
+ * centre_nm (NAN: nominal), sd prior_sd, searched +-half_nm; *out is
+ * NULL on error. */
 static lam_status refit(run *r, double centre_nm, double half_nm, double prior_sd,
                         lam_estimate **out, lam_error *err)
 {
     lam_analysis *a = r->a;
-    lam_status st = new_estimate_at(r, centre_nm, half_nm, prior_sd, out, err);
+    *out = NULL;
+    lam_status st = new_estimate(r, centre_nm, half_nm, prior_sd, out, err);
     if (!st) {
         lam_est_image *im = &(*out)->image[0];
         im->oxide.lo = fmax(0, im->oxide.prior_mean - half_nm);
@@ -442,6 +433,10 @@ static lam_status refit(run *r, double centre_nm, double half_nm, double prior_s
     }
     if (!st)
         st = lam_estimate_fit(*out, r->model, r->model, err);
+    if (st) {
+        lam_estimate_free(*out);
+        *out = NULL;
+    }
     return st;
 }
 
@@ -497,22 +492,14 @@ static lam_status colour_start(run *r, int *taken, lam_error *err)
         return st;
     double prior = fmax(COLOUR_PRIOR_SD * sd, COLOUR_PRIOR_MIN_NM);
     st = refit(r, d, a->estimate->opt.search_half_nm, prior, &c, err);
-    if (st) {
-        lam_estimate_free(c);
-        return st;
-    }
-    return keep_if_better(r, c, 0, taken, err);
+    return st ? st : keep_if_better(r, c, 0, taken, err);
 }
 
 static lam_status wide_search(run *r, int *taken, lam_error *err)
 {
     lam_estimate *w = NULL;
     lam_status st = refit(r, NAN, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
-    if (st) {
-        lam_estimate_free(w);
-        return st;
-    }
-    return keep_if_better(r, w, WIDE_MARGIN, taken, err);
+    return st ? st : keep_if_better(r, w, WIDE_MARGIN, taken, err);
 }
 
 /* The joint fit of the shared parameters and the oxide. */

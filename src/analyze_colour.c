@@ -105,11 +105,19 @@ static lam_status other_order(lam_analysis *a, const lam_setup *s, lam_model *mo
     return st;
 }
 
+/* Whether the setup records a colour this image can be read against:
+ * three channels and a fitted oxide in e. */
+static int colour_applies(const lam_analysis *a, const lam_estimate *e, const lam_setup *s)
+{
+    return isfinite(s->substrate_colour.oxide_nm) && a->channels >= 3 &&
+           e->image[0].oxide.fitted;
+}
+
 lam_status lam__colour_loglik(const lam_analysis *a, const lam_estimate *e, const lam_setup *s,
                               lam_model *model, double *loglik, lam_error *err)
 {
     *loglik = 0;
-    if (!isfinite(s->substrate_colour.oxide_nm) || a->channels < 3 || !e->image[0].oxide.fitted)
+    if (!colour_applies(a, e, s))
         return LAM_OK;
     lam_colour_point p = colour_point(e, s);
     return lam_substrate_colour_loglik_at(model, &p, &s->substrate_colour, a->substrate.level,
@@ -120,11 +128,10 @@ lam_status lam__colour_centre(const lam_analysis *a, const lam_setup *s, lam_mod
                               int *found, double *oxide_nm, double *sigma_nm, lam_error *err)
 {
     *found = 0;
-    double ref = s->substrate_colour.oxide_nm;
-    if (!isfinite(ref) || a->channels < 3 || !a->estimate->image[0].oxide.fitted)
+    if (!colour_applies(a, a->estimate, s))
         return LAM_OK;
     lam_colour_gauge g;
-    lam_status st = read_gauge(a, s, model, ref, VALID_NM, &g, err);
+    lam_status st = read_gauge(a, s, model, s->substrate_colour.oxide_nm, VALID_NM, &g, err);
     *found = !st && g.found && g.fits && !g.ambiguous;
     *oxide_nm = g.oxide_nm;
     *sigma_nm = g.sigma_nm;
@@ -138,8 +145,7 @@ lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *mod
     *c = (lam_colour_oxide){0, 0, NAN, NAN, NAN, NAN, NAN, ""};
     const lam_estimate *e = a->estimate;
     const lam_nuisance *o = &e->image[0].oxide;
-    if (!isfinite(s->substrate_colour.oxide_nm) || a->channels < 3 || !o->fitted ||
-        !e->image[0].regions_used)
+    if (!colour_applies(a, e, s) || !e->image[0].regions_used)
         return LAM_OK;
     lam_colour_gauge g;
     double d_f = o->value, s_f = o->sigma, half = fmax(RANGE_SD * s_f, RANGE_MIN_NM);

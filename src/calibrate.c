@@ -86,20 +86,34 @@ static lam_status labelled_regions(lam_image *img, const lam_substrate *sub, con
     return st;
 }
 
+/* Load an image in the setup's encoding and estimate its bare substrate
+ * (*img NULL on error). */
+static lam_status load_with_substrate(const char *path, const lam_setup *setup, lam_image **img,
+                                      lam_substrate *sub, lam_error *err)
+{
+    lam_load_options lo = lam_load_options_default();
+    if (!lam_setup_is_default(setup, "encoding"))
+        lo.transfer = setup->encoding;
+    lam_substrate_options so = lam_substrate_options_default();
+    *img = NULL;
+    lam_status st = lam_image_load(path, &lo, img, err);
+    if (!st)
+        st = lam_substrate_estimate(*img, &so, sub, err);
+    if (st) {
+        lam_image_free(*img);
+        *img = NULL;
+    }
+    return st;
+}
+
 lam_status lam_calib_add_second_chip(lam_calib_set *set, const char *path, double oxide_nm,
                                      const lam_setup *setup, lam_error *err)
 {
     if (!(oxide_nm > 0))
         return lam_error_set(err, LAM_EINVAL, "the second chip's oxide must be positive");
-    lam_load_options lo = lam_load_options_default();
-    if (!lam_setup_is_default(setup, "encoding"))
-        lo.transfer = setup->encoding;
     lam_image *img = NULL;
     lam_substrate sub;
-    lam_substrate_options so = lam_substrate_options_default();
-    lam_status st = lam_image_load(path, &lo, &img, err);
-    if (!st)
-        st = lam_substrate_estimate(img, &so, &sub, err);
+    lam_status st = load_with_substrate(path, setup, &img, &sub, err);
     lam_image_free(img);
     if (st) {
         lam_error_set_file(err, path);
@@ -119,17 +133,13 @@ lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const 
     lam_calib_image *im = new_image(set, path, err);
     if (!im)
         return LAM_ETOOBIG;
-    lam_load_options lo = lam_load_options_default();
-    if (!lam_setup_is_default(setup, "encoding"))
-        lo.transfer = setup->encoding;
     lam_image *img = NULL;
     lam_substrate sub;
-    lam_status st = lam_image_load(path, &lo, &img, err);
+    lam_status st = load_with_substrate(path, setup, &img, &sub, err);
     if (!st && (img->width != w || img->height != h))
         st = lam_error_set(err, LAM_ESIZE, "labels are %zux%zu, the image %zux%zu", w, h,
                            img->width, img->height);
-    lam_substrate_options so = lam_substrate_options_default();
-    if (!st && !(st = lam_substrate_estimate(img, &so, &sub, err))) {
+    if (!st) {
         memcpy(im->substrate_level, sub.level, sizeof sub.level);
         lam_contrast_in_place(img, &sub, 1);
         st = labelled_regions(img, &sub, labels, setup->camera.channels, im, err);

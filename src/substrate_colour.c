@@ -48,6 +48,15 @@ static lam_status check_levels(const double *level, size_t channels, lam_error *
     return LAM_OK;
 }
 
+/* A recorded colour, and levels it can be compared with. */
+static lam_status check_reading(const lam_substrate_colour *ref, const double *level,
+                                size_t channels, lam_error *err)
+{
+    if (!isfinite(ref->oxide_nm))
+        return lam_error_set(err, LAM_EINVAL, "the setup records no substrate colour");
+    return check_levels(level, channels, err);
+}
+
 lam_status lam_substrate_colour_record(const double *level, size_t channels, double *ln_level,
                                        lam_error *err)
 {
@@ -163,6 +172,7 @@ static int precision(const double J[NC][LAM_COLOUR_PARAMS], const lam_colour_poi
  * spread linearly in the oxide. */
 typedef struct reference_curve {
     double lnR0[NC];
+    double lnR1[NC];   /* the model's ln R at the second chip (= lnR0 without one) */
     double excess[NC]; /* (ln L1 - ln L0) - (ln R(d1) - ln R(d0)); zeros without */
 } reference_curve;
 
@@ -219,28 +229,46 @@ static size_t scan(const double *delta, const double (*lnR)[NC], const reference
     return best;
 }
 
+/* The precision of the colour residual at oxide d (ln R there: lnR_d)
+ * with the model's uncertainties: the Jacobian and the share of the
+ * change the model supplies, the whole change from d0 or, with a second
+ * chip, its departure from the straight line through the two chips.
+ * *definite is 0 when the covariance is not positive definite; errors are
+ * the model's. */
+static lam_status precision_at(lam_model *m, const lam_colour_point *p,
+                               const lam_substrate_colour *ref, const reference_curve *rc,
+                               double d, const double *lnR_d, double prec[2][2], double *det,
+                               int *definite, lam_error *err)
+{
+    double J[NC][LAM_COLOUR_PARAMS], change[NC], w = second_weight(ref, d);
+    lam_status st = jacobian(m, p, ref, d, J, err);
+    *definite = 0;
+    if (st)
+        return st;
+    for (int c = 0; c < NC; c++)
+        change[c] = lnR_d[c] - rc->lnR0[c] - w * (rc->lnR1[c] - rc->lnR0[c]);
+    *definite = !precision(J, p, ref, change, w, prec, det);
+    return LAM_OK;
+}
+
 /* The gauge from the tabulated ln R over the grid: a first scan with the
  * sessions' drift alone, then one with the model's uncertainties where
- * the first found its minimum. The part of the change the model supplies
- * ('change') is the whole change from d0, or with a second chip its
- * departure from the straight line through the two chips. */
+ * the first found its minimum (precision_at). */
 static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
                                   const lam_substrate_colour *ref, const double *delta,
-                                  const double (*lnR)[NC], const reference_curve *rc,
-                                  const double *lnR1, size_t n, double lo, double *chi2,
-                                  lam_colour_gauge *g, lam_error *err)
+                                  const double (*lnR)[NC], const reference_curve *rc, size_t n,
+                                  double lo, double *chi2, lam_colour_gauge *g, lam_error *err)
 {
     double J[NC][LAM_COLOUR_PARAMS] = {{0}}, prec[2][2], change[NC] = {0, 0, 0};
     if (precision(J, p, ref, change, 0, prec, NULL))
         return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
     size_t best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
-    double d = lo + (double)best * GRID_STEP_NM, w = second_weight(ref, d);
-    lam_status st = jacobian(m, p, ref, d, J, err);
+    int definite;
+    lam_status st = precision_at(m, p, ref, rc, lo + (double)best * GRID_STEP_NM, lnR[best],
+                                 prec, NULL, &definite, err);
     if (st)
         return st;
-    for (int c = 0; c < NC; c++)
-        change[c] = lnR[best][c] - rc->lnR0[c] - w * (lnR1[c] - rc->lnR0[c]);
-    if (!precision(J, p, ref, change, w, prec, NULL))
+    if (definite)
         best = scan(delta, lnR, rc, ref, lo, n, prec, chi2);
     if (best == 0 || best + 1 >= n)
         return LAM_OK;
@@ -257,22 +285,22 @@ static lam_status gauge_from_grid(lam_model *m, const lam_colour_point *p,
     return LAM_OK;
 }
 
-/* The reference's curve, the model's ln R at the second chip (at the
- * first without one) and this image's colour change from the first,
- * delta_c = ln L_c - ln L0_c. */
+/* The reference's curve and this image's colour change from the first
+ * chip, delta_c = ln L_c - ln L0_c. */
 static lam_status reference(lam_model *m, const lam_colour_point *p,
                             const lam_substrate_colour *ref, const double *level,
-                            reference_curve *rc, double *lnR1, double *delta, lam_error *err)
+                            reference_curve *rc, double *delta, lam_error *err)
 {
     memset(rc, 0, sizeof *rc);
     for (int c = 0; c < NC; c++)
         delta[c] = log(level[c]) - ref->ln_level[c];
     lam_status st = log_reflectance(m, &p->point, ref->oxide_nm, NC, rc->lnR0, err);
-    memcpy(lnR1, rc->lnR0, sizeof rc->lnR0);
+    memcpy(rc->lnR1, rc->lnR0, sizeof rc->lnR0);
     if (!st && isfinite(ref->second_oxide_nm) &&
-        !(st = log_reflectance(m, &p->point, ref->second_oxide_nm, NC, lnR1, err)))
+        !(st = log_reflectance(m, &p->point, ref->second_oxide_nm, NC, rc->lnR1, err)))
         for (int c = 0; c < NC; c++)
-            rc->excess[c] = (ref->second_ln_level[c] - ref->ln_level[c]) - (lnR1[c] - rc->lnR0[c]);
+            rc->excess[c] =
+                (ref->second_ln_level[c] - ref->ln_level[c]) - (rc->lnR1[c] - rc->lnR0[c]);
     return st;
 }
 
@@ -282,27 +310,24 @@ lam_status lam_substrate_colour_loglik_at(lam_model *m, const lam_colour_point *
                                           lam_error *err)
 {
     *loglik = NAN;
-    if (!isfinite(ref->oxide_nm))
-        return lam_error_set(err, LAM_EINVAL, "the setup records no substrate colour");
-    lam_status st = check_levels(level, channels, err);
-    double delta[NC], lnR1[NC], lnR[NC], change[NC], prec[2][2], det;
-    double J[NC][LAM_COLOUR_PARAMS], w = second_weight(ref, d);
+    lam_status st = check_reading(ref, level, channels, err);
+    double delta[NC], lnR[NC], prec[2][2], det;
+    int definite = 0;
     reference_curve rc;
     if (!st)
-        st = reference(m, p, ref, level, &rc, lnR1, delta, err);
+        st = reference(m, p, ref, level, &rc, delta, err);
     if (!st)
         st = log_reflectance(m, &p->point, d, NC, lnR, err);
     if (!st)
-        st = jacobian(m, p, ref, d, J, err);
+        st = precision_at(m, p, ref, &rc, d, lnR, prec, &det, &definite, err);
     if (st)
         return st;
-    for (int c = 0; c < NC; c++)
-        change[c] = lnR[c] - rc.lnR0[c] - w * (lnR1[c] - rc.lnR0[c]);
-    if (precision(J, p, ref, change, w, prec, &det))
+    if (!definite)
         return lam_error_set(err, LAM_EINVAL, "substrate colour stability must be positive");
     /* the two differences' Gaussian density: its normalisation counts,
      * since the covariance grows with the modelled change from d0 */
-    *loglik = -0.5 * chi2_at(delta, lnR, &rc, w, prec) - 0.5 * log(det) - log(2 * M_PI);
+    *loglik = -0.5 * chi2_at(delta, lnR, &rc, second_weight(ref, d), prec) - 0.5 * log(det) -
+              log(2 * M_PI);
     return LAM_OK;
 }
 
@@ -312,9 +337,7 @@ lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
                                       lam_colour_gauge *g, lam_error *err)
 {
     *g = (lam_colour_gauge){0, 0, NAN, NAN, NAN, 0};
-    if (!isfinite(ref->oxide_nm))
-        return lam_error_set(err, LAM_EINVAL, "the setup records no substrate colour");
-    lam_status st = check_levels(level, channels, err);
+    lam_status st = check_reading(ref, level, channels, err);
     if (st)
         return st;
     lo_nm = fmax(0, lo_nm);
@@ -322,17 +345,17 @@ lam_status lam_substrate_colour_gauge(lam_model *m, const lam_colour_point *p,
     if (n < 3)
         return lam_error_set(err, LAM_EINVAL, "oxide range %g-%g nm is too short", lo_nm, hi_nm);
     double (*lnR)[NC] = malloc(n * sizeof *lnR), *chi2 = malloc(n * sizeof *chi2);
-    double delta[NC], lnR1[NC];
+    double delta[NC];
     reference_curve rc;
     if (!lnR || !chi2)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the colour profile");
     if (!st)
-        st = reference(m, p, ref, level, &rc, lnR1, delta, err);
+        st = reference(m, p, ref, level, &rc, delta, err);
     for (size_t k = 0; k < n && !st; k++)
         st = log_reflectance(m, &p->point, lo_nm + (double)k * GRID_STEP_NM, NC, lnR[k], err);
     if (!st)
-        st = gauge_from_grid(m, p, ref, delta, (const double(*)[NC])lnR, &rc, lnR1, n, lo_nm,
-                             chi2, g, err);
+        st = gauge_from_grid(m, p, ref, delta, (const double(*)[NC])lnR, &rc, n, lo_nm, chi2, g,
+                             err);
     free(lnR);
     free(chi2);
     return st;

@@ -292,6 +292,21 @@ static void test_colour(const char *dir)
                cal.oxide_covered, cal.oxide_n, 100 * share(cal.right, cal.flakes));
 }
 
+/* Scan 6700 of `make accuracy`: lamina's default response drawn by the
+ * generator, a camera the analysis is not told, 300 nm nominal, JPEG
+ * q85; the setup gives the camera with 'informed'. */
+static robust_case scan_6700(int informed)
+{
+    robust_case c;
+    robust_case_init(&c);
+    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
+    c.cfg.nominal_oxide_nm = 300;
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 85;
+    c.informed = informed;
+    return c;
+}
+
 /* One labelled monolayer pins only its own three contrasts; the other
  * regions of the calibration tile, with their layer counts latent, show
  * the whole ladder. Scan 6700 of `make accuracy` (lamina's default response
@@ -305,13 +320,7 @@ static void test_colour(const char *dir)
  * and wrong.) */
 static void test_calibrated_latent(const char *dir)
 {
-    robust_case c;
-    robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
-    c.cfg.nominal_oxide_nm = 300;
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 85;
-    c.informed = 0;
+    robust_case c = scan_6700(0);
     robust_tally alone, only, latent;
     memset(&alone, 0, sizeof alone);
     memset(&only, 0, sizeof only);
@@ -371,13 +380,7 @@ static void test_colour_changed(const char *dir)
  * colour's evidence together, and wins. */
 static void test_colour_order(const char *dir)
 {
-    robust_case c;
-    robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
-    c.cfg.nominal_oxide_nm = 300;
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 85;
-    c.informed = 1;
+    robust_case c = scan_6700(1);
     robust_tally alone, cal;
     memset(&alone, 0, sizeof alone);
     memset(&cal, 0, sizeof cal);

@@ -414,9 +414,12 @@ static int largest_monolayer(const synth_scene *sc)
 
 /* Calibrate the setup on one flake of the first tile (and its other
  * regions, latent, unless ROBUST_CAL_LABELLED_ONLY), with its oxide given
- * as measured (ellipsometry) with ROBUST_CAL_OXIDE; fills 'out'. */
+ * as measured (ellipsometry) with ROBUST_CAL_OXIDE, and with second_img
+ * (may be NULL) a second chip of oxide second_oxide for the substrate's
+ * colour, as `calibrate --second-chip` takes it; fills 'out'. */
 static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_setup *start,
-                              int flags, lam_calib_result *out)
+                              int flags, const char *second_img, double second_oxide,
+                              lam_calib_result *out)
 {
     int obj = largest_monolayer(sc);
     uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
@@ -429,40 +432,13 @@ static int calibrate_on_flake(const char *img, const synth_scene *sc, const lam_
              (!(flags & ROBUST_CAL_LABELLED_ONLY) &&
               lam_calib_add_unlabelled(&set, 0, map, (size_t)sc->width, (size_t)sc->height, start,
                                        &err)) ||
+             (second_img &&
+              lam_calib_add_second_chip(&set, second_img, second_oxide, start, &err)) ||
              lam_calibrate(start, &set, flags & ROBUST_CAL_OXIDE ? &sc->phys.oxide_nm : NULL, NAN,
                            out, &err);
     if (rc)
         fprintf(stderr, "robust: calibration on %s: %s\n", img, err.message);
     lam_calib_set_clear(&set);
-    free(map);
-    return rc ? -1 : 0;
-}
-
-/* The same with a second chip of measured oxide (tile 1 of sn) for the
- * substrate's colour alone, as `calibrate --second-chip` takes it. */
-static int calibrate_two_chips(const scan *sn, const lam_setup *start, lam_calib_result *out)
-{
-    int obj = largest_monolayer(&sn->sc[0]);
-    const synth_scene *sc = &sn->sc[0];
-    uint8_t *map = obj >= 0 ? one_flake_labels(sc, obj) : NULL;
-    lam_calib_set *set = malloc(sizeof *set);
-    lam_error err;
-    lam_error_clear(&err);
-    if (set)
-        lam_calib_set_init(set);
-    int rc = !map || !set ||
-             lam_calib_measure_labels(set, sn->img[0], map, (size_t)sc->width,
-                                      (size_t)sc->height, start, &err) ||
-             lam_calib_add_unlabelled(set, 0, map, (size_t)sc->width, (size_t)sc->height, start,
-                                      &err) ||
-             lam_calib_add_second_chip(set, sn->img[1], sn->sc[1].phys.oxide_nm, start, &err) ||
-             lam_calibrate(start, set, &sc->phys.oxide_nm, NAN, out, &err);
-    if (rc)
-        fprintf(stderr, "robust: calibration on %s and %s: %s\n", sn->img[0], sn->img[1],
-                err.message);
-    if (set)
-        lam_calib_set_clear(set);
-    free(set);
     free(map);
     return rc ? -1 : 0;
 }
@@ -506,7 +482,7 @@ int robust_run_calibrated(const robust_case *c, unsigned long long seed, int til
     memset(&cal, 0, sizeof cal);
     lam_setup_default(&profile);
     if (!rc && !(rc = load_setup(sn.setup, &s))) {
-        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags, &cal);
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, flags, NULL, NAN, &cal);
         if (!rc && (flags & ROBUST_CAL_NO_COLOUR))
             cal.setup.substrate_colour.oxide_nm = NAN;
         if (!rc)
@@ -530,20 +506,22 @@ int robust_run_two_chips(const robust_case *c, unsigned long long seed, int tile
     scan sn;
     int rc = render_scan(c, seed, tiles, dir, 'c', 1, &sn);
     lam_setup s, p1, p2;
-    lam_calib_result c1, c2;
-    memset(&c1, 0, sizeof c1);
-    memset(&c2, 0, sizeof c2);
+    lam_calib_result cal;
+    memset(&cal, 0, sizeof cal);
     lam_setup_default(&p1);
     lam_setup_default(&p2);
     if (!rc && !(rc = load_setup(sn.setup, &s))) {
-        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, ROBUST_CAL_OXIDE, &c1) ||
-             calibrate_two_chips(&sn, &s, &c2) || round_trip(&c1.setup, dir, seed, "c", &p1) ||
-             round_trip(&c2.setup, dir, seed, "t", &p2);
+        /* the second chip adds only a colour record: without it the fit
+         * is the one-chip calibration's */
+        rc = calibrate_on_flake(sn.img[0], &sn.sc[0], &s, ROBUST_CAL_OXIDE, sn.img[1],
+                                sn.sc[1].phys.oxide_nm, &cal) ||
+             round_trip(&cal.setup, dir, seed, "t", &p2);
+        cal.setup.substrate_colour.second_oxide_nm = NAN;
+        rc = rc || round_trip(&cal.setup, dir, seed, "c", &p1);
         for (int k = 2; k < tiles && !rc; k++)
             rc = analyse(sn.img[k], &p1, NULL, &sn.sc[k], one, log, NULL) ||
                  analyse(sn.img[k], &p2, NULL, &sn.sc[k], two, log, NULL);
-        lam_calib_result_clear(&c1);
-        lam_calib_result_clear(&c2);
+        lam_calib_result_clear(&cal);
         lam_setup_clear(&s);
     }
     lam_setup_clear(&p1);
