@@ -28,6 +28,20 @@ static void html(FILE *f, const char *t)
         }
 }
 
+/* An image's warnings (the catalogue joins them with ';' and no space;
+ * a message's own semicolons are followed by one): each on a line. */
+static void html_warnings(FILE *f, const char *t)
+{
+    for (char one[2] = {0, 0}; *t; t++) {
+        if (t[0] == ';' && t[1] && t[1] != ' ') {
+            fputs("<br>", f);
+            continue;
+        }
+        one[0] = *t;
+        html(f, one);
+    }
+}
+
 /* A relative URL: path segments percent-encoded except unreserved bytes. */
 static void url(FILE *f, const char *t)
 {
@@ -144,7 +158,7 @@ static void head(FILE *f, const lam_catalog *c, const lam_run_report_options *o,
             fputs("<li>", f);
             html(f, c->images[k].stem);
             fputs(": ", f);
-            html(f, c->images[k].warnings);
+            html_warnings(f, c->images[k].warnings);
             fputs("</li>\n", f);
         }
     if (any)
@@ -276,7 +290,7 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
     html(f, e->flags);
     if (im->warnings[0]) {
         fputs(e->flags[0] ? "; " : "", f);
-        html(f, im->warnings);
+        html_warnings(f, im->warnings);
     }
     fputs("</td></tr>\n", f);
 }
@@ -313,7 +327,7 @@ static void image_table(FILE *f, const lam_catalog *c, const char *dir)
             fprintf(f, "<td class=\"n\">%.1f, %.1f</td><td>", im->pos->x_um, im->pos->y_um);
         else
             fputs("<td>\u2014</td><td>", f);
-        html(f, im->warnings);
+        html_warnings(f, im->warnings);
         fputs("</td></tr>\n", f);
     }
     fputs("</tbody></table>\n", f);
