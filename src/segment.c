@@ -64,65 +64,74 @@ static size_t run_end(const uint32_t *row, size_t x, size_t w)
     return x;
 }
 
-/* Forward pass over row y, run by run: a run's first pixel is on the
- * boundary; the others are one more than the nearer of the pixel to the
- * left and the one above, or on the boundary when the one above differs. */
-static void depth_forward(const uint32_t *lab, uint8_t *d, size_t w, size_t y)
-{
-    const uint32_t *row = lab + y * w, *up = row - w;
-    uint8_t *dr = d + y * w, *du = dr - w;
-    for (size_t x0 = 0, x1; x0 < w; x0 = x1) {
-        x1 = run_end(row, x0, w);
-        uint32_t l = row[x0];
-        if (!l || y == 0) {
-            memset(dr + x0, l ? 1 : 0, x1 - x0);
-            continue;
-        }
-        dr[x0] = 1;
-        for (size_t x = x0 + 1; x < x1; x++) {
-            unsigned v = (dr[x - 1] < du[x] ? dr[x - 1] : du[x]) + 1u;
-            dr[x] = up[x] != l ? 1 : (uint8_t)(v > 255 ? 255 : v);
-        }
-    }
-}
-
-/* Backward pass over row y (from the right and from below). */
-static void depth_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, size_t y)
-{
-    const uint32_t *row = lab + y * w, *dn = row + w;
-    uint8_t *dr = d + y * w, *dd = dr + w;
-    for (size_t x0 = 0, x1; x0 < w; x0 = x1) {
-        x1 = run_end(row, x0, w);
-        uint32_t l = row[x0];
-        if (!l)
-            continue;
-        if (y + 1 == h) {
-            memset(dr + x0, 1, x1 - x0);
-            continue;
-        }
-        dr[x1 - 1] = 1;
-        for (size_t x = x1 - 1; x-- > x0;) {
-            unsigned v = (dr[x + 1] < dd[x] ? dr[x + 1] : dd[x]) + 1u;
-            if (dn[x] != l)
-                dr[x] = 1;
-            else if (v < dr[x])
-                dr[x] = (uint8_t)v;
-        }
-    }
-}
-
 /* City-block distance of each labelled pixel to the nearest pixel of
  * another label (or none) or outside the image, capped at 255: 1 on a
- * region's boundary. Two passes (forward, backward). */
-uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h)
+ * region's boundary, 0 off regions. The L1 distance transform separates
+ * (exactly, not as an approximation): along each row the distance to the
+ * ends of the pixel's run; then down and up each column, where a pixel
+ * is one more than its neighbour of the same label, or 1 next to another
+ * label. Rows, then bands of columns, run on the threads. */
+#define DEPTH_COLUMNS 64 /* columns per item of the column passes */
+
+typedef struct depth_ctx {
+    const uint32_t *lab;
+    uint8_t *d;
+    size_t w, h;
+} depth_ctx;
+
+static void depth_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    const depth_ctx *c = vctx;
+    for (size_t y = begin; y < end; y++) {
+        const uint32_t *row = c->lab + y * c->w;
+        uint8_t *dr = c->d + y * c->w;
+        for (size_t x0 = 0, x1; x0 < c->w; x0 = x1) {
+            x1 = run_end(row, x0, c->w);
+            for (size_t x = x0; x < x1; x++) {
+                size_t v = x - x0 + 1 < x1 - x ? x - x0 + 1 : x1 - x;
+                dr[x] = !row[x0] ? 0 : (uint8_t)(v > 255 ? 255 : v);
+            }
+        }
+    }
+}
+
+/* One step of a column pass: row y from its neighbour row yn (NULL at the
+ * image's edge), over columns [x0, x1). */
+static void depth_step(const depth_ctx *c, size_t y, const uint32_t *nlab, const uint8_t *nd,
+                       size_t x0, size_t x1)
+{
+    const uint32_t *row = c->lab + y * c->w;
+    uint8_t *dr = c->d + y * c->w;
+    for (size_t x = x0; x < x1; x++) {
+        if (!row[x])
+            continue;
+        unsigned v = !nlab || nlab[x] != row[x] ? 1u : nd[x] + 1u;
+        if (v < dr[x])
+            dr[x] = (uint8_t)v;
+    }
+}
+
+static void depth_columns(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    const depth_ctx *c = vctx;
+    size_t x0 = begin * DEPTH_COLUMNS, x1 = end * DEPTH_COLUMNS < c->w ? end * DEPTH_COLUMNS : c->w;
+    for (size_t y = 0; y < c->h; y++)
+        depth_step(c, y, y ? c->lab + (y - 1) * c->w : NULL, c->d + (y ? y - 1 : 0) * c->w, x0, x1);
+    for (size_t y = c->h; y-- > 0;)
+        depth_step(c, y, y + 1 < c->h ? c->lab + (y + 1) * c->w : NULL,
+                   c->d + (y + 1 < c->h ? y + 1 : y) * c->w, x0, x1);
+}
+
+uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h, size_t threads)
 {
     uint8_t *d = lam_big_malloc(w * h);
     if (!d)
         return NULL;
-    for (size_t y = 0; y < h; y++)
-        depth_forward(lab, d, w, y);
-    for (size_t y = h; y-- > 0;)
-        depth_backward(lab, d, w, h, y);
+    depth_ctx c = {lab, d, w, h};
+    lam_parallel_for(h, threads, depth_rows, &c);
+    lam_parallel_for((w + DEPTH_COLUMNS - 1) / DEPTH_COLUMNS, threads, depth_columns, &c);
     return d;
 }
 
@@ -342,7 +351,7 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
     free(parent);
     free(final);
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
-    uint8_t *depth = lam__boundary_depth(lab, w, h);
+    uint8_t *depth = lam__boundary_depth(lab, w, h, opt->threads ? opt->threads : 1);
     if (!R || !depth) {
         free(R);
         free(depth);

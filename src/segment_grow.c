@@ -248,54 +248,75 @@ static void difference_stats(const lam_image *img, size_t channels, const double
 #define PAIR_RANGE 6.0      /* pairs differing by more than 6 deltas never merge */
 #define ROOT 0x80000000u    /* a root's first word: this bit | its region's pixel count */
 
-/* Union-find over pixels. Each pixel is a node of 1 + channels words: its
- * parent's index (always smaller: the smaller index stays the root), or
- * for a root ROOT | the region's pixel count; then, for a root, the
- * region's sums per channel. One node is one cache access (16 bytes for
- * colour), which is what the merging waits for. */
-typedef union word {
-    uint32_t u;
-    float f;
-} word;
+#define SINGLE 0x7fffffffu /* a root's slot when it is one pixel (its sums: the pixel's values) */
+
+/* Union-find over pixels. Each pixel's word is its parent's index (always
+ * smaller: the smaller index stays the root), or for a root ROOT | its
+ * slot. A region of two or more pixels keeps its pixel count and sums per
+ * channel in a slot; a one-pixel region has none and reads the image. Most
+ * pixels never need a slot, so the memory the merging touches is 4 bytes
+ * a pixel plus 16 a merged region, not 16 a pixel (page faults are a large
+ * part of this stage's time). Slots are handed out band by band from a
+ * range of their own (see merge_bands), then for the borders. */
+typedef struct slot {
+    uint32_t count;
+    float sum[3];
+} slot;
 
 typedef struct merge_state {
-    word *node;
-    size_t stride;      /* words per node: 1 + channels */
+    uint32_t *node;
+    slot *slots;
+    const float *plane[3];
     size_t channels;
+    size_t band_slots;  /* slots reserved per band */
     double delta[3], sigma[3];
     int bright;         /* bright_scaling: delta x b, sigma x sqrt(b), b = 1 - C */
 } merge_state;
 
-static uint32_t root_of(word *node, size_t stride, uint32_t a)
+static uint32_t root_of(uint32_t *node, uint32_t a)
 {
     for (;;) {
-        uint32_t p = node[a * stride].u;
+        uint32_t p = node[a];
         if (p & ROOT)
             return a;
-        uint32_t g = node[p * stride].u;
+        uint32_t g = node[p];
         if (g & ROOT)
             return p;
-        node[a * stride].u = g; /* path halving */
+        node[a] = g; /* path halving */
         a = g;
     }
+}
+
+/* Pixel count and sums of the region whose root is r. */
+static uint32_t region_sums(const merge_state *m, uint32_t r, float sum[3])
+{
+    uint32_t s = m->node[r] & ~ROOT;
+    if (s == SINGLE) {
+        for (size_t c = 0; c < m->channels; c++)
+            sum[c] = m->plane[c][r];
+        return 1;
+    }
+    for (size_t c = 0; c < m->channels; c++)
+        sum[c] = m->slots[s].sum[c];
+    return m->slots[s].count;
 }
 
 /* The means of regions a and b (na, nb pixels) agree in every channel. A
  * channel within delta agrees whatever the noise term, so the square root
  * is taken only when some channel needs it (the same decisions). */
-static int means_agree(const merge_state *m, uint32_t a, uint32_t b, uint32_t ca, uint32_t cb)
+static int means_agree(const merge_state *m, const float *sa, const float *sb, uint32_t ca,
+                       uint32_t cb)
 {
     double na = ca, nb = cb, se = -1;
-    const word *sa = m->node + a * m->stride + 1, *sb = m->node + b * m->stride + 1;
     for (size_t c = 0; c < m->channels; c++) {
         if (m->bright) { /* the thresholds of the darker of the two */
-            double ma = sa[c].f / na, mb = sb[c].f / nb, f = bright_factor((float)fmin(ma, mb));
+            double ma = sa[c] / na, mb = sb[c] / nb, f = bright_factor((float)fmin(ma, mb));
             if (fabs(ma - mb) > m->delta[c] * f * f +
                                     MERGE_SIGMAS * m->sigma[c] * f * sqrt(1 / na + 1 / nb))
                 return 0;
             continue;
         }
-        double d = fabs(sa[c].f / na - sb[c].f / nb);
+        double d = fabs(sa[c] / na - sb[c] / nb);
         if (d <= m->delta[c])
             continue;
         if (se < 0)
@@ -306,17 +327,44 @@ static int means_agree(const merge_state *m, uint32_t a, uint32_t b, uint32_t ca
     return 1;
 }
 
-static void merge(merge_state *m, uint32_t a, uint32_t b, uint32_t count)
+/* Where a band (or the borders) takes its slots: those freed by merges
+ * of two slotted regions first (a list through their count), then new
+ * ones from its range, so the slots in use stay few and warm. */
+typedef struct slot_pool {
+    uint32_t next, freed; /* freed: SINGLE when none */
+} slot_pool;
+
+static uint32_t take_slot(merge_state *m, slot_pool *p)
 {
-    if (b < a) {
-        uint32_t t = a;
-        a = b, b = t;
+    if (p->freed == SINGLE)
+        return p->next++;
+    uint32_t s = p->freed;
+    p->freed = m->slots[s].count;
+    return s;
+}
+
+/* Regions a and b (roots, sums sa and sb) become one under the smaller
+ * index, in a's slot, or b's, or one from the pool. */
+static void merge(merge_state *m, uint32_t a, uint32_t b, const float *sa, const float *sb,
+                  uint32_t count, slot_pool *pool)
+{
+    uint32_t s = m->node[a] & ~ROOT, t = m->node[b] & ~ROOT;
+    if (s == SINGLE)
+        s = t != SINGLE ? t : take_slot(m, pool);
+    else if (t != SINGLE) {
+        m->slots[t].count = pool->freed;
+        pool->freed = t;
     }
-    word *na = m->node + a * m->stride, *nb = m->node + b * m->stride;
-    nb[0].u = a; /* the smaller index stays the root */
-    na[0].u = ROOT | count;
-    for (size_t c = 1; c <= m->channels; c++)
-        na[c].f += nb[c].f;
+    slot *z = &m->slots[s];
+    z->count = count;
+    for (size_t c = 0; c < m->channels; c++)
+        z->sum[c] = sa[c] + sb[c];
+    if (b < a) {
+        uint32_t x = a;
+        a = b, b = x;
+    }
+    m->node[b] = a; /* the smaller index stays the root */
+    m->node[a] = ROOT | s;
 }
 
 /* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
@@ -463,70 +511,49 @@ static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const m
 }
 
 typedef struct init_ctx {
-    const lam_image *img;
-    const uint8_t *cls;
-    merge_state *m;
+    uint32_t *node;
+    size_t w;
 } init_ctx;
 
+/* Every pixel a one-pixel region (ROOT | SINGLE: all bits set). */
 static void init_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
     init_ctx *ic = vctx;
-    size_t w = ic->img->width, ch = ic->m->channels, S = ic->m->stride;
-    const float *restrict p0 = ic->img->plane[0], *restrict p1 = ic->img->plane[1];
-    const float *restrict p2 = ic->img->plane[2];
-    const uint8_t *restrict cls = ic->cls;
-    word *restrict node = ic->m->node;
-    if (ch == 3) /* the usual case, without the channel loop */
-        for (size_t k = begin * w; k < end * w; k++) {
-            node[4 * k].u = ROOT | (cls[k] == PROVISIONAL);
-            node[4 * k + 1].f = p0[k];
-            node[4 * k + 2].f = p1[k];
-            node[4 * k + 3].f = p2[k];
-        }
-    else
-        for (size_t k = begin * w; k < end * w; k++) {
-            word *nd = node + k * S;
-            nd[0].u = ROOT | (cls[k] == PROVISIONAL);
-            for (size_t c = 0; c < ch; c++)
-                nd[1 + c].f = ic->img->plane[c][k];
-        }
+    memset(ic->node + begin * ic->w, 0xff, (end - begin) * ic->w * sizeof *ic->node);
 }
 
 /* Every pixel to its region's id, ids 1..m in row-major order of the roots
- * (label 0: no region), written as the label map over the start of the
- * node array (pixel k's label lands where nodes <= k lay, already read).
- * Parents point to smaller indices, so one forward pass resolves every
- * pixel (ids are flagged while indices are mixed in). */
-static uint32_t number_regions(const uint8_t *cls, word *node, size_t S, size_t n)
+ * (label 0: no region), written over the node array. Parents point to
+ * smaller indices, so one forward pass resolves every pixel (ids are
+ * flagged while indices are mixed in). */
+static uint32_t number_regions(const uint8_t *cls, uint32_t *node, size_t n)
 {
     uint32_t m = 0;
     for (size_t k = 0; k < n; k++) {
-        uint32_t p = node[k * S].u;
+        uint32_t p = node[k];
         if (cls[k] != PROVISIONAL)
-            node[k * S].u = 0;
+            node[k] = 0;
         else if (p & ROOT)
-            node[k * S].u = ROOT | ++m;
+            node[k] = ROOT | ++m;
         else
-            node[k * S].u = node[p * S].u;
+            node[k] = node[p];
     }
-    uint32_t *lab = &node[0].u;
     for (size_t k = 0; k < n; k++)
-        lab[k] = node[k * S].u & ~ROOT;
+        node[k] &= ~ROOT;
     return m;
 }
 
 /* One pair: two regions merge when their means agree. */
-static void merge_pair(merge_state *m, size_t k, size_t q)
+static void merge_pair(merge_state *m, size_t k, size_t q, slot_pool *pool)
 {
-    word *node = m->node;
-    size_t S = m->stride;
-    uint32_t a = root_of(node, S, (uint32_t)k), b = root_of(node, S, (uint32_t)q);
+    uint32_t a = root_of(m->node, (uint32_t)k), b = root_of(m->node, (uint32_t)q);
     if (a == b)
         return;
-    uint32_t ca = node[a * S].u & ~ROOT, cb = node[b * S].u & ~ROOT;
-    if (means_agree(m, a, b, ca, cb))
-        merge(m, a, b, ca + cb);
+    float sa[3], sb[3];
+    uint32_t ca = region_sums(m, a, sa), cb = region_sums(m, b, sb);
+    if (means_agree(m, sa, sb, ca, cb))
+        merge(m, a, b, sa, sb, ca + cb, pool);
 }
 
 /* The merging runs band by band: a band is BAND_STRIPS strips (a fixed
@@ -534,7 +561,10 @@ static void merge_pair(merge_state *m, size_t k, size_t q)
  * of increasing difference, the bands on all cores; then the pairs that
  * cross from a band's last row into the next band are merged, in the same
  * order. A region never spans two bands until that last step, so bands
- * touch disjoint nodes. The merging is memory-bound: a band's nodes are a
+ * touch disjoint nodes, and each band takes new slots from its own range
+ * (m->band_slots from band * m->band_slots; a merge of two one-pixel
+ * regions takes one, so half a band's pixels is enough), the borders from
+ * the range after them. The merging is memory-bound: a band's nodes are a
  * working set a core can keep near, where the whole image's were not. */
 #define BAND_STRIPS 8
 
@@ -589,19 +619,19 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
 
 /* Pairs in batches, so that the nodes of later pairs are fetched while
  * earlier ones merge: the loop waits for memory, not for arithmetic. */
-static void merge_batch(merge_state *m, const uint32_t *batch, size_t nb, size_t w)
+static void merge_batch(merge_state *m, const uint32_t *batch, size_t nb, size_t w,
+                        slot_pool *pool)
 {
-    size_t S = m->stride;
     for (size_t j = 0; j < nb; j++) {
 #ifdef __GNUC__
         if (j + AHEAD < nb) {
             size_t k2 = batch[j + AHEAD] / 2;
-            __builtin_prefetch(&m->node[k2 * S]);
-            __builtin_prefetch(&m->node[(batch[j + AHEAD] % 2 ? k2 + w : k2 + 1) * S]);
+            __builtin_prefetch(&m->node[k2]);
+            __builtin_prefetch(&m->node[batch[j + AHEAD] % 2 ? k2 + w : k2 + 1]);
         }
 #endif
         size_t k = batch[j] / 2;
-        merge_pair(m, k, batch[j] % 2 ? k + w : k + 1);
+        merge_pair(m, k, batch[j] % 2 ? k + w : k + 1, pool);
     }
 }
 
@@ -623,16 +653,18 @@ static void merge_bands(size_t begin, size_t end, size_t slice, void *vctx)
         size_t s1 = s0 + BAND_STRIPS < L->strips ? s0 + BAND_STRIPS : L->strips;
         const uint32_t *st = L->start + s0 * (PAIR_BUCKETS + 1);
         cursor c = {0, s0, s0, s1, st[0], st[1]};
+        slot_pool pool = {(uint32_t)(band * x->m->band_slots), SINGLE};
         size_t nb;
         while ((nb = gather(L, x->w, &c, batch)) > 0)
-            merge_batch(x->m, batch, nb, x->w);
+            merge_batch(x->m, batch, nb, x->w, &pool);
     }
 }
 
 /* The pairs across band borders, bucket by bucket, border by border. */
-static void merge_borders(merge_state *m, const pair_lists *L, size_t w)
+static void merge_borders(merge_state *m, const pair_lists *L, size_t w, size_t bands)
 {
     uint32_t batch[BATCH];
+    slot_pool pool = {(uint32_t)(bands * m->band_slots), SINGLE};
     size_t nb = 0;
     for (size_t b = 0; b < PAIR_BUCKETS; b++)
         for (size_t s = BAND_STRIPS - 1; s < L->strips; s += BAND_STRIPS) {
@@ -643,12 +675,12 @@ static void merge_borders(merge_state *m, const pair_lists *L, size_t w)
                     continue;
                 batch[nb++] = p;
                 if (nb == BATCH) {
-                    merge_batch(m, batch, nb, w);
+                    merge_batch(m, batch, nb, w, &pool);
                     nb = 0;
                 }
             }
         }
-    merge_batch(m, batch, nb, w);
+    merge_batch(m, batch, nb, w, &pool);
 }
 
 /* Neighbour pairs in order of increasing difference, band by band on the
@@ -656,8 +688,9 @@ static void merge_borders(merge_state *m, const pair_lists *L, size_t w)
 static void merge_pairs(merge_state *m, const pair_lists *L, size_t w, size_t threads)
 {
     band_ctx x = {m, L, w};
-    lam_parallel_for((L->strips + BAND_STRIPS - 1) / BAND_STRIPS, threads, merge_bands, &x);
-    merge_borders(m, L, w);
+    size_t bands = (L->strips + BAND_STRIPS - 1) / BAND_STRIPS;
+    lam_parallel_for(bands, threads, merge_bands, &x);
+    merge_borders(m, L, w, bands);
 }
 
 /* The regions of the provisional pixels into seg->label (replaced by the
@@ -668,29 +701,34 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
 {
     size_t w = img->width, n = img->width * img->height;
     merge_state m;
+    memset(&m, 0, sizeof m);
     m.bright = bright;
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
     m.channels = channels;
-    m.stride = 1 + channels;
-    if (!(m.node = lam_big_malloc(n * m.stride * sizeof *m.node)))
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
-    init_ctx ic = {img, seg->cls, &m};
+    for (size_t c = 0; c < channels; c++)
+        m.plane[c] = img->plane[c];
+    m.node = seg->label; /* the union-find becomes the label map */
+    init_ctx ic = {m.node, w};
     lam_parallel_for(img->height, threads, init_rows, &ic);
     pair_lists L;
     lam_status st = sorted_pairs(img, seg->cls, &m, threads, &L, err);
-    if (st) {
-        free(m.node);
+    if (st)
         return st;
-    }
-    merge_pairs(&m, &L, w, threads);
+    size_t bands = (L.strips + BAND_STRIPS - 1) / BAND_STRIPS;
+    m.band_slots = (BAND_STRIPS * L.rows * w + 1) / 2;
+    /* no huge-page advice: untouched slots then cost no memory (only the
+     * small pages that merges take are faulted in) */
+    m.slots = malloc((bands * m.band_slots + bands * w) * sizeof *m.slots);
+    if (m.slots)
+        merge_pairs(&m, &L, w, threads);
     free(L.code);
     free(L.pairs);
     free(L.start);
-    *regions = number_regions(seg->cls, m.node, m.stride, n);
-    uint32_t *lab = realloc(m.node, n * sizeof *lab);
-    free(seg->label);
-    seg->label = lab ? lab : &m.node[0].u; /* a failed shrink keeps the larger block */
+    free(m.slots);
+    if (!m.slots)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    *regions = number_regions(seg->cls, m.node, n);
     return LAM_OK;
 }
 
@@ -848,7 +886,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
         return st;
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
-    uint8_t *depth = lam__boundary_depth(seg->label, w, h);
+    uint8_t *depth = lam__boundary_depth(seg->label, w, h, threads);
     if (!R || !depth) {
         free(R);
         free(depth);

@@ -6,8 +6,10 @@
 #include "lamina/segment.h"
 
 /* City-block distance to the region boundary per pixel (1 on it, 0 off
- * regions, capped at 255); malloc'd, NULL when out of memory. */
-uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height);
+ * regions, capped at 255), on the given threads (the same values for
+ * any count); malloc'd, NULL when out of memory. */
+uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height,
+                             size_t threads);
 
 /* Statistics of regions 1..m of a label map (R has m entries). */
 void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *label,
