@@ -300,25 +300,51 @@ static void legend_oxide(const lam_analysis *a, char *ox, size_t n)
         snprintf(ox, n, "SiO\u2082 %.0f nm (nominal)", a->oxide.nominal);
 }
 
-/* Legend: file, oxide, the colour of each class, the line styles; in a
- * font a little smaller than the labels. */
+#define LEGEND_WARNING_CODES 3 /* codes named on the legend; more are counted */
+
+/* The warnings line of the legend: that the image's answers are in doubt
+ * and which warnings say why (their messages are in STEM.json and on
+ * stderr); empty when there are none. Someone who looks only at the
+ * picture must not take a doubted count for a sure one. */
+static void legend_warnings(const lam_analysis *a, char *out, size_t n)
+{
+    size_t k = a->warnings.count, at;
+    out[0] = 0;
+    if (!k)
+        return;
+    at = (size_t)snprintf(out, n, "\u26a0 %s:", k == 1 ? "warning" : "warnings");
+    for (size_t i = 0; i < k && i < LEGEND_WARNING_CODES && at < n; i++)
+        at += (size_t)snprintf(out + at, n - at, "%s %s", i ? "," : "", a->warnings.item[i].code);
+    if (k > LEGEND_WARNING_CODES && at < n)
+        at += (size_t)snprintf(out + at, n - at, " +%zu more", k - LEGEND_WARNING_CODES);
+    if (at < n)
+        snprintf(out + at, n - at, " (in the JSON)");
+}
+
+/* Legend: file, oxide, the image's warnings, the colour of each class, the
+ * line styles; in a font a little smaller than the labels. */
 static void draw_legend(scene *S)
 {
     cairo_t *cr = S->cr;
     lam_analysis *a = S->a;
     double fs = 0.8 * S->fs, pad = 0.6 * fs, row = 1.4 * fs, sw = 1.4 * fs;
-    char ox[160], name[700];
+    char ox[160], name[700], warn[160];
     const char *base = strrchr(a->file, '/');
     lam_draw_escape(base ? base + 1 : a->file, name, sizeof name);
     legend_oxide(a, ox, sizeof ox);
+    legend_warnings(a, warn, sizeof warn);
+    double top = warn[0] ? 3.0 : 2.0; /* rows above the colour key */
     lam_text_style bold = {fs, 1, 0xffffff, 0, 0, 0}, plain = {fs, 0, 0xffffff, 0, 0, 0};
+    lam_text_style alert = {fs, 1, 0xffc040, 0, 0, 0};
     lam_text_style note = {0.85 * fs, 0, 0xd0d0d0, 0, 0, 0};
     legend_item it[12];
     size_t items = legend_items(a, it), cols = a->thickness ? 3 : 4;
     const char *key = a->thickness ? "label: thickness \u00b7 p \u00b7 area \u00b7 #region"
                                    : "label: layers \u00b7 p \u00b7 area \u00b7 #region";
-    double w0, w1, w2, wt = 0, h, cell, last;
+    double w0, w1, w2, w3 = 0, wt = 0, h, cell, last;
     lam_draw_text_size(cr, &bold, name, &w0, &h);
+    if (warn[0])
+        lam_draw_text_size(cr, &alert, warn, &w3, &h);
     lam_draw_text_size(cr, &plain, ox, &w1, &h);
     lam_draw_text_size(cr, &note, key, &w2, &h);
     for (size_t k = 0; k + 1 < items; k++) {
@@ -330,8 +356,8 @@ static void draw_legend(scene *S)
     lam_draw_text_size(cr, &plain, it[items - 1].text, &last, &h);
     size_t rows = (items + cols - 1) / cols, in_last = items - (rows - 1) * cols;
     double grid_w = fmax((double)cols * cell, (double)(in_last - 1) * cell + sw + 0.3 * fs + last);
-    double W = fmax(fmax(w0, w1), fmax(grid_w, sw + 0.3 * fs + w2)) + 2 * pad;
-    double H = 2 * pad + row * (2.0 + (double)rows) + 2 * 1.25 * fs;
+    double W = fmax(fmax(fmax(w0, w1), w3), fmax(grid_w, sw + 0.3 * fs + w2)) + 2 * pad;
+    double H = 2 * pad + row * (top + (double)rows) + 2 * 1.25 * fs;
     box b = place_panel(S, W, H);
     take(S, b, 0);
     if (S->dry)
@@ -340,13 +366,15 @@ static void draw_legend(scene *S)
     double x = b.x + pad, y = b.y + pad;
     lam_draw_text(cr, x, y, &bold, name);
     lam_draw_text(cr, x, y + row, &plain, ox);
+    if (warn[0])
+        lam_draw_text(cr, x, y + 2 * row, &alert, warn);
     plain.ay = 0.5;
     for (size_t k = 0; k < items; k++) {
-        double cx = x + (double)(k % cols) * cell, cy = y + row * (2.5 + (double)(k / cols));
+        double cx = x + (double)(k % cols) * cell, cy = y + row * (top + 0.5 + (double)(k / cols));
         legend_swatch(cr, &it[k], cx, cy, sw, fs);
         lam_draw_text(cr, cx + sw + 0.3 * fs, cy, &plain, it[k].text);
     }
-    double ky = y + row * (2.0 + (double)rows) + 0.15 * fs;
+    double ky = y + row * (top + (double)rows) + 0.15 * fs;
     double d[2] = {0.25 * fs, 0.18 * fs};
     cairo_set_dash(cr, d, 2, 0);
     cairo_set_line_width(cr, 0.09 * fs);

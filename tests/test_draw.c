@@ -247,6 +247,59 @@ static long far_pixel(const lam_analysis *a, const lam_annotation_box *b, size_t
     return -1;
 }
 
+/* Amber pixels (the legend's warnings line, 0xffc040 on the dark panel)
+ * inside the legend of the annotated picture written for a (which draws
+ * on a's display copy: restored after). */
+static size_t amber_in_legend(lam_analysis *a, const char *path)
+{
+    lam_annotation_box b[512];
+    lam_error err;
+    lam_image *img = NULL;
+    lam_load_options lo = lam_load_options_default();
+    lo.keep_display8 = 1;
+    size_t nb = lam_report_annotation_layout(a, b, 512), amber = 0, n = 3 * a->width * a->height;
+    uint8_t *display = malloc(n);
+    if (display)
+        memcpy(display, a->display, n);
+    lam_status st = !nb || !display ? LAM_ENOMEM : lam_report_write_annotated(a, path, &err);
+    if (display)
+        memcpy(a->display, display, n);
+    free(display);
+    if (st || lam_image_load(path, &lo, &img, &err))
+        return (size_t)-1;
+    for (size_t y = (size_t)b[0].y; y < (size_t)(b[0].y + b[0].h) && y < img->height; y++)
+        for (size_t x = (size_t)b[0].x; x < (size_t)(b[0].x + b[0].w) && x < img->width; x++) {
+            const uint8_t *p = img->display8 + 3 * (y * img->width + x);
+            amber += p[0] > 200 && p[1] > 140 && p[1] < 215 && p[2] < 110;
+        }
+    lam_image_free(img);
+    return amber;
+}
+
+/* Someone who looks only at the picture must see that its answers are
+ * doubted: the legend (the first box of the layout) gains an amber
+ * warnings line exactly when the analysis has warnings. */
+static void check_warning_mark(lam_analysis *a, const char *name)
+{
+    lam_warnings kept = a->warnings;
+    char path[1200];
+    snprintf(path, sizeof path, "%s/%s.warn.png", check_tmpdir(), name);
+    lam_annotation_box b[512];
+    a->warnings.count = 0;
+    lam_report_annotation_layout(a, b, 512);
+    double plain_h = b[0].h;
+    size_t plain = amber_in_legend(a, path);
+    lam_warnings_add(&a->warnings, "two-readings", "a test warning");
+    lam_report_annotation_layout(a, b, 512);
+    size_t marked = amber_in_legend(a, path);
+    check_true(b[0].h > plain_h, "%s: the legend grows a line for a warning (%.0f -> %.0f px)",
+               name, plain_h, b[0].h);
+    check_true(plain != (size_t)-1 && marked != (size_t)-1 && marked > plain + 200,
+               "%s: amber warning text in the legend only with a warning (%zu, %zu px)", name,
+               plain, marked);
+    a->warnings = kept;
+}
+
 /* The annotated picture: the input's size, marked along the largest
  * monolayer's edge, untouched far from every region and panel. */
 static void test_annotated(const char *image, const char *setup_file)
@@ -263,6 +316,7 @@ static void test_annotated(const char *image, const char *setup_file)
     }
     const char *name = strrchr(image, '/') + 1;
     check_layout(a, name);
+    check_warning_mark(a, name);
     lam_annotation_box boxes[512];
     size_t nb = lam_report_annotation_layout(a, boxes, 512);
     size_t n = a->width * a->height, big = 0;

@@ -17,7 +17,9 @@
  * counts), monochrome (one channel without a measured oxide),
  * anti-reflection (a substrate below 3 % reflectance in a channel),
  * substrate-colour (the substrate's colour contradicts the calibration's:
- * lamina/substrate_colour.h).
+ * lamina/substrate_colour.h), pooled-readings (a batch's pooled fit chose
+ * between two readings some images allowed alone: lamina/pool.h). The
+ * annotated picture's legend names the codes in amber.
  *
  * Ownership: plain values inside lam_analysis; nothing to free.
  */
