@@ -160,8 +160,11 @@ static lam_status add_image(lam_catalog *c, const cJSON *an, const char *path,
     const cJSON *w, *warns = cJSON_GetObjectItemCaseSensitive(an, "warnings");
     cJSON_ArrayForEach(w, warns) {
         const char *m = cJSON_IsString(w) ? w->valuestring : str(w, "message");
+        const char *code = str(w, "code");
         if (m)
             append(im->warnings, sizeof im->warnings, m);
+        if (code)
+            append(im->warning_codes, sizeof im->warning_codes, code);
     }
     if (c->positions && !pos)
     {

@@ -99,6 +99,7 @@ static const char style[] =
     "body{font:14px/1.4 'DejaVu Sans',sans-serif;margin:24px;color:#1a1a1a;background:#fafafa}"
     "h1{font-size:22px;margin:0 0 4px}h2{font-size:17px;margin:28px 0 8px}"
     ".note{color:#555}.warn{background:#fff4e0;border:1px solid #e0b060;padding:8px 12px}"
+    ".wc{color:#8a5a00;white-space:nowrap;cursor:help}"
     "table{border-collapse:collapse;background:#fff}th,td{border:1px solid #ddd;padding:4px 8px;"
     "vertical-align:middle;text-align:left}th{background:#eee;cursor:pointer;user-select:none;"
     "white-space:nowrap}th.asc:after{content:' \\25B2'}th.desc:after{content:' \\25BC'}"
@@ -241,6 +242,31 @@ static void num_cell(FILE *f, double v, int digits)
         fputs("<td class=\"n\" data-v=\"\">\u2014</td>", f);
 }
 
+/* A candidate's image's warnings, short: the analysis' codes and the
+ * catalogue's own notes, the messages in a tooltip (and in full in the
+ * Warnings box and the images table). A scan's rows would otherwise each
+ * repeat their image's paragraphs. */
+static void candidate_warnings(FILE *f, const lam_catalog_image *im, int after_flags)
+{
+    if (!im->warnings[0])
+        return;
+    fputs(after_flags ? "; " : "", f);
+    if (!im->warning_codes[0]) { /* results without codes: the messages */
+        html_warnings(f, im->warnings);
+        return;
+    }
+    fputs("<span class=\"wc\" title=\"", f);
+    html(f, im->warnings);
+    fputs("\">\u26a0\u00a0", f);
+    for (const char *t = im->warning_codes; *t; t++)
+        fputs(*t == ';' ? ", " : (char[2]){*t, 0}, f);
+    if (im->own_warnings[0]) {
+        fputs(", ", f);
+        html(f, im->own_warnings);
+    }
+    fputs("</span>", f);
+}
+
 static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *dir)
 {
     const lam_catalog_entry *e = &c->entries[i];
@@ -288,10 +314,7 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
     html(f, e->flags);
     fputs("\">", f);
     html(f, e->flags);
-    if (im->warnings[0]) {
-        fputs(e->flags[0] ? "; " : "", f);
-        html_warnings(f, im->warnings);
-    }
+    candidate_warnings(f, im, e->flags[0] != 0);
     fputs("</td></tr>\n", f);
 }
 

@@ -40,6 +40,7 @@ typedef struct lam_catalog_image {
     size_t regions, candidates;
     char warnings[2048];      /* ';'-separated: the analysis' and the catalogue's */
     char own_warnings[256];   /* the catalogue's alone, e.g. "not in the positions file" */
+    char warning_codes[256];  /* the analysis' warning codes, ';'-separated (short, for tables) */
 } lam_catalog_image;
 
 typedef struct lam_catalog_entry {

@@ -126,6 +126,19 @@ grep -q "HT285-D04-tile21.jpg: warning: not in the positions file" "$T/err" && o
 grep -q "stage x,y mm" "$T/out" && ok "terminal table shows stage readings" || bad "terminal table: $(grep -A2 monolayer "$T/out")"
 head -1 "$T/p/goto.csv" | grep -q "stage_x_mm" && ok "goto.csv in the file's unit" || bad "goto.csv header: $(head -1 "$T/p/goto.csv")"
 [ -s "$T/p/report.html" ] && ok "report.html with positions" || bad "report.html"
+# the run report's candidate rows name their image's warnings by code (the
+# messages sit in the Warnings box, the images table and a tooltip)
+expect_rc 0 "analyze two images without a setup" "$BIN" analyze --quiet --out "$T/w" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
+codes=$(sed -n 's/.*class="wc" title="[^"]*">\([^<]*\)<\/span>.*/\1/p' "$T/w/report.html" | sort | uniq -c)
+rows=$(grep -c 'class="wc"' "$T/w/report.html")
+case "$codes" in
+    *setup-defaults) [ "$rows" -ge 5 ] && [ "$(printf '%s\n' "$codes" | wc -l)" -eq 1 ] \
+        && ok "candidate rows show the code setup-defaults ($rows rows)" || bad "candidate warnings: $codes" ;;
+    *) bad "candidate rows without warning codes: $codes" ;;
+esac
+shown=$(sed 's/title="[^"]*"//g' "$T/w/report.html" | grep -o 'typical values were assumed' | wc -l)
+[ "$shown" -eq 4 ] && ok "each image's message shown twice (Warnings box, images table), not per candidate" \
+    || bad "the message is shown $shown times for 2 images"
 expect_rc 0 "chip map from the results folder" "$BIN" map "$T/p" -o "$T/chip.png"
 "$BIN" inspect "$T/chip.png" > /dev/null 2>&1 && ok "chip map PNG reads back" || bad "chip map PNG"
 expect_rc 2 "map of a folder without positions" "$BIN" map "$T/b" -o "$T/chip2.svg"
