@@ -1,4 +1,5 @@
 /* check.c - numbered checks with observed/expected reporting. */
+#define _XOPEN_SOURCE 700 /* nftw */
 #include "check.h"
 
 #include <math.h>
@@ -6,6 +7,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <ftw.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
@@ -113,9 +115,23 @@ int check_str(const char *observed, const char *expected, const char *fmt, ...)
     return ok;
 }
 
+static char tmpdir[256]; /* "" until check_tmpdir makes it */
+
+static int remove_entry(const char *path, const struct stat *sb, int flag, struct FTW *f)
+{
+    (void)sb, (void)flag, (void)f;
+    return remove(path);
+}
+
+/* The scratch folder goes when every check passed, and stays to be looked
+ * at when one failed (each run would otherwise leave its files behind). */
 int check_summary(void)
 {
     printf("%s: %d passed, %d failed\n", prog, n_pass, n_fail);
+    if (tmpdir[0] && !n_fail)
+        nftw(tmpdir, remove_entry, 16, FTW_DEPTH | FTW_PHYS);
+    else if (tmpdir[0])
+        printf("%s: scratch files kept in %s\n", prog, tmpdir);
     return n_fail ? 1 : 0;
 }
 
@@ -144,14 +160,13 @@ char *check_path(char *buf, size_t n, const char *dir, const char *name)
 
 const char *check_tmpdir(void)
 {
-    static char dir[256];
-    if (!dir[0]) {
-        snprintf(dir, sizeof dir, "build/tests/tmp-%s-%ld", prog, (long)getpid());
+    if (!tmpdir[0]) {
+        snprintf(tmpdir, sizeof tmpdir, "build/tests/tmp-%s-%ld", prog, (long)getpid());
         mkdir("build", 0755);
         mkdir("build/tests", 0755);
-        mkdir(dir, 0755);
+        mkdir(tmpdir, 0755);
     }
-    return dir;
+    return tmpdir;
 }
 
 void check_skip(const char *why)

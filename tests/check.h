@@ -39,7 +39,8 @@ char *check_slurp(const char *path, size_t *len);
 /* 1 when two files exist and hold the same bytes. */
 int check_same_file(const char *a, const char *b);
 
-/* A per-run scratch folder (created on first use). */
+/* A per-run scratch folder (created on first use; check_summary removes
+ * it when every check passed and keeps it when one failed). */
 const char *check_tmpdir(void);
 
 /* Report that prerequisites are missing and exit 77 (skip). */
