@@ -301,11 +301,55 @@ void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t thr
     lam_segment_edge_areas(contrast, a->channels, threads, a->seg);
 }
 
+#define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */
+#define FAINT_OXIDE_STEP 1.0 /* nm */
+#define FAINT_LAYERS 3       /* the counts a device needs */
+#define FAINT_FLOOR 0.3      /* of the monolayer's largest channel at the prior's centre */
+
+/* The segmentation scales its thresholds with the monolayer's contrast at
+ * the prior's centre, and takes regions within 0.3 of its largest channel
+ * of zero for substrate. A TMD's contrast is not monotonic in N and moves
+ * fast with the oxide: WSe2 on a chip of 101 nm sold as 90 shows its 3L
+ * at a third of the 1L's contrast at 90 nm, and the 3L flakes were taken
+ * for substrate. For layered crystals the substrate's tolerance follows
+ * the faintest of 1L..3L (its largest channel) anywhere within 2 sd of
+ * the oxide's prior, but no less than FAINT_FLOOR of the monolayer's:
+ * where a count nearly vanishes (WSe2 near 285 nm) it cannot be told from
+ * the substrate anyway, and residue films would become regions. Returns 0
+ * for other crystals (graphene's monolayer is its faintest count). */
+static double segment_faint_step(run *r)
+{
+    lam_analysis *a = r->a;
+    if (lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_LAYERED)
+        return 0;
+    double one = 0;
+    for (size_t c = 0; c < a->channels; c++)
+        one = fmax(one, fabs(a->ladder.contrast[1][c]));
+    lam_model_point p = lam_estimate_point(a->estimate, 0);
+    const lam_nuisance *ox = &a->estimate->image[0].oxide;
+    double best = one, half = FAINT_OXIDE_SDS * ox->prior_sd;
+    for (double d = ox->prior_mean - half; d <= ox->prior_mean + half; d += FAINT_OXIDE_STEP) {
+        lam_prediction pr;
+        p.v[LAM_MP_OXIDE] = d;
+        if (!(d > 0) || lam_model_eval_point(r->model, &p, FAINT_LAYERS, &pr, NULL))
+            continue;
+        lam_estimate_observe(a->estimate, &pr);
+        for (size_t n = 1; n <= FAINT_LAYERS && n <= pr.max_layers; n++) {
+            double m = 0;
+            for (size_t c = 0; c < a->channels; c++)
+                m = fmax(m, fabs(pr.contrast[n][c]));
+            best = fmin(best, m);
+        }
+    }
+    return fmax(best, FAINT_FLOOR * one);
+}
+
 /* Regions of uniform contrast (model-independent), measured. */
 static lam_status segment_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
+    so.faint_step = segment_faint_step(r);
     so.threads = r->threads;
     file_steps(r->img, &a->substrate, a->channels, 1.0, a->file_step);
     file_steps(r->img, &a->substrate, a->channels,

@@ -900,6 +900,8 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     double tol[3], step1 = 0;
     for (size_t c = 0; c < channels; c++)
         step1 = fmax(step1, fabs(c1[c]));
+    if (opt->faint_step > 0)
+        step1 = fmin(step1, opt->faint_step);
     double steps = lam_image_block_coded(img) ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
     for (size_t c = 0; c < 3; c++)
         tol[c] = fmax(fmax(fmax(SUBSTRATE_FRACTION * step1, SUBSTRATE_MIN), 4 * scatter[c]),

@@ -39,6 +39,12 @@ typedef struct lam_segment_options {
      * noise grows as sqrt(b), flat-field residuals as b, b = 1 - C: with
      * bright_scaling the thresholds grow so (0: off, as for graphene) */
     int bright_scaling;
+    /* lam_segment_uniform: the largest channel's contrast of the faintest
+     * count the material may show, when fainter than the c1 the
+     * thresholds scale with (a TMD's 3L can be; lamina/analyze.c
+     * segment_step); regions within 0.3 of it of zero are substrate. 0:
+     * c1's (0) */
+    double faint_step;
 } lam_segment_options;
 
 /* Interior pixels lie at least this far (city-block) from the region's
