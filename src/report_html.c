@@ -42,6 +42,121 @@ static void html_warnings(FILE *f, const char *t)
     }
 }
 
+/* Item i (from 0) of an image's ';'-joined list (the separator rule of
+ * html_warnings) into out; "" when there is none. */
+static void list_item(const char *t, size_t i, char *out, size_t n)
+{
+    size_t at = 0, item = 0;
+    for (; *t; t++) {
+        if (t[0] == ';' && t[1] && t[1] != ' ') {
+            if (item++ == i)
+                break;
+            continue;
+        }
+        if (item == i && at + 1 < n)
+            out[at++] = *t;
+    }
+    out[at] = '\0';
+}
+
+/* The place of code in an image's ';'-joined codes, or -1. */
+static long code_place(const char *codes, const char *code)
+{
+    char one[24];
+    for (size_t i = 0;; i++) {
+        list_item(codes, i, one, sizeof one);
+        if (!one[0])
+            return -1;
+        if (!strcmp(one, code))
+            return (long)i;
+    }
+}
+
+#define BOX_CODES 24 /* distinct warning codes the box groups (there are fewer) */
+
+typedef struct code_group {
+    char code[24];
+    size_t images, first; /* how many carry it; the first that does */
+} code_group;
+
+/* The run's warning codes, each with the images that carry it. */
+static size_t group_codes(const lam_catalog *c, code_group *g)
+{
+    size_t ng = 0;
+    for (size_t k = 0; k < c->n_images; k++)
+        for (size_t i = 0;; i++) {
+            char code[24];
+            list_item(c->images[k].warning_codes, i, code, sizeof code);
+            if (!code[0])
+                break;
+            size_t j = 0;
+            while (j < ng && strcmp(g[j].code, code))
+                j++;
+            if (j == ng && ng == BOX_CODES)
+                continue;
+            if (j == ng) {
+                snprintf(g[j].code, sizeof g[j].code, "%s", code);
+                g[j].images = 0, g[j].first = k, ng++;
+            }
+            g[j].images++;
+        }
+    return ng;
+}
+
+/* One code's entry: how many images, one image's message for example, the
+ * images' names folded. */
+static void code_entry(FILE *f, const lam_catalog *c, const code_group *g)
+{
+    const lam_catalog_image *first = &c->images[g->first];
+    char msg[1024];
+    list_item(first->warnings, (size_t)code_place(first->warning_codes, g->code), msg, sizeof msg);
+    fputs("<li><b>", f);
+    html(f, g->code);
+    fprintf(f, "</b>, %zu image%s; %s", g->images, g->images == 1 ? "" : "s",
+            g->images == 1 ? "" : "e.g. ");
+    html(f, first->stem);
+    fputs(": ", f);
+    html(f, msg);
+    fputs("<details><summary>images</summary>", f);
+    for (size_t k = 0, n = 0; k < c->n_images; k++)
+        if (code_place(c->images[k].warning_codes, g->code) >= 0) {
+            fputs(n++ ? ", " : "", f);
+            html(f, c->images[k].stem);
+        }
+    fputs("</details></li>\n", f);
+}
+
+/* The Warnings box: one entry per warning code (code_entry); then, image
+ * by image, the catalogue's own notes and the messages of results written
+ * without codes. A scan of a thousand tiles left to defaults would
+ * otherwise open with a thousand paragraphs; every message stays in the
+ * images table. */
+static void warnings_box(FILE *f, const lam_catalog *c)
+{
+    code_group g[BOX_CODES];
+    size_t ng = group_codes(c, g), loose = 0;
+    for (size_t k = 0; k < c->n_images; k++)
+        loose += (c->images[k].warnings[0] && !c->images[k].warning_codes[0]) ||
+                 c->images[k].own_warnings[0];
+    if (!ng && !loose)
+        return;
+    fputs("<div class=\"warn\"><b>Warnings</b><ul>\n", f);
+    for (size_t j = 0; j < ng; j++)
+        code_entry(f, c, &g[j]);
+    for (size_t k = 0; k < c->n_images; k++) {
+        const lam_catalog_image *im = &c->images[k];
+        int uncoded = im->warnings[0] && !im->warning_codes[0];
+        if (!uncoded && !im->own_warnings[0])
+            continue;
+        fputs("<li>", f);
+        html(f, im->stem);
+        fputs(": ", f);
+        html_warnings(f, uncoded ? im->warnings : im->own_warnings);
+        fputs("</li>\n", f);
+    }
+    fputs("</ul></div>\n", f);
+}
+
 /* A relative URL: path segments percent-encoded except unreserved bytes. */
 static void url(FILE *f, const char *t)
 {
@@ -151,19 +266,7 @@ static void head(FILE *f, const lam_catalog *c, const lam_run_report_options *o,
                "counts are model estimates: confirm by Raman spectroscopy or AFM before "
                "fabrication. Click a column head to sort.</p>\n",
             c->n_images, by[0], by[1], by[2], by[3], by[4] + by[5] + by[6], LAMINA_VERSION);
-    int any = 0;
-    for (size_t k = 0; k < c->n_images; k++)
-        if (c->images[k].warnings[0]) {
-            fputs(any ? "" : "<div class=\"warn\"><b>Warnings</b><ul>\n", f);
-            any = 1;
-            fputs("<li>", f);
-            html(f, c->images[k].stem);
-            fputs(": ", f);
-            html_warnings(f, c->images[k].warnings);
-            fputs("</li>\n", f);
-        }
-    if (any)
-        fputs("</ul></div>\n", f);
+    warnings_box(f, c);
 }
 
 static void svg_tiles(FILE *f, const lam_catalog *c, const lam_chipmap_view *v, const char *dir)

@@ -137,8 +137,11 @@ case "$codes" in
     *) bad "candidate rows without warning codes: $codes" ;;
 esac
 shown=$(sed 's/title="[^"]*"//g' "$T/w/report.html" | grep -o 'typical values were assumed' | wc -l)
-[ "$shown" -eq 4 ] && ok "each image's message shown twice (Warnings box, images table), not per candidate" \
+[ "$shown" -eq 3 ] && ok "the message shown once in the Warnings box and per image in the images table, not per candidate" \
     || bad "the message is shown $shown times for 2 images"
+grep -q '<li><b>setup-defaults</b>, 2 images; e.g. ' "$T/w/report.html" \
+    && ok "the Warnings box groups the two images under their code" \
+    || bad "Warnings box: $(grep -o '<div class="warn">.\{0,200\}' "$T/w/report.html")"
 expect_rc 0 "chip map from the results folder" "$BIN" map "$T/p" -o "$T/chip.png"
 "$BIN" inspect "$T/chip.png" > /dev/null 2>&1 && ok "chip map PNG reads back" || bad "chip map PNG"
 expect_rc 2 "map of a folder without positions" "$BIN" map "$T/b" -o "$T/chip2.svg"
