@@ -103,20 +103,37 @@ static size_t group_codes(const lam_catalog *c, code_group *g)
     return ng;
 }
 
+/* How many items an image's ';'-joined list holds. */
+static size_t list_count(const char *t)
+{
+    char one[2];
+    size_t n = 0;
+    for (;; n++) {
+        list_item(t, n, one, sizeof one);
+        if (!one[0])
+            return n;
+    }
+}
+
 /* One code's entry: how many images, one image's message for example, the
- * images' names folded. */
+ * images' names folded. The example is taken by position only when the
+ * image's codes and messages pair up one to one (a message with its own
+ * ';', or a warning without a code, would shift them): else none. */
 static void code_entry(FILE *f, const lam_catalog *c, const code_group *g)
 {
     const lam_catalog_image *first = &c->images[g->first];
-    char msg[1024];
-    list_item(first->warnings, (size_t)code_place(first->warning_codes, g->code), msg, sizeof msg);
+    char msg[1024] = "";
+    size_t codes = list_count(first->warning_codes), own = list_count(first->own_warnings);
+    if (list_count(first->warnings) == codes + own)
+        list_item(first->warnings, (size_t)code_place(first->warning_codes, g->code), msg,
+                  sizeof msg);
     fputs("<li><b>", f);
     html(f, g->code);
     fprintf(f, "</b>, %zu image%s; %s", g->images, g->images == 1 ? "" : "s",
             g->images == 1 ? "" : "e.g. ");
     html(f, first->stem);
     fputs(": ", f);
-    html(f, msg);
+    html(f, msg[0] ? msg : "its message is in the images table");
     fputs("<details><summary>images</summary>", f);
     for (size_t k = 0, n = 0; k < c->n_images; k++)
         if (code_place(c->images[k].warning_codes, g->code) >= 0) {
@@ -362,7 +379,10 @@ static void candidate_warnings(FILE *f, const lam_catalog_image *im, int after_f
     html(f, im->warnings);
     fputs("\">\u26a0\u00a0", f);
     for (const char *t = im->warning_codes; *t; t++)
-        fputs(*t == ';' ? ", " : (char[2]){*t, 0}, f);
+        if (*t == ';')
+            fputs(", ", f);
+        else
+            html(f, (char[2]){*t, 0});
     if (im->own_warnings[0]) {
         fputs(", ", f);
         html(f, im->own_warnings);

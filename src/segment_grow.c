@@ -725,9 +725,9 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
     free(L.code);
     free(L.pairs);
     free(L.start);
-    free(m.slots);
     if (!m.slots)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    free(m.slots);
     *regions = number_regions(seg->cls, m.node, n);
     return LAM_OK;
 }
