@@ -143,6 +143,15 @@ static void code_entry(FILE *f, const lam_catalog *c, const code_group *g)
     fputs("</details></li>\n", f);
 }
 
+/* What the box lists for an image by itself: all its messages when its
+ * results carry no codes, else the catalogue's own notes; NULL for none. */
+static const char *loose_warnings(const lam_catalog_image *im)
+{
+    if (im->warnings[0] && !im->warning_codes[0])
+        return im->warnings;
+    return im->own_warnings[0] ? im->own_warnings : NULL;
+}
+
 /* The Warnings box: one entry per warning code (code_entry); then, image
  * by image, the catalogue's own notes and the messages of results written
  * without codes. A scan of a thousand tiles left to defaults would
@@ -153,22 +162,20 @@ static void warnings_box(FILE *f, const lam_catalog *c)
     code_group g[BOX_CODES];
     size_t ng = group_codes(c, g), loose = 0;
     for (size_t k = 0; k < c->n_images; k++)
-        loose += (c->images[k].warnings[0] && !c->images[k].warning_codes[0]) ||
-                 c->images[k].own_warnings[0];
+        loose += loose_warnings(&c->images[k]) != NULL;
     if (!ng && !loose)
         return;
     fputs("<div class=\"warn\"><b>Warnings</b><ul>\n", f);
     for (size_t j = 0; j < ng; j++)
         code_entry(f, c, &g[j]);
     for (size_t k = 0; k < c->n_images; k++) {
-        const lam_catalog_image *im = &c->images[k];
-        int uncoded = im->warnings[0] && !im->warning_codes[0];
-        if (!uncoded && !im->own_warnings[0])
+        const char *t = loose_warnings(&c->images[k]);
+        if (!t)
             continue;
         fputs("<li>", f);
-        html(f, im->stem);
+        html(f, c->images[k].stem);
         fputs(": ", f);
-        html_warnings(f, uncoded ? im->warnings : im->own_warnings);
+        html_warnings(f, t);
         fputs("</li>\n", f);
     }
     fputs("</ul></div>\n", f);

@@ -246,7 +246,7 @@ static void difference_stats(const lam_image *img, size_t channels, const double
 #define MERGE_SIGMAS 3.0
 #define PAIR_BUCKETS 1024
 #define PAIR_RANGE 6.0      /* pairs differing by more than 6 deltas never merge */
-#define ROOT 0x80000000u    /* a root's first word: this bit | its region's pixel count */
+#define ROOT 0x80000000u    /* a root's word: this bit | its slot */
 
 #define SINGLE 0x7fffffffu /* a root's slot when it is one pixel (its sums: the pixel's values) */
 
@@ -617,6 +617,11 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
     return nb;
 }
 
+static size_t band_count(const pair_lists *L)
+{
+    return (L->strips + BAND_STRIPS - 1) / BAND_STRIPS;
+}
+
 /* Pairs in batches, so that the nodes of later pairs are fetched while
  * earlier ones merge: the loop waits for memory, not for arithmetic. */
 static void merge_batch(merge_state *m, const uint32_t *batch, size_t nb, size_t w,
@@ -688,13 +693,13 @@ static void merge_borders(merge_state *m, const pair_lists *L, size_t w, size_t 
 static void merge_pairs(merge_state *m, const pair_lists *L, size_t w, size_t threads)
 {
     band_ctx x = {m, L, w};
-    size_t bands = (L->strips + BAND_STRIPS - 1) / BAND_STRIPS;
+    size_t bands = band_count(L);
     lam_parallel_for(bands, threads, merge_bands, &x);
     merge_borders(m, L, w, bands);
 }
 
-/* The regions of the provisional pixels into seg->label (replaced by the
- * shrunk node array). */
+/* The regions of the provisional pixels into seg->label (the union-find
+ * runs in it and leaves the region ids). */
 static lam_status grow(const lam_image *img, size_t channels, const double *delta,
                        const double *sigma, int bright, lam_segmentation *seg, size_t threads,
                        uint32_t *regions, lam_error *err)
@@ -715,7 +720,7 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
     lam_status st = sorted_pairs(img, seg->cls, &m, threads, &L, err);
     if (st)
         return st;
-    size_t bands = (L.strips + BAND_STRIPS - 1) / BAND_STRIPS;
+    size_t bands = band_count(&L);
     m.band_slots = (BAND_STRIPS * L.rows * w + 1) / 2;
     /* no huge-page advice: untouched slots then cost no memory (only the
      * small pages that merges take are faulted in) */
