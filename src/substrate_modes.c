@@ -2,8 +2,9 @@
  *
  * Each uniform tile is a point (r, u, v): u = ln R/G and v = ln B/G (the
  * colour, which vignetting and lamp gradients leave alone) and r its
- * brightness relative to a smooth robust fit over all uniform tiles (the
- * flat field, roughly removed). Graphene layers move these points by
+ * brightness relative to a smooth surface fitted over all uniform tiles,
+ * with an offset per brightness level (the flat field, roughly removed;
+ * see brightness_residuals). Graphene layers move these points by
  * their contrast: mostly the colour on 285 nm oxide, mostly the
  * brightness on 90 nm. The dense clusters ("modes") are found by counting
  * neighbours; the substrate is the mode against which the others look
@@ -56,49 +57,158 @@ typedef struct mode {
     size_t count;
 } mode;
 
-/* Brightness of each uniform tile against a robust smooth fit of
- * ln(sum of channels) over all of them. */
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* Brightness of each uniform tile against a smooth surface: the flat
+ * field, roughly. A robust fit over all uniform tiles is the start; where
+ * flakes of very different brightness cover much of the picture (a TMD
+ * bilayer is 0.8 darker than the oxide) it bends between them and leaves
+ * the vignetting in every cluster, which then splits into several modes.
+ * So the fit is repeated with each brightness level found in the
+ * residuals given its own offset: vignetting multiplies every surface
+ * alike, so one shape serves them all. */
+#define LEVELS_MAX 4
+#define LEVEL_HALF 0.1        /* a level's tiles: residuals within this (ln) of its centre */
+#define LEVEL_MIN_SHARE 0.08  /* a level holds at least this share of the sampled tiles */
+#define LEVEL_PASSES 3
+
+typedef struct bright_sample {
+    size_t used;
+    double (*basis)[LAM_SUBSTRATE_TERMS];
+    double *y;  /* ln of the sum of channels */
+    int *level; /* -1: in no level */
+} bright_sample;
+
+static int sample_tiles(const tile_stat *ts, size_t n, const lam_substrate *s, bright_sample *bs)
+{
+    size_t m = 0, k = 0;
+    for (size_t i = 0; i < n; i++)
+        m += ts[i].uniform != 0;
+    size_t every = m > 1500 ? (m + 1499) / 1500 : 1;
+    bs->used = 0;
+    bs->basis = malloc((m / every + 1) * sizeof *bs->basis);
+    bs->y = malloc((m / every + 1) * sizeof *bs->y);
+    bs->level = calloc(m / every + 1, sizeof *bs->level);
+    if (!bs->basis || !bs->y || !bs->level)
+        return 0;
+    for (size_t i = 0; i < n; i++) {
+        if (!ts[i].uniform || k++ % every)
+            continue;
+        lam__substrate_basis(s, ts[i].cx, ts[i].cy, bs->basis[bs->used]);
+        bs->y[bs->used++] = log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]);
+    }
+    return bs->used > 2 * LAM_SUBSTRATE_TERMS;
+}
+
+static double surface_at(const double *coef, const double *b)
+{
+    double f = 0;
+    for (int t = 0; t < LAM_SUBSTRATE_TERMS; t++)
+        f += coef[t] * b[t];
+    return f;
+}
+
+/* Robust fit of the surface (coef) with an offset per level beyond the
+ * first; tiles in no level are left out. 0 when the fit fails. */
+static int fit_surface(const bright_sample *bs, size_t levels, double *coef)
+{
+    size_t p = LAM_SUBSTRATE_TERMS + (levels ? levels - 1 : 0), rows = 0;
+    for (size_t j = 0; j < bs->used; j++)
+        rows += bs->level[j] >= 0;
+    if (rows <= 2 * p)
+        return 0;
+    gsl_matrix *X = gsl_matrix_calloc(rows, p), *cov = gsl_matrix_alloc(p, p);
+    gsl_vector *y = gsl_vector_alloc(rows), *c = gsl_vector_alloc(p);
+    gsl_multifit_robust_workspace *ws =
+        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, rows, p);
+    int ok = X && cov && y && c && ws;
+    for (size_t j = 0, r = 0; ok && j < bs->used; j++) {
+        if (bs->level[j] < 0)
+            continue;
+        for (int t = 0; t < LAM_SUBSTRATE_TERMS; t++)
+            gsl_matrix_set(X, r, (size_t)t, bs->basis[j][t]);
+        if (bs->level[j] > 0)
+            gsl_matrix_set(X, r, LAM_SUBSTRATE_TERMS + (size_t)bs->level[j] - 1, 1.0);
+        gsl_vector_set(y, r++, bs->y[j]);
+    }
+    ok = ok && !gsl_multifit_robust(X, y, c, cov, ws);
+    for (int t = 0; ok && t < LAM_SUBSTRATE_TERMS; t++)
+        coef[t] = gsl_vector_get(c, (size_t)t);
+    gsl_multifit_robust_free(ws);
+    gsl_matrix_free(X);
+    gsl_matrix_free(cov);
+    gsl_vector_free(y);
+    gsl_vector_free(c);
+    return ok;
+}
+
+/* The brightness levels of the residuals from the surface 'coef': the
+ * densest residual (most others within LEVEL_HALF), then the densest
+ * beyond twice LEVEL_HALF of those taken, while a level holds
+ * LEVEL_MIN_SHARE of the tiles. Each tile joins the nearest level within
+ * LEVEL_HALF. 'e' holds 2 x used scratch values. Returns the count. */
+static size_t find_levels(bright_sample *bs, const double *coef, double *e)
+{
+    double centre[LEVELS_MAX], *sorted = e + bs->used;
+    size_t levels = 0, need = (size_t)ceil(LEVEL_MIN_SHARE * (double)bs->used);
+    for (size_t j = 0; j < bs->used; j++)
+        sorted[j] = e[j] = bs->y[j] - surface_at(coef, bs->basis[j]);
+    qsort(sorted, bs->used, sizeof *sorted, cmp_double);
+    while (levels < LEVELS_MAX) {
+        size_t best = 0, bj = 0, lo = 0, hi = 0;
+        for (size_t j = 0; j < bs->used; j++) {
+            while (sorted[lo] < sorted[j] - LEVEL_HALF)
+                lo++;
+            while (hi < bs->used && sorted[hi] <= sorted[j] + LEVEL_HALF)
+                hi++;
+            int taken = 0;
+            for (size_t k = 0; k < levels; k++)
+                taken |= fabs(sorted[j] - centre[k]) <= 2 * LEVEL_HALF;
+            if (!taken && hi - lo > best)
+                best = hi - lo, bj = j;
+        }
+        if (best < need || best == 0)
+            break;
+        centre[levels++] = sorted[bj];
+    }
+    for (size_t j = 0; j < bs->used; j++) {
+        bs->level[j] = -1;
+        double bd = LEVEL_HALF;
+        for (size_t k = 0; k < levels; k++)
+            if (fabs(e[j] - centre[k]) <= bd)
+                bd = fabs(e[j] - centre[k]), bs->level[j] = (int)k;
+    }
+    return levels;
+}
+
 static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substrate *s,
                                  double *r)
 {
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++)
-        m += ts[i].uniform != 0;
-    size_t every = m > 1500 ? (m + 1499) / 1500 : 1, k = 0, used = 0;
-    gsl_matrix *X = gsl_matrix_alloc(m / every + 1, LAM_SUBSTRATE_TERMS);
-    gsl_vector *y = gsl_vector_alloc(m / every + 1), *c = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
-    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
-    double b[LAM_SUBSTRATE_TERMS];
-    for (size_t i = 0; i < n && X && y; i++) {
-        if (!ts[i].uniform || k++ % every)
-            continue;
-        lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
-        for (int t = 0; t < LAM_SUBSTRATE_TERMS; t++)
-            gsl_matrix_set(X, used, (size_t)t, b[t]);
-        gsl_vector_set(y, used++, log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]));
-    }
-    int ok = X && y && c && cov && used > 2 * LAM_SUBSTRATE_TERMS;
-    if (ok) {
-        gsl_matrix_view Xv = gsl_matrix_submatrix(X, 0, 0, used, LAM_SUBSTRATE_TERMS);
-        gsl_vector_view yv = gsl_vector_subvector(y, 0, used);
-        gsl_multifit_robust_workspace *ws =
-            gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, used, LAM_SUBSTRATE_TERMS);
-        ok = ws && !gsl_multifit_robust(&Xv.matrix, &yv.vector, c, cov, ws);
-        gsl_multifit_robust_free(ws);
+    bright_sample bs = {0};
+    double coef[LAM_SUBSTRATE_TERMS] = {0};
+    int ok = sample_tiles(ts, n, s, &bs) && fit_surface(&bs, 0, coef);
+    double *e = ok ? malloc(2 * bs.used * sizeof *e) : NULL;
+    for (int pass = 0; e && pass < LEVEL_PASSES; pass++) {
+        double next[LAM_SUBSTRATE_TERMS];
+        size_t levels = find_levels(&bs, coef, e);
+        if (levels && fit_surface(&bs, levels, next))
+            memcpy(coef, next, sizeof coef);
     }
     for (size_t i = 0; i < n; i++) {
         if (!ts[i].uniform)
             continue;
-        double f = 0;
+        double b[LAM_SUBSTRATE_TERMS];
         lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
-        for (int t = 0; t < LAM_SUBSTRATE_TERMS && ok; t++)
-            f += gsl_vector_get(c, (size_t)t) * b[t];
-        r[i] = log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]) - (ok ? f : 0);
+        r[i] = log(ts[i].mean[0] + ts[i].mean[1] + ts[i].mean[2]) - (ok ? surface_at(coef, b) : 0);
     }
-    gsl_matrix_free(X);
-    gsl_vector_free(y);
-    gsl_vector_free(c);
-    gsl_matrix_free(cov);
+    free(e);
+    free(bs.basis);
+    free(bs.y);
+    free(bs.level);
 }
 
 static int in_box(const tile_stat *a, double ra, const tile_stat *b, double rb, double scale)
@@ -311,11 +421,6 @@ static void roi_mode(const tile_stat *ts, size_t n, const double *r,
         md->r /= (double)md->count, md->u /= (double)md->count, md->v /= (double)md->count;
 }
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return x < y ? -1 : x > y;
-}
 
 /* 1.4826 x the median absolute distance of tiles near a mode in one
  * coordinate (0 brightness, 1 u, 2 v): the mode's own spread. */

@@ -152,6 +152,27 @@ static void test_tmd_faint_count(const char *dir)
                t.confident);
 }
 
+/* Scene 9308 (WSe2, n,k of Gu 2019, JPEG, a chip of 78.5 nm sold as 90):
+ * monolayers and bilayers, the bilayers 0.8 darker than the oxide, cover
+ * a third of the picture. The robust brightness surface fitted over all
+ * uniform tiles bent between the three brightnesses, so the oxide's tiles
+ * lay 0.4 apart in brightness and split into three modes; the bilayer's
+ * mode was the largest and the analysis refused the image ("no bare
+ * substrate found"). Now the surface is fitted with an offset per
+ * brightness level (substrate_modes.c). */
+static void test_tmd_dense_flakes(const char *dir)
+{
+    robust_case c = make_case(SYNTH_XTAL_WSE2, 1, 90);
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 90;
+    robust_tally t;
+    memset(&t, 0, sizeof t);
+    if (!check_int(robust_run(&c, 9308, dir, &t, stdout), 0, "WSe2 scene 9308 analysed"))
+        return;
+    check_true(t.flakes >= 10 && t.right == t.flakes, "its 1-3L flakes counted right (%zu of %zu)",
+               t.right, t.flakes);
+}
+
 int main(void)
 {
     lam_error_init_gsl();
@@ -166,5 +187,6 @@ int main(void)
     test_hbn_jpeg_segmentation(dir);
     test_tmd(dir);
     test_tmd_faint_count(dir);
+    test_tmd_dense_flakes(dir);
     return check_summary();
 }
