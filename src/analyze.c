@@ -302,7 +302,8 @@ void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t thr
 }
 
 #define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */
-#define FAINT_OXIDE_STEP 1.0 /* nm */
+#define FAINT_OXIDE_STEP 1.0 /* nm, or coarser: */
+#define FAINT_MAX_STEPS 60    /* oxide values tried at most (a 500 nm sd would be 2000) */
 #define FAINT_LAYERS 3       /* the counts a device needs */
 #define FAINT_FLOOR 0.3      /* of the monolayer's largest channel at the prior's centre */
 
@@ -327,14 +328,18 @@ static double segment_faint_step(run *r)
         one = fmax(one, fabs(a->ladder.contrast[1][c]));
     lam_model_point p = lam_estimate_point(a->estimate, 0);
     const lam_nuisance *ox = &a->estimate->image[0].oxide;
-    double best = one, half = FAINT_OXIDE_SDS * ox->prior_sd;
-    for (double d = ox->prior_mean - half; d <= ox->prior_mean + half; d += FAINT_OXIDE_STEP) {
+    /* a fixed oxide (--no-oxide-fit) is the only one; counts above
+     * --max-layers are not reported, so their faintness does not matter */
+    double best = one, half = ox->fitted ? FAINT_OXIDE_SDS * ox->prior_sd : 0;
+    double step = fmax(FAINT_OXIDE_STEP, 2 * half / FAINT_MAX_STEPS);
+    size_t layers = a->max_layers < FAINT_LAYERS ? a->max_layers : FAINT_LAYERS;
+    for (double d = ox->prior_mean - half; d <= ox->prior_mean + half; d += step) {
         lam_prediction pr;
         p.v[LAM_MP_OXIDE] = d;
-        if (!(d > 0) || lam_model_eval_point(r->model, &p, FAINT_LAYERS, &pr, NULL))
+        if (!(d > 0) || lam_model_eval_point(r->model, &p, layers, &pr, NULL))
             continue;
         lam_estimate_observe(a->estimate, &pr);
-        for (size_t n = 1; n <= FAINT_LAYERS && n <= pr.max_layers; n++) {
+        for (size_t n = 1; n <= layers && n <= pr.max_layers; n++) {
             double m = 0;
             for (size_t c = 0; c < a->channels; c++)
                 m = fmax(m, fabs(pr.contrast[n][c]));
