@@ -28,6 +28,15 @@ static robust_case make_case(synth_crystal x, int source, double oxide)
     return c;
 }
 
+/* The same in JPEG of quality 90 (4:2:0), as `make accuracy-crystals`. */
+static robust_case jpeg_case(synth_crystal x, int source, double oxide)
+{
+    robust_case c = make_case(x, source, oxide);
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 90;
+    return c;
+}
+
 /* Render and analyse one hBN scene, added to 'total'. */
 static void hbn_scene(const robust_case *c, unsigned long long seed, const char *dir,
                       hbn_tally *total)
@@ -70,9 +79,7 @@ static void test_hbn(const char *dir)
  * jpeg90". */
 static void test_hbn_jpeg(const char *dir)
 {
-    robust_case c = make_case(SYNTH_XTAL_HBN, 0, 285);
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 90;
+    robust_case c = jpeg_case(SYNTH_XTAL_HBN, 0, 285);
     hbn_tally total;
     memset(&total, 0, sizeof total);
     for (unsigned long long k = 0; k < 4; k++)
@@ -99,9 +106,7 @@ static void test_hbn_jpeg_segmentation(const char *dir)
     hbn_tally total;
     memset(&total, 0, sizeof total);
     for (size_t i = 0; i < 2; i++) {
-        robust_case c = make_case(SYNTH_XTAL_HBN, cases[i].source, cases[i].oxide);
-        c.fmt = SYNTH_FMT_JPEG;
-        c.quality = 90;
+        robust_case c = jpeg_case(SYNTH_XTAL_HBN, cases[i].source, cases[i].oxide);
         hbn_scene(&c, cases[i].seed, dir, &total);
     }
     crystals_print(stdout, "hBN JPEG scenes 3101 and 4100", &total);
@@ -131,6 +136,14 @@ static void test_tmd(const char *dir)
                total.right, total.flakes);
 }
 
+/* Render and analyse one TMD scene into a fresh tally; 0 if that failed. */
+static int tmd_scene(const robust_case *c, unsigned long long seed, const char *dir,
+                     robust_tally *t)
+{
+    memset(t, 0, sizeof *t);
+    return check_int(robust_run(c, seed, dir, t, stdout), 0, "TMD scene %llu analysed", seed);
+}
+
 /* A TMD's contrast is not monotonic in N and moves fast with the oxide:
  * scene 8804 (WSe2, n,k of Hsu 2019, chip of 101.2 nm sold as 90) has
  * three 3L flakes at contrast (0.05, 0.13, 0.05), a third of the 1L's at
@@ -142,8 +155,7 @@ static void test_tmd_faint_count(const char *dir)
 {
     robust_case c = make_case(SYNTH_XTAL_WSE2, 0, 90);
     robust_tally t;
-    memset(&t, 0, sizeof t);
-    if (!check_int(robust_run(&c, 8804, dir, &t, stdout), 0, "WSe2 scene 8804 analysed"))
+    if (!tmd_scene(&c, 8804, dir, &t))
         return;
     check_true(t.by_n[3] == 3 && t.right_n[3] == 3, "its three 3L flakes found and counted (%zu of %zu)",
                t.right_n[3], t.by_n[3]);
@@ -162,12 +174,9 @@ static void test_tmd_faint_count(const char *dir)
  * brightness level (substrate_modes.c). */
 static void test_tmd_dense_flakes(const char *dir)
 {
-    robust_case c = make_case(SYNTH_XTAL_WSE2, 1, 90);
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 90;
+    robust_case c = jpeg_case(SYNTH_XTAL_WSE2, 1, 90);
     robust_tally t;
-    memset(&t, 0, sizeof t);
-    if (!check_int(robust_run(&c, 9308, dir, &t, stdout), 0, "WSe2 scene 9308 analysed"))
+    if (!tmd_scene(&c, 9308, dir, &t))
         return;
     check_true(t.flakes >= 10 && t.right == t.flakes, "its 1-3L flakes counted right (%zu of %zu)",
                t.right, t.flakes);
