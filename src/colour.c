@@ -195,6 +195,76 @@ lam_status lam_table_spectrum_load(const char *path, size_t columns,
     return lam_table_spectrum_load_ex(path, columns, 0, out, err);
 }
 
+/* The header line: must start with wavelength_nm; with columns == 0 it
+ * sets the count of value columns from the names (a camera: 1 to 3). */
+static lam_status table_header(const char *p, size_t lineno, size_t *columns, lam_error *err)
+{
+    if (strncasecmp(p, "wavelength_nm", 13))
+        return lam_error_set(err, LAM_EFORMAT, "line %zu: expected a header starting "
+                             "with wavelength_nm", lineno);
+    if (*columns)
+        return LAM_OK;
+    for (const char *q = p; *q; q++)
+        *columns += *q == ',';
+    if (*columns < 1 || *columns > LAM_MAX_CHANNELS)
+        return lam_error_set(err, LAM_EFORMAT, "line %zu: the header names %zu value "
+                             "columns; a camera table has 1 to %d", lineno, *columns,
+                             LAM_MAX_CHANNELS);
+    return LAM_OK;
+}
+
+/* Room for one more row (doubling, at most 100000 rows). */
+static lam_status table_grow(lam_table_spectrum *t, size_t *cap, lam_error *err)
+{
+    if (t->rows < *cap)
+        return LAM_OK;
+    *cap = *cap ? *cap * 2 : 128;
+    if (*cap > 200000)
+        return lam_error_set(err, LAM_ETOOBIG, "more than 100000 rows");
+    double *nn = realloc(t->nm, *cap * sizeof *nn);
+    if (nn)
+        t->nm = nn;
+    double *nv = realloc(t->value, *cap * t->columns * sizeof *nv);
+    if (nv)
+        t->value = nv;
+    if (!nn || !nv)
+        return lam_error_set(err, LAM_ENOMEM, "cannot grow a spectrum table");
+    return LAM_OK;
+}
+
+/* One data row into row t->rows: the wavelength (> 0, increasing) and
+ * t->columns values (>= 0 unless allow_negative), comma-separated. */
+static lam_status table_row(char *p, size_t lineno, int allow_negative, lam_table_spectrum *t,
+                            lam_error *err)
+{
+    size_t columns = t->columns;
+    lam_status st = LAM_OK;
+    char *end = p;
+    for (size_t c = 0; c <= columns && !st; c++) {
+        errno = 0;
+        double v = strtod(end, &end);
+        if (errno == ERANGE && fabs(v) < 1e-300) /* underflow: a value of ~0 is fine */
+            errno = 0, v = 0;
+        if (errno || !isfinite(v) || (c == 0 && v <= 0) || (c > 0 && v < 0 && !allow_negative))
+            st = lam_error_set(err, LAM_EFORMAT, "line %zu, column %zu: need a finite number%s",
+                               lineno, c + 1, c == 0 ? " > 0" : allow_negative ? "" : " >= 0");
+        while (*end == ' ' || *end == '\t')
+            end++;
+        if (!st && c < columns && *end++ != ',')
+            st = lam_error_set(err, LAM_EFORMAT, "line %zu: expected %zu columns", lineno,
+                               columns + 1);
+        if (!st) {
+            if (c == 0)
+                t->nm[t->rows] = v;
+            else
+                t->value[t->rows * columns + c - 1] = v;
+        }
+    }
+    if (!st && t->rows && t->nm[t->rows] <= t->nm[t->rows - 1])
+        st = lam_error_set(err, LAM_EFORMAT, "line %zu: wavelengths must increase", lineno);
+    return st;
+}
+
 lam_status lam_table_spectrum_load_ex(const char *path, size_t columns, int allow_negative,
                                       lam_table_spectrum *out, lam_error *err)
 {
@@ -221,63 +291,10 @@ lam_status lam_table_spectrum_load_ex(const char *path, size_t columns, int allo
             continue;
         if (!header) {
             header = 1;
-            if (strncasecmp(p, "wavelength_nm", 13))
-                st = lam_error_set(err, LAM_EFORMAT, "line %zu: expected a header starting "
-                                   "with wavelength_nm", lineno);
-            if (!st && columns == 0) {
-                /* as many value columns as the header names (a camera: 1 to 3) */
-                for (const char *q = p; *q; q++)
-                    columns += *q == ',';
-                if (columns < 1 || columns > LAM_MAX_CHANNELS)
-                    st = lam_error_set(err, LAM_EFORMAT, "line %zu: the header names %zu value "
-                                       "columns; a camera table has 1 to %d", lineno, columns,
-                                       LAM_MAX_CHANNELS);
-                t.columns = columns;
-            }
+            st = table_header(p, lineno, &t.columns, err);
             continue;
         }
-        if (t.rows == cap) {
-            cap = cap ? cap * 2 : 128;
-            if (cap > 200000) {
-                st = lam_error_set(err, LAM_ETOOBIG, "more than 100000 rows");
-                break;
-            }
-            double *nn = realloc(t.nm, cap * sizeof *nn);
-            if (nn)
-                t.nm = nn;
-            double *nv = realloc(t.value, cap * columns * sizeof *nv);
-            if (nv)
-                t.value = nv;
-            if (!nn || !nv) {
-                st = lam_error_set(err, LAM_ENOMEM, "cannot grow a spectrum table");
-                break;
-            }
-        }
-        char *end = p;
-        for (size_t c = 0; c <= columns && !st; c++) {
-            errno = 0;
-            double v = strtod(end, &end);
-            if (errno == ERANGE && fabs(v) < 1e-300) /* underflow: a value of ~0 is fine */
-                errno = 0, v = 0;
-            if (errno || !isfinite(v) || (c == 0 && v <= 0) || (c > 0 && v < 0 && !allow_negative))
-                st = lam_error_set(err, LAM_EFORMAT,
-                                   "line %zu, column %zu: need a finite number%s", lineno, c + 1,
-                                   c == 0 ? " > 0" : allow_negative ? "" : " >= 0");
-            while (*end == ' ' || *end == '\t')
-                end++;
-            if (!st && c < columns && *end++ != ',')
-                st = lam_error_set(err, LAM_EFORMAT, "line %zu: expected %zu columns", lineno,
-                                   columns + 1);
-            if (!st) {
-                if (c == 0)
-                    t.nm[t.rows] = v;
-                else
-                    t.value[t.rows * columns + c - 1] = v;
-            }
-        }
-        if (!st && t.rows && t.nm[t.rows] <= t.nm[t.rows - 1])
-            st = lam_error_set(err, LAM_EFORMAT, "line %zu: wavelengths must increase", lineno);
-        if (!st)
+        if (!(st = table_grow(&t, &cap, err)) && !(st = table_row(p, lineno, allow_negative, &t, err)))
             t.rows++;
     }
     fclose(fp);

@@ -206,6 +206,46 @@ lam_status lam_material_from_table(const char *name, const double *wl, const dou
     return LAM_OK;
 }
 
+/* One data row "wavelength_nm,n,k" into v. */
+static lam_status nk_row(char *p, size_t lineno, double v[3], lam_error *err)
+{
+    char *end = p;
+    for (int i = 0; i < 3; i++) {
+        errno = 0;
+        v[i] = strtod(end, &end);
+        if (errno || !isfinite(v[i]))
+            return lam_error_set(err, LAM_EFORMAT, "line %zu: not a finite number", lineno);
+        while (*end == ' ' || *end == '\t')
+            end++;
+        if (i < 2 && *end++ != ',')
+            return lam_error_set(err, LAM_EFORMAT, "line %zu: expected 3 comma-separated values",
+                                 lineno);
+    }
+    return LAM_OK;
+}
+
+/* The interleaved rows (wavelength, n, k) as a material named after the
+ * file's base name. */
+static lam_status nk_material(const char *path, const double *buf, size_t rows,
+                              lam_material *out, lam_error *err)
+{
+    double *wl = malloc(rows * 3 * sizeof *wl);
+    if (!wl)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
+    for (size_t i = 0; i < rows; i++) {
+        wl[i] = buf[3 * i];
+        wl[rows + i] = buf[3 * i + 1];
+        wl[2 * rows + i] = buf[3 * i + 2];
+    }
+    const char *base = strrchr(path, '/');
+    lam_status st = lam_material_from_table(base ? base + 1 : path, wl, wl + rows, wl + 2 * rows,
+                                            rows, out, err);
+    if (!st)
+        snprintf(out->file, sizeof out->file, "%s", path);
+    free(wl);
+    return st;
+}
+
 lam_status lam_material_load_csv(const char *path, lam_material *out, lam_error *err)
 {
     FILE *fp = fopen(path, "r");
@@ -234,61 +274,29 @@ lam_status lam_material_load_csv(const char *path, lam_material *out, lam_error 
             continue;
         }
         double v[3];
-        char *end = p;
-        for (int i = 0; i < 3 && !st; i++) {
-            errno = 0;
-            v[i] = strtod(end, &end);
-            if (errno || !isfinite(v[i]))
-                st = lam_error_set(err, LAM_EFORMAT, "line %zu: not a finite number", lineno);
-            while (*end == ' ' || *end == '\t')
-                end++;
-            if (i < 2 && *end++ != ',')
-                st = lam_error_set(err, LAM_EFORMAT, "line %zu: expected 3 comma-separated values",
-                                   lineno);
-        }
-        if (st)
+        if ((st = nk_row(p, lineno, v, err)))
             break;
         if (rows == 100000) {
             st = lam_error_set(err, LAM_ETOOBIG, "more than 100000 rows");
             break;
         }
         if (rows == cap) {
-            cap *= 2;
-            double *nb = realloc(buf, cap * 3 * sizeof *buf);
+            double *nb = realloc(buf, 2 * cap * 3 * sizeof *buf);
             if (!nb) {
                 st = lam_error_set(err, LAM_ENOMEM, "cannot grow the table");
                 break;
             }
-            buf = nb;
+            buf = nb, cap *= 2;
         }
-        buf[3 * rows] = v[0];
-        buf[3 * rows + 1] = v[1];
-        buf[3 * rows + 2] = v[2];
-        rows++;
+        memcpy(&buf[3 * rows++], v, sizeof v);
     }
     fclose(fp);
     if (!buf)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
     if (!st && !header_seen)
         st = lam_error_set(err, LAM_EFORMAT, "empty material table");
-    if (!st) {
-        double *wl = malloc(rows * 3 * sizeof *wl);
-        if (!wl) {
-            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
-        } else {
-            for (size_t i = 0; i < rows; i++) {
-                wl[i] = buf[3 * i];
-                wl[rows + i] = buf[3 * i + 1];
-                wl[2 * rows + i] = buf[3 * i + 2];
-            }
-            const char *base = strrchr(path, '/');
-            st = lam_material_from_table(base ? base + 1 : path, wl, wl + rows, wl + 2 * rows,
-                                         rows, out, err);
-            if (!st)
-                snprintf(out->file, sizeof out->file, "%s", path);
-            free(wl);
-        }
-    }
+    if (!st)
+        st = nk_material(path, buf, rows, out, err);
     free(buf);
     if (st)
         lam_error_set_file(err, path);

@@ -20,6 +20,7 @@
 
 #include <stddef.h>
 
+/* malloc, calloc and realloc with the huge-page advice (above). */
 void *lam_big_malloc(size_t bytes);
 void *lam_big_calloc(size_t count, size_t size);
 void *lam_big_realloc(void *p, size_t bytes);
