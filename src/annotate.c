@@ -194,8 +194,9 @@ static void take(scene *S, box b, unsigned owner)
     }
 }
 
-/* What a panel at b would hide: region pixels, candidates' (assigned, not
- * small) counting four times; sampled every other pixel. */
+/* What a panel at b would hide: region pixels, those with an answer (a
+ * count, or a film's thickness) and not small counting four times;
+ * sampled every other pixel. */
 static double covered(const scene *S, const box *b)
 {
     const lam_analysis *a = S->a;
@@ -209,7 +210,8 @@ static double covered(const scene *S, const box *b)
             if (!l)
                 continue;
             const lam_region_result *r = &a->results[l - 1];
-            sum += (r->flags & LAM_FLAG_SMALL) ? 0.2 : r->layers > 0 ? 4 : 1;
+            int answered = a->thickness ? region_look(a, l - 1).answered : r->layers > 0;
+            sum += (r->flags & LAM_FLAG_SMALL) ? 0.2 : answered ? 4 : 1;
         }
     return sum;
 }

@@ -358,6 +358,40 @@ static void test_annotated(const char *image, const char *setup_file)
     lam_setup_clear(&s);
 }
 
+/* The legend goes where it hides least, and a film with a thickness
+ * answer weighs like a counted flake: on the hBN demo tile every place
+ * for the legend hides something, and it must take the unmodelled patch
+ * (a polymer residue) rather than part of an answered hBN flake, as it
+ * did when only layer counts were weighed. */
+static void test_legend_spares_films(void)
+{
+    const char *image = "samples/HT285-N05-tile04.png", *setup = "samples/bench3-setup-hbn.json";
+    lam_setup s;
+    lam_analysis *a = NULL;
+    lam_error err;
+    lam_setup_default(&s);
+    if (!check_int(lam_setup_load(setup, &s, &err), LAM_OK, "load %s", setup))
+        return;
+    if (check_int(lam_analyze(image, &s, NULL, &a, &err), LAM_OK, "analyse %s", image) &&
+        check_true(a->thickness != NULL, "hBN tile: thickness results")) {
+        lam_annotation_box b[512];
+        lam_report_annotation_layout(a, b, 512); /* b[0]: the legend */
+        size_t film = 0, other = 0;
+        for (size_t y = (size_t)b[0].y; y < (size_t)(b[0].y + b[0].h); y++)
+            for (size_t x = (size_t)b[0].x; x < (size_t)(b[0].x + b[0].w); x++) {
+                uint32_t l = a->seg->label[y * a->width + x];
+                if (l && a->thickness[l - 1].evaluated && a->results[l - 1].layers >= 0)
+                    film++;
+                else if (l)
+                    other++;
+            }
+        check_true(other > film, "hBN tile: the legend hides more of unanswered regions than of "
+                   "answered films (%zu against %zu px)", other, film);
+    }
+    lam_analysis_free(a);
+    lam_setup_clear(&s);
+}
+
 /* Well-formed XML: every element closed in order (a small checker, enough
  * for what cairo writes: declarations, comments, quoted attributes). */
 static int xml_well_formed(const char *t)
@@ -441,6 +475,7 @@ int main(void)
     test_annotated("samples/HT285-C11-tile07.png", "samples/bench3-setup.json");
     test_annotated("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json");
     test_annotated("samples/HT090-B02-tile03.png", "samples/bench3-setup-90nm.json");
+    test_legend_spares_films();
     lam_draw_shutdown();
     return check_summary();
 }
