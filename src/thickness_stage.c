@@ -148,9 +148,10 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
     double score[N], centre = *ox;
     int kbest = 0;
     lam_status st = LAM_OK;
+    for (int i = 0; i < N; i++) /* compared below before the centre's own is known */
+        score[i] = -INFINITY;
     for (int k = -HALF; k <= HALF && !st; k++) {
         double d = centre + FINE_STEP_NM * k;
-        score[k + HALF] = -INFINITY;
         if (d >= 0)
             st = profile_at(x, d, &score[k + HALF], err);
         if (!st && score[k + HALF] > score[kbest + HALF])
