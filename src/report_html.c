@@ -264,13 +264,15 @@ static const char script[] =
     "t.tBodies[0].rows.length+' candidates listed below, sortable';}"
     "document.documentElement.setAttribute('data-ready','1');})();";
 
+/* Candidates: by[0] all, by[1..6] by layer count (6: six and more), by[7]
+ * films (hBN) inside the thickness target. */
 static void counts(const lam_catalog *c, size_t by[8])
 {
     memset(by, 0, 8 * sizeof *by);
     for (size_t i = 0; i < c->count; i++)
         if (lam_catalog_is_candidate(c, i)) {
             int L = c->entries[i].layers;
-            by[0]++, by[L < 6 ? L : 6]++;
+            by[0]++, by[L <= 0 ? 7 : L < 6 ? L : 6]++;
         }
 }
 
@@ -285,11 +287,18 @@ static void head(FILE *f, const lam_catalog *c, const lam_run_report_options *o,
     html(f, title);
     fprintf(f, "</title>\n<style>%s</style></head>\n<body>\n<h1>", style);
     html(f, title);
-    fprintf(f, "</h1>\n<p>%zu images, %zu candidates: 1L %zu, 2L %zu, 3L %zu, 4L and more %zu. "
-               "<span id=\"status\"></span></p>\n<p class=\"note\">Written by lamina %s. Layer "
-               "counts are model estimates: confirm by Raman spectroscopy or AFM before "
+    fprintf(f, "</h1>\n<p>%zu image%s, %zu candidate%s", c->n_images, c->n_images == 1 ? "" : "s",
+            by[0], by[0] == 1 ? "" : "s");
+    if (!by[7] || by[0] > by[7])
+        fprintf(f, ": 1L %zu, 2L %zu, 3L %zu, 4L and more %zu", by[1], by[2], by[3],
+                by[4] + by[5] + by[6]);
+    if (by[7])
+        fprintf(f, "%s%zu film%s inside the thickness target", by[0] > by[7] ? "; " : ": ", by[7],
+                by[7] == 1 ? "" : "s");
+    fprintf(f, ". <span id=\"status\"></span></p>\n<p class=\"note\">Written by lamina %s. %s "
+               "are model estimates: confirm by Raman spectroscopy or AFM before "
                "fabrication. Click a column head to sort.</p>\n",
-            c->n_images, by[0], by[1], by[2], by[3], by[4] + by[5] + by[6], LAMINA_VERSION);
+            LAMINA_VERSION, by[7] ? "Layer counts and thicknesses" : "Layer counts");
     warnings_box(f, c);
 }
 
@@ -450,10 +459,13 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
 
 static void candidate_table(FILE *f, const lam_catalog *c, const char *dir)
 {
-    fputs("<h2 id=\"candidates\">Candidates</h2>\n<table id=\"cand\"><thead><tr>"
-          "<th data-t=\"n\">rank</th><th>crop</th><th>image</th><th data-t=\"n\">region</th>"
-          "<th data-t=\"n\">layers</th><th data-t=\"n\">probability</th>"
-          "<th data-t=\"n\">area \u00b5m\u00b2</th><th data-t=\"n\">usable \u00b5m\u00b2</th>"
+    size_t by[8];
+    counts(c, by);
+    fprintf(f, "<h2 id=\"candidates\">Candidates</h2>\n<table id=\"cand\"><thead><tr>"
+               "<th data-t=\"n\">rank</th><th>crop</th><th>image</th><th data-t=\"n\">region</th>"
+               "<th data-t=\"n\">%s</th><th data-t=\"n\">probability</th>",
+            !by[7] ? "layers" : by[0] > by[7] ? "layers, thickness" : "thickness");
+    fputs("<th data-t=\"n\">area \u00b5m\u00b2</th><th data-t=\"n\">usable \u00b5m\u00b2</th>"
           "<th data-t=\"n\">usable rectangle</th><th data-t=\"n\">chip x \u00b5m</th>"
           "<th data-t=\"n\">chip y \u00b5m</th><th>flags, warnings</th></tr></thead><tbody>\n", f);
     for (size_t i = 0; i < c->count; i++)

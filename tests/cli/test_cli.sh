@@ -229,6 +229,10 @@ head -1 "$T/h/catalog.csv" | grep -q ',thickness_nm,thickness_interval_nm$' && o
 sed -n 2p "$T/h/catalog.csv" | awk -F, '{ exit !($20 >= 10 && $20 <= 30 && $5 == "thickness") }' && ok "an in-target flake ranks first" || bad "first catalogue row: $(sed -n 2p "$T/h/catalog.csv")"
 grep -q "in target" "$T/out" && ok "the table marks flakes in the target" || bad "no in-target mark in: $(cat "$T/out")"
 grep -q "monolayer candidates" "$T/out" && bad "hBN run lists monolayer candidates" || ok "no monolayer list for hBN"
+# the run report counts films, not layer counts (it once said "4 candidates: 1L 0, ..." for two films)
+grep -q '<p>1 image, 2 candidates: 2 films inside the thickness target' "$T/h/report.html" && ! grep -q '4L and more' "$T/h/report.html" \
+    && ok "the hBN report counts its films" || bad "hBN report head: $(grep -o '<p>[0-9][^<]*' "$T/h/report.html" | head -1)"
+grep -q '<th data-t="n">thickness</th>' "$T/h/report.html" && ok "the hBN candidates' column says thickness" || bad "hBN report: no thickness column head"
 expect_rc 2 "a reversed target window" "$BIN" analyze --target-thickness 30-10 samples/HT285-N05-tile04.png
 expect_rc 2 "a target window that is not numbers" "$BIN" analyze --target-thickness thin samples/HT285-N05-tile04.png
 expect_rc 2 "catalog merge with a bad target window" "$BIN" catalog merge --target-thickness 5 --out "$T/hm" "$T/h"
