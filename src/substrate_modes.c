@@ -92,7 +92,7 @@ static int sample_tiles(const tile_stat *ts, size_t n, const lam_substrate *s, b
     bs->used = 0;
     bs->basis = malloc((m / every + 1) * sizeof *bs->basis);
     bs->y = malloc((m / every + 1) * sizeof *bs->y);
-    bs->level = calloc(m / every + 1, sizeof *bs->level);
+    bs->level = calloc(m / every + 1, sizeof *bs->level); /* all in level 0: the first fit */
     if (!bs->basis || !bs->y || !bs->level)
         return 0;
     for (size_t i = 0; i < n; i++) {
@@ -195,8 +195,9 @@ static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substr
     for (int pass = 0; e && pass < LEVEL_PASSES; pass++) {
         double next[LAM_SUBSTRATE_TERMS];
         size_t levels = find_levels(&bs, coef, e);
-        if (levels && fit_surface(&bs, levels, next))
-            memcpy(coef, next, sizeof coef);
+        if (!levels || !fit_surface(&bs, levels, next))
+            break; /* the surface would not change again */
+        memcpy(coef, next, sizeof coef);
     }
     for (size_t i = 0; i < n; i++) {
         if (!ts[i].uniform)
@@ -420,7 +421,6 @@ static void roi_mode(const tile_stat *ts, size_t n, const double *r,
     if (md->count)
         md->r /= (double)md->count, md->u /= (double)md->count, md->v /= (double)md->count;
 }
-
 
 /* 1.4826 x the median absolute distance of tiles near a mode in one
  * coordinate (0 brightness, 1 u, 2 v): the mode's own spread. */

@@ -300,20 +300,31 @@ static void check_warning_mark(lam_analysis *a, const char *name)
     a->warnings = kept;
 }
 
+/* A sample analysed with its setup (loaded into s, which the caller clears
+ * after freeing the analysis); NULL, with s cleared, when either fails. */
+static lam_analysis *analyse_sample(const char *image, const char *setup_file, lam_setup *s)
+{
+    lam_analysis *a = NULL;
+    lam_error err;
+    lam_setup_default(s);
+    if (!check_int(lam_setup_load(setup_file, s, &err), LAM_OK, "load %s", setup_file))
+        return NULL;
+    if (!check_int(lam_analyze(image, s, NULL, &a, &err), LAM_OK, "analyse %s", image)) {
+        lam_setup_clear(s);
+        return NULL;
+    }
+    return a;
+}
+
 /* The annotated picture: the input's size, marked along the largest
  * monolayer's edge, untouched far from every region and panel. */
 static void test_annotated(const char *image, const char *setup_file)
 {
     lam_setup s;
-    lam_analysis *a = NULL;
     lam_error err;
-    lam_setup_default(&s);
-    if (!check_int(lam_setup_load(setup_file, &s, &err), LAM_OK, "load %s", setup_file))
+    lam_analysis *a = analyse_sample(image, setup_file, &s);
+    if (!a)
         return;
-    if (!check_int(lam_analyze(image, &s, NULL, &a, &err), LAM_OK, "analyse %s", image)) {
-        lam_setup_clear(&s);
-        return;
-    }
     const char *name = strrchr(image, '/') + 1;
     check_layout(a, name);
     check_warning_mark(a, name);
@@ -367,13 +378,10 @@ static void test_legend_spares_films(void)
 {
     const char *image = "samples/HT285-N05-tile04.png", *setup = "samples/bench3-setup-hbn.json";
     lam_setup s;
-    lam_analysis *a = NULL;
-    lam_error err;
-    lam_setup_default(&s);
-    if (!check_int(lam_setup_load(setup, &s, &err), LAM_OK, "load %s", setup))
+    lam_analysis *a = analyse_sample(image, setup, &s);
+    if (!a)
         return;
-    if (check_int(lam_analyze(image, &s, NULL, &a, &err), LAM_OK, "analyse %s", image) &&
-        check_true(a->thickness != NULL, "hBN tile: thickness results")) {
+    if (check_true(a->thickness != NULL, "hBN tile: thickness results")) {
         lam_annotation_box b[512];
         lam_report_annotation_layout(a, b, 512); /* b[0]: the legend */
         size_t film = 0, other = 0;
