@@ -9,6 +9,30 @@
 #include <string.h>
 #include <time.h>
 
+/* Every scored flake as a row (crystals_flake_table), or NULL. */
+static FILE *flake_table;
+
+void crystals_flake_table(FILE *f)
+{
+    flake_table = f;
+    if (f)
+        fprintf(f, "image,source,oxide_true_nm,oxide_found_nm,pupil(1 sincos 2 sin 3 annular 4 filled),pupil_f,na,si,sio2,"
+                   "format_jpeg,thickness_nm,estimate_nm,lo_nm,hi_nm,ambiguous,area_px\n");
+}
+
+/* One row of the flake table. */
+static void table_row(const synth_scene *sc, const lam_analysis *a, const synth_object *ob,
+                      const lam_thickness_result *th, const char *name)
+{
+    const synth_physics *p = &sc->phys;
+    int found = th && th->evaluated;
+    fprintf(flake_table, "%s,%d,%.2f,%.2f,%d,%.3f,%.3f,%d,%d,%d,%.3f,%.3f,%.3f,%.3f,%d,%ld\n",
+            name, p->nk_source, p->oxide_nm, a->oxide.estimate, (int)p->pupil,
+            p->pupil_f, p->na, (int)p->si, (int)p->sio2, strstr(name, ".jpg") != NULL,
+            ob->thickness_nm, found ? th->estimate : NAN, found ? th->lo : NAN,
+            found ? th->hi : NAN, found && th->order_ambiguous, ob->area_px);
+}
+
 static double now_s(void)
 {
     struct timespec ts;
@@ -59,6 +83,8 @@ static void score(const synth_scene *sc, const lam_analysis *a, hbn_tally *t, FI
         uint32_t id = robust_flake_region(sc, o, a);
         int hit = id && a->thickness;
         score_one(ob, hit ? &a->thickness[id - 1] : NULL, t, log, name);
+        if (flake_table)
+            table_row(sc, a, ob, hit ? &a->thickness[id - 1] : NULL, name);
     }
     if (a->oxide.fitted) {
         t->oxide_n++;

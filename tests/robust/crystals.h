@@ -32,6 +32,11 @@ typedef struct hbn_tally {
 int crystals_run_hbn(const robust_case *c, unsigned long long seed, const char *dir,
                      hbn_tally *t, FILE *log);
 
+/* Write every scored hBN flake to f as CSV (a header first; NULL: none):
+ * its image, the scene's physics (n,k source, true and found oxide, pupil,
+ * NA, Si and SiO2 models), the truth and the estimate with its interval. */
+void crystals_flake_table(FILE *f);
+
 void crystals_add(hbn_tally *into, const hbn_tally *t);
 void crystals_print(FILE *f, const char *label, const hbn_tally *t);
 

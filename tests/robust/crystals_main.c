@@ -1,7 +1,7 @@
 /* crystals_main.c - build/tests/robust/crystals: issue 14's figures on the
  * independent generator's images (`make accuracy-crystals`).
  *   crystals [--scenes N] [--seed S] [--only hbn|tmd] [--format png|jpeg90]
- *            [--uninformed] [--log FILE]
+ *            [--uninformed] [--log FILE] [--flakes FILE.csv]
  * hBN: thickness within 10 % or order-ambiguous, per index source (Grudinin
  * 2023, Lee 2019, Rah 2019), oxide (90, 285 nm) and format; TMDs: 1-3L
  * counts per material, n,k source (MoS2 Hsu 2019 / Song 2019, WSe2 Hsu 2019
@@ -129,6 +129,7 @@ int main(int argc, char **argv)
     lam_error_init_gsl();
     run_opts o = {2, 1, -1, 3000, NULL, "build/tests/crystals-out"};
     int only = 0; /* 1 hbn, 2 tmd */
+    FILE *flakes = NULL;
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
             o.scenes = atoi(argv[++i]);
@@ -140,6 +141,8 @@ int main(int argc, char **argv)
             o.format = !strcmp(argv[++i], "png") ? 0 : 1;
         else if (!strcmp(argv[i], "--uninformed"))
             o.informed = 0;
+        else if (!strcmp(argv[i], "--flakes") && i + 1 < argc)
+            crystals_flake_table(flakes = fopen(argv[++i], "w"));
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
             o.log = fopen(argv[++i], "w");
     }
@@ -152,5 +155,7 @@ int main(int argc, char **argv)
         run_tmd(&o);
     if (o.log)
         fclose(o.log);
+    if (flakes)
+        fclose(flakes);
     return 0;
 }
