@@ -292,6 +292,11 @@ void lam_estimate_observe(const lam_estimate *e, lam_prediction *P)
             double gc = g[c] * P->contrast[N][c], eps = e->shared[LAM_NU_OFFSET + c].value;
             P->contrast[N][c] = gc + eps * (1 - gc);
         }
+    for (size_t k = 0; k < P->residues; k++)
+        for (size_t c = 0; c < P->channels; c++) {
+            double gc = g[c] * P->residue[k][c], eps = e->shared[LAM_NU_OFFSET + c].value;
+            P->residue[k][c] = gc + eps * (1 - gc);
+        }
 }
 
 double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast)
@@ -367,6 +372,55 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
     return s - log(span);
 }
 
+/* ln of the unmodelled hypothesis' density: a broad box of side
+ * LAM_UNMODELLED_SIDE per channel (dust, folds, another material), and,
+ * when the ladder carries residue films, half of the mass on those films
+ * (thickness uniform over the films' range). Polymer residue is the most
+ * common thing on a chip that is not a flake: as a box it costs a region
+ * so much that a wrong layer ladder which explains residue as a thick
+ * flake could beat the right one (a WSe2 chip of 102 nm sold as 90 read
+ * 3L/3L/4L for 1L/2L/3L). */
+double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
+                              const lam_prediction *ladder)
+{
+    size_t nc = e->channels, n = ladder->residues;
+    double box = -(double)nc * log(LAM_UNMODELLED_SIDE);
+    if (!n)
+        return box;
+    /* chi^2 of every film first (no logarithms): most regions lie far from
+     * the residue's curve, and only films near the best one add mass */
+    double q[LAM_RESIDUE_FILMS], var[LAM_RESIDUE_FILMS][LAM_MAX_CHANNELS], qmin = INFINITY;
+    for (size_t k = 0; k < n; k++) {
+        q[k] = 0;
+        for (size_t c = 0; c < nc; c++) {
+            var[k][c] = r->var[c] + lam_estimate_floor_var(e, c, ladder->residue[k][c]);
+            double d = r->mean[c] - ladder->residue[k][c];
+            q[k] += d * d / var[k][c];
+        }
+        qmin = fmin(qmin, q[k]);
+    }
+    double top = -INFINITY, ll[LAM_RESIDUE_FILMS];
+    for (size_t k = 0; k < n; k++) {
+        ll[k] = -INFINITY;
+        if (q[k] > qmin + 60) /* below e^-30 of the best film */
+            continue;
+        double prod = 1;
+        for (size_t c = 0; c < nc; c++)
+            prod *= 2 * M_PI * var[k][c];
+        top = fmax(top, ll[k] = -0.5 * (q[k] + log(prod)));
+    }
+    double film = top + log(1.0 / (double)n);
+    if (film < box - 40)
+        return box + log(0.5);
+    double sum = 0;
+    for (size_t k = 0; k < n; k++)
+        if (ll[k] > -INFINITY)
+            sum += exp(ll[k] - top);
+    film += log(sum);
+    double hi = fmax(box, film);
+    return hi + log(0.5 * exp(box - hi) + 0.5 * exp(film - hi));
+}
+
 /* log( prior x likelihood ) of every hypothesis of a region while fitting:
  * index 0 substrate, 1..K layers, K+1 thick (broad), K+2 unmodelled.
  * 'ladder' holds observed-scale contrasts (gains applied). */
@@ -385,7 +439,7 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
     lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, ladder);
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) - (double)nc * log(LAM_UNMODELLED_SIDE);
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, ladder);
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */
         size_t k = (size_t)r->known_layers <= K ? (size_t)r->known_layers : K + 1;

@@ -186,7 +186,7 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
     }
     lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
                    : -INFINITY;
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) - (double)nc * log(LAM_UNMODELLED_SIDE);
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, &v->ladder);
 }
 
 /* ---- the Fermi level ---- */

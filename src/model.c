@@ -31,6 +31,8 @@ typedef struct substrate_slot {
     double oxide_nm, na;
     double complex *y, *eta0, *gap_cos, *gap_sin;
     double *tnorm; /* transmission only: 4 Re(eta_base) / |B_top|^2 (unit field at the base) */
+    double *res_rbar; /* with a residue film: nwl x LAM_RESIDUE_FILMS cone-averaged R */
+    unsigned long res_filled; /* the 'filled' res_rbar was computed for, 0: not yet */
 } substrate_slot;
 
 struct lam_model {
@@ -61,6 +63,13 @@ struct lam_model {
     unsigned long clock;
     lam_model_point defaults;
     double *rbar;            /* nwl x (max_layers + 1): cone-averaged R */
+    double complex *n_residue; /* nwl: a residue film's index, or NULL */
+    unsigned long weight_version; /* counts the channel weights' recomputations */
+    /* the last residue contrasts and what they were integrated for (a fit
+     * changes gains far more often than the slot or the camera) */
+    double res_contrast[LAM_RESIDUE_FILMS][LAM_MAX_CHANNELS];
+    const substrate_slot *res_slot;
+    unsigned long res_slot_filled, res_weight_version;
     /* what rbar was computed for: a channel shift alone needs no new stacking */
     int have_rbar;
     const substrate_slot *rbar_slot;
@@ -78,6 +87,7 @@ static void free_slots(lam_model *m)
         free(m->slot[i].eta0);
         free(m->slot[i].gap_cos);
         free(m->slot[i].gap_sin);
+        free(m->slot[i].res_rbar);
         free(m->slot[i].tnorm);
     }
 }
@@ -97,6 +107,7 @@ void lam_model_free(lam_model *m)
     free(m->basis);
     free(m->y_sheet);
     free(m->rbar);
+    free(m->n_residue);
     free_slots(m);
     lam_table_spectrum_clear(&m->camera_table_copy);
     free(m);
@@ -294,7 +305,33 @@ lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_m
     lam_setup fs = *setup;
     fs.grid_step_nm = 5;
     fs.cone_nodes = 8;
-    return lam_model_alloc(&fs, max_layers, 0, out, err);
+    lam_status st = lam_model_alloc(&fs, max_layers, 0, out, err);
+    if (st || lam_setup_crystal_kind(setup) != LAM_CRYSTAL_LAYERED || setup->transmission)
+        return st;
+    lam_material pmma;
+    memset(&pmma, 0, sizeof pmma);
+    if (!(st = lam_material_builtin("PMMA", &pmma, err)))
+        st = lam_model_set_residue(*out, &pmma, err);
+    lam_material_clear(&pmma);
+    if (st) {
+        lam_model_free(*out);
+        *out = NULL;
+    }
+    return st;
+}
+
+/* Every substrate slot's residue reflectances (lam_model_set_residue);
+ * 0 when out of memory. */
+static int alloc_residue(lam_model *m)
+{
+    for (int i = 0; i < SUBSTRATE_SLOTS; i++) {
+        substrate_slot *s = &m->slot[i];
+        if (!s->res_rbar &&
+            !(s->res_rbar = malloc(m->nwl * LAM_RESIDUE_FILMS * sizeof *s->res_rbar)))
+            return 0;
+        s->res_filled = 0;
+    }
+    return 1;
 }
 
 /* A copy of array 'src' of n elements of 'size' bytes into *dst (NULL
@@ -320,6 +357,8 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
      * values when refilled: every key is compared exactly) */
     m->wl = m->trapezoid = m->lamp = m->weight = m->rbar = NULL;
     m->n_layer = m->n_base = m->n_film = m->n_film_layer = m->basis = m->y_sheet = NULL;
+    m->n_residue = NULL;
+    m->res_slot = NULL;
     memset(m->slot, 0, sizeof m->slot);
     memset(&m->camera_table_copy, 0, sizeof m->camera_table_copy);
     m->have_weight = m->have_basis = m->have_rbar = 0;
@@ -336,7 +375,9 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
         memcpy(m->n_base, src->n_base, n * sizeof *m->n_base);
         ok = copy_array((void **)&m->n_film, src->n_film, n, sizeof *m->n_film) &&
              copy_array((void **)&m->n_film_layer, src->n_film_layer, src->film_layers * n,
-                        sizeof *m->n_film_layer);
+                        sizeof *m->n_film_layer) &&
+             copy_array((void **)&m->n_residue, src->n_residue, n, sizeof *m->n_residue) &&
+             (!m->n_residue || alloc_residue(m));
     }
     lam_status st = ok ? copy_camera(m, &src->camera, err)
                        : lam_error_set(err, LAM_ENOMEM, "cannot copy a model");
@@ -395,6 +436,7 @@ static lam_status ensure_weights(lam_model *m, const lam_model_point *p, lam_err
     }
     memcpy(m->weight_cam, cam, sizeof cam);
     m->have_weight = 1;
+    m->weight_version++;
     return LAM_OK;
 }
 
@@ -755,6 +797,91 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
     }
 }
 
+/* ---- residue films (lam_model_set_residue) ---- */
+
+/* Cone-averaged R of every residue film per wavelength for a substrate
+ * slot. With z = rho e^(i phi) = exp(2 i k0 q d),
+ * |r|^2 = |r01 + r12 z|^2 / |1 + r01 r12 z|^2
+ *       = (|r01|^2 + |r12|^2 rho^2 + 2 rho Re(conj(r01) r12 e^(i phi)))
+ *         / (1 + |r01 r12|^2 rho^2 + 2 rho Re(r01 r12 e^(i phi))),
+ * in real arithmetic over the films side by side (vector units); the
+ * films' phases follow from the first by a rotation (even steps in d). */
+static void residue_rbar(const lam_model *m, substrate_slot *s)
+{
+    const cone *c = &m->cone_cache;
+    double cs[LAM_RESIDUE_FILMS], sn[LAM_RESIDUE_FILMS], rho[LAM_RESIDUE_FILMS];
+    memset(s->res_rbar, 0, m->nwl * LAM_RESIDUE_FILMS * sizeof *s->res_rbar);
+    for (size_t l = 0; l < m->nwl; l++) {
+        double k0 = 2.0 * M_PI / m->wl[l], *acc = s->res_rbar + l * LAM_RESIDUE_FILMS;
+        double complex nf = m->n_residue[l];
+        for (size_t t = 0; t < c->nodes; t++) {
+            size_t k = l * c->nodes + t;
+            int npol = c->sin_t[t] > 0 ? 2 : 1;
+            double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
+            double complex qf = lam_tmm_q(nf, kx);
+            double phase = 2 * k0 * creal(qf), decay = -2 * k0 * cimag(qf);
+            double complex u = cexp(I * phase * LAM_RESIDUE_FIRST_NM);
+            double complex du = cexp(I * phase * LAM_RESIDUE_STEP_NM);
+            double r = exp(decay * LAM_RESIDUE_FIRST_NM), dr = exp(decay * LAM_RESIDUE_STEP_NM);
+            for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++, u *= du, r *= dr)
+                cs[j] = creal(u), sn[j] = cimag(u), rho[j] = r;
+            for (int pol = 0; pol < npol; pol++) {
+                double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
+                double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
+                double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
+                double complex A = conj(r01) * r12, B = r01 * r12;
+                double ar = creal(A), ai = cimag(A), br = creal(B), bi = cimag(B);
+                double n0 = creal(r01 * conj(r01)), n1 = creal(r12 * conj(r12));
+                double d1 = creal(B * conj(B));
+                for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++) {
+                    double p = rho[j], ra = ar * cs[j] - ai * sn[j], rb = br * cs[j] - bi * sn[j];
+                    acc[j] += wt * (n0 + p * (n1 * p + 2 * ra)) / (1 + p * (d1 * p + 2 * rb));
+                }
+            }
+        }
+    }
+    s->res_filled = s->filled;
+}
+
+/* The residue films' contrasts in the channels (after integrate), kept
+ * for the next call with the same slot and channel weights. */
+static void integrate_residue(lam_model *m, const substrate_slot *s, lam_prediction *out)
+{
+    out->residues = LAM_RESIDUE_FILMS;
+    if (m->res_slot == s && m->res_slot_filled == s->filled &&
+        m->res_weight_version == m->weight_version) {
+        memcpy(out->residue, m->res_contrast, sizeof out->residue);
+        return;
+    }
+    for (size_t c = 0; c < m->channels; c++) {
+        const double *w = m->weight + c * m->nwl;
+        for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++) {
+            double a = 0;
+            for (size_t l = 0; l < m->nwl; l++)
+                a += w[l] * s->res_rbar[l * LAM_RESIDUE_FILMS + j];
+            out->residue[j][c] = (out->substrate[c] - a) / out->substrate[c];
+        }
+    }
+    memcpy(m->res_contrast, out->residue, sizeof m->res_contrast);
+    m->res_slot = s;
+    m->res_slot_filled = s->filled;
+    m->res_weight_version = m->weight_version;
+}
+
+lam_status lam_model_set_residue(lam_model *m, const lam_material *film, lam_error *err)
+{
+    if (!m->n_residue)
+        m->n_residue = malloc(m->nwl * sizeof *m->n_residue);
+    if (!m->n_residue || !alloc_residue(m))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a residue film");
+    lam_status st = LAM_OK;
+    for (size_t l = 0; l < m->nwl && !st; l++)
+        st = lam_material_index(film, m->wl[l], &m->n_residue[l], err);
+    for (int i = 0; i < SUBSTRATE_SLOTS; i++)
+        m->slot[i].res_filled = 0;
+    return st;
+}
+
 /* Is rbar already that of this substrate slot, response and layer count? */
 static int rbar_current(const lam_model *m, const substrate_slot *s, const lam_model_point *p,
                         size_t layers)
@@ -806,7 +933,7 @@ lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t l
         (st = ensure_weights(m, p, err)) ||
         (!m->n_film && (st = fill_sheet(m, p, err))))
         return st;
-    const substrate_slot *s = substrate_for(m, oxide);
+    substrate_slot *s = substrate_for(m, oxide);
     if (!rbar_current(m, s, p, layers)) {
         if (m->n_film)
             stack_film(m, s, layers);
@@ -820,6 +947,11 @@ lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t l
     out->oxide_nm = oxide;
     out->fermi_ev = p->v[LAM_MP_FERMI];
     integrate(m, layers, out);
+    if (m->n_residue && !m->transmission) {
+        if (s->res_filled != s->filled)
+            residue_rbar(m, s);
+        integrate_residue(m, s, out);
+    }
     return LAM_OK;
 }
 

@@ -43,12 +43,22 @@ typedef struct lam_model lam_model;
 /* A ladder: predicted reflectance and contrast of N = 0..max_layers layers
  * per camera channel (channels 1 to 3). Row 0 of the contrast is 0. This is
  * the one ladder type of the library (segmentation and inference use it). */
+/* Residue films (lam_model_set_residue): LAM_RESIDUE_FILMS thicknesses,
+ * LAM_RESIDUE_FIRST_NM + k LAM_RESIDUE_STEP_NM (1 to 59.5 nm). The steps
+ * are even so that one film's phase factor follows from the last by one
+ * multiplication; 1.5 nm moves a polymer film's phase by 0.05 rad. */
+#define LAM_RESIDUE_FILMS 40
+#define LAM_RESIDUE_FIRST_NM 1.0
+#define LAM_RESIDUE_STEP_NM 1.5
+
 typedef struct lam_prediction {
     size_t channels, max_layers;
     double oxide_nm, fermi_ev;
     double substrate[LAM_MAX_CHANNELS];                       /* R_c(0) */
     double reflectance[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS]; /* R_c(N), N = 0..K */
     double contrast[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];    /* C_c(N); row 0 is 0 */
+    size_t residues; /* residue films below: LAM_RESIDUE_FILMS, or 0 without a residue */
+    double residue[LAM_RESIDUE_FILMS][LAM_MAX_CHANNELS]; /* C_c of residue film k */
 } lam_prediction;
 
 /* The parameters of a model point. */
@@ -77,7 +87,12 @@ lam_status lam_model_alloc(const lam_setup *setup, size_t max_layers, double mon
 void lam_model_free(lam_model *m);
 
 /* The coarse copy used inside fits: 5 nm spectral step and 8 cone nodes
- * (contrasts within ~2e-4 of the full model, several times faster). */
+ * (contrasts within ~2e-4 of the full model, several times faster). For
+ * TMD flakes (LAM_CRYSTAL_LAYERED) in reflection it carries a PMMA residue
+ * film (lam_model_set_residue), which the estimate's unmodelled hypothesis
+ * weighs; graphene's models do not yet (with residue weighed, a graphene
+ * calibration on a flake and latent regions read most counts wrong, see
+ * docs/method.md). */
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err);
 
@@ -118,6 +133,13 @@ lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t lay
 
 /* The finite-difference step of a parameter. */
 double lam_model_step(lam_model_param k);
+
+/* Give the model a transparent residue film (polymer left by the transfer
+ * tape or resist, e.g. the built-in "PMMA") on top of the substrate:
+ * lam_model_eval_point then also fills the prediction's residue contrasts
+ * (reflection only; a transmission model ignores it). The film's index is
+ * copied; clones keep it. */
+lam_status lam_model_set_residue(lam_model *m, const lam_material *film, lam_error *err);
 
 /* Crystals of continuous thickness (lamina/thickness.h): the contrast per
  * channel of the flake material as ONE film of each thickness
