@@ -233,6 +233,33 @@ static void test_defaults(void)
     synth_scene_free(&m.sc);
 }
 
+/* A TMD without its camera: its counts are said to be in doubt (the
+ * warning's figures come from make accuracy-crystals); with the camera
+ * given, not. */
+static void test_tmd_camera(void)
+{
+    synth_config c;
+    base_config(&c);
+    c.crystal = SYNTH_XTAL_MOS2;
+    c.nk_source = 0;
+    c.nominal_oxide_nm = 90;
+    const char *names[2] = {"mos2-bare", "mos2-informed"};
+    for (int informed = 0; informed < 2; informed++) {
+        made m;
+        lam_analysis *a = NULL;
+        lam_error err;
+        lam_error_clear(&err);
+        check_int(make(&c, 700007, SYNTH_FMT_PNG, 0, informed, names[informed], &m), 0,
+                  "MoS2 scene made");
+        if (check_int(run(m.img, m.setup, &a, &err), LAM_OK, "analyses (%s)", err.message))
+            check_true(has(a, "crystal-camera-unknown") == !informed,
+                       "camera %s: 'crystal-camera-unknown' %s", informed ? "given" : "not given",
+                       informed ? "absent" : "present");
+        lam_analysis_free(a);
+        synth_scene_free(&m.sc);
+    }
+}
+
 int main(void)
 {
     check_begin("test_warnings");
@@ -243,5 +270,6 @@ int main(void)
     test_exposure();
     test_wrong_oxide();
     test_defaults();
+    test_tmd_camera();
     return check_summary();
 }

@@ -69,8 +69,8 @@ static void score_fermi(const synth_object *ob, const lam_region_result *r, robu
 /* A warning that tells the reader not to trust the counts as they stand. */
 static int doubted(const lam_analysis *a)
 {
-    static const char *const codes[] = {"poor-fit", "two-readings", "oxide-off-nominal",
-                                        "monochrome", "pooled-readings"};
+    static const char *const codes[] = {"poor-fit",   "two-readings",    "oxide-off-nominal",
+                                        "monochrome", "pooled-readings", "crystal-camera-unknown"};
     for (size_t k = 0; k < sizeof codes / sizeof codes[0]; k++)
         if (lam_warnings_find(&a->warnings, codes[k]))
             return 1;
