@@ -1019,18 +1019,18 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
 
 /* ---- films of any thickness (continuous-thickness crystals) ---- */
 
-/* Cone- and channel-weighted reflectance of the film of each thickness at
- * one wavelength, added to acc[k][c] (and the bare substrate's to sub[c]):
- * r = (r01 + r12 z) / (1 + r01 r12 z), z = exp(2 i k0 q d). */
-static void films_at(const lam_model *m, const substrate_slot *s, size_t l, double scale,
-                     const double *d, size_t count, double (*acc)[LAM_MAX_CHANNELS],
-                     double *sub)
+/* Transmission: the cone- and channel-weighted transmittance of the film of
+ * each thickness at one wavelength, added to acc[k][c] (and the bare
+ * substrate's to sub[c]), the film's characteristic matrix on the
+ * substrate's fields. */
+static void films_transmit_at(const lam_model *m, const substrate_slot *s, size_t l,
+                              double complex nf, const double *d, size_t count,
+                              double (*acc)[LAM_MAX_CHANNELS], double *sub)
 {
     const cone *c = &m->cone_cache;
     double k0 = 2.0 * M_PI / m->wl[l], w[LAM_MAX_CHANNELS];
     for (size_t ch = 0; ch < m->channels; ch++)
         w[ch] = m->weight[ch * m->nwl + l];
-    double complex nf = 1 + scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
     for (size_t t = 0; t < c->nodes; t++) {
         size_t k = l * c->nodes + t;
         int npol = c->sin_t[t] > 0 ? 2 : 1;
@@ -1039,26 +1039,66 @@ static void films_at(const lam_model *m, const substrate_slot *s, size_t l, doub
         for (int pol = 0; pol < npol; pol++) {
             double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
             double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
-            double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
-            double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
-            double rs = tn > 0 ? transmittance(tn, eta0, 1.0, y) : reflectance(eta0, y);
+            double tn = s->tnorm[2 * k + (size_t)pol], rs = transmittance(tn, eta0, 1.0, y);
             for (size_t ch = 0; ch < m->channels; ch++)
                 sub[ch] += wt * w[ch] * rs;
             for (size_t j = 0; j < count; j++) {
-                double R;
-                if (tn > 0) { /* the film's matrix on the substrate's fields */
-                    double complex e = cexp(0.5 * twice * d[j]), cp = creal(e), sp = cimag(e);
-                    if (cimag(qf) != 0)
-                        cp = ccos(-0.5 * I * twice * d[j]), sp = csin(-0.5 * I * twice * d[j]);
-                    R = wt * transmittance(tn, eta0, cp - I * sp * y / ef, -I * ef * sp + cp * y);
-                } else {
-                    double complex z = cexp(twice * d[j]), r = (r01 + r12 * z) / (1 + r01 * r12 * z);
-                    R = wt * creal(r * conj(r));
-                }
+                double complex e = cexp(0.5 * twice * d[j]), cp = creal(e), sp = cimag(e);
+                if (cimag(qf) != 0)
+                    cp = ccos(-0.5 * I * twice * d[j]), sp = csin(-0.5 * I * twice * d[j]);
+                double R = wt * transmittance(tn, eta0, cp - I * sp * y / ef, -I * ef * sp + cp * y);
                 for (size_t ch = 0; ch < m->channels; ch++)
                     acc[j][ch] += w[ch] * R;
             }
         }
+    }
+}
+
+/* Reflection: the cone- and channel-weighted reflectance of the film of
+ * each thickness at one wavelength, added to acc[k][c] (and the bare
+ * substrate's to sub[c]). r = (r01 + r12 z) / (1 + r01 r12 z) with
+ * z = rho e^(i phi) = exp(2 i k0 q d); its |r|^2 in real arithmetic
+ * (as residue_rbar), one cos/sin per node and thickness shared by both
+ * polarisations, the cone summed before the channels. 'buf' holds
+ * 4 x count doubles. */
+static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t l,
+                             double complex nf, const double *d, size_t count,
+                             double (*acc)[LAM_MAX_CHANNELS], double *sub, double *buf)
+{
+    const cone *c = &m->cone_cache;
+    double k0 = 2.0 * M_PI / m->wl[l], rsub = 0;
+    double *cs = buf, *sn = buf + count, *rho = buf + 2 * count, *rsum = buf + 3 * count;
+    memset(rsum, 0, count * sizeof *rsum);
+    for (size_t t = 0; t < c->nodes; t++) {
+        size_t k = l * c->nodes + t;
+        int npol = c->sin_t[t] > 0 ? 2 : 1;
+        double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
+        double complex qf = lam_tmm_q(nf, kx);
+        double phase = 2 * k0 * creal(qf), decay = -2 * k0 * cimag(qf);
+        for (size_t j = 0; j < count; j++) {
+            cs[j] = cos(phase * d[j]), sn[j] = sin(phase * d[j]);
+            rho[j] = decay == 0 ? 1.0 : exp(decay * d[j]);
+        }
+        for (int pol = 0; pol < npol; pol++) {
+            double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
+            double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
+            double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
+            double complex A = conj(r01) * r12, B = r01 * r12;
+            double ar = creal(A), ai = cimag(A), br = creal(B), bi = cimag(B);
+            double n0 = creal(r01 * conj(r01)), n1 = creal(r12 * conj(r12));
+            double d1 = creal(B * conj(B));
+            rsub += wt * reflectance(eta0, y);
+            for (size_t j = 0; j < count; j++) {
+                double p = rho[j], ra = ar * cs[j] - ai * sn[j], rb = br * cs[j] - bi * sn[j];
+                rsum[j] += wt * (n0 + p * (n1 * p + 2 * ra)) / (1 + p * (d1 * p + 2 * rb));
+            }
+        }
+    }
+    for (size_t ch = 0; ch < m->channels; ch++) {
+        double w = m->weight[ch * m->nwl + l];
+        sub[ch] += w * rsub;
+        for (size_t j = 0; j < count; j++)
+            acc[j][ch] += w * rsum[j];
     }
 }
 
@@ -1076,10 +1116,18 @@ lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double i
     if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) || (st = ensure_weights(m, p, err)))
         return st;
     const substrate_slot *s = substrate_for(m, oxide);
-    double sub[LAM_MAX_CHANNELS] = {0};
+    double sub[LAM_MAX_CHANNELS] = {0}, *buf = NULL;
+    if (!m->transmission && !(buf = malloc(4 * (count ? count : 1) * sizeof *buf)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a film evaluation");
     memset(contrast, 0, count * sizeof *contrast);
-    for (size_t l = 0; l < m->nwl; l++)
-        films_at(m, s, l, index_scale, thickness_nm, count, contrast, sub);
+    for (size_t l = 0; l < m->nwl; l++) {
+        double complex nf = 1 + index_scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
+        if (m->transmission)
+            films_transmit_at(m, s, l, nf, thickness_nm, count, contrast, sub);
+        else
+            films_reflect_at(m, s, l, nf, thickness_nm, count, contrast, sub, buf);
+    }
+    free(buf);
     for (size_t j = 0; j < count; j++)
         for (size_t ch = 0; ch < m->channels; ch++)
             contrast[j][ch] = (sub[ch] - contrast[j][ch]) / sub[ch];
