@@ -758,38 +758,57 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
 }
 
 /* Comparison model: N layers as one film of N * interlayer_nm. */
+/* The phase terms of every N-layer film at one wavelength and cone node:
+ * its wave vector q[N], cos and sin of its phase (the same for both
+ * polarisations: computed once). */
+typedef struct film_phases {
+    double complex q[LAM_MODEL_MAX_LAYERS + 1], cp[LAM_MODEL_MAX_LAYERS + 1],
+        sp[LAM_MODEL_MAX_LAYERS + 1];
+} film_phases;
+
+static void film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
+                           film_phases *f)
+{
+    double k0 = 2.0 * M_PI / m->wl[l];
+    double complex qf = lam_tmm_q(m->n_film[l], kx);
+    for (size_t N = 0; N <= layers; N++) {
+        double complex qn = qf;
+        if (N >= 1 && N <= m->film_layers) /* a crystal's N-layer film with its own n,k */
+            qn = lam_tmm_q(m->n_film_layer[(N - 1) * m->nwl + l], kx);
+        double complex ph = k0 * qn * m->interlayer_nm * (double)N;
+        f->q[N] = qn;
+        f->cp[N] = ccos(ph), f->sp[N] = csin(ph);
+    }
+}
+
 static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
 {
     const cone *c = &m->cone_cache;
     size_t stride = m->max_layers + 1;
+    film_phases f;
     for (size_t l = 0; l < m->nwl; l++) {
-        double *acc = m->rbar + l * stride, k0 = 2.0 * M_PI / m->wl[l];
+        double *acc = m->rbar + l * stride;
         memset(acc, 0, (layers + 1) * sizeof *acc);
         for (size_t t = 0; t < c->nodes; t++) {
             size_t k = l * c->nodes + t;
             int npol = c->sin_t[t] > 0 ? 2 : 1;
             double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
-            double complex qf = lam_tmm_q(m->n_film[l], kx);
+            film_phases_at(m, l, kx, layers, &f);
             for (int pol = 0; pol < npol; pol++) {
                 double complex ysub = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
-                double complex ef = lam_tmm_eta(m->n_film[l], qf, (lam_pol)pol);
+                double complex ef = lam_tmm_eta(m->n_film[l], f.q[0], (lam_pol)pol);
                 double tn = m->transmission ? s->tnorm[2 * k + (size_t)pol] : 0;
                 for (size_t N = 0; N <= layers; N++) {
-                    double complex qn = qf, en = ef;
-                    if (N >= 1 && N <= m->film_layers) {
-                        /* a crystal's N-layer film with its own n,k */
-                        double complex nn = m->n_film_layer[(N - 1) * m->nwl + l];
-                        qn = lam_tmm_q(nn, kx);
-                        en = lam_tmm_eta(nn, qn, (lam_pol)pol);
-                    }
-                    double complex ph = k0 * qn * m->interlayer_nm * (double)N;
+                    double complex en = ef, cp = f.cp[N], sp = f.sp[N];
+                    if (N >= 1 && N <= m->film_layers)
+                        en = lam_tmm_eta(m->n_film_layer[(N - 1) * m->nwl + l], f.q[N],
+                                         (lam_pol)pol);
                     if (tn > 0) {
-                        double complex cp = ccos(ph), sp = csin(ph);
                         acc[N] += wt * transmittance(tn, eta0, cp - I * sp * ysub / en,
                                                      -I * en * sp + cp * ysub);
                         continue;
                     }
-                    double complex y = N ? lam_tmm_through_film(ysub, en, ccos(ph), csin(ph)) : ysub;
+                    double complex y = N ? lam_tmm_through_film(ysub, en, cp, sp) : ysub;
                     acc[N] += wt * reflectance(eta0, y);
                 }
             }
