@@ -818,13 +818,31 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
 
 /* ---- residue films (lam_model_set_residue) ---- */
 
-/* Cone-averaged R of every residue film per wavelength for a substrate
- * slot. With z = rho e^(i phi) = exp(2 i k0 q d),
- * |r|^2 = |r01 + r12 z|^2 / |1 + r01 r12 z|^2
- *       = (|r01|^2 + |r12|^2 rho^2 + 2 rho Re(conj(r01) r12 e^(i phi)))
+/* Add wt |r|^2 of a film (admittance ef) between the ambient (eta0) and a
+ * substrate of admittance y to acc[j] for each phase factor
+ * z_j = rho_j (cs_j + i sn_j) = exp(2 i k0 q d_j):
+ * r = (r01 + r12 z) / (1 + r01 r12 z), and in real arithmetic
+ * |r|^2 = (|r01|^2 + |r12|^2 rho^2 + 2 rho Re(conj(r01) r12 e^(i phi)))
  *         / (1 + |r01 r12|^2 rho^2 + 2 rho Re(r01 r12 e^(i phi))),
- * in real arithmetic over the films side by side (vector units); the
- * films' phases follow from the first by a rotation (even steps in d). */
+ * the films side by side on vector units. */
+static void add_film_r2(double complex eta0, double complex y, double complex ef, double wt,
+                        const double *cs, const double *sn, const double *rho, size_t count,
+                        double *acc)
+{
+    double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
+    double complex A = conj(r01) * r12, B = r01 * r12;
+    double ar = creal(A), ai = cimag(A), br = creal(B), bi = cimag(B);
+    double n0 = creal(r01 * conj(r01)), n1 = creal(r12 * conj(r12)), d1 = creal(B * conj(B));
+    for (size_t j = 0; j < count; j++) {
+        double p = rho[j], ra = ar * cs[j] - ai * sn[j], rb = br * cs[j] - bi * sn[j];
+        acc[j] += wt * (n0 + p * (n1 * p + 2 * ra)) / (1 + p * (d1 * p + 2 * rb));
+    }
+}
+
+
+/* Cone-averaged R of every residue film per wavelength for a substrate
+ * slot (add_film_r2); the films' phases follow from the first by a
+ * rotation (even steps in d). */
 static void residue_rbar(const lam_model *m, substrate_slot *s)
 {
     const cone *c = &m->cone_cache;
@@ -844,19 +862,10 @@ static void residue_rbar(const lam_model *m, substrate_slot *s)
             double r = exp(decay * LAM_RESIDUE_FIRST_NM), dr = exp(decay * LAM_RESIDUE_STEP_NM);
             for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++, u *= du, r *= dr)
                 cs[j] = creal(u), sn[j] = cimag(u), rho[j] = r;
-            for (int pol = 0; pol < npol; pol++) {
-                double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
-                double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
-                double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
-                double complex A = conj(r01) * r12, B = r01 * r12;
-                double ar = creal(A), ai = cimag(A), br = creal(B), bi = cimag(B);
-                double n0 = creal(r01 * conj(r01)), n1 = creal(r12 * conj(r12));
-                double d1 = creal(B * conj(B));
-                for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++) {
-                    double p = rho[j], ra = ar * cs[j] - ai * sn[j], rb = br * cs[j] - bi * sn[j];
-                    acc[j] += wt * (n0 + p * (n1 * p + 2 * ra)) / (1 + p * (d1 * p + 2 * rb));
-                }
-            }
+            for (int pol = 0; pol < npol; pol++)
+                add_film_r2(s->eta0[2 * k + (size_t)pol], s->y[2 * k + (size_t)pol],
+                            lam_tmm_eta(nf, qf, (lam_pol)pol), wt, cs, sn, rho,
+                            LAM_RESIDUE_FILMS, acc);
         }
     }
     s->res_filled = s->filled;
@@ -1075,11 +1084,9 @@ static void films_transmit_at(const lam_model *m, const substrate_slot *s, size_
 
 /* Reflection: the cone- and channel-weighted reflectance of the film of
  * each thickness at one wavelength, added to acc[k][c] (and the bare
- * substrate's to sub[c]). r = (r01 + r12 z) / (1 + r01 r12 z) with
- * z = rho e^(i phi) = exp(2 i k0 q d); its |r|^2 in real arithmetic
- * (as residue_rbar), one cos/sin per node and thickness shared by both
- * polarisations, the cone summed before the channels. 'buf' holds
- * 4 x count doubles. */
+ * substrate's to sub[c]) by add_film_r2: one cos/sin per node and
+ * thickness shared by both polarisations, the cone summed before the
+ * channels. 'buf' holds 4 x count doubles. */
 static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t l,
                              double complex nf, const double *d, size_t count,
                              double (*acc)[LAM_MAX_CHANNELS], double *sub, double *buf)
@@ -1100,17 +1107,8 @@ static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t
         }
         for (int pol = 0; pol < npol; pol++) {
             double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
-            double complex ef = lam_tmm_eta(nf, qf, (lam_pol)pol);
-            double complex r01 = (eta0 - ef) / (eta0 + ef), r12 = (ef - y) / (ef + y);
-            double complex A = conj(r01) * r12, B = r01 * r12;
-            double ar = creal(A), ai = cimag(A), br = creal(B), bi = cimag(B);
-            double n0 = creal(r01 * conj(r01)), n1 = creal(r12 * conj(r12));
-            double d1 = creal(B * conj(B));
             rsub += wt * reflectance(eta0, y);
-            for (size_t j = 0; j < count; j++) {
-                double p = rho[j], ra = ar * cs[j] - ai * sn[j], rb = br * cs[j] - bi * sn[j];
-                rsum[j] += wt * (n0 + p * (n1 * p + 2 * ra)) / (1 + p * (d1 * p + 2 * rb));
-            }
+            add_film_r2(eta0, y, lam_tmm_eta(nf, qf, (lam_pol)pol), wt, cs, sn, rho, count, rsum);
         }
     }
     for (size_t ch = 0; ch < m->channels; ch++) {
