@@ -128,10 +128,15 @@ $(BUILD)/tests/robust/robust: tests/robust/robust_main.c $(ROBUST_OBJ) $(SYNTH_O
 	$(CC) $(ALL_CFLAGS) -MF $@-main.d $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 # build/tests/robust/crystals: issue 14's hBN and TMD figures (make accuracy-crystals,
 # ~6 min). 12 scenes per cell: at 4, one bad image moved a material's figure by 7 %.
+# Then the TMDs with the camera not given (6 scenes per cell, ~1.5 min): their
+# counts are overconfident (the warning crystal-camera-unknown says so).
 $(BUILD)/tests/robust/crystals: tests/robust/crystals_main.c $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB)
 	$(CC) $(ALL_CFLAGS) -MF $@-main.d $(LDFLAGS) $< $(ROBUST_OBJ) $(SYNTH_OBJ) $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(LIB) $(LDLIBS) $(SYNTH_LIBS) -o $@
 accuracy-crystals: $(BUILD)/tests/robust/crystals
-	$(BUILD)/tests/robust/crystals --scenes $${SCENES:-12} --log $(BUILD)/tests/crystals-wrong.log
+	$(BUILD)/tests/robust/crystals --scenes $${SCENES:-12} --log $(BUILD)/tests/crystals-wrong.log \
+	    --flakes $(BUILD)/tests/crystals-hbn-flakes.csv
+	@echo "TMDs, camera not given:"
+	$(BUILD)/tests/robust/crystals --only tmd --uninformed --scenes 6 | tail -7
 TEST_HELPERS := $(BUILD)/tests/check.o $(BUILD)/tests/refdata.o $(BUILD)/tests/fuzz/targets.o \
                 $(SYNTH_OBJ) $(ROBUST_OBJ)
 $(BUILD)/tests/test_%: tests/test_%.c $(TEST_HELPERS) $(LIB)
