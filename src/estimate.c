@@ -283,20 +283,23 @@ void lam_estimate_gains(const lam_estimate *e, double gain[LAM_MAX_CHANNELS])
         gain[c] = exp(e->shared[LAM_NU_GAIN + c].value);
 }
 
+/* One row of model contrasts on the observed scale: g C + eps (1 - g C). */
+static void observe_row(const lam_estimate *e, const double *g, size_t channels, double *row)
+{
+    for (size_t c = 0; c < channels; c++) {
+        double gc = g[c] * row[c], eps = e->shared[LAM_NU_OFFSET + c].value;
+        row[c] = gc + eps * (1 - gc);
+    }
+}
+
 void lam_estimate_observe(const lam_estimate *e, lam_prediction *P)
 {
     double g[LAM_MAX_CHANNELS];
     lam_estimate_gains(e, g);
     for (size_t N = 1; N <= P->max_layers; N++)
-        for (size_t c = 0; c < P->channels; c++) {
-            double gc = g[c] * P->contrast[N][c], eps = e->shared[LAM_NU_OFFSET + c].value;
-            P->contrast[N][c] = gc + eps * (1 - gc);
-        }
+        observe_row(e, g, P->channels, P->contrast[N]);
     for (size_t k = 0; k < P->residues; k++)
-        for (size_t c = 0; c < P->channels; c++) {
-            double gc = g[c] * P->residue[k][c], eps = e->shared[LAM_NU_OFFSET + c].value;
-            P->residue[k][c] = gc + eps * (1 - gc);
-        }
+        observe_row(e, g, P->channels, P->residue[k]);
 }
 
 double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast)

@@ -11,13 +11,13 @@ double lam__gauss_logpdf(const double *m, const double *mu, const double *var, s
 
 double lam__logsumexp(const double *x, size_t n);
 
-/* log(prior x likelihood) per hypothesis (K + 3 values: substrate, 1..K,
- * thick, unmodelled) of a region against an observed-scale ladder. */
 /* ln of the unmodelled hypothesis' density of a region: a broad box, and
  * the ladder's residue films when it has them (estimate.c). */
 double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
                               const lam_prediction *ladder);
 
+/* log(prior x likelihood) per hypothesis (K + 3 values: substrate, 1..K,
+ * thick, unmodelled) of a region against an observed-scale ladder. */
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt);
 

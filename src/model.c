@@ -839,6 +839,28 @@ static void add_film_r2(double complex eta0, double complex y, double complex ef
     }
 }
 
+/* One cone node of wavelength l for a film of index n: its slot index k,
+ * polarisations, weight per polarisation, the film's wave vector and the
+ * phase and decay per nm of a round trip, 2 k0 q. */
+typedef struct film_node {
+    size_t k;
+    int npol;
+    double wt, phase, decay;
+    double complex q;
+} film_node;
+
+static film_node film_node_at(const lam_model *m, size_t l, size_t t, double complex n)
+{
+    const cone *c = &m->cone_cache;
+    film_node f;
+    double k0 = 2.0 * M_PI / m->wl[l];
+    f.k = l * c->nodes + t;
+    f.npol = c->sin_t[t] > 0 ? 2 : 1;
+    f.wt = c->w_t[t] / (double)f.npol;
+    f.q = lam_tmm_q(n, m->n_ambient * c->sin_t[t]);
+    f.phase = 2 * k0 * creal(f.q), f.decay = -2 * k0 * cimag(f.q);
+    return f;
+}
 
 /* Cone-averaged R of every residue film per wavelength for a substrate
  * slot (add_film_r2); the films' phases follow from the first by a
@@ -849,22 +871,18 @@ static void residue_rbar(const lam_model *m, substrate_slot *s)
     double cs[LAM_RESIDUE_FILMS], sn[LAM_RESIDUE_FILMS], rho[LAM_RESIDUE_FILMS];
     memset(s->res_rbar, 0, m->nwl * LAM_RESIDUE_FILMS * sizeof *s->res_rbar);
     for (size_t l = 0; l < m->nwl; l++) {
-        double k0 = 2.0 * M_PI / m->wl[l], *acc = s->res_rbar + l * LAM_RESIDUE_FILMS;
+        double *acc = s->res_rbar + l * LAM_RESIDUE_FILMS;
         double complex nf = m->n_residue[l];
         for (size_t t = 0; t < c->nodes; t++) {
-            size_t k = l * c->nodes + t;
-            int npol = c->sin_t[t] > 0 ? 2 : 1;
-            double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
-            double complex qf = lam_tmm_q(nf, kx);
-            double phase = 2 * k0 * creal(qf), decay = -2 * k0 * cimag(qf);
-            double complex u = cexp(I * phase * LAM_RESIDUE_FIRST_NM);
-            double complex du = cexp(I * phase * LAM_RESIDUE_STEP_NM);
-            double r = exp(decay * LAM_RESIDUE_FIRST_NM), dr = exp(decay * LAM_RESIDUE_STEP_NM);
+            film_node f = film_node_at(m, l, t, nf);
+            double complex u = cexp(I * f.phase * LAM_RESIDUE_FIRST_NM);
+            double complex du = cexp(I * f.phase * LAM_RESIDUE_STEP_NM);
+            double r = exp(f.decay * LAM_RESIDUE_FIRST_NM), dr = exp(f.decay * LAM_RESIDUE_STEP_NM);
             for (size_t j = 0; j < LAM_RESIDUE_FILMS; j++, u *= du, r *= dr)
                 cs[j] = creal(u), sn[j] = cimag(u), rho[j] = r;
-            for (int pol = 0; pol < npol; pol++)
-                add_film_r2(s->eta0[2 * k + (size_t)pol], s->y[2 * k + (size_t)pol],
-                            lam_tmm_eta(nf, qf, (lam_pol)pol), wt, cs, sn, rho,
+            for (int pol = 0; pol < f.npol; pol++)
+                add_film_r2(s->eta0[2 * f.k + (size_t)pol], s->y[2 * f.k + (size_t)pol],
+                            lam_tmm_eta(nf, f.q, (lam_pol)pol), f.wt, cs, sn, rho,
                             LAM_RESIDUE_FILMS, acc);
         }
     }
@@ -1091,24 +1109,20 @@ static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t
                              double complex nf, const double *d, size_t count,
                              double (*acc)[LAM_MAX_CHANNELS], double *sub, double *buf)
 {
-    const cone *c = &m->cone_cache;
-    double k0 = 2.0 * M_PI / m->wl[l], rsub = 0;
+    double rsub = 0;
     double *cs = buf, *sn = buf + count, *rho = buf + 2 * count, *rsum = buf + 3 * count;
     memset(rsum, 0, count * sizeof *rsum);
-    for (size_t t = 0; t < c->nodes; t++) {
-        size_t k = l * c->nodes + t;
-        int npol = c->sin_t[t] > 0 ? 2 : 1;
-        double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
-        double complex qf = lam_tmm_q(nf, kx);
-        double phase = 2 * k0 * creal(qf), decay = -2 * k0 * cimag(qf);
+    for (size_t t = 0; t < m->cone_cache.nodes; t++) {
+        film_node f = film_node_at(m, l, t, nf);
         for (size_t j = 0; j < count; j++) {
-            cs[j] = cos(phase * d[j]), sn[j] = sin(phase * d[j]);
-            rho[j] = decay == 0 ? 1.0 : exp(decay * d[j]);
+            cs[j] = cos(f.phase * d[j]), sn[j] = sin(f.phase * d[j]);
+            rho[j] = f.decay == 0 ? 1.0 : exp(f.decay * d[j]);
         }
-        for (int pol = 0; pol < npol; pol++) {
-            double complex eta0 = s->eta0[2 * k + (size_t)pol], y = s->y[2 * k + (size_t)pol];
-            rsub += wt * reflectance(eta0, y);
-            add_film_r2(eta0, y, lam_tmm_eta(nf, qf, (lam_pol)pol), wt, cs, sn, rho, count, rsum);
+        for (int pol = 0; pol < f.npol; pol++) {
+            double complex eta0 = s->eta0[2 * f.k + (size_t)pol], y = s->y[2 * f.k + (size_t)pol];
+            rsub += f.wt * reflectance(eta0, y);
+            add_film_r2(eta0, y, lam_tmm_eta(nf, f.q, (lam_pol)pol), f.wt, cs, sn, rho, count,
+                        rsum);
         }
     }
     for (size_t ch = 0; ch < m->channels; ch++) {

@@ -40,9 +40,6 @@
 
 typedef struct lam_model lam_model;
 
-/* A ladder: predicted reflectance and contrast of N = 0..max_layers layers
- * per camera channel (channels 1 to 3). Row 0 of the contrast is 0. This is
- * the one ladder type of the library (segmentation and inference use it). */
 /* Residue films (lam_model_set_residue): LAM_RESIDUE_FILMS thicknesses,
  * LAM_RESIDUE_FIRST_NM + k LAM_RESIDUE_STEP_NM (1 to 59.5 nm). The steps
  * are even so that one film's phase factor follows from the last by one
@@ -51,6 +48,10 @@ typedef struct lam_model lam_model;
 #define LAM_RESIDUE_FIRST_NM 1.0
 #define LAM_RESIDUE_STEP_NM 1.5
 
+/* A ladder: predicted reflectance and contrast of N = 0..max_layers layers
+ * per camera channel (channels 1 to 3). Row 0 of the contrast is 0. This is
+ * the one ladder type of the library (segmentation and inference use it).
+ * With a residue film, the residue films' contrasts too. */
 typedef struct lam_prediction {
     size_t channels, max_layers;
     double oxide_nm, fermi_ev;
