@@ -16,8 +16,9 @@ void crystals_flake_table(FILE *f)
 {
     flake_table = f;
     if (f)
-        fprintf(f, "image,source,oxide_true_nm,oxide_found_nm,pupil(1 sincos 2 sin 3 annular 4 filled),pupil_f,na,si,sio2,"
-                   "format_jpeg,thickness_nm,estimate_nm,lo_nm,hi_nm,ambiguous,area_px\n");
+        fprintf(f, "image,source,oxide_true_nm,oxide_found_nm,"
+                   "pupil(1 sincos 2 sin 3 annular 4 filled),pupil_f,na,si,sio2,format_jpeg,"
+                   "thickness_nm,estimate_nm,lo_nm,hi_nm,ambiguous,area_px\n");
 }
 
 /* One row of the flake table. */

@@ -146,6 +146,8 @@ int main(int argc, char **argv)
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
             o.log = fopen(argv[++i], "w");
     }
+    if (!o.informed) /* its setups must not replace the informed run's */
+        o.dir = "build/tests/crystals-out-uninformed";
     mkdir("build", 0755);
     mkdir("build/tests", 0755);
     mkdir(o.dir, 0755);
