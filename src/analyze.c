@@ -233,6 +233,7 @@ static lam_status model_stage(run *r, lam_error *err)
     /* the ladder at the prior's centre, for the substrate and the first pass */
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
+    MARK(r, LAM_T_MODEL);
     return st;
 }
 
