@@ -369,27 +369,29 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, const float *sa, const
 
 /* Neighbour pairs (encoded 2k for (k, k+1), 2k+1 for (k, k+w)) of two
  * provisional pixels in order of bucket (the largest channel difference in
- * deltas), then pixel. Built per strip of a few rows on all cores: a
- * strip's buckets are computed once into a small buffer and its pairs
- * placed by a counting sort that stays in cache. Taking bucket b of every
+ * deltas), then pixel. Built per strip of a few rows, by the thread that
+ * merges the strip's band, just before it does: a strip's buckets are
+ * computed once into a small buffer and its pairs placed by a counting
+ * sort that stays in cache, and only one band's lists per thread exist at
+ * a time (lists for the whole image were 4 bytes a pixel of fresh memory,
+ * which this machine pays for in page faults). Taking bucket b of every
  * strip in turn, then bucket b + 1, gives the order of one sequential sort
- * of the whole image, whatever the thread count. */
+ * of the band, whatever the thread count. */
 #define STRIP_ROWS 16 /* at most; fewer when wide, so a strip's codes fit 16 bits */
 #define NO_BUCKET PAIR_BUCKETS /* no pair: counted apart */
 
 typedef struct pair_lists {
-    size_t strips, rows, cap; /* cap: slots per strip (2 pairs per pixel) */
-    uint16_t *code;       /* strip s at code + s * cap: 2i + dir for its pixel i, or */
+    size_t strips, rows, cap; /* of the image; cap: slots per strip (2 pairs per pixel) */
+    size_t first;         /* the first strip held (strip s is held at s - first) */
+    uint16_t *code;       /* strip s at code + (s - first) * cap: 2i + dir for its pixel i, or */
     uint32_t *pairs;      /* (images wider than 32768 px) 2k + dir for pixel k */
-    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + s * (PAIR_BUCKETS + 1) */
+    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + (s - first) * (PAIR_BUCKETS + 1) */
 } pair_lists;
 
 typedef struct pair_ctx {
     const lam_image *img;
     const uint8_t *cls;
     const merge_state *m;
-    pair_lists *L;
-    int failed;
 } pair_ctx;
 
 /* Buckets of the pairs (x, x + off) of one row, n of them, into out:
@@ -443,71 +445,50 @@ static void strip_buckets(const pair_ctx *p, size_t y0, size_t y1, uint16_t *bk,
     }
 }
 
-static void pair_strips(size_t begin, size_t end, size_t slice, void *vctx)
+/* Scratch for building a strip's lists: its buckets, and a row of
+ * differences and of bucket numbers. */
+typedef struct strip_scratch {
+    uint16_t *bk;
+    double *f;
+    int32_t *b;
+} strip_scratch;
+
+/* The sorted pair list of strip s into L (which holds it). */
+static void strip_pairs(const pair_ctx *p, pair_lists *L, size_t s, const strip_scratch *t)
 {
-    (void)slice;
-    pair_ctx *p = vctx;
-    pair_lists *L = p->L;
     size_t w = p->img->width, h = p->img->height;
-    uint16_t *bk = malloc(2 * L->rows * w * sizeof *bk);
-    double *f = malloc(w * sizeof *f);
-    int32_t *bi = malloc(w * sizeof *bi);
+    size_t y0 = s * L->rows, y1 = y0 + L->rows < h ? y0 + L->rows : h;
+    size_t npx = (y1 - y0) * w, at = (s - L->first) * L->cap;
     uint32_t cnt[PAIR_BUCKETS + 1];
-    if (!bk || !f || !bi) {
-        p->failed = 1;
-        begin = end;
-    }
-    for (size_t s = begin; s < end; s++) {
-        size_t y0 = s * L->rows, y1 = y0 + L->rows < h ? y0 + L->rows : h;
-        size_t npx = (y1 - y0) * w;
-        strip_buckets(p, y0, y1, bk, f, bi);
-        memset(cnt, 0, sizeof cnt);
-        for (size_t i = 0; i < 2 * npx; i++)
-            cnt[bk[i]]++;
-        uint32_t *start = L->start + s * (PAIR_BUCKETS + 1);
-        start[0] = 0;
-        for (size_t b = 0; b < PAIR_BUCKETS; b++)
-            start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
-        for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
-            for (size_t dir = 0; dir < 2; dir++) {
-                uint16_t b = bk[i + dir * npx];
-                if (b == NO_BUCKET)
-                    continue;
-                if (L->code)
-                    L->code[s * L->cap + cnt[b]++] = (uint16_t)(2 * i + dir);
-                else
-                    L->pairs[s * L->cap + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
-            }
-    }
-    free(bk);
-    free(f);
-    free(bi);
+    strip_buckets(p, y0, y1, t->bk, t->f, t->b);
+    memset(cnt, 0, sizeof cnt);
+    for (size_t i = 0; i < 2 * npx; i++)
+        cnt[t->bk[i]]++;
+    uint32_t *start = L->start + (s - L->first) * (PAIR_BUCKETS + 1);
+    start[0] = 0;
+    for (size_t b = 0; b < PAIR_BUCKETS; b++)
+        start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
+    for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
+        for (size_t dir = 0; dir < 2; dir++) {
+            uint16_t b = t->bk[i + dir * npx];
+            if (b == NO_BUCKET)
+                continue;
+            if (L->code)
+                L->code[at + cnt[b]++] = (uint16_t)(2 * i + dir);
+            else
+                L->pairs[at + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
+        }
 }
 
-static lam_status sorted_pairs(const lam_image *img, const uint8_t *cls, const merge_state *m,
-                               size_t threads, pair_lists *L, lam_error *err)
+/* The strips' geometry (rows, count, list capacity) for a w x h image. */
+static pair_lists pair_geometry(size_t w, size_t h)
 {
-    size_t w = img->width, h = img->height;
-    L->rows = 32768 / w < STRIP_ROWS ? (32768 / w ? 32768 / w : 1) : STRIP_ROWS;
-    L->strips = (h + L->rows - 1) / L->rows;
-    L->cap = 2 * L->rows * w;
-    L->code = NULL;
-    L->pairs = NULL;
-    if (L->cap <= 65536) /* 16-bit codes: half the memory of pixel indices */
-        L->code = lam_big_malloc(L->strips * L->cap * sizeof *L->code);
-    else
-        L->pairs = lam_big_malloc(L->strips * L->cap * sizeof *L->pairs);
-    L->start = malloc(L->strips * (PAIR_BUCKETS + 1) * sizeof *L->start);
-    pair_ctx p = {img, cls, m, L, 0};
-    if ((L->code || L->pairs) && L->start)
-        lam_parallel_for(L->strips, threads, pair_strips, &p);
-    if ((!L->code && !L->pairs) || !L->start || p.failed) {
-        free(L->code);
-        free(L->pairs);
-        free(L->start);
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
-    }
-    return LAM_OK;
+    pair_lists L;
+    memset(&L, 0, sizeof L);
+    L.rows = 32768 / w < STRIP_ROWS ? (32768 / w ? 32768 / w : 1) : STRIP_ROWS;
+    L.strips = (h + L.rows - 1) / L.rows;
+    L.cap = 2 * L.rows * w;
+    return L;
 }
 
 typedef struct init_ctx {
@@ -578,9 +559,10 @@ typedef struct cursor {
 #define BATCH 256
 #define AHEAD 16
 
-/* Pair number 'at' of strip s as (2k + dir) over the whole image. */
-static uint32_t pair_at(const pair_lists *L, size_t s, size_t at)
+/* Pair i of strip s's list as (2k + dir) over the whole image. */
+static uint32_t pair_at(const pair_lists *L, size_t s, size_t i)
 {
+    size_t at = (s - L->first) * L->cap + i;
     return L->code ? (uint32_t)(s * L->cap + L->code[at]) : L->pairs[at];
 }
 
@@ -600,7 +582,7 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
     size_t nb = 0;
     while (nb < BATCH && c->b < PAIR_BUCKETS) {
         if (c->i < c->e) {
-            uint32_t p = pair_at(L, c->s, c->s * L->cap + c->i++);
+            uint32_t p = pair_at(L, c->s, c->i++);
             if (!crosses(L, w, p))
                 batch[nb++] = p;
             continue;
@@ -610,7 +592,7 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
             if (++c->b == PAIR_BUCKETS)
                 break;
         }
-        const uint32_t *st = L->start + c->s * (PAIR_BUCKETS + 1);
+        const uint32_t *st = L->start + (c->s - L->first) * (PAIR_BUCKETS + 1);
         c->i = st[c->b];
         c->e = st[c->b + 1];
     }
@@ -640,45 +622,114 @@ static void merge_batch(merge_state *m, const uint32_t *batch, size_t nb, size_t
     }
 }
 
+/* The pairs that cross each band's border into the next, kept for the
+ * last step: band b's in bucket order at pairs + b * width, with
+ * PAIR_BUCKETS + 1 offsets at start + b * (PAIR_BUCKETS + 1). */
+typedef struct border_lists {
+    uint32_t *pairs, *start;
+} border_lists;
+
 typedef struct band_ctx {
     merge_state *m;
-    const pair_lists *L;
-    size_t w;
+    pair_ctx p;
+    pair_lists geometry; /* the image's strips (no lists) */
+    border_lists borders;
+    int failed;
 } band_ctx;
 
-/* Bands begin..end, each on its own. */
+/* One band's own lists and a strip's scratch, per thread. */
+typedef struct band_work {
+    pair_lists L;
+    strip_scratch t;
+} band_work;
+
+static int band_work_alloc(const band_ctx *x, band_work *bw)
+{
+    size_t w = x->p.img->width, rows = x->geometry.rows, cap = x->geometry.cap;
+    bw->L = x->geometry;
+    if (cap <= 65536) /* 16-bit codes: half the memory of pixel indices */
+        bw->L.code = malloc(BAND_STRIPS * cap * sizeof *bw->L.code);
+    else
+        bw->L.pairs = malloc(BAND_STRIPS * cap * sizeof *bw->L.pairs);
+    bw->L.start = malloc(BAND_STRIPS * (PAIR_BUCKETS + 1) * sizeof *bw->L.start);
+    bw->t.bk = malloc(2 * rows * w * sizeof *bw->t.bk);
+    bw->t.f = malloc(w * sizeof *bw->t.f);
+    bw->t.b = malloc(w * sizeof *bw->t.b);
+    return (bw->L.code || bw->L.pairs) && bw->L.start && bw->t.bk && bw->t.f && bw->t.b;
+}
+
+static void band_work_free(band_work *bw)
+{
+    free(bw->L.code);
+    free(bw->L.pairs);
+    free(bw->L.start);
+    free(bw->t.bk);
+    free(bw->t.f);
+    free(bw->t.b);
+}
+
+/* The pairs of strip s (a band's last) that cross into the next band,
+ * in bucket order, into the band's border list. */
+static void keep_border(const pair_lists *L, size_t w, size_t s, size_t band,
+                        border_lists *B)
+{
+    uint32_t *out = B->pairs + band * w, *start = B->start + band * (PAIR_BUCKETS + 1);
+    const uint32_t *st = L->start + (s - L->first) * (PAIR_BUCKETS + 1);
+    uint32_t n = 0;
+    for (size_t b = 0; b < PAIR_BUCKETS; b++) {
+        start[b] = n;
+        for (uint32_t i = st[b]; i < st[b + 1]; i++) {
+            uint32_t p = pair_at(L, s, i);
+            if (crosses(L, w, p))
+                out[n++] = p;
+        }
+    }
+    start[PAIR_BUCKETS] = n;
+}
+
+/* Bands begin..end, each on its own: its strips' lists, its merging, its
+ * border pairs. */
 static void merge_bands(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
     band_ctx *x = vctx;
-    const pair_lists *L = x->L;
+    size_t w = x->p.img->width;
     uint32_t batch[BATCH];
+    band_work bw;
+    memset(&bw, 0, sizeof bw);
+    if (!band_work_alloc(x, &bw)) {
+        band_work_free(&bw);
+        x->failed = 1;
+        return;
+    }
+    pair_lists *L = &bw.L;
     for (size_t band = begin; band < end; band++) {
         size_t s0 = band * BAND_STRIPS;
         size_t s1 = s0 + BAND_STRIPS < L->strips ? s0 + BAND_STRIPS : L->strips;
-        const uint32_t *st = L->start + s0 * (PAIR_BUCKETS + 1);
-        cursor c = {0, s0, s0, s1, st[0], st[1]};
+        L->first = s0;
+        for (size_t s = s0; s < s1; s++)
+            strip_pairs(&x->p, L, s, &bw.t);
+        cursor c = {0, s0, s0, s1, L->start[0], L->start[1]};
         slot_pool pool = {(uint32_t)(band * x->m->band_slots), SINGLE};
         size_t nb;
-        while ((nb = gather(L, x->w, &c, batch)) > 0)
-            merge_batch(x->m, batch, nb, x->w, &pool);
+        while ((nb = gather(L, w, &c, batch)) > 0)
+            merge_batch(x->m, batch, nb, w, &pool);
+        keep_border(L, w, s1 - 1, band, &x->borders);
     }
+    band_work_free(&bw);
 }
 
 /* The pairs across band borders, bucket by bucket, border by border. */
-static void merge_borders(merge_state *m, const pair_lists *L, size_t w, size_t bands)
+static void merge_borders(merge_state *m, const border_lists *B, size_t w, size_t bands)
 {
     uint32_t batch[BATCH];
     slot_pool pool = {(uint32_t)(bands * m->band_slots), SINGLE};
     size_t nb = 0;
     for (size_t b = 0; b < PAIR_BUCKETS; b++)
-        for (size_t s = BAND_STRIPS - 1; s < L->strips; s += BAND_STRIPS) {
-            const uint32_t *st = L->start + s * (PAIR_BUCKETS + 1);
+        for (size_t band = 0; band < bands; band++) {
+            const uint32_t *st = B->start + band * (PAIR_BUCKETS + 1);
             for (uint32_t i = st[b]; i < st[b + 1]; i++) {
-                uint32_t p = pair_at(L, s, s * L->cap + i);
-                if (!crosses(L, w, p))
-                    continue;
-                batch[nb++] = p;
+                batch[nb++] = B->pairs[band * w + i];
                 if (nb == BATCH) {
                     merge_batch(m, batch, nb, w, &pool);
                     nb = 0;
@@ -689,13 +740,21 @@ static void merge_borders(merge_state *m, const pair_lists *L, size_t w, size_t 
 }
 
 /* Neighbour pairs in order of increasing difference, band by band on the
- * given threads, then across the bands' borders. */
-static void merge_pairs(merge_state *m, const pair_lists *L, size_t w, size_t threads)
+ * given threads, then across the bands' borders. -1 when out of memory. */
+static int merge_pairs(band_ctx *x, size_t threads)
 {
-    band_ctx x = {m, L, w};
-    size_t bands = band_count(L);
-    lam_parallel_for(bands, threads, merge_bands, &x);
-    merge_borders(m, L, w, bands);
+    size_t w = x->p.img->width, bands = band_count(&x->geometry);
+    x->borders.pairs = malloc(bands * w * sizeof *x->borders.pairs);
+    x->borders.start = malloc(bands * (PAIR_BUCKETS + 1) * sizeof *x->borders.start);
+    if (x->borders.pairs && x->borders.start)
+        lam_parallel_for(bands, threads, merge_bands, x);
+    else
+        x->failed = 1;
+    if (!x->failed)
+        merge_borders(x->m, &x->borders, w, bands);
+    free(x->borders.pairs);
+    free(x->borders.start);
+    return x->failed ? -1 : 0;
 }
 
 /* The regions of the provisional pixels into seg->label (the union-find
@@ -716,23 +775,16 @@ static lam_status grow(const lam_image *img, size_t channels, const double *delt
     m.node = seg->label; /* the union-find becomes the label map */
     init_ctx ic = {m.node, w};
     lam_parallel_for(img->height, threads, init_rows, &ic);
-    pair_lists L;
-    lam_status st = sorted_pairs(img, seg->cls, &m, threads, &L, err);
-    if (st)
-        return st;
-    size_t bands = band_count(&L);
-    m.band_slots = (BAND_STRIPS * L.rows * w + 1) / 2;
+    band_ctx x = {&m, {img, seg->cls, &m}, pair_geometry(w, img->height), {NULL, NULL}, 0};
+    size_t bands = band_count(&x.geometry);
+    m.band_slots = (BAND_STRIPS * x.geometry.rows * w + 1) / 2;
     /* no huge-page advice: untouched slots then cost no memory (only the
      * small pages that merges take are faulted in) */
     m.slots = malloc((bands * m.band_slots + bands * w) * sizeof *m.slots);
-    if (m.slots)
-        merge_pairs(&m, &L, w, threads);
-    free(L.code);
-    free(L.pairs);
-    free(L.start);
-    if (!m.slots)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
+    int failed = !m.slots || merge_pairs(&x, threads);
     free(m.slots);
+    if (failed)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate region merging");
     *regions = number_regions(seg->cls, m.node, n);
     return LAM_OK;
 }

@@ -183,10 +183,50 @@ static void test_rescue_cores(void)
     free(cls);
 }
 
+/* An image wider than 32768 px (strips of one row, pair lists of 32-bit
+ * pixel indices, not 16-bit codes), with a band border every 8 rows: a
+ * monolayer block across 20 rows is one region of its area, the same for
+ * 1 and 2 threads. */
+static void wide_image(void)
+{
+    const size_t w = 40000, h = 20, x0 = 1000, x1 = 39000;
+    lam_image *img = NULL;
+    lam_segmentation *seg[2] = {NULL, NULL};
+    lam_error err;
+    if (!check_true(!lam_image_alloc(w, h, &img, &err), "wide image allocated"))
+        return;
+    memset(img->clipped, 0, w * h);
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++)
+            for (int c = 0; c < 3; c++)
+                img->plane[c][y * w + x] = x >= x0 && x < x1 ? (float)MONO[c] : 0.0f;
+    lam_segment_options so = lam_segment_options_default();
+    double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
+    int ok = 1;
+    for (size_t t = 0; t < 2; t++) {
+        so.threads = t + 1;
+        ok = ok && !lam_segmentation_alloc(w, h, &seg[t], &err) &&
+             !lam_segment_uniform(img, 3, MONO, noise, scatter, &so, seg[t], &err);
+    }
+    if (check_true(ok, "wide image segmented with 1 and 2 threads")) {
+        uint32_t l = seg[0]->label[10 * w + 20000];
+        /* out: the 2-pixel frame and the block's 2 edge columns either side
+         * (the 4-pixel test), each with the 1-pixel dilation */
+        size_t want = (x1 - x0 - 6) * (h - 6), area = l ? seg[0]->regions[l - 1].area : 0;
+        check_true(l && area == want, "the block is one region of %zu px (%zu)", want, area);
+        check_true(!memcmp(seg[0]->label, seg[1]->label, w * h * sizeof *seg[0]->label),
+                   "the same labels with 2 threads as with 1");
+    }
+    lam_segmentation_free(seg[0]);
+    lam_segmentation_free(seg[1]);
+    lam_image_free(img);
+}
+
 int main(void)
 {
     check_begin("test_segment");
     test_rescue_cores();
+    wide_image();
     lam_image *img = scene();
     if (!check_true(img != NULL, "scene allocated"))
         return check_summary();
