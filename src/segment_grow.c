@@ -132,35 +132,51 @@ static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
     return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask") : LAM_OK;
 }
 
-/* The k-th smallest of m non-negative floats (0-based), as a full sort
- * would place it: their bit patterns order like the values, so two passes
- * of 16-bit histograms (high half, then the low half within the chosen
- * bin) find it exactly in linear time. 'hist' holds 65536 counts. */
-static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
+/* Order statistics of non-negative floats by their bit patterns, which
+ * order like the values: the k-th smallest (0-based), as a full sort
+ * would place it, is found exactly in linear time from two 16-bit
+ * histograms, of the high halves and then of the low halves within the
+ * chosen high bin. */
+#define HALF_BINS 65536
+
+/* The bin of hist (HALF_BINS counts) holding the k-th value, given
+ * *below values before the first bin; *below becomes those before it. */
+static uint32_t bin_of(const uint32_t *hist, size_t k, size_t *below)
 {
-    uint32_t hi = 0, lo = 0;
-    size_t below = 0;
-    memset(hist, 0, 65536 * sizeof *hist);
-    for (size_t i = 0; i < m; i++) {
-        uint32_t b;
-        memcpy(&b, &v[i], sizeof b);
-        hist[b >> 16]++;
-    }
-    while (below + hist[hi] <= k)
-        below += hist[hi++];
-    memset(hist, 0, 65536 * sizeof *hist);
-    for (size_t i = 0; i < m; i++) {
-        uint32_t b;
-        memcpy(&b, &v[i], sizeof b);
-        if (b >> 16 == hi)
-            hist[b & 0xffff]++;
-    }
-    while (below + hist[lo] <= k)
-        below += hist[lo++];
+    uint32_t bin = 0;
+    while (*below + hist[bin] <= k)
+        *below += hist[bin++];
+    return bin;
+}
+
+static float from_halves(uint32_t hi, uint32_t lo)
+{
     uint32_t bits = hi << 16 | lo;
     float out;
     memcpy(&out, &bits, sizeof out);
     return out;
+}
+
+static uint32_t bits_of(float v)
+{
+    uint32_t b;
+    memcpy(&b, &v, sizeof b);
+    return b;
+}
+
+/* The k-th smallest of m non-negative floats; 'hist' holds HALF_BINS counts. */
+static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
+{
+    size_t below = 0;
+    memset(hist, 0, HALF_BINS * sizeof *hist);
+    for (size_t i = 0; i < m; i++)
+        hist[bits_of(v[i]) >> 16]++;
+    uint32_t hi = bin_of(hist, k, &below);
+    memset(hist, 0, HALF_BINS * sizeof *hist);
+    for (size_t i = 0; i < m; i++)
+        if (bits_of(v[i]) >> 16 == hi)
+            hist[bits_of(v[i]) & 0xffff]++;
+    return from_halves(hi, bin_of(hist, k, &below));
 }
 
 /* Statistics of horizontal pixel differences at a lag, per channel, over
@@ -181,56 +197,106 @@ static int near_zero(const lam_image *img, size_t channels, const double *zero, 
     return 1;
 }
 
-/* One sample: the differences across pixel k at 'lag' in every channel,
- * when both ends are near zero contrast and inside the row (x = k % w). */
-static size_t sample_difference(const lam_image *img, size_t channels, const double *zero,
-                                size_t k, size_t x, size_t lag, float *d, size_t cap, size_t m)
-{
-    size_t w = img->width;
-    if (x < lag || x + lag >= w || !near_zero(img, channels, zero, k - lag) ||
-        !near_zero(img, channels, zero, k + lag))
-        return m;
-    for (size_t c = 0; c < channels; c++)
-        d[c * cap + m] = fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]);
-    return m + 1;
-}
+/* The two order statistics (median, 95th percentile) of each lag's and
+ * channel's differences, taken in two passes over the sampled pixels
+ * without storing the samples (at 12 MP they were 41 MB of fresh memory
+ * for 6 numbers): pass 1 counts the high halves of every lag and channel,
+ * pass 2 the low halves of the samples in the two chosen high bins. */
+enum { QUANTILES = 2 };
 
-/* The statistics at lags 1 and 2 in one pass over the sampled pixels (the
- * lag-2 samples lie one pixel after the lag-1 samples, in the same cache
- * lines); each channel's differences are filled with one zero test per
- * pixel; order statistics by selection. */
-static void difference_stats(const lam_image *img, size_t channels, const double *zero,
-                             diff_stats out[2])
+typedef struct diff_hist {
+    int pass;
+    size_t channels;
+    size_t m[2];                       /* samples per lag */
+    uint32_t hi[2][3][QUANTILES];      /* the chosen high bins */
+    size_t below[2][3][QUANTILES];     /* samples below each chosen high bin */
+    uint32_t *hist; /* pass 1: [lag][channel][HALF_BINS]; 2: [lag][channel][quantile][HALF_BINS] */
+} diff_hist;
+
+static void count_sample(diff_hist *H, size_t l, size_t c, float v)
 {
-    size_t w = img->width, n = img->width * img->height, m[2] = {0, 0};
-    size_t cap = n / SAMPLE_STRIDE + 1;
-    float *d = lam_big_malloc(2 * channels * cap * sizeof *d);
-    uint32_t *hist = malloc(65536 * sizeof *hist);
-    for (size_t l = 0; l < 2; l++)
-        for (size_t c = 0; c < 3; c++)
-            out[l].sigma[c] = out[l].p95[c] = 1e-3;
-    if (!d || !hist) {
-        free(d);
-        free(hist);
+    uint32_t b = bits_of(v);
+    if (H->pass == 1) {
+        H->hist[(l * 3 + c) * HALF_BINS + (b >> 16)]++;
         return;
     }
+    for (size_t q = 0; q < QUANTILES; q++)
+        if (b >> 16 == H->hi[l][c][q])
+            H->hist[((l * 3 + c) * QUANTILES + q) * HALF_BINS + (b & 0xffff)]++;
+}
+
+/* One sample: the differences across pixel k at 'lag' (lag l + 1) in every
+ * channel, when both ends are near zero contrast and inside the row
+ * (x = k % w). */
+static void sample_difference(const lam_image *img, const double *zero, size_t k, size_t x,
+                              size_t l, diff_hist *H)
+{
+    size_t w = img->width, lag = l + 1;
+    if (x < lag || x + lag >= w || !near_zero(img, H->channels, zero, k - lag) ||
+        !near_zero(img, H->channels, zero, k + lag))
+        return;
+    for (size_t c = 0; c < H->channels; c++)
+        count_sample(H, l, c, fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]));
+    H->m[l]++;
+}
+
+/* Both lags in one walk over the sampled pixels (the lag-2 samples lie
+ * one pixel after the lag-1 samples, in the same cache lines). */
+static void sample_pass(const lam_image *img, const double *zero, diff_hist *H)
+{
+    size_t w = img->width, n = img->width * img->height;
     size_t x = 1 % w; /* = k % w, kept by steps instead of a division per sample */
+    H->m[0] = H->m[1] = 0;
     for (size_t k = 1; k + 1 < n; k += SAMPLE_STRIDE) {
-        m[0] = sample_difference(img, channels, zero, k, x, 1, d, cap, m[0]);
+        sample_difference(img, zero, k, x, 0, H);
         if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
-            m[1] = sample_difference(img, channels, zero, k + 1, x + 1 < w ? x + 1 : 0, 2,
-                                     d + channels * cap, cap, m[1]);
+            sample_difference(img, zero, k + 1, x + 1 < w ? x + 1 : 0, 1, H);
         for (x += SAMPLE_STRIDE; x >= w;)
             x -= w;
     }
+}
+
+/* The rank of quantile q among m samples: the median, the 95th percentile. */
+static size_t rank_of(size_t q, size_t m)
+{
+    return q == 0 ? m / 2 : m * 95 / 100;
+}
+
+static void difference_stats(const lam_image *img, size_t channels, const double *zero,
+                             diff_stats out[2])
+{
+    diff_hist H;
+    memset(&H, 0, sizeof H);
+    H.channels = channels;
+    size_t bins = 2 * 3 * QUANTILES * HALF_BINS;
+    H.hist = malloc(bins * sizeof *H.hist);
     for (size_t l = 0; l < 2; l++)
-        for (size_t c = 0; c < channels && m[l] > 20; c++) {
-            float *v = d + (l * channels + c) * cap;
-            out[l].sigma[c] = fmax(1.4826 * select_nonneg(v, m[l], m[l] / 2, hist), 1e-5);
-            out[l].p95[c] = fmax(select_nonneg(v, m[l], m[l] * 95 / 100, hist), 1e-5);
+        for (size_t c = 0; c < 3; c++)
+            out[l].sigma[c] = out[l].p95[c] = 1e-3;
+    if (!H.hist)
+        return;
+    memset(H.hist, 0, 2 * 3 * HALF_BINS * sizeof *H.hist);
+    H.pass = 1;
+    sample_pass(img, zero, &H);
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < channels && H.m[l] > 20; c++)
+            for (size_t q = 0; q < QUANTILES; q++)
+                H.hi[l][c][q] = bin_of(H.hist + (l * 3 + c) * HALF_BINS, rank_of(q, H.m[l]),
+                                       &H.below[l][c][q]);
+    memset(H.hist, 0, bins * sizeof *H.hist);
+    H.pass = 2;
+    sample_pass(img, zero, &H);
+    for (size_t l = 0; l < 2; l++)
+        for (size_t c = 0; c < channels && H.m[l] > 20; c++) {
+            float v[QUANTILES];
+            for (size_t q = 0; q < QUANTILES; q++)
+                v[q] = from_halves(H.hi[l][c][q],
+                                   bin_of(H.hist + ((l * 3 + c) * QUANTILES + q) * HALF_BINS,
+                                          rank_of(q, H.m[l]), &H.below[l][c][q]));
+            out[l].sigma[c] = fmax(1.4826 * v[0], 1e-5);
+            out[l].p95[c] = fmax(v[1], 1e-5);
         }
-    free(d);
-    free(hist);
+    free(H.hist);
 }
 
 /* ---- statistical region merging ----
@@ -841,7 +907,7 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
     for (size_t cy = 0; cy < ch; cy++)
         for (size_t cx = 0; cx < cw; cx++)
             cell_mean(img, channels, zero, cx, cy, &mean[(cy * cw + cx) * 3]);
-    uint32_t *hist = malloc(65536 * sizeof *hist);
+    uint32_t *hist = malloc(HALF_BINS * sizeof *hist);
     for (size_t c = 0; c < channels && hist; c++) {
         m = 0;
         for (size_t i = 0; i < cw * ch; i++) {
