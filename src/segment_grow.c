@@ -322,8 +322,10 @@ static void difference_stats(const lam_image *img, size_t channels, const double
  * channel in a slot; a one-pixel region has none and reads the image. Most
  * pixels never need a slot, so the memory the merging touches is 4 bytes
  * a pixel plus 16 a merged region, not 16 a pixel (page faults are a large
- * part of this stage's time). Slots are handed out band by band from a
- * range of their own (see merge_bands), then for the borders. */
+ * part of this stage's time). A band merges with slots of its thread's
+ * own, reused band after band; at the band's end its surviving regions'
+ * slots move to the band's range of the image's slot array (see
+ * merge_bands), and the borders take theirs after those ranges. */
 typedef struct slot {
     uint32_t count;
     float sum[3];
@@ -608,11 +610,15 @@ static void merge_pair(merge_state *m, size_t k, size_t q, slot_pool *pool)
  * of increasing difference, the bands on all cores; then the pairs that
  * cross from a band's last row into the next band are merged, in the same
  * order. A region never spans two bands until that last step, so bands
- * touch disjoint nodes, and each band takes new slots from its own range
- * (m->band_slots from band * m->band_slots; a merge of two one-pixel
- * regions takes one, so half a band's pixels is enough), the borders from
- * the range after them. The merging is memory-bound: a band's nodes are a
- * working set a core can keep near, where the whole image's were not. */
+ * touch disjoint nodes. A band takes slots from its thread's own array of
+ * m->band_slots (a merge of two one-pixel regions takes one, so half a
+ * band's pixels is enough); its surviving regions keep theirs in the
+ * band's range of the image's array (from band * m->band_slots), the
+ * borders take theirs from the range after them. Slots taken and freed
+ * within a band (most of them: pairs of pixels merge first, then merge
+ * on) so never touch fresh memory. The merging is memory-bound: a band's
+ * nodes are a working set a core can keep near, where the whole image's
+ * were not. */
 #define BAND_STRIPS 8
 
 /* Where the merging is in the pair lists: bucket b of strip s (within
@@ -707,6 +713,7 @@ typedef struct band_ctx {
 typedef struct band_work {
     pair_lists L;
     strip_scratch t;
+    merge_state m; /* the image's, with the thread's own slots */
 } band_work;
 
 static int band_work_alloc(const band_ctx *x, band_work *bw)
@@ -721,7 +728,10 @@ static int band_work_alloc(const band_ctx *x, band_work *bw)
     bw->t.bk = malloc(2 * rows * w * sizeof *bw->t.bk);
     bw->t.f = malloc(w * sizeof *bw->t.f);
     bw->t.b = malloc(w * sizeof *bw->t.b);
-    return (bw->L.code || bw->L.pairs) && bw->L.start && bw->t.bk && bw->t.f && bw->t.b;
+    bw->m = *x->m;
+    bw->m.slots = malloc(x->m->band_slots * sizeof *bw->m.slots);
+    return (bw->L.code || bw->L.pairs) && bw->L.start && bw->t.bk && bw->t.f && bw->t.b &&
+           bw->m.slots;
 }
 
 static void band_work_free(band_work *bw)
@@ -732,6 +742,22 @@ static void band_work_free(band_work *bw)
     free(bw->t.bk);
     free(bw->t.f);
     free(bw->t.b);
+    free(bw->m.slots);
+}
+
+/* The surviving regions of a band (its pixels first .. first + n - 1):
+ * their slots from the thread's array into the band's range of the
+ * image's, their roots' words to match. */
+static void keep_slots(merge_state *m, const slot *own, size_t band, size_t first, size_t n)
+{
+    uint32_t next = (uint32_t)(band * m->band_slots);
+    for (size_t k = first; k < first + n; k++) {
+        uint32_t word = m->node[k];
+        if ((word & ROOT) && (word & ~ROOT) != SINGLE) {
+            m->slots[next] = own[word & ~ROOT];
+            m->node[k] = ROOT | next++;
+        }
+    }
 }
 
 /* The pairs of strip s (a band's last) that cross into the next band,
@@ -776,10 +802,12 @@ static void merge_bands(size_t begin, size_t end, size_t slice, void *vctx)
         for (size_t s = s0; s < s1; s++)
             strip_pairs(&x->p, L, s, &bw.t);
         cursor c = {0, s0, s0, s1, L->start[0], L->start[1]};
-        slot_pool pool = {(uint32_t)(band * x->m->band_slots), SINGLE};
-        size_t nb;
+        slot_pool pool = {0, SINGLE};
+        size_t nb, y0 = s0 * L->rows, y1 = s1 * L->rows < x->p.img->height ? s1 * L->rows
+                                                                              : x->p.img->height;
         while ((nb = gather(L, w, &c, batch)) > 0)
-            merge_batch(x->m, batch, nb, w, &pool);
+            merge_batch(&bw.m, batch, nb, w, &pool);
+        keep_slots(x->m, bw.m.slots, band, y0 * w, (y1 - y0) * w);
         keep_border(L, w, s1 - 1, band, &x->borders);
     }
     band_work_free(&bw);
