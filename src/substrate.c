@@ -156,19 +156,48 @@ static size_t thin_candidates(tile_stat *ts, size_t n, size_t cand)
     return cand;
 }
 
-/* Robust (GSL bisquare) fit of ln(level) per channel over the candidates. */
-static lam_status fit_flat_field(const tile_stat *ts, size_t n, size_t cand, lam_substrate *s,
-                                 lam_error *err)
+/* Robust (GSL bisquare) fit of ln(level) per channel over the candidates,
+ * the three channels side by side on the threads (each with its own
+ * workspace: the same fit as one after the other). */
+typedef struct flat_fit {
+    const tile_stat *ts;
+    size_t n, cand;
+    const gsl_matrix *X;
+    lam_substrate *s;
+    int gsl_status[3];
+} flat_fit;
+
+static void fit_channel(size_t c, void *vctx)
 {
-    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
-    gsl_vector *y = gsl_vector_alloc(cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
+    flat_fit *f = vctx;
+    gsl_vector *y = gsl_vector_alloc(f->cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
     gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
     gsl_multifit_robust_workspace *ws =
-        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, cand, LAM_SUBSTRATE_TERMS);
-    lam_status st = X && y && coef && cov && ws
-                        ? LAM_OK
-                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
-    for (size_t i = 0, r = 0; i < n && !st; i++) {
+        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, f->cand, LAM_SUBSTRATE_TERMS);
+    if (!y || !coef || !cov || !ws)
+        f->gsl_status[c] = GSL_ENOMEM;
+    else {
+        gsl_multifit_robust_maxiter(30, ws);
+        for (size_t i = 0, r = 0; i < f->n; i++)
+            if (f->ts[i].candidate)
+                gsl_vector_set(y, r++, log(f->ts[i].mean[c]));
+        f->gsl_status[c] = gsl_multifit_robust(f->X, y, coef, cov, ws);
+        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
+            f->s->coef[c][k] = gsl_vector_get(coef, (size_t)k);
+    }
+    gsl_vector_free(y);
+    gsl_vector_free(coef);
+    gsl_matrix_free(cov);
+    gsl_multifit_robust_free(ws);
+}
+
+static lam_status fit_flat_field(const tile_stat *ts, size_t n, size_t cand, lam_substrate *s,
+                                 size_t threads, lam_error *err)
+{
+    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
+    if (!X)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
+    for (size_t i = 0, r = 0; i < n; i++) {
         if (!ts[i].candidate)
             continue;
         double b[LAM_SUBSTRATE_TERMS];
@@ -177,23 +206,15 @@ static lam_status fit_flat_field(const tile_stat *ts, size_t n, size_t cand, lam
             gsl_matrix_set(X, r, (size_t)k, b[k]);
         r++;
     }
-    if (ws)
-        gsl_multifit_robust_maxiter(30, ws);
-    for (int c = 0; c < 3 && !st; c++) {
-        for (size_t i = 0, r = 0; i < n; i++)
-            if (ts[i].candidate)
-                gsl_vector_set(y, r++, log(ts[i].mean[c]));
-        int gs = gsl_multifit_robust(X, y, coef, cov, ws);
-        if (gs && gs != GSL_EMAXITER)
-            st = lam_error_gsl(err, gs, "flat-field fit");
-        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
-            s->coef[c][k] = gsl_vector_get(coef, (size_t)k);
-    }
+    flat_fit f = {ts, n, cand, X, s, {0, 0, 0}};
+    lam_parallel_each(3, threads, fit_channel, &f);
     gsl_matrix_free(X);
-    gsl_vector_free(y);
-    gsl_vector_free(coef);
-    gsl_matrix_free(cov);
-    gsl_multifit_robust_free(ws);
+    lam_status st = LAM_OK;
+    for (int c = 0; c < 3 && !st; c++)
+        if (f.gsl_status[c] == GSL_ENOMEM)
+            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
+        else if (f.gsl_status[c] && f.gsl_status[c] != GSL_EMAXITER)
+            st = lam_error_gsl(err, f.gsl_status[c], "flat-field fit");
     return st;
 }
 
@@ -335,10 +356,11 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
                            "no bare substrate found (%zu uniform substrate-coloured tiles); "
                            "give one with --substrate-roi X,Y,W,H",
                            cand);
-    if (!st && !(st = fit_flat_field(ts, n, cand, &s, err))) {
+    size_t threads = opt->threads ? opt->threads : 1;
+    if (!st && !(st = fit_flat_field(ts, n, cand, &s, threads, err))) {
         size_t again = thin_candidates(ts, n, refine_candidates(ts, n, &s, scratch));
         if (again >= 15)
-            st = fit_flat_field(ts, n, again, &s, err);
+            st = fit_flat_field(ts, n, again, &s, threads, err);
     }
     if (!st) {
         substrate_stats(ts, n, T, img, &s, scratch);
