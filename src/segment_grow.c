@@ -240,20 +240,66 @@ static void sample_difference(const lam_image *img, const double *zero, size_t k
     H->m[l]++;
 }
 
-/* Both lags in one walk over the sampled pixels (the lag-2 samples lie
- * one pixel after the lag-1 samples, in the same cache lines). */
-static void sample_pass(const lam_image *img, const double *zero, diff_hist *H)
+/* Both lags in one walk over samples j0..j1 - 1 (sample j at pixel
+ * 1 + SAMPLE_STRIDE j; the lag-2 samples lie one pixel after the lag-1
+ * samples, in the same cache lines). */
+static void sample_walk(const lam_image *img, const double *zero, size_t j0, size_t j1,
+                        diff_hist *H)
 {
-    size_t w = img->width, n = img->width * img->height;
-    size_t x = 1 % w; /* = k % w, kept by steps instead of a division per sample */
-    H->m[0] = H->m[1] = 0;
-    for (size_t k = 1; k + 1 < n; k += SAMPLE_STRIDE) {
+    size_t w = img->width, n = img->width * img->height, k = 1 + SAMPLE_STRIDE * j0;
+    size_t x = k % w; /* kept by steps instead of a division per sample */
+    for (size_t j = j0; j < j1; j++, k += SAMPLE_STRIDE) {
         sample_difference(img, zero, k, x, 0, H);
         if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
             sample_difference(img, zero, k + 1, x + 1 < w ? x + 1 : 0, 1, H);
         for (x += SAMPLE_STRIDE; x >= w;)
             x -= w;
     }
+}
+
+/* A pass over all samples in slices of rows on the threads, each slice
+ * counting into a histogram of its own; the counts are then added into
+ * H's (counts add exactly: the same histograms as one walk). */
+typedef struct sample_job {
+    const lam_image *img;
+    const double *zero;
+    diff_hist *slice; /* per slice: H's choices, its own counts */
+    size_t bins;
+} sample_job;
+
+static void sample_slices(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    sample_job *j = vctx;
+    sample_walk(j->img, j->zero, begin, end, &j->slice[slice]);
+}
+
+static int sample_pass(const lam_image *img, const double *zero, size_t threads, size_t bins,
+                       diff_hist *H)
+{
+    size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;
+    size_t slices = lam_parallel_slices(count, threads);
+    diff_hist *S = calloc(slices, sizeof *S);
+    int ok = S != NULL;
+    H->m[0] = H->m[1] = 0;
+    memset(H->hist, 0, bins * sizeof *H->hist);
+    for (size_t s = 0; ok && s < slices; s++) {
+        S[s] = *H;
+        S[s].hist = s ? calloc(bins, sizeof *S[s].hist) : H->hist;
+        ok = S[s].hist != NULL;
+    }
+    if (ok) {
+        sample_job job = {img, zero, S, bins};
+        lam_parallel_for(count, threads, sample_slices, &job);
+        for (size_t s = 1; s < slices; s++)
+            for (size_t b = 0; b < bins; b++)
+                H->hist[b] += S[s].hist[b];
+        for (size_t s = 0; s < slices; s++)
+            H->m[0] += S[s].m[0], H->m[1] += S[s].m[1];
+    }
+    for (size_t s = 1; S && s < slices; s++)
+        free(S[s].hist);
+    free(S);
+    return ok;
 }
 
 /* The rank of quantile q among m samples: the median, the 95th percentile. */
@@ -263,29 +309,31 @@ static size_t rank_of(size_t q, size_t m)
 }
 
 static void difference_stats(const lam_image *img, size_t channels, const double *zero,
-                             diff_stats out[2])
+                             size_t threads, diff_stats out[2])
 {
     diff_hist H;
     memset(&H, 0, sizeof H);
     H.channels = channels;
-    size_t bins = 2 * 3 * QUANTILES * HALF_BINS;
-    H.hist = malloc(bins * sizeof *H.hist);
+    size_t bins1 = 2 * 3 * HALF_BINS, bins2 = bins1 * QUANTILES;
+    H.hist = malloc(bins2 * sizeof *H.hist);
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < 3; c++)
             out[l].sigma[c] = out[l].p95[c] = 1e-3;
-    if (!H.hist)
-        return;
-    memset(H.hist, 0, 2 * 3 * HALF_BINS * sizeof *H.hist);
     H.pass = 1;
-    sample_pass(img, zero, &H);
+    if (!H.hist || !sample_pass(img, zero, threads, bins1, &H)) {
+        free(H.hist);
+        return;
+    }
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < channels && H.m[l] > 20; c++)
             for (size_t q = 0; q < QUANTILES; q++)
                 H.hi[l][c][q] = bin_of(H.hist + (l * 3 + c) * HALF_BINS, rank_of(q, H.m[l]),
                                        &H.below[l][c][q]);
-    memset(H.hist, 0, bins * sizeof *H.hist);
     H.pass = 2;
-    sample_pass(img, zero, &H);
+    if (!sample_pass(img, zero, threads, bins2, &H)) {
+        free(H.hist);
+        return;
+    }
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < channels && H.m[l] > 20; c++) {
             float v[QUANTILES];
@@ -919,7 +967,24 @@ static void cell_mean(const lam_image *img, size_t channels, const double *zero,
         mean[c] = ok ? (float)(sum[c] / (CELL * CELL)) : NAN;
 }
 
-static void cell_texture(const lam_image *img, size_t channels, const double *zero, double *out)
+typedef struct cell_job {
+    const lam_image *img;
+    size_t channels, cw;
+    const double *zero;
+    float *mean;
+} cell_job;
+
+static void cell_rows(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    const cell_job *j = vctx;
+    for (size_t cy = begin; cy < end; cy++)
+        for (size_t cx = 0; cx < j->cw; cx++)
+            cell_mean(j->img, j->channels, j->zero, cx, cy, &j->mean[(cy * j->cw + cx) * 3]);
+}
+
+static void cell_texture(const lam_image *img, size_t channels, const double *zero,
+                         size_t threads, double *out)
 {
     size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
     size_t cells = cw * ch > 0 ? cw * ch : 1;
@@ -932,9 +997,8 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
         free(d);
         return;
     }
-    for (size_t cy = 0; cy < ch; cy++)
-        for (size_t cx = 0; cx < cw; cx++)
-            cell_mean(img, channels, zero, cx, cy, &mean[(cy * cw + cx) * 3]);
+    cell_job job = {img, channels, cw, zero, mean};
+    lam_parallel_for(ch, threads, cell_rows, &job);
     uint32_t *hist = malloc(HALF_BINS * sizeof *hist);
     for (size_t c = 0; c < channels && hist; c++) {
         m = 0;
@@ -960,27 +1024,6 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
  * merge when their means differ by less than delta - a sixth of a monolayer
  * step, or the artefacts (JPEG block steps) when they are larger - plus
  * three standard errors of the pixel noise 'sigma'. */
-/* The texture statistics are independent: the differences (both lags in
- * one pass) and the cell means run side by side. */
-typedef struct texture_job {
-    const lam_image *img;
-    size_t channels;
-    const double *zero;
-    diff_stats d[2];
-    double cells[3];
-} texture_job;
-
-static void texture_tasks(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    (void)slice;
-    texture_job *j = vctx;
-    for (size_t t = begin; t < end; t++)
-        if (t == 0)
-            difference_stats(j->img, j->channels, j->zero, j->d);
-        else
-            cell_texture(j->img, j->channels, j->zero, j->cells);
-}
-
 static void thresholds(const lam_image *img, size_t channels, const double *c1,
                        const double noise[3], size_t threads, edge_ctx *ec, double delta[3],
                        double sigma[3])
@@ -990,12 +1033,11 @@ static void thresholds(const lam_image *img, size_t channels, const double *c1,
         step1 = fmax(step1, fabs(c1[c]));
     for (size_t c = 0; c < 3; c++)
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
-    texture_job job;
-    memset(&job, 0, sizeof job);
-    job.img = img, job.channels = channels, job.zero = zero;
-    lam_parallel_for(2, threads, texture_tasks, &job);
-    const diff_stats d1 = job.d[0], d2 = job.d[1];
-    const double *cells = job.cells;
+    diff_stats d[2];
+    double cells[3];
+    difference_stats(img, channels, zero, threads, d);
+    cell_texture(img, channels, zero, threads, cells);
+    const diff_stats d1 = d[0], d2 = d[1];
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
         ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
