@@ -135,7 +135,12 @@ static int fit_surface(const bright_sample *bs, size_t levels, double *coef)
             gsl_matrix_set(X, r, LAM_SUBSTRATE_TERMS + (size_t)bs->level[j] - 1, 1.0);
         gsl_vector_set(y, r++, bs->y[j]);
     }
-    ok = ok && !gsl_multifit_robust(X, y, c, cov, ws);
+    /* the iteration limit leaves the bisquare weights' last estimate, as
+     * good a surface as this rough use needs (as in the flat-field fit);
+     * treating it as a failure dropped the surface, and the raw
+     * brightness split a 48 MP field's substrate into several modes */
+    int gs = ok ? gsl_multifit_robust(X, y, c, cov, ws) : GSL_ENOMEM;
+    ok = ok && (!gs || gs == GSL_EMAXITER);
     for (int t = 0; ok && t < LAM_SUBSTRATE_TERMS; t++)
         coef[t] = gsl_vector_get(c, (size_t)t);
     gsl_multifit_robust_free(ws);
