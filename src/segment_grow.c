@@ -1101,6 +1101,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
                       steps * opt->file_step[c]);
     for (uint32_t i = 0; i < m; i++)
         R[i].cls = at_zero(&R[i], channels, tol) ? LAM_CLASS_SUBSTRATE : PROVISIONAL;
-    lam__keep_regions(seg, R, m, opt->min_region_px);
+    if (!lam__keep_regions(seg, R, m, opt->min_region_px))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the kept regions' labels");
     return LAM_OK;
 }
