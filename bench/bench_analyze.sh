@@ -47,3 +47,9 @@ lo=$(printf '%s\n' "$s3" "$s12" "$s48" | sort -n | head -1)
 hi=$(printf '%s\n' "$s3" "$s12" "$s48" | sort -n | tail -1)
 printf 'bench_analyze: seconds per megapixel: 3 MP %.4f, 12 MP %.4f, 48 MP %.4f; spread %.0f %% (goal <= 15 %%)\n' \
     "$s3" "$s12" "$s48" "$(echo "($hi / $lo - 1) * 100" | bc -l)"
+# the same three medians as a line t = a + b MP (least squares): the fixed
+# per-image cost (fits, model, start-up) apart from the cost per pixel
+fit=$(printf '3 %s\n12 %s\n48 %s\n' "$m3" "$ma" "$m48" | awk '{x[NR]=$1; y[NR]=$2; sx+=$1; sy+=$2}
+    END {mx=sx/3; my=sy/3; for (i=1;i<=3;i++) {sxy+=(x[i]-mx)*(y[i]-my); sxx+=(x[i]-mx)^2}
+         b=sxy/sxx; printf "%.3f %.4f", my-b*mx, b}')
+printf 'bench_analyze: as a line: %.3f s per image + %.4f s per megapixel (not a goal; shows what the spread above is made of)\n' $fit
