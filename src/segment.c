@@ -209,9 +209,9 @@ void lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, cons
 
 /* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
  * sums (whole numbers, exact in any grouping), depth, and the interior's
- * contrast sums pixel by pixel in row order. */
+ * contrast sums of channels 0..channels-1 pixel by pixel in row order. */
 static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8_t *depth,
-                           lam_region_stats *r, size_t y, size_t x0, size_t x1)
+                           lam_region_stats *r, size_t y, size_t x0, size_t x1, int channels)
 {
     size_t w = img->width, h = img->height, k0 = y * w, len = x1 - x0;
     r->cls = cls[k0 + x1 - 1]; /* the class of the region's last pixel, as pixel by pixel */
@@ -234,7 +234,7 @@ static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8
             continue;
         }
         r->interior++;
-        for (int c = 0; c < 3; c++) {
+        for (int c = 0; c < channels; c++) {
             double v = img->plane[c][k];
             r->sum[c] += v;
             r->sumsq[c] += v * v;
@@ -242,28 +242,78 @@ static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8
     }
 }
 
+/* The interior sums of channels 1 and 2 of one run (the second half of
+ * run_statistics' work, for a second thread): sum and sum of squares of
+ * channel 1, then of channel 2, in the same order as run_statistics. */
+static void run_sums_12(const lam_image *img, const uint8_t *depth, double s[4], size_t y,
+                        size_t x0, size_t x1)
+{
+    size_t k0 = y * img->width;
+    for (size_t k = k0 + x0; k < k0 + x1; k++) {
+        if (depth[k] < LAM_INTERIOR_DEPTH || img->clipped[k])
+            continue;
+        for (int c = 1; c < 3; c++) {
+            double v = img->plane[c][k];
+            s[2 * c - 2] += v;
+            s[2 * c - 1] += v * v;
+        }
+    }
+}
+
 /* Area, box, centroid, depth, and the contrast sums over the interior:
  * pixels at least LAM_INTERIOR_DEPTH from the boundary (blur and the
  * denoising filter mix two classes within ~2 px of an edge). Taken run by
- * run of one label along each row. */
+ * run of one label along each row. With two threads, one walk takes the
+ * geometry and channel 0, the other channels 1 and 2 into sums of its own
+ * (each region's sums are added in the same order: the same values). */
+typedef struct stats_job {
+    const lam_image *img;
+    const uint8_t *cls, *depth;
+    const uint32_t *lab;
+    lam_region_stats *R;
+    double (*sums_12)[4]; /* NULL: one walk takes every channel */
+} stats_job;
+
+static void stats_walk(size_t begin, size_t end, size_t slice, void *vjob)
+{
+    (void)slice;
+    const stats_job *j = vjob;
+    size_t w = j->img->width, h = j->img->height;
+    for (size_t part = begin; part < end; part++)
+        for (size_t y = 0; y < h; y++) {
+            const uint32_t *row = j->lab + y * w;
+            for (size_t x = 0, x1; x < w; x = x1) {
+                uint32_t l = row[x];
+                for (x1 = x + 1; x1 < w && row[x1] == l;)
+                    x1++;
+                if (l && part == 0)
+                    run_statistics(j->img, j->cls, j->depth, &j->R[l - 1], y, x, x1,
+                                   j->sums_12 ? 1 : 3);
+                else if (l)
+                    run_sums_12(j->img, j->depth, j->sums_12[l - 1], y, x, x1);
+            }
+        }
+}
+
 void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
-                             const uint8_t *depth, lam_region_stats *R, uint32_t m)
+                            const uint8_t *depth, lam_region_stats *R, uint32_t m,
+                            size_t threads)
 {
     size_t w = img->width, h = img->height;
     for (uint32_t i = 0; i < m; i++) {
         R[i].id = i + 1;
         R[i].bbox[0] = w, R[i].bbox[1] = h;
     }
-    for (size_t y = 0; y < h; y++) {
-        const uint32_t *row = lab + y * w;
-        for (size_t x = 0, x1; x < w; x = x1) {
-            uint32_t l = row[x];
-            for (x1 = x + 1; x1 < w && row[x1] == l;)
-                x1++;
-            if (l)
-                run_statistics(img, cls, depth, &R[l - 1], y, x, x1);
+    stats_job job = {img, cls, depth, lab, R, NULL};
+    if (threads > 1 && m)
+        job.sums_12 = calloc(m, sizeof *job.sums_12); /* out of memory: one walk */
+    lam_parallel_for(job.sums_12 ? 2 : 1, threads, stats_walk, &job);
+    for (uint32_t i = 0; job.sums_12 && i < m; i++)
+        for (int c = 1; c < 3; c++) {
+            R[i].sum[c] = job.sums_12[i][2 * c - 2];
+            R[i].sumsq[c] = job.sums_12[i][2 * c - 1];
         }
-    }
+    free(job.sums_12);
 }
 
 void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
@@ -279,7 +329,7 @@ void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const u
         for (size_t x = box[0], x1; x <= box[2]; x = x1) {
             x1 = row[x] == l ? run_end(row, x, w) : x + 1;
             if (row[x] == l)
-                run_statistics(img, cls, depth, r, y, x, x1);
+                run_statistics(img, cls, depth, r, y, x, x1, 3);
         }
     }
 }
@@ -357,16 +407,37 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
         free(depth);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
     }
-    lam__region_statistics(img, cls, lab, depth, R, m);
+    lam__region_statistics(img, cls, lab, depth, R, m, opt->threads ? opt->threads : 1);
     free(depth);
-    return lam__keep_regions(seg, R, m, opt->min_region_px) ? LAM_OK
+    return lam__keep_regions(seg, R, m, opt->min_region_px, opt->threads ? opt->threads : 1)
+               ? LAM_OK
                                                            : lam_error_set(err, LAM_ENOMEM,
                                                                            "cannot allocate labels");
 }
 
-int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px)
+/* The label map renumbered (remap by old id), dropped regions' pixels
+ * given their class (cls_of by old id): rows begin..end. */
+typedef struct relabel_job {
+    lam_segmentation *seg;
+    const uint32_t *remap;
+    const uint8_t *cls_of;
+} relabel_job;
+
+static void relabel_rows(size_t begin, size_t end, size_t slice, void *vjob)
 {
-    size_t n = seg->width * seg->height;
+    (void)slice;
+    const relabel_job *j = vjob;
+    lam_segmentation *seg = j->seg;
+    for (size_t k = begin * seg->width; k < end * seg->width; k++) {
+        uint32_t l = seg->label[k];
+        if (l && !(seg->label[k] = j->remap[l]))
+            seg->cls[k] = j->cls_of[l];
+    }
+}
+
+int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px,
+                      size_t threads)
+{
     uint32_t *remap = calloc((size_t)m + 1, sizeof *remap);
     uint8_t *cls_of = calloc((size_t)m + 1, 1);
     if (!remap || !cls_of) {
@@ -386,11 +457,8 @@ int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, si
             remap[i + 1] = (uint32_t)++kept;
         }
     }
-    for (size_t k = 0; k < n; k++) {
-        uint32_t l = seg->label[k];
-        if (l && !(seg->label[k] = remap[l]))
-            seg->cls[k] = cls_of[l];
-    }
+    relabel_job job = {seg, remap, cls_of};
+    lam_parallel_for(seg->height, threads, relabel_rows, &job);
     free(remap);
     free(cls_of);
     free(seg->regions);

@@ -1085,7 +1085,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
         free(depth);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
     }
-    lam__region_statistics(img, seg->cls, seg->label, depth, R, m);
+    lam__region_statistics(img, seg->cls, seg->label, depth, R, m, threads);
     free(depth);
     /* the tolerance follows the channel where a monolayer shows most: a
      * channel it barely changes (blue near 300 nm) must not turn patches of
@@ -1101,7 +1101,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
                       steps * opt->file_step[c]);
     for (uint32_t i = 0; i < m; i++)
         R[i].cls = at_zero(&R[i], channels, tol) ? LAM_CLASS_SUBSTRATE : PROVISIONAL;
-    if (!lam__keep_regions(seg, R, m, opt->min_region_px))
+    if (!lam__keep_regions(seg, R, m, opt->min_region_px, threads))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the kept regions' labels");
     return LAM_OK;
 }

@@ -11,9 +11,11 @@
 uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height,
                              size_t threads);
 
-/* Statistics of regions 1..m of a label map (R has m entries). */
+/* Statistics of regions 1..m of a label map (R has m entries), on up to
+ * two of 'threads' (the same values for any count). */
 void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *label,
-                            const uint8_t *depth, lam_region_stats *R, uint32_t m);
+                            const uint8_t *depth, lam_region_stats *R, uint32_t m,
+                            size_t threads);
 
 /* The same for region l alone, all of whose pixels lie within box (x0,
  * y0, x1, y1 inclusive): lam__region_depth writes the depth of its pixels
@@ -25,14 +27,16 @@ void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const u
                                const uint8_t *depth, uint32_t l, const size_t box[4],
                                lam_region_stats *r);
 
-/* Keep the regions worth reporting (renumbered 1..kept): substrate regions
- * become class SUBSTRATE without a label, specks and slivers class NONE.
- * Takes R over (stores it in seg). 0 when out of memory (R freed). */
 /* The root of a in a union-find forest of labels (parent[root] == root),
  * halving the path on the way. */
 uint32_t lam__label_root(uint32_t *parent, uint32_t a);
 
-int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px);
+/* Keep the regions worth reporting (renumbered 1..kept): substrate regions
+ * become class SUBSTRATE without a label, specks and slivers class NONE;
+ * the label map is relabelled in slices of rows on 'threads'. Takes R over
+ * (stores it in seg). 0 when out of memory (R freed). */
+int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px,
+                      size_t threads);
 
 /* Pixels of class 'none' (transition) deeper than a transition band inside
  * an area of such pixels become class 'joinable' again (segment_cores.c:
