@@ -409,10 +409,9 @@ lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *
     }
     lam__region_statistics(img, cls, lab, depth, R, m, opt->threads ? opt->threads : 1);
     free(depth);
-    return lam__keep_regions(seg, R, m, opt->min_region_px, opt->threads ? opt->threads : 1)
-               ? LAM_OK
-                                                           : lam_error_set(err, LAM_ENOMEM,
-                                                                           "cannot allocate labels");
+    if (!lam__keep_regions(seg, R, m, opt->min_region_px, opt->threads ? opt->threads : 1))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate labels");
+    return LAM_OK;
 }
 
 /* The label map renumbered (remap by old id), dropped regions' pixels

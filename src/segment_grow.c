@@ -25,7 +25,6 @@ typedef struct edge_ctx {
     const lam_image *img;
     size_t channels;
     float t2[3], t4[3]; /* per channel: change across 2 and across 4 pixels */
-    uint8_t *edge;      /* 1 on transition pixels (and the 2-pixel frame) */
     uint8_t *cls;
     int failed;
     int bright;         /* scale the thresholds with the brightness (bright_scaling) */
@@ -64,48 +63,50 @@ static void edge_test_bright(const float *restrict p, size_t w, float t2, float 
 /* Transition pixels: the contrast changes by more than a channel's
  * threshold across two pixels (or, for slow blurred edges, across four) in
  * some channel: the pixel mixes two classes. The frame of 2 pixels, where
- * the test does not fit, counts as transition. */
-static void edge_rows(size_t begin, size_t end, size_t slice, void *vctx)
+ * the test does not fit, counts as transition. Row y into out (1 on
+ * transition pixels); acc: w integers of scratch. */
+static void edge_row(const edge_ctx *e, size_t y, int32_t *acc, uint8_t *out)
+{
+    size_t w = e->img->width, h = e->img->height;
+    if (y < 2 || y + 2 >= h || w < 5) {
+        memset(out, 1, w);
+        return;
+    }
+    memset(acc, 0, w * sizeof *acc);
+    for (size_t c = 0; c < e->channels; c++)
+        (e->bright ? edge_test_bright : edge_test)(e->img->plane[c] + y * w, w, e->t2[c],
+                                                   e->t4[c], acc);
+    for (size_t x = 0; x < w; x++)
+        out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
+}
+
+/* Close gaps in the transition lines: a pixel next to (8-neighbour) a
+ * transition pixel is one too, so no one-pixel path joins two regions.
+ * The rows' transition flags are made as the rows are reached, in a ring
+ * of three (each slice of rows makes the two beside it again): no
+ * whole-image mask (12 MB of fresh memory at 12 MP). Writes the classes. */
+static void mark_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
     edge_ctx *e = vctx;
     size_t w = e->img->width, h = e->img->height;
     int32_t *acc = malloc(w * sizeof *acc);
-    if (!acc) {
+    uint8_t *ring = malloc(3 * w), *col = malloc(w);
+    if (!acc || !ring || !col) {
         e->failed = 1;
-        return;
+        begin = end;
+    }
+    if (begin < end) {
+        if (begin > 0)
+            edge_row(e, begin - 1, acc, ring + (begin - 1) % 3 * w);
+        edge_row(e, begin, acc, ring + begin % 3 * w);
     }
     for (size_t y = begin; y < end; y++) {
-        uint8_t *out = e->edge + y * w;
-        if (y < 2 || y + 2 >= h || w < 5) {
-            memset(out, 1, w);
-            continue;
-        }
-        memset(acc, 0, w * sizeof *acc);
-        for (size_t c = 0; c < e->channels; c++)
-            (e->bright ? edge_test_bright : edge_test)(e->img->plane[c] + y * w, w, e->t2[c],
-                                                       e->t4[c], acc);
-        for (size_t x = 0; x < w; x++)
-            out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
-    }
-    free(acc);
-}
-
-/* Close gaps in the transition lines: a pixel next to (8-neighbour) a
- * transition pixel is one too, so no one-pixel path joins two regions.
- * Reads the edge mask, writes the classes. */
-static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    (void)slice;
-    edge_ctx *e = vctx;
-    size_t w = e->img->width, h = e->img->height;
-    uint8_t *col = malloc(w);
-    if (!col) {
-        e->failed = 1;
-        return;
-    }
-    for (size_t y = begin; y < end; y++) {
-        const uint8_t *r = e->edge + y * w, *u = y ? r - w : r, *d = y + 1 < h ? r + w : r;
+        if (y + 1 < h)
+            edge_row(e, y + 1, acc, ring + (y + 1) % 3 * w);
+        const uint8_t *r = ring + y % 3 * w;
+        const uint8_t *u = y ? ring + (y - 1) % 3 * w : r;
+        const uint8_t *d = y + 1 < h ? ring + (y + 1) % 3 * w : r;
         for (size_t x = 0; x < w; x++)
             col[x] = (uint8_t)(u[x] | r[x] | d[x]);
         uint8_t *out = e->cls + y * w;
@@ -114,6 +115,8 @@ static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
             out[x] = any ? LAM_CLASS_NONE : PROVISIONAL;
         }
     }
+    free(acc);
+    free(ring);
     free(col);
 }
 
@@ -121,15 +124,8 @@ static void dilate_rows(size_t begin, size_t end, size_t slice, void *vctx)
  * region (class PROVISIONAL). */
 static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
 {
-    size_t w = e->img->width, h = e->img->height;
-    if (!(e->edge = lam_big_malloc(w * h)))
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask");
-    lam_parallel_for(h, threads, edge_rows, e);
-    if (!e->failed)
-        lam_parallel_for(h, threads, dilate_rows, e);
-    free(e->edge);
-    e->edge = NULL;
-    return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge mask") : LAM_OK;
+    lam_parallel_for(e->img->height, threads, mark_rows, e);
+    return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge rows") : LAM_OK;
 }
 
 /* Order statistics of non-negative floats by their bit patterns, which
@@ -501,7 +497,8 @@ typedef struct pair_lists {
     size_t first;         /* the first strip held (strip s is held at s - first) */
     uint16_t *code;       /* strip s at code + (s - first) * cap: 2i + dir for its pixel i, or */
     uint32_t *pairs;      /* (images wider than 32768 px) 2k + dir for pixel k */
-    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets at start + (s - first) * (PAIR_BUCKETS + 1) */
+    uint32_t *start;      /* strip s: PAIR_BUCKETS + 1 offsets from
+                           * start + (s - first) * (PAIR_BUCKETS + 1) */
 } pair_lists;
 
 typedef struct pair_ctx {
