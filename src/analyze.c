@@ -653,6 +653,65 @@ static int join_key(const lam_region_result *res)
     return res->layers > 0 && res->p_label >= 0.9 && !(res->flags & bad) ? res->layers : -1;
 }
 
+/* Regions labelled "thick" or "unassigned" (unmodelled) have no count to
+ * match on, and a JPEG's chroma steps cut a graphite flake or a residue
+ * patch into blocks (the 12 MP bench field's 25-layer flake came out as
+ * 44 regions, its residue patch as 40, each labelled in the picture).
+ * Regions of one such kind share a key when their contrasts agree within
+ * 'fill' in every channel (the tolerance of the join's band pixels): each,
+ * largest first, takes the key of the first larger one of its kind it
+ * agrees with, or a new key (from UNCOUNTED_KEYS, above every count). The
+ * join still needs them to touch or face each other across a thin band.
+ * The label's probability is not asked for: what tells a piece of the same
+ * graphite from a different flake is its contrast, not how sure "thick" is
+ * against "unmodelled". Saturated regions stay apart. */
+#define UNCOUNTED_KEYS 1000
+
+/* 1 thick, 2 unmodelled, 0 neither (or saturated). */
+static int uncounted_kind(const lam_region_result *res)
+{
+    if (res->flags & LAM_FLAG_SATURATED)
+        return 0;
+    return res->thick && !(res->flags & LAM_FLAG_UNMODELLED) ? 1
+           : (res->flags & LAM_FLAG_UNMODELLED)              ? 2
+                                                             : 0;
+}
+
+static int contrasts_agree(const lam_analysis *a, size_t i, size_t j, const double fill[3])
+{
+    int agree = 1;
+    for (size_t c = 0; c < a->channels; c++)
+        agree &= fabs(a->measured[i].mean[c] - a->measured[j].mean[c]) <= fill[c];
+    return agree;
+}
+
+static void uncounted_keys(const lam_analysis *a, const double fill[3], int *key)
+{
+    size_t n = a->count, *order = malloc((n ? n : 1) * sizeof *order), m = 0;
+    if (!order)
+        return; /* their parts stay apart */
+    for (size_t i = 0; i < n; i++)
+        if (uncounted_kind(&a->results[i]))
+            order[m++] = i;
+    for (size_t s = 1; s < m; s++) /* largest first (insertion sort: few such regions) */
+        for (size_t t = s; t > 0 && a->seg->regions[order[t]].area >
+                                        a->seg->regions[order[t - 1]].area; t--) {
+            size_t x = order[t];
+            order[t] = order[t - 1], order[t - 1] = x;
+        }
+    for (size_t s = 0; s < m; s++) {
+        int kind = uncounted_kind(&a->results[order[s]]);
+        key[order[s]] = UNCOUNTED_KEYS + (int)s;
+        for (size_t t = 0; t < s; t++)
+            if (uncounted_kind(&a->results[order[t]]) == kind &&
+                contrasts_agree(a, order[s], order[t], fill)) {
+                key[order[s]] = key[order[t]];
+                break;
+            }
+    }
+    free(order);
+}
+
 /* Parts of one flake with one confident layer count become one region
  * (lam_segment_join), measured and inferred again. Band and hole pixels
  * join when every channel is within 0.3 of the monolayer step of the
@@ -675,6 +734,8 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
         fill[c] = 0.3 * step + a->substrate.noise[c];
     for (size_t i = 0; i < n && !st; i++)
         key[i] = join_key(&a->results[i]);
+    if (!st)
+        uncounted_keys(a, fill, key);
     if (!st)
         st = lam_segment_join(r->img, a->channels, key, fill, r->threads, a->seg, map, &joined,
                               err);

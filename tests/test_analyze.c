@@ -267,6 +267,48 @@ static void test_no_substrate(void)
     lam_scene_clear(&sc);
 }
 
+/* A JPEG's chroma steps cut a 25-layer flake and a polymer patch into
+ * blocks (bench/scene-3mp.json, the 3 MP benchmark field: 15 "thick" and
+ * 18 "unassigned" regions). Pieces of one such object, whose contrasts
+ * agree, must come out as one region each: a person should see the
+ * graphite flake once, not fifteen labels. Geometry, not physics: the
+ * field is lamina's own render, and the truth is where its polygons are. */
+static void test_pieces_joined(void)
+{
+    lam_scene sc;
+    lam_error err;
+    lam_error_clear(&err);
+    char img_path[512];
+    snprintf(img_path, sizeof img_path, "%s/field3mp.jpg", check_tmpdir());
+    if (!check_int(lam_scene_load("bench/scene-3mp.json", &sc, &err), LAM_OK,
+                   "3 MP field loads (%s)", err.message))
+        return;
+    lam_image *img = NULL;
+    uint8_t *truth = NULL;
+    lam_analysis *a = NULL;
+    if (check_int(lam_render(&sc, &img, &truth, &err), LAM_OK, "3 MP field renders") &&
+        check_int(lam_render_save(img, img_path, 0, sc.jpeg_quality, &err), LAM_OK, "saved") &&
+        check_int(lam_analyze(img_path, &sc.setup, NULL, &a, &err), LAM_OK,
+                  "3 MP field analyses (%s)", err.message)) {
+        size_t thick = 0, residue = 0;
+        uint32_t at_residue = a->seg->label[1350 * a->width + 1000];
+        for (size_t i = 0; i < a->count; i++) {
+            thick += a->results[i].thick && a->seg->regions[i].area >= 100;
+            int like = at_residue && a->seg->regions[i].area >= 100 &&
+                       (a->results[i].flags & LAM_FLAG_UNMODELLED);
+            for (size_t c = 0; like && c < a->channels; c++)
+                like = fabs(a->measured[i].mean[c] - a->measured[at_residue - 1].mean[c]) < 0.03;
+            residue += (size_t)like;
+        }
+        check_int((int)thick, 1, "the 25-layer flake is one 'thick' region");
+        check_int((int)residue, 1, "the residue patch is one 'unassigned' region");
+    }
+    lam_analysis_free(a);
+    lam_image_free(img);
+    free(truth);
+    lam_scene_clear(&sc);
+}
+
 int main(void)
 {
     check_begin("test_analyze");
@@ -275,5 +317,6 @@ int main(void)
     test_json_contract();
     test_mostly_covered();
     test_no_substrate();
+    test_pieces_joined();
     return check_summary();
 }
