@@ -672,9 +672,9 @@ static int uncounted_kind(const lam_region_result *res)
 {
     if (res->flags & LAM_FLAG_SATURATED)
         return 0;
-    return res->thick && !(res->flags & LAM_FLAG_UNMODELLED) ? 1
-           : (res->flags & LAM_FLAG_UNMODELLED)              ? 2
-                                                             : 0;
+    if (res->flags & LAM_FLAG_UNMODELLED)
+        return 2;
+    return res->thick ? 1 : 0;
 }
 
 static int contrasts_agree(const lam_analysis *a, size_t i, size_t j, const double fill[3])

@@ -284,8 +284,7 @@ static void stats_walk(size_t begin, size_t end, size_t slice, void *vjob)
             const uint32_t *row = j->lab + y * w;
             for (size_t x = 0, x1; x < w; x = x1) {
                 uint32_t l = row[x];
-                for (x1 = x + 1; x1 < w && row[x1] == l;)
-                    x1++;
+                x1 = run_end(row, x, w);
                 if (l && part == 0)
                     run_statistics(j->img, j->cls, j->depth, &j->R[l - 1], y, x, x1,
                                    j->sums_12 ? 1 : 3);

@@ -260,7 +260,6 @@ typedef struct sample_job {
     const lam_image *img;
     const double *zero;
     diff_hist *slice; /* per slice: H's choices, its own counts */
-    size_t bins;
 } sample_job;
 
 static void sample_slices(size_t begin, size_t end, size_t slice, void *vctx)
@@ -269,9 +268,16 @@ static void sample_slices(size_t begin, size_t end, size_t slice, void *vctx)
     sample_walk(j->img, j->zero, begin, end, &j->slice[slice]);
 }
 
-static int sample_pass(const lam_image *img, const double *zero, size_t threads, size_t bins,
-                       diff_hist *H)
+/* The histogram counts a pass keeps: per lag and channel, and in pass 2
+ * per quantile too. */
+static size_t pass_bins(int pass)
 {
+    return 2 * 3 * HALF_BINS * (pass == 1 ? 1 : QUANTILES);
+}
+
+static int sample_pass(const lam_image *img, const double *zero, size_t threads, diff_hist *H)
+{
+    size_t bins = pass_bins(H->pass);
     size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;
     size_t slices = lam_parallel_slices(count, threads);
     diff_hist *S = calloc(slices, sizeof *S);
@@ -284,7 +290,7 @@ static int sample_pass(const lam_image *img, const double *zero, size_t threads,
         ok = S[s].hist != NULL;
     }
     if (ok) {
-        sample_job job = {img, zero, S, bins};
+        sample_job job = {img, zero, S};
         lam_parallel_for(count, threads, sample_slices, &job);
         for (size_t s = 1; s < slices; s++)
             for (size_t b = 0; b < bins; b++)
@@ -310,13 +316,12 @@ static void difference_stats(const lam_image *img, size_t channels, const double
     diff_hist H;
     memset(&H, 0, sizeof H);
     H.channels = channels;
-    size_t bins1 = 2 * 3 * HALF_BINS, bins2 = bins1 * QUANTILES;
-    H.hist = malloc(bins2 * sizeof *H.hist);
+    H.hist = malloc(pass_bins(2) * sizeof *H.hist);
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < 3; c++)
             out[l].sigma[c] = out[l].p95[c] = 1e-3;
     H.pass = 1;
-    if (!H.hist || !sample_pass(img, zero, threads, bins1, &H)) {
+    if (!H.hist || !sample_pass(img, zero, threads, &H)) {
         free(H.hist);
         return;
     }
@@ -326,7 +331,7 @@ static void difference_stats(const lam_image *img, size_t channels, const double
                 H.hi[l][c][q] = bin_of(H.hist + (l * 3 + c) * HALF_BINS, rank_of(q, H.m[l]),
                                        &H.below[l][c][q]);
     H.pass = 2;
-    if (!sample_pass(img, zero, threads, bins2, &H)) {
+    if (!sample_pass(img, zero, threads, &H)) {
         free(H.hist);
         return;
     }
