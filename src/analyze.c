@@ -36,10 +36,10 @@ void lam_analysis_free(lam_analysis *a)
     if (!a)
         return;
     lam_segmentation_free(a->seg);
+    lam_analysis_drop_pictures(a);
     free(a->results);
     free(a->thickness);
     free(a->measured);
-    free(a->display);
     lam_estimate_free(a->estimate);
     free(a);
 }
@@ -154,8 +154,7 @@ static lam_status load_stage(run *r, const char *path, lam_error *err)
     lam_load_options lo = r->opt->load;
     if (lo.transfer.kind == LAM_TRANSFER_AUTO && !lam_setup_is_default(r->setup, "encoding"))
         lo.transfer = r->setup->encoding;
-    lo.keep_display8 = 1; /* 8-bit files: the report draws on the file's own codes */
-    lam_status st = lam_image_load(path, &lo, &r->img, err);
+    lam_status st = lam__load_input(path, &lo, &r->img, &a->source, &a->source_size, err);
     if (st)
         return st;
     MARK(r, LAM_T_LOAD);
@@ -169,9 +168,9 @@ static lam_status load_stage(run *r, const char *path, lam_error *err)
     }
     a->bit_depth = img->bit_depth;
     a->clipped_pixels = img->clipped_count;
-    a->display = img->display8; /* taken over, or NULL for 16-bit files */
+    a->display = img->display8; /* taken over, or NULL for JPEG and 16-bit files */
     img->display8 = NULL;
-    if (!a->display && !(a->display = display_copy(img, r->threads)))
+    if (!a->display && !a->source && !(a->display = display_copy(img, r->threads)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     MARK(r, LAM_T_DISPLAY);
     return LAM_OK;

@@ -13,6 +13,14 @@
  * image a colour camera; LAM_EINVAL says which and what to do. */
 lam_status lam__check_channels(const lam_image *img, const lam_setup *s, lam_error *err);
 
+/* Load the image to analyse (lo as given; the 8-bit codes are kept for
+ * the picture): a JPEG from its bytes read whole, returned in *bytes and
+ * *size for lam_analysis_display (the 8-bit codes are not kept); any other
+ * file as lam_image_load with keep_display8, *bytes NULL. Errors name the
+ * file. */
+lam_status lam__load_input(const char *path, const lam_load_options *lo, lam_image **img,
+                           uint8_t **bytes, size_t *size, lam_error *err);
+
 /* After the segmentation changed (made, or flakes joined): a->count from
  * it, every region's measurement in a->measured (room for that many) and
  * its share of the transition pixels (the areas the size flags use, on

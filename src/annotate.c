@@ -559,10 +559,11 @@ static void draw_labels(scene *S)
 
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err)
 {
-    if (!a->display)
-        return lam_error_set(err, LAM_EINVAL, "the display copy was already used");
+    lam_status st = lam_analysis_display(a, err);
+    if (st)
+        return st;
     lam_contours *ct = NULL;
-    lam_status st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height,
+    st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height,
                                        a->count, &ct, err);
     if (st)
         return st;

@@ -79,13 +79,6 @@ typedef struct run {
     int *sample_done;
 } run;
 
-static void free_display(lam_analysis *a)
-{
-    if (a) { /* keep only what summaries need: the big buffer goes now */
-        free(a->display);
-        a->display = NULL;
-    }
-}
 
 static int hash_item(lam_batch_item *it)
 {
@@ -115,7 +108,7 @@ static void image_step(void *ctx, size_t i)
     if (r->opt->on_image)
         r->opt->on_image(r->b, it, r->done, r->opt->user);
     pthread_mutex_unlock(&r->lock);
-    free_display(it->a);
+    lam_analysis_drop_pictures(it->a); /* summaries need only the results */
 }
 
 /* A sample analysis for the pooled fit: not written; added to the pool in
@@ -128,7 +121,7 @@ static void sample_step(void *ctx, size_t k)
     lam_error_clear(&err);
     if (lam_analyze(r->b->items[r->sample[k]].path, r->opt->setup, &r->aopt, &a, &err))
         a = NULL; /* reported when the image itself is analysed */
-    free_display(a);
+    lam_analysis_drop_pictures(a);
     pthread_mutex_lock(&r->lock);
     r->sampled[k] = a;
     r->sample_done[k] = 1;

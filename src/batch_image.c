@@ -45,6 +45,12 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
     aj.a = a;
     lam_error_clear(&aj.err);
     snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
+    /* the picture is decoded here, before the second thread starts: memory
+     * a thread allocates comes from an arena of its own, so a display
+     * decoded there would not reuse what the analysis freed (its planes) */
+    lam_status dst = lam_analysis_display(a, err);
+    if (dst)
+        return dst;
     pthread_t t;
     int threaded = threads > 1 && pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
     if (!threaded)

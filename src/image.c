@@ -16,6 +16,7 @@ lam_load_options lam_load_options_default(void)
     o.transfer.gamma = 0.0;
     o.max_pixels = LAM_IMAGE_DEFAULT_MAX_PIXELS;
     o.keep_display8 = 0;
+    o.display8_only = 0;
     return o;
 }
 
@@ -38,13 +39,30 @@ lam_status lam_image_check_size(size_t width, size_t height, size_t max_pixels,
     return LAM_OK;
 }
 
+/* The fields every new image starts with (no pixel buffers). */
+static lam_image *image_header(size_t width, size_t height)
+{
+    lam_image *img = calloc(1, sizeof *img);
+    if (!img)
+        return NULL;
+    img->width = width;
+    img->height = height;
+    img->bit_depth = 8;
+    img->source_channels = 3;
+    img->channels = 3;
+    img->transfer.kind = LAM_TRANSFER_LINEAR;
+    img->file_transfer.kind = LAM_TRANSFER_AUTO;
+    snprintf(img->file_colour, sizeof img->file_colour, "none");
+    return img;
+}
+
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err)
 {
     lam_status st = lam_image_check_size(width, height, SIZE_MAX / 16, "image", err);
     if (st)
         return st;
     size_t n = width * height;
-    lam_image *img = calloc(1, sizeof *img);
+    lam_image *img = image_header(width, height);
     float *pix = lam_big_calloc(3 * n, sizeof *pix);
     uint8_t *clip = lam_big_calloc(n, 1);
     if (!img || !pix || !clip) {
@@ -54,18 +72,29 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu image", width,
                              height);
     }
-    img->width = width;
-    img->height = height;
     img->plane[0] = pix;
     img->plane[1] = pix + n;
     img->plane[2] = pix + 2 * n;
     img->clipped = clip;
-    img->bit_depth = 8;
-    img->source_channels = 3;
-    img->channels = 3;
-    img->transfer.kind = LAM_TRANSFER_LINEAR;
-    img->file_transfer.kind = LAM_TRANSFER_AUTO;
-    snprintf(img->file_colour, sizeof img->file_colour, "none");
+    *out = img;
+    return LAM_OK;
+}
+
+lam_status lam_image_alloc_display8(size_t width, size_t height, lam_image **out,
+                                    lam_error *err)
+{
+    lam_status st = lam_image_check_size(width, height, SIZE_MAX / 16, "image", err);
+    if (st)
+        return st;
+    lam_image *img = image_header(width, height);
+    uint8_t *codes = lam_big_malloc(width * height * 3);
+    if (!img || !codes) {
+        free(img);
+        free(codes);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu picture", width,
+                             height);
+    }
+    img->display8 = codes;
     *out = img;
     return LAM_OK;
 }

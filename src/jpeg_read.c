@@ -41,6 +41,7 @@ typedef struct jpeg_job {
     lam_image *img;
     lam__pixconv pc;
     unsigned char *row;
+    uint8_t *strip;      /* read_strips' buffer */
     JOCTET *icc;
 } jpeg_job;
 
@@ -51,6 +52,7 @@ static void jpeg_job_free(jpeg_job *job)
     lam_image_free(job->img);
     lam__pixconv_clear(&job->pc);
     free(job->row);
+    free(job->strip);
     free(job->icc);
     free(job);
 }
@@ -88,7 +90,8 @@ static void dc_steps(const struct jpeg_decompress_struct *ci, lam_image *img)
     img->jpeg_dc_step[2] = q[0] + 1.772 * q[1];
 }
 
-/* Start decoding, allocate the image and choose its transfer curve. */
+/* Start decoding, allocate the image and choose its transfer curve (only
+ * the 8-bit codes' buffer when that is all that is asked for). */
 static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *err)
 {
     int grey = job->cinfo.jpeg_color_space == JCS_GRAYSCALE;
@@ -105,46 +108,91 @@ static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *e
     jpeg_start_decompress(&job->cinfo);
     size_t w = job->cinfo.output_width, h = job->cinfo.output_height;
     int chans = job->cinfo.output_components;
-    lam_status st;
-    if ((st = lam_image_alloc(w, h, &job->img, err)) ||
-        (st = lam__pixconv_init(&job->pc, 8, chans, err)))
+    lam_status st = opt->display8_only ? lam_image_alloc_display8(w, h, &job->img, err)
+                                       : lam_image_alloc(w, h, &job->img, err);
+    if (st || (st = lam__pixconv_init(&job->pc, 8, chans, err)))
         return st;
     lam_image *img = job->img;
     img->bit_depth = 8;
     img->source_channels = img->channels = chans;
     img->kind = LAM_FILE_JPEG;
     dc_steps(&job->cinfo, img);
-    if ((st = lam__colour_apply(&meta, &opt->transfer, &job->pc, img, err)))
+    if (!opt->display8_only && (st = lam__colour_apply(&meta, &opt->transfer, &job->pc, img, err)))
         return st;
     if (!(job->row = malloc(w * (size_t)chans)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a JPEG row");
-    if (opt->keep_display8 && !(img->display8 = lam_big_malloc(w * h * 3)))
+    if (opt->keep_display8 && !img->display8 && !(img->display8 = lam_big_malloc(w * h * 3)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     return LAM_OK;
 }
 
-static lam_status read_pixels(jpeg_job *job, lam_error *err)
+/* Only the 8-bit codes: colour rows straight into display8, grey ones
+ * replicated into R, G and B. */
+static void read_codes(jpeg_job *job)
+{
+    lam_image *img = job->img;
+    size_t w = img->width;
+    while (job->cinfo.output_scanline < img->height) {
+        uint8_t *d = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
+        JSAMPROW rp = job->pc.chans == 3 ? d : job->row;
+        jpeg_read_scanlines(&job->cinfo, &rp, 1);
+        for (size_t x = 0; job->pc.chans != 3 && x < w; x++)
+            d[3 * x] = d[3 * x + 1] = d[3 * x + 2] = job->row[x];
+    }
+}
+
+/* Colour without a kept copy: strips of rows decoded into one small
+ * buffer, each strip converted on all cores (decoding is sequential), so
+ * the whole image's codes are never held at once. */
+#define STRIP_ROWS 256
+static lam_status read_strips(jpeg_job *job, lam_error *err)
+{
+    lam_image *img = job->img;
+    size_t w = img->width, h = img->height, rows = h < STRIP_ROWS ? h : STRIP_ROWS;
+    uint8_t *strip = job->strip = malloc(rows * w * 3); /* freed with the job: a damaged
+                                                          * stream jumps out of the loop */
+    if (!strip)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a strip of JPEG rows");
+    lam_status st = LAM_OK;
+    while (!st && job->cinfo.output_scanline < h) {
+        size_t y0 = job->cinfo.output_scanline, n = 0;
+        while (n < rows && job->cinfo.output_scanline < h) {
+            JSAMPROW rp = strip + n * w * 3;
+            n += jpeg_read_scanlines(&job->cinfo, &rp, 1);
+        }
+        st = lam__pixconv_rgb8(&job->pc, img, y0, n, strip, err);
+    }
+    return st;
+}
+
+static lam_status read_pixels(jpeg_job *job, const lam_load_options *opt, lam_error *err)
 {
     lam_image *img = job->img;
     size_t w = img->width, h = img->height;
-    if (img->display8 && job->pc.chans == 3) {
+    lam_status st = LAM_OK;
+    if (opt->display8_only) {
+        read_codes(job);
+    } else if (img->display8 && job->pc.chans == 3) {
         /* decode straight into the kept 8-bit copy, then convert the rows
          * to linear planes on all cores (decoding itself is sequential) */
         while (job->cinfo.output_scanline < h) {
             JSAMPROW rp = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
             jpeg_read_scanlines(&job->cinfo, &rp, 1);
         }
+        st = lam__pixconv_rgb8(&job->pc, img, 0, h, img->display8, err);
+    } else if (job->pc.chans == 3) {
+        st = read_strips(job, err);
+    } else {
+        while (job->cinfo.output_scanline < h) {
+            size_t y = job->cinfo.output_scanline;
+            JSAMPROW rp = job->row;
+            jpeg_read_scanlines(&job->cinfo, &rp, 1);
+            lam__pixconv_row(&job->pc, img, y, job->row, (size_t)job->pc.chans);
+        }
+    }
+    if (!st)
         jpeg_finish_decompress(&job->cinfo);
-        return lam__pixconv_rgb8(&job->pc, img, err);
-    }
-    while (job->cinfo.output_scanline < h) {
-        size_t y = job->cinfo.output_scanline;
-        JSAMPROW rp = job->row;
-        jpeg_read_scanlines(&job->cinfo, &rp, 1);
-        lam__pixconv_row(&job->pc, img, y, job->row, (size_t)job->pc.chans);
-    }
-    jpeg_finish_decompress(&job->cinfo);
-    return LAM_OK;
+    return st;
 }
 
 lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *opt,
@@ -171,7 +219,7 @@ lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *op
     if (!st)
         st = start(job, opt, err);
     if (!st)
-        st = read_pixels(job, err);
+        st = read_pixels(job, opt, err);
     if (!st) {
         *out = job->img;
         job->img = NULL;

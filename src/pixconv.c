@@ -71,6 +71,8 @@ void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const vo
 typedef struct rgb8_ctx {
     const lam__pixconv *pc;
     lam_image *img;
+    size_t y0;             /* first image row of the codes */
+    const uint8_t *codes;  /* rows y0.. as 8-bit RGB */
     size_t clipped[LAM_MAX_THREADS];
 } rgb8_ctx;
 
@@ -80,9 +82,9 @@ static void rgb8_rows(size_t begin, size_t end, size_t slice, void *vctx)
     lam_image *img = c->img;
     const float *l0 = c->pc->lut[0], *l1 = c->pc->lut[1], *l2 = c->pc->lut[2];
     unsigned top = c->pc->clip_code;
-    size_t w = img->width, clipped = 0;
-    for (size_t k = begin * w; k < end * w; k++) {
-        const uint8_t *p = img->display8 + k * 3;
+    size_t w = img->width, clipped = 0, first = c->y0 * w;
+    for (size_t k = first + begin * w; k < first + end * w; k++) {
+        const uint8_t *p = c->codes + (k - first) * 3;
         img->plane[0][k] = l0[p[0]];
         img->plane[1][k] = l1[p[1]];
         img->plane[2][k] = l2[p[2]];
@@ -93,9 +95,10 @@ static void rgb8_rows(size_t begin, size_t end, size_t slice, void *vctx)
     c->clipped[slice] = clipped;
 }
 
-lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, lam_error *err)
+lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
+                             const uint8_t *codes, lam_error *err)
 {
-    if (pc->depth != 8 || pc->chans != 3 || !img->display8)
+    if (pc->depth != 8 || pc->chans != 3 || !codes || y0 + rows > img->height)
         return lam_error_set(err, LAM_EINTERNAL, "8-bit RGB conversion without 8-bit RGB codes");
     /* the per-slice counts live on the stack: nothing to allocate, so the
      * only failure is a caller's mistake, reported above */
@@ -103,8 +106,9 @@ lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, lam_error *
     memset(&c, 0, sizeof c);
     c.pc = pc;
     c.img = img;
-    lam_parallel_for(img->height, lam_parallel_default(), rgb8_rows, &c);
-    img->clipped_count = 0;
+    c.y0 = y0;
+    c.codes = codes;
+    lam_parallel_for(rows, lam_parallel_default(), rgb8_rows, &c);
     for (size_t t = 0; t < LAM_MAX_THREADS; t++)
         img->clipped_count += c.clipped[t];
     return LAM_OK;

@@ -32,9 +32,12 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t);
 void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
                       size_t stride);
 
-/* Fill the planes and clip mask from img->display8 (8-bit RGB codes
- * already decoded there), on all cores. */
-lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, lam_error *err);
+/* Fill image rows y0 .. y0+rows-1 of the planes and clip mask from
+ * 'codes' (those rows' 8-bit RGB samples, interleaved: img->display8 +
+ * y0*width*3, or a strip buffer), on all cores; adds the rows' clipped
+ * pixels to img->clipped_count. */
+lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
+                             const uint8_t *codes, lam_error *err);
 
 void lam__pixconv_clear(lam__pixconv *pc);
 

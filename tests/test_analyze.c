@@ -303,6 +303,32 @@ static size_t pieces_like(const lam_analysis *a, size_t x, size_t y)
     return n;
 }
 
+/* A JPEG's picture is decoded again from the bytes analysed: the codes
+ * equal a load of the file with its 8-bit copy kept (the loader's other
+ * path), also after the file on disk was replaced; once dropped, asking
+ * again is an error. */
+static void check_display_kept(lam_analysis *a, const char *path)
+{
+    lam_load_options lo = lam_load_options_default();
+    lo.keep_display8 = 1;
+    lam_image *ref = NULL;
+    lam_error err;
+    if (!check_int(lam_image_load(path, &lo, &ref, &err), LAM_OK, "the JPEG reloads"))
+        return;
+    check_true(!a->display && a->source && a->source_size > 0,
+               "a JPEG's analysis keeps its bytes (%zu), not an 8-bit copy", a->source_size);
+    FILE *fp = fopen(path, "wb"); /* the file changes after the analysis */
+    if (fp)
+        fclose(fp);
+    size_t n = a->width * a->height * 3;
+    check_true(lam_analysis_display(a, &err) == LAM_OK && a->display &&
+                   !memcmp(a->display, ref->display8, n),
+               "the picture decoded from the kept bytes is the image analysed");
+    lam_analysis_drop_pictures(a);
+    check_int(lam_analysis_display(a, &err), LAM_EINVAL, "no picture once dropped");
+    lam_image_free(ref);
+}
+
 static void test_pieces_joined(void)
 {
     lam_scene sc;
@@ -330,6 +356,7 @@ static void test_pieces_joined(void)
                   "3 MP field analyses (%s)", err.message)) {
         check_int((int)pieces_like(a, 1010, 950), 1, "the 25-layer flake is one region");
         check_int((int)pieces_like(a, 1000, 1350), 1, "the residue patch is one region");
+        check_display_kept(a, img_path);
     }
     lam_analysis_free(a);
     lam_image_free(img);

@@ -258,6 +258,8 @@ static size_t amber_in_legend(lam_analysis *a, const char *path)
     lam_load_options lo = lam_load_options_default();
     lo.keep_display8 = 1;
     size_t nb = lam_report_annotation_layout(a, b, 512), amber = 0, n = 3 * a->width * a->height;
+    if (lam_analysis_display(a, &err)) /* a JPEG's is decoded on demand */
+        return (size_t)-1;
     uint8_t *display = malloc(n);
     if (display)
         memcpy(display, a->display, n);
@@ -332,6 +334,7 @@ static void test_annotated(const char *image, const char *setup_file)
     size_t nb = lam_report_annotation_layout(a, boxes, 512);
     size_t n = a->width * a->height, big = 0;
     uint8_t *before = malloc(n * 3);
+    check_int(lam_analysis_display(a, &err), LAM_OK, "%s: the picture to draw on", name);
     memcpy(before, a->display, n * 3);
     for (size_t i = 0; i < a->count; i++)
         if (a->results[i].layers == 1 && a->seg->regions[i].area > a->seg->regions[big].area)

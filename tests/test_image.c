@@ -238,6 +238,74 @@ static void test_jpeg_against_djpeg(void)
     }
 }
 
+/* A JPEG taller than the loader's strips (256 rows: two whole strips and
+ * a part), some pixels saturated: the planes decoded strip by strip agree
+ * with djpeg (Debian libjpeg-turbo-progs, an independent decoder) in every
+ * row, equal the planes decoded through a whole kept copy bit for bit, and
+ * the 8-bit codes decoded alone (display8_only) are djpeg's exactly. */
+static void test_jpeg_strips_and_codes(void)
+{
+    char ppm[512], jpg[512], dec[512], cmd[4096];
+    const size_t w = 150, h = 600;
+    check_path(ppm, sizeof ppm, check_tmpdir(), "tall.ppm");
+    check_path(jpg, sizeof jpg, check_tmpdir(), "tall.jpg");
+    check_path(dec, sizeof dec, check_tmpdir(), "tall-djpeg.ppm");
+    FILE *fp = fopen(ppm, "wb");
+    fprintf(fp, "P6\n%zu %zu\n255\n", w, h);
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            unsigned char px[3] = {(unsigned char)(y * 255 / h), (unsigned char)(x + 60),
+                                   (unsigned char)(y > 400 && x < 40 ? 255 : 90 + rnd(30))};
+            fwrite(px, 1, 3, fp);
+        }
+    fclose(fp);
+    snprintf(cmd, sizeof cmd, "cjpeg -quality 95 %s > %s && djpeg -pnm %s > %s", ppm, jpg,
+             jpg, dec);
+    if (!check_true(system(cmd) == 0, "cjpeg/djpeg available (Debian libjpeg-turbo-progs)"))
+        return;
+    size_t n;
+    unsigned char *ref = read_all(dec, &n);
+    const unsigned char *codes = ref + n - w * h * 3;
+    lam_load_options opt = lam_load_options_default();
+    opt.transfer.kind = LAM_TRANSFER_LINEAR;
+    lam_image *strips = NULL, *whole = NULL, *only = NULL;
+    lam_error err;
+    check_int(lam_image_load(jpg, &opt, &strips, &err), LAM_OK, "tall JPEG loads in strips");
+    opt.keep_display8 = 1;
+    check_int(lam_image_load(jpg, &opt, &whole, &err), LAM_OK, "... and with a kept copy");
+    opt.keep_display8 = 0;
+    opt.display8_only = 1;
+    check_int(lam_image_load(jpg, &opt, &only, &err), LAM_OK, "... and as 8-bit codes alone");
+    if (!strips || !whole || !only) {
+        lam_image_free(strips), lam_image_free(whole), lam_image_free(only), free(ref);
+        return;
+    }
+    int worst = 0;
+    for (size_t i = 0; i < w * h; i++)
+        for (int c = 0; c < 3; c++) {
+            int d = abs((int)lroundf(strips->plane[c][i] * 255.0f) - codes[i * 3 + (size_t)c]);
+            worst = d > worst ? d : worst;
+        }
+    check_true(worst <= 1, "strip-decoded planes equal djpeg within 1 level in all %zu rows "
+               "(worst %d)", h, worst);
+    check_true(!memcmp(strips->plane[0], whole->plane[0], 3 * w * h * sizeof(float)) &&
+                   !memcmp(strips->clipped, whole->clipped, w * h),
+               "strip-decoded planes and clip mask equal the whole-copy decode bit for bit");
+    check_true(strips->clipped_count == whole->clipped_count && strips->clipped_count > 0,
+               "saturated pixels counted alike (%zu, %zu)", strips->clipped_count,
+               whole->clipped_count);
+    check_true(!only->plane[0] && !only->clipped && !memcmp(only->display8, codes, w * h * 3),
+               "codes decoded alone: no planes, and djpeg's codes exactly");
+    lam_image_free(strips), lam_image_free(whole), lam_image_free(only);
+    free(ref);
+    lam_image *png = NULL;
+    char p[512];
+    check_int(lam_image_load(check_path(p, sizeof p, check_tmpdir(), "rt8.png"), &opt, &png, &err),
+              LAM_EINVAL, "codes alone from a PNG refused");
+    check_true(strstr(err.message, "JPEG") != NULL, "... saying it is for JPEG: %s", err.message);
+    lam_image_free(png);
+}
+
 /* Cut a valid file at many offsets and flip bytes: every result must be a
  * clean status, never a crash (run under ASan by make asan). */
 static void test_truncated_and_flipped(const char *src, const char *what)
@@ -426,6 +494,7 @@ int main(void)
     test_srgb_against_lcms();
     test_png_round_trip();
     test_jpeg_against_djpeg();
+    test_jpeg_strips_and_codes();
     char p[512];
     test_truncated_and_flipped(check_path(p, sizeof p, check_tmpdir(), "rt8.png"), "PNG");
     test_truncated_and_flipped(check_path(p, sizeof p, check_tmpdir(), "in.jpg"), "JPEG");

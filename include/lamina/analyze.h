@@ -111,7 +111,11 @@ typedef struct lam_analysis {
     lam_estimate *estimate;         /* the fit (owned); its image 0 is this one */
     lam_prediction ladder;          /* observed-scale ladder at the estimate, N = 0..40 */
     size_t max_layers;
-    uint8_t *display;               /* the input as 8-bit sRGB, interleaved */
+    uint8_t *display;               /* the input as 8-bit sRGB, interleaved; NULL until
+                                     * lam_analysis_display when 'source' is kept */
+    uint8_t *source;                /* a JPEG input's file bytes (source_size of them),
+                                     * decoded again for the picture; else NULL */
+    size_t source_size;
     char conductivity[256];
     double illumination_na, fermi_ev;
     const char *pupil, *camera;
@@ -148,6 +152,16 @@ lam_status lam_analyze(const char *path, const lam_setup *setup,
                        const lam_analysis_options *opt, lam_analysis **out, lam_error *err);
 /* Release an analysis; a may be NULL. */
 void lam_analysis_free(lam_analysis *a);
+
+/* Make sure a->display holds the input's 8-bit codes: a JPEG is decoded
+ * again from a->source (the bytes analysed, not the file as it is now).
+ * LAM_EINVAL when neither is left (lam_analysis_drop_pictures, or a
+ * picture drawn over it already), LAM_ENOMEM. */
+lam_status lam_analysis_display(lam_analysis *a, lam_error *err);
+
+/* Free the display copy and the kept input bytes (an analysis kept only
+ * for its results); a may be NULL. */
+void lam_analysis_drop_pictures(lam_analysis *a);
 
 /* Did region i inform the shared parameters and the oxide? */
 int lam_analysis_region_fits_oxide(const lam_analysis *a, size_t i);

@@ -105,6 +105,11 @@ typedef struct lam_load_options {
                             * choice, which wins over the file */
     size_t max_pixels;     /* 0 means LAM_IMAGE_DEFAULT_MAX_PIXELS */
     int keep_display8;     /* also keep the 8-bit codes (for drawing reports) */
+    int display8_only;     /* decode only the 8-bit RGB codes (grey replicated) into
+                            * display8: no planes, no clip mask (plane[] and clipped
+                            * NULL), no transfer curve applied. JPEG only: other kinds
+                            * give LAM_EINVAL. For redrawing a picture of a file already
+                            * analysed at a fraction of a full load's memory */
 } lam_load_options;
 
 /* Default options: automatic transfer curve, default pixel limit. */
@@ -113,6 +118,11 @@ lam_load_options lam_load_options_default(void);
 /* Allocate a zeroed width x height image (both >= 1) with its clip mask;
  * 3 channels, linear, file_colour "none". */
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err);
+
+/* The same without planes or clip mask: display8 gets width*height*3
+ * bytes (not initialised), for a decode of the 8-bit codes alone. */
+lam_status lam_image_alloc_display8(size_t width, size_t height, lam_image **out,
+                                    lam_error *err);
 
 /* Release an image; img may be NULL. */
 void lam_image_free(lam_image *img);

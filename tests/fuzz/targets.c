@@ -20,6 +20,8 @@ int fuzz_image(const uint8_t *data, size_t n)
         return 0;
     lam_load_options opt = lam_load_options_default();
     opt.max_pixels = 4000000; /* keep allocations fuzz-sized */
+    opt.keep_display8 = n % 3 == 1; /* every way a loader fills its outputs: planes */
+    opt.display8_only = n % 3 == 2; /* alone, with the 8-bit copy, the copy alone */
     lam_image *img = NULL;
     lam_error err;
     lam_error_clear(&err);
