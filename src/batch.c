@@ -268,6 +268,7 @@ lam_status lam_batch_run(lam_batch *b, const char *const *paths, size_t n,
         lam_parallel_set_default(r.aopt.threads); /* loading and PNG compression too */
         crew_run(n, threads, image_step, &r);
     }
+    lam_parallel_set_default(threads); /* what follows (the run's report) has them all */
     pthread_mutex_destroy(&r.lock);
     if (st)
         lam_batch_clear(b);

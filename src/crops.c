@@ -4,6 +4,7 @@
 #include "lamina/contour.h"
 #include "lamina/draw.h"
 #include "lamina/image.h"
+#include "lamina/parallel.h"
 
 #include <errno.h>
 #include <math.h>
@@ -254,76 +255,143 @@ static size_t pick(const lam_catalog *c, size_t max, size_t *out)
     return n;
 }
 
-lam_status lam_crops_write(const lam_catalog *c, const char *dir, size_t max, lam_error *err)
+/* One image's share of the work: its candidates drawn from one read of
+ * its sources; the crops written, the contact sheet's cells kept. */
+typedef struct crop_job {
+    const lam_catalog *c;
+    const char *dir;
+    const size_t *idx;     /* candidates in catalogue order */
+    size_t n, max_crops, max_sheet;
+    const size_t *images;  /* the images that have candidates, in order */
+    uint32_t **cell;       /* per candidate k < max_sheet: its picture, or NULL */
+    lam_status *st;        /* per image */
+    lam_error *err;        /* per image */
+} crop_job;
+
+/* Candidate k drawn at LAM_CROP_PX in a new xRGB buffer (NULL: no memory). */
+static uint32_t *draw_cell(const lam_catalog *c, size_t entry, const source *s)
 {
-    char path[4096];
-    snprintf(path, sizeof path, "%s/crops", dir);
-    if (mkdir(path, 0755) != 0 && errno != EEXIST)
-        return lam_error_set(err, LAM_EIO, "cannot create %s: %s", path, strerror(errno));
-    size_t *idx = malloc((c->count ? c->count : 1) * sizeof *idx);
-    if (!idx)
-        return lam_error_set(err, LAM_ENOMEM, "cannot list the crops");
-    size_t n = pick(c, max, idx);
+    uint32_t *px = malloc((size_t)LAM_CROP_PX * LAM_CROP_PX * sizeof *px);
+    lam_canvas cv;
+    if (!px || lam_canvas_open_buffer(&cv, px, LAM_CROP_PX, LAM_CROP_PX, NULL)) {
+        free(px);
+        return NULL;
+    }
+    draw_crop(cv.cr, c, entry, s, LAM_CROP_PX);
+    if (lam_canvas_finish(&cv, NULL)) {
+        free(px);
+        return NULL;
+    }
+    return px;
+}
+
+static void crop_image(size_t item, void *ctx)
+{
+    crop_job *j = ctx;
+    size_t img = j->images[item];
     source s = {(size_t)-1, 0, 0, NULL, NULL};
-    lam_status st = LAM_OK;
-    for (size_t img = 0; img < c->n_images && !st; img++)
-        for (size_t k = 0; k < n && !st; k++) {
-            if (c->entries[idx[k]].image != img)
-                continue;
-            char name[1200];
-            lam_crop_name(c, idx[k], name, sizeof name);
-            snprintf(path, sizeof path, "%s/%s", dir, name);
-            if (crop_is_fresh(c, idx[k], path))
-                continue;
-            load_source(c, img, &s);
-            if (!s.rgb)
-                break; /* the image is gone: no crops for it */
-            lam_canvas cv;
-            if ((st = lam_canvas_open(&cv, path, LAM_CROP_PX, LAM_CROP_PX, err)))
-                break;
-            draw_crop(cv.cr, c, idx[k], &s, LAM_CROP_PX);
-            st = lam_canvas_finish(&cv, err);
-        }
+    for (size_t k = 0; k < j->n && !j->st[item]; k++) {
+        if (j->c->entries[j->idx[k]].image != img)
+            continue;
+        char name[1200], path[4096];
+        lam_crop_name(j->c, j->idx[k], name, sizeof name);
+        snprintf(path, sizeof path, "%s/%s", j->dir, name);
+        int crop = k < j->max_crops && !crop_is_fresh(j->c, j->idx[k], path);
+        if (!crop && k >= j->max_sheet)
+            continue;
+        load_source(j->c, img, &s);
+        if (!s.rgb)
+            break; /* the image is gone: no crops for it, empty cells */
+        uint32_t *px = draw_cell(j->c, j->idx[k], &s);
+        if (!px)
+            j->st[item] = lam_error_set(&j->err[item], LAM_ENOMEM, "cannot draw a crop");
+        else if (crop)
+            j->st[item] = lam_canvas_save_xrgb(px, LAM_CROP_PX, LAM_CROP_PX, LAM_CROP_PX, path,
+                                               &j->err[item]);
+        if (px && k < j->max_sheet)
+            j->cell[k] = px;
+        else
+            free(px);
+    }
     source_clear(&s);
-    free(idx);
+}
+
+/* The images that have one of the n candidates, in image order. */
+static size_t candidate_images(const lam_catalog *c, const size_t *idx, size_t n, size_t *out)
+{
+    size_t m = 0;
+    for (size_t img = 0; img < c->n_images; img++)
+        for (size_t k = 0; k < n; k++)
+            if (c->entries[idx[k]].image == img) {
+                out[m++] = img;
+                break;
+            }
+    return m;
+}
+
+/* Every image's crops and cells on the threads; the first image's error
+ * (in image order) is returned. */
+static lam_status crop_images(crop_job *j, lam_error *err)
+{
+    size_t m = 0, *images = malloc((j->c->n_images ? j->c->n_images : 1) * sizeof *images);
+    j->st = calloc(j->c->n_images ? j->c->n_images : 1, sizeof *j->st);
+    j->err = calloc(j->c->n_images ? j->c->n_images : 1, sizeof *j->err);
+    lam_status st = images && j->st && j->err
+                        ? LAM_OK
+                        : lam_error_set(err, LAM_ENOMEM, "cannot list the crops");
+    if (!st) {
+        m = candidate_images(j->c, j->idx, j->n, images);
+        j->images = images;
+        lam_parallel_each(m, lam_parallel_default(), crop_image, j);
+    }
+    for (size_t i = 0; i < m && !st; i++)
+        if ((st = j->st[i]) && err)
+            *err = j->err[i];
+    free(images);
+    free(j->st);
+    free(j->err);
     return st;
 }
 
-lam_status lam_contact_sheet_write(const lam_catalog *c, const char *path, size_t max,
-                                   lam_error *err)
+/* Cell k's picture onto the sheet at the current origin (a pixel-exact
+ * copy: the origin is a whole pixel and nothing is scaled). */
+static void paint_cell(cairo_t *cr, uint32_t *px)
+{
+    cairo_surface_t *cs = cairo_image_surface_create_for_data(
+        (unsigned char *)px, CAIRO_FORMAT_RGB24, LAM_CROP_PX, LAM_CROP_PX, 4 * LAM_CROP_PX);
+    cairo_set_source_surface(cr, cs, 0, 0);
+    cairo_rectangle(cr, 0, 0, LAM_CROP_PX, LAM_CROP_PX);
+    cairo_fill(cr);
+    cairo_surface_destroy(cs);
+}
+
+static lam_status sheet_write(const lam_catalog *c, const size_t *idx, size_t n,
+                              uint32_t *const *cell, const char *path, lam_error *err)
 {
     enum { COLS = 4, PAD = 10, CAP = 34 };
-    size_t *idx = malloc((c->count ? c->count : 1) * sizeof *idx);
-    if (!idx)
-        return lam_error_set(err, LAM_ENOMEM, "cannot list the contact sheet");
-    size_t n = pick(c, max, idx), rows = n ? (n + COLS - 1) / COLS : 1;
-    double cell = LAM_CROP_PX;
+    size_t rows = n ? (n + COLS - 1) / COLS : 1;
+    double w = LAM_CROP_PX;
     lam_canvas cv;
-    lam_status st = lam_canvas_open(&cv, path, COLS * (cell + PAD) + PAD,
-                                    (double)rows * (cell + CAP + PAD) + PAD + 30, err);
-    if (st) {
-        free(idx);
+    lam_status st = lam_canvas_open(&cv, path, COLS * (w + PAD) + PAD,
+                                    (double)rows * (w + CAP + PAD) + PAD + 30, err);
+    if (st)
         return st;
-    }
     cairo_t *cr = cv.cr;
     lam_draw_rgb(cr, 0x202024);
     cairo_paint(cr);
     lam_text_style title = {13, 1, 0xffffff, 0, 0, 0};
     lam_draw_text(cr, PAD, 8, &title, n ? "Top candidates (catalogue rank, image, region)"
                                         : "No layer candidates");
-    source s = {(size_t)-1, 0, 0, NULL, NULL};
     for (size_t img = 0; img < c->n_images; img++)
         for (size_t k = 0; k < n; k++) {
             const lam_catalog_entry *e = &c->entries[idx[k]];
             if (e->image != img)
                 continue;
-            load_source(c, img, &s);
-            double x = PAD + (double)(k % COLS) * (cell + PAD);
-            double y = 30 + PAD + (double)(k / COLS) * (cell + CAP + PAD);
             cairo_save(cr);
-            cairo_translate(cr, x, y);
-            if (s.rgb)
-                draw_crop(cr, c, idx[k], &s, cell);
+            cairo_translate(cr, PAD + (double)(k % COLS) * (w + PAD),
+                            30 + PAD + (double)(k / COLS) * (w + CAP + PAD));
+            if (cell[k])
+                paint_cell(cr, cell[k]);
             char cap[600], esc[400], prob[24], pe[40];
             lam_draw_escape(c->images[img].stem, esc, sizeof esc);
             lam_draw_probability(e->probability, 2, prob, sizeof prob);
@@ -332,10 +400,32 @@ lam_status lam_contact_sheet_write(const lam_catalog *c, const char *path, size_
                                       "%s \u00b7 %s #%u", lam_catalog_rank(c, idx[k]),
                      (unsigned)lam_draw_layer_colour(e->layers), e->label, pe, esc, e->region);
             lam_text_style ts = {11, 0, 0xffffff, 0, 0, 0};
-            lam_draw_text(cr, 0, cell + 6, &ts, cap);
+            lam_draw_text(cr, 0, w + 6, &ts, cap);
             cairo_restore(cr);
         }
-    source_clear(&s);
-    free(idx);
     return lam_canvas_finish(&cv, err);
+}
+
+lam_status lam_crops_and_sheet_write(const lam_catalog *c, const char *dir, size_t max_crops,
+                                     const char *sheet_path, size_t max_sheet, lam_error *err)
+{
+    char path[4096];
+    snprintf(path, sizeof path, "%s/crops", dir);
+    if (mkdir(path, 0755) != 0 && errno != EEXIST)
+        return lam_error_set(err, LAM_EIO, "cannot create %s: %s", path, strerror(errno));
+    size_t *idx = malloc((c->count ? c->count : 1) * sizeof *idx);
+    uint32_t **cell = calloc(max_sheet ? max_sheet : 1, sizeof *cell);
+    lam_status st = idx && cell ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot list the crops");
+    if (!st) {
+        crop_job j = {c, dir, idx, pick(c, max_crops > max_sheet ? max_crops : max_sheet, idx),
+                      max_crops, max_sheet, NULL, cell, NULL, NULL};
+        st = crop_images(&j, err);
+        if (!st)
+            st = sheet_write(c, idx, j.n < max_sheet ? j.n : max_sheet, cell, sheet_path, err);
+    }
+    for (size_t k = 0; cell && k < max_sheet; k++)
+        free(cell[k]);
+    free(cell);
+    free(idx);
+    return st;
 }

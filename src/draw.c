@@ -128,19 +128,14 @@ void lam_canvas_abort(lam_canvas *c)
     memset(c, 0, sizeof *c);
 }
 
-/* xRGB words of an image surface to packed RGB bytes and a PNG file. */
-static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_error *err)
+lam_status lam_canvas_save_xrgb(const uint32_t *px, size_t w, size_t h, size_t stride_words,
+                                const char *path, lam_error *err)
 {
-    cairo_surface_flush(s);
-    size_t w = (size_t)cairo_image_surface_get_width(s);
-    size_t h = (size_t)cairo_image_surface_get_height(s);
-    size_t stride = (size_t)cairo_image_surface_get_stride(s);
-    const unsigned char *data = cairo_image_surface_get_data(s);
     uint8_t *rgb = lam_big_malloc(w * h * 3);
     if (!rgb)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a %zux%zu picture", w, h);
     for (size_t y = 0; y < h; y++) {
-        const uint32_t *row = (const uint32_t *)(const void *)(data + y * stride);
+        const uint32_t *row = px + y * stride_words;
         uint8_t *o = rgb + y * w * 3;
         for (size_t x = 0; x < w; x++) {
             o[3 * x] = (uint8_t)(row[x] >> 16);
@@ -151,6 +146,18 @@ static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_e
     lam_status st = lam_png_save_rgb8(path, rgb, w, h, 3, err);
     free(rgb);
     return st;
+}
+
+/* An image surface's xRGB words to a PNG file. */
+static lam_status save_image_surface(cairo_surface_t *s, const char *path, lam_error *err)
+{
+    cairo_surface_flush(s);
+    size_t w = (size_t)cairo_image_surface_get_width(s);
+    size_t h = (size_t)cairo_image_surface_get_height(s);
+    size_t stride = (size_t)cairo_image_surface_get_stride(s);
+    const unsigned char *data = cairo_image_surface_get_data(s);
+    return lam_canvas_save_xrgb((const uint32_t *)(const void *)data, w, h, stride / 4, path,
+                                err);
 }
 
 /* cairo's SVG names surfaces and images by process-wide counters, so the

@@ -53,9 +53,9 @@ lam_status lam_image_load_stream(FILE *fp, const char *name, const lam_load_opti
         return lam_error_set(err, LAM_EIO, "cannot rewind the input");
     lam_status st;
     lam_file_kind kind = lam_file_sniff(head, n);
-    if (opt->display8_only && kind != LAM_FILE_JPEG) {
-        lam_error_set(err, LAM_EINVAL, "decoding the 8-bit codes alone is for JPEG files, "
-                                       "this is %s", lam_file_kind_name(kind));
+    if (opt->display8_only && kind != LAM_FILE_JPEG && kind != LAM_FILE_PNG) {
+        lam_error_set(err, LAM_EINVAL, "decoding the 8-bit codes alone is for JPEG and PNG "
+                                       "files, this is %s", lam_file_kind_name(kind));
         lam_error_set_file(err, name);
         return LAM_EINVAL;
     }

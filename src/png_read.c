@@ -101,24 +101,39 @@ static lam_status read_header(png_job *job, FILE *fp, const lam_load_options *op
     if ((chans != 1 && chans != 3) ||
         job->rowbytes != (size_t)w * (size_t)chans * (size_t)(out_depth / 8))
         return lam_error_set(err, LAM_EFORMAT, "unsupported PNG layout");
-    if ((st = lam_image_alloc(w, h, &job->img, err)) ||
-        (st = lam__pixconv_init(&job->pc, out_depth, chans, err)))
+    if (opt->display8_only && out_depth != 8)
+        return lam_error_set(err, LAM_EINVAL, "a 16-bit PNG has no 8-bit codes to decode alone");
+    st = opt->display8_only ? lam_image_alloc_display8(w, h, &job->img, err)
+                            : lam_image_alloc(w, h, &job->img, err);
+    if (st || (st = lam__pixconv_init(&job->pc, out_depth, chans, err)))
         return st;
     job->img->bit_depth = out_depth;
     job->img->source_channels = job->img->channels = chans;
     job->img->kind = LAM_FILE_PNG;
     lam__colour_meta meta = colour_meta(job);
-    if ((st = lam__colour_apply(&meta, &opt->transfer, &job->pc, job->img, err)))
+    if (!opt->display8_only &&
+        (st = lam__colour_apply(&meta, &opt->transfer, &job->pc, job->img, err)))
         return st;
     job->rows = malloc((job->passes > 1 ? h : 1) * job->rowbytes);
     if (!job->rows)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG row buffers");
-    if (opt->keep_display8 && out_depth == 8 && !(job->img->display8 = lam_big_malloc((size_t)w * h * 3)))
+    if (opt->keep_display8 && out_depth == 8 && !job->img->display8 && !(job->img->display8 = lam_big_malloc((size_t)w * h * 3)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     return LAM_OK;
 }
 
-static void read_pixels(png_job *job)
+/* One decoded 8-bit row into the codes alone (grey replicated). */
+static void row_codes(lam_image *img, size_t y, const unsigned char *row, int chans)
+{
+    uint8_t *d = img->display8 + y * img->width * 3;
+    if (chans == 3)
+        memcpy(d, row, img->width * 3);
+    else
+        for (size_t x = 0; x < img->width; x++)
+            d[3 * x] = d[3 * x + 1] = d[3 * x + 2] = row[x];
+}
+
+static void read_pixels(png_job *job, int codes_only)
 {
     size_t h = job->img->height;
     job->stage = 1;
@@ -133,7 +148,10 @@ static void read_pixels(png_job *job)
         unsigned char *row = job->rows + (job->passes > 1 ? y * job->rowbytes : 0);
         if (job->passes <= 1)
             png_read_row(job->png, row, NULL);
-        lam__pixconv_row(&job->pc, job->img, y, row, (size_t)job->pc.chans);
+        if (codes_only)
+            row_codes(job->img, y, row, job->pc.chans);
+        else
+            lam__pixconv_row(&job->pc, job->img, y, row, (size_t)job->pc.chans);
     }
     png_read_end(job->png, NULL);
 }
@@ -161,7 +179,7 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
     }
     lam_status st = read_header(job, fp, opt, err);
     if (!st) {
-        read_pixels(job);
+        read_pixels(job, opt->display8_only);
         *out = job->img;
         job->img = NULL;
     }

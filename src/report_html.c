@@ -502,11 +502,9 @@ lam_status lam_run_report_write(const lam_catalog *c, const char *dir,
                                 const lam_run_report_options *o, lam_error *err)
 {
     size_t max = o && o->max_crops ? o->max_crops : 400;
-    lam_status st = lam_crops_write(c, dir, max, err);
     char path[4096];
     snprintf(path, sizeof path, "%s/contact-sheet.png", dir);
-    if (!st)
-        st = lam_contact_sheet_write(c, path, 16, err);
+    lam_status st = lam_crops_and_sheet_write(c, dir, max, path, 16, err);
     if (st)
         return st;
     snprintf(path, sizeof path, "%s/report.html", dir);

@@ -7,12 +7,14 @@
  * result's warnings are read back from its JSON. */
 #include "check.h"
 #include "lamina/batch.h"
+#include "lamina/image.h"
 
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <dirent.h>
 #include <cjson/cJSON.h>
 
 typedef struct chip_flake {
@@ -51,6 +53,38 @@ static void test_kept_warnings(void)
     lam_batch_item_warnings(&it, &w);
     check_int((long long)w.count, 0, "no JSON, no warnings");
     cJSON_Delete(json);
+}
+
+/* The contact sheet's first cell (its top-left 200 x 200 px at 10, 40:
+ * the layout of src/crops.c) is, pixel for pixel, one of the crops beside
+ * it: the sheet is made of the crops' own pictures. */
+static int sheet_cell_is_a_crop(const char *out)
+{
+    char p[1200];
+    snprintf(p, sizeof p, "%s/contact-sheet.png", out);
+    lam_load_options lo = lam_load_options_default();
+    lo.display8_only = 1;
+    lam_image *sheet = NULL;
+    if (lam_image_load(p, &lo, &sheet, NULL))
+        return 0;
+    snprintf(p, sizeof p, "%s/crops", out);
+    DIR *d = opendir(p);
+    int found = 0;
+    for (struct dirent *e; d && !found && (e = readdir(d));) {
+        lam_image *crop = NULL;
+        snprintf(p, sizeof p, "%s/crops/%s", out, e->d_name);
+        if (e->d_name[0] == '.' || lam_image_load(p, &lo, &crop, NULL))
+            continue;
+        found = crop->width == 200 && crop->height == 200;
+        for (size_t y = 0; found && y < 200; y++)
+            found = !memcmp(crop->display8 + y * 600, sheet->display8 + ((40 + y) * sheet->width + 10) * 3,
+                            600);
+        lam_image_free(crop);
+    }
+    if (d)
+        closedir(d);
+    lam_image_free(sheet);
+    return found;
 }
 
 int main(void)
@@ -170,6 +204,15 @@ int main(void)
     snprintf(a, sizeof a, "%s/catalog.json", outA);
     snprintf(b, sizeof b, "%s/catalog.json", outC);
     check_true(check_same_file(a, b), "catalogue identical with 1 and 2 threads");
+    char sa[1024], sb[1024];
+    snprintf(sa, sizeof sa, "%s/contact-sheet.png", outA);
+    snprintf(sb, sizeof sb, "%s/contact-sheet.png", outC);
+    check_true(check_same_file(sa, sb), "contact sheet identical with 1 and 2 threads (its images "
+               "drawn on both)");
+    snprintf(cmd, sizeof cmd, "diff -r %s/crops %s/crops > /dev/null", outA, outC);
+    check_int(system(cmd), 0, "crops identical with 1 and 2 threads");
+    check_true(sheet_cell_is_a_crop(outA), "the contact sheet's first cell is a crop, pixel for "
+               "pixel");
     /* two shards on one pooled prior (--pool-only, then --pool-from: the
      * cluster recipe of docs/user-guide.md) merged give the catalogue of
      * one run */

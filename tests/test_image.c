@@ -242,7 +242,8 @@ static void test_jpeg_against_djpeg(void)
  * a part), some pixels saturated: the planes decoded strip by strip agree
  * with djpeg (Debian libjpeg-turbo-progs, an independent decoder) in every
  * row, equal the planes decoded through a whole kept copy bit for bit, and
- * the 8-bit codes decoded alone (display8_only) are djpeg's exactly. */
+ * the 8-bit codes decoded alone (display8_only) are djpeg's exactly. The
+ * same option on PNG files after it. */
 static void test_jpeg_strips_and_codes(void)
 {
     char ppm[512], jpg[512], dec[512], cmd[4096];
@@ -298,11 +299,23 @@ static void test_jpeg_strips_and_codes(void)
                "codes decoded alone: no planes, and djpeg's codes exactly");
     lam_image_free(strips), lam_image_free(whole), lam_image_free(only);
     free(ref);
-    lam_image *png = NULL;
+    /* PNG: an 8-bit file's codes alone equal those kept by a full load; a
+     * 16-bit file has none (refused, so that a caller falls back) */
+    lam_image *png = NULL, *full = NULL;
     char p[512];
-    check_int(lam_image_load(check_path(p, sizeof p, check_tmpdir(), "rt8.png"), &opt, &png, &err),
-              LAM_EINVAL, "codes alone from a PNG refused");
-    check_true(strstr(err.message, "JPEG") != NULL, "... saying it is for JPEG: %s", err.message);
+    check_path(p, sizeof p, check_tmpdir(), "rt8.png");
+    check_int(lam_image_load(p, &opt, &png, &err), LAM_OK, "8-bit PNG: codes alone");
+    lam_load_options keep = lam_load_options_default();
+    keep.keep_display8 = 1;
+    check_int(lam_image_load(p, &keep, &full, &err), LAM_OK, "8-bit PNG: full load");
+    check_true(png && full && !png->plane[0] && png->width == full->width &&
+                   !memcmp(png->display8, full->display8, 3 * full->width * full->height),
+               "8-bit PNG: the codes alone equal the full load's kept copy");
+    lam_image_free(png), lam_image_free(full);
+    png = NULL;
+    check_int(lam_image_load(check_path(p, sizeof p, check_tmpdir(), "rt16.png"), &opt, &png, &err),
+              LAM_EINVAL, "16-bit PNG: no codes alone");
+    check_true(strstr(err.message, "16-bit") != NULL, "... saying why: %s", err.message);
     lam_image_free(png);
 }
 

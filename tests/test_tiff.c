@@ -338,6 +338,12 @@ static void test_kinds_and_pages(void)
     check_true(img && img->display8 && img->display8[3 * 21 + 1] == sample_at(1, 1, 1, 8),
                "8-bit copy holds the file's codes");
     lam_image_free(img);
+    img = NULL;
+    opt.keep_display8 = 0;
+    opt.display8_only = 1; /* implemented for JPEG and PNG: a caller falls back */
+    check_int(load(tmp("tiff-named.png"), &opt, &img, &err), LAM_EINVAL,
+              "the 8-bit codes alone: refused for TIFF (%s)", err.message);
+    lam_image_free(img);
 
     t = spec(20, 10, 8, 3);
     t.pages = 3;

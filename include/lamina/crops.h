@@ -12,7 +12,7 @@
  * Crops are written as DIR/crops/STEM.rID.png (lam_crop_name), at most
  * 'max' of them, candidates in catalogue order; an existing crop newer
  * than the image's STEM.json is kept (a live session redraws only new
- * ones). Images are read one at a time. Files are written atomically.
+ * ones). Files are written atomically.
  */
 #ifndef LAMINA_CROPS_H
 #define LAMINA_CROPS_H
@@ -26,13 +26,14 @@
 /* "crops/STEM.rID.png" for entry i (relative to the output folder). */
 void lam_crop_name(const lam_catalog *c, size_t i, char *out, size_t n);
 
-/* Write the crops of the first 'max' candidates into dir/crops/. A crop
- * whose image cannot be read is skipped (not an error). */
-lam_status lam_crops_write(const lam_catalog *c, const char *dir, size_t max, lam_error *err);
-
-/* A contact sheet of the first 'max' candidates (4 a row, numbered by
- * catalogue rank). */
-lam_status lam_contact_sheet_write(const lam_catalog *c, const char *path, size_t max,
-                                   lam_error *err);
+/* Write the crops of the first 'max_crops' candidates into dir/crops/ and
+ * a contact sheet of the first 'max_sheet' (4 a row, numbered by catalogue
+ * rank) to sheet_path. Each image's sources are read once for both, and
+ * the images are worked on lam_parallel_default() threads (each thread
+ * reads one image at a time); the sheet's cells are the crops' pictures.
+ * A crop whose image cannot be read is skipped (not an error; its cell
+ * stays empty). The first error in image order is returned. */
+lam_status lam_crops_and_sheet_write(const lam_catalog *c, const char *dir, size_t max_crops,
+                                     const char *sheet_path, size_t max_sheet, lam_error *err);
 
 #endif

@@ -52,6 +52,12 @@ lam_status lam_canvas_open(lam_canvas *c, const char *path, double width, double
 lam_status lam_canvas_open_buffer(lam_canvas *c, uint32_t *pixels, size_t width, size_t height,
                                   lam_error *err);
 
+/* Packed xRGB words (w x h, rows stride_words apart) to an 8-bit RGB PNG
+ * file, atomically: what lam_canvas_finish writes for a PNG canvas, for a
+ * picture drawn in a buffer canvas. */
+lam_status lam_canvas_save_xrgb(const uint32_t *px, size_t w, size_t h, size_t stride_words,
+                                const char *path, lam_error *err);
+
 /* End drawing and write the file atomically (none for a buffer canvas). */
 lam_status lam_canvas_finish(lam_canvas *c, lam_error *err);
 void lam_canvas_abort(lam_canvas *c);

@@ -107,9 +107,10 @@ typedef struct lam_load_options {
     int keep_display8;     /* also keep the 8-bit codes (for drawing reports) */
     int display8_only;     /* decode only the 8-bit RGB codes (grey replicated) into
                             * display8: no planes, no clip mask (plane[] and clipped
-                            * NULL), no transfer curve applied. JPEG only: other kinds
-                            * give LAM_EINVAL. For redrawing a picture of a file already
-                            * analysed at a fraction of a full load's memory */
+                            * NULL), no transfer curve applied. JPEG and 8-bit PNG only:
+                            * other files give LAM_EINVAL. For redrawing a picture of a
+                            * file already analysed, at a fraction of a full load's
+                            * memory and time */
 } lam_load_options;
 
 /* Default options: automatic transfer curve, default pixel limit. */
