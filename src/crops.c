@@ -365,6 +365,28 @@ static void paint_cell(cairo_t *cr, uint32_t *px)
     cairo_surface_destroy(cs);
 }
 
+/* Two lines under a cell, cut at the cell's width so that a long name
+ * does not run into the next cell: rank, count and probability; the
+ * image and region. */
+static void cell_caption(cairo_t *cr, const lam_catalog *c, size_t entry, double w)
+{
+    const lam_catalog_entry *e = &c->entries[entry];
+    char cap[600], esc[400], prob[24], pe[40];
+    lam_draw_escape(c->images[e->image].stem, esc, sizeof esc);
+    lam_draw_probability(e->probability, 2, prob, sizeof prob);
+    lam_draw_escape(prob, pe, sizeof pe);
+    lam_text_style ts = {11, 0, 0xffffff, 0, 0, 0};
+    cairo_save(cr);
+    cairo_rectangle(cr, 0, w, w, 40);
+    cairo_clip(cr);
+    snprintf(cap, sizeof cap, "%zu. <span foreground=\"#%06x\" weight=\"bold\">%s</span> %s",
+             lam_catalog_rank(c, entry), (unsigned)lam_draw_layer_colour(e->layers), e->label, pe);
+    lam_draw_text(cr, 0, w + 3, &ts, cap);
+    snprintf(cap, sizeof cap, "%s #%u", esc, e->region);
+    lam_draw_text(cr, 0, w + 18, &ts, cap);
+    cairo_restore(cr);
+}
+
 static lam_status sheet_write(const lam_catalog *c, const size_t *idx, size_t n,
                               uint32_t *const *cell, const char *path, lam_error *err)
 {
@@ -392,15 +414,7 @@ static lam_status sheet_write(const lam_catalog *c, const size_t *idx, size_t n,
                             30 + PAD + (double)(k / COLS) * (w + CAP + PAD));
             if (cell[k])
                 paint_cell(cr, cell[k]);
-            char cap[600], esc[400], prob[24], pe[40];
-            lam_draw_escape(c->images[img].stem, esc, sizeof esc);
-            lam_draw_probability(e->probability, 2, prob, sizeof prob);
-            lam_draw_escape(prob, pe, sizeof pe);
-            snprintf(cap, sizeof cap, "%zu. <span foreground=\"#%06x\" weight=\"bold\">%s</span> "
-                                      "%s \u00b7 %s #%u", lam_catalog_rank(c, idx[k]),
-                     (unsigned)lam_draw_layer_colour(e->layers), e->label, pe, esc, e->region);
-            lam_text_style ts = {11, 0, 0xffffff, 0, 0, 0};
-            lam_draw_text(cr, 0, w + 6, &ts, cap);
+            cell_caption(cr, c, idx[k], w);
             cairo_restore(cr);
         }
     return lam_canvas_finish(&cv, err);
