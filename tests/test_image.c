@@ -238,6 +238,33 @@ static void test_jpeg_against_djpeg(void)
     }
 }
 
+/* The same file as a progressive JPEG (scans buffered by libjpeg) and as
+ * a grey one: strips equal the whole-copy decode, and the codes decoded
+ * alone equal the kept copy (grey replicated into R, G and B). */
+static void check_jpeg_variants(const char *ppm, const char *jpg)
+{
+    static const char *const flags[] = {"-progressive", "-grayscale"};
+    for (int v = 0; v < 2; v++) {
+        char cmd[2048];
+        snprintf(cmd, sizeof cmd, "cjpeg %s -quality 90 %s > %s", flags[v], ppm, jpg);
+        if (!check_true(system(cmd) == 0, "cjpeg %s", flags[v]))
+            continue;
+        lam_load_options strip = lam_load_options_default(), keep = strip, codes = strip;
+        keep.keep_display8 = 1;
+        codes.display8_only = 1;
+        lam_image *a = NULL, *b = NULL, *c = NULL;
+        lam_error err;
+        int ok = lam_image_load(jpg, &strip, &a, &err) == LAM_OK &&
+                 lam_image_load(jpg, &keep, &b, &err) == LAM_OK &&
+                 lam_image_load(jpg, &codes, &c, &err) == LAM_OK;
+        size_t n = ok ? a->width * a->height : 0;
+        check_true(ok && !memcmp(a->plane[0], b->plane[0], 3 * n * sizeof(float)) &&
+                       !memcmp(c->display8, b->display8, 3 * n),
+                   "%s JPEG: strips, kept copy and codes alone agree", flags[v]);
+        lam_image_free(a), lam_image_free(b), lam_image_free(c);
+    }
+}
+
 /* A JPEG taller than the loader's strips (256 rows: two whole strips and
  * a part), some pixels saturated: the planes decoded strip by strip agree
  * with djpeg (Debian libjpeg-turbo-progs, an independent decoder) in every
@@ -299,6 +326,7 @@ static void test_jpeg_strips_and_codes(void)
                "codes decoded alone: no planes, and djpeg's codes exactly");
     lam_image_free(strips), lam_image_free(whole), lam_image_free(only);
     free(ref);
+    check_jpeg_variants(ppm, jpg);
     /* PNG: an 8-bit file's codes alone equal those kept by a full load; a
      * 16-bit file has none (refused, so that a caller falls back) */
     lam_image *png = NULL, *full = NULL;
