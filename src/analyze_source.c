@@ -10,6 +10,7 @@
  * and TIFF files compress camera images far less (or not at all), so for
  * them the saving would be small or negative. */
 #include "analyze_internal.h"
+#include "imageio_internal.h"
 
 #include <errno.h>
 #include <stdio.h>
@@ -75,17 +76,12 @@ lam_status lam__load_input(const char *path, const lam_load_options *lo, lam_ima
 {
     *bytes = NULL;
     *size = 0;
-    FILE *fp = fopen(path, "rb");
-    if (!fp) {
-        lam_status st = lam_error_set(err, LAM_EIO, "cannot open: %s", strerror(errno));
-        if (err)
-            err->sys_errno = errno;
-        lam_error_set_file(err, path);
+    FILE *fp = NULL;
+    lam_status st = lam__image_fopen(path, &fp, err);
+    if (st)
         return st;
-    }
     unsigned char head[16];
     size_t n = fread(head, 1, sizeof head, fp);
-    lam_status st = LAM_OK;
     if (fseek(fp, 0, SEEK_SET) != 0)
         st = lam_error_set(err, LAM_EIO, "cannot rewind the input");
     else if (lam_file_sniff(head, n) == LAM_FILE_JPEG)

@@ -78,18 +78,26 @@ lam_status lam_image_load_stream(FILE *fp, const char *name, const lam_load_opti
     return st;
 }
 
+lam_status lam__image_fopen(const char *path, FILE **fp, lam_error *err)
+{
+    if ((*fp = fopen(path, "rb")))
+        return LAM_OK;
+    int e = errno;
+    lam_status st = lam_error_set(err, LAM_EIO, "cannot open: %s", strerror(e));
+    if (err)
+        err->sys_errno = e;
+    lam_error_set_file(err, path);
+    return st;
+}
+
 lam_status lam_image_load(const char *path, const lam_load_options *opt,
                           lam_image **out, lam_error *err)
 {
-    FILE *fp = fopen(path, "rb");
-    if (!fp) {
-        lam_status st = lam_error_set(err, LAM_EIO, "cannot open: %s", strerror(errno));
-        if (err)
-            err->sys_errno = errno;
-        lam_error_set_file(err, path);
+    FILE *fp = NULL;
+    lam_status st = lam__image_fopen(path, &fp, err);
+    if (st)
         return st;
-    }
-    lam_status st = lam_image_load_stream(fp, path, opt, out, err);
+    st = lam_image_load_stream(fp, path, opt, out, err);
     fclose(fp);
     return st;
 }

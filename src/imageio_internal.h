@@ -13,6 +13,12 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
                          lam_image **out, lam_error *err);
 lam_status lam__jpeg_load(FILE *fp, const char *path, const lam_load_options *opt,
                           lam_image **out, lam_error *err);
+/* Open an image file for reading; on failure LAM_EIO with the system's
+ * reason, errno in err->sys_errno and the file named (as lam_image_load
+ * reports it). Also for callers that read the file otherwise
+ * (analyze_source.c). */
+lam_status lam__image_fopen(const char *path, FILE **fp, lam_error *err);
+
 /* TIFF needs a seekable stream. */
 lam_status lam__tiff_load(FILE *fp, const char *path, const lam_load_options *opt,
                           lam_image **out, lam_error *err);
