@@ -64,7 +64,8 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
     size_t n = width * height;
     lam_image *img = image_header(width, height);
     float *pix = lam_big_calloc(3 * n, sizeof *pix);
-    uint8_t *clip = lam_big_calloc(n, 1);
+    size_t stride = (width + 7) / 8;
+    uint8_t *clip = lam_big_calloc(height, stride);
     if (!img || !pix || !clip) {
         free(img);
         free(pix);
@@ -75,7 +76,8 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
     img->plane[0] = pix;
     img->plane[1] = pix + n;
     img->plane[2] = pix + 2 * n;
-    img->clipped = clip;
+    img->clip_bits = clip;
+    img->clip_stride = stride;
     *out = img;
     return LAM_OK;
 }
@@ -104,7 +106,7 @@ void lam_image_free(lam_image *img)
     if (!img)
         return;
     free(img->plane[0]);
-    free(img->clipped);
+    free(img->clip_bits);
     free(img->display8);
     free(img);
 }

@@ -42,9 +42,9 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t)
             img->plane[0][base + x] = pc->lut[0][v0];                                      \
             img->plane[1][base + x] = pc->lut[1][v1];                                      \
             img->plane[2][base + x] = pc->lut[2][v2];                                      \
-            int clip = v0 >= top || v1 >= top || v2 >= top;                                \
-            img->clipped[base + x] = (uint8_t)clip;                                        \
-            clipped += (size_t)clip;                                                       \
+            unsigned clip = v0 >= top || v1 >= top || v2 >= top;                           \
+            cb[x / 8] |= (uint8_t)(clip << (x % 8));                                       \
+            clipped += clip;                                                               \
             if (d8) {                                                                      \
                 uint8_t *d = d8 + (base + x) * 3;                                          \
                 d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;                \
@@ -59,6 +59,8 @@ void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const vo
     size_t o1 = pc->chans == 3 ? 1 : 0, o2 = pc->chans == 3 ? 2 : 0; /* grey: replicated */
     unsigned top = pc->clip_code;
     uint8_t *d8 = pc->depth == 8 ? img->display8 : NULL;
+    uint8_t *cb = img->clip_bits + y * img->clip_stride;
+    memset(cb, 0, img->clip_stride);
     if (pc->depth == 8)
         CONVERT_ROW(uint8_t);
     else
@@ -76,22 +78,40 @@ typedef struct rgb8_ctx {
     size_t clipped[LAM_MAX_THREADS];
 } rgb8_ctx;
 
+/* One row: planes from the LUTs, and the row's clip bits a byte (8
+ * pixels) at a time, so that no pixel waits on the previous one's bit. */
+static size_t rgb8_row(const rgb8_ctx *c, size_t y)
+{
+    const lam_image *img = c->img;
+    const float *l0 = c->pc->lut[0], *l1 = c->pc->lut[1], *l2 = c->pc->lut[2];
+    unsigned top = c->pc->clip_code;
+    size_t w = img->width, clipped = 0;
+    const uint8_t *p = c->codes + (y - c->y0) * w * 3;
+    float *o0 = img->plane[0] + y * w, *o1 = img->plane[1] + y * w, *o2 = img->plane[2] + y * w;
+    uint8_t *cb = img->clip_bits + y * img->clip_stride; /* the row's own bytes */
+    for (size_t x0 = 0; x0 < w; x0 += 8) {
+        size_t n = w - x0 < 8 ? w - x0 : 8;
+        unsigned byte = 0;
+        for (size_t b = 0; b < n; b++) {
+            const uint8_t *q = p + (x0 + b) * 3;
+            o0[x0 + b] = l0[q[0]];
+            o1[x0 + b] = l1[q[1]];
+            o2[x0 + b] = l2[q[2]];
+            unsigned clip = (q[0] >= top) | (q[1] >= top) | (q[2] >= top);
+            byte |= clip << b;
+            clipped += clip;
+        }
+        cb[x0 / 8] = (uint8_t)byte;
+    }
+    return clipped;
+}
+
 static void rgb8_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     rgb8_ctx *c = vctx;
-    lam_image *img = c->img;
-    const float *l0 = c->pc->lut[0], *l1 = c->pc->lut[1], *l2 = c->pc->lut[2];
-    unsigned top = c->pc->clip_code;
-    size_t w = img->width, clipped = 0, first = c->y0 * w;
-    for (size_t k = first + begin * w; k < first + end * w; k++) {
-        const uint8_t *p = c->codes + (k - first) * 3;
-        img->plane[0][k] = l0[p[0]];
-        img->plane[1][k] = l1[p[1]];
-        img->plane[2][k] = l2[p[2]];
-        int clip = p[0] >= top || p[1] >= top || p[2] >= top;
-        img->clipped[k] = (uint8_t)clip;
-        clipped += (size_t)clip;
-    }
+    size_t clipped = 0;
+    for (size_t y = c->y0 + begin; y < c->y0 + end; y++)
+        clipped += rgb8_row(c, y);
     c->clipped[slice] = clipped;
 }
 

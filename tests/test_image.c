@@ -133,12 +133,16 @@ static void test_png_round_trip(void)
     opt.transfer.kind = LAM_TRANSFER_LINEAR;
     lam_image *img = NULL;
     check_int(lam_image_load(path, &opt, &img, &err), LAM_OK, "load 8-bit RGB PNG");
-    size_t mism = 0, clipped = 0;
+    size_t mism = 0, clipped = 0, bits = 0;
     for (size_t i = 0; img && i < w * h; i++) {
         for (int c = 0; c < 3; c++)
             mism += lroundf(img->plane[c][i] * 255.0f) != rgb[i * 3 + (size_t)c];
-        clipped += rgb[i * 3] == 255 || rgb[i * 3 + 1] == 255 || rgb[i * 3 + 2] == 255;
+        int top = rgb[i * 3] == 255 || rgb[i * 3 + 1] == 255 || rgb[i * 3 + 2] == 255;
+        clipped += (size_t)top;
+        bits += lam_image_clipped(img, i % w, i / w) != top;
     }
+    check_int((long long)bits, 0, "clip mask bit set exactly at the saturated pixels "
+              "(37 px rows: bits that cross bytes)");
     check_int((long long)mism, 0, "8-bit PNG round trip is exact");
     check_int(img ? (long long)img->clipped_count : -1, (long long)clipped,
               "clipped pixels counted (any channel at 255)");
@@ -317,12 +321,20 @@ static void test_jpeg_strips_and_codes(void)
     check_true(worst <= 1, "strip-decoded planes equal djpeg within 1 level in all %zu rows "
                "(worst %d)", h, worst);
     check_true(!memcmp(strips->plane[0], whole->plane[0], 3 * w * h * sizeof(float)) &&
-                   !memcmp(strips->clipped, whole->clipped, w * h),
+                   !memcmp(strips->clip_bits, whole->clip_bits, h * whole->clip_stride),
                "strip-decoded planes and clip mask equal the whole-copy decode bit for bit");
+    size_t wrong_bits = 0;
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            const unsigned char *q = codes + (y * w + x) * 3;
+            wrong_bits += lam_image_clipped(strips, x, y) != (q[0] == 255 || q[1] == 255 || q[2] == 255);
+        }
+    check_true(wrong_bits == 0, "the clip mask's bit (x, y) is set exactly where djpeg gives a "
+               "code of 255 (%zu wrong)", wrong_bits);
     check_true(strips->clipped_count == whole->clipped_count && strips->clipped_count > 0,
                "saturated pixels counted alike (%zu, %zu)", strips->clipped_count,
                whole->clipped_count);
-    check_true(!only->plane[0] && !only->clipped && !memcmp(only->display8, codes, w * h * 3),
+    check_true(!only->plane[0] && !only->clip_bits && !memcmp(only->display8, codes, w * h * 3),
                "codes decoded alone: no planes, and djpeg's codes exactly");
     lam_image_free(strips), lam_image_free(whole), lam_image_free(only);
     free(ref);

@@ -50,7 +50,7 @@ static lam_image *scene(void)
     lam_error err;
     if (lam_image_alloc(W, H, &img, &err))
         return NULL;
-    memset(img->clipped, 0, (size_t)W * H);
+    memset(img->clip_bits, 0, H * img->clip_stride);
     const double zero[3] = {0, 0, 0}, bi[3] = {0.12, 0.21, 0.02};
     const double shifted[3] = {MONO[0] + 0.012, MONO[1], MONO[2]};
     const double cut[3] = {MONO[0], MONO[1] + 0.025, MONO[2] - 0.02};
@@ -99,7 +99,7 @@ static void join_threads(void)
     lam_error err;
     if (!check_true(!lam_image_alloc(W, H, &img, &err), "second scene allocated"))
         return;
-    memset(img->clipped, 0, (size_t)W * H);
+    memset(img->clip_bits, 0, H * img->clip_stride);
     const double zero[3] = {0, 0, 0}, cut[3] = {MONO[0], MONO[1] + 0.025, MONO[2] - 0.02};
     const double shifted[3] = {MONO[0] + 0.012, MONO[1], MONO[2]};
     paint(img, 0, 0, W, H, zero);
@@ -195,7 +195,7 @@ static void wide_image(void)
     lam_error err;
     if (!check_true(!lam_image_alloc(w, h, &img, &err), "wide image allocated"))
         return;
-    memset(img->clipped, 0, w * h);
+    memset(img->clip_bits, 0, h * img->clip_stride);
     for (size_t y = 0; y < h; y++)
         for (size_t x = 0; x < w; x++)
             for (int c = 0; c < 3; c++)

@@ -49,7 +49,7 @@ static lam_image *scene(double sigma, int big_flake)
     lam_error err;
     if (lam_image_alloc(W, H, &img, &err))
         return NULL;
-    memset(img->clipped, 0, (size_t)W * H);
+    memset(img->clip_bits, 0, H * img->clip_stride);
     for (size_t y = 0; y < H; y++)
         for (size_t x = 0; x < W; x++)
             for (int c = 0; c < 3; c++) {

@@ -210,7 +210,8 @@ static int same_pixels(const lam_image *a, const lam_image *b)
     for (int c = 0; c < 3; c++)
         if (memcmp(a->plane[c], b->plane[c], n * sizeof(float)))
             return 0;
-    return !memcmp(a->clipped, b->clipped, n);
+    return a->clip_stride == b->clip_stride &&
+           !memcmp(a->clip_bits, b->clip_bits, a->height * a->clip_stride);
 }
 
 static const char *comp_name(uint16_t c)

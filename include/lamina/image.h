@@ -72,8 +72,12 @@ typedef enum lam_file_kind {
 typedef struct lam_image {
     size_t width, height;
     float *plane[3];       /* R, G, B; one allocation, plane[0] owns it */
-    uint8_t *clipped;      /* width*height flags, 1 = saturated */
-    size_t clipped_count;
+    uint8_t *clip_bits;    /* saturated pixels, one bit each (lam_image_clipped): row
+                            * y's bits start at byte y * clip_stride, pixel x is bit
+                            * x % 8 of byte x / 8. Rows own whole bytes, so threads may
+                            * write different rows at once */
+    size_t clip_stride;    /* bytes per row of clip_bits: (width + 7) / 8 */
+    size_t clipped_count;  /* pixels whose clip bit is set */
     int bit_depth;         /* of the source file: 8 or 16 */
     int source_channels;   /* 1 grey or 3 colour in the file */
     lam_file_kind kind;
@@ -106,12 +110,20 @@ typedef struct lam_load_options {
     size_t max_pixels;     /* 0 means LAM_IMAGE_DEFAULT_MAX_PIXELS */
     int keep_display8;     /* also keep the 8-bit codes (for drawing reports) */
     int display8_only;     /* decode only the 8-bit RGB codes (grey replicated) into
-                            * display8: no planes, no clip mask (plane[] and clipped
+                            * display8: no planes, no clip mask (plane[] and clip_bits
                             * NULL), no transfer curve applied. JPEG and 8-bit PNG only:
                             * other files give LAM_EINVAL. For redrawing a picture of a
                             * file already analysed, at a fraction of a full load's
                             * memory and time */
 } lam_load_options;
+
+/* 1 when pixel (x, y) was saturated in the file (any channel at its
+ * top code), else 0. A pixel loop may skip the call when clipped_count
+ * is 0 (the bits are then all 0). */
+static inline int lam_image_clipped(const lam_image *img, size_t x, size_t y)
+{
+    return (img->clip_bits[y * img->clip_stride + x / 8] >> (x % 8)) & 1;
+}
 
 /* Default options: automatic transfer curve, default pixel limit. */
 lam_load_options lam_load_options_default(void);
