@@ -563,8 +563,8 @@ lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_err
     if (st)
         return st;
     lam_contours *ct = NULL;
-    st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height,
-                                       a->count, &ct, err);
+    st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height, a->count, &ct,
+                            err);
     if (st)
         return st;
     double side = (double)(a->width > a->height ? a->width : a->height);

@@ -79,7 +79,6 @@ typedef struct run {
     int *sample_done;
 } run;
 
-
 static int hash_item(lam_batch_item *it)
 {
     if (it->hash[0])

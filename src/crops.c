@@ -34,8 +34,8 @@ static void source_clear(source *s)
     s->image = (size_t)-1;
 }
 
-/* The file's 8-bit codes (a JPEG's decoded alone, without the planes),
- * or its linear planes encoded to sRGB. */
+/* The file's 8-bit codes (a JPEG's or 8-bit PNG's decoded alone, without
+ * the planes), or its linear planes encoded to sRGB. */
 static uint8_t *load_rgb(const char *path, size_t *w, size_t *h)
 {
     lam_load_options lo = lam_load_options_default();
@@ -44,7 +44,7 @@ static uint8_t *load_rgb(const char *path, size_t *w, size_t *h)
     lam_status st = lam_image_load(path, &lo, &img, NULL);
     lo.display8_only = 0;
     lo.keep_display8 = 1;
-    if (st == LAM_EINVAL) /* not a JPEG */
+    if (st == LAM_EINVAL) /* no codes to decode alone: a TIFF or a 16-bit PNG */
         st = lam_image_load(path, &lo, &img, NULL);
     if (st != LAM_OK)
         return NULL;

@@ -131,31 +131,31 @@ static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *e
 static void read_codes(jpeg_job *job)
 {
     lam_image *img = job->img;
-    size_t w = img->width;
     while (job->cinfo.output_scanline < img->height) {
-        uint8_t *d = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
-        JSAMPROW rp = job->pc.chans == 3 ? d : job->row;
+        size_t y = job->cinfo.output_scanline;
+        JSAMPROW rp = job->pc.chans == 3 ? img->display8 + y * img->width * 3 : job->row;
         jpeg_read_scanlines(&job->cinfo, &rp, 1);
-        for (size_t x = 0; job->pc.chans != 3 && x < w; x++)
-            d[3 * x] = d[3 * x + 1] = d[3 * x + 2] = job->row[x];
+        if (job->pc.chans != 3)
+            lam__pixconv_codes_row(img, y, job->row, 1);
     }
 }
 
-/* Colour without a kept copy: strips of rows decoded into one small
- * buffer, each strip converted on all cores (decoding is sequential), so
- * the whole image's codes are never held at once. */
+/* Colour: strips of rows decoded (sequentially) into the kept 8-bit copy
+ * when there is one, else into one small buffer, so that the whole
+ * image's codes are held only when asked for; each strip converted to the
+ * planes on all cores. */
 #define STRIP_ROWS 256
 static lam_status read_strips(jpeg_job *job, lam_error *err)
 {
     lam_image *img = job->img;
     size_t w = img->width, h = img->height, rows = h < STRIP_ROWS ? h : STRIP_ROWS;
-    uint8_t *strip = job->strip = malloc(rows * w * 3); /* freed with the job: a damaged
-                                                          * stream jumps out of the loop */
-    if (!strip)
+    if (!img->display8 && !(job->strip = malloc(rows * w * 3))) /* freed with the job: a
+                                                                  * damaged stream jumps out */
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a strip of JPEG rows");
     lam_status st = LAM_OK;
     while (!st && job->cinfo.output_scanline < h) {
         size_t y0 = job->cinfo.output_scanline, n = 0;
+        uint8_t *strip = img->display8 ? img->display8 + y0 * w * 3 : job->strip;
         while (n < rows && job->cinfo.output_scanline < h) {
             JSAMPROW rp = strip + n * w * 3;
             n += jpeg_read_scanlines(&job->cinfo, &rp, 1);
@@ -167,29 +167,18 @@ static lam_status read_strips(jpeg_job *job, lam_error *err)
 
 static lam_status read_pixels(jpeg_job *job, const lam_load_options *opt, lam_error *err)
 {
-    lam_image *img = job->img;
-    size_t w = img->width, h = img->height;
     lam_status st = LAM_OK;
-    if (opt->display8_only) {
+    if (opt->display8_only)
         read_codes(job);
-    } else if (img->display8 && job->pc.chans == 3) {
-        /* decode straight into the kept 8-bit copy, then convert the rows
-         * to linear planes on all cores (decoding itself is sequential) */
-        while (job->cinfo.output_scanline < h) {
-            JSAMPROW rp = img->display8 + (size_t)job->cinfo.output_scanline * w * 3;
-            jpeg_read_scanlines(&job->cinfo, &rp, 1);
-        }
-        st = lam__pixconv_rgb8(&job->pc, img, 0, h, img->display8, err);
-    } else if (job->pc.chans == 3) {
+    else if (job->pc.chans == 3)
         st = read_strips(job, err);
-    } else {
-        while (job->cinfo.output_scanline < h) {
+    else
+        while (job->cinfo.output_scanline < job->img->height) {
             size_t y = job->cinfo.output_scanline;
             JSAMPROW rp = job->row;
             jpeg_read_scanlines(&job->cinfo, &rp, 1);
-            lam__pixconv_row(&job->pc, img, y, job->row, (size_t)job->pc.chans);
+            lam__pixconv_row(&job->pc, job->img, y, job->row, (size_t)job->pc.chans);
         }
-    }
     if (!st)
         jpeg_finish_decompress(&job->cinfo);
     return st;

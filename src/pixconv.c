@@ -32,23 +32,29 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t)
     pc->lut[1] = pc->lut[2] = pc->lut[0];
 }
 
-/* One loop per sample size, so that the inner loop has no branch on it. */
+/* One loop per sample size, so that the inner loop has no branch on it;
+ * the row's clip bits gathered a byte (8 pixels) at a time. */
 #define CONVERT_ROW(TYPE)                                                                  \
     do {                                                                                   \
         const TYPE *r = row;                                                               \
-        for (size_t x = 0; x < w; x++) {                                                   \
-            const TYPE *p = r + x * stride;                                                \
-            unsigned v0 = p[0], v1 = p[o1], v2 = p[o2];                                    \
-            img->plane[0][base + x] = pc->lut[0][v0];                                      \
-            img->plane[1][base + x] = pc->lut[1][v1];                                      \
-            img->plane[2][base + x] = pc->lut[2][v2];                                      \
-            unsigned clip = v0 >= top || v1 >= top || v2 >= top;                           \
-            cb[x / 8] |= (uint8_t)(clip << (x % 8));                                       \
-            clipped += clip;                                                               \
-            if (d8) {                                                                      \
-                uint8_t *d = d8 + (base + x) * 3;                                          \
-                d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;                \
+        for (size_t x0 = 0; x0 < w; x0 += 8) {                                             \
+            size_t n = w - x0 < 8 ? w - x0 : 8;                                            \
+            unsigned byte = 0;                                                             \
+            for (size_t b = 0, x = x0; b < n; b++, x++) {                                  \
+                const TYPE *p = r + x * stride;                                            \
+                unsigned v0 = p[0], v1 = p[o1], v2 = p[o2];                                \
+                img->plane[0][base + x] = pc->lut[0][v0];                                  \
+                img->plane[1][base + x] = pc->lut[1][v1];                                  \
+                img->plane[2][base + x] = pc->lut[2][v2];                                  \
+                unsigned clip = (v0 >= top) | (v1 >= top) | (v2 >= top);                   \
+                byte |= clip << b;                                                         \
+                clipped += clip;                                                           \
+                if (d8) {                                                                  \
+                    uint8_t *d = d8 + (base + x) * 3;                                      \
+                    d[0] = (uint8_t)v0, d[1] = (uint8_t)v1, d[2] = (uint8_t)v2;            \
+                }                                                                          \
             }                                                                              \
+            cb[x0 / 8] = (uint8_t)byte;                                                    \
         }                                                                                  \
     } while (0)
 
@@ -60,12 +66,21 @@ void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const vo
     unsigned top = pc->clip_code;
     uint8_t *d8 = pc->depth == 8 ? img->display8 : NULL;
     uint8_t *cb = img->clip_bits + y * img->clip_stride;
-    memset(cb, 0, img->clip_stride);
     if (pc->depth == 8)
         CONVERT_ROW(uint8_t);
     else
         CONVERT_ROW(uint16_t);
     img->clipped_count += clipped;
+}
+
+void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int chans)
+{
+    uint8_t *d = img->display8 + y * img->width * 3;
+    if (chans == 3)
+        memcpy(d, row, img->width * 3);
+    else
+        for (size_t x = 0; x < img->width; x++)
+            d[3 * x] = d[3 * x + 1] = d[3 * x + 2] = row[x];
 }
 
 #undef CONVERT_ROW

@@ -32,6 +32,10 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t);
 void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
                       size_t stride);
 
+/* Row y of 8-bit samples (chans 1 or 3) into img->display8 alone: the
+ * codes copied, grey replicated into R, G and B (display8_only loads). */
+void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int chans);
+
 /* Fill image rows y0 .. y0+rows-1 of the planes and clip mask from
  * 'codes' (those rows' 8-bit RGB samples, interleaved: img->display8 +
  * y0*width*3, or a strip buffer), on all cores; adds the rows' clipped

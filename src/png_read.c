@@ -117,20 +117,10 @@ static lam_status read_header(png_job *job, FILE *fp, const lam_load_options *op
     job->rows = malloc((job->passes > 1 ? h : 1) * job->rowbytes);
     if (!job->rows)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG row buffers");
-    if (opt->keep_display8 && out_depth == 8 && !job->img->display8 && !(job->img->display8 = lam_big_malloc((size_t)w * h * 3)))
+    if (opt->keep_display8 && out_depth == 8 && !job->img->display8 &&
+        !(job->img->display8 = lam_big_malloc((size_t)w * h * 3)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the display copy");
     return LAM_OK;
-}
-
-/* One decoded 8-bit row into the codes alone (grey replicated). */
-static void row_codes(lam_image *img, size_t y, const unsigned char *row, int chans)
-{
-    uint8_t *d = img->display8 + y * img->width * 3;
-    if (chans == 3)
-        memcpy(d, row, img->width * 3);
-    else
-        for (size_t x = 0; x < img->width; x++)
-            d[3 * x] = d[3 * x + 1] = d[3 * x + 2] = row[x];
 }
 
 static void read_pixels(png_job *job, int codes_only)
@@ -149,7 +139,7 @@ static void read_pixels(png_job *job, int codes_only)
         if (job->passes <= 1)
             png_read_row(job->png, row, NULL);
         if (codes_only)
-            row_codes(job->img, y, row, job->pc.chans);
+            lam__pixconv_codes_row(job->img, y, row, job->pc.chans);
         else
             lam__pixconv_row(&job->pc, job->img, y, row, (size_t)job->pc.chans);
     }

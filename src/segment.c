@@ -229,7 +229,7 @@ static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8
             r->depth_max = depth[k];
         if (depth[k] < LAM_INTERIOR_DEPTH)
             continue;
-        if (img->clipped_count && lam_image_clipped(img, k - k0, y)) {
+        if (lam_image_clipped(img, k - k0, y)) {
             r->clipped++;
             continue;
         }
@@ -250,7 +250,7 @@ static void run_sums_12(const lam_image *img, const uint8_t *depth, double s[4],
 {
     size_t k0 = y * img->width;
     for (size_t k = k0 + x0; k < k0 + x1; k++) {
-        if (depth[k] < LAM_INTERIOR_DEPTH || (img->clipped_count && lam_image_clipped(img, k - k0, y)))
+        if (depth[k] < LAM_INTERIOR_DEPTH || lam_image_clipped(img, k - k0, y))
             continue;
         for (int c = 1; c < 3; c++) {
             double v = img->plane[c][k];

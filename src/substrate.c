@@ -96,7 +96,7 @@ static void tile_rows(size_t begin, size_t end, size_t slice, void *vctx)
             for (size_t y = y0; y < y1; y++)
                 for (size_t x = x0; x < x1; x++) {
                     size_t k = y * w + x;
-                    clip += img->clipped_count ? (size_t)lam_image_clipped(img, x, y) : 0;
+                    clip += (size_t)lam_image_clipped(img, x, y);
                     for (int c = 0; c < 3; c++) {
                         double v = img->plane[c][k];
                         s[c] += v;

@@ -189,26 +189,50 @@ static void test_png_round_trip(void)
     free(rgb16);
 }
 
+/* Pixel (x, y) of a test picture of height h. */
+typedef void (*pixel_fn)(size_t x, size_t y, size_t h, unsigned char px[3]);
+
+/* A w x h PPM of pixel() under the scratch folder as STEM.ppm, made into
+ * STEM.jpg by cjpeg at 'quality' and decoded to STEM-djpeg.ppm by djpeg
+ * (Debian libjpeg-turbo-progs, an independent codec); the three paths in
+ * ppm, jpg and dec (512 bytes each). 1 when both tools ran. */
+static int cjpeg_djpeg(const char *stem, size_t w, size_t h, pixel_fn pixel, int quality,
+                       char *ppm, char *jpg, char *dec)
+{
+    char name[128], cmd[4096];
+    snprintf(name, sizeof name, "%s.ppm", stem);
+    check_path(ppm, 512, check_tmpdir(), name);
+    snprintf(name, sizeof name, "%s.jpg", stem);
+    check_path(jpg, 512, check_tmpdir(), name);
+    snprintf(name, sizeof name, "%s-djpeg.ppm", stem);
+    check_path(dec, 512, check_tmpdir(), name);
+    FILE *fp = fopen(ppm, "wb");
+    fprintf(fp, "P6\n%zu %zu\n255\n", w, h);
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++) {
+            unsigned char px[3];
+            pixel(x, y, h, px);
+            fwrite(px, 1, 3, fp);
+        }
+    fclose(fp);
+    snprintf(cmd, sizeof cmd, "cjpeg -quality %d %s > %s && djpeg -pnm %s > %s", quality, ppm,
+             jpg, jpg, dec);
+    return check_true(system(cmd) == 0, "cjpeg/djpeg available (Debian libjpeg-turbo-progs)");
+}
+
+static void ramp_pixel(size_t x, size_t y, size_t h, unsigned char px[3])
+{
+    (void)h;
+    px[0] = (unsigned char)(x * 4), px[1] = (unsigned char)(y * 5);
+    px[2] = (unsigned char)(128 + rnd(40));
+}
+
 /* Write a PPM, make a JPEG with cjpeg, decode it with djpeg and with lamina. */
 static void test_jpeg_against_djpeg(void)
 {
     char ppm[512], jpg[512], dec[512], cmd[4096];
     const size_t w = 64, h = 48;
-    check_path(ppm, sizeof ppm, check_tmpdir(), "in.ppm");
-    check_path(jpg, sizeof jpg, check_tmpdir(), "in.jpg");
-    check_path(dec, sizeof dec, check_tmpdir(), "djpeg.ppm");
-    FILE *fp = fopen(ppm, "wb");
-    fprintf(fp, "P6\n%zu %zu\n255\n", w, h);
-    for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            unsigned char px[3] = {(unsigned char)(x * 4), (unsigned char)(y * 5),
-                                   (unsigned char)(128 + rnd(40))};
-            fwrite(px, 1, 3, fp);
-        }
-    fclose(fp);
-    snprintf(cmd, sizeof cmd, "cjpeg -quality 90 %s > %s && djpeg -pnm %s > %s", ppm, jpg,
-             jpg, dec);
-    if (!check_true(system(cmd) == 0, "cjpeg/djpeg available (Debian libjpeg-turbo-progs)"))
+    if (!cjpeg_djpeg("in", w, h, ramp_pixel, 90, ppm, jpg, dec))
         return;
     size_t n;
     unsigned char *ref = read_all(dec, &n);
@@ -275,25 +299,17 @@ static void check_jpeg_variants(const char *ppm, const char *jpg)
  * row, equal the planes decoded through a whole kept copy bit for bit, and
  * the 8-bit codes decoded alone (display8_only) are djpeg's exactly. The
  * same option on PNG files after it. */
+static void tall_pixel(size_t x, size_t y, size_t h, unsigned char px[3])
+{
+    px[0] = (unsigned char)(y * 255 / h), px[1] = (unsigned char)(x + 60);
+    px[2] = (unsigned char)(y > 400 && x < 40 ? 255 : 90 + rnd(30));
+}
+
 static void test_jpeg_strips_and_codes(void)
 {
-    char ppm[512], jpg[512], dec[512], cmd[4096];
+    char ppm[512], jpg[512], dec[512];
     const size_t w = 150, h = 600;
-    check_path(ppm, sizeof ppm, check_tmpdir(), "tall.ppm");
-    check_path(jpg, sizeof jpg, check_tmpdir(), "tall.jpg");
-    check_path(dec, sizeof dec, check_tmpdir(), "tall-djpeg.ppm");
-    FILE *fp = fopen(ppm, "wb");
-    fprintf(fp, "P6\n%zu %zu\n255\n", w, h);
-    for (size_t y = 0; y < h; y++)
-        for (size_t x = 0; x < w; x++) {
-            unsigned char px[3] = {(unsigned char)(y * 255 / h), (unsigned char)(x + 60),
-                                   (unsigned char)(y > 400 && x < 40 ? 255 : 90 + rnd(30))};
-            fwrite(px, 1, 3, fp);
-        }
-    fclose(fp);
-    snprintf(cmd, sizeof cmd, "cjpeg -quality 95 %s > %s && djpeg -pnm %s > %s", ppm, jpg,
-             jpg, dec);
-    if (!check_true(system(cmd) == 0, "cjpeg/djpeg available (Debian libjpeg-turbo-progs)"))
+    if (!cjpeg_djpeg("tall", w, h, tall_pixel, 95, ppm, jpg, dec))
         return;
     size_t n;
     unsigned char *ref = read_all(dec, &n);

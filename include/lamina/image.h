@@ -77,7 +77,8 @@ typedef struct lam_image {
                             * x % 8 of byte x / 8. Rows own whole bytes, so threads may
                             * write different rows at once */
     size_t clip_stride;    /* bytes per row of clip_bits: (width + 7) / 8 */
-    size_t clipped_count;  /* pixels whose clip bit is set */
+    size_t clipped_count;  /* pixels whose clip bit is set (keep it so when setting
+                            * bits: lam_image_clipped reads none when it is 0) */
     int bit_depth;         /* of the source file: 8 or 16 */
     int source_channels;   /* 1 grey or 3 colour in the file */
     lam_file_kind kind;
@@ -118,11 +119,12 @@ typedef struct lam_load_options {
 } lam_load_options;
 
 /* 1 when pixel (x, y) was saturated in the file (any channel at its
- * top code), else 0. A pixel loop may skip the call when clipped_count
- * is 0 (the bits are then all 0). */
+ * top code), else 0. Without a saturated pixel (clipped_count 0, the
+ * common case) the bits are not read at all. */
 static inline int lam_image_clipped(const lam_image *img, size_t x, size_t y)
 {
-    return (img->clip_bits[y * img->clip_stride + x / 8] >> (x % 8)) & 1;
+    return img->clipped_count &&
+           ((img->clip_bits[y * img->clip_stride + x / 8] >> (x % 8)) & 1);
 }
 
 /* Default options: automatic transfer curve, default pixel limit. */
