@@ -40,10 +40,11 @@ typedef struct ctx {
     lam_error err;
 } ctx;
 
-enum { LOAD, SUBSTRATE, CONTRAST, DENOISE, SEGMENT, STAGES };
+enum { LOAD, SUBSTRATE, CONTRAST, DENOISE, COMPACT, SEGMENT, STAGES };
 static const char *stage_name[STAGES] = {"load (decode, linearise, clip mask)",
                                          "substrate (tiles, modes, flat field)",
                                          "contrast in place", "denoise 3x3",
+                                         "fixed-point map (compact in place)",
                                          "segment (edges, thresholds, merging, stats)"};
 
 static int load(ctx *c, lam_image **out)
@@ -76,6 +77,9 @@ static double run_stage(ctx *c, int s)
         lam_contrast_in_place(img, &sub, c->threads);
     if (s > CONTRAST && lam_contrast_denoise(img, c->threads, &c->err))
         return -1;
+    lam_contrast_map map = {0};
+    if (s > COMPACT)
+        lam_contrast_compact(img, &map, c->threads);
     lam_segmentation *seg = NULL;
     if (lam_segmentation_alloc(img->width, img->height, &seg, &c->err))
         return -1;
@@ -87,12 +91,15 @@ static double run_stage(ctx *c, int s)
         lam_contrast_in_place(img, &sub, c->threads);
     else if (s == DENOISE)
         bad = lam_contrast_denoise(img, c->threads, &c->err) != LAM_OK;
+    else if (s == COMPACT)
+        lam_contrast_compact(img, &map, c->threads);
     else
-        bad = lam_segment_uniform(img, c->a->channels, c->a->ladder.contrast[1],
+        bad = lam_segment_uniform(&map, c->a->channels, c->a->ladder.contrast[1],
                                   c->a->substrate.noise, c->a->substrate.tile_scatter, &sg,
                                   seg, &c->err) != LAM_OK;
     t = bad ? -1 : now() - t0;
     lam_segmentation_free(seg);
+    lam_contrast_map_free(&map);
     lam_image_free(img);
     return t;
 }

@@ -132,7 +132,8 @@ typedef struct run {
     lam_analysis *a;
     const lam_setup *setup;
     const lam_analysis_options *opt;
-    lam_image *img;
+    lam_image *img;          /* no planes once the contrast is made */
+    lam_contrast_map contrast;
     lam_model *model;        /* coarse, 40 layers: fits, ladders, posteriors */
     size_t threads;
     double t0;
@@ -261,8 +262,11 @@ static lam_status substrate_stage(run *r, lam_error *err)
         return st;
     MARK(r, LAM_T_SUBSTRATE);
     lam_contrast_in_place(r->img, &a->substrate, r->threads);
-    if ((st = lam_contrast_denoise(r->img, r->threads, err)) ||
-        (st = lam_segmentation_alloc(r->img->width, r->img->height, &a->seg, err)))
+    if ((st = lam_contrast_denoise(r->img, r->threads, err)))
+        return st;
+    /* before the label and class maps: they take the memory it frees */
+    lam_contrast_compact(r->img, &r->contrast, r->threads);
+    if ((st = lam_segmentation_alloc(r->img->width, r->img->height, &a->seg, err)))
         return st;
     MARK(r, LAM_T_CONTRAST);
     return LAM_OK;
@@ -292,7 +296,7 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
     }
 }
 
-void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads)
+void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads)
 {
     a->count = a->seg->count;
     for (size_t i = 0; i < a->count; i++)
@@ -361,7 +365,7 @@ static lam_status segment_stage(run *r, lam_error *err)
                lam_image_block_coded(r->img) ? 1 - a->substrate.falloff : 1.0, so.file_step);
     /* material hook (issue 14): other crystals' flakes may be brighter than the substrate */
     so.bright_scaling |= lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_SHEETS;
-    lam_status st = lam_segment_uniform(r->img, a->channels, a->ladder.contrast[1],
+    lam_status st = lam_segment_uniform(&r->contrast, a->channels, a->ladder.contrast[1],
                                         a->substrate.noise, a->substrate.tile_scatter, &so,
                                         a->seg, err);
     if (st)
@@ -370,7 +374,7 @@ static lam_status segment_stage(run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    lam__measure_regions(a, r->img, r->threads);
+    lam__measure_regions(a, &r->contrast, r->threads);
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -736,13 +740,13 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     if (!st)
         uncounted_keys(a, fill, key);
     if (!st)
-        st = lam_segment_join(r->img, a->channels, key, fill, r->threads, a->seg, map, &joined,
+        st = lam_segment_join(&r->contrast, a->channels, key, fill, r->threads, a->seg, map, &joined,
                               err);
     free(key);
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, r->img, r->threads);
+    lam__measure_regions(a, &r->contrast, r->threads);
     infer_all(r, v, ft, vr, 1);
     return LAM_OK;
 }
@@ -761,7 +765,7 @@ static lam_status posterior_stage(run *r, lam_error *err)
     if (lam_thickness_applies(r->setup)) {
         if (!(a->results = calloc(a->count ? a->count : 1, sizeof *a->results)))
             return lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
-        lam_status st = lam_thickness_analyze(a, r->img, r->setup, r->model,
+        lam_status st = lam_thickness_analyze(a, &r->contrast, r->setup, r->model,
                                               r->opt->oxide_tolerance_nm, err);
         MARK(r, LAM_T_REGIONS);
         return st;
@@ -818,6 +822,7 @@ static lam_status analyze_once(const char *path, const lam_setup *setup,
     if (!st)
         lam__check_analysis(r.a, r.img, setup);
     lam_model_free(r.model);
+    lam_contrast_map_free(&r.contrast);
     lam_image_free(r.img);
     if (st) {
         lam_analysis_free(r.a);

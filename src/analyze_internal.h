@@ -25,7 +25,7 @@ lam_status lam__load_input(const char *path, const lam_load_options *lo, lam_ima
  * it, every region's measurement in a->measured (room for that many) and
  * its share of the transition pixels (the areas the size flags use, on
  * 'threads' threads). */
-void lam__measure_regions(lam_analysis *a, const lam_image *contrast, size_t threads);
+void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads);
 
 /* After the flakes' fit (a->estimate): when the setup records the
  * substrate's colour at a known oxide and the image has three channels,

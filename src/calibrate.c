@@ -55,10 +55,11 @@ static lam_calib_image *new_image(lam_calib_set *set, const char *path, lam_erro
 }
 
 /* Regions of a label map, measured on the image's contrast map. */
-static lam_status labelled_regions(lam_image *img, const lam_substrate *sub, const uint8_t *labels,
-                                   size_t channels, lam_calib_image *im, lam_error *err)
+static lam_status labelled_regions(const lam_contrast_map *contrast, const lam_substrate *sub,
+                                   const uint8_t *labels, size_t channels, lam_calib_image *im,
+                                   lam_error *err)
 {
-    size_t w = img->width, h = img->height;
+    size_t w = contrast->width, h = contrast->height;
     lam_segmentation *seg = NULL;
     lam_status st = lam_segmentation_alloc(w, h, &seg, err);
     if (st)
@@ -66,7 +67,7 @@ static lam_status labelled_regions(lam_image *img, const lam_substrate *sub, con
     for (size_t k = 0; k < w * h; k++)
         seg->cls[k] = labels[k] >= 1 && labels[k] <= 40 ? labels[k] : (labels[k] ? LAM_CLASS_NONE : 0);
     lam_segment_options sgo = lam_segment_options_default();
-    if (!(st = lam_segment_regions(img, &sgo, seg, err)))
+    if (!(st = lam_segment_regions(contrast, &sgo, seg, err)))
         im->regions = calloc(seg->count ? seg->count : 1, sizeof *im->regions);
     if (!st && !im->regions)
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate regions");
@@ -141,8 +142,11 @@ lam_status lam_calib_measure_labels(lam_calib_set *set, const char *path, const 
                            img->width, img->height);
     if (!st) {
         memcpy(im->substrate_level, sub.level, sizeof sub.level);
+        lam_contrast_map contrast;
         lam_contrast_in_place(img, &sub, 1);
-        st = labelled_regions(img, &sub, labels, setup->camera.channels, im, err);
+        lam_contrast_compact(img, &contrast, 1);
+        st = labelled_regions(&contrast, &sub, labels, setup->camera.channels, im, err);
+        lam_contrast_map_free(&contrast);
     }
     lam_image_free(img);
     if (st) {

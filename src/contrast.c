@@ -177,3 +177,92 @@ lam_status lam_contrast_denoise(lam_image *img, size_t threads, lam_error *err)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate denoising rows");
     return LAM_OK;
 }
+
+/* ---- the fixed-point map (lam_contrast_compact) ----
+ * The three planes are one array of 3 n floats; fixed-point element i
+ * takes bytes 2i, 2i + 1 of it, which lie in float element i / 2. The
+ * array is converted in blocks of COMPACT_BLOCK elements: block j >= 1
+ * writes over the floats of blocks j / 2 and below only, never its own,
+ * so once blocks 0..d-1 are done, blocks d..2d-1 may run side by side on
+ * all threads (each round doubles d). Block 0 overlaps itself and goes
+ * through a buffer. */
+#define COMPACT_BLOCK 16384
+
+typedef struct compact_ctx {
+    float *from;
+    size_t count;   /* elements: 3 n */
+    size_t first;   /* the round's first block */
+} compact_ctx;
+
+static uint16_t to_fixed(float contrast)
+{
+    float s = (1.0f - contrast) * (float)LAM_CONTRAST_UNIT;
+    s = s > 0.0f ? s : 0.0f; /* NaN too: no undefined conversion */
+    s = s < 65535.0f ? s : 65535.0f;
+    return (uint16_t)(int)(s + 0.5f); /* the nearest step */
+}
+
+static void to_fixed_run(const float *restrict from, uint16_t *restrict to, size_t m)
+{
+    for (size_t i = 0; i < m; i++)
+        to[i] = to_fixed(from[i]);
+}
+
+static void compact_block(const compact_ctx *cc, size_t b)
+{
+    size_t i0 = b * COMPACT_BLOCK, m = cc->count - i0;
+    if (m > COMPACT_BLOCK)
+        m = COMPACT_BLOCK;
+    const float *from = cc->from + i0;
+    uint16_t *to = (uint16_t *)(void *)cc->from + i0;
+    if (b > 0) {
+        to_fixed_run(from, to, m);
+        return;
+    }
+    uint16_t buffer[COMPACT_BLOCK];
+    to_fixed_run(from, buffer, m);
+    memcpy(to, buffer, m * sizeof *buffer);
+}
+
+static void compact_blocks(size_t begin, size_t end, size_t slice, void *vctx)
+{
+    (void)slice;
+    const compact_ctx *cc = vctx;
+    for (size_t b = cc->first + begin; b < cc->first + end; b++)
+        compact_block(cc, b);
+}
+
+void lam_contrast_compact(lam_image *img, lam_contrast_map *out, size_t threads)
+{
+    size_t n = img->width * img->height;
+    compact_ctx cc = {img->plane[0], 3 * n, 0};
+    size_t blocks = (cc.count + COMPACT_BLOCK - 1) / COMPACT_BLOCK;
+    compact_block(&cc, 0);
+    for (size_t d = 1; d < blocks; d *= 2) {
+        cc.first = d;
+        lam_parallel_for((2 * d < blocks ? 2 * d : blocks) - d, threads, compact_blocks, &cc);
+    }
+    uint16_t *q = realloc(img->plane[0], 3 * n * sizeof *q); /* shrinks: gives the rest back */
+    if (!q)
+        q = (uint16_t *)(void *)img->plane[0];
+    memset(out, 0, sizeof *out);
+    out->width = img->width;
+    out->height = img->height;
+    for (int c = 0; c < 3; c++)
+        out->plane[c] = q + (size_t)c * n;
+    out->clip_bits = img->clip_bits;
+    out->clip_stride = img->clip_stride;
+    out->clipped_count = img->clipped_count;
+    out->block_coded = lam_image_block_coded(img);
+    img->plane[0] = img->plane[1] = img->plane[2] = NULL;
+    img->clip_bits = NULL;
+}
+
+void lam_contrast_map_free(lam_contrast_map *m)
+{
+    if (!m)
+        return;
+    free(m->plane[0]);
+    free(m->clip_bits);
+    memset(m, 0, sizeof *m);
+}

@@ -210,7 +210,7 @@ void lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, cons
 /* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
  * sums (whole numbers, exact in any grouping), depth, and the interior's
  * contrast sums of channels 0..channels-1 pixel by pixel in row order. */
-static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8_t *depth,
+static void run_statistics(const lam_contrast_map *img, const uint8_t *cls, const uint8_t *depth,
                            lam_region_stats *r, size_t y, size_t x0, size_t x1, int channels)
 {
     size_t w = img->width, h = img->height, k0 = y * w, len = x1 - x0;
@@ -229,13 +229,13 @@ static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8
             r->depth_max = depth[k];
         if (depth[k] < LAM_INTERIOR_DEPTH)
             continue;
-        if (lam_image_clipped(img, k - k0, y)) {
+        if (lam_contrast_clipped(img, k - k0, y)) {
             r->clipped++;
             continue;
         }
         r->interior++;
         for (int c = 0; c < channels; c++) {
-            double v = img->plane[c][k];
+            double v = lam_contrast_value(img, c, k);
             r->sum[c] += v;
             r->sumsq[c] += v * v;
         }
@@ -245,15 +245,15 @@ static void run_statistics(const lam_image *img, const uint8_t *cls, const uint8
 /* The interior sums of channels 1 and 2 of one run (the second half of
  * run_statistics' work, for a second thread): sum and sum of squares of
  * channel 1, then of channel 2, in the same order as run_statistics. */
-static void run_sums_12(const lam_image *img, const uint8_t *depth, double s[4], size_t y,
+static void run_sums_12(const lam_contrast_map *img, const uint8_t *depth, double s[4], size_t y,
                         size_t x0, size_t x1)
 {
     size_t k0 = y * img->width;
     for (size_t k = k0 + x0; k < k0 + x1; k++) {
-        if (depth[k] < LAM_INTERIOR_DEPTH || lam_image_clipped(img, k - k0, y))
+        if (depth[k] < LAM_INTERIOR_DEPTH || lam_contrast_clipped(img, k - k0, y))
             continue;
         for (int c = 1; c < 3; c++) {
-            double v = img->plane[c][k];
+            double v = lam_contrast_value(img, c, k);
             s[2 * c - 2] += v;
             s[2 * c - 1] += v * v;
         }
@@ -267,7 +267,7 @@ static void run_sums_12(const lam_image *img, const uint8_t *depth, double s[4],
  * geometry and channel 0, the other channels 1 and 2 into sums of its own
  * (each region's sums are added in the same order: the same values). */
 typedef struct stats_job {
-    const lam_image *img;
+    const lam_contrast_map *img;
     const uint8_t *cls, *depth;
     const uint32_t *lab;
     lam_region_stats *R;
@@ -294,7 +294,7 @@ static void stats_walk(size_t begin, size_t end, size_t slice, void *vjob)
         }
 }
 
-void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
+void lam__region_statistics(const lam_contrast_map *img, const uint8_t *cls, const uint32_t *lab,
                             const uint8_t *depth, lam_region_stats *R, uint32_t m,
                             size_t threads)
 {
@@ -315,7 +315,7 @@ void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint
     free(job.sums_12);
 }
 
-void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const uint32_t *lab,
+void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls, const uint32_t *lab,
                                const uint8_t *depth, uint32_t l, const size_t box[4],
                                lam_region_stats *r)
 {
@@ -333,7 +333,7 @@ void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const u
     }
 }
 
-lam_status lam_segment_regions(const lam_image *img, const lam_segment_options *opt,
+lam_status lam_segment_regions(const lam_contrast_map *img, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err)
 {
     size_t w = seg->width, h = seg->height;

@@ -64,7 +64,7 @@ static int side_mean(const lam_segmentation *seg, uint32_t l, size_t channels, d
 
 /* The side whose mean pixel k is nearest (the first of equals), 0 for
  * the substrate or none. */
-static uint32_t owner_of(const lam_image *contrast, size_t channels, const lam_segmentation *seg,
+static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels, const lam_segmentation *seg,
                          size_t x, size_t y)
 {
     size_t k = y * seg->width + x;
@@ -77,7 +77,7 @@ static uint32_t owner_of(const lam_image *contrast, size_t channels, const lam_s
         if (!side_mean(seg, s[i].label, channels, m))
             continue;
         for (size_t c = 0; c < channels; c++)
-            d += (contrast->plane[c][k] - m[c]) * (contrast->plane[c][k] - m[c]);
+            d += (lam_contrast_value(contrast, c, k) - m[c]) * (lam_contrast_value(contrast, c, k) - m[c]);
         if (d < best)
             best = d, owner = s[i].label;
     }
@@ -87,7 +87,7 @@ static uint32_t owner_of(const lam_image *contrast, size_t channels, const lam_s
 /* Rows are counted side by side, each slice into counts of its own
  * (whole numbers: their sum is the same in any order). */
 typedef struct edge_job {
-    const lam_image *contrast;
+    const lam_contrast_map *contrast;
     size_t channels;
     lam_segmentation *seg;
     size_t *count; /* per slice, seg->count each; NULL: one slice, into the regions */
@@ -111,7 +111,7 @@ static void edge_rows(size_t y0, size_t y1, size_t slice, void *vjob)
         }
 }
 
-void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
+void lam_segment_edge_areas(const lam_contrast_map *contrast, size_t channels, size_t threads,
                             lam_segmentation *seg)
 {
     size_t n = seg->count, slices = lam_parallel_slices(seg->height, threads);

@@ -22,9 +22,10 @@
 #define FILE_STEP_SUBSTRATE_JPEG 2.0 /* ... 2 in a JPEG, whose blocks lose the dither */
 
 typedef struct edge_ctx {
-    const lam_image *img;
+    const lam_contrast_map *img;
     size_t channels;
     float t2[3], t4[3]; /* per channel: change across 2 and across 4 pixels */
+    int32_t s2[3], s4[3]; /* the same in fixed-point steps, rounded down (fixed_threshold) */
     uint8_t *cls;
     int failed;
     int bright;         /* scale the thresholds with the brightness (bright_scaling) */
@@ -37,26 +38,44 @@ static float bright_factor(float contrast)
     return contrast < 0 ? sqrtf(1 - contrast) : 1.0f;
 }
 
+/* A contrast threshold t >= 0 in the map's steps, rounded down: a change
+ * of n steps (a whole number) exceeds t exactly when n exceeds this, since
+ * n / LAM_CONTRAST_UNIT > t means n > t LAM_CONTRAST_UNIT, and for a whole
+ * n that is n > floor(t LAM_CONTRAST_UNIT). Beyond the map's range: never. */
+static int32_t fixed_threshold(float t)
+{
+    double s = floor((double)t * LAM_CONTRAST_UNIT);
+    return s < 65535 ? (int32_t)s : 65535;
+}
+
 /* One inner row's test for one channel, branch-free so that it runs on
  * vector units: acc[x] becomes non-zero where a change exceeds t2 across
- * two pixels or t4 across four, along the row or the column. */
-static void edge_test(const float *restrict p, size_t w, float t2, float t4, int32_t *restrict acc)
+ * two pixels or t4 across four, along the row or the column, in whole
+ * steps of the map (s2, s4: fixed_threshold; the same decisions as in
+ * contrast units, at integer cost). */
+static void edge_test(const uint16_t *restrict q, size_t w, int32_t s2, int32_t s4,
+                      int32_t *restrict acc)
 {
-    for (size_t x = 2; x + 2 < w; x++)
-        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2) | (fabsf(p[x + w] - p[x - w]) > t2) |
-                  (fabsf(p[x + 2] - p[x - 2]) > t4) | (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4);
+    for (size_t x = 2; x + 2 < w; x++) {
+        int32_t h1 = (int32_t)q[x + 1] - q[x - 1], v1 = (int32_t)q[x + w] - q[x - w];
+        int32_t h2 = (int32_t)q[x + 2] - q[x - 2], v2 = (int32_t)q[x + 2 * w] - q[x - 2 * w];
+        acc[x] |= (abs(h1) > s2) | (abs(v1) > s2) | (abs(h2) > s4) | (abs(v2) > s4);
+    }
 }
 
 /* The same with bright_scaling (crystals whose flakes outshine the
  * substrate): both thresholds grow by the pixel's bright_factor. */
-static void edge_test_bright(const float *restrict p, size_t w, float t2, float t4,
+static void edge_test_bright(const uint16_t *restrict q, size_t w, float t2, float t4,
                              int32_t *restrict acc)
 {
     for (size_t x = 2; x + 2 < w; x++) {
-        float b = bright_factor(p[x]);
-        acc[x] |= (fabsf(p[x + 1] - p[x - 1]) > t2 * b) | (fabsf(p[x + w] - p[x - w]) > t2 * b) |
-                  (fabsf(p[x + 2] - p[x - 2]) > t4 * b) |
-                  (fabsf(p[x + 2 * w] - p[x - 2 * w]) > t4 * b);
+        float b = bright_factor(lam_contrast_of(q[x]));
+        float l1 = lam_contrast_of(q[x - 1]), r1 = lam_contrast_of(q[x + 1]);
+        float u1 = lam_contrast_of(q[x - w]), d1 = lam_contrast_of(q[x + w]);
+        float l2 = lam_contrast_of(q[x - 2]), r2 = lam_contrast_of(q[x + 2]);
+        float u2 = lam_contrast_of(q[x - 2 * w]), d2 = lam_contrast_of(q[x + 2 * w]);
+        acc[x] |= (fabsf(r1 - l1) > t2 * b) | (fabsf(d1 - u1) > t2 * b) |
+                  (fabsf(r2 - l2) > t4 * b) | (fabsf(d2 - u2) > t4 * b);
     }
 }
 
@@ -74,8 +93,10 @@ static void edge_row(const edge_ctx *e, size_t y, int32_t *acc, uint8_t *out)
     }
     memset(acc, 0, w * sizeof *acc);
     for (size_t c = 0; c < e->channels; c++)
-        (e->bright ? edge_test_bright : edge_test)(e->img->plane[c] + y * w, w, e->t2[c],
-                                                   e->t4[c], acc);
+        if (e->bright)
+            edge_test_bright(e->img->plane[c] + y * w, w, e->t2[c], e->t4[c], acc);
+        else
+            edge_test(e->img->plane[c] + y * w, w, e->s2[c], e->s4[c], acc);
     for (size_t x = 0; x < w; x++)
         out[x] = x < 2 || x + 2 >= w || acc[x] != 0;
 }
@@ -185,10 +206,10 @@ typedef struct diff_stats {
     double sigma[3], p95[3];
 } diff_stats;
 
-static int near_zero(const lam_image *img, size_t channels, const double *zero, size_t k)
+static int near_zero(const lam_contrast_map *img, size_t channels, const double *zero, size_t k)
 {
     for (size_t c = 0; c < channels; c++)
-        if (fabsf(img->plane[c][k]) > zero[c])
+        if (fabsf(lam_contrast_value(img, c, k)) > zero[c])
             return 0;
     return 1;
 }
@@ -224,7 +245,7 @@ static void count_sample(diff_hist *H, size_t l, size_t c, float v)
 /* One sample: the differences across pixel k at 'lag' (lag l + 1) in every
  * channel, when both ends are near zero contrast and inside the row
  * (x = k % w). */
-static void sample_difference(const lam_image *img, const double *zero, size_t k, size_t x,
+static void sample_difference(const lam_contrast_map *img, const double *zero, size_t k, size_t x,
                               size_t l, diff_hist *H)
 {
     size_t w = img->width, lag = l + 1;
@@ -232,14 +253,14 @@ static void sample_difference(const lam_image *img, const double *zero, size_t k
         !near_zero(img, H->channels, zero, k + lag))
         return;
     for (size_t c = 0; c < H->channels; c++)
-        count_sample(H, l, c, fabsf(img->plane[c][k + lag] - img->plane[c][k - lag]));
+        count_sample(H, l, c, fabsf(lam_contrast_value(img, c, k + lag) - lam_contrast_value(img, c, k - lag)));
     H->m[l]++;
 }
 
 /* Both lags in one walk over samples j0..j1 - 1 (sample j at pixel
  * 1 + SAMPLE_STRIDE j; the lag-2 samples lie one pixel after the lag-1
  * samples, in the same cache lines). */
-static void sample_walk(const lam_image *img, const double *zero, size_t j0, size_t j1,
+static void sample_walk(const lam_contrast_map *img, const double *zero, size_t j0, size_t j1,
                         diff_hist *H)
 {
     size_t w = img->width, n = img->width * img->height, k = 1 + SAMPLE_STRIDE * j0;
@@ -257,7 +278,7 @@ static void sample_walk(const lam_image *img, const double *zero, size_t j0, siz
  * counting into a histogram of its own; the counts are then added into
  * H's (counts add exactly: the same histograms as one walk). */
 typedef struct sample_job {
-    const lam_image *img;
+    const lam_contrast_map *img;
     const double *zero;
     diff_hist *slice; /* per slice: H's choices, its own counts */
 } sample_job;
@@ -275,7 +296,7 @@ static size_t pass_bins(int pass)
     return 2 * 3 * HALF_BINS * (pass == 1 ? 1 : QUANTILES);
 }
 
-static int sample_pass(const lam_image *img, const double *zero, size_t threads, diff_hist *H)
+static int sample_pass(const lam_contrast_map *img, const double *zero, size_t threads, diff_hist *H)
 {
     size_t bins = pass_bins(H->pass);
     size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;
@@ -310,7 +331,7 @@ static size_t rank_of(size_t q, size_t m)
     return q == 0 ? m / 2 : m * 95 / 100;
 }
 
-static void difference_stats(const lam_image *img, size_t channels, const double *zero,
+static void difference_stats(const lam_contrast_map *img, size_t channels, const double *zero,
                              size_t threads, diff_stats out[2])
 {
     diff_hist H;
@@ -383,7 +404,7 @@ typedef struct slot {
 typedef struct merge_state {
     uint32_t *node;
     slot *slots;
-    const float *plane[3];
+    const uint16_t *plane[3];
     size_t channels;
     size_t band_slots;  /* slots reserved per band */
     double delta[3], sigma[3];
@@ -410,7 +431,7 @@ static uint32_t region_sums(const merge_state *m, uint32_t r, float sum[3])
     uint32_t s = m->node[r] & ~ROOT;
     if (s == SINGLE) {
         for (size_t c = 0; c < m->channels; c++)
-            sum[c] = m->plane[c][r];
+            sum[c] = lam_contrast_of(m->plane[c][r]);
         return 1;
     }
     for (size_t c = 0; c < m->channels; c++)
@@ -507,7 +528,7 @@ typedef struct pair_lists {
 } pair_lists;
 
 typedef struct pair_ctx {
-    const lam_image *img;
+    const lam_contrast_map *img;
     const uint8_t *cls;
     const merge_state *m;
 } pair_ctx;
@@ -521,16 +542,16 @@ static void row_buckets(const pair_ctx *p, size_t k0, size_t off, size_t n, doub
 {
     const uint8_t *restrict ca = p->cls + k0, *restrict cb = ca + off;
     for (size_t c = 0; c < p->m->channels; c++) {
-        const float *restrict pa = p->img->plane[c] + k0, *restrict pb = pa + off;
+        const uint16_t *restrict pa = p->img->plane[c] + k0, *restrict pb = pa + off;
         double d = p->m->delta[c];
         if (c == 0)
             for (size_t x = 0; x < n; x++) {
-                double q = fabs((double)(pa[x] - pb[x])) / d;
+                double q = fabs((double)(lam_contrast_of(pa[x]) - lam_contrast_of(pb[x]))) / d;
                 f[x] = q > 0.0 ? q : 0.0;
             }
         else
             for (size_t x = 0; x < n; x++) {
-                double q = fabs((double)(pa[x] - pb[x])) / d;
+                double q = fabs((double)(lam_contrast_of(pa[x]) - lam_contrast_of(pb[x]))) / d;
                 f[x] = q > f[x] ? q : f[x];
             }
     }
@@ -903,7 +924,7 @@ static int merge_pairs(band_ctx *x, size_t threads)
 
 /* The regions of the provisional pixels into seg->label (the union-find
  * runs in it and leaves the region ids). */
-static lam_status grow(const lam_image *img, size_t channels, const double *delta,
+static lam_status grow(const lam_contrast_map *img, size_t channels, const double *delta,
                        const double *sigma, int bright, lam_segmentation *seg, size_t threads,
                        uint32_t *regions, lam_error *err)
 {
@@ -952,7 +973,7 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
 
 /* One cell's mean per channel (NaN unless every pixel is near zero); the
  * zero test is made once per pixel for all channels. */
-static void cell_mean(const lam_image *img, size_t channels, const double *zero, size_t cx,
+static void cell_mean(const lam_contrast_map *img, size_t channels, const double *zero, size_t cx,
                       size_t cy, float *mean)
 {
     size_t w = img->width;
@@ -963,14 +984,14 @@ static void cell_mean(const lam_image *img, size_t channels, const double *zero,
             size_t k = y * w + x;
             ok &= near_zero(img, channels, zero, k);
             for (size_t c = 0; c < channels; c++)
-                sum[c] += img->plane[c][k];
+                sum[c] += lam_contrast_value(img, c, k);
         }
     for (size_t c = 0; c < 3; c++)
         mean[c] = ok ? (float)(sum[c] / (CELL * CELL)) : NAN;
 }
 
 typedef struct cell_job {
-    const lam_image *img;
+    const lam_contrast_map *img;
     size_t channels, cw;
     const double *zero;
     float *mean;
@@ -985,7 +1006,7 @@ static void cell_rows(size_t begin, size_t end, size_t slice, void *vctx)
             cell_mean(j->img, j->channels, j->zero, cx, cy, &j->mean[(cy * j->cw + cx) * 3]);
 }
 
-static void cell_texture(const lam_image *img, size_t channels, const double *zero,
+static void cell_texture(const lam_contrast_map *img, size_t channels, const double *zero,
                          size_t threads, double *out)
 {
     size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
@@ -1026,7 +1047,7 @@ static void cell_texture(const lam_image *img, size_t channels, const double *ze
  * merge when their means differ by less than delta - a sixth of a monolayer
  * step, or the artefacts (JPEG block steps) when they are larger - plus
  * three standard errors of the pixel noise 'sigma'. */
-static void thresholds(const lam_image *img, size_t channels, const double *c1,
+static void thresholds(const lam_contrast_map *img, size_t channels, const double *c1,
                        const double noise[3], size_t threads, edge_ctx *ec, double delta[3],
                        double sigma[3])
 {
@@ -1044,13 +1065,15 @@ static void thresholds(const lam_image *img, size_t channels, const double *c1,
         double step = c < channels ? fabs(c1[c]) : 0;
         ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
         ec->t4[c] = (float)fmax(1.5 * EDGE_STEP_FRACTION * step, 3 * d2.p95[c]);
+        ec->s2[c] = fixed_threshold(ec->t2[c]);
+        ec->s4[c] = fixed_threshold(ec->t4[c]);
         sigma[c] = d1.sigma[c] / 1.4142; /* a difference has twice the variance */
         delta[c] = fmax(fmax(JOIN_STEP_FRACTION * step, 0.75 * d1.p95[c]), 1e-4);
         delta[c] = fmax(delta[c], 1.5 * cells[c]);
     }
 }
 
-lam_status lam_segment_uniform(const lam_image *img, size_t channels, const double *c1,
+lam_status lam_segment_uniform(const lam_contrast_map *img, size_t channels, const double *c1,
                                const double noise[3], const double scatter[3],
                                const lam_segment_options *opt, lam_segmentation *seg,
                                lam_error *err)
@@ -1075,7 +1098,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
     if (st)
         return st;
     /* a JPEG's colour ringing can make a small flake transition throughout */
-    if (lam_image_block_coded(img) && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
+    if (img->block_coded && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the transition depth");
     uint32_t m = 0;
     if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))
@@ -1097,7 +1120,7 @@ lam_status lam_segment_uniform(const lam_image *img, size_t channels, const doub
         step1 = fmax(step1, fabs(c1[c]));
     if (opt->faint_step > 0)
         step1 = fmin(step1, opt->faint_step);
-    double steps = lam_image_block_coded(img) ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
+    double steps = img->block_coded ? FILE_STEP_SUBSTRATE_JPEG : FILE_STEP_SUBSTRATE;
     for (size_t c = 0; c < 3; c++)
         tol[c] = fmax(fmax(fmax(SUBSTRATE_FRACTION * step1, SUBSTRATE_MIN), 4 * scatter[c]),
                       steps * opt->file_step[c]);

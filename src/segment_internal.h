@@ -13,7 +13,7 @@ uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height,
 
 /* Statistics of regions 1..m of a label map (R has m entries), on up to
  * two of 'threads' (the same values for any count). */
-void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint32_t *label,
+void lam__region_statistics(const lam_contrast_map *img, const uint8_t *cls, const uint32_t *label,
                             const uint8_t *depth, lam_region_stats *R, uint32_t m,
                             size_t threads);
 
@@ -23,7 +23,7 @@ void lam__region_statistics(const lam_image *img, const uint8_t *cls, const uint
  * lam__region_statistics_in reads only those into r (cleared first). */
 void lam__region_depth(const uint32_t *label, size_t width, size_t height, uint32_t l,
                        const size_t box[4], uint8_t *depth);
-void lam__region_statistics_in(const lam_image *img, const uint8_t *cls, const uint32_t *label,
+void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls, const uint32_t *label,
                                const uint8_t *depth, uint32_t l, const size_t box[4],
                                lam_region_stats *r);
 

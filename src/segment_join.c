@@ -24,7 +24,7 @@
 #define JOIN_RUNS 4 /* straight runs across the band needed to join two regions */
 
 typedef struct join_ctx {
-    const lam_image *img;
+    const lam_contrast_map *img;
     lam_segmentation *seg;
     const int *key;     /* per region (index id-1): joinable when >= 0 and equal */
     uint32_t *parent;   /* union-find over region ids 0..count */
@@ -280,7 +280,7 @@ static void fill_run(const fill_job *f, uint32_t left, size_t first, size_t step
         size_t q = first + t * step;
         int close = 1;
         for (size_t c = 0; c < f->channels && close; c++)
-            close = fabs(f->j->img->plane[c][q] - mean[c]) <= f->fill[c];
+            close = fabs(lam_contrast_value(f->j->img, c, q) - mean[c]) <= f->fill[c];
         if (close)
             seg->label[q] = left, seg->cls[q] = seg->regions[left - 1].cls;
     }
@@ -434,7 +434,7 @@ static uint32_t renumber(join_ctx *j, uint32_t *map, new_region *nr)
  * kept. The others are measured again within their boxes, each on its
  * own, on the caller's threads. */
 typedef struct restat_job {
-    const lam_image *img;
+    const lam_contrast_map *img;
     const lam_segmentation *seg; /* renumbered */
     const new_region *nr;
     const uint32_t *redo; /* new ids - 1 to measure */
@@ -452,7 +452,7 @@ static void restat_one(size_t i, void *vjob)
                               &job->R[k]);
 }
 
-static lam_status restat(const lam_image *img, lam_segmentation *seg, uint32_t m,
+static lam_status restat(const lam_contrast_map *img, lam_segmentation *seg, uint32_t m,
                          const new_region *nr, size_t threads, lam_error *err)
 {
     lam_region_stats *R = calloc(m ? m : 1, sizeof *R);
@@ -551,7 +551,7 @@ static int hole_joins(hole_ctx *h, uint32_t r, size_t n, size_t area)
             return 0; /* substrate, or a region of another confident count */
         int ok = 1;
         for (size_t c = 0; c < h->channels && ok; c++)
-            ok = fabs(h->j->img->plane[c][q] - h->mean[r - 1][c]) <= h->fill[c];
+            ok = fabs(lam_contrast_value(h->j->img, c, q) - h->mean[r - 1][c]) <= h->fill[c];
         close += (size_t)ok;
     }
     return (double)close >= HOLE_CLOSE_FRACTION * (double)n;
@@ -631,7 +631,7 @@ static lam_status fill_holes(join_ctx *j, const double (*mean)[3], size_t channe
     return st;
 }
 
-lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
+lam_status lam_segment_join(const lam_contrast_map *contrast, size_t channels, const int *key,
                             const double fill[3], size_t threads, lam_segmentation *seg,
                             uint32_t *map, size_t *joined, lam_error *err)
 {

@@ -334,7 +334,7 @@ static void join_keys(const lam_analysis *a, int *key)
 /* Join the parts of one flake (lam_segment_join) and measure the regions
  * again. Band pixels join within 0.02 of the region's contrast plus the
  * pixel noise, per channel. */
-static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_error *err)
+static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, lam_error *err)
 {
     size_t n = a->count, joined = 0;
     int *key = malloc((n ? n : 1) * sizeof *key);
@@ -358,7 +358,7 @@ static lam_status join_parts(lam_analysis *a, const lam_image *contrast, lam_err
 
 /* Every region's posterior under the table at the oxide's nodes, the parts
  * of one flake joined, and the joined regions' posteriors. */
-static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model *model,
+static lam_status regions(lam_analysis *a, const lam_contrast_map *contrast, lam_model *model,
                           profile_ctx *x, double ox, double sd, lam_error *err)
 {
     static const double gx[3] = {-1.224744871391589, 0, 1.224744871391589};
@@ -391,7 +391,7 @@ static lam_status regions(lam_analysis *a, const lam_image *contrast, lam_model 
     return st;
 }
 
-lam_status lam_thickness_analyze(lam_analysis *a, const lam_image *contrast, const lam_setup *s,
+lam_status lam_thickness_analyze(lam_analysis *a, const lam_contrast_map *contrast, const lam_setup *s,
                                  lam_model *model, double oxide_tolerance_nm, lam_error *err)
 {
     profile_ctx x;

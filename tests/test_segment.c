@@ -44,12 +44,12 @@ static void add_noise(lam_image *img)
  * of JPEG-like error, its halves offset by a fifth of a step in red; inside
  * it a hole to the substrate, a bilayer island and a residue speck; flake
  * B, a monolayer 20 px away. */
-static lam_image *scene(void)
+static int scene(lam_contrast_map *out)
 {
     lam_image *img = NULL;
     lam_error err;
     if (lam_image_alloc(W, H, &img, &err))
-        return NULL;
+        return 0;
     memset(img->clip_bits, 0, H * img->clip_stride);
     const double zero[3] = {0, 0, 0}, bi[3] = {0.12, 0.21, 0.02};
     const double shifted[3] = {MONO[0] + 0.012, MONO[1], MONO[2]};
@@ -64,7 +64,9 @@ static lam_image *scene(void)
     paint(img, 60, 100, 63, 103, speck); /* residue */
     paint(img, 180, 40, 225, 120, MONO); /* flake B */
     add_noise(img);
-    return img;
+    lam_contrast_compact(img, out, 1);
+    lam_image_free(img);
+    return 1;
 }
 
 static int key_of(const lam_region_stats *r)
@@ -108,11 +110,13 @@ static void join_threads(void)
     paint(img, 20, 51, 200, 55, cut);
     paint(img, 20, 104, 200, 108, cut);
     add_noise(img);
+    lam_contrast_map map;
+    lam_contrast_compact(img, &map, 3);
     lam_segmentation *one = NULL, *three = NULL;
     lam_segment_options so = lam_segment_options_default();
     double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
     int ok = !lam_segmentation_alloc(W, H, &one, &err) &&
-             !lam_segment_uniform(img, 3, MONO, noise, scatter, &so, one, &err) &&
+             !lam_segment_uniform(&map, 3, MONO, noise, scatter, &so, one, &err) &&
              (three = copy_of(one)) != NULL;
     size_t n = one ? one->count : 0, j1 = 0, j3 = 0;
     int *key = malloc((n ? n : 1) * sizeof *key);
@@ -121,8 +125,8 @@ static void join_threads(void)
     for (size_t i = 0; ok && i < n; i++)
         key[i] = key_of(&one->regions[i]);
     ok = ok &&
-         !lam_segment_join(img, 3, key, (double[3]){0.04, 0.04, 0.04}, 1, one, m1, &j1, &err) &&
-         !lam_segment_join(img, 3, key, (double[3]){0.04, 0.04, 0.04}, 3, three, m3, &j3, &err);
+         !lam_segment_join(&map, 3, key, (double[3]){0.04, 0.04, 0.04}, 1, one, m1, &j1, &err) &&
+         !lam_segment_join(&map, 3, key, (double[3]){0.04, 0.04, 0.04}, 3, three, m3, &j3, &err);
     if (check_true(ok, "joined with 1 and 3 threads")) {
         check_true(j1 >= 1, "the cut flake's parts joined (%zu)", j1);
         check_true(j1 == j3 && one->count == three->count && !memcmp(m1, m3, n * sizeof *m1) &&
@@ -130,8 +134,8 @@ static void join_threads(void)
                        !memcmp(one->cls, three->cls, (size_t)W * H) &&
                        !memcmp(one->regions, three->regions, one->count * sizeof *one->regions),
                    "the same regions, labels and classes with 3 threads as with 1");
-        lam_segment_edge_areas(img, 3, 1, one);
-        lam_segment_edge_areas(img, 3, 3, three);
+        lam_segment_edge_areas(&map, 3, 1, one);
+        lam_segment_edge_areas(&map, 3, 3, three);
         size_t same = 0, edges = 0;
         for (size_t i = 0; i < one->count && i < three->count; i++)
             same += one->regions[i].edge == three->regions[i].edge, edges += one->regions[i].edge;
@@ -143,6 +147,7 @@ static void join_threads(void)
     free(m3);
     lam_segmentation_free(one);
     lam_segmentation_free(three);
+    lam_contrast_map_free(&map);
     lam_image_free(img);
 }
 
@@ -200,13 +205,15 @@ static void wide_image(void)
         for (size_t x = 0; x < w; x++)
             for (int c = 0; c < 3; c++)
                 img->plane[c][y * w + x] = x >= x0 && x < x1 ? (float)MONO[c] : 0.0f;
+    lam_contrast_map map;
+    lam_contrast_compact(img, &map, 2);
     lam_segment_options so = lam_segment_options_default();
     double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
     int ok = 1;
     for (size_t t = 0; t < 2; t++) {
         so.threads = t + 1;
         ok = ok && !lam_segmentation_alloc(w, h, &seg[t], &err) &&
-             !lam_segment_uniform(img, 3, MONO, noise, scatter, &so, seg[t], &err);
+             !lam_segment_uniform(&map, 3, MONO, noise, scatter, &so, seg[t], &err);
     }
     if (check_true(ok, "wide image segmented with 1 and 2 threads")) {
         uint32_t l = seg[0]->label[10 * w + 20000];
@@ -219,6 +226,7 @@ static void wide_image(void)
     }
     lam_segmentation_free(seg[0]);
     lam_segmentation_free(seg[1]);
+    lam_contrast_map_free(&map);
     lam_image_free(img);
 }
 
@@ -227,8 +235,8 @@ int main(void)
     check_begin("test_segment");
     test_rescue_cores();
     wide_image();
-    lam_image *img = scene();
-    if (!check_true(img != NULL, "scene allocated"))
+    lam_contrast_map scene_map, *img = &scene_map;
+    if (!check_true(scene(img), "scene allocated"))
         return check_summary();
     lam_segmentation *seg = NULL;
     lam_error err;
@@ -264,7 +272,7 @@ int main(void)
     free(key);
     free(map);
     lam_segmentation_free(seg);
-    lam_image_free(img);
+    lam_contrast_map_free(img);
     join_threads();
     return check_summary();
 }

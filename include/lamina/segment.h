@@ -18,7 +18,7 @@
 #include <stddef.h>
 #include <stdint.h>
 #include "lamina/error.h"
-#include "lamina/image.h"
+#include "lamina/contrast.h"
 
 #define LAM_CLASS_SUBSTRATE 0
 #define LAM_CLASS_THICK 254
@@ -107,7 +107,7 @@ void lam_segmentation_free(lam_segmentation *s);
  * core as a region (segment_cores.c). Layer counts
  * are then decided per region (lamina/infer.h), so a flake is one region
  * however the model's ladder is off. */
-lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const double *c1,
+lam_status lam_segment_uniform(const lam_contrast_map *contrast, size_t channels, const double *c1,
                                const double noise[3], const double scatter[3],
                                const lam_segment_options *opt, lam_segmentation *seg,
                                lam_error *err);
@@ -128,13 +128,13 @@ lam_status lam_segment_uniform(const lam_image *contrast, size_t channels, const
  * result is the same for any count). LAM_ENOMEM only. The caller
  * re-measures and re-infers when *joined or holes changed the statistics
  * (compare areas, or simply always). */
-lam_status lam_segment_join(const lam_image *contrast, size_t channels, const int *key,
+lam_status lam_segment_join(const lam_contrast_map *contrast, size_t channels, const int *key,
                             const double fill[3], size_t threads, lam_segmentation *seg,
                             uint32_t *map, size_t *joined, lam_error *err);
 
 /* Connected regions of non-substrate classes with their statistics (used
  * for label maps, whose classes are given). */
-lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_options *opt,
+lam_status lam_segment_regions(const lam_contrast_map *contrast, const lam_segment_options *opt,
                                lam_segmentation *seg, lam_error *err);
 
 /* Give each transition pixel (in no region, not substrate) to the side
@@ -144,7 +144,7 @@ lam_status lam_segment_regions(const lam_image *contrast, const lam_segment_opti
  * pixels wide, so without it a flake's area would depend on the
  * magnification. Rows are shared out to 'threads' threads (the counts are
  * the same for any number). */
-void lam_segment_edge_areas(const lam_image *contrast, size_t channels, size_t threads,
+void lam_segment_edge_areas(const lam_contrast_map *contrast, size_t channels, size_t threads,
                             lam_segmentation *seg);
 
 /* A region's area in pixels up to its half-contrast edge: area + edge. */

@@ -51,6 +51,7 @@
 #define LAMINA_THICKNESS_H
 
 #include <stddef.h>
+#include "lamina/contrast.h"
 #include "lamina/error.h"
 #include "lamina/estimate.h"
 #include "lamina/image.h"
@@ -162,7 +163,7 @@ void lam_thickness_log_evidence_scales(const lam_thickness_table *t,
  * (lam_segment_join) and measured again. The oxide audit passes when the
  * estimate is within oxide_tolerance_nm of nominal. */
 struct lam_analysis;
-lam_status lam_thickness_analyze(struct lam_analysis *a, const lam_image *contrast,
+lam_status lam_thickness_analyze(struct lam_analysis *a, const lam_contrast_map *contrast,
                                  const lam_setup *s, lam_model *model, double oxide_tolerance_nm,
                                  lam_error *err);
 
