@@ -108,6 +108,7 @@ lam_status lam_analysis_display(lam_analysis *a, lam_error *err)
         return lam_error_set(err, LAM_ENOMEM, "cannot read the kept input from memory");
     lam_load_options o = lam_load_options_default();
     o.display8_only = 1;
+    o.display8_xrgb_room = 1; /* the annotated picture widens it in place */
     o.max_pixels = a->width * a->height;
     lam_image *img = NULL;
     lam_status st = lam_image_load_stream(mem, a->file, &o, &img, err);

@@ -67,7 +67,9 @@ static look region_look(const lam_analysis *a, size_t i)
 }
 
 /* The 3-byte display in place to cairo's 4-byte xRGB words (and back), so
- * the picture costs one extra byte per pixel, not a second copy. */
+ * the picture costs one extra byte per pixel, not a second copy. A picture
+ * decoded again from a kept JPEG has the room already
+ * (lam_load_options.display8_xrgb_room): the realloc stays in place. */
 static uint32_t *expand_display(lam_analysis *a)
 {
     size_t n = a->width * a->height;

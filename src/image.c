@@ -17,6 +17,7 @@ lam_load_options lam_load_options_default(void)
     o.max_pixels = LAM_IMAGE_DEFAULT_MAX_PIXELS;
     o.keep_display8 = 0;
     o.display8_only = 0;
+    o.display8_xrgb_room = 0;
     return o;
 }
 
@@ -82,14 +83,14 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
     return LAM_OK;
 }
 
-lam_status lam_image_alloc_display8(size_t width, size_t height, lam_image **out,
+lam_status lam_image_alloc_display8(size_t width, size_t height, int xrgb_room, lam_image **out,
                                     lam_error *err)
 {
     lam_status st = lam_image_check_size(width, height, SIZE_MAX / 16, "image", err);
     if (st)
         return st;
     lam_image *img = image_header(width, height);
-    uint8_t *codes = lam_big_malloc(width * height * 3);
+    uint8_t *codes = lam_big_malloc(width * height * (xrgb_room ? 4 : 3));
     if (!img || !codes) {
         free(img);
         free(codes);

@@ -15,6 +15,9 @@
 #include <stdlib.h>
 #include <string.h>
 #include <gsl/gsl_errno.h>
+#ifdef __GLIBC__
+#include <malloc.h>
+#endif
 #include <cjson/cJSON.h>
 
 static unsigned seed = 2385;
@@ -324,6 +327,10 @@ static void check_display_kept(lam_analysis *a, const char *path)
     check_true(lam_analysis_display(a, &err) == LAM_OK && a->display &&
                    !memcmp(a->display, ref->display8, n),
                "the picture decoded from the kept bytes is the image analysed");
+#ifdef __GLIBC__
+    check_true(a->display && malloc_usable_size(a->display) >= n / 3 * 4,
+               "it has room to become the annotated picture's 32-bit pixels in place");
+#endif
     lam_analysis_drop_pictures(a);
     check_int(lam_analysis_display(a, &err), LAM_EINVAL, "no picture once dropped");
     lam_image_free(ref);

@@ -116,6 +116,11 @@ typedef struct lam_load_options {
                             * other files give LAM_EINVAL. For redrawing a picture of a
                             * file already analysed, at a fraction of a full load's
                             * memory and time */
+    int display8_xrgb_room; /* with display8_only: allocate 4 bytes per pixel (the
+                             * codes fill the first 3 width*height), so that a
+                             * picture to draw on can be widened in place to
+                             * cairo's 32-bit pixels, without a move that takes
+                             * fresh memory (lamina/report.h) */
 } lam_load_options;
 
 /* 1 when pixel (x, y) was saturated in the file (any channel at its
@@ -135,8 +140,9 @@ lam_load_options lam_load_options_default(void);
 lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err);
 
 /* The same without planes or clip mask: display8 gets width*height*3
- * bytes (not initialised), for a decode of the 8-bit codes alone. */
-lam_status lam_image_alloc_display8(size_t width, size_t height, lam_image **out,
+ * bytes (not initialised), for a decode of the 8-bit codes alone; with
+ * xrgb_room width*height*4 (lam_load_options.display8_xrgb_room). */
+lam_status lam_image_alloc_display8(size_t width, size_t height, int xrgb_room, lam_image **out,
                                     lam_error *err);
 
 /* Release an image; img may be NULL. */

@@ -134,6 +134,8 @@ static int analyze_batch(const lam_inputs *in, const lam_setup *s, const lam_pos
     A.bo.setup_hash = setup_hash;
     A.bo.on_image = on_image;
     A.t0 = lam_clock_seconds();
+    if (in->count == 1)
+        cli_one_malloc_arena();
     lam_batch b;
     lam_error err;
     lam_error_clear(&err);

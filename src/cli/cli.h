@@ -126,6 +126,16 @@ int cli_exit_code(lam_status status);
  * cli_exit_code(err->status). */
 int cli_report(const lam_error *err, const char *fallback_file);
 
+/* All threads allocate from one malloc arena (glibc; elsewhere nothing),
+ * for a run of one image: glibc gives each thread an arena of its own,
+ * whose pages are fresh although the main thread has just freed the
+ * analysis' buffers, and the annotated picture's encoder on its thread
+ * raised a 12 MP image's peak by ~14 MB (189 -> 175 MB). Not for a batch,
+ * whose images run side by side: sharing one arena's lock slowed its two
+ * threads from 4.5 to 6.0 s (bench/bench_batch.sh). Call before any
+ * thread starts. */
+void cli_one_malloc_arena(void);
+
 /* Parse a finite number in [lo, hi]; 0 on success, else prints a usage
  * error naming the option and returns -1. */
 int cli_parse_double(const char *command, const char *option, const char *text,

@@ -3,6 +3,9 @@
 
 #include <stdarg.h>
 #include <string.h>
+#ifdef __GLIBC__
+#include <malloc.h>
+#endif
 
 int cli_quiet, cli_verbose;
 
@@ -86,4 +89,11 @@ int cli_positions_need_scale(const char *command, const char *positions, const l
         return CLI_OK;
     return cli_usage_error(command, "--positions needs the pixel size: give --um-per-px or "
                                     "um_per_px in the setup");
+}
+
+void cli_one_malloc_arena(void)
+{
+#ifdef __GLIBC__
+    (void)mallopt(M_ARENA_MAX, 1);
+#endif
 }
