@@ -296,12 +296,27 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
     }
 }
 
+/* Regions smaller than this share of the image inform no shared fit
+ * (beyond lam_region_measure's own minimum of interior pixels). A JPEG's
+ * 8 x 8 blocks and the noise cut pieces off large flakes, and their number
+ * grows with the pixels a flake covers, while the flakes in a field of
+ * view do not: at 28-48 MP hundreds of pieces outvoted the few flakes and
+ * the fit read a 90 nm chip as 270 nm, a 287 nm one as 119 nm
+ * (docs/performance.md). 2e-5 is 6 px of a 640 x 480 image (no change
+ * there), 240 of a 12 MP one, 960 of a 48 MP one. The pieces are still
+ * labelled; they only do not steer the oxide and the response. */
+#define FIT_MIN_IMAGE_SHARE 2e-5
+
 void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads)
 {
     a->count = a->seg->count;
-    for (size_t i = 0; i < a->count; i++)
+    double least = FIT_MIN_IMAGE_SHARE * (double)(a->width * a->height);
+    for (size_t i = 0; i < a->count; i++) {
         lam_region_measure(&a->seg->regions[i], a->substrate.noise, a->substrate.kappa,
                            a->channels, &a->measured[i]);
+        if ((double)a->seg->regions[i].interior < least)
+            a->measured[i].use = 0;
+    }
     lam_segment_edge_areas(contrast, a->channels, threads, a->seg);
 }
 
@@ -444,26 +459,37 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
 }
 
-/* The joint fit of the shared parameters and the oxide. */
 /* The chip may not be the oxide the setup says (a 90 nm chip under a
- * 285 nm profile): when much of what informs the fit fits no layer count,
- * or the oxide ran to the edge of its search, the fit is repeated over
- * about one interference order each side (lambda / 2n is ~190 nm at
- * 550 nm) with a wide prior, and kept when its regions fit markedly better
- * (by WIDE_MARGIN in log-likelihood: e^10 to one). */
+ * 285 nm profile), and within one interference order (lambda / 2n is
+ * ~190 nm at 550 nm) the colours of N layers at one oxide can mimic those
+ * of about 3N at another once the response and the camera's gain are free:
+ * a 90 nm chip analysed without a setup fitted 279 nm with its 1L read as
+ * 3L at p = 1.000, and nothing in that fit looked wrong (the regions fit;
+ * the search had not run to its edge). So every fitted oxide is checked by
+ * a second fit over one order each side with a wide prior, kept when its
+ * regions fit markedly better (by WIDE_MARGIN in log-likelihood: e^10 to
+ * one). When the second fit lands as far away and is not markedly worse
+ * either, the image is warned: either oxide may be the chip's. */
 #define WIDE_HALF_NM 200.0
 #define WIDE_PRIOR_SD_NM 100.0
 #define WIDE_MARGIN 10.0
-#define WIDE_TRIGGER_SHARE 0.3
+#define DOUBT_UNMODELLED_SHARE 0.3
 
 static int needs_wide_search(const lam_analysis *a)
 {
     const lam_est_image *im = &a->estimate->image[0];
+    return im->oxide.fitted && im->regions_used;
+}
+
+/* The nominal fit is doubtful: much of what informs it fits no layer
+ * count, or its oxide ran to the edge of its search. Then a fit started at
+ * the substrate colour's oxide (a calibration's) is tried first. */
+static int nominal_doubtful(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
     const lam_estimate_options *o = &a->estimate->opt;
-    if (!im->oxide.fitted || !im->regions_used)
-        return 0;
     double off = fabs(im->oxide.value - im->oxide.prior_mean);
-    return im->unmodelled_share > WIDE_TRIGGER_SHARE ||
+    return im->unmodelled_share > DOUBT_UNMODELLED_SHARE ||
            off >= o->search_half_nm - 2 * o->search_step_nm;
 }
 
@@ -505,9 +531,10 @@ static lam_status evidence(run *r, const lam_estimate *e, double *out, lam_error
 }
 
 /* Keep candidate c instead of the analysis' estimate when its evidence
- * beats it by 'margin' (*taken). */
+ * beats it by 'margin' (*taken). *gap: the candidate's evidence minus the
+ * estimate's (may be NULL). */
 static lam_status keep_if_better(run *r, lam_estimate *c, double margin, int *taken,
-                                 lam_error *err)
+                                 double *gap, lam_error *err)
 {
     lam_analysis *a = r->a;
     double ec = 0, ea = 0;
@@ -515,6 +542,8 @@ static lam_status keep_if_better(run *r, lam_estimate *c, double margin, int *ta
     if (!st)
         st = evidence(r, a->estimate, &ea, err);
     *taken = !st && ec > ea + margin;
+    if (gap)
+        *gap = ec - ea;
     if (*taken) {
         lam_estimate_free(a->estimate);
         a->estimate = c;
@@ -545,14 +574,43 @@ static lam_status colour_start(run *r, int *taken, lam_error *err)
         return st;
     double prior = fmax(COLOUR_PRIOR_SD * sd, COLOUR_PRIOR_MIN_NM);
     st = refit(r, d, a->estimate->opt.search_half_nm, prior, &c, err);
-    return st ? st : keep_if_better(r, c, 0, taken, err);
+    return st ? st : keep_if_better(r, c, 0, taken, NULL, err);
 }
 
-static lam_status wide_search(run *r, int *taken, lam_error *err)
+/* The wide search (see WIDE_HALF_NM). After a doubtful nominal fit
+ * (nominal_doubtful) its result is kept wherever it lies when it is
+ * markedly better: the nominal fit may have stopped in a poor optimum
+ * (the crystals harness' WSe2 JPEGs). After a sound one it only looks for
+ * the chip at another interference order: a result within the nominal
+ * fit's own search is dropped, since that ground was searched with the
+ * setup's prior, which may be a measured oxide. *off: the fit kept lies
+ * beyond that search; *rival_nm: a result beyond it that was not kept but
+ * is not markedly worse either (NAN when there is none). */
+static lam_status wide_search(run *r, int doubtful, int *off, double *rival_nm, lam_error *err)
 {
+    lam_analysis *a = r->a;
     lam_estimate *w = NULL;
+    double before = a->estimate->image[0].oxide.value, half = a->estimate->opt.search_half_nm;
+    double gap = 0;
+    int taken = 0;
+    *off = 0;
+    *rival_nm = NAN;
     lam_status st = refit(r, NAN, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
-    return st ? st : keep_if_better(r, w, WIDE_MARGIN, taken, err);
+    if (st)
+        return st;
+    double found = w->image[0].oxide.value;
+    int far = fabs(found - before) > half;
+    if (!doubtful && !far) {
+        lam_estimate_free(w);
+        return LAM_OK;
+    }
+    double nominal = w->image[0].oxide.prior_mean;
+    if ((st = keep_if_better(r, w, WIDE_MARGIN, &taken, &gap, err)))
+        return st;
+    *off = taken && fabs(found - nominal) > half;
+    if (!taken && far && gap > -WIDE_MARGIN)
+        *rival_nm = found;
+    return LAM_OK;
 }
 
 /* The joint fit of the shared parameters and the oxide. */
@@ -560,9 +618,15 @@ static lam_status fit_stage(run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     int wide = 0, colour = 0;
+    double rival_nm = NAN;
     lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
-    if (!st && needs_wide_search(a) && !(st = colour_start(r, &colour, err)))
-        st = wide_search(r, &wide, err);
+    if (!st && needs_wide_search(a)) {
+        int doubtful = nominal_doubtful(a);
+        if (doubtful)
+            st = colour_start(r, &colour, err);
+        if (!st)
+            st = wide_search(r, doubtful, &wide, &rival_nm, err);
+    }
     /* material hook (issue 14): a TMD's other published n,k, kept when they
      * explain the regions better (lamina/nksource.h) */
     if (!st)
@@ -587,6 +651,13 @@ static lam_status fit_stage(run *r, lam_error *err)
                          "each side, they fit %.1f +- %.1f nm: check the chip and the setup; "
                          "the layer counts use the fitted value",
                          a->oxide.nominal, WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
+    if (isfinite(rival_nm))
+        lam_warnings_add(&a->warnings, "oxide-ambiguous",
+                         "the flakes fit %.1f nm of SiO2 and nearly as well %.1f nm (about one "
+                         "interference order apart, where N layers look like others): the "
+                         "layer counts assume %.1f nm; confirm the chip's oxide (a setup, its "
+                         "colour, or a calibration)",
+                         a->oxide.estimate, rival_nm, a->oxide.estimate);
     MARK(r, LAM_T_OXIDE);
     return LAM_OK;
 }

@@ -69,8 +69,10 @@ static void score_fermi(const synth_object *ob, const lam_region_result *r, robu
 /* A warning that tells the reader not to trust the counts as they stand. */
 static int doubted(const lam_analysis *a)
 {
-    static const char *const codes[] = {"poor-fit",   "two-readings",    "oxide-off-nominal",
-                                        "monochrome", "pooled-readings", "crystal-camera-unknown"};
+    static const char *const codes[] = {"poor-fit",        "two-readings",
+                                        "oxide-off-nominal", "oxide-ambiguous",
+                                        "monochrome",      "pooled-readings",
+                                        "crystal-camera-unknown"};
     for (size_t k = 0; k < sizeof codes / sizeof codes[0]; k++)
         if (lam_warnings_find(&a->warnings, codes[k]))
             return 1;
@@ -140,7 +142,8 @@ static void score_oxide(const synth_scene *sc, const lam_analysis *a, robust_tal
     int colour_warned = lam_warnings_find(&a->warnings, "substrate-colour") != NULL;
     t->colour_warned += colour_warned;
     t->oxide_silent += err > 3 * a->oxide.sigma && !colour_warned &&
-                       !lam_warnings_find(&a->warnings, "oxide-off-nominal");
+                       !lam_warnings_find(&a->warnings, "oxide-off-nominal") &&
+                       !lam_warnings_find(&a->warnings, "oxide-ambiguous");
     t->oxide_covered += err <= 2 * a->oxide.sigma;
 }
 
