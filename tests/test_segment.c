@@ -235,15 +235,15 @@ int main(void)
     check_begin("test_segment");
     test_rescue_cores();
     wide_image();
-    lam_contrast_map scene_map, *img = &scene_map;
-    if (!check_true(scene(img), "scene allocated"))
+    lam_contrast_map contrast;
+    if (!check_true(scene(&contrast), "scene allocated"))
         return check_summary();
     lam_segmentation *seg = NULL;
     lam_error err;
     lam_segment_options so = lam_segment_options_default();
     double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
     check_int(lam_segmentation_alloc(W, H, &seg, &err), LAM_OK, "segmentation allocated");
-    check_int(lam_segment_uniform(img, 3, MONO, noise, scatter, &so, seg, &err), LAM_OK,
+    check_int(lam_segment_uniform(&contrast, 3, MONO, noise, scatter, &so, seg, &err), LAM_OK,
               "uniform segmentation");
     uint32_t left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
     check_true(left && right && left != right,
@@ -254,7 +254,7 @@ int main(void)
         key[i] = key_of(&seg->regions[i]);
     size_t joined = 0;
     double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
-    check_int(lam_segment_join(img, 3, key, fill, 1, seg, map, &joined, &err), LAM_OK, "join");
+    check_int(lam_segment_join(&contrast, 3, key, fill, 1, seg, map, &joined, &err), LAM_OK, "join");
     left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
     check_true(left && left == right, "after joining flake A is one region (%u, %u)", left, right);
     check_true(joined >= 1, "at least one region disappeared (%zu)", joined);
@@ -272,7 +272,7 @@ int main(void)
     free(key);
     free(map);
     lam_segmentation_free(seg);
-    lam_contrast_map_free(img);
+    lam_contrast_map_free(&contrast);
     join_threads();
     return check_summary();
 }
