@@ -163,6 +163,13 @@ static void check_encoding(lam_analysis *a, const lam_image *img, const lam_setu
                          lam_transfer_name(&s->encoding));
 }
 
+int lam__microscope_defaulted(const lam_setup *s)
+{
+    return lam_setup_is_default(s, "camera") ||
+           lam_setup_is_default(s, "objective.illumination_na") ||
+           lam_setup_is_default(s, "illuminant");
+}
+
 static void check_defaults(lam_analysis *a, const lam_setup *s)
 {
     char what[160] = "";

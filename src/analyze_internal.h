@@ -61,4 +61,9 @@ lam_status lam__colour_loglik(const lam_analysis *a, const lam_estimate *e, cons
  * encoding, setup defaults, fit), added to a->warnings. */
 void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s);
 
+/* 1 when the setup leaves the microscope to typical values: the camera's
+ * curves, the illumination NA or the lamp defaulted (what the
+ * setup-defaults warning names). */
+int lam__microscope_defaulted(const lam_setup *s);
+
 #endif
