@@ -816,8 +816,8 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     if (!st)
         uncounted_keys(a, fill, key);
     if (!st)
-        st = lam_segment_join(&r->contrast, a->channels, key, fill, r->threads, a->seg, map, &joined,
-                              err);
+        st = lam_segment_join(&r->contrast, a->channels, key, fill, r->threads, a->seg, map,
+                              &joined, err);
     free(key);
     free(map);
     if (st)

@@ -64,8 +64,8 @@ static int side_mean(const lam_segmentation *seg, uint32_t l, size_t channels, d
 
 /* The side whose mean pixel k is nearest (the first of equals), 0 for
  * the substrate or none. */
-static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels, const lam_segmentation *seg,
-                         size_t x, size_t y)
+static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels,
+                         const lam_segmentation *seg, size_t x, size_t y)
 {
     size_t k = y * seg->width + x;
     side s[EDGE_MAX_SIDES];
@@ -76,8 +76,10 @@ static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels, cons
         double m[3], d = 0;
         if (!side_mean(seg, s[i].label, channels, m))
             continue;
-        for (size_t c = 0; c < channels; c++)
-            d += (lam_contrast_value(contrast, c, k) - m[c]) * (lam_contrast_value(contrast, c, k) - m[c]);
+        for (size_t c = 0; c < channels; c++) {
+            double v = lam_contrast_value(contrast, c, k);
+            d += (v - m[c]) * (v - m[c]);
+        }
         if (d < best)
             best = d, owner = s[i].label;
     }

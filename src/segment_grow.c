@@ -252,8 +252,11 @@ static void sample_difference(const lam_contrast_map *img, const double *zero, s
     if (x < lag || x + lag >= w || !near_zero(img, H->channels, zero, k - lag) ||
         !near_zero(img, H->channels, zero, k + lag))
         return;
-    for (size_t c = 0; c < H->channels; c++)
-        count_sample(H, l, c, fabsf(lam_contrast_value(img, c, k + lag) - lam_contrast_value(img, c, k - lag)));
+    for (size_t c = 0; c < H->channels; c++) {
+        float after = lam_contrast_value(img, c, k + lag);
+        float before = lam_contrast_value(img, c, k - lag);
+        count_sample(H, l, c, fabsf(after - before));
+    }
     H->m[l]++;
 }
 
@@ -296,7 +299,8 @@ static size_t pass_bins(int pass)
     return 2 * 3 * HALF_BINS * (pass == 1 ? 1 : QUANTILES);
 }
 
-static int sample_pass(const lam_contrast_map *img, const double *zero, size_t threads, diff_hist *H)
+static int sample_pass(const lam_contrast_map *img, const double *zero, size_t threads,
+                       diff_hist *H)
 {
     size_t bins = pass_bins(H->pass);
     size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;

@@ -23,9 +23,9 @@ void lam__region_statistics(const lam_contrast_map *img, const uint8_t *cls, con
  * lam__region_statistics_in reads only those into r (cleared first). */
 void lam__region_depth(const uint32_t *label, size_t width, size_t height, uint32_t l,
                        const size_t box[4], uint8_t *depth);
-void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls, const uint32_t *label,
-                               const uint8_t *depth, uint32_t l, const size_t box[4],
-                               lam_region_stats *r);
+void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls,
+                               const uint32_t *label, const uint8_t *depth, uint32_t l,
+                               const size_t box[4], lam_region_stats *r);
 
 /* The root of a in a union-find forest of labels (parent[root] == root),
  * halving the path on the way. */

@@ -391,8 +391,9 @@ static lam_status regions(lam_analysis *a, const lam_contrast_map *contrast, lam
     return st;
 }
 
-lam_status lam_thickness_analyze(lam_analysis *a, const lam_contrast_map *contrast, const lam_setup *s,
-                                 lam_model *model, double oxide_tolerance_nm, lam_error *err)
+lam_status lam_thickness_analyze(lam_analysis *a, const lam_contrast_map *contrast,
+                                 const lam_setup *s, lam_model *model, double oxide_tolerance_nm,
+                                 lam_error *err)
 {
     profile_ctx x;
     memset(&x, 0, sizeof x);

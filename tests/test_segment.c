@@ -254,7 +254,8 @@ int main(void)
         key[i] = key_of(&seg->regions[i]);
     size_t joined = 0;
     double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
-    check_int(lam_segment_join(&contrast, 3, key, fill, 1, seg, map, &joined, &err), LAM_OK, "join");
+    check_int(lam_segment_join(&contrast, 3, key, fill, 1, seg, map, &joined, &err), LAM_OK,
+              "join");
     left = label_at(seg, 30, 80), right = label_at(seg, 150, 80);
     check_true(left && left == right, "after joining flake A is one region (%u, %u)", left, right);
     check_true(joined >= 1, "at least one region disappeared (%zu)", joined);

@@ -77,7 +77,7 @@ static inline float lam_contrast_value(const lam_contrast_map *m, size_t c, size
 /* 1 when pixel (x, y) was saturated in the file (lam_image_clipped). */
 static inline int lam_contrast_clipped(const lam_contrast_map *m, size_t x, size_t y)
 {
-    return m->clipped_count && ((m->clip_bits[y * m->clip_stride + x / 8] >> (x % 8)) & 1);
+    return m->clipped_count && lam_clip_bit(m->clip_bits, m->clip_stride, x, y);
 }
 
 /* The contrast planes of img (after lam_contrast_in_place and

@@ -123,13 +123,19 @@ typedef struct lam_load_options {
                              * fresh memory (lamina/report.h) */
 } lam_load_options;
 
+/* Pixel (x, y)'s bit of a clip mask laid out as lam_image.clip_bits
+ * (rows of 'stride' bytes, pixel x in bit x % 8 of byte x / 8). */
+static inline int lam_clip_bit(const uint8_t *bits, size_t stride, size_t x, size_t y)
+{
+    return (bits[y * stride + x / 8] >> (x % 8)) & 1;
+}
+
 /* 1 when pixel (x, y) was saturated in the file (any channel at its
  * top code), else 0. Without a saturated pixel (clipped_count 0, the
  * common case) the bits are not read at all. */
 static inline int lam_image_clipped(const lam_image *img, size_t x, size_t y)
 {
-    return img->clipped_count &&
-           ((img->clip_bits[y * img->clip_stride + x / 8] >> (x % 8)) & 1);
+    return img->clipped_count && lam_clip_bit(img->clip_bits, img->clip_stride, x, y);
 }
 
 /* Default options: automatic transfer curve, default pixel limit. */
