@@ -201,61 +201,73 @@ static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
  * there), from every SAMPLE_STRIDE-th pixel: the robust sigma (1.4826 x
  * median |d|) and the 95th percentile of |d|. The percentile sees what the
  * sigma does not: JPEG block steps and demosaicing artefacts, rare but
- * they must not split a region. Measured, so no model of the noise. */
+ * they must not split a region. Measured, so no model of the noise.
+ *
+ * The map holds whole steps of 1 / LAM_CONTRAST_UNIT, and its values and
+ * their differences are exact in float, so a difference is a whole number
+ * of steps (0..65535): one histogram of steps per lag and channel, in one
+ * pass without storing the samples (at 12 MP they were 41 MB of fresh
+ * memory for 6 numbers), gives the same order statistics as a sort. */
 typedef struct diff_stats {
     double sigma[3], p95[3];
 } diff_stats;
 
-static int near_zero(const lam_contrast_map *img, size_t channels, const double *zero, size_t k)
+#define STEP_BINS 65536 /* every difference of two map values, in steps */
+
+/* The map values near zero contrast, per channel: steps lo..hi (empty when
+ * lo > hi). |contrast| grows both ways from step LAM_CONTRAST_UNIT (zero
+ * contrast), so the steps that pass the test |contrast| <= zero[c] form
+ * one interval; it is found with that same test (near_band). */
+typedef struct zero_band {
+    uint32_t lo[3], hi[3];
+} zero_band;
+
+static zero_band near_band(const double *zero)
 {
-    for (size_t c = 0; c < channels; c++)
-        if (fabsf(lam_contrast_value(img, c, k)) > zero[c])
+    zero_band z;
+    for (size_t c = 0; c < 3; c++) {
+        z.lo[c] = 1, z.hi[c] = 0;
+        for (uint32_t q = 0; q < STEP_BINS; q++)
+            if (!(fabsf(lam_contrast_of((uint16_t)q)) > zero[c])) {
+                if (z.lo[c] > z.hi[c])
+                    z.lo[c] = q;
+                z.hi[c] = q;
+            }
+    }
+    return z;
+}
+
+static int near_zero(const lam_contrast_map *img, size_t channels, const zero_band *z, size_t k)
+{
+    for (size_t c = 0; c < channels; c++) {
+        uint32_t q = img->plane[c][k];
+        if (q < z->lo[c] || q > z->hi[c])
             return 0;
+    }
     return 1;
 }
 
-/* The two order statistics (median, 95th percentile) of each lag's and
- * channel's differences, taken in two passes over the sampled pixels
- * without storing the samples (at 12 MP they were 41 MB of fresh memory
- * for 6 numbers): pass 1 counts the high halves of every lag and channel,
- * pass 2 the low halves of the samples in the two chosen high bins. */
-enum { QUANTILES = 2 };
-
+/* Counts of differences in steps: [lag][channel][STEP_BINS], and the
+ * samples per lag. */
 typedef struct diff_hist {
-    int pass;
     size_t channels;
-    size_t m[2];                       /* samples per lag */
-    uint32_t hi[2][3][QUANTILES];      /* the chosen high bins */
-    size_t below[2][3][QUANTILES];     /* samples below each chosen high bin */
-    uint32_t *hist; /* pass 1: [lag][channel][HALF_BINS]; 2: [lag][channel][quantile][HALF_BINS] */
+    size_t m[2];
+    uint32_t *hist;
 } diff_hist;
-
-static void count_sample(diff_hist *H, size_t l, size_t c, float v)
-{
-    uint32_t b = bits_of(v);
-    if (H->pass == 1) {
-        H->hist[(l * 3 + c) * HALF_BINS + (b >> 16)]++;
-        return;
-    }
-    for (size_t q = 0; q < QUANTILES; q++)
-        if (b >> 16 == H->hi[l][c][q])
-            H->hist[((l * 3 + c) * QUANTILES + q) * HALF_BINS + (b & 0xffff)]++;
-}
 
 /* One sample: the differences across pixel k at 'lag' (lag l + 1) in every
  * channel, when both ends are near zero contrast and inside the row
  * (x = k % w). */
-static void sample_difference(const lam_contrast_map *img, const double *zero, size_t k, size_t x,
+static void sample_difference(const lam_contrast_map *img, const zero_band *z, size_t k, size_t x,
                               size_t l, diff_hist *H)
 {
     size_t w = img->width, lag = l + 1;
-    if (x < lag || x + lag >= w || !near_zero(img, H->channels, zero, k - lag) ||
-        !near_zero(img, H->channels, zero, k + lag))
+    if (x < lag || x + lag >= w || !near_zero(img, H->channels, z, k - lag) ||
+        !near_zero(img, H->channels, z, k + lag))
         return;
     for (size_t c = 0; c < H->channels; c++) {
-        float after = lam_contrast_value(img, c, k + lag);
-        float before = lam_contrast_value(img, c, k - lag);
-        count_sample(H, l, c, fabsf(after - before));
+        int32_t d = (int32_t)img->plane[c][k + lag] - img->plane[c][k - lag];
+        H->hist[(l * 3 + c) * STEP_BINS + (uint32_t)abs(d)]++;
     }
     H->m[l]++;
 }
@@ -263,62 +275,54 @@ static void sample_difference(const lam_contrast_map *img, const double *zero, s
 /* Both lags in one walk over samples j0..j1 - 1 (sample j at pixel
  * 1 + SAMPLE_STRIDE j; the lag-2 samples lie one pixel after the lag-1
  * samples, in the same cache lines). */
-static void sample_walk(const lam_contrast_map *img, const double *zero, size_t j0, size_t j1,
+static void sample_walk(const lam_contrast_map *img, const zero_band *z, size_t j0, size_t j1,
                         diff_hist *H)
 {
     size_t w = img->width, n = img->width * img->height, k = 1 + SAMPLE_STRIDE * j0;
     size_t x = k % w; /* kept by steps instead of a division per sample */
     for (size_t j = j0; j < j1; j++, k += SAMPLE_STRIDE) {
-        sample_difference(img, zero, k, x, 0, H);
+        sample_difference(img, z, k, x, 0, H);
         if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
-            sample_difference(img, zero, k + 1, x + 1 < w ? x + 1 : 0, 1, H);
+            sample_difference(img, z, k + 1, x + 1 < w ? x + 1 : 0, 1, H);
         for (x += SAMPLE_STRIDE; x >= w;)
             x -= w;
     }
 }
 
-/* A pass over all samples in slices of rows on the threads, each slice
- * counting into a histogram of its own; the counts are then added into
- * H's (counts add exactly: the same histograms as one walk). */
+/* All samples in slices of rows on the threads, each slice counting into
+ * a histogram of its own; the counts are then added into H's (counts add
+ * exactly: the same histograms as one walk). */
 typedef struct sample_job {
     const lam_contrast_map *img;
-    const double *zero;
-    diff_hist *slice; /* per slice: H's choices, its own counts */
+    const zero_band *z;
+    diff_hist *slice;
 } sample_job;
 
 static void sample_slices(size_t begin, size_t end, size_t slice, void *vctx)
 {
     sample_job *j = vctx;
-    sample_walk(j->img, j->zero, begin, end, &j->slice[slice]);
+    sample_walk(j->img, j->z, begin, end, &j->slice[slice]);
 }
 
-/* The histogram counts a pass keeps: per lag and channel, and in pass 2
- * per quantile too. */
-static size_t pass_bins(int pass)
-{
-    return 2 * 3 * HALF_BINS * (pass == 1 ? 1 : QUANTILES);
-}
+#define DIFF_BINS (2 * 3 * STEP_BINS)
 
-static int sample_pass(const lam_contrast_map *img, const double *zero, size_t threads,
-                       diff_hist *H)
+static int sample_all(const lam_contrast_map *img, const zero_band *z, size_t threads,
+                      diff_hist *H)
 {
-    size_t bins = pass_bins(H->pass);
     size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;
     size_t slices = lam_parallel_slices(count, threads);
     diff_hist *S = calloc(slices, sizeof *S);
     int ok = S != NULL;
-    H->m[0] = H->m[1] = 0;
-    memset(H->hist, 0, bins * sizeof *H->hist);
     for (size_t s = 0; ok && s < slices; s++) {
         S[s] = *H;
-        S[s].hist = s ? calloc(bins, sizeof *S[s].hist) : H->hist;
+        S[s].hist = s ? calloc(DIFF_BINS, sizeof *S[s].hist) : H->hist;
         ok = S[s].hist != NULL;
     }
     if (ok) {
-        sample_job job = {img, zero, S};
+        sample_job job = {img, z, S};
         lam_parallel_for(count, threads, sample_slices, &job);
         for (size_t s = 1; s < slices; s++)
-            for (size_t b = 0; b < bins; b++)
+            for (size_t b = 0; b < DIFF_BINS; b++)
                 H->hist[b] += S[s].hist[b];
         for (size_t s = 0; s < slices; s++)
             H->m[0] += S[s].m[0], H->m[1] += S[s].m[1];
@@ -335,41 +339,27 @@ static size_t rank_of(size_t q, size_t m)
     return q == 0 ? m / 2 : m * 95 / 100;
 }
 
-static void difference_stats(const lam_contrast_map *img, size_t channels, const double *zero,
+/* The k-th smallest difference (0-based) counted in hist, in contrast. */
+static float kth_difference(const uint32_t *hist, size_t k)
+{
+    size_t below = 0;
+    return (float)bin_of(hist, k, &below) * (1.0f / LAM_CONTRAST_UNIT);
+}
+
+static void difference_stats(const lam_contrast_map *img, size_t channels, const zero_band *z,
                              size_t threads, diff_stats out[2])
 {
-    diff_hist H;
-    memset(&H, 0, sizeof H);
-    H.channels = channels;
-    H.hist = malloc(pass_bins(2) * sizeof *H.hist);
+    diff_hist H = {channels, {0, 0}, calloc(DIFF_BINS, sizeof(uint32_t))};
     for (size_t l = 0; l < 2; l++)
         for (size_t c = 0; c < 3; c++)
             out[l].sigma[c] = out[l].p95[c] = 1e-3;
-    H.pass = 1;
-    if (!H.hist || !sample_pass(img, zero, threads, &H)) {
-        free(H.hist);
-        return;
-    }
-    for (size_t l = 0; l < 2; l++)
-        for (size_t c = 0; c < channels && H.m[l] > 20; c++)
-            for (size_t q = 0; q < QUANTILES; q++)
-                H.hi[l][c][q] = bin_of(H.hist + (l * 3 + c) * HALF_BINS, rank_of(q, H.m[l]),
-                                       &H.below[l][c][q]);
-    H.pass = 2;
-    if (!sample_pass(img, zero, threads, &H)) {
-        free(H.hist);
-        return;
-    }
-    for (size_t l = 0; l < 2; l++)
-        for (size_t c = 0; c < channels && H.m[l] > 20; c++) {
-            float v[QUANTILES];
-            for (size_t q = 0; q < QUANTILES; q++)
-                v[q] = from_halves(H.hi[l][c][q],
-                                   bin_of(H.hist + ((l * 3 + c) * QUANTILES + q) * HALF_BINS,
-                                          rank_of(q, H.m[l]), &H.below[l][c][q]));
-            out[l].sigma[c] = fmax(1.4826 * v[0], 1e-5);
-            out[l].p95[c] = fmax(v[1], 1e-5);
-        }
+    if (H.hist && sample_all(img, z, threads, &H))
+        for (size_t l = 0; l < 2; l++)
+            for (size_t c = 0; c < channels && H.m[l] > 20; c++) {
+                const uint32_t *hist = H.hist + (l * 3 + c) * STEP_BINS;
+                out[l].sigma[c] = fmax(1.4826 * kth_difference(hist, rank_of(0, H.m[l])), 1e-5);
+                out[l].p95[c] = fmax(kth_difference(hist, rank_of(1, H.m[l])), 1e-5);
+            }
     free(H.hist);
 }
 
@@ -975,29 +965,37 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
  * steps - which two parts of one flake may differ by. */
 #define CELL 8
 
-/* One cell's mean per channel (NaN unless every pixel is near zero); the
- * zero test is made once per pixel for all channels. */
-static void cell_mean(const lam_contrast_map *img, size_t channels, const double *zero, size_t cx,
+/* One cell's mean per channel (NaN unless every pixel is near zero), from
+ * the sum of its steps: a sum of the pixels' contrasts (1 - q / UNIT) in
+ * double is exact, so this is the same number. */
+static void cell_mean(const lam_contrast_map *img, size_t channels, const zero_band *z, size_t cx,
                       size_t cy, float *mean)
 {
     size_t w = img->width;
-    double sum[3] = {0, 0, 0};
-    int ok = 1;
-    for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
-        for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
-            size_t k = y * w + x;
-            ok &= near_zero(img, channels, zero, k);
-            for (size_t c = 0; c < channels; c++)
-                sum[c] += lam_contrast_value(img, c, k);
+    uint32_t ok = 1;
+    for (size_t c = 0; c < 3; c++) {
+        if (c >= channels) {
+            mean[c] = 0;
+            continue;
         }
-    for (size_t c = 0; c < 3; c++)
-        mean[c] = ok ? (float)(sum[c] / (CELL * CELL)) : NAN;
+        const uint16_t *plane = img->plane[c];
+        uint32_t sum = 0, lo = z->lo[c], hi = z->hi[c];
+        for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
+            for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
+                uint32_t q = plane[y * w + x];
+                sum += q;
+                ok &= (q >= lo) & (q <= hi);
+            }
+        mean[c] = (float)((CELL * CELL - sum / (double)LAM_CONTRAST_UNIT) / (CELL * CELL));
+    }
+    for (size_t c = 0; c < 3 && !ok; c++)
+        mean[c] = NAN;
 }
 
 typedef struct cell_job {
     const lam_contrast_map *img;
     size_t channels, cw;
-    const double *zero;
+    const zero_band *z;
     float *mean;
 } cell_job;
 
@@ -1007,10 +1005,10 @@ static void cell_rows(size_t begin, size_t end, size_t slice, void *vctx)
     const cell_job *j = vctx;
     for (size_t cy = begin; cy < end; cy++)
         for (size_t cx = 0; cx < j->cw; cx++)
-            cell_mean(j->img, j->channels, j->zero, cx, cy, &j->mean[(cy * j->cw + cx) * 3]);
+            cell_mean(j->img, j->channels, j->z, cx, cy, &j->mean[(cy * j->cw + cx) * 3]);
 }
 
-static void cell_texture(const lam_contrast_map *img, size_t channels, const double *zero,
+static void cell_texture(const lam_contrast_map *img, size_t channels, const zero_band *z,
                          size_t threads, double *out)
 {
     size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
@@ -1024,7 +1022,7 @@ static void cell_texture(const lam_contrast_map *img, size_t channels, const dou
         free(d);
         return;
     }
-    cell_job job = {img, channels, cw, zero, mean};
+    cell_job job = {img, channels, cw, z, mean};
     lam_parallel_for(ch, threads, cell_rows, &job);
     uint32_t *hist = malloc(HALF_BINS * sizeof *hist);
     for (size_t c = 0; c < channels && hist; c++) {
@@ -1062,8 +1060,9 @@ static void thresholds(const lam_contrast_map *img, size_t channels, const doubl
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
     diff_stats d[2];
     double cells[3];
-    difference_stats(img, channels, zero, threads, d);
-    cell_texture(img, channels, zero, threads, cells);
+    zero_band z = near_band(zero);
+    difference_stats(img, channels, &z, threads, d);
+    cell_texture(img, channels, &z, threads, cells);
     const diff_stats d1 = d[0], d2 = d[1];
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
