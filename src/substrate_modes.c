@@ -190,6 +190,13 @@ static size_t find_levels(bright_sample *bs, const double *coef, double *e)
     return levels;
 }
 
+/* The levels as fit_surface reads them (no level counts as one, tiles
+ * all in level 0): the design of the fit. */
+static size_t design_levels(size_t levels)
+{
+    return levels ? levels : 1;
+}
+
 static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substrate *s,
                                  double *r)
 {
@@ -197,13 +204,23 @@ static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substr
     double coef[LAM_SUBSTRATE_TERMS] = {0};
     int ok = sample_tiles(ts, n, s, &bs) && fit_surface(&bs, 0, coef);
     double *e = ok ? malloc(2 * bs.used * sizeof *e) : NULL;
-    for (int pass = 0; e && pass < LEVEL_PASSES; pass++) {
+    int *fitted = ok ? malloc(bs.used * sizeof *fitted) : NULL; /* the levels of coef's fit */
+    size_t fitted_levels = 1;
+    for (int pass = 0; e && fitted && pass < LEVEL_PASSES; pass++) {
         double next[LAM_SUBSTRATE_TERMS];
+        memcpy(fitted, bs.level, bs.used * sizeof *fitted);
         size_t levels = find_levels(&bs, coef, e);
+        /* the same levels again: the fit would return coef itself (it
+         * depends on nothing else), and so would every pass after it */
+        if (levels && design_levels(levels) == fitted_levels &&
+            !memcmp(fitted, bs.level, bs.used * sizeof *fitted))
+            break;
         if (!levels || !fit_surface(&bs, levels, next))
             break; /* the surface would not change again */
         memcpy(coef, next, sizeof coef);
+        fitted_levels = design_levels(levels);
     }
+    free(fitted);
     for (size_t i = 0; i < n; i++) {
         if (!ts[i].uniform)
             continue;
