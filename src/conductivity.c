@@ -5,6 +5,7 @@
 #include "lamina/conductivity.h"
 
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <gsl/gsl_const_mksa.h>
 #include <gsl/gsl_integration.h>
@@ -69,8 +70,11 @@ double complex lam_oscillator(double e, double centre, double width)
 static double one_minus_g(double eps, double mu, double kt)
 {
     double x = eps / kt, m = fabs(mu) / kt, top = x > m ? x : m;
-    double num = exp(m - top) + exp(-m - top) + 2.0 * exp(-x - top);
-    double den = exp(m - top) + exp(-m - top) + exp(x - top) + exp(-x - top);
+    /* each exponential once (the compiler may not merge calls that can
+     * set errno): the integrals call this ~10^6 times per Fermi table */
+    double a = exp(m - top), b = exp(-m - top), d = exp(-x - top);
+    double num = a + b + 2.0 * d;
+    double den = a + b + exp(x - top) + d;
     return num / den;
 }
 
@@ -91,13 +95,48 @@ static double regular_integrand(double eps, void *vp)
     return one_minus_g(eps, a->mu, a->kt) / (a->e * a->e - 4.0 * eps * eps);
 }
 
+/* One quadrature workspace per thread, kept for the thread's life (freed
+ * when it ends). A Fermi-level table takes ~50 000 of these integrals:
+ * allocating a workspace for each made two threads queue on the
+ * allocator's lock (a one-image analysis shares one malloc arena), and
+ * GSL starts every integral afresh in whatever workspace it is given. */
+static pthread_key_t workspace_key;
+static pthread_once_t workspace_once = PTHREAD_ONCE_INIT;
+static int workspace_key_ok;
+
+static void workspace_release(void *ws)
+{
+    gsl_integration_workspace_free(ws);
+}
+
+static void workspace_key_make(void)
+{
+    workspace_key_ok = pthread_key_create(&workspace_key, workspace_release) == 0;
+}
+
+/* This thread's workspace, NULL when out of memory. Without a key (it
+ * could not be made) a workspace the caller frees: *own is set. */
+static gsl_integration_workspace *thread_workspace(int *own)
+{
+    pthread_once(&workspace_once, workspace_key_make);
+    gsl_integration_workspace *ws = workspace_key_ok ? pthread_getspecific(workspace_key) : NULL;
+    *own = 0;
+    if (ws)
+        return ws;
+    ws = gsl_integration_workspace_alloc(QUAD_LIMIT);
+    if (ws && (!workspace_key_ok || pthread_setspecific(workspace_key, ws)))
+        *own = 1;
+    return ws;
+}
+
 /* Integral of f(x) / (x - c) over [0, upper] as a principal value when c lies
  * inside, else as a plain integral of 'regular' (f(x) / (x - c) itself). */
 static lam_status principal_value(double (*f)(double, void *), double (*regular)(double, void *),
                                   void *args, double c, double upper, double *val,
                                   const char *what, lam_error *err)
 {
-    gsl_integration_workspace *ws = gsl_integration_workspace_alloc(QUAD_LIMIT);
+    int own = 0;
+    gsl_integration_workspace *ws = thread_workspace(&own);
     if (!ws)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a quadrature workspace");
     double abserr = 0;
@@ -114,7 +153,8 @@ static lam_status principal_value(double (*f)(double, void *), double (*regular)
         st = gsl_integration_qag(&fn, 0.0, upper, 1e-12, 1e-9, QUAD_LIMIT, GSL_INTEG_GAUSS31, ws,
                                  val, &abserr);
     }
-    gsl_integration_workspace_free(ws);
+    if (own)
+        gsl_integration_workspace_free(ws);
     return st ? lam_error_gsl(err, st, what) : LAM_OK;
 }
 
