@@ -158,18 +158,59 @@ static void score_cells(size_t begin, size_t end, size_t slice, void *ctx)
     }
 }
 
-/* The ladder at every oxide step of the grid; the image's oxide is left
- * at the last step, as the grid's scan always left it. */
-static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, const grid *g,
-                               lam_prediction *L, lam_error *err)
+/* The ladder at every oxide step of the grid, the steps shared out to the
+ * threads: slice 0 with the fit's model, the others each with a copy of
+ * it (a model keeps caches, so it serves one thread; a copy gives the same
+ * values). The points differ only in their oxide. */
+typedef struct ladder_job {
+    const lam_estimate *e;
+    size_t j;
+    const grid *g;
+    lam_model **model;  /* per slice */
+    lam_prediction *L;  /* per oxide step */
+    lam_status *st;     /* per slice */
+    lam_error *err;     /* per slice */
+} ladder_job;
+
+static void ladder_steps(size_t d0, size_t d1, size_t slice, void *vjob)
 {
-    lam_est_image *im = &e->image[j];
+    const ladder_job *x = vjob;
+    lam_model_point p = lam_estimate_point(x->e, x->j);
     lam_status st = LAM_OK;
-    for (size_t d = 0; d < g->n && !st; d++) {
-        im->oxide.value = g->lo + g->step * (double)d;
-        st = lam__image_ladder(e, j, model, GRID_LAYERS, &L[d], err);
+    for (size_t d = d0; d < d1 && !st; d++) {
+        p.v[LAM_MP_OXIDE] = x->g->lo + x->g->step * (double)d;
+        st = lam_model_eval_point(x->model[slice], &p, GRID_LAYERS, &x->L[d], &x->err[slice]);
+        if (!st)
+            lam_estimate_observe(x->e, &x->L[d]);
     }
-    return st;
+    x->st[slice] = st;
+}
+
+/* The ladders of every oxide step (as lam__image_ladder at each); the
+ * image's oxide is left at the last step, as the grid's scan always left
+ * it. */
+static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, const grid *g,
+                               size_t threads, lam_prediction *L, lam_error *err)
+{
+    size_t slices = lam_parallel_slices(g->n, threads), made = 1;
+    lam_model *models[LAM_MAX_THREADS] = {model};
+    lam_status st[LAM_MAX_THREADS] = {LAM_OK}, out = LAM_OK;
+    lam_error errs[LAM_MAX_THREADS];
+    memset(errs, 0, slices * sizeof *errs);
+    for (; made < slices && !out; made++)
+        out = lam_model_clone(model, &models[made], err);
+    if (!out) {
+        ladder_job x = {e, j, g, models, L, st, errs};
+        lam_parallel_for(g->n, slices, ladder_steps, &x);
+        for (size_t k = 0; k < slices && !out; k++)
+            if ((out = st[k]))
+                *err = errs[k];
+    }
+    for (size_t k = 1; k < made; k++)
+        lam_model_free(models[k]);
+    if (!out)
+        e->image[j].oxide.value = g->lo + g->step * (double)(g->n - 1);
+    return out;
 }
 
 static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g,
@@ -194,7 +235,7 @@ static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g
     lam_status st = g->score && g->factor && L && x.Q && x.resp
                         ? LAM_OK
                         : lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
-    if (!st && !(st = grid_ladders(e, j, model, g, L, err))) {
+    if (!st && !(st = grid_ladders(e, j, model, g, threads, L, err))) {
         x.ladder = L;
         lam_parallel_for(cells, threads, score_cells, &x);
     }
