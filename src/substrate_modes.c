@@ -204,15 +204,17 @@ static void brightness_residuals(const tile_stat *ts, size_t n, const lam_substr
     double coef[LAM_SUBSTRATE_TERMS] = {0};
     int ok = sample_tiles(ts, n, s, &bs) && fit_surface(&bs, 0, coef);
     double *e = ok ? malloc(2 * bs.used * sizeof *e) : NULL;
-    int *fitted = ok ? malloc(bs.used * sizeof *fitted) : NULL; /* the levels of coef's fit */
+    /* the levels of coef's fit (without memory: no shortcut, the same result) */
+    int *fitted = ok ? malloc(bs.used * sizeof *fitted) : NULL;
     size_t fitted_levels = 1;
-    for (int pass = 0; e && fitted && pass < LEVEL_PASSES; pass++) {
+    for (int pass = 0; e && pass < LEVEL_PASSES; pass++) {
         double next[LAM_SUBSTRATE_TERMS];
-        memcpy(fitted, bs.level, bs.used * sizeof *fitted);
+        if (fitted)
+            memcpy(fitted, bs.level, bs.used * sizeof *fitted);
         size_t levels = find_levels(&bs, coef, e);
         /* the same levels again: the fit would return coef itself (it
          * depends on nothing else), and so would every pass after it */
-        if (levels && design_levels(levels) == fitted_levels &&
+        if (fitted && levels && design_levels(levels) == fitted_levels &&
             !memcmp(fitted, bs.level, bs.used * sizeof *fitted))
             break;
         if (!levels || !fit_surface(&bs, levels, next))
