@@ -16,58 +16,84 @@
  * nearest side as for any flake. */
 #include "segment_internal.h"
 #include "lamina/bigalloc.h"
+#include "lamina/parallel.h"
 
 #include <stdlib.h>
 #include <string.h>
 
 #define CORE_DEPTH 6 /* chessboard distance, in pixels */
+#define CORE_REACH (CORE_DEPTH - 1)
 
-static uint8_t min4(uint8_t a, uint8_t b, uint8_t c, uint8_t d)
-{
-    uint8_t m = a < b ? a : b;
-    m = m < c ? m : c;
-    return m < d ? m : d;
-}
+/* A pixel lies at least CORE_DEPTH from every other-class pixel exactly
+ * when the (2 CORE_REACH + 1)-square around it, cut to the image, holds
+ * 'none' pixels only: a separable test, row windows then column windows,
+ * each a sliding count (the two-pass distance transform it replaces gave
+ * the same pixels, one thread, at 2-3x the time). */
+typedef struct core_job {
+    uint8_t *cls;
+    uint8_t *row_ok; /* per pixel: its row window is all 'none' */
+    uint8_t *bad;    /* w per slice of the column pass */
+    size_t w, h;
+    uint8_t none, joinable;
+} core_job;
 
-/* Chessboard distance of each 'none' pixel to the nearest other pixel
- * (0 on those), capped at 255: the two-pass transform. */
-static void distance(const uint8_t *cls, size_t w, size_t h, uint8_t none, uint8_t *d)
+static void row_windows(size_t y0, size_t y1, size_t slice, void *vjob)
 {
-    for (size_t y = 0; y < h; y++)
+    (void)slice;
+    const core_job *j = vjob;
+    size_t w = j->w;
+    for (size_t y = y0; y < y1; y++) {
+        const uint8_t *row = j->cls + y * w;
+        uint8_t *ok = j->row_ok + y * w;
+        size_t other = 0; /* other-class pixels in [x - REACH, x + REACH] */
+        for (size_t x = 0; x <= CORE_REACH && x < w; x++)
+            other += row[x] != j->none;
         for (size_t x = 0; x < w; x++) {
-            size_t i = y * w + x;
-            if (cls[i] != none) {
-                d[i] = 0;
-                continue;
-            }
-            uint8_t l = x ? d[i - 1] : 255, u = y ? d[i - w] : 255;
-            uint8_t ul = x && y ? d[i - w - 1] : 255, ur = y && x + 1 < w ? d[i - w + 1] : 255;
-            uint8_t m = min4(l, u, ul, ur);
-            d[i] = m < 255 ? (uint8_t)(m + 1) : 255;
+            ok[x] = other == 0;
+            if (x + CORE_REACH + 1 < w)
+                other += row[x + CORE_REACH + 1] != j->none;
+            if (x >= CORE_REACH)
+                other -= row[x - CORE_REACH] != j->none;
         }
-    for (size_t y = h; y-- > 0;)
-        for (size_t x = w; x-- > 0;) {
-            size_t i = y * w + x;
-            if (!d[i])
-                continue;
-            uint8_t r = x + 1 < w ? d[i + 1] : 255, dn = y + 1 < h ? d[i + w] : 255;
-            uint8_t dr = x + 1 < w && y + 1 < h ? d[i + w + 1] : 255;
-            uint8_t dl = x && y + 1 < h ? d[i + w - 1] : 255;
-            uint8_t m = min4(r, dn, dr, dl);
-            if (m < 255 && (uint8_t)(m + 1) < d[i])
-                d[i] = (uint8_t)(m + 1);
-        }
+    }
 }
 
-int lam__rescue_cores(uint8_t *cls, size_t w, size_t h, uint8_t none, uint8_t joinable)
+/* Rows y0..y1 - 1: a pixel whose column window of row_ok is all set is a
+ * core pixel. bad[x] counts the rows of the window where row_ok is 0. */
+static void column_windows(size_t y0, size_t y1, size_t slice, void *vjob)
 {
-    uint8_t *d = lam_big_malloc(w * h);
-    if (!d)
-        return -1;
-    distance(cls, w, h, none, d);
-    for (size_t i = 0; i < w * h; i++)
-        if (d[i] >= CORE_DEPTH)
-            cls[i] = joinable;
-    free(d);
-    return 0;
+    const core_job *j = vjob;
+    size_t w = j->w, h = j->h;
+    uint8_t *bad = j->bad + slice * w;
+    size_t top = y0 > CORE_REACH ? y0 - CORE_REACH : 0;
+    for (size_t y = top; y <= y0 + CORE_REACH && y < h; y++)
+        for (size_t x = 0; x < w; x++)
+            bad[x] += !j->row_ok[y * w + x];
+    for (size_t y = y0; y < y1; y++) {
+        uint8_t *row = j->cls + y * w;
+        for (size_t x = 0; x < w; x++)
+            if (!bad[x])
+                row[x] = j->joinable;
+        const uint8_t *enter = y + CORE_REACH + 1 < h ? j->row_ok + (y + CORE_REACH + 1) * w : NULL;
+        const uint8_t *leave = y >= CORE_REACH ? j->row_ok + (y - CORE_REACH) * w : NULL;
+        for (size_t x = 0; enter && x < w; x++)
+            bad[x] += !enter[x];
+        for (size_t x = 0; leave && x < w; x++)
+            bad[x] -= !leave[x];
+    }
+}
+
+int lam__rescue_cores(uint8_t *cls, size_t w, size_t h, uint8_t none, uint8_t joinable,
+                      size_t threads)
+{
+    core_job j = {cls, lam_big_malloc(w * h), calloc(lam_parallel_slices(h, threads), w), w, h,
+                  none, joinable};
+    if (j.row_ok && j.bad) {
+        lam_parallel_for(h, threads, row_windows, &j);
+        lam_parallel_for(h, threads, column_windows, &j);
+    }
+    int ok = j.row_ok && j.bad;
+    free(j.row_ok);
+    free(j.bad);
+    return ok ? 0 : -1;
 }

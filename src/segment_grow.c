@@ -1101,7 +1101,8 @@ lam_status lam_segment_uniform(const lam_contrast_map *img, size_t channels, con
     if (st)
         return st;
     /* a JPEG's colour ringing can make a small flake transition throughout */
-    if (img->block_coded && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL))
+    if (img->block_coded && lam__rescue_cores(seg->cls, w, h, LAM_CLASS_NONE, PROVISIONAL,
+                                               threads))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the transition depth");
     uint32_t m = 0;
     if ((st = grow(img, channels, delta, sigma, opt->bright_scaling, seg, threads, &m, err)))

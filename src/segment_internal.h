@@ -39,10 +39,11 @@ int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, si
                       size_t threads);
 
 /* Pixels of class 'none' (transition) deeper than a transition band inside
- * an area of such pixels become class 'joinable' again (segment_cores.c:
- * small flakes a JPEG's colour ringing turns into transition throughout).
- * -1 when out of memory (cls unchanged), else 0. */
+ * an area of such pixels (chessboard distance >= 6 from every pixel of
+ * another class) become class 'joinable' again (segment_cores.c: small
+ * flakes a JPEG's colour ringing turns into transition throughout), on
+ * 'threads' threads. -1 when out of memory (cls unchanged), else 0. */
 int lam__rescue_cores(uint8_t *cls, size_t width, size_t height, uint8_t none,
-                      uint8_t joinable);
+                      uint8_t joinable, size_t threads);
 
 #endif

@@ -173,7 +173,7 @@ static void test_rescue_cores(void)
     for (size_t y = 0; y < H; y++)
         for (size_t x = 20; x < 29; x++)
             cls[y * W + x] = NONE;
-    check_int(lam__rescue_cores(cls, W, H, NONE, JOIN), 0, "rescue ran");
+    check_int(lam__rescue_cores(cls, W, H, NONE, JOIN, 1), 0, "rescue ran");
     size_t core = 0, band = 0;
     for (size_t y = 60; y < 100; y++)
         for (size_t x = 100; x < 140; x++)
@@ -185,6 +185,59 @@ static void test_rescue_cores(void)
     check_int((long)core, 30 * 30, "the area's core (30 x 30 px) may join regions again");
     check_true(cls[60 * W + 100] == NONE && cls[64 * W + 120] == NONE, "its rim stays transition");
     check_int((long)band, 0, "a 9 px band between regions stays transition");
+    free(cls);
+}
+
+/* The cores against the definition, pixel by pixel: a 'none' pixel whose
+ * chessboard distance (max of |dx|, |dy|) to every pixel of another class
+ * in the image is 6 or more becomes joinable, nothing else changes. Random
+ * maps of transition blobs and specks (some touching the border, one all
+ * transition), 1, 2 and 3 threads. */
+static int brute_core(const uint8_t *cls, size_t w, size_t h, size_t x, size_t y, uint8_t none)
+{
+    if (cls[y * w + x] != none)
+        return 0;
+    for (size_t v = 0; v < h; v++)
+        for (size_t u = 0; u < w; u++) {
+            size_t dx = u > x ? u - x : x - u, dy = v > y ? v - y : y - v;
+            if (cls[v * w + u] != none && (dx > dy ? dx : dy) < 6)
+                return 0;
+        }
+    return 1;
+}
+
+static void rescue_cores_match_definition(void)
+{
+    enum { NONE = LAM_CLASS_NONE, JOIN = 1 };
+    const size_t w = 53, h = 41;
+    uint8_t *map = malloc(w * h), *cls = malloc(w * h);
+    unsigned long state = 12345;
+    size_t wrong = 0, cores = 0;
+    for (int trial = 0; map && cls && trial < 12; trial++) {
+        memset(map, trial == 11 ? NONE : JOIN, w * h);
+        for (int b = 0; trial < 11 && b < 6; b++) { /* rectangles of transition */
+            state = state * 6364136223846793005ul + 1442695040888963407ul;
+            size_t x0 = (state >> 33) % w, y0 = (state >> 45) % h;
+            size_t bw = 3 + (state >> 20) % 25, bh = 3 + (state >> 12) % 20;
+            for (size_t y = y0; y < y0 + bh && y < h; y++)
+                for (size_t x = x0; x < x0 + bw && x < w; x++)
+                    map[y * w + x] = NONE;
+        }
+        for (size_t threads = 1; threads <= 3; threads++) {
+            memcpy(cls, map, w * h);
+            if (lam__rescue_cores(cls, w, h, NONE, JOIN, threads))
+                wrong++;
+            for (size_t y = 0; y < h; y++)
+                for (size_t x = 0; x < w; x++) {
+                    int core = brute_core(map, w, h, x, y, NONE);
+                    cores += (size_t)core;
+                    wrong += cls[y * w + x] != (core ? JOIN : map[y * w + x]);
+                }
+        }
+    }
+    check_int((long)wrong, 0, "rescued cores are the pixels 6 or more from another class");
+    check_true(cores > 500, "the maps hold cores to rescue (%zu)", cores);
+    free(map);
     free(cls);
 }
 
@@ -234,6 +287,7 @@ int main(void)
 {
     check_begin("test_segment");
     test_rescue_cores();
+    rescue_cores_match_definition();
     wide_image();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))
