@@ -163,22 +163,34 @@ static void check_encoding(lam_analysis *a, const lam_image *img, const lam_setu
                          lam_transfer_name(&s->encoding));
 }
 
+/* The parts of the microscope a setup may leave to typical values (setup
+ * keys), and how the setup-defaults warning names them. */
+static const struct {
+    const char *key, *name;
+} MICROSCOPE_PARTS[] = {
+    {"camera", "the camera's channels"},
+    {"objective.illumination_na", "the illumination NA"},
+    {"illuminant", "the lamp"},
+};
+
+#define MICROSCOPE_PART_COUNT (sizeof MICROSCOPE_PARTS / sizeof MICROSCOPE_PARTS[0])
+
 int lam__microscope_defaulted(const lam_setup *s)
 {
-    return lam_setup_is_default(s, "camera") ||
-           lam_setup_is_default(s, "objective.illumination_na") ||
-           lam_setup_is_default(s, "illuminant");
+    for (size_t i = 0; i < MICROSCOPE_PART_COUNT; i++)
+        if (lam_setup_is_default(s, MICROSCOPE_PARTS[i].key))
+            return 1;
+    return 0;
 }
 
 static void check_defaults(lam_analysis *a, const lam_setup *s)
 {
     char what[160] = "";
-    if (lam_setup_is_default(s, "camera"))
-        strcat(what, "the camera's channels, ");
-    if (lam_setup_is_default(s, "objective.illumination_na"))
-        strcat(what, "the illumination NA, ");
-    if (lam_setup_is_default(s, "illuminant"))
-        strcat(what, "the lamp, ");
+    for (size_t i = 0; i < MICROSCOPE_PART_COUNT; i++)
+        if (lam_setup_is_default(s, MICROSCOPE_PARTS[i].key)) {
+            strcat(what, MICROSCOPE_PARTS[i].name);
+            strcat(what, ", ");
+        }
     if (!what[0])
         return;
     what[strlen(what) - 2] = 0;

@@ -156,7 +156,8 @@ static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
  * chosen high bin. */
 #define HALF_BINS 65536
 
-/* The bin of hist (HALF_BINS counts) holding the k-th value, given
+/* The bin of hist holding the k-th value (k below the total count: the
+ * float halves' HALF_BINS or the step differences' STEP_BINS), given
  * *below values before the first bin; *below becomes those before it. */
 static uint32_t bin_of(const uint32_t *hist, size_t k, size_t *below)
 {
