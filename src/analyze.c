@@ -128,16 +128,6 @@ void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e)
 
 /* ---- stages ---- */
 
-typedef struct run {
-    lam_analysis *a;
-    const lam_setup *setup;
-    const lam_analysis_options *opt;
-    lam_image *img;          /* no planes once the contrast is made */
-    lam_contrast_map contrast;
-    lam_model *model;        /* coarse, 40 layers: fits, ladders, posteriors */
-    size_t threads;
-    double t0;
-} run;
 
 #define MARK(r, k) ((r)->a->seconds[k] = lam_clock_seconds() - (r)->t0)
 
@@ -149,7 +139,7 @@ static const char *camera_name(lam_camera_kind k)
                                            : "monochromatic";
 }
 
-static lam_status load_stage(run *r, const char *path, lam_error *err)
+static lam_status load_stage(lam__run *r, const char *path, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_load_options lo = r->opt->load;
@@ -190,12 +180,8 @@ static void describe_setup(lam_analysis *a, const lam_setup *s)
     memcpy(a->defaulted, s->defaulted, sizeof a->defaulted);
 }
 
-/* An estimate for this image with the oxide prior centred on centre_nm
- * (NAN: the nominal oxide), the search half-width half_nm (NAN: the
- * options') and the prior's sd oxide_sd (NAN: the setup's), the pooled
- * prior applied. */
-static lam_status new_estimate(run *r, double centre_nm, double half_nm, double oxide_sd,
-                               lam_estimate **out, lam_error *err)
+lam_status lam__new_estimate(lam__run *r, double centre_nm, double half_nm, double oxide_sd,
+                             lam_estimate **out, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_estimate_options eo = r->opt->estimate;
@@ -215,7 +201,7 @@ static lam_status new_estimate(run *r, double centre_nm, double half_nm, double 
     return st;
 }
 
-static lam_status model_stage(run *r, lam_error *err)
+static lam_status model_stage(lam__run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     const lam_analysis_options *opt = r->opt;
@@ -229,7 +215,7 @@ static lam_status model_stage(run *r, lam_error *err)
     a->prior_two_readings = a->prior_pooled ? opt->shared_prior->two_readings : 0;
     lam_status st = lam_model_alloc_fast(r->setup, LAM_MODEL_MAX_LAYERS, &r->model, err);
     if (!st)
-        st = new_estimate(r, NAN, NAN, NAN, &a->estimate, err);
+        st = lam__new_estimate(r, NAN, NAN, NAN, &a->estimate, err);
     /* the ladder at the prior's centre, for the substrate and the first pass */
     if (!st)
         st = lam_estimate_ladder(a->estimate, 0, r->model, &a->ladder, err);
@@ -241,7 +227,7 @@ static lam_status model_stage(run *r, lam_error *err)
  * fault. */
 #define SATURATED_FAILURE 0.2
 
-static lam_status substrate_stage(run *r, lam_error *err)
+static lam_status substrate_stage(lam__run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_substrate_options so = r->opt->substrate;
@@ -337,7 +323,7 @@ void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, siz
  * where a count nearly vanishes (WSe2 near 285 nm) it cannot be told from
  * the substrate anyway, and residue films would become regions. Returns 0
  * for other crystals (graphene's monolayer is its faintest count). */
-static double segment_faint_step(run *r)
+static double segment_faint_step(lam__run *r)
 {
     lam_analysis *a = r->a;
     if (lam_setup_crystal_kind(r->setup) != LAM_CRYSTAL_LAYERED)
@@ -369,7 +355,7 @@ static double segment_faint_step(run *r)
 }
 
 /* Regions of uniform contrast (model-independent), measured. */
-static lam_status segment_stage(run *r, lam_error *err)
+static lam_status segment_stage(lam__run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_segment_options so = r->opt->segment;
@@ -459,179 +445,14 @@ static void oxide_summary(lam_analysis *a, const lam_analysis_options *opt)
     o->pass = fabs(o->estimate - o->nominal) <= opt->oxide_tolerance_nm;
 }
 
-/* The chip may not be the oxide the setup says (a 90 nm chip under a
- * 285 nm profile), and within one interference order (lambda / 2n is
- * ~190 nm at 550 nm) the colours of N layers at one oxide can mimic those
- * of about 3N at another once the response and the camera's gain are free:
- * a 90 nm chip analysed without a setup fitted 279 nm with its 1L read as
- * 3L at p = 1.000, and nothing in that fit looked wrong (the regions fit;
- * the search had not run to its edge). So with the microscope not fully
- * given (the setup's camera, NA or lamp defaulted), and with any setup
- * when the nominal fit is doubtful, the oxide is checked by a second fit
- * over one order each side with a wide prior, kept when its regions fit
- * markedly better (by WIDE_MARGIN in log-likelihood: e^10 to one). When
- * the second fit lands as far away and is not markedly worse either, the
- * image is warned: either oxide may be the chip's. With the microscope
- * given the check changed no count in the robust harness, and it costs a
- * second fit (0.03 -> 0.17 s for a 1 MP tile), so it is left to the
- * doubt trigger there (lam__microscope_defaulted). */
-#define WIDE_HALF_NM 200.0
-#define WIDE_PRIOR_SD_NM 100.0
-#define WIDE_MARGIN 10.0
-#define DOUBT_UNMODELLED_SHARE 0.3
-
-static int oxide_fitted(const lam_analysis *a)
-{
-    const lam_est_image *im = &a->estimate->image[0];
-    return im->oxide.fitted && im->regions_used;
-}
-
-/* The nominal fit is doubtful: much of what informs it fits no layer
- * count, or its oxide ran to the edge of its search. Then a fit started at
- * the substrate colour's oxide (a calibration's) is tried first. */
-static int nominal_doubtful(const lam_analysis *a)
-{
-    const lam_est_image *im = &a->estimate->image[0];
-    const lam_estimate_options *o = &a->estimate->opt;
-    double off = fabs(im->oxide.value - im->oxide.prior_mean);
-    return im->unmodelled_share > DOUBT_UNMODELLED_SHARE ||
-           off >= o->search_half_nm - 2 * o->search_step_nm;
-}
-
-/* A second fit of the image's regions with the oxide prior centred on
- * centre_nm (NAN: nominal), sd prior_sd, searched +-half_nm; *out is
- * NULL on error. */
-static lam_status refit(run *r, double centre_nm, double half_nm, double prior_sd,
-                        lam_estimate **out, lam_error *err)
-{
-    lam_analysis *a = r->a;
-    *out = NULL;
-    lam_status st = new_estimate(r, centre_nm, half_nm, prior_sd, out, err);
-    if (!st) {
-        lam_est_image *im = &(*out)->image[0];
-        im->oxide.lo = fmax(0, im->oxide.prior_mean - half_nm);
-        im->oxide.hi = im->oxide.prior_mean + half_nm;
-        for (size_t c = 0; c < a->channels; c++)
-            lam_estimate_set_floor_prior(*out, c, a->estimate->floor_abs_prior[c]);
-        st = lam_estimate_set_regions(*out, 0, a->measured, a->count, err);
-    }
-    if (!st)
-        st = lam_estimate_fit(*out, r->model, r->model, err);
-    if (st) {
-        lam_estimate_free(*out);
-        *out = NULL;
-    }
-    return st;
-}
-
-/* A fit's evidence: its regions' log-likelihood, and with a recorded
- * substrate colour the colour's at its oxide, so that fits at different
- * oxides compete on all the image says. */
-static lam_status evidence(run *r, const lam_estimate *e, double *out, lam_error *err)
-{
-    double colour;
-    lam_status st = lam__colour_loglik(r->a, e, r->setup, r->model, &colour, err);
-    *out = e->image[0].data_loglik + colour;
-    return st;
-}
-
-/* Keep candidate c instead of the analysis' estimate when its evidence
- * beats it by 'margin' (*taken). *gap: the candidate's evidence minus the
- * estimate's (may be NULL). */
-static lam_status keep_if_better(run *r, lam_estimate *c, double margin, int *taken,
-                                 double *gap, lam_error *err)
-{
-    lam_analysis *a = r->a;
-    double ec = 0, ea = 0;
-    lam_status st = evidence(r, c, &ec, err);
-    if (!st)
-        st = evidence(r, a->estimate, &ea, err);
-    *taken = !st && ec > ea + margin;
-    if (gap)
-        *gap = ec - ea;
-    if (*taken) {
-        lam_estimate_free(a->estimate);
-        a->estimate = c;
-    } else {
-        lam_estimate_free(c);
-    }
-    return st;
-}
-
-/* The calibration's substrate colour, when this image's fits one oxide
- * near the calibration's, says where the chip is: a fit started there
- * (prior sd COLOUR_PRIOR_SD of the colour's sd, at least
- * COLOUR_PRIOR_MIN_NM) replaces the nominal one when its evidence (the
- * regions' and the colour's) is better. It then stands against
- * the wide search like the nominal fit does. */
-#define COLOUR_PRIOR_SD 3.0
-#define COLOUR_PRIOR_MIN_NM 3.0
-
-static lam_status colour_start(run *r, int *taken, lam_error *err)
-{
-    lam_analysis *a = r->a;
-    int found = 0;
-    double d, sd;
-    lam_estimate *c = NULL;
-    lam_status st = lam__colour_centre(a, r->setup, r->model, &found, &d, &sd, err);
-    *taken = 0;
-    if (st || !found)
-        return st;
-    double prior = fmax(COLOUR_PRIOR_SD * sd, COLOUR_PRIOR_MIN_NM);
-    st = refit(r, d, a->estimate->opt.search_half_nm, prior, &c, err);
-    return st ? st : keep_if_better(r, c, 0, taken, NULL, err);
-}
-
-/* The wide search (see WIDE_HALF_NM). After a doubtful nominal fit
- * (nominal_doubtful) its result is kept wherever it lies when it is
- * markedly better: the nominal fit may have stopped in a poor optimum
- * (the crystals harness' WSe2 JPEGs). After a sound one it only looks for
- * the chip at another interference order: a result within the nominal
- * fit's own search is dropped, since that ground was searched with the
- * setup's prior, which may be a measured oxide. *off: the fit kept lies
- * beyond that search; *rival_nm: a result beyond it that was not kept but
- * is not markedly worse either (NAN when there is none). */
-static lam_status wide_search(run *r, int doubtful, int *off, double *rival_nm, lam_error *err)
-{
-    lam_analysis *a = r->a;
-    lam_estimate *w = NULL;
-    double before = a->estimate->image[0].oxide.value, half = a->estimate->opt.search_half_nm;
-    double gap = 0;
-    int taken = 0;
-    *off = 0;
-    *rival_nm = NAN;
-    lam_status st = refit(r, NAN, WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
-    if (st)
-        return st;
-    double found = w->image[0].oxide.value;
-    int far = fabs(found - before) > half;
-    if (!doubtful && !far) {
-        lam_estimate_free(w);
-        return LAM_OK;
-    }
-    double nominal = w->image[0].oxide.prior_mean;
-    if ((st = keep_if_better(r, w, WIDE_MARGIN, &taken, &gap, err)))
-        return st;
-    *off = taken && fabs(found - nominal) > half;
-    if (!taken && far && gap > -WIDE_MARGIN)
-        *rival_nm = found;
-    return LAM_OK;
-}
-
 /* The joint fit of the shared parameters and the oxide. */
-static lam_status fit_stage(run *r, lam_error *err)
+static lam_status fit_stage(lam__run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
-    int wide = 0, colour = 0;
-    double rival_nm = NAN;
-    lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
-    if (!st && oxide_fitted(a)) {
-        int doubtful = nominal_doubtful(a);
-        if (doubtful)
-            st = colour_start(r, &colour, err);
-        if (!st && (doubtful || lam__microscope_defaulted(r->setup)))
-            st = wide_search(r, doubtful, &wide, &rival_nm, err);
-    }
+    lam__oxide_search o;
+    lam_status st = lam__fit_searched(r, &o, err);
+    int wide = o.off_nominal, colour = o.colour_start;
+    double rival_nm = o.rival_nm;
     /* material hook (issue 14): a TMD's other published n,k, kept when they
      * explain the regions better (lamina/nksource.h) */
     if (!st)
@@ -655,7 +476,7 @@ static lam_status fit_stage(run *r, lam_error *err)
                          "the flakes do not fit the nominal %.1f nm of SiO2; searched %.0f nm "
                          "each side, they fit %.1f +- %.1f nm: check the chip and the setup; "
                          "the layer counts use the fitted value",
-                         a->oxide.nominal, WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
+                         a->oxide.nominal, LAM__WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
     if (isfinite(rival_nm))
         lam_warnings_add(&a->warnings, "oxide-ambiguous",
                          "the flakes fit %.1f nm of SiO2 and nearly as well %.1f nm (about one "
@@ -670,7 +491,7 @@ static lam_status fit_stage(run *r, lam_error *err)
 /* The 1L/2L ladder over the Fermi level, on a 10 nm grid with 6 cone
  * nodes: the conductivity integrals per Fermi level are the cost here,
  * shared out to the analysis' threads (a copy of the model each). */
-static lam_status fermi_table(run *r, lam_fermi_table *ft, lam_error *err)
+static lam_status fermi_table(lam__run *r, lam_fermi_table *ft, lam_error *err)
 {
     lam_setup s = *r->setup;
     s.grid_step_nm = 10;
@@ -716,7 +537,7 @@ static void infer_one(size_t i, void *vctx)
         lam_usable_rectangle(a->seg, &a->seg->regions[i], res->usable_px, res->usable_at);
 }
 
-static void infer_all(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+static void infer_all(lam__run *r, const lam_est_view *v, const lam_fermi_table *ft,
                       const lam_est_view *vr, int rectangles)
 {
     infer_ctx x = {r->a, v, vr, ft, rectangles};
@@ -798,7 +619,7 @@ static void uncounted_keys(const lam_analysis *a, const double fill[3], int *key
  * the denoised pixel noise (the raw sigma / 3 after the 3 x 3 filter): a
  * channel where the monolayer barely shows (often blue) must not make JPEG
  * chroma errors look like features. */
-static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_table *ft,
+static lam_status join_stage(lam__run *r, const lam_est_view *v, const lam_fermi_table *ft,
                              const lam_est_view *vr, lam_error *err)
 {
     lam_analysis *a = r->a;
@@ -827,7 +648,7 @@ static lam_status join_stage(run *r, const lam_est_view *v, const lam_fermi_tabl
     return LAM_OK;
 }
 
-static lam_status posterior_stage(run *r, lam_error *err)
+static lam_status posterior_stage(lam__run *r, lam_error *err)
 {
     lam_analysis *a = r->a;
     lam_infer_options io = r->opt->infer;
@@ -875,7 +696,7 @@ static lam_status analyze_once(const char *path, const lam_setup *setup,
                                const lam_analysis_options *opt, lam_analysis **out,
                                lam_error *err)
 {
-    run r;
+    lam__run r;
     memset(&r, 0, sizeof r);
     r.opt = opt;
     r.setup = setup;

@@ -1,12 +1,53 @@
 /* analyze_internal.h - pieces of the per-image pipeline shared between
- * analyze.c (the stages) and analyze_checks.c (the checks). Not public. */
+ * analyze.c (the stages), analyze_oxide.c (the fit and its oxide
+ * searches), analyze_checks.c (the checks) and the other analyze_*.c.
+ * Not public. */
 #ifndef LAMINA_ANALYZE_INTERNAL_H
 #define LAMINA_ANALYZE_INTERNAL_H
 
 #include "lamina/analyze.h"
+#include "lamina/contrast.h"
+#include "lamina/estimate.h"
 #include "lamina/image.h"
 #include "lamina/model.h"
 #include "lamina/setup.h"
+
+/* One image's analysis while it runs: what its stages (analyze.c) share. */
+typedef struct lam__run {
+    lam_analysis *a;
+    const lam_setup *setup;
+    const lam_analysis_options *opt;
+    lam_image *img;          /* no planes once the contrast is made */
+    lam_contrast_map contrast;
+    lam_model *model;        /* coarse, 40 layers: fits, ladders, posteriors */
+    size_t threads;
+    double t0;
+} lam__run;
+
+/* An estimate for this image with the oxide prior centred on centre_nm
+ * (NAN: the nominal oxide), the search half-width half_nm (NAN: the
+ * options') and the prior's sd oxide_sd (NAN: the setup's), the pooled
+ * prior applied. */
+lam_status lam__new_estimate(lam__run *r, double centre_nm, double half_nm, double oxide_sd,
+                             lam_estimate **out, lam_error *err);
+
+/* How far the wide oxide search looks each side of the nominal oxide. */
+#define LAM__WIDE_HALF_NM 200.0
+
+/* What the oxide's searches after the nominal fit did (analyze_oxide.c). */
+typedef struct lam__oxide_search {
+    int off_nominal;  /* the wide search's fit was kept, beyond the nominal search */
+    int colour_start; /* the fit started at the substrate colour's oxide was kept */
+    double rival_nm;  /* a fit beyond the nominal search, not kept but not markedly
+                       * worse (the image's oxide is ambiguous); NAN when none */
+} lam__oxide_search;
+
+/* The joint fit of r->a->estimate with r->model, then the searches that
+ * check its oxide (analyze_oxide.c: the colour's start when the fit is
+ * doubtful, the wide search when it is doubtful or the microscope is not
+ * given), which may replace r->a->estimate. The regions and their floor
+ * prior must be set. */
+lam_status lam__fit_searched(lam__run *r, lam__oxide_search *out, lam_error *err);
 
 /* The image's channels against the setup's camera: a grey image (one
  * plane, or R = G = B everywhere) needs a one-channel camera and a colour
@@ -37,7 +78,8 @@ void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, siz
  * known only roughly, pressing it towards the colour's made layer counts
  * worse on the accuracy harness); the reported oxide combines the two
  * (oxide_summary in analyze.c). Only when the flakes leave the nominal
- * oxide's search does the colour choose where a fit starts (fit_stage). 'model' is the fit's model. */
+ * oxide's search does the colour choose where a fit starts (colour_start
+ * in analyze_oxide.c). 'model' is the fit's model. */
 lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *model,
                              lam_error *err);
 
@@ -46,7 +88,7 @@ lam_status lam__colour_oxide(lam_analysis *a, const lam_setup *s, lam_model *mod
  * *found is 1 with *oxide_nm and *sigma_nm when the colour fits one
  * oxide there unambiguously; 0 without a recorded colour or three
  * channels. For the fit's choice of a start when the flakes leave the
- * nominal oxide (fit_stage in analyze.c). */
+ * nominal oxide (colour_start in analyze_oxide.c). */
 lam_status lam__colour_centre(const lam_analysis *a, const lam_setup *s, lam_model *model,
                               int *found, double *oxide_nm, double *sigma_nm, lam_error *err);
 

@@ -1,0 +1,185 @@
+/* analyze_oxide.c - the joint fit of one image and the searches that
+ * check its oxide (lam__fit_searched, analyze_internal.h): the nominal
+ * fit, a fit started at the substrate colour's oxide when the nominal one
+ * is doubtful, and the wide search over one interference order each side.
+ * Not public. */
+#include "analyze_internal.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* The chip may not be the oxide the setup says (a 90 nm chip under a
+ * 285 nm profile), and within one interference order (lambda / 2n is
+ * ~190 nm at 550 nm) the colours of N layers at one oxide can mimic those
+ * of about 3N at another once the response and the camera's gain are free:
+ * a 90 nm chip analysed without a setup fitted 279 nm with its 1L read as
+ * 3L at p = 1.000, and nothing in that fit looked wrong (the regions fit;
+ * the search had not run to its edge). So with the microscope not fully
+ * given (the setup's camera, NA or lamp defaulted), and with any setup
+ * when the nominal fit is doubtful, the oxide is checked by a second fit
+ * over one order each side with a wide prior, kept when its regions fit
+ * markedly better (by WIDE_MARGIN in log-likelihood: e^10 to one). When
+ * the second fit lands as far away and is not markedly worse either, the
+ * image is warned: either oxide may be the chip's. With the microscope
+ * given the check changed no count in the robust harness, and it costs a
+ * second fit (0.03 -> 0.17 s for a 1 MP tile), so it is left to the
+ * doubt trigger there (lam__microscope_defaulted). */
+#define WIDE_PRIOR_SD_NM 100.0
+#define WIDE_MARGIN 10.0
+#define DOUBT_UNMODELLED_SHARE 0.3
+
+static int oxide_fitted(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    return im->oxide.fitted && im->regions_used;
+}
+
+/* The nominal fit is doubtful: much of what informs it fits no layer
+ * count, or its oxide ran to the edge of its search. Then a fit started at
+ * the substrate colour's oxide (a calibration's) is tried first. */
+static int nominal_doubtful(const lam_analysis *a)
+{
+    const lam_est_image *im = &a->estimate->image[0];
+    const lam_estimate_options *o = &a->estimate->opt;
+    double off = fabs(im->oxide.value - im->oxide.prior_mean);
+    return im->unmodelled_share > DOUBT_UNMODELLED_SHARE ||
+           off >= o->search_half_nm - 2 * o->search_step_nm;
+}
+
+/* A second fit of the image's regions with the oxide prior centred on
+ * centre_nm (NAN: nominal), sd prior_sd, searched +-half_nm; *out is
+ * NULL on error. */
+static lam_status refit(lam__run *r, double centre_nm, double half_nm, double prior_sd,
+                        lam_estimate **out, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    *out = NULL;
+    lam_status st = lam__new_estimate(r, centre_nm, half_nm, prior_sd, out, err);
+    if (!st) {
+        lam_est_image *im = &(*out)->image[0];
+        im->oxide.lo = fmax(0, im->oxide.prior_mean - half_nm);
+        im->oxide.hi = im->oxide.prior_mean + half_nm;
+        for (size_t c = 0; c < a->channels; c++)
+            lam_estimate_set_floor_prior(*out, c, a->estimate->floor_abs_prior[c]);
+        st = lam_estimate_set_regions(*out, 0, a->measured, a->count, err);
+    }
+    if (!st)
+        st = lam_estimate_fit(*out, r->model, r->model, err);
+    if (st) {
+        lam_estimate_free(*out);
+        *out = NULL;
+    }
+    return st;
+}
+
+/* A fit's evidence: its regions' log-likelihood, and with a recorded
+ * substrate colour the colour's at its oxide, so that fits at different
+ * oxides compete on all the image says. */
+static lam_status evidence(lam__run *r, const lam_estimate *e, double *out, lam_error *err)
+{
+    double colour;
+    lam_status st = lam__colour_loglik(r->a, e, r->setup, r->model, &colour, err);
+    *out = e->image[0].data_loglik + colour;
+    return st;
+}
+
+/* Keep candidate c instead of the analysis' estimate when its evidence
+ * beats it by 'margin' (*taken). *gap: the candidate's evidence minus the
+ * estimate's (may be NULL). */
+static lam_status keep_if_better(lam__run *r, lam_estimate *c, double margin, int *taken,
+                                 double *gap, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    double ec = 0, ea = 0;
+    lam_status st = evidence(r, c, &ec, err);
+    if (!st)
+        st = evidence(r, a->estimate, &ea, err);
+    *taken = !st && ec > ea + margin;
+    if (gap)
+        *gap = ec - ea;
+    if (*taken) {
+        lam_estimate_free(a->estimate);
+        a->estimate = c;
+    } else {
+        lam_estimate_free(c);
+    }
+    return st;
+}
+
+/* The calibration's substrate colour, when this image's fits one oxide
+ * near the calibration's, says where the chip is: a fit started there
+ * (prior sd COLOUR_PRIOR_SD of the colour's sd, at least
+ * COLOUR_PRIOR_MIN_NM) replaces the nominal one when its evidence (the
+ * regions' and the colour's) is better. It then stands against
+ * the wide search like the nominal fit does. */
+#define COLOUR_PRIOR_SD 3.0
+#define COLOUR_PRIOR_MIN_NM 3.0
+
+static lam_status colour_start(lam__run *r, int *taken, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    int found = 0;
+    double d, sd;
+    lam_estimate *c = NULL;
+    lam_status st = lam__colour_centre(a, r->setup, r->model, &found, &d, &sd, err);
+    *taken = 0;
+    if (st || !found)
+        return st;
+    double prior = fmax(COLOUR_PRIOR_SD * sd, COLOUR_PRIOR_MIN_NM);
+    st = refit(r, d, a->estimate->opt.search_half_nm, prior, &c, err);
+    return st ? st : keep_if_better(r, c, 0, taken, NULL, err);
+}
+
+/* The wide search (see LAM__WIDE_HALF_NM). After a doubtful nominal fit
+ * (nominal_doubtful) its result is kept wherever it lies when it is
+ * markedly better: the nominal fit may have stopped in a poor optimum
+ * (the crystals harness' WSe2 JPEGs). After a sound one it only looks for
+ * the chip at another interference order: a result within the nominal
+ * fit's own search is dropped, since that ground was searched with the
+ * setup's prior, which may be a measured oxide. *off: the fit kept lies
+ * beyond that search; *rival_nm: a result beyond it that was not kept but
+ * is not markedly worse either (NAN when there is none). */
+static lam_status wide_search(lam__run *r, int doubtful, int *off, double *rival_nm,
+                              lam_error *err)
+{
+    lam_analysis *a = r->a;
+    lam_estimate *w = NULL;
+    double before = a->estimate->image[0].oxide.value, half = a->estimate->opt.search_half_nm;
+    double gap = 0;
+    int taken = 0;
+    *off = 0;
+    *rival_nm = NAN;
+    lam_status st = refit(r, NAN, LAM__WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w, err);
+    if (st)
+        return st;
+    double found = w->image[0].oxide.value;
+    int far = fabs(found - before) > half;
+    if (!doubtful && !far) {
+        lam_estimate_free(w);
+        return LAM_OK;
+    }
+    double nominal = w->image[0].oxide.prior_mean;
+    if ((st = keep_if_better(r, w, WIDE_MARGIN, &taken, &gap, err)))
+        return st;
+    *off = taken && fabs(found - nominal) > half;
+    if (!taken && far && gap > -WIDE_MARGIN)
+        *rival_nm = found;
+    return LAM_OK;
+}
+
+lam_status lam__fit_searched(lam__run *r, lam__oxide_search *out, lam_error *err)
+{
+    lam_analysis *a = r->a;
+    out->off_nominal = out->colour_start = 0;
+    out->rival_nm = NAN;
+    lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    if (st || !oxide_fitted(a))
+        return st;
+    int doubtful = nominal_doubtful(a);
+    if (doubtful)
+        st = colour_start(r, &out->colour_start, err);
+    if (!st && (doubtful || lam__microscope_defaulted(r->setup)))
+        st = wide_search(r, doubtful, &out->off_nominal, &out->rival_nm, err);
+    return st;
+}
