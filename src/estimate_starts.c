@@ -208,14 +208,21 @@ static void begin_start(lam_estimate *e, const saved_point *first, const start_p
     apply_start(e, sp);
 }
 
-/* A start whose settling reads the best reading so far (settle_seeded)
- * must wait for the starts before it; the others are independent. */
+/* A start whose settling reads the best reading so far (settle_seeded):
+ * its result holds only if the best reading is still the one it read when
+ * its turn comes in the list's order. */
 static int start_seeded(const lam_estimate *e, const start_point *sp)
 {
     return sp->alt < 0 && lam__curves_unknown(e);
 }
 
-/* What an independent start settled to. */
+/* The count ratio a seeded start reads the best reading with. */
+static double seed_ratio(const start_point *sp)
+{
+    return sp->alt == START_DOUBLED ? 2.0 : 0.5;
+}
+
+/* What a start settled to. */
 typedef struct start_result {
     saved_point pt;
     uint8_t *sig;
@@ -225,11 +232,12 @@ typedef struct start_result {
     lam_error err;
 } start_result;
 
-/* The independent starts, in slices on the fit's threads: slice 0 on the
- * fit itself, every other slice on a copy of the estimate and of the
- * model (the model keeps caches), made before the threads start. A
- * start's result depends only on its start point, so it is the same on
- * any slice and for any thread count. */
+/* The starts, in slices on the fit's threads: slice 0 on the fit itself,
+ * every other slice on a copy of the estimate and of the model (the model
+ * keeps caches), made before the threads start. A start's result depends
+ * only on its start point and, for a seeded start, on the best reading it
+ * is given (the first start's, 'seed'), so it is the same on any slice and
+ * for any thread count. */
 typedef struct worker {
     fit_ctx g;
     lam_estimate *copy;
@@ -241,7 +249,7 @@ typedef struct starts_job {
     worker *crew;        /* slices 1.. */
     const mode_set *m;
     const start_point *sp;
-    const size_t *which; /* indices into sp of the independent starts */
+    const uint8_t *seed; /* the first start's reading, for the seeded starts */
     start_result *res;
 } starts_job;
 
@@ -249,8 +257,12 @@ static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
 {
     start_result *r = &job->res[k];
     size_t before = g->e->iterations;
-    begin_start(g->e, &job->m->first, &job->sp[job->which[k]]);
-    r->st = lam__fit_settle(g, &r->lp, &r->err);
+    const start_point *sp = &job->sp[k];
+    begin_start(g->e, &job->m->first, sp);
+    if (start_seeded(g->e, sp))
+        r->st = settle_seeded(g, job->seed, seed_ratio(sp), &r->lp, &r->err);
+    else
+        r->st = lam__fit_settle(g, &r->lp, &r->err);
     r->iterations = g->e->iterations - before;
     g->e->iterations = before; /* added to the fit's count in the list's order */
     if (!r->st) {
@@ -322,55 +334,51 @@ static start_result *alloc_results(const lam_estimate *e, size_t n, size_t regio
 }
 
 /* The other starts (grid maxima, the doubled and halved scale), each
- * settled and kept in the order of the list: the independent ones first,
- * side by side, then the seeded ones in turn. */
+ * settled and kept in the order of the list. They settle side by side, a
+ * seeded start with the first start's reading; when a start before it in
+ * the list has changed the best reading by its turn, it settles again, in
+ * turn, with that one (rare: the first start is the grid's best cell). */
 lam_status lam__multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *err)
 {
     lam_estimate *e = f->e;
     start_point sp[16];
-    size_t n = list_starts(e, sp, 16), which[16], nind = 0, at[16];
+    size_t n = list_starts(e, sp, 16);
     lam__fit_save_point(e, &m->best);
     lam__fit_save_point(e, &m->first);
     signature(e, f->w, m->sig_best);
     m->best_lp = *logpost;
-    for (size_t i = 0; i < n; i++) {
-        at[i] = SIZE_MAX; /* seeded: settled in turn below */
-        if (!start_seeded(e, &sp[i])) {
-            which[nind] = i;
-            at[i] = nind++;
-        }
-    }
-    start_result *res = alloc_results(e, nind, m->regions);
-    if (!res)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
-    size_t threads = lam_parallel_slices(nind, e->opt.threads);
+    uint8_t *seed = malloc(m->regions ? m->regions : 1);
+    start_result *res = alloc_results(e, n, m->regions);
+    lam_status st = seed && res ? LAM_OK
+                                : lam_error_set(err, LAM_ENOMEM, "cannot allocate the multistart");
+    size_t threads = lam_parallel_slices(n, e->opt.threads);
     worker *crew = NULL;
-    lam_status st = crew_alloc(f, threads, &crew, err);
-    if (!st) {
-        starts_job job = {f, crew, m, sp, which, res};
-        lam_parallel_for(nind, threads, settle_slice, &job);
+    if (!st && !(st = crew_alloc(f, threads, &crew, err))) {
+        memcpy(seed, m->sig_best, m->regions);
+        starts_job job = {f, crew, m, sp, seed, res};
+        lam_parallel_for(n, threads, settle_slice, &job);
         crew_free(crew, threads - 1);
     }
     for (size_t i = 0; i < n && !st; i++) {
-        start_result *r = at[i] == SIZE_MAX ? NULL : &res[at[i]];
-        if (r) {
-            e->iterations += r->iterations;
-            if ((st = r->st))
-                *err = r->err;
-            else
-                keep(m, r->sig, &r->pt, r->lp, e->images);
+        start_result *r = &res[i];
+        if (start_seeded(e, &sp[i]) && memcmp(seed, m->sig_best, m->regions)) {
+            double lp;
+            begin_start(e, &m->first, &sp[i]);
+            if (!(st = settle_seeded(f, m->sig_best, seed_ratio(&sp[i]), &lp, err)))
+                consider(f, m, lp);
             continue;
         }
-        double lp, ratio = sp[i].alt == START_DOUBLED ? 2.0 : 0.5;
-        begin_start(e, &m->first, &sp[i]);
-        if (!(st = settle_seeded(f, m->sig_best, ratio, &lp, err)))
-            consider(f, m, lp);
+        e->iterations += r->iterations;
+        if ((st = r->st))
+            *err = r->err;
+        else
+            keep(m, r->sig, &r->pt, r->lp, e->images);
     }
-    free_results(res, nind);
+    free_results(res, n);
+    free(seed);
     if (!st) {
         lam__fit_restore_point(e, &m->best);
         st = lam__fit_objective(e, f->model, f->w, logpost, err);
     }
     return st;
 }
-
