@@ -346,26 +346,36 @@ double lam__logsumexp(const double *x, size_t n)
     return top + log(s);
 }
 
-/* The "thicker" hypothesis while fitting: a broad density over the span of
- * the thick entries (per channel from the least to the most contrast of
- * K+1..top, widened by three floors), not the mixture of sharp entries.
- * Otherwise a graphite flake far beyond the model's reach would pull the
- * shared parameters (a smaller contrast scale lets more of them land on
- * some entry); only thin flakes should inform the fit. The region
- * posteriors (infer.c) use the sharp entries. */
-static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
-                                 const lam_prediction *ladder)
+void lam__thick_span_of(const lam_estimate *e, const lam_prediction *ladder, lam__thick_span *t)
 {
-    size_t K = e->max_layers, top = ladder->max_layers, nc = e->channels;
-    if (top <= K)
-        return -INFINITY;
-    double s = 0, span = 1;
-    for (size_t c = 0; c < nc; c++) {
+    size_t K = e->max_layers, top = ladder->max_layers;
+    t->any = top > K;
+    for (size_t c = 0; c < e->channels; c++) {
         double lo = INFINITY, hi = -INFINITY;
         for (size_t N = K + 1; N <= top; N++) {
             lo = fmin(lo, ladder->contrast[N][c]);
             hi = fmax(hi, ladder->contrast[N][c]);
         }
+        t->lo[c] = lo;
+        t->hi[c] = hi;
+    }
+}
+
+/* The "thicker" hypothesis while fitting: a broad density over the span of
+ * the thick entries (per channel from the least to the most contrast of
+ * K+1..top, t, widened by three floors), not the mixture of sharp entries.
+ * Otherwise a graphite flake far beyond the model's reach would pull the
+ * shared parameters (a smaller contrast scale lets more of them land on
+ * some entry); only thin flakes should inform the fit. The region
+ * posteriors (infer.c) use the sharp entries. */
+static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
+                                 const lam__thick_span *t)
+{
+    if (!t->any)
+        return -INFINITY;
+    double s = 0, span = 1;
+    for (size_t c = 0; c < e->channels; c++) {
+        double lo = t->lo[c], hi = t->hi[c];
         double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, hi));
         lo -= 3 * f, hi += 3 * f;
         double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
@@ -430,6 +440,14 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt)
 {
+    lam__thick_span t;
+    lam__thick_span_of(e, ladder, &t);
+    lam__region_logterms_in(e, r, ladder, &t, lt);
+}
+
+void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
+                             const lam_prediction *ladder, const lam__thick_span *t, double *lt)
+{
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
     double var[LAM_MAX_CHANNELS];
     /* the priors of 1..K are equal (lam_hypothesis_prior): two logarithms */
@@ -441,7 +459,7 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
         lt[h] = (h ? lp_layers : lp_substrate) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
-    lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, ladder);
+    lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, t);
     lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, ladder);
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */

@@ -145,17 +145,27 @@ double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction 
     return lam__image_logpost_with(e, j, ladder, prior_term(&e->image[j].oxide), resp);
 }
 
+/* exp(d), or 0 below -746, where exp gives 0 anyway (it underflows below
+ * -745.14): glibc's exp takes a slow path for such arguments (it sets
+ * errno), and most of a region's hypotheses lie that far below its best. */
+static double exp_or_zero(double d)
+{
+    return d < -746.0 ? 0.0 : exp(d);
+}
+
 double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                                double oxide_prior, double *resp)
 {
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
     double lt[LAM_MODEL_MAX_LAYERS + 3], total = oxide_prior;
+    lam__thick_span t;
+    lam__thick_span_of(e, ladder, &t);
     for (size_t i = 0; i < im->count; i++) {
         const lam_est_region *r = &im->regions[i];
         if (!r->use)
             continue;
-        lam__region_logterms(e, r, ladder, lt);
+        lam__region_logterms_in(e, r, ladder, &t, lt);
         double top = -INFINITY, sum = 0;
         for (size_t h = 0; h < H; h++)
             top = fmax(top, lt[h]);
@@ -166,7 +176,7 @@ double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_predic
             continue;
         }
         for (size_t h = 0; h < H; h++) /* each exponential once: the sum and the shares */
-            sum += (lt[h] = exp(lt[h] - top));
+            sum += (lt[h] = exp_or_zero(lt[h] - top));
         total += top + log(sum);
         if (resp)
             for (size_t h = 0; h < H; h++)

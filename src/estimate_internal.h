@@ -21,6 +21,22 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt);
 
+/* What the "thick" hypothesis of the fit reads of a ladder, the same for
+ * every region: the least and most contrast of entries K+1..top per
+ * channel (any: the ladder has such entries). */
+typedef struct lam__thick_span {
+    double lo[LAM_MAX_CHANNELS], hi[LAM_MAX_CHANNELS];
+    int any;
+} lam__thick_span;
+
+void lam__thick_span_of(const lam_estimate *e, const lam_prediction *ladder, lam__thick_span *t);
+
+/* lam__region_logterms with the ladder's thick span t made once for all
+ * the regions scored against it (the same values: the innermost call of
+ * the fit's starting grid). */
+void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
+                             const lam_prediction *ladder, const lam__thick_span *t, double *lt);
+
 /* The model parameter (LAM_MP_*) a shared nuisance moves, or -1 for the
  * gains (applied outside the model). */
 int lam__model_param_of(int nuisance);
