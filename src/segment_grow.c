@@ -720,8 +720,10 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
     size_t nb = 0;
     while (nb < BATCH && c->b < PAIR_BUCKETS) {
         if (c->i < c->e) {
+            /* only the band's last strip holds pairs that cross (its last
+             * row's, down): the test's divisions are spared the others */
             uint32_t p = pair_at(L, c->s, c->i++);
-            if (!crosses(L, w, p))
+            if (c->s + 1 < c->s1 || !crosses(L, w, p))
                 batch[nb++] = p;
             continue;
         }
