@@ -128,7 +128,6 @@ void lam_shared_prior_apply(const lam_shared_prior *p, lam_estimate *e)
 
 /* ---- stages ---- */
 
-
 #define MARK(r, k) ((r)->a->seconds[k] = lam_clock_seconds() - (r)->t0)
 
 static const char *camera_name(lam_camera_kind k)
@@ -451,8 +450,6 @@ static lam_status fit_stage(lam__run *r, lam_error *err)
     lam_analysis *a = r->a;
     lam__oxide_search o;
     lam_status st = lam__fit_searched(r, &o, err);
-    int wide = o.off_nominal, colour = o.colour_start;
-    double rival_nm = o.rival_nm;
     /* material hook (issue 14): a TMD's other published n,k, kept when they
      * explain the regions better (lamina/nksource.h) */
     if (!st)
@@ -465,25 +462,25 @@ static lam_status fit_stage(lam__run *r, lam_error *err)
     if (st)
         return st;
     oxide_summary(a, r->opt);
-    if (colour && !wide) {
+    if (o.colour_start && !o.off_nominal) {
         size_t n = strlen(a->oxide.method);
         snprintf(a->oxide.method + n, sizeof a->oxide.method - n,
                  "; started at the substrate colour's oxide (the flakes left the nominal one's "
                  "search)");
     }
-    if (wide)
+    if (o.off_nominal)
         lam_warnings_add(&a->warnings, "oxide-off-nominal",
                          "the flakes do not fit the nominal %.1f nm of SiO2; searched %.0f nm "
                          "each side, they fit %.1f +- %.1f nm: check the chip and the setup; "
                          "the layer counts use the fitted value",
                          a->oxide.nominal, LAM__WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
-    if (isfinite(rival_nm))
+    if (isfinite(o.rival_nm))
         lam_warnings_add(&a->warnings, "oxide-ambiguous",
                          "the flakes fit %.1f nm of SiO2 and nearly as well %.1f nm (about one "
                          "interference order apart, where N layers look like others): the "
                          "layer counts assume %.1f nm; confirm the chip's oxide (a setup, its "
                          "colour, or a calibration)",
-                         a->oxide.estimate, rival_nm, a->oxide.estimate);
+                         a->oxide.estimate, o.rival_nm, a->oxide.estimate);
     MARK(r, LAM_T_OXIDE);
     return LAM_OK;
 }

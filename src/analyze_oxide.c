@@ -7,7 +7,6 @@
 
 #include <math.h>
 #include <stdlib.h>
-#include <string.h>
 
 /* The chip may not be the oxide the setup says (a 90 nm chip under a
  * 285 nm profile), and within one interference order (lambda / 2n is
@@ -132,7 +131,7 @@ static lam_status colour_start(lam__run *r, int *taken, lam_error *err)
     return st ? st : keep_if_better(r, c, 0, taken, NULL, err);
 }
 
-/* The wide search (see LAM__WIDE_HALF_NM). After a doubtful nominal fit
+/* The wide search (see the top of this file). After a doubtful nominal fit
  * (nominal_doubtful) its result is kept wherever it lies when it is
  * markedly better: the nominal fit may have stopped in a poor optimum
  * (the crystals harness' WSe2 JPEGs). After a sound one it only looks for

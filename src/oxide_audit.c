@@ -34,10 +34,12 @@ static lam_status image_profile(const lam_analysis *a, lam_model *m, double d, l
     lam_estimate_observe(e, P);
     size_t H = e->max_layers + 3;
     double lt[LAM_MODEL_MAX_LAYERS + 3], total = 0;
+    lam__thick_span t;
+    lam__thick_span_of(e, P, &t);
     for (size_t i = 0; i < a->count; i++) {
         if (!profile_region(a, i))
             continue;
-        lam__region_logterms(e, &a->measured[i], P, lt);
+        lam__region_logterms_in(e, &a->measured[i], P, &t, lt);
         total += lam__logsumexp(lt, H);
     }
     *out = -2 * total;
