@@ -292,7 +292,8 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
  * labelled; they only do not steer the oxide and the response. */
 #define FIT_MIN_IMAGE_SHARE 2e-5
 
-void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads)
+lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads,
+                                lam_error *err)
 {
     a->count = a->seg->count;
     double least = FIT_MIN_IMAGE_SHARE * (double)(a->width * a->height);
@@ -302,7 +303,7 @@ void lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, siz
         if ((double)a->seg->regions[i].interior < least)
             a->measured[i].use = 0;
     }
-    lam_segment_edge_areas(contrast, a->channels, threads, a->seg);
+    return lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err);
 }
 
 #define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */
@@ -374,7 +375,8 @@ static lam_status segment_stage(lam__run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    lam__measure_regions(a, &r->contrast, r->threads);
+    if ((st = lam__measure_regions(a, &r->contrast, r->threads, err)))
+        return st;
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -640,7 +642,8 @@ static lam_status join_stage(lam__run *r, const lam_est_view *v, const lam_fermi
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, &r->contrast, r->threads);
+    if ((st = lam__measure_regions(a, &r->contrast, r->threads, err)))
+        return st;
     infer_all(r, v, ft, vr, 1);
     return LAM_OK;
 }

@@ -352,8 +352,7 @@ static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, 
     free(map);
     if (st)
         return st;
-    lam__measure_regions(a, contrast, lam_parallel_default());
-    return LAM_OK;
+    return lam__measure_regions(a, contrast, lam_parallel_default(), err);
 }
 
 /* Every region's posterior under the table at the oxide's nodes, the parts

@@ -134,8 +134,9 @@ static void join_threads(void)
                        !memcmp(one->cls, three->cls, (size_t)W * H) &&
                        !memcmp(one->regions, three->regions, one->count * sizeof *one->regions),
                    "the same regions, labels and classes with 3 threads as with 1");
-        lam_segment_edge_areas(&map, 3, 1, one);
-        lam_segment_edge_areas(&map, 3, 3, three);
+        check_true(!lam_segment_edge_areas(&map, 3, 1, one, &err) &&
+                       !lam_segment_edge_areas(&map, 3, 3, three, &err),
+                   "edge areas with 1 and 3 threads");
         size_t same = 0, edges = 0;
         for (size_t i = 0; i < one->count && i < three->count; i++)
             same += one->regions[i].edge == three->regions[i].edge, edges += one->regions[i].edge;
@@ -241,6 +242,148 @@ static void rescue_cores_match_definition(void)
     free(cls);
 }
 
+/* lam_segment_edge_areas against its definition, written out here the
+ * plain way: each transition pixel (no label, not substrate) goes to the
+ * side within 4 px (Chebyshev) - a region with an interior that is not a
+ * ribbon, or the substrate at zero contrast - whose mean it is nearest in
+ * squared distance; sides are taken in raster order of the window, at
+ * most 8, the first of equals wins. Random maps: rectangles of regions,
+ * substrate and transition, then (every third trial) a salt of single
+ * pixels of 14 labels, so that windows hold more than 8 sides and runs
+ * of one pixel. */
+enum { EW = 61, EH = 47, EREGIONS = 14 };
+
+static double edge_mean(const lam_segmentation *s, uint32_t l, int c)
+{
+    const lam_region_stats *r = &s->regions[l - 1];
+    return r->sum[c] / (double)r->interior;
+}
+
+static int edge_side_ok(const lam_segmentation *s, uint32_t l)
+{
+    return !l || (s->regions[l - 1].interior && s->regions[l - 1].depth_max >= LAM_RIBBON_DEPTH);
+}
+
+static uint32_t edge_owner_brute(const lam_segmentation *s, const lam_contrast_map *m, size_t x,
+                                 size_t y)
+{
+    uint32_t seen[8], owner = 0;
+    size_t n = 0;
+    double best = INFINITY;
+    for (size_t v = y >= 4 ? y - 4 : 0; v <= y + 4 && v < EH; v++)
+        for (size_t u = x >= 4 ? x - 4 : 0; u <= x + 4 && u < EW; u++) {
+            size_t k = v * EW + u, i = 0;
+            uint32_t l = s->label[k];
+            if (!l && s->cls[k] != LAM_CLASS_SUBSTRATE)
+                continue;
+            while (i < n && seen[i] != l)
+                i++;
+            if (i == n && n < 8)
+                seen[n++] = l;
+        }
+    for (size_t i = 0; i < n; i++) {
+        double d = 0;
+        if (!edge_side_ok(s, seen[i]))
+            continue;
+        for (int c = 0; c < 3; c++) {
+            double v = lam_contrast_value(m, (size_t)c, y * EW + x);
+            double mean = seen[i] ? edge_mean(s, seen[i], c) : 0;
+            d += (v - mean) * (v - mean);
+        }
+        if (d < best)
+            best = d, owner = seen[i];
+    }
+    return owner;
+}
+
+static unsigned long edge_rand(unsigned long *state)
+{
+    *state = *state * 6364136223846793005ul + 1442695040888963407ul;
+    return *state >> 24;
+}
+
+/* A random map of labels and classes, region statistics and contrasts. */
+static void edge_random_map(lam_segmentation *s, lam_contrast_map *m, int trial,
+                            unsigned long *st)
+{
+    memset(s->label, 0, EW * EH * sizeof *s->label);
+    memset(s->cls, LAM_CLASS_SUBSTRATE, EW * EH);
+    for (int b = 0; b < 12; b++) {
+        size_t x0 = edge_rand(st) % EW, y0 = edge_rand(st) % EH;
+        size_t bw = 2 + edge_rand(st) % 20, bh = 2 + edge_rand(st) % 15;
+        uint32_t l = (uint32_t)(edge_rand(st) % (EREGIONS + 2)); /* 0: substrate, 15: transition */
+        for (size_t y = y0; y < y0 + bh && y < EH; y++)
+            for (size_t x = x0; x < x0 + bw && x < EW; x++) {
+                s->label[y * EW + x] = l <= EREGIONS ? l : 0;
+                s->cls[y * EW + x] = l == 0 ? LAM_CLASS_SUBSTRATE : l <= EREGIONS ? 1 : LAM_CLASS_NONE;
+            }
+    }
+    for (size_t k = 0; trial % 3 == 2 && k < EW * EH; k++)
+        if (edge_rand(st) % 3 == 0) {
+            uint32_t l = (uint32_t)(edge_rand(st) % (EREGIONS + 2));
+            s->label[k] = l <= EREGIONS ? l : 0;
+            s->cls[k] = l == 0 ? LAM_CLASS_SUBSTRATE : l <= EREGIONS ? 1 : LAM_CLASS_NONE;
+        }
+    for (size_t k = 0; k < EW * EH; k++) /* transition pixels between the rectangles too */
+        if (edge_rand(st) % 5 == 0)
+            s->label[k] = 0, s->cls[k] = LAM_CLASS_NONE;
+    for (uint32_t i = 0; i < EREGIONS; i++) {
+        lam_region_stats *r = &s->regions[i];
+        memset(r, 0, sizeof *r);
+        r->id = i + 1;
+        r->interior = i % 5 == 4 ? 0 : 10 + edge_rand(st) % 50;
+        r->depth_max = i % 4 == 3 ? LAM_RIBBON_DEPTH - 1 : LAM_RIBBON_DEPTH + 2;
+        for (int c = 0; c < 3; c++) /* means on the map's grid, some equal: ties */
+            r->sum[c] = (double)r->interior * (double)(edge_rand(st) % 8) / 64.0;
+    }
+    for (int c = 0; c < 3; c++)
+        for (size_t k = 0; k < EW * EH; k++)
+            m->plane[c][k] = (uint16_t)(LAM_CONTRAST_UNIT - edge_rand(st) % 600);
+}
+
+static void edge_areas_match_definition(void)
+{
+    lam_segmentation *s = NULL;
+    lam_error err;
+    lam_contrast_map m;
+    memset(&m, 0, sizeof m);
+    m.width = EW, m.height = EH;
+    m.plane[0] = malloc(3 * EW * EH * sizeof *m.plane[0]);
+    lam_region_stats *regions = malloc(EREGIONS * sizeof *regions);
+    if (!check_true(m.plane[0] && regions && !lam_segmentation_alloc(EW, EH, &s, &err),
+                    "edge-area maps allocated")) {
+        free(m.plane[0]);
+        free(regions);
+        lam_segmentation_free(s);
+        return;
+    }
+    m.plane[1] = m.plane[0] + EW * EH, m.plane[2] = m.plane[1] + EW * EH;
+    free(s->regions);
+    s->regions = regions, s->count = EREGIONS;
+    unsigned long state = 2024;
+    size_t wrong = 0, owned = 0;
+    for (int trial = 0; trial < 9; trial++) {
+        edge_random_map(s, &m, trial, &state);
+        size_t want[EREGIONS] = {0};
+        for (size_t y = 0; y < EH; y++)
+            for (size_t x = 0; x < EW; x++) {
+                uint32_t l = s->label[y * EW + x];
+                if (!l && s->cls[y * EW + x] != LAM_CLASS_SUBSTRATE &&
+                    (l = edge_owner_brute(s, &m, x, y)) != 0)
+                    want[l - 1]++, owned++;
+            }
+        for (size_t threads = 1; threads <= 2; threads++) {
+            wrong += lam_segment_edge_areas(&m, 3, threads, s, &err) != LAM_OK;
+            for (size_t i = 0; i < EREGIONS; i++)
+                wrong += s->regions[i].edge != want[i];
+        }
+    }
+    check_int((long)wrong, 0, "edge areas are those of the nearest side in the 9 x 9 window");
+    check_true(owned > 1000, "the maps hold transition pixels that regions own (%zu)", owned);
+    free(m.plane[0]);
+    lam_segmentation_free(s);
+}
+
 /* An image wider than 32768 px (strips of one row, pair lists of 32-bit
  * pixel indices, not 16-bit codes), with a band border every 8 rows: a
  * monolayer block across 20 rows is one region of its area, the same for
@@ -288,6 +431,7 @@ int main(void)
     check_begin("test_segment");
     test_rescue_cores();
     rescue_cores_match_definition();
+    edge_areas_match_definition();
     wide_image();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))

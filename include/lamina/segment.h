@@ -143,9 +143,10 @@ lam_status lam_segment_regions(const lam_contrast_map *contrast, const lam_segme
  * step. Sets every region's edge count; the band is a fixed number of
  * pixels wide, so without it a flake's area would depend on the
  * magnification. Rows are shared out to 'threads' threads (the counts are
- * the same for any number). */
-void lam_segment_edge_areas(const lam_contrast_map *contrast, size_t channels, size_t threads,
-                            lam_segmentation *seg);
+ * the same for any number). LAM_ENOMEM only (the edge counts are then
+ * left as they were). */
+lam_status lam_segment_edge_areas(const lam_contrast_map *contrast, size_t channels, size_t threads,
+                                  lam_segmentation *seg, lam_error *err);
 
 /* A region's area in pixels up to its half-contrast edge: area + edge. */
 double lam_region_area(const lam_region_stats *r);
