@@ -455,11 +455,11 @@ static uint32_t region_sums(const merge_state *m, uint32_t r, float sum[3])
     uint32_t s = m->node[r] & ~ROOT;
     uintptr_t single = 0u - (uintptr_t)(s == SINGLE); /* all ones for one pixel */
     const slot *z = &m->slots[s & ~(uint32_t)single];
-    float own[3] = {0, 0, 0};
-    for (size_t c = 0; c < m->channels; c++)
+    float own[3];
+    for (size_t c = 0; c < 3; c++) /* all three: a fixed count the compiler unrolls */
         own[c] = lam_contrast_of(m->plane[c][r]);
     const float *src = (const float *)(((uintptr_t)own & single) | ((uintptr_t)z->sum & ~single));
-    for (size_t c = 0; c < m->channels; c++)
+    for (size_t c = 0; c < 3; c++)
         sum[c] = src[c];
     return (uint32_t)((1u & (uint32_t)single) | (z->count & ~(uint32_t)single));
 }
@@ -525,7 +525,7 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, const float *sa, const
     }
     slot *z = &m->slots[keep];
     z->count = count;
-    for (size_t c = 0; c < m->channels; c++)
+    for (size_t c = 0; c < 3; c++)
         z->sum[c] = sa[c] + sb[c];
     uint32_t root = a < b ? a : b, child = a < b ? b : a;
     m->node[child] = root; /* the smaller index stays the root */
@@ -964,7 +964,7 @@ static lam_status grow(const lam_contrast_map *img, size_t channels, const doubl
     memcpy(m.delta, delta, sizeof m.delta);
     memcpy(m.sigma, sigma, sizeof m.sigma);
     m.channels = channels;
-    for (size_t c = 0; c < channels; c++)
+    for (size_t c = 0; c < 3; c++) /* a grey map's three planes are equal */
         m.plane[c] = img->plane[c];
     m.node = seg->label; /* the union-find becomes the label map */
     init_ctx ic = {m.node, w};
