@@ -2,6 +2,7 @@
  * flat field B, then a light 3 x 3 box filter (lamina/contrast.h). */
 #include "lamina/contrast.h"
 #include "lamina/parallel.h"
+#include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -22,6 +23,7 @@ typedef struct contrast_ctx {
  * rows of one cell, so a pixel costs two multiply-adds per channel on
  * vector units. The float expression per pixel is the one of a direct
  * evaluation, term by term. */
+LAM_VECTOR_CLONES
 static void contrast_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     contrast_ctx *cc = vctx;
@@ -125,14 +127,23 @@ static void save_halo(size_t begin, size_t end, size_t slice, void *vctx)
     }
 }
 
-static void hsum(const float *r, float *dst, size_t w)
+/* The sums of each pixel and its two neighbours along a row (edges
+ * replicate), each as (left + centre) + right; the ends apart, so that the
+ * inner loop runs on vector units. */
+LAM_VECTOR_CLONES
+static void hsum(const float *restrict r, float *restrict dst, size_t w)
 {
-    for (size_t x = 0; x < w; x++) {
-        float a = r[x ? x - 1 : 0], b = r[x], c = r[x + 1 < w ? x + 1 : x];
-        dst[x] = a + b + c;
+    if (w == 1) {
+        dst[0] = r[0] + r[0] + r[0];
+        return;
     }
+    dst[0] = r[0] + r[0] + r[1];
+    for (size_t x = 1; x + 1 < w; x++)
+        dst[x] = r[x - 1] + r[x] + r[x + 1];
+    dst[w - 1] = r[w - 2] + r[w - 1] + r[w - 1];
 }
 
+LAM_VECTOR_CLONES
 static void denoise_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     denoise_ctx *d = vctx;

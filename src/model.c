@@ -4,6 +4,7 @@
 #include "lamina/model.h"
 #include "lamina/tmm.h"
 #include "basis_cache_internal.h"
+#include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -707,6 +708,7 @@ static double load_items(const lam_model *m, const substrate_slot *s, size_t l, 
 }
 
 /* One ambient gap (characteristic matrix) on every item's fields. */
+LAM_VECTOR_CLONES
 static void items_gap(stack_items *restrict it)
 {
     for (size_t i = 0; i < it->n; i++) {
@@ -721,6 +723,7 @@ static void items_gap(stack_items *restrict it)
 /* One sheet (C += y B) and every item's reflectance
  * |eta0 B - C|^2 / |eta0 B + C|^2; returns their weighted sum, added in
  * item order. */
+LAM_VECTOR_CLONES
 static double items_sheet(stack_items *restrict it, double yr, double yi)
 {
     for (size_t i = 0; i < it->n; i++) {

@@ -6,6 +6,7 @@
 #include "lamina/bigalloc.h"
 #include "segment_internal.h"
 #include "lamina/parallel.h"
+#include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -53,6 +54,7 @@ static int32_t fixed_threshold(float t)
  * two pixels or t4 across four, along the row or the column, in whole
  * steps of the map (s2, s4: fixed_threshold; the same decisions as in
  * contrast units, at integer cost). */
+LAM_VECTOR_CLONES
 static void edge_test(const uint16_t *restrict q, size_t w, int32_t s2, int32_t s4,
                       int32_t *restrict acc)
 {
@@ -564,6 +566,7 @@ typedef struct pair_ctx {
  * NO_BUCKET where either pixel is not provisional or they differ by
  * PAIR_RANGE deltas or more. Branch-free per channel (vectorised); the
  * arithmetic is that of one pair at a time. f: n doubles of scratch. */
+LAM_VECTOR_CLONES
 static void row_buckets(const pair_ctx *p, size_t k0, size_t off, size_t n, double *restrict f,
                         int32_t *restrict b, uint16_t *restrict out)
 {
