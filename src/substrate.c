@@ -74,57 +74,86 @@ typedef struct tile_ctx {
     const lam_image *img;
     size_t T, nx;
     tile_stat *ts;
+    int failed; /* a slice could not allocate its sums */
 } tile_ctx;
 
+/* The running sums of one tile. */
+typedef struct tile_sums {
+    double s[3], q[3];
+    size_t n, clip;
+} tile_sums;
+
+/* Row y's pixels x0..x1 - 1 into one tile's sums, pixel by pixel. */
+static void tile_add_row(const lam_image *img, size_t y, size_t x0, size_t x1, tile_sums *t)
+{
+    size_t w = img->width;
+    for (size_t x = x0; x < x1; x++) {
+        size_t k = y * w + x;
+        t->clip += (size_t)lam_image_clipped(img, x, y);
+        for (int c = 0; c < 3; c++) {
+            double v = img->plane[c][k];
+            t->s[c] += v;
+            t->q[c] += v * v;
+        }
+        t->n++;
+    }
+}
+
+/* A tile's statistics from its sums. */
+static void tile_finish(const tile_sums *u, size_t x0, size_t y0, size_t x1, size_t y1,
+                        tile_stat *t)
+{
+    t->cx = 0.5 * (double)(x0 + x1);
+    t->cy = 0.5 * (double)(y0 + y1);
+    t->clipped = u->clip > 0;
+    int ok = 1;
+    for (int c = 0; c < 3; c++) {
+        t->mean[c] = u->s[c] / (double)u->n;
+        double var = u->q[c] / (double)u->n - t->mean[c] * t->mean[c];
+        t->rsd[c] = t->mean[c] > 0 ? sqrt(var > 0 ? var : 0) / t->mean[c] : INFINITY;
+        ok &= t->mean[c] > 1e-4;
+    }
+    t->uniform = ok;
+    t->u = ok ? log(t->mean[0] / t->mean[1]) : 0;
+    t->v = ok ? log(t->mean[2] / t->mean[1]) : 0;
+}
+
+/* Rows of tiles begin..end - 1. Each row of pixels is read once across
+ * all the tiles it crosses, each tile's sums kept apart: every tile adds
+ * its pixels in the same order as one tile at a time would (row by row,
+ * left to right), so the sums are the same, but the planes are read as
+ * long rows, which the processor fetches ahead; tile by tile they were 96
+ * short pieces at once, and this pass waited on memory most of its time. */
 static void tile_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
-    const tile_ctx *tc = vctx;
+    tile_ctx *tc = vctx;
     const lam_image *img = tc->img;
-    size_t T = tc->T, nx = tc->nx, w = img->width;
-    tile_stat *ts = tc->ts;
-    for (size_t ty = begin; ty < end; ty++)
-        for (size_t tx = 0; tx < nx; tx++) {
-            tile_stat *t = &ts[ty * nx + tx];
-            size_t x0 = tx * T, y0 = ty * T, x1 = x0 + T, y1 = y0 + T;
-            if (x1 > w)
-                x1 = w;
-            if (y1 > img->height)
-                y1 = img->height;
-            double s[3] = {0, 0, 0}, q[3] = {0, 0, 0};
-            size_t n = 0, clip = 0;
-            for (size_t y = y0; y < y1; y++)
-                for (size_t x = x0; x < x1; x++) {
-                    size_t k = y * w + x;
-                    clip += (size_t)lam_image_clipped(img, x, y);
-                    for (int c = 0; c < 3; c++) {
-                        double v = img->plane[c][k];
-                        s[c] += v;
-                        q[c] += v * v;
-                    }
-                    n++;
-                }
-            t->cx = 0.5 * (double)(x0 + x1);
-            t->cy = 0.5 * (double)(y0 + y1);
-            t->clipped = clip > 0;
-            int ok = 1;
-            for (int c = 0; c < 3; c++) {
-                t->mean[c] = s[c] / (double)n;
-                double var = q[c] / (double)n - t->mean[c] * t->mean[c];
-                t->rsd[c] = t->mean[c] > 0 ? sqrt(var > 0 ? var : 0) / t->mean[c] : INFINITY;
-                ok &= t->mean[c] > 1e-4;
-            }
-            t->uniform = ok;
-            t->u = ok ? log(t->mean[0] / t->mean[1]) : 0;
-            t->v = ok ? log(t->mean[2] / t->mean[1]) : 0;
-        }
+    size_t T = tc->T, nx = tc->nx, w = img->width, h = img->height;
+    tile_sums *sums = malloc(nx * sizeof *sums);
+    if (!sums) {
+        tc->failed = 1;
+        return;
+    }
+    for (size_t ty = begin; ty < end; ty++) {
+        size_t y0 = ty * T, y1 = y0 + T < h ? y0 + T : h;
+        memset(sums, 0, nx * sizeof *sums);
+        for (size_t y = y0; y < y1; y++)
+            for (size_t tx = 0; tx < nx; tx++)
+                tile_add_row(img, y, tx * T, (tx + 1) * T < w ? (tx + 1) * T : w, &sums[tx]);
+        for (size_t tx = 0; tx < nx; tx++)
+            tile_finish(&sums[tx], tx * T, y0, (tx + 1) * T < w ? (tx + 1) * T : w, y1,
+                        &tc->ts[ty * nx + tx]);
+    }
+    free(sums);
 }
 
-static void tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx, size_t ny,
-                       size_t threads)
+static int tile_stats(const lam_image *img, size_t T, tile_stat *ts, size_t nx, size_t ny,
+                      size_t threads)
 {
-    tile_ctx tc = {img, T, nx, ts};
+    tile_ctx tc = {img, T, nx, ts, 0};
     lam_parallel_for(ny, threads, tile_rows, &tc);
+    return !tc.failed;
 }
 
 /* Uniform tiles: relative spread below 2.5x the typical (median) spread,
@@ -345,7 +374,11 @@ lam_status lam_substrate_estimate(const lam_image *img, const lam_substrate_opti
     memset(&s, 0, sizeof s);
     s.width = img->width;
     s.height = img->height;
-    tile_stats(img, T, ts, nx, ny, opt->threads ? opt->threads : 1);
+    if (!tile_stats(img, T, ts, nx, ny, opt->threads ? opt->threads : 1)) {
+        free(ts);
+        free(scratch);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate substrate tiles");
+    }
     mark_uniform(ts, n, scratch);
     size_t cand = thin_candidates(ts, n, lam__substrate_candidates(ts, nx, ny, &s, opt));
     lam_status st = LAM_OK;
