@@ -207,9 +207,38 @@ void lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, cons
         label_backward(lab, depth, w, h, y, l, box);
 }
 
+/* The interior sums of channel c over pixels k0..k1 - 1 of row y (those
+ * at least LAM_INTERIOR_DEPTH deep and not clipped) into *sum and *sumsq.
+ * A pixel's contrast is (UNIT - q) / UNIT exactly (lam_contrast_of), so
+ * the run's sums are taken in whole steps, in integers - exact, in any
+ * order, and without a floating-point addition's latency per pixel - and
+ * then scaled by a power of two. They are the same numbers as adding the
+ * contrasts pixel by pixel in double whenever that addition never rounds:
+ * sums of contrasts have 12 bits below the point, of their squares 24,
+ * so it is exact until a region's sum of squares passes 2^29 (2^29 pixels
+ * at |contrast| 1; only glare of contrast -15 over 2.4 million pixels
+ * would get there, and there the integers are the more exact). */
+static void run_channel(const lam_contrast_map *img, const uint8_t *depth, size_t c, size_t y,
+                        size_t k0, size_t k1, double *sum, double *sumsq)
+{
+    const uint16_t *plane = img->plane[c];
+    size_t row = y * img->width;
+    int64_t a = 0;
+    uint64_t b = 0;
+    for (size_t k = k0; k < k1; k++) {
+        int in = depth[k] >= LAM_INTERIOR_DEPTH && !lam_contrast_clipped(img, k - row, y);
+        int64_t v = in ? (int64_t)LAM_CONTRAST_UNIT - plane[k] : 0;
+        a += v;
+        b += (uint64_t)(v * v);
+    }
+    *sum += (double)a * (1.0 / LAM_CONTRAST_UNIT);
+    *sumsq += (double)b * (1.0 / ((double)LAM_CONTRAST_UNIT * LAM_CONTRAST_UNIT));
+}
+
 /* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
- * sums (whole numbers, exact in any grouping), depth, and the interior's
- * contrast sums of channels 0..channels-1 pixel by pixel in row order. */
+ * sums (whole numbers, exact in any grouping), depth, the interior's and
+ * clipped pixel counts and the interior's contrast sums of channels
+ * 0..channels-1 (run_channel). */
 static void run_statistics(const lam_contrast_map *img, const uint8_t *cls, const uint8_t *depth,
                            lam_region_stats *r, size_t y, size_t x0, size_t x1, int channels)
 {
@@ -224,40 +253,31 @@ static void run_statistics(const lam_contrast_map *img, const uint8_t *cls, cons
     if (y > r->bbox[3]) r->bbox[3] = y;
     if (x0 == 0 || y == 0 || x1 == w || y + 1 == h)
         r->touches_border = 1;
+    unsigned deepest = r->depth_max;
+    size_t deep = 0, clipped = 0;
     for (size_t k = k0 + x0; k < k0 + x1; k++) {
-        if (depth[k] > r->depth_max)
-            r->depth_max = depth[k];
-        if (depth[k] < LAM_INTERIOR_DEPTH)
-            continue;
-        if (lam_contrast_clipped(img, k - k0, y)) {
-            r->clipped++;
-            continue;
-        }
-        r->interior++;
-        for (int c = 0; c < channels; c++) {
-            double v = lam_contrast_value(img, c, k);
-            r->sum[c] += v;
-            r->sumsq[c] += v * v;
+        deepest = depth[k] > deepest ? depth[k] : deepest;
+        if (depth[k] >= LAM_INTERIOR_DEPTH) {
+            deep++;
+            clipped += (size_t)lam_contrast_clipped(img, k - k0, y);
         }
     }
+    r->depth_max = deepest;
+    r->clipped += clipped;
+    r->interior += deep - clipped;
+    for (int c = 0; c < channels; c++)
+        run_channel(img, depth, (size_t)c, y, k0 + x0, k0 + x1, &r->sum[c], &r->sumsq[c]);
 }
 
 /* The interior sums of channels 1 and 2 of one run (the second half of
  * run_statistics' work, for a second thread): sum and sum of squares of
- * channel 1, then of channel 2, in the same order as run_statistics. */
+ * channel 1, then of channel 2. */
 static void run_sums_12(const lam_contrast_map *img, const uint8_t *depth, double s[4], size_t y,
                         size_t x0, size_t x1)
 {
     size_t k0 = y * img->width;
-    for (size_t k = k0 + x0; k < k0 + x1; k++) {
-        if (depth[k] < LAM_INTERIOR_DEPTH || lam_contrast_clipped(img, k - k0, y))
-            continue;
-        for (int c = 1; c < 3; c++) {
-            double v = lam_contrast_value(img, c, k);
-            s[2 * c - 2] += v;
-            s[2 * c - 1] += v * v;
-        }
-    }
+    for (size_t c = 1; c < 3; c++)
+        run_channel(img, depth, c, y, k0 + x0, k0 + x1, &s[2 * c - 2], &s[2 * c - 1]);
 }
 
 /* Area, box, centroid, depth, and the contrast sums over the interior:

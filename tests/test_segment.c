@@ -384,6 +384,103 @@ static void edge_areas_match_definition(void)
     lam_segmentation_free(s);
 }
 
+/* lam__region_statistics against its definition: per region, the count,
+ * sum and sum of squares of the contrasts of its pixels at least
+ * LAM_INTERIOR_DEPTH deep and not clipped, added pixel by pixel in double
+ * in raster order (exact here, so any exact method must give the same
+ * bits), the clipped interior count and the deepest pixel. Random labels
+ * (rectangles), contrasts over the map's whole range (glare to black)
+ * and clip bits; 1 and 2 threads. */
+static void region_sums_match_definition(void)
+{
+    lam_segmentation *s = NULL;
+    lam_error err;
+    lam_contrast_map m;
+    memset(&m, 0, sizeof m);
+    m.width = EW, m.height = EH, m.clip_stride = (EW + 7) / 8;
+    m.plane[0] = malloc(3 * EW * EH * sizeof *m.plane[0]);
+    m.clip_bits = calloc(EH, m.clip_stride);
+    lam_region_stats R[EREGIONS], want[EREGIONS];
+    if (!check_true(m.plane[0] && m.clip_bits && !lam_segmentation_alloc(EW, EH, &s, &err),
+                    "statistics maps allocated")) {
+        free(m.plane[0]);
+        free(m.clip_bits);
+        lam_segmentation_free(s);
+        return;
+    }
+    m.plane[1] = m.plane[0] + EW * EH, m.plane[2] = m.plane[1] + EW * EH;
+    unsigned long st = 77;
+    size_t wrong = 0, interior = 0;
+    for (int trial = 0; trial < 6; trial++) {
+        memset(s->label, 0, EW * EH * sizeof *s->label);
+        memset(s->cls, 1, EW * EH);
+        for (int b = 0; b < 10; b++) { /* rectangles of regions 1..EREGIONS */
+            size_t x0 = edge_rand(&st) % EW, y0 = edge_rand(&st) % EH;
+            size_t bw = 6 + edge_rand(&st) % 30, bh = 6 + edge_rand(&st) % 25;
+            uint32_t l = 1 + (uint32_t)(edge_rand(&st) % EREGIONS);
+            for (size_t y = y0; y < y0 + bh && y < EH; y++)
+                for (size_t x = x0; x < x0 + bw && x < EW; x++)
+                    s->label[y * EW + x] = l;
+        }
+        for (int c = 0; c < 3; c++)
+            for (size_t k = 0; k < EW * EH; k++)
+                m.plane[c][k] = (uint16_t)(trial % 2 ? edge_rand(&st) % 65536
+                                                     : LAM_CONTRAST_UNIT - edge_rand(&st) % 900);
+        memset(m.clip_bits, 0, EH * m.clip_stride);
+        m.clipped_count = 0;
+        for (size_t y = 0; trial >= 2 && y < EH; y++)
+            for (size_t x = 0; x < EW; x++)
+                if (edge_rand(&st) % 7 == 0)
+                    m.clip_bits[y * m.clip_stride + x / 8] |= (uint8_t)(1u << (x % 8)),
+                        m.clipped_count++;
+        uint8_t *depth = lam__boundary_depth(s->label, EW, EH, 1);
+        if (!depth) {
+            wrong++;
+            continue;
+        }
+        memset(want, 0, sizeof want);
+        for (size_t y = 0; y < EH; y++)
+            for (size_t x = 0; x < EW; x++) {
+                size_t k = y * EW + x;
+                uint32_t l = s->label[k];
+                if (!l || l > EREGIONS)
+                    continue;
+                lam_region_stats *r = &want[l - 1];
+                r->depth_max = depth[k] > r->depth_max ? depth[k] : r->depth_max;
+                if (depth[k] < LAM_INTERIOR_DEPTH)
+                    continue;
+                if (lam_contrast_clipped(&m, x, y)) {
+                    r->clipped++;
+                    continue;
+                }
+                r->interior++;
+                for (size_t c = 0; c < 3; c++) {
+                    double v = lam_contrast_value(&m, c, k);
+                    r->sum[c] += v;
+                    r->sumsq[c] += v * v;
+                }
+            }
+        for (size_t threads = 1; threads <= 2; threads++) {
+            memset(R, 0, sizeof R);
+            lam__region_statistics(&m, s->cls, s->label, depth, R, EREGIONS, threads);
+            for (size_t i = 0; i < EREGIONS; i++) {
+                int same = R[i].interior == want[i].interior && R[i].clipped == want[i].clipped &&
+                           R[i].depth_max == want[i].depth_max;
+                for (int c = 0; c < 3; c++)
+                    same &= R[i].sum[c] == want[i].sum[c] && R[i].sumsq[c] == want[i].sumsq[c];
+                wrong += !same;
+                interior += R[i].interior;
+            }
+        }
+        free(depth);
+    }
+    check_int((long)wrong, 0, "region sums are the pixel-by-pixel sums of the interior");
+    check_true(interior > 5000, "the maps hold interior pixels (%zu)", interior);
+    free(m.plane[0]);
+    free(m.clip_bits);
+    lam_segmentation_free(s);
+}
+
 /* An image wider than 32768 px (strips of one row, pair lists of 32-bit
  * pixel indices, not 16-bit codes), with a band border every 8 rows: a
  * monolayer block across 20 rows is one region of its area, the same for
@@ -432,6 +529,7 @@ int main(void)
     test_rescue_cores();
     rescue_cores_match_definition();
     edge_areas_match_definition();
+    region_sums_match_definition();
     wide_image();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))
