@@ -64,57 +64,99 @@ static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels,
 
 /* ---- the sides from runs ----
  * Reading the 81 pixels around every transition pixel was most of this
- * pass's time, and its branches as good as random. Along a row, the sides
- * change only where a run of one label (or of substrate, or of transition
- * pixels) ends, so each row of the window is walked run by run: the sides
- * come in the same order (rows top to bottom, runs left to right, each
- * side where it is first met), so the owner is the same. The rows' runs
- * are kept for the 9 rows of the window, in a ring that moves down with
- * the rows of a slice. */
+ * pass's time, and its branches as good as random. Along a row the side
+ * changes only where a run of one label (or of substrate, or of
+ * transition pixels) ends, so each row of the window is walked run by
+ * run: the sides come in the same order (rows top to bottom, runs left to
+ * right, each side where it is first met), so the owner is the same. Each
+ * row's runs are listed once, in a ring of the window's 9 rows that moves
+ * down with the rows of a slice; a row's transition pixels are its runs
+ * of NOT_A_SIDE, taken left to right, so each window row keeps a cursor
+ * at the run its window starts in, which only moves right. */
 #define NOT_A_SIDE UINT32_MAX  /* a transition pixel or a dropped speck */
 #define WINDOW_ROWS (2 * EDGE_RADIUS + 1)
 
+typedef struct side_run {
+    uint32_t start; /* its first pixel; the list ends with start = width */
+    uint32_t label; /* the side (0: the substrate) or NOT_A_SIDE */
+} side_run;
+
 typedef struct side_rows {
-    uint32_t *code; /* per ring row: each pixel's side (its label, 0 for the
-                     * substrate) or NOT_A_SIDE */
-    uint32_t *next; /* per ring row: the first pixel to the right with another
-                     * code (the width at the row's end) */
+    side_run *run;                 /* per ring row, width + 1 entries */
     size_t w;
+    /* the window's rows for the current row y: y - EDGE_RADIUS.. clipped
+     * to the image, their runs and the run each window starts in */
+    size_t rows;
+    const side_run *row[WINDOW_ROWS];
+    size_t cursor[WINDOW_ROWS];
 } side_rows;
 
-static void side_row_fill(const lam_segmentation *seg, side_rows *r, size_t y)
+static const side_run *ring_row(const side_rows *r, size_t y)
 {
-    size_t w = seg->width;
-    uint32_t *code = r->code + y % WINDOW_ROWS * w, *next = r->next + y % WINDOW_ROWS * w;
-    const uint32_t *label = seg->label + y * w;
-    const uint8_t *cls = seg->cls + y * w;
-    for (size_t x = 0; x < w; x++)
-        code[x] = label[x] || cls[x] == LAM_CLASS_SUBSTRATE ? label[x] : NOT_A_SIDE;
-    next[w - 1] = (uint32_t)w;
-    for (size_t x = w - 1; x-- > 0;)
-        next[x] = code[x + 1] != code[x] ? (uint32_t)(x + 1) : next[x + 1];
+    return r->run + y % WINDOW_ROWS * (r->w + 1);
 }
 
-/* The distinct sides within EDGE_RADIUS of pixel (x, y) (Chebyshev, the
- * window clipped to the image), in order of first appearance, at most
- * EDGE_MAX_SIDES, from the ring (which holds the window's rows). */
-static size_t sides_from_runs(const side_rows *r, size_t h, size_t x, size_t y, side *out)
+/* Pixel k's side: its label, 0 on the substrate, else NOT_A_SIDE (by a
+ * mask: no branch per pixel). */
+static uint32_t side_code(const lam_segmentation *seg, size_t k)
+{
+    uint32_t l = seg->label[k];
+    return l | (0u - (uint32_t)((l == 0) & (seg->cls[k] != LAM_CLASS_SUBSTRATE)));
+}
+
+/* Row y's runs into the ring. */
+static void side_row_fill(const lam_segmentation *seg, side_rows *r, size_t y)
+{
+    size_t w = seg->width, n = 0;
+    side_run *run = r->run + y % WINDOW_ROWS * (w + 1);
+    uint32_t prev = side_code(seg, y * w);
+    run[n++] = (side_run){0, prev};
+    for (size_t x = 1; x < w; x++) {
+        uint32_t c = side_code(seg, y * w + x);
+        if (c != prev)
+            run[n++] = (side_run){(uint32_t)x, c}, prev = c;
+    }
+    run[n] = (side_run){(uint32_t)w, NOT_A_SIDE};
+}
+
+static void add_side(uint32_t l, side *out, size_t *n)
+{
+    size_t i = 0;
+    while (i < *n && out[i].label != l)
+        i++;
+    if (i == *n && *n < EDGE_MAX_SIDES)
+        out[(*n)++].label = l;
+}
+
+/* The window's rows for row y (the ring holds them), cursors at their
+ * first run. */
+static void window_rows(side_rows *r, size_t h, size_t y)
+{
+    size_t y0 = y > EDGE_RADIUS ? y - EDGE_RADIUS : 0, y1 = y + EDGE_RADIUS < h ? y + EDGE_RADIUS : h - 1;
+    r->rows = y1 - y0 + 1;
+    for (size_t i = 0; i < r->rows; i++) {
+        r->row[i] = ring_row(r, y0 + i);
+        r->cursor[i] = 0;
+    }
+}
+
+/* The distinct sides within EDGE_RADIUS of pixel x of the window's row
+ * (Chebyshev, the window clipped to the image), in order of first
+ * appearance, at most EDGE_MAX_SIDES. x grows from call to call within a
+ * row (the cursors). */
+static size_t sides_from_runs(side_rows *r, size_t x, side *out)
 {
     size_t w = r->w, n = 0;
     size_t x0 = x > EDGE_RADIUS ? x - EDGE_RADIUS : 0, x1 = x + EDGE_RADIUS < w ? x + EDGE_RADIUS : w - 1;
-    size_t y0 = y > EDGE_RADIUS ? y - EDGE_RADIUS : 0, y1 = y + EDGE_RADIUS < h ? y + EDGE_RADIUS : h - 1;
-    for (size_t v = y0; v <= y1; v++) {
-        const uint32_t *code = r->code + v % WINDOW_ROWS * w, *next = r->next + v % WINDOW_ROWS * w;
-        for (size_t u = x0; u <= x1; u = next[u]) {
-            uint32_t l = code[u];
-            if (l == NOT_A_SIDE)
-                continue;
-            size_t i = 0;
-            while (i < n && out[i].label != l)
-                i++;
-            if (i == n && n < EDGE_MAX_SIDES)
-                out[n++].label = l;
-        }
+    for (size_t v = 0; v < r->rows; v++) {
+        const side_run *run = r->row[v];
+        size_t at = r->cursor[v];
+        while (run[at + 1].start <= x0)
+            at++;
+        r->cursor[v] = at;
+        for (size_t i = at; run[i].start <= x1; i++)
+            if (run[i].label != NOT_A_SIDE)
+                add_side(run[i].label, out, &n);
     }
     return n;
 }
@@ -129,11 +171,6 @@ typedef struct edge_job {
     int failed;    /* a slice could not allocate its ring */
 } edge_job;
 
-static int is_transition(const lam_segmentation *seg, size_t k)
-{
-    return !seg->label[k] && seg->cls[k] != LAM_CLASS_SUBSTRATE;
-}
-
 /* Transition pixel k's owner among sides s[0..n-1], counted. */
 static void count_owner(const edge_job *job, size_t *count, size_t k, const side *s, size_t n)
 {
@@ -147,22 +184,23 @@ static void edge_rows(size_t y0, size_t y1, size_t slice, void *vjob)
     edge_job *job = vjob;
     const lam_segmentation *seg = job->seg;
     size_t w = seg->width, h = seg->height, *count = job->count + slice * seg->count;
-    side_rows r = {malloc(WINDOW_ROWS * w * sizeof *r.code),
-                   malloc(WINDOW_ROWS * w * sizeof *r.next), w};
-    if (!r.code || !r.next)
+    side_rows r = {malloc(WINDOW_ROWS * (w + 1) * sizeof *r.run), w, 0, {NULL}, {0}};
+    if (!r.run)
         job->failed = 1, y1 = y0;
-    size_t filled = y0 > EDGE_RADIUS ? y0 - EDGE_RADIUS : 0; /* the next row to fill */
+    size_t filled = y0 > EDGE_RADIUS ? y0 - EDGE_RADIUS : 0; /* the next row to list */
     for (size_t y = y0; y < y1; y++) {
         for (; filled < h && filled <= y + EDGE_RADIUS; filled++)
             side_row_fill(seg, &r, filled);
-        for (size_t x = 0; x < w; x++) {
-            side s[EDGE_MAX_SIDES];
-            if (is_transition(seg, y * w + x))
-                count_owner(job, count, y * w + x, s, sides_from_runs(&r, h, x, y, s));
-        }
+        window_rows(&r, h, y);
+        const side_run *run = ring_row(&r, y);
+        for (size_t i = 0; run[i].start < w; i++) /* the row's transition pixels */
+            for (size_t x = run[i].start; run[i].label == NOT_A_SIDE && x < run[i + 1].start;
+                 x++) {
+                side s[EDGE_MAX_SIDES];
+                count_owner(job, count, y * w + x, s, sides_from_runs(&r, x, s));
+            }
     }
-    free(r.code);
-    free(r.next);
+    free(r.run);
 }
 
 lam_status lam_segment_edge_areas(const lam_contrast_map *contrast, size_t channels, size_t threads,
