@@ -5,6 +5,7 @@
 #include "lamina/bigalloc.h"
 #include "lamina/parallel.h"
 #include "segment_internal.h"
+#include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -98,17 +99,22 @@ static void depth_rows(size_t begin, size_t end, size_t slice, void *vctx)
 
 /* One step of a column pass: row y from its neighbour row yn (NULL at the
  * image's edge), over columns [x0, x1). */
+LAM_VECTOR_CLONES
 static void depth_step(const depth_ctx *c, size_t y, const uint32_t *nlab, const uint8_t *nd,
                        size_t x0, size_t x1)
 {
-    const uint32_t *row = c->lab + y * c->w;
-    uint8_t *dr = c->d + y * c->w;
+    const uint32_t *restrict row = c->lab + y * c->w;
+    uint8_t *restrict dr = c->d + y * c->w;
+    if (!nlab) { /* the image's edge: every labelled pixel is 1 deep at most */
+        for (size_t x = x0; x < x1; x++)
+            dr[x] = dr[x] < 1 ? dr[x] : 1; /* 0 stays 0: off regions */
+        return;
+    }
+    /* off regions dr is 0 and stays so under the minimum: no test for them,
+     * and no branch, so that the loop runs on vector units */
     for (size_t x = x0; x < x1; x++) {
-        if (!row[x])
-            continue;
-        unsigned v = !nlab || nlab[x] != row[x] ? 1u : nd[x] + 1u;
-        if (v < dr[x])
-            dr[x] = (uint8_t)v;
+        unsigned v = nlab[x] != row[x] ? 1u : nd[x] + 1u;
+        dr[x] = (uint8_t)(v < dr[x] ? v : dr[x]);
     }
 }
 
@@ -487,11 +493,36 @@ int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, si
 
 /* ---- usable rectangle ---- */
 
+/* One row of the histogram of lam_usable_rectangle: the run of pixels
+ * down to row y, columns x0..x1, that are region l's with their four
+ * neighbours (none on the image's edge). Branch-free for vector units. */
+LAM_VECTOR_CLONES
+static void interior_heights(const lam_segmentation *seg, uint32_t l, size_t y, size_t x0,
+                             size_t x1, size_t *restrict height)
+{
+    size_t w = seg->width;
+    if (y == 0 || y + 1 >= seg->height || w < 3) {
+        memset(height, 0, (x1 - x0 + 1) * sizeof *height);
+        return;
+    }
+    const uint32_t *row = seg->label + y * w;
+    size_t a = x0 > 0 ? x0 : 1, b = x1 + 1 < w ? x1 : w - 2; /* columns with four neighbours */
+    if (x0 == 0)
+        height[0] = 0;
+    if (x1 + 1 >= w)
+        height[x1 - x0] = 0;
+    for (size_t x = a; x <= b; x++) {
+        size_t in = (row[x] == l) & (row[x - 1] == l) & (row[x + 1] == l) & (row[x - w] == l) &
+                    (row[x + w] == l);
+        height[x - x0] = (height[x - x0] + 1) & (0 - in);
+    }
+}
+
 void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r, size_t wh[2],
                           size_t xy[2])
 {
     size_t x0 = r->bbox[0], x1 = r->bbox[2], y0 = r->bbox[1], y1 = r->bbox[3];
-    size_t bw = x1 - x0 + 1, w = seg->width, hgt = seg->height;
+    size_t bw = x1 - x0 + 1;
     size_t *height = calloc(bw, sizeof *height), *stack = malloc((bw + 1) * sizeof *stack);
     wh[0] = wh[1] = 0;
     xy[0] = r->bbox[0], xy[1] = r->bbox[1];
@@ -502,13 +533,7 @@ void lam_usable_rectangle(const lam_segmentation *seg, const lam_region_stats *r
     }
     size_t best = 0;
     for (size_t y = y0; y <= y1; y++) {
-        for (size_t x = x0; x <= x1; x++) {
-            size_t k = y * w + x;
-            int in = seg->label[k] == r->id && x > 0 && y > 0 && x + 1 < w && y + 1 < hgt &&
-                     seg->label[k - 1] == r->id && seg->label[k + 1] == r->id &&
-                     seg->label[k - w] == r->id && seg->label[k + w] == r->id;
-            height[x - x0] = in ? height[x - x0] + 1 : 0;
-        }
+        interior_heights(seg, r->id, y, x0, x1, height);
         /* largest rectangle in the histogram (monotone stack) */
         size_t top = 0;
         for (size_t i = 0; i <= bw; i++) {

@@ -481,6 +481,102 @@ static void region_sums_match_definition(void)
     lam_segmentation_free(s);
 }
 
+/* lam_usable_rectangle against its definition: the largest area of an
+ * axis-aligned rectangle of pixels that are the region's with their four
+ * neighbours (so none on the image's edge), found here by trying every
+ * rectangle with prefix sums; the one returned must be such a rectangle
+ * of that area. Random rectangles of labels on maps of several sizes,
+ * down to 1 and 2 px wide. */
+static size_t interior_count(const size_t *P, size_t w, size_t x0, size_t y0, size_t x1,
+                             size_t y1)
+{
+    return P[y1 * (w + 1) + x1] - P[y0 * (w + 1) + x1] - P[y1 * (w + 1) + x0] +
+           P[y0 * (w + 1) + x0];
+}
+
+static size_t usable_brute(const lam_segmentation *s, uint32_t l, size_t *P)
+{
+    size_t w = s->width, h = s->height, best = 0;
+    for (size_t y = 0; y <= h; y++)
+        for (size_t x = 0; x <= w; x++) {
+            size_t in = 0;
+            if (x && y) {
+                size_t k = (y - 1) * w + (x - 1), px = x - 1, py = y - 1;
+                in = px > 0 && py > 0 && px + 1 < w && py + 1 < h && s->label[k] == l &&
+                     s->label[k - 1] == l && s->label[k + 1] == l && s->label[k - w] == l &&
+                     s->label[k + w] == l;
+            }
+            P[y * (w + 1) + x] = in + (y ? P[(y - 1) * (w + 1) + x] : 0) +
+                                 (x ? P[y * (w + 1) + x - 1] : 0) -
+                                 (x && y ? P[(y - 1) * (w + 1) + x - 1] : 0);
+        }
+    for (size_t y0 = 0; y0 < h; y0++)
+        for (size_t y1 = y0 + 1; y1 <= h; y1++)
+            for (size_t x0 = 0; x0 < w; x0++)
+                for (size_t x1 = x0 + 1; x1 <= w; x1++) {
+                    size_t area = (y1 - y0) * (x1 - x0);
+                    if (area > best && interior_count(P, w, x0, y0, x1, y1) == area)
+                        best = area;
+                }
+    return best;
+}
+
+static void usable_rectangle_matches_definition(void)
+{
+    const size_t sizes[][2] = {{1, 9}, {2, 7}, {3, 5}, {23, 17}, {31, 29}};
+    unsigned long st = 4242;
+    size_t wrong = 0, nonzero = 0;
+    for (size_t z = 0; z < sizeof sizes / sizeof sizes[0]; z++) {
+        size_t w = sizes[z][0], h = sizes[z][1];
+        lam_segmentation *s = NULL;
+        lam_error err;
+        size_t *P = malloc((w + 1) * (h + 1) * sizeof *P);
+        if (!P || lam_segmentation_alloc(w, h, &s, &err)) {
+            wrong++;
+            free(P);
+            continue;
+        }
+        for (int trial = 0; trial < 8; trial++) {
+            memset(s->label, 0, w * h * sizeof *s->label);
+            for (int b = 0; b < 6; b++) {
+                size_t x0 = edge_rand(&st) % w, y0 = edge_rand(&st) % h;
+                size_t bw = 1 + edge_rand(&st) % (w + 1), bh = 1 + edge_rand(&st) % (h + 1);
+                uint32_t l = 1 + (uint32_t)(edge_rand(&st) % 3);
+                for (size_t y = y0; y < y0 + bh && y < h; y++)
+                    for (size_t x = x0; x < x0 + bw && x < w; x++)
+                        s->label[y * w + x] = l;
+            }
+            for (uint32_t l = 1; l <= 3; l++) {
+                lam_region_stats r;
+                memset(&r, 0, sizeof r);
+                r.id = l, r.bbox[0] = w, r.bbox[1] = h;
+                for (size_t y = 0; y < h; y++)
+                    for (size_t x = 0; x < w; x++)
+                        if (s->label[y * w + x] == l) {
+                            r.bbox[0] = x < r.bbox[0] ? x : r.bbox[0];
+                            r.bbox[1] = y < r.bbox[1] ? y : r.bbox[1];
+                            r.bbox[2] = x > r.bbox[2] ? x : r.bbox[2];
+                            r.bbox[3] = y > r.bbox[3] ? y : r.bbox[3];
+                        }
+                if (r.bbox[0] == w)
+                    continue; /* no pixel of l */
+                size_t wh[2], xy[2], want = usable_brute(s, l, P);
+                lam_usable_rectangle(s, &r, wh, xy);
+                int ok = wh[0] * wh[1] == want;
+                if (ok && want) /* the rectangle returned is one of interior pixels */
+                    ok = xy[0] + wh[0] <= w && xy[1] + wh[1] <= h &&
+                         interior_count(P, w, xy[0], xy[1], xy[0] + wh[0], xy[1] + wh[1]) == want;
+                wrong += !ok;
+                nonzero += want > 0;
+            }
+        }
+        free(P);
+        lam_segmentation_free(s);
+    }
+    check_int((long)wrong, 0, "usable rectangles are the largest of interior pixels");
+    check_true(nonzero > 20, "the maps have usable rectangles (%zu)", nonzero);
+}
+
 /* An image wider than 32768 px (strips of one row, pair lists of 32-bit
  * pixel indices, not 16-bit codes), with a band border every 8 rows: a
  * monolayer block across 20 rows is one region of its area, the same for
@@ -530,6 +626,7 @@ int main(void)
     rescue_cores_match_definition();
     edge_areas_match_definition();
     region_sums_match_definition();
+    usable_rectangle_matches_definition();
     wide_image();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))
