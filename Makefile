@@ -60,7 +60,7 @@ INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
 .PHONY: accuracy accuracy-crystals fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
-        check-reference check-report
+        check-reference check-report check-clones
 
 all: $(BIN)
 
@@ -224,6 +224,13 @@ check-report: deps $(BIN)
 	    else echo "missing $$p; run: sudo apt-get install $(DEB_REPORT)"; exit 1; fi; }; done
 	sh tests/report/check_report.sh $(BUILD)
 
+# The vector clones change no result (src/vector_clones.h): the samples
+# analysed by this build and by one without the clones, byte for byte.
+check-clones: deps $(BIN)
+	$(MAKE) --no-print-directory BUILD=build-noclones CFLAGS="$(OPT) -g -DLAM_NO_VECTOR_CLONES" \
+	    build-noclones/lamina
+	sh tests/clones/check_clones.sh $(BIN) build-noclones/lamina
+
 # Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
@@ -273,6 +280,6 @@ uninstall:
 	rm -rf $(DESTDIR)$(PREFIX)/share/lamina $(DESTDIR)$(INCDIR)/lamina
 
 clean:
-	rm -rf build build-asan build-noopt build-vg lamina-out
+	rm -rf build build-asan build-noopt build-vg build-noclones lamina-out
 
 -include $(LIB_OBJ:.o=.d) $(CLI_OBJ:.o=.d) $(PIC_OBJ:.o=.d) $(wildcard $(BUILD)/tests/*.d $(BUILD)/tests/fuzz/*.d $(BUILD)/bench/*.d $(BUILD)/synth/*.d $(BUILD)/tests/robust/*.d)
