@@ -739,6 +739,20 @@ static uint32_t pair_at(const pair_lists *L, size_t s, size_t i)
     return L->code ? (uint32_t)(s * L->cap + L->code[at]) : L->pairs[at];
 }
 
+/* Pairs i..i + n - 1 of strip s's list as pair_at gives them, into out. */
+static void copy_pairs(const pair_lists *L, size_t s, size_t i, size_t n, uint32_t *restrict out)
+{
+    size_t at = (s - L->first) * L->cap + i;
+    if (!L->code) {
+        memcpy(out, L->pairs + at, n * sizeof *out);
+        return;
+    }
+    const uint16_t *restrict code = L->code + at;
+    uint32_t base = (uint32_t)(s * L->cap);
+    for (size_t j = 0; j < n; j++)
+        out[j] = base + code[j];
+}
+
 /* Does pair p (2k + dir) cross from the last row of its band into the
  * next band? */
 static int crosses(const pair_lists *L, size_t w, uint32_t p)
@@ -754,11 +768,17 @@ static size_t gather(const pair_lists *L, size_t w, cursor *c, uint32_t *batch)
 {
     size_t nb = 0;
     while (nb < BATCH && c->b < PAIR_BUCKETS) {
-        if (c->i < c->e) {
-            /* only the band's last strip holds pairs that cross (its last
-             * row's, down): the test's divisions are spared the others */
+        if (c->i < c->e && c->s + 1 < c->s1) {
+            /* a strip before the band's last holds no pair that crosses
+             * into the next band: its pairs are copied as they are */
+            size_t n = c->e - c->i < BATCH - nb ? c->e - c->i : BATCH - nb;
+            copy_pairs(L, c->s, c->i, n, batch + nb);
+            c->i += (uint32_t)n, nb += n;
+            continue;
+        }
+        if (c->i < c->e) { /* the band's last strip: its last row's down pairs cross */
             uint32_t p = pair_at(L, c->s, c->i++);
-            if (c->s + 1 < c->s1 || !crosses(L, w, p))
+            if (!crosses(L, w, p))
                 batch[nb++] = p;
             continue;
         }
