@@ -447,16 +447,26 @@ typedef struct relabel_job {
     const uint8_t *cls_of;
 } relabel_job;
 
+/* remap[0] is 0, so a pixel of no region keeps label 0 and its class;
+ * without branches (a region's edge made them unpredictable). */
+LAM_VECTOR_CLONES
+static void relabel_span(uint32_t *restrict label, uint8_t *restrict cls,
+                         const uint32_t *restrict remap, const uint8_t *restrict cls_of, size_t n)
+{
+    for (size_t k = 0; k < n; k++) {
+        uint32_t l = label[k], kept = remap[l];
+        label[k] = kept;
+        cls[k] = l && !kept ? cls_of[l] : cls[k];
+    }
+}
+
 static void relabel_rows(size_t begin, size_t end, size_t slice, void *vjob)
 {
     (void)slice;
     const relabel_job *j = vjob;
     lam_segmentation *seg = j->seg;
-    for (size_t k = begin * seg->width; k < end * seg->width; k++) {
-        uint32_t l = seg->label[k];
-        if (l && !(seg->label[k] = j->remap[l]))
-            seg->cls[k] = j->cls_of[l];
-    }
+    size_t k0 = begin * seg->width;
+    relabel_span(seg->label + k0, seg->cls + k0, j->remap, j->cls_of, (end - begin) * seg->width);
 }
 
 int lam__keep_regions(lam_segmentation *seg, lam_region_stats *R, uint32_t m, size_t min_px,
