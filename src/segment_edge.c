@@ -193,12 +193,14 @@ static void edge_rows(size_t y0, size_t y1, size_t slice, void *vjob)
             side_row_fill(seg, &r, filled);
         window_rows(&r, h, y);
         const side_run *run = ring_row(&r, y);
-        for (size_t i = 0; run[i].start < w; i++) /* the row's transition pixels */
-            for (size_t x = run[i].start; run[i].label == NOT_A_SIDE && x < run[i + 1].start;
-                 x++) {
+        for (size_t i = 0; run[i].start < w; i++) {
+            if (run[i].label != NOT_A_SIDE)
+                continue; /* the row's transition pixels are its runs of no side */
+            for (size_t x = run[i].start; x < run[i + 1].start; x++) {
                 side s[EDGE_MAX_SIDES];
                 count_owner(job, count, y * w + x, s, sides_from_runs(&r, x, s));
             }
+        }
     }
     free(r.run);
 }

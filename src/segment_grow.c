@@ -423,18 +423,19 @@ static uint32_t root_far(uint32_t *node, uint32_t a)
     }
 }
 
+/* if_root when a node word has ROOT, else if_not: by masks, not a branch. */
+static uint32_t pick(uint32_t word, uint32_t if_root, uint32_t if_not)
+{
+    uint32_t root = 0u - (word >> 31); /* all ones when word has ROOT */
+    return (if_root & root) | (if_not & ~root);
+}
+
 /* The root of pixel a's region. Most pixels are a root or one or two
  * steps below it, and which of these is as good as random, so those steps
  * are taken by selection rather than by branches (a mispredicted branch
  * per step was a third of the merging's cost); a longer chain is walked
  * by root_far. a is then pointed at its root. The roots, so every merge,
  * are the same whatever the path compression. */
-static uint32_t pick(uint32_t word, uint32_t if_root, uint32_t if_not)
-{
-    uint32_t root = 0u - (word >> 31); /* all ones when word has ROOT: masks, not a branch */
-    return (if_root & root) | (if_not & ~root);
-}
-
 static uint32_t root_of(uint32_t *node, uint32_t a)
 {
     uint32_t p = node[a];
