@@ -13,6 +13,7 @@
 
 #include <math.h>
 #include <stdlib.h>
+#include <string.h>
 
 /* How far a transition pixel looks for the sides it lies between: the band
  * is 2-3 px wide at ordinary blur, about 5 px when an image is enlarged. */
@@ -23,38 +24,42 @@ typedef struct side {
     uint32_t label; /* 0: the substrate */
 } side;
 
-/* The mean interior contrast of region l (1-based), or 0 for the
- * substrate. 0 is returned for a region without interior (no mean) and for
- * a ribbon (LAM_RIBBON_DEPTH): a blurred transition itself, whose middling
- * contrast would otherwise win the band around it. */
-static int side_mean(const lam_segmentation *seg, uint32_t l, size_t channels, double m[3])
+/* A side's mean interior contrast: 0 for the substrate (side 0). A region
+ * without interior (no mean) or a ribbon (LAM_RIBBON_DEPTH: a blurred
+ * transition itself, whose middling contrast would otherwise win the band
+ * around it) owns no pixel. Found once per side, before the rows. */
+typedef struct side_mean {
+    double m[3];
+    int owns;
+} side_mean;
+
+static void side_means(const lam_segmentation *seg, size_t channels, side_mean *out)
 {
-    for (size_t c = 0; c < channels; c++)
-        m[c] = 0;
-    if (!l)
-        return 1;
-    const lam_region_stats *r = &seg->regions[l - 1];
-    if (!r->interior || r->depth_max < LAM_RIBBON_DEPTH)
-        return 0;
-    for (size_t c = 0; c < channels; c++)
-        m[c] = r->sum[c] / (double)r->interior;
-    return 1;
+    memset(out, 0, (seg->count + 1) * sizeof *out);
+    out[0].owns = 1;
+    for (size_t l = 1; l <= seg->count; l++) {
+        const lam_region_stats *r = &seg->regions[l - 1];
+        out[l].owns = r->interior && r->depth_max >= LAM_RIBBON_DEPTH;
+        for (size_t c = 0; c < channels && out[l].owns; c++)
+            out[l].m[c] = r->sum[c] / (double)r->interior;
+    }
 }
 
 /* The side among s[0..n-1] whose mean pixel k is nearest (the first of
  * equals), 0 for the substrate or none. */
 static uint32_t owner_of(const lam_contrast_map *contrast, size_t channels,
-                         const lam_segmentation *seg, size_t k, const side *s, size_t n)
+                         const side_mean *means, size_t k, const side *s, size_t n)
 {
     double best = INFINITY;
     uint32_t owner = 0;
     for (size_t i = 0; i < n; i++) {
-        double m[3], d = 0;
-        if (!side_mean(seg, s[i].label, channels, m))
+        const side_mean *sm = &means[s[i].label];
+        double d = 0;
+        if (!sm->owns)
             continue;
         for (size_t c = 0; c < channels; c++) {
             double v = lam_contrast_value(contrast, c, k);
-            d += (v - m[c]) * (v - m[c]);
+            d += (v - sm->m[c]) * (v - sm->m[c]);
         }
         if (d < best)
             best = d, owner = s[i].label;
@@ -91,7 +96,7 @@ typedef struct side_rows {
     size_t cursor[WINDOW_ROWS];
 } side_rows;
 
-static const side_run *ring_row(const side_rows *r, size_t y)
+static side_run *ring_row(const side_rows *r, size_t y)
 {
     return r->run + y % WINDOW_ROWS * (r->w + 1);
 }
@@ -108,7 +113,7 @@ static uint32_t side_code(const lam_segmentation *seg, size_t k)
 static void side_row_fill(const lam_segmentation *seg, side_rows *r, size_t y)
 {
     size_t w = seg->width, n = 0;
-    side_run *run = r->run + y % WINDOW_ROWS * (w + 1);
+    side_run *run = ring_row(r, y);
     uint32_t prev = side_code(seg, y * w);
     run[n++] = (side_run){0, prev};
     for (size_t x = 1; x < w; x++) {
@@ -167,6 +172,7 @@ typedef struct edge_job {
     const lam_contrast_map *contrast;
     size_t channels;
     lam_segmentation *seg;
+    const side_mean *means; /* by side, 0..seg->count */
     size_t *count; /* per slice, seg->count each */
     int failed;    /* a slice could not allocate its ring */
 } edge_job;
@@ -174,7 +180,7 @@ typedef struct edge_job {
 /* Transition pixel k's owner among sides s[0..n-1], counted. */
 static void count_owner(const edge_job *job, size_t *count, size_t k, const side *s, size_t n)
 {
-    uint32_t owner = owner_of(job->contrast, job->channels, job->seg, k, s, n);
+    uint32_t owner = owner_of(job->contrast, job->channels, job->means, k, s, n);
     if (owner)
         count[owner - 1]++;
 }
@@ -209,10 +215,15 @@ lam_status lam_segment_edge_areas(const lam_contrast_map *contrast, size_t chann
                                   lam_segmentation *seg, lam_error *err)
 {
     size_t n = seg->count, slices = lam_parallel_slices(seg->height, threads);
-    edge_job job = {contrast, channels, seg, calloc(slices * n + 1, sizeof(size_t)), 0};
-    if (job.count)
+    side_mean *means = malloc((n + 1) * sizeof *means);
+    edge_job job = {contrast, channels, seg, means, calloc(slices * n + 1, sizeof(size_t)), 0};
+    if (means && job.count) {
+        side_means(seg, channels, means);
         lam_parallel_for(seg->height, slices, edge_rows, &job);
-    if (!job.count || job.failed) {
+    }
+    int ok = means && job.count && !job.failed;
+    free(means);
+    if (!ok) {
         free(job.count);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge areas' rows");
     }

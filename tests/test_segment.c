@@ -302,18 +302,43 @@ static unsigned long edge_rand(unsigned long *state)
     return *state >> 24;
 }
 
+/* A random box within a w x h map, min_side + up to spread_w - 1 (and
+ * spread_h - 1) pixels on a side, clipped: corners x0, y0 and ends x1, y1
+ * (exclusive). */
+static void random_box(size_t w, size_t h, size_t min_side, size_t spread_w, size_t spread_h,
+                       unsigned long *st, size_t b[4])
+{
+    size_t x0 = edge_rand(st) % w, y0 = edge_rand(st) % h;
+    size_t bw = min_side + edge_rand(st) % spread_w, bh = min_side + edge_rand(st) % spread_h;
+    b[0] = x0, b[1] = y0, b[2] = x0 + bw < w ? x0 + bw : w, b[3] = y0 + bh < h ? y0 + bh : h;
+}
+
+/* count random boxes of labels 1..labels on a w x h label map. */
+static void random_labels(uint32_t *label, size_t w, size_t h, int count, size_t min_side,
+                          size_t spread_w, size_t spread_h, uint32_t labels, unsigned long *st)
+{
+    for (int i = 0; i < count; i++) {
+        size_t b[4];
+        random_box(w, h, min_side, spread_w, spread_h, st, b);
+        uint32_t l = 1 + (uint32_t)(edge_rand(st) % labels);
+        for (size_t y = b[1]; y < b[3]; y++)
+            for (size_t x = b[0]; x < b[2]; x++)
+                label[y * w + x] = l;
+    }
+}
+
 /* A random map of labels and classes, region statistics and contrasts. */
 static void edge_random_map(lam_segmentation *s, lam_contrast_map *m, int trial,
                             unsigned long *st)
 {
     memset(s->label, 0, EW * EH * sizeof *s->label);
     memset(s->cls, LAM_CLASS_SUBSTRATE, EW * EH);
-    for (int b = 0; b < 12; b++) {
-        size_t x0 = edge_rand(st) % EW, y0 = edge_rand(st) % EH;
-        size_t bw = 2 + edge_rand(st) % 20, bh = 2 + edge_rand(st) % 15;
+    for (int i = 0; i < 12; i++) {
+        size_t b[4];
+        random_box(EW, EH, 2, 20, 15, st, b);
         uint32_t l = (uint32_t)(edge_rand(st) % (EREGIONS + 2)); /* 0: substrate, 15: transition */
-        for (size_t y = y0; y < y0 + bh && y < EH; y++)
-            for (size_t x = x0; x < x0 + bw && x < EW; x++) {
+        for (size_t y = b[1]; y < b[3]; y++)
+            for (size_t x = b[0]; x < b[2]; x++) {
                 s->label[y * EW + x] = l <= EREGIONS ? l : 0;
                 s->cls[y * EW + x] = l == 0 ? LAM_CLASS_SUBSTRATE : l <= EREGIONS ? 1 : LAM_CLASS_NONE;
             }
@@ -414,14 +439,7 @@ static void region_sums_match_definition(void)
     for (int trial = 0; trial < 6; trial++) {
         memset(s->label, 0, EW * EH * sizeof *s->label);
         memset(s->cls, 1, EW * EH);
-        for (int b = 0; b < 10; b++) { /* rectangles of regions 1..EREGIONS */
-            size_t x0 = edge_rand(&st) % EW, y0 = edge_rand(&st) % EH;
-            size_t bw = 6 + edge_rand(&st) % 30, bh = 6 + edge_rand(&st) % 25;
-            uint32_t l = 1 + (uint32_t)(edge_rand(&st) % EREGIONS);
-            for (size_t y = y0; y < y0 + bh && y < EH; y++)
-                for (size_t x = x0; x < x0 + bw && x < EW; x++)
-                    s->label[y * EW + x] = l;
-        }
+        random_labels(s->label, EW, EH, 10, 6, 30, 25, EREGIONS, &st);
         for (int c = 0; c < 3; c++)
             for (size_t k = 0; k < EW * EH; k++)
                 m.plane[c][k] = (uint16_t)(trial % 2 ? edge_rand(&st) % 65536
@@ -538,14 +556,7 @@ static void usable_rectangle_matches_definition(void)
         }
         for (int trial = 0; trial < 8; trial++) {
             memset(s->label, 0, w * h * sizeof *s->label);
-            for (int b = 0; b < 6; b++) {
-                size_t x0 = edge_rand(&st) % w, y0 = edge_rand(&st) % h;
-                size_t bw = 1 + edge_rand(&st) % (w + 1), bh = 1 + edge_rand(&st) % (h + 1);
-                uint32_t l = 1 + (uint32_t)(edge_rand(&st) % 3);
-                for (size_t y = y0; y < y0 + bh && y < h; y++)
-                    for (size_t x = x0; x < x0 + bw && x < w; x++)
-                        s->label[y * w + x] = l;
-            }
+            random_labels(s->label, w, h, 6, 1, w + 1, h + 1, 3, &st);
             for (uint32_t l = 1; l <= 3; l++) {
                 lam_region_stats r;
                 memset(&r, 0, sizeof r);
