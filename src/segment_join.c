@@ -557,23 +557,48 @@ static int hole_joins(hole_ctx *h, uint32_t r, size_t n, size_t area)
     return (double)close >= HOLE_CLOSE_FRACTION * (double)n;
 }
 
+/* The box's pixels marked H_REGION where they belong to region r (root
+ * id), else H_FREE. Labels come in runs, so a label's root is looked up
+ * once per run. */
+static void mark_region(hole_ctx *h, uint32_t r)
+{
+    const lam_segmentation *seg = h->j->seg;
+    size_t w = seg->width;
+    for (size_t y = h->box[1]; y <= h->box[3]; y++) {
+        uint32_t last = 0;
+        uint8_t in = H_FREE; /* label 0 is no region */
+        for (size_t x = h->box[0]; x <= h->box[2]; x++) {
+            uint32_t l = seg->label[y * w + x];
+            if (l != last) {
+                last = l;
+                in = l && lam__label_root(h->j->parent, l) == r ? H_REGION : H_FREE;
+            }
+            h->mark[y * w + x] = in;
+        }
+    }
+}
+
+/* Flood from every free pixel on the box's border, in the order of a
+ * raster scan of the box: what is free and reaches the border is outside. */
+static void mark_outside(hole_ctx *h)
+{
+    size_t w = h->j->seg->width, x0 = h->box[0], x1 = h->box[2], y0 = h->box[1], y1 = h->box[3];
+    for (size_t y = y0; y <= y1; y++) {
+        int whole = y == y0 || y == y1; /* the top and bottom rows; else both ends */
+        for (size_t x = x0; x <= x1; x = whole || x == x1 ? x + 1 : x1)
+            if (h->mark[y * w + x] == H_FREE)
+                flood(h, y * w + x, H_FREE, H_OUTSIDE, 0);
+    }
+}
+
 /* The holes of joined region r (root id) with box and area; returns the
  * number of holes joined. */
 static size_t region_holes(hole_ctx *h, uint32_t r, size_t area)
 {
     lam_segmentation *seg = h->j->seg;
     size_t w = seg->width, joined = 0;
-    for (size_t y = h->box[1]; y <= h->box[3]; y++)
-        for (size_t x = h->box[0]; x <= h->box[2]; x++) {
-            uint32_t l = seg->label[y * w + x];
-            h->mark[y * w + x] = l && lam__label_root(h->j->parent, l) == r ? H_REGION : H_FREE;
-        }
-    for (size_t y = h->box[1]; y <= h->box[3]; y++)
-        for (size_t x = h->box[0]; x <= h->box[2]; x++) {
-            int edge = x == h->box[0] || x == h->box[2] || y == h->box[1] || y == h->box[3];
-            if (edge && h->mark[y * w + x] == H_FREE)
-                flood(h, y * w + x, H_FREE, H_OUTSIDE, 0);
-        }
+    mark_region(h, r);
+    mark_outside(h);
     for (size_t y = h->box[1]; y <= h->box[3]; y++)
         for (size_t x = h->box[0]; x <= h->box[2]; x++) {
             if (h->mark[y * w + x] != H_FREE)

@@ -630,6 +630,67 @@ static void wide_image(void)
     lam_image_free(img);
 }
 
+/* Hole filling (segment_join.c) against the definition of a hole: free
+ * pixels in a region's box that cannot reach the box's border. A flake
+ * with a notch cut into its left side and one into its right side, each a
+ * region of its own whose contrast is close to the flake's (within the
+ * fill tolerance) and of no confident count (key -1), so that nothing but
+ * hole filling could join them: each reaches the border of the flake's box
+ * and stays out. A pocket of the same kind enclosed by the flake is a hole
+ * and joins. */
+static void border_pockets_stay_out(void)
+{
+    const double zero[3] = {0, 0, 0};
+    const double pocket[3] = {MONO[0], MONO[1] + 0.02, MONO[2]};
+    lam_image *img = NULL;
+    lam_contrast_map map;
+    lam_segmentation *seg = NULL;
+    lam_error err;
+    if (!check_true(!lam_image_alloc(W, H, &img, &err), "pocket image allocated"))
+        return;
+    paint(img, 0, 0, W, H, zero);
+    paint(img, 40, 30, 200, 130, MONO);
+    paint(img, 40, 60, 54, 78, pocket);   /* a notch in the left side */
+    paint(img, 186, 60, 200, 78, pocket); /* and one in the right side */
+    paint(img, 110, 70, 126, 86, pocket); /* a pocket inside */
+    add_noise(img);
+    lam_contrast_compact(img, &map, 1);
+    lam_image_free(img);
+    lam_segment_options so = lam_segment_options_default();
+    double noise[3] = {0.002, 0.002, 0.002}, scatter[3] = {0.0005, 0.0005, 0.0005};
+    int ok = !lam_segmentation_alloc(W, H, &seg, &err) &&
+             !lam_segment_uniform(&map, 3, MONO, noise, scatter, &so, seg, &err);
+    check_true(ok, "pocket scene segmented");
+    uint32_t flake = ok ? label_at(seg, 80, 45) : 0, left = ok ? label_at(seg, 46, 69) : 0;
+    uint32_t right = ok ? label_at(seg, 193, 69) : 0, inside = ok ? label_at(seg, 118, 78) : 0;
+    check_true(flake && left && right && inside && left != flake && right != flake &&
+                   inside != flake,
+               "the pockets are regions apart from the flake before joining (%u %u %u %u)",
+               flake, left, right, inside);
+    int *key = ok ? malloc(seg->count * sizeof *key) : NULL;
+    uint32_t *idmap = ok ? malloc(seg->count * sizeof *idmap) : NULL;
+    size_t joined = 0;
+    if (key && idmap) {
+        for (size_t i = 0; i < seg->count; i++) { /* the flake's parts: count 1; others none */
+            const lam_region_stats *r = &seg->regions[i];
+            double g = r->interior ? r->sum[1] / (double)r->interior : 0;
+            key[i] = fabs(g - MONO[1]) < 0.006 ? 1 : -1;
+        }
+        double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
+        check_int(lam_segment_join(&map, 3, key, fill, 1, seg, idmap, &joined, &err), LAM_OK,
+                  "pocket scene joined");
+        flake = label_at(seg, 80, 45);
+        check_true(label_at(seg, 46, 69) != flake, "the notch on the box's left border stays out");
+        check_true(label_at(seg, 193, 69) != flake,
+                   "the notch on the box's right border stays out");
+        check_true(label_at(seg, 118, 78) == flake, "the enclosed pocket is a hole and joins");
+    }
+    free(key);
+    free(idmap);
+    lam_segmentation_free(seg);
+    lam_contrast_map_free(&map);
+}
+
 int main(void)
 {
     check_begin("test_segment");
@@ -639,6 +700,7 @@ int main(void)
     region_sums_match_definition();
     usable_rectangle_matches_definition();
     wide_image();
+    border_pockets_stay_out();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))
         return check_summary();
