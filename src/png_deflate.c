@@ -1,10 +1,11 @@
 /* png_deflate.c - a PNG encoder for large 8-bit images that compresses
  * fixed row bands on all cores (each band a raw deflate stream ended by a
  * sync flush, the last one finished; the Adler-32 values are combined), as
- * pigz does. Rows are Up-filtered and run-length deflated at level 1. The
- * bands do not depend on the thread count, so the file is the same for any
- * number of threads. */
+ * pigz does. Rows are Up-filtered and each band coded as literals and runs
+ * of one byte with Huffman codes of its own (deflate_runs.h). The bands do not depend on the thread count, so the file is
+ * the same for any number of threads. */
 #include "png_internal.h"
+#include "deflate_runs.h"
 #include "lamina/outfile.h"
 #include "lamina/parallel.h"
 
@@ -12,7 +13,8 @@
 #include <string.h>
 #include <zlib.h>
 
-#define BAND_ROWS 256
+#define BAND_ROWS 256           /* rows per band, at most */
+#define BAND_BYTES_MAX (1u << 30) /* filtered bytes per band, at most (zlib's counts) */
 
 typedef struct band {
     unsigned char *out;
@@ -24,7 +26,7 @@ typedef struct band {
 
 typedef struct deflate_job {
     const uint8_t *pixels;
-    size_t width, height, channels, bands;
+    size_t width, height, channels, rows, bands; /* rows: per band */
     band *b;
 } deflate_job;
 
@@ -40,52 +42,48 @@ static void up_filter(const uint8_t *pixels, size_t y, size_t rowbytes, unsigned
             out[i] = (unsigned char)(row[i] - up[i]);
 }
 
+/* The band's n filtered bytes as one block of literals and runs
+ * (deflate_runs.h); scratch: lam__deflate_runs_scratch(n) bytes. */
+static void compress_band(band *b, const unsigned char *filtered, size_t n, int last,
+                          void *scratch)
+{
+    b->out = malloc(lam__deflate_runs_bound(n)); /* only the pages written are touched */
+    if (!b->out) {
+        b->failed = 1;
+        return;
+    }
+    b->out_len = lam__deflate_runs(filtered, n, last, scratch, b->out);
+    unsigned char *fit = realloc(b->out, b->out_len); /* shrinks: gives the rest back */
+    if (fit)
+        b->out = fit;
+}
+
 static void deflate_bands(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
     deflate_job *j = vctx;
     size_t rowbytes = j->width * j->channels, line = rowbytes + 1;
-    unsigned char *filtered = malloc(line * BAND_ROWS);
+    unsigned char *filtered = malloc(line * j->rows);
+    void *scratch = malloc(lam__deflate_runs_scratch(line * j->rows));
     for (size_t k = begin; k < end; k++) {
         band *b = &j->b[k];
-        size_t y0 = k * BAND_ROWS, y1 = y0 + BAND_ROWS < j->height ? y0 + BAND_ROWS : j->height;
+        size_t y0 = k * j->rows, y1 = y0 + j->rows < j->height ? y0 + j->rows : j->height;
         size_t n = (y1 - y0) * line;
-        if (!filtered) {
+        if (!filtered || !scratch) {
             b->failed = 1;
             continue;
         }
         /* Up filter: each byte minus the byte above (chosen by measurement,
-         * docs/performance.md: the cheapest filter, and zlib's run-length
-         * mode is faster on its output and the files smaller than with Sub) */
+         * docs/performance.md: the cheapest filter, and it turns flat areas
+         * into runs of zeros) */
         for (size_t y = y0; y < y1; y++)
             up_filter(j->pixels, y, rowbytes, filtered + (y - y0) * line);
         b->raw_len = n;
         b->adler = adler32(adler32(0L, Z_NULL, 0), filtered, (uInt)n);
-        z_stream zs;
-        memset(&zs, 0, sizeof zs);
-        if (deflateInit2(&zs, 1, Z_DEFLATED, -15, 8, Z_RLE) != Z_OK) {
-            b->failed = 1;
-            continue;
-        }
-        size_t cap = deflateBound(&zs, (uLong)n) + 64;
-        b->out = malloc(cap);
-        if (!b->out) {
-            deflateEnd(&zs);
-            b->failed = 1;
-            continue;
-        }
-        zs.next_in = filtered;
-        zs.avail_in = (uInt)n;
-        zs.next_out = b->out;
-        zs.avail_out = (uInt)cap;
-        int last = k + 1 == j->bands;
-        int rc = deflate(&zs, last ? Z_FINISH : Z_SYNC_FLUSH);
-        if ((last && rc != Z_STREAM_END) || (!last && rc != Z_OK))
-            b->failed = 1;
-        b->out_len = cap - zs.avail_out;
-        deflateEnd(&zs);
+        compress_band(b, filtered, n, k + 1 == j->bands, scratch);
     }
     free(filtered);
+    free(scratch);
 }
 
 static void put32(unsigned char *p, uint32_t v)
@@ -110,7 +108,13 @@ static int chunk(FILE *fp, const char *type, const unsigned char *data, size_t n
 lam_status lam__png_save_parallel(const char *path, const uint8_t *pixels, size_t width,
                                   size_t height, int channels, lam_error *err)
 {
-    deflate_job j = {pixels, width, height, (size_t)channels, (height + BAND_ROWS - 1) / BAND_ROWS, NULL};
+    if (width == 0 || height == 0 || width > 0x7fffffff || height > 0x7fffffff ||
+        width * (size_t)channels + 1 > BAND_BYTES_MAX)
+        return lam_error_set(err, LAM_EINVAL, "cannot write a %zux%zu PNG", width, height);
+    size_t line = width * (size_t)channels + 1;
+    size_t rows = BAND_BYTES_MAX / line < BAND_ROWS ? BAND_BYTES_MAX / line : BAND_ROWS;
+    deflate_job j = {pixels, width, height, (size_t)channels, rows, (height + rows - 1) / rows,
+                     NULL};
     j.b = calloc(j.bands, sizeof *j.b);
     if (!j.b)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate PNG bands");

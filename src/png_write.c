@@ -1,4 +1,5 @@
-/* png_write.c - PNG encoding with libpng into atomic output files. */
+/* png_write.c - PNG files: 8-bit ones by the banded encoder (png_deflate.c),
+ * 16-bit ones with libpng, all into atomic output files. */
 #include "lamina/png.h"
 #include "lamina/outfile.h"
 #include "png_internal.h"
@@ -36,11 +37,9 @@ static lam_status save_png(const char *path, const void *pixels, size_t width,
         return lam_error_set(err, LAM_EIO, "cannot write PNG %s: %s", path, ctx.msg);
     }
     png_init_io(png, of.fp);
-    /* speed over size: these files are large and rewritten often */
-    /* run-length zlib with the Sub filter: report images are mostly flat
-     * areas, so this is both fast and small (the banded encoder for large
-     * images uses Up, measured faster there; this one stays, since the
-     * committed samples are its bytes) */
+    /* speed over size: these files are large and rewritten often; run-length
+     * zlib with the Sub filter (16-bit files: the 8-bit ones go through the
+     * banded encoder, png_deflate.c) */
     png_set_compression_level(png, 1);
     png_set_compression_strategy(png, 3 /* Z_RLE */);
     png_set_filter(png, 0, PNG_FILTER_SUB);
@@ -63,20 +62,13 @@ lam_status lam_png_save_rgb8(const char *path, const uint8_t *rgb, size_t width,
     if (channels != 3 && channels != 4)
         return lam_error_set(err, LAM_EINVAL, "PNG RGB needs 3 or 4 channels, not %d",
                              channels);
-    /* large images: banded parallel deflate (same bytes for any thread count) */
-    if (width * height >= (1u << 20) && width <= 0x7fffffff && height <= 0x7fffffff)
-        return lam__png_save_parallel(path, rgb, width, height, channels, err);
-    return save_png(path, rgb, width, height,
-                    channels == 4 ? PNG_COLOR_TYPE_RGBA : PNG_COLOR_TYPE_RGB, 8,
-                    width * (size_t)channels, err);
+    return lam__png_save_parallel(path, rgb, width, height, channels, err);
 }
 
 lam_status lam_png_save_grey8(const char *path, const uint8_t *grey, size_t width,
                               size_t height, lam_error *err)
 {
-    if (width * height >= (1u << 20) && width <= 0x7fffffff && height <= 0x7fffffff)
-        return lam__png_save_parallel(path, grey, width, height, 1, err);
-    return save_png(path, grey, width, height, PNG_COLOR_TYPE_GRAY, 8, width, err);
+    return lam__png_save_parallel(path, grey, width, height, 1, err);
 }
 
 lam_status lam_png_save_16(const char *path, const uint16_t *px, size_t width,

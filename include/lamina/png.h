@@ -4,6 +4,10 @@
  * Pixels are interleaved, row-major, top-left origin, already encoded (the
  * caller applies any transfer curve). Files are written atomically
  * (lamina/outfile.h). Compression favours speed: result images are large.
+ * 8-bit files are compressed in bands of rows on all cores, each band as
+ * literals and runs of one byte with Huffman codes of its own (a standard
+ * deflate stream any PNG reader takes; src/deflate_runs.h); the bytes are
+ * the same for any thread count. 16-bit files go through libpng.
  */
 #ifndef LAMINA_PNG_H
 #define LAMINA_PNG_H
