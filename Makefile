@@ -235,7 +235,7 @@ check-clones: deps $(BIN)
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
 # written to tests/crashers/<target>/ and replayed by make test.
 FUZZ_SECONDS ?= 60
-FUZZ_TARGETS := image tiff setup scene csv labels
+FUZZ_TARGETS := image tiff setup scene csv labels deflate
 FUZZ_CFLAGS = -std=c11 -D_POSIX_C_SOURCE=200809L -D_DEFAULT_SOURCE -g -O1 -Iinclude -Isrc \
     $(shell pkg-config --cflags $(PKGS) 2>/dev/null) -fsanitize=fuzzer,address,undefined
 fuzz: deps

@@ -43,7 +43,8 @@ int main(void)
     gsl_set_error_handler_off();
     static const struct { const char *name; int (*fn)(const uint8_t *, size_t); } t[] = {
         {"image", fuzz_image}, {"tiff", fuzz_tiff}, {"setup", fuzz_setup},
-        {"scene", fuzz_scene}, {"csv", fuzz_csv}, {"labels", fuzz_labels}};
+        {"scene", fuzz_scene}, {"csv", fuzz_csv}, {"labels", fuzz_labels},
+        {"deflate", fuzz_deflate}};
     for (size_t i = 0; i < sizeof t / sizeof t[0]; i++) {
         char dir[256];
         snprintf(dir, sizeof dir, "tests/crashers/%s", t[i].name);

@@ -7,11 +7,13 @@
 #include "lamina/render.h"
 #include "lamina/setup.h"
 #include "imageio_internal.h"
+#include "deflate_runs.h"
 
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
+#include <zlib.h>
 
 int fuzz_image(const uint8_t *data, size_t n)
 {
@@ -121,5 +123,39 @@ int fuzz_csv(const uint8_t *data, size_t n)
         lam_table_spectrum_clear(&t);
     }
     unlink(path);
+    return 0;
+}
+
+/* The PNG writer's deflate blocks (src/deflate_runs.c): the input, cut into
+ * 1 to 4 blocks by its first byte, encoded and joined; zlib's inflate must
+ * give it back exactly, else abort (a crash for the fuzzer). */
+int fuzz_deflate(const uint8_t *data, size_t n)
+{
+    if (n < 2)
+        return 0;
+    size_t blocks = 1 + data[0] % 4, m = n - 1;
+    const uint8_t *in = data + 1;
+    uint8_t *out = malloc(blocks * lam__deflate_runs_bound(m)), *back = malloc(m + 1);
+    void *scratch = malloc(lam__deflate_runs_scratch(m));
+    if (!out || !back || !scratch) {
+        free(out), free(back), free(scratch);
+        return 0;
+    }
+    size_t len = 0;
+    for (size_t b = 0; b < blocks; b++)
+        len += lam__deflate_runs(in + m * b / blocks, m * (b + 1) / blocks - m * b / blocks,
+                                 b + 1 == blocks, scratch, out + len);
+    z_stream z;
+    memset(&z, 0, sizeof z);
+    int ok = inflateInit2(&z, -15) == Z_OK;
+    z.next_in = out;
+    z.avail_in = (uInt)len;
+    z.next_out = back;
+    z.avail_out = (uInt)(m + 1);
+    ok = ok && inflate(&z, Z_FINISH) == Z_STREAM_END && z.total_out == m && !memcmp(back, in, m);
+    inflateEnd(&z);
+    free(out), free(back), free(scratch);
+    if (!ok)
+        abort();
     return 0;
 }

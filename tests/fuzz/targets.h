@@ -12,5 +12,6 @@ int fuzz_setup(const uint8_t *data, size_t n);   /* lamina-setup/1 JSON */
 int fuzz_scene(const uint8_t *data, size_t n);   /* lamina-scene/1 JSON (parse only) */
 int fuzz_csv(const uint8_t *data, size_t n);     /* n,k and spectrum CSV tables */
 int fuzz_labels(const uint8_t *data, size_t n);  /* lamina-labels/1 JSON */
+int fuzz_deflate(const uint8_t *data, size_t n); /* the PNG writer's deflate blocks, read back by zlib */
 
 #endif
