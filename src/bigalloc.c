@@ -42,3 +42,34 @@ void *lam_big_realloc(void *p, size_t bytes)
 {
     return advise(realloc(p, bytes), bytes);
 }
+
+void lam_heap_huge_pages(size_t bytes)
+{
+#if defined(__GLIBC__) && defined(MADV_HUGEPAGE)
+    /* the block comes from the top of the heap (the caller has raised the
+     * mmap threshold) and goes back to it on free, advised */
+    char *p = malloc(bytes);
+    if (p) {
+        uintptr_t begin = ((uintptr_t)p + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1);
+        uintptr_t end = ((uintptr_t)p + bytes) & ~(HUGE_PAGE - 1);
+        if (end > begin)
+            (void)madvise((void *)begin, end - begin, MADV_HUGEPAGE);
+    }
+    free(p);
+#else
+    (void)bytes;
+#endif
+}
+
+void *lam_sparse_malloc(size_t bytes)
+{
+    void *p = malloc(bytes);
+#ifdef MADV_NOHUGEPAGE
+    uintptr_t small = 4096;
+    uintptr_t begin = ((uintptr_t)p + small - 1) & ~(small - 1);
+    uintptr_t end = ((uintptr_t)p + bytes) & ~(small - 1);
+    if (p && bytes >= HUGE_PAGE && end > begin)
+        (void)madvise((void *)begin, end - begin, MADV_NOHUGEPAGE);
+#endif
+    return p;
+}

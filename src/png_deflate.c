@@ -43,19 +43,18 @@ static void up_filter(const uint8_t *pixels, size_t y, size_t rowbytes, unsigned
 }
 
 /* The band's n filtered bytes as one block of literals and runs
- * (deflate_runs.h); scratch: lam__deflate_runs_scratch(n) bytes. */
+ * (deflate_runs.h), made in 'work' (lam__deflate_runs_bound(n) bytes,
+ * reused band after band) and kept in a block of its own size; scratch:
+ * lam__deflate_runs_scratch(n) bytes. */
 static void compress_band(band *b, const unsigned char *filtered, size_t n, int last,
-                          void *scratch)
+                          void *scratch, uint8_t *work)
 {
-    b->out = malloc(lam__deflate_runs_bound(n)); /* only the pages written are touched */
-    if (!b->out) {
+    b->out_len = lam__deflate_runs(filtered, n, last, scratch, work);
+    if (!(b->out = malloc(b->out_len ? b->out_len : 1))) {
         b->failed = 1;
         return;
     }
-    b->out_len = lam__deflate_runs(filtered, n, last, scratch, b->out);
-    unsigned char *fit = realloc(b->out, b->out_len); /* shrinks: gives the rest back */
-    if (fit)
-        b->out = fit;
+    memcpy(b->out, work, b->out_len);
 }
 
 static void deflate_bands(size_t begin, size_t end, size_t slice, void *vctx)
@@ -65,11 +64,12 @@ static void deflate_bands(size_t begin, size_t end, size_t slice, void *vctx)
     size_t rowbytes = j->width * j->channels, line = rowbytes + 1;
     unsigned char *filtered = malloc(line * j->rows);
     void *scratch = malloc(lam__deflate_runs_scratch(line * j->rows));
+    uint8_t *work = malloc(lam__deflate_runs_bound(line * j->rows));
     for (size_t k = begin; k < end; k++) {
         band *b = &j->b[k];
         size_t y0 = k * j->rows, y1 = y0 + j->rows < j->height ? y0 + j->rows : j->height;
         size_t n = (y1 - y0) * line;
-        if (!filtered || !scratch) {
+        if (!filtered || !scratch || !work) {
             b->failed = 1;
             continue;
         }
@@ -80,10 +80,11 @@ static void deflate_bands(size_t begin, size_t end, size_t slice, void *vctx)
             up_filter(j->pixels, y, rowbytes, filtered + (y - y0) * line);
         b->raw_len = n;
         b->adler = adler32(adler32(0L, Z_NULL, 0), filtered, (uInt)n);
-        compress_band(b, filtered, n, k + 1 == j->bands, scratch);
+        compress_band(b, filtered, n, k + 1 == j->bands, scratch, work);
     }
     free(filtered);
     free(scratch);
+    free(work);
 }
 
 static void put32(unsigned char *p, uint32_t v)

@@ -996,9 +996,9 @@ static lam_status grow(const lam_contrast_map *img, size_t channels, const doubl
     band_ctx x = {&m, {img, seg->cls, &m}, pair_geometry(w, img->height), {NULL, NULL}, 0};
     size_t bands = band_count(&x.geometry);
     m.band_slots = (BAND_STRIPS * x.geometry.rows * w + 1) / 2;
-    /* no huge-page advice: untouched slots then cost no memory (only the
-     * small pages that merges take are faulted in) */
-    m.slots = malloc((bands * m.band_slots + bands * w) * sizeof *m.slots);
+    /* small pages: untouched slots then cost no memory (only the pages
+     * that merges take are faulted in) */
+    m.slots = lam_sparse_malloc((bands * m.band_slots + bands * w) * sizeof *m.slots);
     int failed = !m.slots || merge_pairs(&x, threads);
     free(m.slots);
     if (failed)

@@ -25,4 +25,20 @@ void *lam_big_malloc(size_t bytes);
 void *lam_big_calloc(size_t count, size_t size);
 void *lam_big_realloc(void *p, size_t bytes);
 
+/* For a program, once at its start (the command line does this): the
+ * next 'bytes' of the malloc heap get the huge-page advice, so that the
+ * many buffers below 4 MiB fault in 2 MiB at a time too. On the project's
+ * virtual machine a 4 KiB page fault cost 10-13 us, and an analysis of a
+ * 1 MP tile took 3000-3600 of them (docs/performance.md). Only the main
+ * heap is advised (glibc; elsewhere this does nothing), and only while
+ * freed memory stays in it (M_TRIM_THRESHOLD raised). The price: a
+ * touched huge page is 2 MiB of memory, so a small process holds a few
+ * MB more. */
+void lam_heap_huge_pages(size_t bytes);
+
+/* malloc for a large buffer that is touched sparsely (a pool of slots of
+ * which a run uses a part): small pages for it even inside a heap advised
+ * for huge ones, where every touch would cost 2 MiB of zeroed memory. */
+void *lam_sparse_malloc(size_t bytes);
+
 #endif
