@@ -1,9 +1,10 @@
-/* png_deflate.c - a PNG encoder for large 8-bit images that compresses
- * fixed row bands on all cores (each band a raw deflate stream ended by a
- * sync flush, the last one finished; the Adler-32 values are combined), as
- * pigz does. Rows are Up-filtered and each band coded as literals and runs
- * of one byte with Huffman codes of its own (deflate_runs.h). The bands do not depend on the thread count, so the file is
- * the same for any number of threads. */
+/* png_deflate.c - the PNG encoder for 8-bit images: fixed bands of rows
+ * compressed on all cores (each band a raw deflate stream ended by a sync
+ * point, the last one finished; the Adler-32 values are combined), as pigz
+ * does. Rows are Up-filtered and each band coded as literals and runs of
+ * one byte with Huffman codes of its own (deflate_runs.h). The bands do
+ * not depend on the thread count, so the file is the same for any number
+ * of threads. */
 #include "png_internal.h"
 #include "deflate_runs.h"
 #include "lamina/outfile.h"

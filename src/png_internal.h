@@ -7,7 +7,8 @@
 #include <stdint.h>
 #include "lamina/error.h"
 
-/* 8-bit grey (1), RGB (3) or RGBA (4), compressed in fixed bands on all cores. */
+/* 8-bit grey (1), RGB (3) or RGBA (4), compressed in fixed bands on all
+ * cores (png_deflate.c): every 8-bit PNG lamina writes. */
 lam_status lam__png_save_parallel(const char *path, const uint8_t *pixels, size_t width,
                                   size_t height, int channels, lam_error *err);
 
