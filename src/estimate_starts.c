@@ -271,12 +271,13 @@ static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
     }
 }
 
-static void settle_slice(size_t k0, size_t k1, size_t slice, void *vjob)
+/* Start k on a worker's copy (worker 0: the fit itself). The starts are
+ * handed out one at a time: they take from one to dozens of steps, and
+ * fixed halves left a core idle. */
+static void settle_item(size_t k, size_t who, void *vjob)
 {
     const starts_job *job = vjob;
-    fit_ctx *use = slice ? &job->crew[slice - 1].g : job->f;
-    for (size_t k = k0; k < k1; k++)
-        settle_one(use, job, k);
+    settle_one(who ? &job->crew[who - 1].g : job->f, job, k);
 }
 
 static void crew_free(worker *crew, size_t n)
@@ -356,7 +357,7 @@ lam_status lam__multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *
     if (!st && !(st = crew_alloc(f, threads, &crew, err))) {
         memcpy(seed, m->sig_best, m->regions);
         starts_job job = {f, crew, m, sp, seed, res};
-        lam_parallel_for(n, threads, settle_slice, &job);
+        lam_parallel_each_worker(n, threads, settle_item, &job);
         crew_free(crew, threads - 1);
     }
     for (size_t i = 0; i < n && !st; i++) {

@@ -53,25 +53,42 @@ void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx)
 typedef struct each_job {
     atomic_size_t next; /* the next item not yet taken */
     size_t count;
-    lam_item_fn fn;
+    lam_item_fn fn;               /* one of these two */
+    lam_worker_item_fn worker_fn;
     void *ctx;
 } each_job;
 
 static void each_worker(size_t begin, size_t end, size_t slice, void *vjob)
 {
-    (void)begin, (void)end, (void)slice;
+    (void)begin, (void)end;
     each_job *j = vjob;
-    for (size_t i; (i = atomic_fetch_add(&j->next, 1)) < j->count;)
-        j->fn(i, j->ctx);
+    for (size_t i; (i = atomic_fetch_add(&j->next, 1)) < j->count;) {
+        if (j->worker_fn)
+            j->worker_fn(i, slice, j->ctx);
+        else
+            j->fn(i, j->ctx);
+    }
+}
+
+/* Items handed out one at a time to lam_parallel_slices(count, threads)
+ * workers (worker w runs as slice w of lam_parallel_for). */
+static void run_each(each_job *j, size_t threads)
+{
+    atomic_init(&j->next, 0);
+    threads = lam_parallel_slices(j->count, threads);
+    lam_parallel_for(threads, threads, each_worker, j);
 }
 
 void lam_parallel_each(size_t count, size_t threads, lam_item_fn fn, void *ctx)
 {
     each_job j = {.count = count, .fn = fn, .ctx = ctx};
-    atomic_init(&j.next, 0);
-    if (threads > count)
-        threads = count;
-    lam_parallel_for(threads, threads, each_worker, &j);
+    run_each(&j, threads);
+}
+
+void lam_parallel_each_worker(size_t count, size_t threads, lam_worker_item_fn fn, void *ctx)
+{
+    each_job j = {.count = count, .worker_fn = fn, .ctx = ctx};
+    run_each(&j, threads);
 }
 
 size_t lam_cpu_count(void)

@@ -35,6 +35,16 @@ typedef void (*lam_item_fn)(size_t item, void *ctx);
  * leave on one thread. Each item must write only its own outputs. */
 void lam_parallel_each(size_t count, size_t threads, lam_item_fn fn, void *ctx);
 
+/* Work on one item of a list on worker 'worker' (0..workers-1, where
+ * workers = lam_parallel_slices(count, threads); worker 0 is the calling
+ * thread): for state that each worker keeps from item to item. */
+typedef void (*lam_worker_item_fn)(size_t item, size_t worker, void *ctx);
+
+/* As lam_parallel_each, telling each call which worker runs it. Which
+ * worker takes which item varies from run to run, so an item's result
+ * must not depend on what its worker did before. */
+void lam_parallel_each_worker(size_t count, size_t threads, lam_worker_item_fn fn, void *ctx);
+
 /* Number of online processors (at least 1). */
 size_t lam_cpu_count(void);
 
