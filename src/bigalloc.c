@@ -45,17 +45,10 @@ void *lam_big_realloc(void *p, size_t bytes)
 
 void lam_heap_huge_pages(size_t bytes)
 {
-#if defined(__GLIBC__) && defined(MADV_HUGEPAGE)
+#ifdef __GLIBC__
     /* the block comes from the top of the heap (the caller has raised the
      * mmap threshold) and goes back to it on free, advised */
-    char *p = malloc(bytes);
-    if (p) {
-        uintptr_t begin = ((uintptr_t)p + HUGE_PAGE - 1) & ~(HUGE_PAGE - 1);
-        uintptr_t end = ((uintptr_t)p + bytes) & ~(HUGE_PAGE - 1);
-        if (end > begin)
-            (void)madvise((void *)begin, end - begin, MADV_HUGEPAGE);
-    }
-    free(p);
+    free(advise(malloc(bytes), bytes));
 #else
     (void)bytes;
 #endif
