@@ -9,9 +9,11 @@
 #include <stdio.h>
 #include <gsl/gsl_const_mksa.h>
 #include <gsl/gsl_integration.h>
+#include <stdlib.h>
+
+#include "pv_quad.h"
 
 #define KB_EV_PER_K 8.617333262e-5 /* exact SI: k_B / e */
-#define QUAD_LIMIT 200
 
 /* Fitted to the Re and Im of sigma implied by Weber et al. (2010) over
  * 400-750 nm at mu = 0.2 eV, 295 K (docs/method.md, tests/test_conductivity.c). */
@@ -66,96 +68,137 @@ double complex lam_oscillator(double e, double centre, double width)
     return -I * e / (centre * centre - e * e - I * e * width);
 }
 
-/* 1 - G(eps), G = sinh(x)/(cosh(m)+cosh(x)), scaled to avoid overflow */
-static double one_minus_g(double eps, double mu, double kt)
+/* The Fermi function 1 / (1 + e^y), without overflow. */
+static double fermi_fn(double y)
 {
-    double x = eps / kt, m = fabs(mu) / kt, top = x > m ? x : m;
-    /* each exponential once (the compiler may not merge calls that can
-     * set errno): the integrals call this ~10^6 times per Fermi table */
-    double a = exp(m - top), b = exp(-m - top), d = exp(-x - top);
-    double num = a + b + 2.0 * d;
-    double den = a + b + exp(x - top) + d;
-    return num / den;
+    if (y > 0) {
+        double t = exp(-y);
+        return t / (1.0 + t);
+    }
+    return 1.0 / (1.0 + exp(y));
 }
 
 typedef struct pv_args {
-    double e, mu, kt;
+    double mu, kt;
 } pv_args;
 
-/* f(eps) for QAWC: 1/(E^2 - 4 eps^2) = -1 / (4 (eps - E/2)(eps + E/2)) */
-static double pv_numerator(double eps, void *vp)
+/* 1 - G(eps) of Falkovsky's integral, G = sinh(x) / (cosh(m) + cosh(x))
+ * (x = eps / kT, m = mu / kT): the same as f(eps - mu) + f(eps + mu) with
+ * f the Fermi function, which stays finite for negative eps too. */
+static double one_minus_g(double eps, const void *vp)
 {
     const pv_args *a = vp;
-    return -one_minus_g(eps, a->mu, a->kt) / (4.0 * (eps + a->e / 2.0));
+    return fermi_fn((eps - a->mu) / a->kt) + fermi_fn((eps + a->mu) / a->kt);
 }
 
-static double regular_integrand(double eps, void *vp)
+/* The removed part of the resonance: X(E') = Re L(E') (1 - b(E'; mu)). */
+static double blocked_real(double e, const void *vp)
 {
     const pv_args *a = vp;
-    return one_minus_g(eps, a->mu, a->kt) / (a->e * a->e - 4.0 * eps * eps);
+    return creal(lam_oscillator(e, LAM_SADDLE_EV, LAM_SADDLE_WIDTH_EV)) *
+           (1.0 - lam_pauli_factor(e, a->mu, a->kt));
 }
 
-/* One quadrature workspace per thread, kept for the thread's life (freed
- * when it ends). A Fermi-level table takes ~50 000 of these integrals:
- * allocating a workspace for each made two threads queue on the
- * allocator's lock (a one-image analysis shares one malloc arena), and
- * GSL starts every integral afresh in whatever workspace it is given. */
-static pthread_key_t workspace_key;
-static pthread_once_t workspace_once = PTHREAD_ONCE_INIT;
-static int workspace_key_ok;
+/* Both integrands have a step of width ~kT (poles pi kT or 2 pi kT off
+ * the real axis), at mu and at 2 mu (their mirror images at -mu and -2 mu
+ * are never nearer to a point of [0, U]), so the quadrature's finest
+ * panels are 2 kT wide (pv_quad.h). Elsewhere they vary on the scale of
+ * the photon energy and of the resonance's 2.5 eV width (poles 1.25 eV
+ * off the axis), which panels of 0.5 eV resolve to ~1e-20. Against GSL's
+ * QAWC the two agree within 3e-14 (tests/test_pv_quad.c). */
+#define PANEL_KT 2.0
+#define PANEL_COARSEST_EV 0.5
 
-static void workspace_release(void *ws)
+/* Quadrature rules per thread, kept for the thread's life (freed when it
+ * ends): a rule samples its integrand once for one (mu, kT), and the same
+ * mu comes back at every photon energy of a spectrum. MEMO_RULES per
+ * integrand, so a puddle average's Gauss-Hermite Fermi levels all stay. */
+#define MEMO_RULES 16
+
+typedef struct memo_rule {
+    double mu, kt;
+    int ready;
+    lam__pv_rule rule;
+} memo_rule;
+
+typedef struct thread_rules {
+    memo_rule inter[MEMO_RULES], blocked[MEMO_RULES];
+    size_t next_inter, next_blocked; /* the entry replaced next */
+} thread_rules;
+
+static pthread_key_t rules_key;
+static pthread_once_t rules_once = PTHREAD_ONCE_INIT;
+static int rules_key_ok;
+
+static void rules_release(void *vp)
 {
-    gsl_integration_workspace_free(ws);
+    thread_rules *t = vp;
+    for (size_t i = 0; i < MEMO_RULES; i++) {
+        lam__pv_rule_free(&t->inter[i].rule);
+        lam__pv_rule_free(&t->blocked[i].rule);
+    }
+    free(t);
 }
 
-static void workspace_key_make(void)
+static void rules_key_make(void)
 {
-    workspace_key_ok = pthread_key_create(&workspace_key, workspace_release) == 0;
+    rules_key_ok = pthread_key_create(&rules_key, rules_release) == 0;
 }
 
-/* This thread's workspace, NULL when out of memory. Without a key (it
- * could not be made) a workspace the caller frees: *own is set. */
-static gsl_integration_workspace *thread_workspace(int *own)
+/* This thread's rules, NULL when out of memory. Without a key (it could
+ * not be made) rules the caller releases: *own is set. */
+static thread_rules *thread_rules_get(int *own)
 {
-    pthread_once(&workspace_once, workspace_key_make);
-    gsl_integration_workspace *ws = workspace_key_ok ? pthread_getspecific(workspace_key) : NULL;
+    pthread_once(&rules_once, rules_key_make);
+    thread_rules *t = rules_key_ok ? pthread_getspecific(rules_key) : NULL;
     *own = 0;
-    if (ws)
-        return ws;
-    ws = gsl_integration_workspace_alloc(QUAD_LIMIT);
-    if (ws && (!workspace_key_ok || pthread_setspecific(workspace_key, ws)))
+    if (t)
+        return t;
+    t = calloc(1, sizeof *t);
+    if (t && (!rules_key_ok || pthread_setspecific(rules_key, t)))
         *own = 1;
-    return ws;
+    return t;
 }
 
-/* Integral of f(x) / (x - c) over [0, upper] as a principal value when c lies
- * inside, else as a plain integral of 'regular' (f(x) / (x - c) itself). */
-static lam_status principal_value(double (*f)(double, void *), double (*regular)(double, void *),
-                                  void *args, double c, double upper, double *val,
-                                  const char *what, lam_error *err)
+/* The rule for integrand g at a = (mu, kT) from memo[] (built in entry
+ * *next when missing): its step at 'step', panels on [0, upper]. NULL
+ * when out of memory. */
+static const lam__pv_rule *memo_rule_for(memo_rule *memo, size_t *next, const pv_args *a,
+                                         double step, double upper, lam__pv_fn g)
+{
+    for (size_t i = 0; i < MEMO_RULES; i++)
+        if (memo[i].ready && memo[i].mu == a->mu && memo[i].kt == a->kt)
+            return &memo[i].rule;
+    memo_rule *m = &memo[*next];
+    *next = (*next + 1) % MEMO_RULES;
+    m->ready = 0;
+    if (lam__pv_rule_build(&m->rule, upper, &step, 1, PANEL_KT * a->kt, PANEL_COARSEST_EV, g, a))
+        return NULL;
+    m->mu = a->mu;
+    m->kt = a->kt;
+    m->ready = 1;
+    return &m->rule;
+}
+
+/* PV int_0^U g(x) [1/(x - c) - 1/(x + c)] dx with the thread's rule for
+ * (g, a): 'blocked' picks the resonance's integrand, else the interband's. */
+static lam_status pv_difference(int blocked, const pv_args *a, double c, double *val,
+                                const char *what, lam_error *err)
 {
     int own = 0;
-    gsl_integration_workspace *ws = thread_workspace(&own);
-    if (!ws)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a quadrature workspace");
-    double abserr = 0;
-    int st;
-    gsl_function fn;
-    fn.params = args;
-    if (c < upper * 0.999) {
-        if (c >= upper * 0.9)
-            upper = 2.0 * c; /* keep the pole well inside the interval */
-        fn.function = f;
-        st = gsl_integration_qawc(&fn, 0.0, upper, c, 1e-12, 1e-9, QUAD_LIMIT, ws, val, &abserr);
-    } else {
-        fn.function = regular;
-        st = gsl_integration_qag(&fn, 0.0, upper, 1e-12, 1e-9, QUAD_LIMIT, GSL_INTEG_GAUSS31, ws,
-                                 val, &abserr);
-    }
+    thread_rules *t = thread_rules_get(&own);
+    const lam__pv_rule *r = NULL;
+    lam__pv_fn g = blocked ? blocked_real : one_minus_g;
+    if (t && blocked) /* 1 - b < 1e-26 beyond 2 mu + 60 kT */
+        r = memo_rule_for(t->blocked, &t->next_blocked, a, 2 * a->mu, 2 * a->mu + 60 * a->kt,
+                          g);
+    else if (t) /* 1 - G decays like exp(-(eps - mu)/kT): 45 kT past mu is the end */
+        r = memo_rule_for(t->inter, &t->next_inter, a, a->mu, a->mu + 45 * a->kt, g);
+    if (r)
+        *val = lam__pv_integral(r, c, g, a) - lam__pv_integral(r, -c, g, a);
     if (own)
-        gsl_integration_workspace_free(ws);
-    return st ? lam_error_gsl(err, st, what) : LAM_OK;
+        rules_release(t);
+    return r ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate the %s", what);
 }
 
 lam_status lam_kubo_interband(double energy_ev, double mu_ev, double kt_ev,
@@ -167,37 +210,15 @@ lam_status lam_kubo_interband(double energy_ev, double mu_ev, double kt_ev,
         *out = lam_pauli_factor(e, mu, kt_ev) + I * im;
         return LAM_OK;
     }
-    /* Im = -(4E/pi) PV int_0^inf (1 - G)/(E^2 - 4 eps^2) d eps; 1 - G decays
-     * like exp(-(eps - mu)/kT), so 45 kT past mu is the end. */
-    pv_args a = {e, mu, kt_ev};
+    /* Im = -(4E/pi) PV int_0^inf (1 - G)/(E^2 - 4 eps^2) d eps, and with
+     * c = E/2, 4E / (E^2 - 4 eps^2) = 1/(eps + c) - 1/(eps - c) */
+    pv_args a = {mu, kt_ev};
     double val = 0;
-    lam_status st = principal_value(pv_numerator, regular_integrand, &a, e / 2.0,
-                                    mu + 45.0 * kt_ev, &val,
-                                    "Kubo interband principal-value integral", err);
+    lam_status st = pv_difference(0, &a, e / 2.0, &val, "Kubo interband quadrature", err);
     if (st)
         return st;
-    *out = lam_pauli_factor(e, mu, kt_ev) + I * (-(4.0 * e / M_PI) * val);
+    *out = lam_pauli_factor(e, mu, kt_ev) + I * (val / M_PI);
     return LAM_OK;
-}
-
-/* The removed part of the resonance: X(E') = Re L(E') (1 - b(E'; mu)), and
- * Im(E) = -(2E/pi) PV int_0^inf X(E') / (E'^2 - E^2) dE'. */
-static double blocked_real(double e, const pv_args *a)
-{
-    return creal(lam_oscillator(e, LAM_SADDLE_EV, LAM_SADDLE_WIDTH_EV)) *
-           (1.0 - lam_pauli_factor(e, a->mu, a->kt));
-}
-
-static double kk_numerator(double x, void *vp)
-{
-    const pv_args *a = vp;
-    return blocked_real(x, a) / (x + a->e);
-}
-
-static double kk_regular(double x, void *vp)
-{
-    const pv_args *a = vp;
-    return blocked_real(x, a) / (x * x - a->e * a->e);
 }
 
 lam_status lam_resonance_blocked(double energy_ev, double mu_ev, double kt_ev,
@@ -207,14 +228,14 @@ lam_status lam_resonance_blocked(double energy_ev, double mu_ev, double kt_ev,
     /* below 1e-3 K the edge is a step; a 1e-6 eV width keeps the integrand
      * finite and changes nothing measurable */
     double kt = kt_ev > 1e-6 ? kt_ev : 1e-6;
-    pv_args a = {e, mu, kt};
-    /* 1 - b < 1e-26 beyond 2 mu + 60 kT */
+    pv_args a = {mu, kt};
+    /* Im(E) = -(2E/pi) PV int_0^inf X(E') / (E'^2 - E^2) dE', and
+     * 2E / (E'^2 - E^2) = 1/(E' - E) - 1/(E' + E) */
     double val = 0;
-    lam_status st = principal_value(kk_numerator, kk_regular, &a, e, 2.0 * mu + 60.0 * kt, &val,
-                                    "Kramers-Kronig transform of the blocked resonance", err);
+    lam_status st = pv_difference(1, &a, e, &val, "Kramers-Kronig quadrature", err);
     if (st)
         return st;
-    *out = blocked_real(e, &a) + I * (-(2.0 * e / M_PI) * val);
+    *out = blocked_real(e, &a) + I * (-val / M_PI);
     return LAM_OK;
 }
 

@@ -36,7 +36,7 @@ static void test_zero_temperature(void)
     /* finite but tiny T (1 K) through the principal-value integral */
     lam_kubo_interband(e, mu, KB * 1.0, &s, NULL);
     check_abs(cimag(s), -log((e + 2 * mu) / (e - 2 * mu)) / M_PI, 2e-5,
-              "1 K QAWC principal value matches the T=0 closed form (E > 2mu)");
+              "1 K principal value matches the T=0 closed form (E > 2mu)");
     lam_kubo_interband(0.6, mu, KB * 1.0, &s, NULL);
     check_abs(creal(s), 0.0, 1e-12, "Pauli blocking: Re = 0 below 2|mu| at 1 K");
     check_abs(cimag(s), -log((0.6 + 0.8) / (0.8 - 0.6)) / M_PI, 2e-5,
@@ -248,7 +248,7 @@ static double re_piece(int piece, double mu, double x)
 }
 
 /* Kramers-Kronig: Im X(E) = -(2E/pi) PV int_0^inf Re X(E') / (E'^2 - E^2) dE',
- * computed independently of the library's QAWC: subtract Re X(E) to remove
+ * computed independently of the library's quadrature: subtract Re X(E) to remove
  * the pole (PV int_0^inf dx / (x^2 - E^2) = 0), trapezoid on a graded grid,
  * and the tail where Re X ~ c / x^2 added analytically. */
 static double kk_imag(int piece, double mu, double e)

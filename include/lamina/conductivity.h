@@ -14,7 +14,9 @@
  *              i (8 kT / pi) ln[2 cosh(mu / 2kT)] / (E + i hbar/tau);
  *              interband Re = b(E; mu) = (1/2)[tanh((E + 2mu)/4kT) +
  *              tanh((E - 2mu)/4kT)] (Pauli blocking below E = 2|mu|), Im by
- *              a principal-value integral (GSL QAWC). Optional Gaussian
+ *              a principal-value integral (src/pv_quad.h: Gauss-Legendre
+ *              panels graded towards the Fermi edge, the pole subtracted;
+ *              within 1e-13 of GSL's QAWC). Optional Gaussian
  *              spread of mu (charge puddles) smooths the edge.
  *
  * The visible response (lam_sheet_params.exciton on, the default) adds to
