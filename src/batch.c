@@ -2,6 +2,7 @@
  * threads, the pooled fit over a sample of them, pool.json, the catalogue
  * of a run. */
 #include "batch_internal.h"
+#include "lamina/draw.h"
 #include "lamina/outfile.h"
 #include "lamina/runreport.h"
 #include "lamina/parallel.h"
@@ -248,6 +249,8 @@ lam_status lam_batch_run(lam_batch *b, const char *const *paths, size_t n,
         return st;
     run r;
     memset(&r, 0, sizeof r);
+    /* the pictures' text machinery loads while the first image is read */
+    lam_draw_warm_up warm;
     r.b = b;
     r.opt = opt;
     r.aopt = opt->analysis;
@@ -260,12 +263,14 @@ lam_status lam_batch_run(lam_batch *b, const char *const *paths, size_t n,
     if (opt->pool_from || (opt->pool && n >= 2))
         st = pooled_prior(&r, err);
     if (!st && !opt->pool_only) {
+        lam_draw_warm_up_start(&warm);
         r.aopt.shared_prior = b->prior.set ? &b->prior : NULL;
         lam_batch_prior_hash(opt->setup_hash ? opt->setup_hash : "", r.aopt.shared_prior,
                              r.setup_hash);
         r.aopt.threads = inner_threads(threads, n);
         lam_parallel_set_default(r.aopt.threads); /* loading and PNG compression too */
         crew_run(n, threads, image_step, &r);
+        lam_draw_warm_up_join(&warm);
     }
     lam_parallel_set_default(threads); /* what follows (the run's report) has them all */
     pthread_mutex_destroy(&r.lock);

@@ -242,6 +242,36 @@ void lam_draw_shutdown(void)
     }
 }
 
+/* Sizes of text in both weights on a scratch surface: fontconfig's
+ * configuration, the two DejaVu faces and their shaping tables get loaded.
+ * The thread's own Pango font map goes with it. */
+static void *warm_up(void *unused)
+{
+    (void)unused;
+    cairo_surface_t *s = cairo_image_surface_create(CAIRO_FORMAT_RGB24, 1, 1);
+    cairo_t *cr = cairo_create(s);
+    lam_text_style st = {12, 0, 0, 0, 0, 0};
+    double w, h;
+    for (st.bold = 0; st.bold < 2; st.bold++)
+        lam_draw_text_size(cr, &st, "0123456789 1L 2L um", &w, &h);
+    cairo_destroy(cr);
+    cairo_surface_destroy(s);
+    pango_cairo_font_map_set_default(NULL);
+    return NULL;
+}
+
+void lam_draw_warm_up_start(lam_draw_warm_up *w)
+{
+    w->started = pthread_create(&w->thread, NULL, warm_up, NULL) == 0;
+}
+
+void lam_draw_warm_up_join(lam_draw_warm_up *w)
+{
+    if (w->started)
+        pthread_join(w->thread, NULL);
+    w->started = 0;
+}
+
 void lam_draw_rgb(cairo_t *cr, uint32_t rgb)
 {
     cairo_set_source_rgb(cr, (rgb >> 16 & 255) / 255.0, (rgb >> 8 & 255) / 255.0,

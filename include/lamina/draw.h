@@ -16,6 +16,7 @@
 #ifndef LAMINA_DRAW_H
 #define LAMINA_DRAW_H
 
+#include <pthread.h>
 #include <stddef.h>
 #include <stdint.h>
 #include <cairo.h>
@@ -109,6 +110,20 @@ void lam_draw_text(cairo_t *cr, double x, double y, const lam_text_style *st,
 /* Logical width and height of the text at that style. */
 void lam_draw_text_size(cairo_t *cr, const lam_text_style *st, const char *markup, double *w,
                         double *h);
+
+/* Text made ready ahead. The first text a process sets waits ~10 ms for
+ * fontconfig's configuration and caches, the font files and their shaping
+ * tables (process-wide, kept). A caller with other work meanwhile (the
+ * analysis of an image) starts that on a thread of its own, and joins it
+ * before it returns; drawing need not wait for it (the libraries lock
+ * what they share) and draws the same bytes either way. Join after a
+ * failed start does nothing. */
+typedef struct lam_draw_warm_up {
+    pthread_t thread;
+    int started;
+} lam_draw_warm_up;
+void lam_draw_warm_up_start(lam_draw_warm_up *w);
+void lam_draw_warm_up_join(lam_draw_warm_up *w);
 
 /* Copy 'text' into 'out' with Pango markup's special characters escaped. */
 void lam_draw_escape(const char *text, char *out, size_t n);
