@@ -34,9 +34,9 @@ static void *write_annotated_thread(void *arg)
 
 /* The annotated image (the largest file) is encoded on a second thread,
  * when the image has two or more (a batch on two cores runs two images
- * on one thread each instead), while the layer map, plot and JSON are
- * written; the JSON goes last, so its presence means the image's results
- * are complete (--resume). */
+ * on one thread each instead), while the layer map and the plot are
+ * written; the JSON goes last, after both, so its presence means the
+ * image's results are complete (--resume). */
 static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
                                 size_t threads, cJSON **json, lam_error *err)
 {
@@ -57,15 +57,15 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
         write_annotated_thread(&aj);
     snprintf(p, sizeof p, "%s/%s.layers.png", dir, stem);
     lam_status st = lam_report_write_layers(a, p, err);
+    snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, stem);
+    if (!st)
+        st = lam_report_write_svg(a, p, err);
     if (threaded)
         pthread_join(t, NULL);
     if (!st && aj.st) {
         *err = aj.err;
         st = aj.st;
     }
-    snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, stem);
-    if (!st)
-        st = lam_report_write_svg(a, p, err);
     if (!st && !(*json = lam_report_json(a)))
         st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
     snprintf(p, sizeof p, "%s/%s.json", dir, stem);
