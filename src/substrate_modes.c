@@ -31,6 +31,7 @@
  * substrate itself. A flake is confined to a few places, and graphene
  * moves the brightness too, so neither joins. */
 #include "substrate_internal.h"
+#include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -242,6 +243,40 @@ static int in_box(const tile_stat *a, double ra, const tile_stat *b, double rb, 
            fabs(a->v - b->v) <= BOX_UV * scale;
 }
 
+/* Tiles b of the sample within the box of tile a (points r, u, v; in_box
+ * at scale 1), for one a: a loop over packed coordinates that vectorises. */
+LAM_VECTOR_CLONES
+static size_t box_count(const double *restrict r, const double *restrict u,
+                        const double *restrict v, size_t ns, size_t a)
+{
+    size_t count = 0;
+    for (size_t b = 0; b < ns; b++)
+        count += (size_t)((fabs(r[a] - r[b]) <= BOX_R) & (fabs(u[a] - u[b]) <= BOX_UV) &
+                          (fabs(v[a] - v[b]) <= BOX_UV));
+    return count;
+}
+
+/* Each sampled tile's neighbour count (itself included): the coordinates
+ * packed side by side first (the tiles' records are far apart), then the
+ * same tests as in_box, so the same counts. */
+static void count_neighbours(const tile_stat *ts, const double *r, const size_t *idx, size_t ns,
+                             size_t *dens)
+{
+    double *p = malloc(3 * (ns ? ns : 1) * sizeof *p);
+    if (!p) { /* the same counts, slowly */
+        for (size_t a = 0; a < ns; a++)
+            for (size_t b = 0; b < ns; b++)
+                dens[a] += in_box(&ts[idx[a]], r[idx[a]], &ts[idx[b]], r[idx[b]], 1.0);
+        return;
+    }
+    double *pr = p, *pu = p + ns, *pv = p + 2 * ns;
+    for (size_t a = 0; a < ns; a++)
+        pr[a] = r[idx[a]], pu[a] = ts[idx[a]].u, pv[a] = ts[idx[a]].v;
+    for (size_t a = 0; a < ns; a++)
+        dens[a] = box_count(pr, pu, pv, ns, a);
+    free(p);
+}
+
 /* Modes: the sampled tiles in order of decreasing neighbour count, each a
  * new mode unless an earlier one lies within twice the box. */
 static size_t find_modes(const tile_stat *ts, size_t n, const double *r, mode *md)
@@ -254,9 +289,7 @@ static size_t find_modes(const tile_stat *ts, size_t n, const double *r, mode *m
     for (size_t i = 0, k = 0; idx && dens && i < n && ns < DENSITY_SAMPLE; i++)
         if (ts[i].uniform && k++ % every == 0)
             idx[ns++] = i;
-    for (size_t a = 0; a < ns; a++)
-        for (size_t b = 0; b < ns; b++)
-            dens[a] += in_box(&ts[idx[a]], r[idx[a]], &ts[idx[b]], r[idx[b]], 1.0);
+    count_neighbours(ts, r, idx, ns, dens);
     size_t top = 0;
     for (size_t a = 0; a < ns; a++)
         top = dens[a] > top ? dens[a] : top;
