@@ -1,13 +1,13 @@
 /* substrate.c - substrate detection by chromaticity, robust flat-field fit
- * (GSL bisquare regression), noise estimate and the contrast map. */
+ * (bisquare regression, robust_fit.h), noise estimate and the contrast map. */
 #include "lamina/substrate.h"
 #include "lamina/parallel.h"
 #include "substrate_internal.h"
+#include "robust_fit.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <gsl/gsl_multifit.h>
 
 lam_status lam_substrate_roi_parse(lam_substrate_options *o, const char *name, const char *text,
                                    lam_error *err)
@@ -185,65 +185,52 @@ static size_t thin_candidates(tile_stat *ts, size_t n, size_t cand)
     return cand;
 }
 
-/* Robust (GSL bisquare) fit of ln(level) per channel over the candidates,
- * the three channels side by side on the threads (each with its own
- * workspace: the same fit as one after the other). */
+/* Robust (bisquare, robust_fit.h) fit of ln(level) per channel over the
+ * candidates, the three channels side by side on the threads (each with
+ * its own scratch: the same fit as one after the other). */
 typedef struct flat_fit {
     const tile_stat *ts;
     size_t n, cand;
-    const gsl_matrix *X;
+    const double *X; /* cand rows of LAM_SUBSTRATE_TERMS */
     lam_substrate *s;
-    int gsl_status[3];
+    lam__robust_status status[3];
 } flat_fit;
 
 static void fit_channel(size_t c, void *vctx)
 {
     flat_fit *f = vctx;
-    gsl_vector *y = gsl_vector_alloc(f->cand), *coef = gsl_vector_alloc(LAM_SUBSTRATE_TERMS);
-    gsl_matrix *cov = gsl_matrix_alloc(LAM_SUBSTRATE_TERMS, LAM_SUBSTRATE_TERMS);
-    gsl_multifit_robust_workspace *ws =
-        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, f->cand, LAM_SUBSTRATE_TERMS);
-    if (!y || !coef || !cov || !ws)
-        f->gsl_status[c] = GSL_ENOMEM;
-    else {
-        gsl_multifit_robust_maxiter(30, ws);
-        for (size_t i = 0, r = 0; i < f->n; i++)
-            if (f->ts[i].candidate)
-                gsl_vector_set(y, r++, log(f->ts[i].mean[c]));
-        f->gsl_status[c] = gsl_multifit_robust(f->X, y, coef, cov, ws);
-        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
-            f->s->coef[c][k] = gsl_vector_get(coef, (size_t)k);
+    double *y = malloc(f->cand * sizeof *y);
+    if (!y) {
+        f->status[c] = LAM__ROBUST_NOMEM;
+        return;
     }
-    gsl_vector_free(y);
-    gsl_vector_free(coef);
-    gsl_matrix_free(cov);
-    gsl_multifit_robust_free(ws);
+    for (size_t i = 0, r = 0; i < f->n; i++)
+        if (f->ts[i].candidate)
+            y[r++] = log(f->ts[i].mean[c]);
+    f->status[c] = lam__robust_bisquare(f->X, y, f->cand, LAM_SUBSTRATE_TERMS, 30,
+                                        f->s->coef[c]);
+    free(y);
 }
 
 static lam_status fit_flat_field(const tile_stat *ts, size_t n, size_t cand, lam_substrate *s,
                                  size_t threads, lam_error *err)
 {
-    gsl_matrix *X = gsl_matrix_alloc(cand, LAM_SUBSTRATE_TERMS);
+    double *X = malloc(cand * LAM_SUBSTRATE_TERMS * sizeof *X);
     if (!X)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
-    for (size_t i = 0, r = 0; i < n; i++) {
-        if (!ts[i].candidate)
-            continue;
-        double b[LAM_SUBSTRATE_TERMS];
-        lam__substrate_basis(s, ts[i].cx, ts[i].cy, b);
-        for (int k = 0; k < LAM_SUBSTRATE_TERMS; k++)
-            gsl_matrix_set(X, r, (size_t)k, b[k]);
-        r++;
-    }
+    for (size_t i = 0, r = 0; i < n; i++)
+        if (ts[i].candidate)
+            lam__substrate_basis(s, ts[i].cx, ts[i].cy, X + LAM_SUBSTRATE_TERMS * r++);
     flat_fit f = {ts, n, cand, X, s, {0, 0, 0}};
     lam_parallel_each(3, threads, fit_channel, &f);
-    gsl_matrix_free(X);
+    free(X);
     lam_status st = LAM_OK;
+    /* the iteration limit leaves the bisquare weights' last estimate */
     for (int c = 0; c < 3 && !st; c++)
-        if (f.gsl_status[c] == GSL_ENOMEM)
+        if (f.status[c] == LAM__ROBUST_NOMEM)
             st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the flat-field fit");
-        else if (f.gsl_status[c] && f.gsl_status[c] != GSL_EMAXITER)
-            st = lam_error_gsl(err, f.gsl_status[c], "flat-field fit");
+        else if (f.status[c] == LAM__ROBUST_FAILED)
+            st = lam_error_set(err, LAM_EGSL, "flat-field fit: the robust fit failed");
     return st;
 }
 

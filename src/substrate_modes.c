@@ -31,12 +31,12 @@
  * substrate itself. A flake is confined to a few places, and graphene
  * moves the brightness too, so neither joins. */
 #include "substrate_internal.h"
+#include "robust_fit.h"
 #include "vector_clones.h"
 
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <gsl/gsl_multifit.h>
 
 #define MAX_MODES 6
 #define DENSITY_SAMPLE 2000   /* tiles used to find modes */
@@ -76,6 +76,7 @@ static int cmp_double(const void *a, const void *b)
 #define LEVEL_HALF 0.1        /* a level's tiles: residuals within this (ln) of its centre */
 #define LEVEL_MIN_SHARE 0.08  /* a level holds at least this share of the sampled tiles */
 #define LEVEL_PASSES 3
+#define ROBUST_MAXITER 100    /* GSL's default, which this fit has always had */
 
 typedef struct bright_sample {
     size_t used;
@@ -122,33 +123,26 @@ static int fit_surface(const bright_sample *bs, size_t levels, double *coef)
         rows += bs->level[j] >= 0;
     if (rows <= 2 * p)
         return 0;
-    gsl_matrix *X = gsl_matrix_calloc(rows, p), *cov = gsl_matrix_alloc(p, p);
-    gsl_vector *y = gsl_vector_alloc(rows), *c = gsl_vector_alloc(p);
-    gsl_multifit_robust_workspace *ws =
-        gsl_multifit_robust_alloc(gsl_multifit_robust_bisquare, rows, p);
-    int ok = X && cov && y && c && ws;
+    double *X = calloc(rows * p, sizeof *X), *y = malloc(rows * sizeof *y);
+    double c[LAM__ROBUST_MAX_TERMS];
+    int ok = X && y;
     for (size_t j = 0, r = 0; ok && j < bs->used; j++) {
         if (bs->level[j] < 0)
             continue;
-        for (int t = 0; t < LAM_SUBSTRATE_TERMS; t++)
-            gsl_matrix_set(X, r, (size_t)t, bs->basis[j][t]);
+        memcpy(X + r * p, bs->basis[j], LAM_SUBSTRATE_TERMS * sizeof *X);
         if (bs->level[j] > 0)
-            gsl_matrix_set(X, r, LAM_SUBSTRATE_TERMS + (size_t)bs->level[j] - 1, 1.0);
-        gsl_vector_set(y, r++, bs->y[j]);
+            X[r * p + LAM_SUBSTRATE_TERMS + (size_t)bs->level[j] - 1] = 1.0;
+        y[r++] = bs->y[j];
     }
     /* the iteration limit leaves the bisquare weights' last estimate, as
      * good a surface as this rough use needs (as in the flat-field fit);
      * treating it as a failure dropped the surface, and the raw
      * brightness split a 48 MP field's substrate into several modes */
-    int gs = ok ? gsl_multifit_robust(X, y, c, cov, ws) : GSL_ENOMEM;
-    ok = ok && (!gs || gs == GSL_EMAXITER);
-    for (int t = 0; ok && t < LAM_SUBSTRATE_TERMS; t++)
-        coef[t] = gsl_vector_get(c, (size_t)t);
-    gsl_multifit_robust_free(ws);
-    gsl_matrix_free(X);
-    gsl_matrix_free(cov);
-    gsl_vector_free(y);
-    gsl_vector_free(c);
+    ok = ok && lam__robust_bisquare(X, y, rows, p, ROBUST_MAXITER, c) >= 0;
+    if (ok)
+        memcpy(coef, c, LAM_SUBSTRATE_TERMS * sizeof *coef);
+    free(X);
+    free(y);
     return ok;
 }
 

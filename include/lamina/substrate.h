@@ -8,7 +8,7 @@
  * substrate is the one against which its neighbours look like graphene
  * layers in every channel (when a ladder is given and the evidence is
  * clear; src/substrate_modes.c), else the largest, or the tiles of a
- * user-given region. A robust fit (GSL bisquare) of ln(level) per channel
+ * user-given region. A robust fit (bisquare, as GSL's; src/robust_fit.h) of ln(level) per channel
  * over those tiles with the basis 1, x, y, x^2, xy, y^2, r^4 gives the flat
  * field B_c(x, y), refitted once over every tile close to it. Noise is the
  * median relative pixel standard deviation of substrate tiles; the
