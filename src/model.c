@@ -36,6 +36,22 @@ typedef struct substrate_slot {
     unsigned long res_filled; /* the 'filled' res_rbar was computed for, 0: not yet */
 } substrate_slot;
 
+/* What a reflection slot needs that does not depend on the oxide, per
+ * wavelength and cone node (k = l * nodes + t) of one cone: the ambient
+ * gap's phase terms, the ambient's and the base's admittances and, per
+ * substrate film j (kj = k * films + j), k0 q, its admittances and (every
+ * film but the oxide) its phase terms. A fit moves the oxide far more
+ * often than the NA, and these were most of a new slot's cost (a complex
+ * square root per film and node). They are the values fill_slot computed
+ * itself, by the same operations: the same slots. */
+typedef struct cone_waves {
+    double na; /* NAN: not filled */
+    double complex *gap_cos, *gap_sin; /* k */
+    double complex *eta0, *eta_base;   /* 2k + pol */
+    double complex *k0q, *cph, *sph;   /* kj */
+    double complex *eta;               /* 2kj + pol */
+} cone_waves;
+
 struct lam_model {
     size_t channels, max_layers, nwl, layers, oxide_layer, cone_nodes_max;
     double n_ambient, interlayer_nm;
@@ -60,6 +76,7 @@ struct lam_model {
     double complex *y_sheet; /* nwl: Z0 sigma at the point being evaluated */
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     cone cone_cache;
+    cone_waves waves;        /* reflection only; allocated when first needed */
     substrate_slot slot[SUBSTRATE_SLOTS];
     unsigned long clock;
     lam_model_point defaults;
@@ -109,6 +126,7 @@ void lam_model_free(lam_model *m)
     free(m->y_sheet);
     free(m->rbar);
     free(m->n_residue);
+    free(m->waves.gap_cos);
     free_slots(m);
     lam_table_spectrum_clear(&m->camera_table_copy);
     free(m);
@@ -246,6 +264,7 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
         goto fail;
     }
+    m->waves.na = NAN; /* no waves yet: 0 is an NA */
     lam_camera cam = s->camera;
     if (mono_nm > 0) {
         lam_grid_single(grid, mono_nm);
@@ -361,6 +380,8 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
     m->n_residue = NULL;
     m->res_slot = NULL;
     memset(m->slot, 0, sizeof m->slot);
+    memset(&m->waves, 0, sizeof m->waves);
+    m->waves.na = NAN;
     memset(&m->camera_table_copy, 0, sizeof m->camera_table_copy);
     m->have_weight = m->have_basis = m->have_rbar = 0;
     m->rbar_slot = NULL;
@@ -576,9 +597,94 @@ static double transmittance(double tnorm, double complex eta0, double complex b,
     return tnorm * creal(eta0) / creal(d * conj(d));
 }
 
-static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
+static size_t films_of(const lam_model *m)
+{
+    return m->layers ? m->layers : 1;
+}
+
+/* The waves' arrays for the largest cone, once. 0 when out of memory. */
+static int waves_alloc(lam_model *m)
+{
+    cone_waves *w = &m->waves;
+    if (w->gap_cos)
+        return 1;
+    size_t per = m->nwl * m->cone_nodes_max, films = films_of(m);
+    double complex *a = malloc((6 * per + 5 * per * films) * sizeof *a);
+    if (!a)
+        return 0;
+    w->gap_cos = a, w->gap_sin = a + per, w->eta0 = a + 2 * per, w->eta_base = a + 4 * per;
+    a += 6 * per;
+    w->k0q = a, w->cph = a + per * films, w->sph = a + 2 * per * films;
+    w->eta = a + 3 * per * films;
+    return 1;
+}
+
+/* The waves of the current cone (m->waves.na == its NA afterwards). */
+static void fill_waves(lam_model *m)
 {
     const cone *c = &m->cone_cache;
+    cone_waves *w = &m->waves;
+    size_t films = films_of(m);
+    for (size_t l = 0; l < m->nwl; l++) {
+        double k0 = 2.0 * M_PI / m->wl[l];
+        for (size_t t = 0; t < c->nodes; t++) {
+            double kx = m->n_ambient * c->sin_t[t];
+            double complex q0 = lam_tmm_q(m->n_ambient, kx), qb = lam_tmm_q(m->n_base[l], kx);
+            size_t k = l * c->nodes + t;
+            phase_cos_sin(k0 * q0 * m->interlayer_nm, &w->gap_cos[k], &w->gap_sin[k]);
+            for (int pol = 0; pol < 2; pol++) {
+                w->eta0[2 * k + (size_t)pol] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
+                w->eta_base[2 * k + (size_t)pol] = lam_tmm_eta(m->n_base[l], qb, (lam_pol)pol);
+            }
+            for (size_t j = 0; j < m->layers; j++) {
+                double complex n = m->n_layer[j * m->nwl + l], q = lam_tmm_q(n, kx);
+                size_t kj = k * films + j;
+                w->k0q[kj] = k0 * q;
+                for (int pol = 0; pol < 2; pol++)
+                    w->eta[2 * kj + (size_t)pol] = lam_tmm_eta(n, q, (lam_pol)pol);
+                if (j != m->oxide_layer)
+                    phase_cos_sin(w->k0q[kj] * m->layer_nm[j], &w->cph[kj], &w->sph[kj]);
+            }
+        }
+    }
+    w->na = c->na;
+}
+
+/* The reflection slot for oxide_nm from the cone's waves: the substrate's
+ * admittance carried up from the base as substrate_admittance does. */
+static void fill_slot_from_waves(const lam_model *m, substrate_slot *s, double oxide_nm)
+{
+    const cone_waves *w = &m->waves;
+    size_t per = m->nwl * m->cone_cache.nodes, films = films_of(m);
+    memcpy(s->gap_cos, w->gap_cos, per * sizeof *s->gap_cos);
+    memcpy(s->gap_sin, w->gap_sin, per * sizeof *s->gap_sin);
+    memcpy(s->eta0, w->eta0, 2 * per * sizeof *s->eta0);
+    for (size_t k = 0; k < per; k++) {
+        double complex y[2] = {w->eta_base[2 * k], w->eta_base[2 * k + 1]};
+        for (size_t j = m->layers; j-- > 0;) {
+            size_t kj = k * films + j;
+            double complex cph = w->cph[kj], sph = w->sph[kj];
+            if (j == m->oxide_layer)
+                phase_cos_sin(w->k0q[kj] * oxide_nm, &cph, &sph);
+            for (int pol = 0; pol < 2; pol++)
+                y[pol] = lam_tmm_through_film(y[pol], w->eta[2 * kj + (size_t)pol], cph, sph);
+        }
+        s->y[2 * k] = y[0], s->y[2 * k + 1] = y[1];
+    }
+}
+
+static void fill_slot(lam_model *m, substrate_slot *s, double oxide_nm)
+{
+    const cone *c = &m->cone_cache;
+    s->oxide_nm = oxide_nm;
+    s->na = c->na;
+    s->valid = 1;
+    if (!m->transmission && waves_alloc(m)) {
+        if (!(m->waves.na == c->na))
+            fill_waves(m);
+        fill_slot_from_waves(m, s, oxide_nm);
+        return;
+    }
     for (size_t l = 0; l < m->nwl; l++) {
         double k0 = 2.0 * M_PI / m->wl[l];
         for (size_t t = 0; t < c->nodes; t++) {
@@ -595,9 +701,6 @@ static void fill_slot(const lam_model *m, substrate_slot *s, double oxide_nm)
                 s->eta0[2 * k + (size_t)pol] = lam_tmm_eta(m->n_ambient, q0, (lam_pol)pol);
         }
     }
-    s->oxide_nm = oxide_nm;
-    s->na = c->na;
-    s->valid = 1;
 }
 
 /* The slot for (oxide, the current cone's NA), computed into the least

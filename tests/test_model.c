@@ -281,6 +281,34 @@ static void test_clone(void)
     lam_model_free(m);
 }
 
+/* A warm model at a point equals a cold one there, to the bit, when the
+ * points before it moved the oxide and the NA back and forth (more oxides
+ * than the model keeps substrates for, and an NA's oxide-free part reused
+ * only for that NA). */
+static void test_warm_equals_cold(void)
+{
+    static const double oxide[8] = {280, 286, 280, 301, 290, 294, 298, 283};
+    static const double na[8] = {0.2, 0.2, 0.5, 0.5, 0.2, 0.35, 0.2, 0.5};
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_model *warm = NULL;
+    if (!check_int(lam_model_alloc_fast(&s, 4, &warm, NULL), LAM_OK, "model"))
+        return;
+    lam_model_point p = lam_model_point_default(warm);
+    int same = 1;
+    for (int k = 0; k < 8 && same; k++) {
+        lam_model *cold = NULL;
+        p.v[LAM_MP_OXIDE] = oxide[k];
+        p.v[LAM_MP_NA] = na[k];
+        same = !lam_model_alloc_fast(&s, 4, &cold, NULL) &&
+               !lam_model_eval_point(warm, &p, 4, &P, NULL) &&
+               !lam_model_eval_point(cold, &p, 4, &Q, NULL) && !memcmp(&P, &Q, sizeof P);
+        lam_model_free(cold);
+    }
+    check_true(same, "a warm model predicts as a cold one after 8 oxide and NA moves");
+    lam_model_free(warm);
+}
+
 int main(void)
 {
     check_begin("test_model");
@@ -290,6 +318,7 @@ int main(void)
     test_pitfalls();
     test_derivative();
     test_clone();
+    test_warm_equals_cold();
     if (check_refdata_dir())
         test_film_comparison();
     else
