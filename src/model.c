@@ -43,9 +43,14 @@ typedef struct substrate_slot {
  * film but the oxide) its phase terms. A fit moves the oxide far more
  * often than the NA, and these were most of a new slot's cost (a complex
  * square root per film and node). They are the values fill_slot computed
- * itself, by the same operations: the same slots. */
+ * itself, by the same operations: the same slots. A gradient steps the NA
+ * away and back, so a few cones are kept (the least recently used is
+ * replaced). */
+#define WAVE_SETS 3
+
 typedef struct cone_waves {
     double na; /* NAN: not filled */
+    unsigned long used;
     double complex *gap_cos, *gap_sin; /* k */
     double complex *eta0, *eta_base;   /* 2k + pol */
     double complex *k0q, *cph, *sph;   /* kj */
@@ -76,7 +81,7 @@ struct lam_model {
     double complex *y_sheet; /* nwl: Z0 sigma at the point being evaluated */
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     cone cone_cache;
-    cone_waves waves;        /* reflection only; allocated when first needed */
+    cone_waves waves[WAVE_SETS]; /* reflection only; allocated when first needed */
     substrate_slot slot[SUBSTRATE_SLOTS];
     unsigned long clock;
     lam_model_point defaults;
@@ -126,7 +131,8 @@ void lam_model_free(lam_model *m)
     free(m->y_sheet);
     free(m->rbar);
     free(m->n_residue);
-    free(m->waves.gap_cos);
+    for (int i = 0; i < WAVE_SETS; i++)
+        free(m->waves[i].gap_cos);
     free_slots(m);
     lam_table_spectrum_clear(&m->camera_table_copy);
     free(m);
@@ -264,7 +270,8 @@ lam_status lam_model_alloc(const lam_setup *s, size_t max_layers, double mono_nm
         st = lam_error_set(err, LAM_ENOMEM, "cannot allocate a model");
         goto fail;
     }
-    m->waves.na = NAN; /* no waves yet: 0 is an NA */
+    for (int i = 0; i < WAVE_SETS; i++)
+        m->waves[i].na = NAN; /* no waves yet: 0 is an NA */
     lam_camera cam = s->camera;
     if (mono_nm > 0) {
         lam_grid_single(grid, mono_nm);
@@ -380,8 +387,9 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
     m->n_residue = NULL;
     m->res_slot = NULL;
     memset(m->slot, 0, sizeof m->slot);
-    memset(&m->waves, 0, sizeof m->waves);
-    m->waves.na = NAN;
+    memset(m->waves, 0, sizeof m->waves);
+    for (int i = 0; i < WAVE_SETS; i++)
+        m->waves[i].na = NAN;
     memset(&m->camera_table_copy, 0, sizeof m->camera_table_copy);
     m->have_weight = m->have_basis = m->have_rbar = 0;
     m->rbar_slot = NULL;
@@ -602,10 +610,9 @@ static size_t films_of(const lam_model *m)
     return m->layers ? m->layers : 1;
 }
 
-/* The waves' arrays for the largest cone, once. 0 when out of memory. */
-static int waves_alloc(lam_model *m)
+/* A set's arrays for the largest cone, once. 0 when out of memory. */
+static int waves_alloc(const lam_model *m, cone_waves *w)
 {
-    cone_waves *w = &m->waves;
     if (w->gap_cos)
         return 1;
     size_t per = m->nwl * m->cone_nodes_max, films = films_of(m);
@@ -619,11 +626,10 @@ static int waves_alloc(lam_model *m)
     return 1;
 }
 
-/* The waves of the current cone (m->waves.na == its NA afterwards). */
-static void fill_waves(lam_model *m)
+/* The waves of the current cone into w (w->na its NA afterwards). */
+static void fill_waves(const lam_model *m, cone_waves *w)
 {
     const cone *c = &m->cone_cache;
-    cone_waves *w = &m->waves;
     size_t films = films_of(m);
     for (size_t l = 0; l < m->nwl; l++) {
         double k0 = 2.0 * M_PI / m->wl[l];
@@ -652,9 +658,9 @@ static void fill_waves(lam_model *m)
 
 /* The reflection slot for oxide_nm from the cone's waves: the substrate's
  * admittance carried up from the base as substrate_admittance does. */
-static void fill_slot_from_waves(const lam_model *m, substrate_slot *s, double oxide_nm)
+static void fill_slot_from_waves(const lam_model *m, const cone_waves *w, substrate_slot *s,
+                                 double oxide_nm)
 {
-    const cone_waves *w = &m->waves;
     size_t per = m->nwl * m->cone_cache.nodes, films = films_of(m);
     memcpy(s->gap_cos, w->gap_cos, per * sizeof *s->gap_cos);
     memcpy(s->gap_sin, w->gap_sin, per * sizeof *s->gap_sin);
@@ -673,16 +679,36 @@ static void fill_slot_from_waves(const lam_model *m, substrate_slot *s, double o
     }
 }
 
+/* The waves of the current cone: kept, or filled into the least recently
+ * used set; NULL when out of memory. */
+static cone_waves *waves_for(lam_model *m)
+{
+    cone_waves *lru = &m->waves[0];
+    for (int i = 0; i < WAVE_SETS; i++) {
+        cone_waves *w = &m->waves[i];
+        if (w->na == m->cone_cache.na) {
+            w->used = ++m->clock;
+            return w;
+        }
+        if (w->used < lru->used)
+            lru = w;
+    }
+    if (!waves_alloc(m, lru))
+        return NULL;
+    fill_waves(m, lru);
+    lru->used = ++m->clock;
+    return lru;
+}
+
 static void fill_slot(lam_model *m, substrate_slot *s, double oxide_nm)
 {
     const cone *c = &m->cone_cache;
     s->oxide_nm = oxide_nm;
     s->na = c->na;
     s->valid = 1;
-    if (!m->transmission && waves_alloc(m)) {
-        if (!(m->waves.na == c->na))
-            fill_waves(m);
-        fill_slot_from_waves(m, s, oxide_nm);
+    cone_waves *w = m->transmission ? NULL : waves_for(m);
+    if (w) {
+        fill_slot_from_waves(m, w, s, oxide_nm);
         return;
     }
     for (size_t l = 0; l < m->nwl; l++) {
