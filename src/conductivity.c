@@ -105,7 +105,7 @@ static double blocked_real(double e, const void *vp)
  * panels are 2 kT wide (pv_quad.h). Elsewhere they vary on the scale of
  * the photon energy and of the resonance's 2.5 eV width (poles 1.25 eV
  * off the axis), which panels of 0.5 eV resolve to ~1e-20. Against GSL's
- * QAWC the two agree within 3e-14 (tests/test_pv_quad.c). */
+ * QAWC the two agree within 1e-13 (tests/test_pv_quad.c). */
 #define PANEL_KT 2.0
 #define PANEL_COARSEST_EV 0.5
 

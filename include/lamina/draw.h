@@ -122,7 +122,9 @@ typedef struct lam_draw_warm_up {
     pthread_t thread;
     int started;
 } lam_draw_warm_up;
+/* Start the loading on a thread of its own (w->started: whether it did). */
 void lam_draw_warm_up_start(lam_draw_warm_up *w);
+/* Wait for it (nothing after a failed start). */
 void lam_draw_warm_up_join(lam_draw_warm_up *w);
 
 /* Copy 'text' into 'out' with Pango markup's special characters escaped. */
