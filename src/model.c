@@ -81,7 +81,7 @@ struct lam_model {
     double complex *y_sheet; /* nwl: Z0 sigma at the point being evaluated */
     double layer_nm[LAM_SETUP_MAX_LAYERS];
     cone cone_cache;
-    cone_waves waves[WAVE_SETS]; /* reflection only; allocated when first needed */
+    cone_waves waves[WAVE_SETS]; /* reflection only (allocated with the slots) */
     substrate_slot slot[SUBSTRATE_SLOTS];
     unsigned long clock;
     lam_model_point defaults;
@@ -148,6 +148,25 @@ size_t lam_model_max_layers(const lam_model *m)
     return m->max_layers;
 }
 
+static size_t films_of(const lam_model *m)
+{
+    return m->layers ? m->layers : 1;
+}
+
+/* A set's arrays for the largest cone. 0 when out of memory. */
+static int waves_alloc(const lam_model *m, cone_waves *w)
+{
+    size_t per = m->nwl * m->cone_nodes_max, films = films_of(m);
+    double complex *a = malloc((6 * per + 5 * per * films) * sizeof *a);
+    if (!a)
+        return 0;
+    w->gap_cos = a, w->gap_sin = a + per, w->eta0 = a + 2 * per, w->eta_base = a + 4 * per;
+    a += 6 * per;
+    w->k0q = a, w->cph = a + per * films, w->sph = a + 2 * per * films;
+    w->eta = a + 3 * per * films;
+    return 1;
+}
+
 static int alloc_arrays(lam_model *m)
 {
     size_t n = m->nwl, nl = m->layers ? m->layers : 1;
@@ -173,6 +192,8 @@ static int alloc_arrays(lam_model *m)
         if (ok && m->transmission)
             ok = (s->tnorm = malloc(per_slot * sizeof *s->tnorm)) != NULL;
     }
+    for (int i = 0; i < WAVE_SETS && ok && !m->transmission; i++)
+        ok = waves_alloc(m, &m->waves[i]);
     return ok;
 }
 
@@ -554,26 +575,6 @@ static void phase_cos_sin(double complex ph, double complex *c, double complex *
     }
 }
 
-/* Admittance of the substrate stack at one wavelength and angle, for s
- * (y[0]) and p (y[1]), seen from just above its top film. The wave
- * vectors and phases are the same for both polarisations: computed once. */
-static void substrate_admittance(const lam_model *m, size_t l, double oxide_nm, double kx,
-                                 double complex y[2])
-{
-    double k0 = 2.0 * M_PI / m->wl[l];
-    double complex qb = lam_tmm_q(m->n_base[l], kx);
-    for (int pol = 0; pol < 2; pol++)
-        y[pol] = lam_tmm_eta(m->n_base[l], qb, (lam_pol)pol);
-    for (size_t j = m->layers; j-- > 0;) {
-        double complex n = m->n_layer[j * m->nwl + l];
-        double complex q = lam_tmm_q(n, kx), cph, sph;
-        double d = j == m->oxide_layer ? oxide_nm : m->layer_nm[j];
-        phase_cos_sin(k0 * q * d, &cph, &sph);
-        for (int pol = 0; pol < 2; pol++)
-            y[pol] = lam_tmm_through_film(y[pol], lam_tmm_eta(n, q, (lam_pol)pol), cph, sph);
-    }
-}
-
 /* Transmission: the substrate's admittance and 4 Re(eta_base) / |B|^2,
  * carrying the unnormalised fields (B, C) up from a unit field in the base
  * (the thick base is the exit medium; its back face and the incoherent
@@ -603,27 +604,6 @@ static double transmittance(double tnorm, double complex eta0, double complex b,
 {
     double complex d = eta0 * b + cc;
     return tnorm * creal(eta0) / creal(d * conj(d));
-}
-
-static size_t films_of(const lam_model *m)
-{
-    return m->layers ? m->layers : 1;
-}
-
-/* A set's arrays for the largest cone, once. 0 when out of memory. */
-static int waves_alloc(const lam_model *m, cone_waves *w)
-{
-    if (w->gap_cos)
-        return 1;
-    size_t per = m->nwl * m->cone_nodes_max, films = films_of(m);
-    double complex *a = malloc((6 * per + 5 * per * films) * sizeof *a);
-    if (!a)
-        return 0;
-    w->gap_cos = a, w->gap_sin = a + per, w->eta0 = a + 2 * per, w->eta_base = a + 4 * per;
-    a += 6 * per;
-    w->k0q = a, w->cph = a + per * films, w->sph = a + 2 * per * films;
-    w->eta = a + 3 * per * films;
-    return 1;
 }
 
 /* The waves of the current cone into w (w->na its NA afterwards). */
@@ -657,7 +637,7 @@ static void fill_waves(const lam_model *m, cone_waves *w)
 }
 
 /* The reflection slot for oxide_nm from the cone's waves: the substrate's
- * admittance carried up from the base as substrate_admittance does. */
+ * admittance carried up from the base, film by film (lam_tmm_through_film). */
 static void fill_slot_from_waves(const lam_model *m, const cone_waves *w, substrate_slot *s,
                                  double oxide_nm)
 {
@@ -680,7 +660,7 @@ static void fill_slot_from_waves(const lam_model *m, const cone_waves *w, substr
 }
 
 /* The waves of the current cone: kept, or filled into the least recently
- * used set; NULL when out of memory. */
+ * used set. */
 static cone_waves *waves_for(lam_model *m)
 {
     cone_waves *lru = &m->waves[0];
@@ -693,8 +673,6 @@ static cone_waves *waves_for(lam_model *m)
         if (w->used < lru->used)
             lru = w;
     }
-    if (!waves_alloc(m, lru))
-        return NULL;
     fill_waves(m, lru);
     lru->used = ++m->clock;
     return lru;
@@ -706,9 +684,8 @@ static void fill_slot(lam_model *m, substrate_slot *s, double oxide_nm)
     s->oxide_nm = oxide_nm;
     s->na = c->na;
     s->valid = 1;
-    cone_waves *w = m->transmission ? NULL : waves_for(m);
-    if (w) {
-        fill_slot_from_waves(m, w, s, oxide_nm);
+    if (!m->transmission) {
+        fill_slot_from_waves(m, waves_for(m), s, oxide_nm);
         return;
     }
     for (size_t l = 0; l < m->nwl; l++) {
@@ -718,9 +695,7 @@ static void fill_slot(lam_model *m, substrate_slot *s, double oxide_nm)
             double complex q0 = lam_tmm_q(m->n_ambient, kx);
             size_t k = l * c->nodes + t;
             phase_cos_sin(k0 * q0 * m->interlayer_nm, &s->gap_cos[k], &s->gap_sin[k]);
-            if (!m->transmission)
-                substrate_admittance(m, l, oxide_nm, kx, &s->y[2 * k]);
-            for (int pol = 0; pol < 2 && m->transmission; pol++)
+            for (int pol = 0; pol < 2; pol++)
                 s->y[2 * k + (size_t)pol] = substrate_transmission(
                     m, l, oxide_nm, kx, (lam_pol)pol, &s->tnorm[2 * k + (size_t)pol]);
             for (int pol = 0; pol < 2; pol++)

@@ -63,24 +63,18 @@ static void panel_nodes(double a, double b, double *x, double *w)
     }
 }
 
+/* Room for 'panels' panels: the bounds, then nodes, weights and samples,
+ * in one block (kept when large enough). */
 static int reserve(lam__pv_rule *r, size_t panels)
 {
     if (panels <= r->cap)
         return 0;
     size_t n = panels * LAM__PV_POINTS;
-    double *bound = realloc(r->bound, (panels + 1) * sizeof *bound);
-    if (bound)
-        r->bound = bound;
-    double *x = realloc(r->x, n * sizeof *x), *w = x ? realloc(r->w, n * sizeof *w) : NULL;
-    if (x)
-        r->x = x;
-    if (w)
-        r->w = w;
-    double *g = w ? realloc(r->g, n * sizeof *g) : NULL;
-    if (g)
-        r->g = g;
-    if (!bound || !g)
+    double *block = realloc(r->bound, (panels + 1 + 3 * n) * sizeof *block);
+    if (!block)
         return -1;
+    r->bound = block;
+    r->x = block + panels + 1, r->w = r->x + n, r->g = r->w + n;
     r->cap = panels;
     return 0;
 }
@@ -166,10 +160,7 @@ double lam__pv_integral(const lam__pv_rule *r, double c, lam__pv_fn g, const voi
 
 void lam__pv_rule_free(lam__pv_rule *r)
 {
-    free(r->bound);
-    free(r->x);
-    free(r->w);
-    free(r->g);
+    free(r->bound); /* the block of all four */
     r->bound = r->x = r->w = r->g = NULL;
     r->cap = r->panels = r->nodes = 0;
 }

@@ -38,7 +38,7 @@ typedef struct lam__pv_rule {
     size_t panels;  /* bound[0] = 0 < ... < bound[panels] = U */
     size_t nodes;   /* panels * LAM__PV_POINTS: x, w, g in panel order */
     size_t cap;     /* panels the arrays hold */
-    double *bound, *x, *w, *g;
+    double *bound, *x, *w, *g; /* one block, from bound (freed through it) */
 } lam__pv_rule;
 
 /* Panels of [0, upper] graded towards steps[0..nsteps) (places anywhere on

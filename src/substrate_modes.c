@@ -250,25 +250,17 @@ static size_t box_count(const double *restrict r, const double *restrict u,
     return count;
 }
 
-/* Each sampled tile's neighbour count (itself included): the coordinates
- * packed side by side first (the tiles' records are far apart), then the
- * same tests as in_box, so the same counts. */
+/* Each sampled tile's neighbour count (itself included), from its
+ * coordinates packed side by side in p (3 x ns: the tiles' records are
+ * far apart), by the same tests as in_box, so the same counts. */
 static void count_neighbours(const tile_stat *ts, const double *r, const size_t *idx, size_t ns,
-                             size_t *dens)
+                             double *p, size_t *dens)
 {
-    double *p = malloc(3 * (ns ? ns : 1) * sizeof *p);
-    if (!p) { /* the same counts, slowly */
-        for (size_t a = 0; a < ns; a++)
-            for (size_t b = 0; b < ns; b++)
-                dens[a] += in_box(&ts[idx[a]], r[idx[a]], &ts[idx[b]], r[idx[b]], 1.0);
-        return;
-    }
     double *pr = p, *pu = p + ns, *pv = p + 2 * ns;
     for (size_t a = 0; a < ns; a++)
         pr[a] = r[idx[a]], pu[a] = ts[idx[a]].u, pv[a] = ts[idx[a]].v;
     for (size_t a = 0; a < ns; a++)
         dens[a] = box_count(pr, pu, pv, ns, a);
-    free(p);
 }
 
 /* Modes: the sampled tiles in order of decreasing neighbour count, each a
@@ -277,13 +269,14 @@ static size_t find_modes(const tile_stat *ts, size_t n, const double *r, mode *m
 {
     size_t *idx = malloc(DENSITY_SAMPLE * sizeof *idx), ns = 0, m = 0, every = 1, u = 0;
     size_t *dens = calloc(DENSITY_SAMPLE, sizeof *dens);
+    double *packed = malloc(3 * DENSITY_SAMPLE * sizeof *packed);
     for (size_t i = 0; i < n; i++)
         u += ts[i].uniform != 0;
     every = u > DENSITY_SAMPLE ? (u + DENSITY_SAMPLE - 1) / DENSITY_SAMPLE : 1;
-    for (size_t i = 0, k = 0; idx && dens && i < n && ns < DENSITY_SAMPLE; i++)
+    for (size_t i = 0, k = 0; idx && dens && packed && i < n && ns < DENSITY_SAMPLE; i++)
         if (ts[i].uniform && k++ % every == 0)
             idx[ns++] = i;
-    count_neighbours(ts, r, idx, ns, dens);
+    count_neighbours(ts, r, idx, ns, packed, dens);
     size_t top = 0;
     for (size_t a = 0; a < ns; a++)
         top = dens[a] > top ? dens[a] : top;
@@ -305,6 +298,7 @@ static size_t find_modes(const tile_stat *ts, size_t n, const double *r, mode *m
     }
     free(idx);
     free(dens);
+    free(packed);
     return m;
 }
 
