@@ -467,29 +467,32 @@ static uint32_t region_sums(const merge_state *m, uint32_t r, float sum[3])
     return (uint32_t)((1u & (uint32_t)single) | (z->count & ~(uint32_t)single));
 }
 
-/* The means of regions a and b (na, nb pixels) agree in every channel. A
- * channel within delta agrees whatever the noise term, so the square root
- * is taken only when some channel needs it (the same decisions). */
+/* The means of regions a and b (na, nb pixels) agree in every channel
+ * (lam__channel_agrees; with bright_scaling, at the thresholds of the
+ * darker of the two). */
+static int means_agree_bright(const merge_state *m, const float *sa, const float *sb,
+                              double na, double nb)
+{
+    for (size_t c = 0; c < m->channels; c++) {
+        double ma = sa[c] / na, mb = sb[c] / nb, f = bright_factor((float)fmin(ma, mb));
+        if (fabs(ma - mb) >
+            m->delta[c] * f * f + MERGE_SIGMAS * m->sigma[c] * f * sqrt(1 / na + 1 / nb))
+            return 0;
+    }
+    return 1;
+}
+
 static int means_agree(const merge_state *m, const float *sa, const float *sb, uint32_t ca,
                        uint32_t cb)
 {
-    double na = ca, nb = cb, se = -1;
-    for (size_t c = 0; c < m->channels; c++) {
-        if (m->bright) { /* the thresholds of the darker of the two */
-            double ma = sa[c] / na, mb = sb[c] / nb, f = bright_factor((float)fmin(ma, mb));
-            if (fabs(ma - mb) > m->delta[c] * f * f +
-                                    MERGE_SIGMAS * m->sigma[c] * f * sqrt(1 / na + 1 / nb))
-                return 0;
-            continue;
-        }
-        double d = fabs(sa[c] / na - sb[c] / nb);
-        if (d <= m->delta[c])
-            continue;
-        if (se < 0)
-            se = sqrt(1 / na + 1 / nb);
-        if (d > m->delta[c] + MERGE_SIGMAS * m->sigma[c] * se)
+    double na = ca, nb = cb;
+    if (m->bright)
+        return means_agree_bright(m, sa, sb, na, nb);
+    double ia = 1 / na, ib = 1 / nb, se = -1;
+    for (size_t c = 0; c < m->channels; c++)
+        if (!lam__channel_agrees(sa[c], sb[c], na, nb, ia, ib, m->delta[c],
+                                 MERGE_SIGMAS * m->sigma[c], &se))
             return 0;
-    }
     return 1;
 }
 
