@@ -559,14 +559,12 @@ static void draw_labels(scene *S)
     free(order);
 }
 
-lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err)
+lam_status lam_report_trace_outlines(const lam_analysis *a, lam_contours **out, lam_error *err)
 {
-    lam_status st = lam_analysis_display(a, err);
-    if (st)
-        return st;
     lam_contours *ct = NULL;
-    st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height, a->count, &ct,
-                            err);
+    *out = NULL;
+    lam_status st = lam_contours_trace(a->seg->label, a->width, 0, 0, a->width, a->height,
+                                       a->count, &ct, err);
     if (st)
         return st;
     double side = (double)(a->width > a->height ? a->width : a->height);
@@ -575,20 +573,28 @@ lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_err
         lam_contours_free(ct);
         return st;
     }
+    *out = ct;
+    return LAM_OK;
+}
+
+lam_status lam_report_write_annotated_with(lam_analysis *a, const lam_contours *outlines,
+                                           const char *path, lam_error *err)
+{
+    lam_status st = lam_analysis_display(a, err);
+    if (st)
+        return st;
+    double side = (double)(a->width > a->height ? a->width : a->height);
     uint32_t *px = expand_display(a);
-    if (!px) {
-        lam_contours_free(ct);
+    if (!px)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the annotated picture");
-    }
     lam_canvas cv;
     if ((st = lam_canvas_open_buffer(&cv, px, a->width, a->height, err))) {
-        lam_contours_free(ct);
         compact_display(a);
         return st;
     }
     scene *S = calloc(1, sizeof *S);
     if (S) {
-        S->a = a, S->cr = cv.cr, S->ct = ct;
+        S->a = a, S->cr = cv.cr, S->ct = outlines;
         S->s = fmax(0.6, side / 1000);
         S->fs = fmax(11, 0.016 * side);
         draw_outlines(S);
@@ -599,11 +605,20 @@ lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_err
     }
     free(S);
     st = lam_canvas_finish(&cv, err);
-    lam_contours_free(ct);
     compact_display(a);
     if (st)
         return st;
     return lam_png_save_rgb8(path, a->display, a->width, a->height, 3, err);
+}
+
+lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err)
+{
+    lam_contours *ct = NULL;
+    lam_status st = lam_report_trace_outlines(a, &ct, err);
+    if (!st)
+        st = lam_report_write_annotated_with(a, ct, path, err);
+    lam_contours_free(ct);
+    return st;
 }
 
 size_t lam_report_annotation_layout(lam_analysis *a, lam_annotation_box *out, size_t max)

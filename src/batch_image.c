@@ -20,48 +20,71 @@ void lam_batch_stem(const char *path, char *stem, size_t n)
 
 typedef struct annot_job {
     lam_analysis *a;
+    lam_contours *outlines; /* traced by trace_thread, drawn by write_annotated_thread */
     char path[4096];
     lam_error err;
     lam_status st;
 } annot_job;
 
-static void *write_annotated_thread(void *arg)
+static void *trace_thread(void *arg)
 {
     annot_job *aj = arg;
-    aj->st = lam_report_write_annotated(aj->a, aj->path, &aj->err);
+    aj->st = lam_report_trace_outlines(aj->a, &aj->outlines, &aj->err);
     return NULL;
 }
 
-/* The annotated image (the largest file) is encoded on a second thread,
- * when the image has two or more (a batch on two cores runs two images
- * on one thread each instead), while the layer map and the plot are
- * written; the JSON goes last, after both, so its presence means the
- * image's results are complete (--resume). */
+static void *write_annotated_thread(void *arg)
+{
+    annot_job *aj = arg;
+    if (!aj->st)
+        aj->st = lam_report_write_annotated_with(aj->a, aj->outlines, aj->path, &aj->err);
+    return NULL;
+}
+
+/* fn(aj) on a thread of its own when the image has two or more (a batch
+ * on two cores runs two images on one thread each instead), else here:
+ * 1 when it runs on a thread (join *t). */
+static int run_beside(size_t threads, void *(*fn)(void *), annot_job *aj, pthread_t *t)
+{
+    if (threads > 1 && pthread_create(t, NULL, fn, aj) == 0)
+        return 1;
+    fn(aj);
+    return 0;
+}
+
+/* The annotated image (the largest file) is made on a second thread in two
+ * parts: its outlines are traced while the display is decoded here, then
+ * it is drawn and encoded while the layer map and the plot are written
+ * here. The JSON goes last, after all, so its presence means the image's
+ * results are complete (--resume). */
 static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
                                 size_t threads, cJSON **json, lam_error *err)
 {
     char p[4096];
-    annot_job aj;
-    aj.a = a;
+    annot_job aj = {a, NULL, "", {0}, LAM_OK};
     lam_error_clear(&aj.err);
     snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
-    /* the picture is decoded here, before the second thread starts: memory
-     * a thread allocates comes from an arena of its own, so a display
-     * decoded there would not reuse what the analysis freed (its planes) */
-    lam_status dst = lam_analysis_display(a, err);
-    if (dst)
-        return dst;
     pthread_t t;
-    int threaded = threads > 1 && pthread_create(&t, NULL, write_annotated_thread, &aj) == 0;
-    if (!threaded)
-        write_annotated_thread(&aj);
+    int threaded = run_beside(threads, trace_thread, &aj, &t);
+    /* the picture is decoded here, not on the second thread: memory a
+     * thread allocates comes from an arena of its own, so a display
+     * decoded there would not reuse what the analysis freed (its planes) */
+    lam_status st = lam_analysis_display(a, err);
+    if (threaded)
+        pthread_join(t, NULL);
+    if (st) {
+        lam_contours_free(aj.outlines);
+        return st;
+    }
+    threaded = run_beside(threads, write_annotated_thread, &aj, &t);
     snprintf(p, sizeof p, "%s/%s.layers.png", dir, stem);
-    lam_status st = lam_report_write_layers(a, p, err);
+    st = lam_report_write_layers(a, p, err);
     snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, stem);
     if (!st)
         st = lam_report_write_svg(a, p, err);
     if (threaded)
         pthread_join(t, NULL);
+    lam_contours_free(aj.outlines);
     if (!st && aj.st) {
         *err = aj.err;
         st = aj.st;

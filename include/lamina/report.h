@@ -17,6 +17,7 @@
 #define LAMINA_REPORT_H
 
 #include "lamina/analyze.h"
+#include "lamina/contour.h"
 #include "lamina/error.h"
 
 struct cJSON;
@@ -34,6 +35,14 @@ lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_
 /* Draws over a->display (the copy of the input is consumed: call last, or
  * not at all if the display is needed afterwards). */
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err);
+/* The same in two steps, so that the first can run on another thread
+ * while the display is decoded (lam_analysis_display; the batch does so):
+ * the regions' outlines, traced and simplified from the label map alone
+ * (*out, free with lam_contours_free; NULL on error), then the picture
+ * drawn with them. The two together are lam_report_write_annotated. */
+lam_status lam_report_trace_outlines(const lam_analysis *a, lam_contours **out, lam_error *err);
+lam_status lam_report_write_annotated_with(lam_analysis *a, const lam_contours *outlines,
+                                           const char *path, lam_error *err);
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err);
 
 /* Where the annotated picture puts its panels and labels (canvas pixels):
