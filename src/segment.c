@@ -148,69 +148,68 @@ uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h, size_t thr
  * depth map. A pixel's depth depends on its own region's pixels alone
  * (the distance to the nearest pixel not in it), so it is the value the
  * whole-image passes give. */
-/* The first run of label l in row at or after x within the box (its
- * start, > box[2] when none; *end its end). */
-static size_t next_run(const uint32_t *row, size_t x, uint32_t l, size_t w, const size_t box[4],
-                       size_t *end)
+/* Row y of the box in region l's scratch g (the box's width): each pixel
+ * of l its distance along the row to the nearest pixel that is not l
+ * (the pixels beside the box are not: the box holds all of l), capped at
+ * 255; 0 elsewhere. */
+static void region_row(const uint32_t *restrict row, size_t n, uint32_t l, uint8_t *restrict g)
 {
-    while (x <= box[2] && row[x] != l)
-        x++;
-    *end = x <= box[2] ? run_end(row, x, w) : x;
-    return x;
-}
-
-static void label_forward(const uint32_t *lab, uint8_t *d, size_t w, size_t y, uint32_t l,
-                          const size_t box[4])
-{
-    const uint32_t *row = lab + y * w;
-    uint8_t *dr = d + y * w;
-    size_t x1;
-    for (size_t x0 = next_run(row, box[0], l, w, box, &x1); x0 <= box[2];
-         x0 = next_run(row, x1, l, w, box, &x1)) {
-        dr[x0] = 1;
-        for (size_t x = x0 + 1; x < x1; x++) {
-            if (y == 0 || row[x - w] != l) {
-                dr[x] = 1;
-                continue;
-            }
-            unsigned v = (dr[x - 1] < dr[x - w] ? dr[x - 1] : dr[x - w]) + 1u;
-            dr[x] = (uint8_t)(v > 255 ? 255 : v);
-        }
-    }
-}
-
-static void label_backward(const uint32_t *lab, uint8_t *d, size_t w, size_t h, size_t y,
-                           uint32_t l, const size_t box[4])
-{
-    const uint32_t *row = lab + y * w;
-    uint8_t *dr = d + y * w;
-    size_t x1;
-    for (size_t x0 = next_run(row, box[0], l, w, box, &x1); x0 <= box[2];
-         x0 = next_run(row, x1, l, w, box, &x1)) {
-        if (y + 1 == h) {
-            memset(dr + x0, 1, x1 - x0);
+    for (size_t x0 = 0, x1; x0 < n; x0 = x1) {
+        x1 = x0 + 1;
+        while (x1 < n && (row[x1] == l) == (row[x0] == l))
+            x1++;
+        if (row[x0] != l) {
+            memset(g + x0, 0, x1 - x0);
             continue;
         }
-        dr[x1 - 1] = 1;
-        for (size_t x = x1 - 1; x-- > x0;) {
-            if (row[x + w] != l) {
-                dr[x] = 1;
-                continue;
-            }
-            unsigned v = (dr[x + 1] < dr[x + w] ? dr[x + 1] : dr[x + w]) + 1u;
-            if (v < dr[x])
-                dr[x] = (uint8_t)v;
+        for (size_t x = x0; x < x1; x++) {
+            size_t v = x - x0 + 1 < x1 - x ? x - x0 + 1 : x1 - x;
+            g[x] = (uint8_t)(v > 255 ? 255 : v);
         }
     }
 }
 
-void lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, const size_t box[4],
-                       uint8_t *depth)
+/* One step of a column pass in the scratch: a pixel is at most one deeper
+ * than its neighbour in the row before (0 off the region, which a minimum
+ * keeps 0: no branch, so the loop runs on vector units). */
+LAM_VECTOR_CLONES
+static void region_step(uint8_t *restrict g, const uint8_t *restrict before, size_t n)
 {
-    for (size_t y = box[1]; y <= box[3]; y++)
-        label_forward(lab, depth, w, y, l, box);
-    for (size_t y = box[3] + 1; y-- > box[1];)
-        label_backward(lab, depth, w, h, y, l, box);
+    for (size_t x = 0; x < n; x++) {
+        unsigned v = before[x] + 1u;
+        g[x] = (uint8_t)(v < g[x] ? v : g[x]);
+    }
+}
+
+/* The separable passes of lam__boundary_depth over region l alone, in a
+ * scratch copy of its box where every other pixel is 0 (and the rows
+ * beyond the box count as 0: they hold no pixel of l); then the depths of
+ * l's pixels, and only theirs, into depth. */
+int lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, const size_t box[4],
+                      uint8_t *depth)
+{
+    (void)h;
+    size_t bw = box[2] - box[0] + 1, bh = box[3] - box[1] + 1;
+    uint8_t *g = malloc(bw * bh + bw), *zero = g + bw * bh;
+    if (!g)
+        return -1;
+    memset(zero, 0, bw);
+    for (size_t y = 0; y < bh; y++)
+        region_row(lab + (box[1] + y) * w + box[0], bw, l, g + y * bw);
+    for (size_t y = 0; y < bh; y++)
+        region_step(g + y * bw, y ? g + (y - 1) * bw : zero, bw);
+    for (size_t y = bh; y-- > 0;)
+        region_step(g + y * bw, y + 1 < bh ? g + (y + 1) * bw : zero, bw);
+    for (size_t y = 0; y < bh; y++) {
+        const uint32_t *row = lab + (box[1] + y) * w + box[0];
+        uint8_t *dr = depth + (box[1] + y) * w + box[0];
+        const uint8_t *gr = g + y * bw;
+        for (size_t x = 0; x < bw; x++)
+            if (row[x] == l)
+                dr[x] = gr[x];
+    }
+    free(g);
+    return 0;
 }
 
 /* The interior sums of channel c over pixels k0..k1 - 1 of row y (those

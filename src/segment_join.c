@@ -440,14 +440,19 @@ typedef struct restat_job {
     const uint32_t *redo; /* new ids - 1 to measure */
     uint8_t *depth;       /* written for their pixels only */
     lam_region_stats *R;
+    int failed;           /* out of memory (set by any item) */
 } restat_job;
 
 static void restat_one(size_t i, void *vjob)
 {
-    const restat_job *job = vjob;
+    restat_job *job = vjob;
     uint32_t k = job->redo[i];
     const lam_segmentation *seg = job->seg;
-    lam__region_depth(seg->label, seg->width, seg->height, k + 1, job->nr[k].box, job->depth);
+    if (lam__region_depth(seg->label, seg->width, seg->height, k + 1, job->nr[k].box,
+                          job->depth)) {
+        job->failed = 1;
+        return;
+    }
     lam__region_statistics_in(job->img, seg->cls, seg->label, job->depth, k + 1, job->nr[k].box,
                               &job->R[k]);
 }
@@ -474,10 +479,14 @@ static lam_status restat(const lam_contrast_map *img, lam_segmentation *seg, uin
         free(depth);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %u regions", m);
     }
-    restat_job job = {img, seg, nr, redo, depth, R};
+    restat_job job = {img, seg, nr, redo, depth, R, 0};
     lam_parallel_each(n, threads, restat_one, &job);
     free(redo);
     free(depth);
+    if (job.failed) {
+        free(R);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the depth of %u regions", m);
+    }
     free(seg->regions);
     seg->regions = R;
     seg->count = m;

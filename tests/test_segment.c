@@ -691,6 +691,96 @@ static void border_pockets_stay_out(void)
     lam_contrast_map_free(&map);
 }
 
+/* lam__region_depth against its definition: each pixel of region l gets
+ * the city-block distance to the nearest pixel not in l or outside the
+ * map, capped at 255 (found here by brute force), and no other pixel is
+ * written. Random maps of overlapping rectangles (regions of several
+ * parts and holes), every label alone; then a region over 510 px wide,
+ * where the cap shows, against lam__boundary_depth (the whole map's
+ * passes: another way to the same values). */
+static unsigned brute_depth(const uint32_t *lab, size_t w, size_t h, size_t x, size_t y)
+{
+    uint32_t l = lab[y * w + x];
+    size_t best = x + 1; /* the map's edges */
+    best = w - x < best ? w - x : best;
+    best = y + 1 < best ? y + 1 : best;
+    best = h - y < best ? h - y : best;
+    for (size_t v = 0; v < h; v++)
+        for (size_t u = 0; u < w; u++)
+            if (lab[v * w + u] != l) {
+                size_t d = (u > x ? u - x : x - u) + (v > y ? v - y : y - v);
+                best = d < best ? d : best;
+            }
+    return best > 255 ? 255 : (unsigned)best;
+}
+
+static void region_box(const uint32_t *lab, size_t w, size_t h, uint32_t l, size_t box[4])
+{
+    box[0] = w, box[1] = h, box[2] = box[3] = 0;
+    for (size_t y = 0; y < h; y++)
+        for (size_t x = 0; x < w; x++)
+            if (lab[y * w + x] == l) {
+                box[0] = x < box[0] ? x : box[0], box[1] = y < box[1] ? y : box[1];
+                box[2] = x > box[2] ? x : box[2], box[3] = y > box[3] ? y : box[3];
+            }
+}
+
+static size_t depth_errors(const uint32_t *lab, size_t w, size_t h, uint32_t regions,
+                           const uint8_t *whole, size_t *checked)
+{
+    uint8_t *d = malloc(w * h);
+    size_t wrong = 0;
+    for (uint32_t l = 1; d && l <= regions; l++) {
+        size_t box[4];
+        region_box(lab, w, h, l, box);
+        if (box[0] > box[2])
+            continue;
+        memset(d, 0xAA, w * h);
+        wrong += lam__region_depth(lab, w, h, l, box, d) != 0;
+        for (size_t y = 0; y < h; y++)
+            for (size_t x = 0; x < w; x++) {
+                size_t k = y * w + x;
+                unsigned want = lab[k] != l ? 0xAA : whole ? whole[k] : brute_depth(lab, w, h, x, y);
+                wrong += d[k] != want;
+                *checked += lab[k] == l;
+            }
+    }
+    free(d);
+    return wrong + !d;
+}
+
+static void region_depth_matches_definition(void)
+{
+    uint32_t *lab = calloc(EW * EH, sizeof *lab);
+    unsigned long st = 4242;
+    size_t wrong = 0, checked = 0;
+    for (int trial = 0; lab && trial < 8; trial++) {
+        memset(lab, 0, EW * EH * sizeof *lab);
+        random_labels(lab, EW, EH, 12, 3, 30, 25, EREGIONS, &st);
+        wrong += depth_errors(lab, EW, EH, EREGIONS, NULL, &checked);
+    }
+    check_int((long long)wrong, 0, "a region's depth is the city-block distance to its outside "
+                                   "(%zu pixels of random maps)", checked);
+    enum { BW = 620, BH = 560 };
+    uint32_t *big = calloc(BW * BH, sizeof *big);
+    size_t deep = 0, big_checked = 0, big_wrong = 1;
+    if (big) {
+        for (size_t y = 5; y < BH - 5; y++)
+            for (size_t x = 7; x < BW - 3; x++)
+                big[y * BW + x] = (x - 60) * (x - 60) + (y - 60) * (y - 60) < 400 ? 2 : 1;
+        uint8_t *whole = lam__boundary_depth(big, BW, BH, 2);
+        big_wrong = whole ? depth_errors(big, BW, BH, 2, whole, &big_checked) : 1;
+        for (size_t k = 0; whole && k < (size_t)BW * BH; k++)
+            deep += whole[k] == 255;
+        free(whole);
+    }
+    check_true(!big_wrong && deep > 0,
+               "a wide region's depth is the whole map's, capped at 255 (%zu pixels at the cap)",
+               deep);
+    free(big);
+    free(lab);
+}
+
 /* The merging's test of one channel (lam__channel_agrees) against its
  * definition, the quotients' difference |sa/na - sb/nb| compared with
  * delta and with delta + noise sqrt(1/na + 1/nb): the same decision on
@@ -758,6 +848,7 @@ int main(void)
 {
     check_begin("test_segment");
     merge_test_matches_division();
+    region_depth_matches_definition();
     test_rescue_cores();
     rescue_cores_match_definition();
     edge_areas_match_definition();
