@@ -225,5 +225,16 @@ int main(void)
     check_int(system(cmd), 0, "a pooled prior, two shards on it and a merge");
     snprintf(b, sizeof b, "%s/merged/catalog.json", check_tmpdir());
     check_true(check_same_file(a, b), "merged shards give the catalogue of a single run");
+    /* one image alone has both threads: without a setup its wide oxide fit
+     * is made beside the nominal one (analyze_oxide.c), and its results
+     * must be those of the fits made one after the other. The demo's tile
+     * of a 90 nm chip: without a setup (285 nm assumed) the wide fit finds
+     * the chip's oxide and is the one reported (a wide fit with another
+     * prior changes its JSON) */
+    snprintf(cmd, sizeof cmd, "for t in 1 2; do %s/lamina analyze --quiet --threads $t --out "
+             "%s/alone$t samples/HT090-B02-tile03.png 2>/dev/null || exit 1; done && cmp -s "
+             "%s/alone1/HT090-B02-tile03.json %s/alone2/HT090-B02-tile03.json",
+             bin_dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
+    check_int(system(cmd), 0, "one image without a setup: the same JSON with 1 and 2 threads");
     return check_summary();
 }
