@@ -185,14 +185,14 @@ static void region_step(uint8_t *restrict g, const uint8_t *restrict before, siz
  * scratch copy of its box where every other pixel is 0 (and the rows
  * beyond the box count as 0: they hold no pixel of l); then the depths of
  * l's pixels, and only theirs, into depth. */
-int lam__region_depth(const uint32_t *lab, size_t w, size_t h, uint32_t l, const size_t box[4],
+int lam__region_depth(const uint32_t *lab, size_t w, uint32_t l, const size_t box[4],
                       uint8_t *depth)
 {
-    (void)h;
     size_t bw = box[2] - box[0] + 1, bh = box[3] - box[1] + 1;
-    uint8_t *g = malloc(bw * bh + bw), *zero = g + bw * bh;
+    uint8_t *g = malloc(bw * bh + bw);
     if (!g)
         return -1;
+    uint8_t *zero = g + bw * bh; /* the row beyond either end of the box */
     memset(zero, 0, bw);
     for (size_t y = 0; y < bh; y++)
         region_row(lab + (box[1] + y) * w + box[0], bw, l, g + y * bw);

@@ -24,8 +24,8 @@ void lam__region_statistics(const lam_contrast_map *img, const uint8_t *cls, con
  * only (the values lam__boundary_depth gives them; -1 when out of memory,
  * else 0), and lam__region_statistics_in reads only those into r (cleared
  * first). */
-int lam__region_depth(const uint32_t *label, size_t width, size_t height, uint32_t l,
-                      const size_t box[4], uint8_t *depth);
+int lam__region_depth(const uint32_t *label, size_t width, uint32_t l, const size_t box[4],
+                      uint8_t *depth);
 void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls,
                                const uint32_t *label, const uint8_t *depth, uint32_t l,
                                const size_t box[4], lam_region_stats *r);

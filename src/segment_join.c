@@ -448,8 +448,7 @@ static void restat_one(size_t i, void *vjob)
     restat_job *job = vjob;
     uint32_t k = job->redo[i];
     const lam_segmentation *seg = job->seg;
-    if (lam__region_depth(seg->label, seg->width, seg->height, k + 1, job->nr[k].box,
-                          job->depth)) {
+    if (lam__region_depth(seg->label, seg->width, k + 1, job->nr[k].box, job->depth)) {
         job->failed = 1;
         return;
     }

@@ -736,7 +736,7 @@ static size_t depth_errors(const uint32_t *lab, size_t w, size_t h, uint32_t reg
         if (box[0] > box[2])
             continue;
         memset(d, 0xAA, w * h);
-        wrong += lam__region_depth(lab, w, h, l, box, d) != 0;
+        wrong += lam__region_depth(lab, w, l, box, d) != 0;
         for (size_t y = 0; y < h; y++)
             for (size_t x = 0; x < w; x++) {
                 size_t k = y * w + x;
