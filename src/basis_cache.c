@@ -60,15 +60,20 @@ lam_status lam__sheet_basis_cached(const lam_sheet_params *p, double wl_nm, doub
     lam_status st = lam_sheet_basis(p, energy_ev, basis, err);
     if (st)
         return st;
-    entry *e = entries < CACHE_MAX_ENTRIES ? malloc(sizeof *e) : NULL;
+    entry *e = malloc(sizeof *e);
     if (!e)
-        return LAM_OK; /* a full (or failed) cache only costs time */
+        return LAM_OK; /* a failed (or full, below) cache only costs time */
     memcpy(e->key, k, sizeof k);
     memcpy(e->basis, basis, sizeof e->basis);
-    pthread_mutex_lock(&lock);
-    e->next = bucket[h];
-    bucket[h] = e;
-    entries++;
+    pthread_mutex_lock(&lock); /* the count too is read under the lock */
+    int room = entries < CACHE_MAX_ENTRIES;
+    if (room) {
+        e->next = bucket[h];
+        bucket[h] = e;
+        entries++;
+    }
     pthread_mutex_unlock(&lock);
+    if (!room)
+        free(e);
     return LAM_OK;
 }
