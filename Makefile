@@ -60,7 +60,7 @@ INCDIR   ?= $(PREFIX)/include
 
 .SECONDARY:
 .PHONY: accuracy accuracy-crystals fuzz demo all test asan noopt valgrind bench demo deps install uninstall shared clean \
-        check-reference check-report check-clones
+        check-reference check-report check-clones check-threads
 
 all: $(BIN)
 
@@ -230,6 +230,14 @@ check-clones: deps $(BIN)
 	$(MAKE) --no-print-directory BUILD=build-noclones CFLAGS="$(OPT) -g -DLAM_NO_VECTOR_CLONES" \
 	    build-noclones/lamina
 	sh tests/clones/check_clones.sh $(BIN) build-noclones/lamina
+
+# Data races: the runs whose threads share state, under ThreadSanitizer
+# (tests/tsan/check_threads.sh; the vector clones left out, since their
+# resolvers run before it starts).
+check-threads: deps
+	$(MAKE) --no-print-directory BUILD=build-tsan OPT=-O1 \
+	    CFLAGS="-O1 -g -DLAM_NO_VECTOR_CLONES" SANITIZE=thread build-tsan/lamina
+	sh tests/tsan/check_threads.sh build-tsan/lamina
 
 # Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for
 # FUZZ_SECONDS over a working copy of its seed corpus; crashes and hangs are
