@@ -235,8 +235,8 @@ check-clones: deps $(BIN)
 # (tests/tsan/check_threads.sh; the vector clones left out, since their
 # resolvers run before it starts).
 check-threads: deps
-	$(MAKE) --no-print-directory BUILD=build-tsan OPT=-O1 \
-	    CFLAGS="-O1 -g -DLAM_NO_VECTOR_CLONES" SANITIZE=thread build-tsan/lamina
+	$(MAKE) --no-print-directory BUILD=build-tsan CFLAGS="-O1 -g -DLAM_NO_VECTOR_CLONES" \
+	    SANITIZE=thread build-tsan/lamina
 	sh tests/tsan/check_threads.sh build-tsan/lamina
 
 # Coverage-guided fuzzing with libFuzzer (clang). Each harness runs for

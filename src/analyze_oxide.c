@@ -215,9 +215,8 @@ static lam_status wide_search(lam__run *r, wide_fit *beside, int doubtful, int *
     int taken = 0;
     *off = 0;
     *rival_nm = NAN;
-    int made = beside->started;
     lam_status st = wide_fit_take(beside, &w, err);
-    if (!made && !st)
+    if (!st && !w) /* none made beside */
         st = refit(r, r->model, a->estimate->floor_abs_prior, NAN, LAM__WIDE_HALF_NM,
                    WIDE_PRIOR_SD_NM, &w, err);
     if (st)

@@ -80,6 +80,16 @@ typedef struct depth_ctx {
     size_t w, h;
 } depth_ctx;
 
+/* A run of n pixels of one region along a row: each its distance to the
+ * nearer end, counting the end pixel as 1, capped at 255. */
+static void run_depths(uint8_t *d, size_t n)
+{
+    for (size_t i = 0; i < n; i++) {
+        size_t v = i + 1 < n - i ? i + 1 : n - i;
+        d[i] = (uint8_t)(v > 255 ? 255 : v);
+    }
+}
+
 static void depth_rows(size_t begin, size_t end, size_t slice, void *vctx)
 {
     (void)slice;
@@ -89,10 +99,10 @@ static void depth_rows(size_t begin, size_t end, size_t slice, void *vctx)
         uint8_t *dr = c->d + y * c->w;
         for (size_t x0 = 0, x1; x0 < c->w; x0 = x1) {
             x1 = run_end(row, x0, c->w);
-            for (size_t x = x0; x < x1; x++) {
-                size_t v = x - x0 + 1 < x1 - x ? x - x0 + 1 : x1 - x;
-                dr[x] = !row[x0] ? 0 : (uint8_t)(v > 255 ? 255 : v);
-            }
+            if (row[x0])
+                run_depths(dr + x0, x1 - x0);
+            else
+                memset(dr + x0, 0, x1 - x0);
         }
     }
 }
@@ -158,14 +168,10 @@ static void region_row(const uint32_t *restrict row, size_t n, uint32_t l, uint8
         x1 = x0 + 1;
         while (x1 < n && (row[x1] == l) == (row[x0] == l))
             x1++;
-        if (row[x0] != l) {
+        if (row[x0] == l)
+            run_depths(g + x0, x1 - x0);
+        else
             memset(g + x0, 0, x1 - x0);
-            continue;
-        }
-        for (size_t x = x0; x < x1; x++) {
-            size_t v = x - x0 + 1 < x1 - x ? x - x0 + 1 : x1 - x;
-            g[x] = (uint8_t)(v > 255 ? 255 : v);
-        }
     }
 }
 
