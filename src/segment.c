@@ -13,7 +13,7 @@
 
 lam_segment_options lam_segment_options_default(void)
 {
-    lam_segment_options o = {12, 1, {0, 0, 0}, 0, 0};
+    lam_segment_options o = {12, 1, {0, 0, 0}, 0, 0, 0};
     return o;
 }
 

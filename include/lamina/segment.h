@@ -45,6 +45,11 @@ typedef struct lam_segment_options {
      * segment_step); regions within 0.3 of it of zero are substrate. 0:
      * c1's (0) */
     double faint_step;
+    /* lam_segment_uniform: 1 merges pixel by pixel in the published
+     * method's order only, without first making flat 2 x 2 and 4 x 4
+     * blocks one region each (segment_grow.c premerge_blocks): the
+     * segmentation a fifth slower, for checking the blocks against (0) */
+    int pixel_order;
 } lam_segment_options;
 
 /* Interior pixels lie at least this far (city-block) from the region's
