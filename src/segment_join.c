@@ -516,31 +516,46 @@ typedef struct hole_ctx {
     size_t box[4];
 } hole_ctx;
 
-static int in_box(const hole_ctx *h, size_t x, size_t y)
+/* Push onto the stack the start of each run of pixels marked 'from' in
+ * columns a..b of the row that begins at pixel 'row' (the rows above and
+ * below a span just filled). */
+static void push_runs(hole_ctx *h, size_t row, size_t a, size_t b, uint8_t from, size_t *top)
 {
-    return x >= h->box[0] && x <= h->box[2] && y >= h->box[1] && y <= h->box[3];
+    const uint8_t *m = h->mark + row;
+    for (size_t x = a; x <= b; x++)
+        if (m[x] == from && (x == a || m[x - 1] != from))
+            h->stack[(*top)++] = row + x;
 }
 
-/* Flood the pixels marked 'from' connected to k, marking them 'to'; the
- * members are listed (when 'list') and counted. */
+/* Flood the pixels marked 'from' connected (4-neighbours, within the box)
+ * to k, marking them 'to', a span of a row at a time (scanline fill: no
+ * division per pixel, one stack entry per run); the members are listed
+ * (when 'list') and counted. The stack holds at most two entries per
+ * pixel of the box: a run of a row is pushed at most once from each span
+ * beside it. */
 static size_t flood(hole_ctx *h, size_t k, uint8_t from, uint8_t to, int list)
 {
-    size_t w = h->j->seg->width, top = 0, n = 0;
+    size_t w = h->j->seg->width, x0 = h->box[0], x1 = h->box[2], y0 = h->box[1], y1 = h->box[3];
+    uint8_t *mark = h->mark;
+    size_t top = 0, n = 0;
     h->stack[top++] = k;
-    h->mark[k] = to;
     while (top) {
-        size_t q = h->stack[--top], x = q % w, y = q / w;
-        if (list)
-            h->members[n] = q;
-        n++;
-        const long dx[4] = {-1, 1, 0, 0}, dy[4] = {0, 0, -1, 1};
-        for (int d = 0; d < 4; d++) {
-            size_t nx = x + (size_t)dx[d], ny = y + (size_t)dy[d];
-            if (!in_box(h, nx, ny) || h->mark[ny * w + nx] != from)
-                continue;
-            h->mark[ny * w + nx] = to;
-            h->stack[top++] = ny * w + nx;
-        }
+        size_t q = h->stack[--top];
+        if (mark[q] != from)
+            continue; /* filled since it was pushed */
+        size_t y = q / w, row = y * w, a = q - row, b = a;
+        while (a > x0 && mark[row + a - 1] == from)
+            a--;
+        while (b < x1 && mark[row + b + 1] == from)
+            b++;
+        memset(mark + row + a, to, b - a + 1);
+        for (size_t x = a; list && x <= b; x++)
+            h->members[n + x - a] = row + x;
+        n += b - a + 1;
+        if (y > y0)
+            push_runs(h, row - w, a, b, from, &top);
+        if (y < y1)
+            push_runs(h, row + w, a, b, from, &top);
     }
     return n;
 }
@@ -625,37 +640,61 @@ static size_t region_holes(hole_ctx *h, uint32_t r, size_t area)
     return joined;
 }
 
-/* Holes of every joined region of a confident count. */
+/* The joined regions' boxes (by root id - 1) and areas (by root id, n + 1
+ * entries) from their parts'. */
+static void joined_boxes(const join_ctx *j, size_t (*box)[4], size_t *area)
+{
+    const lam_segmentation *seg = j->seg;
+    for (uint32_t id = 1; id <= seg->count; id++) {
+        uint32_t r = lam__label_root(j->parent, id);
+        const lam_region_stats *s = &seg->regions[id - 1];
+        if (area[r] == 0)
+            memcpy(box[r - 1], s->bbox, sizeof box[0]);
+        for (int k = 0; k < 2; k++) {
+            box[r - 1][k] = s->bbox[k] < box[r - 1][k] ? s->bbox[k] : box[r - 1][k];
+            box[r - 1][k + 2] = s->bbox[k + 2] > box[r - 1][k + 2] ? s->bbox[k + 2]
+                                                                    : box[r - 1][k + 2];
+        }
+        area[r] += s->area;
+    }
+}
+
+/* Does joined region id (a root) have its holes filled: a confident count? */
+static int fills_holes(const join_ctx *j, uint32_t id)
+{
+    return lam__label_root(j->parent, id) == id && j->key[id - 1] >= 0;
+}
+
+/* Holes of every joined region of a confident count. The flood's stack
+ * and member list are sized by the largest such box (two entries and one
+ * per pixel), not by the image. */
 static lam_status fill_holes(join_ctx *j, const double (*mean)[3], size_t channels,
                              const double fill[3], lam_error *err)
 {
     lam_segmentation *seg = j->seg;
-    size_t n = seg->count, total = seg->width * seg->height;
+    size_t n = seg->count, largest = 0;
     size_t (*box)[4] = malloc((n ? n : 1) * sizeof *box), *area = calloc(n + 1, sizeof *area);
-    hole_ctx h = {j, mean, fill, channels, malloc(total), malloc(total * sizeof(size_t)),
-                  malloc(total * sizeof(size_t)), {0, 0, 0, 0}};
-    lam_status st = LAM_OK;
-    if (!box || !area || !h.mark || !h.stack || !h.members) {
-        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate hole filling");
-    } else {
-        for (uint32_t id = 1; id <= n; id++) {
-            uint32_t r = lam__label_root(j->parent, id);
-            const lam_region_stats *s = &seg->regions[id - 1];
-            if (area[r] == 0)
-                memcpy(box[r - 1], s->bbox, sizeof box[0]);
-            for (int k = 0; k < 2; k++) {
-                box[r - 1][k] = s->bbox[k] < box[r - 1][k] ? s->bbox[k] : box[r - 1][k];
-                box[r - 1][k + 2] = s->bbox[k + 2] > box[r - 1][k + 2] ? s->bbox[k + 2]
-                                                                        : box[r - 1][k + 2];
-            }
-            area[r] += s->area;
-        }
+    hole_ctx h = {j, mean, fill, channels, NULL, NULL, NULL, {0, 0, 0, 0}};
+    if (box && area) {
+        joined_boxes(j, box, area);
         for (uint32_t id = 1; id <= n; id++)
-            if (lam__label_root(j->parent, id) == id && j->key[id - 1] >= 0) {
-                memcpy(h.box, box[id - 1], sizeof h.box);
-                region_holes(&h, id, area[id]);
+            if (fills_holes(j, id)) {
+                size_t px = (box[id - 1][2] - box[id - 1][0] + 1) *
+                            (box[id - 1][3] - box[id - 1][1] + 1);
+                largest = px > largest ? px : largest;
             }
+        h.mark = malloc(seg->width * seg->height);
+        h.stack = malloc((2 * largest + 1) * sizeof *h.stack);
+        h.members = malloc((largest + 1) * sizeof *h.members);
     }
+    lam_status st = LAM_OK;
+    if (!box || !area || !h.mark || !h.stack || !h.members)
+        st = lam_error_set(err, LAM_ENOMEM, "cannot allocate hole filling");
+    for (uint32_t id = 1; !st && id <= n; id++)
+        if (fills_holes(j, id)) {
+            memcpy(h.box, box[id - 1], sizeof h.box);
+            region_holes(&h, id, area[id]);
+        }
     free(box);
     free(area);
     free(h.mark);

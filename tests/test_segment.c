@@ -1004,6 +1004,100 @@ static void blocks_match_pixel_order(void)
         }
 }
 
+/* Hole filling's flood on winding paths (segment_join.c flood, a span
+ * at a time): a flake with three serpentine channels 5 px wide, regions
+ * of no confident count (as JPEG rings are), each turning back on itself
+ * 6 times. One is closed inside the flake: a hole, so it joins; the others
+ * lead by a channel to the last and the first row of the flake's box: they
+ * reach the box's border, so every pixel of them stays out. The definition (free pixels of
+ * the box that cannot reach its border) decides both; a flood that missed
+ * a turn would leave part of the first out or take part of the second in. */
+#define SNAKE_W 320
+#define SNAKE_H 300
+#define SNAKE_BAND 5
+
+/* Class c over x0..x1, y0..y0 + SNAKE_BAND - 1 (a band of the snake). */
+static void snake_band(uint8_t *cls, size_t x0, size_t x1, size_t y0, size_t y1, uint8_t c)
+{
+    for (size_t y = y0; y <= y1; y++)
+        for (size_t x = x0; x <= x1; x++)
+            cls[y * SNAKE_W + x] = c;
+}
+
+/* A serpentine of class c: bands every 2 SNAKE_BAND rows from y0 to y1,
+ * each from x0 to x1, joined at alternate ends; then (open) a channel
+ * beside the right end of the last band down to row exit_y, or (exit_y
+ * < y0) of the first band up to it (0: closed). */
+static void draw_snake(uint8_t *cls, size_t x0, size_t x1, size_t y0, size_t y1, size_t exit_y,
+                       uint8_t c)
+{
+    const size_t b = SNAKE_BAND;
+    int right = 1;
+    size_t y = y0;
+    for (; y + 2 * b <= y1; y += 2 * b, right = !right) {
+        snake_band(cls, x0, x1, y, y + b - 1, c);
+        size_t xc = right ? x1 - b + 1 : x0;
+        snake_band(cls, xc, xc + b - 1, y, y + 2 * b - 1, c);
+    }
+    snake_band(cls, x0, x1, y, y + b - 1, c);
+    size_t from = exit_y < y0 ? y0 : y; /* the band the channel leaves */
+    if (exit_y) {
+        snake_band(cls, x1 + 1, x1 + 2 * b, from, from + b - 1, c);
+        snake_band(cls, x1 + b + 1, x1 + 2 * b, exit_y < y0 ? exit_y : from,
+                   exit_y < y0 ? from : exit_y, c);
+    }
+}
+
+static void hole_flood_winding(void)
+{
+    lam_image *img = NULL;
+    lam_contrast_map map;
+    lam_segmentation *seg = NULL;
+    lam_error err;
+    const size_t n = (size_t)SNAKE_W * SNAKE_H;
+    if (!check_true(!lam_image_alloc(SNAKE_W, SNAKE_H, &img, &err), "snake image allocated"))
+        return;
+    memset(img->clip_bits, 0, SNAKE_H * img->clip_stride);
+    paint_wh(img, SNAKE_W, 0, 0, SNAKE_W, SNAKE_H, MONO);
+    lam_contrast_compact(img, &map, 1);
+    lam_image_free(img);
+    uint8_t *snake = calloc(n, 1);
+    int ok = snake && !lam_segmentation_alloc(SNAKE_W, SNAKE_H, &seg, &err);
+    if (ok) {
+        for (size_t k = 0; k < n; k++) {
+            size_t x = k % SNAKE_W, y = k / SNAKE_W;
+            seg->cls[k] = x >= 10 && x < 310 && y >= 10 && y < 290 ? 1 : LAM_CLASS_SUBSTRATE;
+        }
+        draw_snake(snake, 30, 90, 30, 90, 0, 2);      /* closed */
+        draw_snake(snake, 150, 210, 30, 90, 289, 3);  /* open to the flake's last row */
+        draw_snake(snake, 235, 285, 130, 190, 10, 4); /* and to its first */
+        for (size_t k = 0; k < n; k++)
+            seg->cls[k] = snake[k] ? snake[k] : seg->cls[k];
+    }
+    lam_segment_options so = lam_segment_options_default();
+    ok = ok && !lam_segment_regions(&map, &so, seg, &err) && seg->count == 4;
+    if (check_true(ok, "the flake and its three channels are four regions")) {
+        int key[4] = {1, -1, -1, -1}; /* ids in order of first pixel: the flake first */
+        uint32_t idmap[4];
+        size_t joined = 0, in[5] = {0, 0, 0, 0, 0}, all[5] = {0, 0, 0, 0, 0};
+        double fill[3] = {0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002, 0.3 * MONO[1] + 0.002};
+        check_int(lam_segment_join(&map, 3, key, fill, 1, seg, idmap, &joined, &err), LAM_OK,
+                  "snake flake joined");
+        uint32_t flake = seg->label[15 * SNAKE_W + 15];
+        for (size_t k = 0; k < n; k++)
+            all[snake[k]]++, in[snake[k]] += seg->label[k] == flake;
+        check_true(all[2] > 500 && in[2] == all[2],
+                   "the closed serpentine is a hole and joins (%zu of %zu px)", in[2], all[2]);
+        for (int c = 3; c <= 4; c++)
+            check_true(all[c] > 500 && in[c] == 0,
+                       "the serpentine open to the box's %s row stays out (%zu of %zu px in)",
+                       c == 3 ? "last" : "first", in[c], all[c]);
+    }
+    free(snake);
+    lam_segmentation_free(seg);
+    lam_contrast_map_free(&map);
+}
+
 int main(void)
 {
     check_begin("test_segment");
@@ -1017,6 +1111,7 @@ int main(void)
     usable_rectangle_matches_definition();
     wide_image();
     border_pockets_stay_out();
+    hole_flood_winding();
     lam_contrast_map contrast;
     if (!check_true(scene(&contrast), "scene allocated"))
         return check_summary();
