@@ -709,11 +709,14 @@ static void add_block(const merge_state *m, size_t k, size_t w, float sum[3])
     }
 }
 
-/* The size x size square (2 or 4) whose first pixel is k, all one-pixel
- * regions, becomes one region under k; a 4 x 4 square's sums are those of
- * its 2 x 2 blocks, added left to right, top to bottom. */
-static void merge_square(merge_state *m, slot_pool *pool, size_t k, size_t w, size_t size)
+/* The size x size square (2 or 4) at (x, y), all one-pixel regions,
+ * becomes one region under its first pixel, and its inner pairs leave the
+ * lists; a 4 x 4 square's sums are those of its 2 x 2 blocks, added left
+ * to right, top to bottom. */
+static void merge_square(merge_state *m, slot_pool *pool, const strip_rows *r, size_t x,
+                         size_t y, size_t size)
 {
+    size_t w = r->w, k = y * w + x;
     uint32_t s = take_slot(m, pool);
     slot *z = &m->slots[s];
     z->count = (uint32_t)(size * size);
@@ -726,17 +729,16 @@ static void merge_square(merge_state *m, slot_pool *pool, size_t k, size_t w, si
         for (size_t j = 0; j < size; j++)
             m->node[k + i * w + j] = (uint32_t)k;
     m->node[k] = ROOT | s;
+    drop_inner_pairs(r, x, y, size);
 }
 
-/* The 2 x 2 blocks of rows y, y + 1 from column x0 on. */
+/* The 2 x 2 blocks of rows y, y + 1 in columns x0..x1 - 1. */
 static void premerge_row_blocks(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y,
-                                size_t x0)
+                                size_t x0, size_t x1)
 {
-    for (size_t x = x0; x + 1 < r->w; x += 2)
-        if (block_fits(r, x, y)) {
-            merge_square(m, pool, y * r->w + x, r->w, 2);
-            drop_inner_pairs(r, x, y, 2);
-        }
+    for (size_t x = x0; x + 1 < x1; x += 2)
+        if (block_fits(r, x, y))
+            merge_square(m, pool, r, x, y, 2);
 }
 
 /* The 4 x 4 squares of rows y..y + 3, or where one does not fit its
@@ -746,19 +748,14 @@ static void premerge_square_row(merge_state *m, slot_pool *pool, const strip_row
     size_t w = r->w, x = 0;
     for (; x + 3 < w; x += 4) {
         if (square_fits(r, x, y)) {
-            merge_square(m, pool, y * w + x, w, 4);
-            drop_inner_pairs(r, x, y, 4);
+            merge_square(m, pool, r, x, y, 4);
             continue;
         }
-        for (size_t i = 0; i < 4; i += 2)
-            for (size_t j = 0; j < 4; j += 2)
-                if (block_fits(r, x + j, y + i)) {
-                    merge_square(m, pool, (y + i) * w + x + j, w, 2);
-                    drop_inner_pairs(r, x + j, y + i, 2);
-                }
+        premerge_row_blocks(m, pool, r, y, x, x + 4);
+        premerge_row_blocks(m, pool, r, y + 2, x, x + 4);
     }
-    premerge_row_blocks(m, pool, r, y, x);
-    premerge_row_blocks(m, pool, r, y + 2, x);
+    premerge_row_blocks(m, pool, r, y, x, w);
+    premerge_row_blocks(m, pool, r, y + 2, x, w);
 }
 
 /* The squares and blocks of rows y0..y1 - 1 (bk: their buckets, as
@@ -774,7 +771,7 @@ static void premerge_blocks(merge_state *m, slot_pool *pool, size_t y0, size_t y
             premerge_square_row(m, pool, &r, y);
             y += 4;
         } else if (y % 2 == 0) {
-            premerge_row_blocks(m, pool, &r, y, 0);
+            premerge_row_blocks(m, pool, &r, y, 0, w);
             y += 2;
         } else
             y++;

@@ -18,27 +18,39 @@
 
 static const double MONO[3] = {0.06, 0.11, 0.01};
 
-static void paint(lam_image *img, size_t x0, size_t y0, size_t x1, size_t y1, const double c[3])
+static void paint_wh(lam_image *img, size_t w, size_t x0, size_t y0, size_t x1, size_t y1,
+                     const double c[3])
 {
     for (size_t y = y0; y < y1; y++)
         for (size_t x = x0; x < x1; x++)
             for (int k = 0; k < 3; k++)
-                img->plane[k][y * W + x] = (float)c[k];
+                img->plane[k][y * w + x] = (float)c[k];
 }
 
-/* Deterministic pixel noise of sigma ~0.002 (sum of uniforms). */
-static void add_noise(lam_image *img)
+static void paint(lam_image *img, size_t x0, size_t y0, size_t x1, size_t y1, const double c[3])
 {
-    unsigned s = 12345;
-    for (size_t i = 0; i < (size_t)W * H; i++)
+    paint_wh(img, W, x0, y0, x1, y1, c);
+}
+
+/* Pixel noise of the given sigma (sum of uniforms) on a w x h image. */
+static void add_noise_wh(lam_image *img, size_t w, size_t h, double sigma, unsigned seed)
+{
+    unsigned s = seed;
+    for (size_t i = 0; i < w * h; i++)
         for (int k = 0; k < 3; k++) {
             double u = 0;
             for (int t = 0; t < 4; t++) {
                 s = s * 1103515245u + 12345u;
                 u += (double)(s >> 8) / 16777216.0 - 0.5;
             }
-            img->plane[k][i] += (float)(0.002 * u * 1.732);
+            img->plane[k][i] += (float)(sigma * u * 1.732);
         }
+}
+
+/* Deterministic pixel noise of sigma ~0.002 on a W x H image. */
+static void add_noise(lam_image *img)
+{
+    add_noise_wh(img, W, H, 0.002, 12345);
 }
 
 /* The scene: flake A (a monolayer, 140 x 100) cut across by a 3 px line
@@ -890,30 +902,6 @@ static size_t unmatched(const lam_segmentation *a, const lam_segmentation *b)
     }
     free(counts);
     return counts ? missing : 1;
-}
-
-/* Pixel noise of the given sigma (sum of uniforms) on a w x h image. */
-static void add_noise_wh(lam_image *img, size_t w, size_t h, double sigma, unsigned seed)
-{
-    unsigned s = seed;
-    for (size_t i = 0; i < w * h; i++)
-        for (int k = 0; k < 3; k++) {
-            double u = 0;
-            for (int t = 0; t < 4; t++) {
-                s = s * 1103515245u + 12345u;
-                u += (double)(s >> 8) / 16777216.0 - 0.5;
-            }
-            img->plane[k][i] += (float)(sigma * u * 1.732);
-        }
-}
-
-static void paint_wh(lam_image *img, size_t w, size_t x0, size_t y0, size_t x1, size_t y1,
-                     const double c[3])
-{
-    for (size_t y = y0; y < y1; y++)
-        for (size_t x = x0; x < x1; x++)
-            for (int k = 0; k < 3; k++)
-                img->plane[k][y * w + x] = (float)c[k];
 }
 
 /* A field of flakes of monolayer step 'step': 1L, 2L and 3L, a 1L flake
