@@ -346,9 +346,17 @@ double lam__logsumexp(const double *x, size_t n)
     return top + log(s);
 }
 
-void lam__thick_span_of(const lam_estimate *e, const lam_prediction *ladder, lam__thick_span *t)
+void lam__ladder_terms_of(const lam_estimate *e, const lam_prediction *ladder,
+                          lam__ladder_terms *t)
 {
     size_t K = e->max_layers, top = ladder->max_layers;
+    for (size_t h = 0; h <= K && h <= top; h++)
+        for (size_t c = 0; c < e->channels; c++)
+            t->floor_var[h][c] = lam_estimate_floor_var(e, c, ladder->contrast[h][c]);
+    t->log_prior_substrate = log(lam_hypothesis_prior(0, K));
+    t->log_prior_layers = log(lam_hypothesis_prior(1, K));
+    t->log_prior_thick = log(lam_hypothesis_prior(K + 1, K));
+    t->log_prior_unmodelled = log(lam_hypothesis_prior(K + 2, K));
     t->any = top > K;
     for (size_t c = 0; c < e->channels; c++) {
         double lo = INFINITY, hi = -INFINITY;
@@ -369,7 +377,7 @@ void lam__thick_span_of(const lam_estimate *e, const lam_prediction *ladder, lam
  * some entry); only thin flakes should inform the fit. The region
  * posteriors (infer.c) use the sharp entries. */
 static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
-                                 const lam__thick_span *t)
+                                 const lam__ladder_terms *t)
 {
     if (!t->any)
         return -INFINITY;
@@ -440,27 +448,25 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt)
 {
-    lam__thick_span t;
-    lam__thick_span_of(e, ladder, &t);
+    lam__ladder_terms t;
+    lam__ladder_terms_of(e, ladder, &t);
     lam__region_logterms_in(e, r, ladder, &t, lt);
 }
 
 void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
-                             const lam_prediction *ladder, const lam__thick_span *t, double *lt)
+                             const lam_prediction *ladder, const lam__ladder_terms *t,
+                             double *lt)
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
     double var[LAM_MAX_CHANNELS];
-    /* the priors of 1..K are equal (lam_hypothesis_prior): two logarithms */
-    const double lp_substrate = log(lam_hypothesis_prior(0, K));
-    const double lp_layers = log(lam_hypothesis_prior(1, K));
     for (size_t h = 0; h <= K && h <= top; h++) {
         for (size_t c = 0; c < nc; c++)
-            var[c] = r->var[c] + lam_estimate_floor_var(e, c, ladder->contrast[h][c]);
-        lt[h] = (h ? lp_layers : lp_substrate) +
+            var[c] = r->var[c] + t->floor_var[h][c];
+        lt[h] = (h ? t->log_prior_layers : t->log_prior_substrate) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
-    lt[K + 1] = log(lam_hypothesis_prior(K + 1, K)) + thick_broad_logpdf(e, r, t);
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, ladder);
+    lt[K + 1] = t->log_prior_thick + thick_broad_logpdf(e, r, t);
+    lt[K + 2] = t->log_prior_unmodelled + lam__unmodelled_logpdf(e, r, ladder);
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */
         size_t k = (size_t)r->known_layers <= K ? (size_t)r->known_layers : K + 1;

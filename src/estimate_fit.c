@@ -159,8 +159,8 @@ double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_predic
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
     double lt[LAM_MODEL_MAX_LAYERS + 3], total = oxide_prior;
-    lam__thick_span t;
-    lam__thick_span_of(e, ladder, &t);
+    lam__ladder_terms t;
+    lam__ladder_terms_of(e, ladder, &t);
     for (size_t i = 0; i < im->count; i++) {
         const lam_est_region *r = &im->regions[i];
         if (!r->use)

@@ -21,21 +21,27 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
 void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, double *lt);
 
-/* What the "thick" hypothesis of the fit reads of a ladder, the same for
- * every region: the least and most contrast of entries K+1..top per
- * channel (any: the ladder has such entries). */
-typedef struct lam__thick_span {
+/* What every region's terms read of a ladder, made once for all the
+ * regions scored against it: the "thick" hypothesis' span (the least and
+ * most contrast of entries K+1..top per channel; any: the ladder has such
+ * entries), the model floor's variance of entries 0..K per channel, and
+ * the logarithms of the hypotheses' priors. */
+typedef struct lam__ladder_terms {
     double lo[LAM_MAX_CHANNELS], hi[LAM_MAX_CHANNELS];
     int any;
-} lam__thick_span;
+    double floor_var[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
+    double log_prior_substrate, log_prior_layers, log_prior_thick, log_prior_unmodelled;
+} lam__ladder_terms;
 
-void lam__thick_span_of(const lam_estimate *e, const lam_prediction *ladder, lam__thick_span *t);
+void lam__ladder_terms_of(const lam_estimate *e, const lam_prediction *ladder,
+                          lam__ladder_terms *t);
 
-/* lam__region_logterms with the ladder's thick span t made once for all
- * the regions scored against it (the same values: the innermost call of
- * the fit's starting grid). */
+/* lam__region_logterms with the ladder's terms t made once for all the
+ * regions scored against it (the same values: the innermost call of the
+ * fit's starting grid). */
 void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
-                             const lam_prediction *ladder, const lam__thick_span *t, double *lt);
+                             const lam_prediction *ladder, const lam__ladder_terms *t,
+                             double *lt);
 
 /* The model parameter (LAM_MP_*) a shared nuisance moves, or -1 for the
  * gains (applied outside the model). */

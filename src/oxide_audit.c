@@ -34,8 +34,8 @@ static lam_status image_profile(const lam_analysis *a, lam_model *m, double d, l
     lam_estimate_observe(e, P);
     size_t H = e->max_layers + 3;
     double lt[LAM_MODEL_MAX_LAYERS + 3], total = 0;
-    lam__thick_span t;
-    lam__thick_span_of(e, P, &t);
+    lam__ladder_terms t;
+    lam__ladder_terms_of(e, P, &t);
     for (size_t i = 0; i < a->count; i++) {
         if (!profile_region(a, i))
             continue;
