@@ -52,15 +52,26 @@ static int run_beside(size_t threads, void *(*fn)(void *), annot_job *aj, pthrea
     return 0;
 }
 
+/* A failed image's files that this call wrote (each was written whole,
+ * by rename): removed, so that a failure leaves no partial result beside
+ * the input. Files of an earlier run that this call did not replace stay. */
+static void remove_written(char paths[][4096], size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        remove(paths[i]);
+}
+
 /* The annotated image (the largest file) is made on a second thread in two
  * parts: its outlines are traced while the display is decoded here, then
  * it is drawn and encoded while the layer map and the plot are written
  * here. The JSON goes last, after all, so its presence means the image's
- * results are complete (--resume). */
+ * results are complete (--resume). On failure nothing of this image
+ * stays: the first error is returned. */
 static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
                                 size_t threads, cJSON **json, lam_error *err)
 {
-    char p[4096];
+    char done[3][4096]; /* written by this call, for remove_written */
+    size_t written = 0;
     annot_job aj = {a, NULL, "", {0}, LAM_OK};
     lam_error_clear(&aj.err);
     snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
@@ -72,28 +83,39 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
     lam_status st = lam_analysis_display(a, err);
     if (threaded)
         pthread_join(t, NULL);
+    if (!st && aj.st) { /* the outlines could not be traced: nothing written yet */
+        *err = aj.err;
+        st = aj.st;
+    }
     if (st) {
         lam_contours_free(aj.outlines);
         return st;
     }
     threaded = run_beside(threads, write_annotated_thread, &aj, &t);
-    snprintf(p, sizeof p, "%s/%s.layers.png", dir, stem);
-    st = lam_report_write_layers(a, p, err);
-    snprintf(p, sizeof p, "%s/%s.contrast.svg", dir, stem);
-    if (!st)
-        st = lam_report_write_svg(a, p, err);
+    snprintf(done[written], sizeof done[written], "%s/%s.layers.png", dir, stem);
+    if (!(st = lam_report_write_layers(a, done[written], err)))
+        written++;
+    snprintf(done[written], sizeof done[written], "%s/%s.contrast.svg", dir, stem);
+    if (!st && !(st = lam_report_write_svg(a, done[written], err)))
+        written++;
     if (threaded)
         pthread_join(t, NULL);
     lam_contours_free(aj.outlines);
-    if (!st && aj.st) {
+    if (!aj.st) {
+        snprintf(done[written], sizeof done[written], "%s", aj.path);
+        written++;
+    } else if (!st) {
         *err = aj.err;
         st = aj.st;
     }
     if (!st && !(*json = lam_report_json(a)))
         st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
+    char p[4096];
     snprintf(p, sizeof p, "%s/%s.json", dir, stem);
     if (!st)
         st = lam_report_save_json(*json, p, err);
+    if (st)
+        remove_written(done, written);
     return st;
 }
 

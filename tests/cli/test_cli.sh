@@ -107,6 +107,13 @@ done
 grep -q '"schema":[[:space:]]*"lamina-analysis/1"' "$T/a/HT285-A07-tile12.json" && ok "analysis schema" || bad "analysis schema"
 grep -q '"contrast_convention":[[:space:]]*"(substrate - flake) / substrate"' "$T/a/HT285-A07-tile12.json" && ok "convention in JSON" || bad "convention in JSON"
 ls "$T/a" | grep -q tmp && bad "temporary files left" || ok "no temporary files left"
+# a result file that cannot be written (a folder in its place): the image
+# fails, and none of its other files stays
+mkdir -p "$T/nowrite/HT285-A07-tile12.contrast.svg"
+expect_rc 1 "analyze where the plot cannot be written" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/nowrite" samples/HT285-A07-tile12.png
+grep -q "HT285-A07-tile12" "$T/err" && ok "the failure names the image" || bad "failure message: $(cat "$T/err")"
+left=$(ls "$T/nowrite" | grep -v '^HT285-A07-tile12.contrast.svg$' | tr '\n' ' ')
+[ -z "$left" ] && ok "a failed image leaves none of its files" || bad "files left by a failed image: $left"
 expect_rc 0 "analyze with --um-per-px, --na and --fermi" "$BIN" analyze --quiet --um-per-px 0.2 --na 0.5 --fermi 0.3 --out "$T/opt" samples/HT285-A07-tile12.png
 du=$(tr -d '\n\t ' < "$T/opt/HT285-A07-tile12.json" | sed -n 's/.*"defaults_used":\(\[[^]]*\]\).*/\1/p')
 case "$du" in
