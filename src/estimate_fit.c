@@ -395,15 +395,26 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
     return lam__fit_objective(e, f->model, f->w, logpost, err);
 }
 
+/* A start that cannot climb above 'below' (LAM_HOPELESS_AFTER): even
+ * gaining in each of the 'left' iterations as much as the best of the
+ * last three ('gain') it would end below it. */
+static int hopeless(double lp, const double *gain, size_t it, size_t left, double below)
+{
+    double rate = fmax(gain[0], fmax(gain[1], gain[2]));
+    return it + 1 >= LAM_HOPELESS_AFTER && lp + (double)left * rate < below;
+}
+
 lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
 {
-    double lambda = 1e-3;
+    double lambda = 1e-3, gain[3] = {0, 0, 0};
     lam_status st = lam__fit_objective(f->e, f->model, f->w, logpost, err);
     for (size_t it = 0; it < max_it && !st; it++) {
         int moved = 0;
+        double before = *logpost;
         st = one_iteration(f, logpost, &lambda, &moved, err);
         f->e->iterations++;
-        if (!moved)
+        gain[it % 3] = *logpost - before;
+        if (!moved || hopeless(*logpost, gain, it, max_it - it - 1, f->give_up_below))
             break;
     }
     return st;
@@ -634,6 +645,7 @@ lam_status lam__fit_init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_
     memset(f, 0, sizeof *f);
     f->e = e;
     f->model = model;
+    f->give_up_below = -INFINITY;
     collect_free(e);
     size_t m = e->images ? e->images : 1, n = e->nfree ? e->nfree : 1;
     f->q.n = e->nfree;

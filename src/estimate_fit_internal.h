@@ -36,6 +36,9 @@ typedef struct fit_ctx {
     normal_eq q;
     saved_point base;
     double *ds, *dd;
+    double give_up_below; /* lam__fit_run_em stops where it cannot climb above
+                           * this (LAM_HOPELESS_AFTER); -INFINITY: never
+                           * (estimate_starts.c sets it for a start) */
 } fit_ctx;
 
 typedef struct mode_set {

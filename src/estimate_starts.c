@@ -188,7 +188,12 @@ static lam_status settle_seeded(fit_ctx *f, const uint8_t *sig, double ratio, do
                 seeded++;
             }
         }
+    /* with labels the log posterior is not the start's: nothing is given
+     * up before they are released */
+    double give_up = f->give_up_below;
+    f->give_up_below = -INFINITY;
     lam_status st = seeded ? lam__fit_settle(f, lp, err) : LAM_OK;
+    f->give_up_below = give_up;
     k = 0;
     for (size_t j = 0; j < e->images; j++)
         for (size_t i = 0; i < e->image[j].count; i++, k++)
@@ -206,6 +211,14 @@ static void begin_start(lam_estimate *e, const saved_point *first, const start_p
     for (int k = 0; k < LAM_NU_COUNT; k++)
         e->shared[k].value = e->shared[k].prior_mean;
     apply_start(e, sp);
+}
+
+/* Where a start is given up (LAM_HOPELESS_AFTER): LAM_RIVAL_MARGIN below
+ * the best so far (during the side-by-side settling, the first start's,
+ * the same for every slice and any thread count). */
+static double give_up_below(const lam_estimate *e, const mode_set *m)
+{
+    return e->opt.give_up_starts ? m->best_lp - LAM_RIVAL_MARGIN : -INFINITY;
 }
 
 /* A start whose settling reads the best reading so far (settle_seeded):
@@ -259,10 +272,12 @@ static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
     size_t before = g->e->iterations;
     const start_point *sp = &job->sp[k];
     begin_start(g->e, &job->m->first, sp);
+    g->give_up_below = give_up_below(g->e, job->m);
     if (start_seeded(g->e, sp))
         r->st = settle_seeded(g, job->seed, seed_ratio(sp), &r->lp, &r->err);
     else
         r->st = lam__fit_settle(g, &r->lp, &r->err);
+    g->give_up_below = -INFINITY;
     r->iterations = g->e->iterations - before;
     g->e->iterations = before; /* added to the fit's count in the list's order */
     if (!r->st) {
@@ -365,7 +380,10 @@ lam_status lam__multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *
         if (start_seeded(e, &sp[i]) && memcmp(seed, m->sig_best, m->regions)) {
             double lp;
             begin_start(e, &m->first, &sp[i]);
-            if (!(st = settle_seeded(f, m->sig_best, seed_ratio(&sp[i]), &lp, err)))
+            f->give_up_below = give_up_below(e, m);
+            st = settle_seeded(f, m->sig_best, seed_ratio(&sp[i]), &lp, err);
+            f->give_up_below = -INFINITY;
+            if (!st)
                 consider(f, m, lp);
             continue;
         }
