@@ -366,10 +366,27 @@ static lam_status gradients(fit_ctx *f, lam_error *err)
     return LAM_OK;
 }
 
+/* The largest move from base to the current point, in prior standard
+ * deviations (after the bounds: what the step changed). */
+static double moved_by(const lam_estimate *e, const saved_point *base)
+{
+    double big = 0;
+    for (size_t a = 0; a < e->nfree; a++) {
+        const lam_nuisance *p = &e->shared[e->free_index[a]];
+        big = fmax(big, fabs(p->value - base->shared[e->free_index[a]]) / p->prior_sd);
+    }
+    for (size_t j = 0; j < e->images; j++) {
+        const lam_nuisance *o = &e->image[j].oxide;
+        if (o->fitted)
+            big = fmax(big, fabs(o->value - base->oxide[j]) / o->prior_sd);
+    }
+    return big;
+}
+
 /* One damped step that raises the posterior, or none (returns 0 when no
- * step helped: converged). */
+ * step helped: converged); *move: how far it moved (moved_by). */
 static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int *moved,
-                                lam_error *err)
+                                double *move, lam_error *err)
 {
     lam_estimate *e = f->e;
     lam_status st = gradients(f, err);
@@ -378,6 +395,7 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
     build_normal(e, f->w, &f->q);
     lam__fit_save_point(e, &f->base);
     *moved = 0;
+    *move = 0;
     for (int t = 0; t < MAX_TRIES; t++) {
         solve_damped(e, &f->q, *lambda, f->ds, f->dd);
         double big = take_step(e, &f->base, f->ds, f->dd), trial;
@@ -385,6 +403,7 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
             return st;
         if (trial >= *logpost - 1e-9) {
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
+            *move = moved_by(e, &f->base);
             *logpost = trial;
             *lambda = fmax(*lambda / 3, 1e-6);
             return LAM_OK;
@@ -395,26 +414,27 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
     return lam__fit_objective(e, f->model, f->w, logpost, err);
 }
 
-/* A start that cannot climb above 'below' (LAM_HOPELESS_AFTER): even
- * gaining in each of the 'left' iterations as much as the best of the
- * last three ('gain') it would end below it. */
-static int hopeless(double lp, const double *gain, size_t it, size_t left, double below)
+int lam__start_hopeless(double lp, const double *gain, const double *move, size_t done,
+                        size_t left, double below)
 {
     double rate = fmax(gain[0], fmax(gain[1], gain[2]));
-    return it + 1 >= LAM_HOPELESS_AFTER && lp + (double)left * rate < below;
+    double moved = fmax(move[0], fmax(move[1], move[2]));
+    return done >= LAM_HOPELESS_AFTER && moved < LAM_HOPELESS_MOVE &&
+           lp + (double)left * rate < below;
 }
 
 lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
 {
-    double lambda = 1e-3, gain[3] = {0, 0, 0};
+    double lambda = 1e-3, gain[3] = {0, 0, 0}, move[3] = {0, 0, 0};
     lam_status st = lam__fit_objective(f->e, f->model, f->w, logpost, err);
     for (size_t it = 0; it < max_it && !st; it++) {
         int moved = 0;
         double before = *logpost;
-        st = one_iteration(f, logpost, &lambda, &moved, err);
+        st = one_iteration(f, logpost, &lambda, &moved, &move[it % 3], err);
         f->e->iterations++;
         gain[it % 3] = *logpost - before;
-        if (!moved || hopeless(*logpost, gain, it, max_it - it - 1, f->give_up_below))
+        if (!moved ||
+            lam__start_hopeless(*logpost, gain, move, it + 1, max_it - it - 1, f->give_up_below))
             break;
     }
     return st;

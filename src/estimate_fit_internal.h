@@ -52,7 +52,17 @@ typedef struct mode_set {
  * image's observed ladder and responsibilities in w. */
 lam_status lam__fit_objective(lam_estimate *e, lam_model *model, img_work *w, double *out,
                               lam_error *err);
-/* EM with damped Gauss-Newton steps, at most max_it iterations. */
+/* A start that cannot climb above 'below' (LAM_HOPELESS_AFTER,
+ * lamina/estimate.h), after 'done' iterations of an EM run with 'left' to
+ * go: it creeps (none of its last three iterations, 'move', moved a
+ * parameter by LAM_HOPELESS_MOVE of its prior sd), and even gaining in
+ * each iteration left as much as the best of those three ('gain') it
+ * would end below. */
+int lam__start_hopeless(double lp, const double *gain, const double *move, size_t done,
+                        size_t left, double below);
+
+/* EM with damped Gauss-Newton steps, at most max_it iterations; a start
+ * of the multistart stops early when lam__start_hopeless (f->give_up_below). */
 lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err);
 /* Re-estimate the model floor from the residuals; refit when it moved. */
 lam_status lam__fit_refloor(fit_ctx *f, double *lp, lam_error *err);

@@ -8,6 +8,7 @@
 #include "lamina/infer.h"
 #include "lamina/model.h"
 #include "lamina/setup.h"
+#include "estimate_fit_internal.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -178,6 +179,33 @@ static int fit_as_analyze(const fit_input *in, int give_up, fit_found *out)
     return ok;
 }
 
+/* When a start of the multistart counts as hopeless (lam__start_hopeless),
+ * on the sequences traced in the bench images' and A07's wide searches
+ * (2026-12-04). The first start ended at 126.56, so 'below' is 118.56. */
+static void hopeless_rule(void)
+{
+    /* pressed against the search's edge, 25 iterations in, 5 to go:
+     * gains and moves (prior sds) of its last three iterations, as traced */
+    const double creep_gain[3] = {0.00474, 0.000362, 0.0022};
+    const double creep_move[3] = {0.00144, 0.00281, 0.000679};
+    check_true(lam__start_hopeless(99.3, creep_gain, creep_move, 25, 5, 118.56),
+               "a start creeping 19 below the margin is given up");
+    check_true(!lam__start_hopeless(99.3, creep_gain, creep_move, 4, 26, 118.56),
+               "... not before the fifth iteration");
+    /* crossing 190 nm of oxide in 15 nm steps (0.15 of the wide prior's
+     * sd) with small gains, far below: A07's start that then rose by 94 */
+    const double travel_gain[3] = {0.4, 0.2, 0.3}, travel_move[3] = {0.15, 0.15, 0.15};
+    check_true(!lam__start_hopeless(-40, travel_gain, travel_move, 6, 24, 118.56),
+               "a start that still moves far is not given up, however low");
+    /* creeping, but the gains kept up over the iterations left would reach
+     * the margin: 112 + 25 x 0.3 = 119.5 */
+    const double slow_gain[3] = {0.3, 0.2, 0.1};
+    check_true(!lam__start_hopeless(112, slow_gain, creep_move, 5, 25, 118.56),
+               "a start that could still reach the margin at its pace is not given up");
+    check_true(!lam__start_hopeless(99.3, creep_gain, creep_move, 25, 5, -INFINITY),
+               "nothing is given up below -infinity (the first start, other fits)");
+}
+
 /* The multistart leaves a start that cannot come within the rival margin
  * of the first (lam_estimate_options.give_up_starts, LAM_HOPELESS_AFTER).
  * On the 3 MP bench field's regions the wide search starts at grid maxima
@@ -237,6 +265,7 @@ int main(void)
     check_int(lam_estimate_set_regions(e, 0, fit, 9, &err), LAM_OK, "regions");
     check_int(lam_estimate_fit(e, m, m, &err), LAM_OK, "fit (%s)", err.message);
     fit_threads(&s, m, fit, 9);
+    hopeless_rule();
     hopeless_starts();
     check_int(lam_estimate_view(e, 0, m, v, &err), LAM_OK, "view");
     lam_infer_options io = lam_infer_options_default();

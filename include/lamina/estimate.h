@@ -164,15 +164,20 @@ typedef struct lam_estimate {
 
 /* The multistart's other starts are fitted only to find a better mode or
  * a rival within LAM_RIVAL_MARGIN of the best. From this many iterations
- * on, a start's EM stops when it would still end LAM_RIVAL_MARGIN below
- * the first start were every iteration left to gain as much as the best
- * of its last three. Its floor is refitted all the same, and the EM after
- * that is judged likewise: a refitted floor raised a start of the D04
- * sample by 35, to within the margin. Starts pressed against the search's
- * edge, or with a camera channel shifted tens of nm, crept up by
- * thousandths per iteration to the iteration limit in both EM runs (the
- * bench images' wide search, 2026-12-04). */
+ * on, a start's EM stops when it creeps (none of its last three
+ * iterations moved a parameter by LAM_HOPELESS_MOVE of its prior sd) and
+ * would still end LAM_RIVAL_MARGIN below the first start were every
+ * iteration left to gain as much as the best of those three. Its floor is
+ * refitted all the same, and the EM after that is judged likewise: a
+ * refitted floor raised a start of the D04 sample by 35, to within the
+ * margin. Starts pressed against the search's edge, or with a camera
+ * channel shifted tens of nm, crept up by thousandths per iteration to the
+ * iteration limit in both EM runs (the bench images' wide search,
+ * 2026-12-04). Without the creeping condition a start of the A07 sample
+ * that was crossing 190 nm of oxide in 15 nm steps was stopped 94 below
+ * where it would end (the mode another start found). */
 #define LAM_HOPELESS_AFTER 5
+#define LAM_HOPELESS_MOVE 0.02
 
 /* K = 6, oxide grid nominal +- 60 nm in 2 nm steps, starting floor
  * 0.003 + 3 %, floor estimated, 30 iterations, one thread, hopeless
