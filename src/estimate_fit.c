@@ -332,15 +332,20 @@ static double clamp(double v, const lam_nuisance *n)
     return v < n->lo ? n->lo : (v > n->hi ? n->hi : v);
 }
 
-/* Move to base + step; returns the largest step in prior standard deviations. */
+/* Move to base + step; returns the largest step asked for, and in *move
+ * the largest move made (after the bounds and the oxide's limit), both in
+ * prior standard deviations. */
 static double take_step(lam_estimate *e, const saved_point *base, const double *ds,
-                        const double *dd)
+                        const double *dd, double *move)
 {
     double big = 0;
+    *move = 0;
     for (size_t a = 0; a < e->nfree; a++) {
         lam_nuisance *p = &e->shared[e->free_index[a]];
-        p->value = clamp(base->shared[e->free_index[a]] + ds[a], p);
+        double from = base->shared[e->free_index[a]];
+        p->value = clamp(from + ds[a], p);
         big = fmax(big, fabs(ds[a]) / p->prior_sd);
+        *move = fmax(*move, fabs(p->value - from) / p->prior_sd);
     }
     for (size_t j = 0; j < e->images; j++) {
         lam_nuisance *o = &e->image[j].oxide;
@@ -350,6 +355,7 @@ static double take_step(lam_estimate *e, const saved_point *base, const double *
         double d = fmax(-15, fmin(15, dd[j]));
         o->value = clamp(base->oxide[j] + d, o);
         big = fmax(big, fabs(dd[j]) / o->prior_sd);
+        *move = fmax(*move, fabs(o->value - base->oxide[j]) / o->prior_sd);
     }
     return big;
 }
@@ -366,25 +372,9 @@ static lam_status gradients(fit_ctx *f, lam_error *err)
     return LAM_OK;
 }
 
-/* The largest move from base to the current point, in prior standard
- * deviations (after the bounds: what the step changed). */
-static double moved_by(const lam_estimate *e, const saved_point *base)
-{
-    double big = 0;
-    for (size_t a = 0; a < e->nfree; a++) {
-        const lam_nuisance *p = &e->shared[e->free_index[a]];
-        big = fmax(big, fabs(p->value - base->shared[e->free_index[a]]) / p->prior_sd);
-    }
-    for (size_t j = 0; j < e->images; j++) {
-        const lam_nuisance *o = &e->image[j].oxide;
-        if (o->fitted)
-            big = fmax(big, fabs(o->value - base->oxide[j]) / o->prior_sd);
-    }
-    return big;
-}
-
 /* One damped step that raises the posterior, or none (returns 0 when no
- * step helped: converged); *move: how far it moved (moved_by). */
+ * step helped: converged); *move: how far it moved (take_step; 0 when
+ * none was taken). */
 static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int *moved,
                                 double *move, lam_error *err)
 {
@@ -395,21 +385,20 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
     build_normal(e, f->w, &f->q);
     lam__fit_save_point(e, &f->base);
     *moved = 0;
-    *move = 0;
     for (int t = 0; t < MAX_TRIES; t++) {
         solve_damped(e, &f->q, *lambda, f->ds, f->dd);
-        double big = take_step(e, &f->base, f->ds, f->dd), trial;
+        double trial, big = take_step(e, &f->base, f->ds, f->dd, move);
         if ((st = lam__fit_objective(e, f->model, f->w, &trial, err)))
             return st;
         if (trial >= *logpost - 1e-9) {
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
-            *move = moved_by(e, &f->base);
             *logpost = trial;
             *lambda = fmax(*lambda / 3, 1e-6);
             return LAM_OK;
         }
         *lambda *= 4;
     }
+    *move = 0;
     lam__fit_restore_point(e, &f->base);
     return lam__fit_objective(e, f->model, f->w, logpost, err);
 }

@@ -235,6 +235,19 @@ static double seed_ratio(const start_point *sp)
     return sp->alt == START_DOUBLED ? 2.0 : 0.5;
 }
 
+/* Start sp on g, from the fit's first point: settled (a seeded start
+ * with the reading 'seed'), given up where hopeless against m's best. */
+static lam_status settle_start(fit_ctx *g, const mode_set *m, const uint8_t *seed,
+                               const start_point *sp, double *lp, lam_error *err)
+{
+    begin_start(g->e, &m->first, sp);
+    g->give_up_below = give_up_below(g->e, m);
+    lam_status st = start_seeded(g->e, sp) ? settle_seeded(g, seed, seed_ratio(sp), lp, err)
+                                            : lam__fit_settle(g, lp, err);
+    g->give_up_below = -INFINITY;
+    return st;
+}
+
 /* What a start settled to. */
 typedef struct start_result {
     saved_point pt;
@@ -270,14 +283,7 @@ static void settle_one(fit_ctx *g, const starts_job *job, size_t k)
 {
     start_result *r = &job->res[k];
     size_t before = g->e->iterations;
-    const start_point *sp = &job->sp[k];
-    begin_start(g->e, &job->m->first, sp);
-    g->give_up_below = give_up_below(g->e, job->m);
-    if (start_seeded(g->e, sp))
-        r->st = settle_seeded(g, job->seed, seed_ratio(sp), &r->lp, &r->err);
-    else
-        r->st = lam__fit_settle(g, &r->lp, &r->err);
-    g->give_up_below = -INFINITY;
+    r->st = settle_start(g, job->m, job->seed, &job->sp[k], &r->lp, &r->err);
     r->iterations = g->e->iterations - before;
     g->e->iterations = before; /* added to the fit's count in the list's order */
     if (!r->st) {
@@ -379,11 +385,7 @@ lam_status lam__multistart(fit_ctx *f, double *logpost, mode_set *m, lam_error *
         start_result *r = &res[i];
         if (start_seeded(e, &sp[i]) && memcmp(seed, m->sig_best, m->regions)) {
             double lp;
-            begin_start(e, &m->first, &sp[i]);
-            f->give_up_below = give_up_below(e, m);
-            st = settle_seeded(f, m->sig_best, seed_ratio(&sp[i]), &lp, err);
-            f->give_up_below = -INFINITY;
-            if (!st)
+            if (!(st = settle_start(f, m, m->sig_best, &sp[i], &lp, err)))
                 consider(f, m, lp);
             continue;
         }
