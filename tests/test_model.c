@@ -217,6 +217,110 @@ static void test_derivative(void)
     lam_model_free(m);
 }
 
+/* The ladder's gradient (lam_model_gradient: the oxide and the response
+ * terms come from one pass of derivative fields, not differences) against
+ * Richardson-extrapolated central differences of the model itself, on a
+ * separate model (errors O(h^4), ~1e-10 here). It checks the derivative
+ * code, not the physics (the model's own checks are above). */
+static double gradient_error(lam_model *m, lam_model *ref, const lam_model_point *p, int j,
+                             double h)
+{
+    lam_ladder_grad g;
+    int which[1] = {j};
+    if (lam_model_gradient(m, p, 6, which, 1, &g, NULL))
+        return INFINITY;
+    static lam_prediction f[4];
+    const double at[4] = {-2, -1, 1, 2};
+    for (int i = 0; i < 4; i++) {
+        lam_model_point q = *p;
+        q.v[j] += at[i] * h;
+        if (lam_model_eval_point(ref, &q, 6, &f[i], NULL))
+            return INFINITY;
+    }
+    double worst = 0, scale = 0;
+    for (size_t N = 0; N <= 6; N++)
+        for (size_t c = 0; c < 3; c++) {
+            double d = (8 * (f[2].contrast[N][c] - f[1].contrast[N][c]) -
+                        (f[3].contrast[N][c] - f[0].contrast[N][c])) / (12 * h);
+            worst = fmax(worst, fabs(g[N][c] - d));
+            scale = fmax(scale, fabs(d));
+        }
+    return scale > 0 ? worst / scale : worst;
+}
+
+/* A camera term's derivative (a channel's shift or log width) is still a
+ * central difference with lam_model_step, now of that channel's weights
+ * alone: it must equal the difference of two whole evaluations. */
+static double camera_gradient_error(lam_model *m, lam_model *ref, const lam_model_point *p,
+                                    int j)
+{
+    lam_ladder_grad g;
+    int which[1] = {j};
+    if (lam_model_gradient(m, p, 6, which, 1, &g, NULL))
+        return INFINITY;
+    double h = lam_model_step((lam_model_param)j), worst = 0;
+    lam_model_point hi = *p, lo = *p;
+    hi.v[j] += h, lo.v[j] -= h;
+    if (lam_model_eval_point(ref, &hi, 6, &P, NULL) || lam_model_eval_point(ref, &lo, 6, &Q, NULL))
+        return INFINITY;
+    for (size_t N = 0; N <= 6; N++)
+        for (size_t c = 0; c < 3; c++)
+            worst = fmax(worst, fabs(g[N][c] - (P.contrast[N][c] - Q.contrast[N][c]) /
+                                                   (hi.v[j] - lo.v[j])));
+    return worst;
+}
+
+static void test_ladder_gradient(void)
+{
+    /* the default 285 nm chip; 90 nm under a wide cone with shifted
+     * channels; an absorbing film above the oxide; a film below it */
+    const char *what[4] = {"285 nm, NA default", "90 nm, NA 0.8, shifted channels",
+                           "8 nm Si on 90 nm oxide", "285 nm oxide on 40 nm water"};
+    const int params[5] = {LAM_MP_OXIDE, LAM_MP_CONTINUUM, LAM_MP_RESONANCE, LAM_MP_BACKGROUND,
+                           LAM_MP_NA};
+    const double step[5] = {0.05, 0.005, 0.02, 0.2, 0.002};
+    const char *name[5] = {"oxide", "continuum", "resonance", "background", "NA"};
+    for (int k = 0; k < 4; k++) {
+        lam_setup s;
+        lam_setup_default(&s);
+        if (k == 1 || k == 2)
+            lam_setup_set_oxide(&s, 90, NULL);
+        if (k == 2) { /* the oxide becomes the second film */
+            s.layer_material[1] = s.layer_material[0], s.layer_nm[1] = s.layer_nm[0];
+            lam_material_builtin("Si", &s.layer_material[0], NULL);
+            s.layer_nm[0] = 8, s.layers = 2;
+        }
+        if (k == 3) {
+            lam_material_builtin("water", &s.layer_material[1], NULL);
+            s.layer_nm[1] = 40, s.layers = 2;
+        }
+        lam_model *m = NULL, *ref = NULL;
+        if (!check_true(!lam_model_alloc(&s, 6, 0, &m, NULL) &&
+                            !lam_model_alloc(&s, 6, 0, &ref, NULL),
+                        "models for the gradient (%s)", what[k])) {
+            lam_model_free(m);
+            lam_model_free(ref);
+            continue;
+        }
+        lam_model_point p = lam_model_point_default(m);
+        if (k == 1) {
+            p.v[LAM_MP_NA] = 0.8;
+            p.v[LAM_MP_SHIFT] = 12, p.v[LAM_MP_SHIFT + 2] = -9, p.v[LAM_MP_WIDTH + 1] = 0.2;
+        }
+        p.v[LAM_MP_CONTINUUM] = 0.1;
+        for (int j = 0; j < 5; j++)
+            check_true(gradient_error(m, ref, &p, params[j], step[j]) < 1e-7,
+                       "d contrast / d %s as the model's differences (%s): relative error %.2g",
+                       name[j], what[k], gradient_error(m, ref, &p, params[j], step[j]));
+        for (int j = LAM_MP_SHIFT; j <= LAM_MP_WIDTH_LAST && k < 2; j++)
+            check_true(camera_gradient_error(m, ref, &p, j) == 0,
+                       "d contrast / d camera term %d as whole evaluations' differences (%s)",
+                       j - LAM_MP_SHIFT, what[k]);
+        lam_model_free(m);
+        lam_model_free(ref);
+    }
+}
+
 static void test_film_comparison(void)
 {
     /* graphene as a 0.335 nm film of Weber et al. (2010) n,k against the
@@ -317,6 +421,7 @@ int main(void)
     test_published();
     test_pitfalls();
     test_derivative();
+    test_ladder_gradient();
     test_clone();
     test_warm_equals_cold();
     if (check_refdata_dir())

@@ -123,9 +123,13 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
                             double (*dcontrast)[LAM_MAX_CHANNELS], lam_error *err);
 
 /* Derivatives of the contrast ladder with respect to the parameters listed
- * in 'which' (count of them) at point p, N = 0..layers, by central
- * differences with steps suited to each parameter (lam_model_step):
- * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. */
+ * in 'which' (count of them) at point p, N = 0..layers:
+ * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. For a reflection ladder of
+ * sheets the oxide and the three response terms are analytic (one pass of
+ * derivative fields through the stack, to ~1e-11 of the model's own
+ * differences: test_model); the NA, the Fermi level, the channel shifts
+ * and widths, and every parameter of film flakes and of transmission, by
+ * central differences with steps suited to each (lam_model_step). */
 typedef double lam_ladder_grad[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
 /* (The gradients above; LAM_ENOMEM or LAM_ERANGE outside a table.) */
 lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
