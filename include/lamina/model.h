@@ -124,11 +124,11 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
 
 /* Derivatives of the contrast ladder with respect to the parameters listed
  * in 'which' (count of them) at point p, N = 0..layers:
- * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. For a reflection ladder of
- * sheets the oxide and the three response terms are analytic (one pass of
- * derivative fields through the stack, to ~1e-11 of the model's own
- * differences: test_model); the NA, the Fermi level, the channel shifts
- * and widths, and every parameter of film flakes and of transmission, by
+ * grad[k][N][c] = d C_c(N) / d p.v[which[k]]. In reflection the oxide, an
+ * NA above 0 and (for graphene's sheets) the three response terms are
+ * analytic: one pass of derivative fields through the stack, to ~1e-11 of
+ * the model's own differences (test_model). The channel shifts and widths,
+ * the Fermi level, an NA of 0 and every parameter in transmission are
  * central differences with steps suited to each (lam_model_step). */
 typedef double lam_ladder_grad[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
 /* (The gradients above; LAM_ENOMEM or LAM_ERANGE outside a table.) */
