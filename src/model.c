@@ -44,6 +44,7 @@ void lam_model_free(lam_model *m)
     free(m->y_sheet);
     free(m->rbar);
     free(m->n_residue);
+    free(m->fph);
     for (int i = 0; i < WAVE_SETS; i++)
         free(m->waves[i].gap_cos);
     free_slots(m);
@@ -319,6 +320,9 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
     m->wl = m->trapezoid = m->lamp = m->weight = m->rbar = NULL;
     m->n_layer = m->n_base = m->n_film = m->n_film_layer = m->basis = m->y_sheet = NULL;
     m->n_residue = NULL;
+    m->fph = NULL;
+    m->fph_size = 0;
+    m->fph_na = NAN;
     m->res_slot = NULL;
     memset(m->slot, 0, sizeof m->slot);
     memset(m->waves, 0, sizeof m->waves);
@@ -772,8 +776,8 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
 }
 
 /* Comparison model: N layers as one film of N * interlayer_nm. */
-void lam__film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
-                           film_phases *f)
+static void film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
+                             film_phases *f)
 {
     double k0 = 2.0 * M_PI / m->wl[l];
     double complex qf = lam_tmm_q(m->n_film[l], kx);
@@ -787,7 +791,50 @@ void lam__film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
     }
 }
 
-static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
+/* Fill the cache for the current cone and N = 0..layers. */
+static int fill_film_phases(lam_model *m, size_t layers)
+{
+    const cone *c = &m->cone_cache;
+    size_t per = layers + 1, size = m->nwl * c->nodes * per;
+    if (size > m->fph_size) {
+        free(m->fph);
+        m->fph_size = 0;
+        if (!(m->fph = malloc(3 * size * sizeof *m->fph)))
+            return 0;
+        m->fph_size = size;
+    }
+    double complex *q = m->fph, *cp = q + m->fph_size, *sp = cp + m->fph_size;
+    film_phases f;
+    for (size_t l = 0; l < m->nwl; l++)
+        for (size_t t = 0; t < c->nodes; t++) {
+            size_t at = (l * c->nodes + t) * per;
+            film_phases_at(m, l, m->n_ambient * c->sin_t[t], layers, &f);
+            memcpy(q + at, f.q, per * sizeof *q);
+            memcpy(cp + at, f.cp, per * sizeof *cp);
+            memcpy(sp + at, f.sp, per * sizeof *sp);
+        }
+    m->fph_na = c->na;
+    m->fph_nodes = c->nodes;
+    m->fph_layers = layers;
+    return 1;
+}
+
+int lam__film_phases(lam_model *m, size_t l, size_t t, size_t layers, film_phases *f)
+{
+    const cone *c = &m->cone_cache;
+    if (!(m->fph && m->fph_na == c->na && m->fph_nodes == c->nodes && m->fph_layers >= layers) &&
+        !fill_film_phases(m, layers))
+        return 0;
+    size_t per = m->fph_layers + 1, at = (l * c->nodes + t) * per;
+    const double complex *q = m->fph, *cp = q + m->fph_size, *sp = cp + m->fph_size;
+    memcpy(f->q, q + at, (layers + 1) * sizeof *q);
+    memcpy(f->cp, cp + at, (layers + 1) * sizeof *cp);
+    memcpy(f->sp, sp + at, (layers + 1) * sizeof *sp);
+    return 1;
+}
+
+/* 0 when out of memory (the film phases' cache). */
+static int stack_film(lam_model *m, const substrate_slot *s, size_t layers)
 {
     const cone *c = &m->cone_cache;
     size_t stride = m->max_layers + 1;
@@ -798,8 +845,9 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
         for (size_t t = 0; t < c->nodes; t++) {
             size_t k = l * c->nodes + t;
             int npol = c->sin_t[t] > 0 ? 2 : 1;
-            double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
-            lam__film_phases_at(m, l, kx, layers, &f);
+            double wt = c->w_t[t] / (double)npol;
+            if (!lam__film_phases(m, l, t, layers, &f))
+                return 0;
             for (int pol = 0; pol < npol; pol++) {
                 double complex ysub = s->y[2 * k + (size_t)pol], eta0 = s->eta0[2 * k + (size_t)pol];
                 double complex ef = lam_tmm_eta(m->n_film[l], f.q[0], (lam_pol)pol);
@@ -820,6 +868,7 @@ static void stack_film(lam_model *m, const substrate_slot *s, size_t layers)
             }
         }
     }
+    return 1;
 }
 
 /* ---- residue films (lam_model_set_residue) ---- */
@@ -992,9 +1041,9 @@ lam_status lam_model_eval_point(lam_model *m, const lam_model_point *p, size_t l
         return st;
     substrate_slot *s = lam__substrate_for(m, oxide);
     if (!rbar_current(m, s, p, layers)) {
-        if (m->n_film)
-            stack_film(m, s, layers);
-        else
+        if (m->n_film && !stack_film(m, s, layers))
+            return lam_error_set(err, LAM_ENOMEM, "cannot allocate the film phases");
+        if (!m->n_film)
             stack_sheets(m, s, layers);
         remember_rbar(m, s, p, layers);
     }

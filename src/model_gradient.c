@@ -315,8 +315,8 @@ static double reflectance_change(double complex eta0, double complex y, double c
     return 2.0 * creal(conj(n) * (deta0 - dy) - *r2 * conj(d) * (deta0 + dy)) * inv;
 }
 
-static void film_derivatives(lam_model *m, const substrate_slot *s, size_t layers, double *gox,
-                             double *gna)
+static int film_derivatives(lam_model *m, const substrate_slot *s, size_t layers, double *gox,
+                            double *gna)
 {
     const cone *c = &m->cone_cache;
     const cone_waves *w = lam__waves_for(m);
@@ -335,7 +335,8 @@ static void film_derivatives(lam_model *m, const substrate_slot *s, size_t layer
             size_t k = l * c->nodes + t;
             int npol = c->sin_t[t] > 0 ? 2 : 1;
             double wt = c->w_t[t] / (double)npol, kx = m->n_ambient * c->sin_t[t];
-            lam__film_phases_at(m, l, kx, layers, &f);
+            if (!lam__film_phases(m, l, t, layers, &f))
+                return 0;
             for (int pol = 0; pol < npol; pol++) {
                 double complex eta0 = s->eta0[2 * k + (size_t)pol], q0 = s->eta0[2 * k];
                 double complex dq0 = -kx / q0, de0 = pol == LAM_POL_S ? dq0 : -eta0 * dq0 / q0;
@@ -350,6 +351,7 @@ static void film_derivatives(lam_model *m, const substrate_slot *s, size_t layer
             }
         }
     }
+    return 1;
 }
 
 /* Whether stack_derivatives (sheets) or film_derivatives (films) gives
@@ -422,11 +424,11 @@ static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size
     if (!st) {
         /* the point's slot, cone, y_sheet, basis and weights are the model's now */
         substrate_slot *slot = lam__substrate_for(m, p->v[LAM_MP_OXIDE]);
-        if (m->n_film)
-            film_derivatives(m, slot, layers, gox, na ? gna : NULL);
-        else
+        if (!m->n_film)
             stack_derivatives(m, slot, layers, gy, gox, na ? gna : NULL);
-        for (size_t k = 0; k < count; k++) {
+        else if (!film_derivatives(m, slot, layers, gox, na ? gna : NULL))
+            st = lam_error_set(err, LAM_ENOMEM, "cannot allocate the film phases");
+        for (size_t k = 0; k < count && !st; k++) {
             int j = which[k];
             if (!derivable(m, p, j))
                 continue;

@@ -97,6 +97,12 @@ struct lam_model {
     unsigned long rbar_slot_used;
     size_t rbar_layers;
     double rbar_fermi, rbar_response[3];
+    /* film flakes: the film phases of every wavelength and node of one cone
+     * (lam__film_phases), (l * nodes + t) * (fph_layers + 1) + N, three
+     * arrays (q, cos, sin) of fph_size each; NULL until the first */
+    double complex *fph;
+    size_t fph_size, fph_layers, fph_nodes;
+    double fph_na; /* NAN: not filled */
 };
 
 /* The reflection stack of one wavelength for all cone nodes and
@@ -150,9 +156,11 @@ void lam__items_gap(stack_items *restrict it);
  * weighted sum. */
 double lam__items_sheet(stack_items *restrict it, double yr, double yi);
 
-/* The wave vectors and phase terms of every N-layer film (film flakes). */
-void lam__film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
-                         film_phases *f);
+/* The wave vectors and phase terms of every N-layer film (film flakes) at
+ * node t of wavelength l of the current cone, N = 0..layers: from the
+ * model's cache, filled for the whole cone when the cone or the depth
+ * changes (they do not depend on the oxide). 0 when out of memory. */
+int lam__film_phases(lam_model *m, size_t l, size_t t, size_t layers, film_phases *f);
 
 /* Channel c's weights for a shift and a log width scale into w (nwl);
  * LAM_ERANGE when the channel sees no light. */
