@@ -49,7 +49,8 @@ static double complex substrate_derivs(const lam_model *m, const cone_waves *w,
 {
     size_t films = lam__films_of(m), ox = m->oxide_layer;
     if (ox == 0 && m->layers > 0 && !dkx)
-        return w->k0q[k * films] * riccati(w->eta[2 * k * films + (size_t)pol], s->y[2 * k + (size_t)pol]);
+        return w->k0q[k * films] *
+               riccati(w->eta[2 * k * films + (size_t)pol], s->y[2 * k + (size_t)pol]);
     double k0 = 2.0 * M_PI / m->wl[k / m->cone_cache.nodes];
     double complex qb = w->eta_base[2 * k], y = w->eta_base[2 * k + (size_t)pol];
     double complex dq = -kx / qb, dy = pol == LAM_POL_S ? dq : -y * dq / qb, dox = 0;
@@ -130,9 +131,8 @@ static void ambient_derivs(const lam_model *m, const substrate_slot *s, size_t k
  * kx), the ambient's terms, and each item's R in it->r2. ka, kb: the
  * nodes' terms (node_derivs) when the kx terms are wanted, else NULL (they
  * are left zero). */
-static void load_derivs(const lam_model *m, const cone_waves *w, const substrate_slot *s,
-                        size_t l, const double *ka, const double *kb, stack_items *it,
-                        deriv_items *d)
+static void load_derivs(const lam_model *m, const cone_waves *w, const substrate_slot *s, size_t l,
+                        const double *ka, const double *kb, stack_items *it, deriv_items *d)
 {
     const cone *c = &m->cone_cache;
     int angle = ka != NULL;
@@ -222,16 +222,19 @@ static void derivs_reflectance(const stack_items *restrict it, deriv_items *rest
         double nr = ar - it->cr[i], ni = ai - it->ci[i], dr = ar + it->cr[i], di = ai + it->ci[i];
         double inv = 1.0 / (dr * dr + di * di), r2 = it->r2[i];
         double qr = er * d->pbr[i] - ei * d->pbi[i], qi = er * d->pbi[i] + ei * d->pbr[i];
-        double pnr = qr - d->pcr[i], pni = qi - d->pci[i], pdr = qr + d->pcr[i], pdi = qi + d->pci[i];
+        double pnr = qr - d->pcr[i], pni = qi - d->pci[i], pdr = qr + d->pcr[i],
+               pdi = qi + d->pci[i];
         d->gr[i] = ((nr * pnr + ni * pni) - r2 * (dr * pdr + di * pdi)) * inv;
         d->gi[i] = ((nr * pni - ni * pnr) - r2 * (dr * pdi - di * pdr)) * inv;
         qr = er * d->obr[i] - ei * d->obi[i], qi = er * d->obi[i] + ei * d->obr[i];
-        double onr = qr - d->ocr[i], oni = qi - d->oci[i], odr = qr + d->ocr[i], odi = qi + d->oci[i];
+        double onr = qr - d->ocr[i], oni = qi - d->oci[i], odr = qr + d->ocr[i],
+               odi = qi + d->oci[i];
         d->go[i] = 2.0 * ((nr * onr + ni * oni) - r2 * (dr * odr + di * odi)) * inv;
         /* d(eta0 B) = deta0 B + eta0 dB */
         qr = er * d->abr[i] - ei * d->abi[i] + (d->de0r[i] * br - d->de0i[i] * bi);
         qi = er * d->abi[i] + ei * d->abr[i] + (d->de0r[i] * bi + d->de0i[i] * br);
-        double anr = qr - d->acr[i], ani = qi - d->aci[i], adr = qr + d->acr[i], adi = qi + d->aci[i];
+        double anr = qr - d->acr[i], ani = qi - d->aci[i], adr = qr + d->acr[i],
+               adi = qi + d->aci[i];
         double dkx = 2.0 * ((nr * anr + ni * ani) - r2 * (dr * adr + di * adi)) * inv;
         d->ga[i] = d->ka[i] * r2 + d->kb[i] * dkx;
     }
@@ -287,8 +290,8 @@ static void stack_derivatives(lam_model *m, const substrate_slot *s, size_t laye
  * the substrate's dY through the film (1 / den^2), and for kx the film's
  * own phase and admittance, the ambient's admittance and the cone's nodes
  * and weights. */
-static void film_item_derivs(const lam_model *m, size_t l, size_t N, const film_phases *f,
-                             int pol, double kx, double complex ysub, double complex dsub[2],
+static void film_item_derivs(const lam_model *m, size_t l, size_t N, const film_phases *f, int pol,
+                             double kx, double complex ysub, double complex dsub[2],
                              double complex *y, double complex dy[2])
 {
     *y = ysub, dy[0] = dsub[0], dy[1] = dsub[1];
@@ -346,7 +349,10 @@ static int film_derivatives(lam_model *m, const substrate_slot *s, size_t layers
                     film_item_derivs(m, l, N, &f, pol, kx, s->y[2 * k + (size_t)pol], dsub, &y, dy);
                     go[N] += wt * reflectance_change(eta0, y, dy[0], 0, &r2);
                     if (gn)
-                        gn[N] += wt * (ka[t] * r2 + kb[t] * reflectance_change(eta0, y, dy[1], de0, &r2)) * dtmax;
+                        gn[N] +=
+                            wt *
+                            (ka[t] * r2 + kb[t] * reflectance_change(eta0, y, dy[1], de0, &r2)) *
+                            dtmax;
                 }
             }
         }
@@ -393,8 +399,8 @@ static void contrast_derivative(const lam_model *m, const lam_prediction *at, si
 
 /* d rbar / d (response term b of lam_sheet_combine, 1..3) from gy:
  * dy = Z0 basis_b per unit of the term (none without the visible terms). */
-static void response_drbar(const lam_model *m, size_t b, size_t layers,
-                           const double complex *gy, double *drbar)
+static void response_drbar(const lam_model *m, size_t b, size_t layers, const double complex *gy,
+                           double *drbar)
 {
     size_t stride = m->max_layers + 1;
     int visible = m->sheet.model == LAM_SHEET_KUBO && m->sheet.exciton;
@@ -418,9 +424,8 @@ static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size
     lam_prediction *at = malloc(sizeof *at);
     double complex *gy = malloc(per * sizeof *gy);
     double *gox = malloc(3 * per * sizeof *gox), *gna = gox ? gox + 2 * per : NULL;
-    lam_status st = at && gy && gox
-                        ? lam_model_eval_point(m, p, layers, at, err)
-                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate derivatives");
+    lam_status st = at && gy && gox ? lam_model_eval_point(m, p, layers, at, err)
+                                    : lam_error_set(err, LAM_ENOMEM, "cannot allocate derivatives");
     if (!st) {
         /* the point's slot, cone, y_sheet, basis and weights are the model's now */
         substrate_slot *slot = lam__substrate_for(m, p->v[LAM_MP_OXIDE]);
@@ -434,7 +439,10 @@ static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size
                 continue;
             double *drbar = j == LAM_MP_OXIDE ? gox : j == LAM_MP_NA ? gna : gox + per;
             if (drbar == gox + per)
-                response_drbar(m, j == LAM_MP_CONTINUUM ? 1 : j == LAM_MP_RESONANCE ? 2 : 3,
+                response_drbar(m,
+                               j == LAM_MP_CONTINUUM   ? 1
+                               : j == LAM_MP_RESONANCE ? 2
+                                                       : 3,
                                layers, gy, drbar);
             contrast_derivative(m, at, layers, drbar, grad[k]);
         }
@@ -483,8 +491,7 @@ static int camera_param(int j)
 }
 
 lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
-                              const int *which, size_t count, lam_ladder_grad *grad,
-                              lam_error *err)
+                              const int *which, size_t count, lam_ladder_grad *grad, lam_error *err)
 {
     if (layers == 0 || layers > m->max_layers)
         layers = m->max_layers;
@@ -513,7 +520,8 @@ lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t lay
         lo.v[j] -= h;
         /* stay inside the physical range: one-sided at its edge */
         if ((j == LAM_MP_OXIDE || j == LAM_MP_NA || j == LAM_MP_RESONANCE ||
-             j == LAM_MP_BACKGROUND) && lo.v[j] < 0)
+             j == LAM_MP_BACKGROUND) &&
+            lo.v[j] < 0)
             lo.v[j] = p->v[j];
         if (j == LAM_MP_NA && hi.v[j] >= m->n_ambient)
             hi.v[j] = p->v[j];
@@ -547,4 +555,3 @@ lam_status lam_model_doxide(lam_model *m, double oxide_nm, double fermi_ev,
     free(a);
     return st;
 }
-

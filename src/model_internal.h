@@ -29,7 +29,7 @@ typedef struct substrate_slot {
     unsigned long used, filled; /* last use; when it was (re)filled */
     double oxide_nm, na;
     double complex *y, *eta0, *gap_cos, *gap_sin;
-    double *tnorm; /* transmission only: 4 Re(eta_base) / |B_top|^2 (unit field at the base) */
+    double *tnorm;    /* transmission only: 4 Re(eta_base) / |B_top|^2 (unit field at the base) */
     double *res_rbar; /* with a residue film: nwl x LAM_RESIDUE_FILMS cone-averaged R */
     unsigned long res_filled; /* the 'filled' res_rbar was computed for, 0: not yet */
 } substrate_slot;
@@ -58,22 +58,22 @@ typedef struct cone_waves {
 struct lam_model {
     size_t channels, max_layers, nwl, layers, oxide_layer, cone_nodes_max;
     double n_ambient, interlayer_nm;
-    int transmission;        /* T through the stack into the base instead of R (stamps) */
+    int transmission; /* T through the stack into the base instead of R (stamps) */
     lam_pupil_weight pupil;
     lam_sheet_params sheet;
-    lam_camera camera;       /* borrowed table pointers: the setup must outlive only alloc */
+    lam_camera camera; /* borrowed table pointers: the setup must outlive only alloc */
     lam_table_spectrum camera_table_copy;
-    double *wl, *trapezoid, *lamp; /* nwl */
-    double *weight;          /* channels x nwl, for 'weight_cam' */
+    double *wl, *trapezoid, *lamp;           /* nwl */
+    double *weight;                          /* channels x nwl, for 'weight_cam' */
     double weight_cam[2 * LAM_MAX_CHANNELS]; /* the shifts and log widths it was made for */
     double centroid[LAM_MAX_CHANNELS];       /* of each channel's S L, nm */
     int have_weight;
-    double complex *n_layer; /* layers x nwl */
-    double complex *n_base;  /* nwl */
-    double complex *n_film;  /* nwl: flake index when flakes are films, else NULL */
-    size_t film_layers;      /* N <= film_layers have their own index (crystals) ... */
+    double complex *n_layer;      /* layers x nwl */
+    double complex *n_base;       /* nwl */
+    double complex *n_film;       /* nwl: flake index when flakes are films, else NULL */
+    size_t film_layers;           /* N <= film_layers have their own index (crystals) ... */
     double complex *n_film_layer; /* ... film_layers x nwl, else NULL */
-    double complex *basis;   /* nwl x 4: sheet conductivity basis at basis_fermi */
+    double complex *basis;        /* nwl x 4: sheet conductivity basis at basis_fermi */
     double basis_fermi;
     int have_basis;
     double complex *y_sheet; /* nwl: Z0 sigma at the point being evaluated */
@@ -83,8 +83,8 @@ struct lam_model {
     substrate_slot slot[SUBSTRATE_SLOTS];
     unsigned long clock;
     lam_model_point defaults;
-    double *rbar;            /* nwl x (max_layers + 1): cone-averaged R */
-    double complex *n_residue; /* nwl: a residue film's index, or NULL */
+    double *rbar;                 /* nwl x (max_layers + 1): cone-averaged R */
+    double complex *n_residue;    /* nwl: a residue film's index, or NULL */
     unsigned long weight_version; /* counts the channel weights' recomputations */
     /* the last residue contrasts and what they were integrated for (a fit
      * changes gains far more often than the slot or the camera) */
