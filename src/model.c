@@ -1,6 +1,7 @@
 /* model.c - channel- and cone-integrated reflectance and contrast of
  * N-layer graphene on a thin-film substrate, at any model point, with the
- * caches that make nearby points cheap. */
+ * caches that make nearby points cheap (its derivatives: model_gradient.c;
+ * the state both share: model_internal.h). */
 #include "lamina/model.h"
 #include "lamina/tmm.h"
 #include "basis_cache_internal.h"
