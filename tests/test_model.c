@@ -327,6 +327,28 @@ static void test_ladder_gradient(void)
     }
 }
 
+/* A point whose last channel sees no light is refused; the channels before
+ * it must not keep that point's weights as the last good point's (the
+ * cache once kept its key with half the weights overwritten). */
+static void test_dark_channel_refused(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_model *m = NULL;
+    if (!check_true(!lam_model_alloc(&s, 3, 0, &m, NULL), "a model for the dark channel"))
+        return;
+    lam_model_point a = lam_model_point_default(m), b = a;
+    b.v[LAM_MP_SHIFT] = 30;            /* channel 1 moves ... */
+    b.v[LAM_MP_SHIFT + 2] = 5000;      /* ... and channel 3 sees no light */
+    int first = lam_model_eval_point(m, &a, 3, &P, NULL);
+    int dark = lam_model_eval_point(m, &b, 3, &Q, NULL);
+    int again = lam_model_eval_point(m, &a, 3, &Q, NULL);
+    check_true(!first && dark == LAM_ERANGE && !again, "a dark channel is refused, with a message");
+    check_true(!memcmp(P.contrast, Q.contrast, sizeof P.contrast),
+               "after a refused point the last good point predicts as before");
+    lam_model_free(m);
+}
+
 static void test_film_comparison(void)
 {
     /* graphene as a 0.335 nm film of Weber et al. (2010) n,k against the
@@ -428,6 +450,7 @@ int main(void)
     test_pitfalls();
     test_derivative();
     test_ladder_gradient();
+    test_dark_channel_refused();
     test_clone();
     test_warm_equals_cold();
     if (check_refdata_dir())
