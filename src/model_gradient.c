@@ -93,8 +93,8 @@ typedef struct deriv_items {
  * w_t ~ W_t p(theta_t) with theta_t = theta_max u_t, which is
  * u_t L_t - sum_j w_j u_j L_j with L = p'/p (cot for the sin pupil,
  * cot - tan for sin cos), into ka; dkx/d theta_max = u_t n cos(theta_t)
- * into kb. */
-static void node_derivs(const lam_model *m, double *ka, double *kb)
+ * into kb. Returns d theta_max / d NA. */
+static double node_derivs(const lam_model *m, double *ka, double *kb)
 {
     const cone *c = &m->cone_cache;
     double tmax = asin(c->na / m->n_ambient), mean = 0;
@@ -108,6 +108,7 @@ static void node_derivs(const lam_model *m, double *ka, double *kb)
     }
     for (size_t t = 0; t < c->nodes; t++)
         ka[t] -= mean;
+    return 1.0 / sqrt(m->n_ambient * m->n_ambient - c->na * c->na);
 }
 
 /* The ambient's d/dkx for item i at node kx (gap phase k0 q0 d_gap). */
@@ -255,10 +256,8 @@ static void stack_derivatives(lam_model *m, const substrate_slot *s, size_t laye
     size_t stride = m->max_layers + 1;
     const cone_waves *w = lam__waves_for(m);
     double ka[MAX_NODES], kb[MAX_NODES], dtmax = 0; /* d theta_max / d NA */
-    if (gna) {
-        node_derivs(m, ka, kb);
-        dtmax = 1.0 / sqrt(m->n_ambient * m->n_ambient - m->cone_cache.na * m->cone_cache.na);
-    }
+    if (gna)
+        dtmax = node_derivs(m, ka, kb);
     stack_items it;
     deriv_items d;
     for (size_t l = 0; l < m->nwl; l++) {
@@ -325,10 +324,8 @@ static int film_derivatives(lam_model *m, const substrate_slot *s, size_t layers
     const cone_waves *w = lam__waves_for(m);
     size_t stride = m->max_layers + 1;
     double ka[MAX_NODES], kb[MAX_NODES], dtmax = 0, r2;
-    if (gna) {
-        node_derivs(m, ka, kb);
-        dtmax = 1.0 / sqrt(m->n_ambient * m->n_ambient - c->na * c->na);
-    }
+    if (gna)
+        dtmax = node_derivs(m, ka, kb);
     film_phases f;
     for (size_t l = 0; l < m->nwl; l++) {
         double *go = gox + l * stride, *gn = gna ? gna + l * stride : NULL;
@@ -412,22 +409,22 @@ static void response_drbar(const lam_model *m, size_t b, size_t layers, const do
     }
 }
 
-/* The derivable parameters' rows of grad, from one pass at p. */
+/* The derivable parameters' rows of grad, from one pass at p, which the
+ * model has just evaluated into 'at' (its slot, cone, y_sheet, basis and
+ * weights are p's). */
 static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size_t layers,
-                                    const int *which, size_t count, lam_ladder_grad *grad,
-                                    lam_error *err)
+                                    const lam_prediction *at, const int *which, size_t count,
+                                    lam_ladder_grad *grad, lam_error *err)
 {
     size_t per = m->nwl * (m->max_layers + 1);
     int na = 0;
     for (size_t k = 0; k < count; k++)
         na |= which[k] == LAM_MP_NA && derivable(m, p, LAM_MP_NA);
-    lam_prediction *at = malloc(sizeof *at);
     double complex *gy = malloc(per * sizeof *gy);
     double *gox = malloc(3 * per * sizeof *gox), *gna = gox ? gox + 2 * per : NULL;
-    lam_status st = at && gy && gox ? lam_model_eval_point(m, p, layers, at, err)
-                                    : lam_error_set(err, LAM_ENOMEM, "cannot allocate derivatives");
+    lam_status st =
+        gy && gox ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate derivatives");
     if (!st) {
-        /* the point's slot, cone, y_sheet, basis and weights are the model's now */
         substrate_slot *slot = lam__substrate_for(m, p->v[LAM_MP_OXIDE]);
         if (!m->n_film)
             stack_derivatives(m, slot, layers, gy, gox, na ? gna : NULL);
@@ -447,7 +444,6 @@ static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size
             contrast_derivative(m, at, layers, drbar, grad[k]);
         }
     }
-    free(at);
     free(gy);
     free(gox);
     return st;
@@ -457,9 +453,11 @@ static lam_status analytic_gradient(lam_model *m, const lam_model_point *p, size
  * that channel's weights alone, on rbar at p (the caller has evaluated p):
  * the stacking does not move, and the other channels' contrasts do not
  * either (their differences were exactly 0). The same numbers as
- * differences of whole evaluations, without them. */
+ * differences of whole evaluations, without them. w (nwl) and a (two
+ * predictions): the caller's scratch. */
 static lam_status camera_difference(lam_model *m, const lam_model_point *p, size_t layers, int j,
-                                    double (*g)[LAM_MAX_CHANNELS], lam_error *err)
+                                    double *w, lam_prediction *a, double (*g)[LAM_MAX_CHANNELS],
+                                    lam_error *err)
 {
     int shift = j <= LAM_MP_SHIFT_LAST;
     size_t c = (size_t)(j - (shift ? LAM_MP_SHIFT : LAM_MP_WIDTH));
@@ -469,9 +467,7 @@ static lam_status camera_difference(lam_model *m, const lam_model_point *p, size
     if (c >= m->channels)
         return LAM_OK;
     double h = lam_model_step((lam_model_param)j), v[2] = {p->v[j] + h, p->v[j] - h};
-    double *w = malloc(m->nwl * sizeof *w);
-    lam_prediction *a = malloc(2 * sizeof *a);
-    lam_status st = w && a ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate weights");
+    lam_status st = LAM_OK;
     for (int side = 0; side < 2 && !st; side++) {
         double sh = shift ? v[side] : p->v[LAM_MP_SHIFT + c];
         double lw = shift ? p->v[LAM_MP_WIDTH + c] : v[side];
@@ -480,8 +476,6 @@ static lam_status camera_difference(lam_model *m, const lam_model_point *p, size
     }
     for (size_t N = 0; N <= layers && !st; N++)
         g[N][c] = (a[0].contrast[N][c] - a[1].contrast[N][c]) / (v[0] - v[1]);
-    free(w);
-    free(a);
     return st;
 }
 
@@ -490,49 +484,58 @@ static int camera_param(int j)
     return j >= LAM_MP_SHIFT && j <= LAM_MP_WIDTH_LAST;
 }
 
+/* Central differences of whole evaluations for the parameters neither the
+ * pass nor the camera's differences give (a: scratch for two). */
+static lam_status whole_difference(lam_model *m, const lam_model_point *p, size_t layers, int j,
+                                   lam_prediction *a, double (*g)[LAM_MAX_CHANNELS], lam_error *err)
+{
+    double h = lam_model_step((lam_model_param)j);
+    lam_model_point hi = *p, lo = *p;
+    hi.v[j] += h;
+    lo.v[j] -= h;
+    /* stay inside the physical range: one-sided at its edge */
+    if ((j == LAM_MP_OXIDE || j == LAM_MP_NA || j == LAM_MP_RESONANCE || j == LAM_MP_BACKGROUND) &&
+        lo.v[j] < 0)
+        lo.v[j] = p->v[j];
+    if (j == LAM_MP_NA && hi.v[j] >= m->n_ambient)
+        hi.v[j] = p->v[j];
+    double span = hi.v[j] - lo.v[j];
+    lam_status st;
+    if (!(st = lam_model_eval_point(m, &hi, layers, &a[0], err)) &&
+        !(st = lam_model_eval_point(m, &lo, layers, &a[1], err)))
+        for (size_t N = 0; N <= layers; N++)
+            for (size_t c = 0; c < m->channels; c++)
+                g[N][c] = (a[0].contrast[N][c] - a[1].contrast[N][c]) / span;
+    return st;
+}
+
 lam_status lam_model_gradient(lam_model *m, const lam_model_point *p, size_t layers,
                               const int *which, size_t count, lam_ladder_grad *grad, lam_error *err)
 {
     if (layers == 0 || layers > m->max_layers)
         layers = m->max_layers;
-    lam_status st = LAM_OK;
-    for (size_t k = 0; k < count && !st; k++)
-        if (derivable(m, p, which[k])) {
-            st = analytic_gradient(m, p, layers, which, count, grad, err);
-            break;
-        }
-    lam_prediction *a = st ? NULL : malloc(2 * sizeof *a);
-    if (!st && !a)
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate predictions");
-    /* the camera's terms first, while rbar is p's */
-    if (!st)
+    int pass = 0, camera = 0;
+    for (size_t k = 0; k < count; k++) {
+        pass |= derivable(m, p, which[k]);
+        camera |= camera_param(which[k]);
+    }
+    lam_prediction *a = malloc(3 * sizeof *a); /* p, then two scratch */
+    double *w = malloc(m->nwl * sizeof *w);
+    lam_status st = a && w ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate predictions");
+    /* p once, for the pass and the camera's terms (rbar stays p's through both) */
+    if (!st && (pass || camera))
         st = lam_model_eval_point(m, p, layers, &a[0], err);
+    if (!st && pass)
+        st = analytic_gradient(m, p, layers, &a[0], which, count, grad, err);
     for (size_t k = 0; k < count && !st; k++)
         if (camera_param(which[k]))
-            st = camera_difference(m, p, layers, which[k], grad[k], err);
-    for (size_t k = 0; k < count && !st; k++) {
-        int j = which[k];
-        if (derivable(m, p, j) || camera_param(j))
-            continue;
-        double h = lam_model_step((lam_model_param)j);
-        lam_model_point hi = *p, lo = *p;
-        hi.v[j] += h;
-        lo.v[j] -= h;
-        /* stay inside the physical range: one-sided at its edge */
-        if ((j == LAM_MP_OXIDE || j == LAM_MP_NA || j == LAM_MP_RESONANCE ||
-             j == LAM_MP_BACKGROUND) &&
-            lo.v[j] < 0)
-            lo.v[j] = p->v[j];
-        if (j == LAM_MP_NA && hi.v[j] >= m->n_ambient)
-            hi.v[j] = p->v[j];
-        double span = hi.v[j] - lo.v[j];
-        if (!(st = lam_model_eval_point(m, &hi, layers, &a[0], err)) &&
-            !(st = lam_model_eval_point(m, &lo, layers, &a[1], err)))
-            for (size_t N = 0; N <= layers; N++)
-                for (size_t c = 0; c < m->channels; c++)
-                    grad[k][N][c] = (a[0].contrast[N][c] - a[1].contrast[N][c]) / span;
-    }
+            st = camera_difference(m, p, layers, which[k], w, a + 1, grad[k], err);
+    /* last: whole evaluations move rbar away from p */
+    for (size_t k = 0; k < count && !st; k++)
+        if (!camera_param(which[k]) && !derivable(m, p, which[k]))
+            st = whole_difference(m, p, layers, which[k], a + 1, grad[k], err);
     free(a);
+    free(w);
     return st;
 }
 

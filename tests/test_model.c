@@ -270,6 +270,20 @@ static double camera_gradient_error(lam_model *m, lam_model *ref, const lam_mode
     return worst;
 }
 
+/* Parameters asked together give what each gives alone: a difference of
+ * whole evaluations (the Fermi level) moves the model's ladder away from
+ * p, and the camera's differences, which read that ladder, must not see
+ * it whatever the order they are asked in. */
+static int gradient_together(lam_model *m, const lam_model_point *p)
+{
+    static lam_ladder_grad both[2], alone;
+    int pair[2] = {LAM_MP_FERMI, LAM_MP_SHIFT + 1}, one[1] = {LAM_MP_SHIFT + 1};
+    if (lam_model_gradient(m, p, 6, pair, 2, both, NULL) ||
+        lam_model_gradient(m, p, 6, one, 1, &alone, NULL))
+        return 0;
+    return !memcmp(both[1], alone, sizeof alone);
+}
+
 static void test_ladder_gradient(void)
 {
     /* the default 285 nm chip; 90 nm under a wide cone with shifted
@@ -318,6 +332,9 @@ static void test_ladder_gradient(void)
                            "d contrast / d %s as the model's differences (%s): relative error "
                            "%.2g",
                            name[j], what[k], gradient_error(m, ref, &p, params[j], step[j]));
+        if (k == 0)
+            check_true(gradient_together(m, &p),
+                       "a camera term asked after the Fermi level is the one asked alone");
         for (int j = LAM_MP_SHIFT; j <= LAM_MP_WIDTH_LAST && (k < 2 || k == 4); j++)
             check_true(camera_gradient_error(m, ref, &p, j) == 0,
                        "d contrast / d camera term %d as whole evaluations' differences (%s)",
