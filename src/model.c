@@ -382,7 +382,7 @@ double lam_model_step(lam_model_param k)
 /* Channel c's weights for a shift (nm) and a log width scale, into w
  * (nwl of them, normalised); LAM_ERANGE when the channel sees no light. */
 lam_status lam__channel_weights(const lam_model *m, size_t c, double shift, double log_width,
-                                  double *w, lam_error *err)
+                                double *w, lam_error *err)
 {
     double sum = 0, inv = exp(-log_width), cen = m->centroid[c];
     for (size_t l = 0; l < m->nwl; l++) {
@@ -409,7 +409,7 @@ static lam_status ensure_weights(lam_model *m, const lam_model_point *p, lam_err
     m->have_weight = 0; /* a channel that sees no light leaves the others changed */
     for (size_t c = 0; c < m->channels; c++) {
         lam_status st = lam__channel_weights(m, c, cam[c], cam[LAM_MAX_CHANNELS + c],
-                                        m->weight + c * m->nwl, err);
+                                             m->weight + c * m->nwl, err);
         if (st)
             return st;
     }
@@ -697,7 +697,8 @@ static void stack_sheets_transmission(lam_model *m, const substrate_slot *s, siz
     }
 }
 
-/* The items of wavelength l; returns the bare substrate's R. */
+/* The items of wavelength l, each with the bare substrate's R in r2;
+ * returns their weighted sum. */
 double lam__load_items(const lam_model *m, const substrate_slot *s, size_t l, stack_items *it)
 {
     const cone *c = &m->cone_cache;
@@ -717,7 +718,8 @@ double lam__load_items(const lam_model *m, const substrate_slot *s, size_t l, st
             it->g2r[i] = creal(g2), it->g2i[i] = cimag(g2);
             it->er[i] = creal(eta0), it->ei[i] = cimag(eta0);
             it->wt[i] = c->w_t[t] / (double)npol;
-            r0 += it->wt[i] * lam__reflectance(eta0, y);
+            it->r2[i] = lam__reflectance(eta0, y);
+            r0 += it->wt[i] * it->r2[i];
         }
     }
     return r0;
@@ -778,7 +780,7 @@ static void stack_sheets(lam_model *m, const substrate_slot *s, size_t layers)
 
 /* Comparison model: N layers as one film of N * interlayer_nm. */
 static void film_phases_at(const lam_model *m, size_t l, double kx, size_t layers,
-                             film_phases *f)
+                           film_phases *f)
 {
     double k0 = 2.0 * M_PI / m->wl[l];
     double complex qf = lam_tmm_q(m->n_film[l], kx);

@@ -129,11 +129,10 @@ static void ambient_derivs(const lam_model *m, const substrate_slot *s, size_t k
 
 /* The bare substrate's derivative fields of wavelength l, in load_items'
  * order (b = 1 and c = Y do not depend on y; c moves with the oxide and
- * kx), the ambient's terms, and each item's R in it->r2. ka, kb: the
- * nodes' terms (node_derivs) when the kx terms are wanted, else NULL (they
- * are left zero). */
+ * kx), and the ambient's terms. ka, kb: the nodes' terms (node_derivs)
+ * when the kx terms are wanted, else NULL (they are left zero). */
 static void load_derivs(const lam_model *m, const cone_waves *w, const substrate_slot *s, size_t l,
-                        const double *ka, const double *kb, stack_items *it, deriv_items *d)
+                        const double *ka, const double *kb, deriv_items *d)
 {
     const cone *c = &m->cone_cache;
     int angle = ka != NULL;
@@ -153,7 +152,6 @@ static void load_derivs(const lam_model *m, const cone_waves *w, const substrate
             d->kb[i] = angle ? kb[t] : 0;
             if (angle)
                 ambient_derivs(m, s, k, pol, kx, i, d);
-            it->r2[i] = lam__reflectance(s->eta0[2 * k + (size_t)pol], s->y[2 * k + (size_t)pol]);
         }
     }
 }
@@ -263,7 +261,7 @@ static void stack_derivatives(lam_model *m, const substrate_slot *s, size_t laye
     for (size_t l = 0; l < m->nwl; l++) {
         double yr = creal(m->y_sheet[l]), yi = cimag(m->y_sheet[l]);
         lam__load_items(m, s, l, &it);
-        load_derivs(m, w, s, l, gna ? ka : NULL, kb, &it, &d);
+        load_derivs(m, w, s, l, gna ? ka : NULL, kb, &d);
         for (size_t N = 0; N <= layers; N++) {
             if (N > 1) {
                 derivs_gap(&it, &d);

@@ -146,7 +146,8 @@ substrate_slot *lam__substrate_for(lam_model *m, double oxide_nm);
 /* |(eta0 - y) / (eta0 + y)|^2 */
 double lam__reflectance(double complex eta0, double complex y);
 
-/* The items of wavelength l (b = 1, c = Y); returns the bare substrate's R. */
+/* The items of wavelength l (b = 1, c = Y, r2 = the bare substrate's R);
+ * returns the weighted R. */
 double lam__load_items(const lam_model *m, const substrate_slot *s, size_t l, stack_items *it);
 
 /* One ambient gap on every item's fields. */
