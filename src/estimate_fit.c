@@ -387,26 +387,50 @@ static double predicted_gain(const lam_estimate *e, const normal_eq *q, const sa
     return gain;
 }
 
-/* The damping after an accepted step that gained rho times what the
- * quadratic model predicted (the textbook thresholds of 1/4 and 3/4). A
- * model that predicts well loosens it, as before; a fair one keeps it.
- * Along one direction whose curvature the model underestimates by a
- * factor k, a full step overshoots the maximum by k - 1 of its length and
- * gains rho = 2 - k of the prediction; the next step comes out right when
- * the diagonal is scaled by k more, so below 1/4, 1 + lambda grows by
- * 2 - rho (at most 4 times). Without this, a start whose oxide the
- * model's curvature underestimated (by EM's changing responsibilities and
- * the floor's dependence on the prediction, which Gauss-Newton leaves
- * out) went from one side of its maximum to the other and back for 73
- * iterations, each step a fifth of its predicted gain, and pooled fits
- * ended at the iteration limit (docs/performance.md). */
-static double next_damping(double lambda, double rho)
+/* The step just taken (the current point less base), each parameter in
+ * its prior's standard deviations, into 'now'; returns the cosine of its
+ * angle to 'last', the step before (0 when there was none). */
+static double step_turn(const lam_estimate *e, const saved_point *base, const double *last,
+                        double *now)
 {
-    if (rho >= 0.75)
-        return fmax(lambda / 3, 1e-6);
-    if (rho >= 0.25)
-        return lambda;
-    return (1 + lambda) * fmin(4.0, 2.0 - rho) - 1;
+    size_t k = 0;
+    double dot = 0, a2 = 0, b2 = 0;
+    for (size_t a = 0; a < e->nfree; a++, k++) {
+        const lam_nuisance *p = &e->shared[e->free_index[a]];
+        now[k] = (p->value - base->shared[e->free_index[a]]) / p->prior_sd;
+    }
+    for (size_t j = 0; j < e->images; j++, k++) {
+        const lam_nuisance *o = &e->image[j].oxide;
+        now[k] = o->fitted ? (o->value - base->oxide[j]) / o->prior_sd : 0;
+    }
+    for (size_t i = 0; i < k; i++) {
+        dot += now[i] * last[i];
+        a2 += now[i] * now[i];
+        b2 += last[i] * last[i];
+    }
+    return a2 > 0 && b2 > 0 ? dot / sqrt(a2 * b2) : 0;
+}
+
+/* The damping after an accepted step. As a rule it loosens (lambda / 3).
+ * A step that turned back on the one before (cosine below -1/2) and
+ * gained under a quarter of what the quadratic model predicted (rho) has
+ * overshot: along one direction whose curvature the model underestimates
+ * by a factor k, a full step overshoots the maximum by k - 1 of its
+ * length, gains rho = 2 - k of the prediction, and the next comes back;
+ * it comes out right when the diagonal is scaled by k more, so there
+ * 1 + lambda grows by 2 - rho (at most 4 times). Without this, a start
+ * whose oxide the model's curvature underestimated (EM's responsibilities
+ * and the floor's dependence on the prediction, which Gauss-Newton leaves
+ * out) went from one side of its maximum to the other and back for 73
+ * iterations, each step a fifth of its predicted gain. Only such turns
+ * change the damping: the ratio alone (damping every step that gained
+ * under a quarter) also slowed the first, far steps of starts and sent
+ * one uninformed tile's first start to another mode (docs/performance.md). */
+static double next_damping(double lambda, double rho, double turn)
+{
+    if (turn < -0.5 && rho < 0.25)
+        return (1 + lambda) * fmin(4.0, 2.0 - rho) - 1;
+    return fmax(lambda / 3, 1e-6);
 }
 
 static lam_status gradients(fit_ctx *f, lam_error *err)
@@ -439,9 +463,11 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
             return st;
         if (trial >= *logpost - 1e-9) {
             double predicted = predicted_gain(e, &f->q, &f->base);
+            double turn = step_turn(e, &f->base, f->last_step, f->step);
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
-            *lambda = next_damping(*lambda,
-                                   predicted > 0 ? (trial - *logpost) / predicted : 1.0);
+            *lambda = next_damping(*lambda, predicted > 0 ? (trial - *logpost) / predicted : 1.0,
+                                   turn);
+            memcpy(f->last_step, f->step, f->step_len * sizeof *f->step);
             *logpost = trial;
             return LAM_OK;
         }
@@ -464,6 +490,7 @@ int lam__start_hopeless(double lp, const double *gain, const double *move, size_
 lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err)
 {
     double lambda = 1e-3, gain[3] = {0, 0, 0}, move[3] = {0, 0, 0};
+    memset(f->last_step, 0, f->step_len * sizeof *f->last_step); /* no step before the first */
     lam_status st = lam__fit_objective(f->e, f->model, f->w, logpost, err);
     for (size_t it = 0; it < max_it && !st; it++) {
         int moved = 0;
@@ -695,6 +722,8 @@ void lam__fit_free_ctx(fit_ctx *f)
     free(f->base.oxide);
     free(f->ds);
     free(f->dd);
+    free(f->step);
+    free(f->last_step);
     memset(f, 0, sizeof *f); /* released: freeing again, or a zeroed context, is a no-op */
 }
 
@@ -714,10 +743,13 @@ lam_status lam__fit_init_ctx(fit_ctx *f, lam_estimate *e, lam_model *model, lam_
     f->base.oxide = calloc(m, sizeof *f->base.oxide);
     f->ds = calloc(LAM__MAT_MAX, sizeof *f->ds);
     f->dd = calloc(m, sizeof *f->dd);
+    f->step_len = e->nfree + e->images;
+    f->step = calloc(f->step_len + 1, sizeof *f->step);
+    f->last_step = calloc(f->step_len + 1, sizeof *f->last_step);
     free(e->cross);
     e->cross = calloc(m * n, sizeof *e->cross);
     int ok = f->w && f->q.a_sd && f->q.a_dd && f->q.b_d && f->base.oxide && f->ds && f->dd &&
-             e->cross;
+             f->step && f->last_step && e->cross;
     for (size_t j = 0; j < e->images && ok; j++)
         ok = (f->w[j].resp = calloc((e->image[j].count ? e->image[j].count : 1) *
                                         (e->max_layers + 3), sizeof(double))) != NULL;

@@ -36,6 +36,10 @@ typedef struct fit_ctx {
     normal_eq q;
     saved_point base;
     double *ds, *dd;
+    /* the accepted steps of an EM run, in prior sds (shared, then every
+     * oxide; step_len entries): the last and the one being judged */
+    double *step, *last_step;
+    size_t step_len;
     double give_up_below; /* lam__fit_run_em stops where it cannot climb above
                            * this (LAM_HOPELESS_AFTER); -INFINITY: never
                            * (estimate_starts.c sets it for a start) */

@@ -239,12 +239,13 @@ static void hopeless_starts(void)
     }
 }
 
-/* The fit's damping after a step that gained less than the quadratic
- * model predicted (estimate_fit.c next_damping). In the small bench
- * field's nominal fit a start's steps overshot its oxide maximum by nine
- * tenths, from one side to the other and back, 73 iterations without
- * settling; the fit took 78 in all before (8c65a13), 31 with the damping
- * (a test of the fit's path, not of its physics). */
+/* The fit's damping after a step that turned back on the one before and
+ * gained less than the quadratic model predicted (estimate_fit.c
+ * next_damping). In the small bench field's nominal fit a start's steps
+ * overshot its oxide maximum by nine tenths, from one side to the other
+ * and back, 73 iterations without settling; the fit took 78 in all
+ * before (8c65a13), 29 with the damping (a test of the fit's path, not of
+ * its physics). */
 static void damped_steps(void)
 {
     static fit_input in;
