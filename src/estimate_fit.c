@@ -463,10 +463,10 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
             return st;
         if (trial >= *logpost - 1e-9) {
             double predicted = predicted_gain(e, &f->q, &f->base);
+            double rho = predicted > 0 ? (trial - *logpost) / predicted : 1.0;
             double turn = step_turn(e, &f->base, f->last_step, f->step);
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
-            *lambda = next_damping(*lambda, predicted > 0 ? (trial - *logpost) / predicted : 1.0,
-                                   turn);
+            *lambda = next_damping(*lambda, rho, turn);
             memcpy(f->last_step, f->step, f->step_len * sizeof *f->step);
             *logpost = trial;
             return LAM_OK;

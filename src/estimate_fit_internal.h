@@ -65,8 +65,10 @@ lam_status lam__fit_objective(lam_estimate *e, lam_model *model, img_work *w, do
 int lam__start_hopeless(double lp, const double *gain, const double *move, size_t done,
                         size_t left, double below);
 
-/* EM with damped Gauss-Newton steps, at most max_it iterations; a start
- * of the multistart stops early when lam__start_hopeless (f->give_up_below). */
+/* EM with damped Gauss-Newton steps (the damping grows only after a step
+ * that turned back and gained under a quarter of its prediction:
+ * estimate_fit.c next_damping), at most max_it iterations; a start of
+ * the multistart stops early when lam__start_hopeless (f->give_up_below). */
 lam_status lam__fit_run_em(fit_ctx *f, size_t max_it, double *logpost, lam_error *err);
 /* Re-estimate the model floor from the residuals; refit when it moved. */
 lam_status lam__fit_refloor(fit_ctx *f, double *lp, lam_error *err);
