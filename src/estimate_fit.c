@@ -362,75 +362,91 @@ static double take_step(lam_estimate *e, const saved_point *base, const double *
 
 /* ---- the EM / Gauss-Newton loop ---- */
 
-/* The gain the normal equations' quadratic model predicts for the step
- * from base to the current point, as taken (after the bounds and the
- * oxide's limit): b'd - d'Ad/2 with the undamped A. */
-static double predicted_gain(const lam_estimate *e, const normal_eq *q, const saved_point *base)
+/* The step from base to the current point as taken (after the bounds and
+ * the oxide's limit) into d: the free shared parameters, then every
+ * image's oxide (0 where it is not fitted). */
+static void taken_step(const lam_estimate *e, const saved_point *base, double *d)
+{
+    size_t k = 0;
+    for (size_t a = 0; a < e->nfree; a++)
+        d[k++] = e->shared[e->free_index[a]].value - base->shared[e->free_index[a]];
+    for (size_t j = 0; j < e->images; j++, k++)
+        d[k] = e->image[j].oxide.fitted ? e->image[j].oxide.value - base->oxide[j] : 0;
+}
+
+/* The gain the normal equations' quadratic model predicts for the taken
+ * step d (taken_step): b'd - d'Ad/2 with the undamped A. */
+static double predicted_gain(const lam_estimate *e, const normal_eq *q, const double *d)
 {
     size_t n = q->n;
-    double ds[LAM__MAT_MAX], gain = 0;
-    for (size_t a = 0; a < n; a++)
-        ds[a] = e->shared[e->free_index[a]].value - base->shared[e->free_index[a]];
+    const double *dd = d + n;
+    double gain = 0;
     for (size_t a = 0; a < n; a++) {
-        gain += q->b_s[a] * ds[a];
+        gain += q->b_s[a] * d[a];
         for (size_t b = 0; b < n; b++)
-            gain -= 0.5 * ds[a] * q->a_ss[a][b] * ds[b];
+            gain -= 0.5 * d[a] * q->a_ss[a][b] * d[b];
     }
     for (size_t j = 0; j < e->images; j++) {
-        if (!e->image[j].oxide.fitted)
-            continue;
-        double d = e->image[j].oxide.value - base->oxide[j];
-        gain += q->b_d[j] * d - 0.5 * q->a_dd[j] * d * d;
+        gain += q->b_d[j] * dd[j] - 0.5 * q->a_dd[j] * dd[j] * dd[j];
         for (size_t a = 0; a < n; a++)
-            gain -= q->a_sd[j * n + a] * ds[a] * d;
+            gain -= q->a_sd[j * n + a] * d[a] * dd[j];
     }
     return gain;
 }
 
-/* The step just taken (the current point less base), each parameter in
- * its prior's standard deviations, into 'now'; returns the cosine of its
- * angle to 'last', the step before (0 when there was none). */
-static double step_turn(const lam_estimate *e, const saved_point *base, const double *last,
-                        double *now)
+/* The cosine of the angle between the taken step d and 'last', the step
+ * before (0 when there was none), both in their priors' standard
+ * deviations; 'last' then becomes d so measured. */
+static double step_turn(const lam_estimate *e, const double *d, double *last)
 {
-    size_t k = 0;
+    size_t n = e->nfree, len = n + e->images;
     double dot = 0, a2 = 0, b2 = 0;
-    for (size_t a = 0; a < e->nfree; a++, k++) {
-        const lam_nuisance *p = &e->shared[e->free_index[a]];
-        now[k] = (p->value - base->shared[e->free_index[a]]) / p->prior_sd;
-    }
-    for (size_t j = 0; j < e->images; j++, k++) {
-        const lam_nuisance *o = &e->image[j].oxide;
-        now[k] = o->fitted ? (o->value - base->oxide[j]) / o->prior_sd : 0;
-    }
-    for (size_t i = 0; i < k; i++) {
-        dot += now[i] * last[i];
-        a2 += now[i] * now[i];
+    for (size_t i = 0; i < len; i++) {
+        const lam_nuisance *p = i < n ? &e->shared[e->free_index[i]] : &e->image[i - n].oxide;
+        double now = i < n || p->fitted ? d[i] / p->prior_sd : 0; /* a fixed oxide: no sd */
+        dot += now * last[i];
+        a2 += now * now;
         b2 += last[i] * last[i];
+        last[i] = now;
     }
     return a2 > 0 && b2 > 0 ? dot / sqrt(a2 * b2) : 0;
 }
 
-/* The damping after an accepted step. As a rule it loosens (lambda / 3).
- * A step that turned back on the one before (cosine below -1/2) and
- * gained under a quarter of what the quadratic model predicted (rho) has
- * overshot: along one direction whose curvature the model underestimates
- * by a factor k, a full step overshoots the maximum by k - 1 of its
- * length, gains rho = 2 - k of the prediction, and the next comes back;
- * it comes out right when the diagonal is scaled by k more, so there
- * 1 + lambda grows by 2 - rho (at most 4 times). Without this, a start
- * whose oxide the model's curvature underestimated (EM's responsibilities
- * and the floor's dependence on the prediction, which Gauss-Newton leaves
- * out) went from one side of its maximum to the other and back for 73
- * iterations, each step a fifth of its predicted gain. Only such turns
- * change the damping: the ratio alone (damping every step that gained
- * under a quarter) also slowed the first, far steps of starts and sent
- * one uninformed tile's first start to another mode (docs/performance.md). */
-static double next_damping(double lambda, double rho, double turn)
+/* The damping after an accepted step that gained rho times what the
+ * quadratic model predicted, where the step turned back on the one before
+ * (step_turn below -1/2; any other step passes rho = 1 and loosens it,
+ * lambda / 3, as it always did). Under a quarter the step has overshot: along one direction whose
+ * curvature the model underestimates by a factor k, a full step
+ * overshoots the maximum by k - 1 of its length, gains rho = 2 - k of the
+ * prediction, and the next comes back; it comes out right when the
+ * diagonal is scaled by k more, so 1 + lambda grows by 2 - rho (at most 4
+ * times). Otherwise it loosens. Without this, a start whose oxide the
+ * model's curvature underestimated (EM's responsibilities and the floor's
+ * dependence on the prediction, which Gauss-Newton leaves out) went from
+ * one side of its maximum to the other and back for 73 iterations, each
+ * step a fifth of its predicted gain. Only such turns change the damping:
+ * the ratio alone (damping every step that gained under a quarter) also
+ * slowed the first, far steps of starts and sent one uninformed tile's
+ * first start to another mode (docs/performance.md). */
+static double next_damping(double lambda, double rho)
 {
-    if (turn < -0.5 && rho < 0.25)
+    if (rho < 0.25)
         return (1 + lambda) * fmin(4.0, 2.0 - rho) - 1;
     return fmax(lambda / 3, 1e-6);
+}
+
+/* The damping after the step from f->base to the current point, which
+ * gained 'gain': the model's prediction is only asked for where the step
+ * turned back (f->last_step then becomes this step). */
+static double damping_after(fit_ctx *f, double lambda, double gain)
+{
+    double rho = 1; /* a step that did not turn back loosens the damping */
+    taken_step(f->e, &f->base, f->step);
+    if (step_turn(f->e, f->step, f->last_step) < -0.5) {
+        double predicted = predicted_gain(f->e, &f->q, f->step);
+        rho = predicted > 0 ? gain / predicted : 1;
+    }
+    return next_damping(lambda, rho);
 }
 
 static lam_status gradients(fit_ctx *f, lam_error *err)
@@ -462,12 +478,8 @@ static lam_status one_iteration(fit_ctx *f, double *logpost, double *lambda, int
         if ((st = lam__fit_objective(e, f->model, f->w, &trial, err)))
             return st;
         if (trial >= *logpost - 1e-9) {
-            double predicted = predicted_gain(e, &f->q, &f->base);
-            double rho = predicted > 0 ? (trial - *logpost) / predicted : 1.0;
-            double turn = step_turn(e, &f->base, f->last_step, f->step);
             *moved = trial - *logpost > 1e-4 || big > 1e-3;
-            *lambda = next_damping(*lambda, rho, turn);
-            memcpy(f->last_step, f->step, f->step_len * sizeof *f->step);
+            *lambda = damping_after(f, *lambda, trial - *logpost);
             *logpost = trial;
             return LAM_OK;
         }

@@ -36,8 +36,9 @@ typedef struct fit_ctx {
     normal_eq q;
     saved_point base;
     double *ds, *dd;
-    /* the accepted steps of an EM run, in prior sds (shared, then every
-     * oxide; step_len entries): the last and the one being judged */
+    /* an EM run's accepted steps (the free shared, then every oxide;
+     * step_len entries): the one being judged as taken, and the one
+     * before in its priors' sds (estimate_fit.c step_turn) */
     double *step, *last_step;
     size_t step_len;
     double give_up_below; /* lam__fit_run_em stops where it cannot climb above
