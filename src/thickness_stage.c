@@ -92,15 +92,15 @@ static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error
     lam_thickness_table *t = NULL;
     lam_status st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
                                               x->scale_sd, &o, &t, err);
-    if (!st && !x->optics_ref && !(st = add_optics(x, t, x->coarse, ox, err))) {
-        x->optics_ref = t; /* derivatives vary slowly with the oxide: reused */
-        lam_thickness_table *copy = NULL;
-        st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
-                                       x->scale_sd, &o, &copy, err);
-        t = copy;
-    }
-    if (!st)
+    if (!st && !x->optics_ref) {
+        /* the first table's optics' variance serves every oxide of the
+         * profile (its derivatives vary slowly with the oxide), and the
+         * table serves its own oxide: it is kept, not built again */
+        if (!(st = add_optics(x, t, x->coarse, ox, err)))
+            x->optics_ref = t;
+    } else if (!st) {
         st = lam_thickness_table_copy_optics(t, x->optics_ref, err);
+    }
     if (st) {
         lam_thickness_table_free(t);
         return st;
@@ -118,7 +118,8 @@ static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error
             z += exp(sum[f] - m);
         *score = s + m + log(z);
     }
-    lam_thickness_table_free(t);
+    if (t != x->optics_ref) /* the reference is freed with the profile */
+        lam_thickness_table_free(t);
     return st;
 }
 
