@@ -653,7 +653,9 @@ substrate_slot *lam__substrate_for(lam_model *m, double oxide_nm)
 
 /* ---- stacking the sheets and integrating ---- */
 
-double lam__reflectance(double complex eta0, double complex y)
+/* |(eta0 - y) / (eta0 + y)|^2: the reflectance of a stack whose
+ * admittance seen from the ambient (admittance eta0) is y. */
+static double reflectance(double complex eta0, double complex y)
 {
     double complex r = (eta0 - y) / (eta0 + y);
     return creal(r * conj(r));
@@ -718,7 +720,7 @@ double lam__load_items(const lam_model *m, const substrate_slot *s, size_t l, st
             it->g2r[i] = creal(g2), it->g2i[i] = cimag(g2);
             it->er[i] = creal(eta0), it->ei[i] = cimag(eta0);
             it->wt[i] = c->w_t[t] / (double)npol;
-            it->r2[i] = lam__reflectance(eta0, y);
+            it->r2[i] = reflectance(eta0, y);
             r0 += it->wt[i] * it->r2[i];
         }
     }
@@ -866,7 +868,7 @@ static int stack_film(lam_model *m, const substrate_slot *s, size_t layers)
                         continue;
                     }
                     double complex y = N ? lam_tmm_through_film(ysub, en, cp, sp) : ysub;
-                    acc[N] += wt * lam__reflectance(eta0, y);
+                    acc[N] += wt * reflectance(eta0, y);
                 }
             }
         }
@@ -1130,7 +1132,7 @@ static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t
         }
         for (int pol = 0; pol < f.npol; pol++) {
             double complex eta0 = s->eta0[2 * f.k + (size_t)pol], y = s->y[2 * f.k + (size_t)pol];
-            rsub += f.wt * lam__reflectance(eta0, y);
+            rsub += f.wt * reflectance(eta0, y);
             add_film_r2(eta0, y, lam_tmm_eta(nf, f.q, (lam_pol)pol), f.wt, cs, sn, rho, count,
                         rsum);
         }

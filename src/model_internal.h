@@ -143,9 +143,6 @@ cone_waves *lam__waves_for(lam_model *m);
 /* The slot for (oxide, the current cone's NA), filled when absent. */
 substrate_slot *lam__substrate_for(lam_model *m, double oxide_nm);
 
-/* |(eta0 - y) / (eta0 + y)|^2 */
-double lam__reflectance(double complex eta0, double complex y);
-
 /* The items of wavelength l (b = 1, c = Y, r2 = the bare substrate's R);
  * returns the weighted R. */
 double lam__load_items(const lam_model *m, const substrate_slot *s, size_t l, stack_items *it);
