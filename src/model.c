@@ -46,6 +46,8 @@ void lam_model_free(lam_model *m)
     free(m->rbar);
     free(m->n_residue);
     free(m->fph);
+    for (int i = 0; i < FILM_TABLES; i++)
+        free(m->ftab[i].d); /* one block with the phases */
     for (int i = 0; i < WAVE_SETS; i++)
         free(m->waves[i].gap_cos);
     free_slots(m);
@@ -324,6 +326,7 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
     m->fph = NULL;
     m->fph_size = 0;
     m->fph_na = NAN;
+    memset(m->ftab, 0, sizeof m->ftab);
     m->res_slot = NULL;
     memset(m->slot, 0, sizeof m->slot);
     memset(m->waves, 0, sizeof m->waves);
@@ -1112,23 +1115,96 @@ static void films_transmit_at(const lam_model *m, const substrate_slot *s, size_
     }
 }
 
+/* The index of the film at wavelength l with its real part's excess
+ * over 1 scaled by 'scale' (the crystal's index uncertainty). */
+static double complex film_index(const lam_model *m, size_t l, double scale)
+{
+    return 1 + scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
+}
+
+/* cos and sin of the phase, and the decay factor, of each thickness d[j]
+ * at one cone node (f). */
+static void film_phases_of(const film_node *f, const double *restrict d, size_t count,
+                           double *restrict cs, double *restrict sn, double *restrict rho)
+{
+    double phase = f->phase, decay = f->decay;
+    for (size_t j = 0; j < count; j++) {
+        double x = phase * d[j]; /* one argument: cos and sin become one sincos */
+        cs[j] = cos(x), sn[j] = sin(x);
+        rho[j] = decay == 0 ? 1.0 : exp(decay * d[j]);
+    }
+}
+
+/* The phases of thicknesses d (count) at index scale 'scale' for the
+ * current cone (film_table): kept from an earlier call, or made into the
+ * least recently used table. NULL when the table would be larger than
+ * FILM_TABLE_MAX or memory is short: the caller then makes each node's
+ * phases itself (the same numbers). */
+static const film_table *film_table_for(lam_model *m, double scale, const double *d,
+                                        size_t count)
+{
+    const cone *c = &m->cone_cache;
+    size_t size = m->nwl * c->nodes * count;
+    if (!count || size > FILM_TABLE_MAX)
+        return NULL;
+    film_table *lru = &m->ftab[0];
+    for (int i = 0; i < FILM_TABLES; i++) {
+        film_table *x = &m->ftab[i];
+        if (x->d && x->scale == scale && x->na == c->na && x->nodes == c->nodes &&
+            x->count == count && !memcmp(x->d, d, count * sizeof *d)) {
+            x->used = ++m->clock;
+            return x;
+        }
+        lru = x->used < lru->used ? x : lru; /* an empty table has used 0 */
+    }
+    /* the table's block is reused when large enough: a profile whose
+     * scales outnumber the tables would otherwise allocate afresh at
+     * every call */
+    size_t need = count + 3 * size, cap = lru->cap;
+    double *block = lru->d;
+    if (need > cap) {
+        free(block);
+        cap = need;
+        block = malloc(cap * sizeof *block);
+    }
+    memset(lru, 0, sizeof *lru);
+    if (!block)
+        return NULL;
+    *lru = (film_table){scale, c->na, count, c->nodes, block, block + count,
+                        block + count + size, block + count + 2 * size, ++m->clock, cap};
+    memcpy(lru->d, d, count * sizeof *d);
+    for (size_t l = 0; l < m->nwl; l++)
+        for (size_t t = 0; t < c->nodes; t++) {
+            film_node f = film_node_at(m, l, t, film_index(m, l, scale));
+            size_t at = (l * c->nodes + t) * count;
+            film_phases_of(&f, d, count, lru->cs + at, lru->sn + at, lru->rho + at);
+        }
+    return lru;
+}
+
 /* Reflection: the cone- and channel-weighted reflectance of the film of
  * each thickness at one wavelength, added to acc[k][c] (and the bare
  * substrate's to sub[c]) by add_film_r2: one cos/sin per node and
  * thickness shared by both polarisations, the cone summed before the
- * channels. 'buf' holds 4 x count doubles. */
+ * channels. The phases come from 'ft' (film_table_for), or when it is
+ * NULL are made here into 'buf' (4 x count doubles, of which the last
+ * count always hold the sums). */
 static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t l,
                              double complex nf, const double *d, size_t count,
-                             double (*acc)[LAM_MAX_CHANNELS], double *sub, double *buf)
+                             const film_table *ft, double (*acc)[LAM_MAX_CHANNELS], double *sub,
+                             double *buf)
 {
     double rsub = 0;
-    double *cs = buf, *sn = buf + count, *rho = buf + 2 * count, *rsum = buf + 3 * count;
+    double *rsum = buf + 3 * count;
     memset(rsum, 0, count * sizeof *rsum);
     for (size_t t = 0; t < m->cone_cache.nodes; t++) {
         film_node f = film_node_at(m, l, t, nf);
-        for (size_t j = 0; j < count; j++) {
-            cs[j] = cos(f.phase * d[j]), sn[j] = sin(f.phase * d[j]);
-            rho[j] = f.decay == 0 ? 1.0 : exp(f.decay * d[j]);
+        const double *cs = buf, *sn = buf + count, *rho = buf + 2 * count;
+        if (ft) {
+            size_t at = (l * m->cone_cache.nodes + t) * count;
+            cs = ft->cs + at, sn = ft->sn + at, rho = ft->rho + at;
+        } else {
+            film_phases_of(&f, d, count, buf, buf + count, buf + 2 * count);
         }
         for (int pol = 0; pol < f.npol; pol++) {
             double complex eta0 = s->eta0[2 * f.k + (size_t)pol], y = s->y[2 * f.k + (size_t)pol];
@@ -1163,12 +1239,14 @@ lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double i
     if (!m->transmission && !(buf = malloc(4 * (count ? count : 1) * sizeof *buf)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate a film evaluation");
     memset(contrast, 0, count * sizeof *contrast);
+    const film_table *ft =
+        m->transmission ? NULL : film_table_for(m, index_scale, thickness_nm, count);
     for (size_t l = 0; l < m->nwl; l++) {
-        double complex nf = 1 + index_scale * (creal(m->n_film[l]) - 1) + I * cimag(m->n_film[l]);
+        double complex nf = film_index(m, l, index_scale);
         if (m->transmission)
             films_transmit_at(m, s, l, nf, thickness_nm, count, contrast, sub);
         else
-            films_reflect_at(m, s, l, nf, thickness_nm, count, contrast, sub, buf);
+            films_reflect_at(m, s, l, nf, thickness_nm, count, ft, contrast, sub, buf);
     }
     free(buf);
     for (size_t j = 0; j < count; j++)

@@ -55,6 +55,26 @@ typedef struct cone_waves {
     double complex *eta;               /* 2kj + pol */
 } cone_waves;
 
+/* The phases of a table of film thicknesses (lam_model_eval_films,
+ * reflection) at every wavelength and cone node for one index scale:
+ * cos, sin and the decay factor of each thickness, at (l * nodes + t) *
+ * count + j. They do not depend on the oxide, and the thickness stage's
+ * oxide profile evaluates the same table at a few index scales at each of
+ * ~30 oxides. Kept only for tables of at most FILM_TABLE_MAX entries
+ * (wavelengths x nodes x thicknesses: the coarse profile's 41 x 4 x 455,
+ * 1.8 MB each; the fine tables are evaluated a few times only). */
+#define FILM_TABLES 3
+#define FILM_TABLE_MAX 100000
+
+typedef struct film_table {
+    double scale, na;     /* the key: index scale, the cone's NA ... */
+    size_t count, nodes;  /* ... the thicknesses' count and the nodes */
+    double *d;            /* ... and the thicknesses themselves; NULL: empty */
+    double *cs, *sn, *rho;
+    unsigned long used;
+    size_t cap;           /* doubles allocated at d (kept for the next table) */
+} film_table;
+
 struct lam_model {
     size_t channels, max_layers, nwl, layers, oxide_layer, cone_nodes_max;
     double n_ambient, interlayer_nm;
@@ -103,6 +123,7 @@ struct lam_model {
     double complex *fph;
     size_t fph_size, fph_layers, fph_nodes;
     double fph_na; /* NAN: not filled */
+    film_table ftab[FILM_TABLES];
 };
 
 /* The reflection stack of one wavelength for all cone nodes and

@@ -85,6 +85,55 @@ static void test_modes(void)
     lam_model_free(m);
 }
 
+/* The film phases a model keeps between evaluations (model.c
+ * film_table_for: per index scale, cone and thickness table) give the
+ * numbers a model without them gives: evaluations at four index scales
+ * (one more than the tables kept, so one is evicted and made again), two
+ * oxides and two NAs, in an order that revisits each, compared bit for
+ * bit with a fresh copy of the model (lam_model_clone: empty caches);
+ * a table too large to keep (2000 thicknesses) takes the other path. The
+ * check fails when a table is found without its NA in the key (7 of 24
+ * then differ). */
+static void test_film_tables(void)
+{
+    lam_setup s;
+    lam_setup_default(&s);
+    lam_setup_set_material(&s, "hBN", NULL);
+    s.grid_step_nm = 10; /* the oxide profile's coarse model (thickness_stage.c) */
+    s.cone_nodes = 4;
+    lam_model *m = NULL;
+    static double d[2000], got[2000][LAM_MAX_CHANNELS], want[2000][LAM_MAX_CHANNELS];
+    for (size_t j = 0; j < 2000; j++)
+        d[j] = 0.5 + 0.15 * (double)j;
+    if (!check_int(lam_model_alloc(&s, 1, 0, &m, NULL), LAM_OK, "an hBN model")) {
+        lam_setup_clear(&s);
+        return;
+    }
+    const double scale[4] = {0.9, 1.0, 1.1, 1.2}, oxide[2] = {285, 300}, na[2] = {0.5, 0.55};
+    size_t same = 0, tried = 0;
+    for (size_t k = 0; k < 24; k++) {
+        lam_model_point p = lam_model_point_default(m);
+        p.v[LAM_MP_OXIDE] = oxide[(k / 4) % 2];
+        p.v[LAM_MP_NA] = na[(k / 6) % 2];
+        size_t count = k == 23 ? 2000 : 200, f = k % 8 == 7 ? 3 : k % 3;
+        lam_model *fresh = NULL;
+        if (lam_model_clone(m, &fresh, NULL) ||
+            lam_model_eval_films(m, &p, scale[f], d, count, got, NULL) ||
+            lam_model_eval_films(fresh, &p, scale[f], d, count, want, NULL)) {
+            lam_model_free(fresh);
+            break;
+        }
+        tried++;
+        same += !memcmp(got, want, count * sizeof *got);
+        lam_model_free(fresh);
+    }
+    check_true(tried == 24 && same == tried,
+               "film phases kept between evaluations: %zu of %zu evaluations bit-identical to a "
+               "fresh model's", same, tried);
+    lam_model_free(m);
+    lam_setup_clear(&s);
+}
+
 /* The terminal's text for hBN results (summary.c): the batch table lists
  * the thicknesses with the target marked, an hBN-only batch has no
  * monolayer list, the watch line gives the range. */
@@ -142,6 +191,7 @@ int main(void)
     if (!check_refdata_dir())
         check_skip("tests/data/nk not found");
     test_modes();
+    test_film_tables();
     test_summary();
     return check_summary();
 }
