@@ -122,7 +122,9 @@ typedef struct lam_draw_warm_up {
     pthread_t thread;
     int started;
 } lam_draw_warm_up;
-/* Start the loading on a thread of its own (w->started: whether it did). */
+/* Start the loading on a thread of its own (w->started: whether it did;
+ * never when LAMINA_RELEASE_FONT_CACHES=1, where lam_draw_shutdown resets
+ * the caches for the leak checkers and a run that failed early raced it). */
 void lam_draw_warm_up_start(lam_draw_warm_up *w);
 /* Wait for it (nothing after a failed start). */
 void lam_draw_warm_up_join(lam_draw_warm_up *w);
