@@ -415,12 +415,12 @@ static double step_turn(const lam_estimate *e, const double *d, double *last)
 /* The damping after an accepted step that gained rho times what the
  * quadratic model predicted, where the step turned back on the one before
  * (step_turn below -1/2; any other step passes rho = 1 and loosens it,
- * lambda / 3, as it always did). Under a quarter the step has overshot: along one direction whose
- * curvature the model underestimates by a factor k, a full step
- * overshoots the maximum by k - 1 of its length, gains rho = 2 - k of the
- * prediction, and the next comes back; it comes out right when the
- * diagonal is scaled by k more, so 1 + lambda grows by 2 - rho (at most 4
- * times). Otherwise it loosens. Without this, a start whose oxide the
+ * lambda / 3, as it always did). Under a quarter the step has overshot:
+ * along one direction whose curvature the model underestimates by a
+ * factor k, a full step overshoots the maximum by k - 1 of its length,
+ * gains rho = 2 - k of the prediction, and the next comes back; it comes
+ * out right when the diagonal is scaled by k more, so 1 + lambda grows by
+ * 2 - rho (at most 4 times). Otherwise it loosens. Without this, a start whose oxide the
  * model's curvature underestimated (EM's responsibilities and the floor's
  * dependence on the prediction, which Gauss-Newton leaves out) went from
  * one side of its maximum to the other and back for 73 iterations, each

@@ -1167,9 +1167,10 @@ static const film_table *film_table_for(lam_model *m, double scale, const double
         cap = need;
         block = malloc(cap * sizeof *block);
     }
-    memset(lru, 0, sizeof *lru);
-    if (!block)
+    if (!block) {
+        memset(lru, 0, sizeof *lru); /* empty, nothing allocated */
         return NULL;
+    }
     *lru = (film_table){scale, c->na, count, c->nodes, block, block + count,
                         block + count + size, block + count + 2 * size, ++m->clock, cap};
     memcpy(lru->d, d, count * sizeof *d);
