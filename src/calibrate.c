@@ -310,7 +310,7 @@ static lam_status label_residuals(const lam_estimate *e, lam_model *m, lam_calib
             for (size_t c = 0; c < e->channels; c++) {
                 x->measured[c] = r->mean[c];
                 x->model[c] = P->contrast[r->known_layers][c];
-                x->sigma[c] = sqrt(r->var[c] + lam_estimate_floor_var(e, c, x->model[c]));
+                x->sigma[c] = sqrt(r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
                 double z = (x->measured[c] - x->model[c]) / x->sigma[c];
                 x->chi2 += z * z;
             }

@@ -302,9 +302,9 @@ void lam_estimate_observe(const lam_estimate *e, lam_prediction *P)
         observe_row(e, g, P->channels, P->residue[k]);
 }
 
-double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast)
+double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double measured)
 {
-    double f = e->floor_abs[channel] + e->floor_rel * fabs(contrast);
+    double f = e->floor_abs[channel] + e->floor_rel * fabs(measured);
     return f * f;
 }
 
@@ -350,9 +350,6 @@ void lam__ladder_terms_of(const lam_estimate *e, const lam_prediction *ladder,
                           lam__ladder_terms *t)
 {
     size_t K = e->max_layers, top = ladder->max_layers;
-    for (size_t h = 0; h <= K && h <= top; h++)
-        for (size_t c = 0; c < e->channels; c++)
-            t->floor_var[h][c] = lam_estimate_floor_var(e, c, ladder->contrast[h][c]);
     t->log_prior_substrate = log(lam_hypothesis_prior(0, K));
     t->log_prior_layers = log(lam_hypothesis_prior(1, K));
     t->log_prior_thick = log(lam_hypothesis_prior(K + 1, K));
@@ -384,7 +381,7 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
     double s = 0, span = 1;
     for (size_t c = 0; c < e->channels; c++) {
         double lo = t->lo[c], hi = t->hi[c];
-        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, hi));
+        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
         lo -= 3 * f, hi += 3 * f;
         double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
         s -= 0.5 * (out / f) * (out / f);
@@ -408,27 +405,28 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
     double box = -(double)nc * log(LAM_UNMODELLED_SIDE);
     if (!n)
         return box;
-    /* chi^2 of every film first (no logarithms): most regions lie far from
-     * the residue's curve, and only films near the best one add mass */
-    double q[LAM_RESIDUE_FILMS], var[LAM_RESIDUE_FILMS][LAM_MAX_CHANNELS], qmin = INFINITY;
+    /* the variance is the region's own (the floor at its measured
+     * contrast), the same for every film */
+    double var[LAM_MAX_CHANNELS], prod = 1;
+    for (size_t c = 0; c < nc; c++) {
+        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+        prod *= 2 * M_PI * var[c];
+    }
+    double q[LAM_RESIDUE_FILMS], qmin = INFINITY;
     for (size_t k = 0; k < n; k++) {
         q[k] = 0;
         for (size_t c = 0; c < nc; c++) {
-            var[k][c] = r->var[c] + lam_estimate_floor_var(e, c, ladder->residue[k][c]);
             double d = r->mean[c] - ladder->residue[k][c];
-            q[k] += d * d / var[k][c];
+            q[k] += d * d / var[c];
         }
         qmin = fmin(qmin, q[k]);
     }
-    double top = -INFINITY, ll[LAM_RESIDUE_FILMS];
+    double top = -INFINITY, ll[LAM_RESIDUE_FILMS], log_prod = log(prod);
     for (size_t k = 0; k < n; k++) {
         ll[k] = -INFINITY;
         if (q[k] > qmin + 60) /* below e^-30 of the best film */
             continue;
-        double prod = 1;
-        for (size_t c = 0; c < nc; c++)
-            prod *= 2 * M_PI * var[k][c];
-        top = fmax(top, ll[k] = -0.5 * (q[k] + log(prod)));
+        top = fmax(top, ll[k] = -0.5 * (q[k] + log_prod));
     }
     double film = top + log(1.0 / (double)n);
     if (film < box - 40)
@@ -459,9 +457,9 @@ void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
     double var[LAM_MAX_CHANNELS];
+    for (size_t c = 0; c < nc; c++)
+        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
     for (size_t h = 0; h <= K && h <= top; h++) {
-        for (size_t c = 0; c < nc; c++)
-            var[c] = r->var[c] + t->floor_var[h][c];
         lt[h] = (h ? t->log_prior_layers : t->log_prior_substrate) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }

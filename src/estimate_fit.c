@@ -214,7 +214,8 @@ static void add_region(const lam_estimate *e, const lam_est_region *r, const dou
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = w->ladder.contrast[h][c];
-            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, c, pred)), res = r->mean[c] - pred;
+            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
+            double res = r->mean[c] - pred;
             double jd = w->grad[n][h][c];
             for (size_t a = 0; a < n; a++) {
                 double ja = w->grad[a][h][c];
@@ -543,7 +544,7 @@ static double floor_loglik(const lam_estimate *e, const img_work *w, const doubl
                     if (!(mask & (1u << c)))
                         continue;
                     double pred = w[j].ladder.contrast[h][c], d = r->mean[c] - pred;
-                    double fl = fa[c] + fr * fabs(pred), var = r->var[c] + fl * fl;
+                    double fl = fa[c] + fr * fabs(r->mean[c]), var = r->var[c] + fl * fl;
                     s += -0.5 * (d * d / var + log(var));
                 }
             }

@@ -24,12 +24,10 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
 /* What every region's terms read of a ladder, made once for all the
  * regions scored against it: the "thick" hypothesis' span (the least and
  * most contrast of entries K+1..top per channel; any: the ladder has such
- * entries), the model floor's variance of entries 0..K per channel, and
- * the logarithms of the hypotheses' priors. */
+ * entries) and the logarithms of the hypotheses' priors. */
 typedef struct lam__ladder_terms {
     double lo[LAM_MAX_CHANNELS], hi[LAM_MAX_CHANNELS];
     int any;
-    double floor_var[LAM_MODEL_MAX_LAYERS + 1][LAM_MAX_CHANNELS];
     double log_prior_substrate, log_prior_layers, log_prior_thick, log_prior_unmodelled;
 } lam__ladder_terms;
 

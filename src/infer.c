@@ -90,7 +90,7 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = v->ladder.contrast[h][c];
-            double w = resp[h] / (r->var[c] + lam_estimate_floor_var(e, c, pred));
+            double w = resp[h] / (r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
             for (size_t a = 0; a < n; a++) {
                 g[a] += w * v->grad[a][h][c] * (r->mean[c] - pred);
                 for (size_t b = 0; b < n; b++)
@@ -149,7 +149,7 @@ static void predictive(const lam_estimate *e, const lam_est_view *v, const lam_e
             s[c][d] = t;
         }
     for (size_t c = 0; c < nc; c++)
-        s[c][c] += r->var[c] + lam_estimate_floor_var(e, c, v->ladder.contrast[h][c]);
+        s[c][c] += r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
 }
 
 /* The goodness of fit of a region against its most probable layer count:
@@ -179,11 +179,10 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
     }
     double thick[LAM_MODEL_MAX_LAYERS + 1], var[3];
     size_t nt = 0;
-    for (size_t N = K + 1; N <= top; N++) {
-        for (size_t c = 0; c < nc; c++)
-            var[c] = r->var[c] + lam_estimate_floor_var(e, c, v->ladder.contrast[N][c]);
+    for (size_t c = 0; c < nc; c++)
+        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+    for (size_t N = K + 1; N <= top; N++)
         thick[nt++] = lam__gauss_logpdf(r->mean, v->ladder.contrast[N], var, nc);
-    }
     lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
                    : -INFINITY;
     lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, &v->ladder);

@@ -119,26 +119,30 @@ static void test_pooled(const char *dir)
                pooled.oxide_covered, pooled.oxide_n);
 }
 
-/* Scan 3300 of `make accuracy`'s ten-tile pooled scans (robust --batch
- * 10): Weber's response, a dye camera the analysis is not told, 300 nm
- * nominal, 16-bit linear PNG. Alone its tiles fit two readings (warned
- * two-readings); pooled, the pool chose the wrong one and read 2L as 3L
- * at p = 1. Whatever the pool chooses, no label given with p >= 0.95 may
+/* A ten-tile pooled scan (robust --batch 10) the pool misreads: scan 6703,
+ * lamina's default response drawn by the generator, a camera the analysis
+ * is not told, 300 nm nominal, JPEG q85. Alone every tile reads right
+ * (80 of 80); pooled, 66 of 80 (the model floor at the regions' measured
+ * contrast, 2026-12-05; before it, 69 of 80 with every confident label
+ * warned). The scan this test first used (3300: Weber's response, a dye
+ * camera, 16-bit PNG; pooled 29 of 82 at p = 1) is read right since, alone
+ * and pooled. Whatever the pool chooses, no label given with p >= 0.95 may
  * be wrong without a warning that doubts it (pooled-readings). */
 static void test_pooled_choice(const char *dir)
 {
     robust_case c;
     robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_WEBER;
+    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
     c.cfg.nominal_oxide_nm = 300;
-    c.fmt = SYNTH_FMT_PNG16;
+    c.fmt = SYNTH_FMT_JPEG;
+    c.quality = 85;
     c.informed = 0;
     robust_tally alone, pooled;
     memset(&alone, 0, sizeof alone);
     memset(&pooled, 0, sizeof pooled);
-    check_int(robust_run_batch(&c, 3300, 10, dir, &alone, &pooled, NULL), 0,
-              "scan 3300, ten tiles, alone and pooled");
-    robust_print(stdout, "test_robust: scan 3300 pooled", &pooled);
+    check_int(robust_run_batch(&c, 6703, 10, dir, &alone, &pooled, NULL), 0,
+              "scan 6703, ten tiles, alone and pooled");
+    robust_print(stdout, "test_robust: scan 6703 pooled", &pooled);
     size_t silent_wrong = (pooled.confident - pooled.warned) -
                           (pooled.confident_right - pooled.warned_right);
     check_true(pooled.right < pooled.flakes,
@@ -311,13 +315,20 @@ static robust_case scan_6700(int informed)
  * regions of the calibration tile, with their layer counts latent, show
  * the whole ladder. Scan 6700 of `make accuracy` (lamina's default response
  * drawn by the generator, a camera the analysis is not told, 300 nm
- * nominal, JPEG q85, other days and chips): calibrated on the flake alone,
- * tile 1 (true oxide 315.1 nm) reads its flakes near 112 nm, an
- * interference order off (warned by the substrate colour); with the other
- * regions it reads every tile in the right order. (Tile 2 of this scan
- * reads its 2L and 3L flakes one or two too high either way, with p < 0.9
- * and a doubting warning: the counts' goal is that no label is confident
- * and wrong.) */
+ * nominal, JPEG q85, other days and chips) is a hard one: tile 1 (another
+ * chip, true oxide 315.1 nm) reads its flakes best about an interference
+ * order lower (near 114 nm), and at its true oxide doubled. Calibrated on
+ * the flake alone, every tile reads in the right order. With the other
+ * regions as well, tile 1 is read an order off (its counts right), and
+ * the substrate colour, which says 317 nm, is refused with a warning; tile
+ * 2 reads its 2L and 3L flakes one or two too high at p ~0.95, in an image
+ * warned of a second oxide. (Until the model floor was taken at the
+ * regions' measured contrast, 2026-12-05, it was the other way round: the
+ * flake alone read tile 1 an order off, the other regions put it right.
+ * Over scans 6700-6723 the floor at the measured contrast reads more
+ * flakes right with either calibration; docs/performance.md, sixteenth
+ * stop.) What must hold either way: no oxide beyond 3 sigma and no
+ * confident wrong label without a warning that doubts it. */
 static void test_calibrated_latent(const char *dir)
 {
     robust_case c = scan_6700(0);
@@ -334,15 +345,20 @@ static void test_calibrated_latent(const char *dir)
               "scan 6700 calibrated on one flake and the tile's other regions");
     robust_print(stdout, "test_robust: calibrated on the flake alone", &only);
     robust_print(stdout, "test_robust: ... and on the other regions", &latent);
-    check_true(only.oxide_abs_max > 100, "the flake alone reads a tile an order off (max error "
-               "%.1f nm): the case this test is for", only.oxide_abs_max);
-    check_true(latent.oxide_n == 3 && latent.oxide_abs_max < 10 &&
-                   latent.oxide_covered == latent.oxide_n &&
-                   latent.confident_right == latent.confident,
-               "with the other regions: every oxide within 10 nm and 2 sigma (max %.1f nm, "
-               "%zu of %zu in 2 sigma), every label with p >= 0.95 right (%zu of %zu)",
-               latent.oxide_abs_max, latent.oxide_covered, latent.oxide_n,
-               latent.confident_right, latent.confident);
+    check_true(only.oxide_n == 3 && only.oxide_abs_max < 10 &&
+                   only.oxide_covered == only.oxide_n && only.confident_right == only.confident,
+               "the flake alone: every oxide within 10 nm and 2 sigma (max %.1f nm, %zu of %zu "
+               "in 2 sigma), every label with p >= 0.95 right (%zu of %zu)",
+               only.oxide_abs_max, only.oxide_covered, only.oxide_n, only.confident_right,
+               only.confident);
+    size_t silent_wrong = (latent.confident - latent.warned) -
+                          (latent.confident_right - latent.warned_right);
+    check_true(latent.oxide_n == 3 && latent.oxide_silent == 0 && silent_wrong == 0,
+               "with the other regions: no oxide beyond 3 sigma without a warning (%zu of %zu; "
+               "max error %.1f nm, the colour refused in %zu), no confident wrong label "
+               "unwarned (%zu)",
+               latent.oxide_silent, latent.oxide_n, latent.oxide_abs_max, latent.colour_warned,
+               silent_wrong);
 }
 
 /* The colour is only a gauge while the lamp and white balance stay as

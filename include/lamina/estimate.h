@@ -254,8 +254,15 @@ typedef struct lam_est_view {
 lam_status lam_estimate_view(const lam_estimate *e, size_t j, lam_model *model,
                              lam_est_view *view, lam_error *err);
 
-/* Model floor variance of a predicted contrast value in a channel. */
-double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double contrast);
+/* Model floor variance of a region in a channel, (floor_abs + floor_rel
+ * |measured|)^2, taken at the region's MEASURED contrast so that it is the
+ * same under every hypothesis. Taken at each hypothesis' prediction (as
+ * before 2026-12-05) it let a reading with larger contrasts buy variance
+ * (under 2N the floor is about twice that under N), and its derivative in
+ * the shared parameters was missing from the fit's Gauss-Newton steps, so
+ * half of the EM's tries were rejected (docs/performance.md, fifteenth and
+ * sixteenth stops). */
+double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double measured);
 
 /* The prior centre of a channel's absolute floor: what the image's own
  * substrate says about its low-frequency errors (flat-field residuals, JPEG

@@ -4,10 +4,11 @@
  * everything the image shares (lamina/estimate.h) carried into it.
  *
  * For region i of image j and hypothesis h the predictive density is
- *   Normal(m_i; P_h + J_h d_i, V_i + F_h + J_h S_i J_h^T)
+ *   Normal(m_i; P_h + J_h d_i, V_i + F_i + J_h S_i J_h^T)
  * where P_h is the fitted observed-scale ladder, J_h its gradient with
  * respect to the free nuisance parameters and the oxide, V_i the region's
- * statistical variance, F_h the model floor, and (d_i, S_i) the shift and
+ * statistical variance, F_i the model floor at its measured contrast
+ * (lam_estimate_floor_var), and (d_i, S_i) the shift and
  * covariance of the parameters with region i LEFT OUT (a Laplace
  * leave-one-out: the region is not allowed to vouch for itself, so an image
  * whose only flake could be 1L with one response or 2L with another says
