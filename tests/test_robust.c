@@ -325,10 +325,11 @@ static robust_case scan_6700(int informed)
  * warned of a second oxide. (Until the model floor was taken at the
  * regions' measured contrast, 2026-12-05, it was the other way round: the
  * flake alone read tile 1 an order off, the other regions put it right.
- * Over scans 6700-6723 the floor at the measured contrast reads more
- * flakes right with either calibration; docs/performance.md, sixteenth
- * stop.) What must hold either way: no oxide beyond 3 sigma and no
- * confident wrong label without a warning that doubts it. */
+ * Over scans 6700-6723 the floor at the measured contrast reads as many
+ * flakes right with the flake alone and more with the latent regions;
+ * docs/performance.md, sixteenth stop.) What must hold either way: no
+ * oxide beyond 3 sigma and no confident wrong label without a warning
+ * that doubts it. */
 static void test_calibrated_latent(const char *dir)
 {
     robust_case c = scan_6700(0);
