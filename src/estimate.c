@@ -412,6 +412,8 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
         var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
         prod *= 2 * M_PI * var[c];
     }
+    /* chi^2 of every film first (no logarithms): most regions lie far from
+     * the residue's curve, and only films near the best one add mass */
     double q[LAM_RESIDUE_FILMS], qmin = INFINITY;
     for (size_t k = 0; k < n; k++) {
         q[k] = 0;
