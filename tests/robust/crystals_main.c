@@ -150,7 +150,8 @@ int main(int argc, char **argv)
         o.dir = "build/tests/crystals-out-uninformed";
     mkdir("build", 0755);
     mkdir("build/tests", 0755);
-    mkdir(o.dir, 0755);
+    if (robust_claim_dir(o.dir))
+        return 1;
     if (only != 2)
         run_hbn(&o);
     if (only != 1)

@@ -9,8 +9,12 @@
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <errno.h>
+#include <fcntl.h>
+#include <sys/file.h>
 #include <sys/stat.h>
 #include <time.h>
+#include <unistd.h>
 
 static double now_s(void)
 {
@@ -531,4 +535,24 @@ int robust_run_two_chips(const robust_case *c, unsigned long long seed, int tile
     lam_setup_clear(&p2);
     scan_free(&sn);
     return rc;
+}
+
+int robust_claim_dir(const char *dir)
+{
+    char path[1100];
+    mkdir(dir, 0755);
+    snprintf(path, sizeof path, "%s/.lock", dir);
+    int fd = open(path, O_RDWR | O_CREAT, 0644); /* held open until exit */
+    if (fd < 0) {
+        fprintf(stderr, "robust: %s: %s\n", path, strerror(errno));
+        return -1;
+    }
+    if (flock(fd, LOCK_EX | LOCK_NB)) {
+        fprintf(stderr, "robust: %s is in use by another run of the harness (two runs in one "
+                "directory overwrite each other's tiles and profiles): run the other one from "
+                "its own directory\n", dir);
+        close(fd);
+        return -1;
+    }
+    return 0;
 }

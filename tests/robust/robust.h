@@ -115,4 +115,11 @@ uint32_t robust_flake_region(const synth_scene *sc, int o, const lam_analysis *a
 void robust_add(robust_tally *into, const robust_tally *t);
 void robust_print(FILE *f, const char *label, const robust_tally *t);
 
+/* Claim 'dir' (made if missing) for this process until it exits: the
+ * harness programs write their tiles, setups and calibration profiles
+ * under fixed names, so two runs in one directory (two builds compared
+ * from one checkout) overwrite each other's files and both read wrong.
+ * 0, or -1 with a message on stderr when another run holds it. */
+int robust_claim_dir(const char *dir);
+
 #endif

@@ -164,7 +164,8 @@ int main(int argc, char **argv)
     }
     mkdir("build", 0755);
     mkdir("build/tests", 0755);
-    mkdir("build/tests/robust-out", 0755);
+    if (robust_claim_dir("build/tests/robust-out"))
+        return 1;
     tallies *T = calloc(1, sizeof *T);
     if (!T)
         return 1;
