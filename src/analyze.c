@@ -717,7 +717,7 @@ static lam_status analyze_once(const char *path, const lam_setup *setup,
         !(st = fit_stage(&r, err)))
         st = posterior_stage(&r, err);
     if (!st)
-        lam__check_analysis(r.a, r.img, setup);
+        lam__check_analysis(r.a, r.img, setup, r.model);
     lam_model_free(r.model);
     lam_contrast_map_free(&r.contrast);
     lam_image_free(r.img);

@@ -7,6 +7,7 @@
 
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #define SATURATED_SHARE 0.005   /* of all pixels at full scale: worth saying */
@@ -17,6 +18,7 @@
 #define POOR_FIT_SHARE 0.25     /* of the flakes' area that fits no layer count */
 #define RIVAL_WORTH_SAYING 0.05 /* a second reading this probable can move a label */
 #define AR_REFLECTANCE 0.03     /* substrate reflectance below this in a channel (issue 14) */
+#define SCALE_DOUBT M_SQRT2     /* monolayer contrast nearer half or twice the calibration's */
 
 /* ---- the image against the setup's camera ---- */
 
@@ -345,8 +347,62 @@ static void check_monochrome(lam_analysis *a, const lam_setup *s)
                      "(5 nm or better), or use a colour camera");
 }
 
-void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s)
+/* The monolayer contrast the fit reads at this image's oxide, over the one
+ * the setup's own values give there (for a calibrated profile: the
+ * calibration's, which matched its labelled flake), in the channel where
+ * the latter is largest; NAN when it cannot be made. The estimate's shared
+ * values are set to their priors' centres (the setup's values) for the
+ * evaluation and put back. */
+static double calibration_scale(lam_analysis *a, lam_model *model)
 {
+    lam_estimate *e = a->estimate;
+    lam_prediction *P = malloc(sizeof *P);
+    double fitted[LAM_NU_COUNT], ratio = NAN;
+    lam_error err;
+    if (!P) /* only a check: without memory it says nothing */
+        return NAN;
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        fitted[k] = e->shared[k].value, e->shared[k].value = e->shared[k].prior_mean;
+    if (!lam_estimate_ladder(e, 0, model, P, &err)) {
+        size_t c = 0;
+        for (size_t k = 1; k < P->channels; k++)
+            if (fabs(P->contrast[1][k]) > fabs(P->contrast[1][c]))
+                c = k;
+        ratio = a->ladder.contrast[1][c] / P->contrast[1][c];
+    }
+    for (int k = 0; k < LAM_NU_COUNT; k++)
+        e->shared[k].value = fitted[k];
+    free(P);
+    return ratio;
+}
+
+/* A calibrated profile fixes what a monolayer looks like, but not how the
+ * camera and the response share that: its priors stay wide, and a fit can
+ * settle on every count doubled with the response halved. On the harness'
+ * calibrated runs (2026-12-05) a bayer tile was read so at p 0.99 with no
+ * other warning; its fitted monolayer contrast was 0.52 of the
+ * calibration's at its oxide, where right readings spread over 0.60-1.47
+ * (1st-99th percentile 0.80-1.25). Half way (in ratio) between one and
+ * two, the fit is nearer a doubled or halved reading than the calibration. */
+static void check_calibration_scale(lam_analysis *a, const lam_setup *s, lam_model *model)
+{
+    int calibrated = isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+    if (!calibrated || lam_setup_crystal_kind(s) != LAM_CRYSTAL_SHEETS || !a->estimate)
+        return;
+    double q = calibration_scale(a, model);
+    if (!(q < 1 / SCALE_DOUBT || q > SCALE_DOUBT))
+        return;
+    lam_warnings_add(&a->warnings, "calibration-scale",
+                     "the flakes read a monolayer contrast %.2f times what the setup's "
+                     "calibrated values give at this oxide: the layer counts may be %s; "
+                     "confirm one flake's count (Raman) or calibrate again on this chip",
+                     q, q < 1 ? "doubled (N read as 2N)" : "halved (2N read as N)");
+}
+
+void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s,
+                         lam_model *model)
+{
+    check_calibration_scale(a, s, model);
     check_modes(a, s);
     check_monochrome(a, s);
     check_saturation(a, img);

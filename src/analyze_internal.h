@@ -100,9 +100,12 @@ lam_status lam__colour_centre(const lam_analysis *a, const lam_setup *s, lam_mod
 lam_status lam__colour_loglik(const lam_analysis *a, const lam_estimate *e, const lam_setup *s,
                               lam_model *model, double *loglik, lam_error *err);
 
-/* The warnings of a finished analysis (saturation, exposure, oxide,
- * encoding, setup defaults, fit), added to a->warnings. */
-void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s);
+/* The warnings of a finished analysis (calibration scale, readings,
+ * saturation, exposure, oxide, encoding, setup defaults, fit), added to
+ * a->warnings; 'model' evaluates the profile's own ladder for the
+ * calibration-scale check. */
+void lam__check_analysis(lam_analysis *a, const lam_image *img, const lam_setup *s,
+                         lam_model *model);
 
 /* 1 when the setup leaves the microscope to typical values: the camera's
  * curves, the illumination NA or the lamp defaulted (what the

@@ -18,7 +18,9 @@
  * anti-reflection (a substrate below 3 % reflectance in a channel),
  * substrate-colour (the substrate's colour contradicts the calibration's:
  * lamina/substrate_colour.h), pooled-readings (a batch's pooled fit chose
- * between two readings some images allowed alone: lamina/pool.h). The
+ * between two readings some images allowed alone: lamina/pool.h),
+ * calibration-scale (with a calibrated profile, the fitted monolayer
+ * contrast is nearer half or twice the profile's than the profile's). The
  * annotated picture's legend names the codes in amber.
  *
  * Ownership: plain values inside lam_analysis; nothing to free.

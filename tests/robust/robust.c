@@ -76,7 +76,7 @@ static int doubted(const lam_analysis *a)
     static const char *const codes[] = {"poor-fit",        "two-readings",
                                         "oxide-off-nominal", "oxide-ambiguous",
                                         "monochrome",      "pooled-readings",
-                                        "crystal-camera-unknown"};
+                                        "crystal-camera-unknown", "calibration-scale"};
     for (size_t k = 0; k < sizeof codes / sizeof codes[0]; k++)
         if (lam_warnings_find(&a->warnings, codes[k]))
             return 1;
