@@ -38,6 +38,28 @@ static double share(size_t a, size_t b)
     return b ? (double)a / (double)b : 0;
 }
 
+/* Labels given with p >= 0.95 that are wrong and sit in an image with no
+ * warning that doubts them: what a user would act on unwarned. */
+static size_t silent_wrong(const robust_tally *t)
+{
+    return (t->confident - t->warned) - (t->confident_right - t->warned_right);
+}
+
+/* A case of lamina's default response drawn by the generator, a camera
+ * the analysis is told only with 'informed'; quality for JPEG files. */
+static robust_case default_response(double nominal_nm, synth_format fmt, int quality,
+                                    int informed)
+{
+    robust_case c;
+    robust_case_init(&c);
+    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
+    c.cfg.nominal_oxide_nm = nominal_nm;
+    c.fmt = fmt;
+    c.quality = quality;
+    c.informed = informed;
+    return c;
+}
+
 static void matrix(int informed, const char *dir, robust_tally *t)
 {
     memset(t, 0, sizeof *t);
@@ -130,25 +152,18 @@ static void test_pooled(const char *dir)
  * be wrong without a warning that doubts it (pooled-readings). */
 static void test_pooled_choice(const char *dir)
 {
-    robust_case c;
-    robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
-    c.cfg.nominal_oxide_nm = 300;
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 85;
-    c.informed = 0;
+    robust_case c = default_response(300, SYNTH_FMT_JPEG, 85, 0);
     robust_tally alone, pooled;
     memset(&alone, 0, sizeof alone);
     memset(&pooled, 0, sizeof pooled);
     check_int(robust_run_batch(&c, 6703, 10, dir, &alone, &pooled, NULL), 0,
               "scan 6703, ten tiles, alone and pooled");
     robust_print(stdout, "test_robust: scan 6703 pooled", &pooled);
-    size_t silent_wrong = (pooled.confident - pooled.warned) -
-                          (pooled.confident_right - pooled.warned_right);
     check_true(pooled.right < pooled.flakes,
                "the scan is one the pool misreads (%zu of %zu right): the check below bites",
                pooled.right, pooled.flakes);
-    check_int((long long)silent_wrong, 0, "no confident wrong label without a doubting warning");
+    check_int((long long)silent_wrong(&pooled), 0,
+              "no confident wrong label without a doubting warning");
 }
 
 /* Isolated monolayers Pauli-blocked at 0, 0.3, 0.9 and 1.05 eV (the
@@ -301,14 +316,7 @@ static void test_colour(const char *dir)
  * q85; the setup gives the camera with 'informed'. */
 static robust_case scan_6700(int informed)
 {
-    robust_case c;
-    robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
-    c.cfg.nominal_oxide_nm = 300;
-    c.fmt = SYNTH_FMT_JPEG;
-    c.quality = 85;
-    c.informed = informed;
-    return c;
+    return default_response(300, SYNTH_FMT_JPEG, 85, informed);
 }
 
 /* One labelled monolayer pins only its own three contrasts; the other
@@ -352,14 +360,12 @@ static void test_calibrated_latent(const char *dir)
                "in 2 sigma), every label with p >= 0.95 right (%zu of %zu)",
                only.oxide_abs_max, only.oxide_covered, only.oxide_n, only.confident_right,
                only.confident);
-    size_t silent_wrong = (latent.confident - latent.warned) -
-                          (latent.confident_right - latent.warned_right);
-    check_true(latent.oxide_n == 3 && latent.oxide_silent == 0 && silent_wrong == 0,
+    check_true(latent.oxide_n == 3 && latent.oxide_silent == 0 && silent_wrong(&latent) == 0,
                "with the other regions: no oxide beyond 3 sigma without a warning (%zu of %zu; "
                "max error %.1f nm, the colour refused in %zu), no confident wrong label "
                "unwarned (%zu)",
                latent.oxide_silent, latent.oxide_n, latent.oxide_abs_max, latent.colour_warned,
-               silent_wrong);
+               silent_wrong(&latent));
 }
 
 /* The colour is only a gauge while the lamp and white balance stay as
@@ -462,12 +468,7 @@ static void test_two_chips(const char *dir)
  * wrong label goes unwarned. */
 static void test_calibration_scale(const char *dir)
 {
-    robust_case c;
-    robust_case_init(&c);
-    c.cfg.response = SYNTH_RESP_LAMINA_DEFAULT;
-    c.cfg.nominal_oxide_nm = 285;
-    c.fmt = SYNTH_FMT_BAYER_PNG;
-    c.informed = 0;
+    robust_case c = default_response(285, SYNTH_FMT_BAYER_PNG, 0, 0);
     robust_tally one, two;
     memset(&one, 0, sizeof one);
     memset(&two, 0, sizeof two);
@@ -478,11 +479,9 @@ static void test_calibration_scale(const char *dir)
                "the scan is one the calibrated fit misreads (%zu of %zu right): the check "
                "below bites",
                one.right, one.flakes);
-    size_t silent_one = (one.confident - one.warned) - (one.confident_right - one.warned_right);
-    size_t silent_two = (two.confident - two.warned) - (two.confident_right - two.warned_right);
-    check_true(silent_one == 0 && silent_two == 0,
+    check_true(silent_wrong(&one) == 0 && silent_wrong(&two) == 0,
                "no confident wrong label without a doubting warning (one chip %zu, two %zu)",
-               silent_one, silent_two);
+               silent_wrong(&one), silent_wrong(&two));
 }
 
 int main(void)
