@@ -185,6 +185,13 @@ int lam__microscope_defaulted(const lam_setup *s)
     return 0;
 }
 
+/* A setup whose microscope priors were narrowed by a calibration (its
+ * uncertainty block: camera shifts or NA). */
+static int setup_calibrated(const lam_setup *s)
+{
+    return isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+}
+
 static void check_defaults(lam_analysis *a, const lam_setup *s)
 {
     char what[160] = "";
@@ -199,7 +206,7 @@ static void check_defaults(lam_analysis *a, const lam_setup *s)
     char oxide[64] = "";
     if (a->oxide.fitted)
         snprintf(oxide, sizeof oxide, " and the oxide is uncertain by %.1f nm", a->oxide.sigma);
-    int calibrated = isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+    int calibrated = setup_calibrated(s);
     const char *narrow = !calibrated ? "give them in the setup, or calibrate on flakes of known "
                                        "thickness (lamina calibrate)"
                          : isfinite(s->substrate_colour.second_oxide_nm)
@@ -386,7 +393,7 @@ static double calibration_scale(lam_analysis *a, lam_model *model)
  * two, the fit is nearer a doubled or halved reading than the calibration. */
 static void check_calibration_scale(lam_analysis *a, const lam_setup *s, lam_model *model)
 {
-    int calibrated = isfinite(s->sigma.shift_nm) || isfinite(s->sigma.na);
+    int calibrated = setup_calibrated(s);
     if (!calibrated || lam_setup_crystal_kind(s) != LAM_CRYSTAL_SHEETS || !a->estimate)
         return;
     double q = calibration_scale(a, model);

@@ -421,9 +421,10 @@ static double step_turn(const lam_estimate *e, const double *d, double *last)
  * factor k, a full step overshoots the maximum by k - 1 of its length,
  * gains rho = 2 - k of the prediction, and the next comes back; it comes
  * out right when the diagonal is scaled by k more, so 1 + lambda grows by
- * 2 - rho (at most 4 times). Otherwise it loosens. Without this, a start whose oxide the
- * model's curvature underestimated (EM's responsibilities and the floor's
- * dependence on the prediction, which Gauss-Newton leaves out) went from
+ * 2 - rho (at most 4 times). Otherwise it loosens. Without this, a start
+ * whose oxide the model's curvature underestimated (EM's responsibilities,
+ * and then the floor's dependence on the prediction, which Gauss-Newton
+ * left out: the floor is now taken at the measured contrast) went from
  * one side of its maximum to the other and back for 73 iterations, each
  * step a fifth of its predicted gain. Only such turns change the damping:
  * the ratio alone (damping every step that gained under a quarter) also
