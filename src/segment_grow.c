@@ -778,6 +778,28 @@ static void premerge_blocks(merge_state *m, slot_pool *pool, size_t y0, size_t y
     }
 }
 
+/* How many of the n buckets bk hold each bucket number (0..NO_BUCKET),
+ * into cnt. Four tallies side by side: in runs of one bucket (the pairs
+ * of no bucket come in runs) each increment would otherwise wait for the
+ * store of the one before. */
+#define TALLIES 4
+static void count_buckets(const uint16_t *bk, size_t n, uint32_t cnt[PAIR_BUCKETS + 1])
+{
+    uint32_t tally[TALLIES][PAIR_BUCKETS + 1];
+    memset(tally, 0, sizeof tally);
+    size_t i = 0;
+    for (; i + TALLIES <= n; i += TALLIES)
+        for (size_t l = 0; l < TALLIES; l++)
+            tally[l][bk[i + l]]++;
+    for (; i < n; i++)
+        tally[0][bk[i]]++;
+    for (size_t b = 0; b <= PAIR_BUCKETS; b++) {
+        cnt[b] = 0;
+        for (size_t l = 0; l < TALLIES; l++)
+            cnt[b] += tally[l][b];
+    }
+}
+
 /* The sorted pair list of strip s into L (which holds it), its blocks
  * merged first (m, pool: the band's). */
 static void strip_pairs(const pair_ctx *p, pair_lists *L, size_t s, const strip_scratch *t,
@@ -790,22 +812,26 @@ static void strip_pairs(const pair_ctx *p, pair_lists *L, size_t s, const strip_
     strip_buckets(p, y0, y1, t->bk, t->f, t->b);
     if (m->blocks)
         premerge_blocks(m, pool, y0, y1, w, t->bk);
-    memset(cnt, 0, sizeof cnt);
-    for (size_t i = 0; i < 2 * npx; i++)
-        cnt[t->bk[i]]++;
+    count_buckets(t->bk, 2 * npx, cnt);
     uint32_t *start = L->start + (s - L->first) * (PAIR_BUCKETS + 1);
     start[0] = 0;
     for (size_t b = 0; b < PAIR_BUCKETS; b++)
         start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
-    for (size_t i = 0; i < npx; i++) /* pixel order, the right pair first */
-        for (size_t dir = 0; dir < 2; dir++) {
-            uint16_t b = t->bk[i + dir * npx];
-            if (b == NO_BUCKET)
-                continue;
-            if (L->code)
-                L->code[at + cnt[b]++] = (uint16_t)(2 * i + dir);
-            else
-                L->pairs[at + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
+    cnt[NO_BUCKET] = start[PAIR_BUCKETS];
+    /* pixel order, the right pair first. The strip's slots hold every
+     * pair (cap >= 2 npx), so the pairs of no bucket are placed too, after
+     * the lists, where nothing reads them: a store instead of a branch
+     * that was mispredicted wherever blocks and transitions meet pairs */
+    if (L->code)
+        for (size_t i = 0; i < npx; i++) {
+            L->code[at + cnt[t->bk[i]]++] = (uint16_t)(2 * i);
+            L->code[at + cnt[t->bk[i + npx]]++] = (uint16_t)(2 * i + 1);
+        }
+    else
+        for (size_t i = 0; i < npx; i++) {
+            uint32_t k2 = (uint32_t)(2 * (y0 * w + i));
+            L->pairs[at + cnt[t->bk[i]]++] = k2;
+            L->pairs[at + cnt[t->bk[i + npx]]++] = k2 + 1;
         }
 }
 
