@@ -549,7 +549,8 @@ static void merge(merge_state *m, uint32_t a, uint32_t b, const float *sa, const
  * which this machine pays for in page faults). Taking bucket b of every
  * strip in turn, then bucket b + 1, gives the order of one sequential sort
  * of the band, whatever the thread count. */
-#define STRIP_ROWS 16 /* at most; fewer when wide, so a strip's codes fit 16 bits */
+#define STRIP_ROWS 16 /* at most; fewer when wide, so a strip's codes fit 16 bits, */
+#define STRIP_ROWS_MIN SQUARE_MAX /* but never fewer than a square's (then 32-bit codes) */
 #define NO_BUCKET PAIR_BUCKETS /* no pair: counted apart */
 
 typedef struct pair_lists {
@@ -636,24 +637,41 @@ typedef struct strip_scratch {
  * 3/8 of a delta in every channel (a bucket below BLOCK_BUCKETS) becomes
  * one region, and those pairs leave the lists; four such blocks of an
  * aligned 4 x 4 square whose eight pairs between them pass the same test
- * become one region of 16. In the sorted order such pixels nearly always
- * join one another first, with means well within delta; where a block's
- * pixels would have gone to different neighbours first, the block meets
- * them as one region, with its mean and its count. The regions then
- * differ from the pixel order's by a few pixels at edges and in specks
- * (tests/test_segment.c compares the two on drawn maps; so.pixel_order
- * gives the pixel order alone). Half a delta split a 25-layer flake's
- * blurred edge into a region of its own (test_analyze); 3/8 kept every
- * check. On the accuracy harness the blocks changed only JPEG tiles, the
- * hardest uninformed ones both ways: a few more right on one sample of
- * scenes, a few fewer on another (docs/performance.md). */
-#define BLOCK_BUCKETS 64 /* of the 1024 over 6 deltas: below 3/8 of a delta */
+ * become one region of 16, and four such squares of an aligned 8 x 8
+ * square (a JPEG's block) with their sixteen pairs one region of 64. In
+ * the sorted order such pixels nearly always join one another first, with
+ * means well within delta; where a block's pixels would have gone to
+ * different neighbours first, the block meets them as one region, with its
+ * mean and its count. The regions then differ from the pixel order's by a
+ * few pixels at edges and in specks (tests/test_segment.c compares the two
+ * on drawn maps; so.pixel_order gives the pixel order alone).
+ *
+ * Where that can matter is next to an edge, where the order decides which
+ * side a pixel joins. Inside a uniform area it matters little: nearly
+ * every pixel there ends in the area's region whatever the order (the
+ * noise is well within the merging's test). So a square whose pixels
+ * and the ring around them are all provisional (no transition pixel, not
+ * at the border) passes at 3/4 of a delta (INTERIOR_BUCKETS), any other at
+ * 3/8. Pairs left at 12 MP: 13.4 M with blocks and 4 x 4 squares at 3/8,
+ * 4.2 M with this. The same 3/4 everywhere (4.1 M pairs) left test_robust's
+ * pooled scan 6703 with three confident wrong counts and no doubting
+ * warning (the pool's reading of one tile, unwarned only by chance: the
+ * segmentation near its edges moved a marginal oxide check); half a delta
+ * everywhere split a 25-layer flake's blurred edge into a region of its
+ * own (test_analyze); a whole delta everywhere fails test_segment's field
+ * of faint flakes. On the accuracy harness such changes move JPEG tiles whose fit
+ * is on a knife's edge, both ways (docs/performance.md). */
+#define BLOCK_BUCKETS 64     /* of the 1024 over 6 deltas: below 3/8 of a delta, */
+#define INTERIOR_BUCKETS 128 /* and 3/4 of one inside a uniform area */
+#define SQUARE_MAX 8     /* the largest square, in pixels */
 
 /* A strip's buckets by row: right(y) the pairs (k, k + 1) of row y, down(y)
  * the pairs (k, k + w). */
 typedef struct strip_rows {
     uint16_t *bk;
     size_t y0, w, npx;
+    const uint8_t *cls; /* the image's classes */
+    size_t h;
 } strip_rows;
 
 static uint16_t *right_of(const strip_rows *r, size_t y)
@@ -666,24 +684,44 @@ static uint16_t *down_of(const strip_rows *r, size_t y)
     return r->bk + r->npx + (y - r->y0) * r->w;
 }
 
-/* Do the four inner pairs of the 2 x 2 block at (x, y) pass? */
-static int block_fits(const strip_rows *r, size_t x, size_t y)
+/* Do the four inner pairs of the 2 x 2 block at (x, y) pass (buckets
+ * below limit)? */
+static int block_fits(const strip_rows *r, size_t x, size_t y, uint16_t limit)
 {
     const uint16_t *r0 = right_of(r, y), *r1 = right_of(r, y + 1), *d0 = down_of(r, y);
-    return (r0[x] < BLOCK_BUCKETS) & (r1[x] < BLOCK_BUCKETS) & (d0[x] < BLOCK_BUCKETS) &
-           (d0[x + 1] < BLOCK_BUCKETS);
+    return (r0[x] < limit) & (r1[x] < limit) & (d0[x] < limit) & (d0[x + 1] < limit);
 }
 
-/* Do the four blocks of the 4 x 4 square at (x, y) and the eight pairs
- * between them pass? */
-static int square_fits(const strip_rows *r, size_t x, size_t y)
+/* Does the size x size square at (x, y) pass (size 2: block_fits; 4, 8:
+ * its four quarters pass and so do the 2 size pairs between them)? */
+static int square_fits(const strip_rows *r, size_t x, size_t y, size_t size, uint16_t limit)
 {
-    int ok = block_fits(r, x, y) & block_fits(r, x + 2, y) & block_fits(r, x, y + 2) &
-             block_fits(r, x + 2, y + 2);
-    const uint16_t *d1 = down_of(r, y + 1);
-    for (size_t i = 0; i < 4; i++)
-        ok &= (right_of(r, y + i)[x + 1] < BLOCK_BUCKETS) & (d1[x + i] < BLOCK_BUCKETS);
+    if (size == 2)
+        return block_fits(r, x, y, limit);
+    size_t half = size / 2;
+    int ok = square_fits(r, x, y, half, limit) & square_fits(r, x + half, y, half, limit) &
+             square_fits(r, x, y + half, half, limit) &
+             square_fits(r, x + half, y + half, half, limit);
+    const uint16_t *across = down_of(r, y + half - 1);
+    for (size_t i = 0; ok && i < size; i++)
+        ok &= (right_of(r, y + i)[x + half - 1] < limit) & (across[x + i] < limit);
     return ok;
+}
+
+/* Is every pixel of the size x size square at (x, y) and of the ring
+ * around it provisional (the square lies inside a uniform area, away from
+ * every transition and the image's border)? */
+static int square_inside(const strip_rows *r, size_t x, size_t y, size_t size)
+{
+    if (x == 0 || y == 0 || x + size >= r->w || y + size >= r->h)
+        return 0;
+    int all = 1;
+    for (size_t j = y - 1; j <= y + size; j++) {
+        const uint8_t *row = r->cls + j * r->w;
+        for (size_t i = x - 1; i <= x + size; i++)
+            all &= row[i] == PROVISIONAL;
+    }
+    return all;
 }
 
 /* The pairs inside the size x size square at (x, y) leave the lists. */
@@ -709,10 +747,11 @@ static void add_block(const merge_state *m, size_t k, size_t w, float sum[3])
     }
 }
 
-/* The size x size square (2 or 4) at (x, y), all one-pixel regions,
+/* The size x size square (2, 4 or 8) at (x, y), all one-pixel regions,
  * becomes one region under its first pixel, and its inner pairs leave the
- * lists; a 4 x 4 square's sums are those of its 2 x 2 blocks, added left
- * to right, top to bottom. */
+ * lists; a larger square's sums are those of its 2 x 2 blocks, added left
+ * to right, top to bottom (whole multiples of the map's step, so exact in
+ * any order). */
 static void merge_square(merge_state *m, slot_pool *pool, const strip_rows *r, size_t x,
                          size_t y, size_t size)
 {
@@ -732,49 +771,60 @@ static void merge_square(merge_state *m, slot_pool *pool, const strip_rows *r, s
     drop_inner_pairs(r, x, y, size);
 }
 
-/* The 2 x 2 blocks of rows y, y + 1 in columns x0..x1 - 1. */
-static void premerge_row_blocks(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y,
-                                size_t x0, size_t x1)
+/* The size x size square at (x, y) as one region when it passes, else
+ * each of its quarters the same way, down to 2 x 2 blocks. */
+static void premerge_square(merge_state *m, slot_pool *pool, const strip_rows *r, size_t x,
+                            size_t y, size_t size)
 {
-    for (size_t x = x0; x + 1 < x1; x += 2)
-        if (block_fits(r, x, y))
-            merge_square(m, pool, r, x, y, 2);
+    uint16_t limit = square_inside(r, x, y, size) ? INTERIOR_BUCKETS : BLOCK_BUCKETS;
+    if (square_fits(r, x, y, size, limit)) {
+        merge_square(m, pool, r, x, y, size);
+        return;
+    }
+    if (size == 2)
+        return;
+    size_t half = size / 2;
+    premerge_square(m, pool, r, x, y, half);
+    premerge_square(m, pool, r, x + half, y, half);
+    premerge_square(m, pool, r, x, y + half, half);
+    premerge_square(m, pool, r, x + half, y + half, half);
 }
 
-/* The 4 x 4 squares of rows y..y + 3, or where one does not fit its
- * 2 x 2 blocks; then the blocks of the columns left over. */
-static void premerge_square_row(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y)
+/* The squares of rows y..y + size - 1 on the image's grid of size x size
+ * squares, then the columns left over (narrower than size) in smaller
+ * squares. */
+static void premerge_square_row(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y,
+                                 size_t size)
 {
-    size_t w = r->w, x = 0;
-    for (; x + 3 < w; x += 4) {
-        if (square_fits(r, x, y)) {
-            merge_square(m, pool, r, x, y, 4);
-            continue;
-        }
-        premerge_row_blocks(m, pool, r, y, x, x + 4);
-        premerge_row_blocks(m, pool, r, y + 2, x, x + 4);
-    }
-    premerge_row_blocks(m, pool, r, y, x, w);
-    premerge_row_blocks(m, pool, r, y + 2, x, w);
+    size_t x = 0;
+    for (; x + size <= r->w; x += size)
+        premerge_square(m, pool, r, x, y, size);
+    for (size_t part = size / 2; part >= 2; part /= 2)
+        for (; x + part <= r->w; x += part)
+            for (size_t dy = 0; dy < size; dy += part)
+                premerge_square(m, pool, r, x, y + dy, part);
 }
 
 /* The squares and blocks of rows y0..y1 - 1 (bk: their buckets, as
- * strip_buckets leaves them), on the image's grid of 4 x 4 squares and
- * 2 x 2 blocks (so that none straddles a JPEG's 8 x 8 blocks, whatever
- * the strip's height); their inner pairs leave bk. */
-static void premerge_blocks(merge_state *m, slot_pool *pool, size_t y0, size_t y1, size_t w,
-                            uint16_t *bk)
+ * strip_buckets leaves them), on the image's grid of SQUARE_MAX x
+ * SQUARE_MAX squares, their quarters and so on down to 2 x 2 blocks (so
+ * that none straddles a JPEG's 8 x 8 blocks, whatever the strip's
+ * height); their inner pairs leave bk. */
+static void premerge_blocks(merge_state *m, slot_pool *pool, const pair_ctx *p, size_t y0,
+                            size_t y1, uint16_t *bk)
 {
-    strip_rows r = {bk, y0, w, (y1 - y0) * w};
+    size_t w = p->img->width;
+    strip_rows r = {bk, y0, w, (y1 - y0) * w, p->cls, p->img->height};
     for (size_t y = y0; y + 1 < y1;) {
-        if (y % 4 == 0 && y + 3 < y1) {
-            premerge_square_row(m, pool, &r, y);
-            y += 4;
-        } else if (y % 2 == 0) {
-            premerge_row_blocks(m, pool, &r, y, 0, w);
-            y += 2;
-        } else
+        size_t size = SQUARE_MAX;
+        while (size > 2 && (y % size || y + size > y1))
+            size /= 2;
+        if (y % size) {
             y++;
+            continue;
+        }
+        premerge_square_row(m, pool, &r, y, size);
+        y += size;
     }
 }
 
@@ -811,36 +861,36 @@ static void strip_pairs(const pair_ctx *p, pair_lists *L, size_t s, const strip_
     uint32_t cnt[PAIR_BUCKETS + 1];
     strip_buckets(p, y0, y1, t->bk, t->f, t->b);
     if (m->blocks)
-        premerge_blocks(m, pool, y0, y1, w, t->bk);
+        premerge_blocks(m, pool, p, y0, y1, t->bk);
     count_buckets(t->bk, 2 * npx, cnt);
     uint32_t *start = L->start + (s - L->first) * (PAIR_BUCKETS + 1);
     start[0] = 0;
     for (size_t b = 0; b < PAIR_BUCKETS; b++)
         start[b + 1] = start[b] + cnt[b], cnt[b] = start[b]; /* cnt: write positions */
-    cnt[NO_BUCKET] = start[PAIR_BUCKETS];
-    /* pixel order, the right pair first. The strip's slots hold every
-     * pair (cap >= 2 npx), so the pairs of no bucket are placed too, after
-     * the lists, where nothing reads them: a store instead of a branch
-     * that was mispredicted wherever blocks and transitions meet pairs */
-    if (L->code)
-        for (size_t i = 0; i < npx; i++) {
-            L->code[at + cnt[t->bk[i]]++] = (uint16_t)(2 * i);
-            L->code[at + cnt[t->bk[i + npx]]++] = (uint16_t)(2 * i + 1);
-        }
-    else
-        for (size_t i = 0; i < npx; i++) {
-            uint32_t k2 = (uint32_t)(2 * (y0 * w + i));
-            L->pairs[at + cnt[t->bk[i]]++] = k2;
-            L->pairs[at + cnt[t->bk[i + npx]]++] = k2 + 1;
+    /* pixel order, the right pair first; most pairs have no bucket (the
+     * squares' inner pairs), in runs that the branch predicts */
+    for (size_t i = 0; i < npx; i++)
+        for (size_t dir = 0; dir < 2; dir++) {
+            uint16_t b = t->bk[i + dir * npx];
+            if (b == NO_BUCKET)
+                continue;
+            if (L->code)
+                L->code[at + cnt[b]++] = (uint16_t)(2 * i + dir);
+            else
+                L->pairs[at + cnt[b]++] = (uint32_t)(2 * (y0 * w + i) + dir);
         }
 }
 
-/* The strips' geometry (rows, count, list capacity) for a w x h image. */
+/* The strips' geometry (rows, count, list capacity) for a w x h image: a
+ * whole number of the largest squares per strip, so that the squares
+ * cover every strip alike. */
 static pair_lists pair_geometry(size_t w, size_t h)
 {
     pair_lists L;
     memset(&L, 0, sizeof L);
-    L.rows = 32768 / w < STRIP_ROWS ? (32768 / w ? 32768 / w : 1) : STRIP_ROWS;
+    L.rows = 32768 / w < STRIP_ROWS ? 32768 / w / SQUARE_MAX * SQUARE_MAX : STRIP_ROWS;
+    if (L.rows < STRIP_ROWS_MIN)
+        L.rows = STRIP_ROWS_MIN;
     L.strips = (h + L.rows - 1) / L.rows;
     L.cap = 2 * L.rows * w;
     return L;

@@ -992,6 +992,34 @@ static void blocks_match_pixel_order(void)
         }
 }
 
+/* A faint step along the middle of the 8 x 8 squares: a 1L field and
+ * patches at 1.2 and 0.8 steps whose sides run through x = 8k + 4 and
+ * y = 8k + 4, where a square's quarters meet. The step (0.2 of a monolayer's) is above
+ * the merging's delta (0.15) and below an edge's (0.3), so its pixels stay
+ * provisional and only the pairs across it keep the sides apart: a square
+ * whose quarters pass without the pairs between them would join them. */
+static void squares_keep_faint_steps(void)
+{
+    const size_t w = 160, h = 128;
+    lam_image *img = NULL;
+    lam_error err;
+    if (!check_int(lam_image_alloc(w, h, &img, &err), LAM_OK, "faint-step map allocated"))
+        return;
+    memset(img->clip_bits, 0, h * img->clip_stride);
+    double above[3], below[3];
+    for (int k = 0; k < 3; k++)
+        above[k] = 1.2 * FIELD_1L[k], below[k] = 0.8 * FIELD_1L[k];
+    paint_wh(img, w, 0, 0, w, h, FIELD_1L);
+    paint_wh(img, w, 36, 28, 124, 92, above);
+    paint_wh(img, w, 132, 12, 156, 116, below);
+    add_noise_wh(img, w, h, 0.0005, 99);
+    lam_contrast_map map;
+    lam_contrast_compact(img, &map, 1);
+    lam_image_free(img);
+    compare_orders(&map, FIELD_1L, "a faint step through the squares' middles");
+    lam_contrast_map_free(&map);
+}
+
 /* Hole filling's flood on winding paths (segment_join.c flood, a span
  * at a time): a flake with three serpentine channels 5 px wide, regions
  * of no confident count (as JPEG rings are), each turning back on itself
@@ -1091,6 +1119,7 @@ int main(void)
     check_begin("test_segment");
     merge_test_matches_division();
     blocks_match_pixel_order();
+    squares_keep_faint_steps();
     region_depth_matches_definition();
     test_rescue_cores();
     rescue_cores_match_definition();

@@ -46,9 +46,10 @@ typedef struct lam_segment_options {
      * c1's (0) */
     double faint_step;
     /* lam_segment_uniform: 1 merges pixel by pixel in the published
-     * method's order only, without first making flat 2 x 2 and 4 x 4
-     * blocks one region each (segment_grow.c premerge_blocks): the
-     * segmentation a fifth slower, for checking the blocks against (0) */
+     * method's order only, without first making flat 2 x 2 blocks and
+     * 4 x 4 and 8 x 8 squares one region each (segment_grow.c
+     * premerge_blocks): about five times the pairs to merge (23.4 M
+     * against 4.2 M at 12 MP), for checking the blocks against (0) */
     int pixel_order;
 } lam_segment_options;
 
