@@ -672,6 +672,7 @@ typedef struct strip_rows {
     size_t y0, w, npx;
     const uint8_t *cls; /* the image's classes */
     size_t h;
+    size_t x0, yq;      /* the square being premerged (premerge_square) */
 } strip_rows;
 
 static uint16_t *right_of(const strip_rows *r, size_t y)
@@ -684,28 +685,64 @@ static uint16_t *down_of(const strip_rows *r, size_t y)
     return r->bk + r->npx + (y - r->y0) * r->w;
 }
 
-/* Do the four inner pairs of the 2 x 2 block at (x, y) pass (buckets
- * below limit)? */
-static int block_fits(const strip_rows *r, size_t x, size_t y, uint16_t limit)
+/* The largest bucket of the four inner pairs of the 2 x 2 block at (x, y). */
+static uint16_t block_max(const strip_rows *r, size_t x, size_t y)
 {
     const uint16_t *r0 = right_of(r, y), *r1 = right_of(r, y + 1), *d0 = down_of(r, y);
-    return (r0[x] < limit) & (r1[x] < limit) & (d0[x] < limit) & (d0[x + 1] < limit);
+    uint16_t a = r0[x] > r1[x] ? r0[x] : r1[x], b = d0[x] > d0[x + 1] ? d0[x] : d0[x + 1];
+    return a > b ? a : b;
 }
 
-/* Does the size x size square at (x, y) pass (size 2: block_fits; 4, 8:
- * its four quarters pass and so do the 2 size pairs between them)? */
-static int square_fits(const strip_rows *r, size_t x, size_t y, size_t size, uint16_t limit)
+/* The largest bucket of each part of one square, computed once from the
+ * blocks up (the recursive test of each part alone looked at every block
+ * up to three times): at[l] holds the parts of size 2 << l, level 0 the
+ * 2 x 2 blocks up to the square itself at its top level, row-major over
+ * the square's grid of such parts. A part passes when its largest bucket
+ * is below the limit: then all its inner pairs are. */
+#define SQUARE_LEVELS 3 /* blocks of 2, squares of 4 and 8 pixels */
+_Static_assert(SQUARE_MAX == 2 << (SQUARE_LEVELS - 1), "one level per square size");
+
+typedef struct square_maxima {
+    uint16_t at[SQUARE_LEVELS][(SQUARE_MAX / 2) * (SQUARE_MAX / 2)];
+} square_maxima;
+
+/* The largest bucket of the pairs between the quarters of the size x size
+ * square at (x, y): the column and the row where they meet. */
+static uint16_t between_max(const strip_rows *r, size_t x, size_t y, size_t size)
 {
-    if (size == 2)
-        return block_fits(r, x, y, limit);
     size_t half = size / 2;
-    int ok = square_fits(r, x, y, half, limit) & square_fits(r, x + half, y, half, limit) &
-             square_fits(r, x, y + half, half, limit) &
-             square_fits(r, x + half, y + half, half, limit);
     const uint16_t *across = down_of(r, y + half - 1);
-    for (size_t i = 0; ok && i < size; i++)
-        ok &= (right_of(r, y + i)[x + half - 1] < limit) & (across[x + i] < limit);
-    return ok;
+    uint16_t mx = 0;
+    for (size_t i = 0; i < size; i++) {
+        uint16_t v = right_of(r, y + i)[x + half - 1], u = across[x + i];
+        mx = v > mx ? v : mx;
+        mx = u > mx ? u : mx;
+    }
+    return mx;
+}
+
+/* The maxima of the square at (x, y) of size 2 << top and of its parts. */
+static void square_maxima_of(const strip_rows *r, size_t x, size_t y, size_t top,
+                             square_maxima *q)
+{
+    size_t n = (size_t)1 << top; /* blocks per side */
+    for (size_t i = 0; i < n; i++)
+        for (size_t j = 0; j < n; j++)
+            q->at[0][i * n + j] = block_max(r, x + 2 * j, y + 2 * i);
+    for (size_t l = 1; l <= top; l++) {
+        size_t side = n >> l, size = (size_t)2 << l, below = side * 2;
+        for (size_t i = 0; i < side; i++)
+            for (size_t j = 0; j < side; j++) {
+                const uint16_t *b = q->at[l - 1];
+                uint16_t mx = between_max(r, x + j * size, y + i * size, size);
+                uint16_t c[4] = {b[2 * i * below + 2 * j], b[2 * i * below + 2 * j + 1],
+                                 b[(2 * i + 1) * below + 2 * j],
+                                 b[(2 * i + 1) * below + 2 * j + 1]};
+                for (size_t k = 0; k < 4; k++)
+                    mx = c[k] > mx ? c[k] : mx;
+                q->at[l][i * side + j] = mx;
+            }
+    }
 }
 
 /* Is every pixel of the size x size square at (x, y) and of the ring
@@ -771,29 +808,48 @@ static void merge_square(merge_state *m, slot_pool *pool, const strip_rows *r, s
     drop_inner_pairs(r, x, y, size);
 }
 
-/* The size x size square at (x, y) as one region when it passes, else
- * each of its quarters the same way, down to 2 x 2 blocks. */
-static void premerge_square(merge_state *m, slot_pool *pool, const strip_rows *r, size_t x,
-                            size_t y, size_t size)
+/* The square of level l at (i, j) of q's grid (pixel (x, y), size 2 << l)
+ * as one region when it passes, else each of its quarters the same way,
+ * down to 2 x 2 blocks. inside: the square is known to lie inside a
+ * uniform area (then so do its parts); otherwise it is looked at only when
+ * its maximum lies between the two limits, where that decides. */
+static void premerge_part(merge_state *m, slot_pool *pool, const strip_rows *r,
+                          const square_maxima *q, size_t top, size_t l, size_t i, size_t j,
+                          int inside)
 {
-    uint16_t limit = square_inside(r, x, y, size) ? INTERIOR_BUCKETS : BLOCK_BUCKETS;
-    if (square_fits(r, x, y, size, limit)) {
+    size_t size = (size_t)2 << l, side = (size_t)1 << (top - l);
+    size_t x = r->x0 + j * size, y = r->yq + i * size;
+    uint16_t mx = q->at[l][i * side + j];
+    if (mx >= BLOCK_BUCKETS && mx < INTERIOR_BUCKETS && !inside)
+        inside = square_inside(r, x, y, size);
+    if (mx < (inside ? INTERIOR_BUCKETS : BLOCK_BUCKETS)) {
         merge_square(m, pool, r, x, y, size);
         return;
     }
-    if (size == 2)
+    if (l == 0)
         return;
-    size_t half = size / 2;
-    premerge_square(m, pool, r, x, y, half);
-    premerge_square(m, pool, r, x + half, y, half);
-    premerge_square(m, pool, r, x, y + half, half);
-    premerge_square(m, pool, r, x + half, y + half, half);
+    for (size_t k = 0; k < 4; k++)
+        premerge_part(m, pool, r, q, top, l - 1, 2 * i + k / 2, 2 * j + k % 2, inside);
+}
+
+/* The size x size square at (x, y) as one region when it passes, else
+ * each of its quarters the same way, down to 2 x 2 blocks. */
+static void premerge_square(merge_state *m, slot_pool *pool, strip_rows *r, size_t x,
+                            size_t y, size_t size)
+{
+    size_t top = 0;
+    while (((size_t)2 << top) < size)
+        top++;
+    square_maxima q;
+    square_maxima_of(r, x, y, top, &q);
+    r->x0 = x, r->yq = y;
+    premerge_part(m, pool, r, &q, top, top, 0, 0, 0);
 }
 
 /* The squares of rows y..y + size - 1 on the image's grid of size x size
  * squares, then the columns left over (narrower than size) in smaller
  * squares. */
-static void premerge_square_row(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y,
+static void premerge_square_row(merge_state *m, slot_pool *pool, strip_rows *r, size_t y,
                                  size_t size)
 {
     size_t x = 0;
@@ -814,7 +870,7 @@ static void premerge_blocks(merge_state *m, slot_pool *pool, const pair_ctx *p, 
                             size_t y1, uint16_t *bk)
 {
     size_t w = p->img->width;
-    strip_rows r = {bk, y0, w, (y1 - y0) * w, p->cls, p->img->height};
+    strip_rows r = {bk, y0, w, (y1 - y0) * w, p->cls, p->img->height, 0, 0};
     for (size_t y = y0; y + 1 < y1;) {
         size_t size = SQUARE_MAX;
         while (size > 2 && (y % size || y + size > y1))
