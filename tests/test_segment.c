@@ -601,13 +601,13 @@ static void usable_rectangle_matches_definition(void)
     check_true(nonzero > 20, "the maps have usable rectangles (%zu)", nonzero);
 }
 
-/* An image wider than 32768 px (strips of one row, pair lists of 32-bit
- * pixel indices, not 16-bit codes), with a band border every 8 rows: a
- * monolayer block across 20 rows is one region of its area, the same for
+/* An image wider than 32768 px (strips of 8 rows, pair lists of 32-bit
+ * pixel indices, not 16-bit codes), with a band border every 64 rows: a
+ * monolayer block across 72 rows is one region of its area, the same for
  * 1 and 2 threads. */
 static void wide_image(void)
 {
-    const size_t w = 40000, h = 20, x0 = 1000, x1 = 39000;
+    const size_t w = 40000, h = 72, x0 = 1000, x1 = 39000;
     lam_image *img = NULL;
     lam_segmentation *seg[2] = {NULL, NULL};
     lam_error err;
@@ -629,7 +629,7 @@ static void wide_image(void)
              !lam_segment_uniform(&map, 3, MONO, noise, scatter, &so, seg[t], &err);
     }
     if (check_true(ok, "wide image segmented with 1 and 2 threads")) {
-        uint32_t l = seg[0]->label[10 * w + 20000];
+        uint32_t l = seg[0]->label[36 * w + 20000];
         /* out: the 2-pixel frame and the block's 2 edge columns either side
          * (the 4-pixel test), each with the 1-pixel dilation */
         size_t want = (x1 - x0 - 6) * (h - 6), area = l ? seg[0]->regions[l - 1].area : 0;
