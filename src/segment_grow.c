@@ -659,11 +659,11 @@ typedef struct strip_scratch {
  * segmentation near its edges moved a marginal oxide check); half a delta
  * everywhere split a 25-layer flake's blurred edge into a region of its
  * own (test_analyze); a whole delta everywhere fails test_segment's field
- * of faint flakes. On the accuracy harness such changes move JPEG tiles whose fit
- * is on a knife's edge, both ways (docs/performance.md). */
+ * of faint flakes. On the accuracy harness such changes move JPEG tiles
+ * whose fit is on a knife's edge, both ways (docs/performance.md). */
 #define BLOCK_BUCKETS 64     /* of the 1024 over 6 deltas: below 3/8 of a delta, */
 #define INTERIOR_BUCKETS 128 /* and 3/4 of one inside a uniform area */
-#define SQUARE_MAX 8     /* the largest square, in pixels */
+#define SQUARE_MAX 8         /* the largest square, in pixels */
 
 /* A strip's buckets by row: right(y) the pairs (k, k + 1) of row y, down(y)
  * the pairs (k, k + w). */
@@ -672,7 +672,6 @@ typedef struct strip_rows {
     size_t y0, w, npx;
     const uint8_t *cls; /* the image's classes */
     size_t h;
-    size_t x0, yq;      /* the square being premerged (premerge_square) */
 } strip_rows;
 
 static uint16_t *right_of(const strip_rows *r, size_t y)
@@ -808,49 +807,55 @@ static void merge_square(merge_state *m, slot_pool *pool, const strip_rows *r, s
     drop_inner_pairs(r, x, y, size);
 }
 
-/* The square of level l at (i, j) of q's grid (pixel (x, y), size 2 << l)
- * as one region when it passes, else each of its quarters the same way,
- * down to 2 x 2 blocks. inside: the square is known to lie inside a
- * uniform area (then so do its parts); otherwise it is looked at only when
- * its maximum lies between the two limits, where that decides. */
-static void premerge_part(merge_state *m, slot_pool *pool, const strip_rows *r,
-                          const square_maxima *q, size_t top, size_t l, size_t i, size_t j,
-                          int inside)
+/* One square being premerged: its top-left pixel, its top level and the
+ * largest buckets of its parts. */
+typedef struct square_job {
+    const strip_rows *r;
+    size_t x, y, top;
+    square_maxima q;
+} square_job;
+
+/* The part of level l at (i, j) of the square's grid of such parts (size
+ * 2 << l) as one region when it passes, else each of its quarters the
+ * same way, down to 2 x 2 blocks. inside: the part is known to lie inside
+ * a uniform area (then so do its quarters); otherwise its ring is looked
+ * at only when its maximum lies between the two limits, where that
+ * decides. */
+static void premerge_part(merge_state *m, slot_pool *pool, const square_job *s, size_t l,
+                          size_t i, size_t j, int inside)
 {
-    size_t size = (size_t)2 << l, side = (size_t)1 << (top - l);
-    size_t x = r->x0 + j * size, y = r->yq + i * size;
-    uint16_t mx = q->at[l][i * side + j];
+    size_t size = (size_t)2 << l, side = (size_t)1 << (s->top - l);
+    size_t x = s->x + j * size, y = s->y + i * size;
+    uint16_t mx = s->q.at[l][i * side + j];
     if (mx >= BLOCK_BUCKETS && mx < INTERIOR_BUCKETS && !inside)
-        inside = square_inside(r, x, y, size);
+        inside = square_inside(s->r, x, y, size);
     if (mx < (inside ? INTERIOR_BUCKETS : BLOCK_BUCKETS)) {
-        merge_square(m, pool, r, x, y, size);
+        merge_square(m, pool, s->r, x, y, size);
         return;
     }
     if (l == 0)
         return;
     for (size_t k = 0; k < 4; k++)
-        premerge_part(m, pool, r, q, top, l - 1, 2 * i + k / 2, 2 * j + k % 2, inside);
+        premerge_part(m, pool, s, l - 1, 2 * i + k / 2, 2 * j + k % 2, inside);
 }
 
 /* The size x size square at (x, y) as one region when it passes, else
  * each of its quarters the same way, down to 2 x 2 blocks. */
-static void premerge_square(merge_state *m, slot_pool *pool, strip_rows *r, size_t x,
+static void premerge_square(merge_state *m, slot_pool *pool, const strip_rows *r, size_t x,
                             size_t y, size_t size)
 {
-    size_t top = 0;
-    while (((size_t)2 << top) < size)
-        top++;
-    square_maxima q;
-    square_maxima_of(r, x, y, top, &q);
-    r->x0 = x, r->yq = y;
-    premerge_part(m, pool, r, &q, top, top, 0, 0, 0);
+    square_job s = {r, x, y, 0, {{{0}}}};
+    while (((size_t)2 << s.top) < size)
+        s.top++;
+    square_maxima_of(r, x, y, s.top, &s.q);
+    premerge_part(m, pool, &s, s.top, 0, 0, 0);
 }
 
 /* The squares of rows y..y + size - 1 on the image's grid of size x size
  * squares, then the columns left over (narrower than size) in smaller
  * squares. */
-static void premerge_square_row(merge_state *m, slot_pool *pool, strip_rows *r, size_t y,
-                                 size_t size)
+static void premerge_square_row(merge_state *m, slot_pool *pool, const strip_rows *r, size_t y,
+                                size_t size)
 {
     size_t x = 0;
     for (; x + size <= r->w; x += size)
@@ -870,7 +875,7 @@ static void premerge_blocks(merge_state *m, slot_pool *pool, const pair_ctx *p, 
                             size_t y1, uint16_t *bk)
 {
     size_t w = p->img->width;
-    strip_rows r = {bk, y0, w, (y1 - y0) * w, p->cls, p->img->height, 0, 0};
+    strip_rows r = {bk, y0, w, (y1 - y0) * w, p->cls, p->img->height};
     for (size_t y = y0; y + 1 < y1;) {
         size_t size = SQUARE_MAX;
         while (size > 2 && (y % size || y + size > y1))
