@@ -393,8 +393,7 @@ static double calibration_scale(lam_analysis *a, lam_model *model)
  * two, the fit is nearer a doubled or halved reading than the calibration. */
 static void check_calibration_scale(lam_analysis *a, const lam_setup *s, lam_model *model)
 {
-    int calibrated = setup_calibrated(s);
-    if (!calibrated || lam_setup_crystal_kind(s) != LAM_CRYSTAL_SHEETS || !a->estimate)
+    if (!setup_calibrated(s) || lam_setup_crystal_kind(s) != LAM_CRYSTAL_SHEETS || !a->estimate)
         return;
     double q = calibration_scale(a, model);
     if (!(q < 1 / SCALE_DOUBT || q > SCALE_DOUBT))

@@ -308,6 +308,13 @@ double lam_estimate_floor_var(const lam_estimate *e, size_t channel, double meas
     return f * f;
 }
 
+void lam__region_var(const lam_estimate *e, const lam_est_region *r,
+                     double var[LAM_MAX_CHANNELS])
+{
+    for (size_t c = 0; c < e->channels; c++)
+        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+}
+
 lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick,
                                lam_prediction *out, lam_error *err)
 {
@@ -374,14 +381,14 @@ void lam__ladder_terms_of(const lam_estimate *e, const lam_prediction *ladder,
  * some entry); only thin flakes should inform the fit. The region
  * posteriors (infer.c) use the sharp entries. */
 static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
-                                 const lam__ladder_terms *t)
+                                 const double *var, const lam__ladder_terms *t)
 {
     if (!t->any)
         return -INFINITY;
     double s = 0, span = 1;
     for (size_t c = 0; c < e->channels; c++) {
         double lo = t->lo[c], hi = t->hi[c];
-        double f = sqrt(r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
+        double f = sqrt(var[c]);
         lo -= 3 * f, hi += 3 * f;
         double m = r->mean[c], out = m < lo ? lo - m : (m > hi ? m - hi : 0);
         s -= 0.5 * (out / f) * (out / f);
@@ -398,20 +405,17 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
  * so much that a wrong layer ladder which explains residue as a thick
  * flake could beat the right one (a WSe2 chip of 102 nm sold as 90 read
  * 3L/3L/4L for 1L/2L/3L). */
-double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
+double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
                               const lam_prediction *ladder)
 {
     size_t nc = e->channels, n = ladder->residues;
     double box = -(double)nc * log(LAM_UNMODELLED_SIDE);
     if (!n)
         return box;
-    /* the variance is the region's own (the floor at its measured
-     * contrast), the same for every film */
-    double var[LAM_MAX_CHANNELS], prod = 1;
-    for (size_t c = 0; c < nc; c++) {
-        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+    /* the variance is the region's own, the same for every film */
+    double prod = 1;
+    for (size_t c = 0; c < nc; c++)
         prod *= 2 * M_PI * var[c];
-    }
     /* chi^2 of every film first (no logarithms): most regions lie far from
      * the residue's curve, and only films near the best one add mass */
     double q[LAM_RESIDUE_FILMS], qmin = INFINITY;
@@ -459,14 +463,13 @@ void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
     double var[LAM_MAX_CHANNELS];
-    for (size_t c = 0; c < nc; c++)
-        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+    lam__region_var(e, r, var);
     for (size_t h = 0; h <= K && h <= top; h++) {
         lt[h] = (h ? t->log_prior_layers : t->log_prior_substrate) +
                 lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
     }
-    lt[K + 1] = t->log_prior_thick + thick_broad_logpdf(e, r, t);
-    lt[K + 2] = t->log_prior_unmodelled + lam__unmodelled_logpdf(e, r, ladder);
+    lt[K + 1] = t->log_prior_thick + thick_broad_logpdf(e, r, var, t);
+    lt[K + 2] = t->log_prior_unmodelled + lam__unmodelled_logpdf(e, r, var, ladder);
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */
         size_t k = (size_t)r->known_layers <= K ? (size_t)r->known_layers : K + 1;

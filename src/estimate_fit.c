@@ -208,13 +208,15 @@ static void add_region(const lam_estimate *e, const lam_est_region *r, const dou
                        const img_work *w, normal_eq *q, size_t j)
 {
     size_t n = q->n, K = e->max_layers, nc = e->channels;
+    double var[LAM_MAX_CHANNELS];
+    lam__region_var(e, r, var);
     for (size_t h = 1; h <= K; h++) {
         double rh = resp[h];
         if (rh < 1e-6)
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = w->ladder.contrast[h][c];
-            double wt = rh / (r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
+            double wt = rh / var[c];
             double res = r->mean[c] - pred;
             double jd = w->grad[n][h][c];
             for (size_t a = 0; a < n; a++) {

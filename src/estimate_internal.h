@@ -11,9 +11,16 @@ double lam__gauss_logpdf(const double *m, const double *mu, const double *var, s
 
 double lam__logsumexp(const double *x, size_t n);
 
-/* ln of the unmodelled hypothesis' density of a region: a broad box, and
- * the ladder's residue films when it has them (estimate.c). */
-double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r,
+/* A region's variance in each channel, the same under every hypothesis:
+ * its statistical variance plus the model floor at its measured contrast
+ * (lam_estimate_floor_var). */
+void lam__region_var(const lam_estimate *e, const lam_est_region *r,
+                     double var[LAM_MAX_CHANNELS]);
+
+/* ln of the unmodelled hypothesis' density of a region of variance var
+ * (lam__region_var): a broad box, and the ladder's residue films when it
+ * has them (estimate.c). */
+double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
                               const lam_prediction *ladder);
 
 /* log(prior x likelihood) per hypothesis (K + 3 values: substrate, 1..K,

@@ -47,6 +47,7 @@ typedef struct loo {
     size_t n;
     double shift[LAM__MAT_MAX];
     lam__mat cov;
+    double var[LAM_MAX_CHANNELS]; /* the region's own variance (lam__region_var) */
 } loo;
 
 /* The one-step leave-one-out shift is linear in the region's gradient: for
@@ -67,13 +68,15 @@ static void damp_shift(loo *out, const lam__mat fit_prec, size_t n)
 }
 
 /* Remove region r's information (its responsibility-weighted Gauss-Newton
- * Hessian and gradient) from the posterior of the view's parameters. */
+ * Hessian and gradient) from the posterior of the view's parameters; out
+ * also keeps the region's own variance, which every hypothesis shares. */
 static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
                       const double *resp, loo *out)
 {
     size_t n = v->nfree, K = e->max_layers, nc = e->channels;
     out->n = n;
     memset(out->shift, 0, sizeof out->shift);
+    lam__region_var(e, r, out->var);
     lam__mat l, prec;
     for (size_t a = 0; a < n; a++)
         for (size_t b = 0; b < n; b++)
@@ -90,7 +93,7 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = v->ladder.contrast[h][c];
-            double w = resp[h] / (r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]));
+            double w = resp[h] / out->var[c];
             for (size_t a = 0; a < n; a++) {
                 g[a] += w * v->grad[a][h][c] * (r->mean[c] - pred);
                 for (size_t b = 0; b < n; b++)
@@ -131,8 +134,8 @@ static double mvn_logpdf(const double *m, const double *mean, const double s[3][
 
 /* Predictive mean and covariance of hypothesis h (h <= K) with the
  * parameters left out. */
-static void predictive(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
-                       const loo *lo, size_t h, double mean[3], double s[3][3])
+static void predictive(const lam_estimate *e, const lam_est_view *v, const loo *lo, size_t h,
+                       double mean[3], double s[3][3])
 {
     size_t nc = e->channels, n = lo->n;
     for (size_t c = 0; c < nc; c++) {
@@ -149,7 +152,7 @@ static void predictive(const lam_estimate *e, const lam_est_view *v, const lam_e
             s[c][d] = t;
         }
     for (size_t c = 0; c < nc; c++)
-        s[c][c] += r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
+        s[c][c] += lo->var[c];
 }
 
 /* The goodness of fit of a region against its most probable layer count:
@@ -174,18 +177,16 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
     size_t K = e->max_layers, nc = e->channels, top = v->ladder.max_layers;
     double mean[3], s[3][3];
     for (size_t h = 0; h <= K; h++) {
-        predictive(e, v, r, lo, h, mean, s);
+        predictive(e, v, lo, h, mean, s);
         lt[h] = log(lam_hypothesis_prior(h, K)) + mvn_logpdf(r->mean, mean, s, nc, &chi2[h]);
     }
-    double thick[LAM_MODEL_MAX_LAYERS + 1], var[3];
+    double thick[LAM_MODEL_MAX_LAYERS + 1];
     size_t nt = 0;
-    for (size_t c = 0; c < nc; c++)
-        var[c] = r->var[c] + lam_estimate_floor_var(e, c, r->mean[c]);
     for (size_t N = K + 1; N <= top; N++)
-        thick[nt++] = lam__gauss_logpdf(r->mean, v->ladder.contrast[N], var, nc);
+        thick[nt++] = lam__gauss_logpdf(r->mean, v->ladder.contrast[N], lo->var, nc);
     lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
                    : -INFINITY;
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, &v->ladder);
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, lo->var, &v->ladder);
 }
 
 /* ---- the Fermi level ---- */
@@ -275,7 +276,7 @@ static void fermi_loglik(const lam_estimate *e, const lam_est_view *v, const lam
                          const lam_est_region *r, const loo *lo, size_t N, double *ll)
 {
     double mean[3], s[3][3], shifted[3];
-    predictive(e, v, r, lo, N, mean, s);
+    predictive(e, v, lo, N, mean, s);
     for (size_t i = 0; i < t->count; i++) {
         for (size_t c = 0; c < e->channels; c++)
             shifted[c] = t->contrast[i][N][c] + (mean[c] - v->ladder.contrast[N][c]);
@@ -408,10 +409,10 @@ void lam_infer_region(const lam_estimate *e, const lam_est_view *v, const lam_fe
     o->p_substrate = o->p[0];
     size_t shown = best >= 1 && best <= K ? best : best_layers;
     double mean[3], sc[3][3];
-    predictive(e, v, r, &lo, best_layers, mean, sc);
+    predictive(e, v, &lo, best_layers, mean, sc);
     o->chi2 = diagonal_chi2(r->mean, mean, sc, nc);
     o->pvalue = gsl_cdf_chisq_Q(o->chi2, (double)nc);
-    predictive(e, v, r, &lo, shown, mean, sc);
+    predictive(e, v, &lo, shown, mean, sc);
     for (size_t c = 0; c < nc; c++) {
         o->mean[c] = r->mean[c];
         o->model[c] = v->ladder.contrast[shown][c];
