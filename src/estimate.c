@@ -327,17 +327,28 @@ lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick
 
 /* ---- the likelihood of one region, shared with infer.c ---- */
 
-double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc)
+double lam__log_norm(const double *var, size_t nc)
 {
-    /* one logarithm of the product of the variances, not one per channel:
-     * this is the innermost call of the fit's starting grid */
-    double s = 0, prod = 1;
+    double prod = 1;
+    for (size_t c = 0; c < nc; c++)
+        prod *= 2 * M_PI * var[c];
+    return log(prod);
+}
+
+double lam__gauss_logpdf_norm(const double *m, const double *mu, const double *var, size_t nc,
+                              double log_norm)
+{
+    double s = 0;
     for (size_t c = 0; c < nc; c++) {
         double d = m[c] - mu[c];
         s += d * d / var[c];
-        prod *= 2 * M_PI * var[c];
     }
-    return -0.5 * (s + log(prod));
+    return -0.5 * (s + log_norm);
+}
+
+double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc)
+{
+    return lam__gauss_logpdf_norm(m, mu, var, nc, lam__log_norm(var, nc));
 }
 
 double lam__logsumexp(const double *x, size_t n)
@@ -406,16 +417,12 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
  * flake could beat the right one (a WSe2 chip of 102 nm sold as 90 read
  * 3L/3L/4L for 1L/2L/3L). */
 double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
-                              const lam_prediction *ladder)
+                              double log_norm, const lam_prediction *ladder)
 {
     size_t nc = e->channels, n = ladder->residues;
     double box = -(double)nc * log(LAM_UNMODELLED_SIDE);
     if (!n)
         return box;
-    /* the variance is the region's own, the same for every film */
-    double prod = 1;
-    for (size_t c = 0; c < nc; c++)
-        prod *= 2 * M_PI * var[c];
     /* chi^2 of every film first (no logarithms): most regions lie far from
      * the residue's curve, and only films near the best one add mass */
     double q[LAM_RESIDUE_FILMS], qmin = INFINITY;
@@ -427,12 +434,12 @@ double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, co
         }
         qmin = fmin(qmin, q[k]);
     }
-    double top = -INFINITY, ll[LAM_RESIDUE_FILMS], log_prod = log(prod);
+    double top = -INFINITY, ll[LAM_RESIDUE_FILMS];
     for (size_t k = 0; k < n; k++) {
         ll[k] = -INFINITY;
         if (q[k] > qmin + 60) /* below e^-30 of the best film */
             continue;
-        top = fmax(top, ll[k] = -0.5 * (q[k] + log_prod));
+        top = fmax(top, ll[k] = -0.5 * (q[k] + log_norm)); /* var: the same for every film */
     }
     double film = top + log(1.0 / (double)n);
     if (film < box - 40)
@@ -454,22 +461,36 @@ void lam__region_logterms(const lam_estimate *e, const lam_est_region *r,
 {
     lam__ladder_terms t;
     lam__ladder_terms_of(e, ladder, &t);
-    lam__region_logterms_in(e, r, ladder, &t, lt);
+    lam__region_logterms_in(e, r, ladder, &t, NULL, lt);
+}
+
+void lam__region_fixed_of(const lam_estimate *e, const lam_est_region *r,
+                          const lam_prediction *ladder, lam__region_fixed *out)
+{
+    lam__region_var(e, r, out->var);
+    out->log_norm = lam__log_norm(out->var, e->channels);
+    out->unmodelled = lam__unmodelled_logpdf(e, r, out->var, out->log_norm, ladder);
 }
 
 void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
                              const lam_prediction *ladder, const lam__ladder_terms *t,
-                             double *lt)
+                             const lam__region_fixed *fixed, double *lt)
 {
     size_t K = e->max_layers, nc = e->channels, top = ladder->max_layers;
-    double var[LAM_MAX_CHANNELS];
-    lam__region_var(e, r, var);
+    lam__region_fixed own;
+    if (!fixed) {
+        lam__region_fixed_of(e, r, ladder, &own);
+        fixed = &own;
+    }
+    /* the normaliser once, not once per hypothesis: every hypothesis
+     * shares the region's variance */
     for (size_t h = 0; h <= K && h <= top; h++) {
         lt[h] = (h ? t->log_prior_layers : t->log_prior_substrate) +
-                lam__gauss_logpdf(r->mean, ladder->contrast[h], var, nc);
+                lam__gauss_logpdf_norm(r->mean, ladder->contrast[h], fixed->var, nc,
+                                       fixed->log_norm);
     }
-    lt[K + 1] = t->log_prior_thick + thick_broad_logpdf(e, r, var, t);
-    lt[K + 2] = t->log_prior_unmodelled + lam__unmodelled_logpdf(e, r, var, ladder);
+    lt[K + 1] = t->log_prior_thick + thick_broad_logpdf(e, r, fixed->var, t);
+    lt[K + 2] = t->log_prior_unmodelled + fixed->unmodelled;
     if (r->known_layers > 0) {
         /* a label: only its hypothesis counts */
         size_t k = (size_t)r->known_layers <= K ? (size_t)r->known_layers : K + 1;

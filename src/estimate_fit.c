@@ -142,19 +142,24 @@ lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, 
 double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                           double *resp)
 {
-    return lam__image_logpost_with(e, j, ladder, prior_term(&e->image[j].oxide), resp);
+    return lam__image_logpost_with(e, j, ladder, prior_term(&e->image[j].oxide), NULL, resp);
 }
 
-/* exp(d), or 0 below -746, where exp gives 0 anyway (it underflows below
- * -745.14): glibc's exp takes a slow path for such arguments (it sets
- * errno), and most of a region's hypotheses lie that far below its best. */
+/* A hypothesis' share exp(d) of the best one's, or 0 where it cannot
+ * count: below e^-37 (8.5e-17, under half a unit in the last place of
+ * the sum, which holds the best hypothesis' 1) adding it leaves the sum
+ * as it is once the best is in, and a share that small changes no
+ * weight (the fit skips responsibilities below 1e-6). Six in ten of the
+ * starting grid's exponentials lie there at 3 MP; glibc's exp also takes
+ * a slow path below -745 (it sets errno). */
+#define NEGLIGIBLE_LOG_SHARE (-37.0)
 static double exp_or_zero(double d)
 {
-    return d < -746.0 ? 0.0 : exp(d);
+    return d < NEGLIGIBLE_LOG_SHARE ? 0.0 : exp(d);
 }
 
 double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
-                               double oxide_prior, double *resp)
+                               double oxide_prior, const lam__region_fixed *fixed, double *resp)
 {
     const lam_est_image *im = &e->image[j];
     size_t H = e->max_layers + 3;
@@ -165,10 +170,10 @@ double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_predic
         const lam_est_region *r = &im->regions[i];
         if (!r->use)
             continue;
-        lam__region_logterms_in(e, r, ladder, &t, lt);
+        lam__region_logterms_in(e, r, ladder, &t, fixed ? &fixed[i] : NULL, lt);
         double top = -INFINITY, sum = 0;
         for (size_t h = 0; h < H; h++)
-            top = fmax(top, lt[h]);
+            top = lt[h] > top ? lt[h] : top; /* fmax(top, lt[h]), NaN too, without a call */
         if (!isfinite(top)) { /* as lam__logsumexp: no hypothesis at all */
             total += top;
             for (size_t h = 0; resp && h < H; h++)

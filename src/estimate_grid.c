@@ -21,6 +21,7 @@
 #include "lamina/parallel.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -108,14 +109,15 @@ static double channel_factor(const lam_estimate *e, const lam_est_image *im, con
  * ox_prior) scaled by s, channel factors profiled. Q and resp are scratch;
  * the factors are returned in f. */
 static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *P,
-                         double ox_prior, double s, lam_prediction *Q, double *resp, double *f)
+                         double ox_prior, const lam__region_fixed *fixed, double s,
+                         lam_prediction *Q, double *resp, double *f)
 {
     const lam_est_image *im = &e->image[j];
     double zs = log(s) / SCALE_PRIOR_SD_LOG;
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
         f[c] = 1;
     scaled(P, s, Q);
-    double score = lam__image_logpost_with(e, j, Q, ox_prior, resp);
+    double score = lam__image_logpost_with(e, j, Q, ox_prior, fixed, resp);
     for (int round = 0; round < FACTOR_ROUNDS; round++) {
         double prior = 0;
         for (size_t c = 0; c < P->channels; c++) {
@@ -126,7 +128,7 @@ static double cell_score(const lam_estimate *e, size_t j, const lam_prediction *
             double sd = factor_sd(e, c), z = sd > 0 ? log(f[c]) / sd : 0;
             prior -= 0.5 * z * z;
         }
-        score = lam__image_logpost_with(e, j, Q, ox_prior, resp) + prior;
+        score = lam__image_logpost_with(e, j, Q, ox_prior, fixed, resp) + prior;
     }
     return score - 0.5 * zs * zs;
 }
@@ -141,16 +143,31 @@ typedef struct grid_job {
     grid *g;
     lam_prediction *Q;            /* per slice */
     double *resp;                 /* per slice: count x H */
+    lam__region_fixed *fixed;     /* per slice: count, of one oxide step's ladder */
 } grid_job;
+
+/* The regions' fixed terms against oxide step d's ladder: the same in all
+ * the step's cells (the scale and the factors move only the layers). */
+static void fix_regions(const grid_job *x, size_t d, lam__region_fixed *fixed)
+{
+    const lam_est_image *im = &x->e->image[x->j];
+    for (size_t i = 0; i < im->count; i++)
+        if (im->regions[i].use)
+            lam__region_fixed_of(x->e, &im->regions[i], &x->ladder[d], &fixed[i]);
+}
 
 static void score_cells(size_t begin, size_t end, size_t slice, void *ctx)
 {
     grid_job *x = ctx;
     const lam_nuisance *ox = &x->e->image[x->j].oxide;
+    lam__region_fixed *fixed = x->fixed + slice * x->count;
+    size_t fixed_step = SIZE_MAX;
     for (size_t cell = begin; cell < end; cell++) {
         size_t d = cell / SCALE_STEPS;
+        if (d != fixed_step)
+            fix_regions(x, fixed_step = d, fixed);
         double f[LAM_MAX_CHANNELS], oxide = x->g->lo + x->g->step * (double)d;
-        x->g->score[cell] = cell_score(x->e, x->j, &x->ladder[d], lam__prior_at(ox, oxide),
+        x->g->score[cell] = cell_score(x->e, x->j, &x->ladder[d], lam__prior_at(ox, oxide), fixed,
                                        scale_at((int)(cell % SCALE_STEPS)), &x->Q[slice],
                                        x->resp + slice * x->count * x->H, f);
         for (size_t c = 0; c < LAM_MAX_CHANNELS; c++)
@@ -226,13 +243,14 @@ static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g
         g->lo = im->oxide.value;
     size_t threads = e->opt.threads ? e->opt.threads : 1, cells = g->n * SCALE_STEPS;
     threads = threads < cells ? threads : cells;
-    grid_job x = {e, j, im->count ? im->count : 1, e->max_layers + 3, NULL, g, NULL, NULL};
+    grid_job x = {e, j, im->count ? im->count : 1, e->max_layers + 3, NULL, g, NULL, NULL, NULL};
     lam_prediction *L = malloc(g->n * sizeof *L);
     x.Q = malloc(threads * sizeof *x.Q);
     x.resp = malloc(threads * x.count * x.H * sizeof *x.resp);
+    x.fixed = malloc(threads * x.count * sizeof *x.fixed);
     g->score = malloc(cells * sizeof *g->score);
     g->factor = malloc(cells * LAM_MAX_CHANNELS * sizeof *g->factor);
-    lam_status st = g->score && g->factor && L && x.Q && x.resp
+    lam_status st = g->score && g->factor && L && x.Q && x.resp && x.fixed
                         ? LAM_OK
                         : lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide grid");
     if (!st && !(st = grid_ladders(e, j, model, g, threads, L, err))) {
@@ -242,6 +260,7 @@ static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g
     free(L);
     free(x.Q);
     free(x.resp);
+    free(x.fixed);
     return st;
 }
 

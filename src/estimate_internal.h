@@ -9,6 +9,15 @@
 /* -0.5 sum_c [(m - mu)^2 / var + ln(2 pi var)] */
 double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc);
 
+/* ln prod_c (2 pi var_c): the normaliser's part of lam__gauss_logpdf, the
+ * same for every mean a region of variance var is compared with. */
+double lam__log_norm(const double *var, size_t nc);
+
+/* lam__gauss_logpdf with its normaliser given (lam__log_norm(var, nc)):
+ * the same value, one logarithm per region instead of one per mean. */
+double lam__gauss_logpdf_norm(const double *m, const double *mu, const double *var, size_t nc,
+                              double log_norm);
+
 double lam__logsumexp(const double *x, size_t n);
 
 /* A region's variance in each channel, the same under every hypothesis:
@@ -21,7 +30,20 @@ void lam__region_var(const lam_estimate *e, const lam_est_region *r,
  * (lam__region_var): a broad box, and the ladder's residue films when it
  * has them (estimate.c). */
 double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
-                              const lam_prediction *ladder);
+                              double log_norm, const lam_prediction *ladder);
+
+/* What a region's terms share across ladders that differ only in their
+ * layers' contrasts (the starting grid's scales and channel factors at one
+ * oxide step): its variance, the normaliser and the unmodelled
+ * hypothesis' term (the residue films are not scaled). */
+typedef struct lam__region_fixed {
+    double var[LAM_MAX_CHANNELS]; /* lam__region_var */
+    double log_norm;              /* lam__log_norm of var */
+    double unmodelled;            /* lam__unmodelled_logpdf against the ladder's films */
+} lam__region_fixed;
+
+void lam__region_fixed_of(const lam_estimate *e, const lam_est_region *r,
+                          const lam_prediction *ladder, lam__region_fixed *out);
 
 /* log(prior x likelihood) per hypothesis (K + 3 values: substrate, 1..K,
  * thick, unmodelled) of a region against an observed-scale ladder. */
@@ -42,11 +64,12 @@ void lam__ladder_terms_of(const lam_estimate *e, const lam_prediction *ladder,
                           lam__ladder_terms *t);
 
 /* lam__region_logterms with the ladder's terms t made once for all the
- * regions scored against it (the same values: the innermost call of the
- * fit's starting grid). */
+ * regions scored against it, and the region's fixed terms (NULL: made
+ * here) made once for all the ladders that share them (the same values:
+ * the innermost call of the fit's starting grid). */
 void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,
                              const lam_prediction *ladder, const lam__ladder_terms *t,
-                             double *lt);
+                             const lam__region_fixed *fixed, double *lt);
 
 /* The model parameter (LAM_MP_*) a shared nuisance moves, or -1 for the
  * gains (applied outside the model). */
@@ -69,9 +92,11 @@ lam_status lam__image_ladder(const lam_estimate *e, size_t j, lam_model *model, 
 double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction *ladder,
                           double *resp);
 /* The same with the oxide prior's term given (the grid scores oxides other
- * than the image's current value, on several threads at once). */
+ * than the image's current value, on several threads at once) and, unless
+ * NULL, the regions' fixed terms against this ladder (one per region of
+ * the image: the grid makes them once per oxide step). */
 double lam__image_logpost_with(const lam_estimate *e, size_t j, const lam_prediction *ladder,
-                               double oxide_prior, double *resp);
+                               double oxide_prior, const lam__region_fixed *fixed, double *resp);
 /* Colour channels whose curves the setup does not give (the gains keep
  * their wide default prior): contrast shape alone must tell N from 2N. */
 int lam__curves_unknown(const lam_estimate *e);

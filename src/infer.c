@@ -48,6 +48,7 @@ typedef struct loo {
     double shift[LAM__MAT_MAX];
     lam__mat cov;
     double var[LAM_MAX_CHANNELS]; /* the region's own variance (lam__region_var) */
+    double log_norm;              /* lam__log_norm of var */
 } loo;
 
 /* The one-step leave-one-out shift is linear in the region's gradient: for
@@ -77,6 +78,7 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
     out->n = n;
     memset(out->shift, 0, sizeof out->shift);
     lam__region_var(e, r, out->var);
+    out->log_norm = lam__log_norm(out->var, nc);
     lam__mat l, prec;
     for (size_t a = 0; a < n; a++)
         for (size_t b = 0; b < n; b++)
@@ -183,10 +185,12 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
     double thick[LAM_MODEL_MAX_LAYERS + 1];
     size_t nt = 0;
     for (size_t N = K + 1; N <= top; N++)
-        thick[nt++] = lam__gauss_logpdf(r->mean, v->ladder.contrast[N], lo->var, nc);
+        thick[nt++] =
+            lam__gauss_logpdf_norm(r->mean, v->ladder.contrast[N], lo->var, nc, lo->log_norm);
     lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
                    : -INFINITY;
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lam__unmodelled_logpdf(e, r, lo->var, &v->ladder);
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) +
+                lam__unmodelled_logpdf(e, r, lo->var, lo->log_norm, &v->ladder);
 }
 
 /* ---- the Fermi level ---- */

@@ -39,7 +39,7 @@ static lam_status image_profile(const lam_analysis *a, lam_model *m, double d, l
     for (size_t i = 0; i < a->count; i++) {
         if (!profile_region(a, i))
             continue;
-        lam__region_logterms_in(e, &a->measured[i], P, &t, lt);
+        lam__region_logterms_in(e, &a->measured[i], P, &t, NULL, lt);
         total += lam__logsumexp(lt, H);
     }
     *out = -2 * total;
