@@ -22,6 +22,8 @@ typedef struct lam__run {
     lam_model *model;        /* coarse, 40 layers: fits, ladders, posteriors */
     size_t threads;
     double t0;
+    lam_grid_ladders *ladders; /* during lam__fit_searched: the wide search's grid
+                                * ladders, lent to its fits (NULL: none) */
 } lam__run;
 
 /* An estimate for this image with the oxide prior centred on centre_nm

@@ -67,8 +67,10 @@ static lam_status refit(lam__run *r, lam_model *model, const double *floor, doub
             lam_estimate_set_floor_prior(*out, c, floor[c]);
         st = lam_estimate_set_regions(*out, 0, a->measured, a->count, err);
     }
-    if (!st)
+    if (!st) {
+        (*out)->opt.ladders = r->ladders;
         st = lam_estimate_fit(*out, model, model, err);
+    }
     if (st) {
         lam_estimate_free(*out);
         *out = NULL;
@@ -236,14 +238,46 @@ static lam_status wide_search(lam__run *r, wide_fit *beside, int doubtful, int *
     return LAM_OK;
 }
 
+/* The ladders of the wide search's grid, made before its fit and the
+ * nominal one when the wide search will run whatever the nominal fit
+ * gives (the microscope not fully given): the nominal grid's +-60 nm are
+ * a part of them. The fits take them where their grids' oxides and
+ * starting points match to the bit, so the results are the same; the
+ * nominal fit does not make its own, and the fit beside starts at its
+ * scoring. */
+static lam_status lend_ladders(lam__run *r, lam_error *err)
+{
+    lam_estimate *e = r->a->estimate;
+    r->ladders = NULL;
+    if (!lam__microscope_defaulted(r->setup) || !e->image[0].oxide.fitted)
+        return LAM_OK;
+    lam_status st = lam_grid_ladders_make(e, 0, r->model, LAM__WIDE_HALF_NM, &r->ladders, err);
+    e->opt.ladders = r->ladders;
+    return st;
+}
+
+/* The lent ladders taken back from the estimate the analysis keeps (and
+ * its rival), and freed: no estimate holds them after the searches. */
+static void take_back_ladders(lam__run *r)
+{
+    for (lam_estimate *e = r->a->estimate; e; e = e->rival)
+        e->opt.ladders = NULL;
+    lam_grid_ladders_free(r->ladders);
+    r->ladders = NULL;
+}
+
 lam_status lam__fit_searched(lam__run *r, lam__oxide_search *out, lam_error *err)
 {
     lam_analysis *a = r->a;
     out->off_nominal = out->colour_start = 0;
     out->rival_nm = NAN;
+    lam_status st = lend_ladders(r, err);
     wide_fit beside;
-    wide_fit_start(r, &beside);
-    lam_status st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    memset(&beside, 0, sizeof beside);
+    if (!st) {
+        wide_fit_start(r, &beside);
+        st = lam_estimate_fit(a->estimate, r->model, r->model, err);
+    }
     if (!st && oxide_fitted(a)) {
         int doubtful = nominal_doubtful(a);
         if (doubtful)
@@ -256,5 +290,6 @@ lam_status lam__fit_searched(lam__run *r, lam__oxide_search *out, lam_error *err
     lam_estimate *unused = NULL;
     wide_fit_take(&beside, &unused, NULL);
     lam_estimate_free(unused);
+    take_back_ladders(r);
     return st;
 }

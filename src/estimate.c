@@ -33,7 +33,7 @@
 
 lam_estimate_options lam_estimate_options_default(void)
 {
-    lam_estimate_options o = {6, 60.0, 2.0, 0.003, 0.03, 1, 30, 1, 1};
+    lam_estimate_options o = {6, 60.0, 2.0, 0.003, 0.03, 1, 30, 1, 1, NULL};
     return o;
 }
 

@@ -180,8 +180,7 @@ static void score_cells(size_t begin, size_t end, size_t slice, void *ctx)
  * it (a model keeps caches, so it serves one thread; a copy gives the same
  * values). The points differ only in their oxide. */
 typedef struct ladder_job {
-    const lam_estimate *e;
-    size_t j;
+    lam_model_point p;  /* the point, its oxide aside */
     const grid *g;
     lam_model **model;  /* per slice */
     lam_prediction *L;  /* per oxide step */
@@ -192,22 +191,19 @@ typedef struct ladder_job {
 static void ladder_steps(size_t d0, size_t d1, size_t slice, void *vjob)
 {
     const ladder_job *x = vjob;
-    lam_model_point p = lam_estimate_point(x->e, x->j);
+    lam_model_point p = x->p;
     lam_status st = LAM_OK;
     for (size_t d = d0; d < d1 && !st; d++) {
         p.v[LAM_MP_OXIDE] = x->g->lo + x->g->step * (double)d;
         st = lam_model_eval_point(x->model[slice], &p, GRID_LAYERS, &x->L[d], &x->err[slice]);
-        if (!st)
-            lam_estimate_observe(x->e, &x->L[d]);
     }
     x->st[slice] = st;
 }
 
-/* The ladders of every oxide step (as lam__image_ladder at each); the
- * image's oxide is left at the last step, as the grid's scan always left
- * it. */
-static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, const grid *g,
-                               size_t threads, lam_prediction *L, lam_error *err)
+/* The model ladders at point p and every oxide step of g (before the
+ * gains), the steps shared out to the threads. */
+static lam_status model_ladders(lam_model_point p, lam_model *model, const grid *g,
+                                size_t threads, lam_prediction *L, lam_error *err)
 {
     size_t slices = lam_parallel_slices(g->n, threads), made = 1;
     lam_model *models[LAM_MAX_THREADS] = {model};
@@ -217,7 +213,7 @@ static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, cons
     for (; made < slices && !out; made++)
         out = lam_model_clone(model, &models[made], err);
     if (!out) {
-        ladder_job x = {e, j, g, models, L, st, errs};
+        ladder_job x = {p, g, models, L, st, errs};
         lam_parallel_for(g->n, slices, ladder_steps, &x);
         for (size_t k = 0; k < slices && !out; k++)
             if ((out = st[k]))
@@ -225,9 +221,84 @@ static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, cons
     }
     for (size_t k = 1; k < made; k++)
         lam_model_free(models[k]);
+    return out;
+}
+
+struct lam_grid_ladders {
+    lam_model_point p; /* the point they were made at, its oxide aside */
+    grid g;            /* their oxides (no scores) */
+    lam_prediction *L; /* per oxide step */
+};
+
+/* Whether t holds the model ladders of every oxide step of g at point p:
+ * the same point and the same oxides to the bit, so the same numbers. */
+static int lent_ladders_fit(const lam_grid_ladders *t, lam_model_point p, const grid *g,
+                            size_t *first)
+{
+    if (!t || t->g.step != g->step || g->lo < t->g.lo)
+        return 0;
+    p.v[LAM_MP_OXIDE] = t->p.v[LAM_MP_OXIDE];
+    for (int k = 0; k < LAM_MP_COUNT; k++)
+        if (p.v[k] != t->p.v[k] && !(isnan(p.v[k]) && isnan(t->p.v[k])))
+            return 0;
+    size_t d0 = (size_t)((g->lo - t->g.lo) / t->g.step + 0.5);
+    if (d0 + g->n > t->g.n)
+        return 0;
+    for (size_t d = 0; d < g->n; d++)
+        if (t->g.lo + t->g.step * (double)(d0 + d) != g->lo + g->step * (double)d)
+            return 0;
+    *first = d0;
+    return 1;
+}
+
+/* The ladders of every oxide step (as lam__image_ladder at each): the
+ * lent ones (e->opt.ladders) where they fit, else made here; the image's
+ * oxide is left at the last step, as the grid's scan always left it. */
+static lam_status grid_ladders(lam_estimate *e, size_t j, lam_model *model, const grid *g,
+                               size_t threads, lam_prediction *L, lam_error *err)
+{
+    lam_model_point p = lam_estimate_point(e, j);
+    size_t first = 0;
+    lam_status out = LAM_OK;
+    if (lent_ladders_fit(e->opt.ladders, p, g, &first))
+        memcpy(L, e->opt.ladders->L + first, g->n * sizeof *L);
+    else
+        out = model_ladders(p, model, g, threads, L, err);
+    for (size_t d = 0; d < g->n && !out; d++)
+        lam_estimate_observe(e, &L[d]);
     if (!out)
         e->image[j].oxide.value = g->lo + g->step * (double)(g->n - 1);
     return out;
+}
+
+lam_status lam_grid_ladders_make(const lam_estimate *e, size_t j, lam_model *model,
+                                 double half_nm, lam_grid_ladders **out, lam_error *err)
+{
+    const lam_nuisance *ox = &e->image[j].oxide;
+    lam_grid_ladders *t = calloc(1, sizeof *t);
+    *out = NULL;
+    if (!t)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid's ladders");
+    t->p = lam_estimate_point(e, j);
+    t->g.step = e->opt.search_step_nm;
+    t->g.lo = fmax(0, ox->prior_mean - half_nm);
+    t->g.n = (size_t)((ox->prior_mean + half_nm - t->g.lo) / t->g.step) + 1;
+    lam_status st = (t->L = malloc(t->g.n * sizeof *t->L))
+                        ? model_ladders(t->p, model, &t->g, e->opt.threads ? e->opt.threads : 1,
+                                        t->L, err)
+                        : lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid's ladders");
+    if (st)
+        lam_grid_ladders_free(t);
+    else
+        *out = t;
+    return st;
+}
+
+void lam_grid_ladders_free(lam_grid_ladders *t)
+{
+    if (t)
+        free(t->L);
+    free(t);
 }
 
 static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g,

@@ -124,7 +124,18 @@ typedef struct lam_estimate_options {
     int give_up_starts;            /* the multistart leaves starts that cannot come
                                     * within LAM_RIVAL_MARGIN of the first (1; 0:
                                     * every start runs to convergence) */
+    const struct lam_grid_ladders *ladders; /* borrowed, or NULL: the starting grid's
+                                    * model ladders made beforehand
+                                    * (lam_grid_ladders_make) */
 } lam_estimate_options;
+
+/* The starting grid's model ladders (every layer count the grid reads, at
+ * every oxide step of a search, before the gains), made once for several
+ * fits of one image: the nominal fit's +-60 nm are part of the wide
+ * search's +-200 nm. A fit whose options carry them takes them where its
+ * grid's oxides and its starting model point are the same to the bit (the
+ * same numbers as making them), and makes its own otherwise. */
+typedef struct lam_grid_ladders lam_grid_ladders;
 
 typedef struct lam_estimate {
     size_t channels, max_layers;
@@ -204,6 +215,14 @@ lam_status lam_estimate_add_image(lam_estimate *e, const lam_est_region *regions
  * estimate to a later image. */
 void lam_estimate_set_prior(lam_estimate *e, int param, double mean, double sd,
                             const char *source);
+
+/* Ladders for image j of e at its current model point, over the oxides
+ * max(0, centre - half_nm) .. centre + half_nm in e's search step (centre:
+ * the image's oxide prior centre), made on e's threads with copies of
+ * model. */
+lam_status lam_grid_ladders_make(const lam_estimate *e, size_t j, lam_model *model,
+                                 double half_nm, lam_grid_ladders **out, lam_error *err);
+void lam_grid_ladders_free(lam_grid_ladders *t);
 
 /* The fit. 'fit_model' is a model of at least max_layers layers (the coarse
  * one); 'thick_model' one of LAM_MODEL_MAX_LAYERS layers (may be the same
