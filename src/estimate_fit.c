@@ -148,8 +148,9 @@ double lam__image_logpost(const lam_estimate *e, size_t j, const lam_prediction 
 /* A hypothesis' share exp(d) of the best one's, or 0 where it cannot
  * count: below e^-37 (8.5e-17, under half a unit in the last place of
  * the sum, which holds the best hypothesis' 1) adding it leaves the sum
- * as it is once the best is in, and a share that small changes no
- * weight (the fit skips responsibilities below 1e-6). Six in ten of the
+ * as it is once the best is in (before it, by a last bit at most), and a
+ * responsibility that small changes no weight (the fit skips those below
+ * 1e-6) and the unmodelled share by under 1e-16. Six in ten of the
  * starting grid's exponentials lie there at 3 MP; glibc's exp also takes
  * a slow path below -745 (it sets errno). */
 #define NEGLIGIBLE_LOG_SHARE (-37.0)
