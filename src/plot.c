@@ -117,7 +117,108 @@ static void contrast_panel(cairo_t *cr, const lam_analysis *a, int c, const lam_
     }
 }
 
-lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err)
+/* ---- a crystal of continuous thickness (hBN): contrast against thickness ----
+ * No layer ladder: each region at its thickness (the median of its most
+ * probable mode) on a log axis, with the film model's contrast there, so
+ * that the plot shows how well the model explains each flake; regions
+ * without a film (substrate, unmodelled) in a last column. */
+#define FILM_OTHER_X 3.0 /* the "other" column, past 100 nm (the model ends at 300) */
+
+static const char *const film_cats[4] = {"1", "10", "100", "other"};
+
+static double film_x(const lam_thickness_result *t)
+{
+    return t->evaluated ? log10(fmax(t->estimate, 0.5)) : FILM_OTHER_X;
+}
+
+static void film_range(const lam_analysis *a, double *lo, double *hi)
+{
+    *lo = 0, *hi = 0;
+    for (size_t i = 0; i < a->count; i++) {
+        const lam_region_result *r = &a->results[i];
+        const lam_thickness_result *t = &a->thickness[i];
+        for (int c = 0; c < 3 && !(r->flags & LAM_FLAG_SMALL); c++) {
+            if (isfinite(r->mean[c]))
+                *lo = fmin(*lo, r->mean[c] - r->sigma[c]), *hi = fmax(*hi, r->mean[c] + r->sigma[c]);
+            if (t->evaluated && isfinite(t->model[c]))
+                *lo = fmin(*lo, t->model[c]), *hi = fmax(*hi, t->model[c]);
+        }
+    }
+    lam_nice_range(lo, hi, 6);
+}
+
+/* One region of a film panel: its 95 % interval in thickness, the model's
+ * contrast there (a square), its own contrast with 1 sigma, its id. */
+static void film_region(cairo_t *cr, const lam_analysis *a, size_t i, int c, const lam_axis *x,
+                        const lam_axis *y, placed *done, size_t *nd)
+{
+    const lam_region_result *r = &a->results[i];
+    const lam_thickness_result *t = &a->thickness[i];
+    double jitter = t->evaluated ? 0 : ((double)(i % 7) - 3) * 0.04;
+    double px = lam_axis_map(x, film_x(t) + jitter), py = lam_axis_map(y, r->mean[c]);
+    double e = fabs(lam_axis_map(y, r->mean[c] + r->sigma[c]) - py);
+    cairo_set_line_width(cr, 1);
+    lam_draw_rgb(cr, 0x222222);
+    if (t->evaluated) {
+        cairo_move_to(cr, lam_axis_map(x, log10(fmax(t->lo, 0.5))), py);
+        cairo_line_to(cr, lam_axis_map(x, log10(fmax(t->hi, 0.5))), py);
+    }
+    cairo_move_to(cr, px, py - e);
+    cairo_line_to(cr, px, py + e);
+    cairo_stroke(cr);
+    if (t->evaluated && isfinite(t->model[c])) {
+        lam_draw_rgb(cr, channel_colour[c]);
+        cairo_rectangle(cr, px - 3, lam_axis_map(y, t->model[c]) - 3, 6, 6);
+        cairo_fill(cr);
+    }
+    cairo_arc(cr, px, py, 3.6, 0, 2 * M_PI);
+    lam_draw_rgb(cr, t->evaluated ? lam_draw_thickness_colour(lam_draw_thickness_band(t->estimate))
+                                  : 0xffffff);
+    cairo_fill_preserve(cr);
+    cairo_set_line_width(cr, 1.2);
+    lam_draw_rgb(cr, 0x222222);
+    cairo_stroke(cr);
+    char id[16];
+    snprintf(id, sizeof id, "#%u", a->seg->regions[i].id);
+    id_label(cr, done, nd, 256, px, py, id, 9.5);
+}
+
+static void film_panel(cairo_t *cr, const lam_analysis *a, int c, const lam_axis *x,
+                       const lam_axis *y)
+{
+    char title[64];
+    snprintf(title, sizeof title, "%s channel", channel_name[c]);
+    lam_draw_axes(cr, x, y, "thickness (nm)",
+                  c == 0 ? "contrast (substrate \u2212 flake) / substrate" : NULL, 11);
+    lam_text_style ts = {12, 1, channel_colour[c], 0, 1, 0};
+    lam_draw_text(cr, x->p0, y->p1 - 6, &ts, title);
+    placed done[256];
+    size_t nd = 0;
+    for (size_t i = 0; i < a->count; i++)
+        if (!(a->results[i].flags & LAM_FLAG_SMALL))
+            film_region(cr, a, i, c, x, y, done, &nd);
+}
+
+static void film_legend(cairo_t *cr, double m, double ny)
+{
+    lam_text_style note = {11, 0, 0x333333, 0, 0, 0};
+    cairo_rectangle(cr, m + 1, ny + 3, 6, 6);
+    lam_draw_rgb(cr, 0x555555);
+    cairo_fill(cr);
+    lam_draw_text(cr, m + 14, ny, &note,
+                  "the film model\u2019s contrast at each region\u2019s thickness (the median "
+                  "of its most probable interference order), at the oxide above");
+    cairo_arc(cr, m + 4, ny + 26, 3.6, 0, 2 * M_PI);
+    lam_draw_rgb(cr, lam_draw_thickness_colour(2));
+    cairo_fill(cr);
+    lam_draw_text(cr, m + 14, ny + 20, &note,
+                  "regions (#id) at their thickness, filled with its colour band; bars: 1\u03c3 "
+                  "of contrast, 95 % interval of thickness; \u201cother\u201d: no film (open)");
+}
+
+/* The page: a title, one panel per channel, the legend. */
+static lam_status contrast_page(const lam_analysis *a, const char *path, int film,
+                                lam_error *err)
 {
     const double pw = 300, ph = 280, m = 80, gap = 40, top = 70;
     size_t K = a->max_layers;
@@ -129,11 +230,23 @@ lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_err
     const char *base = strrchr(a->file, '/');
     char esc[600], title[800];
     lam_draw_escape(base ? base + 1 : a->file, esc, sizeof esc);
-    snprintf(title, sizeof title, "Region contrast against the model ladder \u2014 %s, "
-                                  "SiO\u2082 %.1f nm%s", esc, a->oxide.estimate,
-             a->oxide.fitted ? " (fitted)" : " (nominal)");
+    snprintf(title, sizeof title, "Region contrast against the %s \u2014 %s, "
+                                  "SiO\u2082 %.1f nm%s", film ? "film model" : "model ladder",
+             esc, a->oxide.estimate, a->oxide.fitted ? " (fitted)" : " (nominal)");
     lam_text_style ts = {15, 1, 0x111111, 0, 0, 0};
     lam_draw_text(cr, m, 16, &ts, title);
+    if (film) {
+        double lo, hi;
+        film_range(a, &lo, &hi);
+        for (int c = 0; c < 3; c++) {
+            double x0 = m + (double)c * (pw + gap);
+            lam_axis x = {-0.35, FILM_OTHER_X + 0.35, x0, x0 + pw, film_cats, 4, 0};
+            lam_axis y = {lo, hi, top + ph, top, NULL, 0, 0};
+            film_panel(cr, a, c, &x, &y);
+        }
+        film_legend(cr, m, top + ph + 52);
+        return lam_canvas_finish(&cv, err);
+    }
     const char *cats[LAM_MODEL_MAX_LAYERS + 2];
     char names[LAM_MODEL_MAX_LAYERS + 2][8];
     for (size_t N = 0; N <= K + 1 && N < LAM_MODEL_MAX_LAYERS + 2; N++) {
@@ -160,6 +273,11 @@ lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_err
                   "bars: 1\u03c3 including the model floor; \u201cother\u201d: thick (khaki) "
                   "or unassigned (open)");
     return lam_canvas_finish(&cv, err);
+}
+
+lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err)
+{
+    return contrast_page(a, path, a->thickness != NULL, err);
 }
 
 /* ---- oxide audit ---- */

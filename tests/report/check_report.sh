@@ -56,6 +56,18 @@ grep -o 'src="crops/[^"]*"' "$T/dom.html" | sed 's/src="//; s/"$//' | while read
 for s in "$T/chip.svg" "$T/plan.svg" "$T"/out/*.contrast.svg; do
     rsvg-convert "$s" -o "$T/x.png" 2> "$T/rsvg.err" && [ -s "$T/x.png" ] && ok || bad "rsvg-convert $s: $(cat "$T/rsvg.err")"
 done
+# hBN, a crystal of continuous thickness: its contrast plot places each
+# region at its thickness in its thickness band's colour (the 10-30 nm band
+# is 0xff5a3c, lam_draw_thickness_colour), not on the layer ladder as
+# "thick" (khaki 0xa0a080), which it did until 2026-12-05. cairo writes
+# fills as rgb() percentages.
+"$BIN" analyze --quiet --setup samples/bench3-setup-hbn.json --out "$T/hbn" \
+    samples/HT285-N05-tile04.png && ok || bad "analyze the hBN sample"
+S=$T/hbn/HT285-N05-tile04.contrast.svg
+rsvg-convert "$S" -o "$T/x.png" 2> "$T/rsvg.err" && [ -s "$T/x.png" ] && ok || bad "rsvg-convert $S"
+grep -q 'fill:rgb(62.745098%,62.745098%,50.196078%)' "$S" && bad "hBN regions drawn as thick on the ladder" || ok
+[ "$(grep -o 'fill:rgb(100%,35.294118%,23.529412%)' "$S" | wc -l)" -ge 6 ] && ok \
+    || bad "hBN regions of 10-30 nm (#2, #3) not in their band's colour in all three panels"
 # a screenshot for people (kept when KEEP_SCREENSHOT names a file)
 if [ -n "${KEEP_SCREENSHOT:-}" ]; then
     timeout 90 "$BROWSER" --headless --no-sandbox --disable-gpu --screenshot="$KEEP_SCREENSHOT" \
