@@ -120,7 +120,7 @@ static void draw_candidates(cairo_t *cr, const lam_catalog *c, const lam_chipmap
         if (!lam_chipmap_mark(v, c, i, p, &r))
             continue;
         cairo_arc(cr, p[0], p[1], r, 0, 2 * M_PI);
-        lam_draw_rgb(cr, lam_draw_layer_colour(e->layers));
+        lam_draw_rgb(cr, lam_draw_result_colour(e->layers, e->thickness_nm[0]));
         cairo_fill_preserve(cr);
         cairo_set_line_width(cr, 1.3);
         lam_draw_rgb(cr, 0x111111);

@@ -153,7 +153,7 @@ static void crop_outline(cairo_t *cr, const source *s, const lam_catalog_entry *
     lam_draw_rgba(cr, 0x000000, 0.8);
     cairo_stroke_preserve(cr);
     cairo_set_line_width(cr, 1.6 / scale);
-    lam_draw_rgb(cr, lam_draw_layer_colour(e->layers));
+    lam_draw_rgb(cr, lam_draw_result_colour(e->layers, e->thickness_nm[0]));
     cairo_stroke(cr);
 }
 
@@ -224,7 +224,7 @@ static void draw_crop(cairo_t *cr, const lam_catalog *c, size_t i, const source 
         double dsh[2] = {4 / scale, 3 / scale};
         cairo_set_dash(cr, dsh, 2, 0);
         cairo_set_line_width(cr, 1.2 / scale);
-        lam_draw_rgb(cr, lam_draw_layer_colour(e->layers));
+        lam_draw_rgb(cr, lam_draw_result_colour(e->layers, e->thickness_nm[0]));
         cairo_rectangle(cr, e->usable[0], e->usable[1], e->usable[2] - e->usable[0] + 1,
                         e->usable[3] - e->usable[1] + 1);
         cairo_stroke(cr);
@@ -380,7 +380,8 @@ static void cell_caption(cairo_t *cr, const lam_catalog *c, size_t entry, double
     cairo_rectangle(cr, 0, w, w, 40);
     cairo_clip(cr);
     snprintf(cap, sizeof cap, "%zu. <span foreground=\"#%06x\" weight=\"bold\">%s</span> %s",
-             lam_catalog_rank(c, entry), (unsigned)lam_draw_layer_colour(e->layers), e->label, pe);
+             lam_catalog_rank(c, entry),
+             (unsigned)lam_draw_result_colour(e->layers, e->thickness_nm[0]), e->label, pe);
     lam_draw_text(cr, 0, w + 3, &ts, cap);
     snprintf(cap, sizeof cap, "%s #%u", esc, e->region);
     lam_draw_text(cr, 0, w + 18, &ts, cap);

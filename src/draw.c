@@ -331,6 +331,12 @@ uint32_t lam_draw_thickness_colour(int band)
     return lam_draw_layer_colour(band < 0 ? 1 : band >= LAM_DRAW_THICKNESS_BANDS ? 5 : band + 1);
 }
 
+uint32_t lam_draw_result_colour(int layers, double thickness_nm)
+{
+    return isfinite(thickness_nm) ? lam_draw_thickness_colour(lam_draw_thickness_band(thickness_nm))
+                                  : lam_draw_layer_colour(layers);
+}
+
 static PangoLayout *make_layout(cairo_t *cr, const lam_text_style *st, const char *markup)
 {
     PangoLayout *l = pango_cairo_create_layout(cr);

@@ -331,7 +331,8 @@ static void svg_candidates(FILE *f, const lam_catalog *c, const lam_chipmap_view
         size_t rank = lam_catalog_rank(c, i);
         fprintf(f, "<a href=\"#c%zu\"><circle cx=\"%.1f\" cy=\"%.1f\" r=\"%.1f\" fill=\"#%06x\" "
                    "stroke=\"#111\" stroke-width=\"1.3\"><title>%zu. %s p ",
-                rank, p[0], p[1], r, (unsigned)lam_draw_layer_colour(e->layers), rank, e->label);
+                rank, p[0], p[1], r,
+                (unsigned)lam_draw_result_colour(e->layers, e->thickness_nm[0]), rank, e->label);
         char prob[24];
         lam_draw_probability(e->probability, 2, prob, sizeof prob);
         html(f, prob);
@@ -431,8 +432,12 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
     image_links(f, rel, im->stem);
     fprintf(f, "</td><td class=\"n\" data-v=\"%u\">#%u</td>", e->region,
             e->region);
-    fprintf(f, "<td data-v=\"%d\"><span class=\"sw\" style=\"background:#%06x\"></span>%s</td>",
-            e->layers, (unsigned)lam_draw_layer_colour(e->layers), e->label);
+    if (isfinite(e->thickness_nm[0]))
+        fprintf(f, "<td data-v=\"%.3f\">", e->thickness_nm[0]);
+    else
+        fprintf(f, "<td data-v=\"%d\">", e->layers);
+    fprintf(f, "<span class=\"sw\" style=\"background:#%06x\"></span>%s</td>",
+            (unsigned)lam_draw_result_colour(e->layers, e->thickness_nm[0]), e->label);
     char prob[24];
     lam_draw_probability(e->probability, 3, prob, sizeof prob);
     fprintf(f, "<td class=\"n\" data-v=\"%.6f\">", e->probability);

@@ -91,6 +91,12 @@ extern const double lam_draw_thickness_edges[LAM_DRAW_THICKNESS_BANDS - 1];
 int lam_draw_thickness_band(double nm);
 uint32_t lam_draw_thickness_colour(int band);
 
+/* A result's colour: its thickness band's when thickness_nm is a number (a
+ * film of continuous thickness), else its layer count's (as
+ * lam_draw_layer_colour), so that the annotated picture, the contrast
+ * plot, the run report, the crops and the chip map agree. */
+uint32_t lam_draw_result_colour(int layers, double thickness_nm);
+
 /* Text. 'markup' is Pango markup (escape user text with lam_draw_escape).
  * Anchor: which point of the text's ink box lies at (x, y): ax = 0 left,
  * 0.5 centre, 1 right; ay likewise from the top. 'size' is the font size

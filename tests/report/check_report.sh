@@ -61,13 +61,19 @@ done
 # is 0xff5a3c, lam_draw_thickness_colour), not on the layer ladder as
 # "thick" (khaki 0xa0a080), which it did until 2026-12-05. cairo writes
 # fills as rgb() percentages.
-"$BIN" analyze --quiet --setup samples/bench3-setup-hbn.json --out "$T/hbn" \
-    samples/HT285-N05-tile04.png && ok || bad "analyze the hBN sample"
+"$BIN" analyze --quiet --setup samples/bench3-setup-hbn.json --target-thickness 10-30 \
+    --out "$T/hbn" samples/HT285-N05-tile04.png && ok || bad "analyze the hBN sample"
 S=$T/hbn/HT285-N05-tile04.contrast.svg
 rsvg-convert "$S" -o "$T/x.png" 2> "$T/rsvg.err" && [ -s "$T/x.png" ] && ok || bad "rsvg-convert $S"
 grep -q 'fill:rgb(62.745098%,62.745098%,50.196078%)' "$S" && bad "hBN regions drawn as thick on the ladder" || ok
 [ "$(grep -o 'fill:rgb(100%,35.294118%,23.529412%)' "$S" | wc -l)" -ge 6 ] && ok \
     || bad "hBN regions of 10-30 nm (#2, #3) not in their band's colour in all three panels"
+# ... and its run report's candidates (#2 23 nm, #3 15 nm) carry the same
+# band colour as swatches, not the thick colour (until 2026-12-05 they did)
+H=$T/hbn/report.html
+[ "$(grep -o 'class="sw" style="background:#ff5a3c"' "$H" | wc -l)" -ge 2 ] && ok \
+    || bad "hBN candidates' swatches not in their thickness band's colour"
+grep -q 'background:#a0a080' "$H" && bad "hBN candidates' swatches in the thick colour" || ok
 # a screenshot for people (kept when KEEP_SCREENSHOT names a file)
 if [ -n "${KEEP_SCREENSHOT:-}" ]; then
     timeout 90 "$BROWSER" --headless --no-sandbox --disable-gpu --screenshot="$KEEP_SCREENSHOT" \
