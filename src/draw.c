@@ -1,6 +1,7 @@
 /* draw.c - cairo canvases ending in atomic files, Pango text, plot axes
  * and the layer palette shared by every picture lamina draws. */
 #include "lamina/draw.h"
+#include "lamina/parallel.h"
 #include "lamina/bigalloc.h"
 #include "lamina/outfile.h"
 #include "lamina/png.h"
@@ -238,6 +239,9 @@ static int releasing_caches(void)
 
 void lam_draw_shutdown(void)
 {
+    /* the loops' helper threads keep the font maps of the text they drew
+     * (each thread has its own): they end first, and theirs go with them */
+    lam_parallel_retire_helpers();
     pango_cairo_font_map_set_default(NULL);
     /* cairo's and fontconfig's process-wide caches are released only for
      * leak checkers (make asan and make valgrind set the variable): Pango

@@ -20,14 +20,17 @@ typedef struct slice_job {
  * helpers and starts a new one only when none is idle, so loops on
  * several threads at once, or one inside another, never wait for a
  * helper; the helpers are as many as the most loops ever ran at once.
- * They stay until the process ends (detached, idle on their condition
- * variable), and so do their thread-local caches (conductivity.c's
- * quadrature rules, which then serve the next loop). */
+ * They stay, idle on their condition variable, until
+ * lam_parallel_retire_helpers or the process's end, and so do their
+ * thread-local data: conductivity.c's quadrature rules, which then serve
+ * the next loop, and the Pango font map of a helper that drew text. */
 typedef struct helper {
+    pthread_t tid;
     pthread_mutex_t lock;
-    pthread_cond_t wake;  /* a slice given, or its end */
+    pthread_cond_t wake;  /* a slice given, its end, or retirement */
     const slice_job *job; /* the slice to run; NULL while idle */
     int done;             /* the slice given last has ended */
+    int retire;           /* end the thread */
     struct helper *next;  /* on the idle list */
 } helper;
 
@@ -39,8 +42,10 @@ static void *helper_main(void *arg)
     helper *h = arg;
     pthread_mutex_lock(&h->lock);
     for (;;) {
-        while (!h->job)
+        while (!h->job && !h->retire)
             pthread_cond_wait(&h->wake, &h->lock);
+        if (!h->job)
+            break;
         const slice_job *j = h->job;
         pthread_mutex_unlock(&h->lock);
         j->fn(j->begin, j->end, j->slice, j->ctx);
@@ -49,6 +54,7 @@ static void *helper_main(void *arg)
         h->done = 1;
         pthread_cond_signal(&h->wake);
     }
+    pthread_mutex_unlock(&h->lock);
     return NULL;
 }
 
@@ -58,22 +64,14 @@ static helper *helper_start(void)
     helper *h = calloc(1, sizeof *h);
     if (!h)
         return NULL;
-    pthread_attr_t attr;
-    pthread_t tid;
     int ok = pthread_mutex_init(&h->lock, NULL) == 0;
     if (ok && pthread_cond_init(&h->wake, NULL) != 0) {
         pthread_mutex_destroy(&h->lock);
         ok = 0;
     }
-    if (ok && pthread_attr_init(&attr) == 0) {
-        ok = pthread_attr_setdetachstate(&attr, PTHREAD_CREATE_DETACHED) == 0 &&
-             pthread_create(&tid, &attr, helper_main, h) == 0;
-        pthread_attr_destroy(&attr);
-        if (!ok) {
-            pthread_cond_destroy(&h->wake);
-            pthread_mutex_destroy(&h->lock);
-        }
-    } else {
+    if (ok && pthread_create(&h->tid, NULL, helper_main, h) != 0) {
+        pthread_cond_destroy(&h->wake);
+        pthread_mutex_destroy(&h->lock);
         ok = 0;
     }
     if (!ok) {
@@ -112,6 +110,26 @@ static void helper_wait(helper *h)
     h->next = idle_helpers;
     idle_helpers = h;
     pthread_mutex_unlock(&idle_lock);
+}
+
+void lam_parallel_retire_helpers(void)
+{
+    pthread_mutex_lock(&idle_lock);
+    helper *h = idle_helpers;
+    idle_helpers = NULL;
+    pthread_mutex_unlock(&idle_lock);
+    while (h) {
+        helper *next = h->next;
+        pthread_mutex_lock(&h->lock);
+        h->retire = 1;
+        pthread_cond_signal(&h->wake);
+        pthread_mutex_unlock(&h->lock);
+        pthread_join(h->tid, NULL);
+        pthread_cond_destroy(&h->wake);
+        pthread_mutex_destroy(&h->lock);
+        free(h);
+        h = next;
+    }
 }
 
 static void run_slice(const slice_job *j)

@@ -1,7 +1,8 @@
 /* test_parallel.c - the fork-join loops (lamina/parallel.h): every index
  * visited exactly once, slices contiguous and numbered below
  * lam_parallel_slices, and no worker running two items at once (its
- * scratch would be shared). */
+ * scratch would be shared); loops inside loops; the helper threads kept
+ * from one loop to the next, and ended by lam_parallel_retire_helpers. */
 #include "check.h"
 #include "lamina/parallel.h"
 
@@ -71,6 +72,63 @@ static visits *fresh(size_t count, size_t threads)
     return v;
 }
 
+/* A loop inside each slice of a loop: every inner index once. */
+static void on_outer_slice(size_t begin, size_t end, size_t slice, void *ctx)
+{
+    visits *v = ctx;
+    (void)slice;
+    for (size_t i = begin; i < end; i++) {
+        visits *inner = fresh(50, 2);
+        if (!inner) {
+            atomic_fetch_add(&v->bad_worker, 1);
+            continue;
+        }
+        lam_parallel_for(50, 2, on_slice, inner);
+        if (!miscounted(inner, 50) && !inner->bad_worker)
+            atomic_fetch_add(&v->seen[i], 1);
+        free(inner);
+    }
+}
+
+/* Slice 1 of a two-slice loop marks its thread; the mark it found (0:
+ * a thread that had run no such slice before). */
+static _Thread_local int thread_mark;
+static void mark_slice(size_t begin, size_t end, size_t slice, void *ctx)
+{
+    (void)begin, (void)end;
+    if (slice == 1) {
+        *(int *)ctx = thread_mark;
+        thread_mark = 1;
+    }
+}
+
+static int found_mark(void)
+{
+    int found = -1;
+    lam_parallel_for(2, 2, mark_slice, &found);
+    return found;
+}
+
+static void helpers_kept(void)
+{
+    visits *v = fresh(40, 2);
+    if (!check_true(v != NULL, "allocated"))
+        return;
+    lam_parallel_for(40, 2, on_outer_slice, v);
+    check_true(!miscounted(v, 40) && !v->bad_worker,
+               "a loop of two slices inside each slice of a loop: every index once");
+    free(v);
+    lam_parallel_retire_helpers();
+    int first = found_mark(), second = found_mark();
+    check_true(first == 0 && second == 1,
+               "the second loop's slice runs on the helper the first one left (marks %d, %d)",
+               first, second);
+    lam_parallel_retire_helpers();
+    int after = found_mark();
+    check_true(after == 0, "after lam_parallel_retire_helpers a loop starts a new helper (%d)",
+               after);
+}
+
 int main(void)
 {
     check_begin("test_parallel");
@@ -98,5 +156,6 @@ int main(void)
                        n, t, v ? v->workers : 0);
             free(v);
         }
+    helpers_kept();
     return check_summary();
 }

@@ -26,6 +26,13 @@ size_t lam_parallel_slices(size_t count, size_t threads);
  * done. No errors: a thread that cannot be started runs its slice here. */
 void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx);
 
+/* End the helper threads that lam_parallel_for keeps between loops (the
+ * idle ones; a later loop starts new ones), so that their thread-local
+ * data is released: a Pango font map, the quadrature rules. For an exit
+ * under a leak checker, before the font caches are reset
+ * (lam_draw_shutdown calls it). */
+void lam_parallel_retire_helpers(void);
+
 /* Work on one item 'item' of a list. */
 typedef void (*lam_item_fn)(size_t item, void *ctx);
 
