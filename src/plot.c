@@ -147,8 +147,37 @@ static void film_range(const lam_analysis *a, double *lo, double *hi)
     lam_nice_range(lo, hi, 6);
 }
 
+/* A region's other interference orders (modes holding at least
+ * FILM_OTHER_ORDER of its film posterior): a dotted line from its circle
+ * at height py to an open circle at each, so that a thickness the plot
+ * shows is not read as the only one. */
+#define FILM_OTHER_ORDER 0.05
+static void other_orders(cairo_t *cr, const lam_thickness_result *t, const lam_axis *x,
+                         double px, double py)
+{
+    static const double dots[2] = {2, 3};
+    for (size_t k = 1; k < t->modes && k < LAM_THICKNESS_MAX_MODES; k++) {
+        if (!(t->mode[k].probability >= FILM_OTHER_ORDER))
+            continue;
+        double qx = lam_axis_map(x, log10(fmax(t->mode[k].estimate, 0.5)));
+        cairo_set_dash(cr, dots, 2, 0);
+        cairo_set_line_width(cr, 1);
+        lam_draw_rgb(cr, 0x555555);
+        cairo_move_to(cr, px, py);
+        cairo_line_to(cr, qx, py);
+        cairo_stroke(cr);
+        cairo_set_dash(cr, NULL, 0, 0);
+        cairo_arc(cr, qx, py, 3.2, 0, 2 * M_PI);
+        lam_draw_rgb(cr, 0xffffff);
+        cairo_fill_preserve(cr);
+        lam_draw_rgb(cr, 0x555555);
+        cairo_stroke(cr);
+    }
+}
+
 /* One region of a film panel: its 95 % interval in thickness, the model's
- * contrast there (a square), its own contrast with 1 sigma, its id. */
+ * contrast there (a square), its other orders, its own contrast with 1
+ * sigma, its id. */
 static void film_region(cairo_t *cr, const lam_analysis *a, size_t i, int c, const lam_axis *x,
                         const lam_axis *y, placed *done, size_t *nd)
 {
@@ -157,6 +186,8 @@ static void film_region(cairo_t *cr, const lam_analysis *a, size_t i, int c, con
     double jitter = t->evaluated ? 0 : ((double)(i % 7) - 3) * 0.04;
     double px = lam_axis_map(x, film_x(t) + jitter), py = lam_axis_map(y, r->mean[c]);
     double e = fabs(lam_axis_map(y, r->mean[c] + r->sigma[c]) - py);
+    if (t->evaluated)
+        other_orders(cr, t, x, px, py);
     cairo_set_line_width(cr, 1);
     lam_draw_rgb(cr, 0x222222);
     if (t->evaluated) {
@@ -214,6 +245,17 @@ static void film_legend(cairo_t *cr, double m, double ny)
     lam_draw_text(cr, m + 14, ny + 20, &note,
                   "regions (#id) at their thickness, filled with its colour band; bars: 1\u03c3 "
                   "of contrast, 95 % interval of thickness; \u201cother\u201d: no film (open)");
+    static const double dots[2] = {2, 3};
+    cairo_set_dash(cr, dots, 2, 0);
+    cairo_set_line_width(cr, 1);
+    lam_draw_rgb(cr, 0x555555);
+    cairo_move_to(cr, m - 4, ny + 46);
+    cairo_line_to(cr, m + 4, ny + 46);
+    cairo_stroke(cr);
+    cairo_set_dash(cr, NULL, 0, 0);
+    lam_draw_text(cr, m + 14, ny + 40, &note,
+                  "dotted to an open circle: another interference order the region may be "
+                  "(5 % of its film posterior or more; JSON: thickness.modes)");
 }
 
 /* The page: a title, one panel per channel, the legend. */

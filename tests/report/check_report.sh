@@ -68,6 +68,10 @@ rsvg-convert "$S" -o "$T/x.png" 2> "$T/rsvg.err" && [ -s "$T/x.png" ] && ok || b
 grep -q 'fill:rgb(62.745098%,62.745098%,50.196078%)' "$S" && bad "hBN regions drawn as thick on the ladder" || ok
 [ "$(grep -o 'fill:rgb(100%,35.294118%,23.529412%)' "$S" | wc -l)" -ge 6 ] && ok \
     || bad "hBN regions of 10-30 nm (#2, #3) not in their band's colour in all three panels"
+# its order-ambiguous region (#8: 64 % at 31 nm, 36 % at 163 nm) shows its
+# other order, dotted, in all three panels (and the legend says so)
+[ "$(grep -o 'stroke-dasharray:2,3' "$S" | wc -l)" -ge 4 ] && ok \
+    || bad "the hBN plot does not show region #8's other interference order"
 # ... and its run report's candidates (#2 23 nm, #3 15 nm) carry the same
 # band colour as swatches, not the thick colour (until 2026-12-05 they did)
 H=$T/hbn/report.html
