@@ -58,8 +58,8 @@ static look region_look(const lam_analysis *a, size_t i)
     if (a->thickness) {
         const lam_thickness_result *t = &a->thickness[i];
         if (ci != LAM_DRAW_UNASSIGNED && t->evaluated)
-            return (look){lam_draw_thickness_colour(lam_draw_thickness_band(t->estimate)),
-                          t->order_ambiguous, 1, t->probability};
+            return (look){lam_draw_result_colour(0, t->estimate), t->order_ambiguous, 1,
+                          t->probability};
         return (look){lam_draw_layer_colour(LAM_DRAW_UNASSIGNED), 1, 0, NAN};
     }
     double p = ci >= 1 ? r->p[r->layers] : ci == LAM_DRAW_THICK ? r->p[a->max_layers + 1] : NAN;

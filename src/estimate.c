@@ -327,7 +327,9 @@ lam_status lam_estimate_ladder(const lam_estimate *e, size_t j, lam_model *thick
 
 /* ---- the likelihood of one region, shared with infer.c ---- */
 
-double lam__log_norm(const double *var, size_t nc)
+/* ln prod_c (2 pi var_c): the Gaussian normaliser of a region of
+ * variance var, the same for every mean it is compared with. */
+static double log_norm_of(const double *var, size_t nc)
 {
     double prod = 1;
     for (size_t c = 0; c < nc; c++)
@@ -344,11 +346,6 @@ double lam__gauss_logpdf_norm(const double *m, const double *mu, const double *v
         s += d * d / var[c];
     }
     return -0.5 * (s + log_norm);
-}
-
-double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc)
-{
-    return lam__gauss_logpdf_norm(m, mu, var, nc, lam__log_norm(var, nc));
 }
 
 double lam__logsumexp(const double *x, size_t n)
@@ -416,8 +413,8 @@ static double thick_broad_logpdf(const lam_estimate *e, const lam_est_region *r,
  * so much that a wrong layer ladder which explains residue as a thick
  * flake could beat the right one (a WSe2 chip of 102 nm sold as 90 read
  * 3L/3L/4L for 1L/2L/3L). */
-double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
-                              double log_norm, const lam_prediction *ladder)
+static double unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
+                                double log_norm, const lam_prediction *ladder)
 {
     size_t nc = e->channels, n = ladder->residues;
     double box = -(double)nc * log(LAM_UNMODELLED_SIDE);
@@ -468,8 +465,8 @@ void lam__region_fixed_of(const lam_estimate *e, const lam_est_region *r,
                           const lam_prediction *ladder, lam__region_fixed *out)
 {
     lam__region_var(e, r, out->var);
-    out->log_norm = lam__log_norm(out->var, e->channels);
-    out->unmodelled = lam__unmodelled_logpdf(e, r, out->var, out->log_norm, ladder);
+    out->log_norm = log_norm_of(out->var, e->channels);
+    out->unmodelled = unmodelled_logpdf(e, r, out->var, out->log_norm, ladder);
 }
 
 void lam__region_logterms_in(const lam_estimate *e, const lam_est_region *r,

@@ -224,6 +224,16 @@ static lam_status model_ladders(lam_model_point p, lam_model *model, const grid 
     return out;
 }
 
+/* The oxide steps of a search +-half about the oxide prior's centre, in
+ * steps of 'step', within [lo, hi]. */
+static void grid_span(const lam_nuisance *ox, double lo, double hi, double half, double step,
+                      grid *g)
+{
+    g->step = step;
+    g->lo = fmax(lo, ox->prior_mean - half);
+    g->n = (size_t)((fmin(hi, ox->prior_mean + half) - g->lo) / step) + 1;
+}
+
 struct lam_grid_ladders {
     lam_model_point p; /* the point they were made at, its oxide aside */
     grid g;            /* their oxides (no scores) */
@@ -235,12 +245,11 @@ struct lam_grid_ladders {
 static int lent_ladders_fit(const lam_grid_ladders *t, lam_model_point p, const grid *g,
                             size_t *first)
 {
-    if (!t || t->g.step != g->step || g->lo < t->g.lo)
+    if (!t)
         return 0;
     p.v[LAM_MP_OXIDE] = t->p.v[LAM_MP_OXIDE];
-    for (int k = 0; k < LAM_MP_COUNT; k++)
-        if (p.v[k] != t->p.v[k] && !(isnan(p.v[k]) && isnan(t->p.v[k])))
-            return 0;
+    if (t->g.step != g->step || g->lo < t->g.lo || memcmp(&p, &t->p, sizeof p))
+        return 0;
     size_t d0 = (size_t)((g->lo - t->g.lo) / t->g.step + 0.5);
     if (d0 + g->n > t->g.n)
         return 0;
@@ -280,9 +289,7 @@ lam_status lam_grid_ladders_make(const lam_estimate *e, size_t j, lam_model *mod
     if (!t)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the grid's ladders");
     t->p = lam_estimate_point(e, j);
-    t->g.step = e->opt.search_step_nm;
-    t->g.lo = fmax(0, ox->prior_mean - half_nm);
-    t->g.n = (size_t)((ox->prior_mean + half_nm - t->g.lo) / t->g.step) + 1;
+    grid_span(ox, 0, INFINITY, half_nm, e->opt.search_step_nm, &t->g);
     lam_status st = (t->L = malloc(t->g.n * sizeof *t->L))
                         ? model_ladders(t->p, model, &t->g, e->opt.threads ? e->opt.threads : 1,
                                         t->L, err)
@@ -305,13 +312,11 @@ static lam_status fill_grid(lam_estimate *e, size_t j, lam_model *model, grid *g
                             lam_error *err)
 {
     lam_est_image *im = &e->image[j];
-    double half = e->opt.search_half_nm;
-    g->step = e->opt.search_step_nm;
-    g->lo = fmax(im->oxide.lo, im->oxide.prior_mean - half);
-    double hi = fmin(im->oxide.hi, im->oxide.prior_mean + half);
-    g->n = im->oxide.fitted ? (size_t)((hi - g->lo) / g->step) + 1 : 1;
-    if (!im->oxide.fitted)
-        g->lo = im->oxide.value;
+    if (im->oxide.fitted)
+        grid_span(&im->oxide, im->oxide.lo, im->oxide.hi, e->opt.search_half_nm,
+                  e->opt.search_step_nm, g);
+    else
+        g->step = e->opt.search_step_nm, g->lo = im->oxide.value, g->n = 1;
     size_t threads = e->opt.threads ? e->opt.threads : 1, cells = g->n * SCALE_STEPS;
     threads = threads < cells ? threads : cells;
     grid_job x = {e, j, im->count ? im->count : 1, e->max_layers + 3, NULL, g, NULL, NULL, NULL};

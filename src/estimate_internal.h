@@ -6,15 +6,9 @@
 #include "lamina/estimate.h"
 #include "linalg_internal.h"
 
-/* -0.5 sum_c [(m - mu)^2 / var + ln(2 pi var)] */
-double lam__gauss_logpdf(const double *m, const double *mu, const double *var, size_t nc);
-
-/* ln prod_c (2 pi var_c): the normaliser's part of lam__gauss_logpdf, the
- * same for every mean a region of variance var is compared with. */
-double lam__log_norm(const double *var, size_t nc);
-
-/* lam__gauss_logpdf with its normaliser given (lam__log_norm(var, nc)):
- * the same value, one logarithm per region instead of one per mean. */
+/* -0.5 sum_c [(m - mu)^2 / var + ln(2 pi var)], the logarithm's part
+ * given (log_norm = ln prod_c 2 pi var_c, lam__region_fixed): one
+ * logarithm per region instead of one per mean. */
 double lam__gauss_logpdf_norm(const double *m, const double *mu, const double *var, size_t nc,
                               double log_norm);
 
@@ -26,20 +20,14 @@ double lam__logsumexp(const double *x, size_t n);
 void lam__region_var(const lam_estimate *e, const lam_est_region *r,
                      double var[LAM_MAX_CHANNELS]);
 
-/* ln of the unmodelled hypothesis' density of a region of variance var
- * (lam__region_var): a broad box, and the ladder's residue films when it
- * has them (estimate.c). */
-double lam__unmodelled_logpdf(const lam_estimate *e, const lam_est_region *r, const double *var,
-                              double log_norm, const lam_prediction *ladder);
-
 /* What a region's terms share across ladders that differ only in their
  * layers' contrasts (the starting grid's scales and channel factors at one
  * oxide step): its variance, the normaliser and the unmodelled
  * hypothesis' term (the residue films are not scaled). */
 typedef struct lam__region_fixed {
     double var[LAM_MAX_CHANNELS]; /* lam__region_var */
-    double log_norm;              /* lam__log_norm of var */
-    double unmodelled;            /* lam__unmodelled_logpdf against the ladder's films */
+    double log_norm;              /* ln prod_c (2 pi var_c) */
+    double unmodelled;            /* the unmodelled hypothesis' ln density (estimate.c) */
 } lam__region_fixed;
 
 void lam__region_fixed_of(const lam_estimate *e, const lam_est_region *r,

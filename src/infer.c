@@ -47,8 +47,7 @@ typedef struct loo {
     size_t n;
     double shift[LAM__MAT_MAX];
     lam__mat cov;
-    double var[LAM_MAX_CHANNELS]; /* the region's own variance (lam__region_var) */
-    double log_norm;              /* lam__log_norm of var */
+    lam__region_fixed fixed; /* the region's variance and the terms it fixes */
 } loo;
 
 /* The one-step leave-one-out shift is linear in the region's gradient: for
@@ -70,15 +69,15 @@ static void damp_shift(loo *out, const lam__mat fit_prec, size_t n)
 
 /* Remove region r's information (its responsibility-weighted Gauss-Newton
  * Hessian and gradient) from the posterior of the view's parameters; out
- * also keeps the region's own variance, which every hypothesis shares. */
+ * also keeps what every hypothesis shares: the region's own variance, its
+ * normaliser and its unmodelled term. */
 static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_est_region *r,
                       const double *resp, loo *out)
 {
     size_t n = v->nfree, K = e->max_layers, nc = e->channels;
     out->n = n;
     memset(out->shift, 0, sizeof out->shift);
-    lam__region_var(e, r, out->var);
-    out->log_norm = lam__log_norm(out->var, nc);
+    lam__region_fixed_of(e, r, &v->ladder, &out->fixed);
     lam__mat l, prec;
     for (size_t a = 0; a < n; a++)
         for (size_t b = 0; b < n; b++)
@@ -95,7 +94,7 @@ static void leave_out(const lam_estimate *e, const lam_est_view *v, const lam_es
             continue;
         for (size_t c = 0; c < nc; c++) {
             double pred = v->ladder.contrast[h][c];
-            double w = resp[h] / out->var[c];
+            double w = resp[h] / out->fixed.var[c];
             for (size_t a = 0; a < n; a++) {
                 g[a] += w * v->grad[a][h][c] * (r->mean[c] - pred);
                 for (size_t b = 0; b < n; b++)
@@ -154,7 +153,7 @@ static void predictive(const lam_estimate *e, const lam_est_view *v, const loo *
             s[c][d] = t;
         }
     for (size_t c = 0; c < nc; c++)
-        s[c][c] += lo->var[c];
+        s[c][c] += lo->fixed.var[c];
 }
 
 /* The goodness of fit of a region against its most probable layer count:
@@ -185,12 +184,11 @@ static void hypotheses(const lam_estimate *e, const lam_est_view *v, const lam_e
     double thick[LAM_MODEL_MAX_LAYERS + 1];
     size_t nt = 0;
     for (size_t N = K + 1; N <= top; N++)
-        thick[nt++] =
-            lam__gauss_logpdf_norm(r->mean, v->ladder.contrast[N], lo->var, nc, lo->log_norm);
+        thick[nt++] = lam__gauss_logpdf_norm(r->mean, v->ladder.contrast[N], lo->fixed.var, nc,
+                                             lo->fixed.log_norm);
     lt[K + 1] = nt ? log(lam_hypothesis_prior(K + 1, K) / (double)nt) + lam__logsumexp(thick, nt)
                    : -INFINITY;
-    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) +
-                lam__unmodelled_logpdf(e, r, lo->var, lo->log_norm, &v->ladder);
+    lt[K + 2] = log(lam_hypothesis_prior(K + 2, K)) + lo->fixed.unmodelled;
 }
 
 /* ---- the Fermi level ---- */

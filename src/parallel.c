@@ -28,14 +28,18 @@ typedef struct helper {
     pthread_t tid;
     pthread_mutex_t lock;
     pthread_cond_t wake;  /* a slice given, its end, or retirement */
-    const slice_job *job; /* the slice to run; NULL while idle */
-    int done;             /* the slice given last has ended */
+    const slice_job *job; /* the slice given, until it has ended; NULL while idle */
     int retire;           /* end the thread */
     struct helper *next;  /* on the idle list */
 } helper;
 
 static pthread_mutex_t idle_lock = PTHREAD_MUTEX_INITIALIZER;
 static helper *idle_helpers;
+
+static void run_slice(const slice_job *j)
+{
+    j->fn(j->begin, j->end, j->slice, j->ctx);
+}
 
 static void *helper_main(void *arg)
 {
@@ -48,14 +52,20 @@ static void *helper_main(void *arg)
             break;
         const slice_job *j = h->job;
         pthread_mutex_unlock(&h->lock);
-        j->fn(j->begin, j->end, j->slice, j->ctx);
+        run_slice(j);
         pthread_mutex_lock(&h->lock);
         h->job = NULL;
-        h->done = 1;
         pthread_cond_signal(&h->wake);
     }
     pthread_mutex_unlock(&h->lock);
     return NULL;
+}
+
+static void helper_free(helper *h)
+{
+    pthread_cond_destroy(&h->wake);
+    pthread_mutex_destroy(&h->lock);
+    free(h);
 }
 
 /* A new helper, started; NULL when it cannot be. */
@@ -64,18 +74,17 @@ static helper *helper_start(void)
     helper *h = calloc(1, sizeof *h);
     if (!h)
         return NULL;
-    int ok = pthread_mutex_init(&h->lock, NULL) == 0;
-    if (ok && pthread_cond_init(&h->wake, NULL) != 0) {
-        pthread_mutex_destroy(&h->lock);
-        ok = 0;
-    }
-    if (ok && pthread_create(&h->tid, NULL, helper_main, h) != 0) {
-        pthread_cond_destroy(&h->wake);
-        pthread_mutex_destroy(&h->lock);
-        ok = 0;
-    }
-    if (!ok) {
+    if (pthread_mutex_init(&h->lock, NULL) != 0) {
         free(h);
+        return NULL;
+    }
+    if (pthread_cond_init(&h->wake, NULL) != 0) {
+        pthread_mutex_destroy(&h->lock);
+        free(h);
+        return NULL;
+    }
+    if (pthread_create(&h->tid, NULL, helper_main, h) != 0) {
+        helper_free(h);
         return NULL;
     }
     return h;
@@ -92,7 +101,6 @@ static helper *helper_run(const slice_job *j)
     if (!h && !(h = helper_start()))
         return NULL;
     pthread_mutex_lock(&h->lock);
-    h->done = 0;
     h->job = j;
     pthread_cond_signal(&h->wake);
     pthread_mutex_unlock(&h->lock);
@@ -103,7 +111,7 @@ static helper *helper_run(const slice_job *j)
 static void helper_wait(helper *h)
 {
     pthread_mutex_lock(&h->lock);
-    while (!h->done)
+    while (h->job)
         pthread_cond_wait(&h->wake, &h->lock);
     pthread_mutex_unlock(&h->lock);
     pthread_mutex_lock(&idle_lock);
@@ -125,16 +133,9 @@ void lam_parallel_retire_helpers(void)
         pthread_cond_signal(&h->wake);
         pthread_mutex_unlock(&h->lock);
         pthread_join(h->tid, NULL);
-        pthread_cond_destroy(&h->wake);
-        pthread_mutex_destroy(&h->lock);
-        free(h);
+        helper_free(h);
         h = next;
     }
-}
-
-static void run_slice(const slice_job *j)
-{
-    j->fn(j->begin, j->end, j->slice, j->ctx);
 }
 
 size_t lam_parallel_slices(size_t count, size_t threads)

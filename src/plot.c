@@ -126,9 +126,28 @@ static void contrast_panel(cairo_t *cr, const lam_analysis *a, int c, const lam_
 
 static const char *const film_cats[4] = {"1", "10", "100", "other"};
 
+/* The log axis' coordinate of a thickness (0.5 nm and below at the left). */
+static double film_axis(double nm)
+{
+    return log10(fmax(nm, 0.5));
+}
+
 static double film_x(const lam_thickness_result *t)
 {
-    return t->evaluated ? log10(fmax(t->estimate, 0.5)) : FILM_OTHER_X;
+    return t->evaluated ? film_axis(t->estimate) : FILM_OTHER_X;
+}
+
+/* A dotted grey line from (x0, y0) to (x1, y1). */
+static void dotted_line(cairo_t *cr, double x0, double y0, double x1, double y1)
+{
+    static const double dots[2] = {2, 3};
+    cairo_set_dash(cr, dots, 2, 0);
+    cairo_set_line_width(cr, 1);
+    lam_draw_rgb(cr, 0x555555);
+    cairo_move_to(cr, x0, y0);
+    cairo_line_to(cr, x1, y1);
+    cairo_stroke(cr);
+    cairo_set_dash(cr, NULL, 0, 0);
 }
 
 static void film_range(const lam_analysis *a, double *lo, double *hi)
@@ -155,18 +174,11 @@ static void film_range(const lam_analysis *a, double *lo, double *hi)
 static void other_orders(cairo_t *cr, const lam_thickness_result *t, const lam_axis *x,
                          double px, double py)
 {
-    static const double dots[2] = {2, 3};
     for (size_t k = 1; k < t->modes && k < LAM_THICKNESS_MAX_MODES; k++) {
         if (!(t->mode[k].probability >= FILM_OTHER_ORDER))
             continue;
-        double qx = lam_axis_map(x, log10(fmax(t->mode[k].estimate, 0.5)));
-        cairo_set_dash(cr, dots, 2, 0);
-        cairo_set_line_width(cr, 1);
-        lam_draw_rgb(cr, 0x555555);
-        cairo_move_to(cr, px, py);
-        cairo_line_to(cr, qx, py);
-        cairo_stroke(cr);
-        cairo_set_dash(cr, NULL, 0, 0);
+        double qx = lam_axis_map(x, film_axis(t->mode[k].estimate));
+        dotted_line(cr, px, py, qx, py);
         cairo_arc(cr, qx, py, 3.2, 0, 2 * M_PI);
         lam_draw_rgb(cr, 0xffffff);
         cairo_fill_preserve(cr);
@@ -191,8 +203,8 @@ static void film_region(cairo_t *cr, const lam_analysis *a, size_t i, int c, con
     cairo_set_line_width(cr, 1);
     lam_draw_rgb(cr, 0x222222);
     if (t->evaluated) {
-        cairo_move_to(cr, lam_axis_map(x, log10(fmax(t->lo, 0.5))), py);
-        cairo_line_to(cr, lam_axis_map(x, log10(fmax(t->hi, 0.5))), py);
+        cairo_move_to(cr, lam_axis_map(x, film_axis(t->lo)), py);
+        cairo_line_to(cr, lam_axis_map(x, film_axis(t->hi)), py);
     }
     cairo_move_to(cr, px, py - e);
     cairo_line_to(cr, px, py + e);
@@ -203,8 +215,7 @@ static void film_region(cairo_t *cr, const lam_analysis *a, size_t i, int c, con
         cairo_fill(cr);
     }
     cairo_arc(cr, px, py, 3.6, 0, 2 * M_PI);
-    lam_draw_rgb(cr, t->evaluated ? lam_draw_thickness_colour(lam_draw_thickness_band(t->estimate))
-                                  : 0xffffff);
+    lam_draw_rgb(cr, t->evaluated ? lam_draw_result_colour(0, t->estimate) : 0xffffff);
     cairo_fill_preserve(cr);
     cairo_set_line_width(cr, 1.2);
     lam_draw_rgb(cr, 0x222222);
@@ -245,50 +256,35 @@ static void film_legend(cairo_t *cr, double m, double ny)
     lam_draw_text(cr, m + 14, ny + 20, &note,
                   "regions (#id) at their thickness, filled with its colour band; bars: 1\u03c3 "
                   "of contrast, 95 % interval of thickness; \u201cother\u201d: no film (open)");
-    static const double dots[2] = {2, 3};
-    cairo_set_dash(cr, dots, 2, 0);
-    cairo_set_line_width(cr, 1);
-    lam_draw_rgb(cr, 0x555555);
-    cairo_move_to(cr, m - 4, ny + 46);
-    cairo_line_to(cr, m + 4, ny + 46);
-    cairo_stroke(cr);
-    cairo_set_dash(cr, NULL, 0, 0);
+    dotted_line(cr, m - 4, ny + 46, m + 4, ny + 46);
     lam_draw_text(cr, m + 14, ny + 40, &note,
                   "dotted to an open circle: another interference order the region may be "
                   "(5 % of its film posterior or more; JSON: thickness.modes)");
 }
 
-/* The page: a title, one panel per channel, the legend. */
-static lam_status contrast_page(const lam_analysis *a, const char *path, int film,
-                                lam_error *err)
+/* The page's geometry: panel width and height, left margin, gap between
+ * panels, top of the panels. */
+static const double page_pw = 300, page_ph = 280, page_m = 80, page_gap = 40, page_top = 70;
+
+/* A film's panels (contrast against thickness) and legend. */
+static void film_page(cairo_t *cr, const lam_analysis *a)
 {
-    const double pw = 300, ph = 280, m = 80, gap = 40, top = 70;
-    size_t K = a->max_layers;
-    lam_canvas cv;
-    lam_status st = lam_canvas_open(&cv, path, m + 3 * pw + 2 * gap + 30, top + ph + 110, err);
-    if (st)
-        return st;
-    cairo_t *cr = cv.cr;
-    const char *base = strrchr(a->file, '/');
-    char esc[600], title[800];
-    lam_draw_escape(base ? base + 1 : a->file, esc, sizeof esc);
-    snprintf(title, sizeof title, "Region contrast against the %s \u2014 %s, "
-                                  "SiO\u2082 %.1f nm%s", film ? "film model" : "model ladder",
-             esc, a->oxide.estimate, a->oxide.fitted ? " (fitted)" : " (nominal)");
-    lam_text_style ts = {15, 1, 0x111111, 0, 0, 0};
-    lam_draw_text(cr, m, 16, &ts, title);
-    if (film) {
-        double lo, hi;
-        film_range(a, &lo, &hi);
-        for (int c = 0; c < 3; c++) {
-            double x0 = m + (double)c * (pw + gap);
-            lam_axis x = {-0.35, FILM_OTHER_X + 0.35, x0, x0 + pw, film_cats, 4, 0};
-            lam_axis y = {lo, hi, top + ph, top, NULL, 0, 0};
-            film_panel(cr, a, c, &x, &y);
-        }
-        film_legend(cr, m, top + ph + 52);
-        return lam_canvas_finish(&cv, err);
+    double lo, hi;
+    film_range(a, &lo, &hi);
+    for (int c = 0; c < 3; c++) {
+        double x0 = page_m + (double)c * (page_pw + page_gap);
+        lam_axis x = {-0.35, FILM_OTHER_X + 0.35, x0, x0 + page_pw, film_cats, 4, 0};
+        lam_axis y = {lo, hi, page_top + page_ph, page_top, NULL, 0, 0};
+        film_panel(cr, a, c, &x, &y);
     }
+    film_legend(cr, page_m, page_top + page_ph + 52);
+}
+
+/* The layer ladder's panels and legend. */
+static void ladder_page(cairo_t *cr, const lam_analysis *a)
+{
+    const double pw = page_pw, ph = page_ph, m = page_m, gap = page_gap, top = page_top;
+    size_t K = a->max_layers;
     const char *cats[LAM_MODEL_MAX_LAYERS + 2];
     char names[LAM_MODEL_MAX_LAYERS + 2][8];
     for (size_t N = 0; N <= K + 1 && N < LAM_MODEL_MAX_LAYERS + 2; N++) {
@@ -314,12 +310,32 @@ static lam_status contrast_page(const lam_analysis *a, const char *path, int fil
                   "regions (#id) at their assigned layer count, filled with the layer colour; "
                   "bars: 1\u03c3 including the model floor; \u201cother\u201d: thick (khaki) "
                   "or unassigned (open)");
-    return lam_canvas_finish(&cv, err);
 }
 
+/* The page: a title, one panel per channel and the legend, against the
+ * layer ladder or, for a crystal of continuous thickness, against
+ * thickness. */
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err)
 {
-    return contrast_page(a, path, a->thickness != NULL, err);
+    int film = a->thickness != NULL;
+    lam_canvas cv;
+    lam_status st = lam_canvas_open(&cv, path, page_m + 3 * page_pw + 2 * page_gap + 30,
+                                    page_top + page_ph + 110, err);
+    if (st)
+        return st;
+    const char *base = strrchr(a->file, '/');
+    char esc[600], title[800];
+    lam_draw_escape(base ? base + 1 : a->file, esc, sizeof esc);
+    snprintf(title, sizeof title, "Region contrast against the %s \u2014 %s, "
+                                  "SiO\u2082 %.1f nm%s", film ? "film model" : "model ladder",
+             esc, a->oxide.estimate, a->oxide.fitted ? " (fitted)" : " (nominal)");
+    lam_text_style ts = {15, 1, 0x111111, 0, 0, 0};
+    lam_draw_text(cv.cr, page_m, 16, &ts, title);
+    if (film)
+        film_page(cv.cr, a);
+    else
+        ladder_page(cv.cr, a);
+    return lam_canvas_finish(&cv, err);
 }
 
 /* ---- oxide audit ---- */

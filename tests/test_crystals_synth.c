@@ -190,7 +190,7 @@ static void test_tmd_dense_flakes(const char *dir)
  * by 5.8 in log posterior, and every flake was read one or two layers
  * high at p 0.97-0.998 with no warning that doubts the counts. Residue
  * films are now an explanation in every reading (estimate.c,
- * lam__unmodelled_logpdf): the two readings are reported together
+ * unmodelled_logpdf): the two readings are reported together
  * ("two-readings") and no count is confident. */
 static void test_tmd_residue(const char *dir)
 {
