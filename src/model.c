@@ -264,12 +264,29 @@ fail:
     return st;
 }
 
+/* The fits' spectral step and cone nodes. Graphene's sheets in reflection
+ * have no feature narrower than the oxide's fringes (and the Pauli edge,
+ * thermally broadened, seen through a camera channel 65-85 nm wide), so
+ * 10 nm and 6 nodes keep every 1-5L contrast within 6e-5 of the full
+ * model (2 nm, 24 nodes) up to 500 nm of SiO2, within 1.5e-4 up to
+ * 1000 nm (NA 0.3 and 0.9, E_F 0.2-1.0 eV, two cameras; test_model,
+ * docs/performance.md "nineteenth stop"): ten times below the contrast
+ * floor of a picture (1e-3 and more: the substrate's unevenness, an 8-bit
+ * file's steps). A TMD's excitons are 15-20 nm wide: at 10 nm WSe2's
+ * contrasts moved by up to 1.5e-3 (1.3e-4 at 5 nm), so other crystals,
+ * and transmission (not measured), keep 5 nm and 8 nodes. */
+static void fast_grid(const lam_setup *setup, lam_setup *fs)
+{
+    int sheets = lam_setup_crystal_kind(setup) == LAM_CRYSTAL_SHEETS && !setup->transmission;
+    fs->grid_step_nm = sheets ? 10 : 5;
+    fs->cone_nodes = sheets ? 6 : 8;
+}
+
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,
                                 lam_error *err)
 {
     lam_setup fs = *setup;
-    fs.grid_step_nm = 5;
-    fs.cone_nodes = 8;
+    fast_grid(setup, &fs);
     lam_status st = lam_model_alloc(&fs, max_layers, 0, out, err);
     if (st || lam_setup_crystal_kind(setup) != LAM_CRYSTAL_LAYERED || setup->transmission)
         return st;

@@ -458,6 +458,65 @@ static void test_warm_equals_cold(void)
     lam_model_free(warm);
 }
 
+/* The fits' coarse model (lam_model_alloc_fast) against the full one
+ * (2 nm, 24 cone nodes; the full model is the one checked against the
+ * FDTD reference and the published contrasts above): graphene's 1-5L
+ * contrasts at its 10 nm and 6 nodes within 6e-5 up to 500 nm of SiO2 and
+ * 1.5e-4 up to 1000 nm, over illumination NA 0.3-0.9 and E_F 0.2-0.9 eV
+ * (the bound lamina/model.h states; a picture's contrast floor is 1e-3
+ * and more). A TMD keeps 5 nm and 8 nodes: its excitons are 15-20 nm wide
+ * (at 10 nm WSe2's contrasts moved by 1.5e-3), within 2e-4 there. */
+static double fast_vs_full(const lam_setup *s, double oxide, double na, double fermi)
+{
+    lam_setup full = *s;
+    full.grid_step_nm = 2;
+    full.cone_nodes = 24;
+    lam_model *f = NULL, *r = NULL;
+    double worst = INFINITY;
+    if (!lam_model_alloc_fast(s, 5, &f, NULL) && !lam_model_alloc(&full, 5, 0, &r, NULL)) {
+        lam_model_point p = lam_model_point_default(f), q = lam_model_point_default(r);
+        p.v[LAM_MP_OXIDE] = q.v[LAM_MP_OXIDE] = oxide;
+        p.v[LAM_MP_NA] = q.v[LAM_MP_NA] = na;
+        p.v[LAM_MP_FERMI] = q.v[LAM_MP_FERMI] = fermi;
+        if (!lam_model_eval_point(f, &p, 5, &P, NULL) &&
+            !lam_model_eval_point(r, &q, 5, &Q, NULL)) {
+            worst = 0;
+            for (size_t N = 1; N <= 5; N++)
+                for (size_t c = 0; c < P.channels; c++)
+                    worst = fmax(worst, fabs(P.contrast[N][c] - Q.contrast[N][c]));
+        }
+    }
+    lam_model_free(f);
+    lam_model_free(r);
+    return worst;
+}
+
+static void test_fast_model(void)
+{
+    static const double oxide[5] = {90, 285, 400, 485, 1000}, na[2] = {0.3, 0.9};
+    static const double fermi[2] = {0.2, 0.9};
+    lam_setup s;
+    lam_setup_default(&s);
+    double thin = 0, thick = 0;
+    for (int i = 0; i < 5; i++)
+        for (int j = 0; j < 2; j++)
+            for (int k = 0; k < 2; k++) {
+                double d = fast_vs_full(&s, oxide[i], na[j], fermi[k]);
+                thin = oxide[i] <= 500 ? fmax(thin, d) : thin;
+                thick = fmax(thick, d);
+            }
+    check_true(thin <= 6e-5, "graphene's fit model within 6e-5 of the full one up to 500 nm "
+                             "(worst %.1e)", thin);
+    check_true(thick <= 1.5e-4, "... and within 1.5e-4 at 1000 nm (worst %.1e)", thick);
+    double tmd = 0;
+    if (check_true(!lam_setup_set_material(&s, "WSe2", NULL), "WSe2 set"))
+        for (int i = 0; i < 2; i++)
+            for (int j = 0; j < 2; j++)
+                tmd = fmax(tmd, fast_vs_full(&s, oxide[i], na[j], 0));
+    check_true(tmd <= 2e-4, "WSe2's fit model within 2e-4 of the full one (worst %.1e)", tmd);
+    lam_setup_clear(&s);
+}
+
 int main(void)
 {
     check_begin("test_model");
@@ -470,6 +529,7 @@ int main(void)
     test_dark_channel_refused();
     test_clone();
     test_warm_equals_cold();
+    test_fast_model();
     if (check_refdata_dir())
         test_film_comparison();
     else

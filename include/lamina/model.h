@@ -87,8 +87,10 @@ lam_status lam_model_alloc(const lam_setup *setup, size_t max_layers, double mon
                            lam_model **out, lam_error *err);
 void lam_model_free(lam_model *m);
 
-/* The coarse copy used inside fits: 5 nm spectral step and 8 cone nodes
- * (contrasts within ~2e-4 of the full model, several times faster). For
+/* The coarse copy used inside fits: for graphene in reflection a 10 nm
+ * spectral step and 6 cone nodes (1-5L contrasts within 6e-5 of the full
+ * model up to 500 nm of SiO2, 1.5e-4 up to 1000 nm), for other crystals and
+ * transmission 5 nm and 8 nodes (within ~2e-4); several times faster. For
  * TMD flakes (LAM_CRYSTAL_LAYERED) in reflection it carries a PMMA residue
  * film (lam_model_set_residue), which the estimate's unmodelled hypothesis
  * weighs; graphene's models do not yet (with residue weighed, a graphene
