@@ -1201,20 +1201,23 @@ static const film_table *film_table_for(lam_model *m, double scale, const double
 }
 
 /* Reflection: the cone- and channel-weighted reflectance of the film of
- * each thickness at one wavelength, added to acc[k][c] (and the bare
- * substrate's to sub[c]) by add_film_r2: one cos/sin per node and
- * thickness shared by both polarisations, the cone summed before the
- * channels. The phases come from 'ft' (film_table_for), or when it is
- * NULL are made here into 'buf' (4 x count doubles, of which the last
- * count always hold the sums). */
-static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t l,
-                             double complex nf, const double *d, size_t count,
-                             const film_table *ft, double (*acc)[LAM_MAX_CHANNELS], double *sub,
-                             double *buf)
+ * each thickness at one wavelength on each of the ns substrates s[o],
+ * added to acc[o * count + k][c] (and the bare substrate's to sub[o][c])
+ * by add_film_r2: one cos/sin per node and thickness shared by both
+ * polarisations and every substrate (the phases are the film's alone),
+ * the cone summed before the channels. The phases come from 'ft'
+ * (film_table_for), or when it is NULL are made here into 'buf'
+ * ((3 + ns) x count doubles, of which the last ns x count always hold the
+ * sums). Each substrate's sums are added in the order one substrate's
+ * alone would be: the same numbers as ns calls. */
+static void films_reflect_at(const lam_model *m, const substrate_slot *const *s, size_t ns,
+                             size_t l, double complex nf, const double *d, size_t count,
+                             const film_table *ft, double (*acc)[LAM_MAX_CHANNELS],
+                             double (*sub)[LAM_MAX_CHANNELS], double *buf)
 {
-    double rsub = 0;
+    double rsub[SUBSTRATE_SLOTS] = {0};
     double *rsum = buf + 3 * count;
-    memset(rsum, 0, count * sizeof *rsum);
+    memset(rsum, 0, ns * count * sizeof *rsum);
     for (size_t t = 0; t < m->cone_cache.nodes; t++) {
         film_node f = film_node_at(m, l, t, nf);
         const double *cs = buf, *sn = buf + count, *rho = buf + 2 * count;
@@ -1224,51 +1227,86 @@ static void films_reflect_at(const lam_model *m, const substrate_slot *s, size_t
         } else {
             film_phases_of(&f, d, count, buf, buf + count, buf + 2 * count);
         }
-        for (int pol = 0; pol < f.npol; pol++) {
-            double complex eta0 = s->eta0[2 * f.k + (size_t)pol], y = s->y[2 * f.k + (size_t)pol];
-            rsub += f.wt * reflectance(eta0, y);
-            add_film_r2(eta0, y, lam_tmm_eta(nf, f.q, (lam_pol)pol), f.wt, cs, sn, rho, count,
-                        rsum);
+        for (size_t o = 0; o < ns; o++)
+            for (int pol = 0; pol < f.npol; pol++) {
+                double complex eta0 = s[o]->eta0[2 * f.k + (size_t)pol];
+                double complex y = s[o]->y[2 * f.k + (size_t)pol];
+                rsub[o] += f.wt * reflectance(eta0, y);
+                add_film_r2(eta0, y, lam_tmm_eta(nf, f.q, (lam_pol)pol), f.wt, cs, sn, rho,
+                            count, rsum + o * count);
+            }
+    }
+    for (size_t o = 0; o < ns; o++)
+        for (size_t ch = 0; ch < m->channels; ch++) {
+            double w = m->weight[ch * m->nwl + l];
+            sub[o][ch] += w * rsub[o];
+            for (size_t j = 0; j < count; j++)
+                acc[o * count + j][ch] += w * rsum[o * count + j];
         }
+}
+
+/* The films on the substrates of oxides ox[0..ns) (ns <= SUBSTRATE_SLOTS,
+ * each checked by the caller) into contrast[o * count + k]: the slots are
+ * fetched first, so that each is the most recently used while the next is
+ * found and none of them is refilled before the wavelengths are done. */
+static lam_status films_on(lam_model *m, const double *ox, size_t ns, double index_scale,
+                           const double *d, size_t count, double (*contrast)[LAM_MAX_CHANNELS],
+                           lam_error *err)
+{
+    const substrate_slot *s[SUBSTRATE_SLOTS];
+    double sub[SUBSTRATE_SLOTS][LAM_MAX_CHANNELS];
+    memset(sub, 0, sizeof sub);
+    for (size_t o = 0; o < ns; o++)
+        s[o] = lam__substrate_for(m, ox[o]);
+    double *buf = NULL;
+    if (!m->transmission && !(buf = malloc((3 + ns) * (count ? count : 1) * sizeof *buf)))
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a film evaluation");
+    memset(contrast, 0, ns * count * sizeof *contrast);
+    const film_table *ft = m->transmission ? NULL : film_table_for(m, index_scale, d, count);
+    for (size_t l = 0; l < m->nwl; l++) {
+        double complex nf = film_index(m, l, index_scale);
+        if (!m->transmission)
+            films_reflect_at(m, s, ns, l, nf, d, count, ft, contrast, sub, buf);
+        for (size_t o = 0; o < ns && m->transmission; o++)
+            films_transmit_at(m, s[o], l, nf, d, count, contrast + o * count, sub[o]);
     }
-    for (size_t ch = 0; ch < m->channels; ch++) {
-        double w = m->weight[ch * m->nwl + l];
-        sub[ch] += w * rsub;
+    free(buf);
+    for (size_t o = 0; o < ns; o++)
         for (size_t j = 0; j < count; j++)
-            acc[j][ch] += w * rsum[j];
+            for (size_t ch = 0; ch < m->channels; ch++)
+                contrast[o * count + j][ch] =
+                    (sub[o][ch] - contrast[o * count + j][ch]) / sub[o][ch];
+    return LAM_OK;
+}
+
+lam_status lam_model_eval_films_oxides(lam_model *m, const lam_model_point *p,
+                                       const double *oxide_nm, size_t n_oxide,
+                                       double index_scale, const double *thickness_nm,
+                                       size_t count, double (*contrast)[LAM_MAX_CHANNELS],
+                                       lam_error *err)
+{
+    if (!m->n_film)
+        return lam_error_set(err, LAM_EINVAL, "the model's flakes are not films");
+    for (size_t o = 0; o < n_oxide; o++)
+        if (!(oxide_nm[o] >= 0 && oxide_nm[o] <= 5000))
+            return lam_error_set(err, LAM_ERANGE, "oxide %g nm out of range", oxide_nm[o]);
+    if (!(index_scale > 0))
+        return lam_error_set(err, LAM_ERANGE, "index scale %g out of range", index_scale);
+    lam_status st;
+    if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) || (st = ensure_weights(m, p, err)))
+        return st;
+    for (size_t o = 0; o < n_oxide && !st; o += SUBSTRATE_SLOTS) {
+        size_t ns = n_oxide - o < SUBSTRATE_SLOTS ? n_oxide - o : SUBSTRATE_SLOTS;
+        st = films_on(m, oxide_nm + o, ns, index_scale, thickness_nm, count,
+                      contrast + o * count, err);
     }
+    return st;
 }
 
 lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double index_scale,
                                 const double *thickness_nm, size_t count,
                                 double (*contrast)[LAM_MAX_CHANNELS], lam_error *err)
 {
-    if (!m->n_film)
-        return lam_error_set(err, LAM_EINVAL, "the model's flakes are not films");
-    double oxide = p->v[LAM_MP_OXIDE];
-    if (!(oxide >= 0 && oxide <= 5000) || !(index_scale > 0))
-        return lam_error_set(err, LAM_ERANGE, "oxide %g nm or index scale %g out of range", oxide,
-                             index_scale);
-    lam_status st;
-    if ((st = ensure_cone(m, p->v[LAM_MP_NA], err)) || (st = ensure_weights(m, p, err)))
-        return st;
-    const substrate_slot *s = lam__substrate_for(m, oxide);
-    double sub[LAM_MAX_CHANNELS] = {0}, *buf = NULL;
-    if (!m->transmission && !(buf = malloc(4 * (count ? count : 1) * sizeof *buf)))
-        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a film evaluation");
-    memset(contrast, 0, count * sizeof *contrast);
-    const film_table *ft =
-        m->transmission ? NULL : film_table_for(m, index_scale, thickness_nm, count);
-    for (size_t l = 0; l < m->nwl; l++) {
-        double complex nf = film_index(m, l, index_scale);
-        if (m->transmission)
-            films_transmit_at(m, s, l, nf, thickness_nm, count, contrast, sub);
-        else
-            films_reflect_at(m, s, l, nf, thickness_nm, count, ft, contrast, sub, buf);
-    }
-    free(buf);
-    for (size_t j = 0; j < count; j++)
-        for (size_t ch = 0; ch < m->channels; ch++)
-            contrast[j][ch] = (sub[ch] - contrast[j][ch]) / sub[ch];
-    return LAM_OK;
+    return lam_model_eval_films_oxides(m, p, &p->v[LAM_MP_OXIDE], 1, index_scale, thickness_nm,
+                                       count, contrast, err);
 }

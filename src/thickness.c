@@ -141,6 +141,28 @@ static void fine_scale(lam_thickness_table *t, const double (*base)[LAM_MAX_CHAN
     }
 }
 
+/* The model's contrasts at the nb index scales about scale_mean (+-
+ * SCALE_REACH sd) on every oxide: base[(o * nb + k) * count + j]. All
+ * oxides of one scale in one evaluation (lam_model_eval_films_oxides: the
+ * films' phases depend on the scale, not on the oxide). */
+static lam_status base_tables(lam_model *m, const lam_model_point *p, const double *oxide_nm,
+                              size_t n_oxide, double scale_mean, double scale_sd, size_t nb,
+                              const double *d, size_t count, double (*base)[LAM_MAX_CHANNELS],
+                              lam_error *err)
+{
+    double (*one)[LAM_MAX_CHANNELS] = malloc(n_oxide * count * sizeof *one);
+    lam_status st = one ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
+    for (size_t k = 0; k < nb && !st; k++) {
+        double u = nb > 1 ? -SCALE_REACH + 2 * SCALE_REACH * (double)k / (double)(nb - 1) : 0;
+        st = lam_model_eval_films_oxides(m, p, oxide_nm, n_oxide,
+                                         fmax(0.5, scale_mean + scale_sd * u), d, count, one, err);
+        for (size_t o = 0; o < n_oxide && !st; o++)
+            memcpy(base + (o * nb + k) * count, one + o * count, count * sizeof *one);
+    }
+    free(one);
+    return st;
+}
+
 lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
                                      const double *oxide_nm, const double *oxide_weight,
                                      size_t n_oxide, double scale_mean, double scale_sd,
@@ -153,7 +175,7 @@ lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
     size_t nc = lam_model_channels(m);
     size_t count = 1 + (size_t)ceil(log(opt->max_nm / opt->min_nm) / opt->step_rel);
     lam_thickness_table *t = n_oxide <= 8 ? table_alloc(nc, count, n_oxide, nf) : NULL;
-    double (*base)[LAM_MAX_CHANNELS] = malloc(nb * count * sizeof *base);
+    double (*base)[LAM_MAX_CHANNELS] = malloc(n_oxide * nb * count * sizeof *base);
     if (!t || !base) {
         lam_thickness_table_free(t);
         free(base);
@@ -171,18 +193,10 @@ lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
     for (size_t o = 0; o < n_oxide; o++)
         t->oxide_logw[o] = log(oxide_weight[o]);
     node_weights(t);
-    lam_status st = LAM_OK;
-    for (size_t o = 0; o < n_oxide && !st; o++) {
-        lam_model_point q = *p;
-        q.v[LAM_MP_OXIDE] = oxide_nm[o];
-        for (size_t k = 0; k < nb && !st; k++) {
-            double u = nb > 1 ? -SCALE_REACH + 2 * SCALE_REACH * (double)k / (double)(nb - 1) : 0;
-            st = lam_model_eval_films(m, &q, fmax(0.5, scale_mean + scale_sd * u), t->d, count,
-                                      base + k * count, err);
-        }
-        if (!st)
-            fine_scale(t, (const double (*)[LAM_MAX_CHANNELS])base, nb, nf, o);
-    }
+    lam_status st = base_tables(m, p, oxide_nm, n_oxide, scale_mean, scale_sd, nb, t->d, count,
+                                base, err);
+    for (size_t o = 0; o < n_oxide && !st; o++)
+        fine_scale(t, (const double (*)[LAM_MAX_CHANNELS])(base + o * nb * count), nb, nf, o);
     free(base);
     for (size_t c = 0; c < nc && !st; c++) {
         t->box_lo[c] = t->box_hi[c] = 0;

@@ -134,6 +134,59 @@ static void test_film_tables(void)
     lam_setup_clear(&s);
 }
 
+/* lam_model_eval_films_oxides gives what one lam_model_eval_films per
+ * oxide gives, to the bit: seven oxides (more than the six substrates a
+ * model keeps, so they go in two groups, and one repeated), 300
+ * thicknesses (a table the model keeps) and 2000 (one it makes each
+ * time), reflection and transmission. */
+static void test_films_at_oxides(void)
+{
+    static const double oxide[7] = {280, 285, 290, 300, 285, 95, 310};
+    static double d[2000], one[2000][LAM_MAX_CHANNELS], all[7 * 2000][LAM_MAX_CHANNELS];
+    for (size_t j = 0; j < 2000; j++)
+        d[j] = 0.5 + 0.15 * (double)j;
+    size_t same = 0, tried = 0;
+    /* transmission: a film on a stamp (a transparent base; the film's SiO2
+     * is there for the oxide to move) */
+    static const char *stamp = "{\"schema\":\"lamina-setup/1\",\"material\":\"hBN\","
+                               "\"observation\":\"transmission\",\"substrate\":{\"stack\":"
+                               "[{\"material\":\"SiO2\",\"thickness_nm\":285}],"
+                               "\"base\":\"PDMS\"}}";
+    for (int transmission = 0; transmission < 2; transmission++) {
+        lam_setup s;
+        lam_setup_default(&s);
+        if (!transmission)
+            lam_setup_set_material(&s, "hBN", NULL);
+        else if (!check_int(lam_setup_parse(stamp, ".", &s, NULL), LAM_OK, "a stamp's setup")) {
+            lam_setup_clear(&s);
+            break;
+        }
+        lam_model *m = NULL, *fresh = NULL;
+        for (size_t count = 300; count <= 2000; count += 1700) {
+            if (lam_model_alloc(&s, 1, 0, &m, NULL) || lam_model_clone(m, &fresh, NULL))
+                break;
+            lam_model_point p = lam_model_point_default(m);
+            if (lam_model_eval_films_oxides(m, &p, oxide, 7, 1.05, d, count, all, NULL))
+                break;
+            for (size_t o = 0; o < 7; o++) {
+                p.v[LAM_MP_OXIDE] = oxide[o];
+                tried++;
+                same += !lam_model_eval_films(fresh, &p, 1.05, d, count, one, NULL) &&
+                        !memcmp(one, all + o * count, count * sizeof *one);
+            }
+            lam_model_free(m);
+            lam_model_free(fresh);
+            m = fresh = NULL;
+        }
+        lam_model_free(m);
+        lam_model_free(fresh);
+        lam_setup_clear(&s);
+    }
+    check_true(tried == 28 && same == tried,
+               "films at seven oxides in one call: %zu of %zu bit-identical to one call each",
+               same, tried);
+}
+
 /* The terminal's text for hBN results (summary.c): the batch table lists
  * the thicknesses with the target marked, an hBN-only batch has no
  * monolayer list, the watch line gives the range. */
@@ -192,6 +245,7 @@ int main(void)
         check_skip("tests/data/nk not found");
     test_modes();
     test_film_tables();
+    test_films_at_oxides();
     test_summary();
     return check_summary();
 }

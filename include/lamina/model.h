@@ -162,4 +162,15 @@ lam_status lam_model_eval_films(lam_model *m, const lam_model_point *p, double i
                                 const double *thickness_nm, size_t count,
                                 double (*contrast)[LAM_MAX_CHANNELS], lam_error *err);
 
+/* lam_model_eval_films at each of n_oxide oxides (p's own oxide is not
+ * used) into contrast[o * count + k][c]: the same numbers as n_oxide
+ * calls, to the bit, with the films' phases (the largest part of the
+ * cost, and the same on every substrate) made once per group of up to six
+ * oxides instead of once per oxide. */
+lam_status lam_model_eval_films_oxides(lam_model *m, const lam_model_point *p,
+                                       const double *oxide_nm, size_t n_oxide,
+                                       double index_scale, const double *thickness_nm,
+                                       size_t count, double (*contrast)[LAM_MAX_CHANNELS],
+                                       lam_error *err);
+
 #endif
