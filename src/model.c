@@ -274,12 +274,18 @@ fail:
  * floor of a picture (1e-3 and more: the substrate's unevenness, an 8-bit
  * file's steps). A TMD's excitons are 15-20 nm wide: at 10 nm WSe2's
  * contrasts moved by up to 1.5e-3 (1.3e-4 at 5 nm), so other crystals,
- * and transmission (not measured), keep 5 nm and 8 nodes. */
+ * and transmission (not measured), keep 5 nm. (WS2's sharper A exciton
+ * costs up to 1.7e-3 at 2-5L even there, 2.8e-4 at 1L.) Six cone nodes
+ * are within 1.5e-5 of 48 up to 285 nm of SiO2 at any NA; at 400 nm and
+ * an illumination NA of 0.9, 1.3e-4 for the TMDs and hBN (graphene
+ * 1.1e-5), the size of the TMDs' spectral error; four nodes were 8e-4 off
+ * at 285 nm. Transmission keeps 8 (not measured). docs/performance.md,
+ * nineteenth stop. */
 static void fast_grid(const lam_setup *setup, lam_setup *fs)
 {
     int sheets = lam_setup_crystal_kind(setup) == LAM_CRYSTAL_SHEETS && !setup->transmission;
     fs->grid_step_nm = sheets ? 10 : 5;
-    fs->cone_nodes = sheets ? 6 : 8;
+    fs->cone_nodes = setup->transmission ? 8 : 6;
 }
 
 lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_model **out,

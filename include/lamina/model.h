@@ -89,8 +89,11 @@ void lam_model_free(lam_model *m);
 
 /* The coarse copy used inside fits: for graphene in reflection a 10 nm
  * spectral step and 6 cone nodes (1-5L contrasts within 6e-5 of the full
- * model up to 500 nm of SiO2, 1.5e-4 up to 1000 nm), for other crystals and
- * transmission 5 nm and 8 nodes (within ~2e-4); several times faster. For
+ * model up to 500 nm of SiO2, 1.5e-4 up to 1000 nm), for other crystals 5
+ * nm and 6 nodes (1-5L of MoS2 and WSe2 within 1.3e-4 on 90-400 nm, WS2
+ * within 1.7e-3, 1L 2.8e-4: its sharp A exciton; hBN films within 6e-5;
+ * the nodes cost up to 1.3e-4 more at 400 nm and NA 0.9), in transmission
+ * 5 nm and 8 nodes; several times faster. For
  * TMD flakes (LAM_CRYSTAL_LAYERED) in reflection it carries a PMMA residue
  * film (lam_model_set_residue), which the estimate's unmodelled hypothesis
  * weighs; graphene's models do not yet (with residue weighed, a graphene
