@@ -276,11 +276,11 @@ fail:
  * contrasts moved by up to 1.5e-3 (1.3e-4 at 5 nm), so other crystals,
  * and transmission (not measured), keep 5 nm. (WS2's sharper A exciton
  * costs up to 1.7e-3 at 2-5L even there, 2.8e-4 at 1L.) Six cone nodes
- * are within 1.5e-5 of 48 up to 285 nm of SiO2 at any NA; at 400 nm and
- * an illumination NA of 0.9, 1.3e-4 for the TMDs and hBN (graphene
- * 1.1e-5), the size of the TMDs' spectral error; four nodes were 8e-4 off
- * at 285 nm. Transmission keeps 8 (not measured). docs/performance.md,
- * nineteenth stop. */
+ * are within 1.5e-5 of 48 up to 285 nm of SiO2 at NA 0.3-0.9 (hBN's
+ * 1-300 nm films 2.6e-5); at 400 nm and an illumination NA of 0.9, 1.3e-4
+ * for the TMDs and hBN (graphene 1.1e-5), the size of the TMDs' spectral
+ * error; four nodes were 8e-4 off at 285 nm. Transmission keeps 8 (not
+ * measured). docs/performance.md, nineteenth stop. */
 static void fast_grid(const lam_setup *setup, lam_setup *fs)
 {
     int sheets = lam_setup_crystal_kind(setup) == LAM_CRYSTAL_SHEETS && !setup->transmission;
