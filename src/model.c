@@ -1271,10 +1271,11 @@ static lam_status films_on(lam_model *m, const double *ox, size_t ns, double ind
     const film_table *ft = m->transmission ? NULL : film_table_for(m, index_scale, d, count);
     for (size_t l = 0; l < m->nwl; l++) {
         double complex nf = film_index(m, l, index_scale);
-        if (!m->transmission)
+        if (m->transmission)
+            for (size_t o = 0; o < ns; o++)
+                films_transmit_at(m, s[o], l, nf, d, count, contrast + o * count, sub[o]);
+        else
             films_reflect_at(m, s, ns, l, nf, d, count, ft, contrast, sub, buf);
-        for (size_t o = 0; o < ns && m->transmission; o++)
-            films_transmit_at(m, s[o], l, nf, d, count, contrast + o * count, sub[o]);
     }
     free(buf);
     for (size_t o = 0; o < ns; o++)

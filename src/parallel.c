@@ -90,6 +90,18 @@ static helper *helper_start(void)
     return h;
 }
 
+/* Tell helper h to run slice j, or with j NULL to end. */
+static void helper_tell(helper *h, const slice_job *j)
+{
+    pthread_mutex_lock(&h->lock);
+    if (j)
+        h->job = j;
+    else
+        h->retire = 1;
+    pthread_cond_signal(&h->wake);
+    pthread_mutex_unlock(&h->lock);
+}
+
 /* An idle helper given slice j to run, or NULL (j is then run here). */
 static helper *helper_run(const slice_job *j)
 {
@@ -100,10 +112,7 @@ static helper *helper_run(const slice_job *j)
     pthread_mutex_unlock(&idle_lock);
     if (!h && !(h = helper_start()))
         return NULL;
-    pthread_mutex_lock(&h->lock);
-    h->job = j;
-    pthread_cond_signal(&h->wake);
-    pthread_mutex_unlock(&h->lock);
+    helper_tell(h, j);
     return h;
 }
 
@@ -128,10 +137,7 @@ void lam_parallel_retire_helpers(void)
     pthread_mutex_unlock(&idle_lock);
     while (h) {
         helper *next = h->next;
-        pthread_mutex_lock(&h->lock);
-        h->retire = 1;
-        pthread_cond_signal(&h->wake);
-        pthread_mutex_unlock(&h->lock);
+        helper_tell(h, NULL);
         pthread_join(h->tid, NULL);
         helper_free(h);
         h = next;
