@@ -663,7 +663,7 @@ static lam_status posterior_stage(lam__run *r, lam_error *err)
         if (!(a->results = calloc(a->count ? a->count : 1, sizeof *a->results)))
             return lam_error_set(err, LAM_ENOMEM, "cannot allocate region results");
         lam_status st = lam_thickness_analyze(a, &r->contrast, r->setup, r->model,
-                                              r->opt->oxide_tolerance_nm, err);
+                                              r->opt->oxide_tolerance_nm, r->threads, err);
         MARK(r, LAM_T_REGIONS);
         return st;
     }

@@ -5,6 +5,7 @@
 #include "lamina/thickness.h"
 #include "lamina/crystal.h"
 #include "lamina/infer.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -38,7 +39,7 @@ struct lam_thickness_table {
 
 lam_thickness_options lam_thickness_options_default(void)
 {
-    lam_thickness_options o = {0.333, 300, 0.004, 20, 0.95, 5, 41};
+    lam_thickness_options o = {0.333, 300, 0.004, 20, 0.95, 5, 41, 1};
     return o;
 }
 
@@ -121,9 +122,10 @@ static void node_weights(lam_thickness_table *t)
             t->log_w[o * t->n_scale + f] = t->oxide_logw[o] + t->scale_logw[f];
 }
 
-/* The fine scale values of one oxide node from its base contrasts. */
+/* The fine scale values of one oxide node from its base contrasts
+ * (base[b * stride + j]: scale node b, thickness j). */
 static void fine_scale(lam_thickness_table *t, const double (*base)[LAM_MAX_CHANNELS],
-                       size_t nb, size_t nf, size_t oxide_node)
+                       size_t stride, size_t nb, size_t nf, size_t oxide_node)
 {
     double u[16], l[16];
     for (size_t j = 0; j < nb; j++)
@@ -135,31 +137,82 @@ static void fine_scale(lam_thickness_table *t, const double (*base)[LAM_MAX_CHAN
             for (size_t c = 0; c < t->channels; c++) {
                 double v = 0;
                 for (size_t b = 0; b < nb; b++)
-                    v += l[b] * base[b * t->count + j][c];
+                    v += l[b] * base[b * stride + j][c];
                 t->c[node * t->count + j][c] = v;
             }
     }
 }
 
+/* ---- film evaluations on several threads ----
+ * Evaluation k (k < n) at point q[k] and index scale scale[k], on n_oxide
+ * oxides, into out + k * n_oxide * count (lam_model_eval_films_oxides'
+ * layout). A model keeps caches, so each worker has its own: the caller's
+ * and clones of it (whose caches refill to the same values). The same
+ * numbers on any number of threads. */
+#define FILMS_MAX_EVALS 16
+
+typedef struct films_job {
+    lam_model *model[LAM_MAX_THREADS];
+    const lam_model_point *q;
+    const double *scale, *oxide_nm, *d;
+    size_t n_oxide, count;
+    double (*out)[LAM_MAX_CHANNELS];
+    lam_status st[FILMS_MAX_EVALS];
+    lam_error err[FILMS_MAX_EVALS];
+} films_job;
+
+static void films_item(size_t k, size_t worker, void *vjob)
+{
+    films_job *j = vjob;
+    j->st[k] = lam_model_eval_films_oxides(j->model[worker], &j->q[k], j->oxide_nm, j->n_oxide,
+                                           j->scale[k], j->d, j->count,
+                                           j->out + k * j->n_oxide * j->count, &j->err[k]);
+}
+
+static lam_status films_run(films_job *j, lam_model *m, size_t n, size_t threads,
+                            lam_error *err)
+{
+    if (n > FILMS_MAX_EVALS)
+        return lam_error_set(err, LAM_EINVAL, "too many film evaluations (%zu)", n);
+    size_t workers = lam_parallel_slices(n, threads), made = 1;
+    lam_status st = LAM_OK;
+    j->model[0] = m;
+    while (made < workers && !(st = lam_model_clone(m, &j->model[made], err)))
+        made++;
+    if (!st)
+        lam_parallel_each_worker(n, made, films_item, j);
+    for (size_t k = 0; k < n && !st; k++)
+        if ((st = j->st[k]) && err)
+            *err = j->err[k];
+    for (size_t w = 1; w < made; w++)
+        lam_model_free(j->model[w]);
+    return st;
+}
+
 /* The model's contrasts at the nb index scales about scale_mean (+-
- * SCALE_REACH sd) on every oxide: base[(o * nb + k) * count + j]. All
- * oxides of one scale in one evaluation (lam_model_eval_films_oxides: the
- * films' phases depend on the scale, not on the oxide). */
+ * SCALE_REACH sd) on every oxide: base[(k * n_oxide + o) * count + j].
+ * All oxides of one scale in one evaluation (lam_model_eval_films_oxides:
+ * the films' phases depend on the scale, not on the oxide); the scales on
+ * 'threads' threads. */
 static lam_status base_tables(lam_model *m, const lam_model_point *p, const double *oxide_nm,
                               size_t n_oxide, double scale_mean, double scale_sd, size_t nb,
-                              const double *d, size_t count, double (*base)[LAM_MAX_CHANNELS],
-                              lam_error *err)
+                              const double *d, size_t count, size_t threads,
+                              double (*base)[LAM_MAX_CHANNELS], lam_error *err)
 {
-    double (*one)[LAM_MAX_CHANNELS] = malloc(n_oxide * count * sizeof *one);
-    lam_status st = one ? LAM_OK : lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
-    for (size_t k = 0; k < nb && !st; k++) {
+    films_job *j = malloc(sizeof *j);
+    if (!j)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate a table");
+    lam_model_point q[FILMS_MAX_EVALS];
+    double scale[FILMS_MAX_EVALS];
+    for (size_t k = 0; k < nb && k < FILMS_MAX_EVALS; k++) {
         double u = nb > 1 ? -SCALE_REACH + 2 * SCALE_REACH * (double)k / (double)(nb - 1) : 0;
-        st = lam_model_eval_films_oxides(m, p, oxide_nm, n_oxide,
-                                         fmax(0.5, scale_mean + scale_sd * u), d, count, one, err);
-        for (size_t o = 0; o < n_oxide && !st; o++)
-            memcpy(base + (o * nb + k) * count, one + o * count, count * sizeof *one);
+        q[k] = *p;
+        scale[k] = fmax(0.5, scale_mean + scale_sd * u);
     }
-    free(one);
+    j->q = q, j->scale = scale, j->oxide_nm = oxide_nm, j->d = d;
+    j->n_oxide = n_oxide, j->count = count, j->out = base;
+    lam_status st = films_run(j, m, nb, threads, err);
+    free(j);
     return st;
 }
 
@@ -194,9 +247,10 @@ lam_status lam_thickness_table_build(lam_model *m, const lam_model_point *p,
         t->oxide_logw[o] = log(oxide_weight[o]);
     node_weights(t);
     lam_status st = base_tables(m, p, oxide_nm, n_oxide, scale_mean, scale_sd, nb, t->d, count,
-                                base, err);
+                                opt->threads, base, err);
     for (size_t o = 0; o < n_oxide && !st; o++)
-        fine_scale(t, (const double (*)[LAM_MAX_CHANNELS])(base + o * nb * count), nb, nf, o);
+        fine_scale(t, (const double (*)[LAM_MAX_CHANNELS])(base + o * count), n_oxide * count,
+                   nb, nf, o);
     free(base);
     for (size_t c = 0; c < nc && !st; c++) {
         t->box_lo[c] = t->box_hi[c] = 0;
@@ -462,13 +516,15 @@ void lam_thickness_infer(const lam_thickness_table *t, const lam_thickness_noise
 lam_status lam_thickness_table_add_optics(lam_thickness_table *t, lam_model *m,
                                           const lam_model_point *p, double scale,
                                           const double *sd_shift, const double *sd_width,
-                                          double sd_na, lam_error *err)
+                                          double sd_na, size_t threads, lam_error *err)
 {
     double (*c)[LAM_MAX_CHANNELS] = malloc(4 * t->count * sizeof *c);
+    films_job *job = malloc(sizeof *job);
     if (!t->optics)
         t->optics = malloc(t->count * sizeof *t->optics);
-    if (!c || !t->optics) {
+    if (!c || !job || !t->optics) {
         free(c);
+        free(job);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the optics' variance");
     }
     lam_model_point q[4] = {*p, *p, *p, *p};
@@ -477,9 +533,11 @@ lam_status lam_thickness_table_add_optics(lam_thickness_table *t, lam_model *m,
         q[2].v[LAM_MP_WIDTH + k] += OPTICS_LOG_WIDTH;
     }
     q[3].v[LAM_MP_NA] = p->v[LAM_MP_NA] + OPTICS_NA;
-    lam_status st = LAM_OK;
-    for (int k = 0; k < 4 && !st; k++)
-        st = lam_model_eval_films(m, &q[k], scale, t->d, t->count, c + k * t->count, err);
+    double scales[4] = {scale, scale, scale, scale};
+    job->q = q, job->scale = scales, job->oxide_nm = &p->v[LAM_MP_OXIDE], job->d = t->d;
+    job->n_oxide = 1, job->count = t->count, job->out = c;
+    lam_status st = films_run(job, m, 4, threads, err);
+    free(job);
     for (size_t j = 0; j < t->count && !st; j++)
         for (size_t k = 0; k < t->channels; k++) {
             double c0 = c[j][k];

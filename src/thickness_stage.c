@@ -18,6 +18,7 @@
 #define COARSE_STEP_NM 4.0
 #define FINE_STEP_NM 1.0
 #define PROFILE_MAX_HALF_NM 40.0
+#define COARSE_MAX_POINTS 21 /* 2 x 40 / 4 + 1 */
 #define PROFILE_STEP_REL 0.015
 #define OXIDE_SYSTEMATIC 0.015
 
@@ -38,23 +39,25 @@ static lam_model_point prior_point(const lam_estimate *e)
 
 typedef struct profile_ctx {
     const lam_analysis *a;
-    lam_model *coarse;
+    size_t threads;
+    lam_model *coarse[LAM_MAX_THREADS]; /* the profile's model, one per worker */
+    size_t workers;
     lam_model_point p;
     double scale_mean, scale_sd;     /* the index scale's prior */
     lam_thickness_noise nz;
-    size_t used;
+    size_t used; /* regions that may inform the fit */
     double sd_shift[LAM_MAX_CHANNELS], sd_width[LAM_MAX_CHANNELS], sd_na; /* optics' priors */
     lam_thickness_table *optics_ref; /* the profile's first table, with the optics' variance */
 } profile_ctx;
 
 /* The optics' variance of a table at the context's point and prior scale. */
 static lam_status add_optics(profile_ctx *x, lam_thickness_table *t, lam_model *m, double ox,
-                             lam_error *err)
+                             size_t threads, lam_error *err)
 {
     lam_model_point p = x->p;
     p.v[LAM_MP_OXIDE] = ox;
     return lam_thickness_table_add_optics(t, m, &p, x->scale_mean, x->sd_shift, x->sd_width,
-                                          x->sd_na, err);
+                                          x->sd_na, threads, err);
 }
 
 /* sum[f]: the log evidence of the regions that may inform the fit at each
@@ -68,21 +71,20 @@ static lam_status image_scale_evidence(profile_ctx *x, const lam_thickness_table
         return lam_error_set(err, LAM_EINVAL, "too many index scales (%zu)", nf);
     for (size_t f = 0; f < nf; f++)
         sum[f] = 0;
-    x->used = 0;
     for (size_t i = 0; i < x->a->count; i++)
         if (x->a->measured[i].use) {
             lam_thickness_log_evidence_scales(t, &x->nz, &x->a->measured[i], e);
             for (size_t f = 0; f < nf; f++)
                 sum[f] += e[f];
-            x->used++;
         }
     return LAM_OK;
 }
 
 /* The log evidence of the regions that may inform the fit at one oxide,
  * with the image's index scale integrated (one crystal per image), plus the
- * oxide's log prior. */
-static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error *err)
+ * oxide's log prior; the tables made with 'model' (the caller's worker's). */
+static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double *score,
+                             lam_error *err)
 {
     lam_thickness_options o = lam_thickness_options_default();
     o.step_rel = PROFILE_STEP_REL;
@@ -90,13 +92,13 @@ static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error
     o.scale_fine = 9;
     double w = 1;
     lam_thickness_table *t = NULL;
-    lam_status st = lam_thickness_table_build(x->coarse, &x->p, &ox, &w, 1, x->scale_mean,
+    lam_status st = lam_thickness_table_build(model, &x->p, &ox, &w, 1, x->scale_mean,
                                               x->scale_sd, &o, &t, err);
     if (!st && !x->optics_ref) {
         /* the first table's optics' variance serves every oxide of the
          * profile (its derivatives vary slowly with the oxide), and the
          * table serves its own oxide: it is kept, not built again */
-        if (!(st = add_optics(x, t, x->coarse, ox, err)))
+        if (!(st = add_optics(x, t, model, ox, 1, err)))
             x->optics_ref = t;
     } else if (!st) {
         st = lam_thickness_table_copy_optics(t, x->optics_ref, err);
@@ -123,19 +125,66 @@ static lam_status profile_at(profile_ctx *x, double ox, double *score, lam_error
     return st;
 }
 
-/* The coarse grid over the oxide: the best point. */
+/* The profile at n oxides, score[i] at ox[i]. The oxides are independent
+ * but for the first table's optics' variance (profile_at), so the first is
+ * made on this thread and the rest are handed out to the workers, each
+ * with its own model: the same scores as one after the other. Returns the
+ * first error in the order of ox. */
+typedef struct profile_job {
+    profile_ctx *x;
+    const double *ox;
+    double *score;
+    lam_status *st;
+    lam_error *err;
+} profile_job;
+
+static void profile_item(size_t i, size_t worker, void *vjob)
+{
+    const profile_job *j = vjob;
+    j->st[i] = profile_at(j->x, j->x->coarse[worker], j->ox[i], &j->score[i], &j->err[i]);
+}
+
+static lam_status profile_many(profile_ctx *x, const double *ox, size_t n, double *score,
+                               lam_error *err)
+{
+    size_t first = n && !x->optics_ref;
+    lam_status st = first ? profile_at(x, x->coarse[0], ox[0], &score[0], err) : LAM_OK;
+    if (st || n == first)
+        return st;
+    lam_status *sts = malloc((n - first) * sizeof *sts);
+    lam_error *errs = malloc((n - first) * sizeof *errs);
+    if (!sts || !errs) {
+        free(sts);
+        free(errs);
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide profile");
+    }
+    profile_job job = {x, ox + first, score + first, sts, errs};
+    lam_parallel_each_worker(n - first, x->workers, profile_item, &job);
+    for (size_t i = 0; i < n - first && !st; i++)
+        if ((st = sts[i]) && err)
+            *err = errs[i];
+    free(sts);
+    free(errs);
+    return st;
+}
+
+/* The coarse grid over the oxide: the best point (the first of equals). */
 static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
 {
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     int half = (int)ceil(fmin(3 * po->prior_sd, PROFILE_MAX_HALF_NM) / COARSE_STEP_NM);
-    double best = -INFINITY, score;
+    double d[COARSE_MAX_POINTS], score[COARSE_MAX_POINTS];
+    size_t n = 0;
+    half = half < COARSE_MAX_POINTS / 2 ? half : COARSE_MAX_POINTS / 2;
+    for (int k = -half; k <= half; k++)
+        if (po->prior_mean + COARSE_STEP_NM * k >= 0)
+            d[n++] = po->prior_mean + COARSE_STEP_NM * k;
     *ox = po->prior_mean;
-    lam_status st = LAM_OK;
-    for (int k = -half; k <= half && !st; k++) {
-        double d = po->prior_mean + COARSE_STEP_NM * k;
-        if (d >= 0 && !(st = profile_at(x, d, &score, err)) && score > best)
-            best = score, *ox = d;
-    }
+    lam_status st = profile_many(x, d, n, score, err);
+    double best = -INFINITY;
+    for (size_t i = 0; i < n && !st; i++)
+        if (score[i] > best)
+            best = score[i], *ox = d[i];
     return st;
 }
 
@@ -146,16 +195,19 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
 {
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     enum { HALF = 4, N = 2 * HALF + 1 };
-    double score[N], centre = *ox;
-    int kbest = 0;
-    lam_status st = LAM_OK;
-    for (int i = 0; i < N; i++) /* compared below before the centre's own is known */
+    double score[N], centre = *ox, d[N], got[N];
+    int kbest = 0, at[N];
+    size_t n = 0;
+    for (int i = 0; i < N; i++) { /* compared below before the centre's own is known */
         score[i] = -INFINITY;
-    for (int k = -HALF; k <= HALF && !st; k++) {
-        double d = centre + FINE_STEP_NM * k;
-        if (d >= 0)
-            st = profile_at(x, d, &score[k + HALF], err);
-        if (!st && score[k + HALF] > score[kbest + HALF])
+        if (centre + FINE_STEP_NM * (i - HALF) >= 0)
+            at[n] = i, d[n++] = centre + FINE_STEP_NM * (i - HALF);
+    }
+    lam_status st = profile_many(x, d, n, got, err);
+    for (size_t i = 0; i < n && !st; i++) { /* in the order of k, as one after the other */
+        int k = at[i] - HALF;
+        score[at[i]] = got[i];
+        if (score[k + HALF] > score[kbest + HALF])
             kbest = k;
     }
     *sd = po->prior_sd;
@@ -197,12 +249,17 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     lam_setup coarse = *s; /* a shallow copy: the model copies what it needs */
     coarse.grid_step_nm = 10;
     coarse.cone_nodes = 4;
-    lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse, err);
+    x->used = usable;
+    x->workers = lam_parallel_slices(COARSE_MAX_POINTS, x->threads);
+    lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse[0], err);
+    size_t made = st ? 0 : 1;
+    for (; made < x->workers && !st; made++)
+        st = lam_model_clone(x->coarse[0], &x->coarse[made], err);
     if (!st && !(st = coarse_scan(x, ox, err)))
         st = fine_scan(x, ox, sd, err);
-    lam_model_free(x->coarse);
+    for (size_t k = 0; k < made; k++)
+        lam_model_free(x->coarse[k]);
     lam_thickness_table_free(x->optics_ref);
-    x->coarse = NULL;
     x->optics_ref = NULL;
     if (st)
         return st;
@@ -280,16 +337,30 @@ static void region_result(const lam_analysis *a, size_t i, const lam_thickness_r
     }
 }
 
-/* Every region's posterior under a table. */
+/* Every region's posterior under a table. Regions are independent, so
+ * they are handed out one at a time to the stage's threads. */
+typedef struct infer_job {
+    lam_analysis *a;
+    const lam_thickness_table *t;
+    const profile_ctx *x;
+    const lam_thickness_options *opt;
+} infer_job;
+
+static void infer_region(size_t i, void *vjob)
+{
+    const infer_job *j = vjob;
+    lam_analysis *a = j->a;
+    lam_thickness_infer(j->t, &j->x->nz, &a->measured[i], j->opt, &a->thickness[i]);
+    region_result(a, i, &a->thickness[i], &a->results[i]);
+    lam_usable_rectangle(a->seg, &a->seg->regions[i], a->results[i].usable_px,
+                         a->results[i].usable_at);
+}
+
 static void infer_regions(lam_analysis *a, const lam_thickness_table *t, const profile_ctx *x,
                           const lam_thickness_options *opt)
 {
-    for (size_t i = 0; i < a->count; i++) {
-        lam_thickness_infer(t, &x->nz, &a->measured[i], opt, &a->thickness[i]);
-        region_result(a, i, &a->thickness[i], &a->results[i]);
-        lam_usable_rectangle(a->seg, &a->seg->regions[i], a->results[i].usable_px,
-                             a->results[i].usable_at);
-    }
+    infer_job job = {a, t, x, opt};
+    lam_parallel_each(a->count, x->threads, infer_region, &job);
 }
 
 /* Join keys: regions whose thickness is settled (one order, a film, not
@@ -335,7 +406,8 @@ static void join_keys(const lam_analysis *a, int *key)
 /* Join the parts of one flake (lam_segment_join) and measure the regions
  * again. Band pixels join within 0.02 of the region's contrast plus the
  * pixel noise, per channel. */
-static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, lam_error *err)
+static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, size_t threads,
+                             lam_error *err)
 {
     size_t n = a->count, joined = 0;
     int *key = malloc((n ? n : 1) * sizeof *key);
@@ -346,14 +418,14 @@ static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, 
         fill[c] = 0.02 + a->substrate.noise[c];
     if (!st) {
         join_keys(a, key);
-        st = lam_segment_join(contrast, a->channels, key, fill, lam_parallel_default(), a->seg,
+        st = lam_segment_join(contrast, a->channels, key, fill, threads, a->seg,
                               map, &joined, err);
     }
     free(key);
     free(map);
     if (st)
         return st;
-    return lam__measure_regions(a, contrast, lam_parallel_default(), err);
+    return lam__measure_regions(a, contrast, threads, err);
 }
 
 /* Every region's posterior under the table at the oxide's nodes, the parts
@@ -370,11 +442,12 @@ static lam_status regions(lam_analysis *a, const lam_contrast_map *contrast, lam
         w[k] = n == 1 ? 1 : gw[k];
     }
     lam_thickness_options opt = lam_thickness_options_default();
+    opt.threads = x->threads;
     lam_thickness_table *t = NULL;
     lam_status st = lam_thickness_table_build(model, &x->p, nodes, w, n, x->scale_mean,
                                               x->scale_sd, &opt, &t, err);
     if (!st)
-        st = add_optics(x, t, model, ox, err);
+        st = add_optics(x, t, model, ox, x->threads, err);
     /* Each region keeps the index scale's prior (the published spread).
      * The regions' joint vote on the scale, which the oxide's profile
      * integrates, is not taken for the thickness: it absorbs misfits of
@@ -384,7 +457,7 @@ static lam_status regions(lam_analysis *a, const lam_contrast_map *contrast, lam
      * read 10-18 % thin. */
     if (!st) {
         infer_regions(a, t, x, &opt);
-        if (contrast && !(st = join_parts(a, contrast, err)))
+        if (contrast && !(st = join_parts(a, contrast, x->threads, err)))
             infer_regions(a, t, x, &opt);
     }
     lam_thickness_table_free(t);
@@ -393,11 +466,12 @@ static lam_status regions(lam_analysis *a, const lam_contrast_map *contrast, lam
 
 lam_status lam_thickness_analyze(lam_analysis *a, const lam_contrast_map *contrast,
                                  const lam_setup *s, lam_model *model, double oxide_tolerance_nm,
-                                 lam_error *err)
+                                 size_t threads, lam_error *err)
 {
     profile_ctx x;
     memset(&x, 0, sizeof x);
     x.a = a;
+    x.threads = threads ? threads : 1;
     x.p = prior_point(a->estimate);
     x.nz = lam_thickness_noise_from(a->estimate, s);
     for (size_t c = 0; c < LAM_MAX_CHANNELS; c++) {

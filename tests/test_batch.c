@@ -236,5 +236,14 @@ int main(void)
              "%s/alone1/HT090-B02-tile03.json %s/alone2/HT090-B02-tile03.json",
              bin_dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
     check_int(system(cmd), 0, "one image without a setup: the same JSON with 1 and 2 threads");
+    /* an hBN image: its oxide profile's points, its tables' film
+     * evaluations and its regions are handed out to the threads
+     * (thickness_stage.c, thickness.c), each worker with its own model */
+    snprintf(cmd, sizeof cmd, "for t in 1 2; do %s/lamina analyze --quiet --threads $t --setup "
+             "samples/bench3-setup-hbn.json --out %s/hbn$t samples/HT285-N05-tile04.png "
+             "2>/dev/null || exit 1; done && cmp -s %s/hbn1/HT285-N05-tile04.json "
+             "%s/hbn2/HT285-N05-tile04.json",
+             bin_dir, check_tmpdir(), check_tmpdir(), check_tmpdir());
+    check_int(system(cmd), 0, "an hBN image: the same JSON with 1 and 2 threads");
     return check_summary();
 }

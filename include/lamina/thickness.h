@@ -85,6 +85,7 @@ typedef struct lam_thickness_options {
     double p_order;           /* order-ambiguous below this (0.95) */
     size_t scale_nodes;       /* index scales the model is evaluated at, over +-3 sd (5) */
     size_t scale_fine;        /* ... interpolated to this many for the integral (41) */
+    size_t threads;           /* threads the table's model evaluations use (1) */
 } lam_thickness_options;
 
 /* The defaults given in brackets above. */
@@ -130,7 +131,7 @@ void lam_thickness_table_free(lam_thickness_table *t);
 lam_status lam_thickness_table_add_optics(lam_thickness_table *t, lam_model *m,
                                           const lam_model_point *p, double scale,
                                           const double *sd_shift, const double *sd_width,
-                                          double sd_na, lam_error *err);
+                                          double sd_na, size_t threads, lam_error *err);
 lam_status lam_thickness_table_copy_optics(lam_thickness_table *dst,
                                            const lam_thickness_table *src, lam_error *err);
 
@@ -161,10 +162,12 @@ void lam_thickness_log_evidence_scales(const lam_thickness_table *t,
  * contrast image (may be NULL), parts of one flake cut apart by image
  * artefacts (same thickness within 5 %, one order) are joined first
  * (lam_segment_join) and measured again. The oxide audit passes when the
- * estimate is within oxide_tolerance_nm of nominal. */
+ * estimate is within oxide_tolerance_nm of nominal. The oxide profile's
+ * points and the regions are worked on 'threads' threads, with the same
+ * results for any number. */
 struct lam_analysis;
 lam_status lam_thickness_analyze(struct lam_analysis *a, const lam_contrast_map *contrast,
                                  const lam_setup *s, lam_model *model, double oxide_tolerance_nm,
-                                 lam_error *err);
+                                 size_t threads, lam_error *err);
 
 #endif
