@@ -518,6 +518,29 @@ static lam_status ensure_cone(lam_model *m, double na, lam_error *err)
     return LAM_OK;
 }
 
+/* cos and sin of a complex phase x + iy: cos x cosh y - i sin x sinh y
+ * and sin x cosh y + i cos x sinh y. ccos and csin each make the sine and
+ * cosine of x and the hyperbolic functions of y; here they are made once,
+ * the hyperbolic ones from one expm1 (with e = e^|y| = 1 + em,
+ * cosh y = 1 + em^2 / 2e and sinh |y| = (em + em / e) / 2: no
+ * cancellation for small y, where a film is thin). Beyond |y| = 700 e^|y|
+ * overflows and the library's functions take over. */
+void lam__complex_cos_sin(double complex ph, double complex *c, double complex *s)
+{
+    double x = creal(ph), y = cimag(ph), ay = fabs(y);
+    if (!(ay <= 700)) {
+        *c = ccos(ph), *s = csin(ph);
+        return;
+    }
+    double sx = sin(x), cx = cos(x);
+    double em = expm1(ay), e = 1 + em;
+    double ch = 1 + 0.5 * em * (em / e), sh = 0.5 * (em + em / e);
+    if (y < 0)
+        sh = -sh;
+    *c = CMPLX(cx * ch, -sx * sh);
+    *s = CMPLX(sx * ch, cx * sh);
+}
+
 /* cos and sin of a phase; a real phase (a lossless film below its
  * critical angle, the ambient gap) takes the real functions. */
 void lam__phase_cos_sin(double complex ph, double complex *c, double complex *s)
@@ -525,7 +548,7 @@ void lam__phase_cos_sin(double complex ph, double complex *c, double complex *s)
     if (cimag(ph) == 0) {
         *c = cos(creal(ph)), *s = sin(creal(ph));
     } else {
-        *c = ccos(ph), *s = csin(ph);
+        lam__complex_cos_sin(ph, c, s);
     }
 }
 
@@ -818,7 +841,7 @@ static void film_phases_at(const lam_model *m, size_t l, double kx, size_t layer
             qn = lam_tmm_q(m->n_film_layer[(N - 1) * m->nwl + l], kx);
         double complex ph = k0 * qn * m->interlayer_nm * (double)N;
         f->q[N] = qn;
-        f->cp[N] = ccos(ph), f->sp[N] = csin(ph);
+        lam__complex_cos_sin(ph, &f->cp[N], &f->sp[N]);
     }
 }
 

@@ -158,6 +158,11 @@ size_t lam__films_of(const lam_model *m);
 /* cos and sin of a phase; a real phase takes the real functions. */
 void lam__phase_cos_sin(double complex ph, double complex *c, double complex *s);
 
+/* ccos(ph) and csin(ph) at about half their cost (the real functions of
+ * the phase's two parts made once); within a few units in the last place
+ * of the library's (test_model). */
+void lam__complex_cos_sin(double complex ph, double complex *c, double complex *s);
+
 /* The waves of the current cone (reflection only): kept, or filled. */
 cone_waves *lam__waves_for(lam_model *m);
 
