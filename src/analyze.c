@@ -209,6 +209,7 @@ static lam_status model_stage(lam__run *r, lam_error *err)
     a->max_layers = opt->max_layers;
     a->oxide.nominal = lam_setup_oxide(r->setup);
     a->oxide.estimate = a->oxide.nominal;
+    a->oxide.rival_nm = NAN;
     a->prior_pooled = opt->shared_prior && opt->shared_prior->set;
     a->prior_images = a->prior_pooled ? opt->shared_prior->images : 0;
     a->prior_two_readings = a->prior_pooled ? opt->shared_prior->two_readings : 0;
@@ -464,6 +465,7 @@ static lam_status fit_stage(lam__run *r, lam_error *err)
     if (st)
         return st;
     oxide_summary(a, r->opt);
+    a->oxide.rival_nm = o.rival_nm;
     if (o.colour_start && !o.off_nominal) {
         size_t n = strlen(a->oxide.method);
         snprintf(a->oxide.method + n, sizeof a->oxide.method - n,

@@ -168,17 +168,39 @@ static lam_status profile_many(profile_ctx *x, const double *ox, size_t n, doubl
     return st;
 }
 
-/* The coarse grid over the oxide: the best point (the first of equals). */
+/* The coarse grid over the oxide: the best point (the first of equals).
+ * About the prior's centre and about the oxides the layer ladder's fit
+ * before this stage found where they lie beyond that grid's reach: its
+ * wide search finds a chip at another interference order (a 200 nm chip
+ * under a 285 nm setup), and it names a rival order that fits nearly as
+ * well (a 90 nm chip under a 285 nm setup); +-40 nm about the nominal
+ * reaches neither. The regions' evidence, with the oxide's prior, chooses. */
+static size_t scan_centres(const profile_ctx *x, int half, double *centre)
+{
+    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
+    double cand[3] = {po->prior_mean, po->value, x->a->oxide.rival_nm};
+    size_t n = 0;
+    for (size_t c = 0; c < 3; c++) {
+        int near = !isfinite(cand[c]);
+        for (size_t k = 0; k < n && !near; k++)
+            near = fabs(cand[c] - centre[k]) <= COARSE_STEP_NM * half;
+        if (!near)
+            centre[n++] = cand[c];
+    }
+    return n;
+}
+
 static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
 {
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     int half = (int)ceil(fmin(3 * po->prior_sd, PROFILE_MAX_HALF_NM) / COARSE_STEP_NM);
-    double d[COARSE_MAX_POINTS], score[COARSE_MAX_POINTS];
-    size_t n = 0;
     half = half < COARSE_MAX_POINTS / 2 ? half : COARSE_MAX_POINTS / 2;
-    for (int k = -half; k <= half; k++)
-        if (po->prior_mean + COARSE_STEP_NM * k >= 0)
-            d[n++] = po->prior_mean + COARSE_STEP_NM * k;
+    double centre[3], d[3 * COARSE_MAX_POINTS], score[3 * COARSE_MAX_POINTS];
+    size_t centres = scan_centres(x, half, centre), n = 0;
+    for (size_t c = 0; c < centres; c++)
+        for (int k = -half; k <= half; k++)
+            if (centre[c] + COARSE_STEP_NM * k >= 0)
+                d[n++] = centre[c] + COARSE_STEP_NM * k;
     *ox = po->prior_mean;
     lam_status st = profile_many(x, d, n, score, err);
     double best = -INFINITY;
@@ -253,8 +275,9 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     x->workers = lam_parallel_slices(COARSE_MAX_POINTS, x->threads);
     lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse[0], err);
     size_t made = st ? 0 : 1;
-    for (; made < x->workers && !st; made++)
-        st = lam_model_clone(x->coarse[0], &x->coarse[made], err);
+    while (made && made < x->workers &&
+           !(st = lam_model_clone(x->coarse[0], &x->coarse[made], err)))
+        made++;
     if (!st && !(st = coarse_scan(x, ox, err)))
         st = fine_scan(x, ox, sd, err);
     for (size_t k = 0; k < made; k++)

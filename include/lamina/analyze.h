@@ -82,6 +82,8 @@ typedef struct lam_oxide_result {
     size_t regions_used;
     char method[224];
     lam_colour_oxide colour;
+    double rival_nm; /* an oxide about one interference order away that fits the
+                      * regions nearly as well (the warning "oxide-ambiguous"), or NAN */
 } lam_oxide_result;
 
 /* Cumulative seconds at the end of each stage (for --verbose and benchmarks). */

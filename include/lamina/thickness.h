@@ -25,7 +25,10 @@
  * lamina/estimate.h. The optics are the setup's (NA, camera, lamp).
  *
  * The oxide: on a grid over nominal +- 3 prior sd (at most 40 nm; 4 nm
- * steps, then 1 nm about the best), every region that may inform the fit
+ * steps, then 1 nm about the best), and as far about the oxide the layer
+ * ladder's fit found and its rival order (lam_oxide_result.rival_nm) where
+ * those lie beyond that reach (a chip mislabelled by an order), every
+ * region that may inform the fit
  * votes with its marginal likelihood (its d and the alternatives integrated
  * out), under ONE index scale for the image (integrated over its prior);
  * coarse model (10 nm spectral steps, 4 cone nodes, 1.5 % thickness
