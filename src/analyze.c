@@ -472,13 +472,17 @@ static lam_status fit_stage(lam__run *r, lam_error *err)
                  "; started at the substrate colour's oxide (the flakes left the nominal one's "
                  "search)");
     }
-    if (o.off_nominal)
+    /* hBN's thickness stage fits the oxide again (about these searches'
+     * oxides too) and warns of its own (a rival; off nominal: check_oxide in
+     * analyze_checks.c) */
+    int own_oxide = !lam_thickness_applies(r->setup);
+    if (o.off_nominal && own_oxide)
         lam_warnings_add(&a->warnings, "oxide-off-nominal",
                          "the flakes do not fit the nominal %.1f nm of SiO2; searched %.0f nm "
                          "each side, they fit %.1f +- %.1f nm: check the chip and the setup; "
                          "the layer counts use the fitted value",
                          a->oxide.nominal, LAM__WIDE_HALF_NM, a->oxide.estimate, a->oxide.sigma);
-    if (isfinite(o.rival_nm))
+    if (isfinite(o.rival_nm) && own_oxide)
         lam_warnings_add(&a->warnings, "oxide-ambiguous",
                          "the flakes fit %.1f nm of SiO2 and nearly as well %.1f nm (about one "
                          "interference order apart, where N layers look like others): the "

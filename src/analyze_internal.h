@@ -33,8 +33,13 @@ typedef struct lam__run {
 lam_status lam__new_estimate(lam__run *r, double centre_nm, double half_nm, double oxide_sd,
                              lam_estimate **out, lam_error *err);
 
-/* How far the wide oxide search looks each side of the nominal oxide. */
+/* How far the wide oxide search looks each side of the nominal oxide, with
+ * what prior sd, and by how much (in log-likelihood: e^10 to one) its
+ * result must beat the nominal one to replace it (analyze_oxide.c; hBN's
+ * profile weighs a rival order the same way, thickness_stage.c). */
 #define LAM__WIDE_HALF_NM 200.0
+#define LAM__WIDE_PRIOR_SD_NM 100.0
+#define LAM__WIDE_MARGIN 10.0
 
 /* What the oxide's searches after the nominal fit did (analyze_oxide.c). */
 typedef struct lam__oxide_search {

@@ -20,7 +20,7 @@
  * given (the setup's camera, NA or lamp defaulted), and with any setup
  * when the nominal fit is doubtful, the oxide is checked by a second fit
  * over one order each side with a wide prior, kept when its regions fit
- * markedly better (by WIDE_MARGIN in log-likelihood: e^10 to one). When
+ * markedly better (by LAM__WIDE_MARGIN in log-likelihood: e^10 to one). When
  * the second fit lands as far away and is not markedly worse either, the
  * image is warned: either oxide may be the chip's. With the microscope
  * given the check changed no count in the robust harness, and it costs a
@@ -28,8 +28,6 @@
  * the bench images, 2026-12-03), so it is left to the doubt trigger there
  * (lam__microscope_defaulted). Where the wide fit runs whatever the
  * nominal one gives, it is made beside it (wide_fit_start, below). */
-#define WIDE_PRIOR_SD_NM 100.0
-#define WIDE_MARGIN 10.0
 #define DOUBT_UNMODELLED_SHARE 0.3
 
 static int oxide_fitted(const lam_analysis *a)
@@ -100,8 +98,8 @@ typedef struct wide_fit {
 static void *wide_fit_thread(void *arg)
 {
     wide_fit *w = arg;
-    w->st = refit(w->r, w->model, w->floor, NAN, LAM__WIDE_HALF_NM, WIDE_PRIOR_SD_NM, &w->fit,
-                  &w->err);
+    w->st = refit(w->r, w->model, w->floor, NAN, LAM__WIDE_HALF_NM, LAM__WIDE_PRIOR_SD_NM,
+                  &w->fit, &w->err);
     return NULL;
 }
 
@@ -220,7 +218,7 @@ static lam_status wide_search(lam__run *r, wide_fit *beside, int doubtful, int *
     lam_status st = wide_fit_take(beside, &w, err);
     if (!st && !w) /* none made beside */
         st = refit(r, r->model, a->estimate->floor_abs_prior, NAN, LAM__WIDE_HALF_NM,
-                   WIDE_PRIOR_SD_NM, &w, err);
+                   LAM__WIDE_PRIOR_SD_NM, &w, err);
     if (st)
         return st;
     double found = w->image[0].oxide.value;
@@ -230,10 +228,10 @@ static lam_status wide_search(lam__run *r, wide_fit *beside, int doubtful, int *
         return LAM_OK;
     }
     double nominal = w->image[0].oxide.prior_mean;
-    if ((st = keep_if_better(r, w, WIDE_MARGIN, &taken, &gap, err)))
+    if ((st = keep_if_better(r, w, LAM__WIDE_MARGIN, &taken, &gap, err)))
         return st;
     *off = taken && fabs(found - nominal) > half;
-    if (!taken && far && gap > -WIDE_MARGIN)
+    if (!taken && far && gap > -LAM__WIDE_MARGIN)
         *rival_nm = found;
     return LAM_OK;
 }

@@ -7,6 +7,7 @@
 #include "lamina/thickness.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -48,6 +49,9 @@ typedef struct profile_ctx {
     size_t used; /* regions that may inform the fit */
     double sd_shift[LAM_MAX_CHANNELS], sd_width[LAM_MAX_CHANNELS], sd_na; /* optics' priors */
     lam_thickness_table *optics_ref; /* the profile's first table, with the optics' variance */
+    double prior_sd; /* the oxide prior's sd the profile's scores take: the estimate's, or the
+                      * wide search's once a rival order is taken (coarse_scan) */
+    double rival_nm; /* a rival order nearly as good and not taken (NAN: none) */
 } profile_ctx;
 
 /* The optics' variance of a table at the context's point and prior scale. */
@@ -80,11 +84,17 @@ static lam_status image_scale_evidence(profile_ctx *x, const lam_thickness_table
     return LAM_OK;
 }
 
-/* The log evidence of the regions that may inform the fit at one oxide,
- * with the image's index scale integrated (one crystal per image), plus the
- * oxide's log prior; the tables made with 'model' (the caller's worker's). */
-static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double *score,
-                             lam_error *err)
+/* One point of the profile: the log evidence of the regions that may
+ * inform the fit at one oxide, with the image's index scale integrated (one
+ * crystal per image), and that plus the oxide's log prior (sd prior_sd). */
+typedef struct profile_point {
+    double score, evidence;
+} profile_point;
+
+/* The profile at oxide ox, the tables made with 'model' (the caller's
+ * worker's). */
+static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double prior_sd,
+                             profile_point *out, lam_error *err)
 {
     lam_thickness_options o = lam_thickness_options_default();
     o.step_rel = PROFILE_STEP_REL;
@@ -108,7 +118,7 @@ static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double
         return st;
     }
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
-    double zo = (ox - po->prior_mean) / po->prior_sd, s = -0.5 * zo * zo;
+    double zo = (ox - po->prior_mean) / prior_sd, s = -0.5 * zo * zo;
     double sum[256];
     st = image_scale_evidence(x, t, sum, err);
     if (!st) {
@@ -118,22 +128,23 @@ static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double
             m = fmax(m, sum[f] += lam_thickness_scale_logw(t, f));
         for (size_t f = 0; f < lam_thickness_scales(t); f++)
             z += exp(sum[f] - m);
-        *score = s + m + log(z);
+        out->score = s + m + log(z);
+        out->evidence = m + log(z);
     }
     if (t != x->optics_ref) /* the reference is freed with the profile */
         lam_thickness_table_free(t);
     return st;
 }
 
-/* The profile at n oxides, score[i] at ox[i]. The oxides are independent
- * but for the first table's optics' variance (profile_at), so the first is
- * made on this thread and the rest are handed out to the workers, each
- * with its own model: the same scores as one after the other. Returns the
- * first error in the order of ox. */
+/* The profile at n oxides, pt[i] at ox[i] with prior sd sd[i]. The oxides
+ * are independent but for the first table's optics' variance
+ * (profile_at), so the first is made on this thread and the rest are
+ * handed out to the workers, each with its own model: the same points as
+ * one after the other. Returns the first error in the order of ox. */
 typedef struct profile_job {
     profile_ctx *x;
-    const double *ox;
-    double *score;
+    const double *ox, *sd;
+    profile_point *pt;
     lam_status *st;
     lam_error *err;
 } profile_job;
@@ -141,14 +152,14 @@ typedef struct profile_job {
 static void profile_item(size_t i, size_t worker, void *vjob)
 {
     const profile_job *j = vjob;
-    j->st[i] = profile_at(j->x, j->x->coarse[worker], j->ox[i], &j->score[i], &j->err[i]);
+    j->st[i] = profile_at(j->x, j->x->coarse[worker], j->ox[i], j->sd[i], &j->pt[i], &j->err[i]);
 }
 
-static lam_status profile_many(profile_ctx *x, const double *ox, size_t n, double *score,
-                               lam_error *err)
+static lam_status profile_many(profile_ctx *x, const double *ox, const double *sd, size_t n,
+                               profile_point *pt, lam_error *err)
 {
     size_t first = n && !x->optics_ref;
-    lam_status st = first ? profile_at(x, x->coarse[0], ox[0], &score[0], err) : LAM_OK;
+    lam_status st = first ? profile_at(x, x->coarse[0], ox[0], sd[0], &pt[0], err) : LAM_OK;
     if (st || n == first)
         return st;
     lam_status *sts = malloc((n - first) * sizeof *sts);
@@ -158,7 +169,7 @@ static lam_status profile_many(profile_ctx *x, const double *ox, size_t n, doubl
         free(errs);
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate the oxide profile");
     }
-    profile_job job = {x, ox + first, score + first, sts, errs};
+    profile_job job = {x, ox + first, sd + first, pt + first, sts, errs};
     lam_parallel_each_worker(n - first, x->workers, profile_item, &job);
     for (size_t i = 0; i < n - first && !st; i++)
         if ((st = sts[i]) && err)
@@ -172,22 +183,41 @@ static lam_status profile_many(profile_ctx *x, const double *ox, size_t n, doubl
  * About the prior's centre and about the oxides the layer ladder's fit
  * before this stage found where they lie beyond that grid's reach: its
  * wide search finds a chip at another interference order (a 200 nm chip
- * under a 285 nm setup), and it names a rival order that fits nearly as
- * well (a 90 nm chip under a 285 nm setup); +-40 nm about the nominal
- * reaches neither. The regions' evidence, with the oxide's prior, chooses. */
-static size_t scan_centres(const profile_ctx *x, int half, double *centre)
+ * under a 285 nm setup: the estimate it leaves has the wide prior), and it
+ * names a rival order that fits nearly as well (a 90 nm chip under a 285
+ * nm setup); +-40 nm about the nominal reaches neither. The first two are
+ * scored with the estimate's prior. The rival is weighed as the wide search
+ * weighs its fit: with the wide prior, taken when the regions' evidence
+ * beats the other windows' best by LAM__WIDE_MARGIN, and named (x->rival_nm)
+ * when it comes within that margin. */
+enum { WINDOW_NOMINAL, WINDOW_FITTED, WINDOW_RIVAL };
+
+static size_t scan_centres(const profile_ctx *x, int half, double *centre, int *kind)
 {
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     double cand[3] = {po->prior_mean, po->value, x->a->oxide.rival_nm};
     size_t n = 0;
-    for (size_t c = 0; c < 3; c++) {
+    for (int c = WINDOW_NOMINAL; c <= WINDOW_RIVAL; c++) {
         int near = !isfinite(cand[c]);
         for (size_t k = 0; k < n && !near; k++)
             near = fabs(cand[c] - centre[k]) <= COARSE_STEP_NM * half;
         if (!near)
-            centre[n++] = cand[c];
+            kind[n] = c, centre[n++] = cand[c];
     }
     return n;
+}
+
+/* The best point of the nominal and fitted windows, and of the rival's, by
+ * score: best[0] and best[1] (indices into d; SIZE_MAX: none). */
+static void window_bests(const profile_point *pt, const int *win, size_t n, size_t best[2])
+{
+    double top[2] = {-INFINITY, -INFINITY};
+    best[0] = best[1] = SIZE_MAX;
+    for (size_t i = 0; i < n; i++) {
+        int k = win[i] == WINDOW_RIVAL;
+        if (pt[i].score > top[k])
+            top[k] = pt[i].score, best[k] = i;
+    }
 }
 
 static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
@@ -195,19 +225,34 @@ static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     int half = (int)ceil(fmin(3 * po->prior_sd, PROFILE_MAX_HALF_NM) / COARSE_STEP_NM);
     half = half < COARSE_MAX_POINTS / 2 ? half : COARSE_MAX_POINTS / 2;
-    double centre[3], d[3 * COARSE_MAX_POINTS], score[3 * COARSE_MAX_POINTS];
-    size_t centres = scan_centres(x, half, centre), n = 0;
+    enum { MAX = 3 * COARSE_MAX_POINTS };
+    double centre[3], d[MAX], sd[MAX];
+    int kind[3], win[MAX];
+    profile_point pt[MAX];
+    size_t centres = scan_centres(x, half, centre, kind), n = 0, best[2];
     for (size_t c = 0; c < centres; c++)
         for (int k = -half; k <= half; k++)
-            if (centre[c] + COARSE_STEP_NM * k >= 0)
-                d[n++] = centre[c] + COARSE_STEP_NM * k;
+            if (centre[c] + COARSE_STEP_NM * k >= 0) {
+                win[n] = kind[c], d[n] = centre[c] + COARSE_STEP_NM * k;
+                sd[n++] = kind[c] == WINDOW_RIVAL ? LAM__WIDE_PRIOR_SD_NM : x->prior_sd;
+            }
     *ox = po->prior_mean;
-    lam_status st = profile_many(x, d, n, score, err);
-    double best = -INFINITY;
-    for (size_t i = 0; i < n && !st; i++)
-        if (score[i] > best)
-            best = score[i], *ox = d[i];
-    return st;
+    lam_status st = profile_many(x, d, sd, n, pt, err);
+    if (st)
+        return st;
+    window_bests(pt, win, n, best);
+    if (best[0] != SIZE_MAX)
+        *ox = d[best[0]];
+    if (best[1] == SIZE_MAX)
+        return LAM_OK;
+    double gap = best[0] == SIZE_MAX ? INFINITY : pt[best[1]].evidence - pt[best[0]].evidence;
+    if (gap > LAM__WIDE_MARGIN) {
+        *ox = d[best[1]];
+        x->prior_sd = LAM__WIDE_PRIOR_SD_NM;
+    } else if (gap > -LAM__WIDE_MARGIN) {
+        x->rival_nm = d[best[1]];
+    }
+    return LAM_OK;
 }
 
 /* 1 nm steps about the coarse best: the best refined by a
@@ -215,9 +260,8 @@ static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
  * or the best lies at the edge). */
 static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *err)
 {
-    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     enum { HALF = 4, N = 2 * HALF + 1 };
-    double score[N], centre = *ox, d[N], got[N];
+    double score[N], centre = *ox, d[N];
     int kbest = 0, at[N];
     size_t n = 0;
     for (int i = 0; i < N; i++) { /* compared below before the centre's own is known */
@@ -225,14 +269,18 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
         if (centre + FINE_STEP_NM * (i - HALF) >= 0)
             at[n] = i, d[n++] = centre + FINE_STEP_NM * (i - HALF);
     }
-    lam_status st = profile_many(x, d, n, got, err);
+    double sds[N];
+    profile_point got[N];
+    for (size_t i = 0; i < n; i++)
+        sds[i] = x->prior_sd;
+    lam_status st = profile_many(x, d, sds, n, got, err);
     for (size_t i = 0; i < n && !st; i++) { /* in the order of k, as one after the other */
         int k = at[i] - HALF;
-        score[at[i]] = got[i];
+        score[at[i]] = got[i].score;
         if (score[k + HALF] > score[kbest + HALF])
             kbest = k;
     }
-    *sd = po->prior_sd;
+    *sd = x->prior_sd;
     *ox = centre + FINE_STEP_NM * kbest;
     if (st || kbest == -HALF || kbest == HALF)
         return st;
@@ -272,6 +320,8 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     coarse.grid_step_nm = 10;
     coarse.cone_nodes = 4;
     x->used = usable;
+    x->prior_sd = o->prior_sd;
+    x->rival_nm = NAN;
     x->workers = lam_parallel_slices(COARSE_MAX_POINTS, x->threads);
     lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse[0], err);
     size_t made = st ? 0 : 1;
@@ -513,6 +563,13 @@ lam_status lam_thickness_analyze(lam_analysis *a, const lam_contrast_map *contra
     if (st)
         return st;
     oxide_result(a, ox, sd, oxide_tolerance_nm);
+    if (isfinite(x.rival_nm)) /* the layer ladder's fit leaves the oxide's warnings to this stage */
+        lam_warnings_add(&a->warnings, "oxide-ambiguous",
+                         "the films fit %.1f nm of SiO2 and nearly as well %.1f nm (about one "
+                         "interference order apart, where one thickness looks like another): "
+                         "the thicknesses assume %.1f nm; confirm the chip's oxide (a setup, its "
+                         "colour, or a calibration)",
+                         ox, x.rival_nm, ox);
     x.p.v[LAM_MP_OXIDE] = ox;
     /* the films' table: 10 nm spectral steps and 6 cone nodes (a 300 nm
      * film's fringes are 200 nm apart; thickness figures equal those of the

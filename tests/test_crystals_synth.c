@@ -69,6 +69,26 @@ static void test_hbn(const char *dir)
                total.covered, total.flakes);
 }
 
+/* Chips of the nominal oxide (+-12 nm) must not be warned that it is off:
+ * the layer ladder's fit, which cannot draw a thick film, found hBN chips
+ * of 281-288 nm at ~90 nm "nearly as well" or better (three of these four
+ * Rah-index scenes were warned, one "off nominal: 92.7 nm"). The films'
+ * profile weighs that order and owns the oxide's warnings. */
+static void test_hbn_no_false_oxide_warning(const char *dir)
+{
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    robust_case c = make_case(SYNTH_XTAL_HBN, 2, 285);
+    for (unsigned long long k = 5305; k < 5309; k++)
+        hbn_scene(&c, k, dir, &total);
+    crystals_print(stdout, "hBN Rah 285 nm (4 png)", &total);
+    check_true(total.oxide_warned == 0, "chips of the nominal oxide: no oxide warning (%zu of %zu "
+               "images warned)", total.oxide_warned, total.images);
+    check_true(total.right >= 0.9 * (double)total.flakes,
+               "chips of the nominal oxide: thickness right for >= 90 %% (%zu / %zu)",
+               total.right, total.flakes);
+}
+
 /* hBN on 285 nm in JPEG (quality 90, 4:2:0): the flat substrate's blocks
  * round their colour to whole DC quantisation steps (ITU-T T.81), so the
  * substrate is two colour clusters a step apart, both spread over the
@@ -117,20 +137,25 @@ static void test_hbn_jpeg_segmentation(const char *dir)
 }
 
 /* A chip mislabelled by more than the oxide profile's reach (+-40 nm about
- * the nominal): hBN on 200 and 330 nm of SiO2 analysed with a 285 nm
+ * the nominal): hBN on 90, 200 and 330 nm of SiO2 analysed with a 285 nm
  * setup, drawn with Lee's and Rah's indices (the analysis' default is
- * Grudinin's). The layer ladder's wide search finds the chip at 202 nm,
- * but the films' profile searched only 245-325 nm: it reported 329 +- 100
- * nm and thicknesses of 93-297 nm for flakes of 8-55 nm, beside a warning
- * that the counts used 202 nm. The profile now also searches about the
- * oxides that search found (thickness_stage.c, scan_centres). These four
- * scenes: 26 of 31 flakes right and the oxide 0.8 nm off on average (the
- * misses are 1-6 nm flakes, which 200 nm of oxide nearly hides); before,
- * 17 of 31 and 43 nm. */
+ * Grudinin's). The layer ladder's wide search found the 200 nm chip at 202
+ * nm, but the films' profile searched only 245-325 nm: it reported 329 +-
+ * 100 nm and thicknesses of 93-297 nm for flakes of 8-55 nm, beside a
+ * warning that the counts used 202 nm. The profile now also searches about
+ * the oxides that search found, and weighs a rival order as the search
+ * weighs its own fit (thickness_stage.c, coarse_scan); the oxide's warnings
+ * are the profile's. Each image must be warned that its oxide is not the
+ * nominal. These five scenes: 37 of 42 flakes right, the oxide 0.7 nm off
+ * on average, five images warned; before (c24fb92) 18 of 42, 70 nm, one.
+ * Still read wrong: a 90 nm chip whose rival order the ladder's search
+ * does not name (Lee's index, seed 7304: 278 nm, warned "poor-fit" and
+ * "underexposed" only). */
 static void test_hbn_mislabelled(const char *dir)
 {
     static const struct { int source; double oxide; unsigned long long seed; } cases[] = {
-        {1, 200, 7300}, {1, 200, 7301}, {2, 330, 7302}, {2, 330, 7303}};
+        {1, 200, 7300}, {1, 200, 7301}, {2, 330, 7302}, {2, 330, 7303},
+        {2, 90, 7305}};
     hbn_tally total;
     memset(&total, 0, sizeof total);
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
@@ -138,15 +163,18 @@ static void test_hbn_mislabelled(const char *dir)
         c.cfg.oxide_nm = cases[i].oxide;
         hbn_scene(&c, cases[i].seed, dir, &total);
     }
-    crystals_print(stdout, "hBN on 200 and 330 nm chips sold as 285 nm (4 png scenes)", &total);
+    crystals_print(stdout, "hBN on 90, 200, 330 nm sold as 285 (5 png)", &total);
     double oxide = total.oxide_n ? total.oxide_abs_sum / (double)total.oxide_n : INFINITY;
-    check_true(total.flakes >= 25, "enough hBN flakes scored on mislabelled chips (%zu)",
+    check_true(total.flakes >= 35, "enough hBN flakes scored on mislabelled chips (%zu)",
                total.flakes);
     check_true(total.right >= 0.8 * (double)total.flakes,
                "mislabelled chips: hBN thickness within 10 %% or order-ambiguous for >= 80 %% "
                "(%zu / %zu)", total.right, total.flakes);
     check_true(oxide < 5, "mislabelled chips: the oxide found within 5 nm on average (%.1f nm)",
                oxide);
+    check_true(total.oxide_warned == total.images,
+               "mislabelled chips: every image warned of its oxide (%zu of %zu)",
+               total.oxide_warned, total.images);
 }
 
 static void test_tmd(const char *dir)
@@ -250,6 +278,7 @@ int main(void)
     test_hbn_jpeg(dir);
     test_hbn_jpeg_segmentation(dir);
     test_hbn_mislabelled(dir);
+    test_hbn_no_false_oxide_warning(dir);
     test_tmd(dir);
     test_tmd_faint_count(dir);
     test_tmd_dense_flakes(dir);

@@ -27,8 +27,10 @@
  * The oxide: on a grid over nominal +- 3 prior sd (at most 40 nm; 4 nm
  * steps, then 1 nm about the best), and as far about the oxide the layer
  * ladder's fit found and its rival order (lam_oxide_result.rival_nm) where
- * those lie beyond that reach (a chip mislabelled by an order), every
- * region that may inform the fit
+ * those lie beyond that reach (a chip mislabelled by an order; the rival
+ * is weighed as the wide search weighs its fit: a 100 nm prior sd, taken
+ * when its evidence is better by e^10, named in the warning
+ * "oxide-ambiguous" when within that), every region that may inform the fit
  * votes with its marginal likelihood (its d and the alternatives integrated
  * out), under ONE index scale for the image (integrated over its prior);
  * coarse model (10 nm spectral steps, 4 cone nodes, 1.5 % thickness

@@ -3,6 +3,7 @@
 #include "crystals.h"
 #include "lamina/analyze.h"
 #include "lamina/setup.h"
+#include "lamina/warnings.h"
 
 #include <math.h>
 #include <stdlib.h>
@@ -116,6 +117,8 @@ static int analyse(const char *img, const char *setup_path, const synth_scene *s
     } else {
         t->seconds += now_s() - t0;
         t->images++;
+        t->oxide_warned += lam_warnings_find(&a->warnings, "oxide-off-nominal") ||
+                           lam_warnings_find(&a->warnings, "oxide-ambiguous");
         score(sc, a, t, log, img);
     }
     lam_analysis_free(a);
@@ -166,6 +169,7 @@ void crystals_add(hbn_tally *into, const hbn_tally *t)
     into->abs_rel_err_sum += t->abs_rel_err_sum;
     into->oxide_n += t->oxide_n;
     into->oxide_abs_sum += t->oxide_abs_sum;
+    into->oxide_warned += t->oxide_warned;
     into->seconds += t->seconds;
 }
 
@@ -178,12 +182,12 @@ void crystals_print(FILE *f, const char *label, const hbn_tally *t)
 {
     fprintf(f, "%-30s %3zu img %4zu flakes: right %5.1f %% (within 10 %% %5.1f, ambiguous %zu) "
                "[1-3 %.0f, 3-10 %.0f, 10-30 %.0f, 30-100 nm %.0f %%]  in a 95 %% interval "
-               "%5.1f %%  mean |err| %.1f %%  oxide |err| %.1f nm  %.2f s/img\n",
+               "%5.1f %%  mean |err| %.1f %%  oxide |err| %.1f nm (warned %zu img)  %.2f s/img\n",
             label, t->images, t->flakes, pct(t->right, t->flakes), pct(t->within10, t->flakes),
             t->ambiguous, pct(t->bin_right[0], t->bin_flakes[0]),
             pct(t->bin_right[1], t->bin_flakes[1]), pct(t->bin_right[2], t->bin_flakes[2]),
             pct(t->bin_right[3], t->bin_flakes[3]), pct(t->covered, t->flakes),
             t->found ? 100 * t->abs_rel_err_sum / (double)t->found : NAN,
-            t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN,
+            t->oxide_n ? t->oxide_abs_sum / (double)t->oxide_n : NAN, t->oxide_warned,
             t->images ? t->seconds / (double)t->images : NAN);
 }

@@ -23,6 +23,7 @@ typedef struct hbn_tally {
     double abs_rel_err_sum;  /* |est / true - 1| over flakes with an estimate */
     size_t oxide_n;
     double oxide_abs_sum;
+    size_t oxide_warned;     /* images warned "oxide-off-nominal" or "oxide-ambiguous" */
     double seconds;
 } hbn_tally;
 
