@@ -52,6 +52,7 @@ typedef struct profile_ctx {
     double prior_sd; /* the oxide prior's sd the profile's scores take: the estimate's, or the
                       * wide search's once a rival order is taken (coarse_scan) */
     double rival_nm; /* a rival order nearly as good and not taken (NAN: none) */
+    double best_evidence; /* the regions' log evidence at the fine scan's best point */
 } profile_ctx;
 
 /* The optics' variance of a table at the context's point and prior scale. */
@@ -91,10 +92,12 @@ typedef struct profile_point {
     double score, evidence;
 } profile_point;
 
-/* The profile at oxide ox, the tables made with 'model' (the caller's
- * worker's). */
-static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double prior_sd,
-                             profile_point *out, lam_error *err)
+/* The profile's table at oxide ox, made with 'model' (the caller's
+ * worker's), with the optics' variance of the profile's first table: the
+ * first one made becomes that reference (x->optics_ref, freed with the
+ * profile, not by the caller). */
+static lam_status profile_table(profile_ctx *x, lam_model *model, double ox,
+                                lam_thickness_table **out, lam_error *err)
 {
     lam_thickness_options o = lam_thickness_options_default();
     o.step_rel = PROFILE_STEP_REL;
@@ -113,10 +116,20 @@ static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double
     } else if (!st) {
         st = lam_thickness_table_copy_optics(t, x->optics_ref, err);
     }
-    if (st) {
+    if (st && t != x->optics_ref)
         lam_thickness_table_free(t);
+    *out = st ? NULL : t;
+    return st;
+}
+
+/* The profile at oxide ox, the table made with 'model'. */
+static lam_status profile_at(profile_ctx *x, lam_model *model, double ox, double prior_sd,
+                             profile_point *out, lam_error *err)
+{
+    lam_thickness_table *t = NULL;
+    lam_status st = profile_table(x, model, ox, &t, err);
+    if (st)
         return st;
-    }
     const lam_nuisance *po = &x->a->estimate->image[0].oxide;
     double zo = (ox - po->prior_mean) / prior_sd, s = -0.5 * zo * zo;
     double sum[256];
@@ -207,6 +220,25 @@ static size_t scan_centres(const profile_ctx *x, int half, double *centre, int *
     return n;
 }
 
+/* A far oxide d weighed with the wide prior (its regions' log evidence
+ * 'evidence'): taken as the chip's (*ox; the wide prior from then on) when
+ * it beats the profile's best ('best_evidence') by LAM__WIDE_MARGIN, named
+ * as the rival (x->rival_nm) when it comes within that. 1: taken. */
+static int weigh_far(profile_ctx *x, double d, double evidence, double best_evidence,
+                     double *ox)
+{
+    double gap = evidence - best_evidence;
+    if (gap > LAM__WIDE_MARGIN) {
+        *ox = d;
+        x->prior_sd = LAM__WIDE_PRIOR_SD_NM;
+        x->rival_nm = NAN;
+        return 1;
+    }
+    if (gap > -LAM__WIDE_MARGIN && !isfinite(x->rival_nm))
+        x->rival_nm = d;
+    return 0;
+}
+
 /* The best point of the nominal and fitted windows, and of the rival's, by
  * score: best[0] and best[1] (indices into d; SIZE_MAX: none). */
 static void window_bests(const profile_point *pt, const int *win, size_t n, size_t best[2])
@@ -243,15 +275,9 @@ static lam_status coarse_scan(profile_ctx *x, double *ox, lam_error *err)
     window_bests(pt, win, n, best);
     if (best[0] != SIZE_MAX)
         *ox = d[best[0]];
-    if (best[1] == SIZE_MAX)
-        return LAM_OK;
-    double gap = best[0] == SIZE_MAX ? INFINITY : pt[best[1]].evidence - pt[best[0]].evidence;
-    if (gap > LAM__WIDE_MARGIN) {
-        *ox = d[best[1]];
-        x->prior_sd = LAM__WIDE_PRIOR_SD_NM;
-    } else if (gap > -LAM__WIDE_MARGIN) {
-        x->rival_nm = d[best[1]];
-    }
+    if (best[1] != SIZE_MAX)
+        weigh_far(x, d[best[1]], pt[best[1]].evidence,
+                  best[0] == SIZE_MAX ? -INFINITY : pt[best[0]].evidence, ox);
     return LAM_OK;
 }
 
@@ -271,14 +297,14 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
     }
     double sds[N];
     profile_point got[N];
-    for (size_t i = 0; i < n; i++)
+    for (int i = 0; i < N; i++)
         sds[i] = x->prior_sd;
     lam_status st = profile_many(x, d, sds, n, got, err);
     for (size_t i = 0; i < n && !st; i++) { /* in the order of k, as one after the other */
         int k = at[i] - HALF;
         score[at[i]] = got[i].score;
         if (score[k + HALF] > score[kbest + HALF])
-            kbest = k;
+            kbest = k, x->best_evidence = got[i].evidence;
     }
     *sd = x->prior_sd;
     *ox = centre + FINE_STEP_NM * kbest;
@@ -295,6 +321,72 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
      * by ~1.3 % in optical thickness (Malitson 1965 vs the Gao 2013 film),
      * the pupil's filling moves the phase by ~1 % */
     *sd = hypot(*sd, OXIDE_SYSTEMATIC * *ox);
+    return LAM_OK;
+}
+
+/* ---- the profile's own wide search ----
+ * The layer ladder's search does not always name the chip's order (a 90
+ * nm chip under a 285 nm setup, Lee's index: no rival, read 278 nm with
+ * 29 % of the flakes' area unmodelled). When that share at the profile's
+ * best exceeds WIDE_DOUBT_SHARE (the layer fit's own doubt, analyze_oxide.c),
+ * the profile looks over the wide search's range itself, in WIDE_STEP_NM
+ * steps with the wide prior, and takes or names what it finds as it does
+ * the ladder's rival (coarse_scan). */
+#define WIDE_DOUBT_SHARE 0.25
+#define WIDE_STEP_NM 8.0
+#define WIDE_MAX_POINTS 51 /* 2 x 200 / 8 + 1 */
+
+/* The share of the informing regions' area whose posterior under the
+ * profile's table at ox is "unmodelled". */
+static lam_status unmodelled_share(profile_ctx *x, double ox, double *share, lam_error *err)
+{
+    lam_thickness_table *t = NULL;
+    lam_status st = profile_table(x, x->coarse[0], ox, &t, err);
+    if (st)
+        return st;
+    const lam_analysis *a = x->a;
+    lam_thickness_options o = lam_thickness_options_default();
+    double all = 0, bad = 0;
+    for (size_t i = 0; i < a->count; i++) {
+        if (!a->measured[i].use)
+            continue;
+        lam_thickness_result r;
+        lam_thickness_infer(t, &x->nz, &a->measured[i], &o, &r);
+        all += (double)a->seg->regions[i].area;
+        if (r.p_unmodelled > fmax(r.p_film, r.p_substrate))
+            bad += (double)a->seg->regions[i].area;
+    }
+    *share = all > 0 ? bad / all : 0;
+    if (t != x->optics_ref)
+        lam_thickness_table_free(t);
+    return LAM_OK;
+}
+
+/* The wide search, when the profile's best leaves too much unmodelled:
+ * *moved when it took another oxide (*ox, to be refined). */
+static lam_status wide_scan(profile_ctx *x, double *ox, int *moved, lam_error *err)
+{
+    const lam_nuisance *po = &x->a->estimate->image[0].oxide;
+    double share = 0, d[WIDE_MAX_POINTS], sd[WIDE_MAX_POINTS];
+    profile_point pt[WIDE_MAX_POINTS];
+    *moved = 0;
+    lam_status st = unmodelled_share(x, *ox, &share, err);
+    if (st || share <= WIDE_DOUBT_SHARE)
+        return st;
+    size_t n = 0, best = SIZE_MAX;
+    for (int k = -WIDE_MAX_POINTS / 2; k <= WIDE_MAX_POINTS / 2; k++)
+        if (po->prior_mean + WIDE_STEP_NM * k >= 0) {
+            sd[n] = LAM__WIDE_PRIOR_SD_NM;
+            d[n++] = po->prior_mean + WIDE_STEP_NM * k;
+        }
+    if ((st = profile_many(x, d, sd, n, pt, err)))
+        return st;
+    for (size_t i = 0; i < n; i++) /* beyond the best's own basin */
+        if (fabs(d[i] - *ox) > PROFILE_MAX_HALF_NM &&
+            (best == SIZE_MAX || pt[i].score > pt[best].score))
+            best = i;
+    if (best != SIZE_MAX)
+        *moved = weigh_far(x, d[best], pt[best].evidence, x->best_evidence, ox);
     return LAM_OK;
 }
 
@@ -322,13 +414,15 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     x->used = usable;
     x->prior_sd = o->prior_sd;
     x->rival_nm = NAN;
-    x->workers = lam_parallel_slices(COARSE_MAX_POINTS, x->threads);
+    x->workers = lam_parallel_slices(WIDE_MAX_POINTS, x->threads);
     lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse[0], err);
     size_t made = st ? 0 : 1;
     while (made && made < x->workers &&
            !(st = lam_model_clone(x->coarse[0], &x->coarse[made], err)))
         made++;
-    if (!st && !(st = coarse_scan(x, ox, err)))
+    int moved = 0;
+    if (!st && !(st = coarse_scan(x, ox, err)) && !(st = fine_scan(x, ox, sd, err)) &&
+        !(st = wide_scan(x, ox, &moved, err)) && moved)
         st = fine_scan(x, ox, sd, err);
     for (size_t k = 0; k < made; k++)
         lam_model_free(x->coarse[k]);

@@ -30,7 +30,9 @@
  * those lie beyond that reach (a chip mislabelled by an order; the rival
  * is weighed as the wide search weighs its fit: a 100 nm prior sd, taken
  * when its evidence is better by e^10, named in the warning
- * "oxide-ambiguous" when within that), every region that may inform the fit
+ * "oxide-ambiguous" when within that; and when a quarter of the informing
+ * area is unmodelled at the best, +-200 nm in 8 nm steps weighed the same
+ * way), every region that may inform the fit
  * votes with its marginal likelihood (its d and the alternatives integrated
  * out), under ONE index scale for the image (integrated over its prior);
  * coarse model (10 nm spectral steps, 4 cone nodes, 1.5 % thickness
