@@ -304,8 +304,12 @@ static lam_status fine_scan(profile_ctx *x, double *ox, double *sd, lam_error *e
         int k = at[i] - HALF;
         score[at[i]] = got[i].score;
         if (score[k + HALF] > score[kbest + HALF])
-            kbest = k, x->best_evidence = got[i].evidence;
+            kbest = k;
     }
+    x->best_evidence = -INFINITY; /* the regions' evidence at the best point */
+    for (size_t i = 0; i < n && !st; i++)
+        if (at[i] == kbest + HALF)
+            x->best_evidence = got[i].evidence;
     *sd = x->prior_sd;
     *ox = centre + FINE_STEP_NM * kbest;
     if (st || kbest == -HALF || kbest == HALF)
