@@ -48,6 +48,18 @@ static void hbn_scene(const robust_case *c, unsigned long long seed, const char 
     crystals_add(total, &t);
 }
 
+/* Scenes first..first+n-1 of one case, tallied together and printed. */
+static hbn_tally hbn_scenes(const robust_case *c, unsigned long long first, size_t n,
+                            const char *dir, const char *label)
+{
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    for (size_t k = 0; k < n; k++)
+        hbn_scene(c, first + k, dir, &total);
+    crystals_print(stdout, label, &total);
+    return total;
+}
+
 static void test_hbn(const char *dir)
 {
     static const struct { int source; double oxide; } cases[] = {
@@ -78,12 +90,9 @@ static void test_hbn(const char *dir)
  * stays and the image is warned "oxide-ambiguous", naming 93 nm. */
 static void test_hbn_unnamed_order(const char *dir)
 {
-    hbn_tally total;
-    memset(&total, 0, sizeof total);
     robust_case c = make_case(SYNTH_XTAL_HBN, 1, 285);
     c.cfg.oxide_nm = 90;
-    hbn_scene(&c, 7304, dir, &total);
-    crystals_print(stdout, "hBN on 90 nm sold as 285, seed 7304", &total);
+    hbn_tally total = hbn_scenes(&c, 7304, 1, dir, "hBN on 90 nm sold as 285, seed 7304");
     check_true(total.images == 1 && total.oxide_warned == 1,
                "a 90 nm chip read at another order is warned of its oxide (%zu of %zu)",
                total.oxide_warned, total.images);
@@ -96,12 +105,8 @@ static void test_hbn_unnamed_order(const char *dir)
  * profile weighs that order and owns the oxide's warnings. */
 static void test_hbn_no_false_oxide_warning(const char *dir)
 {
-    hbn_tally total;
-    memset(&total, 0, sizeof total);
     robust_case c = make_case(SYNTH_XTAL_HBN, 2, 285);
-    for (unsigned long long k = 5305; k < 5309; k++)
-        hbn_scene(&c, k, dir, &total);
-    crystals_print(stdout, "hBN Rah 285 nm (4 png)", &total);
+    hbn_tally total = hbn_scenes(&c, 5305, 4, dir, "hBN Rah 285 nm (4 png)");
     check_true(total.oxide_warned == 0, "chips of the nominal oxide: no oxide warning (%zu of %zu "
                "images warned)", total.oxide_warned, total.images);
     check_true(total.right >= 0.9 * (double)total.flakes,
@@ -120,11 +125,7 @@ static void test_hbn_no_false_oxide_warning(const char *dir)
 static void test_hbn_jpeg(const char *dir)
 {
     robust_case c = jpeg_case(SYNTH_XTAL_HBN, 0, 285);
-    hbn_tally total;
-    memset(&total, 0, sizeof total);
-    for (unsigned long long k = 0; k < 4; k++)
-        hbn_scene(&c, 3300 + k, dir, &total);
-    crystals_print(stdout, "hBN 285 nm JPEG q90 (4 scenes)", &total);
+    hbn_tally total = hbn_scenes(&c, 3300, 4, dir, "hBN 285 nm JPEG q90 (4 scenes)");
     check_true(total.flakes >= 25, "enough hBN flakes scored in JPEG (%zu)", total.flakes);
     check_true(total.right >= 0.9 * (double)total.flakes,
                "hBN in JPEG on 285 nm: thickness within 10 %% for >= 90 %% (%zu / %zu)",
@@ -168,8 +169,8 @@ static void test_hbn_jpeg_segmentation(const char *dir)
  * are the profile's. Each image must be warned that its oxide is not the
  * nominal. These five scenes: 37 of 42 flakes right, the oxide 0.7 nm off
  * on average, five images warned; before (c24fb92) 18 of 42, 70 nm, one.
- * A 90 nm chip whose rival order the ladder's search does not name is
- * below (test_hbn_unnamed_order). */
+ * A 90 nm chip whose rival order the ladder's search does not name:
+ * test_hbn_unnamed_order. */
 static void test_hbn_mislabelled(const char *dir)
 {
     static const struct { int source; double oxide; unsigned long long seed; } cases[] = {
