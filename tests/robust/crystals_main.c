@@ -1,12 +1,14 @@
 /* crystals_main.c - build/tests/robust/crystals: issue 14's figures on the
  * independent generator's images (`make accuracy-crystals`).
  *   crystals [--scenes N] [--seed S] [--only hbn|tmd] [--format png|jpeg90]
- *            [--uninformed] [--log FILE] [--flakes FILE.csv]
+ *            [--uninformed] [--log FILE] [--flakes FILE.csv] [--mislabelled]
  * hBN: thickness within 10 % or order-ambiguous, per index source (Grudinin
  * 2023, Lee 2019, Rah 2019), oxide (90, 285 nm) and format; TMDs: 1-3L
  * counts per material, n,k source (MoS2 Hsu 2019 / Song 2019, WSe2 Hsu 2019
  * / Gu 2019), oxide and format. Informed setups (camera, lamp, NA given)
- * unless --uninformed. */
+ * unless --uninformed. --mislabelled: instead, hBN (8-bit PNG) on chips of
+ * another oxide than the setup's nominal: 90, 200 and 330 nm sold as 285,
+ * 150 and 285 nm sold as 90, each per index source. */
 #include "crystals.h"
 #include "../check.h"
 #include "lamina/error.h"
@@ -87,6 +89,35 @@ static void run_hbn(const run_opts *o)
     crystals_print(stdout, "TOTAL hBN", &total);
 }
 
+/* hBN on chips whose oxide is not the setup's nominal by more than the
+ * oxide profile's reach (a box of 90 nm chips sold as 285 nm): the true
+ * oxide is drawn, the setup says the nominal. */
+static void run_hbn_mislabelled(const run_opts *o)
+{
+    static const struct { double nominal, truth; } chips[] = {
+        {285, 90}, {285, 200}, {285, 330}, {90, 150}, {90, 285}};
+    hbn_tally total;
+    memset(&total, 0, sizeof total);
+    for (size_t m = 0; m < sizeof chips / sizeof chips[0]; m++)
+        for (int s = 0; s < 3; s++) {
+            robust_case c = make_case(SYNTH_XTAL_HBN, s, chips[m].nominal, 0, o->informed);
+            c.cfg.oxide_nm = chips[m].truth;
+            hbn_tally t;
+            memset(&t, 0, sizeof t);
+            for (int k = 0; k < o->scenes; k++)
+                crystals_run_hbn(&c, o->seed + 9000 + (unsigned long long)((m * 3 + (size_t)s) *
+                                                                           100 + (size_t)k),
+                                 o->dir, &t, o->log);
+            char label[96];
+            snprintf(label, sizeof label, "hBN %s %.0f nm sold as %.0f", hbn_sources[s],
+                     chips[m].truth, chips[m].nominal);
+            crystals_print(stdout, label, &t);
+            fflush(stdout);
+            crystals_add(&total, &t);
+        }
+    crystals_print(stdout, "TOTAL hBN mislabelled", &total);
+}
+
 static void run_tmd(const run_opts *o)
 {
     static const struct { synth_crystal x; int source; const char *name; } mats[] = {
@@ -128,7 +159,7 @@ int main(int argc, char **argv)
 {
     lam_error_init_gsl();
     run_opts o = {2, 1, -1, 3000, NULL, "build/tests/crystals-out"};
-    int only = 0; /* 1 hbn, 2 tmd */
+    int only = 0; /* 1 hbn, 2 tmd, 3 hBN on mislabelled chips */
     FILE *flakes = NULL;
     for (int i = 1; i < argc; i++) {
         if (!strcmp(argv[i], "--scenes") && i + 1 < argc)
@@ -145,6 +176,8 @@ int main(int argc, char **argv)
             crystals_flake_table(flakes = fopen(argv[++i], "w"));
         else if (!strcmp(argv[i], "--log") && i + 1 < argc)
             o.log = fopen(argv[++i], "w");
+        else if (!strcmp(argv[i], "--mislabelled"))
+            only = 3;
     }
     if (!o.informed) /* its setups must not replace the informed run's */
         o.dir = "build/tests/crystals-out-uninformed";
@@ -152,9 +185,11 @@ int main(int argc, char **argv)
     mkdir("build/tests", 0755);
     if (robust_claim_dir(o.dir))
         return 1;
-    if (only != 2)
+    if (only == 3)
+        run_hbn_mislabelled(&o);
+    if (only == 0 || only == 1)
         run_hbn(&o);
-    if (only != 1)
+    if (only == 0 || only == 2)
         run_tmd(&o);
     if (o.log)
         fclose(o.log);
