@@ -525,6 +525,16 @@ static lam_status ensure_cone(lam_model *m, double na, lam_error *err)
  * cosh y = 1 + em^2 / 2e and sinh |y| = (em + em / e) / 2: no
  * cancellation for small y, where a film is thin). Beyond |y| = 700 e^|y|
  * overflows and the library's functions take over. */
+/* re + i im exactly (a complex is two doubles, C11 6.2.5; CMPLX is not
+ * defined by every compiler's <complex.h>: clang's fuzzing build). */
+static double complex complex_of(double re, double im)
+{
+    double parts[2] = {re, im};
+    double complex z;
+    memcpy(&z, parts, sizeof z);
+    return z;
+}
+
 void lam__complex_cos_sin(double complex ph, double complex *c, double complex *s)
 {
     double x = creal(ph), y = cimag(ph), ay = fabs(y);
@@ -537,8 +547,8 @@ void lam__complex_cos_sin(double complex ph, double complex *c, double complex *
     double ch = 1 + 0.5 * em * (em / e), sh = 0.5 * (em + em / e);
     if (y < 0)
         sh = -sh;
-    *c = CMPLX(cx * ch, -sx * sh);
-    *s = CMPLX(sx * ch, cx * sh);
+    *c = complex_of(cx * ch, -sx * sh);
+    *s = complex_of(sx * ch, cx * sh);
 }
 
 /* cos and sin of a phase; a real phase (a lossless film below its
