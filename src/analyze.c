@@ -502,14 +502,13 @@ static lam_status fermi_table(lam__run *r, lam_fermi_table *ft, lam_error *err)
     s.grid_step_nm = 10;
     s.cone_nodes = 6;
     lam_model *m[LAM_MAX_THREADS] = {NULL};
-    size_t n = lam_parallel_slices(LAM_FERMI_GRID, r->threads), k = 1;
+    size_t n = lam_parallel_slices(LAM_FERMI_GRID, r->threads);
     lam_status st = lam_model_alloc(&s, 2, 0, &m[0], err);
-    for (; k < n && !st; k++)
-        st = lam_model_clone(m[0], &m[k], err);
-    if (!st)
+    if (!st && !(st = lam_model_clones(m[0], n, m, err))) {
         st = lam_fermi_table_build(r->a->estimate, 0, m, n, ft, err);
-    for (size_t i = 0; i < k; i++)
-        lam_model_free(m[i]);
+        lam_model_clones_free(m, n);
+    }
+    lam_model_free(m[0]);
     return st;
 }
 

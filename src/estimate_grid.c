@@ -205,22 +205,19 @@ static void ladder_steps(size_t d0, size_t d1, size_t slice, void *vjob)
 static lam_status model_ladders(lam_model_point p, lam_model *model, const grid *g,
                                 size_t threads, lam_prediction *L, lam_error *err)
 {
-    size_t slices = lam_parallel_slices(g->n, threads), made = 1;
-    lam_model *models[LAM_MAX_THREADS] = {model};
-    lam_status st[LAM_MAX_THREADS] = {LAM_OK}, out = LAM_OK;
+    size_t slices = lam_parallel_slices(g->n, threads);
+    lam_model *models[LAM_MAX_THREADS];
+    lam_status st[LAM_MAX_THREADS] = {LAM_OK}, out = lam_model_clones(model, slices, models, err);
     lam_error errs[LAM_MAX_THREADS];
     memset(errs, 0, slices * sizeof *errs);
-    for (; made < slices && !out; made++)
-        out = lam_model_clone(model, &models[made], err);
-    if (!out) {
-        ladder_job x = {p, g, models, L, st, errs};
-        lam_parallel_for(g->n, slices, ladder_steps, &x);
-        for (size_t k = 0; k < slices && !out; k++)
-            if ((out = st[k]))
-                *err = errs[k];
-    }
-    for (size_t k = 1; k < made; k++)
-        lam_model_free(models[k]);
+    if (out)
+        return out;
+    ladder_job x = {p, g, models, L, st, errs};
+    lam_parallel_for(g->n, slices, ladder_steps, &x);
+    for (size_t k = 0; k < slices && !out; k++)
+        if ((out = st[k]))
+            *err = errs[k];
+    lam_model_clones_free(models, slices);
     return out;
 }
 

@@ -384,6 +384,27 @@ lam_status lam_model_clone(const lam_model *src, lam_model **out, lam_error *err
     return LAM_OK;
 }
 
+lam_status lam_model_clones(lam_model *m, size_t n, lam_model **out, lam_error *err)
+{
+    out[0] = m;
+    for (size_t k = 1; k < n; k++)
+        out[k] = NULL;
+    lam_status st = LAM_OK;
+    for (size_t k = 1; k < n && !st; k++)
+        st = lam_model_clone(m, &out[k], err);
+    if (st)
+        lam_model_clones_free(out, n);
+    return st;
+}
+
+void lam_model_clones_free(lam_model **out, size_t n)
+{
+    for (size_t k = 1; k < n; k++) {
+        lam_model_free(out[k]);
+        out[k] = NULL;
+    }
+}
+
 lam_model_point lam_model_point_default(const lam_model *m)
 {
     return m->defaults;
@@ -518,13 +539,6 @@ static lam_status ensure_cone(lam_model *m, double na, lam_error *err)
     return LAM_OK;
 }
 
-/* cos and sin of a complex phase x + iy: cos x cosh y - i sin x sinh y
- * and sin x cosh y + i cos x sinh y. ccos and csin each make the sine and
- * cosine of x and the hyperbolic functions of y; here they are made once,
- * the hyperbolic ones from one expm1 (with e = e^|y| = 1 + em,
- * cosh y = 1 + em^2 / 2e and sinh |y| = (em + em / e) / 2: no
- * cancellation for small y, where a film is thin). Beyond |y| = 700 e^|y|
- * overflows and the library's functions take over. */
 /* re + i im exactly (a complex is two doubles, C11 6.2.5; CMPLX is not
  * defined by every compiler's <complex.h>: clang's fuzzing build). */
 static double complex complex_of(double re, double im)
@@ -535,6 +549,13 @@ static double complex complex_of(double re, double im)
     return z;
 }
 
+/* cos and sin of a complex phase x + iy: cos x cosh y - i sin x sinh y
+ * and sin x cosh y + i cos x sinh y. ccos and csin each make the sine and
+ * cosine of x and the hyperbolic functions of y; here they are made once,
+ * the hyperbolic ones from one expm1 (with e = e^|y| = 1 + em,
+ * cosh y = 1 + em^2 / 2e and sinh |y| = (em + em / e) / 2: no
+ * cancellation for small y, where a film is thin). Beyond |y| = 700 e^|y|
+ * overflows and the library's functions take over. */
 void lam__complex_cos_sin(double complex ph, double complex *c, double complex *s)
 {
     double x = creal(ph), y = cimag(ph), ay = fabs(y);

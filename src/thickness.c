@@ -174,18 +174,15 @@ static lam_status films_run(films_job *j, lam_model *m, size_t n, size_t threads
 {
     if (n > FILMS_MAX_EVALS)
         return lam_error_set(err, LAM_EINVAL, "too many film evaluations (%zu)", n);
-    size_t workers = lam_parallel_slices(n, threads), made = 1;
-    lam_status st = LAM_OK;
-    j->model[0] = m;
-    while (made < workers && !(st = lam_model_clone(m, &j->model[made], err)))
-        made++;
-    if (!st)
-        lam_parallel_each_worker(n, made, films_item, j);
+    size_t workers = lam_parallel_slices(n, threads);
+    lam_status st = lam_model_clones(m, workers, j->model, err);
+    if (st)
+        return st;
+    lam_parallel_each_worker(n, workers, films_item, j);
     for (size_t k = 0; k < n && !st; k++)
         if ((st = j->st[k]) && err)
             *err = j->err[k];
-    for (size_t w = 1; w < made; w++)
-        lam_model_free(j->model[w]);
+    lam_model_clones_free(j->model, workers);
     return st;
 }
 

@@ -420,16 +420,14 @@ static lam_status fit_oxide(lam_analysis *a, const lam_setup *s, profile_ctx *x,
     x->rival_nm = NAN;
     x->workers = lam_parallel_slices(WIDE_MAX_POINTS, x->threads);
     lam_status st = lam_model_alloc(&coarse, 1, 0, &x->coarse[0], err);
-    size_t made = st ? 0 : 1;
-    while (made && made < x->workers &&
-           !(st = lam_model_clone(x->coarse[0], &x->coarse[made], err)))
-        made++;
-    int moved = 0;
-    if (!st && !(st = coarse_scan(x, ox, err)) && !(st = fine_scan(x, ox, sd, err)) &&
-        !(st = wide_scan(x, ox, &moved, err)) && moved)
-        st = fine_scan(x, ox, sd, err);
-    for (size_t k = 0; k < made; k++)
-        lam_model_free(x->coarse[k]);
+    if (!st && !(st = lam_model_clones(x->coarse[0], x->workers, x->coarse, err))) {
+        int moved = 0;
+        if (!(st = coarse_scan(x, ox, err)) && !(st = fine_scan(x, ox, sd, err)) &&
+            !(st = wide_scan(x, ox, &moved, err)) && moved)
+            st = fine_scan(x, ox, sd, err);
+        lam_model_clones_free(x->coarse, x->workers);
+    }
+    lam_model_free(x->coarse[0]);
     lam_thickness_table_free(x->optics_ref);
     x->optics_ref = NULL;
     if (st)

@@ -106,6 +106,13 @@ lam_status lam_model_alloc_fast(const lam_setup *setup, size_t max_layers, lam_m
  * own): for evaluating on several threads, one model per thread. */
 lam_status lam_model_clone(const lam_model *m, lam_model **out, lam_error *err);
 
+/* Models for n workers (n <= LAM_MAX_THREADS): out[0] = m and out[1..n)
+ * clones of it. On error the clones made are freed and out[1..n) are NULL. */
+lam_status lam_model_clones(lam_model *m, size_t n, lam_model **out, lam_error *err);
+
+/* Free out[1..n) of lam_model_clones (out[0], the caller's model, stays). */
+void lam_model_clones_free(lam_model **out, size_t n);
+
 /* The camera channels (1 to 3) and the layers (K) a model evaluates. */
 size_t lam_model_channels(const lam_model *m);
 size_t lam_model_max_layers(const lam_model *m);
