@@ -392,7 +392,7 @@ static void difference_stats(const lam_contrast_map *img, size_t channels, const
  * part of this stage's time). A band merges with slots of its thread's
  * own, reused band after band; at the band's end its surviving regions'
  * slots move to the band's range of the image's slot array (see
- * merge_bands), and the borders take theirs after those ranges. */
+ * merge_band), and the borders take theirs after those ranges. */
 typedef struct slot {
     uint32_t count;
     float sum[3];
@@ -1121,20 +1121,23 @@ typedef struct border_lists {
     uint32_t *pairs, *start;
 } border_lists;
 
+/* One band's own lists and a strip's scratch, per worker, made at the
+ * worker's first band. */
+typedef struct band_work {
+    pair_lists L;
+    strip_scratch t;
+    merge_state m; /* the image's, with the worker's own slots */
+    int made, failed;
+} band_work;
+
 typedef struct band_ctx {
     merge_state *m;
     pair_ctx p;
     pair_lists geometry; /* the image's strips (no lists) */
     border_lists borders;
+    band_work *work;     /* by worker */
     int failed;
 } band_ctx;
-
-/* One band's own lists and a strip's scratch, per thread. */
-typedef struct band_work {
-    pair_lists L;
-    strip_scratch t;
-    merge_state m; /* the image's, with the thread's own slots */
-} band_work;
 
 static int band_work_alloc(const band_ctx *x, band_work *bw)
 {
@@ -1199,38 +1202,37 @@ static void keep_border(const pair_lists *L, size_t w, size_t s, size_t band,
     start[PAIR_BUCKETS] = n;
 }
 
-/* Bands begin..end, each on its own: its strips' lists, its merging, its
- * border pairs. */
-static void merge_bands(size_t begin, size_t end, size_t slice, void *vctx)
+/* One band on its own, on worker 'worker': its strips' lists, its merging,
+ * its border pairs. A band's result does not depend on which worker takes
+ * it (its slots start from the worker's first, its lists are its own), so
+ * the bands are handed out one at a time: equal slices of them left one
+ * core idle while the other merged the bands with the most flakes. */
+static void merge_band(size_t band, size_t worker, void *vctx)
 {
-    (void)slice;
     band_ctx *x = vctx;
+    band_work *bw = &x->work[worker];
+    if (!bw->made) {
+        bw->made = 1;
+        bw->failed = !band_work_alloc(x, bw);
+    }
+    if (bw->failed)
+        return;
     size_t w = x->p.img->width;
     uint32_t batch[BATCH];
-    band_work bw;
-    memset(&bw, 0, sizeof bw);
-    if (!band_work_alloc(x, &bw)) {
-        band_work_free(&bw);
-        x->failed = 1;
-        return;
-    }
-    pair_lists *L = &bw.L;
-    for (size_t band = begin; band < end; band++) {
-        size_t s0 = band * BAND_STRIPS;
-        size_t s1 = s0 + BAND_STRIPS < L->strips ? s0 + BAND_STRIPS : L->strips;
-        L->first = s0;
-        slot_pool pool = {0, SINGLE};
-        for (size_t s = s0; s < s1; s++)
-            strip_pairs(&x->p, L, s, &bw.t, &bw.m, &pool);
-        cursor c = {0, s0, s0, s1, L->start[0], L->start[1]};
-        size_t nb, y0 = s0 * L->rows, y1 = s1 * L->rows < x->p.img->height ? s1 * L->rows
-                                                                              : x->p.img->height;
-        while ((nb = gather(L, w, &c, batch)) > 0)
-            merge_batch(&bw.m, batch, nb, w, &pool);
-        keep_slots(x->m, bw.m.slots, band, y0 * w, (y1 - y0) * w);
-        keep_border(L, w, s1 - 1, band, &x->borders);
-    }
-    band_work_free(&bw);
+    pair_lists *L = &bw->L;
+    size_t s0 = band * BAND_STRIPS;
+    size_t s1 = s0 + BAND_STRIPS < L->strips ? s0 + BAND_STRIPS : L->strips;
+    L->first = s0;
+    slot_pool pool = {0, SINGLE};
+    for (size_t s = s0; s < s1; s++)
+        strip_pairs(&x->p, L, s, &bw->t, &bw->m, &pool);
+    cursor c = {0, s0, s0, s1, L->start[0], L->start[1]};
+    size_t nb, y0 = s0 * L->rows,
+               y1 = s1 * L->rows < x->p.img->height ? s1 * L->rows : x->p.img->height;
+    while ((nb = gather(L, w, &c, batch)) > 0)
+        merge_batch(&bw->m, batch, nb, w, &pool);
+    keep_slots(x->m, bw->m.slots, band, y0 * w, (y1 - y0) * w);
+    keep_border(L, w, s1 - 1, band, &x->borders);
 }
 
 /* The pairs across band borders, bucket by bucket, border by border. */
@@ -1260,10 +1262,17 @@ static int merge_pairs(band_ctx *x, size_t threads)
     size_t w = x->p.img->width, bands = band_count(&x->geometry);
     x->borders.pairs = malloc(bands * w * sizeof *x->borders.pairs);
     x->borders.start = malloc(bands * (PAIR_BUCKETS + 1) * sizeof *x->borders.start);
-    if (x->borders.pairs && x->borders.start)
-        lam_parallel_for(bands, threads, merge_bands, x);
+    size_t workers = lam_parallel_slices(bands, threads);
+    x->work = calloc(workers, sizeof *x->work);
+    if (x->borders.pairs && x->borders.start && x->work)
+        lam_parallel_each_worker(bands, threads, merge_band, x);
     else
         x->failed = 1;
+    for (size_t k = 0; x->work && k < workers; k++) {
+        x->failed |= x->work[k].failed;
+        band_work_free(&x->work[k]);
+    }
+    free(x->work);
     if (!x->failed)
         merge_borders(x->m, &x->borders, w, bands);
     free(x->borders.pairs);
@@ -1290,7 +1299,7 @@ static lam_status grow(const lam_contrast_map *img, size_t channels, const doubl
     m.node = seg->label; /* the union-find becomes the label map */
     init_ctx ic = {m.node, w};
     lam_parallel_for(img->height, threads, init_rows, &ic);
-    band_ctx x = {&m, {img, seg->cls, &m}, pair_geometry(w, img->height), {NULL, NULL}, 0};
+    band_ctx x = {&m, {img, seg->cls, &m}, pair_geometry(w, img->height), {NULL, NULL}, NULL, 0};
     size_t bands = band_count(&x.geometry);
     m.band_slots = (BAND_STRIPS * x.geometry.rows * w + 1) / 2;
     /* small pages: untouched slots then cost no memory (only the pages
