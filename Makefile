@@ -157,7 +157,7 @@ demo: deps
 	$(BIN) analyze --setup samples/bench3-setup-hbn.json --target-thickness 10-30 --out lamina-out/hbn \
 	    samples/HT285-N05-tile04.png
 	$(BIN) analyze --setup samples/bench3-setup-mos2.json --out lamina-out/mos2 samples/HT090-M02-tile01.png
-	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285, lamina-out/HT090, lamina-out/hbn (hBN thicknesses) and lamina-out/mos2 (MoS2): STEM.json, STEM.annotated.png, STEM.layers.png, STEM.contrast.svg"
+	@echo "results: lamina-out/HT285/report.html (the run report), and per image in lamina-out/HT285, lamina-out/HT090, lamina-out/hbn (hBN thicknesses) and lamina-out/mos2 (MoS2): STEM.json, STEM.annotated.png (.jpg for the JPEG tile), STEM.layers.png, STEM.contrast.svg"
 
 # Install missing Debian packages when root; otherwise say what to run.
 deps:

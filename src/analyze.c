@@ -157,6 +157,7 @@ static lam_status load_stage(lam__run *r, const char *path, lam_error *err)
         a->um_per_px_from_file = 1;
     }
     a->bit_depth = img->bit_depth;
+    a->jpeg_input = lam_image_block_coded(img);
     a->clipped_pixels = img->clipped_count;
     a->display = img->display8; /* taken over, or NULL for JPEG and 16-bit files */
     img->display8 = NULL;

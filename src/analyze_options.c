@@ -32,6 +32,27 @@ static lam_status set_encoding(lam_analysis_options *o, const char *text, lam_er
     return LAM_OK;
 }
 
+static lam_status set_annotated(lam_analysis_options *o, const char *text, lam_error *err)
+{
+    static const struct {
+        const char *name;
+        lam_annotated_format format;
+    } formats[] = {{"auto", LAM_ANNOTATED_AUTO}, {"png", LAM_ANNOTATED_PNG},
+                   {"jpeg", LAM_ANNOTATED_JPEG}};
+    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
+        if (!strcmp(text, formats[k].name)) {
+            o->annotated = formats[k].format;
+            return LAM_OK;
+        }
+    return lam_error_set(err, LAM_ERANGE, "--annotated-format: expected auto, png or jpeg");
+}
+
+const char *lam_annotated_extension(const lam_analysis *a, lam_annotated_format f)
+{
+    int jpeg = f == LAM_ANNOTATED_JPEG || (f == LAM_ANNOTATED_AUTO && a->jpeg_input);
+    return jpeg ? "jpg" : "png";
+}
+
 lam_status lam_analysis_options_set(lam_analysis_options *o, const char *name, const char *text,
                                     lam_error *err)
 {
@@ -41,6 +62,8 @@ lam_status lam_analysis_options_set(lam_analysis_options *o, const char *name, c
         return set_megapixels(o, text, err);
     if (!strcmp(name, "encoding"))
         return set_encoding(o, text, err);
+    if (!strcmp(name, "annotated-format"))
+        return set_annotated(o, text, err);
     if (!strcmp(name, "substrate-roi"))
         return lam_substrate_roi_parse(&o->substrate, "--substrate-roi", text, err);
     return lam_error_set(err, LAM_EINVAL, "no analysis option '%s'", name);

@@ -61,6 +61,22 @@ static void remove_written(char paths[][4096], size_t n)
         remove(paths[i]);
 }
 
+/* The result files' names, in the JSON (key "outputs"), so that the
+ * catalogue and the run report link to them: the annotated picture's
+ * extension follows the input's format. NULL when out of memory. */
+static cJSON *add_outputs(cJSON *json, const char *stem, const char *annotated_ext)
+{
+    cJSON *o = cJSON_AddObjectToObject(json, "outputs");
+    char name[600];
+    snprintf(name, sizeof name, "%s.annotated.%s", stem, annotated_ext);
+    int ok = o && cJSON_AddStringToObject(o, "annotated", name);
+    snprintf(name, sizeof name, "%s.layers.png", stem);
+    ok = ok && cJSON_AddStringToObject(o, "layers", name);
+    snprintf(name, sizeof name, "%s.contrast.svg", stem);
+    ok = ok && cJSON_AddStringToObject(o, "contrast_plot", name);
+    return ok ? json : NULL;
+}
+
 /* The annotated image (the largest file) is made on a second thread in two
  * parts: its outlines are traced while the display is decoded here, then
  * it is drawn and encoded while the layer map and the plot are written
@@ -68,13 +84,14 @@ static void remove_written(char paths[][4096], size_t n)
  * results are complete (--resume). On failure nothing of this image
  * stays: the first error is returned. */
 static lam_status write_reports(lam_analysis *a, const char *dir, const char *stem,
-                                size_t threads, cJSON **json, lam_error *err)
+                                const lam_analysis_options *opt, cJSON **json, lam_error *err)
 {
     char done[3][4096]; /* written by this call, for remove_written */
-    size_t written = 0;
+    size_t written = 0, threads = opt->threads;
     annot_job aj = {a, NULL, "", {0}, LAM_OK};
     lam_error_clear(&aj.err);
-    snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.png", dir, stem);
+    const char *ext = lam_annotated_extension(a, opt->annotated);
+    snprintf(aj.path, sizeof aj.path, "%s/%s.annotated.%s", dir, stem, ext);
     pthread_t t;
     int threaded = run_beside(threads, trace_thread, &aj, &t);
     /* the picture is decoded here, not on the second thread: memory a
@@ -108,7 +125,7 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
         *err = aj.err;
         st = aj.st;
     }
-    if (!st && !(*json = lam_report_json(a)))
+    if (!st && (!(*json = lam_report_json(a)) || !add_outputs(*json, stem, ext)))
         st = lam_error_set(err, LAM_ENOMEM, "cannot format the JSON report");
     char p[4096];
     snprintf(p, sizeof p, "%s/%s.json", dir, stem);
@@ -134,7 +151,7 @@ lam_status lam_batch_analyse_one(const char *path, const lam_setup *setup,
     snprintf(a->setup_hash, sizeof a->setup_hash, "%s", setup_hash ? setup_hash : "");
     char stem[512];
     lam_batch_stem(path, stem, sizeof stem);
-    if ((st = write_reports(a, out_dir, stem, opt->threads, json, err))) {
+    if ((st = write_reports(a, out_dir, stem, opt, json, err))) {
         lam_error_set_file(err, path);
         lam_analysis_free(a);
         cJSON_Delete(*json);

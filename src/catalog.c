@@ -149,6 +149,11 @@ static lam_status add_image(lam_catalog *c, const cJSON *an, const char *path,
     char *dot = strrchr(im->stem, '.');
     if (dot && dot != im->stem)
         *dot = '\0';
+    const char *pic = str(cJSON_GetObjectItemCaseSensitive(an, "outputs"), "annotated");
+    if (pic && !strchr(pic, '/')) /* a name in the results folder, nothing else */
+        snprintf(im->annotated, sizeof im->annotated, "%s", pic);
+    else
+        snprintf(im->annotated, sizeof im->annotated, "%s.annotated.png", im->stem);
     im->width = lam_json_number_or(img, "width", 0), im->height = lam_json_number_or(img, "height", 0);
     im->um_per_px = lam_json_number_or(img, "um_per_px", NAN);
     const cJSON *ox = cJSON_GetObjectItemCaseSensitive(

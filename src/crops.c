@@ -76,7 +76,7 @@ static void load_source(const lam_catalog *c, size_t image, source *s)
     size_t w = 0, h = 0, mw = 0, mh = 0;
     s->rgb = load_rgb(im->path, &w, &h);
     if (!s->rgb && im->results[0]) {
-        snprintf(p, sizeof p, "%s/%s.annotated.png", im->results, im->stem);
+        snprintf(p, sizeof p, "%s/%s", im->results, im->annotated);
         s->rgb = load_rgb(p, &w, &h);
     }
     s->w = w, s->h = h;

@@ -193,12 +193,13 @@ static void url(FILE *f, const char *t)
 }
 
 /* An image's name linking to its annotated picture, and its JSON. */
-static void image_links(FILE *f, const char *rel, const char *stem)
+static void image_links(FILE *f, const char *rel, const lam_catalog_image *im)
 {
+    const char *stem = im->stem;
     fputs("<a href=\"", f);
     url(f, rel);
-    url(f, stem);
-    fputs(".annotated.png\">", f);
+    url(f, im->annotated);
+    fputs("\">", f);
     html(f, stem);
     fputs("</a> (<a href=\"", f);
     url(f, rel);
@@ -312,8 +313,8 @@ static void svg_tiles(FILE *f, const lam_catalog *c, const lam_chipmap_view *v, 
         relative_dir(dir, c->images[k].results, rel, sizeof rel);
         fputs("<a href=\"", f);
         url(f, rel);
-        url(f, c->images[k].stem);
-        fprintf(f, ".annotated.png\"><polygon points=\"%.1f,%.1f %.1f,%.1f %.1f,%.1f %.1f,%.1f\" "
+        url(f, c->images[k].annotated);
+        fprintf(f, "\"><polygon points=\"%.1f,%.1f %.1f,%.1f %.1f,%.1f %.1f,%.1f\" "
                    "fill=\"#b8b0d8\" fill-opacity=\"0.35\" stroke=\"#6a6090\"><title>",
                 q[0][0], q[0][1], q[1][0], q[1][1], q[2][0], q[2][1], q[3][0], q[3][1]);
         html(f, c->images[k].stem);
@@ -429,7 +430,7 @@ static void candidate_row(FILE *f, const lam_catalog *c, size_t i, const char *d
     fputs("</td><td data-v=\"", f);
     html(f, im->stem);
     fputs("\">", f);
-    image_links(f, rel, im->stem);
+    image_links(f, rel, im);
     fprintf(f, "</td><td class=\"n\" data-v=\"%u\">#%u</td>", e->region,
             e->region);
     if (isfinite(e->thickness_nm[0]))
@@ -489,7 +490,7 @@ static void image_table(FILE *f, const lam_catalog *c, const char *dir)
         char rel[PATH_MAX];
         relative_dir(dir, im->results, rel, sizeof rel);
         fputs("<tr><td>", f);
-        image_links(f, rel, im->stem);
+        image_links(f, rel, im);
         fprintf(f, "</td><td class=\"n\">%.1f%s</td><td class=\"n\">%zu</td>"
                    "<td class=\"n\">%zu</td>", im->oxide_nm, im->oxide_fitted ? "" : " (nominal)",
                 im->regions, im->candidates);

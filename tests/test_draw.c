@@ -16,6 +16,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 /* Simulated dichromacy on linear sRGB, severity 1: Machado, Oliveira and
  * Fernandes, IEEE TVCG 15, 1291 (2009), Table 1 (values from memory; each
@@ -372,6 +373,109 @@ static void test_annotated(const char *image, const char *setup_file)
     lam_setup_clear(&s);
 }
 
+/* The picture drawn into path from a copy of the display, which is put
+ * back afterwards (drawing consumes it); 1 when written. */
+static int draw_keeping_display(lam_analysis *a, const char *path)
+{
+    lam_error err;
+    size_t n = 3 * a->width * a->height;
+    uint8_t *display = malloc(n);
+    if (!display || lam_analysis_display(a, &err)) {
+        free(display);
+        return 0;
+    }
+    memcpy(display, a->display, n);
+    lam_status st = lam_report_write_annotated(a, path, &err);
+    memcpy(a->display, display, n);
+    free(display);
+    return st == LAM_OK;
+}
+
+/* The components' sampling factors of a baseline or progressive JPEG
+ * (its SOF segment), packed as in the file (0x11: 1 x 1), into f[0..2];
+ * the number of components, 0 when there is no SOF. */
+static int jpeg_sampling(const char *path, unsigned f[3])
+{
+    FILE *fp = fopen(path, "rb");
+    unsigned char b[4096];
+    size_t n = fp ? fread(b, 1, sizeof b, fp) : 0;
+    if (fp)
+        fclose(fp);
+    for (size_t i = 2; i + 9 < n;) {
+        if (b[i] != 0xff)
+            return 0;
+        unsigned marker = b[i + 1], len = (unsigned)b[i + 2] << 8 | b[i + 3];
+        if (marker == 0xc0 || marker == 0xc2) {
+            int nc = b[i + 9];
+            for (int c = 0; c < nc && c < 3 && i + 11 + 3 * (size_t)c < n; c++)
+                f[c] = b[i + 11 + 3 * (size_t)c];
+            return nc;
+        }
+        i += 2 + len;
+    }
+    return 0;
+}
+
+/* A JPEG input's annotated picture as a JPEG (lam_report_jpeg_path): the
+ * same picture as the PNG drawn from the same analysis, each channel's
+ * chroma kept at full resolution (so the 1-pixel outlines keep their
+ * colour, which 4:2:0 smears into the flake beside them), a fraction of
+ * the PNG's bytes. */
+static void test_annotated_jpeg(void)
+{
+    lam_setup s;
+    lam_error err;
+    lam_analysis *a = analyse_sample("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json", &s);
+    if (!a)
+        return;
+    char png[1200], jpg[1200];
+    snprintf(png, sizeof png, "%s/D04.annotated.png", check_tmpdir());
+    snprintf(jpg, sizeof jpg, "%s/D04.annotated.jpg", check_tmpdir());
+    check_true(lam_report_jpeg_path(jpg) && lam_report_jpeg_path("x.JPEG") &&
+                   !lam_report_jpeg_path(png) && !lam_report_jpeg_path("jpg"),
+               "the annotated picture's format by its extension");
+    int drawn = draw_keeping_display(a, png) && draw_keeping_display(a, jpg);
+    lam_load_options lo = lam_load_options_default();
+    lo.keep_display8 = 1;
+    lam_image *p = NULL, *j = NULL;
+    if (check_true(drawn, "D04: both pictures drawn") &&
+        check_int(lam_image_load(png, &lo, &p, &err), LAM_OK, "D04: the PNG reads back") &&
+        check_int(lam_image_load(jpg, &lo, &j, &err), LAM_OK, "D04: the JPEG reads back")) {
+        unsigned f[3] = {0, 0, 0};
+        int components = jpeg_sampling(jpg, f);
+        check_true(lam_image_block_coded(j) && components == 3 && f[0] == 0x11 &&
+                       f[1] == 0x11 && f[2] == 0x11,
+                   "D04: a JPEG without chroma subsampling (%02x %02x %02x)", f[0], f[1], f[2]);
+        check_true(j->width == p->width && j->height == p->height, "D04: the input's size");
+        uint32_t yellow = lam_draw_layer_colour(1);
+        double all = 0, line = 0;
+        size_t n = p->width * p->height, on_line = 0;
+        for (size_t k = 0; k < n; k++) {
+            const uint8_t *q = p->display8 + 3 * k, *r = j->display8 + 3 * k;
+            double d = 0;
+            for (int c = 0; c < 3; c++)
+                d += fabs((double)q[c] - r[c]) / 3;
+            all += d;
+            if (q[0] == (yellow >> 16 & 255) && q[1] == (yellow >> 8 & 255) && q[2] == (yellow & 255))
+                line += d, on_line++;
+        }
+        check_true(all / (double)n < 1.5, "D04: the JPEG is the PNG's picture (mean |difference| "
+                   "%.2f codes, bound 1.5)", all / (double)n);
+        check_true(on_line > 1000 && line / (double)on_line < 12,
+                   "D04: the monolayers' outlines keep their colour (%zu px, mean |difference| "
+                   "%.1f codes, bound 12)", on_line, on_line ? line / (double)on_line : 0.0);
+        struct stat sp, sj;
+        int sized = !stat(png, &sp) && !stat(jpg, &sj);
+        check_true(sized && sj.st_size * 2 < sp.st_size,
+                   "D04: the JPEG under half the PNG's size (%lld against %lld bytes)",
+                   sized ? (long long)sj.st_size : -1LL, sized ? (long long)sp.st_size : -1LL);
+    }
+    lam_image_free(p);
+    lam_image_free(j);
+    lam_analysis_free(a);
+    lam_setup_clear(&s);
+}
+
 /* The legend goes where it hides least, and a film with a thickness
  * answer weighs like a counted flake: on the hBN demo tile every place
  * for the legend hides something, and it must take the unmodelled patch
@@ -486,6 +590,7 @@ int main(void)
     test_annotated("samples/HT285-C11-tile07.png", "samples/bench3-setup.json");
     test_annotated("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json");
     test_annotated("samples/HT090-B02-tile03.png", "samples/bench3-setup-90nm.json");
+    test_annotated_jpeg();
     test_legend_spares_films();
     lam_draw_shutdown();
     return check_summary();

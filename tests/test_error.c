@@ -127,6 +127,11 @@ static void test_parse_lists(void)
               "an unknown curve");
     check_int(lam_analysis_options_set(&ao, "substrate-roi", "0,0,64,64", &err), LAM_OK, "ROI");
     check_true(ao.substrate.has_roi && ao.substrate.roi[2] == 64, "the ROI in the options");
+    check_int(lam_analysis_options_set(&ao, "annotated-format", "jpeg", &err), LAM_OK, "jpeg");
+    check_true(ao.annotated == LAM_ANNOTATED_JPEG, "the annotated picture as a JPEG");
+    check_int(lam_analysis_options_set(&ao, "annotated-format", "gif", &err), LAM_ERANGE,
+              "an unknown picture format");
+    check_true(ao.annotated == LAM_ANNOTATED_JPEG, "a refused format leaves the option alone");
     check_int(lam_analysis_options_set(&ao, "min-aera", "5", &err), LAM_EINVAL, "unknown name");
 }
 

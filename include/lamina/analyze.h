@@ -48,6 +48,15 @@ typedef struct lam_shared_prior {
                                  * (warning "two-readings"; lamina/pool.h) */
 } lam_shared_prior;
 
+/* The annotated picture's file format (lam_batch_analyse_one): AUTO takes
+ * the input's own when that is a JPEG (a fifth of the PNG's size, and
+ * faster to write: docs/performance.md) and PNG for every lossless input. */
+typedef enum lam_annotated_format {
+    LAM_ANNOTATED_AUTO,
+    LAM_ANNOTATED_PNG,
+    LAM_ANNOTATED_JPEG
+} lam_annotated_format;
+
 typedef struct lam_analysis_options {
     lam_load_options load;
     lam_substrate_options substrate;
@@ -61,6 +70,7 @@ typedef struct lam_analysis_options {
     int fit_oxide, fit_fermi;   /* both on by default */
     size_t threads;             /* for the pixel passes (default: all cores) */
     const lam_shared_prior *shared_prior; /* NULL: the setup's priors */
+    lam_annotated_format annotated; /* the annotated picture's format (AUTO) */
 } lam_analysis_options;
 
 /* What the bare substrate's colour says about the oxide, when the setup
@@ -97,6 +107,7 @@ typedef struct lam_analysis {
     lam_transfer transfer;
     int transfer_from_file;         /* the curve came from the file's colour metadata */
     int bit_depth;
+    int jpeg_input;                 /* the input was a JPEG (lam_image_block_coded) */
     double um_per_px;               /* 0 unknown: the setup's, else the file's (TIFF
                                      * resolution tags) */
     int um_per_px_from_file;        /* the pixel size came from the file */
@@ -136,9 +147,14 @@ typedef struct lam_analysis {
  * Fermi level fitted, all cores, the setup's own priors. */
 lam_analysis_options lam_analysis_options_default(void);
 
+/* The annotated picture's file extension for analysis a under format f:
+ * "jpg" or "png". */
+const char *lam_annotated_extension(const lam_analysis *a, lam_annotated_format f);
+
 /* Set an option from text by its command-line name: "min-area" (um^2, or
  * px without a pixel size: both limits), "max-megapixels", "encoding"
- * (srgb, linear or a gamma value) or "substrate-roi" (X,Y,W,H). LAM_ERANGE
+ * (srgb, linear or a gamma value), "substrate-roi" (X,Y,W,H) or
+ * "annotated-format" (auto, png or jpeg). LAM_ERANGE
  * with a message naming the option for a bad value, LAM_EINVAL for an
  * unknown name; o is unchanged on failure. */
 lam_status lam_analysis_options_set(lam_analysis_options *o, const char *name, const char *text,

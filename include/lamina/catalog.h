@@ -31,8 +31,10 @@ struct cJSON;
 
 typedef struct lam_catalog_image {
     char path[1024];          /* the image as analysed */
-    char results[1024];       /* folder of STEM.json, STEM.annotated.png, ... ("" unknown) */
+    char results[1024];       /* folder of STEM.json, STEM.layers.png, ... ("" unknown) */
     char stem[256];           /* file name without its extension */
+    char annotated[300];      /* the annotated picture's file name in results (its JSON's
+                               * "outputs"; STEM.annotated.png for results without) */
     double width, height, um_per_px;  /* um_per_px NAN when unknown */
     double oxide_nm;
     int oxide_fitted;

@@ -33,7 +33,9 @@ lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_er
 lam_status lam_report_save_json(const struct cJSON *root, const char *path, lam_error *err);
 lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err);
 /* Draws over a->display (the copy of the input is consumed: call last, or
- * not at all if the display is needed afterwards). */
+ * not at all if the display is needed afterwards). A path ending in .jpg
+ * or .jpeg (lam_report_jpeg_path) gets a JPEG of quality 92 without chroma
+ * subsampling, any other a PNG. */
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err);
 /* The same in two steps, so that the first can run on another thread
  * while the display is decoded (lam_analysis_display; the batch does so):
@@ -44,6 +46,10 @@ lam_status lam_report_trace_outlines(const lam_analysis *a, lam_contours **out, 
 lam_status lam_report_write_annotated_with(lam_analysis *a, const lam_contours *outlines,
                                            const char *path, lam_error *err);
 lam_status lam_report_write_svg(const lam_analysis *a, const char *path, lam_error *err);
+
+/* 1 when path ends in .jpg or .jpeg (any case): the annotated picture's
+ * format. */
+int lam_report_jpeg_path(const char *path);
 
 /* Where the annotated picture puts its panels and labels (canvas pixels):
  * region 0 for the legend and the scale bar, else the labelled region's

@@ -202,8 +202,9 @@ const cli_command cli_analyze = {
              "Find the flakes in each micrograph, count their layers with a probability\n"
              "(hBN: its thickness in nm with an interval and every order that fits),\n"
              "estimate the Fermi level where the colours constrain it and fit the oxide\n"
-             "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.png and\n"
-             "STEM.contrast.svg per image; for several images also catalog.json,\n"
+             "thickness. Writes STEM.json, STEM.layers.png, STEM.annotated.jpg (a\n"
+             "JPEG input's; .png for others) and STEM.contrast.svg per image; for\n"
+             "several images also catalog.json,\n"
              "catalog.csv, crops/, contact-sheet.png and report.html (the run report),\n"
              "and with positions goto.csv (the candidates' stage readings).\n\n",
     .options = analyze_options, .setup = &A.so, .stage = &A.stage, .max_args = -1,

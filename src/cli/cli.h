@@ -92,7 +92,9 @@ void cli_help(FILE *out, const cli_command *c);
     {"encoding", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "E",                                         \
      "srgb, linear or a gamma value (default: from the file)"},                                 \
     {"max-megapixels", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "MP",                                  \
-     "refuse larger images"}
+     "refuse larger images"},                                                                    \
+    {"annotated-format", 0, CLI_ANALYSIS, &(O), 0, 0, NULL, "F",                                 \
+     "auto (a JPEG input's picture a JPEG, others PNG), png or jpeg"}
 
 /* The help of the shared options (their table is in options.c). */
 #define CLI_SETUP_HELP                                                                     \

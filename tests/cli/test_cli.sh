@@ -124,6 +124,21 @@ esac
 expect_rc 0 "analyze two images writes a catalogue" "$BIN" analyze --quiet --setup samples/bench3-setup.json --out "$T/b" samples/HT285-A07-tile12.png samples/HT285-D04-tile21.jpg
 [ -s "$T/b/catalog.csv" ] && [ -s "$T/b/catalog.json" ] && ok "catalogue files" || bad "catalogue files"
 head -2 "$T/b/catalog.csv" | tail -1 | grep -q ',1L,' && ok "catalogue starts with a monolayer" || bad "catalogue order: $(head -2 "$T/b/catalog.csv")"
+# the annotated picture takes a JPEG input's format, a PNG input's stays
+# PNG; the JSON names it and the run report links to it
+[ "$(head -c 3 "$T/b/HT285-D04-tile21.annotated.jpg" | od -An -tx1 | tr -d ' ')" = ffd8ff ] \
+    && ok "a JPEG input's annotated picture is a JPEG" || bad "no JPEG annotated picture: $(ls "$T/b")"
+[ ! -e "$T/b/HT285-D04-tile21.annotated.png" ] && [ -s "$T/b/HT285-A07-tile12.annotated.png" ] \
+    && ok "one annotated picture per image, a PNG input's a PNG" || bad "annotated pictures: $(ls "$T/b")"
+grep -q '"annotated":[[:space:]]*"HT285-D04-tile21.annotated.jpg"' "$T/b/HT285-D04-tile21.json" \
+    && ok "the JSON names the annotated picture" || bad "outputs in the JSON"
+grep -q 'href="HT285-D04-tile21.annotated.jpg"' "$T/b/report.html" && ! grep -q 'D04-tile21.annotated.png' "$T/b/report.html" \
+    && ok "the run report links to the JPEG picture" || bad "report links: $(grep -o 'href="[^"]*annotated[^"]*"' "$T/b/report.html" | sort -u)"
+expect_rc 0 "analyze a JPEG with --annotated-format png" "$BIN" analyze --quiet --annotated-format png --setup samples/bench3-setup.json --out "$T/b2" samples/HT285-D04-tile21.jpg
+[ -s "$T/b2/HT285-D04-tile21.annotated.png" ] && [ ! -e "$T/b2/HT285-D04-tile21.annotated.jpg" ] \
+    && ok "--annotated-format png keeps a JPEG input's picture PNG" || bad "--annotated-format png: $(ls "$T/b2")"
+expect_rc 2 "an unknown annotated format" "$BIN" analyze --annotated-format gif samples/HT285-D04-tile21.jpg
+grep -q "annotated-format" "$T/err" && ok "message names --annotated-format" || bad "format message: $(cat "$T/err")"
 # stage convention, positions, the chip map
 expect_rc 2 "a stage axis that is not a direction" "$BIN" analyze --stage-axes sideways,up samples/HT285-A07-tile12.png
 grep -q "stage-axes" "$T/err" && ok "message names --stage-axes" || bad "stage message: $(cat "$T/err")"
