@@ -156,8 +156,9 @@ static void time_writers(const char *path, const lam_setup *s, const char *dir)
         char p[4200];
         lam_error err;
         for (int k = 0; k < 4; k++) {
-            static const char *ext[4] = {"layers.png", "annotated.png", "contrast.svg", "json"};
-            snprintf(p, sizeof p, "%s/stages.%s", dir, ext[k]);
+            static const char *ext[4] = {"layers.png", "annotated.", "contrast.svg", "json"};
+            snprintf(p, sizeof p, "%s/stages.%s%s", dir, ext[k],
+                     k == 1 ? lam_annotated_extension(a, LAM_ANNOTATED_AUTO) : "");
             double t0 = now();
             lam_status st = k == 0   ? lam_report_write_layers(a, p, &err)
                             : k == 1 ? lam_report_write_annotated(a, p, &err)

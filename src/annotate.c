@@ -619,13 +619,15 @@ lam_status lam_report_write_annotated_with(lam_analysis *a, const lam_contours *
     }
     free(S);
     st = lam_canvas_finish(&cv, err);
-    int jpeg = lam_report_jpeg_path(path);
-    if (!st && jpeg) /* from the drawn words: no conversion first */
+    if (!st && lam_report_jpeg_path(path)) { /* from the drawn words: no conversion */
         st = lam_jpeg_save_xrgb32(path, px, a->width, a->height, ANNOTATED_JPEG_QUALITY, err);
-    compact_display(a);
-    if (st || jpeg)
-        return st;
-    return lam_png_save_rgb8(path, a->display, a->width, a->height, 3, err);
+    } else if (!st) {
+        compact_display(a);
+        st = lam_png_save_rgb8(path, a->display, a->width, a->height, 3, err);
+    }
+    free(a->display); /* consumed: drawn over */
+    a->display = NULL;
+    return st;
 }
 
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err)

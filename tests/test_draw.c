@@ -248,6 +248,24 @@ static long far_pixel(const lam_analysis *a, const lam_annotation_box *b, size_t
     return -1;
 }
 
+/* The picture drawn into path from a copy of the display, which is given
+ * back afterwards (drawing consumes the display); 1 when written. */
+static int draw_keeping_display(lam_analysis *a, const char *path)
+{
+    lam_error err;
+    size_t n = 3 * a->width * a->height;
+    uint8_t *display = malloc(n);
+    if (!display || lam_analysis_display(a, &err)) { /* a JPEG's is decoded on demand */
+        free(display);
+        return 0;
+    }
+    memcpy(display, a->display, n);
+    lam_status st = lam_report_write_annotated(a, path, &err);
+    free(a->display);
+    a->display = display;
+    return st == LAM_OK;
+}
+
 /* Amber pixels (the legend's warnings line, 0xffc040 on the dark panel)
  * inside the legend of the annotated picture written for a (which draws
  * on a's display copy: restored after). */
@@ -258,17 +276,8 @@ static size_t amber_in_legend(lam_analysis *a, const char *path)
     lam_image *img = NULL;
     lam_load_options lo = lam_load_options_default();
     lo.keep_display8 = 1;
-    size_t nb = lam_report_annotation_layout(a, b, 512), amber = 0, n = 3 * a->width * a->height;
-    if (lam_analysis_display(a, &err)) /* a JPEG's is decoded on demand */
-        return (size_t)-1;
-    uint8_t *display = malloc(n);
-    if (display)
-        memcpy(display, a->display, n);
-    lam_status st = !nb || !display ? LAM_ENOMEM : lam_report_write_annotated(a, path, &err);
-    if (display)
-        memcpy(a->display, display, n);
-    free(display);
-    if (st || lam_image_load(path, &lo, &img, &err))
+    size_t nb = lam_report_annotation_layout(a, b, 512), amber = 0;
+    if (!nb || !draw_keeping_display(a, path) || lam_image_load(path, &lo, &img, &err))
         return (size_t)-1;
     for (size_t y = (size_t)b[0].y; y < (size_t)(b[0].y + b[0].h) && y < img->height; y++)
         for (size_t x = (size_t)b[0].x; x < (size_t)(b[0].x + b[0].w) && x < img->width; x++) {
@@ -343,6 +352,14 @@ static void test_annotated(const char *image, const char *setup_file)
     char out[1200];
     snprintf(out, sizeof out, "%s/%s.annotated.png", check_tmpdir(), name);
     check_int(lam_report_write_annotated(a, out, &err), LAM_OK, "%s: write annotated", name);
+    check_true(a->display == NULL, "%s: the display consumed by the drawing", name);
+    if (a->source) { /* a JPEG's: decoded again, undrawn */
+        int again = lam_analysis_display(a, &err) == LAM_OK;
+        check_true(again && !memcmp(a->display, before, n * 3),
+                   "%s: the display decoded again from the kept JPEG", name);
+    } else {
+        check_int(lam_analysis_display(a, &err), LAM_EINVAL, "%s: no display left", name);
+    }
     lam_load_options lo = lam_load_options_default();
     lo.keep_display8 = 1;
     lam_image *img = NULL;
@@ -371,24 +388,6 @@ static void test_annotated(const char *image, const char *setup_file)
     free(before);
     lam_analysis_free(a);
     lam_setup_clear(&s);
-}
-
-/* The picture drawn into path from a copy of the display, which is put
- * back afterwards (drawing consumes it); 1 when written. */
-static int draw_keeping_display(lam_analysis *a, const char *path)
-{
-    lam_error err;
-    size_t n = 3 * a->width * a->height;
-    uint8_t *display = malloc(n);
-    if (!display || lam_analysis_display(a, &err)) {
-        free(display);
-        return 0;
-    }
-    memcpy(display, a->display, n);
-    lam_status st = lam_report_write_annotated(a, path, &err);
-    memcpy(a->display, display, n);
-    free(display);
-    return st == LAM_OK;
 }
 
 /* The components' sampling factors of a baseline or progressive JPEG

@@ -32,9 +32,10 @@ lam_status lam_report_write_json(const lam_analysis *a, const char *path, lam_er
 /* Write an already built JSON tree (e.g. from lam_report_json), newline-ended. */
 lam_status lam_report_save_json(const struct cJSON *root, const char *path, lam_error *err);
 lam_status lam_report_write_layers(const lam_analysis *a, const char *path, lam_error *err);
-/* Draws over a->display (the copy of the input is consumed: call last, or
- * not at all if the display is needed afterwards). A path ending in .jpg
- * or .jpeg (lam_report_jpeg_path) gets a JPEG of quality 92 without chroma
+/* Draws over a->display and releases it (the copy of the input is
+ * consumed: call last; lam_analysis_display decodes a JPEG input's again,
+ * another's is gone). A path ending in .jpg or .jpeg
+ * (lam_report_jpeg_path) gets a JPEG of quality 92 without chroma
  * subsampling, any other a PNG. */
 lam_status lam_report_write_annotated(lam_analysis *a, const char *path, lam_error *err);
 /* The same in two steps, so that the first can run on another thread
