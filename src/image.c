@@ -1,6 +1,7 @@
 /* image.c - the lam_image type: allocation, size checks, format sniffing,
  * comparing the file's transfer curve with the user's. */
 #include "lamina/image.h"
+#include "imageio_internal.h"
 #include "lamina/bigalloc.h"
 
 #include <math.h>
@@ -57,14 +58,16 @@ static lam_image *image_header(size_t width, size_t height)
     return img;
 }
 
-lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err)
+/* The planes zeroed or not (a loader writes every sample). */
+static lam_status image_alloc(size_t width, size_t height, int zeroed, lam_image **out,
+                              lam_error *err)
 {
     lam_status st = lam_image_check_size(width, height, SIZE_MAX / 16, "image", err);
     if (st)
         return st;
     size_t n = width * height;
     lam_image *img = image_header(width, height);
-    float *pix = lam_big_calloc(3 * n, sizeof *pix);
+    float *pix = zeroed ? lam_big_calloc(3 * n, sizeof *pix) : lam_big_malloc(3 * n * sizeof *pix);
     size_t stride = (width + 7) / 8;
     uint8_t *clip = lam_big_calloc(height, stride);
     if (!img || !pix || !clip) {
@@ -81,6 +84,16 @@ lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_err
     img->clip_stride = stride;
     *out = img;
     return LAM_OK;
+}
+
+lam_status lam_image_alloc(size_t width, size_t height, lam_image **out, lam_error *err)
+{
+    return image_alloc(width, height, 1, out, err);
+}
+
+lam_status lam__image_alloc_unset(size_t width, size_t height, lam_image **out, lam_error *err)
+{
+    return image_alloc(width, height, 0, out, err);
 }
 
 lam_status lam_image_alloc_display8(size_t width, size_t height, int xrgb_room, lam_image **out,

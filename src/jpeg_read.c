@@ -110,7 +110,7 @@ static lam_status start(jpeg_job *job, const lam_load_options *opt, lam_error *e
     int chans = job->cinfo.output_components;
     lam_status st = opt->display8_only
                         ? lam_image_alloc_display8(w, h, opt->display8_xrgb_room, &job->img, err)
-                        : lam_image_alloc(w, h, &job->img, err);
+                        : lam__image_alloc_unset(w, h, &job->img, err);
     if (st || (st = lam__pixconv_init(&job->pc, 8, chans, err)))
         return st;
     lam_image *img = job->img;

@@ -105,7 +105,7 @@ static lam_status read_header(png_job *job, FILE *fp, const lam_load_options *op
         return lam_error_set(err, LAM_EINVAL, "a 16-bit PNG has no 8-bit codes to decode alone");
     st = opt->display8_only
              ? lam_image_alloc_display8(w, h, opt->display8_xrgb_room, &job->img, err)
-             : lam_image_alloc(w, h, &job->img, err);
+             : lam__image_alloc_unset(w, h, &job->img, err);
     if (st || (st = lam__pixconv_init(&job->pc, out_depth, chans, err)))
         return st;
     job->img->bit_depth = out_depth;

@@ -399,7 +399,7 @@ static lam_status make_image(tiff_job *job, const lam_load_options *opt, lam_err
     const tiff_layout *L = &job->L;
     int depth = L->bps == 16 ? 16 : 8;
     lam_status st;
-    if ((st = lam_image_alloc(L->w, L->h, &job->img, err)) ||
+    if ((st = lam__image_alloc_unset(L->w, L->h, &job->img, err)) ||
         (st = lam__pixconv_init(&job->pc, depth, L->colour, err)))
         return st;
     lam_image *img = job->img;
