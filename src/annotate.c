@@ -581,8 +581,8 @@ lam_status lam_report_trace_outlines(const lam_analysis *a, lam_contours **out, 
 
 /* Quality of the annotated picture as a JPEG: at 92 without chroma
  * subsampling the 1-pixel outlines and the labels' text are as drawn to
- * the eye at 3x zoom, while the file is a fifth of the PNG's (the 12 MP
- * bench picture 1.2 MB against 5.6; docs/performance.md). */
+ * the eye at 3x zoom, while the file is about a quarter of the PNG's (the
+ * 12 MP bench picture 1.5 MB against 5.6; docs/performance.md). */
 #define ANNOTATED_JPEG_QUALITY 92
 
 int lam_report_jpeg_path(const char *path)

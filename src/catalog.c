@@ -150,7 +150,7 @@ static lam_status add_image(lam_catalog *c, const cJSON *an, const char *path,
     if (dot && dot != im->stem)
         *dot = '\0';
     const char *pic = str(cJSON_GetObjectItemCaseSensitive(an, "outputs"), "annotated");
-    if (pic && !strchr(pic, '/')) /* a name in the results folder, nothing else */
+    if (pic && pic[0] && !strchr(pic, '/')) /* a name in the results folder, nothing else */
         snprintf(im->annotated, sizeof im->annotated, "%s", pic);
     else
         snprintf(im->annotated, sizeof im->annotated, "%s.annotated.png", im->stem);

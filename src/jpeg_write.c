@@ -98,7 +98,7 @@ lam_status lam_jpeg_save_rgb8(const char *path, const uint8_t *rgb, size_t width
     return save(path, &s, width, height, quality, err);
 }
 
-/* ---- bands coded side by side ----
+/* ---- bands coded side by side (4:4:4 only: a block row is 8 rows) ----
  * A picture of 4:4:4 JPEG is coded in bands of BAND_MCU_ROWS rows of 8 x 8
  * blocks on all cores, each band a JPEG of its own with a restart marker
  * after every row of blocks (so each row starts from fresh DC predictions

@@ -49,8 +49,9 @@ typedef struct lam_shared_prior {
 } lam_shared_prior;
 
 /* The annotated picture's file format (lam_batch_analyse_one): AUTO takes
- * the input's own when that is a JPEG (a fifth of the PNG's size, and
- * faster to write: docs/performance.md) and PNG for every lossless input. */
+ * the input's own when that is a JPEG (about a quarter of the PNG's size,
+ * and faster to write: docs/performance.md) and PNG for every lossless
+ * input. */
 typedef enum lam_annotated_format {
     LAM_ANNOTATED_AUTO,
     LAM_ANNOTATED_PNG,
