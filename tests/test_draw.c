@@ -424,7 +424,8 @@ static void test_annotated_jpeg(void)
 {
     lam_setup s;
     lam_error err;
-    lam_analysis *a = analyse_sample("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json", &s);
+    lam_analysis *a =
+        analyse_sample("samples/HT285-D04-tile21.jpg", "samples/bench3-setup.json", &s);
     if (!a)
         return;
     char png[1200], jpg[1200];
@@ -455,7 +456,8 @@ static void test_annotated_jpeg(void)
             for (int c = 0; c < 3; c++)
                 d += fabs((double)q[c] - r[c]) / 3;
             all += d;
-            if (q[0] == (yellow >> 16 & 255) && q[1] == (yellow >> 8 & 255) && q[2] == (yellow & 255))
+            uint32_t v = (uint32_t)q[0] << 16 | (uint32_t)q[1] << 8 | q[2];
+            if (v == yellow)
                 line += d, on_line++;
         }
         check_true(all / (double)n < 1.5, "D04: the JPEG is the PNG's picture (mean |difference| "
