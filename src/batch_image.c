@@ -61,6 +61,11 @@ static void remove_written(char paths[][4096], size_t n)
         remove(paths[i]);
 }
 
+/* The result files besides the annotated picture and the JSON, after
+ * "STEM." (written here, and named in the JSON). */
+#define LAYERS_FILE "layers.png"
+#define PLOT_FILE "contrast.svg"
+
 /* The result files' names, in the JSON (key "outputs"), so that the
  * catalogue and the run report link to them: the annotated picture's
  * extension follows the input's format. NULL when out of memory. */
@@ -70,9 +75,9 @@ static cJSON *add_outputs(cJSON *json, const char *stem, const char *annotated_e
     char name[600];
     snprintf(name, sizeof name, "%s.annotated.%s", stem, annotated_ext);
     int ok = o && cJSON_AddStringToObject(o, "annotated", name);
-    snprintf(name, sizeof name, "%s.layers.png", stem);
+    snprintf(name, sizeof name, "%s." LAYERS_FILE, stem);
     ok = ok && cJSON_AddStringToObject(o, "layers", name);
-    snprintf(name, sizeof name, "%s.contrast.svg", stem);
+    snprintf(name, sizeof name, "%s." PLOT_FILE, stem);
     ok = ok && cJSON_AddStringToObject(o, "contrast_plot", name);
     return ok ? json : NULL;
 }
@@ -109,10 +114,10 @@ static lam_status write_reports(lam_analysis *a, const char *dir, const char *st
         return st;
     }
     threaded = run_beside(threads, write_annotated_thread, &aj, &t);
-    snprintf(done[written], sizeof done[written], "%s/%s.layers.png", dir, stem);
+    snprintf(done[written], sizeof done[written], "%s/%s." LAYERS_FILE, dir, stem);
     if (!(st = lam_report_write_layers(a, done[written], err)))
         written++;
-    snprintf(done[written], sizeof done[written], "%s/%s.contrast.svg", dir, stem);
+    snprintf(done[written], sizeof done[written], "%s/%s." PLOT_FILE, dir, stem);
     if (!st && !(st = lam_report_write_svg(a, done[written], err)))
         written++;
     if (threaded)

@@ -344,9 +344,8 @@ static lam_status crop_images(crop_job *j, lam_error *err)
         j->images = images;
         lam_parallel_each(m, lam_parallel_default(), crop_image, j);
     }
-    for (size_t i = 0; i < m && !st; i++)
-        if ((st = j->st[i]) && err)
-            *err = j->err[i];
+    if (!st)
+        st = lam_error_first(j->st, j->err, m, err);
     free(images);
     free(j->st);
     free(j->err);

@@ -161,6 +161,18 @@ void lam_error_set_file(lam_error *err, const char *file)
     snprintf(err->file, sizeof err->file, "%s", file);
 }
 
+lam_status lam_error_first(const lam_status *st, const lam_error *errs, size_t n,
+                           lam_error *err)
+{
+    for (size_t i = 0; i < n; i++)
+        if (st[i]) {
+            if (err)
+                *err = errs[i];
+            return st[i];
+        }
+    return LAM_OK;
+}
+
 void lam_error_init_gsl(void)
 {
     gsl_set_error_handler_off();

@@ -214,9 +214,7 @@ static lam_status model_ladders(lam_model_point p, lam_model *model, const grid 
         return out;
     ladder_job x = {p, g, models, L, st, errs};
     lam_parallel_for(g->n, slices, ladder_steps, &x);
-    for (size_t k = 0; k < slices && !out; k++)
-        if ((out = st[k]))
-            *err = errs[k];
+    out = lam_error_first(st, errs, slices, err);
     lam_model_clones_free(models, slices);
     return out;
 }

@@ -263,10 +263,7 @@ lam_status lam_fermi_table_build(const lam_estimate *e, size_t j, lam_model *con
     }
     fermi_job job = {e, j, models, t, st, errs};
     lam_parallel_for(t->count, count, fermi_points, &job);
-    lam_status out = LAM_OK;
-    for (size_t k = 0; k < count && !out; k++)
-        if ((out = st[k]))
-            *err = errs[k];
+    lam_status out = lam_error_first(st, errs, count, err);
     free(st);
     free(errs);
     return out;

@@ -55,10 +55,16 @@ static void compress_rows(struct jpeg_compress_struct *c, const jw_source *s, si
     jpeg_finish_compress(c);
 }
 
+/* A size a baseline JPEG's frame header can hold (16-bit, libjpeg's limit). */
+static int size_ok(size_t width, size_t height)
+{
+    return width > 0 && height > 0 && width <= 65500 && height <= 65500;
+}
+
 static lam_status save(const char *path, const jw_source *s, size_t width, size_t height,
                        int quality, lam_error *err)
 {
-    if (width == 0 || height == 0 || width > 65500 || height > 65500)
+    if (!size_ok(width, height))
         return lam_error_set(err, LAM_EINVAL, "cannot write a %zux%zu JPEG", width, height);
     lam_outfile of;
     lam_status st = lam_outfile_open(&of, path, err);
@@ -238,7 +244,7 @@ static int put_headers(FILE *fp, band_code *b, size_t height)
 static lam_status save_bands(const char *path, const jw_source *s, size_t width, size_t height,
                              int quality, lam_error *err)
 {
-    if (width == 0 || height == 0 || width > 65500 || height > 65500)
+    if (!size_ok(width, height))
         return lam_error_set(err, LAM_EINVAL, "cannot write a %zux%zu JPEG", width, height);
     size_t band_rows = BAND_MCU_ROWS * BLOCK_ROWS, n = (height + band_rows - 1) / band_rows;
     band_job j = {s, width, height, quality, calloc(n, sizeof(band_code))};

@@ -179,9 +179,7 @@ static lam_status films_run(films_job *j, lam_model *m, size_t n, size_t threads
     if (st)
         return st;
     lam_parallel_each_worker(n, workers, films_item, j);
-    for (size_t k = 0; k < n && !st; k++)
-        if ((st = j->st[k]) && err)
-            *err = j->err[k];
+    st = lam_error_first(j->st, j->err, n, err);
     lam_model_clones_free(j->model, workers);
     return st;
 }

@@ -184,9 +184,7 @@ static lam_status profile_many(profile_ctx *x, const double *ox, const double *s
     }
     profile_job job = {x, ox + first, sd + first, pt + first, sts, errs};
     lam_parallel_each_worker(n - first, x->workers, profile_item, &job);
-    for (size_t i = 0; i < n - first && !st; i++)
-        if ((st = sts[i]) && err)
-            *err = errs[i];
+    st = lam_error_first(sts, errs, n - first, err);
     free(sts);
     free(errs);
     return st;

@@ -61,6 +61,12 @@ lam_status lam_error_prefix(lam_error *err, lam_status status, const char *fmt, 
 /* Record the file a failure concerns, unless one is already recorded. */
 void lam_error_set_file(lam_error *err, const char *file);
 
+/* The first failure of n items done apart (on several threads, each into
+ * st[i] and errs[i]), in item order: its status, its error copied to err
+ * (err may be NULL); LAM_OK when every item succeeded. */
+lam_status lam_error_first(const lam_status *st, const lam_error *errs, size_t n,
+                           lam_error *err);
+
 /* Checks of a value against its allowed set. Each returns LAM_OK, or
  * LAM_ERANGE with a message that starts with 'name' (e.g. "key fermi_eV",
  * "--oxide", "oxide thickness"), so a message is written once, where the
