@@ -295,7 +295,7 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
 #define FIT_MIN_IMAGE_SHARE 2e-5
 
 lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads,
-                                lam_error *err)
+                                int edge_areas, lam_error *err)
 {
     a->count = a->seg->count;
     double least = FIT_MIN_IMAGE_SHARE * (double)(a->width * a->height);
@@ -305,7 +305,7 @@ lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contras
         if ((double)a->seg->regions[i].interior < least)
             a->measured[i].use = 0;
     }
-    return lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err);
+    return edge_areas ? lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err) : LAM_OK;
 }
 
 #define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */
@@ -377,7 +377,10 @@ static lam_status segment_stage(lam__run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    if ((st = lam__measure_regions(a, &r->contrast, r->threads, err)))
+    /* without the edge areas: they only set the size flags, and both
+     * crystal paths join the flakes (join_stage, lamina/thickness.h) and
+     * take them then; what decides a join does not read them */
+    if ((st = lam__measure_regions(a, &r->contrast, r->threads, 0, err)))
         return st;
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
@@ -648,7 +651,7 @@ static lam_status join_stage(lam__run *r, const lam_est_view *v, const lam_fermi
     free(map);
     if (st)
         return st;
-    if ((st = lam__measure_regions(a, &r->contrast, r->threads, err)))
+    if ((st = lam__measure_regions(a, &r->contrast, r->threads, 1, err)))
         return st;
     infer_all(r, v, ft, vr, 1);
     return LAM_OK;
