@@ -22,7 +22,9 @@ typedef void (*lam_slice_fn)(size_t begin, size_t end, size_t slice, void *ctx);
 size_t lam_parallel_slices(size_t count, size_t threads);
 
 /* Run fn over [0, count) in min(threads, count, LAM_MAX_THREADS) slices of
- * near-equal size, slice 0 on the calling thread; returns when all are
+ * near-equal size (slice t: [count t / n, count (t + 1) / n) of n; the same
+ * count and threads give the same slices, so two loops can share per-slice
+ * state), slice 0 on the calling thread; returns when all are
  * done. No errors: a thread that cannot be started runs its slice here. */
 void lam_parallel_for(size_t count, size_t threads, lam_slice_fn fn, void *ctx);
 
