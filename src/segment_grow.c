@@ -13,7 +13,6 @@
 #include <string.h>
 
 #define PROVISIONAL 1      /* class of a pixel that may join a region */
-#define SAMPLE_STRIDE 7    /* every 7th pixel estimates the neighbour noise */
 #define SUBSTRATE_FRACTION 0.3 /* of the prior's monolayer contrast */
 #define SUBSTRATE_MIN 0.003    /* ... but at least this contrast */
 #define EDGE_STEP_FRACTION 0.3 /* a change across two pixels that marks an edge */
@@ -149,221 +148,6 @@ static lam_status mark_edges(edge_ctx *e, size_t threads, lam_error *err)
 {
     lam_parallel_for(e->img->height, threads, mark_rows, e);
     return e->failed ? lam_error_set(err, LAM_ENOMEM, "cannot allocate the edge rows") : LAM_OK;
-}
-
-/* Order statistics of non-negative floats by their bit patterns, which
- * order like the values: the k-th smallest (0-based), as a full sort
- * would place it, is found exactly in linear time from two 16-bit
- * histograms, of the high halves and then of the low halves within the
- * chosen high bin. */
-#define HALF_BINS 65536
-
-/* The bin of hist holding the k-th value (k below the total count: the
- * float halves' HALF_BINS or the step differences' STEP_BINS), given
- * *below values before the first bin; *below becomes those before it. */
-static uint32_t bin_of(const uint32_t *hist, size_t k, size_t *below)
-{
-    uint32_t bin = 0;
-    while (*below + hist[bin] <= k)
-        *below += hist[bin++];
-    return bin;
-}
-
-static float from_halves(uint32_t hi, uint32_t lo)
-{
-    uint32_t bits = hi << 16 | lo;
-    float out;
-    memcpy(&out, &bits, sizeof out);
-    return out;
-}
-
-static uint32_t bits_of(float v)
-{
-    uint32_t b;
-    memcpy(&b, &v, sizeof b);
-    return b;
-}
-
-/* The k-th smallest of m non-negative floats; 'hist' holds HALF_BINS counts. */
-static float select_nonneg(const float *v, size_t m, size_t k, uint32_t *hist)
-{
-    size_t below = 0;
-    memset(hist, 0, HALF_BINS * sizeof *hist);
-    for (size_t i = 0; i < m; i++)
-        hist[bits_of(v[i]) >> 16]++;
-    uint32_t hi = bin_of(hist, k, &below);
-    memset(hist, 0, HALF_BINS * sizeof *hist);
-    for (size_t i = 0; i < m; i++)
-        if (bits_of(v[i]) >> 16 == hi)
-            hist[bits_of(v[i]) & 0xffff]++;
-    return from_halves(hi, bin_of(hist, k, &below));
-}
-
-/* Statistics of horizontal pixel differences at a lag, per channel, over
- * pairs of pixels near zero contrast (the bare substrate: no flake edges
- * there), from every SAMPLE_STRIDE-th pixel: the robust sigma (1.4826 x
- * median |d|) and the 95th percentile of |d|. The percentile sees what the
- * sigma does not: JPEG block steps and demosaicing artefacts, rare but
- * they must not split a region. Measured, so no model of the noise.
- *
- * The map holds whole steps of 1 / LAM_CONTRAST_UNIT, and its values and
- * their differences are exact in float, so a difference is a whole number
- * of steps (0..65535): one histogram of steps per lag and channel, in one
- * pass without storing the samples (at 12 MP they were 41 MB of fresh
- * memory for 6 numbers), gives the same order statistics as a sort. */
-typedef struct diff_stats {
-    double sigma[3], p95[3];
-} diff_stats;
-
-#define STEP_BINS 65536 /* every difference of two map values, in steps */
-
-/* The map values near zero contrast, per channel: steps lo..hi (empty when
- * lo > hi). |contrast| grows both ways from step LAM_CONTRAST_UNIT (zero
- * contrast), so the steps that pass the test |contrast| <= zero[c] form
- * one interval; it is found with that same test (near_band). */
-typedef struct zero_band {
-    uint32_t lo[3], hi[3];
-} zero_band;
-
-static zero_band near_band(const double *zero)
-{
-    zero_band z;
-    for (size_t c = 0; c < 3; c++) {
-        z.lo[c] = 1, z.hi[c] = 0;
-        for (uint32_t q = 0; q < STEP_BINS; q++)
-            if (!(fabsf(lam_contrast_of((uint16_t)q)) > zero[c])) {
-                if (z.lo[c] > z.hi[c])
-                    z.lo[c] = q;
-                z.hi[c] = q;
-            }
-    }
-    return z;
-}
-
-static int near_zero(const lam_contrast_map *img, size_t channels, const zero_band *z, size_t k)
-{
-    for (size_t c = 0; c < channels; c++) {
-        uint32_t q = img->plane[c][k];
-        if (q < z->lo[c] || q > z->hi[c])
-            return 0;
-    }
-    return 1;
-}
-
-/* Counts of differences in steps: [lag][channel][STEP_BINS], and the
- * samples per lag. */
-typedef struct diff_hist {
-    size_t channels;
-    size_t m[2];
-    uint32_t *hist;
-} diff_hist;
-
-/* One sample: the differences across pixel k at 'lag' (lag l + 1) in every
- * channel, when both ends are near zero contrast and inside the row
- * (x = k % w). */
-static void sample_difference(const lam_contrast_map *img, const zero_band *z, size_t k, size_t x,
-                              size_t l, diff_hist *H)
-{
-    size_t w = img->width, lag = l + 1;
-    if (x < lag || x + lag >= w || !near_zero(img, H->channels, z, k - lag) ||
-        !near_zero(img, H->channels, z, k + lag))
-        return;
-    for (size_t c = 0; c < H->channels; c++) {
-        int32_t d = (int32_t)img->plane[c][k + lag] - img->plane[c][k - lag];
-        H->hist[(l * 3 + c) * STEP_BINS + (uint32_t)abs(d)]++;
-    }
-    H->m[l]++;
-}
-
-/* Both lags in one walk over samples j0..j1 - 1 (sample j at pixel
- * 1 + SAMPLE_STRIDE j; the lag-2 samples lie one pixel after the lag-1
- * samples, in the same cache lines). */
-static void sample_walk(const lam_contrast_map *img, const zero_band *z, size_t j0, size_t j1,
-                        diff_hist *H)
-{
-    size_t w = img->width, n = img->width * img->height, k = 1 + SAMPLE_STRIDE * j0;
-    size_t x = k % w; /* kept by steps instead of a division per sample */
-    for (size_t j = j0; j < j1; j++, k += SAMPLE_STRIDE) {
-        sample_difference(img, z, k, x, 0, H);
-        if (k + 1 + 2 < n) /* the lag-2 sample k + 1, x + 1 (possibly the next row) */
-            sample_difference(img, z, k + 1, x + 1 < w ? x + 1 : 0, 1, H);
-        for (x += SAMPLE_STRIDE; x >= w;)
-            x -= w;
-    }
-}
-
-/* All samples in slices of rows on the threads, each slice counting into
- * a histogram of its own; the counts are then added into H's (counts add
- * exactly: the same histograms as one walk). */
-typedef struct sample_job {
-    const lam_contrast_map *img;
-    const zero_band *z;
-    diff_hist *slice;
-} sample_job;
-
-static void sample_slices(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    sample_job *j = vctx;
-    sample_walk(j->img, j->z, begin, end, &j->slice[slice]);
-}
-
-#define DIFF_BINS (2 * 3 * STEP_BINS)
-
-static int sample_all(const lam_contrast_map *img, const zero_band *z, size_t threads,
-                      diff_hist *H)
-{
-    size_t n = img->width * img->height, count = n >= 3 ? (n - 3) / SAMPLE_STRIDE + 1 : 0;
-    size_t slices = lam_parallel_slices(count, threads);
-    diff_hist *S = calloc(slices, sizeof *S);
-    int ok = S != NULL;
-    for (size_t s = 0; ok && s < slices; s++) {
-        S[s] = *H;
-        S[s].hist = s ? calloc(DIFF_BINS, sizeof *S[s].hist) : H->hist;
-        ok = S[s].hist != NULL;
-    }
-    if (ok) {
-        sample_job job = {img, z, S};
-        lam_parallel_for(count, threads, sample_slices, &job);
-        for (size_t s = 1; s < slices; s++)
-            for (size_t b = 0; b < DIFF_BINS; b++)
-                H->hist[b] += S[s].hist[b];
-        for (size_t s = 0; s < slices; s++)
-            H->m[0] += S[s].m[0], H->m[1] += S[s].m[1];
-    }
-    for (size_t s = 1; S && s < slices; s++)
-        free(S[s].hist);
-    free(S);
-    return ok;
-}
-
-/* The rank of quantile q among m samples: the median, the 95th percentile. */
-static size_t rank_of(size_t q, size_t m)
-{
-    return q == 0 ? m / 2 : m * 95 / 100;
-}
-
-/* The k-th smallest difference (0-based) counted in hist, in contrast. */
-static float kth_difference(const uint32_t *hist, size_t k)
-{
-    size_t below = 0;
-    return (float)bin_of(hist, k, &below) * (1.0f / LAM_CONTRAST_UNIT);
-}
-
-static void difference_stats(const lam_contrast_map *img, size_t channels, const zero_band *z,
-                             size_t threads, diff_stats out[2])
-{
-    diff_hist H = {channels, {0, 0}, calloc(DIFF_BINS, sizeof(uint32_t))};
-    for (size_t l = 0; l < 2; l++)
-        for (size_t c = 0; c < 3; c++)
-            out[l].sigma[c] = out[l].p95[c] = 1e-3;
-    if (H.hist && sample_all(img, z, threads, &H))
-        for (size_t l = 0; l < 2; l++)
-            for (size_t c = 0; c < channels && H.m[l] > 20; c++) {
-                const uint32_t *hist = H.hist + (l * 3 + c) * STEP_BINS;
-                out[l].sigma[c] = fmax(1.4826 * kth_difference(hist, rank_of(0, H.m[l])), 1e-5);
-                out[l].p95[c] = fmax(kth_difference(hist, rank_of(1, H.m[l])), 1e-5);
-            }
-    free(H.hist);
 }
 
 /* ---- statistical region merging ----
@@ -1324,90 +1108,6 @@ static int at_zero(const lam_region_stats *r, size_t channels, const double *tol
     return 1;
 }
 
-/* The 90th percentile of differences between the means of adjacent 8 x 8
- * cells near zero contrast (the substrate), per channel: the image's own
- * low-frequency texture - flat-field residuals and, above all, JPEG block
- * steps - which two parts of one flake may differ by. */
-#define CELL 8
-
-/* One cell's mean per channel (NaN unless every pixel is near zero), from
- * the sum of its steps: a sum of the pixels' contrasts (1 - q / UNIT) in
- * double is exact, so this is the same number. */
-static void cell_mean(const lam_contrast_map *img, size_t channels, const zero_band *z, size_t cx,
-                      size_t cy, float *mean)
-{
-    size_t w = img->width;
-    uint32_t ok = 1;
-    for (size_t c = 0; c < 3; c++) {
-        if (c >= channels) {
-            mean[c] = 0;
-            continue;
-        }
-        const uint16_t *plane = img->plane[c];
-        uint32_t sum = 0, lo = z->lo[c], hi = z->hi[c];
-        for (size_t y = cy * CELL; y < (cy + 1) * CELL; y++)
-            for (size_t x = cx * CELL; x < (cx + 1) * CELL; x++) {
-                uint32_t q = plane[y * w + x];
-                sum += q;
-                ok &= (q >= lo) & (q <= hi);
-            }
-        mean[c] = (float)((CELL * CELL - sum / (double)LAM_CONTRAST_UNIT) / (CELL * CELL));
-    }
-    for (size_t c = 0; c < 3 && !ok; c++)
-        mean[c] = NAN;
-}
-
-typedef struct cell_job {
-    const lam_contrast_map *img;
-    size_t channels, cw;
-    const zero_band *z;
-    float *mean;
-} cell_job;
-
-static void cell_rows(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    (void)slice;
-    const cell_job *j = vctx;
-    for (size_t cy = begin; cy < end; cy++)
-        for (size_t cx = 0; cx < j->cw; cx++)
-            cell_mean(j->img, j->channels, j->z, cx, cy, &j->mean[(cy * j->cw + cx) * 3]);
-}
-
-static void cell_texture(const lam_contrast_map *img, size_t channels, const zero_band *z,
-                         size_t threads, double *out)
-{
-    size_t w = img->width, cw = w / CELL, ch = img->height / CELL, m = 0;
-    size_t cells = cw * ch > 0 ? cw * ch : 1;
-    float *mean = malloc(cells * 3 * sizeof *mean);
-    float *d = malloc((2 * cw * ch + 1) * sizeof *d);
-    for (size_t c = 0; c < 3; c++)
-        out[c] = 0;
-    if (!mean || !d) {
-        free(mean);
-        free(d);
-        return;
-    }
-    cell_job job = {img, channels, cw, z, mean};
-    lam_parallel_for(ch, threads, cell_rows, &job);
-    uint32_t *hist = malloc(HALF_BINS * sizeof *hist);
-    for (size_t c = 0; c < channels && hist; c++) {
-        m = 0;
-        for (size_t i = 0; i < cw * ch; i++) {
-            float a = mean[i * 3 + c], r = (i + 1) % cw ? mean[(i + 1) * 3 + c] : NAN;
-            float b = i + cw < cw * ch ? mean[(i + cw) * 3 + c] : NAN;
-            if (!isnan(a) && !isnan(r))
-                d[m++] = fabsf(a - r);
-            if (!isnan(a) && !isnan(b))
-                d[m++] = fabsf(a - b);
-        }
-        if (m > 20)
-            out[c] = select_nonneg(d, m, m * 9 / 10, hist);
-    }
-    free(hist);
-    free(mean);
-    free(d);
-}
-
 /* Per channel: an edge changes a channel by more than a third of a
  * monolayer step and by more than the channel's own artefacts (3 x the
  * 95th percentile of 2- and 4-pixel differences on the substrate); regions
@@ -1423,21 +1123,17 @@ static void thresholds(const lam_contrast_map *img, size_t channels, const doubl
         step1 = fmax(step1, fabs(c1[c]));
     for (size_t c = 0; c < 3; c++)
         zero[c] = fmax(SUBSTRATE_FRACTION * step1, noise[c]); /* ~3 sigma after denoising */
-    diff_stats d[2];
-    double cells[3];
-    zero_band z = near_band(zero);
-    difference_stats(img, channels, &z, threads, d);
-    cell_texture(img, channels, &z, threads, cells);
-    const diff_stats d1 = d[0], d2 = d[1];
+    lam__texture tx;
+    lam__substrate_texture(img, channels, zero, threads, &tx);
     for (size_t c = 0; c < 3; c++) {
         double step = c < channels ? fabs(c1[c]) : 0;
-        ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * d1.p95[c]);
-        ec->t4[c] = (float)fmax(1.5 * EDGE_STEP_FRACTION * step, 3 * d2.p95[c]);
+        ec->t2[c] = (float)fmax(EDGE_STEP_FRACTION * step, 3 * tx.p95[0][c]);
+        ec->t4[c] = (float)fmax(1.5 * EDGE_STEP_FRACTION * step, 3 * tx.p95[1][c]);
         ec->s2[c] = fixed_threshold(ec->t2[c]);
         ec->s4[c] = fixed_threshold(ec->t4[c]);
-        sigma[c] = d1.sigma[c] / 1.4142; /* a difference has twice the variance */
-        delta[c] = fmax(fmax(JOIN_STEP_FRACTION * step, 0.75 * d1.p95[c]), 1e-4);
-        delta[c] = fmax(delta[c], 1.5 * cells[c]);
+        sigma[c] = tx.sigma[0][c] / 1.4142; /* a difference has twice the variance */
+        delta[c] = fmax(fmax(JOIN_STEP_FRACTION * step, 0.75 * tx.p95[0][c]), 1e-4);
+        delta[c] = fmax(delta[c], 1.5 * tx.cells[c]);
     }
 }
 

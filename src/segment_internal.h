@@ -30,6 +30,28 @@ void lam__region_statistics_in(const lam_contrast_map *img, const uint8_t *cls,
                                const uint32_t *label, const uint8_t *depth, uint32_t l,
                                const size_t box[4], lam_region_stats *r);
 
+/* What the segmentation's thresholds are measured from (segment_noise.c),
+ * on the bare substrate: pixels whose contrast lies within zero[c] of 0 in
+ * every channel 0..channels-1. Per lag (index 0: across 2 pixels, 1:
+ * across 4) and channel, of the differences across every 7th pixel (and
+ * its neighbour, for lag 2) whose ends both lie on it: the robust sigma
+ * (1.4826 x median |d|) and the 95th percentile of |d|; the percentile
+ * sees what the sigma does not, JPEG block steps and demosaicing
+ * artefacts, rare but they must not split a region (1e-3 each with 20
+ * samples or fewer, 1e-5 at least). cells: the 90th percentile of the
+ * differences between adjacent 8 x 8 cells' means, both on it (0 with 20
+ * or fewer): the image's low-frequency texture, flat-field residuals and,
+ * above all, JPEG block steps, which two parts of one flake may differ
+ * by. Measured, so no model of the noise. On 'threads' threads, the same
+ * values for any count; out of memory, the defaults. */
+typedef struct lam__texture {
+    double sigma[2][3], p95[2][3];
+    double cells[3];
+} lam__texture;
+
+void lam__substrate_texture(const lam_contrast_map *img, size_t channels, const double zero[3],
+                            size_t threads, lam__texture *out);
+
 /* The root of a in a union-find forest of labels (parent[root] == root),
  * halving the path on the way. */
 uint32_t lam__label_root(uint32_t *parent, uint32_t a);
