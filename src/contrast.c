@@ -213,6 +213,10 @@ static uint16_t to_fixed(float contrast)
     return (uint16_t)(int)(s + 0.5f); /* the nearest step */
 }
 
+/* A vector loop: the clamps become selects (with -fno-trapping-math,
+ * Makefile). In scalar code, with a branch per clamp, this conversion of
+ * every sample took half the contrast stage of a 12 MP image. */
+LAM_VECTOR_CLONES
 static void to_fixed_run(const float *restrict from, uint16_t *restrict to, size_t m)
 {
     for (size_t i = 0; i < m; i++)
