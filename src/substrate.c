@@ -83,20 +83,24 @@ typedef struct tile_sums {
     size_t n, clip;
 } tile_sums;
 
-/* Row y's pixels x0..x1 - 1 into one tile's sums, pixel by pixel. */
+/* Row y's pixels x0..x1 - 1 into one tile's sums, pixel by pixel. The
+ * sums are carried in local variables (the same additions in the same
+ * order): kept in the struct, each addition went through memory, a store
+ * and a load in every step of six chains of dependent additions. */
 static void tile_add_row(const lam_image *img, size_t y, size_t x0, size_t x1, tile_sums *t)
 {
-    size_t w = img->width;
+    const float *r = img->plane[0] + y * img->width, *g = img->plane[1] + y * img->width,
+                *b = img->plane[2] + y * img->width;
+    double s0 = t->s[0], s1 = t->s[1], s2 = t->s[2], q0 = t->q[0], q1 = t->q[1], q2 = t->q[2];
     for (size_t x = x0; x < x1; x++) {
-        size_t k = y * w + x;
-        t->clip += (size_t)lam_image_clipped(img, x, y);
-        for (int c = 0; c < 3; c++) {
-            double v = img->plane[c][k];
-            t->s[c] += v;
-            t->q[c] += v * v;
-        }
-        t->n++;
+        double v0 = r[x], v1 = g[x], v2 = b[x];
+        s0 += v0, s1 += v1, s2 += v2;
+        q0 += v0 * v0, q1 += v1 * v1, q2 += v2 * v2;
     }
+    t->s[0] = s0, t->s[1] = s1, t->s[2] = s2, t->q[0] = q0, t->q[1] = q1, t->q[2] = q2;
+    t->n += x1 - x0;
+    for (size_t x = x0; img->clipped_count && x < x1; x++)
+        t->clip += (size_t)lam_image_clipped(img, x, y);
 }
 
 /* A tile's statistics from its sums. */
