@@ -66,88 +66,158 @@ static size_t run_end(const uint32_t *row, size_t x, size_t w)
 }
 
 /* City-block distance of each labelled pixel to the nearest pixel of
- * another label (or none) or outside the image, capped at 255: 1 on a
- * region's boundary, 0 off regions. The L1 distance transform separates
- * (exactly, not as an approximation): along each row the distance to the
- * ends of the pixel's run; then down and up each column, where a pixel
- * is one more than its neighbour of the same label, or 1 next to another
- * label. Rows, then bands of columns, run on the threads. */
-#define DEPTH_COLUMNS 64 /* columns per item of the column passes */
+ * another label (or none) or outside the image, counted to
+ * LAM_DEPTH_CAP: 1 on a region's boundary, 0 off regions. The L1 distance
+ * separates: it is the least, over the rows y + dy, of |dy| plus the
+ * distance along that row to a pixel not of the centre's label (0 when
+ * the pixel below or above is not of it). Rows LAM_DEPTH_CAP or more away
+ * cannot give less than the cap, and along a row the distance counted to
+ * the cap needs only the pixel's DEPTH_REACH neighbours each side. So each
+ * row of depths comes from 2 DEPTH_REACH + 1 rows of labels and of their
+ * along-row distances, which a slice keeps in a ring: vector loops over
+ * rows, where the exact transform took a pass along every row's runs and
+ * two down and up every column (6 % of a 12 MP image's time). */
+#define DEPTH_REACH (LAM_DEPTH_CAP - 1)
+#define DEPTH_RING (2 * DEPTH_REACH + 1)
+#if DEPTH_REACH != 3
+#error "along_row and depth_row are written out for three rows and pixels each side"
+#endif
 
 typedef struct depth_ctx {
     const uint32_t *lab;
     uint8_t *d;
+    uint8_t *ring; /* per slice: DEPTH_RING rows of along-row distances, then a row of 0 */
     size_t w, h;
 } depth_ctx;
 
-/* A run of n pixels of one region along a row: each its distance to the
- * nearer end, counting the end pixel as 1, capped at 255. */
-static void run_depths(uint8_t *d, size_t n)
+/* The along-row distance of pixel x counted to the cap: 1 + how many of
+ * its neighbours on the nearer-ending side, up to DEPTH_REACH, are of its
+ * label without a break (the row's ends count as other labels). */
+static uint8_t along_one(const uint32_t *row, size_t w, size_t x)
 {
-    for (size_t i = 0; i < n; i++) {
-        size_t v = i + 1 < n - i ? i + 1 : n - i;
-        d[i] = (uint8_t)(v > 255 ? 255 : v);
+    unsigned left = 1, right = 1, on_l = 1, on_r = 1;
+    for (size_t j = 1; j <= DEPTH_REACH; j++) {
+        on_l &= x >= j && row[x - j] == row[x];
+        on_r &= x + j < w && row[x + j] == row[x];
+        left += on_l, right += on_r;
     }
+    return (uint8_t)(left < right ? left : right);
 }
 
-static void depth_rows(size_t begin, size_t end, size_t slice, void *vctx)
-{
-    (void)slice;
-    const depth_ctx *c = vctx;
-    for (size_t y = begin; y < end; y++) {
-        const uint32_t *row = c->lab + y * c->w;
-        uint8_t *dr = c->d + y * c->w;
-        for (size_t x0 = 0, x1; x0 < c->w; x0 = x1) {
-            x1 = run_end(row, x0, c->w);
-            if (row[x0])
-                run_depths(dr + x0, x1 - x0);
-            else
-                memset(dr + x0, 0, x1 - x0);
-        }
-    }
-}
-
-/* One step of a column pass: row y from its neighbour row yn (NULL at the
- * image's edge), over columns [x0, x1). */
+/* The same for a whole row; the pixels DEPTH_REACH or more from its ends
+ * without a bound test (a vector loop). */
 LAM_VECTOR_CLONES
-static void depth_step(const depth_ctx *c, size_t y, const uint32_t *nlab, const uint8_t *nd,
-                       size_t x0, size_t x1)
+static void along_row(const uint32_t *restrict row, size_t w, uint8_t *restrict out)
 {
-    const uint32_t *restrict row = c->lab + y * c->w;
-    uint8_t *restrict dr = c->d + y * c->w;
-    if (!nlab) { /* the image's edge: every labelled pixel is 1 deep at most */
-        for (size_t x = x0; x < x1; x++)
-            dr[x] = dr[x] < 1 ? dr[x] : 1; /* 0 stays 0: off regions */
-        return;
+    size_t inner = w > 2 * DEPTH_REACH ? w - 2 * DEPTH_REACH : 0; /* pixels clear of both ends */
+    const uint32_t *restrict c = row + DEPTH_REACH;
+    uint8_t *restrict o = out + DEPTH_REACH;
+    for (size_t i = 0; i < inner; i++) { /* DEPTH_REACH 3, written out */
+        uint32_t l = c[i];
+        unsigned l1 = c[i - 1] == l, l2 = l1 & (c[i - 2] == l), l3 = l2 & (c[i - 3] == l);
+        unsigned r1 = c[i + 1] == l, r2 = r1 & (c[i + 2] == l), r3 = r2 & (c[i + 3] == l);
+        unsigned left = 1 + l1 + l2 + l3, right = 1 + r1 + r2 + r3;
+        o[i] = (uint8_t)(left < right ? left : right);
     }
-    /* off regions dr is 0 and stays so under the minimum: no test for them,
-     * and no branch, so that the loop runs on vector units */
-    for (size_t x = x0; x < x1; x++) {
-        unsigned v = nlab[x] != row[x] ? 1u : nd[x] + 1u;
-        dr[x] = (uint8_t)(v < dr[x] ? v : dr[x]);
+    for (size_t x = 0; x < w && x < DEPTH_REACH; x++)
+        out[x] = along_one(row, w, x);
+    for (size_t x = DEPTH_REACH + inner; x < w; x++)
+        out[x] = along_one(row, w, x);
+}
+
+/* One term of a pixel's depth: the row dy away (its labels lab, its
+ * along-row distances al) gives dy plus its along-row distance when it is
+ * of label l there, else dy. */
+static inline unsigned depth_term(unsigned dy, uint32_t lab, uint8_t al, uint32_t l)
+{
+    return dy + (lab == l ? al : 0u);
+}
+
+/* Row y's depths from the rows around it: lab[i] and al[i] are row y + i
+ * - DEPTH_REACH's labels and along-row distances (a row beyond the image:
+ * any labels, distances 0, so its term is dy alone). */
+LAM_VECTOR_CLONES
+static void depth_row(const uint32_t *const lab[DEPTH_RING], const uint8_t *const al[DEPTH_RING],
+                      size_t w, uint8_t *restrict out)
+{
+    const uint32_t *restrict c = lab[DEPTH_REACH];
+    const uint32_t *restrict u1 = lab[2], *restrict u2 = lab[1], *restrict u3 = lab[0];
+    const uint32_t *restrict d1 = lab[4], *restrict d2 = lab[5], *restrict d3 = lab[6];
+    const uint8_t *restrict ac = al[DEPTH_REACH];
+    const uint8_t *restrict au1 = al[2], *restrict au2 = al[1], *restrict au3 = al[0];
+    const uint8_t *restrict ad1 = al[4], *restrict ad2 = al[5], *restrict ad3 = al[6];
+    for (size_t x = 0; x < w; x++) {
+        uint32_t l = c[x];
+        unsigned d = ac[x], t;
+        t = depth_term(1, u1[x], au1[x], l), d = t < d ? t : d;
+        t = depth_term(1, d1[x], ad1[x], l), d = t < d ? t : d;
+        t = depth_term(2, u2[x], au2[x], l), d = t < d ? t : d;
+        t = depth_term(2, d2[x], ad2[x], l), d = t < d ? t : d;
+        t = depth_term(3, u3[x], au3[x], l), d = t < d ? t : d;
+        t = depth_term(3, d3[x], ad3[x], l), d = t < d ? t : d;
+        out[x] = (uint8_t)(l ? d : 0u);
     }
 }
 
-static void depth_columns(size_t begin, size_t end, size_t slice, void *vctx)
+/* The rows of a view of the label map (w x h pixels from lab, rows
+ * 'stride' apart; its outside counts as other labels) one after the
+ * other: a ring of DEPTH_RING rows of along-row distances (w each), then
+ * a row of zeros (the along-row distances of rows beyond the view). */
+typedef struct depth_view {
+    const uint32_t *lab;
+    size_t stride, w, h;
+    uint8_t *ring;
+} depth_view;
+
+/* Start at row y0: the along-row distances of the rows above it and of
+ * those below it but the last of its window. */
+static void view_start(const depth_view *v, size_t y0)
 {
-    (void)slice;
+    memset(v->ring + DEPTH_RING * v->w, 0, v->w);
+    for (size_t y = y0 > DEPTH_REACH ? y0 - DEPTH_REACH : 0; y < y0 + DEPTH_REACH && y < v->h; y++)
+        along_row(v->lab + y * v->stride, v->w, v->ring + (y % DEPTH_RING) * v->w);
+}
+
+/* Row y's depths into out (w): the row entering the window first. Rows
+ * are taken in order from the row view_start began at. */
+static void view_row(const depth_view *v, size_t y, uint8_t *out)
+{
+    size_t w = v->w;
+    if (y + DEPTH_REACH < v->h)
+        along_row(v->lab + (y + DEPTH_REACH) * v->stride, w,
+                  v->ring + ((y + DEPTH_REACH) % DEPTH_RING) * w);
+    const uint32_t *lab[DEPTH_RING];
+    const uint8_t *al[DEPTH_RING];
+    for (size_t i = 0; i < DEPTH_RING; i++) {
+        size_t r = y + i; /* row r - DEPTH_REACH */
+        int inside = r >= DEPTH_REACH && r - DEPTH_REACH < v->h;
+        lab[i] = inside ? v->lab + (r - DEPTH_REACH) * v->stride : v->lab + y * v->stride;
+        al[i] = inside ? v->ring + ((r - DEPTH_REACH) % DEPTH_RING) * w : v->ring + DEPTH_RING * w;
+    }
+    depth_row(lab, al, w, out);
+}
+
+static void depth_rows(size_t y0, size_t y1, size_t slice, void *vctx)
+{
     const depth_ctx *c = vctx;
-    size_t x0 = begin * DEPTH_COLUMNS, x1 = end * DEPTH_COLUMNS < c->w ? end * DEPTH_COLUMNS : c->w;
-    for (size_t y = 0; y < c->h; y++)
-        depth_step(c, y, y ? c->lab + (y - 1) * c->w : NULL, c->d + (y ? y - 1 : 0) * c->w, x0, x1);
-    for (size_t y = c->h; y-- > 0;)
-        depth_step(c, y, y + 1 < c->h ? c->lab + (y + 1) * c->w : NULL,
-                   c->d + (y + 1 < c->h ? y + 1 : y) * c->w, x0, x1);
+    depth_view v = {c->lab, c->w, c->w, c->h, c->ring + slice * (DEPTH_RING + 1) * c->w};
+    view_start(&v, y0);
+    for (size_t y = y0; y < y1; y++)
+        view_row(&v, y, c->d + y * c->w);
 }
 
 uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h, size_t threads)
 {
-    uint8_t *d = lam_big_malloc(w * h);
-    if (!d)
+    size_t slices = lam_parallel_slices(h, threads);
+    uint8_t *d = lam_big_malloc(w * h), *ring = malloc(slices * (DEPTH_RING + 1) * w);
+    if (!d || !ring) {
+        free(d);
+        free(ring);
         return NULL;
-    depth_ctx c = {lab, d, w, h};
+    }
+    depth_ctx c = {lab, d, ring, w, h};
     lam_parallel_for(h, threads, depth_rows, &c);
-    lam_parallel_for((w + DEPTH_COLUMNS - 1) / DEPTH_COLUMNS, threads, depth_columns, &c);
+    free(ring);
     return d;
 }
 
@@ -156,66 +226,46 @@ uint8_t *lam__boundary_depth(const uint32_t *lab, size_t w, size_t h, size_t thr
  * which lie within box (x0, y0, x1, y1 inclusive): only its pixels are
  * read and written, so regions can be measured side by side into one
  * depth map. A pixel's depth depends on its own region's pixels alone
- * (the distance to the nearest pixel not in it), so it is the value the
- * whole-image passes give. */
-/* Row y of the box in region l's scratch g (the box's width): each pixel
- * of l its distance along the row to the nearest pixel that is not l
- * (the pixels beside the box are not: the box holds all of l), capped at
- * 255; 0 elsewhere. */
-static void region_row(const uint32_t *restrict row, size_t n, uint32_t l, uint8_t *restrict g)
-{
-    for (size_t x0 = 0, x1; x0 < n; x0 = x1) {
-        x1 = x0 + 1;
-        while (x1 < n && (row[x1] == l) == (row[x0] == l))
-            x1++;
-        if (row[x0] == l)
-            run_depths(g + x0, x1 - x0);
-        else
-            memset(g + x0, 0, x1 - x0);
-    }
-}
-
-/* One step of a column pass in the scratch: a pixel is at most one deeper
- * than its neighbour in the row before (0 off the region, which a minimum
- * keeps 0: no branch, so the loop runs on vector units). */
-LAM_VECTOR_CLONES
-static void region_step(uint8_t *restrict g, const uint8_t *restrict before, size_t n)
-{
-    for (size_t x = 0; x < n; x++) {
-        unsigned v = before[x] + 1u;
-        g[x] = (uint8_t)(v < g[x] ? v : g[x]);
-    }
-}
-
-/* The separable passes of lam__boundary_depth over region l alone, in a
- * scratch copy of its box where every other pixel is 0 (and the rows
- * beyond the box count as 0: they hold no pixel of l); then the depths of
- * l's pixels, and only theirs, into depth. */
+ * (the distance to the nearest pixel not in it), so the whole map's rows
+ * taken over the box alone (a view whose outside holds no pixel of l)
+ * give it the same value. */
 int lam__region_depth(const uint32_t *lab, size_t w, uint32_t l, const size_t box[4],
                       uint8_t *depth)
 {
     size_t bw = box[2] - box[0] + 1, bh = box[3] - box[1] + 1;
-    uint8_t *g = malloc(bw * bh + bw);
-    if (!g)
+    uint8_t *ring = malloc((DEPTH_RING + 2) * bw), *out = ring + (DEPTH_RING + 1) * bw;
+    if (!ring)
         return -1;
-    uint8_t *zero = g + bw * bh; /* the row beyond either end of the box */
-    memset(zero, 0, bw);
-    for (size_t y = 0; y < bh; y++)
-        region_row(lab + (box[1] + y) * w + box[0], bw, l, g + y * bw);
-    for (size_t y = 0; y < bh; y++)
-        region_step(g + y * bw, y ? g + (y - 1) * bw : zero, bw);
-    for (size_t y = bh; y-- > 0;)
-        region_step(g + y * bw, y + 1 < bh ? g + (y + 1) * bw : zero, bw);
+    depth_view v = {lab + box[1] * w + box[0], w, bw, bh, ring};
+    view_start(&v, 0);
     for (size_t y = 0; y < bh; y++) {
-        const uint32_t *row = lab + (box[1] + y) * w + box[0];
+        view_row(&v, y, out);
+        const uint32_t *row = v.lab + y * w;
         uint8_t *dr = depth + (box[1] + y) * w + box[0];
-        const uint8_t *gr = g + y * bw;
         for (size_t x = 0; x < bw; x++)
             if (row[x] == l)
-                dr[x] = gr[x];
+                dr[x] = out[x];
     }
-    free(g);
+    free(ring);
     return 0;
+}
+
+/* The interior sums of run_channel over n pixels without a saturated
+ * one: no branch, a vector loop (|v| < 2^16, so v * v fits 32 bits). */
+LAM_VECTOR_CLONES
+static void interior_sums(const uint16_t *restrict q, const uint8_t *restrict depth, size_t n,
+                          int64_t *sum, uint64_t *sumsq)
+{
+    int64_t a = 0;
+    uint64_t b = 0;
+    for (size_t i = 0; i < n; i++) {
+        int32_t in = -(int32_t)(depth[i] >= LAM_INTERIOR_DEPTH); /* all ones inside */
+        int32_t v = ((int32_t)LAM_CONTRAST_UNIT - q[i]) & in;
+        a += v;
+        b += (uint32_t)(v * v);
+    }
+    *sum = a;
+    *sumsq = b;
 }
 
 /* The interior sums of channel c over pixels k0..k1 - 1 of row y (those
@@ -236,7 +286,9 @@ static void run_channel(const lam_contrast_map *img, const uint8_t *depth, size_
     size_t row = y * img->width;
     int64_t a = 0;
     uint64_t b = 0;
-    for (size_t k = k0; k < k1; k++) {
+    if (!img->clipped_count)
+        interior_sums(plane + k0, depth + k0, k1 - k0, &a, &b);
+    for (size_t k = k0; img->clipped_count && k < k1; k++) {
         int in = depth[k] >= LAM_INTERIOR_DEPTH && !lam_contrast_clipped(img, k - row, y);
         int64_t v = in ? (int64_t)LAM_CONTRAST_UNIT - plane[k] : 0;
         a += v;
@@ -244,6 +296,21 @@ static void run_channel(const lam_contrast_map *img, const uint8_t *depth, size_
     }
     *sum += (double)a * (1.0 / LAM_CONTRAST_UNIT);
     *sumsq += (double)b * (1.0 / ((double)LAM_CONTRAST_UNIT * LAM_CONTRAST_UNIT));
+}
+
+/* The deepest of n depths (at least *deepest) and how many are interior,
+ * without a branch (a run without a saturated pixel). */
+LAM_VECTOR_CLONES
+static void run_depth(const uint8_t *restrict depth, size_t n, unsigned *deepest, size_t *deep)
+{
+    uint8_t most = (uint8_t)*deepest;
+    uint32_t count = 0;
+    for (size_t i = 0; i < n; i++) {
+        most = depth[i] > most ? depth[i] : most;
+        count += depth[i] >= LAM_INTERIOR_DEPTH;
+    }
+    *deepest = most;
+    *deep = count;
 }
 
 /* One run of pixels x0..x1-1 of row y with label l: area, box, centroid
@@ -266,7 +333,9 @@ static void run_statistics(const lam_contrast_map *img, const uint8_t *cls, cons
         r->touches_border = 1;
     unsigned deepest = r->depth_max;
     size_t deep = 0, clipped = 0;
-    for (size_t k = k0 + x0; k < k0 + x1; k++) {
+    if (!img->clipped_count)
+        run_depth(depth + k0 + x0, len, &deepest, &deep);
+    for (size_t k = k0 + x0; img->clipped_count && k < k0 + x1; k++) {
         deepest = depth[k] > deepest ? depth[k] : deepest;
         if (depth[k] >= LAM_INTERIOR_DEPTH) {
             deep++;

@@ -8,8 +8,8 @@
 #include <math.h>
 
 /* City-block distance to the region boundary per pixel (1 on it, 0 off
- * regions, capped at 255), on the given threads (the same values for
- * any count); malloc'd, NULL when out of memory. */
+ * regions, counted to LAM_DEPTH_CAP), on the given threads (the same
+ * values for any count); malloc'd, NULL when out of memory. */
 uint8_t *lam__boundary_depth(const uint32_t *label, size_t width, size_t height,
                              size_t threads);
 

@@ -706,11 +706,11 @@ static void border_pockets_stay_out(void)
 
 /* lam__region_depth against its definition: each pixel of region l gets
  * the city-block distance to the nearest pixel not in l or outside the
- * map, capped at 255 (found here by brute force), and no other pixel is
- * written. Random maps of overlapping rectangles (regions of several
- * parts and holes), every label alone; then a region over 510 px wide,
- * where the cap shows, against lam__boundary_depth (the whole map's
- * passes: another way to the same values). */
+ * map, counted to LAM_DEPTH_CAP (found here by brute force), and no other
+ * pixel is written. Random maps of overlapping rectangles (regions of
+ * several parts and holes), every label alone; then a large region
+ * against lam__boundary_depth (the whole map's rows: another way to the
+ * same values). */
 static unsigned brute_depth(const uint32_t *lab, size_t w, size_t h, size_t x, size_t y)
 {
     uint32_t l = lab[y * w + x];
@@ -724,7 +724,7 @@ static unsigned brute_depth(const uint32_t *lab, size_t w, size_t h, size_t x, s
                 size_t d = (u > x ? u - x : x - u) + (v > y ? v - y : y - v);
                 best = d < best ? d : best;
             }
-    return best > 255 ? 255 : (unsigned)best;
+    return best > LAM_DEPTH_CAP ? LAM_DEPTH_CAP : (unsigned)best;
 }
 
 static void region_box(const uint32_t *lab, size_t w, size_t h, uint32_t l, size_t box[4])
@@ -762,6 +762,40 @@ static size_t depth_errors(const uint32_t *lab, size_t w, size_t h, uint32_t reg
     return wrong + !d;
 }
 
+/* lam__boundary_depth against the same definition, pixel by pixel (0 off
+ * regions): random maps of several sizes, down to narrower and lower than
+ * the rows and pixels a depth looks at, 1-3 threads (slices whose rows
+ * look into their neighbours'). */
+static void boundary_depth_matches_definition(void)
+{
+    static const size_t size[][2] = {{EW, EH}, {31, 17}, {7, 5}, {5, 9}, {1, 12}, {12, 1}, {2, 2}};
+    uint32_t *lab = calloc(EW * EH, sizeof *lab);
+    unsigned long st = 777;
+    size_t wrong = 0, checked = 0;
+    for (size_t i = 0; lab && i < sizeof size / sizeof size[0]; i++)
+        for (int trial = 0; trial < 4; trial++) {
+            size_t w = size[i][0], h = size[i][1];
+            for (size_t k = 0; k < w * h; k++) /* specks and runs: labels 0..3 */
+                lab[k] = trial % 2 && k && edge_rand(&st) % 4 ? lab[k - 1]
+                                                                : (uint32_t)(edge_rand(&st) % 4);
+            if (trial >= 2 && w * h > 1)
+                random_labels(lab, w, h, 6, 1, w, h, 3, &st);
+            for (size_t threads = 1; threads <= 3; threads++) {
+                uint8_t *d = lam__boundary_depth(lab, w, h, threads);
+                wrong += !d;
+                for (size_t k = 0; d && k < w * h; k++) {
+                    unsigned want = lab[k] ? brute_depth(lab, w, h, k % w, k / w) : 0;
+                    wrong += d[k] != want;
+                    checked++;
+                }
+                free(d);
+            }
+        }
+    check_int((long long)wrong, 0, "the whole map's depths are the city-block distances to each "
+                                   "region's outside, counted to the cap (%zu pixels)", checked);
+    free(lab);
+}
+
 static void region_depth_matches_definition(void)
 {
     uint32_t *lab = calloc(EW * EH, sizeof *lab);
@@ -784,11 +818,11 @@ static void region_depth_matches_definition(void)
         uint8_t *whole = lam__boundary_depth(big, BW, BH, 2);
         big_wrong = whole ? depth_errors(big, BW, BH, 2, whole, &big_checked) : 1;
         for (size_t k = 0; whole && k < (size_t)BW * BH; k++)
-            deep += whole[k] == 255;
+            deep += whole[k] == LAM_DEPTH_CAP;
         free(whole);
     }
     check_true(!big_wrong && deep > 0,
-               "a wide region's depth is the whole map's, capped at 255 (%zu pixels at the cap)",
+               "a wide region's depth is the whole map's, counted to the cap (%zu pixels at it)",
                deep);
     free(big);
     free(lab);
@@ -1121,6 +1155,7 @@ int main(void)
     blocks_match_pixel_order();
     squares_keep_faint_steps();
     region_depth_matches_definition();
+    boundary_depth_matches_definition();
     test_rescue_cores();
     rescue_cores_match_definition();
     edge_areas_match_definition();

@@ -60,6 +60,13 @@ typedef struct lam_segment_options {
  * ribbon - in practice the blurred transition along another region's edge -
  * and does not inform the shared parameters. */
 #define LAM_RIBBON_DEPTH 4
+/* Depths are counted to this and no further: all the interior and ribbon
+ * tests ask, and a count that stops here is a few local comparisons per
+ * pixel instead of a distance transform over the whole map. */
+#define LAM_DEPTH_CAP 4
+#if LAM_DEPTH_CAP < LAM_RIBBON_DEPTH || LAM_DEPTH_CAP < LAM_INTERIOR_DEPTH
+#error "LAM_DEPTH_CAP must reach the interior and ribbon depths"
+#endif
 
 typedef struct lam_region_stats {
     uint32_t id;
@@ -67,7 +74,8 @@ typedef struct lam_region_stats {
     size_t area, interior, clipped;
     size_t edge;                 /* transition pixels nearer its contrast than any other
                                   * side's (lam_segment_edge_areas); 0 until then */
-    unsigned depth_max;          /* the deepest pixel's distance to the boundary (inradius) */
+    unsigned depth_max;          /* the deepest pixel's distance to the boundary (inradius),
+                                  * counted to LAM_DEPTH_CAP */
     size_t bbox[4];              /* x0, y0, x1, y1 inclusive */
     double sx, sy;               /* coordinate sums for the centroid */
     double sum[3], sumsq[3];     /* interior contrast */
