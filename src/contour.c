@@ -100,10 +100,38 @@ static int uniform8(const uint32_t *restrict a, const uint32_t *restrict b)
     return acc == 0;
 }
 
-/* Visit every cell's segments: count them per region (segs == NULL) or
- * store them into the per-region buckets at fill[l]. Rows are padded with
- * a zero on each side, so cell i of a row pair reads padded columns i, i+1. */
-static void scan(const grid *g, uint32_t *rows, size_t *count, seg *segs, size_t *fill)
+/* The segments of the whole window in the order of the cells, each with
+ * its region, gathered in one walk over the labels (a walk to count them
+ * and a second to place them cost twice the reading). */
+typedef struct region_seg {
+    uint32_t l;
+    seg s;
+} region_seg;
+
+typedef struct seg_list {
+    region_seg *v;
+    size_t n, cap;
+    int failed; /* out of memory: the rest are not kept */
+} seg_list;
+
+static void push_seg(seg_list *L, uint32_t l, seg s)
+{
+    if (L->n == L->cap) {
+        size_t cap = L->cap ? 2 * L->cap : 4096;
+        region_seg *v = L->failed ? NULL : realloc(L->v, cap * sizeof *v);
+        if (!v) {
+            L->failed = 1;
+            return;
+        }
+        L->v = v, L->cap = cap;
+    }
+    L->v[L->n].l = l;
+    L->v[L->n++].s = s;
+}
+
+/* Visit every cell's segments into L. Rows are padded with a zero on each
+ * side, so cell i of a row pair reads padded columns i, i+1. */
+static void scan(const grid *g, uint32_t *rows, seg_list *L)
 {
     uint32_t *ra = rows, *rb = rows + g->w + 2;
     load_row(g, -1, ra);
@@ -124,12 +152,8 @@ static void scan(const grid *g, uint32_t *rows, size_t *count, seg *segs, size_t
                     continue;
                 seg s[2];
                 int n = cell_segments(g, l, c, i, j, s);
-                for (int q = 0; q < n; q++) {
-                    if (segs)
-                        segs[fill[l - 1]++] = s[q];
-                    else
-                        count[l - 1]++;
-                }
+                for (int q = 0; q < n; q++)
+                    push_seg(L, l, s[q]);
             }
         }
         uint32_t *t = ra;
@@ -221,9 +245,14 @@ lam_status lam_contours_trace(const uint32_t *label, size_t stride, size_t x0, s
     lam_contours *c = calloc(1, sizeof *c);
     size_t *count = calloc(regions + 1, sizeof *count), *fill = calloc(regions + 1, sizeof *fill);
     uint32_t *rows = malloc(2 * (w + 2) * sizeof *rows);
+    seg_list L = {NULL, 0, 0, 0};
     if (!c || !count || !fill || !rows)
         goto nomem;
-    scan(&g, rows, count, NULL, NULL);
+    scan(&g, rows, &L);
+    if (L.failed)
+        goto nomem;
+    for (size_t i = 0; i < L.n; i++)
+        count[L.v[i].l - 1]++;
     size_t total = 0;
     for (size_t r = 0; r < regions; r++)
         fill[r] = total, total += count[r];
@@ -238,7 +267,10 @@ lam_status lam_contours_trace(const uint32_t *label, size_t stride, size_t x0, s
         free(used);
         goto nomem;
     }
-    scan(&g, rows, NULL, segs, fill);
+    for (size_t i = 0; i < L.n; i++) /* each region's in the order of the cells */
+        segs[fill[L.v[i].l - 1]++] = L.v[i].s;
+    free(L.v);
+    L.v = NULL;
     for (size_t r = 0, off = 0; r < regions; off += count[r], r++) {
         c->loop_start[r] = c->loops;
         qsort(segs + off, count[r], sizeof *segs, cmp_from);
@@ -254,6 +286,7 @@ lam_status lam_contours_trace(const uint32_t *label, size_t stride, size_t x0, s
     *out = c;
     return LAM_OK;
 nomem:
+    free(L.v);
     free(count);
     free(fill);
     free(rows);
