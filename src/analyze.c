@@ -305,7 +305,9 @@ lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contras
         if ((double)a->seg->regions[i].interior < least)
             a->measured[i].use = 0;
     }
-    return edge_areas ? lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err) : LAM_OK;
+    if (!edge_areas)
+        return LAM_OK;
+    return lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err);
 }
 
 #define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */

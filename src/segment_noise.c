@@ -5,9 +5,10 @@
  * Both come from one pass over the map, in bands of CELL rows on the
  * threads: each row's pixels near zero contrast are marked once (in every
  * channel, a vector loop), then the row gives its difference samples and
- * adds into its band's column sums, from which the cells' means come. The two statistics were two passes over
- * the whole map, the samples read pixel by pixel with a test per end; the
- * numbers are the same (counts and whole-number sums, in any order). */
+ * adds into its band's column sums, from which the cells' means come. The
+ * two statistics were two passes over the whole map, the samples read
+ * pixel by pixel with a test per end; the numbers are the same (counts
+ * and whole-number sums, in any order). */
 #include "segment_internal.h"
 #include "lamina/parallel.h"
 #include "vector_clones.h"
