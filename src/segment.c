@@ -251,7 +251,8 @@ int lam__region_depth(const uint32_t *lab, size_t w, uint32_t l, const size_t bo
 }
 
 /* The interior sums of run_channel over n pixels without a saturated
- * one: no branch, a vector loop (|v| < 2^16, so v * v fits 32 bits). */
+ * one: no branch, a vector loop (|v| < 2^16, so v * v fits 32 bits
+ * unsigned, though not signed: the square is taken unsigned). */
 LAM_VECTOR_CLONES
 static void interior_sums(const uint16_t *restrict q, const uint8_t *restrict depth, size_t n,
                           int64_t *sum, uint64_t *sumsq)
@@ -262,7 +263,7 @@ static void interior_sums(const uint16_t *restrict q, const uint8_t *restrict de
         int32_t in = -(int32_t)(depth[i] >= LAM_INTERIOR_DEPTH); /* all ones inside */
         int32_t v = ((int32_t)LAM_CONTRAST_UNIT - q[i]) & in;
         a += v;
-        b += (uint32_t)(v * v);
+        b += (uint32_t)v * (uint32_t)v;
     }
     *sum = a;
     *sumsq = b;
