@@ -113,9 +113,10 @@ static void along_row(const uint32_t *restrict row, size_t w, uint8_t *restrict 
     const uint32_t *restrict c = row + DEPTH_REACH;
     uint8_t *restrict o = out + DEPTH_REACH;
     for (size_t i = 0; i < inner; i++) { /* DEPTH_REACH 3, written out */
-        uint32_t l = c[i];
-        unsigned l1 = c[i - 1] == l, l2 = l1 & (c[i - 2] == l), l3 = l2 & (c[i - 3] == l);
-        unsigned r1 = c[i + 1] == l, r2 = r1 & (c[i + 2] == l), r3 = r2 & (c[i + 3] == l);
+        const uint32_t *p = c + i;
+        uint32_t l = p[0];
+        unsigned l1 = p[-1] == l, l2 = l1 & (p[-2] == l), l3 = l2 & (p[-3] == l);
+        unsigned r1 = p[1] == l, r2 = r1 & (p[2] == l), r3 = r2 & (p[3] == l);
         unsigned left = 1 + l1 + l2 + l3, right = 1 + r1 + r2 + r3;
         o[i] = (uint8_t)(left < right ? left : right);
     }
