@@ -5,6 +5,7 @@
 
 #include <errno.h>
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -14,38 +15,81 @@
 
 #define MAX_OPEN_TEMPS 64
 
-static pthread_mutex_t temps_lock = PTHREAD_MUTEX_INITIALIZER;
-static char *open_temps[MAX_OPEN_TEMPS];
+/* The open temporaries, for lam_outfile_cleanup_all, which runs in a
+ * signal handler: it takes no lock and frees nothing, so each slot is a
+ * fixed buffer and a flag. A temporary is named and tracked before it is
+ * created, and creation is refused once cleanup has begun ('dying'), so an
+ * interrupt cannot fall between a file's creation and its tracking (with
+ * mkstemp it could: the interrupted run of test_batch left one file in a
+ * CI run) nor let a file be created after the cleanup has passed. */
+static pthread_mutex_t temps_lock = PTHREAD_MUTEX_INITIALIZER; /* adders only */
+static char temp_names[MAX_OPEN_TEMPS][LAM_OUTFILE_PATH_MAX];
+static atomic_int temp_used[MAX_OPEN_TEMPS];
+static atomic_int dying;        /* lam_outfile_cleanup_all has begun */
+static atomic_uint temp_serial; /* makes the process's temporaries' names unique */
 
-static void track(const char *temp, int add)
+/* A slot for temp, or -1 when all are taken (the file is then not removed
+ * on an interrupt). */
+static int track_add(const char *temp)
 {
+    int slot = -1;
     pthread_mutex_lock(&temps_lock);
-    for (int i = 0; i < MAX_OPEN_TEMPS; i++) {
-        if (add && !open_temps[i]) {
-            open_temps[i] = strdup(temp);
-            break;
+    for (int i = 0; i < MAX_OPEN_TEMPS && slot < 0; i++)
+        if (!atomic_load(&temp_used[i])) {
+            snprintf(temp_names[i], sizeof temp_names[i], "%s", temp);
+            atomic_store(&temp_used[i], 1);
+            slot = i;
         }
-        if (!add && open_temps[i] && !strcmp(open_temps[i], temp)) {
-            free(open_temps[i]);
-            open_temps[i] = NULL;
-            break;
-        }
-    }
     pthread_mutex_unlock(&temps_lock);
+    return slot;
+}
+
+static void track_remove(int slot)
+{
+    if (slot >= 0)
+        atomic_store(&temp_used[slot], 0);
 }
 
 void lam_outfile_cleanup_all(void)
 {
+    atomic_store(&dying, 1);
     for (int i = 0; i < MAX_OPEN_TEMPS; i++)
-        if (open_temps[i])
-            unlink(open_temps[i]);
+        if (atomic_load(&temp_used[i]))
+            unlink(temp_names[i]);
+}
+
+/* Create of->temp_path ("PATH.tmp-PID-N", N new for each file; a name
+ * that exists is passed over), tracked first; the descriptor or -1. */
+static int create_temp(lam_outfile *of, const char *path)
+{
+    int fd = -1;
+    for (int attempt = 0; attempt < 100 && fd < 0; attempt++) {
+        snprintf(of->temp_path, sizeof of->temp_path, "%s.tmp-%ld-%u", path, (long)getpid(),
+                 atomic_fetch_add(&temp_serial, 1));
+        of->slot = track_add(of->temp_path);
+        errno = EINTR; /* what a refusal reports */
+        fd = atomic_load(&dying) ? -1 : open(of->temp_path, O_WRONLY | O_CREAT | O_EXCL, 0644);
+        if (fd >= 0 && atomic_load(&dying)) { /* the cleanup began meanwhile */
+            close(fd);
+            unlink(of->temp_path);
+            fd = -1;
+            errno = EINTR;
+        }
+        int again = fd < 0 && errno == EEXIST;
+        if (fd < 0)
+            track_remove(of->slot);
+        if (!again)
+            break;
+    }
+    return fd;
 }
 
 lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err)
 {
     memset(of, 0, sizeof *of);
+    of->slot = -1;
     size_t n = strlen(path);
-    if (n + 16 >= LAM_OUTFILE_PATH_MAX)
+    if (n + 32 >= LAM_OUTFILE_PATH_MAX)
         return lam_error_set(err, LAM_EINVAL, "output path too long: %s", path);
     memcpy(of->final_path, path, n + 1);
     struct stat sb;
@@ -59,23 +103,24 @@ lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err)
         }
         return LAM_OK;
     }
-    snprintf(of->temp_path, sizeof of->temp_path, "%s.tmp-XXXXXX", path);
-    int fd = mkstemp(of->temp_path);
+    int fd = create_temp(of, path);
     if (fd < 0) {
         lam_error_set(err, LAM_EIO, "cannot create %s: %s", path, strerror(errno));
         lam_error_set_file(err, path);
+        of->temp_path[0] = '\0';
         return LAM_EIO;
     }
-    fchmod(fd, 0644);
+    fchmod(fd, 0644); /* whatever the umask, as before */
     of->fp = fdopen(fd, "wb");
     if (!of->fp) {
         close(fd);
         unlink(of->temp_path);
+        track_remove(of->slot);
+        of->temp_path[0] = '\0';
         lam_error_set(err, LAM_EIO, "cannot open %s: %s", path, strerror(errno));
         lam_error_set_file(err, path);
         return LAM_EIO;
     }
-    track(of->temp_path, 1);
     return LAM_OK;
 }
 
@@ -103,13 +148,13 @@ lam_status lam_outfile_commit(lam_outfile *of, lam_error *err)
     }
     if (failed) {
         unlink(of->temp_path);
-        track(of->temp_path, 0);
+        track_remove(of->slot);
         lam_error_set(err, LAM_EIO, "cannot write %s: %s", of->final_path,
                       strerror(saved ? saved : EIO));
         lam_error_set_file(err, of->final_path);
         return LAM_EIO;
     }
-    track(of->temp_path, 0);
+    track_remove(of->slot);
     return LAM_OK;
 }
 
@@ -121,7 +166,7 @@ void lam_outfile_abort(lam_outfile *of)
     if (!of->temp_path[0])
         return;
     unlink(of->temp_path);
-    track(of->temp_path, 0);
+    track_remove(of->slot);
 }
 
 lam_status lam_outfile_write_buffer(const char *path, const void *data, size_t n,

@@ -21,12 +21,14 @@ typedef struct lam_outfile {
     FILE *fp;
     char final_path[LAM_OUTFILE_PATH_MAX];
     char temp_path[LAM_OUTFILE_PATH_MAX];
+    int slot;   /* where the temporary is tracked for lam_outfile_cleanup_all; -1: not */
 } lam_outfile;
 
-/* Create "PATH.tmp-XXXXXX" beside 'path' (mode 0644) and open of->fp on
- * it; a character device such as /dev/null is written directly. LAM_EINVAL
- * for a path longer than LAM_OUTFILE_PATH_MAX - 16, LAM_EIO when the file
- * cannot be created (the error names the path). */
+/* Create "PATH.tmp-PID-N" beside 'path' (mode 0644, N new for every file)
+ * and open of->fp on it; a character device such as /dev/null is written
+ * directly. LAM_EINVAL for a path longer than LAM_OUTFILE_PATH_MAX - 32,
+ * LAM_EIO when the file cannot be created (the error names the path), or
+ * once lam_outfile_cleanup_all has begun. */
 lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err);
 
 /* Flush, check for write errors, close and rename. On failure the
@@ -37,8 +39,9 @@ lam_status lam_outfile_commit(lam_outfile *of, lam_error *err);
  * failed lam_outfile_open. */
 void lam_outfile_abort(lam_outfile *of);
 
-/* Remove every temporary file still open (called from a signal handler's
- * aftermath, at exit). Safe to call at any time. */
+/* Remove every temporary file still open, and refuse to create more
+ * (for a signal handler before the process ends: it takes no lock).
+ * Safe to call at any time; afterwards lam_outfile_open fails. */
 void lam_outfile_cleanup_all(void);
 
 /* Write a whole memory buffer atomically (open, write, commit); LAM_EIO
