@@ -29,6 +29,7 @@ static void commit_and_abort(const char *dir)
 {
     char path[512];
     lam_error err;
+    lam_error_clear(&err);
     lam_outfile of;
     snprintf(path, sizeof path, "%s/kept.txt", dir);
     check_int(lam_outfile_open(&of, path, &err), LAM_OK, "opened");
@@ -53,6 +54,7 @@ static void many_at_once(const char *dir)
     enum { N = 70 };
     static lam_outfile of[N];
     lam_error err;
+    lam_error_clear(&err);
     int ok = 1;
     for (int i = 0; i < N; i++) {
         char path[512];
@@ -77,6 +79,7 @@ static void interrupted(const char *dir)
     if (pid == 0) {
         char a[512], b[512];
         lam_error err;
+        lam_error_clear(&err);
         lam_outfile fa, fb, fc;
         snprintf(a, sizeof a, "%s/a.txt", dir);
         snprintf(b, sizeof b, "%s/b.txt", dir);
