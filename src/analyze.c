@@ -294,8 +294,7 @@ static void file_steps(const lam_image *img, const lam_substrate *sub, size_t ch
  * labelled; they only do not steer the oxide and the response. */
 #define FIT_MIN_IMAGE_SHARE 2e-5
 
-lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads,
-                                int edge_areas, lam_error *err)
+void lam__measure_regions(lam_analysis *a)
 {
     a->count = a->seg->count;
     double least = FIT_MIN_IMAGE_SHARE * (double)(a->width * a->height);
@@ -305,9 +304,6 @@ lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contras
         if ((double)a->seg->regions[i].interior < least)
             a->measured[i].use = 0;
     }
-    if (!edge_areas)
-        return LAM_OK;
-    return lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err);
 }
 
 #define FAINT_OXIDE_SDS 2.0 /* the oxide range a TMD's faintest count is sought over */
@@ -379,11 +375,10 @@ static lam_status segment_stage(lam__run *r, lam_error *err)
     a->measured = calloc(a->seg->count ? a->seg->count : 1, sizeof *a->measured);
     if (!a->measured)
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate %zu regions", a->seg->count);
-    /* without the edge areas: they only set the size flags, and both
-     * crystal paths join the flakes (join_stage, lamina/thickness.h) and
-     * take them then; what decides a join does not read them */
-    if ((st = lam__measure_regions(a, &r->contrast, r->threads, 0, err)))
-        return st;
+    /* the edge areas only set the size flags, and both crystal paths join
+     * the flakes (join_stage, lamina/thickness.h) and take them then; what
+     * decides a join does not read them */
+    lam__measure_regions(a);
     MARK(r, LAM_T_SEGMENT);
     /* the substrate's own low-frequency errors set the floor's prior, and
      * no less than the file's coding steps (uniform rounding: step / sqrt 12) */
@@ -653,7 +648,8 @@ static lam_status join_stage(lam__run *r, const lam_est_view *v, const lam_fermi
     free(map);
     if (st)
         return st;
-    if ((st = lam__measure_regions(a, &r->contrast, r->threads, 1, err)))
+    lam__measure_regions(a);
+    if ((st = lam_segment_edge_areas(&r->contrast, a->channels, r->threads, a->seg, err)))
         return st;
     infer_all(r, v, ft, vr, 1);
     return LAM_OK;

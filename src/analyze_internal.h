@@ -70,12 +70,10 @@ lam_status lam__load_input(const char *path, const lam_load_options *lo, lam_ima
                            uint8_t **bytes, size_t *size, lam_error *err);
 
 /* After the segmentation changed (made, or flakes joined): a->count from
- * it, every region's measurement in a->measured (room for that many) and,
- * with edge_areas, its share of the transition pixels (the areas the size
- * flags use, on 'threads' threads; without, the regions' edge counts are
- * left as they are). LAM_ENOMEM only. */
-lam_status lam__measure_regions(lam_analysis *a, const lam_contrast_map *contrast, size_t threads,
-                                int edge_areas, lam_error *err);
+ * it and every region's measurement in a->measured (room for that many).
+ * The regions' shares of the transition pixels (the areas the size flags
+ * use) are lam_segment_edge_areas', taken after a join. */
+void lam__measure_regions(lam_analysis *a);
 
 /* After the flakes' fit (a->estimate): when the setup records the
  * substrate's colour at a known oxide and the image has three channels,

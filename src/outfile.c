@@ -62,26 +62,24 @@ void lam_outfile_cleanup_all(void)
  * that exists is passed over), tracked first; the descriptor or -1. */
 static int create_temp(lam_outfile *of, const char *path)
 {
-    int fd = -1;
-    for (int attempt = 0; attempt < 100 && fd < 0; attempt++) {
+    for (int attempt = 0; attempt < 100; attempt++) {
         snprintf(of->temp_path, sizeof of->temp_path, "%s.tmp-%ld-%u", path, (long)getpid(),
                  atomic_fetch_add(&temp_serial, 1));
         of->slot = track_add(of->temp_path);
-        errno = EINTR; /* what a refusal reports */
-        fd = atomic_load(&dying) ? -1 : open(of->temp_path, O_WRONLY | O_CREAT | O_EXCL, 0644);
-        if (fd >= 0 && atomic_load(&dying)) { /* the cleanup began meanwhile */
+        int fd = atomic_load(&dying) ? -1 : open(of->temp_path, O_WRONLY | O_CREAT | O_EXCL, 0644);
+        if (fd >= 0 && !atomic_load(&dying))
+            return fd;
+        int e = fd >= 0 || atomic_load(&dying) ? EINTR : errno; /* a refusal: interrupted */
+        if (fd >= 0) { /* the cleanup began while it was created */
             close(fd);
             unlink(of->temp_path);
-            fd = -1;
-            errno = EINTR;
         }
-        int again = fd < 0 && errno == EEXIST;
-        if (fd < 0)
-            track_remove(of->slot);
-        if (!again)
+        track_remove(of->slot);
+        errno = e;
+        if (e != EEXIST)
             break;
     }
-    return fd;
+    return -1;
 }
 
 lam_status lam_outfile_open(lam_outfile *of, const char *path, lam_error *err)

@@ -592,7 +592,8 @@ static lam_status join_parts(lam_analysis *a, const lam_contrast_map *contrast, 
     free(map);
     if (st)
         return st;
-    return lam__measure_regions(a, contrast, threads, 1, err);
+    lam__measure_regions(a);
+    return lam_segment_edge_areas(contrast, a->channels, threads, a->seg, err);
 }
 
 /* Every region's posterior under the table at the oxide's nodes, the parts
