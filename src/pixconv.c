@@ -1,6 +1,5 @@
 /* pixconv.c - decoded samples to linear planes through per-channel tables. */
 #include "pixconv.h"
-#include "lamina/parallel.h"
 
 #include <stdlib.h>
 #include <string.h>
@@ -58,8 +57,8 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t)
         }                                                                                  \
     } while (0)
 
-void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
-                      size_t stride)
+size_t lam__pixconv_row_counted(const lam__pixconv *pc, lam_image *img, size_t y,
+                                const void *row, size_t stride)
 {
     size_t w = img->width, base = y * w, clipped = 0;
     size_t o1 = pc->chans == 3 ? 1 : 0, o2 = pc->chans == 3 ? 2 : 0; /* grey: replicated */
@@ -70,7 +69,13 @@ void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const vo
         CONVERT_ROW(uint8_t);
     else
         CONVERT_ROW(uint16_t);
-    img->clipped_count += clipped;
+    return clipped;
+}
+
+void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
+                      size_t stride)
+{
+    img->clipped_count += lam__pixconv_row_counted(pc, img, y, row, stride);
 }
 
 void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int chans)
@@ -90,7 +95,6 @@ typedef struct rgb8_ctx {
     lam_image *img;
     size_t y0;             /* first image row of the codes */
     const uint8_t *codes;  /* rows y0.. as 8-bit RGB */
-    size_t clipped[LAM_MAX_THREADS];
 } rgb8_ctx;
 
 /* One row: planes from the LUTs, and the row's clip bits a byte (8
@@ -121,32 +125,19 @@ static size_t rgb8_row(const rgb8_ctx *c, size_t y)
     return clipped;
 }
 
-static void rgb8_rows(size_t begin, size_t end, size_t slice, void *vctx)
+size_t lam__pixconv_rgb8_strip(const lam__pixconv *pc, lam_image *img, size_t y0,
+                               size_t rows, const uint8_t *codes)
 {
-    rgb8_ctx *c = vctx;
-    size_t clipped = 0;
-    for (size_t y = c->y0 + begin; y < c->y0 + end; y++)
-        clipped += rgb8_row(c, y);
-    c->clipped[slice] = clipped;
-}
-
-lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
-                             const uint8_t *codes, lam_error *err)
-{
-    if (pc->depth != 8 || pc->chans != 3 || !codes || y0 + rows > img->height)
-        return lam_error_set(err, LAM_EINTERNAL, "8-bit RGB conversion without 8-bit RGB codes");
-    /* the per-slice counts live on the stack: nothing to allocate, so the
-     * only failure is a caller's mistake, reported above */
     rgb8_ctx c;
     memset(&c, 0, sizeof c);
     c.pc = pc;
     c.img = img;
     c.y0 = y0;
     c.codes = codes;
-    lam_parallel_for(rows, lam_parallel_default(), rgb8_rows, &c);
-    for (size_t t = 0; t < LAM_MAX_THREADS; t++)
-        img->clipped_count += c.clipped[t];
-    return LAM_OK;
+    size_t clipped = 0;
+    for (size_t y = y0; y < y0 + rows; y++)
+        clipped += rgb8_row(&c, y);
+    return clipped;
 }
 
 void lam__pixconv_clear(lam__pixconv *pc)

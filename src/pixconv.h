@@ -32,16 +32,22 @@ void lam__pixconv_fill(lam__pixconv *pc, const lam_transfer *t);
 void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
                       size_t stride);
 
+/* The same, returning the row's clipped pixels instead of adding them to
+ * img->clipped_count: for rows converted on several threads at once
+ * (rowpipe.h), which add them up themselves. */
+size_t lam__pixconv_row_counted(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
+                                size_t stride);
+
 /* Row y of 8-bit samples (chans 1 or 3) into img->display8 alone: the
  * codes copied, grey replicated into R, G and B (display8_only loads). */
 void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int chans);
 
-/* Fill image rows y0 .. y0+rows-1 of the planes and clip mask from
- * 'codes' (those rows' 8-bit RGB samples, interleaved: img->display8 +
- * y0*width*3, or a strip buffer), on all cores; adds the rows' clipped
- * pixels to img->clipped_count. */
-lam_status lam__pixconv_rgb8(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
-                             const uint8_t *codes, lam_error *err);
+/* Image rows y0 .. y0+rows-1 of the planes and clip mask from 'codes'
+ * (those rows' 8-bit RGB samples, interleaved: img->display8 + y0*width*3,
+ * or a strip buffer); returns their clipped pixels (img->clipped_count
+ * untouched: rowpipe.h adds them up). */
+size_t lam__pixconv_rgb8_strip(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
+                               const uint8_t *codes);
 
 void lam__pixconv_clear(lam__pixconv *pc);
 

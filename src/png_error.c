@@ -9,6 +9,8 @@ void lam__png_on_error(png_structp png, png_const_charp msg)
     lam__png_errctx *ctx = png_get_error_ptr(png);
     if (ctx)
         snprintf(ctx->msg, sizeof ctx->msg, "%s", msg);
+    if (ctx && ctx->inner)
+        longjmp(*ctx->inner, 1);
     png_longjmp(png, 1);
 }
 

@@ -6,6 +6,8 @@
 #include "colourmeta.h"
 #include "pixconv.h"
 #include "png_internal.h"
+#include "rowpipe.h"
+#include "lamina/parallel.h"
 
 #include <setjmp.h>
 #include <stdlib.h>
@@ -124,10 +126,10 @@ static lam_status read_header(png_job *job, FILE *fp, const lam_load_options *op
     return LAM_OK;
 }
 
-static void read_pixels(png_job *job, int codes_only)
+/* An interlaced file, or only the 8-bit codes: on this thread. */
+static void read_whole(png_job *job, int codes_only)
 {
     size_t h = job->img->height;
-    job->stage = 1;
     if (job->passes > 1) {
         png_bytep *ptrs = png_malloc(job->png, h * sizeof *ptrs);
         for (size_t y = 0; y < h; y++)
@@ -144,7 +146,67 @@ static void read_pixels(png_job *job, int codes_only)
         else
             lam__pixconv_row(&job->pc, job->img, y, row, (size_t)job->pc.chans);
     }
+}
+
+/* Does a strip go straight into the kept 8-bit copy (8-bit RGB)? */
+static int into_display8(const png_job *job)
+{
+    return job->img->display8 && job->pc.depth == 8 && job->pc.chans == 3;
+}
+
+/* Rows y0.. of the stream into buf, or into the kept 8-bit copy. A
+ * damaged stream's error lands here, so that it does not jump past the
+ * pipeline (rowpipe.h): NULL then. */
+static const uint8_t *decode_strip(void *vjob, size_t y0, size_t rows, uint8_t *buf)
+{
+    png_job *job = vjob;
+    uint8_t *out = into_display8(job) ? job->img->display8 + y0 * job->rowbytes : buf;
+    jmp_buf here;
+    if (setjmp(here)) {
+        job->ctx.inner = NULL;
+        return NULL;
+    }
+    job->ctx.inner = &here;
+    for (size_t i = 0; i < rows; i++)
+        png_read_row(job->png, out + i * job->rowbytes, NULL);
+    job->ctx.inner = NULL;
+    return out;
+}
+
+/* Decoded rows to the planes, the clip mask and the kept 8-bit copy. */
+static size_t convert_strip(void *vjob, size_t y0, size_t rows, const uint8_t *codes)
+{
+    png_job *job = vjob;
+    if (into_display8(job))
+        return lam__pixconv_rgb8_strip(&job->pc, job->img, y0, rows, codes);
+    size_t clipped = 0;
+    for (size_t i = 0; i < rows; i++)
+        clipped += lam__pixconv_row_counted(&job->pc, job->img, y0 + i,
+                                            codes + i * job->rowbytes, (size_t)job->pc.chans);
+    return clipped;
+}
+
+/* Strips decoded here and converted on the other cores meanwhile. */
+#define STRIP_ROWS 32
+static lam_status read_pixels(png_job *job, int codes_only, lam_error *err)
+{
+    job->stage = 1;
+    if (codes_only || job->passes > 1) {
+        read_whole(job, codes_only);
+    } else {
+        lam__rowpipe_ops ops = {decode_strip, convert_strip, job};
+        size_t clipped = 0;
+        int r = lam__rowpipe_run(job->img->height, STRIP_ROWS, job->rowbytes,
+                                 lam_parallel_default(), &ops, &clipped);
+        if (r == -1)
+            return lam_error_set(err, LAM_EFORMAT, "damaged PNG (in the pixel data): %s",
+                                 job->ctx.msg);
+        if (r)
+            return lam_error_set(err, LAM_ENOMEM, "cannot allocate a strip of PNG rows");
+        job->img->clipped_count += clipped;
+    }
     png_read_end(job->png, NULL);
+    return LAM_OK;
 }
 
 lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt,
@@ -169,8 +231,9 @@ lam_status lam__png_load(FILE *fp, const char *path, const lam_load_options *opt
         return st;
     }
     lam_status st = read_header(job, fp, opt, err);
+    if (!st)
+        st = read_pixels(job, opt->display8_only, err);
     if (!st) {
-        read_pixels(job, opt->display8_only);
         *out = job->img;
         job->img = NULL;
     }

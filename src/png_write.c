@@ -21,7 +21,7 @@ static lam_status save_png(const char *path, const void *pixels, size_t width,
     lam_status st = lam_outfile_open(&of, path, err);
     if (st)
         return st;
-    lam__png_errctx ctx = {""};
+    lam__png_errctx ctx = {"", NULL};
     png_structp png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &ctx, lam__png_on_error,
                                               lam__png_on_warning);
     png_infop info = png ? png_create_info_struct(png) : NULL;
