@@ -190,8 +190,13 @@ static void failure(void)
     }
 }
 
+/* Not under AddressSanitizer, which aborts on a request above its
+ * maximum (1 TiB) instead of returning NULL. */
 static void no_memory(void)
 {
+#ifdef __SANITIZE_ADDRESS__
+    return;
+#endif
     fake *f = fake_new(10);
     lam__rowpipe_ops ops = {fake_decode, fake_convert, f};
     size_t clipped = 0;
