@@ -293,8 +293,8 @@ static void check_jpeg_variants(const char *ppm, const char *jpg)
     }
 }
 
-/* A JPEG taller than the loader's strips (256 rows: two whole strips and
- * a part), some pixels saturated: the planes decoded strip by strip agree
+/* A JPEG taller than the loader's strips (32 rows: eighteen whole strips
+ * and a part), some pixels saturated: the planes decoded strip by strip agree
  * with djpeg (Debian libjpeg-turbo-progs, an independent decoder) in every
  * row, equal the planes decoded through a whole kept copy bit for bit, and
  * the 8-bit codes decoded alone (display8_only) are djpeg's exactly. The
