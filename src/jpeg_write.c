@@ -129,6 +129,7 @@ typedef struct band_code {
     struct jpeg_compress_struct c;
     jw_ctx ctx;
     int failed;
+    int no_memory;                    /* the failure was memory, not the coder */
 } band_code;
 
 typedef struct band_job {
@@ -191,13 +192,14 @@ static void code_band(size_t k, void *vjob)
     b->cap = 65536;
     if (!(b->data = malloc(b->cap))) {
         snprintf(b->ctx.msg, sizeof b->ctx.msg, "out of memory");
-        b->failed = 1;
+        b->failed = b->no_memory = 1;
         return;
     }
     b->c.err = jpeg_std_error(&b->ctx.mgr);
     b->ctx.mgr.error_exit = on_jw_error;
-    if (setjmp(b->ctx.jump)) {
+    if (setjmp(b->ctx.jump)) { /* a band's buffer that cannot grow, or libjpeg's own */
         b->failed = 1;
+        b->no_memory = b->ctx.mgr.msg_code == JERR_OUT_OF_MEMORY;
         jpeg_destroy_compress(&b->c);
         return;
     }
@@ -254,7 +256,8 @@ static lam_status save_bands(const char *path, const jw_source *s, size_t width,
     lam_status st = LAM_OK;
     for (size_t k = 0; k < n && !st; k++)
         if (j.b[k].failed)
-            st = lam_error_set(err, LAM_EIO, "cannot write JPEG %s: %s", path, j.b[k].ctx.msg);
+            st = lam_error_set(err, j.b[k].no_memory ? LAM_ENOMEM : LAM_EIO,
+                               "cannot write JPEG %s: %s", path, j.b[k].ctx.msg);
     lam_outfile of;
     if (!st && !(st = lam_outfile_open(&of, path, err))) {
         static const unsigned char eoi[2] = {0xff, 0xd9};

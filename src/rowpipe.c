@@ -139,7 +139,8 @@ int lam__rowpipe_run(size_t height, size_t strip_rows, size_t row_bytes, size_t 
     if (!p)
         return -2;
     *p = (pipe){.ops = ops, .height = height, .strip_rows = strip_rows};
-    size_t want = 2 * workers < RING_MAX ? 2 * workers : RING_MAX;
+    /* two strips in flight per worker; one thread alone needs one */
+    size_t want = workers == 1 ? 1 : 2 * workers < RING_MAX ? 2 * workers : RING_MAX;
     if (want > strips) /* no more buffers than strips (a picture of one strip: one) */
         want = strips ? strips : 1;
     while (p->slots < want && (p->ring[p->slots].buf = malloc(strip_rows * row_bytes)))

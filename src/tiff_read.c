@@ -7,6 +7,8 @@
 #include "imageio_internal.h"
 #include "colourmeta.h"
 #include "pixconv.h"
+#include "rowpipe.h"
+#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -430,13 +432,14 @@ static lam_status make_image(tiff_job *job, const lam_load_options *opt, lam_err
 /* Copy 'rows' x 'cols' pixels of a decoded strip or tile (src_w pixels of
  * src_spp samples a row) to column x0 of the band, 'ns' samples each from
  * sample s0 on (a separate plane: one sample into slot s0). */
-static void put_block(const tiff_job *job, const unsigned char *src, size_t src_w,
-                      size_t src_spp, size_t x0, size_t rows, size_t cols, size_t s0, size_t ns)
+static void put_block(const tiff_job *job, unsigned char *band, const unsigned char *src,
+                      size_t src_w, size_t src_spp, size_t x0, size_t rows, size_t cols,
+                      size_t s0, size_t ns)
 {
     size_t B = job->bytes, w = job->L.w, bspp = job->bspp;
     for (size_t r = 0; r < rows; r++) {
         const unsigned char *sp = src + r * src_w * src_spp * B;
-        unsigned char *dp = job->band + ((r * w + x0) * bspp + s0) * B;
+        unsigned char *dp = band + ((r * w + x0) * bspp + s0) * B;
         if (src_spp == ns && ns == bspp) {
             memcpy(dp, sp, cols * ns * B);
             continue;
@@ -446,24 +449,34 @@ static void put_block(const tiff_job *job, const unsigned char *src, size_t src_
     }
 }
 
-/* Hand band rows y0.. to the converter (MinIsWhite inverted first). */
-static void emit_rows(tiff_job *job, size_t y0, size_t rows)
+/* MinIsWhite: the band's rows inverted, so that white is the top code. */
+static void invert_rows(const tiff_job *job, unsigned char *band, size_t rows)
 {
-    size_t per_row = (size_t)job->L.w * job->bspp;
-    for (size_t r = 0; r < rows; r++) {
-        unsigned char *row = job->band + r * per_row * job->bytes;
-        if (job->L.invert && job->bytes == 1)
-            for (size_t k = 0; k < per_row; k++)
-                row[k] = (unsigned char)(255 - row[k]);
-        else if (job->L.invert)
-            for (size_t k = 0; k < per_row; k++)
-                ((uint16_t *)(void *)row)[k] = (uint16_t)(65535 - ((uint16_t *)(void *)row)[k]);
-        lam__pixconv_row(&job->pc, job->img, y0 + r, row, job->bspp);
-    }
+    size_t n = rows * (size_t)job->L.w * job->bspp;
+    if (!job->L.invert)
+        return;
+    if (job->bytes == 1)
+        for (size_t k = 0; k < n; k++)
+            band[k] = (unsigned char)(255 - band[k]);
+    else
+        for (size_t k = 0; k < n; k++)
+            ((uint16_t *)(void *)band)[k] = (uint16_t)(65535 - ((uint16_t *)(void *)band)[k]);
 }
 
-/* Band and piece buffers for pieces of piece_w x piece_h pixels. */
-static lam_status alloc_buffers(tiff_job *job, size_t piece_w, size_t piece_h, lam_error *err)
+/* Band rows y0.. to the planes; returns their clipped pixels. */
+static size_t convert_rows(const tiff_job *job, const unsigned char *band, size_t y0, size_t rows)
+{
+    size_t per_row = (size_t)job->L.w * job->bspp * job->bytes, clipped = 0;
+    for (size_t r = 0; r < rows; r++)
+        clipped += lam__pixconv_row_counted(&job->pc, job->img, y0 + r, band + r * per_row,
+                                            job->bspp);
+    return clipped;
+}
+
+/* The piece buffer for pieces of piece_w x piece_h pixels; *band_bytes:
+ * a band of piece_h rows (the pipeline's buffers hold bands). */
+static lam_status alloc_piece(tiff_job *job, size_t piece_w, size_t piece_h, size_t *band_bytes,
+                              lam_error *err)
 {
     const tiff_layout *L = &job->L;
     int separate = L->planar == PLANARCONFIG_SEPARATE;
@@ -475,10 +488,96 @@ static lam_status alloc_buffers(tiff_job *job, size_t piece_w, size_t piece_h, l
     if (piece > TIFF_MAX_PIECE || band > 4.0 * TIFF_MAX_PIECE)
         return lam_error_set(err, LAM_EFORMAT, "TIFF %s of %zux%zu pixels are too large",
                              TIFFIsTiled(job->tif) ? "tiles" : "strips", piece_w, piece_h);
-    job->piece = malloc((size_t)piece);
-    job->band = malloc((size_t)band);
-    if (!job->piece || !job->band)
+    *band_bytes = (size_t)band;
+    if (!(job->piece = malloc((size_t)piece)))
         return lam_error_set(err, LAM_ENOMEM, "cannot allocate TIFF buffers");
+    return LAM_OK;
+}
+
+/* Strips or tiles decoded on this thread a band at a time, converted on
+ * the other cores meanwhile (rowpipe.h). */
+typedef struct tiff_pipe {
+    tiff_job *job;
+    lam_error *err;
+    lam_status st;          /* a damaged piece's status (decode's NULL) */
+    uint32_t tile_w, tile_h; /* tile_w 0: strips */
+} tiff_pipe;
+
+/* Band rows y0.. from the strips that hold them (one per plane). */
+static int strips_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band)
+{
+    tiff_job *job = tp->job;
+    const tiff_layout *L = &job->L;
+    int separate = L->planar == PLANARCONFIG_SEPARATE;
+    size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
+    tmsize_t need = (tmsize_t)(rows * L->w * pspp * job->bytes);
+    for (size_t s = 0; s < planes; s++) {
+        uint32_t strip = TIFFComputeStrip(job->tif, (uint32_t)y0, (uint16_t)s);
+        if (TIFFReadEncodedStrip(job->tif, strip, job->piece, need) < need) {
+            tp->st = damaged(&job->msgs, tp->err, "strip data");
+            return 0;
+        }
+        put_block(job, band, job->piece, L->w, pspp, 0, rows, L->w, s, separate ? 1 : L->spp);
+    }
+    return 1;
+}
+
+/* Band rows y0.. from the row of tiles that holds them. */
+static int tiles_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band)
+{
+    tiff_job *job = tp->job;
+    const tiff_layout *L = &job->L;
+    int separate = L->planar == PLANARCONFIG_SEPARATE;
+    size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
+    size_t tw = tp->tile_w;
+    tmsize_t need = (tmsize_t)(tw * (size_t)tp->tile_h * pspp * job->bytes);
+    for (size_t x0 = 0; x0 < L->w; x0 += tw) {
+        size_t cols = L->w - x0 < tw ? L->w - x0 : tw;
+        for (size_t s = 0; s < planes; s++) {
+            uint32_t tile = TIFFComputeTile(job->tif, (uint32_t)x0, (uint32_t)y0, 0, (uint16_t)s);
+            if (TIFFReadEncodedTile(job->tif, tile, job->piece, need) < need) {
+                tp->st = damaged(&job->msgs, tp->err, "tile data");
+                return 0;
+            }
+            put_block(job, band, job->piece, tw, pspp, x0, rows, cols, s, separate ? 1 : L->spp);
+        }
+    }
+    return 1;
+}
+
+static const uint8_t *decode_band(void *vp, size_t y0, size_t rows, uint8_t *buf)
+{
+    tiff_pipe *tp = vp;
+    if (!(tp->tile_w ? tiles_into(tp, y0, rows, buf) : strips_into(tp, y0, rows, buf)))
+        return NULL;
+    invert_rows(tp->job, buf, rows);
+    return buf;
+}
+
+static size_t convert_band(void *vp, size_t y0, size_t rows, const uint8_t *band)
+{
+    const tiff_pipe *tp = vp;
+    return convert_rows(tp->job, band, y0, rows);
+}
+
+/* Above this a band is converted on this thread alone: the pipeline holds
+ * two bands per thread, where one band held the whole picture's worth of
+ * rows at a time before. */
+#define TIFF_PIPE_BAND_MAX ((size_t)4 << 20)
+
+/* The picture in bands of band_rows rows (a strip's or a row of tiles'). */
+static lam_status read_bands(tiff_job *job, uint32_t tile_w, uint32_t band_rows,
+                             size_t band_bytes, lam_error *err)
+{
+    tiff_pipe tp = {job, err, LAM_OK, tile_w, band_rows};
+    lam__rowpipe_ops ops = {decode_band, convert_band, &tp};
+    size_t threads = band_bytes > TIFF_PIPE_BAND_MAX ? 1 : lam_parallel_default(), clipped = 0;
+    int r = lam__rowpipe_run(job->L.h, band_rows, band_bytes / band_rows, threads, &ops, &clipped);
+    if (r == -1)
+        return tp.st;
+    if (r)
+        return lam_error_set(err, LAM_ENOMEM, "cannot allocate TIFF buffers");
+    job->img->clipped_count += clipped;
     return LAM_OK;
 }
 
@@ -489,54 +588,20 @@ static lam_status read_strips(tiff_job *job, lam_error *err)
     TIFFGetFieldDefaulted(job->tif, TIFFTAG_ROWSPERSTRIP, &rps);
     if (rps == 0 || rps > L->h)
         rps = L->h;
-    lam_status st = alloc_buffers(job, L->w, rps, err);
-    int separate = L->planar == PLANARCONFIG_SEPARATE;
-    size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
-    for (uint32_t y0 = 0; !st && y0 < L->h; y0 += rps) {
-        size_t rows = L->h - y0 < rps ? L->h - y0 : rps;
-        tmsize_t need = (tmsize_t)(rows * L->w * pspp * job->bytes);
-        for (size_t s = 0; s < planes; s++) {
-            uint32_t strip = TIFFComputeStrip(job->tif, y0, (uint16_t)s);
-            if (TIFFReadEncodedStrip(job->tif, strip, job->piece, need) < need)
-                return damaged(&job->msgs, err, "strip data");
-            put_block(job, job->piece, L->w, pspp, 0, rows, L->w, s, separate ? 1 : L->spp);
-        }
-        emit_rows(job, y0, rows);
-        if (y0 > UINT32_MAX - rps)
-            break;
-    }
-    return st;
+    size_t band_bytes = 0;
+    lam_status st = alloc_piece(job, L->w, rps, &band_bytes, err);
+    return st ? st : read_bands(job, 0, rps, band_bytes, err);
 }
 
 static lam_status read_tiles(tiff_job *job, lam_error *err)
 {
-    const tiff_layout *L = &job->L;
     uint32_t tw = 0, th = 0;
     if (!TIFFGetField(job->tif, TIFFTAG_TILEWIDTH, &tw) ||
         !TIFFGetField(job->tif, TIFFTAG_TILELENGTH, &th) || tw == 0 || th == 0)
         return damaged(&job->msgs, err, "no tile size");
-    lam_status st = alloc_buffers(job, tw, th, err);
-    int separate = L->planar == PLANARCONFIG_SEPARATE;
-    size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
-    tmsize_t need = (tmsize_t)((size_t)tw * th * pspp * job->bytes);
-    for (uint32_t y0 = 0; !st && y0 < L->h; y0 += th) {
-        size_t rows = L->h - y0 < th ? L->h - y0 : th;
-        for (uint32_t x0 = 0; x0 < L->w; x0 += tw) {
-            size_t cols = L->w - x0 < tw ? L->w - x0 : tw;
-            for (size_t s = 0; s < planes; s++) {
-                uint32_t tile = TIFFComputeTile(job->tif, x0, y0, 0, (uint16_t)s);
-                if (TIFFReadEncodedTile(job->tif, tile, job->piece, need) < need)
-                    return damaged(&job->msgs, err, "tile data");
-                put_block(job, job->piece, tw, pspp, x0, rows, cols, s, separate ? 1 : L->spp);
-            }
-            if (x0 > UINT32_MAX - tw)
-                break;
-        }
-        emit_rows(job, y0, rows);
-        if (y0 > UINT32_MAX - th)
-            break;
-    }
-    return st;
+    size_t band_bytes = 0;
+    lam_status st = alloc_piece(job, tw, th, &band_bytes, err);
+    return st ? st : read_bands(job, tw, th, band_bytes, err);
 }
 
 /* Rows per call of libtiff's RGBA conversion: a whole strip or row of
@@ -584,7 +649,8 @@ static lam_status read_rgba(tiff_job *job, lam_error *err)
             job->band[3 * k + 1] = (unsigned char)TIFFGetG(raster[k]);
             job->band[3 * k + 2] = (unsigned char)TIFFGetB(raster[k]);
         }
-        emit_rows(job, y0, rows);
+        invert_rows(job, job->band, rows);
+        job->img->clipped_count += convert_rows(job, job->band, y0, rows);
     }
     TIFFRGBAImageEnd(&ri);
     free(raster);

@@ -6,6 +6,7 @@
  * ResolutionUnit), damaged files and quiet handling of libtiff's
  * messages are checked too. */
 #include "check.h"
+#include "lamina/parallel.h"
 #include "lamina/image.h"
 #include "lamina/png.h"
 
@@ -227,7 +228,9 @@ static const char *comp_name(uint16_t c)
 }
 
 /* One layout against its PNG twin (and, for 16-bit, the linear default
- * against the written codes). */
+ * against the written codes), and on one thread against all (the strips
+ * or rows of tiles are decoded on one thread and converted on the others
+ * meanwhile: src/rowpipe.c). */
 static void check_layout(const tspec *t, const char *what)
 {
     char tp[512], pp[512];
@@ -241,6 +244,12 @@ static void check_layout(const tspec *t, const char *what)
     load(pp, NULL, &b, &err);
     check_true(st == LAM_OK && same_pixels(a, b), "%s equals the PNG path exactly (%s)", what,
                st ? err.message : "ok");
+    lam_image *one = NULL;
+    lam_parallel_set_default(1);
+    load(tp, NULL, &one, &err);
+    lam_parallel_set_default(0);
+    check_true(same_pixels(a, one), "%s: the same on one thread", what);
+    lam_image_free(one);
     if (a && t->bps == 16) {
         size_t bad = 0;
         for (uint32_t y = 0; y < t->h; y++)
