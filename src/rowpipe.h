@@ -1,7 +1,7 @@
 /* rowpipe.h - a decoder's rows converted beside it (internal to the image
  * loaders).
  *
- * libjpeg and libpng decode on one thread, in order of rows. Converting
+ * libjpeg, libpng and libtiff decode on one thread, in order of rows. Converting
  * the decoded codes to linear planes (pixconv.h) is the other half of a
  * load, and it is where the planes' memory is first touched: on this
  * project's machines, where fresh pages cost 1-2 ms a megabyte after an
