@@ -7,7 +7,6 @@
 #include "colourmeta.h"
 #include "pixconv.h"
 #include "rowpipe.h"
-#include "lamina/parallel.h"
 
 #include <jpeglib.h>
 #include <setjmp.h>
@@ -178,9 +177,7 @@ static size_t convert_strip(void *vjob, size_t y0, size_t rows, const uint8_t *c
 }
 
 /* Strips of rows decoded here and converted on the other cores meanwhile
- * (rowpipe.h): a strip of STRIP_ROWS rows of a 12 MP picture is ~0.4 MB,
- * so the ring stays in cache. */
-#define STRIP_ROWS 32
+ * (rowpipe.h). */
 static lam_status read_pixels(jpeg_job *job, const lam_load_options *opt, lam_error *err)
 {
     if (opt->display8_only) {
@@ -190,8 +187,9 @@ static lam_status read_pixels(jpeg_job *job, const lam_load_options *opt, lam_er
     }
     lam__rowpipe_ops ops = {decode_strip, convert_strip, job};
     size_t clipped = 0, stride = job->img->width * (size_t)job->pc.chans;
-    int r = lam__rowpipe_run(job->img->height, STRIP_ROWS, stride, lam_parallel_default(), &ops,
-                             &clipped);
+    size_t h = job->img->height;
+    int r = lam__rowpipe_run(h, lam__rowpipe_strip_rows(stride), stride,
+                             lam__rowpipe_threads(h, stride), &ops, &clipped);
     if (r == -1)
         return lam_error_set(err, LAM_EFORMAT, "damaged JPEG: %s", job->ctx.msg);
     if (r)

@@ -7,7 +7,6 @@
 #include "pixconv.h"
 #include "png_internal.h"
 #include "rowpipe.h"
-#include "lamina/parallel.h"
 
 #include <setjmp.h>
 #include <stdlib.h>
@@ -187,7 +186,6 @@ static size_t convert_strip(void *vjob, size_t y0, size_t rows, const uint8_t *c
 }
 
 /* Strips decoded here and converted on the other cores meanwhile. */
-#define STRIP_ROWS 32
 static lam_status read_pixels(png_job *job, int codes_only, lam_error *err)
 {
     job->stage = 1;
@@ -196,8 +194,9 @@ static lam_status read_pixels(png_job *job, int codes_only, lam_error *err)
     } else {
         lam__rowpipe_ops ops = {decode_strip, convert_strip, job};
         size_t clipped = 0;
-        int r = lam__rowpipe_run(job->img->height, STRIP_ROWS, job->rowbytes,
-                                 lam_parallel_default(), &ops, &clipped);
+        size_t h = job->img->height, rb = job->rowbytes;
+        int r = lam__rowpipe_run(h, lam__rowpipe_strip_rows(rb), rb, lam__rowpipe_threads(h, rb),
+                                 &ops, &clipped);
         if (r == -1)
             return lam_error_set(err, LAM_EFORMAT, "damaged PNG (in the pixel data): %s",
                                  job->ctx.msg);

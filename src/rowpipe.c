@@ -127,6 +127,23 @@ static void worker(size_t begin, size_t end, size_t slice, void *vp)
     pthread_mutex_unlock(&p->lock);
 }
 
+#define STRIP_ROWS 32
+#define STRIP_MIN_BYTES 65536
+
+size_t lam__rowpipe_strip_rows(size_t row_bytes)
+{
+    size_t rows = row_bytes ? (STRIP_MIN_BYTES + row_bytes - 1) / row_bytes : STRIP_ROWS;
+    return rows > STRIP_ROWS ? rows : STRIP_ROWS;
+}
+
+#define PIPE_MIN_BYTES ((size_t)256 << 10)
+
+size_t lam__rowpipe_threads(size_t height, size_t row_bytes)
+{
+    int small = row_bytes && height < PIPE_MIN_BYTES / row_bytes;
+    return small ? 1 : lam_parallel_default();
+}
+
 int lam__rowpipe_run(size_t height, size_t strip_rows, size_t row_bytes, size_t threads,
                      const lam__rowpipe_ops *ops, size_t *clipped)
 {

@@ -42,6 +42,19 @@ typedef struct lam__rowpipe_ops {
     void *ctx;
 } lam__rowpipe_ops;
 
+/* The rows a strip should hold for rows of row_bytes bytes: 32 (a strip
+ * of a 12 MP picture is then ~0.4 MB, so the ring stays in cache), or
+ * more for narrow rows, so that a strip holds at least 64 KB: handing a
+ * strip over costs microseconds, and a 24-pixel-wide picture in strips of
+ * 32 rows (or a TIFF of one-row strips) was mostly handing over. */
+size_t lam__rowpipe_strip_rows(size_t row_bytes);
+
+/* The threads a loader gives the pipeline for a picture of 'height' rows
+ * of row_bytes bytes: one below 256 KiB (a thread's handing over, tens of
+ * microseconds, is then most of a load: the fuzzers' small pictures ran
+ * at a third of their rate), else lam_parallel_default(). */
+size_t lam__rowpipe_threads(size_t height, size_t row_bytes);
+
 /* Decode and convert 'height' rows of row_bytes bytes each, in strips of
  * strip_rows (>= 1), the conversion on up to 'threads' threads (the
  * calling one included). *clipped: the sum of convert's returns. 0; -1

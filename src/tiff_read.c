@@ -8,7 +8,6 @@
 #include "colourmeta.h"
 #include "pixconv.h"
 #include "rowpipe.h"
-#include "lamina/parallel.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -500,24 +499,30 @@ typedef struct tiff_pipe {
     tiff_job *job;
     lam_error *err;
     lam_status st;          /* a damaged piece's status (decode's NULL) */
-    uint32_t tile_w, tile_h; /* tile_w 0: strips */
+    uint32_t tile_w, tile_h; /* tile_w 0: strips of tile_h rows */
 } tiff_pipe;
 
-/* Band rows y0.. from the strips that hold them (one per plane). */
+/* Band rows y0.. from the strips that hold them (a whole number of
+ * strips of tile_h rows, each one per plane). */
 static int strips_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band)
 {
     tiff_job *job = tp->job;
     const tiff_layout *L = &job->L;
     int separate = L->planar == PLANARCONFIG_SEPARATE;
     size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
-    tmsize_t need = (tmsize_t)(rows * L->w * pspp * job->bytes);
-    for (size_t s = 0; s < planes; s++) {
-        uint32_t strip = TIFFComputeStrip(job->tif, (uint32_t)y0, (uint16_t)s);
-        if (TIFFReadEncodedStrip(job->tif, strip, job->piece, need) < need) {
-            tp->st = damaged(&job->msgs, tp->err, "strip data");
-            return 0;
+    size_t row_bytes = (size_t)L->w * job->bspp * job->bytes;
+    for (size_t r0 = 0; r0 < rows; r0 += tp->tile_h) {
+        size_t n = rows - r0 < tp->tile_h ? rows - r0 : tp->tile_h;
+        tmsize_t need = (tmsize_t)(n * L->w * pspp * job->bytes);
+        for (size_t s = 0; s < planes; s++) {
+            uint32_t strip = TIFFComputeStrip(job->tif, (uint32_t)(y0 + r0), (uint16_t)s);
+            if (TIFFReadEncodedStrip(job->tif, strip, job->piece, need) < need) {
+                tp->st = damaged(&job->msgs, tp->err, "strip data");
+                return 0;
+            }
+            put_block(job, band + r0 * row_bytes, job->piece, L->w, pspp, 0, n, L->w, s,
+                      separate ? 1 : L->spp);
         }
-        put_block(job, band, job->piece, L->w, pspp, 0, rows, L->w, s, separate ? 1 : L->spp);
     }
     return 1;
 }
@@ -565,14 +570,27 @@ static size_t convert_band(void *vp, size_t y0, size_t rows, const uint8_t *band
  * rows at a time before. */
 #define TIFF_PIPE_BAND_MAX ((size_t)4 << 20)
 
-/* The picture in bands of band_rows rows (a strip's or a row of tiles'). */
-static lam_status read_bands(tiff_job *job, uint32_t tile_w, uint32_t band_rows,
-                             size_t band_bytes, lam_error *err)
+/* The picture in bands of a row of tiles, or of as many strips of
+ * piece_h rows as make a strip of the pipeline (lam__rowpipe_strip_rows:
+ * a TIFF of one-row strips would otherwise hand over every row, which
+ * costs even on one thread). */
+static lam_status read_bands(tiff_job *job, uint32_t tile_w, uint32_t piece_h,
+                             size_t piece_band_bytes, lam_error *err)
 {
-    tiff_pipe tp = {job, err, LAM_OK, tile_w, band_rows};
+    tiff_pipe tp = {job, err, LAM_OK, tile_w, piece_h};
+    size_t row_bytes = piece_band_bytes / piece_h, band_rows = piece_h, clipped = 0;
+    size_t threads = lam__rowpipe_threads(job->L.h, row_bytes);
+    if (piece_band_bytes > TIFF_PIPE_BAND_MAX)
+        threads = 1;
+    if (!tile_w) {
+        size_t want = lam__rowpipe_strip_rows(row_bytes), k = (want + piece_h - 1) / piece_h;
+        size_t k_max = TIFF_PIPE_BAND_MAX / piece_band_bytes;
+        k = k < k_max ? k : k_max; /* 0 when one strip is above it: one strip a band */
+        band_rows = (size_t)piece_h * k < job->L.h ? (size_t)piece_h * k : job->L.h;
+        band_rows = band_rows > piece_h ? band_rows : piece_h;
+    }
     lam__rowpipe_ops ops = {decode_band, convert_band, &tp};
-    size_t threads = band_bytes > TIFF_PIPE_BAND_MAX ? 1 : lam_parallel_default(), clipped = 0;
-    int r = lam__rowpipe_run(job->L.h, band_rows, band_bytes / band_rows, threads, &ops, &clipped);
+    int r = lam__rowpipe_run(job->L.h, band_rows, row_bytes, threads, &ops, &clipped);
     if (r == -1)
         return tp.st;
     if (r)

@@ -287,7 +287,9 @@ static void grey_jpeg(const uint8_t *grey, size_t w, size_t h)
 
 static void loaders(void)
 {
-    size_t w = 301, h = 203; /* odd sizes: a last short strip, clip bytes part-filled */
+    /* odd sizes (a last short strip, clip bytes part-filled), each file
+     * above the size a load pipes (256 KiB decoded: lam__rowpipe_threads) */
+    size_t w = 1201, h = 403;
     uint8_t *rgb = malloc(w * h * 3), *grey = malloc(w * h);
     uint16_t *px16 = malloc(w * h * 3 * sizeof *px16);
     draw(rgb, w, h, 3);

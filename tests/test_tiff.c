@@ -307,6 +307,18 @@ static void test_layouts(void)
     t = spec(300, 7, 8, 3);
     t.rps = 1000; /* RowsPerStrip above the height: one strip */
     check_layout(&t, "one strip taller than the image");
+    /* above the size a load pipes (256 KiB, src/rowpipe.c): strips grouped
+     * into bands, tiles by rows, decoded beside their conversion */
+    t = spec(701, 190, 16, 3);
+    t.compression = COMPRESSION_LZW;
+    check_layout(&t, "16-bit RGB 701x190, 5-row strips grouped, LZW");
+    t = spec(700, 400, 8, 1);
+    t.rps = 1;
+    check_layout(&t, "8-bit grey 700x400, one-row strips");
+    t = spec(700, 200, 8, 3);
+    t.tile = 16;
+    t.planar = PLANARCONFIG_SEPARATE;
+    check_layout(&t, "8-bit RGB 700x200, 16x16 tiles, separate planes");
 }
 
 static void test_kinds_and_pages(void)
