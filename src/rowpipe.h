@@ -51,8 +51,8 @@ size_t lam__rowpipe_strip_rows(size_t row_bytes);
 
 /* The threads a loader gives the pipeline for a picture of 'height' rows
  * of row_bytes bytes: one below 256 KiB (a thread's handing over, tens of
- * microseconds, is then most of a load: the fuzzers' small pictures ran
- * at a third of their rate), else lam_parallel_default(). */
+ * microseconds, is then most of a load: the image fuzzer's small pictures
+ * ran at a quarter of their rate), else lam_parallel_default(). */
 size_t lam__rowpipe_threads(size_t height, size_t row_bytes);
 
 /* Decode and convert 'height' rows of row_bytes bytes each, in strips of
