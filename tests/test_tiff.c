@@ -307,18 +307,31 @@ static void test_layouts(void)
     t = spec(300, 7, 8, 3);
     t.rps = 1000; /* RowsPerStrip above the height: one strip */
     check_layout(&t, "one strip taller than the image");
-    /* above the size a load pipes (256 KiB, src/rowpipe.c): strips grouped
-     * into bands, tiles by rows, decoded beside their conversion */
-    t = spec(701, 190, 16, 3);
-    t.compression = COMPRESSION_LZW;
-    check_layout(&t, "16-bit RGB 701x190, 5-row strips grouped, LZW");
-    t = spec(700, 400, 8, 1);
-    t.rps = 1;
-    check_layout(&t, "8-bit grey 700x400, one-row strips");
-    t = spec(700, 200, 8, 3);
-    t.tile = 16;
-    t.planar = PLANARCONFIG_SEPARATE;
-    check_layout(&t, "8-bit RGB 700x200, 16x16 tiles, separate planes");
+}
+
+/* Layouts above the size a load pipes (256 KiB decoded, src/rowpipe.c):
+ * strips grouped into bands, rows of tiles, decoded beside their
+ * conversion on the other cores. */
+static void test_piped_layouts(void)
+{
+    static const struct {
+        uint32_t w, h;
+        uint16_t bps, colour, rps, tile, planar, compression;
+        const char *what;
+    } L[] = {
+        {701, 190, 16, 3, 5, 0, PLANARCONFIG_CONTIG, COMPRESSION_LZW,
+         "16-bit RGB 701x190, 5-row strips grouped, LZW"},
+        {700, 400, 8, 1, 1, 0, PLANARCONFIG_CONTIG, COMPRESSION_NONE,
+         "8-bit grey 700x400, one-row strips"},
+        {700, 200, 8, 3, 5, 16, PLANARCONFIG_SEPARATE, COMPRESSION_NONE,
+         "8-bit RGB 700x200, 16x16 tiles, separate planes"},
+    };
+    for (size_t i = 0; i < sizeof L / sizeof L[0]; i++) {
+        tspec t = spec(L[i].w, L[i].h, L[i].bps, L[i].colour);
+        t.rps = L[i].rps, t.tile = L[i].tile, t.planar = L[i].planar;
+        t.compression = L[i].compression;
+        check_layout(&t, L[i].what);
+    }
 }
 
 static void test_kinds_and_pages(void)
@@ -696,6 +709,7 @@ int main(void)
     check_begin("test_tiff");
     TIFFSetWarningHandler(NULL); /* the writer's notes (legacy deflate id) are expected */
     test_layouts();
+    test_piped_layouts();
     test_kinds_and_pages();
     test_refusals();
     test_camera_raw();
