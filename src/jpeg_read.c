@@ -170,10 +170,7 @@ static size_t convert_strip(void *vjob, size_t y0, size_t rows, const uint8_t *c
     jpeg_job *job = vjob;
     if (job->pc.chans == 3)
         return lam__pixconv_rgb8_strip(&job->pc, job->img, y0, rows, codes);
-    size_t clipped = 0, w = job->img->width;
-    for (size_t i = 0; i < rows; i++)
-        clipped += lam__pixconv_row_counted(&job->pc, job->img, y0 + i, codes + i * w, 1);
-    return clipped;
+    return lam__pixconv_rows(&job->pc, job->img, y0, rows, codes, job->img->width, 1);
 }
 
 /* Strips of rows decoded here and converted on the other cores meanwhile

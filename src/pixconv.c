@@ -90,22 +90,24 @@ void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int ch
 
 #undef CONVERT_ROW
 
-typedef struct rgb8_ctx {
-    const lam__pixconv *pc;
-    lam_image *img;
-    size_t y0;             /* first image row of the codes */
-    const uint8_t *codes;  /* rows y0.. as 8-bit RGB */
-} rgb8_ctx;
-
-/* One row: planes from the LUTs, and the row's clip bits a byte (8
- * pixels) at a time, so that no pixel waits on the previous one's bit. */
-static size_t rgb8_row(const rgb8_ctx *c, size_t y)
+size_t lam__pixconv_rows(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
+                         const void *codes, size_t row_bytes, size_t stride)
 {
-    const lam_image *img = c->img;
-    const float *l0 = c->pc->lut[0], *l1 = c->pc->lut[1], *l2 = c->pc->lut[2];
-    unsigned top = c->pc->clip_code;
+    size_t clipped = 0;
+    for (size_t i = 0; i < rows; i++)
+        clipped += lam__pixconv_row_counted(pc, img, y0 + i, (const uint8_t *)codes + i * row_bytes,
+                                            stride);
+    return clipped;
+}
+
+/* One row y from its 8-bit RGB codes p: planes from the LUTs, and the
+ * row's clip bits a byte (8 pixels) at a time, so that no pixel waits on
+ * the previous one's bit. */
+static size_t rgb8_row(const lam__pixconv *pc, lam_image *img, size_t y, const uint8_t *p)
+{
+    const float *l0 = pc->lut[0], *l1 = pc->lut[1], *l2 = pc->lut[2];
+    unsigned top = pc->clip_code;
     size_t w = img->width, clipped = 0;
-    const uint8_t *p = c->codes + (y - c->y0) * w * 3;
     float *o0 = img->plane[0] + y * w, *o1 = img->plane[1] + y * w, *o2 = img->plane[2] + y * w;
     uint8_t *cb = img->clip_bits + y * img->clip_stride; /* the row's own bytes */
     for (size_t x0 = 0; x0 < w; x0 += 8) {
@@ -128,15 +130,9 @@ static size_t rgb8_row(const rgb8_ctx *c, size_t y)
 size_t lam__pixconv_rgb8_strip(const lam__pixconv *pc, lam_image *img, size_t y0,
                                size_t rows, const uint8_t *codes)
 {
-    rgb8_ctx c;
-    memset(&c, 0, sizeof c);
-    c.pc = pc;
-    c.img = img;
-    c.y0 = y0;
-    c.codes = codes;
-    size_t clipped = 0;
-    for (size_t y = y0; y < y0 + rows; y++)
-        clipped += rgb8_row(&c, y);
+    size_t clipped = 0, row_bytes = img->width * 3;
+    for (size_t i = 0; i < rows; i++)
+        clipped += rgb8_row(pc, img, y0 + i, codes + i * row_bytes);
     return clipped;
 }
 

@@ -38,6 +38,11 @@ void lam__pixconv_row(const lam__pixconv *pc, lam_image *img, size_t y, const vo
 size_t lam__pixconv_row_counted(const lam__pixconv *pc, lam_image *img, size_t y, const void *row,
                                 size_t stride);
 
+/* Rows y0 .. y0+rows-1 by lam__pixconv_row_counted, row i at codes + i *
+ * row_bytes; returns their clipped pixels. */
+size_t lam__pixconv_rows(const lam__pixconv *pc, lam_image *img, size_t y0, size_t rows,
+                         const void *codes, size_t row_bytes, size_t stride);
+
 /* Row y of 8-bit samples (chans 1 or 3) into img->display8 alone: the
  * codes copied, grey replicated into R, G and B (display8_only loads). */
 void lam__pixconv_codes_row(lam_image *img, size_t y, const uint8_t *row, int chans);

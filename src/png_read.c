@@ -178,11 +178,8 @@ static size_t convert_strip(void *vjob, size_t y0, size_t rows, const uint8_t *c
     png_job *job = vjob;
     if (into_display8(job))
         return lam__pixconv_rgb8_strip(&job->pc, job->img, y0, rows, codes);
-    size_t clipped = 0;
-    for (size_t i = 0; i < rows; i++)
-        clipped += lam__pixconv_row_counted(&job->pc, job->img, y0 + i,
-                                            codes + i * job->rowbytes, (size_t)job->pc.chans);
-    return clipped;
+    return lam__pixconv_rows(&job->pc, job->img, y0, rows, codes, job->rowbytes,
+                             (size_t)job->pc.chans);
 }
 
 /* Strips decoded here and converted on the other cores meanwhile. */

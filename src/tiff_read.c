@@ -465,11 +465,8 @@ static void invert_rows(const tiff_job *job, unsigned char *band, size_t rows)
 /* Band rows y0.. to the planes; returns their clipped pixels. */
 static size_t convert_rows(const tiff_job *job, const unsigned char *band, size_t y0, size_t rows)
 {
-    size_t per_row = (size_t)job->L.w * job->bspp * job->bytes, clipped = 0;
-    for (size_t r = 0; r < rows; r++)
-        clipped += lam__pixconv_row_counted(&job->pc, job->img, y0 + r, band + r * per_row,
-                                            job->bspp);
-    return clipped;
+    return lam__pixconv_rows(&job->pc, job->img, y0, rows, band,
+                             (size_t)job->L.w * job->bspp * job->bytes, job->bspp);
 }
 
 /* The piece buffer for pieces of piece_w x piece_h pixels; *band_bytes:
@@ -499,11 +496,11 @@ typedef struct tiff_pipe {
     tiff_job *job;
     lam_error *err;
     lam_status st;          /* a damaged piece's status (decode's NULL) */
-    uint32_t tile_w, tile_h; /* tile_w 0: strips of tile_h rows */
+    uint32_t piece_w, piece_h; /* a tile's size, or piece_w 0: strips of piece_h rows */
 } tiff_pipe;
 
 /* Band rows y0.. from the strips that hold them (a whole number of
- * strips of tile_h rows, each one per plane). */
+ * strips of piece_h rows, each one per plane). */
 static int strips_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band)
 {
     tiff_job *job = tp->job;
@@ -511,8 +508,8 @@ static int strips_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *ban
     int separate = L->planar == PLANARCONFIG_SEPARATE;
     size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
     size_t row_bytes = (size_t)L->w * job->bspp * job->bytes;
-    for (size_t r0 = 0; r0 < rows; r0 += tp->tile_h) {
-        size_t n = rows - r0 < tp->tile_h ? rows - r0 : tp->tile_h;
+    for (size_t r0 = 0; r0 < rows; r0 += tp->piece_h) {
+        size_t n = rows - r0 < tp->piece_h ? rows - r0 : tp->piece_h;
         tmsize_t need = (tmsize_t)(n * L->w * pspp * job->bytes);
         for (size_t s = 0; s < planes; s++) {
             uint32_t strip = TIFFComputeStrip(job->tif, (uint32_t)(y0 + r0), (uint16_t)s);
@@ -534,8 +531,8 @@ static int tiles_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band
     const tiff_layout *L = &job->L;
     int separate = L->planar == PLANARCONFIG_SEPARATE;
     size_t pspp = separate ? 1 : L->spp, planes = separate ? (size_t)L->colour : 1;
-    size_t tw = tp->tile_w;
-    tmsize_t need = (tmsize_t)(tw * (size_t)tp->tile_h * pspp * job->bytes);
+    size_t tw = tp->piece_w;
+    tmsize_t need = (tmsize_t)(tw * (size_t)tp->piece_h * pspp * job->bytes);
     for (size_t x0 = 0; x0 < L->w; x0 += tw) {
         size_t cols = L->w - x0 < tw ? L->w - x0 : tw;
         for (size_t s = 0; s < planes; s++) {
@@ -553,7 +550,7 @@ static int tiles_into(tiff_pipe *tp, size_t y0, size_t rows, unsigned char *band
 static const uint8_t *decode_band(void *vp, size_t y0, size_t rows, uint8_t *buf)
 {
     tiff_pipe *tp = vp;
-    if (!(tp->tile_w ? tiles_into(tp, y0, rows, buf) : strips_into(tp, y0, rows, buf)))
+    if (!(tp->piece_w ? tiles_into(tp, y0, rows, buf) : strips_into(tp, y0, rows, buf)))
         return NULL;
     invert_rows(tp->job, buf, rows);
     return buf;
@@ -574,20 +571,20 @@ static size_t convert_band(void *vp, size_t y0, size_t rows, const uint8_t *band
  * piece_h rows as make a strip of the pipeline (lam__rowpipe_strip_rows:
  * a TIFF of one-row strips would otherwise hand over every row, which
  * costs even on one thread). */
-static lam_status read_bands(tiff_job *job, uint32_t tile_w, uint32_t piece_h,
+static lam_status read_bands(tiff_job *job, uint32_t piece_w, uint32_t piece_h,
                              size_t piece_band_bytes, lam_error *err)
 {
-    tiff_pipe tp = {job, err, LAM_OK, tile_w, piece_h};
+    tiff_pipe tp = {job, err, LAM_OK, piece_w, piece_h};
     size_t row_bytes = piece_band_bytes / piece_h, band_rows = piece_h, clipped = 0;
     size_t threads = lam__rowpipe_threads(job->L.h, row_bytes);
     if (piece_band_bytes > TIFF_PIPE_BAND_MAX)
         threads = 1;
-    if (!tile_w) {
+    if (!piece_w) {
         size_t want = lam__rowpipe_strip_rows(row_bytes), k = (want + piece_h - 1) / piece_h;
         size_t k_max = TIFF_PIPE_BAND_MAX / piece_band_bytes;
-        k = k < k_max ? k : k_max; /* 0 when one strip is above it: one strip a band */
+        k = k < k_max ? k : k_max;
+        k = k ? k : 1; /* one strip above the limit: a band of its own */
         band_rows = (size_t)piece_h * k < job->L.h ? (size_t)piece_h * k : job->L.h;
-        band_rows = band_rows > piece_h ? band_rows : piece_h;
     }
     lam__rowpipe_ops ops = {decode_band, convert_band, &tp};
     int r = lam__rowpipe_run(job->L.h, band_rows, row_bytes, threads, &ops, &clipped);
